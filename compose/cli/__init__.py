@@ -1,0 +1,1 @@
+"""The `compose` command. Nothing in the core imports this package."""

@@ -1,0 +1,1 @@
+"""Colour mathematics over arrays of shape (..., 3). Depends on nothing else of ours."""
