@@ -1,1 +1,1 @@
-"""compose.output"""
+"""Writers: PNG, GeoTIFF, legend and reports, all written to a temporary name and renamed."""

@@ -1,0 +1,186 @@
+"""Per-layer statistics gathered window by window as mergeable histograms.
+
+Nothing here converts every pixel through a colour library: raster layers are counted by their
+lookup-table index (``np.bincount``), flat-coloured parts by their coverage sum, and only the
+few distinct colours are converted to CIELAB at the end. Contrast of an overlay against what lies
+beneath it is binned in steps of 0.01 of WCAG contrast ratio, so thresholds such as 3.0 and 4.5
+fall exactly on bin edges.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from compose.color.bulk import _TABLES  # per-channel linear-light x matrix tables (8-bit)
+from compose.color.lab import srgb_to_lch
+from compose.color.srgb import srgb_to_linear
+from compose.color.wcag import WCAG_Y
+
+__all__ = ["CONTRAST_STEP", "N_CONTRAST", "N_LIGHTNESS", "PartStats", "LayerStats", "Statistics",
+           "weighted_percentiles", "spearman_from_table", "lightness_of_rgb8", "luminance_of_planes",
+           "contrast_bins"]
+
+CONTRAST_STEP = 0.01
+N_CONTRAST = 2000          # bins [1.00, 1.01), ... [20.99, 21.00]
+N_LIGHTNESS = 101          # L* bins of width 1, centres 0..100
+
+
+def contrast_bins(ratio: np.ndarray) -> np.ndarray:
+    """Bin index of WCAG contrast ratios in [1, 21] (bin i holds [1 + i/100, 1 + (i+1)/100))."""
+    idx = np.floor((np.asarray(ratio, dtype=np.float64) - 1.0) / CONTRAST_STEP + 1e-9)
+    return np.clip(idx, 0, N_CONTRAST - 1).astype(np.int64)
+
+
+def luminance_of_planes(planes: np.ndarray) -> np.ndarray:
+    """WCAG relative luminance of (3, n) gamma-encoded float sRGB -> (n,)."""
+    lin = srgb_to_linear(planes.T)
+    return lin @ WCAG_Y
+
+
+def lightness_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
+    """CIELAB L* (float32) of 8-bit sRGB pixels (n, 3) by lookup tables: Y = sum of 3 tables."""
+    y = (np.take(_TABLES[1, 0], rgb8[:, 0]) + np.take(_TABLES[1, 1], rgb8[:, 1])
+         + np.take(_TABLES[1, 2], rgb8[:, 2]))
+    eps = np.float32((6 / 29) ** 3)
+    f = np.where(y > eps, np.cbrt(y), y * np.float32(1 / (3 * (6 / 29) ** 2)) + np.float32(4 / 29))
+    return np.float32(116) * f - np.float32(16)
+
+
+def weighted_percentiles(values: np.ndarray, weights: np.ndarray, qs=(5, 50, 95)) -> list[float]:
+    """Percentiles (0-100) of ``values`` with ``weights`` (inverse of the weighted CDF)."""
+    values = np.asarray(values, dtype=float)
+    weights = np.asarray(weights, dtype=float)
+    keep = weights > 0
+    if not keep.any():
+        return [float("nan")] * len(qs)
+    v, w = values[keep], weights[keep]
+    order = np.argsort(v, kind="stable")
+    v, w = v[order], w[order]
+    cdf = np.cumsum(w) / w.sum()
+    return [float(v[min(np.searchsorted(cdf, q / 100.0 - 1e-12), v.size - 1)]) for q in qs]
+
+
+def _midranks(weights: np.ndarray) -> np.ndarray:
+    """Mid-ranks of ordered categories with the given (weighted) counts."""
+    c = np.cumsum(weights)
+    return c - weights / 2.0
+
+
+def spearman_from_table(table: np.ndarray, row_values: np.ndarray, col_values: np.ndarray) -> float:
+    """Spearman's rho from a weighted contingency table (rows: one variable, columns: the other).
+
+    Ties share their mid-rank, as in the usual tie-corrected rho (Pearson correlation of ranks).
+    """
+    table = np.asarray(table, dtype=float)
+    rmask = np.isfinite(row_values) & (table.sum(axis=1) > 0)
+    table = table[rmask]
+    rv = np.asarray(row_values)[rmask]
+    cmask = table.sum(axis=0) > 0
+    table = table[:, cmask]
+    cv = np.asarray(col_values)[cmask]
+    if table.size == 0 or table.sum() == 0:
+        return float("nan")
+    ro = np.argsort(rv, kind="stable")
+    table = table[ro]
+    rv = rv[ro]
+    co = np.argsort(cv, kind="stable")
+    table = table[:, co]
+    # merge rows with equal values (ties)
+    _, rstart = np.unique(rv, return_index=True)
+    table = np.add.reduceat(table, rstart, axis=0)
+    rw, cw = table.sum(axis=1), table.sum(axis=0)
+    rr, cr = _midranks(rw), _midranks(cw)
+    n = table.sum()
+    mr, mc = (rw * rr).sum() / n, (cw * cr).sum() / n
+    cov = (table * np.outer(rr - mr, cr - mc)).sum()
+    vr = (rw * (rr - mr) ** 2).sum()
+    vc = (cw * (cr - mc) ** 2).sum()
+    if vr <= 0 or vc <= 0:
+        return float("nan")
+    return float(cov / np.sqrt(vr * vc))
+
+
+@dataclass
+class PartStats:
+    """One part of a layer (shade, data, fill, stroke, halo, text, marker) over the whole canvas.
+
+    colors: (n, 3) uint8 colours of the part; weights: (n,) coverage-weighted pixel counts.
+    contrast: (N_CONTRAST,) coverage-weighted histogram of the WCAG contrast between the part's
+    colour and what lay beneath it just before it was drawn (overlays only).
+    ground_contrast: the same against what lay beneath the whole layer (differs from ``contrast``
+    for a stroke drawn over its own halo).
+    beneath_lightness: (N_LIGHTNESS,) L* histogram of what lay beneath (overlays only).
+    """
+
+    part: str
+    colors: np.ndarray
+    weights: np.ndarray
+    contrast: np.ndarray | None = None
+    ground_contrast: np.ndarray | None = None
+    beneath_lightness: np.ndarray | None = None
+
+    def merge(self, other: "PartStats") -> None:
+        self.weights += other.weights
+        for name in ("contrast", "ground_contrast", "beneath_lightness"):
+            a, b = getattr(self, name), getattr(other, name)
+            if b is not None:
+                setattr(self, name, b.copy() if a is None else a + b)
+
+
+@dataclass
+class LayerStats:
+    """Everything measured of one layer; merges across windows by addition."""
+
+    name: str
+    role: str
+    kind: str
+    parts: dict[str, PartStats] = field(default_factory=dict)
+    covered: float = 0.0                       # coverage-weighted pixel count of the layer
+    values: np.ndarray | None = None           # (n,) data value per palette entry (themes)
+    value_lightness: np.ndarray | None = None  # (n, N_LIGHTNESS) palette index x composite L*
+    nodata_weight: float = 0.0                 # pixels drawn in the no-data colour
+
+    def colors_and_weights(self, parts=None) -> tuple[np.ndarray, np.ndarray]:
+        """All colours of the chosen parts (default all) with their weights."""
+        chosen = [p for k, p in self.parts.items() if parts is None or k in parts]
+        if not chosen:
+            return np.zeros((0, 3), np.uint8), np.zeros(0)
+        return (np.concatenate([p.colors for p in chosen]),
+                np.concatenate([p.weights for p in chosen]))
+
+    def lightness_chroma(self, parts=None) -> tuple[list[float], list[float]]:
+        """(L* p5, p50, p95), (C* p5, p50, p95) of the layer's own colours, coverage-weighted."""
+        colors, weights = self.colors_and_weights(parts)
+        if colors.shape[0] == 0:
+            nan = [float("nan")] * 3
+            return nan, nan
+        lch = srgb_to_lch(colors / 255.0)
+        return weighted_percentiles(lch[:, 0], weights), weighted_percentiles(lch[:, 1], weights)
+
+    def grayscale_rho(self) -> float:
+        """Spearman rho between data value and the composite's L* over this layer's pixels."""
+        if self.value_lightness is None or self.values is None:
+            return float("nan")
+        return spearman_from_table(self.value_lightness, self.values, np.arange(N_LIGHTNESS, dtype=float))
+
+
+@dataclass
+class Statistics:
+    """Statistics of a whole render: one :class:`LayerStats` per drawn layer, in drawing order."""
+
+    width: int
+    height: int
+    layers: list[LayerStats]
+    background: tuple[float, float, float]
+    composite_lightness: np.ndarray = field(default_factory=lambda: np.zeros(N_LIGHTNESS))
+
+    @property
+    def pixels(self) -> int:
+        return self.width * self.height
+
+    def layer(self, name: str) -> LayerStats:
+        for s in self.layers:
+            if s.name == name:
+                return s
+        raise KeyError(name)

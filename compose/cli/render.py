@@ -1,0 +1,58 @@
+"""``compose render STYLE [--out DIR] [--overwrite]``."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from compose.cli.main import handle_errors
+
+__all__ = ["command", "print_summary", "progress_bar"]
+
+
+class progress_bar:
+    """A click progress bar that appears only for renders of more than a few windows."""
+
+    def __init__(self, label: str):
+        self.label = label
+        self.bar = None
+
+    def __call__(self, done: int, total: int) -> None:
+        if total <= 4:
+            return
+        if self.bar is None:
+            self.bar = click.progressbar(length=total, label=self.label, file=click.get_text_stream("stderr"))
+            self.bar.__enter__()
+        self.bar.update(1)
+        if done == total:
+            self.bar.__exit__(None, None, None)
+
+
+def print_summary(result) -> None:
+    """Outputs, size, time, unplaced labels and the check verdict of one render."""
+    click.echo(f"rendered {result.width} x {result.height} px in {result.seconds['total']:.1f} s")
+    for kind, path in result.outputs.items():
+        size = path.stat().st_size / 1e6 if path.exists() else 0
+        click.echo(f"  {kind:<7} {path}  ({size:.1f} MB)")
+    for layer, labels in result.unplaced_labels.items():
+        click.echo(f"  layer \"{layer}\": {len(labels)} label(s) not placed: {', '.join(labels)}")
+    if result.report is not None:
+        failed = [r for r in result.report.rules if not r.passed]
+        verdict = "passed" if result.report.passed else f"FAILED ({len(failed)} rule(s))"
+        click.echo(f"  check   {verdict}")
+
+
+@click.command("render")
+@click.argument("style", type=click.Path(path_type=Path))
+@click.option("--out", "out_dir", type=click.Path(path_type=Path), default=Path("out"), show_default=True,
+              help="Folder for NAME.png, NAME.tif, NAME.legend.png, NAME.check.json.")
+@click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@handle_errors
+def command(style: Path, out_dir: Path, overwrite: bool) -> None:
+    """Render STYLE to a PNG, an RGBA GeoTIFF, a legend and a check report."""
+    from compose.render import render_style
+    from compose.style import load_style
+
+    result = render_style(load_style(style), out_dir, overwrite=overwrite,
+                          progress=progress_bar("rendering"))
+    print_summary(result)

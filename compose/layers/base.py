@@ -1,0 +1,85 @@
+"""What a layer paints into one window, and the registry of layer kinds.
+
+A layer kind is a class with ``__init__(spec, context)`` (open sources, build colour tables, read
+vectors -- once per render), ``margin`` (pixels of overlap it needs around a window), and
+``paint(window, transform, height, width) -> list[Paint]`` for the window's padded region.
+Adding a kind is one module plus one entry in :data:`LAYER_KINDS` (see ``compose.layers``).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Protocol
+
+import numpy as np
+from affine import Affine
+
+from compose.canvas import Canvas, Window
+
+__all__ = ["Palette", "Paint", "Context", "LayerKind"]
+
+
+@dataclass(frozen=True, slots=True)
+class Palette:
+    """A colour lookup table: entry i has colour ``rgb8[i]``.
+
+    rgb8: (n, 3) uint8 sRGB. planes: (3, n) float32 in [0, 1], for np.take per channel.
+    values: (n,) data value of each entry (NaN where none: under, over, no-data, classes' gaps).
+    nodata: index of the no-data entry, or -1.
+    """
+
+    rgb8: np.ndarray
+    values: np.ndarray
+    nodata: int = -1
+    planes: np.ndarray = field(init=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "planes",
+                           np.ascontiguousarray(self.rgb8.T.astype(np.float32) / np.float32(255)))
+
+    def colour_planes(self, index: np.ndarray) -> np.ndarray:
+        """(h, w) uint16 indices -> (3, h, w) float32 colour planes."""
+        out = np.empty((3,) + index.shape, dtype=np.float32)
+        for c in range(3):
+            np.take(self.planes[c], index, out=out[c])
+        return out
+
+
+@dataclass(frozen=True, slots=True)
+class Paint:
+    """One part of a layer in one window (padded region).
+
+    part: "shade", "data", "fill", "stroke", "halo", "text", "marker".
+    alpha: (h, w) float32 coverage in [0, 1] (layer opacity not yet applied).
+    color: a flat sRGB colour (3 floats in [0, 1]) -- or ``index`` + ``palette`` for rasters.
+    """
+
+    part: str
+    alpha: np.ndarray
+    color: tuple[float, float, float] | None = None
+    index: np.ndarray | None = None
+    palette: Palette | None = None
+
+    def planes(self) -> np.ndarray:
+        """Colour as (3, h, w) float32 (broadcast view for flat colours)."""
+        if self.palette is not None:
+            return self.palette.colour_planes(self.index)
+        c = np.asarray(self.color, dtype=np.float32).reshape(3, 1, 1)
+        return np.broadcast_to(c, (3,) + self.alpha.shape)
+
+
+@dataclass
+class Context:
+    """What every layer kind may use while preparing: the canvas, built ramps, the style."""
+
+    canvas: Canvas
+    ramps: dict[str, Any]
+    style: Any
+
+
+class LayerKind(Protocol):
+    spec: Any
+    margin: int
+
+    def paint(self, window: Window, transform: Affine, height: int, width: int) -> list[Paint]: ...
+
+    def close(self) -> None: ...

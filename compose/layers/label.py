@@ -1,0 +1,62 @@
+"""The ``labels`` layer: point labels from an attribute, with a halo, placed once on the whole
+canvas by priority with overlap avoidance (so windows agree), then drawn window by window."""
+from __future__ import annotations
+
+import numpy as np
+import shapely
+
+from compose.errors import StyleError
+from compose.layers.base import Context, Paint
+from compose.layers.labels import draw_labels, place_labels
+from compose.sources.vector import VectorSource
+
+__all__ = ["LabelsLayer"]
+
+
+class LabelsLayer:
+    """Text labels; ``unplaced`` lists the labels that found no free position."""
+
+    def __init__(self, spec, context: Context):
+        self.spec = spec
+        self.options = o = spec.options
+        canvas = self.canvas = context.canvas
+        self.source = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.where)
+        self.source.check_overlap(canvas)
+        feats = self.source.load(canvas.crs)
+        items = []
+        for geom, props in zip(feats.geometries, feats.properties):
+            if o.text not in props:
+                raise StyleError(f'layer "{spec.name}": text attribute \'{o.text}\' not found; '
+                                 f"attributes: {', '.join(sorted(props))}")
+            text = props.get(o.text)
+            if text is None or str(text).strip() == "":
+                continue
+            pt = geom if geom.geom_type == "Point" else shapely.point_on_surface(geom)
+            prio = 0.0
+            if o.priority:
+                v = props.get(o.priority)
+                prio = float(v) if v is not None else 0.0
+            items.append((pt.x, pt.y, str(text), prio))
+        px = canvas.points_to_pixels
+        halo_px = px(o.halo.width) if o.halo is not None else 0.0
+        self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,
+                                      size_px=px(o.size), font=o.font, weight=o.weight,
+                                      halo_px=halo_px, offset_px=px(o.offset))
+        self.margin = 0  # labels are placed on the whole canvas and drawn clipped per window
+
+    @property
+    def unplaced(self) -> list[str]:
+        return [str(getattr(it, "text", it)) for it in self.placement.unplaced]
+
+    def paint(self, window, transform, height, width) -> list[Paint]:
+        o = self.options
+        text_cov, halo_cov = draw_labels(self.placement, transform, width, height)
+        paints = []
+        if o.halo is not None and halo_cov is not None and np.any(halo_cov):
+            paints.append(Paint("halo", halo_cov, color=o.halo.color))
+        if np.any(text_cov):
+            paints.append(Paint("text", text_cov, color=o.color))
+        return paints
+
+    def close(self) -> None:
+        pass

@@ -1,0 +1,65 @@
+"""Thematic raster layers: ``field`` (continuous values through a ramp) and ``classes``
+(integer categories through a qualitative ramp). Values -> lookup-table index -> colour."""
+from __future__ import annotations
+
+import numpy as np
+
+from compose.errors import StyleError
+from compose.layers.base import Context, Paint, Palette
+from compose.sources.raster import RasterSource
+
+__all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut"]
+
+
+def palette_from_lut(lut, nodata_rgb=None) -> Palette:
+    """A :class:`Palette` over every entry of a ramp's lookup table (under, over, no-data included)."""
+    rgb8 = np.array(lut.rgb8, dtype=np.uint8, copy=True)
+    if nodata_rgb is not None:
+        rgb8[lut.nodata_index] = np.clip(np.rint(np.asarray(nodata_rgb) * 255), 0, 255)
+    values = np.full(rgb8.shape[0], np.nan)
+    n = min(len(lut.values), rgb8.shape[0])
+    values[:n] = lut.values[:n]
+    values[lut.nodata_index] = np.nan
+    return Palette(rgb8=rgb8, values=values, nodata=lut.nodata_index)
+
+
+class FieldLayer:
+    """Continuous values coloured through a ramp; no-data in its own colour or transparent."""
+
+    margin = 1
+
+    def __init__(self, spec, context: Context):
+        self.spec = spec
+        o = spec.options
+        self.options = o
+        self.canvas = context.canvas
+        if o.ramp not in context.ramps:
+            raise StyleError(f'layer "{spec.name}": unknown ramp \'{o.ramp}\'; ramps: '
+                             + ", ".join(sorted(context.ramps)))
+        self.ramp = context.ramps[o.ramp]
+        self.source = RasterSource(spec.source, o.band, layer=spec.name)
+        self.source.check_overlap(self.canvas)
+        self.lut = self._lut()
+        nodata = getattr(o, "nodata", None)
+        self.transparent_nodata = isinstance(nodata, str) and nodata == "transparent"
+        self.palette = palette_from_lut(self.lut, None if (nodata is None or self.transparent_nodata)
+                                        else nodata)
+
+    def _lut(self):
+        return self.ramp.lut()
+
+    def paint(self, window, transform, height, width) -> list[Paint]:
+        values = self.source.read(self.canvas.crs, transform, width, height, self.options.resampling)
+        index = self.lut.index(values).astype(np.uint16, copy=False)
+        if self.transparent_nodata:
+            alpha = (index != self.lut.nodata_index).astype(np.float32)
+        else:
+            alpha = np.ones(index.shape, dtype=np.float32)
+        return [Paint("data", alpha, index=index, palette=self.palette)]
+
+    def close(self) -> None:
+        self.source.close()
+
+
+class ClassesLayer(FieldLayer):
+    """Integer categories coloured through a qualitative ramp; unknown values are no-data."""

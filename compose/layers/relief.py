@@ -1,0 +1,77 @@
+"""The relief layer: a muted, tinted hillshade (Horn 1981) coloured through a lookup table.
+
+Shade s in [0, 1] (Lambertian, from :mod:`compose.layers.hillshade`) is quantised to
+:data:`LEVELS` entries. Flat ground (s = sin(altitude)) is drawn in the ``tint``; faces turned
+away from the sun move toward the ``shadow`` colour by ``strength``; faces turned toward it move a
+little toward a highlight. The ramp between them is interpolated in CIELAB, so the relief stays
+light and low in chroma by construction.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from compose.color.lab import lab_to_srgb, srgb_to_lab
+from compose.color.parse import to_rgb8
+from compose.layers.base import Context, Paint, Palette
+from compose.layers.hillshade import multidirectional
+from compose.sources.raster import RasterSource, cell_size_metres
+
+__all__ = ["ReliefLayer", "relief_palette", "default_shadow", "LEVELS"]
+
+LEVELS = 1024
+
+
+def default_shadow(tint) -> tuple[float, float, float]:
+    """A darker, lower-chroma version of ``tint``: L* - 45 (floor 20), chroma halved, same hue."""
+    lab = srgb_to_lab(np.asarray(tint, dtype=float))
+    L = max(20.0, lab[0] - 45.0)
+    rgb = np.clip(lab_to_srgb(np.array([L, lab[1] * 0.5, lab[2] * 0.5])), 0, 1)
+    return tuple(float(v) for v in rgb)
+
+
+def relief_palette(tint, shadow, strength: float, altitude: float) -> Palette:
+    """Lookup table of LEVELS colours for shade 0..1, plus a transparent no-data entry at the end."""
+    s = np.linspace(0.0, 1.0, LEVELS)
+    flat = np.sin(np.radians(altitude))
+    lab_tint = srgb_to_lab(np.asarray(tint, dtype=float))
+    lab_shadow = srgb_to_lab(np.asarray(shadow, dtype=float))
+    lab_light = lab_tint.copy()
+    lab_light[0] = lab_tint[0] + (100.0 - lab_tint[0]) * 0.6
+    lab_light[1:] *= 0.7
+    dark = strength * np.clip((flat - s) / flat, 0.0, 1.0)                  # 0 at flat, strength at s=0
+    light = strength * np.clip((s - flat) / max(1e-6, 1.0 - flat), 0.0, 1.0)
+    lab = lab_tint + dark[:, None] * (lab_shadow - lab_tint) + light[:, None] * (lab_light - lab_tint)
+    rgb8 = to_rgb8(lab_to_srgb(lab))
+    rgb8 = np.vstack([rgb8, [[0, 0, 0]]])                                   # no-data entry
+    values = np.append(s, np.nan)
+    return Palette(rgb8=rgb8, values=values, nodata=LEVELS)
+
+
+class ReliefLayer:
+    """Hillshaded relief from a DEM (metres), tinted and muted."""
+
+    margin = 2
+
+    def __init__(self, spec, context: Context):
+        self.spec = spec
+        o = spec.options
+        self.options = o
+        self.canvas = context.canvas
+        self.source = RasterSource(spec.source, o.band, layer=spec.name)
+        self.source.check_overlap(self.canvas)
+        shadow = o.shadow if o.shadow is not None else default_shadow(o.tint)
+        self.palette = relief_palette(o.tint, shadow, o.strength, o.altitude)
+
+    def paint(self, window, transform, height, width) -> list[Paint]:
+        o = self.options
+        dem = self.source.read(self.canvas.crs, transform, width, height, o.resampling)
+        dx, dy = cell_size_metres(self.canvas.crs, transform, height)
+        shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
+                                 exaggeration=o.exaggeration, directions=o.directions)
+        valid = np.isfinite(shade)
+        index = np.where(valid, np.rint(np.nan_to_num(shade) * (LEVELS - 1)), LEVELS).astype(np.uint16)
+        alpha = valid.astype(np.float32)
+        return [Paint("shade", alpha, index=index, palette=self.palette)]
+
+    def close(self) -> None:
+        self.source.close()

@@ -1,0 +1,122 @@
+"""Vector overlays: ``lines``, ``areas`` and ``points`` from anything OGR reads, drawn antialiased
+by matplotlib's Agg renderer at exact pixel geometry (see :mod:`compose.layers.draw`)."""
+from __future__ import annotations
+
+import numpy as np
+
+from compose.layers.base import Context, Paint
+from compose.layers.draw import draw_areas, draw_lines, draw_points
+from compose.sources.vector import VectorSource
+
+__all__ = ["LinesLayer", "AreasLayer", "PointsLayer"]
+
+
+def _window_box(transform, height, width, pad_px):
+    """(west, south, east, north) of a padded window grown by ``pad_px`` pixels (CRS units)."""
+    px = abs(transform.a)
+    west, north = transform.c, transform.f
+    east, south = west + px * width, north - abs(transform.e) * height
+    pad = pad_px * px
+    return (west - pad, south - pad, east + pad, north + pad)
+
+
+class _VectorLayer:
+    def __init__(self, spec, context: Context):
+        self.spec = spec
+        self.options = o = spec.options
+        self.canvas = context.canvas
+        self.source = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.where)
+        self.source.check_overlap(self.canvas)
+        self.features = self.source.load(self.canvas.crs)
+        self.px = self.canvas.points_to_pixels
+        self.margin = int(np.ceil(self._reach_px())) + 2
+
+    def _reach_px(self) -> float:
+        return 0.0
+
+    def _features(self, transform, height, width):
+        return self.features.in_box(_window_box(transform, height, width, self.margin))
+
+    def close(self) -> None:
+        pass
+
+
+class LinesLayer(_VectorLayer):
+    """Strokes with an optional halo (casing) beneath and dashes."""
+
+    def _reach_px(self):
+        o = self.options
+        w = self.px(o.width)
+        if o.halo is not None:
+            w = max(w, self.px(o.halo.width))
+        return w / 2
+
+    def paint(self, window, transform, height, width):
+        o = self.options
+        feats = self._features(transform, height, width)
+        paints = []
+        if len(feats.geometries) == 0:
+            return paints
+        dash = None if not o.dash else [self.px(d) for d in o.dash]
+        if o.halo is not None:
+            cov = draw_lines(feats.geometries, transform, width, height, color_rgb=o.halo.color,
+                             width_px=self.px(o.halo.width))
+            paints.append(Paint("halo", cov, color=o.halo.color))
+        cov = draw_lines(feats.geometries, transform, width, height, color_rgb=o.stroke,
+                         width_px=self.px(o.width), dash_px=dash)
+        paints.append(Paint("stroke", cov, color=o.stroke))
+        return paints
+
+
+class AreasLayer(_VectorLayer):
+    """Filled polygons with an optional outline and halo."""
+
+    def _reach_px(self):
+        o = self.options
+        w = self.px(o.width) if o.stroke is not None else 0.0
+        if o.halo is not None:
+            w = max(w, self.px(o.halo.width))
+        return w / 2
+
+    def paint(self, window, transform, height, width):
+        o = self.options
+        feats = self._features(transform, height, width)
+        paints = []
+        if len(feats.geometries) == 0:
+            return paints
+        fill_cov, _ = draw_areas(feats.geometries, transform, width, height, fill=o.fill is not None,
+                                 stroke_width_px=0.0)
+        if o.fill is not None:
+            paints.append(Paint("fill", fill_cov, color=o.fill))
+        if o.stroke is not None and o.width > 0:
+            if o.halo is not None:
+                _, halo_cov = draw_areas(feats.geometries, transform, width, height, fill=False,
+                                         stroke_width_px=self.px(o.halo.width))
+                paints.append(Paint("halo", halo_cov, color=o.halo.color))
+            _, line_cov = draw_areas(feats.geometries, transform, width, height, fill=False,
+                                     stroke_width_px=self.px(o.width))
+            paints.append(Paint("stroke", line_cov, color=o.stroke))
+        return paints
+
+
+class PointsLayer(_VectorLayer):
+    """Point markers (circle or square) with an outline ring in the stroke colour."""
+
+    def _reach_px(self):
+        o = self.options
+        return (self.px(o.size) + 2 * self.px(o.width or 0)) / 2
+
+    def paint(self, window, transform, height, width):
+        o = self.options
+        feats = self._features(transform, height, width)
+        if len(feats.geometries) == 0:
+            return []
+        paints = []
+        size = self.px(o.size)
+        if o.stroke is not None and o.width:
+            ring = draw_points(feats.geometries, transform, width, height,
+                               size_px=size + 2 * self.px(o.width), shape=o.shape)
+            paints.append(Paint("stroke", ring, color=o.stroke))
+        cov = draw_points(feats.geometries, transform, width, height, size_px=size, shape=o.shape)
+        paints.append(Paint("marker", cov, color=o.fill))
+        return paints

@@ -1,0 +1,45 @@
+"""Write-then-rename, so a failure never leaves a half-written output."""
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from pathlib import Path
+from typing import Iterator
+
+from compose.errors import OutputError
+
+__all__ = ["atomic_path", "check_writable"]
+
+
+def check_writable(paths: list[Path], overwrite: bool) -> None:
+    """Raise OutputError if any output exists and ``overwrite`` is false (before any work starts)."""
+    if overwrite:
+        return
+    existing = [str(p) for p in paths if p.exists()]
+    if existing:
+        raise OutputError(f"output exists (use --overwrite): {', '.join(existing)}")
+
+
+@contextlib.contextmanager
+def atomic_path(final: Path) -> Iterator[Path]:
+    """Yield a temporary path beside ``final``; rename it into place when the block succeeds.
+
+    On any exception the temporary file is removed and ``final`` is left as it was.
+    """
+    final = Path(final)
+    try:
+        final.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"cannot create output folder {final.parent}: {exc.strerror}") from None
+    fd, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part" + final.suffix,
+                               dir=final.parent)
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        os.replace(tmp_path, final)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            tmp_path.unlink()
+        raise
