@@ -113,7 +113,7 @@ class Canvas:
     def window_transform(self, window: Window) -> Affine:
         """Affine transform of the padded region of ``window``."""
         r0, c0, _, _ = window.padded
-        return self.transform * Affine.translation(c0, r0)
+        return self.transform @ Affine.translation(c0, r0)
 
     def windows(self, size: int = 1024, margin: int = 0) -> Iterator[Window]:
         """Cut the canvas into windows of at most ``size`` x ``size`` core pixels, row-major."""

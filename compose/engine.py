@@ -15,8 +15,9 @@ from typing import Callable, Protocol
 import numpy as np
 
 from compose.canvas import Canvas, Window
-from compose.check.stats import (N_CONTRAST, N_LIGHTNESS, LayerStats, PartStats, Statistics,
-                                 contrast_bins, lightness_of_rgb8, luminance_of_planes)
+from compose.check.stats import (N_BENEATH, N_CONTRAST, N_LIGHTNESS, LayerStats, PartStats,
+                                 Statistics, beneath_color_codes, contrast_bins, lightness_of_rgb8,
+                                 luminance_of_planes)
 from compose.color.wcag import relative_luminance
 from compose.composite import composite_over
 from compose.layers import layer_class
@@ -87,6 +88,7 @@ def _new_stats(run_: RenderRun) -> Statistics:
         if palette is not None and layer.spec.role == "theme":
             s.values = palette.values.copy()
             s.value_lightness = np.zeros((palette.rgb8.shape[0], N_LIGHTNESS))
+            s.nodata_index = int(palette.nodata)
         layers.append(s)
     bg = tuple(run_.style.map.background)
     return Statistics(width=run_.canvas.width, height=run_.canvas.height, layers=layers, background=bg)
@@ -121,6 +123,8 @@ def _measure_part(stats: LayerStats, paint: Paint, alpha_core: np.ndarray, benea
             below8 = np.clip(np.rint(beneath_core[:, mask].T * 255), 0, 255).astype(np.uint8)
             lb = np.clip(np.rint(lightness_of_rgb8(below8)), 0, 100).astype(np.int64)
             part.beneath_lightness = np.bincount(lb, weights=weights, minlength=N_LIGHTNESS)
+            part.beneath_colors = np.bincount(beneath_color_codes(below8), weights=weights,
+                                              minlength=N_BENEATH)
     if paint.part in stats.parts:
         stats.parts[paint.part].merge(part)
     else:

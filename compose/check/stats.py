@@ -17,13 +17,16 @@ from compose.color.lab import srgb_to_lch
 from compose.color.srgb import srgb_to_linear
 from compose.color.wcag import WCAG_Y
 
-__all__ = ["CONTRAST_STEP", "N_CONTRAST", "N_LIGHTNESS", "PartStats", "LayerStats", "Statistics",
-           "weighted_percentiles", "spearman_from_table", "lightness_of_rgb8", "luminance_of_planes",
-           "contrast_bins"]
+__all__ = ["CONTRAST_STEP", "N_CONTRAST", "N_LIGHTNESS", "BENEATH_BITS", "N_BENEATH", "PartStats",
+           "LayerStats", "Statistics", "weighted_percentiles", "spearman_from_table",
+           "lightness_of_rgb8", "luminance_of_planes", "luminance_of_rgb8", "contrast_bins",
+           "contrast_share", "beneath_color_codes", "beneath_color_centres", "histogram_percentiles"]
 
 CONTRAST_STEP = 0.01
 N_CONTRAST = 2000          # bins [1.00, 1.01), ... [20.99, 21.00]
 N_LIGHTNESS = 101          # L* bins of width 1, centres 0..100
+BENEATH_BITS = 6           # bits per channel of the beneath-colour histogram (4 codes per bin)
+N_BENEATH = 1 << (3 * BENEATH_BITS)
 
 
 def contrast_bins(ratio: np.ndarray) -> np.ndarray:
@@ -36,6 +39,50 @@ def luminance_of_planes(planes: np.ndarray) -> np.ndarray:
     """WCAG relative luminance of (3, n) gamma-encoded float sRGB -> (n,)."""
     lin = srgb_to_linear(planes.T)
     return lin @ WCAG_Y
+
+
+def luminance_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
+    """WCAG relative luminance (= CIE Y, white 1) of 8-bit sRGB pixels (n, 3) by lookup tables."""
+    return (np.take(_TABLES[1, 0], rgb8[:, 0]) + np.take(_TABLES[1, 1], rgb8[:, 1])
+            + np.take(_TABLES[1, 2], rgb8[:, 2]))
+
+
+def contrast_share(hist: np.ndarray | None, limit: float) -> float:
+    """Share (0-1) of a contrast histogram (see :func:`contrast_bins`) at or above ``limit``.
+
+    A limit on a bin edge (3.0, 4.5) is exact; a limit inside a bin counts only the bins wholly
+    above it (never overstates the share). NaN for an empty histogram.
+    """
+    if hist is None:
+        return float("nan")
+    total = float(np.sum(hist))
+    if total <= 0:
+        return float("nan")
+    first = int(np.ceil((float(limit) - 1.0) / CONTRAST_STEP - 1e-6))
+    first = min(max(first, 0), N_CONTRAST)
+    return float(np.sum(hist[first:]) / total)
+
+
+def beneath_color_codes(rgb8: np.ndarray) -> np.ndarray:
+    """Bin codes (n,) of 8-bit colours (n, 3) in the beneath-colour histogram (BENEATH_BITS/channel)."""
+    q = (rgb8 >> (8 - BENEATH_BITS)).astype(np.int64)
+    return (q[:, 0] << (2 * BENEATH_BITS)) | (q[:, 1] << BENEATH_BITS) | q[:, 2]
+
+
+def beneath_color_centres() -> np.ndarray:
+    """sRGB floats (N_BENEATH, 3) at the centre of each beneath-colour bin."""
+    codes = np.arange(N_BENEATH)
+    mask = (1 << BENEATH_BITS) - 1
+    q = np.stack([(codes >> (2 * BENEATH_BITS)) & mask, (codes >> BENEATH_BITS) & mask, codes & mask], -1)
+    step = 1 << (8 - BENEATH_BITS)
+    return (q * step + (step - 1) / 2.0) / 255.0
+
+
+def histogram_percentiles(hist: np.ndarray | None, qs=(5, 50, 95)) -> list[float]:
+    """Percentiles of a histogram whose bin i holds the integer value i (e.g. rounded L*)."""
+    if hist is None:
+        return [float("nan")] * len(qs)
+    return weighted_percentiles(np.arange(len(hist), dtype=float), hist, qs)
 
 
 def lightness_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
@@ -111,6 +158,8 @@ class PartStats:
     ground_contrast: the same against what lay beneath the whole layer (differs from ``contrast``
     for a stroke drawn over its own halo).
     beneath_lightness: (N_LIGHTNESS,) L* histogram of what lay beneath (overlays only).
+    beneath_colors: (N_BENEATH,) histogram of what lay beneath, 8-bit colours cut to
+    BENEATH_BITS per channel (overlays only; for colour differences beyond lightness).
     """
 
     part: str
@@ -119,10 +168,11 @@ class PartStats:
     contrast: np.ndarray | None = None
     ground_contrast: np.ndarray | None = None
     beneath_lightness: np.ndarray | None = None
+    beneath_colors: np.ndarray | None = None
 
     def merge(self, other: "PartStats") -> None:
         self.weights += other.weights
-        for name in ("contrast", "ground_contrast", "beneath_lightness"):
+        for name in ("contrast", "ground_contrast", "beneath_lightness", "beneath_colors"):
             a, b = getattr(self, name), getattr(other, name)
             if b is not None:
                 setattr(self, name, b.copy() if a is None else a + b)
@@ -140,18 +190,31 @@ class LayerStats:
     values: np.ndarray | None = None           # (n,) data value per palette entry (themes)
     value_lightness: np.ndarray | None = None  # (n, N_LIGHTNESS) palette index x composite L*
     nodata_weight: float = 0.0                 # pixels drawn in the no-data colour
+    nodata_index: int = -1                     # palette entry of the no-data colour (themes), or -1
 
-    def colors_and_weights(self, parts=None) -> tuple[np.ndarray, np.ndarray]:
-        """All colours of the chosen parts (default all) with their weights."""
-        chosen = [p for k, p in self.parts.items() if parts is None or k in parts]
+    def colors_and_weights(self, parts=None, data_only: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """All colours of the chosen parts (default all) with their weights.
+
+        ``data_only`` drops the no-data entry of the palette part ("data") of a theme.
+        """
+        chosen = [(k, p) for k, p in self.parts.items() if parts is None or k in parts]
         if not chosen:
             return np.zeros((0, 3), np.uint8), np.zeros(0)
-        return (np.concatenate([p.colors for p in chosen]),
-                np.concatenate([p.weights for p in chosen]))
+        weights = []
+        for k, p in chosen:
+            w = p.weights
+            if data_only and k == "data" and 0 <= self.nodata_index < w.shape[0]:
+                w = w.copy()
+                w[self.nodata_index] = 0.0
+            weights.append(w)
+        return np.concatenate([p.colors for _, p in chosen]), np.concatenate(weights)
 
-    def lightness_chroma(self, parts=None) -> tuple[list[float], list[float]]:
-        """(L* p5, p50, p95), (C* p5, p50, p95) of the layer's own colours, coverage-weighted."""
-        colors, weights = self.colors_and_weights(parts)
+    def lightness_chroma(self, parts=None, data_only: bool = False) -> tuple[list[float], list[float]]:
+        """(L* p5, p50, p95), (C* p5, p50, p95) of the layer's own colours, coverage-weighted.
+
+        ``data_only``: leave a theme's no-data colour out (see :meth:`colors_and_weights`).
+        """
+        colors, weights = self.colors_and_weights(parts, data_only)
         if colors.shape[0] == 0:
             nan = [float("nan")] * 3
             return nan, nan

@@ -27,39 +27,66 @@ def lch_in_gamut(lch, tol: float = GAMUT_TOLERANCE) -> np.ndarray:
     return in_gamut(lch_to_srgb(lch), tol)
 
 
+# Coarse chroma samples before bisection (C*ab), and colours handled per batch (bounds memory).
+_SCAN_STEP = 0.5
+_BATCH = 2048
+
+
+def _largest_inside(L: np.ndarray, h: np.ndarray, top: np.ndarray, iterations: int) -> np.ndarray:
+    """Largest C in [0, top] displayable at lightness L and hue h (1-D arrays of one length).
+
+    Along a line of constant L* and h the displayable chromas are not always one interval: near the
+    yellow corner of the cube (L* 95-97, h 100-105) e.g. L* 96, h 102 is inside up to C 40.6 and
+    again from 89.1 to 95.7. A bisection over [0, top] alone can stop at the first edge, so a scan in
+    steps of at most ``_SCAN_STEP`` finds the last inside sample and bisection refines the edge just
+    above it. C = 0 counts as inside (a grey). Islands narrower than the step (only within about
+    one unit of the yellow corner itself) can still be missed.
+    """
+    out = np.empty(L.shape)
+    if L.size == 0:
+        return out
+    n = max(1, int(np.ceil(np.nanmax(np.where(np.isfinite(top), top, 0.0)) / _SCAN_STEP)))
+    frac = np.linspace(0.0, 1.0, n + 1)
+    for s in range(0, L.size, _BATCH):
+        l, hh, c = L[s:s + _BATCH], h[s:s + _BATCH], top[s:s + _BATCH]
+        grid = c[:, None] * frac[None, :]
+        ok = lch_in_gamut(np.stack(np.broadcast_arrays(l[:, None], grid, hh[:, None]), axis=-1))
+        ok[:, 0] = True
+        k = n - np.argmax(ok[:, ::-1], axis=1)
+        rows = np.arange(k.size)
+        lo = grid[rows, k]
+        hi = grid[rows, np.minimum(k + 1, n)]
+        for _ in range(iterations):
+            mid = (lo + hi) / 2
+            inside = lch_in_gamut(np.stack([l, mid, hh], axis=-1))
+            lo = np.where(inside, mid, lo)
+            hi = np.where(inside, hi, mid)
+        out[s:s + _BATCH] = np.where(k == n, c, lo)
+    return out
+
+
 def max_chroma(L, h, iterations: int = 40) -> np.ndarray:
     """Largest C*ab displayable in sRGB at lightness ``L`` (0-100) and hue ``h`` (degrees), broadcast."""
     L, h = np.broadcast_arrays(np.asarray(L, dtype=float), np.asarray(h, dtype=float))
-    lo = np.zeros(L.shape)
-    hi = np.full(L.shape, 200.0)
-    for _ in range(iterations):
-        mid = (lo + hi) / 2
-        ok = lch_in_gamut(np.stack([L, mid, h], axis=-1))
-        lo = np.where(ok, mid, lo)
-        hi = np.where(ok, hi, mid)
-    return lo
+    flat = _largest_inside(L.ravel(), h.ravel(), np.full(L.size, 200.0), iterations)
+    return flat.reshape(L.shape)
 
 
 def map_to_gamut(lch, iterations: int = 40) -> tuple[np.ndarray, np.ndarray]:
     """Map CIE LCh(ab) (..., 3) into sRGB by lowering chroma only.
 
     L* must lie in [0, 100] (values outside are clipped to it, the only change to L*); hue is kept
-    exactly. Returns ``(mapped_lch, removed)`` where ``removed`` (...) is the chroma taken off
-    (0 where the colour was already inside).
+    exactly. The new chroma is the largest displayable one not above the old (see
+    :func:`_largest_inside`). Returns ``(mapped_lch, removed)`` where ``removed`` (...) is the
+    chroma taken off (0 where the colour was already inside).
     """
     lch = np.array(lch, dtype=float, copy=True)
     lch[..., 0] = np.clip(lch[..., 0], 0.0, 100.0)
     inside = lch_in_gamut(lch)
     if np.all(inside):
         return lch, np.zeros(lch.shape[:-1])
-    L, C, h = lch[..., 0], lch[..., 1], lch[..., 2]
-    lo = np.zeros(C.shape)
-    hi = C.copy()
-    for _ in range(iterations):
-        mid = (lo + hi) / 2
-        ok = lch_in_gamut(np.stack([L, mid, h], axis=-1))
-        lo = np.where(ok, mid, lo)
-        hi = np.where(ok, hi, mid)
-    new_c = np.where(inside, C, lo)
-    out = np.stack([L, new_c, h], axis=-1)
-    return out, C - new_c
+    C = lch[..., 1].copy()
+    outside = ~inside
+    todo = lch[outside]
+    lch[outside, 1] = _largest_inside(todo[:, 0], todo[:, 2], todo[:, 1], iterations)
+    return lch, C - lch[..., 1]

@@ -57,6 +57,7 @@ def lab_to_lch(lab) -> np.ndarray:
     lab = np.asarray(lab, dtype=float)
     C = np.hypot(lab[..., 1], lab[..., 2])
     h = np.degrees(np.arctan2(lab[..., 2], lab[..., 1])) % 360.0
+    h = np.where(h >= 360.0, h - 360.0, h)  # a tiny negative angle % 360 rounds to 360.0
     return np.stack([lab[..., 0], C, h], axis=-1)
 
 

@@ -49,7 +49,7 @@ class FieldLayer:
         return self.ramp.lut()
 
     def paint(self, window, transform, height, width) -> list[Paint]:
-        values = self.source.read(self.canvas.crs, transform, width, height, self.options.resampling)
+        values = self.source.read_window(self.canvas, window, self.options.resampling)
         index = self.lut.index(values).astype(np.uint16, copy=False)
         if self.transparent_nodata:
             alpha = (index != self.lut.nodata_index).astype(np.float32)

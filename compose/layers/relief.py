@@ -64,7 +64,7 @@ class ReliefLayer:
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
-        dem = self.source.read(self.canvas.crs, transform, width, height, o.resampling)
+        dem = self.source.read_window(self.canvas, window, o.resampling)
         dx, dy = cell_size_metres(self.canvas.crs, transform, height)
         shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
                                  exaggeration=o.exaggeration, directions=o.directions)

@@ -1,0 +1,130 @@
+"""``compose ramp NAME --style FILE``: show a ramp's colours, its metrics and the rule verdicts."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import click
+
+from compose.cli.main import handle_errors
+from compose.errors import ComposeError, StyleError
+
+__all__ = ["command", "load_ramps"]
+
+
+def load_ramps(style_path: Path) -> dict:
+    """Build every ramp of the style at ``style_path`` (twins need all their group)."""
+    import compose.style as style_pkg
+    from compose.ramps import build_ramps
+
+    loader = getattr(style_pkg, "load_style", None)
+    if loader is None:
+        raise ComposeError("the style loader (compose.style.load_style) is not available")
+    style = loader(style_path, require_map=False)
+    return build_ramps(style.ramps)
+
+
+def _rows(ramp, samples: int) -> list[dict]:
+    from compose.color.lab import srgb_to_lch
+    from compose.ramps import drawn_samples
+
+    values, rgb8 = drawn_samples(ramp, samples)
+    lch = srgb_to_lch(rgb8 / 255.0)
+    rows = []
+    for i, (v, code, (L, C, h)) in enumerate(zip(values, rgb8, lch)):
+        row = {"value": float(v), "hex": "#%02x%02x%02x" % tuple(int(c) for c in code),
+               "L": round(float(L), 3), "C": round(float(C), 3), "h": round(float(h), 3)}
+        if ramp.kind == "qualitative":
+            row["label"] = ramp.classes[i].label
+            row["family"] = ramp.classes[i].family
+        rows.append(row)
+    return rows
+
+
+def _metric_lines(m) -> list[str]:
+    lines = [f"  lightness   L* {m.lightness_range[0]:.1f} to {m.lightness_range[1]:.1f}",
+             f"  chroma      C* {m.chroma_range[0]:.1f} to {m.chroma_range[1]:.1f}"]
+    if m.lightness_monotone is not None:
+        lines.append(f"  monotone    {'yes' if m.lightness_monotone else 'no'} "
+                     f"(largest L* reversal {m.lightness_reversal:.2f})")
+    if m.step_cv is not None:
+        lines.append(f"  steps       CV {m.step_cv:.1f} % of CAM02-UCS steps at {m.samples} samples; "
+                     f"{m.step_cv_8bit:.1f} % at 32 8-bit samples")
+    if m.grayscale_rho is not None:
+        lines.append(f"  grey order  Spearman rho {m.grayscale_rho:+.3f}")
+    lines.append(f"  gamut       C* removed max {m.gamut_removed_max:.2f}, mean {m.gamut_removed_mean:.2f}")
+    if m.matched_removed_max > 0:
+        lines.append(f"  twins       C* removed to match max {m.matched_removed_max:.2f}, "
+                     f"mean {m.matched_removed_mean:.2f}")
+    if m.symmetry_dl_max is not None:
+        lines.append(f"  symmetry    |dL*| max {m.symmetry_dl_max:.2f}; midpoint C* {m.midpoint_chroma:.1f}")
+    if m.break_dl is not None:
+        lines.append(f"  break       |dL*| {m.break_dl:.2f}, hue change {m.break_dh:.0f} deg, "
+                     f"dE00 {m.break_de00:.1f}")
+    if m.twin_dl_max is not None:
+        lines.append(f"  twin        |dL*| max {m.twin_dl_max:.2f}, |dC*| max {m.twin_dc_max:.2f}")
+    for title, d in (("adjacent", m.min_step_de00), ("pairwise", m.min_pair_de00)):
+        if d:
+            lines.append(f"  {title:<11} min dE00 " + ", ".join(f"{k} {v:.1f}" for k, v in d.items()))
+    for fam, d in (m.family_min_pair_de00 or {}).items():
+        lines.append(f"  family {fam:<5} min dE00 " + ", ".join(f"{k} {v:.1f}" for k, v in d.items()))
+    lines.append(f"  nodata      {m.nodata_min_de00:.1f} dE00 from the ramp, C* {m.nodata_chroma:.1f}")
+    lines += [f"  warning     {w}" for w in m.warnings]
+    return lines
+
+
+@click.command("ramp")
+@click.argument("name")
+@click.option("--style", "style_path", required=True,
+              type=click.Path(exists=True, dir_okay=False, path_type=Path), help="Style file (TOML).")
+@click.option("--samples", type=click.IntRange(2, 65533), default=11, show_default=True,
+              help="Rows of the table / objects of --json, evenly spaced over the domain.")
+@click.option("--json", "as_json", is_flag=True, help="Print the samples as a JSON array instead.")
+@click.option("--plot", "plot_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Also write a figure of the ramp (PNG).")
+@click.option("--units", default=None, help="Units of the data values, for the figure's axis.")
+@handle_errors
+def command(name: str, style_path: Path, samples: int, as_json: bool, plot_path: Path | None,
+            units: str | None) -> None:
+    """Show ramp NAME of a style: sampled colours (value, hex, CIE L*, C*, h), metrics, rules.
+
+    L*, C* and h are CIE LCh(ab) under D65 of the 8-bit colour as drawn.
+    """
+    from compose.ramps import ramp_metrics, rule_checks
+
+    ramps = load_ramps(style_path)
+    if name not in ramps:
+        raise StyleError(f'{style_path}: no ramp "{name}"; ramps: {", ".join(sorted(ramps)) or "(none)"}')
+    ramp = ramps[name]
+    rows = _rows(ramp, samples)
+    if plot_path is not None:
+        from compose.ramps.figure import write_ramp_plot
+        if not plot_path.parent.is_dir():
+            raise ComposeError(f"--plot: folder does not exist: {plot_path.parent}")
+        write_ramp_plot(ramp, plot_path, ramps, units)
+    if as_json:
+        click.echo(json.dumps(rows, indent=1))
+        return
+    m = ramp_metrics(ramp)
+    extra = f", twin of {ramp.twin_of}" if ramp.twin_of else ""
+    where = f"domain {ramp.domain[0]:g} to {ramp.domain[1]:g}" if ramp.kind != "qualitative" else \
+        f"{len(ramp.classes)} classes"
+    click.echo(f'ramp "{name}": {ramp.kind}{extra}, {where}  ({style_path})')
+    if ramp.kind == "qualitative":
+        click.echo(f"  {'value':>8}  {'label':<22} {'family':<10} {'hex':<8} {'L*':>6} {'C*':>6} {'h':>6}")
+        for r in rows:
+            click.echo(f"  {r['value']:>8g}  {r['label'][:22]:<22} {(r['family'] or '-'):<10} {r['hex']:<8} "
+                       f"{r['L']:>6.1f} {r['C']:>6.1f} {r['h']:>6.0f}")
+    else:
+        click.echo(f"  {'value':>10}  {'hex':<8} {'L*':>6} {'C*':>6} {'h':>6}")
+        for r in rows:
+            click.echo(f"  {r['value']:>10.4g}  {r['hex']:<8} {r['L']:>6.1f} {r['C']:>6.1f} {r['h']:>6.0f}")
+    click.echo("metrics")
+    for line in _metric_lines(m):
+        click.echo(line)
+    click.echo("rules")
+    for c in rule_checks(m):
+        verdict = "ok" if c.passed else ("warn" if c.level == "warning" else "FAIL")
+        click.echo(f"  {verdict:<5} {c.rule:<30} {c.message.split(': ', 1)[1]}")
+    if plot_path is not None:
+        click.echo(f"figure written: {plot_path}")

@@ -1,0 +1,166 @@
+"""Point labels: greedy placement on the whole canvas, drawing per window.
+
+Placement runs once for the whole canvas so that every window agrees on which labels exist and
+where; each window then draws the placed labels whose box meets it (:func:`draw_labels`).
+
+Rule (common practice, no source): labels go in order of decreasing priority (ties keep input
+order). Each tries the candidate positions of :data:`POSITIONS` in turn, its text box offset
+``offset_px`` from the point (on both axes for the diagonal positions); the first position whose
+box, grown by half the halo width on every side, stays inside the canvas and overlaps no placed
+box wins. A label with no such position is not placed.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Iterable
+
+import numpy as np
+from affine import Affine
+
+from compose.layers.draw import ANCHORS, TextShape, draw_text_shapes, measure_text, to_pixels
+
+__all__ = ["POSITIONS", "PlacedLabel", "Placement", "place_labels", "draw_labels"]
+
+#: Candidate positions in order of preference: (name, anchor of the text box at the offset
+#: point, (dx, dy) unit offset in pixels with rows running down).
+POSITIONS: tuple[tuple[str, str, tuple[int, int]], ...] = (
+    ("upper right", "lower left", (1, -1)),
+    ("right", "left", (1, 0)),
+    ("upper left", "lower right", (-1, -1)),
+    ("lower right", "upper left", (1, 1)),
+    ("left", "right", (-1, 0)),
+    ("lower left", "upper right", (-1, 1)),
+    ("above", "bottom", (0, -1)),
+    ("below", "top", (0, 1)),
+)
+_CELL = 64.0   # pixels per cell of the collision grid
+
+
+@dataclass(frozen=True, slots=True)
+class PlacedLabel:
+    """A placed label, in canvas pixels (fractional, rows down).
+
+    x, y: the labelled point in CRS units; position: a name from :data:`POSITIONS`;
+    anchor: the text box's point at (col, row), the point moved by the offset;
+    box: (col0, row0, col1, row1) of the text box grown by half the halo width.
+    """
+
+    text: str
+    x: float
+    y: float
+    priority: float
+    position: str
+    anchor: str
+    col: float
+    row: float
+    box: tuple[float, float, float, float]
+    shape: TextShape = field(compare=False, repr=False)
+
+
+@dataclass(frozen=True, slots=True)
+class Placement:
+    """The outcome of :func:`place_labels` and what :func:`draw_labels` needs."""
+
+    placed: tuple[PlacedLabel, ...]
+    not_placed: tuple[tuple, ...]   # the input items, as given, in priority order
+    transform: Affine
+    width: int
+    height: int
+    halo_px: float
+
+
+class _Grid:
+    """Boxes bucketed in square cells, for overlap tests against the placed ones."""
+
+    def __init__(self) -> None:
+        self.cells: dict[tuple[int, int], list[tuple[float, float, float, float]]] = {}
+
+    def _keys(self, box):
+        c0, r0, c1, r1 = (int(math.floor(v / _CELL)) for v in box)
+        return [(i, j) for i in range(c0, c1 + 1) for j in range(r0, r1 + 1)]
+
+    def hits(self, box) -> bool:
+        c0, r0, c1, r1 = box
+        for key in self._keys(box):
+            for b in self.cells.get(key, ()):
+                if c0 < b[2] and b[0] < c1 and r0 < b[3] and b[1] < r1:
+                    return True
+        return False
+
+    def add(self, box) -> None:
+        for key in self._keys(box):
+            self.cells.setdefault(key, []).append(box)
+
+
+def _priority(item) -> float:
+    p = float(item[3]) if len(item) > 3 and item[3] is not None else 0.0
+    return -math.inf if math.isnan(p) else p
+
+
+def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, height: int,
+                 size_px: float, font: str = "DejaVu Sans", weight: str = "normal",
+                 halo_px: float = 0.0, offset_px: float = 3.0) -> Placement:
+    """Place point labels ``(x, y, text, priority)`` (CRS coordinates) on the whole canvas.
+
+    size_px: font size in pixels; halo_px: total halo width (the box grows by half of it on each
+    side); offset_px: distance from the point to the text box. Returns a :class:`Placement`.
+    """
+    items = list(items)
+    order = sorted(range(len(items)), key=lambda i: -_priority(items[i]))  # stable for ties
+    grid = _Grid()
+    grow = max(float(halo_px), 0.0) / 2.0
+    placed, not_placed = [], []
+    xy = to_pixels(np.array([it[:2] for it in items], np.float64).reshape(-1, 2),
+                   canvas_transform)
+    for i in order:
+        item = items[i]
+        text = "" if item[2] is None else str(item[2])
+        found = None
+        if text.strip():
+            shape = measure_text(text, float(size_px), font, weight)
+            found = _first_fit(shape, xy[i], offset_px, grow, width, height, grid)
+        if found is None:
+            not_placed.append(item)
+            continue
+        position, anchor, col, row, box = found
+        grid.add(box)
+        placed.append(PlacedLabel(text, float(item[0]), float(item[1]), _priority(item),
+                                  position, anchor, col, row, box, shape))
+    return Placement(tuple(placed), tuple(not_placed), canvas_transform, int(width), int(height),
+                     float(halo_px))
+
+
+def _first_fit(shape: TextShape, point, offset_px: float, grow: float, width: int, height: int,
+               grid: _Grid):
+    for position, anchor, (ux, uy) in POSITIONS:
+        fx, fy = ANCHORS[anchor]
+        col = float(point[0]) + ux * offset_px
+        row = float(point[1]) + uy * offset_px
+        left = col - fx * shape.width
+        bottom = row + fy * shape.height
+        box = (left - grow, bottom - shape.height - grow, left + shape.width + grow, bottom + grow)
+        if box[0] < 0 or box[1] < 0 or box[2] > width or box[3] > height:
+            continue
+        if not grid.hits(box):
+            return position, anchor, col, row, box
+    return None
+
+
+def draw_labels(placement: Placement, window_transform: Affine, width: int, height: int
+                ) -> tuple[np.ndarray, np.ndarray | None]:
+    """Draw the placed labels whose box meets the window given by ``window_transform`` and size.
+
+    The window must be on the canvas's pixel grid (``Canvas.window_transform``). Returns
+    (text coverage, halo coverage or None without a halo), float32 (H, W) in [0, 1].
+    """
+    c0, r0 = to_pixels(np.array([[window_transform.c, window_transform.f]]),
+                       placement.transform)[0]
+    grow = max(placement.halo_px, 0.0) / 2.0
+    shapes = []
+    for lab in placement.placed:
+        b = lab.box
+        if b[2] <= c0 or b[0] >= c0 + width or b[3] <= r0 or b[1] >= r0 + height:
+            continue
+        shapes.append((lab.shape, b[0] + grow - c0, b[3] - grow - r0))
+    return draw_text_shapes(shapes, width, height, placement.halo_px)

@@ -1,0 +1,258 @@
+"""Validate one ``[ramp.NAME]`` table of a style into a :class:`RampSpec` (nothing built yet).
+
+The style loader hands each ramp over as raw TOML values; every key is checked here, and every
+error is a one-line :class:`StyleError` naming the file, the ramp and the key, e.g.
+``styles/x.toml: ramp "sea": unknown key 'hues'; did you mean 'hue'?``.
+"""
+from __future__ import annotations
+
+import difflib
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from compose.color.lab import srgb_to_lch
+from compose.color.parse import parse_color
+from compose.errors import StyleError
+
+__all__ = ["KINDS", "STEP_METHODS", "MAX_SAMPLES", "RampClass", "RampSpec", "parse_ramp", "closest"]
+
+KINDS = ("sequential", "diverging", "qualitative", "threshold")
+STEP_METHODS = ("equal", "quantile")
+MAX_SAMPLES = 65533  # + under, over, nodata entries = 65536 indices of a uint16 image
+
+_SAMPLING = {"domain", "under", "over", "nodata", "steps", "step_method", "breaks", "samples"}
+_KEYS = {
+    "sequential": {"kind", "space", "through"} | _SAMPLING,
+    "diverging": {"kind", "space", "through", "center"} | _SAMPLING,
+    "threshold": {"kind", "space", "at", "below", "above"} | _SAMPLING,
+    "qualitative": {"kind", "classes", "nodata"},
+    "twin": {"twin", "hue", "kind"} | _SAMPLING,
+}
+_CLASS_KEYS = ("value", "label", "color", "family")
+
+
+@dataclass(frozen=True, slots=True)
+class RampClass:
+    """One class of a qualitative ramp: data value, legend label, sRGB colour (floats 0-1), family."""
+
+    value: float
+    label: str
+    rgb: tuple[float, float, float]
+    family: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class RampSpec:
+    """A validated ramp table. Stops are CIE LCh(ab) triples (L* 0-100, C*ab, h degrees)."""
+
+    name: str
+    kind: str                      # sequential | diverging | qualitative | threshold | twin
+    path: Path
+    space: str = "cam02ucs"
+    domain: tuple[float, float] | None = None   # None: twin inherits its base's; else [0, 1]
+    through: tuple[tuple[float, float, float], ...] = ()
+    below: tuple[tuple[float, float, float], ...] = ()
+    above: tuple[tuple[float, float, float], ...] = ()
+    center: float | None = None
+    at: float | None = None
+    twin: str | None = None
+    hue: tuple[float, float] | None = None
+    classes: tuple[RampClass, ...] = ()
+    under: tuple[float, float, float] | None = None
+    over: tuple[float, float, float] | None = None
+    nodata: tuple[float, float, float] | None = None
+    steps: int | None = None
+    step_method: str | None = None
+    breaks: tuple[float, ...] | None = None
+    samples: int | None = None
+
+    @property
+    def where(self) -> str:
+        """Message prefix ``'<file>: ramp "<name>"'``."""
+        return f'{self.path}: ramp "{self.name}"'
+
+
+def closest(word: str, choices) -> str:
+    """``"; did you mean 'x'?"`` when a choice is close to ``word``, else ``"; one of: a, b"``."""
+    choices = sorted(choices)
+    near = difflib.get_close_matches(word, choices, n=1, cutoff=0.6)
+    if near:
+        return f"; did you mean '{near[0]}'?"
+    return f"; one of: {', '.join(choices)}"
+
+
+def _number(value, where: str, key: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise StyleError(f"{where}: '{key}' must be a finite number, got {value!r}")
+    return float(value)
+
+
+def _integer(value, where: str, key: str, lo: int, hi: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or not lo <= value <= hi:
+        raise StyleError(f"{where}: '{key}' must be a whole number from {lo} to {hi}, got {value!r}")
+    return int(value)
+
+
+def _lch(value, where: str) -> tuple[float, float, float]:
+    """A stop: LCh tables are kept exactly; hex strings are converted (checked by parse_color)."""
+    rgb = parse_color(value, where)
+    if isinstance(value, Mapping):
+        return (float(value["L"]), float(value["C"]), float(value["h"]) % 360.0)
+    return tuple(float(v) for v in srgb_to_lch(np.array(rgb)))
+
+
+def _stops(table: Mapping, key: str, where: str, minimum: int) -> tuple:
+    value = table.get(key)
+    if value is None:
+        raise StyleError(f"{where}: missing key '{key}' (a list of at least {minimum} colours)")
+    if not isinstance(value, list) or len(value) < minimum:
+        raise StyleError(f"{where}: '{key}' must be a list of at least {minimum} colours, got {value!r}")
+    return tuple(_lch(v, f"{where}: {key}[{i}]") for i, v in enumerate(value))
+
+
+def _domain(table: Mapping, where: str) -> tuple[float, float] | None:
+    if "domain" not in table:
+        return None
+    value = table["domain"]
+    if not isinstance(value, list) or len(value) != 2:
+        raise StyleError(f"{where}: 'domain' must be [low, high], got {value!r}")
+    lo, hi = (_number(v, where, "domain") for v in value)
+    if not lo < hi:
+        raise StyleError(f"{where}: 'domain' must have low < high, got {value!r}")
+    return (lo, hi)
+
+
+def _inside(value, key: str, domain: tuple[float, float], where: str) -> float:
+    v = _number(value, where, key)
+    if not domain[0] < v < domain[1]:
+        raise StyleError(f"{where}: '{key}' = {v:g} must lie inside the domain "
+                         f"[{domain[0]:g}, {domain[1]:g}]")
+    return v
+
+
+def _classes(table: Mapping, where: str) -> tuple[RampClass, ...]:
+    value = table.get("classes")
+    if not isinstance(value, list) or len(value) < 2:
+        raise StyleError(f"{where}: 'classes' must be a list of at least 2 tables "
+                         f"{{value, label, color, family}}, got {value!r}")
+    out, seen = [], set()
+    for i, item in enumerate(value):
+        w = f"{where}: classes[{i}]"
+        if not isinstance(item, Mapping):
+            raise StyleError(f"{w}: must be a table {{value, label, color, family}}, got {item!r}")
+        for key in item:
+            if key not in _CLASS_KEYS:
+                raise StyleError(f"{w}: unknown key '{key}'{closest(key, _CLASS_KEYS)}")
+        for key in ("value", "color"):
+            if key not in item:
+                raise StyleError(f"{w}: missing key '{key}'")
+        v = _number(item["value"], w, "value")
+        if v in seen:
+            raise StyleError(f"{w}: value {v:g} is given twice")
+        seen.add(v)
+        label = item.get("label", f"{v:g}")
+        family = item.get("family")
+        if not isinstance(label, str) or (family is not None and not isinstance(family, str)):
+            raise StyleError(f"{w}: 'label' and 'family' must be strings")
+        out.append(RampClass(v, label, parse_color(item["color"], f"{w}: color"), family))
+    return tuple(out)
+
+
+def _sampling(table: Mapping, where: str, domain) -> dict:
+    out: dict = {}
+    for key in ("under", "over", "nodata"):
+        if key in table:
+            out[key] = parse_color(table[key], f"{where}: {key}")
+    if "samples" in table:
+        out["samples"] = _integer(table["samples"], where, "samples", 2, MAX_SAMPLES)
+    if "steps" in table and "breaks" in table:
+        raise StyleError(f"{where}: give either 'steps' or 'breaks', not both")
+    if "steps" in table:
+        out["steps"] = _integer(table["steps"], where, "steps", 2, 256)
+    if "step_method" in table:
+        method = table["step_method"]
+        if method not in STEP_METHODS:
+            raise StyleError(f"{where}: step_method '{method}' is not a step method; "
+                             f"one of: {', '.join(STEP_METHODS)}")
+        if "steps" not in table:
+            raise StyleError(f"{where}: 'step_method' needs 'steps' (a class count)")
+        out["step_method"] = method
+    if "breaks" in table:
+        value = table["breaks"]
+        if not isinstance(value, list) or not value:
+            raise StyleError(f"{where}: 'breaks' must be a list of numbers, got {value!r}")
+        b = [_number(v, where, "breaks") for v in value]
+        if any(y <= x for x, y in zip(b, b[1:])):
+            raise StyleError(f"{where}: 'breaks' must increase strictly, got {value!r}")
+        if domain is not None and (b[0] <= domain[0] or b[-1] >= domain[1]):
+            raise StyleError(f"{where}: 'breaks' must lie inside the domain "
+                             f"[{domain[0]:g}, {domain[1]:g}], got {value!r}")
+        out["breaks"] = tuple(b)
+    return out
+
+
+def parse_ramp(name: str, table: Mapping, path: Path | str) -> RampSpec:
+    """Validate the raw TOML ``table`` of ramp ``name`` read from ``path``; raise StyleError."""
+    path = Path(path)
+    where = f'{path}: ramp "{name}"'
+    if not isinstance(table, Mapping):
+        raise StyleError(f"{where}: must be a table, got {table!r}")
+    if "twin" in table:
+        kind = "twin"
+        if table.get("kind", "sequential") != "sequential":
+            raise StyleError(f"{where}: a twin has its base's kind (sequential); drop 'kind'")
+    else:
+        if "kind" not in table:
+            raise StyleError(f"{where}: missing key 'kind'; one of: {', '.join(KINDS)}")
+        kind = table["kind"]
+        if kind not in KINDS:
+            raise StyleError(f"{where}: kind '{kind}' is not a ramp kind{closest(str(kind), KINDS)}")
+    allowed = _KEYS[kind]
+    for key in table:
+        if key not in allowed:
+            label = "a twin" if kind == "twin" else f"a {kind}"
+            hint = closest(key, allowed)
+            if hint.startswith("; one of"):
+                hint = f" for {label} ramp{hint}"
+            raise StyleError(f"{where}: unknown key '{key}'{hint}")
+
+    if kind == "qualitative":
+        nodata = parse_color(table["nodata"], f"{where}: nodata") if "nodata" in table else None
+        return RampSpec(name, kind, path, classes=_classes(table, where), nodata=nodata)
+
+    space = table.get("space", "cam02ucs")
+    if kind != "twin" and space not in ("cam02ucs", "cielab"):
+        raise StyleError(f"{where}: space '{space}' is not an interpolation space; one of: cam02ucs, cielab")
+    domain = _domain(table, where)
+    if kind != "twin":
+        domain = domain or (0.0, 1.0)
+    fields = _sampling(table, where, domain)
+    if kind == "twin":
+        base = table["twin"]
+        if not isinstance(base, str):
+            raise StyleError(f"{where}: 'twin' must be the name of a ramp, got {base!r}")
+        hue = table.get("hue")
+        if not isinstance(hue, list) or len(hue) != 2:
+            raise StyleError(f"{where}: 'hue' must be [hue at the low end, hue at the high end] "
+                             f"in degrees, got {hue!r}")
+        return RampSpec(name, kind, path, domain=domain, twin=base,
+                        hue=tuple(_number(h, where, "hue") for h in hue), **fields)
+    if kind == "sequential":
+        return RampSpec(name, kind, path, space, domain, through=_stops(table, "through", where, 2), **fields)
+    if kind == "diverging":
+        through = _stops(table, "through", where, 3)
+        if len(through) % 2 == 0:
+            raise StyleError(f"{where}: 'through' needs an odd number of colours (the middle one is "
+                             f"the midpoint), got {len(through)}")
+        center = table.get("center", (domain[0] + domain[1]) / 2)
+        return RampSpec(name, kind, path, space, domain, through=through,
+                        center=_inside(center, "center", domain, where), **fields)
+    if "at" not in table:
+        raise StyleError(f"{where}: missing key 'at' (the data value where the hue changes)")
+    return RampSpec(name, kind, path, space, domain, below=_stops(table, "below", where, 2),
+                    above=_stops(table, "above", where, 2), at=_inside(table["at"], "at", domain, where),
+                    **fields)

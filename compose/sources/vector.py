@@ -1,0 +1,204 @@
+"""Vector sources: features from anything OGR reads (GeoPackage, GeoJSON, Shapefile) via fiona.
+
+A :class:`VectorSource` checks its file, table and filter when it is made, reads the features on
+the first :meth:`VectorSource.load` and reprojects them to the canvas CRS once (cached per CRS).
+:meth:`Features.in_box` then cuts the features for one window.
+
+Seam-free drawing: callers clip to the window's *padded* box grown by a margin at least as wide
+as the widest stroke, halo or marker. A line crossing a window edge is then drawn from the same
+coordinates in both windows, and the cut ends and the edges :func:`shapely.clip_by_rect` adds
+to clipped polygons lie outside the area either window paints.
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import fiona
+import numpy as np
+import pyproj
+import shapely
+from fiona.errors import FionaError
+from shapely.geometry import shape
+
+from compose.canvas import Canvas
+from compose.errors import SourceError, StyleError
+
+__all__ = ["VectorSource", "Features"]
+
+_POINT_TYPES = (0, 4)          # shapely type ids of Point and MultiPoint: kept whole, not cut
+
+
+def _first_line(exc: BaseException) -> str:
+    text = str(exc).strip()
+    return text.splitlines()[0] if text else type(exc).__name__
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Features:
+    """Features in one CRS: parallel geometries and attribute rows, with a spatial index.
+
+    geometries: object array of shapely 2 geometries (never None or empty), in file order;
+    properties: one attribute dict per geometry; tree: an STRtree over ``geometries``.
+    """
+
+    geometries: np.ndarray
+    properties: list[dict]
+    tree: shapely.STRtree
+
+    @classmethod
+    def build(cls, geometries, properties) -> "Features":
+        """Make Features from geometries and their attribute dicts (indexes them)."""
+        geoms = np.asarray(geometries, dtype=object).reshape(-1)
+        props = list(properties)
+        if len(props) != len(geoms):
+            raise ValueError(f"{len(geoms)} geometries but {len(props)} property rows")
+        return cls(geoms, props, shapely.STRtree(geoms))
+
+    def __len__(self) -> int:
+        return len(self.geometries)
+
+    @property
+    def bounds(self) -> tuple[float, float, float, float]:
+        """(west, south, east, north) of all geometries; NaNs when empty."""
+        if len(self) == 0:
+            return (float("nan"),) * 4
+        return tuple(float(v) for v in shapely.total_bounds(self.geometries))
+
+    def in_box(self, bounds: tuple[float, float, float, float]) -> "Features":
+        """Features whose geometry intersects the box ``(west, south, east, north)``, cut to it.
+
+        Lines and polygons are cut with :func:`shapely.clip_by_rect` (vectorised; cut polygons
+        gain edges along the box and may be invalid, which drawing tolerates); points and
+        multipoints are kept whole. File order is kept; empty results are dropped.
+        """
+        west, south, east, north = (float(v) for v in bounds)
+        if len(self) == 0:
+            return self
+        hits = np.sort(self.tree.query(shapely.box(west, south, east, north), predicate="intersects"))
+        geoms = self.geometries[hits]
+        cut = np.isin(shapely.get_type_id(geoms), _POINT_TYPES, invert=True)
+        if cut.any():
+            geoms = geoms.copy()
+            geoms[cut] = shapely.clip_by_rect(geoms[cut], west, south, east, north)
+        keep = ~shapely.is_empty(geoms)
+        return Features.build(geoms[keep], [self.properties[i] for i in hits[keep]])
+
+
+class VectorSource:
+    """Features of one table of a vector file, optionally filtered by attribute values.
+
+    path: the file; layer: the style layer's name (for messages); table: the layer inside the
+    file (default its first); where: ``{attribute: value | [values]}``, keeping features whose
+    attribute equals the value or one of the values (plain ``==``, so 1 matches 1.0 but not "1").
+
+    Raises :class:`SourceError` when the file is missing, unreadable or has no CRS, and
+    :class:`StyleError` when ``table`` is not in the file or a ``where`` key is not an attribute.
+    """
+
+    def __init__(self, path: Path, *, layer: str, table: str | None = None,
+                 where: Mapping[str, object] | None = None) -> None:
+        self.path = Path(path)
+        self.layer = layer
+        here = f'layer "{layer}"'
+        if not str(path).startswith("/vsi") and not self.path.exists():
+            raise SourceError(f"{here}: source not found: {self.path}")
+        try:
+            tables = fiona.listlayers(self.path)
+        except (FionaError, OSError) as exc:
+            raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
+        if not tables:
+            raise SourceError(f"{here}: cannot read {self.path}: no tables in the file")
+        if table is not None and table not in tables:
+            raise StyleError(f'{here}: table "{table}" not in {self.path} '
+                             f"(tables: {', '.join(tables)})")
+        self.table = table if table is not None else tables[0]
+        try:
+            with fiona.open(self.path, layer=self.table) as src:
+                wkt = src.crs.to_wkt() if src.crs else ""
+                attributes = list(src.schema["properties"])
+        except (FionaError, OSError) as exc:
+            raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
+        if not wkt:
+            raise SourceError(f"{here}: {self.path} has no CRS")
+        self.crs = pyproj.CRS.from_wkt(wkt)
+        self.attributes = attributes
+        self.where: dict[str, tuple] = {}
+        for key, value in dict(where or {}).items():
+            if key not in attributes:
+                raise StyleError(f'{here}: where.{key}: no attribute "{key}" in table "{self.table}" '
+                                 f"of {self.path} (attributes: {', '.join(attributes) or 'none'})")
+            values = value if isinstance(value, (list, tuple, set, frozenset)) else [value]
+            self.where[key] = tuple(values)
+        self._raw: tuple[np.ndarray, list[dict]] | None = None
+        self._cache: dict[pyproj.CRS, Features] = {}
+
+    def _keep(self, props: Mapping[str, object]) -> bool:
+        return all(props.get(k) in vals for k, vals in self.where.items())
+
+    def _read(self) -> tuple[np.ndarray, list[dict]]:
+        if self._raw is None:
+            geoms, props = [], []
+            try:
+                with fiona.open(self.path, layer=self.table) as src:
+                    for feature in src:
+                        if feature.geometry is None:
+                            continue
+                        row = dict(feature.properties)
+                        if self.where and not self._keep(row):
+                            continue
+                        geoms.append(shape(feature.geometry))
+                        props.append(row)
+            except (FionaError, OSError) as exc:
+                raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
+                                  f"{_first_line(exc)}") from None
+            arr = shapely.force_2d(np.asarray(geoms, dtype=object).reshape(-1))
+            keep = ~shapely.is_empty(arr) if len(arr) else np.zeros(0, bool)
+            self._raw = (arr[keep], [p for p, k in zip(props, keep) if k])
+        return self._raw
+
+    def load(self, crs) -> Features:
+        """All kept features reprojected to ``crs`` (any CRS pyproj understands), cached per CRS.
+
+        Coordinates go through one vectorised pyproj Transformer call (always_xy, so x is
+        easting / longitude). A feature with a coordinate the target CRS cannot represent
+        (outside its domain) is dropped.
+        """
+        target = pyproj.CRS.from_user_input(crs.to_wkt() if hasattr(crs, "to_wkt") else crs)
+        if target in self._cache:
+            return self._cache[target]
+        geoms, props = self._read()
+        if len(geoms) and target != self.crs:
+            tr = pyproj.Transformer.from_crs(self.crs, target, always_xy=True)
+
+            def move(xy: np.ndarray) -> np.ndarray:
+                x, y = tr.transform(xy[:, 0], xy[:, 1], errcheck=False)
+                return np.column_stack([x, y])
+
+            geoms = shapely.transform(geoms, move)
+            coords, index = shapely.get_coordinates(geoms, return_index=True)
+            bad = np.unique(index[~np.isfinite(coords).all(axis=1)])
+            if bad.size:
+                keep = np.ones(len(geoms), bool)
+                keep[bad] = False
+                geoms, props = geoms[keep], [p for p, k in zip(props, keep) if k]
+        features = Features.build(geoms, props)
+        self._cache[target] = features
+        return features
+
+    def check_overlap(self, canvas: Canvas) -> None:
+        """Raise :class:`SourceError` if no kept feature intersects the canvas."""
+        features = self.load(canvas.crs)
+        here = f'layer "{self.layer}"'
+        if len(features) == 0:
+            filt = "".join(f" where {k} in {list(v)}" for k, v in self.where.items())
+            raise SourceError(f'{here}: no features in table "{self.table}" of {self.path}{filt}')
+        hits = features.tree.query(shapely.box(*canvas.bounds), predicate="intersects")
+        if hits.size == 0:
+            west, south, east, north = (f"{v:.6g}" for v in features.bounds)
+            raise SourceError(f"{here}: {self.path} does not overlap the map extent "
+                              f"(features span {west}, {south}, {east}, {north} in {canvas.crs})")
+
+    def __repr__(self) -> str:
+        return f"VectorSource({str(self.path)!r}, table={self.table!r}, layer={self.layer!r})"

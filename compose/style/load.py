@@ -1,0 +1,250 @@
+"""Reading a style file: TOML, the ``extends`` chain and its merge, paths, then validation.
+
+Stages, each a function: read one file (:func:`_read`) -> check its shape and resolve its paths
+against its own folder (:func:`_prepare`) -> follow ``extends`` (:func:`_chain`) -> merge base
+first (:func:`_merge`) -> validate the merged tables into a :class:`Style` (:func:`_build`).
+Errors of one file's shape name that file; errors of the merged content name the style loaded.
+"""
+from __future__ import annotations
+
+import tomllib
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from compose.errors import StyleError
+from compose.style.kinds import LAYER_KINDS
+from compose.style.model import (BLEND_MODES, BUDGET_TABLES, ROLES, LayerSpec, MapSpec, RampTable,
+                                 Budgets, Style)
+from compose.style.validate import (Scope, as_table, boolean, build_from_table, check_choice,
+                                    check_keys, missing_keys, number, option_keys, string)
+
+__all__ = ["load_style", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
+
+#: Keys allowed at the top level of a style file.
+TOP_KEYS = ("extends", "map", "budget", "ramp", "layer")
+#: Keys every layer may state, whatever its kind.
+COMMON_KEYS = ("name", "role", "kind", "source", "blend", "opacity", "enabled")
+_REQUIRED = ("role", "kind", "source")
+
+
+@dataclass(frozen=True, slots=True)
+class _File:
+    """One parsed style file: absolute path, its tables (paths resolved), raw text."""
+
+    path: Path
+    data: dict
+    text: str
+
+
+def _show(path: Path) -> str:
+    """``path`` relative to the working folder when inside it, else absolute."""
+    try:
+        return str(path.relative_to(Path.cwd()))
+    except ValueError:
+        return str(path)
+
+
+@contextmanager
+def _blame(path: Path) -> Iterator[None]:
+    """Prefix the message of any StyleError raised inside with the file's name."""
+    try:
+        yield
+    except StyleError as e:
+        raise type(e)(f"{_show(path)}: {e}") from e
+
+
+def freeze(value: Any) -> Any:
+    """Deep read-only copy of TOML data: tables -> MappingProxyType, arrays -> tuples."""
+    if isinstance(value, Mapping):
+        return MappingProxyType({k: freeze(v) for k, v in value.items()})
+    if isinstance(value, list):
+        return tuple(freeze(v) for v in value)
+    return value
+
+
+def _read(path: Path) -> tuple[dict, str]:
+    """TOML of one file -> (tables, raw text)."""
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise StyleError(f"style file not found: {_show(path)}") from None
+    except UnicodeDecodeError:
+        raise StyleError(f"{_show(path)}: not UTF-8 text") from None
+    except OSError as e:
+        raise StyleError(f"cannot read style file {_show(path)}: {e.strerror or e}") from None
+    try:
+        return tomllib.loads(text), text
+    except tomllib.TOMLDecodeError as e:
+        raise StyleError(f"{_show(path)}: invalid TOML: {e}") from None
+
+
+def _prepare(data: dict, folder: Path) -> None:
+    """Check the shape merging relies on and the keys of the fixed tables (so errors name this
+    file); make layer sources absolute (relative to ``folder``)."""
+    top = Scope()
+    check_keys(data, TOP_KEYS, top)
+    if "extends" in data:
+        string()(data["extends"], top.at("extends"))
+    if "map" in data:
+        check_keys(as_table(data["map"], top.at("map")), option_keys(MapSpec), top.at("map"))
+    if "budget" in data:
+        budget = as_table(data["budget"], top.at("budget"))
+        check_keys(budget, BUDGET_TABLES, top.at("budget"))
+        for role, table in budget.items():
+            at = top.at("budget").at(role)
+            check_keys(as_table(table, at), option_keys(BUDGET_TABLES[role]), at)
+    if "ramp" in data:
+        for name, table in as_table(data["ramp"], top.at("ramp")).items():
+            as_table(table, top.at("ramp").at(name))
+    layers = data.get("layer", [])
+    if not isinstance(layers, list) or not all(isinstance(t, dict) for t in layers):
+        raise StyleError("layer must be an array of tables; write each as [[layer]]")
+    seen: set[str] = set()
+    for i, table in enumerate(layers, start=1):
+        if "name" not in table:
+            raise missing_keys(["name"], Scope(f"layer {i}"))
+        name = string()(table["name"], Scope(f"layer {i}").at("name"))
+        if name in seen:
+            raise StyleError(f'layer "{name}" is listed twice; layer names must be unique')
+        seen.add(name)
+        if isinstance(table.get("source"), str) and table["source"].strip():
+            table["source"] = str((folder / table["source"]).resolve())
+
+
+def _chain(path: Path) -> list[_File]:
+    """The style at ``path`` and the files it extends, the deepest base first."""
+    files: list[_File] = []
+    current = path
+    while True:
+        data, text = _read(current)
+        with _blame(current):
+            _prepare(data, current.parent)
+        files.append(_File(current, data, text))
+        if "extends" not in data:
+            return files[::-1]
+        target = (current.parent / data["extends"]).resolve()
+        seen = [f.path for f in files]
+        if target in seen:
+            loop = " -> ".join(_show(p) for p in seen[seen.index(target):] + [target])
+            raise StyleError(f"{_show(current)}: extends cycle: {loop}")
+        if not target.is_file():
+            raise StyleError(f"{_show(current)}: extends: file not found: {_show(target)}")
+        current = target
+
+
+def merge_layers(base: list[dict], new: list[dict]) -> list[dict]:
+    """Merge the layers of an extending file into its base's (both lowest first).
+
+    A known name overrides the keys it states, in the base's position. A new name goes directly
+    above the layer listed just before it in the extending file, or on top if it comes first.
+    """
+    out = [dict(t) for t in base]
+    where = {t["name"]: i for i, t in enumerate(out)}
+    previous: str | None = None
+    for table in new:
+        name = table["name"]
+        if name in where:
+            out[where[name]].update(table)
+        else:
+            out.insert(len(out) if previous is None else where[previous] + 1, dict(table))
+            where = {t["name"]: i for i, t in enumerate(out)}
+        previous = name
+    return out
+
+
+def _merge(files: list[_File]) -> tuple[dict, dict[str, Path]]:
+    """Merge files base first: tables key by key, layers by name. Returns (tables, ramp -> file)."""
+    merged: dict[str, Any] = {"budget": {}, "ramp": {}, "layer": []}
+    origin: dict[str, Path] = {}
+    for f in files:
+        d = f.data
+        if "map" in d:
+            merged.setdefault("map", {}).update(d["map"])
+        for role, table in d.get("budget", {}).items():
+            merged["budget"].setdefault(role, {}).update(table)
+        for name, table in d.get("ramp", {}).items():
+            merged["ramp"].setdefault(name, {}).update(table)
+            origin[name] = f.path
+        merged["layer"] = merge_layers(merged["layer"], d.get("layer", []))
+    return merged, origin
+
+
+def _elsewhere(key: str, kind: str | None) -> str | None:
+    kinds = [k for k, s in LAYER_KINDS.items() if key in s.keys]
+    if not kinds:
+        return None
+    return f"{key!r} is a key of {', '.join(kinds)} layers" + (f", not {kind}" if kind else "")
+
+
+def parse_layer(table: Mapping, ramps: Mapping[str, Any]) -> LayerSpec:
+    """Validate one merged layer table into a :class:`LayerSpec`; ``ramps``: the ramps by name."""
+    name = table["name"]
+    at = Scope(f'layer "{name}"')
+    schema = None
+    if "kind" in table:
+        schema = LAYER_KINDS[check_choice(table["kind"], LAYER_KINDS, at.at("kind"), "layer kind")]
+        allowed = COMMON_KEYS + schema.keys
+    else:
+        allowed = COMMON_KEYS + tuple(k for s in LAYER_KINDS.values() for k in s.keys)
+    check_keys(table, allowed, at, hint=lambda k: _elsewhere(k, schema.name if schema else None))
+    missing = [k for k in _REQUIRED + (schema.required if schema else ()) if k not in table]
+    if missing:
+        raise missing_keys(missing, at)
+    options = schema.parse({k: v for k, v in table.items() if k not in COMMON_KEYS}, at)
+    ramp = getattr(options, "ramp", None)
+    if ramp is not None and ramp not in ramps:
+        known = ", ".join(sorted(ramps)) if ramps else "none are defined"
+        raise StyleError(f"{at.path}: unknown ramp {ramp!r}; ramps: {known}")
+    return LayerSpec(
+        name=name,
+        role=check_choice(table["role"], ROLES, at.at("role"), "layer role"),
+        kind=schema.name,
+        source=Path(string()(table["source"], at.at("source"))),
+        blend=check_choice(table.get("blend", "normal"), BLEND_MODES, at.at("blend"), "blend mode"),
+        opacity=number(ge=0, le=1)(table.get("opacity", 1.0), at.at("opacity")),
+        enabled=True,
+        options=options,
+    )
+
+
+def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_map: bool) -> Style:
+    top = files[-1]
+    if "map" in merged:
+        spec = build_from_table(MapSpec, merged["map"], Scope("", ("map",)))
+    elif require_map:
+        raise StyleError("no [map] table; a style to render needs map.crs, map.extent and map.pixel")
+    else:
+        spec = None
+    budgets = build_from_table(Budgets, merged["budget"], Scope("", ("budget",)))
+    ramps = MappingProxyType({
+        name: RampTable(name, freeze(table), origin[name], origin[name].parent)
+        for name, table in merged["ramp"].items()})
+    layers = []
+    for table in merged["layer"]:
+        at = Scope(f'layer "{table["name"]}"').at("enabled")
+        if boolean()(table.get("enabled", True), at):
+            layers.append(parse_layer(table, ramps))
+    if require_map and not layers:
+        raise StyleError("the style has no layers; add at least one [[layer]]")
+    name = spec.name if spec is not None and spec.name else top.path.stem
+    return Style(path=top.path, name=name, map=spec, budgets=budgets, ramps=ramps,
+                 layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files))
+
+
+def load_style(path: str | Path, *, require_map: bool = True) -> Style:
+    """Load, merge (``extends``) and validate the style at ``path``.
+
+    ``require_map=False`` accepts a file without ``[map]`` and layers, such as a ramp library
+    (``Style.map`` is then None). Raises :class:`StyleError` (or its :class:`ColorError`) with a
+    one-line message naming the file, the key path and the value. Layer sources are made
+    absolute but not checked for existence.
+    """
+    path = Path(path).expanduser().resolve()
+    files = _chain(path)
+    merged, origin = _merge(files)
+    with _blame(path):
+        return _build(merged, origin, files, require_map)

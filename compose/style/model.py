@@ -1,0 +1,204 @@
+"""The typed, frozen style: map, budgets, ramp tables and layers.
+
+Each table's dataclass declares its keys with :func:`~compose.style.validate.option` (reader and
+default), so :func:`~compose.style.validate.build_from_table` validates a TOML table into it and
+the defaults below are the documented ones (docs/style.md). Layer options live in
+:mod:`compose.style.kinds`. Colours are gamma-encoded sRGB floats in [0, 1].
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from compose.canvas import Canvas
+from compose.errors import StyleError
+from compose.style.kinds import LayerOptions
+from compose.style.validate import (RGB, Scope, as_table, build_from_table, color, number, option,
+                                    pair, string, table_of)
+
+__all__ = [
+    "ROLES", "BLEND_MODES", "MapSpec", "GroundBudget", "ThemeBudget", "OverlayBudget",
+    "ClassesBudget", "NodataBudget", "Budgets", "BUDGET_TABLES", "RampTable", "LayerSpec", "Style",
+]
+
+#: Layer roles, lowest in the visual hierarchy first.
+ROLES = ("ground", "theme", "overlay")
+#: Blend mode names (W3C Compositing and Blending Level 1, section 10).
+BLEND_MODES = ("normal", "multiply", "screen", "overlay", "soft-light")
+
+
+def _crs(value: Any, at: Scope) -> str:
+    """A CRS string pyproj understands (kept as written)."""
+    if not isinstance(value, str) or not value.strip():
+        raise StyleError(f"{at.path} must be a CRS string such as 'EPSG:32631', got {value!r}")
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+    try:
+        CRS.from_user_input(value)
+    except CRSError as e:
+        reason = " ".join(str(e).split())
+        raise StyleError(f"{at.path}: {value!r} is not a CRS pyproj understands ({reason})") from None
+    return value
+
+
+def _extent(value: Any, at: Scope) -> tuple[float, float, float, float]:
+    ok = (isinstance(value, list) and len(value) == 4
+          and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value))
+    if not ok:
+        raise StyleError(f"{at.path} must be 4 numbers [west, south, east, north], got {value!r}")
+    west, south, east, north = (float(v) for v in value)
+    if not (east > west and north > south):
+        raise StyleError(f"{at.path}: need west < east and south < north, got {value!r}")
+    return west, south, east, north
+
+
+def _stem(value: Any, at: Scope) -> str:
+    name = string()(value, at)
+    if "/" in name or "\\" in name or name in (".", ".."):
+        raise StyleError(f"{at.path} must be a file name without folders, got {value!r}")
+    return name
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class MapSpec:
+    """``[map]``: the output grid and what lies under the first layer.
+
+    crs: as written (validated by pyproj); extent: (west, south, east, north) in CRS units;
+    pixel: CRS units per output pixel (> 0); dpi: dots per inch (> 0) for widths in points.
+    name: the output stem if stated (else the style's file stem, see :attr:`Style.name`).
+    """
+
+    name: str | None = option(_stem, None)
+    title: str = option(string(), "")
+    crs: str = option(_crs)
+    extent: tuple[float, float, float, float] = option(_extent)
+    pixel: float = option(number(gt=0))
+    dpi: float = option(number(gt=0), 300.0)
+    background: RGB = option(color(), (1.0, 1.0, 1.0))
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class GroundBudget:
+    """CIELAB L* range (p5 .. p95) and C*ab range (p95) of the ground's pixels."""
+
+    lightness: tuple[float, float] = option(pair(ge=0, le=100), (55.0, 98.0))
+    chroma: tuple[float, float] = option(pair(ge=0), (0.0, 12.0))
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ThemeBudget:
+    """Chroma of data colours: minimum (p50) and maximum (p95) C*ab; ``margin``: the ground's C*
+    p95 stays at least this far below the themes' C* p50. The minimum is only enforced when
+    ``chroma_min_stated`` (the style stated ``budget.theme.chroma``)."""
+
+    chroma: tuple[float, float] = option(pair(ge=0), (25.0, 130.0))
+    margin: float = option(number(ge=0), 10.0)
+    chroma_min_stated: bool = False
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class OverlayBudget:
+    """WCAG 2 contrast ratios (1-21) for marks and labels, the ``share`` (0-1] of an overlay's
+    pixels that must reach them, and the viewing distance in mm (0: size-aware test off)."""
+
+    contrast: float = option(number(ge=1, le=21), 3.0)           # WCAG 2.1 SC 1.4.11
+    label_contrast: float = option(number(ge=1, le=21), 4.5)     # WCAG 2.1 SC 1.4.3
+    share: float = option(number(gt=0, le=1), 0.95)
+    viewing_distance: float = option(number(ge=0), 0.0)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ClassesBudget:
+    """Class count range (warning outside; common practice) and smallest pairwise CIEDE2000."""
+
+    count: tuple[int, int] = option(pair(ge=1, whole=True), (5, 9))
+    separation: float = option(number(ge=0), 10.0)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class NodataBudget:
+    """No-data C*ab ceiling and CIEDE2000 from every ramp colour (Brychtova & Coltekin 2016)."""
+
+    chroma: float = option(number(ge=0), 3.0)
+    separation: float = option(number(ge=0), 10.0)
+
+
+def _theme(value: Any, at: Scope) -> ThemeBudget:
+    table = as_table(value, at)
+    return build_from_table(ThemeBudget, table, at, chroma_min_stated="chroma" in table)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Budgets:
+    """``[budget.*]``, one table per role plus classes and no-data; every key optional."""
+
+    ground: GroundBudget = option(table_of(GroundBudget), factory=GroundBudget)
+    theme: ThemeBudget = option(_theme, factory=ThemeBudget)
+    overlay: OverlayBudget = option(table_of(OverlayBudget), factory=OverlayBudget)
+    classes: ClassesBudget = option(table_of(ClassesBudget), factory=ClassesBudget)
+    nodata: NodataBudget = option(table_of(NodataBudget), factory=NodataBudget)
+
+
+#: The dataclass of each ``[budget.X]`` table.
+BUDGET_TABLES: dict[str, type] = {"ground": GroundBudget, "theme": ThemeBudget,
+                                  "overlay": OverlayBudget, "classes": ClassesBudget,
+                                  "nodata": NodataBudget}
+
+
+@dataclass(frozen=True, slots=True)
+class RampTable:
+    """``[ramp.NAME]`` as written: a read-only deep copy (tables are read-only mappings, arrays
+    tuples), validated by :mod:`compose.ramps`. ``path``: the last file that stated keys of it;
+    ``base_dir``: its folder."""
+
+    name: str
+    table: Mapping[str, Any]
+    path: Path
+    base_dir: Path
+
+
+@dataclass(frozen=True, slots=True)
+class LayerSpec:
+    """One ``[[layer]]``: common keys plus the kind's ``options`` (see :data:`LAYER_KINDS`).
+
+    source: absolute path (relative paths resolved against the file that stated them; existence
+    is not checked here). opacity in [0, 1]. Disabled layers are dropped while loading, so a
+    loaded style only holds layers with ``enabled`` true.
+    """
+
+    name: str
+    role: str
+    kind: str
+    source: Path
+    blend: str
+    opacity: float
+    enabled: bool
+    options: LayerOptions
+
+
+@dataclass(frozen=True, slots=True)
+class Style:
+    """A loaded style. ``map`` is None only for a ramp library loaded with ``require_map=False``.
+
+    path: the style file; name: the output stem (``map.name`` or the file stem); ramps by name in
+    order of first appearance; layers lowest first; text: the raw text of the style file itself;
+    chain: the files merged through ``extends``, the deepest base first, ending with ``path``.
+    """
+
+    path: Path
+    name: str
+    map: MapSpec | None
+    budgets: Budgets
+    ramps: Mapping[str, RampTable]
+    layers: tuple[LayerSpec, ...]
+    text: str
+    chain: tuple[Path, ...]
+
+    def canvas(self) -> Canvas:
+        """The output grid of ``[map]``."""
+        if self.map is None:
+            raise StyleError(f"{self.path}: no [map] table, so there is no canvas")
+        m = self.map
+        return Canvas.from_extent(m.crs, m.extent, m.pixel, m.dpi)

@@ -1,0 +1,25 @@
+"""GeoTIFF output: the canvas CRS, transform and size exactly, written window by window."""
+import numpy as np
+import rasterio
+
+from compose.canvas import Canvas
+from compose.output.geotiff import GeoTiffWriter
+
+
+def test_geotiff_round_trip(tmp_path):
+    # Outside reference: rasterio/GDAL reads back CRS, transform, size, tiling and compression.
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 700, 4000000 + 30 * 600), 30)
+    rng = np.random.default_rng(2)
+    img = rng.integers(0, 256, (canvas.height, canvas.width, 3), dtype=np.uint8)
+    path = tmp_path / "m.tif"
+    with GeoTiffWriter(path, canvas, tags={"TIFFTAG_SOFTWARE": "compose"}) as w:
+        for win in canvas.windows(256):
+            w.write(win.row, win.col, img[win.core])
+    with rasterio.open(path) as ds:
+        assert ds.crs == rasterio.crs.CRS.from_user_input("EPSG:32630")
+        assert ds.transform == canvas.transform
+        assert (ds.width, ds.height, ds.count) == (canvas.width, canvas.height, 4)
+        assert ds.profile["tiled"] and ds.profile["compress"] == "deflate"
+        data = ds.read()
+    np.testing.assert_array_equal(np.moveaxis(data[:3], 0, -1), img)
+    assert (data[3] == 255).all()

@@ -1,0 +1,165 @@
+"""VectorSource and Features, on tiny real GeoPackages / Shapefiles in tmp_path.
+
+Outside reference: pyproj's Transformer (EPSG:4326 -> UTM) and the canvas's inverse affine.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pyproj
+import pytest
+import shapely
+from affine import Affine
+
+from compose.canvas import Canvas
+from compose.errors import SourceError, StyleError
+from compose.sources.vector import Features, VectorSource
+from tests.sources._files import write_vector
+
+GEO, UTM31 = "EPSG:4326", "EPSG:32631"
+PROPS = {"name": "str", "kind": "int", "rank": "float"}
+TO_UTM = pyproj.Transformer.from_crs(GEO, UTM31, always_xy=True)
+
+
+def utm_canvas(lon: float, lat: float, pixel: float = 10.0, size: int = 200) -> Canvas:
+    """A UTM 31N canvas with the point (lon, lat) at the centre of pixel (size/2, size/2)."""
+    x, y = TO_UTM.transform(lon, lat)
+    half = size // 2
+    return Canvas(UTM31, Affine(pixel, 0, x - (half + 0.5) * pixel, 0, -pixel, y + (half + 0.5) * pixel),
+                  size, size)
+
+
+@pytest.fixture
+def gpkg(tmp_path):
+    features = [
+        ({"type": "Point", "coordinates": (3.0, 50.0)}, {"name": "town", "kind": 1, "rank": 5.0}),
+        ({"type": "LineString", "coordinates": [(2.99, 49.995), (3.01, 50.005)]},
+         {"name": "road", "kind": 2, "rank": 1.0}),
+        (None, {"name": "ghost", "kind": 2, "rank": 0.0}),
+        ({"type": "Polygon", "coordinates": [[(2.995, 49.998), (3.005, 49.998), (3.005, 50.002),
+                                              (2.995, 50.002), (2.995, 49.998)]]},
+         {"name": "park", "kind": 3, "rank": 2.0}),
+        ({"type": "Point", "coordinates": (3.002, 50.001, 12.0)}, {"name": "peak", "kind": 1, "rank": 9.0}),
+    ]
+    path = write_vector(tmp_path / "v.gpkg", features, crs=GEO, properties=PROPS, table="places")
+    write_vector(path, [({"type": "Point", "coordinates": (4.0, 51.0)}, {"name": "x", "kind": 9, "rank": 0.0})],
+                 crs=GEO, properties=PROPS, table="other")
+    return path
+
+
+def test_points_and_lines_land_where_pyproj_says(gpkg):
+    canvas = utm_canvas(3.0, 50.0)
+    features = VectorSource(gpkg, layer="places").load(canvas.crs)
+    names = [p["name"] for p in features.properties]
+    assert names == ["town", "road", "park", "peak"]            # file order, null geometry dropped
+    inverse = ~canvas.transform
+    # The town sits at the centre of pixel (100, 100) by construction of the canvas.
+    col, row = inverse @ shapely.get_coordinates(features.geometries[0])[0]
+    assert (int(col), int(row)) == (100, 100)
+    assert col == pytest.approx(100.5, abs=1e-6) and row == pytest.approx(100.5, abs=1e-6)
+    # Every vertex of the line and the 3-D peak (z dropped) against pyproj + inverse affine.
+    for i, lonlat in ((1, [(2.99, 49.995), (3.01, 50.005)]), (3, [(3.002, 50.001)])):
+        x, y = TO_UTM.transform(*np.array(lonlat).T)
+        want = np.column_stack(inverse @ (x, y))
+        got = np.column_stack(inverse @ tuple(shapely.get_coordinates(features.geometries[i]).T))
+        np.testing.assert_allclose(got, want, atol=1e-6)        # 1e-6 px = 10 um
+    assert not shapely.has_z(features.geometries).any()
+
+
+def test_load_is_cached_per_crs(gpkg):
+    src = VectorSource(gpkg, layer="places")
+    assert src.load(UTM31) is src.load("EPSG:32631")
+    assert src.load(GEO) is not src.load(UTM31)
+    lonlat = src.load(GEO)
+    assert shapely.get_coordinates(lonlat.geometries[0]).tolist() == [[3.0, 50.0]]
+
+
+def test_default_table_is_the_first(gpkg):
+    assert VectorSource(gpkg, layer="places").table == "places"
+    other = VectorSource(gpkg, layer="x", table="other").load(GEO)
+    assert [p["name"] for p in other.properties] == ["x"]
+
+
+def test_where_value_and_list(gpkg):
+    one = VectorSource(gpkg, layer="p", where={"kind": 1}).load(UTM31)
+    assert [p["name"] for p in one.properties] == ["town", "peak"]
+    some = VectorSource(gpkg, layer="p", where={"name": ["road", "park"], "kind": [2, 3]}).load(UTM31)
+    assert [p["name"] for p in some.properties] == ["road", "park"]
+    both = VectorSource(gpkg, layer="p", where={"kind": 1, "rank": 9}).load(UTM31)   # 9 == 9.0
+    assert [p["name"] for p in both.properties] == ["peak"]
+
+
+def test_in_box_cuts_and_drops(gpkg):
+    canvas = utm_canvas(3.0, 50.0)
+    features = VectorSource(gpkg, layer="places").load(canvas.crs)
+    x, y = TO_UTM.transform(3.0, 50.0)
+    box = (x - 200, y - 200, x + 200, y + 200)     # cuts the road and the park, keeps the peak
+    cut = features.in_box(box)
+    assert [p["name"] for p in cut.properties] == ["town", "road", "park", "peak"]
+    assert isinstance(cut, Features) and len(cut) == 4
+    west, south, east, north = shapely.total_bounds(cut.geometries[1:3])
+    assert west >= box[0] - 1e-6 and east <= box[2] + 1e-6 and south >= box[1] - 1e-6 and north <= box[3] + 1e-6
+    far = features.in_box((x + 5000, y + 5000, x + 6000, y + 6000))
+    assert len(far) == 0 and far.properties == []
+    # a point exactly on the box edge is kept (points are not cut)
+    on_edge = features.in_box((x, y - 10, x + 10, y + 10))
+    assert "town" in [p["name"] for p in on_edge.properties]
+
+
+def test_in_box_is_seam_free_for_lines():
+    # A line crossing the edge x = 10 between two windows: each window cuts it to its box grown
+    # by a margin; inside the shared strip both pieces are the same line, and the pieces inside
+    # the two cores add up to the whole line (no gap, no overlap).
+    line = shapely.LineString([(0, 3), (10, 7.3), (20, 4.1)])
+    features = Features.build([line], [{"id": 1}])
+    margin = 2.0
+    left = features.in_box((0 - margin, 0 - margin, 10 + margin, 10 + margin)).geometries[0]
+    right = features.in_box((10 - margin, 0 - margin, 20 + margin, 10 + margin)).geometries[0]
+    strip = shapely.box(10 - margin, 0, 10 + margin, 10)
+    a, b = left.intersection(strip), right.intersection(strip)
+    assert a.equals_exact(b, 1e-9) or a.normalize().equals_exact(b.normalize(), 1e-9)
+    in_cores = left.intersection(shapely.box(0, 0, 10, 10)).length + \
+        right.intersection(shapely.box(10, 0, 20, 10)).length
+    assert in_cores == pytest.approx(line.length, rel=1e-12)
+
+
+def test_check_overlap(gpkg):
+    src = VectorSource(gpkg, layer="places")
+    src.check_overlap(utm_canvas(3.0, 50.0))
+    with pytest.raises(SourceError, match=r'layer "places": .*v\.gpkg does not overlap'):
+        src.check_overlap(utm_canvas(1.0, 45.0))
+    empty = VectorSource(gpkg, layer="places", where={"kind": 42})
+    with pytest.raises(SourceError, match=r'layer "places": no features in table "places" of .*v\.gpkg where kind'):
+        empty.check_overlap(utm_canvas(3.0, 50.0))
+
+
+# --- errors --------------------------------------------------------------------------------
+
+def test_missing_file(tmp_path):
+    with pytest.raises(SourceError, match=r'layer "coast": source not found: .*none\.gpkg'):
+        VectorSource(tmp_path / "none.gpkg", layer="coast")
+
+
+def test_unreadable_file(tmp_path):
+    bad = tmp_path / "bad.gpkg"
+    bad.write_bytes(b"\x00not a geopackage")
+    with pytest.raises(SourceError, match=r'layer "coast": cannot read .*bad\.gpkg'):
+        VectorSource(bad, layer="coast")
+
+
+def test_no_crs(tmp_path):
+    # A Shapefile written without a CRS has no .prj file.
+    path = write_vector(tmp_path / "bare.shp", [({"type": "Point", "coordinates": (1.0, 2.0)}, {"name": "a"})],
+                        crs=None, properties={"name": "str"}, driver="ESRI Shapefile", geometry="Point")
+    with pytest.raises(SourceError, match=r'layer "coast": .*bare\.shp has no CRS'):
+        VectorSource(path, layer="coast")
+
+
+def test_unknown_table_lists_tables(gpkg):
+    with pytest.raises(StyleError, match=r'layer "coast": table "roads" not in .*v\.gpkg \(tables: places, other\)'):
+        VectorSource(gpkg, layer="coast", table="roads")
+
+
+def test_unknown_where_key_lists_attributes(gpkg):
+    with pytest.raises(StyleError, match=r'layer "coast": where\.class: no attribute "class" in table "places" '
+                                         r'of .*v\.gpkg \(attributes: name, kind, rank\)'):
+        VectorSource(gpkg, layer="coast", where={"class": 1})
