@@ -188,14 +188,22 @@ def run(run_: RenderRun, sinks: list[Sink], *, measure: bool = True, window: int
     windows = list(canvas.windows(window, margin=margin))
     stats = _new_stats(run_) if measure else None
     t0 = time.perf_counter()
+    encode = 0.0
     done = 0
     band_row = 0
     band = None
+
+    def feed(row0, rows):
+        nonlocal encode
+        t = time.perf_counter()
+        for sink in sinks:
+            sink.rows(row0, rows)
+        encode += time.perf_counter() - t
+
     for win in windows:
         if band is None or win.row != band_row:
             if band is not None:
-                for sink in sinks:
-                    sink.rows(band_row, band)
+                feed(band_row, band)
             band_row = win.row
             band = np.empty((win.height, canvas.width, 3), dtype=np.uint8)
         band[:, win.col:win.col + win.width] = render_window(run_, win, stats)
@@ -203,7 +211,7 @@ def run(run_: RenderRun, sinks: list[Sink], *, measure: bool = True, window: int
         if progress is not None:
             progress(done, len(windows))
     if band is not None:
-        for sink in sinks:
-            sink.rows(band_row, band)
-    run_.seconds["render"] = time.perf_counter() - t0
+        feed(band_row, band)
+    run_.seconds["encode"] = encode
+    run_.seconds["compute"] = time.perf_counter() - t0 - encode
     return stats

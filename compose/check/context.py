@@ -41,6 +41,7 @@ class CheckContext:
     budgets: Any
     specs: dict[str, Any]
     _luts: dict = field(default_factory=dict)
+    _metrics: dict = field(default_factory=dict)
 
     @classmethod
     def build(cls, style, stats: Statistics, ramps: dict) -> "CheckContext":
@@ -88,6 +89,13 @@ class CheckContext:
         if ramp.name not in self._luts:
             self._luts[ramp.name] = ramp.lut()
         return self._luts[ramp.name]
+
+    def metrics(self, ramp) -> Any:
+        """:func:`compose.ramps.ramp_metrics` of the ramp (cached)."""
+        if ramp.name not in self._metrics:
+            from compose.ramps import ramp_metrics
+            self._metrics[ramp.name] = ramp_metrics(ramp)
+        return self._metrics[ramp.name]
 
     def ramp_users(self, name: str, role: str | None = None) -> list[str]:
         """Names of the drawn layers that use ramp ``name`` (optionally of one role)."""

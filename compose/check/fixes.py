@@ -228,17 +228,21 @@ def solve_nodata(current8, ramp8: np.ndarray, background, chroma_max: float, sep
     (or equal to the background). None when no lightness works."""
     L, C, h = srgb_to_lch(np.asarray(current8, dtype=float) / 255.0)
     c = min(C, max(0.0, chroma_max - 0.5))
-    order = np.argsort(np.abs(_GRID - L), kind="stable")
-    cand = lch_rgb8(np.stack([_GRID, np.full_like(_GRID, c), np.full_like(_GRID, h)], axis=-1))
-    lab = srgb_to_lab(cand / 255.0)
-    ramp_lab = srgb_to_lab(np.asarray(ramp8, dtype=float) / 255.0)
-    d_ramp = delta_e_2000(lab[:, None, :], ramp_lab[None, :, :]).min(axis=1)
-    d_bg = delta_e_2000(lab, srgb_to_lab(np.asarray(background, dtype=float)))
-    chroma = srgb_to_lch(cand / 255.0)[:, 1]
-    good = (d_ramp >= separation) & ((d_bg >= separation) | (d_bg < 0.5)) & (chroma <= chroma_max)
-    for i in order:
-        if good[i]:
-            return cand[i]
+    grid = _GRID[::5]                                            # L* in steps of 0.5
+    order = grid[np.argsort(np.abs(grid - L), kind="stable")]
+    ramp_lab = srgb_to_lab(np.unique(np.asarray(ramp8, dtype=np.uint8), axis=0) / 255.0)
+    bg_lab = srgb_to_lab(np.asarray(background, dtype=float))
+    for start in range(0, order.size, 16):                       # nearest candidates first
+        Ls = order[start:start + 16]
+        cand = lch_rgb8(np.stack([Ls, np.full_like(Ls, c), np.full_like(Ls, h)], axis=-1))
+        lab = srgb_to_lab(cand / 255.0)
+        d_ramp = delta_e_2000(lab[:, None, :], ramp_lab[None, :, :]).min(axis=1)
+        d_bg = delta_e_2000(lab, bg_lab)
+        chroma = srgb_to_lch(cand / 255.0)[:, 1]
+        good = ((d_ramp >= separation) & ((d_bg >= separation) | (d_bg < 0.5))
+                & (chroma <= chroma_max))
+        if good.any():
+            return cand[int(np.argmax(good))]
     return None
 
 

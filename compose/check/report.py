@@ -64,8 +64,8 @@ class RuleResult:
 
     rule: str
     layer: str | None
-    value: float | None
-    limit: float | str | None
+    value: float | list | None
+    limit: float | list | None
     passed: bool
     message: str
     fix: str = ""
@@ -155,12 +155,16 @@ class Report:
 def _num(v) -> str:
     if v is None:
         return "-"
+    if isinstance(v, (list, tuple)):
+        return "..".join(_num(x) for x in v)
     if isinstance(v, str):
         return v
     if isinstance(v, float) and not math.isfinite(v):
         return "n/a"
     if isinstance(v, float):
         return f"{v:.3g}" if abs(v) < 10 else f"{v:.1f}"
+    if hasattr(v, "item"):
+        return _num(v.item())
     return str(v)
 
 

@@ -1,7 +1,7 @@
 """sRGB gamut test and gamut mapping by chroma reduction at constant L* and hue.
 
 Nothing here clips channels silently: :func:`map_to_gamut` lowers CIE C*ab only, by a vectorised
-bisection, and returns how much chroma it removed so callers can report it.
+coarse scan plus bisection, and returns how much chroma it removed so callers can report it.
 """
 from __future__ import annotations
 

@@ -86,8 +86,35 @@ def _parts(geoms) -> np.ndarray:
     return g[~shapely.is_empty(g)] if g.size else g
 
 
-def _path(xy: np.ndarray, index: np.ndarray, transform: Affine, height: int,
-          closed: bool) -> Path | None:
+def _start_outside(disp: np.ndarray, first: np.ndarray, width: int, height: int) -> np.ndarray:
+    """Rotate each closed ring to start at a vertex outside the renderer's clip box, if it has one.
+
+    Agg's stroke clipping (matplotlib cuts strokes at 1 px beyond the raster) breaks a ring that
+    leaves the raster into pieces; where the ring's start vertex lies inside, the two pieces
+    meeting there overlap and their antialiased edges add up, which differs from window to
+    window. Starting outside moves that break off the raster. Rings are closed (last == first).
+    """
+    x, y = disp[:, 0], disp[:, 1]
+    outside = (x < -1.0) | (x > width + 1.0) | (y < -1.0) | (y > height + 1.0)
+    starts = np.flatnonzero(first)
+    lengths = np.diff(np.append(starts, len(disp)))
+    core = np.maximum(lengths - 1, 1)               # vertices without the closing duplicate
+    s_rep = np.repeat(starts, lengths)
+    m_rep = np.repeat(core, lengths)
+    pos = np.arange(len(disp)) - s_rep
+    big = np.iinfo(np.int64).max
+    cand = np.where(outside & (pos < m_rep), pos, big)
+    k = np.minimum.reduceat(cand, starts)
+    k[k == big] = 0
+    if not k.any():
+        return disp
+    k_rep = np.repeat(k, lengths)
+    src = s_rep + np.where(pos < m_rep, (pos + k_rep) % m_rep, k_rep)
+    return disp[src]
+
+
+def _path(xy: np.ndarray, index: np.ndarray, transform: Affine, width: int, height: int,
+          closed: bool, rotate: bool = False) -> Path | None:
     """One compound Path: MOVETO at the first vertex of every part, CLOSEPOLY at rings' last."""
     if len(xy) == 0:
         return None
@@ -95,16 +122,24 @@ def _path(xy: np.ndarray, index: np.ndarray, transform: Affine, height: int,
     first = np.ones(len(xy), dtype=bool)
     first[1:] = index[1:] != index[:-1]
     codes[first] = Path.MOVETO
+    disp = _display(xy, transform, height)
     if closed:
         last = np.roll(first, -1)
         codes[last & ~first] = Path.CLOSEPOLY
-    path = Path(_display(xy, transform, height), codes, readonly=True)
+        if rotate:
+            disp = _start_outside(disp, first, width, height)
+    path = Path(disp, codes, readonly=True)
     path.should_simplify = False   # exact geometry, and identical in every window
     return path
 
 
-def _line_path(geoms, transform: Affine, height: int) -> Path | None:
-    """Lines, rings and polygon boundaries as one open/closed compound path."""
+def _line_path(geoms, transform: Affine, width: int, height: int,
+               rotate: bool = True) -> Path | None:
+    """Lines, rings and polygon boundaries as one open/closed compound path.
+
+    rotate: start rings outside the raster where possible (see :func:`_start_outside`); off
+    for dashing, where the pattern must start at the ring's own first vertex in every window.
+    """
     parts = _parts(geoms)
     if parts.size == 0:
         return None
@@ -119,7 +154,7 @@ def _line_path(geoms, transform: Affine, height: int) -> Path | None:
     for sel, is_closed in ((lines, False), (closed, True)):
         if sel.size:
             xy, idx = shapely.get_coordinates(sel, return_index=True)
-            paths.append(_path(xy, idx, transform, height, is_closed))
+            paths.append(_path(xy, idx, transform, width, height, is_closed, rotate))
     paths = [p for p in paths if p is not None]
     if not paths:
         return None
@@ -133,7 +168,7 @@ def _concat(paths: Sequence[Path]) -> Path:
     return path
 
 
-def _area_path(geoms, transform: Affine, height: int) -> Path | None:
+def _area_path(geoms, transform: Affine, width: int, height: int) -> Path | None:
     """Polygons with exteriors and holes wound opposite ways, so non-zero filling cuts holes."""
     parts = _parts(geoms)
     if parts.size == 0:
@@ -143,7 +178,74 @@ def _area_path(geoms, transform: Affine, height: int) -> Path | None:
         return None
     polys = shapely.orient_polygons(polys, exterior_cw=False)
     xy, idx = shapely.get_coordinates(shapely.get_rings(polys), return_index=True)
-    return _path(xy, idx, transform, height, closed=True)
+    return _path(xy, idx, transform, width, height, closed=True)
+
+
+def _dashed(path: Path, dash_px: Sequence[float]) -> Path | None:
+    """Cut a polyline path (MOVETO / LINETO / CLOSEPOLY) into its "on" dashes, in numpy.
+
+    The pattern starts "on" at every part's first vertex and runs along the part's length in
+    pixels. Dashing here rather than in Agg keeps dashes identical in every window: Agg dashes
+    after clipping the path to the raster, which restarts the pattern where a line re-enters.
+    """
+    pattern = np.asarray([float(d) for d in dash_px])
+    if len(pattern) % 2 or pattern.min() < 0 or pattern.sum() <= 0:
+        raise StyleError(f"dash: need pairs of on/off lengths >= 0, got {list(dash_px)}")
+    period = float(pattern.sum())
+    starts_b = np.concatenate([[0.0], np.cumsum(pattern)[:-1]])   # start of each element
+    v, codes = path.vertices, path.codes
+    closing = codes == Path.CLOSEPOLY
+    if closing.any():   # a ring closes back to its MOVETO vertex
+        first_idx = np.maximum.accumulate(np.where(codes == Path.MOVETO, np.arange(len(v)), 0))
+        v = v.copy()
+        v[closing] = v[first_idx[closing]]
+    first = codes == Path.MOVETO
+    part = np.cumsum(first) - 1
+    seg = np.diff(v, axis=0)
+    seglen = np.hypot(seg[:, 0], seg[:, 1])
+    seglen[first[1:]] = 0.0
+    s = np.concatenate([[0.0], np.cumsum(seglen)])
+    part_s0 = s[first]
+    local = s - part_s0[part]
+    ends = np.append(np.flatnonzero(first)[1:], len(v)) - 1
+    length = local[ends]
+    # pattern boundaries t = m * period + start of element j, 0 < t < part length
+    reps = np.ceil(length / period).astype(np.int64) * len(pattern)
+    b_part = np.repeat(np.arange(len(length)), reps)
+    k = np.arange(len(b_part)) - np.repeat(np.cumsum(reps) - reps, reps)
+    b_elem = k % len(pattern)
+    b_t = (k // len(pattern)) * period + starts_b[b_elem]
+    keep = (b_t > 0) & (b_t < length[b_part])
+    b_part, b_elem, b_t = b_part[keep], b_elem[keep], b_t[keep]
+    # where boundaries fall: the segment of their part that contains them
+    g = part_s0[b_part] + b_t
+    i = np.clip(np.searchsorted(s, g, side="right") - 1, np.flatnonzero(first)[b_part],
+                ends[b_part] - 1)
+    frac = np.divide(g - s[i], seglen[i], out=np.zeros_like(g), where=seglen[i] > 0)
+    b_xy = v[i] + frac[:, None] * seg[i]
+    v_elem = np.searchsorted(starts_b, np.mod(local, period), side="right") - 1
+    # events of vertices and boundaries in order along each part (vertices first on ties)
+    ev_part = np.concatenate([part, b_part])
+    ev_t = np.concatenate([local, b_t])
+    ev_kind = np.concatenate([np.zeros(len(v), np.int8), np.ones(len(b_t), np.int8)])
+    order = np.lexsort((ev_kind, ev_t, ev_part))
+    ev_xy = np.concatenate([v, b_xy])[order]
+    on_after = (np.concatenate([v_elem, b_elem]) % 2 == 0)[order]
+    ev_part = ev_part[order]
+    new_part = np.ones(len(order), dtype=bool)
+    new_part[1:] = ev_part[1:] != ev_part[:-1]
+    on_before = np.zeros(len(order), dtype=bool)
+    on_before[1:] = on_after[:-1]
+    on_before[new_part] = False
+    last = np.append(new_part[1:], True)
+    on_after = on_after & ~last
+    keep = on_before | on_after
+    if not keep.any():
+        return None
+    out_codes = np.where(on_before, Path.LINETO, Path.MOVETO).astype(Path.code_type)[keep]
+    out = Path(ev_xy[keep], out_codes, readonly=True)
+    out.should_simplify = False
+    return out
 
 
 class _Canvas:
@@ -155,7 +257,7 @@ class _Canvas:
         self.width, self.height = int(width), int(height)
         self.renderer = RendererAgg(self.width, self.height, _DPI)
 
-    def gc(self, width_px: float = 0.0, dash_px=None, cap: str = "round", join: str = "round"):
+    def gc(self, width_px: float = 0.0, cap: str = "round", join: str = "round"):
         gc = self.renderer.new_gc()
         gc.set_antialiased(True)
         gc.set_snap(False)
@@ -163,11 +265,6 @@ class _Canvas:
         gc.set_linewidth(float(width_px))
         gc.set_capstyle(_choice(cap, CAPS, "line cap"))
         gc.set_joinstyle(_choice(join, JOINS, "line join"))
-        if dash_px:
-            dashes = [float(d) for d in dash_px]
-            if len(dashes) % 2 or min(dashes) < 0 or sum(dashes) <= 0:
-                raise StyleError(f"dash: need pairs of on/off lengths >= 0, got {list(dash_px)}")
-            gc.set_dashes(0.0, dashes)
         return gc
 
     def stroke(self, path: Path, gc) -> None:
@@ -199,10 +296,14 @@ def draw_lines(geoms, transform: Affine, width: int, height: int, *, width_px: f
     composited beneath the stroke.
     """
     canvas = _Canvas(width, height)
-    path = _line_path(geoms, transform, canvas.height)
+    path = _line_path(geoms, transform, canvas.width, canvas.height, rotate=not dash_px)
     if path is None or not width_px > 0:
         return _zeros(width, height)
-    canvas.stroke(path, canvas.gc(width_px, dash_px, cap, join))
+    if dash_px:
+        path = _dashed(path, dash_px)
+        if path is None:
+            return _zeros(width, height)
+    canvas.stroke(path, canvas.gc(width_px, cap, join))
     return canvas.coverage()
 
 
@@ -217,7 +318,7 @@ def draw_areas(geoms, transform: Affine, width: int, height: int, *, fill: bool 
     canvas = _Canvas(width, height)
     fill_cov = stroke_cov = None
     if fill:
-        path = _area_path(geoms, transform, canvas.height)
+        path = _area_path(geoms, transform, canvas.width, canvas.height)
         if path is None:
             fill_cov = _zeros(width, height)
         else:
@@ -225,11 +326,13 @@ def draw_areas(geoms, transform: Affine, width: int, height: int, *, fill: bool 
             fill_cov = canvas.coverage()
     if stroke_width_px > 0:
         canvas.clear()
-        path = _line_path(geoms, transform, canvas.height)
+        path = _line_path(geoms, transform, canvas.width, canvas.height, rotate=not dash_px)
+        if path is not None and dash_px:
+            path = _dashed(path, dash_px)
         if path is None:
             stroke_cov = _zeros(width, height)
         else:
-            canvas.stroke(path, canvas.gc(stroke_width_px, dash_px, "round", join))
+            canvas.stroke(path, canvas.gc(stroke_width_px, "round", join))
             stroke_cov = canvas.coverage()
     return fill_cov, stroke_cov
 

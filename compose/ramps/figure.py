@@ -54,6 +54,35 @@ def _strip(ax, rgb: np.ndarray, lo: float, hi: float, label: str) -> None:
     ax.tick_params(axis="x", labelbottom=False, length=0)
 
 
+def _profile(ramp: Ramp, x: np.ndarray, drawn: np.ndarray) -> np.ndarray:
+    """LCh along ``x``: the unrounded ramp (smooth lines), or the drawn classes of a stepped ramp;
+    NaN across a threshold break so no line joins the two sides."""
+    if ramp.stepped:
+        lch = lab_to_lch(srgb_to_lab(drawn))
+    else:
+        lch = lab_to_lch(ramp.lab_at(x))
+    if ramp.at is not None:
+        k = int(np.searchsorted(x, ramp.at))
+        if 0 < k < len(x):
+            lch[k - 1] = np.nan
+    return lch
+
+
+def _hue_line(lch: np.ndarray) -> np.ndarray:
+    """Hue in degrees where C* >= 3 (NaN elsewhere), unwrapped within each unbroken run and
+    shifted so each run's mean lies in [0, 360)."""
+    hue = np.where(lch[:, 1] >= 3, lch[:, 2], np.nan)
+    ok = ~np.isnan(hue)
+    starts = np.flatnonzero(ok & ~np.concatenate([[False], ok[:-1]]))
+    for a in starts:
+        b = a
+        while b < len(hue) and ok[b]:
+            b += 1
+        run = np.degrees(np.unwrap(np.radians(hue[a:b])))
+        hue[a:b] = run - 360.0 * np.floor(run.mean() / 360.0)
+    return hue
+
+
 def _summary(m: RampMetrics) -> str:
     parts = [f"L* {m.lightness_range[0]:.0f}–{m.lightness_range[1]:.0f}",
              f"C* {m.chroma_range[0]:.0f}–{m.chroma_range[1]:.0f}"]
@@ -79,7 +108,7 @@ def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) 
     x = np.linspace(lo, hi, 600)
     gs = fig.add_gridspec(len(members) + 3 + len(_PROOFS), 2, width_ratios=[12, 1.3],
                           height_ratios=[0.55] * len(members) + [1.7, 1.2, 1.0] + [0.32] * len(_PROOFS),
-                          hspace=0.16, wspace=0.04, left=0.13, right=0.97, top=0.9, bottom=0.16)
+                          hspace=0.16, wspace=0.04, left=0.13, right=0.97, top=0.895, bottom=0.115)
     axes = []
     drawn = {}
     for i, r in enumerate(members):
@@ -102,22 +131,22 @@ def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) 
     panels = [fig.add_subplot(gs[len(members) + k, 0], sharex=axes[0]) for k in range(3)]
     styles = ["-", "--", ":", "-."]
     for r, ls in zip(members, styles):
-        lch = lab_to_lch(srgb_to_lab(drawn[r.name]))
+        lch = _profile(r, x, drawn[r.name])
         w = 1.8 if r is ramp else 1.2
-        panels[0].plot(x, lch[:, 0], ls, color=INK, lw=w, label=r.name)
-        panels[1].plot(x, lch[:, 1], ls, color=INK, lw=w, label=r.name)
-        hue = np.where(lch[:, 1] >= 3, np.degrees(np.unwrap(np.radians(lch[:, 2]))), np.nan)
-        if np.nanmin(hue, initial=np.inf) < 0 or np.nanmax(hue, initial=-np.inf) > 360:
-            hue = hue % 360
-        panels[2].plot(x, hue, ls, color=INK, lw=w, label=r.name)
-        if r is ramp:
-            limit = max_chroma(lch[:, 0], lch[:, 2], iterations=24)
-            panels[1].plot(x, limit, color=FAINT, lw=0.9, label="sRGB limit at this L*, h")
+        label = r.name if r is ramp else f"{r.name} (same L*, C*)"
+        panels[0].plot(x, lch[:, 0], ls, color=INK, lw=w, label=label)
+        panels[1].plot(x, lch[:, 1], ls, color=INK, lw=w, label=label)
+        panels[2].plot(x, _hue_line(lch), ls, color=INK, lw=w, label=label)
+        limit = np.where(lch[:, 1] >= 3, max_chroma(lch[:, 0], lch[:, 2] % 360), np.nan)
+        panels[1].plot(x, limit, ls, color=FAINT, lw=0.9,
+                       label="sRGB limit at this L*, h" + ("" if r is ramp else f" ({r.name})"))
     panels[0].set_ylabel("lightness\nL* (CIELAB)", fontsize=8.5)
     panels[0].set_ylim(0, 100)
     panels[1].set_ylabel("chroma\nC*ab", fontsize=8.5)
     panels[1].set_ylim(0, None)
     panels[2].set_ylabel("hue h (°)\nwhere C* ≥ 3", fontsize=8.5)
+    from matplotlib.ticker import FuncFormatter
+    panels[2].yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v % 360:.0f}"))
     if len(members) > 1:
         panels[0].legend(fontsize=7, frameon=False, loc="best")
     panels[1].legend(fontsize=7, frameon=False, loc="best")
@@ -153,16 +182,16 @@ def _rect(xy, w, h, rgb):
     return Rectangle(xy, w, h, facecolor=tuple(np.clip(rgb, 0, 1)), edgecolor="#bdbdbd", lw=0.5)
 
 
-def _qualitative_figure(fig, ramp: Ramp, m: RampMetrics) -> None:
+def _qualitative_figure(fig, ramp: Ramp, m: RampMetrics, checks) -> None:
     classes = ramp.classes
     n = len(classes)
     rgb8 = np.array([np.rint(np.array(c.rgb) * 255) for c in classes]).astype(np.uint8)
     rgb = rgb8 / 255.0
-    rows = [("normal", rgb)] + [(v, simulate_cvd(rgb, v, 100.0)) for v in VISIONS[1:]] + [("grey L*", _grey(srgb_to_lab(rgb)))]
-    gs = fig.add_gridspec(2, 1, height_ratios=[1.25, 1.0], hspace=0.32, left=0.1, right=0.83, top=0.86, bottom=0.05)
-    ax = fig.add_subplot(gs[0])
+    rows = [("normal", rgb)] + [(v, simulate_cvd(rgb, v, 100.0)) for v in VISIONS[1:]]
+    rows.append(("grey L*", _grey(srgb_to_lab(rgb))))
+    ax = fig.add_axes((0.1, 0.36, 0.74, 0.55))
     ax.set_xlim(0, n)
-    ax.set_ylim(len(rows), -1.3)
+    ax.set_ylim(len(rows), -1.45)
     ax.axis("off")
     lab = srgb_to_lab(rgb)
     for r, (name, colors) in enumerate(rows):
@@ -174,46 +203,56 @@ def _qualitative_figure(fig, ramp: Ramp, m: RampMetrics) -> None:
             d = delta_e_2000(labs[:, None], labs[None])
             d[np.diag_indices(n)] = np.inf
             a, b = np.unravel_index(np.argmin(d), d.shape)
-            ok = m.min_pair_de00[name] >= 10
-            ax.text(n + 0.12, r + 0.45, f"min ΔE00 {m.min_pair_de00[name]:.1f}\n"
-                    f"({classes[a].value:g} vs {classes[b].value:g})", va="center", fontsize=7.5,
-                    color=INK if ok else "#a04000")
+            v = m.min_pair_de00[name]
+            ax.text(n + 0.12, r + 0.45, f"min ΔE00 {v:.1f}\n({classes[a].value:g} vs {classes[b].value:g})",
+                    va="center", fontsize=7.5, color=INK if v >= 10 else "#a04000")
     for i, c in enumerate(classes):
         L = lab[i, 0]
-        ax.text(i + 0.5, 0.45, f"{c.value:g}", ha="center", va="center", fontsize=9,
-                color="white" if L < 55 else INK, weight="bold")
-        ax.text(i + 0.5, len(rows) - 0.55, f"{L:.0f}", ha="center", va="center", fontsize=7.5,
-                color="white" if L < 55 else INK)
-        ax.text(i + 0.5, -0.05, "\n".join(textwrap.wrap(c.label, 13)), ha="center", va="bottom", fontsize=7.5,
-                color=INK)
+        ink = "white" if L < 55 else INK
+        ax.text(i + 0.5, 0.36, f"{c.value:g}", ha="center", va="center", fontsize=9, color=ink, weight="bold")
+        ax.text(i + 0.5, 0.68, _hex(rgb8[i]), ha="center", va="center", fontsize=6.5, color=ink)
+        ax.text(i + 0.5, len(rows) - 0.55, f"L* {L:.0f}", ha="center", va="center", fontsize=7, color=ink)
+        ax.text(i + 0.5, -0.05, "\n".join(textwrap.wrap(c.label, 13)), ha="center", va="bottom",
+                fontsize=7.5, color=INK)
     fams: dict = {}
     for i, c in enumerate(classes):
         if c.family:
             fams.setdefault(c.family, []).append(i)
     for fam, idx in fams.items():
         ax.plot([min(idx) + 0.1, max(idx) + 0.9], [-0.95, -0.95], color=INK, lw=1)
-        within = m.family_min_pair_de00.get(fam, {}).get("normal")
-        extra = f" (min ΔE00 {within:.1f})" if within is not None else ""
-        ax.text((min(idx) + max(idx) + 1) / 2, -1.0, fam + extra, ha="center", va="bottom", fontsize=7.5,
+        ax.text((min(idx) + max(idx) + 1) / 2, -1.0, fam, ha="center", va="bottom", fontsize=7.5,
                 color=INK, style="italic")
-    # pairwise table: smallest dE00 over normal, deutan and protan vision
+    # pairwise table: the smallest dE00 over normal, deutan and protan vision
     labs = vision_lab(rgb8)
     d = np.min([delta_e_2000(labs[v][:, None], labs[v][None]) for v in ("normal", "deutan", "protan")], axis=0)
-    t = fig.add_subplot(gs[1])
-    t.set_xlim(0, n)
-    t.set_ylim(n, 0)
+    t = fig.add_axes((0.1, 0.06, 0.36, 0.24))
+    t.set_xlim(-0.2, n)
+    t.set_ylim(n + 0.6, 0)
     t.axis("off")
-    t.set_title("pairwise ΔE00, smallest of normal, deutan and protan vision (shaded: below 10)",
-                fontsize=8.5, color=INK, loc="left")
+    t.set_title("pairwise ΔE00, smallest of normal, deutan, protan\n(shaded: below 10)", fontsize=8,
+                color=INK, loc="left")
     for i in range(n):
-        t.text(-0.1, i + 0.5, f"{classes[i].value:g}", ha="right", va="center", fontsize=8)
-        t.text(i + 0.5, n + 0.05, f"{classes[i].value:g}", ha="center", va="top", fontsize=8)
+        t.text(-0.1, i + 0.5, f"{classes[i].value:g}", ha="right", va="center", fontsize=7.5, color=INK)
+        t.text(i + 0.5, n + 0.1, f"{classes[i].value:g}", ha="center", va="top", fontsize=7.5, color=INK)
         for j in range(i):
-            fill = FAIL if d[i, j] < 10 else "#f4f4f4"
             t.add_patch(_rect((j + 0.04, i + 0.04), 0.92, 0.92, (1, 1, 1)))
-            t.patches[-1].set_facecolor(fill)
+            t.patches[-1].set_facecolor(FAIL if d[i, j] < 10 else "#f1f1f1")
             t.patches[-1].set_edgecolor("white")
-            t.text(j + 0.5, i + 0.5, f"{d[i, j]:.0f}", ha="center", va="center", fontsize=8, color=INK)
+            t.text(j + 0.5, i + 0.5, f"{d[i, j]:.0f}", ha="center", va="center", fontsize=7, color=INK)
+    lines = [f"nodata {_hex(np.rint(np.array(ramp.nodata) * 255).astype(int))}: "
+             f"{m.nodata_min_de00:.1f} ΔE00 from the nearest class, C* {m.nodata_chroma:.1f}"]
+    for fam, within in (m.family_min_pair_de00 or {}).items():
+        lines.append(f"within {fam}: min ΔE00 " + ", ".join(f"{k} {v:.1f}" for k, v in within.items()))
+    lines += [f"warning: {w}" for w in m.warnings]
+    lines.append("")
+    lines += [("ok     " if c.passed else ("warn   " if c.level == "warning" else "FAIL   ")) + c.rule
+              for c in checks]
+    fig.text(0.555, 0.28, "\n".join(lines), fontsize=7.5, color=INK, va="top", linespacing=1.5)
+    fig.add_artist(_rect((0.528, 0.2635), 0.02, 0.0165, ramp.nodata))
+
+
+def _hex(code) -> str:
+    return "#%02x%02x%02x" % tuple(int(c) for c in code)
 
 
 def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | None = None):
@@ -225,8 +264,8 @@ def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | 
     checks = rule_checks(m)
     members = [ramp] + [others[n] for n in ramp.matched if n != ramp.name and n in others]
     if ramp.kind == "qualitative":
-        fig = Figure(figsize=(10, 7.2), dpi=150)
-        _qualitative_figure(fig, ramp, m)
+        fig = Figure(figsize=(10, 7.4), dpi=150)
+        _qualitative_figure(fig, ramp, m, checks)
         subtitle = f"qualitative, {len(ramp.classes)} classes"
     else:
         fig = Figure(figsize=(10, 8.6 + 0.45 * (len(members) - 1)), dpi=150)
@@ -242,7 +281,8 @@ def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | 
     if ramp.kind != "qualitative":
         fig.text(0.02, 0.045, _summary(m), fontsize=8, color=INK)
     bad = any(not c.passed and c.level == "error" for c in checks)
-    fig.text(0.02, 0.018, _verdicts(checks), fontsize=8, color="#a04000" if bad else INK)
+    if ramp.kind != "qualitative":
+        fig.text(0.02, 0.018, _verdicts(checks), fontsize=8, color="#a04000" if bad else INK)
     return fig
 
 

@@ -35,8 +35,8 @@ class RampMetrics:
     Units: L*, C*ab, hue degrees, CIEDE2000 (dE00), coefficient of variation in percent.
     ``lightness_reversal``: the largest L* drop against the ramp's direction (per arm, away from
     the centre, for diverging ramps). ``step_cv``: CV of CAM02-UCS distances between consecutive
-    samples (``samples`` of them, unrounded colours); ``step_cv_8bit`` the same for
-    ``COARSE_SAMPLES`` 8-bit colours. ``*_de00`` dicts map a vision (normal, deutan, protan,
+    samples (``samples`` of them, unrounded colours; threshold ramps: the larger of the two
+    sides' CVs); ``step_cv_8bit`` the same for ``COARSE_SAMPLES`` 8-bit colours. ``*_de00`` dicts map a vision (normal, deutan, protan,
     tritan) to the smallest difference. ``grayscale_rho``: Spearman rank correlation of value vs
     L* over the samples (diverging: of the distance from the centre vs L*).
     """
@@ -231,14 +231,15 @@ def _continuous(ramp: Ramp, m: dict) -> np.ndarray:
         m["lightness_reversal"] = max(r[1] for r in res)
     else:
         m["lightness_monotone"], m["lightness_reversal"] = _reversal(lab_f[:, 0])
-    skip = None
-    if ramp.kind == "threshold":
-        skip = (values[:-1] < ramp.at) & (values[1:] >= ramp.at)
-    m["step_cv"] = _cv(lab_f, skip)
     coarse_v = np.linspace(lo, hi, COARSE_SAMPLES)
     coarse = _lab8(ramp.colors_at(coarse_v))
-    coarse_skip = None if skip is None else (coarse_v[:-1] < ramp.at) & (coarse_v[1:] >= ramp.at)
-    m["step_cv_8bit"] = _cv(coarse, coarse_skip)
+    if ramp.kind == "threshold":   # each side on its own: the break is a designed jump
+        sides = [(values < ramp.at, coarse_v < ramp.at), (values >= ramp.at, coarse_v >= ramp.at)]
+        m["step_cv"] = max(_cv(lab_f[a]) for a, _ in sides)
+        m["step_cv_8bit"] = max(_cv(coarse[b]) for _, b in sides if b.sum() > 2)
+    else:
+        m["step_cv"] = _cv(lab_f)
+        m["step_cv_8bit"] = _cv(coarse)
     drawn = to_rgb8(ramp.colors_at(values))
     L8 = srgb_to_lab(drawn / 255.0)[:, 0]
     if ramp.kind == "diverging":

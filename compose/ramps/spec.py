@@ -85,6 +85,11 @@ def closest(word: str, choices) -> str:
     return f"; one of: {', '.join(choices)}"
 
 
+def _is_list(value) -> bool:
+    """TOML arrays arrive as lists (or tuples, from a read-only copy)."""
+    return isinstance(value, (list, tuple))
+
+
 def _number(value, where: str, key: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
         raise StyleError(f"{where}: '{key}' must be a finite number, got {value!r}")
@@ -109,7 +114,7 @@ def _stops(table: Mapping, key: str, where: str, minimum: int) -> tuple:
     value = table.get(key)
     if value is None:
         raise StyleError(f"{where}: missing key '{key}' (a list of at least {minimum} colours)")
-    if not isinstance(value, list) or len(value) < minimum:
+    if not _is_list(value) or len(value) < minimum:
         raise StyleError(f"{where}: '{key}' must be a list of at least {minimum} colours, got {value!r}")
     return tuple(_lch(v, f"{where}: {key}[{i}]") for i, v in enumerate(value))
 
@@ -118,7 +123,7 @@ def _domain(table: Mapping, where: str) -> tuple[float, float] | None:
     if "domain" not in table:
         return None
     value = table["domain"]
-    if not isinstance(value, list) or len(value) != 2:
+    if not _is_list(value) or len(value) != 2:
         raise StyleError(f"{where}: 'domain' must be [low, high], got {value!r}")
     lo, hi = (_number(v, where, "domain") for v in value)
     if not lo < hi:
@@ -136,7 +141,7 @@ def _inside(value, key: str, domain: tuple[float, float], where: str) -> float:
 
 def _classes(table: Mapping, where: str) -> tuple[RampClass, ...]:
     value = table.get("classes")
-    if not isinstance(value, list) or len(value) < 2:
+    if not _is_list(value) or len(value) < 2:
         raise StyleError(f"{where}: 'classes' must be a list of at least 2 tables "
                          f"{{value, label, color, family}}, got {value!r}")
     out, seen = [], set()
@@ -183,7 +188,7 @@ def _sampling(table: Mapping, where: str, domain) -> dict:
         out["step_method"] = method
     if "breaks" in table:
         value = table["breaks"]
-        if not isinstance(value, list) or not value:
+        if not _is_list(value) or not value:
             raise StyleError(f"{where}: 'breaks' must be a list of numbers, got {value!r}")
         b = [_number(v, where, "breaks") for v in value]
         if any(y <= x for x, y in zip(b, b[1:])):
@@ -236,7 +241,7 @@ def parse_ramp(name: str, table: Mapping, path: Path | str) -> RampSpec:
         if not isinstance(base, str):
             raise StyleError(f"{where}: 'twin' must be the name of a ramp, got {base!r}")
         hue = table.get("hue")
-        if not isinstance(hue, list) or len(hue) != 2:
+        if not _is_list(hue) or len(hue) != 2:
             raise StyleError(f"{where}: 'hue' must be [hue at the low end, hue at the high end] "
                              f"in degrees, got {hue!r}")
         return RampSpec(name, kind, path, domain=domain, twin=base,

@@ -28,6 +28,7 @@ import os
 from pathlib import Path
 
 import numpy as np
+from rasterio.windows import Window as RioWindow
 import pyproj
 import rasterio
 from affine import Affine
@@ -199,6 +200,9 @@ class RasterSource:
                              f"{', '.join(RESAMPLING)}")
         width, height = int(width), int(height)
         dst_crs = CRS.from_user_input(crs)
+        offset = self._aligned_offset(dst_crs, transform)
+        if offset is not None:
+            return self._read_aligned(offset, width, height)
         scale = None
         for at in (scale_at, self._centre_in(dst_crs), _grid_centre(transform, width, height)):
             if at is not None and scale is None:
@@ -222,6 +226,44 @@ class RasterSource:
         except RasterioError as exc:
             raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
                               f"{_first_line(exc)}") from None
+        return out
+
+    def _aligned_offset(self, crs: CRS, transform: Affine) -> tuple[int, int] | None:
+        """(row, col) of the grid's origin in source pixels when the grid is the source's own
+        (same CRS, pixel size and orientation, whole-pixel offset), else None."""
+        st = self._ds.transform
+        if not (crs == self.crs):
+            return None
+        px = max(abs(st.a), abs(st.e))
+        if any(abs(a - b) > 1e-9 * px for a, b in ((transform.a, st.a), (transform.e, st.e),
+                                                   (transform.b, st.b), (transform.d, st.d))):
+            return None
+        col = (transform.c - st.c) / st.a
+        row = (transform.f - st.f) / st.e
+        if abs(col - round(col)) > 1e-6 or abs(row - round(row)) > 1e-6:
+            return None
+        return int(round(row)), int(round(col))
+
+    def _read_aligned(self, offset: tuple[int, int], width: int, height: int) -> np.ndarray:
+        """Plain windowed read for a grid aligned with the source (no resampling needed)."""
+        row, col = offset
+        out = np.full((height, width), np.nan, dtype=np.float32)
+        r0, c0 = max(row, 0), max(col, 0)
+        r1, c1 = min(row + height, self._ds.height), min(col + width, self._ds.width)
+        if r1 <= r0 or c1 <= c0:
+            return out
+        win = RioWindow(c0, r0, c1 - c0, r1 - r0)
+        try:
+            data = self._ds.read(self.band, window=win, out_dtype="float32")
+            mask = self._ds.read_masks(self.band, window=win)
+        except RasterioError as exc:
+            raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
+                              f"{_first_line(exc)}") from None
+        invalid = mask == 0
+        if self.nodata is not None and not (isinstance(self.nodata, float) and math.isnan(self.nodata)):
+            invalid |= data == np.float32(self.nodata)
+        data[invalid] = np.nan
+        out[r0 - row:r1 - row, c0 - col:c1 - col] = data
         return out
 
     def _centre_in(self, crs: CRS) -> tuple[float, float] | None:

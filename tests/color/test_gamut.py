@@ -67,20 +67,41 @@ def test_max_chroma_at_cube_corners():
     np.testing.assert_allclose(max_chroma(lch[:, 0], lch[:, 2]), lch[:, 1], rtol=0, atol=0.1)
 
 
+def _scan_last_inside(L, h, step=0.05, cmax=200.0):
+    """Largest C on a ``step`` grid whose sRGB channels stay in [-tol, 1 + tol], by colour-science's
+    own LCh -> sRGB (colour.LCHab_to_Lab, Lab_to_XYZ, XYZ_to_sRGB)."""
+    grid = np.arange(0, cmax, step)
+    lch = np.stack(np.broadcast_arrays(np.asarray(L)[:, None], grid[None, :], np.asarray(h)[:, None]), axis=-1)
+    rgb = colour.XYZ_to_sRGB(colour.Lab_to_XYZ(colour.LCHab_to_Lab(lch)))
+    ok = np.all((rgb >= -GAMUT_TOLERANCE) & (rgb <= 1 + GAMUT_TOLERANCE), axis=-1)
+    return grid[grid.size - 1 - np.argmax(ok[:, ::-1], axis=1)]
+
+
 def test_max_chroma_against_colour_science_scan():
-    # Independent scan with colour-science's own LCh -> sRGB (colour.LCHab_to_Lab, Lab_to_XYZ,
-    # XYZ_to_sRGB): the largest C on a 0.05 grid whose channels stay in [-tol, 1 + tol]. colour-science
-    # encodes with the 4-digit published inverse matrix (moves channels by < 5e-4), so tolerance 0.3.
+    # Independent dense scan (step 0.05) with colour-science. colour-science encodes with the
+    # 4-digit published inverse matrix (moves channels by < 5e-4), so tolerance 0.3 C*ab.
     rng = np.random.default_rng(60)
     L = rng.uniform(5, 95, 40)
     h = rng.uniform(0, 360, 40)
-    grid = np.arange(0, 200, 0.05)
-    lch = np.stack(np.broadcast_arrays(L[:, None], grid[None, :], h[:, None]), axis=-1)
-    rgb = colour.XYZ_to_sRGB(colour.Lab_to_XYZ(colour.LCHab_to_Lab(lch)))
-    ok = np.all((rgb >= -GAMUT_TOLERANCE) & (rgb <= 1 + GAMUT_TOLERANCE), axis=-1)
-    first_bad = np.argmin(ok, axis=1)  # chroma is an interval [0, Cmax] along each (L, h)
-    ref = grid[first_bad - 1]
+    np.testing.assert_allclose(max_chroma(L, h), _scan_last_inside(L, h), rtol=0, atol=0.3)
+
+
+def test_max_chroma_where_the_chroma_line_leaves_and_reenters_the_gamut():
+    # CALC (dense scan, found while writing these tests): near the yellow corner a line of constant
+    # L*, h leaves the cube and comes back, e.g. L* 96, h 102 is inside for C <= 40.6 and again for
+    # 89.1 <= C <= 95.7. The largest displayable chroma is the far edge. A bisection over [0, C] used
+    # to return the near edge (40.6), taking 55 units of chroma too many off bright yellows.
+    L = np.array([95.0, 96.0, 97.0, 97.0])
+    h = np.array([101.0, 102.0, 103.0, 104.0])
+    ref = _scan_last_inside(L, h)
+    np.testing.assert_allclose(ref, [94.6, 95.7, 96.8, 92.1], rtol=0, atol=0.1)
     np.testing.assert_allclose(max_chroma(L, h), ref, rtol=0, atol=0.3)
+    out, removed = map_to_gamut(np.stack([L, np.full(4, 100.0), h], axis=-1))
+    np.testing.assert_allclose(out[:, 1], ref, rtol=0, atol=0.3)
+    assert np.all(lch_in_gamut(out))
+    # The yellow corner itself (L* 97.14, h 102.85, C 96.92) lies on such a far edge.
+    y = srgb_to_lch(np.array([1.0, 1.0, 0.0]))
+    assert max_chroma(y[0], y[2]) == pytest.approx(y[1], abs=0.1)
 
 
 def test_max_chroma_ends_of_lightness():

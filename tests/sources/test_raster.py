@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyproj
+import rasterio
 import pytest
 from affine import Affine
 from rasterio.transform import from_origin
@@ -330,3 +331,29 @@ def test_cell_size_projected_units():
     # (NIST, the US survey foot definition of 1893).
     dx, dy = cell_size_metres("EPSG:2263", from_origin(0, 0, 10, 10), 10)
     assert dx == pytest.approx(10 * 1200 / 3937, rel=1e-9) and dy == pytest.approx(10 * 1200 / 3937, rel=1e-9)
+
+
+def test_aligned_grid_fast_path_equals_warp(tmp_path):
+    """A canvas on the source's own grid is read directly; it must equal GDAL's nearest warp."""
+    from affine import Affine as _Affine
+    from rasterio.vrt import WarpedVRT as _VRT
+    from rasterio.enums import Resampling as _R
+    from tests.sources._files import write_raster as _write
+
+    rng = np.random.default_rng(11)
+    data = rng.normal(size=(40, 50)).astype("float32")
+    data[5, 7] = -9999
+    src_t = _Affine(30, 0, 500000, 0, -30, 4100000)
+    path = _write(tmp_path / "a.tif", data, crs="EPSG:32630", transform=src_t, nodata=-9999)
+    # a grid offset by whole pixels and reaching outside the source on two sides
+    t = _Affine(30, 0, 500000 - 3 * 30, 0, -30, 4100000 + 2 * 30)
+    with RasterSource(path, layer="x") as src:
+        assert src._aligned_offset(src.crs, t) == (-2, -3)
+        fast = src.read("EPSG:32630", t, 45, 30, "bilinear")
+    with rasterio.open(path) as ds, _VRT(ds, crs="EPSG:32630", transform=t, width=45, height=30,
+                                          resampling=_R.nearest, nodata=np.nan, dtype="float32",
+                                          src_nodata=-9999) as vrt:
+        ref = vrt.read(1)
+    np.testing.assert_array_equal(np.isnan(fast), np.isnan(ref))
+    np.testing.assert_array_equal(fast[~np.isnan(fast)], ref[~np.isnan(ref)])
+    assert np.isnan(fast[2 + 5, 3 + 7])

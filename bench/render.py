@@ -1,0 +1,185 @@
+"""Benchmark: a synthetic N x N render (relief + field + ~10,000 lines) against the numpy floor.
+
+    python bench/render.py [--size 8192] [--lines 10000] [--repeat 1]
+
+Prints, from the same run:
+  * the numpy floor for the same pixel count: a lookup-table gather (uint16 index -> 3 float32
+    planes) plus one composite pass, done in strips;
+  * the render's compute time (read, shade, colour, composite, draw, measure) and the encode
+    time (PNG + GeoTIFF), the whole render, the ratio compute / floor;
+  * the cost of the hierarchy statistics (render with and without measuring);
+  * peak memory (max RSS) against the canvas size x 16 bytes.
+No assertion is made: the figures are for the closing notes and for regressions by eye.
+"""
+from __future__ import annotations
+
+import argparse
+import os
+import resource
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+
+
+def make_data(folder: Path, size: int, n_lines: int) -> None:
+    """Synthetic DEM, field and lines on an EPSG:32630 grid of size x size 30 m pixels."""
+    import fiona
+    import rasterio
+    from affine import Affine
+
+    folder.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(7)
+    transform = Affine(30, 0, 400000, 0, -30, 4600000)
+    profile = dict(driver="GTiff", width=size, height=size, count=1, dtype="float32",
+                   crs="EPSG:32630", transform=transform, tiled=True, blockxsize=512,
+                   blockysize=512, compress="deflate", predictor=3, num_threads="all_cpus")
+    y, x = np.mgrid[0:256, 0:256] / 256.0
+    base = (np.sin(x * 9) * np.cos(y * 7) * 400 + rng.normal(0, 30, (256, 256))).astype("float32")
+    with rasterio.open(folder / "dem.tif", "w", **profile, nodata=-9999) as dem, \
+            rasterio.open(folder / "field.tif", "w", **profile, nodata=np.nan) as field:
+        reps = (size + 255) // 256
+        for r0 in range(0, size, 512):
+            h = min(512, size - r0)
+            tile = np.tile(base, (3, reps))[r0 % 256:r0 % 256 + h, :size] + 800
+            dem.write(tile, 1, window=rasterio.windows.Window(0, r0, size, h))
+            field.write(((tile - 300) / 100).astype("float32"), 1,
+                        window=rasterio.windows.Window(0, r0, size, h))
+    schema = {"geometry": "LineString", "properties": {"kind": "str"}}
+    span = size * 30
+    with fiona.open(folder / "lines.gpkg", "w", driver="GPKG", layer="lines", crs="EPSG:32630",
+                    schema=schema) as dst:
+        starts = rng.uniform(0, span, (n_lines, 2))
+        steps = rng.normal(0, 300, (n_lines, 100, 2)).cumsum(axis=1)
+        for i in range(n_lines):
+            pts = starts[i] + steps[i]
+            pts[:, 0] += 400000
+            pts[:, 1] = 4600000 - pts[:, 1]
+            dst.write({"geometry": {"type": "LineString", "coordinates": pts.tolist()},
+                       "properties": {"kind": "road"}})
+
+
+STYLE = """
+[map]
+name = "bench"
+title = "benchmark"
+crs = "EPSG:32630"
+extent = [400000, {south}, {east}, 4600000]
+pixel = 30
+dpi = 150
+
+[ramp.bench]
+kind = "sequential"
+domain = [0, 12]
+through = [{{L = 92, C = 10, h = 95}}, {{L = 55, C = 40, h = 140}}, {{L = 25, C = 20, h = 160}}]
+
+[[layer]]
+name = "relief"
+role = "ground"
+kind = "relief"
+source = "dem.tif"
+
+[[layer]]
+name = "field"
+role = "theme"
+kind = "field"
+source = "field.tif"
+ramp = "bench"
+blend = "multiply"
+
+[[layer]]
+name = "lines"
+role = "overlay"
+kind = "lines"
+source = "lines.gpkg"
+stroke = "#3a3a3a"
+width = 0.6
+"""
+
+
+def floor_seconds(size: int) -> float:
+    """LUT gather + one composite pass over size x size pixels, in strips of 256 rows."""
+    rng = np.random.default_rng(1)
+    table = rng.random((3, 1027), dtype=np.float32)
+    strip = 256
+    index = rng.integers(0, 1024, (strip, size)).astype(np.uint16)
+    alpha = rng.random((strip, size), dtype=np.float32)
+    back = rng.random((3, strip, size), dtype=np.float32)
+    src = np.empty_like(back)
+    t0 = time.perf_counter()
+    for _ in range(0, size, strip):
+        for c in range(3):
+            np.take(table[c], index, out=src[c])
+        src -= back          # out = back + alpha * (src - back)
+        src *= alpha
+        back += src
+    return time.perf_counter() - t0
+
+
+def render_once(folder: Path, out: Path, measure: bool) -> dict:
+    from compose.engine import prepare, run
+    from compose.render import render_style
+    from compose.style import load_style
+
+    style = load_style(folder / "style.toml")
+    if not measure:
+        t0 = time.perf_counter()
+        r = prepare(style)
+        try:
+            run(r, [], measure=False)
+        finally:
+            r.close()
+        return {"compute": time.perf_counter() - t0}
+    t0 = time.perf_counter()
+    res = render_style(style, out, overwrite=True, legend=False, check=True)
+    total = time.perf_counter() - t0
+    return {"total": total, **res.seconds}
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--size", type=int, default=8192)
+    ap.add_argument("--lines", type=int, default=10000)
+    ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
+    ap.add_argument("--keep", action="store_true", help="keep the synthetic data for the next run")
+    args = ap.parse_args()
+    folder = args.data / f"{args.size}-{args.lines}"
+    if not (folder / "lines.gpkg").exists():
+        print(f"making synthetic data in {folder} ...", flush=True)
+        subprocess.run([sys.executable, __file__, "--make", str(folder), str(args.size), str(args.lines)],
+                       check=True)
+    span = args.size * 30
+    (folder / "style.toml").write_text(STYLE.format(south=4600000 - span, east=400000 + span))
+    mpx = args.size * args.size / 1e6
+    floor = floor_seconds(args.size)
+    out = folder / "out"
+    plain = render_once(folder, out, measure=False)["compute"]
+    full = render_once(folder, out, measure=True)
+    compute = full["compute"] + full["prepare"]
+    encode = full["encode"] + full.get("finish-encode", 0.0)
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    canvas_bytes = args.size * args.size * 16
+    print(f"canvas                 {args.size} x {args.size} ({mpx:.0f} Mpixel), {args.lines} lines")
+    print(f"numpy floor            {floor:6.2f} s  (LUT gather + one composite pass)")
+    print(f"compute, no measuring  {plain:6.2f} s  ({plain / floor:.1f} x floor)")
+    print(f"compute with measuring {compute:6.2f} s  ({compute / floor:.1f} x floor; target <= 3 x)")
+    print(f"check overhead         {100 * (compute - plain) / plain:6.1f} %  (target <= 10-15 %)")
+    print(f"encode (PNG + GeoTIFF) {encode:6.2f} s")
+    print(f"whole render           {full['total']:6.2f} s")
+    print(f"peak memory            {peak / 1e9:6.2f} GB  (canvas x 16 bytes = {canvas_bytes / 1e9:.2f} GB)")
+    if not args.keep:
+        shutil.rmtree(out, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    if len(sys.argv) == 5 and sys.argv[1] == "--make":
+        make_data(Path(sys.argv[2]), int(sys.argv[3]), int(sys.argv[4]))
+    else:
+        os.environ.setdefault("GDAL_CACHEMAX", "256")
+        main()

@@ -1,0 +1,184 @@
+"""Rules of the visual hierarchy by role: the ground stays light and muted, the themes keep the
+saturation the ground leaves free, and no theme exceeds its chroma budget.
+
+All numbers are CIELAB (D65) of the layers' own 8-bit colours, weighted by the pixels they cover
+(:meth:`compose.check.stats.LayerStats.lightness_chroma`); a theme's no-data colour is left out.
+Budgets are ``[budget.ground]`` and ``[budget.theme]`` of docs/style.md (common practice, no
+source).
+"""
+from __future__ import annotations
+
+import math
+
+from compose.check.context import CheckContext, layer_key
+from compose.check.fixes import hex8, solve_relief_chroma, solve_relief_lightness
+from compose.check.report import Change, RuleResult
+from compose.color.parse import to_rgb8
+from compose.color.lab import srgb_to_lch
+
+__all__ = ["ground_lightness", "ground_chroma", "reserved_saturation", "theme_chroma",
+           "theme_chroma_min"]
+
+
+def _nan(v) -> bool:
+    return v is None or (isinstance(v, float) and math.isnan(v))
+
+
+def _relief_weights(spec, s):
+    part = s.parts.get("shade")
+    return None if (spec.kind != "relief" or part is None) else part.weights
+
+
+def _chroma_fix(spec, s, target: float, what: str) -> tuple[str, Change | None]:
+    """Fix for a ground whose C* p95 must come down to ``target``."""
+    weights = _relief_weights(spec, s)
+    if weights is not None:
+        sol = solve_relief_chroma(spec.options, weights, target)
+        if sol is not None:
+            c_now = float(srgb_to_lch(spec.options.tint)[1])
+            c_new = float(srgb_to_lch(sol["tint"])[1])
+            values = {"tint": hex8(to_rgb8(sol["tint"]))}
+            text = (f'lower the {spec.name} tint chroma from {c_now:.1f} to <= {c_new:.1f}: '
+                    f'tint = "{values["tint"]}"')
+            if sol["shadow"] is not None:
+                values["shadow"] = hex8(to_rgb8(sol["shadow"]))
+                text += f', shadow = "{values["shadow"]}"'
+            return text + f" ({what} p95 becomes {sol['c95']:.1f})", Change(layer_key(spec.name), values)
+    _, (_, _, c95) = s.lightness_chroma()
+    k = target / c95 if c95 > 0 else 0.0
+    return (f"scale the chroma of the {spec.name} colours by <= {math.floor(k * 100) / 100:.2f} "
+            f"(C* p95 {c95:.1f} -> <= {target:.1f})", None)
+
+
+def ground_lightness(ctx: CheckContext) -> list[RuleResult]:
+    """Ground L* p5 and p95 inside ``budget.ground.lightness`` (default 55-98)."""
+    lo, hi = (float(v) for v in ctx.budgets.ground.lightness)
+    out = []
+    for spec, s in ctx.layers("ground"):
+        (p5, _, p95), _ = s.lightness_chroma()
+        if _nan(p5):
+            out.append(RuleResult("ground-lightness", spec.name, None, [lo, hi], True,
+                                  "nothing drawn; not measured"))
+            continue
+        passed = p5 >= lo and p95 <= hi
+        msg = f"L* p5 {p5:.1f}, p95 {p95:.1f}; budget {lo:g} to {hi:g}"
+        fix, change = "", None
+        weights = _relief_weights(spec, s)
+        if not passed and weights is not None:
+            sol = solve_relief_lightness(spec.options, weights, lo, hi)
+            if sol is not None and sol["strength"] is not None:
+                fix = (f"lower the {spec.name} strength from {spec.options.strength:g} to <= "
+                       f"{sol['strength']:.2f} (L* p5 becomes {sol['p5']:.1f})")
+                change = Change(layer_key(spec.name), {"strength": sol["strength"]})
+            elif sol is not None:
+                tint = hex8(to_rgb8(sol["tint"]))
+                verb = "lower" if p95 > hi else "raise"
+                fix = (f'{verb} the {spec.name} tint lightness to L* {srgb_to_lch(sol["tint"])[0]:.1f}: '
+                       f'tint = "{tint}" (L* p5..p95 becomes {sol["p5"]:.1f}..{sol["p95"]:.1f})')
+                change = Change(layer_key(spec.name), {"tint": tint})
+            else:
+                fix = "no tint lightness or strength brings both ends inside; widen the budget"
+        elif not passed:
+            fix = (f"bring the {spec.name} colours inside L* {lo:g}..{hi:g} "
+                   f"(now {p5:.1f}..{p95:.1f})")
+        out.append(RuleResult("ground-lightness", spec.name, [p5, p95], [lo, hi], passed, msg, fix,
+                              change=change))
+    return out
+
+
+def ground_chroma(ctx: CheckContext) -> list[RuleResult]:
+    """Ground C*ab p95 <= ``budget.ground.chroma[1]`` (default 12)."""
+    limit = float(ctx.budgets.ground.chroma[1])
+    out = []
+    for spec, s in ctx.layers("ground"):
+        _, (_, _, c95) = s.lightness_chroma()
+        if _nan(c95):
+            out.append(RuleResult("ground-chroma", spec.name, None, limit, True,
+                                  "nothing drawn; not measured"))
+            continue
+        passed = c95 <= limit
+        fix, change = ("", None) if passed else _chroma_fix(spec, s, limit - 0.2, "C*")
+        out.append(RuleResult("ground-chroma", spec.name, c95, limit, passed,
+                              f"C* p95 {c95:.1f}; budget <= {limit:g}", fix, change=change))
+    return out
+
+
+def _theme_p50(ctx: CheckContext) -> list[tuple[str, float]]:
+    out = []
+    for spec, s in ctx.layers("theme"):
+        _, (_, c50, _) = s.lightness_chroma(data_only=True)
+        if not _nan(c50):
+            out.append((spec.name, c50))
+    return out
+
+
+def reserved_saturation(ctx: CheckContext) -> list[RuleResult]:
+    """Ground C* p95 + ``budget.theme.margin`` <= the smallest theme C* p50: saturation is kept
+    for the data (common practice, no source)."""
+    themes = _theme_p50(ctx)
+    if not themes:
+        return []
+    margin = float(ctx.budgets.theme.margin)
+    name, floor = min(themes, key=lambda t: t[1])
+    out = []
+    for spec, s in ctx.layers("ground"):
+        _, (_, _, c95) = s.lightness_chroma()
+        if _nan(c95):
+            continue
+        value = c95 + margin
+        passed = value <= floor
+        msg = (f"ground C* p95 {c95:.1f} + margin {margin:g} = {value:.1f}; the least saturated "
+               f'theme "{name}" has C* p50 {floor:.1f}')
+        fix, change = "", None
+        if not passed:
+            target = floor - margin
+            if target > 0:
+                fix, change = _chroma_fix(spec, s, target - 0.2, "C*")
+                fix += f'; or raise the chroma of "{name}" to C* p50 >= {value:.1f}'
+            else:
+                fix = f'raise the chroma of "{name}" to C* p50 >= {value:.1f}'
+        out.append(RuleResult("reserved-saturation", spec.name, value, floor, passed, msg, fix,
+                              change=change))
+    return out
+
+
+def _ramp_hint(ctx: CheckContext, spec) -> str:
+    ramp = ctx.ramp_of(spec)
+    return f'ramp "{ramp.name}"' if ramp is not None else f"the {spec.name} colours"
+
+
+def theme_chroma(ctx: CheckContext) -> list[RuleResult]:
+    """Theme C*ab p95 <= ``budget.theme.chroma[1]`` (default 130)."""
+    limit = float(ctx.budgets.theme.chroma[1])
+    out = []
+    for spec, s in ctx.layers("theme"):
+        _, (_, _, c95) = s.lightness_chroma(data_only=True)
+        if _nan(c95):
+            continue
+        passed = c95 <= limit
+        fix = "" if passed else (f"scale the chroma of {_ramp_hint(ctx, spec)} by <= "
+                                 f"{math.floor(limit / c95 * 100) / 100:.2f} (C* p95 {c95:.1f} -> "
+                                 f"<= {limit:g})")
+        out.append(RuleResult("theme-chroma", spec.name, c95, limit, passed,
+                              f"C* p95 {c95:.1f}; budget <= {limit:g}", fix))
+    return out
+
+
+def theme_chroma_min(ctx: CheckContext) -> list[RuleResult]:
+    """Theme C*ab p50 >= ``budget.theme.chroma[0]``, only when the style states that key."""
+    tb = ctx.budgets.theme
+    if not getattr(tb, "chroma_min_stated", False):
+        return []
+    limit = float(tb.chroma[0])
+    out = []
+    for spec, s in ctx.layers("theme"):
+        _, (_, c50, _) = s.lightness_chroma(data_only=True)
+        if _nan(c50):
+            continue
+        passed = c50 >= limit
+        fix = "" if passed else (f"raise the chroma of {_ramp_hint(ctx, spec)} by >= "
+                                 f"{math.ceil(limit / max(c50, 1e-6) * 100) / 100:.2f}x "
+                                 f"(C* p50 {c50:.1f} -> >= {limit:g})")
+        out.append(RuleResult("theme-chroma-min", spec.name, c50, limit, passed,
+                              f"C* p50 {c50:.1f}; budget >= {limit:g} (stated)", fix))
+    return out
