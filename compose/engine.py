@@ -17,13 +17,14 @@ import numpy as np
 from compose.canvas import Canvas, Window
 from compose.check.stats import (N_BENEATH, N_CONTRAST, N_LIGHTNESS, LayerStats, PartStats,
                                  Statistics, beneath_color_codes, contrast_bins, lightness_of_rgb8,
-                                 luminance_of_planes)
+                                 luminance_of_rgb8)
 from compose.color.wcag import relative_luminance
 from compose.composite import composite_over
 from compose.layers import layer_class
 from compose.layers.base import Context, Paint
 
-__all__ = ["Sink", "RenderRun", "prepare", "run", "WINDOW"]
+__all__ = ["Sink", "RenderRun", "prepare", "run", "render_window", "ArraySink", "preview_canvas",
+           "render_array", "WINDOW"]
 
 WINDOW = 1024  # core pixels per window side
 
@@ -54,12 +55,16 @@ class RenderRun:
         self.stack.close()
 
 
-def prepare(style, ramps: dict | None = None) -> RenderRun:
-    """Resolve the canvas, build ramps and open every enabled layer's sources."""
+def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None) -> RenderRun:
+    """Resolve the canvas, build ramps and open every enabled layer's sources.
+
+    ``canvas`` overrides the style's own (e.g. a small preview of the same extent, see
+    :func:`preview_canvas`).
+    """
     from compose.ramps import build_ramps
 
     t0 = time.perf_counter()
-    canvas = style.canvas()
+    canvas = canvas if canvas is not None else style.canvas()
     if ramps is None:
         ramps = build_ramps(style.ramps)
     ctx = Context(canvas=canvas, ramps=ramps, style=style)
@@ -94,9 +99,58 @@ def _new_stats(run_: RenderRun) -> Statistics:
     return Statistics(width=run_.canvas.width, height=run_.canvas.height, layers=layers, background=bg)
 
 
-def _measure_part(stats: LayerStats, paint: Paint, alpha_core: np.ndarray, beneath_core: np.ndarray,
-                  ground_core: np.ndarray | None, overlay: bool, inner) -> None:
-    """Add one paint of one window (core region) to the layer's statistics."""
+def _planes8(planes: np.ndarray) -> np.ndarray:
+    """Float colour planes (3, h, w) in [0, 1] -> 8-bit planes (3, h, w) uint8."""
+    out = np.empty(planes.shape, dtype=np.uint8)
+    for c in range(3):
+        out[c] = np.rint(np.clip(planes[c], 0, 1) * np.float32(255))
+    return out
+
+
+def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
+    """Flat indices into the padded window of the core pixels a paint covers (alpha > 0).
+
+    Gathering with ``np.take`` on these is 2-4x faster than boolean-mask indexing of the core
+    views (which are not contiguous).
+    """
+    m = alpha > 0
+    rs, cs = inner
+    m[:rs.start] = False
+    m[rs.stop:] = False
+    m[:, :cs.start] = False
+    m[:, cs.stop:] = False
+    return np.flatnonzero(m)
+
+
+def _take8(planes: np.ndarray, idx: np.ndarray) -> np.ndarray:
+    """Pixels ``idx`` (flat) of contiguous float or uint8 planes (3, h, w) -> (n, 3) uint8."""
+    out = np.empty((idx.size, 3), dtype=np.uint8)
+    for c in range(3):
+        v = np.take(planes[c].reshape(-1), idx)
+        if v.dtype != np.uint8:
+            v *= np.float32(255)
+            np.rint(v, out=v)
+            np.clip(v, 0, 255, out=v)
+        out[:, c] = v
+    return out
+
+
+def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> np.ndarray:
+    """Weighted histogram (N_CONTRAST,) of the WCAG contrast of a colour against luminances."""
+    y = y_below.astype(np.float64)
+    ratio = (np.maximum(y, y_part) + 0.05) / (np.minimum(y, y_part) + 0.05)
+    return np.bincount(contrast_bins(ratio), weights=weights, minlength=N_CONTRAST)
+
+
+def _measure_part(stats: LayerStats, paint: Paint, alpha: np.ndarray, beneath: np.ndarray | None,
+                  ground8: np.ndarray | None, overlay: bool, inner) -> None:
+    """Add one paint of one window (core region) to the layer's statistics.
+
+    alpha: the paint's coverage x opacity over the padded window; beneath: the padded composite
+    just before this paint; ground8: 8-bit padded planes of the composite under the whole layer
+    (None for the layer's first paint, where it equals ``beneath``).
+    """
+    alpha_core = alpha[inner]
     if paint.palette is not None:
         idx = paint.index[inner]
         w = np.bincount(idx.ravel(), weights=alpha_core.ravel(), minlength=paint.palette.rgb8.shape[0])
@@ -107,20 +161,18 @@ def _measure_part(stats: LayerStats, paint: Paint, alpha_core: np.ndarray, benea
         rgb8 = np.clip(np.rint(np.asarray(paint.color) * 255), 0, 255).astype(np.uint8)[None, :]
         part = PartStats(paint.part, rgb8, np.array([float(alpha_core.sum())]))
     if overlay and paint.palette is None:
-        mask = alpha_core > 0
-        if mask.any():
-            weights = alpha_core[mask]
+        pix = _core_pixels(alpha, inner)
+        if pix.size:
+            # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
+            weights = np.take(alpha.reshape(-1), pix)
+            below8 = _take8(beneath, pix)
             y_part = float(relative_luminance(np.asarray(paint.color)))
-            y_below = luminance_of_planes(beneath_core[:, mask])
-            lo, hi = np.minimum(y_part, y_below), np.maximum(y_part, y_below)
-            part.contrast = np.bincount(contrast_bins((hi + 0.05) / (lo + 0.05)), weights=weights,
-                                        minlength=N_CONTRAST)
-            if ground_core is not None:
-                y_ground = luminance_of_planes(ground_core[:, mask])
-                lo, hi = np.minimum(y_part, y_ground), np.maximum(y_part, y_ground)
-                part.ground_contrast = np.bincount(contrast_bins((hi + 0.05) / (lo + 0.05)),
-                                                   weights=weights, minlength=N_CONTRAST)
-            below8 = np.clip(np.rint(beneath_core[:, mask].T * 255), 0, 255).astype(np.uint8)
+            part.contrast = _contrast_hist(y_part, luminance_of_rgb8(below8), weights)
+            if ground8 is not None:
+                part.ground_contrast = _contrast_hist(
+                    y_part, luminance_of_rgb8(_take8(ground8, pix)), weights)
+            else:                       # the layer's first part: beneath is the ground
+                part.ground_contrast = part.contrast.copy()
             lb = np.clip(np.rint(lightness_of_rgb8(below8)), 0, 100).astype(np.int64)
             part.beneath_lightness = np.bincount(lb, weights=weights, minlength=N_LIGHTNESS)
             part.beneath_colors = np.bincount(beneath_color_codes(below8), weights=weights,
@@ -131,8 +183,12 @@ def _measure_part(stats: LayerStats, paint: Paint, alpha_core: np.ndarray, benea
         stats.parts[paint.part] = part
 
 
-def render_window(run_: RenderRun, window: Window, stats: Statistics | None) -> np.ndarray:
-    """Render one window; returns its core as uint8 (h, w, 3) and adds to ``stats``."""
+def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
+                  only: frozenset[int] | None = None) -> np.ndarray:
+    """Render one window; returns its core as uint8 (h, w, 3) and adds to ``stats``.
+
+    ``only``: indices of the layers to draw (default all), for per-layer previews.
+    """
     canvas = run_.canvas
     r0, c0, h, w = window.padded
     transform = canvas.window_transform(window)
@@ -142,20 +198,23 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None) -> 
     out[...] = bg
     themes = []
     for li, layer in enumerate(run_.layers):
+        if only is not None and li not in only:
+            continue
         spec = layer.spec
         paints = layer.paint(window, transform, h, w)
         if not paints:
             continue
         overlay = spec.role == "overlay"
-        ground = out[(slice(None),) + inner].copy() if (stats is not None and overlay) else None
+        # the ground under the whole layer, for the parts after the first (8-bit is enough)
+        ground = _planes8(out) if (stats is not None and overlay and len(paints) > 1) else None
         union = None
-        for paint in paints:
+        for pi, paint in enumerate(paints):
             alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)
             if stats is not None:
                 a_core = alpha[inner]
                 union = a_core.copy() if union is None else np.maximum(union, a_core)
-                beneath = out[(slice(None),) + inner] if overlay else None
-                _measure_part(stats.layers[li], paint, a_core, beneath, ground, overlay, inner)
+                _measure_part(stats.layers[li], paint, alpha, out if overlay else None,
+                              ground if pi else None, overlay, inner)
                 if spec.role == "theme" and paint.palette is not None:
                     themes.append((li, paint.index[inner], a_core))
             composite_over(out, paint.planes(), alpha, spec.blend, out=out)
@@ -181,8 +240,12 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None) -> 
 
 
 def run(run_: RenderRun, sinks: list[Sink], *, measure: bool = True, window: int = WINDOW,
-        progress: Callable[[int, int], None] | None = None) -> Statistics | None:
-    """Render every window band by band, feed sinks, return merged statistics."""
+        progress: Callable[[int, int], None] | None = None,
+        only: frozenset[int] | None = None) -> Statistics | None:
+    """Render every window band by band, feed sinks, return merged statistics.
+
+    ``only``: indices into ``run_.layers`` to draw (default all).
+    """
     canvas = run_.canvas
     margin = max([getattr(layer, "margin", 0) for layer in run_.layers] + [0])
     windows = list(canvas.windows(window, margin=margin))
@@ -206,7 +269,7 @@ def run(run_: RenderRun, sinks: list[Sink], *, measure: bool = True, window: int
                 feed(band_row, band)
             band_row = win.row
             band = np.empty((win.height, canvas.width, 3), dtype=np.uint8)
-        band[:, win.col:win.col + win.width] = render_window(run_, win, stats)
+        band[:, win.col:win.col + win.width] = render_window(run_, win, stats, only)
         done += 1
         if progress is not None:
             progress(done, len(windows))
@@ -215,3 +278,36 @@ def run(run_: RenderRun, sinks: list[Sink], *, measure: bool = True, window: int
     run_.seconds["encode"] = encode
     run_.seconds["compute"] = time.perf_counter() - t0 - encode
     return stats
+
+
+class ArraySink:
+    """Collects the whole image in memory (for previews and tests of small canvases)."""
+
+    def __init__(self, canvas: Canvas):
+        self.image = np.zeros((canvas.height, canvas.width, 3), dtype=np.uint8)
+
+    def rows(self, row0: int, rgb8: np.ndarray) -> None:
+        self.image[row0:row0 + rgb8.shape[0]] = rgb8
+
+
+def preview_canvas(canvas: Canvas, max_side: int = 1200) -> Canvas:
+    """The same extent at a coarser pixel so the longer side is at most ``max_side`` pixels;
+    the dpi is scaled with it so strokes and labels keep their size relative to the map."""
+    factor = max(canvas.width, canvas.height) / max_side
+    if factor <= 1:
+        return canvas
+    west, south, east, north = canvas.bounds
+    return Canvas.from_extent(canvas.crs, (west, south, east, north), canvas.pixel * factor,
+                              dpi=canvas.dpi / factor)
+
+
+def render_array(style, *, canvas: Canvas | None = None, only: frozenset[int] | None = None,
+                 measure: bool = False, ramps: dict | None = None):
+    """Render ``style`` (or some of its layers) into memory: (uint8 (H, W, 3), statistics)."""
+    run_ = prepare(style, ramps=ramps, canvas=canvas)
+    try:
+        sink = ArraySink(run_.canvas)
+        stats = run(run_, [sink], measure=measure, only=only)
+        return sink.image, stats
+    finally:
+        run_.close()

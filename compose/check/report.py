@@ -190,7 +190,7 @@ def format_report(report: Report, width: int | None = None) -> str:
     """Readable text: rules (failures, then warnings, then passes), per-layer L*/C*, caution."""
     width = width or max(100, min(160, shutil.get_terminal_size((120, 24)).columns))
     rules = sorted(report.rules, key=_order)
-    fixed = [26, 16, 9, 9, 5]
+    fixed = [26, 16, 11, 11, 5]
     last = max(30, width - sum(fixed) - 2 * len(fixed))
     head = ["rule", "layer", "measured", "limit", "", "message / fix"]
     rows = [head, ["-" * w for w in fixed + [last]]]
@@ -207,11 +207,11 @@ def format_report(report: Report, width: int | None = None) -> str:
     lines.append("")
     lrows = [["layer", "role", "coverage", "L* p5/p50/p95", "C* p5/p50/p95", "beneath L*", "share"]]
     for s in report.layers:
-        trip = lambda t: "/".join(_num(round(v, 1)) if v == v else "n/a" for v in t)  # noqa: E731
+        trip = lambda t: "/".join(f"{v:.1f}" if v == v else "n/a" for v in t)  # noqa: E731
         lrows.append([s.name, s.role, f"{s.coverage:.1%}", trip(s.lightness), trip(s.chroma),
                       trip(s.beneath) if s.beneath else "-",
                       "-" if s.contrast_share is None else f"{s.contrast_share:.1%}"])
-    lines += _table(lrows, [16, 8, 9, 16, 16, 16, 7])
+    lines += _table(lrows, [16, 8, 9, 17, 17, 17, 7])
     lines.append("")
     lines.append(report.caution)
     return "\n".join(lines)

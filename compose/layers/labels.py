@@ -20,7 +20,7 @@ from affine import Affine
 
 from compose.layers.draw import ANCHORS, TextShape, draw_text_shapes, measure_text, to_pixels
 
-__all__ = ["POSITIONS", "PlacedLabel", "Placement", "place_labels", "draw_labels"]
+__all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "place_labels", "draw_labels"]
 
 #: Candidate positions in order of preference: (name, anchor of the text box at the offset
 #: point, (dx, dy) unit offset in pixels with rows running down).
@@ -35,6 +35,16 @@ POSITIONS: tuple[tuple[str, str, tuple[int, int]], ...] = (
     ("below", "top", (0, 1)),
 )
 _CELL = 64.0   # pixels per cell of the collision grid
+
+
+@dataclass(frozen=True, slots=True)
+class LabelItem:
+    """A label to place: point (x, y) in CRS units, its text and priority (larger goes first)."""
+
+    x: float
+    y: float
+    text: str
+    priority: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -62,8 +72,8 @@ class PlacedLabel:
 class Placement:
     """The outcome of :func:`place_labels` and what :func:`draw_labels` needs."""
 
-    placed: tuple[PlacedLabel, ...]
-    not_placed: tuple[tuple, ...]   # the input items, as given, in priority order
+    placed: tuple[PlacedLabel, ...]      # in placement (priority) order
+    unplaced: tuple[LabelItem, ...]      # labels that found no position, in priority order
     transform: Affine
     width: int
     height: int
@@ -93,41 +103,46 @@ class _Grid:
             self.cells.setdefault(key, []).append(box)
 
 
-def _priority(item) -> float:
+def _item(item) -> LabelItem:
+    if isinstance(item, LabelItem):
+        return item
     p = float(item[3]) if len(item) > 3 and item[3] is not None else 0.0
-    return -math.inf if math.isnan(p) else p
+    text = "" if item[2] is None else str(item[2])
+    return LabelItem(float(item[0]), float(item[1]), text, -math.inf if math.isnan(p) else p)
 
 
 def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, height: int,
                  size_px: float, font: str = "DejaVu Sans", weight: str = "normal",
                  halo_px: float = 0.0, offset_px: float = 3.0) -> Placement:
-    """Place point labels ``(x, y, text, priority)`` (CRS coordinates) on the whole canvas.
+    """Place point labels on the whole canvas.
+
+    items: :class:`LabelItem` or tuples ``(x, y, text[, priority])`` in CRS coordinates (a NaN
+    priority goes last).
 
     size_px: font size in pixels; halo_px: total halo width (the box grows by half of it on each
     side); offset_px: distance from the point to the text box. Returns a :class:`Placement`.
     """
-    items = list(items)
-    order = sorted(range(len(items)), key=lambda i: -_priority(items[i]))  # stable for ties
+    items = [_item(it) for it in items]
+    order = sorted(range(len(items)), key=lambda i: -items[i].priority)  # stable for ties
     grid = _Grid()
     grow = max(float(halo_px), 0.0) / 2.0
-    placed, not_placed = [], []
-    xy = to_pixels(np.array([it[:2] for it in items], np.float64).reshape(-1, 2),
+    placed, unplaced = [], []
+    xy = to_pixels(np.array([(it.x, it.y) for it in items], np.float64).reshape(-1, 2),
                    canvas_transform)
     for i in order:
         item = items[i]
-        text = "" if item[2] is None else str(item[2])
         found = None
-        if text.strip():
-            shape = measure_text(text, float(size_px), font, weight)
+        if item.text.strip():
+            shape = measure_text(item.text, float(size_px), font, weight)
             found = _first_fit(shape, xy[i], offset_px, grow, width, height, grid)
         if found is None:
-            not_placed.append(item)
+            unplaced.append(item)
             continue
         position, anchor, col, row, box = found
         grid.add(box)
-        placed.append(PlacedLabel(text, float(item[0]), float(item[1]), _priority(item),
-                                  position, anchor, col, row, box, shape))
-    return Placement(tuple(placed), tuple(not_placed), canvas_transform, int(width), int(height),
+        placed.append(PlacedLabel(item.text, item.x, item.y, item.priority, position, anchor,
+                                  col, row, box, shape))
+    return Placement(tuple(placed), tuple(unplaced), canvas_transform, int(width), int(height),
                      float(halo_px))
 
 

@@ -142,9 +142,14 @@ def _drawn_colors(ramp: Ramp) -> np.ndarray:
 
 
 def _finish(ramp: Ramp, spec: RampSpec) -> Ramp:
-    """Fill in under / over (end colours) and nodata (given, or chosen off the ramp)."""
+    """Fill in under / over (end colours; first / last class of a stepped ramp) and nodata
+    (given, or chosen off the ramp)."""
     if ramp.kind != "qualitative":
-        first, last = _ends(ramp.pieces)
+        if ramp.stepped:   # a classed map continues its first and last classes
+            classes = ramp.class_colors(ramp.class_edges())
+            first, last = tuple(map(float, classes[0])), tuple(map(float, classes[-1]))
+        else:
+            first, last = _ends(ramp.pieces)
         ramp = dataclasses.replace(ramp, under=spec.under or first, over=spec.over or last)
     if spec.nodata is not None:
         return dataclasses.replace(ramp, nodata=spec.nodata, nodata_given=True)

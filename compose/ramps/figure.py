@@ -130,16 +130,17 @@ def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) 
 
     panels = [fig.add_subplot(gs[len(members) + k, 0], sharex=axes[0]) for k in range(3)]
     styles = ["-", "--", ":", "-."]
+    limits = []
     for r, ls in zip(members, styles):
         lch = _profile(r, x, drawn[r.name])
         w = 1.8 if r is ramp else 1.2
         label = r.name if r is ramp else f"{r.name} (same L*, C*)"
         panels[0].plot(x, lch[:, 0], ls, color=INK, lw=w, label=label)
-        panels[1].plot(x, lch[:, 1], ls, color=INK, lw=w, label=label)
-        panels[2].plot(x, _hue_line(lch), ls, color=INK, lw=w, label=label)
-        limit = np.where(lch[:, 1] >= 3, max_chroma(lch[:, 0], lch[:, 2] % 360), np.nan)
-        panels[1].plot(x, limit, ls, color=FAINT, lw=0.9,
-                       label="sRGB limit at this L*, h" + ("" if r is ramp else f" ({r.name})"))
+        panels[1].plot(x, lch[:, 1], ls, color=INK, lw=w)
+        panels[2].plot(x, _hue_line(lch), ls, color=INK, lw=w)
+        limits.append(np.where(lch[:, 1] >= 3, max_chroma(lch[:, 0], np.nan_to_num(lch[:, 2]) % 360), np.nan))
+    text = "sRGB limit at this L*, h" + (" (tightest of the twins)" if len(members) > 1 else "")
+    panels[1].plot(x, np.min(limits, axis=0), color=FAINT, lw=0.9, label=text)
     panels[0].set_ylabel("lightness\nL* (CIELAB)", fontsize=8.5)
     panels[0].set_ylim(0, 100)
     panels[1].set_ylabel("chroma\nC*ab", fontsize=8.5)
@@ -147,9 +148,10 @@ def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) 
     panels[2].set_ylabel("hue h (°)\nwhere C* ≥ 3", fontsize=8.5)
     from matplotlib.ticker import FuncFormatter
     panels[2].yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v % 360:.0f}"))
+    legend = {"fontsize": 7, "frameon": True, "framealpha": 0.9, "edgecolor": "none", "loc": "upper right"}
     if len(members) > 1:
-        panels[0].legend(fontsize=7, frameon=False, loc="best")
-    panels[1].legend(fontsize=7, frameon=False, loc="best")
+        panels[0].legend(ncol=len(members), **legend)
+    panels[1].legend(**legend)
     for p in panels:
         p.grid(True, color="#e4e4e4", lw=0.6)
         p.tick_params(labelsize=7.5, labelbottom=False)

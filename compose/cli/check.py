@@ -1,0 +1,51 @@
+"""``compose check STYLE [--json]``: render in memory (nothing written) and judge the hierarchy.
+
+Exit status: 0 when every rule passes (warnings allowed), 1 when any rule fails, 2 on invalid
+input (a one-line error, see :func:`compose.cli.main.handle_errors`).
+"""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import click
+
+from compose.cli.main import handle_errors
+
+__all__ = ["command", "check_report"]
+
+
+def check_report(style_path: Path, progress=None):
+    """Load, render in memory without sinks, and check the style at ``style_path`` -> Report."""
+    from compose.check import check_style
+    from compose.engine import prepare, run
+    from compose.style import load_style
+
+    style = load_style(style_path)
+    run_ = prepare(style)
+    try:
+        stats = run(run_, [], progress=progress)
+        return check_style(style, stats, run_.ramps)
+    finally:
+        run_.close()
+
+
+@click.command("check")
+@click.argument("style", type=click.Path(path_type=Path))
+@click.option("--json", "as_json", is_flag=True,
+              help="Print the report as JSON (the same object render writes as NAME.check.json).")
+@handle_errors
+def command(style: Path, as_json: bool) -> None:
+    """Check the visual hierarchy of STYLE: budgets, contrast, ramps, classes, grey order.
+
+    Exits 0 when every rule passes, 1 when any fails, 2 when the style is invalid.
+    """
+    from compose.check import format_report
+    from compose.cli.render import progress_bar
+
+    report = check_report(style, progress=progress_bar("checking"))
+    if as_json:
+        click.echo(json.dumps(report.to_json(), indent=2))
+    else:
+        click.echo(format_report(report))
+    raise SystemExit(0 if report.passed else 1)
