@@ -16,8 +16,8 @@ import numpy as np
 
 from compose.canvas import Canvas, Window
 from compose.check.stats import (N_BENEATH, N_CONTRAST, N_LIGHTNESS, LayerStats, PartStats,
-                                 Statistics, beneath_color_codes, contrast_bins, lightness_of_rgb8,
-                                 luminance_of_rgb8)
+                                 Statistics, beneath_color_codes, contrast_bins,
+                                 lightness_bins_of_rgb8, luminance_of_rgb8)
 from compose.color.wcag import relative_luminance
 from compose.composite import composite_over
 from compose.layers import layer_class
@@ -152,8 +152,12 @@ def _measure_part(stats: LayerStats, paint: Paint, alpha: np.ndarray, beneath: n
     """
     alpha_core = alpha[inner]
     if paint.palette is not None:
-        idx = paint.index[inner]
-        w = np.bincount(idx.ravel(), weights=alpha_core.ravel(), minlength=paint.palette.rgb8.shape[0])
+        idx = paint.index[inner].ravel()
+        n = paint.palette.rgb8.shape[0]
+        if alpha_core.min() >= 1.0:     # opaque: an unweighted count is ~3x faster
+            w = np.bincount(idx, minlength=n)
+        else:
+            w = np.bincount(idx, weights=alpha_core.ravel(), minlength=n)
         part = PartStats(paint.part, paint.palette.rgb8, w.astype(float))
         if paint.palette.nodata >= 0:
             stats.nodata_weight += float(w[paint.palette.nodata])
@@ -173,7 +177,7 @@ def _measure_part(stats: LayerStats, paint: Paint, alpha: np.ndarray, beneath: n
                     y_part, luminance_of_rgb8(_take8(ground8, pix)), weights)
             else:                       # the layer's first part: beneath is the ground
                 part.ground_contrast = part.contrast.copy()
-            lb = np.clip(np.rint(lightness_of_rgb8(below8)), 0, 100).astype(np.int64)
+            lb = lightness_bins_of_rgb8(below8)
             part.beneath_lightness = np.bincount(lb, weights=weights, minlength=N_LIGHTNESS)
             part.beneath_colors = np.bincount(beneath_color_codes(below8), weights=weights,
                                               minlength=N_BENEATH)
@@ -226,7 +230,7 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
         np.rint(np.clip(core[c], 0, 1) * 255, out=core[c])
         rgb8[..., c] = core[c]
     if stats is not None:
-        lightness = np.clip(np.rint(lightness_of_rgb8(rgb8.reshape(-1, 3))), 0, 100).astype(np.int64)
+        lightness = lightness_bins_of_rgb8(rgb8.reshape(-1, 3))
         stats.composite_lightness += np.bincount(lightness, minlength=N_LIGHTNESS)
         for li, index, a_core in themes:
             s = stats.layers[li]
@@ -234,7 +238,10 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
                 continue
             keep = (a_core.ravel() > 0.5)
             n = s.value_lightness.shape[0]
-            cell = index.ravel()[keep].astype(np.int64) * N_LIGHTNESS + lightness[keep]
+            if keep.all():
+                cell = index.ravel().astype(np.int64) * N_LIGHTNESS + lightness
+            else:
+                cell = index.ravel()[keep].astype(np.int64) * N_LIGHTNESS + lightness[keep]
             s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS).reshape(n, N_LIGHTNESS)
     return rgb8
 

@@ -19,7 +19,8 @@ from compose.color.wcag import WCAG_Y
 
 __all__ = ["CONTRAST_STEP", "N_CONTRAST", "N_LIGHTNESS", "BENEATH_BITS", "N_BENEATH", "PartStats",
            "LayerStats", "Statistics", "weighted_percentiles", "spearman_from_table",
-           "lightness_of_rgb8", "luminance_of_planes", "luminance_of_rgb8", "contrast_bins",
+           "lightness_of_rgb8", "lightness_bins_of_rgb8", "luminance_of_planes", "luminance_of_rgb8",
+           "contrast_bins",
            "contrast_share", "beneath_color_codes", "beneath_color_centres", "histogram_percentiles"]
 
 CONTRAST_STEP = 0.01
@@ -45,6 +46,25 @@ def luminance_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
     """WCAG relative luminance (= CIE Y, white 1) of 8-bit sRGB pixels (n, 3) by lookup tables."""
     return (np.take(_TABLES[1, 0], rgb8[:, 0]) + np.take(_TABLES[1, 1], rgb8[:, 1])
             + np.take(_TABLES[1, 2], rgb8[:, 2]))
+
+
+_Y_LEVELS = 1 << 16
+# rounded CIELAB L* (0..100) of luminance Y = i / 65535; one step of Y moves L* by <= 0.014
+_L_BIN = np.clip(np.rint(116 * np.where(np.arange(_Y_LEVELS) / (_Y_LEVELS - 1) > (6 / 29) ** 3,
+                                         np.cbrt(np.arange(_Y_LEVELS) / (_Y_LEVELS - 1)),
+                                         np.arange(_Y_LEVELS) / (_Y_LEVELS - 1) / (3 * (6 / 29) ** 2)
+                                         + 4 / 29) - 16), 0, 100).astype(np.uint8)
+
+
+def lightness_bins_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
+    """Rounded CIELAB L* (uint8, 0..100) of 8-bit sRGB pixels (n, 3): Y by lookup tables, then a
+    65536-entry Y -> L* table (equal to rint(L*) except within ~0.01 of a half-integer)."""
+    y = luminance_of_rgb8(rgb8)
+    y *= np.float32(_Y_LEVELS - 1)
+    y += np.float32(0.5)
+    idx = y.astype(np.int32)
+    np.minimum(idx, _Y_LEVELS - 1, out=idx)
+    return np.take(_L_BIN, idx)
 
 
 def contrast_share(hist: np.ndarray | None, limit: float) -> float:

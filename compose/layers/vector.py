@@ -3,6 +3,7 @@ by matplotlib's Agg renderer at exact pixel geometry (see :mod:`compose.layers.d
 from __future__ import annotations
 
 import numpy as np
+import shapely
 
 from compose.layers.base import Context, Paint
 from compose.layers.draw import draw_areas, draw_lines, draw_points
@@ -27,15 +28,25 @@ class _VectorLayer:
         self.canvas = context.canvas
         self.source = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.where)
         self.source.check_overlap(self.canvas)
-        self.features = self.source.load(self.canvas.crs)
         self.px = self.canvas.points_to_pixels
         self.margin = int(np.ceil(self._reach_px())) + 2
+        # cut once to the canvas (grown by the margin); per window only select, so dashes keep
+        # their phase across windows (Agg restarts a dash pattern where a clipped line re-enters)
+        west, south, east, north = self.canvas.bounds
+        pad = (self.margin + 2) * self.canvas.pixel
+        self.features = self.source.load(self.canvas.crs).in_box(
+            (west - pad, south - pad, east + pad, north + pad))
 
     def _reach_px(self) -> float:
         return 0.0
 
     def _features(self, transform, height, width):
-        return self.features.in_box(_window_box(transform, height, width, self.margin))
+        box = _window_box(transform, height, width, self.margin)
+        if getattr(self.options, "dash", None):
+            feats = self.features
+            hits = np.sort(feats.tree.query(shapely.box(*box), predicate="intersects"))
+            return type(feats).build(feats.geometries[hits], [feats.properties[i] for i in hits])
+        return self.features.in_box(box)
 
     def close(self) -> None:
         pass
@@ -84,17 +95,18 @@ class AreasLayer(_VectorLayer):
         paints = []
         if len(feats.geometries) == 0:
             return paints
-        fill_cov, _ = draw_areas(feats.geometries, transform, width, height, fill=o.fill is not None,
-                                 stroke_width_px=0.0)
         if o.fill is not None:
+            fill_cov, _ = draw_areas(feats.geometries, transform, width, height, fill=True,
+                                     stroke_width_px=0.0)
             paints.append(Paint("fill", fill_cov, color=o.fill))
         if o.stroke is not None and o.width > 0:
             if o.halo is not None:
                 _, halo_cov = draw_areas(feats.geometries, transform, width, height, fill=False,
                                          stroke_width_px=self.px(o.halo.width))
                 paints.append(Paint("halo", halo_cov, color=o.halo.color))
+            dash = None if not getattr(o, "dash", None) else [self.px(d) for d in o.dash]
             _, line_cov = draw_areas(feats.geometries, transform, width, height, fill=False,
-                                     stroke_width_px=self.px(o.width))
+                                     stroke_width_px=self.px(o.width), dash_px=dash)
             paints.append(Paint("stroke", line_cov, color=o.stroke))
         return paints
 

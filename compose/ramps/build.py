@@ -31,7 +31,7 @@ from compose.color.parse import to_rgb8
 from compose.errors import StyleError
 from compose.ramps.curve import DENSE, arc_fraction, dense_curve, resample
 from compose.ramps.model import Piece, Ramp
-from compose.ramps.spec import RampSpec, closest, parse_ramp
+from compose.ramps.spec import RampSpec, parse_ramp
 
 __all__ = ["NODATA_CANDIDATES", "NODATA_SEPARATION", "build_ramps", "build_ramp", "choose_nodata"]
 

@@ -148,7 +148,7 @@ def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) 
     panels[2].set_ylabel("hue h (°)\nwhere C* ≥ 3", fontsize=8.5)
     from matplotlib.ticker import FuncFormatter
     panels[2].yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v % 360:.0f}"))
-    legend = {"fontsize": 7, "frameon": True, "framealpha": 0.9, "edgecolor": "none", "loc": "upper right"}
+    legend = {"fontsize": 7, "frameon": True, "framealpha": 0.9, "edgecolor": "none", "loc": "best"}
     if len(members) > 1:
         panels[0].legend(ncol=len(members), **legend)
     panels[1].legend(**legend)

@@ -177,7 +177,7 @@ def ramp_metrics(ramp: Ramp) -> RampMetrics:
     if ramp.kind == "qualitative":
         rgb8 = to_rgb8(np.array([c.rgb for c in ramp.classes]))
         drawn = rgb8
-        m.update(_class_metrics(rgb8, pairs=True))
+        m.update(_class_metrics(rgb8))
         fams: dict = {}
         for c, code in zip(ramp.classes, rgb8):
             if c.family:
@@ -190,7 +190,7 @@ def ramp_metrics(ramp: Ramp) -> RampMetrics:
         if ramp.stepped:
             lut = lut_for(ramp)
             classes = lut.rgb8[:lut.n]
-            m.update(_class_metrics(classes, pairs=True))
+            m.update(_class_metrics(classes))
             m["class_count"] = lut.n
             m["grayscale_rho"] = spearman(np.arange(lut.n), lut.lab[:lut.n, 0])
             drawn = np.concatenate([drawn, classes])
@@ -210,10 +210,10 @@ def ramp_metrics(ramp: Ramp) -> RampMetrics:
     return RampMetrics(**m)
 
 
-def _class_metrics(rgb8: np.ndarray, pairs: bool) -> dict:
+def _class_metrics(rgb8: np.ndarray) -> dict:
     labs = vision_lab(rgb8)
     return {"min_step_de00": {v: _min_adjacent(lab) for v, lab in labs.items()},
-            "min_pair_de00": {v: _min_pairs(lab) for v, lab in labs.items()} if pairs else None}
+            "min_pair_de00": {v: _min_pairs(lab) for v, lab in labs.items()}}
 
 
 def _continuous(ramp: Ramp, m: dict) -> np.ndarray:

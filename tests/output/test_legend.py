@@ -1,0 +1,103 @@
+"""The legend PNG, read back with an independent decoder (Pillow) and compared with the lookup
+tables the map is drawn through."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from compose.engine import prepare
+from compose.output.legend import DPI, WIDTH, legend_layout, pretty_name, write_legend
+from compose.style import load_style
+from tests.output._tiny import tiny_style
+
+TOL = 2  # 8-bit codes: the bar is drawn from the LUT, resampled near 1:1 (brief: within 2/255)
+
+
+@pytest.fixture(scope="module")
+def drawn(tmp_path_factory):
+    """(layout, layers by name, decoded RGB image) of the tiny style's legend."""
+    tmp_path = tmp_path_factory.mktemp("legend")
+    style = load_style(tiny_style(tmp_path / "data"))
+    run_ = prepare(style)
+    try:
+        path = tmp_path / "tiny.legend.png"
+        write_legend(path, style, run_.ramps, run_.layers)
+        with Image.open(path) as im:
+            rgb = np.asarray(im.convert("RGB"))
+        layout = legend_layout(style, run_.ramps, run_.layers)
+        yield layout, {la.spec.name: la for la in run_.layers}, rgb
+    finally:
+        run_.close()
+
+
+def test_png_size_ratio_and_not_blank(drawn):
+    layout, _, rgb = drawn
+    h, w = rgb.shape[:2]
+    assert (w, h) == layout.pixels
+    assert w == round(WIDTH * DPI)
+    assert h / w == pytest.approx(layout.height / layout.width, abs=2 / w)
+    packed = (rgb[..., 0].astype(np.uint32) << 16) | (rgb[..., 1].astype(np.uint32) << 8) | rgb[..., 2]
+    assert len(np.unique(packed)) > 200                      # bars, swatches, text: not a blank image
+    assert (rgb < 250).any(axis=-1).mean() > 0.05
+
+
+def test_continuous_bars_show_the_lut_colour_at_each_value(drawn):
+    layout, layers, rgb = drawn
+    checked = 0
+    for box in layout.bars:
+        lut = layers[box.layer].lut
+        if lut.stepped:
+            continue
+        row = int((box.y0 + box.y1) / 2)
+        lo, hi = box.values[0], box.values[-1]
+        marks = [v for v in (getattr(lut.ramp, "at", None),) if v is not None]
+        for v in np.linspace(lo, hi, 23)[1:-1]:
+            if any(abs(v - m) < 0.02 * (hi - lo) for m in marks):
+                continue   # the threshold edge: neighbouring columns straddle the hue change
+            col = int(np.floor(box.x_of(v)))
+            got = rgb[row, col].astype(int)
+            want = lut.rgb8[lut.index(v)].astype(int)
+            assert np.abs(got - want).max() <= TOL, (box.layer, v, got, want)
+            checked += 1
+    assert checked >= 50
+
+
+def test_stepped_bar_shows_each_class_colour(drawn):
+    layout, layers, rgb = drawn
+    box = next(b for b in layout.bars if b.layer == "growth-classes")
+    lut = layers["growth-classes"].lut
+    assert lut.stepped and len(box.xs) == lut.n + 1
+    row = int((box.y0 + box.y1) / 2)
+    for k in range(lut.n):
+        col = int((box.xs[k] + box.xs[k + 1]) / 2)
+        assert np.abs(rgb[row, col].astype(int) - lut.rgb8[k].astype(int)).max() <= TOL
+    # equal-width blocks, breaks at the class edges (labelled on the axis)
+    widths = np.diff(box.xs)
+    assert np.allclose(widths, widths[0])
+    assert box.values == pytest.approx((0, 1, 2, 4, 7, 10))
+
+
+def test_twins_share_one_scale_and_are_stacked(drawn):
+    layout, _, _ = drawn
+    land = next(b for b in layout.bars if b.layer == "land-growth")
+    water = next(b for b in layout.bars if b.layer == "water-growth")
+    assert (land.x0, land.x1, land.values, land.xs) == (water.x0, water.x1, water.values, water.xs)
+    assert water.y0 > land.y1 and water.y0 - land.y1 < 0.2 * DPI   # stacked directly beneath
+
+
+def test_end_triangles_show_under_and_over(drawn):
+    layout, layers, rgb = drawn
+    box = next(b for b in layout.bars if b.layer == "warmth")
+    lut = layers["warmth"].lut
+    row = int((box.y0 + box.y1) / 2)
+    under = rgb[row, int(box.x0) - 6].astype(int)
+    over = rgb[row, int(box.x1) + 6].astype(int)
+    assert np.abs(under - lut.rgb8[lut.under_index]).max() <= TOL
+    assert np.abs(over - lut.rgb8[lut.over_index]).max() <= TOL
+
+
+@pytest.mark.parametrize("name, pretty", [("land-productivity", "Land productivity"),
+                                          ("town_names", "Town names"), ("sst", "Sst")])
+def test_titles_come_from_layer_names(name, pretty):
+    assert pretty_name(name) == pretty
