@@ -201,6 +201,7 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
     out = np.empty((3, h, w), dtype=np.float32)
     out[...] = bg
     themes = []
+    hidden = None   # (core) how much overlays cover each pixel: those pixels do not show a theme
     for li, layer in enumerate(run_.layers):
         if only is not None and li not in only:
             continue
@@ -224,6 +225,8 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
             composite_over(out, paint.planes(), alpha, spec.blend, out=out)
         if stats is not None and union is not None:
             stats.layers[li].covered += float(union.sum())
+            if overlay:
+                hidden = union if hidden is None else np.maximum(hidden, union)
     core = out[(slice(None),) + inner]
     rgb8 = np.empty(core.shape[1:] + (3,), dtype=np.uint8)
     for c in range(3):
@@ -236,7 +239,9 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
             s = stats.layers[li]
             if s.value_lightness is None:
                 continue
-            keep = (a_core.ravel() > 0.5)
+            keep = a_core.ravel() > 0.5
+            if hidden is not None:   # grey order is judged where the theme shows, not under lines
+                keep &= hidden.ravel() < 0.02
             n = s.value_lightness.shape[0]
             if keep.all():
                 cell = index.ravel().astype(np.int64) * N_LIGHTNESS + lightness
