@@ -99,14 +99,6 @@ def _new_stats(run_: RenderRun) -> Statistics:
     return Statistics(width=run_.canvas.width, height=run_.canvas.height, layers=layers, background=bg)
 
 
-def _planes8(planes: np.ndarray) -> np.ndarray:
-    """Float colour planes (3, h, w) in [0, 1] -> 8-bit planes (3, h, w) uint8."""
-    out = np.empty(planes.shape, dtype=np.uint8)
-    for c in range(3):
-        out[c] = np.rint(np.clip(planes[c], 0, 1) * np.float32(255))
-    return out
-
-
 def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
     """Flat indices into the padded window of the core pixels a paint covers (alpha > 0).
 
@@ -147,8 +139,8 @@ def _measure_part(stats: LayerStats, paint: Paint, alpha: np.ndarray, beneath: n
     """Add one paint of one window (core region) to the layer's statistics.
 
     alpha: the paint's coverage x opacity over the padded window; beneath: the padded composite
-    just before this paint; ground8: 8-bit padded planes of the composite under the whole layer
-    (None for the layer's first paint, where it equals ``beneath``).
+    just before this paint; ground8: a copy of the padded composite under the whole layer (None
+    for the layer's first paint, where it equals ``beneath``); both measured as 8-bit colours.
     """
     alpha_core = alpha[inner]
     if paint.palette is not None:
@@ -210,8 +202,8 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
         if not paints:
             continue
         overlay = spec.role == "overlay"
-        # the ground under the whole layer, for the parts after the first (8-bit is enough)
-        ground = _planes8(out) if (stats is not None and overlay and len(paints) > 1) else None
+        # the ground under the whole layer, for the parts after the first
+        ground = out.copy() if (stats is not None and overlay and len(paints) > 1) else None
         union = None
         for pi, paint in enumerate(paints):
             alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)

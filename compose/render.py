@@ -1,7 +1,8 @@
 """``compose render``: a style in, a georeferenced map and its companions out.
 
-Writes NAME.png (sRGB), NAME.tif (RGBA GeoTIFF on the canvas grid), NAME.legend.png and
-NAME.check.json, each to a temporary name renamed into place only when everything succeeded.
+Writes NAME.png (sRGB), NAME.tif (RGBA GeoTIFF on the canvas grid), NAME.legend.png,
+NAME.check.json and NAME.html (the self-contained proof page), each to a temporary name renamed
+into place only when everything succeeded.
 """
 from __future__ import annotations
 
@@ -22,8 +23,7 @@ from compose.output.png import PngWriter
 
 __all__ = ["RenderResult", "render_style", "output_paths", "CAUTION"]
 
-CAUTION = ("Illustration only: not for navigation, hazard or safety decisions; "
-           "defer to official sources.")
+from compose.check.report import CAUTION  # noqa: E402  (one wording everywhere)
 
 
 @dataclass
@@ -61,19 +61,27 @@ def output_paths(style, out_dir: Path) -> dict[str, Path]:
     out_dir = Path(out_dir)
     name = style.name
     return {"png": out_dir / f"{name}.png", "tif": out_dir / f"{name}.tif",
-            "legend": out_dir / f"{name}.legend.png", "check": out_dir / f"{name}.check.json"}
+            "legend": out_dir / f"{name}.legend.png", "check": out_dir / f"{name}.check.json",
+            "html": out_dir / f"{name}.html"}
 
 
 def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  progress: Callable[[int, int], None] | None = None,
-                 extra_sinks: list | None = None, legend: bool = True, check: bool = True) -> RenderResult:
-    """Render ``style`` into ``out_dir``; nothing is left half-written if anything fails."""
+                 extra_sinks: list | None = None, legend: bool = True, check: bool = True,
+                 html: bool = True) -> RenderResult:
+    """Render ``style`` into ``out_dir``; nothing is left half-written if anything fails.
+
+    ``html``: also write the proof page NAME.html (:mod:`compose.output.html`); its copy of the
+    map is kept while rendering and its proofs are computed from that copy.
+    """
     t0 = time.perf_counter()
     paths = output_paths(style, out_dir)
     if not legend:
         paths.pop("legend")
     if not check:
         paths.pop("check")
+    if not html:
+        paths.pop("html")
     check_writable(list(paths.values()), overwrite)
     run_ = prepare(style)
     try:
@@ -87,7 +95,12 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             tif = _TiffSink(tif_tmp, canvas, tags)
             stack.callback(tif.writer.close)
             stack.callback(png.writer._f.close)
-            stats = run(run_, [png, tif] + list(extra_sinks or []), progress=progress)
+            preview = None
+            if html:
+                from compose.output.html import PreviewSink
+                preview = PreviewSink(canvas.width, canvas.height)
+            stats = run(run_, [png, tif] + ([preview] if preview is not None else [])
+                        + list(extra_sinks or []), progress=progress)
             t_enc = time.perf_counter()
             png.writer.close()
             tif.writer.close()
@@ -102,6 +115,17 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 from compose.output.legend import write_legend
                 with atomic_path(paths["legend"]) as tmp:
                     write_legend(tmp, style, run_.ramps, run_.layers)
+            if html:
+                from compose.output.html import page_html
+                t_html = time.perf_counter()
+                seconds = dict(run_.seconds, total=t_html - t0)
+                partial = RenderResult(outputs=paths, width=canvas.width, height=canvas.height,
+                                       seconds=seconds, statistics=stats, report=report,
+                                       unplaced_labels=run_.unplaced_labels, ramps=run_.ramps)
+                text = page_html(style, partial, Path(out_dir), preview=preview.image())
+                with atomic_path(paths["html"]) as tmp:
+                    tmp.write_text(text, encoding="utf-8")
+                run_.seconds["html"] = time.perf_counter() - t_html
         seconds = dict(run_.seconds)
         seconds["total"] = time.perf_counter() - t0
         return RenderResult(outputs=paths, width=canvas.width, height=canvas.height, seconds=seconds,

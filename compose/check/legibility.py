@@ -224,10 +224,13 @@ def overlay_size(ctx: CheckContext) -> list[RuleResult]:
 
 
 def _size_fix(spec, part, lab, width, distance, need) -> tuple[str, Change | None]:
+    """A wider stroke covers other pixels than the measured ones, so the width is chosen to
+    reach halfway between the required share and 100 % on the measured beneath colours."""
     texts, change = [], None
+    target = need + (1.0 - need) / 2
     widths = np.round(np.arange(width + 0.05, max(width * 8, 12.0), 0.05), 2)
     for w in widths:
-        if distinct_share(lab[None, :], part.beneath_colors, visual_angle(w, distance))[0] >= need:
+        if distinct_share(lab[None, :], part.beneath_colors, visual_angle(w, distance))[0] >= target:
             texts.append(f"widen the stroke from {width:g} to >= {w:g} pt")
             change = Change(layer_key(spec.name), {"width": float(w)})
             break

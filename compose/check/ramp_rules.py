@@ -1,5 +1,5 @@
-"""Rules about the ramps the layers draw: twins, threshold breaks, no-data colours, classes
-(normal vision and deutan / protan simulation), grayscale order of the composite, ramp shape.
+"""Rules about the ramps the layers draw: twins, threshold breaks, no-data colours, grayscale
+order of the composite, ramp shape (classes: :mod:`compose.check.classes`).
 
 Ramp measurements come from :func:`compose.ramps.ramp_metrics` (8-bit sampled colours); the
 class, no-data and grayscale rules use the style's budgets and the render's statistics.
@@ -12,23 +12,19 @@ import math
 import numpy as np
 
 from compose.check.context import SEQUENTIAL_KINDS, CheckContext, ramp_key
-from compose.check.fixes import hex8, solve_class_pair, solve_nodata
+from compose.check.fixes import hex8, solve_nodata
 from compose.check.report import WARNING, Change, RuleResult
 from compose.check.stats import N_LIGHTNESS
-from compose.color.cvd import simulate_cvd
 from compose.color.difference import delta_e_2000
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 from compose.color.parse import to_rgb8
 
-__all__ = ["TWIN_HUE_GAP", "FAMILY_FACTOR", "RHO_LIMIT", "twin_lightness", "twin_chroma",
-           "twin_hue", "threshold_lightness", "nodata_chroma", "nodata_separation",
-           "nodata_background", "classes_count", "classes_separation", "classes_separation_deutan",
-           "classes_separation_protan", "grayscale_order", "ramp_lightness_monotone",
-           "ramp_step_uniformity", "ramp_diverging_symmetry", "ramp_neutral_midpoint",
-           "ramp_break_visible"]
+__all__ = ["TWIN_HUE_GAP", "RHO_LIMIT", "twin_lightness", "twin_chroma", "twin_hue",
+           "threshold_lightness", "nodata_chroma", "nodata_separation", "nodata_background",
+           "grayscale_order", "ramp_lightness_monotone", "ramp_step_uniformity",
+           "ramp_diverging_symmetry", "ramp_neutral_midpoint", "ramp_break_visible"]
 
 TWIN_HUE_GAP = 30.0   # degrees between twins at equal values (our design target, no source)
-FAMILY_FACTOR = 0.5   # classes of one family may sit at half the separation (our choice, no source)
 RHO_LIMIT = 0.95      # Spearman rho of value vs composite L* (our design target, no source)
 SAME_AS_BACKGROUND = 0.5  # dE00 under which a no-data colour *is* the background
 
@@ -207,106 +203,6 @@ def nodata_background(ctx: CheckContext) -> list[RuleResult]:
         out.append(RuleResult("nodata-background", spec.name, d, limit, passed,
                               f'no-data "{hex8(rgb8)}" is {why}', fix, ramp=ramp.name, change=change))
     return out
-
-
-# --- classes ------------------------------------------------------------------------------
-
-def _class_layers(ctx: CheckContext):
-    for spec, s in ctx.layers(None, ("classes",)):
-        ramp = ctx.ramp_of(spec)
-        if ramp is not None and ramp.kind == "qualitative" and len(ramp.classes) >= 1:
-            yield spec, s, ramp
-
-
-def classes_count(ctx: CheckContext) -> list[RuleResult]:
-    """Class count inside ``budget.classes.count`` (default 5-9); a *warning* outside (common
-    practice: seven plus or minus two)."""
-    lo, hi = (int(v) for v in ctx.budgets.classes.count)
-    out = []
-    for spec, s, ramp in _class_layers(ctx):
-        n = len(ramp.classes)
-        met = lo <= n <= hi
-        out.append(RuleResult("classes-count", spec.name, n, [lo, hi], True,
-                              f"{n} classes; common practice {lo} to {hi}",
-                              "" if met else (f"merge classes down to {hi}" if n > hi else
-                                              "fewer classes than usual; fine if intended"),
-                              severity=WARNING, ramp=ramp.name, met=met))
-    return out
-
-
-_VISION_KINDS = ("normal", "deutan", "protan")
-
-
-def _labs_of(rgb8: np.ndarray) -> np.ndarray:
-    """CIELAB (3, k, 3) of 8-bit colours (k, 3) in normal vision, deutan and protan (100)."""
-    rgb = np.asarray(rgb8, dtype=float) / 255.0
-    return np.stack([srgb_to_lab(rgb)] + [srgb_to_lab(simulate_cvd(rgb, k, 100.0))
-                                          for k in _VISION_KINDS[1:]])
-
-
-def _limits(ramp, separation: float) -> np.ndarray:
-    fam = [c.family for c in ramp.classes]
-    n = len(fam)
-    lim = np.full((n, n), separation)
-    for i in range(n):
-        for j in range(n):
-            if i != j and fam[i] is not None and fam[i] == fam[j]:
-                lim[i, j] = separation * FAMILY_FACTOR
-    return lim
-
-
-def _separation(ctx: CheckContext, vision: str) -> list[RuleResult]:
-    rule = "classes-separation" + ("" if vision == "normal" else f"-{vision}")
-    sep = float(ctx.budgets.classes.separation)
-    out = []
-    vi = _VISION_KINDS.index(vision)
-    for spec, s, ramp in _class_layers(ctx):
-        rgb8 = to_rgb8(np.array([c.rgb for c in ramp.classes]))
-        if len(rgb8) < 2:
-            continue
-        lab = _labs_of(rgb8)[vi]
-        d = delta_e_2000(lab[:, None, :], lab[None, :, :])
-        lim = _limits(ramp, sep)
-        ratio = np.where(np.eye(len(rgb8), dtype=bool), np.inf, d / np.maximum(lim, 1e-9))
-        i, j = np.unravel_index(np.argmin(ratio), ratio.shape)
-        i, j = int(min(i, j)), int(max(i, j))
-        value, limit = float(d[i, j]), float(lim[i, j])
-        passed = bool(value >= limit)
-        a, b = ramp.classes[i].label, ramp.classes[j].label
-        fam = " (same family: half the separation)" if limit < sep else ""
-        msg = (f'closest pair "{a}" / "{b}" {value:.1f} dE00 in {vision} vision; at least '
-               f"{limit:g}{fam}")
-        fix, change = "", None
-        if not passed:
-            sol = solve_class_pair(rgb8, (i, j), lim, _labs_of)
-            if sol is None:
-                fix = f'change the hue or lightness of "{a}" or "{b}"'
-            else:
-                k, new = sol
-                L0 = float(srgb_to_lch(rgb8[k] / 255.0)[0])
-                L1 = float(srgb_to_lch(new / 255.0)[0])
-                fix = (f'move "{ramp.classes[k].label}" from L* {L0:.1f} to {L1:.1f}: color = '
-                       f'"{hex8(new)}" (clears every pair in normal, deutan and protan vision)')
-                change = Change(f"{ramp_key(ramp.name)}.classes[{k}]", {"color": hex8(new)})
-        out.append(RuleResult(rule, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
-                              change=change))
-    return out
-
-
-def classes_separation(ctx: CheckContext) -> list[RuleResult]:
-    """Smallest pairwise dE00 of the class colours >= ``budget.classes.separation`` (default 10,
-    Brychtova & Coltekin 2016); pairs of one ``family`` need half of it (deliberate closeness)."""
-    return _separation(ctx, "normal")
-
-
-def classes_separation_deutan(ctx: CheckContext) -> list[RuleResult]:
-    """The same under deutan simulation (Machado et al. 2009, severity 100)."""
-    return _separation(ctx, "deutan")
-
-
-def classes_separation_protan(ctx: CheckContext) -> list[RuleResult]:
-    """The same under protan simulation (Machado et al. 2009, severity 100)."""
-    return _separation(ctx, "protan")
 
 
 # --- grayscale order ------------------------------------------------------------------------

@@ -40,16 +40,16 @@ def _clean(value: Any) -> Any:
 class Change:
     """A concrete edit of the style that the fix proposes, machine-readable.
 
-    key: the style key path, e.g. ``layer "relief": tint`` or ``ramp "land": nodata``;
-    value: the new value as it would be written in TOML (a ``"#rrggbb"`` string, an
-    ``{L, C, h}`` dict, a number or a dict of several keys such as a halo).
+    table: the style table to edit, e.g. ``layer "relief"``, ``ramp "land"`` or an element of a
+    ramp's list, ``ramp "cover".classes[2]``; values: key -> new value as written in TOML (a
+    ``"#rrggbb"`` string, a number, an ``{L, C, h}`` or halo table, a list).
     """
 
-    key: str
-    value: Any
+    table: str
+    values: dict
 
     def to_json(self) -> dict:
-        return {"key": self.key, "value": _clean(self.value)}
+        return {"table": self.table, "values": _clean(self.values)}
 
 
 @dataclass(frozen=True, slots=True)

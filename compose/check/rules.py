@@ -13,9 +13,9 @@ from compose.check.context import CheckContext
 from compose.check.hierarchy import (ground_chroma, ground_lightness, reserved_saturation,
                                      theme_chroma, theme_chroma_min)
 from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
-from compose.check.ramp_rules import (classes_count, classes_separation,
-                                      classes_separation_deutan, classes_separation_protan,
-                                      grayscale_order, nodata_background, nodata_chroma,
+from compose.check.classes import (classes_count, classes_separation, classes_separation_deutan,
+                                   classes_separation_protan)
+from compose.check.ramp_rules import (grayscale_order, nodata_background, nodata_chroma,
                                       nodata_separation, ramp_break_visible,
                                       ramp_diverging_symmetry, ramp_lightness_monotone,
                                       ramp_neutral_midpoint, ramp_step_uniformity,

@@ -32,8 +32,7 @@ def styles_dir() -> Path:
 def command(out_dir: Path) -> None:
     """Render the invented demo region with every example style (existing outputs are replaced)."""
     from compose.cli.render import print_summary
-    from compose.proof import ProofSink, proof_paths, write_contact_sheet
-    from compose.render import CAUTION, render_style
+    from compose.render import CAUTION
     from compose.style import load_style
 
     folder = styles_dir()
@@ -50,21 +49,7 @@ def command(out_dir: Path) -> None:
             continue
         style = load_style(path)
         click.echo(f"\n== {style.name}: {style.map.title}")
-        canvas = style.canvas()
-        proofs = ProofSink(style.name, out_dir, canvas.width, canvas.height, canvas.dpi, overwrite=True)
-        try:
-            result = render_style(style, out_dir, overwrite=True, extra_sinks=[proofs])
-            proofs.close()
-        except BaseException:
-            proofs.abort()
-            raise
-        write_contact_sheet(style.name, out_dir, result.outputs["png"], proof_paths(style.name, out_dir),
-                            title=style.map.title)
-        try:
-            from compose.output.html import write_html
-            result.outputs["html"] = write_html(style, result, out_dir)
-        except ImportError:
-            pass
+        result = render_with_proofs(style, out_dir)
         print_summary(result)
         passed = result.report.passed if result.report is not None else None
         verdicts.append((style.name, passed, should_pass))
@@ -79,3 +64,28 @@ def command(out_dir: Path) -> None:
     click.echo(CAUTION)
     if surprises:
         raise click.ClickException("demo verdicts differ from the intended ones: " + ", ".join(surprises))
+
+
+def render_with_proofs(style, out_dir: Path):
+    """One render that also streams the grey and CVD proofs and writes the contact sheet;
+    every file goes to a temporary name and is renamed only when all succeeded."""
+    import contextlib
+
+    from compose.output.atomic import atomic_path
+    from compose.proof import PROOFS, ProofSink, proof_paths, write_sheet
+    from compose.render import CAUTION, render_style
+
+    canvas = style.canvas()
+    paths = proof_paths(style, out_dir)
+    with contextlib.ExitStack() as stack:
+        tmp = {k: stack.enter_context(atomic_path(p)) for k, p in paths.items()}
+        sink = ProofSink({p: tmp[p] for p in PROOFS}, canvas.width, canvas.height, canvas.dpi)
+        try:
+            result = render_style(style, out_dir, overwrite=True, extra_sinks=[sink])
+            sink.close()
+        except BaseException:
+            sink.abort()
+            raise
+        write_sheet(tmp["sheet"], sink.thumbnails(), style.map.title or style.name, CAUTION)
+    result.outputs.update(paths)
+    return result

@@ -36,6 +36,9 @@ def atomic_path(final: Path) -> Iterator[Path]:
                                dir=final.parent)
     os.close(fd)
     tmp_path = Path(tmp)
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp_path, 0o666 & ~umask)   # mkstemp makes 0600; outputs get the usual mode
     try:
         yield tmp_path
         os.replace(tmp_path, final)

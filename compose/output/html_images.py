@@ -96,26 +96,23 @@ def figure_uri(fig, dpi: float = 110) -> str:
     return png_uri(buf.getvalue())
 
 
-def layer_previews(style, ramps: dict, max_side: int = PREVIEW_SIDE) -> list[tuple]:
-    """[(spec, alone, stack)] per drawn layer at a preview canvas: the layer alone over the
-    background, and the layers up to and including it. Prepared once, run once per image."""
-    from compose.engine import ArraySink, prepare, preview_canvas, run
+def layer_previews(run_) -> list[tuple]:
+    """[(spec, alone, stack)] per drawn layer of a prepared run (a preview canvas, see
+    :func:`compose.engine.preview_canvas`): the layer alone over the background, and the layers
+    up to and including it. One run of the engine per image, the sources opened once."""
+    from compose.engine import ArraySink, run
 
-    run_ = prepare(style, ramps=ramps, canvas=preview_canvas(style.canvas(), max_side))
-    try:
-        def draw(only: frozenset[int]) -> np.ndarray:
-            sink = ArraySink(run_.canvas)
-            run(run_, [sink], measure=False, only=only)
-            return sink.image
+    def draw(only: frozenset[int]) -> np.ndarray:
+        sink = ArraySink(run_.canvas)
+        run(run_, [sink], measure=False, only=only)
+        return sink.image
 
-        out = []
-        for i, layer in enumerate(run_.layers):
-            alone = draw(frozenset({i}))
-            stack = alone if i == 0 else draw(frozenset(range(i + 1)))
-            out.append((layer.spec, alone, stack))
-        return out
-    finally:
-        run_.close()
+    out = []
+    for i, layer in enumerate(run_.layers):
+        alone = draw(frozenset({i}))
+        stack = alone if i == 0 else draw(frozenset(range(i + 1)))
+        out.append((layer.spec, alone, stack))
+    return out
 
 
 def _proof_local(rgb8: np.ndarray, kind: str) -> np.ndarray:

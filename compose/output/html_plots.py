@@ -33,7 +33,7 @@ FIG_W, FIG_H = 4.2, 3.3     # inches
 def _axes_style(ax) -> None:
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
-    ax.tick_params(labelsize=7.5, colors=INK)
+    ax.tick_params(labelsize=8, colors=INK)
     ax.grid(True, color="#ececec", lw=0.6, zorder=0)
 
 
@@ -112,7 +112,7 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
         title = f"L* p5–p95 {l5:.1f}–{l95:.1f}   C* p95 {c95:.1f}"
     ax.set_xlim(0, xmax)
     ax.set_ylim(0, 100)
-    ax.set_xlabel("chroma C*ab", fontsize=8, color=INK)
+    ax.set_xlabel("chroma C*ab", fontsize=8.5, color=INK)
     ax.set_ylabel("lightness L*", fontsize=8, color=INK)
     fig.text(0.02, 0.965, title, fontsize=8, color=INK, va="top")
     fig.text(0.02, 0.905, "dots: the layer's colours, area ∝ pixels; dotted: measured p5–p95",
@@ -157,20 +157,21 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     lo, hi = _failing_band(y, limit)
     a1.axvspan(lo, hi, color=FAIL, alpha=0.09, lw=0, zorder=1)
     a1.bar(x, 100 * hist / max(total, 1e-12), width=1.0, color=_grey(x.astype(float)),
-           edgecolor="#9a9a9a", linewidth=0.2, zorder=2)
+           edgecolor="#6f6f6f", linewidth=0.4, zorder=2, label=f"beneath the {j['part']}")
     if j["outline"] is not None and j["outline"].beneath_lightness is not None:
         oh = np.asarray(j["outline"].beneath_lightness, dtype=float)
-        a1.step(x, 100 * oh / max(oh.sum(), 1e-12), where="mid", color=BOX, lw=0.8, zorder=3,
-                label=f"beneath the {j['outline_name']}")
-        a1.legend(fontsize=6.5, frameon=False, loc="upper left")
+        scale = (hist.max() / max(total, 1e-12)) / max(oh.max() / max(oh.sum(), 1e-12), 1e-12)
+        a1.step(x, 100 * scale * oh / max(oh.sum(), 1e-12), where="mid", color=BOX, lw=0.9,
+                zorder=3, label=f"beneath the {j['outline_name']} (scaled to the same peak)")
+        a1.legend(fontsize=6.5, frameon=True, framealpha=0.9, edgecolor="none", loc="best")
     a1.axvline(L, color=rgb, lw=2.4, zorder=4)
     a1.axvline(L, color=INK, lw=0.5, zorder=5)
     a1.text(L, 1.02, f"{j['part']} L* {L:.0f}", transform=a1.get_xaxis_transform(), fontsize=7,
             ha="center", va="bottom", color=INK)
     a1.set_xlim(0, 100)
     a1.set_xlabel(f"L* of what lies beneath the {j['part']} (shaded: contrast < {limit:g}:1)",
-                  fontsize=7.5, color=INK)
-    a1.set_ylabel("% pixels", fontsize=7.5, color=INK)
+                  fontsize=8, color=INK)
+    a1.set_ylabel("% pixels", fontsize=8, color=INK)
     a2 = fig.add_axes((0.12, 0.14, 0.84, 0.24))
     _axes_style(a2)
     c = np.asarray(part.contrast if part.contrast is not None else np.zeros(N_CONTRAST), float)
@@ -189,7 +190,7 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     a2.minorticks_off()
     a2.set_xlabel(f"WCAG contrast of the {j['part']} against what lies beneath", fontsize=7.5,
                   color=INK)
-    a2.set_ylabel("% pixels", fontsize=7.5, color=INK)
+    a2.set_ylabel("% pixels", fontsize=8, color=INK)
     share = j["share"]
     text = (f"{share:.1%} reach {limit:g}:1 (need {j['need']:.0%})" if share == share
             else "no pixels measured")

@@ -1,0 +1,357 @@
+"""NAME.html: one self-contained proof page per map, for review before a map is published.
+
+Everything is inline: images as ``data:`` URIs, the style sheet in a ``<style>`` element, no
+scripts, no fonts or files from anywhere else (a Content-Security-Policy meta element forbids
+the browser to fetch any). Sections: the map with its legend and the check's headline verdict;
+the check results (``<table id="check-results">``, one ``<tr>`` per rule result, failures, then
+warnings, then passes); the map beside its grey and colour-vision proofs; every layer alone and
+the stack built up layer by layer, each with its L* / C* numbers drawn against its budget; each
+ramp used (:func:`compose.ramps.figure.ramp_figure`); the style file itself; the caution.
+
+Previews of layers are rendered by :mod:`compose.engine` on a small canvas of the same extent
+(prepared once, run once per image). Budget plots come from the render's statistics.
+"""
+from __future__ import annotations
+
+import html
+import math
+from pathlib import Path
+
+import numpy as np
+
+from compose.output.html_css import CSS
+from compose.output.html_images import (PAGE_WIDTH, PREVIEW_SIDE, PreviewSink, box_reduce,
+                                        figure_uri, jpeg_uri, layer_previews, page_proofs,
+                                        read_preview)
+
+__all__ = ["write_html", "page_html", "html_path", "sorted_results", "PreviewSink"]
+
+CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
+PROOF_TITLES = {"map": "Map as drawn", "gray": "Grey (same CIELAB L*)",
+                "deutan": "Deutan (Machado 2009, 100 %)", "protan": "Protan (Machado 2009, 100 %)",
+                "tritan": "Tritan (Machado 2009, 100 %)"}
+PREVIEW_QUALITY = 85     # JPEG quality of the layer previews
+PROOF_WIDTH = 800        # widest proof panel, pixels
+#: Rules whose numbers a layer's budget plot draws (its verdict colours the plot).
+BUDGET_RULES = ("ground-lightness", "ground-chroma", "reserved-saturation", "theme-chroma",
+                "theme-chroma-min", "overlay-contrast", "label-contrast", "overlay-size")
+PROOF_RULES = ("grayscale-order", "classes-separation-deutan", "classes-separation-protan")
+esc = html.escape
+
+
+def html_path(style, out_dir: Path) -> Path:
+    """Where the page of ``style`` goes: ``out_dir/NAME.html``."""
+    return Path(out_dir) / f"{style.name}.html"
+
+
+# --- formatting ------------------------------------------------------------------------------
+
+def _num(v) -> str:
+    if v is None:
+        return "–"
+    if isinstance(v, (list, tuple)):
+        return " – ".join(_num(x) for x in v)
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, bool) or isinstance(v, str):
+        return str(v)
+    if isinstance(v, float):
+        if not math.isfinite(v):
+            return "n/a"
+        if v.is_integer() and abs(v) < 1e6:
+            return f"{v:.0f}"
+        return f"{v:.3g}" if abs(v) < 10 else f"{v:.1f}"
+    return str(v)
+
+
+def _rank(r) -> int:
+    if not r.passed:
+        return 0
+    return 1 if (r.severity == "warning" and not r.met) else 2
+
+
+def sorted_results(report) -> list:
+    """Rule results: failures first, then warnings, then passes (each in rule order)."""
+    return sorted(report.rules, key=_rank)
+
+
+def _row_class(r) -> str:
+    return ("fail", "warn", "pass")[_rank(r)]
+
+
+def _trip(t) -> str:
+    return " / ".join("n/a" if v != v else f"{v:.1f}" for v in t)
+
+
+# --- sections --------------------------------------------------------------------------------
+
+def _headline(report) -> str:
+    if report is None:
+        return '<div class="verdict none"><strong>Not checked</strong></div>'
+    fails, warns = report.failures, report.warnings
+    n = len(report.rules)
+    word = "PASSED" if report.passed else "FAILED"
+    cls = "pass" if report.passed else "fail"
+    text = (f"{len(fails)} of {n} rule results fail, {len(warns)} warning(s)" if fails
+            else f"all {n} rule results pass, {len(warns)} warning(s)")
+    items = "".join(f"<li><code>{esc(r.rule)}</code> {esc(r.layer or r.ramp or '')}: "
+                    f"{esc(r.fix or r.message)}</li>" for r in list(fails)[:6])
+    more = f'<li class="muted">… and {len(fails) - 6} more</li>' if len(fails) > 6 else ""
+    listing = f"<ul>{items}{more}</ul>" if items else ""
+    return (f'<div class="verdict {cls}" id="verdict"><strong>Check {word}</strong>'
+            f"<span>{esc(text)}</span>{listing}</div>")
+
+
+def _check_table(report) -> str:
+    if report is None:
+        return '<p class="note">No statistics were gathered, so the map was not checked.</p>'
+    from compose.check import describe
+
+    about = describe()
+    rows = []
+    for r in sorted_results(report):
+        subject = r.layer or (f"ramp {r.ramp}" if r.ramp else "–")
+        if r.layer and r.ramp:
+            subject += f' <span class="muted">(ramp {esc(r.ramp)})</span>'
+            subject = esc(r.layer) + subject[len(r.layer):]
+        else:
+            subject = esc(subject)
+        sev = "" if r.severity == "failure" else ' <span class="muted">(warning only)</span>'
+        rows.append(
+            f'<tr class="{_row_class(r)}"><td class="rule"><code title="{esc(about.get(r.rule, ""))}">'
+            f'{esc(r.rule)}</code>{sev}<div class="msg">{esc(r.message)}</div></td>'
+            f"<td>{subject}</td><td class=\"num\">{esc(_num(r.value))}</td>"
+            f'<td class="num">{esc(_num(r.limit))}</td><td><span class="v">{esc(r.verdict)}</span></td>'
+            f'<td class="fix">{esc(r.fix) if r.fix else "<span class=muted>–</span>"}</td></tr>')
+    head = ("<thead><tr><th>rule</th><th>layer</th><th>measured</th><th>limit</th><th>verdict</th>"
+            "<th>fix</th></tr></thead>")
+    return (f'<table id="check-results">{head}<tbody>{"".join(rows)}</tbody></table>'
+            '<p class="note">Units and the source of each limit are in the message under the rule; '
+            "hover a rule name for what it measures.</p>")
+
+
+def _figure(uri: str, caption: str, alt: str, cls: str = "", figure_cls: str = "") -> str:
+    c = f' class="{cls}"' if cls else ""
+    f = f' class="{figure_cls}"' if figure_cls else ""
+    return (f'<figure{f}><img{c} src="{uri}" alt="{esc(alt)}">'
+            f"<figcaption>{caption}</figcaption></figure>")
+
+
+def _proofs_section(map_img, proofs: dict, origin: str, report) -> str:
+    cells = [_figure(jpeg_uri(box_reduce(map_img, PROOF_WIDTH)), esc(PROOF_TITLES["map"]), "the map")]
+    for k, img in proofs.items():
+        cells.append(_figure(jpeg_uri(box_reduce(img, PROOF_WIDTH)), esc(PROOF_TITLES[k]),
+                             f"{k} proof of the map"))
+    notes = ""
+    if report is not None:
+        lines = [f'<li class="{_row_class(r)}"><span class="v">{esc(r.verdict)}</span> '
+                 f"<code>{esc(r.rule)}</code> {esc(r.layer or '')}: {esc(r.message)}</li>"
+                 for r in report.rules if r.rule in PROOF_RULES]
+        if lines:
+            notes = f'<ul class="proof-rules">{"".join(lines)}</ul>'
+    return (f'<div class="proofs">{"".join(cells)}</div><p class="note">Proofs {esc(origin)}. '
+            "Grey keeps each pixel's CIELAB L*; the colour-vision proofs simulate dichromacy "
+            "(Machado, Oliveira &amp; Fernandes 2009, severity 100; the tritan matrix is an "
+            f"approximation).</p>{notes}")
+
+
+def _layer_numbers(summary, spec, unplaced) -> str:
+    if summary is None:
+        return ""
+    parts = [f"<span>coverage {summary.coverage:.1%}</span>",
+             f"<span>L* p5/p50/p95 {_trip(summary.lightness)}</span>",
+             f"<span>C* p5/p50/p95 {_trip(summary.chroma)}</span>"]
+    if summary.beneath:
+        parts.append(f"<span>beneath L* {_trip(summary.beneath)}</span>")
+    if summary.contrast_share is not None and summary.contrast_share == summary.contrast_share:
+        parts.append(f"<span>contrast share {summary.contrast_share:.1%}</span>")
+    if unplaced:
+        parts.append(f"<span>{len(unplaced)} label(s) not placed: {esc(', '.join(unplaced[:12]))}"
+                     f"{' …' if len(unplaced) > 12 else ''}</span>")
+    return f'<p class="numbers">{"".join(parts)}</p>'
+
+
+def _layers_section(previews, style, result, report, ramps) -> str:
+    stats = result.statistics
+    ctx = None
+    if stats is not None:
+        from compose.check import CheckContext
+        ctx = CheckContext.build(style, stats, ramps)
+    summaries = {s.name: s for s in (report.layers if report is not None else ())}
+    cards = []
+    names = [spec.name for spec, _, _ in previews]
+    for i, (spec, alone, stack) in enumerate(previews):
+        results = [r for r in (report.rules if report is not None else ()) if r.layer == spec.name]
+        passed = all(r.passed for r in results) if results else None
+        verdict = ("" if passed is None else
+                   f'<span class="tag" style="color:{"#2e6b30" if passed else "#b3261e"}">'
+                   f'{"all rules pass" if passed else "fails " + ", ".join(sorted({r.rule for r in results if not r.passed}))}</span>')
+        ramp = getattr(spec.options, "ramp", None)
+        tags = [spec.role, spec.kind, f"blend {spec.blend}"]
+        if spec.opacity < 1:
+            tags.append(f"opacity {spec.opacity:g}")
+        if ramp:
+            tags.append(f"ramp {ramp}")
+        tag_html = "".join(f'<span class="tag">{esc(t)}</span>' for t in tags)
+        first = " (the first layer: the stack so far)" if i == 0 else ""
+        cells = [_figure(jpeg_uri(alone, PREVIEW_QUALITY),
+                         f"{esc(spec.name)} alone over the background{first}",
+                         f"{spec.name} alone", "frame")]
+        if i > 0:
+            cells.append(_figure(jpeg_uri(stack, PREVIEW_QUALITY),
+                                 f"layers 1–{i + 1}: " + esc(" + ".join(names[:i + 1])),
+                                 f"stack up to {spec.name}", "frame"))
+        s = None
+        if stats is not None:
+            try:
+                s = stats.layer(spec.name)
+            except KeyError:
+                s = None
+        if s is not None and ctx is not None:
+            from compose.output.html_plots import budget_figure
+            what = ("contrast against what lies beneath" if spec.role == "overlay"
+                    else "L* and C* against the budget")
+            mine = [r for r in results if r.rule in BUDGET_RULES]
+            ok = all(r.passed for r in mine) if mine else None
+            cells.append(_figure(figure_uri(budget_figure(spec, s, ctx, ok), dpi=150), esc(what),
+                                 f"budget plot of {spec.name}", figure_cls="plot"))
+        unplaced = (result.unplaced_labels or {}).get(spec.name, [])
+        cards.append(f'<article class="layer" id="layer-{i + 1}"><header><h3>{i + 1}. '
+                     f"{esc(spec.name)}</h3>{tag_html}{verdict}"
+                     f'<span class="muted">{esc(Path(spec.source).name)}</span></header>'
+                     f'<div class="cells">{"".join(cells)}</div>'
+                     f"{_layer_numbers(summaries.get(spec.name), spec, unplaced)}</article>")
+    return "".join(cards)
+
+
+def _ramps_section(layers, ramps) -> str:
+    from compose.ramps.figure import ramp_figure
+
+    shown: set[str] = set()
+    figs = []
+    for layer in layers:
+        ramp = getattr(layer, "ramp", None)
+        if ramp is None or ramp.name in shown:
+            continue
+        users = [la.spec.name for la in layers if getattr(la, "ramp", None) is not None
+                 and la.ramp.name in ({ramp.name} | set(ramp.matched))]
+        shown |= {ramp.name} | set(ramp.matched)
+        fig = ramp_figure(ramp, ramps)
+        figs.append(_figure(figure_uri(fig, dpi=96), f"ramp <code>{esc(ramp.name)}</code>, "
+                            f"drawn by {esc(', '.join(users))}", f"ramp {ramp.name}"))
+    if not figs:
+        return '<p class="note">No layer draws through a ramp.</p>'
+    return f'<div class="ramps">{"".join(figs)}</div>'
+
+
+def _facts(style, result, out_dir) -> str:
+    m = style.map
+    rows = [("style", str(style.path)), ("canvas", f"{result.width} × {result.height} px"),
+            ("CRS", m.crs), ("extent", ", ".join(f"{v:.10g}" for v in m.extent) + "  (W, S, E, N)"),
+            ("pixel", f"{m.pixel:g} CRS units"), ("dpi", f"{m.dpi:g}")]
+    if len(style.chain) > 1:
+        rows.append(("extends", " → ".join(Path(p).name for p in style.chain)))
+    if result.outputs:
+        rows.append(("files", ", ".join(Path(p).name for p in result.outputs.values())))
+    total = (result.seconds or {}).get("total")
+    if total is not None:
+        rows.append(("render", f"{total:.1f} s"))
+    return '<dl class="facts">' + "".join(f"<dt>{esc(k)}</dt><dd>{esc(str(v))}</dd>"
+                                           for k, v in rows) + "</dl>"
+
+
+def _legend_uri(style, ramps, layers) -> str:
+    from compose.output.legend import DPI, legend_figure
+
+    fig, _ = legend_figure(style, ramps, layers)
+    return figure_uri(fig, dpi=DPI)
+
+
+# --- the page --------------------------------------------------------------------------------
+
+def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray | None = None,
+              preview_side: int = PREVIEW_SIDE) -> str:
+    """The proof page of a render as HTML text.
+
+    ``result``: the :class:`compose.render.RenderResult`; ``preview``: a copy of the map at most
+    :data:`PAGE_WIDTH` wide (e.g. from a :class:`PreviewSink` during the render; proofs are then
+    computed from it). Without it the written map PNG is read, and proof files in ``out_dir``
+    are used when they are current.
+    """
+    from compose.engine import prepare, preview_canvas
+    from compose.render import CAUTION
+
+    ramps = result.ramps
+    if not ramps:
+        from compose.ramps import build_ramps
+        ramps = build_ramps(style.ramps)
+    report = result.report
+    if report is None and result.statistics is not None:
+        from compose.check import check_style
+        report = check_style(style, result.statistics, ramps)
+    png = Path(result.outputs["png"]) if result.outputs.get("png") else None
+    proofs = None
+    if preview is None and png is not None and png.exists():
+        preview = read_preview(png, PAGE_WIDTH)
+        proofs, origin = page_proofs(preview, style.name, out_dir, png, (result.width, result.height))
+    run_ = prepare(style, ramps=ramps, canvas=preview_canvas(style.canvas(), preview_side))
+    try:
+        previews = layer_previews(run_)
+        legend = _legend_uri(style, ramps, run_.layers)
+        ramps_html = _ramps_section(run_.layers, ramps)
+    finally:
+        run_.close()
+    if preview is None:   # nothing written to read: the full stack at the preview canvas
+        preview = previews[-1][2] if previews else np.full((2, 2, 3), 255, np.uint8)
+    if proofs is None:
+        proofs, origin = page_proofs(preview, style.name, None, None, None)
+    title = style.map.title or style.name
+    nav = "".join(f'<a href="#{a}">{t}</a>' for a, t in (
+        ("map", "Map"), ("check", "Check"), ("proofs", "Proofs"), ("layers", "Layers"),
+        ("ramps", "Ramps"), ("style-file", "Style file")))
+    body = f"""<header>
+<h1>{esc(title)}</h1>
+<p class="sub">Proof page of <code>{esc(style.name)}</code> · {result.width} × {result.height} px ·
+{esc(style.map.crs)} · {style.map.pixel:g} units per pixel</p>
+<p class="caution" role="note">{esc(CAUTION)}</p>
+{_headline(report)}
+</header>
+<nav>{nav}</nav>
+<section id="map"><h2>Map and legend</h2>
+<div class="map-grid"><figure><img class="map" src="{jpeg_uri(preview)}" alt="the map">
+<figcaption>The map as written{'' if preview.shape[1] >= result.width else
+f', box-averaged to {preview.shape[1]} × {preview.shape[0]} px'}.</figcaption></figure>
+<figure class="legend"><img src="{legend}" alt="legend"><figcaption>Legend ({esc(style.name)}.legend.png)
+</figcaption>{_facts(style, result, out_dir)}</figure></div></section>
+<section id="check"><h2>Check results</h2>{_check_table(report)}</section>
+<section id="proofs"><h2>Grey and colour-vision proofs</h2>
+{_proofs_section(preview, proofs, origin, report)}</section>
+<section id="layers"><h2>Layers, alone and stacked</h2>
+<p class="note">Each layer alone over the background, the stack built up to it (drawing order,
+lowest first), and where its pixels fall against its budget. Previews at
+{previews[0][1].shape[1] if previews else 0} px wide.</p>
+{_layers_section(previews, style, result, report, ramps)}</section>
+<section id="ramps"><h2>Ramps</h2>{ramps_html}</section>
+<section id="style-file"><h2>Style file</h2><p class="note">{esc(str(style.path))}</p>
+<pre>{esc(style.text)}</pre></section>
+<footer><p class="caution" role="note">{esc(CAUTION)}</p>
+<p>Written by compose. All images and styles are inside this file.</p></footer>"""
+    return (f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+            f'<meta http-equiv="Content-Security-Policy" content="{CSP}">'
+            f'<meta name="viewport" content="width=device-width, initial-scale=1">'
+            f"<title>{esc(title)} – proof</title><style>{CSS}</style></head>\n"
+            f"<body>\n{body}\n</body></html>\n")
+
+
+def write_html(style, result, out_dir: Path) -> Path:
+    """Write ``out_dir/NAME.html`` (through a temporary file renamed into place); returns its path.
+
+    ``result`` is the :class:`compose.render.RenderResult` of ``style`` rendered into ``out_dir``.
+    """
+    from compose.output.atomic import atomic_path
+
+    path = html_path(style, out_dir)
+    text = page_html(style, result, Path(out_dir))
+    with atomic_path(path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+    return path

@@ -1,0 +1,44 @@
+"""``compose check``: table or JSON, exit 0 / 1 / 2, nothing written."""
+from __future__ import annotations
+
+import json
+
+from click.testing import CliRunner
+
+from compose.cli.main import cli
+from tests.check._maps import lines, make_data, relief, style, write_style
+
+
+def _run(args):
+    return CliRunner().invoke(cli, args)
+
+
+def test_check_passes_with_exit_0_and_writes_nothing(tmp_path):
+    data = make_data(tmp_path / "src")
+    path = write_style(tmp_path, style([relief(data["hills"]), lines(data["coast"],
+                                                                    stroke="#303030", width=1.5)]))
+    before = set(tmp_path.rglob("*"))
+    res = _run(["check", str(path)])
+    assert res.exit_code == 0, res.output
+    assert "PASSED" in res.output and "Illustration only" in res.output
+    assert set(tmp_path.rglob("*")) == before
+
+
+def test_check_json_and_exit_1_on_failure(tmp_path):
+    data = make_data(tmp_path / "src")
+    path = write_style(tmp_path, style([relief(data["hills"]), lines(data["coast"],
+                                                                    stroke="#c8c8c8", width=1.5)]))
+    res = _run(["check", str(path), "--json"])
+    assert res.exit_code == 1
+    obj = json.loads(res.stdout if hasattr(res, "stdout") else res.output)
+    assert obj["passed"] is False and set(obj) >= {"passed", "rules", "layers", "caution"}
+    assert any(r["rule"] == "overlay-contrast" and not r["passed"] for r in obj["rules"])
+
+
+def test_check_invalid_style_exits_2_with_one_line(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[map]\ncrs = 'EPSG:32631'\n", encoding="utf-8")
+    res = _run(["check", str(bad)])
+    assert res.exit_code == 2
+    assert res.output.strip().count("\n") == 0 and "compose: error:" in res.output
+    assert _run(["check", str(tmp_path / "missing.toml")]).exit_code == 2

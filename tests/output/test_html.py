@@ -1,0 +1,150 @@
+"""The HTML proof page, opened in a real browser (Debian's chromium, headless): it renders, its
+check table has one row per rule result, it prints to PDF, and it fetches nothing from outside."""
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+from html.parser import HTMLParser
+from pathlib import Path
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from compose.output.html import sorted_results, write_html
+from compose.render import CAUTION, render_style
+from compose.style import load_style
+from tests.output._tiny import tiny_style
+
+BROWSER = shutil.which("chromium") or shutil.which("chromium-browser")
+needs_browser = pytest.mark.skipif(
+    BROWSER is None, reason="no chromium on PATH (CI installs Debian's chromium in .ci/run; "
+                            "locally: apt-get install -y chromium)")
+FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+         "--disable-background-networking", "--disable-component-update", "--disable-sync",
+         "--disable-quic", "--hide-scrollbars"]
+
+
+@pytest.fixture(scope="module")
+def page(tmp_path_factory):
+    """(style, render result, html path) of the tiny style rendered with its page."""
+    tmp = tmp_path_factory.mktemp("html")
+    style = load_style(tiny_style(tmp / "data", extra=False))
+    result = render_style(style, tmp / "out")
+    return style, result, result.outputs["html"]
+
+
+def _browser(tmp: Path, *args: str, url: Path) -> subprocess.CompletedProcess:
+    profile = tmp / "profile"
+    profile.mkdir(exist_ok=True)
+    return subprocess.run([BROWSER, *FLAGS, f"--user-data-dir={profile}", *args, url.as_uri()],
+                          capture_output=True, text=True, timeout=120, check=False)
+
+
+class _Rows(HTMLParser):
+    """Counts <tr> inside <tbody> of <table id="check-results">, and every src/href."""
+
+    def __init__(self):
+        super().__init__()
+        self.depth = 0          # > 0 inside the results table
+        self.in_body = False
+        self.rows = 0
+        self.classes: list[str] = []
+        self.links: list[str] = []
+        self.scripts = 0
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        for key in ("src", "href"):
+            if a.get(key):
+                self.links.append(a[key])
+        if tag == "script":
+            self.scripts += 1
+        if tag == "table" and a.get("id") == "check-results":
+            self.depth = 1
+        elif tag == "table" and self.depth:
+            self.depth += 1
+        elif tag == "tbody" and self.depth == 1:
+            self.in_body = True
+        elif tag == "tr" and self.in_body:
+            self.rows += 1
+            self.classes.append(a.get("class", ""))
+
+    def handle_endtag(self, tag):
+        if tag == "tbody" and self.depth == 1:
+            self.in_body = False
+        elif tag == "table" and self.depth:
+            self.depth -= 1
+
+
+def _parse(text: str) -> _Rows:
+    p = _Rows()
+    p.feed(text)
+    return p
+
+
+def test_page_is_self_contained(page):
+    style, result, path = page
+    text = path.read_text(encoding="utf-8")
+    p = _parse(text)
+    assert p.scripts == 0
+    images = [s for s in p.links if not s.startswith("#")]
+    assert images and all(s.startswith("data:image/") for s in images)      # nothing fetched
+    assert not re.search(r"url\(\s*['\"]?(?!data:)", text)                  # no CSS fetches
+    assert "@import" not in text and "@font-face" not in text
+    assert CAUTION in text
+    assert path.stat().st_size < 8e6
+
+
+def test_rows_follow_the_report_failures_first(page):
+    style, result, path = page
+    p = _parse(path.read_text(encoding="utf-8"))
+    assert p.rows == len(result.report.rules)
+    order = [{"fail": 0, "warn": 1, "pass": 2}[c] for c in p.classes]
+    assert order == sorted(order)
+    ranked = sorted_results(result.report)
+    assert sorted(map(id, ranked)) == sorted(map(id, result.report.rules))
+    assert order.count(0) == len(result.report.failures)
+
+
+def test_render_html_false_writes_no_page(tmp_path, page):
+    style, _, _ = page
+    result = render_style(style, tmp_path, html=False, legend=False)
+    assert "html" not in result.outputs and not (tmp_path / f"{style.name}.html").exists()
+
+
+def test_write_html_after_a_render_uses_the_written_map(page, tmp_path):
+    style, result, path = page
+    again = write_html(style, result, path.parent)
+    assert again == path and path.stat().st_size > 10_000
+
+
+@needs_browser
+def test_browser_renders_the_page_and_the_table(page, tmp_path):
+    style, result, path = page
+    shot = tmp_path / "shot.png"
+    run = _browser(tmp_path, f"--screenshot={shot}", "--window-size=1366,2000", url=path)
+    assert shot.exists(), run.stderr[-2000:]
+    with Image.open(shot) as im:
+        rgb = np.asarray(im.convert("RGB"))
+    assert rgb.shape[:2] == (2000, 1366)
+    packed = (rgb[..., 0].astype(np.uint32) << 16) | (rgb[..., 1].astype(np.uint32) << 8) | rgb[..., 2]
+    assert len(np.unique(packed)) > 500                # images, text, pills: a page, not blank
+    assert (rgb < 235).any(axis=-1).mean() > 0.05      # not all white
+
+    dom = _browser(tmp_path, "--dump-dom", url=path)
+    assert dom.returncode == 0, dom.stderr[-2000:]
+    p = _parse(dom.stdout)
+    assert p.rows == len(result.report.rules) > 0
+
+
+@needs_browser
+def test_browser_prints_the_page_to_pdf(page, tmp_path):
+    _, _, path = page
+    pdf = tmp_path / "page.pdf"
+    run = _browser(tmp_path, f"--print-to-pdf={pdf}", "--no-pdf-header-footer", url=path)
+    assert pdf.exists(), run.stderr[-2000:]
+    data = pdf.read_bytes()
+    assert data.startswith(b"%PDF") and len(data) > 20_000
+    assert data.count(b"/Type /Page") - data.count(b"/Type /Pages") >= 3   # sections break pages
