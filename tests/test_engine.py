@@ -170,3 +170,21 @@ width = 1
         cols = np.flatnonzero(dark[r])
         assert cols.size >= 1
         assert abs(cols.mean() + 0.5 - col) < 0.75, (cols, col)
+
+
+def test_quantile_steps_come_from_the_layer_data(tiny_region):
+    """step_method = "quantile": each of the 4 classes covers about a quarter of the valid pixels
+    (definition of quartiles; tolerance for ties and resampling at the coarse sample)."""
+    text = tiny_region.read_text().replace('domain = [0, 12]', 'domain = [0, 12]\nsteps = 4\nstep_method = "quantile"')
+    tiny_region.write_text(text)
+    run_ = prepare(load_style(tiny_region))
+    try:
+        field = run_.layers[1]
+        assert field.lut.stepped and field.lut.n == 4
+        window = run_.canvas.whole()
+        values = field.source.read_window(run_.canvas, window)
+        idx = field.lut.index(values[np.isfinite(values)])
+        shares = np.bincount(idx, minlength=4)[:4] / idx.size
+        np.testing.assert_allclose(shares, 0.25, atol=0.05)
+    finally:
+        run_.close()

@@ -46,7 +46,17 @@ class FieldLayer:
                                         else nodata)
 
     def _lut(self):
-        return self.ramp.lut()
+        """The ramp's lookup table; quantile steps get their breaks from this layer's data,
+        sampled on a coarse copy of the canvas (at most 1024 px a side)."""
+        lut = self.ramp.lut()
+        if getattr(lut, "quantile_pending", False):
+            from compose.engine import preview_canvas
+
+            coarse = preview_canvas(self.canvas, 1024)
+            values = self.source.read(coarse.crs, coarse.transform, coarse.width, coarse.height,
+                                      self.options.resampling)
+            lut = lut.with_quantile_breaks(values[np.isfinite(values)])
+        return lut
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         values = self.source.read_window(self.canvas, window, self.options.resampling)

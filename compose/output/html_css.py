@@ -99,11 +99,13 @@ footer { padding: 16px 0; font-size: 0.85rem; color: var(--muted); }
   body { max-width: none; padding: 0; font-size: 9.5pt; }
   nav { display: none; }
   section { border: 0; padding: 0; break-before: page; }
-  header + section { break-before: auto; }
+  section#map { break-before: auto; }
   h2 { break-after: avoid; }
   figure, .layer, tr, .verdict, .caution { break-inside: avoid; }
   img { max-width: 100% !important; }
-  .map-grid { grid-template-columns: 1fr 42mm; }
+  .map-grid { grid-template-columns: minmax(0, 1fr) 62mm; }
+  .proofs { grid-template-columns: repeat(3, minmax(0, 1fr)); }
+  .proofs figure:first-child { grid-row: auto; }
   .cells { grid-template-columns: repeat(3, 1fr); }
   .ramps { grid-template-columns: 1fr; }
   .ramps img { max-height: 230mm; width: auto; }

@@ -11,7 +11,7 @@ Blocks, top to bottom in style order:
   scale with a single axis, so equal values can be compared across them at a glance.
 * **class swatches** for ``classes`` layers, grouped under their family names.
 * **overlay samples**: a short line, area, marker or text sample drawn with the layer's own
-  widths (points), dashes and halo.
+  widths (points), dashes and halo, on a light neutral key patch so light halos show.
 
 The style has no units key: each block is titled with its layer name, prettified
 (``"land-productivity"`` -> "Land productivity"). :func:`legend_layout` gives the geometry of
@@ -34,6 +34,7 @@ MARGIN = 0.2              # left and right margin, inches
 INK = "#262626"
 MUTED = "#6b6b6b"
 FRAME = "#7d7d7d"
+KEY_PATCH = "#d3d1ca"     # behind overlay samples: neutral, L* about 84
 FONT = 8.0                # points
 TITLE_FONT = 8.6
 
@@ -402,6 +403,9 @@ def _draw_overlays(ax, b: _Overlays, y: float) -> None:
         cy = y + i * OVERLAY_ROW + OVERLAY_ROW / 2
         sx0, sx1 = MARGIN + 0.02, MARGIN + 0.46
         alpha = float(layer.spec.opacity)
+        # samples sit on a mid-light neutral key patch, so light halos and rings show as on a map
+        ax.add_patch(Rectangle((MARGIN - 0.02, cy - 0.085), 0.52, 0.17, facecolor=KEY_PATCH,
+                               edgecolor="none", zorder=0))
         if kind == "lines":
             if o.halo is not None:
                 ax.plot([sx0, sx1], [cy, cy], color=_rgb(o.halo.color), lw=o.halo.width,

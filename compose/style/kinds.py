@@ -131,11 +131,13 @@ class FieldOptions:
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class ClassesOptions:
-    """A class raster coloured through the qualitative ``ramp``; unknown values are no-data."""
+    """A class raster coloured through the qualitative ``ramp``; unknown values are no-data,
+    drawn in ``nodata`` (a colour, ``"transparent"``, or None for the ramp's own)."""
 
     band: int = _band()
     resampling: str = _resampling("mode")
     ramp: str = option(string())
+    nodata: RGB | Literal["transparent"] | None = option(_nodata, None)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
