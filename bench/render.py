@@ -203,16 +203,16 @@ def render_once(folder: Path, out: Path, measure: bool) -> dict:
     from compose.style import load_style
 
     style = load_style(folder / "style.toml")
-    if not measure:
-        t0 = time.perf_counter()
+    if measure is not None:   # compute only, no sinks: with or without the statistics
         r = prepare(style)
         try:
-            run(r, [], measure=False)
+            t0 = time.perf_counter()
+            run(r, [], measure=measure)
+            return {"compute": time.perf_counter() - t0}
         finally:
             r.close()
-        return {"compute": time.perf_counter() - t0}
     t0 = time.perf_counter()
-    res = render_style(style, out, overwrite=True, legend=False, check=True)
+    res = render_style(style, out, overwrite=True, legend=False, check=True, html=False)
     total = time.perf_counter() - t0
     return {"total": total, **res.seconds}
 
@@ -236,8 +236,9 @@ def main() -> None:
     floor = sum(kernels.values())
     enc_floor = encode_floor_seconds(folder, args.size)
     out = folder / "out"
-    plain = render_once(folder, out, measure=False)["compute"]
-    full = render_once(folder, out, measure=True)
+    plain = min(render_once(folder, out, measure=False)["compute"] for _ in range(2))
+    measured = min(render_once(folder, out, measure=True)["compute"] for _ in range(2))
+    full = render_once(folder, out, measure=None)
     compute = full["compute"] + full["prepare"]
     encode = full["encode"] + full.get("finish-encode", 0.0)
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
@@ -246,8 +247,11 @@ def main() -> None:
     print("compute floor          " + ", ".join(f"{k} {v:.2f}" for k, v in kernels.items())
           + f"  = {floor:.2f} s")
     print(f"compute, no measuring  {plain:6.2f} s  ({plain / floor:.1f} x floor)")
-    print(f"compute with measuring {compute:6.2f} s  ({compute / floor:.1f} x floor; target <= 3 x)")
-    print(f"check overhead         {100 * (compute - plain) / plain:6.1f} %  (target <= 10-15 %)")
+    print(f"compute with measuring {measured:6.2f} s  ({measured / floor:.1f} x floor; target <= 3 x)")
+    print(f"check overhead         {100 * (measured - plain) / plain:6.1f} %  (statistics on compute; "
+          "target <= 10-15 %)")
+    print(f"in the full render     {compute:6.2f} s compute (prepare included; GDAL's compression "
+          "threads share the cores)")
     ef = sum(enc_floor.values())
     print(f"encode (PNG + GeoTIFF) {encode:6.2f} s  (floor: GDAL {enc_floor['geotiff']:.2f} s + zlib "
           f"{enc_floor['png']:.2f} s = {ef:.2f} s; {encode / ef:.2f} x, target <= 1.3 x)")

@@ -256,7 +256,6 @@ class Statistics:
     height: int
     layers: list[LayerStats]
     background: tuple[float, float, float]
-    composite_lightness: np.ndarray = field(default_factory=lambda: np.zeros(N_LIGHTNESS))
 
     @property
     def pixels(self) -> int:

@@ -110,12 +110,10 @@ def _check_table(report) -> str:
     about = describe()
     rows = []
     for r in sorted_results(report):
-        subject = r.layer or (f"ramp {r.ramp}" if r.ramp else "–")
         if r.layer and r.ramp:
-            subject += f' <span class="muted">(ramp {esc(r.ramp)})</span>'
-            subject = esc(r.layer) + subject[len(r.layer):]
+            subject = f'{esc(r.layer)} <span class="muted">(ramp {esc(r.ramp)})</span>'
         else:
-            subject = esc(subject)
+            subject = esc(r.layer or (f"ramp {r.ramp}" if r.ramp else "–"))
         sev = "" if r.severity == "failure" else ' <span class="muted">(warning only)</span>'
         rows.append(
             f'<tr class="{_row_class(r)}"><td class="rule"><code title="{esc(about.get(r.rule, ""))}">'
@@ -306,6 +304,8 @@ def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray
     if proofs is None:
         proofs, origin = page_proofs(preview, style.name, None, None, None)
     title = style.map.title or style.name
+    # a small map is enlarged on screen: show its pixels rather than a blur
+    pixelated = ' style="image-rendering: pixelated"' if preview.shape[1] < 500 else ""
     nav = "".join(f'<a href="#{a}">{t}</a>' for a, t in (
         ("map", "Map"), ("check", "Check"), ("proofs", "Proofs"), ("layers", "Layers"),
         ("ramps", "Ramps"), ("style-file", "Style file")))
@@ -318,7 +318,7 @@ def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray
 </header>
 <nav>{nav}</nav>
 <section id="map"><h2>Map and legend</h2>
-<div class="map-grid"><figure><img class="map" src="{jpeg_uri(preview)}" alt="the map">
+<div class="map-grid"><figure><img class="map" src="{jpeg_uri(preview)}" alt="the map"{pixelated}>
 <figcaption>The map as written{'' if preview.shape[1] >= result.width else
 f', box-averaged to {preview.shape[1]} × {preview.shape[0]} px'}.</figcaption></figure>
 <figure class="legend"><img src="{legend}" alt="legend"><figcaption>Legend ({esc(style.name)}.legend.png)

@@ -83,7 +83,7 @@ dl.facts { display: grid; grid-template-columns: max-content 1fr; gap: 2px 14px;
 dl.facts dt { color: var(--muted); }
 dl.facts dd { margin: 0; }
 footer { padding: 16px 0; font-size: 0.85rem; color: var(--muted); }
-@media (max-width: 900px) {
+@media screen and (max-width: 900px) {
   body { padding: 0 12px 30px; }
   .map-grid, .cells { grid-template-columns: 1fr; }
   .cells .plot { grid-column: auto; }
@@ -105,7 +105,7 @@ footer { padding: 16px 0; font-size: 0.85rem; color: var(--muted); }
   img { max-width: 100% !important; }
   .map-grid { grid-template-columns: minmax(0, 1fr) 62mm; }
   .proofs { grid-template-columns: repeat(3, minmax(0, 1fr)); }
-  .proofs figure:first-child { grid-row: auto; }
+  .proofs figure:first-child { grid-row: auto; grid-column: span 2; }
   .cells { grid-template-columns: repeat(3, 1fr); }
   .ramps { grid-template-columns: 1fr; }
   .ramps img { max-height: 230mm; width: auto; }

@@ -1,0 +1,261 @@
+"""Layout of the legend (see :mod:`compose.output.legend`): its blocks, their heights in inches,
+and where each colour bar lies in the PNG (:class:`BarBox`, :func:`legend_layout`)."""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["legend_layout", "LegendLayout", "BarBox", "pretty_name", "DPI", "WIDTH"]
+
+DPI = 200                 # pixels per inch of the PNG
+WIDTH = 3.6               # inches
+MARGIN = 0.2              # left and right margin, inches
+INK = "#262626"
+MUTED = "#6b6b6b"
+FRAME = "#7d7d7d"
+KEY_PATCH = "#d3d1ca"     # behind overlay samples: neutral, L* about 84
+FONT = 8.0                # points
+TITLE_FONT = 8.6
+
+# vertical sizes, inches
+TOP, BOTTOM, GAP = 0.16, 0.14, 0.2
+TITLE_H, MARK_H, BAR_H, BAR_GAP, AXIS_H, SWATCH_ROW = 0.24, 0.17, 0.19, 0.05, 0.27, 0.22
+CLASS_ROW, FAMILY_ROW, OVERLAY_ROW = 0.205, 0.2, 0.235
+TRIANGLE = 0.13           # width of an under / over end triangle, inches
+
+
+def pretty_name(name: str) -> str:
+    """``"land-productivity"`` -> ``"Land productivity"`` (dashes, underscores -> spaces)."""
+    words = [w for w in re.split(r"[-_\s]+", name) if w]
+    text = " ".join(words)
+    return text[:1].upper() + text[1:] if text else name
+
+
+def _fmt(v: float) -> str:
+    """A tick label: at most 4 significant digits, typographic minus."""
+    if v == 0:
+        return "0"
+    text = f"{v:.4g}" if abs(v) < 1e5 else f"{v:.3g}"
+    if "e" not in text and "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return text.replace("-", "\u2212")
+
+
+def _rgb(color) -> tuple[float, float, float]:
+    return tuple(float(np.clip(c, 0.0, 1.0)) for c in color)
+
+
+# --- layout ----------------------------------------------------------------------------------
+
+@dataclass(frozen=True, slots=True)
+class BarBox:
+    """Where one layer's colour bar lies in the PNG: pixel box (x0, x1 columns, y0, y1 rows from
+    the top; the bar proper, without its end triangles) and the data value -> x mapping, a
+    piecewise-linear map through ``values`` (data, increasing) and ``xs`` (pixels)."""
+
+    layer: str
+    x0: float
+    x1: float
+    y0: float
+    y1: float
+    values: tuple[float, ...]
+    xs: tuple[float, ...]
+
+    def x_of(self, value) -> np.ndarray:
+        """Pixel column (float) of data ``value`` on the bar."""
+        return np.interp(value, self.values, self.xs)
+
+
+@dataclass
+class _Ramps:
+    """One colour-bar block: layers sharing one data scale."""
+
+    layers: list
+    title: str
+    labels: list[str]
+    height: float = 0.0
+
+
+@dataclass
+class _Classes:
+    layer: object
+    title: str
+    rows: list[tuple[str, object]] = field(default_factory=list)   # ("family", name) | ("class", c)
+    height: float = 0.0
+
+
+@dataclass
+class _Overlays:
+    layers: list
+    height: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class LegendLayout:
+    """The legend's size (inches, at :data:`DPI`) and its colour bars' boxes in PNG pixels."""
+
+    width: float
+    height: float
+    dpi: int
+    bars: tuple[BarBox, ...]
+    blocks: tuple = ()
+
+    @property
+    def pixels(self) -> tuple[int, int]:
+        """(width, height) of the PNG in pixels."""
+        return int(round(self.width * self.dpi)), int(round(self.height * self.dpi))
+
+
+def _ramp_of(layer):
+    return getattr(layer, "ramp", None)
+
+
+def _group_key(layer) -> frozenset:
+    ramp = _ramp_of(layer)
+    return frozenset((ramp.name,) + tuple(ramp.matched))
+
+
+def _titles(names: list[str]) -> tuple[str, list[str]]:
+    """Block title and bar labels of layers on one scale: a shared first or last word becomes
+    the title ("land-productivity", "water-productivity" -> "Productivity": "Land", "Water")."""
+    if len(names) == 1:
+        return pretty_name(names[0]), [""]
+    words = [[w for w in re.split(r"[-_\s]+", n) if w] for n in names]
+    for end in (-1, 0):
+        common = {tuple(w[end:] if end == -1 else w[:1]) for w in words}
+        if len(common) == 1 and all(len(w) > 1 for w in words):
+            shared = " ".join(next(iter(common)))
+            rest = [" ".join(w[:-1] if end == -1 else w[1:]) for w in words]
+            if len(set(rest)) == len(rest):
+                return pretty_name(shared), [pretty_name(r) for r in rest]
+    return " / ".join(pretty_name(n) for n in names), [pretty_name(n) for n in names]
+
+
+def _nodata_swatches(layers) -> list[tuple[str, np.ndarray]]:
+    """(label, rgb8) of the no-data colours drawn by these layers (transparent ones left out)."""
+    out: list[tuple[str, np.ndarray]] = []
+    for layer in layers:
+        if getattr(layer, "transparent_nodata", False):
+            continue
+        pal = getattr(layer, "palette", None)
+        if pal is None or pal.nodata < 0:
+            continue
+        rgb8 = np.asarray(pal.rgb8[pal.nodata])
+        if any(np.array_equal(rgb8, c) for _, c in out):
+            continue
+        out.append((layer.spec.name, rgb8))
+    if len(out) > 1:
+        return [(f"no data ({pretty_name(n)})", c) for n, c in out]
+    return [("no data", c) for _, c in out]
+
+
+def _marks(ramp) -> list[tuple[float, str]]:
+    marks = []
+    if ramp.kind == "threshold" and ramp.at is not None:
+        marks.append((float(ramp.at), f"threshold {_fmt(ramp.at)}"))
+    if ramp.kind == "diverging" and ramp.center is not None:
+        marks.append((float(ramp.center), f"centre {_fmt(ramp.center)}"))
+    return marks
+
+
+def _blocks(layers) -> list:
+    """Legend blocks in style order: colour-bar groups, class lists, then the overlays."""
+    blocks: list = []
+    groups: dict[frozenset, _Ramps] = {}
+    overlays = []
+    for layer in layers:
+        spec = layer.spec
+        ramp = _ramp_of(layer)
+        if spec.kind in ("lines", "areas", "points", "labels"):
+            overlays.append(layer)
+        elif ramp is not None and ramp.kind == "qualitative":
+            blocks.append(_Classes(layer, pretty_name(spec.name)))
+        elif ramp is not None and getattr(layer, "lut", None) is not None:
+            key = _group_key(layer)
+            hit = next((g for k, g in groups.items() if k & key), None)
+            if hit is None:
+                hit = groups[key] = _Ramps([], "", [])
+                blocks.append(hit)
+            hit.layers.append(layer)
+    for b in blocks:
+        if isinstance(b, _Ramps):
+            b.title, b.labels = _titles([la.spec.name for la in b.layers])
+            marks = _marks(_ramp_of(b.layers[0]))
+            n = len(b.layers)
+            swatches = _nodata_swatches(b.layers)
+            b.height = (TITLE_H + (MARK_H if marks else 0.04) + n * BAR_H + (n - 1) * BAR_GAP
+                        + AXIS_H + (SWATCH_ROW if swatches else 0.0))
+        else:
+            ramp = _ramp_of(b.layer)
+            families: list[str] = []
+            for c in ramp.classes:
+                if c.family and c.family not in families:
+                    families.append(c.family)
+            for fam in families:
+                b.rows.append(("family", fam))
+                b.rows += [("class", c) for c in ramp.classes if c.family == fam]
+            loose = [c for c in ramp.classes if not c.family]
+            if loose and families:
+                b.rows.append(("family", "other"))
+            b.rows += [("class", c) for c in loose]
+            swatches = _nodata_swatches([b.layer])
+            b.height = (TITLE_H + sum(FAMILY_ROW if k == "family" else CLASS_ROW for k, _ in b.rows)
+                        + (SWATCH_ROW + 0.04 if swatches else 0.0) + 0.04)
+    if overlays:
+        blocks.append(_Overlays(overlays, height=len(overlays) * OVERLAY_ROW + 0.04))
+    return blocks
+
+
+def _bar_geometry(block: _Ramps) -> tuple[float, float, float]:
+    """(left of the bar labels column, x0, x1) of a colour-bar block, inches."""
+    width = max((len(t) for t in block.labels), default=0)
+    label_w = 0.0 if width == 0 else min(1.3, 0.14 + 0.068 * width)
+    x0 = MARGIN + label_w + TRIANGLE
+    x1 = WIDTH - MARGIN - TRIANGLE
+    return MARGIN, x0, x1
+
+
+def _scale(lut, x0: float, x1: float) -> tuple[np.ndarray, np.ndarray]:
+    """(values, xs) of the data -> position map: linear for continuous ramps, equal-width
+    classes for stepped ones (breaks at evenly spaced positions)."""
+    edges = np.asarray(lut.edges, dtype=float)
+    if lut.stepped:
+        return edges, np.linspace(x0, x1, len(edges))
+    return np.array([edges[0], edges[-1]]), np.array([x0, x1])
+
+
+def _shared_scale(block: _Ramps, x0, x1) -> tuple[np.ndarray, np.ndarray]:
+    """One scale for every bar of the block: the first layer's, unless their stepped edges differ
+    (then a linear data scale over the union of the domains)."""
+    luts = [la.lut for la in block.layers]
+    first = _scale(luts[0], x0, x1)
+    if all(np.array_equal(_scale(lut, x0, x1)[0], first[0]) for lut in luts[1:]):
+        return first
+    lo = min(float(lut.edges[0]) for lut in luts)
+    hi = max(float(lut.edges[-1]) for lut in luts)
+    return np.array([lo, hi]), np.array([x0, x1])
+
+
+def legend_layout(style, ramps, layers) -> LegendLayout:
+    """The legend's size and bar boxes (see :class:`LegendLayout`) without drawing it."""
+    blocks = _blocks(layers)
+    height = TOP + sum(b.height for b in blocks) + GAP * max(0, len(blocks) - 1) + BOTTOM
+    if not blocks:
+        height = TOP + 0.3 + BOTTOM
+    bars = []
+    y = TOP
+    for b in blocks:
+        if isinstance(b, _Ramps):
+            _, x0, x1 = _bar_geometry(b)
+            values, xs = _shared_scale(b, x0, x1)
+            marks = _marks(_ramp_of(b.layers[0]))
+            top = y + TITLE_H + (MARK_H if marks else 0.04)
+            for i, layer in enumerate(b.layers):
+                by = top + i * (BAR_H + BAR_GAP)
+                bars.append(BarBox(layer.spec.name, x0 * DPI, x1 * DPI, by * DPI, (by + BAR_H) * DPI,
+                                   tuple(float(v) for v in values),
+                                   tuple(float(x) * DPI for x in xs)))
+        y += b.height + GAP
+    return LegendLayout(WIDTH, height, DPI, tuple(bars), tuple(blocks))
