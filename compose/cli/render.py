@@ -45,7 +45,7 @@ def print_summary(result) -> None:
 @click.command("render")
 @click.argument("style", type=click.Path(path_type=Path))
 @click.option("--out", "out_dir", type=click.Path(path_type=Path), default=Path("out"), show_default=True,
-              help="Folder for NAME.png, NAME.tif, NAME.legend.png, NAME.check.json.")
+              help="Folder for NAME.png, NAME.tif, NAME.legend.png, NAME.check.json, NAME.html.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
 @handle_errors
 def command(style: Path, out_dir: Path, overwrite: bool) -> None:
