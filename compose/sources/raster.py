@@ -313,9 +313,9 @@ def cell_size_metres(crs, transform: Affine, height: int) -> tuple[float | np.nd
     Geographic CRS: the cell size in angle is turned into ground distance on the CRS's own
     ellipsoid, with the radius of curvature of the parallel N cos(phi) for dx and of the
     meridian M for dy, N = a / sqrt(1 - e^2 sin^2 phi), M = a (1 - e^2) / (1 - e^2 sin^2 phi)^1.5
-    (standard geodesy; J. P. Snyder, Map Projections - A Working Manual, USGS PP 1395, 1987,
-    chapter 4; equation numbers from memory, not re-read). dx varies with latitude and is
-    returned as an array of shape (height, 1), one value per row at the row's centre latitude;
+    (standard geodesy; J. P. Snyder, Map Projections - A Working Manual, 1987, chapter 4;
+    equation numbers from memory, not re-read). dx varies with latitude and is returned as an
+    array of shape (height, 1), one value per row at the row's centre latitude;
     dy is a scalar at the grid's centre latitude (M changes by under 0.2 % over 10 degrees).
     A sphere of mean radius 6371008.8 m would be up to 0.56 % off in dy at the equator.
     """

@@ -147,10 +147,10 @@ def test_unreadable_file(tmp_path):
 
 
 def test_no_crs(tmp_path):
-    # A Shapefile written without a CRS has no .prj file.
-    path = write_vector(tmp_path / "bare.shp", [({"type": "Point", "coordinates": (1.0, 2.0)}, {"name": "a"})],
-                        crs=None, properties={"name": "str"}, driver="ESRI Shapefile", geometry="Point")
-    with pytest.raises(SourceError, match=r'layer "coast": .*bare\.shp has no CRS'):
+    # A GeoPackage table written without a CRS has an undefined spatial reference.
+    path = write_vector(tmp_path / "bare.gpkg", [({"type": "Point", "coordinates": (1.0, 2.0)}, {"name": "a"})],
+                        crs=None, properties={"name": "str"}, geometry="Point")
+    with pytest.raises(SourceError, match=r'layer "coast": .*bare\.gpkg has no CRS'):
         VectorSource(path, layer="coast")
 
 
