@@ -29,6 +29,7 @@ from compose.color.cvd import cvd_matrix
 from compose.color.srgb import linear_to_srgb, srgb_to_linear
 from compose.color.wcag import WCAG_Y
 from compose.output.png import PngWriter
+from compose.output.thumb import BoxThumbnail
 
 __all__ = ["PROOFS", "ENCODE_SIZE", "gray_proof", "cvd_proof", "proof_image", "ProofSink",
            "ProofResult", "proof_paths", "write_proofs", "write_sheet", "PROOF_RULES"]
@@ -88,28 +89,6 @@ def proof_image(rgb8: np.ndarray, proof: str) -> np.ndarray:
     return cvd_proof(rgb8, proof)
 
 
-class _Thumb:
-    """Box-average of an image arriving in row bands, by an integer factor."""
-
-    def __init__(self, width: int, height: int, factor: int):
-        self.k = factor
-        self.w, self.h = math.ceil(width / factor), math.ceil(height / factor)
-        self.sum = np.zeros((self.h, self.w, 3), dtype=np.float64)
-        self.cols = np.arange(0, width, factor)
-        rows = np.minimum(factor, height - np.arange(self.h) * factor)
-        cols = np.minimum(factor, width - self.cols)
-        self.count = (rows[:, None] * cols[None, :]).astype(np.float64)[..., None]
-
-    def add(self, row0: int, rgb8: np.ndarray) -> None:
-        cs = np.add.reduceat(rgb8.astype(np.float32), self.cols, axis=1)
-        rows = (row0 + np.arange(rgb8.shape[0])) // self.k
-        starts = np.concatenate([[0], np.nonzero(np.diff(rows))[0] + 1])
-        self.sum[rows[starts]] += np.add.reduceat(cs, starts, axis=0)
-
-    def image(self) -> np.ndarray:
-        return np.clip(np.rint(self.sum / self.count), 0, 255).astype(np.uint8)
-
-
 class ProofSink:
     """A render sink writing the grey and CVD proofs as PNG streams (``paths``: proof -> file)
     and keeping thumbnails of the map and each proof for :func:`write_sheet`."""
@@ -126,7 +105,7 @@ class ProofSink:
             self.abort()
             raise
         factor = max(1, math.ceil(max(width, height) / panel))
-        self.thumbs = {k: _Thumb(width, height, factor) for k in ("map",) + PROOFS}
+        self.thumbs = {k: BoxThumbnail(width, height, factor) for k in ("map",) + PROOFS}
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None:
         """Take finished rows (n, width, 3) uint8, north to south."""

@@ -16,6 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
+from compose.output.thumb import BoxThumbnail
+
 __all__ = ["PAGE_WIDTH", "PREVIEW_SIDE", "PROOF_KINDS", "PreviewSink", "box_reduce",
            "read_preview", "jpeg_uri", "png_uri", "figure_uri", "layer_previews", "page_proofs"]
 
@@ -25,28 +27,11 @@ PROOF_KINDS = ("gray", "deutan", "protan", "tritan")
 JPEG_QUALITY = 90
 
 
-class PreviewSink:
+class PreviewSink(BoxThumbnail):
     """A render sink keeping a box-averaged copy of the map at most ``max_width`` pixels wide."""
 
     def __init__(self, width: int, height: int, max_width: int = PAGE_WIDTH):
-        self.k = max(1, math.ceil(width / max_width))
-        self.w, self.h = math.ceil(width / self.k), math.ceil(height / self.k)
-        self.sum = np.zeros((self.h, self.w, 3), dtype=np.float64)
-        self.cols = np.arange(0, width, self.k)
-        rows = np.minimum(self.k, height - np.arange(self.h) * self.k)
-        cols = np.minimum(self.k, width - self.cols)
-        self.count = (rows[:, None] * cols[None, :]).astype(np.float64)[..., None]
-
-    def rows(self, row0: int, rgb8: np.ndarray) -> None:
-        """Take finished rows (n, width, 3) uint8, north to south."""
-        cs = np.add.reduceat(rgb8.astype(np.float32), self.cols, axis=1)
-        rows = (row0 + np.arange(rgb8.shape[0])) // self.k
-        starts = np.concatenate([[0], np.nonzero(np.diff(rows))[0] + 1])
-        self.sum[rows[starts]] += np.add.reduceat(cs, starts, axis=0)
-
-    def image(self) -> np.ndarray:
-        """The copy, (h, w, 3) uint8."""
-        return np.clip(np.rint(self.sum / self.count), 0, 255).astype(np.uint8)
+        super().__init__(width, height, math.ceil(width / max_width))
 
 
 def box_reduce(rgb8: np.ndarray, max_width: int = PAGE_WIDTH) -> np.ndarray:
