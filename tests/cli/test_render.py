@@ -1,0 +1,46 @@
+"""`compose render` and `compose --help` through click's runner, on the tiny real style."""
+from __future__ import annotations
+
+from click.testing import CliRunner
+
+from compose.cli.main import cli
+from tests.output._tiny import tiny_style
+
+OUTPUTS = ("tiny.png", "tiny.tif", "tiny.legend.png", "tiny.check.json", "tiny.html")
+
+
+def test_help_lists_the_commands():
+    result = CliRunner().invoke(cli, ["--help"])
+    assert result.exit_code == 0
+    for name in ("ramp", "render", "check", "proof", "demo"):
+        assert name in result.output
+
+
+def test_render_writes_every_output_and_refuses_to_overwrite(tmp_path):
+    style = tiny_style(tmp_path)
+    out = tmp_path / "out"
+    first = CliRunner().invoke(cli, ["render", str(style), "--out", str(out)])
+    assert first.exit_code == 0, first.output
+    for name in OUTPUTS:
+        assert (out / name).stat().st_size > 0, name
+    assert "rendered 64 x 64 px" in first.output
+    before = (out / "tiny.png").stat().st_mtime_ns
+    again = CliRunner().invoke(cli, ["render", str(style), "--out", str(out)])
+    assert again.exit_code == 2
+    assert "--overwrite" in again.output and len(again.output.strip().splitlines()) == 1
+    assert (out / "tiny.png").stat().st_mtime_ns == before
+    forced = CliRunner().invoke(cli, ["render", str(style), "--out", str(out), "--overwrite"])
+    assert forced.exit_code == 0, forced.output
+
+
+def test_missing_source_is_one_line_exit_2_and_nothing_written(tmp_path):
+    style = tiny_style(tmp_path)
+    text = style.read_text()
+    style.write_text(text.replace('source = "dem.tif"', 'source = "gone.tif"', 1))
+    out = tmp_path / "out"
+    result = CliRunner().invoke(cli, ["render", str(style), "--out", str(out)])
+    assert result.exit_code == 2
+    line = result.output.strip()
+    assert len(line.splitlines()) == 1 and "source not found" in line and "gone.tif" in line
+    assert "Traceback" not in result.output
+    assert not out.exists() or not any(out.iterdir())
