@@ -188,3 +188,38 @@ def test_quantile_steps_come_from_the_layer_data(tiny_region):
         np.testing.assert_allclose(shares, 0.25, atol=0.05)
     finally:
         run_.close()
+
+
+def test_area_fill_and_outline(tmp_path):
+    """An areas layer: the fill covers the square's pixels (its area in pixels, within 2 %),
+    the outline and halo draw on its edge only."""
+    x0, y0 = 500000.0, 4000000.0
+    sq = {"type": "Polygon", "coordinates": [[(x0 + 300, y0 + 300), (x0 + 1500, y0 + 300),
+                                             (x0 + 1500, y0 + 1500), (x0 + 300, y0 + 1500),
+                                             (x0 + 300, y0 + 300)]]}
+    write_vector(tmp_path / "a.gpkg", [(sq, {"k": "a"})], crs=UTM, properties={"k": "str"}, table="a")
+    (tmp_path / "a.toml").write_text(f'''
+[map]
+crs = "{UTM}"
+extent = [{x0}, {y0}, {x0 + 1800}, {y0 + 1800}]
+pixel = 30
+dpi = 72
+background = "#ffffff"
+[[layer]]
+name = "a"
+role = "overlay"
+kind = "areas"
+source = "a.gpkg"
+fill = "#000000"
+stroke = "#ff0000"
+width = 2
+halo = {{ color = "#00ff00", width = 6 }}
+''')
+    img, stats = render_array(load_style(tmp_path / "a.toml"), measure=True)
+    parts = stats.layer("a").parts
+    assert set(parts) == {"fill", "halo", "stroke"}
+    assert parts["fill"].weights.sum() == pytest.approx(40 * 40, rel=0.02)
+    centre = img[30, 30]
+    assert tuple(centre) == (0, 0, 0)
+    assert (img[50, 20:40, 0] > 150).all()       # red stroke on the southern edge (row 50)
+    assert tuple(img[2, 2]) == (255, 255, 255)   # untouched background

@@ -52,35 +52,8 @@ class _VectorLayer:
         pass
 
 
-class LinesLayer(_VectorLayer):
-    """Strokes with an optional halo (casing) beneath and dashes."""
-
-    def _reach_px(self):
-        o = self.options
-        w = self.px(o.width)
-        if o.halo is not None:
-            w = max(w, self.px(o.halo.width))
-        return w / 2
-
-    def paint(self, window, transform, height, width):
-        o = self.options
-        feats = self._features(transform, height, width)
-        paints = []
-        if len(feats.geometries) == 0:
-            return paints
-        dash = None if not o.dash else [self.px(d) for d in o.dash]
-        if o.halo is not None:
-            cov = draw_lines(feats.geometries, transform, width, height, color_rgb=o.halo.color,
-                             width_px=self.px(o.halo.width))
-            paints.append(Paint("halo", cov, color=o.halo.color))
-        cov = draw_lines(feats.geometries, transform, width, height, color_rgb=o.stroke,
-                         width_px=self.px(o.width), dash_px=dash)
-        paints.append(Paint("stroke", cov, color=o.stroke))
-        return paints
-
-
-class AreasLayer(_VectorLayer):
-    """Filled polygons with an optional outline and halo."""
+class _StrokedLayer(_VectorLayer):
+    """Shared by lines and area outlines: a halo (casing) beneath, then the dashed or plain stroke."""
 
     def _reach_px(self):
         o = self.options
@@ -88,6 +61,42 @@ class AreasLayer(_VectorLayer):
         if o.halo is not None:
             w = max(w, self.px(o.halo.width))
         return w / 2
+
+    def _outline(self, geoms, transform, width, height) -> np.ndarray:
+        raise NotImplementedError
+
+    def _strokes(self, feats, transform, height, width) -> list[Paint]:
+        """[halo, stroke] paints of the features' outlines (halo only when the style has one)."""
+        o = self.options
+        paints = []
+        if o.halo is not None:
+            cov = self._outline(feats.geometries, transform, width, height, self.px(o.halo.width), None)
+            paints.append(Paint("halo", cov, color=o.halo.color))
+        dash = None if not getattr(o, "dash", None) else [self.px(d) for d in o.dash]
+        cov = self._outline(feats.geometries, transform, width, height, self.px(o.width), dash)
+        paints.append(Paint("stroke", cov, color=o.stroke))
+        return paints
+
+
+class LinesLayer(_StrokedLayer):
+    """Strokes with an optional halo (casing) beneath and dashes."""
+
+    def _outline(self, geoms, transform, width, height, width_px, dash):
+        return draw_lines(geoms, transform, width, height, width_px=width_px, dash_px=dash)
+
+    def paint(self, window, transform, height, width):
+        feats = self._features(transform, height, width)
+        if len(feats.geometries) == 0:
+            return []
+        return self._strokes(feats, transform, height, width)
+
+
+class AreasLayer(_StrokedLayer):
+    """Filled polygons with an optional outline and halo."""
+
+    def _outline(self, geoms, transform, width, height, width_px, dash):
+        return draw_areas(geoms, transform, width, height, fill=False, stroke_width_px=width_px,
+                          dash_px=dash)[1]
 
     def paint(self, window, transform, height, width):
         o = self.options
@@ -100,14 +109,7 @@ class AreasLayer(_VectorLayer):
                                      stroke_width_px=0.0)
             paints.append(Paint("fill", fill_cov, color=o.fill))
         if o.stroke is not None and o.width > 0:
-            if o.halo is not None:
-                _, halo_cov = draw_areas(feats.geometries, transform, width, height, fill=False,
-                                         stroke_width_px=self.px(o.halo.width))
-                paints.append(Paint("halo", halo_cov, color=o.halo.color))
-            dash = None if not getattr(o, "dash", None) else [self.px(d) for d in o.dash]
-            _, line_cov = draw_areas(feats.geometries, transform, width, height, fill=False,
-                                     stroke_width_px=self.px(o.width), dash_px=dash)
-            paints.append(Paint("stroke", line_cov, color=o.stroke))
+            paints += self._strokes(feats, transform, height, width)
         return paints
 
 
