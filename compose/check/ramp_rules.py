@@ -48,28 +48,26 @@ def _twins(ctx: CheckContext):
     return [r for r in ctx.used_ramps() if r.kind == "twin" and r.base is not None]
 
 
-def twin_lightness(ctx: CheckContext) -> list[RuleResult]:
-    """|dL*| <= 1 between a twin and its base at equal positions (8-bit colours)."""
+def _twin_match(ctx: CheckContext, rule: str, attr: str, what: str) -> list[RuleResult]:
+    """|d<what>| <= 1 between each used twin and its base at equal positions (8-bit colours)."""
     out = []
     for r in _twins(ctx):
-        v = _metrics(ctx, r).twin_dl_max
-        out.append(_result(ctx, "twin-lightness", r, v, 1.0, v <= 1.0,
-                           f'largest |dL*| against "{r.base.name}" {v:.2f}; limit 1',
+        v = getattr(_metrics(ctx, r), attr)
+        out.append(_result(ctx, rule, r, v, 1.0, v <= 1.0,
+                           f'largest |d{what}| against "{r.base.name}" {v:.2f}; limit 1',
                            "" if v <= 1.0 else f'lower the chroma of "{r.base.name}" stops so both '
                            "hues can show it"))
     return out
+
+
+def twin_lightness(ctx: CheckContext) -> list[RuleResult]:
+    """|dL*| <= 1 between a twin and its base at equal positions (8-bit colours)."""
+    return _twin_match(ctx, "twin-lightness", "twin_dl_max", "L*")
 
 
 def twin_chroma(ctx: CheckContext) -> list[RuleResult]:
     """|dC*| <= 1 between a twin and its base at equal positions (8-bit colours)."""
-    out = []
-    for r in _twins(ctx):
-        v = _metrics(ctx, r).twin_dc_max
-        out.append(_result(ctx, "twin-chroma", r, v, 1.0, v <= 1.0,
-                           f'largest |dC*| against "{r.base.name}" {v:.2f}; limit 1',
-                           "" if v <= 1.0 else f'lower the chroma of "{r.base.name}" stops so both '
-                           "hues can show it"))
-    return out
+    return _twin_match(ctx, "twin-chroma", "twin_dc_max", "C*")
 
 
 def _hue_gap(a, b):

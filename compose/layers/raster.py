@@ -8,7 +8,18 @@ from compose.errors import StyleError
 from compose.layers.base import Context, Paint, Palette
 from compose.sources.raster import RasterSource
 
-__all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut"]
+__all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster"]
+
+
+def open_raster(spec, canvas) -> RasterSource:
+    """Open a raster layer's source (its ``band``) and check it overlaps the canvas."""
+    source = RasterSource(spec.source, spec.options.band, layer=spec.name)
+    try:
+        source.check_overlap(canvas)
+    except BaseException:
+        source.close()
+        raise
+    return source
 
 
 def palette_from_lut(lut, nodata_rgb=None) -> Palette:
@@ -37,8 +48,7 @@ class FieldLayer:
             raise StyleError(f'layer "{spec.name}": unknown ramp \'{o.ramp}\'; ramps: '
                              + ", ".join(sorted(context.ramps)))
         self.ramp = context.ramps[o.ramp]
-        self.source = RasterSource(spec.source, o.band, layer=spec.name)
-        self.source.check_overlap(self.canvas)
+        self.source = open_raster(spec, self.canvas)
         self.lut = self._lut()
         nodata = getattr(o, "nodata", None)
         self.transparent_nodata = isinstance(nodata, str) and nodata == "transparent"

@@ -14,19 +14,12 @@ from compose.color.lab import lab_to_srgb, srgb_to_lab
 from compose.color.parse import to_rgb8
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.hillshade import multidirectional
-from compose.sources.raster import RasterSource, cell_size_metres
+from compose.sources.raster import cell_size_metres
+from compose.layers.raster import open_raster
 
-__all__ = ["ReliefLayer", "relief_palette", "default_shadow", "LEVELS"]
+__all__ = ["ReliefLayer", "relief_palette", "LEVELS"]
 
 LEVELS = 1024
-
-
-def default_shadow(tint) -> tuple[float, float, float]:
-    """A darker, lower-chroma version of ``tint``: L* - 45 (floor 20), chroma halved, same hue."""
-    lab = srgb_to_lab(np.asarray(tint, dtype=float))
-    L = max(20.0, lab[0] - 45.0)
-    rgb = np.clip(lab_to_srgb(np.array([L, lab[1] * 0.5, lab[2] * 0.5])), 0, 1)
-    return tuple(float(v) for v in rgb)
 
 
 def relief_palette(tint, shadow, strength: float, altitude: float) -> Palette:
@@ -57,10 +50,9 @@ class ReliefLayer:
         o = spec.options
         self.options = o
         self.canvas = context.canvas
-        self.source = RasterSource(spec.source, o.band, layer=spec.name)
-        self.source.check_overlap(self.canvas)
-        shadow = o.shadow if o.shadow is not None else default_shadow(o.tint)
-        self.palette = relief_palette(o.tint, shadow, o.strength, o.altitude)
+        self.source = open_raster(spec, self.canvas)
+        # the style fills ``shadow`` from the tint when it is not given (style.kinds.default_shadow)
+        self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
