@@ -19,12 +19,22 @@ are pinned here:
   warp options ``XSCALE`` / ``YSCALE``, measured at one reference point that is the same for
   every window (see :meth:`RasterSource.read`).
 
+Real-world grids read like any other:
+
+- south-up rasters (a positive y pixel size) are valid; their bounds are normalised and GDAL's
+  warper turns them north-up;
+- geographic grids with longitudes past 180 (the 0..360 convention) are read through a copy of
+  their CRS whose longitudes wrap around the grid's own centre (PROJ ``+lon_wrap``), so a map
+  west of the prime meridian finds its data at longitudes 180..360;
+- of a multi-band file only the chosen band is warped (a one-band ``vrt://`` view of the file).
+
 Units: values are the source's own; cell sizes in metres (:func:`cell_size_metres`).
 """
 from __future__ import annotations
 
 import math
 import os
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -58,6 +68,33 @@ _THREADS = max(1, min(4, os.cpu_count() or 1))
 def _first_line(exc: BaseException) -> str:
     text = str(exc).strip()
     return text.splitlines()[0] if text else type(exc).__name__
+
+
+def _wrapped_crs(crs: CRS, bounds: tuple[float, float, float, float]) -> CRS | None:
+    """For a geographic grid reaching past longitude 180 (e.g. 0..360), its CRS with longitudes
+    wrapped around the grid's centre (PROJ ``+lon_wrap``); None for any other grid."""
+    if not crs.is_geographic:
+        return None
+    west, _, east, _ = bounds
+    if east <= 180.0 + 1e-9:
+        return None
+    with warnings.catch_warnings():     # a geographic CRS loses nothing the warper uses
+        warnings.simplefilter("ignore", UserWarning)
+        text = pyproj.CRS.from_user_input(crs.to_wkt()).to_proj4()
+    text = " ".join(part for part in text.split() if not part.startswith("+lon_wrap"))
+    return CRS.from_proj4(f"{text} +lon_wrap={(west + east) / 2.0!r}")
+
+
+def _band_view(path: Path, band: int, count: int):
+    """A one-band view of band ``band`` of a multi-band file, so the warper touches no other
+    band (GDAL's ``vrt://`` connection, GDAL >= 3.1); None when the file has one band or its
+    name cannot be written in that syntax."""
+    if count == 1 or any(ch in str(path) for ch in "?&") or str(path).startswith("/vsi"):
+        return None
+    try:
+        return rasterio.open(f"vrt://{path}?bands={int(band)}")
+    except (RasterioError, OSError):
+        return None
 
 
 def _grid_centre(transform: Affine, width: int, height: int) -> tuple[float, float]:
@@ -95,6 +132,11 @@ class RasterSource:
             raise SourceError(f"{where}: band {band} not in 1..{count}: {self.path}")
         self._ds = ds
         self.band = int(band)
+        # the dataset the warper reads (one band only) and the CRS it is read in (wrapped
+        # longitudes for 0..360 grids); band numbers below refer to ``self._warp_ds``
+        self._wrap_crs = _wrapped_crs(ds.crs, self.bounds)
+        self._view = _band_view(self.path, self.band, ds.count)
+        self._warp_band = 1 if self._view is not None else self.band
 
     # --- what the file is -------------------------------------------------------------------
     @property
@@ -104,13 +146,21 @@ class RasterSource:
 
     @property
     def bounds(self) -> tuple[float, float, float, float]:
-        """(west, south, east, north) in the source's own CRS."""
-        return tuple(self._ds.bounds)
+        """(west, south, east, north) in the source's own CRS (west < east, south < north for
+        south-up and east-to-west grids too)."""
+        left, bottom, right, top = self._ds.bounds
+        return (min(left, right), min(bottom, top), max(left, right), max(bottom, top))
 
     @property
     def res(self) -> tuple[float, float]:
-        """(x, y) cell size in the source CRS's units."""
-        return tuple(self._ds.res)
+        """(x, y) cell size in the source CRS's units, both positive."""
+        return tuple(abs(float(v)) for v in self._ds.res)
+
+    @property
+    def read_crs(self) -> CRS:
+        """The CRS the source is warped from: its own, or for a geographic grid reaching past
+        longitude 180 the same CRS with longitudes wrapped around the grid's centre."""
+        return self._wrap_crs if self._wrap_crs is not None else self._ds.crs
 
     @property
     def nodata(self) -> float | None:
@@ -140,8 +190,8 @@ class RasterSource:
         (a footprint outside the canvas CRS's domain) the canvas is transformed to the source
         CRS instead. When neither direction can be computed nothing is raised.
         """
-        for src, dst, box, target in ((self.crs, canvas.crs, self.bounds, canvas.bounds),
-                                      (canvas.crs, self.crs, canvas.bounds, self.bounds)):
+        for src, dst, box, target in ((self.read_crs, canvas.crs, self.bounds, canvas.bounds),
+                                      (canvas.crs, self.read_crs, canvas.bounds, self.bounds)):
             try:
                 moved = transform_bounds(src, dst, *box, densify_pts=21)
             except (RasterioError, ValueError):
@@ -169,7 +219,7 @@ class RasterSource:
         xs = [x - col[0], x + col[0], x - row[0], x + row[0]]
         ys = [y - col[1], y + col[1], y - row[1], y + row[1]]
         try:
-            sx, sy = warp_points(CRS.from_user_input(crs), self.crs, xs, ys)
+            sx, sy = warp_points(CRS.from_user_input(crs), self.read_crs, xs, ys)
         except (RasterioError, ValueError):
             return None
         inv = ~self._ds.transform
@@ -217,12 +267,15 @@ class RasterSource:
         nodata = self.nodata
         if nodata is None and np.issubdtype(np.dtype(self.dtype), np.floating):
             nodata = float("nan")
-        kwargs = {} if nodata is None else {"src_nodata": nodata}
+        kwargs: dict[str, object] = {} if nodata is None else {"src_nodata": nodata}
+        if self._wrap_crs is not None:
+            kwargs["src_crs"] = self._wrap_crs
+        source = self._view if self._view is not None else self._ds
         try:
-            with WarpedVRT(self._ds, crs=dst_crs, transform=transform, width=width, height=height,
+            with WarpedVRT(source, crs=dst_crs, transform=transform, width=width, height=height,
                            resampling=Resampling[method], tolerance=_TOLERANCE, nodata=np.nan,
                            dtype="float32", **kwargs, **extras) as vrt:
-                out = vrt.read(self.band, out_dtype="float32")
+                out = vrt.read(self._warp_band, out_dtype="float32")
         except RasterioError as exc:
             raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
                               f"{_first_line(exc)}") from None
@@ -270,7 +323,7 @@ class RasterSource:
         """The centre of the source's footprint in ``crs``, or None if it cannot be transformed."""
         west, south, east, north = self.bounds
         try:
-            (x,), (y,) = warp_points(self.crs, crs, [(west + east) / 2], [(south + north) / 2])
+            (x,), (y,) = warp_points(self.read_crs, crs, [(west + east) / 2], [(south + north) / 2])
         except (RasterioError, ValueError):
             return None
         return (x, y) if math.isfinite(x) and math.isfinite(y) else None
@@ -284,6 +337,8 @@ class RasterSource:
     # --- lifetime ---------------------------------------------------------------------------
     def close(self) -> None:
         """Close the file (idempotent)."""
+        if getattr(self, "_view", None) is not None:
+            self._view.close()
         if self._ds is not None:
             self._ds.close()
 
