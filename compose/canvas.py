@@ -2,7 +2,9 @@
 
 A :class:`Canvas` is north-up with square pixels. It is cut into :class:`Window` tiles; each
 window knows the *padded* region to read and paint (its core plus a margin of overlap that
-hillshade kernels and strokes need) so neighbouring windows join without seams.
+hillshade kernels and strokes need) so neighbouring windows join without seams. The padding
+reaches past the canvas edges too: a hillshade at the edge sees the terrain beyond it, and a
+line just outside the map still draws its part that shows.
 """
 from __future__ import annotations
 
@@ -22,8 +24,8 @@ class Window:
     """A rectangle of the canvas in pixels, with a margin of overlap.
 
     ``row, col, height, width`` give the core (what this window writes to the output);
-    ``margin`` is how many extra pixels on every side are read and painted (clamped to the canvas
-    in :attr:`padded`). Rows run north to south.
+    ``margin`` is how many extra pixels on every side are read and painted (also beyond the
+    canvas edges, see :attr:`padded`). Rows run north to south.
     """
 
     row: int
@@ -36,12 +38,11 @@ class Window:
 
     @property
     def padded(self) -> tuple[int, int, int, int]:
-        """(row, col, height, width) of the padded region, clamped to the canvas."""
-        r0 = max(0, self.row - self.margin)
-        c0 = max(0, self.col - self.margin)
-        r1 = min(self.canvas_height, self.row + self.height + self.margin)
-        c1 = min(self.canvas_width, self.col + self.width + self.margin)
-        return r0, c0, r1 - r0, c1 - c0
+        """(row, col, height, width) of the padded region: the core grown by ``margin`` on every
+        side, past the canvas edges too (row and col may be negative), so the canvas edge is
+        padded like any seam between windows."""
+        m = self.margin
+        return self.row - m, self.col - m, self.height + 2 * m, self.width + 2 * m
 
     @property
     def inner(self) -> tuple[slice, slice]:
