@@ -77,12 +77,12 @@ def main() -> None:
     except ImportError:
         print("colour-science not installed: comparison skipped")
     else:
-        def colour_path():
+        def color_path():
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 return colour.Lab_to_LCHab(colour.XYZ_to_Lab(colour.sRGB_to_XYZ(rgb)))
 
-        t_cs = statistics.median(timed(colour_path, 3))
+        t_cs = statistics.median(timed(color_path, 3))
         print(f"colour-science sRGB -> XYZ -> Lab -> LCh, {args.compare:.0e} pixels (float64): "
               f"{t_cs:.3f} s -> {args.compare / t_cs / 1e6:.1f} Mpixel/s")
     t_ours = statistics.median(timed(lambda: srgb_to_lch(rgb), 3))

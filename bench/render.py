@@ -143,7 +143,7 @@ def floor_seconds(folder: Path, size: int) -> dict[str, float]:
     for _ in range(0, size, strip):
         for c in range(3):
             np.take(table[c], index, out=src[c])
-    out["colour"] = time.perf_counter() - t0
+    out["color"] = time.perf_counter() - t0
     t0 = time.perf_counter()
     for _ in range(0, size, strip):
         for _layer in range(3):

@@ -27,7 +27,7 @@ __all__ = ["Sink", "RenderRun", "prepare", "run", "render_window", "ArraySink", 
            "render_array", "WINDOW"]
 
 WINDOW = 1024  # core pixels per window side
-GREY_STRIDE = 2  # the grey-order histogram samples every 2nd row and column
+GRAY_STRIDE = 2  # the grey-order histogram samples every 2nd row and column
 
 
 class Sink(Protocol):
@@ -232,7 +232,7 @@ def render_window(run_: RenderRun, window: Window, stats: Statistics | None,
         # Grey order is a rank correlation: every second row and column (a quarter of the
         # pixels, on the canvas's own even grid so windows agree) estimates it as well.
         r_off, c_off = (window.row % 2), (window.col % 2)
-        sub = (slice(r_off, None, GREY_STRIDE), slice(c_off, None, GREY_STRIDE))
+        sub = (slice(r_off, None, GRAY_STRIDE), slice(c_off, None, GRAY_STRIDE))
         lightness = lightness_bins_of_rgb8(np.ascontiguousarray(rgb8[sub]).reshape(-1, 3))
         shown = None if hidden is None else hidden[sub].ravel() < 0.02
         for li, index, a_core in themes:

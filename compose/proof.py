@@ -64,8 +64,8 @@ def gray_proof(rgb8: np.ndarray) -> np.ndarray:
     """8-bit sRGB (..., 3) -> 8-bit grey (..., 3) of the same CIELAB L* (all channels equal)."""
     r, g, b = _planes(np.asarray(rgb8, dtype=np.uint8))
     y = r * _Y[0] + g * _Y[1] + b * _Y[2]
-    grey = _encode(y)
-    return np.repeat(grey[..., None], 3, axis=-1)
+    gray = _encode(y)
+    return np.repeat(gray[..., None], 3, axis=-1)
 
 
 def cvd_proof(rgb8: np.ndarray, kind: str, severity: float = 100.0) -> np.ndarray:

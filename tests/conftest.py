@@ -6,7 +6,7 @@ import warnings
 
 import numpy as np
 
-__all__ = ["assert_colours_close", "delta_e00_reference", "angular_difference", "seam_tolerance",
+__all__ = ["assert_colors_close", "delta_e00_reference", "angular_difference", "seam_tolerance",
            "cam02ucs_reference"]
 
 
@@ -30,7 +30,7 @@ def delta_e00_reference(a, b, space: str = "srgb") -> np.ndarray:
         return np.asarray(colour.difference.delta_E_CIE2000(a, b), dtype=float)
 
 
-def assert_colours_close(a, b, max_delta_e: float = 0.5, space: str = "srgb") -> None:
+def assert_colors_close(a, b, max_delta_e: float = 0.5, space: str = "srgb") -> None:
     """Fail unless every colour of ``a`` is within ``max_delta_e`` CIEDE2000 of ``b``.
 
     The message names the worst pair, so a failure reads in perceptual units. A ΔE00 of about 1 is
@@ -60,7 +60,7 @@ def seam_tolerance(rgb, tol: float = 1e-8) -> float:
     CALC: the published thresholds do not meet exactly -- decode(0.04045) = 0.0031308050 lies just
     above the encode threshold 0.0031308, so encoded values in (0.0404499, 0.04045] come back up to
     3e-8 low (about 1e-5 of an 8-bit code). colour-science moves the decode threshold to 0.0404499 to
-    avoid this; we keep the IEC/WCAG 0.04045 (see docs/colour.md).
+    avoid this; we keep the IEC/WCAG 0.04045 (see docs/color.md).
     """
     near = np.any(np.abs(np.abs(np.asarray(rgb, dtype=float)) - 0.04045) < 1e-6)
     return 5e-8 if near else tol

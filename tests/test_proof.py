@@ -41,10 +41,10 @@ def pixels():
     return rng.integers(0, 256, (40, 50, 3), dtype=np.uint8)
 
 
-def test_grey_has_the_same_l_star(pixels):
-    grey = gray_proof(pixels)
-    assert np.all(grey[..., 0] == grey[..., 1]) and np.all(grey[..., 1] == grey[..., 2])
-    np.testing.assert_allclose(_lab(grey / 255.0)[..., 0], _lab(pixels / 255.0)[..., 0], atol=0.5)
+def test_gray_has_the_same_l_star(pixels):
+    gray = gray_proof(pixels)
+    assert np.all(gray[..., 0] == gray[..., 1]) and np.all(gray[..., 1] == gray[..., 2])
+    np.testing.assert_allclose(_lab(gray / 255.0)[..., 0], _lab(pixels / 255.0)[..., 0], atol=0.5)
     # an average of the encoded channels would not do: pure green (L* 87.7) is not grey 85
     assert int(gray_proof(np.array([[0, 255, 0]], np.uint8))[0, 0]) > 200
 
@@ -60,9 +60,9 @@ def test_cvd_reference_values():
     red = np.array([[255, 0, 0]], np.uint8)
     np.testing.assert_allclose(cvd_proof(red, "deutan")[0], [163.22, 144.28, 0], atol=0.6)
     np.testing.assert_allclose(cvd_proof(red, "protan")[0], [108.79, 95.03, 0], atol=0.6)
-    grey = np.array([[128, 128, 128]], np.uint8)   # rows sum to 1: neutrals are kept
+    gray = np.array([[128, 128, 128]], np.uint8)   # rows sum to 1: neutrals are kept
     for kind in MACHADO:
-        assert np.all(np.abs(cvd_proof(grey, kind).astype(int) - 128) <= 1)
+        assert np.all(np.abs(cvd_proof(gray, kind).astype(int) - 128) <= 1)
 
 
 def test_sink_streams_bands_and_box_averages(tmp_path, pixels):

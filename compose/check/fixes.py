@@ -104,11 +104,11 @@ def halo_color(rgb, limit: float) -> np.ndarray | None:
             continue
         L = float(np.clip(lightness_of_y(target) + step, 0.0, 100.0))
         for _ in range(30):
-            grey = lch_rgb8(np.array([L, 0.0, 0.0]))
-            y_h = float(luminance8(grey))
+            gray = lch_rgb8(np.array([L, 0.0, 0.0]))
+            y_h = float(luminance8(gray))
             ratio = (max(y, y_h) + 0.05) / (min(y, y_h) + 0.05)
             if ratio >= limit:
-                return grey
+                return gray
             L = float(np.clip(L + step, 0.0, 100.0))
     return None
 

@@ -20,7 +20,7 @@ __all__ = ["parse_color", "to_hex", "to_rgb8", "describe"]
 _HEX = re.compile(r"^#([0-9a-fA-F]{6}|[0-9a-fA-F]{3})$")
 
 
-def parse_color(value, where: str = "colour") -> tuple[float, float, float]:
+def parse_color(value, where: str = "color") -> tuple[float, float, float]:
     """Parse a colour of a style file to gamma-encoded sRGB floats in [0, 1].
 
     ``where`` names the place for the error message, e.g. ``'layer "coast": stroke'``.

@@ -1,6 +1,6 @@
 """sRGB (IEC 61966-2-1:1999) <-> linear RGB <-> CIE XYZ (D65).
 
-Convention pinned for the whole engine (see ``docs/colour.md``):
+Convention pinned for the whole engine (see ``docs/color.md``):
 
 * transfer function of IEC 61966-2-1 (decode threshold 0.04045, encode threshold 0.0031308);
 * the 4-digit RGB -> XYZ matrix of IEC 61966-2-1 and its exact numerical inverse;

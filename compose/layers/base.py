@@ -36,7 +36,7 @@ class Palette:
         object.__setattr__(self, "planes",
                            np.ascontiguousarray(self.rgb8.T.astype(np.float32) / np.float32(255)))
 
-    def colour_planes(self, index: np.ndarray) -> np.ndarray:
+    def color_planes(self, index: np.ndarray) -> np.ndarray:
         """(h, w) uint16 indices -> (3, h, w) float32 colour planes."""
         out = np.empty((3,) + index.shape, dtype=np.float32)
         for c in range(3):
@@ -62,7 +62,7 @@ class Paint:
     def planes(self) -> np.ndarray:
         """Colour as (3, h, w) float32 (broadcast view for flat colours)."""
         if self.palette is not None:
-            return self.palette.colour_planes(self.index)
+            return self.palette.color_planes(self.index)
         c = np.asarray(self.color, dtype=np.float32).reshape(3, 1, 1)
         return np.broadcast_to(c, (3,) + self.alpha.shape)
 

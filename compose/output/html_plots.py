@@ -120,7 +120,7 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
     return fig
 
 
-def _grey(L: np.ndarray) -> np.ndarray:
+def _gray(L: np.ndarray) -> np.ndarray:
     lab = np.stack([L, np.zeros_like(L), np.zeros_like(L)], axis=-1)
     return np.clip(lab_to_srgb(lab), 0, 1)
 
@@ -156,7 +156,7 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     x = np.arange(hist.size)
     lo, hi = _failing_band(y, limit)
     a1.axvspan(lo, hi, color=FAIL, alpha=0.09, lw=0, zorder=1)
-    a1.bar(x, 100 * hist / max(total, 1e-12), width=1.0, color=_grey(x.astype(float)),
+    a1.bar(x, 100 * hist / max(total, 1e-12), width=1.0, color=_gray(x.astype(float)),
            edgecolor="#6f6f6f", linewidth=0.4, zorder=2, label=f"beneath the {j['part']}")
     if j["outline"] is not None and j["outline"].beneath_lightness is not None:
         oh = np.asarray(j["outline"].beneath_lightness, dtype=float)

@@ -124,12 +124,12 @@ def choose_nodata(rgb_colors: np.ndarray) -> tuple[float, float, float]:
     lab = srgb_to_lab(np.asarray(rgb_colors, dtype=float))
     best, best_d = None, -1.0
     for L in NODATA_CANDIDATES:
-        grey = to_rgb8(np.clip(lab_to_srgb(np.array([L, 0.0, 0.0])), 0, 1)) / 255.0
-        d = float(np.min(delta_e_2000(srgb_to_lab(grey), lab)))
+        gray = to_rgb8(np.clip(lab_to_srgb(np.array([L, 0.0, 0.0])), 0, 1)) / 255.0
+        d = float(np.min(delta_e_2000(srgb_to_lab(gray), lab)))
         if d >= NODATA_SEPARATION:
-            return tuple(map(float, grey))
+            return tuple(map(float, gray))
         if d > best_d:
-            best, best_d = grey, d
+            best, best_d = gray, d
     return tuple(map(float, best))
 
 
@@ -156,15 +156,15 @@ def _finish(ramp: Ramp, spec: RampSpec) -> Ramp:
     return dataclasses.replace(ramp, nodata=choose_nodata(_drawn_colors(ramp)))
 
 
-_GREY = (0.5, 0.5, 0.5)
+_GRAY = (0.5, 0.5, 0.5)
 
 
 def _from_spec(spec: RampSpec, pieces=(), **extra) -> Ramp:
     if spec.kind == "qualitative":
-        return Ramp(spec.name, "qualitative", (0.0, 1.0), (), "cielab", _GREY, _GREY, _GREY,
+        return Ramp(spec.name, "qualitative", (0.0, 1.0), (), "cielab", _GRAY, _GRAY, _GRAY,
                     classes=spec.classes, path=spec.path)
     stops = spec.through or (spec.below + spec.above)
-    return Ramp(spec.name, spec.kind, spec.domain, stops, spec.space, _GREY, _GREY, _GREY, pieces,
+    return Ramp(spec.name, spec.kind, spec.domain, stops, spec.space, _GRAY, _GRAY, _GRAY, pieces,
                 center=spec.center, at=spec.at, n_below=len(spec.below), steps=spec.steps,
                 step_method=spec.step_method or "equal", breaks=spec.breaks,
                 samples=spec.samples or 1024, path=spec.path, **extra)
@@ -241,7 +241,7 @@ def _twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[
         if breaks is not None and (breaks[0] <= domain[0] or breaks[-1] >= domain[1]):
             raise StyleError(f"{spec.where}: 'breaks' must lie inside the domain "
                              f"[{domain[0]:g}, {domain[1]:g}]")
-        ramp = Ramp(spec.name, "twin", domain, base.stops, base.space, _GREY, _GREY, _GREY,
+        ramp = Ramp(spec.name, "twin", domain, base.stops, base.space, _GRAY, _GRAY, _GRAY,
                     (piece_for(spec.name, domain),), twin_of=spec.twin, hue=spec.hue, matched=names,
                     base=base, steps=steps, breaks=breaks,
                     step_method=spec.step_method or (base.step_method if not stepped else "equal"),

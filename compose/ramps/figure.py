@@ -32,7 +32,7 @@ FAIL = "#f2c9a7"
 _PROOFS = (("deutan", "deutan"), ("protan", "protan"), ("tritan", "tritan"), ("grey L*", None))
 
 
-def _grey(lab: np.ndarray) -> np.ndarray:
+def _gray(lab: np.ndarray) -> np.ndarray:
     """sRGB greys with the L* of ``lab`` (..., 3): the grayscale proof by lightness."""
     g = np.zeros_like(lab)
     g[..., 0] = lab[..., 0]
@@ -41,7 +41,7 @@ def _grey(lab: np.ndarray) -> np.ndarray:
 
 def _proof(rgb: np.ndarray, kind: str | None) -> np.ndarray:
     if kind is None:
-        return _grey(srgb_to_lab(rgb))
+        return _gray(srgb_to_lab(rgb))
     return simulate_cvd(rgb, kind, 100.0)
 
 
@@ -190,7 +190,7 @@ def _qualitative_figure(fig, ramp: Ramp, m: RampMetrics, checks) -> None:
     rgb8 = np.array([np.rint(np.array(c.rgb) * 255) for c in classes]).astype(np.uint8)
     rgb = rgb8 / 255.0
     rows = [("normal", rgb)] + [(v, simulate_cvd(rgb, v, 100.0)) for v in VISIONS[1:]]
-    rows.append(("grey L*", _grey(srgb_to_lab(rgb))))
+    rows.append(("grey L*", _gray(srgb_to_lab(rgb))))
     ax = fig.add_axes((0.1, 0.36, 0.74, 0.55))
     ax.set_xlim(0, n)
     ax.set_ylim(len(rows), -1.45)

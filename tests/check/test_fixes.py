@@ -17,7 +17,7 @@ def _ratio(a8, b8):
     return (max(ya, yb) + 0.05) / (min(ya, yb) + 0.05)
 
 
-def test_wcag_reference_greys():
+def test_wcag_reference_grays():
     # references.md section 5: #767676 is the lightest grey with 4.5:1 on white, #949494 for 3:1
     white = np.array([255, 255, 255])
     assert _ratio([0x76] * 3, white) == pytest.approx(4.5422, abs=1e-3)
@@ -33,18 +33,18 @@ def test_estimate_never_exceeds_the_exact_share():
     beneath = rng.integers(0, 256, (3000, 3))
     L = np.rint(colour.XYZ_to_Lab(colour.sRGB_to_XYZ(beneath / 255.0))[:, 0]).astype(int)
     hist = np.bincount(L, minlength=N_LIGHTNESS).astype(float)
-    for grey in (20, 90, 160, 230):
-        fig = np.array([grey] * 3)
+    for gray in (20, 90, 160, 230):
+        fig = np.array([gray] * 3)
         exact = np.mean([_ratio(fig, b) >= 3.0 for b in beneath])
         est = contrast_share_estimate(luminance8(fig)[None], hist, 3.0)[0]
         assert est <= exact + 1e-12
 
 
-@pytest.mark.parametrize("grey", [0x20, 0x60, 0xb0, 0xe0])
-def test_halo_reaches_the_limit(grey):
-    fig = np.array([grey] * 3) / 255.0
+@pytest.mark.parametrize("gray", [0x20, 0x60, 0xb0, 0xe0])
+def test_halo_reaches_the_limit(gray):
+    fig = np.array([gray] * 3) / 255.0
     halo = halo_color(fig, 3.0)
-    assert halo is not None and _ratio(np.array([grey] * 3), halo) >= 3.0
+    assert halo is not None and _ratio(np.array([gray] * 3), halo) >= 3.0
 
 
 def test_lightness_of_y_is_cielab():
@@ -53,7 +53,7 @@ def test_lightness_of_y_is_cielab():
     np.testing.assert_allclose(lightness_of_y(y), want, atol=1e-6)
 
 
-def test_nodata_solution_is_far_from_the_ramp_and_grey():
+def test_nodata_solution_is_far_from_the_ramp_and_gray():
     from compose.color.difference import delta_e_2000
     from compose.color.lab import srgb_to_lab, srgb_to_lch
     ramp8 = np.array([[200, 220, 150], [120, 160, 80], [60, 90, 50]], np.uint8)

@@ -65,11 +65,11 @@ def test_dark_casing_passes_as_one_wider_mark(data, tmp_path):
 
 def test_halo_is_the_fix_when_no_lightness_works(data, tmp_path):
     # ground: L* 30 on the left, 70 on the right: no grey reaches 3:1 against both halves
-    grey = {"kind": "sequential", "domain": [0, 10],
+    gray = {"kind": "sequential", "domain": [0, 10],
             "through": [{"L": 30, "C": 0, "h": 0}, {"L": 70, "C": 0, "h": 0}]}
     ground = {"name": "land", "role": "ground", "kind": "field", "source": str(data["halves"]),
-              "ramp": "grey"}
-    doc = style([ground, lines(data["coast"], stroke="#909090", width=1.0)], {"grey": grey})
+              "ramp": "gray"}
+    doc = style([ground, lines(data["coast"], stroke="#909090", width=1.0)], {"gray": gray})
     bad = one(check(tmp_path, doc), "overlay-contrast", "coast")
     assert not bad.passed and bad.value < 0.1
     assert "halo" in bad.change.values
@@ -83,7 +83,7 @@ def test_labels_need_4_5_against_their_halo(data, tmp_path):
     r = one(ok, "label-contrast", "towns")
     assert r.passed and "4.5:1" in r.message and "SC 1.4.3" in r.message
     doc = style([relief(data["hills"]), labels(data["towns"], color="#909090", halo=WHITE_HALO)])
-    bad = one(check(tmp_path, doc, "grey"), "label-contrast", "towns")
+    bad = one(check(tmp_path, doc, "gray"), "label-contrast", "towns")
     assert not bad.passed       # #909090 on white is 3.2:1 -- enough for lines, not for text
     fixed = one(check(tmp_path, apply_change(doc, bad.change), "fixed"), "label-contrast", "towns")
     assert fixed.passed

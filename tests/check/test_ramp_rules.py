@@ -115,7 +115,7 @@ def test_break_that_does_not_show_fails(data, tmp_path):
 
 # --- no-data ----------------------------------------------------------------------------------
 
-def test_nodata_rules_pass_with_a_quiet_grey(data, tmp_path):
+def test_nodata_rules_pass_with_a_quiet_gray(data, tmp_path):
     doc = style([relief(data["hills"]), field(data["gradient"], nodata="#c6c6c6")])
     rep = check(tmp_path, doc)
     for rule in ("nodata-chroma", "nodata-separation", "nodata-background"):
@@ -128,7 +128,7 @@ def test_transparent_nodata_is_not_judged(data, tmp_path):
     assert rep.rule("nodata-chroma") == [] and rep.rule("nodata-separation") == []
 
 
-def test_coloured_nodata_fails_chroma_and_the_fix_passes(data, tmp_path):
+def test_colored_nodata_fails_chroma_and_the_fix_passes(data, tmp_path):
     doc = style([relief(data["hills"]), field(data["gradient"], nodata={"L": 80, "C": 20, "h": 30})])
     bad = one(check(tmp_path, doc), "nodata-chroma", "val")
     assert not bad.passed and bad.value > 3 and bad.change.table == 'layer "val"'

@@ -15,7 +15,7 @@ from tests.check._maps import field, lines, relief, style, write_style
 
 colour = pytest.importorskip("colour")
 
-GREY = {"kind": "sequential", "domain": [0, 10],
+GRAY = {"kind": "sequential", "domain": [0, 10],
         "through": [{"L": 30, "C": 0, "h": 0}, {"L": 90, "C": 0, "h": 0}]}
 
 
@@ -77,8 +77,8 @@ def test_ground_and_theme_percentiles_match_colour_science(data, tmp_path):
 
 def test_line_coverage_contrast_share_and_beneath_match(data, tmp_path):
     ground = {"name": "land", "role": "ground", "kind": "field", "source": str(data["halves"]),
-              "ramp": "grey"}
-    doc = style([ground, lines(data["coast"], stroke="#606060", width=1.5)], {"grey": GREY})
+              "ramp": "gray"}
+    doc = style([ground, lines(data["coast"], stroke="#606060", width=1.5)], {"gray": GRAY})
     png, report, _ = render(tmp_path, doc)
     stroke = np.array([0x60] * 3) / 255.0
     under = np.broadcast_to(png[5:6], png.shape)            # row 5 is free of lines

@@ -20,8 +20,8 @@ def sample() -> np.ndarray:
     """1e5 seeded random 8-bit colours plus all 256 greys, (100256, 3) uint8."""
     rng = np.random.default_rng(70)
     rand = rng.integers(0, 256, (100_000, 3), dtype=np.uint8)
-    greys = np.repeat(np.arange(256, dtype=np.uint8)[:, None], 3, axis=1)
-    return np.concatenate([rand, greys])
+    grays = np.repeat(np.arange(256, dtype=np.uint8)[:, None], 3, axis=1)
+    return np.concatenate([rand, grays])
 
 
 def test_lut_path_matches_float64_path(sample):

@@ -12,7 +12,7 @@ from colorspacious import CIECAM02Space, CIECAM02Surround
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tests.conftest import assert_colours_close, cam02ucs_reference, seam_tolerance
+from tests.conftest import assert_colors_close, cam02ucs_reference, seam_tolerance
 from compose.color.cam import VIEWING, cam02ucs_to_srgb, cam02ucs_to_xyz, srgb_to_cam02ucs, xyz_to_cam02ucs
 from compose.color.lab import WHITE_D65
 
@@ -121,7 +121,7 @@ def test_round_trip_random():
     rgb = np.random.default_rng(33).random((3000, 3))
     back = cam02ucs_to_srgb(srgb_to_cam02ucs(rgb))
     np.testing.assert_allclose(back, rgb, rtol=0, atol=1e-8)
-    assert_colours_close(back, rgb, max_delta_e=1e-6)
+    assert_colors_close(back, rgb, max_delta_e=1e-6)
     xyz = colour.sRGB_to_XYZ(rgb)
     np.testing.assert_allclose(cam02ucs_to_xyz(xyz_to_cam02ucs(xyz)), xyz, rtol=0, atol=1e-10)
 

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from colour.blindness.datasets.machado2010 import CVD_MATRICES_MACHADO2010
 
-from tests.conftest import assert_colours_close
+from tests.conftest import assert_colors_close
 from compose.color.cvd import CVD_KINDS, cvd_matrix, simulate_cvd, simulate_cvd_linear
 from compose.color.parse import to_rgb8
 
@@ -97,14 +97,14 @@ def test_interpolation_between_tabulated_severities(kind):
 
 
 @pytest.mark.parametrize("kind", KINDS)
-def test_rows_sum_to_one_and_greys_are_kept(kind):
+def test_rows_sum_to_one_and_grays_are_kept(kind):
     # CALC (references.md §4): every row of every tabulated matrix sums to 1 within 1e-6 (observed
     # exactly 1e-6 on some rows: three entries rounded to 6 decimals -> tolerance 1.5e-6), so
     # neutrals are preserved: every 8-bit grey stays itself after rounding to 8 bits.
     for s in list(range(0, 101, 10)) + [5.0, 37.5, 99.0]:
         np.testing.assert_allclose(cvd_matrix(kind, s).sum(axis=1), 1.0, rtol=0, atol=1.5e-6)
-    greys = np.repeat(np.arange(256)[:, None], 3, axis=1)
-    np.testing.assert_array_equal(to_rgb8(simulate_cvd(greys / 255.0, kind)), greys)
+    grays = np.repeat(np.arange(256)[:, None], 3, axis=1)
+    np.testing.assert_array_equal(to_rgb8(simulate_cvd(grays / 255.0, kind)), grays)
     np.testing.assert_array_equal(cvd_matrix(kind, 0.0), np.eye(3))  # severity 0: identity (SRC table)
 
 
@@ -135,7 +135,7 @@ def test_simulation_matches_colorspacious_at_random_severities(kind):
         ref = np.clip(colorspacious.cspace_convert(rgb, space, "sRGB1"), 0, 1)
         got = simulate_cvd(rgb, kind, s)
         np.testing.assert_allclose(got, ref, rtol=0, atol=1e-10)
-        assert_colours_close(got, ref, max_delta_e=1e-6)
+        assert_colors_close(got, ref, max_delta_e=1e-6)
 
 
 @pytest.mark.parametrize("rgb8", sorted(PRIMARIES), ids=["blue", "green", "orange", "red"])

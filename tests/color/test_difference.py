@@ -55,7 +55,7 @@ SHARMA_2005 = [
 ]
 
 
-def _colour_de2000(lab1, lab2, textiles=False):
+def _color_de2000(lab1, lab2, textiles=False):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         return colour.difference.delta_E_CIE2000(lab1, lab2, textiles=textiles)
@@ -113,7 +113,7 @@ def test_ciede2000_matches_colour_science_on_random_pairs():
     far = rng.uniform([0, -128, -128], [100, 128, 128], (5000, 3))
     near = lab1 + rng.normal(0, 1.5, (5000, 3))
     for lab2 in (far, near):
-        np.testing.assert_allclose(delta_e_2000(lab1, lab2), _colour_de2000(lab1, lab2), rtol=0, atol=1e-9)
+        np.testing.assert_allclose(delta_e_2000(lab1, lab2), _color_de2000(lab1, lab2), rtol=0, atol=1e-9)
 
 
 def test_ciede2000_parametric_factors():
@@ -122,7 +122,7 @@ def test_ciede2000_parametric_factors():
     rng = np.random.default_rng(22)
     lab1 = rng.uniform([0, -100, -100], [100, 100, 100], (2000, 3))
     lab2 = lab1 + rng.normal(0, 5, (2000, 3))
-    np.testing.assert_allclose(delta_e_2000(lab1, lab2, kL=2.0), _colour_de2000(lab1, lab2, textiles=True),
+    np.testing.assert_allclose(delta_e_2000(lab1, lab2, kL=2.0), _color_de2000(lab1, lab2, textiles=True),
                                rtol=0, atol=1e-9)
     # Doubling every weight halves the difference exactly (CALC from the formula's structure).
     np.testing.assert_allclose(delta_e_2000(lab1, lab2, 2.0, 2.0, 2.0), delta_e_2000(lab1, lab2) / 2,

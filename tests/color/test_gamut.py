@@ -1,7 +1,7 @@
 """sRGB gamut test and gamut mapping by chroma reduction at constant L* and hue.
 
 The rule (reduce C*ab at constant L* and h, never clip channels) is the engine's own convention
-(docs/colour.md); the checks here are properties plus the sRGB cube's corners, whose LCh lie on the
+(docs/color.md); the checks here are properties plus the sRGB cube's corners, whose LCh lie on the
 gamut boundary by definition (IEC 61966-2-1 gamut = the RGB unit cube). Tags: SRC, SRC-2, CALC, MEM.
 """
 from __future__ import annotations
@@ -50,7 +50,7 @@ def test_map_to_gamut_properties(lch):
 
 @settings(max_examples=200, deadline=None)
 @given(st.tuples(unit, unit, unit).map(np.array))
-def test_in_gamut_colours_are_untouched(rgb):
+def test_in_gamut_colors_are_untouched(rgb):
     # Any sRGB colour, taken to LCh, is in gamut and map_to_gamut removes nothing.
     lch = srgb_to_lch(rgb)
     assert bool(lch_in_gamut(lch))
@@ -111,7 +111,7 @@ def test_max_chroma_ends_of_lightness():
 
 
 def test_mapping_is_not_clipping():
-    # Our rule (docs/colour.md): chroma reduction keeps hue; clipping channels does not.
+    # Our rule (docs/color.md): chroma reduction keeps hue; clipping channels does not.
     lch = np.array([60.0, 120.0, 250.0])
     out, removed = map_to_gamut(lch)
     assert removed > 0

@@ -28,7 +28,7 @@ TABLE = [
     ((128, 128, 128), (53.585, 0.005, 0.002), (53.584, 0.004, -0.007), (53.585, 0, 0)),
     ((0x77, 0x77, 0x77), (50.034, 0.004, 0.002), (50.033, 0.004, -0.007), (50.034, 0, 0)),
 ]
-IDS = ["red", "green", "blue", "white", "grey128", "grey77"]
+IDS = ["red", "green", "blue", "white", "gray128", "gray77"]
 
 
 def test_white_is_xy_derived_d65():
@@ -40,7 +40,7 @@ def test_white_is_xy_derived_d65():
 
 
 @pytest.mark.parametrize("rgb8, cs_col, csp_col, seven_col", TABLE, ids=IDS)
-def test_lab_of_reference_colours_matches_colour_science(rgb8, cs_col, csp_col, seven_col):
+def test_lab_of_reference_colors_matches_colour_science(rgb8, cs_col, csp_col, seven_col):
     rgb = np.array(rgb8) / 255.0
     lab = srgb_to_lab(rgb)
     # Reference library, computed live: colour.XYZ_to_Lab(colour.sRGB_to_XYZ(rgb)). Our convention
@@ -51,7 +51,7 @@ def test_lab_of_reference_colours_matches_colour_science(rgb8, cs_col, csp_col, 
 
 
 @pytest.mark.parametrize("rgb8, cs_col, csp_col, seven_col", TABLE, ids=IDS)
-def test_lab_of_reference_colours_other_conventions(rgb8, cs_col, csp_col, seven_col):
+def test_lab_of_reference_colors_other_conventions(rgb8, cs_col, csp_col, seven_col):
     # CALC, references.md §1, colorspacious and 7-digit-matrix columns: other conventions (other
     # white, other matrix rounding). Tolerances recommended there for cross-convention comparison:
     # 0.02 on L*, 0.05 on a*, b* (observed spread up to 0.016).
@@ -97,7 +97,7 @@ def test_lightness_at_segment_joint():
     assert xyz_to_lab(WHITE_D65 * 1e-3)[0] == pytest.approx((29 / 3) ** 3 * 1e-3, abs=1e-12)
 
 
-def test_greys_are_neutral_and_monotone():
+def test_grays_are_neutral_and_monotone():
     # CALC: with the xy-derived white, sRGB greys sit within 0.01 of the neutral axis (references.md
     # §1 table: a*, b* <= 0.008 for white) and L* rises with the code.
     g = np.repeat(np.arange(256)[:, None], 3, axis=1) / 255.0

@@ -16,7 +16,7 @@ WHITE = (1.0, 1.0, 1.0)
 BLACK = (0.0, 0.0, 0.0)
 
 
-def grey(code: int) -> tuple[float, float, float]:
+def gray(code: int) -> tuple[float, float, float]:
     return (code / 255.0,) * 3
 
 
@@ -28,10 +28,10 @@ def test_weights_are_wcag():
 # CALC (references.md §5) from the SRC definitions; quoted to 4 decimals -> tolerance 5e-5.
 @pytest.mark.parametrize("fg, bg, expected", [
     (BLACK, WHITE, 21.0),
-    (grey(0x77), WHITE, 4.4781),
-    (grey(0x76), WHITE, 4.5422),
-    (grey(0x94), WHITE, 3.0335),
-    (grey(0x95), WHITE, 2.9953),
+    (gray(0x77), WHITE, 4.4781),
+    (gray(0x76), WHITE, 4.5422),
+    (gray(0x94), WHITE, 3.0335),
+    (gray(0x95), WHITE, 2.9953),
     ((1.0, 0.0, 0.0), WHITE, 3.9985),
     ((0.0, 0.0, 1.0), WHITE, 8.5925),
     ((0.0, 1.0, 0.0), BLACK, 15.3040),
@@ -47,15 +47,15 @@ def test_black_white_is_exactly_21():
     assert contrast_ratio(WHITE, WHITE) == 1.0
 
 
-def test_threshold_greys_on_white():
+def test_threshold_grays_on_white():
     # SRC thresholds (SC 1.4.3 text 4.5:1, SC 1.4.11 / large text 3:1), not rounded ("2.999:1 would
     # not meet the 3:1 threshold", WCAG understanding document, SRC-2). CALC (references.md §5):
     # #767676 is the lightest grey that passes 4.5 on white, #949494 the lightest that passes 3.
-    assert contrast_ratio(grey(0x77), WHITE) < 4.5
-    assert contrast_ratio(grey(0x76), WHITE) >= 4.5
-    assert contrast_ratio(grey(0x94), WHITE) >= 3.0
-    assert contrast_ratio(grey(0x95), WHITE) < 3.0
-    ratios = contrast_ratio(np.array([grey(c) for c in range(256)]), WHITE)
+    assert contrast_ratio(gray(0x77), WHITE) < 4.5
+    assert contrast_ratio(gray(0x76), WHITE) >= 4.5
+    assert contrast_ratio(gray(0x94), WHITE) >= 3.0
+    assert contrast_ratio(gray(0x95), WHITE) < 3.0
+    ratios = contrast_ratio(np.array([gray(c) for c in range(256)]), WHITE)
     assert np.flatnonzero(ratios >= 4.5).max() == 0x76
     assert np.flatnonzero(ratios >= 3.0).max() == 0x94
 

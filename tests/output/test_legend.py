@@ -42,7 +42,7 @@ def test_png_size_ratio_and_not_blank(drawn):
     assert (rgb < 250).any(axis=-1).mean() > 0.05
 
 
-def test_continuous_bars_show_the_lut_colour_at_each_value(drawn):
+def test_continuous_bars_show_the_lut_color_at_each_value(drawn):
     layout, layers, rgb = drawn
     checked = 0
     for box in layout.bars:
@@ -63,7 +63,7 @@ def test_continuous_bars_show_the_lut_colour_at_each_value(drawn):
     assert checked >= 50
 
 
-def test_stepped_bar_shows_each_class_colour(drawn):
+def test_stepped_bar_shows_each_class_color(drawn):
     layout, layers, rgb = drawn
     box = next(b for b in layout.bars if b.layer == "growth-classes")
     lut = layers["growth-classes"].lut

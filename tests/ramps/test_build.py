@@ -245,7 +245,7 @@ def test_twin_violations_are_reported():
 
 # --- nodata and sampling keys -------------------------------------------------------------------
 
-def test_automatic_nodata_is_a_neutral_grey_off_the_ramp():
+def test_automatic_nodata_is_a_neutral_gray_off_the_ramp():
     ramps = make(land=GOOD_SEQ, change=DIV, cover=_classes(GOOD_QUAL))
     for ramp in ramps.values():
         lut = ramp.lut()
@@ -263,7 +263,7 @@ def test_given_nodata_is_kept_even_when_poor():
     assert not verdicts(ramp)["ramp.nodata-separation"]
 
 
-def test_under_and_over_default_to_the_end_colours_and_can_be_given():
+def test_under_and_over_default_to_the_end_colors_and_can_be_given():
     ramp = make(land=GOOD_SEQ)["land"]
     lut = ramp.lut()
     assert lut.rgb8[lut.under_index].tolist() == lut.rgb8[0].tolist()

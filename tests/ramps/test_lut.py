@@ -36,7 +36,7 @@ def test_continuous_index_is_the_nearest_entry():
     assert lut.index(img).shape == (50, 100)
 
 
-def test_lab_is_the_cielab_of_the_drawn_8bit_colours():
+def test_lab_is_the_cielab_of_the_drawn_8bit_colors():
     import colour
     lut = make(land=SEQ)["land"].lut(samples=16)
     ref = colour.XYZ_to_Lab(colour.sRGB_to_XYZ(lut.rgb8 / 255.0))

@@ -63,7 +63,7 @@ def test_qualitative_metrics_against_colour_science():
     assert m.class_count == 6 and m.lightness_monotone is None and m.step_cv is None
 
 
-def test_stepped_metrics_use_the_class_colours():
+def test_stepped_metrics_use_the_class_colors():
     ramp = make(land={**SEQ, "steps": 5})["land"]
     m = ramp_metrics(ramp)
     classes = ramp.lut().rgb8[:5].astype(float)

@@ -74,7 +74,7 @@ def test_bad_tables(table, part):
     assert part in message
 
 
-def test_colour_outside_srgb_is_an_error_naming_the_stop():
+def test_color_outside_srgb_is_an_error_naming_the_stop():
     with pytest.raises(ColorError, match=r'styles/x.toml: ramp "sea": through\[1\]: .* is outside sRGB'):
         parse_ramp("sea", {**SEQ, "through": [lch(95, 10, 100), lch(30, 60, 250)]}, Path("styles/x.toml"))
 

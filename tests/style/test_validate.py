@@ -8,7 +8,7 @@ import pytest
 from compose.errors import ColorError, StyleError
 from compose.style import load_style
 from compose.style.validate import (Scope, check_choice, check_keys, number, pair, suggest)
-from tests.conftest import assert_colours_close
+from tests.conftest import assert_colors_close
 from tests.style.conftest import MAP, RELIEF
 
 
@@ -199,7 +199,7 @@ def test_unknown_ramp_lists_ramps(style):
     assert "unknown ramp 'x'; ramps: none are defined" in error(style, body)
 
 
-def test_colours_hex_and_lch(style):
+def test_colors_hex_and_lch(style):
     s = load_style(style(layer('stroke = "#336699"\nhalo = { color = { L = 50, C = 30, h = 200 } }')))
     o = s.layers[0].options
     # CSS Color Module Level 4, hex notation: each pair is one 8-bit channel
@@ -208,7 +208,7 @@ def test_colours_hex_and_lch(style):
     # differs from colour-science's derived one by ~1e-4 in sRGB, far below 0.05 dE00
     lab = colour.LCHab_to_Lab(np.array([50.0, 30.0, 200.0]))
     ref = colour.XYZ_to_sRGB(colour.Lab_to_XYZ(lab))
-    assert_colours_close(o.halo.color, ref, max_delta_e=0.05)
+    assert_colors_close(o.halo.color, ref, max_delta_e=0.05)
 
 
 def test_out_of_gamut_lch_names_the_key(style):
@@ -223,7 +223,7 @@ def test_out_of_gamut_lch_names_the_key(style):
     assert "style.toml: layer" in msg
 
 
-def test_bad_colour_string_names_the_key(style):
+def test_bad_color_string_names_the_key(style):
     with pytest.raises(ColorError, match=r"layer \"relief\": tint: 'beige' is not a colour"):
         load_style(style(RELIEF + "tint = 'beige'\n"))
     with pytest.raises(ColorError, match=r"map.background: '#12' is not a colour"):
