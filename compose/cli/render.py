@@ -53,6 +53,8 @@ def command(style: Path, out_dir: Path, overwrite: bool) -> None:
     from compose.render import render_style
     from compose.style import load_style
 
-    result = render_style(load_style(style), out_dir, overwrite=overwrite,
-                          progress=progress_bar("rendering"))
+    loaded = load_style(style)
+    for note in loaded.canvas_plan().notes:
+        click.echo(f"note: {note}", err=True)
+    result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"))
     print_summary(result)

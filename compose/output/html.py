@@ -304,6 +304,7 @@ def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray
     if proofs is None:
         proofs, origin = page_proofs(preview, style.name, None, None, None)
     title = style.map.title or style.name
+    grid = style.canvas()
     # a small map is enlarged on screen: show its pixels rather than a blur
     pixelated = ' style="image-rendering: pixelated"' if preview.shape[1] < 500 else ""
     nav = "".join(f'<a href="#{a}">{t}</a>' for a, t in (
@@ -312,7 +313,7 @@ def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray
     body = f"""<header>
 <h1>{esc(title)}</h1>
 <p class="sub">Proof page of <code>{esc(style.name)}</code> · {result.width} × {result.height} px ·
-{esc(style.map.crs)} · {style.map.pixel:g} units per pixel</p>
+{esc(grid.crs)} · {grid.pixel:g} units per pixel</p>
 <p class="caution" role="note">{esc(CAUTION)}</p>
 {_headline(report)}
 </header>

@@ -216,7 +216,8 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
     if "map" in merged:
         spec = build_from_table(MapSpec, merged["map"], Scope("", ("map",)))
     elif require_map:
-        raise StyleError("no [map] table; a style to render needs map.crs, map.extent and map.pixel")
+        raise StyleError("no [map] table; a style to render needs map.crs, map.extent and map.pixel "
+                         "(or map.like = \"a raster layer's name\")")
     else:
         spec = None
     budgets = build_from_table(Budgets, merged["budget"], Scope("", ("budget",)))
@@ -230,6 +231,14 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
             layers.append(parse_layer(table, ramps))
     if require_map and not layers:
         raise StyleError("the style has no layers; add at least one [[layer]]")
+    if spec is not None and spec.like is not None:
+        like = next((l for l in layers if l.name == spec.like), None)
+        if like is None:
+            names = ", ".join(l.name for l in layers) or "none"
+            raise StyleError(f'map.like: no enabled layer named "{spec.like}"; layers: {names}')
+        if not LAYER_KINDS[like.kind].raster:
+            raise StyleError(f'map.like: layer "{like.name}" is a {like.kind} layer; like needs a '
+                             "raster layer (relief, field or classes)")
     name = spec.name if spec is not None and spec.name else top.path.stem
     return Style(path=top.path, name=name, map=spec, budgets=budgets, ramps=ramps,
                  layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files))

@@ -15,8 +15,8 @@ from typing import Any
 from compose.canvas import Canvas
 from compose.errors import StyleError
 from compose.style.kinds import LayerOptions
-from compose.style.validate import (RGB, Scope, as_table, build_from_table, color, number, option,
-                                    pair, string, table_of)
+from compose.style.validate import (RGB, Scope, as_table, build_from_table, color, integer,
+                                    missing_keys, number, option, pair, string, table_of)
 
 __all__ = [
     "ROLES", "BLEND_MODES", "MapSpec", "GroundBudget", "ThemeBudget", "OverlayBudget",
@@ -65,18 +65,36 @@ def _stem(value: Any, at: Scope) -> str:
 class MapSpec:
     """``[map]``: the output grid and what lies under the first layer.
 
-    crs: as written (validated by pyproj); extent: (west, south, east, north) in CRS units;
-    pixel: CRS units per output pixel (> 0); dpi: dots per inch (> 0) for widths in points.
-    name: the output stem if stated (else the style's file stem, see :attr:`Style.name`).
+    crs: as written (validated by pyproj); extent: (west, south, east, north) in CRS units, or in
+    ``extent_crs`` when that is given; pixel: CRS units per output pixel (> 0), or ``width``:
+    pixels across; like: the name of a raster layer whose CRS, extent and pixel size fill in
+    whatever of those three is not stated (see :mod:`compose.style.grid`). dpi: dots per inch
+    (> 0) for widths in points. name: the output stem if stated (else the style's file stem,
+    see :attr:`Style.name`).
     """
 
     name: str | None = option(_stem, None)
     title: str = option(string(), "")
-    crs: str = option(_crs)
-    extent: tuple[float, float, float, float] = option(_extent)
-    pixel: float = option(number(gt=0))
+    crs: str | None = option(_crs, None)
+    extent: tuple[float, float, float, float] | None = option(_extent, None)
+    extent_crs: str | None = option(_crs, None)
+    pixel: float | None = option(number(gt=0), None)
+    width: int | None = option(integer(ge=1), None)
+    like: str | None = option(string(), None)
     dpi: float = option(number(gt=0), 300.0)
     background: RGB = option(color(), (1.0, 1.0, 1.0))
+
+    def __post_init__(self) -> None:
+        if self.pixel is not None and self.width is not None:
+            raise StyleError("map: give pixel (CRS units per pixel) or width (pixels across), not both")
+        if self.like is None:
+            missing = [k for k in ("crs", "extent") if getattr(self, k) is None]
+            if self.pixel is None and self.width is None:
+                missing.append("pixel")
+            if missing:
+                error = missing_keys(missing, Scope("", ("map",)))
+                raise StyleError(f"{error} (pixel may be width, pixels across; or take the grid "
+                                 "from a raster layer: like = \"layer name\")")
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -197,8 +215,11 @@ class Style:
     chain: tuple[Path, ...]
 
     def canvas(self) -> Canvas:
-        """The output grid of ``[map]``."""
-        if self.map is None:
-            raise StyleError(f"{self.path}: no [map] table, so there is no canvas")
-        m = self.map
-        return Canvas.from_extent(m.crs, m.extent, m.pixel, m.dpi)
+        """The output grid of ``[map]`` (see :func:`compose.style.grid.plan_canvas`)."""
+        return self.canvas_plan().canvas
+
+    def canvas_plan(self):
+        """The output grid and notes on how it was derived or rounded
+        (:class:`compose.style.grid.CanvasPlan`)."""
+        from compose.style.grid import plan_canvas
+        return plan_canvas(self)
