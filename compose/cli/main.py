@@ -60,7 +60,8 @@ class LazyGroup(click.Group):
 
 
 @click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(__version__, prog_name="compose")
+@click.version_option(__version__, prog_name="compose",
+                      message="%(prog)s %(version)s (distribution compose-maps)")
 def cli():
     """Compose layered thematic maps from a TOML style and check their visual hierarchy.
 
