@@ -202,7 +202,9 @@ LayerOptions = (ReliefOptions | FieldOptions | ClassesOptions | LineOptions | Ar
 
 @dataclass(frozen=True, slots=True)
 class KindSchema:
-    """One layer kind: its name, options dataclass and whether it reads a raster.
+    """One layer kind: its name, options dataclass, whether it reads a raster and the roles a
+    layer of this kind may play (the checker judges each role by its own rules, so a pair
+    outside ``roles`` would silently skip them).
 
     The options class declares the allowed keys, their readers (types, ranges) and defaults.
     """
@@ -210,6 +212,7 @@ class KindSchema:
     name: str
     options: type
     raster: bool
+    roles: tuple[str, ...] = ("ground", "theme", "overlay")
 
     @property
     def keys(self) -> tuple[str, ...]:
@@ -226,12 +229,15 @@ class KindSchema:
         return build_from_table(self.options, as_table(table, at), at)
 
 
+# Allowed roles: a relief is ground; a data raster is a theme (or a quiet ground, e.g. a land
+# mask drawn through a pale ramp); marks and labels are overlays; areas are overlays or a ground
+# (land and water fills under everything).
 LAYER_KINDS: dict[str, KindSchema] = {
-    "relief": KindSchema("relief", ReliefOptions, raster=True),
-    "field": KindSchema("field", FieldOptions, raster=True),
-    "classes": KindSchema("classes", ClassesOptions, raster=True),
-    "lines": KindSchema("lines", LineOptions, raster=False),
-    "areas": KindSchema("areas", AreaOptions, raster=False),
-    "points": KindSchema("points", PointOptions, raster=False),
-    "labels": KindSchema("labels", LabelOptions, raster=False),
+    "relief": KindSchema("relief", ReliefOptions, raster=True, roles=("ground",)),
+    "field": KindSchema("field", FieldOptions, raster=True, roles=("theme", "ground")),
+    "classes": KindSchema("classes", ClassesOptions, raster=True, roles=("theme", "ground")),
+    "lines": KindSchema("lines", LineOptions, raster=False, roles=("overlay",)),
+    "areas": KindSchema("areas", AreaOptions, raster=False, roles=("overlay", "ground")),
+    "points": KindSchema("points", PointOptions, raster=False, roles=("overlay",)),
+    "labels": KindSchema("labels", LabelOptions, raster=False, roles=("overlay",)),
 }

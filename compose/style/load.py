@@ -199,9 +199,13 @@ def parse_layer(table: Mapping, ramps: Mapping[str, Any]) -> LayerSpec:
     if ramp is not None and ramp not in ramps:
         known = ", ".join(sorted(ramps)) if ramps else "none are defined"
         raise StyleError(f"{at.path}: unknown ramp {ramp!r}; ramps: {known}")
+    role = check_choice(table["role"], ROLES, at.at("role"), "layer role")
+    if role not in schema.roles:
+        raise StyleError(f"{at.at('role').path}: a {schema.name} layer cannot be {role!r} (its "
+                         f"rules would not be applied); allowed: {', '.join(schema.roles)}")
     return LayerSpec(
         name=name,
-        role=check_choice(table["role"], ROLES, at.at("role"), "layer role"),
+        role=role,
         kind=schema.name,
         source=Path(string()(table["source"], at.at("source"))),
         blend=check_choice(table.get("blend", "normal"), BLEND_MODES, at.at("blend"), "blend mode"),

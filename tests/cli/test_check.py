@@ -42,3 +42,13 @@ def test_check_invalid_style_exits_2_with_one_line(tmp_path):
     assert res.exit_code == 2
     assert res.output.strip().count("\n") == 0 and "compose: error:" in res.output
     assert _run(["check", str(tmp_path / "missing.toml")]).exit_code == 2
+
+
+def test_relief_as_overlay_is_a_style_error_exit_2(tmp_path):
+    # Before issue 10 this map passed with the ground rules silently skipped.
+    data = make_data(tmp_path / "src")
+    path = write_style(tmp_path, style([relief(data["hills"], role="overlay")]))
+    res = _run(["check", str(path)])
+    assert res.exit_code == 2
+    assert 'layer "relief": role: a relief layer cannot be \'overlay\'' in res.output
+    assert res.output.strip().count("\n") == 0

@@ -9,7 +9,8 @@ from tests.style.conftest import MAP
 
 
 def lay(name: str, kind: str = "lines", extra: str = "") -> str:
-    return f'[[layer]]\nname = "{name}"\nrole = "overlay"\nkind = "{kind}"\nsource = "{name}.gpkg"\n{extra}\n'
+    role = "theme" if kind in ("field", "classes") else "overlay"
+    return f'[[layer]]\nname = "{name}"\nrole = "{role}"\nkind = "{kind}"\nsource = "{name}.gpkg"\n{extra}\n'
 
 
 BASE = MAP + '''

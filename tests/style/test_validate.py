@@ -228,3 +228,39 @@ def test_bad_color_string_names_the_key(style):
         load_style(style(RELIEF + "tint = 'beige'\n"))
     with pytest.raises(ColorError, match=r"map.background: '#12' is not a colour"):
         load_style(style(RELIEF, map_=MAP + "background = '#12'\n"))
+
+
+# --- role x kind (issue 10: a relief as "overlay" silently skipped the ground rules) ----------
+
+@pytest.mark.parametrize("kind, role, allowed", [
+    ("relief", "overlay", "ground"),
+    ("relief", "theme", "ground"),
+    ("field", "overlay", "theme, ground"),
+    ("classes", "overlay", "theme, ground"),
+    ("lines", "ground", "overlay"),
+    ("points", "theme", "overlay"),
+    ("labels", "ground", "overlay"),
+    ("areas", "theme", "overlay, ground"),
+])
+def test_role_kind_pairs_outside_the_allowed_ones_are_errors(style, kind, role, allowed):
+    body = (f'[ramp.r]\nkind = "sequential"\ndomain = [0, 1]\n'
+            f'through = [{{L = 90, C = 10, h = 90}}, {{L = 40, C = 40, h = 140}}]\n'
+            f'[[layer]]\nname = "x"\nrole = "{role}"\nkind = "{kind}"\nsource = "x.tif"\n'
+            + ('ramp = "r"\n' if kind in ("field", "classes") else "")
+            + ('text = "name"\n' if kind == "labels" else ""))
+    msg = error(style, body)
+    assert f'layer "x": role: a {kind} layer cannot be {role!r}' in msg
+    assert msg.endswith(f"allowed: {allowed}")
+
+
+@pytest.mark.parametrize("kind, role", [("relief", "ground"), ("field", "theme"), ("field", "ground"),
+                                        ("classes", "ground"), ("lines", "overlay"),
+                                        ("areas", "ground"), ("areas", "overlay"),
+                                        ("points", "overlay"), ("labels", "overlay")])
+def test_allowed_role_kind_pairs_load(style, kind, role):
+    body = (f'[ramp.r]\nkind = "sequential"\ndomain = [0, 1]\n'
+            f'through = [{{L = 90, C = 10, h = 90}}, {{L = 40, C = 40, h = 140}}]\n'
+            f'[[layer]]\nname = "x"\nrole = "{role}"\nkind = "{kind}"\nsource = "x.tif"\n'
+            + ('ramp = "r"\n' if kind in ("field", "classes") else "")
+            + ('text = "name"\n' if kind == "labels" else ""))
+    assert load_style(style(body)).layers[0].role == role
