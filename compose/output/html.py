@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
+from compose.color.interface import MARKS
 from compose.output.html_css import CSS
 from compose.output.html_images import (PAGE_WIDTH, PREVIEW_SIDE, PreviewSink, box_reduce,
                                         figure_uri, jpeg_uri, layer_previews, page_proofs,
@@ -98,7 +99,7 @@ def _headline(report) -> str:
                     f"{esc(r.fix or r.message)}</li>" for r in list(fails)[:6])
     more = f'<li class="muted">… and {len(fails) - 6} more</li>' if len(fails) > 6 else ""
     listing = f"<ul>{items}{more}</ul>" if items else ""
-    return (f'<div class="verdict {cls}" id="verdict"><strong>Check {word}</strong>'
+    return (f'<div class="verdict {cls}" id="verdict"><strong>{MARKS[cls]} Check {word}</strong>'
             f"<span>{esc(text)}</span>{listing}</div>")
 
 
@@ -182,8 +183,8 @@ def _layers_section(previews, style, result, report, ramps) -> str:
         results = [r for r in (report.rules if report is not None else ()) if r.layer == spec.name]
         passed = all(r.passed for r in results) if results else None
         verdict = ("" if passed is None else
-                   f'<span class="tag" style="color:{"#2e6b30" if passed else "#b3261e"}">'
-                   f'{"all rules pass" if passed else "fails " + ", ".join(sorted({r.rule for r in results if not r.passed}))}</span>')
+                   f'<span class="tag {"pass" if passed else "fail"}">'
+                   f'{MARKS["pass"] + " all rules pass" if passed else MARKS["fail"] + " fails " + ", ".join(sorted({r.rule for r in results if not r.passed}))}</span>')
         ramp = getattr(spec.options, "ramp", None)
         tags = [spec.role, spec.kind, f"blend {spec.blend}"]
         if spec.opacity < 1:

@@ -3,14 +3,14 @@ about 1000 px wide up, and an A4 print layout (a page break before each section,
 backgrounds, images at most the page width)."""
 from __future__ import annotations
 
+from compose.color.interface import css_variables
+
 __all__ = ["CSS"]
 
-CSS = """
-:root { color-scheme: light; --ink: #1f1f1f; --muted: #666; --rule: #dedede; --paper: #fff;
-  --fail: #b3261e; --fail-bg: #fdecea; --warn: #8a5a00; --warn-bg: #fff4d6;
-  --pass: #2e6b30; --pass-bg: #e9f5e9; --accent: #1f4e79; }
+# every colour is a variable from compose.color.interface (our own LCh choices)
+CSS = ":root { color-scheme: light; " + css_variables() + " }\n" + """
 * { box-sizing: border-box; }
-html { background: #f4f4f2; }
+html { background: var(--surround); }
 body { margin: 0; color: var(--ink); background: var(--paper);
   font: 15px/1.45 system-ui, -apple-system, "Segoe UI", Roboto, "DejaVu Sans", "Liberation Sans",
   Arial, sans-serif; max-width: 1400px; margin-inline: auto; padding: 0 28px 40px; }
@@ -20,17 +20,17 @@ h2 { font-size: 1.25rem; margin: 0 0 10px; padding-top: 8px; }
 h3 { font-size: 1rem; margin: 0 0 6px; }
 .sub, .note, figcaption, .muted { color: var(--muted); }
 .sub { margin: 0 0 12px; font-size: 0.92rem; }
-.caution { border: 2px solid #c77700; background: #fff7e8; padding: 8px 12px; margin: 10px 0;
+.caution { border: 2px solid var(--caution-edge); background: var(--caution-bg); padding: 8px 12px; margin: 10px 0;
   font-weight: 600; border-radius: 4px; color: var(--ink); }
 .caution::before { content: "\\26A0\\FE0E  "; }
 .verdict { display: flex; flex-wrap: wrap; gap: 6px 18px; align-items: baseline; padding: 10px 14px;
   border-radius: 4px; margin: 10px 0 4px; border: 1px solid; }
 .verdict strong { font-size: 1.35rem; }
-.verdict.fail { background: var(--fail-bg); border-color: #f0b8b3; color: var(--fail); }
-.verdict.pass { background: var(--pass-bg); border-color: #b9dcb9; color: var(--pass); }
-.verdict.none { background: #f3f3f3; border-color: var(--rule); color: var(--muted); }
+.verdict.fail { background: var(--fail-bg); border-color: var(--fail-edge); color: var(--fail); }
+.verdict.pass { background: var(--pass-bg); border-color: var(--pass-edge); color: var(--pass); }
+.verdict.none { background: var(--panel); border-color: var(--rule); color: var(--muted); }
 .verdict ul { margin: 0; padding-left: 1.1em; color: var(--ink); font-size: 0.92rem; }
-nav { position: sticky; top: 0; z-index: 2; background: rgba(255,255,255,0.96);
+nav { position: sticky; top: 0; z-index: 2; background: var(--paper);
   border-bottom: 1px solid var(--rule); padding: 6px 0; margin-bottom: 8px; font-size: 0.92rem; }
 nav a { color: var(--accent); text-decoration: none; margin-right: 16px; white-space: nowrap; }
 nav a:hover { text-decoration: underline; }
@@ -51,8 +51,9 @@ img.map { width: 100%; border: 1px solid var(--rule); }
 .layer header { border: 0; padding: 0 0 6px; display: flex; flex-wrap: wrap; gap: 4px 14px;
   align-items: baseline; }
 .layer header h3 { margin: 0; font-size: 1.05rem; }
-.tag { font-size: 0.78rem; padding: 1px 7px; border-radius: 9px; background: #eef2f6;
-  color: var(--accent); border: 1px solid #d5dfe9; }
+.tag { font-size: 0.78rem; padding: 1px 7px; border-radius: 9px; background: var(--accent-bg);
+  color: var(--accent); border: 1px solid var(--accent-edge); }
+.tag.pass { color: var(--pass); } .tag.fail { color: var(--fail); }
 .cells { display: grid; grid-template-columns: repeat(3, minmax(0, 1fr)); gap: 12px; }
 .cells img { width: 100%; }
 .cells .plot { grid-column: 3; }
@@ -60,22 +61,22 @@ img.map { width: 100%; border: 1px solid var(--rule); }
 .numbers span { margin-right: 14px; white-space: nowrap; }
 table { border-collapse: collapse; width: 100%; font-size: 0.86rem; }
 th, td { text-align: left; vertical-align: top; padding: 5px 8px; border-bottom: 1px solid var(--rule); }
-thead th { border-bottom: 2px solid #bdbdbd; font-weight: 600; background: #fafafa; }
+thead th { border-bottom: 2px solid var(--frame); font-weight: 600; background: var(--panel); }
 td.num { font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.rule code { font-weight: 600; }
 td .msg { color: var(--muted); font-size: 0.8rem; margin-top: 2px; }
 td.fix { max-width: 34em; }
 .v { display: inline-block; min-width: 3.6em; text-align: center; font-weight: 700;
   border-radius: 3px; padding: 0 5px; font-size: 0.8rem; }
-li.fail .v, tr.fail .v { background: var(--fail-bg); color: var(--fail); border: 1px solid #f0b8b3; }
-li.warn .v, tr.warn .v { background: var(--warn-bg); color: var(--warn); border: 1px solid #f1d58f; }
-li.pass .v, tr.pass .v { background: var(--pass-bg); color: var(--pass); border: 1px solid #b9dcb9; }
-tr.fail td { background: #fffafa; }
+li.fail .v, tr.fail .v { background: var(--fail-bg); color: var(--fail); border: 1px solid var(--fail-edge); }
+li.warn .v, tr.warn .v { background: var(--warn-bg); color: var(--warn); border: 1px solid var(--warn-edge); }
+li.pass .v, tr.pass .v { background: var(--pass-bg); color: var(--pass); border: 1px solid var(--pass-edge); }
+tr.fail td { background: var(--fail-row); }
 .ramps { display: grid; grid-template-columns: repeat(auto-fill, minmax(540px, 1fr)); gap: 18px; }
 ul.proof-rules { list-style: none; padding: 0; font-size: 0.86rem; }
 ul.proof-rules li { margin: 2px 0; }
 .ramps img { width: 100%; border: 1px solid var(--rule); }
-pre { background: #fafafa; border: 1px solid var(--rule); padding: 12px; overflow-x: auto;
+pre { background: var(--panel); border: 1px solid var(--rule); padding: 12px; overflow-x: auto;
   font: 0.82rem/1.4 ui-monospace, "DejaVu Sans Mono", "Liberation Mono", Menlo, Consolas, monospace;
   white-space: pre-wrap; word-break: break-word; }
 dl.facts { display: grid; grid-template-columns: max-content 1fr; gap: 2px 14px; font-size: 0.88rem;
@@ -95,7 +96,7 @@ footer { padding: 16px 0; font-size: 0.85rem; color: var(--muted); }
 }
 @media print {
   @page { size: A4; margin: 12mm; }
-  html, body { background: #fff; }
+  html, body { background: var(--paper); }
   body { max-width: none; padding: 0; font-size: 9.5pt; }
   nav { display: none; }
   section { border: 0; padding: 0; break-before: page; }

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
+from compose.color import interface as ui
 from compose.output.thumb import BoxThumbnail
 
 __all__ = ["PAGE_WIDTH", "PREVIEW_SIDE", "PROOF_KINDS", "PreviewSink", "box_reduce",
@@ -77,7 +78,7 @@ def png_uri(data: bytes) -> str:
 def figure_uri(fig, dpi: float = 110) -> str:
     """A matplotlib Figure rendered to a PNG ``data:`` URI."""
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi, facecolor="white")
+    fig.savefig(buf, format="png", dpi=dpi, facecolor=ui.PAPER.hex)
     return png_uri(buf.getvalue())
 
 

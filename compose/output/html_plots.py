@@ -18,15 +18,12 @@ import numpy as np
 
 from compose.check.stats import CONTRAST_STEP, N_CONTRAST
 from compose.color.lab import lab_to_srgb, srgb_to_lch, xyz_to_lab
+from compose.color import interface as ui
 from compose.color.wcag import relative_luminance
 
 __all__ = ["budget_figure", "lightness_chroma_figure", "overlay_figure", "ground_reserve"]
 
-INK = "#262626"
-MUTED = "#777777"
-PASS = "#2e7d32"
-FAIL = "#c62828"
-BOX = "#1f4e79"
+INK, MUTED, BOX, GRID = ui.INK.hex, ui.MUTED.hex, ui.ACCENT.hex, ui.GRID.hex
 FIG_W, FIG_H = 4.2, 3.3     # inches
 
 
@@ -34,7 +31,7 @@ def _axes_style(ax) -> None:
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
     ax.tick_params(labelsize=8, colors=INK)
-    ax.grid(True, color="#ececec", lw=0.6, zorder=0)
+    ax.grid(True, color=GRID, lw=0.6, zorder=0)
 
 
 def _lightness_of_y(y: float) -> float:
@@ -77,8 +74,8 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
     share = weights / weights.sum()
     size = 6 + 220 * np.sqrt(share / share.max())
     ax.scatter(lch[order, 1], lch[order, 0], s=size[order], c=colors[order] / 255.0,
-               edgecolors="#8a8a8a", linewidths=0.3, zorder=3)
-    verdict = MUTED if passed is None else (PASS if passed else FAIL)
+               edgecolors=ui.DOT_EDGE.hex, linewidths=0.3, zorder=3)
+    verdict = ui.verdict_color(passed).hex
     ax.add_patch(Rectangle((c5, l5), max(c95 - c5, 0.15), l95 - l5, fill=False, ls=":",
                            edgecolor=verdict, lw=1.2, zorder=4))
     if spec.role == "ground":
@@ -91,7 +88,7 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
         title = f"L* p5–p95 {l5:.1f}–{l95:.1f}   C* p95 {c95:.1f}"
     elif theme:
         if reserve is not None:
-            ax.axvspan(0, reserve, color="#9e9e9e", alpha=0.12, zorder=1, lw=0)
+            ax.axvspan(0, reserve, color=ui.SHADE.hex, alpha=0.12, zorder=1, lw=0)
             ax.text(reserve / 2, 3, "kept for\nthe ground", fontsize=6.5, color=MUTED, ha="center",
                     va="bottom")
         cmax = float(tb.chroma[1])
@@ -106,7 +103,7 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
             ax.text(tb.chroma[0], 101, f"min p50 {tb.chroma[0]:g}", fontsize=7, color=BOX,
                     ha="left", va="bottom")
         ax.plot([c50], [0.8], marker="^", ms=7, color=verdict, clip_on=False, zorder=5)
-        ax.plot([c95], [0.8], marker="^", ms=5, color=verdict, mfc="white", clip_on=False, zorder=5)
+        ax.plot([c95], [0.8], marker="^", ms=5, color=verdict, mfc=ui.PAPER.hex, clip_on=False, zorder=5)
         title = f"C* p50 {c50:.1f} (▲)   p95 {c95:.1f} (△)   L* {l5:.0f}–{l95:.0f}"
     else:
         title = f"L* p5–p95 {l5:.1f}–{l95:.1f}   C* p95 {c95:.1f}"
@@ -115,6 +112,9 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
     ax.set_xlabel("chroma C*ab", fontsize=8.5, color=INK)
     ax.set_ylabel("lightness L*", fontsize=8, color=INK)
     fig.text(0.02, 0.965, title, fontsize=8, color=INK, va="top")
+    if passed is not None:   # the verdict in a mark and a word, not by colour alone
+        fig.text(0.98, 0.965, ui.verdict_mark(passed), fontsize=8, color=verdict, va="top",
+                 ha="right", weight="bold")
     fig.text(0.02, 0.905, "dots: the layer's colours, area ∝ pixels; dotted: measured p5–p95",
              fontsize=6.5, color=MUTED, va="top")
     return fig
@@ -148,16 +148,16 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     y = float(relative_luminance(rgb))
     L = float(srgb_to_lch(rgb)[0])
     limit = j["limit"]
-    verdict = MUTED if passed is None else (PASS if passed else FAIL)
+    verdict = ui.verdict_color(passed).hex
     a1 = fig.add_axes((0.12, 0.58, 0.84, 0.27))
     _axes_style(a1)
     hist = np.asarray(part.beneath_lightness, dtype=float)
     total = hist.sum()
     x = np.arange(hist.size)
     lo, hi = _failing_band(y, limit)
-    a1.axvspan(lo, hi, color=FAIL, alpha=0.09, lw=0, zorder=1)
+    a1.axvspan(lo, hi, color=ui.FAIL.hex, alpha=0.09, lw=0, zorder=1)
     a1.bar(x, 100 * hist / max(total, 1e-12), width=1.0, color=_gray(x.astype(float)),
-           edgecolor="#6f6f6f", linewidth=0.4, zorder=2, label=f"beneath the {j['part']}")
+           edgecolor=ui.BAR_EDGE.hex, linewidth=0.4, zorder=2, label=f"beneath the {j['part']}")
     if j["outline"] is not None and j["outline"].beneath_lightness is not None:
         oh = np.asarray(j["outline"].beneath_lightness, dtype=float)
         scale = (hist.max() / max(total, 1e-12)) / max(oh.max() / max(oh.sum(), 1e-12), 1e-12)
@@ -181,7 +181,7 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     coarse = 100 * coarse / max(c.sum(), 1e-12)
     mids = np.sqrt(edges[:-1] * edges[1:])
     a2.bar(edges[:-1], coarse, width=np.diff(edges), align="edge", zorder=2,
-           color=np.where(mids >= limit, "#8fbf8f", "#e3a3a3"), edgecolor="white", lw=0.3)
+           color=np.where(mids >= limit, ui.PASS_LIGHT.hex, ui.FAIL_LIGHT.hex), edgecolor=ui.PAPER.hex, lw=0.3)
     a2.axvline(limit, color=INK, lw=0.9, ls="--")
     a2.set_xscale("log")
     a2.set_xlim(1, 21)
@@ -196,6 +196,8 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
             else "no pixels measured")
     if j["by_casing"]:
         text += f"; passes by its {j['outline_name']} ({j['casing']:.1%})"
+    if passed is not None:   # the verdict in a mark as well as a colour
+        text = f"{ui.MARKS['pass' if passed else 'fail']} {text}"
     fig.text(0.02, 0.965, text, fontsize=8, color=verdict, va="top", weight="bold")
     return fig
 

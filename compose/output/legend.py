@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, FAMILY_ROW, FONT, FRAME, GAP,
-                                          INK, KEY_PATCH, MARGIN, MUTED, OVERLAY_ROW, TITLE_FONT,
+                                          INK, KEY_PATCH, MARGIN, MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT,
                                           TITLE_H, TOP, TRIANGLE, WIDTH, BarBox, LegendLayout,
                                           _Classes, _fmt, _marks, _nodata_swatches, _Overlays,
                                           _ramp_of, _Ramps, _rgb, legend_layout, pretty_name)
@@ -95,7 +95,7 @@ def _draw_ramps(ax, b: _Ramps, y: float, boxes: list[BarBox]) -> None:
     bar_top, bar_bottom = mine[0].y0 / DPI, mine[-1].y1 / DPI
     if b.layers[0].lut.stepped and len(xs) > 2:   # class boundaries as hairlines between the blocks
         for x in xs[1:-1]:
-            ax.plot([x, x], [bar_top, bar_bottom], color="white", lw=0.5, zorder=2.5)
+            ax.plot([x, x], [bar_top, bar_bottom], color=PAPER, lw=0.5, zorder=2.5)
     for x, text in _ticks(b, values, xs):
         ax.plot([x, x], [bar_bottom, bar_bottom + 0.045], color=FRAME, lw=0.5)
         ax.text(x, bar_bottom + 0.065, text, fontsize=FONT - 0.6, color=INK, ha="center", va="top")
@@ -145,7 +145,7 @@ def _draw_overlays(ax, b: _Overlays, y: float) -> None:
     from matplotlib.patches import Rectangle
     from matplotlib.patheffects import withStroke
 
-    ax.plot([MARGIN, WIDTH - MARGIN], [y - GAP / 2, y - GAP / 2], color="#d9d9d9", lw=0.5)
+    ax.plot([MARGIN, WIDTH - MARGIN], [y - GAP / 2, y - GAP / 2], color=RULE, lw=0.5)
     for i, layer in enumerate(b.layers):
         o = layer.spec.options
         kind = layer.spec.kind
@@ -193,7 +193,7 @@ def legend_figure(style, ramps, layers):
     from matplotlib.figure import Figure
 
     layout = legend_layout(style, ramps, layers)
-    fig = Figure(figsize=(layout.width, layout.height), dpi=DPI, facecolor="white")
+    fig = Figure(figsize=(layout.width, layout.height), dpi=DPI, facecolor=PAPER)
     ax = fig.add_axes((0, 0, 1, 1))
     ax.set_axis_off()
     ax.set_autoscale_on(False)
@@ -221,4 +221,4 @@ def write_legend(path: Path, style, ramps, layers) -> None:
     The file is written where given (the caller renames it into place).
     """
     fig, _ = legend_figure(style, ramps, layers)
-    fig.savefig(Path(path), format="png", dpi=DPI, facecolor="white")
+    fig.savefig(Path(path), format="png", dpi=DPI, facecolor=PAPER)

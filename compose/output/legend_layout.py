@@ -7,15 +7,19 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from compose.color import interface as ui
+
 __all__ = ["legend_layout", "LegendLayout", "BarBox", "pretty_name", "DPI", "WIDTH"]
 
 DPI = 200                 # pixels per inch of the PNG
 WIDTH = 3.6               # inches
 MARGIN = 0.2              # left and right margin, inches
-INK = "#262626"
-MUTED = "#6b6b6b"
-FRAME = "#7d7d7d"
-KEY_PATCH = "#d3d1ca"     # behind overlay samples: neutral, L* about 84
+INK = ui.INK.hex
+MUTED = ui.MUTED.hex
+FRAME = ui.FRAME.hex
+KEY_PATCH = ui.KEY_PATCH.hex   # behind overlay samples: near-neutral, L* 84
+PAPER = ui.PAPER.hex
+RULE = ui.RULE.hex
 FONT = 8.0                # points
 TITLE_FONT = 8.6
 
