@@ -1,22 +1,33 @@
-"""Benchmark: a synthetic N x N render (relief + field + ~10,000 lines) against the numpy floor.
+"""Benchmark: synthetic N x N renders (relief + field + lines) beside independent kernel floors.
 
-    python bench/render.py [--size 8192] [--lines 10000] [--repeat 1]
+    python bench/render.py [--sizes 2048,8192] [--big] [--lines 10000] [--quick]
 
-Prints, from the same run:
-  * the numpy floor for the same pixel count: a lookup-table gather (uint16 index -> 3 float32
-    planes) plus one composite pass, done in strips;
-  * the render's compute time (read, shade, colour, composite, draw, measure) and the encode
-    time (PNG + GeoTIFF), the whole render, the ratio compute / floor;
-  * the cost of the hierarchy statistics (render with and without measuring);
-  * peak memory (max RSS) against the canvas size x 16 bytes.
-No assertion is made: the figures are for the closing notes and for regressions by eye.
+For every size it prints, from the same run:
+  * floors (bench/floors.py, written without compose's code): Agg lines on the whole canvas,
+    Horn hillshade in strips, LUT gather, 3-layer planar composite (1 and 2 threads), GDAL
+    reads of the two float32 rasters; the summed compute floor; GeoTIFF write (deflate, tiled,
+    NUM_THREADS=ALL_CPUS, zlevel 6 and 1) and PNG (numpy Up filter + isal level 3, 2 threads)
+    of the rendered pixels, with the PNG size against zlib level 6;
+  * the default ``compose render`` command with all its outputs (wall time, peak memory of the
+    child process);
+  * the bare render (PNG + GeoTIFF + check): wall time and peak memory, compute alone with and
+    without the statistics (their share), how much encoding adds beyond compute (overlap);
+  * window count independence of line drawing, and reprojected against aligned reads;
+  * workers: compute with 1 and 2 workers when the command has ``--workers``.
+Then the 1500 x 1500 demo style (render with all outputs, ``compose check``) and the start-up
+time of ``compose --help``.
+
+Every render runs in a child process with compose's own settings (no GDAL cache or thread
+settings of ours); peak memory is the child's ru_maxrss. Times on a shared machine are noisy:
+read ratios within one run. No assertion is made: the figures are for the closing notes.
 """
 from __future__ import annotations
 
 import argparse
+import json
 import os
-import resource
 import shutil
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -26,6 +37,12 @@ from pathlib import Path
 import numpy as np
 
 HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(HERE))
+
+import floors  # noqa: E402
+
+COMPOSE = [sys.executable, "-c", "import sys; from compose.cli.main import main; sys.exit(main())"]
 
 
 def make_data(folder: Path, size: int, n_lines: int) -> None:
@@ -57,20 +74,22 @@ def make_data(folder: Path, size: int, n_lines: int) -> None:
                     schema=schema) as dst:
         starts = rng.uniform(0, span, (n_lines, 2))
         steps = rng.normal(0, 300, (n_lines, 100, 2)).cumsum(axis=1)
+        records = []
         for i in range(n_lines):
             pts = starts[i] + steps[i]
             pts[:, 0] += 400000
             pts[:, 1] = 4600000 - pts[:, 1]
-            dst.write({"geometry": {"type": "LineString", "coordinates": pts.tolist()},
-                       "properties": {"kind": "road"}})
+            records.append({"geometry": {"type": "LineString", "coordinates": pts.tolist()},
+                            "properties": {"kind": "road"}})
+        dst.writerecords(records)
 
 
 STYLE = """
 [map]
 name = "bench"
 title = "benchmark"
-crs = "EPSG:32630"
-extent = [400000, {south}, {east}, 4600000]
+crs = "{crs}"
+extent = [{west}, {south}, {east}, {north}]
 pixel = 30
 dpi = 150
 
@@ -99,171 +118,220 @@ role = "overlay"
 kind = "lines"
 source = "lines.gpkg"
 stroke = "#3a3a3a"
-width = 0.6
+width = 0.48
+"""
+# width 0.48 pt at 150 dpi = 1.0 px, the floor's line width
+
+
+def write_styles(folder: Path, size: int) -> dict[str, Path]:
+    """bench.toml (aligned with the rasters), bench-utm31.toml (the same area on a neighbouring
+    UTM zone's grid: every read is reprojected), bench-lines.toml (lines only)."""
+    span = size * 30
+    aligned = STYLE.format(crs="EPSG:32630", west=400000, south=4600000 - span,
+                           east=400000 + span, north=4600000)
+    (folder / "bench.toml").write_text(aligned)
+    # the canvas centre moved to zone 31 (central meridian 3 E vs -3 E), same size in pixels
+    from pyproj import Transformer
+    cx, cy = 400000 + span / 2, 4600000 - span / 2
+    x, y = Transformer.from_crs("EPSG:32630", "EPSG:32631", always_xy=True).transform(cx, cy)
+    other = STYLE.format(crs="EPSG:32631", west=round(x - span / 2), south=round(y - span / 2),
+                         east=round(x - span / 2) + span, north=round(y - span / 2) + span)
+    (folder / "bench-utm31.toml").write_text(other.replace('name = "bench"', 'name = "bench31"'))
+    lines_only = aligned.split("[[layer]]")
+    (folder / "bench-lines.toml").write_text(lines_only[0] + "[[layer]]" + lines_only[3])
+    return {"aligned": folder / "bench.toml", "utm31": folder / "bench-utm31.toml",
+            "lines": folder / "bench-lines.toml"}
+
+
+# --- child processes ------------------------------------------------------------------------
+
+def child(argv: list[str], cwd: Path | None = None, env: dict | None = None) -> dict:
+    """Run a process; {seconds, peak (bytes, its ru_maxrss), stdout, code}."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(argv, cwd=cwd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    out, err = proc.communicate()
+    seconds = time.perf_counter() - t0
+    return {"seconds": seconds, "stdout": out.decode(), "stderr": err.decode(), "code": proc.returncode}
+
+
+def timed(argv: list[str], cwd: Path | None = None) -> dict:
+    """Run a command under a small wrapper that reports its own peak memory (ru_maxrss)."""
+    wrapper = ("import os, resource, subprocess, sys, time, json\n"
+               "t = time.perf_counter()\n"
+               "p = subprocess.run(sys.argv[1:], capture_output=True)\n"
+               "dt = time.perf_counter() - t\n"
+               "ru = resource.getrusage(resource.RUSAGE_CHILDREN)\n"
+               "sys.stderr.write(p.stderr.decode())\n"
+               "print(json.dumps({'seconds': dt, 'peak': ru.ru_maxrss * 1024, 'code': p.returncode,"
+               " 'cpu': ru.ru_utime + ru.ru_stime, 'out': p.stdout.decode()}))\n")
+    res = child([sys.executable, "-c", wrapper, *argv], cwd=cwd)
+    if res["code"] != 0 or not res["stdout"].strip():
+        raise RuntimeError(f"{' '.join(map(str, argv))} failed:\n{res['stderr'][-2000:]}")
+    return json.loads(res["stdout"].strip().splitlines()[-1])
+
+
+TASK = r"""
+import json, resource, sys, time
+from pathlib import Path
+mode, style_path, out = sys.argv[1], Path(sys.argv[2]), Path(sys.argv[3])
+extra = json.loads(sys.argv[4]) if len(sys.argv) > 4 else {}
+from compose.style import load_style
+style = load_style(style_path)
+result = {}
+t0 = time.perf_counter()
+if mode == "bare":
+    from compose.render import render_style
+    res = render_style(style, out, overwrite=True, legend=False, check=True, html=False, **extra)
+    result["seconds"] = dict(res.seconds)
+else:                                   # compute only: every window, no outputs
+    from compose.engine import prepare, run
+    r = prepare(style)
+    try:
+        t1 = time.perf_counter()
+        run(r, [], measure=(mode == "measure"), **extra)
+        result["compute"] = time.perf_counter() - t1
+    finally:
+        r.close()
+result["wall"] = time.perf_counter() - t0
+result["peak"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+print(json.dumps(result))
 """
 
 
-def floor_seconds(folder: Path, size: int) -> dict[str, float]:
-    """Each kernel of the render alone, on the same data, in the cheapest plain form:
-
-    read   -- plain GDAL reads of the DEM and the field in strips (no warping);
-    shade  -- Horn hillshade in row strips;
-    colour -- lookup-table gather, uint16 index -> 3 float32 planes;
-    blend  -- one composite pass per layer (3 layers);
-    draw   -- every line drawn once by Agg, canvas cut into 2048 px tiles.
-    """
-    import fiona
-    import rasterio
-    import shapely
-    from affine import Affine
-
-    from compose.layers.draw import draw_lines
-    from compose.layers.hillshade import hillshade
-
-    out: dict[str, float] = {}
-    strip = 256
-    t0 = time.perf_counter()
-    with rasterio.open(folder / "dem.tif") as a, rasterio.open(folder / "field.tif") as b:
-        for r0 in range(0, size, strip):
-            win = rasterio.windows.Window(0, r0, size, min(strip, size - r0))
-            dem = a.read(1, window=win)
-            b.read(1, window=win)
-    out["read"] = time.perf_counter() - t0
-    t0 = time.perf_counter()
-    for _ in range(0, size, strip):
-        hillshade(dem, 30.0, 30.0)
-    out["shade"] = time.perf_counter() - t0
-    rng = np.random.default_rng(1)
-    table = rng.random((3, 1027), dtype=np.float32)
-    index = rng.integers(0, 1024, (strip, size)).astype(np.uint16)
-    alpha = rng.random((strip, size), dtype=np.float32)
-    back = rng.random((3, strip, size), dtype=np.float32)
-    src = np.empty_like(back)
-    t0 = time.perf_counter()
-    for _ in range(0, size, strip):
-        for c in range(3):
-            np.take(table[c], index, out=src[c])
-    out["color"] = time.perf_counter() - t0
-    t0 = time.perf_counter()
-    for _ in range(0, size, strip):
-        for _layer in range(3):
-            src -= back          # back + alpha * (src - back)
-            src *= alpha
-            back += src
-    out["blend"] = time.perf_counter() - t0
-    with fiona.open(folder / "lines.gpkg") as c:
-        geoms = np.array([shapely.geometry.shape(f["geometry"]) for f in c], dtype=object)
-    tree = shapely.STRtree(geoms)
-    tile = 2048
-    t0 = time.perf_counter()
-    for r0 in range(0, size, tile):
-        for c0 in range(0, size, tile):
-            t = Affine(30, 0, 400000 + c0 * 30, 0, -30, 4600000 - r0 * 30)
-            box = shapely.box(t.c, t.f - tile * 30, t.c + tile * 30, t.f)
-            hits = geoms[tree.query(box)]
-            draw_lines(hits, t, tile, tile, width_px=0.6 * 150 / 72)
-    out["draw"] = time.perf_counter() - t0
-    return out
+def task(mode: str, style: Path, out: Path, **extra) -> dict:
+    res = child([sys.executable, "-c", TASK, mode, str(style), str(out), json.dumps(extra)])
+    if res["code"] != 0:
+        raise RuntimeError(f"task {mode} failed:\n{res['stderr'][-3000:]}")
+    return json.loads(res["stdout"].strip().splitlines()[-1])
 
 
-def encode_floor_seconds(folder: Path, size: int) -> dict[str, float]:
-    """A plain GDAL write (deflate, tiled, all cores) and a zlib-level-6 PNG-like deflate of the
-    same RGB pixel count -- what the encoders cannot beat by much."""
-    import zlib
-
-    import rasterio
-    from affine import Affine
-
-    rng = np.random.default_rng(2)
-    strip = 512
-    block = (rng.integers(0, 32, (strip, size, 3)) + 100).astype(np.uint8)
-    path = folder / "floor.tif"
-    t0 = time.perf_counter()
-    with rasterio.open(path, "w", driver="GTiff", width=size, height=size, count=3, dtype="uint8",
-                       crs="EPSG:32630", transform=Affine(30, 0, 0, 0, -30, 0), tiled=True,
-                       blockxsize=512, blockysize=512, compress="deflate", predictor=2,
-                       num_threads="all_cpus") as ds:
-        data = np.moveaxis(block, -1, 0)
-        for r0 in range(0, size, strip):
-            ds.write(data, window=rasterio.windows.Window(0, r0, size, strip))
-    gdal = time.perf_counter() - t0
-    path.unlink()
-    z = zlib.compressobj(6)
-    t0 = time.perf_counter()
-    raw = block.tobytes()
-    for _ in range(0, size, strip):
-        z.compress(raw)
-    z.flush()
-    return {"geotiff": gdal, "png": time.perf_counter() - t0}
+def has_option(option: str) -> bool:
+    res = child(COMPOSE + ["render", "--help"])
+    return option in res["stdout"]
 
 
-def render_once(folder: Path, out: Path, measure: bool) -> dict:
-    from compose.engine import prepare, run
-    from compose.render import render_style
-    from compose.style import load_style
+# --- report ---------------------------------------------------------------------------------
 
-    style = load_style(folder / "style.toml")
-    if measure is not None:   # compute only, no sinks: with or without the statistics
-        r = prepare(style)
-        try:
-            t0 = time.perf_counter()
-            run(r, [], measure=measure)
-            return {"compute": time.perf_counter() - t0}
-        finally:
-            r.close()
-    t0 = time.perf_counter()
-    res = render_style(style, out, overwrite=True, legend=False, check=True, html=False)
-    total = time.perf_counter() - t0
-    return {"total": total, **res.seconds}
+def gb(n: float) -> str:
+    return f"{n / 1e9:.2f} GB"
+
+
+def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
+    styles = write_styles(folder, size)
+    out = folder / "out"
+    mpx = size * size / 1e6
+    print(f"\n== {size} x {size} ({mpx:.0f} Mpixel), {n_lines} lines x 100 vertices ==", flush=True)
+
+    # floors, one kernel at a time in this process
+    t_lines, verts = floors.lines_agg(folder, size)
+    t_horn = floors.horn_strips(folder, size)
+    t_lut1, t_lut2 = floors.lut_gather(size, 1), floors.lut_gather(size, 2)
+    t_cmp1, t_cmp2 = floors.composite_planar(size, 1), floors.composite_planar(size, 2)
+    t_read = floors.geotiff_read(folder / "dem.tif") + floors.geotiff_read(folder / "field.tif")
+    compute_floor = t_lines + t_horn + t_lut1 + t_cmp1 + t_read
+    print("floors (bench/floors.py: numpy, Agg, GDAL; none of compose's code)")
+    print(f"  lines: {verts / 1e6:.2f} M vertices, 1 px, Agg, whole canvas  {t_lines:6.2f} s")
+    print(f"  Horn hillshade, {floors.STRIP}-row strips, 1 thread            {t_horn:6.2f} s")
+    print(f"  LUT gather uint16 -> RGBA32, 1 thread (2 threads)      {t_lut1:6.2f} s  ({t_lut2:.2f} s)")
+    print(f"  3-layer planar f32 composite, 1 thread (2 threads)     {t_cmp1:6.2f} s  ({t_cmp2:.2f} s)")
+    print(f"  GDAL read, 2 float32 rasters, deflate + predictor 3    {t_read:6.2f} s")
+    print(f"  compute floor (sum, 1 thread per kernel)               {compute_floor:6.2f} s")
+
+    # the default command, all outputs
+    cmd = timed(COMPOSE + ["render", str(styles["aligned"]), "--out", str(out), "--overwrite"],
+                cwd=folder)
+    print(f"compose render (all default outputs)    {cmd['seconds']:6.2f} s wall, "
+          f"{cmd['cpu'] / cmd['seconds']:.2f} cores, peak {gb(cmd['peak'])}  (target <= 0.50 GB)")
+
+    # the bare render and its parts
+    bare = task("bare", styles["aligned"], out)
+    tif = out / "bench.tif"
+    t_tif6 = floors.geotiff_write(tif, folder / "floor.tif")
+    t_tif1 = floors.geotiff_write(tif, folder / "floor.tif", zlevel=1)
+    t_png, png_ratio = floors.png_fast(tif)
+    encode_floor = t_tif6 + t_png
+    runs = 1 if quick else 2
+    plain = min(task("plain", styles["aligned"], out)["compute"] for _ in range(runs))
+    measured = min(task("measure", styles["aligned"], out)["compute"] for _ in range(runs))
+    total = bare["wall"]
+    beyond = total - measured
+    print("floors on the rendered pixels")
+    print(f"  GeoTIFF RGB write, deflate, tiled 512, ALL_CPUS (zlevel 1)  {t_tif6:6.2f} s  ({t_tif1:.2f} s)")
+    print(f"  PNG: Up filter + isal level 3, 2 threads                    {t_png:6.2f} s  "
+          f"(size {100 * (png_ratio - 1):+.1f} % vs zlib 6)")
+    print(f"bare render (PNG + GeoTIFF + check)     {total:6.2f} s wall, peak {gb(bare['peak'])}  "
+          f"(target <= 6 s at 8192)")
+    print(f"  compute alone, measuring              {measured:6.2f} s  "
+          f"({measured / compute_floor:.2f} x compute floor; target <= 1.5 x)")
+    print(f"  compute alone, not measuring          {plain:6.2f} s")
+    print(f"  statistics share                      {100 * (measured - plain) / total:6.1f} % of the "
+          f"render  (target <= 10 %)")
+    print(f"  outputs add beyond compute            {beyond:6.2f} s  (encode floor {encode_floor:.2f} s: "
+          f"{100 * max(0.0, 1 - beyond / encode_floor):.0f} % overlapped)")
+    print(f"  floors summed (compute + encode)      {compute_floor + encode_floor:6.2f} s  "
+          f"(render / floors = {total / (compute_floor + encode_floor):.2f})")
+    for key, value in sorted(bare.get("seconds", {}).items()):
+        print(f"    render's own timer: {key:<14} {value:6.2f} s")
+
+    # lines: independent of the number of windows
+    lines_1024 = task("plain", styles["lines"], out)["compute"]
+    lines_512 = task("plain", styles["lines"], out, window=512)["compute"]
+    print(f"lines only, compute: 1024 px windows {lines_1024:.2f} s, 512 px windows {lines_512:.2f} s "
+          f"({lines_512 / lines_1024:.2f} x for {4 if size >= 1024 else 1} x the windows); "
+          f"Agg floor {t_lines:.2f} s")
+
+    # reprojection: the same canvas size on a neighbouring UTM zone's grid
+    utm = task("plain", styles["utm31"], out)["compute"]
+    print(f"reprojected canvas (EPSG:32631 onto 32630 data), compute {utm:6.2f} s vs aligned "
+          f"{plain:.2f} s ({utm / plain:.2f} x; target <= 2 x)")
+
+    # workers
+    if has_option("--workers"):
+        w1 = task("plain", styles["aligned"], out, workers=1)["compute"]
+        w2 = task("plain", styles["aligned"], out, workers=2)["compute"]
+        print(f"workers: compute 1 worker {w1:.2f} s, 2 workers {w2:.2f} s ({w1 / w2:.2f} x)")
+    shutil.rmtree(out, ignore_errors=True)
+
+
+def bench_demo() -> None:
+    out = Path(tempfile.mkdtemp(prefix="compose-demo-"))
+    style = ROOT / "styles" / "coast.toml"
+    try:
+        r = timed(COMPOSE + ["render", str(style), "--out", str(out), "--overwrite"])
+        c = timed(COMPOSE + ["check", str(style)])
+    finally:
+        shutil.rmtree(out, ignore_errors=True)
+    helps = [child(COMPOSE + ["--help"])["seconds"] for _ in range(5)]
+    python = [child([sys.executable, "-c", "pass"])["seconds"] for _ in range(5)]
+    print("\n== demo style (styles/coast.toml, 1500 x 1500) ==")
+    print(f"compose render, all outputs   {r['seconds']:6.2f} s, peak {gb(r['peak'])}  (target <= 2 s)")
+    print(f"compose check                 {c['seconds']:6.2f} s  (target <= 1 s)")
+    print(f"compose --help                {statistics.median(helps):6.2f} s median of 5 "
+          f"(bare python start {statistics.median(python):.2f} s; target < 0.3 s)")
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--size", type=int, default=8192)
+    ap.add_argument("--sizes", default="2048,8192", help="comma-separated canvas sides")
+    ap.add_argument("--big", action="store_true", help="also 16384 x 16384")
     ap.add_argument("--lines", type=int, default=10000)
+    ap.add_argument("--quick", action="store_true", help="one run per figure instead of the best of 2")
+    ap.add_argument("--no-demo", action="store_true")
     ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
-    ap.add_argument("--keep", action="store_true", help="keep the synthetic data for the next run")
     args = ap.parse_args()
-    folder = args.data / f"{args.size}-{args.lines}"
-    if not (folder / "lines.gpkg").exists():
-        print(f"making synthetic data in {folder} ...", flush=True)
-        subprocess.run([sys.executable, __file__, "--make", str(folder), str(args.size), str(args.lines)],
-                       check=True)
-    span = args.size * 30
-    (folder / "style.toml").write_text(STYLE.format(south=4600000 - span, east=400000 + span))
-    mpx = args.size * args.size / 1e6
-    kernels = floor_seconds(folder, args.size)
-    floor = sum(kernels.values())
-    enc_floor = encode_floor_seconds(folder, args.size)
-    out = folder / "out"
-    plain = min(render_once(folder, out, measure=False)["compute"] for _ in range(2))
-    measured = min(render_once(folder, out, measure=True)["compute"] for _ in range(2))
-    full = render_once(folder, out, measure=None)
-    compute = full["compute"] + full["prepare"]
-    encode = full["encode"] + full.get("finish-encode", 0.0)
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    canvas_bytes = args.size * args.size * 16
-    print(f"canvas                 {args.size} x {args.size} ({mpx:.0f} Mpixel), {args.lines} lines")
-    print("compute floor          " + ", ".join(f"{k} {v:.2f}" for k, v in kernels.items())
-          + f"  = {floor:.2f} s")
-    print(f"compute, no measuring  {plain:6.2f} s  ({plain / floor:.1f} x floor)")
-    print(f"compute with measuring {measured:6.2f} s  ({measured / floor:.1f} x floor; target <= 3 x)")
-    print(f"check overhead         {100 * (measured - plain) / plain:6.1f} %  (statistics on compute; "
-          "target <= 10-15 %)")
-    print(f"in the full render     {compute:6.2f} s compute (prepare included; GDAL's compression "
-          "threads share the cores)")
-    ef = sum(enc_floor.values())
-    print(f"encode (PNG + GeoTIFF) {encode:6.2f} s  (floor: GDAL {enc_floor['geotiff']:.2f} s + zlib "
-          f"{enc_floor['png']:.2f} s = {ef:.2f} s; {encode / ef:.2f} x, target <= 1.3 x)")
-    print(f"whole render           {full['total']:6.2f} s")
-    print(f"peak memory            {peak / 1e9:6.2f} GB  (canvas x 16 bytes = {canvas_bytes / 1e9:.2f} GB)")
-    if not args.keep:
-        shutil.rmtree(out, ignore_errors=True)
+    sizes = [int(s) for s in args.sizes.split(",") if s]
+    if args.big and 16384 not in sizes:
+        sizes.append(16384)
+    print(f"compose bench, {os.cpu_count()} cores, python {sys.version.split()[0]}")
+    for size in sizes:
+        folder = args.data / f"{size}-{args.lines}"
+        if not (folder / "lines.gpkg").exists():
+            print(f"making synthetic data in {folder} ...", flush=True)
+            make_data(folder, size, args.lines)
+        bench_size(folder, size, args.lines, args.quick)
+    if not args.no_demo:
+        bench_demo()
 
 
 if __name__ == "__main__":
-    if len(sys.argv) == 5 and sys.argv[1] == "--make":
-        make_data(Path(sys.argv[2]), int(sys.argv[3]), int(sys.argv[4]))
-    else:
-        os.environ.setdefault("GDAL_CACHEMAX", "256")
-        main()
+    main()

@@ -100,7 +100,7 @@ class ProofSink:
         try:
             for proof in PROOFS:
                 if proof in paths:
-                    self.writers[proof] = PngWriter(paths[proof], width, height, 3, dpi=dpi, level=6)
+                    self.writers[proof] = PngWriter(paths[proof], width, height, 3, dpi=dpi)
         except BaseException:
             self.abort()
             raise
@@ -127,7 +127,7 @@ class ProofSink:
         """Close the files without finishing them (after a failure)."""
         for w in self.writers.values():
             with contextlib.suppress(Exception):
-                w._f.close()
+                w.abort()
 
     def thumbnails(self) -> dict[str, np.ndarray]:
         """The box-averaged map and proofs, (h, w, 3) uint8 each."""

@@ -18,6 +18,7 @@ import numpy as np
 from compose.engine import prepare, run
 from compose.errors import OutputError
 from compose.output.atomic import atomic_path, check_writable
+from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
 from compose.output.png import PngWriter
 
@@ -42,7 +43,7 @@ class RenderResult:
 
 class _PngSink:
     def __init__(self, path: Path, width: int, height: int, dpi: float):
-        self.writer = PngWriter(path, width, height, 3, dpi=dpi, level=6)
+        self.writer = PngWriter(path, width, height, 3, dpi=dpi)
 
     def rows(self, row0, rgb8):
         self.writer.write_rows(rgb8)
@@ -94,14 +95,20 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             png = _PngSink(png_tmp, canvas.width, canvas.height, canvas.dpi)
             tif = _TiffSink(tif_tmp, canvas, tags)
             stack.callback(tif.writer.close)
-            stack.callback(png.writer._f.close)
+            stack.callback(png.writer.abort)
+            # the encoders run on their own threads, beside the next windows' compute
+            png_bg, tif_bg = BackgroundSink(png, "png"), BackgroundSink(tif, "geotiff")
+            stack.callback(tif_bg.abort)
+            stack.callback(png_bg.abort)
             preview = None
             if html:
                 from compose.output.html import PreviewSink
                 preview = PreviewSink(canvas.width, canvas.height)
-            stats = run(run_, [png, tif] + ([preview] if preview is not None else [])
+            stats = run(run_, [png_bg, tif_bg] + ([preview] if preview is not None else [])
                         + list(extra_sinks or []), progress=progress)
             t_enc = time.perf_counter()
+            png_bg.finish()
+            tif_bg.finish()
             png.writer.close()
             tif.writer.close()
             run_.seconds["finish-encode"] = time.perf_counter() - t_enc

@@ -1,39 +1,102 @@
-"""A streaming PNG writer for 8-bit RGB / grey images (ISO/IEC 15948:2004, W3C PNG).
+"""A streaming PNG writer for 8-bit gray / RGB / RGBA images (ISO/IEC 15948:2004, W3C PNG).
 
-Rows arrive in bands (as the renderer finishes a row of windows), are filtered in numpy
-(filter type 2, "Up", per PNG section 9.2) and deflated with zlib; memory holds one band.
+Rows arrive in bands (as the renderer finishes a row of windows). Each band is filtered in numpy
+(filter type 2, "Up", PNG section 9.2) and deflated on the writer's own threads, several bands at
+once: every band is a raw deflate piece ending on a full flush (byte aligned, empty dictionary),
+so the pieces concatenate into one zlib stream (RFC 1950/1951) whose Adler-32 is combined from
+the pieces' own. The file is the same whatever the thread count; it depends only on the bands.
+
+The deflate implementation is zlib-ng at level 4 when installed (python package ``zlib-ng``):
+about 3x faster than zlib at level 6 and within ~2 % of its size on rendered maps (measured by
+bench/render.py); otherwise the standard library's zlib at level 6. Memory holds at most
+``2 x threads`` bands in flight.
 """
 from __future__ import annotations
 
+import os
 import struct
 import zlib
+from collections import deque
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
 
-__all__ = ["PngWriter", "write_png"]
+try:                                    # a faster deflate, same stream format
+    from zlib_ng import zlib_ng as _deflate
+    LEVEL = 4
+except ImportError:                     # pragma: no cover - zlib-ng is a dependency
+    _deflate = zlib
+    LEVEL = 6
+
+__all__ = ["PngWriter", "write_png", "adler32_combine", "LEVEL"]
 
 _SIGNATURE = b"\x89PNG\r\n\x1a\n"
+_ADLER_BASE = 65521
 
 
 def _chunk(kind: bytes, data: bytes) -> bytes:
     return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
 
 
+def adler32_combine(adler1: int, adler2: int, len2: int) -> int:
+    """Adler-32 of A + B from adler32(A), adler32(B) and len(B) (zlib's adler32_combine,
+    RFC 1950 section 8.2 checksum)."""
+    rem = len2 % _ADLER_BASE
+    sum1 = adler1 & 0xFFFF
+    sum2 = (rem * sum1) % _ADLER_BASE
+    sum1 += (adler2 & 0xFFFF) + _ADLER_BASE - 1
+    sum2 += ((adler1 >> 16) & 0xFFFF) + ((adler2 >> 16) & 0xFFFF) + _ADLER_BASE - rem
+    sum1 %= _ADLER_BASE
+    sum2 %= _ADLER_BASE
+    return sum1 | (sum2 << 16)
+
+
+def _zlib_header(level: int) -> bytes:
+    """CMF/FLG of a zlib stream with a 32 KiB window, FLEVEL as zlib sets it (RFC 1950 2.2)."""
+    flevel = 0 if level < 2 else 1 if level < 6 else 2 if level == 6 else 3
+    cmf, flg = 0x78, flevel << 6
+    flg += 31 - ((cmf << 8) | flg) % 31
+    return bytes([cmf, flg])
+
+
+def _filter_up(rows: np.ndarray, prev: np.ndarray) -> bytes:
+    """Scanlines with filter type 2 (Up): each byte minus the byte above, modulo 256."""
+    n = rows.shape[0]
+    out = np.empty((n, rows.shape[1] + 1), dtype=np.uint8)
+    out[:, 0] = 2
+    np.subtract(rows[0], prev, out=out[0, 1:])
+    if n > 1:
+        np.subtract(rows[1:], rows[:-1], out=out[1:, 1:])
+    return out.tobytes()
+
+
+def _piece(rows: np.ndarray, prev: np.ndarray, level: int) -> tuple[bytes, int, int]:
+    """(raw deflate piece ending on a full flush, adler32 of the filtered bytes, their length)."""
+    data = _filter_up(rows, prev)
+    z = _deflate.compressobj(level, _deflate.DEFLATED, -15, 9)
+    return z.compress(data) + z.flush(_deflate.Z_FULL_FLUSH), _deflate.adler32(data), len(data)
+
+
 class PngWriter:
-    """Write a PNG of ``width`` x ``height`` with ``channels`` (1 grey, 3 RGB, 4 RGBA) band by band.
+    """Write a PNG of ``width`` x ``height`` with ``channels`` (1 gray, 3 RGB, 4 RGBA) band by band.
 
     ``dpi`` is stored in a pHYs chunk; the sRGB chunk (rendering intent perceptual) says the
-    pixels are sRGB. Use as a context manager; :meth:`write_rows` takes uint8 (rows, width[, c]).
+    pixels are sRGB. ``threads``: bands deflated at once (default: all cores, at most 4).
+    Use as a context manager; :meth:`write_rows` takes uint8 (rows, width[, c]).
     """
 
     def __init__(self, path: Path, width: int, height: int, channels: int = 3,
-                 dpi: float | None = None, level: int = 6):
+                 dpi: float | None = None, level: int | None = None, threads: int | None = None):
         self.path = Path(path)
         self.width, self.height, self.channels = int(width), int(height), int(channels)
+        self.level = LEVEL if level is None else int(level)
         self._rows = 0
         self._prev = np.zeros(self.width * self.channels, dtype=np.uint8)
-        self._z = zlib.compressobj(level, zlib.DEFLATED, 15, 9)
+        self._adler = 1
+        self._threads = max(1, threads or min(4, os.cpu_count() or 1))
+        self._pool = ThreadPoolExecutor(self._threads, thread_name_prefix="png") if self._threads > 1 else None
+        self._pending: deque[Future] = deque()
         self._f = open(self.path, "wb")
         color_type = {1: 0, 3: 2, 4: 6}[self.channels]
         self._f.write(_SIGNATURE)
@@ -43,21 +106,33 @@ class PngWriter:
         if dpi:
             ppm = int(round(dpi / 0.0254))
             self._f.write(_chunk(b"pHYs", struct.pack(">IIB", ppm, ppm, 1)))
+        self._header = _zlib_header(self.level)
+
+    def _emit(self, piece: tuple[bytes, int, int]) -> None:
+        data, adler, length = piece
+        self._adler = adler32_combine(self._adler, adler, length)
+        if self._header:
+            data, self._header = self._header + data, b""
+        self._f.write(_chunk(b"IDAT", data))
+
+    def _drain(self, keep: int) -> None:
+        while len(self._pending) > keep:
+            self._emit(self._pending.popleft().result())
 
     def write_rows(self, rows: np.ndarray) -> None:
         """Append rows (uint8, shape (n, width) or (n, width, channels)), north to south."""
         rows = np.ascontiguousarray(rows, dtype=np.uint8).reshape(rows.shape[0], -1)
         if rows.shape[1] != self.width * self.channels:
             raise ValueError("row width does not match the PNG header")
-        n = rows.shape[0]
-        out = np.empty((n, rows.shape[1] + 1), dtype=np.uint8)
-        out[:, 0] = 2  # filter type Up
-        np.subtract(rows[0], self._prev, out=out[0, 1:])
-        if n > 1:
-            np.subtract(rows[1:], rows[:-1], out=out[1:, 1:])
-        self._prev = rows[-1].copy()
-        self._f.write(_chunk(b"IDAT", self._z.compress(out.tobytes())))
-        self._rows += n
+        if rows.shape[0] == 0:
+            return
+        prev, self._prev = self._prev, rows[-1].copy()
+        self._rows += rows.shape[0]
+        if self._pool is None:
+            self._emit(_piece(rows, prev, self.level))
+            return
+        self._pending.append(self._pool.submit(_piece, rows, prev, self.level))
+        self._drain(2 * self._threads)
 
     def close(self) -> None:
         """Finish the stream; raises ValueError if fewer rows than the header promised."""
@@ -66,10 +141,22 @@ class PngWriter:
         try:
             if self._rows != self.height:
                 raise ValueError(f"PNG got {self._rows} rows, header says {self.height}")
-            self._f.write(_chunk(b"IDAT", self._z.flush()))
+            self._drain(0)
+            tail = _deflate.compressobj(self.level, _deflate.DEFLATED, -15, 9).flush(_deflate.Z_FINISH)
+            self._f.write(_chunk(b"IDAT", self._header + tail + struct.pack(">I", self._adler)))
             self._f.write(_chunk(b"IEND", b""))
         finally:
-            self._f.close()
+            self.abort()
+
+    def abort(self) -> None:
+        """Stop without finishing the file (the caller removes it); idempotent."""
+        if self._pool is not None:
+            for f in self._pending:
+                f.cancel()
+            self._pending.clear()
+            self._pool.shutdown(wait=True)
+            self._pool = None
+        self._f.close()
 
     def __enter__(self) -> "PngWriter":
         return self
@@ -78,7 +165,7 @@ class PngWriter:
         if exc_type is None:
             self.close()
         else:
-            self._f.close()
+            self.abort()
 
 
 def write_png(path: Path, image: np.ndarray, dpi: float | None = None) -> None:

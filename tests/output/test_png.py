@@ -34,3 +34,41 @@ def test_write_png_whole(tmp_path):
     write_png(tmp_path / "c.png", img)
     with Image.open(tmp_path / "c.png") as im:
         np.testing.assert_array_equal(np.asarray(im), img)
+
+
+def test_adler32_combine_matches_zlib():
+    # Outside reference: the standard library's zlib.adler32 (RFC 1950) of the concatenation.
+    import zlib
+
+    from compose.output.png import adler32_combine
+
+    rng = np.random.default_rng(3)
+    for n1, n2 in [(0, 5), (7, 0), (100, 70000), (65521, 65522), (200000, 3)]:
+        a = rng.integers(0, 256, n1, dtype=np.uint8).tobytes()
+        b = rng.integers(0, 256, n2, dtype=np.uint8).tobytes()
+        assert adler32_combine(zlib.adler32(a), zlib.adler32(b), len(b)) == zlib.adler32(a + b)
+
+
+@pytest.mark.parametrize("threads", [1, 3])
+def test_png_threads_same_bytes_and_pillow_reads_them(tmp_path, threads):
+    # The file depends on the bands only, not on how many threads deflate them.
+    rng = np.random.default_rng(4)
+    img = (rng.integers(0, 4, (300, 211, 3)) * 60).astype(np.uint8)
+    paths = []
+    for t in (1, threads):
+        path = tmp_path / f"t{t}.png"
+        with PngWriter(path, 211, 300, 3, threads=t) as w:
+            for r0 in range(0, 300, 16):
+                w.write_rows(img[r0:r0 + 16])
+        paths.append(path)
+    assert paths[0].read_bytes() == paths[1].read_bytes()
+    with Image.open(paths[1]) as im:
+        np.testing.assert_array_equal(np.asarray(im), img)
+
+
+def test_png_abort_closes_file(tmp_path):
+    w = PngWriter(tmp_path / "d.png", 8, 8, 3, threads=2)
+    w.write_rows(np.zeros((4, 8, 3), np.uint8))
+    w.abort()
+    w.abort()
+    assert w._f.closed

@@ -1,0 +1,69 @@
+"""Sinks on their own threads: the render hands finished rows over and goes on computing.
+
+:class:`BackgroundSink` wraps any sink (``rows(row0, rgb8)`` and optionally ``close()``) with a
+thread and a bounded queue, so encoding (PNG deflate, GeoTIFF compression, which release the GIL)
+overlaps the next windows' compute. Rows reach the wrapped sink in the order given; at most
+``depth`` bands wait in the queue, so memory stays bounded. An error in the sink is raised again
+in the render's thread at the next hand-over or at :meth:`BackgroundSink.finish`.
+"""
+from __future__ import annotations
+
+import queue
+import threading
+
+import numpy as np
+
+__all__ = ["BackgroundSink"]
+
+_STOP = object()
+
+
+class BackgroundSink:
+    """Feed ``sink`` from a thread of its own; call :meth:`finish` (or :meth:`abort`) at the end.
+
+    ``name`` names the thread; ``depth`` bands may wait (default 2). Arrays handed over must not
+    be changed afterwards by the caller (the engine allocates each band anew).
+    """
+
+    def __init__(self, sink, name: str = "sink", depth: int = 2):
+        self.sink = sink
+        self._queue: queue.Queue = queue.Queue(maxsize=max(1, depth))
+        self._error: BaseException | None = None
+        self._thread = threading.Thread(target=self._loop, name=f"compose-{name}", daemon=True)
+        self._thread.start()
+
+    def _loop(self) -> None:
+        while True:
+            item = self._queue.get()
+            if item is _STOP:
+                return
+            if self._error is not None:
+                continue                      # drain after a failure, keep the producer moving
+            try:
+                self.sink.rows(*item)
+            except BaseException as exc:      # noqa: BLE001 - handed to the render's thread
+                self._error = exc
+
+    def _raise(self) -> None:
+        if self._error is not None:
+            error, self._error = self._error, None
+            raise error
+
+    def rows(self, row0: int, rgb8: np.ndarray) -> None:
+        """Queue rows for the sink (blocks while ``depth`` bands are waiting)."""
+        self._raise()
+        self._queue.put((row0, rgb8))
+
+    def finish(self) -> None:
+        """Wait until every queued band reached the sink; raise the sink's error, if any."""
+        if self._thread.is_alive():
+            self._queue.put(_STOP)
+            self._thread.join()
+        self._raise()
+
+    def abort(self) -> None:
+        """Stop the thread after a failure elsewhere (queued bands are still handed over)."""
+        if self._thread.is_alive():
+            self._queue.put(_STOP)
+            self._thread.join()
+        self._error = None
