@@ -66,8 +66,9 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None) -> R
 
     t0 = time.perf_counter()
     canvas = canvas if canvas is not None else style.canvas()
-    if ramps is None:
-        ramps = build_ramps(style.ramps)
+    if ramps is None:   # only the ramps the enabled layers draw (and their twin groups)
+        used = {getattr(spec.options, "ramp", None) for spec in style.layers if spec.enabled}
+        ramps = build_ramps(style.ramps, only={u for u in used if isinstance(u, str)})
     ctx = Context(canvas=canvas, ramps=ramps, style=style)
     stack = contextlib.ExitStack()
     layers = []

@@ -20,7 +20,7 @@ lies at least 10 CIEDE2000 from every ramp colour; failing that the grey farthes
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 
 import numpy as np
 
@@ -250,24 +250,35 @@ def _twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[
     return result
 
 
-def build_ramps(tables: Mapping) -> dict[str, Ramp]:
-    """Validate and build every ramp of a style.
+def build_ramps(tables: Mapping, only: Iterable[str] | None = None) -> dict[str, Ramp]:
+    """Validate every ramp of a style and build them (or those named in ``only``).
 
     ``tables`` maps a ramp name to an object with ``.name``, ``.table`` (raw TOML mapping) and
     ``.path`` (the style file). Twins are built with their base (a twin of a twin shares the
     root's lightness and chroma); an unknown base or a cycle is a StyleError.
+    ``only``: names of the ramps a render draws (unknown names are ignored: the layer reports
+    them); every ramp is still checked, but only these and the twin groups they belong to are
+    built, each exactly as in a full build.
     Returns ``{name: Ramp}`` in the order of ``tables``.
     """
     specs = {name: parse_ramp(t.name, t.table, t.path) for name, t in tables.items()}
     groups: dict[str, list[RampSpec]] = {}
+    root_of: dict[str, str] = {}
     for name, spec in specs.items():
         if spec.kind == "twin":
             chain = _root_of(name, specs)
             groups.setdefault(chain[-1], []).append(spec)
+            root_of[name] = chain[-1]
+    if only is None:
+        wanted = set(specs)
+    else:
+        roots = {root_of.get(n, n) for n in only if n in specs}
+        wanted = roots | {t.name for r in roots for t in groups.get(r, [])}
     built: dict[str, Ramp] = {}
     for name, spec in specs.items():
-        if spec.kind != "twin":
+        if spec.kind != "twin" and name in wanted:
             built[name] = build_ramp(spec)
     for root, twins in groups.items():
-        built.update(_twin_group(built[root], specs[root], twins))
-    return {name: built[name] for name in specs}
+        if root in wanted:
+            built.update(_twin_group(built[root], specs[root], twins))
+    return {name: built[name] for name in specs if name in built}

@@ -11,6 +11,7 @@ to clipped polygons lie outside the area either window paints.
 """
 from __future__ import annotations
 
+import functools
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -20,7 +21,6 @@ import numpy as np
 import pyproj
 import shapely
 from fiona.errors import FionaError
-from shapely.geometry import shape
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
@@ -35,26 +35,31 @@ def _first_line(exc: BaseException) -> str:
     return text.splitlines()[0] if text else type(exc).__name__
 
 
-@dataclass(frozen=True, slots=True, eq=False)
+@dataclass(frozen=True, eq=False)
 class Features:
     """Features in one CRS: parallel geometries and attribute rows, with a spatial index.
 
     geometries: object array of shapely 2 geometries (never None or empty), in file order;
-    properties: one attribute dict per geometry; tree: an STRtree over ``geometries``.
+    properties: one attribute dict per geometry; tree: an STRtree over ``geometries``, built on
+    first use (the per-window cuts of :meth:`in_box` are drawn, never queried).
     """
 
     geometries: np.ndarray
     properties: list[dict]
-    tree: shapely.STRtree
 
     @classmethod
     def build(cls, geometries, properties) -> "Features":
-        """Make Features from geometries and their attribute dicts (indexes them)."""
+        """Make Features from geometries and their attribute dicts."""
         geoms = np.asarray(geometries, dtype=object).reshape(-1)
         props = list(properties)
         if len(props) != len(geoms):
             raise ValueError(f"{len(geoms)} geometries but {len(props)} property rows")
-        return cls(geoms, props, shapely.STRtree(geoms))
+        return cls(geoms, props)
+
+    @functools.cached_property
+    def tree(self) -> shapely.STRtree:
+        """STRtree over :attr:`geometries` (indices into it)."""
+        return shapely.STRtree(self.geometries)
 
     def __len__(self) -> int:
         return len(self.geometries)
@@ -134,28 +139,27 @@ class VectorSource:
         self._raw: tuple[np.ndarray, list[dict]] | None = None
         self._cache: dict[pyproj.CRS, Features] = {}
 
-    def _keep(self, props: Mapping[str, object]) -> bool:
-        return all(props.get(k) in vals for k, vals in self.where.items())
-
     def _read(self) -> tuple[np.ndarray, list[dict]]:
+        """Every kept feature in one bulk read (pyogrio: WKB and attribute columns as arrays,
+        ~10x faster than feature by feature); attribute rows as plain Python values."""
         if self._raw is None:
-            geoms, props = [], []
+            import pyogrio
+
             try:
-                with fiona.open(self.path, layer=self.table) as src:
-                    for feature in src:
-                        if feature.geometry is None:
-                            continue
-                        row = dict(feature.properties)
-                        if self.where and not self._keep(row):
-                            continue
-                        geoms.append(shape(feature.geometry))
-                        props.append(row)
-            except (FionaError, OSError) as exc:
+                meta, _, wkb, columns = pyogrio.raw.read(self.path, layer=self.table, force_2d=True,
+                                                         datetime_as_string=True)
+            except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
                 raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
                                   f"{_first_line(exc)}") from None
-            arr = shapely.force_2d(np.asarray(geoms, dtype=object).reshape(-1))
-            keep = ~shapely.is_empty(arr) if len(arr) else np.zeros(0, bool)
-            self._raw = (arr[keep], [p for p, k in zip(props, keep) if k])
+            names = list(meta["fields"])
+            arr = shapely.from_wkb(wkb, on_invalid="ignore") if len(wkb) else np.empty(0, object)
+            keep = ~shapely.is_missing(arr) & ~shapely.is_empty(arr)
+            values = [np.asarray(c, dtype=object) if c.dtype.kind == "O" else c for c in columns]
+            for key, allowed in self.where.items():
+                col = values[names.index(key)]
+                keep &= np.array([v in allowed for v in col.tolist()], dtype=bool)
+            rows = zip(*[c[keep].tolist() for c in values]) if names else ([] for _ in range(int(keep.sum())))
+            self._raw = (arr[keep], [dict(zip(names, r)) for r in rows])
         return self._raw
 
     def load(self, crs) -> Features:

@@ -270,3 +270,28 @@ def test_under_and_over_default_to_the_end_colors_and_can_be_given():
     assert lut.rgb8[lut.over_index].tolist() == lut.rgb8[lut.n - 1].tolist()
     given = make(land={**GOOD_SEQ, "under": "#000000", "over": {"L": 50, "C": 0, "h": 0}})["land"]
     assert given.lut().rgb8[given.lut().under_index].tolist() == [0, 0, 0]
+
+
+def test_build_only_the_used_ramps_and_their_twin_groups():
+    # Building a subset gives the very same ramps as building all (our own invariant).
+    from types import SimpleNamespace
+
+    from compose.ramps import build_ramps
+
+    t = {
+        "base": {"kind": "sequential", "domain": [0, 1],
+                 "through": [{"L": 90, "C": 10, "h": 100}, {"L": 30, "C": 30, "h": 150}]},
+        "twin-a": {"twin": "base", "hue": [200, 260]},
+        "other": {"kind": "sequential", "domain": [0, 5],
+                  "through": [{"L": 85, "C": 20, "h": 60}, {"L": 35, "C": 40, "h": 20}]},
+    }
+    from pathlib import Path
+
+    tables = {n: SimpleNamespace(name=n, table=v, path=Path("style.toml")) for n, v in t.items()}
+    full = build_ramps(tables)
+    part = build_ramps(tables, only={"twin-a", "not-a-ramp"})
+    assert list(part) == ["base", "twin-a"]
+    for name in part:
+        for a, b in zip(part[name].pieces, full[name].pieces):
+            np.testing.assert_array_equal(a.lab, b.lab)
+    assert list(build_ramps(tables, only={"other"})) == ["other"]
