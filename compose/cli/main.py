@@ -15,6 +15,7 @@ __all__ = ["main", "cli", "handle_errors"]
 # name -> module under compose.cli defining a click command called `command`
 COMMANDS = {
     "ramp": "compose.cli.ramp",
+    "ramps": "compose.cli.ramps",
     "render": "compose.cli.render",
     "check": "compose.cli.check",
     "proof": "compose.cli.proof",

@@ -1,4 +1,4 @@
-"""``compose ramp NAME --style FILE``: show a ramp's colours, its metrics and the rule verdicts."""
+"""``compose ramp NAME [--style FILE]``: show a ramp's colours, its metrics and the rule verdicts."""
 from __future__ import annotations
 
 import json
@@ -12,16 +12,17 @@ from compose.errors import ComposeError, StyleError
 __all__ = ["command", "load_ramps"]
 
 
-def load_ramps(style_path: Path) -> dict:
-    """Build every ramp of the style at ``style_path`` (twins need all their group)."""
-    import compose.style as style_pkg
+def load_ramps(style_path: Path | None, names=()) -> dict:
+    """Build the ramps of the style at ``style_path`` (twins need all their group), completed
+    with the library ramps named in ``names``; without a style, the whole library."""
     from compose.ramps import build_ramps
+    from compose.ramps.library import library_tables, with_library
+    from compose.style import load_style
 
-    loader = getattr(style_pkg, "load_style", None)
-    if loader is None:
-        raise ComposeError("the style loader (compose.style.load_style) is not available")
-    style = loader(style_path, require_map=False)
-    return build_ramps(style.ramps)
+    if style_path is None:
+        return build_ramps(library_tables())
+    style = load_style(style_path, require_map=False)
+    return build_ramps(with_library(style.ramps, names))
 
 
 def _rows(ramp, samples: int) -> list[dict]:
@@ -75,8 +76,10 @@ def _metric_lines(m) -> list[str]:
 
 @click.command("ramp")
 @click.argument("name")
-@click.option("--style", "style_path", required=True,
-              type=click.Path(exists=True, dir_okay=False, path_type=Path), help="Style file (TOML).")
+@click.option("--style", "style_path", default=None,
+              type=click.Path(exists=True, dir_okay=False, path_type=Path),
+              help="Style file (TOML) whose ramps replace library ramps of the same name; "
+                   "default: the library only.")
 @click.option("--samples", type=click.IntRange(2, 65533), default=11, show_default=True,
               help="Rows of the table / objects of --json, evenly spaced over the domain.")
 @click.option("--json", "as_json", is_flag=True, help="Print the samples as a JSON array instead.")
@@ -84,17 +87,20 @@ def _metric_lines(m) -> list[str]:
               help="Also write a figure of the ramp (PNG).")
 @click.option("--units", default=None, help="Units of the data values, for the figure's axis.")
 @handle_errors
-def command(name: str, style_path: Path, samples: int, as_json: bool, plot_path: Path | None,
+def command(name: str, style_path: Path | None, samples: int, as_json: bool, plot_path: Path | None,
             units: str | None) -> None:
-    """Show ramp NAME of a style: sampled colours (value, hex, CIE L*, C*, h), metrics, rules.
+    """Show ramp NAME (of the library, or of --style): sampled colours (value, hex, CIE L*, C*, h), metrics, rules.
 
     L*, C* and h are CIE LCh(ab) under D65 of the 8-bit colour as drawn.
     """
     from compose.ramps import ramp_metrics, rule_checks
 
-    ramps = load_ramps(style_path)
+    ramps = load_ramps(style_path, [name])
     if name not in ramps:
-        raise StyleError(f'{style_path}: no ramp "{name}"; ramps: {", ".join(sorted(ramps)) or "(none)"}')
+        from compose.ramps.library import library_tables
+        known = ", ".join(sorted(set(ramps) | set(library_tables()))) or "(none)"
+        where = f"{style_path}: " if style_path is not None else ""
+        raise StyleError(f'{where}no ramp "{name}"; ramps: {known}')
     ramp = ramps[name]
     rows = _rows(ramp, samples)
     if plot_path is not None:
@@ -109,7 +115,7 @@ def command(name: str, style_path: Path, samples: int, as_json: bool, plot_path:
     extra = f", twin of {ramp.twin_of}" if ramp.twin_of else ""
     where = f"domain {ramp.domain[0]:g} to {ramp.domain[1]:g}" if ramp.kind != "qualitative" else \
         f"{len(ramp.classes)} classes"
-    click.echo(f'ramp "{name}": {ramp.kind}{extra}, {where}  ({style_path})')
+    click.echo(f'ramp "{name}": {ramp.kind}{extra}, {where}  ({ramp.path or style_path})')
     if ramp.kind == "qualitative":
         click.echo(f"  {'value':>8}  {'label':<22} {'family':<10} {'hex':<8} {'L*':>6} {'C*':>6} {'h':>6}")
         for r in rows:

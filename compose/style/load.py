@@ -180,8 +180,11 @@ def _elsewhere(key: str, kind: str | None) -> str | None:
     return f"{key!r} is a key of {', '.join(kinds)} layers" + (f", not {kind}" if kind else "")
 
 
-def parse_layer(table: Mapping, ramps: Mapping[str, Any]) -> LayerSpec:
-    """Validate one merged layer table into a :class:`LayerSpec`; ``ramps``: the ramps by name."""
+def parse_layer(table: Mapping, ramps: Mapping[str, Any],
+                library: Mapping[str, Any] | None = None) -> LayerSpec:
+    """Validate one merged layer table into a :class:`LayerSpec`; ``ramps``: the style's ramps by
+    name; ``library``: the library ramps a layer may also name."""
+    library = library or {}
     name = table["name"]
     at = Scope(f'layer "{name}"')
     schema = None
@@ -196,9 +199,10 @@ def parse_layer(table: Mapping, ramps: Mapping[str, Any]) -> LayerSpec:
         raise missing_keys(missing, at)
     options = schema.parse({k: v for k, v in table.items() if k not in COMMON_KEYS}, at)
     ramp = getattr(options, "ramp", None)
-    if ramp is not None and ramp not in ramps:
+    if ramp is not None and ramp not in ramps and ramp not in library:
         known = ", ".join(sorted(ramps)) if ramps else "none are defined"
-        raise StyleError(f"{at.path}: unknown ramp {ramp!r}; ramps: {known}")
+        extra = f"; library: {', '.join(sorted(library))}" if library else ""
+        raise StyleError(f"{at.path}: unknown ramp {ramp!r}; ramps: {known}{extra}")
     role = check_choice(table["role"], ROLES, at.at("role"), "layer role")
     if role not in schema.roles:
         raise StyleError(f"{at.at('role').path}: a {schema.name} layer cannot be {role!r} (its "
@@ -215,7 +219,8 @@ def parse_layer(table: Mapping, ramps: Mapping[str, Any]) -> LayerSpec:
     )
 
 
-def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_map: bool) -> Style:
+def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_map: bool,
+           library: bool = True) -> Style:
     top = files[-1]
     if "map" in merged:
         spec = build_from_table(MapSpec, merged["map"], Scope("", ("map",)))
@@ -225,14 +230,23 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
     else:
         spec = None
     budgets = build_from_table(Budgets, merged["budget"], Scope("", ("budget",)))
-    ramps = MappingProxyType({
-        name: RampTable(name, freeze(table), origin[name], origin[name].parent)
-        for name, table in merged["ramp"].items()})
+    own = {name: RampTable(name, freeze(table), origin[name], origin[name].parent)
+           for name, table in merged["ramp"].items()}
+    lib: Mapping[str, Any] = {}
+    if library:   # library ramps are named freely; the style's own replace them
+        from compose.ramps.library import library_tables
+        lib = library_tables()
     layers = []
     for table in merged["layer"]:
         at = Scope(f'layer "{table["name"]}"').at("enabled")
         if boolean()(table.get("enabled", True), at):
-            layers.append(parse_layer(table, ramps))
+            layers.append(parse_layer(table, own, lib))
+    if library:
+        from compose.ramps.library import with_library
+        used = [r for r in (getattr(l.options, "ramp", None) for l in layers) if r is not None]
+        ramps = with_library(own, used)
+    else:
+        ramps = MappingProxyType(own)
     if require_map and not layers:
         raise StyleError("the style has no layers; add at least one [[layer]]")
     if spec is not None and spec.like is not None:
@@ -248,16 +262,19 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
                  layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files))
 
 
-def load_style(path: str | Path, *, require_map: bool = True) -> Style:
+def load_style(path: str | Path, *, require_map: bool = True, library: bool = True) -> Style:
     """Load, merge (``extends``) and validate the style at ``path``.
 
     ``require_map=False`` accepts a file without ``[map]`` and layers, such as a ramp library
     (``Style.map`` is then None). Raises :class:`StyleError` (or its :class:`ColorError`) with a
     one-line message naming the file, the key path and the value. Layer sources are made
     absolute but not checked for existence.
+
+    ``library``: complete the style's ramps with the library ramps it names (and their twin
+    bases; :mod:`compose.ramps.library`); False reads the file's own ramps only.
     """
     path = Path(path).expanduser().resolve()
     files = _chain(path)
     merged, origin = _merge(files)
     with _blame(path):
-        return _build(merged, origin, files, require_map)
+        return _build(merged, origin, files, require_map, library)

@@ -15,7 +15,7 @@ from click.testing import CliRunner
 import compose.style
 from compose.cli.main import cli
 
-LIBRARY = Path(__file__).resolve().parents[2] / "styles" / "ramps.toml"
+LIBRARY = Path(__file__).resolve().parents[2] / "compose" / "ramps" / "library.toml"
 
 
 @pytest.fixture(autouse=True)

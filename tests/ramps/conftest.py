@@ -23,7 +23,7 @@ import pytest
 from compose.ramps import build_ramps
 
 ROOT = Path(__file__).resolve().parents[2]
-LIBRARY = ROOT / "styles" / "ramps.toml"
+LIBRARY = ROOT / "compose" / "ramps" / "library.toml"
 POOR = ROOT / "styles" / "poor-ramps.toml"
 
 Table = namedtuple("Table", "name table path")
@@ -117,5 +117,5 @@ def style_ramps(path: Path) -> dict:
 
 @pytest.fixture(scope="session")
 def library():
-    """The built library ramps of styles/ramps.toml."""
+    """The built library ramps of compose/ramps/library.toml."""
     return build_ramps(style_ramps(LIBRARY))

@@ -165,7 +165,7 @@ def test_ramps_from_base_and_ramp_library(write):
     s = load_style(path)
     assert s.layers[0].options.ramp == "sst" and s.ramps["sst"].base_dir.name == "lib"
     bad = write("s2.toml", 'extends = "lib/ramps.toml"\n' + MAP + lay("t", "field", 'ramp = "sstt"'))
-    with pytest.raises(StyleError, match="s2.toml: layer \"t\": unknown ramp 'sstt'; ramps: sst$"):
+    with pytest.raises(StyleError, match="s2.toml: layer \"t\": unknown ramp 'sstt'; ramps: sst; library: "):
         load_style(bad)
 
 

@@ -194,7 +194,7 @@ def test_no_layers(style):
 def test_unknown_ramp_lists_ramps(style):
     ramps = "".join(f'[ramp.{n}]\nkind = "sequential"\n' for n in ("c", "a", "b"))
     body = ramps + '[[layer]]\nname = "sst"\nrole = "theme"\nkind = "field"\nsource = "s.tif"\nramp = "sstt"\n'
-    assert error(style, body).endswith("layer \"sst\": unknown ramp 'sstt'; ramps: a, b, c")
+    assert "layer \"sst\": unknown ramp 'sstt'; ramps: a, b, c; library: change, cover" in error(style, body)
     body = '[[layer]]\nname = "c"\nrole = "theme"\nkind = "classes"\nsource = "c.tif"\nramp = "x"\n'
     assert "unknown ramp 'x'; ramps: none are defined" in error(style, body)
 
