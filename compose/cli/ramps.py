@@ -74,12 +74,13 @@ def write_sheet(path: Path, ramps: dict, title: str) -> None:
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
+    from compose.color import interface as ui
     from compose.output.atomic import atomic_path
 
     n = max(1, len(ramps))
     fig = Figure(figsize=(8.0, 0.9 + 0.42 * n), dpi=150)
     FigureCanvasAgg(fig)
-    fig.text(0.02, 1 - 0.25 / (0.9 + 0.42 * n), title, fontsize=11, color="#2b2b2b", va="center")
+    fig.text(0.02, 1 - 0.25 / (0.9 + 0.42 * n), title, fontsize=11, color=ui.INK.hex, va="center")
     top = 1 - 0.6 / (0.9 + 0.42 * n)
     row = (top - 0.3 / (0.9 + 0.42 * n)) / n
     for i, (name, ramp) in enumerate(ramps.items()):
@@ -88,11 +89,11 @@ def write_sheet(path: Path, ramps: dict, title: str) -> None:
         rgb = _strip_colors(ramp, 256)
         ax.imshow(rgb[None, :, :], aspect="auto", interpolation="nearest")
         ax.set_axis_off()
-        fig.text(0.02, y + row * 0.62, name, fontsize=8.5, color="#2b2b2b", va="center")
-        fig.text(0.02, y + row * 0.30, describe_ramp(ramp), fontsize=6.5, color="#6b6b6b",
+        fig.text(0.02, y + row * 0.62, name, fontsize=8.5, color=ui.INK.hex, va="center")
+        fig.text(0.02, y + row * 0.30, describe_ramp(ramp), fontsize=6.5, color=ui.MUTED.hex,
                  va="center")
     with atomic_path(Path(path)) as tmp:
-        fig.savefig(tmp, format="png", facecolor="white")
+        fig.savefig(tmp, format="png", facecolor=ui.PAPER.hex)
 
 
 @click.command("ramps")
