@@ -23,7 +23,7 @@ class Palette:
     """A colour lookup table: entry i has colour ``rgb8[i]``.
 
     rgb8: (n, 3) uint8 sRGB. planes: (3, n) float32 in [0, 1], for np.take per channel.
-    values: (n,) data value of each entry (NaN where none: under, over, no-data, classes' gaps).
+    values: (n,) data value of each entry (NaN where none: outside low / high, no-data, classes' gaps).
     nodata: index of the no-data entry, or -1.
     """
 

@@ -5,7 +5,7 @@ Blocks, top to bottom in style order:
 * **colour bars** for every raster layer drawn through a continuous or stepped ramp, in data
   units. Continuous ramps are drawn column by column from the layer's lookup table (the colours
   the map has, not a re-interpolation); stepped ramps as equal-width blocks with their breaks
-  labelled; under / over as end triangles; the threshold break and the diverging centre are
+  labelled; the out-of-domain colours as separate end squares with a '<' / '>' sign; the threshold break and the diverging centre are
   marked above the bar; the no-data colour as a labelled swatch (left out when no-data is
   transparent). Layers whose ramps are twins (or share a ramp) are stacked on one shared data
   scale with a single axis, so equal values can be compared across them at a glance.
@@ -23,11 +23,12 @@ from pathlib import Path
 
 import numpy as np
 
-from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, FAMILY_ROW, FONT, FRAME, GAP,
-                                          INK, KEY_PATCH, MARGIN, MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT,
-                                          TITLE_H, TOP, TRIANGLE, WIDTH, BarBox, LegendLayout,
-                                          _Classes, _fmt, _marks, _nodata_swatches, _Overlays,
-                                          _ramp_of, _Ramps, _rgb, legend_layout, pretty_name)
+from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, END_SIGN, END_W,
+                                          FAMILY_ROW, FONT, FRAME, GAP, INK, KEY_PATCH, MARGIN,
+                                          MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT, TITLE_H, TOP,
+                                          WIDTH, BarBox, LegendLayout, _Classes, _fmt, _marks,
+                                          _nodata_swatches, _Overlays, _ramp_of, _Ramps, _rgb,
+                                          legend_layout, pretty_name)
 
 __all__ = ["write_legend", "legend_figure", "legend_layout", "LegendLayout", "BarBox",
            "pretty_name", "DPI", "WIDTH"]
@@ -66,7 +67,7 @@ def _bar_image(lut, box: BarBox) -> np.ndarray:
 
 
 def _draw_ramps(ax, b: _Ramps, y: float, boxes: list[BarBox]) -> None:
-    from matplotlib.patches import Polygon, Rectangle
+    from matplotlib.patches import Rectangle
 
     ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center", ha="left")
@@ -81,16 +82,18 @@ def _draw_ramps(ax, b: _Ramps, y: float, boxes: list[BarBox]) -> None:
         ax.imshow(img, extent=(x0, x1, bottom, top), aspect="auto", interpolation="nearest",
                   zorder=1)
         lut = layer.lut
-        under, over = np.asarray(lut.rgb8[lut.under_index]) / 255, np.asarray(lut.rgb8[lut.over_index]) / 255
         mid = (top + bottom) / 2
-        ax.add_patch(Polygon([(x0, top), (x0 - TRIANGLE, mid), (x0, bottom)], closed=True,
-                             facecolor=under, edgecolor=FRAME, lw=0.4, zorder=2))
-        ax.add_patch(Polygon([(x1, top), (x1 + TRIANGLE, mid), (x1, bottom)], closed=True,
-                             facecolor=over, edgecolor=FRAME, lw=0.4, zorder=2))
+        # out-of-domain colours: a separate square at each end, a sign on its outer side
+        for index, left, sign, side in ((lut.outside_low_index, x0 - END_GAP - END_W, "<", -1),
+                                        (lut.outside_high_index, x1 + END_GAP, ">", 1)):
+            ax.add_patch(Rectangle((left, top), END_W, bottom - top, edgecolor=FRAME, lw=0.4,
+                                   facecolor=np.asarray(lut.rgb8[index]) / 255, zorder=2))
+            ax.text(left + END_W / 2 + side * (END_W / 2 + 0.035), mid, sign, fontsize=FONT - 0.6,
+                    color=MUTED, ha="center", va="center")
         ax.add_patch(Rectangle((x0, top), x1 - x0, bottom - top, fill=False, edgecolor=FRAME,
                                lw=0.4, zorder=3))
         if label:
-            ax.text(x0 - TRIANGLE - 0.06, mid, label, fontsize=FONT, color=INK, ha="right",
+            ax.text(x0 - END - 0.05, mid, label, fontsize=FONT, color=INK, ha="right",
                     va="center")
     bar_top, bar_bottom = mine[0].y0 / DPI, mine[-1].y1 / DPI
     if b.layers[0].lut.stepped and len(xs) > 2:   # class boundaries as hairlines between the blocks
@@ -107,7 +110,7 @@ def _draw_ramps(ax, b: _Ramps, y: float, boxes: list[BarBox]) -> None:
         ax.plot([x], [bar_top - 0.045], marker="v", ms=3.6, color=INK, zorder=4)
         ax.text(x, bar_top - 0.085, text, fontsize=FONT - 1, color=INK, ha="center", va="bottom")
     y_sw = bar_bottom + AXIS_H
-    _draw_swatches(ax, _nodata_swatches(b.layers), x0 - TRIANGLE, y_sw)
+    _draw_swatches(ax, _nodata_swatches(b.layers), x0 - END + END_SIGN, y_sw)
 
 
 def _draw_swatches(ax, swatches, x: float, y: float) -> None:

@@ -9,7 +9,8 @@ import numpy as np
 
 from compose.color import interface as ui
 
-__all__ = ["legend_layout", "LegendLayout", "BarBox", "pretty_name", "DPI", "WIDTH"]
+__all__ = ["legend_layout", "LegendLayout", "BarBox", "pretty_name", "DPI", "WIDTH", "END_GAP", "END_W",
+           "END_SIGN", "END"]
 
 DPI = 200                 # pixels per inch of the PNG
 WIDTH = 3.6               # inches
@@ -27,7 +28,10 @@ TITLE_FONT = 8.6
 TOP, BOTTOM, GAP = 0.16, 0.14, 0.2
 TITLE_H, MARK_H, BAR_H, BAR_GAP, AXIS_H, SWATCH_ROW = 0.24, 0.17, 0.19, 0.05, 0.27, 0.22
 CLASS_ROW, FAMILY_ROW, OVERLAY_ROW = 0.205, 0.2, 0.235
-TRIANGLE = 0.13           # width of an under / over end triangle, inches
+# out-of-domain colours (ramp key outside = { low, high }): at each end of a bar a separate
+# square, set off by a gap, with a '<' / '>' sign on its outer side:  < [] [bar....] [] >
+END_GAP, END_W, END_SIGN = 0.045, 0.1, 0.08     # inches
+END = END_GAP + END_W + END_SIGN                 # room at each end of a bar, inches
 
 
 def pretty_name(name: str) -> str:
@@ -216,8 +220,8 @@ def _bar_geometry(block: _Ramps) -> tuple[float, float, float]:
     """(left of the bar labels column, x0, x1) of a colour-bar block, inches."""
     width = max((len(t) for t in block.labels), default=0)
     label_w = 0.0 if width == 0 else min(1.3, 0.14 + 0.068 * width)
-    x0 = MARGIN + label_w + TRIANGLE
-    x1 = WIDTH - MARGIN - TRIANGLE
+    x0 = MARGIN + label_w + END
+    x1 = WIDTH - MARGIN - END
     return MARGIN, x0, x1
 
 

@@ -138,11 +138,11 @@ def _drawn_colors(ramp: Ramp) -> np.ndarray:
         return np.array([c.rgb for c in ramp.classes])
     lo, hi = ramp.domain
     rgb = ramp.colors_at(np.linspace(lo, hi, 257))
-    return np.concatenate([rgb, [ramp.under, ramp.over]])
+    return np.concatenate([rgb, [ramp.outside_low, ramp.outside_high]])
 
 
 def _finish(ramp: Ramp, spec: RampSpec) -> Ramp:
-    """Fill in under / over (end colours; first / last class of a stepped ramp) and nodata
+    """Fill in the outside low / high colours (end colours; first / last class of a stepped ramp) and nodata
     (given, or chosen off the ramp)."""
     if ramp.kind != "qualitative":
         if ramp.stepped:   # a classed map continues its first and last classes
@@ -150,7 +150,8 @@ def _finish(ramp: Ramp, spec: RampSpec) -> Ramp:
             first, last = tuple(map(float, classes[0])), tuple(map(float, classes[-1]))
         else:
             first, last = _ends(ramp.pieces)
-        ramp = dataclasses.replace(ramp, under=spec.under or first, over=spec.over or last)
+        ramp = dataclasses.replace(ramp, outside_low=spec.outside_low or first,
+                                   outside_high=spec.outside_high or last)
     if spec.nodata is not None:
         return dataclasses.replace(ramp, nodata=spec.nodata, nodata_given=True)
     return dataclasses.replace(ramp, nodata=choose_nodata(_drawn_colors(ramp)))

@@ -121,7 +121,7 @@ def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) 
         axes.append(ax)
     side = fig.add_subplot(gs[0:len(members), 1])
     side.axis("off")
-    for j, (label, rgb) in enumerate((("under", ramp.under), ("over", ramp.over), ("nodata", ramp.nodata))):
+    for j, (label, rgb) in enumerate((("outside low", ramp.outside_low), ("outside high", ramp.outside_high), ("nodata", ramp.nodata))):
         y = 0.8 - j * 0.33
         side.add_patch(_rect((0.0, y - 0.11), 0.32, 0.22, rgb))
         side.text(0.42, y, label, fontsize=7.5, va="center", color=INK)

@@ -3,9 +3,9 @@
 Index layout (n = number of ramp entries, ``len(lut.values)``)::
 
     0 .. n-1   ramp entries (continuous samples, classes of a stepped ramp, or qualitative classes)
-    n          under   (finite values below the domain)
-    n + 1      over    (finite values above the domain)
-    n + 2      nodata  (NaN; for qualitative ramps also every value that is no class)
+    n          outside low   (finite values below the domain)
+    n + 1      outside high  (finite values above the domain)
+    n + 2      nodata        (NaN; for qualitative ramps also every value that is no class)
 
 so a uint16 index image covers everything and ``np.take(lut.rgba8_table(), index)`` draws it.
 Entries cover half-open intervals [edge_i, edge_i+1) and the last one is closed.
@@ -16,7 +16,7 @@ Entries cover half-open intervals [edge_i, edge_i+1) and the last one is closed.
 * stepped ramps: one entry per class interval; class colours per
   :data:`compose.ramps.model.STEPPED_COLOR_RULE`; ``values`` are the interval midpoints.
 * qualitative ramps: one entry per class, in the order given; ``values`` are the class values;
-  under and over are drawn in the nodata colour.
+  outside low and high are drawn in the nodata colour.
 """
 from __future__ import annotations
 
@@ -35,7 +35,7 @@ __all__ = ["Lut", "lut_for", "stepped_lut", "quantile_breaks", "drawn_samples"]
 @dataclass(frozen=True, slots=True, eq=False)
 class Lut:
     """A ramp as drawn. ``values`` (n,) data value of each entry; ``rgb8`` (n + 3, 3) uint8 and
-    ``lab`` (n + 3, 3) CIELAB of those 8-bit colours, with under, over, nodata at n, n+1, n+2;
+    ``lab`` (n + 3, 3) CIELAB of those 8-bit colours, with outside low, outside high, nodata at n, n+1, n+2;
     ``edges`` (n + 1,) interval edges (empty for qualitative ramps); ``origin`` / ``width``
     describe evenly spaced intervals (index = floor((v - origin) / width)), used when ``width``
     is not None; ``split`` is the threshold break (a second even run starts there);
@@ -57,15 +57,15 @@ class Lut:
 
     @property
     def n(self) -> int:
-        """Number of ramp entries (without under / over / nodata)."""
+        """Number of ramp entries (without outside low / high and nodata)."""
         return len(self.values)
 
     @property
-    def under_index(self) -> int:
+    def outside_low_index(self) -> int:
         return self.n
 
     @property
-    def over_index(self) -> int:
+    def outside_high_index(self) -> int:
         return self.n + 1
 
     @property
@@ -91,8 +91,8 @@ class Lut:
         else:
             t = np.searchsorted(self.edges[1:-1], v, side="right").astype(float)
         t = np.clip(t, 0, n - 1)
-        t = np.where(v < lo, self.under_index, t)
-        t = np.where(v > hi, self.over_index, t)
+        t = np.where(v < lo, self.outside_low_index, t)
+        t = np.where(v > hi, self.outside_high_index, t)
         t = np.where(np.isnan(v), self.nodata_index, t)
         return t.astype(np.uint16)
 
@@ -132,7 +132,7 @@ def quantile_breaks(values, k: int, domain: tuple[float, float], name: str = "")
 
 
 def _assemble(ramp: Ramp, values, rgb, edges, **kw) -> Lut:
-    rgb8 = to_rgb8(np.concatenate([rgb, [ramp.under, ramp.over, ramp.nodata]]))
+    rgb8 = to_rgb8(np.concatenate([rgb, [ramp.outside_low, ramp.outside_high, ramp.nodata]]))
     return Lut(ramp.name, ramp.kind, np.asarray(values, dtype=float), rgb8, srgb_to_lab(rgb8 / 255.0),
                np.asarray(edges, dtype=float), ramp=ramp, **kw)
 
@@ -152,8 +152,8 @@ def lut_for(ramp: Ramp, samples: int | None = None) -> Lut:
     """The lookup table of ``ramp`` (see the module docstring)."""
     if ramp.kind == "qualitative":
         rgb = np.array([c.rgb for c in ramp.classes])
-        under = replace(ramp, under=ramp.nodata, over=ramp.nodata)
-        return _assemble(under, [c.value for c in ramp.classes], rgb, np.empty(0))
+        plain = replace(ramp, outside_low=ramp.nodata, outside_high=ramp.nodata)
+        return _assemble(plain, [c.value for c in ramp.classes], rgb, np.empty(0))
     edges = ramp.class_edges()
     if edges is not None:
         return stepped_lut(ramp, edges)

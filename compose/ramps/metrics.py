@@ -269,7 +269,7 @@ def _continuous(ramp: Ramp, m: dict) -> np.ndarray:
     if not ramp.stepped:
         order = vision_lab(to_rgb8(ramp.colors_at(np.linspace(lo, hi, ORDER_SAMPLES))))
         m["min_step_de00"] = {v: _min_adjacent(lab) for v, lab in order.items()}
-    return np.concatenate([drawn, to_rgb8(np.array([ramp.under, ramp.over]))])
+    return np.concatenate([drawn, to_rgb8(np.array([ramp.outside_low, ramp.outside_high]))])
 
 
 def rule_checks(metrics: RampMetrics, limits: RampLimits = RampLimits()) -> list[RuleCheck]:

@@ -74,8 +74,8 @@ class Ramp:
     domain: tuple[float, float]
     stops: tuple[LCH, ...]
     space: str
-    under: RGB
-    over: RGB
+    outside_low: RGB     # drawn for finite values below the domain
+    outside_high: RGB    # drawn for finite values above the domain
     nodata: RGB
     pieces: tuple[Piece, ...] = ()
     classes: tuple[RampClass, ...] = ()
@@ -118,7 +118,7 @@ class Ramp:
         """sRGB (..., 3) of the continuous ramp at data values ``x`` (...).
 
         With ``fraction=True`` ``x`` is a position 0-1 along the domain. Values below / above the
-        domain give the under / over colour, NaN the nodata colour. Stepped ramps still answer
+        domain give the ``outside`` low / high colour, NaN the nodata colour. Stepped ramps still answer
         with their continuous colours here; the lookup table (:meth:`lut`) draws the classes.
         Qualitative ramps: the colour of the class with that value (with ``fraction``, of class
         ``floor(x * n)``), nodata for values that are no class.
@@ -137,8 +137,8 @@ class Ramp:
         lo, hi = self.domain
         v = lo + x * (hi - lo) if fraction else x
         rgb = np.clip(lab_to_srgb(self.lab_at(v)), 0.0, 1.0)
-        rgb[v < lo] = self.under
-        rgb[v > hi] = self.over
+        rgb[v < lo] = self.outside_low
+        rgb[v > hi] = self.outside_high
         rgb[np.isnan(v)] = self.nodata
         return rgb
 

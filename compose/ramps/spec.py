@@ -22,9 +22,9 @@ __all__ = ["KINDS", "STEP_METHODS", "MAX_SAMPLES", "RampClass", "RampSpec", "par
 
 KINDS = ("sequential", "diverging", "qualitative", "threshold")
 STEP_METHODS = ("equal", "quantile")
-MAX_SAMPLES = 65533  # + under, over, nodata entries = 65536 indices of a uint16 image
+MAX_SAMPLES = 65533  # + outside low, outside high, nodata entries = 65536 indices of a uint16 image
 
-_SAMPLING = {"domain", "under", "over", "nodata", "steps", "step_method", "breaks", "samples"}
+_SAMPLING = {"domain", "outside", "nodata", "steps", "step_method", "breaks", "samples"}
 _KEYS = {
     "sequential": {"kind", "space", "through"} | _SAMPLING,
     "diverging": {"kind", "space", "through", "center"} | _SAMPLING,
@@ -33,6 +33,7 @@ _KEYS = {
     "twin": {"twin", "hue", "kind"} | _SAMPLING,
 }
 _CLASS_KEYS = ("value", "label", "color", "family")
+_OUTSIDE_KEYS = ("low", "high")   # outside = { low = colour below the domain, high = above }
 
 
 @dataclass(frozen=True, slots=True)
@@ -62,8 +63,8 @@ class RampSpec:
     twin: str | None = None
     hue: tuple[float, float] | None = None
     classes: tuple[RampClass, ...] = ()
-    under: tuple[float, float, float] | None = None
-    over: tuple[float, float, float] | None = None
+    outside_low: tuple[float, float, float] | None = None    # drawn below the domain
+    outside_high: tuple[float, float, float] | None = None   # drawn above the domain
     nodata: tuple[float, float, float] | None = None
     steps: int | None = None
     step_method: str | None = None
@@ -169,9 +170,19 @@ def _classes(table: Mapping, where: str) -> tuple[RampClass, ...]:
 
 def _sampling(table: Mapping, where: str, domain) -> dict:
     out: dict = {}
-    for key in ("under", "over", "nodata"):
-        if key in table:
-            out[key] = parse_color(table[key], f"{where}: {key}")
+    if "nodata" in table:
+        out["nodata"] = parse_color(table["nodata"], f"{where}: nodata")
+    if "outside" in table:
+        outside = table["outside"]
+        if not isinstance(outside, Mapping):
+            raise StyleError(f"{where}: 'outside' must be a table {{ low = colour, high = colour }}, "
+                             f"got {outside!r}")
+        for key in outside:
+            if key not in _OUTSIDE_KEYS:
+                raise StyleError(f"{where}: outside: unknown key '{key}'{closest(str(key), _OUTSIDE_KEYS)}")
+        for key in _OUTSIDE_KEYS:
+            if key in outside:
+                out[f"outside_{key}"] = parse_color(outside[key], f"{where}: outside.{key}")
     if "samples" in table:
         out["samples"] = _integer(table["samples"], where, "samples", 2, MAX_SAMPLES)
     if "steps" in table and "breaks" in table:

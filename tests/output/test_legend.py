@@ -8,6 +8,7 @@ from PIL import Image
 
 from compose.engine import prepare
 from compose.output.legend import DPI, WIDTH, legend_layout, pretty_name, write_legend
+from compose.output.legend_layout import END_GAP, END_W
 from compose.style import load_style
 from tests.output._tiny import tiny_style
 
@@ -86,15 +87,19 @@ def test_twins_share_one_scale_and_are_stacked(drawn):
     assert water.y0 > land.y1 and water.y0 - land.y1 < 0.2 * DPI   # stacked directly beneath
 
 
-def test_end_triangles_show_under_and_over(drawn):
+def test_end_squares_show_the_outside_colors_set_off_by_a_gap(drawn):
     layout, layers, rgb = drawn
     box = next(b for b in layout.bars if b.layer == "warmth")
     lut = layers["warmth"].lut
     row = int((box.y0 + box.y1) / 2)
-    under = rgb[row, int(box.x0) - 6].astype(int)
-    over = rgb[row, int(box.x1) + 6].astype(int)
-    assert np.abs(under - lut.rgb8[lut.under_index]).max() <= TOL
-    assert np.abs(over - lut.rgb8[lut.over_index]).max() <= TOL
+    centre = (END_GAP + END_W / 2) * DPI
+    low = rgb[row, int(box.x0 - centre)].astype(int)
+    high = rgb[row, int(box.x1 + centre)].astype(int)
+    assert np.abs(low - lut.rgb8[lut.outside_low_index]).max() <= TOL
+    assert np.abs(high - lut.rgb8[lut.outside_high_index]).max() <= TOL
+    # the squares stand apart from the bar: paper in the gap between them
+    gap = END_GAP / 2 * DPI
+    assert rgb[row, int(box.x0 - gap)].min() >= 250 and rgb[row, int(box.x1 + gap)].min() >= 250
 
 
 @pytest.mark.parametrize("name, pretty", [("land-productivity", "Land productivity"),

@@ -263,13 +263,14 @@ def test_given_nodata_is_kept_even_when_poor():
     assert not verdicts(ramp)["ramp.nodata-separation"]
 
 
-def test_under_and_over_default_to_the_end_colors_and_can_be_given():
+def test_outside_colors_default_to_the_end_colors_and_can_be_given():
     ramp = make(land=GOOD_SEQ)["land"]
     lut = ramp.lut()
-    assert lut.rgb8[lut.under_index].tolist() == lut.rgb8[0].tolist()
-    assert lut.rgb8[lut.over_index].tolist() == lut.rgb8[lut.n - 1].tolist()
-    given = make(land={**GOOD_SEQ, "under": "#000000", "over": {"L": 50, "C": 0, "h": 0}})["land"]
-    assert given.lut().rgb8[given.lut().under_index].tolist() == [0, 0, 0]
+    assert lut.rgb8[lut.outside_low_index].tolist() == lut.rgb8[0].tolist()
+    assert lut.rgb8[lut.outside_high_index].tolist() == lut.rgb8[lut.n - 1].tolist()
+    given = make(land={**GOOD_SEQ, "outside": {"low": "#000000", "high": {"L": 50, "C": 0, "h": 0}}})["land"]
+    assert given.lut().rgb8[given.lut().outside_low_index].tolist() == [0, 0, 0]
+    assert given.lut().rgb8[given.lut().outside_high_index].tolist() == [119, 119, 119]   # L* 50 grey
 
 
 def test_build_only_the_used_ramps_and_their_twin_groups():

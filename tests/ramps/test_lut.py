@@ -19,7 +19,7 @@ def test_layout_of_a_continuous_table():
     lut = make(land=SEQ)["land"].lut()
     n = lut.n
     assert n == 1024 and lut.rgb8.shape == (n + 3, 3) and lut.lab.shape == (n + 3, 3)
-    assert (lut.under_index, lut.over_index, lut.nodata_index) == (n, n + 1, n + 2)
+    assert (lut.outside_low_index, lut.outside_high_index, lut.nodata_index) == (n, n + 1, n + 2)
     idx = lut.index(np.array([0.0, 12.0, -0.001, 12.001, np.nan, -np.inf, np.inf]))
     assert idx.dtype == np.uint16
     assert idx.tolist() == [0, n - 1, n, n + 1, n + 2, n, n + 1]
@@ -118,7 +118,7 @@ def test_qualitative_index():
     idx = lut.index(np.array([[1, 4, 8], [2, np.nan, 0]]))
     assert idx.tolist() == [[1, 2, 0], [5, 5, 5]]
     assert lut.rgb8[1].tolist() == [0x2a, 0x5a, 0x3e]
-    assert lut.rgb8[lut.under_index].tolist() == lut.rgb8[lut.nodata_index].tolist()
+    assert lut.rgb8[lut.outside_low_index].tolist() == lut.rgb8[lut.nodata_index].tolist()
 
 
 def test_rgba8_table_packs_for_np_take():

@@ -47,7 +47,7 @@ def test_sequential_metrics_against_colour_science():
         lab = ref_vision_lab(order, vision)
         assert m.min_step_de00[vision] == pytest.approx(np.min(ref_de00(lab[:-1], lab[1:])), abs=1e-2)
     nd = ref_lab(np.rint(np.array([ramp.nodata]) * 255))[0]
-    drawn = ref_lab(np.concatenate([rgb8, np.rint(np.array([ramp.under, ramp.over]) * 255)]))
+    drawn = ref_lab(np.concatenate([rgb8, np.rint(np.array([ramp.outside_low, ramp.outside_high]) * 255)]))
     assert m.nodata_min_de00 == pytest.approx(np.min(ref_de00(nd, drawn)), abs=1e-2)
 
 

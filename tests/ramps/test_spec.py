@@ -65,6 +65,10 @@ def test_key_of_another_kind_is_unknown():
      "classes[0]: unknown key 'colour'; did you mean 'color'?"),
     ({"kind": "qualitative", "classes": [{"value": 1, "color": "#fff"}, {"value": 1, "color": "#000"}]},
      "classes[1]: value 1 is given twice"),
+    ({**SEQ, "outside": "#000"}, "'outside' must be a table { low = colour, high = colour }"),
+    ({**SEQ, "outside": {"lo": "#000"}}, "outside: unknown key 'lo'; did you mean 'low'?"),
+    ({**SEQ, "outside": {"high": "nope"}}, "outside.high: 'nope' is not a colour"),
+    ({**SEQ, "under": "#000"}, "unknown key 'under'"),
     ({"twin": "land", "hue": 200}, "'hue' must be [hue at the low end, hue at the high end]"),
     ({"twin": "land", "hue": [1, 2], "kind": "diverging"}, "a twin has its base's kind"),
 ])
