@@ -188,7 +188,7 @@ def write_proofs(style, out_dir: Path, *, overwrite: bool = False,
     from compose.check import check_style
     from compose.engine import prepare, run
     from compose.output.atomic import atomic_path, check_writable
-    from compose.render import CAUTION
+    from compose.caution import CAUTION
 
     t0 = time.perf_counter()
     paths = proof_paths(style, out_dir)

@@ -1,22 +1,25 @@
-"""``compose render``: a style in, a georeferenced map and its companions out.
+"""Rendering a style into files: NAME.png (sRGB), NAME.tif (RGB GeoTIFF on the canvas grid),
+NAME.legend.png, NAME.check.json, NAME.html (the self-contained review page) and, on request,
+the grey and colour-vision proofs with their contact sheet.
 
-Writes NAME.png (sRGB), NAME.tif (RGBA GeoTIFF on the canvas grid), NAME.legend.png,
-NAME.check.json and NAME.html (the self-contained proof page), each to a temporary name renamed
-into place only when everything succeeded.
+One walk over the windows (:func:`compose.engine.run`) feeds every output: the PNG and GeoTIFF
+writers, the proof writers, a box-averaged copy of the map and the per-layer previews for the
+page; the check reads the walk's merged statistics and the page is a pure function of all that
+(:func:`compose.output.html.page_html`). Every file goes to a temporary name and is renamed into
+place only when everything succeeded.
 """
 from __future__ import annotations
 
 import contextlib
 import json
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import Any
 
-import numpy as np
-
+from compose.caution import CAUTION
 from compose.engine import prepare, run
-from compose.errors import OutputError
 from compose.output.atomic import atomic_path, check_writable
 from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
@@ -24,21 +27,28 @@ from compose.output.png import PngWriter
 
 __all__ = ["RenderResult", "render_style", "output_paths", "CAUTION"]
 
-from compose.check.report import CAUTION  # noqa: E402  (one wording everywhere)
-
 
 @dataclass
 class RenderResult:
-    """What a render produced: output paths, canvas size, timings, statistics and check report."""
+    """What a render produced.
+
+    outputs: kind -> path of every file written; width, height: the canvas in pixels;
+    seconds: stage -> wall-clock seconds (prepare, compute, encode, legend, check, html, total);
+    statistics: the merged :class:`compose.check.stats.Statistics` (None when not checked);
+    report: the :class:`compose.check.Report` (None when not checked); unplaced_labels: layer ->
+    labels that found no room; ramps: the built ramps by name; pictures: what the review page
+    shows (:class:`compose.output.html_images.PagePictures`, None without a page).
+    """
 
     outputs: dict[str, Path]
     width: int
     height: int
     seconds: dict[str, float]
-    statistics: object
-    report: object | None = None
+    statistics: Any
+    report: Any | None = None
     unplaced_labels: dict[str, list[str]] = field(default_factory=dict)
     ramps: dict = field(default_factory=dict)
+    pictures: Any | None = None
 
 
 class _PngSink:
@@ -57,86 +67,131 @@ class _TiffSink:
         self.writer.write(row0, 0, rgb8)
 
 
-def output_paths(style, out_dir: Path) -> dict[str, Path]:
-    """Where each output of ``style`` goes in ``out_dir``."""
+def output_paths(style, out_dir: Path, *, proofs: bool = False) -> dict[str, Path]:
+    """Where each output of ``style`` goes in ``out_dir`` (with ``proofs``: also the proof
+    files, see :func:`compose.proof.proof_paths`)."""
     out_dir = Path(out_dir)
     name = style.name
-    return {"png": out_dir / f"{name}.png", "tif": out_dir / f"{name}.tif",
-            "legend": out_dir / f"{name}.legend.png", "check": out_dir / f"{name}.check.json",
-            "html": out_dir / f"{name}.html"}
+    paths = {"png": out_dir / f"{name}.png", "tif": out_dir / f"{name}.tif",
+             "legend": out_dir / f"{name}.legend.png", "check": out_dir / f"{name}.check.json",
+             "html": out_dir / f"{name}.html"}
+    if proofs:
+        from compose.proof import proof_paths
+
+        paths.update({f"proof-{k}": p for k, p in proof_paths(style, out_dir).items()})
+    return paths
 
 
 def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  progress: Callable[[int, int], None] | None = None,
                  extra_sinks: list | None = None, legend: bool = True, check: bool = True,
-                 html: bool = True) -> RenderResult:
-    """Render ``style`` into ``out_dir``; nothing is left half-written if anything fails.
+                 html: bool = True, proofs: bool = False,
+                 mapper: Callable | None = None) -> RenderResult:
+    """Render ``style`` into ``out_dir`` in one walk; nothing is left half-written if anything
+    fails.
 
-    ``html``: also write the proof page NAME.html (:mod:`compose.output.html`); its copy of the
-    map is kept while rendering and its proofs are computed from that copy.
+    ``legend`` / ``check`` / ``html``: also write NAME.legend.png / NAME.check.json / NAME.html;
+    ``proofs``: also the grey and colour-vision proofs and their contact sheet
+    (NAME.proof-*.png); ``extra_sinks``: more row sinks fed by the walk; ``mapper``: runs the
+    window tasks (see :func:`compose.engine.run`); ``progress(done, total)`` after each window.
     """
     t0 = time.perf_counter()
-    paths = output_paths(style, out_dir)
-    if not legend:
-        paths.pop("legend")
-    if not check:
-        paths.pop("check")
-    if not html:
-        paths.pop("html")
+    paths = output_paths(style, out_dir, proofs=proofs)
+    for key, wanted in (("legend", legend), ("check", check), ("html", html)):
+        if not wanted:
+            paths.pop(key)
     check_writable(list(paths.values()), overwrite)
-    run_ = prepare(style)
+    prepared = prepare(style)
+    seconds = prepared.seconds
     try:
-        canvas = run_.canvas
+        canvas = prepared.canvas
         tags = {"TIFFTAG_DOCUMENTNAME": style.map.title or style.name,
                 "TIFFTAG_IMAGEDESCRIPTION": CAUTION, "TIFFTAG_SOFTWARE": "compose"}
         with contextlib.ExitStack() as stack:
-            png_tmp = stack.enter_context(atomic_path(paths["png"]))
-            tif_tmp = stack.enter_context(atomic_path(paths["tif"]))
-            png = _PngSink(png_tmp, canvas.width, canvas.height, canvas.dpi)
-            tif = _TiffSink(tif_tmp, canvas, tags)
-            stack.callback(tif.writer.close)
+            tmp = {k: stack.enter_context(atomic_path(p)) for k, p in paths.items()}
+            png = _PngSink(tmp["png"], canvas.width, canvas.height, canvas.dpi)
             stack.callback(png.writer.abort)
+            tif = _TiffSink(tmp["tif"], canvas, tags)
+            stack.callback(tif.writer.close)
             # the encoders run on their own threads, beside the next windows' compute
             png_bg, tif_bg = BackgroundSink(png, "png"), BackgroundSink(tif, "geotiff")
             stack.callback(tif_bg.abort)
             stack.callback(png_bg.abort)
-            preview = None
+            sinks: list = [png_bg, tif_bg]
+            proof_sink = None
+            if proofs:
+                from compose.proof import PROOFS, ProofSink
+
+                proof_sink = ProofSink({p: tmp[f"proof-{p}"] for p in PROOFS}, canvas.width,
+                                       canvas.height, canvas.dpi)
+                stack.callback(proof_sink.abort)
+                sinks.append(proof_sink)
+            page_map = layer_previews = None
             if html:
-                from compose.output.html import PreviewSink
-                preview = PreviewSink(canvas.width, canvas.height)
-            stats = run(run_, [png_bg, tif_bg] + ([preview] if preview is not None else [])
-                        + list(extra_sinks or []), progress=progress)
-            t_enc = time.perf_counter()
+                from compose.output.html_images import PreviewSink
+                from compose.previews import LayerPreviews
+
+                page_map = PreviewSink(canvas.width, canvas.height)
+                layer_previews = LayerPreviews(canvas.width, canvas.height, len(prepared.layers),
+                                               tuple(style.map.background))
+                sinks.append(page_map)
+            stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
+                        previews=layer_previews, mapper=mapper)
+            t = time.perf_counter()
             png_bg.finish()
             tif_bg.finish()
             png.writer.close()
             tif.writer.close()
-            run_.seconds["finish-encode"] = time.perf_counter() - t_enc
+            if proof_sink is not None:
+                proof_sink.close()
+            seconds["finish-encode"] = time.perf_counter() - t
+            if proof_sink is not None:
+                from compose.proof import write_sheet
+
+                t = time.perf_counter()
+                write_sheet(tmp["proof-sheet"], proof_sink.thumbnails(),
+                            style.map.title or style.name, CAUTION)
+                seconds["proofs"] = time.perf_counter() - t
             report = None
-            if check:
+            if check or html:
                 from compose.check import check_style
-                report = check_style(style, stats, run_.ramps)
-                with atomic_path(paths["check"]) as tmp:
-                    tmp.write_text(json.dumps(report.to_json(), indent=2))
-            if legend:
-                from compose.output.legend import write_legend
-                with atomic_path(paths["legend"]) as tmp:
-                    write_legend(tmp, style, run_.ramps, run_.layers)
+
+                t = time.perf_counter()
+                report = check_style(style, stats, prepared.ramps)
+                if check:
+                    with open(tmp["check"], "w", encoding="utf-8") as f:
+                        json.dump(report.to_json(), f, indent=2)
+                seconds["check"] = time.perf_counter() - t
+            legend_png = None
+            if legend or html:
+                from compose.output.legend import legend_png as draw_legend
+
+                t = time.perf_counter()
+                legend_png = draw_legend(style, prepared.ramps, prepared.layers)
+                if legend:
+                    tmp["legend"].write_bytes(legend_png)
+                seconds["legend"] = time.perf_counter() - t
+            result = RenderResult(outputs=dict(paths), width=canvas.width, height=canvas.height,
+                                  seconds=seconds, statistics=stats,
+                                  report=report, unplaced_labels=prepared.unplaced_labels,
+                                  ramps=prepared.ramps)
             if html:
                 from compose.output.html import page_html
-                t_html = time.perf_counter()
-                seconds = dict(run_.seconds, total=t_html - t0)
-                partial = RenderResult(outputs=paths, width=canvas.width, height=canvas.height,
-                                       seconds=seconds, statistics=stats, report=report,
-                                       unplaced_labels=run_.unplaced_labels, ramps=run_.ramps)
-                text = page_html(style, partial, Path(out_dir), preview=preview.image())
-                with atomic_path(paths["html"]) as tmp:
-                    tmp.write_text(text, encoding="utf-8")
-                run_.seconds["html"] = time.perf_counter() - t_html
-        seconds = dict(run_.seconds)
+                from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
+                from compose.proof import PROOFS, proof_image
+
+                t = time.perf_counter()
+                names = [layer.spec.name for layer in prepared.layers]
+                copy = page_map.image()
+                small = box_reduce(copy, PROOF_WIDTH)
+                result.pictures = PagePictures(
+                    map=copy, legend=legend_png, proofs={k: proof_image(small, k) for k in PROOFS},
+                    layers=tuple((n, a, s) for n, (a, s) in zip(names, layer_previews.images())))
+                seconds["total"] = t - t0
+                tmp["html"].write_text(page_html(style, result), encoding="utf-8")
+                seconds["html"] = time.perf_counter() - t
         seconds["total"] = time.perf_counter() - t0
-        return RenderResult(outputs=paths, width=canvas.width, height=canvas.height, seconds=seconds,
-                            statistics=stats, report=report, unplaced_labels=run_.unplaced_labels,
-                            ramps=run_.ramps)
+        result.seconds = dict(seconds)
+        return result
     finally:
-        run_.close()
+        prepared.close()

@@ -11,6 +11,8 @@ import textwrap
 from dataclasses import dataclass, field
 from typing import Any
 
+from compose.caution import CAUTION
+
 __all__ = ["FAILURE", "WARNING", "SEVERITIES", "Change", "RuleResult", "LayerSummary", "Report",
            "format_report", "CAUTION"]
 
@@ -18,9 +20,6 @@ FAILURE = "failure"
 WARNING = "warning"
 SEVERITIES = (FAILURE, WARNING)
 
-#: Printed under every report (the same words as :data:`compose.render.CAUTION`).
-CAUTION = ("Illustration only: not for navigation, hazard or safety decisions; "
-           "defer to official sources.")
 
 
 def _clean(value: Any) -> Any:

@@ -190,7 +190,15 @@ class PartStats:
     beneath_lightness: np.ndarray | None = None
     beneath_colors: np.ndarray | None = None
 
+    def copy(self) -> "PartStats":
+        """A copy whose histograms can be added to without touching this one."""
+        return PartStats(self.part, self.colors, self.weights.copy(),
+                         *(None if a is None else a.copy() for a in (
+                             self.contrast, self.ground_contrast, self.beneath_lightness,
+                             self.beneath_colors)))
+
     def merge(self, other: "PartStats") -> None:
+        """Add ``other`` (the same part measured elsewhere) to this."""
         self.weights += other.weights
         for name in ("contrast", "ground_contrast", "beneath_lightness", "beneath_colors"):
             a, b = getattr(self, name), getattr(other, name)
@@ -211,6 +219,28 @@ class LayerStats:
     value_lightness: np.ndarray | None = None  # (n, N_LIGHTNESS) palette index x composite L*
     nodata_weight: float = 0.0                 # pixels drawn in the no-data colour
     nodata_index: int = -1                     # palette entry of the no-data colour (themes), or -1
+
+    def empty_like(self) -> "LayerStats":
+        """The same layer with nothing measured yet (a window's statistics start from this)."""
+        return LayerStats(name=self.name, role=self.role, kind=self.kind,
+                          values=self.values, nodata_index=self.nodata_index,
+                          value_lightness=(None if self.value_lightness is None
+                                           else np.zeros_like(self.value_lightness)))
+
+    def merge(self, other: "LayerStats") -> None:
+        """Add ``other`` (the same layer measured elsewhere, e.g. another window) to this."""
+        for key, part in other.parts.items():
+            if key in self.parts:
+                self.parts[key].merge(part)
+            else:
+                self.parts[key] = part.copy()
+        self.covered += other.covered
+        self.nodata_weight += other.nodata_weight
+        if other.value_lightness is not None:
+            if self.value_lightness is None:
+                self.value_lightness = other.value_lightness.copy()
+            else:
+                self.value_lightness += other.value_lightness
 
     def colors_and_weights(self, parts=None, data_only: bool = False) -> tuple[np.ndarray, np.ndarray]:
         """All colours of the chosen parts (default all) with their weights.
@@ -260,6 +290,23 @@ class Statistics:
     @property
     def pixels(self) -> int:
         return self.width * self.height
+
+    def empty_like(self) -> "Statistics":
+        """The same render with nothing measured yet (a window's statistics start from this)."""
+        return Statistics(width=self.width, height=self.height, background=self.background,
+                          layers=[s.empty_like() for s in self.layers])
+
+    def merge(self, other: "Statistics") -> "Statistics":
+        """Add ``other`` (statistics of more windows of the same render) to this; returns self.
+
+        Merging is addition, so windows measured anywhere sum to the same numbers in any order
+        (up to floating-point rounding of the sums).
+        """
+        if [s.name for s in other.layers] != [s.name for s in self.layers]:
+            raise ValueError("statistics of different renders cannot be merged")
+        for mine, theirs in zip(self.layers, other.layers):
+            mine.merge(theirs)
+        return self
 
     def layer(self, name: str) -> LayerStats:
         for s in self.layers:

@@ -32,7 +32,8 @@ def styles_dir() -> Path:
 def command(out_dir: Path) -> None:
     """Render the invented demo region with every example style (existing outputs are replaced)."""
     from compose.cli.render import print_summary
-    from compose.render import CAUTION
+    from compose.caution import CAUTION
+    from compose.render import render_style
     from compose.style import load_style
 
     folder = styles_dir()
@@ -49,7 +50,7 @@ def command(out_dir: Path) -> None:
             continue
         style = load_style(path)
         click.echo(f"\n== {style.name}: {style.map.title}")
-        result = render_with_proofs(style, out_dir)
+        result = render_style(style, out_dir, overwrite=True, proofs=True)
         print_summary(result)
         passed = result.report.passed if result.report is not None else None
         verdicts.append((style.name, passed, should_pass))
@@ -64,28 +65,3 @@ def command(out_dir: Path) -> None:
     click.echo(CAUTION)
     if surprises:
         raise click.ClickException("demo verdicts differ from the intended ones: " + ", ".join(surprises))
-
-
-def render_with_proofs(style, out_dir: Path):
-    """One render that also streams the grey and CVD proofs and writes the contact sheet;
-    every file goes to a temporary name and is renamed only when all succeeded."""
-    import contextlib
-
-    from compose.output.atomic import atomic_path
-    from compose.proof import PROOFS, ProofSink, proof_paths, write_sheet
-    from compose.render import CAUTION, render_style
-
-    canvas = style.canvas()
-    paths = proof_paths(style, out_dir)
-    with contextlib.ExitStack() as stack:
-        tmp = {k: stack.enter_context(atomic_path(p)) for k, p in paths.items()}
-        sink = ProofSink({p: tmp[p] for p in PROOFS}, canvas.width, canvas.height, canvas.dpi)
-        try:
-            result = render_style(style, out_dir, overwrite=True, extra_sinks=[sink])
-            sink.close()
-        except BaseException:
-            sink.abort()
-            raise
-        write_sheet(tmp["sheet"], sink.thumbnails(), style.map.title or style.name, CAUTION)
-    result.outputs.update(paths)
-    return result

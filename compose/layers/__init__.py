@@ -1,24 +1,6 @@
-"""Layer kinds. Each kind is a class in its own module; :data:`LAYER_KINDS` maps a style's
-``kind`` to it. Adding a kind: one module plus one entry here (and its options in compose.style)."""
-from __future__ import annotations
+"""Layer kinds: one module per kind with its renderer class (see :mod:`compose.layers.base`).
 
-import importlib
-
-__all__ = ["LAYER_KINDS", "layer_class"]
-
-# kind -> (module, class); imported lazily so `compose --help` stays fast
-LAYER_KINDS: dict[str, tuple[str, str]] = {
-    "relief": ("compose.layers.relief", "ReliefLayer"),
-    "field": ("compose.layers.raster", "FieldLayer"),
-    "classes": ("compose.layers.raster", "ClassesLayer"),
-    "lines": ("compose.layers.vector", "LinesLayer"),
-    "areas": ("compose.layers.vector", "AreasLayer"),
-    "points": ("compose.layers.vector", "PointsLayer"),
-    "labels": ("compose.layers.label", "LabelsLayer"),
-}
-
-
-def layer_class(kind: str):
-    """The class implementing layer ``kind``."""
-    module, name = LAYER_KINDS[kind]
-    return getattr(importlib.import_module(module), name)
+The registry of kinds -- schema, renderer, legend entry, measurement -- is
+:data:`compose.style.kinds.LAYER_KINDS`; renderers are imported from it by name, only when a
+render needs them.
+"""

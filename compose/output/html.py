@@ -8,8 +8,10 @@ warnings, then passes); the map beside its grey and colour-vision proofs; every 
 the stack built up layer by layer, each with its L* / C* numbers drawn against its budget; each
 ramp used (:func:`compose.ramps.figure.ramp_figure`); the style file itself; the caution.
 
-Previews of layers are rendered by :mod:`compose.engine` on a small canvas of the same extent
-(prepared once, run once per image). Budget plots come from the render's statistics.
+The page is a pure function of a render's results (:func:`page_html`): the pictures gathered
+during the render's one walk (:class:`compose.output.html_images.PagePictures`: the map copy,
+each layer alone and stacked, the proofs, the legend), its statistics, report and ramps.
+Nothing is rendered again and no file is read. Budget plots come from the render's statistics.
 """
 from __future__ import annotations
 
@@ -20,23 +22,20 @@ from pathlib import Path
 import numpy as np
 
 from compose.color.interface import MARKS
+from compose.caution import CAUTION
 from compose.output.html_css import CSS
-from compose.output.html_images import (PAGE_WIDTH, PREVIEW_SIDE, PreviewSink, box_reduce,
-                                        figure_uri, jpeg_uri, layer_previews, page_proofs,
-                                        read_preview)
+from compose.output.html_images import PROOF_WIDTH, box_reduce, figure_uri, jpeg_uri, png_uri
 
-__all__ = ["write_html", "page_html", "html_path", "sorted_results", "PreviewSink"]
+__all__ = ["write_html", "page_html", "html_path", "sorted_results"]
 
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
 PROOF_TITLES = {"map": "Map as drawn", "gray": "Grey (same CIELAB L*)",
                 "deutan": "Deutan (Machado 2009, 100 %)", "protan": "Protan (Machado 2009, 100 %)",
                 "tritan": "Tritan (Machado 2009, 100 %)"}
 PREVIEW_QUALITY = 85     # JPEG quality of the layer previews
-PROOF_WIDTH = 800        # widest proof panel, pixels
 #: Rules whose numbers a layer's budget plot draws (its verdict colours the plot).
 BUDGET_RULES = ("ground-lightness", "ground-chroma", "reserved-saturation", "theme-chroma",
                 "theme-chroma-min", "overlay-contrast", "label-contrast", "overlay-size")
-PROOF_RULES = ("grayscale-order", "classes-separation-deutan", "classes-separation-protan")
 esc = html.escape
 
 
@@ -136,7 +135,9 @@ def _figure(uri: str, caption: str, alt: str, cls: str = "", figure_cls: str = "
             f"<figcaption>{caption}</figcaption></figure>")
 
 
-def _proofs_section(map_img, proofs: dict, origin: str, report) -> str:
+def _proofs_section(map_img, proofs: dict, report) -> str:
+    from compose.proof import PROOF_RULES
+
     cells = [_figure(jpeg_uri(box_reduce(map_img, PROOF_WIDTH)), esc(PROOF_TITLES["map"]), "the map")]
     for k, img in proofs.items():
         cells.append(_figure(jpeg_uri(box_reduce(img, PROOF_WIDTH)), esc(PROOF_TITLES[k]),
@@ -148,7 +149,8 @@ def _proofs_section(map_img, proofs: dict, origin: str, report) -> str:
                  for r in report.rules if r.rule in PROOF_RULES]
         if lines:
             notes = f'<ul class="proof-rules">{"".join(lines)}</ul>'
-    return (f'<div class="proofs">{"".join(cells)}</div><p class="note">Proofs {esc(origin)}. '
+    return (f'<div class="proofs">{"".join(cells)}</div><p class="note">Proofs computed from '
+            "the page's copy of the map (same transforms as the proof files). "
             "Grey keeps each pixel's CIELAB L*; the colour-vision proofs simulate dichromacy "
             "(Machado, Oliveira &amp; Fernandes 2009, severity 100; the tritan matrix is an "
             f"approximation).</p>{notes}")
@@ -223,18 +225,27 @@ def _layers_section(previews, style, result, report, ramps) -> str:
     return "".join(cards)
 
 
-def _ramps_section(layers, ramps) -> str:
+def _ramp_users(style, ramps) -> list[tuple[object, list[str]]]:
+    """(ramp, names of the drawn layers using it or its twins) per ramp drawn, in layer order."""
+    drawn = [(spec, ramps.get(getattr(spec.options, "ramp", None) or "")) for spec in style.layers
+             if spec.enabled]
+    drawn = [(spec, r) for spec, r in drawn if r is not None]
+    shown: set[str] = set()
+    out = []
+    for _, ramp in drawn:
+        if ramp.name in shown:
+            continue
+        family = {ramp.name} | set(ramp.matched)
+        out.append((ramp, [spec.name for spec, r in drawn if r.name in family]))
+        shown |= family
+    return out
+
+
+def _ramps_section(style, ramps) -> str:
     from compose.ramps.figure import ramp_figure
 
-    shown: set[str] = set()
     figs = []
-    for layer in layers:
-        ramp = getattr(layer, "ramp", None)
-        if ramp is None or ramp.name in shown:
-            continue
-        users = [la.spec.name for la in layers if getattr(la, "ramp", None) is not None
-                 and la.ramp.name in ({ramp.name} | set(ramp.matched))]
-        shown |= {ramp.name} | set(ramp.matched)
+    for ramp, users in _ramp_users(style, ramps):
         fig = ramp_figure(ramp, ramps)
         figs.append(_figure(figure_uri(fig, dpi=96), f"ramp <code>{esc(ramp.name)}</code>, "
                             f"drawn by {esc(', '.join(users))}", f"ramp {ramp.name}"))
@@ -243,7 +254,7 @@ def _ramps_section(layers, ramps) -> str:
     return f'<div class="ramps">{"".join(figs)}</div>'
 
 
-def _facts(style, result, out_dir) -> str:
+def _facts(style, result) -> str:
     m = style.map
     rows = [("style", str(style.path)), ("canvas", f"{result.width} × {result.height} px"),
             ("CRS", m.crs), ("extent", ", ".join(f"{v:.10g}" for v in m.extent) + "  (W, S, E, N)"),
@@ -259,51 +270,24 @@ def _facts(style, result, out_dir) -> str:
                                            for k, v in rows) + "</dl>"
 
 
-def _legend_uri(style, ramps, layers) -> str:
-    from compose.output.legend import DPI, legend_figure
-
-    fig, _ = legend_figure(style, ramps, layers)
-    return figure_uri(fig, dpi=DPI)
-
-
 # --- the page --------------------------------------------------------------------------------
 
-def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray | None = None,
-              preview_side: int = PREVIEW_SIDE) -> str:
-    """The proof page of a render as HTML text.
-
-    ``result``: the :class:`compose.render.RenderResult`; ``preview``: a copy of the map at most
-    :data:`PAGE_WIDTH` wide (e.g. from a :class:`PreviewSink` during the render; proofs are then
-    computed from it). Without it the written map PNG is read, and proof files in ``out_dir``
-    are used when they are current.
-    """
-    from compose.engine import prepare, preview_canvas
-    from compose.render import CAUTION
-
+def page_html(style, result) -> str:
+    """The review page of a render as HTML text: a pure function of ``style`` and ``result``
+    (the :class:`compose.render.RenderResult`, with its ``pictures``, ``report``,
+    ``statistics`` and ``ramps``)."""
+    pictures = result.pictures
+    if pictures is None:
+        raise ValueError("the render kept no pictures for a page (render with html=True)")
     ramps = result.ramps
-    if not ramps:
-        from compose.ramps import build_ramps
-        ramps = build_ramps(style.ramps)
     report = result.report
-    if report is None and result.statistics is not None:
-        from compose.check import check_style
-        report = check_style(style, result.statistics, ramps)
-    png = Path(result.outputs["png"]) if result.outputs.get("png") else None
-    proofs = None
-    if preview is None and png is not None and png.exists():
-        preview = read_preview(png, PAGE_WIDTH)
-        proofs, origin = page_proofs(preview, style.name, out_dir, png, (result.width, result.height))
-    run_ = prepare(style, ramps=ramps, canvas=preview_canvas(style.canvas(), preview_side))
-    try:
-        previews = layer_previews(run_)
-        legend = _legend_uri(style, ramps, run_.layers)
-        ramps_html = _ramps_section(run_.layers, ramps)
-    finally:
-        run_.close()
-    if preview is None:   # nothing written to read: the full stack at the preview canvas
-        preview = previews[-1][2] if previews else np.full((2, 2, 3), 255, np.uint8)
-    if proofs is None:
-        proofs, origin = page_proofs(preview, style.name, None, None, None)
+    specs = {spec.name: spec for spec in style.layers}
+    previews = [(specs[name], alone, stack) for name, alone, stack in pictures.layers]
+    legend_img = (f'<img src="{png_uri(pictures.legend)}" alt="legend">' if pictures.legend
+                  else '<p class="note">No legend was drawn.</p>')
+    ramps_html = _ramps_section(style, ramps)
+    preview = pictures.map
+    proofs = pictures.proofs
     title = style.map.title or style.name
     grid = style.canvas()
     # a small map is enlarged on screen: show its pixels rather than a blur
@@ -323,11 +307,11 @@ def page_html(style, result, out_dir: Path | None = None, *, preview: np.ndarray
 <div class="map-grid"><figure><img class="map" src="{jpeg_uri(preview)}" alt="the map"{pixelated}>
 <figcaption>The map as written{'' if preview.shape[1] >= result.width else
 f', box-averaged to {preview.shape[1]} × {preview.shape[0]} px'}.</figcaption></figure>
-<figure class="legend"><img src="{legend}" alt="legend"><figcaption>Legend ({esc(style.name)}.legend.png)
-</figcaption>{_facts(style, result, out_dir)}</figure></div></section>
+<figure class="legend">{legend_img}<figcaption>Legend ({esc(style.name)}.legend.png)
+</figcaption>{_facts(style, result)}</figure></div></section>
 <section id="check"><h2>Check results</h2>{_check_table(report)}</section>
 <section id="proofs"><h2>Grey and colour-vision proofs</h2>
-{_proofs_section(preview, proofs, origin, report)}</section>
+{_proofs_section(preview, proofs, report)}</section>
 <section id="layers"><h2>Layers, alone and stacked</h2>
 <p class="note">Each layer alone over the background, the stack built up to it (drawing order,
 lowest first), and where its pixels fall against its budget. Previews at
@@ -353,7 +337,7 @@ def write_html(style, result, out_dir: Path) -> Path:
     from compose.output.atomic import atomic_path
 
     path = html_path(style, out_dir)
-    text = page_html(style, result, Path(out_dir))
+    text = page_html(style, result)
     with atomic_path(path) as tmp:
         tmp.write_text(text, encoding="utf-8")
     return path

@@ -30,7 +30,7 @@ from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, 
                                           _nodata_swatches, _Overlays, _ramp_of, _Ramps, _rgb,
                                           legend_layout, pretty_name)
 
-__all__ = ["write_legend", "legend_figure", "legend_layout", "LegendLayout", "BarBox",
+__all__ = ["write_legend", "legend_png", "legend_figure", "legend_layout", "LegendLayout", "BarBox",
            "pretty_name", "DPI", "WIDTH"]
 
 
@@ -217,11 +217,20 @@ def legend_figure(style, ramps, layers):
     return fig, layout
 
 
-def write_legend(path: Path, style, ramps, layers) -> None:
-    """Write the legend of the drawn ``layers`` (``RenderRun.layers``) as a PNG at ``path``.
+def legend_png(style, ramps, layers) -> bytes:
+    """The legend of the drawn ``layers`` (``Prepared.layers``) as PNG bytes.
 
     ``ramps``: the built ramps by name (the layers carry their own); ``style``: the loaded style.
-    The file is written where given (the caller renames it into place).
     """
+    import io
+
     fig, _ = legend_figure(style, ramps, layers)
-    fig.savefig(Path(path), format="png", dpi=DPI, facecolor=PAPER)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=DPI, facecolor=PAPER)
+    return buf.getvalue()
+
+
+def write_legend(path: Path, style, ramps, layers) -> None:
+    """Write the legend (:func:`legend_png`) as a PNG at ``path`` (the caller renames it into
+    place)."""
+    Path(path).write_bytes(legend_png(style, ramps, layers))

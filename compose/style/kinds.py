@@ -2,7 +2,8 @@
 
 Each options class *is* its schema: every field is declared with :func:`option` (its reader and
 default), so the allowed keys, their types and defaults live in one place. Adding a layer kind
-is one dataclass plus one :data:`LAYER_KINDS` entry. Colours are gamma-encoded sRGB floats in
+is its module (options dataclass and renderer) plus one :data:`LAYER_KINDS` entry holding its
+schema, its renderer, its legend entry and its measurement. Colours are gamma-encoded sRGB floats in
 [0, 1]; widths, sizes and offsets are typographic points (1/72 inch).
 """
 from __future__ import annotations
@@ -26,7 +27,8 @@ __all__ = [
     "RESAMPLING", "SHAPES", "WEIGHTS", "NODATA_TRANSPARENT", "DEFAULT_TINT", "DEFAULT_STROKE",
     "DEFAULT_TEXT", "DEFAULT_HALO", "default_shadow",
     "Halo", "ReliefOptions", "FieldOptions", "ClassesOptions", "LineOptions", "AreaOptions",
-    "PointOptions", "LabelOptions", "LayerOptions", "KindSchema", "LAYER_KINDS",
+    "PointOptions", "LabelOptions", "LayerOptions", "LayerKind", "KindSchema", "LAYER_KINDS",
+    "LEGEND_ENTRIES", "MEASUREMENTS", "layer_kind", "layer_class",
 ]
 
 #: Resampling methods of raster layers (names as rasterio spells them).
@@ -200,19 +202,63 @@ LayerOptions = (ReliefOptions | FieldOptions | ClassesOptions | LineOptions | Ar
                 | PointOptions | LabelOptions)
 
 
-@dataclass(frozen=True, slots=True)
-class KindSchema:
-    """One layer kind: its name, options dataclass, whether it reads a raster and the roles a
-    layer of this kind may play (the checker judges each role by its own rules, so a pair
-    outside ``roles`` would silently skip them).
+#: How a kind shows in the legend (:mod:`compose.output.legend_layout`): a colour bar or class
+#: swatches from its ramp, a sample mark drawn with its own options, or nothing.
+LEGEND_ENTRIES = ("ramp", "line", "area", "marker", "text", "none")
+#: How a kind is measured (:mod:`compose.measure`): ``"palette"`` counts lookup-table entries
+#: (rasters), ``"ink"`` counts the coverage of flat colours and, as an overlay, their contrast.
+MEASUREMENTS = ("palette", "ink")
 
-    The options class declares the allowed keys, their readers (types, ranges) and defaults.
+
+def _resolve(ref: type | str) -> Any:
+    """A class given itself or as ``"package.module:Name"`` (imported on first use)."""
+    if not isinstance(ref, str):
+        return ref
+    import importlib
+
+    module, _, name = ref.partition(":")
+    return getattr(importlib.import_module(module), name)
+
+
+@dataclass(frozen=True, slots=True)
+class LayerKind:
+    """One layer kind, everything about it in one registry entry.
+
+    name: the style's ``kind``; options: its options dataclass (its schema: allowed keys, their
+    readers and defaults), or ``"module:Class"``; layer: ``"module:Class"`` of the renderer
+    (see :mod:`compose.layers.base`), imported only when a render needs it; raster: whether its
+    source is a raster; legend: one of :data:`LEGEND_ENTRIES`; measure: one of
+    :data:`MEASUREMENTS`; roles: the roles a layer of this kind may play (the checker judges
+    each role by its own rules, so a pair outside ``roles`` would silently skip them); figure /
+    outline: for overlays, the part judged as the mark and the
+    part drawn beneath it (e.g. ``"stroke"`` over ``"halo"``), with the style key of the
+    figure's colour.
     """
 
     name: str
-    options: type
+    options_ref: type | str
+    layer_ref: str
     raster: bool
+    legend: str
+    measure: str
     roles: tuple[str, ...] = ("ground", "theme", "overlay")
+    figure: tuple[str, str] | None = None
+    outline: str | None = None
+
+    def __post_init__(self) -> None:
+        if self.legend not in LEGEND_ENTRIES or self.measure not in MEASUREMENTS:
+            raise ValueError(f"layer kind {self.name!r}: legend one of {LEGEND_ENTRIES}, "
+                             f"measure one of {MEASUREMENTS}")
+
+    @property
+    def options(self) -> type:
+        """The options dataclass."""
+        return _resolve(self.options_ref)
+
+    @property
+    def layer(self) -> type:
+        """The renderer class (imports its module)."""
+        return _resolve(self.layer_ref)
 
     @property
     def keys(self) -> tuple[str, ...]:
@@ -229,15 +275,40 @@ class KindSchema:
         return build_from_table(self.options, as_table(table, at), at)
 
 
+#: The former name of :class:`LayerKind`.
+KindSchema = LayerKind
+
+#: Every layer kind. Adding a kind: its module (options dataclass + renderer) and one line here.
 # Allowed roles: a relief is ground; a data raster is a theme (or a quiet ground, e.g. a land
 # mask drawn through a pale ramp); marks and labels are overlays; areas are overlays or a ground
 # (land and water fills under everything).
-LAYER_KINDS: dict[str, KindSchema] = {
-    "relief": KindSchema("relief", ReliefOptions, raster=True, roles=("ground",)),
-    "field": KindSchema("field", FieldOptions, raster=True, roles=("theme", "ground")),
-    "classes": KindSchema("classes", ClassesOptions, raster=True, roles=("theme", "ground")),
-    "lines": KindSchema("lines", LineOptions, raster=False, roles=("overlay",)),
-    "areas": KindSchema("areas", AreaOptions, raster=False, roles=("overlay", "ground")),
-    "points": KindSchema("points", PointOptions, raster=False, roles=("overlay",)),
-    "labels": KindSchema("labels", LabelOptions, raster=False, roles=("overlay",)),
-}
+LAYER_KINDS: dict[str, LayerKind] = {k.name: k for k in (
+    LayerKind("relief", ReliefOptions, "compose.layers.relief:ReliefLayer", raster=True,
+              legend="none", measure="palette", roles=("ground",)),
+    LayerKind("field", FieldOptions, "compose.layers.raster:FieldLayer", raster=True,
+              legend="ramp", measure="palette", roles=("theme", "ground")),
+    LayerKind("classes", ClassesOptions, "compose.layers.raster:ClassesLayer", raster=True,
+              legend="ramp", measure="palette", roles=("theme", "ground")),
+    LayerKind("lines", LineOptions, "compose.layers.vector:LinesLayer", raster=False,
+              legend="line", measure="ink", roles=("overlay",),
+              figure=("stroke", "stroke"), outline="halo"),
+    LayerKind("areas", AreaOptions, "compose.layers.vector:AreasLayer", raster=False,
+              legend="area", measure="ink", roles=("overlay", "ground"),
+              outline="halo"),
+    LayerKind("points", PointOptions, "compose.layers.vector:PointsLayer", raster=False,
+              legend="marker", measure="ink", roles=("overlay",),
+              figure=("marker", "fill"), outline="stroke"),
+    LayerKind("labels", LabelOptions, "compose.layers.label:LabelsLayer", raster=False,
+              legend="text", measure="ink", roles=("overlay",),
+              figure=("text", "color"), outline="halo"),
+)}
+
+
+def layer_kind(kind: str) -> LayerKind:
+    """The registry entry of layer ``kind`` (KeyError when there is none)."""
+    return LAYER_KINDS[kind]
+
+
+def layer_class(kind: str) -> type:
+    """The renderer class of layer ``kind``."""
+    return LAYER_KINDS[kind].layer
