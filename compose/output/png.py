@@ -158,10 +158,6 @@ class PngWriter:
             self._pool = None
         self._f.close()
 
-    def abort(self) -> None:
-        """Close the file without finishing the stream (after a failure; no-op once closed)."""
-        self._f.close()
-
     def __enter__(self) -> "PngWriter":
         return self
 
