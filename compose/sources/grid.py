@@ -1,0 +1,141 @@
+"""One coarse transform grid per canvas and source CRS, shared by every raster and window.
+
+Reprojecting a raster needs, for every canvas pixel centre, its position in the source's CRS.
+Transforming every pixel exactly is slow (PROJ per pixel), and GDAL's own approximation depends
+on the chunk being warped, so windows would not join. Instead the canvas (grown by a pad for the
+windows' margins) gets nodes every ``step`` pixels, transformed exactly once with pyproj; any
+pixel's position is the bilinear interpolation of its cell's four nodes. Nodes sit on the
+canvas's own grid, so a pixel gets the same position in every window: windows join exactly.
+
+Error bound: after building, the exact transform of every cell's centre is compared with the
+interpolation; the grid is refined (step halved, down to 2 px) until the largest difference is at
+most :data:`ERROR_PX` source pixels for the source that uses it (0.125 px, the tolerance GDAL's
+warper uses by default). While it is cheap (steps down to 16 px) the grid is refined further, to
+:data:`ACCURACY_PX` (1e-5 px): the error shrinks with the square of the step, so on map-sized
+canvases positions are then exact for any practical purpose.
+"""
+from __future__ import annotations
+
+import math
+import threading
+from dataclasses import dataclass
+
+import numpy as np
+import pyproj
+from affine import Affine
+
+__all__ = ["ERROR_PX", "ACCURACY_PX", "TransformGrid", "transform_grid"]
+
+#: Largest accepted interpolation error, in source pixels.
+ERROR_PX = 0.125
+#: Error aimed at while the step is at least _CHEAP_STEP pixels.
+ACCURACY_PX = 1e-5
+_FIRST_STEP = 64
+_CHEAP_STEP = 16
+_MIN_STEP = 2
+
+_lock = threading.Lock()
+_cache: dict[tuple, "TransformGrid"] = {}
+
+
+@dataclass(frozen=True, eq=False)
+class TransformGrid:
+    """Source-CRS coordinates of canvas nodes; :meth:`coords` interpolates pixel centres.
+
+    transform: the canvas's affine (pixel -> canvas CRS); origin: canvas pixel (col, row) of node
+    (0, 0); step: node spacing in pixels; x, y: (rows, cols) node coordinates in the source CRS
+    (NaN where the transformation failed); error: the largest difference at cell centres, in
+    source-CRS units.
+    """
+
+    transform: Affine
+    origin: tuple[float, float]
+    step: int
+    x: np.ndarray
+    y: np.ndarray
+    error: float
+
+    def covers(self, row0: int, col0: int, height: int, width: int) -> bool:
+        """True when the pixel rectangle lies inside the grid's nodes."""
+        c0, r0 = self.origin
+        rows, cols = self.x.shape
+        return (col0 >= c0 and row0 >= r0 and col0 + width <= c0 + (cols - 1) * self.step
+                and row0 + height <= r0 + (rows - 1) * self.step)
+
+    def coords(self, row0: int, col0: int, height: int, width: int) -> tuple[np.ndarray, np.ndarray]:
+        """Source-CRS (x, y), float64 (height, width), of the centres of the canvas pixels
+        rows row0.., cols col0.. (separable bilinear interpolation of the nodes)."""
+        c0, r0 = self.origin
+        u = (np.arange(width) + (col0 + 0.5 - c0)) / self.step
+        v = (np.arange(height) + (row0 + 0.5 - r0)) / self.step
+        j = np.minimum(np.floor(u).astype(np.intp), self.x.shape[1] - 2)
+        i = np.minimum(np.floor(v).astype(np.intp), self.x.shape[0] - 2)
+        s = (u - j)[None, :]
+        t = (v - i)[:, None]
+        rows = np.arange(i[0], i[-1] + 2)
+        out = []
+        for nodes in (self.x, self.y):
+            band = nodes[rows]                                   # node rows this window needs
+            across = band[:, j] * (1.0 - s) + band[:, j + 1] * s  # (node rows, width)
+            k = i - i[0]
+            out.append(across[k] * (1.0 - t) + across[k + 1] * t)
+        return out[0], out[1]
+
+
+def _build(transform: Affine, width: int, height: int, pad: int, crs_from, crs_to,
+           step: int) -> TransformGrid:
+    c0, r0 = -pad, -pad
+    nx = math.ceil((width + 2 * pad) / step) + 1
+    ny = math.ceil((height + 2 * pad) / step) + 1
+    cols = c0 + np.arange(nx) * float(step)
+    rows = r0 + np.arange(ny) * float(step)
+    tr = pyproj.Transformer.from_crs(crs_from, crs_to, always_xy=True)
+
+    def exact(cc, rr):
+        ex, ey = transform @ (cc, rr)
+        x, y = tr.transform(ex, ey, errcheck=False)
+        x, y = np.asarray(x, float), np.asarray(y, float)
+        bad = ~(np.isfinite(x) & np.isfinite(y))
+        x[bad] = np.nan
+        y[bad] = np.nan
+        return x, y
+
+    cc, rr = np.meshgrid(cols, rows)
+    x, y = exact(cc, rr)
+    # the interpolation's error at every cell centre (where bilinear interpolation is worst)
+    mx, my = exact(cc[:-1, :-1] + step / 2, rr[:-1, :-1] + step / 2)
+    ix = (x[:-1, :-1] + x[1:, :-1] + x[:-1, 1:] + x[1:, 1:]) / 4
+    iy = (y[:-1, :-1] + y[1:, :-1] + y[:-1, 1:] + y[1:, 1:]) / 4
+    err = np.hypot(ix - mx, iy - my)
+    error = float(np.nanmax(err)) if np.isfinite(err).any() else math.inf
+    return TransformGrid(transform, (float(c0), float(r0)), step, x, y, error)
+
+
+def transform_grid(transform: Affine, width: int, height: int, pad: int, canvas_crs, source_crs,
+                   source_pixel: float) -> TransformGrid | None:
+    """The shared grid of a canvas (``transform``, ``width`` x ``height`` pixels, grown by ``pad``
+    pixels on every side) onto ``source_crs``, fine enough for sources of ``source_pixel`` CRS
+    units (error <= ERROR_PX of them). None when no step down to 2 px meets the bound or nodes
+    fail to transform (the caller then warps exactly)."""
+    key_base = (tuple(transform), int(width), int(height), int(pad),
+                pyproj.CRS.from_user_input(canvas_crs).to_wkt(),
+                pyproj.CRS.from_user_input(source_crs).to_wkt())
+    limit = ERROR_PX * float(source_pixel)
+    aim = ACCURACY_PX * float(source_pixel)
+    step = _FIRST_STEP
+    while step >= _MIN_STEP:
+        key = key_base + (step,)
+        with _lock:
+            grid = _cache.get(key)
+        if grid is None:
+            grid = _build(transform, width, height, pad, key_base[4], key_base[5], step)
+            with _lock:
+                if len(_cache) > 32:
+                    _cache.clear()
+                _cache[key] = grid
+        if np.isnan(grid.x).any():
+            return None
+        if grid.error <= aim or (grid.error <= limit and step // 2 < _CHEAP_STEP):
+            return grid
+        step //= 2
+    return None
