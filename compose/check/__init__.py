@@ -7,6 +7,7 @@ summaries. It measures; the CLI and the writers format.
 from __future__ import annotations
 
 from compose.check.context import CheckContext
+from compose.check.finish import finish_results
 from compose.check.legibility import judge
 from compose.check.report import (CAUTION, FAILURE, WARNING, Change, LayerSummary, Report,
                                   RuleResult, format_report)
@@ -33,10 +34,12 @@ def summarise_layers(ctx: CheckContext) -> list[LayerSummary]:
     return out
 
 
-def check_style(style, stats, ramps, rules=None) -> Report:
+def check_style(style, stats, ramps, rules=None, draft: str | None = None) -> Report:
     """Check a rendered style: ``stats`` from :func:`compose.engine.run`, ``ramps`` the built
     ramps (``RenderRun.ramps``). Returns the :class:`Report` (``passed``: every failure-severity
-    rule passed)."""
+    rule passed; waived results pass and say why). ``draft``: the reduced size checked, if any."""
     ctx = CheckContext.build(style, stats, ramps)
-    return Report(style=style.name, rules=tuple(run_rules(ctx, rules)),
-                  layers=tuple(summarise_layers(ctx)))
+    results = finish_results(ctx, run_rules(ctx, rules))
+    waivers = tuple((w.rule, w.layer, w.reason) for w in getattr(style, "waivers", ()))
+    return Report(style=style.name, rules=tuple(results), layers=tuple(summarise_layers(ctx)),
+                  waivers=waivers, draft=draft)

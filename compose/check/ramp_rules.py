@@ -11,6 +11,7 @@ import math
 
 import numpy as np
 
+from compose.check.catalog import limit_of
 from compose.check.context import SEQUENTIAL_KINDS, CheckContext, ramp_key
 from compose.check.fixes import hex8, solve_nodata
 from compose.check.report import WARNING, Change, RuleResult
@@ -24,8 +25,8 @@ __all__ = ["TWIN_HUE_GAP", "RHO_LIMIT", "twin_lightness", "twin_chroma", "twin_h
            "grayscale_order", "ramp_lightness_monotone", "ramp_step_uniformity",
            "ramp_diverging_symmetry", "ramp_neutral_midpoint", "ramp_break_visible"]
 
-TWIN_HUE_GAP = 30.0   # degrees between twins at equal values (our design target, no source)
-RHO_LIMIT = 0.95      # Spearman rho of value vs composite L* (our design target, no source)
+TWIN_HUE_GAP = 30.0   # default of budget.ramp.twin_hue (our design target, no source)
+RHO_LIMIT = 0.95      # default of budget.theme.gray_order (our design target, no source)
 SAME_AS_BACKGROUND = 0.5  # dE00 under which a no-data colour *is* the background
 
 
@@ -49,14 +50,15 @@ def _twins(ctx: CheckContext):
 
 
 def _twin_match(ctx: CheckContext, rule: str, attr: str, what: str) -> list[RuleResult]:
-    """|d<what>| <= 1 between each used twin and its base at equal positions (8-bit colours)."""
+    """|d<what>| <= the budget between each used twin and its base at equal positions."""
+    limit = float(limit_of(rule, ctx.budgets)[0])
     out = []
     for r in _twins(ctx):
         v = getattr(_metrics(ctx, r), attr)
-        out.append(_result(ctx, rule, r, v, 1.0, v <= 1.0,
-                           f'largest |d{what}| against "{r.base.name}" {v:.2f}; limit 1',
-                           "" if v <= 1.0 else f'lower the chroma of "{r.base.name}" stops so both '
-                           "hues can show it"))
+        out.append(_result(ctx, rule, r, v, limit, v <= limit,
+                           f'largest |d{what}| against "{r.base.name}" {v:.2f}; limit {limit:g}',
+                           "" if v <= limit else f'lower the chroma of "{r.base.name}" stops so '
+                           "both hues can show it"))
     return out
 
 
@@ -77,6 +79,7 @@ def _hue_gap(a, b):
 def twin_hue(ctx: CheckContext) -> list[RuleResult]:
     """Twin hues >= 30 degrees from the base's at every position where both show a hue
     (C* >= 5; below that a hue is hardly seen)."""
+    gap_limit = float(limit_of("twin-hue", ctx.budgets)[0])
     out = []
     t = np.linspace(0.0, 1.0, 257)
     for r in _twins(ctx):
@@ -84,23 +87,23 @@ def twin_hue(ctx: CheckContext) -> list[RuleResult]:
         theirs = srgb_to_lch(to_rgb8(r.base.colors_at(t, fraction=True)) / 255.0)
         seen = (mine[:, 1] >= 5) & (theirs[:, 1] >= 5)
         if not seen.any():
-            out.append(_result(ctx, "twin-hue", r, None, TWIN_HUE_GAP, True,
+            out.append(_result(ctx, "twin-hue", r, None, gap_limit, True,
                                "both ramps are nearly grey (C* < 5): no hue to compare"))
             continue
         gap = float(_hue_gap(mine[seen, 2], theirs[seen, 2]).min())
-        passed = gap >= TWIN_HUE_GAP
+        passed = gap >= gap_limit
         fix, change = "", None
         if not passed and r.hue is not None:
             planned = r.hue[0] + t * (r.hue[1] - r.hue[0])
             for d in sorted(range(-180, 181), key=abs):
-                if _hue_gap(planned[seen] + d, theirs[seen, 2]).min() >= TWIN_HUE_GAP + 1:
+                if _hue_gap(planned[seen] + d, theirs[seen, 2]).min() >= gap_limit + 1:
                     new = [round(r.hue[0] + d, 1), round(r.hue[1] + d, 1)]
                     fix = f'turn the hue of "{r.name}" by {d:+d} degrees: hue = {new}'
                     change = Change(ramp_key(r.name), {"hue": new})
                     break
-        out.append(_result(ctx, "twin-hue", r, gap, TWIN_HUE_GAP, passed,
+        out.append(_result(ctx, "twin-hue", r, gap, gap_limit, passed,
                            f'smallest hue difference from "{r.base.name}" {gap:.1f} deg '
-                           f"(where both C* >= 5); at least {TWIN_HUE_GAP:g}", fix, change=change))
+                           f"(where both C* >= 5); at least {gap_limit:g}", fix, change=change))
     return out
 
 
@@ -110,11 +113,12 @@ def threshold_lightness(ctx: CheckContext) -> list[RuleResult]:
     """|dL*| <= 1 across the break of threshold ramps drawn by theme layers (8-bit colours of
     the lookup-table entries on either side)."""
     out = []
+    limit = float(limit_of("threshold-lightness", ctx.budgets)[0])
     for r in ctx.used_ramps("theme"):
         if r.kind != "threshold":
             continue
         m = _metrics(ctx, r)
-        passed = m.break_dl <= 1.0
+        passed = m.break_dl <= limit
         fix, change = "", None
         if not passed and r.n_below and len(r.stops) > r.n_below:
             last_below, first_above = r.stops[r.n_below - 1], r.stops[r.n_below]
@@ -122,8 +126,8 @@ def threshold_lightness(ctx: CheckContext) -> list[RuleResult]:
             fix = (f"give the first 'above' stop the L* of the last 'below' stop: "
                    f"{{L = {new['L']:g}, C = {new['C']:g}, h = {new['h']:g}}}")
             change = Change(ramp_key(r.name) + ".above[0]", new)
-        out.append(_result(ctx, "threshold-lightness", r, m.break_dl, 1.0, passed,
-                           f"|dL*| across the break at {r.at:g}: {m.break_dl:.2f}; limit 1 "
+        out.append(_result(ctx, "threshold-lightness", r, m.break_dl, limit, passed,
+                           f"|dL*| across the break at {r.at:g}: {m.break_dl:.2f}; limit {limit:g} "
                            f"(dE00 {m.break_de00:.1f}, hue change {m.break_dh:.0f} deg)", fix,
                            change=change))
     return out
@@ -223,6 +227,7 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
     """Sequential themes: Spearman rho of data value vs the composite's L* over the theme's
     pixels >= 0.95 -- the map still orders its values when printed in grey. The sign is taken
     in the ramp's own direction (a ramp that darkens with the value counts rho < 0 as order)."""
+    RHO_LIMIT = float(limit_of("grayscale-order", ctx.budgets)[0])  # noqa: N806
     out = []
     for spec, s in ctx.layers("theme", ("field",)):
         ramp = ctx.ramp_of(spec)
@@ -262,12 +267,12 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
 
 def _from_checks(ctx: CheckContext, rule: str, source: str, severity: str = "failure",
                  kinds=None) -> list[RuleResult]:
-    from compose.ramps import rule_checks
+    from compose.ramps import RampLimits, rule_checks
     out = []
     for r in ctx.used_ramps():
         if kinds is not None and r.kind not in kinds:
             continue
-        for c in rule_checks(_metrics(ctx, r)):
+        for c in rule_checks(_metrics(ctx, r), RampLimits.from_budgets(ctx.budgets)):
             if c.rule != source:
                 continue
             met = bool(c.passed)
@@ -289,24 +294,24 @@ def _shape_fix(rule: str, ramp) -> str:
 
 def ramp_lightness_monotone(ctx: CheckContext) -> list[RuleResult]:
     """L* monotone along sequential / twin / threshold ramps and along each diverging arm."""
-    return _from_checks(ctx, "ramp-lightness-monotone", "ramp.lightness-monotone")
+    return _from_checks(ctx, "ramp-lightness-monotone", "ramp-lightness-monotone")
 
 
 def ramp_step_uniformity(ctx: CheckContext) -> list[RuleResult]:
     """Even perceived steps: CV of CAM02-UCS steps <= 5 % (sequential and twin ramps)."""
-    return _from_checks(ctx, "ramp-step-uniformity", "ramp.step-uniformity")
+    return _from_checks(ctx, "ramp-step-uniformity", "ramp-step-uniformity")
 
 
 def ramp_diverging_symmetry(ctx: CheckContext) -> list[RuleResult]:
     """Diverging ramps: |dL*| <= 1 at equal distance from the centre."""
-    return _from_checks(ctx, "ramp-diverging-symmetry", "ramp.diverging-symmetry")
+    return _from_checks(ctx, "ramp-diverging-symmetry", "ramp-diverging-symmetry")
 
 
 def ramp_neutral_midpoint(ctx: CheckContext) -> list[RuleResult]:
     """Diverging ramps: midpoint C* <= 5; a coloured midpoint is a *warning* (it may be meant)."""
-    return _from_checks(ctx, "ramp-neutral-midpoint", "ramp.neutral-midpoint", severity=WARNING)
+    return _from_checks(ctx, "ramp-neutral-midpoint", "ramp-neutral-midpoint", severity=WARNING)
 
 
 def ramp_break_visible(ctx: CheckContext) -> list[RuleResult]:
     """Threshold ramps: the break shows, dE00 >= 10 across it (Brychtova & Coltekin 2016)."""
-    return _from_checks(ctx, "ramp-break-visible", "ramp.break-visible")
+    return _from_checks(ctx, "ramp-break-visible", "ramp-break-visible")

@@ -6,6 +6,7 @@ Computation lives in :mod:`compose.check.rules`; this module only holds and form
 from __future__ import annotations
 
 import math
+import re
 import shutil
 import textwrap
 from dataclasses import dataclass, field
@@ -13,8 +14,12 @@ from typing import Any
 
 from compose.caution import CAUTION
 
-__all__ = ["FAILURE", "WARNING", "SEVERITIES", "Change", "RuleResult", "LayerSummary", "Report",
-           "format_report", "CAUTION"]
+__all__ = ["FAILURE", "WARNING", "SEVERITIES", "SCHEMA", "Change", "RuleResult", "LayerSummary",
+           "Report", "format_report", "format_pair", "CAUTION"]
+
+#: Version of the JSON report (NAME.check.json, ``compose check --json``). 2: per-rule verdict,
+#: comparison, unit, budget origin, structured change, waivers, notes.
+SCHEMA = 2
 
 FAILURE = "failure"
 WARNING = "warning"
@@ -35,30 +40,51 @@ def _clean(value: Any) -> Any:
     return value
 
 
+_TABLE = re.compile(r'^(layer|ramp) "([^"]+)"(.*)$')
+
+
 @dataclass(frozen=True, slots=True)
 class Change:
     """A concrete edit of the style that the fix proposes, machine-readable.
 
     table: the style table to edit, e.g. ``layer "relief"``, ``ramp "land"`` or an element of a
     ramp's list, ``ramp "cover".classes[2]``; values: key -> new value as written in TOML (a
-    ``"#rrggbb"`` string, a number, an ``{L, C, h}`` or halo table, a list).
+    ``"#rrggbb"`` string, a number, an ``{L, C, h}`` or halo table, a list); old: key -> the
+    value the style has now (filled in when the report is finished, see
+    :func:`compose.check.finish.finish_results`).
     """
 
     table: str
     values: dict
+    old: dict = field(default_factory=dict)
 
-    def to_json(self) -> dict:
-        return {"table": self.table, "values": _clean(self.values)}
+    def edits(self) -> list[dict]:
+        """One ``{layer | ramp, key, old, new}`` per key (key relative to the layer or ramp)."""
+        m = _TABLE.match(self.table)
+        kind, name, rest = (m.groups() if m else ("table", self.table, ""))
+        prefix = rest.lstrip(".")
+        out = []
+        for key, new in self.values.items():
+            out.append(_clean({"layer": name if kind == "layer" else None,
+                               "ramp": name if kind == "ramp" else None,
+                               "key": f"{prefix}.{key}" if prefix else key,
+                               "old": self.old.get(key), "new": new}))
+        return out
+
+    def to_json(self) -> list[dict]:
+        return self.edits()
 
 
 @dataclass(frozen=True, slots=True)
 class RuleResult:
     """One rule applied to one subject (a layer, or a ramp and the layers using it).
 
-    value / limit: the measured number and the bound it is compared with (units in ``message``);
+    value / limit: the measured number (unrounded) and the bound it is compared with;
     passed: False only when a *failure*-severity rule is not met (a warning always passes);
     fix: what to change, in numbers ('' when passed); change: the same as an edit, when one
-    key can be named; ramp: the ramp judged, for ramp rules.
+    key can be named; ramp: the ramp judged, for ramp rules. comparison, unit, budget (the
+    ``budget.*`` key of the limit) and origin (``style`` / ``default`` / ``fixed``) come from the
+    rule catalogue (:mod:`compose.check.catalog`); waived: the reason of a ``[[waive]]``.
     """
 
     rule: str
@@ -72,22 +98,35 @@ class RuleResult:
     ramp: str | None = None
     change: Change | None = None
     met: bool = field(default=True)   # whether the condition held (for warnings: False = warned)
+    comparison: str = ""
+    unit: str = ""
+    budget: str | None = None
+    origin: str = ""
+    waived: str | None = None
 
     def __post_init__(self) -> None:
         if self.severity not in SEVERITIES:
             raise ValueError(f"severity must be one of {SEVERITIES}, got {self.severity!r}")
+        if self.severity == FAILURE and not self.passed:
+            object.__setattr__(self, "met", False)   # met: did the condition hold
 
     @property
     def verdict(self) -> str:
+        """``pass``, ``warn``, ``fail`` or ``waived`` (a waived rule is reported, not applied)."""
+        if self.waived is not None:
+            return "waived"
         if self.severity == WARNING:
-            return "ok" if self.met else "warn"
-        return "pass" if self.passed else "FAIL"
+            return "pass" if self.met else "warn"
+        return "pass" if self.passed else "fail"
 
     def to_json(self) -> dict:
-        return _clean({"rule": self.rule, "layer": self.layer, "passed": self.passed,
-                       "value": self.value, "limit": self.limit, "message": self.message,
-                       "fix": self.fix, "severity": self.severity, "ramp": self.ramp,
-                       "change": None if self.change is None else self.change.to_json()})
+        return _clean({"rule": self.rule, "layer": self.layer, "ramp": self.ramp,
+                       "verdict": self.verdict, "passed": self.passed, "severity": self.severity,
+                       "value": self.value, "comparison": self.comparison, "limit": self.limit,
+                       "unit": self.unit, "budget": self.budget, "origin": self.origin,
+                       "message": self.message, "fix": self.fix,
+                       "change": None if self.change is None else self.change.to_json(),
+                       "waived": self.waived})
 
 
 @dataclass(frozen=True, slots=True)
@@ -124,11 +163,18 @@ class Report:
     rules: tuple[RuleResult, ...]
     layers: tuple[LayerSummary, ...]
     caution: str = CAUTION
+    waivers: tuple = ()          # (rule, layer, reason) of every [[waive]] of the style
+    notes: tuple[str, ...] = ()  # what was not judged and why
+    draft: str | None = None     # "WxH of FULLxFULL" when checked at reduced resolution
 
     @property
     def passed(self) -> bool:
         """True when every failure-severity rule passed (warnings never fail a map)."""
         return all(r.passed for r in self.rules)
+
+    def passed_strict(self, strict: bool = False) -> bool:
+        """:attr:`passed`, and with ``strict`` also no warning."""
+        return self.passed and not (strict and self.warnings)
 
     @property
     def failures(self) -> tuple[RuleResult, ...]:
@@ -142,10 +188,15 @@ class Report:
         """The results of rule id ``rule`` (optionally of one layer)."""
         return [r for r in self.rules if r.rule == rule and (layer is None or r.layer == layer)]
 
-    def to_json(self) -> dict:
+    def to_json(self, strict: bool = False) -> dict:
         """The object written as NAME.check.json and printed by ``compose check --json``."""
-        return {"passed": self.passed, "style": self.style,
+        return {"schema": SCHEMA, "passed": self.passed_strict(strict), "strict": strict,
+                "style": self.style, "draft": self.draft,
+                "counts": {v: sum(r.verdict == v for r in self.rules)
+                           for v in ("pass", "warn", "fail", "waived")},
                 "rules": [r.to_json() for r in self.rules],
+                "waivers": [{"rule": w[0], "layer": w[1], "reason": w[2]} for w in self.waivers],
+                "notes": list(self.notes),
                 "layers": [s.to_json() for s in self.layers], "caution": self.caution}
 
 
@@ -167,12 +218,35 @@ def _num(v) -> str:
     return str(v)
 
 
+def _default_decimals(v: float) -> int:
+    a = abs(v)
+    return 1 if a >= 10 else (2 if a >= 1 else 3)
+
+
+def _holds(a: float, b: float, comparison: str) -> bool:
+    return a >= b if comparison == ">=" else a <= b
+
+
+def _g(v) -> str:
+    return f"{v:g}" if isinstance(v, float) else str(v)
+
+
+def format_pair(value, limit, comparison: str, met: bool) -> tuple[str, str]:
+    """(value, limit) as text with enough decimals that the printed numbers compare the way the
+    unrounded ones do: a failing 0.9496 against ``>= 0.95`` prints ``0.9496``, never ``0.950``."""
+    if (not isinstance(value, (int, float)) or not isinstance(limit, (int, float))
+            or isinstance(value, bool) or comparison not in (">=", "<=")
+            or not (math.isfinite(value) and math.isfinite(limit))):
+        return _num(value), _num(limit)
+    for decimals in range(_default_decimals(value), 10):
+        printed = f"{value:.{decimals}f}"
+        if _holds(float(printed), float(limit), comparison) == met:
+            return printed, _g(limit)
+    return repr(float(value)), _g(limit)
+
+
 def _order(r: RuleResult) -> int:
-    if not r.passed:
-        return 0
-    if r.severity == WARNING and not r.met:
-        return 1
-    return 2
+    return {"fail": 0, "warn": 1, "waived": 2}.get(r.verdict, 3)
 
 
 def _table(rows: list[list[str]], widths: list[int]) -> list[str]:
@@ -185,24 +259,35 @@ def _table(rows: list[list[str]], widths: list[int]) -> list[str]:
     return lines
 
 
-def format_report(report: Report, width: int | None = None) -> str:
+def format_report(report: Report, width: int | None = None, strict: bool = False) -> str:
     """Readable text: rules (failures, then warnings, then passes), per-layer L*/C*, caution."""
     width = width or max(100, min(160, shutil.get_terminal_size((120, 24)).columns))
     rules = sorted(report.rules, key=_order)
-    fixed = [26, 16, 11, 11, 5]
+    fixed = [26, 16, 11, 13, 6]
     last = max(30, width - sum(fixed) - 2 * len(fixed))
     head = ["rule", "layer", "measured", "limit", "", "message / fix"]
     rows = [head, ["-" * w for w in fixed + [last]]]
     for r in rules:
         text = r.message + (f"  FIX: {r.fix}" if r.fix else "")
+        if r.waived is not None:
+            text = f"WAIVED ({r.waived}): " + text
         subject = r.layer or (f"ramp {r.ramp}" if r.ramp else "-")
-        rows.append([r.rule, subject, _num(r.value), _num(r.limit), r.verdict, text])
+        value, limit = format_pair(r.value, r.limit, r.comparison, r.met)
+        if r.comparison in (">=", "<="):
+            limit = f"{r.comparison} {limit}"
+        verdict = "FAIL" if r.verdict == "fail" else r.verdict
+        rows.append([r.rule, subject, value, limit, verdict, text])
     lines = _table(rows, fixed + [last])
     n_fail, n_warn = len(report.failures), len(report.warnings)
-    verdict = "PASSED" if report.passed else "FAILED"
+    verdict = "PASSED" if report.passed_strict(strict) else "FAILED"
     lines.append("")
-    lines.append(f"{report.style}: {verdict} -- {len(report.rules)} results, {n_fail} failed, "
-                 f"{n_warn} warning(s)")
+    draft = f" (draft at {report.draft})" if report.draft else ""
+    lines.append(f"{report.style}: {verdict}{draft} -- {len(report.rules)} results, {n_fail} "
+                 f"failed, {n_warn} warning(s){' (--strict: warnings fail)' if strict else ''}")
+    for rule, layer, reason in report.waivers:
+        lines.append(f'waived: {rule} for layer "{layer}": {reason}')
+    for note in report.notes:
+        lines.append(f"note: {note}")
     lines.append("")
     lrows = [["layer", "role", "coverage", "L* p5/p50/p95", "C* p5/p50/p95", "beneath L*", "share"]]
     for s in report.layers:

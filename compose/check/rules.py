@@ -20,6 +20,7 @@ from compose.check.ramp_rules import (grayscale_order, nodata_background, nodata
                                       ramp_diverging_symmetry, ramp_lightness_monotone,
                                       ramp_neutral_midpoint, ramp_step_uniformity,
                                       threshold_lightness, twin_chroma, twin_hue, twin_lightness)
+from compose.check.finish import roles_present
 from compose.check.report import RuleResult
 
 __all__ = ["Rule", "RULES", "run_rules", "describe"]
@@ -27,6 +28,7 @@ __all__ = ["Rule", "RULES", "run_rules", "describe"]
 Rule = Callable[[CheckContext], list[RuleResult]]
 
 RULES: dict[str, Rule] = {
+    "roles-present": roles_present,
     "ground-lightness": ground_lightness,
     "ground-chroma": ground_chroma,
     "reserved-saturation": reserved_saturation,

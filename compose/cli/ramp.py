@@ -25,6 +25,16 @@ def load_ramps(style_path: Path | None, names=()) -> dict:
     return build_ramps(with_library(style.ramps, names))
 
 
+def _limits(style_path: Path | None):
+    """The ramp rules' limits from the style's budgets (the checker's, see compose.check.catalog)."""
+    from compose.ramps import RampLimits
+    from compose.style import load_style
+
+    if style_path is None:
+        return RampLimits()
+    return RampLimits.from_budgets(load_style(style_path, require_map=False).budgets)
+
+
 def _rows(ramp, samples: int) -> list[dict]:
     from compose.color.lab import srgb_to_lch
     from compose.ramps import drawn_samples
@@ -96,6 +106,7 @@ def command(name: str, style_path: Path | None, samples: int, as_json: bool, plo
     from compose.ramps import ramp_metrics, rule_checks
 
     ramps = load_ramps(style_path, [name])
+    limits = _limits(style_path)
     if name not in ramps:
         from compose.ramps.library import library_tables
         known = ", ".join(sorted(set(ramps) | set(library_tables()))) or "(none)"
@@ -107,7 +118,7 @@ def command(name: str, style_path: Path | None, samples: int, as_json: bool, plo
         from compose.ramps.figure import write_ramp_plot
         if not plot_path.parent.is_dir():
             raise ComposeError(f"--plot: folder does not exist: {plot_path.parent}")
-        write_ramp_plot(ramp, plot_path, ramps, units)
+        write_ramp_plot(ramp, plot_path, ramps, units, limits=limits)
     if as_json:
         click.echo(json.dumps(rows, indent=1))
         return
@@ -129,7 +140,7 @@ def command(name: str, style_path: Path | None, samples: int, as_json: bool, plo
     for line in _metric_lines(m):
         click.echo(line)
     click.echo("rules")
-    for c in rule_checks(m):
+    for c in rule_checks(m, limits):
         verdict = "ok" if c.passed else ("warn" if c.level == "warning" else "FAIL")
         click.echo(f"  {verdict:<5} {c.rule:<30} {c.message.split(': ', 1)[1]}")
     if plot_path is not None:

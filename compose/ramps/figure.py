@@ -257,13 +257,14 @@ def _hex(code) -> str:
     return "#%02x%02x%02x" % tuple(int(c) for c in code)
 
 
-def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | None = None):
+def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | None = None,
+                limits=None):
     """A matplotlib Figure describing ``ramp``; ``others`` (name -> Ramp) supplies its twins."""
     from matplotlib.figure import Figure
 
     others = others or {}
     m = ramp_metrics(ramp)
-    checks = rule_checks(m)
+    checks = rule_checks(m) if limits is None else rule_checks(m, limits)
     members = [ramp] + [others[n] for n in ramp.matched if n != ramp.name and n in others]
     if ramp.kind == "qualitative":
         fig = Figure(figsize=(10, 7.4), dpi=150)
@@ -289,10 +290,12 @@ def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | 
 
 
 def write_ramp_plot(ramp: Ramp, path: Path | str, others: dict[str, Ramp] | None = None,
-                    units: str | None = None) -> Path:
-    """Render :func:`ramp_figure` to a PNG at ``path``, through a temporary file renamed into place."""
+                    units: str | None = None, limits=None) -> Path:
+    """Render :func:`ramp_figure` to a PNG at ``path``, through a temporary file renamed into place.
+
+    ``limits``: :class:`~compose.ramps.RampLimits` of the style's budgets (default the defaults)."""
     path = Path(path)
-    fig = ramp_figure(ramp, others, units)
+    fig = ramp_figure(ramp, others, units, limits)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".png", dir=path.parent or ".")
     try:
         with os.fdopen(fd, "wb") as fh:

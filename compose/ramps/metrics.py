@@ -86,10 +86,26 @@ class RampLimits:
     class_count: tuple[int, int] = (5, 9)  # common practice: seven plus or minus two
     nodata_separation: float = 10.0  # dE00 from every ramp colour (Brychtova & Coltekin 2016)
     nodata_chroma: float = 3.0      # C*ab
-    grayscale_rho: float = 0.98     # |Spearman rho| of value vs L* (our design target, no source)
+    grayscale_rho: float = 0.95     # |Spearman rho| of value vs L* (our design target, no source)
+
+    @classmethod
+    def from_budgets(cls, budgets) -> "RampLimits":
+        """The limits a style's budgets set (``[budget.ramp]``, ``[budget.classes]``,
+        ``[budget.nodata]``, ``budget.theme.gray_order``): one limit per rule for every command."""
+        if budgets is None:
+            return cls()
+        r, c, n, t = budgets.ramp, budgets.classes, budgets.nodata, budgets.theme
+        return cls(step_cv=float(r.evenness), symmetry_dl=float(r.symmetry),
+                   midpoint_chroma=float(r.midpoint_chroma), break_dl=float(r.break_lightness),
+                   break_de00=float(r.break_difference), twin_dl=float(r.twin_lightness),
+                   twin_dc=float(r.twin_chroma), class_separation=float(c.separation),
+                   class_count=tuple(int(v) for v in c.count),
+                   nodata_separation=float(n.separation), nodata_chroma=float(n.chroma),
+                   grayscale_rho=float(t.gray_order))
 
 
-RULE_LEVELS = {"ramp.class-count": "warning"}
+#: Rules whose failure is a warning (ids and severities as in compose.check.catalog).
+RULE_LEVELS = {"classes-count": "warning", "ramp-neutral-midpoint": "warning"}
 
 
 class RuleCheck(NamedTuple):
@@ -273,7 +289,8 @@ def _continuous(ramp: Ramp, m: dict) -> np.ndarray:
 
 
 def rule_checks(metrics: RampMetrics, limits: RampLimits = RampLimits()) -> list[RuleCheck]:
-    """The verdicts of the rules for ``metrics.kind`` (ids ``ramp.*``; see :data:`RULE_LEVELS`)."""
+    """The verdicts of the rules for ``metrics.kind`` (the rule ids of the
+    checker's catalogue, :mod:`compose.check.catalog`; see :data:`RULE_LEVELS`)."""
     m, lim, out = metrics, limits, []
     name = f'ramp "{m.name}"'
 
@@ -283,37 +300,37 @@ def rule_checks(metrics: RampMetrics, limits: RampLimits = RampLimits()) -> list
 
     if m.lightness_monotone is not None:
         where = "each arm, away from the midpoint" if m.kind == "diverging" else "end to end"
-        rule("ramp.lightness-monotone", m.lightness_monotone, m.lightness_reversal, 0.0,
+        rule("ramp-lightness-monotone", m.lightness_monotone, m.lightness_reversal, 0.0,
              f"L* monotone {where}: largest reversal {m.lightness_reversal:.2f}")
     if m.kind in ("sequential", "twin") and m.step_cv is not None:
-        rule("ramp.step-uniformity", m.step_cv <= lim.step_cv, m.step_cv, lim.step_cv,
+        rule("ramp-step-uniformity", m.step_cv <= lim.step_cv, m.step_cv, lim.step_cv,
              f"CV of CAM02-UCS steps {m.step_cv:.1f} % at {m.samples} samples (limit {lim.step_cv:g} %)")
     if m.grayscale_rho is not None and m.kind != "qualitative":
         rho = abs(m.grayscale_rho)
-        rule("ramp.grayscale-order", rho >= lim.grayscale_rho, rho, lim.grayscale_rho,
+        rule("grayscale-order", rho >= lim.grayscale_rho, rho, lim.grayscale_rho,
              f"L* orders the values: |Spearman rho| {rho:.3f} (limit {lim.grayscale_rho:g})")
     if m.symmetry_dl_max is not None:
-        rule("ramp.diverging-symmetry", m.symmetry_dl_max <= lim.symmetry_dl, m.symmetry_dl_max,
+        rule("ramp-diverging-symmetry", m.symmetry_dl_max <= lim.symmetry_dl, m.symmetry_dl_max,
              lim.symmetry_dl, f"|dL*| at equal distance from the centre {m.symmetry_dl_max:.2f} "
              f"(limit {lim.symmetry_dl:g})")
-        rule("ramp.neutral-midpoint", m.midpoint_chroma <= lim.midpoint_chroma, m.midpoint_chroma,
+        rule("ramp-neutral-midpoint", m.midpoint_chroma <= lim.midpoint_chroma, m.midpoint_chroma,
              lim.midpoint_chroma, f"midpoint C* {m.midpoint_chroma:.1f} (limit {lim.midpoint_chroma:g})")
     if m.break_dl is not None:
-        rule("ramp.break-continuity", m.break_dl <= lim.break_dl, m.break_dl, lim.break_dl,
+        rule("threshold-lightness", m.break_dl <= lim.break_dl, m.break_dl, lim.break_dl,
              f"|dL*| across the break {m.break_dl:.2f} (limit {lim.break_dl:g})")
-        rule("ramp.break-visible", m.break_de00 >= lim.break_de00, m.break_de00, lim.break_de00,
+        rule("ramp-break-visible", m.break_de00 >= lim.break_de00, m.break_de00, lim.break_de00,
              f"dE00 across the break {m.break_de00:.1f}, hue change {m.break_dh:.0f} deg "
              f"(at least {lim.break_de00:g})")
     if m.twin_dl_max is not None:
-        rule("ramp.twin-lightness", m.twin_dl_max <= lim.twin_dl, m.twin_dl_max, lim.twin_dl,
+        rule("twin-lightness", m.twin_dl_max <= lim.twin_dl, m.twin_dl_max, lim.twin_dl,
              f"|dL*| against its base {m.twin_dl_max:.2f} (limit {lim.twin_dl:g})")
-        rule("ramp.twin-chroma", m.twin_dc_max <= lim.twin_dc, m.twin_dc_max, lim.twin_dc,
+        rule("twin-chroma", m.twin_dc_max <= lim.twin_dc, m.twin_dc_max, lim.twin_dc,
              f"|dC*| against its base {m.twin_dc_max:.2f} (limit {lim.twin_dc:g})")
     if m.min_pair_de00 is not None:
         qual = m.kind == "qualitative"
         source = m.min_pair_de00 if qual else m.min_step_de00
         what = "pairwise" if qual else "adjacent-class"
-        prefix = "ramp.class-separation" if qual else "ramp.step-separation"
+        prefix = "classes-separation"
         for vision in ("normal", "deutan", "protan"):
             rid = prefix if vision == "normal" else f"{prefix}-{vision}"
             v = source[vision]
@@ -321,11 +338,11 @@ def rule_checks(metrics: RampMetrics, limits: RampLimits = RampLimits()) -> list
                  f"smallest {what} dE00 {v:.1f} in {vision} vision (at least {lim.class_separation:g})")
     if m.class_count is not None:
         lo, hi = lim.class_count
-        rule("ramp.class-count", lo <= m.class_count <= hi, m.class_count, hi,
+        rule("classes-count", lo <= m.class_count <= hi, m.class_count, hi,
              f"{m.class_count} classes (common practice: {lo} to {hi})")
-    rule("ramp.nodata-separation", m.nodata_min_de00 >= lim.nodata_separation, m.nodata_min_de00,
+    rule("nodata-separation", m.nodata_min_de00 >= lim.nodata_separation, m.nodata_min_de00,
          lim.nodata_separation, f"nodata {m.nodata_min_de00:.1f} dE00 from the nearest ramp colour "
          f"(at least {lim.nodata_separation:g})")
-    rule("ramp.nodata-chroma", m.nodata_chroma <= lim.nodata_chroma, m.nodata_chroma, lim.nodata_chroma,
+    rule("nodata-chroma", m.nodata_chroma <= lim.nodata_chroma, m.nodata_chroma, lim.nodata_chroma,
          f"nodata C* {m.nodata_chroma:.1f} (limit {lim.nodata_chroma:g})")
     return out

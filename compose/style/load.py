@@ -18,14 +18,16 @@ from typing import Any
 from compose.errors import StyleError
 from compose.style.kinds import LAYER_KINDS
 from compose.style.model import (BLEND_MODES, BUDGET_TABLES, ROLES, LayerSpec, MapSpec, RampTable,
-                                 Budgets, Style)
+                                 Budgets, Style, Waiver)
 from compose.style.validate import (Scope, as_table, boolean, build_from_table, check_choice,
                                     check_keys, missing_keys, number, option_keys, string)
 
 __all__ = ["load_style", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
 
 #: Keys allowed at the top level of a style file.
-TOP_KEYS = ("extends", "map", "budget", "ramp", "layer")
+TOP_KEYS = ("extends", "map", "budget", "ramp", "layer", "waive")
+#: Keys of one ``[[waive]]`` table.
+WAIVE_KEYS = ("rule", "layer", "reason")
 #: Keys every layer may state, whatever its kind.
 COMMON_KEYS = ("name", "role", "kind", "source", "blend", "opacity", "enabled")
 _REQUIRED = ("role", "kind", "source")
@@ -100,6 +102,17 @@ def _prepare(data: dict, folder: Path) -> None:
     if "ramp" in data:
         for name, table in as_table(data["ramp"], top.at("ramp")).items():
             as_table(table, top.at("ramp").at(name))
+    waivers = data.get("waive", [])
+    if not isinstance(waivers, list) or not all(isinstance(t, dict) for t in waivers):
+        raise StyleError("waive must be an array of tables; write each as [[waive]]")
+    for i, table in enumerate(waivers, start=1):
+        at = Scope(f"waive {i}")
+        check_keys(table, WAIVE_KEYS, at)
+        missing = [k for k in WAIVE_KEYS if k not in table]
+        if missing:
+            raise missing_keys(missing, at)
+        for key in WAIVE_KEYS:
+            string()(table[key], at.at(key))
     layers = data.get("layer", [])
     if not isinstance(layers, list) or not all(isinstance(t, dict) for t in layers):
         raise StyleError("layer must be an array of tables; write each as [[layer]]")
@@ -158,7 +171,7 @@ def merge_layers(base: list[dict], new: list[dict]) -> list[dict]:
 
 def _merge(files: list[_File]) -> tuple[dict, dict[str, Path]]:
     """Merge files base first: tables key by key, layers by name. Returns (tables, ramp -> file)."""
-    merged: dict[str, Any] = {"budget": {}, "ramp": {}, "layer": []}
+    merged: dict[str, Any] = {"budget": {}, "ramp": {}, "layer": [], "waive": []}
     origin: dict[str, Path] = {}
     for f in files:
         d = f.data
@@ -170,6 +183,7 @@ def _merge(files: list[_File]) -> tuple[dict, dict[str, Path]]:
             merged["ramp"].setdefault(name, {}).update(table)
             origin[name] = f.path
         merged["layer"] = merge_layers(merged["layer"], d.get("layer", []))
+        merged["waive"] += [dict(t) for t in d.get("waive", [])]
     return merged, origin
 
 
@@ -229,7 +243,8 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
                          "(or map.like = \"a raster layer's name\")")
     else:
         spec = None
-    budgets = build_from_table(Budgets, merged["budget"], Scope("", ("budget",)))
+    stated = frozenset(f"{t}.{k}" for t, table in merged["budget"].items() for k in table)
+    budgets = build_from_table(Budgets, merged["budget"], Scope("", ("budget",)), stated=stated)
     own = {name: RampTable(name, freeze(table), origin[name], origin[name].parent)
            for name, table in merged["ramp"].items()}
     lib: Mapping[str, Any] = {}
@@ -259,7 +274,25 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
                              "raster layer (relief, field or classes)")
     name = spec.name if spec is not None and spec.name else top.path.stem
     return Style(path=top.path, name=name, map=spec, budgets=budgets, ramps=ramps,
-                 layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files))
+                 layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files),
+                 waivers=_waivers(merged["waive"], layers))
+
+
+def _waivers(tables: list[dict], layers: list[LayerSpec]) -> tuple[Waiver, ...]:
+    """``[[waive]]`` tables -> :class:`Waiver` s; the rule must be in the catalogue and the layer
+    drawn (a waiver of nothing would hide a typo)."""
+    from compose.check.catalog import CATALOG
+
+    names = [spec.name for spec in layers]
+    out = []
+    for i, t in enumerate(tables, start=1):
+        at = Scope(f"waive {i}")
+        rule = check_choice(t["rule"], CATALOG, at.at("rule"), "rule id")
+        if t["layer"] not in names:
+            raise StyleError(f"{at.at('layer').path}: no drawn layer {t['layer']!r}; layers: "
+                             f"{', '.join(names)}")
+        out.append(Waiver(rule, t["layer"], t["reason"].strip()))
+    return tuple(out)
 
 
 def load_style(path: str | Path, *, require_map: bool = True, library: bool = True) -> Style:

@@ -20,7 +20,8 @@ from compose.style.validate import (RGB, Scope, as_table, build_from_table, colo
 
 __all__ = [
     "ROLES", "BLEND_MODES", "MapSpec", "GroundBudget", "ThemeBudget", "OverlayBudget",
-    "ClassesBudget", "NodataBudget", "Budgets", "BUDGET_TABLES", "RampTable", "LayerSpec", "Style",
+    "ClassesBudget", "NodataBudget", "RampBudget", "Budgets", "Waiver", "BUDGET_TABLES",
+    "RampTable", "LayerSpec", "Style",
 ]
 
 #: Layer roles, lowest in the visual hierarchy first.
@@ -103,16 +104,21 @@ class GroundBudget:
 
     lightness: tuple[float, float] = option(pair(ge=0, le=100), (55.0, 98.0))
     chroma: tuple[float, float] = option(pair(ge=0), (0.0, 12.0))
+    relief_spread: float = option(number(ge=0, le=100), 10.0)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class ThemeBudget:
     """Chroma of data colours: minimum (p50) and maximum (p95) C*ab; ``margin``: the ground's C*
     p95 stays at least this far below the themes' C* p50. The minimum is only enforced when
-    ``chroma_min_stated`` (the style stated ``budget.theme.chroma``)."""
+    ``chroma_min_stated`` (the style stated ``budget.theme.chroma``). ``gray_order``: least
+    Spearman rho of value and composite L*; ``relief_shift``: the most L* the layers drawn with
+    a theme may move one of its colours (p5..p95 half-range)."""
 
     chroma: tuple[float, float] = option(pair(ge=0), (25.0, 130.0))
     margin: float = option(number(ge=0), 10.0)
+    gray_order: float = option(number(ge=-1, le=1), 0.95)
+    relief_shift: float = option(number(ge=0, le=100), 8.0)
     chroma_min_stated: bool = False
 
 
@@ -143,6 +149,22 @@ class NodataBudget:
     separation: float = option(number(ge=0), 10.0)
 
 
+@dataclass(frozen=True, slots=True, kw_only=True)
+class RampBudget:
+    """Limits of the ramp-shape rules: step evenness (CV of CAM02-UCS steps at equal data steps,
+    %), diverging symmetry and threshold continuity (|dL*|), neutral midpoint (C*ab), the break
+    showing (dE00), twins (|dL*|, |dC*|, hue degrees)."""
+
+    evenness: float = option(number(ge=0), 15.0)
+    symmetry: float = option(number(ge=0), 1.0)
+    midpoint_chroma: float = option(number(ge=0), 5.0)
+    break_lightness: float = option(number(ge=0), 1.0)
+    break_difference: float = option(number(ge=0), 10.0)
+    twin_lightness: float = option(number(ge=0), 1.0)
+    twin_chroma: float = option(number(ge=0), 1.0)
+    twin_hue: float = option(number(ge=0, le=180), 30.0)
+
+
 def _theme(value: Any, at: Scope) -> ThemeBudget:
     table = as_table(value, at)
     return build_from_table(ThemeBudget, table, at, chroma_min_stated="chroma" in table)
@@ -157,12 +179,28 @@ class Budgets:
     overlay: OverlayBudget = option(table_of(OverlayBudget), factory=OverlayBudget)
     classes: ClassesBudget = option(table_of(ClassesBudget), factory=ClassesBudget)
     nodata: NodataBudget = option(table_of(NodataBudget), factory=NodataBudget)
+    ramp: RampBudget = option(table_of(RampBudget), factory=RampBudget)
+    stated: frozenset[str] = frozenset()   # "table.key" of every budget key the style stated
+
+    def origin(self, key: str) -> str:
+        """``"style"`` when the style stated budget ``key`` ("ground.chroma"), else ``"default"``."""
+        return "style" if key in self.stated else "default"
 
 
 #: The dataclass of each ``[budget.X]`` table.
 BUDGET_TABLES: dict[str, type] = {"ground": GroundBudget, "theme": ThemeBudget,
                                   "overlay": OverlayBudget, "classes": ClassesBudget,
-                                  "nodata": NodataBudget}
+                                  "nodata": NodataBudget, "ramp": RampBudget}
+
+
+@dataclass(frozen=True, slots=True)
+class Waiver:
+    """``[[waive]]``: rule ``rule`` is not applied to layer ``layer`` because of ``reason``
+    (shown in every report)."""
+
+    rule: str
+    layer: str
+    reason: str
 
 
 @dataclass(frozen=True, slots=True)
@@ -213,6 +251,7 @@ class Style:
     layers: tuple[LayerSpec, ...]
     text: str
     chain: tuple[Path, ...]
+    waivers: tuple[Waiver, ...] = ()
 
     def canvas(self) -> Canvas:
         """The output grid of ``[map]`` (see :func:`compose.style.grid.plan_canvas`)."""

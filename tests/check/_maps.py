@@ -142,6 +142,9 @@ def to_toml(doc: dict) -> str:
     for layer in doc.get("layer", []):
         lines_.append("[[layer]]")
         lines_ += [f"{k} = {_value(v)}" for k, v in layer.items()]
+    for waive in doc.get("waive", []):
+        lines_.append("[[waive]]")
+        lines_ += [f"{k} = {_value(v)}" for k, v in waive.items()]
     return "\n".join(lines_) + "\n"
 
 

@@ -6,7 +6,7 @@ import json
 import pytest
 
 from compose.check import RULES, Report, RuleResult, describe, format_report
-from compose.check.report import CAUTION, LayerSummary
+from compose.check.report import CAUTION, SCHEMA, LayerSummary, format_pair
 from tests.check._maps import check, lines, relief, style
 
 
@@ -33,12 +33,27 @@ def test_json_object_shape(data, tmp_path):
     rep = check(tmp_path, style([relief(data["hills"]), lines(data["coast"], stroke="#c8c8c8",
                                                             width=1.5)]))
     obj = json.loads(json.dumps(rep.to_json()))
+    assert obj["schema"] == SCHEMA == 2
     assert obj["passed"] is False and obj["caution"] == CAUTION
-    keys = {"rule", "layer", "passed", "value", "limit", "message", "fix", "severity"}
+    keys = {"rule", "layer", "passed", "verdict", "value", "comparison", "limit", "unit", "budget",
+            "origin", "message", "fix", "severity", "change"}
     for r in obj["rules"]:
         assert keys <= set(r) and r["severity"] in ("failure", "warning")
+        assert r["verdict"] in ("pass", "warn", "fail")
+        assert r["comparison"] in (">=", "<=", "in") and r["unit"]
+        assert r["origin"] in ("style", "default", "fixed")
     bad = next(r for r in obj["rules"] if r["rule"] == "overlay-contrast")
-    assert bad["passed"] is False and bad["fix"] and bad["change"]["table"] == 'layer "coast"'
+    assert bad["verdict"] == "fail" and bad["passed"] is False and bad["fix"]
+    assert bad["comparison"] == ">=" and bad["unit"] == "share"
+    assert bad["budget"] == "budget.overlay.share" and bad["origin"] == "default"
+    # the value is unrounded: exactly the share the rule compared
+    assert bad["value"] == next(r.value for r in rep.rules if r.rule == "overlay-contrast")
+    # a structured change: layer, key, old and new value, no prose to parse
+    (edit, *_) = bad["change"]
+    assert edit["layer"] == "coast" and edit["ramp"] is None
+    assert edit["key"] in ("stroke", "halo") and edit["new"] != edit["old"]
+    if edit["key"] == "stroke":
+        assert edit["old"] == "#c8c8c8"
     names = [s["name"] for s in obj["layers"]]
     assert names == ["relief", "coast"]
     ground, coast = obj["layers"]
@@ -68,3 +83,63 @@ def test_layer_summary_json_handles_nan():
     s = LayerSummary("a", "overlay", "lines", 0.0, (float("nan"),) * 3, (1.0, 2.0, 3.0))
     obj = s.to_json()
     assert obj["lightness"]["p5"] is None and obj["beneath"] == {"lightness": None}
+
+
+def test_budget_origin_says_style_when_the_style_states_it(data, tmp_path):
+    rep = check(tmp_path, style([relief(data["hills"]), lines(data["coast"], stroke="#c8c8c8",
+                                                            width=1.5)],
+                                budget={"overlay": {"share": 0.9}}))
+    r = rep.rule("overlay-contrast")[0]
+    assert r.limit == 0.9 and r.origin == "style" and r.budget == "budget.overlay.share"
+
+
+@pytest.mark.parametrize("value, limit, comparison, met, shown", [
+    (0.9496, 0.95, ">=", False, "0.9496"),     # never "0.950 >= 0.95 FAIL"
+    (0.95, 0.95, ">=", True, "0.950"),
+    (12.04, 12.0, "<=", False, "12.04"),       # never "12.0 <= 12 FAIL"
+    (11.96, 12.0, "<=", True, "12.0"),         # rounding up to the limit is fine when it holds
+    (2.9999, 3.0, ">=", False, "2.9999"),      # WCAG: thresholds are not rounded
+])
+def test_printed_value_never_looks_like_it_meets_its_limit(value, limit, comparison, met, shown):
+    printed, _ = format_pair(value, limit, comparison, met)
+    assert printed == shown
+    holds = float(printed) >= limit if comparison == ">=" else float(printed) <= limit
+    assert holds == met
+
+
+def test_table_rounding_of_a_near_miss():
+    near = RuleResult("grayscale-order", "x", 0.9496, 0.95, False, "m", "f", comparison=">=",
+                      unit="rho", met=False)
+    text = format_report(Report("s", (near,), ()), width=140)
+    assert "0.9496" in text and "0.950 " not in text and ">= 0.95" in text
+
+
+def _waive_doc(data, **waive):
+    doc = style([relief(data["hills"]), lines(data["coast"], stroke="#c8c8c8", width=1.5)])
+    doc["waive"] = [dict({"rule": "overlay-contrast", "layer": "coast",
+                          "reason": "a faint coast is meant here"}, **waive)]
+    return doc
+
+
+def test_a_waiver_is_applied_and_shown_in_every_report(data, tmp_path):
+    rep = check(tmp_path, _waive_doc(data))
+    r = rep.rule("overlay-contrast", "coast")[0]
+    assert r.verdict == "waived" and r.passed and r.waived == "a faint coast is meant here"
+    assert rep.passed
+    text = format_report(rep, width=140)
+    assert 'waived: overlay-contrast for layer "coast": a faint coast is meant here' in text
+    obj = rep.to_json()
+    assert obj["waivers"] == [{"rule": "overlay-contrast", "layer": "coast",
+                               "reason": "a faint coast is meant here"}]
+    assert obj["counts"]["waived"] == 1
+
+
+@pytest.mark.parametrize("waive, part", [
+    ({"rule": "overlay-contrastt"}, "waive 1: rule: 'overlay-contrastt' is not a rule id"),
+    ({"layer": "coastt"}, "waive 1: layer: no drawn layer 'coastt'"),
+    ({"reason": " "}, "waive 1: reason must be a non-empty string"),
+])
+def test_bad_waivers_are_style_errors(data, tmp_path, waive, part):
+    from compose.errors import StyleError
+    with pytest.raises(StyleError, match=part):
+        check(tmp_path, _waive_doc(data, **waive))

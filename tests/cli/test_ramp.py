@@ -42,7 +42,7 @@ def test_table_shows_samples_metrics_and_rules():
     rows = [ln for ln in lines if ln.strip().split(" ")[0].replace(".", "").isdigit() and "#" in ln]
     assert len(rows) == 11
     assert "metrics" in lines and "rules" in lines
-    assert any("ramp.lightness-monotone" in ln and ln.strip().startswith("ok") for ln in lines)
+    assert any("ramp-lightness-monotone" in ln and ln.strip().startswith("ok") for ln in lines)
 
 
 def test_samples_option_sets_the_rows():

@@ -31,7 +31,7 @@ def verdicts(ramp) -> dict[str, bool]:
 def test_sequential_meets_its_rule(space):
     ramp = make(land={**GOOD_SEQ, "space": space})["land"]
     v = verdicts(ramp)
-    assert v["ramp.lightness-monotone"] and v["ramp.step-uniformity"] and v["ramp.grayscale-order"]
+    assert v["ramp-lightness-monotone"] and v["ramp-step-uniformity"] and v["grayscale-order"]
     # colour-science: L* of 64 drawn 8-bit colours strictly decreasing (8-bit rounding moves L* by
     # < 0.2, the steps are ~1 L*)
     L = ref_lab(rgb8_of(ramp, np.linspace(0, 12, 64)))[:, 0]
@@ -46,7 +46,7 @@ def test_sequential_meets_its_rule(space):
 def test_sequential_non_monotone_lightness_builds_but_fails():
     ramp = make(bumpy=BUMPY)["bumpy"]
     m = ramp_metrics(ramp)
-    assert not verdicts(ramp)["ramp.lightness-monotone"]
+    assert not verdicts(ramp)["ramp-lightness-monotone"]
     L = ref_lab(rgb8_of(ramp, np.linspace(0, 12, 64)))[:, 0]
     rises = np.diff(L) > 0
     assert rises.any() and (~rises).any()
@@ -65,7 +65,7 @@ def test_interpolation_goes_through_the_stops_and_is_gamut_mapped_by_chroma_only
     np.testing.assert_allclose(ends, [[90, 88, 100], [35, 34, 160]], atol=1.0)
     rgb = ramp.colors_at(np.linspace(0, 1, 200))
     assert rgb.min() >= 0 and rgb.max() <= 1
-    assert verdicts(ramp)["ramp.lightness-monotone"]
+    assert verdicts(ramp)["ramp-lightness-monotone"]
 
 
 # --- diverging ----------------------------------------------------------------------------------
@@ -83,7 +83,7 @@ def _symmetry(ramp, reach):
 def test_diverging_meets_its_rule():
     ramp = make(change=DIV)["change"]
     v = verdicts(ramp)
-    assert v["ramp.diverging-symmetry"] and v["ramp.neutral-midpoint"] and v["ramp.lightness-monotone"]
+    assert v["ramp-diverging-symmetry"] and v["ramp-neutral-midpoint"] and v["ramp-lightness-monotone"]
     assert _symmetry(ramp, 4.0) <= 1.0
     mid = ref_lch(rgb8_of(ramp, [0.0]))[0]
     assert mid[1] <= 5.0 and mid[0] >= 90
@@ -91,7 +91,7 @@ def test_diverging_meets_its_rule():
 
 def test_diverging_asymmetric_domain_truncates_the_shorter_arm():
     ramp = make(change={**DIV, "domain": [-1, 4], "center": 0})["change"]
-    assert verdicts(ramp)["ramp.diverging-symmetry"]
+    assert verdicts(ramp)["ramp-diverging-symmetry"]
     assert _symmetry(ramp, 1.0) <= 1.0
     # the low end (-1) is where the full ramp has 1/4 of its arm: much lighter than the high end
     L = ref_lab(rgb8_of(ramp, [-1.0, 1.0, 4.0]))[:, 0]
@@ -109,10 +109,10 @@ def test_diverging_violations_are_reported():
     lopsided = {**DIV, "through": [lch(30, 28, 268), lch(96, 1, 90), lch(55, 30, 48)]}
     tinted = {**DIV, "through": [lch(30, 28, 268), lch(90, 25, 95), lch(30, 30, 48)]}
     ramps = make(lopsided=lopsided, tinted=tinted)
-    assert not verdicts(ramps["lopsided"])["ramp.diverging-symmetry"]
+    assert not verdicts(ramps["lopsided"])["ramp-diverging-symmetry"]
     assert _symmetry(ramps["lopsided"], 4.0) > 10
     v = verdicts(ramps["tinted"])
-    assert not v["ramp.neutral-midpoint"] and v["ramp.diverging-symmetry"]
+    assert not v["ramp-neutral-midpoint"] and v["ramp-diverging-symmetry"]
     assert ref_lch(rgb8_of(ramps["tinted"], [0.0]))[0, 1] > 20
 
 
@@ -132,7 +132,7 @@ def _across(ramp):
 def test_threshold_meets_its_rule():
     ramp = make(warm=WARM)["warm"]
     v = verdicts(ramp)
-    assert v["ramp.break-continuity"] and v["ramp.break-visible"] and v["ramp.lightness-monotone"]
+    assert v["threshold-lightness"] and v["ramp-break-visible"] and v["ramp-lightness-monotone"]
     pair = ref_lab(_across(ramp))
     assert abs(pair[0, 0] - pair[1, 0]) <= 1.0
     assert ref_de00(pair[0], pair[1]) >= 10
@@ -146,10 +146,10 @@ def test_threshold_violations_are_reported():
     jump = {**WARM, "above": [lch(45, 60, 50), lch(30, 50, 30)]}
     same = {**WARM, "above": [lch(62, 30, 240), lch(34, 25, 260)]}
     ramps = make(jump=jump, same=same)
-    assert not verdicts(ramps["jump"])["ramp.break-continuity"]
+    assert not verdicts(ramps["jump"])["threshold-lightness"]
     pair = ref_lab(_across(ramps["jump"]))
     assert abs(pair[0, 0] - pair[1, 0]) > 10
-    assert not verdicts(ramps["same"])["ramp.break-visible"]
+    assert not verdicts(ramps["same"])["ramp-break-visible"]
     assert ref_de00(*ref_lab(_across(ramps["same"]))) < 10
 
 
@@ -167,7 +167,7 @@ GOOD_QUAL = [lch(34, 26, 155), lch(46, 44, 122), lch(63, 40, 111), lch(91, 60, 1
 def test_qualitative_meets_its_rule():
     ramp = make(cover=_classes(GOOD_QUAL))["cover"]
     v = verdicts(ramp)
-    assert v["ramp.class-separation"] and v["ramp.class-separation-deutan"] and v["ramp.class-separation-protan"]
+    assert v["classes-separation"] and v["classes-separation-deutan"] and v["classes-separation-protan"]
     rgb8 = ramp.lut().rgb8[:8].astype(float)
     for vision in ("normal", "deutan", "protan"):
         assert ref_min_pairwise(ref_vision_lab(rgb8, vision)) >= 10
@@ -178,7 +178,7 @@ def test_qualitative_red_green_pair_fails_under_deutan_only():
     ramp = make(rg=_classes([lch(55, 60, 30), lch(55, 55, 135), lch(85, 40, 95), lch(30, 30, 280),
                              lch(70, 20, 220)]))["rg"]
     v = verdicts(ramp)
-    assert v["ramp.class-separation"] and not v["ramp.class-separation-deutan"]
+    assert v["classes-separation"] and not v["classes-separation-deutan"]
     rgb8 = ramp.lut().rgb8[:5].astype(float)
     assert ref_min_pairwise(ref_vision_lab(rgb8, "normal")) >= 10
     assert ref_min_pairwise(ref_vision_lab(rgb8, "deutan")) < 10
@@ -187,7 +187,7 @@ def test_qualitative_red_green_pair_fails_under_deutan_only():
 def test_qualitative_class_count_outside_five_to_nine_is_a_warning():
     ramp = make(few=_classes(GOOD_QUAL[:3]))["few"]
     checks = {c.rule: c for c in rule_checks(ramp_metrics(ramp))}
-    assert not checks["ramp.class-count"].passed and checks["ramp.class-count"].level == "warning"
+    assert not checks["classes-count"].passed and checks["classes-count"].level == "warning"
     assert "3 classes" in ramp_metrics(ramp).warnings[0]
 
 
@@ -197,7 +197,7 @@ def test_twin_has_the_same_lightness_and_chroma_as_its_base():
     ramps = make(land=GOOD_SEQ, sea={"twin": "land", "hue": [185, 235]})
     land, sea = ramps["land"], ramps["sea"]
     v = verdicts(sea)
-    assert v["ramp.twin-lightness"] and v["ramp.twin-chroma"] and v["ramp.step-uniformity"]
+    assert v["twin-lightness"] and v["twin-chroma"] and v["ramp-step-uniformity"]
     t = np.linspace(0, 12, 64)
     a, b = ref_lch(rgb8_of(land, t)), ref_lch(rgb8_of(sea, t))
     assert np.max(np.abs(a[:, 0] - b[:, 0])) <= 1.0
@@ -237,10 +237,10 @@ def test_twin_violations_are_reported():
     flat = {"kind": "sequential", "domain": [0, 1], "through": [lch(90, 20, 100), lch(40, 20, 110)]}
     ramps = make(flat=flat, spin={"twin": "flat", "hue": [0, 300]}, bumpy=BUMPY,
                  copy={"twin": "bumpy", "hue": [200, 240]})
-    assert not verdicts(ramps["spin"])["ramp.step-uniformity"]
+    assert not verdicts(ramps["spin"])["ramp-step-uniformity"]
     spin = ramps["spin"]
     assert ref_step_cv(spin.colors_at(np.linspace(0, 1, 1024))) > 5.0
-    assert not verdicts(ramps["copy"])["ramp.lightness-monotone"]
+    assert not verdicts(ramps["copy"])["ramp-lightness-monotone"]
 
 
 # --- nodata and sampling keys -------------------------------------------------------------------
@@ -260,7 +260,7 @@ def test_given_nodata_is_kept_even_when_poor():
     ramp = make(land={**GOOD_SEQ, "nodata": "#f5f0d8"})["land"]   # almost the light end
     assert ramp.nodata_given
     assert ramp.lut().rgb8[ramp.lut().nodata_index].tolist() == [0xf5, 0xf0, 0xd8]
-    assert not verdicts(ramp)["ramp.nodata-separation"]
+    assert not verdicts(ramp)["nodata-separation"]
 
 
 def test_outside_colors_default_to_the_end_colors_and_can_be_given():

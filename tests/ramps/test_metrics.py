@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 from scipy.stats import spearmanr
 
+from compose.check.catalog import CATALOG, limit_of
 from compose.ramps import RampLimits, ramp_metrics, rule_checks
 from compose.ramps.metrics import COARSE_SAMPLES, ORDER_SAMPLES, spearman
 
@@ -72,7 +73,7 @@ def test_stepped_metrics_use_the_class_colors():
         assert m.min_step_de00[vision] == pytest.approx(np.min(ref_de00(lab[:-1], lab[1:])), abs=1e-2)
         assert m.min_pair_de00[vision] == pytest.approx(ref_min_pairwise(lab), abs=1e-2)
     rules = {c.rule for c in rule_checks(m)}
-    assert {"ramp.step-separation", "ramp.step-separation-deutan", "ramp.class-count"} <= rules
+    assert {"classes-separation", "classes-separation-deutan", "classes-count"} <= rules
 
 
 def test_diverging_and_threshold_metrics_against_colour_science():
@@ -104,18 +105,29 @@ def test_spearman_matches_scipy_with_ties():
     assert spearman(x, y) == pytest.approx(spearmanr(x, y).statistic, abs=1e-12)
 
 
+def test_ramp_rules_use_the_checkers_ids_and_limits():
+    # issue 10: one catalogue -- `compose ramp` and `compose check` name and limit a measurement
+    # the same way (gray order was 0.98 here and 0.95 in the checker)
+    from compose.style.model import Budgets
+    lim = RampLimits.from_budgets(Budgets())
+    assert lim.grayscale_rho == limit_of("grayscale-order", Budgets())[0] == 0.95
+    assert lim.step_cv == limit_of("ramp-step-uniformity", Budgets())[0]
+    assert lim.class_separation == limit_of("classes-separation", Budgets())[0]
+    assert lim.break_dl == limit_of("threshold-lightness", Budgets())[0]
+
+
 def test_rule_checks_shape_and_limits():
     m = ramp_metrics(make(land=SEQ)["land"])
     checks = rule_checks(m)
     for c in checks:
         rule, passed, value, limit, message = c      # a plain 5-tuple as well
-        assert rule.startswith("ramp.") and isinstance(passed, bool) and message.startswith('ramp "land": ')
+        assert rule in CATALOG and isinstance(passed, bool) and message.startswith('ramp "land": ')
     strict = rule_checks(m, RampLimits(step_cv=0.0))
-    assert not {c.rule: c.passed for c in strict}["ramp.step-uniformity"]
+    assert not {c.rule: c.passed for c in strict}["ramp-step-uniformity"]
 
 
 def test_twin_rules_fail_when_the_match_is_off():
     ramps = make(land=SEQ, sea={"twin": "land", "hue": [185, 235]})
     m = dataclasses.replace(ramp_metrics(ramps["sea"]), twin_dl_max=2.0, twin_dc_max=3.0)
     v = {c.rule: c.passed for c in rule_checks(m)}
-    assert not v["ramp.twin-lightness"] and not v["ramp.twin-chroma"]
+    assert not v["twin-lightness"] and not v["twin-chroma"]
