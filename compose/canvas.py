@@ -15,6 +15,7 @@ from typing import Iterator
 from affine import Affine
 
 from compose.errors import StyleError
+from compose.limits import check_canvas_size
 
 __all__ = ["Canvas", "Window"]
 
@@ -85,14 +86,19 @@ class Canvas:
         """Build a canvas covering ``extent = (west, south, east, north)`` at ``pixel`` CRS units.
 
         The size is rounded up to whole pixels; the west and north edges are kept exactly.
+        A canvas over :attr:`compose.limits.Limits.max_pixels` is refused before any work.
         """
         west, south, east, north = (float(v) for v in extent)
+        if not all(map(math.isfinite, (west, south, east, north))):
+            raise StyleError(f"map.extent: need finite numbers, got {list(extent)}")
         if not (east > west and north > south):
             raise StyleError(f"map.extent: need west < east and south < north, got {list(extent)}")
-        if not pixel > 0:
+        if not (pixel > 0 and math.isfinite(pixel)):
             raise StyleError(f"map.pixel: must be > 0, got {pixel}")
-        width = max(1, math.ceil((east - west) / pixel - 1e-9))
-        height = max(1, math.ceil((north - south) / pixel - 1e-9))
+        if pixel > min(east - west, north - south):
+            raise StyleError(f"map.pixel: {pixel:g} is larger than the extent's shorter side "
+                             f"({min(east - west, north - south):g}); the canvas would be one pixel")
+        width, height = check_canvas_size((east - west) / pixel, (north - south) / pixel)
         transform = Affine(pixel, 0.0, west, 0.0, -pixel, north)
         return cls(crs=crs, transform=transform, width=width, height=height, dpi=dpi)
 

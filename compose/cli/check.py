@@ -10,6 +10,7 @@ from pathlib import Path
 
 import click
 
+from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
 
 __all__ = ["command", "check_report"]
@@ -34,6 +35,7 @@ def check_report(style_path: Path, progress=None):
 @click.argument("style", type=click.Path(path_type=Path))
 @click.option("--json", "as_json", is_flag=True,
               help="Print the report as JSON (the same object render writes as NAME.check.json).")
+@limit_options
 @handle_errors
 def command(style: Path, as_json: bool) -> None:
     """Check the visual hierarchy of STYLE: budgets, contrast, ramps, classes, grey order.

@@ -1,14 +1,12 @@
 """Entry point of the `compose` command: a click group; each subcommand lives in its own module."""
 from __future__ import annotations
 
-import functools
 import importlib
-import sys
 
 import click
 
 from compose import __version__
-from compose.errors import ComposeError
+from compose.cli.failure import guarded, set_debug
 
 __all__ = ["main", "cli", "handle_errors"]
 
@@ -24,17 +22,9 @@ COMMANDS = {
 
 
 def handle_errors(func):
-    """Turn a ComposeError into one line on stderr and exit code 2 (no traceback)."""
-
-    @functools.wraps(func)
-    def wrapper(*args, **kwargs):
-        try:
-            return func(*args, **kwargs)
-        except ComposeError as exc:
-            click.echo(f"compose: error: {exc}", err=True)
-            sys.exit(2)
-
-    return wrapper
+    """Exit codes and one-line errors for a command: 2 for bad input (a ComposeError), 3 when
+    compose itself failed, 130/143 when interrupted (see :mod:`compose.cli.failure`)."""
+    return guarded(func)
 
 
 class LazyGroup(click.Group):
@@ -63,11 +53,15 @@ class LazyGroup(click.Group):
 @click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="compose",
                       message="%(prog)s %(version)s (distribution compose-maps)")
-def cli():
+@click.option("--debug", is_flag=True,
+              help="Show tracebacks and library warnings (also: environment COMPOSE_DEBUG=1).")
+def cli(debug: bool):
     """Compose layered thematic maps from a TOML style and check their visual hierarchy.
 
+    Exit codes: 0 passed, 1 a check rule failed, 2 bad input, 3 compose itself failed.
     Not for navigation or safety decisions: the maps are illustrations.
     """
+    set_debug(debug)
 
 
 def main(argv=None):

@@ -5,6 +5,7 @@ from pathlib import Path
 
 import click
 
+from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
 
 __all__ = ["command"]
@@ -16,6 +17,7 @@ __all__ = ["command"]
               show_default=True,
               help="Folder for NAME.proof-{gray,deutan,protan,tritan,sheet}.png.")
 @click.option("--overwrite", is_flag=True, help="Replace existing proofs.")
+@limit_options
 @handle_errors
 def command(style: Path, out_dir: Path, overwrite: bool) -> None:
     """Write STYLE as it reads in grey (same CIELAB L*) and with deutan, protan and tritan

@@ -5,6 +5,7 @@ from pathlib import Path
 
 import click
 
+from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
 
 __all__ = ["command", "print_summary", "progress_bar"]
@@ -47,6 +48,7 @@ def print_summary(result) -> None:
 @click.option("--out", "out_dir", type=click.Path(path_type=Path), default=Path("out"), show_default=True,
               help="Folder for NAME.png, NAME.tif, NAME.legend.png, NAME.check.json, NAME.html.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@limit_options
 @handle_errors
 def command(style: Path, out_dir: Path, overwrite: bool) -> None:
     """Render STYLE to a PNG, an RGBA GeoTIFF, a legend and a check report."""

@@ -8,6 +8,7 @@ import shapely
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint
 from compose.layers.labels import draw_labels, place_labels
+from compose.limits import MAX_LABEL_CHARS
 from compose.sources.vector import VectorSource
 
 __all__ = ["LabelsLayer"]
@@ -35,8 +36,15 @@ class LabelsLayer:
             prio = 0.0
             if o.priority:
                 v = props.get(o.priority)
-                prio = float(v) if v is not None else 0.0
-            items.append((pt.x, pt.y, str(text), prio))
+                try:
+                    prio = float(v) if v is not None else 0.0
+                except (TypeError, ValueError):
+                    raise StyleError(f'layer "{spec.name}": priority: attribute \'{o.priority}\' '
+                                     f"must hold numbers, got {str(v)[:40]!r}") from None
+            text = str(text)
+            if len(text) > MAX_LABEL_CHARS:          # a label is a name, not a paragraph
+                text = text[:MAX_LABEL_CHARS - 1] + "\u2026"
+            items.append((pt.x, pt.y, text, prio))
         px = canvas.points_to_pixels
         halo_px = px(o.halo.width) if o.halo is not None else 0.0
         self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,

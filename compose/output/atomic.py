@@ -14,6 +14,15 @@ __all__ = ["atomic_path", "check_writable"]
 
 def check_writable(paths: list[Path], overwrite: bool) -> None:
     """Raise OutputError if any output exists and ``overwrite`` is false (before any work starts)."""
+    for p in paths:
+        try:
+            os.stat(p.parent)
+        except FileNotFoundError:
+            pass
+        except OSError as exc:
+            raise OutputError(f"cannot use output folder {p.parent}: {exc.strerror}") from None
+        if len(p.name.encode("utf-8", "surrogatepass")) > 240:
+            raise OutputError(f"output file name too long: {p.name}")
     if overwrite:
         return
     existing = [str(p) for p in paths if p.exists()]
@@ -32,8 +41,11 @@ def atomic_path(final: Path) -> Iterator[Path]:
         final.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise OutputError(f"cannot create output folder {final.parent}: {exc.strerror}") from None
-    fd, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part" + final.suffix,
-                               dir=final.parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part" + final.suffix,
+                                   dir=final.parent)
+    except OSError as exc:
+        raise OutputError(f"cannot write in output folder {final.parent}: {exc.strerror}") from None
     os.close(fd)
     tmp_path = Path(tmp)
     umask = os.umask(0)

@@ -120,6 +120,10 @@ def _stops(table: Mapping, key: str, where: str, minimum: int) -> tuple:
     return tuple(_lch(v, f"{where}: {key}[{i}]") for i, v in enumerate(value))
 
 
+#: Largest magnitude of a ramp domain end (data units).
+MAX_DOMAIN = 1e15
+
+
 def _domain(table: Mapping, where: str) -> tuple[float, float] | None:
     if "domain" not in table:
         return None
@@ -129,6 +133,10 @@ def _domain(table: Mapping, where: str) -> tuple[float, float] | None:
     lo, hi = (_number(v, where, "domain") for v in value)
     if not lo < hi:
         raise StyleError(f"{where}: 'domain' must have low < high, got {value!r}")
+    # our own bound (no source): beyond it steps between 1024 table entries lose precision
+    if max(abs(lo), abs(hi)) > MAX_DOMAIN or (hi - lo) < max(abs(lo), abs(hi)) * 1e-9:
+        raise StyleError(f"{where}: 'domain' must lie within +-{MAX_DOMAIN:g} and span more than "
+                         f"a billionth of its magnitude, got {value!r}")
     return (lo, hi)
 
 

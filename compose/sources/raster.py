@@ -53,6 +53,7 @@ from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.grid import transform_grid
 from compose.sources.resample import sample
+from compose.sources.guard import check_crs, check_source, refuse_driver
 
 __all__ = ["RESAMPLING", "SHRINK_LIMIT", "RasterSource", "cell_size_metres"]
 
@@ -119,15 +120,21 @@ class RasterSource:
         self.key = key
         self._ds = None
         where = f'layer "{layer}"'
-        if not str(path).startswith("/vsi") and not self.path.exists():
-            raise SourceError(f"{where}: {key} not found: {self.path}")
+        local_only = check_source(path, where, key)
         try:
-            ds = rasterio.open(self.path)
+            ds = rasterio.open(path if isinstance(path, str) else self.path)
         except (RasterioError, OSError) as exc:
-            raise SourceError(f"{where}: cannot read {self.path}: {_first_line(exc)}") from None
+            raise SourceError(f"{where}: cannot read {self.path} (damaged, truncated or not a "
+                              f"raster): {_first_line(exc)}") from None
+        refuse_driver(ds, local_only, "raster", where, key)
         if ds.crs is None or not ds.crs.to_wkt():
             ds.close()
             raise SourceError(f"{where}: {self.path} has no CRS")
+        try:
+            check_crs(ds.crs.to_wkt(), where, self.path)
+        except SourceError:
+            ds.close()
+            raise
         if not isinstance(band, (int, np.integer)) or isinstance(band, bool) or not 1 <= band <= ds.count:
             count = ds.count
             ds.close()

@@ -24,6 +24,7 @@ from fiona.errors import FionaError
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
+from compose.sources.guard import check_crs, check_source, refuse_driver
 
 __all__ = ["VectorSource", "Features"]
 
@@ -107,8 +108,7 @@ class VectorSource:
         self.path = Path(path)
         self.layer = layer
         here = f'layer "{layer}"'
-        if not str(path).startswith("/vsi") and not self.path.exists():
-            raise SourceError(f"{here}: source not found: {self.path}")
+        local_only = check_source(path, here)
         try:
             tables = fiona.listlayers(self.path)
         except (FionaError, OSError) as exc:
@@ -121,12 +121,14 @@ class VectorSource:
         self.table = table if table is not None else tables[0]
         try:
             with fiona.open(self.path, layer=self.table) as src:
+                refuse_driver(src, local_only, "vector", here, "source")
                 wkt = src.crs.to_wkt() if src.crs else ""
                 attributes = list(src.schema["properties"])
         except (FionaError, OSError) as exc:
             raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
         if not wkt:
             raise SourceError(f"{here}: {self.path} has no CRS")
+        check_crs(wkt, here, self.path)
         self.crs = pyproj.CRS.from_wkt(wkt)
         self.attributes = attributes
         self.where: dict[str, tuple] = {}

@@ -39,6 +39,10 @@ SHAPES = ("circle", "square")
 WEIGHTS = ("light", "normal", "medium", "semibold", "bold", "heavy")
 #: ``nodata = "transparent"`` in a field layer: no-data pixels are left uncovered.
 NODATA_TRANSPARENT = "transparent"
+#: Largest width, size, dash or offset in points (7 inches; our own bound, no source).
+MAX_POINTS = 500.0
+#: Most suns of a multi-directional hillshade (each costs one shading pass; our own bound).
+MAX_DIRECTIONS = 64
 
 # Defaults: neutral, our own choice (common practice, no source).
 DEFAULT_TINT: RGB = parse_color("#f3f0e8")
@@ -88,7 +92,7 @@ class Halo:
     """A halo drawn beneath a mark: colour and total width in points (> 0)."""
 
     color: RGB = option(color(), DEFAULT_HALO)
-    width: float = option(number(gt=0), 1.5)
+    width: float = option(number(gt=0, le=MAX_POINTS), 1.5)
 
 
 _halo = table_of(Halo)
@@ -109,8 +113,8 @@ class ReliefOptions:
     resampling: str = _resampling("bilinear")
     azimuth: float = option(number(ge=0, le=360), 315.0, group="shade")
     altitude: float = option(number(gt=0, le=90), 45.0, group="shade")
-    exaggeration: float = option(number(gt=0), 1.0, group="shade")
-    directions: int = option(integer(ge=1), 1, group="shade")
+    exaggeration: float = option(number(gt=0, le=1e4), 1.0, group="shade")
+    directions: int = option(integer(ge=1, le=MAX_DIRECTIONS), 1, group="shade")
     tint: RGB = option(color(), DEFAULT_TINT)
     shadow: RGB | None = option(color(), None)
     strength: float = option(number(ge=0, le=1), 0.6)
@@ -150,8 +154,8 @@ class LineOptions:
     table: str | None = option(string(), None)
     where: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
     stroke: RGB = option(color(), DEFAULT_STROKE)
-    width: float = option(number(gt=0), 0.5)
-    dash: tuple[float, ...] | None = option(numbers(gt=0, even=True, min_count=2), None)
+    width: float = option(number(gt=0, le=MAX_POINTS), 0.5)
+    dash: tuple[float, ...] | None = option(numbers(gt=0, le=MAX_POINTS, even=True, min_count=2), None)
     halo: Halo | None = option(_halo, None)
 
 
@@ -163,7 +167,7 @@ class AreaOptions:
     where: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
     fill: RGB | None = option(color(), None)
     stroke: RGB = option(color(), DEFAULT_STROKE)
-    width: float = option(number(ge=0), 0.5)
+    width: float = option(number(ge=0, le=MAX_POINTS), 0.5)
     halo: Halo | None = option(_halo, None)
 
 
@@ -175,8 +179,8 @@ class PointOptions:
     where: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
     fill: RGB = option(color(), DEFAULT_STROKE)
     stroke: RGB = option(color(), _WHITE)
-    width: float = option(number(ge=0), 0.5)
-    size: float = option(number(gt=0), 4.0)
+    width: float = option(number(ge=0, le=MAX_POINTS), 0.5)
+    size: float = option(number(gt=0, le=MAX_POINTS), 4.0)
     shape: str = option(choice(SHAPES, "marker shape"), "circle")
 
 
@@ -190,10 +194,10 @@ class LabelOptions:
     where: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
     text: str = option(string())
     priority: str | None = option(string(), None)
-    size: float = option(number(gt=0), 8.0)
+    size: float = option(number(gt=0, le=MAX_POINTS), 8.0)
     color: RGB = option(color(), DEFAULT_TEXT)
     halo: Halo | None = option(_halo, None)
-    offset: float = option(number(), 3.0)
+    offset: float = option(number(ge=-MAX_POINTS, le=MAX_POINTS), 3.0)
     font: str = option(string(), "DejaVu Sans")
     weight: str | int = option(_weight, "normal")
 

@@ -7,6 +7,7 @@ Errors of one file's shape name that file; errors of the merged content name the
 """
 from __future__ import annotations
 
+import os
 import tomllib
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
@@ -16,6 +17,8 @@ from types import MappingProxyType
 from typing import Any
 
 from compose.errors import StyleError
+from compose.limits import MAX_NESTING, MAX_STRING, MAX_STYLE_BYTES
+from compose.sources.guard import is_remote, read_regular_file
 from compose.style.kinds import LAYER_KINDS
 from compose.style.model import (BLEND_MODES, BUDGET_TABLES, ROLES, LayerSpec, MapSpec, RampTable,
                                  Budgets, Style, Waiver)
@@ -69,19 +72,57 @@ def freeze(value: Any) -> Any:
 
 
 def _read(path: Path) -> tuple[dict, str]:
-    """TOML of one file -> (tables, raw text)."""
+    """TOML of one file -> (tables, raw text). Only a regular file of at most
+    :data:`~compose.limits.MAX_STYLE_BYTES` is read (never a pipe or a device); nesting and string
+    lengths are bounded (:func:`_check_bounds`)."""
+    data = read_regular_file(path, "style file", MAX_STYLE_BYTES, StyleError)
     try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise StyleError(f"style file not found: {_show(path)}") from None
+        text = data.decode("utf-8")
     except UnicodeDecodeError:
         raise StyleError(f"{_show(path)}: not UTF-8 text") from None
-    except OSError as e:
-        raise StyleError(f"cannot read style file {_show(path)}: {e.strerror or e}") from None
     try:
-        return tomllib.loads(text), text
+        tables = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
         raise StyleError(f"{_show(path)}: invalid TOML: {e}") from None
+    except RecursionError:
+        raise StyleError(f"{_show(path)}: values nested too deeply "
+                         f"(at most {MAX_NESTING} levels of tables and arrays)") from None
+    with _blame(path):
+        _check_bounds(tables)
+    return tables, text
+
+
+def _check_bounds(tables: dict) -> None:
+    """Refuse nesting deeper than :data:`~compose.limits.MAX_NESTING` and strings (keys or
+    values) longer than :data:`~compose.limits.MAX_STRING` characters, naming the key path."""
+    todo: list[tuple[Any, tuple[str, ...]]] = [(tables, ())]
+    while todo:
+        value, where = todo.pop()
+        shown = ".".join(where) or "the style"
+        if len(where) > MAX_NESTING:
+            raise StyleError(f"{shown[:200]}: values nested too deeply "
+                             f"(at most {MAX_NESTING} levels of tables and arrays)")
+        if isinstance(value, str) and len(value) > MAX_STRING:
+            raise StyleError(f"{shown}: a string of {len(value):,} characters; "
+                             f"at most {MAX_STRING:,}")
+        if isinstance(value, dict):
+            for k, v in value.items():
+                if len(k) > MAX_STRING:
+                    raise StyleError(f"{shown}: a key of {len(k):,} characters; at most {MAX_STRING:,}")
+                todo.append((v, where + (k,)))
+        elif isinstance(value, list):
+            todo.extend((v, where + (f"[{i}]",)) for i, v in enumerate(value))
+
+
+def _path_string(value: Any, at: Scope) -> str:
+    """A file name of a style (``extends``, ``source``): a non-empty string without control
+    characters (a NUL byte would end the name early)."""
+    text = string()(value, at)
+    bad = next((ch for ch in text if ord(ch) < 32 or ord(ch) == 127), None)
+    if bad is not None:
+        raise StyleError(f"{at.path} must be a file name without control characters "
+                         f"(found U+{ord(bad):04X}), got {value!r}")
+    return text
 
 
 def _prepare(data: dict, folder: Path) -> None:
@@ -90,7 +131,7 @@ def _prepare(data: dict, folder: Path) -> None:
     top = Scope()
     check_keys(data, TOP_KEYS, top)
     if "extends" in data:
-        string()(data["extends"], top.at("extends"))
+        _path_string(data["extends"], top.at("extends"))
     if "map" in data:
         check_keys(as_table(data["map"], top.at("map")), option_keys(MapSpec), top.at("map"))
     if "budget" in data:
@@ -125,7 +166,20 @@ def _prepare(data: dict, folder: Path) -> None:
             raise StyleError(f'layer "{name}" is listed twice; layer names must be unique')
         seen.add(name)
         if isinstance(table.get("source"), str) and table["source"].strip():
-            table["source"] = str((folder / table["source"]).resolve())
+            source = _path_string(table["source"], Scope(f'layer "{name}"').at("source"))
+            if not is_remote(source):     # URLs and /vsi paths stay as written
+                source = str(os.path.abspath(folder / source))
+            table["source"] = source
+
+
+def _resolve(path: Path, what: str) -> Path:
+    """``path`` made absolute with symlinks followed; a symlink loop or an impossible name is
+    a StyleError naming ``what``."""
+    try:
+        return path.resolve()
+    except (OSError, RuntimeError, ValueError) as e:
+        reason = getattr(e, "strerror", None) or str(e)
+        raise StyleError(f"{what}: cannot follow {path}: {reason}") from None
 
 
 def _chain(path: Path) -> list[_File]:
@@ -139,7 +193,7 @@ def _chain(path: Path) -> list[_File]:
         files.append(_File(current, data, text))
         if "extends" not in data:
             return files[::-1]
-        target = (current.parent / data["extends"]).resolve()
+        target = _resolve(current.parent / data["extends"], f"{_show(current)}: extends")
         seen = [f.path for f in files]
         if target in seen:
             loop = " -> ".join(_show(p) for p in seen[seen.index(target):] + [target])
@@ -306,7 +360,7 @@ def load_style(path: str | Path, *, require_map: bool = True, library: bool = Tr
     ``library``: complete the style's ramps with the library ramps it names (and their twin
     bases; :mod:`compose.ramps.library`); False reads the file's own ramps only.
     """
-    path = Path(path).expanduser().resolve()
+    path = _resolve(Path(path).expanduser(), "style file")
     files = _chain(path)
     merged, origin = _merge(files)
     with _blame(path):

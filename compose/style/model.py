@@ -7,6 +7,7 @@ the defaults below are the documented ones (docs/style.md). Layer options live i
 """
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -14,6 +15,8 @@ from typing import Any
 
 from compose.canvas import Canvas
 from compose.errors import StyleError
+from compose.limits import MAX_COORDINATE
+from compose.names import name_problem
 from compose.style.kinds import LayerOptions
 from compose.style.validate import (RGB, Scope, as_table, build_from_table, color, integer,
                                     missing_keys, number, option, pair, string, table_of)
@@ -26,6 +29,9 @@ __all__ = [
 
 #: Layer roles, lowest in the visual hierarchy first.
 ROLES = ("ground", "theme", "overlay")
+#: Range of ``map.dpi``: below 10 a point is a fraction of a pixel, above 10,000 a 1 pt line is
+#: 140 px wide (our own bounds, no source).
+MIN_DPI, MAX_DPI = 10.0, 10000.0
 #: Blend mode names (W3C Compositing and Blending Level 1, section 10).
 BLEND_MODES = ("normal", "multiply", "screen", "overlay", "soft-light")
 
@@ -37,10 +43,13 @@ def _crs(value: Any, at: Scope) -> str:
     from pyproj import CRS
     from pyproj.exceptions import CRSError
     try:
-        CRS.from_user_input(value)
+        crs = CRS.from_user_input(value)
     except CRSError as e:
         reason = " ".join(str(e).split())
         raise StyleError(f"{at.path}: {value!r} is not a CRS pyproj understands ({reason})") from None
+    if crs.is_engineering or not (crs.is_geographic or crs.is_projected):
+        raise StyleError(f"{at.path}: {value!r} is a {crs.type_name}; the canvas needs a "
+                         f"geographic or projected CRS that data can be reprojected to")
     return value
 
 
@@ -50,6 +59,8 @@ def _extent(value: Any, at: Scope) -> tuple[float, float, float, float]:
     if not ok:
         raise StyleError(f"{at.path} must be 4 numbers [west, south, east, north], got {value!r}")
     west, south, east, north = (float(v) for v in value)
+    if not all(math.isfinite(v) and abs(v) <= MAX_COORDINATE for v in (west, south, east, north)):
+        raise StyleError(f"{at.path} must be finite numbers within +-{MAX_COORDINATE:g}, got {value!r}")
     if not (east > west and north > south):
         raise StyleError(f"{at.path}: need west < east and south < north, got {value!r}")
     return west, south, east, north
@@ -57,8 +68,9 @@ def _extent(value: Any, at: Scope) -> tuple[float, float, float, float]:
 
 def _stem(value: Any, at: Scope) -> str:
     name = string()(value, at)
-    if "/" in name or "\\" in name or name in (".", ".."):
-        raise StyleError(f"{at.path} must be a file name without folders, got {value!r}")
+    problem = name_problem(name)
+    if problem is not None:
+        raise StyleError(f"{at.path} {problem} (it names the output files), got {value!r}")
     return name
 
 
@@ -82,7 +94,7 @@ class MapSpec:
     pixel: float | None = option(number(gt=0), None)
     width: int | None = option(integer(ge=1), None)
     like: str | None = option(string(), None)
-    dpi: float = option(number(gt=0), 300.0)
+    dpi: float = option(number(ge=MIN_DPI, le=MAX_DPI), 300.0)
     background: RGB = option(color(), (1.0, 1.0, 1.0))
 
     def __post_init__(self) -> None:

@@ -203,13 +203,15 @@ def pair(*, ge: float | None = None, le: float | None = None, whole: bool = Fals
     return read
 
 
-def numbers(*, gt: float | None = None, ge: float | None = None, even: bool = False,
-            min_count: int = 1) -> Reader:
-    """Reader of a list of numbers -> tuple of floats (at least ``min_count``; an even count if asked)."""
-    item = number(gt=gt, ge=ge)
+def numbers(*, gt: float | None = None, ge: float | None = None, le: float | None = None,
+            even: bool = False, min_count: int = 1, max_count: int = 256) -> Reader:
+    """Reader of a list of numbers -> tuple of floats (``min_count`` to ``max_count`` of them;
+    an even count if asked)."""
+    item = number(gt=gt, ge=ge, le=le)
 
     def read(value: Any, at: Scope) -> tuple[float, ...]:
-        if not isinstance(value, list) or len(value) < min_count or (even and len(value) % 2):
+        if (not isinstance(value, list) or not min_count <= len(value) <= max_count
+                or (even and len(value) % 2)):
             need = "an even count of numbers" if even else f"at least {min_count} numbers"
             raise StyleError(f"{at.path} must be a list of {need}, got {value!r}")
         return tuple(item(v, at) for v in value)
