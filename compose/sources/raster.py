@@ -124,8 +124,8 @@ class RasterSource:
         try:
             ds = rasterio.open(path if isinstance(path, str) else self.path)
         except (RasterioError, OSError) as exc:
-            raise SourceError(f"{where}: cannot read {self.path} (damaged, truncated or not a "
-                              f"raster): {_first_line(exc)}") from None
+            raise SourceError(f"{where}: cannot read {self.path}: {_first_line(exc)} (damaged, "
+                              f"truncated or not a raster)") from None
         refuse_driver(ds, local_only, "raster", where, key)
         if ds.crs is None or not ds.crs.to_wkt():
             ds.close()

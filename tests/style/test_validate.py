@@ -120,7 +120,7 @@ def test_unknown_key_in_map(style):
 
 @pytest.mark.parametrize("body, part", [
     (layer("width = 'thin'"), "layer \"coast\": width must be a number, got 'thin'"),
-    (layer("width = 0"), "layer \"coast\": width must be > 0, got 0"),
+    (layer("width = 0"), "layer \"coast\": width must be > 0 and <= 500, got 0"),
     (layer("opacity = 2"), "layer \"coast\": opacity must be between 0 and 1, got 2"),
     (layer("dash = [1, 2, 3]"), "layer \"coast\": dash must be a list of an even count of numbers"),
     (layer("where = { class = {a = 1} }"), "layer \"coast\": where.class must be a value or a list"),
@@ -159,7 +159,7 @@ def test_layer_not_array_of_tables(style):
     ("[map]\ncrs = 'EPSG:32631'\nextent = [10, 0, 0, 1]\npixel = 1\n",
      "map.extent: need west < east and south < north"),
     ("[map]\ncrs = 'EPSG:32631'\nextent = [0, 0, 1, 1]\npixel = 0\n", "map.pixel must be > 0, got 0"),
-    ("[map]\ncrs = 'EPSG:32631'\nextent = [0, 0, 1, 1]\npixel = 1\ndpi = -3\n", "map.dpi must be > 0"),
+    ("[map]\ncrs = 'EPSG:32631'\nextent = [0, 0, 1, 1]\npixel = 1\ndpi = -3\n", "map.dpi must be between 10 and 10000"),
     ("[map]\ncrs = 'EPSG:999999'\nextent = [0, 0, 1, 1]\npixel = 1\n",
      "map.crs: 'EPSG:999999' is not a CRS pyproj understands"),     # no such code in the EPSG registry
     ("[map]\ncrs = 32631\nextent = [0, 0, 1, 1]\npixel = 1\n", "map.crs must be a CRS string"),
