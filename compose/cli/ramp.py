@@ -35,6 +35,16 @@ def _limits(style_path: Path | None):
     return RampLimits.from_budgets(load_style(style_path, require_map=False).budgets)
 
 
+def _budgets(style_path: Path | None):
+    """The style's budgets (the defaults without a style): the figure draws the theme budget."""
+    from compose.style import load_style
+    from compose.style.model import Budgets
+
+    if style_path is None:
+        return Budgets()
+    return load_style(style_path, require_map=False).budgets
+
+
 def _rows(ramp, samples: int) -> list[dict]:
     from compose.color.lab import srgb_to_lch
     from compose.ramps import drawn_samples
@@ -118,7 +128,7 @@ def command(name: str, style_path: Path | None, samples: int, as_json: bool, plo
         from compose.ramps.figure import write_ramp_plot
         if not plot_path.parent.is_dir():
             raise ComposeError(f"--plot: folder does not exist: {plot_path.parent}")
-        write_ramp_plot(ramp, plot_path, ramps, units, limits=limits)
+        write_ramp_plot(ramp, plot_path, ramps, units, limits=limits, budgets=_budgets(style_path))
     if as_json:
         click.echo(json.dumps(rows, indent=1))
         return

@@ -1,11 +1,28 @@
-"""A figure of a ramp for the cartographer: swatches, L* / C* / hue profiles, CVD and grey proofs.
+"""The ramp figure (``compose ramp NAME --plot FILE``): what compose judges in a ramp, drawn
+against the limits it judges by.
 
-Continuous and stepped ramps: the drawn strip (with its twins, if any), lightness, chroma (with
-the sRGB chroma limit at that L* and hue) and hue against the data value, then the strip as seen
-under deutan, protan and tritan simulation (Machado et al. 2009, severity 100) and in grey by L*.
-Qualitative ramps: one swatch per class in each vision, the smallest CIEDE2000 per vision, and
-the pairwise differences (the smallest over normal, deutan and protan vision) as a table.
-Uses matplotlib's object interface only (no pyplot state); written through a temporary file.
+Continuous and stepped ramps, top to bottom, all sharing one data axis:
+
+* the ramp as drawn (and its twins), each with its out-of-domain squares as in the legend, then
+  proofs of the same strip: grey of the same CIELAB L*, deutan and protan simulation (Machado
+  et al. 2009, severity 100) -- the visions the checker judges;
+* **lightness** L* against the data value, with the tolerance bands of the rules that bound it
+  (a twin's L* around its base, a diverging arm's L* around the mirrored other arm, the L*
+  continuity at a threshold break) and any reversal of direction shaded as failing;
+* **chroma** C*ab, with the style's theme chroma budget shaded (p50 at least its minimum, p95
+  at most its maximum -- judged on the map's pixels; here the ramp's own p50 and p95 over an
+  evenly spread domain are marked), the neutral-midpoint limit of a diverging ramp and the sRGB
+  limit at each L* and hue;
+* **evenness**: each CAM02-UCS step between adjacent samples as a percentage of the mean step,
+  with the band the evenness limit allows (coefficient of variation <= limit, drawn as +- limit);
+* **difference**: CIEDE2000 between neighbouring colours in normal, deutan and protan vision
+  (a sixteenth of the domain apart, or adjacent classes of a stepped ramp), with the
+  separation limit where a rule applies and the break difference of a threshold ramp.
+
+Beside each panel the checker's own rule results for it (:func:`compose.ramps.rule_checks`),
+each with a mark and a word as well as a colour. Qualitative ramps: :mod:`.figure_classes`.
+Interface colours come from :mod:`compose.color.interface`; matplotlib's object interface only;
+written through a temporary file renamed into place.
 """
 from __future__ import annotations
 
@@ -16,290 +33,214 @@ from pathlib import Path
 
 import numpy as np
 
-from compose.color.cvd import simulate_cvd
-from compose.color.difference import delta_e_2000
-from compose.color.gamut import max_chroma
-from compose.color.lab import lab_to_lch, lab_to_srgb, srgb_to_lab
+from compose.color import interface as ui
+from compose.ramps.figure_classes import (PROOF_VISIONS, check_color, check_lines, classes_figure,
+                                          hex8, proof, swatch)
+from compose.ramps.figure_panels import (chroma_panel, difference_panel, evenness_panel,
+                                         lightness_panel, profile, style_axes)
 from compose.ramps.lut import lut_for
-from compose.ramps.metrics import VISIONS, RampMetrics, ramp_metrics, rule_checks, vision_lab
+from compose.ramps.metrics import RampLimits, RampMetrics, ramp_metrics, rule_checks
 from compose.ramps.model import Ramp
 
-__all__ = ["ramp_figure", "write_ramp_plot"]
+__all__ = ["ramp_figure", "write_ramp_plot", "panel_of"]
 
-INK = "#2b2b2b"
-FAINT = "#9a9a9a"
-FAIL = "#f2c9a7"
-_PROOFS = (("deutan", "deutan"), ("protan", "protan"), ("tritan", "tritan"), ("grey L*", None))
+INK, MUTED, GRID = ui.INK.hex, ui.MUTED.hex, ui.GRID.hex
 
+WIDTH = 10.0                 # inches
+LEFT, MAIN, CARDS = 1.05, 5.85, 2.9    # left margin, panel width, rule column (inches)
+WRAP = 48                    # characters per line in the rule column
+END_FRACTION = 0.035         # room for an out-of-domain square at each end, fraction of the domain
 
-def _gray(lab: np.ndarray) -> np.ndarray:
-    """sRGB greys with the L* of ``lab`` (..., 3): the grayscale proof by lightness."""
-    g = np.zeros_like(lab)
-    g[..., 0] = lab[..., 0]
-    return np.clip(lab_to_srgb(g), 0, 1)
-
-
-def _proof(rgb: np.ndarray, kind: str | None) -> np.ndarray:
-    if kind is None:
-        return _gray(srgb_to_lab(rgb))
-    return simulate_cvd(rgb, kind, 100.0)
+#: Which panel shows which rule: words in the rule id (first match wins; the rest go below).
+_PANELS = (("nodata", ("nodata",)),
+           ("lightness", ("monotone", "gray", "symmetry", "twin-lightness", "threshold-lightness",
+                          "break-continuity")),
+           ("chroma", ("chroma", "midpoint")),
+           ("evenness", ("uniformity", "evenness")),
+           ("difference", ("separation", "break-visible")))
 
 
-def _strip(ax, rgb: np.ndarray, lo: float, hi: float, label: str) -> None:
-    ax.imshow(rgb[None, :, :], extent=(lo, hi, 0, 1), aspect="auto", interpolation="nearest")
-    ax.set_yticks([])
-    ax.set_ylabel(label, rotation=0, ha="right", va="center", fontsize=8.5, color=INK)
-    for side in ("top", "right", "left"):
-        ax.spines[side].set_visible(False)
-    ax.tick_params(axis="x", labelbottom=False, length=0)
+def panel_of(rule: str) -> str:
+    """The panel a rule id belongs to: nodata, lightness, chroma, evenness, difference, or other."""
+    for panel, words in _PANELS:
+        if any(w in rule for w in words):
+            return panel
+    return "other"
 
 
-def _profile(ramp: Ramp, x: np.ndarray, drawn: np.ndarray) -> np.ndarray:
-    """LCh along ``x``: the unrounded ramp (smooth lines), or the drawn classes of a stepped ramp;
-    NaN across a threshold break so no line joins the two sides."""
-    if ramp.stepped:
-        lch = lab_to_lch(srgb_to_lab(drawn))
-    else:
-        lch = lab_to_lch(ramp.lab_at(x))
-    if ramp.at is not None:
-        k = int(np.searchsorted(x, ramp.at))
-        if 0 < k < len(x):
-            lch[k - 1] = np.nan
-    return lch
+class _Stack:
+    """Rows stacked from the top of a figure of fixed width; heights and gaps in inches."""
+
+    def __init__(self, fig, height: float):
+        self.fig, self.height, self.y = fig, height, 0.0
+
+    def row(self, h: float, gap: float = 0.0, left: float = LEFT, width: float = MAIN, **kw):
+        self.y += gap
+        rect = (left / WIDTH, 1 - (self.y + h) / self.height, width / WIDTH, h / self.height)
+        self.y += h
+        return self.fig.add_axes(rect, **kw)
+
+    def cards(self, ax, checks, extra: tuple[str, ...] = ()) -> None:
+        """The rule results beside panel ``ax``: a mark and a word, the id, the message."""
+        x = (LEFT + MAIN + 0.25) / WIDTH
+        y = ax.get_position().y1
+        step = 0.118 / self.height
+        for note in extra:
+            for i, line in enumerate(textwrap.wrap(note, WRAP, subsequent_indent="    ")):
+                self.fig.text(x, y, line, fontsize=7, color=MUTED, va="top")
+                y -= step
+        for c in checks:
+            for i, line in enumerate(check_lines(c, WRAP - 4)):
+                self.fig.text(x, y, line, fontsize=7.2 if i == 0 else 6.8, va="top",
+                              color=check_color(c) if i == 0 else MUTED,
+                              weight="bold" if i == 0 else "normal")
+                y -= step
 
 
-def _hue_line(lch: np.ndarray) -> np.ndarray:
-    """Hue in degrees where C* >= 3 (NaN elsewhere), unwrapped within each unbroken run and
-    shifted so each run's mean lies in [0, 360)."""
-    hue = np.where(lch[:, 1] >= 3, lch[:, 2], np.nan)
-    ok = ~np.isnan(hue)
-    starts = np.flatnonzero(ok & ~np.concatenate([[False], ok[:-1]]))
-    for a in starts:
-        b = a
-        while b < len(hue) and ok[b]:
-            b += 1
-        run = np.degrees(np.unwrap(np.radians(hue[a:b])))
-        hue[a:b] = run - 360.0 * np.floor(run.mean() / 360.0)
-    return hue
+def _strip(ax, rgb: np.ndarray, lo: float, hi: float, label: str, ends=None) -> None:
+    """A colour strip over [lo, hi]; ``ends`` (low rgb, high rgb) as squares set off by a gap."""
+    ax.imshow(rgb[None, :, :], extent=(lo, hi, 0, 1), aspect="auto", interpolation="nearest", zorder=1)
+    ax.axis("off")
+    ax.set_ylim(0, 1)
+    ax.text(lo - (hi - lo) * (END_FRACTION + 0.012), 0.5, label, ha="right", va="center",
+            fontsize=8, color=INK)
+    if ends is not None:
+        e, w = (hi - lo) * END_FRACTION, (hi - lo) * END_FRACTION * 0.62
+        ax.add_patch(swatch((lo - e, 0), w, 1, ends[0], lw=0.4, zorder=2, clip_on=False))
+        ax.add_patch(swatch((hi + e - w, 0), w, 1, ends[1], lw=0.4, zorder=2, clip_on=False))
 
 
-def _summary(m: RampMetrics) -> str:
-    parts = [f"L* {m.lightness_range[0]:.0f}–{m.lightness_range[1]:.0f}",
-             f"C* {m.chroma_range[0]:.0f}–{m.chroma_range[1]:.0f}"]
-    if m.step_cv is not None:
-        parts.append(f"step CV {m.step_cv:.1f} %")
-    if m.gamut_removed_max > 0.05:
-        parts.append(f"gamut cut C* max {m.gamut_removed_max:.1f}")
-    if m.matched_removed_max > 0.05:
-        parts.append(f"twin cut C* max {m.matched_removed_max:.1f} / mean {m.matched_removed_mean:.1f}")
-    parts.append(f"nodata {m.nodata_min_de00:.1f} ΔE00 off the ramp")
-    return "   ·   ".join(parts)
-
-
-def _verdicts(checks) -> str:
-    bad = [c for c in checks if not c.passed]
-    if not bad:
-        return f"all {len(checks)} ramp rules pass"
-    return "fails: " + "; ".join(c.rule.removeprefix("ramp.") for c in bad)
-
-
-def _continuous_figure(fig, ramp: Ramp, members: list[Ramp], units: str | None) -> None:
+def _continuous(fig, ramp: Ramp, members, units, m: RampMetrics, checks, lim, theme, height) -> None:
     lo, hi = ramp.domain
     x = np.linspace(lo, hi, 600)
-    gs = fig.add_gridspec(len(members) + 3 + len(_PROOFS), 2, width_ratios=[12, 1.3],
-                          height_ratios=[0.55] * len(members) + [1.7, 1.2, 1.0] + [0.32] * len(_PROOFS),
-                          hspace=0.16, wspace=0.04, left=0.13, right=0.97, top=0.895, bottom=0.115)
-    axes = []
-    drawn = {}
-    for i, r in enumerate(members):
+    span = hi - lo
+    xlim = (lo - span * END_FRACTION, hi + span * END_FRACTION)
+    stack = _Stack(fig, height)
+    stack.y = 0.85
+    drawn, lch = {}, {}
+    strip_axes = []
+    for r in members:
         lut = lut_for(r)
-        rgb8 = lut.rgb8[lut.index(np.linspace(r.domain[0], r.domain[1], 600))]
-        drawn[r.name] = rgb8 / 255.0
-        ax = fig.add_subplot(gs[i, 0])
-        _strip(ax, drawn[r.name], lo, hi, r.name)
-        ax.set_xlim(lo, hi)
-        axes.append(ax)
-    side = fig.add_subplot(gs[0:len(members), 1])
-    side.axis("off")
-    for j, (label, rgb) in enumerate((("outside low", ramp.outside_low), ("outside high", ramp.outside_high), ("nodata", ramp.nodata))):
-        y = 0.8 - j * 0.33
-        side.add_patch(_rect((0.0, y - 0.11), 0.32, 0.22, rgb))
-        side.text(0.42, y, label, fontsize=7.5, va="center", color=INK)
-    side.set_xlim(0, 1)
-    side.set_ylim(0, 1)
-
-    panels = [fig.add_subplot(gs[len(members) + k, 0], sharex=axes[0]) for k in range(3)]
-    styles = ["-", "--", ":", "-."]
-    limits = []
-    for r, ls in zip(members, styles):
-        lch = _profile(r, x, drawn[r.name])
-        w = 1.8 if r is ramp else 1.2
-        label = r.name if r is ramp else f"{r.name} (same L*, C*)"
-        panels[0].plot(x, lch[:, 0], ls, color=INK, lw=w, label=label)
-        panels[1].plot(x, lch[:, 1], ls, color=INK, lw=w)
-        panels[2].plot(x, _hue_line(lch), ls, color=INK, lw=w)
-        limits.append(np.where(lch[:, 1] >= 3, max_chroma(lch[:, 0], np.nan_to_num(lch[:, 2]) % 360), np.nan))
-    text = "sRGB limit at this L*, h" + (" (tightest of the twins)" if len(members) > 1 else "")
-    panels[1].plot(x, np.min(limits, axis=0), color=FAINT, lw=0.9, label=text)
-    panels[0].set_ylabel("lightness\nL* (CIELAB)", fontsize=8.5)
-    panels[0].set_ylim(0, 100)
-    panels[1].set_ylabel("chroma\nC*ab", fontsize=8.5)
-    panels[1].set_ylim(0, None)
-    panels[2].set_ylabel("hue h (°)\nwhere C* ≥ 3", fontsize=8.5)
-    from matplotlib.ticker import FuncFormatter
-    panels[2].yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v % 360:.0f}"))
-    legend = {"fontsize": 7, "frameon": True, "framealpha": 0.9, "edgecolor": "none", "loc": "best"}
-    if len(members) > 1:
-        panels[0].legend(ncol=len(members), **legend)
-    panels[1].legend(**legend)
-    for p in panels:
-        p.grid(True, color="#e4e4e4", lw=0.6)
-        p.tick_params(labelsize=7.5, labelbottom=False)
-        for s in ("top", "right"):
-            p.spines[s].set_visible(False)
-    proofs = []
-    for k, (label, kind) in enumerate(_PROOFS):
-        ax = fig.add_subplot(gs[len(members) + 3 + k, 0], sharex=axes[0])
-        _strip(ax, _proof(drawn[ramp.name], kind), lo, hi, label)
-        proofs.append(ax)
-    proofs[-1].tick_params(axis="x", labelbottom=True, length=3, labelsize=8)
-    proofs[-1].set_xlabel(f"data value ({units})" if units else "data value", fontsize=9)
+        drawn[r.name] = lut.rgb8[lut.index(np.linspace(r.domain[0], r.domain[1], 600))] / 255.0
+        lch[r.name] = profile(r, x, drawn[r.name])
+        ax = stack.row(0.3, 0.06)
+        _strip(ax, drawn[r.name], lo, hi, r.name, ends=(r.outside_low, r.outside_high))
+        ax.set_xlim(*xlim)
+        strip_axes.append(ax)
+    by_panel: dict[str, list] = {}
+    for c in checks:
+        by_panel.setdefault(panel_of(c.rule), []).append(c)
+    nodata = [f"nodata {hex8(np.rint(np.array(ramp.nodata) * 255))}, outside low / high "
+              f"{hex8(np.rint(np.array(ramp.outside_low) * 255))} / "
+              f"{hex8(np.rint(np.array(ramp.outside_high) * 255))}"]
+    stack.cards(strip_axes[0], by_panel.pop("nodata", []), tuple(nodata))
+    fig.add_artist(swatch(((LEFT + MAIN + 0.05) / WIDTH, strip_axes[0].get_position().y1 - 0.15 / height),
+                          0.14 / WIDTH, 0.14 / height, ramp.nodata))
+    stack.y += 0.08
+    for label, kind in PROOF_VISIONS:
+        ax = stack.row(0.2, 0.035)
+        _strip(ax, proof(drawn[ramp.name], kind), lo, hi, label)
+        ax.set_xlim(*xlim)
+        strip_axes.append(ax)
+    panels = []
+    titles = (("lightness", "lightness L*\n(CIELAB)", 1.55), ("chroma", "chroma C*ab", 1.55),
+              ("evenness", "CAM02-UCS step\n% of the mean", 1.3), ("difference", "ΔE00 (CIEDE2000)", 1.3))
+    for key, ylabel, h in titles:
+        ax = stack.row(h, 0.32)
+        style_axes(ax, ylabel)
+        ax.set_xlim(*xlim)
+        panels.append((key, ax))
+    axes = dict(panels)
+    lightness_panel(axes["lightness"], ramp, members, x, lch, lim)
+    notes = chroma_panel(axes["chroma"], ramp, members, x, lch, lim, theme)
+    evenness_panel(axes["evenness"], ramp, lim)
+    difference_panel(axes["difference"], ramp, lim, m)
+    rho = f"grey order: |Spearman ρ| of value vs L* {abs(m.grayscale_rho):.3f}" if m.grayscale_rho is not None else ""
+    extra = {"lightness": (rho,) if rho else (), "chroma": tuple(notes),
+             "evenness": (f"CV {m.step_cv:.1f} % at {m.samples} samples" if m.step_cv is not None else "",)}
+    for key, ax in panels:
+        stack.cards(ax, by_panel.pop(key, []), tuple(t for t in extra.get(key, ()) if t))
+    last = axes["difference"]
+    last.tick_params(labelbottom=True)
+    last.set_xlabel(f"data value ({units})" if units else "data value", fontsize=9, color=INK)
     marks = [(ramp.center, f"centre {ramp.center:g}")] if ramp.center is not None else []
     if ramp.at is not None:
         marks.append((ramp.at, f"break {ramp.at:g}"))
     lut = lut_for(ramp)
-    if lut.stepped:
-        for e in lut.edges[1:-1]:
-            for p in panels:
-                p.axvline(e, color="#d0d0d0", lw=0.6, zorder=0)
+    for key, ax in panels:
+        if lut.stepped:
+            for e in lut.edges[1:-1]:
+                ax.axvline(e, color=ui.RULE.hex, lw=0.6, zorder=0.6)
+        for value, _ in marks:
+            ax.axvline(value, color=MUTED, lw=0.8, ls=(0, (3, 2)), zorder=0.7)
     for value, text in marks:
-        for ax in axes + panels + proofs:
-            ax.axvline(value, color=INK, lw=0.8, ls=(0, (3, 2)))
-        axes[0].text(value, 1.08, text, transform=axes[0].get_xaxis_transform(), ha="center",
-                     va="bottom", fontsize=8, color=INK)
+        strip_axes[0].text(value, 1.12, text, transform=strip_axes[0].get_xaxis_transform(),
+                           ha="center", va="bottom", fontsize=7.5, color=INK)
+    rest = by_panel.pop("other", []) + [c for v in by_panel.values() for c in v]
+    y = 0.42 / height
+    for c in rest:
+        fig.text(LEFT / WIDTH, y, check_lines(c, 200)[0], fontsize=7.2, color=check_color(c), va="top")
+        y -= 0.13 / height
+    for w in m.warnings:
+        fig.text(LEFT / WIDTH, y, f"{ui.MARKS['warn']} {w}", fontsize=7.2, color=ui.WARN.hex, va="top")
+        y -= 0.13 / height
 
 
-def _rect(xy, w, h, rgb):
-    from matplotlib.patches import Rectangle
-    return Rectangle(xy, w, h, facecolor=tuple(np.clip(rgb, 0, 1)), edgecolor="#bdbdbd", lw=0.5)
-
-
-def _qualitative_figure(fig, ramp: Ramp, m: RampMetrics, checks) -> None:
-    classes = ramp.classes
-    n = len(classes)
-    rgb8 = np.array([np.rint(np.array(c.rgb) * 255) for c in classes]).astype(np.uint8)
-    rgb = rgb8 / 255.0
-    rows = [("normal", rgb)] + [(v, simulate_cvd(rgb, v, 100.0)) for v in VISIONS[1:]]
-    rows.append(("grey L*", _gray(srgb_to_lab(rgb))))
-    ax = fig.add_axes((0.1, 0.36, 0.74, 0.55))
-    ax.set_xlim(0, n)
-    ax.set_ylim(len(rows), -1.45)
-    ax.axis("off")
-    lab = srgb_to_lab(rgb)
-    for r, (name, colors) in enumerate(rows):
-        ax.text(-0.08, r + 0.45, name, ha="right", va="center", fontsize=8.5, color=INK)
-        for i in range(n):
-            ax.add_patch(_rect((i + 0.05, r + 0.05), 0.9, 0.8, colors[i]))
-        if name in m.min_pair_de00:
-            labs = srgb_to_lab(colors)
-            d = delta_e_2000(labs[:, None], labs[None])
-            d[np.diag_indices(n)] = np.inf
-            a, b = np.unravel_index(np.argmin(d), d.shape)
-            v = m.min_pair_de00[name]
-            ax.text(n + 0.12, r + 0.45, f"min ΔE00 {v:.1f}\n({classes[a].value:g} vs {classes[b].value:g})",
-                    va="center", fontsize=7.5, color=INK if v >= 10 else "#a04000")
-    for i, c in enumerate(classes):
-        L = lab[i, 0]
-        ink = "white" if L < 55 else INK
-        ax.text(i + 0.5, 0.36, f"{c.value:g}", ha="center", va="center", fontsize=9, color=ink, weight="bold")
-        ax.text(i + 0.5, 0.68, _hex(rgb8[i]), ha="center", va="center", fontsize=6.5, color=ink)
-        ax.text(i + 0.5, len(rows) - 0.55, f"L* {L:.0f}", ha="center", va="center", fontsize=7, color=ink)
-        ax.text(i + 0.5, -0.05, "\n".join(textwrap.wrap(c.label, 13)), ha="center", va="bottom",
-                fontsize=7.5, color=INK)
-    fams: dict = {}
-    for i, c in enumerate(classes):
-        if c.family:
-            fams.setdefault(c.family, []).append(i)
-    for fam, idx in fams.items():
-        ax.plot([min(idx) + 0.1, max(idx) + 0.9], [-0.95, -0.95], color=INK, lw=1)
-        ax.text((min(idx) + max(idx) + 1) / 2, -1.0, fam, ha="center", va="bottom", fontsize=7.5,
-                color=INK, style="italic")
-    # pairwise table: the smallest dE00 over normal, deutan and protan vision
-    labs = vision_lab(rgb8)
-    d = np.min([delta_e_2000(labs[v][:, None], labs[v][None]) for v in ("normal", "deutan", "protan")], axis=0)
-    t = fig.add_axes((0.1, 0.06, 0.36, 0.24))
-    t.set_xlim(-0.2, n)
-    t.set_ylim(n + 0.6, 0)
-    t.axis("off")
-    t.set_title("pairwise ΔE00, smallest of normal, deutan, protan\n(shaded: below 10)", fontsize=8,
-                color=INK, loc="left")
-    for i in range(n):
-        t.text(-0.1, i + 0.5, f"{classes[i].value:g}", ha="right", va="center", fontsize=7.5, color=INK)
-        t.text(i + 0.5, n + 0.1, f"{classes[i].value:g}", ha="center", va="top", fontsize=7.5, color=INK)
-        for j in range(i):
-            t.add_patch(_rect((j + 0.04, i + 0.04), 0.92, 0.92, (1, 1, 1)))
-            t.patches[-1].set_facecolor(FAIL if d[i, j] < 10 else "#f1f1f1")
-            t.patches[-1].set_edgecolor("white")
-            t.text(j + 0.5, i + 0.5, f"{d[i, j]:.0f}", ha="center", va="center", fontsize=7, color=INK)
-    lines = [f"nodata {_hex(np.rint(np.array(ramp.nodata) * 255).astype(int))}: "
-             f"{m.nodata_min_de00:.1f} ΔE00 from the nearest class, C* {m.nodata_chroma:.1f}"]
-    for fam, within in (m.family_min_pair_de00 or {}).items():
-        lines.append(f"within {fam}: min ΔE00 " + ", ".join(f"{k} {v:.1f}" for k, v in within.items()))
-    lines += [f"warning: {w}" for w in m.warnings]
-    lines.append("")
-    lines += [("ok     " if c.passed else ("warn   " if c.level == "warning" else "FAIL   ")) + c.rule
-              for c in checks]
-    fig.text(0.555, 0.28, "\n".join(lines), fontsize=7.5, color=INK, va="top", linespacing=1.5)
-    fig.add_artist(_rect((0.528, 0.2635), 0.02, 0.0165, ramp.nodata))
-
-
-def _hex(code) -> str:
-    return "#%02x%02x%02x" % tuple(int(c) for c in code)
+def _verdict(checks) -> tuple[str, str]:
+    bad = [c for c in checks if not c.passed and c.level != "warning"]
+    warn = [c for c in checks if not c.passed and c.level == "warning"]
+    if bad:
+        text = f"{ui.MARKS['fail']} {len(bad)} of {len(checks)} ramp rules fail"
+        return text + (f", {len(warn)} warning(s)" if warn else ""), ui.FAIL.hex
+    text = f"{ui.MARKS['pass']} all {len(checks)} ramp rules pass"
+    return text + (f", {len(warn)} warning(s)" if warn else ""), ui.PASS.hex
 
 
 def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | None = None,
-                limits=None):
-    """A matplotlib Figure describing ``ramp``; ``others`` (name -> Ramp) supplies its twins."""
+                limits: RampLimits | None = None, budgets=None):
+    """A matplotlib Figure of ``ramp`` (see the module docstring). ``others`` (name -> Ramp)
+    supplies its twins; ``limits`` the ramp rules' limits (default :class:`RampLimits`);
+    ``budgets`` a style's budgets (its ``theme`` chroma budget is drawn when given)."""
     from matplotlib.figure import Figure
 
     others = others or {}
+    lim = limits or RampLimits()
     m = ramp_metrics(ramp)
-    checks = rule_checks(m) if limits is None else rule_checks(m, limits)
+    checks = rule_checks(m, lim)
     members = [ramp] + [others[n] for n in ramp.matched if n != ramp.name and n in others]
     if ramp.kind == "qualitative":
-        fig = Figure(figsize=(10, 7.4), dpi=150)
-        _qualitative_figure(fig, ramp, m, checks)
+        fig = Figure(figsize=(WIDTH, 7.4), dpi=150, facecolor=ui.PAPER.hex)
+        classes_figure(fig, ramp, m, checks, lim.class_separation)
         subtitle = f"qualitative, {len(ramp.classes)} classes"
     else:
-        fig = Figure(figsize=(10, 8.6 + 0.45 * (len(members) - 1)), dpi=150)
-        _continuous_figure(fig, ramp, members, units)
-        subtitle = f"{ramp.kind}, interpolated in {'CAM02-UCS' if ramp.space == 'cam02ucs' else 'CIELAB'}, " \
-                   f"domain {ramp.domain[0]:g} to {ramp.domain[1]:g}"
+        n_rest = sum(1 for c in checks if panel_of(c.rule) == "other") + len(m.warnings)
+        height = 0.85 + 0.36 * len(members) + 0.08 + 0.235 * 3 + 4 * 0.32 + 2 * 1.55 + 2 * 1.3 + 0.75 \
+            + 0.13 * n_rest
+        fig = Figure(figsize=(WIDTH, height), dpi=150, facecolor=ui.PAPER.hex)
+        _continuous(fig, ramp, members, units, m, checks, lim, getattr(budgets, "theme", None), height)
+        space = "CAM02-UCS" if ramp.space == "cam02ucs" else "CIELAB"
+        subtitle = f"{ramp.kind}, interpolated in {space}, domain {ramp.domain[0]:g} to {ramp.domain[1]:g}"
         if ramp.twin_of:
             subtitle += f", twin of {ramp.twin_of} (hue {ramp.hue[0]:g}° to {ramp.hue[1]:g}°)"
         if ramp.stepped:
             subtitle += f", {lut_for(ramp).n} classes"
-    fig.suptitle(f"{ramp.name}", x=0.02, ha="left", y=0.985, fontsize=13, color=INK, weight="bold")
-    fig.text(0.02, 0.945, subtitle, fontsize=9, color=INK)
-    if ramp.kind != "qualitative":
-        fig.text(0.02, 0.045, _summary(m), fontsize=8, color=INK)
-    bad = any(not c.passed and c.level == "error" for c in checks)
-    if ramp.kind != "qualitative":
-        fig.text(0.02, 0.018, _verdicts(checks), fontsize=8, color="#a04000" if bad else INK)
+    h = fig.get_figheight()
+    fig.text(0.02, 1 - 0.12 / h, ramp.name, ha="left", va="top", fontsize=13, color=INK, weight="bold")
+    fig.text(0.02, 1 - 0.42 / h, subtitle, fontsize=8.5, color=MUTED, va="top")
+    verdict, color = _verdict(checks)
+    fig.text(0.98, 1 - 0.14 / h, verdict, fontsize=10, color=color, ha="right", va="top", weight="bold")
     return fig
 
 
 def write_ramp_plot(ramp: Ramp, path: Path | str, others: dict[str, Ramp] | None = None,
-                    units: str | None = None, limits=None) -> Path:
-    """Render :func:`ramp_figure` to a PNG at ``path``, through a temporary file renamed into place.
-
-    ``limits``: :class:`~compose.ramps.RampLimits` of the style's budgets (default the defaults)."""
+                    units: str | None = None, limits: RampLimits | None = None, budgets=None) -> Path:
+    """Render :func:`ramp_figure` to a PNG at ``path``, through a temporary file renamed into place."""
     path = Path(path)
-    fig = ramp_figure(ramp, others, units, limits)
+    fig = ramp_figure(ramp, others, units, limits, budgets)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".png", dir=path.parent or ".")
     try:
         with os.fdopen(fd, "wb") as fh:
-            fig.savefig(fh, format="png")
+            fig.savefig(fh, format="png", facecolor=ui.PAPER.hex)
         umask = os.umask(0)
         os.umask(umask)
         os.chmod(tmp, 0o666 & ~umask)   # mkstemp makes 0600; give the file the usual mode

@@ -110,7 +110,7 @@ def test_no_hand_written_interface_colour_in_the_package():
     # Interface colours are derived from compose.color.interface; the only hex literals left are
     # the map's own style defaults (style/kinds.py), which are style values, not interface, and
     # the examples in interface.py's docstrings.
-    allowed = {"style/kinds.py", "ramps/figure.py", "color/interface.py"}
+    allowed = {"style/kinds.py", "color/interface.py"}
     found = {}
     for path in PACKAGE.rglob("*.py"):
         rel = path.relative_to(PACKAGE).as_posix()
