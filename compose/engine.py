@@ -36,7 +36,11 @@ WINDOW = 1024  # core pixels per window side
 
 
 class Sink(Protocol):
-    """Receives finished output rows: ``rows(row0, rgb8)`` with rgb8 (n, width, 3) uint8."""
+    """Receives finished output rows: ``rows(row0, rgb8)`` with rgb8 (n, width, 3) uint8.
+
+    A sink with an integer attribute ``below`` also gets ``below_rows(row0, rgb8)``: the same
+    rows composited from the layers under index ``below`` only (a page's raster part).
+    """
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None: ...
 
@@ -95,14 +99,23 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None) -> P
         ramps = build_ramps(style.ramps, only={u for u in used if isinstance(u, str)})
     ctx = Context(canvas=canvas, ramps=ramps, style=style)
     stack = contextlib.ExitStack()
-    layers = []
+    specs = [spec for spec in style.layers if spec.enabled]
+    layers: list = [None] * len(specs)
+    # labels go last: they keep clear of the page furniture inside the map frame, whose size
+    # (the legend's) depends on the other layers
+    order = sorted(range(len(specs)), key=lambda i: specs[i].kind == "labels")
     try:
-        for spec in style.layers:
-            if not spec.enabled:
-                continue
+        for i in order:
+            spec = specs[i]
+            if spec.kind == "labels" and getattr(style, "page", None) is not None \
+                    and not ctx.blocked and canvas == style.canvas():
+                from compose.page.write import blocked_for, stand_in
+                ctx.blocked = tuple(blocked_for(style, ramps, [la if la is not None else
+                                                               stand_in(sp) for la, sp in
+                                                               zip(layers, specs)]))
             layer = layer_class(spec.kind)(spec, ctx)
             stack.callback(layer.close)
-            layers.append(layer)
+            layers[i] = layer
     except BaseException:
         stack.close()
         raise
@@ -119,13 +132,15 @@ class WindowResult:
 
     window: the :class:`Window`; rgb8: its core, (height, width, 3) uint8; statistics: the
     window's own statistics (None when not measured), to be merged by addition; previews: its
-    :class:`compose.previews.PreviewTiles` (None when not asked for).
+    :class:`compose.previews.PreviewTiles` (None when not asked for); below: the core composited
+    from the layers under the ``below`` index only (None when not asked for).
     """
 
     window: Window
     rgb8: np.ndarray
     statistics: Statistics | None = None
     previews: PreviewTiles | None = None
+    below: np.ndarray | None = None
 
 
 def _to_rgb8(core: np.ndarray) -> np.ndarray:
@@ -141,12 +156,13 @@ def _to_rgb8(core: np.ndarray) -> np.ndarray:
 
 def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                   preview_factor: int | None = None,
-                  only: frozenset[int] | None = None) -> WindowResult:
+                  only: frozenset[int] | None = None, below: int | None = None) -> WindowResult:
     """Render one window: a pure function of the prepared render and the window.
 
     ``measure``: also return the window's statistics; ``preview_factor``: also return preview
     tiles on the canvas's grid of blocks of that many pixels a side; ``only``: indices of the
-    layers to draw (default all).
+    layers to draw (default all); ``below``: also return the core composited from the layers
+    under this index only (a page's raster part, :mod:`compose.page`).
     """
     canvas = prepared.canvas
     _, _, h, w = window.padded
@@ -160,7 +176,10 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     alone_tiles: list = []
     stack_tiles: list = []
     core_idx = (slice(None),) + inner
+    base = None
     for li, layer in enumerate(prepared.layers):
+        if li == below:
+            base = _to_rgb8(np.array(out[core_idx]))
         if only is not None and li not in only:
             continue
         spec = layer.spec
@@ -188,10 +207,12 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
             stack_tiles.append(block_sums(core, window.row, window.col, k))
             alone_tiles.append(None if alone is None else block_sums(
                 np.clip(alone, 0, 1, out=alone), window.row, window.col, k))
+    if below is not None and base is None:
+        base = _to_rgb8(np.array(out[core_idx]))
     rgb8 = _to_rgb8(out[core_idx])
     stats = meter.finish(rgb8) if meter is not None else None
     tiles = PreviewTiles(tuple(alone_tiles), tuple(stack_tiles)) if k else None
-    return WindowResult(window, rgb8, stats, tiles)
+    return WindowResult(window, rgb8, stats, tiles, base)
 
 
 def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: int = WINDOW,
@@ -213,16 +234,20 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
     encode = 0.0
     done = 0
     band_row = 0
-    band = None
+    band = under = None
+    below = next((s.below for s in sinks if getattr(s, "below", None) is not None), None)
 
     def task(win: Window) -> WindowResult:
-        return render_window(prepared, win, measure=measure, preview_factor=k, only=only)
+        return render_window(prepared, win, measure=measure, preview_factor=k, only=only,
+                             below=below)
 
-    def feed(row0, rows):
+    def feed(row0, rows, rows_below):
         nonlocal encode
         t = time.perf_counter()
         for sink in sinks:
             sink.rows(row0, rows)
+            if rows_below is not None and getattr(sink, "below", None) is not None:
+                sink.below_rows(row0, rows_below)
         encode += time.perf_counter() - t
 
     results: Iterator[WindowResult] = iter((mapper or map)(task, windows))
@@ -230,10 +255,14 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
         win = res.window
         if band is None or win.row != band_row:
             if band is not None:
-                feed(band_row, band)
+                feed(band_row, band, under)
             band_row = win.row
             band = np.empty((win.height, canvas.width, 3), dtype=np.uint8)
+            if below is not None:
+                under = np.empty_like(band)
         band[:, win.col:win.col + win.width] = res.rgb8
+        if under is not None and res.below is not None:
+            under[:, win.col:win.col + win.width] = res.below
         if stats is not None and res.statistics is not None:
             stats.merge(res.statistics)
         if previews is not None and res.previews is not None:
@@ -242,7 +271,7 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
         if progress is not None:
             progress(done, len(windows))
     if band is not None:
-        feed(band_row, band)
+        feed(band_row, band, under)
     prepared.seconds["encode"] = encode
     prepared.seconds["compute"] = time.perf_counter() - t0 - encode
     return stats

@@ -1,6 +1,7 @@
 """Rendering a style into files: NAME.png (sRGB), NAME.tif (RGB GeoTIFF on the canvas grid),
 NAME.legend.png, NAME.check.json, NAME.html (the self-contained review page) and, on request,
-the grey and colour-vision proofs with their contact sheet.
+the grey and colour-vision proofs with their contact sheet; NAME.pgw (the PNG's world file);
+with a ``[page]``, NAME.pdf, NAME.svg and NAME.page.png (:mod:`compose.page`).
 
 One walk over the windows (:func:`compose.engine.run`) feeds every output: the PNG and GeoTIFF
 writers, the proof writers, a box-averaged copy of the map and the per-layer previews for the
@@ -72,9 +73,13 @@ def output_paths(style, out_dir: Path, *, proofs: bool = False) -> dict[str, Pat
     files, see :func:`compose.proof.proof_paths`)."""
     out_dir = Path(out_dir)
     name = style.name
-    paths = {"png": out_dir / f"{name}.png", "tif": out_dir / f"{name}.tif",
-             "legend": out_dir / f"{name}.legend.png", "check": out_dir / f"{name}.check.json",
-             "html": out_dir / f"{name}.html"}
+    paths = {"png": out_dir / f"{name}.png", "world": out_dir / f"{name}.pgw",
+             "tif": out_dir / f"{name}.tif", "legend": out_dir / f"{name}.legend.png",
+             "check": out_dir / f"{name}.check.json", "html": out_dir / f"{name}.html"}
+    if getattr(style, "page", None) is not None:
+        from compose.page.write import page_paths
+
+        paths.update(page_paths(style, out_dir))
     if proofs:
         from compose.proof import proof_paths
 
@@ -118,6 +123,15 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             stack.callback(tif_bg.abort)
             stack.callback(png_bg.abort)
             sinks: list = [png_bg, tif_bg]
+            from compose.page.write import write_world_file
+
+            write_world_file(tmp["world"], canvas)
+            page_sink = None
+            if style.page is not None:
+                from compose.page.write import PageSink, vector_split
+
+                page_sink = PageSink(canvas, vector_split(prepared.layers))
+                sinks.append(page_sink)
             proof_sink = None
             if proofs:
                 from compose.proof import PROOFS, ProofSink
@@ -153,11 +167,21 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                             style.map.title or style.name, CAUTION)
                 seconds["proofs"] = time.perf_counter() - t
             report = None
+            layout = None
+            if page_sink is not None:
+                from compose.page.write import write_page
+
+                page_seconds, layout = write_page(style, prepared, page_sink, tmp)
+                seconds.update({f"page {k}": v for k, v in page_seconds.items()})
             if check or html:
                 from compose.check import check_style
 
                 t = time.perf_counter()
                 report = check_style(style, stats, prepared.ramps)
+                if layout is not None:
+                    from compose.page.contrast import with_furniture
+
+                    report = with_furniture(report, style, layout, page_sink.image)
                 if check:
                     with open(tmp["check"], "w", encoding="utf-8") as f:
                         json.dump(report.to_json(), f, indent=2)

@@ -69,11 +69,14 @@ class Paint:
 
 @dataclass
 class Context:
-    """What every layer kind may use while preparing: the canvas, built ramps, the style."""
+    """What every layer kind may use while preparing: the canvas, built ramps, the style, and
+    the boxes labels keep clear of."""
 
     canvas: Canvas
     ramps: dict[str, Any]
     style: Any
+    #: canvas pixel boxes (col0, row0, col1, row1) labels keep clear of (page furniture)
+    blocked: tuple = ()
 
 
 class LayerKind(Protocol):

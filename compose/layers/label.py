@@ -49,7 +49,8 @@ class LabelsLayer:
         halo_px = px(o.halo.width) if o.halo is not None else 0.0
         self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,
                                       size_px=px(o.size), font=o.font, weight=o.weight,
-                                      halo_px=halo_px, offset_px=px(o.offset))
+                                      halo_px=halo_px, offset_px=px(o.offset),
+                                      blocked=context.blocked)
         self.margin = 0  # labels are placed on the whole canvas and drawn clipped per window
 
     @property

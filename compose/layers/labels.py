@@ -113,18 +113,22 @@ def _item(item) -> LabelItem:
 
 def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, height: int,
                  size_px: float, font: str = "DejaVu Sans", weight: str = "normal",
-                 halo_px: float = 0.0, offset_px: float = 3.0) -> Placement:
+                 halo_px: float = 0.0, offset_px: float = 3.0,
+                 blocked: Iterable[tuple[float, float, float, float]] = ()) -> Placement:
     """Place point labels on the whole canvas.
 
     items: :class:`LabelItem` or tuples ``(x, y, text[, priority])`` in CRS coordinates (a NaN
     priority goes last).
 
     size_px: font size in pixels; halo_px: total halo width (the box grows by half of it on each
-    side); offset_px: distance from the point to the text box. Returns a :class:`Placement`.
+    side); offset_px: distance from the point to the text box; blocked: canvas pixel boxes
+    (col0, row0, col1, row1) no label may overlap (page furniture). Returns a :class:`Placement`.
     """
     items = [_item(it) for it in items]
     order = sorted(range(len(items)), key=lambda i: -items[i].priority)  # stable for ties
     grid = _Grid()
+    for box in blocked:
+        grid.add(tuple(float(v) for v in box))
     grow = max(float(halo_px), 0.0) / 2.0
     placed, unplaced = [], []
     xy = to_pixels(np.array([(it.x, it.y) for it in items], np.float64).reshape(-1, 2),

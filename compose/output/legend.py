@@ -30,7 +30,8 @@ from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, 
                                           _nodata_swatches, _Overlays, _ramp_of, _Ramps, _rgb,
                                           legend_layout, pretty_name)
 
-__all__ = ["write_legend", "legend_png", "legend_figure", "legend_layout", "LegendLayout", "BarBox",
+__all__ = ["write_legend", "legend_png", "legend_figure", "draw_legend", "legend_layout",
+           "LegendLayout", "BarBox",
            "pretty_name", "DPI", "WIDTH"]
 
 
@@ -144,11 +145,12 @@ def _draw_classes(ax, b: _Classes, y: float) -> None:
     _draw_swatches(ax, _nodata_swatches([b.layer]), indent, yy + 0.04)
 
 
-def _draw_overlays(ax, b: _Overlays, y: float) -> None:
+def _draw_overlays(ax, b: _Overlays, y: float, width: float = WIDTH,
+                   key_patch=KEY_PATCH) -> None:
     from matplotlib.patches import Rectangle
     from matplotlib.patheffects import withStroke
 
-    ax.plot([MARGIN, WIDTH - MARGIN], [y - GAP / 2, y - GAP / 2], color=RULE, lw=0.5)
+    ax.plot([MARGIN, width - MARGIN], [y - GAP / 2, y - GAP / 2], color=RULE, lw=0.5)
     for i, layer in enumerate(b.layers):
         o = layer.spec.options
         kind = layer.spec.kind
@@ -156,7 +158,7 @@ def _draw_overlays(ax, b: _Overlays, y: float) -> None:
         sx0, sx1 = MARGIN + 0.02, MARGIN + 0.46
         alpha = float(layer.spec.opacity)
         # samples sit on a mid-light neutral key patch, so light halos and rings show as on a map
-        ax.add_patch(Rectangle((MARGIN - 0.02, cy - 0.085), 0.52, 0.17, facecolor=KEY_PATCH,
+        ax.add_patch(Rectangle((MARGIN - 0.02, cy - 0.085), 0.52, 0.17, facecolor=key_patch,
                                edgecolor="none", zorder=0))
         if kind == "lines":
             if o.halo is not None:
@@ -191,13 +193,10 @@ def _draw_overlays(ax, b: _Overlays, y: float) -> None:
                 va="center")
 
 
-def legend_figure(style, ramps, layers):
-    """The legend as a matplotlib Figure (and its :class:`LegendLayout`)."""
-    from matplotlib.figure import Figure
-
-    layout = legend_layout(style, ramps, layers)
-    fig = Figure(figsize=(layout.width, layout.height), dpi=DPI, facecolor=PAPER)
-    ax = fig.add_axes((0, 0, 1, 1))
+def draw_legend(ax, layout: LegendLayout, key_patch=KEY_PATCH) -> None:
+    """Draw the legend of ``layout`` into ``ax``, whose data coordinates must be inches from the
+    legend's top-left corner (x right, y down) over ``layout.width`` x ``layout.height``.
+    ``key_patch``: the colour behind overlay samples."""
     ax.set_axis_off()
     ax.set_autoscale_on(False)
     y = TOP
@@ -208,12 +207,22 @@ def legend_figure(style, ramps, layers):
         elif isinstance(b, _Classes):
             _draw_classes(ax, b, y)
         else:
-            _draw_overlays(ax, b, y)
+            _draw_overlays(ax, b, y, layout.width, key_patch)
         y += b.height + GAP
     if not layout.blocks:
         ax.text(MARGIN, TOP + 0.15, "no legend entries", fontsize=FONT, color=MUTED, va="center")
     ax.set_xlim(0, layout.width)
     ax.set_ylim(layout.height, 0)
+
+
+def legend_figure(style, ramps, layers):
+    """The legend as a matplotlib Figure (and its :class:`LegendLayout`)."""
+    from matplotlib.figure import Figure
+
+    layout = legend_layout(style, ramps, layers)
+    fig = Figure(figsize=(layout.width, layout.height), dpi=DPI, facecolor=PAPER)
+    ax = fig.add_axes((0, 0, 1, 1))
+    draw_legend(ax, layout)
     return fig, layout
 
 

@@ -216,12 +216,12 @@ def _blocks(layers) -> list:
     return blocks
 
 
-def _bar_geometry(block: _Ramps) -> tuple[float, float, float]:
+def _bar_geometry(block: _Ramps, width: float = WIDTH) -> tuple[float, float, float]:
     """(left of the bar labels column, x0, x1) of a colour-bar block, inches."""
-    width = max((len(t) for t in block.labels), default=0)
-    label_w = 0.0 if width == 0 else min(1.3, 0.14 + 0.068 * width)
+    chars = max((len(t) for t in block.labels), default=0)
+    label_w = 0.0 if chars == 0 else min(1.3, 0.14 + 0.068 * chars)
     x0 = MARGIN + label_w + END
-    x1 = WIDTH - MARGIN - END
+    x1 = width - MARGIN - END
     return MARGIN, x0, x1
 
 
@@ -246,8 +246,9 @@ def _shared_scale(block: _Ramps, x0, x1) -> tuple[np.ndarray, np.ndarray]:
     return np.array([lo, hi]), np.array([x0, x1])
 
 
-def legend_layout(style, ramps, layers) -> LegendLayout:
-    """The legend's size and bar boxes (see :class:`LegendLayout`) without drawing it."""
+def legend_layout(style, ramps, layers, width: float = WIDTH) -> LegendLayout:
+    """The legend's size and bar boxes (see :class:`LegendLayout`) without drawing it;
+    ``width`` in inches (a page's panel gives its own)."""
     blocks = _blocks(layers)
     height = TOP + sum(b.height for b in blocks) + GAP * max(0, len(blocks) - 1) + BOTTOM
     if not blocks:
@@ -256,7 +257,7 @@ def legend_layout(style, ramps, layers) -> LegendLayout:
     y = TOP
     for b in blocks:
         if isinstance(b, _Ramps):
-            _, x0, x1 = _bar_geometry(b)
+            _, x0, x1 = _bar_geometry(b, width)
             values, xs = _shared_scale(b, x0, x1)
             marks = _marks(_ramp_of(b.layers[0]))
             top = y + TITLE_H + (MARK_H if marks else 0.04)
@@ -266,4 +267,4 @@ def legend_layout(style, ramps, layers) -> LegendLayout:
                                    tuple(float(v) for v in values),
                                    tuple(float(x) * DPI for x in xs)))
         y += b.height + GAP
-    return LegendLayout(WIDTH, height, DPI, tuple(bars), tuple(blocks))
+    return LegendLayout(width, height, DPI, tuple(bars), tuple(blocks))

@@ -28,7 +28,7 @@ from compose.style.validate import (Scope, as_table, boolean, build_from_table, 
 __all__ = ["load_style", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
 
 #: Keys allowed at the top level of a style file.
-TOP_KEYS = ("extends", "map", "budget", "ramp", "layer", "waive")
+TOP_KEYS = ("extends", "map", "page", "budget", "ramp", "layer", "waive")
 #: Keys of one ``[[waive]]`` table.
 WAIVE_KEYS = ("rule", "layer", "reason")
 #: Keys every layer may state, whatever its kind.
@@ -134,6 +134,9 @@ def _prepare(data: dict, folder: Path) -> None:
         _path_string(data["extends"], top.at("extends"))
     if "map" in data:
         check_keys(as_table(data["map"], top.at("map")), option_keys(MapSpec), top.at("map"))
+    if "page" in data:
+        from compose.page.spec import PageSpec
+        check_keys(as_table(data["page"], top.at("page")), option_keys(PageSpec), top.at("page"))
     if "budget" in data:
         budget = as_table(data["budget"], top.at("budget"))
         check_keys(budget, BUDGET_TABLES, top.at("budget"))
@@ -231,6 +234,8 @@ def _merge(files: list[_File]) -> tuple[dict, dict[str, Path]]:
         d = f.data
         if "map" in d:
             merged.setdefault("map", {}).update(d["map"])
+        if "page" in d:
+            merged.setdefault("page", {}).update(d["page"])
         for role, table in d.get("budget", {}).items():
             merged["budget"].setdefault(role, {}).update(table)
         for name, table in d.get("ramp", {}).items():
@@ -297,6 +302,10 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
                          "(or map.like = \"a raster layer's name\")")
     else:
         spec = None
+    page = None
+    if "page" in merged:
+        from compose.page.spec import parse_page
+        page = parse_page(merged["page"])
     stated = frozenset(f"{t}.{k}" for t, table in merged["budget"].items() for k in table)
     budgets = build_from_table(Budgets, merged["budget"], Scope("", ("budget",)), stated=stated)
     own = {name: RampTable(name, freeze(table), origin[name], origin[name].parent)
@@ -329,7 +338,7 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
     name = spec.name if spec is not None and spec.name else top.path.stem
     return Style(path=top.path, name=name, map=spec, budgets=budgets, ramps=ramps,
                  layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files),
-                 waivers=_waivers(merged["waive"], layers))
+                 waivers=_waivers(merged["waive"], layers), page=page)
 
 
 def _waivers(tables: list[dict], layers: list[LayerSpec]) -> tuple[Waiver, ...]:

@@ -253,6 +253,7 @@ class Style:
     path: the style file; name: the output stem (``map.name`` or the file stem); ramps by name in
     order of first appearance; layers lowest first; text: the raw text of the style file itself;
     chain: the files merged through ``extends``, the deepest base first, ending with ``path``.
+    page: the ``[page]`` table (:class:`compose.page.spec.PageSpec`) or None.
     """
 
     path: Path
@@ -264,13 +265,21 @@ class Style:
     text: str
     chain: tuple[Path, ...]
     waivers: tuple[Waiver, ...] = ()
+    page: Any = None
 
     def canvas(self) -> Canvas:
-        """The output grid of ``[map]`` (see :func:`compose.style.grid.plan_canvas`)."""
+        """The output grid of ``[map]`` (see :func:`compose.style.grid.plan_canvas`); with a
+        ``[page]``, the grid filling its map frame (:func:`compose.page.layout.style_canvas`)."""
         return self.canvas_plan().canvas
 
     def canvas_plan(self):
         """The output grid and notes on how it was derived or rounded
         (:class:`compose.style.grid.CanvasPlan`)."""
         from compose.style.grid import plan_canvas
-        return plan_canvas(self)
+        plan = plan_canvas(self)
+        if self.page is not None:
+            from dataclasses import replace
+
+            from compose.page.layout import style_canvas
+            return replace(plan, canvas=style_canvas(self, plan.canvas)[0])
+        return plan

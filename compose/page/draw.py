@@ -1,0 +1,241 @@
+"""The page as one matplotlib figure: map frame (raster + vectors), neat line, grid ticks, title,
+subtitle, legend, scale bar, north arrow, credits and caution, from a :class:`PageLayout`.
+
+One description, three writers (:mod:`compose.page.write`): the PDF and SVG get the raster
+layers as one embedded image at the canvas resolution with the overlays as vectors and real
+text; the page PNG gets the finished map composite (what the checker judged) with the same
+furniture. The figure's size is the paper's, so points are points on paper.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from compose.page.geometry import grid_lines
+from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
+from compose.page.contrast import GRID_ALPHA
+from compose.page.vectors import emit_layer
+
+__all__ = ["page_figure", "format_coordinate", "FONT"]
+
+FONT = "DejaVu Sans"
+_IN = 25.4
+
+
+def _rgb(c) -> tuple[float, float, float]:
+    return tuple(float(np.clip(v, 0, 1)) for v in c)
+
+
+def format_coordinate(value: float, axis: str, geographic: bool, step: float) -> str:
+    """A grid label: degrees (and minutes when the step is under a degree) with a hemisphere,
+    or projected units with thin-space thousands groups."""
+    if geographic:
+        hemi = ("E" if value >= 0 else "W") if axis == "x" else ("N" if value >= 0 else "S")
+        v = abs(value)
+        d = int(math.floor(v + 1e-9))
+        m = (v - d) * 60
+        if step < 1 or abs(m) > 1e-6:
+            return f"{d}\u00b0{round(m):02d}\u2032{hemi}"
+        return f"{d}\u00b0{hemi}"
+    text = f"{value:,.0f}" if abs(step) >= 1 else f"{value:,.2f}"
+    return text.replace(",", "\u2009").replace("-", "\u2212")
+
+
+def _frame_crossings(pts_mm: np.ndarray, edge: float, along: int) -> list[float]:
+    """Positions along the other axis where a polyline crosses ``coord[along] == edge``."""
+    v = pts_mm[:, along] - edge
+    out = []
+    for i in np.flatnonzero(v[:-1] * v[1:] <= 0):
+        a, b = v[i], v[i + 1]
+        t = 0.5 if a == b else a / (a - b)
+        out.append(float(pts_mm[i, 1 - along] + t * (pts_mm[i + 1, 1 - along] - pts_mm[i, 1 - along])))
+    return out
+
+
+class _Page:
+    """Draws furniture into a full-page axes in mm (y down)."""
+
+    def __init__(self, fig, layout: PageLayout, page):
+        W, H = layout.size
+        self.fig, self.layout, self.page = fig, layout, page
+        self.ink = _rgb(page.ink)
+        self.paper = _rgb(page.color)
+        ax = fig.add_axes((0, 0, 1, 1), zorder=2)
+        ax.set_axis_off()
+        ax.set_xlim(0, W)
+        ax.set_ylim(H, 0)
+        ax.patch.set_visible(False)
+        self.ax = ax
+
+    def axes_at(self, box, zorder=3):
+        W, H = self.layout.size
+        x, y, w, h = box
+        return self.fig.add_axes((x / W, 1 - (y + h) / H, w / W, h / H), zorder=zorder)
+
+    def text(self, x, y, s, size, **kw):
+        kw.setdefault("color", self.ink)
+        return self.ax.text(x, y, s, fontsize=size, family=FONT, **kw)
+
+    def paper_box(self, box):
+        from matplotlib.patches import Rectangle
+        x, y, w, h = box
+        self.ax.add_patch(Rectangle((x, y), w, h, facecolor=self.paper, edgecolor=self.ink,
+                                    lw=0.4, zorder=1))
+
+    # --- pieces -------------------------------------------------------------------------------
+
+    def bands(self):
+        texts = {"title": (self.layout.title, TITLE_PT, dict(weight="bold")),
+                 "subtitle": (self.page.subtitle, SUBTITLE_PT, {}),
+                 "credits": (self.page.credits, NOTE_PT, {}),
+                 "caution": (self.page.caution, NOTE_PT, dict(style="italic"))}
+        for piece in self.layout.pieces:
+            if piece.kind in texts:
+                s, size, kw = texts[piece.kind]
+                x, y, w, h = piece.box
+                self.text(x, y + h * 0.5, s, size, va="center", ha="left", **kw)
+
+    def neatline(self):
+        from matplotlib.patches import Rectangle
+        fx, fy, fw, fh = self.layout.frame
+        self.ax.add_patch(Rectangle((fx, fy), fw, fh, fill=False, edgecolor=self.ink, lw=0.6,
+                                    joinstyle="miter", zorder=2))
+
+    def scalebar(self, piece):
+        from matplotlib.patches import Rectangle
+        bar = self.layout.scalebar
+        x, y, w, h = piece.box
+        if piece.inside:
+            self.paper_box(piece.box)
+            x, y = x + PAD, y + PAD
+        x0 = x + 1.5
+        top = y + 4.2
+        seg = bar.length_mm / bar.segments
+        for i in range(bar.segments):
+            self.ax.add_patch(Rectangle((x0 + i * seg, top), seg, 1.4,
+                                        facecolor=self.ink if i % 2 == 0 else self.paper,
+                                        edgecolor=self.ink, lw=0.4, zorder=3))
+        step = bar.length / bar.segments
+        marks = [0, bar.segments] if bar.segments % 2 else [0, bar.segments // 2, bar.segments]
+        for i in marks:
+            v = step * i
+            label = f"{v:g}" + (f" {bar.unit}" if i == bar.segments else "")
+            self.text(x0 + i * seg, top - 0.8, label.replace("-", "\u2212"), 6.5,
+                      ha="center" if i < bar.segments else "left", va="bottom", zorder=3)
+        lines = []
+        if self.page.scale is not None:
+            lines.append(f"Scale 1:{self.page.scale:,.0f}".replace(",", "\u2009"))
+        if bar.note:
+            lines.append(f"Scale {bar.note}")
+        for k, s in enumerate(lines):
+            self.text(x0, top + 3.0 + k * 2.8, s, 6.0, ha="left", va="top", zorder=3)
+
+    def north(self, piece):
+        from matplotlib.patches import Polygon
+        x, y, w, h = piece.box
+        if piece.inside:
+            self.paper_box(piece.box)
+        cx, cy = x + w / 2, y + h / 2 + 1.5
+        a = math.radians(self.layout.north)
+        ux, uy = math.sin(a), -math.cos(a)          # true north in mm, y down
+        px, py = -uy, ux                            # perpendicular
+        L, half = 4.6, 1.7
+        tip = (cx + ux * L, cy + uy * L)
+        left = (cx + px * half - ux * L * 0.9, cy + py * half - uy * L * 0.9)
+        right = (cx - px * half - ux * L * 0.9, cy - py * half - uy * L * 0.9)
+        notch = (cx - ux * L * 0.55, cy - uy * L * 0.55)
+        self.ax.add_patch(Polygon([tip, left, notch], closed=True, facecolor=self.ink,
+                                  edgecolor=self.ink, lw=0.4, zorder=3))
+        self.ax.add_patch(Polygon([tip, notch, right], closed=True, facecolor=self.paper,
+                                  edgecolor=self.ink, lw=0.4, zorder=3))
+        self.text(cx + ux * (L + 2.2), cy + uy * (L + 2.2), "N", 7.5, ha="center", va="center",
+                  weight="bold", rotation=-self.layout.north, zorder=3)
+
+    def legend(self, piece, legend_layout, key_patch):
+        from compose.output.legend import draw_legend
+        box = piece.box
+        if piece.inside:
+            self.paper_box(box)
+            box = (box[0] + PAD, box[1] + PAD, box[2] - 2 * PAD, box[3] - 2 * PAD)
+        ax = self.axes_at(box)
+        ax.patch.set_visible(False)
+        draw_legend(ax, legend_layout, key_patch=key_patch)
+
+    def grid(self, canvas):
+        from pyproj import CRS
+        g = self.page.grid
+        fx, fy, fw, fh = self.layout.frame
+        sx, sy = fw / canvas.width, fh / canvas.height
+        geographic = CRS.from_user_input(g.crs or canvas.crs).is_geographic
+        tick = 1.4
+        for axis, value, pts in grid_lines(canvas, g.crs, g.step):
+            mm = np.column_stack([fx + pts[:, 0] * sx, fy + pts[:, 1] * sy])
+            label = format_coordinate(value, axis, geographic, g.step)
+            if g.lines:
+                from matplotlib.patches import Rectangle
+                line, = self.ax.plot(mm[:, 0], mm[:, 1], color=self.ink, lw=0.3, alpha=GRID_ALPHA,
+                                     zorder=1.5)
+                line.set_clip_path(Rectangle((fx, fy), fw, fh, transform=self.ax.transData))
+            if axis == "x":
+                for edge, sign in ((fy, -1), (fy + fh, 1)):
+                    for xc in _frame_crossings(mm, edge, 1):
+                        if fx - 1e-6 <= xc <= fx + fw + 1e-6:
+                            self.ax.plot([xc, xc], [edge, edge + sign * tick], color=self.ink,
+                                         lw=0.4, zorder=2)
+                            self.text(xc, edge + sign * (tick + 0.4), label, 5.5, ha="center",
+                                      va="bottom" if sign < 0 else "top")
+            else:
+                for edge, sign in ((fx, -1), (fx + fw, 1)):
+                    for yc in _frame_crossings(mm, edge, 0):
+                        if fy - 1e-6 <= yc <= fy + fh + 1e-6:
+                            self.ax.plot([edge, edge + sign * tick], [yc, yc], color=self.ink,
+                                         lw=0.4, zorder=2)
+                            self.text(edge + sign * (tick + 0.5), yc, label, 5.5,
+                                      ha="center", va="bottom" if sign < 0 else "top",
+                                      rotation=90, rotation_mode="anchor")
+
+
+def page_figure(style, layout: PageLayout, image: np.ndarray, *, layers=(),
+                legend_layout=None):
+    """The page as a matplotlib Figure.
+
+    image: (H, W, 3) uint8 of the canvas drawn in the frame; layers: prepared overlay layers
+    (``RenderRun.layers``) re-emitted as vectors on top of it (empty for the PNG, whose image
+    already holds them); legend_layout: from :func:`compose.output.legend.legend_layout` at the
+    page's legend width, or None.
+    """
+    from matplotlib.figure import Figure
+    from matplotlib.patches import Rectangle
+
+    page = style.page
+    W, H = layout.size
+    canvas = layout.canvas
+    fig = Figure(figsize=(W / _IN, H / _IN), facecolor=_rgb(page.color))
+    fx, fy, fw, fh = layout.frame
+    ma = fig.add_axes((fx / W, 1 - (fy + fh) / H, fw / W, fh / H), zorder=1)
+    ma.set_axis_off()
+    ma.set_xlim(0, canvas.width)
+    ma.set_ylim(canvas.height, 0)
+    ma.set_autoscale_on(False)
+    ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
+              resample=False, aspect="auto", zorder=0)
+    clip = Rectangle((0, 0), canvas.width, canvas.height, transform=ma.transData)
+    for i, layer in enumerate(layers):
+        for artist in emit_layer(ma, layer, canvas.transform, 1.0 + i):
+            artist.set_clip_path(clip)
+    p = _Page(fig, layout, page)
+    p.bands()
+    if page.neatline:
+        p.neatline()
+    if page.grid is not None:
+        p.grid(canvas)
+    for piece in layout.pieces:
+        if piece.kind == "scalebar":
+            p.scalebar(piece)
+        elif piece.kind == "north":
+            p.north(piece)
+        elif piece.kind == "legend" and legend_layout is not None:
+            p.legend(piece, legend_layout, _rgb(style.map.background))
+    return fig
+

@@ -1,0 +1,197 @@
+"""The page layout: one deterministic arrangement of the map frame and its furniture, in mm.
+
+Bands and blocks, each sized from its content (common practice, no source):
+
+* a top band with the title and subtitle, a bottom band with the credits and caution lines;
+* the map frame, with room around it for grid labels when the page has a grid;
+* a side panel (``page.panel``, right or left, :data:`PANEL_WIDTH` wide) stacking the legend at
+  the top and the scale bar and north arrow at the bottom;
+* or, for a piece placed in a corner, a paper-coloured box inside the frame's corner (pieces in
+  the same corner stack inward); labels keep clear of these boxes (:func:`blocked_pixels`).
+
+Nothing overlaps: a legend taller than the room left in the panel is an error naming the key.
+Coordinates: mm from the sheet's top-left corner, y down; a :data:`Box` is (x, y, w, h).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from compose.errors import StyleError
+from compose.page.geometry import MM_PER_INCH, ScaleBar, north_angle, page_canvas, scale_bar
+
+__all__ = ["Box", "Piece", "PageLayout", "PANEL_WIDTH", "GAP", "TITLE_PT", "SUBTITLE_PT",
+           "NOTE_PT", "page_room", "page_layout", "blocked_pixels", "PT_MM"]
+
+Box = tuple[float, float, float, float]
+PT_MM = MM_PER_INCH / 72.0          # 1 point in mm
+PANEL_WIDTH = 70.0                  # mm
+GAP = 6.0                           # mm between the frame and the panel or bands
+INSET = 3.0                         # mm from the neat line to a corner box
+PAD = 1.5                           # mm inside a corner box
+TITLE_PT, SUBTITLE_PT, NOTE_PT = 15.0, 9.5, 6.5
+LINE = 1.3                          # line height / font size
+SCALEBAR_H, NORTH_W, NORTH_H = 11.0, 10.0, 15.0   # mm
+GRID_ROOM = 5.0                     # mm around the frame for grid labels
+
+
+@dataclass(frozen=True, slots=True)
+class Piece:
+    """One placed piece of furniture: ``kind`` (title, subtitle, legend, scalebar, north,
+    credits, caution), its box and whether it sits inside the frame (on a paper box)."""
+
+    kind: str
+    box: Box
+    inside: bool = False
+
+
+@dataclass(frozen=True, slots=True)
+class PageLayout:
+    """Where everything goes. ``size`` (w, h) mm; ``frame`` the map frame's box; ``canvas`` the
+    canvas whose pixels fill the frame exactly; ``pieces`` the furniture; ``scalebar`` and
+    ``north`` (degrees clockwise from grid up) their content."""
+
+    size: tuple[float, float]
+    frame: Box
+    canvas: object
+    pieces: tuple[Piece, ...]
+    scalebar: ScaleBar | None = None
+    north: float | None = None
+    title: str = ""
+    boxes: dict = field(default_factory=dict)
+
+    def piece(self, kind: str) -> Piece | None:
+        return next((p for p in self.pieces if p.kind == kind), None)
+
+
+def _uses_panel(page, legend: bool) -> bool:
+    return ((legend and page.legend == "panel") or page.north == "panel"
+            or page.scalebar.place == "panel")
+
+
+def _bands(page, title: str) -> tuple[float, float]:
+    """Heights (mm) of the top band (title, subtitle) and the bottom band (credits, caution)."""
+    top = (TITLE_PT * LINE * PT_MM if title else 0.0) + \
+          (SUBTITLE_PT * LINE * PT_MM if page.subtitle else 0.0)
+    bottom = sum(NOTE_PT * LINE * PT_MM for t in (page.credits, page.caution) if t)
+    return top, bottom
+
+
+def page_room(style) -> tuple[Box, float, float]:
+    """(room for the frame (x, y, w, h) mm, top band, bottom band) of ``style``'s page."""
+    page = style.page
+    W, H = page.size
+    t, r, b, left = page.margin
+    title = page.title if page.title is not None else (style.map.title or "")
+    top, bottom = _bands(page, title)
+    x, y = left, t + (top + GAP * 0.6 if top else 0.0)
+    w = W - left - r
+    h = H - y - b - (bottom + GAP * 0.6 if bottom else 0.0)
+    if _uses_panel(page, True):
+        w -= PANEL_WIDTH + GAP
+        if page.panel == "left":
+            x += PANEL_WIDTH + GAP
+    if page.grid is not None:
+        x, y, w, h = x + GRID_ROOM, y + GRID_ROOM, w - 2 * GRID_ROOM, h - 2 * GRID_ROOM
+    if w < 20 or h < 20:
+        raise StyleError(f"page: the margins and furniture leave {max(w, 0):.0f} x {max(h, 0):.0f} mm"
+                         " for the map; use a larger paper or smaller margins")
+    return (x, y, w, h), top, bottom
+
+
+def style_canvas(style, base=None):
+    """The canvas and frame box of ``style``'s page (used by ``Style.canvas``). ``base``: the
+    canvas ``[map]`` alone gives (default :func:`compose.style.grid.plan_canvas`'s): its CRS,
+    extent, pixel and dpi are what the page starts from."""
+    from types import SimpleNamespace
+
+    if base is None:
+        from compose.style.grid import plan_canvas
+        base = plan_canvas(style).canvas
+    grid = SimpleNamespace(crs=base.crs, extent=base.bounds, pixel=base.pixel, dpi=base.dpi)
+    room, _, _ = page_room(style)
+    canvas, frame = page_canvas(grid, style.page.frame, room[2:], style.page.scale)
+    return canvas, (room[0], room[1], frame[0], frame[1])
+
+
+def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLayout:
+    """Lay out ``style``'s page. ``legend_size``: (w, h) mm of the legend (None: no legend)."""
+    page = style.page
+    W, H = page.size
+    t, r, b, left = page.margin
+    title = page.title if page.title is not None else (style.map.title or "")
+    (rx, ry, rw, rh), top, bottom = page_room(style)
+    canvas, frame = style_canvas(style)
+    fx, fy, fw, fh = frame
+    pieces: list[Piece] = []
+    y = t
+    if title:
+        pieces.append(Piece("title", (left, y, W - left - r, TITLE_PT * LINE * PT_MM)))
+        y += TITLE_PT * LINE * PT_MM
+    if page.subtitle:
+        pieces.append(Piece("subtitle", (left, y, W - left - r, SUBTITLE_PT * LINE * PT_MM)))
+    y = H - b - bottom
+    for kind in ("credits", "caution"):
+        text = getattr(page, kind)
+        if text:
+            pieces.append(Piece(kind, (left, y, W - left - r, NOTE_PT * LINE * PT_MM)))
+            y += NOTE_PT * LINE * PT_MM
+    grid = GRID_ROOM if page.grid is not None else 0.0
+    if page.panel == "right":
+        px = fx + fw + grid + GAP
+    else:
+        px = left
+    panel_top, panel_bottom = fy - grid, fy + fh + grid
+    bar = scale_bar(canvas, fw, PANEL_WIDTH - NORTH_W - 8.0 if page.scalebar.place == "panel"
+                    else 35.0, page.scalebar.units) if page.scalebar.place != "off" else None
+    north = north_angle(canvas) if page.north != "off" else None
+    sizes = {"legend": legend_size if page.legend != "off" else None,
+             "scalebar": (bar.length_mm + 8.0, SCALEBAR_H + (3.0 if bar and bar.note else 0.0))
+             if bar else None,
+             "north": (NORTH_W, NORTH_H) if north is not None else None}
+    places = {"legend": page.legend, "scalebar": page.scalebar.place, "north": page.north}
+    # the panel: legend from the top, scale bar (left) and north arrow (right) at the bottom
+    bottom_row = max([sizes[k][1] for k in ("scalebar", "north")
+                      if sizes[k] is not None and places[k] == "panel"] + [0.0])
+    if sizes["legend"] is not None and places["legend"] == "panel":
+        lw, lh = sizes["legend"]
+        room = panel_bottom - panel_top - (bottom_row + GAP if bottom_row else 0.0)
+        if lh > room + 0.01:
+            raise StyleError(f"page.legend: the legend is {lh:.0f} mm tall but the panel has "
+                             f"{room:.0f} mm; place it in a corner, use a larger paper or a "
+                             f"landscape orientation")
+        pieces.append(Piece("legend", (px, panel_top, lw, lh)))
+    if sizes["scalebar"] is not None and places["scalebar"] == "panel":
+        sw, sh = sizes["scalebar"]
+        pieces.append(Piece("scalebar", (px, panel_bottom - sh, sw, sh)))
+    if sizes["north"] is not None and places["north"] == "panel":
+        nw, nh = sizes["north"]
+        pieces.append(Piece("north", (px + PANEL_WIDTH - nw, panel_bottom - nh, nw, nh)))
+    # corners inside the frame: stacked inward from the corner
+    stack = {c: 0.0 for c in ("top left", "top right", "bottom left", "bottom right")}
+    for kind in ("legend", "scalebar", "north"):
+        place, size = places[kind], sizes[kind]
+        if size is None or place in ("panel", "off"):
+            continue
+        w, h = size[0] + 2 * PAD, size[1] + 2 * PAD
+        x = fx + INSET if "left" in place else fx + fw - INSET - w
+        if place.startswith("top"):
+            yy = fy + INSET + stack[place]
+        else:
+            yy = fy + fh - INSET - stack[place] - h
+        stack[place] += h + 2.0
+        if w > fw - 2 * INSET or stack[place] > fh - 2 * INSET:
+            raise StyleError(f"page.{kind}: does not fit inside the map frame at {place!r}")
+        pieces.append(Piece(kind, (x, yy, w, h), inside=True))
+    return PageLayout((W, H), frame, canvas, tuple(pieces), bar, north, title)
+
+
+def blocked_pixels(layout: PageLayout) -> list[tuple[float, float, float, float]]:
+    """Canvas pixel boxes (col0, row0, col1, row1) of the pieces inside the map frame."""
+    fx, fy, fw, fh = layout.frame
+    sx, sy = layout.canvas.width / fw, layout.canvas.height / fh
+    out = []
+    for p in layout.pieces:
+        if p.inside:
+            x, y, w, h = p.box
+            out.append(((x - fx) * sx, (y - fy) * sy, (x + w - fx) * sx, (y + h - fy) * sy))
+    return out

@@ -1,0 +1,135 @@
+"""Writing the page: a sink of the render walk that keeps the map (and its raster part), then
+NAME.pdf, NAME.svg and NAME.page.png from one figure (:mod:`compose.page.draw`), and the world
+file beside the map PNG.
+
+The PDF and SVG keep text as text (TrueType fonts embedded in the PDF, so it is searchable;
+``<text>`` elements in the SVG) and are at the paper's physical size.
+"""
+from __future__ import annotations
+
+import time
+from pathlib import Path
+from types import SimpleNamespace
+
+import numpy as np
+
+from compose.page.layout import PageLayout, blocked_pixels, page_layout
+from compose.page.vectors import is_vector
+
+__all__ = ["PageSink", "vector_split", "legend_for_page", "write_page", "world_file_text",
+           "write_world_file", "page_paths", "blocked_for", "RC"]
+
+#: matplotlib settings of the vector writers: text stays text.
+RC = {"pdf.fonttype": 42, "svg.fonttype": "none", "lines.scale_dashes": False,
+      "path.simplify": False}
+
+
+def vector_split(layers) -> int:
+    """Index of the first layer of the top run of vector layers: the layers under it form the
+    page's raster image, the ones from it up are re-emitted as vectors. A vector layer with a
+    raster layer above it stays in the raster, so the stacking order is kept."""
+    k = len(layers)
+    while k > 0 and is_vector(layers[k - 1].spec.kind):
+        k -= 1
+    return k
+
+
+class PageSink:
+    """Keeps the whole map (``image``) and its raster part (``base``, layers under ``below``)."""
+
+    def __init__(self, canvas, below: int):
+        self.below = int(below)
+        self.image = np.zeros((canvas.height, canvas.width, 3), dtype=np.uint8)
+        self.base = np.zeros_like(self.image)
+
+    def rows(self, row0: int, rgb8: np.ndarray) -> None:
+        self.image[row0:row0 + rgb8.shape[0]] = rgb8
+
+    def below_rows(self, row0: int, rgb8: np.ndarray) -> None:
+        self.base[row0:row0 + rgb8.shape[0]] = rgb8
+
+
+def page_paths(style, out_dir: Path) -> dict[str, Path]:
+    """NAME.pdf, NAME.svg and NAME.page.png in ``out_dir``."""
+    out_dir = Path(out_dir)
+    return {"pdf": out_dir / f"{style.name}.pdf", "svg": out_dir / f"{style.name}.svg",
+            "page": out_dir / f"{style.name}.page.png"}
+
+
+def _legend_width_in() -> float:
+    from compose.page.layout import PANEL_WIDTH
+    return PANEL_WIDTH / 25.4
+
+
+def legend_for_page(style, ramps, layers):
+    """The legend's layout at the page's legend width, or None when the page has no legend."""
+    if style.page.legend == "off":
+        return None
+    from compose.output.legend import legend_layout
+    return legend_layout(style, ramps, layers, width=_legend_width_in())
+
+
+def _layout(style, legend) -> PageLayout:
+    size = (legend.width * 25.4, legend.height * 25.4) if legend is not None else None
+    return page_layout(style, size)
+
+
+def blocked_for(style, ramps, layers) -> list[tuple[float, float, float, float]]:
+    """Canvas pixel boxes labels must keep clear of: the furniture inside the map frame.
+    ``layers``: prepared layers, or stand-ins with a ``spec`` for those not prepared yet."""
+    if style.page is None:
+        return []
+    inside = [style.page.legend, style.page.north, style.page.scalebar.place]
+    if all(p in ("panel", "off") for p in inside):
+        return []
+    return blocked_pixels(_layout(style, legend_for_page(style, ramps, layers)))
+
+
+def stand_in(spec):
+    """A placeholder for a layer not prepared yet (the legend only needs its spec)."""
+    return SimpleNamespace(spec=spec)
+
+
+def write_page(style, run_, sink: PageSink, tmp: dict[str, Path]
+               ) -> tuple[dict[str, float], PageLayout]:
+    """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
+    returns (seconds per output, the layout)."""
+    from matplotlib import rc_context
+
+    from compose.page.draw import page_figure
+
+    legend = legend_for_page(style, run_.ramps, run_.layers)
+    layout = _layout(style, legend)
+    seconds = {}
+    meta_title = layout.title or style.name
+    vectors = run_.layers[sink.below:]
+    with rc_context(RC):
+        t = time.perf_counter()
+        fig = page_figure(style, layout, sink.base, layers=vectors, legend_layout=legend)
+        fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
+                    metadata={"Title": meta_title, "Subject": style.page.caution,
+                              "Creator": "compose"})
+        seconds["pdf"] = time.perf_counter() - t
+        t = time.perf_counter()
+        fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
+                    metadata={"Title": meta_title, "Description": style.page.caution})
+        seconds["svg"] = time.perf_counter() - t
+        t = time.perf_counter()
+        fig = page_figure(style, layout, sink.image, legend_layout=legend)
+        fig.savefig(tmp["page"], format="png", dpi=run_.canvas.dpi, facecolor=fig.get_facecolor())
+        seconds["page.png"] = time.perf_counter() - t
+    return seconds, layout
+
+
+def world_file_text(canvas) -> str:
+    """The six lines of a world file for the canvas's PNG: pixel size in x, rotation terms,
+    pixel size in y (negative, north-up), and the CRS coordinates of the centre of the
+    upper-left pixel."""
+    t = canvas.transform
+    cx, cy = t.c + 0.5 * t.a + 0.5 * t.b, t.f + 0.5 * t.d + 0.5 * t.e
+    return "\n".join(f"{v:.10f}".rstrip("0").rstrip(".") if v else "0"
+                     for v in (t.a, t.d, t.b, t.e, cx, cy)) + "\n"
+
+
+def write_world_file(path: Path, canvas) -> None:
+    Path(path).write_text(world_file_text(canvas), encoding="ascii")

@@ -1,0 +1,115 @@
+"""Scale bar and north arrow against pyproj's geodesy; the print-scale canvas; grid lines."""
+from __future__ import annotations
+
+import math
+from types import SimpleNamespace
+
+import pytest
+from pyproj import Geod, Proj, Transformer
+
+from compose.canvas import Canvas
+from compose.errors import StyleError
+from compose.page.geometry import (grid_lines, nice_length, north_angle, page_canvas, scale_bar)
+
+
+def _utm_canvas(lon: float, lat: float, half: float = 20000.0, pixel: float = 50.0) -> Canvas:
+    x, y = Transformer.from_crs("EPSG:4326", "EPSG:32630", always_xy=True).transform(lon, lat)
+    return Canvas.from_extent("EPSG:32630", (x - half, y - half, x + half, y + half), pixel)
+
+
+def _bar_ground_metres(canvas: Canvas, frame_mm: float, bar_mm: float) -> float:
+    """Geodesic length (WGS 84, pyproj Geod) of ``bar_mm`` of paper laid east-west through the
+    map centre, computed here independently of compose."""
+    west, south, east, north = canvas.bounds
+    units = bar_mm * (east - west) / frame_mm
+    cx, cy = (west + east) / 2, (south + north) / 2
+    to_ll = Transformer.from_crs(canvas.crs, "EPSG:4326", always_xy=True)
+    lon, lat = to_ll.transform([cx - units / 2, cx + units / 2], [cy, cy])
+    return Geod(ellps="WGS84").inv(lon[0], lat[0], lon[1], lat[1])[2]
+
+
+@pytest.mark.parametrize("lon,lat", [(1.5, 50.0), (-3.0, 45.0), (0.0, 10.0)])
+def test_scale_bar_length_is_the_geodesic_distance_within_1_percent(lon, lat):
+    canvas = _utm_canvas(lon, lat)
+    frame_mm = 160.0
+    bar = scale_bar(canvas, frame_mm, max_mm=50.0)
+    assert 0 < bar.length_mm <= 50.0
+    assert bar.metres == pytest.approx(_bar_ground_metres(canvas, frame_mm, bar.length_mm), rel=0.01)
+    # a round length: 1, 2 or 5 times a power of ten (common practice, no source)
+    mantissa = bar.length / 10 ** math.floor(math.log10(bar.length))
+    assert round(mantissa, 9) in (1.0, 2.0, 5.0)
+
+
+def test_imperial_scale_bar_in_miles():
+    canvas = _utm_canvas(-3.0, 45.0)
+    bar = scale_bar(canvas, 160.0, 50.0, units="imperial")
+    assert bar.unit == "mi"
+    assert bar.metres == pytest.approx(bar.length * 1609.344)      # 1959 international mile
+    assert bar.metres == pytest.approx(_bar_ground_metres(canvas, 160.0, bar.length_mm), rel=0.01)
+
+
+def test_geographic_canvas_says_where_the_scale_holds():
+    canvas = Canvas.from_extent("EPSG:4326", (10.0, 40.0, 14.0, 44.0), 0.01)
+    bar = scale_bar(canvas, 150.0, 50.0)
+    assert "42.0\u00b0N" in bar.note
+    assert bar.metres == pytest.approx(_bar_ground_metres(canvas, 150.0, bar.length_mm), rel=0.01)
+
+
+@pytest.mark.parametrize("lon,lat", [(1.5, 50.0), (-7.5, 40.0), (-3.0, 60.0)])
+def test_north_arrow_follows_grid_convergence(lon, lat):
+    """On UTM 30N away from its central meridian (3 W) true north is turned from grid north by
+    the meridian convergence pyproj reports (positive east of the central meridian, where true
+    north lies counter-clockwise of grid up)."""
+    canvas = _utm_canvas(lon, lat)
+    expected = -Proj("EPSG:32630").get_factors(lon, lat).meridian_convergence
+    assert north_angle(canvas) == pytest.approx(expected, abs=0.5)
+    if lon != -3.0:
+        assert abs(expected) > 1.0     # the test is away from the central meridian
+
+
+def test_nice_length():
+    assert nice_length(7.3) == 5
+    assert nice_length(19.9) == 10
+    assert nice_length(2000) == 2000
+    assert nice_length(0.34) == pytest.approx(0.2)
+
+
+def _map(**kw):
+    base = dict(crs="EPSG:32630", extent=(500000.0, 5000000.0, 520000.0, 5010000.0), pixel=20.0,
+                dpi=200.0)
+    base.update(kw)
+    return SimpleNamespace(**base)
+
+
+def test_print_scale_sets_pixel_and_frame():
+    canvas, frame = page_canvas(_map(), None, (250.0, 180.0), 100000.0)
+    # 20 km at 1:100 000 is 200 mm; a pixel at 200 dpi is 0.127 mm of paper = 12.7 m of ground
+    assert frame[0] == pytest.approx(200.0, abs=0.2)
+    assert canvas.pixel == pytest.approx(12.7)
+    assert canvas.dpi == 200.0
+    assert canvas.width * canvas.pixel == pytest.approx(20000.0, rel=1e-3)
+
+
+def test_without_scale_the_frame_fits_and_the_dpi_follows():
+    canvas, frame = page_canvas(_map(), None, (150.0, 150.0), None)
+    assert frame[0] == pytest.approx(150.0, abs=0.2) and frame[1] == pytest.approx(75.0, abs=0.2)
+    assert canvas.pixel == 20.0
+    # points mean the same on paper: canvas pixels per inch of frame
+    assert canvas.dpi == pytest.approx(canvas.width / (frame[0] / 25.4))
+
+
+def test_scale_too_large_for_the_page_is_a_style_error():
+    with pytest.raises(StyleError, match="page: the map at 1:10,000"):
+        page_canvas(_map(), None, (250.0, 180.0), 10000.0)
+
+
+def test_grid_lines_of_a_graticule_cross_the_canvas():
+    canvas = _utm_canvas(-3.0, 45.0)
+    lines = grid_lines(canvas, "EPSG:4326", 0.1)
+    meridians = [v for axis, v, _ in lines if axis == "x"]
+    parallels = [v for axis, v, _ in lines if axis == "y"]
+    assert any(abs(v + 3.0) < 1e-9 for v in meridians)
+    assert any(abs(v - 45.0) < 1e-9 for v in parallels)
+    # the -3 meridian is the zone's central meridian: a vertical line through the centre column
+    pts = next(p for axis, v, p in lines if axis == "x" and abs(v + 3.0) < 1e-9)
+    assert pts[:, 0] == pytest.approx(canvas.width / 2, abs=0.5)

@@ -1,0 +1,172 @@
+"""The page outputs of a real render: PDF page size, extractable text, overlay paths landing
+where the raster map has them, SVG text, the world file, furniture in the check report."""
+from __future__ import annotations
+
+import json
+import re
+import shutil
+import subprocess
+import textwrap
+
+import numpy as np
+import pytest
+import rasterio
+
+from compose.render import render_style
+from compose.style import load_style
+from tests.output._tiny import tiny_style
+
+needs_poppler = pytest.mark.skipif(shutil.which("pdftoppm") is None or shutil.which("pdfinfo")
+                                   is None, reason="poppler-utils not installed")
+
+PAGE = """
+[page]
+paper       = "A5"
+orientation = "landscape"
+margin      = 8
+scale       = 25000
+title       = "Tiny page title"
+subtitle    = "A test of the page"
+credits     = "Data: generated in the test"
+grid        = { step = 500 }
+"""
+DPI = 150
+
+
+def _style(tmp_path, page=PAGE, overlays=True):
+    path = tiny_style(tmp_path, extra=False, overlays=overlays)
+    path.write_text(path.read_text().replace("dpi        = 150", f"dpi        = {DPI}")
+                    + textwrap.dedent(page))
+    return load_style(path)
+
+
+@pytest.fixture(scope="module")
+def rendered(tmp_path_factory):
+    tmp = tmp_path_factory.mktemp("page")
+    style = _style(tmp)
+    result = render_style(style, tmp / "out", html=False)
+    return style, result
+
+
+@needs_poppler
+def test_pdf_page_is_the_requested_paper(rendered):
+    _, result = rendered
+    info = subprocess.run(["pdfinfo", str(result.outputs["pdf"])], capture_output=True,
+                          text=True, check=True).stdout
+    w, h = (float(v) for v in re.search(r"Page size:\s+([\d.]+) x ([\d.]+) pts", info).groups())
+    # ISO 216 A5 is 148 x 210 mm; landscape; 1 pt = 25.4 / 72 mm
+    assert w * 25.4 / 72 == pytest.approx(210.0, abs=0.05)
+    assert h * 25.4 / 72 == pytest.approx(148.0, abs=0.05)
+
+
+@needs_poppler
+def test_pdf_text_is_extractable(rendered):
+    _, result = rendered
+    text = subprocess.run(["pdftotext", str(result.outputs["pdf"]), "-"], capture_output=True,
+                          text=True, check=True).stdout
+    for s in ("Tiny page title", "A test of the page", "Data: generated in the test",
+              "not for navigation", "Alpha", "Beta", "1:25"):
+        assert s in text, s
+
+
+def test_svg_keeps_text_as_text(rendered):
+    _, result = rendered
+    svg = result.outputs["svg"].read_text()
+    assert re.search(r"<text[^>]*>[^<]*Tiny page title", svg)
+    assert 'width="595.' in svg          # A5 landscape, 210 mm in points
+
+
+def test_canvas_follows_the_print_scale(rendered):
+    _, result = rendered
+    # 1920 m at 1:25 000 is 76.8 mm, at 150 dpi 454 pixels of 25000 * 0.0254 / 150 m
+    assert result.width == round(76.8 / 25.4 * DPI)
+    with rasterio.open(result.outputs["tif"]) as ds:
+        assert ds.transform.a == pytest.approx(25000 * 0.0254 / DPI)
+
+
+def test_world_file_matches_the_geotiff(rendered):
+    _, result = rendered
+    a, d, b, e, c, f = (float(v) for v in result.outputs["world"].read_text().split())
+    with rasterio.open(result.outputs["tif"]) as ds:
+        t = ds.transform
+    # ESRI world file: pixel sizes, rotation terms, centre of the upper-left pixel
+    assert (a, d, b, e) == pytest.approx((t.a, t.d, t.b, t.e))
+    assert (c, f) == pytest.approx((t.c + t.a / 2, t.f + t.e / 2))
+
+
+@needs_poppler
+def test_pdf_overlay_paths_land_where_the_raster_has_them(tmp_path):
+    """Rasterise the PDF at the canvas dpi and compare the dark overlay ink inside the map frame
+    with the map PNG (a plain white map with the coast line, town markers and labels)."""
+    style = _style(tmp_path, PAGE.replace('grid        = { step = 500 }', ''))
+    # drop the raster layers so only overlays make ink
+    path = style.path
+    text = path.read_text()
+    for name in ("relief", "land-growth", "water-growth"):
+        text = text.replace(f'name   = "{name}"', f'name   = "{name}"\nenabled = false')
+    path.write_text(text)
+    style = load_style(path)
+    result = render_style(style, tmp_path / "out", html=False, check=False)
+    # 4x the canvas dpi, averaged back over 4 x 4 blocks: poppler snaps thin strokes to whole
+    # pixels at low resolutions, which would compare poppler's rounding rather than geometry
+    k = 4
+    subprocess.run(["pdftoppm", "-r", str(DPI * k), "-png", "-singlefile",
+                    str(result.outputs["pdf"]), str(tmp_path / "ras")], check=True)
+    from matplotlib.image import imread
+    page = imread(tmp_path / "ras.png")[..., :3].astype(float) * 255
+    png = imread(result.outputs["png"])[..., :3].astype(float) * 255
+    from compose.page.layout import style_canvas
+    canvas, (fx, fy, fw, fh) = style_canvas(style)
+    h, w = png.shape[:2]
+    r0, c0 = int(round(fy / 25.4 * DPI * k)), int(round(fx / 25.4 * DPI * k))
+    crop = page[r0:r0 + h * k, c0:c0 + w * k].reshape(h, k, w, k, 3).mean(axis=(1, 3))
+    inner = (slice(3, -3), slice(3, -3))          # the neat line sits on the frame's edge
+    grey_pdf, grey_png = crop.mean(axis=2)[inner], png.mean(axis=2)[inner]
+    ink_pdf, ink_png = grey_pdf < 160, grey_png < 160
+    iou = np.sum(ink_pdf & ink_png) / np.sum(ink_pdf | ink_png)
+    assert ink_png.sum() > 200
+    assert iou > 0.85
+    # and the grey levels agree closely where either has ink (antialiasing differs slightly)
+    either = ink_pdf | ink_png
+    assert np.median(np.abs(grey_pdf[either] - grey_png[either])) < 25
+
+
+def test_furniture_is_judged_as_overlay(rendered):
+    _, result = rendered
+    report = json.loads(result.outputs["check"].read_text())
+    page_rules = [r for r in report["rules"] if (r["layer"] or "").startswith("page ")]
+    names = {r["layer"] for r in page_rules}
+    assert {"page title", "page scale bar", "page neat line", "page legend"} <= names
+    assert {r["rule"] for r in page_rules} == {"label-contrast", "overlay-contrast"}
+    assert all(r["passed"] for r in page_rules)
+
+
+def test_pale_ink_fails_the_furniture_contrast(tmp_path):
+    style = _style(tmp_path, PAGE + 'ink = "#c8c8c8"\n')
+    result = render_style(style, tmp_path / "out", html=False)
+    bad = [r for r in result.report.rules if r.layer == "page title"]
+    assert bad and not bad[0].passed and "page.ink" in bad[0].fix
+
+
+def test_corner_furniture_keeps_labels_clear(tmp_path):
+    """A legend in the top-left corner of the frame: the label there moves or drops out."""
+    from compose.engine import prepare
+    from compose.page.layout import blocked_pixels
+    from compose.page.write import legend_for_page, page_layout
+
+    page = PAGE.replace("scale       = 25000", "scale       = 12500").replace(
+        'paper       = "A5"', 'paper       = "A4"') + 'legend = "top left"\nnorth = "top right"\n'
+    style = _style(tmp_path, page)
+    run_ = prepare(style)
+    try:
+        legend = legend_for_page(style, run_.ramps, run_.layers)
+        layout = page_layout(style, (legend.width * 25.4, legend.height * 25.4))
+        boxes = blocked_pixels(layout)
+        labels = next(la for la in run_.layers if la.spec.kind == "labels")
+        assert boxes
+        for lab in labels.placement.placed:
+            for b in boxes:
+                c0, r0, c1, r1 = lab.box
+                assert not (c0 < b[2] and b[0] < c1 and r0 < b[3] and b[1] < r1)
+    finally:
+        run_.close()
