@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+from compose.color import interface as ui
 from compose.errors import StyleError
 from compose.style.validate import (RGB, Scope, as_table, boolean, build_from_table, choice,
                                     number, option, string)
@@ -127,8 +128,8 @@ class PageSpec:
     scale: float | None = option(number(gt=0), None)
     frame: tuple[float, float] | None = option(_size_mm, None)
     panel: str = option(choice(PANEL_SIDES, "panel side"), "right")
-    color: RGB = option(_color(), (1.0, 1.0, 1.0))
-    ink: RGB = option(_color(), (0.149, 0.149, 0.149))
+    color: RGB = option(_color(), ui.PAPER.rgb)
+    ink: RGB = option(_color(), ui.INK.rgb)
     title: str | None = option(string(), None)
     subtitle: str = option(string(), "")
     credits: str = option(string(), "")
