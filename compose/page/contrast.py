@@ -17,6 +17,7 @@ import dataclasses
 import numpy as np
 
 from compose.check import Report, RuleResult
+from compose.check.catalog import CATALOG, limit_of
 from compose.check.stats import contrast_bins, contrast_share
 from compose.color.parse import parse_color
 from compose.color.wcag import relative_luminance
@@ -101,5 +102,9 @@ def with_furniture(report: Report, style, layout, image: np.ndarray | None = Non
                f"{limit:g}:1 ({source}) against {where}; need {ob.share:.0%}")
         fix = "" if passed else ("darken page.ink (or lighten page.color) until it reaches "
                                  f"{limit:g}:1")
-        out.append(RuleResult(rule, f"page {piece}", share, float(ob.share), passed, msg, fix))
+        info = CATALOG[rule]
+        _, origin, key = limit_of(rule, style.budgets)
+        out.append(RuleResult(rule, f"page {piece}", share, float(ob.share), passed, msg, fix,
+                              comparison=info.comparison, unit=info.unit, budget=key,
+                              origin=origin))
     return dataclasses.replace(report, rules=tuple(report.rules) + tuple(out))
