@@ -1,4 +1,8 @@
-"""``compose demo [--out DIR]``: render every demo style with its legend, report and proofs."""
+"""``compose demo [--out DIR] [--data-only]``: copy the invented demo region into the output
+folder and render every demo style with its legend, report and proofs.
+
+The styles and the region ship with the package (:mod:`compose.demo`), so the demo works the same
+from a checkout and after a plain ``pip install``. A missing style is an error, never a skip."""
 from __future__ import annotations
 
 import time
@@ -8,7 +12,7 @@ import click
 
 from compose.cli.main import handle_errors
 
-__all__ = ["command", "DEMO_STYLES", "styles_dir"]
+__all__ = ["command", "DEMO_STYLES", "styles_dir", "copy_region"]
 
 # style file -> whether its check is meant to pass (the last one is the counter-example)
 DEMO_STYLES: list[tuple[str, bool]] = [
@@ -21,24 +25,62 @@ DEMO_STYLES: list[tuple[str, bool]] = [
 
 
 def styles_dir() -> Path:
-    """The repository's styles/ folder (the demo runs from a checkout)."""
-    return Path(__file__).resolve().parents[2] / "styles"
+    """The demo styles' folder (a checkout's styles/, or the installed copy)."""
+    from compose.demo import styles_dir as where
+    return where()
+
+
+#: The demo region's files copied for the user (the generator's code stays in the package).
+REGION_FILES = ("*.tif", "*.gpkg", "README.md")
+
+
+def copy_region(out_dir: Path) -> tuple[Path, list[str]]:
+    """Copy the demo region's data into ``out_dir/demo_region`` (files already there with the
+    same size are kept); returns the folder and the names copied. Each file is written to a
+    temporary name and renamed into place."""
+    import shutil
+
+    from compose.demo import region_dir
+    from compose.output.atomic import atomic_path
+
+    source = region_dir()
+    target = Path(out_dir) / "demo_region"
+    copied = []
+    for pattern in REGION_FILES:
+        for path in sorted(source.glob(pattern)):
+            dest = target / path.name
+            if dest.is_file() and dest.stat().st_size == path.stat().st_size:
+                continue
+            with atomic_path(dest) as tmp:
+                shutil.copyfile(path, tmp)
+            copied.append(path.name)
+    return target, copied
 
 
 @click.command("demo")
 @click.option("--out", "out_dir", type=click.Path(path_type=Path), default=Path("out/demo"),
               show_default=True, help="Folder for the maps, legends, reports and proofs.")
+@click.option("--data-only", is_flag=True,
+              help="Only copy the demo region's rasters and vectors into OUT/demo_region.")
 @handle_errors
-def command(out_dir: Path) -> None:
-    """Render the invented demo region with every example style (existing outputs are replaced)."""
+def command(out_dir: Path, data_only: bool) -> None:
+    """Render the invented demo region with every example style (existing outputs are replaced).
+
+    The region's data (invented: no real place) is copied into OUT/demo_region for you to try
+    `compose init` on.
+    """
     from compose.cli.render import print_summary
     from compose.caution import CAUTION
+    from compose.errors import ComposeError
     from compose.render import render_style
     from compose.style import load_style
 
     folder = styles_dir()
-    if not folder.is_dir():
-        click.echo("no demo yet: styles/ not found next to the package")
+    region, copied = copy_region(out_dir)
+    click.echo(f"demo region: {region} ({len(copied)} file(s) copied; invented data, no real place)")
+    if data_only:
+        click.echo(f"try: compose init {region / 'elevation.tif'} {region / 'anomaly.tif'} "
+                   f"{region / 'vectors.gpkg'} --out my-map.toml")
         return
     t0 = time.perf_counter()
     surprises = []
@@ -46,8 +88,7 @@ def command(out_dir: Path) -> None:
     for filename, should_pass in DEMO_STYLES:
         path = folder / filename
         if not path.exists():
-            click.echo(f"(skipping {filename}: not in styles/)")
-            continue
+            raise ComposeError(f"demo style missing: {path}")
         style = load_style(path)
         click.echo(f"\n== {style.name}: {style.map.title}")
         result = render_style(style, out_dir, overwrite=True, proofs=True)

@@ -18,6 +18,7 @@ COMMANDS = {
     "check": "compose.cli.check",
     "proof": "compose.cli.proof",
     "demo": "compose.cli.demo",
+    "init": "compose.cli.init",
 }
 
 

@@ -255,10 +255,13 @@ def _ramps_section(style, ramps) -> str:
 
 
 def _facts(style, result) -> str:
-    m = style.map
+    plan = style.canvas_plan()      # the grid as drawn (like, width, extent_crs resolved)
+    grid = plan.canvas
     rows = [("style", str(style.path)), ("canvas", f"{result.width} × {result.height} px"),
-            ("CRS", m.crs), ("extent", ", ".join(f"{v:.10g}" for v in m.extent) + "  (W, S, E, N)"),
-            ("pixel", f"{m.pixel:g} CRS units"), ("dpi", f"{m.dpi:g}")]
+            ("CRS", grid.crs), ("extent", ", ".join(f"{v:.10g}" for v in grid.bounds)
+                                + "  (W, S, E, N)"),
+            ("pixel", f"{grid.pixel:g} CRS units"), ("dpi", f"{grid.dpi:g}")]
+    rows += [("note", note) for note in plan.notes]
     if len(style.chain) > 1:
         rows.append(("extends", " → ".join(Path(p).name for p in style.chain)))
     if result.outputs:
