@@ -36,6 +36,12 @@ QUALITATIVE_MAX = 8
 MAX_WIDTH = 2000
 _DEM_WORDS = re.compile(r"(elev|dem|dtm|dsm|height|terrain|topo|altitude|srtm)", re.I)
 _WATER_WORDS = re.compile(r"(river|stream|water|coast|shore|lake|sea|canal|creek|hydro)", re.I)
+# map colours of the starter, CIE LCh(ab) (our own choices, as in the demo styles)
+_PAPER = "{ L = 98, C = 1.5, h = 90 }"        # halos: a warm near-white
+_BACKGROUND = "{ L = 97, C = 1.5, h = 90 }"   # under the first layer
+_INK = "{ L = 18, C = 0, h = 0 }"             # point markers
+_TEXT = "{ L = 14, C = 0, h = 0 }"            # label text
+_WHITE = "{ L = 100, C = 0, h = 0 }"          # marker edges and label halos
 _NAME_FIELDS = ("name", "label", "title", "nom", "nombre", "name_en")
 _RANK_FIELDS = ("population", "pop", "rank", "priority", "size", "importance")
 
@@ -157,16 +163,16 @@ def _overlay(v: VectorFacts, name: str, src: str) -> tuple[list[str], str]:
     tone = "blue (the name suggests water)" if water else "dark neutral"
     if v.shape == "lines":
         return [f'{head}kind   = "lines"\nsource = "{src}"\n{table}stroke = {stroke}\n'
-                f'width  = 0.7\nhalo   = {{ color = "#fbfaf6", width = 1.8 }}\n'], \
+                f'width  = 0.7\nhalo   = {{ color = {_PAPER}, width = 1.8 }}\n'], \
             f"{v.count} {v.geometry} features: lines, {tone}, light halo"
     if v.shape == "areas":
         return [f'{head}kind   = "areas"\nsource = "{src}"\n{table}stroke = {stroke}\n'
-                f'width  = 0.8\nhalo   = {{ color = "#fbfaf6", width = 2.0 }}\n'
-                f"# fill = \"#...\"  (outlines only: a fill would hide the data beneath)\n"], \
+                f'width  = 0.8\nhalo   = {{ color = {_PAPER}, width = 2.0 }}\n'
+                f"# fill = {{ L = .., C = .., h = .. }}  (outlines only: a fill would hide the data beneath)\n"], \
             f"{v.count} {v.geometry} features: area outlines, {tone}, light halo"
     if v.shape == "points":
-        out = [f'{head}kind   = "points"\nsource = "{src}"\n{table}fill   = "#2b2b2b"\n'
-               f'stroke = "#ffffff"\nwidth  = 0.6\nsize   = 3.5\n']
+        out = [f'{head}kind   = "points"\nsource = "{src}"\n{table}fill   = {_INK}\n'
+               f'stroke = {_WHITE}\nwidth  = 0.6\nsize   = 3.5\n']
         why = f"{v.count} {v.geometry} features: point markers"
         text_field = next((k for k in _NAME_FIELDS if v.fields.get(k) == "str"),
                           next((k for k, t in v.fields.items() if t == "str"), None))
@@ -175,7 +181,7 @@ def _overlay(v: VectorFacts, name: str, src: str) -> tuple[list[str], str]:
             prio = f'priority = "{rank}"\n' if rank else ""
             out.append(f'[[layer]]\nname   = "{name} labels"\nrole   = "overlay"\nkind   = "labels"\n'
                        f'source = "{src}"\n{table}text   = "{text_field}"\n{prio}size   = 7\n'
-                       f'color  = "#222222"\nhalo   = {{ color = "#ffffff", width = 1.6 }}\n')
+                       f'color  = {_TEXT}\nhalo   = {{ color = {_WHITE}, width = 1.6 }}\n')
             why += f', labels from "{text_field}"' + (f' (larger "{rank}" first)' if rank else "")
         return out, why
     return [], f"{v.geometry} geometry: not drawn (compose draws lines, areas and points)"
@@ -190,7 +196,7 @@ def _map_table(name: str, title: str, grid: RasterFacts | None, vectors: list[Ve
             (f", drawn {MAX_WIDTH} px across)" if width else ")")
         text = (f'[map]\nname   = "{name}"\ntitle  = "{title}"\nlike   = "{grid_layer}"'
                 f"         # CRS, extent and pixel size of that layer's raster\n{width}dpi    = 200\n"
-                f'background = "#f7f6f2"\n')
+                f"background = {_BACKGROUND}\n")
         return text, why
     crs = vectors[0].crs
     boxes = [v.bounds for v in vectors if v.crs == crs and v.count]
@@ -201,7 +207,7 @@ def _map_table(name: str, title: str, grid: RasterFacts | None, vectors: list[Ve
     pad = 0.02 * max(e - w, n - s)
     ext = ", ".join(_num(v) for v in (w - pad, s - pad, e + pad, n + pad))
     text = (f'[map]\nname   = "{name}"\ntitle  = "{title}"\ncrs    = "{crs}"\n'
-            f"extent = [{ext}]\nwidth  = 1500\ndpi    = 200\nbackground = \"#f7f6f2\"\n")
+            f"extent = [{ext}]\nwidth  = 1500\ndpi    = 200\nbackground = {_BACKGROUND}\n")
     return text, f"canvas: the extent of the vectors in {crs}, 1500 px across"
 
 
