@@ -19,7 +19,8 @@ from compose.color.wcag import WCAG_Y
 
 __all__ = ["lch_rgb8", "hex8", "luminance8", "lightness_of_y", "bin_luminance",
            "contrast_share_estimate", "solve_contrast_lightness", "halo_color",
-           "relief_stats", "solve_relief_chroma", "solve_relief_lightness", "solve_nodata",
+           "relief_stats", "solve_relief_chroma", "solve_relief_lightness", "solve_relief_spread",
+           "stretch_weights", "solve_nodata",
            "solve_class_pair"]
 
 _GRID = np.round(np.arange(0.0, 100.0001, 0.1), 1)   # L* candidates in steps of 0.1
@@ -216,6 +217,55 @@ def solve_relief_lightness(options, weights, lo_L: float, hi_L: float, margin: f
         st = relief_stats(options, weights, tint, shadow)
         if ok(st):
             return {"tint": tint, "strength": None, "p5": st[0], "p95": st[1]}
+    return None
+
+
+def stretch_weights(weights, altitude: float, k: float) -> np.ndarray:
+    """Shade-level weights (one per relief lookup-table level, plus no-data) as they would be
+    with every shade's distance from flat ground multiplied by ``k`` (clipped to 0..1): the
+    first-order effect of multiplying the exaggeration by ``k`` (exact for gentle slopes, where
+    shade - sin(altitude) grows linearly with the gradient)."""
+    w = np.asarray(weights, dtype=float)
+    n = w.size - 1                                   # the last entry is no-data
+    s = np.linspace(0.0, 1.0, n)
+    flat = np.sin(np.radians(altitude))
+    new = np.clip(flat + k * (s - flat), 0.0, 1.0)
+    idx = np.rint(new * (n - 1)).astype(int)
+    out = np.bincount(idx, weights=w[:n], minlength=n)
+    return np.append(out, w[n:])
+
+
+def solve_relief_spread(options, weights, spread: float, lo_L: float, margin: float = 0.3
+                        ) -> dict | None:
+    """Make a relief's L* spread (p95 - p5) reach ``spread`` while its p5 stays >= ``lo_L``.
+
+    First raise ``strength`` (exact: the same shade levels through a new lookup table), in steps
+    of 0.01 up to 1; if that is not enough, raise the exaggeration by the smallest factor (up
+    to 100x, in steps of about 1 %) that reaches it at the strength the lightness budget allows
+    (estimated with :func:`stretch_weights`). Returns {"strength", "exaggeration" (None if unchanged), "spread",
+    "p5"} or None.
+    """
+    def stats(w, strength):
+        p5, p95, _ = relief_stats(options, w, strength=strength)
+        return p95 - p5, p5
+
+    need = spread + margin
+    s0 = float(options.strength)
+    best_s = s0
+    for st in np.round(np.arange(s0, 1.0 + 1e-9, 0.01), 2):
+        sp, p5 = stats(weights, float(st))
+        if p5 < lo_L + margin:
+            break
+        best_s = float(st)
+        if sp >= need:
+            return {"strength": float(st), "exaggeration": None, "spread": sp, "p5": p5}
+    ex0 = float(options.exaggeration)
+    for k in np.unique(np.round(np.geomspace(1.1, 100.0, 400), 2)):
+        w = stretch_weights(weights, options.altitude, float(k))
+        sp, p5 = stats(w, best_s)
+        if sp >= need and p5 >= lo_L + margin:
+            return {"strength": best_s, "exaggeration": float(np.ceil(ex0 * k * 10) / 10),
+                    "spread": sp, "p5": p5}
     return None
 
 

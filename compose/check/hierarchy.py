@@ -11,13 +11,15 @@ from __future__ import annotations
 import math
 
 from compose.check.context import CheckContext, layer_key
-from compose.check.fixes import hex8, solve_relief_chroma, solve_relief_lightness
+from compose.check.catalog import limit_of
+from compose.check.fixes import (hex8, solve_relief_chroma, solve_relief_lightness,
+                                 solve_relief_spread)
 from compose.check.report import Change, RuleResult
 from compose.color.parse import to_rgb8
 from compose.color.lab import srgb_to_lch
 
-__all__ = ["ground_lightness", "ground_chroma", "reserved_saturation", "theme_chroma",
-           "theme_chroma_min"]
+__all__ = ["ground_lightness", "ground_chroma", "relief_visible", "reserved_saturation",
+           "theme_chroma", "theme_chroma_min"]
 
 
 def _nan(v) -> bool:
@@ -100,6 +102,47 @@ def ground_chroma(ctx: CheckContext) -> list[RuleResult]:
         fix, change = ("", None) if passed else _chroma_fix(spec, s, limit - 0.2, "C*")
         out.append(RuleResult("ground-chroma", spec.name, c95, limit, passed,
                               f"C* p95 {c95:.1f}; budget <= {limit:g}", fix, change=change))
+    return out
+
+
+def relief_visible(ctx: CheckContext) -> list[RuleResult]:
+    """A relief ground shows: L* p95 - p5 of its own shading >= ``budget.ground.relief_spread``
+    (default 10; common practice, no source). Invisible relief is not a quiet ground, it is no
+    ground at all: the reader sees a flat tint."""
+    limit = float(limit_of("relief-visible", ctx.budgets)[0])
+    lo_L = float(ctx.budgets.ground.lightness[0])
+    out = []
+    for spec, s in ctx.layers("ground", ("relief",)):
+        (p5, _, p95), _ = s.lightness_chroma()
+        if _nan(p5):
+            continue
+        spread = p95 - p5
+        passed = spread >= limit
+        msg = (f"L* p5 {p5:.1f} .. p95 {p95:.1f}: spread {spread:.2f}; at least {limit:g} "
+               "so the terrain reads")
+        fix, change = "", None
+        weights = _relief_weights(spec, s)
+        if not passed and weights is not None:
+            sol = solve_relief_spread(spec.options, weights, limit, lo_L)
+            o = spec.options
+            if sol is None:
+                fix = ("even strength 1 and a 100x exaggeration do not reach it: darken the shadow "
+                       "colour, or waive the rule for this layer if the terrain is truly flat")
+            elif sol["exaggeration"] is None:
+                fix = (f"raise the {spec.name} strength from {o.strength:g} to {sol['strength']:g} "
+                       f"(L* spread becomes {sol['spread']:.1f}, p5 {sol['p5']:.1f})")
+                change = Change(layer_key(spec.name), {"strength": sol["strength"]})
+            else:
+                values = {"shade.exaggeration": sol["exaggeration"]}
+                fix = (f"raise the {spec.name} shade exaggeration from {o.exaggeration:g} to "
+                       f"{sol['exaggeration']:g}")
+                if sol["strength"] != o.strength:
+                    values["strength"] = sol["strength"]
+                    fix += f" and strength from {o.strength:g} to {sol['strength']:g}"
+                fix += f" (L* spread becomes about {sol['spread']:.1f})"
+                change = Change(layer_key(spec.name), values)
+        out.append(RuleResult("relief-visible", spec.name, spread, limit, passed, msg, fix,
+                              change=change))
     return out
 
 

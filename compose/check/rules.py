@@ -10,8 +10,8 @@ from __future__ import annotations
 from typing import Callable
 
 from compose.check.context import CheckContext
-from compose.check.hierarchy import (ground_chroma, ground_lightness, reserved_saturation,
-                                     theme_chroma, theme_chroma_min)
+from compose.check.hierarchy import (ground_chroma, ground_lightness, relief_visible,
+                                     reserved_saturation, theme_chroma, theme_chroma_min)
 from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
 from compose.check.classes import (classes_count, classes_separation, classes_separation_deutan,
                                    classes_separation_protan)
@@ -31,6 +31,7 @@ RULES: dict[str, Rule] = {
     "roles-present": roles_present,
     "ground-lightness": ground_lightness,
     "ground-chroma": ground_chroma,
+    "relief-visible": relief_visible,
     "reserved-saturation": reserved_saturation,
     "theme-chroma": theme_chroma,
     "theme-chroma-min": theme_chroma_min,

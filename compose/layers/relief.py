@@ -13,13 +13,15 @@ import numpy as np
 from compose.color.lab import lab_to_srgb, srgb_to_lab
 from compose.color.parse import to_rgb8
 from compose.layers.base import Context, Paint, Palette
-from compose.layers.hillshade import multidirectional
+from compose.layers.hillshade import multidirectional, stretch_factor
 from compose.sources.raster import cell_size_metres
 from compose.layers.raster import open_raster
 
-__all__ = ["ReliefLayer", "relief_palette", "LEVELS"]
+__all__ = ["ReliefLayer", "relief_palette", "LEVELS", "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
 
 LEVELS = 1024
+SAMPLE_WINDOWS = 9    # windows of the canvas read to measure the terrain for "auto" stretch
+SAMPLE_SIZE = 256     # their side in canvas pixels
 
 
 def relief_palette(tint, shadow, strength: float, altitude: float) -> Palette:
@@ -53,13 +55,30 @@ class ReliefLayer:
         self.source = open_raster(spec, self.canvas)
         # the style fills ``shadow`` from the tint when it is not given (style.kinds.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
+        self.stretch = self._stretch() if o.stretch == "auto" else 1.0
+        self.exaggeration = o.exaggeration * self.stretch
+
+    def _stretch(self) -> float:
+        """The "auto" vertical factor, from up to SAMPLE_WINDOWS windows spread over the canvas
+        read at the canvas's own cell size (decided once, before the window walk)."""
+        o = self.options
+        wins = list(self.canvas.windows(SAMPLE_SIZE, margin=self.margin))
+        pick = np.unique(np.linspace(0, len(wins) - 1, min(SAMPLE_WINDOWS, len(wins))).astype(int))
+        samples = []
+        for i in pick:
+            win = wins[int(i)]
+            transform = self.canvas.window_transform(win)
+            dem = self.source.read_window(self.canvas, win, o.resampling)
+            dx, dy = cell_size_metres(self.canvas.crs, transform, dem.shape[0])
+            samples.append((dem, dx, dy))
+        return stretch_factor(samples, o.azimuth, o.altitude, o.directions)
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
         dem = self.source.read_window(self.canvas, window, o.resampling)
         dx, dy = cell_size_metres(self.canvas.crs, transform, height)
         shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
-                                 exaggeration=o.exaggeration, directions=o.directions)
+                                 exaggeration=self.exaggeration, directions=o.directions)
         valid = np.isfinite(shade)
         index = np.where(valid, np.rint(np.nan_to_num(shade) * (LEVELS - 1)), LEVELS).astype(np.uint16)
         alpha = valid.astype(np.float32)

@@ -24,7 +24,7 @@ from compose.style.validate import (RGB, Scope, as_table, build_from_table, choi
                                     required_keys, scalars, string, table_of)
 
 __all__ = [
-    "RESAMPLING", "SHAPES", "WEIGHTS", "NODATA_TRANSPARENT", "DEFAULT_TINT", "DEFAULT_STROKE",
+    "RESAMPLING", "STRETCH", "SHAPES", "WEIGHTS", "NODATA_TRANSPARENT", "DEFAULT_TINT", "DEFAULT_STROKE",
     "DEFAULT_TEXT", "DEFAULT_HALO", "default_shadow",
     "Halo", "ReliefOptions", "FieldOptions", "ClassesOptions", "LineOptions", "AreaOptions",
     "PointOptions", "LabelOptions", "LayerOptions", "LayerKind", "KindSchema", "LAYER_KINDS",
@@ -33,6 +33,9 @@ __all__ = [
 
 #: Resampling methods of raster layers (names as rasterio spells them).
 RESAMPLING = ("nearest", "bilinear", "cubic", "average", "mode")
+#: ``shade.stretch``: "auto" normalises the shading by the DEM's own slope distribution
+#: (:func:`compose.layers.hillshade.stretch_factor`); "none" draws Horn's shading as it is.
+STRETCH = ("auto", "none")
 #: Point marker shapes.
 SHAPES = ("circle", "square")
 #: Font weights by name (a number 100-900 is also accepted).
@@ -105,7 +108,8 @@ def _no_filter() -> Mapping[str, tuple]:
 @dataclass(frozen=True, slots=True, kw_only=True)
 class ReliefOptions:
     """Shaded relief. Angles in degrees (azimuth clockwise from north, altitude above the horizon);
-    exaggeration multiplies elevations; ``directions`` evenly spaced suns around ``azimuth``;
+    exaggeration multiplies elevations (after ``stretch``: "auto" first scales them so ordinary
+    terrain shows at any cell size); ``directions`` evenly spaced suns around ``azimuth``;
     ground is drawn from ``tint`` (flat, lit) toward ``shadow`` by up to ``strength`` (0-1).
     ``shadow`` left as None becomes :func:`default_shadow` of the tint."""
 
@@ -115,6 +119,7 @@ class ReliefOptions:
     altitude: float = option(number(gt=0, le=90), 45.0, group="shade")
     exaggeration: float = option(number(gt=0, le=1e4), 1.0, group="shade")
     directions: int = option(integer(ge=1, le=MAX_DIRECTIONS), 1, group="shade")
+    stretch: str = option(choice(STRETCH, "shade stretch"), "auto", group="shade")
     tint: RGB = option(color(), DEFAULT_TINT)
     shadow: RGB | None = option(color(), None)
     strength: float = option(number(ge=0, le=1), 0.6)

@@ -49,6 +49,10 @@ def make_data(folder: Path) -> dict[str, Path]:
     paths["hills"] = _raster(folder / "hills.tif",
                              (300 + 120 * np.sin(xx / 6.0) * np.cos(yy / 5.0)).astype(np.float32))
     paths["flat"] = _raster(folder / "flat.tif", np.full((N, N), 100.0, np.float32))
+    # gentle terrain: 4 m of relief over ~600 m (slopes < 2 degrees), plainly shown only when
+    # the shading is normalised by the DEM's own slopes
+    paths["gentle"] = _raster(folder / "gentle.tif",
+                              (50 + 2 * np.sin(xx / 9.0) * np.cos(yy / 7.0)).astype(np.float32))
     ramp = (xx / (N - 1) * 10).astype(np.float32)
     ramp[:6, :6] = np.nan                       # a corner of no-data
     paths["gradient"] = _raster(folder / "gradient.tif", ramp, nodata=np.nan)
@@ -169,7 +173,12 @@ def apply_change(doc: dict, change) -> dict:
         target = doc["ramp"][name]
     if listkey is not None:
         target = target[listkey][int(index)]
-    target.update(copy.deepcopy(change.values))
+    for key, value in copy.deepcopy(change.values).items():
+        *tables, last = key.split(".")          # "shade.exaggeration" -> shade = { ... }
+        t = target
+        for name in tables:
+            t = t.setdefault(name, {})
+        t[last] = value
     return doc
 
 

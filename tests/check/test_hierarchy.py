@@ -88,3 +88,37 @@ def test_theme_chroma_minimum_only_when_stated(data, tmp_path):
 
 def test_land_ramp_is_untouched_by_helpers():
     assert LAND["through"][0]["C"] == 25
+
+
+# --- relief visibility (issue 10: gentle terrain gave an L* spread of ~3 and nothing flagged it)
+
+def test_invisible_relief_fails_and_its_fix_makes_it_show(data, tmp_path):
+    doc = style([relief(data["gentle"], shade={"stretch": "none"})])
+    rep = check(tmp_path, doc)
+    r = one(rep, "relief-visible", "relief")
+    assert not r.passed and r.value < 5 and r.limit == 10 and r.comparison == ">="
+    assert r.change is not None and r.change.table == 'layer "relief"'
+    assert "exaggeration" in r.fix or "strength" in r.fix
+    fixed = check(tmp_path, apply_change(doc, r.change), "fixed")
+    r2 = one(fixed, "relief-visible", "relief")
+    assert r2.passed, r2.message
+    assert one(fixed, "ground-lightness", "relief").passed
+
+
+def test_default_shading_is_normalised_so_gentle_terrain_shows(data, tmp_path):
+    rep = check(tmp_path, style([relief(data["gentle"])]))      # shade.stretch = "auto"
+    r = one(rep, "relief-visible", "relief")
+    assert r.passed and r.value >= 10
+    assert rep.passed
+
+
+def test_relief_budget_from_the_style(data, tmp_path):
+    rep = check(tmp_path, style([relief(data["hills"])], budget={"ground": {"relief_spread": 60}}))
+    r = one(rep, "relief-visible", "relief")
+    assert not r.passed and r.limit == 60 and r.origin == "style"
+
+
+def test_a_flat_dem_is_not_stretched_into_noise(data, tmp_path):
+    rep = check(tmp_path, style([relief(data["flat"])]))
+    r = one(rep, "relief-visible", "relief")
+    assert not r.passed and r.value == 0 and "waive" in r.fix

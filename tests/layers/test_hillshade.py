@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 
 import compose.layers.hillshade as hs
-from compose.layers.hillshade import flat_normalised, hillshade, horn_gradient, multidirectional
+from compose.layers.hillshade import (STRETCH_TARGET, flat_normalised, hillshade, horn_gradient,
+                                      multidirectional, shade_spread, stretch_factor)
 
 DX = DY = 30.0
 
@@ -190,3 +191,37 @@ def test_flat_normalised():
     np.testing.assert_allclose(out[:4], [0.0, 0.25 / math.sin(math.radians(35.0)), 1.0, 1.0],
                                atol=1e-6)
     assert np.isnan(out[4])
+
+
+# --- normalised shading (shade.stretch = "auto") ---------------------------------------------
+
+def _hills(amplitude: float, n: int = 96):
+    y, x = np.mgrid[0:n, 0:n].astype(np.float32)
+    return (100 + amplitude * np.sin(x / 8.0) * np.cos(y / 11.0)).astype(np.float32)
+
+
+def test_stretch_lifts_gentle_terrain_to_the_target_at_any_cell_size():
+    for cell in (10.0, 30.0, 90.0):
+        dem = _hills(8.0)
+        k = stretch_factor([(dem, cell, cell)])
+        assert k > 1
+        assert shade_spread([(dem, cell, cell)], exaggeration=k) == pytest.approx(
+            STRETCH_TARGET, abs=0.01)
+    # coarser cells: gentler slopes, a larger factor
+    assert stretch_factor([(_hills(8.0), 90.0, 90.0)]) > stretch_factor([(_hills(8.0), 10.0, 10.0)])
+
+
+def test_stretch_leaves_rugged_terrain_and_flat_ground_alone():
+    assert stretch_factor([(_hills(300.0), 30.0, 30.0)]) == 1.0
+    assert stretch_factor([(np.full((40, 40), 5.0, np.float32), 30.0, 30.0)]) == 1.0
+    assert stretch_factor([(np.full((8, 8), np.nan, np.float32), 30.0, 30.0)]) == 1.0
+
+
+def test_stretch_keeps_horn_shading_of_planes():
+    # the factor only scales elevations: a plane facing the sun, stretched, is the same plane
+    # made steeper, so Horn's closed form (references.md section 6) still holds at tan S * k
+    dem = plane(20.0, 135.0)
+    k = 1.7
+    got = hillshade(dem, 30.0, 30.0, exaggeration=k)[2, 2]
+    slope = math.degrees(math.atan(k * math.tan(math.radians(20.0))))
+    assert got == pytest.approx(closed_form(slope, 135.0, 315.0, 45.0), abs=1e-5)

@@ -32,7 +32,7 @@ role = "ground"
 kind = "relief"
 source = "dem.tif"
 strength = 1.0
-shade = { exaggeration = 3 }
+shade = { exaggeration = 3, stretch = "none" }   # a fixed shading: the edge alone is tested
 ''')
     style = load_style(tmp_path / "r.toml")
     small = style.canvas()
