@@ -19,6 +19,7 @@ COMMANDS = {
     "proof": "compose.cli.proof",
     "demo": "compose.cli.demo",
     "init": "compose.cli.init",
+    "tiles": "compose.cli.tiles",
 }
 
 
