@@ -202,11 +202,10 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                     composite_over(alone, src, alpha[inner], spec.blend, out=alone)
             if meter is not None:
                 meter.end_layer(li, layer)
-        if k:
-            core = np.clip(out[core_idx], 0, 1)
-            stack_tiles.append(block_sums(core, window.row, window.col, k))
-            alone_tiles.append(None if alone is None else block_sums(
-                np.clip(alone, 0, 1, out=alone), window.row, window.col, k))
+        if k:   # blends of values in [0, 1] stay in [0, 1]: no clipping needed for previews
+            stack_tiles.append(block_sums(out[core_idx], window.row, window.col, k))
+            alone_tiles.append(None if alone is None else block_sums(alone, window.row,
+                                                                     window.col, k))
     if below is not None and base is None:
         base = _to_rgb8(np.array(out[core_idx]))
     rgb8 = _to_rgb8(out[core_idx])

@@ -13,22 +13,7 @@ import click
 from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
 
-__all__ = ["command", "check_report"]
-
-
-def check_report(style_path: Path, progress=None):
-    """Load, render in memory without sinks, and check the style at ``style_path`` -> Report."""
-    from compose.check import check_style
-    from compose.engine import prepare, run
-    from compose.style import load_style
-
-    style = load_style(style_path)
-    run_ = prepare(style)
-    try:
-        stats = run(run_, [], progress=progress)
-        return check_style(style, stats, run_.ramps)
-    finally:
-        run_.close()
+__all__ = ["command"]
 
 
 @click.command("check")
@@ -42,10 +27,11 @@ def command(style: Path, as_json: bool) -> None:
 
     Exits 0 when every rule passes, 1 when any fails, 2 when the style is invalid.
     """
+    from compose.api import check
     from compose.check import format_report
     from compose.cli.render import progress_bar
 
-    report = check_report(style, progress=progress_bar("checking"))
+    report = check(style, progress=progress_bar("checking"))
     if as_json:
         click.echo(json.dumps(report.to_json(), indent=2))
     else:

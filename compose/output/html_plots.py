@@ -134,6 +134,21 @@ def _failing_band(y_fig: float, limit: float) -> tuple[float, float]:
     return lo, hi
 
 
+def _bars(ax, left: np.ndarray, width: np.ndarray, height: np.ndarray, colors, edge: str,
+          lw: float, label: str | None = None) -> None:
+    """Bars from 0 to ``height`` as one collection (one artist draws ~50x faster than a patch
+    per bar, which is what ``Axes.bar`` makes)."""
+    from matplotlib.collections import PolyCollection
+
+    right = left + width
+    verts = np.stack([np.stack([left, np.zeros_like(height)], -1), np.stack([left, height], -1),
+                      np.stack([right, height], -1), np.stack([right, np.zeros_like(height)], -1)],
+                     axis=1)
+    ax.add_collection(PolyCollection(verts, facecolors=colors, edgecolors=edge, linewidths=lw,
+                                     zorder=2, label=label))
+    ax.set_ylim(0, max(float(np.max(height)) if height.size else 0.0, 1e-9) * 1.05)
+
+
 def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     """Beneath-L* histogram and contrast histogram of an overlay's judged part (``j`` from
     :func:`compose.check.legibility.judge`; None when nothing was drawn)."""
@@ -156,8 +171,8 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     x = np.arange(hist.size)
     lo, hi = _failing_band(y, limit)
     a1.axvspan(lo, hi, color=ui.FAIL.hex, alpha=0.09, lw=0, zorder=1)
-    a1.bar(x, 100 * hist / max(total, 1e-12), width=1.0, color=_gray(x.astype(float)),
-           edgecolor=ui.BAR_EDGE.hex, linewidth=0.4, zorder=2, label=f"beneath the {j['part']}")
+    _bars(a1, x - 0.5, np.ones(x.size), 100 * hist / max(total, 1e-12), _gray(x.astype(float)),
+          ui.BAR_EDGE.hex, 0.4, label=f"beneath the {j['part']}")
     if j["outline"] is not None and j["outline"].beneath_lightness is not None:
         oh = np.asarray(j["outline"].beneath_lightness, dtype=float)
         scale = (hist.max() / max(total, 1e-12)) / max(oh.max() / max(oh.sum(), 1e-12), 1e-12)
@@ -180,8 +195,8 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
     coarse, _ = np.histogram(ratio, bins=edges, weights=c)
     coarse = 100 * coarse / max(c.sum(), 1e-12)
     mids = np.sqrt(edges[:-1] * edges[1:])
-    a2.bar(edges[:-1], coarse, width=np.diff(edges), align="edge", zorder=2,
-           color=np.where(mids >= limit, ui.PASS_LIGHT.hex, ui.FAIL_LIGHT.hex), edgecolor=ui.PAPER.hex, lw=0.3)
+    _bars(a2, edges[:-1], np.diff(edges), coarse,
+          np.where(mids >= limit, ui.PASS_LIGHT.hex, ui.FAIL_LIGHT.hex), ui.PAPER.hex, 0.3)
     a2.axvline(limit, color=INK, lw=0.9, ls="--")
     a2.set_xscale("log")
     a2.set_xlim(1, 21)

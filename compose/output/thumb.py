@@ -25,10 +25,16 @@ class BoxThumbnail:
 
     def add(self, row0: int, rgb8: np.ndarray) -> None:
         """Add rows (n, width, 3) uint8 starting at image row ``row0``."""
-        cs = np.add.reduceat(rgb8.astype(np.float32), self.cols, axis=1)
+        if self.k == 1:
+            self.sum[row0:row0 + rgb8.shape[0]] += rgb8
+            return
         rows = (row0 + np.arange(rgb8.shape[0])) // self.k
         starts = np.concatenate([[0], np.nonzero(np.diff(rows))[0] + 1])
-        self.sum[rows[starts]] += np.add.reduceat(cs, starts, axis=0)
+        # rows first, then columns with the column axis moved to the front: every reduction
+        # runs over whole contiguous rows (reduceat along the last axes is ~10x slower)
+        rs = np.add.reduceat(rgb8, starts, axis=0, dtype=np.float32)          # (nr, w, 3)
+        cs = np.add.reduceat(np.ascontiguousarray(rs.transpose(1, 0, 2)), self.cols, axis=0)
+        self.sum[rows[starts]] += cs.transpose(1, 0, 2)
 
     rows = add
 

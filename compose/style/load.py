@@ -358,7 +358,8 @@ def _waivers(tables: list[dict], layers: list[LayerSpec]) -> tuple[Waiver, ...]:
     return tuple(out)
 
 
-def load_style(path: str | Path, *, require_map: bool = True, library: bool = True) -> Style:
+def load_style(path: str | Path, *, require_map: bool = True, library: bool = True,
+               overrides: Mapping[str, Any] | None = None) -> Style:
     """Load, merge (``extends``) and validate the style at ``path``.
 
     ``require_map=False`` accepts a file without ``[map]`` and layers, such as a ramp library
@@ -368,9 +369,16 @@ def load_style(path: str | Path, *, require_map: bool = True, library: bool = Tr
 
     ``library``: complete the style's ramps with the library ramps it names (and their twin
     bases; :mod:`compose.ramps.library`); False reads the file's own ramps only.
+
+    ``overrides``: key path -> value applied after merging, before validation
+    (:func:`compose.style.overrides.apply_overrides`), e.g. ``{"map.pixel": 60}``.
     """
     path = _resolve(Path(path).expanduser(), "style file")
     files = _chain(path)
     merged, origin = _merge(files)
+    if overrides:
+        from compose.style.overrides import apply_overrides
+
+        apply_overrides(merged, overrides)
     with _blame(path):
         return _build(merged, origin, files, require_map, library)

@@ -184,5 +184,5 @@ def apply_change(doc: dict, change) -> dict:
 
 def check(folder: Path, doc: dict, name: str = "map"):
     """Render ``doc`` in memory and check it -> Report."""
-    from compose.cli.check import check_report
-    return check_report(write_style(folder, doc, name))
+    from compose.api import check as check_style_file
+    return check_style_file(write_style(folder, doc, name))

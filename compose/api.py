@@ -1,0 +1,84 @@
+"""The public Python API: load a style, render it, check it. Typed results, no command line.
+
+>>> import compose
+>>> style = compose.load_style("styles/coast.toml", overrides={"map.pixel": 60})
+>>> result = compose.render(style, "out")           # files written; result.report, .outputs
+>>> report = compose.check(style)                   # render in memory, nothing written
+>>> report.passed, [r.rule for r in report.failures]
+
+Each function is also importable from here (``from compose.api import render``). Errors are
+:class:`compose.errors.ComposeError` subclasses with a one-line message (a bad style is a
+:class:`compose.errors.StyleError`, a missing source a :class:`compose.errors.SourceError`).
+``compose.check`` is also the checker's package (:mod:`compose.check`): calling it checks a
+style, its attributes are the package's.
+"""
+from __future__ import annotations
+
+import sys
+import types
+from collections.abc import Callable, Mapping
+from pathlib import Path
+from typing import Any
+
+from compose.check import Report, check_style
+from compose.engine import prepare, run
+from compose.render import RenderResult, render_style
+from compose.style import Style
+from compose.style import load_style as _load_style
+
+__all__ = ["load_style", "render", "check", "Style", "RenderResult", "CheckReport"]
+
+#: The check's result: rule results, per-layer summaries, ``passed`` (see :class:`Report`).
+CheckReport = Report
+
+
+def load_style(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Style:
+    """Load, merge (``extends``) and validate the style file at ``path``.
+
+    ``overrides``: key path -> value applied before validation, e.g. ``{"map.pixel": 60,
+    "layer.coast.width": 1.2}`` (see :mod:`compose.style.overrides`).
+    """
+    return _load_style(path, overrides=overrides)
+
+
+def _style(style: Style | str | Path) -> Style:
+    return style if isinstance(style, Style) else load_style(style)
+
+
+def render(style: Style | str | Path, out_dir: str | Path, *, overwrite: bool = False,
+           proofs: bool = False, html: bool = True, legend: bool = True, check: bool = True,
+           progress: Callable[[int, int], None] | None = None,
+           mapper: Callable | None = None) -> RenderResult:
+    """Render ``style`` (a :class:`Style` or a path) into ``out_dir`` in one pass.
+
+    Writes NAME.png, NAME.tif, and unless switched off NAME.legend.png, NAME.check.json and
+    NAME.html; with ``proofs`` also NAME.proof-{gray,deutan,protan,tritan,sheet}.png. Existing
+    files are an error unless ``overwrite``. Every file is written to a temporary name and
+    renamed into place only when all succeeded. ``progress(done, total)`` is called after each
+    window; ``mapper`` runs the window tasks (e.g. an executor's ``map``).
+    """
+    return render_style(_style(style), Path(out_dir), overwrite=overwrite, proofs=proofs,
+                        html=html, legend=legend, check=check, progress=progress, mapper=mapper)
+
+
+def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | None = None,
+          mapper: Callable | None = None) -> CheckReport:
+    """Render ``style`` (a :class:`Style` or a path) in memory and check its visual hierarchy;
+    nothing is written. ``report.passed`` is False when any failure-severity rule failed."""
+    style = _style(style)
+    prepared = prepare(style)
+    try:
+        stats = run(prepared, [], progress=progress, mapper=mapper)
+        return check_style(style, stats, prepared.ramps)
+    finally:
+        prepared.close()
+
+
+class _CheckPackage(types.ModuleType):
+    """The :mod:`compose.check` package, callable as :func:`check`."""
+
+    def __call__(self, style: Style | str | Path, **options: Any) -> CheckReport:
+        return check(style, **options)
+
+
+sys.modules["compose.check"].__class__ = _CheckPackage

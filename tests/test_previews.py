@@ -1,0 +1,49 @@
+"""Layer previews gathered during the one render pass (compose.previews)."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from compose.canvas import Canvas
+from compose.engine import ArraySink, prepare, run
+from compose.output.thumb import BoxThumbnail
+from compose.previews import LayerPreviews, block_sums
+from compose.style import load_style
+from tests.test_engine import tiny_region  # noqa: F401  (the fixture)
+
+
+@pytest.mark.parametrize("row0, col0, k", [(0, 0, 3), (5, 7, 3), (1024, 2048, 4), (3, 1, 1),
+                                           (0, 0, 7)])
+def test_block_sums_match_a_pixel_by_pixel_sum(row0, col0, k):
+    # reference: every pixel added to its block of the canvas grid one by one (np.add.at)
+    planes = np.random.default_rng(1).random((3, 70, 50)).astype(np.float32)
+    r, c, sums = block_sums(planes, row0, col0, k)
+    rows, cols = (row0 + np.arange(70)) // k, (col0 + np.arange(50)) // k
+    ref = np.zeros((3, rows.max() + 1, cols.max() + 1))
+    np.add.at(ref, (slice(None), rows[:, None], cols[None, :]), planes)
+    assert (r, c) == (row0 // k, col0 // k)
+    np.testing.assert_allclose(sums, ref[:, r:, c:].transpose(1, 2, 0), atol=1e-4)
+
+
+def test_previews_from_small_windows_equal_the_box_averaged_map(tiny_region):
+    """Windows of 37 px (not a multiple of the block size 4) cut blocks; their partial sums
+    add up to the box average of the finished map, and the first layer alone is the stack."""
+    style = load_style(tiny_region)
+    prepared = prepare(style)
+    try:
+        canvas: Canvas = prepared.canvas
+        previews = LayerPreviews(canvas.width, canvas.height, len(prepared.layers),
+                                 tuple(style.map.background), factor=4)
+        sink = ArraySink(canvas)
+        run(prepared, [sink], window=37, previews=previews)
+    finally:
+        prepared.close()
+    thumb = BoxThumbnail(canvas.width, canvas.height, 4)
+    thumb.rows(0, sink.image)
+    images = previews.images()
+    assert len(images) == len(prepared.layers) >= 2
+    final = images[-1][1].astype(int)
+    assert np.abs(final - thumb.image().astype(int)).max() <= 1      # rounding of 8-bit rows
+    np.testing.assert_array_equal(images[0][0], images[0][1])
+    # a later layer alone differs from the stack up to it (the layers below are missing)
+    assert (images[1][0] != images[1][1]).any()
