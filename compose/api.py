@@ -21,7 +21,6 @@ from pathlib import Path
 from typing import Any
 
 from compose.check import Report, check_style
-from compose.engine import prepare, run
 from compose.render import RenderResult, render_style
 from compose.style import Style
 from compose.style import load_style as _load_style
@@ -65,6 +64,8 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
           mapper: Callable | None = None) -> CheckReport:
     """Render ``style`` (a :class:`Style` or a path) in memory and check its visual hierarchy;
     nothing is written. ``report.passed`` is False when any failure-severity rule failed."""
+    from compose.engine import prepare, run   # looked up per call (tests may replace them)
+
     style = _style(style)
     prepared = prepare(style)
     try:
