@@ -187,17 +187,21 @@ def write_proofs(style, out_dir: Path, *, overwrite: bool = False,
     """
     from compose.check import check_style
     from compose.engine import prepare, run
-    from compose.output.atomic import atomic_path, check_writable
+    from compose.output.transaction import OutputSet
     from compose.caution import CAUTION
 
     t0 = time.perf_counter()
     paths = proof_paths(style, out_dir)
-    check_writable(list(paths.values()), overwrite)
-    run_ = prepare(style)
+    outputs = OutputSet(paths, overwrite=overwrite, name=style.name)
+    try:
+        run_ = prepare(style)
+    except BaseException:
+        outputs.close()
+        raise
     try:
         canvas = run_.canvas
         with contextlib.ExitStack() as stack:
-            tmp = {k: stack.enter_context(atomic_path(p)) for k, p in paths.items()}
+            tmp = outputs.temporaries()
             sink = ProofSink({p: tmp[p] for p in PROOFS}, canvas.width, canvas.height, canvas.dpi)
             try:
                 stats = run(run_, [sink], progress=progress)
@@ -208,8 +212,10 @@ def write_proofs(style, out_dir: Path, *, overwrite: bool = False,
             report = check_style(style, stats, run_.ramps)
             title = getattr(style.map, "title", "") or style.name
             write_sheet(tmp["sheet"], sink.thumbnails(), title, CAUTION)
+        outputs.commit()
         seconds = dict(run_.seconds)
         seconds["total"] = time.perf_counter() - t0
         return ProofResult(paths, canvas.width, canvas.height, seconds, report)
     finally:
         run_.close()
+        outputs.close()

@@ -6,8 +6,8 @@ with a ``[page]``, NAME.pdf, NAME.svg and NAME.page.png (:mod:`compose.page`).
 One walk over the windows (:func:`compose.engine.run`) feeds every output: the PNG and GeoTIFF
 writers, the proof writers, a box-averaged copy of the map and the per-layer previews for the
 page; the check reads the walk's merged statistics and the page is a pure function of all that
-(:func:`compose.output.html.page_html`). Every file goes to a temporary name and is renamed into
-place only when everything succeeded.
+(:func:`compose.output.html.page_html`). Every file goes to a temporary name and all are renamed
+into place together only when everything succeeded (:class:`compose.output.transaction.OutputSet`).
 """
 from __future__ import annotations
 
@@ -21,7 +21,7 @@ from typing import Any
 
 from compose.caution import CAUTION
 from compose.engine import prepare, run
-from compose.output.atomic import atomic_path, check_writable
+from compose.output.transaction import OutputSet
 from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
 from compose.output.png import PngWriter
@@ -105,15 +105,19 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     for key, wanted in (("legend", legend), ("check", check), ("html", html)):
         if not wanted:
             paths.pop(key)
-    check_writable(list(paths.values()), overwrite)
-    prepared = prepare(style)
+    outputs = OutputSet(paths, overwrite=overwrite, name=style.name)   # lock, leftovers, existing
+    try:
+        prepared = prepare(style)
+    except BaseException:
+        outputs.close()
+        raise
     seconds = prepared.seconds
     try:
         canvas = prepared.canvas
         tags = {"TIFFTAG_DOCUMENTNAME": style.map.title or style.name,
                 "TIFFTAG_IMAGEDESCRIPTION": CAUTION, "TIFFTAG_SOFTWARE": "compose"}
         with contextlib.ExitStack() as stack:
-            tmp = {k: stack.enter_context(atomic_path(p)) for k, p in paths.items()}
+            tmp = outputs.temporaries()
             png = _PngSink(tmp["png"], canvas.width, canvas.height, canvas.dpi)
             stack.callback(png.writer.abort)
             tif = _TiffSink(tmp["tif"], canvas, tags)
@@ -214,8 +218,10 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 seconds["total"] = t - t0
                 tmp["html"].write_text(page_html(style, result), encoding="utf-8")
                 seconds["html"] = time.perf_counter() - t
+        outputs.commit()                # every file renamed into place together
         seconds["total"] = time.perf_counter() - t0
         result.seconds = dict(seconds)
         return result
     finally:
         prepared.close()
+        outputs.close()

@@ -21,6 +21,7 @@ and a very long message is shortened.
 from __future__ import annotations
 
 import contextlib
+import errno
 import functools
 import logging
 import os
@@ -163,6 +164,15 @@ def _exit(code: int) -> None:
     sys.exit(code)
 
 
+#: errno values of an output that cannot be written: disk full, quota, read-only, file too big
+_WRITE_ERRNOS = {errno.ENOSPC, errno.EDQUOT, errno.EROFS, errno.EFBIG}
+
+
+def _disk_full(exc: BaseException) -> bool:
+    text = str(exc).lower()
+    return "no space left" in text or "free disk space" in text
+
+
 def _from_data_library(exc: BaseException) -> bool:
     """True for an exception of a data library (rasterio, fiona, pyogrio): a damaged, vanished
     or unwritable file found while reading or writing."""
@@ -206,6 +216,14 @@ def guarded(func: Callable) -> Callable:
         except Exception as exc:
             if debug_enabled():
                 traceback.print_exc()
+            if isinstance(exc, OSError) and exc.errno in _WRITE_ERRNOS:
+                _echo(f"compose: error: cannot write outputs: {one_line(exc.strerror or exc)}; "
+                      f"nothing was replaced")
+                _exit(EXIT_BAD_INPUT)
+            if _from_data_library(exc) and _disk_full(exc):
+                _echo("compose: error: cannot write outputs: no space left on the device; "
+                      "nothing was replaced")
+                _exit(EXIT_BAD_INPUT)
             if _from_data_library(exc):     # a file the checks before opening could not vet
                 _echo(f"compose: error: cannot read or write data: {one_line(exc, 400)}")
                 _exit(EXIT_BAD_INPUT)
