@@ -16,7 +16,14 @@ from tests.cli._hostile import Ended, leftovers, run_in_process, run_subprocess
 from tests.cli.test_hostile import set_map
 from tests.output._tiny import tiny_style
 
-OUTPUTS = ["tiny.check.json", "tiny.html", "tiny.legend.png", "tiny.png", "tiny.tif"]
+
+
+def outputs_of(style: Path) -> list[str]:
+    """The file names a render of ``style`` writes (every output of the set)."""
+    from compose.render import output_paths
+    from compose.style import load_style
+
+    return sorted(p.name for p in output_paths(load_style(style), Path("out")).values())
 
 
 def _mount_tmpfs(where: Path, size: str, *options: str) -> None:
@@ -100,7 +107,7 @@ def test_a_signal_mid_render_leaves_the_old_set_untouched(tmp_path, signum, code
         proc.kill()
     ended = Ended(proc.returncode, stdout, stderr)
     if proc.returncode == 0:                      # it finished before the signal arrived
-        assert sorted(os.listdir(out)) == OUTPUTS
+        assert sorted(os.listdir(out)) == outputs_of(style)
         return
     ended.assert_one_line(code, "compose:")
     assert sorted(os.listdir(out)) == ["tiny.png"]
@@ -120,7 +127,7 @@ def test_two_renders_into_one_folder_never_mix(tmp_path):
     assert first.returncode == 0, stderr
     if second.code != 0:      # refused while the first held the folder
         second.assert_one_line(2, "another compose run", "tiny")
-    assert sorted(os.listdir(out)) == OUTPUTS
+    assert sorted(os.listdir(out)) == outputs_of(style)
 
 
 def test_a_source_truncated_mid_render_is_one_line_and_leaves_nothing(tmp_path):
@@ -155,7 +162,7 @@ def test_a_source_truncated_mid_render_is_one_line_and_leaves_nothing(tmp_path):
         code = exc.code
     # a source read once and kept (small files are cached whole) may render completely
     if code == 0:
-        assert sorted(os.listdir(out)) == OUTPUTS
+        assert sorted(os.listdir(out)) == outputs_of(style)
     else:
         assert code == 2
         assert leftovers(out) == []
@@ -172,7 +179,7 @@ def test_a_source_removed_mid_render_gives_a_whole_set_or_nothing(tmp_path):
     finally:
         proc.kill()
     if proc.returncode == 0:          # the open file stays readable until closed (POSIX)
-        assert sorted(os.listdir(out)) == OUTPUTS
+        assert sorted(os.listdir(out)) == outputs_of(style)
     else:
         Ended(proc.returncode, stdout, stderr).assert_one_line(2)
         assert leftovers(out) == []
