@@ -242,11 +242,13 @@ def _ramp_users(style, ramps) -> list[tuple[object, list[str]]]:
 
 
 def _ramps_section(style, ramps) -> str:
+    from compose.ramps import RampLimits
     from compose.ramps.figure import ramp_figure
 
     figs = []
+    limits = RampLimits.from_budgets(style.budgets)   # the same limits the check table judged by
     for ramp, users in _ramp_users(style, ramps):
-        fig = ramp_figure(ramp, ramps)
+        fig = ramp_figure(ramp, ramps, limits=limits, budgets=style.budgets)
         figs.append(_figure(figure_uri(fig, dpi=96), f"ramp <code>{esc(ramp.name)}</code>, "
                             f"drawn by {esc(', '.join(users))}", f"ramp {ramp.name}"))
     if not figs:
