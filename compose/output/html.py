@@ -209,12 +209,13 @@ def _layers_section(previews, style, result, report, ramps) -> str:
             except KeyError:
                 s = None
         if s is not None and ctx is not None:
-            from compose.output.html_plots import budget_figure
+            from compose.output.html_plots import budget_svg
+            from compose.output.svg import svg_uri
             what = ("contrast against what lies beneath" if spec.role == "overlay"
                     else "L* and C* against the budget")
             mine = [r for r in results if r.rule in BUDGET_RULES]
             ok = all(r.passed for r in mine) if mine else None
-            cells.append(_figure(figure_uri(budget_figure(spec, s, ctx, ok), dpi=150), esc(what),
+            cells.append(_figure(svg_uri(budget_svg(spec, s, ctx, ok)), esc(what),
                                  f"budget plot of {spec.name}", figure_cls="plot"))
         unplaced = (result.unplaced_labels or {}).get(spec.name, [])
         cards.append(f'<article class="layer" id="layer-{i + 1}"><header><h3>{i + 1}. '
@@ -242,18 +243,19 @@ def _ramp_users(style, ramps) -> list[tuple[object, list[str]]]:
 
 
 def _ramps_section(style, ramps) -> str:
-    from compose.ramps import RampLimits
-    from compose.ramps.figure import ramp_figure
+    from compose.output.html_plots import ramp_svg
+    from compose.output.svg import svg_uri
 
     figs = []
-    limits = RampLimits.from_budgets(style.budgets)   # the same limits the check table judged by
     for ramp, users in _ramp_users(style, ramps):
-        fig = ramp_figure(ramp, ramps, limits=limits, budgets=style.budgets)
-        figs.append(_figure(figure_uri(fig, dpi=96), f"ramp <code>{esc(ramp.name)}</code>, "
-                            f"drawn by {esc(', '.join(users))}", f"ramp {ramp.name}"))
+        figs.append(_figure(svg_uri(ramp_svg(ramp, ramp.lut())),
+                            f"ramp <code>{esc(ramp.name)}</code>, drawn by {esc(', '.join(users))}",
+                            f"ramp {ramp.name}"))
     if not figs:
         return '<p class="note">No layer draws through a ramp.</p>'
-    return f'<div class="ramps">{"".join(figs)}</div>'
+    return (f'<div class="ramps">{"".join(figs)}</div><p class="note">Each ramp\'s colours as '
+            "drawn, with L* and C*ab along the data value. The full diagnostic figure (proofs, "
+            "evenness, differences, rule results): <code>compose ramp NAME --plot FILE</code>.</p>")
 
 
 def _facts(style, result) -> str:

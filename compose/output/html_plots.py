@@ -1,4 +1,4 @@
-"""Per-layer budget plots for the HTML proof page (matplotlib object interface, no pyplot).
+"""Per-layer budget plots for the HTML review page, drawn as SVG (:mod:`compose.output.svg`).
 
 * ground and theme layers: the layer's own colours in the C*-L* plane (CIELAB, D65), one dot per
   distinct colour in that colour, its area proportional to the pixels it covers; the budget
@@ -20,18 +20,12 @@ from compose.check.stats import CONTRAST_STEP, N_CONTRAST
 from compose.color.lab import lab_to_srgb, srgb_to_lch, xyz_to_lab
 from compose.color import interface as ui
 from compose.color.wcag import relative_luminance
+from compose.output.svg import Figure, nice_ticks
 
-__all__ = ["budget_figure", "lightness_chroma_figure", "overlay_figure", "ground_reserve"]
+__all__ = ["budget_svg", "lightness_chroma_svg", "overlay_svg", "ramp_svg", "ground_reserve"]
 
 INK, MUTED, BOX, GRID = ui.INK.hex, ui.MUTED.hex, ui.ACCENT.hex, ui.GRID.hex
-FIG_W, FIG_H = 4.2, 3.3     # inches
-
-
-def _axes_style(ax) -> None:
-    for side in ("top", "right"):
-        ax.spines[side].set_visible(False)
-    ax.tick_params(labelsize=8, colors=INK)
-    ax.grid(True, color=GRID, lw=0.6, zorder=0)
+FIG_W, FIG_H = 420, 330     # CSS pixels
 
 
 def _lightness_of_y(y: float) -> float:
@@ -48,21 +42,29 @@ def ground_reserve(ctx) -> float | None:
     return (max(values) + float(ctx.budgets.theme.margin)) if values else None
 
 
-def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
-    """The C*-L* plot of a ground or theme layer with its budget (see the module docstring)."""
-    from matplotlib.figure import Figure
-    from matplotlib.patches import Rectangle
+def _hex(rgb) -> str:
+    return "#" + "".join(f"{int(round(float(v) * 255)):02x}" for v in np.clip(rgb, 0, 1))
 
+
+def _title(fig: Figure, text: str, passed: bool | None, note: str = "") -> None:
+    fig.text(8, 16, text, 11, INK)
+    if passed is not None:   # the verdict in a mark and a word, not by colour alone
+        fig.text(FIG_W - 8, 16, ui.verdict_mark(passed), 11, ui.verdict_color(passed).hex,
+                 anchor="end", weight="bold")
+    if note:
+        fig.text(8, 31, note, 9, MUTED)
+
+
+def lightness_chroma_svg(spec, s, ctx, passed: bool | None) -> str:
+    """The C*-L* plot of a ground or theme layer with its budget (see the module docstring)."""
     theme = spec.role == "theme"
     colors, weights = s.colors_and_weights(data_only=theme)
     keep = weights > 0
     colors, weights = colors[keep], weights[keep]
-    fig = Figure(figsize=(FIG_W, FIG_H), dpi=110)
-    ax = fig.add_axes((0.13, 0.14, 0.82, 0.7))
-    _axes_style(ax)
+    fig = Figure(FIG_W, FIG_H, ui.PAPER.hex)
     if colors.shape[0] == 0:
-        ax.text(0.5, 0.5, "nothing drawn", transform=ax.transAxes, ha="center", color=MUTED)
-        return fig
+        fig.text(FIG_W / 2, FIG_H / 2, "nothing drawn", 11, MUTED, anchor="middle")
+        return fig.svg()
     lch = srgb_to_lch(colors / 255.0)
     (l5, _, l95), (c5, c50, c95) = s.lightness_chroma(data_only=theme)
     gb, tb = ctx.budgets.ground, ctx.budgets.theme
@@ -70,54 +72,47 @@ def lightness_chroma_figure(spec, s, ctx, passed: bool | None):
     xmax = max(40.0, float(lch[:, 1].max()) * 1.2,
                (gb.chroma[1] * 2.5) if spec.role == "ground" else 0.0,
                (reserve or 0) * 1.25, (tb.chroma[0] * 1.3) if theme and tb.chroma_min_stated else 0)
-    order = np.argsort(weights)
-    share = weights / weights.sum()
-    size = 6 + 220 * np.sqrt(share / share.max())
-    ax.scatter(lch[order, 1], lch[order, 0], s=size[order], c=colors[order] / 255.0,
-               edgecolors=ui.DOT_EDGE.hex, linewidths=0.3, zorder=3)
+    ax = fig.axes(56, 52, FIG_W - 14, FIG_H - 46, (0, xmax), (0, 100))
+    ax.frame(nice_ticks(0, xmax), [0, 20, 40, 60, 80, 100], "chroma C*ab", "lightness L*", INK,
+             GRID)
     verdict = ui.verdict_color(passed).hex
-    ax.add_patch(Rectangle((c5, l5), max(c95 - c5, 0.15), l95 - l5, fill=False, ls=":",
-                           edgecolor=verdict, lw=1.2, zorder=4))
     if spec.role == "ground":
         lo, hi = gb.lightness
-        ax.add_patch(Rectangle((0, lo), gb.chroma[1], hi - lo, facecolor=BOX, alpha=0.07, zorder=1))
-        ax.add_patch(Rectangle((0, lo), gb.chroma[1], hi - lo, fill=False, edgecolor=BOX,
-                               lw=1.1, ls="--", zorder=2))
-        ax.text(gb.chroma[1], hi + 1.5, f" budget L* {lo:g}–{hi:g}, C* ≤ {gb.chroma[1]:g}",
-                fontsize=7, color=BOX, va="bottom", ha="left" if gb.chroma[1] < xmax * 0.5 else "right")
+        ax.rect(0, lo, gb.chroma[1], hi, fill=BOX, opacity=0.07)
+        ax.rect(0, lo, gb.chroma[1], hi, stroke=BOX, width=1.3, dash="5 3")
+        right = gb.chroma[1] < xmax * 0.5
+        ax.text(gb.chroma[1], min(hi, 97), f" budget L* {lo:g}–{hi:g}, C* ≤ {gb.chroma[1]:g}", 9,
+                BOX, anchor="start" if right else "end", dy=-3)
         title = f"L* p5–p95 {l5:.1f}–{l95:.1f}   C* p95 {c95:.1f}"
     elif theme:
         if reserve is not None:
-            ax.axvspan(0, reserve, color=ui.SHADE.hex, alpha=0.12, zorder=1, lw=0)
-            ax.text(reserve / 2, 3, "kept for\nthe ground", fontsize=6.5, color=MUTED, ha="center",
-                    va="bottom")
+            ax.rect(0, 0, reserve, 100, fill=ui.SHADE.hex, opacity=0.12)
+            ax.text(reserve / 2, 4, "kept for the ground", 8, MUTED, anchor="middle")
         cmax = float(tb.chroma[1])
         if cmax <= xmax:
-            ax.axvline(cmax, color=BOX, ls="--", lw=1.1)
-            ax.text(cmax, 101, f"max p95 {cmax:g}", fontsize=7, color=BOX, ha="right", va="bottom")
+            ax.vline(cmax, BOX, 1.3, "5 3")
+            ax.text(cmax, 100, f"max p95 {cmax:g} ", 9, BOX, anchor="end", dy=-3)
         else:
-            ax.text(0.99, 1.01, f"C* max p95 {cmax:g} →", transform=ax.transAxes, fontsize=7,
-                    color=BOX, ha="right", va="bottom")
+            fig.text(FIG_W - 14, 46, f"C* max p95 {cmax:g} →", 9, BOX, anchor="end")
         if tb.chroma_min_stated:
-            ax.axvline(tb.chroma[0], color=BOX, ls="--", lw=1.1)
-            ax.text(tb.chroma[0], 101, f"min p50 {tb.chroma[0]:g}", fontsize=7, color=BOX,
-                    ha="left", va="bottom")
-        ax.plot([c50], [0.8], marker="^", ms=7, color=verdict, clip_on=False, zorder=5)
-        ax.plot([c95], [0.8], marker="^", ms=5, color=verdict, mfc=ui.PAPER.hex, clip_on=False, zorder=5)
+            ax.vline(tb.chroma[0], BOX, 1.3, "5 3")
+            ax.text(tb.chroma[0], 100, f" min p50 {tb.chroma[0]:g}", 9, BOX, dy=-3)
         title = f"C* p50 {c50:.1f} (▲)   p95 {c95:.1f} (△)   L* {l5:.0f}–{l95:.0f}"
     else:
         title = f"L* p5–p95 {l5:.1f}–{l95:.1f}   C* p95 {c95:.1f}"
-    ax.set_xlim(0, xmax)
-    ax.set_ylim(0, 100)
-    ax.set_xlabel("chroma C*ab", fontsize=8.5, color=INK)
-    ax.set_ylabel("lightness L*", fontsize=8, color=INK)
-    fig.text(0.02, 0.965, title, fontsize=8, color=INK, va="top")
-    if passed is not None:   # the verdict in a mark and a word, not by colour alone
-        fig.text(0.98, 0.965, ui.verdict_mark(passed), fontsize=8, color=verdict, va="top",
-                 ha="right", weight="bold")
-    fig.text(0.02, 0.905, "dots: the layer's colours, area ∝ pixels; dotted: measured p5–p95",
-             fontsize=6.5, color=MUTED, va="top")
-    return fig
+    order = np.argsort(weights)
+    share = weights / weights.sum()
+    radius = 1.4 + 8.5 * np.sqrt(share / share.max())      # area proportional to pixels
+    edge = ui.DOT_EDGE.hex
+    for i in order[-600:]:                                   # the 600 largest are plenty
+        ax.dot(float(lch[i, 1]), float(lch[i, 0]), float(radius[i]), _hex(colors[i] / 255.0),
+               edge, 0.4)
+    ax.rect(c5, l5, max(c95, c5 + 0.15), l95, stroke=verdict, width=1.4, dash="2 2")
+    if theme:
+        ax.marker(c50, 0, 5, verdict)
+        ax.marker(c95, 0, 4, verdict, filled=False)
+    _title(fig, title, passed, "dots: the layer's colours, area ∝ pixels; dotted: measured p5–p95")
+    return fig.svg()
 
 
 def _gray(L: np.ndarray) -> np.ndarray:
@@ -134,78 +129,55 @@ def _failing_band(y_fig: float, limit: float) -> tuple[float, float]:
     return lo, hi
 
 
-def _bars(ax, left: np.ndarray, width: np.ndarray, height: np.ndarray, colors, edge: str,
-          lw: float, label: str | None = None) -> None:
-    """Bars from 0 to ``height`` as one collection (one artist draws ~50x faster than a patch
-    per bar, which is what ``Axes.bar`` makes)."""
-    from matplotlib.collections import PolyCollection
-
-    right = left + width
-    verts = np.stack([np.stack([left, np.zeros_like(height)], -1), np.stack([left, height], -1),
-                      np.stack([right, height], -1), np.stack([right, np.zeros_like(height)], -1)],
-                     axis=1)
-    ax.add_collection(PolyCollection(verts, facecolors=colors, edgecolors=edge, linewidths=lw,
-                                     zorder=2, label=label))
-    ax.set_ylim(0, max(float(np.max(height)) if height.size else 0.0, 1e-9) * 1.05)
-
-
-def overlay_figure(spec, s, j: dict | None, passed: bool | None):
+def overlay_svg(spec, s, j: dict | None, passed: bool | None) -> str:
     """Beneath-L* histogram and contrast histogram of an overlay's judged part (``j`` from
     :func:`compose.check.legibility.judge`; None when nothing was drawn)."""
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(FIG_W, FIG_H), dpi=110)
+    fig = Figure(FIG_W, FIG_H, ui.PAPER.hex)
     if j is None or j["fig"].beneath_lightness is None:
-        fig.text(0.5, 0.5, "nothing drawn; not measured", ha="center", color=MUTED)
-        return fig
+        fig.text(FIG_W / 2, FIG_H / 2, "nothing drawn; not measured", 11, MUTED, anchor="middle")
+        return fig.svg()
     part = j["fig"]
     rgb = part.colors[0] / 255.0
     y = float(relative_luminance(rgb))
     L = float(srgb_to_lch(rgb)[0])
     limit = j["limit"]
     verdict = ui.verdict_color(passed).hex
-    a1 = fig.add_axes((0.12, 0.58, 0.84, 0.27))
-    _axes_style(a1)
     hist = np.asarray(part.beneath_lightness, dtype=float)
     total = hist.sum()
-    x = np.arange(hist.size)
+    pct = 100 * hist / max(total, 1e-12)
+    top = max(float(pct.max()), 1e-9) * 1.08
+    a1 = fig.axes(50, 48, FIG_W - 14, 150, (0, 100), (0, top))
+    a1.frame([0, 20, 40, 60, 80, 100], nice_ticks(0, top, 3),
+             f"L* beneath the {j['part']} (shaded: contrast < {limit:g}:1)", "% pixels", INK, GRID, 9)
     lo, hi = _failing_band(y, limit)
-    a1.axvspan(lo, hi, color=ui.FAIL.hex, alpha=0.09, lw=0, zorder=1)
-    _bars(a1, x - 0.5, np.ones(x.size), 100 * hist / max(total, 1e-12), _gray(x.astype(float)),
-          ui.BAR_EDGE.hex, 0.4, label=f"beneath the {j['part']}")
+    a1.rect(lo, 0, hi, top, fill=ui.FAIL.hex, opacity=0.09)
+    x = np.arange(hist.size, dtype=float)
+    grays = [_hex(g) for g in _gray(x)]
+    a1.bars(x - 0.5, x + 0.5, pct, grays, ui.BAR_EDGE.hex, 0.4)
     if j["outline"] is not None and j["outline"].beneath_lightness is not None:
         oh = np.asarray(j["outline"].beneath_lightness, dtype=float)
         scale = (hist.max() / max(total, 1e-12)) / max(oh.max() / max(oh.sum(), 1e-12), 1e-12)
-        a1.step(x, 100 * scale * oh / max(oh.sum(), 1e-12), where="mid", color=BOX, lw=0.9,
-                zorder=3, label=f"beneath the {j['outline_name']} (scaled to the same peak)")
-        a1.legend(fontsize=6.5, frameon=True, framealpha=0.9, edgecolor="none", loc="best")
-    a1.axvline(L, color=rgb, lw=2.4, zorder=4)
-    a1.axvline(L, color=INK, lw=0.5, zorder=5)
-    a1.text(L, 1.02, f"{j['part']} L* {L:.0f}", transform=a1.get_xaxis_transform(), fontsize=7,
-            ha="center", va="bottom", color=INK)
-    a1.set_xlim(0, 100)
-    a1.set_xlabel(f"L* of what lies beneath the {j['part']} (shaded: contrast < {limit:g}:1)",
-                  fontsize=8, color=INK)
-    a1.set_ylabel("% pixels", fontsize=8, color=INK)
-    a2 = fig.add_axes((0.12, 0.14, 0.84, 0.24))
-    _axes_style(a2)
+        a1.polyline(np.repeat(x, 2) + np.tile([-0.5, 0.5], x.size),
+                    np.repeat(100 * scale * oh / max(oh.sum(), 1e-12), 2), BOX, 1.1)
+        fig.text(8, 34, f"line: L* beneath the {j['outline_name']} (scaled to the same peak)", 9,
+                 BOX)
+    a1.vline(L, _hex(rgb), 3.0)
+    a1.vline(L, INK, 0.6)
+    a1.text(L, top, f"{j['part']} L* {L:.0f}", 9, INK, anchor="middle", dy=-3)
     c = np.asarray(part.contrast if part.contrast is not None else np.zeros(N_CONTRAST), float)
     edges = np.geomspace(1.0, 21.0, 61)
     ratio = 1.0 + np.arange(N_CONTRAST) * CONTRAST_STEP + CONTRAST_STEP / 2
     coarse, _ = np.histogram(ratio, bins=edges, weights=c)
     coarse = 100 * coarse / max(c.sum(), 1e-12)
     mids = np.sqrt(edges[:-1] * edges[1:])
-    _bars(a2, edges[:-1], np.diff(edges), coarse,
-          np.where(mids >= limit, ui.PASS_LIGHT.hex, ui.FAIL_LIGHT.hex), ui.PAPER.hex, 0.3)
-    a2.axvline(limit, color=INK, lw=0.9, ls="--")
-    a2.set_xscale("log")
-    a2.set_xlim(1, 21)
-    ticks = [1, 1.5, 2, 3, 4.5, 7, 10, 21]
-    a2.set_xticks(ticks, [f"{t:g}" for t in ticks])
-    a2.minorticks_off()
-    a2.set_xlabel(f"WCAG contrast of the {j['part']} against what lies beneath", fontsize=7.5,
-                  color=INK)
-    a2.set_ylabel("% pixels", fontsize=8, color=INK)
+    ctop = max(float(coarse.max()), 1e-9) * 1.08
+    a2 = fig.axes(50, 205, FIG_W - 14, FIG_H - 44, (1, 21), (0, ctop), xlog=True)
+    a2.frame([1, 1.5, 2, 3, 4.5, 7, 10, 21], nice_ticks(0, ctop, 3),
+             f"WCAG contrast of the {j['part']} against what lies beneath", "% pixels", INK, GRID, 9)
+    good, bad = ui.PASS_LIGHT.hex, ui.FAIL_LIGHT.hex
+    a2.bars(edges[:-1], edges[1:], coarse, [good if m >= limit else bad for m in mids],
+            ui.PAPER.hex, 0.3)
+    a2.vline(limit, INK, 1.0, "4 3")
     share = j["share"]
     text = (f"{share:.1%} reach {limit:g}:1 (need {j['need']:.0%})" if share == share
             else "no pixels measured")
@@ -213,15 +185,56 @@ def overlay_figure(spec, s, j: dict | None, passed: bool | None):
         text += f"; passes by its {j['outline_name']} ({j['casing']:.1%})"
     if passed is not None:   # the verdict in a mark as well as a colour
         text = f"{ui.MARKS['pass' if passed else 'fail']} {text}"
-    fig.text(0.02, 0.965, text, fontsize=8, color=verdict, va="top", weight="bold")
-    return fig
+    fig.text(8, 18, text, 11, verdict, weight="bold")
+    return fig.svg()
 
 
-def budget_figure(spec, s, ctx, passed: bool | None):
-    """The budget plot of one layer: overlays by contrast, the rest in the C*-L* plane."""
+def budget_svg(spec, s, ctx, passed: bool | None) -> str:
+    """The budget plot of one layer as SVG text: overlays by contrast, the rest in the C*-L*
+    plane."""
     if spec.role == "overlay":
         from compose.check.legibility import judge
         j = judge(ctx, spec, s)
         if j is not None:
-            return overlay_figure(spec, s, j, passed)
-    return lightness_chroma_figure(spec, s, ctx, passed)
+            return overlay_svg(spec, s, j, passed)
+    return lightness_chroma_svg(spec, s, ctx, passed)
+
+
+RAMP_W, RAMP_H = 420, 250   # CSS pixels
+
+
+def ramp_svg(ramp, lut) -> str:
+    """A ramp as the page shows it: the drawn colours (its lookup table ``lut``) and, for a
+    continuous or stepped ramp, its L* and C*ab along the data value; a qualitative ramp as
+    swatches with their class values. The full diagnostic figure is ``compose ramp --plot``."""
+    n = lut.n
+    rgb = np.asarray(lut.rgb8[:n], dtype=float) / 255.0
+    values = np.asarray(lut.values[:n], dtype=float)
+    fig = Figure(RAMP_W, RAMP_H if ramp.kind != "qualitative" else 90, ui.PAPER.hex)
+    fig.text(8, 16, f"{ramp.name} ({ramp.kind})", 11, INK, weight="bold")
+    if ramp.kind == "qualitative":
+        w = (RAMP_W - 16) / max(n, 1)
+        ax = fig.axes(8, 26, RAMP_W - 8, 60, (0, n), (0, 1))
+        for i in range(n):
+            ax.rect(i, 0, i + 1, 1, fill=_hex(rgb[i]), stroke=ui.PAPER.hex, width=1.5)
+            if w > 22:
+                ax.text(i + 0.5, 0, f"{values[i]:g}", 9, INK, anchor="middle", dy=13)
+        return fig.svg()
+    lo, hi = (float(v) for v in ramp.domain)
+    edges = np.asarray(lut.edges, dtype=float)           # (n + 1,) interval edges
+    strip = fig.axes(48, 26, RAMP_W - 14, 52, (lo, hi), (0, 1))
+    for i in range(n):
+        strip.rect(float(edges[i]), 0, float(edges[i + 1]), 1, fill=_hex(rgb[i]),
+                   stroke=_hex(rgb[i]), width=0.6)
+    lch = srgb_to_lch(rgb)
+    ax = fig.axes(48, 66, RAMP_W - 14, RAMP_H - 44, (lo, hi), (0, 100))
+    ax.frame(nice_ticks(lo, hi, 5), [0, 25, 50, 75, 100], "data value",
+             "L* / C*ab", INK, GRID, 9)
+    xs = values if not lut.stepped else np.repeat(edges, 2)[1:-1]
+    ls = lch[:, 0] if not lut.stepped else np.repeat(lch[:, 0], 2)
+    cs = lch[:, 1] if not lut.stepped else np.repeat(lch[:, 1], 2)
+    ax.polyline(xs, ls, INK, 1.6)
+    ax.polyline(xs, cs, BOX, 1.6)
+    fig.text(RAMP_W - 14, 16, "L*", 10, INK, anchor="end", weight="bold")
+    fig.text(RAMP_W - 34, 16, "C*ab", 10, BOX, anchor="end", weight="bold")
+    return fig.svg()

@@ -28,13 +28,20 @@ class BoxThumbnail:
         if self.k == 1:
             self.sum[row0:row0 + rgb8.shape[0]] += rgb8
             return
-        rows = (row0 + np.arange(rgb8.shape[0])) // self.k
-        starts = np.concatenate([[0], np.nonzero(np.diff(rows))[0] + 1])
-        # rows first, then columns with the column axis moved to the front: every reduction
-        # runs over whole contiguous rows (reduceat along the last axes is ~10x slower)
-        rs = np.add.reduceat(rgb8, starts, axis=0, dtype=np.float32)          # (nr, w, 3)
-        cs = np.add.reduceat(np.ascontiguousarray(rs.transpose(1, 0, 2)), self.cols, axis=0)
-        self.sum[rows[starts]] += cs.transpose(1, 0, 2)
+        k, n = self.k, rgb8.shape[0]
+        off = row0 % k
+        nr = -(-(off + n) // k)
+        width = self.cols.size * k
+        padded = np.zeros((nr * k, width, 3), dtype=np.float32)   # whole blocks; zeros add nothing
+        padded[off:off + n, :rgb8.shape[1]] = rgb8
+        # sums of k strided views (rows, then columns): ~10x faster than np.add.reduceat here
+        rows = padded[0::k].copy()
+        for i in range(1, k):
+            rows += padded[i::k]
+        sums = rows[:, 0::k].copy()
+        for i in range(1, k):
+            sums += rows[:, i::k]
+        self.sum[row0 // k:row0 // k + nr] += sums
 
     rows = add
 
