@@ -24,7 +24,7 @@ import numpy as np
 from compose.color.interface import MARKS
 from compose.caution import CAUTION
 from compose.output.html_css import CSS
-from compose.output.html_images import PROOF_WIDTH, box_reduce, figure_uri, jpeg_uri, png_uri
+from compose.output.html_images import PROOF_WIDTH, box_reduce, jpeg_uri, png_uri
 
 __all__ = ["write_html", "page_html", "html_path", "sorted_results"]
 
