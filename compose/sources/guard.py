@@ -31,7 +31,7 @@ from compose.errors import ComposeError, SourceError
 from compose.limits import MAX_PATH_CHARS, current_limits
 
 __all__ = ["is_remote", "read_regular_file", "check_source", "configure_gdal", "RASTER_DRIVERS",
-           "VECTOR_DRIVERS", "GDAL_CONFIG", "allowed_drivers", "refuse_driver", "check_crs"]
+           "VECTOR_DRIVERS", "GDAL_CONFIG", "allowed_drivers", "refuse_driver", "check_crs", "gdal_name"]
 
 #: Raster formats a source may be in when remote and virtual sources are not allowed: formats
 #: whose dataset is one file (or a file with fixed sidecars) and that never fetch anything.
@@ -48,13 +48,20 @@ VECTOR_DRIVERS = ("GPKG", "ESRI Shapefile", "GeoJSON", "GeoJSONSeq", "FlatGeobuf
 #: GDAL configuration set for every run (environment, read by GDAL when it needs an option).
 GDAL_CONFIG = {
     "GDAL_VRT_ENABLE_RAWRASTERBAND": "NO",      # a VRT raw band reads any file as pixels
+    "GDAL_VRT_RAWRASTERBAND_ALLOWED_SOURCE": "SIBLING_OR_CHILD_OF_VRT_PATH",   # GDAL >= 3.10
+    "GDAL_VRT_ENABLE_PYTHON": "NO",             # no Python code run from a VRT's pixel functions
+    "VRT_ALLOW_MEM_DRIVER": "NO",               # no raw memory addresses from a VRT
     "GDAL_DISABLE_READDIR_ON_OPEN": "EMPTY_DIR",  # opening a file does not list its folder
     "GDAL_HTTP_TIMEOUT": "30",                  # seconds, for allowed remote sources
     "GDAL_HTTP_CONNECTTIMEOUT": "10",
     "GDAL_HTTP_MAX_RETRY": "0",
 }
 
+#: How much of a GDAL XML wrapper is searched for raw bands (bytes).
+MAX_WRAPPER_BYTES = 16 << 20
 _URL = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]*://")
+# a URL whose "//" a Path folded: "https:/host/x.tif"
+_FOLDED = re.compile(r"\b(https?|ftps?|s3|gs|file):/(?!/)", re.I)
 # driver-prefixed connection strings GDAL and OGR accept instead of a file name
 _PREFIX = re.compile(r"^[A-Za-z][A-Za-z0-9_]*:(?![\\/])")
 # the start of a GDAL XML wrapper: VRT, OGR VRT, WMS / TMS / WMTS service descriptions
@@ -74,8 +81,17 @@ def is_remote(source: str) -> bool:
     """True when ``source`` names something other than a plain local file: a URL, a ``/vsi*``
     virtual path or a driver-prefixed connection string (``WMS:...``, ``GPKG:...``)."""
     text = str(source).strip()
-    return bool(_URL.match(text) or text.startswith("/vsi") or (_PREFIX.match(text) and
-                                                                  not re.match(r"^[A-Za-z]:", text)))
+    return bool(_URL.match(text) or text.startswith("/vsi") or _FOLDED.match(text)
+                or (_PREFIX.match(text) and not re.match(r"^[A-Za-z]:", text)))
+
+
+def gdal_name(source: str | Path) -> str:
+    """The name to hand GDAL for ``source``: as written, with the ``//`` of a URL restored
+    where a :class:`~pathlib.Path` folded it (``/vsicurl/https:/host`` -> ``https://host``)."""
+    text = str(source)
+    if not is_remote(text):
+        return text
+    return _FOLDED.sub(r"\1://", text)
 
 
 def _reason(exc: OSError) -> str:
@@ -144,6 +160,15 @@ def _looks_like_wrapper(path: str) -> bool:
     return stripped.startswith(b"<") and bool(_XML_ROOTS.search(head))
 
 
+def _has_raw_band(path: str) -> bool:
+    try:
+        with open(path, "rb") as f:
+            text = f.read(MAX_WRAPPER_BYTES)
+    except OSError:
+        return False
+    return b"vrtrawrasterband" in text.lower()
+
+
 def check_source(source: str | Path, where: str, key: str = "source") -> bool:
     """Check a source before it is opened; True when only the plain local formats
     (:func:`allowed_drivers`) may open it, False when the run allows remote sources.
@@ -163,6 +188,9 @@ def check_source(source: str | Path, where: str, key: str = "source") -> bool:
     if st.st_size == 0:
         raise SourceError(f"{where}: {key} is an empty file: {text}")
     if _looks_like_wrapper(text):
+        if _has_raw_band(text):      # refused in any case: a raw band reads any file as pixels
+            raise SourceError(f"{where}: {key} {text} is a VRT with a raw band "
+                              f"(VRTRawRasterBand), which can read any file as pixels; refused")
         if allow:
             return False
         raise SourceError(f"{where}: {key} {text} is a GDAL XML wrapper (VRT or tile service) "

@@ -53,7 +53,7 @@ from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.grid import transform_grid
 from compose.sources.resample import sample
-from compose.sources.guard import check_crs, check_source, refuse_driver
+from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
 
 __all__ = ["RESAMPLING", "SHRINK_LIMIT", "RasterSource", "cell_size_metres"]
 
@@ -122,7 +122,7 @@ class RasterSource:
         where = f'layer "{layer}"'
         local_only = check_source(path, where, key)
         try:
-            ds = rasterio.open(path if isinstance(path, str) else self.path)
+            ds = rasterio.open(gdal_name(path))
         except (RasterioError, OSError) as exc:
             raise SourceError(f"{where}: cannot read {self.path}: {_first_line(exc)} (damaged, "
                               f"truncated or not a raster)") from None
