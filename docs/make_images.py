@@ -18,4 +18,8 @@ for name in ("coast", "sea-warmth", "change", "cover", "poor"):
 sheet = Image.open(src / "coast.proof-sheet.png").convert("RGB")
 sheet.thumbnail((1100, 400), Image.LANCZOS)
 sheet.quantize(colors=256, dither=Image.Dither.NONE).save(dst / "coast.proof-sheet.png", optimize=True)
+page = Image.open(src / "coast.page.png").convert("RGB")     # the finished page, as printed
+page.thumbnail((1200, 860), Image.LANCZOS)
+page.quantize(colors=256, method=Image.Quantize.MEDIANCUT, dither=Image.Dither.NONE).save(
+    dst / "coast.page.png", optimize=True)
 print("written to", dst)

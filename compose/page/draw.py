@@ -117,15 +117,21 @@ class _Page:
                                         facecolor=self.ink if i % 2 == 0 else self.paper,
                                         edgecolor=self.ink, lw=0.4, zorder=3))
         step = bar.length / bar.segments
-        marks = [0, bar.segments] if bar.segments % 2 else [0, bar.segments // 2, bar.segments]
+        # every boundary labelled while they stay 6 mm apart, else the ends and the middle
+        marks = list(range(bar.segments + 1))
+        if seg < 6.0:
+            marks = [0, bar.segments] if bar.segments % 2 else [0, bar.segments // 2, bar.segments]
         for i in marks:
-            v = step * i
-            label = f"{v:g}" + (f" {bar.unit}" if i == bar.segments else "")
-            self.text(x0 + i * seg, top - 0.8, label.replace("-", "\u2212"), 6.5,
-                      ha="center" if i < bar.segments else "left", va="bottom", zorder=3)
+            self.text(x0 + i * seg, top - 0.8, f"{step * i:g}".replace("-", "\u2212"), 6.5,
+                      ha="center", va="bottom", zorder=3)
+        self.text(x0 + bar.length_mm + 2.2, top + 0.7, bar.unit, 6.5, ha="left", va="center",
+                  zorder=3)
         lines = []
         if self.page.scale is not None:
             lines.append(f"Scale 1:{self.page.scale:,.0f}".replace(",", "\u2009"))
+        elif bar.ratio > 0:
+            n = float(f"{bar.ratio:.2g}")
+            lines.append(f"Scale about 1:{n:,.0f} at the map centre".replace(",", "\u2009"))
         if bar.note:
             lines.append(f"Scale {bar.note}")
         for k, s in enumerate(lines):

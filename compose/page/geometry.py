@@ -140,7 +140,8 @@ def nice_length(limit: float) -> float:
 class ScaleBar:
     """A scale bar: ``length_mm`` on paper stands for ``length`` ``unit`` on the ground, cut in
     ``segments`` equal parts; ``metres`` is that length in metres; ``note`` says where the scale
-    holds when it varies across the map (empty otherwise)."""
+    holds when it varies across the map (empty otherwise); ``ratio`` is n of the true scale 1:n
+    at the map centre."""
 
     length_mm: float
     length: float
@@ -148,6 +149,7 @@ class ScaleBar:
     segments: int
     metres: float
     note: str
+    ratio: float = 0.0
 
 
 def _latitude(lat: float) -> str:
@@ -179,7 +181,8 @@ def scale_bar(canvas: Canvas, frame_width_mm: float, max_mm: float,
     if _crs(canvas.crs).is_geographic or spread > 0.005:
         _, lat = _to_lonlat(canvas.crs).transform(cx, cy)
         note = f"true at {_latitude(float(lat))} (map centre); varies by up to {spread:.0%}"
-    return ScaleBar(metres / m_per_mm, float(length), unit, segments, float(metres), note)
+    return ScaleBar(metres / m_per_mm, float(length), unit, segments, float(metres), note,
+                    m_per_mm * 1000.0)
 
 
 def grid_lines(canvas: Canvas, crs: str | None, step: float, samples: int = 128
