@@ -69,18 +69,25 @@ _SCRIPT = r"""
 })();
 """
 
-_CSS = """
-body { margin: 0; font: 14px/1.4 "DejaVu Sans", sans-serif; color: #262626; background: #f4f4f2; }
-header { padding: 8px 14px; }
-h1 { font-size: 17px; margin: 0; }
-#view { position: relative; overflow: hidden; height: calc(100vh - 96px); background: #e9e9e6;
-        cursor: grab; border-top: 1px solid #c9c9c6; border-bottom: 1px solid #c9c9c6; }
-#tiles img { position: absolute; width: 256px; height: 256px; user-select: none; }
-#bar { position: absolute; top: 10px; right: 10px; display: flex; gap: 4px; align-items: center; }
-#bar button { width: 30px; height: 30px; font-size: 18px; background: #ffffff; color: #262626;
-              border: 1px solid #6b6b6b; border-radius: 3px; cursor: pointer; }
-#zoom { background: #ffffff; padding: 3px 6px; border: 1px solid #6b6b6b; border-radius: 3px; }
-footer { padding: 4px 14px; font-size: 12px; }
+def _css() -> str:
+    """The page's style sheet, in the interface colours (:mod:`compose.color.interface`)."""
+    from compose.color import interface as ui
+
+    return f"""
+body {{ margin: 0; font: 14px/1.4 "DejaVu Sans", sans-serif; color: {ui.INK.hex};
+        background: {ui.SURROUND.hex}; }}
+header {{ padding: 8px 14px; }}
+h1 {{ font-size: 17px; margin: 0; }}
+#view {{ position: relative; overflow: hidden; height: calc(100vh - 96px); background: {ui.PANEL.hex};
+        cursor: grab; border-top: 1px solid {ui.RULE.hex}; border-bottom: 1px solid {ui.RULE.hex}; }}
+#tiles img {{ position: absolute; width: 256px; height: 256px; user-select: none; }}
+#bar {{ position: absolute; top: 10px; right: 10px; display: flex; gap: 4px; align-items: center; }}
+#bar button {{ width: 30px; height: 30px; font-size: 18px; background: {ui.PAPER.hex};
+              color: {ui.INK.hex}; border: 1px solid {ui.MUTED.hex}; border-radius: 3px;
+              cursor: pointer; }}
+#zoom {{ background: {ui.PAPER.hex}; padding: 3px 6px; border: 1px solid {ui.MUTED.hex};
+        border-radius: 3px; }}
+footer {{ padding: 4px 14px; font-size: 12px; }}
 """
 
 
@@ -97,7 +104,7 @@ def viewer_html(style, bounds, zooms: list[int], counts: dict[int, int],
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8"><title>{html.escape(title)} -- tiles</title>
 <meta name="viewport" content="width=device-width, initial-scale=1">
-<style>{_CSS}</style></head>
+<style>{_css()}</style></head>
 <body>
 <header><h1>{html.escape(title)}</h1>
 <div>{sum(counts.values())} tiles, zooms {", ".join(f"{z} ({n})" for z, n in counts.items())};
