@@ -29,7 +29,7 @@ from compose.measure import WindowMeasure, new_statistics
 from compose.previews import LayerPreviews, PreviewTiles, block_sums
 from compose.style.kinds import layer_class
 
-__all__ = ["Sink", "Prepared", "WindowResult", "prepare", "run", "render_window", "ArraySink",
+__all__ = ["Sink", "Prepared", "WindowResult", "WindowTask", "prepare", "run", "render_window", "ArraySink",
            "preview_canvas", "render_array", "WINDOW"]
 
 WINDOW = 1024  # core pixels per window side
@@ -214,6 +214,27 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     return WindowResult(window, rgb8, stats, tiles, base)
 
 
+@dataclass(frozen=True)
+class WindowTask:
+    """The window task of one walk: ``task(window) -> WindowResult``. ``options`` are the
+    keyword arguments of :func:`render_window` besides the prepared render, for mappers that run
+    the task elsewhere (another process or machine, with a render prepared there)."""
+
+    prepared: Prepared
+    measure: bool = True
+    preview_factor: int | None = None
+    only: frozenset[int] | None = None
+    below: int | None = None
+
+    @property
+    def options(self) -> dict[str, Any]:
+        return {"measure": self.measure, "preview_factor": self.preview_factor, "only": self.only,
+                "below": self.below}
+
+    def __call__(self, window: Window) -> WindowResult:
+        return render_window(self.prepared, window, **self.options)
+
+
 def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: int = WINDOW,
         progress: Callable[[int, int], None] | None = None,
         only: frozenset[int] | None = None, previews: LayerPreviews | None = None,
@@ -222,7 +243,8 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
 
     ``only``: indices into ``prepared.layers`` to draw (default all); ``previews``: a
     :class:`LayerPreviews` to add every window's preview tiles to; ``mapper``: a ``map``-like
-    callable (``mapper(func, windows)``, results in order, e.g. an executor's ``map``) running
+    callable (``mapper(task, windows)`` with ``task`` a :class:`WindowTask`, results in order,
+    e.g. an executor's ``map``, or :mod:`compose.parallel`'s process and cluster mappers) running
     the window tasks (default: one after another in this thread).
     """
     canvas = prepared.canvas
@@ -236,9 +258,7 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
     band = under = None
     below = next((s.below for s in sinks if getattr(s, "below", None) is not None), None)
 
-    def task(win: Window) -> WindowResult:
-        return render_window(prepared, win, measure=measure, preview_factor=k, only=only,
-                             below=below)
+    task = WindowTask(prepared, measure=measure, preview_factor=k, only=only, below=below)
 
     def feed(row0, rows, rows_below):
         nonlocal encode

@@ -20,7 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from compose.caution import CAUTION
-from compose.engine import prepare, run
+from compose.engine import WINDOW, prepare, run
 from compose.output.transaction import OutputSet
 from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
@@ -91,14 +91,16 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  progress: Callable[[int, int], None] | None = None,
                  extra_sinks: list | None = None, legend: bool = True, check: bool = True,
                  html: bool = True, proofs: bool = False,
-                 mapper: Callable | None = None) -> RenderResult:
+                 mapper: Callable | None = None, window: int | None = None) -> RenderResult:
     """Render ``style`` into ``out_dir`` in one walk; nothing is left half-written if anything
     fails.
 
     ``legend`` / ``check`` / ``html``: also write NAME.legend.png / NAME.check.json / NAME.html;
     ``proofs``: also the grey and colour-vision proofs and their contact sheet
     (NAME.proof-*.png); ``extra_sinks``: more row sinks fed by the walk; ``mapper``: runs the
-    window tasks (see :func:`compose.engine.run`); ``progress(done, total)`` after each window.
+    window tasks (see :func:`compose.engine.run` and :mod:`compose.parallel`); ``window``: window
+    side in pixels (default :data:`compose.engine.WINDOW`); ``progress(done, total)`` after each
+    window.
     """
     t0 = time.perf_counter()
     paths = output_paths(style, out_dir, proofs=proofs)
@@ -154,7 +156,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                                                tuple(style.map.background))
                 sinks.append(page_map)
             stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
-                        previews=layer_previews, mapper=mapper)
+                        previews=layer_previews, mapper=mapper, window=window or WINDOW)
             t = time.perf_counter()
             png_bg.finish()
             tif_bg.finish()

@@ -49,14 +49,25 @@ def print_summary(result) -> None:
               help="Folder for NAME.png, NAME.tif, NAME.legend.png, NAME.check.json, NAME.html.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
 @limit_options
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Processes rendering windows at once (default: every core for maps of 16 "
+                   "Mpixel or more, else 1). Outputs are the same for any number.")
+@click.option("--cluster", metavar="ADDRESS", default=None,
+              help="Render the windows on a dask.distributed scheduler (tcp://host:8786); every "
+                   "worker must reach the style's source files.")
 @handle_errors
-def command(style: Path, out_dir: Path, overwrite: bool) -> None:
+def command(style: Path, out_dir: Path, overwrite: bool, workers: int | None,
+            cluster: str | None) -> None:
     """Render STYLE to a PNG, an RGBA GeoTIFF, a legend and a check report."""
+    from compose.parallel import mapper_for
     from compose.render import render_style
     from compose.style import load_style
 
     loaded = load_style(style)
     for note in loaded.canvas_plan().notes:
         click.echo(f"note: {note}", err=True)
-    result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"))
+    canvas = loaded.canvas()
+    mapper = mapper_for(canvas.width * canvas.height, workers, cluster)
+    result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
+                          mapper=mapper)
     print_summary(result)

@@ -1,0 +1,242 @@
+"""Window tasks on every core of this machine, or on a dask.distributed cluster.
+
+The engine renders a canvas as independent window tasks (:class:`compose.engine.WindowTask`)
+and merges their results in window order (rows band by band into the sinks, statistics by
+addition). A *mapper* decides where the tasks run; both here keep a bounded number of tasks in
+flight and hand results back in order, so memory stays bounded and outputs are byte-identical
+to a one-worker render:
+
+- :class:`ProcessMapper` -- ``N`` worker processes of this machine (Agg drawing holds Python's
+  GIL, so threads would not share the work). Each worker prepares the render once from the
+  pickled style, then renders the windows it is given.
+- :class:`ClusterMapper` -- a dask.distributed scheduler (``pip install compose-maps[cluster]``).
+  The style is sent to the workers once; each worker thread prepares its own render the first
+  time it gets a window of this walk and reads the sources itself, from the same paths or URLs:
+  they must be reachable from every worker (a shared file system or object storage).
+
+Results travel packed (:func:`pack`): statistics histograms are mostly zeros and go as their
+non-zero entries.
+"""
+from __future__ import annotations
+
+import copyreg
+import io
+import os
+import pickle
+import threading
+import types
+import uuid
+from collections import deque
+from collections.abc import Callable, Iterable, Iterator
+from typing import Any
+
+import numpy as np
+
+__all__ = ["ProcessMapper", "ClusterMapper", "mapper_for", "pack", "unpack", "ordered",
+           "default_workers", "window_task", "AUTO_PIXELS"]
+
+#: Canvases from this many pixels up use every core when no worker count is given (below it,
+#: starting worker processes costs more than it saves; measured by bench/render.py).
+AUTO_PIXELS = 4096 * 4096
+
+
+# --- pickling -------------------------------------------------------------------------------
+
+def _mapping_proxy(d: dict) -> types.MappingProxyType:
+    return types.MappingProxyType(d)
+
+
+# styles are frozen: their tables are read-only mapping proxies, which pickle as plain dicts
+copyreg.pickle(types.MappingProxyType, lambda m: (_mapping_proxy, (dict(m),)))
+
+
+def _sparse_array(shape, dtype, index, values) -> np.ndarray:
+    out = np.zeros(shape, dtype)
+    out.reshape(-1)[index] = values
+    return out
+
+
+class _Packer(pickle.Pickler):
+    def reducer_override(self, obj):
+        if type(obj) is np.ndarray and obj.size >= 1024 and obj.dtype.kind in "fiu":
+            flat = obj.reshape(-1)
+            index = np.flatnonzero(flat)
+            if index.size * 3 < flat.size:        # mostly zeros: send the non-zero entries
+                small = np.uint32 if flat.size < 2**32 else np.int64
+                return _sparse_array, (obj.shape, obj.dtype, index.astype(small), flat[index])
+        return NotImplemented
+
+
+def pack(obj: Any) -> bytes:
+    """Pickle ``obj`` with mostly-zero numeric arrays sent as their non-zero entries."""
+    buf = io.BytesIO()
+    _Packer(buf, protocol=pickle.HIGHEST_PROTOCOL).dump(obj)
+    return buf.getvalue()
+
+
+def unpack(data: bytes) -> Any:
+    """The object :func:`pack` packed."""
+    return pickle.loads(data)
+
+
+# --- ordering -------------------------------------------------------------------------------
+
+def ordered(submit: Callable[[Any], Any], items: Iterable, in_flight: int,
+            result: Callable[[Any], Any] = lambda f: f.result()) -> Iterator:
+    """Submit ``items`` (``submit(item) -> future``) keeping at most ``in_flight`` unfinished,
+    and yield their results in the order of ``items``."""
+    pending: deque = deque()
+    try:
+        for item in items:
+            pending.append(submit(item))
+            while len(pending) >= max(1, in_flight):
+                yield result(pending.popleft())
+        while pending:
+            yield result(pending.popleft())
+    finally:
+        for f in pending:
+            f.cancel()
+
+
+def default_workers() -> int:
+    """Every core this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:              # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+# --- the worker side --------------------------------------------------------------------------
+
+_local = threading.local()          # per worker thread: {walk key: Prepared}
+
+
+def _prepared(key: str, payload: bytes):
+    cache = getattr(_local, "prepared", None)
+    if cache is None:
+        cache = _local.prepared = {}
+    if key not in cache:
+        from compose.engine import prepare
+
+        for old in cache.values():      # one walk at a time per worker thread
+            old.close()
+        cache.clear()
+        style, canvas = unpack(payload)
+        cache[key] = prepare(style, canvas=canvas)
+    return cache[key]
+
+
+def window_task(key: str, payload: bytes, window, options: dict) -> bytes:
+    """Render one window where this runs: ``payload`` is the packed (style, canvas) of the walk
+    ``key`` (prepared once per worker thread); returns the packed WindowResult."""
+    from compose.engine import render_window
+
+    return pack(render_window(_prepared(key, payload), window, **options))
+
+
+_POOL_WALK: tuple[str, bytes] | None = None
+
+
+def _pool_init(key: str, payload: bytes) -> None:
+    global _POOL_WALK
+    _POOL_WALK = (key, payload)
+
+
+def _pool_task(window, options: dict) -> bytes:
+    assert _POOL_WALK is not None
+    return window_task(_POOL_WALK[0], _POOL_WALK[1], window, options)
+
+
+def _walk_payload(task) -> tuple[str, bytes]:
+    prepared = task.prepared
+    return uuid.uuid4().hex, pack((prepared.style, prepared.canvas))
+
+
+# --- mappers ----------------------------------------------------------------------------------
+
+class ProcessMapper:
+    """Run window tasks on ``workers`` processes of this machine (``mapper(task, windows)``).
+
+    ``in_flight``: windows submitted and not yet handed back (default 2 per worker).
+    """
+
+    def __init__(self, workers: int, in_flight: int | None = None):
+        self.workers = max(1, int(workers))
+        self.in_flight = in_flight or 2 * self.workers
+
+    def __call__(self, task, windows: Iterable) -> Iterator:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        key, payload = _walk_payload(task)
+        ctx = multiprocessing.get_context("forkserver")
+        ctx.set_forkserver_preload(["compose.engine", "compose.parallel"])
+        options = task.options
+        with ProcessPoolExecutor(self.workers, mp_context=ctx, initializer=_pool_init,
+                                 initargs=(key, payload)) as pool:
+            yield from ordered(lambda w: pool.submit(_pool_task, w, options), windows,
+                               self.in_flight, lambda f: unpack(f.result()))
+
+
+class ClusterMapper:
+    """Run window tasks on a dask.distributed cluster (``mapper(task, windows)``).
+
+    ``address``: the scheduler's address (``tcp://host:8786``) or a ``distributed.Client``;
+    ``in_flight``: windows submitted and not yet handed back (default 2 per worker thread, at
+    least 4). Finished rows go to the writers in order, so the client holds at most
+    ``in_flight`` windows.
+    """
+
+    def __init__(self, address, in_flight: int | None = None):
+        self.address = address
+        self.in_flight = in_flight
+
+    def __call__(self, task, windows: Iterable) -> Iterator:
+        try:
+            from distributed import Client
+        except ImportError:
+            from compose.errors import ComposeError
+
+            raise ComposeError("--cluster needs dask.distributed: pip install "
+                               "'compose-maps[cluster]'") from None
+        own = not isinstance(self.address, Client)
+        if own:
+            try:
+                client = Client(self.address, timeout=30)
+            except (OSError, TimeoutError, ValueError) as exc:
+                from compose.errors import ComposeError
+
+                raise ComposeError(f"--cluster: cannot reach the scheduler at {self.address}: "
+                                   f"{str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__}") from None
+        else:
+            client = self.address
+        try:
+            key, payload = _walk_payload(task)
+            [shared] = client.scatter([payload], broadcast=True, hash=False)
+            threads = sum(client.nthreads().values()) or 1
+            in_flight = self.in_flight or max(4, 2 * threads)
+            options = task.options
+
+            def submit(window):
+                return client.submit(window_task, key, shared, window, options, pure=False)
+
+            def result(future):
+                data = future.result()
+                future.release()
+                return unpack(data)
+
+            yield from ordered(submit, windows, in_flight, result)
+        finally:
+            if own:
+                client.close()
+
+
+def mapper_for(pixels: int, workers: int | None = None, cluster=None):
+    """The mapper for a render of ``pixels`` pixels: a :class:`ClusterMapper` for ``cluster``;
+    else a :class:`ProcessMapper` for ``workers`` > 1 (None: every core, for canvases of at least
+    :data:`AUTO_PIXELS`); None (this thread) otherwise."""
+    if cluster:
+        return ClusterMapper(cluster)
+    if workers is None:
+        workers = default_workers() if pixels >= AUTO_PIXELS else 1
+    return ProcessMapper(workers) if workers > 1 else None
