@@ -26,7 +26,7 @@ from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
 from compose.output.png import PngWriter
 
-__all__ = ["RenderResult", "render_style", "output_paths", "CAUTION"]
+__all__ = ["RenderResult", "render_style", "output_paths", "nodata_seen", "CAUTION"]
 
 
 @dataclass
@@ -66,6 +66,13 @@ class _TiffSink:
 
     def rows(self, row0, rgb8):
         self.writer.write(row0, 0, rgb8)
+
+
+def nodata_seen(stats) -> set[str] | None:
+    """Names of the layers with no-data pixels on the map (None without statistics)."""
+    if stats is None:
+        return None
+    return {s.name for s in stats.layers if s.nodata_weight > 0}
 
 
 def output_paths(style, out_dir: Path, *, proofs: bool = False) -> dict[str, Path]:
@@ -177,7 +184,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             if page_sink is not None:
                 from compose.page.write import write_page
 
-                page_seconds, layout = write_page(style, prepared, page_sink, tmp)
+                page_seconds, layout = write_page(style, prepared, page_sink, tmp,
+                                                  nodata_seen(stats))
                 seconds.update({f"page {k}": v for k, v in page_seconds.items()})
             if check or html:
                 from compose.check import check_style
@@ -197,7 +205,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 from compose.output.legend import legend_png as draw_legend
 
                 t = time.perf_counter()
-                legend_png = draw_legend(style, prepared.ramps, prepared.layers)
+                legend_png = draw_legend(style, prepared.ramps, prepared.layers,
+                                         nodata_seen=nodata_seen(stats))
                 if legend:
                     tmp["legend"].write_bytes(legend_png)
                 seconds["legend"] = time.perf_counter() - t

@@ -27,7 +27,7 @@ from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, 
                                           FAMILY_ROW, FONT, FRAME, GAP, INK, KEY_PATCH, MARGIN,
                                           MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT, TITLE_H, TOP,
                                           WIDTH, BarBox, LegendLayout, _Classes, _fmt, _marks,
-                                          _nodata_swatches, _Overlays, _ramp_of, _Ramps, _rgb,
+                                          _Overlays, _ramp_of, _Ramps, _rgb,
                                           legend_layout, pretty_name)
 
 __all__ = ["write_legend", "legend_png", "legend_figure", "draw_legend", "legend_layout",
@@ -45,7 +45,7 @@ def _ticks(block: _Ramps, values: np.ndarray, xs: np.ndarray) -> list[tuple[floa
         edges = list(values)
         step = max(1, int(np.ceil((len(edges) - 1) / 9)))
         keep = sorted(set(range(0, len(edges), step)) | {len(edges) - 1})
-        return [(float(np.interp(edges[i], values, xs)), _fmt(edges[i])) for i in keep]
+        return [(float(np.interp(edges[i], values, xs)), block.fmt(edges[i])) for i in keep]
     from matplotlib.ticker import MaxNLocator
     lo, hi = float(values[0]), float(values[-1])
     nice = [v for v in MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
@@ -53,7 +53,7 @@ def _ticks(block: _Ramps, values: np.ndarray, xs: np.ndarray) -> list[tuple[floa
     fixed = [lo, hi] + [v for v, _ in _marks(_ramp_of(block.layers[0]))]
     close = 0.1 * (hi - lo)
     ticks = sorted(set(fixed) | {v for v in nice if all(abs(v - f) >= close for f in fixed)})
-    return [(float(np.interp(v, values, xs)), _fmt(v)) for v in ticks] if span > 0 else []
+    return [(float(np.interp(v, values, xs)), block.fmt(v)) for v in ticks] if span > 0 else []
 
 
 def _bar_image(lut, box: BarBox) -> np.ndarray:
@@ -111,7 +111,7 @@ def _draw_ramps(ax, b: _Ramps, y: float, boxes: list[BarBox]) -> None:
         ax.plot([x], [bar_top - 0.045], marker="v", ms=3.6, color=INK, zorder=4)
         ax.text(x, bar_top - 0.085, text, fontsize=FONT - 1, color=INK, ha="center", va="bottom")
     y_sw = bar_bottom + AXIS_H
-    _draw_swatches(ax, _nodata_swatches(b.layers), x0 - END + END_SIGN, y_sw)
+    _draw_swatches(ax, b.swatches, x0 - END + END_SIGN, y_sw)
 
 
 def _draw_swatches(ax, swatches, x: float, y: float) -> None:
@@ -139,10 +139,10 @@ def _draw_classes(ax, b: _Classes, y: float) -> None:
             continue
         ax.add_patch(Rectangle((indent, yy + 0.03), 0.3, 0.145, facecolor=_rgb(item.rgb),
                                edgecolor=FRAME, lw=0.4))
-        ax.text(indent + 0.38, yy + 0.1, item.label or _fmt(item.value), fontsize=FONT,
+        ax.text(indent + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
                 color=INK, va="center")
         yy += CLASS_ROW
-    _draw_swatches(ax, _nodata_swatches([b.layer]), indent, yy + 0.04)
+    _draw_swatches(ax, b.swatches, indent, yy + 0.04)
 
 
 def _draw_overlays(ax, b: _Overlays, y: float, width: float = WIDTH,
@@ -215,25 +215,28 @@ def draw_legend(ax, layout: LegendLayout, key_patch=KEY_PATCH) -> None:
     ax.set_ylim(layout.height, 0)
 
 
-def legend_figure(style, ramps, layers):
-    """The legend as a matplotlib Figure (and its :class:`LegendLayout`)."""
+def legend_figure(style, ramps, layers, nodata_seen: set[str] | None = None):
+    """The legend as a matplotlib Figure (and its :class:`LegendLayout`); ``nodata_seen``: see
+    :func:`legend_layout`."""
     from matplotlib.figure import Figure
 
-    layout = legend_layout(style, ramps, layers)
+    layout = legend_layout(style, ramps, layers, nodata_seen=nodata_seen)
     fig = Figure(figsize=(layout.width, layout.height), dpi=DPI, facecolor=PAPER)
     ax = fig.add_axes((0, 0, 1, 1))
     draw_legend(ax, layout)
     return fig, layout
 
 
-def legend_png(style, ramps, layers) -> bytes:
+def legend_png(style, ramps, layers, nodata_seen: set[str] | None = None) -> bytes:
     """The legend of the drawn ``layers`` (``Prepared.layers``) as PNG bytes.
 
-    ``ramps``: the built ramps by name (the layers carry their own); ``style``: the loaded style.
+    ``ramps``: the built ramps by name (the layers carry their own); ``style``: the loaded style;
+    ``nodata_seen``: the layers with no-data pixels on the map (only they get a no-data swatch;
+    None: every layer that draws one).
     """
     import io
 
-    fig, _ = legend_figure(style, ramps, layers)
+    fig, _ = legend_figure(style, ramps, layers, nodata_seen)
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=DPI, facecolor=PAPER)
     return buf.getvalue()

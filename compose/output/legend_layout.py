@@ -3,6 +3,7 @@ and where each colour bar lies in the PNG (:class:`BarBox`, :func:`legend_layout
 from __future__ import annotations
 
 import re
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -84,6 +85,8 @@ class _Ramps:
     title: str
     labels: list[str]
     height: float = 0.0
+    fmt: Callable[[float], str] = _fmt
+    swatches: list = field(default_factory=list)
 
 
 @dataclass
@@ -92,6 +95,8 @@ class _Classes:
     title: str
     rows: list[tuple[str, object]] = field(default_factory=list)   # ("family", name) | ("class", c)
     height: float = 0.0
+    fmt: Callable[[float], str] = _fmt
+    swatches: list = field(default_factory=list)
 
 
 @dataclass
@@ -141,11 +146,37 @@ def _titles(names: list[str]) -> tuple[str, list[str]]:
     return " / ".join(pretty_name(n) for n in names), [pretty_name(n) for n in names]
 
 
-def _nodata_swatches(layers) -> list[tuple[str, np.ndarray]]:
-    """(label, rgb8) of the no-data colours drawn by these layers (transparent ones left out)."""
+def _key(layer):
+    """The layer's ``legend`` key table (None for kinds without one)."""
+    return getattr(getattr(layer.spec, "options", None), "legend", None)
+
+
+def _formatter(layer) -> Callable[[float], str]:
+    """The layer's number format (``legend.format``) or the default :func:`_fmt`."""
+    key = _key(layer)
+    if key is None or not key.format:
+        return _fmt
+    spec = key.format
+    return lambda v: format(float(v), spec).replace("-", "\u2212")
+
+
+def _key_title(layer, default: str) -> str:
+    """``legend.title`` (or ``default``) with ``legend.units`` in brackets after it."""
+    key = _key(layer)
+    title = key.title if key is not None and key.title else default
+    if key is not None and key.units:
+        title = f"{title} ({key.units})"
+    return title
+
+
+def _nodata_swatches(layers, seen: set[str] | None = None) -> list[tuple[str, np.ndarray]]:
+    """(label, rgb8) of the no-data colours drawn by these layers (transparent ones left out;
+    with ``seen``, only for the layers named in it: those with no-data pixels on the map)."""
     out: list[tuple[str, np.ndarray]] = []
     for layer in layers:
         if getattr(layer, "transparent_nodata", False):
+            continue
+        if seen is not None and layer.spec.name not in seen:
             continue
         pal = getattr(layer, "palette", None)
         if pal is None or pal.nodata < 0:
@@ -168,8 +199,9 @@ def _marks(ramp) -> list[tuple[float, str]]:
     return marks
 
 
-def _blocks(layers) -> list:
-    """Legend blocks in style order: colour-bar groups, class lists, then the overlays."""
+def _blocks(layers, seen: set[str] | None = None) -> list:
+    """Legend blocks in style order: colour-bar groups, class lists, then the overlays.
+    ``seen``: the layers with no-data pixels on the map (None: assume every layer has some)."""
     blocks: list = []
     groups: dict[frozenset, _Ramps] = {}
     overlays = []
@@ -179,7 +211,8 @@ def _blocks(layers) -> list:
         if spec.kind in ("lines", "areas", "points", "labels"):
             overlays.append(layer)
         elif ramp is not None and ramp.kind == "qualitative":
-            blocks.append(_Classes(layer, pretty_name(spec.name)))
+            blocks.append(_Classes(layer, _key_title(layer, pretty_name(spec.name)),
+                                   fmt=_formatter(layer)))
         elif ramp is not None and getattr(layer, "lut", None) is not None:
             key = _group_key(layer)
             hit = next((g for k, g in groups.items() if k & key), None)
@@ -190,25 +223,30 @@ def _blocks(layers) -> list:
     for b in blocks:
         if isinstance(b, _Ramps):
             b.title, b.labels = _titles([la.spec.name for la in b.layers])
+            b.title = _key_title(b.layers[0], b.title)
+            b.fmt = _formatter(b.layers[0])
             marks = _marks(_ramp_of(b.layers[0]))
             n = len(b.layers)
-            swatches = _nodata_swatches(b.layers)
+            swatches = b.swatches = _nodata_swatches(b.layers, seen)
             b.height = (TITLE_H + (MARK_H if marks else 0.04) + n * BAR_H + (n - 1) * BAR_GAP
                         + AXIS_H + (SWATCH_ROW if swatches else 0.0))
         else:
             ramp = _ramp_of(b.layer)
+            key = _key(b.layer)
+            shown = [c for c in ramp.classes
+                     if key is None or key.show is None or float(c.value) in key.show]
             families: list[str] = []
-            for c in ramp.classes:
+            for c in shown:
                 if c.family and c.family not in families:
                     families.append(c.family)
             for fam in families:
                 b.rows.append(("family", fam))
-                b.rows += [("class", c) for c in ramp.classes if c.family == fam]
-            loose = [c for c in ramp.classes if not c.family]
+                b.rows += [("class", c) for c in shown if c.family == fam]
+            loose = [c for c in shown if not c.family]
             if loose and families:
                 b.rows.append(("family", "other"))
             b.rows += [("class", c) for c in loose]
-            swatches = _nodata_swatches([b.layer])
+            swatches = b.swatches = _nodata_swatches([b.layer], seen)
             b.height = (TITLE_H + sum(FAMILY_ROW if k == "family" else CLASS_ROW for k, _ in b.rows)
                         + (SWATCH_ROW + 0.04 if swatches else 0.0) + 0.04)
     if overlays:
@@ -246,10 +284,12 @@ def _shared_scale(block: _Ramps, x0, x1) -> tuple[np.ndarray, np.ndarray]:
     return np.array([lo, hi]), np.array([x0, x1])
 
 
-def legend_layout(style, ramps, layers, width: float = WIDTH) -> LegendLayout:
+def legend_layout(style, ramps, layers, width: float = WIDTH,
+                  nodata_seen: set[str] | None = None) -> LegendLayout:
     """The legend's size and bar boxes (see :class:`LegendLayout`) without drawing it;
-    ``width`` in inches (a page's panel gives its own)."""
-    blocks = _blocks(layers)
+    ``width`` in inches (a page's panel gives its own); ``nodata_seen``: names of the layers with
+    no-data pixels on the map (their no-data swatches are shown; None shows every one)."""
+    blocks = _blocks(layers, nodata_seen)
     height = TOP + sum(b.height for b in blocks) + GAP * max(0, len(blocks) - 1) + BOTTOM
     if not blocks:
         height = TOP + 0.3 + BOTTOM

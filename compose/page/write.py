@@ -61,12 +61,13 @@ def _legend_width_in() -> float:
     return PANEL_WIDTH / 25.4
 
 
-def legend_for_page(style, ramps, layers):
-    """The legend's layout at the page's legend width, or None when the page has no legend."""
+def legend_for_page(style, ramps, layers, nodata_seen: set[str] | None = None):
+    """The legend's layout at the page's legend width, or None when the page has no legend;
+    ``nodata_seen``: the layers with no-data pixels (see :func:`compose.output.legend_layout`)."""
     if style.page.legend == "off":
         return None
     from compose.output.legend import legend_layout
-    return legend_layout(style, ramps, layers, width=_legend_width_in())
+    return legend_layout(style, ramps, layers, width=_legend_width_in(), nodata_seen=nodata_seen)
 
 
 def _layout(style, legend) -> PageLayout:
@@ -90,15 +91,15 @@ def stand_in(spec):
     return SimpleNamespace(spec=spec)
 
 
-def write_page(style, run_, sink: PageSink, tmp: dict[str, Path]
-               ) -> tuple[dict[str, float], PageLayout]:
+def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
+               nodata_seen: set[str] | None = None) -> tuple[dict[str, float], PageLayout]:
     """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
     returns (seconds per output, the layout)."""
     from matplotlib import rc_context
 
     from compose.page.draw import page_figure
 
-    legend = legend_for_page(style, run_.ramps, run_.layers)
+    legend = legend_for_page(style, run_.ramps, run_.layers, nodata_seen)
     layout = _layout(style, legend)
     seconds = {}
     meta_title = layout.title or style.name

@@ -129,6 +129,32 @@ class ReliefOptions:
             object.__setattr__(self, "shadow", default_shadow(self.tint))
 
 
+def _number_format(value: Any, at: Scope) -> str:
+    """A Python format spec for numbers (".1f", ".3g", ",.0f"), checked on a number."""
+    text = string()(value, at)
+    try:
+        format(1234.5, text)
+    except (ValueError, TypeError):
+        raise StyleError(f"{at.path}: {value!r} is not a number format such as '.1f' or '.3g'") from None
+    return text
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class LegendKey:
+    """``legend = { title, units, format, show }`` of a raster layer: the legend block's title
+    (default the layer name), its units (shown after the title), a number format for its values
+    (a Python format spec such as ".1f"; default up to 4 significant digits) and, for classes
+    layers, the class values to show (default all)."""
+
+    title: str | None = option(string(), None)
+    units: str = option(string(), "")
+    format: str | None = option(_number_format, None)
+    show: tuple[float, ...] | None = option(numbers(), None)
+
+
+_legend_key = table_of(LegendKey)
+
+
 @dataclass(frozen=True, slots=True, kw_only=True)
 class FieldOptions:
     """A continuous raster coloured through ``ramp``. ``nodata``: a colour, ``"transparent"``,
@@ -138,6 +164,7 @@ class FieldOptions:
     resampling: str = _resampling("bilinear")
     ramp: str = option(string())
     nodata: RGB | Literal["transparent"] | None = option(_nodata, None)
+    legend: LegendKey = option(_legend_key, factory=LegendKey)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -149,6 +176,7 @@ class ClassesOptions:
     resampling: str = _resampling("mode")
     ramp: str = option(string())
     nodata: RGB | Literal["transparent"] | None = option(_nodata, None)
+    legend: LegendKey = option(_legend_key, factory=LegendKey)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
