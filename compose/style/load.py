@@ -111,7 +111,8 @@ def _check_bounds(tables: dict) -> None:
                     raise StyleError(f"{shown}: a key of {len(k):,} characters; at most {MAX_STRING:,}")
                 todo.append((v, where + (k,)))
         elif isinstance(value, list):
-            todo.extend((v, where + (f"[{i}]",)) for i, v in enumerate(value))
+            last = where[-1] if where else ""
+            todo.extend((v, where[:-1] + (f"{last}[{i}]",)) for i, v in enumerate(value))
 
 
 def _path_string(value: Any, at: Scope) -> str:
