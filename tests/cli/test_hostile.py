@@ -256,7 +256,7 @@ def test_unsafe_map_names_are_refused(style, tmp_path, name):
     assert "\n" not in line and "\u202e" not in line
 
 
-def test_colour_string_holding_a_newline_is_one_line(style, tmp_path):
+def test_color_string_holding_a_newline_is_one_line(style, tmp_path):
     replace_in(style, 'stroke = "#2f3a44"', 'stroke = "#2f3a\\n44"')
     line = check_refused(style, tmp_path, 'layer "coast"', "stroke")
     assert "\\n" in line

@@ -106,7 +106,7 @@ def test_css_variables_hold_every_swatch():
         assert f"--{s.name}: {s.hex};" in css
 
 
-def test_no_hand_written_interface_colour_in_the_package():
+def test_no_hand_written_interface_color_in_the_package():
     # Interface colours are derived from compose.color.interface; the only hex literals left are
     # the map's own style defaults (style/kinds.py), which are style values, not interface, and
     # the examples in interface.py's docstrings.

@@ -121,14 +121,14 @@ def test_pdf_overlay_paths_land_where_the_raster_has_them(tmp_path):
     r0, c0 = int(round(fy / 25.4 * DPI * k)), int(round(fx / 25.4 * DPI * k))
     crop = page[r0:r0 + h * k, c0:c0 + w * k].reshape(h, k, w, k, 3).mean(axis=(1, 3))
     inner = (slice(3, -3), slice(3, -3))          # the neat line sits on the frame's edge
-    grey_pdf, grey_png = crop.mean(axis=2)[inner], png.mean(axis=2)[inner]
-    ink_pdf, ink_png = grey_pdf < 160, grey_png < 160
+    gray_pdf, gray_png = crop.mean(axis=2)[inner], png.mean(axis=2)[inner]
+    ink_pdf, ink_png = gray_pdf < 160, gray_png < 160
     iou = np.sum(ink_pdf & ink_png) / np.sum(ink_pdf | ink_png)
     assert ink_png.sum() > 200
     assert iou > 0.85
     # and the grey levels agree closely where either has ink (antialiasing differs slightly)
     either = ink_pdf | ink_png
-    assert np.median(np.abs(grey_pdf[either] - grey_png[either])) < 25
+    assert np.median(np.abs(gray_pdf[either] - gray_png[either])) < 25
 
 
 def test_furniture_is_judged_as_overlay(rendered):

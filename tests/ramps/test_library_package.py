@@ -60,7 +60,7 @@ def test_compose_ramps_plain_when_not_a_terminal():
     assert re.search(r"^land-growth +sequential, 0 to 12$", result.output, re.M)
 
 
-def test_compose_ramps_swatches_are_the_drawn_colours():
+def test_compose_ramps_swatches_are_the_drawn_colors():
     from compose.cli.ramps import STRIP_CELLS
     from compose.ramps import build_ramps
 
