@@ -10,6 +10,8 @@ import html
 import math
 from collections.abc import Sequence
 
+from compose.color import interface as ui
+
 __all__ = ["Figure", "Axes", "nice_ticks", "svg_uri"]
 
 FONT = "DejaVu Sans, Helvetica, Arial, sans-serif"
@@ -30,12 +32,12 @@ def _text(x: float, y: float, s: str, size: float, color: str, anchor: str = "st
 class Figure:
     """An SVG canvas of ``width`` x ``height`` CSS pixels on ``background``."""
 
-    def __init__(self, width: float, height: float, background: str = "#ffffff"):
+    def __init__(self, width: float, height: float, background: str = ui.PAPER.hex):
         self.width, self.height = width, height
         self.items: list[str] = [f'<rect width="{_f(width)}" height="{_f(height)}" '
                                  f'fill="{background}"/>']
 
-    def text(self, x: float, y: float, s: str, size: float = 11, color: str = "#000000",
+    def text(self, x: float, y: float, s: str, size: float = 11, color: str = ui.INK.hex,
              anchor: str = "start", weight: str = "normal") -> None:
         """Text with its baseline at pixel (x, y)."""
         self.items.append(_text(x, y, s, size, color, anchor, weight))
@@ -113,10 +115,10 @@ class Axes:
         """An upward triangle (not clipped: it may sit on the axis)."""
         px, py = self.x(x), self.y(y)
         pts = f"{_f(px)},{_f(py - size)} {_f(px - size)},{_f(py + size * 0.7)} {_f(px + size)},{_f(py + size * 0.7)}"
-        fill = color if filled else "#ffffff"
+        fill = color if filled else ui.PAPER.hex
         self._add(f'<polygon points="{pts}" fill="{fill}" stroke="{color}" stroke-width="1.2"/>')
 
-    def text(self, x: float, y: float, s: str, size: float = 10, color: str = "#000000",
+    def text(self, x: float, y: float, s: str, size: float = 10, color: str = ui.INK.hex,
              anchor: str = "start", dy: float = 0.0) -> None:
         self._add(_text(self.x(x), self.y(y) + dy, s, size, color, anchor))
 
