@@ -13,7 +13,7 @@ For every size it prints, from the same run:
   * the bare render (PNG + GeoTIFF + check): wall time and peak memory, compute alone with and
     without the statistics (their share), how much encoding adds beyond compute (overlap);
   * window count independence of line drawing, and reprojected against aligned reads;
-  * workers: compute with 1 and 2 workers when the command has ``--workers``.
+  * workers: compute with 1 process, 2 worker processes and a 2-worker dask LocalCluster.
 Then the 1500 x 1500 demo style (render with all outputs, ``compose check``) and the start-up
 time of ``compose --help``.
 
@@ -154,20 +154,57 @@ def child(argv: list[str], cwd: Path | None = None, env: dict | None = None) -> 
     return {"seconds": seconds, "stdout": out.decode(), "stderr": err.decode(), "code": proc.returncode}
 
 
+_SAMPLER = r"""
+import json, os, subprocess, sys, threading, time, resource
+
+def tree_rss(root):
+    # resident memory of a process and all its descendants, bytes (Linux /proc)
+    kids, rss = {}, {}
+    for d in os.listdir("/proc"):
+        if not d.isdigit():
+            continue
+        try:
+            with open(f"/proc/{d}/stat") as f:
+                fields = f.read().rsplit(")", 1)[1].split()
+            kids.setdefault(int(fields[1]), []).append(int(d))
+            rss[int(d)] = int(fields[21]) * os.sysconf("SC_PAGE_SIZE")
+        except (OSError, IndexError, ValueError):
+            pass
+    total, todo = 0, [root]
+    while todo:
+        p = todo.pop()
+        total += rss.get(p, 0)
+        todo += kids.get(p, [])
+    return total
+
+t = time.perf_counter()
+p = subprocess.Popen(sys.argv[1:], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+peak = [0]
+def watch():
+    while p.poll() is None:
+        peak[0] = max(peak[0], tree_rss(p.pid))
+        time.sleep(0.05)
+threading.Thread(target=watch, daemon=True).start()
+out, err = p.communicate()
+dt = time.perf_counter() - t
+ru = resource.getrusage(resource.RUSAGE_CHILDREN)
+sys.stderr.write(err.decode())
+print(json.dumps({"seconds": dt, "peak": max(peak[0], ru.ru_maxrss * 1024), "peak_one": ru.ru_maxrss * 1024,
+                  "code": p.returncode, "cpu": ru.ru_utime + ru.ru_stime, "out": out.decode()}))
+"""
+
+
 def timed(argv: list[str], cwd: Path | None = None) -> dict:
-    """Run a command under a small wrapper that reports its own peak memory (ru_maxrss)."""
-    wrapper = ("import os, resource, subprocess, sys, time, json\n"
-               "t = time.perf_counter()\n"
-               "p = subprocess.run(sys.argv[1:], capture_output=True)\n"
-               "dt = time.perf_counter() - t\n"
-               "ru = resource.getrusage(resource.RUSAGE_CHILDREN)\n"
-               "sys.stderr.write(p.stderr.decode())\n"
-               "print(json.dumps({'seconds': dt, 'peak': ru.ru_maxrss * 1024, 'code': p.returncode,"
-               " 'cpu': ru.ru_utime + ru.ru_stime, 'out': p.stdout.decode()}))\n")
-    res = child([sys.executable, "-c", wrapper, *argv], cwd=cwd)
+    """Run a command; wall seconds, CPU seconds and peak memory: the largest sum of resident
+    memory over the process and its children (worker processes included), sampled every 50 ms,
+    and at least the largest single process's ru_maxrss."""
+    res = child([sys.executable, "-c", _SAMPLER, *argv], cwd=cwd)
     if res["code"] != 0 or not res["stdout"].strip():
         raise RuntimeError(f"{' '.join(map(str, argv))} failed:\n{res['stderr'][-2000:]}")
-    return json.loads(res["stdout"].strip().splitlines()[-1])
+    data = json.loads(res["stdout"].strip().splitlines()[-1])
+    if data["code"] not in (0, 1):      # 1: a rule failed, the outputs are there
+        raise RuntimeError(f"{' '.join(map(str, argv))} exited {data['code']}:\n{res['stderr'][-2000:]}")
+    return data
 
 
 TASK = r"""
@@ -177,23 +214,38 @@ mode, style_path, out = sys.argv[1], Path(sys.argv[2]), Path(sys.argv[3])
 extra = json.loads(sys.argv[4]) if len(sys.argv) > 4 else {}
 from compose.style import load_style
 style = load_style(style_path)
+mapper, cluster = None, None
+workers = extra.pop("workers", None)
+if extra.pop("cluster", False):          # a LocalCluster of 2 worker processes, 1 thread each
+    from distributed import Client, LocalCluster
+    from compose.parallel import ClusterMapper
+    cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+    client = Client(cluster)
+    mapper = ClusterMapper(client)
+elif workers:
+    from compose.parallel import ProcessMapper
+    mapper = ProcessMapper(workers) if workers > 1 else None
 result = {}
 t0 = time.perf_counter()
 if mode == "bare":
     from compose.render import render_style
-    res = render_style(style, out, overwrite=True, legend=False, check=True, html=False, **extra)
+    res = render_style(style, out, overwrite=True, legend=False, check=True, html=False,
+                       mapper=mapper, **extra)
     result["seconds"] = dict(res.seconds)
 else:                                   # compute only: every window, no outputs
     from compose.engine import prepare, run
     r = prepare(style)
     try:
         t1 = time.perf_counter()
-        run(r, [], measure=(mode == "measure"), **extra)
+        run(r, [], measure=(mode == "measure"), mapper=mapper, **extra)
         result["compute"] = time.perf_counter() - t1
     finally:
         r.close()
 result["wall"] = time.perf_counter() - t0
 result["peak"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+if cluster is not None:
+    client.close()
+    cluster.close()
 print(json.dumps(result))
 """
 
@@ -203,11 +255,6 @@ def task(mode: str, style: Path, out: Path, **extra) -> dict:
     if res["code"] != 0:
         raise RuntimeError(f"task {mode} failed:\n{res['stderr'][-3000:]}")
     return json.loads(res["stdout"].strip().splitlines()[-1])
-
-
-def has_option(option: str) -> bool:
-    res = child(COMPOSE + ["render", "--help"])
-    return option in res["stdout"]
 
 
 # --- report ---------------------------------------------------------------------------------
@@ -235,31 +282,34 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  LUT gather uint16 -> RGBA32, 1 thread (2 threads)      {t_lut1:6.2f} s  ({t_lut2:.2f} s)")
     print(f"  3-layer planar f32 composite, 1 thread (2 threads)     {t_cmp1:6.2f} s  ({t_cmp2:.2f} s)")
     print(f"  GDAL read, 2 float32 rasters, deflate + predictor 3    {t_read:6.2f} s")
-    print(f"  compute floor (sum, 1 thread per kernel)               {compute_floor:6.2f} s")
+    print(f"  compute floor (sum, 1 thread per kernel)               {compute_floor:6.2f} s", flush=True)
 
-    # the default command, all outputs
+    # the default command, all outputs (default workers: every core from 16 Mpixel up)
     cmd = timed(COMPOSE + ["render", str(styles["aligned"]), "--out", str(out), "--overwrite"],
                 cwd=folder)
-    print(f"compose render (all default outputs)    {cmd['seconds']:6.2f} s wall, "
-          f"{cmd['cpu'] / cmd['seconds']:.2f} cores, peak {gb(cmd['peak'])}  (target <= 0.50 GB)")
+    print(f"compose render, all default outputs     {cmd['seconds']:6.2f} s wall, "
+          f"{cmd['cpu'] / cmd['seconds']:.2f} cores, peak {gb(cmd['peak'])} (all processes; largest "
+          f"one {gb(cmd['peak_one'])}; target <= 0.50 GB)", flush=True)
 
-    # the bare render and its parts
-    bare = task("bare", styles["aligned"], out)
+    # the bare render: PNG + GeoTIFF + check, 1 and 2 worker processes
+    bare1 = task("bare", styles["aligned"], out, workers=1)
     tif = out / "bench.tif"
     t_tif6 = floors.geotiff_write(tif, folder / "floor.tif")
     t_tif1 = floors.geotiff_write(tif, folder / "floor.tif", zlevel=1)
     t_png, png_ratio = floors.png_fast(tif)
     encode_floor = t_tif6 + t_png
+    bare2 = task("bare", styles["aligned"], out, workers=2)
     runs = 1 if quick else 2
     plain = min(task("plain", styles["aligned"], out)["compute"] for _ in range(runs))
     measured = min(task("measure", styles["aligned"], out)["compute"] for _ in range(runs))
-    total = bare["wall"]
+    total = bare1["wall"]
     beyond = total - measured
     print("floors on the rendered pixels")
     print(f"  GeoTIFF RGB write, deflate, tiled 512, ALL_CPUS (zlevel 1)  {t_tif6:6.2f} s  ({t_tif1:.2f} s)")
     print(f"  PNG: Up filter + isal level 3, 2 threads                    {t_png:6.2f} s  "
           f"(size {100 * (png_ratio - 1):+.1f} % vs zlib 6)")
-    print(f"bare render (PNG + GeoTIFF + check)     {total:6.2f} s wall, peak {gb(bare['peak'])}  "
+    print(f"bare render (PNG + GeoTIFF + check), 1 process    {total:6.2f} s wall, peak {gb(bare1['peak'])}")
+    print(f"bare render, 2 worker processes                   {bare2['wall']:6.2f} s wall  "
           f"(target <= 6 s at 8192)")
     print(f"  compute alone, measuring              {measured:6.2f} s  "
           f"({measured / compute_floor:.2f} x compute floor; target <= 1.5 x)")
@@ -269,27 +319,27 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  outputs add beyond compute            {beyond:6.2f} s  (encode floor {encode_floor:.2f} s: "
           f"{100 * max(0.0, 1 - beyond / encode_floor):.0f} % overlapped)")
     print(f"  floors summed (compute + encode)      {compute_floor + encode_floor:6.2f} s  "
-          f"(render / floors = {total / (compute_floor + encode_floor):.2f})")
-    for key, value in sorted(bare.get("seconds", {}).items()):
-        print(f"    render's own timer: {key:<14} {value:6.2f} s")
+          f"(1-process render / floors = {total / (compute_floor + encode_floor):.2f})")
+    print("  render's own timers: " + ", ".join(f"{k} {v:.2f}" for k, v in
+                                               sorted(bare1.get("seconds", {}).items())), flush=True)
 
     # lines: independent of the number of windows
     lines_1024 = task("plain", styles["lines"], out)["compute"]
     lines_512 = task("plain", styles["lines"], out, window=512)["compute"]
     print(f"lines only, compute: 1024 px windows {lines_1024:.2f} s, 512 px windows {lines_512:.2f} s "
-          f"({lines_512 / lines_1024:.2f} x for {4 if size >= 1024 else 1} x the windows); "
-          f"Agg floor {t_lines:.2f} s")
+          f"({lines_512 / lines_1024:.2f} x for 4 x the windows); Agg floor {t_lines:.2f} s")
 
     # reprojection: the same canvas size on a neighbouring UTM zone's grid
     utm = task("plain", styles["utm31"], out)["compute"]
     print(f"reprojected canvas (EPSG:32631 onto 32630 data), compute {utm:6.2f} s vs aligned "
           f"{plain:.2f} s ({utm / plain:.2f} x; target <= 2 x)")
 
-    # workers
-    if has_option("--workers"):
-        w1 = task("plain", styles["aligned"], out, workers=1)["compute"]
-        w2 = task("plain", styles["aligned"], out, workers=2)["compute"]
-        print(f"workers: compute 1 worker {w1:.2f} s, 2 workers {w2:.2f} s ({w1 / w2:.2f} x)")
+    # workers: the same walk on 2 worker processes and on a 2-worker LocalCluster
+    w2 = task("measure", styles["aligned"], out, workers=2)
+    cl = task("measure", styles["aligned"], out, cluster=True)
+    print(f"workers, compute with measuring: 1 process {measured:.2f} s, 2 worker processes "
+          f"{w2['compute']:.2f} s ({measured / w2['compute']:.2f} x), 2-worker LocalCluster "
+          f"{cl['compute']:.2f} s ({measured / cl['compute']:.2f} x)", flush=True)
     shutil.rmtree(out, ignore_errors=True)
 
 
