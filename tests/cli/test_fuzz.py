@@ -88,7 +88,7 @@ def dump(data: dict) -> str:
 _text = st.text(alphabet=st.characters(blacklist_categories=("Cs",)), max_size=40)
 _extreme = st.sampled_from([0, -1, 1, 1e308, -1e308, float("inf"), float("-inf"), float("nan"),
                             1e-300, 2**63, -(2**63) - 1, 10**30, 0.001, 1e9, 1_000_000_000, 3.5])
-_colour = st.sampled_from(["#zzz", "#12345", "#1234567", "#fff\n", "red", "", " ", "#FFF",
+_color = st.sampled_from(["#zzz", "#12345", "#1234567", "#fff\n", "red", "", " ", "#FFF",
                            "\u202e#ffffff", "#ffffff\x00", "rgb(1,2,3)"]) | st.fixed_dictionaries(
     {"L": _extreme | st.floats(-10, 110), "C": _extreme | st.floats(-10, 300),
      "h": _extreme | st.floats(-720, 720)})
@@ -120,7 +120,7 @@ def _deep(depth: int, kind: str) -> Deep:
 
 
 _scalar = st.none() | st.booleans() | st.integers() | st.floats() | _text | _extreme
-_wrong = (_scalar.filter(lambda v: v is not None) | _colour | _path
+_wrong = (_scalar.filter(lambda v: v is not None) | _color | _path
           | st.lists(_scalar.filter(lambda v: v is not None), max_size=4)
           | st.dictionaries(_text, st.integers() | _text, max_size=3)
           | st.builds(_deep, st.integers(1, 3000), st.sampled_from(["array", "table"]))
@@ -182,7 +182,7 @@ def mutation(draw, data):
     if op == "duplicate" and isinstance(parent, list):
         parent.append(copy.deepcopy(parent[p[-1]]))
         return f"duplicate {p}"[:80]
-    strategy = {"wrong": _wrong, "extreme": _extreme, "colour": _colour, "path": _path,
+    strategy = {"wrong": _wrong, "extreme": _extreme, "colour": _color, "path": _path,
                 "unicode": _text, "duplicate": _wrong}[op]
     parent[p[-1]] = draw(strategy)
     return f"{op} {p}"[:80]
