@@ -27,6 +27,7 @@ from compose.composite import composite_over
 from compose.layers.base import Context
 from compose.measure import WindowMeasure, new_statistics
 from compose.previews import LayerPreviews, PreviewTiles, block_sums
+from compose.sources.guard import as_source_error
 from compose.style.kinds import layer_class
 
 __all__ = ["Sink", "Prepared", "WindowResult", "WindowTask", "prepare", "run", "render_window", "ArraySink",
@@ -183,7 +184,13 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
         if only is not None and li not in only:
             continue
         spec = layer.spec
-        paints = layer.paint(window, transform, h, w)
+        try:
+            paints = layer.paint(window, transform, h, w)
+        except Exception as exc:        # a source that changed under us: one line, exit 2
+            error = as_source_error(exc, spec)
+            if error is exc:
+                raise
+            raise error from exc
         alone = None
         if paints:
             if meter is not None:

@@ -119,6 +119,9 @@ def quiet_libraries() -> Iterator[None]:
         logging.basicConfig(level=logging.WARNING, stream=sys.stderr)
         yield
         return
+    # GDAL prints errors raised outside rasterio's handlers straight to stderr unless told to
+    # log elsewhere; read once, when GDAL first reports
+    os.environ.setdefault("CPL_LOG", os.devnull)
     root = logging.getLogger()
     sink = logging.NullHandler()
     root.addHandler(sink)           # no handler -> logging's last resort prints to stderr

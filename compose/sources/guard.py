@@ -31,7 +31,8 @@ from compose.errors import ComposeError, SourceError
 from compose.limits import MAX_PATH_CHARS, current_limits
 
 __all__ = ["is_remote", "read_regular_file", "check_source", "configure_gdal", "RASTER_DRIVERS",
-           "VECTOR_DRIVERS", "GDAL_CONFIG", "allowed_drivers", "refuse_driver", "check_crs", "gdal_name"]
+           "VECTOR_DRIVERS", "GDAL_CONFIG", "allowed_drivers", "refuse_driver", "check_crs", "gdal_name",
+           "as_source_error"]
 
 #: Raster formats a source may be in when remote and virtual sources are not allowed: formats
 #: whose dataset is one file (or a file with fixed sidecars) and that never fetch anything.
@@ -238,3 +239,17 @@ def check_crs(wkt: str, where: str, path) -> None:
     if crs.is_engineering or not (crs.is_geographic or crs.is_projected):
         raise SourceError(f"{where}: {path} has a {crs.type_name} ({crs.name}), which cannot be "
                           f"reprojected onto the map; it needs a geographic or projected CRS")
+
+
+def as_source_error(exc: BaseException, spec) -> BaseException:
+    """A read error of a data library (rasterio, fiona, pyogrio) or the OS met while painting
+    layer ``spec`` as a one-line :class:`SourceError` naming the layer and its file (a file that
+    changed, was truncated or vanished mid-render); any other exception unchanged."""
+    library = type(exc).__module__.split(".")[0] in ("rasterio", "fiona", "pyogrio")
+    if isinstance(exc, ComposeError) or not (library or isinstance(exc, OSError)):
+        return exc
+    if isinstance(exc, OSError) and exc.errno in (errno.ENOSPC, errno.EDQUOT, errno.EROFS):
+        return exc
+    text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    return SourceError(f'layer "{spec.name}": cannot read {spec.source}: {text} (was the file '
+                       f"changed, truncated or removed while rendering?)")

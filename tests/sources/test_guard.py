@@ -149,3 +149,20 @@ def test_check_source_refuses_what_is_not_a_regular_file(tmp_path):
         check_source("/dev/zero", 'layer "x"')
     with use_limits(allow_remote=True):
         assert check_source("/vsicurl/http://h/x.tif", 'layer "x"') is False
+
+
+def test_read_errors_mid_render_name_the_layer_and_file():
+    from types import SimpleNamespace
+
+    from rasterio.errors import RasterioIOError
+
+    from compose.sources.guard import as_source_error
+
+    spec = SimpleNamespace(name="land", source=Path("/data/land.tif"))
+    error = as_source_error(RasterioIOError("Read error at row 1024"), spec)
+    assert isinstance(error, SourceError)
+    assert str(error).startswith('layer "land": cannot read /data/land.tif: Read error at row 1024')
+    bug = ZeroDivisionError("x")
+    assert as_source_error(bug, spec) is bug          # a fault of ours stays one (exit 3)
+    full = OSError(28, "No space left on device")
+    assert as_source_error(full, spec) is full        # a full disk is about outputs, not sources
