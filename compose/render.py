@@ -98,7 +98,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  progress: Callable[[int, int], None] | None = None,
                  extra_sinks: list | None = None, legend: bool = True, check: bool = True,
                  html: bool = True, proofs: bool = False,
-                 mapper: Callable | None = None, window: int | None = None) -> RenderResult:
+                 mapper: Callable | None = None, window: int | None = None,
+                 ramps: dict | None = None) -> RenderResult:
     """Render ``style`` into ``out_dir`` in one walk; nothing is left half-written if anything
     fails.
 
@@ -107,7 +108,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     (NAME.proof-*.png); ``extra_sinks``: more row sinks fed by the walk; ``mapper``: runs the
     window tasks (see :func:`compose.engine.run` and :mod:`compose.parallel`); ``window``: window
     side in pixels (default :data:`compose.engine.WINDOW`); ``progress(done, total)`` after each
-    window.
+    window; ``ramps``: built ramps to draw with instead of the style's (a series fixes shared
+    breaks).
     """
     t0 = time.perf_counter()
     paths = output_paths(style, out_dir, proofs=proofs)
@@ -116,7 +118,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             paths.pop(key)
     outputs = OutputSet(paths, overwrite=overwrite, name=style.name)   # lock, leftovers, existing
     try:
-        prepared = prepare(style)
+        prepared = prepare(style, ramps=ramps)
     except BaseException:
         outputs.close()
         raise

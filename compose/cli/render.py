@@ -1,4 +1,4 @@
-"""``compose render STYLE [--out DIR] [--overwrite]``."""
+"""``compose render STYLE... [--out DIR] [--overwrite] [--set KEY=VALUE]... [--series]``."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -8,7 +8,7 @@ import click
 from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
 
-__all__ = ["command", "print_summary", "progress_bar"]
+__all__ = ["command", "print_summary", "progress_bar", "expand_styles"]
 
 
 class progress_bar:
@@ -43,11 +43,36 @@ def print_summary(result) -> None:
         click.echo(f"  check   {verdict}")
 
 
+def expand_styles(args: tuple[Path, ...]) -> list[Path]:
+    """Style paths from the command line, glob patterns expanded (sorted); a pattern matching no
+    file is an error naming it."""
+    import glob
+
+    from compose.errors import StyleError
+
+    out: list[Path] = []
+    for arg in args:
+        text = str(arg)
+        if not arg.exists() and any(ch in text for ch in "*?["):
+            matches = sorted(glob.glob(text, recursive=True))
+            if not matches:
+                raise StyleError(f"no style file matches {text!r}")
+            out += [Path(m) for m in matches]
+        else:
+            out.append(arg)
+    return out
+
+
 @click.command("render")
-@click.argument("style", type=click.Path(path_type=Path))
+@click.argument("styles", nargs=-1, required=True, type=click.Path(path_type=Path))
 @click.option("--out", "out_dir", type=click.Path(path_type=Path), default=Path("out"), show_default=True,
               help="Folder for NAME.png, NAME.tif, NAME.legend.png, NAME.check.json, NAME.html.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@click.option("--set", "sets", multiple=True, metavar="KEY=VALUE",
+              help="Override a style key, validated like the file: map.title=\"Dry season\", "
+                   "layer.NAME.source=data/b.tif, ramp.NAME.domain=[0,10]. Repeatable.")
+@click.option("--series", is_flag=True,
+              help="Render every member of the style's [series] on shared scales, with an index page.")
 @limit_options
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Processes rendering windows at once (default: every core for maps of 16 "
@@ -56,14 +81,48 @@ def print_summary(result) -> None:
               help="Render the windows on a dask.distributed scheduler (tcp://host:8786); every "
                    "worker must reach the style's source files.")
 @handle_errors
-def command(style: Path, out_dir: Path, overwrite: bool, workers: int | None,
-            cluster: str | None) -> None:
-    """Render STYLE to a PNG, an RGBA GeoTIFF, a legend and a check report."""
+def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tuple[str, ...],
+            series: bool, workers: int | None, cluster: str | None) -> None:
+    """Render each STYLE (files or glob patterns) to a PNG, an RGBA GeoTIFF, a legend, a check
+    report and a proof page. With several styles an error in one is reported and the others
+    still render; the exit code is the worst."""
+    from compose.errors import ComposeError
+    from compose.style.overrides import parse_override
+
+    overrides = tuple(parse_override(s) for s in sets)
+    paths = expand_styles(styles)
+    run = dict(out_dir=out_dir, overwrite=overwrite, overrides=overrides, series=series,
+               workers=workers, cluster=cluster)
+    if len(paths) == 1:
+        _render_one(paths[0], **run)
+        return
+    failed = []
+    for path in paths:
+        click.echo(f"== {path}")
+        try:
+            _render_one(path, **run)
+        except ComposeError as exc:
+            click.echo(f"compose: error: {exc}", err=True)
+            failed.append(str(path))
+    if failed:
+        click.echo(f"{len(failed)} of {len(paths)} style(s) not rendered: {', '.join(failed)}", err=True)
+        raise SystemExit(2)
+
+
+def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple, series: bool,
+                workers: int | None, cluster: str | None) -> None:
+    from compose.errors import StyleError
     from compose.parallel import mapper_for
     from compose.render import render_style
     from compose.style import load_style
 
-    loaded = load_style(style)
+    if series:
+        _render_series(path, out_dir, overwrite, overrides, workers)
+        return
+    loaded = load_style(path, overrides=overrides)
+    if loaded.series:
+        raise StyleError(f"{path}: the style declares a series of {len(loaded.series)} members; "
+                         "render it with --series")
     for note in loaded.canvas_plan().notes:
         click.echo(f"note: {note}", err=True)
     canvas = loaded.canvas()
@@ -71,3 +130,20 @@ def command(style: Path, out_dir: Path, overwrite: bool, workers: int | None,
     result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
                           mapper=mapper)
     print_summary(result)
+
+
+def _render_series(path: Path, out_dir: Path, overwrite: bool, overrides: tuple,
+                   workers: int | None) -> None:
+    from compose.series import render_series
+
+    # members are whole renders in their own processes: --workers sets how many run at once
+    result = render_series(path, out_dir, overrides=overrides, overwrite=overwrite, workers=workers)
+    for m in result.members:
+        values = ", ".join(f"{k}={v}" for k, v in m.variables.items())
+        verdict = {True: "passed", False: "FAILED", None: "not checked"}[m.passed]
+        click.echo(f"  {m.name:<24} {values:<28} {m.seconds:6.1f} s  check {verdict}")
+    for name, e in result.scales.items():
+        breaks = ", ".join(f"{b:.4g}" for b in e["breaks"]) if e["breaks"] else "-"
+        click.echo(f"  scale {name}: domain {e['domain'][0]:g} to {e['domain'][1]:g}; breaks {breaks}")
+    click.echo(f"  index   {result.index}")
+    click.echo(f"  record  {result.record}")

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import os
 import tomllib
-from collections.abc import Iterator, Mapping
+from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -22,13 +22,14 @@ from compose.sources.guard import is_remote, read_regular_file
 from compose.style.kinds import LAYER_KINDS
 from compose.style.model import (BLEND_MODES, BUDGET_TABLES, ROLES, LayerSpec, MapSpec, RampTable,
                                  Budgets, Style, Waiver)
+from compose.style.overrides import Override, apply_overrides, series_members, substitute
 from compose.style.validate import (Scope, as_table, boolean, build_from_table, check_choice,
                                     check_keys, missing_keys, number, option_keys, string)
 
 __all__ = ["load_style", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
 
 #: Keys allowed at the top level of a style file.
-TOP_KEYS = ("extends", "map", "page", "budget", "ramp", "layer", "waive")
+TOP_KEYS = ("extends", "map", "page", "budget", "ramp", "layer", "waive", "series")
 #: Keys of one ``[[waive]]`` table.
 WAIVE_KEYS = ("rule", "layer", "reason")
 #: Keys every layer may state, whatever its kind.
@@ -244,6 +245,8 @@ def _merge(files: list[_File]) -> tuple[dict, dict[str, Path]]:
             origin[name] = f.path
         merged["layer"] = merge_layers(merged["layer"], d.get("layer", []))
         merged["waive"] += [dict(t) for t in d.get("waive", [])]
+        if "series" in d:
+            merged.setdefault("series", {}).update(d["series"])
     return merged, origin
 
 
@@ -294,8 +297,17 @@ def parse_layer(table: Mapping, ramps: Mapping[str, Any],
 
 
 def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_map: bool,
-           library: bool = True) -> Style:
+           library: bool = True, variables: Mapping[str, str] | None = None) -> Style:
     top = files[-1]
+    members = series_members(merged.get("series"), "the style")
+    if variables is not None:
+        unknown = sorted(set(variables) - set(members[0] if members else {}))
+        if unknown:
+            raise StyleError(f"series variable(s) {', '.join(unknown)} are not in [series]")
+        series_table = merged.pop("series", None)
+        merged = substitute(merged, variables)
+        if series_table is not None:
+            merged["series"] = series_table
     if "map" in merged:
         spec = build_from_table(MapSpec, merged["map"], Scope("", ("map",)))
     elif require_map:
@@ -337,9 +349,27 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
             raise StyleError(f'map.like: layer "{like.name}" is a {like.kind} layer; like needs a '
                              "raster layer (relief, field or classes)")
     name = spec.name if spec is not None and spec.name else top.path.stem
+    if variables and not _names_member(files, merged):
+        name = "-".join([name] + [_safe(v) for v in variables.values()])
     return Style(path=top.path, name=name, map=spec, budgets=budgets, ramps=ramps,
                  layers=tuple(layers), text=top.text, chain=tuple(f.path for f in files),
-                 waivers=_waivers(merged["waive"], layers), page=page)
+                 waivers=_waivers(merged["waive"], layers), page=page,
+                 series=tuple(MappingProxyType(m) for m in members),
+                 variables=MappingProxyType(dict(variables)) if variables is not None else None)
+
+
+def _names_member(files: list[_File], merged: dict) -> bool:
+    """True when the style's own ``map.name`` uses a series variable (so members differ)."""
+    for f in reversed(files):
+        name = f.data.get("map", {}).get("name")
+        if name is not None:
+            return isinstance(name, str) and "{" in name
+    return False
+
+
+def _safe(value: str) -> str:
+    """A series value as part of a file name: letters, digits, '-', '_' and '.' kept."""
+    return "".join(c if c.isalnum() or c in "-_." else "_" for c in value) or "_"
 
 
 def _waivers(tables: list[dict], layers: list[LayerSpec]) -> tuple[Waiver, ...]:
@@ -360,7 +390,8 @@ def _waivers(tables: list[dict], layers: list[LayerSpec]) -> tuple[Waiver, ...]:
 
 
 def load_style(path: str | Path, *, require_map: bool = True, library: bool = True,
-               overrides: Mapping[str, Any] | None = None) -> Style:
+               overrides: Mapping[str, Any] | Sequence[Override] | None = None,
+               variables: Mapping[str, str] | None = None) -> Style:
     """Load, merge (``extends``) and validate the style at ``path``.
 
     ``require_map=False`` accepts a file without ``[map]`` and layers, such as a ramp library
@@ -371,15 +402,15 @@ def load_style(path: str | Path, *, require_map: bool = True, library: bool = Tr
     ``library``: complete the style's ramps with the library ramps it names (and their twin
     bases; :mod:`compose.ramps.library`); False reads the file's own ramps only.
 
-    ``overrides``: key path -> value applied after merging, before validation
-    (:func:`compose.style.overrides.apply_overrides`), e.g. ``{"map.pixel": 60}``.
+    ``overrides``: key path -> value (``{"map.pixel": 60}``) or ``--set`` changes, applied to the
+    merged tables before validation (:mod:`compose.style.overrides`). ``variables``: one series
+    member's values, filled into every string (``{date}``); the output name gets the values
+    appended unless ``map.name`` uses them.
     """
     path = _resolve(Path(path).expanduser(), "style file")
     files = _chain(path)
     merged, origin = _merge(files)
-    if overrides:
-        from compose.style.overrides import apply_overrides
-
-        apply_overrides(merged, overrides)
     with _blame(path):
-        return _build(merged, origin, files, require_map, library)
+        if overrides:
+            apply_overrides(merged, overrides)
+        return _build(merged, origin, files, require_map, library, variables)

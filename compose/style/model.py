@@ -254,6 +254,8 @@ class Style:
     order of first appearance; layers lowest first; text: the raw text of the style file itself;
     chain: the files merged through ``extends``, the deepest base first, ending with ``path``.
     page: the ``[page]`` table (:class:`compose.page.spec.PageSpec`) or None.
+    series: the members of ``[series]`` (variable -> value, in order); variables: the member this
+    style was loaded for (its values filled into every string), or None.
     """
 
     path: Path
@@ -266,6 +268,8 @@ class Style:
     chain: tuple[Path, ...]
     waivers: tuple[Waiver, ...] = ()
     page: Any = None
+    series: tuple[Mapping[str, str], ...] = ()
+    variables: Mapping[str, str] | None = None
 
     def canvas(self) -> Canvas:
         """The output grid of ``[map]`` (see :func:`compose.style.grid.plan_canvas`); with a
