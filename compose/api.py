@@ -65,9 +65,10 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     """Render ``style`` (a :class:`Style` or a path) in memory and check its visual hierarchy;
     nothing is written. ``report.passed`` is False when any failure-severity rule failed."""
     from compose.engine import prepare, run   # looked up per call (tests may replace them)
+    from compose.page.write import blocked_for
 
     style = _style(style)
-    prepared = prepare(style)
+    prepared = prepare(style, keep_clear=blocked_for)   # labels placed as in a render
     try:
         stats = run(prepared, [], progress=progress, mapper=mapper)
         return check_style(style, stats, prepared.ramps)

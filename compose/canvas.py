@@ -131,6 +131,15 @@ class Canvas:
                 yield Window(row, col, min(size, self.height - row), min(size, self.width - col),
                              int(margin), self.height, self.width)
 
+    def coarser(self, max_side: int = 1200) -> "Canvas":
+        """The same extent at a coarser pixel so the longer side is at most ``max_side`` pixels;
+        the dpi is scaled with it so strokes and labels keep their size relative to the map.
+        (Global decisions from the data, e.g. quantile breaks, sample this.)"""
+        factor = max(self.width, self.height) / max_side
+        if factor <= 1:
+            return self
+        return Canvas.from_extent(self.crs, self.bounds, self.pixel * factor, dpi=self.dpi / factor)
+
     def whole(self, margin: int = 0) -> Window:
         """One window covering the whole canvas."""
         return Window(0, 0, self.height, self.width, int(margin), self.height, self.width)

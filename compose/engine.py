@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import contextlib
 import time
+from types import SimpleNamespace
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from typing import Any, Protocol
@@ -85,11 +86,16 @@ class Prepared:
 RenderRun = Prepared
 
 
-def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None) -> Prepared:
+def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
+            keep_clear: Callable[..., Iterable[tuple[float, float, float, float]]] | None = None
+            ) -> Prepared:
     """Resolve the canvas, build ramps and open every enabled layer's sources.
 
     ``canvas`` overrides the style's own (e.g. a small preview of the same extent, see
-    :func:`preview_canvas`).
+    :func:`compose.canvas.Canvas.coarser`). ``keep_clear(style, ramps, layers)``: canvas pixel
+    boxes labels keep clear of (e.g. page furniture inside the map frame,
+    :func:`compose.page.write.blocked_for`); called once, with the layers prepared so far and
+    stand-ins holding just the ``spec`` of the rest, before the labels layers are prepared.
     """
     from compose.ramps import build_ramps
 
@@ -108,12 +114,12 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None) -> P
     try:
         for i in order:
             spec = specs[i]
-            if spec.kind == "labels" and getattr(style, "page", None) is not None \
+            if spec.kind == "labels" and keep_clear is not None \
                     and not ctx.blocked and canvas == style.canvas():
-                from compose.page.write import blocked_for, stand_in
-                ctx.blocked = tuple(blocked_for(style, ramps, [la if la is not None else
-                                                               stand_in(sp) for la, sp in
-                                                               zip(layers, specs)]))
+                # stand-ins (just the spec) for the layers not prepared yet
+                ctx.blocked = tuple(keep_clear(style, ramps, [
+                    la if la is not None else SimpleNamespace(spec=sp)
+                    for la, sp in zip(layers, specs)]))
             layer = layer_class(spec.kind)(spec, ctx)
             stack.callback(layer.close)
             layers[i] = layer
@@ -314,14 +320,8 @@ class ArraySink:
 
 
 def preview_canvas(canvas: Canvas, max_side: int = 1200) -> Canvas:
-    """The same extent at a coarser pixel so the longer side is at most ``max_side`` pixels;
-    the dpi is scaled with it so strokes and labels keep their size relative to the map."""
-    factor = max(canvas.width, canvas.height) / max_side
-    if factor <= 1:
-        return canvas
-    west, south, east, north = canvas.bounds
-    return Canvas.from_extent(canvas.crs, (west, south, east, north), canvas.pixel * factor,
-                              dpi=canvas.dpi / factor)
+    """See :meth:`compose.canvas.Canvas.coarser`."""
+    return canvas.coarser(max_side)
 
 
 def render_array(style, *, canvas: Canvas | None = None, only: frozenset[int] | None = None,

@@ -25,6 +25,7 @@ from typing import Callable
 
 import numpy as np
 
+from compose.check.catalog import PROOF_RULES
 from compose.color.cvd import cvd_matrix
 from compose.color.srgb import linear_to_srgb, srgb_to_linear
 from compose.color.wcag import WCAG_Y
@@ -37,8 +38,6 @@ __all__ = ["PROOFS", "ENCODE_SIZE", "gray_proof", "cvd_proof", "proof_image", "P
 PROOFS = ("gray", "deutan", "protan", "tritan")
 TITLES = {"map": "map", "gray": "grey (same CIELAB L*)", "deutan": "deutan (Machado 2009, 100 %)",
           "protan": "protan (Machado 2009, 100 %)", "tritan": "tritan (Machado 2009, 100 %)"}
-#: Check rules whose numbers are the proofs' metrics (grey order of themes, classes under CVD).
-PROOF_RULES = ("grayscale-order", "classes-separation-deutan", "classes-separation-protan")
 ENCODE_SIZE = 65536
 CHUNK_ROWS = 64          # rows per step inside a band (keeps float planes in cache)
 SHEET_PANEL = 480        # longest side of a panel on the contact sheet, pixels
@@ -193,8 +192,10 @@ def write_proofs(style, out_dir: Path, *, overwrite: bool = False,
     t0 = time.perf_counter()
     paths = proof_paths(style, out_dir)
     outputs = OutputSet(paths, overwrite=overwrite, name=style.name)
+    from compose.page.write import blocked_for
+
     try:
-        run_ = prepare(style)
+        run_ = prepare(style, keep_clear=blocked_for)
     except BaseException:
         outputs.close()
         raise

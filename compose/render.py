@@ -116,9 +116,11 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     for key, wanted in (("legend", legend), ("check", check), ("html", html)):
         if not wanted:
             paths.pop(key)
+    from compose.page.write import blocked_for
+
     outputs = OutputSet(paths, overwrite=overwrite, name=style.name)   # lock, leftovers, existing
     try:
-        prepared = prepare(style, ramps=ramps)
+        prepared = prepare(style, ramps=ramps, keep_clear=blocked_for)
     except BaseException:
         outputs.close()
         raise

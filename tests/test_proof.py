@@ -123,3 +123,9 @@ def test_proof_command(tmp_path):
     again = CliRunner().invoke(cli, ["proof", str(path), "--out", str(out)])
     assert again.exit_code == 2 and "--overwrite" in again.output
     assert CliRunner().invoke(cli, ["proof", str(path), "--out", str(out), "--overwrite"]).exit_code == 0
+
+
+def test_proof_rules_are_catalogued_rules():
+    from compose.check.catalog import CATALOG, PROOF_RULES
+
+    assert PROOF_RULES and all(rule in CATALOG for rule in PROOF_RULES)

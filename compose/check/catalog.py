@@ -14,7 +14,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["RuleInfo", "CATALOG", "NO_SOURCE", "OUR_TARGET", "limit_of", "rule_info"]
+__all__ = ["RuleInfo", "CATALOG", "NO_SOURCE", "OUR_TARGET", "PROOF_RULES", "limit_of",
+           "rule_info"]
 
 NO_SOURCE = "common practice, no source"
 OUR_TARGET = "our design target, no source"
@@ -129,6 +130,10 @@ _RULES = [
 
 #: Rule id -> :class:`RuleInfo`, in report order.
 CATALOG: dict[str, RuleInfo] = {r.id: r for r in _RULES}
+
+
+#: Rules whose numbers are the proofs' metrics (grey order of themes, classes under CVD).
+PROOF_RULES = ("grayscale-order", "classes-separation-deutan", "classes-separation-protan")
 
 
 def rule_info(rule: str) -> RuleInfo:

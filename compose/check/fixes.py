@@ -124,12 +124,13 @@ def _hex_rgb(lch) -> tuple[float, float, float]:
 def relief_stats(options, weights, tint=None, shadow=None, strength=None) -> tuple[float, float, float]:
     """(L* p5, L* p95, C* p95) of a relief drawn with the given colours / strength and the
     measured shade weights (one per lookup-table level, see :mod:`compose.layers.relief`)."""
-    from compose.layers.relief import relief_palette
+    from compose.ramps.relief import relief_colors
 
-    pal = relief_palette(options.tint if tint is None else tint,
-                         options.shadow if shadow is None else shadow,
-                         options.strength if strength is None else strength, options.altitude)
-    lch = srgb_to_lch(pal.rgb8 / 255.0)
+    rgb8, _ = relief_colors(options.tint if tint is None else tint,
+                            options.shadow if shadow is None else shadow,
+                            options.strength if strength is None else strength, options.altitude)
+    rgb8 = np.vstack([rgb8, [[0, 0, 0]]])          # the layer's no-data entry, as it draws it
+    lch = srgb_to_lch(rgb8 / 255.0)
     w = np.asarray(weights, dtype=float)
     p5, _, p95 = weighted_percentiles(lch[:, 0], w)
     _, _, c95 = weighted_percentiles(lch[:, 1], w)
@@ -137,13 +138,13 @@ def relief_stats(options, weights, tint=None, shadow=None, strength=None) -> tup
 
 
 def _default_shadow_used(options) -> bool:
-    from compose.style.kinds import default_shadow
+    from compose.ramps.relief import default_shadow
     return bool(np.allclose(options.shadow, default_shadow(options.tint), atol=1e-9))
 
 
 def _candidate(options, tint_lch, shadow_scale: float | None):
     """Tint (and shadow) as written back to the style: the default shadow follows the tint."""
-    from compose.style.kinds import default_shadow
+    from compose.ramps.relief import default_shadow
     tint = _hex_rgb(tint_lch)
     if _default_shadow_used(options):
         return tint, default_shadow(tint), None

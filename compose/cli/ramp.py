@@ -16,13 +16,14 @@ def load_ramps(style_path: Path | None, names=()) -> dict:
     """Build the ramps of the style at ``style_path`` (twins need all their group), completed
     with the library ramps named in ``names``; without a style, the whole library."""
     from compose.ramps import build_ramps
-    from compose.ramps.library import library_tables, with_library
+    from compose.ramps.library import with_library
+    from compose.style.load import library_tables
     from compose.style import load_style
 
     if style_path is None:
         return build_ramps(library_tables())
     style = load_style(style_path, require_map=False)
-    return build_ramps(with_library(style.ramps, names))
+    return build_ramps(with_library(style.ramps, names, library_tables()))
 
 
 def _limits(style_path: Path | None):
@@ -118,7 +119,7 @@ def command(name: str, style_path: Path | None, samples: int, as_json: bool, plo
     ramps = load_ramps(style_path, [name])
     limits = _limits(style_path)
     if name not in ramps:
-        from compose.ramps.library import library_tables
+        from compose.style.load import library_tables
         known = ", ".join(sorted(set(ramps) | set(library_tables()))) or "(none)"
         where = f"{style_path}: " if style_path is not None else ""
         raise StyleError(f'{where}no ramp "{name}"; ramps: {known}')

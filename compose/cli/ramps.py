@@ -108,7 +108,8 @@ def write_sheet(path: Path, ramps: dict, title: str) -> None:
 def command(style_path: Path | None, sheet: Path | None, color: bool | None) -> None:
     """List the ramp library (and a style's own ramps) with a swatch strip per ramp."""
     from compose.ramps import build_ramps
-    from compose.ramps.library import library_path, library_tables
+    from compose.ramps.library import library_path
+    from compose.style.load import library_tables
 
     tables = dict(library_tables())
     own: set[str] = set()
@@ -118,7 +119,7 @@ def command(style_path: Path | None, sheet: Path | None, color: bool | None) -> 
 
         style = load_style(style_path, require_map=False)
         own = set(style.ramps)
-        tables = dict(with_library(style.ramps, list(library_tables())))
+        tables = dict(with_library(style.ramps, list(library_tables()), library_tables()))
     ramps = build_ramps(tables)
     colored = _use_color(color)
     width = max(len(n) for n in ramps) if ramps else 0

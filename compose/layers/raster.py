@@ -60,9 +60,7 @@ class FieldLayer:
         sampled on a coarse copy of the canvas (at most 1024 px a side)."""
         lut = self.ramp.lut()
         if getattr(lut, "quantile_pending", False):
-            from compose.engine import preview_canvas
-
-            coarse = preview_canvas(self.canvas, 1024)
+            coarse = self.canvas.coarser(1024)
             values = self.source.read(coarse.crs, coarse.transform, coarse.width, coarse.height,
                                       self.options.resampling)
             lut = lut.with_quantile_breaks(values[np.isfinite(values)])

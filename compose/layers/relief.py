@@ -1,42 +1,29 @@
 """The relief layer: a muted, tinted hillshade (Horn 1981) coloured through a lookup table.
 
 Shade s in [0, 1] (Lambertian, from :mod:`compose.layers.hillshade`) is quantised to
-:data:`LEVELS` entries. Flat ground (s = sin(altitude)) is drawn in the ``tint``; faces turned
-away from the sun move toward the ``shadow`` colour by ``strength``; faces turned toward it move a
-little toward a highlight. The ramp between them is interpolated in CIELAB, so the relief stays
-light and low in chroma by construction.
+:data:`compose.ramps.relief.LEVELS` entries and drawn through the relief's colour ramp
+(:mod:`compose.ramps.relief`: tint, shadow, strength).
 """
 from __future__ import annotations
 
 import numpy as np
 
-from compose.color.lab import lab_to_srgb, srgb_to_lab
-from compose.color.parse import to_rgb8
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.hillshade import multidirectional, stretch_factor
 from compose.sources.raster import cell_size_metres
 from compose.layers.raster import open_raster
+from compose.ramps.relief import LEVELS, relief_colors
 
 __all__ = ["ReliefLayer", "relief_palette", "LEVELS", "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
 
-LEVELS = 1024
 SAMPLE_WINDOWS = 9    # windows of the canvas read to measure the terrain for "auto" stretch
 SAMPLE_SIZE = 256     # their side in canvas pixels
 
 
 def relief_palette(tint, shadow, strength: float, altitude: float) -> Palette:
-    """Lookup table of LEVELS colours for shade 0..1, plus a transparent no-data entry at the end."""
-    s = np.linspace(0.0, 1.0, LEVELS)
-    flat = np.sin(np.radians(altitude))
-    lab_tint = srgb_to_lab(np.asarray(tint, dtype=float))
-    lab_shadow = srgb_to_lab(np.asarray(shadow, dtype=float))
-    lab_light = lab_tint.copy()
-    lab_light[0] = lab_tint[0] + (100.0 - lab_tint[0]) * 0.6
-    lab_light[1:] *= 0.7
-    dark = strength * np.clip((flat - s) / flat, 0.0, 1.0)                  # 0 at flat, strength at s=0
-    light = strength * np.clip((s - flat) / max(1e-6, 1.0 - flat), 0.0, 1.0)
-    lab = lab_tint + dark[:, None] * (lab_shadow - lab_tint) + light[:, None] * (lab_light - lab_tint)
-    rgb8 = to_rgb8(lab_to_srgb(lab))
+    """Lookup table of the relief's LEVELS colours for shade 0..1
+    (:func:`compose.ramps.relief.relief_colors`), plus a transparent no-data entry at the end."""
+    rgb8, s = relief_colors(tint, shadow, strength, altitude)
     rgb8 = np.vstack([rgb8, [[0, 0, 0]]])                                   # no-data entry
     values = np.append(s, np.nan)
     return Palette(rgb8=rgb8, values=values, nodata=LEVELS)
@@ -53,7 +40,7 @@ class ReliefLayer:
         self.options = o
         self.canvas = context.canvas
         self.source = open_raster(spec, self.canvas)
-        # the style fills ``shadow`` from the tint when it is not given (style.kinds.default_shadow)
+        # the style fills ``shadow`` from the tint when it is not given (compose.ramps.relief.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
         self.stretch = self._stretch() if o.stretch == "auto" else 1.0
         self.exaggeration = o.exaggeration * self.stretch

@@ -136,7 +136,7 @@ def _figure(uri: str, caption: str, alt: str, cls: str = "", figure_cls: str = "
 
 
 def _proofs_section(map_img, proofs: dict, report) -> str:
-    from compose.proof import PROOF_RULES
+    from compose.check.catalog import PROOF_RULES
 
     cells = [_figure(jpeg_uri(box_reduce(map_img, PROOF_WIDTH)), esc(PROOF_TITLES["map"]), "the map")]
     for k, img in proofs.items():

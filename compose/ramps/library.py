@@ -1,20 +1,19 @@
 """The ramp library that ships with compose (``compose/ramps/library.toml``, package data).
 
 Every style can name a library ramp without defining it; a style's own ``[ramp.NAME]`` replaces
-the library ramp of that name. :func:`library_tables` reads the file once per process;
-:func:`with_library` completes a style's ramp tables with the library ramps it uses (named by a
+the library ramp of that name. :func:`compose.style.load.library_tables` reads the file once per
+process (a style file without a map, read by the style loader); :func:`with_library` completes a style's ramp tables with the library ramps it uses (named by a
 layer, or the base of a twin), so only those are built and checked.
 """
 from __future__ import annotations
 
-import functools
 from collections.abc import Iterable, Mapping
 from importlib import resources
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
-__all__ = ["LIBRARY_FILE", "library_path", "library_tables", "with_library"]
+__all__ = ["LIBRARY_FILE", "library_path", "with_library"]
 
 #: The library's file name inside the ``compose.ramps`` package.
 LIBRARY_FILE = "library.toml"
@@ -25,19 +24,11 @@ def library_path() -> Path:
     return Path(str(resources.files("compose.ramps").joinpath(LIBRARY_FILE)))
 
 
-@functools.lru_cache(maxsize=1)
-def library_tables() -> Mapping[str, Any]:
-    """The library's ramps by name: read-only :class:`compose.style.model.RampTable` objects."""
-    from compose.style.load import load_style
-
-    return load_style(library_path(), require_map=False, library=False).ramps
-
-
-def with_library(own: Mapping[str, Any], wanted: Iterable[str]) -> Mapping[str, Any]:
-    """``own`` ramp tables plus the library ramps named in ``wanted`` that ``own`` lacks, and the
-    twin bases those (and ``own``'s twins) need, transitively. Own ramps come first, in order;
-    unknown names are left for the caller to report."""
-    library = library_tables()
+def with_library(own: Mapping[str, Any], wanted: Iterable[str],
+                 library: Mapping[str, Any]) -> Mapping[str, Any]:
+    """``own`` ramp tables plus the ``library`` ramp tables named in ``wanted`` that ``own``
+    lacks, and the twin bases those (and ``own``'s twins) need, transitively. Own ramps come
+    first, in order; unknown names are left for the caller to report."""
     out = dict(own)
     pending = [n for n in wanted if n not in out]
     pending += [str(t.table["twin"]) for t in own.values() if "twin" in t.table]

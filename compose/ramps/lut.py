@@ -21,13 +21,17 @@ Entries cover half-open intervals [edge_i, edge_i+1) and the last one is closed.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 import numpy as np
 
 from compose.color.lab import srgb_to_lab
 from compose.color.parse import to_rgb8
 from compose.errors import ComposeError
-from compose.ramps.model import Ramp
+
+#: A built :class:`compose.ramps.model.Ramp` (not imported here: the model draws its tables
+#: through this module, so the dependency points one way).
+Ramp = Any
 
 __all__ = ["Lut", "lut_for", "stepped_lut", "quantile_breaks", "drawn_samples"]
 

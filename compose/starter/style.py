@@ -115,7 +115,7 @@ def _pick_dem(rasters: list[RasterFacts]) -> RasterFacts | None:
 
 
 def _library(name: str):
-    from compose.ramps.library import library_tables
+    from compose.style.load import library_tables
     return library_tables()[name].table
 
 

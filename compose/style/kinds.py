@@ -15,10 +15,9 @@ from typing import Any, Literal
 
 import numpy as np
 
-from compose.color.gamut import max_chroma
-from compose.color.lab import lch_to_srgb, srgb_to_lch
 from compose.color.parse import parse_color
 from compose.errors import StyleError
+from compose.ramps.relief import default_shadow
 from compose.style.validate import (RGB, Scope, as_table, build_from_table, choice, color,
                                     integer, number, numbers, option, option_keys,
                                     required_keys, scalars, string, table_of)
@@ -53,19 +52,6 @@ DEFAULT_STROKE: RGB = parse_color("#404040")      # L* ~27, neutral dark grey
 DEFAULT_TEXT: RGB = parse_color("#303030")        # L* ~20
 DEFAULT_HALO: RGB = parse_color("#ffffff")
 _WHITE: RGB = (1.0, 1.0, 1.0)
-
-
-def default_shadow(tint: RGB) -> RGB:
-    """The default relief shadow: the tint at half its L* and half its C* (at most 6), same hue.
-
-    Our own choice (no source): with the default strength 0.6 a tint of L* 95 shades down to about
-    L* 66, inside the ground lightness budget. Chroma is capped to what sRGB shows at that L*.
-    """
-    L, C, h = (float(v) for v in srgb_to_lch(np.asarray(tint, dtype=float)))
-    L2 = 0.5 * L
-    C2 = min(0.5 * C, 6.0, float(max_chroma(L2, h)))
-    rgb = np.clip(lch_to_srgb(np.array([L2, C2, h])), 0.0, 1.0)
-    return tuple(float(v) for v in rgb)
 
 
 def _resampling(default: str) -> Any:

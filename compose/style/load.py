@@ -8,6 +8,7 @@ Errors of one file's shape name that file; errors of the merged content name the
 from __future__ import annotations
 
 import os
+import functools
 import tomllib
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
@@ -26,7 +27,7 @@ from compose.style.overrides import Override, apply_overrides, series_members, s
 from compose.style.validate import (Scope, as_table, boolean, build_from_table, check_choice,
                                     check_keys, missing_keys, number, option_keys, string)
 
-__all__ = ["load_style", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
+__all__ = ["load_style", "library_tables", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
 
 #: Keys allowed at the top level of a style file.
 TOP_KEYS = ("extends", "map", "page", "budget", "ramp", "layer", "waive", "series")
@@ -325,7 +326,6 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
            for name, table in merged["ramp"].items()}
     lib: Mapping[str, Any] = {}
     if library:   # library ramps are named freely; the style's own replace them
-        from compose.ramps.library import library_tables
         lib = library_tables()
     layers = []
     for table in merged["layer"]:
@@ -335,7 +335,7 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
     if library:
         from compose.ramps.library import with_library
         used = [r for r in (getattr(l.options, "ramp", None) for l in layers) if r is not None]
-        ramps = with_library(own, used)
+        ramps = with_library(own, used, lib)
     else:
         ramps = MappingProxyType(own)
     if require_map and not layers:
@@ -387,6 +387,15 @@ def _waivers(tables: list[dict], layers: list[LayerSpec]) -> tuple[Waiver, ...]:
                              f"{', '.join(names)}")
         out.append(Waiver(rule, t["layer"], t["reason"].strip()))
     return tuple(out)
+
+
+@functools.lru_cache(maxsize=1)
+def library_tables() -> Mapping[str, Any]:
+    """The ramp library's ramps by name (:mod:`compose.ramps.library`): read-only
+    :class:`compose.style.model.RampTable` objects, read once per process."""
+    from compose.ramps.library import library_path
+
+    return load_style(library_path(), require_map=False, library=False).ramps
 
 
 def load_style(path: str | Path, *, require_map: bool = True, library: bool = True,
