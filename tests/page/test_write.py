@@ -152,12 +152,12 @@ def test_corner_furniture_keeps_labels_clear(tmp_path):
     """A legend in the top-left corner of the frame: the label there moves or drops out."""
     from compose.engine import prepare
     from compose.page.layout import blocked_pixels
-    from compose.page.write import legend_for_page, page_layout
+    from compose.page.write import blocked_for, legend_for_page, page_layout
 
     page = PAGE.replace("scale       = 25000", "scale       = 12500").replace(
         'paper       = "A5"', 'paper       = "A4"') + 'legend = "top left"\nnorth = "top right"\n'
     style = _style(tmp_path, page)
-    run_ = prepare(style)
+    run_ = prepare(style, keep_clear=blocked_for)     # what render does
     try:
         legend = legend_for_page(style, run_.ramps, run_.layers)
         layout = page_layout(style, (legend.width * 25.4, legend.height * 25.4))
