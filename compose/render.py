@@ -61,8 +61,8 @@ class _PngSink:
 
 
 class _TiffSink:
-    def __init__(self, path: Path, canvas, tags):
-        self.writer = GeoTiffWriter(path, canvas, tags=tags)
+    def __init__(self, path: Path, canvas, tags, cog: bool = False):
+        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog)
 
     def rows(self, row0, rgb8):
         self.writer.write(row0, 0, rgb8)
@@ -99,7 +99,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  extra_sinks: list | None = None, legend: bool = True, check: bool = True,
                  html: bool = True, proofs: bool = False,
                  mapper: Callable | None = None, window: int | None = None,
-                 ramps: dict | None = None) -> RenderResult:
+                 ramps: dict | None = None, cog: bool = False) -> RenderResult:
     """Render ``style`` into ``out_dir`` in one walk; nothing is left half-written if anything
     fails.
 
@@ -109,7 +109,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     window tasks (see :func:`compose.engine.run` and :mod:`compose.parallel`); ``window``: window
     side in pixels (default :data:`compose.engine.WINDOW`); ``progress(done, total)`` after each
     window; ``ramps``: built ramps to draw with instead of the style's (a series fixes shared
-    breaks).
+    breaks); ``cog``: write NAME.tif as a Cloud Optimized GeoTIFF (overviews, COG layout).
     """
     t0 = time.perf_counter()
     paths = output_paths(style, out_dir, proofs=proofs)
@@ -133,8 +133,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             tmp = outputs.temporaries()
             png = _PngSink(tmp["png"], canvas.width, canvas.height, canvas.dpi)
             stack.callback(png.writer.abort)
-            tif = _TiffSink(tmp["tif"], canvas, tags)
-            stack.callback(tif.writer.close)
+            tif = _TiffSink(tmp["tif"], canvas, tags, cog=cog)
+            stack.callback(tif.writer.abort)
             # the encoders run on their own threads, beside the next windows' compute
             png_bg, tif_bg = BackgroundSink(png, "png"), BackgroundSink(tif, "geotiff")
             stack.callback(tif_bg.abort)

@@ -80,9 +80,11 @@ def expand_styles(args: tuple[Path, ...]) -> list[Path]:
 @click.option("--cluster", metavar="ADDRESS", default=None,
               help="Render the windows on a dask.distributed scheduler (tcp://host:8786); every "
                    "worker must reach the style's source files.")
+@click.option("--cog", is_flag=True,
+              help="Write NAME.tif as a Cloud Optimized GeoTIFF (internal tiles, overviews).")
 @handle_errors
 def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tuple[str, ...],
-            series: bool, workers: int | None, cluster: str | None) -> None:
+            series: bool, workers: int | None, cluster: str | None, cog: bool) -> None:
     """Render each STYLE (files or glob patterns) to a PNG, an RGBA GeoTIFF, a legend, a check
     report and a proof page. With several styles an error in one is reported and the others
     still render; the exit code is the worst."""
@@ -92,7 +94,7 @@ def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tupl
     overrides = tuple(parse_override(s) for s in sets)
     paths = expand_styles(styles)
     run = dict(out_dir=out_dir, overwrite=overwrite, overrides=overrides, series=series,
-               workers=workers, cluster=cluster)
+               workers=workers, cluster=cluster, cog=cog)
     if len(paths) == 1:
         _render_one(paths[0], **run)
         return
@@ -110,7 +112,7 @@ def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tupl
 
 
 def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple, series: bool,
-                workers: int | None, cluster: str | None) -> None:
+                workers: int | None, cluster: str | None, cog: bool = False) -> None:
     from compose.errors import StyleError
     from compose.parallel import mapper_for
     from compose.render import render_style
@@ -128,7 +130,7 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
     canvas = loaded.canvas()
     mapper = mapper_for(canvas.width * canvas.height, workers, cluster)
     result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
-                          mapper=mapper)
+                          mapper=mapper, cog=cog)
     print_summary(result)
 
 

@@ -1,4 +1,7 @@
-"""RGBA GeoTIFF of the canvas: tiled, deflate, the canvas CRS and transform exactly."""
+"""RGBA GeoTIFF of the canvas: tiled, deflate, the canvas CRS and transform exactly; optionally
+a Cloud Optimized GeoTIFF (GDAL's COG driver: 512 px tiles, overviews averaged down to a
+screen's size, everything laid out so a reader fetches a region of one zoom with few range
+requests)."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -10,7 +13,7 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas
 
-__all__ = ["GeoTiffWriter"]
+__all__ = ["GeoTiffWriter", "to_cog"]
 
 
 class GeoTiffWriter:
@@ -18,16 +21,22 @@ class GeoTiffWriter:
 
     Tiles 512 x 512, DEFLATE with horizontal differencing (PREDICTOR=2), GDAL compressing on all
     cores. Band colour interpretation red, green, blue, alpha.
+    ``cog``: write a Cloud Optimized GeoTIFF instead: the windows go to a tiled GeoTIFF beside
+    ``path`` (``path`` + ".tiles"), which :meth:`close` turns into the COG (overviews averaged)
+    and removes.
     """
 
-    def __init__(self, path: Path, canvas: Canvas, tags: dict[str, str] | None = None):
+    def __init__(self, path: Path, canvas: Canvas, tags: dict[str, str] | None = None,
+                 cog: bool = False):
         self.path = Path(path)
+        self.cog = cog
+        self._target = Path(str(path) + ".tiles") if cog else self.path
         profile = dict(driver="GTiff", width=canvas.width, height=canvas.height, count=4,
                        dtype="uint8", crs=canvas.crs, transform=canvas.transform,
                        tiled=True, blockxsize=512, blockysize=512, compress="deflate",
                        predictor=2, photometric="RGB", interleave="pixel", num_threads="all_cpus",
                        BIGTIFF="IF_SAFER")
-        self._ds = rasterio.open(self.path, "w", **profile)
+        self._ds = rasterio.open(self._target, "w", **profile)
         self._ds.colorinterp = [ColorInterp.red, ColorInterp.green, ColorInterp.blue, ColorInterp.alpha]
         if tags:
             self._ds.update_tags(**tags)
@@ -41,11 +50,36 @@ class GeoTiffWriter:
         self._ds.write(data, window=RioWindow(col, row, w, h))
 
     def close(self) -> None:
+        """Finish the file (for a COG: build it from the tiles and remove them); idempotent."""
+        if self._ds.closed:
+            return
+        self._ds.close()
+        if self.cog:
+            try:
+                to_cog(self._target, self.path)
+            finally:
+                self._target.unlink(missing_ok=True)
+
+    def abort(self) -> None:
+        """Stop after a failure elsewhere: close without finishing, remove a COG's tiles."""
         if not self._ds.closed:
             self._ds.close()
+        if self.cog:
+            self._target.unlink(missing_ok=True)
 
     def __enter__(self) -> "GeoTiffWriter":
         return self
 
     def __exit__(self, *exc) -> None:
         self.close()
+
+
+def to_cog(source: Path, path: Path) -> None:
+    """Copy a GeoTIFF to ``path`` as a Cloud Optimized GeoTIFF: 512 px tiles, DEFLATE with
+    horizontal differencing, overviews by averaging down until the image fits one tile, all
+    cores compressing (GDAL's COG driver, GDAL >= 3.1)."""
+    from rasterio.shutil import copy
+
+    copy(source, path, driver="COG", compress="DEFLATE", predictor="YES", blocksize=512,
+         overviews="AUTO", overview_resampling="AVERAGE", num_threads="ALL_CPUS",
+         bigtiff="IF_SAFER")

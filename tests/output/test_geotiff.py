@@ -23,3 +23,30 @@ def test_geotiff_round_trip(tmp_path):
         data = ds.read()
     np.testing.assert_array_equal(np.moveaxis(data[:3], 0, -1), img)
     assert (data[3] == 255).all()
+
+
+def test_cloud_optimized_geotiff(tmp_path):
+    # Outside reference: GDAL itself recognises the layout (IMAGE_STRUCTURE LAYOUT=COG, GDAL's
+    # COG driver documentation) and reads back the same pixels, tiles and overviews.
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 1300, 4000000 + 30 * 1100), 30)
+    rng = np.random.default_rng(3)
+    img = rng.integers(0, 256, (canvas.height, canvas.width, 3), dtype=np.uint8)
+    path = tmp_path / "m.tif"
+    with GeoTiffWriter(path, canvas, tags={"TIFFTAG_SOFTWARE": "compose"}, cog=True) as w:
+        for win in canvas.windows(512):
+            w.write(win.row, win.col, img[win.core])
+    assert not (tmp_path / "m.tif.tiles").exists()
+    with rasterio.open(path) as ds:
+        assert ds.tags(ns="IMAGE_STRUCTURE").get("LAYOUT") == "COG"
+        assert ds.transform == canvas.transform and ds.crs == rasterio.crs.CRS.from_user_input("EPSG:32630")
+        assert ds.block_shapes[0] == (512, 512) and ds.overviews(1) == [2, 4]
+        assert ds.tags().get("TIFFTAG_SOFTWARE") == "compose"
+        data = ds.read()
+    np.testing.assert_array_equal(np.moveaxis(data[:3], 0, -1), img)
+
+
+def test_cog_abort_leaves_nothing(tmp_path):
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 100, 4000000 + 30 * 100), 30)
+    w = GeoTiffWriter(tmp_path / "x.tif", canvas, cog=True)
+    w.abort()
+    assert list(tmp_path.iterdir()) == []
