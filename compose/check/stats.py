@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from compose.color.bulk import _TABLES  # per-channel linear-light x matrix tables (8-bit)
+from compose.color.bulk import CHANNEL_XYZ  # per-channel linear-light x matrix tables (8-bit)
 from compose.color.lab import srgb_to_lch
 from compose.color.srgb import srgb_to_linear
 from compose.color.wcag import WCAG_Y
@@ -44,8 +44,8 @@ def luminance_of_planes(planes: np.ndarray) -> np.ndarray:
 
 def luminance_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
     """WCAG relative luminance (= CIE Y, white 1) of 8-bit sRGB pixels (n, 3) by lookup tables."""
-    return (np.take(_TABLES[1, 0], rgb8[:, 0]) + np.take(_TABLES[1, 1], rgb8[:, 1])
-            + np.take(_TABLES[1, 2], rgb8[:, 2]))
+    return (np.take(CHANNEL_XYZ[1, 0], rgb8[:, 0]) + np.take(CHANNEL_XYZ[1, 1], rgb8[:, 1])
+            + np.take(CHANNEL_XYZ[1, 2], rgb8[:, 2]))
 
 
 _Y_LEVELS = 1 << 16
@@ -107,8 +107,8 @@ def histogram_percentiles(hist: np.ndarray | None, qs=(5, 50, 95)) -> list[float
 
 def lightness_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
     """CIELAB L* (float32) of 8-bit sRGB pixels (n, 3) by lookup tables: Y = sum of 3 tables."""
-    y = (np.take(_TABLES[1, 0], rgb8[:, 0]) + np.take(_TABLES[1, 1], rgb8[:, 1])
-         + np.take(_TABLES[1, 2], rgb8[:, 2]))
+    y = (np.take(CHANNEL_XYZ[1, 0], rgb8[:, 0]) + np.take(CHANNEL_XYZ[1, 1], rgb8[:, 1])
+         + np.take(CHANNEL_XYZ[1, 2], rgb8[:, 2]))
     eps = np.float32((6 / 29) ** 3)
     f = np.where(y > eps, np.cbrt(y), y * np.float32(1 / (3 * (6 / 29) ** 2)) + np.float32(4 / 29))
     return np.float32(116) * f - np.float32(16)

@@ -15,11 +15,11 @@ import numpy as np
 from compose.color.lab import WHITE_D65, lab_to_lch, srgb_to_lab
 from compose.color.srgb import M_RGB_TO_XYZ, srgb_to_linear
 
-__all__ = ["srgb8_to_lch", "pack_rgb8", "unpack_rgb8", "color_counts", "lab_of_packed"]
+__all__ = ["srgb8_to_lch", "pack_rgb8", "unpack_rgb8", "color_counts", "lab_of_packed", "CHANNEL_XYZ"]
 
 _LIN = srgb_to_linear(np.arange(256) / 255.0)
-# _TABLES[i, c] : contribution of channel c (R, G, B) to X/Y/Z component i, divided by the white.
-_TABLES = (M_RGB_TO_XYZ[:, :, None] * _LIN[None, None, :] / WHITE_D65[:, None, None]).astype(np.float32)
+# CHANNEL_XYZ[i, c] : contribution of channel c (R, G, B) to X/Y/Z component i, divided by the white.
+CHANNEL_XYZ = (M_RGB_TO_XYZ[:, :, None] * _LIN[None, None, :] / WHITE_D65[:, None, None]).astype(np.float32)
 _EPS = np.float32((6 / 29) ** 3)
 _K = np.float32(1 / (3 * (6 / 29) ** 2))
 _C0 = np.float32(4 / 29)
@@ -43,7 +43,7 @@ def srgb8_to_lch(rgb8: np.ndarray, chunk: int = 1 << 16) -> np.ndarray:
         raise ValueError("srgb8_to_lch needs a uint8 array of shape (..., 3)")
     flat = rgb8.reshape(-1, 3)
     out = np.empty((flat.shape[0], 3), dtype=np.float32)
-    t = _TABLES
+    t = CHANNEL_XYZ
     for s in range(0, flat.shape[0], chunk):
         px = flat[s:s + chunk]
         r, g, b = px[:, 0], px[:, 1], px[:, 2]

@@ -26,8 +26,8 @@ import numpy as np
 from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, END_SIGN, END_W,
                                           FAMILY_ROW, FONT, FRAME, GAP, INK, KEY_PATCH, MARGIN,
                                           MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT, TITLE_H, TOP,
-                                          WIDTH, BarBox, LegendLayout, _Classes, _fmt, _marks,
-                                          _Overlays, _ramp_of, _Ramps, _rgb,
+                                          WIDTH, BarBox, LegendLayout, ClassesBlock, format_value, ramp_marks,
+                                          OverlaysBlock, ramp_of, RampsBlock, rgb01,
                                           legend_layout, pretty_name)
 
 __all__ = ["write_legend", "legend_png", "legend_figure", "draw_legend", "legend_layout",
@@ -37,7 +37,7 @@ __all__ = ["write_legend", "legend_png", "legend_figure", "draw_legend", "legend
 
 # --- drawing ---------------------------------------------------------------------------------
 
-def _ticks(block: _Ramps, values: np.ndarray, xs: np.ndarray) -> list[tuple[float, str]]:
+def _ticks(block: RampsBlock, values: np.ndarray, xs: np.ndarray) -> list[tuple[float, str]]:
     """(x inches, label) of the axis under a colour-bar block."""
     lut = block.layers[0].lut
     span = xs[-1] - xs[0]
@@ -50,7 +50,7 @@ def _ticks(block: _Ramps, values: np.ndarray, xs: np.ndarray) -> list[tuple[floa
     lo, hi = float(values[0]), float(values[-1])
     nice = [v for v in MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
             if lo - 1e-9 * abs(hi - lo) <= v <= hi + 1e-9 * abs(hi - lo)]
-    fixed = [lo, hi] + [v for v, _ in _marks(_ramp_of(block.layers[0]))]
+    fixed = [lo, hi] + [v for v, _ in ramp_marks(ramp_of(block.layers[0]))]
     close = 0.1 * (hi - lo)
     ticks = sorted(set(fixed) | {v for v in nice if all(abs(v - f) >= close for f in fixed)})
     return [(float(np.interp(v, values, xs)), block.fmt(v)) for v in ticks] if span > 0 else []
@@ -67,13 +67,13 @@ def _bar_image(lut, box: BarBox) -> np.ndarray:
     return np.asarray(lut.rgb8)[lut.index(values)][None]
 
 
-def _draw_ramps(ax, b: _Ramps, y: float, boxes: list[BarBox]) -> None:
+def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
     from matplotlib.patches import Rectangle
 
     ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center", ha="left")
-    ramp = _ramp_of(b.layers[0])
-    marks = _marks(ramp)
+    ramp = ramp_of(b.layers[0])
+    marks = ramp_marks(ramp)
     mine = [bx for bx in boxes if bx.layer in {la.spec.name for la in b.layers}]
     x0, x1 = mine[0].x0 / DPI, mine[0].x1 / DPI
     values, xs = np.array(mine[0].values), np.array(mine[0].xs) / DPI
@@ -124,7 +124,7 @@ def _draw_swatches(ax, swatches, x: float, y: float) -> None:
         x += 0.38 + 0.075 * len(label) + 0.25
 
 
-def _draw_classes(ax, b: _Classes, y: float) -> None:
+def _draw_classes(ax, b: ClassesBlock, y: float) -> None:
     from matplotlib.patches import Rectangle
 
     ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
@@ -137,7 +137,7 @@ def _draw_classes(ax, b: _Classes, y: float) -> None:
                     style="italic", color=MUTED, va="center")
             yy += FAMILY_ROW
             continue
-        ax.add_patch(Rectangle((indent, yy + 0.03), 0.3, 0.145, facecolor=_rgb(item.rgb),
+        ax.add_patch(Rectangle((indent, yy + 0.03), 0.3, 0.145, facecolor=rgb01(item.rgb),
                                edgecolor=FRAME, lw=0.4))
         ax.text(indent + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
                 color=INK, va="center")
@@ -145,7 +145,7 @@ def _draw_classes(ax, b: _Classes, y: float) -> None:
     _draw_swatches(ax, b.swatches, indent, yy + 0.04)
 
 
-def _draw_overlays(ax, b: _Overlays, y: float, width: float = WIDTH,
+def _draw_overlays(ax, b: OverlaysBlock, y: float, width: float = WIDTH,
                    key_patch=KEY_PATCH) -> None:
     from matplotlib.patches import Rectangle
     from matplotlib.patheffects import withStroke
@@ -162,31 +162,31 @@ def _draw_overlays(ax, b: _Overlays, y: float, width: float = WIDTH,
                                edgecolor="none", zorder=0))
         if kind == "lines":
             if o.halo is not None:
-                ax.plot([sx0, sx1], [cy, cy], color=_rgb(o.halo.color), lw=o.halo.width,
+                ax.plot([sx0, sx1], [cy, cy], color=rgb01(o.halo.color), lw=o.halo.width,
                         solid_capstyle="butt", alpha=alpha)
             ls = "-" if not o.dash else (0, tuple(d / o.width for d in o.dash))
-            ax.plot([sx0, sx1], [cy, cy], color=_rgb(o.stroke), lw=o.width, linestyle=ls,
+            ax.plot([sx0, sx1], [cy, cy], color=rgb01(o.stroke), lw=o.width, linestyle=ls,
                     solid_capstyle="butt", dash_capstyle="butt", alpha=alpha)
         elif kind == "areas":
-            face = _rgb(o.fill) if o.fill is not None else "none"
+            face = rgb01(o.fill) if o.fill is not None else "none"
             if o.halo is not None and o.width > 0:
                 ax.add_patch(Rectangle((sx0 + 0.04, cy - 0.07), 0.36, 0.14, fill=False,
-                                       edgecolor=_rgb(o.halo.color), lw=o.halo.width, alpha=alpha))
+                                       edgecolor=rgb01(o.halo.color), lw=o.halo.width, alpha=alpha))
             ax.add_patch(Rectangle((sx0 + 0.04, cy - 0.07), 0.36, 0.14, facecolor=face,
-                                   edgecolor=_rgb(o.stroke) if o.width > 0 else "none",
+                                   edgecolor=rgb01(o.stroke) if o.width > 0 else "none",
                                    lw=o.width, alpha=alpha))
         elif kind == "points":
             marker = "o" if o.shape == "circle" else "s"
             cx = (sx0 + sx1) / 2
             if o.width:
-                ax.plot([cx], [cy], marker=marker, ms=o.size + 2 * o.width, color=_rgb(o.stroke),
+                ax.plot([cx], [cy], marker=marker, ms=o.size + 2 * o.width, color=rgb01(o.stroke),
                         mec="none", alpha=alpha)
-            ax.plot([cx], [cy], marker=marker, ms=o.size, color=_rgb(o.fill), mec="none",
+            ax.plot([cx], [cy], marker=marker, ms=o.size, color=rgb01(o.fill), mec="none",
                     alpha=alpha)
         elif kind == "labels":
-            effects = ([withStroke(linewidth=o.halo.width, foreground=_rgb(o.halo.color))]
+            effects = ([withStroke(linewidth=o.halo.width, foreground=rgb01(o.halo.color))]
                        if o.halo is not None else [])
-            ax.text((sx0 + sx1) / 2, cy, "Abc", fontsize=min(o.size, 11), color=_rgb(o.color),
+            ax.text((sx0 + sx1) / 2, cy, "Abc", fontsize=min(o.size, 11), color=rgb01(o.color),
                     family=o.font, weight=o.weight, ha="center", va="center",
                     path_effects=effects, alpha=alpha)
         ax.text(MARGIN + 0.58, cy, pretty_name(layer.spec.name), fontsize=FONT, color=INK,
@@ -202,9 +202,9 @@ def draw_legend(ax, layout: LegendLayout, key_patch=KEY_PATCH) -> None:
     y = TOP
     boxes = list(layout.bars)
     for b in layout.blocks:
-        if isinstance(b, _Ramps):
+        if isinstance(b, RampsBlock):
             _draw_ramps(ax, b, y, boxes)
-        elif isinstance(b, _Classes):
+        elif isinstance(b, ClassesBlock):
             _draw_classes(ax, b, y)
         else:
             _draw_overlays(ax, b, y, layout.width, key_patch)

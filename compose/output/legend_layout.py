@@ -10,8 +10,9 @@ import numpy as np
 
 from compose.color import interface as ui
 
-__all__ = ["legend_layout", "LegendLayout", "BarBox", "pretty_name", "DPI", "WIDTH", "END_GAP", "END_W",
-           "END_SIGN", "END"]
+__all__ = ["legend_layout", "LegendLayout", "BarBox", "RampsBlock", "ClassesBlock",
+           "OverlaysBlock", "pretty_name", "format_value", "rgb01", "ramp_of", "ramp_marks", "DPI",
+           "WIDTH", "END_GAP", "END_W", "END_SIGN", "END"]
 
 DPI = 200                 # pixels per inch of the PNG
 WIDTH = 3.6               # inches
@@ -42,7 +43,7 @@ def pretty_name(name: str) -> str:
     return text[:1].upper() + text[1:] if text else name
 
 
-def _fmt(v: float) -> str:
+def format_value(v: float) -> str:
     """A tick label: at most 4 significant digits, typographic minus."""
     if v == 0:
         return "0"
@@ -52,7 +53,7 @@ def _fmt(v: float) -> str:
     return text.replace("-", "\u2212")
 
 
-def _rgb(color) -> tuple[float, float, float]:
+def rgb01(color) -> tuple[float, float, float]:
     return tuple(float(np.clip(c, 0.0, 1.0)) for c in color)
 
 
@@ -78,29 +79,29 @@ class BarBox:
 
 
 @dataclass
-class _Ramps:
+class RampsBlock:
     """One colour-bar block: layers sharing one data scale."""
 
     layers: list
     title: str
     labels: list[str]
     height: float = 0.0
-    fmt: Callable[[float], str] = _fmt
+    fmt: Callable[[float], str] = format_value
     swatches: list = field(default_factory=list)
 
 
 @dataclass
-class _Classes:
+class ClassesBlock:
     layer: object
     title: str
     rows: list[tuple[str, object]] = field(default_factory=list)   # ("family", name) | ("class", c)
     height: float = 0.0
-    fmt: Callable[[float], str] = _fmt
+    fmt: Callable[[float], str] = format_value
     swatches: list = field(default_factory=list)
 
 
 @dataclass
-class _Overlays:
+class OverlaysBlock:
     layers: list
     height: float = 0.0
 
@@ -121,12 +122,12 @@ class LegendLayout:
         return int(round(self.width * self.dpi)), int(round(self.height * self.dpi))
 
 
-def _ramp_of(layer):
+def ramp_of(layer):
     return getattr(layer, "ramp", None)
 
 
 def _group_key(layer) -> frozenset:
-    ramp = _ramp_of(layer)
+    ramp = ramp_of(layer)
     return frozenset((ramp.name,) + tuple(ramp.matched))
 
 
@@ -152,10 +153,10 @@ def _key(layer):
 
 
 def _formatter(layer) -> Callable[[float], str]:
-    """The layer's number format (``legend.format``) or the default :func:`_fmt`."""
+    """The layer's number format (``legend.format``) or the default :func:`format_value`."""
     key = _key(layer)
     if key is None or not key.format:
-        return _fmt
+        return format_value
     spec = key.format
     return lambda v: format(float(v), spec).replace("-", "\u2212")
 
@@ -190,12 +191,12 @@ def _nodata_swatches(layers, seen: set[str] | None = None) -> list[tuple[str, np
     return [("no data", c) for _, c in out]
 
 
-def _marks(ramp) -> list[tuple[float, str]]:
+def ramp_marks(ramp) -> list[tuple[float, str]]:
     marks = []
     if ramp.kind == "threshold" and ramp.at is not None:
-        marks.append((float(ramp.at), f"threshold {_fmt(ramp.at)}"))
+        marks.append((float(ramp.at), f"threshold {format_value(ramp.at)}"))
     if ramp.kind == "diverging" and ramp.center is not None:
-        marks.append((float(ramp.center), f"centre {_fmt(ramp.center)}"))
+        marks.append((float(ramp.center), f"centre {format_value(ramp.center)}"))
     return marks
 
 
@@ -203,35 +204,35 @@ def _blocks(layers, seen: set[str] | None = None) -> list:
     """Legend blocks in style order: colour-bar groups, class lists, then the overlays.
     ``seen``: the layers with no-data pixels on the map (None: assume every layer has some)."""
     blocks: list = []
-    groups: dict[frozenset, _Ramps] = {}
+    groups: dict[frozenset, RampsBlock] = {}
     overlays = []
     for layer in layers:
         spec = layer.spec
-        ramp = _ramp_of(layer)
+        ramp = ramp_of(layer)
         if spec.kind in ("lines", "areas", "points", "labels"):
             overlays.append(layer)
         elif ramp is not None and ramp.kind == "qualitative":
-            blocks.append(_Classes(layer, _key_title(layer, pretty_name(spec.name)),
+            blocks.append(ClassesBlock(layer, _key_title(layer, pretty_name(spec.name)),
                                    fmt=_formatter(layer)))
         elif ramp is not None and getattr(layer, "lut", None) is not None:
             key = _group_key(layer)
             hit = next((g for k, g in groups.items() if k & key), None)
             if hit is None:
-                hit = groups[key] = _Ramps([], "", [])
+                hit = groups[key] = RampsBlock([], "", [])
                 blocks.append(hit)
             hit.layers.append(layer)
     for b in blocks:
-        if isinstance(b, _Ramps):
+        if isinstance(b, RampsBlock):
             b.title, b.labels = _titles([la.spec.name for la in b.layers])
             b.title = _key_title(b.layers[0], b.title)
             b.fmt = _formatter(b.layers[0])
-            marks = _marks(_ramp_of(b.layers[0]))
+            marks = ramp_marks(ramp_of(b.layers[0]))
             n = len(b.layers)
             swatches = b.swatches = _nodata_swatches(b.layers, seen)
             b.height = (TITLE_H + (MARK_H if marks else 0.04) + n * BAR_H + (n - 1) * BAR_GAP
                         + AXIS_H + (SWATCH_ROW if swatches else 0.0))
         else:
-            ramp = _ramp_of(b.layer)
+            ramp = ramp_of(b.layer)
             key = _key(b.layer)
             shown = [c for c in ramp.classes
                      if key is None or key.show is None or float(c.value) in key.show]
@@ -250,11 +251,11 @@ def _blocks(layers, seen: set[str] | None = None) -> list:
             b.height = (TITLE_H + sum(FAMILY_ROW if k == "family" else CLASS_ROW for k, _ in b.rows)
                         + (SWATCH_ROW + 0.04 if swatches else 0.0) + 0.04)
     if overlays:
-        blocks.append(_Overlays(overlays, height=len(overlays) * OVERLAY_ROW + 0.04))
+        blocks.append(OverlaysBlock(overlays, height=len(overlays) * OVERLAY_ROW + 0.04))
     return blocks
 
 
-def _bar_geometry(block: _Ramps, width: float = WIDTH) -> tuple[float, float, float]:
+def _bar_geometry(block: RampsBlock, width: float = WIDTH) -> tuple[float, float, float]:
     """(left of the bar labels column, x0, x1) of a colour-bar block, inches."""
     chars = max((len(t) for t in block.labels), default=0)
     label_w = 0.0 if chars == 0 else min(1.3, 0.14 + 0.068 * chars)
@@ -272,7 +273,7 @@ def _scale(lut, x0: float, x1: float) -> tuple[np.ndarray, np.ndarray]:
     return np.array([edges[0], edges[-1]]), np.array([x0, x1])
 
 
-def _shared_scale(block: _Ramps, x0, x1) -> tuple[np.ndarray, np.ndarray]:
+def _shared_scale(block: RampsBlock, x0, x1) -> tuple[np.ndarray, np.ndarray]:
     """One scale for every bar of the block: the first layer's, unless their stepped edges differ
     (then a linear data scale over the union of the domains)."""
     luts = [la.lut for la in block.layers]
@@ -296,10 +297,10 @@ def legend_layout(style, ramps, layers, width: float = WIDTH,
     bars = []
     y = TOP
     for b in blocks:
-        if isinstance(b, _Ramps):
+        if isinstance(b, RampsBlock):
             _, x0, x1 = _bar_geometry(b, width)
             values, xs = _shared_scale(b, x0, x1)
-            marks = _marks(_ramp_of(b.layers[0]))
+            marks = ramp_marks(ramp_of(b.layers[0]))
             top = y + TITLE_H + (MARK_H if marks else 0.04)
             for i, layer in enumerate(b.layers):
                 by = top + i * (BAR_H + BAR_GAP)

@@ -54,10 +54,10 @@ from compose.errors import SourceError, StyleError
 from compose.sources.grid import transform_grid
 from compose.sources.resample import sample
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
+from compose.style.kinds import RESAMPLING   # the names a style may use, defined once
 
 __all__ = ["RESAMPLING", "SHRINK_LIMIT", "RasterSource", "cell_size_metres"]
 
-RESAMPLING = ("nearest", "bilinear", "cubic", "average", "mode")
 
 # Bilinear and cubic alias when a destination pixel spans more than this many source pixels;
 # 'average' is used instead (common practice, no source).

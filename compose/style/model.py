@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from compose.canvas import Canvas
+from compose.composite import BLEND_MODES as BLEND_FUNCTIONS
 from compose.errors import StyleError
 from compose.limits import MAX_COORDINATE
 from compose.names import name_problem
@@ -33,7 +34,7 @@ ROLES = ("ground", "theme", "overlay")
 #: 140 px wide (our own bounds, no source).
 MIN_DPI, MAX_DPI = 10.0, 10000.0
 #: Blend mode names (W3C Compositing and Blending Level 1, section 10).
-BLEND_MODES = ("normal", "multiply", "screen", "overlay", "soft-light")
+BLEND_MODES = tuple(BLEND_FUNCTIONS)   # the W3C blend mode keywords compose draws
 
 
 def _crs(value: Any, at: Scope) -> str:

@@ -7,7 +7,7 @@ import pytest
 from compose.engine import prepare
 from compose.errors import StyleError
 from compose.output.legend import legend_figure
-from compose.output.legend_layout import _Classes, _Ramps, legend_layout
+from compose.output.legend_layout import ClassesBlock, RampsBlock, legend_layout
 from compose.style import load_style
 from tests.output._tiny import tiny_style
 
@@ -25,7 +25,7 @@ def test_title_units_and_format(tmp_path):
     run_ = _prepared(tmp_path, 'legend = { title = "Growth", units = "g m\u207b\u00b2", format = ".1f" }')
     try:
         blocks = legend_layout(run_.style, run_.ramps, run_.layers).blocks
-        ramps = [b for b in blocks if isinstance(b, _Ramps) and "land-growth" in
+        ramps = [b for b in blocks if isinstance(b, RampsBlock) and "land-growth" in
                  [la.spec.name for la in b.layers]][0]
         assert ramps.title == "Growth (g m\u207b\u00b2)"
         assert ramps.fmt(2.5) == "2.5" and ramps.fmt(-3) == "\u22123.0"
@@ -38,7 +38,7 @@ def test_classes_shown_and_nodata_only_where_seen(tmp_path):
     run_ = _prepared(tmp_path, cover_key='legend = { show = [1, 3] }')
     try:
         cover = [b for b in legend_layout(run_.style, run_.ramps, run_.layers).blocks
-                 if isinstance(b, _Classes)][0]
+                 if isinstance(b, ClassesBlock)][0]
         assert [c.value for kind, c in cover.rows if kind == "class"] == [1, 3]
         with_nd = legend_layout(run_.style, run_.ramps, run_.layers, nodata_seen=None)
         without = legend_layout(run_.style, run_.ramps, run_.layers, nodata_seen=set())
