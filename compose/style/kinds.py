@@ -321,7 +321,7 @@ LAYER_KINDS: dict[str, LayerKind] = {k.name: k for k in (
     LayerKind("points", PointOptions, "compose.layers.vector:PointsLayer", raster=False,
               legend="marker", measure="ink", roles=("overlay",),
               figure=("marker", "fill"), outline="stroke"),
-    LayerKind("labels", LabelOptions, "compose.layers.label:LabelsLayer", raster=False,
+    LayerKind("labels", LabelOptions, "compose.layers.label_layer:LabelsLayer", raster=False,
               legend="text", measure="ink", roles=("overlay",),
               figure=("text", "color"), outline="halo"),
 )}

@@ -13,7 +13,7 @@ from matplotlib.font_manager import FontProperties
 
 from compose.canvas import Canvas
 from compose.layers.draw import draw_text_shapes, measure_text
-from compose.layers.labels import LabelItem, draw_labels, place_labels
+from compose.layers.label_placement import LabelItem, draw_labels, place_labels
 
 T = Affine(10.0, 0.0, 500000.0, 0.0, -10.0, 4000000.0)
 W, H = 200, 100

@@ -7,7 +7,7 @@ import shapely
 
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint
-from compose.layers.labels import draw_labels, place_labels
+from compose.layers.label_placement import draw_labels, place_labels
 from compose.limits import MAX_LABEL_CHARS
 from compose.sources.vector import VectorSource
 
