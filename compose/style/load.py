@@ -204,7 +204,12 @@ def _chain(path: Path) -> list[_File]:
         if target in seen:
             loop = " -> ".join(_show(p) for p in seen[seen.index(target):] + [target])
             raise StyleError(f"{_show(current)}: extends cycle: {loop}")
-        if not target.is_file():
+        try:
+            found = target.is_file()
+        except OSError as e:            # e.g. a name too long for the file system
+            raise StyleError(f"{_show(current)}: extends: cannot use {_show(target)}: "
+                             f"{e.strerror or e}") from None
+        if not found:
             raise StyleError(f"{_show(current)}: extends: file not found: {_show(target)}")
         current = target
 

@@ -126,6 +126,11 @@ def test_nul_byte_in_extends_is_refused(style, tmp_path):
     assert "\x00" not in line
 
 
+def test_very_long_extends_is_refused(style, tmp_path):
+    style.write_text(f'extends = "{"x" * 300}.toml"\n' + style.read_text())
+    check_refused(style, tmp_path, "extends", "too long")
+
+
 def test_nul_byte_in_source_is_refused(style, tmp_path):
     replace_in(style, 'source = "land.tif"', 'source = "la\\u0000nd.tif"')
     check_refused(style, tmp_path, 'layer "land-growth"', "source")
