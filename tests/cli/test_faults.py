@@ -183,3 +183,20 @@ def test_a_source_removed_mid_render_gives_a_whole_set_or_nothing(tmp_path):
     else:
         Ended(proc.returncode, stdout, stderr).assert_one_line(2)
         assert leftovers(out) == []
+
+
+def test_after_sigkill_the_next_render_cleans_up_and_completes(tmp_path):
+    style = _bigger(tmp_path)
+    out = tmp_path / "out"
+    proc = _start("render", style, "--out", out)
+    try:
+        assert _wait_for(lambda: _writing(out)), "the render never started writing"
+        proc.kill()                                  # SIGKILL: no cleanup can run
+        proc.communicate(timeout=60)
+    finally:
+        proc.kill()
+    finals = [name for name in os.listdir(out) if not name.startswith(".")]
+    assert finals in ([], outputs_of(style)), finals    # never a partial set
+    again = run_in_process("render", style, "--out", out, "--overwrite")
+    assert again.code in (0, 1), again.stderr
+    assert sorted(os.listdir(out)) == outputs_of(style)  # leftovers gone, one complete set
