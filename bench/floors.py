@@ -232,12 +232,16 @@ def _up_filter(rgb: np.ndarray, prev: np.ndarray) -> np.ndarray:
     return out
 
 
-def png_fast(tif: Path, threads: int = 2, level: int = 3) -> tuple[float, float]:
-    """PNG data stream of the rendered pixels: numpy 'Up' filter + isal raw deflate at ``level``,
-    ``threads`` strips compressed at once (each ends on a full flush so the pieces concatenate).
+def png_fast(tif: Path, threads: int = 2, level: int = 3, impl: str = "isal") -> tuple[float, float]:
+    """PNG data stream of the rendered pixels: numpy 'Up' filter + a fast raw deflate (``impl``:
+    "isal" or "zlib-ng") at ``level``, ``threads`` strips compressed at once (each ends on a
+    full flush so the pieces concatenate).
 
     Returns (seconds of filtering + deflating, size / zlib-6 size on every 4th strip)."""
-    from isal import isal_zlib
+    if impl == "isal":
+        from isal import isal_zlib
+    else:
+        from zlib_ng import zlib_ng as isal_zlib
 
     strips = list(_rgb_strips(tif))      # read before timing
 

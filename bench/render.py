@@ -157,9 +157,20 @@ def child(argv: list[str], cwd: Path | None = None, env: dict | None = None) -> 
 _SAMPLER = r"""
 import json, os, subprocess, sys, threading, time, resource
 
+def pss(pid):
+    # proportional set size: shared pages (forked workers) counted once in the sum, bytes
+    try:
+        with open(f"/proc/{pid}/smaps_rollup") as f:
+            for line in f:
+                if line.startswith("Pss:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return 0
+
 def tree_rss(root):
-    # resident memory of a process and all its descendants, bytes (Linux /proc)
-    kids, rss = {}, {}
+    # memory of a process and all its descendants (Linux /proc, PSS)
+    kids = {}
     for d in os.listdir("/proc"):
         if not d.isdigit():
             continue
@@ -167,13 +178,12 @@ def tree_rss(root):
             with open(f"/proc/{d}/stat") as f:
                 fields = f.read().rsplit(")", 1)[1].split()
             kids.setdefault(int(fields[1]), []).append(int(d))
-            rss[int(d)] = int(fields[21]) * os.sysconf("SC_PAGE_SIZE")
         except (OSError, IndexError, ValueError):
             pass
     total, todo = 0, [root]
     while todo:
         p = todo.pop()
-        total += rss.get(p, 0)
+        total += pss(p)
         todo += kids.get(p, [])
     return total
 
@@ -189,15 +199,15 @@ out, err = p.communicate()
 dt = time.perf_counter() - t
 ru = resource.getrusage(resource.RUSAGE_CHILDREN)
 sys.stderr.write(err.decode())
-print(json.dumps({"seconds": dt, "peak": max(peak[0], ru.ru_maxrss * 1024), "peak_one": ru.ru_maxrss * 1024,
+print(json.dumps({"seconds": dt, "peak": peak[0], "peak_one": ru.ru_maxrss * 1024,
                   "code": p.returncode, "cpu": ru.ru_utime + ru.ru_stime, "out": out.decode()}))
 """
 
 
 def timed(argv: list[str], cwd: Path | None = None) -> dict:
-    """Run a command; wall seconds, CPU seconds and peak memory: the largest sum of resident
-    memory over the process and its children (worker processes included), sampled every 50 ms,
-    and at least the largest single process's ru_maxrss."""
+    """Run a command; wall seconds, CPU seconds and peak memory: the largest sum of proportional
+    set sizes (shared pages counted once) over the process and its children (worker processes
+    included), sampled every 50 ms; ``peak_one``: the largest single process's ru_maxrss."""
     res = child([sys.executable, "-c", _SAMPLER, *argv], cwd=cwd)
     if res["code"] != 0 or not res["stdout"].strip():
         raise RuntimeError(f"{' '.join(map(str, argv))} failed:\n{res['stderr'][-2000:]}")
@@ -297,7 +307,8 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     t_tif6 = floors.geotiff_write(tif, folder / "floor.tif")
     t_tif1 = floors.geotiff_write(tif, folder / "floor.tif", zlevel=1)
     t_png, png_ratio = floors.png_fast(tif)
-    encode_floor = t_tif6 + t_png
+    t_png_ng, png_ratio_ng = floors.png_fast(tif, impl="zlib-ng")
+    encode_floor = t_tif6 + min(t_png, t_png_ng)
     bare2 = task("bare", styles["aligned"], out, workers=2)
     runs = 1 if quick else 2
     plain = min(task("plain", styles["aligned"], out)["compute"] for _ in range(runs))
@@ -308,6 +319,8 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  GeoTIFF RGB write, deflate, tiled 512, ALL_CPUS (zlevel 1)  {t_tif6:6.2f} s  ({t_tif1:.2f} s)")
     print(f"  PNG: Up filter + isal level 3, 2 threads                    {t_png:6.2f} s  "
           f"(size {100 * (png_ratio - 1):+.1f} % vs zlib 6)")
+    print(f"  PNG: Up filter + zlib-ng level 3, 2 threads                 {t_png_ng:6.2f} s  "
+          f"(size {100 * (png_ratio_ng - 1):+.1f} % vs zlib 6; compose uses zlib-ng level 4)")
     print(f"bare render (PNG + GeoTIFF + check), 1 process    {total:6.2f} s wall, peak {gb(bare1['peak'])}")
     print(f"bare render, 2 worker processes                   {bare2['wall']:6.2f} s wall  "
           f"(target <= 6 s at 8192)")
@@ -317,17 +330,17 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  statistics share                      {100 * (measured - plain) / total:6.1f} % of the "
           f"render  (target <= 10 %)")
     print(f"  outputs add beyond compute            {beyond:6.2f} s  (encode floor {encode_floor:.2f} s: "
-          f"{100 * max(0.0, 1 - beyond / encode_floor):.0f} % overlapped)")
+          f"{100 * min(1.0, max(0.0, 1 - beyond / encode_floor)):.0f} % overlapped)")
     print(f"  floors summed (compute + encode)      {compute_floor + encode_floor:6.2f} s  "
           f"(1-process render / floors = {total / (compute_floor + encode_floor):.2f})")
     print("  render's own timers: " + ", ".join(f"{k} {v:.2f}" for k, v in
                                                sorted(bare1.get("seconds", {}).items())), flush=True)
 
     # lines: independent of the number of windows
-    lines_1024 = task("plain", styles["lines"], out)["compute"]
-    lines_512 = task("plain", styles["lines"], out, window=512)["compute"]
-    print(f"lines only, compute: 1024 px windows {lines_1024:.2f} s, 512 px windows {lines_512:.2f} s "
-          f"({lines_512 / lines_1024:.2f} x for 4 x the windows); Agg floor {t_lines:.2f} s")
+    lines_big = task("plain", styles["lines"], out, window=512)["compute"]
+    lines_small = task("plain", styles["lines"], out, window=256)["compute"]
+    print(f"lines only, compute: 512 px windows {lines_big:.2f} s, 256 px windows {lines_small:.2f} s "
+          f"({lines_small / lines_big:.2f} x for 4 x the windows); Agg floor {t_lines:.2f} s")
 
     # reprojection: the same canvas size on a neighbouring UTM zone's grid
     utm = task("plain", styles["utm31"], out)["compute"]
