@@ -11,7 +11,6 @@ import os
 from pathlib import Path
 
 import click
-import numpy as np
 
 from compose.cli.main import handle_errors
 
@@ -37,8 +36,10 @@ def describe_ramp(ramp) -> str:
     return f"{kind}, {lo:g} to {hi:g}{extra}"
 
 
-def _strip_colors(ramp, cells: int) -> np.ndarray:
+def _strip_colors(ramp, cells: int):
     """(cells, 3) uint8 colours across the ramp as drawn (a qualitative ramp's classes)."""
+    import numpy as np
+
     from compose.ramps import drawn_samples
 
     if ramp.kind == "qualitative":
