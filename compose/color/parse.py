@@ -1,6 +1,7 @@
 """Colour strings and tables of a style file -> gamma-encoded sRGB.
 
-Accepted: ``"#rrggbb"`` and ``"#rgb"`` (CSS Color 4 hex notation) and an inline table
+Accepted: ``"#rrggbb"`` and ``"#rgb"`` (CSS Color 4 hex notation), the 148 CSS Color 4 named
+colours (``"steelblue"``, case-insensitive; :mod:`compose.color.css_names`) and an inline table
 ``{L = .., C = .., h = ..}`` in CIE LCh(ab) under D65 (L* 0-100, C*ab >= 0, h degrees).
 An LCh colour sRGB cannot show is an error naming the largest chroma that fits, never clipped.
 """
@@ -11,6 +12,7 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from compose.color.css_names import css_named_color
 from compose.color.gamut import lch_in_gamut, max_chroma
 from compose.color.lab import lch_to_srgb, srgb_to_lch
 from compose.errors import ColorError
@@ -28,9 +30,17 @@ def parse_color(value, where: str = "color") -> tuple[float, float, float]:
     """
     if isinstance(value, str):
         m = _HEX.match(value.strip())
+        named = None if m else css_named_color(value)
+        if named is not None:
+            return named
         if not m:
-            raise ColorError(f"{where}: '{value}' is not a colour; write '#rrggbb', '#rgb' "
-                             "or {L = .., C = .., h = ..}")
+            import difflib
+
+            from compose.color.css_names import CSS_NAMES
+            near = difflib.get_close_matches(value.strip().lower(), CSS_NAMES, n=1, cutoff=0.75)
+            hint = f" (did you mean '{near[0]}'?)" if near else ""
+            raise ColorError(f"{where}: '{value}' is not a colour{hint}; write '#rrggbb', '#rgb', "
+                             "a CSS colour name or {L = .., C = .., h = ..}")
         digits = m.group(1)
         if len(digits) == 3:
             digits = "".join(ch * 2 for ch in digits)

@@ -224,8 +224,11 @@ def test_out_of_gamut_lch_names_the_key(style):
 
 
 def test_bad_color_string_names_the_key(style):
-    with pytest.raises(ColorError, match=r"layer \"relief\": tint: 'beige' is not a colour"):
-        load_style(style(RELIEF + "tint = 'beige'\n"))
+    with pytest.raises(ColorError, match=r"layer \"relief\": tint: 'biege' is not a colour "
+                                         r"\(did you mean 'beige'\?\)"):
+        load_style(style(RELIEF + "tint = 'biege'\n"))
+    assert load_style(style(RELIEF + "tint = 'beige'\n")).layers[0].options.tint == \
+        (245 / 255, 245 / 255, 220 / 255)          # a CSS Color 4 name
     with pytest.raises(ColorError, match=r"map.background: '#12' is not a colour"):
         load_style(style(RELIEF, map_=MAP + "background = '#12'\n"))
 
