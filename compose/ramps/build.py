@@ -1,7 +1,10 @@
 """Build ramps from validated specs: sequential, diverging, threshold, qualitative and twins.
 
 * sequential: one curve through the stops, re-parametrised by CAM02-UCS arc length so equal data
-  steps are equal perceived steps.
+  steps are equal perceived steps; with ``values`` each stop is pinned to its data value and the
+  arc length is even within each segment between stops.
+* ``reverse = true`` or a domain written high to low flips a sequential or diverging ramp (the
+  stops are taken in the opposite order; see :func:`compose.ramps.spec.parse_ramp`).
 * diverging: two arms from the midpoint stop outwards. Both arms share one lightness progress:
   at data distance d from the centre each arm has gone the same fraction of its way in L*, and d
   follows the mean arc length of the two arms -- equal distance, equal lightness, nearly even
@@ -29,7 +32,7 @@ from compose.color.gamut import max_chroma
 from compose.color.lab import lab_to_lch, lab_to_srgb, lch_to_lab, srgb_to_lab
 from compose.color.parse import to_rgb8
 from compose.errors import StyleError
-from compose.ramps.curve import DENSE, arc_fraction, dense_curve, resample
+from compose.ramps.curve import DENSE, arc_fraction, dense_curve, resample, to_space
 from compose.ramps.model import Piece, Ramp
 from compose.ramps.spec import RampSpec, parse_ramp
 
@@ -52,7 +55,18 @@ def _piece(lab: np.ndarray, removed: np.ndarray, lo: float, hi: float, param: np
 
 def _sequential(spec: RampSpec) -> tuple[Piece, ...]:
     lab, removed = dense_curve(np.array(spec.through), spec.space)
-    return (_piece(lab, removed, *spec.domain),)
+    if spec.values is None:
+        return (_piece(lab, removed, *spec.domain),)
+    # pinned stops: stop i sits at data value values[i]; between two stops the value follows
+    # the CAM02-UCS arc length, so each segment is perceptually even on its own
+    coords = to_space(np.array(spec.through), spec.space)
+    chord = np.maximum(np.sqrt(np.sum(np.diff(coords, axis=0) ** 2, axis=-1)), 1e-6)
+    knots = np.concatenate([[0.0], np.cumsum(chord)]) / np.sum(chord)   # as dense_curve spaces them
+    arc = arc_fraction(lab)
+    arc_at_stops = np.maximum.accumulate(np.interp(knots, np.linspace(0.0, 1.0, len(lab)), arc))
+    lo, hi = spec.domain
+    value = np.interp(arc, arc_at_stops, spec.values)
+    return (_piece(lab, removed, lo, hi, param=(value - lo) / (hi - lo)),)
 
 
 def _lightness_progress(lab: np.ndarray) -> np.ndarray | None:

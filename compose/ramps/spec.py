@@ -26,8 +26,8 @@ MAX_SAMPLES = 65533  # + outside low, outside high, nodata entries = 65536 indic
 
 _SAMPLING = {"domain", "outside", "nodata", "steps", "step_method", "breaks", "samples"}
 _KEYS = {
-    "sequential": {"kind", "space", "through"} | _SAMPLING,
-    "diverging": {"kind", "space", "through", "center"} | _SAMPLING,
+    "sequential": {"kind", "space", "through", "reverse", "values"} | _SAMPLING,
+    "diverging": {"kind", "space", "through", "center", "reverse"} | _SAMPLING,
     "threshold": {"kind", "space", "at", "below", "above"} | _SAMPLING,
     "qualitative": {"kind", "classes", "nodata"},
     "twin": {"twin", "hue", "kind"} | _SAMPLING,
@@ -70,6 +70,7 @@ class RampSpec:
     step_method: str | None = None
     breaks: tuple[float, ...] | None = None
     samples: int | None = None
+    values: tuple[float, ...] | None = None     # sequential: the data value of each stop (pinned)
 
     @property
     def where(self) -> str:
@@ -131,13 +132,27 @@ def _domain(table: Mapping, where: str) -> tuple[float, float] | None:
     if not _is_list(value) or len(value) != 2:
         raise StyleError(f"{where}: 'domain' must be [low, high], got {value!r}")
     lo, hi = (_number(v, where, "domain") for v in value)
-    if not lo < hi:
-        raise StyleError(f"{where}: 'domain' must have low < high, got {value!r}")
+    if lo == hi:
+        raise StyleError(f"{where}: 'domain' needs two different values, got {value!r}")
     # our own bound (no source): beyond it steps between 1024 table entries lose precision
-    if max(abs(lo), abs(hi)) > MAX_DOMAIN or (hi - lo) < max(abs(lo), abs(hi)) * 1e-9:
+    if max(abs(lo), abs(hi)) > MAX_DOMAIN or abs(hi - lo) < max(abs(lo), abs(hi)) * 1e-9:
         raise StyleError(f"{where}: 'domain' must lie within +-{MAX_DOMAIN:g} and span more than "
                          f"a billionth of its magnitude, got {value!r}")
     return (lo, hi)
+
+
+def _pinned(table: Mapping, where: str, n: int) -> tuple[float, ...] | None:
+    """``values``: the data value of each of the ``n`` stops, strictly increasing or decreasing."""
+    if "values" not in table:
+        return None
+    value = table["values"]
+    if not _is_list(value) or len(value) != n:
+        raise StyleError(f"{where}: 'values' must list one data value per stop ({n}), got {value!r}")
+    v = [_number(x, where, "values") for x in value]
+    d = np.diff(v)
+    if not (np.all(d > 0) or np.all(d < 0)):
+        raise StyleError(f"{where}: 'values' must increase (or decrease) strictly, got {value!r}")
+    return tuple(v)
 
 
 def _inside(value, key: str, domain: tuple[float, float], where: str) -> float:
@@ -252,6 +267,24 @@ def parse_ramp(name: str, table: Mapping, path: Path | str) -> RampSpec:
     if kind != "twin" and space not in ("cam02ucs", "cielab"):
         raise StyleError(f"{where}: space '{space}' is not an interpolation space; one of: cam02ucs, cielab")
     domain = _domain(table, where)
+    flip = False
+    if "reverse" in table:
+        if not isinstance(table["reverse"], bool):
+            raise StyleError(f"{where}: 'reverse' must be true or false, got {table['reverse']!r}")
+        flip = table["reverse"]
+    values = _pinned(table, where, len(table["through"])) if kind == "sequential" and _is_list(
+        table.get("through")) else None
+    if values is not None:      # the stops' values set the domain; their order is the listing's
+        ends = (min(values), max(values))
+        if domain is not None and tuple(sorted(domain)) != ends:
+            raise StyleError(f"{where}: 'domain' {list(domain)} must span the first to the last of "
+                             f"'values' {list(ends)} (or leave it out)")
+        domain = ends
+    if domain is not None and domain[0] > domain[1]:
+        if kind not in ("sequential", "diverging"):
+            raise StyleError(f"{where}: a domain from high to low is for sequential and diverging "
+                             f"ramps; write [low, high], got {list(domain)}")
+        domain, flip = (domain[1], domain[0]), not flip
     if kind != "twin":
         domain = domain or (0.0, 1.0)
     fields = _sampling(table, where, domain)
@@ -266,9 +299,16 @@ def parse_ramp(name: str, table: Mapping, path: Path | str) -> RampSpec:
         return RampSpec(name, kind, path, domain=domain, twin=base,
                         hue=tuple(_number(h, where, "hue") for h in hue), **fields)
     if kind == "sequential":
-        return RampSpec(name, kind, path, space, domain, through=_stops(table, "through", where, 2), **fields)
+        through = _stops(table, "through", where, 2)
+        if values is not None and values[0] > values[-1]:   # listed from high to low
+            values, through = values[::-1], through[::-1]
+        if flip:
+            through = through[::-1]
+            if values is not None:
+                values = tuple(domain[0] + domain[1] - v for v in values[::-1])
+        return RampSpec(name, kind, path, space, domain, through=through, values=values, **fields)
     if kind == "diverging":
-        through = _stops(table, "through", where, 3)
+        through = _stops(table, "through", where, 3)[::-1 if flip else 1]
         if len(through) % 2 == 0:
             raise StyleError(f"{where}: 'through' needs an odd number of colours (the middle one is "
                              f"the midpoint), got {len(through)}")

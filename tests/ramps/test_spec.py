@@ -41,7 +41,7 @@ def test_key_of_another_kind_is_unknown():
     ({"through": SEQ["through"]}, "missing key 'kind'; one of: sequential, diverging, qualitative, threshold"),
     ({**SEQ, "kind": "sequencial"}, "kind 'sequencial' is not a ramp kind; did you mean 'sequential'?"),
     ({**SEQ, "space": "hsv"}, "space 'hsv' is not an interpolation space; one of: cam02ucs, cielab"),
-    ({**SEQ, "domain": [5, 1]}, "'domain' must have low < high"),
+    ({**SEQ, "domain": [5, 5]}, "'domain' needs two different values"),   # [5, 1] runs high to low
     ({**SEQ, "domain": [0, "x"]}, "'domain' must be a finite number"),
     ({**SEQ, "through": [lch(50, 10, 10)]}, "'through' must be a list of at least 2 colours"),
     ({**SEQ, "samples": 1}, "'samples' must be a whole number from 2 to 65533"),
