@@ -39,7 +39,8 @@ from compose.errors import StyleError
 from compose.layers.paths import area_path, dashed, display, flatten, line_path, to_pixels
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
-           "draw_lines", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes"]
+           "draw_lines", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
+           "fill_text_path"]
 
 #: Line end styles (our names -> Agg's).
 CAPS = {"round": "round", "butt": "butt", "square": "projecting"}
@@ -259,8 +260,15 @@ def draw_text_shapes(shapes: Iterable[tuple[TextShape, float, float]], width: in
         codes.append(shape.codes)
     if not verts:
         return _zeros(width, height), (_zeros(width, height) if halo_px > 0 else None)
-    canvas = _Canvas(width, height)
     path = Path(np.concatenate(verts), np.concatenate(codes), readonly=True)
+    return fill_text_path(path, width, height, halo_px)
+
+
+def fill_text_path(path: Path, width: int, height: int, halo_px: float = 0.0
+                   ) -> tuple[np.ndarray, np.ndarray | None]:
+    """Glyph outlines already in display pixels (y up) -> (text coverage, halo coverage or None
+    when ``halo_px`` is 0): the glyphs filled, and filled and stroked ``halo_px`` wide."""
+    canvas = _Canvas(width, height)
     path.should_simplify = False
     canvas.fill(path, canvas.gc(0.0))
     text_cov = canvas.coverage()

@@ -25,6 +25,7 @@ class LabelsLayer:
         self.source.check_overlap(canvas)
         feats = self.source.load(canvas.crs)
         items = []
+        lines = []
         for geom, props in zip(feats.geometries, feats.properties):
             if o.text not in props:
                 raise StyleError(f'layer "{spec.name}": text attribute \'{o.text}\' not found; '
@@ -44,22 +45,53 @@ class LabelsLayer:
             text = str(text)
             if len(text) > MAX_LABEL_CHARS:          # a label is a name, not a paragraph
                 text = text[:MAX_LABEL_CHARS - 1] + "\u2026"
+            if o.along and geom.geom_type in ("LineString", "MultiLineString"):
+                lines.append((geom, text, prio))
+                continue
             items.append((pt.x, pt.y, text, prio))
         px = canvas.points_to_pixels
-        halo_px = px(o.halo.width) if o.halo is not None else 0.0
+        halo_px = self.halo_px = px(o.halo.width) if o.halo is not None else 0.0
         self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,
                                       size_px=px(o.size), font=o.font, weight=o.weight,
                                       halo_px=halo_px, offset_px=px(o.offset),
                                       blocked=context.blocked)
+        self.along, self.along_unplaced = [], []
+        if lines:
+            # one name, one line: the pieces of a named line are joined before placing
+            named: dict[str, tuple[list, float]] = {}
+            for geom, text, prio in lines:
+                geoms, best = named.get(text, ([], -np.inf))
+                named[text] = (geoms + [geom], max(best, prio))
+            lines = [(shapely.line_merge(shapely.union_all(g)), t, p) for t, (g, p) in named.items()]
+            from compose.layers.label_placement import BoxGrid
+            from compose.layers.labels_along import place_along
+
+            grid = BoxGrid()
+            for box in list(context.blocked) + [lab.box for lab in self.placement.placed]:
+                grid.add(tuple(float(v) for v in box))
+            self.along, self.along_unplaced = place_along(
+                lines, canvas.transform, canvas.width, canvas.height, size_px=px(o.size),
+                font=o.font, weight=o.weight, halo_px=halo_px, spacing_px=px(o.spacing), grid=grid)
         self.margin = 0  # labels are placed on the whole canvas and drawn clipped per window
 
     @property
     def unplaced(self) -> list[str]:
-        return [str(getattr(it, "text", it)) for it in self.placement.unplaced]
+        return ([str(getattr(it, "text", it)) for it in self.placement.unplaced]
+                + list(self.along_unplaced))
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
         text_cov, halo_cov = draw_labels(self.placement, transform, width, height)
+        if self.along:
+            from compose.layers.labels_along import draw_along
+            from compose.layers.paths import to_pixels
+
+            c0, r0 = to_pixels(np.array([[transform.c, transform.f]]), self.canvas.transform)[0]
+            t2, h2 = draw_along(self.along, c0, r0, width, height, self.halo_px)
+            if t2 is not None:
+                text_cov = np.maximum(text_cov, t2)
+                if halo_cov is not None and h2 is not None:
+                    halo_cov = np.maximum(halo_cov, h2)
         paints = []
         if o.halo is not None and halo_cov is not None and np.any(halo_cov):
             paints.append(Paint("halo", halo_cov, color=o.halo.color))

@@ -20,7 +20,8 @@ from affine import Affine
 
 from compose.layers.draw import ANCHORS, TextShape, draw_text_shapes, measure_text, to_pixels
 
-__all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "place_labels", "draw_labels"]
+__all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "BoxGrid", "place_labels",
+           "draw_labels"]
 
 #: Candidate positions in order of preference: (name, anchor of the text box at the offset
 #: point, (dx, dy) unit offset in pixels with rows running down).
@@ -80,7 +81,7 @@ class Placement:
     halo_px: float
 
 
-class _Grid:
+class BoxGrid:
     """Boxes bucketed in square cells, for overlap tests against the placed ones."""
 
     def __init__(self) -> None:
@@ -126,7 +127,7 @@ def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, h
     """
     items = [_item(it) for it in items]
     order = sorted(range(len(items)), key=lambda i: -items[i].priority)  # stable for ties
-    grid = _Grid()
+    grid = BoxGrid()
     for box in blocked:
         grid.add(tuple(float(v) for v in box))
     grow = max(float(halo_px), 0.0) / 2.0
@@ -151,7 +152,7 @@ def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, h
 
 
 def _first_fit(shape: TextShape, point, offset_px: float, grow: float, width: int, height: int,
-               grid: _Grid):
+               grid: BoxGrid):
     for position, anchor, (ux, uy) in POSITIONS:
         fx, fy = ANCHORS[anchor]
         col = float(point[0]) + ux * offset_px

@@ -129,6 +129,14 @@ def _labels(ax, layer, transform, z):
             t.set_path_effects([Stroke(linewidth=o.halo.width, foreground=_rgb(o.halo.color))])
             out.append(t)
         out.append(ax.text(col, base, lab.text, color=_rgb(o.color), zorder=z + 0.1, **kw))
+    for lab in getattr(layer, "along", ()):          # labels along lines: turned at their anchor
+        kw = dict(fontsize=o.size, family=o.font, weight=o.weight, ha="left", va="baseline",
+                  alpha=a, rotation=lab.angle, rotation_mode="anchor")
+        if o.halo is not None:
+            t = ax.text(lab.col, lab.row, lab.text, color=_rgb(o.halo.color), zorder=z, **kw)
+            t.set_path_effects([Stroke(linewidth=o.halo.width, foreground=_rgb(o.halo.color))])
+            out.append(t)
+        out.append(ax.text(lab.col, lab.row, lab.text, color=_rgb(o.color), zorder=z + 0.1, **kw))
     return out
 
 

@@ -18,7 +18,7 @@ import numpy as np
 from compose.color.parse import parse_color
 from compose.errors import StyleError
 from compose.ramps.relief import default_shadow
-from compose.style.validate import (RGB, Scope, as_table, build_from_table, choice, color,
+from compose.style.validate import (RGB, Scope, as_table, boolean, build_from_table, choice, color,
                                     integer, number, numbers, option, option_keys,
                                     required_keys, scalars, string, table_of)
 
@@ -85,6 +85,13 @@ class Halo:
 
 
 _halo = table_of(Halo)
+
+
+def _halo_or_off(value: Any, at: Scope) -> Halo | None:
+    """A halo table, or ``false`` for none."""
+    if value is False:
+        return None
+    return _halo(value, at)
 
 
 def _no_filter() -> Mapping[str, tuple]:
@@ -207,7 +214,9 @@ class PointOptions:
 class LabelOptions:
     """Labels from attribute ``text``; larger ``priority`` attribute values are placed first.
     ``size`` and ``offset`` (to the upper right of the point) in points; ``font`` a family
-    matplotlib knows; ``weight`` a name or 100-900."""
+    matplotlib knows; ``weight`` a name or 100-900. ``along``: names of line features follow
+    their line (upright, on a straight stretch) every ``spacing`` points. Every label has a
+    halo unless ``halo = false``."""
 
     table: str | None = option(string(), None)
     where: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
@@ -215,10 +224,12 @@ class LabelOptions:
     priority: str | None = option(string(), None)
     size: float = option(number(gt=0, le=MAX_POINTS), 8.0)
     color: RGB = option(color(), DEFAULT_TEXT)
-    halo: Halo | None = option(_halo, None)
+    halo: Halo | None = option(_halo_or_off, factory=Halo)
     offset: float = option(number(ge=-MAX_POINTS, le=MAX_POINTS), 3.0)
     font: str = option(string(), "DejaVu Sans")
     weight: str | int = option(_weight, "normal")
+    along: bool = option(boolean(), False)
+    spacing: float = option(number(gt=0, le=MAX_POINTS), 250.0)
 
 
 LayerOptions = (ReliefOptions | FieldOptions | ClassesOptions | LineOptions | AreaOptions
