@@ -33,11 +33,14 @@ from typing import Any
 import numpy as np
 
 __all__ = ["ProcessMapper", "ClusterMapper", "mapper_for", "pack", "unpack", "ordered",
-           "default_workers", "window_task", "AUTO_PIXELS"]
+           "default_workers", "window_task", "AUTO_PIXELS", "AUTO_WORKERS"]
 
 #: Canvases from this many pixels up use every core when no worker count is given (below it,
 #: starting worker processes costs more than it saves; measured by bench/render.py).
 AUTO_PIXELS = 4096 * 4096
+#: At most this many worker processes unless asked for more (each holds a prepared render and
+#: its window, some 0.3-0.4 GB on the benchmark style).
+AUTO_WORKERS = 8
 
 
 # --- pickling -------------------------------------------------------------------------------
@@ -233,10 +236,11 @@ class ClusterMapper:
 
 def mapper_for(pixels: int, workers: int | None = None, cluster=None):
     """The mapper for a render of ``pixels`` pixels: a :class:`ClusterMapper` for ``cluster``;
-    else a :class:`ProcessMapper` for ``workers`` > 1 (None: every core, for canvases of at least
-    :data:`AUTO_PIXELS`); None (this thread) otherwise."""
+    else a :class:`ProcessMapper` for ``workers`` > 1 (None: every core up to
+    :data:`AUTO_WORKERS`, for canvases of at least :data:`AUTO_PIXELS`); None (this thread)
+    otherwise."""
     if cluster:
         return ClusterMapper(cluster)
-    if workers is None:
-        workers = default_workers() if pixels >= AUTO_PIXELS else 1
+    if workers is None:     # every core, up to AUTO_WORKERS (each worker holds its own render)
+        workers = min(default_workers(), AUTO_WORKERS) if pixels >= AUTO_PIXELS else 1
     return ProcessMapper(workers) if workers > 1 else None

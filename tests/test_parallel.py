@@ -121,3 +121,14 @@ def test_local_cluster_gives_the_same_bytes_and_statistics(tiny_region, tmp_path
         assert len(client.nthreads()) == 2
     assert one["png"] == two["png"] and one["tif"] == two["tif"]
     _stats_equal(stats_one, stats_two)
+
+
+def test_mapper_choice():
+    from compose.parallel import AUTO_PIXELS, mapper_for
+
+    assert mapper_for(AUTO_PIXELS - 1) is None                    # small maps: this thread
+    assert mapper_for(10, workers=1) is None
+    assert mapper_for(10, workers=3).workers == 3                  # asked for: honoured
+    auto = mapper_for(AUTO_PIXELS)
+    assert auto is None or 2 <= auto.workers <= 8
+    assert isinstance(mapper_for(10, cluster="tcp://127.0.0.1:1"), ClusterMapper)

@@ -75,8 +75,8 @@ def expand_styles(args: tuple[Path, ...]) -> list[Path]:
               help="Render every member of the style's [series] on shared scales, with an index page.")
 @limit_options
 @click.option("--workers", type=click.IntRange(min=1), default=None,
-              help="Processes rendering windows at once (default: every core for maps of 16 "
-                   "Mpixel or more, else 1). Outputs are the same for any number.")
+              help="Processes rendering windows at once (default: every core, at most 8, for "
+                   "maps of 16 Mpixel or more, else 1). Outputs are the same for any number.")
 @click.option("--cluster", metavar="ADDRESS", default=None,
               help="Render the windows on a dask.distributed scheduler (tcp://host:8786); every "
                    "worker must reach the style's source files.")
