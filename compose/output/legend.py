@@ -23,6 +23,7 @@ from pathlib import Path
 
 import numpy as np
 
+from compose.style.kinds import LAYER_KINDS
 from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, END_SIGN, END_W,
                                           FAMILY_ROW, FONT, FRAME, GAP, INK, KEY_PATCH, MARGIN,
                                           MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT, TITLE_H, TOP,
@@ -153,21 +154,22 @@ def _draw_overlays(ax, b: OverlaysBlock, y: float, width: float = WIDTH,
     ax.plot([MARGIN, width - MARGIN], [y - GAP / 2, y - GAP / 2], color=RULE, lw=0.5)
     for i, layer in enumerate(b.layers):
         o = layer.spec.options
-        kind = layer.spec.kind
+        kind = LAYER_KINDS[layer.spec.kind].legend      # how its kind shows: line, area, ...
         cy = y + i * OVERLAY_ROW + OVERLAY_ROW / 2
         sx0, sx1 = MARGIN + 0.02, MARGIN + 0.46
         alpha = float(layer.spec.opacity)
         # samples sit on a mid-light neutral key patch, so light halos and rings show as on a map
         ax.add_patch(Rectangle((MARGIN - 0.02, cy - 0.085), 0.52, 0.17, facecolor=key_patch,
                                edgecolor="none", zorder=0))
-        if kind == "lines":
+        if kind == "line":
             if o.halo is not None:
                 ax.plot([sx0, sx1], [cy, cy], color=rgb01(o.halo.color), lw=o.halo.width,
                         solid_capstyle="butt", alpha=alpha)
-            ls = "-" if not o.dash else (0, tuple(d / o.width for d in o.dash))
+            dash = getattr(o, "dash", None)
+            ls = "-" if not dash else (0, tuple(d / o.width for d in dash))
             ax.plot([sx0, sx1], [cy, cy], color=rgb01(o.stroke), lw=o.width, linestyle=ls,
                     solid_capstyle="butt", dash_capstyle="butt", alpha=alpha)
-        elif kind == "areas":
+        elif kind == "area":
             face = rgb01(o.fill) if o.fill is not None else "none"
             if o.halo is not None and o.width > 0:
                 ax.add_patch(Rectangle((sx0 + 0.04, cy - 0.07), 0.36, 0.14, fill=False,
@@ -175,7 +177,7 @@ def _draw_overlays(ax, b: OverlaysBlock, y: float, width: float = WIDTH,
             ax.add_patch(Rectangle((sx0 + 0.04, cy - 0.07), 0.36, 0.14, facecolor=face,
                                    edgecolor=rgb01(o.stroke) if o.width > 0 else "none",
                                    lw=o.width, alpha=alpha))
-        elif kind == "points":
+        elif kind == "marker":
             marker = "o" if o.shape == "circle" else "s"
             cx = (sx0 + sx1) / 2
             if o.width:
@@ -183,7 +185,7 @@ def _draw_overlays(ax, b: OverlaysBlock, y: float, width: float = WIDTH,
                         mec="none", alpha=alpha)
             ax.plot([cx], [cy], marker=marker, ms=o.size, color=rgb01(o.fill), mec="none",
                     alpha=alpha)
-        elif kind == "labels":
+        elif kind == "text":
             effects = ([withStroke(linewidth=o.halo.width, foreground=rgb01(o.halo.color))]
                        if o.halo is not None else [])
             ax.text((sx0 + sx1) / 2, cy, "Abc", fontsize=min(o.size, 11), color=rgb01(o.color),

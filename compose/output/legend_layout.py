@@ -9,10 +9,14 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from compose.color import interface as ui
+from compose.style.kinds import LAYER_KINDS
 
 __all__ = ["legend_layout", "LegendLayout", "BarBox", "RampsBlock", "ClassesBlock",
            "OverlaysBlock", "pretty_name", "format_value", "rgb01", "ramp_of", "ramp_marks", "DPI",
            "WIDTH", "END_GAP", "END_W", "END_SIGN", "END"]
+
+#: Legend entries (:data:`compose.style.kinds.LEGEND_ENTRIES`) drawn as a sample of the mark.
+SAMPLE_ENTRIES = ("line", "area", "marker", "text")
 
 DPI = 200                 # pixels per inch of the PNG
 WIDTH = 3.6               # inches
@@ -209,7 +213,7 @@ def _blocks(layers, seen: set[str] | None = None) -> list:
     for layer in layers:
         spec = layer.spec
         ramp = ramp_of(layer)
-        if spec.kind in ("lines", "areas", "points", "labels"):
+        if LAYER_KINDS[spec.kind].legend in SAMPLE_ENTRIES:    # a sample of the mark
             overlays.append(layer)
         elif ramp is not None and ramp.kind == "qualitative":
             blocks.append(ClassesBlock(layer, _key_title(layer, pretty_name(spec.name)),

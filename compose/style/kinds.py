@@ -335,6 +335,9 @@ LAYER_KINDS: dict[str, LayerKind] = {k.name: k for k in (
     LayerKind("labels", LabelOptions, "compose.layers.label_layer:LabelsLayer", raster=False,
               legend="text", measure="ink", roles=("overlay",),
               figure=("text", "color"), outline="halo"),
+    LayerKind("contours", "compose.layers.contours:ContourOptions",
+              "compose.layers.contours:ContoursLayer", raster=True, legend="line", measure="ink",
+              roles=("overlay",), figure=("stroke", "stroke"), outline="halo"),
 )}
 
 
