@@ -23,6 +23,7 @@ from compose.check.stats import (N_BENEATH, N_CONTRAST, N_LIGHTNESS, LayerStats,
                                  Statistics, beneath_color_codes, contrast_bins,
                                  lightness_bins_of_rgb8, luminance_of_rgb8)
 from compose.color.wcag import relative_luminance
+from compose.style.kinds import LAYER_KINDS
 
 __all__ = ["GRAY_STRIDE", "new_statistics", "WindowMeasure"]
 
@@ -35,7 +36,9 @@ def new_statistics(layers: list, width: int, height: int,
     ``width`` x ``height`` canvas; the template every window's statistics start from."""
     out = []
     for layer in layers:
-        s = LayerStats(name=layer.spec.name, role=layer.spec.role, kind=layer.spec.kind)
+        kind = LAYER_KINDS[layer.spec.kind]
+        s = LayerStats(name=layer.spec.name, role=layer.spec.role, kind=layer.spec.kind,
+                       figure=kind.figure, outline=kind.outline)
         palette = getattr(layer, "palette", None)
         if palette is not None and layer.spec.role == "theme":
             s.values = palette.values.copy()

@@ -59,7 +59,7 @@ def figure_part(spec, s) -> tuple[str, str] | None:
         if "stroke" in s.parts and getattr(spec.options, "width", 0) > 0:
             return "stroke", "stroke"
         return ("fill", "fill") if "fill" in s.parts else None
-    return FIGURE.get(spec.kind)
+    return s.figure if s.figure is not None else FIGURE.get(spec.kind)
 
 
 def _limit(ctx: CheckContext, spec) -> tuple[float, str]:
@@ -77,7 +77,7 @@ def judge(ctx: CheckContext, spec, s) -> dict | None:
     part, key = fp
     fig = s.parts[part]
     limit, source = _limit(ctx, spec)
-    outline_name = OUTLINE.get(spec.kind)
+    outline_name = s.outline if s.outline is not None else OUTLINE.get(spec.kind)
     outline = s.parts.get(outline_name) if outline_name and outline_name != part else None
     share = contrast_share(fig.contrast, limit)
     casing = contrast_share(outline.contrast, limit) if outline is not None else float("nan")
@@ -159,7 +159,10 @@ def _contrast_rule(ctx: CheckContext, kinds: tuple[str, ...], rule: str) -> list
 
 def overlay_contrast(ctx: CheckContext) -> list[RuleResult]:
     """Lines, areas and points: share of figure pixels with WCAG contrast >= 3:1 (SC 1.4.11)."""
-    return _contrast_rule(ctx, ("lines", "areas", "points"), "overlay-contrast")
+    # every overlay kind drawn as a mark (its kind's figure part, see compose.measure), not text
+    marks = tuple({st.kind for st in ctx.stats.layers if st.figure is not None
+                   and st.figure[0] != "text"} | {"lines", "areas", "points"})
+    return _contrast_rule(ctx, marks, "overlay-contrast")
 
 
 def label_contrast(ctx: CheckContext) -> list[RuleResult]:

@@ -219,11 +219,14 @@ class LayerStats:
     value_lightness: np.ndarray | None = None  # (n, N_LIGHTNESS) palette index x composite L*
     nodata_weight: float = 0.0                 # pixels drawn in the no-data colour
     nodata_index: int = -1                     # palette entry of the no-data colour (themes), or -1
+    figure: tuple[str, str] | None = None      # overlays: (part judged as the mark, its colour key)
+    outline: str | None = None                 # overlays: the part drawn beneath the figure
 
     def empty_like(self) -> "LayerStats":
         """The same layer with nothing measured yet (a window's statistics start from this)."""
         return LayerStats(name=self.name, role=self.role, kind=self.kind,
                           values=self.values, nodata_index=self.nodata_index,
+                          figure=self.figure, outline=self.outline,
                           value_lightness=(None if self.value_lightness is None
                                            else np.zeros_like(self.value_lightness)))
 

@@ -139,3 +139,20 @@ def test_the_legend_shows_a_line_sample(cone):
         prepared.close()
     blocks = [b for b in layout.blocks if isinstance(b, OverlaysBlock)]
     assert [la.spec.name for b in blocks for la in b.layers] == ["contours"]
+
+
+def test_the_checker_judges_contours_like_lines(cone):
+    import compose
+
+    style = cone[0]
+    text = style.read_text().replace("[[layer]]", """[[layer]]
+name = "relief"
+role = "ground"
+kind = "relief"
+source = "cone.tif"
+
+[[layer]]""", 1)
+    style.write_text(text)
+    report = compose.check(style)
+    mine = {r.rule for r in report.rules if r.layer == "contours"}
+    assert "overlay-contrast" in mine
