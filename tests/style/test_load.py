@@ -181,7 +181,8 @@ def test_layers_in_file_order_with_options(full, tmp_path):
 
 def test_defaults_of_each_kind():
     # every kind's options build from the required keys alone
-    required = {"field": {"ramp": "r"}, "classes": {"ramp": "r"}, "labels": {"text": "name"}}
+    required = {"field": {"ramp": "r"}, "classes": {"ramp": "r"}, "labels": {"text": "name"},
+                "contours": {"interval": 10.0}}
     for kind, schema in LAYER_KINDS.items():
         opts = schema.options(**required.get(kind, {}))
         assert opts is not None
