@@ -103,7 +103,7 @@ def test_unknown_key_in_shade_subtable(style):
     (RELIEF + "tnt = '#ffffff'\n", "unknown key 'tnt' in layer \"relief\"; did you mean 'tint'?"),
     (RELIEF + "opactiy = 0.5\n", "unknown key 'opactiy' in layer \"relief\"; did you mean 'opacity'?"),
     (RELIEF + "width = 1\n", "unknown key 'width' in layer \"relief\"; 'width' is a key of lines, "
-                             "areas, points layers, not relief"),
+                             "areas, points, contours layers, not relief"),
     ("[budget.grund]\nchroma = [0, 5]\n" + RELIEF, "unknown key 'grund' in budget; did you mean 'ground'?"),
     ("[budget.theme]\nmargn = 5\n" + RELIEF, "unknown key 'margn' in budget.theme; did you mean 'margin'?"),
     ("[[layers]]\nname = 'x'\n", "unknown key 'layers' in the style; did you mean 'layer'?"),
