@@ -77,6 +77,9 @@ class Context:
     style: Any
     #: canvas pixel boxes (col0, row0, col1, row1) labels keep clear of (page furniture)
     blocked: tuple = ()
+    #: boxes of the labels placed so far by earlier label layers (each adds its own), so labels
+    #: of different layers keep clear of each other too
+    label_boxes: list = field(default_factory=list)
 
 
 class LayerKind(Protocol):

@@ -54,7 +54,7 @@ class LabelsLayer:
         self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,
                                       size_px=px(o.size), font=o.font, weight=o.weight,
                                       halo_px=halo_px, offset_px=px(o.offset),
-                                      blocked=context.blocked)
+                                      blocked=tuple(context.blocked) + tuple(context.label_boxes))
         self.along, self.along_unplaced = [], []
         if lines:
             # one name, one line: the pieces of a named line are joined before placing
@@ -67,11 +67,14 @@ class LabelsLayer:
             from compose.layers.labels_along import place_along
 
             grid = BoxGrid()
-            for box in list(context.blocked) + [lab.box for lab in self.placement.placed]:
+            for box in (list(context.blocked) + list(context.label_boxes)
+                        + [lab.box for lab in self.placement.placed]):
                 grid.add(tuple(float(v) for v in box))
             self.along, self.along_unplaced = place_along(
                 lines, canvas.transform, canvas.width, canvas.height, size_px=px(o.size),
                 font=o.font, weight=o.weight, halo_px=halo_px, spacing_px=px(o.spacing), grid=grid)
+        context.label_boxes.extend([lab.box for lab in self.placement.placed]
+                                   + [lab.box for lab in self.along])
         self.margin = 0  # labels are placed on the whole canvas and drawn clipped per window
 
     @property

@@ -58,3 +58,26 @@ def test_drawn_where_placed():
     assert halo.sum() > text.sum()
     # a window beside the label draws nothing
     assert draw_along(placed, 0, 300, 400, 100)[0] is None
+
+
+def test_label_layers_keep_clear_of_each_other(tmp_path):
+    """A second labels layer on the same points places its labels away from the first's."""
+    from compose.engine import prepare
+    from compose.style import load_style
+    from tests.output._tiny import tiny_style
+
+    path = tiny_style(tmp_path, extra=False)
+    text = path.read_text()
+    second = text[text.index('[[layer]]\nname     = "town-names"'):].replace(
+        '"town-names"', '"town-names-again"')
+    path.write_text(text + "\n" + second)
+    run_ = prepare(load_style(path))
+    try:
+        first, again = [la for la in run_.layers if la.spec.kind == "labels"]
+        assert first.placement.placed
+        for a in first.placement.placed:
+            for b in again.placement.placed:
+                assert not (a.box[0] < b.box[2] and b.box[0] < a.box[2]
+                            and a.box[1] < b.box[3] and b.box[1] < a.box[3])
+    finally:
+        run_.close()
