@@ -46,7 +46,7 @@ def _result(ctx, rule, ramp, value, limit, passed, msg, fix="", **kw) -> RuleRes
 # --- twins ----------------------------------------------------------------------------------
 
 def _twins(ctx: CheckContext):
-    return [r for r in ctx.used_ramps() if r.kind == "twin" and r.base is not None]
+    return [r for r in ctx.used_ramps() if r.twin_of is not None and r.base is not None]
 
 
 def _twin_match(ctx: CheckContext, rule: str, attr: str, what: str) -> list[RuleResult]:

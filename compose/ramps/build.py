@@ -11,6 +11,8 @@
   steps. Both arms use the same data distance per unit (that of the longer side); the shorter arm
   is truncated. If an arm's L* is not monotone the arms fall back to their own arc length.
 * threshold: two curves, ``below`` on [lo, at) and ``above`` on [at, hi], each by arc length.
+* twin of a diverging base: per arm the base's L* and C*, one hue per arm (``hue = [low arm,
+  high arm]``); the twin is itself a diverging ramp (``twin_of`` names its base).
 * twin: the base's L* and C* at every position along the domain, its own hue, linear from
   ``hue[0]`` to ``hue[1]`` as written (write [350, 380] to pass through red). Where some member of
   a twin group cannot show the chroma at that L* and hue, the chroma is lowered in every member
@@ -36,7 +38,14 @@ from compose.ramps.curve import DENSE, arc_fraction, dense_curve, resample, to_s
 from compose.ramps.model import Piece, Ramp
 from compose.ramps.spec import RampSpec, parse_ramp
 
-__all__ = ["NODATA_CANDIDATES", "NODATA_SEPARATION", "build_ramps", "build_ramp", "choose_nodata"]
+#: Ramp kinds a twin may be built from, and why (docs/style.md states the same rule).
+TWINNABLE = ("sequential", "diverging")
+TWIN_RULE = ("sequential and diverging ramps can be twinned (a twin has the same L* and C* at "
+             "every value, its own hue: one hue path for a sequential base, one hue per arm for a "
+             "diverging one); threshold ramps cannot (the hue change at the break is their "
+             "message), nor qualitative ones (classes have no lightness order to match)")
+
+__all__ = ["TWINNABLE", "TWIN_RULE", "NODATA_CANDIDATES", "NODATA_SEPARATION", "build_ramps", "build_ramp", "choose_nodata"]
 
 # Candidate L* of neutral nodata greys, in order of preference (light first: nodata should sit
 # quietly behind the data).
@@ -206,9 +215,9 @@ def _root_of(name: str, specs: Mapping[str, RampSpec]) -> list[str]:
             raise StyleError(f"{spec.where}: twins form a cycle: {' -> '.join(chain + [base])}")
         chain.append(base)
     root = specs[chain[-1]]
-    if root.kind != "sequential":
+    if root.kind not in TWINNABLE:
         raise StyleError(f"{specs[name].where}: twin base \"{root.name}\" is a {root.kind} ramp; "
-                         "a twin needs a sequential base")
+                         f"{TWIN_RULE}")
     return chain
 
 
@@ -224,8 +233,60 @@ def _in_base_order(root: str, twins: list[RampSpec]) -> list[RampSpec]:
     return order
 
 
+def _diverging_twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[str, Ramp]:
+    """Twins of a diverging ``root``: per arm, the base's L* and C* at every value, the twin's
+    hue ``hue[0]`` on the low arm and ``hue[1]`` on the high arm; where some member cannot show
+    the chroma at that L* and hue, every member's chroma is lowered there. The base's data
+    positions are kept, so equal distance from the centre keeps equal L* in every member."""
+    twins = _in_base_order(root.name, twins)
+    names = (root.name,) + tuple(t.name for t in twins)
+    arms = []
+    for k, piece in enumerate(root.pieces):
+        lch = lab_to_lch(piece.lab)
+        L, C = lch[:, 0], lch[:, 1]
+        hues = {root.name: lch[:, 2]}
+        for spec in twins:
+            hues[spec.name] = np.full(len(L), spec.hue[k] % 360.0)
+        ceiling = np.min([max_chroma(L, h) for n, h in hues.items() if n != root.name] + [C], axis=0)
+        ceiling = np.minimum(ceiling, C)
+        labs = {n: lch_to_lab(np.stack([L, ceiling, h], axis=-1)) for n, h in hues.items()}
+        arms.append((piece, labs, C - ceiling))
+
+    def pieces_for(name: str, domain: tuple[float, float]) -> tuple[Piece, ...]:
+        lo, hi = root.domain
+        scale = (domain[1] - domain[0]) / (hi - lo)
+        out = []
+        for piece, labs, matched in arms:
+            values = domain[0] + (piece.values - lo) * scale
+            out.append(Piece(float(values[0]), float(values[-1]), values, labs[name],
+                             piece.removed, matched, piece.closed))
+        return tuple(out)
+
+    result = {root.name: _finish(dataclasses.replace(root, pieces=pieces_for(root.name, root.domain),
+                                                     matched=names), root_spec)}
+    for spec in twins:
+        base = result[spec.twin]
+        domain = spec.domain or base.domain
+        center = domain[0] + (root.center - root.domain[0]) * (domain[1] - domain[0]) / (
+            root.domain[1] - root.domain[0])
+        stepped = spec.steps is not None or spec.breaks is not None
+        steps, breaks = (spec.steps, spec.breaks) if stepped else (base.steps, base.breaks)
+        if breaks is not None and (breaks[0] <= domain[0] or breaks[-1] >= domain[1]):
+            raise StyleError(f"{spec.where}: 'breaks' must lie inside the domain "
+                             f"[{domain[0]:g}, {domain[1]:g}]")
+        ramp = Ramp(spec.name, "diverging", domain, base.stops, base.space, _GRAY, _GRAY, _GRAY,
+                    pieces_for(spec.name, domain), center=center, twin_of=spec.twin, hue=spec.hue,
+                    matched=names, base=base, steps=steps, breaks=breaks,
+                    step_method=spec.step_method or (base.step_method if not stepped else "equal"),
+                    samples=spec.samples or base.samples, path=spec.path)
+        result[spec.name] = _finish(ramp, spec)
+    return result
+
+
 def _twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[str, Ramp]:
     """Build the twins of ``root`` and lower the chroma of every member where any needs it."""
+    if root.kind == "diverging":
+        return _diverging_twin_group(root, root_spec, twins)
     (piece,) = root.pieces
     twins = _in_base_order(root.name, twins)
     u = np.linspace(0.0, 1.0, len(piece.values))

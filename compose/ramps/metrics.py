@@ -276,7 +276,7 @@ def _continuous(ramp: Ramp, m: dict) -> np.ndarray:
         m["break_dl"] = float(abs(la[0] - lb[0]))
         m["break_dh"] = _hue_gap(lb[2], la[2])
         m["break_de00"] = float(delta_e_2000(below, above))
-    if ramp.kind == "twin" and ramp.base is not None:
+    if ramp.twin_of is not None and ramp.base is not None:   # twins of any base kind
         t = np.linspace(0.0, 1.0, n)
         mine = lab_to_lch(_lab8(ramp.colors_at(t, fraction=True)))
         theirs = lab_to_lch(_lab8(ramp.base.colors_at(t, fraction=True)))

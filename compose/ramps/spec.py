@@ -242,8 +242,9 @@ def parse_ramp(name: str, table: Mapping, path: Path | str) -> RampSpec:
         raise StyleError(f"{where}: must be a table, got {table!r}")
     if "twin" in table:
         kind = "twin"
-        if table.get("kind", "sequential") != "sequential":
-            raise StyleError(f"{where}: a twin has its base's kind (sequential); drop 'kind'")
+        if table.get("kind", "sequential") not in ("sequential", "diverging"):
+            raise StyleError(f"{where}: a twin has its base's kind (sequential or diverging); "
+                             "drop 'kind'")
     else:
         if "kind" not in table:
             raise StyleError(f"{where}: missing key 'kind'; one of: {', '.join(KINDS)}")

@@ -70,7 +70,7 @@ def test_key_of_another_kind_is_unknown():
     ({**SEQ, "outside": {"high": "nope"}}, "outside.high: 'nope' is not a colour"),
     ({**SEQ, "under": "#000"}, "unknown key 'under'"),
     ({"twin": "land", "hue": 200}, "'hue' must be [hue at the low end, hue at the high end]"),
-    ({"twin": "land", "hue": [1, 2], "kind": "diverging"}, "a twin has its base's kind"),
+    ({"twin": "land", "hue": [1, 2], "kind": "threshold"}, "a twin has its base's kind"),
 ])
 def test_bad_tables(table, part):
     message = error(table)
@@ -111,7 +111,9 @@ def test_twin_cycle_is_an_error():
         make(a={"twin": "b", "hue": [1, 2]}, b={"twin": "a", "hue": [1, 2]})
 
 
-def test_twin_needs_a_sequential_base():
+def test_twin_needs_a_sequential_or_diverging_base():
     div = {"kind": "diverging", "domain": [-1, 1], "through": [lch(40, 20, 250), lch(95, 0, 0), lch(40, 20, 50)]}
-    with pytest.raises(StyleError, match='twin base "d" is a diverging ramp'):
-        make(d=div, t={"twin": "d", "hue": [1, 2]})
+    assert make(d=div, t={"twin": "d", "hue": [300, 160]})["t"].twin_of == "d"   # see test_diverging_twins
+    qual = {"kind": "qualitative", "classes": [{"value": 1, "color": "#000000"}, {"value": 2, "color": "#ffffff"}]}
+    with pytest.raises(StyleError, match='twin base "q" is a qualitative ramp; sequential and diverging'):
+        make(q=qual, t={"twin": "q", "hue": [1, 2]})
