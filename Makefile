@@ -5,7 +5,7 @@ PYTHON ?= python3
 VENV   ?= .venv
 BIN     = $(VENV)/bin
 
-.PHONY: demo test bench clean
+.PHONY: demo test lint bench clean
 
 $(BIN)/.installed: pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -18,6 +18,10 @@ demo: $(BIN)/.installed
 
 test: $(BIN)/.installed
 	$(BIN)/python -m pytest -q
+
+lint: $(BIN)/.installed
+	$(BIN)/ruff check compose
+	$(BIN)/mypy compose
 
 bench: $(BIN)/.installed
 	$(BIN)/python bench/color.py

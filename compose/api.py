@@ -64,7 +64,7 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
           mapper: Callable | None = None) -> CheckReport:
     """Render ``style`` (a :class:`Style` or a path) in memory and check its visual hierarchy;
     nothing is written. ``report.passed`` is False when any failure-severity rule failed."""
-    from compose.engine import prepare, run   # looked up per call (tests may replace them)
+    from compose.engine import prepare, run  # looked up per call (tests may replace them)
     from compose.page.write import blocked_for
 
     style = _style(style)

@@ -9,8 +9,8 @@ line just outside the map still draws its part that shows.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator
 from dataclasses import dataclass
-from typing import Iterator
 
 from affine import Affine
 
@@ -82,7 +82,7 @@ class Canvas:
 
     @classmethod
     def from_extent(cls, crs: str, extent: tuple[float, float, float, float], pixel: float,
-                    dpi: float = 300.0) -> "Canvas":
+                    dpi: float = 300.0) -> Canvas:
         """Build a canvas covering ``extent = (west, south, east, north)`` at ``pixel`` CRS units.
 
         The size is rounded up to whole pixels; the west and north edges are kept exactly.
@@ -131,7 +131,7 @@ class Canvas:
                 yield Window(row, col, min(size, self.height - row), min(size, self.width - col),
                              int(margin), self.height, self.width)
 
-    def coarser(self, max_side: int = 1200) -> "Canvas":
+    def coarser(self, max_side: int = 1200) -> Canvas:
         """The same extent at a coarser pixel so the longer side is at most ``max_side`` pixels;
         the dpi is scaled with it so strokes and labels keep their size relative to the map.
         (Global decisions from the data, e.g. quantile breaks, sample this.)"""

@@ -12,7 +12,7 @@ formula ``Cs' = (1 - ab) Cs + ab B(Cb, Cs)`` has ab = 1 and source-over reduces 
 """
 from __future__ import annotations
 
-from typing import Callable, Iterable
+from collections.abc import Callable, Iterable
 
 import numpy as np
 

@@ -15,9 +15,9 @@ from __future__ import annotations
 
 import contextlib
 import time
-from types import SimpleNamespace
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 from typing import Any, Protocol
 
 import numpy as np
@@ -269,7 +269,7 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
     done = 0
     band_row = 0
     band = under = None
-    below = next((s.below for s in sinks if getattr(s, "below", None) is not None), None)
+    below = next((b for b in (getattr(s, "below", None) for s in sinks) if b is not None), None)
 
     task = WindowTask(prepared, measure=measure, preview_factor=k, only=only, below=below)
 

@@ -51,7 +51,7 @@ class Limits:
     allow_remote: bool = False
 
 
-_CURRENT: contextvars.ContextVar[Limits] = contextvars.ContextVar("compose_limits", default=Limits())
+_CURRENT: contextvars.ContextVar[Limits] = contextvars.ContextVar("compose_limits", default=Limits())  # noqa: B039 (frozen)
 
 
 def current_limits() -> Limits:

@@ -19,9 +19,18 @@ from typing import Any
 
 import numpy as np
 
-from compose.check.stats import (N_BENEATH, N_CONTRAST, N_LIGHTNESS, LayerStats, PartStats,
-                                 Statistics, beneath_color_codes, contrast_bins,
-                                 lightness_bins_of_rgb8, luminance_of_rgb8)
+from compose.check.stats import (
+    N_BENEATH,
+    N_CONTRAST,
+    N_LIGHTNESS,
+    LayerStats,
+    PartStats,
+    Statistics,
+    beneath_color_codes,
+    contrast_bins,
+    lightness_bins_of_rgb8,
+    luminance_of_rgb8,
+)
 from compose.color.wcag import relative_luminance
 from compose.style.kinds import LAYER_KINDS
 
@@ -45,7 +54,8 @@ def new_statistics(layers: list, width: int, height: int,
             s.value_lightness = np.zeros((palette.rgb8.shape[0], N_LIGHTNESS))
             s.nodata_index = int(palette.nodata)
         out.append(s)
-    return Statistics(width=width, height=height, layers=out, background=tuple(background))
+    r, g, b = (float(v) for v in background)
+    return Statistics(width=width, height=height, layers=out, background=(r, g, b))
 
 
 def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
@@ -105,7 +115,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     else:
         rgb8 = np.clip(np.rint(np.asarray(paint.color) * 255), 0, 255).astype(np.uint8)[None, :]
         part = PartStats(paint.part, rgb8, np.array([float(alpha_core.sum())]))
-    if overlay and paint.palette is None:
+    if overlay and paint.palette is None and beneath is not None:
         pix = _core_pixels(alpha, inner)
         if pix.size:
             # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
@@ -184,6 +194,7 @@ class WindowMeasure:
             shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
             for li, index, a_core in themes:
                 s = self.stats.layers[li]
+                assert s.value_lightness is not None          # filtered above
                 keep = a_core[sub].ravel() > 0.5
                 if shown is not None:   # grey order is judged where the theme shows, not under lines
                     keep &= shown

@@ -210,7 +210,8 @@ class ClusterMapper:
                 from compose.errors import ComposeError
 
                 raise ComposeError(f"--cluster: cannot reach the scheduler at {self.address}: "
-                                   f"{str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__}") from None
+                                   + (str(exc).strip().splitlines()[0] if str(exc).strip()
+                                      else type(exc).__name__)) from None
         else:
             client = self.address
         try:

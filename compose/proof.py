@@ -19,9 +19,9 @@ from __future__ import annotations
 import contextlib
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 
@@ -184,10 +184,10 @@ def write_proofs(style, out_dir: Path, *, overwrite: bool = False,
 
     Every file is written to a temporary name and renamed into place only when all succeeded.
     """
+    from compose.caution import CAUTION
     from compose.check import check_style
     from compose.engine import prepare, run
     from compose.output.transaction import OutputSet
-    from compose.caution import CAUTION
 
     t0 = time.perf_counter()
     paths = proof_paths(style, out_dir)
@@ -201,7 +201,7 @@ def write_proofs(style, out_dir: Path, *, overwrite: bool = False,
         raise
     try:
         canvas = run_.canvas
-        with contextlib.ExitStack() as stack:
+        with contextlib.ExitStack():
             tmp = outputs.temporaries()
             sink = ProofSink({p: tmp[p] for p in PROOFS}, canvas.width, canvas.height, canvas.dpi)
             try:

@@ -21,10 +21,10 @@ from typing import Any
 
 from compose.caution import CAUTION
 from compose.engine import WINDOW, prepare, run
-from compose.output.transaction import OutputSet
 from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
 from compose.output.png import PngWriter
+from compose.output.transaction import OutputSet
 
 __all__ = ["RenderResult", "render_style", "output_paths", "nodata_seen", "CAUTION"]
 
@@ -196,7 +196,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
 
                 t = time.perf_counter()
                 report = check_style(style, stats, prepared.ramps)
-                if layout is not None:
+                if layout is not None and page_sink is not None:
                     from compose.page.contrast import with_furniture
 
                     report = with_furniture(report, style, layout, page_sink.image)
@@ -218,7 +218,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                                   seconds=seconds, statistics=stats,
                                   report=report, unplaced_labels=prepared.unplaced_labels,
                                   ramps=prepared.ramps)
-            if html:
+            if page_map is not None and layer_previews is not None:      # html
                 from compose.output.html import page_html
                 from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
                 from compose.proof import PROOFS, proof_image

@@ -9,8 +9,7 @@ from __future__ import annotations
 from compose.check.context import CheckContext
 from compose.check.finish import finish_results
 from compose.check.legibility import judge
-from compose.check.report import (CAUTION, FAILURE, WARNING, Change, LayerSummary, Report,
-                                  RuleResult, format_report)
+from compose.check.report import CAUTION, FAILURE, WARNING, Change, LayerSummary, Report, RuleResult, format_report
 from compose.check.rules import RULES, describe, run_rules
 
 __all__ = ["check_style", "summarise_layers", "CheckContext", "Report", "RuleResult",

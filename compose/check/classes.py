@@ -35,7 +35,7 @@ def classes_count(ctx: CheckContext) -> list[RuleResult]:
     practice: seven plus or minus two)."""
     lo, hi = (int(v) for v in ctx.budgets.classes.count)
     out = []
-    for spec, s, ramp in _class_layers(ctx):
+    for spec, _s, ramp in _class_layers(ctx):
         n = len(ramp.classes)
         met = lo <= n <= hi
         out.append(RuleResult("classes-count", spec.name, n, [lo, hi], True,
@@ -72,7 +72,7 @@ def _separation(ctx: CheckContext, vision: str) -> list[RuleResult]:
     sep = float(ctx.budgets.classes.separation)
     out = []
     vi = _VISION_KINDS.index(vision)
-    for spec, s, ramp in _class_layers(ctx):
+    for spec, _s, ramp in _class_layers(ctx):
         rgb8 = to_rgb8(np.array([c.rgb for c in ramp.classes]))
         if len(rgb8) < 2:
             continue

@@ -6,8 +6,9 @@ colour, which layers use a ramp). It computes nothing about the picture itself.
 """
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
-from typing import Any, Iterator
+from typing import Any
 
 import numpy as np
 
@@ -44,7 +45,7 @@ class CheckContext:
     _metrics: dict = field(default_factory=dict)
 
     @classmethod
-    def build(cls, style, stats: Statistics, ramps: dict) -> "CheckContext":
+    def build(cls, style, stats: Statistics, ramps: dict) -> CheckContext:
         specs = {spec.name: spec for spec in style.layers if getattr(spec, "enabled", True)}
         return cls(style=style, stats=stats, ramps=dict(ramps or {}), budgets=style.budgets,
                    specs=specs)

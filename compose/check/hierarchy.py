@@ -10,13 +10,12 @@ from __future__ import annotations
 
 import math
 
-from compose.check.context import CheckContext, layer_key
 from compose.check.catalog import limit_of
-from compose.check.fixes import (hex8, solve_relief_chroma, solve_relief_lightness,
-                                 solve_relief_spread)
+from compose.check.context import CheckContext, layer_key
+from compose.check.fixes import hex8, solve_relief_chroma, solve_relief_lightness, solve_relief_spread
 from compose.check.report import Change, RuleResult
-from compose.color.parse import to_rgb8
 from compose.color.lab import srgb_to_lch
+from compose.color.parse import to_rgb8
 
 __all__ = ["ground_lightness", "ground_chroma", "relief_visible", "reserved_saturation",
            "theme_chroma", "theme_chroma_min"]

@@ -32,9 +32,9 @@ import math
 import numpy as np
 
 from compose.check.context import CheckContext, layer_key
-from compose.check.fixes import (halo_color, hex8, lch_rgb8, solve_contrast_lightness)
+from compose.check.fixes import halo_color, hex8, lch_rgb8, solve_contrast_lightness
 from compose.check.report import Change, RuleResult
-from compose.check.stats import (beneath_color_centres, contrast_share, histogram_percentiles)
+from compose.check.stats import beneath_color_centres, contrast_share, histogram_percentiles
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 
 __all__ = ["FIGURE", "OUTLINE", "ND_C", "ND_K", "figure_part", "judge", "overlay_contrast",

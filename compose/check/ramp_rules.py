@@ -160,7 +160,7 @@ def nodata_chroma(ctx: CheckContext) -> list[RuleResult]:
     """Drawn no-data colour C*ab <= ``budget.nodata.chroma`` (default 3): no-data is not data."""
     limit = float(ctx.budgets.nodata.chroma)
     out = []
-    for spec, s, ramp, rgb8, table, key in _nodata_cases(ctx):
+    for spec, _s, ramp, rgb8, table, key in _nodata_cases(ctx):
         C = float(srgb_to_lch(rgb8 / 255.0)[1])
         passed = C <= limit
         fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key)
@@ -175,7 +175,7 @@ def nodata_separation(ctx: CheckContext) -> list[RuleResult]:
     Coltekin 2016) from every colour of its ramp."""
     limit = float(ctx.budgets.nodata.separation)
     out = []
-    for spec, s, ramp, rgb8, table, key in _nodata_cases(ctx):
+    for spec, _s, ramp, rgb8, table, key in _nodata_cases(ctx):
         lab = srgb_to_lab(rgb8 / 255.0)
         d = float(delta_e_2000(lab, srgb_to_lab(ctx.ramp_colors8(ramp) / 255.0)).min())
         passed = d >= limit
@@ -194,7 +194,7 @@ def nodata_background(ctx: CheckContext) -> list[RuleResult]:
     limit = float(ctx.budgets.nodata.separation)
     bg = srgb_to_lab(np.asarray(ctx.background))
     out = []
-    for spec, s, ramp, rgb8, table, key in _nodata_cases(ctx):
+    for spec, _s, ramp, rgb8, table, key in _nodata_cases(ctx):
         d = float(delta_e_2000(srgb_to_lab(rgb8 / 255.0), bg))
         same = d < SAME_AS_BACKGROUND
         passed = same or d >= limit

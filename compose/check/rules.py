@@ -7,20 +7,40 @@ docstring (``compose check`` prints them with ``--rules``-style help via :func:`
 """
 from __future__ import annotations
 
-from typing import Callable
+from collections.abc import Callable
 
+from compose.check.classes import (
+    classes_count,
+    classes_separation,
+    classes_separation_deutan,
+    classes_separation_protan,
+)
 from compose.check.context import CheckContext
-from compose.check.hierarchy import (ground_chroma, ground_lightness, relief_visible,
-                                     reserved_saturation, theme_chroma, theme_chroma_min)
-from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
-from compose.check.classes import (classes_count, classes_separation, classes_separation_deutan,
-                                   classes_separation_protan)
-from compose.check.ramp_rules import (grayscale_order, nodata_background, nodata_chroma,
-                                      nodata_separation, ramp_break_visible,
-                                      ramp_diverging_symmetry, ramp_lightness_monotone,
-                                      ramp_neutral_midpoint, ramp_step_uniformity,
-                                      threshold_lightness, twin_chroma, twin_hue, twin_lightness)
 from compose.check.finish import roles_present
+from compose.check.hierarchy import (
+    ground_chroma,
+    ground_lightness,
+    relief_visible,
+    reserved_saturation,
+    theme_chroma,
+    theme_chroma_min,
+)
+from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
+from compose.check.ramp_rules import (
+    grayscale_order,
+    nodata_background,
+    nodata_chroma,
+    nodata_separation,
+    ramp_break_visible,
+    ramp_diverging_symmetry,
+    ramp_lightness_monotone,
+    ramp_neutral_midpoint,
+    ramp_step_uniformity,
+    threshold_lightness,
+    twin_chroma,
+    twin_hue,
+    twin_lightness,
+)
 from compose.check.report import RuleResult
 
 __all__ = ["Rule", "RULES", "run_rules", "describe"]

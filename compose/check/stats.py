@@ -190,14 +190,14 @@ class PartStats:
     beneath_lightness: np.ndarray | None = None
     beneath_colors: np.ndarray | None = None
 
-    def copy(self) -> "PartStats":
+    def copy(self) -> PartStats:
         """A copy whose histograms can be added to without touching this one."""
         return PartStats(self.part, self.colors, self.weights.copy(),
                          *(None if a is None else a.copy() for a in (
                              self.contrast, self.ground_contrast, self.beneath_lightness,
                              self.beneath_colors)))
 
-    def merge(self, other: "PartStats") -> None:
+    def merge(self, other: PartStats) -> None:
         """Add ``other`` (the same part measured elsewhere) to this."""
         self.weights += other.weights
         for name in ("contrast", "ground_contrast", "beneath_lightness", "beneath_colors"):
@@ -222,7 +222,7 @@ class LayerStats:
     figure: tuple[str, str] | None = None      # overlays: (part judged as the mark, its colour key)
     outline: str | None = None                 # overlays: the part drawn beneath the figure
 
-    def empty_like(self) -> "LayerStats":
+    def empty_like(self) -> LayerStats:
         """The same layer with nothing measured yet (a window's statistics start from this)."""
         return LayerStats(name=self.name, role=self.role, kind=self.kind,
                           values=self.values, nodata_index=self.nodata_index,
@@ -230,7 +230,7 @@ class LayerStats:
                           value_lightness=(None if self.value_lightness is None
                                            else np.zeros_like(self.value_lightness)))
 
-    def merge(self, other: "LayerStats") -> None:
+    def merge(self, other: LayerStats) -> None:
         """Add ``other`` (the same layer measured elsewhere, e.g. another window) to this."""
         for key, part in other.parts.items():
             if key in self.parts:
@@ -294,12 +294,12 @@ class Statistics:
     def pixels(self) -> int:
         return self.width * self.height
 
-    def empty_like(self) -> "Statistics":
+    def empty_like(self) -> Statistics:
         """The same render with nothing measured yet (a window's statistics start from this)."""
         return Statistics(width=self.width, height=self.height, background=self.background,
                           layers=[s.empty_like() for s in self.layers])
 
-    def merge(self, other: "Statistics") -> "Statistics":
+    def merge(self, other: Statistics) -> Statistics:
         """Add ``other`` (statistics of more windows of the same render) to this; returns self.
 
         Merging is addition, so windows measured anywhere sum to the same numbers in any order

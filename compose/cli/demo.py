@@ -69,8 +69,8 @@ def command(out_dir: Path, data_only: bool) -> None:
     The region's data (invented: no real place) is copied into OUT/demo_region for you to try
     `compose init` on.
     """
-    from compose.cli.render import print_summary
     from compose.caution import CAUTION
+    from compose.cli.render import print_summary
     from compose.errors import ComposeError
     from compose.render import render_style
     from compose.style import load_style

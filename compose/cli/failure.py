@@ -191,9 +191,9 @@ def guarded(func: Callable) -> Callable:
     """
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
-        from compose.errors import ComposeError
-
         import click
+
+        from compose.errors import ComposeError
 
         try:
             with signals_as_exceptions(), quiet_libraries():

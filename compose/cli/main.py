@@ -49,7 +49,7 @@ class LazyGroup(click.Group):
             if exc.name == modname:
                 return None  # command not built yet
             raise
-        return getattr(module, "command")
+        return module.command
 
 
 @click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})

@@ -17,8 +17,8 @@ def load_ramps(style_path: Path | None, names=()) -> dict:
     with the library ramps named in ``names``; without a style, the whole library."""
     from compose.ramps import build_ramps
     from compose.ramps.library import with_library
-    from compose.style.load import library_tables
     from compose.style import load_style
+    from compose.style.load import library_tables
 
     if style_path is None:
         return build_ramps(library_tables())
@@ -54,7 +54,7 @@ def _rows(ramp, samples: int) -> list[dict]:
     lch = srgb_to_lch(rgb8 / 255.0)
     rows = []
     for i, (v, code, (L, C, h)) in enumerate(zip(values, rgb8, lch)):
-        row = {"value": float(v), "hex": "#%02x%02x%02x" % tuple(int(c) for c in code),
+        row = {"value": float(v), "hex": "#{:02x}{:02x}{:02x}".format(*tuple(int(c) for c in code)),
                "L": round(float(L), 3), "C": round(float(C), 3), "h": round(float(h), 3)}
         if ramp.kind == "qualitative":
             row["label"] = ramp.classes[i].label

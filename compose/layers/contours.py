@@ -18,7 +18,7 @@ import numpy as np
 from compose.layers.base import Context, Paint
 from compose.layers.raster import open_raster
 from compose.style.kinds import DEFAULT_STROKE, RESAMPLING, Halo
-from compose.style.validate import (RGB, choice, color, integer, number, option, table_of)
+from compose.style.validate import RGB, choice, color, integer, number, option, table_of
 
 __all__ = ["ContourOptions", "ContoursLayer", "contour_levels", "isolines"]
 

@@ -23,8 +23,8 @@ clipped to the canvas (or not at all), not cut at the window edge.
 from __future__ import annotations
 
 import functools
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
-from typing import Iterable, Sequence
 
 import numpy as np
 import shapely

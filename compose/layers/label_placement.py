@@ -12,8 +12,8 @@ box wins. A label with no such position is not placed.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import Iterable
 
 import numpy as np
 from affine import Affine

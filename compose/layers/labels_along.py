@@ -90,7 +90,7 @@ def place_along(items, transform, width: int, height: int, *, size_px: float,
     for i in order:
         geom, text, _ = items[i]
         shape = measure_text(text, float(size_px), font, weight)
-        w, h = shape.width, shape.height
+        w, _h = shape.width, shape.height
         parts = sorted(_parts([geom], transform), key=lambda p: -float(
             np.sum(np.hypot(*np.diff(p, axis=0).T))))
         found = 0

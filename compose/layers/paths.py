@@ -6,7 +6,7 @@ edge). Parts come from ``shapely.get_coordinates(..., return_index=True)``; no p
 """
 from __future__ import annotations
 
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import shapely

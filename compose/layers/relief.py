@@ -10,9 +10,9 @@ import numpy as np
 
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.hillshade import multidirectional, stretch_factor
-from compose.sources.raster import cell_size_metres
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
+from compose.sources.raster import cell_size_metres
 
 __all__ = ["ReliefLayer", "relief_palette", "LEVELS", "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
 

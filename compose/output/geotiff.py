@@ -67,7 +67,7 @@ class GeoTiffWriter:
         if self.cog:
             self._target.unlink(missing_ok=True)
 
-    def __enter__(self) -> "GeoTiffWriter":
+    def __enter__(self) -> GeoTiffWriter:
         return self
 
     def __exit__(self, *exc) -> None:

@@ -18,11 +18,10 @@ from __future__ import annotations
 import html
 import math
 from pathlib import Path
+from typing import Any
 
-import numpy as np
-
-from compose.color.interface import MARKS
 from compose.caution import CAUTION
+from compose.color.interface import MARKS
 from compose.output.html_css import CSS
 from compose.output.html_images import PROOF_WIDTH, box_reduce, jpeg_uri, png_uri
 
@@ -186,7 +185,8 @@ def _layers_section(previews, style, result, report, ramps) -> str:
         passed = all(r.passed for r in results) if results else None
         verdict = ("" if passed is None else
                    f'<span class="tag {"pass" if passed else "fail"}">'
-                   f'{MARKS["pass"] + " all rules pass" if passed else MARKS["fail"] + " fails " + ", ".join(sorted({r.rule for r in results if not r.passed}))}</span>')
+                   + (f'{MARKS["pass"]} all rules pass' if passed else f'{MARKS["fail"]} fails '
+                      + ", ".join(sorted({r.rule for r in results if not r.passed}))) + "</span>")
         ramp = getattr(spec.options, "ramp", None)
         tags = [spec.role, spec.kind, f"blend {spec.blend}"]
         if spec.opacity < 1:
@@ -226,7 +226,7 @@ def _layers_section(previews, style, result, report, ramps) -> str:
     return "".join(cards)
 
 
-def _ramp_users(style, ramps) -> list[tuple[object, list[str]]]:
+def _ramp_users(style, ramps) -> list[tuple[Any, list[str]]]:
     """(ramp, names of the drawn layers using it or its twins) per ramp drawn, in layer order."""
     drawn = [(spec, ramps.get(getattr(spec.options, "ramp", None) or "")) for spec in style.layers
              if spec.enabled]

@@ -17,8 +17,8 @@ from __future__ import annotations
 import numpy as np
 
 from compose.check.stats import CONTRAST_STEP, N_CONTRAST
-from compose.color.lab import lab_to_srgb, srgb_to_lch, xyz_to_lab
 from compose.color import interface as ui
+from compose.color.lab import lab_to_srgb, srgb_to_lch, xyz_to_lab
 from compose.color.wcag import relative_luminance
 from compose.output.svg import Figure, nice_ticks
 

@@ -5,7 +5,8 @@ Blocks, top to bottom in style order:
 * **colour bars** for every raster layer drawn through a continuous or stepped ramp, in data
   units. Continuous ramps are drawn column by column from the layer's lookup table (the colours
   the map has, not a re-interpolation); stepped ramps as equal-width blocks with their breaks
-  labelled; the out-of-domain colours as separate end squares with a '<' / '>' sign; the threshold break and the diverging centre are
+  labelled; the out-of-domain colours as separate end squares with a '<' / '>' sign; the
+  threshold break and the diverging centre are
   marked above the bar; the no-data colour as a labelled swatch (left out when no-data is
   transparent). Layers whose ramps are twins (or share a ramp) are stacked on one shared data
   scale with a single axis, so equal values can be compared across them at a glance.
@@ -23,13 +24,41 @@ from pathlib import Path
 
 import numpy as np
 
+from compose.output.legend_layout import (
+    AXIS_H,
+    CLASS_ROW,
+    DPI,
+    END,
+    END_GAP,
+    END_SIGN,
+    END_W,
+    FAMILY_ROW,
+    FONT,
+    FRAME,
+    GAP,
+    INK,
+    KEY_PATCH,
+    MARGIN,
+    MUTED,
+    OVERLAY_ROW,
+    PAPER,
+    RULE,
+    TITLE_FONT,
+    TITLE_H,
+    TOP,
+    WIDTH,
+    BarBox,
+    ClassesBlock,
+    LegendLayout,
+    OverlaysBlock,
+    RampsBlock,
+    legend_layout,
+    pretty_name,
+    ramp_marks,
+    ramp_of,
+    rgb01,
+)
 from compose.style.kinds import LAYER_KINDS
-from compose.output.legend_layout import (AXIS_H, CLASS_ROW, DPI, END, END_GAP, END_SIGN, END_W,
-                                          FAMILY_ROW, FONT, FRAME, GAP, INK, KEY_PATCH, MARGIN,
-                                          MUTED, OVERLAY_ROW, PAPER, RULE, TITLE_FONT, TITLE_H, TOP,
-                                          WIDTH, BarBox, LegendLayout, ClassesBlock, format_value, ramp_marks,
-                                          OverlaysBlock, ramp_of, RampsBlock, rgb01,
-                                          legend_layout, pretty_name)
 
 __all__ = ["write_legend", "legend_png", "legend_figure", "draw_legend", "legend_layout",
            "LegendLayout", "BarBox",

@@ -158,7 +158,7 @@ class PngWriter:
             self._pool = None
         self._f.close()
 
-    def __enter__(self) -> "PngWriter":
+    def __enter__(self) -> PngWriter:
         return self
 
     def __exit__(self, exc_type, exc, tb) -> None:

@@ -8,7 +8,7 @@ from __future__ import annotations
 import base64
 import html
 import math
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 
 from compose.color import interface as ui
 
@@ -87,8 +87,8 @@ class Axes:
                   f'height="{_f(py1 - py0)}" fill="{fill}" fill-opacity="{opacity:g}" '
                   f'stroke="{stroke}" stroke-width="{width:g}"{d} {self._clip}/>')
 
-    def bars(self, left: Sequence[float], right: Sequence[float], height: Sequence[float],
-             colors: Sequence[str], edge: str = "none", width: float = 0.4) -> None:
+    def bars(self, left: Iterable[float], right: Iterable[float], height: Iterable[float],
+             colors: Iterable[str], edge: str = "none", width: float = 0.4) -> None:
         """Bars from 0 to ``height`` between ``left`` and ``right`` (data x)."""
         for a, b, h, c in zip(left, right, height, colors):
             if h > 0:
@@ -100,7 +100,7 @@ class Axes:
         self._add(f'<line x1="{_f(x)}" y1="{_f(self.box[1])}" x2="{_f(x)}" y2="{_f(self.box[3])}" '
                   f'stroke="{color}" stroke-width="{width:g}"{d}/>')
 
-    def polyline(self, xs: Sequence[float], ys: Sequence[float], color: str,
+    def polyline(self, xs: Iterable[float], ys: Iterable[float], color: str,
                  width: float = 1.0) -> None:
         pts = " ".join(f"{_f(self.x(a))},{_f(self.y(b))}" for a, b in zip(xs, ys))
         self._add(f'<polyline points="{pts}" fill="none" stroke="{color}" '

@@ -254,7 +254,7 @@ class OutputSet:
                 os.close(self._lock_fd)
             self._lock_fd = None
 
-    def __enter__(self) -> "OutputSet":
+    def __enter__(self) -> OutputSet:
         return self
 
     def __exit__(self, exc_type, exc, tb) -> None:

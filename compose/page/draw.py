@@ -12,9 +12,9 @@ import math
 
 import numpy as np
 
+from compose.page.contrast import GRID_ALPHA
 from compose.page.geometry import grid_lines
 from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
-from compose.page.contrast import GRID_ALPHA
 from compose.page.vectors import emit_layer
 
 __all__ = ["page_figure", "format_coordinate", "FONT"]

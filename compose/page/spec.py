@@ -12,8 +12,7 @@ from typing import Any
 
 from compose.color import interface as ui
 from compose.errors import StyleError
-from compose.style.validate import (RGB, Scope, as_table, boolean, build_from_table, choice,
-                                    number, option, string)
+from compose.style.validate import RGB, Scope, as_table, boolean, build_from_table, choice, number, option, string
 from compose.style.validate import color as _color
 
 __all__ = ["PAPER_SIZES", "PLACES", "PANEL_SIDES", "UNITS", "ScaleBarSpec", "GridSpec",

@@ -8,7 +8,7 @@ Adding a vector kind is one function plus one :data:`VECTOR_WRITERS` entry.
 """
 from __future__ import annotations
 
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 import shapely

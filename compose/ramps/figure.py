@@ -34,10 +34,15 @@ from pathlib import Path
 import numpy as np
 
 from compose.color import interface as ui
-from compose.ramps.figure_classes import (PROOF_VISIONS, check_color, check_lines, classes_figure,
-                                          hex8, proof, swatch)
-from compose.ramps.figure_panels import (chroma_panel, difference_panel, evenness_panel,
-                                         lightness_panel, profile, style_axes)
+from compose.ramps.figure_classes import PROOF_VISIONS, check_color, check_lines, classes_figure, hex8, proof, swatch
+from compose.ramps.figure_panels import (
+    chroma_panel,
+    difference_panel,
+    evenness_panel,
+    lightness_panel,
+    profile,
+    style_axes,
+)
 from compose.ramps.lut import lut_for
 from compose.ramps.metrics import RampLimits, RampMetrics, ramp_metrics, rule_checks
 from compose.ramps.model import Ramp
@@ -86,7 +91,7 @@ class _Stack:
         y = ax.get_position().y1
         step = 0.118 / self.height
         for note in extra:
-            for i, line in enumerate(textwrap.wrap(note, WRAP, subsequent_indent="    ")):
+            for line in textwrap.wrap(note, WRAP, subsequent_indent="    "):
                 self.fig.text(x, y, line, fontsize=7, color=MUTED, va="top")
                 y -= step
         for c in checks:
@@ -167,7 +172,7 @@ def _continuous(fig, ramp: Ramp, members, units, m: RampMetrics, checks, lim, th
     if ramp.at is not None:
         marks.append((ramp.at, f"break {ramp.at:g}"))
     lut = lut_for(ramp)
-    for key, ax in panels:
+    for _key, ax in panels:
         if lut.stepped:
             for e in lut.edges[1:-1]:
                 ax.axvline(e, color=ui.RULE.hex, lw=0.6, zorder=0.6)

@@ -75,7 +75,7 @@ def swatch(xy, w: float, h: float, rgb, **kw):
 
 def hex8(code) -> str:
     """``#rrggbb`` of an 8-bit triple."""
-    return "#%02x%02x%02x" % tuple(int(c) for c in code)
+    return "#{:02x}{:02x}{:02x}".format(*tuple(int(c) for c in code))
 
 
 def _text_on(L: float) -> str:

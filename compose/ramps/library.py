@@ -2,7 +2,8 @@
 
 Every style can name a library ramp without defining it; a style's own ``[ramp.NAME]`` replaces
 the library ramp of that name. :func:`compose.style.load.library_tables` reads the file once per
-process (a style file without a map, read by the style loader); :func:`with_library` completes a style's ramp tables with the library ramps it uses (named by a
+process (a style file without a map, read by the style loader); :func:`with_library` completes
+a style's ramp tables with the library ramps it uses (named by a
 layer, or the base of a twin), so only those are built and checked.
 """
 from __future__ import annotations

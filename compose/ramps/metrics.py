@@ -36,7 +36,8 @@ class RampMetrics:
     ``lightness_reversal``: the largest L* drop against the ramp's direction (per arm, away from
     the centre, for diverging ramps). ``step_cv``: CV of CAM02-UCS distances between consecutive
     samples (``samples`` of them, unrounded colours; threshold ramps: the larger of the two
-    sides' CVs); ``step_cv_8bit`` the same for ``COARSE_SAMPLES`` 8-bit colours. ``*_de00`` dicts map a vision (normal, deutan, protan,
+    sides' CVs); ``step_cv_8bit`` the same for ``COARSE_SAMPLES`` 8-bit colours. ``*_de00`` dicts
+    map a vision (normal, deutan, protan,
     tritan) to the smallest difference. ``grayscale_rho``: Spearman rank correlation of value vs
     L* over the samples (diverging: of the distance from the centre vs L*).
     """
@@ -89,7 +90,7 @@ class RampLimits:
     grayscale_rho: float = 0.95     # |Spearman rho| of value vs L* (our design target, no source)
 
     @classmethod
-    def from_budgets(cls, budgets) -> "RampLimits":
+    def from_budgets(cls, budgets) -> RampLimits:
         """The limits a style's budgets set (``[budget.ramp]``, ``[budget.classes]``,
         ``[budget.nodata]``, ``budget.theme.gray_order``): one limit per rule for every command."""
         if budgets is None:

@@ -35,7 +35,7 @@ _CHEAP_STEP = 16
 _MIN_STEP = 2
 
 _lock = threading.Lock()
-_cache: dict[tuple, "TransformGrid"] = {}
+_cache: dict[tuple, TransformGrid] = {}
 
 
 @dataclass(frozen=True, eq=False)

@@ -38,7 +38,6 @@ import warnings
 from pathlib import Path
 
 import numpy as np
-from rasterio.windows import Window as RioWindow
 import pyproj
 import rasterio
 from affine import Affine
@@ -48,13 +47,14 @@ from rasterio.errors import RasterioError
 from rasterio.vrt import WarpedVRT
 from rasterio.warp import transform as warp_points
 from rasterio.warp import transform_bounds
+from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.grid import transform_grid
-from compose.sources.resample import sample
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
-from compose.style.kinds import RESAMPLING   # the names a style may use, defined once
+from compose.sources.resample import sample
+from compose.style.kinds import RESAMPLING  # the names a style may use, defined once
 
 __all__ = ["RESAMPLING", "SHRINK_LIMIT", "RasterSource", "cell_size_metres"]
 
@@ -399,7 +399,7 @@ class RasterSource:
         if self._ds is not None:
             self._ds.close()
 
-    def __enter__(self) -> "RasterSource":
+    def __enter__(self) -> RasterSource:
         return self
 
     def __exit__(self, *exc) -> None:

@@ -19,7 +19,7 @@ GDAL's warper, so results match ``gdalwarp`` closely:
 from __future__ import annotations
 
 import math
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 

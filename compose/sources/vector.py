@@ -49,7 +49,7 @@ class Features:
     properties: list[dict]
 
     @classmethod
-    def build(cls, geometries, properties) -> "Features":
+    def build(cls, geometries, properties) -> Features:
         """Make Features from geometries and their attribute dicts."""
         geoms = np.asarray(geometries, dtype=object).reshape(-1)
         props = list(properties)
@@ -72,7 +72,7 @@ class Features:
             return (float("nan"),) * 4
         return tuple(float(v) for v in shapely.total_bounds(self.geometries))
 
-    def in_box(self, bounds: tuple[float, float, float, float]) -> "Features":
+    def in_box(self, bounds: tuple[float, float, float, float]) -> Features:
         """Features whose geometry intersects the box ``(west, south, east, north)``, cut to it.
 
         Lines and polygons are cut with :func:`shapely.clip_by_rect` (vectorised; cut polygons

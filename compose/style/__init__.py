@@ -1,12 +1,35 @@
 """compose.style: a TOML style file -> typed, frozen, validated dataclasses (docs/style.md)."""
-from compose.style.kinds import (LAYER_KINDS, NODATA_TRANSPARENT, RESAMPLING, AreaOptions,
-                                 ClassesOptions, FieldOptions, Halo, KindSchema, LabelOptions,
-                                 LayerOptions, LineOptions, PointOptions, ReliefOptions,
-                                 default_shadow)
+from compose.style.kinds import (
+                                 LAYER_KINDS,
+                                 NODATA_TRANSPARENT,
+                                 RESAMPLING,
+                                 AreaOptions,
+                                 ClassesOptions,
+                                 FieldOptions,
+                                 Halo,
+                                 KindSchema,
+                                 LabelOptions,
+                                 LayerOptions,
+                                 LineOptions,
+                                 PointOptions,
+                                 ReliefOptions,
+                                 default_shadow,
+)
 from compose.style.load import load_style
-from compose.style.model import (BLEND_MODES, ROLES, Budgets, ClassesBudget, GroundBudget,
-                                 LayerSpec, MapSpec, NodataBudget, OverlayBudget, RampTable, Style,
-                                 ThemeBudget)
+from compose.style.model import (
+                                 BLEND_MODES,
+                                 ROLES,
+                                 Budgets,
+                                 ClassesBudget,
+                                 GroundBudget,
+                                 LayerSpec,
+                                 MapSpec,
+                                 NodataBudget,
+                                 OverlayBudget,
+                                 RampTable,
+                                 Style,
+                                 ThemeBudget,
+)
 
 __all__ = [
     "load_style",

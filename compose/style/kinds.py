@@ -13,14 +13,27 @@ from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Any, Literal
 
-import numpy as np
-
 from compose.color.parse import parse_color
 from compose.errors import StyleError
 from compose.ramps.relief import default_shadow
-from compose.style.validate import (RGB, Scope, as_table, boolean, build_from_table, choice, color,
-                                    integer, number, numbers, option, option_keys,
-                                    required_keys, scalars, string, table_of)
+from compose.style.validate import (
+    RGB,
+    Scope,
+    as_table,
+    boolean,
+    build_from_table,
+    choice,
+    color,
+    integer,
+    number,
+    numbers,
+    option,
+    option_keys,
+    required_keys,
+    scalars,
+    string,
+    table_of,
+)
 
 __all__ = [
     "RESAMPLING", "STRETCH", "SHAPES", "WEIGHTS", "NODATA_TRANSPARENT", "DEFAULT_TINT", "DEFAULT_STROKE",

@@ -7,8 +7,8 @@ Errors of one file's shape name that file; errors of the merged content name the
 """
 from __future__ import annotations
 
-import os
 import functools
+import os
 import tomllib
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
@@ -21,11 +21,20 @@ from compose.errors import StyleError
 from compose.limits import MAX_NESTING, MAX_STRING, MAX_STYLE_BYTES
 from compose.sources.guard import is_remote, read_regular_file
 from compose.style.kinds import LAYER_KINDS
-from compose.style.model import (BLEND_MODES, BUDGET_TABLES, ROLES, LayerSpec, MapSpec, RampTable,
-                                 Budgets, Style, Waiver)
+from compose.style.model import BLEND_MODES, BUDGET_TABLES, ROLES, Budgets, LayerSpec, MapSpec, RampTable, Style, Waiver
 from compose.style.overrides import Override, apply_overrides, series_members, substitute
-from compose.style.validate import (Scope, as_table, boolean, build_from_table, check_choice,
-                                    check_keys, missing_keys, number, option_keys, string)
+from compose.style.validate import (
+    Scope,
+    as_table,
+    boolean,
+    build_from_table,
+    check_choice,
+    check_keys,
+    missing_keys,
+    number,
+    option_keys,
+    string,
+)
 
 __all__ = ["load_style", "library_tables", "parse_layer", "merge_layers", "freeze", "TOP_KEYS", "COMMON_KEYS"]
 

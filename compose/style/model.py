@@ -19,8 +19,20 @@ from compose.errors import StyleError
 from compose.limits import MAX_COORDINATE
 from compose.names import name_problem
 from compose.style.kinds import LayerOptions
-from compose.style.validate import (RGB, Scope, as_table, build_from_table, color, integer,
-                                    missing_keys, number, option, pair, string, table_of)
+from compose.style.validate import (
+    RGB,
+    Scope,
+    as_table,
+    build_from_table,
+    color,
+    integer,
+    missing_keys,
+    number,
+    option,
+    pair,
+    string,
+    table_of,
+)
 
 __all__ = [
     "ROLES", "BLEND_MODES", "MapSpec", "GroundBudget", "ThemeBudget", "OverlayBudget",

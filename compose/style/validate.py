@@ -39,7 +39,7 @@ class Scope:
     label: str = ""
     parts: tuple[str, ...] = ()
 
-    def at(self, key: str) -> "Scope":
+    def at(self, key: str) -> Scope:
         """The scope of ``key`` inside this one."""
         return Scope(self.label, self.parts + (str(key),))
 
