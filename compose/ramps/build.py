@@ -45,7 +45,8 @@ TWIN_RULE = ("sequential and diverging ramps can be twinned (a twin has the same
              "diverging one); threshold ramps cannot (the hue change at the break is their "
              "message), nor qualitative ones (classes have no lightness order to match)")
 
-__all__ = ["TWINNABLE", "TWIN_RULE", "NODATA_CANDIDATES", "NODATA_SEPARATION", "build_ramps", "build_ramp", "choose_nodata"]
+__all__ = ["TWINNABLE", "TWIN_RULE", "NODATA_CANDIDATES", "NODATA_SEPARATION", "build_ramps",
+           "build_ramp", "choose_nodata"]
 
 # Candidate L* of neutral nodata greys, in order of preference (light first: nodata should sit
 # quietly behind the data).
