@@ -196,7 +196,9 @@ def render_series(path: Path, out_dir: Path, *, overrides: Sequence = (), overwr
     if len(set(names)) != len(names):
         raise StyleError(f"{path}: series members share an output name; use the variables in map.name")
     out_dir = Path(out_dir)
-    index, record = out_dir / f"{base.name}.series.html", out_dir / f"{base.name}.series.json"
+    # the series' own name: map.name without its variables' placeholders, else the file stem
+    series_name = base.name if "{" not in base.name else Path(path).stem
+    index, record = out_dir / f"{series_name}.series.html", out_dir / f"{series_name}.series.json"
     check_writable([index, record], overwrite)
     scales = shared_scales(styles)
     jobs = [(str(Path(path).resolve()), tuple(overrides), dict(m), str(out_dir), overwrite, scales,
@@ -209,10 +211,10 @@ def render_series(path: Path, out_dir: Path, *, overrides: Sequence = (), overwr
             done = list(pool.map(_render_member, *zip(*jobs)))
     members = tuple(SeriesMember(**d) for d in done)
     with atomic_path(record) as tmp:
-        tmp.write_text(json.dumps({"series": base.name, "style": str(base.path),
+        tmp.write_text(json.dumps({"series": series_name, "style": str(base.path),
                                    "scales": scales,
                                    "members": [dataclasses.asdict(m) for m in members]},
                                   indent=2, default=dict))
     with atomic_path(index) as tmp:
-        tmp.write_text(_index_html(base.name, members, scales, out_dir), encoding="utf-8")
-    return SeriesResult(base.name, members, scales, index, record)
+        tmp.write_text(_index_html(series_name, members, scales, out_dir), encoding="utf-8")
+    return SeriesResult(series_name, members, scales, index, record)

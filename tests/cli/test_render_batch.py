@@ -111,7 +111,7 @@ def test_series_of_three_shares_one_scale(tmp_path):
     out = tmp_path / "out"
     result = run(tmp_path / "s.toml", "--series", "--out", out)
     assert result.exit_code == 0, result.output
-    record = json.loads(next(out.glob("*.series.json")).read_text())
+    record = json.loads((out / "s.series.json").read_text())    # named after the style file
     scale = record["scales"]["q"]
     assert scale["domain"] == [0, 40]
     # outside reference: numpy quantiles of the three members pooled (the canvas is the file grid)
