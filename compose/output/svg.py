@@ -84,7 +84,7 @@ class Axes:
         py0, py1 = sorted((self.y(y0), self.y(y1)))
         d = f' stroke-dasharray="{dash}"' if dash else ""
         self._add(f'<rect x="{_f(px0)}" y="{_f(py0)}" width="{_f(px1 - px0)}" '
-                  f'height="{_f(py1 - py0)}" fill="{fill}" fill-opacity="{opacity:g}" '
+                  f'height="{_f(py1 - py0)}" fill="{fill}" opacity="{opacity:g}" '
                   f'stroke="{stroke}" stroke-width="{width:g}"{d} {self._clip}/>')
 
     def bars(self, left: Iterable[float], right: Iterable[float], height: Iterable[float],
