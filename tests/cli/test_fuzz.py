@@ -1,5 +1,5 @@
 """Property-based fuzzing of the example styles: whatever a mutated style holds, compose ends with
-exit 0, 1 or 2, at most one stderr line and never a traceback, within a time and memory bound,
+exit 0, 1 or 2, one stderr line on an error and never a traceback, within a time and memory bound,
 and a render leaves either its complete output set or nothing.
 
 Mutations (hypothesis, seeded and derandomised so CI runs the same cases every time): deleted
@@ -29,7 +29,7 @@ from hypothesis import strategies as st
 from tests.cli._hostile import leftovers, run_in_process
 
 ROOT = Path(__file__).resolve().parents[2]
-CASES = int(os.environ.get("COMPOSE_FUZZ_CASES", "250"))
+CASES = int(os.environ.get("COMPOSE_FUZZ_CASES", "200"))
 #: A case running longer than this (seconds) counts as a hang (our own bound, generous for a
 #: loaded machine; a normal case takes about a second).
 HANG_SECONDS = float(os.environ.get("COMPOSE_FUZZ_HANG_SECONDS", "120"))
@@ -154,7 +154,18 @@ def mutation(draw, data):
     """Change ``data`` in place once; returns a short description."""
     paths = [p for p, _ in _paths(data) if p]
     op = draw(st.sampled_from(["delete", "wrong", "extreme", "colour", "path", "extends", "add",
-                               "duplicate", "unicode"]))
+                               "duplicate", "unicode", "nudge", "nudge", "nudge"]))
+    numeric = [p for p, v in _paths(data) if p and isinstance(v, (int, float))
+               and not isinstance(v, bool)]
+    if op == "nudge" and numeric:
+        # a plausible number made larger, smaller, zero or negative: gets past the schema more
+        # often than a wrong type, so the engine and the checker see odd values too
+        p = draw(st.sampled_from(numeric))
+        parent = _parent(data, p)
+        factor = draw(st.sampled_from([0, -1, 0.5, 2, 10, 1000, 1e-3, 1.01]))
+        value = parent[p[-1]] * factor
+        parent[p[-1]] = int(value) if isinstance(parent[p[-1]], int) else float(value)
+        return f"nudge {p} x{factor}"[:80]
     if op == "extends":
         data["extends"] = draw(_path | st.sampled_from(["coast.toml", "base.toml", "ramps.toml",
                                                         "self.toml", "missing.toml"]))
@@ -230,9 +241,11 @@ def test_mutated_styles_end_cleanly(folder, case):
     context = f"{name} {done} -> {ended.code}: {ended.stderr[-1500:]}"
     assert ended.code in (0, 1, 2), context
     assert "Traceback" not in ended.stderr + ended.stdout, context
-    assert len(ended.lines) <= 1, context
     if ended.code == 2:
-        assert ended.lines and ended.lines[0].startswith("compose: error: "), context
+        assert len(ended.lines) == 1, context
+        assert ended.lines[0].startswith("compose: error: "), context
+    else:   # compose's own notes (e.g. an extent rounded to whole pixels), no library output
+        assert all(line.startswith(("note: ", "compose: ")) for line in ended.lines), context
     assert seconds < HANG_SECONDS, context
     assert resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024 < MEMORY_BOUND, context
     if render:
