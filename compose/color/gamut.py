@@ -29,6 +29,10 @@ def lch_in_gamut(lch, tol: float = GAMUT_TOLERANCE) -> np.ndarray:
 
 # Coarse chroma samples before bisection (C*ab), and colours handled per batch (bounds memory).
 _SCAN_STEP = 0.5
+# The search holds colours to a tolerance a hair inside GAMUT_TOLERANCE, so a result found on the
+# edge stays inside when it is converted again with other rounding (1e-9 of a channel is about
+# 1e-6 C*ab, far below anything measured).
+_SEARCH_TOL = GAMUT_TOLERANCE - 1e-9
 _BATCH = 2048
 
 
@@ -50,7 +54,8 @@ def _largest_inside(L: np.ndarray, h: np.ndarray, top: np.ndarray, iterations: i
     for s in range(0, L.size, _BATCH):
         l, hh, c = L[s:s + _BATCH], h[s:s + _BATCH], top[s:s + _BATCH]
         grid = c[:, None] * frac[None, :]
-        ok = lch_in_gamut(np.stack(np.broadcast_arrays(l[:, None], grid, hh[:, None]), axis=-1))
+        ok = lch_in_gamut(np.stack(np.broadcast_arrays(l[:, None], grid, hh[:, None]), axis=-1),
+                          _SEARCH_TOL)
         ok[:, 0] = True
         k = n - np.argmax(ok[:, ::-1], axis=1)
         rows = np.arange(k.size)
@@ -58,7 +63,7 @@ def _largest_inside(L: np.ndarray, h: np.ndarray, top: np.ndarray, iterations: i
         hi = grid[rows, np.minimum(k + 1, n)]
         for _ in range(iterations):
             mid = (lo + hi) / 2
-            inside = lch_in_gamut(np.stack([l, mid, hh], axis=-1))
+            inside = lch_in_gamut(np.stack([l, mid, hh], axis=-1), _SEARCH_TOL)
             lo = np.where(inside, mid, lo)
             hi = np.where(inside, hi, mid)
         out[s:s + _BATCH] = np.where(k == n, c, lo)
