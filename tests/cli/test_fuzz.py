@@ -194,7 +194,7 @@ def mutation(draw, data):
         parent.append(copy.deepcopy(parent[p[-1]]))
         return f"duplicate {p}"[:80]
     strategy = {"wrong": _wrong, "extreme": _extreme, "colour": _color, "path": _path,
-                "unicode": _text, "duplicate": _wrong}[op]
+                "unicode": _text, "duplicate": _wrong, "nudge": _extreme}[op]
     parent[p[-1]] = draw(strategy)
     return f"{op} {p}"[:80]
 
