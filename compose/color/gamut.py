@@ -70,10 +70,12 @@ def _largest_inside(L: np.ndarray, h: np.ndarray, top: np.ndarray, iterations: i
     return out
 
 
-def max_chroma(L, h, iterations: int = 40) -> np.ndarray:
-    """Largest C*ab displayable in sRGB at lightness ``L`` (0-100) and hue ``h`` (degrees), broadcast."""
-    L, h = np.broadcast_arrays(np.asarray(L, dtype=float), np.asarray(h, dtype=float))
-    flat = _largest_inside(L.ravel(), h.ravel(), np.full(L.size, 200.0), iterations)
+def max_chroma(L, h, iterations: int = 40, top=200.0) -> np.ndarray:
+    """Largest C*ab displayable in sRGB at lightness ``L`` (0-100) and hue ``h`` (degrees), not
+    above ``top`` (broadcast; a smaller ``top`` is faster: the scan covers [0, top] only)."""
+    L, h, top = np.broadcast_arrays(np.asarray(L, dtype=float), np.asarray(h, dtype=float),
+                                    np.asarray(top, dtype=float))
+    flat = _largest_inside(L.ravel(), h.ravel(), top.ravel().copy(), iterations)
     return flat.reshape(L.shape)
 
 

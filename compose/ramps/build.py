@@ -296,7 +296,8 @@ def _twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[
     hues = {root.name: lch[:, 2]}
     for spec in twins:
         hues[spec.name] = (spec.hue[0] + u * (spec.hue[1] - spec.hue[0])) % 360.0
-    ceiling = np.min([max_chroma(L, h) for n, h in hues.items() if n != root.name] + [C], axis=0)
+    ceiling = np.min([max_chroma(L, h, top=C) for n, h in hues.items() if n != root.name] + [C],
+                     axis=0)
     ceiling = np.minimum(ceiling, C)
     matched = C - ceiling
     labs = {n: lch_to_lab(np.stack([L, ceiling, h], axis=-1)) for n, h in hues.items()}
