@@ -61,17 +61,24 @@ def render(style: Style | str | Path, out_dir: str | Path, *, overwrite: bool = 
 
 
 def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | None = None,
-          mapper: Callable | None = None) -> CheckReport:
+          mapper: Callable | None = None, draft: bool = False) -> CheckReport:
     """Render ``style`` (a :class:`Style` or a path) in memory and check its visual hierarchy;
-    nothing is written. ``report.passed`` is False when any failure-severity rule failed."""
+    nothing is written. ``report.passed`` is False when any failure-severity rule failed.
+    ``draft``: check a reduced canvas of the same extent and dpi (:mod:`compose.check.draft`);
+    ``report.draft`` then says what size was checked."""
+    from compose.check.draft import describe_draft, draft_canvas
     from compose.engine import prepare, run  # looked up per call (tests may replace them)
     from compose.page.write import blocked_for
 
     style = _style(style)
-    prepared = prepare(style, keep_clear=blocked_for)   # labels placed as in a render
+    full = style.canvas()
+    canvas = draft_canvas(full) if draft else None
+    prepared = prepare(style, canvas=canvas, keep_clear=blocked_for)   # labels as in a render
     try:
         stats = run(prepared, [], progress=progress, mapper=mapper)
-        return check_style(style, stats, prepared.ramps)
+        return check_style(style, stats, prepared.ramps,
+                           draft=None if canvas is None or canvas is full
+                           else describe_draft(canvas, full))
     finally:
         prepared.close()
 

@@ -1,7 +1,8 @@
-"""``compose check STYLE [--json]``: render in memory (nothing written) and judge the hierarchy.
+"""``compose check STYLE [--json] [--strict] [--draft]``: render in memory (nothing written) and
+judge the hierarchy; ``compose check --rules`` / ``--explain RULE``: the rule catalogue.
 
-Exit status: 0 when every rule passes (warnings allowed), 1 when any rule fails, 2 on invalid
-input (a one-line error, see :func:`compose.cli.main.handle_errors`).
+Exit status: 0 when every rule passes (warnings allowed unless ``--strict``), 1 when any rule
+fails, 2 on invalid input (a one-line error, see :func:`compose.cli.main.handle_errors`).
 """
 from __future__ import annotations
 
@@ -13,27 +14,87 @@ import click
 from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
 
-__all__ = ["command"]
+__all__ = ["command", "rules_table", "explain"]
+
+
+def rules_table() -> str:
+    """``compose check --rules``: id, what, limit (budget key and default), source."""
+    import textwrap
+
+    from compose.check.catalog import CATALOG
+    from compose.style.model import Budgets
+
+    lines = []
+    for info in CATALOG.values():
+        lines += _explain(info, Budgets(), textwrap) + [""]
+    return "\n".join(lines).rstrip()
+
+
+def _explain(info, budgets, textwrap) -> list[str]:
+    from compose.check.catalog import limit_of
+
+    limit, origin, key = limit_of(info.id, budgets)
+    if isinstance(limit, list):
+        limit = " .. ".join(f"{v:g}" for v in limit)
+    elif isinstance(limit, float):
+        limit = f"{limit:g}"
+    where = f"{key}, default {limit}" if key else f"fixed {limit}"
+    sev = "" if info.severity == "failure" else f"  ({info.severity})"
+    out = [f"{info.id}{sev}"]
+    out += textwrap.wrap(info.what, 96, initial_indent="  what:   ", subsequent_indent="          ")
+    out.append(f"  limit:  value {info.comparison} limit ({info.unit}); {where}")
+    out.append(f"  on:     {info.measured}")
+    out += textwrap.wrap(info.source, 96, initial_indent="  source: ", subsequent_indent="          ")
+    return out
+
+
+def explain(rule: str) -> str:
+    """``compose check --explain RULE``."""
+    import textwrap
+
+    from compose.check.catalog import CATALOG
+    from compose.errors import StyleError
+    from compose.style.model import Budgets
+    from compose.style.validate import check_choice, Scope
+
+    if rule not in CATALOG:
+        check_choice(rule, CATALOG, Scope("--explain"), "rule id")
+        raise StyleError(f"--explain: unknown rule {rule!r}")
+    return "\n".join(_explain(CATALOG[rule], Budgets(), textwrap))
 
 
 @click.command("check")
-@click.argument("style", type=click.Path(path_type=Path))
+@click.argument("style", type=click.Path(path_type=Path), required=False)
 @click.option("--json", "as_json", is_flag=True,
               help="Print the report as JSON (the same object render writes as NAME.check.json).")
+@click.option("--strict", is_flag=True, help="Warnings fail too (exit 1).")
+@click.option("--draft", is_flag=True,
+              help="Check a reduced canvas of the same extent (longer side 384 px, same dpi): "
+                   "much faster on large maps, the same verdict on the example styles.")
+@click.option("--rules", "list_rules", is_flag=True,
+              help="List the rules: id, what each measures, its limit and budget key, its source.")
+@click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")
 @limit_options
 @handle_errors
-def command(style: Path, as_json: bool) -> None:
+def command(style: Path | None, as_json: bool, strict: bool, draft: bool, list_rules: bool,
+            explain_rule: str | None) -> None:
     """Check the visual hierarchy of STYLE: budgets, contrast, ramps, classes, grey order.
 
-    Exits 0 when every rule passes, 1 when any fails, 2 when the style is invalid.
+    Exits 0 when every rule passes (warnings allowed unless --strict), 1 when any fails, 2 when
+    the style is invalid. `compose check --rules` lists the rules; `--explain RULE` one of them.
     """
     from compose.api import check
     from compose.check import format_report
     from compose.cli.render import progress_bar
 
-    report = check(style, progress=progress_bar("checking"))
+    if list_rules or explain_rule:
+        click.echo(rules_table() if list_rules else explain(explain_rule))
+        return
+    if style is None:
+        raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")
+    report = check(style, progress=progress_bar("checking"), draft=draft)
     if as_json:
-        click.echo(json.dumps(report.to_json(), indent=2))
+        click.echo(json.dumps(report.to_json(strict), indent=2))
     else:
-        click.echo(format_report(report))
-    raise SystemExit(0 if report.passed else 1)
+        click.echo(format_report(report, strict=strict))
+    raise SystemExit(0 if report.passed_strict(strict) else 1)

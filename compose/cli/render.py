@@ -29,7 +29,7 @@ class progress_bar:
             self.bar.__exit__(None, None, None)
 
 
-def print_summary(result) -> None:
+def print_summary(result, strict: bool = False) -> None:
     """Outputs, size, time, unplaced labels and the check verdict of one render."""
     click.echo(f"rendered {result.width} x {result.height} px in {result.seconds['total']:.1f} s")
     for kind, path in result.outputs.items():
@@ -38,8 +38,13 @@ def print_summary(result) -> None:
     for layer, labels in result.unplaced_labels.items():
         click.echo(f"  layer \"{layer}\": {len(labels)} label(s) not placed: {', '.join(labels)}")
     if result.report is not None:
-        failed = [r for r in result.report.rules if not r.passed]
-        verdict = "passed" if result.report.passed else f"FAILED ({len(failed)} rule(s))"
+        rep = result.report
+        failed = [r.rule for r in rep.rules if not r.passed]
+        if strict:
+            failed += [r.rule for r in rep.warnings]
+        verdict = ("passed" if rep.passed_strict(strict) else
+                   f"FAILED ({len(failed)} rule(s): {', '.join(dict.fromkeys(failed))}); "
+                   "see NAME.check.json or `compose check`")
         click.echo(f"  check   {verdict}")
 
 
@@ -73,6 +78,9 @@ def expand_styles(args: tuple[Path, ...]) -> list[Path]:
                    "layer.NAME.source=data/b.tif, ramp.NAME.domain=[0,10]. Repeatable.")
 @click.option("--series", is_flag=True,
               help="Render every member of the style's [series] on shared scales, with an index page.")
+@click.option("--no-check", "no_check", is_flag=True,
+              help="Do not judge the hierarchy (no NAME.check.json); exit 0 whatever the map.")
+@click.option("--strict", is_flag=True, help="Check warnings fail too (exit 1).")
 @limit_options
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Processes rendering windows at once (default: every core, at most 8, for "
@@ -84,43 +92,54 @@ def expand_styles(args: tuple[Path, ...]) -> list[Path]:
               help="Write NAME.tif as a Cloud Optimized GeoTIFF (internal tiles, overviews).")
 @handle_errors
 def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tuple[str, ...],
-            series: bool, workers: int | None, cluster: str | None, cog: bool) -> None:
+            series: bool, no_check: bool, strict: bool, workers: int | None, cluster: str | None,
+            cog: bool) -> None:
     """Render each STYLE (files or glob patterns) to a PNG, an RGBA GeoTIFF, a legend, a check
     report and a proof page. With several styles an error in one is reported and the others
-    still render; the exit code is the worst."""
+    still render; the exit code is the worst.
+
+    Exits 1 when the hierarchy check fails (the outputs are still written, so CI renders once and
+    keeps the evidence), unless --no-check; 0 when it passes, 2 on invalid input.
+    """
     from compose.errors import ComposeError
     from compose.style.overrides import parse_override
 
     overrides = tuple(parse_override(s) for s in sets)
     paths = expand_styles(styles)
     run = dict(out_dir=out_dir, overwrite=overwrite, overrides=overrides, series=series,
-               workers=workers, cluster=cluster, cog=cog)
+               workers=workers, cluster=cluster, cog=cog, check=not no_check, strict=strict)
     if len(paths) == 1:
-        _render_one(paths[0], **run)
+        if not _render_one(paths[0], **run):
+            raise SystemExit(1)
         return
-    failed = []
+    failed, unchecked = [], []
     for path in paths:
         click.echo(f"== {path}")
         try:
-            _render_one(path, **run)
+            if not _render_one(path, **run):
+                unchecked.append(str(path))
         except ComposeError as exc:
             click.echo(f"compose: error: {exc}", err=True)
             failed.append(str(path))
     if failed:
         click.echo(f"{len(failed)} of {len(paths)} style(s) not rendered: {', '.join(failed)}", err=True)
         raise SystemExit(2)
+    if unchecked:
+        raise SystemExit(1)
 
 
 def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple, series: bool,
-                workers: int | None, cluster: str | None, cog: bool = False) -> None:
+                workers: int | None, cluster: str | None, cog: bool = False, check: bool = True,
+                strict: bool = False) -> bool:
+    """Render one style (or its series); False when its check failed."""
     from compose.errors import StyleError
     from compose.parallel import mapper_for
     from compose.render import render_style
     from compose.style import load_style
 
     if series:
-        _render_series(path, out_dir, overwrite, overrides, workers)
-        return
+        passed = _render_series(path, out_dir, overwrite, overrides, workers)
+        return passed or not check
     loaded = load_style(path, overrides=overrides)
     if loaded.series:
         raise StyleError(f"{path}: the style declares a series of {len(loaded.series)} members; "
@@ -130,12 +149,13 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
     canvas = loaded.canvas()
     mapper = mapper_for(canvas.width * canvas.height, workers, cluster)
     result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
-                          mapper=mapper, cog=cog)
-    print_summary(result)
+                          mapper=mapper, cog=cog, check=check)
+    print_summary(result, strict)
+    return not check or result.report is None or result.report.passed_strict(strict)
 
 
 def _render_series(path: Path, out_dir: Path, overwrite: bool, overrides: tuple,
-                   workers: int | None) -> None:
+                   workers: int | None) -> bool:
     from compose.series import render_series
 
     # members are whole renders in their own processes: --workers sets how many run at once
@@ -149,3 +169,4 @@ def _render_series(path: Path, out_dir: Path, overwrite: bool, overrides: tuple,
         click.echo(f"  scale {name}: domain {e['domain'][0]:g} to {e['domain'][1]:g}; breaks {breaks}")
     click.echo(f"  index   {result.index}")
     click.echo(f"  record  {result.record}")
+    return all(m.passed is not False for m in result.members)

@@ -47,6 +47,6 @@ def default_shadow(tint: RGB) -> RGB:
     """
     L, C, h = (float(v) for v in srgb_to_lch(np.asarray(tint, dtype=float)))
     L2 = 0.5 * L
-    C2 = min(0.5 * C, 6.0, float(max_chroma(L2, h)))
+    C2 = float(max_chroma(L2, h, iterations=16, top=min(0.5 * C, 6.0)))   # largest shown <= that
     rgb = np.clip(lch_to_srgb(np.array([L2, C2, h])), 0.0, 1.0)
     return (float(rgb[0]), float(rgb[1]), float(rgb[2]))

@@ -52,3 +52,39 @@ def test_relief_as_overlay_is_a_style_error_exit_2(tmp_path):
     assert res.exit_code == 2
     assert 'layer "relief": role: a relief layer cannot be \'overlay\'' in res.output
     assert res.output.strip().count("\n") == 0
+
+
+def test_rules_and_explain_print_the_catalogue():
+    from compose.check.catalog import CATALOG
+    res = _run(["check", "--rules"])
+    assert res.exit_code == 0
+    for rid in CATALOG:
+        assert f"\n{rid}" in "\n" + res.output
+    assert "common practice, no source" in res.output and "WCAG 2.1 SC 1.4.11" in res.output
+    one = _run(["check", "--explain", "grayscale-order"])
+    assert one.exit_code == 0 and one.output.startswith("grayscale-order")
+    assert "budget.theme.gray_order, default 0.95" in one.output
+    bad = _run(["check", "--explain", "gray-order"])
+    assert bad.exit_code == 2 and "is not a rule id" in bad.output
+
+
+def test_strict_turns_warnings_into_failures(tmp_path):
+    # a relief and a line, no theme: passes with a roles-present warning
+    data = make_data(tmp_path / "src")
+    path = write_style(tmp_path, style([relief(data["hills"]), lines(data["coast"],
+                                                                    stroke="#303030", width=1.5)]))
+    res = _run(["check", str(path)])
+    assert res.exit_code == 0 and "no layer is judged as theme" in res.output
+    strict = _run(["check", str(path), "--strict", "--json"])
+    assert strict.exit_code == 1
+    obj = json.loads(strict.output)
+    assert obj["strict"] is True and obj["passed"] is False and obj["counts"]["warn"] >= 1
+
+
+def test_draft_checks_a_reduced_canvas_and_says_so(tmp_path):
+    data = make_data(tmp_path / "src")
+    path = write_style(tmp_path, style([relief(data["hills"]), lines(data["coast"],
+                                                                    stroke="#303030", width=1.5)]))
+    res = _run(["check", str(path), "--draft", "--json"])
+    obj = json.loads(res.output)
+    assert obj["draft"] is None      # 64 x 64 is already smaller than a draft: checked as is

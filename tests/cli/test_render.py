@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from click.testing import CliRunner
 
+from compose.api import check as check_report
 from compose.cli.main import cli
 from tests.output._tiny import tiny_style
 
@@ -19,8 +20,10 @@ def test_help_lists_the_commands():
 def test_render_writes_every_output_and_refuses_to_overwrite(tmp_path):
     style = tiny_style(tmp_path)
     out = tmp_path / "out"
+    # the tiny legend fixture does not pass every rule: render then exits 1, outputs written
+    verdict = 0 if check_report(style).passed else 1
     first = CliRunner().invoke(cli, ["render", str(style), "--out", str(out)])
-    assert first.exit_code == 0, first.output
+    assert first.exit_code == verdict, first.output
     for name in OUTPUTS:
         assert (out / name).stat().st_size > 0, name
     assert "rendered 64 x 64 px" in first.output
@@ -30,7 +33,7 @@ def test_render_writes_every_output_and_refuses_to_overwrite(tmp_path):
     assert "--overwrite" in again.output and len(again.output.strip().splitlines()) == 1
     assert (out / "tiny.png").stat().st_mtime_ns == before
     forced = CliRunner().invoke(cli, ["render", str(style), "--out", str(out), "--overwrite"])
-    assert forced.exit_code == 0, forced.output
+    assert forced.exit_code == verdict, forced.output
 
 
 def test_missing_source_is_one_line_exit_2_and_nothing_written(tmp_path):
@@ -44,3 +47,24 @@ def test_missing_source_is_one_line_exit_2_and_nothing_written(tmp_path):
     assert len(line.splitlines()) == 1 and "source not found" in line and "gone.tif" in line
     assert "Traceback" not in result.output
     assert not out.exists() or not any(out.iterdir())
+
+
+def test_render_exits_1_when_the_check_fails_unless_no_check(tmp_path):
+    # issue 10: CI renders once; a failed hierarchy is a failed build, with the evidence written
+    style = tiny_style(tmp_path)
+    text = style.read_text()
+    style.write_text(text + '\n[budget.ground]\nchroma = [0, 0.01]\n')   # nothing can pass this
+    out = tmp_path / "out"
+    failed = CliRunner().invoke(cli, ["render", str(style), "--out", str(out)])
+    assert failed.exit_code == 1, failed.output
+    assert "check   FAILED" in failed.output and "ground-chroma" in failed.output
+    for name in OUTPUTS:
+        assert (out / name).exists(), name
+    unchecked = CliRunner().invoke(cli, ["render", str(style), "--out", str(out), "--overwrite",
+                                         "--no-check"])
+    assert unchecked.exit_code == 0, unchecked.output
+
+
+def test_render_help_says_how_it_exits():
+    text = CliRunner().invoke(cli, ["render", "--help"]).output
+    assert "Exits 1 when the hierarchy check fails" in text and "--no-check" in text

@@ -1,0 +1,30 @@
+"""The draft check: the same rules on a reduced canvas of the same extent.
+
+The canvas keeps its extent and its dpi and takes a coarser pixel, so the longer side has at most
+:data:`DRAFT_SIDE` pixels. Keeping the dpi keeps strokes, halos and labels as wide in pixels as in
+the full render (a 0.5 pt line stays one drawn line on its halo instead of dissolving into
+sub-pixel blends), which is what the contrast rules judge; everything measured by share or
+percentile (ground, themes, grey order, relief) is a sample of the same map. Its verdict agreed
+with the full check's on every example style (tests/check/test_draft.py).
+"""
+from __future__ import annotations
+
+from compose.canvas import Canvas
+
+__all__ = ["DRAFT_SIDE", "draft_canvas", "describe_draft"]
+
+DRAFT_SIDE = 384
+
+
+def draft_canvas(canvas: Canvas, side: int = DRAFT_SIDE) -> Canvas:
+    """``canvas`` at a coarser pixel so its longer side is at most ``side`` pixels, same extent and
+    dpi (the canvas itself when it is already that small)."""
+    factor = max(canvas.width, canvas.height) / float(side)
+    if factor <= 1:
+        return canvas
+    return Canvas.from_extent(canvas.crs, canvas.bounds, canvas.pixel * factor, dpi=canvas.dpi)
+
+
+def describe_draft(draft: Canvas, full: Canvas) -> str:
+    """``"384 x 384 of 1500 x 1500 px"``: what a draft report says it checked."""
+    return f"{draft.width} x {draft.height} of {full.width} x {full.height} px"
