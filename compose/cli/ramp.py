@@ -70,7 +70,7 @@ def _metric_lines(m) -> list[str]:
         lines.append(f"  monotone    {'yes' if m.lightness_monotone else 'no'} "
                      f"(largest L* reversal {m.lightness_reversal:.2f})")
     if m.step_cv is not None:
-        lines.append(f"  steps       CV {m.step_cv:.1f} % of CAM02-UCS steps at {m.samples} samples; "
+        lines.append(f"  steps       evenness CV {m.step_cv:.1f} % at 16 equal data steps; "
                      f"{m.step_cv_8bit:.1f} % at 32 8-bit samples")
     if m.grayscale_rho is not None:
         lines.append(f"  grey order  Spearman rho {m.grayscale_rho:+.3f}")

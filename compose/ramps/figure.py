@@ -162,7 +162,7 @@ def _continuous(fig, ramp: Ramp, members, units, m: RampMetrics, checks, lim, th
     difference_panel(axes["difference"], ramp, lim, m)
     rho = f"grey order: |Spearman ρ| of value vs L* {abs(m.grayscale_rho):.3f}" if m.grayscale_rho is not None else ""
     extra = {"lightness": (rho,) if rho else (), "chroma": tuple(notes),
-             "evenness": (f"CV {m.step_cv:.1f} % at {m.samples} samples" if m.step_cv is not None else "",)}
+             "evenness": (f"CV {m.step_cv:.1f} % at 16 equal data steps" if m.step_cv is not None else "",)}
     for key, ax in panels:
         stack.cards(ax, by_panel.pop(key, []), tuple(t for t in extra.get(key, ()) if t))
     last = axes["difference"]

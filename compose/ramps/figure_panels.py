@@ -6,10 +6,9 @@ from __future__ import annotations
 import numpy as np
 
 from compose.color import interface as ui
-from compose.color.cam import srgb_to_cam02ucs
 from compose.color.difference import delta_e_2000
 from compose.color.gamut import max_chroma
-from compose.color.lab import lab_to_lch, lab_to_srgb, srgb_to_lab
+from compose.color.lab import lab_to_lch, srgb_to_lab
 from compose.color.parse import to_rgb8
 from compose.ramps.figure_classes import swatch
 from compose.ramps.lut import lut_for
@@ -139,22 +138,10 @@ def chroma_panel(ax, ramp: Ramp, members, x, lch, lim: RampLimits, theme) -> lis
 
 
 def evenness_panel(ax, ramp: Ramp, lim: RampLimits) -> None:
-    lo, hi = ramp.domain
-    v = np.linspace(lo, hi, ramp.samples)   # the samples the evenness rule measures
-    ucs = srgb_to_cam02ucs(np.clip(lab_to_srgb(ramp.lab_at(v)), 0, 1))
-    step = np.sqrt(np.sum(np.diff(ucs, axis=0) ** 2, axis=-1))
-    mid = (v[:-1] + v[1:]) / 2
-    keep = np.ones(step.shape, bool)
-    if ramp.kind == "threshold" and ramp.at is not None:   # each side on its own; the break is designed
-        keep = ~((v[:-1] < ramp.at) & (v[1:] >= ramp.at))
-    pct = np.full(step.shape, np.nan)
-    if ramp.kind == "threshold" and ramp.at is not None:
-        for side in (mid < ramp.at, mid >= ramp.at):
-            s = side & keep
-            if s.any():
-                pct[s] = 100 * step[s] / step[s].mean()
-    else:
-        pct = 100 * step / step.mean()
+    # the differences the evenness rule measures, at its worst step size (equal data steps)
+    from compose.ramps.metrics import evenness_profile
+
+    mid, pct, _ = evenness_profile(ramp)
     ax.axhspan(100 - lim.step_cv, 100 + lim.step_cv, color=ui.BAND.hex, lw=0, zorder=0.8,
                label=f"mean ± {lim.step_cv:g} % (evenness limit: CV ≤ {lim.step_cv:g} %)")
     ax.axhline(100, color=ui.ACCENT.hex, lw=0.8, ls="--", zorder=1)

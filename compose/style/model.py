@@ -180,7 +180,7 @@ class RampBudget:
     %), diverging symmetry and threshold continuity (|dL*|), neutral midpoint (C*ab), the break
     showing (dE00), twins (|dL*|, |dC*|, hue degrees)."""
 
-    evenness: float = option(number(ge=0), 15.0)
+    evenness: float = option(number(ge=0), 10.0)
     symmetry: float = option(number(ge=0), 1.0)
     midpoint_chroma: float = option(number(ge=0), 5.0)
     break_lightness: float = option(number(ge=0), 1.0)

@@ -124,8 +124,9 @@ def test_two_renders_into_one_folder_never_mix(tmp_path):
         stdout, stderr = first.communicate(timeout=180)
     finally:
         first.kill()
-    assert first.returncode == 0, stderr
-    if second.code != 0:      # refused while the first held the folder
+    # 1: the tiny fixture fails its hierarchy check (render exits 1 after writing everything)
+    assert first.returncode in (0, 1), stderr
+    if second.code not in (0, 1):      # refused while the first held the folder
         second.assert_one_line(2, "another compose run", "tiny")
     assert sorted(os.listdir(out)) == outputs_of(style)
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from compose.ramps import ramp_metrics, rule_checks
+from compose.ramps import RampLimits, ramp_metrics, rule_checks
 
 from .conftest import (lch, make, ref_de00, ref_lab, ref_lch, ref_min_pairwise, ref_step_cv,
                        ref_vision_lab, rgb8_of)
@@ -237,8 +237,12 @@ def test_twin_violations_are_reported():
     flat = {"kind": "sequential", "domain": [0, 1], "through": [lch(90, 20, 100), lch(40, 20, 110)]}
     ramps = make(flat=flat, spin={"twin": "flat", "hue": [0, 300]}, bumpy=BUMPY,
                  copy={"twin": "bumpy", "hue": [200, 240]})
-    assert not verdicts(ramps["spin"])["ramp-step-uniformity"]
-    spin = ramps["spin"]
+    # measured at equal data steps (issue 10) the spin is uneven, more than its base, though
+    # within the default 10 % limit: a 6 % budget catches it
+    spin, flat_ = ramps["spin"], ramps["flat"]
+    assert ramp_metrics(spin).step_cv > ramp_metrics(flat_).step_cv
+    strict = {c.rule: c.passed for c in rule_checks(ramp_metrics(spin), RampLimits(step_cv=6.0))}
+    assert not strict["ramp-step-uniformity"]
     assert ref_step_cv(spin.colors_at(np.linspace(0, 1, 1024))) > 5.0
     assert not verdicts(ramps["copy"])["ramp-lightness-monotone"]
 

@@ -8,13 +8,14 @@ from __future__ import annotations
 
 import dataclasses
 
+import colour
 import numpy as np
 import pytest
 from scipy.stats import spearmanr
 
 from compose.check.catalog import CATALOG, limit_of
 from compose.ramps import RampLimits, ramp_metrics, rule_checks
-from compose.ramps.metrics import COARSE_SAMPLES, ORDER_SAMPLES, spearman
+from compose.ramps.metrics import COARSE_SAMPLES, EVEN_STEPS, ORDER_SAMPLES, spearman
 
 from .conftest import (lch, make, ref_de00, ref_lab, ref_lch, ref_min_pairwise, ref_step_cv,
                        ref_vision_lab)
@@ -42,7 +43,7 @@ def test_sequential_metrics_against_colour_science():
     assert m.grayscale_rho == pytest.approx(spearmanr(values, L).statistic, abs=1e-9)
     coarse = np.rint(ramp.colors_at(np.linspace(0, 12, COARSE_SAMPLES)) * 255) / 255
     assert m.step_cv_8bit == pytest.approx(ref_step_cv(coarse), abs=0.3)
-    assert m.step_cv == pytest.approx(ref_step_cv(ramp.colors_at(values)), abs=0.3)
+    assert m.step_cv == pytest.approx(ref_evenness(ramp), abs=0.3)
     order = np.rint(ramp.colors_at(np.linspace(0, 12, ORDER_SAMPLES)) * 255)
     for vision in ("normal", "deutan", "protan", "tritan"):
         lab = ref_vision_lab(order, vision)
@@ -103,6 +104,49 @@ def test_spearman_matches_scipy_with_ties():
     x = rng.integers(0, 6, 200).astype(float)
     y = x * 2 + rng.normal(size=200)
     assert spearman(x, y) == pytest.approx(spearmanr(x, y).statistic, abs=1e-12)
+
+
+def ref_evenness(ramp, steps=EVEN_STEPS) -> float:
+    """Worst CV (%) over step sizes g of CAM02-UCS differences (colour-science) of the 8-bit
+    colours at equal data steps (a sequential ramp: one run)."""
+    v = np.linspace(*ramp.domain, steps + 1)
+    rgb = np.rint(ramp.colors_at(v) * 255) / 255
+    ucs = colour.XYZ_to_CAM02UCS(colour.sRGB_to_XYZ(rgb))
+    cvs = []
+    for g in range(1, steps // 2 + 1):
+        d = np.linalg.norm(ucs[g:] - ucs[:-g], axis=-1)
+        cvs.append(100 * d.std() / d.mean())
+    return max(cvs)
+
+
+def _uneven(ramp, power=2.0):
+    """The same colours crowded toward the low end of the domain: value = lo + (hi - lo) u^power
+    along the curve (what pinned stops or a hand-made table can do)."""
+    (p,) = ramp.pieces
+    u = (p.values - p.lo) / (p.hi - p.lo)
+    piece = dataclasses.replace(p, values=p.lo + (p.hi - p.lo) * u ** power)
+    return dataclasses.replace(ramp, pieces=(piece,))
+
+
+def test_an_uneven_ramp_fails_evenness_and_an_even_one_passes():
+    # issue 10: evenness was measured along the re-spaced curve and could not fail
+    ramp = make(land=SEQ)["land"]
+    assert ramp_metrics(ramp).step_cv <= 10
+    v = {c.rule: c.passed for c in rule_checks(ramp_metrics(ramp))}
+    assert v["ramp-step-uniformity"]
+    uneven = _uneven(ramp)
+    m = ramp_metrics(uneven)
+    assert m.step_cv > 30 and m.step_cv == pytest.approx(ref_evenness(uneven), abs=0.5)
+    assert not {c.rule: c.passed for c in rule_checks(m)}["ramp-step-uniformity"]
+
+
+def test_a_ramp_whose_lightness_turns_back_is_uneven():
+    # "bumpy" of styles/poor-ramps.toml: even along its curve, but values far apart look alike
+    bumpy = {"kind": "sequential", "domain": [0, 12], "through": [
+        lch(85, 30, 95), lch(45, 45, 140), lch(75, 55, 60), lch(35, 45, 20), lch(70, 35, 300)]}
+    m = ramp_metrics(make(bumpy=bumpy)["bumpy"])
+    assert m.step_cv > 20
+    assert not {c.rule: c.passed for c in rule_checks(m)}["ramp-step-uniformity"]
 
 
 def test_ramp_rules_use_the_checkers_ids_and_limits():
