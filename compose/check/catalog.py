@@ -71,9 +71,6 @@ _RULES = [
     _r("theme-chroma-min", "theme C*ab p50 at least the budget (only when the style states "
        "budget.theme.chroma)", ">=", "C*ab", "theme.chroma[0]", NO_SOURCE,
        measured="the theme's own colours"),
-    _r("relief-shift", "how far the layers blended with a theme (the relief) move the lightness of "
-       "one of its colours, as L* half-range p5..p95: a shaded light class must not read as an "
-       "unshaded darker one", "<=", "L*", "theme.relief_shift", NO_SOURCE),
     _r("overlay-contrast", "share of a line, area or point layer's pixels whose WCAG 2 contrast "
        "against what lies beneath reaches budget.overlay.contrast (3:1)", ">=", "share",
        "overlay.share", "WCAG 2.1 SC 1.4.11 non-text contrast 3:1; the 95 % share is "

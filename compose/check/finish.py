@@ -103,7 +103,7 @@ def roles_present(ctx: CheckContext) -> list[RuleResult]:
     for role, rules in (("ground", "ground-lightness, ground-chroma, relief-visible, "
                                    "reserved-saturation"),
                         ("theme", "theme-chroma, reserved-saturation, grayscale-order, "
-                                  "relief-shift, nodata and class rules")):
+                                  "nodata and class rules")):
         if role in roles:
             continue
         kinds = "relief, field, classes, areas" if role == "ground" else "field, classes"

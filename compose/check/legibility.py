@@ -32,7 +32,7 @@ import math
 import numpy as np
 
 from compose.check.context import CheckContext, layer_key
-from compose.check.fixes import halo_color, hex8, lch_rgb8, solve_contrast_lightness
+from compose.check.fixes import halo_color, hex8, lch_rgb8, luminance8, solve_contrast_lightness
 from compose.check.report import Change, RuleResult
 from compose.check.stats import beneath_color_centres, contrast_share, histogram_percentiles
 from compose.color.lab import srgb_to_lab, srgb_to_lch
@@ -109,7 +109,9 @@ def _contrast_fix(ctx: CheckContext, spec, j: dict) -> tuple[str, Change | None]
     texts = [t for _, t, _ in options]
     if options:
         change = options[0][2]
-    outline = halo_color(rgb, j["limit"] * 1.05)
+    outline = _halo_near_ground(rgb, fig, ctx.background, j["limit"] * 1.05)
+    if outline is None:
+        outline = halo_color(rgb, j["limit"] * 1.05)
     if outline is not None and j["outline"] is None and j["part"] != "fill":
         if spec.kind == "points":
             texts.append(f'add an outline ring: stroke = "{hex8(outline)}", width = 0.5')
@@ -134,6 +136,37 @@ def _contrast_fix(ctx: CheckContext, spec, j: dict) -> tuple[str, Change | None]
     if not texts:
         return "no lightness of this hue reaches the limit here; add a halo or change the ground", None
     return "; or ".join(texts), change
+
+
+def _halo_near_ground(rgb, fig, background, limit: float):
+    """An outline colour (8-bit) close to what lies beneath the figure -- the ground's hue, its
+    chroma capped at 10, the lightness nearest the ground's median L* that reaches WCAG ``limit``
+    against the figure -- so the casing melts into the map instead of drawing a grey tube. None
+    when no lightness of that hue reaches it."""
+    hist = getattr(fig, "beneath_colors", None)
+    if hist is None or float(np.sum(hist)) <= 0:
+        base = np.asarray(background, dtype=float)
+        weights = None
+    else:
+        keep = np.nonzero(hist > 0)[0]
+        base, weights = beneath_color_centres()[keep], hist[keep]
+    lch = np.atleast_2d(srgb_to_lch(np.atleast_2d(base)))
+    if weights is None:
+        Lb, Cb, hb = lch[0]
+    else:
+        order = np.argsort(lch[:, 0])
+        cdf = np.cumsum(weights[order]) / np.sum(weights)
+        Lb, Cb, hb = lch[order[min(np.searchsorted(cdf, 0.5), len(order) - 1)]]
+    y_fig = float(luminance8(np.rint(np.asarray(rgb) * 255)))
+    grid = np.arange(0.0, 100.01, 0.5)
+    cand = lch_rgb8(np.stack([grid, np.full_like(grid, min(float(Cb), 10.0)),
+                              np.full_like(grid, float(hb))], axis=-1))
+    y = luminance8(cand)
+    ratio = (np.maximum(y, y_fig) + 0.05) / (np.minimum(y, y_fig) + 0.05)
+    ok = np.nonzero(ratio >= limit)[0]
+    if ok.size == 0:
+        return None
+    return cand[ok[np.argmin(np.abs(grid[ok] - float(Lb)))]]
 
 
 def _contrast_rule(ctx: CheckContext, kinds: tuple[str, ...], rule: str) -> list[RuleResult]:

@@ -17,6 +17,7 @@ from compose.check.fixes import hex8, solve_nodata
 from compose.check.report import WARNING, Change, RuleResult
 from compose.check.stats import N_LIGHTNESS
 from compose.color.difference import delta_e_2000
+from compose.color.gamut import max_chroma
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 from compose.color.parse import to_rgb8
 
@@ -242,7 +243,7 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
                                   ramp=ramp.name))
             continue
         passed = rho >= RHO_LIMIT
-        fix = ""
+        fix, change = "", None
         if not passed:
             between, within = _spread(s.value_lightness, s.values)
             need = RHO_LIMIT ** 2 / (1 - RHO_LIMIT ** 2)
@@ -255,11 +256,22 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
                 fix = (f'other layers vary the composite L* by +-{sd:.1f} at a value: widen the L* '
                        f'range of ramp "{ramp.name}" by >= {k:.2f}x, or cut that variation to '
                        f"<= +-{sd / k:.1f} (e.g. a lower relief strength)")
+                relief = next((g for g, _ in ctx.layers("ground", ("relief",))), None)
+                if not _metrics(ctx, ramp).lightness_monotone:
+                    # no relief setting can order a ramp whose own lightness turns back
+                    text, change = _shape_change("ramp-lightness-monotone", ramp)
+                    fix = (f'ramp "{ramp.name}" itself does not order its values by lightness; '
+                           + text) if change is not None else fix
+                elif relief is not None:
+                    # the relief's L* variation scales about linearly with its strength
+                    new = math.floor(relief.options.strength / k * 0.9 * 100) / 100
+                    fix += f"; e.g. {relief.name} strength {relief.options.strength:g} -> {new:g}"
+                    change = Change(f'layer "{relief.name}"', {"strength": new})
         out.append(RuleResult("grayscale-order", spec.name, rho, RHO_LIMIT, passed,
                               f"Spearman rho(value, composite L*) {rho:.3f} in the ramp's "
                               f"direction (L* {'rises' if direction > 0 else 'falls'} with the "
                               f"value); at least {RHO_LIMIT:g}",
-                              fix, ramp=ramp.name))
+                              fix, ramp=ramp.name, change=change))
     return out
 
 
@@ -277,9 +289,36 @@ def _from_checks(ctx: CheckContext, rule: str, source: str, severity: str = "fai
                 continue
             met = bool(c.passed)
             passed = met or severity == WARNING
+            fix, change = ("", None) if met else _shape_change(rule, r)
             out.append(_result(ctx, rule, r, c.value, c.limit, passed, c.message,
-                               "" if met else _shape_fix(rule, r), severity=severity, met=met))
+                               fix or ("" if met else _shape_fix(rule, r)), severity=severity,
+                               met=met, change=change))
     return out
+
+
+def _shape_change(rule: str, ramp) -> tuple[str, Change | None]:
+    """A structured change for the shape rules of a sequential ramp written with ``through``
+    stops: lightness re-spaced evenly from the lightest to the darkest stop (in the direction the
+    ramp runs), hues made to turn the short way in equal steps, each stop's chroma kept."""
+    if rule not in ("ramp-lightness-monotone", "ramp-step-uniformity") or ramp.kind != "sequential":
+        return "", None
+    stops = np.asarray(ramp.stops, dtype=float)
+    if len(stops) < 2:
+        return "", None
+    L = stops[:, 0]
+    falling = L[-1] < L[0]
+    hi, lo = float(L.max()), float(L.min())
+    newL = np.linspace(hi, lo, len(L)) if falling else np.linspace(lo, hi, len(L))
+    h0, h1 = stops[0, 2], stops[-1, 2]
+    turn = (h1 - h0 + 180.0) % 360.0 - 180.0
+    newh = (h0 + np.linspace(0.0, turn, len(L))) % 360.0
+    C = stops[:, 1]
+    through = [{"L": round(float(a), 1), "C": round(float(min(c, float(max_chroma(a, b)) - 0.5)), 1),
+                "h": round(float(b), 1)} for a, c, b in zip(newL, C, newh)]
+    text = (f'respace ramp "{ramp.name}": L* {"falling" if falling else "rising"} evenly '
+            f"{newL[0]:.0f} -> {newL[-1]:.0f}, hue turning {turn:+.0f} deg in equal steps: "
+            f"through = [{', '.join('{L = %g, C = %g, h = %g}' % (t['L'], t['C'], t['h']) for t in through)}]")
+    return text, Change(ramp_key(ramp.name), {"through": through})
 
 
 def _shape_fix(rule: str, ramp) -> str:

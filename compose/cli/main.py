@@ -16,6 +16,7 @@ COMMANDS = {
     "ramps": "compose.cli.ramps",
     "render": "compose.cli.render",
     "check": "compose.cli.check",
+    "fix": "compose.cli.fix",
     "proof": "compose.cli.proof",
     "demo": "compose.cli.demo",
     "init": "compose.cli.init",

@@ -137,13 +137,11 @@ class ThemeBudget:
     """Chroma of data colours: minimum (p50) and maximum (p95) C*ab; ``margin``: the ground's C*
     p95 stays at least this far below the themes' C* p50. The minimum is only enforced when
     ``chroma_min_stated`` (the style stated ``budget.theme.chroma``). ``gray_order``: least
-    Spearman rho of value and composite L*; ``relief_shift``: the most L* the layers drawn with
-    a theme may move one of its colours (p5..p95 half-range)."""
+    Spearman rho of value and composite L*."""
 
     chroma: tuple[float, float] = option(pair(ge=0), (25.0, 130.0))
     margin: float = option(number(ge=0), 10.0)
     gray_order: float = option(number(ge=-1, le=1), 0.95)
-    relief_shift: float = option(number(ge=0, le=100), 8.0)
     chroma_min_stated: bool = False
 
 

@@ -1,0 +1,105 @@
+"""Fixes that work (issue 10): every change the counter-example's failures propose is displayable,
+loads, and applied alone makes its own rule pass on a re-check at reduced size; ``compose fix``
+applies them all and writes a style that passes, its comments and layout kept."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import tomlkit
+from click.testing import CliRunner
+
+from compose.api import check
+from compose.check.autofix import apply_change, fix_style
+from compose.cli.main import cli
+from compose.color.gamut import lch_in_gamut
+from compose.color.parse import parse_color
+from compose.style import load_style
+
+STYLES = Path(__file__).resolve().parents[2] / "styles"
+POOR = STYLES / "poor.toml"
+
+
+def _colors(value):
+    """Every colour written in a change value (hex strings and {L, C, h} tables)."""
+    if isinstance(value, str) and value.startswith("#"):
+        yield ("hex", value)
+    elif isinstance(value, dict) and set(value) == {"L", "C", "h"}:
+        yield ("lch", value)
+    elif isinstance(value, dict):
+        for v in value.values():
+            yield from _colors(v)
+    elif isinstance(value, list):
+        for v in value:
+            yield from _colors(v)
+
+
+@pytest.fixture(scope="module")
+def poor_draft():
+    return check(POOR, draft=True)
+
+
+def test_every_fix_is_in_gamut_loads_and_passes_its_rule(poor_draft, tmp_path):
+    style = load_style(POOR)
+    text = POOR.read_text(encoding="utf-8")
+    failed = poor_draft.failures
+    assert {r.rule for r in failed} >= {"ground-chroma", "overlay-contrast", "nodata-chroma",
+                                        "ramp-lightness-monotone", "ramp-step-uniformity"}
+    for r in failed:
+        assert r.change is not None, f"{r.rule} proposes no change"
+        for kind, c in _colors(r.change.values):
+            if kind == "hex":
+                parse_color(c)                        # a valid sRGB colour string
+            else:
+                assert bool(lch_in_gamut(np.array([c["L"], c["C"], c["h"]]))), (r.rule, c)
+        doc = tomlkit.parse(text)
+        apply_change(doc, style, r.change)
+        path = POOR.parent / f".test-fix-{r.rule}.toml"
+        try:
+            path.write_text(tomlkit.dumps(doc), encoding="utf-8")
+            again = check(path, draft=True)           # loads (a bad value would raise here)
+        finally:
+            path.unlink()
+        mine = [x for x in again.rule(r.rule) if x.layer == r.layer]
+        if r.rule == "grayscale-order":
+            # a ramp whose lightness turns back cannot be ordered by any relief setting: its fix
+            # respaces the ramp, and order then also needs the relief quieter (a later round)
+            assert mine[0].value > r.value
+            continue
+        assert mine and all(x.passed for x in mine), (r.rule, r.change, mine[0].message)
+
+
+def test_halo_fix_is_near_the_ground_and_keeps_the_stroke(poor_draft):
+    r = poor_draft.rule("overlay-contrast", "coast")[0]
+    halo = r.change.values["halo"]["color"]
+    from compose.color.lab import srgb_to_lch
+    L, C, h = srgb_to_lch(np.asarray(parse_color(halo)))
+    assert C <= 10.5                                  # muted like the ground, not a saturated ring
+    assert "stroke" not in r.change.values           # the overlay's own colour is kept
+
+
+def test_compose_fix_writes_a_style_that_passes(tmp_path):
+    out = tmp_path / "fixed.toml"
+    res = CliRunner().invoke(cli, ["fix", str(POOR), "--write", str(out)])
+    assert res.exit_code == 0, res.output
+    assert "the fixed style passes" in res.output and "+strength" in res.output
+    text = out.read_text(encoding="utf-8")
+    assert text.startswith("# A deliberately poor style")       # comments kept
+    assert "# a saturated orange ground competes with the data" in text
+    final = check(out)                                          # full resolution
+    assert final.passed, [x.rule for x in final.failures]
+    assert CliRunner().invoke(cli, ["check", str(out)]).exit_code == 0
+
+
+def test_compose_fix_without_write_only_shows_the_diff(tmp_path):
+    before = sorted(p.name for p in POOR.parent.iterdir())
+    res = CliRunner().invoke(cli, ["fix", str(POOR)])
+    assert res.exit_code == 0, res.output
+    assert res.output.startswith("--- poor.toml")
+    assert sorted(p.name for p in POOR.parent.iterdir()) == before
+
+
+def test_fix_style_of_a_passing_style_changes_nothing():
+    r = fix_style(STYLES / "cover.toml")
+    assert not r.changed and r.after.passed and r.rounds == []
