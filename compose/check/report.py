@@ -241,7 +241,8 @@ def format_pair(value, limit, comparison: str, met: bool) -> tuple[str, str]:
     for decimals in range(_default_decimals(value), 10):
         printed = f"{value:.{decimals}f}"
         if _holds(float(printed), float(limit), comparison) == met:
-            return printed, _g(limit)
+            shown = _g(limit) if float(limit) == round(float(limit), 3) else f"{limit:.{decimals}f}"
+            return printed, shown
     return repr(float(value)), _g(limit)
 
 
