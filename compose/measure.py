@@ -31,12 +31,15 @@ from compose.check.stats import (
     lightness_bins_of_rgb8,
     luminance_of_rgb8,
 )
+from compose.color.srgb import srgb_to_linear
 from compose.color.wcag import relative_luminance
 from compose.style.kinds import LAYER_KINDS
 
 __all__ = ["GRAY_STRIDE", "new_statistics", "WindowMeasure"]
 
 GRAY_STRIDE = 2  # the grey-order histogram samples every 2nd row and column
+# linear-light value of each 8-bit sRGB code (IEC 61966-2-1 decoding, compose.color.srgb)
+_LINEAR8 = srgb_to_linear(np.arange(256) / 255.0)
 
 
 def new_statistics(layers: list, width: int, height: int,
@@ -52,6 +55,8 @@ def new_statistics(layers: list, width: int, height: int,
         if palette is not None and layer.spec.role == "theme":
             s.values = palette.values.copy()
             s.value_lightness = np.zeros((palette.rgb8.shape[0], N_LIGHTNESS))
+            s.value_color = np.zeros((palette.rgb8.shape[0], 3))
+            s.value_count = np.zeros(palette.rgb8.shape[0])
             s.nodata_index = int(palette.nodata)
         out.append(s)
     r, g, b = (float(v) for v in background)
@@ -190,7 +195,9 @@ class WindowMeasure:
             # pixels, on the canvas's own even grid so windows agree) estimates it as well.
             r_off, c_off = (self.window.row % 2), (self.window.col % 2)
             sub = (slice(r_off, None, GRAY_STRIDE), slice(c_off, None, GRAY_STRIDE))
-            lightness = lightness_bins_of_rgb8(np.ascontiguousarray(rgb8[sub]).reshape(-1, 3))
+            sampled = np.ascontiguousarray(rgb8[sub]).reshape(-1, 3)
+            lightness = lightness_bins_of_rgb8(sampled)
+            linear = _LINEAR8[sampled]        # (k, 3) linear-light RGB of the composite
             shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
             for li, index, a_core in themes:
                 s = self.stats.layers[li]
@@ -204,4 +211,14 @@ class WindowMeasure:
                     cell = cell[keep]
                 s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS).reshape(
                     n, N_LIGHTNESS)
+                if s.value_color is not None:    # the blended colour of each entry, summed,
+                    drawn = a_core[sub].ravel() > 0   # wherever it is drawn, however faint
+                    if shown is not None:
+                        drawn &= shown
+                    idx = index[sub].ravel()
+                    lin = linear if drawn.all() else linear[drawn]
+                    idx = idx if drawn.all() else idx[drawn]
+                    s.value_count += np.bincount(idx, minlength=n)
+                    for c in range(3):
+                        s.value_color[:, c] += np.bincount(idx, weights=lin[:, c], minlength=n)
         return self.stats

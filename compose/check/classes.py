@@ -67,6 +67,20 @@ def _limits(ramp, separation: float) -> np.ndarray:
     return lim
 
 
+def _as_seen(s, rgb8: np.ndarray) -> tuple[np.ndarray, bool]:
+    """The class colours as the reader sees them: each class's mean composite colour where the
+    map draws it (from the render's histograms), its palette colour where it draws none."""
+    got = s.composite_colors(min_pixels=4.0)
+    if got is None:
+        return rgb8, False
+    rgb, _ = got
+    k = len(rgb8)
+    seen = rgb8.astype(float).copy()
+    drawn = np.isfinite(rgb[:k]).all(axis=1)
+    seen[drawn] = np.rint(rgb[:k][drawn] * 255)
+    return np.clip(seen, 0, 255).astype(np.uint8), bool(drawn.any())
+
+
 def _separation(ctx: CheckContext, vision: str) -> list[RuleResult]:
     rule = "classes-separation" + ("" if vision == "normal" else f"-{vision}")
     sep = float(ctx.budgets.classes.separation)
@@ -76,7 +90,8 @@ def _separation(ctx: CheckContext, vision: str) -> list[RuleResult]:
         rgb8 = to_rgb8(np.array([c.rgb for c in ramp.classes]))
         if len(rgb8) < 2:
             continue
-        lab = _labs_of(rgb8)[vi]
+        seen, on_map = _as_seen(s, rgb8)
+        lab = _labs_of(seen)[vi]
         d = delta_e_2000(lab[:, None, :], lab[None, :, :])
         lim = _limits(ramp, sep)
         ratio = np.where(np.eye(len(rgb8), dtype=bool), np.inf, d / np.maximum(lim, 1e-9))
@@ -86,8 +101,10 @@ def _separation(ctx: CheckContext, vision: str) -> list[RuleResult]:
         passed = bool(value >= limit)
         a, b = ramp.classes[i].label, ramp.classes[j].label
         fam = " (same family: half the separation)" if limit < sep else ""
-        msg = (f'closest pair "{a}" / "{b}" {value:.1f} dE00 in {vision} vision; at least '
-               f"{limit:g}{fam}")
+        where = ("as drawn on the map (mean colour after the layers blended with it)" if on_map
+                 else "of the palette (no pixels drawn)")
+        msg = (f'closest pair "{a}" / "{b}" {value:.1f} dE00 in {vision} vision, {where}; at '
+               f"least {limit:g}{fam}")
         fix, change = "", None
         if not passed:
             sol = solve_class_pair(rgb8, (i, j), lim, _labs_of)

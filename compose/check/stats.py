@@ -217,6 +217,8 @@ class LayerStats:
     covered: float = 0.0                       # coverage-weighted pixel count of the layer
     values: np.ndarray | None = None           # (n,) data value per palette entry (themes)
     value_lightness: np.ndarray | None = None  # (n, N_LIGHTNESS) palette index x composite L*
+    value_color: np.ndarray | None = None      # (n, 3) sums of the composite's linear RGB per entry
+    value_count: np.ndarray | None = None      # (n,) pixels summed into value_color
     nodata_weight: float = 0.0                 # pixels drawn in the no-data colour
     nodata_index: int = -1                     # palette entry of the no-data colour (themes), or -1
     figure: tuple[str, str] | None = None      # overlays: (part judged as the mark, its colour key)
@@ -228,7 +230,11 @@ class LayerStats:
                           values=self.values, nodata_index=self.nodata_index,
                           figure=self.figure, outline=self.outline,
                           value_lightness=(None if self.value_lightness is None
-                                           else np.zeros_like(self.value_lightness)))
+                                           else np.zeros_like(self.value_lightness)),
+                          value_color=(None if self.value_color is None
+                                       else np.zeros_like(self.value_color)),
+                          value_count=(None if self.value_count is None
+                                       else np.zeros_like(self.value_count)))
 
     def merge(self, other: LayerStats) -> None:
         """Add ``other`` (the same layer measured elsewhere, e.g. another window) to this."""
@@ -244,6 +250,26 @@ class LayerStats:
                 self.value_lightness = other.value_lightness.copy()
             else:
                 self.value_lightness += other.value_lightness
+        if other.value_color is not None:
+            if self.value_color is None:
+                self.value_color = other.value_color.copy()
+                self.value_count = other.value_count.copy()
+            else:
+                self.value_color += other.value_color
+                self.value_count += other.value_count
+
+    def composite_colors(self, min_pixels: float = 1.0) -> tuple[np.ndarray, np.ndarray] | None:
+        """Mean composite colour (sRGB floats, (n, 3)) of each palette entry as the reader sees
+        it -- the theme after every layer blended with it -- and the sampled pixel count (n,);
+        NaN rows where fewer than ``min_pixels`` were sampled. None when not measured."""
+        if self.value_color is None or self.value_lightness is None:
+            return None
+        from compose.color.srgb import linear_to_srgb
+        n = self.value_count if self.value_count is not None else self.value_lightness.sum(axis=1)
+        mean = self.value_color / np.maximum(n, 1e-9)[:, None]
+        rgb = np.clip(linear_to_srgb(np.clip(mean, 0.0, 1.0)), 0.0, 1.0)
+        rgb[n < min_pixels] = np.nan
+        return rgb, n
 
     def colors_and_weights(self, parts=None, data_only: bool = False) -> tuple[np.ndarray, np.ndarray]:
         """All colours of the chosen parts (default all) with their weights.

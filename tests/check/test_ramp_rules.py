@@ -249,3 +249,16 @@ def test_check_style_runs_on_an_empty_ramp_set(data, tmp_path):
     finally:
         run_.close()
     assert rep.passed and np.isclose(rep.layers[0].coverage, 1.0)
+
+
+def test_class_separation_is_judged_on_the_map_not_the_palette(data, tmp_path):
+    # issue 10: a faint class layer (opacity 0.15 over the relief) has a well separated palette,
+    # but the blended colours the reader sees are close: judged on the composite it fails
+    ramps = {"cover": cover(DISTINCT)}
+    faint = style([relief(data["hills"]), classes_layer(data["classes"], opacity=0.15)],
+                  ramps=ramps)
+    r = one(check(tmp_path, faint), "classes-separation", "cover")
+    assert not r.passed and r.value < 10 and "as drawn on the map" in r.message
+    solid = style([relief(data["hills"]), classes_layer(data["classes"])], ramps=ramps)
+    r2 = one(check(tmp_path, solid, "solid"), "classes-separation", "cover")
+    assert r2.passed and r2.value > r.value
