@@ -43,7 +43,7 @@ def command(style: Path, write_to: Path | None, full: bool, overwrite: bool) -> 
     """
     import tomlkit
 
-    from compose.check.autofix import fix_style, rebase_paths
+    from compose.fix import fix_style, rebase_paths
     from compose.errors import OutputError
 
     result = fix_style(style, draft=not full)

@@ -11,13 +11,13 @@ import tomlkit
 from click.testing import CliRunner
 
 from compose.api import check
-from compose.check.autofix import apply_change, fix_style
+from compose.fix import apply_change, fix_style
 from compose.cli.main import cli
 from compose.color.gamut import lch_in_gamut
 from compose.color.parse import parse_color
 from compose.style import load_style
 
-STYLES = Path(__file__).resolve().parents[2] / "styles"
+STYLES = Path(__file__).resolve().parents[1] / "styles"
 POOR = STYLES / "poor.toml"
 
 
