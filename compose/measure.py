@@ -211,7 +211,7 @@ class WindowMeasure:
                     cell = cell[keep]
                 s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS).reshape(
                     n, N_LIGHTNESS)
-                if s.value_color is not None:    # the blended colour of each entry, summed,
+                if s.value_color is not None and s.value_count is not None:   # blended colours
                     drawn = a_core[sub].ravel() > 0   # wherever it is drawn, however faint
                     if shown is not None:
                         drawn &= shown

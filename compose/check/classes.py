@@ -86,7 +86,7 @@ def _separation(ctx: CheckContext, vision: str) -> list[RuleResult]:
     sep = float(ctx.budgets.classes.separation)
     out = []
     vi = _VISION_KINDS.index(vision)
-    for spec, _s, ramp in _class_layers(ctx):
+    for spec, s, ramp in _class_layers(ctx):
         rgb8 = to_rgb8(np.array([c.rgb for c in ramp.classes]))
         if len(rgb8) < 2:
             continue

@@ -156,7 +156,7 @@ def _halo_near_ground(rgb, fig, background, limit: float):
     else:
         order = np.argsort(lch[:, 0])
         cdf = np.cumsum(weights[order]) / np.sum(weights)
-        Lb, Cb, hb = lch[order[min(np.searchsorted(cdf, 0.5), len(order) - 1)]]
+        Lb, Cb, hb = lch[order[min(int(np.searchsorted(cdf, 0.5)), len(order) - 1)]]
     y_fig = float(luminance8(np.rint(np.asarray(rgb) * 255)))
     grid = np.arange(0.0, 100.01, 0.5)
     cand = lch_rgb8(np.stack([grid, np.full_like(grid, min(float(Cb), 10.0)),

@@ -314,10 +314,11 @@ def _shape_change(rule: str, ramp) -> tuple[str, Change | None]:
     newh = (h0 + np.linspace(0.0, turn, len(L))) % 360.0
     C = stops[:, 1]
     through = [{"L": round(float(a), 1), "C": round(float(min(c, float(max_chroma(a, b)) - 0.5)), 1),
-                "h": round(float(b), 1)} for a, c, b in zip(newL, C, newh)]
+                "h": round(float(b), 1)} for a, c, b in zip(newL, C, newh, strict=True)]
+    listed = ", ".join(f"{{L = {t['L']:g}, C = {t['C']:g}, h = {t['h']:g}}}" for t in through)
     text = (f'respace ramp "{ramp.name}": L* {"falling" if falling else "rising"} evenly '
             f"{newL[0]:.0f} -> {newL[-1]:.0f}, hue turning {turn:+.0f} deg in equal steps: "
-            f"through = [{', '.join('{L = %g, C = %g, h = %g}' % (t['L'], t['C'], t['h']) for t in through)}]")
+            f"through = [{listed}]")
     return text, Change(ramp_key(ramp.name), {"through": through})
 
 

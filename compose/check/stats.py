@@ -250,8 +250,8 @@ class LayerStats:
                 self.value_lightness = other.value_lightness.copy()
             else:
                 self.value_lightness += other.value_lightness
-        if other.value_color is not None:
-            if self.value_color is None:
+        if other.value_color is not None and other.value_count is not None:
+            if self.value_color is None or self.value_count is None:
                 self.value_color = other.value_color.copy()
                 self.value_count = other.value_count.copy()
             else:

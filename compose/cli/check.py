@@ -55,7 +55,7 @@ def explain(rule: str) -> str:
     from compose.check.catalog import CATALOG
     from compose.errors import StyleError
     from compose.style.model import Budgets
-    from compose.style.validate import check_choice, Scope
+    from compose.style.validate import Scope, check_choice
 
     if rule not in CATALOG:
         check_choice(rule, CATALOG, Scope("--explain"), "rule id")
@@ -88,7 +88,7 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, list_r
     from compose.cli.render import progress_bar
 
     if list_rules or explain_rule:
-        click.echo(rules_table() if list_rules else explain(explain_rule))
+        click.echo(rules_table() if list_rules else explain(str(explain_rule)))
         return
     if style is None:
         raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")

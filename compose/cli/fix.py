@@ -43,8 +43,8 @@ def command(style: Path, write_to: Path | None, full: bool, overwrite: bool) -> 
     """
     import tomlkit
 
-    from compose.fix import fix_style, rebase_paths
     from compose.errors import OutputError
+    from compose.fix import fix_style, rebase_paths
 
     result = fix_style(style, draft=not full)
     text = result.text

@@ -20,8 +20,9 @@ from compose.color.parse import to_rgb8
 from compose.ramps.lut import lut_for
 from compose.ramps.model import Ramp
 
-__all__ = ["VISIONS", "COARSE_SAMPLES", "EVEN_STEPS", "evenness", "evenness_profile", "ORDER_SAMPLES", "RULE_LEVELS", "RampMetrics", "RampLimits",
-           "RuleCheck", "ramp_metrics", "rule_checks", "spearman", "vision_lab"]
+__all__ = ["VISIONS", "COARSE_SAMPLES", "EVEN_STEPS", "evenness", "evenness_profile", "ORDER_SAMPLES",
+           "RULE_LEVELS", "RampMetrics", "RampLimits", "RuleCheck", "ramp_metrics", "rule_checks",
+           "spearman", "vision_lab"]
 
 VISIONS = ("normal", "deutan", "protan", "tritan")
 COARSE_SAMPLES = 32   # step uniformity of the 8-bit colours (finer steps drown in rounding)
