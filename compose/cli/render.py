@@ -144,12 +144,14 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
     if loaded.series:
         raise StyleError(f"{path}: the style declares a series of {len(loaded.series)} members; "
                          "render it with --series")
-    for note in loaded.canvas_plan().notes:
-        click.echo(f"note: {note}", err=True)
+    notes = loaded.canvas_plan().notes
     canvas = loaded.canvas()
     mapper = mapper_for(canvas.width * canvas.height, workers, cluster)
     result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
                           mapper=mapper, cog=cog, check=check)
+    # notes only after the render succeeded: a failing run prints its one error line alone
+    for note in notes:
+        click.echo(f"note: {note}", err=True)
     print_summary(result, strict)
     return not check or result.report is None or result.report.passed_strict(strict)
 

@@ -42,9 +42,8 @@ RASTER_DRIVERS = ("GTiff", "COG", "PNG", "JPEG", "GIF", "BMP", "WEBP", "JP2OpenJ
                   "USGSDEM", "NITF", "ERS", "BT", "GSAG", "GSBG", "GS7BG", "SIGDEM", "ISG", "LCP",
                   "ILWIS", "NWT_GRD", "Leveller", "Terragen", "PNM", "MFF", "KRO", "BYN", "GTX")
 #: Vector formats a source may be in without ``--allow-remote``.
-VECTOR_DRIVERS = ("GPKG", "ESRI Shapefile", "GeoJSON", "GeoJSONSeq", "FlatGeobuf", "SQLite",
-                  "TopoJSON", "ESRIJSON", "MapInfo File", "CSV", "KML", "LIBKML", "Parquet",
-                  "Arrow", "GPX")
+VECTOR_DRIVERS = ("GPKG", "GeoJSON", "GeoJSONSeq", "FlatGeobuf", "SQLite", "TopoJSON", "CSV",
+                  "KML", "LIBKML", "Parquet", "Arrow", "GPX")
 
 #: GDAL configuration set for every run (environment, read by GDAL when it needs an option).
 GDAL_CONFIG = {
@@ -209,7 +208,10 @@ def allowed_drivers(kind: str) -> list[str]:
     with Env() as env:
         present = env.drivers()
     names = RASTER_DRIVERS if kind == "raster" else VECTOR_DRIVERS
-    return [n for n in names if n in present]
+    allowed = [n for n in names if n in present]
+    if kind == "vector":   # the .shp/.dbf/.shx file set: one file with fixed sidecars
+        allowed += [n for n in present if n.endswith(" Shapefile")]
+    return allowed
 
 
 def refuse_driver(dataset, local_only: bool, kind: str, where: str, key: str = "source") -> None:

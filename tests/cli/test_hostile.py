@@ -330,3 +330,13 @@ def test_library_warnings_never_precede_the_error_line(style, tmp_path, monkeypa
 def test_failed_rule_is_exit_1_and_pass_is_0(tmp_path):
     styles = Path(__file__).resolve().parents[2] / "styles"
     assert run_in_process("check", styles / "poor.toml").code == 1
+
+
+def test_a_failing_render_prints_its_error_line_alone_even_after_a_rounded_extent(tmp_path):
+    # A rounded extent is a note of a successful run; a run that then fails (here a missing
+    # source) prints only its one error line.
+    style = tiny_style(tmp_path / "d")
+    replace_in(style, "extent     = [500000, 4000000, 501920, 4001920]",
+               "extent     = [500000, 4000000, 501925, 4001925]")
+    replace_in(style, 'source = "land.tif"', 'source = "gone.tif"')
+    run_in_process("render", style, "--out", tmp_path / "out").assert_one_line(2, "gone.tif")

@@ -89,7 +89,7 @@ def test_world_file_matches_the_geotiff(rendered):
     a, d, b, e, c, f = (float(v) for v in result.outputs["world"].read_text().split())
     with rasterio.open(result.outputs["tif"]) as ds:
         t = ds.transform
-    # ESRI world file: pixel sizes, rotation terms, centre of the upper-left pixel
+    # world file: pixel sizes, rotation terms, centre of the upper-left pixel
     assert (a, d, b, e) == pytest.approx((t.a, t.d, t.b, t.e))
     assert (c, f) == pytest.approx((t.c + t.a / 2, t.f + t.e / 2))
 

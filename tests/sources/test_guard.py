@@ -166,3 +166,13 @@ def test_read_errors_mid_render_name_the_layer_and_file():
     assert as_source_error(bug, spec) is bug          # a fault of ours stays one (exit 3)
     full = OSError(28, "No space left on device")
     assert as_source_error(full, spec) is full        # a full disk is about outputs, not sources
+
+
+def test_plain_local_vector_formats_stay_allowed():
+    # The .shp/.dbf/.shx file set and GeoPackage are plain local files: allowed without the option;
+    # a GDAL XML wrapper of a tile service is not.
+    from compose.sources.guard import allowed_drivers
+
+    vector = allowed_drivers("vector")
+    assert "GPKG" in vector and any(d.endswith(" Shapefile") for d in vector)
+    assert "WMS" not in allowed_drivers("raster") and "VRT" not in allowed_drivers("raster")
