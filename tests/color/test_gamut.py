@@ -30,7 +30,7 @@ def test_in_gamut_tolerance_is_a_tenth_of_a_code():
     assert not in_gamut([np.nan, 0.5, 0.5])
 
 
-def test_mapped_colour_on_the_edge_stays_inside():
+def test_mapped_color_on_the_edge_stays_inside():
     # silver: found by hypothesis; the bisection stopped on the tolerance edge (R = 1 + 0.1/255)
     # and the mapped colour read as outside when converted again.
     out, _ = map_to_gamut(np.array((87.4851681740054, 87.25, 87.4921875)))
