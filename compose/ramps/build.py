@@ -270,18 +270,25 @@ def _diverging_twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]
         domain = spec.domain or base.domain
         center = domain[0] + (root.center - root.domain[0]) * (domain[1] - domain[0]) / (
             root.domain[1] - root.domain[0])
-        stepped = spec.steps is not None or spec.breaks is not None
-        steps, breaks = (spec.steps, spec.breaks) if stepped else (base.steps, base.breaks)
-        if breaks is not None and (breaks[0] <= domain[0] or breaks[-1] >= domain[1]):
-            raise StyleError(f"{spec.where}: 'breaks' must lie inside the domain "
-                             f"[{domain[0]:g}, {domain[1]:g}]")
+        steps, breaks, step_method = _twin_steps(spec, base, domain)
         ramp = Ramp(spec.name, "diverging", domain, base.stops, base.space, _GRAY, _GRAY, _GRAY,
                     pieces_for(spec.name, domain), center=center, twin_of=spec.twin, hue=spec.hue,
                     matched=names, base=base, steps=steps, breaks=breaks,
-                    step_method=spec.step_method or (base.step_method if not stepped else "equal"),
+                    step_method=step_method,
                     samples=spec.samples or base.samples, path=spec.path)
         result[spec.name] = _finish(ramp, spec)
     return result
+
+
+def _twin_steps(spec: RampSpec, base: Ramp, domain: tuple[float, float]):
+    """A twin's classes: its own steps/breaks if it states any, else its base's; its breaks must lie
+    inside its domain. Returns (steps, breaks, step method)."""
+    stepped = spec.steps is not None or spec.breaks is not None
+    steps, breaks = (spec.steps, spec.breaks) if stepped else (base.steps, base.breaks)
+    if breaks is not None and (breaks[0] <= domain[0] or breaks[-1] >= domain[1]):
+        raise StyleError(f"{spec.where}: 'breaks' must lie inside the domain "
+                         f"[{domain[0]:g}, {domain[1]:g}]")
+    return steps, breaks, spec.step_method or (base.step_method if not stepped else "equal")
 
 
 def _twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[str, Ramp]:
@@ -314,15 +321,11 @@ def _twin_group(root: Ramp, root_spec: RampSpec, twins: list[RampSpec]) -> dict[
     for spec in twins:
         base = result[spec.twin]
         domain = spec.domain or base.domain
-        stepped = spec.steps is not None or spec.breaks is not None
-        steps, breaks = (spec.steps, spec.breaks) if stepped else (base.steps, base.breaks)
-        if breaks is not None and (breaks[0] <= domain[0] or breaks[-1] >= domain[1]):
-            raise StyleError(f"{spec.where}: 'breaks' must lie inside the domain "
-                             f"[{domain[0]:g}, {domain[1]:g}]")
+        steps, breaks, step_method = _twin_steps(spec, base, domain)
         ramp = Ramp(spec.name, "twin", domain, base.stops, base.space, _GRAY, _GRAY, _GRAY,
                     (piece_for(spec.name, domain),), twin_of=spec.twin, hue=spec.hue, matched=names,
                     base=base, steps=steps, breaks=breaks,
-                    step_method=spec.step_method or (base.step_method if not stepped else "equal"),
+                    step_method=step_method,
                     samples=spec.samples or base.samples, path=spec.path)
         result[spec.name] = _finish(ramp, spec)
     return result
