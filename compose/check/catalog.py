@@ -90,6 +90,14 @@ _RULES = [
        "ramp.twin_chroma", OUR_TARGET, measured="the ramps' 8-bit colours"),
     _r("twin-hue", "smallest hue difference between twins where both show a hue (C* >= 5)", ">=",
        "degrees", "ramp.twin_hue", OUR_TARGET, measured="the ramps' 8-bit colours"),
+    _r("twin-lightness-map", "|dL*| between twins as drawn on the map (after every layer is "
+       "blended) at equal positions, at each entry's lit end; p90 over positions", "<=", "L*",
+       "ramp.map_lightness", OUR_TARGET + " (1 L* of the palette plus the 1-L* bins it is "
+       "measured in)"),
+    _r("twin-lightness-map-deutan", "the same in simulated deutan vision", "<=", "L*",
+       "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
+    _r("twin-lightness-map-protan", "the same in simulated protan vision", "<=", "L*",
+       "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
     _r("threshold-lightness", "|dL*| across the break of a threshold ramp: lightness runs on",
        "<=", "L*", "ramp.break_lightness", OUR_TARGET, measured="the ramp's 8-bit colours"),
     _r("ramp-break-visible", "dE00 across the break of a threshold ramp: the break shows", ">=",
@@ -120,6 +128,14 @@ _RULES = [
        "ramp.evenness", OUR_TARGET, measured="the ramp's 8-bit colours at equal data steps"),
     _r("ramp-diverging-symmetry", "largest |dL*| at equal distance either side of a diverging "
        "ramp's centre", "<=", "L*", "ramp.symmetry", OUR_TARGET + " (~1 L* is just noticeable)"),
+    _r("diverging-symmetry-map", "|dL*| between the arms of a diverging theme as drawn on the "
+       "map at equal distance from the centre, at each entry's lit end; p90 over distances",
+       "<=", "L*", "ramp.map_lightness", OUR_TARGET + " (1 L* of the palette plus the 1-L* bins "
+       "it is measured in)"),
+    _r("diverging-symmetry-map-deutan", "the same in simulated deutan vision", "<=", "L*",
+       "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
+    _r("diverging-symmetry-map-protan", "the same in simulated protan vision", "<=", "L*",
+       "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
     _r("ramp-neutral-midpoint", "C*ab of a diverging ramp's midpoint (a warning: a coloured "
        "midpoint may be meant)", "<=", "C*ab", "ramp.midpoint_chroma", NO_SOURCE,
        severity="warning", measured="the ramp's 8-bit colours"),

@@ -26,6 +26,14 @@ from compose.check.hierarchy import (
     theme_chroma_min,
 )
 from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
+from compose.check.on_map import (
+    diverging_symmetry_map,
+    diverging_symmetry_map_deutan,
+    diverging_symmetry_map_protan,
+    twin_lightness_map,
+    twin_lightness_map_deutan,
+    twin_lightness_map_protan,
+)
 from compose.check.ramp_rules import (
     grayscale_order,
     nodata_background,
@@ -61,6 +69,9 @@ RULES: dict[str, Rule] = {
     "twin-lightness": twin_lightness,
     "twin-chroma": twin_chroma,
     "twin-hue": twin_hue,
+    "twin-lightness-map": twin_lightness_map,
+    "twin-lightness-map-deutan": twin_lightness_map_deutan,
+    "twin-lightness-map-protan": twin_lightness_map_protan,
     "threshold-lightness": threshold_lightness,
     "nodata-chroma": nodata_chroma,
     "nodata-separation": nodata_separation,
@@ -73,6 +84,9 @@ RULES: dict[str, Rule] = {
     "ramp-lightness-monotone": ramp_lightness_monotone,
     "ramp-step-uniformity": ramp_step_uniformity,
     "ramp-diverging-symmetry": ramp_diverging_symmetry,
+    "diverging-symmetry-map": diverging_symmetry_map,
+    "diverging-symmetry-map-deutan": diverging_symmetry_map_deutan,
+    "diverging-symmetry-map-protan": diverging_symmetry_map_protan,
     "ramp-neutral-midpoint": ramp_neutral_midpoint,
     "ramp-break-visible": ramp_break_visible,
 }

@@ -176,7 +176,8 @@ class NodataBudget:
 class RampBudget:
     """Limits of the ramp-shape rules: step evenness (CV of CAM02-UCS steps at equal data steps,
     %), diverging symmetry and threshold continuity (|dL*|), neutral midpoint (C*ab), the break
-    showing (dE00), twins (|dL*|, |dC*|, hue degrees)."""
+    showing (dE00), twins (|dL*|, |dC*|, hue degrees); ``map_lightness`` / ``map_lightness_cvd``:
+    |dL*| of twins and of diverging arms as drawn on the map (normal / simulated deutan, protan)."""
 
     evenness: float = option(number(ge=0), 10.0)
     symmetry: float = option(number(ge=0), 1.0)
@@ -186,6 +187,8 @@ class RampBudget:
     twin_lightness: float = option(number(ge=0), 1.0)
     twin_chroma: float = option(number(ge=0), 1.0)
     twin_hue: float = option(number(ge=0, le=180), 30.0)
+    map_lightness: float = option(number(ge=0), 2.0)
+    map_lightness_cvd: float = option(number(ge=0), 6.0)
 
 
 def _theme(value: Any, at: Scope) -> ThemeBudget:

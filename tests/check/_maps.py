@@ -56,6 +56,13 @@ def make_data(folder: Path) -> dict[str, Path]:
     ramp = (xx / (N - 1) * 10).astype(np.float32)
     ramp[:6, :6] = np.nan                       # a corner of no-data
     paths["gradient"] = _raster(folder / "gradient.tif", ramp, nodata=np.nan)
+    # the same values (0 at the top row .. 10 at the bottom) in the west and in the east half,
+    # no-data in the other half: twin layers drawn side by side
+    rows = (yy / (N - 1) * 10).astype(np.float32)
+    paths["west"] = _raster(folder / "west.tif", np.where(xx < N / 2, rows, np.nan).astype(np.float32),
+                            nodata=np.nan)
+    paths["east"] = _raster(folder / "east.tif", np.where(xx >= N / 2, rows, np.nan).astype(np.float32),
+                            nodata=np.nan)
     halves = np.where(xx < N / 2, 0.0, 10.0).astype(np.float32)
     paths["halves"] = _raster(folder / "halves.tif", halves, nodata=-9999.0)
     paths["classes"] = _raster(folder / "classes.tif", (1 + (xx // 16)).astype(np.uint8), nodata=0)
