@@ -38,7 +38,8 @@ from compose.check.stats import N_LIGHTNESS
 from compose.color.cvd import simulate_cvd
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 
-__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "drawn_lightness", "position_groups", "fill_gaps", "pooled_gap", "twin_lightness_map",
+__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "drawn_lightness", "position_groups", "fill_gaps",
+           "pooled_gap", "twin_lightness_map",
            "twin_lightness_map_deutan", "twin_lightness_map_protan", "diverging_symmetry_map",
            "diverging_symmetry_map_deutan", "diverging_symmetry_map_protan"]
 
