@@ -48,7 +48,7 @@ def test_a_fainter_twin_fails_on_the_map_though_its_ramp_matches(data, tmp_path)
     assert one(fixed, "twin-lightness-map").passed
 
 
-def test_a_coloured_ground_splits_the_twins_and_a_neutral_tint_fixes_it(data, tmp_path):
+def test_a_colored_ground_splits_the_twins_and_a_neutral_tint_fixes_it(data, tmp_path):
     # an orange ground multiplied under blue sea and green land darkens the sea far more
     doc = twins(data, ground={"tint": ORANGE, "blend": "multiply"})
     rep = check(tmp_path, doc, "orange")
