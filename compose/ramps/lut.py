@@ -86,19 +86,27 @@ class Lut:
             pos = np.clip(np.searchsorted(sorted_v, v), 0, n - 1)
             idx = np.where(sorted_v[pos] == v, order[pos], self.nodata_index)
             return idx.astype(np.uint16)
+        if v.ndim == 0:
+            return self.index(v.reshape(1)).reshape(())
         lo, hi = float(self.edges[0]), float(self.edges[-1])
+        # in place, one pass per step (a window's index is the hot path of raster layers)
         if self.width is not None:
-            t = np.floor((v - self.origin) / self.width)
+            t = np.subtract(v, self.origin)
+            t /= self.width
+            np.floor(t, out=t)
             if self.split is not None:
                 at, first, width2 = self.split
                 t = np.where(v >= at, first + np.floor((v - at) / width2), np.minimum(t, first - 1))
         else:
             t = np.searchsorted(self.edges[1:-1], v, side="right").astype(float)
-        t = np.clip(t, 0, n - 1)
-        t = np.where(v < lo, self.outside_low_index, t)
-        t = np.where(v > hi, self.outside_high_index, t)
-        t = np.where(np.isnan(v), self.nodata_index, t)
-        return t.astype(np.uint16)
+        nan = np.isnan(v)
+        np.clip(t, 0, n - 1, out=t)
+        t[nan] = 0                      # replaced below; keeps the cast defined
+        idx = t.astype(np.uint16)
+        idx[v < lo] = self.outside_low_index
+        idx[v > hi] = self.outside_high_index
+        idx[nan] = self.nodata_index
+        return idx
 
     def rgba8_table(self, nodata_alpha: int = 255) -> np.ndarray:
         """Packed colours (n + 3,) uint32, little-endian RGBA: ``np.take(table, index)`` viewed as

@@ -316,18 +316,53 @@ class RasterSource:
         if r1 <= r0 or c1 <= c0:
             return out
         win = RioWindow(c0, r0, c1 - c0, r1 - r0)
+        dest = out[r0 - row:r1 - row, c0 - col:c1 - col]
+        nodata = self.nodata
+        numeric = nodata is not None and not (isinstance(nodata, float) and math.isnan(nodata))
         try:
-            data = self._ds.read(self.band, window=win, out_dtype="float32")
-            mask = self._ds.read_masks(self.band, window=win)
+            if dest.flags.c_contiguous:
+                self._ds.read(self.band, window=win, out=dest)
+                data = dest
+            else:
+                data = self._ds.read(self.band, window=win, out_dtype="float32")
+            # the dataset mask is needed unless it is only the nodata value (or nothing), which
+            # the data says itself: NaN is already NaN, a number is compared below; only values
+            # within GDAL's tolerance of the nodata value but not equal to it ask for the mask
+            mask = None
+            if not self._mask_from_data:
+                mask = self._ds.read_masks(self.band, window=win)
+            elif numeric and self._near_nodata(data):
+                mask = self._ds.read_masks(self.band, window=win)
         except RasterioError as exc:
             raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
                               f"{_first_line(exc)}") from None
-        invalid = mask == 0
-        if self.nodata is not None and not (isinstance(self.nodata, float) and math.isnan(self.nodata)):
-            invalid |= data == np.float32(self.nodata)
-        data[invalid] = np.nan
-        out[r0 - row:r1 - row, c0 - col:c1 - col] = data
+        if mask is not None:
+            invalid = mask == 0
+            if numeric:
+                invalid |= data == np.float32(nodata)
+            data[invalid] = np.nan
+        elif numeric:
+            data[data == np.float32(nodata)] = np.nan
+        if data is not dest:
+            dest[...] = data
         return out
+
+    @property
+    def _mask_from_data(self) -> bool:
+        """True when the band's mask is its nodata value alone (or every pixel is valid) and
+        the values survive the float32 read exactly (float32 or small integer bands)."""
+        flags = self._ds.mask_flag_enums[self.band - 1]
+        names = {f.name for f in flags}
+        small = np.dtype(self.dtype) in (np.dtype(t) for t in
+                                          ("float32", "uint8", "int8", "uint16", "int16"))
+        return small and names in ({"nodata"}, {"all_valid"})
+
+    def _near_nodata(self, data: np.ndarray) -> bool:
+        """Any value close to (within 1e-5 relative of) the nodata value but not equal to it."""
+        nd = np.float32(self.nodata)
+        tol = np.float32(max(abs(float(nd)) * 1e-5, 1e-30))
+        near = np.abs(data - nd) <= tol
+        return bool(near.any() and (data[near] != nd).any())
 
     def _centre_in(self, crs: CRS) -> tuple[float, float] | None:
         """The centre of the source's footprint in ``crs``, or None if it cannot be transformed."""

@@ -366,3 +366,41 @@ def test_aligned_grid_fast_path_equals_warp(tmp_path):
     np.testing.assert_array_equal(np.isnan(fast), np.isnan(ref))
     np.testing.assert_array_equal(fast[~np.isnan(fast)], ref[~np.isnan(ref)])
     assert np.isnan(fast[2 + 5, 3 + 7])
+
+
+@pytest.mark.parametrize("case", ["near-nodata", "nan-nodata", "internal-mask", "uint8", "no-nodata"])
+def test_aligned_read_masks_like_gdal(tmp_path, case):
+    """The aligned read skips GDAL's mask band when the data says it all; every case must equal
+    rasterio's masked read (GDAL's own mask: nodata within its float tolerance, internal masks)."""
+    from affine import Affine as _Affine
+
+    rng = np.random.default_rng(5)
+    data = rng.normal(size=(30, 40)).astype("float32") * 100
+    nodata, mask = -9999.0, None
+    data[3, 4] = -9999.0
+    if case == "near-nodata":           # one ulp away: GDAL's tolerance masks it too
+        data[6, 7] = np.nextafter(np.float32(-9999.0), np.float32(0))
+    elif case == "nan-nodata":
+        nodata = float("nan")
+        data[3, 4] = np.nan
+    elif case == "internal-mask":
+        nodata = None
+        mask = np.full(data.shape, 255, np.uint8)
+        mask[10:12, 5:9] = 0
+    elif case == "uint8":
+        data = rng.integers(0, 255, data.shape).astype("uint8")
+        data[3, 4] = 7
+        nodata = 7
+    else:
+        nodata = None
+    src_t = _Affine(30, 0, 500000, 0, -30, 4100000)
+    path = write_raster(tmp_path / "m.tif", data, crs="EPSG:32630", transform=src_t,
+                        nodata=nodata, mask=mask)
+    t = _Affine(30, 0, 500000 - 2 * 30, 0, -30, 4100000 + 1 * 30)   # reaches outside, aligned
+    with RasterSource(path, layer="x") as src:
+        got = src.read("EPSG:32630", t, 44, 33, "bilinear")
+    with rasterio.open(path) as ds:
+        ref = ds.read(1, masked=True).astype("float32").filled(np.nan)
+    want = np.full((33, 44), np.nan, np.float32)
+    want[1:31, 2:42] = ref
+    np.testing.assert_array_equal(got, want)
