@@ -14,6 +14,11 @@ from compose.sources.vector import VectorSource
 __all__ = ["LabelsLayer"]
 
 
+def _short(text: str) -> str:
+    """A label is a name, not a paragraph: cut at MAX_LABEL_CHARS with an ellipsis."""
+    return text if len(text) <= MAX_LABEL_CHARS else text[:MAX_LABEL_CHARS - 1] + "\u2026"
+
+
 class LabelsLayer:
     """Text labels; ``unplaced`` lists the labels that found no free position."""
 
@@ -42,9 +47,7 @@ class LabelsLayer:
                 except (TypeError, ValueError):
                     raise StyleError(f'layer "{spec.name}": priority: attribute \'{o.priority}\' '
                                      f"must hold numbers, got {str(v)[:40]!r}") from None
-            text = str(text)
-            if len(text) > MAX_LABEL_CHARS:          # a label is a name, not a paragraph
-                text = text[:MAX_LABEL_CHARS - 1] + "\u2026"
+            text = _short(str(text))
             if o.along and geom.geom_type in ("LineString", "MultiLineString"):
                 lines.append((geom, text, prio))
                 continue
@@ -62,6 +65,14 @@ class LabelsLayer:
             for geom, text, prio in lines:
                 geoms, best = named.get(text, ([], -np.inf))
                 named[text] = (geoms + [geom], max(best, prio))
+            if o.follow:                             # the pieces a selected name may run along
+                more = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.follow)
+                extra = more.load(canvas.crs)
+                for geom, props in zip(extra.geometries, extra.properties):
+                    text = props.get(o.text)
+                    text = None if text is None else _short(str(text))
+                    if text in named and geom.geom_type in ("LineString", "MultiLineString"):
+                        named[text][0].append(geom)
             lines = [(shapely.line_merge(shapely.union_all(g)), t, p) for t, (g, p) in named.items()]
             from compose.layers.label_placement import BoxGrid
             from compose.layers.labels_along import place_along
@@ -74,7 +85,7 @@ class LabelsLayer:
                 lines, canvas.transform, canvas.width, canvas.height, size_px=px(o.size),
                 font=o.font, weight=o.weight, halo_px=halo_px, spacing_px=px(o.spacing), grid=grid)
         context.label_boxes.extend([lab.box for lab in self.placement.placed]
-                                   + [lab.box for lab in self.along])
+                                   + [box for lab in self.along for box in lab.glyph_boxes])
         self.margin = 0  # labels are placed on the whole canvas and drawn clipped per window
 
     @property

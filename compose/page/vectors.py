@@ -129,14 +129,38 @@ def _labels(ax, layer, transform, z):
             t.set_path_effects([Stroke(linewidth=o.halo.width, foreground=_rgb(o.halo.color))])
             out.append(t)
         out.append(ax.text(col, base, lab.text, color=_rgb(o.color), zorder=z + 0.1, **kw))
-    for lab in getattr(layer, "along", ()):          # labels along lines: turned at their anchor
-        kw = dict(fontsize=o.size, family=o.font, weight=o.weight, ha="left", va="baseline",
-                  alpha=a, rotation=lab.angle, rotation_mode="anchor")
-        if o.halo is not None:
-            t = ax.text(lab.col, lab.row, lab.text, color=_rgb(o.halo.color), zorder=z, **kw)
-            t.set_path_effects([Stroke(linewidth=o.halo.width, foreground=_rgb(o.halo.color))])
-            out.append(t)
-        out.append(ax.text(lab.col, lab.row, lab.text, color=_rgb(o.color), zorder=z + 0.1, **kw))
+    along = list(getattr(layer, "along", ()))
+    if along:
+        out += _along(ax, layer, along, z)
+    return out
+
+
+def _along(ax, layer, along, z):
+    """Labels along lines: the glyph outlines as filled paths, exactly where the raster engine
+    fills them (the halo as the same outlines stroked beneath), plus each name once as real,
+    fully transparent, horizontal text at the label's middle, so text extraction and search find
+    it. (Glyph-by-glyph text at changing angles is split apart by text extractors.)"""
+    from matplotlib.patches import PathPatch
+
+    from compose.layers.labels_along import along_path
+
+    o = layer.options
+    a = float(layer.spec.opacity)
+    out = []
+    path = along_path(along)
+    if path is None:
+        return out
+    if o.halo is not None:
+        out.append(PathPatch(path, facecolor=_rgb(o.halo.color), edgecolor=_rgb(o.halo.color),
+                             lw=o.halo.width, alpha=a, joinstyle="round", zorder=z))
+    out.append(PathPatch(path, facecolor=_rgb(o.color), edgecolor="none", alpha=a, zorder=z + 0.1))
+    for patch in out:
+        ax.add_patch(patch)
+    for lab in along:
+        c = np.mean([g.foot for g in lab.glyphs], axis=0)
+        out.append(ax.text(float(c[0]), float(c[1]), lab.text, fontsize=o.size, family=o.font,
+                           weight=o.weight, ha="center", va="center", alpha=0.0,
+                           color=_rgb(o.color), zorder=z + 0.2))
     return out
 
 

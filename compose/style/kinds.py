@@ -228,7 +228,9 @@ class LabelOptions:
     """Labels from attribute ``text``; larger ``priority`` attribute values are placed first.
     ``size`` and ``offset`` (to the upper right of the point) in points; ``font`` a family
     matplotlib knows; ``weight`` a name or 100-900. ``along``: names of line features follow
-    their line (upright, on a straight stretch) every ``spacing`` points. Every label has a
+    their line glyph by glyph (upright, on a smooth stretch) every ``spacing`` points;
+    ``follow`` (attribute -> accepted values, like ``where``): the pieces of the same table a
+    selected name may run along (default: the selected features themselves). Every label has a
     halo unless ``halo = false``."""
 
     table: str | None = option(string(), None)
@@ -242,6 +244,7 @@ class LabelOptions:
     font: str = option(string(), "DejaVu Sans")
     weight: str | int = option(_weight, "normal")
     along: bool = option(boolean(), False)
+    follow: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
     spacing: float = option(number(gt=0, le=MAX_POINTS), 250.0)
 
 

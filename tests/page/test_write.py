@@ -170,3 +170,71 @@ def test_corner_furniture_keeps_labels_clear(tmp_path):
                 assert not (c0 < b[2] and b[0] < c1 and r0 < b[3] and b[1] < r1)
     finally:
         run_.close()
+
+
+RIVER = """
+[[layer]]
+name   = "brook"
+role   = "overlay"
+kind   = "lines"
+source = "vectors.gpkg"
+table  = "brook"
+stroke = "#1f4f7a"
+width  = 0.8
+
+[[layer]]
+name   = "brook name"
+role   = "overlay"
+kind   = "labels"
+source = "vectors.gpkg"
+table  = "brook"
+text   = "name"
+along  = true
+size   = 8
+color  = "#1f3f6a"
+"""
+
+
+@needs_poppler
+def test_curved_names_land_in_the_pdf_where_the_raster_has_them(tmp_path):
+    """A name set glyph by glyph along a bending brook: pdftotext finds it, and the PDF's
+    glyph ink lands on the raster map's glyph ink."""
+    from tests.output._tiny import NORTH, PIXEL, WEST
+    from tests.sources._files import write_vector
+
+    style = _style(tmp_path, PAGE.replace('grid        = { step = 500 }', ''))
+    path = style.path
+    text = path.read_text()
+    for name in ("relief", "land-growth", "water-growth"):
+        text = text.replace(f'name   = "{name}"', f'name   = "{name}"\nenabled = false')
+    path.write_text(text + textwrap.dedent(RIVER))
+    t = np.radians(np.linspace(160, 20, 120))       # an arch across the map
+    cx, cy, r = WEST + 32 * PIXEL, NORTH - 52 * PIXEL, 26 * PIXEL
+    write_vector(tmp_path / "vectors.gpkg",
+                 [({"type": "LineString", "coordinates": list(zip(cx + r * np.cos(t),
+                                                                  cy + r * np.sin(t)))},
+                   {"name": "Windingbrook"})],
+                 crs="EPSG:32631", properties={"name": "str"}, table="brook")
+    style = load_style(path)
+    result = render_style(style, tmp_path / "out", html=False, check=False)
+    assert "Windingbrook" in subprocess.run(["pdftotext", str(result.outputs["pdf"]), "-"],
+                                            capture_output=True, text=True, check=True).stdout
+    svg = result.outputs["svg"].read_text()
+    assert "Windingbrook" in svg
+    k = 4
+    subprocess.run(["pdftoppm", "-r", str(DPI * k), "-png", "-singlefile",
+                    str(result.outputs["pdf"]), str(tmp_path / "ras")], check=True)
+    from matplotlib.image import imread
+
+    from compose.page.layout import style_canvas
+    page = imread(tmp_path / "ras.png")[..., :3].astype(float) * 255
+    png = imread(result.outputs["png"])[..., :3].astype(float) * 255
+    _, (fx, fy, _fw, _fh) = style_canvas(style)
+    h, w = png.shape[:2]
+    r0, c0 = int(round(fy / 25.4 * DPI * k)), int(round(fx / 25.4 * DPI * k))
+    crop = page[r0:r0 + h * k, c0:c0 + w * k].reshape(h, k, w, k, 3).mean(axis=(1, 3))
+    # the label's blue ink: blue clearly above red in both
+    blue_pdf = (crop[..., 2] - crop[..., 0] > 40)[3:-3, 3:-3]
+    blue_png = (png[..., 2] - png[..., 0] > 40)[3:-3, 3:-3]
+    assert blue_png.sum() > 100
+    assert np.sum(blue_pdf & blue_png) / np.sum(blue_pdf | blue_png) > 0.75
