@@ -7,7 +7,7 @@ import shapely
 
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint
-from compose.layers.label_placement import draw_labels, place_labels
+from compose.layers.label_placement import LabelItem, area_anchor, draw_labels, place_labels
 from compose.limits import MAX_LABEL_CHARS
 from compose.sources.vector import VectorSource
 
@@ -38,7 +38,14 @@ class LabelsLayer:
             text = props.get(o.text)
             if text is None or str(text).strip() == "":
                 continue
-            pt = geom if geom.geom_type == "Point" else shapely.point_on_surface(geom)
+            area = None
+            if geom.geom_type == "Point":
+                pt = geom
+            elif geom.geom_type in ("Polygon", "MultiPolygon"):
+                # the pole of inaccessibility, to a tenth of a pixel
+                pt, area = area_anchor(geom, abs(canvas.transform.a) / 10)
+            else:
+                pt = shapely.point_on_surface(geom)
             prio = 0.0
             if o.priority:
                 v = props.get(o.priority)
@@ -51,7 +58,7 @@ class LabelsLayer:
             if o.along and geom.geom_type in ("LineString", "MultiLineString"):
                 lines.append((geom, text, prio))
                 continue
-            items.append((pt.x, pt.y, text, prio))
+            items.append(LabelItem(pt.x, pt.y, text, -np.inf if np.isnan(prio) else prio, area))
         px = canvas.points_to_pixels
         halo_px = self.halo_px = px(o.halo.width) if o.halo is not None else 0.0
         self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,

@@ -8,6 +8,11 @@ order). Each tries the candidate positions of :data:`POSITIONS` in turn, its tex
 ``offset_px`` from the point (on both axes for the diagonal positions); the first position whose
 box, grown by half the halo width on every side, stays inside the canvas and overlaps no placed
 box wins. A label with no such position is not placed.
+
+Area labels (common practice, no source): an item with an ``area`` (a polygon in CRS units) is
+tried first centred on the area's pole of inaccessibility (the inside point farthest from the
+edge, :func:`area_anchor`, shapely's polylabel), where its box must lie inside the polygon; when
+it does not fit there it falls back to the point positions around that pole.
 """
 from __future__ import annotations
 
@@ -21,7 +26,7 @@ from affine import Affine
 from compose.layers.draw import ANCHORS, TextShape, draw_text_shapes, measure_text, to_pixels
 
 __all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "BoxGrid", "place_labels",
-           "draw_labels"]
+           "draw_labels", "area_anchor"]
 
 #: Candidate positions in order of preference: (name, anchor of the text box at the offset
 #: point, (dx, dy) unit offset in pixels with rows running down).
@@ -46,6 +51,7 @@ class LabelItem:
     y: float
     text: str
     priority: float = 0.0
+    area: object = field(default=None, compare=False, repr=False)   # a shapely polygon, or None
 
 
 @dataclass(frozen=True, slots=True)
@@ -104,6 +110,20 @@ class BoxGrid:
             self.cells.setdefault(key, []).append(box)
 
 
+def area_anchor(geom, tolerance: float):
+    """The pole of inaccessibility of a (multi)polygon -- of its largest part -- within
+    ``tolerance`` CRS units, and that part; for other geometries their representative point and
+    None."""
+    from shapely.ops import polylabel
+
+    if geom.geom_type == "MultiPolygon":
+        geom = max(geom.geoms, key=lambda g: g.area)
+    if geom.geom_type != "Polygon" or geom.is_empty or geom.area <= 0:
+        import shapely
+        return shapely.point_on_surface(geom), None
+    return polylabel(geom, tolerance=max(float(tolerance), 1e-9)), geom
+
+
 def _item(item) -> LabelItem:
     if isinstance(item, LabelItem):
         return item
@@ -139,7 +159,11 @@ def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, h
         found = None
         if item.text.strip():
             shape = measure_text(item.text, float(size_px), font, weight)
-            found = _first_fit(shape, xy[i], offset_px, grow, width, height, grid)
+            if item.area is not None:
+                found = _inside_fit(shape, xy[i], item.area, canvas_transform, grow, width,
+                                    height, grid)
+            if found is None:
+                found = _first_fit(shape, xy[i], offset_px, grow, width, height, grid)
         if found is None:
             unplaced.append(item)
             continue
@@ -149,6 +173,23 @@ def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, h
                                   col, row, box, shape))
     return Placement(tuple(placed), tuple(unplaced), canvas_transform, int(width), int(height),
                      float(halo_px))
+
+
+def _inside_fit(shape: TextShape, point, area, transform: Affine, grow: float, width: int,
+                height: int, grid: BoxGrid):
+    """The box centred on ``point`` (pixels) when it lies inside ``area`` (CRS) and is free."""
+    import shapely
+
+    col, row = float(point[0]), float(point[1])
+    left, bottom = col - shape.width / 2, row + shape.height / 2
+    box = (left - grow, bottom - shape.height - grow, left + shape.width + grow, bottom + grow)
+    if box[0] < 0 or box[1] < 0 or box[2] > width or box[3] > height or grid.hits(box):
+        return None
+    corners = np.array([(box[0], box[1]), (box[2], box[1]), (box[2], box[3]), (box[0], box[3])])
+    xy = np.array([transform @ (c, r) for c, r in corners])
+    if not shapely.contains(area, shapely.Polygon(xy)):
+        return None
+    return "inside", "center", col, row, box
 
 
 def _first_fit(shape: TextShape, point, offset_px: float, grow: float, width: int, height: int,

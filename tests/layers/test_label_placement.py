@@ -136,3 +136,52 @@ def test_no_halo_and_empty():
     assert text.sum() == 0 and halo.sum() == 0
     empty = place([])
     assert empty.placed == () and empty.unplaced == ()
+
+
+# --- area labels: centred at the pole of inaccessibility --------------------------------------
+
+def _u_shape():
+    """A U in canvas pixels 0..400 (rows down): two 90 px arms joined by a 90 px base at the
+    bottom; the centroid lies in the notch, outside the polygon."""
+    import shapely
+    px = [(20, 20), (110, 20), (110, 290), (290, 290), (290, 20), (380, 20), (380, 380),
+          (20, 380)]
+    return shapely.Polygon([T @ p for p in px])
+
+
+def test_area_label_sits_inside_a_concave_polygon():
+    import shapely
+
+    from compose.layers.label_placement import area_anchor
+
+    u = _u_shape()
+    assert not u.contains(u.centroid)                   # the reason for the pole
+    pole, part = area_anchor(u, tolerance=1.0)
+    assert part is not None and u.contains(pole)
+    # the pole is the inside point farthest from the edge: as far as the widest inner circle
+    # (the bottom corners of the U: 90 px half-way in), checked against a brute-force grid
+    grid = [shapely.Point(T @ (c, r)) for c in range(20, 381, 5) for r in range(20, 381, 5)]
+    best = max(u.exterior.distance(p) for p in grid if u.contains(p))
+    assert u.exterior.distance(pole) >= best - 10.0      # within one grid step (5 px = 50 m)
+    p = place([LabelItem(pole.x, pole.y, "Lake name", 1.0, part)], width=400, height=400,
+              offset_px=OFFSET)
+    (lab,) = p.placed
+    assert lab.position == "inside"
+    c0, r0, c1, r1 = lab.box
+    box = shapely.Polygon([T @ (c0, r0), T @ (c1, r0), T @ (c1, r1), T @ (c0, r1)])
+    assert u.contains(box)
+    # centred on the pole
+    pc, pr = ~T @ (pole.x, pole.y)
+    assert (c0 + c1) / 2 == pytest.approx(pc, abs=0.5)
+    assert (r0 + r1) / 2 == pytest.approx(pr, abs=0.5)
+
+
+def test_area_label_too_big_for_its_area_falls_back_beside_the_pole():
+    import shapely
+
+    from compose.layers.label_placement import area_anchor
+
+    small = shapely.Polygon([T @ p for p in [(90, 40), (110, 40), (110, 60), (90, 60)]])
+    pole, part = area_anchor(small, 0.5)
+    p = place([LabelItem(pole.x, pole.y, "A long name", 1.0, part)], offset_px=OFFSET)
+    assert p.placed and p.placed[0].position != "inside"
