@@ -202,11 +202,12 @@ class _Page:
                                       rotation=90, rotation_mode="anchor")
 
 
-def page_figure(style, layout: PageLayout, image: np.ndarray, *, layers=(),
+def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(),
                 legend_layout=None):
     """The page as a matplotlib Figure.
 
-    image: (H, W, 3) uint8 of the canvas drawn in the frame; layers: prepared overlay layers
+    image: (H, W, 3) uint8 of the canvas drawn in the frame, or None to leave the frame empty
+    (the page PNG pastes the map in afterwards); layers: prepared overlay layers
     (``RenderRun.layers``) re-emitted as vectors on top of it (empty for the PNG, whose image
     already holds them); legend_layout: from :func:`compose.output.legend.legend_layout` at the
     page's legend width, or None.
@@ -224,8 +225,9 @@ def page_figure(style, layout: PageLayout, image: np.ndarray, *, layers=(),
     ma.set_xlim(0, canvas.width)
     ma.set_ylim(canvas.height, 0)
     ma.set_autoscale_on(False)
-    ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
-              resample=False, aspect="auto", zorder=0)
+    if image is not None:
+        ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
+                  resample=False, aspect="auto", zorder=0)
     clip = Rectangle((0, 0), canvas.width, canvas.height, transform=ma.transData)
     for i, layer in enumerate(layers):
         for artist in emit_layer(ma, layer, canvas.transform, 1.0 + i):

@@ -16,7 +16,8 @@ import numpy as np
 from compose.page.layout import PageLayout, blocked_pixels, page_layout
 from compose.page.vectors import is_vector
 
-__all__ = ["PageSink", "vector_split", "legend_for_page", "write_page", "world_file_text",
+__all__ = ["PageSink", "vector_split", "legend_for_page", "write_page", "page_png",
+           "write_page_png", "world_file_text",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
 #: matplotlib settings of the vector writers: text stays text.
@@ -104,7 +105,9 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     seconds = {}
     meta_title = layout.title or style.name
     vectors = run_.layers[sink.below:]
-    with rc_context(RC):
+    from compose.page.encode import fast_png
+
+    with rc_context(RC), fast_png():
         t = time.perf_counter()
         fig = page_figure(style, layout, sink.base, layers=vectors, legend_layout=legend)
         fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
@@ -116,10 +119,46 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                     metadata={"Title": meta_title, "Description": style.page.caution})
         seconds["svg"] = time.perf_counter() - t
         t = time.perf_counter()
-        fig = page_figure(style, layout, sink.image, legend_layout=legend)
-        fig.savefig(tmp["page"], format="png", dpi=run_.canvas.dpi, facecolor=fig.get_facecolor())
+        write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi)
         seconds["page.png"] = time.perf_counter() - t
     return seconds, layout
+
+
+def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -> np.ndarray:
+    """The page as (H, W, 3) uint8 at ``dpi``: the furniture drawn by Agg on a transparent
+    page, laid over the paper with the finished map pasted pixel for pixel into the frame (the
+    frame is the canvas at this dpi; its corner lands on the nearest whole page pixel)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from compose.page.draw import page_figure
+
+    fig = page_figure(style, layout, None, legend_layout=legend)
+    paper = fig.get_facecolor()
+    fig.patch.set_alpha(0.0)
+    fig.set_dpi(dpi)
+    agg = FigureCanvasAgg(fig)
+    agg.draw()
+    top = np.asarray(agg.buffer_rgba())
+    H, W = top.shape[:2]
+    under = np.empty((H, W, 3), np.uint8)
+    under[:] = np.round(np.array(paper[:3]) * 255).astype(np.uint8)
+    fx, fy = layout.frame[0], layout.frame[1]
+    c0, r0 = int(round(fx / 25.4 * dpi)), int(round(fy / 25.4 * dpi))
+    h = max(0, min(image.shape[0], H - r0))
+    w = max(0, min(image.shape[1], W - c0))
+    under[r0:r0 + h, c0:c0 + w] = image[:h, :w]
+    # straight alpha over: out = top a + under (1 - a), in integers rounded to nearest
+    a = top[..., 3:4].astype(np.uint16)
+    out = (top[..., :3].astype(np.uint16) * a + under.astype(np.uint16) * (255 - a) + 127) // 255
+    return out.astype(np.uint8)
+
+
+def write_page_png(path: Path, style, layout: PageLayout, image: np.ndarray, legend,
+                   dpi: float) -> None:
+    """Write :func:`page_png` as a PNG at ``path`` (with its dpi)."""
+    from compose.output.png import write_png
+
+    write_png(path, page_png(style, layout, image, legend, dpi), dpi=dpi)
 
 
 def world_file_text(canvas) -> str:
