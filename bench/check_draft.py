@@ -22,9 +22,9 @@ from compose.style import load_style
 STYLES = Path(__file__).resolve().parents[1] / "styles"
 
 
-def timed_check(style, canvas):
+def timed_check(style, canvas, draft=False):
     t = time.perf_counter()
-    prepared = prepare(style, canvas=canvas)
+    prepared = prepare(style, canvas=canvas, draft=draft)
     try:
         report = check_style(style, run(prepared, []), prepared.ramps)
     finally:
@@ -48,7 +48,7 @@ def main() -> None:
         for _ in range(a.runs):
             t, rf = timed_check(style, full)
             tf.append(t)
-            t, rd = timed_check(style, draft)
+            t, rd = timed_check(style, draft, draft=True)
             td.append(t)
         mf, md = statistics.median(tf), statistics.median(td)
         agree = rf.passed == rd.passed and {r.rule for r in rf.failures} == {r.rule for r in rd.failures}

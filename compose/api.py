@@ -73,7 +73,8 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     style = _style(style)
     full = style.canvas()
     canvas = draft_canvas(full) if draft else None
-    prepared = prepare(style, canvas=canvas, keep_clear=blocked_for)   # labels as in a render
+    prepared = prepare(style, canvas=canvas, keep_clear=blocked_for,    # labels as in a render
+                       draft=canvas is not None and canvas is not full)
     try:
         stats = run(prepared, [], progress=progress, mapper=mapper)
         return check_style(style, stats, prepared.ramps,

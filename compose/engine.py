@@ -63,6 +63,7 @@ class Prepared:
     stack: contextlib.ExitStack
     template: Statistics
     seconds: dict[str, float] = field(default_factory=dict)
+    draft: bool = False
 
     @property
     def margin(self) -> int:
@@ -87,8 +88,8 @@ RenderRun = Prepared
 
 
 def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
-            keep_clear: Callable[..., Iterable[tuple[float, float, float, float]]] | None = None
-            ) -> Prepared:
+            keep_clear: Callable[..., Iterable[tuple[float, float, float, float]]] | None = None,
+            draft: bool = False) -> Prepared:
     """Resolve the canvas, build ramps and open every enabled layer's sources.
 
     ``canvas`` overrides the style's own (e.g. a small preview of the same extent, see
@@ -96,6 +97,8 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     boxes labels keep clear of (e.g. page furniture inside the map frame,
     :func:`compose.page.write.blocked_for`); called once, with the layers prepared so far and
     stand-ins holding just the ``spec`` of the rest, before the labels layers are prepared.
+    ``draft``: a reduced check's render (rasters read by GDAL's decimated reads, see
+    :class:`compose.sources.raster.RasterSource`).
     """
     from compose.ramps import build_ramps
 
@@ -104,7 +107,7 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     if ramps is None:   # only the ramps the enabled layers draw (and their twin groups)
         used = {getattr(spec.options, "ramp", None) for spec in style.layers if spec.enabled}
         ramps = build_ramps(style.ramps, only={u for u in used if isinstance(u, str)})
-    ctx = Context(canvas=canvas, ramps=ramps, style=style)
+    ctx = Context(canvas=canvas, ramps=ramps, style=style, draft=draft)
     stack = contextlib.ExitStack()
     specs = [spec for spec in style.layers if spec.enabled]
     layers: list = [None] * len(specs)
@@ -128,7 +131,7 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
         raise
     template = new_statistics(layers, canvas.width, canvas.height, tuple(style.map.background))
     prepared = Prepared(style=style, canvas=canvas, ramps=ramps, layers=layers, stack=stack,
-                        template=template)
+                        template=template, draft=draft)
     prepared.seconds["prepare"] = time.perf_counter() - t0
     return prepared
 

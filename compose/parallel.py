@@ -124,13 +124,13 @@ def _prepared(key: str, payload: bytes):
         for old in cache.values():      # one walk at a time per worker thread
             old.close()
         cache.clear()
-        style, canvas = unpack(payload)
-        cache[key] = prepare(style, canvas=canvas)
+        style, canvas, draft = unpack(payload)
+        cache[key] = prepare(style, canvas=canvas, draft=draft)
     return cache[key]
 
 
 def window_task(key: str, payload: bytes, window, options: dict) -> bytes:
-    """Render one window where this runs: ``payload`` is the packed (style, canvas) of the walk
+    """Render one window where this runs: ``payload`` is the packed (style, canvas, draft) of the walk
     ``key`` (prepared once per worker thread); returns the packed WindowResult."""
     from compose.engine import render_window
 
@@ -152,7 +152,7 @@ def _pool_task(window, options: dict) -> bytes:
 
 def _walk_payload(task) -> tuple[str, bytes]:
     prepared = task.prepared
-    return uuid.uuid4().hex, pack((prepared.style, prepared.canvas))
+    return uuid.uuid4().hex, pack((prepared.style, prepared.canvas, prepared.draft))
 
 
 # --- mappers ----------------------------------------------------------------------------------

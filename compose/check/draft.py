@@ -1,13 +1,19 @@
 """The draft check: the same rules on a reduced canvas of the same extent.
 
-The canvas keeps its extent and its dpi and takes a coarser pixel, so the longer side has at most
-:data:`DRAFT_SIDE` pixels. Keeping the dpi keeps strokes, halos and labels as wide in pixels as in
-the full render (a 0.5 pt line stays one drawn line on its halo instead of dissolving into
-sub-pixel blends), which is what the contrast rules judge; everything measured by share or
-percentile (ground, themes, grey order, relief) is a sample of the same map. Its verdict agreed
-with the full check's on every example style (tests/check/test_draft.py).
+The canvas keeps its extent and its dpi and takes a pixel a whole number of times coarser (4 at
+the demo's 1500 x 1500), so the longer side has at most :data:`DRAFT_SIDE` pixels and every draft
+pixel is a block of whole canvas pixels: sources on the canvas's grid are read with GDAL's
+decimated reads (block averages, from overviews where a file has them) instead of at full
+resolution (:class:`compose.sources.raster.RasterSource`, ``decimate``). Keeping the dpi keeps
+strokes, halos and labels as wide in pixels as in the full render (a 0.5 pt line stays one drawn
+line on its halo instead of dissolving into sub-pixel blends), which is what the contrast rules
+judge; everything measured by share or percentile (ground, themes, grey order, relief) is a
+sample of the same map. Its verdict agrees with the full check's on every example style, rule by
+rule (tests/check/test_draft.py).
 """
 from __future__ import annotations
+
+import math
 
 from compose.canvas import Canvas
 
@@ -17,9 +23,9 @@ DRAFT_SIDE = 384
 
 
 def draft_canvas(canvas: Canvas, side: int = DRAFT_SIDE) -> Canvas:
-    """``canvas`` at a coarser pixel so its longer side is at most ``side`` pixels, same extent and
-    dpi (the canvas itself when it is already that small)."""
-    factor = max(canvas.width, canvas.height) / float(side)
+    """``canvas`` at a pixel a whole number of times coarser so its longer side is at most ``side``
+    pixels, same extent and dpi (the canvas itself when it is already that small)."""
+    factor = math.ceil(max(canvas.width, canvas.height) / float(side))
     if factor <= 1:
         return canvas
     return Canvas.from_extent(canvas.crs, canvas.bounds, canvas.pixel * factor, dpi=canvas.dpi)

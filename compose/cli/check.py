@@ -69,8 +69,9 @@ def explain(rule: str) -> str:
               help="Print the report as JSON (the same object render writes as NAME.check.json).")
 @click.option("--strict", is_flag=True, help="Warnings fail too (exit 1).")
 @click.option("--draft", is_flag=True,
-              help="Check a reduced canvas of the same extent (longer side 384 px, same dpi): "
-                   "much faster on large maps, the same verdict on the example styles.")
+              help="Check a reduced canvas of the same extent (longer side at most 384 px, same "
+                   "dpi; rasters read decimated): much faster on large maps, the same verdict on "
+                   "the example styles.")
 @click.option("--rules", "list_rules", is_flag=True,
               help="List the rules: id, what each measures, its limit and budget key, its source.")
 @click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")

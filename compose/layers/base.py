@@ -80,6 +80,9 @@ class Context:
     #: boxes of the labels placed so far by earlier label layers (each adds its own), so labels
     #: of different layers keep clear of each other too
     label_boxes: list = field(default_factory=list)
+    #: a draft (the reduced check, :mod:`compose.check.draft`): rasters may be read with GDAL's
+    #: decimated (block-averaged) reads instead of the exact path
+    draft: bool = False
 
 
 class LayerKind(Protocol):

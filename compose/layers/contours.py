@@ -70,7 +70,7 @@ class ContoursLayer:
         self.spec = spec
         self.options = o = spec.options
         self.canvas = context.canvas
-        self.source = open_raster(spec, self.canvas)
+        self.source = open_raster(spec, self.canvas, decimate=context.draft)
         px = self.canvas.points_to_pixels
         reach = max(px(o.width), px(o.index_width) if o.index else 0.0)
         if o.halo is not None:

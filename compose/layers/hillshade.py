@@ -194,48 +194,62 @@ def multidirectional(dem: np.ndarray, dx, dy, azimuth: float = 315.0, altitude: 
     dem = np.asarray(dem)
     dxv, dyv = _cell_sizes(dem, dx, dy)
     st = _Strips(dem, dxv, dyv)
-    alt = math.radians(altitude)
-    sin_alt, cos_alt = np.float32(math.sin(alt)), math.cos(alt)
-    az, weights = _azimuths(azimuth, directions)
-    keep = weights > 1e-12
-    az, weights = az[keep], weights[keep] / weights[keep].sum()
-    # n . s with n = (-p, -q, 1)/sqrt(1 + p^2 + q^2), s = (sin az cos alt, cos az cos alt, sin alt)
-    cx = [np.float32(-exaggeration * cos_alt * math.sin(a)) for a in az]
-    cy = [np.float32(-exaggeration * cos_alt * math.cos(a)) for a in az]
-    k2 = np.float32(exaggeration * exaggeration)
+    light = _Light(azimuth, altitude, exaggeration, directions)
     out = np.empty(dem.shape, np.float32)
-    n = min(STRIP_ROWS, st.h)
-    den, num, tmp = (np.empty((n, st.w), np.float32) for _ in range(3))
-    acc = np.empty((n, st.w), np.float32) if len(az) > 1 else None
+    bufs = light.buffers(min(STRIP_ROWS, st.h), st.w)
     for r0 in range(0, st.h, STRIP_ROWS):
         r1 = min(r0 + STRIP_ROWS, st.h)
-        m = r1 - r0
         p, q = st.gradient(r0, r1)
+        light.shade(p, q, bufs, out[r0:r1])
+    return out
+
+
+class _Light:
+    """The suns of :func:`multidirectional` and the shading of gradient rows under them."""
+
+    def __init__(self, azimuth: float, altitude: float, exaggeration: float, directions: int):
+        alt = math.radians(altitude)
+        self.sin_alt, cos_alt = np.float32(math.sin(alt)), math.cos(alt)
+        az, weights = _azimuths(azimuth, directions)
+        keep = weights > 1e-12
+        az, self.weights = az[keep], weights[keep] / weights[keep].sum()
+        # n . s with n = (-p, -q, 1)/sqrt(1 + p^2 + q^2), s = (sin az cos alt, cos az cos alt, sin alt)
+        self.cx = [np.float32(-exaggeration * cos_alt * math.sin(a)) for a in az]
+        self.cy = [np.float32(-exaggeration * cos_alt * math.cos(a)) for a in az]
+        self.k2 = np.float32(exaggeration * exaggeration)
+
+    def buffers(self, rows: int, width: int) -> tuple:
+        den, num, tmp = (np.empty((rows, width), np.float32) for _ in range(3))
+        acc = np.empty((rows, width), np.float32) if len(self.cx) > 1 else None
+        return den, num, tmp, acc
+
+    def shade(self, p: np.ndarray, q: np.ndarray, bufs: tuple, dst: np.ndarray) -> None:
+        """Shade of gradient rows ``p``, ``q`` (m rows) into ``dst`` (m rows), float32."""
+        den, num, tmp, acc = bufs
+        m = p.shape[0]
         d, u, t = den[:m], num[:m], tmp[:m]
         np.multiply(p, p, out=d)
         np.multiply(q, q, out=t)
         d += t
-        d *= k2
+        d *= self.k2
         d += 1.0
         np.sqrt(d, out=d)
-        for i in range(len(az)):
-            np.multiply(p, cx[i], out=u)
-            u += sin_alt
-            np.multiply(q, cy[i], out=t)
+        for i in range(len(self.cx)):
+            np.multiply(p, self.cx[i], out=u)
+            u += self.sin_alt
+            np.multiply(q, self.cy[i], out=t)
             u += t
             np.maximum(u, 0.0, out=u)
             if acc is None:
                 continue
             if i == 0:
-                np.multiply(u, np.float32(weights[0]), out=acc[:m])
+                np.multiply(u, np.float32(self.weights[0]), out=acc[:m])
             else:
-                u *= np.float32(weights[i])
+                u *= np.float32(self.weights[i])
                 acc[:m] += u
         res = u if acc is None else acc[:m]
-        dst = out[r0:r1]
         np.divide(res, d, out=dst)
         np.minimum(dst, 1.0, out=dst)   # n.s <= 1; guards rounding only
-    return out
 
 
 def hillshade(dem: np.ndarray, dx, dy, azimuth: float = 315.0, altitude: float = 45.0,
@@ -268,10 +282,21 @@ def shade_spread(samples, azimuth: float = 315.0, altitude: float = 45.0,
     """The ``q`` th percentile of |shade - sin(altitude)| (0-1) over DEM ``samples``, a list of
     (dem, dx, dy) as for :func:`multidirectional`: how far the terrain moves the shade from flat
     ground's. NaN when no sample has a valid cell."""
+    return _spread([horn_gradient(np.asarray(dem), dx, dy) for dem, dx, dy in samples],
+                   azimuth, altitude, exaggeration, directions, q)
+
+
+def _spread(gradients, azimuth: float, altitude: float, exaggeration: float, directions: int,
+            q: float = 95.0) -> float:
+    """:func:`shade_spread` of samples given by their Horn gradients (p, q): the shade depends
+    on the exaggeration only through the suns' coefficients, so the gradients are computed once
+    for every factor tried (the same float32 arithmetic as :func:`multidirectional`)."""
     flat = math.sin(math.radians(altitude))
+    light = _Light(azimuth, altitude, exaggeration, int(directions))
     devs = []
-    for dem, dx, dy in samples:
-        s = multidirectional(dem, dx, dy, azimuth, altitude, exaggeration, directions)
+    for p, g in gradients:
+        s = np.empty(p.shape, np.float32)
+        light.shade(p, g, light.buffers(*p.shape), s)
         d = np.abs(s[np.isfinite(s)] - np.float32(flat))
         if d.size:
             devs.append(d)
@@ -290,8 +315,10 @@ def stretch_factor(samples, azimuth: float = 315.0, altitude: float = 45.0, dire
     that already reaches the target is left as Horn's shading draws it (factor 1). A DEM with no
     slope at all gets 1 (there is nothing to show, only noise to amplify); ``limit`` caps it.
     """
+    gradients = [horn_gradient(np.asarray(dem), dx, dy) for dem, dx, dy in samples]
+
     def spread(k: float) -> float:
-        return shade_spread(samples, azimuth, altitude, k, directions)
+        return _spread(gradients, azimuth, altitude, k, directions)
 
     at_one = spread(1.0)
     if not at_one < target:         # already visible (or nothing valid: NaN)

@@ -11,9 +11,10 @@ from compose.sources.raster import RasterSource
 __all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster"]
 
 
-def open_raster(spec, canvas) -> RasterSource:
-    """Open a raster layer's source (its ``band``) and check it overlaps the canvas."""
-    source = RasterSource(spec.source, spec.options.band, layer=spec.name)
+def open_raster(spec, canvas, *, decimate: bool = False) -> RasterSource:
+    """Open a raster layer's source (its ``band``) and check it overlaps the canvas
+    (``decimate``: a draft's faster reads, see :class:`RasterSource`)."""
+    source = RasterSource(spec.source, spec.options.band, layer=spec.name, decimate=decimate)
     try:
         source.check_overlap(canvas)
     except BaseException:
@@ -48,7 +49,7 @@ class FieldLayer:
             raise StyleError(f'layer "{spec.name}": unknown ramp \'{o.ramp}\'; ramps: '
                              + ", ".join(sorted(context.ramps)))
         self.ramp = context.ramps[o.ramp]
-        self.source = open_raster(spec, self.canvas)
+        self.source = open_raster(spec, self.canvas, decimate=context.draft)
         self.lut = self._lut()
         nodata = getattr(o, "nodata", None)
         self.transparent_nodata = isinstance(nodata, str) and nodata == "transparent"

@@ -39,7 +39,7 @@ class ReliefLayer:
         o = spec.options
         self.options = o
         self.canvas = context.canvas
-        self.source = open_raster(spec, self.canvas)
+        self.source = open_raster(spec, self.canvas, decimate=context.draft)
         # the style fills ``shadow`` from the tint when it is not given (compose.ramps.relief.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
         self.stretch = self._stretch() if o.stretch == "auto" else 1.0
