@@ -6,9 +6,12 @@ addition). A *mapper* decides where the tasks run; both here keep a bounded numb
 flight and hand results back in order, so memory stays bounded and outputs are byte-identical
 to a one-worker render:
 
-- :class:`ProcessMapper` -- ``N`` worker processes of this machine (Agg drawing holds Python's
-  GIL, so threads would not share the work). Each worker prepares the render once from the
-  pickled style, then renders the windows it is given.
+- :class:`ThreadMapper` -- ``N`` threads of this process sharing the prepared render (the
+  default of ``--workers``): numpy, GDAL and the encoders release Python's GIL, Agg's line
+  drawing holds it, so one thread draws lines while the other does pixel work.
+- :class:`ProcessMapper` -- ``N`` worker processes of this machine. Each worker prepares the
+  render once from the pickled style, then renders the windows it is given (every process
+  pays the start-up and the preparation, and holds its own copy).
 - :class:`ClusterMapper` -- a dask.distributed scheduler (``pip install compose-maps[cluster]``).
   The style is sent to the workers once; each worker thread prepares its own render the first
   time it gets a window of this walk and reads the sources itself, from the same paths or URLs:
@@ -32,7 +35,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["ProcessMapper", "ClusterMapper", "mapper_for", "pack", "unpack", "ordered",
+__all__ = ["ThreadMapper", "ProcessMapper", "ClusterMapper", "mapper_for", "pack", "unpack", "ordered",
            "default_workers", "window_task", "AUTO_PIXELS", "AUTO_WORKERS"]
 
 #: Canvases from this many pixels up use every core when no worker count is given (below it,
@@ -157,6 +160,27 @@ def _walk_payload(task) -> tuple[str, bytes]:
 
 # --- mappers ----------------------------------------------------------------------------------
 
+class ThreadMapper:
+    """Run window tasks on ``workers`` threads of this process (``mapper(task, windows)``).
+
+    The threads share the prepared render (nothing to start or prepare again): numpy, GDAL's
+    reads and the encoders release Python's GIL, Agg's line drawing does not, so threads share
+    the pixel work while one of them draws. Raster sources read through a GDAL handle per
+    thread (:class:`compose.sources.raster.RasterSource`). ``in_flight``: windows submitted and
+    not yet handed back (default 2 per thread).
+    """
+
+    def __init__(self, workers: int, in_flight: int | None = None):
+        self.workers = max(1, int(workers))
+        self.in_flight = in_flight or 2 * self.workers
+
+    def __call__(self, task, windows: Iterable) -> Iterator:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(self.workers, thread_name_prefix="compose-window") as pool:
+            yield from ordered(lambda w: pool.submit(task, w), windows, self.in_flight)
+
+
 class ProcessMapper:
     """Run window tasks on ``workers`` processes of this machine (``mapper(task, windows)``).
 
@@ -237,11 +261,13 @@ class ClusterMapper:
 
 def mapper_for(pixels: int, workers: int | None = None, cluster=None):
     """The mapper for a render of ``pixels`` pixels: a :class:`ClusterMapper` for ``cluster``;
-    else a :class:`ProcessMapper` for ``workers`` > 1 (None: every core up to
+    else a :class:`ThreadMapper` for ``workers`` > 1 (None: every core up to
     :data:`AUTO_WORKERS`, for canvases of at least :data:`AUTO_PIXELS`); None (this thread)
-    otherwise."""
+    otherwise. Threads, not processes: they share the prepared render (no second start-up and
+    preparation, one copy in memory) and on the 2-core benchmark machine 2 worker processes
+    were slower than one (bench/render.py prints both)."""
     if cluster:
         return ClusterMapper(cluster)
-    if workers is None:     # every core, up to AUTO_WORKERS (each worker holds its own render)
+    if workers is None:     # every core, up to AUTO_WORKERS
         workers = min(default_workers(), AUTO_WORKERS) if pixels >= AUTO_PIXELS else 1
-    return ProcessMapper(workers) if workers > 1 else None
+    return ThreadMapper(workers) if workers > 1 else None

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from compose.engine import prepare, render_window
-from compose.parallel import ClusterMapper, ProcessMapper, ordered, pack, unpack
+from compose.parallel import ClusterMapper, ProcessMapper, ThreadMapper, ordered, pack, unpack
 from compose.render import render_style
 from compose.style import load_style
 from tests.test_engine import tiny_region  # noqa: F401  (fixture)
@@ -109,6 +109,35 @@ def test_two_worker_processes_give_the_same_bytes_and_statistics(tiny_region, tm
     _stats_equal(stats_one, stats_two)
 
 
+def test_two_worker_threads_give_the_same_bytes_and_statistics(tiny_region, tmp_path):
+    style = load_style(tiny_region)
+    one, stats_one = _render(style, tmp_path / "one", None)
+    two, stats_two = _render(style, tmp_path / "two", ThreadMapper(2, in_flight=3))
+    assert one["png"] == two["png"] and one["tif"] == two["tif"]
+    _stats_equal(stats_one, stats_two)
+
+
+def test_raster_sources_read_through_a_handle_per_thread(tiny_region):
+    """Window tasks on other threads never touch the GDAL dataset of the thread that opened it."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    prepared = prepare(load_style(tiny_region))
+    try:
+        windows = prepared.windows(WINDOW)
+        here = [render_window(prepared, w).rgb8 for w in windows]
+        with ThreadPoolExecutor(2) as pool:
+            there = list(pool.map(lambda w: render_window(prepared, w).rgb8, windows))
+        for a, b in zip(here, there, strict=True):
+            np.testing.assert_array_equal(a, b)
+        sources = [la.source for la in prepared.layers if hasattr(la.source, "_others")]
+        assert sources and all(1 <= len(s._others) <= 2 for s in sources)
+        own = {id(s._ds) for s in sources}
+        assert not own & {id(h[0]) for s in sources for h in s._others}
+    finally:
+        prepared.close()
+    assert all(not s._others for s in sources)      # closed with the render
+
+
 def test_local_cluster_gives_the_same_bytes_and_statistics(tiny_region, tmp_path):
     distributed = pytest.importorskip("distributed")
     style = load_style(tiny_region)
@@ -129,6 +158,7 @@ def test_mapper_choice():
     assert mapper_for(AUTO_PIXELS - 1) is None                    # small maps: this thread
     assert mapper_for(10, workers=1) is None
     assert mapper_for(10, workers=3).workers == 3                  # asked for: honoured
+    assert isinstance(mapper_for(10, workers=2), ThreadMapper)
     auto = mapper_for(AUTO_PIXELS)
     assert auto is None or 2 <= auto.workers <= 8
     assert isinstance(mapper_for(10, cluster="tcp://127.0.0.1:1"), ClusterMapper)

@@ -40,7 +40,7 @@ class Palette:
         """(h, w) uint16 indices -> (3, h, w) float32 colour planes."""
         out = np.empty((3,) + index.shape, dtype=np.float32)
         for c in range(3):
-            np.take(self.planes[c], index, out=out[c])
+            np.take(self.planes[c], index, out=out[c], mode="clip")   # unbuffered
         return out
 
 

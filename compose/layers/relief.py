@@ -67,7 +67,10 @@ class ReliefLayer:
         shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
                                  exaggeration=self.exaggeration, directions=o.directions)
         valid = np.isfinite(shade)
-        index = np.where(valid, np.rint(np.nan_to_num(shade) * (LEVELS - 1)), LEVELS).astype(np.uint16)
+        shade *= np.float32(LEVELS - 1)          # in place: the shade is ours
+        np.rint(shade, out=shade)
+        shade[~valid] = LEVELS                   # the no-data entry
+        index = shade.astype(np.uint16)
         alpha = valid.astype(np.float32)
         return [Paint("shade", alpha, index=index, palette=self.palette)]
 

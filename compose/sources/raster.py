@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import math
 import os
+import threading
 import warnings
 from pathlib import Path
 
@@ -166,12 +167,35 @@ class RasterSource:
         self._warp_band = 1 if self._view is not None else self.band
         self._scales: dict[tuple, tuple[float, float] | None] = {}
         self._reduced: dict[tuple[int, int], np.ndarray] = {}     # (fy, fx) -> reduced band
+        # what the reads ask of the file, looked up once (GDAL calls, not from other threads)
+        self._meta = {"crs": ds.crs, "nodata": ds.nodatavals[self.band - 1],
+                      "dtype": ds.dtypes[self.band - 1], "transform": ds.transform,
+                      "flags": {f.name for f in ds.mask_flag_enums[self.band - 1]}}
+        # GDAL datasets are not shared between threads: other threads read through handles
+        # of their own, opened on first use (window tasks on threads, compose.parallel)
+        self._owner = threading.get_ident()
+        self._local = threading.local()
+        self._others: list = []
+        self._lock = threading.Lock()
+
+    def _handles(self):
+        """(dataset, one-band view or None) for reading in the calling thread."""
+        if threading.get_ident() == self._owner:
+            return self._ds, self._view
+        mine = getattr(self._local, "handles", None)
+        if mine is None:
+            ds = rasterio.open(gdal_name(self.path))
+            view = _band_view(self.path, self.band, ds.count) if self._view is not None else None
+            mine = self._local.handles = (ds, view)
+            with self._lock:
+                self._others.append(mine)
+        return mine
 
     # --- what the file is -------------------------------------------------------------------
     @property
     def crs(self) -> CRS:
         """The source's CRS."""
-        return self._ds.crs
+        return self._meta["crs"]
 
     @property
     def bounds(self) -> tuple[float, float, float, float]:
@@ -189,17 +213,17 @@ class RasterSource:
     def read_crs(self) -> CRS:
         """The CRS the source is warped from: its own, or for a geographic grid reaching past
         longitude 180 the same CRS with longitudes wrapped around the grid's centre."""
-        return self._wrap_crs if self._wrap_crs is not None else self._ds.crs
+        return self._wrap_crs if self._wrap_crs is not None else self._meta["crs"]
 
     @property
     def nodata(self) -> float | None:
         """The file's nodata value for the band, or None."""
-        return self._ds.nodatavals[self.band - 1]
+        return self._meta["nodata"]
 
     @property
     def dtype(self) -> str:
         """The band's data type name (numpy spelling), e.g. ``"uint8"``."""
-        return self._ds.dtypes[self.band - 1]
+        return self._meta["dtype"]
 
     @property
     def count(self) -> int:
@@ -209,7 +233,7 @@ class RasterSource:
     @property
     def transform(self) -> Affine:
         """Affine pixel -> source CRS transform."""
-        return self._ds.transform
+        return self._meta["transform"]
 
     # --- geometry checks --------------------------------------------------------------------
     def check_overlap(self, canvas: Canvas) -> None:
@@ -251,7 +275,7 @@ class RasterSource:
             sx, sy = warp_points(CRS.from_user_input(crs), self.read_crs, xs, ys)
         except (RasterioError, ValueError):
             return None
-        inv = ~self._ds.transform
+        inv = ~self._meta["transform"]
         pc = np.array([inv @ p for p in zip(sx, sy)])       # (4, 2) source (col, row)
         dcol, drow = pc[1] - pc[0], pc[3] - pc[2]
         along_x = abs(dcol[0]) + abs(drow[0])
@@ -299,7 +323,8 @@ class RasterSource:
         kwargs: dict[str, object] = {} if nodata is None else {"src_nodata": nodata}
         if self._wrap_crs is not None:
             kwargs["src_crs"] = self._wrap_crs
-        source = self._view if self._view is not None else self._ds
+        ds, view = self._handles()
+        source = view if view is not None else ds
         try:
             with WarpedVRT(source, crs=dst_crs, transform=transform, width=width, height=height,
                            resampling=Resampling[method], tolerance=_TOLERANCE, nodata=np.nan,
@@ -313,7 +338,7 @@ class RasterSource:
     def _aligned_offset(self, crs: CRS, transform: Affine) -> tuple[int, int] | None:
         """(row, col) of the grid's origin in source pixels when the grid is the source's own
         (same CRS, pixel size and orientation, whole-pixel offset), else None."""
-        st = self._ds.transform
+        st = self._meta["transform"]
         if not (crs == self.crs):
             return None
         px = max(abs(st.a), abs(st.e))
@@ -338,20 +363,19 @@ class RasterSource:
         dest = out[r0 - row:r1 - row, c0 - col:c1 - col]
         nodata = self.nodata
         numeric = nodata is not None and not (isinstance(nodata, float) and math.isnan(nodata))
+        ds = self._handles()[0]
         try:
             if dest.flags.c_contiguous:
-                self._ds.read(self.band, window=win, out=dest)
+                ds.read(self.band, window=win, out=dest)
                 data = dest
             else:
-                data = self._ds.read(self.band, window=win, out_dtype="float32")
+                data = ds.read(self.band, window=win, out_dtype="float32")
             # the dataset mask is needed unless it is only the nodata value (or nothing), which
             # the data says itself: NaN is already NaN, a number is compared below; only values
             # within GDAL's tolerance of the nodata value but not equal to it ask for the mask
             mask = None
-            if not self._mask_from_data:
-                mask = self._ds.read_masks(self.band, window=win)
-            elif numeric and self._near_nodata(data):
-                mask = self._ds.read_masks(self.band, window=win)
+            if not self._mask_from_data or (numeric and self._near_nodata(data)):
+                mask = ds.read_masks(self.band, window=win)
         except RasterioError as exc:
             raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
                               f"{_first_line(exc)}") from None
@@ -370,8 +394,7 @@ class RasterSource:
     def _mask_from_data(self) -> bool:
         """True when the band's mask is its nodata value alone (or every pixel is valid) and
         the values survive the float32 read exactly (float32 or small integer bands)."""
-        flags = self._ds.mask_flag_enums[self.band - 1]
-        names = {f.name for f in flags}
+        names = self._meta["flags"]
         small = np.dtype(self.dtype) in (np.dtype(t) for t in
                                           ("float32", "uint8", "int8", "uint16", "int16"))
         return small and names in ({"nodata"}, {"all_valid"})
@@ -422,7 +445,7 @@ class RasterSource:
                               self.crs, min(self.res))
         if grid is None or not grid.covers(row0, col0, height, width):
             return None
-        inv = ~self._ds.transform
+        inv = ~self._meta["transform"]
         key = (id(grid), canvas.width, canvas.height)
         scale = self._scales.get(key)
         if scale is None:
@@ -470,7 +493,7 @@ class RasterSource:
 
     def _decimated(self, r0: int, c0: int, h: int, w: int, fy: int, fx: int) -> np.ndarray:
         """Reduced cells r0..r0+h, c0..c0+w (inside the source) from one GDAL read."""
-        ds = self._ds
+        ds = self._handles()[0]
         sr0, sr1 = r0 * fy, min((r0 + h) * fy, ds.height)
         sc0, sc1 = c0 * fx, min((c0 + w) * fx, ds.width)
         win = RioWindow(sc0, sr0, sc1 - sc0, sr1 - sr0)
@@ -491,6 +514,12 @@ class RasterSource:
     # --- lifetime ---------------------------------------------------------------------------
     def close(self) -> None:
         """Close the file (idempotent)."""
+        for ds, view in getattr(self, "_others", ()):
+            if view is not None:
+                view.close()
+            ds.close()
+        if getattr(self, "_others", None):
+            self._others.clear()
         if getattr(self, "_view", None) is not None:
             self._view.close()
         if self._ds is not None:
