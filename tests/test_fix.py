@@ -83,7 +83,7 @@ def test_compose_fix_writes_a_style_that_passes(tmp_path):
     out = tmp_path / "fixed.toml"
     res = CliRunner().invoke(cli, ["fix", str(POOR), "--write", str(out)])
     assert res.exit_code == 0, res.output
-    assert "the fixed style passes" in res.output and "+strength" in res.output
+    assert "the fixed style passes" in res.output and "+tint" in res.output
     text = out.read_text(encoding="utf-8")
     assert text.startswith("# A deliberately poor style")       # comments kept
     assert "# a saturated orange ground competes with the data" in text

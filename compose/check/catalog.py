@@ -120,6 +120,10 @@ _RULES = [
        "classes.separation", _BC2016 + "; " + _MACHADO),
     _r("grayscale-order", "Spearman rho of data value and L*, in the ramp's direction: the map "
        "still orders its values printed in gray", ">=", "rho", "theme.gray_order", OUR_TARGET),
+    _r("relief-shift", "largest share of a theme class's pixels the relief shades to or below "
+       "the unshaded (lit-end, L* p90) lightness of the next darker class: a shaded light class "
+       "must not read as an unshaded darker one", "<=", "share", "theme.relief_overlap",
+       NO_SOURCE + " (a tenth of a class on steep shaded slopes)"),
     _r("ramp-lightness-monotone", "largest L* reversal along a sequential ramp (each arm of a "
        "diverging one)", "<=", "L*", None, "common practice, no source (lightness orders values)",
        fixed=0.0, measured="the ramp's displayable colours"),

@@ -49,6 +49,7 @@ from compose.check.ramp_rules import (
     twin_hue,
     twin_lightness,
 )
+from compose.check.relief_shift import relief_shift
 from compose.check.report import RuleResult
 
 __all__ = ["Rule", "RULES", "run_rules", "describe"]
@@ -81,6 +82,7 @@ RULES: dict[str, Rule] = {
     "classes-separation-deutan": classes_separation_deutan,
     "classes-separation-protan": classes_separation_protan,
     "grayscale-order": grayscale_order,
+    "relief-shift": relief_shift,
     "ramp-lightness-monotone": ramp_lightness_monotone,
     "ramp-step-uniformity": ramp_step_uniformity,
     "ramp-diverging-symmetry": ramp_diverging_symmetry,

@@ -137,11 +137,13 @@ class ThemeBudget:
     """Chroma of data colours: minimum (p50) and maximum (p95) C*ab; ``margin``: the ground's C*
     p95 stays at least this far below the themes' C* p50. The minimum is only enforced when
     ``chroma_min_stated`` (the style stated ``budget.theme.chroma``). ``gray_order``: least
-    Spearman rho of value and composite L*."""
+    Spearman rho of value and composite L*. ``relief_overlap``: largest share (0-1) of a class's
+    pixels the relief may shade into reading as the next darker class."""
 
     chroma: tuple[float, float] = option(pair(ge=0), (25.0, 130.0))
     margin: float = option(number(ge=0), 10.0)
     gray_order: float = option(number(ge=-1, le=1), 0.95)
+    relief_overlap: float = option(number(ge=0, le=1), 0.10)
     chroma_min_stated: bool = False
 
 
