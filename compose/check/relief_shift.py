@@ -219,10 +219,11 @@ def _fix(ctx: CheckContext, theme, hist, c: _Classes, limit: float) -> tuple[str
             # and let less of it through the theme instead. Drawn normally at opacity a, the
             # theme passes (1 - a) of the relief's departure, multiplied it passes about all
             # theme passes (1 - a) of the relief's departure, multiplied about all of it. The
-            # estimate (1 - a <= 0.8 x the strength ratio) is conservative; at least 0.8 keeps the
-            # data colours (a hint of relief, common practice, no source)
-            a = math.ceil((1.0 - 0.8 * scale) * 20) / 20
-            a = min(max(a, 0.8), 0.95)
+            # estimate is kept conservative (1 - a <= 0.4 x the strength ratio), as the relief
+            # then also tints the data and draws the classes closer; 0.85 to 0.95 keeps a hint
+            # of relief under the data colours (common practice, no source)
+            a = math.ceil((1.0 - 0.4 * scale) * 20) / 20
+            a = min(max(a, 0.85), 0.95)
             text = (f'draw "{theme.name}" over the {spec.name} with blend = "normal", opacity = '
                     f"{a:g}: a hint of the relief still shows through, but shaded classes keep "
                     f"their lightness (lowering the {spec.name} strength to {best:g} instead "
@@ -247,6 +248,12 @@ def relief_shift(ctx: CheckContext) -> list[RuleResult]:
     for spec, s in ctx.layers("theme", ("field", "classes")):
         ramp = ctx.ramp_of(spec)
         if ramp is None or s.value_lightness is None:
+            continue
+        if ramp.kind != "qualitative" and not ctx.metrics(ramp).lightness_monotone:
+            out.append(RuleResult("relief-shift", spec.name, None, limit, True,
+                                  f'ramp "{ramp.name}" does not order its values by lightness '
+                                  "(rule ramp-lightness-monotone): no darker neighbour to judge "
+                                  "against until it does", ramp=ramp.name))
             continue
         c = _classes(ramp, ctx.lut(ramp), s.value_lightness.shape[0])
         hist = _class_hist(s, c)
