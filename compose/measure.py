@@ -199,7 +199,15 @@ class WindowMeasure:
             lightness = lightness_bins_of_rgb8(sampled)
             linear = _LINEAR8[sampled]        # (k, 3) linear-light RGB of the composite
             shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
-            for li, index, a_core in themes:
+            # a theme drawn later (more than half there) hides an earlier one: the earlier
+            # theme's blended colours are counted only where it is not covered that way
+            covered_above: list[np.ndarray | None] = [None] * len(themes)
+            running: np.ndarray | None = None
+            for k in range(len(themes) - 1, -1, -1):
+                covered_above[k] = running
+                a = themes[k][2][sub].ravel()
+                running = a if running is None else np.maximum(running, a)
+            for (li, index, a_core), above in zip(themes, covered_above):
                 s = self.stats.layers[li]
                 assert s.value_lightness is not None          # filtered above
                 keep = a_core[sub].ravel() > 0.5
@@ -215,6 +223,8 @@ class WindowMeasure:
                     drawn = a_core[sub].ravel() > 0   # wherever it is drawn, however faint
                     if shown is not None:
                         drawn &= shown
+                    if above is not None:
+                        drawn &= above <= 0.5
                     idx = index[sub].ravel()
                     lin = linear if drawn.all() else linear[drawn]
                     idx = idx if drawn.all() else idx[drawn]

@@ -11,10 +11,11 @@ import tomlkit
 from click.testing import CliRunner
 
 from compose.api import check
-from compose.fix import apply_change, fix_style
 from compose.cli.main import cli
 from compose.color.gamut import lch_in_gamut
+from compose.color.lab import srgb_to_lch
 from compose.color.parse import parse_color
+from compose.fix import apply_change, fix_style
 from compose.style import load_style
 
 STYLES = Path(__file__).resolve().parents[1] / "styles"
@@ -90,6 +91,12 @@ def test_compose_fix_writes_a_style_that_passes(tmp_path):
     final = check(out)                                          # full resolution
     assert final.passed, [x.rule for x in final.failures]
     assert CliRunner().invoke(cli, ["check", str(out)]).exit_code == 0
+    # the sea (36 % of the map, no-data of the land layer) recedes: a light neutral near the
+    # white paper, not the dark grey the neutrality rules alone would accept (rule nodata-quiet)
+    sea = load_style(out).layers[1].options.nodata
+    L, C, _ = srgb_to_lch(np.asarray(sea))
+    assert L > 75 and C <= 3
+    assert final.rule("nodata-quiet")[0].value is not None
 
 
 def test_compose_fix_without_write_only_shows_the_diff(tmp_path):

@@ -109,6 +109,13 @@ _RULES = [
     _r("nodata-background", "the drawn no-data colour is the background (< 0.5 dE00) or at least "
        "budget.nodata.separation dE00 from it", ">=", "dE00", "nodata.separation", _BC2016,
        measured="the drawn no-data colour"),
+    _r("nodata-quiet", "a no-data colour covering at least budget.nodata.area of the map: its L* "
+       "contrast with the paper at most the data's median L* contrast with it (no-data recedes, "
+       "it must not draw more attention than the data)", "<=", "L*", None,
+       NO_SOURCE + " (lightness contrast with the paper draws the eye first)",
+       fixed="the data's median L* contrast with the paper, measured; applies from "
+       "budget.nodata.area of the map (default 0.1)",
+       measured="the composite (as drawn, where no later layer covers it)"),
     _r("classes-count", "number of classes inside budget.classes.count", "in", "classes",
        "classes.count", NO_SOURCE + " (seven plus or minus two)", severity="warning",
        measured="the ramp"),

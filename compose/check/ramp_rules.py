@@ -14,6 +14,7 @@ import numpy as np
 from compose.check.catalog import limit_of
 from compose.check.context import SEQUENTIAL_KINDS, CheckContext, ramp_key
 from compose.check.fixes import hex8, solve_nodata
+from compose.check.nodata_quiet import quiet_numbers, solve_quiet_nodata
 from compose.check.report import WARNING, Change, RuleResult
 from compose.check.stats import N_LIGHTNESS
 from compose.color.difference import delta_e_2000
@@ -146,8 +147,17 @@ def _nodata_cases(ctx: CheckContext):
         yield spec, s, ramp, rgb8, table, key
 
 
-def _nodata_fix(ctx, ramp, rgb8, table, key) -> tuple[str, Change | None]:
+def _nodata_fix(ctx, ramp, rgb8, table, key, s=None) -> tuple[str, Change | None]:
     nb = ctx.budgets.nodata
+    q = quiet_numbers(ctx, s, rgb8) if s is not None else None
+    if q is not None and q.share >= float(nb.area):
+        # a large no-data area: the colour proposed is also quiet (rule nodata-quiet)
+        quiet = solve_quiet_nodata(ctx, ramp, rgb8, q)
+        if quiet is not None:
+            L, C, _ = srgb_to_lch(quiet / 255.0)
+            return (f'{key} = "{hex8(quiet)}" in {table} (L* {L:.1f}, C* {C:.1f}: neutral, and '
+                    "light enough to recede on the large no-data area)",
+                    Change(table, {key: hex8(quiet)}))
     new = solve_nodata(rgb8, ctx.ramp_colors8(ramp), ctx.background, float(nb.chroma),
                        float(nb.separation))
     if new is None:
@@ -161,10 +171,10 @@ def nodata_chroma(ctx: CheckContext) -> list[RuleResult]:
     """Drawn no-data colour C*ab <= ``budget.nodata.chroma`` (default 3): no-data is not data."""
     limit = float(ctx.budgets.nodata.chroma)
     out = []
-    for spec, _s, ramp, rgb8, table, key in _nodata_cases(ctx):
+    for spec, s, ramp, rgb8, table, key in _nodata_cases(ctx):
         C = float(srgb_to_lch(rgb8 / 255.0)[1])
         passed = C <= limit
-        fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key)
+        fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key, s)
         out.append(RuleResult("nodata-chroma", spec.name, C, limit, passed,
                               f'no-data "{hex8(rgb8)}" C* {C:.1f}; limit {limit:g}', fix,
                               ramp=ramp.name, change=change))
@@ -176,11 +186,11 @@ def nodata_separation(ctx: CheckContext) -> list[RuleResult]:
     Coltekin 2016) from every colour of its ramp."""
     limit = float(ctx.budgets.nodata.separation)
     out = []
-    for spec, _s, ramp, rgb8, table, key in _nodata_cases(ctx):
+    for spec, s, ramp, rgb8, table, key in _nodata_cases(ctx):
         lab = srgb_to_lab(rgb8 / 255.0)
         d = float(delta_e_2000(lab, srgb_to_lab(ctx.ramp_colors8(ramp) / 255.0)).min())
         passed = d >= limit
-        fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key)
+        fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key, s)
         out.append(RuleResult("nodata-separation", spec.name, d, limit, passed,
                               f'no-data "{hex8(rgb8)}" is {d:.1f} dE00 from the nearest colour of '
                               f'ramp "{ramp.name}"; at least {limit:g}', fix, ramp=ramp.name,
@@ -195,14 +205,14 @@ def nodata_background(ctx: CheckContext) -> list[RuleResult]:
     limit = float(ctx.budgets.nodata.separation)
     bg = srgb_to_lab(np.asarray(ctx.background))
     out = []
-    for spec, _s, ramp, rgb8, table, key in _nodata_cases(ctx):
+    for spec, s, ramp, rgb8, table, key in _nodata_cases(ctx):
         d = float(delta_e_2000(srgb_to_lab(rgb8 / 255.0), bg))
         same = d < SAME_AS_BACKGROUND
         passed = same or d >= limit
         why = ("the same as the background: no-data reads as blank map" if same else
                f"{d:.1f} dE00 from the background; at least {limit:g} (or equal to it), so it does "
                "not read as a faint stain")
-        fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key)
+        fix, change = ("", None) if passed else _nodata_fix(ctx, ramp, rgb8, table, key, s)
         out.append(RuleResult("nodata-background", spec.name, d, limit, passed,
                               f'no-data "{hex8(rgb8)}" is {why}', fix, ramp=ramp.name, change=change))
     return out

@@ -26,6 +26,7 @@ from compose.check.hierarchy import (
     theme_chroma_min,
 )
 from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
+from compose.check.nodata_quiet import nodata_quiet
 from compose.check.on_map import (
     diverging_symmetry_map,
     diverging_symmetry_map_deutan,
@@ -77,6 +78,7 @@ RULES: dict[str, Rule] = {
     "nodata-chroma": nodata_chroma,
     "nodata-separation": nodata_separation,
     "nodata-background": nodata_background,
+    "nodata-quiet": nodata_quiet,
     "classes-count": classes_count,
     "classes-separation": classes_separation,
     "classes-separation-deutan": classes_separation_deutan,

@@ -38,7 +38,8 @@ def _explain(info, budgets, textwrap) -> list[str]:
         limit = " .. ".join(f"{v:g}" for v in limit)
     elif isinstance(limit, float):
         limit = f"{limit:g}"
-    where = f"{key}, default {limit}" if key else f"fixed {limit}"
+    where = (f"{key}, default {limit}" if key else
+             limit if isinstance(limit, str) else f"fixed {limit}")
     sev = "" if info.severity == "failure" else f"  ({info.severity})"
     out = [f"{info.id}{sev}"]
     out += textwrap.wrap(info.what, 96, initial_indent="  what:   ", subsequent_indent="          ")

@@ -168,10 +168,12 @@ class ClassesBudget:
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class NodataBudget:
-    """No-data C*ab ceiling and CIEDE2000 from every ramp colour (Brychtova & Coltekin 2016)."""
+    """No-data C*ab ceiling and CIEDE2000 from every ramp colour (Brychtova & Coltekin 2016);
+    ``area``: share (0-1) of the canvas from which a no-data area must also be quiet."""
 
     chroma: float = option(number(ge=0), 3.0)
     separation: float = option(number(ge=0), 10.0)
+    area: float = option(number(ge=0, le=1), 0.10)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
