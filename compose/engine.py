@@ -41,7 +41,10 @@ class Sink(Protocol):
     """Receives finished output rows: ``rows(row0, rgb8)`` with rgb8 (n, width, 3) uint8.
 
     A sink with an integer attribute ``below`` also gets ``below_rows(row0, rgb8)``: the same
-    rows composited from the layers under index ``below`` only (a page's raster part).
+    rows composited from the layers under index ``below`` only (a page's raster part). A sink
+    whose attribute ``alpha`` is true gets ``rows(row0, rgb8, alpha8)`` with alpha8 (n, width)
+    uint8: 255 where some raster layer has data, 0 elsewhere (:func:`render_window`'s
+    ``footprint``).
     """
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None: ...
@@ -143,7 +146,8 @@ class WindowResult:
     window: the :class:`Window`; rgb8: its core, (height, width, 3) uint8; statistics: the
     window's own statistics (None when not measured), to be merged by addition; previews: its
     :class:`compose.previews.PreviewTiles` (None when not asked for); below: the core composited
-    from the layers under the ``below`` index only (None when not asked for).
+    from the layers under the ``below`` index only (None when not asked for); alpha8: the
+    core's data footprint, (height, width) uint8 255 / 0 (None when not asked for).
     """
 
     window: Window
@@ -151,6 +155,7 @@ class WindowResult:
     statistics: Statistics | None = None
     previews: PreviewTiles | None = None
     below: np.ndarray | None = None
+    alpha8: np.ndarray | None = None
 
 
 def _to_rgb8(core: np.ndarray) -> np.ndarray:
@@ -166,13 +171,17 @@ def _to_rgb8(core: np.ndarray) -> np.ndarray:
 
 def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                   preview_factor: int | None = None,
-                  only: frozenset[int] | None = None, below: int | None = None) -> WindowResult:
+                  only: frozenset[int] | None = None, below: int | None = None,
+                  footprint: bool = False) -> WindowResult:
     """Render one window: a pure function of the prepared render and the window.
 
     ``measure``: also return the window's statistics; ``preview_factor``: also return preview
     tiles on the canvas's grid of blocks of that many pixels a side; ``only``: indices of the
     layers to draw (default all); ``below``: also return the core composited from the layers
-    under this index only (a page's raster part, :mod:`compose.page`).
+    under this index only (a page's raster part, :mod:`compose.page`); ``footprint``: also
+    return the core's data footprint as alpha (255 where a raster layer's paint covers the pixel
+    with a value that is not its no-data entry, 0 elsewhere; 255 everywhere when no layer drawn
+    is a raster).
     """
     canvas = prepared.canvas
     _, _, h, w = window.padded
@@ -187,6 +196,7 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     stack_tiles: list = []
     core_idx = (slice(None),) + inner
     base = None
+    covered = None          # the data footprint (core), when asked for
     for li, layer in enumerate(prepared.layers):
         if li == below:
             base = _to_rgb8(np.array(out[core_idx]))
@@ -208,6 +218,11 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                 alone = np.empty((3, window.height, window.width), dtype=np.float32)
                 alone[...] = bg
             for pi, paint in enumerate(paints):
+                if footprint and paint.palette is not None:
+                    has = paint.alpha[inner] > 0
+                    if paint.palette.nodata >= 0:
+                        has &= paint.index[inner] != paint.palette.nodata
+                    covered = has if covered is None else (covered | has)
                 alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)
                 if meter is not None:
                     meter.paint(li, layer, pi, paint, alpha, out)
@@ -227,7 +242,14 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     rgb8 = _to_rgb8(out[core_idx])
     stats = meter.finish(rgb8) if meter is not None else None
     tiles = PreviewTiles(tuple(alone_tiles), tuple(stack_tiles)) if k else None
-    return WindowResult(window, rgb8, stats, tiles, base)
+    alpha8 = None
+    if footprint:
+        rasters = any(getattr(layer, "palette", None) is not None for li, layer in
+                      enumerate(prepared.layers) if only is None or li in only)
+        alpha8 = np.full((window.height, window.width), 255, np.uint8)
+        if rasters:
+            alpha8[...] = 0 if covered is None else covered.astype(np.uint8) * np.uint8(255)
+    return WindowResult(window, rgb8, stats, tiles, base, alpha8)
 
 
 @dataclass(frozen=True)
@@ -241,11 +263,12 @@ class WindowTask:
     preview_factor: int | None = None
     only: frozenset[int] | None = None
     below: int | None = None
+    footprint: bool = False
 
     @property
     def options(self) -> dict[str, Any]:
         return {"measure": self.measure, "preview_factor": self.preview_factor, "only": self.only,
-                "below": self.below}
+                "below": self.below, "footprint": self.footprint}
 
     def __call__(self, window: Window) -> WindowResult:
         return render_window(self.prepared, window, **self.options)
@@ -274,13 +297,19 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
     band = under = None
     below = next((b for b in (getattr(s, "below", None) for s in sinks) if b is not None), None)
 
-    task = WindowTask(prepared, measure=measure, preview_factor=k, only=only, below=below)
+    footprint = any(getattr(s, "alpha", False) for s in sinks)
+    task = WindowTask(prepared, measure=measure, preview_factor=k, only=only, below=below,
+                      footprint=footprint)
+    alpha_band = None
 
     def feed(row0, rows, rows_below):
         nonlocal encode
         t = time.perf_counter()
         for sink in sinks:
-            sink.rows(row0, rows)
+            if footprint and getattr(sink, "alpha", False):
+                sink.rows(row0, rows, alpha_band)
+            else:
+                sink.rows(row0, rows)
             if rows_below is not None and getattr(sink, "below", None) is not None:
                 sink.below_rows(row0, rows_below)
         encode += time.perf_counter() - t
@@ -295,7 +324,11 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
             band = np.empty((win.height, canvas.width, 3), dtype=np.uint8)
             if below is not None:
                 under = np.empty_like(band)
+            if footprint:
+                alpha_band = np.empty((win.height, canvas.width), dtype=np.uint8)
         band[:, win.col:win.col + win.width] = res.rgb8
+        if alpha_band is not None and res.alpha8 is not None:
+            alpha_band[:, win.col:win.col + win.width] = res.alpha8
         if under is not None and res.below is not None:
             under[:, win.col:win.col + win.width] = res.below
         if stats is not None and res.statistics is not None:

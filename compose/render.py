@@ -61,11 +61,12 @@ class _PngSink:
 
 
 class _TiffSink:
-    def __init__(self, path: Path, canvas, tags, cog: bool = False):
+    def __init__(self, path: Path, canvas, tags, cog: bool = False, alpha: bool = False):
         self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog)
+        self.alpha = alpha          # the engine hands the data footprint over as alpha
 
-    def rows(self, row0, rgb8):
-        self.writer.write(row0, 0, rgb8)
+    def rows(self, row0, rgb8, alpha8=None):
+        self.writer.write(row0, 0, rgb8, alpha8)
 
 
 def nodata_seen(stats) -> set[str] | None:
@@ -133,7 +134,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             tmp = outputs.temporaries()
             png = _PngSink(tmp["png"], canvas.width, canvas.height, canvas.dpi)
             stack.callback(png.writer.abort)
-            tif = _TiffSink(tmp["tif"], canvas, tags, cog=cog)
+            tif = _TiffSink(tmp["tif"], canvas, tags, cog=cog,
+                            alpha=getattr(style.map, "outside", "background") == "transparent")
             stack.callback(tif.writer.abort)
             # the encoders run on their own threads, beside the next windows' compute
             png_bg, tif_bg = BackgroundSink(png, "png"), BackgroundSink(tif, "geotiff")
@@ -171,11 +173,19 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             t = time.perf_counter()
             png_bg.finish()
             tif_bg.finish()
+            t_close = time.perf_counter()
             png.writer.close()
             tif.writer.close()
+            closing = time.perf_counter() - t_close
             if proof_sink is not None:
                 proof_sink.close()
             seconds["finish-encode"] = time.perf_counter() - t
+            # how much of the PNG and GeoTIFF encoding ran beside the compute: the encoders'
+            # own work against what the render waited for (blocked hand-overs, the end)
+            work = png_bg.busy + tif_bg.busy + closing
+            waited = png_bg.waited + tif_bg.waited + closing
+            seconds["encode-work"] = work
+            seconds["encode-waited"] = waited
             if proof_sink is not None:
                 from compose.proof import write_sheet
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import queue
 import threading
+import time
 
 import numpy as np
 
@@ -29,6 +30,9 @@ class BackgroundSink:
         self.sink = sink
         self._queue: queue.Queue = queue.Queue(maxsize=max(1, depth))
         self._error: BaseException | None = None
+        #: seconds the wrapped sink worked (on its thread), seconds the caller waited for it
+        self.busy = 0.0
+        self.waited = 0.0
         self._thread = threading.Thread(target=self._loop, name=f"compose-{name}", daemon=True)
         self._thread.start()
 
@@ -39,26 +43,38 @@ class BackgroundSink:
                 return
             if self._error is not None:
                 continue                      # drain after a failure, keep the producer moving
+            t = time.perf_counter()
             try:
                 self.sink.rows(*item)
             except BaseException as exc:      # noqa: BLE001 - handed to the render's thread
                 self._error = exc
+            self.busy += time.perf_counter() - t
 
     def _raise(self) -> None:
         if self._error is not None:
             error, self._error = self._error, None
             raise error
 
-    def rows(self, row0: int, rgb8: np.ndarray) -> None:
-        """Queue rows for the sink (blocks while ``depth`` bands are waiting)."""
+    @property
+    def alpha(self) -> bool:
+        """The wrapped sink takes an alpha band too (see :class:`compose.engine.Sink`)."""
+        return bool(getattr(self.sink, "alpha", False))
+
+    def rows(self, row0: int, rgb8: np.ndarray, *alpha8: np.ndarray) -> None:
+        """Queue rows (and the alpha band, for a sink that takes one) for the sink (blocks while
+        ``depth`` bands are waiting)."""
         self._raise()
-        self._queue.put((row0, rgb8))
+        t = time.perf_counter()
+        self._queue.put((row0, rgb8, *alpha8))
+        self.waited += time.perf_counter() - t
 
     def finish(self) -> None:
         """Wait until every queued band reached the sink; raise the sink's error, if any."""
+        t = time.perf_counter()
         if self._thread.is_alive():
             self._queue.put(_STOP)
             self._thread.join()
+        self.waited += time.perf_counter() - t
         self._raise()
 
     def abort(self) -> None:

@@ -24,6 +24,7 @@ from compose.style.validate import (
     Scope,
     as_table,
     build_from_table,
+    choice,
     color,
     integer,
     missing_keys,
@@ -35,11 +36,13 @@ from compose.style.validate import (
 )
 
 __all__ = [
-    "ROLES", "BLEND_MODES", "MapSpec", "GroundBudget", "ThemeBudget", "OverlayBudget",
+    "ROLES", "OUTSIDE", "BLEND_MODES", "MapSpec", "GroundBudget", "ThemeBudget", "OverlayBudget",
     "ClassesBudget", "NodataBudget", "RampBudget", "Budgets", "Waiver", "BUDGET_TABLES",
     "RampTable", "LayerSpec", "Style",
 ]
 
+#: Values of ``map.outside``.
+OUTSIDE = ("background", "transparent")
 #: Layer roles, lowest in the visual hierarchy first.
 ROLES = ("ground", "theme", "overlay")
 #: Range of ``map.dpi``: below 10 a point is a fraction of a pixel, above 10,000 a 1 pt line is
@@ -94,7 +97,8 @@ class MapSpec:
     crs: as written (validated by pyproj); extent: (west, south, east, north) in CRS units, or in
     ``extent_crs`` when that is given; pixel: CRS units per output pixel (> 0), or ``width``:
     pixels across; like: the name of a raster layer whose CRS, extent and pixel size fill in
-    whatever of those three is not stated (see :mod:`compose.style.grid`). dpi: dots per inch
+    whatever of those three is not stated (see :mod:`compose.style.grid`). outside: the
+    GeoTIFF's alpha outside the data (see :data:`OUTSIDE`). dpi: dots per inch
     (> 0) for widths in points. name: the output stem if stated (else the style's file stem,
     see :attr:`Style.name`).
     """
@@ -109,6 +113,9 @@ class MapSpec:
     like: str | None = option(string(), None)
     dpi: float = option(number(ge=MIN_DPI, le=MAX_DPI), 300.0)
     background: RGB = option(color(), (1.0, 1.0, 1.0))
+    #: the GeoTIFF's alpha where no raster layer has data: "background" (opaque, the map as
+    #: drawn) or "transparent" (alpha 0 there, 255 wherever some raster layer has data)
+    outside: str = option(choice(OUTSIDE, "map.outside value"), "background")
 
     def __post_init__(self) -> None:
         if self.pixel is not None and self.width is not None:

@@ -39,3 +39,20 @@ def test_sink_error_is_raised_in_the_render_thread():
             bg.rows(2 * i, np.zeros((2, 3, 3), np.uint8))
         bg.finish()
     bg.abort()
+
+
+def test_busy_and_waited_account_for_the_sink_work():
+    """``busy``: seconds the sink worked on its thread; ``waited``: seconds the caller was held.
+    A slow sink fed faster than it works holds the caller (bounded queue)."""
+    import time
+
+    class _Slow:
+        def rows(self, row0, rgb8):
+            time.sleep(0.02)
+
+    bg = BackgroundSink(_Slow(), "test", depth=1)
+    for i in range(6):
+        bg.rows(i, np.zeros((1, 1, 3), np.uint8))
+    bg.finish()
+    assert bg.busy >= 6 * 0.02
+    assert bg.waited > 0
