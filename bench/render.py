@@ -10,10 +10,13 @@ For every size it prints, from the same run:
     of the rendered pixels, with the PNG size against zlib level 6;
   * the default ``compose render`` command with all its outputs (wall time, peak memory of the
     child process);
-  * the bare render (PNG + GeoTIFF + check): wall time and peak memory, compute alone with and
-    without the statistics (their share), how much encoding adds beyond compute (overlap);
+  * every target beside its floor (medians of 3 runs): the bare render (PNG + GeoTIFF + check)
+    with 1 and 2 workers against the summed floors, compute alone with and without the
+    statistics against the compute floor (the statistics' share), and the share of the
+    encoders' own work that ran beside the compute (the render's own timers);
   * window count independence of line drawing, and reprojected against aligned reads;
-  * workers: compute with 1 process, 2 worker processes and a 2-worker dask LocalCluster.
+  * workers: compute with 1 thread, 2 threads (--workers 2), 2 worker processes and a 2-worker
+    dask LocalCluster.
 Then the 1500 x 1500 demo style (render with all outputs, ``compose check``) and the start-up
 time of ``compose --help``.
 
@@ -226,15 +229,19 @@ from compose.style import load_style
 style = load_style(style_path)
 mapper, cluster = None, None
 workers = extra.pop("workers", None)
+processes = extra.pop("processes", None)
 if extra.pop("cluster", False):          # a LocalCluster of 2 worker processes, 1 thread each
     from distributed import Client, LocalCluster
     from compose.parallel import ClusterMapper
     cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
     client = Client(cluster)
     mapper = ClusterMapper(client)
-elif workers:
+elif processes:
     from compose.parallel import ProcessMapper
-    mapper = ProcessMapper(workers) if workers > 1 else None
+    mapper = ProcessMapper(processes)
+elif workers:                            # what --workers does: threads sharing the render
+    from compose.parallel import ThreadMapper
+    mapper = ThreadMapper(workers) if workers > 1 else None
 result = {}
 t0 = time.perf_counter()
 if mode == "bare":
@@ -265,6 +272,19 @@ def task(mode: str, style: Path, out: Path, **extra) -> dict:
     if res["code"] != 0:
         raise RuntimeError(f"task {mode} failed:\n{res['stderr'][-3000:]}")
     return json.loads(res["stdout"].strip().splitlines()[-1])
+
+
+def median_task(runs: int, key, mode: str, style: Path, out: Path, **extra) -> tuple[float, dict]:
+    """The median of ``runs`` runs of a task (``key(result)`` -> seconds) and the median run."""
+    results = sorted((task(mode, style, out, **extra) for _ in range(runs)), key=key)
+    mid = results[len(results) // 2]
+    return key(mid), mid
+
+
+def overlap(seconds: dict) -> float:
+    """Share of the encoders' own work that ran beside the compute (render's own timers)."""
+    work = seconds.get("encode-work", 0.0)
+    return max(0.0, 1.0 - seconds.get("encode-waited", 0.0) / work) if work > 0 else 0.0
 
 
 # --- report ---------------------------------------------------------------------------------
@@ -301,40 +321,48 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"{cmd['cpu'] / cmd['seconds']:.2f} cores, peak {gb(cmd['peak'])} (all processes; largest "
           f"one {gb(cmd['peak_one'])}; target <= 0.50 GB)", flush=True)
 
-    # the bare render: PNG + GeoTIFF + check, 1 and 2 worker processes
-    bare1 = task("bare", styles["aligned"], out, workers=1)
+    # the bare render: PNG + GeoTIFF + check, 1 and 2 workers (threads, what --workers does)
+    runs = 1 if quick else 3
+    wall = lambda r: r["wall"]             # noqa: E731
+    total, bare1 = median_task(runs, wall, "bare", styles["aligned"], out, workers=1)
     tif = out / "bench.tif"
     t_tif6 = floors.geotiff_write(tif, folder / "floor.tif")
     t_tif1 = floors.geotiff_write(tif, folder / "floor.tif", zlevel=1)
     t_png, png_ratio = floors.png_fast(tif)
     t_png_ng, png_ratio_ng = floors.png_fast(tif, impl="zlib-ng")
     encode_floor = t_tif6 + min(t_png, t_png_ng)
-    bare2 = task("bare", styles["aligned"], out, workers=2)
-    runs = 1 if quick else 2
-    plain = min(task("plain", styles["aligned"], out)["compute"] for _ in range(runs))
-    measured = min(task("measure", styles["aligned"], out)["compute"] for _ in range(runs))
-    total = bare1["wall"]
-    beyond = total - measured
+    total2, bare2 = median_task(runs, wall, "bare", styles["aligned"], out, workers=2)
+    comp = lambda r: r["compute"]          # noqa: E731
+    plain, _ = median_task(runs, comp, "plain", styles["aligned"], out)
+    measured, _ = median_task(runs, comp, "measure", styles["aligned"], out)
+    floors_sum = compute_floor + encode_floor
+    own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
     print("floors on the rendered pixels")
     print(f"  GeoTIFF RGB write, deflate, tiled 512, ALL_CPUS (zlevel 1)  {t_tif6:6.2f} s  ({t_tif1:.2f} s)")
     print(f"  PNG: Up filter + isal level 3, 2 threads                    {t_png:6.2f} s  "
           f"(size {100 * (png_ratio - 1):+.1f} % vs zlib 6)")
     print(f"  PNG: Up filter + zlib-ng level 3, 2 threads                 {t_png_ng:6.2f} s  "
           f"(size {100 * (png_ratio_ng - 1):+.1f} % vs zlib 6; compose uses zlib-ng level 4)")
-    print(f"bare render (PNG + GeoTIFF + check), 1 process    {total:6.2f} s wall, peak {gb(bare1['peak'])}")
-    print(f"bare render, 2 worker processes                   {bare2['wall']:6.2f} s wall  "
-          f"(target <= 6 s at 8192)")
-    print(f"  compute alone, measuring              {measured:6.2f} s  "
-          f"({measured / compute_floor:.2f} x compute floor; target <= 1.5 x)")
-    print(f"  compute alone, not measuring          {plain:6.2f} s")
-    print(f"  statistics share                      {100 * (measured - plain) / total:6.1f} % of the "
-          f"render  (target <= 10 %)")
-    print(f"  outputs add beyond compute            {beyond:6.2f} s  (encode floor {encode_floor:.2f} s: "
-          f"{100 * min(1.0, max(0.0, 1 - beyond / encode_floor)):.0f} % overlapped)")
-    print(f"  floors summed (compute + encode)      {compute_floor + encode_floor:6.2f} s  "
-          f"(1-process render / floors = {total / (compute_floor + encode_floor):.2f})")
-    print("  render's own timers: " + ", ".join(f"{k} {v:.2f}" for k, v in
-                                               sorted(bare1.get("seconds", {}).items())), flush=True)
+    print(f"  floors summed, compute + encode                             {floors_sum:6.2f} s  "
+          f"(on 2 cores at best {floors_sum / 2:.2f} s)")
+    print(f"targets beside floors (median of {runs}; one run, same machine state)")
+    print(f"  bare render (PNG + GeoTIFF + check), 1 worker   {total:6.2f} s wall, peak "
+          f"{gb(bare1['peak'])}  = {total / floors_sum:.2f} x floors summed")
+    print(f"  bare render, 2 workers (threads)                {total2:6.2f} s wall  "
+          f"= {total2 / floors_sum:.2f} x floors summed, {total / total2:.2f} x faster than 1 worker "
+          f"(targets: <= 6 s at 8192, > 1 x)")
+    print(f"  compute alone, measuring, 1 thread              {measured:6.2f} s  "
+          f"= {measured / compute_floor:.2f} x compute floor {compute_floor:.2f} s (target <= 1.5 x)")
+    print(f"  compute alone, not measuring                    {plain:6.2f} s  "
+          f"= {plain / compute_floor:.2f} x compute floor")
+    print(f"  statistics share                                {100 * (measured - plain) / total:6.1f} % "
+          f"of the 1-worker render (target <= 10 %)")
+    print(f"  encode beside compute (render's own timers)     {100 * overlap(own1):6.0f} % of "
+          f"{own1.get('encode-work', 0):.2f} s encoder work overlapped, 1 worker; "
+          f"{100 * overlap(own2):.0f} % with 2 (encode floor {encode_floor:.2f} s)")
+    for name, own in (("1 worker", own1), ("2 workers", own2)):
+        print(f"  render's own timers, {name}: " + ", ".join(
+            f"{k} {v:.2f}" for k, v in sorted(own.items())), flush=True)
 
     # lines: independent of the number of windows
     lines_big = task("plain", styles["lines"], out, window=512)["compute"]
@@ -347,11 +375,13 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"reprojected canvas (EPSG:32631 onto 32630 data), compute {utm:6.2f} s vs aligned "
           f"{plain:.2f} s ({utm / plain:.2f} x; target <= 2 x)")
 
-    # workers: the same walk on 2 worker processes and on a 2-worker LocalCluster
+    # workers: the same walk on 2 threads, 2 worker processes and a 2-worker LocalCluster
     w2 = task("measure", styles["aligned"], out, workers=2)
+    p2 = task("measure", styles["aligned"], out, processes=2)
     cl = task("measure", styles["aligned"], out, cluster=True)
-    print(f"workers, compute with measuring: 1 process {measured:.2f} s, 2 worker processes "
-          f"{w2['compute']:.2f} s ({measured / w2['compute']:.2f} x), 2-worker LocalCluster "
+    print(f"workers, compute with measuring: 1 thread {measured:.2f} s, 2 threads "
+          f"{w2['compute']:.2f} s ({measured / w2['compute']:.2f} x), 2 worker processes "
+          f"{p2['compute']:.2f} s ({measured / p2['compute']:.2f} x), 2-worker LocalCluster "
           f"{cl['compute']:.2f} s ({measured / cl['compute']:.2f} x)", flush=True)
     shutil.rmtree(out, ignore_errors=True)
 
@@ -378,7 +408,7 @@ def main() -> None:
     ap.add_argument("--sizes", default="2048,8192", help="comma-separated canvas sides")
     ap.add_argument("--big", action="store_true", help="also 16384 x 16384")
     ap.add_argument("--lines", type=int, default=10000)
-    ap.add_argument("--quick", action="store_true", help="one run per figure instead of the best of 2")
+    ap.add_argument("--quick", action="store_true", help="one run per figure instead of the median of 3")
     ap.add_argument("--no-demo", action="store_true")
     ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
     args = ap.parse_args()
