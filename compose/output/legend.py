@@ -40,9 +40,12 @@ from compose.output.legend_layout import (
     KEY_PATCH,
     MARGIN,
     MUTED,
+    NOTE_ROW,
     OVERLAY_ROW,
     PAPER,
     RULE,
+    SHADED_NOTE,
+    SWATCH_ROW,
     TITLE_FONT,
     TITLE_H,
     TOP,
@@ -110,6 +113,8 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
     for layer, label, box in zip(b.layers, b.labels, mine):
         top, bottom = box.y0 / DPI, box.y1 / DPI
         img = _bar_image(layer.lut, box)
+        if b.seen is not None:         # three stripes: lit slope, flat ground, shaded slope
+            img = np.round(b.seen(img[0] / 255.0).transpose(1, 0, 2) * 255).astype(np.uint8)
         ax.imshow(img, extent=(x0, x1, bottom, top), aspect="auto", interpolation="nearest",
                   zorder=1)
         lut = layer.lut
@@ -142,6 +147,9 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
         ax.text(x, bar_top - 0.085, text, fontsize=FONT - 1, color=INK, ha="center", va="bottom")
     y_sw = bar_bottom + AXIS_H
     _draw_swatches(ax, b.swatches, x0 - END + END_SIGN, y_sw)
+    if b.seen is not None:
+        ax.text(x0 - END + END_SIGN, y_sw + (SWATCH_ROW if b.swatches else 0.0) + NOTE_ROW * 0.45,
+                SHADED_NOTE, fontsize=FONT - 1.4, style="italic", color=MUTED, va="center")
 
 
 def _draw_swatches(ax, swatches, x: float, y: float) -> None:
@@ -154,25 +162,44 @@ def _draw_swatches(ax, swatches, x: float, y: float) -> None:
         x += 0.38 + 0.075 * len(label) + 0.25
 
 
-def _draw_classes(ax, b: ClassesBlock, y: float) -> None:
+def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
     from matplotlib.patches import Rectangle
 
     ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center")
-    yy = y + TITLE_H
     indent = MARGIN + (0.12 if any(k == "family" for k, _ in b.rows) else 0.0)
-    for kind, item in b.rows:
-        if kind == "family":
-            ax.text(MARGIN, yy + FAMILY_ROW * 0.55, pretty_name(item), fontsize=FONT - 0.4,
-                    style="italic", color=MUTED, va="center")
-            yy += FAMILY_ROW
-            continue
-        ax.add_patch(Rectangle((indent, yy + 0.03), 0.3, 0.145, facecolor=rgb01(item.rgb),
-                               edgecolor=FRAME, lw=0.4))
-        ax.text(indent + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
-                color=INK, va="center")
-        yy += CLASS_ROW
+    columns = b.columns or [b.rows]
+    step = (width - MARGIN - indent) / len(columns)
+    bottom = y + TITLE_H
+    for c, rows in enumerate(columns):
+        yy = y + TITLE_H
+        x = indent + c * step
+        for kind, item in rows:
+            if kind == "family":
+                ax.text(x - (indent - MARGIN), yy + FAMILY_ROW * 0.55, pretty_name(item),
+                        fontsize=FONT - 0.4, style="italic", color=MUTED, va="center")
+                yy += FAMILY_ROW
+                continue
+            if b.seen is not None:     # three stripes: lit slope, flat ground, shaded slope
+                tones = b.seen(np.array([rgb01(item.rgb)]))[0]
+                for k, tone in enumerate(tones):
+                    ax.add_patch(Rectangle((x, yy + 0.03 + k * 0.145 / 3), 0.3, 0.145 / 3,
+                                           facecolor=tuple(tone), edgecolor="none", lw=0))
+                ax.add_patch(Rectangle((x, yy + 0.03), 0.3, 0.145, fill=False,
+                                       edgecolor=FRAME, lw=0.4))
+            else:
+                ax.add_patch(Rectangle((x, yy + 0.03), 0.3, 0.145, facecolor=rgb01(item.rgb),
+                                       edgecolor=FRAME, lw=0.4))
+            ax.text(x + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
+                    color=INK, va="center")
+            yy += CLASS_ROW
+        bottom = max(bottom, yy)
+    yy = bottom
     _draw_swatches(ax, b.swatches, indent, yy + 0.04)
+    if b.seen is not None:
+        yy += (SWATCH_ROW + 0.04 if b.swatches else 0.0) + 0.04
+        ax.text(indent, yy + NOTE_ROW * 0.45, SHADED_NOTE, fontsize=FONT - 1.4, style="italic",
+                color=MUTED, va="center")
 
 
 def _draw_overlays(ax, b: OverlaysBlock, y: float, width: float = WIDTH,
@@ -236,7 +263,7 @@ def draw_legend(ax, layout: LegendLayout, key_patch=KEY_PATCH) -> None:
         if isinstance(b, RampsBlock):
             _draw_ramps(ax, b, y, boxes)
         elif isinstance(b, ClassesBlock):
-            _draw_classes(ax, b, y)
+            _draw_classes(ax, b, y, layout.width)
         else:
             _draw_overlays(ax, b, y, layout.width, key_patch)
         y += b.height + GAP

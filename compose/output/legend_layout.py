@@ -11,9 +11,10 @@ import numpy as np
 from compose.color import interface as ui
 from compose.style.kinds import LAYER_KINDS
 
-__all__ = ["legend_layout", "LegendLayout", "BarBox", "RampsBlock", "ClassesBlock",
-           "OverlaysBlock", "pretty_name", "format_value", "rgb01", "ramp_of", "ramp_marks", "DPI",
-           "WIDTH", "END_GAP", "END_W", "END_SIGN", "END"]
+__all__ = ["legend_layout", "assemble", "split_rows", "set_columns", "LegendLayout", "BarBox", "RampsBlock",
+           "ClassesBlock", "OverlaysBlock", "relief_tones", "seen_under_relief", "TONE_SLOPE",
+           "pretty_name", "format_value", "rgb01", "ramp_of", "ramp_marks", "DPI", "WIDTH",
+           "END_GAP", "END_W", "END_SIGN", "END", "NOTE_ROW", "SHADED_NOTE"]
 
 #: Legend entries (:data:`compose.style.kinds.LEGEND_ENTRIES`) drawn as a sample of the mark.
 SAMPLE_ENTRIES = ("line", "area", "marker", "text")
@@ -34,6 +35,8 @@ TITLE_FONT = 8.6
 TOP, BOTTOM, GAP = 0.16, 0.14, 0.2
 TITLE_H, MARK_H, BAR_H, BAR_GAP, AXIS_H, SWATCH_ROW = 0.24, 0.17, 0.19, 0.05, 0.27, 0.22
 CLASS_ROW, FAMILY_ROW, OVERLAY_ROW = 0.205, 0.2, 0.235
+NOTE_ROW = 0.17           # the line under a shaded key saying what its stripes are
+SHADED_NOTE = "stripes: lit slope, flat ground, shaded slope"
 # out-of-domain colours (ramp key outside = { low, high }): at each end of a bar a separate
 # square, set off by a gap, with a '<' / '>' sign on its outer side:  < [] [bar....] [] >
 END_GAP, END_W, END_SIGN = 0.045, 0.1, 0.08     # inches
@@ -92,6 +95,7 @@ class RampsBlock:
     height: float = 0.0
     fmt: Callable[[float], str] = format_value
     swatches: list = field(default_factory=list)
+    seen: Callable | None = None      # colours (n, 3) -> as seen under the relief tones (n, k, 3)
 
 
 @dataclass
@@ -102,6 +106,8 @@ class ClassesBlock:
     height: float = 0.0
     fmt: Callable[[float], str] = format_value
     swatches: list = field(default_factory=list)
+    seen: Callable | None = None
+    columns: list = field(default_factory=list)    # the rows split into columns (empty: one)
 
 
 @dataclass
@@ -193,6 +199,56 @@ def _nodata_swatches(layers, seen: set[str] | None = None) -> list[tuple[str, np
     if len(out) > 1:
         return [(f"no data ({pretty_name(n)})", c) for n, c in out]
     return [("no data", c) for _, c in out]
+
+
+#: the slope of the relief tones a shaded legend shows, degrees: a slope this steep facing the
+#: light, flat ground, and the same slope facing away (Lambert's law at the relief's altitude)
+TONE_SLOPE = 30.0
+
+
+def relief_tones(layer) -> np.ndarray:
+    """(3, 3) sRGB in [0, 1]: the relief layer's colours on a slope lit by the sun, on flat ground
+    and on a slope facing away (shade sin(altitude +- TONE_SLOPE), sin(altitude))."""
+    import math
+
+    o = layer.spec.options
+    s = [math.sin(math.radians(min(90.0, o.altitude + TONE_SLOPE))),
+         math.sin(math.radians(o.altitude)),
+         max(0.0, math.sin(math.radians(o.altitude - TONE_SLOPE)))]
+    rgb8 = np.asarray(layer.palette.rgb8, float)
+    levels = len(rgb8) - 1                                    # the last entry is no-data
+    return rgb8[np.rint(np.array(s) * (levels - 1)).astype(int)] / 255.0
+
+
+def seen_under_relief(background, layers, layer) -> Callable | None:
+    """A function from colours (n, 3) in [0, 1] of ``layer`` to (n, k, 3): each colour composited
+    with the style's relief layers (each at its k tones, :func:`relief_tones`) in layer order, with
+    their blend modes and opacities, over the map background -- what the reader sees of that
+    colour on lit, flat and shaded ground. None when the style has no relief layer."""
+    from compose.composite import composite_over
+
+    reliefs = [la for la in layers if la.spec.kind == "relief"]
+    if not reliefs:
+        return None
+    stack = [la for la in layers if la is layer or la.spec.kind == "relief"]
+
+    def seen(rgb: np.ndarray) -> np.ndarray:
+        rgb = np.asarray(rgb, np.float32).reshape(-1, 3)
+        n = len(rgb)
+        out = np.empty((n, 3, 3), np.float32)
+        for k in range(3):
+            canvas = np.empty((3, n, 1), np.float32)
+            canvas[:] = np.asarray(background, np.float32).reshape(3, 1, 1)
+            for la in stack:
+                if la is layer:
+                    src = rgb.T.reshape(3, n, 1)
+                else:
+                    src = relief_tones(la)[k].astype(np.float32).reshape(3, 1, 1)
+                composite_over(canvas, src, np.float32(la.spec.opacity), la.spec.blend, out=canvas)
+            out[:, k] = canvas[:, :, 0].T
+        return np.clip(out, 0.0, 1.0)
+
+    return seen
 
 
 def ramp_marks(ramp) -> list[tuple[float, str]]:
@@ -289,12 +345,70 @@ def _shared_scale(block: RampsBlock, x0, x1) -> tuple[np.ndarray, np.ndarray]:
     return np.array([lo, hi]), np.array([x0, x1])
 
 
+def _row_height(kind: str) -> float:
+    return FAMILY_ROW if kind == "family" else CLASS_ROW
+
+
+def split_rows(rows: list, n: int) -> list[list]:
+    """Class rows shared out in order over ``n`` columns of about equal height (a family
+    heading never ends a column)."""
+    total = sum(_row_height(k) for k, _ in rows)
+    cols: list[list] = [[]]
+    used = 0.0
+    for row in rows:
+        h = _row_height(row[0])
+        if len(cols) < n and cols[-1] and used + h / 2 > total / n * len(cols):
+            if cols[-1][-1][0] == "family":            # keep a heading with its first class
+                cols.append([cols[-1].pop()])
+            else:
+                cols.append([])
+        cols[-1].append(row)
+        used += h
+    return cols
+
+
+def _class_width(b: ClassesBlock) -> float:
+    """Inches one column of ``b``'s rows needs: swatch, gap and the longest label at FONT."""
+    from compose.layers.draw import measure_text
+
+    widest = max((measure_text(item.label or b.fmt(item.value), FONT).width / 72.0
+                  for k, item in b.rows if k == "class"), default=0.0)
+    return 0.38 + widest + 0.15
+
+
+def set_columns(b: ClassesBlock, n: int, width: float) -> None:
+    """Lay ``b``'s class rows in up to ``n`` columns, as many as fit in ``width`` inches."""
+    indent = 0.12 if any(k == "family" for k, _ in b.rows) else 0.0
+    room = width - 2 * MARGIN - indent
+    n = max(1, min(n, int(room // max(_class_width(b), 1e-6)), len(b.rows) // 2 or 1))
+    b.columns = split_rows(b.rows, n)
+    tallest = max(sum(_row_height(k) for k, _ in col) for col in b.columns)
+    b.height = (TITLE_H + tallest + (SWATCH_ROW + 0.04 if b.swatches else 0.0) + 0.04
+                + (NOTE_ROW if b.seen is not None else 0.0))
+
+
 def legend_layout(style, ramps, layers, width: float = WIDTH,
-                  nodata_seen: set[str] | None = None) -> LegendLayout:
+                  nodata_seen: set[str] | None = None, columns: int = 1) -> LegendLayout:
     """The legend's size and bar boxes (see :class:`LegendLayout`) without drawing it;
     ``width`` in inches (a page's panel gives its own); ``nodata_seen``: names of the layers with
-    no-data pixels on the map (their no-data swatches are shown; None shows every one)."""
+    no-data pixels on the map (their no-data swatches are shown; None shows every one);
+    ``columns``: class lists are laid in up to this many columns (as many as their labels allow
+    at ``width``)."""
     blocks = _blocks(layers, nodata_seen)
+    for b in blocks:                       # shaded keys: the colours as seen under the relief
+        first = b.layers[0] if isinstance(b, RampsBlock) else getattr(b, "layer", None)
+        key = _key(first) if first is not None else None
+        if key is not None and key.shaded:
+            b.seen = seen_under_relief(style.map.background, layers, first)
+            if b.seen is not None:
+                b.height += NOTE_ROW
+        if isinstance(b, ClassesBlock) and columns > 1:
+            set_columns(b, columns, width)
+    return assemble(blocks, width)
+
+
+def assemble(blocks: list, width: float = WIDTH) -> LegendLayout:
+    """The :class:`LegendLayout` of ``blocks`` stacked from the top at ``width`` inches."""
     height = TOP + sum(b.height for b in blocks) + GAP * max(0, len(blocks) - 1) + BOTTOM
     if not blocks:
         height = TOP + 0.3 + BOTTOM

@@ -17,7 +17,7 @@ from compose.page.geometry import grid_lines
 from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
 from compose.page.vectors import emit_layer
 
-__all__ = ["page_figure", "format_coordinate", "FONT"]
+__all__ = ["page_figure", "format_coordinate", "shrink_artists", "FONT"]
 
 FONT = "DejaVu Sans"
 _IN = 25.4
@@ -167,6 +167,8 @@ class _Page:
         ax = self.axes_at(box)
         ax.patch.set_visible(False)
         draw_legend(ax, legend_layout, key_patch=key_patch)
+        if piece.scale < 1.0:             # shrunk to fit the panel: type and strokes too
+            shrink_artists(ax, piece.scale)
 
     def grid(self, canvas):
         from pyproj import CRS
@@ -200,6 +202,28 @@ class _Page:
                             self.text(edge + sign * (tick + 0.5), yc, label, 5.5,
                                       ha="center", va="bottom" if sign < 0 else "top",
                                       rotation=90, rotation_mode="anchor")
+
+
+def shrink_artists(ax, s: float) -> None:
+    """Scale every size given in points in ``ax`` by ``s`` (type, line widths, markers, halos),
+    so a legend drawn into an axes ``s`` times its size keeps its proportions."""
+    from matplotlib.patheffects import Stroke, withStroke
+
+    for t in ax.texts:
+        t.set_fontsize(t.get_fontsize() * s)
+        effects = []
+        for e in t.get_path_effects():
+            kw = getattr(e, "_gc", {})
+            if isinstance(e, (Stroke, withStroke)) and "linewidth" in kw:
+                kw = dict(kw, linewidth=kw["linewidth"] * s)
+                e = type(e)(**kw) if isinstance(e, withStroke) else Stroke(**kw)
+            effects.append(e)
+        t.set_path_effects(effects)
+    for line in ax.lines:
+        line.set_linewidth(line.get_linewidth() * s)
+        line.set_markersize(line.get_markersize() * s)
+    for patch in ax.patches:
+        patch.set_linewidth(patch.get_linewidth() * s)
 
 
 def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(),

@@ -9,7 +9,9 @@ Bands and blocks, each sized from its content (common practice, no source):
 * or, for a piece placed in a corner, a paper-coloured box inside the frame's corner (pieces in
   the same corner stack inward); labels keep clear of these boxes (:func:`blocked_pixels`).
 
-Nothing overlaps: a legend taller than the room left in the panel is an error naming the key.
+Nothing overlaps: a legend taller than the room left in the panel is shrunk to fit (type, rows
+and samples together, ``Piece.scale``); when that would go below :data:`MIN_SCALE` the page
+writer first reflows its class lists into columns (:func:`compose.page.write.fit_legend`).
 Coordinates: mm from the sheet's top-left corner, y down; a :data:`Box` is (x, y, w, h).
 """
 from __future__ import annotations
@@ -19,7 +21,7 @@ from dataclasses import dataclass, field
 from compose.errors import StyleError
 from compose.page.geometry import MM_PER_INCH, ScaleBar, north_angle, page_canvas, scale_bar
 
-__all__ = ["Box", "Piece", "PageLayout", "PANEL_WIDTH", "GAP", "TITLE_PT", "SUBTITLE_PT",
+__all__ = ["MIN_SCALE", "FLOOR_SCALE", "Box", "Piece", "PageLayout", "PANEL_WIDTH", "GAP", "TITLE_PT", "SUBTITLE_PT",
            "NOTE_PT", "page_room", "page_layout", "blocked_pixels", "PT_MM"]
 
 Box = tuple[float, float, float, float]
@@ -32,6 +34,11 @@ TITLE_PT, SUBTITLE_PT, NOTE_PT = 15.0, 9.5, 6.5
 LINE = 1.3                          # line height / font size
 SCALEBAR_H, NORTH_W, NORTH_H = 11.0, 10.0, 15.0   # mm
 GRID_ROOM = 5.0                     # mm around the frame for grid labels
+#: the smallest shrink of a legend in the panel before it is reflowed into columns (8 pt type
+#: becomes 5.6 pt; common practice, no source: map type under ~5-6 pt gets hard to read)
+MIN_SCALE = 0.7
+#: below this the legend is refused (type under ~3 pt): a larger paper or fewer classes is needed
+FLOOR_SCALE = 0.4
 
 
 @dataclass(frozen=True, slots=True)
@@ -42,6 +49,7 @@ class Piece:
     kind: str
     box: Box
     inside: bool = False
+    scale: float = 1.0                # the legend drawn at this fraction of its size
 
 
 @dataclass(frozen=True, slots=True)
@@ -155,11 +163,9 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
     if sizes["legend"] is not None and places["legend"] == "panel":
         lw, lh = sizes["legend"]
         room = panel_bottom - panel_top - (bottom_row + GAP if bottom_row else 0.0)
-        if lh > room + 0.01:
-            raise StyleError(f"page.legend: the legend is {lh:.0f} mm tall but the panel has "
-                             f"{room:.0f} mm; place it in a corner, use a larger paper or a "
-                             f"landscape orientation")
-        pieces.append(Piece("legend", (px, panel_top, lw, lh)))
+        scale = min(1.0, max(room, 1e-6) / lh if lh > room + 0.01 else 1.0,
+                    PANEL_WIDTH / lw if lw > PANEL_WIDTH + 0.01 else 1.0)
+        pieces.append(Piece("legend", (px, panel_top, lw * scale, lh * scale), scale=scale))
     if sizes["scalebar"] is not None and places["scalebar"] == "panel":
         sw, sh = sizes["scalebar"]
         pieces.append(Piece("scalebar", (px, panel_bottom - sh, sw, sh)))

@@ -16,7 +16,7 @@ import numpy as np
 from compose.page.layout import PageLayout, blocked_pixels, page_layout
 from compose.page.vectors import is_vector
 
-__all__ = ["PageSink", "vector_split", "legend_for_page", "write_page", "page_png",
+__all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_page", "page_png",
            "write_page_png", "world_file_text",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
@@ -62,18 +62,51 @@ def _legend_width_in() -> float:
     return PANEL_WIDTH / 25.4
 
 
-def legend_for_page(style, ramps, layers, nodata_seen: set[str] | None = None):
+def legend_for_page(style, ramps, layers, nodata_seen: set[str] | None = None,
+                    columns: int = 1, width: float | None = None):
     """The legend's layout at the page's legend width, or None when the page has no legend;
-    ``nodata_seen``: the layers with no-data pixels (see :func:`compose.output.legend_layout`)."""
+    ``nodata_seen``: the layers with no-data pixels (see :func:`compose.output.legend_layout`);
+    ``columns``: class lists in up to this many columns; ``width``: inches (default the panel's)."""
     if style.page.legend == "off":
         return None
     from compose.output.legend import legend_layout
-    return legend_layout(style, ramps, layers, width=_legend_width_in(), nodata_seen=nodata_seen)
+    return legend_layout(style, ramps, layers, width=width or _legend_width_in(),
+                         nodata_seen=nodata_seen, columns=columns)
 
 
 def _layout(style, legend) -> PageLayout:
     size = (legend.width * 25.4, legend.height * 25.4) if legend is not None else None
     return page_layout(style, size)
+
+
+def fit_legend(style, ramps, layers, nodata_seen=None):
+    """The page's legend layout: as it is when the panel holds it shrunk to no less than
+    :data:`compose.page.layout.MIN_SCALE`; else the least shrunk of its class lists reflowed into
+    2-4 columns, laid out wider (panel width / shrink) so the shrunk legend fills the panel's
+    width. A legend that would need shrinking below :data:`compose.page.layout.FLOOR_SCALE` is an
+    error naming the key. None without a legend."""
+    from compose.errors import StyleError
+    from compose.page.layout import FLOOR_SCALE, MIN_SCALE, PANEL_WIDTH
+
+    legend = legend_for_page(style, ramps, layers, nodata_seen)
+    if legend is None or style.page.legend != "panel":
+        return legend
+    best, best_scale = legend, _layout(style, legend).piece("legend").scale
+    if best_scale < MIN_SCALE:
+        for n in (2, 3, 4):
+            for s in np.arange(0.98, FLOOR_SCALE - 1e-9, -0.02):
+                if s <= best_scale:             # the shrink is at most s: no gain below
+                    break
+                flowed = legend_for_page(style, ramps, layers, nodata_seen, columns=n,
+                                         width=PANEL_WIDTH / 25.4 / s)
+                scale = _layout(style, flowed).piece("legend").scale
+                if scale > best_scale + 1e-6:
+                    best, best_scale = flowed, scale
+    if best_scale < FLOOR_SCALE:
+        raise StyleError(f"page.legend: the legend needs shrinking to {best_scale:.0%} to fit the "
+                         f"panel even in columns; use a larger paper, place it in a corner or show "
+                         f"fewer classes (legend.show)")
+    return best
 
 
 def blocked_for(style, ramps, layers) -> list[tuple[float, float, float, float]]:
@@ -84,7 +117,7 @@ def blocked_for(style, ramps, layers) -> list[tuple[float, float, float, float]]
     inside = [style.page.legend, style.page.north, style.page.scalebar.place]
     if all(p in ("panel", "off") for p in inside):
         return []
-    return blocked_pixels(_layout(style, legend_for_page(style, ramps, layers)))
+    return blocked_pixels(_layout(style, fit_legend(style, ramps, layers)))
 
 
 def stand_in(spec):
@@ -100,7 +133,7 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
 
     from compose.page.draw import page_figure
 
-    legend = legend_for_page(style, run_.ramps, run_.layers, nodata_seen)
+    legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
     layout = _layout(style, legend)
     seconds = {}
     meta_title = layout.title or style.name
@@ -147,10 +180,16 @@ def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -
     h = max(0, min(image.shape[0], H - r0))
     w = max(0, min(image.shape[1], W - c0))
     under[r0:r0 + h, c0:c0 + w] = image[:h, :w]
-    # straight alpha over: out = top a + under (1 - a), in integers rounded to nearest
-    a = top[..., 3:4].astype(np.uint16)
-    out = (top[..., :3].astype(np.uint16) * a + under.astype(np.uint16) * (255 - a) + 127) // 255
-    return out.astype(np.uint8)
+    # straight alpha over, only where the furniture has ink: top a + under (1 - a), rounded
+    alpha = top[..., 3]
+    solid = alpha == 255
+    under[solid] = top[..., :3][solid]
+    rows, cols = np.nonzero((alpha > 0) & ~solid)
+    a = alpha[rows, cols].astype(np.uint16)[:, None]
+    mixed = (top[rows, cols, :3].astype(np.uint16) * a
+             + under[rows, cols].astype(np.uint16) * (255 - a) + 127) // 255
+    under[rows, cols] = mixed.astype(np.uint8)
+    return under
 
 
 def write_page_png(path: Path, style, layout: PageLayout, image: np.ndarray, legend,

@@ -147,15 +147,17 @@ def _number_format(value: Any, at: Scope) -> str:
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class LegendKey:
-    """``legend = { title, units, format, show }`` of a raster layer: the legend block's title
-    (default the layer name), its units (shown after the title), a number format for its values
-    (a Python format spec such as ".1f"; default up to 4 significant digits) and, for classes
-    layers, the class values to show (default all)."""
+    """``legend = { title, units, format, show, shaded }`` of a raster layer: the legend block's
+    title (default the layer name), its units (shown after the title), a number format for its
+    values (a Python format spec such as ".1f"; default up to 4 significant digits), for classes
+    layers the class values to show (default all), and ``shaded``: draw the colour bar and
+    swatches as the reader sees them under the style's relief (lit slope, flat, shaded slope)."""
 
     title: str | None = option(string(), None)
     units: str = option(string(), "")
     format: str | None = option(_number_format, None)
     show: tuple[float, ...] | None = option(numbers(), None)
+    shaded: bool = option(boolean(), False)
 
 
 _legend_key = table_of(LegendKey)
