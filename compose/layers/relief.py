@@ -14,10 +14,62 @@ from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
 from compose.sources.raster import cell_size_metres
 
-__all__ = ["ReliefLayer", "relief_palette", "LEVELS", "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
+__all__ = ["ReliefLayer", "relief_palette", "ground_cell_size", "ground_scale", "LEVELS",
+           "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
 
 SAMPLE_WINDOWS = 9    # windows of the canvas read to measure the terrain for "auto" stretch
 SAMPLE_SIZE = 128     # their side in canvas pixels (9 x 128^2 cells: a steady 95th percentile)
+
+
+def ground_scale(crs):
+    """For a Mercator-family CRS (scale depending on latitude only, e.g. Web Mercator,
+    EPSG:3857): a function from projected y values to (ground metres per projected unit along x,
+    along y) there, on the CRS's own ellipsoid -- the parallel's radius N cos(phi) and the
+    meridian's M times the degrees a projected unit spans (central differences through pyproj);
+    None for any other CRS, whose nominal cell size is used as it is (UTM and national grids stay
+    within a fraction of a percent of the ground)."""
+    from pyproj import CRS, Transformer
+
+    crs = CRS.from_user_input(crs)
+    op = crs.coordinate_operation
+    method = op.method_name.lower() if op is not None else ""
+    if not crs.is_projected or "mercator" not in method or "transverse" in method:
+        return None
+    to_geo = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
+    ell = crs.ellipsoid
+    a, b = float(ell.semi_major_metre), float(ell.semi_minor_metre)
+    e2 = 1.0 - (b / a) ** 2
+    unit = float(crs.axis_info[0].unit_conversion_factor)    # metres per projected unit
+
+    def scale(y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        y = np.asarray(y, float)
+        zero = np.zeros_like(y)
+        lon_w, lat = to_geo.transform(zero - 0.5, y)
+        lon_e, _ = to_geo.transform(zero + 0.5, y)
+        _, lat_s = to_geo.transform(zero, y - 0.5)
+        _, lat_n = to_geo.transform(zero, y + 0.5)
+        phi = np.radians(lat)
+        w = 1.0 - e2 * np.sin(phi) ** 2
+        n, m = a / np.sqrt(w), a * (1.0 - e2) / w ** 1.5
+        gx = n * np.cos(phi) * np.radians(np.asarray(lon_e) - np.asarray(lon_w))
+        gy = m * np.radians(np.asarray(lat_n) - np.asarray(lat_s))
+        return gx / unit, gy / unit
+
+    return scale
+
+
+def ground_cell_size(crs, transform, height: int, scale=None):
+    """(dx, dy) metres on the ground of a north-up grid's cells: :func:`cell_size_metres`, or on
+    a Mercator-family CRS (``scale`` from :func:`ground_scale`) the projected cell size times the
+    ground metres per projected metre -- dx per row at the row's centre ((height, 1) array), dy at
+    the grid's middle row -- so relief is shaded on the true ground slope at every latitude."""
+    if scale is None:
+        return cell_size_metres(crs, transform, height)
+    rows = np.arange(int(height), dtype=float)[:, None] + 0.5
+    gx, _ = scale((transform.f + transform.e * rows).ravel())
+    _, gy = scale(np.array([transform.f + transform.e * (int(height) / 2.0)]))
+    unit = abs(transform.a), abs(transform.e)
+    return unit[0] * gx.reshape(-1, 1), float(unit[1] * gy[0])
 
 
 def relief_palette(tint, shadow, strength: float, altitude: float) -> Palette:
@@ -42,6 +94,7 @@ class ReliefLayer:
         self.source = open_raster(spec, self.canvas, decimate=context.draft)
         # the style fills ``shadow`` from the tint when it is not given (compose.ramps.relief.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
+        self.scale = ground_scale(self.canvas.crs)
         self.stretch = self._stretch() if o.stretch == "auto" else 1.0
         self.exaggeration = o.exaggeration * self.stretch
 
@@ -56,14 +109,14 @@ class ReliefLayer:
             win = wins[int(i)]
             transform = self.canvas.window_transform(win)
             dem = self.source.read_window(self.canvas, win, o.resampling)
-            dx, dy = cell_size_metres(self.canvas.crs, transform, dem.shape[0])
+            dx, dy = ground_cell_size(self.canvas.crs, transform, dem.shape[0], self.scale)
             samples.append((dem, dx, dy))
         return stretch_factor(samples, o.azimuth, o.altitude, o.directions)
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
         dem = self.source.read_window(self.canvas, window, o.resampling)
-        dx, dy = cell_size_metres(self.canvas.crs, transform, height)
+        dx, dy = ground_cell_size(self.canvas.crs, transform, height, self.scale)
         shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
                                  exaggeration=self.exaggeration, directions=o.directions)
         valid = np.isfinite(shade)
