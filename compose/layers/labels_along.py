@@ -350,6 +350,8 @@ def place_along(items, transform, width: int, height: int, *, size_px: float,
     from compose.layers.label_placement import BoxGrid
 
     grid = grid if grid is not None else BoxGrid()
+    if not float(size_px) >= 1.0:                  # under a pixel: nothing to set
+        return [], [str(t) for _g, t, _p in items]
     grow = max(float(halo_px), 0.0) / 2.0
     prepared = []
     for geom, text, prio in items:

@@ -115,6 +115,12 @@ def _grid(value: Any, at: Scope) -> GridSpec:
     return build_from_table(GridSpec, as_table(value, at), at)
 
 
+#: How the PDF embeds its fonts: "outlines" (each glyph used as a drawing procedure, a Type 3
+#: font: quick to write, still real text for search and extraction) or "truetype" (subsets of
+#: the TrueType files: what prepress checks prefer, about 1-2 s more per page).
+PDF_FONTS = ("outlines", "truetype")
+
+
 @dataclass(frozen=True, slots=True, kw_only=True)
 class PageSpec:
     """``[page]``: see docs/style.md "Page". ``paper`` is portrait (w, h) mm before
@@ -138,6 +144,7 @@ class PageSpec:
     scalebar: ScaleBarSpec = option(_scalebar, factory=ScaleBarSpec)
     grid: GridSpec | None = option(_grid, None)
     neatline: bool = option(boolean(), True)
+    pdf_fonts: str = option(choice(PDF_FONTS, "PDF font embedding"), "outlines")
 
     @property
     def size(self) -> tuple[float, float]:

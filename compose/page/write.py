@@ -2,8 +2,9 @@
 NAME.pdf, NAME.svg and NAME.page.png from one figure (:mod:`compose.page.draw`), and the world
 file beside the map PNG.
 
-The PDF and SVG keep text as text (TrueType fonts embedded in the PDF, so it is searchable;
-``<text>`` elements in the SVG) and are at the paper's physical size.
+The PDF and SVG keep text as text (fonts embedded in the PDF as glyph outlines or TrueType
+subsets, ``page.pdf_fonts``, searchable either way; ``<text>`` elements in the SVG) and are at
+the paper's physical size.
 """
 from __future__ import annotations
 
@@ -20,9 +21,11 @@ __all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_p
            "write_page_png", "world_file_text",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
-#: matplotlib settings of the vector writers: text stays text.
-RC = {"pdf.fonttype": 42, "svg.fonttype": "none", "lines.scale_dashes": False,
+#: matplotlib settings of the vector writers: text stays text (``pdf.fonttype`` follows
+#: ``page.pdf_fonts``: 3 for outlines, 42 for TrueType).
+RC = {"pdf.fonttype": 3, "svg.fonttype": "none", "lines.scale_dashes": False,
       "path.simplify": False}
+PDF_FONTTYPE = {"outlines": 3, "truetype": 42}
 
 
 def vector_split(layers) -> int:
@@ -140,7 +143,8 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     vectors = run_.layers[sink.below:]
     from compose.page.encode import fast_png
 
-    with rc_context(RC), fast_png():
+    rc = dict(RC, **{"pdf.fonttype": PDF_FONTTYPE[style.page.pdf_fonts]})
+    with rc_context(rc), fast_png():
         t = time.perf_counter()
         fig = page_figure(style, layout, sink.base, layers=vectors, legend_layout=legend)
         fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
@@ -157,6 +161,11 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     return seconds, layout
 
 
+#: the page PNG is drawn at no fewer dots per inch than this (a canvas of a few pixels per inch
+#: is then enlarged into the frame, nearest neighbour), so its type stays drawable
+MIN_PAGE_DPI = 72.0
+
+
 def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -> np.ndarray:
     """The page as (H, W, 3) uint8 at ``dpi``: the furniture drawn by Agg on a transparent
     page, laid over the paper with the finished map pasted pixel for pixel into the frame (the
@@ -165,6 +174,7 @@ def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -
 
     from compose.page.draw import page_figure
 
+    dpi = max(float(dpi), MIN_PAGE_DPI)          # type needs a few pixels per point
     fig = page_figure(style, layout, None, legend_layout=legend)
     paper = fig.get_facecolor()
     fig.patch.set_alpha(0.0)
@@ -175,8 +185,13 @@ def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -
     H, W = top.shape[:2]
     under = np.empty((H, W, 3), np.uint8)
     under[:] = np.round(np.array(paper[:3]) * 255).astype(np.uint8)
-    fx, fy = layout.frame[0], layout.frame[1]
+    fx, fy, fw, fh = layout.frame
     c0, r0 = int(round(fx / 25.4 * dpi)), int(round(fy / 25.4 * dpi))
+    size = (int(round(fh / 25.4 * dpi)), int(round(fw / 25.4 * dpi)))
+    if image.shape[:2] != size and min(size) > 0:   # a coarse canvas: nearest up to the frame
+        rows = np.minimum((np.arange(size[0]) + 0.5) * image.shape[0] / size[0], image.shape[0] - 1)
+        cols = np.minimum((np.arange(size[1]) + 0.5) * image.shape[1] / size[1], image.shape[1] - 1)
+        image = image[rows.astype(int)][:, cols.astype(int)]
     h = max(0, min(image.shape[0], H - r0))
     w = max(0, min(image.shape[1], W - c0))
     under[r0:r0 + h, c0:c0 + w] = image[:h, :w]
@@ -197,7 +212,7 @@ def write_page_png(path: Path, style, layout: PageLayout, image: np.ndarray, leg
     """Write :func:`page_png` as a PNG at ``path`` (with its dpi)."""
     from compose.output.png import write_png
 
-    write_png(path, page_png(style, layout, image, legend, dpi), dpi=dpi)
+    write_png(path, page_png(style, layout, image, legend, dpi), dpi=max(dpi, MIN_PAGE_DPI))
 
 
 def world_file_text(canvas) -> str:

@@ -238,3 +238,30 @@ def test_curved_names_land_in_the_pdf_where_the_raster_has_them(tmp_path):
     blue_png = (png[..., 2] - png[..., 0] > 40)[3:-3, 3:-3]
     assert blue_png.sum() > 100
     assert np.sum(blue_pdf & blue_png) / np.sum(blue_pdf | blue_png) > 0.75
+
+
+@needs_poppler
+@pytest.mark.parametrize("fonts,kind", [("outlines", "Type 3"), ("truetype", "TrueType")])
+def test_pdf_fonts_embedded_as_asked_and_text_extractable(tmp_path, fonts, kind):
+    style = _style(tmp_path, PAGE + f'pdf_fonts = "{fonts}"\n')
+    result = render_style(style, tmp_path / "out", html=False, check=False)
+    listing = subprocess.run(["pdffonts", str(result.outputs["pdf"])], capture_output=True,
+                             text=True, check=True).stdout
+    rows = listing.splitlines()[2:]
+    assert rows and all(kind in row for row in rows)
+    text = subprocess.run(["pdftotext", str(result.outputs["pdf"]), "-"], capture_output=True,
+                          text=True, check=True).stdout
+    assert "Tiny page title" in text and "not for navigation" in text
+
+
+def test_a_coarse_canvas_still_gets_a_readable_page_png(tmp_path):
+    """A canvas of a few pixels per inch (a huge map.pixel): the page PNG is drawn at 72 dpi
+    with the map enlarged into its frame, instead of failing on sub-pixel type."""
+    path = tiny_style(tmp_path, extra=False)
+    path.write_text(path.read_text().replace("pixel      = 30", "pixel      = 480")
+                    + textwrap.dedent(PAGE.replace("scale       = 25000\n", "")))
+    result = render_style(load_style(path), tmp_path / "out", html=False, check=False)
+    from PIL import Image
+    with Image.open(result.outputs["page"]) as im:
+        w, h = im.size
+    assert abs(w - 210 / 25.4 * 72) <= 1 and abs(h - 148 / 25.4 * 72) <= 1   # A5 landscape
