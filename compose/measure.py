@@ -28,6 +28,7 @@ from compose.check.stats import (
     Statistics,
     beneath_color_codes,
     contrast_bins,
+    lightness_bins_of_luminance,
     lightness_bins_of_rgb8,
     luminance_of_rgb8,
 )
@@ -79,16 +80,17 @@ def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
 
 
 def _take8(planes: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """Pixels ``idx`` (flat) of contiguous float or uint8 planes (3, h, w) -> (n, 3) uint8."""
-    out = np.empty((idx.size, 3), dtype=np.uint8)
+    """Pixels ``idx`` (flat) of contiguous float or uint8 planes (3, h, w) -> (n, 3) uint8
+    (a view of planar storage: each channel's column is contiguous)."""
+    out = np.empty((3, idx.size), dtype=np.uint8)
     for c in range(3):
         v = np.take(planes[c].reshape(-1), idx)
         if v.dtype != np.uint8:
             v *= np.float32(255)
             np.rint(v, out=v)
             np.clip(v, 0, 255, out=v)
-        out[:, c] = v
-    return out
+        out[c] = v
+    return out.T
 
 
 def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> np.ndarray:
@@ -127,13 +129,14 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
             weights = np.take(alpha.reshape(-1), pix)
             below8 = _take8(beneath, pix)
             y_part = float(relative_luminance(np.asarray(paint.color)))
-            part.contrast = _contrast_hist(y_part, luminance_of_rgb8(below8), weights)
+            y_below = luminance_of_rgb8(below8)
+            part.contrast = _contrast_hist(y_part, y_below, weights)
             if ground8 is not None:
                 part.ground_contrast = _contrast_hist(
                     y_part, luminance_of_rgb8(_take8(ground8, pix)), weights)
             else:                       # the layer's first part: beneath is the ground
                 part.ground_contrast = part.contrast.copy()
-            lb = lightness_bins_of_rgb8(below8)
+            lb = lightness_bins_of_luminance(y_below)
             part.beneath_lightness = np.bincount(lb, weights=weights, minlength=N_LIGHTNESS)
             part.beneath_colors = np.bincount(beneath_color_codes(below8), weights=weights,
                                               minlength=N_BENEATH)
@@ -195,9 +198,9 @@ class WindowMeasure:
             # pixels, on the canvas's own even grid so windows agree) estimates it as well.
             r_off, c_off = (self.window.row % 2), (self.window.col % 2)
             sub = (slice(r_off, None, GRAY_STRIDE), slice(c_off, None, GRAY_STRIDE))
-            sampled = np.ascontiguousarray(rgb8[sub]).reshape(-1, 3)
-            lightness = lightness_bins_of_rgb8(sampled)
-            linear = _LINEAR8[sampled]        # (k, 3) linear-light RGB of the composite
+            # planar (3, k): each channel contiguous
+            sampled = np.ascontiguousarray(np.moveaxis(rgb8[sub], -1, 0)).reshape(3, -1)
+            lightness = lightness_bins_of_rgb8(sampled.T)
             shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
             # a theme drawn later (more than half there) hides an earlier one: the earlier
             # theme's blended colours are counted only where it is not covered that way
@@ -210,25 +213,28 @@ class WindowMeasure:
             for (li, index, a_core), above in zip(themes, covered_above):
                 s = self.stats.layers[li]
                 assert s.value_lightness is not None          # filtered above
-                keep = a_core[sub].ravel() > 0.5
+                a_s = a_core[sub].ravel()
+                idx = index[sub].ravel()
+                keep = a_s > 0.5
                 if shown is not None:   # grey order is judged where the theme shows, not under lines
                     keep &= shown
                 n = s.value_lightness.shape[0]
-                cell = index[sub].ravel().astype(np.int32) * N_LIGHTNESS + lightness
+                cell = idx.astype(np.int32) * N_LIGHTNESS + lightness
                 if not keep.all():
                     cell = cell[keep]
                 s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS).reshape(
                     n, N_LIGHTNESS)
                 if s.value_color is not None and s.value_count is not None:   # blended colours
-                    drawn = a_core[sub].ravel() > 0   # wherever it is drawn, however faint
+                    drawn = a_s > 0   # wherever it is drawn, however faint
                     if shown is not None:
                         drawn &= shown
                     if above is not None:
                         drawn &= above <= 0.5
-                    idx = index[sub].ravel()
-                    lin = linear if drawn.all() else linear[drawn]
-                    idx = idx if drawn.all() else idx[drawn]
-                    s.value_count += np.bincount(idx, minlength=n)
-                    for c in range(3):
-                        s.value_color[:, c] += np.bincount(idx, weights=lin[:, c], minlength=n)
+                    every = drawn.all()
+                    ids = idx if every else idx[drawn]
+                    s.value_count += np.bincount(ids, minlength=n)
+                    for c in range(3):   # linear-light channel values of the composite
+                        codes = sampled[c] if every else sampled[c][drawn]
+                        s.value_color[:, c] += np.bincount(ids, weights=np.take(_LINEAR8, codes),
+                                                           minlength=n)
         return self.stats

@@ -19,7 +19,7 @@ from compose.color.wcag import WCAG_Y
 
 __all__ = ["CONTRAST_STEP", "N_CONTRAST", "N_LIGHTNESS", "BENEATH_BITS", "N_BENEATH", "PartStats",
            "LayerStats", "Statistics", "weighted_percentiles", "spearman_from_table",
-           "lightness_of_rgb8", "lightness_bins_of_rgb8", "luminance_of_planes", "luminance_of_rgb8",
+           "lightness_of_rgb8", "lightness_bins_of_rgb8", "lightness_bins_of_luminance", "luminance_of_planes", "luminance_of_rgb8",
            "contrast_bins",
            "contrast_share", "beneath_color_codes", "beneath_color_centres", "histogram_percentiles"]
 
@@ -59,8 +59,13 @@ _L_BIN = np.clip(np.rint(116 * np.where(np.arange(_Y_LEVELS) / (_Y_LEVELS - 1) >
 def lightness_bins_of_rgb8(rgb8: np.ndarray) -> np.ndarray:
     """Rounded CIELAB L* (uint8, 0..100) of 8-bit sRGB pixels (n, 3): Y by lookup tables, then a
     65536-entry Y -> L* table (equal to rint(L*) except within ~0.01 of a half-integer)."""
-    y = luminance_of_rgb8(rgb8)
-    y *= np.float32(_Y_LEVELS - 1)
+    return lightness_bins_of_luminance(luminance_of_rgb8(rgb8))
+
+
+def lightness_bins_of_luminance(y: np.ndarray) -> np.ndarray:
+    """:func:`lightness_bins_of_rgb8` from the pixels' luminance (float32 (n,), as
+    :func:`luminance_of_rgb8` gives it; not changed), for callers that have it already."""
+    y = np.multiply(y, np.float32(_Y_LEVELS - 1))
     y += np.float32(0.5)
     idx = y.astype(np.int32)
     np.minimum(idx, _Y_LEVELS - 1, out=idx)
