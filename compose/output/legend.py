@@ -122,8 +122,8 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
         # out-of-domain colours: a separate square at each end, a sign on its outer side
         for index, left, sign, side in ((lut.outside_low_index, x0 - END_GAP - END_W, "<", -1),
                                         (lut.outside_high_index, x1 + END_GAP, ">", 1)):
-            ax.add_patch(Rectangle((left, top), END_W, bottom - top, edgecolor=FRAME, lw=0.4,
-                                   facecolor=np.asarray(lut.rgb8[index]) / 255, zorder=2))
+            _swatch(ax, left, top, END_W, bottom - top, np.asarray(lut.rgb8[index]) / 255, b.seen,
+                    zorder=2)
             ax.text(left + END_W / 2 + side * (END_W / 2 + 0.035), mid, sign, fontsize=FONT - 0.6,
                     color=MUTED, ha="center", va="center")
         ax.add_patch(Rectangle((x0, top), x1 - x0, bottom - top, fill=False, edgecolor=FRAME,
@@ -146,24 +146,36 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
         ax.plot([x], [bar_top - 0.045], marker="v", ms=3.6, color=INK, zorder=4)
         ax.text(x, bar_top - 0.085, text, fontsize=FONT - 1, color=INK, ha="center", va="bottom")
     y_sw = bar_bottom + AXIS_H
-    _draw_swatches(ax, b.swatches, x0 - END + END_SIGN, y_sw)
+    _draw_swatches(ax, b.swatches, x0 - END + END_SIGN, y_sw, b.seen)
     if b.seen is not None:
         ax.text(x0 - END + END_SIGN, y_sw + (SWATCH_ROW if b.swatches else 0.0) + NOTE_ROW * 0.45,
                 SHADED_NOTE, fontsize=FONT - 1.4, style="italic", color=MUTED, va="center")
 
 
-def _draw_swatches(ax, swatches, x: float, y: float) -> None:
+def _swatch(ax, x: float, y: float, w: float, h: float, rgb, seen=None, zorder: float = 1.0
+            ) -> None:
+    """A framed colour patch; with ``seen`` (a shaded key) three stripes, top to bottom the
+    colour on a lit slope, on flat ground and on a shaded slope."""
     from matplotlib.patches import Rectangle
 
+    if seen is None:
+        ax.add_patch(Rectangle((x, y), w, h, facecolor=tuple(rgb), edgecolor=FRAME, lw=0.4,
+                               zorder=zorder))
+        return
+    for k, tone in enumerate(seen(np.array([rgb]))[0]):
+        ax.add_patch(Rectangle((x, y + k * h / 3), w, h / 3, facecolor=tuple(tone),
+                               edgecolor="none", lw=0, zorder=zorder))
+    ax.add_patch(Rectangle((x, y), w, h, fill=False, edgecolor=FRAME, lw=0.4, zorder=zorder))
+
+
+def _draw_swatches(ax, swatches, x: float, y: float, seen=None) -> None:
     for label, rgb8 in swatches:
-        ax.add_patch(Rectangle((x, y + 0.03), 0.3, 0.145, facecolor=np.asarray(rgb8) / 255,
-                               edgecolor=FRAME, lw=0.4))
+        _swatch(ax, x, y + 0.03, 0.3, 0.145, np.asarray(rgb8) / 255, seen)
         ax.text(x + 0.38, y + 0.1, label, fontsize=FONT, color=INK, va="center")
         x += 0.38 + 0.075 * len(label) + 0.25
 
 
 def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
-    from matplotlib.patches import Rectangle
 
     ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center")
@@ -180,22 +192,13 @@ def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
                         fontsize=FONT - 0.4, style="italic", color=MUTED, va="center")
                 yy += FAMILY_ROW
                 continue
-            if b.seen is not None:     # three stripes: lit slope, flat ground, shaded slope
-                tones = b.seen(np.array([rgb01(item.rgb)]))[0]
-                for k, tone in enumerate(tones):
-                    ax.add_patch(Rectangle((x, yy + 0.03 + k * 0.145 / 3), 0.3, 0.145 / 3,
-                                           facecolor=tuple(tone), edgecolor="none", lw=0))
-                ax.add_patch(Rectangle((x, yy + 0.03), 0.3, 0.145, fill=False,
-                                       edgecolor=FRAME, lw=0.4))
-            else:
-                ax.add_patch(Rectangle((x, yy + 0.03), 0.3, 0.145, facecolor=rgb01(item.rgb),
-                                       edgecolor=FRAME, lw=0.4))
+            _swatch(ax, x, yy + 0.03, 0.3, 0.145, rgb01(item.rgb), b.seen)
             ax.text(x + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
                     color=INK, va="center")
             yy += CLASS_ROW
         bottom = max(bottom, yy)
     yy = bottom
-    _draw_swatches(ax, b.swatches, indent, yy + 0.04)
+    _draw_swatches(ax, b.swatches, indent, yy + 0.04, b.seen)
     if b.seen is not None:
         yy += (SWATCH_ROW + 0.04 if b.swatches else 0.0) + 0.04
         ax.text(indent, yy + NOTE_ROW * 0.45, SHADED_NOTE, fontsize=FONT - 1.4, style="italic",

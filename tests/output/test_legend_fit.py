@@ -50,6 +50,13 @@ def test_shaded_bar_shows_the_multiply_composite_under_three_relief_tones(tmp_pa
             row = int(box.y0 + h * (k + 0.5) / 3)
             want = np.round(tones[k] * c * 255)
             assert np.abs(rgb[row, col] - want).max() <= 3, (v, k, rgb[row, col], want)
+    # the out-of-domain end square is shaded alike
+    from compose.output.legend_layout import END_GAP, END_W
+    col = int(box.x0 - (END_GAP + END_W / 2) * DPI)
+    c = np.asarray(lut.rgb8[lut.outside_low_index], float) / 255
+    for k in range(3):
+        row = int(box.y0 + h * (k + 0.5) / 3)
+        assert np.abs(rgb[row, col] - np.round(tones[k] * c * 255)).max() <= 3
     # and the stripes differ: shaded ground reads darker than flat ground
     mid_col = int(np.floor(box.x_of((box.values[0] + box.values[-1]) / 2)))
     flat_row, dark_row = int(box.y0 + h * 0.5), int(box.y0 + h * 5 / 6)
