@@ -219,6 +219,7 @@ def _own_gap_fix(gap: float, what: str, vision: str) -> str:
 
 def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float
               ) -> tuple[str, Change | None]:
+    steps: list[tuple[str, Change]] = []
     if abs(tspec.opacity - bspec.opacity) > 1e-9 or tspec.blend != bspec.blend:
         values: dict = {}
         if abs(tspec.opacity - bspec.opacity) > 1e-9:
@@ -227,16 +228,42 @@ def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float
             values["blend"] = bspec.blend
         said = ", ".join(f"{k} = {v!r}" if isinstance(v, str) else f"{k} = {v:g}"
                          for k, v in values.items())
-        return (f'draw "{tspec.name}" as "{bspec.name}" is drawn: {said} (a twin blended '
-                "differently reads as another value)", Change(layer_key(tspec.name), values))
+        steps.append((f'draw "{tspec.name}" as "{bspec.name}" is drawn: {said} (a twin blended '
+                      "differently reads as another value)", Change(layer_key(tspec.name), values)))
     own = _palette_gap(ctx, r, r.base, vision)
-    if own > limit:
+    if own > limit and not steps:
         return _own_gap_fix(own, f'the ramps "{r.name}" and "{r.base.name}"', vision), None
-    fix, change = _neutral_ground_fix(ctx, vision)
-    if change is not None:
-        return fix, change
-    return (f'draw "{tspec.name}" and "{bspec.name}" under the same layers (a layer blended over '
-            "one twin only shifts its lightness)"), None
+    steps += _blend_steps(ctx, [tspec, bspec], vision)
+    if not steps:
+        return (f'draw "{tspec.name}" and "{bspec.name}" under the same layers (a layer blended '
+                "over one twin only shifts its lightness)"), None
+    return _in_steps(steps)
+
+
+def _blend_steps(ctx: CheckContext, specs, vision: str) -> list[tuple[str, Change]]:
+    """Changes that make equal lightness stay equal once blended: a theme drawn at opacity < 1
+    mixes its colours with what lies beneath in gamma-encoded sRGB, which moves blue and brown of
+    one L* by different amounts (opacity 1); a coloured ground multiplied under the data does the
+    same (a neutral tint)."""
+    out = []
+    for spec in specs:
+        if spec.opacity < 1.0:
+            out.append((f'draw "{spec.name}" opaque: opacity = 1 (mixed with what lies beneath, '
+                        "colours of one L* drift apart)", Change(layer_key(spec.name),
+                                                                 {"opacity": 1.0})))
+    if any(s.blend != "normal" or s.opacity < 1.0 for s in specs):
+        text, change = _neutral_ground_fix(ctx, vision)
+        if change is not None:
+            out.append((text, change))
+    return out
+
+
+def _in_steps(steps: list[tuple[str, Change]]) -> tuple[str, Change]:
+    """One change now; the others named, for the next rounds of ``compose fix``."""
+    if len(steps) == 1:
+        return steps[0]
+    rest = "; then, if still apart, ".join(t for t, _ in steps[1:])
+    return f"two steps: first {steps[0][0]}; then, if still apart, {rest}", steps[0][1]
 
 
 def twin_lightness_map(ctx: CheckContext) -> list[RuleResult]:
@@ -301,8 +328,10 @@ def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
         if not passed and own > limit:
             fix = _own_gap_fix(own, f'the arms of ramp "{ramp.name}"', vision)
         elif not passed:
-            fix, change = _neutral_ground_fix(ctx, vision)
-            if change is None:
+            steps = _blend_steps(ctx, [spec], vision)
+            if steps:
+                fix, change = _in_steps(steps)
+            else:
                 fix = (f'the layers drawn with "{spec.name}" shade its arms unequally; check the '
                        f'ramp "{ramp.name}" in {vision} vision and the ground beneath')
         out.append(RuleResult(rule, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,

@@ -63,6 +63,16 @@ def make_data(folder: Path) -> dict[str, Path]:
                             nodata=np.nan)
     paths["east"] = _raster(folder / "east.tif", np.where(xx >= N / 2, rows, np.nan).astype(np.float32),
                             nodata=np.nan)
+    # values 0..10 scattered over the canvas (a fixed permutation): every value lies on many
+    # slopes, as a real field's values do; and the same split into a west and an east half
+    scatter = np.random.default_rng(7).permutation(rows.ravel()).reshape(N, N)
+    paths["scatter"] = _raster(folder / "scatter.tif", scatter.astype(np.float32), nodata=np.nan)
+    paths["scatter_west"] = _raster(folder / "scatter_west.tif",
+                                    np.where(xx < N / 2, scatter, np.nan).astype(np.float32),
+                                    nodata=np.nan)
+    paths["scatter_east"] = _raster(folder / "scatter_east.tif",
+                                    np.where(xx >= N / 2, scatter, np.nan).astype(np.float32),
+                                    nodata=np.nan)
     halves = np.where(xx < N / 2, 0.0, 10.0).astype(np.float32)
     paths["halves"] = _raster(folder / "halves.tif", halves, nodata=-9999.0)
     paths["classes"] = _raster(folder / "classes.tif", (1 + (xx // 16)).astype(np.uint8), nodata=0)
