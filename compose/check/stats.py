@@ -19,7 +19,8 @@ from compose.color.wcag import WCAG_Y
 
 __all__ = ["CONTRAST_STEP", "N_CONTRAST", "N_LIGHTNESS", "BENEATH_BITS", "N_BENEATH", "PartStats",
            "LayerStats", "Statistics", "weighted_percentiles", "spearman_from_table",
-           "lightness_of_rgb8", "lightness_bins_of_rgb8", "lightness_bins_of_luminance", "luminance_of_planes", "luminance_of_rgb8",
+           "lightness_of_rgb8", "lightness_bins_of_rgb8", "lightness_bins_of_luminance",
+           "luminance_of_planes", "luminance_of_rgb8",
            "contrast_bins",
            "contrast_share", "beneath_color_codes", "beneath_color_centres", "histogram_percentiles"]
 
