@@ -69,9 +69,19 @@ _XML_ROOTS = re.compile(rb"<\s*(VRTDataset|OGRVRTDataSource|GDAL_WMS|GDAL_WMTS|T
                         rb"WMS_Tile_Service|Capabilities|Services|GDAL_WCS|WCS_GDAL)\b", re.I)
 
 
+#: GDAL's block cache per process, MB, unless the environment sets ``GDAL_CACHEMAX``. GDAL's own
+#: default is 5 % of the machine's memory (1.2 GB on 24 GB), which a render fills with every
+#: source block it ever read (and every output tile written), so a process grew with the canvas;
+#: 128 MB holds two rows of 512 px tiles of two float32 rasters 16384 px wide, all the window
+#: walk re-reads (measured with bench/lean.py; our choice).
+GDAL_CACHE_MB = 128
+
+
 def configure_gdal() -> None:
-    """Pin :data:`GDAL_CONFIG` in the environment (overriding what was there)."""
+    """Pin :data:`GDAL_CONFIG` in the environment (overriding what was there); bound GDAL's
+    block cache to :data:`GDAL_CACHE_MB` unless ``GDAL_CACHEMAX`` is set already."""
     os.environ.update(GDAL_CONFIG)
+    os.environ.setdefault("GDAL_CACHEMAX", str(GDAL_CACHE_MB))
 
 
 configure_gdal()

@@ -1,0 +1,138 @@
+"""Benchmark of the fixed costs and memory of the default ``compose render`` (issue 15's second
+half) and of the draft check (issue 10), each printed beside its target:
+
+    python bench/lean.py [--runs 3] [--sizes 8192,16384] [--no-big] [--styles coast,...]
+
+* demo style (styles/coast.toml, 1500 x 1500): ``compose render`` with all default outputs and
+  ``compose check``, as commands (wall time of the process, start-up included), medians of
+  ``--runs``;
+* ``compose check`` against ``compose check --draft`` in one process (load, prepare, walk,
+  judge; imports excluded), medians of ``--runs`` alternating runs, their same-run ratio and
+  whether the verdicts agree rule by rule, for every example style;
+* the default ``compose render`` with all its outputs of bench/render.py's synthetic style
+  (relief + field + 10,000 lines) at 8192 and 16384: peak memory as the largest process's
+  maximum resident set size (``/usr/bin/time -v``, i.e. ru_maxrss of the largest process) and as
+  the largest sum over the process and its worker processes (proportional set sizes, sampled
+  every 50 ms by bench/render.py's sampler).
+
+Run heavy benchmarks alone on the machine (e.g. under ``flock``); no assertion is made.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(HERE))
+
+import render as synthetic  # noqa: E402  (bench/render.py: data, styles, memory sampler)
+
+COMPOSE = synthetic.COMPOSE
+EXAMPLES = ("coast", "sea-warmth", "change", "cover", "poor")
+
+
+def wall(argv: list[str], cwd: Path | None = None) -> float:
+    t = time.perf_counter()
+    subprocess.run(argv, cwd=cwd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    return time.perf_counter() - t
+
+
+def demo(runs: int) -> None:
+    style = ROOT / "styles" / "coast.toml"
+    out = Path(tempfile.mkdtemp(prefix="compose-lean-"))
+    try:
+        render = [wall(COMPOSE + ["render", str(style), "--out", str(out), "--overwrite"])
+                  for _ in range(runs)]
+        check = [wall(COMPOSE + ["check", str(style)]) for _ in range(runs)]
+        draft = [wall(COMPOSE + ["check", "--draft", str(style)]) for _ in range(runs)]
+    finally:
+        shutil.rmtree(out, ignore_errors=True)
+    med = statistics.median
+    print(f"== demo style coast 1500 x 1500, commands, medians of {runs} ==")
+    print(f"compose render, all default outputs  {med(render):6.2f} s   (target <= 2 s)")
+    print(f"compose check                        {med(check):6.2f} s   (target <= 1 s)")
+    print(f"compose check --draft                {med(draft):6.2f} s   "
+          f"({med(check) / med(draft):.1f} x as commands, start-up included)", flush=True)
+
+
+CHECK = r"""
+import json, statistics, sys, time
+from compose.api import check
+name, runs = sys.argv[1], int(sys.argv[2])
+check(name, draft=True)                       # imports and first-open costs out of the timing
+full, draft = [], []
+for _ in range(runs):
+    t = time.perf_counter(); f = check(name); full.append(time.perf_counter() - t)
+    t = time.perf_counter(); d = check(name, draft=True); draft.append(time.perf_counter() - t)
+verdicts = [{(r.rule, r.layer, r.ramp): (r.passed, r.met) for r in rep.rules} for rep in (f, d)]
+print(json.dumps({"full": statistics.median(full), "draft": statistics.median(draft),
+                  "agree": verdicts[0] == verdicts[1], "passed": f.passed, "size": d.draft}))
+"""
+
+
+def drafts(runs: int, styles) -> None:
+    print(f"== full check against --draft, in one process per style, medians of {runs} ==")
+    ratios = []
+    for name in styles:
+        path = ROOT / "styles" / f"{name}.toml"
+        res = subprocess.run([sys.executable, "-c", CHECK, str(path), str(runs)],
+                             capture_output=True, text=True)
+        if res.returncode != 0:
+            print(f"{name}: failed\n{res.stderr[-1500:]}")
+            continue
+        d = json.loads(res.stdout.strip().splitlines()[-1])
+        ratio = d["full"] / d["draft"]
+        ratios.append(ratio)
+        print(f"{name:<11} full {d['full']:5.2f} s  draft ({d['size']}) {d['draft']:5.3f} s  "
+              f"x{ratio:5.1f}  verdicts {'agree rule by rule' if d['agree'] else 'DIFFER'} "
+              f"({'pass' if d['passed'] else 'fail'})", flush=True)
+    if ratios:
+        print(f"draft speed-up, median over styles x{statistics.median(ratios):.1f}  (target >= 10 x)")
+
+
+def memory(size: int, data: Path) -> None:
+    folder = data / f"{size}-10000"
+    if not (folder / "lines.gpkg").exists():
+        print(f"making synthetic data in {folder} ...", flush=True)
+        synthetic.make_data(folder, size, 10000)
+    styles = synthetic.write_styles(folder, size)
+    out = folder / "out-lean"
+    shutil.rmtree(out, ignore_errors=True)
+    argv = COMPOSE + ["render", str(styles["aligned"]), "--out", str(out), "--overwrite"]
+    # the sampler (PSS summed over the process tree) wrapped in /usr/bin/time -v (largest RSS)
+    res = subprocess.run(["/usr/bin/time", "-v", sys.executable, "-c", synthetic._SAMPLER, *argv],
+                         cwd=folder, capture_output=True, text=True)
+    shutil.rmtree(out, ignore_errors=True)
+    maxrss = next((int(line.split(":")[1]) * 1024 for line in res.stderr.splitlines()
+                   if "Maximum resident set size" in line), 0)
+    data_ = json.loads(res.stdout.strip().splitlines()[-1])
+    print(f"{size} x {size}, default render, all outputs: {data_['seconds']:6.1f} s, largest process "
+          f"{maxrss / 1e9:.2f} GB (time -v), sum over processes {data_['peak'] / 1e9:.2f} GB (PSS)  "
+          f"(target <= 0.50 GB, flat in size)", flush=True)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--runs", type=int, default=3)
+    ap.add_argument("--sizes", default="8192,16384")
+    ap.add_argument("--styles", default=",".join(EXAMPLES))
+    ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
+    ap.add_argument("--no-demo", action="store_true")
+    a = ap.parse_args()
+    if not a.no_demo:
+        demo(a.runs)
+        drafts(a.runs, [s for s in a.styles.split(",") if s])
+    for size in (int(s) for s in a.sizes.split(",") if s):
+        memory(size, a.data)
+
+
+if __name__ == "__main__":
+    main()
