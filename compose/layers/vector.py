@@ -36,6 +36,7 @@ class _VectorLayer:
         pad = (self.margin + 2) * self.canvas.pixel
         self.features = self.source.load(self.canvas.crs).in_box(
             (west - pad, south - pad, east + pad, north + pad))
+        self.source.release()       # the cut above is all the windows draw from
 
     def _reach_px(self) -> float:
         return 0.0

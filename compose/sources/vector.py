@@ -193,6 +193,12 @@ class VectorSource:
         self._cache[target] = features
         return features
 
+    def release(self) -> None:
+        """Drop the features read and reprojected so far (a layer that kept its own cut of them
+        frees a second copy of every geometry); a later :meth:`load` reads the file again."""
+        self._raw = None
+        self._cache.clear()
+
     def check_overlap(self, canvas: Canvas) -> None:
         """Raise :class:`SourceError` if no kept feature intersects the canvas."""
         features = self.load(canvas.crs)
