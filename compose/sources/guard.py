@@ -71,10 +71,12 @@ _XML_ROOTS = re.compile(rb"<\s*(VRTDataset|OGRVRTDataSource|GDAL_WMS|GDAL_WMTS|T
 
 #: GDAL's block cache per process, MB, unless the environment sets ``GDAL_CACHEMAX``. GDAL's own
 #: default is 5 % of the machine's memory (1.2 GB on 24 GB), which a render fills with every
-#: source block it ever read (and every output tile written), so a process grew with the canvas;
-#: 128 MB holds two rows of 512 px tiles of two float32 rasters 16384 px wide, all the window
-#: walk re-reads (measured with bench/lean.py; our choice).
-GDAL_CACHE_MB = 128
+#: source block it ever read, so the process grew with the canvas (1.77 GB at 8192 x 8192 for
+#: bench/render.py's style). The window walk re-reads three rows of 512 px tiles of each raster
+#: through one GDAL handle per window thread: at 8192 px, 2 threads x 2 rasters x 3 rows x 16
+#: tiles of 1 MB = 192 MB; 256 MB renders that style as fast as GDAL's default (19 s both on a
+#: loaded machine; 128 MB took 33 s) at 0.84 GB (measured with /usr/bin/time -v; our choice).
+GDAL_CACHE_MB = 256
 
 
 def configure_gdal() -> None:
