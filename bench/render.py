@@ -293,20 +293,32 @@ def gb(n: float) -> str:
     return f"{n / 1e9:.2f} GB"
 
 
+def _vertices(folder: Path) -> int:
+    """Vertices of the benchmark's lines (read in bulk)."""
+    return len(floors._lines_pixels(folder, 0)[0])
+
+
 def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     styles = write_styles(folder, size)
     out = folder / "out"
     mpx = size * size / 1e6
     print(f"\n== {size} x {size} ({mpx:.0f} Mpixel), {n_lines} lines x 100 vertices ==", flush=True)
 
-    # floors, one kernel at a time in this process
-    t_lines, verts = floors.lines_agg(folder, size)
-    t_horn = floors.horn_strips(folder, size)
-    t_lut1, t_lut2 = floors.lut_gather(size, 1), floors.lut_gather(size, 2)
-    t_cmp1, t_cmp2 = floors.composite_planar(size, 1), floors.composite_planar(size, 2)
-    t_read = floors.geotiff_read(folder / "dem.tif") + floors.geotiff_read(folder / "field.tif")
+    # floors, one kernel at a time in this process, each the median of as many runs as the
+    # targets below
+    runs = 1 if quick else 3
+
+    def med(fn, *args):
+        return statistics.median(fn(*args) for _ in range(runs))
+
+    t_lines = statistics.median(floors.lines_agg(folder, size)[0] for _ in range(runs))
+    verts = _vertices(folder)
+    t_horn = med(floors.horn_strips, folder, size)
+    t_lut1, t_lut2 = med(floors.lut_gather, size, 1), med(floors.lut_gather, size, 2)
+    t_cmp1, t_cmp2 = med(floors.composite_planar, size, 1), med(floors.composite_planar, size, 2)
+    t_read = med(lambda: floors.geotiff_read(folder / "dem.tif") + floors.geotiff_read(folder / "field.tif"))
     compute_floor = t_lines + t_horn + t_lut1 + t_cmp1 + t_read
-    print("floors (bench/floors.py: numpy, Agg, GDAL; none of compose's code)")
+    print(f"floors (bench/floors.py: numpy, Agg, GDAL; none of compose's code; median of {runs})")
     print(f"  lines: {verts / 1e6:.2f} M vertices, 1 px, Agg, whole canvas  {t_lines:6.2f} s")
     print(f"  Horn hillshade, {floors.STRIP}-row strips, 1 thread            {t_horn:6.2f} s")
     print(f"  LUT gather uint16 -> RGBA32, 1 thread (2 threads)      {t_lut1:6.2f} s  ({t_lut2:.2f} s)")
@@ -322,7 +334,6 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"one {gb(cmd['peak_one'])}; target <= 0.50 GB)", flush=True)
 
     # the bare render: PNG + GeoTIFF + check, 1 and 2 workers (threads, what --workers does)
-    runs = 1 if quick else 3
     wall = lambda r: r["wall"]             # noqa: E731
     total, bare1 = median_task(runs, wall, "bare", styles["aligned"], out, workers=1)
     tif = out / "bench.tif"
