@@ -38,6 +38,21 @@ def vector_split(layers) -> int:
     return k
 
 
+def _warm_writers() -> None:
+    """Import what the page writers use (matplotlib's figure, PDF/SVG/Agg backends, the page and
+    legend drawing); errors are left for the writers themselves to raise."""
+    try:
+        import matplotlib.backends.backend_agg  # noqa: F401
+        import matplotlib.backends.backend_pdf  # noqa: F401
+        import matplotlib.backends.backend_svg  # noqa: F401
+        import matplotlib.figure  # noqa: F401
+
+        import compose.output.legend  # noqa: F401
+        import compose.page.draw  # noqa: F401
+    except Exception:                                  # pragma: no cover - the writer reports it
+        pass
+
+
 class PageSink:
     """Keeps the whole map (``image``) and its raster part (``base``, layers under ``below``)."""
 
@@ -45,6 +60,9 @@ class PageSink:
         self.below = int(below)
         self.image = np.zeros((canvas.height, canvas.width, 3), dtype=np.uint8)
         self.base = np.zeros_like(self.image)
+        # the writers' modules (about half a second of imports) load beside the window walk
+        import threading
+        threading.Thread(target=_warm_writers, name="page-imports", daemon=True).start()
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.image[row0:row0 + rgb8.shape[0]] = rgb8
