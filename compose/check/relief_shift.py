@@ -217,7 +217,6 @@ def _fix(ctx: CheckContext, theme, hist, c: _Classes, limit: float) -> tuple[str
         if p95 - p5 < need and _drawn_below(ctx, spec.name, theme.name):
             # that strength would leave the relief unseen (rule relief-visible): keep the relief
             # and let less of it through the theme instead. Drawn normally at opacity a, the
-            # theme passes (1 - a) of the relief's departure, multiplied it passes about all
             # theme passes (1 - a) of the relief's departure, multiplied about all of it. The
             # estimate is kept conservative (1 - a <= 0.4 x the strength ratio), as the relief
             # then also tints the data and draws the classes closer; 0.85 to 0.95 keeps a hint
@@ -230,6 +229,9 @@ def _fix(ctx: CheckContext, theme, hist, c: _Classes, limit: float) -> tuple[str
                     f"would leave its own L* spread at {p95 - p5:.1f} < {need:g}, rule "
                     "relief-visible)")
             change = Change(layer_key(theme.name), {"blend": "normal", "opacity": a})
+    if spec.blend == "multiply" and _drawn_below(ctx, theme.name, spec.name):
+        # a shaded overprint above the data: a gentler blend also shades it less
+        text += f'; or draw {spec.name} with a gentler blend (blend = "soft_light")'
     return text, change
 
 
