@@ -258,6 +258,22 @@ def _blend_steps(ctx: CheckContext, specs, vision: str) -> list[tuple[str, Chang
     return out
 
 
+def _theme_blend_steps(spec) -> list[tuple[str, Change]]:
+    """A diverging theme multiplied over the ground (or mixed with it at opacity < 1) takes the
+    ground's darkening in gamma-encoded sRGB, which moves blue and brown of one L* by different
+    amounts, most at the dark ends: drawn normally at opacity 0.85 its colours stay close to the
+    ramp's while a hint of the relief still shows (common practice, no source); a theme drawn
+    normally at a lower opacity is made opaque."""
+    if spec.blend != "normal":
+        return [(f'draw "{spec.name}" with blend = "normal", opacity = 0.85 (multiplied over the '
+                 "ground, its arms darken unequally; normally drawn, a hint of the relief still "
+                 "shows)", Change(layer_key(spec.name), {"blend": "normal", "opacity": 0.85}))]
+    if spec.opacity < 1.0:
+        return [(f'draw "{spec.name}" opaque: opacity = 1 (mixed with what lies beneath, colours '
+                 "of one L* drift apart)", Change(layer_key(spec.name), {"opacity": 1.0}))]
+    return []
+
+
 def _in_steps(steps: list[tuple[str, Change]]) -> tuple[str, Change]:
     """One change now; the others named, for the next rounds of ``compose fix``."""
     if len(steps) == 1:
@@ -328,7 +344,7 @@ def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
         if not passed and own > limit:
             fix = _own_gap_fix(own, f'the arms of ramp "{ramp.name}"', vision)
         elif not passed:
-            steps = _blend_steps(ctx, [spec], vision)
+            steps = _theme_blend_steps(spec)
             if steps:
                 fix, change = _in_steps(steps)
             else:
