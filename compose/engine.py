@@ -332,7 +332,10 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
         if under is not None and res.below is not None:
             under[:, win.col:win.col + win.width] = res.below
         if stats is not None and res.statistics is not None:
-            stats.merge(res.statistics)
+            if done == 0:       # the first window's own statistics are the sum so far (the
+                stats = res.statistics  # same numbers as adding them to empty ones, no copies)
+            else:
+                stats.merge(res.statistics)
         if previews is not None and res.previews is not None:
             previews.add(res.previews, win)
         done += 1

@@ -1,4 +1,4 @@
-"""Vector sources: features from anything OGR reads (GeoPackage, GeoJSON, Shapefile) via fiona.
+"""Vector sources: features from anything OGR reads (GeoPackage, GeoJSON, Shapefile) via pyogrio.
 
 A :class:`VectorSource` checks its file, table and filter when it is made, reads the features on
 the first :meth:`VectorSource.load` and reprojects them to the canvas CRS once (cached per CRS).
@@ -16,11 +16,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
-import fiona
 import numpy as np
 import pyproj
 import shapely
-from fiona.errors import FionaError
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
@@ -29,6 +27,27 @@ from compose.sources.guard import check_crs, check_source, refuse_driver
 __all__ = ["VectorSource", "Features"]
 
 _POINT_TYPES = (0, 4)          # shapely type ids of Point and MultiPoint: kept whole, not cut
+
+
+@dataclass
+class _Opened:
+    """What :func:`compose.sources.guard.refuse_driver` asks of an opened file."""
+
+    driver: str | None
+    name: str
+
+    def close(self) -> None:
+        pass
+
+
+def _wkt(crs: str | None) -> str:
+    """The WKT of a CRS as pyogrio reports it ("EPSG:32630" or WKT), "" for none."""
+    if not crs:
+        return ""
+    try:
+        return pyproj.CRS.from_user_input(crs).to_wkt()
+    except pyproj.exceptions.CRSError:
+        return crs          # check_crs says it is not understood
 
 
 def _first_line(exc: BaseException) -> str:
@@ -109,9 +128,12 @@ class VectorSource:
         self.layer = layer
         here = f'layer "{layer}"'
         local_only = check_source(path, here)
+        import pyogrio
+        from pyogrio.errors import DataLayerError, DataSourceError
+
         try:
-            tables = fiona.listlayers(self.path)
-        except (FionaError, OSError) as exc:
+            tables = [str(t) for t in pyogrio.list_layers(self.path)[:, 0]]
+        except (DataSourceError, DataLayerError, OSError) as exc:
             raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
         if not tables:
             raise SourceError(f"{here}: cannot read {self.path}: no tables in the file")
@@ -120,12 +142,13 @@ class VectorSource:
                              f"(tables: {', '.join(tables)})")
         self.table = table if table is not None else tables[0]
         try:
-            with fiona.open(self.path, layer=self.table) as src:
-                refuse_driver(src, local_only, "vector", here, "source")
-                wkt = src.crs.to_wkt() if src.crs else ""
-                attributes = list(src.schema["properties"])
-        except (FionaError, OSError) as exc:
+            info = pyogrio.read_info(self.path, layer=self.table)
+        except (DataSourceError, DataLayerError, OSError) as exc:
             raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
+        refuse_driver(_Opened(info.get("driver"), str(self.path)), local_only, "vector", here,
+                      "source")
+        wkt = _wkt(info.get("crs"))
+        attributes = [str(f) for f in info.get("fields", [])]
         if not wkt:
             raise SourceError(f"{here}: {self.path} has no CRS")
         check_crs(wkt, here, self.path)
