@@ -162,3 +162,17 @@ def test_mapper_choice():
     auto = mapper_for(AUTO_PIXELS)
     assert auto is None or 2 <= auto.workers <= 8
     assert isinstance(mapper_for(10, cluster="tcp://127.0.0.1:1"), ClusterMapper)
+
+
+def test_default_workers_leave_one_core_to_the_encoders(monkeypatch):
+    import compose.parallel as par
+
+    monkeypatch.setattr(par, "default_workers", lambda: 2)
+    assert par.mapper_for(par.AUTO_PIXELS) is None               # 2 cores: one window thread
+    monkeypatch.setattr(par, "default_workers", lambda: 4)
+    auto = par.mapper_for(par.AUTO_PIXELS)
+    assert isinstance(auto, ThreadMapper) and auto.workers == 3
+    monkeypatch.setattr(par, "default_workers", lambda: 64)
+    assert par.mapper_for(par.AUTO_PIXELS).workers == par.AUTO_WORKERS
+    monkeypatch.setattr(par, "default_workers", lambda: 1)
+    assert par.mapper_for(par.AUTO_PIXELS) is None
