@@ -133,15 +133,20 @@ def _rule_id(base: str, vision: str) -> str:
 
 def _neutral_ground_fix(ctx: CheckContext, vision: str) -> tuple[str, Change | None]:
     """A coloured ground multiplied under the data shifts hues by different amounts of L*: the
-    fix makes the ground's tint neutral at the same L* (a neutral multiply scales every channel
-    alike, so equal L* stay about equal)."""
+    fix makes the ground's tint neutral (a neutral multiply scales every channel alike, so equal
+    L* stay about equal) and at least L* 88 (a dark grey still parts them, through sRGB's linear
+    toe)."""
     for spec, _s in ctx.layers("ground", ("relief",)):
         L, C, h = (float(v) for v in srgb_to_lch(np.asarray(spec.options.tint, dtype=float)))
-        if C <= 3.0:
+        if C <= 3.0 and L >= 88.0:
             continue
-        new = hex8(lch_rgb8(np.array([L, 0.0, h])))
-        return (f'the coloured {spec.name} tint (C* {C:.1f}) darkens some hues more than others '
-                f'in {vision} vision: make it neutral at the same L*, tint = "{new}"',
+        # neutral, and light: multiplying by a dark grey still parts blue and brown of one L*
+        # (sRGB's linear toe), most at the dark end
+        Ln = max(L, 88.0)
+        new = hex8(lch_rgb8(np.array([Ln, 0.0, h])))
+        said = "at the same L*" if Ln == L else f"and light (L* {Ln:.0f})"
+        return (f'the {spec.name} tint (L* {L:.1f}, C* {C:.1f}) darkens some hues more than others '
+                f'in {vision} vision: make it neutral {said}, tint = "{new}"',
                 Change(layer_key(spec.name), {"tint": new}))
     return "", None
 
@@ -220,6 +225,16 @@ def _own_gap_fix(gap: float, what: str, vision: str) -> str:
 def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float
               ) -> tuple[str, Change | None]:
     steps: list[tuple[str, Change]] = []
+    order = [s.name for s in ctx.stats.layers]
+    lower, upper = sorted((tspec, bspec), key=lambda sp: order.index(sp.name))
+    if (ctx.nodata_color(lower) is not None and getattr(lower.options, "nodata", None) is not None
+            and (bspec.blend != "normal" or bspec.opacity < 1.0)):
+        # the lower twin paints its no-data colour where the upper twin has its data, and the
+        # upper one (drawn like the base once matched) lets it through: the two twins then lie
+        # on different grounds, which matching their blending cannot mend
+        steps.append((f'"{lower.name}" paints its no-data colour beneath "{upper.name}", which '
+                      f'lets it through: nodata = "transparent" on "{lower.name}"',
+                      Change(layer_key(lower.name), {"nodata": "transparent"})))
     if abs(tspec.opacity - bspec.opacity) > 1e-9 or tspec.blend != bspec.blend:
         values: dict = {}
         if abs(tspec.opacity - bspec.opacity) > 1e-9:
@@ -237,7 +252,14 @@ def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float
     if not steps:
         return (f'draw "{tspec.name}" and "{bspec.name}" under the same layers (a layer blended '
                 "over one twin only shifts its lightness)"), None
-    return _in_steps(steps)
+    seen: set = set()
+    unique = []
+    for text, change in steps:                 # one step per distinct edit
+        key = (change.table, tuple(sorted(change.values.items())))
+        if key not in seen:
+            seen.add(key)
+            unique.append((text, change))
+    return _in_steps(unique)
 
 
 def _blend_steps(ctx: CheckContext, specs, vision: str) -> list[tuple[str, Change]]:
