@@ -204,6 +204,12 @@ def grid_lines(canvas: Canvas, crs: str | None, step: float, samples: int = 128
     out = []
     for axis, lo, hi, (a0, a1) in (("x", x0, x1, (y0, y1)), ("y", y0, y1, (x0, x1))):
         v = math.ceil(lo / step - 1e-9) * step
+        # A little past the envelope at both ends: a line whose far end only touches the
+        # frame (a meridian meeting the top edge at its highest latitude) must still cross it.
+        pad = 0.02 * (a1 - a0)
+        a0, a1 = a0 - pad, a1 + pad
+        if target.is_geographic and axis == "x":
+            a0, a1 = max(a0, -90.0), min(a1, 90.0)
         t = np.linspace(a0, a1, samples)
         while v <= hi + 1e-9 * abs(step):
             xs, ys = (np.full_like(t, v), t) if axis == "x" else (t, np.full_like(t, v))

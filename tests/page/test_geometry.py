@@ -113,3 +113,14 @@ def test_grid_lines_of_a_graticule_cross_the_canvas():
     # the -3 meridian is the zone's central meridian: a vertical line through the centre column
     pts = next(p for axis, v, p in lines if axis == "x" and abs(v + 3.0) < 1e-9)
     assert pts[:, 0] == pytest.approx(canvas.width / 2, abs=0.5)
+
+
+def test_central_meridian_reaches_the_top_and_bottom_edges():
+    # In Transverse Mercator a line of constant northing is farthest north on the central
+    # meridian (parallels bow poleward away from it: Snyder 1987, "Map Projections -- A Working
+    # Manual", USGS PP 1395, p. 48 figure); the meridian through the highest latitude of the top
+    # edge must still cross that edge so its tick and label are drawn.
+    canvas = _utm_canvas(-3.0, 45.0)
+    pts = next(p for axis, v, p in grid_lines(canvas, "EPSG:4326", 0.1)
+               if axis == "x" and abs(v + 3.0) < 1e-9)
+    assert pts[:, 1].min() < 0.0 < canvas.height < pts[:, 1].max()
