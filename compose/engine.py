@@ -67,6 +67,8 @@ class Prepared:
     template: Statistics
     seconds: dict[str, float] = field(default_factory=dict)
     draft: bool = False
+    #: canvas pixel boxes labels kept clear of (page furniture), as decided in prepare
+    blocked: tuple = ()
 
     @property
     def margin(self) -> int:
@@ -92,7 +94,7 @@ RenderRun = Prepared
 
 def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
             keep_clear: Callable[..., Iterable[tuple[float, float, float, float]]] | None = None,
-            draft: bool = False) -> Prepared:
+            draft: bool = False, blocked: tuple = ()) -> Prepared:
     """Resolve the canvas, build ramps and open every enabled layer's sources.
 
     ``canvas`` overrides the style's own (e.g. a small preview of the same extent, see
@@ -101,7 +103,9 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     :func:`compose.page.write.blocked_for`); called once, with the layers prepared so far and
     stand-ins holding just the ``spec`` of the rest, before the labels layers are prepared.
     ``draft``: a reduced check's render (rasters read by GDAL's decimated reads, see
-    :class:`compose.sources.raster.RasterSource`).
+    :class:`compose.sources.raster.RasterSource`). ``blocked``: boxes already decided by another
+    prepare of the same render (a worker process or cluster worker re-preparing it), used
+    instead of calling ``keep_clear``.
     """
     from compose.ramps import build_ramps
 
@@ -110,7 +114,7 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     if ramps is None:   # only the ramps the enabled layers draw (and their twin groups)
         used = {getattr(spec.options, "ramp", None) for spec in style.layers if spec.enabled}
         ramps = build_ramps(style.ramps, only={u for u in used if isinstance(u, str)})
-    ctx = Context(canvas=canvas, ramps=ramps, style=style, draft=draft)
+    ctx = Context(canvas=canvas, ramps=ramps, style=style, draft=draft, blocked=tuple(blocked))
     stack = contextlib.ExitStack()
     specs = [spec for spec in style.layers if spec.enabled]
     layers: list = [None] * len(specs)
@@ -134,7 +138,7 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
         raise
     template = new_statistics(layers, canvas.width, canvas.height, tuple(style.map.background))
     prepared = Prepared(style=style, canvas=canvas, ramps=ramps, layers=layers, stack=stack,
-                        template=template, draft=draft)
+                        template=template, draft=draft, blocked=ctx.blocked)
     prepared.seconds["prepare"] = time.perf_counter() - t0
     return prepared
 

@@ -127,13 +127,16 @@ def _prepared(key: str, payload: bytes):
         for old in cache.values():      # one walk at a time per worker thread
             old.close()
         cache.clear()
-        style, canvas, draft = unpack(payload)
-        cache[key] = prepare(style, canvas=canvas, draft=draft)
+        style, canvas, draft, ramps, blocked = unpack(payload)
+        # the ramps (a series' shared breaks) and the boxes labels keep clear of (page
+        # furniture) as the client decided them, so every worker draws what one process would
+        cache[key] = prepare(style, ramps=ramps, canvas=canvas, draft=draft, blocked=blocked)
     return cache[key]
 
 
 def window_task(key: str, payload: bytes, window, options: dict) -> bytes:
-    """Render one window where this runs: ``payload`` is the packed (style, canvas, draft) of the walk
+    """Render one window where this runs: ``payload`` is the packed (style, canvas, draft, ramps,
+    label keep-clear boxes) of the walk
     ``key`` (prepared once per worker thread); returns the packed WindowResult."""
     from compose.engine import render_window
 
@@ -155,7 +158,8 @@ def _pool_task(window, options: dict) -> bytes:
 
 def _walk_payload(task) -> tuple[str, bytes]:
     prepared = task.prepared
-    return uuid.uuid4().hex, pack((prepared.style, prepared.canvas, prepared.draft))
+    return uuid.uuid4().hex, pack((prepared.style, prepared.canvas, prepared.draft,
+                                   prepared.ramps, prepared.blocked))
 
 
 # --- mappers ----------------------------------------------------------------------------------

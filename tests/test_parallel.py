@@ -8,8 +8,8 @@ from concurrent.futures import Future
 import numpy as np
 import pytest
 
-from compose.engine import prepare, render_window
-from compose.parallel import ClusterMapper, ProcessMapper, ThreadMapper, ordered, pack, unpack
+from compose.engine import WindowTask, prepare, render_window
+from compose.parallel import ClusterMapper, ProcessMapper, ThreadMapper, ordered, pack, unpack, window_task
 from compose.render import render_style
 from compose.style import load_style
 from tests.test_engine import tiny_region  # noqa: F401  (fixture)
@@ -107,6 +107,27 @@ def test_two_worker_processes_give_the_same_bytes_and_statistics(tiny_region, tm
     two, stats_two = _render(style, tmp_path / "two", ProcessMapper(2))
     assert one["png"] == two["png"] and one["tif"] == two["tif"]
     _stats_equal(stats_one, stats_two)
+
+
+def test_a_worker_keeps_labels_clear_of_what_the_client_blocked(tiny_region):
+    # A worker process or cluster worker prepares the render again from the packed walk: it must
+    # place labels clear of the same page-furniture boxes the client's prepare decided (here the
+    # whole canvas, so no label is drawn), not place them afresh without the furniture.
+    style = load_style(tiny_region)
+    prepared = prepare(style, keep_clear=lambda *_: [(0.0, 0.0, 300.0, 260.0)])
+    free = prepare(style)
+    try:
+        assert prepared.blocked and not prepared.unplaced_labels == free.unplaced_labels
+        task = WindowTask(prepared)
+        key, payload = "walk-blocked", pack((style, prepared.canvas, prepared.draft,
+                                             prepared.ramps, prepared.blocked))
+        for w in prepared.windows(WINDOW):
+            here = render_window(prepared, w, **task.options)
+            there = unpack(window_task(key, payload, w, task.options))
+            np.testing.assert_array_equal(here.rgb8, there.rgb8)
+    finally:
+        prepared.close()
+        free.close()
 
 
 def test_two_worker_threads_give_the_same_bytes_and_statistics(tiny_region, tmp_path):
