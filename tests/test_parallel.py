@@ -185,14 +185,16 @@ def test_mapper_choice():
     assert isinstance(mapper_for(10, cluster="tcp://127.0.0.1:1"), ClusterMapper)
 
 
-def test_default_workers_leave_one_core_to_the_encoders(monkeypatch):
+def test_default_workers_use_every_core_for_large_maps(monkeypatch):
     import compose.parallel as par
 
     monkeypatch.setattr(par, "default_workers", lambda: 2)
-    assert par.mapper_for(par.AUTO_PIXELS) is None               # 2 cores: one window thread
+    auto = par.mapper_for(par.AUTO_PIXELS)
+    assert isinstance(auto, ThreadMapper) and auto.workers == 2
+    assert par.mapper_for(par.AUTO_PIXELS - 1) is None            # small maps: this thread
     monkeypatch.setattr(par, "default_workers", lambda: 4)
     auto = par.mapper_for(par.AUTO_PIXELS)
-    assert isinstance(auto, ThreadMapper) and auto.workers == 3
+    assert isinstance(auto, ThreadMapper) and auto.workers == 4
     monkeypatch.setattr(par, "default_workers", lambda: 64)
     assert par.mapper_for(par.AUTO_PIXELS).workers == par.AUTO_WORKERS
     monkeypatch.setattr(par, "default_workers", lambda: 1)
