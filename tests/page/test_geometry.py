@@ -118,7 +118,7 @@ def test_grid_lines_of_a_graticule_cross_the_canvas():
 def test_central_meridian_reaches_the_top_and_bottom_edges():
     # In Transverse Mercator a line of constant northing is farthest north on the central
     # meridian (parallels bow poleward away from it: Snyder 1987, "Map Projections -- A Working
-    # Manual", USGS PP 1395, p. 48 figure); the meridian through the highest latitude of the top
+    # Manual", Professional Paper 1395, p. 48 figure); the meridian through the highest latitude of the top
     # edge must still cross that edge so its tick and label are drawn.
     canvas = _utm_canvas(-3.0, 45.0)
     pts = next(p for axis, v, p in grid_lines(canvas, "EPSG:4326", 0.1)
