@@ -54,7 +54,7 @@ from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
-from compose.sources.resample import sample
+from compose.sources.resample import cut_block, sample
 from compose.style.kinds import RESAMPLING  # the names a style may use, defined once
 
 __all__ = ["RESAMPLING", "SHRINK_LIMIT", "RasterSource", "cell_size_metres"]
@@ -101,16 +101,6 @@ def _band_view(path: Path, band: int, count: int):
         return rasterio.open(f"vrt://{path}?bands={int(band)}")
     except (RasterioError, OSError):
         return None
-
-
-def _cut(block: np.ndarray, r: int, c: int, h: int, w: int) -> np.ndarray:
-    """Rows r.., columns c.. of ``block`` (may reach outside: NaN there), float32 (h, w)."""
-    out = np.full((h, w), np.nan, np.float32)
-    r0, c0 = max(r, 0), max(c, 0)
-    r1, c1 = min(r + h, block.shape[0]), min(c + w, block.shape[1])
-    if r1 > r0 and c1 > c0:
-        out[r0 - r:r1 - r, c0 - c:c1 - c] = block[r0:r1, c0:c1]
-    return out
 
 
 def _grid_centre(transform: Affine, width: int, height: int) -> tuple[float, float]:
@@ -482,7 +472,7 @@ class RasterSource:
             whole = self._reduced.get((fy, fx))
             if whole is None:
                 whole = self._reduced[(fy, fx)] = self._decimated(0, 0, rh, rw, fy, fx)
-            return _cut(whole, r0, c0, h, w)
+            return cut_block(whole, r0, c0, h, w)
         out = np.full((h, w), np.nan, dtype=np.float32)
         rr0, rr1 = max(r0, 0), min(r0 + h, rh)
         cc0, cc1 = max(c0, 0), min(c0 + w, rw)

@@ -23,7 +23,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-__all__ = ["sample", "Reader"]
+__all__ = ["sample", "cut_block", "Reader"]
 
 #: read(row0, col0, height, width) -> float32 block of source cells, NaN = no data; the rectangle
 #: may reach outside the source (those cells are NaN).
@@ -92,7 +92,7 @@ def sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
                    else _reduce(read, r0, c0, h, w, fy, fx))
 
         def read_reduced(rr, cc, hh, ww):
-            return _window(reduced, rr - r0, cc - c0, hh, ww)
+            return cut_block(reduced, rr - r0, cc - c0, hh, ww)
 
         return _sample(read_reduced, uu, vv, "bilinear", (sx / fx, sy / fy))
     if method == "average":
@@ -100,7 +100,8 @@ def sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
     return _sample(read, u, v, method, (sx, sy))
 
 
-def _window(block: np.ndarray, r: int, c: int, h: int, w: int) -> np.ndarray:
+def cut_block(block: np.ndarray, r: int, c: int, h: int, w: int) -> np.ndarray:
+    """Rows r.., columns c.. of ``block`` (may reach outside: NaN there), float32 (h, w)."""
     out = np.full((h, w), np.nan, np.float32)
     r0, c0 = max(r, 0), max(c, 0)
     r1, c1 = min(r + h, block.shape[0]), min(c + w, block.shape[1])
