@@ -18,14 +18,25 @@ import sys
 import types
 from collections.abc import Callable, Mapping
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from compose.check import Report, check_style
-from compose.render import RenderResult, render_style
 from compose.style import Style
 from compose.style import load_style as _load_style
 
+if TYPE_CHECKING:
+    from compose.render import RenderResult
+
 __all__ = ["load_style", "render", "check", "Style", "RenderResult", "CheckReport"]
+
+
+def __getattr__(name: str) -> Any:
+    """``RenderResult`` from :mod:`compose.render`, imported on first use: the render's writers
+    (PNG, GeoTIFF, page, legend, review page) stay out of ``compose check``'s start-up."""
+    if name == "RenderResult":
+        from compose.render import RenderResult
+        return RenderResult
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 #: The check's result: rule results, per-layer summaries, ``passed`` (see :class:`Report`).
 CheckReport = Report
@@ -56,6 +67,8 @@ def render(style: Style | str | Path, out_dir: str | Path, *, overwrite: bool = 
     renamed into place only when all succeeded. ``progress(done, total)`` is called after each
     window; ``mapper`` runs the window tasks (e.g. an executor's ``map``).
     """
+    from compose.render import render_style
+
     return render_style(_style(style), Path(out_dir), overwrite=overwrite, proofs=proofs,
                         html=html, legend=legend, check=check, progress=progress, mapper=mapper)
 
@@ -66,11 +79,11 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     nothing is written. ``report.passed`` is False when any failure-severity rule failed.
     ``draft``: check a reduced canvas of the same extent and dpi (:mod:`compose.check.draft`);
     ``report.draft`` then says what size was checked."""
+    style = _style(style)     # a bad style fails before the engine's imports
     from compose.check.draft import describe_draft, draft_canvas
     from compose.engine import prepare, run  # looked up per call (tests may replace them)
     from compose.page.write import blocked_for
 
-    style = _style(style)
     full = style.canvas()
     canvas = draft_canvas(full) if draft else None
     prepared = prepare(style, canvas=canvas, keep_clear=blocked_for,    # labels as in a render

@@ -15,7 +15,6 @@ from types import SimpleNamespace
 import numpy as np
 
 from compose.page.layout import PageLayout, blocked_pixels, page_layout
-from compose.page.vectors import is_vector
 
 __all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_page", "page_png",
            "write_page_png", "world_file_text",
@@ -32,6 +31,8 @@ def vector_split(layers) -> int:
     """Index of the first layer of the top run of vector layers: the layers under it form the
     page's raster image, the ones from it up are re-emitted as vectors. A vector layer with a
     raster layer above it stays in the raster, so the stacking order is kept."""
+    from compose.page.vectors import is_vector  # matplotlib: not for compose check's start-up
+
     k = len(layers)
     while k > 0 and is_vector(layers[k - 1].spec.kind):
         k -= 1
