@@ -34,6 +34,8 @@ _SCAN_STEP = 0.5
 # 1e-6 C*ab, far below anything measured).
 _SEARCH_TOL = GAMUT_TOLERANCE - 1e-9
 _BATCH = 2048
+# Scan samples tested at once per colour, from the top down (most colours stop in the first).
+_SCAN_CHUNK = 16
 
 
 def _largest_inside(L: np.ndarray, h: np.ndarray, top: np.ndarray, iterations: int) -> np.ndarray:
@@ -54,19 +56,31 @@ def _largest_inside(L: np.ndarray, h: np.ndarray, top: np.ndarray, iterations: i
     for s in range(0, L.size, _BATCH):
         l, hh, c = L[s:s + _BATCH], h[s:s + _BATCH], top[s:s + _BATCH]
         grid = c[:, None] * frac[None, :]
-        ok = lch_in_gamut(np.stack(np.broadcast_arrays(l[:, None], grid, hh[:, None]), axis=-1),
-                          _SEARCH_TOL)
-        ok[:, 0] = True
-        k = n - np.argmax(ok[:, ::-1], axis=1)
-        rows = np.arange(k.size)
-        lo = grid[rows, k]
-        hi = grid[rows, np.minimum(k + 1, n)]
-        for _ in range(iterations):
-            mid = (lo + hi) / 2
-            inside = lch_in_gamut(np.stack([l, mid, hh], axis=-1), _SEARCH_TOL)
-            lo = np.where(inside, mid, lo)
-            hi = np.where(inside, hi, mid)
-        out[s:s + _BATCH] = np.where(k == n, c, lo)
+        # the scan runs from the top down and stops for a colour at its last inside sample (the
+        # same sample a scan of every step finds); colours displayable at their top keep it
+        k = np.full(c.size, n)
+        todo = np.flatnonzero(~lch_in_gamut(np.stack([l, grid[:, n], hh], axis=-1), _SEARCH_TOL))
+        rest, end = todo, n
+        while rest.size and end > 0:
+            begin = max(0, end - _SCAN_CHUNK)
+            ok = lch_in_gamut(np.stack(np.broadcast_arrays(
+                l[rest, None], grid[rest, begin:end], hh[rest, None]), axis=-1), _SEARCH_TOL)
+            if begin == 0:
+                ok[:, 0] = True
+            found = ok.any(axis=1)
+            k[rest[found]] = end - 1 - np.argmax(ok[found, ::-1], axis=1)
+            rest, end = rest[~found], begin
+        out[s:s + _BATCH] = c
+        if todo.size:
+            lt, ht, kt = l[todo], hh[todo], k[todo]
+            lo = grid[todo, kt]
+            hi = grid[todo, np.minimum(kt + 1, n)]
+            for _ in range(iterations):
+                mid = (lo + hi) / 2
+                inside = lch_in_gamut(np.stack([lt, mid, ht], axis=-1), _SEARCH_TOL)
+                lo = np.where(inside, mid, lo)
+                hi = np.where(inside, hi, mid)
+            out[s + todo] = lo
     return out
 
 
