@@ -1,35 +1,67 @@
-"""Time the page outputs (PDF, SVG, page PNG) against the map render of the same style.
+"""Time the demo as a command beside its parts: the whole ``compose render STYLE`` with all its
+default outputs, as a fresh process, and the stages of the same render run in this process.
 
-    python bench/page.py [STYLE] [--runs N]
+    python bench/page.py [STYLE] [--runs N] [--no-command]
 
-Prints the median over N runs of: compute (the window walk), PNG/GeoTIFF encoding, and each page
-writer, with each page writer's share of the walk's compute time. Never asserted in tests.
+Prints the median over N runs of: the command's wall-clock time (a new process each run, as a user
+starts it: interpreter start, imports, the render, every default output); the load average of the
+machine before the runs; then, from N renders in this process with every default output, each
+stage's seconds (prepare, compute, encoding, each page writer, check, legend, HTML page, total)
+with each page writer's share of the walk's compute time. Never asserted in tests.
 """
 from __future__ import annotations
 
 import argparse
+import os
 import statistics
+import subprocess
+import sys
 import tempfile
+import time
 from pathlib import Path
 
 from compose.render import render_style
 from compose.style import load_style
 
 
+def command_seconds(style: str, runs: int) -> list[float]:
+    """Wall-clock seconds of ``compose render STYLE`` in a fresh process, ``runs`` times."""
+    exe = Path(sys.executable).with_name("compose")
+    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose.cli.main"]
+    out = []
+    for _ in range(runs):
+        with tempfile.TemporaryDirectory() as tmp:
+            t = time.perf_counter()
+            done = subprocess.run(cmd + ["render", style, "--out", tmp], capture_output=True,
+                                  text=True)
+            out.append(time.perf_counter() - t)
+            if done.returncode not in (0, 1):
+                raise SystemExit(f"compose render failed ({done.returncode}): {done.stderr}")
+    return out
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("style", nargs="?", default=str(Path(__file__).parents[1] / "styles/coast.toml"))
     ap.add_argument("--runs", type=int, default=3)
+    ap.add_argument("--no-command", action="store_true", help="only the in-process stages")
     args = ap.parse_args()
+    load = os.getloadavg()[0]
+    whole = None if args.no_command else command_seconds(args.style, args.runs)
     style = load_style(args.style)
     runs: dict[str, list[float]] = {}
     for _ in range(args.runs):
         with tempfile.TemporaryDirectory() as tmp:
-            result = render_style(style, Path(tmp), html=False, legend=False, check=False)
+            result = render_style(style, Path(tmp))
         for k, v in result.seconds.items():
             runs.setdefault(k, []).append(v)
     med = {k: statistics.median(v) for k, v in runs.items()}
-    print(f"{style.name}: {result.width} x {result.height} px, median of {args.runs} run(s)")
+    print(f"{style.name}: {result.width} x {result.height} px, median of {args.runs} run(s), "
+          f"load average {load:.2f} before the runs")
+    if whole is not None:
+        print(f"  {'command':<16} {statistics.median(whole):7.2f} s  (compose render, fresh "
+              f"process, every default output; runs: {', '.join(f'{w:.2f}' for w in whole)})")
+    print("  in this process:")
     for k in sorted(med):
         share = f"  ({med[k] / med['compute']:.2f} x compute)" if k.startswith("page") else ""
         print(f"  {k:<16} {med[k]:7.2f} s{share}")

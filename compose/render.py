@@ -167,7 +167,10 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 page_map = PreviewSink(canvas.width, canvas.height)
                 layer_previews = LayerPreviews(canvas.width, canvas.height, len(prepared.layers),
                                                tuple(style.map.background))
-                sinks.append(page_map)
+                if page_map.copy is not None and page_sink is not None:
+                    page_map.copy = page_sink.image     # the page keeps the whole map already
+                else:
+                    sinks.append(page_map)
             stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
                         previews=layer_previews, mapper=mapper, window=window or WINDOW)
             t = time.perf_counter()

@@ -27,10 +27,27 @@ JPEG_QUALITY = 90
 
 
 class PreviewSink(BoxThumbnail):
-    """A render sink keeping a box-averaged copy of the map at most ``max_width`` pixels wide."""
+    """A render sink keeping a box-averaged copy of the map at most ``max_width`` pixels wide.
+
+    A map that fits (factor 1) is kept as its own 8-bit rows: the same pixels without summing
+    them in floats and dividing them back."""
 
     def __init__(self, width: int, height: int, max_width: int = PAGE_WIDTH):
         super().__init__(width, height, math.ceil(width / max_width))
+        self.copy = np.empty((height, width, 3), np.uint8) if self.k == 1 else None
+        if self.copy is not None:
+            self.sum = np.zeros((0, 0, 3), np.float32)     # no sums needed
+
+    def add(self, row0: int, rgb8: np.ndarray) -> None:
+        if self.copy is not None:
+            self.copy[row0:row0 + rgb8.shape[0]] = rgb8
+        else:
+            super().add(row0, rgb8)
+
+    rows = add
+
+    def image(self) -> np.ndarray:
+        return self.copy if self.copy is not None else super().image()
 
 
 def box_reduce(rgb8: np.ndarray, max_width: int = PAGE_WIDTH) -> np.ndarray:

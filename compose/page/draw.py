@@ -17,10 +17,11 @@ from compose.page.geometry import grid_lines
 from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
 from compose.page.vectors import emit_layer
 
-__all__ = ["page_figure", "format_coordinate", "shrink_artists", "FONT"]
+__all__ = ["page_figure", "furniture_only", "format_coordinate", "shrink_artists", "FONT"]
 
 FONT = "DejaVu Sans"
 _IN = 25.4
+MAP_AXES = "map frame"      # label of the axes holding the map's image and vectors
 
 
 def _rgb(c) -> tuple[float, float, float]:
@@ -244,7 +245,7 @@ def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(
     canvas = layout.canvas
     fig = Figure(figsize=(W / _IN, H / _IN), facecolor=_rgb(page.color))
     fx, fy, fw, fh = layout.frame
-    ma = fig.add_axes((fx / W, 1 - (fy + fh) / H, fw / W, fh / H), zorder=1)
+    ma = fig.add_axes((fx / W, 1 - (fy + fh) / H, fw / W, fh / H), zorder=1, label=MAP_AXES)
     ma.set_axis_off()
     ma.set_xlim(0, canvas.width)
     ma.set_ylim(canvas.height, 0)
@@ -271,3 +272,13 @@ def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(
             p.legend(piece, legend_layout, _rgb(style.map.background))
     return fig
 
+
+
+def furniture_only(fig) -> None:
+    """Hide what :func:`page_figure` drew in the map frame (the raster image and the vectors),
+    leaving the furniture: the page PNG draws that over the finished map. Drawing the figure
+    afterwards gives the same pixels as a figure built without image and layers (the frame's
+    axes draws nothing else: no patch, no axis)."""
+    for ax in fig.axes:
+        if ax.get_label() == MAP_AXES:
+            ax.set_visible(False)

@@ -175,7 +175,7 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                     metadata={"Title": meta_title, "Description": style.page.caution})
         seconds["svg"] = time.perf_counter() - t
         t = time.perf_counter()
-        write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi)
+        write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi, fig=fig)
         seconds["page.png"] = time.perf_counter() - t
     return seconds, layout
 
@@ -185,16 +185,24 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
 MIN_PAGE_DPI = 72.0
 
 
-def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -> np.ndarray:
+def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float,
+             fig=None) -> np.ndarray:
     """The page as (H, W, 3) uint8 at ``dpi``: the furniture drawn by Agg on a transparent
     page, laid over the paper with the finished map pasted pixel for pixel into the frame (the
-    frame is the canvas at this dpi; its corner lands on the nearest whole page pixel)."""
+    frame is the canvas at this dpi; its corner lands on the nearest whole page pixel).
+
+    ``fig``: the page's figure already built for the PDF and SVG (:func:`page_figure` of the
+    same layout and legend), drawn here with its map frame hidden instead of building the
+    furniture again (it is changed: keep it for nothing else)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
-    from compose.page.draw import page_figure
+    from compose.page.draw import furniture_only, page_figure
 
     dpi = max(float(dpi), MIN_PAGE_DPI)          # type needs a few pixels per point
-    fig = page_figure(style, layout, None, legend_layout=legend)
+    if fig is None:
+        fig = page_figure(style, layout, None, legend_layout=legend)
+    else:
+        furniture_only(fig)
     paper = fig.get_facecolor()
     fig.patch.set_alpha(0.0)
     fig.set_dpi(dpi)
@@ -227,11 +235,12 @@ def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float) -
 
 
 def write_page_png(path: Path, style, layout: PageLayout, image: np.ndarray, legend,
-                   dpi: float) -> None:
+                   dpi: float, fig=None) -> None:
     """Write :func:`page_png` as a PNG at ``path`` (with its dpi)."""
     from compose.output.png import write_png
 
-    write_png(path, page_png(style, layout, image, legend, dpi), dpi=max(dpi, MIN_PAGE_DPI))
+    write_png(path, page_png(style, layout, image, legend, dpi, fig=fig),
+              dpi=max(dpi, MIN_PAGE_DPI))
 
 
 def world_file_text(canvas) -> str:
