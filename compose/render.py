@@ -95,6 +95,31 @@ def output_paths(style, out_dir: Path, *, proofs: bool = False) -> dict[str, Pat
     return paths
 
 
+def _warm(page: bool, legend: bool) -> None:
+    try:
+        if page:
+            from compose.page.write import warm_writers
+
+            warm_writers()
+        elif legend:
+            import matplotlib.backends.backend_agg  # noqa: F401
+            import matplotlib.figure  # noqa: F401
+
+            import compose.output.legend  # noqa: F401
+    except Exception:                                  # pragma: no cover - the writer reports it
+        pass
+
+
+def _warm_imports(page: bool, legend: bool) -> None:
+    """Load the modules of the writers this process runs after the walk (the page's when it is
+    written here, else the legend's) on a thread beside the walk."""
+    import threading
+
+    if page or legend:
+        threading.Thread(target=_warm, args=(page, legend), name="writer-imports",
+                         daemon=True).start()
+
+
 def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  progress: Callable[[int, int], None] | None = None,
                  extra_sinks: list | None = None, legend: bool = True, check: bool = True,
@@ -132,6 +157,17 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 "TIFFTAG_IMAGEDESCRIPTION": CAUTION, "TIFFTAG_SOFTWARE": "compose"}
         with contextlib.ExitStack() as stack:
             tmp = outputs.temporaries()
+            page_sink = page_job = None
+            if style.page is not None:
+                # the page's process is forked now, before the render starts any thread
+                from compose.page.process import PageJob
+                from compose.page.write import PageSink, vector_split, warm_writers, write_page
+
+                page_sink = PageSink(canvas, vector_split(prepared.layers))
+                page_job = PageJob(style, prepared, page_sink, tmp, write_page, warm=warm_writers)
+                stack.callback(page_job.abort)
+            _warm_imports(page=page_job is not None and not page_job.forked,
+                          legend=legend or html)
             png = _PngSink(tmp["png"], canvas.width, canvas.height, canvas.dpi)
             stack.callback(png.writer.abort)
             tif = _TiffSink(tmp["tif"], canvas, tags, cog=cog,
@@ -145,11 +181,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             from compose.page.write import write_world_file
 
             write_world_file(tmp["world"], canvas)
-            page_sink = None
-            if style.page is not None:
-                from compose.page.write import PageSink, vector_split
-
-                page_sink = PageSink(canvas, vector_split(prepared.layers))
+            if page_sink is not None:
                 sinks.append(page_sink)
             proof_sink = None
             if proofs:
@@ -173,6 +205,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     sinks.append(page_map)
             stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
                         previews=layer_previews, mapper=mapper, window=window or WINDOW)
+            if page_job is not None:         # the page process draws from here on
+                page_job.start(nodata_seen(stats))
             t = time.perf_counter()
             png_bg.finish()
             tif_bg.finish()
@@ -198,25 +232,6 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 seconds["proofs"] = time.perf_counter() - t
             report = None
             layout = None
-            if page_sink is not None:
-                from compose.page.write import write_page
-
-                page_seconds, layout = write_page(style, prepared, page_sink, tmp,
-                                                  nodata_seen(stats))
-                seconds.update({f"page {k}": v for k, v in page_seconds.items()})
-            if check or html:
-                from compose.check import check_style
-
-                t = time.perf_counter()
-                report = check_style(style, stats, prepared.ramps)
-                if layout is not None and page_sink is not None:
-                    from compose.page.contrast import with_furniture
-
-                    report = with_furniture(report, style, layout, page_sink.image)
-                if check:
-                    with open(tmp["check"], "w", encoding="utf-8") as f:
-                        json.dump(report.to_json(), f, indent=2)
-                seconds["check"] = time.perf_counter() - t
             legend_png = None
             if legend or html:
                 from compose.output.legend import legend_png as draw_legend
@@ -227,6 +242,24 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 if legend:
                     tmp["legend"].write_bytes(legend_png)
                 seconds["legend"] = time.perf_counter() - t
+            if check or html:
+                from compose.check import check_style
+
+                t = time.perf_counter()
+                report = check_style(style, stats, prepared.ramps)
+                seconds["check"] = time.perf_counter() - t
+            if page_job is not None:
+                layout = page_job.layout()      # the page is written here when not forked
+            if report is not None:
+                t = time.perf_counter()
+                if layout is not None and page_sink is not None:
+                    from compose.page.contrast import with_furniture
+
+                    report = with_furniture(report, style, layout, page_sink.image)
+                if check:
+                    with open(tmp["check"], "w", encoding="utf-8") as f:
+                        json.dump(report.to_json(), f, indent=2)
+                seconds["check"] += time.perf_counter() - t
             result = RenderResult(outputs=dict(paths), width=canvas.width, height=canvas.height,
                                   seconds=seconds, statistics=stats,
                                   report=report, unplaced_labels=prepared.unplaced_labels,
@@ -246,6 +279,9 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 seconds["total"] = t - t0
                 tmp["html"].write_text(page_html(style, result), encoding="utf-8")
                 seconds["html"] = time.perf_counter() - t
+            if page_job is not None:
+                page_seconds = page_job.wait()
+                seconds.update({f"page {k}": v for k, v in page_seconds.items()})
         outputs.commit()                # every file renamed into place together
         seconds["total"] = time.perf_counter() - t0
         result.seconds = dict(seconds)

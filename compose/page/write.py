@@ -17,7 +17,7 @@ import numpy as np
 from compose.page.layout import PageLayout, blocked_pixels, page_layout
 
 __all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_page", "page_png",
-           "write_page_png", "world_file_text",
+           "write_page_png", "world_file_text", "warm_writers",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
 #: matplotlib settings of the vector writers: text stays text (``pdf.fonttype`` follows
@@ -39,7 +39,7 @@ def vector_split(layers) -> int:
     return k
 
 
-def _warm_writers() -> None:
+def warm_writers() -> None:
     """Import what the page writers use (matplotlib's figure, PDF/SVG/Agg backends, the page and
     legend drawing); errors are left for the writers themselves to raise."""
     try:
@@ -55,15 +55,15 @@ def _warm_writers() -> None:
 
 
 class PageSink:
-    """Keeps the whole map (``image``) and its raster part (``base``, layers under ``below``)."""
+    """Keeps the whole map (``image``) and its raster part (``base``, layers under ``below``),
+    in memory shared with a page process forked after it (:mod:`compose.page.process`)."""
 
     def __init__(self, canvas, below: int):
+        from compose.page.process import shared_image
+
         self.below = int(below)
-        self.image = np.zeros((canvas.height, canvas.width, 3), dtype=np.uint8)
-        self.base = np.zeros_like(self.image)
-        # the writers' modules (about half a second of imports) load beside the window walk
-        import threading
-        threading.Thread(target=_warm_writers, name="page-imports", daemon=True).start()
+        self.image = shared_image(canvas.height, canvas.width)
+        self.base = shared_image(canvas.height, canvas.width)
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.image[row0:row0 + rgb8.shape[0]] = rgb8
@@ -148,15 +148,19 @@ def stand_in(spec):
 
 
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
-               nodata_seen: set[str] | None = None) -> tuple[dict[str, float], PageLayout]:
+               nodata_seen: set[str] | None = None,
+               on_layout=None) -> tuple[dict[str, float], PageLayout]:
     """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
-    returns (seconds per output, the layout)."""
+    returns (seconds per output, the layout). ``on_layout(layout)``: called as soon as the
+    layout is decided, before the files are drawn."""
     from matplotlib import rc_context
 
     from compose.page.draw import page_figure
 
     legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
     layout = _layout(style, legend)
+    if on_layout is not None:
+        on_layout(layout)
     seconds = {}
     meta_title = layout.title or style.name
     vectors = run_.layers[sink.below:]

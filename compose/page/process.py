@@ -1,0 +1,223 @@
+"""The page outputs (NAME.pdf, NAME.svg, NAME.page.png) written by a process of their own, on the
+other core, beside the rest of the render.
+
+Drawing a page is matplotlib work that holds the interpreter lock, so a thread would not run it
+beside the map's walk or the review page. :class:`PageJob` forks the render right after it is
+prepared (the child shares the prepared layers, ramps and label placements copy-on-write; nothing
+is prepared twice) and before any other thread of the render starts. The child loads the page
+writers' modules while the parent walks the windows into the page sink, whose two images live in
+memory shared by both processes (:func:`shared_image`). When the walk is done the parent hands
+over the one thing the page still needs (which layers showed no-data on the map) and goes on with
+its own outputs; the child sends the page's layout back first (the check judges the furniture
+with it) and its seconds when all three files are written to their temporary names. The parent
+waits for it before the output set is committed, kills it if the render fails, and re-raises its
+error (a style error stays a style error: exit 2).
+
+Where forking is not safe or possible (another thread is running, so a lock could be copied held;
+not Linux) the page is written in this process, at the same point and with the same result.
+"""
+from __future__ import annotations
+
+import mmap
+import os
+import pickle
+import signal
+import sys
+import threading
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["PageJob", "shared_image", "can_fork"]
+
+
+def shared_image(height: int, width: int) -> np.ndarray:
+    """A zeroed (height, width, 3) uint8 array in anonymous shared memory: what one process
+    writes, a process forked after its creation sees."""
+    size = max(1, height * width * 3)
+    buf = mmap.mmap(-1, size)                        # MAP_SHARED | MAP_ANONYMOUS, zero-filled
+    return np.frombuffer(buf, dtype=np.uint8, count=height * width * 3).reshape(height, width, 3)
+
+
+def can_fork() -> bool:
+    """Whether the page may go to a forked process: Linux (the child dies with its parent) and
+    no other thread running (a fork copies locks other threads may hold)."""
+    return (sys.platform.startswith("linux") and hasattr(os, "fork")
+            and threading.active_count() == 1)
+
+
+def _die_with_parent(parent: int) -> None:
+    """Ask the kernel to kill this process when its parent ends (prctl PR_SET_PDEATHSIG)."""
+    try:
+        import ctypes
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL, 0, 0, 0)
+    except Exception:                                  # pragma: no cover - best effort
+        pass
+    if os.getppid() != parent:                         # the parent ended before the prctl
+        os._exit(1)
+
+
+def _send(out, message) -> None:
+    pickle.dump(message, out, protocol=pickle.HIGHEST_PROTOCOL)
+    out.flush()
+
+
+def _child(inbox: int, outbox: int, parent: int, write, warm) -> None:
+    """The forked process: load the writers, wait for the walk, write the page. Never returns."""
+    status = 0
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_DFL)      # an interrupt ends it quietly; the
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)     # parent cleans up the temporaries
+        _die_with_parent(parent)
+        if warm is not None:
+            warm()
+        with os.fdopen(inbox, "rb") as inp, os.fdopen(outbox, "wb") as out:
+            try:
+                nodata = pickle.load(inp)
+            except EOFError:                              # the render ended without a page
+                os._exit(0)
+            try:
+                seconds, _ = write(nodata, lambda layout: _send(out, ("layout", layout)))
+                _send(out, ("done", seconds))
+            except BaseException as exc:                  # noqa: BLE001 - handed to the parent
+                import traceback
+
+                status = 1
+                try:
+                    _send(out, ("error", exc, traceback.format_exc()))
+                except Exception:
+                    _send(out, ("error", None, traceback.format_exc()))
+    except BaseException:                                 # noqa: BLE001
+        status = 1
+    finally:
+        os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
+
+
+class PageJob:
+    """Writes the page of one render in a forked process when it can (:func:`can_fork`), else
+    in this process: ``write(style, prepared, sink, tmp, nodata_seen, on_layout=None) ->
+    (seconds, layout)`` (:func:`compose.page.write.write_page`); ``warm()``: loads what it needs,
+    run first in the child.
+
+    Create it once the render is prepared and its :class:`compose.page.write.PageSink` exists,
+    before other threads start; then :meth:`start` with the walk's no-data layers, :meth:`layout`
+    for the page layout, :meth:`wait` for the writers' seconds (before committing the outputs);
+    :meth:`abort` (always, on the way out) ends a child still running.
+    """
+
+    def __init__(self, style, prepared, sink, tmp: dict[str, Path], write: Callable, *,
+                 warm: Callable[[], None] | None = None, forked: bool | None = None):
+        self._args = (style, prepared, sink, tmp)
+        self._write = write
+        self._warm = warm
+        self.pid: int | None = None
+        self._forked = False
+        self._inbox: Any = None
+        self._outbox: Any = None
+        self._nodata: set[str] | None = None
+        self._layout = None
+        self._seconds: dict[str, float] | None = None
+        self._waited = 0.0
+        if forked if forked is not None else can_fork():
+            self._fork()
+
+    @property
+    def forked(self) -> bool:
+        """Whether the page is written by a forked process."""
+        return self._forked
+
+    def _fork(self) -> None:
+        down_r, down_w = os.pipe()
+        up_r, up_w = os.pipe()
+        parent = os.getpid()
+        style, prepared, sink, tmp = self._args
+
+        def write(nodata, on_layout):
+            return self._write(style, prepared, sink, tmp, nodata, on_layout=on_layout)
+
+        pid = os.fork()
+        if pid == 0:                                          # the child
+            os.close(down_w)
+            os.close(up_r)
+            _child(down_r, up_w, parent, write, self._warm)
+        os.close(down_r)
+        os.close(up_w)
+        self.pid = pid
+        self._forked = True
+        self._outbox = os.fdopen(down_w, "wb")
+        self._inbox = os.fdopen(up_r, "rb")
+
+    def start(self, nodata_seen: set[str] | None) -> None:
+        """The walk is done: let the page be written (in the child; here it waits for
+        :meth:`layout`)."""
+        self._nodata = nodata_seen
+        if self.forked:
+            _send(self._outbox, nodata_seen)
+            self._outbox.close()
+            self._outbox = None
+
+    def _receive(self):
+        t = time.perf_counter()
+        try:
+            message = pickle.load(self._inbox)
+        except EOFError:
+            message = ("error", None, "")
+        self._waited += time.perf_counter() - t
+        if message[0] == "error":
+            _, exc, trace = message
+            self._reap()
+            if exc is None:
+                raise RuntimeError("the page writer process ended without writing the page"
+                                   + (f":\n{trace}" if trace else ""))
+            raise exc
+        return message
+
+    def layout(self):
+        """The page's :class:`compose.page.layout.PageLayout` (in this process: writes the page
+        now)."""
+        if self._layout is None:
+            if self.forked:
+                self._layout = self._receive()[1]
+            else:
+                style, prepared, sink, tmp = self._args
+                self._seconds, self._layout = self._write(style, prepared, sink, tmp, self._nodata)
+        return self._layout
+
+    def wait(self) -> dict[str, float]:
+        """Seconds of each page writer once all three files are written; also ``waited``: how
+        long this process waited for the child."""
+        self.layout()
+        if self._seconds is None:
+            self._seconds = dict(self._receive()[1])
+            self._reap()
+        return dict(self._seconds, waited=self._waited)
+
+    def _reap(self) -> None:
+        if self._inbox is not None:
+            self._inbox.close()
+            self._inbox = None
+        if self.pid is not None:
+            try:
+                os.waitpid(self.pid, 0)
+            except ChildProcessError:
+                pass
+            self.pid = None
+
+    def abort(self) -> None:
+        """End a child still running (the render failed or was interrupted) and reap it."""
+        if self._outbox is not None:
+            try:
+                self._outbox.close()
+            except OSError:
+                pass
+            self._outbox = None
+        if self.pid is not None:
+            try:
+                os.kill(self.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+        self._reap()

@@ -1,0 +1,111 @@
+"""The page written by a forked process (compose.page.process): the same files as in this
+process, errors handed back as they were raised, no child left behind."""
+from __future__ import annotations
+
+import os
+import re
+
+import numpy as np
+import pytest
+
+import compose.page.process as process
+from compose.errors import StyleError
+from compose.render import render_style
+from tests.page.test_write import _style
+
+pytestmark = pytest.mark.skipif(not hasattr(os, "fork"), reason="no fork on this system")
+
+
+def _render(tmp_path, name, forked, monkeypatch):
+    monkeypatch.setattr(process, "can_fork", lambda: forked)
+    style = _style(tmp_path / name)
+    return render_style(style, tmp_path / name / "out", html=False)
+
+
+def _pdf_without_date(path):
+    return re.sub(rb"/CreationDate \(.*?\)", b"", path.read_bytes())
+
+
+def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
+    here = _render(tmp_path, "here", False, monkeypatch)
+    there = _render(tmp_path, "there", True, monkeypatch)
+    assert there.outputs["page"].read_bytes() == here.outputs["page"].read_bytes()
+    assert _pdf_without_date(there.outputs["pdf"]) == _pdf_without_date(here.outputs["pdf"])
+    # the furniture's contrast results (judged with the layout the child sent) are the same
+    rules = [(r.rule, r.layer, r.value) for r in here.report.rules]
+    assert [(r.rule, r.layer, r.value) for r in there.report.rules] == rules
+    assert any(layer.startswith("page ") for _, layer, _ in rules)
+    assert {"page pdf", "page svg", "page page.png"} <= set(there.seconds)
+
+
+def test_shared_image_is_seen_by_a_forked_process():
+    image = process.shared_image(4, 5)
+    assert image.shape == (4, 5, 3) and image.dtype == np.uint8 and not image.any()
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:                                    # the child writes, the parent reads
+        image[2, 3] = (7, 8, 9)
+        os.write(w, b"x")
+        os._exit(0)
+    os.read(r, 1)
+    os.waitpid(pid, 0)
+    os.close(r)
+    os.close(w)
+    assert tuple(image[2, 3]) == (7, 8, 9)
+
+
+class _Prepared:
+    ramps: dict = {}
+    layers: list = []
+
+
+def _job(monkeypatch, fake_write):
+    return process.PageJob(None, _Prepared(), None, {}, fake_write, forked=True)
+
+
+def test_a_style_error_in_the_child_is_raised_in_the_parent(monkeypatch):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):
+        raise StyleError("page.legend: the legend needs shrinking to 20% to fit the panel")
+
+    job = _job(monkeypatch, fake_write)
+    assert job.forked
+    job.start({"land"})
+    with pytest.raises(StyleError, match="needs shrinking to 20%"):
+        job.layout()
+    job.abort()
+    assert job.pid is None
+
+
+def test_layout_first_then_seconds(monkeypatch):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):
+        on_layout({"nodata": sorted(nodata)})
+        return {"pdf": 0.5}, None
+
+    job = _job(monkeypatch, fake_write)
+    job.start({"b", "a"})
+    assert job.layout() == {"nodata": ["a", "b"]}
+    seconds = job.wait()
+    assert seconds["pdf"] == 0.5 and seconds["waited"] >= 0
+    assert job.pid is None                           # reaped
+
+
+def test_a_child_that_dies_is_an_error_not_a_hang(monkeypatch):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):
+        os._exit(3)
+
+    job = _job(monkeypatch, fake_write)
+    job.start(set())
+    with pytest.raises(RuntimeError, match="ended without writing the page"):
+        job.layout()
+
+
+def test_abort_before_start_ends_the_child(monkeypatch):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):  # pragma: no cover
+        raise AssertionError("never called")
+
+    job = _job(monkeypatch, fake_write)
+    pid = job.pid
+    job.abort()
+    assert job.pid is None
+    with pytest.raises(ChildProcessError):          # reaped: no zombie left
+        os.waitpid(pid, os.WNOHANG)
