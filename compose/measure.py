@@ -161,6 +161,9 @@ class WindowMeasure:
         self._hidden: np.ndarray | None = None   # core: how much overlays cover each pixel
         self._union: np.ndarray | None = None
         self._ground: np.ndarray | None = None
+        # reliefs drawn so far: [layer index, part, palette index (core), alpha (core), what
+        # the layers drawn normally over it let through (core; None while nothing has been)]
+        self._reliefs: list[list] = []
 
     def begin_layer(self, li: int, layer, n_paints: int, out: np.ndarray) -> None:
         """Layer ``li`` is about to composite ``n_paints`` paints over ``out`` (3, h, w)."""
@@ -180,6 +183,12 @@ class WindowMeasure:
                       self._ground if pi else None, overlay, self.inner)
         if spec.role == "theme" and paint.palette is not None:
             self._themes.append((li, paint.index[self.inner], a_core))
+        if self._reliefs and spec.role != "overlay" and spec.blend == "normal":
+            for r in self._reliefs:     # a relief under this paint shows through 1 - alpha
+                if r[0] != li:
+                    r[4] = 1.0 - a_core if r[4] is None else r[4] * (1.0 - a_core)
+        if spec.kind == "relief" and paint.palette is not None:
+            self._reliefs.append([li, paint.part, paint.index[self.inner], a_core, None])
 
     def end_layer(self, li: int, layer) -> None:
         """Layer ``li`` is composited."""
@@ -192,6 +201,11 @@ class WindowMeasure:
 
     def finish(self, rgb8: np.ndarray) -> Statistics:
         """The window's statistics, given its finished core ``rgb8`` (h, w, 3) uint8."""
+        for li, part, index, a_core, through in self._reliefs:
+            if through is not None:     # the relief as seen on the composite
+                p = self.stats.layers[li].parts[part]
+                p.seen = np.bincount(index.ravel(), weights=(a_core * through).ravel(),
+                                     minlength=p.weights.shape[0])
         themes = [t for t in self._themes if self.stats.layers[t[0]].value_lightness is not None]
         if themes:
             # Grey order is a rank correlation: every second row and column (a quarter of the

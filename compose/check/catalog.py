@@ -62,7 +62,8 @@ _RULES = [
        "ground.chroma[1]", NO_SOURCE, measured="the ground layer's own colours"),
     _r("relief-visible", "a relief ground shows: its L* spread p95 - p5 reaches the budget",
        ">=", "L*", "ground.relief_spread", NO_SOURCE,
-       measured="the relief layer's own shading"),
+       measured="the relief layer's own shading where it shows through the layers drawn over "
+                "it with blend normal (hidden below 5 % of it)"),
     _r("reserved-saturation", "ground C*ab p95 + margin at most the least saturated theme's C*ab "
        "p50: saturation is kept for the data", "<=", "C*ab", "theme.margin", NO_SOURCE,
        measured="the layers' own colours"),

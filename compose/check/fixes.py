@@ -236,37 +236,71 @@ def stretch_weights(weights, altitude: float, k: float) -> np.ndarray:
     return np.append(out, w[n:])
 
 
-def solve_relief_spread(options, weights, spread: float, lo_L: float, margin: float = 0.3
-                        ) -> dict | None:
-    """Make a relief's L* spread (p95 - p5) reach ``spread`` while its p5 stays >= ``lo_L``.
+def solve_relief_spread(options, weights, spread: float, lo_L: float, margin: float = 0.3,
+                        hi_L: float = 100.0) -> dict | None:
+    """Make a relief's L* spread (p95 - p5) reach ``spread`` while its p5 stays >= ``lo_L`` (and
+    its p95 <= ``hi_L``).
 
     First raise ``strength`` (exact: the same shade levels through a new lookup table), in steps
     of 0.01 up to 1; if that is not enough, raise the exaggeration by the smallest factor (up
     to 100x, in steps of about 1 %) that reaches it at the strength the lightness budget allows
-    (estimated with :func:`stretch_weights`). Returns {"strength", "exaggeration" (None if unchanged), "spread",
-    "p5"} or None.
+    (estimated with :func:`stretch_weights`); if the tint is too dark to leave room for shading
+    above ``lo_L``, raise the tint's L* (hue and chroma kept; a default shadow follows) by the
+    least whole unit with which some strength reaches the spread, first at the current
+    exaggeration, then at larger ones. Returns {"strength", "exaggeration" (None if unchanged),
+    "tint" (None if unchanged), "spread", "p5"} or None.
     """
-    def stats(w, strength):
-        p5, p95, _ = relief_stats(options, w, strength=strength)
-        return p95 - p5, p5
+    def stats(w, strength, tint=None, shadow=None):
+        p5, p95, _ = relief_stats(options, w, tint, shadow, strength=strength)
+        return p95 - p5, p5, p95
 
     need = spread + margin
     s0 = float(options.strength)
     best_s = s0
     for st in np.round(np.arange(s0, 1.0 + 1e-9, 0.01), 2):
-        sp, p5 = stats(weights, float(st))
+        sp, p5, _ = stats(weights, float(st))
         if p5 < lo_L + margin:
             break
         best_s = float(st)
         if sp >= need:
-            return {"strength": float(st), "exaggeration": None, "spread": sp, "p5": p5}
+            return {"strength": float(st), "exaggeration": None, "tint": None, "spread": sp,
+                    "p5": p5}
     ex0 = float(options.exaggeration)
     for k in np.unique(np.round(np.geomspace(1.1, 100.0, 400), 2)):
         w = stretch_weights(weights, options.altitude, float(k))
-        sp, p5 = stats(w, best_s)
+        sp, p5, _ = stats(w, best_s)
         if sp >= need and p5 >= lo_L + margin:
             return {"strength": best_s, "exaggeration": float(np.ceil(ex0 * k * 10) / 10),
-                    "spread": sp, "p5": p5}
+                    "tint": None, "spread": sp, "p5": p5}
+    return _lighter_tint(options, weights, need, lo_L + margin, hi_L - margin, stats)
+
+
+def _lighter_tint(options, weights, need: float, lo: float, hi: float, stats) -> dict | None:
+    """The third step of :func:`solve_relief_spread`: a lighter tint and the least strength."""
+    L, C, h = (float(v) for v in srgb_to_lch(np.asarray(options.tint, dtype=float)))
+    s0 = float(options.strength)
+    grid = np.round(np.arange(s0, 1.0 + 1e-9, 0.01), 2)
+    ex0 = float(options.exaggeration)
+    for k in (1.0, 1.5, 2.0, 3.0, 5.0, 10.0, 20.0, 50.0, 100.0):
+        w = weights if k == 1.0 else stretch_weights(weights, options.altitude, k)
+        top = _candidate(options, [hi, C, h], None)
+        if stats(w, 1.0, top[0], top[1])[0] < need:     # not even the lightest tint at full strength
+            continue
+        for Lt in np.arange(np.floor(L) + 1.0, hi + 1e-9, 1.0):
+            tint, shadow, _ = _candidate(options, [Lt, C, h], None)
+            if stats(w, 1.0, tint, shadow)[0] < need:
+                continue
+            i, j = 0, grid.size - 1                      # the least strength reaching the spread
+            while i < j:
+                m = (i + j) // 2
+                if stats(w, float(grid[m]), tint, shadow)[0] >= need:
+                    j = m
+                else:
+                    i = m + 1
+            sp, p5, p95 = stats(w, float(grid[i]), tint, shadow)
+            if sp >= need and p5 >= lo and p95 <= hi:
+                return {"strength": float(grid[i]), "tint": tint, "spread": sp, "p5": p5,
+                        "exaggeration": None if k == 1.0 else float(np.ceil(ex0 * k * 10) / 10)}
     return None
 
 

@@ -14,6 +14,7 @@ from compose.check.catalog import limit_of
 from compose.check.context import CheckContext, layer_key
 from compose.check.fixes import hex8, solve_relief_chroma, solve_relief_lightness, solve_relief_spread
 from compose.check.report import Change, RuleResult
+from compose.check.stats import weighted_percentiles
 from compose.color.lab import srgb_to_lch
 from compose.color.parse import to_rgb8
 
@@ -104,45 +105,115 @@ def ground_chroma(ctx: CheckContext) -> list[RuleResult]:
     return out
 
 
+#: Least share of a relief that must show through the layers drawn normally over it (each
+#: pixel counted by its coverage times what they let through): below it the relief is hidden
+#: (our design choice, no source; a relief under data drawn at opacity 0.85 shows 0.15 of it).
+MIN_SEEN = 0.05
+#: The opacity a fix gives the layer that hides the relief: the data keep their lightness and a
+#: hint of the relief shows through (as rule relief-shift proposes; common practice, no source).
+SEEN_OPACITY = 0.85
+
+
+def _hiding_layer(ctx: CheckContext, relief_name: str):
+    """The layer drawn with blend "normal" over the relief that covers the most of the canvas
+    at an opacity above :data:`SEEN_OPACITY` (None if there is none)."""
+    names = [s.name for s in ctx.stats.layers]
+    above = names[names.index(relief_name) + 1:]
+    found = [(ctx.coverage(s), spec) for spec, s in ctx.layers()
+             if spec.name in above and spec.role != "overlay" and spec.blend == "normal"
+             and spec.opacity > SEEN_OPACITY]
+    return max(found, key=lambda t: t[0])[1] if found else None
+
+
+def _hidden_result(ctx, spec, s, share: float, limit: float, lo_L: float, hi_L: float
+                   ) -> RuleResult:
+    (p5, _, p95), _ = s.lightness_chroma()
+    spread = p95 - p5
+    hider = _hiding_layer(ctx, spec.name)
+    msg = (f"hidden: {share:.1%} of the relief shows through the layers drawn over it (at least "
+           f"{MIN_SEEN:.0%}); its own L* spread is {spread:.2f}")
+    if hider is None:
+        fix, change = (f"draw the layers over {spec.name} with a blend such as multiply, or move "
+                       "the relief above them"), None
+    else:
+        fix = (f'draw "{hider.name}" over the {spec.name} at opacity = {SEEN_OPACITY:g} (now '
+               f'{hider.opacity:g}, blend "normal" hides what lies beneath): the relief then shows '
+               f'through; or blend = "multiply"')
+        change = Change(layer_key(hider.name), {"opacity": SEEN_OPACITY})
+        part = s.parts.get("shade")
+        if spread < limit and part is not None:     # once seen, its own shading is too faint
+            then, _ = _spread_fix(spec, part.weights, limit, lo_L, hi_L)
+            fix = f"two steps: first {fix}; then {then}"
+    return RuleResult("relief-visible", spec.name, 0.0, limit, False, msg, fix, change=change)
+
+
 def relief_visible(ctx: CheckContext) -> list[RuleResult]:
-    """A relief ground shows: L* p95 - p5 of its own shading >= ``budget.ground.relief_spread``
-    (default 10; common practice, no source). Invisible relief is not a quiet ground, it is no
-    ground at all: the reader sees a flat tint."""
+    """A relief ground shows: L* p95 - p5 of its own shading where it shows on the map
+    >= ``budget.ground.relief_spread`` (default 10; common practice, no source). Invisible
+    relief is not a quiet ground, it is no ground at all: the reader sees a flat tint.
+
+    "Where it shows": each pixel weighted by what the layers drawn over it with blend "normal"
+    let through (1 - their alpha), so data drawn opaque over part of the relief leave only the
+    rest to judge; a relief of which less than :data:`MIN_SEEN` shows at all is hidden (value 0)
+    and the fix makes the layer hiding it partly transparent."""
     limit = float(limit_of("relief-visible", ctx.budgets)[0])
     lo_L = float(ctx.budgets.ground.lightness[0])
+    hi_L = float(ctx.budgets.ground.lightness[1])
     out = []
     for spec, s in ctx.layers("ground", ("relief",)):
+        part = s.parts.get("shade")
         (p5, _, p95), _ = s.lightness_chroma()
         if _nan(p5):
             continue
+        weights = None if part is None else part.seen_weights
+        share = 1.0 if part is None or part.seen is None else (
+            float(part.seen.sum()) / max(float(part.weights.sum()), 1e-12))
+        if share < MIN_SEEN:
+            out.append(_hidden_result(ctx, spec, s, share, limit, lo_L, hi_L))
+            continue
+        if part is not None and part.seen is not None:      # the spread where it shows
+            lch = srgb_to_lch(part.colors / 255.0)
+            p5, _, p95 = weighted_percentiles(lch[:, 0], part.seen)
         spread = p95 - p5
         passed = spread >= limit
-        msg = (f"L* p5 {p5:.1f} .. p95 {p95:.1f}: spread {spread:.2f}; at least {limit:g} "
+        where = "" if share >= 1.0 else f" where it shows ({share:.0%} of it)"
+        msg = (f"L* p5 {p5:.1f} .. p95 {p95:.1f}{where}: spread {spread:.2f}; at least {limit:g} "
                "so the terrain reads")
         fix, change = "", None
-        weights = _relief_weights(spec, s)
         if not passed and weights is not None:
-            sol = solve_relief_spread(spec.options, weights, limit, lo_L)
-            o = spec.options
-            if sol is None:
-                fix = ("even strength 1 and a 100x exaggeration do not reach it: darken the shadow "
-                       "colour, or waive the rule for this layer if the terrain is truly flat")
-            elif sol["exaggeration"] is None:
-                fix = (f"raise the {spec.name} strength from {o.strength:g} to {sol['strength']:g} "
-                       f"(L* spread becomes {sol['spread']:.1f}, p5 {sol['p5']:.1f})")
-                change = Change(layer_key(spec.name), {"strength": sol["strength"]})
-            else:
-                values = {"shade.exaggeration": sol["exaggeration"]}
-                fix = (f"raise the {spec.name} shade exaggeration from {o.exaggeration:g} to "
-                       f"{sol['exaggeration']:g}")
-                if sol["strength"] != o.strength:
-                    values["strength"] = sol["strength"]
-                    fix += f" and strength from {o.strength:g} to {sol['strength']:g}"
-                fix += f" (L* spread becomes about {sol['spread']:.1f})"
-                change = Change(layer_key(spec.name), values)
+            fix, change = _spread_fix(spec, weights, limit, lo_L, hi_L)
         out.append(RuleResult("relief-visible", spec.name, spread, limit, passed, msg, fix,
                               change=change))
     return out
+
+
+def _spread_fix(spec, weights, limit: float, lo_L: float, hi_L: float
+                ) -> tuple[str, Change | None]:
+    """Fix text and change for a relief whose L* spread must reach ``limit``."""
+    sol = solve_relief_spread(spec.options, weights, limit, lo_L, hi_L=hi_L)
+    o = spec.options
+    if sol is None:
+        return ("even strength 1, a 100x exaggeration and a lighter tint do not reach it: "
+                "darken the shadow colour, or waive the rule for this layer if the terrain is "
+                "truly flat"), None
+    values: dict = {}
+    steps = []
+    if sol.get("tint") is not None:
+        values["tint"] = hex8(to_rgb8(sol["tint"]))
+        steps.append(f'raise the {spec.name} tint lightness from L* '
+                     f'{float(srgb_to_lch(o.tint)[0]):.1f} to {float(srgb_to_lch(sol["tint"])[0]):.1f} '
+                     f'(tint = "{values["tint"]}": room for shading above the ground\'s L* floor '
+                     f'{lo_L:g})')
+    if sol["exaggeration"] is not None:
+        values["shade.exaggeration"] = sol["exaggeration"]
+        steps.append(f"raise the {spec.name} shade exaggeration from {o.exaggeration:g} to "
+                     f"{sol['exaggeration']:g}")
+    if sol["strength"] != o.strength:
+        values["strength"] = sol["strength"]
+        steps.append(f"raise the {spec.name} strength from {o.strength:g} to {sol['strength']:g}")
+    about = "about " if sol["exaggeration"] is not None else ""
+    fix = "; ".join(steps) + f" (L* spread becomes {about}{sol['spread']:.1f}, p5 {sol['p5']:.1f})"
+    return fix, Change(layer_key(spec.name), values)
 
 
 def _theme_p50(ctx: CheckContext) -> list[tuple[str, float]]:

@@ -186,6 +186,10 @@ class PartStats:
     beneath_lightness: (N_LIGHTNESS,) L* histogram of what lay beneath (overlays only).
     beneath_colors: (N_BENEATH,) histogram of what lay beneath, 8-bit colours cut to
     BENEATH_BITS per channel (overlays only; for colour differences beyond lightness).
+    seen: (n,) the weights as seen on the composite -- each pixel's coverage times what the
+    layers drawn later with blend "normal" let through of it (1 - their alpha, multiplied) --
+    for a relief's shading; None when nothing was drawn normally over it (then equal to
+    ``weights``).
     """
 
     part: str
@@ -195,16 +199,24 @@ class PartStats:
     ground_contrast: np.ndarray | None = None
     beneath_lightness: np.ndarray | None = None
     beneath_colors: np.ndarray | None = None
+    seen: np.ndarray | None = None
 
     def copy(self) -> PartStats:
         """A copy whose histograms can be added to without touching this one."""
         return PartStats(self.part, self.colors, self.weights.copy(),
                          *(None if a is None else a.copy() for a in (
                              self.contrast, self.ground_contrast, self.beneath_lightness,
-                             self.beneath_colors)))
+                             self.beneath_colors, self.seen)))
+
+    @property
+    def seen_weights(self) -> np.ndarray:
+        """:attr:`seen`, or the weights themselves when nothing was drawn normally over it."""
+        return self.weights if self.seen is None else self.seen
 
     def merge(self, other: PartStats) -> None:
         """Add ``other`` (the same part measured elsewhere) to this."""
+        if self.seen is not None or other.seen is not None:   # before the weights change
+            self.seen = self.seen_weights + other.seen_weights
         self.weights += other.weights
         for name in ("contrast", "ground_contrast", "beneath_lightness", "beneath_colors"):
             a, b = getattr(self, name), getattr(other, name)

@@ -122,3 +122,45 @@ def test_a_flat_dem_is_not_stretched_into_noise(data, tmp_path):
     rep = check(tmp_path, style([relief(data["flat"])]))
     r = one(rep, "relief-visible", "relief")
     assert not r.passed and r.value == 0 and "waive" in r.fix
+
+
+# --- relief-visible: a fix where there was none, and the relief as seen under the data (issue 10)
+
+def test_a_dark_tint_gets_a_lighter_tint_and_more_strength(data, tmp_path):
+    # tint at L* 55 (the ground's floor, budget.ground.lightness; common practice, no source):
+    # any more strength shades below the floor, and exaggeration does not help either. This
+    # had no structured fix before (6 of 21 fuzz failures).
+    doc = style([relief(data["gentle"], tint="#848484", strength=0.1)])
+    r = one(check(tmp_path, doc), "relief-visible", "relief")
+    assert not r.passed and r.change is not None
+    assert set(r.change.values) >= {"tint", "strength"} and "tint lightness" in r.fix
+    fixed = check(tmp_path, apply_change(doc, r.change), "fixed")
+    assert one(fixed, "relief-visible", "relief").passed
+    assert one(fixed, "ground-lightness", "relief").passed
+
+
+def test_a_relief_under_opaque_data_is_hidden_and_the_fix_lets_it_show(data, tmp_path):
+    # the data drawn normally at full opacity over the whole relief: the reader sees none of it,
+    # however well it is shaded (it passed before: the rule read the relief's own colours)
+    doc = style([relief(data["hills"]), field(data["scatter"], blend="normal")])
+    r = one(check(tmp_path, doc), "relief-visible", "relief")
+    assert not r.passed and r.value == 0 and r.message.startswith("hidden: 0.0%")
+    assert r.change is not None and r.change.table == 'layer "val"'
+    assert r.change.values == {"opacity": 0.85}
+    fixed = one(check(tmp_path, apply_change(doc, r.change), "fixed"), "relief-visible", "relief")
+    assert fixed.passed and "15%" in fixed.message       # 1 - 0.85 of it shows through
+
+
+def test_a_relief_half_under_opaque_data_is_judged_where_it_shows(data, tmp_path):
+    alone = one(check(tmp_path, style([relief(data["hills"])])), "relief-visible", "relief")
+    doc = style([relief(data["hills"]), field(data["west"], blend="normal", nodata="transparent")])
+    r = one(check(tmp_path, doc, "half"), "relief-visible", "relief")
+    assert r.passed and "where it shows (50% of it)" in r.message
+    assert r.value != alone.value                          # the east half's shading only
+
+
+def test_data_multiplied_over_a_relief_leave_it_judged_as_before(data, tmp_path):
+    alone = one(check(tmp_path, style([relief(data["hills"])])), "relief-visible", "relief")
+    doc = style([relief(data["hills"]), field(data["scatter"], blend="multiply")])
+    r = one(check(tmp_path, doc, "multiplied"), "relief-visible", "relief")
+    assert r.value == alone.value and "where it shows" not in r.message
