@@ -12,6 +12,7 @@ to clipped polygons lie outside the area either window paints.
 from __future__ import annotations
 
 import functools
+import itertools
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -111,6 +112,34 @@ class Features:
         return Features.build(geoms[keep], [self.properties[i] for i in hits[keep]])
 
 
+def _stamp(path: Path) -> tuple[int, ...]:
+    """What identifies a file's version for the metadata memo: (mtime ns, size, inode); a
+    source that is not a local file gets a stamp of its own each time (never memoised)."""
+    try:
+        st = Path(path).stat()
+    except OSError:
+        return (next(_UNIQUE),)
+    return (st.st_mtime_ns, st.st_size, st.st_ino)
+
+
+_UNIQUE = itertools.count()
+
+
+@functools.lru_cache(maxsize=32)
+def _tables(path: str, stamp: tuple) -> tuple[str, ...]:
+    """The tables of a vector file, read once per file version in a process (layers of a style
+    often share a file: a demo's eight vector layers open one GeoPackage)."""
+    import pyogrio
+    return tuple(str(t) for t in pyogrio.list_layers(path)[:, 0])
+
+
+@functools.lru_cache(maxsize=64)
+def _info(path: str, table: str, stamp: tuple) -> dict:
+    """pyogrio's metadata of one table (driver, CRS, fields), once per file version (read only)."""
+    import pyogrio
+    return pyogrio.read_info(path, layer=table)
+
+
 class VectorSource:
     """Features of one table of a vector file, optionally filtered by attribute values.
 
@@ -128,11 +157,10 @@ class VectorSource:
         self.layer = layer
         here = f'layer "{layer}"'
         local_only = check_source(path, here)
-        import pyogrio
         from pyogrio.errors import DataLayerError, DataSourceError
 
         try:
-            tables = [str(t) for t in pyogrio.list_layers(self.path)[:, 0]]
+            tables = list(_tables(str(self.path), _stamp(self.path)))   # memo per file version
         except (DataSourceError, DataLayerError, OSError) as exc:
             raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
         if not tables:
@@ -142,7 +170,7 @@ class VectorSource:
                              f"(tables: {', '.join(tables)})")
         self.table = table if table is not None else tables[0]
         try:
-            info = pyogrio.read_info(self.path, layer=self.table)
+            info = _info(str(self.path), self.table, _stamp(self.path))
         except (DataSourceError, DataLayerError, OSError) as exc:
             raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
         refuse_driver(_Opened(info.get("driver"), str(self.path)), local_only, "vector", here,

@@ -163,3 +163,19 @@ def test_unknown_where_key_lists_attributes(gpkg):
     with pytest.raises(StyleError, match=r'layer "coast": where\.class: no attribute "class" in table "places" '
                                          r'of .*v\.gpkg \(attributes: name, kind, rank\)'):
         VectorSource(gpkg, layer="coast", where={"class": 1})
+
+
+def test_file_metadata_is_read_once_per_file_version(tmp_path, monkeypatch):
+    import pyogrio
+
+    one = [({"type": "Point", "coordinates": (3.0, 50.0)}, {"name": "a", "kind": 1, "rank": 1.0})]
+    path = write_vector(tmp_path / "m.gpkg", one, crs=GEO, properties=PROPS, table="first")
+    calls = []
+    real = pyogrio.list_layers
+    monkeypatch.setattr(pyogrio, "list_layers", lambda p: calls.append(p) or real(p))
+    assert VectorSource(path, layer="x").table == "first"
+    assert VectorSource(path, layer="y").table == "first"     # the same file: listed once
+    assert len(calls) == 1
+    path.unlink()                                             # a new file at the same path
+    write_vector(path, one + one, crs=GEO, properties=PROPS, table="second")
+    assert VectorSource(path, layer="z").table == "second" and len(calls) == 2
