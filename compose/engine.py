@@ -176,7 +176,7 @@ def _to_rgb8(core: np.ndarray) -> np.ndarray:
 def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                   preview_factor: int | None = None,
                   only: frozenset[int] | None = None, below: int | None = None,
-                  footprint: bool = False) -> WindowResult:
+                  footprint: bool = False, drawn: Any = None) -> WindowResult:
     """Render one window: a pure function of the prepared render and the window.
 
     ``measure``: also return the window's statistics; ``preview_factor``: also return preview
@@ -185,7 +185,8 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     under this index only (a page's raster part, :mod:`compose.page`); ``footprint``: also
     return the core's data footprint as alpha (255 where a raster layer's paint covers the pixel
     with a value that is not its no-data entry, 0 elsewhere; 255 everywhere when no layer drawn
-    is a raster).
+    is a raster). ``drawn``: layers' paints drawn elsewhere (``drawn.paints(window, li)`` ->
+    the paints, or None to paint here; :class:`compose.drawer.DrawAhead`).
     """
     canvas = prepared.canvas
     _, _, h, w = window.padded
@@ -208,7 +209,9 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
             continue
         spec = layer.spec
         try:
-            paints = layer.paint(window, transform, h, w)
+            paints = drawn.paints(window, li) if drawn is not None else None
+            if paints is None:
+                paints = layer.paint(window, transform, h, w)
         except Exception as exc:        # a source that changed under us: one line, exit 2
             error = as_source_error(exc, spec)
             if error is exc:
@@ -260,7 +263,9 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
 class WindowTask:
     """The window task of one walk: ``task(window) -> WindowResult``. ``options`` are the
     keyword arguments of :func:`render_window` besides the prepared render, for mappers that run
-    the task elsewhere (another process or machine, with a render prepared there)."""
+    the task elsewhere (another process or machine, with a render prepared there); ``drawn``
+    (not among them): layers' paints drawn by a helper of this process
+    (:class:`compose.drawer.DrawAhead`)."""
 
     prepared: Prepared
     measure: bool = True
@@ -268,6 +273,7 @@ class WindowTask:
     only: frozenset[int] | None = None
     below: int | None = None
     footprint: bool = False
+    drawn: Any = field(default=None, compare=False)
 
     @property
     def options(self) -> dict[str, Any]:
@@ -275,7 +281,7 @@ class WindowTask:
                 "below": self.below, "footprint": self.footprint}
 
     def __call__(self, window: Window) -> WindowResult:
-        return render_window(self.prepared, window, **self.options)
+        return render_window(self.prepared, window, drawn=self.drawn, **self.options)
 
 
 def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: int = WINDOW,

@@ -168,21 +168,41 @@ class ThreadMapper:
     """Run window tasks on ``workers`` threads of this process (``mapper(task, windows)``).
 
     The threads share the prepared render (nothing to start or prepare again): numpy, GDAL's
-    reads and the encoders release Python's GIL, Agg's line drawing does not, so threads share
-    the pixel work while one of them draws. Raster sources read through a GDAL handle per
-    thread (:class:`compose.sources.raster.RasterSource`). ``in_flight``: windows submitted and
-    not yet handed back (default 2 per thread).
+    reads and the encoders release Python's GIL. Agg's drawing does not, so with
+    ``draw_process`` (the default) the ``lines``, ``areas`` and ``points`` layers are drawn by a
+    helper process a few windows ahead (:class:`compose.drawer.DrawAhead`, same bytes) while the
+    threads do the pixel work. Raster sources read through a GDAL handle per thread
+    (:class:`compose.sources.raster.RasterSource`). ``in_flight``: windows submitted and not yet
+    handed back (default 2 per thread).
     """
 
-    def __init__(self, workers: int, in_flight: int | None = None):
+    def __init__(self, workers: int, in_flight: int | None = None, draw_process: bool = True):
         self.workers = max(1, int(workers))
         self.in_flight = in_flight or 2 * self.workers
+        self.draw_process = draw_process
+        if draw_process:
+            from compose.drawer import warm
+
+            warm()          # the helper's imports beside the render's preparation
 
     def __call__(self, task, windows: Iterable) -> Iterator:
+        import dataclasses
         from concurrent.futures import ThreadPoolExecutor
 
-        with ThreadPoolExecutor(self.workers, thread_name_prefix="compose-window") as pool:
-            yield from ordered(lambda w: pool.submit(task, w), windows, self.in_flight)
+        drawer = None
+        if self.draw_process and dataclasses.is_dataclass(task) and hasattr(task, "drawn"):
+            from compose.drawer import DrawAhead
+
+            windows = list(windows)
+            drawer = DrawAhead.start(task.prepared, windows, task.only)
+            if drawer is not None:
+                task = dataclasses.replace(task, drawn=drawer)
+        try:
+            with ThreadPoolExecutor(self.workers, thread_name_prefix="compose-window") as pool:
+                yield from ordered(lambda w: pool.submit(task, w), windows, self.in_flight)
+        finally:
+            if drawer is not None:
+                drawer.close()
 
 
 class ProcessMapper:

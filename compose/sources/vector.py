@@ -85,6 +85,11 @@ class Features:
     def __len__(self) -> int:
         return len(self.geometries)
 
+    def __reduce__(self):
+        # geometries as one vectorised WKB array (exact coordinates): ~10x faster than pickling
+        # them one by one (compose.drawer sends a render's features to its helper process)
+        return (_features_from_wkb, (shapely.to_wkb(self.geometries), self.properties))
+
     @property
     def bounds(self) -> tuple[float, float, float, float]:
         """(west, south, east, north) of all geometries; NaNs when empty."""
@@ -138,6 +143,10 @@ def _info(path: str, table: str, stamp: tuple) -> dict:
     """pyogrio's metadata of one table (driver, CRS, fields), once per file version (read only)."""
     import pyogrio
     return pyogrio.read_info(path, layer=table)
+
+
+def _features_from_wkb(wkb: np.ndarray, properties: list[dict]) -> Features:
+    return Features(shapely.from_wkb(wkb), properties)
 
 
 class VectorSource:

@@ -1,0 +1,179 @@
+"""Vector layers drawn in a helper process, ahead of the window walk.
+
+Agg's line and area drawing (:mod:`compose.layers.draw`) holds Python's GIL, so window threads
+sharing one prepared render cannot draw lines on one core while another colours rasters: on the
+8192 x 8192 benchmark Agg is about a quarter of the compute's CPU and two window threads gained
+only 1.1x over one. :class:`DrawAhead` moves the drawing of the ``lines``, ``areas`` and
+``points`` layers into one worker process with a GIL of its own. It draws the windows in walk
+order, a few windows ahead of the threads, and hands each window's paints back as Agg's 8-bit
+coverage (the same ``alpha / 255`` float32 the layer returns in this process, so the render is
+byte-identical with or without it; tested). The window threads keep the rasters, the
+compositing and the measuring.
+
+The worker gets the prepared vector layers once (features as WKB, vectorised) and runs the same
+``layer.paint`` the threads would. If it cannot start or fails, a window's layers are drawn in
+the calling thread as without it.
+"""
+from __future__ import annotations
+
+import threading
+from collections.abc import Iterable
+from typing import Any
+
+import numpy as np
+
+from compose.layers.base import Paint
+
+__all__ = ["DrawAhead", "DRAWN_KINDS", "AHEAD", "warm"]
+
+#: Layer kinds drawn by the helper process: their paints are flat-coloured Agg coverage and a
+#: pure function of the window and the prepared features.
+DRAWN_KINDS = ("lines", "areas", "points")
+#: Windows the helper process may draw beyond the one the walk waits for (each window's
+#: coverage is a few hundred kB).
+AHEAD = 8
+
+#: Modules the helper processes' server imports once (a helper is forked from it ready to draw).
+PRELOAD = ["compose.engine", "compose.parallel", "compose.drawer", "compose.layers.vector"]
+
+_LAYERS: dict[int, Any] = {}     # in the helper process: layer index -> prepared layer
+
+
+def _init(payload: bytes) -> None:
+    from compose.parallel import unpack
+
+    _LAYERS.clear()
+    _LAYERS.update(unpack(payload))
+
+
+def _to8(alpha: np.ndarray) -> np.ndarray:
+    """Agg coverage (k / 255 as float32) back to its 8-bit k, or the float32 itself if it is not
+    such a coverage (then sent as it is)."""
+    a8 = np.rint(alpha * np.float32(255)).astype(np.uint8)
+    if np.array_equal(np.divide(a8, np.float32(255), dtype=np.float32), alpha):
+        return a8
+    return alpha
+
+
+def _draw(window) -> list[tuple[int, list[tuple[str, np.ndarray, Any]]]]:
+    """In the helper process: every drawn layer's paints of ``window`` as (part, coverage, colour)."""
+    out = []
+    for li, layer in _LAYERS.items():
+        canvas = layer.canvas
+        _, _, h, w = window.padded
+        paints = layer.paint(window, canvas.window_transform(window), h, w)
+        out.append((li, [(p.part, _to8(p.alpha), p.color) for p in paints]))
+    return out
+
+
+def _paint(part: str, alpha: np.ndarray, color) -> Paint:
+    if alpha.dtype == np.uint8:
+        alpha = np.divide(alpha, np.float32(255), dtype=np.float32)
+    return Paint(part, alpha, color=color)
+
+
+def warm() -> None:
+    """Start the server the helper processes are forked from, if it is not running: it imports
+    :data:`PRELOAD` beside whatever this process does next (e.g. preparing the render), so the
+    helper is ready when the walk starts. Never raises."""
+    try:
+        import multiprocessing
+        from multiprocessing import forkserver
+
+        multiprocessing.get_context("forkserver").set_forkserver_preload(PRELOAD)
+        forkserver.ensure_running()
+    except Exception:       # pragma: no cover - no forkserver here: DrawAhead.start says so
+        pass
+
+
+class DrawAhead:
+    """Draw the vector layers of ``prepared`` (indices in ``only``, default all) for ``windows``
+    in a helper process; :meth:`paints` returns a window's paints of one layer.
+
+    Thread-safe: window threads may ask for different windows at once. Use :meth:`start`, which
+    returns None when there is nothing to draw, and :meth:`close` when the walk ends.
+    """
+
+    def __init__(self, prepared, layers: list[int], windows: Iterable, ahead: int = AHEAD):
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        from compose.parallel import pack
+
+        self.layers = frozenset(layers)
+        self._windows = list(windows)
+        self._index = {w: i for i, w in enumerate(self._windows)}
+        self._ahead = max(1, int(ahead))
+        self._futures: dict[int, Any] = {}
+        self._used: dict[int, int] = {}
+        self._next = 0
+        self._lock = threading.Lock()
+        #: windows whose paints the helper process drew
+        self.served = 0
+        payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
+        ctx = multiprocessing.get_context("forkserver")
+        ctx.set_forkserver_preload(PRELOAD)
+        self._executor = ProcessPoolExecutor(1, mp_context=ctx, initializer=_init,
+                                             initargs=(payload,))
+        self._pool: Any = self._executor      # None once closed or broken
+
+    @classmethod
+    def start(cls, prepared, windows: Iterable, only: frozenset[int] | None = None,
+              ahead: int = AHEAD) -> DrawAhead | None:
+        """A DrawAhead for the drawn kinds among ``prepared``'s layers (None when there are none,
+        or when the helper process cannot be started)."""
+        layers = [li for li, layer in enumerate(prepared.layers)
+                  if layer.spec.kind in DRAWN_KINDS and (only is None or li in only)]
+        if not layers:
+            return None
+        try:
+            return cls(prepared, layers, windows, ahead)
+        except Exception:       # no helper process here (e.g. no forkserver): draw in the threads
+            return None
+
+    def _submit_through(self, last: int) -> None:
+        while self._next <= min(last, len(self._windows) - 1) and self._pool is not None:
+            self._futures[self._next] = self._pool.submit(_draw, self._windows[self._next])
+            self._next += 1
+
+    def paints(self, window, li: int) -> list[Paint] | None:
+        """Layer ``li``'s paints of ``window`` drawn by the helper process (waiting for them), or
+        None when the caller should draw them itself (not a drawn layer, or the helper failed)."""
+        if li not in self.layers:
+            return None
+        with self._lock:
+            i = self._index.get(window)
+            if i is None or self._pool is None:
+                return None
+            try:
+                self._submit_through(i + self._ahead)
+            except Exception:   # the helper is gone: the threads draw from now on
+                self._pool = None
+            future = self._futures.get(i)
+        if future is None:
+            return None
+        try:
+            drawn = dict(future.result())
+        except Exception:       # the helper failed: this thread draws (and raises what it raises)
+            return None
+        finally:
+            with self._lock:
+                self._used[i] = self._used.get(i, 0) + 1
+                if self._used[i] >= len(self.layers):
+                    self._futures.pop(i, None)
+                    self._used.pop(i, None)
+        with self._lock:
+            self.served += 1
+        return [_paint(*p) for p in drawn[li]]
+
+    def close(self) -> None:
+        """Stop the helper process (windows not drawn yet are dropped); idempotent."""
+        with self._lock:
+            self._pool = None
+            executor, self._executor = self._executor, None
+            futures = list(self._futures.values())
+            self._futures.clear()
+        for f in futures:
+            f.cancel()
+        if executor is not None:
+            executor.shutdown(wait=True, cancel_futures=True)

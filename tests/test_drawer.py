@@ -1,0 +1,69 @@
+"""Vector layers drawn by a helper process (compose.drawer): the same paints, hence the same bytes,
+as drawing them in the window's own thread."""
+from __future__ import annotations
+
+import numpy as np
+
+from compose.drawer import DrawAhead
+from compose.engine import prepare, render_window
+from compose.parallel import pack, unpack
+from compose.sources.vector import Features
+from compose.style import load_style
+from tests.test_engine import tiny_region  # noqa: F401  (fixture)
+
+WINDOW = 96
+
+
+def test_features_pickle_exactly(tiny_region):
+    prepared = prepare(load_style(tiny_region))
+    try:
+        feats = [la.features for la in prepared.layers if hasattr(la, "features")]
+        assert feats
+        for f in feats:
+            g = unpack(pack(f))
+            assert isinstance(g, Features) and g.properties == f.properties
+            assert all(a.equals_exact(b, 0) and a.geom_type == b.geom_type
+                       for a, b in zip(f.geometries, g.geometries, strict=True))
+    finally:
+        prepared.close()
+
+
+def test_helper_process_draws_the_same_paints(tiny_region):
+    prepared = prepare(load_style(tiny_region))
+    windows = prepared.windows(WINDOW)
+    drawer = DrawAhead.start(prepared, windows, ahead=2)
+    try:
+        assert drawer is not None and drawer.layers
+        for w in windows[::-1] + windows:       # out of order too (then drawn here: None)
+            here = render_window(prepared, w)
+            there = render_window(prepared, w, drawn=drawer)
+            np.testing.assert_array_equal(here.rgb8, there.rgb8)
+        for li in drawer.layers:                # paint by paint, exactly
+            layer = prepared.layers[li]
+            w = windows[len(windows) // 2]
+            _, _, h, width = w.padded
+            mine = layer.paint(w, prepared.canvas.window_transform(w), h, width)
+            fresh = DrawAhead.start(prepared, [w], only=frozenset({li}))
+            try:
+                theirs = fresh.paints(w, li)
+            finally:
+                fresh.close()
+            assert theirs is not None and len(theirs) == len(mine)
+            for a, b in zip(mine, theirs, strict=True):
+                assert a.part == b.part and a.color == b.color and a.alpha.dtype == b.alpha.dtype
+                np.testing.assert_array_equal(a.alpha, b.alpha)
+        assert drawer.served > 0
+    finally:
+        drawer.close()
+        prepared.close()
+    assert drawer.paints(windows[0], min(drawer.layers)) is None    # closed: drawn here
+
+
+def test_nothing_to_draw_starts_nothing(tiny_region):
+    prepared = prepare(load_style(tiny_region))
+    try:
+        rasters = frozenset(i for i, la in enumerate(prepared.layers)
+                            if la.spec.kind not in ("lines", "areas", "points"))
+        assert DrawAhead.start(prepared, prepared.windows(WINDOW), only=rasters) is None
+    finally:
+        prepared.close()
