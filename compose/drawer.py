@@ -113,7 +113,7 @@ class DrawAhead:
         payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
         ctx = multiprocessing.get_context("forkserver")
         ctx.set_forkserver_preload(PRELOAD)
-        self._executor = ProcessPoolExecutor(1, mp_context=ctx, initializer=_init,
+        self._executor: Any = ProcessPoolExecutor(1, mp_context=ctx, initializer=_init,
                                              initargs=(payload,))
         self._pool: Any = self._executor      # None once closed or broken
 

@@ -190,7 +190,9 @@ class ThreadMapper:
         from concurrent.futures import ThreadPoolExecutor
 
         drawer = None
-        if self.draw_process and dataclasses.is_dataclass(task) and hasattr(task, "drawn"):
+        from compose.engine import WindowTask
+
+        if self.draw_process and isinstance(task, WindowTask):
             from compose.drawer import DrawAhead
 
             windows = list(windows)

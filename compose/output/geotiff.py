@@ -23,7 +23,8 @@ class GeoTiffWriter:
     the 8192 x 8192 benchmark map (hillshaded relief under a theme and lines) level 1 without a
     predictor took 1.9 s of CPU against 4.4 s for level 6 with horizontal differencing and made a
     file 7 % smaller (133 vs 144 MB); on the 1500 x 1500 demo map it is 15 % larger (3.35 vs
-    2.92 MB) for a quarter of the CPU (bench/render.py; measured, no source). Band colour interpretation red, green, blue, alpha.
+    2.92 MB) for a quarter of the CPU (bench/render.py; measured, no source). Band colour
+    interpretation red, green, blue, alpha.
     ``cog``: write a Cloud Optimized GeoTIFF instead: the windows go to a tiled GeoTIFF beside
     ``path`` (``path`` + ".tiles"), which :meth:`close` turns into the COG (overviews averaged)
     and removes.
