@@ -40,7 +40,7 @@ _LAYERS: dict[int, Any] = {}     # in the helper process: layer index -> prepare
 
 
 def _init(payload: bytes) -> None:
-    from compose.parallel import unpack
+    from compose.packing import unpack
 
     _LAYERS.clear()
     _LAYERS.update(unpack(payload))
@@ -98,7 +98,7 @@ class DrawAhead:
         import multiprocessing
         from concurrent.futures import ProcessPoolExecutor
 
-        from compose.parallel import pack
+        from compose.packing import pack
 
         self.layers = frozenset(layers)
         self._windows = list(windows)

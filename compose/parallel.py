@@ -22,18 +22,14 @@ non-zero entries.
 """
 from __future__ import annotations
 
-import copyreg
-import io
 import os
-import pickle
 import threading
-import types
 import uuid
 from collections import deque
 from collections.abc import Callable, Iterable, Iterator
 from typing import Any
 
-import numpy as np
+from compose.packing import pack, unpack
 
 __all__ = ["ThreadMapper", "ProcessMapper", "ClusterMapper", "mapper_for", "pack", "unpack", "ordered",
            "default_workers", "window_task", "AUTO_PIXELS", "AUTO_WORKERS"]
@@ -44,45 +40,6 @@ AUTO_PIXELS = 4096 * 4096
 #: At most this many worker processes unless asked for more (each holds a prepared render and
 #: its window, some 0.3-0.4 GB on the benchmark style).
 AUTO_WORKERS = 8
-
-
-# --- pickling -------------------------------------------------------------------------------
-
-def _mapping_proxy(d: dict) -> types.MappingProxyType:
-    return types.MappingProxyType(d)
-
-
-# styles are frozen: their tables are read-only mapping proxies, which pickle as plain dicts
-copyreg.pickle(types.MappingProxyType, lambda m: (_mapping_proxy, (dict(m),)))
-
-
-def _sparse_array(shape, dtype, index, values) -> np.ndarray:
-    out = np.zeros(shape, dtype)
-    out.reshape(-1)[index] = values
-    return out
-
-
-class _Packer(pickle.Pickler):
-    def reducer_override(self, obj):
-        if type(obj) is np.ndarray and obj.size >= 1024 and obj.dtype.kind in "fiu":
-            flat = obj.reshape(-1)
-            index = np.flatnonzero(flat)
-            if index.size * 3 < flat.size:        # mostly zeros: send the non-zero entries
-                small = np.uint32 if flat.size < 2**32 else np.int64
-                return _sparse_array, (obj.shape, obj.dtype, index.astype(small), flat[index])
-        return NotImplemented
-
-
-def pack(obj: Any) -> bytes:
-    """Pickle ``obj`` with mostly-zero numeric arrays sent as their non-zero entries."""
-    buf = io.BytesIO()
-    _Packer(buf, protocol=pickle.HIGHEST_PROTOCOL).dump(obj)
-    return buf.getvalue()
-
-
-def unpack(data: bytes) -> Any:
-    """The object :func:`pack` packed."""
-    return pickle.loads(data)
 
 
 # --- ordering -------------------------------------------------------------------------------
