@@ -32,6 +32,7 @@ Units: values are the source's own; cell sizes in metres (:func:`cell_size_metre
 """
 from __future__ import annotations
 
+import functools
 import math
 import os
 import threading
@@ -167,6 +168,7 @@ class RasterSource:
         self._local = threading.local()
         self._others: list = []
         self._lock = threading.Lock()
+        self._same: dict[str, bool] = {}      # CRS text -> the source's own CRS?
 
     def _handles(self):
         """(dataset, one-band view or None) for reading in the calling thread."""
@@ -292,10 +294,10 @@ class RasterSource:
             raise StyleError(f'layer "{self.layer}": resampling: "{resampling}" is not one of '
                              f"{', '.join(RESAMPLING)}")
         width, height = int(width), int(height)
-        dst_crs = CRS.from_user_input(crs)
-        offset = self._aligned_offset(dst_crs, transform)
+        offset = self._aligned_offset(crs, transform)
         if offset is not None:
             return self._read_aligned(offset, width, height)
+        dst_crs = CRS.from_user_input(crs)
         scale = None
         for at in (scale_at, self._centre_in(dst_crs), _grid_centre(transform, width, height)):
             if at is not None and scale is None:
@@ -325,11 +327,20 @@ class RasterSource:
                               f"{_first_line(exc)}") from None
         return out
 
-    def _aligned_offset(self, crs: CRS, transform: Affine) -> tuple[int, int] | None:
+    def _same_crs(self, crs) -> bool:
+        """Whether ``crs`` (anything rasterio's CRS takes) is the source's CRS; decided once per
+        CRS text (comparing CRSs is a GDAL call, too slow to repeat for every window)."""
+        key = crs if isinstance(crs, str) else crs.to_wkt()
+        same = self._same.get(key)
+        if same is None:
+            same = self._same[key] = bool(CRS.from_user_input(crs) == self.crs)
+        return same
+
+    def _aligned_offset(self, crs, transform: Affine) -> tuple[int, int] | None:
         """(row, col) of the grid's origin in source pixels when the grid is the source's own
         (same CRS, pixel size and orientation, whole-pixel offset), else None."""
         st = self._meta["transform"]
-        if not (crs == self.crs):
+        if not self._same_crs(crs):
             return None
         px = max(abs(st.a), abs(st.e))
         if any(abs(a - b) > 1e-9 * px for a, b in ((transform.a, st.a), (transform.e, st.e),
@@ -393,6 +404,11 @@ class RasterSource:
         """Any value close to (within 1e-5 relative of) the nodata value but not equal to it."""
         nd = np.float32(self.nodata)
         tol = np.float32(max(abs(float(nd)) * 1e-5, 1e-30))
+        # every value far from it (the usual case; a margin of 2 tol keeps float32 rounding of
+        # the test below on the safe side): no pass making temporaries. NaN anywhere: test all.
+        lo, hi = float(data.min(initial=np.inf)), float(data.max(initial=-np.inf))
+        if lo > float(nd) + 2 * float(tol) or hi < float(nd) - 2 * float(tol):
+            return False
         near = np.abs(data - nd) <= tol
         return bool(near.any() and (data[near] != nd).any())
 
@@ -426,9 +442,8 @@ class RasterSource:
                    centre: tuple[float, float]) -> np.ndarray | None:
         if resampling not in RESAMPLING or resampling == "mode" or self._wrap_crs is not None:
             return None
-        dst_crs = CRS.from_user_input(canvas.crs)
         row0, col0, height, width = window.padded
-        if self._aligned_offset(dst_crs, canvas.window_transform(window)) is not None:
+        if self._aligned_offset(canvas.crs, canvas.window_transform(window)) is not None:
             return None                       # read() takes the plain aligned path
         pad = max(64, -(-window.margin // 64) * 64)
         grid = transform_grid(canvas.transform, canvas.width, canvas.height, pad, canvas.crs,
@@ -526,7 +541,18 @@ class RasterSource:
 
 
 def _horizontal(crs) -> pyproj.CRS:
-    crs = pyproj.CRS.from_user_input(crs.to_wkt() if isinstance(crs, CRS) else crs)
+    key = crs.to_wkt() if isinstance(crs, CRS) else crs
+    try:
+        return _horizontal_of(key)
+    except TypeError:                   # not hashable (a dict of CRS parameters): not cached
+        return _horizontal_of.__wrapped__(key)
+
+
+@functools.lru_cache(maxsize=32)
+def _horizontal_of(crs) -> pyproj.CRS:
+    # cached: building a pyproj CRS for every window of a render costs more than its hillshade's
+    # cell size (pyproj CRS objects are safe to share between threads, pyproj >= 3.1)
+    crs = pyproj.CRS.from_user_input(crs)
     if crs.is_compound:
         crs = crs.sub_crs_list[0]
     return crs
