@@ -27,7 +27,7 @@ from compose.check.stats import Statistics
 from compose.composite import composite_over
 from compose.layers.base import Context
 from compose.measure import WindowMeasure, new_statistics
-from compose.previews import LayerPreviews, PreviewTiles, block_sums
+from compose.previews import LayerPreviews, PreviewTiles, block_sums, paint_sums
 from compose.sources.guard import as_source_error
 from compose.style.kinds import layer_class
 
@@ -197,8 +197,8 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     out[...] = bg
     meter = WindowMeasure(prepared.template, window) if measure else None
     k = preview_factor
-    alone_tiles: list = []
-    stack_tiles: list = []
+    layer_tiles: list = []      # per drawn layer: its paints' sums on the preview grid
+    stack_tiles: list = []      # per drawn layer: the stack's sums after a raster layer, or None
     core_idx = (slice(None),) + inner
     base = None
     covered = None          # the data footprint (core), when asked for
@@ -217,13 +217,10 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
             if error is exc:
                 raise
             raise error from exc
-        alone = None
+        drawn: list = []        # (paint, alpha, planes) for the previews
         if paints:
             if meter is not None:
                 meter.begin_layer(li, layer, len(paints), out)
-            if k and stack_tiles:   # the first layer alone is the stack so far
-                alone = np.empty((3, window.height, window.width), dtype=np.float32)
-                alone[...] = bg
             for pi, paint in enumerate(paints):
                 if footprint and paint.palette is not None:
                     has = paint.alpha[inner] > 0
@@ -235,20 +232,23 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                     meter.paint(li, layer, pi, paint, alpha, out)
                 planes = paint.planes()
                 composite_over(out, planes, alpha, spec.blend, out=out)
-                if alone is not None:
-                    src = planes if planes.shape[1] == 1 else planes[core_idx]
-                    composite_over(alone, src, alpha[inner], spec.blend, out=alone)
+                if k:
+                    drawn.append((paint, alpha, planes))
             if meter is not None:
                 meter.end_layer(li, layer)
-        if k:   # blends of values in [0, 1] stay in [0, 1]: no clipping needed for previews
-            stack_tiles.append(block_sums(out[core_idx], window.row, window.col, k))
-            alone_tiles.append(None if alone is None else block_sums(alone, window.row,
-                                                                     window.col, k))
+        if k:
+            layer_tiles.append(paint_sums(drawn, inner, window.row, window.col, k, spec.blend))
+            # after a raster the stack is summed as composited (its colours vary with the
+            # data below it); overlays are composited onto it on the preview grid
+            stack_tiles.append(block_sums(out[core_idx], window.row, window.col, k)
+                               if getattr(layer, "palette", None) is not None else None)
     if below is not None and base is None:
         base = _to_rgb8(np.array(out[core_idx]))
+    # the finished composite on the preview grid (blends of values in [0, 1] stay in [0, 1])
+    tiles = (PreviewTiles(tuple(layer_tiles), tuple(stack_tiles),
+                          block_sums(out[core_idx], window.row, window.col, k)) if k else None)
     rgb8 = _to_rgb8(out[core_idx])
     stats = meter.finish(rgb8) if meter is not None else None
-    tiles = PreviewTiles(tuple(alone_tiles), tuple(stack_tiles)) if k else None
     alpha8 = None
     if footprint:
         rasters = any(getattr(layer, "palette", None) is not None for li, layer in

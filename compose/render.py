@@ -198,7 +198,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
 
                 page_map = PreviewSink(canvas.width, canvas.height)
                 layer_previews = LayerPreviews(canvas.width, canvas.height, len(prepared.layers),
-                                               tuple(style.map.background))
+                                               tuple(style.map.background),
+                                               blends=[la.spec.blend for la in prepared.layers])
                 if page_map.copy is not None and page_sink is not None:
                     page_map.copy = page_sink.image     # the page keeps the whole map already
                 else:

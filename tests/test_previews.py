@@ -47,3 +47,48 @@ def test_previews_from_small_windows_equal_the_box_averaged_map(tiny_region):
     np.testing.assert_array_equal(images[0][0], images[0][1])
     # a later layer alone differs from the stack up to it (the layers below are missing)
     assert (images[1][0] != images[1][1]).any()
+
+
+def _previews_and_layers(style_path, window=37):
+    style = load_style(style_path)
+    prepared = prepare(style)
+    try:
+        canvas: Canvas = prepared.canvas
+        previews = LayerPreviews(canvas.width, canvas.height, len(prepared.layers),
+                                 tuple(style.map.background), factor=4,
+                                 blends=[la.spec.blend for la in prepared.layers])
+        run(prepared, [], window=window, previews=previews)
+        alone_refs, stack_refs = [], []
+        for li in range(len(prepared.layers)):
+            for only, refs in ((frozenset({li}), alone_refs), (frozenset(range(li + 1)), stack_refs)):
+                sink = ArraySink(canvas)
+                run(prepared, [sink], only=only, measure=False)
+                thumb = BoxThumbnail(canvas.width, canvas.height, 4)
+                thumb.rows(0, sink.image)
+                refs.append(thumb.image().astype(int))
+        return prepared.layers, previews.images(), alone_refs, stack_refs
+    finally:
+        prepared.close()
+
+
+def test_each_layer_alone_is_the_box_average_of_that_layer_rendered_alone(tiny_region):
+    """Alone over the flat background, a layer's paints summed as one premultiplied layer
+    (a halo weighted by what its line leaves visible) give the box average of the full-size
+    layer for normal and multiply blends (reference: each layer rendered alone at full size)."""
+    layers, images, alone_refs, stack_refs = _previews_and_layers(tiny_region)
+    assert any(getattr(la.spec.options, "halo", None) for la in layers)   # paints with a halo
+    for (alone, _), ref in zip(images, alone_refs):
+        assert np.abs(alone.astype(int) - ref).max() <= 1
+
+
+def test_stacks_after_rasters_are_exact_and_overlays_close(tiny_region):
+    """The stack after a raster layer and after the last layer is the box-summed composite
+    itself; an overlay is composited onto the stack on the preview grid, within a few levels
+    of the full-size composite except in blocks where the line meets a class edge."""
+    layers, images, alone_refs, stack_refs = _previews_and_layers(tiny_region)
+    for li, ((_, stack), ref) in enumerate(zip(images, stack_refs)):
+        diff = np.abs(stack.astype(int) - ref)
+        if getattr(layers[li], "palette", None) is not None or li == len(layers) - 1:
+            assert diff.max() <= 1
+        else:
+            assert np.mean(diff) < 1.0 and np.percentile(diff, 99) <= 12
