@@ -217,7 +217,7 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
             if error is exc:
                 raise
             raise error from exc
-        drawn: list = []        # (paint, alpha, planes) for the previews
+        for_previews: list = []     # (paint, alpha, planes) of this layer, for the previews
         if paints:
             if meter is not None:
                 meter.begin_layer(li, layer, len(paints), out)
@@ -233,11 +233,12 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                 planes = paint.planes()
                 composite_over(out, planes, alpha, spec.blend, out=out)
                 if k:
-                    drawn.append((paint, alpha, planes))
+                    for_previews.append((paint, alpha, planes))
             if meter is not None:
                 meter.end_layer(li, layer)
         if k:
-            layer_tiles.append(paint_sums(drawn, inner, window.row, window.col, k, spec.blend))
+            layer_tiles.append(paint_sums(for_previews, inner, window.row, window.col, k,
+                                          spec.blend))
             # after a raster the stack is summed as composited (its colours vary with the
             # data below it); overlays are composited onto it on the preview grid
             stack_tiles.append(block_sums(out[core_idx], window.row, window.col, k)
