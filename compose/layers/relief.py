@@ -7,7 +7,9 @@ Shade s in [0, 1] (Lambertian, from :mod:`compose.layers.hillshade`) is quantise
 from __future__ import annotations
 
 import numpy as np
+from affine import Affine
 
+from compose.canvas import Window
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.hillshade import multidirectional, stretch_factor
 from compose.layers.raster import open_raster
@@ -95,6 +97,8 @@ class ReliefLayer:
         # the style fills ``shadow`` from the tint when it is not given (compose.ramps.relief.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
         self.scale = ground_scale(self.canvas.crs)
+        # a draft shades the full canvas's own cells, sampled (see _draft_shade)
+        self.full, self.factor = _full_of_draft(context) if context.draft else (None, 1)
         self.stretch = self._stretch() if o.stretch == "auto" else 1.0
         self.exaggeration = o.exaggeration * self.stretch
 
@@ -102,23 +106,27 @@ class ReliefLayer:
         """The "auto" vertical factor, from up to SAMPLE_WINDOWS windows spread over the canvas
         read at the canvas's own cell size (decided once, before the window walk)."""
         o = self.options
-        wins = list(self.canvas.windows(SAMPLE_SIZE, margin=self.margin))
+        canvas = self.full if self.full is not None else self.canvas   # a draft: the full one's
+        wins = list(canvas.windows(SAMPLE_SIZE, margin=self.margin))
         pick = np.unique(np.linspace(0, len(wins) - 1, min(SAMPLE_WINDOWS, len(wins))).astype(int))
         samples = []
         for i in pick:
             win = wins[int(i)]
-            transform = self.canvas.window_transform(win)
-            dem = self.source.read_window(self.canvas, win, o.resampling)
-            dx, dy = ground_cell_size(self.canvas.crs, transform, dem.shape[0], self.scale)
+            transform = canvas.window_transform(win)
+            dem = self.source.read_window(canvas, win, o.resampling)
+            dx, dy = ground_cell_size(canvas.crs, transform, dem.shape[0], self.scale)
             samples.append((dem, dx, dy))
         return stretch_factor(samples, o.azimuth, o.altitude, o.directions)
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
-        dem = self.source.read_window(self.canvas, window, o.resampling)
-        dx, dy = ground_cell_size(self.canvas.crs, transform, height, self.scale)
-        shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
-                                 exaggeration=self.exaggeration, directions=o.directions)
+        if self.full is not None:
+            shade = self._draft_shade(window)
+        else:
+            dem = self.source.read_window(self.canvas, window, o.resampling)
+            dx, dy = ground_cell_size(self.canvas.crs, transform, height, self.scale)
+            shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
+                                     exaggeration=self.exaggeration, directions=o.directions)
         valid = np.isfinite(shade)
         shade *= np.float32(LEVELS - 1)          # in place: the shade is ours
         np.rint(shade, out=shade)
@@ -127,5 +135,50 @@ class ReliefLayer:
         alpha = valid.astype(np.float32)
         return [Paint("shade", alpha, index=index, palette=self.palette)]
 
+    def _draft_shade(self, window) -> np.ndarray:
+        """A draft's shade: each draft pixel takes the shade of the full canvas's cell at its
+        centre, from that cell's own 3 x 3 neighbourhood (Horn's stencil) at full resolution.
+
+        Shading is not linear: the shade of a block-averaged DEM is much flatter than the shades
+        of the block's cells (on rough terrain a 22x coarser draft halved the L* spread), so the
+        draft samples the full map's shades instead of shading a smoothed DEM. Only the 3 rows
+        around each draft row's centre are read (every block of the file is still decoded once,
+        as a decimated read does); the 3 x 3 neighbourhoods are laid side by side and shaded in
+        one call, keeping each block's centre.
+        """
+        o, f, full = self.options, self.factor, self.full
+        r0, c0, h, w = window.padded
+        step = np.array([-1, 0, 1])
+        rows = ((r0 + np.arange(h)) * f + f // 2)[:, None] + step     # (h, 3) full-canvas rows
+        cols = (((c0 + np.arange(w)) * f + f // 2)[:, None] + step).ravel()
+        c_lo = int(cols.min())
+        span = int(cols.max()) - c_lo + 1
+        dem = np.empty((3 * h, 3 * w), np.float32)
+        for i in range(h):      # the 3 rows around each draft row's centre (GDAL caches blocks)
+            win = Window(int(rows[i, 0]), c_lo, 3, span, 0, full.height, full.width)
+            dem[3 * i:3 * i + 3] = self.source.read_window(full, win, o.resampling)[:, cols - c_lo]
+        all_rows = rows.ravel()
+        r_lo = int(all_rows.min())
+        dx, dy = ground_cell_size(full.crs, full.transform @ Affine.translation(0, r_lo),
+                                  int(all_rows.max()) - r_lo + 1, self.scale)
+        if np.ndim(dx):
+            dx = np.asarray(dx).reshape(-1, 1)[all_rows - r_lo]
+        shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
+                                 exaggeration=self.exaggeration, directions=o.directions)
+        return np.ascontiguousarray(shade[1::3, 1::3])
+
     def close(self) -> None:
         self.source.close()
+
+
+def _full_of_draft(context: Context):
+    """(full canvas, whole-number factor) of a draft's canvas (see :mod:`compose.check.draft`),
+    or (None, 1) when the canvas is not a whole-number coarser copy of the style's own."""
+    full = context.style.canvas()
+    draft = context.canvas
+    f = draft.pixel / full.pixel
+    k = int(round(f))
+    if draft == full or k < 2 or abs(f - k) > 1e-9 * k or draft.crs != full.crs \
+            or draft.transform.c != full.transform.c or draft.transform.f != full.transform.f:
+        return None, 1
+    return full, k

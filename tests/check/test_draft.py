@@ -50,3 +50,34 @@ def test_draft_verdict_agrees_with_the_full_check(name):
     verdicts = [{(r.rule, r.layer, r.ramp): (r.passed, r.met) for r in rep.rules}
                 for rep in (full, draft)]
     assert verdicts[0] == verdicts[1]
+
+
+def test_a_draft_shades_the_full_canvas_cells_on_rough_terrain(tmp_path):
+    """Shading is not linear: the shade of a block-averaged DEM is flatter than the shades of the
+    block's cells. On terrain rough at the cell scale (noise of 40 m on 30 m cells, as
+    bench/render.py's DEM), a draft 6x coarser read the relief's L* spread and its p5 several
+    units off the full check's; it now samples the full canvas's own shades (and its "auto"
+    stretch from the full canvas's cells), so they agree to a fraction of a unit."""
+    import numpy as np
+    import rasterio
+    from affine import Affine
+
+    n = 2304
+    rng = np.random.default_rng(3)
+    yy, xx = np.mgrid[0:n, 0:n] / n
+    dem = (np.sin(xx * 9) * np.cos(yy * 7) * 300 + rng.normal(0, 40, (n, n)) + 800)
+    with rasterio.open(tmp_path / "dem.tif", "w", driver="GTiff", width=n, height=n, count=1,
+                       dtype="float32", crs="EPSG:32630", tiled=True, blockxsize=256,
+                       blockysize=256, transform=Affine(30, 0, 400000, 0, -30, 4600000)) as ds:
+        ds.write(dem.astype("float32"), 1)
+    (tmp_path / "rough.toml").write_text(
+        '[map]\ncrs = "EPSG:32630"\n'
+        f"extent = [400000, {4600000 - 30 * n}, {400000 + 30 * n}, 4600000]\npixel = 30\n"
+        '[[layer]]\nname = "relief"\nrole = "ground"\nkind = "relief"\nsource = "dem.tif"\n')
+    full = check_report(tmp_path / "rough.toml")
+    draft = check_report(tmp_path / "rough.toml", draft=True)
+    assert "384 x 384 of 2304 x 2304" in draft.draft
+    for rule in ("relief-visible", "ground-lightness"):
+        (f,), (d,) = full.rule(rule, "relief"), draft.rule(rule, "relief")
+        assert f.passed == d.passed
+        assert np.allclose(d.value, f.value, atol=0.5), (rule, f.value, d.value)
