@@ -28,6 +28,7 @@ from compose.composite import composite_over
 from compose.layers.base import Context
 from compose.measure import WindowMeasure, new_statistics
 from compose.previews import LayerPreviews, PreviewTiles, block_sums, paint_sums
+from compose.sources.blocks import planned
 from compose.sources.guard import as_source_error
 from compose.style.kinds import layer_class
 
@@ -325,7 +326,9 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
                 sink.below_rows(row0, rows_below)
         encode += time.perf_counter() - t
 
-    results: Iterator[WindowResult] = iter((mapper or map)(task, windows))
+    # each source block decoded once, shared by the window threads (compose.sources.blocks)
+    results: Iterator[WindowResult] = planned(prepared.layers, canvas, windows,
+                                              (mapper or map)(task, windows))
     for res in results:
         win = res.window
         if band is None or win.row != band_row:

@@ -20,11 +20,13 @@ Nothing in a style file changes any of this.
 """
 from __future__ import annotations
 
+import contextlib
 import errno
 import functools
 import os
 import re
 import stat
+from collections.abc import Iterator
 from pathlib import Path
 
 from compose.errors import ComposeError, SourceError
@@ -32,7 +34,7 @@ from compose.limits import MAX_PATH_CHARS, current_limits
 
 __all__ = ["is_remote", "read_regular_file", "check_source", "configure_gdal", "RASTER_DRIVERS",
            "VECTOR_DRIVERS", "GDAL_CONFIG", "allowed_drivers", "refuse_driver", "check_crs", "gdal_name",
-           "as_source_error"]
+           "as_source_error", "gdal_cache"]
 
 #: Raster formats a source may be in when remote and virtual sources are not allowed: formats
 #: whose dataset is one file (or a file with fixed sidecars) and that never fetch anything.
@@ -87,6 +89,27 @@ def configure_gdal() -> None:
 
 
 configure_gdal()
+
+
+@contextlib.contextmanager
+def gdal_cache(max_bytes: int) -> Iterator[None]:
+    """Bound GDAL's block cache (process-wide) to at most ``max_bytes`` meanwhile (never
+    raised above what it is); GDAL drops blocks past the new bound."""
+    from rasterio.env import get_gdal_config, set_gdal_config
+
+    before = get_gdal_config("GDAL_CACHEMAX")
+    try:
+        before = int(before)
+    except (TypeError, ValueError):
+        before = None
+    if before is not None and before <= max_bytes:
+        yield
+        return
+    set_gdal_config("GDAL_CACHEMAX", int(max_bytes))
+    try:
+        yield
+    finally:
+        set_gdal_config("GDAL_CACHEMAX", before if before is not None else GDAL_CACHE_MB << 20)
 
 
 def is_remote(source: str) -> bool:

@@ -53,6 +53,7 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
+from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
 from compose.sources.resample import cut_block, sample
@@ -169,6 +170,7 @@ class RasterSource:
         self._others: list = []
         self._lock = threading.Lock()
         self._same: dict[str, bool] = {}      # CRS text -> the source's own CRS?
+        self._plan: BlockPlan | None = None
 
     def _handles(self):
         """(dataset, one-band view or None) for reading in the calling thread."""
@@ -353,15 +355,32 @@ class RasterSource:
         return int(round(row)), int(round(col))
 
     def _read_aligned(self, offset: tuple[int, int], width: int, height: int) -> np.ndarray:
-        """Plain windowed read for a grid aligned with the source (no resampling needed)."""
+        """Plain windowed read for a grid aligned with the source (no resampling needed); a read
+        the walk's :class:`compose.sources.blocks.BlockPlan` expects comes from its blocks."""
         row, col = offset
         out = np.full((height, width), np.nan, dtype=np.float32)
         r0, c0 = max(row, 0), max(col, 0)
         r1, c1 = min(row + height, self._ds.height), min(col + width, self._ds.width)
         if r1 <= r0 or c1 <= c0:
             return out
-        win = RioWindow(c0, r0, c1 - c0, r1 - r0)
         dest = out[r0 - row:r1 - row, c0 - col:c1 - col]
+        plan = self._plan
+        region = (row, col, height, width)
+        if plan is not None and plan.claim(region):
+            plan.read(region, dest, self._cells)
+        else:
+            self._cells_into(RioWindow(c0, r0, c1 - c0, r1 - r0), dest)
+        return out
+
+    def _cells(self, row: int, col: int, height: int, width: int) -> np.ndarray:
+        """Source cells inside the source: float32 (height, width), NaN = no data."""
+        out = np.empty((height, width), dtype=np.float32)
+        self._cells_into(RioWindow(col, row, width, height), out)
+        return out
+
+    def _cells_into(self, win: RioWindow, dest: np.ndarray) -> None:
+        """Read the cells of ``win`` (inside the source) into ``dest`` (float32, NaN = no data);
+        per pixel, so a region read whole or block by block gets the same values."""
         nodata = self.nodata
         numeric = nodata is not None and not (isinstance(nodata, float) and math.isnan(nodata))
         ds = self._handles()[0]
@@ -389,7 +408,29 @@ class RasterSource:
             data[data == np.float32(nodata)] = np.nan
         if data is not dest:
             dest[...] = data
-        return out
+
+    # --- planned reads (compose.sources.blocks) ----------------------------------------------
+    def plan(self, canvas: Canvas | None, windows: list[Window] = ()) -> bool:
+        """Expect the padded reads of ``windows`` of ``canvas`` (a window walk): each source block
+        is then decoded once and shared by the window threads (:class:`BlockPlan`). True when
+        the walk's reads are planned: the canvas is aligned with the source, the reads exact
+        (not decimated) and the blocks tile-sized. ``plan(None)`` forgets the plan."""
+        self._plan = None
+        if canvas is None or self.decimate or not windows:
+            return False
+        crs = CRS.from_user_input(canvas.crs)
+        bh, bw = self._ds.block_shapes[self.band - 1]
+        if bh * bw > MAX_BLOCK_CELLS or self._aligned_offset(crs, canvas.transform) is None:
+            return False
+        regions = []
+        for win in windows:
+            offset = self._aligned_offset(crs, canvas.window_transform(win))
+            if offset is None:
+                return False
+            _, _, height, width = win.padded
+            regions.append((offset[0], offset[1], height, width))
+        self._plan = BlockPlan((bh, bw), (self._ds.height, self._ds.width), regions)
+        return True
 
     @property
     def _mask_from_data(self) -> bool:
