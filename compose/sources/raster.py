@@ -418,7 +418,7 @@ class RasterSource:
         self._plan = None
         if canvas is None or self.decimate or not windows:
             return False
-        crs = CRS.from_user_input(canvas.crs)
+        crs = canvas.crs
         bh, bw = self._ds.block_shapes[self.band - 1]
         if bh * bw > MAX_BLOCK_CELLS or self._aligned_offset(crs, canvas.transform) is None:
             return False
