@@ -193,22 +193,28 @@ class LayerPreviews:
                     acc.weighted[p.row:p.row + nr, p.col:p.col + nc] += w
 
     def _sources(self, i: int) -> list[tuple[np.ndarray, np.ndarray]]:
-        """(alpha sums (h, w), straight colour (3, h, w) or (3, 1, 1)) to composite for layer
-        ``i``: its paints in turn, or with the normal blend the one source they add up to."""
+        """(alpha sums (h, w), straight colour (3, h, w) or (3, 1, 1), float32) to composite
+        for layer ``i``: its paints in turn, or with the normal blend the one source they add
+        up to (flat colours weighted channel by channel, no (h, w, 3) temporaries)."""
         paints = list(self.paints[i].values())
         if self.blends[i] == "normal" and len(paints) > 1:
             alpha = np.sum([p.alpha for p in paints], axis=0)
-            weighted = np.sum([p.weighted if p.weighted is not None else
-                               self._weighted_so_far(p) for p in paints], axis=0)
-            paints = [_Paint(self.h, self.w, None)]
-            paints[0].alpha, paints[0].weighted = alpha, weighted
+            planes = np.zeros((3, self.h, self.w), np.float32)
+            for p in paints:
+                if p.weighted is None:
+                    for ch in range(3):
+                        planes[ch] += p.alpha * np.float32(p.color[ch])
+                else:
+                    planes += p.weighted.transpose(2, 0, 1)
+            planes /= np.maximum(alpha, np.float32(1e-12))
+            return [(alpha, planes)]
         out = []
         for p in paints:
+            src: np.ndarray
             if p.weighted is None:
                 src = np.asarray(p.color, np.float32).reshape(3, 1, 1)
             else:
-                src = (p.weighted / np.maximum(p.alpha, 1e-12)[..., None]
-                       ).transpose(2, 0, 1).astype(np.float32)
+                src = p.weighted.transpose(2, 0, 1) / np.maximum(p.alpha, np.float32(1e-12))
             out.append((p.alpha, src))
         return out
 
@@ -220,7 +226,7 @@ class LayerPreviews:
         """[(alone, stack)] per drawn layer, each (h, w, 3) uint8."""
         from compose.composite import composite_over
 
-        count = self.count[..., 0]
+        inv = (1.0 / self.count[..., 0]).astype(np.float32)
         bg = self.background.astype(np.float32).reshape(3, 1, 1)
         stack = np.empty((3, self.h, self.w), np.float32)
         stack[...] = bg
@@ -229,7 +235,7 @@ class LayerPreviews:
             alone = np.empty_like(stack)
             alone[...] = bg
             for alpha, src in self._sources(i):
-                a = (alpha / count).astype(np.float32)
+                a = alpha * inv
                 composite_over(stack, src, a, self.blends[i], out=stack)
                 composite_over(alone, src, a, self.blends[i], out=alone)
             summed = self.stacks[i]

@@ -276,6 +276,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 small = box_reduce(copy, PROOF_WIDTH)
                 result.pictures = PagePictures(
                     map=copy, legend=legend_png, proofs={k: proof_image(small, k) for k in PROOFS},
+                    small=small,
                     layers=tuple((n, a, s) for n, (a, s) in zip(names, layer_previews.images())))
                 seconds["total"] = t - t0
                 tmp["html"].write_text(page_html(style, result), encoding="utf-8")

@@ -17,13 +17,14 @@ from __future__ import annotations
 
 import html
 import math
+from contextvars import ContextVar
 from pathlib import Path
 from typing import Any
 
 from compose.caution import CAUTION
 from compose.color.interface import MARKS
 from compose.output.html_css import CSS
-from compose.output.html_images import PROOF_WIDTH, box_reduce, jpeg_uri, png_uri
+from compose.output.html_images import JPEG_QUALITY, PROOF_WIDTH, box_reduce, jpeg_uri, png_uri
 
 __all__ = ["write_html", "page_html", "html_path", "sorted_results"]
 
@@ -36,6 +37,15 @@ PREVIEW_QUALITY = 85     # JPEG quality of the layer previews
 BUDGET_RULES = ("ground-lightness", "ground-chroma", "reserved-saturation", "theme-chroma",
                 "theme-chroma-min", "overlay-contrast", "label-contrast", "overlay-size")
 esc = html.escape
+#: JPEG encodes started before the page's text is built: (id of the image, quality) -> future
+_JPEGS: ContextVar[dict | None] = ContextVar("compose_html_jpegs", default=None)
+
+
+def _jpeg(img, quality: int = JPEG_QUALITY) -> str:
+    """:func:`jpeg_uri` of ``img``, from the encodes :func:`page_html` started when it is one."""
+    started = _JPEGS.get()
+    future = started.get((id(img), quality)) if started is not None else None
+    return future.result() if future is not None else jpeg_uri(img, quality)
 
 
 def html_path(style, out_dir: Path) -> Path:
@@ -134,12 +144,14 @@ def _figure(uri: str, caption: str, alt: str, cls: str = "", figure_cls: str = "
             f"<figcaption>{caption}</figcaption></figure>")
 
 
-def _proofs_section(map_img, proofs: dict, report) -> str:
+def _proofs_section(map_small, proofs: dict, report) -> str:
+    """``map_small``: the map copy reduced to at most :data:`PROOF_WIDTH` wide; ``proofs``: the
+    proofs of it."""
     from compose.check.catalog import PROOF_RULES
 
-    cells = [_figure(jpeg_uri(box_reduce(map_img, PROOF_WIDTH)), esc(PROOF_TITLES["map"]), "the map")]
+    cells = [_figure(_jpeg(map_small), esc(PROOF_TITLES["map"]), "the map")]
     for k, img in proofs.items():
-        cells.append(_figure(jpeg_uri(box_reduce(img, PROOF_WIDTH)), esc(PROOF_TITLES[k]),
+        cells.append(_figure(_jpeg(box_reduce(img, PROOF_WIDTH)), esc(PROOF_TITLES[k]),
                              f"{k} proof of the map"))
     notes = ""
     if report is not None:
@@ -195,11 +207,11 @@ def _layers_section(previews, style, result, report, ramps) -> str:
             tags.append(f"ramp {ramp}")
         tag_html = "".join(f'<span class="tag">{esc(t)}</span>' for t in tags)
         first = " (the first layer: the stack so far)" if i == 0 else ""
-        cells = [_figure(jpeg_uri(alone, PREVIEW_QUALITY),
+        cells = [_figure(_jpeg(alone, PREVIEW_QUALITY),
                          f"{esc(spec.name)} alone over the background{first}",
                          f"{spec.name} alone", "frame")]
         if i > 0:
-            cells.append(_figure(jpeg_uri(stack, PREVIEW_QUALITY),
+            cells.append(_figure(_jpeg(stack, PREVIEW_QUALITY),
                                  f"layers 1–{i + 1}: " + esc(" + ".join(names[:i + 1])),
                                  f"stack up to {spec.name}", "frame"))
         s = None
@@ -286,6 +298,25 @@ def page_html(style, result) -> str:
     pictures = result.pictures
     if pictures is None:
         raise ValueError("the render kept no pictures for a page (render with html=True)")
+    # the JPEG encodes (Pillow lets other threads run while it encodes) go first, on two
+    # threads, while this one builds the rest of the page
+    from concurrent.futures import ThreadPoolExecutor
+
+    small = pictures.small if pictures.small is not None else box_reduce(pictures.map, PROOF_WIDTH)
+    jpegs = [(pictures.map, JPEG_QUALITY), (small, JPEG_QUALITY)]
+    jpegs += [(box_reduce(img, PROOF_WIDTH), JPEG_QUALITY) for img in pictures.proofs.values()]
+    for i, (_, alone, stack) in enumerate(pictures.layers):   # the first layer: alone only
+        jpegs += [(alone, PREVIEW_QUALITY)] + ([(stack, PREVIEW_QUALITY)] if i else [])
+    with ThreadPoolExecutor(2, thread_name_prefix="page-jpeg") as pool:
+        token = _JPEGS.set({(id(img), q): pool.submit(jpeg_uri, img, q) for img, q in jpegs})
+        try:
+            return _page_html(style, result, small)
+        finally:
+            _JPEGS.reset(token)
+
+
+def _page_html(style, result, small) -> str:
+    pictures = result.pictures
     ramps = result.ramps
     report = result.report
     specs = {spec.name: spec for spec in style.layers}
@@ -311,14 +342,14 @@ def page_html(style, result) -> str:
 </header>
 <nav>{nav}</nav>
 <section id="map"><h2>Map and legend</h2>
-<div class="map-grid"><figure><img class="map" src="{jpeg_uri(preview)}" alt="the map"{pixelated}>
+<div class="map-grid"><figure><img class="map" src="{_jpeg(preview)}" alt="the map"{pixelated}>
 <figcaption>The map as written{'' if preview.shape[1] >= result.width else
 f', box-averaged to {preview.shape[1]} × {preview.shape[0]} px'}.</figcaption></figure>
 <figure class="legend">{legend_img}<figcaption>Legend ({esc(style.name)}.legend.png)
 </figcaption>{_facts(style, result)}</figure></div></section>
 <section id="check"><h2>Check results</h2>{_check_table(report)}</section>
 <section id="proofs"><h2>Grey and colour-vision proofs</h2>
-{_proofs_section(preview, proofs, report)}</section>
+{_proofs_section(small, proofs, report)}</section>
 <section id="layers"><h2>Layers, alone and stacked</h2>
 <p class="note">Each layer alone over the background, the stack built up to it (drawing order,
 lowest first), and where its pixels fall against its budget. Previews at

@@ -93,10 +93,12 @@ class PagePictures:
     (layer name, the layer alone over the background, the stack up to it) per drawn layer, each
     (h, w, 3) uint8 at most :data:`compose.previews.PREVIEW_SIDE` a side; proofs: proof name
     (:data:`compose.proof.PROOFS`) -> that proof of the map copy, reduced to at most
-    :data:`PROOF_WIDTH` wide; legend: the legend PNG.
+    :data:`PROOF_WIDTH` wide; legend: the legend PNG; small: the map reduced to at most
+    :data:`PROOF_WIDTH` wide, the proofs' source (None: reduced from ``map`` when needed).
     """
 
     map: np.ndarray
     layers: tuple[tuple[str, np.ndarray, np.ndarray], ...]
     proofs: dict[str, np.ndarray]
     legend: bytes | None = None
+    small: np.ndarray | None = None

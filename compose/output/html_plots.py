@@ -42,8 +42,12 @@ def ground_reserve(ctx) -> float | None:
     return (max(values) + float(ctx.budgets.theme.margin)) if values else None
 
 
+_BYTE_HEX = tuple(f"{i:02x}" for i in range(256))
+
+
 def _hex(rgb) -> str:
-    return "#" + "".join(f"{int(round(float(v) * 255)):02x}" for v in np.clip(rgb, 0, 1))
+    """sRGB floats (3,) in [0, 1] (clipped) -> "#rrggbb"."""
+    return "#" + "".join(_BYTE_HEX[int(round(min(max(float(v), 0.0), 1.0) * 255))] for v in rgb)
 
 
 def _title(fig: Figure, text: str, passed: bool | None, note: str = "") -> None:

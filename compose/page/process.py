@@ -31,7 +31,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["PageJob", "shared_image", "can_fork"]
+__all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
 
 
 def shared_image(height: int, width: int) -> np.ndarray:
@@ -66,6 +66,79 @@ def _send(out, message) -> None:
     out.flush()
 
 
+def _raise_from(message, reap) -> None:
+    """Re-raise the error a forked process sent (or report one that sent nothing)."""
+    _, exc, trace = message
+    reap()
+    if exc is None:
+        raise RuntimeError("the page writer process ended without writing the page"
+                           + (f":\n{trace}" if trace else ""))
+    raise exc
+
+
+def _send_error(out, exc: BaseException) -> None:
+    import traceback
+
+    try:
+        _send(out, ("error", exc, traceback.format_exc()))
+    except Exception:
+        _send(out, ("error", None, traceback.format_exc()))
+
+
+class Forked:
+    """``fn()`` run in a forked process (from a process with no other thread running);
+    :meth:`result` returns what it returned (pickled back) or raises what it raised; :meth:`abort`
+    ends it. The forked process dies with this one."""
+
+    def __init__(self, fn: Callable[[], Any]):
+        r, w = os.pipe()
+        parent = os.getpid()
+        pid = os.fork()
+        if pid == 0:
+            os.close(r)
+            status = 0
+            try:
+                _die_with_parent(parent)
+                with os.fdopen(w, "wb") as out:
+                    try:
+                        _send(out, ("done", fn()))
+                    except BaseException as exc:          # noqa: BLE001 - handed over
+                        status = 1
+                        _send_error(out, exc)
+            except BaseException:                         # noqa: BLE001
+                status = 1
+            finally:
+                os._exit(status)
+        os.close(w)
+        self.pid: int | None = pid
+        self._inbox: Any = os.fdopen(r, "rb")
+
+    def result(self) -> Any:
+        try:
+            message = pickle.load(self._inbox)
+        except EOFError:
+            message = ("error", None, "")
+        if message[0] == "error":
+            _raise_from(message, self.abort)
+        self.abort()
+        return message[1]
+
+    def abort(self) -> None:
+        if self._inbox is not None:
+            self._inbox.close()
+            self._inbox = None
+        if self.pid is not None:
+            try:
+                os.kill(self.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+            try:
+                os.waitpid(self.pid, 0)
+            except ChildProcessError:
+                pass
+            self.pid = None
+
+
 def _child(inbox: int, outbox: int, parent: int, write, warm) -> None:
     """The forked process: load the writers, wait for the walk, write the page. Never returns."""
     status = 0
@@ -84,13 +157,8 @@ def _child(inbox: int, outbox: int, parent: int, write, warm) -> None:
                 seconds, _ = write(nodata, lambda layout: _send(out, ("layout", layout)))
                 _send(out, ("done", seconds))
             except BaseException as exc:                  # noqa: BLE001 - handed to the parent
-                import traceback
-
                 status = 1
-                try:
-                    _send(out, ("error", exc, traceback.format_exc()))
-                except Exception:
-                    _send(out, ("error", None, traceback.format_exc()))
+                _send_error(out, exc)
     except BaseException:                                 # noqa: BLE001
         status = 1
     finally:
@@ -137,7 +205,9 @@ class PageJob:
         style, prepared, sink, tmp = self._args
 
         def write(nodata, on_layout):
-            return self._write(style, prepared, sink, tmp, nodata, on_layout=on_layout)
+            # alone in its process, the page may fork once more: the page PNG beside the PDF
+            return self._write(style, prepared, sink, tmp, nodata, on_layout=on_layout,
+                               fork=True)
 
         pid = os.fork()
         if pid == 0:                                          # the child
@@ -168,12 +238,7 @@ class PageJob:
             message = ("error", None, "")
         self._waited += time.perf_counter() - t
         if message[0] == "error":
-            _, exc, trace = message
-            self._reap()
-            if exc is None:
-                raise RuntimeError("the page writer process ended without writing the page"
-                                   + (f":\n{trace}" if trace else ""))
-            raise exc
+            _raise_from(message, self._reap)
         return message
 
     def layout(self):

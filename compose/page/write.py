@@ -149,10 +149,12 @@ def stand_in(spec):
 
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                nodata_seen: set[str] | None = None,
-               on_layout=None) -> tuple[dict[str, float], PageLayout]:
+               on_layout=None, fork: bool = False) -> tuple[dict[str, float], PageLayout]:
     """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
     returns (seconds per output, the layout). ``on_layout(layout)``: called as soon as the
-    layout is decided, before the files are drawn."""
+    layout is decided, before the files are drawn. ``fork``: the page PNG is drawn by a forked
+    process from the same figure while this one writes the PDF and SVG (only where no other
+    thread runs: :class:`compose.page.process.Forked`)."""
     from matplotlib import rc_context
 
     from compose.page.draw import page_figure
@@ -170,17 +172,33 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     with rc_context(rc), fast_png():
         t = time.perf_counter()
         fig = page_figure(style, layout, sink.base, layers=vectors, legend_layout=legend)
-        fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
-                    metadata={"Title": meta_title, "Subject": style.page.caution,
-                              "Creator": "compose"})
-        seconds["pdf"] = time.perf_counter() - t
-        t = time.perf_counter()
-        fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
-                    metadata={"Title": meta_title, "Description": style.page.caution})
-        seconds["svg"] = time.perf_counter() - t
-        t = time.perf_counter()
-        write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi, fig=fig)
-        seconds["page.png"] = time.perf_counter() - t
+        built = time.perf_counter() - t
+
+        def png() -> float:
+            t = time.perf_counter()
+            write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi,
+                           fig=fig)
+            return time.perf_counter() - t
+
+        beside = None
+        if fork:
+            from compose.page.process import Forked
+
+            beside = Forked(png)
+        try:
+            t = time.perf_counter()
+            fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
+                        metadata={"Title": meta_title, "Subject": style.page.caution,
+                                  "Creator": "compose"})
+            seconds["pdf"] = built + time.perf_counter() - t
+            t = time.perf_counter()
+            fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
+                        metadata={"Title": meta_title, "Description": style.page.caution})
+            seconds["svg"] = time.perf_counter() - t
+            seconds["page.png"] = beside.result() if beside is not None else png()
+        finally:
+            if beside is not None:
+                beside.abort()
     return seconds, layout
 
 

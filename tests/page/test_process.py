@@ -64,7 +64,7 @@ def _job(monkeypatch, fake_write):
 
 
 def test_a_style_error_in_the_child_is_raised_in_the_parent(monkeypatch):
-    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None, **kw):
         raise StyleError("page.legend: the legend needs shrinking to 20% to fit the panel")
 
     job = _job(monkeypatch, fake_write)
@@ -77,7 +77,7 @@ def test_a_style_error_in_the_child_is_raised_in_the_parent(monkeypatch):
 
 
 def test_layout_first_then_seconds(monkeypatch):
-    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None, **kw):
         on_layout({"nodata": sorted(nodata)})
         return {"pdf": 0.5}, None
 
@@ -90,7 +90,7 @@ def test_layout_first_then_seconds(monkeypatch):
 
 
 def test_a_child_that_dies_is_an_error_not_a_hang(monkeypatch):
-    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None, **kw):
         os._exit(3)
 
     job = _job(monkeypatch, fake_write)
@@ -100,7 +100,7 @@ def test_a_child_that_dies_is_an_error_not_a_hang(monkeypatch):
 
 
 def test_abort_before_start_ends_the_child(monkeypatch):
-    def fake_write(style, run_, sink, tmp, nodata, on_layout=None):  # pragma: no cover
+    def fake_write(style, run_, sink, tmp, nodata, on_layout=None, **kw):  # pragma: no cover
         raise AssertionError("never called")
 
     job = _job(monkeypatch, fake_write)
@@ -109,3 +109,35 @@ def test_abort_before_start_ends_the_child(monkeypatch):
     assert job.pid is None
     with pytest.raises(ChildProcessError):          # reaped: no zombie left
         os.waitpid(pid, os.WNOHANG)
+
+
+def test_forked_returns_its_value_or_raises_its_error():
+    assert process.Forked(lambda: {"pdf": 0.25}).result() == {"pdf": 0.25}
+
+    def fails():
+        raise StyleError("page.legend: too big")
+
+    with pytest.raises(StyleError, match="too big"):
+        process.Forked(fails).result()
+
+
+def test_forked_page_png_is_the_page_png_drawn_here(tmp_path, monkeypatch):
+    """write_page(fork=True) draws the page PNG in a forked process from the same figure."""
+    from compose.engine import prepare, run
+    from compose.page.write import PageSink, blocked_for, vector_split, write_page
+
+    style = _style(tmp_path)
+    prepared = prepare(style, keep_clear=blocked_for)
+    try:
+        sink = PageSink(prepared.canvas, vector_split(prepared.layers))
+        stats = run(prepared, [sink])
+        nodata = {s.name for s in stats.layers if s.nodata_weight > 0}
+        files = {}
+        for fork in (False, True):
+            tmp = {k: tmp_path / f"{fork}.{k}" for k in ("pdf", "svg", "page")}
+            seconds, _ = write_page(style, prepared, sink, tmp, nodata, fork=fork)
+            assert seconds["page.png"] > 0
+            files[fork] = tmp["page"].read_bytes()
+    finally:
+        prepared.close()
+    assert files[True] == files[False]
