@@ -6,6 +6,7 @@ import numpy as np
 
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint, Palette
+from compose.layers.early import EarlyRead
 from compose.sources.raster import RasterSource
 
 __all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster"]
@@ -55,6 +56,11 @@ class FieldLayer:
         self.transparent_nodata = isinstance(nodata, str) and nodata == "transparent"
         self.palette = palette_from_lut(self.lut, None if (nodata is None or self.transparent_nodata)
                                         else nodata)
+        # a draft's decimated read runs beside the rest of the preparation (compose.layers.early)
+        self.early = EarlyRead(self.canvas, self._read) if context.draft else None
+
+    def _read(self, window) -> np.ndarray:
+        return self.source.read_window(self.canvas, window, self.options.resampling)
 
     def _lut(self):
         """The ramp's lookup table; quantile steps get their breaks from this layer's data,
@@ -68,7 +74,9 @@ class FieldLayer:
         return lut
 
     def paint(self, window, transform, height, width) -> list[Paint]:
-        values = self.source.read_window(self.canvas, window, self.options.resampling)
+        values = self.early.take(window) if self.early is not None else None
+        if values is None:
+            values = self._read(window)
         index = self.lut.index(values).astype(np.uint16, copy=False)
         if self.transparent_nodata:
             alpha = (index != self.lut.nodata_index).astype(np.float32)
@@ -77,6 +85,9 @@ class FieldLayer:
         return [Paint("data", alpha, index=index, palette=self.palette)]
 
     def close(self) -> None:
+        early = getattr(self, "early", None)
+        if early is not None:
+            early.wait()
         self.source.close()
 
 

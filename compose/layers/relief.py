@@ -9,8 +9,9 @@ from __future__ import annotations
 import numpy as np
 from affine import Affine
 
-from compose.canvas import Window
+from compose.canvas import Canvas, Window
 from compose.layers.base import Context, Paint, Palette
+from compose.layers.early import EarlyRead
 from compose.layers.hillshade import multidirectional, stretch_factor
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
@@ -98,9 +99,14 @@ class ReliefLayer:
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
         self.scale = ground_scale(self.canvas.crs)
         # a draft shades the full canvas's own cells, sampled (see _draft_shade)
-        self.full, self.factor = _full_of_draft(context) if context.draft else (None, 1)
+        self.full: Canvas | None = None
+        self.factor = 1
+        if context.draft:
+            self.full, self.factor = _full_of_draft(context)
         self.stretch = self._stretch() if o.stretch == "auto" else 1.0
         self.exaggeration = o.exaggeration * self.stretch
+        # a draft's rows are decoded beside the rest of the preparation (compose.layers.early)
+        self.early = EarlyRead(self.canvas, self._draft_shade) if self.full is not None else None
 
     def _stretch(self) -> float:
         """The "auto" vertical factor, from up to SAMPLE_WINDOWS windows spread over the canvas
@@ -121,7 +127,9 @@ class ReliefLayer:
     def paint(self, window, transform, height, width) -> list[Paint]:
         o = self.options
         if self.full is not None:
-            shade = self._draft_shade(window)
+            shade = self.early.take(window) if self.early is not None else None
+            if shade is None:
+                shade = self._draft_shade(window)
         else:
             dem = self.source.read_window(self.canvas, window, o.resampling)
             dx, dy = ground_cell_size(self.canvas.crs, transform, height, self.scale)
@@ -147,6 +155,7 @@ class ReliefLayer:
         one call, keeping each block's centre.
         """
         o, f, full = self.options, self.factor, self.full
+        assert full is not None                   # a draft of a whole-number coarser canvas
         r0, c0, h, w = window.padded
         step = np.array([-1, 0, 1])
         rows = ((r0 + np.arange(h)) * f + f // 2)[:, None] + step     # (h, 3) full-canvas rows
@@ -168,10 +177,13 @@ class ReliefLayer:
         return np.ascontiguousarray(shade[1::3, 1::3])
 
     def close(self) -> None:
+        early = getattr(self, "early", None)
+        if early is not None:
+            early.wait()
         self.source.close()
 
 
-def _full_of_draft(context: Context):
+def _full_of_draft(context: Context) -> tuple[Canvas | None, int]:
     """(full canvas, whole-number factor) of a draft's canvas (see :mod:`compose.check.draft`),
     or (None, 1) when the canvas is not a whole-number coarser copy of the style's own."""
     full = context.style.canvas()
