@@ -161,10 +161,11 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             if style.page is not None:
                 # the page's process is forked now, before the render starts any thread
                 from compose.page.process import PageJob
-                from compose.page.write import PageSink, vector_split, warm_writers, write_page
+                from compose.page.write import PageSink, page_ahead, vector_split, warm_writers, write_page
 
                 page_sink = PageSink(canvas, vector_split(prepared.layers))
-                page_job = PageJob(style, prepared, page_sink, tmp, write_page, warm=warm_writers)
+                page_job = PageJob(style, prepared, page_sink, tmp, write_page, warm=warm_writers,
+                                   ahead=lambda: page_ahead(style, prepared, page_sink))
                 stack.callback(page_job.abort)
             _warm_imports(page=page_job is not None and not page_job.forked,
                           legend=legend or html)

@@ -17,7 +17,8 @@ from compose.page.geometry import grid_lines
 from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
 from compose.page.vectors import emit_layer
 
-__all__ = ["page_figure", "furniture_only", "format_coordinate", "shrink_artists", "FONT"]
+__all__ = ["page_figure", "start_page_figure", "finish_page_figure", "finishes", "furniture_only",
+           "format_coordinate", "shrink_artists", "FONT"]
 
 FONT = "DejaVu Sans"
 _IN = 25.4
@@ -81,7 +82,7 @@ class _Page:
     def paper_box(self, box):
         from matplotlib.patches import Rectangle
         x, y, w, h = box
-        self.ax.add_patch(Rectangle((x, y), w, h, facecolor=self.paper, edgecolor=self.ink,
+        self.ax.add_artist(Rectangle((x, y), w, h, facecolor=self.paper, edgecolor=self.ink,
                                     lw=0.4, zorder=1))
 
     # --- pieces -------------------------------------------------------------------------------
@@ -100,7 +101,7 @@ class _Page:
     def neatline(self):
         from matplotlib.patches import Rectangle
         fx, fy, fw, fh = self.layout.frame
-        self.ax.add_patch(Rectangle((fx, fy), fw, fh, fill=False, edgecolor=self.ink, lw=0.6,
+        self.ax.add_artist(Rectangle((fx, fy), fw, fh, fill=False, edgecolor=self.ink, lw=0.6,
                                     joinstyle="miter", zorder=2))
 
     def scalebar(self, piece):
@@ -114,7 +115,7 @@ class _Page:
         top = y + 4.2
         seg = bar.length_mm / bar.segments
         for i in range(bar.segments):
-            self.ax.add_patch(Rectangle((x0 + i * seg, top), seg, 1.4,
+            self.ax.add_artist(Rectangle((x0 + i * seg, top), seg, 1.4,
                                         facecolor=self.ink if i % 2 == 0 else self.paper,
                                         edgecolor=self.ink, lw=0.4, zorder=3))
         step = bar.length / bar.segments
@@ -152,9 +153,9 @@ class _Page:
         left = (cx + px * half - ux * L * 0.9, cy + py * half - uy * L * 0.9)
         right = (cx - px * half - ux * L * 0.9, cy - py * half - uy * L * 0.9)
         notch = (cx - ux * L * 0.55, cy - uy * L * 0.55)
-        self.ax.add_patch(Polygon([tip, left, notch], closed=True, facecolor=self.ink,
+        self.ax.add_artist(Polygon([tip, left, notch], closed=True, facecolor=self.ink,
                                   edgecolor=self.ink, lw=0.4, zorder=3))
-        self.ax.add_patch(Polygon([tip, notch, right], closed=True, facecolor=self.paper,
+        self.ax.add_artist(Polygon([tip, notch, right], closed=True, facecolor=self.paper,
                                   edgecolor=self.ink, lw=0.4, zorder=3))
         self.text(cx + ux * (L + 2.2), cy + uy * (L + 2.2), "N", 7.5, ha="center", va="center",
                   weight="bold", rotation=-self.layout.north, zorder=3)
@@ -227,16 +228,12 @@ def shrink_artists(ax, s: float) -> None:
         patch.set_linewidth(patch.get_linewidth() * s)
 
 
-def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(),
-                legend_layout=None):
-    """The page as a matplotlib Figure.
-
-    image: (H, W, 3) uint8 of the canvas drawn in the frame, or None to leave the frame empty
-    (the page PNG pastes the map in afterwards); layers: prepared overlay layers
-    (``RenderRun.layers``) re-emitted as vectors on top of it (empty for the PNG, whose image
-    already holds them); legend_layout: from :func:`compose.output.legend.legend_layout` at the
-    page's legend width, or None.
-    """
+def start_page_figure(style, layout: PageLayout, *, layers=()):
+    """The page's figure with what depends neither on the walk nor on the legend: the paper,
+    the map frame's axes and the overlays in it (``layers``, re-emitted as vectors). The frame
+    and the paper size do not depend on the legend (:func:`compose.page.layout.page_layout`), so
+    a figure started from a layout without one is finished with the legend's
+    (:func:`finish_page_figure`)."""
     from matplotlib.figure import Figure
     from matplotlib.patches import Rectangle
 
@@ -250,13 +247,29 @@ def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(
     ma.set_xlim(0, canvas.width)
     ma.set_ylim(canvas.height, 0)
     ma.set_autoscale_on(False)
-    if image is not None:
-        ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
-                  resample=False, aspect="auto", zorder=0)
     clip = Rectangle((0, 0), canvas.width, canvas.height, transform=ma.transData)
     for i, layer in enumerate(layers):
         for artist in emit_layer(ma, layer, canvas.transform, 1.0 + i):
             artist.set_clip_path(clip)
+    fig.compose_frame = (tuple(layout.size), tuple(layout.frame))
+    return fig
+
+
+def finishes(fig, layout: PageLayout) -> bool:
+    """Whether ``fig`` (from :func:`start_page_figure`) has ``layout``'s paper and frame."""
+    return getattr(fig, "compose_frame", None) == (tuple(layout.size), tuple(layout.frame))
+
+
+def finish_page_figure(fig, style, layout: PageLayout, image: np.ndarray | None,
+                       legend_layout=None):
+    """Add the map's raster ``image`` (under the overlays: they are drawn above it by zorder)
+    and the furniture to a figure from :func:`start_page_figure`; returns it."""
+    page = style.page
+    canvas = layout.canvas
+    if image is not None:
+        ma = next(ax for ax in fig.axes if ax.get_label() == MAP_AXES)
+        ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
+                  resample=False, aspect="auto", zorder=0)
     p = _Page(fig, layout, page)
     p.bands()
     if page.neatline:
@@ -272,6 +285,19 @@ def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(
             p.legend(piece, legend_layout, _rgb(style.map.background))
     return fig
 
+
+def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(),
+                legend_layout=None):
+    """The page as a matplotlib Figure.
+
+    image: (H, W, 3) uint8 of the canvas drawn in the frame, or None to leave the frame empty
+    (the page PNG pastes the map in afterwards); layers: prepared overlay layers
+    (``RenderRun.layers``) re-emitted as vectors on top of it (empty for the PNG, whose image
+    already holds them); legend_layout: from :func:`compose.output.legend.legend_layout` at the
+    page's legend width, or None.
+    """
+    return finish_page_figure(start_page_figure(style, layout, layers=layers), style, layout,
+                              image, legend_layout)
 
 
 def furniture_only(fig) -> None:

@@ -11,6 +11,7 @@ as a Flate stream with PNG predictors (ISO 32000-1, 7.4.4.4), which any filter t
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import struct
 import threading
 import types
@@ -33,6 +34,7 @@ _TYPES = {"L": (1, 0), "RGB": (3, 2), "RGBA": (4, 6)}
 _lock = threading.Lock()
 _users = 0
 _saved: Any = None
+_encoded: dict[tuple, bytes] = {}      # PNG files made in the current fast_png() block
 
 
 def _chunk(kind: bytes, data: bytes) -> bytes:
@@ -63,7 +65,17 @@ def png_bytes(image: np.ndarray, dpi: float | None = None) -> bytes:
 
 def _save(im, fp, filename) -> None:
     if im.mode in _TYPES and not im.encoderinfo:
-        fp.write(png_bytes(np.asarray(im)))
+        pixels = np.asarray(im)
+        # the PDF and the SVG of one page embed the same map: encode it once
+        key = (im.mode, pixels.shape, hashlib.blake2b(pixels.data, digest_size=20).digest())
+        with _lock:
+            data = _encoded.get(key)
+        if data is None:
+            data = png_bytes(pixels)
+            with _lock:
+                if _users:
+                    _encoded[key] = data
+        fp.write(data)
         return
     _saved(im, fp, filename)
 
@@ -88,3 +100,4 @@ def fast_png():
             _users -= 1
             if _users == 0:
                 Image.SAVE["PNG"] = _saved
+                _encoded.clear()

@@ -139,7 +139,7 @@ class Forked:
             self.pid = None
 
 
-def _child(inbox: int, outbox: int, parent: int, write, warm) -> None:
+def _child(inbox: int, outbox: int, parent: int, write, warm, ahead) -> None:
     """The forked process: load the writers, wait for the walk, write the page. Never returns."""
     status = 0
     try:
@@ -148,13 +148,20 @@ def _child(inbox: int, outbox: int, parent: int, write, warm) -> None:
         _die_with_parent(parent)
         if warm is not None:
             warm()
+        started = None
+        if ahead is not None:                  # while the parent walks the windows
+            try:
+                started = ahead()
+            except Exception:                  # the writer builds it again and reports
+                started = None
         with os.fdopen(inbox, "rb") as inp, os.fdopen(outbox, "wb") as out:
             try:
                 nodata = pickle.load(inp)
             except EOFError:                              # the render ended without a page
                 os._exit(0)
             try:
-                seconds, _ = write(nodata, lambda layout: _send(out, ("layout", layout)))
+                seconds, _ = write(nodata, lambda layout: _send(out, ("layout", layout)),
+                                   started)
                 _send(out, ("done", seconds))
             except BaseException as exc:                  # noqa: BLE001 - handed to the parent
                 status = 1
@@ -169,7 +176,8 @@ class PageJob:
     """Writes the page of one render in a forked process when it can (:func:`can_fork`), else
     in this process: ``write(style, prepared, sink, tmp, nodata_seen, on_layout=None) ->
     (seconds, layout)`` (:func:`compose.page.write.write_page`); ``warm()``: loads what it needs,
-    run first in the child.
+    run first in the child; ``ahead()``: work done in the child while the walk runs, handed to
+    ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`).
 
     Create it once the render is prepared and its :class:`compose.page.write.PageSink` exists,
     before other threads start; then :meth:`start` with the walk's no-data layers, :meth:`layout`
@@ -178,10 +186,12 @@ class PageJob:
     """
 
     def __init__(self, style, prepared, sink, tmp: dict[str, Path], write: Callable, *,
-                 warm: Callable[[], None] | None = None, forked: bool | None = None):
+                 warm: Callable[[], None] | None = None, ahead: Callable[[], Any] | None = None,
+                 forked: bool | None = None):
         self._args = (style, prepared, sink, tmp)
         self._write = write
         self._warm = warm
+        self._ahead = ahead
         self.pid: int | None = None
         self._forked = False
         self._inbox: Any = None
@@ -204,16 +214,17 @@ class PageJob:
         parent = os.getpid()
         style, prepared, sink, tmp = self._args
 
-        def write(nodata, on_layout):
+        def write(nodata, on_layout, started):
             # alone in its process, the page may fork once more: the page PNG beside the PDF
+            kw = {"ahead": started} if started is not None else {}
             return self._write(style, prepared, sink, tmp, nodata, on_layout=on_layout,
-                               fork=True)
+                               fork=True, **kw)
 
         pid = os.fork()
         if pid == 0:                                          # the child
             os.close(down_w)
             os.close(up_r)
-            _child(down_r, up_w, parent, write, self._warm)
+            _child(down_r, up_w, parent, write, self._warm, self._ahead)
         os.close(down_r)
         os.close(up_w)
         self.pid = pid

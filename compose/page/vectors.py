@@ -47,7 +47,7 @@ def _stroke(ax, parts, width, color, alpha, dash=None, zorder=0.0):
     with rc_context({"lines.scale_dashes": False}):
         lc = LineCollection(parts, linewidths=width, colors=[_rgb(color)], alpha=alpha,
                             capstyle="round", joinstyle="round", zorder=zorder, **kw)
-    ax.add_collection(lc)
+    ax.add_collection(lc, autolim=False)      # the frame's limits are fixed: no data limits
     return lc
 
 
@@ -80,7 +80,7 @@ def _areas(ax, layer, transform, z):
             v[:, 1] = canvas.height - v[:, 1]          # display (y up) -> rows down
             patch = PathPatch(Path(v, path.codes), facecolor=_rgb(o.fill), edgecolor="none",
                               alpha=a, zorder=z)
-            ax.add_patch(patch)
+            ax.add_artist(patch)            # (add_patch would measure its extent)
             out.append(patch)
     if o.width > 0:
         parts = _parts(geoms, transform)
@@ -155,7 +155,7 @@ def _along(ax, layer, along, z):
                              lw=o.halo.width, alpha=a, joinstyle="round", zorder=z))
     out.append(PathPatch(path, facecolor=_rgb(o.color), edgecolor="none", alpha=a, zorder=z + 0.1))
     for patch in out:
-        ax.add_patch(patch)
+        ax.add_artist(patch)
     for lab in along:
         c = np.mean([g.foot for g in lab.glyphs], axis=0)
         out.append(ax.text(float(c[0]), float(c[1]), lab.text, fontsize=o.size, family=o.font,

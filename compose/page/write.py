@@ -16,7 +16,8 @@ import numpy as np
 
 from compose.page.layout import PageLayout, blocked_pixels, page_layout
 
-__all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_page", "page_png",
+__all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_page", "page_ahead",
+           "page_png",
            "write_page_png", "world_file_text", "warm_writers",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
@@ -147,17 +148,33 @@ def stand_in(spec):
     return SimpleNamespace(spec=spec)
 
 
+def _rc(style) -> dict:
+    return dict(RC, **{"pdf.fonttype": PDF_FONTTYPE[style.page.pdf_fonts]})
+
+
+def page_ahead(style, run_, sink: PageSink):
+    """The page's figure started before the walk ends (:func:`compose.page.draw.start_page_figure`:
+    the map frame and the overlays as vectors), for :func:`write_page`'s ``ahead``."""
+    from matplotlib import rc_context
+
+    from compose.page.draw import start_page_figure
+
+    with rc_context(_rc(style)):
+        return start_page_figure(style, _layout(style, None), layers=run_.layers[sink.below:])
+
+
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                nodata_seen: set[str] | None = None,
-               on_layout=None, fork: bool = False) -> tuple[dict[str, float], PageLayout]:
+               on_layout=None, fork: bool = False, ahead=None) -> tuple[dict[str, float], PageLayout]:
     """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
     returns (seconds per output, the layout). ``on_layout(layout)``: called as soon as the
     layout is decided, before the files are drawn. ``fork``: the page PNG is drawn by a forked
     process from the same figure while this one writes the PDF and SVG (only where no other
-    thread runs: :class:`compose.page.process.Forked`)."""
+    thread runs: :class:`compose.page.process.Forked`). ``ahead``: the figure
+    :func:`page_ahead` started (used when its frame is the layout's)."""
     from matplotlib import rc_context
 
-    from compose.page.draw import page_figure
+    from compose.page.draw import finish_page_figure, finishes, start_page_figure
 
     legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
     layout = _layout(style, legend)
@@ -168,10 +185,12 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     vectors = run_.layers[sink.below:]
     from compose.page.encode import fast_png
 
-    rc = dict(RC, **{"pdf.fonttype": PDF_FONTTYPE[style.page.pdf_fonts]})
+    rc = _rc(style)
     with rc_context(rc), fast_png():
         t = time.perf_counter()
-        fig = page_figure(style, layout, sink.base, layers=vectors, legend_layout=legend)
+        fig = (ahead if ahead is not None and finishes(ahead, layout)
+               else start_page_figure(style, layout, layers=vectors))
+        finish_page_figure(fig, style, layout, sink.base, legend_layout=legend)
         built = time.perf_counter() - t
 
         def png() -> float:

@@ -141,3 +141,32 @@ def test_forked_page_png_is_the_page_png_drawn_here(tmp_path, monkeypatch):
     finally:
         prepared.close()
     assert files[True] == files[False]
+
+
+def test_a_figure_started_during_the_walk_finishes_as_the_same_page(tmp_path):
+    """page_ahead builds the frame and its vectors before the legend is known; write_page
+    finishes it with the legend and the raster into the same PDF, SVG and page PNG."""
+    from compose.engine import prepare, run
+    from compose.page.draw import finishes
+    from compose.page.write import (PageSink, _layout, blocked_for, fit_legend, page_ahead,
+                                    vector_split, write_page)
+
+    style = _style(tmp_path)
+    prepared = prepare(style, keep_clear=blocked_for)
+    try:
+        sink = PageSink(prepared.canvas, vector_split(prepared.layers))
+        started = page_ahead(style, prepared, sink)
+        stats = run(prepared, [sink])
+        nodata = {s.name for s in stats.layers if s.nodata_weight > 0}
+        assert finishes(started, _layout(style, fit_legend(style, prepared.ramps,
+                                                           prepared.layers, nodata)))
+        files = {}
+        for name, ahead in (("built", None), ("started", started)):
+            tmp = {k: tmp_path / f"{name}.{k}" for k in ("pdf", "svg", "page")}
+            write_page(style, prepared, sink, tmp, nodata, ahead=ahead)
+            files[name] = (_pdf_without_date(tmp["pdf"]), tmp["page"].read_bytes(),
+                           re.sub(rb"<dc:date>.*?</dc:date>|[a-z_]{1,6}[0-9a-f]{10}\b", b"",
+                                  tmp["svg"].read_bytes()))
+    finally:
+        prepared.close()
+    assert files["started"] == files["built"]
