@@ -163,9 +163,17 @@ class ReliefLayer:
         c_lo = int(cols.min())
         span = int(cols.max()) - c_lo + 1
         dem = np.empty((3 * h, 3 * w), np.float32)
-        for i in range(h):      # the 3 rows around each draft row's centre (GDAL caches blocks)
-            win = Window(int(rows[i, 0]), c_lo, 3, span, 0, full.height, full.width)
-            dem[3 * i:3 * i + 3] = self.source.read_window(full, win, o.resampling)[:, cols - c_lo]
+        r_first = int(rows.min())
+        r_span = int(rows.max()) - r_first + 1
+        if r_span * span <= DRAFT_READ_CELLS:   # small enough: one read, then pick
+            win = Window(r_first, c_lo, r_span, span, 0, full.height, full.width)
+            block = self.source.read_window(full, win, o.resampling)
+            dem[:] = block[np.ix_(rows.ravel() - r_first, cols - c_lo)]
+        else:                   # the 3 rows around each draft row's centre (GDAL caches blocks)
+            for i in range(h):
+                win = Window(int(rows[i, 0]), c_lo, 3, span, 0, full.height, full.width)
+                dem[3 * i:3 * i + 3] = self.source.read_window(full, win,
+                                                               o.resampling)[:, cols - c_lo]
         all_rows = rows.ravel()
         r_lo = int(all_rows.min())
         dx, dy = ground_cell_size(full.crs, full.transform @ Affine.translation(0, r_lo),
@@ -181,6 +189,11 @@ class ReliefLayer:
         if early is not None:
             early.wait()
         self.source.close()
+
+
+#: Full-canvas cells a draft's relief reads in one piece (16 MB of float32); larger canvases
+#: are read 3 rows per draft row.
+DRAFT_READ_CELLS = 4 << 20
 
 
 def _full_of_draft(context: Context) -> tuple[Canvas | None, int]:

@@ -47,3 +47,20 @@ def test_an_early_read_error_is_raised_where_the_layer_paints(tmp_path):
         assert str(exc) == "gone"
     else:
         raise AssertionError("the read's error was not raised")
+
+
+def test_a_draft_relief_read_in_one_piece_or_by_rows_is_the_same(monkeypatch):
+    import compose.layers.relief as relief
+
+    style = load_style(STYLES / "coast.toml")
+    shades = []
+    for cells in (relief.DRAFT_READ_CELLS, 0):          # one read of the region; 3 rows at a time
+        monkeypatch.setattr(relief, "DRAFT_READ_CELLS", cells)
+        prepared = prepare(style, canvas=draft_canvas(style.canvas()), draft=True)
+        try:
+            layer = next(la for la in prepared.layers if la.spec.kind == "relief")
+            (window,) = prepared.windows()
+            shades.append(layer._draft_shade(window))
+        finally:
+            prepared.close()
+    assert np.array_equal(shades[0], shades[1], equal_nan=True)
