@@ -167,8 +167,9 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 page_job = PageJob(style, prepared, page_sink, tmp, write_page, warm=warm_writers,
                                    ahead=lambda: page_ahead(style, prepared, page_sink))
                 stack.callback(page_job.abort)
-            _warm_imports(page=page_job is not None and not page_job.forked,
-                          legend=legend or html)
+            forked = page_job is not None and page_job.forked
+            if not forked:      # with the page in its own process, the cores are busy now
+                _warm_imports(page=page_job is not None, legend=legend or html)
             png = _PngSink(tmp["png"], canvas.width, canvas.height, canvas.dpi)
             stack.callback(png.writer.abort)
             tif = _TiffSink(tmp["tif"], canvas, tags, cog=cog,
@@ -209,6 +210,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                         previews=layer_previews, mapper=mapper, window=window or WINDOW)
             if page_job is not None:         # the page process draws from here on
                 page_job.start(nodata_seen(stats))
+            if forked:      # the legend's modules load beside the encoders' end and the check
+                _warm_imports(page=False, legend=legend or html)
             t = time.perf_counter()
             png_bg.finish()
             tif_bg.finish()
