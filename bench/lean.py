@@ -118,6 +118,124 @@ def memory(size: int, data: Path) -> None:
           f"{maxrss / 1e9:.2f} GB (time -v), sum over processes {data_['peak'] / 1e9:.2f} GB (PSS)  "
           f"(target <= 0.50 GB, flat in size)", flush=True)
 
+# Per-stage memory of the same command, in one process: resident set size (RSS, /proc/self/statm)
+# sampled every 5 ms by a thread, at the start and end of each stage and its peak between; the
+# stages are compose's own functions, wrapped. During the walk also: the planned reads' blocks
+# held and glibc's heap (in use, mmapped included / free but kept) every 0.2 s.
+STAGES = r"""
+import ctypes, functools, importlib, json, os, sys, threading, time
+PAGE = os.sysconf("SC_PAGE_SIZE")
+def rss():
+    with open("/proc/self/statm") as f:
+        return int(f.read().split()[1]) * PAGE
+def hwm():
+    with open("/proc/self/status") as f:
+        return next(int(l.split()[1]) * 1024 for l in f if l.startswith("VmHWM:"))
+class _MI(ctypes.Structure):
+    _fields_ = [(n, ctypes.c_size_t) for n in
+                "arena ordblks smblks hblks hblkhd usmblks fsmblks uordblks fordblks keepcost".split()]
+try:
+    _libc = ctypes.CDLL("libc.so.6"); _libc.mallinfo2.restype = _MI
+except (OSError, AttributeError):
+    _libc = None
+t0, r0 = time.perf_counter(), rss()
+rows = [("python start", 0.0, 0.0, r0, r0, r0)]
+from compose.cli.main import main
+import compose.render, compose.sources.raster
+rows.append(("imports (what a render loads first)", 0.0, time.perf_counter() - t0, r0, rss(), rss()))
+samples, walk = [], {"plan": 0, "heap_used": 0, "heap_free": 0}
+sources, stop = [], [False]
+_orig_plan = compose.sources.raster.RasterSource.plan
+def _plan(self, canvas, windows=()):
+    if self not in sources:
+        sources.append(self)
+    return _orig_plan(self, canvas, windows)
+compose.sources.raster.RasterSource.plan = _plan
+def sampler():
+    k = 0
+    while not stop[0]:
+        samples.append((time.perf_counter(), rss()))
+        k += 1
+        if k % 40 == 0:
+            held = sum(s._plan.held_bytes for s in sources if s._plan is not None)
+            walk["plan"] = max(walk["plan"], held)
+            if _libc is not None:
+                m = _libc.mallinfo2()
+                walk["heap_used"] = max(walk["heap_used"], m.uordblks + m.hblkhd)
+                walk["heap_free"] = max(walk["heap_free"], m.fordblks)
+        time.sleep(0.005)
+threading.Thread(target=sampler, daemon=True).start()
+events = []
+def wrap(dotted, label):
+    mod, attr = dotted.split(":")
+    owner = importlib.import_module(mod)
+    *path, name = attr.split(".")
+    for p in path:
+        owner = getattr(owner, p)
+    fn = getattr(owner, name)
+    @functools.wraps(fn)
+    def w(*a, **k):
+        t, r = time.perf_counter(), rss()
+        try:
+            return fn(*a, **k)
+        finally:
+            events.append((label, t, time.perf_counter(), r, rss()))
+    setattr(owner, name, w)
+STAGE_FUNCS = [
+    ("compose.render:prepare", "prepare (sources opened, lines read and cut)"),
+    ("compose.layers.relief:ReliefLayer.__init__", "  relief layer (stretch samples)"),
+    ("compose.layers.vector:_VectorLayer.__init__", "  lines layer (read, reprojected, cut)"),
+    ("compose.render:run", "walk (windows, PNG + GeoTIFF encoders)"),
+    ("compose.output.png:PngWriter.close", "PNG finished"),
+    ("compose.output.geotiff:GeoTiffWriter.close", "GeoTIFF finished"),
+    ("compose.check:check_style", "check"),
+    ("compose.output.legend:legend_png", "legend"),
+    ("compose.output.html:page_html", "HTML page"),
+    ("compose.output.transaction:OutputSet.commit", "outputs renamed into place"),
+]
+for dotted, label in STAGE_FUNCS:
+    try:
+        wrap(dotted, label)
+    except (ImportError, AttributeError):
+        pass
+sys.argv = ["compose"] + sys.argv[1:]
+try:
+    main()
+except SystemExit:
+    pass
+stop[0] = True
+def peak(a, b):
+    return max([r for t, r in samples if a <= t <= b] + [0])
+for label, a, b, ra, rb in sorted(events, key=lambda e: e[1]):
+    rows.append((label, a - t0, b - t0, ra, rb, max(peak(a, b), ra, rb)))
+print(json.dumps({"rows": rows, "walk": walk, "hwm": hwm()}))
+"""
+
+
+def stages(size: int, data: Path) -> None:
+    """The per-stage table of one instrumented run of the default render at ``size``."""
+    folder = data / f"{size}-10000"
+    styles = synthetic.write_styles(folder, size)
+    out = folder / "out-lean-stages"
+    shutil.rmtree(out, ignore_errors=True)
+    res = subprocess.run([sys.executable, "-c", STAGES, "render", str(styles["aligned"]), "--out",
+                          str(out), "--overwrite"], cwd=folder, capture_output=True, text=True)
+    shutil.rmtree(out, ignore_errors=True)
+    try:
+        d = json.loads(res.stdout.strip().splitlines()[-1])
+    except (ValueError, IndexError):
+        print(f"stages at {size}: failed\n{res.stderr[-1500:]}")
+        return
+    mb = 1e6
+    print(f"  where the memory goes at {size} (one instrumented run; RSS in MB at the stage's start, "
+          f"end and its peak; seconds since start):")
+    for label, a, b, ra, rb, pk in d["rows"]:
+        print(f"    {label:<44} {a:6.1f}-{b:6.1f} s  {ra / mb:5.0f} -> {rb / mb:5.0f}  peak {pk / mb:5.0f}")
+    w = d["walk"]
+    print(f"    during the walk, largest: planned-read blocks held {w['plan'] / mb:.0f} MB, heap in use "
+          f"{w['heap_used'] / mb:.0f} MB, heap free but kept {w['heap_free'] / mb:.0f} MB; process high-"
+          f"water mark {d['hwm'] / mb:.0f} MB", flush=True)
+
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
@@ -126,12 +244,16 @@ def main() -> None:
     ap.add_argument("--styles", default=",".join(EXAMPLES))
     ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
     ap.add_argument("--no-demo", action="store_true")
+    ap.add_argument("--no-stages", action="store_true",
+                    help="skip the instrumented run that prints where the memory goes")
     a = ap.parse_args()
     if not a.no_demo:
         demo(a.runs)
         drafts(a.runs, [s for s in a.styles.split(",") if s])
     for size in (int(s) for s in a.sizes.split(",") if s):
         memory(size, a.data)
+        if not a.no_stages:
+            stages(size, a.data)
 
 
 if __name__ == "__main__":
