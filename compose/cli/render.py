@@ -147,6 +147,9 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
     notes = loaded.canvas_plan().notes
     canvas = loaded.canvas()
     mapper = mapper_for(canvas.width * canvas.height, workers, cluster)
+    from compose.heap import limit_arenas
+
+    limit_arenas()          # before the walk's threads start: less freed memory kept per thread
     result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
                           mapper=mapper, cog=cog, check=check)
     # notes only after the render succeeded: a failing run prints its one error line alone
