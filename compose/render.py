@@ -95,6 +95,13 @@ def output_paths(style, out_dir: Path, *, proofs: bool = False) -> dict[str, Pat
     return paths
 
 
+def _legend_png(style, prepared, nodata: set[str] | None) -> bytes:
+    """The legend PNG of a prepared render (``nodata``: the layers with no-data on the map)."""
+    from compose.output.legend import legend_png
+
+    return legend_png(style, prepared.ramps, prepared.layers, nodata_seen=nodata)
+
+
 def _warm(page: bool, legend: bool) -> None:
     try:
         if page:
@@ -165,7 +172,9 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
 
                 page_sink = PageSink(canvas, vector_split(prepared.layers))
                 page_job = PageJob(style, prepared, page_sink, tmp, write_page, warm=warm_writers,
-                                   ahead=lambda: page_ahead(style, prepared, page_sink))
+                                   ahead=lambda: page_ahead(style, prepared, page_sink),
+                                   legend=(lambda nodata: _legend_png(style, prepared, nodata))
+                                   if legend or html else None)
                 stack.callback(page_job.abort)
             forked = page_job is not None and page_job.forked
             if not forked:      # with the page in its own process, the cores are busy now
@@ -210,8 +219,6 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                         previews=layer_previews, mapper=mapper, window=window or WINDOW)
             if page_job is not None:         # the page process draws from here on
                 page_job.start(nodata_seen(stats))
-            if forked:      # the legend's modules load beside the encoders' end and the check
-                _warm_imports(page=False, legend=legend or html)
             t = time.perf_counter()
             png_bg.finish()
             tif_bg.finish()
@@ -238,12 +245,9 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             report = None
             layout = None
             legend_png = None
-            if legend or html:
-                from compose.output.legend import legend_png as draw_legend
-
+            if (legend or html) and not forked:
                 t = time.perf_counter()
-                legend_png = draw_legend(style, prepared.ramps, prepared.layers,
-                                         nodata_seen=nodata_seen(stats))
+                legend_png = _legend_png(style, prepared, nodata_seen(stats))
                 if legend:
                     tmp["legend"].write_bytes(legend_png)
                 seconds["legend"] = time.perf_counter() - t
@@ -265,6 +269,14 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     with open(tmp["check"], "w", encoding="utf-8") as f:
                         json.dump(report.to_json(), f, indent=2)
                 seconds["check"] += time.perf_counter() - t
+            if (legend or html) and forked and page_job is not None:
+                t = time.perf_counter()
+                legend_png = page_job.legend()          # drawn by the page process
+                if legend_png is None:
+                    legend_png = _legend_png(style, prepared, nodata_seen(stats))
+                if legend:
+                    tmp["legend"].write_bytes(legend_png)
+                seconds["legend"] = time.perf_counter() - t
             result = RenderResult(outputs=dict(paths), width=canvas.width, height=canvas.height,
                                   seconds=seconds, statistics=stats,
                                   report=report, unplaced_labels=prepared.unplaced_labels,

@@ -139,7 +139,7 @@ class Forked:
             self.pid = None
 
 
-def _child(inbox: int, outbox: int, parent: int, write, warm, ahead) -> None:
+def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> None:
     """The forked process: load the writers, wait for the walk, write the page. Never returns."""
     status = 0
     try:
@@ -160,8 +160,12 @@ def _child(inbox: int, outbox: int, parent: int, write, warm, ahead) -> None:
             except EOFError:                              # the render ended without a page
                 os._exit(0)
             try:
-                seconds, _ = write(nodata, lambda layout: _send(out, ("layout", layout)),
-                                   started)
+                def on_layout(layout):
+                    _send(out, ("layout", layout))
+                    if legend is not None:          # the legend PNG, for the parent
+                        _send(out, ("legend", legend(nodata)))
+
+                seconds, _ = write(nodata, on_layout, started)
                 _send(out, ("done", seconds))
             except BaseException as exc:                  # noqa: BLE001 - handed to the parent
                 status = 1
@@ -177,7 +181,9 @@ class PageJob:
     in this process: ``write(style, prepared, sink, tmp, nodata_seen, on_layout=None) ->
     (seconds, layout)`` (:func:`compose.page.write.write_page`); ``warm()``: loads what it needs,
     run first in the child; ``ahead()``: work done in the child while the walk runs, handed to
-    ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`).
+    ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`); ``legend(nodata_seen)``:
+    the legend PNG's bytes, drawn by the child once the layout is sent (:meth:`legend`), so
+    the parent needs no drawing library of its own.
 
     Create it once the render is prepared and its :class:`compose.page.write.PageSink` exists,
     before other threads start; then :meth:`start` with the walk's no-data layers, :meth:`layout`
@@ -187,11 +193,14 @@ class PageJob:
 
     def __init__(self, style, prepared, sink, tmp: dict[str, Path], write: Callable, *,
                  warm: Callable[[], None] | None = None, ahead: Callable[[], Any] | None = None,
+                 legend: Callable[[set[str] | None], bytes] | None = None,
                  forked: bool | None = None):
         self._args = (style, prepared, sink, tmp)
         self._write = write
         self._warm = warm
         self._ahead = ahead
+        self._legend = legend
+        self._got: dict[str, tuple] = {}
         self.pid: int | None = None
         self._forked = False
         self._inbox: Any = None
@@ -224,7 +233,7 @@ class PageJob:
         if pid == 0:                                          # the child
             os.close(down_w)
             os.close(up_r)
-            _child(down_r, up_w, parent, write, self._warm, self._ahead)
+            _child(down_r, up_w, parent, write, self._warm, self._ahead, self._legend)
         os.close(down_r)
         os.close(up_w)
         self.pid = pid
@@ -252,12 +261,25 @@ class PageJob:
             _raise_from(message, self._reap)
         return message
 
+    def _get(self, kind: str) -> tuple:
+        """The child's message of ``kind`` (messages come in order: layout, legend, done)."""
+        while kind not in self._got:
+            message = self._receive()
+            self._got[message[0]] = tuple(message[1:])
+        return self._got[kind]
+
+    def legend(self) -> bytes | None:
+        """The legend PNG drawn by the child (None when not forked or not asked for)."""
+        if not self.forked or self._legend is None:
+            return None
+        return self._get("legend")[0]
+
     def layout(self):
         """The page's :class:`compose.page.layout.PageLayout` (in this process: writes the page
         now)."""
         if self._layout is None:
             if self.forked:
-                self._layout = self._receive()[1]
+                self._layout = self._get("layout")[0]
             else:
                 style, prepared, sink, tmp = self._args
                 self._seconds, self._layout = self._write(style, prepared, sink, tmp, self._nodata)
@@ -268,7 +290,7 @@ class PageJob:
         long this process waited for the child."""
         self.layout()
         if self._seconds is None:
-            self._seconds = dict(self._receive()[1])
+            self._seconds = dict(self._get("done")[0])
             self._reap()
         return dict(self._seconds, waited=self._waited)
 

@@ -36,6 +36,8 @@ def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
     assert [(r.rule, r.layer, r.value) for r in there.report.rules] == rules
     assert any(layer.startswith("page ") for _, layer, _ in rules)
     assert {"page pdf", "page svg", "page page.png"} <= set(there.seconds)
+    # the legend PNG drawn by the page process is the one drawn here
+    assert there.outputs["legend"].read_bytes() == here.outputs["legend"].read_bytes()
 
 
 def test_shared_image_is_seen_by_a_forked_process():
@@ -81,9 +83,11 @@ def test_layout_first_then_seconds(monkeypatch):
         on_layout({"nodata": sorted(nodata)})
         return {"pdf": 0.5}, None
 
-    job = _job(monkeypatch, fake_write)
+    job = process.PageJob(None, _Prepared(), None, {}, fake_write, forked=True,
+                          legend=lambda nodata: b"legend of " + ",".join(sorted(nodata)).encode())
     job.start({"b", "a"})
     assert job.layout() == {"nodata": ["a", "b"]}
+    assert job.legend() == b"legend of a,b"
     seconds = job.wait()
     assert seconds["pdf"] == 0.5 and seconds["waited"] >= 0
     assert job.pid is None                           # reaped
