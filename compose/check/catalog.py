@@ -99,6 +99,10 @@ _RULES = [
        "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
     _r("twin-lightness-map-protan", "the same in simulated protan vision", "<=", "L*",
        "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
+    _r("twin-chroma-map", "|dC*ab| between twins as drawn on the map (after every layer is "
+       "blended) at equal positions, at each entry's lit end; p90 over positions (normal vision: "
+       "twins differ in hue by design)", "<=", "C*ab", "ramp.map_chroma",
+       OUR_TARGET + " (1 C*ab of the palette plus rounding and the lit-end estimate)"),
     _r("threshold-lightness", "|dL*| across the break of a threshold ramp: lightness runs on",
        "<=", "L*", "ramp.break_lightness", OUR_TARGET, measured="the ramp's 8-bit colours"),
     _r("ramp-break-visible", "dE00 across the break of a threshold ramp: the break shows", ">=",

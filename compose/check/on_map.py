@@ -38,7 +38,7 @@ from compose.check.stats import N_LIGHTNESS
 from compose.color.cvd import simulate_cvd
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 
-__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "drawn_lightness", "position_groups", "fill_gaps",
+__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "drawn_colors", "drawn_lightness", "position_groups", "fill_gaps",
            "pooled_gap", "twin_lightness_map",
            "twin_lightness_map_deutan", "twin_lightness_map_protan", "diverging_symmetry_map",
            "diverging_symmetry_map_deutan", "diverging_symmetry_map_protan"]
@@ -50,12 +50,12 @@ POOL_SHARE = 0.9     # the value is the weighted p90 of |dL*| over positions (ou
 _L = np.arange(N_LIGHTNESS, dtype=float)
 
 
-def drawn_lightness(s, groups: np.ndarray, n_groups: int, vision: str = "normal"
-                    ) -> tuple[np.ndarray, np.ndarray] | None:
-    """(L* (n_groups,), sampled pixel count (n_groups,)) of groups of palette entries of a theme
-    layer as drawn on the map, at their lit end (see the module docstring), in ``vision``
-    (normal, deutan, protan); NaN where fewer than :data:`MIN_PIXELS` were sampled. ``groups``
-    (n_entries,): the group of each entry, -1 to leave it out. None when not measured."""
+def drawn_colors(s, groups: np.ndarray, n_groups: int
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """(mean composite sRGB (n_groups, 3) in 0..1, L* shift to the lit end (n_groups,), sampled
+    pixel count (n_groups,)) of groups of palette entries of a theme layer as drawn on the map
+    (see the module docstring). ``groups`` (n_entries,): the group of each entry, -1 to leave
+    it out. None when not measured."""
     if s.value_color is None or s.value_lightness is None:
         return None
     groups = np.asarray(groups)
@@ -76,7 +76,19 @@ def drawn_lightness(s, groups: np.ndarray, n_groups: int, vision: str = "normal"
     lit = np.minimum((cdf < LIT_SHARE - 1e-9).sum(axis=1), N_LIGHTNESS - 1).astype(float)
     # a layer drawn at opacity <= 0.5 has no L* histogram (it counts pixels where the layer is
     # more than half there): its mean colour is taken as it is
-    shift = np.where(tot > 0, lit - mean_h, 0.0)
+    return rgb, np.where(tot > 0, lit - mean_h, 0.0), n
+
+
+def drawn_lightness(s, groups: np.ndarray, n_groups: int, vision: str = "normal"
+                    ) -> tuple[np.ndarray, np.ndarray] | None:
+    """(L* (n_groups,), sampled pixel count (n_groups,)) of groups of palette entries of a theme
+    layer as drawn on the map, at their lit end (see the module docstring), in ``vision``
+    (normal, deutan, protan); NaN where fewer than :data:`MIN_PIXELS` were sampled. ``groups``
+    (n_entries,): the group of each entry, -1 to leave it out. None when not measured."""
+    got = drawn_colors(s, groups, n_groups)
+    if got is None:
+        return None
+    rgb, shift, n = got
     if vision != "normal":
         rgb = simulate_cvd(rgb, vision, 100.0)
     L = srgb_to_lab(np.clip(rgb, 0.0, 1.0))[:, 0] + shift
@@ -222,8 +234,10 @@ def _own_gap_fix(gap: float, what: str, vision: str) -> str:
             "saturated reds and greens) or choose hues whose lightness holds in that vision")
 
 
-def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float
-              ) -> tuple[str, Change | None]:
+def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
+              own: tuple[float, str] | None = None) -> tuple[str, Change | None]:
+    """The fix of a twin pair apart on the map; ``own``: (the ramps' own gap, its fix text) for
+    a measure other than L* (default: their L* gap)."""
     steps: list[tuple[str, Change]] = []
     order = [s.name for s in ctx.stats.layers]
     lower, upper = sorted((tspec, bspec), key=lambda sp: order.index(sp.name))
@@ -245,9 +259,9 @@ def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float
                          for k, v in values.items())
         steps.append((f'draw "{tspec.name}" as "{bspec.name}" is drawn: {said} (a twin blended '
                       "differently reads as another value)", Change(layer_key(tspec.name), values)))
-    own = _palette_gap(ctx, r, r.base, vision)
-    if own > limit and not steps:
-        return _own_gap_fix(own, f'the ramps "{r.name}" and "{r.base.name}"', vision), None
+    gap, text = own if own is not None else (_palette_gap(ctx, r, r.base, vision), "")
+    if gap > limit and not steps:
+        return text or _own_gap_fix(gap, f'the ramps "{r.name}" and "{r.base.name}"', vision), None
     steps += _blend_steps(ctx, [tspec, bspec], vision)
     if not steps:
         return (f'draw "{tspec.name}" and "{bspec.name}" under the same layers (a layer blended '

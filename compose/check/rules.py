@@ -35,6 +35,7 @@ from compose.check.on_map import (
     twin_lightness_map_deutan,
     twin_lightness_map_protan,
 )
+from compose.check.on_map_chroma import twin_chroma_map
 from compose.check.ramp_rules import (
     grayscale_order,
     nodata_background,
@@ -74,6 +75,7 @@ RULES: dict[str, Rule] = {
     "twin-lightness-map": twin_lightness_map,
     "twin-lightness-map-deutan": twin_lightness_map_deutan,
     "twin-lightness-map-protan": twin_lightness_map_protan,
+    "twin-chroma-map": twin_chroma_map,
     "threshold-lightness": threshold_lightness,
     "nodata-chroma": nodata_chroma,
     "nodata-separation": nodata_separation,

@@ -188,7 +188,8 @@ class RampBudget:
     """Limits of the ramp-shape rules: step evenness (CV of CAM02-UCS steps at equal data steps,
     %), diverging symmetry and threshold continuity (|dL*|), neutral midpoint (C*ab), the break
     showing (dE00), twins (|dL*|, |dC*|, hue degrees); ``map_lightness`` / ``map_lightness_cvd``:
-    |dL*| of twins and of diverging arms as drawn on the map (normal / simulated deutan, protan)."""
+    |dL*| of twins and of diverging arms as drawn on the map (normal / simulated deutan, protan);
+    ``map_chroma``: |dC*ab| of twins as drawn on the map (normal vision)."""
 
     evenness: float = option(number(ge=0), 10.0)
     symmetry: float = option(number(ge=0), 1.0)
@@ -200,6 +201,7 @@ class RampBudget:
     twin_hue: float = option(number(ge=0, le=180), 30.0)
     map_lightness: float = option(number(ge=0), 2.0)
     map_lightness_cvd: float = option(number(ge=0), 6.0)
+    map_chroma: float = option(number(ge=0), 3.0)
 
 
 def _theme(value: Any, at: Scope) -> ThemeBudget:
