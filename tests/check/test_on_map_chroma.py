@@ -102,7 +102,7 @@ def test_lit_end_chroma_matches_colour_science():
     assert abs(C[0] - np.hypot(lit[1], lit[2])) < 0.3
 
 
-def test_a_coloured_paper_under_a_multiplied_relief_gets_the_relief_drawn_normally(data, tmp_path):
+def test_a_colored_paper_under_a_multiplied_relief_gets_the_relief_drawn_normally(data, tmp_path):
     # a pink paper (C* 6.8) shows through the relief multiplied over it: purple gains chroma,
     # yellow-green loses it; the relief drawn normally hides the paper
     doc = twins(data, ground={"tint": "#dddddd", "blend": "multiply"},
