@@ -162,10 +162,15 @@ def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> 
             try:
                 def on_layout(layout):
                     _send(out, ("layout", layout))
-                    if legend is not None:          # the legend PNG, for the parent
+
+                def with_png():
+                    # drawn by the process that draws the page PNG (forked from this one
+                    # after the layout was sent: it writes to the parent while this one writes
+                    # the PDF and SVG and sends nothing until that process is done)
+                    if legend is not None:
                         _send(out, ("legend", legend(nodata)))
 
-                seconds, _ = write(nodata, on_layout, started)
+                seconds, _ = write(nodata, on_layout, started, with_png)
                 _send(out, ("done", seconds))
             except BaseException as exc:                  # noqa: BLE001 - handed to the parent
                 status = 1
@@ -182,8 +187,9 @@ class PageJob:
     (seconds, layout)`` (:func:`compose.page.write.write_page`); ``warm()``: loads what it needs,
     run first in the child; ``ahead()``: work done in the child while the walk runs, handed to
     ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`); ``legend(nodata_seen)``:
-    the legend PNG's bytes, drawn by the child once the layout is sent (:meth:`legend`), so
-    the parent needs no drawing library of its own.
+    the legend PNG's bytes, drawn beside the PDF by the process drawing the page PNG
+    (``write``'s ``with_png``) and sent here (:meth:`legend`), so this process needs no
+    drawing library of its own.
 
     Create it once the render is prepared and its :class:`compose.page.write.PageSink` exists,
     before other threads start; then :meth:`start` with the walk's no-data layers, :meth:`layout`
@@ -223,11 +229,11 @@ class PageJob:
         parent = os.getpid()
         style, prepared, sink, tmp = self._args
 
-        def write(nodata, on_layout, started):
+        def write(nodata, on_layout, started, with_png):
             # alone in its process, the page may fork once more: the page PNG beside the PDF
             kw = {"ahead": started} if started is not None else {}
             return self._write(style, prepared, sink, tmp, nodata, on_layout=on_layout,
-                               fork=True, **kw)
+                               fork=True, with_png=with_png, **kw)
 
         pid = os.fork()
         if pid == 0:                                          # the child

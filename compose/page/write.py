@@ -165,13 +165,16 @@ def page_ahead(style, run_, sink: PageSink):
 
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                nodata_seen: set[str] | None = None,
-               on_layout=None, fork: bool = False, ahead=None) -> tuple[dict[str, float], PageLayout]:
+               on_layout=None, fork: bool = False, ahead=None,
+               with_png=None) -> tuple[dict[str, float], PageLayout]:
     """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
     returns (seconds per output, the layout). ``on_layout(layout)``: called as soon as the
     layout is decided, before the files are drawn. ``fork``: the page PNG is drawn by a forked
     process from the same figure while this one writes the PDF and SVG (only where no other
     thread runs: :class:`compose.page.process.Forked`). ``ahead``: the figure
-    :func:`page_ahead` started (used when its frame is the layout's)."""
+    :func:`page_ahead` started (used when its frame is the layout's). ``with_png()``: run
+    first by whoever draws the page PNG (the forked process when ``fork``), outside this
+    function's matplotlib settings."""
     from matplotlib import rc_context
 
     from compose.page.draw import finish_page_figure, finishes, start_page_figure
@@ -186,6 +189,9 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     from compose.page.encode import fast_png
 
     rc = _rc(style)
+    from matplotlib import rcParams
+
+    outer = {k: rcParams[k] for k in rc}        # the settings outside the page writers
     with rc_context(rc), fast_png():
         t = time.perf_counter()
         fig = (ahead if ahead is not None and finishes(ahead, layout)
@@ -194,6 +200,9 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
         built = time.perf_counter() - t
 
         def png() -> float:
+            if with_png is not None:
+                with rc_context(outer):
+                    with_png()
             t = time.perf_counter()
             write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi,
                            fig=fig)

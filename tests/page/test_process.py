@@ -81,6 +81,7 @@ def test_a_style_error_in_the_child_is_raised_in_the_parent(monkeypatch):
 def test_layout_first_then_seconds(monkeypatch):
     def fake_write(style, run_, sink, tmp, nodata, on_layout=None, **kw):
         on_layout({"nodata": sorted(nodata)})
+        kw["with_png"]()                    # what draws the page PNG sends the legend
         return {"pdf": 0.5}, None
 
     job = process.PageJob(None, _Prepared(), None, {}, fake_write, forked=True,
