@@ -93,6 +93,17 @@ class Prepared:
 RenderRun = Prepared
 
 
+def _scale_to(canvas: Canvas, full: Canvas) -> tuple[float, float] | None:
+    """(x, y) factors from ``full``'s pixels to ``canvas``'s when ``canvas`` is ``full`` or a
+    coarser grid of it with the same north-west corner and CRS (the draft check's); else None."""
+    if canvas == full:
+        return 1.0, 1.0
+    a, b = canvas.transform, full.transform
+    if canvas.crs != full.crs or (a.c, a.f) != (b.c, b.f) or a.b or a.d:
+        return None
+    return b.a / a.a, b.e / a.e
+
+
 def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
             keep_clear: Callable[..., Iterable[tuple[float, float, float, float]]] | None = None,
             draft: bool = False, blocked: tuple = ()) -> Prepared:
@@ -125,12 +136,15 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     try:
         for i in order:
             spec = specs[i]
-            if spec.kind == "labels" and keep_clear is not None \
-                    and not ctx.blocked and canvas == style.canvas():
-                # stand-ins (just the spec) for the layers not prepared yet
-                ctx.blocked = tuple(keep_clear(style, ramps, [
-                    la if la is not None else SimpleNamespace(spec=sp)
-                    for la, sp in zip(layers, specs)]))
+            if spec.kind == "labels" and keep_clear is not None and not ctx.blocked \
+                    and _scale_to(canvas, style.canvas()) is not None:
+                # stand-ins (just the spec) for the layers not prepared yet; boxes of the full
+                # canvas, scaled to a coarser one of the same extent (the draft check)
+                sx, sy = _scale_to(canvas, style.canvas())
+                ctx.blocked = tuple((c0 * sx, r0 * sy, c1 * sx, r1 * sy)
+                                    for c0, r0, c1, r1 in keep_clear(style, ramps, [
+                                        la if la is not None else SimpleNamespace(spec=sp)
+                                        for la, sp in zip(layers, specs)]))
             layer = layer_class(spec.kind)(spec, ctx)
             stack.callback(layer.close)
             layers[i] = layer

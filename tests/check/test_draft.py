@@ -81,3 +81,31 @@ def test_a_draft_shades_the_full_canvas_cells_on_rough_terrain(tmp_path):
         (f,), (d,) = full.rule(rule, "relief"), draft.rule(rule, "relief")
         assert f.passed == d.passed
         assert np.allclose(d.value, f.value, atol=0.5), (rule, f.value, d.value)
+
+
+def test_draft_labels_keep_clear_of_the_furniture_scaled_to_its_canvas():
+    # the full render's keep-clear boxes (page furniture inside the map frame, in full-canvas
+    # pixels) are scaled to the draft's coarser grid, so its labels avoid the same ground
+    from compose.engine import prepare
+
+    style = load_style(STYLES / "base.toml")
+    full = style.canvas()
+    box = (0.0, 0.0, full.width / 2, full.height / 2)           # the north-west quarter
+    d = draft_canvas(full)
+    prepared = prepare(style, canvas=d, draft=True, keep_clear=lambda *_: [box])
+    free = prepare(style, canvas=d, draft=True)
+    try:
+        k = full.pixel / d.pixel
+        assert len(prepared.blocked) == 1
+        assert list(prepared.blocked[0]) == pytest.approx([0.0, 0.0, box[2] * k, box[3] * k])
+        labels = [la for la in prepared.layers if la.spec.kind == "labels"]
+        assert labels and free.blocked == ()
+        assert sum(len(la.placement.placed) for la in labels) \
+            < sum(len(la.placement.placed) for la in free.layers if la.spec.kind == "labels")
+        for la in labels:
+            for lab in la.placement.placed:
+                c0, r0, c1, r1 = lab.box
+                assert not (c0 < box[2] * k and r0 < box[3] * k)
+    finally:
+        prepared.close()
+        free.close()
