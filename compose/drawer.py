@@ -11,8 +11,9 @@ byte-identical with or without it; tested). The window threads keep the rasters,
 compositing and the measuring.
 
 The worker gets the prepared vector layers once (features as WKB, vectorised) and runs the same
-``layer.paint`` the threads would. If it cannot start or fails, a window's layers are drawn in
-the calling thread as without it.
+``layer.paint`` the threads would. It starts beside the walk (the threads draw the first
+windows themselves until it is up), and if it cannot start or fails, a window's layers are drawn
+in the calling thread as without it.
 """
 from __future__ import annotations
 
@@ -94,12 +95,8 @@ class DrawAhead:
     returns None when there is nothing to draw, and :meth:`close` when the walk ends.
     """
 
-    def __init__(self, prepared, layers: list[int], windows: Iterable, ahead: int = AHEAD):
-        import multiprocessing
-        from concurrent.futures import ProcessPoolExecutor
-
-        from compose.packing import pack
-
+    def __init__(self, prepared, layers: list[int], windows: Iterable, ahead: int = AHEAD,
+                 wait: bool = False):
         self.layers = frozenset(layers)
         self._windows = list(windows)
         self._index = {w: i for i, w in enumerate(self._windows)}
@@ -108,28 +105,54 @@ class DrawAhead:
         self._used: dict[int, int] = {}
         self._next = 0
         self._lock = threading.Lock()
+        self._closed = False
+        self._executor: Any = None
+        # the executor once the helper is up; None before, and once closed or broken
+        self._pool: Any = None
         #: windows whose paints the helper process drew
         self.served = 0
-        payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
-        ctx = multiprocessing.get_context("forkserver")
-        ctx.set_forkserver_preload(PRELOAD)
-        self._executor: Any = ProcessPoolExecutor(1, mp_context=ctx, initializer=_init,
-                                             initargs=(payload,))
-        self._pool: Any = self._executor      # None once closed or broken
+        # the helper starts beside the walk: until it is up, the threads draw themselves
+        self._starter = threading.Thread(target=self._start, args=(prepared,), daemon=True,
+                                         name="compose-drawer-start")
+        self._starter.start()
+        if wait:
+            self._starter.join()
+
+    def _start(self, prepared) -> None:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        from compose.packing import pack
+
+        executor = None
+        try:
+            payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
+            ctx = multiprocessing.get_context("forkserver")
+            ctx.set_forkserver_preload(PRELOAD)
+            executor = ProcessPoolExecutor(1, mp_context=ctx, initializer=_init,
+                                           initargs=(payload,))
+            executor.submit(len, ()).result()       # up, with the layers unpacked
+        except Exception:       # no helper here (e.g. no forkserver): the threads draw
+            if executor is not None:
+                executor.shutdown(wait=False, cancel_futures=True)
+            return
+        with self._lock:
+            if not self._closed:
+                self._executor = self._pool = executor
+                return
+        executor.shutdown(wait=True, cancel_futures=True)
 
     @classmethod
     def start(cls, prepared, windows: Iterable, only: frozenset[int] | None = None,
-              ahead: int = AHEAD) -> DrawAhead | None:
-        """A DrawAhead for the drawn kinds among ``prepared``'s layers (None when there are none,
-        or when the helper process cannot be started)."""
+              ahead: int = AHEAD, wait: bool = False) -> DrawAhead | None:
+        """A DrawAhead for the drawn kinds among ``prepared``'s layers (None when there are none).
+        The helper process starts on a thread of its own; ``wait``: return only once it is up
+        (or failed to start)."""
         layers = [li for li, layer in enumerate(prepared.layers)
                   if layer.spec.kind in DRAWN_KINDS and (only is None or li in only)]
         if not layers:
             return None
-        try:
-            return cls(prepared, layers, windows, ahead)
-        except Exception:       # no helper process here (e.g. no forkserver): draw in the threads
-            return None
+        return cls(prepared, layers, windows, ahead, wait)
 
     def _submit_through(self, last: int) -> None:
         while self._next <= min(last, len(self._windows) - 1) and self._pool is not None:
@@ -138,13 +161,17 @@ class DrawAhead:
 
     def paints(self, window, li: int) -> list[Paint] | None:
         """Layer ``li``'s paints of ``window`` drawn by the helper process (waiting for them), or
-        None when the caller should draw them itself (not a drawn layer, or the helper failed)."""
+        None when the caller should draw them itself (not a drawn layer, a window the helper
+        was not given -- it was not up yet -- or the helper failed)."""
         if li not in self.layers:
             return None
         with self._lock:
             i = self._index.get(window)
             if i is None or self._pool is None:
                 return None
+            # windows before this one that were never given to the helper are drawn by the
+            # threads (the helper came up after the walk had passed them)
+            self._next = max(self._next, i) if i not in self._futures else self._next
             try:
                 self._submit_through(i + self._ahead)
             except Exception:   # the helper is gone: the threads draw from now on
@@ -169,6 +196,7 @@ class DrawAhead:
     def close(self) -> None:
         """Stop the helper process (windows not drawn yet are dropped); idempotent."""
         with self._lock:
+            self._closed = True
             self._pool = None
             executor, self._executor = self._executor, None
             futures = list(self._futures.values())

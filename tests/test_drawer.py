@@ -31,7 +31,7 @@ def test_features_pickle_exactly(tiny_region):
 def test_helper_process_draws_the_same_paints(tiny_region):
     prepared = prepare(load_style(tiny_region))
     windows = prepared.windows(WINDOW)
-    drawer = DrawAhead.start(prepared, windows, ahead=2)
+    drawer = DrawAhead.start(prepared, windows, ahead=2, wait=True)
     try:
         assert drawer is not None and drawer.layers
         for w in windows[::-1] + windows:       # out of order too (then drawn here: None)
@@ -43,7 +43,7 @@ def test_helper_process_draws_the_same_paints(tiny_region):
             w = windows[len(windows) // 2]
             _, _, h, width = w.padded
             mine = layer.paint(w, prepared.canvas.window_transform(w), h, width)
-            fresh = DrawAhead.start(prepared, [w], only=frozenset({li}))
+            fresh = DrawAhead.start(prepared, [w], only=frozenset({li}), wait=True)
             try:
                 theirs = fresh.paints(w, li)
             finally:
