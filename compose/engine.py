@@ -136,11 +136,11 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     try:
         for i in order:
             spec = specs[i]
-            if spec.kind == "labels" and keep_clear is not None and not ctx.blocked \
-                    and _scale_to(canvas, style.canvas()) is not None:
+            scale = _scale_to(canvas, style.canvas()) if spec.kind == "labels" else None
+            if keep_clear is not None and not ctx.blocked and scale is not None:
                 # stand-ins (just the spec) for the layers not prepared yet; boxes of the full
                 # canvas, scaled to a coarser one of the same extent (the draft check)
-                sx, sy = _scale_to(canvas, style.canvas())
+                sx, sy = scale
                 ctx.blocked = tuple((c0 * sx, r0 * sy, c1 * sx, r1 * sy)
                                     for c0, r0, c1, r1 in keep_clear(style, ramps, [
                                         la if la is not None else SimpleNamespace(spec=sp)
