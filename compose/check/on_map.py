@@ -28,6 +28,10 @@ the library twins by 2.4-3.4 L*, its diverging ramp by 3.7-5.6 L*; our design ta
 """
 from __future__ import annotations
 
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from typing import Any
+
 import numpy as np
 
 from compose.check.catalog import limit_of
@@ -38,7 +42,8 @@ from compose.check.stats import N_LIGHTNESS
 from compose.color.cvd import simulate_cvd
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 
-__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "drawn_colors", "drawn_lightness", "position_groups", "fill_gaps",
+__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "TwinGap", "twin_gaps",
+           "drawn_colors", "drawn_lightness", "position_groups", "fill_gaps",
            "pooled_gap", "twin_lightness_map",
            "twin_lightness_map_deutan", "twin_lightness_map_protan", "diverging_symmetry_map",
            "diverging_symmetry_map_deutan", "diverging_symmetry_map_protan"]
@@ -178,37 +183,65 @@ def _twin_layers(ctx: CheckContext):
             yield r, firsts[r.name], firsts[r.base.name]
 
 
+@dataclass(frozen=True)
+class TwinGap:
+    """A twin and its base as drawn on the map: per-position values ``a`` and ``b`` (gaps
+    filled), the pooled gap ``value`` (weighted p90), its position ``i`` of ``bands`` and the data
+    value ``near`` at that position's centre."""
+    ramp: Any           # the twin ramp (its .base is the base ramp)
+    twin: Any           # the twin layer's spec
+    base: Any           # the base layer's spec
+    bands: int
+    a: np.ndarray
+    b: np.ndarray
+    value: float
+    i: int
+    near: float
+
+
+def twin_gaps(ctx: CheckContext, rule: str, limit: float,
+              measure: Callable[..., tuple[np.ndarray, np.ndarray] | None]
+              ) -> Iterator[TwinGap | RuleResult]:
+    """For every twin drawn beside its base: a TwinGap of ``measure(stats, groups, bands)`` --
+    (per-position values, weights) or None -- taken at equal positions along both ramps, or a
+    passing "not measured" RuleResult when the two share no drawn position."""
+    for r, (tspec, ts), (bspec, bs) in _twin_layers(ctx):
+        bands = min(BANDS, ctx.lut(r).n, ctx.lut(r.base).n)     # equal positions along the ramps
+        got_t = measure(ts, position_groups(len(ts.value_color), ctx.lut(r).n, bands), bands)
+        got_b = measure(bs, position_groups(len(bs.value_color), ctx.lut(r.base).n, bands), bands)
+        if got_t is None or got_b is None:
+            continue
+        (a, wa), (b, wb) = fill_gaps(*got_t), fill_gaps(*got_b)
+        pooled = pooled_gap(a, b, wa, wb)
+        if pooled is None:
+            yield RuleResult(rule, tspec.name, None, limit, True,
+                             f'"{tspec.name}" and "{bspec.name}" share no drawn position; '
+                             "not measured", ramp=r.name)
+            continue
+        value, i = pooled
+        lo, hi = r.domain
+        yield TwinGap(r, tspec, bspec, bands, a, b, value, i, lo + (i + 0.5) / bands * (hi - lo))
+
+
 def _twin_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
     rule = _rule_id("twin-lightness-map", vision)
     limit = _limit(ctx, rule)
-    out = []
-    for r, (tspec, ts), (bspec, bs) in _twin_layers(ctx):
-        bands = min(BANDS, ctx.lut(r).n, ctx.lut(r.base).n)     # equal positions along the ramps
-        got_t = drawn_lightness(ts, position_groups(len(ts.value_color), ctx.lut(r).n, bands),
-                                bands, vision)
-        got_b = drawn_lightness(bs, position_groups(len(bs.value_color), ctx.lut(r.base).n, bands),
-                                bands, vision)
-        if got_t is None or got_b is None:
+    out: list[RuleResult] = []
+    for g in twin_gaps(ctx, rule, limit,
+                       lambda s, groups, n: drawn_lightness(s, groups, n, vision)):
+        if isinstance(g, RuleResult):
+            out.append(g)
             continue
-        (Lt, wt), (Lb, wb) = fill_gaps(*got_t), fill_gaps(*got_b)
-        pooled = pooled_gap(Lt, Lb, wt, wb)
-        if pooled is None:
-            out.append(RuleResult(rule, tspec.name, None, limit, True,
-                                  f'"{tspec.name}" and "{bspec.name}" share no drawn position; '
-                                  "not measured", ramp=r.name))
-            continue
-        value, i = pooled
-        passed = value <= limit
-        lo, hi = r.domain
-        v = lo + (i + 0.5) / bands * (hi - lo)
+        r, tspec, bspec = g.ramp, g.twin, g.base
+        passed = g.value <= limit
         msg = (f'|dL*| between "{tspec.name}" ({r.name}) and "{bspec.name}" ({r.base.name}) as '
-               f"drawn on the map, in {vision} vision: p90 over {bands} positions {value:.2f} "
-               f"(near {v:.3g}: L* {Lt[i]:.1f} vs {Lb[i]:.1f}); limit {limit:g}")
+               f"drawn on the map, in {vision} vision: p90 over {g.bands} positions {g.value:.2f} "
+               f"(near {g.near:.3g}: L* {g.a[g.i]:.1f} vs {g.b[g.i]:.1f}); limit {limit:g}")
         fix, change = "", None
         if not passed:
             fix, change = _twin_fix(ctx, r, tspec, bspec, vision, limit)
-        out.append(RuleResult(rule, f"{tspec.name}, {bspec.name}", value, limit, passed, msg, fix,
-                              ramp=r.name, change=change))
+        out.append(RuleResult(rule, f"{tspec.name}, {bspec.name}", g.value, limit, passed, msg,
+                              fix, ramp=r.name, change=change))
     return out
 
 

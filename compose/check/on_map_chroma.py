@@ -33,14 +33,10 @@ import numpy as np
 from compose.check.catalog import limit_of
 from compose.check.context import CheckContext, layer_key
 from compose.check.on_map import (
-    BANDS,
     MIN_PIXELS,
     _twin_fix,
-    _twin_layers,
     drawn_colors,
-    fill_gaps,
-    pooled_gap,
-    position_groups,
+    twin_gaps,
 )
 from compose.check.report import Change, RuleResult
 from compose.color.lab import srgb_to_lch
@@ -95,32 +91,27 @@ def _paper_step(ctx: CheckContext) -> tuple[str, Change] | None:
     return None
 
 
+def _lit_chroma(s, groups: np.ndarray, n_groups: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """(lit-end C*ab per position, weights) from drawn_chroma, or None."""
+    got = drawn_chroma(s, groups, n_groups)
+    return None if got is None else (got[0], got[2])
+
+
 def twin_chroma_map(ctx: CheckContext) -> list[RuleResult]:
     """Twin and base as drawn on the map at equal positions: weighted p90 |dC*ab| <=
     ``budget.ramp.map_chroma`` (default 3; our design target, no source)."""
     limit = float(limit_of(RULE, ctx.budgets)[0])
-    out = []
-    for r, (tspec, ts), (bspec, bs) in _twin_layers(ctx):
-        bands = min(BANDS, ctx.lut(r).n, ctx.lut(r.base).n)     # equal positions along the ramps
-        got_t = drawn_chroma(ts, position_groups(len(ts.value_color), ctx.lut(r).n, bands), bands)
-        got_b = drawn_chroma(bs, position_groups(len(bs.value_color), ctx.lut(r.base).n, bands),
-                             bands)
-        if got_t is None or got_b is None:
+    out: list[RuleResult] = []
+    for g in twin_gaps(ctx, RULE, limit, _lit_chroma):
+        if isinstance(g, RuleResult):
+            out.append(g)
             continue
-        (Ct, wt), (Cb, wb) = fill_gaps(got_t[0], got_t[2]), fill_gaps(got_b[0], got_b[2])
-        pooled = pooled_gap(Ct, Cb, wt, wb)
-        if pooled is None:
-            out.append(RuleResult(RULE, tspec.name, None, limit, True,
-                                  f'"{tspec.name}" and "{bspec.name}" share no drawn position; '
-                                  "not measured", ramp=r.name))
-            continue
-        value, i = pooled
+        r, tspec, bspec, value = g.ramp, g.twin, g.base, g.value
         passed = value <= limit
-        lo, hi = r.domain
-        v = lo + (i + 0.5) / bands * (hi - lo)
         msg = (f'|dC*ab| between "{tspec.name}" ({r.name}) and "{bspec.name}" ({r.base.name}) as '
-               f"drawn on the map, at each position's lit end: p90 over {bands} positions "
-               f"{value:.2f} (near {v:.3g}: C*ab {Ct[i]:.1f} vs {Cb[i]:.1f}); limit {limit:g}")
+               f"drawn on the map, at each position's lit end: p90 over {g.bands} positions "
+               f"{value:.2f} (near {g.near:.3g}: C*ab {g.a[g.i]:.1f} vs {g.b[g.i]:.1f}); "
+               f"limit {limit:g}")
         fix, change = "", None
         if not passed:
             own = _palette_chroma_gap(ctx, r, r.base)
