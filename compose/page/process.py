@@ -85,6 +85,25 @@ def _send_error(out, exc: BaseException) -> None:
         _send(out, ("error", None, traceback.format_exc()))
 
 
+def _end_child(job, kill: bool) -> None:
+    """Close ``job._inbox``, kill ``job.pid`` first when ``kill``, reap it; both set to None
+    (a second call does nothing)."""
+    if job._inbox is not None:
+        job._inbox.close()
+        job._inbox = None
+    if job.pid is not None:
+        if kill:
+            try:
+                os.kill(job.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+        try:
+            os.waitpid(job.pid, 0)
+        except ChildProcessError:
+            pass
+        job.pid = None
+
+
 class Forked:
     """``fn()`` run in a forked process (from a process with no other thread running);
     :meth:`result` returns what it returned (pickled back) or raises what it raised; :meth:`abort`
@@ -124,19 +143,7 @@ class Forked:
         return message[1]
 
     def abort(self) -> None:
-        if self._inbox is not None:
-            self._inbox.close()
-            self._inbox = None
-        if self.pid is not None:
-            try:
-                os.kill(self.pid, signal.SIGKILL)
-            except ProcessLookupError:
-                pass
-            try:
-                os.waitpid(self.pid, 0)
-            except ChildProcessError:
-                pass
-            self.pid = None
+        _end_child(self, kill=True)
 
 
 def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> None:
@@ -301,15 +308,7 @@ class PageJob:
         return dict(self._seconds, waited=self._waited)
 
     def _reap(self) -> None:
-        if self._inbox is not None:
-            self._inbox.close()
-            self._inbox = None
-        if self.pid is not None:
-            try:
-                os.waitpid(self.pid, 0)
-            except ChildProcessError:
-                pass
-            self.pid = None
+        _end_child(self, kill=False)
 
     def abort(self) -> None:
         """End a child still running (the render failed or was interrupted) and reap it."""
@@ -319,9 +318,4 @@ class PageJob:
             except OSError:
                 pass
             self._outbox = None
-        if self.pid is not None:
-            try:
-                os.kill(self.pid, signal.SIGKILL)
-            except ProcessLookupError:
-                pass
-        self._reap()
+        _end_child(self, kill=True)
