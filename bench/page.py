@@ -1,13 +1,16 @@
 """Time the demo as a command beside its parts: the whole ``compose render STYLE`` with all its
 default outputs, as a fresh process, and the stages of the same render run in this process.
 
-    python bench/page.py [STYLE] [--runs N] [--no-command]
+    python bench/page.py [STYLE] [--runs N] [--no-command] [--timeline]
 
 Prints the median over N runs of: the command's wall-clock time (a new process each run, as a user
 starts it: interpreter start, imports, the render, every default output); the load average of the
 machine before the runs; then, from N renders in this process with every default output, each
 stage's seconds (prepare, compute, encoding, each page writer, check, legend, HTML page, total)
 with each page writer's share of the walk's compute time. Never asserted in tests.
+
+``--timeline``: one more command run recording its stages (:mod:`compose.timeline`), printed
+per process and thread on one clock from the command's launch: what ran where and what waited.
 """
 from __future__ import annotations
 
@@ -40,12 +43,41 @@ def command_seconds(style: str, runs: int) -> list[float]:
     return out
 
 
+def timeline(style: str) -> None:
+    """Run the command once recording its stages and print them, by start, from its launch."""
+    from compose.timeline import read
+
+    exe = Path(sys.executable).with_name("compose")
+    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose.cli.main"]
+    with tempfile.TemporaryDirectory() as tmp:
+        log = Path(tmp) / "timeline.txt"
+        env = dict(os.environ, COMPOSE_TIMELINE=str(log))
+        t0 = time.time()
+        subprocess.run(cmd + ["render", style, "--out", str(Path(tmp) / "out")],
+                       capture_output=True, text=True, env=env)
+        end = time.time() - t0
+        rows = read(str(log))
+    first = {}
+    for pid, *_ in rows:
+        first.setdefault(pid, len(first))
+    print(f"  timeline (s from launch; process 0 is the command, the others forked from it), "
+          f"exit at {end:.2f} s:")
+    for pid, thread, start, stop, label in rows:
+        who = f"p{first[pid]}" + ("" if thread == "MainThread" else f" {thread}")
+        print(f"  {start - t0:6.2f} {stop - t0:6.2f} {stop - start:6.2f}  {who:<10} {label}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("style", nargs="?", default=str(Path(__file__).parents[1] / "styles/coast.toml"))
     ap.add_argument("--runs", type=int, default=3)
     ap.add_argument("--no-command", action="store_true", help="only the in-process stages")
+    ap.add_argument("--timeline", action="store_true",
+                    help="only one command run, its stages on one clock")
     args = ap.parse_args()
+    if args.timeline:
+        timeline(args.style)
+        return
     load = os.getloadavg()[0]
     whole = None if args.no_command else command_seconds(args.style, args.runs)
     style = load_style(args.style)

@@ -31,6 +31,7 @@ from compose.previews import LayerPreviews, PreviewTiles, block_sums, paint_sums
 from compose.sources.blocks import planned
 from compose.sources.guard import as_source_error
 from compose.style.kinds import layer_class
+from compose.timeline import span
 
 __all__ = ["Sink", "Prepared", "WindowResult", "WindowTask", "prepare", "run", "render_window", "ArraySink",
            "preview_canvas", "render_array", "WINDOW"]
@@ -125,7 +126,8 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     canvas = canvas if canvas is not None else style.canvas()
     if ramps is None:   # only the ramps the enabled layers draw (and their twin groups)
         used = {getattr(spec.options, "ramp", None) for spec in style.layers if spec.enabled}
-        ramps = build_ramps(style.ramps, only={u for u in used if isinstance(u, str)})
+        with span("prepare ramps"):
+            ramps = build_ramps(style.ramps, only={u for u in used if isinstance(u, str)})
     ctx = Context(canvas=canvas, ramps=ramps, style=style, draft=draft, blocked=tuple(blocked))
     stack = contextlib.ExitStack()
     specs = [spec for spec in style.layers if spec.enabled]
@@ -145,7 +147,8 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
                                     for c0, r0, c1, r1 in keep_clear(style, ramps, [
                                         la if la is not None else SimpleNamespace(spec=sp)
                                         for la, sp in zip(layers, specs)]))
-            layer = layer_class(spec.kind)(spec, ctx)
+            with span(f"prepare {spec.kind} {spec.name}"):
+                layer = layer_class(spec.kind)(spec, ctx)
             stack.callback(layer.close)
             layers[i] = layer
     except BaseException:

@@ -25,6 +25,7 @@ from compose.output.background import BackgroundSink
 from compose.output.geotiff import GeoTiffWriter
 from compose.output.png import PngWriter
 from compose.output.transaction import OutputSet
+from compose.timeline import span
 
 __all__ = ["RenderResult", "render_style", "output_paths", "nodata_seen", "CAUTION"]
 
@@ -153,7 +154,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
 
     outputs = OutputSet(paths, overwrite=overwrite, name=style.name)   # lock, leftovers, existing
     try:
-        prepared = prepare(style, ramps=ramps, keep_clear=blocked_for)
+        with span("prepare"):
+            prepared = prepare(style, ramps=ramps, keep_clear=blocked_for)
     except BaseException:
         outputs.close()
         raise
@@ -215,19 +217,21 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     page_map.copy = page_sink.image     # the page keeps the whole map already
                 else:
                     sinks.append(page_map)
-            stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
-                        previews=layer_previews, mapper=mapper, window=window or WINDOW)
+            with span("walk"):
+                stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
+                            previews=layer_previews, mapper=mapper, window=window or WINDOW)
             if page_job is not None:         # the page process draws from here on
                 page_job.start(nodata_seen(stats))
             t = time.perf_counter()
-            png_bg.finish()
-            tif_bg.finish()
-            t_close = time.perf_counter()
-            png.writer.close()
-            tif.writer.close()
-            closing = time.perf_counter() - t_close
-            if proof_sink is not None:
-                proof_sink.close()
+            with span("finish encode"):
+                png_bg.finish()
+                tif_bg.finish()
+                t_close = time.perf_counter()
+                png.writer.close()
+                tif.writer.close()
+                closing = time.perf_counter() - t_close
+                if proof_sink is not None:
+                    proof_sink.close()
             seconds["finish-encode"] = time.perf_counter() - t
             # how much of the PNG and GeoTIFF encoding ran beside the compute: the encoders'
             # own work against what the render waited for (blocked hand-overs, the end)
@@ -255,10 +259,12 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 from compose.check import check_style
 
                 t = time.perf_counter()
-                report = check_style(style, stats, prepared.ramps)
+                with span("check"):
+                    report = check_style(style, stats, prepared.ramps)
                 seconds["check"] = time.perf_counter() - t
             if page_job is not None:
-                layout = page_job.layout()      # the page is written here when not forked
+                with span("wait page layout"):
+                    layout = page_job.layout()      # the page is written here when not forked
             if report is not None:
                 t = time.perf_counter()
                 if layout is not None and page_sink is not None:
@@ -271,7 +277,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 seconds["check"] += time.perf_counter() - t
             if (legend or html) and forked and page_job is not None:
                 t = time.perf_counter()
-                legend_png = page_job.legend()          # drawn by the page process
+                with span("wait legend"):
+                    legend_png = page_job.legend()          # drawn by the page process
                 if legend_png is None:
                     legend_png = _legend_png(style, prepared, nodata_seen(stats))
                 if legend:
@@ -288,19 +295,24 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
 
                 t = time.perf_counter()
                 names = [layer.spec.name for layer in prepared.layers]
-                copy = page_map.image()
-                small = box_reduce(copy, PROOF_WIDTH)
-                result.pictures = PagePictures(
-                    map=copy, legend=legend_png, proofs={k: proof_image(small, k) for k in PROOFS},
-                    small=small,
-                    layers=tuple((n, a, s) for n, (a, s) in zip(names, layer_previews.images())))
+                with span("html pictures"):
+                    copy = page_map.image()
+                    small = box_reduce(copy, PROOF_WIDTH)
+                    result.pictures = PagePictures(
+                        map=copy, legend=legend_png,
+                        proofs={k: proof_image(small, k) for k in PROOFS}, small=small,
+                        layers=tuple((n, a, s) for n, (a, s) in zip(names,
+                                                                    layer_previews.images())))
                 seconds["total"] = t - t0
-                tmp["html"].write_text(page_html(style, result), encoding="utf-8")
+                with span("html"):
+                    tmp["html"].write_text(page_html(style, result), encoding="utf-8")
                 seconds["html"] = time.perf_counter() - t
             if page_job is not None:
-                page_seconds = page_job.wait()
+                with span("wait page"):
+                    page_seconds = page_job.wait()
                 seconds.update({f"page {k}": v for k, v in page_seconds.items()})
-        outputs.commit()                # every file renamed into place together
+        with span("commit"):
+            outputs.commit()                # every file renamed into place together
         seconds["total"] = time.perf_counter() - t0
         result.seconds = dict(seconds)
         return result

@@ -132,15 +132,19 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
                 workers: int | None, cluster: str | None, cog: bool = False, check: bool = True,
                 strict: bool = False) -> bool:
     """Render one style (or its series); False when its check failed."""
-    from compose.errors import StyleError
-    from compose.parallel import mapper_for
-    from compose.render import render_style
-    from compose.style import load_style
+    from compose.timeline import span
+
+    with span("import render"):
+        from compose.errors import StyleError
+        from compose.parallel import mapper_for
+        from compose.render import render_style
+        from compose.style import load_style
 
     if series:
         passed = _render_series(path, out_dir, overwrite, overrides, workers)
         return passed or not check
-    loaded = load_style(path, overrides=overrides)
+    with span("load style"):
+        loaded = load_style(path, overrides=overrides)
     if loaded.series:
         raise StyleError(f"{path}: the style declares a series of {len(loaded.series)} members; "
                          "render it with --series")
@@ -155,7 +159,8 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
     # notes only after the render succeeded: a failing run prints its one error line alone
     for note in notes:
         click.echo(f"note: {note}", err=True)
-    print_summary(result, strict)
+    with span("summary"):
+        print_summary(result, strict)
     return not check or result.report is None or result.report.passed_strict(strict)
 
 

@@ -31,6 +31,8 @@ from typing import Any
 
 import numpy as np
 
+from compose.timeline import span
+
 __all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
 
 
@@ -154,16 +156,19 @@ def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> 
         signal.signal(signal.SIGTERM, signal.SIG_DFL)     # parent cleans up the temporaries
         _die_with_parent(parent)
         if warm is not None:
-            warm()
+            with span("page imports"):
+                warm()
         started = None
         if ahead is not None:                  # while the parent walks the windows
             try:
-                started = ahead()
+                with span("page ahead"):
+                    started = ahead()
             except Exception:                  # the writer builds it again and reports
                 started = None
         with os.fdopen(inbox, "rb") as inp, os.fdopen(outbox, "wb") as out:
             try:
-                nodata = pickle.load(inp)
+                with span("page waits for walk"):
+                    nodata = pickle.load(inp)
             except EOFError:                              # the render ended without a page
                 os._exit(0)
             try:
@@ -175,7 +180,8 @@ def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> 
                     # after the layout was sent: it writes to the parent while this one writes
                     # the PDF and SVG and sends nothing until that process is done)
                     if legend is not None:
-                        _send(out, ("legend", legend(nodata)))
+                        with span("legend png"):
+                            _send(out, ("legend", legend(nodata)))
 
                 seconds, _ = write(nodata, on_layout, started, with_png)
                 _send(out, ("done", seconds))

@@ -178,9 +178,11 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     from matplotlib import rc_context
 
     from compose.page.draw import finish_page_figure, finishes, start_page_figure
+    from compose.timeline import span
 
-    legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
-    layout = _layout(style, legend)
+    with span("page legend fit"):
+        legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
+        layout = _layout(style, legend)
     if on_layout is not None:
         on_layout(layout)
     seconds = {}
@@ -194,9 +196,10 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     outer = {k: rcParams[k] for k in rc}        # the settings outside the page writers
     with rc_context(rc), fast_png():
         t = time.perf_counter()
-        fig = (ahead if ahead is not None and finishes(ahead, layout)
-               else start_page_figure(style, layout, layers=vectors))
-        finish_page_figure(fig, style, layout, sink.base, legend_layout=legend)
+        with span("page figure"):
+            fig = (ahead if ahead is not None and finishes(ahead, layout)
+                   else start_page_figure(style, layout, layers=vectors))
+            finish_page_figure(fig, style, layout, sink.base, legend_layout=legend)
         built = time.perf_counter() - t
 
         def png() -> float:
@@ -204,8 +207,9 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                 with rc_context(outer):
                     with_png()
             t = time.perf_counter()
-            write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi,
-                           fig=fig)
+            with span("page png"):
+                write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi,
+                               fig=fig)
             return time.perf_counter() - t
 
         beside = None
@@ -215,15 +219,18 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
             beside = Forked(png)
         try:
             t = time.perf_counter()
-            fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
-                        metadata={"Title": meta_title, "Subject": style.page.caution,
-                                  "Creator": "compose"})
+            with span("page pdf"):
+                fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
+                            metadata={"Title": meta_title, "Subject": style.page.caution,
+                                      "Creator": "compose"})
             seconds["pdf"] = built + time.perf_counter() - t
             t = time.perf_counter()
-            fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
-                        metadata={"Title": meta_title, "Description": style.page.caution})
+            with span("page svg"):
+                fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
+                            metadata={"Title": meta_title, "Description": style.page.caution})
             seconds["svg"] = time.perf_counter() - t
-            seconds["page.png"] = beside.result() if beside is not None else png()
+            with span("page waits for png"):
+                seconds["page.png"] = beside.result() if beside is not None else png()
         finally:
             if beside is not None:
                 beside.abort()

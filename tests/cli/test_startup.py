@@ -12,3 +12,20 @@ def test_help_imports_no_heavy_library():
             f"print('HEAVY:' + ','.join(m for m in {HEAVY!r} if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip().splitlines()[-1] == "HEAVY:"
+
+
+def _command(*args: str, before: str = "") -> subprocess.CompletedProcess:
+    code = f"import sys\n{before}\nfrom compose.cli.main import main\nsys.argv[1:] = {list(args)!r}\nmain()\n"
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+
+
+def test_the_command_ends_its_process_with_the_exit_code_and_flushed_output():
+    # main() without argv ends the process itself (no interpreter teardown): the status is the
+    # command's, what it printed into a pipe arrives, and atexit functions still run
+    done = _command("--version", before="import atexit\natexit.register(print, 'atexit ran')")
+    assert done.returncode == 0
+    assert done.stdout.splitlines() == [done.stdout.splitlines()[0], "atexit ran"]
+    assert done.stdout.startswith("compose ")
+    missing = _command("check", "no-such-style.toml")
+    assert missing.returncode == 2 and "no-such-style.toml" in missing.stderr
+    assert _command("no-such-command").returncode == 2
