@@ -79,7 +79,9 @@ def quiet_numbers(ctx: CheckContext, s, rgb8: np.ndarray) -> QuietNumbers | None
 
 def solve_quiet_nodata(ctx: CheckContext, ramp, rgb8, q: QuietNumbers) -> np.ndarray | None:
     """The no-data colour nearest the paper in L* that is neutral, >= the separation from the
-    paper and every ramp colour, and drawn no louder than the data (``q``); None if none."""
+    paper and every ramp colour, and drawn no louder than the data (``q``). When none lies within
+    twice the separation of the paper's L*, the paper colour itself if it is far enough from the
+    ramp (rather than a mid grey); None if nothing works."""
     nb = ctx.budgets.nodata
     _, C, h = srgb_to_lch(np.asarray(rgb8, dtype=float) / 255.0)
     c = min(float(C), max(0.0, float(nb.chroma) - 0.5))
@@ -92,8 +94,18 @@ def solve_quiet_nodata(ctx: CheckContext, ramp, rgb8, q: QuietNumbers) -> np.nda
     d_bg = delta_e_2000(lab, srgb_to_lab(np.asarray(ctx.background, dtype=float)))
     drawn_L = lightness_of_y(np.clip(luminance8(cand) * q.y_ratio, 0.0, 1.0))
     sep = float(nb.separation)
-    good = ((d_ramp >= sep) & (d_bg >= sep) & (srgb_to_lch(cand / 255.0)[:, 1] <= float(nb.chroma))
-            & (np.abs(drawn_L - q.paper_L) <= q.data_contrast - 1.0))
+    quiet = ((d_ramp >= sep) & (srgb_to_lch(cand / 255.0)[:, 1] <= float(nb.chroma))
+             & (np.abs(drawn_L - q.paper_L) <= q.data_contrast - 1.0))
+    good = quiet & (d_bg >= sep)
+    near = np.abs(order - q.paper_L) <= 2.0 * sep
+    if (good & near).any():              # a light neutral near the paper
+        return cand[int(np.argmax(good & near))]
+    # farther from the paper a neutral turns into a grey mass: the paper itself (no-data reads
+    # as blank map, the nodata-background rule's other choice) is quieter, if it keeps clear of
+    # the ramp (our design choice, no source)
+    paper = quiet & (d_bg < 0.5)
+    if paper.any():
+        return cand[int(np.argmax(paper))]
     if not good.any():
         return None
     return cand[int(np.argmax(good))]

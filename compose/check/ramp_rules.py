@@ -18,7 +18,6 @@ from compose.check.nodata_quiet import quiet_numbers, solve_quiet_nodata
 from compose.check.report import WARNING, Change, RuleResult
 from compose.check.stats import N_LIGHTNESS
 from compose.color.difference import delta_e_2000
-from compose.color.gamut import max_chroma
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 from compose.color.parse import to_rgb8
 
@@ -269,7 +268,8 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
                 relief = next((g for g, _ in ctx.layers("ground", ("relief",))), None)
                 if not _metrics(ctx, ramp).lightness_monotone:
                     # no relief setting can order a ramp whose own lightness turns back
-                    text, change = _shape_change("ramp-lightness-monotone", ramp)
+                    text, change = _shape_change("ramp-lightness-monotone", ramp,
+                                                 float(ctx.budgets.ramp.evenness))
                     fix = (f'ramp "{ramp.name}" itself does not order its values by lightness; '
                            + text) if change is not None else fix
                 elif relief is not None:
@@ -299,35 +299,34 @@ def _from_checks(ctx: CheckContext, rule: str, source: str, severity: str = "fai
                 continue
             met = bool(c.passed)
             passed = met or severity == WARNING
-            fix, change = ("", None) if met else _shape_change(rule, r)
+            fix, change = ("", None) if met else _shape_change(
+                rule, r, float(ctx.budgets.ramp.evenness) if ctx.budgets is not None else 10.0)
             out.append(_result(ctx, rule, r, c.value, c.limit, passed, c.message,
                                fix or ("" if met else _shape_fix(rule, r)), severity=severity,
                                met=met, change=change))
     return out
 
 
-def _shape_change(rule: str, ramp) -> tuple[str, Change | None]:
+def _shape_change(rule: str, ramp, limit: float = 10.0) -> tuple[str, Change | None]:
     """A structured change for the shape rules of a sequential ramp written with ``through``
     stops: lightness re-spaced evenly from the lightest to the darkest stop (in the direction the
-    ramp runs), hues made to turn the short way in equal steps, each stop's chroma kept."""
+    ramp runs), each stop's own hue kept, its chroma kept -- or, when the stops' hues turn back
+    so that evenness (``limit``, CV %) still fails, lowered by one common factor
+    (:func:`compose.ramps.respace.respace_stops`)."""
     if rule not in ("ramp-lightness-monotone", "ramp-step-uniformity") or ramp.kind != "sequential":
         return "", None
-    stops = np.asarray(ramp.stops, dtype=float)
-    if len(stops) < 2:
+    if len(ramp.stops) < 2:
         return "", None
-    L = stops[:, 0]
-    falling = L[-1] < L[0]
-    hi, lo = float(L.max()), float(L.min())
-    newL = np.linspace(hi, lo, len(L)) if falling else np.linspace(lo, hi, len(L))
-    h0, h1 = stops[0, 2], stops[-1, 2]
-    turn = (h1 - h0 + 180.0) % 360.0 - 180.0
-    newh = (h0 + np.linspace(0.0, turn, len(L))) % 360.0
-    C = stops[:, 1]
-    through = [{"L": round(float(a), 1), "C": round(float(min(c, float(max_chroma(a, b)) - 0.5)), 1),
-                "h": round(float(b), 1)} for a, c, b in zip(newL, C, newh, strict=True)]
+    from compose.ramps.respace import respace_stops
+    got = respace_stops(ramp.stops, ramp.space, ramp.domain, limit)
+    through = [{"L": L, "C": C, "h": h} for L, C, h in got.stops]
     listed = ", ".join(f"{{L = {t['L']:g}, C = {t['C']:g}, h = {t['h']:g}}}" for t in through)
-    text = (f'respace ramp "{ramp.name}": L* {"falling" if falling else "rising"} evenly '
-            f"{newL[0]:.0f} -> {newL[-1]:.0f}, hue turning {turn:+.0f} deg in equal steps: "
+    first, last = got.stops[0][0], got.stops[-1][0]
+    chroma = ("each stop's chroma kept" if got.chroma_factor >= 1.0 else
+              f"chroma lowered to {got.chroma_factor:.0%} of each stop's, as the hues turn back "
+              "and stronger colours would make far values look alike")
+    text = (f'respace ramp "{ramp.name}": L* {"falling" if got.falling else "rising"} evenly '
+            f"{first:.0f} -> {last:.0f}, each stop's own hue kept, {chroma}: "
             f"through = [{listed}]")
     return text, Change(ramp_key(ramp.name), {"through": through})
 

@@ -65,3 +65,27 @@ def test_the_other_nodata_fixes_propose_the_quiet_color_on_a_large_area(data, tm
     fixed = check(tmp_path, apply_change(doc, chroma.change), "green-fixed")
     assert all(one(fixed, r).passed for r in ("nodata-quiet", "nodata-chroma",
                                               "nodata-separation", "nodata-background"))
+
+
+def test_a_muted_ramp_leaves_no_light_neutral_and_the_fix_is_the_paper_not_a_mid_gray(data,
+                                                                                        tmp_path):
+    # a muted ramp from a pale cream (L* 85, C* 10) down to a dark slate: every neutral from
+    # L* 35 to about 90 lies within 10 dE00 (Brychtova & Coltekin 2016) of one of its colours,
+    # so the nearest "quiet" neutral was a mid grey mass (L* ~60); the paper itself keeps clear
+    muted = {"kind": "sequential", "domain": [0, 10],
+             "through": [{"L": 85, "C": 10.3, "h": 95}, {"L": 72.5, "C": 15.5, "h": 140},
+                         {"L": 60, "C": 18.9, "h": 60}, {"L": 47.5, "C": 15.5, "h": 20},
+                         {"L": 35, "C": 12, "h": 300}]}
+    doc = style([relief(data["flat"]), field(data["west"], nodata="#437a3a", ramp="muted")],
+                {"muted": muted}, map_=base_map(background=PAPER))
+    bad = one(check(tmp_path, doc, "muted"), "nodata-quiet")
+    assert not bad.passed
+    assert bad.change.values["nodata"] == PAPER, bad.fix
+    fixed = check(tmp_path, apply_change(doc, bad.change), "muted-fixed")
+    for rule in ("nodata-quiet", "nodata-chroma", "nodata-separation", "nodata-background"):
+        assert one(fixed, rule).passed, one(fixed, rule).message
+    # the paper's own colour, by CIEDE2000 as colour-science computes it (CIE 15:2004)
+    import colour
+    lab = colour.XYZ_to_Lab(colour.sRGB_to_XYZ(np.asarray(parse_color(bad.change.values["nodata"]))))
+    assert colour.delta_E(lab, colour.XYZ_to_Lab(colour.sRGB_to_XYZ(np.ones(3))),
+                          method="CIE 2000") < 0.5
