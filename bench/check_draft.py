@@ -1,6 +1,9 @@
 """Time the full check against the draft check (``compose check --draft``): in one process and
 as commands (a fresh process each, what a user or CI runs), on the example styles and on a big
-canvas (the synthetic benchmark style of bench/render.py, 8192 x 8192 by default).
+canvas (the synthetic benchmark style of bench/render.py, 8192 x 8192 by default); each cold
+(``--no-cache``: every source read, every layer drawn) and warm (the cache of prepared inputs
+filled by an earlier run of the same style, as after a change of colours only; see
+compose.check_cache).
 
     .venv/bin/python bench/check_draft.py [--runs 3] [--styles coast,poor] [--big 8192]
                                           [--no-commands] [--no-inprocess]
@@ -14,6 +17,7 @@ the demo needs, which no draft can shrink.
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import resource
 import statistics
@@ -25,7 +29,7 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 STYLES = ROOT / "styles"
-EXAMPLES = ("coast", "sea-warmth", "change", "cover", "poor")
+EXAMPLES = ("coast", "sea-warmth", "change", "cover", "base", "poor")
 COMPOSE = [sys.executable, "-c", "import sys; from compose.cli.main import main; sys.exit(main())"]
 # what a check of the demo imports besides compose itself (labels need matplotlib's text paths)
 LIBRARIES = ("numpy", "rasterio", "pyogrio", "shapely", "pyproj", "colorspacious",
@@ -49,39 +53,50 @@ def medians(pairs: list[tuple[float, float, int]]) -> tuple[float, float, int]:
 
 
 def commands(styles: list[Path], runs: int) -> None:
-    print(f"\n== as commands (fresh process each; medians of {runs}, alternating) ==")
+    print(f"\n== as commands (fresh process each; medians of {runs}, alternating; cold: --no-cache,"
+          " warm: a cache filled by a run before) ==")
     floor = medians([run_command(COMPOSE + ["check", "no-such-style.toml"]) for _ in range(runs)])
     libs = medians([run_command([sys.executable, "-c", "import " + ", ".join(LIBRARIES)])
                     for _ in range(runs)])
     bare = medians([run_command([sys.executable, "-c", "pass"]) for _ in range(runs)])
+    numpy = medians([run_command([sys.executable, "-c", "import numpy"]) for _ in range(runs)])
     print(f"python start-up            {bare[0]:6.2f} s")
+    print(f"python + import numpy      {numpy[0]:6.2f} s")
     print(f"compose check, no style    {floor[0]:6.2f} s  (exit {floor[2]}: start-up and imports "
           "before the style is read)")
     print(f"import the libraries only  {libs[0]:6.2f} s  ({', '.join(LIBRARIES)})")
+    cache = tempfile.mkdtemp(prefix="compose-bench-cache-")
     for style in styles:
-        full, draft = [], []
-        for _ in range(runs):
-            full.append(run_command(COMPOSE + ["check", str(style)]))
-            draft.append(run_command(COMPOSE + ["check", "--draft", str(style)]))
-        f, d = medians(full), medians(draft)
-        print(f"{style.stem:<11} full {f[0]:6.2f} s (cpu {f[1]:5.2f})   draft {d[0]:6.2f} s "
-              f"(cpu {d[1]:5.2f})   x{f[0] / d[0]:5.1f}   exit {f[2]}/{d[2]}   (bound "
-              f"x{f[0] / libs[0]:.1f})" + ("  target full <= 1 s" if style.stem == "coast" else ""))
-    print("(bound: the full command over the library imports alone -- the ratio a draft whose "
-          "own work took no time would reach)")
+        command_rows(style.stem, style, runs, cache, ROOT)
+        if style.stem == "coast":
+            print("            (targets: coast full check <= 1 s; draft 10 x faster than full)")
+    print("(a cold check imports the libraries above; a warm one opens no source and draws "
+          "nothing, so its floor is the start-up with numpy)")
 
 
-def timed_check(style, canvas, draft: bool):
-    from compose.check import check_style
-    from compose.engine import prepare, run
-    from compose.page.write import blocked_for
+def command_rows(name: str, style: Path, runs: int, cache: str, cwd: Path) -> None:
+    """Full and draft as commands, cold (--no-cache) and warm (a cache filled before)."""
+    got: dict[str, list] = {k: [] for k in ("full cold", "draft cold", "full warm", "draft warm")}
+    for flags in ([], ["--draft"]):      # fill the cache
+        run_command(COMPOSE + ["check", "--cache-dir", cache, *flags, str(style)], cwd=cwd)
+    for _ in range(runs):
+        for key in got:
+            flags = (["--draft"] if key.startswith("draft") else []) + (
+                ["--no-cache"] if key.endswith("cold") else ["--cache-dir", cache])
+            got[key].append(run_command(COMPOSE + ["check", *flags, str(style)], cwd=cwd))
+    m = {k: medians(v) for k, v in got.items()}
+    fc, dc, fw, dw = (m[k][0] for k in got)
+    print(f"{name:<11} cold: full {fc:6.2f} s  draft {dc:6.2f} s  x{fc / dc:5.1f}   "
+          f"warm: full {fw:6.2f} s  draft {dw:6.2f} s  x{fw / dw:5.1f}   "
+          f"full cold / draft warm x{fc / dw:5.1f}   exit {m['full cold'][2]}/{m['draft cold'][2]}")
+
+
+def timed_check(style, canvas, draft: bool, cache=False):
+    """(seconds, report) of one check in this process (``cache``: False, or a folder)."""
+    from compose.api import check
 
     t = time.perf_counter()
-    prepared = prepare(style, canvas=canvas, keep_clear=blocked_for, draft=draft)
-    try:
-        report = check_style(style, run(prepared, []), prepared.ramps)
-    finally:
-        prepared.close()
+    report = check(style, draft=draft and canvas is not style.canvas(), cache=cache)
     return time.perf_counter() - t, report
 
 
@@ -96,27 +111,41 @@ def in_process(styles: list[Path], runs: int) -> None:
     from compose.check.draft import draft_canvas
     from compose.style import load_style
 
-    print(f"\n== in one process (imports excluded; medians of {runs}, alternating) ==")
-    ratios = []
+    print(f"\n== in one process (imports excluded; medians of {runs}, alternating; cold: no cache, "
+          "warm: its entries filled by a run before) ==")
+    ratios: dict[str, list[float]] = {"cold": [], "warm": []}
+    cache = tempfile.mkdtemp(prefix="compose-bench-cache-")
     for path in styles:
         style = load_style(path)
         full = style.canvas()
         draft = draft_canvas(full)
         timed_check(style, draft, True)                  # first opens and imports out of it
-        tf, td = [], []
+        timed_check(style, draft, True, cache)           # fill the cache
+        timed_check(style, full, False, cache)
+        t: dict[str, list[float]] = {k: [] for k in ("fc", "dc", "fw", "dw")}
         for _ in range(runs):
-            t, rf = timed_check(style, full, False)
-            tf.append(t)
-            t, rd = timed_check(style, draft, draft is not full)
-            td.append(t)
-        mf, md = statistics.median(tf), statistics.median(td)
-        ratios.append(mf / md)
-        print(f"{path.stem:<11} full {full.width}x{full.height} {mf:6.3f} s   draft {draft.width}x"
-              f"{draft.height} {md:6.3f} s   x{mf / md:5.1f}   verdict "
+            dt, rf = timed_check(style, full, False)
+            t["fc"].append(dt)
+            dt, rd = timed_check(style, draft, True)
+            t["dc"].append(dt)
+            dt, rfw = timed_check(style, full, False, cache)
+            t["fw"].append(dt)
+            dt, rdw = timed_check(style, draft, True, cache)
+            t["dw"].append(dt)
+        fc, dc, fw, dw = (statistics.median(v) for v in t.values())
+        ratios["cold"].append(fc / dc)
+        ratios["warm"].append(fc / dw)
+        same = (json.dumps(rf.to_json(False)) == json.dumps(rfw.to_json(False))
+                and json.dumps(rd.to_json(False)) == json.dumps(rdw.to_json(False)))
+        print(f"{path.stem:<11} {full.width}x{full.height} / {draft.width}x{draft.height}   "
+              f"cold: full {fc:6.3f} s  draft {dc:6.3f} s  x{fc / dc:5.1f}   warm: full {fw:6.3f} s"
+              f"  draft {dw:6.3f} s   full cold / draft warm x{fc / dw:5.1f}   verdict "
               f"{'agrees rule by rule' if agree(rf, rd) else 'DIFFERS'} "
-              f"({'pass' if rf.passed else 'fail'}, {len(rf.rules)} results)")
-    if len(ratios) > 1:
-        print(f"median ratio x{statistics.median(ratios):.1f}")
+              f"({'pass' if rf.passed else 'fail'}, {len(rf.rules)} results); warm reports "
+              f"{'identical' if same else 'DIFFER'}")
+    if len(styles) > 1:
+        print(f"median ratio full cold / draft cold x{statistics.median(ratios['cold']):.1f}, "
+              f"full cold / draft warm x{statistics.median(ratios['warm']):.1f}")
 
 
 def big_style(size: int) -> Path:
@@ -135,13 +164,9 @@ def big(size: int, runs: int, as_commands: bool, inprocess: bool) -> None:
     style = big_style(size)
     print(f"\n== big canvas: {style} ({size} x {size}, relief + field + 10,000 lines) ==")
     if as_commands:
-        full, draft = [], []
-        for _ in range(runs):
-            full.append(run_command(COMPOSE + ["check", str(style)], cwd=style.parent))
-            draft.append(run_command(COMPOSE + ["check", "--draft", str(style)], cwd=style.parent))
-        f, d = medians(full), medians(draft)
-        print(f"commands    full {f[0]:6.2f} s (cpu {f[1]:5.2f})   draft {d[0]:6.2f} s "
-              f"(cpu {d[1]:5.2f})   x{f[0] / d[0]:5.1f}   exit {f[2]}/{d[2]}  (target x10)")
+        command_rows("commands", style, runs, tempfile.mkdtemp(prefix="compose-bench-cache-"),
+                     style.parent)
+        print("            (target: draft 10 x faster than full)")
     if inprocess:
         os.chdir(style.parent)
         in_process([style], runs)

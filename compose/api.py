@@ -74,27 +74,54 @@ def render(style: Style | str | Path, out_dir: str | Path, *, overwrite: bool = 
 
 
 def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | None = None,
-          mapper: Callable | None = None, draft: bool = False) -> CheckReport:
+          mapper: Callable | None = None, draft: bool = False,
+          cache: bool | str | Path | None = None) -> CheckReport:
     """Render ``style`` (a :class:`Style` or a path) in memory and check its visual hierarchy;
     nothing is written. ``report.passed`` is False when any failure-severity rule failed.
     ``draft``: check a reduced canvas of the same extent and dpi (:mod:`compose.check.draft`);
-    ``report.draft`` then says what size was checked."""
+    ``report.draft`` then says what size was checked. ``cache``: the cache of prepared inputs
+    (:mod:`compose.check_cache`): None or True its default directory, a path another one,
+    False none (nor with a ``mapper``). A check that only changed colours reuses the layers'
+    coverage and indices; its report is the same as without the cache."""
     style = _style(style)     # a bad style fails before the engine's imports
     from compose.check.draft import describe_draft, draft_canvas
-    from compose.engine import prepare, run  # looked up per call (tests may replace them)
-    from compose.page.write import blocked_for
+    from compose.engine import WINDOW, prepare, run  # looked up per call (tests may replace them)
 
     full = style.canvas()
     canvas = draft_canvas(full) if draft else None
-    prepared = prepare(style, canvas=canvas, keep_clear=blocked_for,    # labels as in a render
-                       draft=canvas is not None and canvas is not full)
+    is_draft = canvas is not None and canvas is not full
+
+    def keep_clear(*args):      # labels as in a render (the page's furniture: matplotlib)
+        from compose.page.write import blocked_for
+        return blocked_for(*args)
+
+    store = _cache_of(style, canvas if canvas is not None else full, keep_clear, cache, mapper)
+    prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
+                       make_layer=None if store is None else store.layer)
+    if store is not None and not store.usable(prepared.margin, WINDOW):
+        prepared.close()            # entries of another walk (a layer's margin changed): rebuild
+        store = _cache_of(style, prepared.canvas, keep_clear, cache, mapper, read=False)
+        prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
+                           make_layer=None if store is None else store.layer)
     try:
-        stats = run(prepared, [], progress=progress, mapper=mapper)
+        stats = run(prepared, [], progress=progress, mapper=mapper, window=WINDOW)
+        if store is not None:
+            store.save(prepared.margin, WINDOW)
         return check_style(style, stats, prepared.ramps,
-                           draft=None if canvas is None or canvas is full
-                           else describe_draft(canvas, full))
+                           draft=describe_draft(prepared.canvas, full) if is_draft else None)
     finally:
         prepared.close()
+
+
+def _cache_of(style: Style, canvas, keep_clear, cache, mapper, read: bool = True):
+    """The check's :class:`compose.check_cache.CheckCache`, or None (switched off, or windows
+    run elsewhere by a ``mapper``)."""
+    if cache is False or mapper is not None:
+        return None
+    from compose.check_cache import CheckCache, cache_dir
+
+    root = cache_dir(None if cache is None or cache is True else cache)
+    return None if root is None else CheckCache(root, style, canvas, keep_clear, read=read)
 
 
 class _CheckPackage(types.ModuleType):

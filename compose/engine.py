@@ -107,7 +107,8 @@ def _scale_to(canvas: Canvas, full: Canvas) -> tuple[float, float] | None:
 
 def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
             keep_clear: Callable[..., Iterable[tuple[float, float, float, float]]] | None = None,
-            draft: bool = False, blocked: tuple = ()) -> Prepared:
+            draft: bool = False, blocked: tuple = (),
+            make_layer: Callable[..., Any] | None = None) -> Prepared:
     """Resolve the canvas, build ramps and open every enabled layer's sources.
 
     ``canvas`` overrides the style's own (e.g. a small preview of the same extent, see
@@ -118,7 +119,9 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     ``draft``: a reduced check's render (rasters read by GDAL's decimated reads, see
     :class:`compose.sources.raster.RasterSource`). ``blocked``: boxes already decided by another
     prepare of the same render (a worker process or cluster worker re-preparing it), used
-    instead of calling ``keep_clear``.
+    instead of calling ``keep_clear``. ``make_layer(spec, context, build)``: makes each layer
+    instead of ``build()`` (the layer kind's class; e.g. the check's cache of prepared inputs,
+    :class:`compose.check_cache.CheckCache`, which calls ``build`` on a miss).
     """
     from compose.ramps import build_ramps
 
@@ -135,20 +138,25 @@ def prepare(style, ramps: dict | None = None, canvas: Canvas | None = None,
     # labels go last: they keep clear of the page furniture inside the map frame, whose size
     # (the legend's) depends on the other layers
     order = sorted(range(len(specs)), key=lambda i: specs[i].kind == "labels")
+
+    def build(spec) -> Any:
+        scale = _scale_to(canvas, style.canvas()) if spec.kind == "labels" else None
+        if keep_clear is not None and not ctx.blocked and scale is not None:
+            # stand-ins (just the spec) for the layers not prepared yet; boxes of the full
+            # canvas, scaled to a coarser one of the same extent (the draft check)
+            sx, sy = scale
+            ctx.blocked = tuple((c0 * sx, r0 * sy, c1 * sx, r1 * sy)
+                                for c0, r0, c1, r1 in keep_clear(style, ramps, [
+                                    la if la is not None else SimpleNamespace(spec=sp)
+                                    for la, sp in zip(layers, specs)]))
+        return layer_class(spec.kind)(spec, ctx)
+
     try:
         for i in order:
             spec = specs[i]
-            scale = _scale_to(canvas, style.canvas()) if spec.kind == "labels" else None
-            if keep_clear is not None and not ctx.blocked and scale is not None:
-                # stand-ins (just the spec) for the layers not prepared yet; boxes of the full
-                # canvas, scaled to a coarser one of the same extent (the draft check)
-                sx, sy = scale
-                ctx.blocked = tuple((c0 * sx, r0 * sy, c1 * sx, r1 * sy)
-                                    for c0, r0, c1, r1 in keep_clear(style, ramps, [
-                                        la if la is not None else SimpleNamespace(spec=sp)
-                                        for la, sp in zip(layers, specs)]))
             with span(f"prepare {spec.kind} {spec.name}"):
-                layer = layer_class(spec.kind)(spec, ctx)
+                layer = (build(spec) if make_layer is None
+                         else make_layer(spec, ctx, lambda spec=spec: build(spec)))
             stack.callback(layer.close)
             layers[i] = layer
     except BaseException:

@@ -2,6 +2,7 @@
 (a reference library outside the project), never by the code under test."""
 from __future__ import annotations
 
+import os
 import warnings
 
 import numpy as np
@@ -81,3 +82,9 @@ def cam02ucs_reference(rgb) -> np.ndarray:
     spec = colour.XYZ_to_CIECAM02(xyz, white, 64 / np.pi / 5, 20.0, surround)
     jmh = np.stack([spec.J, spec.M, spec.h], axis=-1)
     return colour.JMh_CIECAM02_to_CAM02UCS(jmh)
+
+
+def pytest_configure(config):
+    """Checks in tests neither read nor write the user's cache of prepared inputs
+    (:mod:`compose.check.cache`); tests of the cache pass their own folder."""
+    os.environ["COMPOSE_CACHE"] = "off"

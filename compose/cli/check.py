@@ -73,17 +73,29 @@ def explain(rule: str) -> str:
               help="Check a reduced canvas of the same extent (longer side at most 384 px, same "
                    "dpi; rasters read decimated): much faster on large maps, the same verdict on "
                    "the example styles.")
+@click.option("--no-cache", is_flag=True,
+              help="Neither read nor write the cache of prepared inputs (see --cache-dir).")
+@click.option("--cache-dir", type=click.Path(path_type=Path), metavar="DIR",
+              help="Where the check keeps the layers' coverage and indices between runs, so a "
+                   "check after a change of colours only is fast (default: $COMPOSE_CACHE, else "
+                   "$XDG_CACHE_HOME/compose, else ~/.cache/compose).")
+@click.option("--clear-cache", is_flag=True,
+              help="Delete the cache's entries first (with no STYLE: only that).")
 @click.option("--rules", "list_rules", is_flag=True,
               help="List the rules: id, what each measures, its limit and budget key, its source.")
 @click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")
 @limit_options
 @handle_errors
-def command(style: Path | None, as_json: bool, strict: bool, draft: bool, list_rules: bool,
+def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cache: bool,
+            cache_dir: Path | None, clear_cache: bool, list_rules: bool,
             explain_rule: str | None) -> None:
     """Check the visual hierarchy of STYLE: budgets, contrast, ramps, classes, grey order.
 
     Exits 0 when every rule passes (warnings allowed unless --strict), 1 when any fails, 2 when
     the style is invalid. `compose check --rules` lists the rules; `--explain RULE` one of them.
+    The layers' coverage and indices are kept in a cache between runs (keyed by the sources'
+    size and modification time, the canvas and the style keys that change geometry, never by
+    colours): a check after changing only colours, opacity or blend skips reading and drawing.
     """
     from compose.api import check
     from compose.check import format_report
@@ -92,9 +104,17 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, list_r
     if list_rules or explain_rule:
         click.echo(rules_table() if list_rules else explain(str(explain_rule)))
         return
+    if clear_cache:
+        from compose import check_cache
+
+        removed = check_cache.clear_cache(check_cache.cache_dir(cache_dir))
+        if style is None:
+            click.echo(f"removed {removed} cache entries")
+            return
     if style is None:
         raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")
-    report = check(style, progress=progress_bar("checking"), draft=draft)
+    report = check(style, progress=progress_bar("checking"), draft=draft,
+                   cache=False if no_cache else cache_dir)
     if as_json:
         click.echo(json.dumps(report.to_json(strict), indent=2))
     else:

@@ -1,0 +1,172 @@
+"""The check's cache of prepared inputs (compose.check_cache): a warm check gives the same report
+as a cold one, reuses entries after a colour change, rebuilds after a change of a source or of a
+key that moves geometry, ignores a damaged entry, and loads no geodata or drawing library."""
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from compose import check_cache
+from compose.api import check
+from tests.check._maps import field, labels, lines, make_data, relief, style, write_style
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+@pytest.fixture(scope="module")
+def data(tmp_path_factory):
+    """name -> path of the checker tests' tiny GeoTIFFs / GeoPackages."""
+    return make_data(tmp_path_factory.mktemp("sources"))
+
+
+@pytest.fixture
+def stores(monkeypatch):
+    """Every CheckCache a check makes, to see its hits and misses."""
+    made = []
+    real = check_cache.CheckCache.__init__
+
+    def init(self, *a, **kw):
+        real(self, *a, **kw)
+        made.append(self)
+    monkeypatch.setattr(check_cache.CheckCache, "__init__", init)
+    return made
+
+
+def _doc(data, **over):
+    layers = [relief(data["hills"]), field(data["gradient"], nodata="transparent"),
+              lines(data["coast"], stroke="#203040", width=1.5, halo={"color": "#ffffff", "width": 3}),
+              labels(data["towns"], halo={"color": "#ffffff", "width": 1.5})]
+    for layer in layers:
+        layer.update(over.get(layer["name"], {}))
+    return style(layers)
+
+
+def _json(report) -> str:
+    return json.dumps(report.to_json(False), sort_keys=True)
+
+
+def _counts(store) -> tuple[int, int]:
+    return len(store.hits), len(store.recorders)
+
+
+def test_warm_report_is_the_cold_one(tmp_path, data, stores):
+    path = write_style(tmp_path, _doc(data))
+    plain = check(path, cache=False)
+    cold = check(path, cache=tmp_path / "cache")
+    warm = check(path, cache=tmp_path / "cache")
+    assert _counts(stores[0]) == (0, 4) and _counts(stores[1]) == (4, 0)
+    assert _json(plain) == _json(cold) == _json(warm)
+    draft_cold = check(path, cache=tmp_path / "cache", draft=True)
+    draft_warm = check(path, cache=tmp_path / "cache", draft=True)
+    assert _json(draft_cold) == _json(draft_warm)
+
+
+def test_the_demo_style_warm_is_the_cold_report(tmp_path, stores):
+    """The coast demo: every layer kind it draws (relief, two fields, lines, points, labels
+    along lines and at points) is cached and replayed to the same report, full and draft."""
+    for draft in (True, False):
+        cold = check(ROOT / "styles" / "coast.toml", cache=tmp_path, draft=draft)
+        warm = check(ROOT / "styles" / "coast.toml", cache=tmp_path, draft=draft)
+        assert _json(cold) == _json(warm)
+        assert stores[-1].recorders == [] and len(stores[-1].hits) == 10
+    assert _json(warm) == _json(check(ROOT / "styles" / "coast.toml", cache=False))
+
+
+def test_a_colour_change_reuses_every_entry(tmp_path, data, stores):
+    cache = tmp_path / "cache"
+    check(write_style(tmp_path, _doc(data)), cache=cache)
+    recoloured = _doc(data, coast={"stroke": "#a03020", "halo": {"color": "#f0f0e0", "width": 3},
+                                   "opacity": 0.8, "blend": "multiply"},
+                      relief={"strength": 0.4, "tint": {"L": 90, "C": 8, "h": 80}},
+                      towns={"color": "#552200"})
+    recoloured["ramp"]["land"]["through"][0] = {"L": 85, "C": 30, "h": 80}
+    path = write_style(tmp_path, recoloured, "recoloured")
+    warm = check(path, cache=cache)
+    assert _counts(stores[-1]) == (4, 0)
+    assert _json(warm) == _json(check(path, cache=False))
+
+
+def test_a_geometry_key_rebuilds_its_layer_only(tmp_path, data, stores):
+    cache = tmp_path / "cache"
+    check(write_style(tmp_path, _doc(data)), cache=cache)
+    path = write_style(tmp_path, _doc(data, coast={"width": 2.5}), "wider")
+    wider = check(path, cache=cache)
+    assert [r.spec.name for r in stores[-1].recorders] == ["coast"]
+    assert _json(wider) == _json(check(path, cache=False))
+    path = write_style(tmp_path, _doc(data, relief={"shade": {"exaggeration": 3}}), "steeper")
+    check(path, cache=cache)
+    assert [r.spec.name for r in stores[-1].recorders] == ["relief"]
+
+
+def test_a_changed_source_is_read_again(tmp_path, data, stores):
+    import shutil
+
+    import numpy as np
+    import rasterio
+
+    src = tmp_path / "field.tif"
+    shutil.copy(data["gradient"], src)
+    doc = style([field(src)])
+    path = write_style(tmp_path, doc)
+    before = check(path, cache=tmp_path / "cache")
+    with rasterio.open(src, "r+") as ds:
+        ds.write(ds.read(1) * np.float32(0.5), 1)      # half the values: a new histogram
+    os.utime(src, ns=(1, 1))                    # even with an older time: size + mtime differ
+    after = check(path, cache=tmp_path / "cache")
+    assert _counts(stores[-1]) == (0, 1)
+    assert _json(after) == _json(check(path, cache=False)) != _json(before)
+
+
+def test_a_damaged_entry_is_rebuilt(tmp_path, data, stores):
+    cache = tmp_path / "cache"
+    path = write_style(tmp_path, _doc(data))
+    cold = check(path, cache=cache)
+    entries = sorted((cache / "check").glob("*.entry"))
+    assert len(entries) == 4
+    entries[0].write_bytes(entries[0].read_bytes()[:200])          # cut short
+    entries[1].write_bytes(b"\0" * 64)                              # garbage
+    data_ = bytearray(entries[2].read_bytes())
+    data_[-20:] = b"x" * 20                                         # a broken deflate stream
+    entries[2].write_bytes(bytes(data_))
+    again = check(path, cache=cache)
+    assert _counts(stores[-1]) == (1, 3)
+    assert _json(again) == _json(cold)
+    assert _counts((check(path, cache=cache), stores[-1])[1]) == (4, 0)   # rewritten
+
+
+def test_cache_dir_and_clearing(tmp_path, monkeypatch):
+    monkeypatch.setenv("COMPOSE_CACHE", str(tmp_path / "mine"))
+    assert check_cache.cache_dir() == tmp_path / "mine"
+    assert check_cache.cache_dir(tmp_path / "opt") == tmp_path / "opt"
+    monkeypatch.setenv("COMPOSE_CACHE", "off")
+    assert check_cache.cache_dir() is None
+    monkeypatch.delenv("COMPOSE_CACHE")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert check_cache.cache_dir() == tmp_path / "xdg" / "compose"
+    (tmp_path / "xdg" / "compose" / "check").mkdir(parents=True)
+    (tmp_path / "xdg" / "compose" / "check" / "a.entry").write_bytes(b"x")
+    out = subprocess.run([sys.executable, "-c", "from compose.cli.main import main\n"
+                          "main(['check', '--clear-cache'])"],
+                         capture_output=True, text=True, cwd=ROOT, env=dict(os.environ))
+    assert out.returncode == 0 and "removed 1" in out.stdout
+    assert not list((tmp_path / "xdg" / "compose" / "check").iterdir())
+
+
+def test_a_warm_check_loads_no_geodata_or_drawing_library(tmp_path, data):
+    path = write_style(tmp_path, _doc(data))
+    code = (f"import compose.api, sys, json\ncompose.api.check({str(path)!r}, cache={str(tmp_path)!r})\n"
+            "print(json.dumps(sorted(sys.modules)))")
+    runs = [subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT,
+                           check=True) for _ in range(2)]
+    cold, warm = (json.loads(r.stdout.strip().splitlines()[-1]) for r in runs)
+
+    def heavy(loaded):
+        return sorted({m.split(".")[0] for m in loaded} & {"matplotlib", "rasterio", "shapely",
+                                                            "pyogrio", "fiona", "osgeo"})
+    assert heavy(cold) == ["matplotlib", "pyogrio", "rasterio", "shapely"]
+    assert heavy(warm) == []
