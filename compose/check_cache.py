@@ -47,7 +47,7 @@ import numpy as np
 from compose.layers.base import Paint, Palette
 
 __all__ = ["CACHE_ENV", "CACHE_VERSION", "MAX_PIXELS", "cache_dir", "clear_cache", "CheckCache",
-           "CachedLayer", "layer_colours"]
+           "CachedLayer", "layer_colors"]
 
 #: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
 CACHE_ENV = "COMPOSE_CACHE"
@@ -57,10 +57,10 @@ CACHE_VERSION = 1
 #: and write hundreds of MB; its draft is cached).
 MAX_PIXELS = 4096 * 4096
 #: Option names whose 3-number values are colours (replaced by a placeholder in the key).
-COLOUR_KEYS = frozenset({"stroke", "fill", "color", "tint", "shadow", "nodata", "background",
+COLOR_KEYS = frozenset({"stroke", "fill", "color", "tint", "shadow", "nodata", "background",
                          "ink"})
 #: Options of a kind that only change its colours, never its coverage or indices.
-COLOUR_ONLY = {"relief": frozenset({"strength"})}
+COLOR_ONLY = {"relief": frozenset({"strength"})}
 _SUBDIR = "check"
 
 
@@ -99,7 +99,7 @@ def _is_rgb(value: Any) -> bool:
 
 def _plain(value: Any, name: str | None = None, skip: frozenset[str] = frozenset()) -> Any:
     """A JSON-able copy of a style value with colours replaced by ``"colour"``."""
-    if name is not None and name in COLOUR_KEYS and _is_rgb(value):
+    if name is not None and name in COLOR_KEYS and _is_rgb(value):
         return "colour"
     if dataclasses.is_dataclass(value) and not isinstance(value, type):
         return {"@": type(value).__name__,
@@ -183,7 +183,7 @@ def _lut_of(spec, ramps) -> Any | None:
     return None if getattr(lut, "quantile_pending", False) else lut
 
 
-def layer_colours(spec, ramps) -> dict[str, Any] | None:
+def layer_colors(spec, ramps) -> dict[str, Any] | None:
     """Each part's colour as the layer kind paints it: part -> an sRGB triple in [0, 1], a
     :class:`Palette`, or None (the part is not drawn). None for a kind this cache does not know
     (or a ramp whose breaks come from the data): such layers are never cached."""
@@ -214,7 +214,7 @@ def layer_colours(spec, ramps) -> dict[str, Any] | None:
     return None
 
 
-def _same_colour(paint: Paint, want: Any) -> bool:
+def _same_color(paint: Paint, want: Any) -> bool:
     if isinstance(want, Palette):
         p = paint.palette
         return (p is not None and p.nodata == want.nodata and np.array_equal(p.rgb8, want.rgb8)
@@ -254,10 +254,10 @@ def _window_id(window) -> str:
 class Recorder:
     """A real layer, passed through, whose paints are kept on the canvas grid for the cache."""
 
-    def __init__(self, layer, key: str, colours: dict, canvas, extra: dict):
+    def __init__(self, layer, key: str, colors: dict, canvas, extra: dict):
         self._layer = layer
         self._key = key
-        self._colours = colours
+        self._colors = colors
         self._shape = (canvas.height, canvas.width)
         self._slots: list[_Slot] = []
         self._windows: dict[str, list[str]] = {}
@@ -274,7 +274,7 @@ class Recorder:
         inner, core = window.inner, window.core
         parts = []
         for j, p in enumerate(paints):
-            if p.part not in self._colours or not _same_colour(p, self._colours[p.part]):
+            if p.part not in self._colors or not _same_color(p, self._colors[p.part]):
                 self.ok = False         # painted in a colour this cache cannot reproduce
                 return paints
             if j == len(self._slots):
@@ -308,16 +308,16 @@ class CachedLayer:
     """A layer replayed from its cache entry: the stored coverage and indices, painted in the
     colours the style gives now."""
 
-    def __init__(self, spec, meta: dict, arrays, colours: dict, ramps: Mapping[str, Any]):
+    def __init__(self, spec, meta: dict, arrays, colors: dict, ramps: Mapping[str, Any]):
         self.spec = spec
         self.margin = int(meta["margin"])
         self.meta = meta
         self._arrays = arrays
-        self._colours = colours
+        self._colors = colors
         self._slots: dict[int, tuple[np.ndarray, np.ndarray | None]] = {}
         self.unplaced = list(meta.get("unplaced", []))
         if spec.kind in ("field", "classes", "relief"):
-            self.palette = next(iter(colours.values()))
+            self.palette = next(iter(colors.values()))
         if spec.kind in ("field", "classes"):     # what the legend reads of a raster layer
             self.ramp = ramps[spec.options.ramp]
             self.lut = self.ramp.lut()
@@ -348,7 +348,7 @@ class CachedLayer:
                           out=alpha[rs - r0:re_ - r0, cs - c0:ce - c0])
             else:
                 alpha[rs - r0:re_ - r0, cs - c0:ce - c0] = a_all[rs:re_, cs:ce]
-            want = self._colours[part]
+            want = self._colors[part]
             if i_all is not None:
                 index = np.zeros((h, w), np.uint16)
                 index[rs - r0:re_ - r0, cs - c0:ce - c0] = i_all[rs:re_, cs:ce]
@@ -480,29 +480,29 @@ class CheckCache:
 
     def key(self, spec, ctx) -> tuple[str | None, dict | None]:
         """(key, part colours) of a layer, or (None, None) when it is not cached."""
-        colours = layer_colours(spec, ctx.ramps)
-        stamp = _source_stamp(spec.source) if colours is not None else None
-        if colours is None or stamp is None:
+        colors = layer_colors(spec, ctx.ramps)
+        stamp = _source_stamp(spec.source) if colors is not None else None
+        if colors is None or stamp is None:
             return None, None
         parts: list[Any] = [self._base, spec.kind, stamp,
-                            _plain(spec.options, skip=COLOUR_ONLY.get(spec.kind, frozenset()))]
+                            _plain(spec.options, skip=COLOR_ONLY.get(spec.kind, frozenset()))]
         if spec.kind in ("field", "classes"):
             lut = _lut_of(spec, ctx.ramps)
             parts.append(_lut_key(lut))
         if spec.kind == "labels":
             parts += [self._furniture, list(self._labels_before)]
-        return _digest(parts), colours
+        return _digest(parts), colors
 
     def layer(self, spec, ctx, build: Callable[[], Any]) -> Any:
-        key, colours = self.key(spec, ctx) if self.enabled else (None, None)
-        if key is None or colours is None:
+        key, colors = self.key(spec, ctx) if self.enabled else (None, None)
+        if key is None or colors is None:
             return build()
         if spec.kind == "labels":
             self._labels_before.append(key)
         found = _load(self.folder / f"{key}.entry") if self.read else None
         if found is not None:
             meta, arrays = found
-            hit = CachedLayer(spec, meta, arrays, colours, ctx.ramps)
+            hit = CachedLayer(spec, meta, arrays, colors, ctx.ramps)
             if spec.kind == "labels":
                 ctx.label_boxes.extend(tuple(b) for b in meta.get("label_boxes", []))
             self.hits.append(hit)
@@ -513,7 +513,7 @@ class CheckCache:
         if spec.kind == "labels":
             extra["label_boxes"] = [[float(v) for v in b] for b in ctx.label_boxes[before:]]
             extra["unplaced"] = [str(u) for u in getattr(layer, "unplaced", [])]
-        rec = Recorder(layer, key, colours, self.canvas, extra)
+        rec = Recorder(layer, key, colors, self.canvas, extra)
         self.recorders.append(rec)
         return rec
 

@@ -77,15 +77,15 @@ def test_the_demo_style_warm_is_the_cold_report(tmp_path, stores):
     assert _json(warm) == _json(check(ROOT / "styles" / "coast.toml", cache=False))
 
 
-def test_a_colour_change_reuses_every_entry(tmp_path, data, stores):
+def test_a_color_change_reuses_every_entry(tmp_path, data, stores):
     cache = tmp_path / "cache"
     check(write_style(tmp_path, _doc(data)), cache=cache)
-    recoloured = _doc(data, coast={"stroke": "#a03020", "halo": {"color": "#f0f0e0", "width": 3},
+    recolored = _doc(data, coast={"stroke": "#a03020", "halo": {"color": "#f0f0e0", "width": 3},
                                    "opacity": 0.8, "blend": "multiply"},
                       relief={"strength": 0.4, "tint": {"L": 90, "C": 8, "h": 80}},
                       towns={"color": "#552200"})
-    recoloured["ramp"]["land"]["through"][0] = {"L": 85, "C": 30, "h": 80}
-    path = write_style(tmp_path, recoloured, "recoloured")
+    recolored["ramp"]["land"]["through"][0] = {"L": 85, "C": 30, "h": 80}
+    path = write_style(tmp_path, recolored, "recoloured")
     warm = check(path, cache=cache)
     assert _counts(stores[-1]) == (4, 0)
     assert _json(warm) == _json(check(path, cache=False))
