@@ -125,6 +125,28 @@ def _hiding_layer(ctx: CheckContext, relief_name: str):
     return max(found, key=lambda t: t[0])[1] if found else None
 
 
+def _fainter_cover(ctx: CheckContext, relief_name: str, share: float
+                   ) -> tuple[str, Change] | None:
+    """Several layers drawn normally over the relief, none above :data:`SEEN_OPACITY`, hide it
+    together (each lets 1 - opacity through, multiplied): the one covering most of the canvas
+    made fainter so that twice :data:`MIN_SEEN` shows, assuming it lies over all of the relief
+    (a share it covers less of needs less)."""
+    names = [s.name for s in ctx.stats.layers]
+    above = names[names.index(relief_name) + 1:]
+    found = [(ctx.coverage(s) * spec.opacity, spec) for spec, s in ctx.layers()
+             if spec.name in above and spec.kind != "labels" and spec.blend == "normal"
+             and 0.0 < spec.opacity < 1.0]
+    if not found or share <= 0.0:
+        return None
+    spec = max(found, key=lambda t: t[0])[1]
+    through = (1.0 - spec.opacity) * 2.0 * MIN_SEEN / share
+    a = max(0.0, math.floor((1.0 - through) * 100.0) / 100.0)
+    return (f'the layers drawn over the {relief_name} together hide it: draw "{spec.name}" '
+            f"fainter, opacity = {a:g} (now {spec.opacity:g}), so {2 * MIN_SEEN:.0%} of the "
+            f"relief shows; or draw it with blend = \"multiply\"",
+            Change(layer_key(spec.name), {"opacity": a}))
+
+
 def _hidden_result(ctx, spec, s, share: float, limit: float, lo_L: float, hi_L: float
                    ) -> RuleResult:
     (p5, _, p95), _ = s.lightness_chroma()
@@ -132,7 +154,10 @@ def _hidden_result(ctx, spec, s, share: float, limit: float, lo_L: float, hi_L: 
     hider = _hiding_layer(ctx, spec.name)
     msg = (f"hidden: {share:.1%} of the relief shows through the layers drawn over it (at least "
            f"{MIN_SEEN:.0%}); its own L* spread is {spread:.2f}")
-    if hider is None:
+    faint = _fainter_cover(ctx, spec.name, share) if hider is None else None
+    if faint is not None:
+        fix, change = faint
+    elif hider is None:
         fix, change = (f"draw the layers over {spec.name} with a blend such as multiply, or move "
                        "the relief above them"), None
     else:

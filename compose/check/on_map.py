@@ -239,7 +239,7 @@ def _twin_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
                f"(near {g.near:.3g}: L* {g.a[g.i]:.1f} vs {g.b[g.i]:.1f}); limit {limit:g}")
         fix, change = "", None
         if not passed:
-            fix, change = _twin_fix(ctx, r, tspec, bspec, vision, limit)
+            fix, change = _twin_fix(ctx, r, tspec, bspec, vision, limit, value=g.value)
         out.append(RuleResult(rule, f"{tspec.name}, {bspec.name}", g.value, limit, passed, msg,
                               fix, ramp=r.name, change=change))
     return out
@@ -268,9 +268,11 @@ def _own_gap_fix(gap: float, what: str, vision: str) -> str:
 
 
 def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
-              own: tuple[float, str] | None = None) -> tuple[str, Change | None]:
+              own: tuple[float, str] | None = None, value: float | None = None
+              ) -> tuple[str, Change | None]:
     """The fix of a twin pair apart on the map; ``own``: (the ramps' own gap, its fix text) for
-    a measure other than L* (default: their L* gap)."""
+    a measure other than L* (default: their L* gap); ``value``: the gap measured on the map
+    (for the opacity of a layer drawn over them, :mod:`compose.check.covering`)."""
     steps: list[tuple[str, Change]] = []
     order = [s.name for s in ctx.stats.layers]
     lower, upper = sorted((tspec, bspec), key=lambda sp: order.index(sp.name))
@@ -297,6 +299,11 @@ def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
         return text or _own_gap_fix(gap, f'the ramps "{r.name}" and "{r.base.name}"', vision), None
     steps += _blend_steps(ctx, [tspec, bspec], vision)
     if not steps:
+        from compose.check.covering import covering_step
+        cover = None if value is None else covering_step(
+            ctx, [tspec, bspec], value, limit, gap, f'"{tspec.name}" and "{bspec.name}"')
+        if cover is not None:
+            return cover
         return (f'draw "{tspec.name}" and "{bspec.name}" under the same layers (a layer blended '
                 "over one twin only shifts its lightness)"), None
     seen: set = set()
@@ -417,8 +424,12 @@ def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
             if steps:
                 fix, change = _in_steps(steps)
             else:
-                fix = (f'the layers drawn with "{spec.name}" shade its arms unequally; check the '
-                       f'ramp "{ramp.name}" in {vision} vision and the ground beneath')
+                from compose.check.covering import covering_step
+                cover = covering_step(ctx, [spec], value, limit, own,
+                                      f'the arms of "{spec.name}"')
+                fix, change = cover if cover is not None else (
+                    f'the layers drawn with "{spec.name}" shade its arms unequally; check the '
+                    f'ramp "{ramp.name}" in {vision} vision and the ground beneath', None)
         out.append(RuleResult(rule, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
                               change=change))
     return out

@@ -118,7 +118,8 @@ def twin_chroma_map(ctx: CheckContext) -> list[RuleResult]:
             text = (f'the ramps "{r.name}" and "{r.base.name}" already differ by up to {own:.1f} '
                     "C*ab before any layer is blended: match their chroma (see the twin-chroma "
                     "rule)")
-            fix, change = _twin_fix(ctx, r, tspec, bspec, "normal", limit, own=(own, text))
+            fix, change = _twin_fix(ctx, r, tspec, bspec, "normal", limit, own=(own, text),
+                                    value=value)
             paper = _paper_step(ctx) if change is None and own <= limit else None
             if paper is not None:
                 fix, change = paper
