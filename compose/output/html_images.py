@@ -35,8 +35,6 @@ class PreviewSink(BoxThumbnail):
     def __init__(self, width: int, height: int, max_width: int = PAGE_WIDTH):
         super().__init__(width, height, math.ceil(width / max_width))
         self.copy = np.empty((height, width, 3), np.uint8) if self.k == 1 else None
-        if self.copy is not None:
-            self.sum = np.zeros((0, 0, 3), np.float32)     # no sums needed
 
     def add(self, row0: int, rgb8: np.ndarray) -> None:
         if self.copy is not None:
