@@ -61,7 +61,7 @@ class BoxThumbnail:
         nr = -(-(off + n) // k)
         br0 = row0 // k
         # the sums so far of the block rows these rows reach into (zeros for new ones)
-        sums_rows = np.stack([self._partial.pop(b, None) if b in self._partial
+        sums_rows = np.stack([self._partial.pop(b) if b in self._partial
                               else np.zeros((self.w, 3), dtype=self._dtype)
                               for b in range(br0, br0 + nr)])
         # column chunks of whole blocks keep the float32 scratch small at any canvas width
