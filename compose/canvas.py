@@ -8,6 +8,7 @@ line just outside the map still draws its part that shows.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -17,7 +18,7 @@ from affine import Affine
 from compose.errors import StyleError
 from compose.limits import check_canvas_size
 
-__all__ = ["Canvas", "Window"]
+__all__ = ["Canvas", "Window", "core_window"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -56,6 +57,11 @@ class Window:
     def core(self) -> tuple[slice, slice]:
         """Slices of the full canvas array covered by the core."""
         return slice(self.row, self.row + self.height), slice(self.col, self.col + self.width)
+
+
+def core_window(window: Window) -> Window:
+    """``window`` without its margin (its padded region is its core)."""
+    return dataclasses.replace(window, margin=0)
 
 
 @dataclass(frozen=True, slots=True)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from compose.canvas import core_window
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.early import EarlyRead
@@ -56,10 +57,23 @@ class FieldLayer:
         self.transparent_nodata = isinstance(nodata, str) and nodata == "transparent"
         self.palette = palette_from_lut(self.lut, None if (nodata is None or self.transparent_nodata)
                                         else nodata)
+        #: each pixel's colour depends on its own value only, so a window's margin (which the
+        #: window paints but never writes out) needs no source cells: on a grid aligned with
+        #: the source only the core is read and the margin is no-data. Then no source block is
+        #: needed by two rows of windows, and a planned walk (compose.sources.blocks) holds
+        #: none of this raster's blocks beyond the windows in flight.
+        self.core_reads = not context.draft and self.source.aligned_with(self.canvas)
         # a draft's decimated read runs beside the rest of the preparation (compose.layers.early)
         self.early = EarlyRead(self.canvas, self._read) if context.draft else None
 
     def _read(self, window) -> np.ndarray:
+        if self.core_reads and window.margin:
+            core = self.source.read_window(self.canvas, core_window(window),
+                                           self.options.resampling)
+            _, _, h, w = window.padded
+            values = np.full((h, w), np.nan, dtype=np.float32)
+            values[window.inner] = core
+            return values
         return self.source.read_window(self.canvas, window, self.options.resampling)
 
     def _lut(self):

@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 
+from compose.canvas import core_window
 from compose.heap import trim
 from compose.sources.guard import gdal_cache
 
@@ -181,12 +182,23 @@ PLANNED_GDAL_CACHE = 16 << 20
 @contextlib.contextmanager
 def planned_walk(layers, canvas, windows) -> Iterator[bool]:
     """During a window walk over ``windows`` of ``canvas``: plan the raster reads of every
-    layer with a raster ``source`` (:meth:`RasterSource.plan`); when all of them are planned,
+    layer with a raster ``source`` (:meth:`RasterSource.plan`; the windows' cores for a layer
+    whose ``core_reads`` is true, their padded regions otherwise); when all of them are planned,
     bound GDAL's block cache to :data:`PLANNED_GDAL_CACHE` meanwhile. Yields whether the
     reads are planned; forgets the plans (and their blocks) at the end."""
-    sources: list[Any] = [s for s in (getattr(layer, "source", None) for layer in layers)
-                          if callable(getattr(s, "plan", None))]
-    planned = [s.plan(canvas, windows) for s in sources]
+    sources: list[Any] = []
+    planned = []
+    cores = None
+    for layer in layers:
+        s: Any = getattr(layer, "source", None)
+        if not callable(getattr(s, "plan", None)):
+            continue
+        sources.append(s)
+        if getattr(layer, "core_reads", False):     # the layer reads window cores only
+            cores = cores if cores is not None else [core_window(w) for w in windows]
+            planned.append(s.plan(canvas, cores))
+        else:
+            planned.append(s.plan(canvas, windows))
     every = bool(planned) and all(planned)
     try:
         if every:

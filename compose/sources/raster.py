@@ -409,6 +409,11 @@ class RasterSource:
         if data is not dest:
             dest[...] = data
 
+    def aligned_with(self, canvas: Canvas) -> bool:
+        """Whether ``canvas``'s grid is the source's own (same CRS, cell size and orientation,
+        whole-cell offset): its windows are then plain reads, each pixel from its own cell."""
+        return self._aligned_offset(canvas.crs, canvas.transform) is not None
+
     # --- planned reads (compose.sources.blocks) ----------------------------------------------
     def plan(self, canvas: Canvas | None, windows: list[Window] = ()) -> bool:
         """Expect the padded reads of ``windows`` of ``canvas`` (a window walk): each source block

@@ -12,7 +12,7 @@ import rasterio
 from affine import Affine
 from rasterio.env import get_gdal_config
 
-from compose.canvas import Canvas
+from compose.canvas import Canvas, core_window
 from compose.sources.blocks import PLANNED_GDAL_CACHE, BlockPlan, planned_walk
 from compose.sources.guard import gdal_cache
 from compose.sources.raster import RasterSource
@@ -141,3 +141,26 @@ def test_walk_bounds_gdal_cache_and_restores_it(tmp_path):
     assert int(get_gdal_config("GDAL_CACHEMAX")) == before
     with gdal_cache(before * 2):                   # never raised
         assert int(get_gdal_config("GDAL_CACHEMAX")) == before
+
+
+def test_core_reads_hold_no_block_across_window_rows(tmp_path):
+    # windows aligned with the blocks: a layer reading window cores only needs each block in
+    # one window, so no block outlives its window row (padded reads keep the next row's)
+    path = _tiled(tmp_path / "c.tif", _data(), nodata=-9999, block=32)
+    canvas = Canvas(CRS, T, 160, 192)
+    wins = list(canvas.windows(32, margin=3))
+    with RasterSource(path, layer="c") as src:
+        # blocks touched: the cores' 5 x 6; the margins reach one more row and column of blocks
+        for core, held_after_rows, blocks in ((True, 0, 5 * 6), (False, 1, 6 * 7)):
+            layer = type("Layer", (), {"source": src, "core_reads": core})()
+            with planned_walk([layer], canvas, wins):
+                plan = src._plan
+                most = 0
+                for win in wins:
+                    read = core_window(win) if core else win
+                    src.read_window(canvas, read)
+                    if win.col + win.width == canvas.width:      # a window row done
+                        most = max(most, plan.held_bytes)
+                assert plan.finished
+                assert plan.decoded == blocks           # every block once
+            assert (most > 0) == bool(held_after_rows)
