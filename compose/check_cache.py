@@ -314,7 +314,9 @@ class CachedLayer:
         self.meta = meta
         self._arrays = arrays
         self._colors = colors
-        self._slots: dict[int, tuple[np.ndarray, np.ndarray | None]] = {}
+        # every slot's arrays picked now: window threads share this layer read-only
+        self._slots = {j: (arrays[f"a{j}"], arrays[f"i{j}"] if f"i{j}" in arrays.files else None)
+                       for j in range(int(meta["slots"]))}
         self.unplaced = list(meta.get("unplaced", []))
         if spec.kind in ("field", "classes", "relief"):
             self.palette = next(iter(colors.values()))
@@ -322,14 +324,6 @@ class CachedLayer:
             self.ramp = ramps[spec.options.ramp]
             self.lut = self.ramp.lut()
             self.transparent_nodata = isinstance(getattr(spec.options, "nodata", None), str)
-
-    def _slot(self, j: int) -> tuple[np.ndarray, np.ndarray | None]:
-        if j not in self._slots:
-            a = self._arrays[f"a{j}"]       # 8-bit coverage k: k / 255 in float32, per window
-            name = f"i{j}"
-            self._slots[j] = (a, self._arrays[name] if name in self._arrays.files
-                              else None)
-        return self._slots[j]
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         parts = self.meta["windows"].get(_window_id(window))
@@ -341,7 +335,7 @@ class CachedLayer:
         cs, ce = max(c0, 0), min(c0 + w, W)
         paints = []
         for j, part in enumerate(parts):
-            a_all, i_all = self._slot(j)
+            a_all, i_all = self._slots[j]
             alpha = np.zeros((h, w), np.float32)
             if a_all.dtype == np.uint8:
                 np.divide(a_all[rs:re_, cs:ce], np.float32(255), dtype=np.float32,
@@ -465,6 +459,7 @@ class CheckCache:
         self._labels_before: list[str] = []
         self.hits: list[CachedLayer] = []
         self.recorders: list[Recorder] = []
+        self.uncached = 0           # layers this cache does not keep (built every time)
 
     def _furniture_key(self, keep_clear) -> Any:
         """What decides the boxes labels keep clear of (see :func:`compose.page.write.blocked_for`:
@@ -496,6 +491,7 @@ class CheckCache:
     def layer(self, spec, ctx, build: Callable[[], Any]) -> Any:
         key, colors = self.key(spec, ctx) if self.enabled else (None, None)
         if key is None or colors is None:
+            self.uncached += 1
             return build()
         if spec.kind == "labels":
             self._labels_before.append(key)
@@ -516,6 +512,11 @@ class CheckCache:
         rec = Recorder(layer, key, colors, self.canvas, extra)
         self.recorders.append(rec)
         return rec
+
+    @property
+    def warm(self) -> bool:
+        """Every layer of the check replayed from the cache (nothing read or drawn)."""
+        return bool(self.hits) and not self.recorders and not self.uncached
 
     def usable(self, margin: int, window_size: int) -> bool:
         """Whether every hit was recorded on the same walk (windows and their margin)."""

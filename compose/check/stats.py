@@ -220,8 +220,12 @@ class PartStats:
         self.weights += other.weights
         for name in ("contrast", "ground_contrast", "beneath_lightness", "beneath_colors"):
             a, b = getattr(self, name), getattr(other, name)
-            if b is not None:
-                setattr(self, name, b.copy() if a is None else a + b)
+            if b is None:
+                continue
+            if a is None:
+                setattr(self, name, b.copy())
+            else:               # in place: this part's own arrays (merge copies what it adopts)
+                a += b
 
 
 @dataclass
