@@ -190,13 +190,19 @@ class WindowResult:
 
 def _to_rgb8(core: np.ndarray) -> np.ndarray:
     """Float planes (3, h, w) in [0, 1] (a view; clipped and scaled in place) -> (h, w, 3) uint8."""
+    return _to_8bit(core)[0]
+
+
+def _to_8bit(core: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_to_rgb8`, and the same pixels as planes (3, h, w) uint8."""
     np.clip(core, 0, 1, out=core)
     core *= np.float32(255)
     np.rint(core, out=core)
+    planes8 = core.astype(np.uint8)
     rgb8 = np.empty(core.shape[1:] + (3,), dtype=np.uint8)
     for c in range(3):
-        rgb8[..., c] = core[c]
-    return rgb8
+        rgb8[..., c] = planes8[c]
+    return rgb8, planes8
 
 
 def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
@@ -274,8 +280,8 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
     # the finished composite on the preview grid (blends of values in [0, 1] stay in [0, 1])
     tiles = (PreviewTiles(tuple(layer_tiles), tuple(stack_tiles),
                           block_sums(out[core_idx], window.row, window.col, k)) if k else None)
-    rgb8 = _to_rgb8(out[core_idx])
-    stats = meter.finish(rgb8) if meter is not None else None
+    rgb8, planes8 = _to_8bit(out[core_idx])
+    stats = meter.finish(rgb8, planes8) if meter is not None else None
     alpha8 = None
     if footprint:
         rasters = any(getattr(layer, "palette", None) is not None for li, layer in

@@ -15,23 +15,23 @@ colour, and as overlays by the contrast against what lies beneath.
 """
 from __future__ import annotations
 
+import functools
 from typing import Any
 
 import numpy as np
 
 from compose.check.stats import (
+    BENEATH_BITS,
+    CONTRAST_STEP,
     N_BENEATH,
     N_CONTRAST,
     N_LIGHTNESS,
     LayerStats,
     PartStats,
     Statistics,
-    beneath_color_codes,
-    contrast_bins,
     lightness_bins_of_luminance,
-    lightness_bins_of_rgb8,
-    luminance_of_rgb8,
 )
+from compose.color.bulk import CHANNEL_XYZ
 from compose.color.srgb import srgb_to_linear
 from compose.color.wcag import relative_luminance
 from compose.style.kinds import LAYER_KINDS
@@ -80,8 +80,8 @@ def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
 
 
 def _take8(planes: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """Pixels ``idx`` (flat) of contiguous float or uint8 planes (3, h, w) -> (n, 3) uint8
-    (a view of planar storage: each channel's column is contiguous)."""
+    """Pixels ``idx`` (flat) of contiguous float or uint8 planes (3, h, w) -> (3, n) uint8, each
+    channel contiguous."""
     out = np.empty((3, idx.size), dtype=np.uint8)
     for c in range(3):
         v = np.take(planes[c].reshape(-1), idx)
@@ -90,14 +90,50 @@ def _take8(planes: np.ndarray, idx: np.ndarray) -> np.ndarray:
             np.rint(v, out=v)
             np.clip(v, 0, 255, out=v)
         out[c] = v
-    return out.T
+    return out
+
+
+def _luminance8(planes8: np.ndarray) -> np.ndarray:
+    """WCAG relative luminance (float32 (n,)) of 8-bit sRGB planes (3, n), by lookup tables: the
+    same sums as :func:`compose.check.stats.luminance_of_rgb8` of the pixels."""
+    y = np.take(CHANNEL_XYZ[1, 0], planes8[0])
+    y += np.take(CHANNEL_XYZ[1, 1], planes8[1])
+    y += np.take(CHANNEL_XYZ[1, 2], planes8[2])
+    return y
+
+
+def _beneath_codes(planes8: np.ndarray) -> np.ndarray:
+    """:func:`compose.check.stats.beneath_color_codes` of 8-bit sRGB planes (3, n)."""
+    shift = 8 - BENEATH_BITS
+    codes = np.right_shift(planes8[0], shift).astype(np.intp)
+    codes <<= BENEATH_BITS
+    codes |= np.right_shift(planes8[1], shift)
+    codes <<= BENEATH_BITS
+    codes |= np.right_shift(planes8[2], shift)
+    return codes
+
+
+@functools.lru_cache(maxsize=256)
+def _luminance_of(color: tuple) -> float:
+    """WCAG relative luminance of a flat colour (sRGB floats), remembered."""
+    return float(relative_luminance(np.asarray(color)))
 
 
 def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> np.ndarray:
-    """Weighted histogram (N_CONTRAST,) of the WCAG contrast of a colour against luminances."""
+    """Weighted histogram (N_CONTRAST,) of the WCAG contrast of a colour against luminances
+    (the arithmetic of :func:`compose.check.stats.contrast_bins`, in place)."""
     y = y_below.astype(np.float64)
-    ratio = (np.maximum(y, y_part) + 0.05) / (np.minimum(y, y_part) + 0.05)
-    return np.bincount(contrast_bins(ratio), weights=weights, minlength=N_CONTRAST)
+    ratio = np.maximum(y, y_part)
+    ratio += 0.05
+    np.minimum(y, y_part, out=y)
+    y += 0.05
+    ratio /= y
+    ratio -= 1.0
+    ratio /= CONTRAST_STEP
+    ratio += 1e-9
+    np.floor(ratio, out=ratio)
+    np.clip(ratio, 0, N_CONTRAST - 1, out=ratio)
+    return np.bincount(ratio.astype(np.intp), weights=weights, minlength=N_CONTRAST)
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
@@ -128,17 +164,19 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
             # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
             weights = np.take(alpha.reshape(-1), pix)
             below8 = _take8(beneath, pix)
-            y_part = float(relative_luminance(np.asarray(paint.color)))
-            y_below = luminance_of_rgb8(below8)
+            color = paint.color
+            y_part = (_luminance_of(color) if isinstance(color, tuple)
+                      else float(relative_luminance(np.asarray(color))))
+            y_below = _luminance8(below8)
             part.contrast = _contrast_hist(y_part, y_below, weights)
             if ground8 is not None:
                 part.ground_contrast = _contrast_hist(
-                    y_part, luminance_of_rgb8(_take8(ground8, pix)), weights)
+                    y_part, _luminance8(_take8(ground8, pix)), weights)
             else:                       # the layer's first part: beneath is the ground
                 part.ground_contrast = part.contrast.copy()
             lb = lightness_bins_of_luminance(y_below)
             part.beneath_lightness = np.bincount(lb, weights=weights, minlength=N_LIGHTNESS)
-            part.beneath_colors = np.bincount(beneath_color_codes(below8), weights=weights,
+            part.beneath_colors = np.bincount(_beneath_codes(below8), weights=weights,
                                               minlength=N_BENEATH)
     if paint.part in stats.parts:
         stats.parts[paint.part].merge(part)
@@ -178,7 +216,8 @@ class WindowMeasure:
         spec = layer.spec
         overlay = spec.role == "overlay"
         a_core = alpha[self.inner]
-        self._union = a_core.copy() if self._union is None else np.maximum(self._union, a_core)
+        # the layer's first paint is its union so far (read only: never written to)
+        self._union = a_core if self._union is None else np.maximum(self._union, a_core)
         _measure_part(self.stats.layers[li], paint, alpha, out if overlay else None,
                       self._ground if pi else None, overlay, self.inner)
         if spec.role == "theme" and paint.palette is not None:
@@ -193,14 +232,16 @@ class WindowMeasure:
     def end_layer(self, li: int, layer) -> None:
         """Layer ``li`` is composited."""
         if self._union is not None:
-            self.stats.layers[li].covered += float(self._union.sum())
+            # summed as a contiguous array (the sum's rounding depends on the layout)
+            self.stats.layers[li].covered += float(np.ascontiguousarray(self._union).sum())
             if layer.spec.role == "overlay":
                 self._hidden = (self._union if self._hidden is None
                                 else np.maximum(self._hidden, self._union))
         self._union = self._ground = None
 
-    def finish(self, rgb8: np.ndarray) -> Statistics:
-        """The window's statistics, given its finished core ``rgb8`` (h, w, 3) uint8."""
+    def finish(self, rgb8: np.ndarray, planes8: np.ndarray | None = None) -> Statistics:
+        """The window's statistics, given its finished core ``rgb8`` (h, w, 3) uint8 (or the same
+        pixels as planes, ``planes8`` (3, h, w) uint8, when the caller has them)."""
         for li, part, index, a_core, through in self._reliefs:
             if through is not None:     # the relief as seen on the composite
                 p = self.stats.layers[li].parts[part]
@@ -213,8 +254,11 @@ class WindowMeasure:
             r_off, c_off = (self.window.row % 2), (self.window.col % 2)
             sub = (slice(r_off, None, GRAY_STRIDE), slice(c_off, None, GRAY_STRIDE))
             # planar (3, k): each channel contiguous
-            sampled = np.ascontiguousarray(np.moveaxis(rgb8[sub], -1, 0)).reshape(3, -1)
-            lightness = lightness_bins_of_rgb8(sampled.T)
+            if planes8 is not None:
+                sampled = np.ascontiguousarray(planes8[(slice(None),) + sub]).reshape(3, -1)
+            else:
+                sampled = np.ascontiguousarray(np.moveaxis(rgb8[sub], -1, 0)).reshape(3, -1)
+            lightness = lightness_bins_of_luminance(_luminance8(sampled)).astype(np.intp)
             shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
             # a theme drawn later (more than half there) hides an earlier one: the earlier
             # theme's blended colours are counted only where it is not covered that way
@@ -224,31 +268,32 @@ class WindowMeasure:
                 covered_above[k] = running
                 a = themes[k][2][sub].ravel()
                 running = a if running is None else np.maximum(running, a)
+            linear = [np.take(_LINEAR8, sampled[c]) for c in range(3)]
             for (li, index, a_core), above in zip(themes, covered_above):
                 s = self.stats.layers[li]
                 assert s.value_lightness is not None          # filtered above
                 a_s = a_core[sub].ravel()
-                idx = index[sub].ravel()
+                idx = index[sub].ravel().astype(np.intp)
+                n = s.value_lightness.shape[0]
+                # pixels left out are counted in one bin past the table's end, dropped after
+                # (every other bin gets the same pixels in the same order as by selecting them)
                 keep = a_s > 0.5
                 if shown is not None:   # grey order is judged where the theme shows, not under lines
                     keep &= shown
-                n = s.value_lightness.shape[0]
-                cell = idx.astype(np.int32) * N_LIGHTNESS + lightness
-                if not keep.all():
-                    cell = cell[keep]
-                s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS).reshape(
-                    n, N_LIGHTNESS)
+                cell = idx * N_LIGHTNESS
+                cell += lightness
+                np.putmask(cell, ~keep, n * N_LIGHTNESS)
+                s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS + 1)[
+                    :n * N_LIGHTNESS].reshape(n, N_LIGHTNESS)
                 if s.value_color is not None and s.value_count is not None:   # blended colours
                     drawn = a_s > 0   # wherever it is drawn, however faint
                     if shown is not None:
                         drawn &= shown
                     if above is not None:
                         drawn &= above <= 0.5
-                    every = drawn.all()
-                    ids = idx if every else idx[drawn]
-                    s.value_count += np.bincount(ids, minlength=n)
+                    np.putmask(idx, ~drawn, n)
+                    s.value_count += np.bincount(idx, minlength=n + 1)[:n]
                     for c in range(3):   # linear-light channel values of the composite
-                        codes = sampled[c] if every else sampled[c][drawn]
-                        s.value_color[:, c] += np.bincount(ids, weights=np.take(_LINEAR8, codes),
-                                                           minlength=n)
+                        s.value_color[:, c] += np.bincount(idx, weights=linear[c],
+                                                           minlength=n + 1)[:n]
         return self.stats

@@ -37,10 +37,13 @@ class Palette:
                            np.ascontiguousarray(self.rgb8.T.astype(np.float32) / np.float32(255)))
 
     def color_planes(self, index: np.ndarray) -> np.ndarray:
-        """(h, w) uint16 indices -> (3, h, w) float32 colour planes."""
+        """(h, w) uint16 indices (each below the table's length) -> (3, h, w) float32 colour
+        planes."""
         out = np.empty((3,) + index.shape, dtype=np.float32)
         for c in range(3):
-            np.take(self.planes[c], index, out=out[c], mode="clip")   # unbuffered
+            # unbuffered; "wrap" is the same as "clip" for indices in range and with uint16
+            # indices 1.5-3x faster (no conversion of the indices first)
+            np.take(self.planes[c], index, out=out[c], mode="wrap")
         return out
 
 
