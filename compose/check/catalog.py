@@ -152,6 +152,12 @@ _RULES = [
        "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
     _r("diverging-symmetry-map-protan", "the same in simulated protan vision", "<=", "L*",
        "ramp.map_lightness_cvd", OUR_TARGET + "; " + _MACHADO),
+    _r("diverging-chroma-map", "|dC*ab| between the arms of a diverging theme as drawn on the "
+       "map (after every layer is blended) at equal distance from the centre, at each distance's "
+       "lit end; p90 over distances (normal vision: the arms differ in hue by design)", "<=",
+       "C*ab", "ramp.map_arm_chroma",
+       OUR_TARGET + " (1 C*ab of the palette plus rounding and the lit-end estimate, as "
+       "twin-chroma-map)"),
     _r("ramp-neutral-midpoint", "C*ab of a diverging ramp's midpoint (a warning: a coloured "
        "midpoint may be meant)", "<=", "C*ab", "ramp.midpoint_chroma", NO_SOURCE,
        severity="warning", measured="the ramp's 8-bit colours"),

@@ -42,7 +42,8 @@ from compose.check.stats import N_LIGHTNESS
 from compose.color.cvd import simulate_cvd
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 
-__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "TwinGap", "twin_gaps",
+__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "TwinGap", "twin_gaps", "ArmBands",
+           "diverging_themes",
            "drawn_colors", "drawn_lightness", "position_groups", "fill_gaps",
            "pooled_gap", "twin_lightness_map",
            "twin_lightness_map_deutan", "twin_lightness_map_protan", "diverging_symmetry_map",
@@ -148,11 +149,13 @@ def _rule_id(base: str, vision: str) -> str:
     return base if vision == "normal" else f"{base}-{vision}"
 
 
-def _neutral_ground_fix(ctx: CheckContext, vision: str) -> tuple[str, Change | None]:
+def _neutral_ground_fix(ctx: CheckContext, vision: str, measure: str = "lightness"
+                        ) -> tuple[str, Change | None]:
     """A coloured ground multiplied under the data shifts hues by different amounts of L*: the
     fix makes the ground's tint neutral (a neutral multiply scales every channel alike, so equal
     L* stay about equal) and at least L* 88 (a dark grey still parts them, through sRGB's linear
-    toe)."""
+    toe). ``measure`` "chroma": the same tint multiplied in shifts the chroma of hues unequally
+    (a warm tint adds chroma to yellows and browns and takes it from blues)."""
     for spec, _s in ctx.layers("ground", ("relief",)):
         L, C, h = (float(v) for v in srgb_to_lch(np.asarray(spec.options.tint, dtype=float)))
         if C <= 3.0 and L >= 88.0:
@@ -162,8 +165,11 @@ def _neutral_ground_fix(ctx: CheckContext, vision: str) -> tuple[str, Change | N
         Ln = max(L, 88.0)
         new = hex8(lch_rgb8(np.array([Ln, 0.0, h])))
         said = "at the same L*" if Ln == L else f"and light (L* {Ln:.0f})"
-        return (f'the {spec.name} tint (L* {L:.1f}, C* {C:.1f}) darkens some hues more than others '
-                f'in {vision} vision: make it neutral {said}, tint = "{new}"',
+        does = (f"darkens some hues more than others in {vision} vision" if measure != "chroma"
+                else "multiplied under the data shifts the chroma of their hues unequally (a warm "
+                "tint adds chroma to yellows and browns and takes it from blues, as drawn)")
+        return (f'the {spec.name} tint (L* {L:.1f}, C* {C:.1f}) {does}: make it neutral {said}, '
+                f'tint = "{new}"',
                 Change(layer_key(spec.name), {"tint": new}))
     return "", None
 
@@ -268,8 +274,8 @@ def _own_gap_fix(gap: float, what: str, vision: str) -> str:
 
 
 def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
-              own: tuple[float, str] | None = None, value: float | None = None
-              ) -> tuple[str, Change | None]:
+              own: tuple[float, str] | None = None, value: float | None = None,
+              measure: str = "lightness") -> tuple[str, Change | None]:
     """The fix of a twin pair apart on the map; ``own``: (the ramps' own gap, its fix text) for
     a measure other than L* (default: their L* gap); ``value``: the gap measured on the map
     (for the opacity of a layer drawn over them, :mod:`compose.check.covering`)."""
@@ -297,7 +303,7 @@ def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
     gap, text = own if own is not None else (_palette_gap(ctx, r, r.base, vision), "")
     if gap > limit and not steps:
         return text or _own_gap_fix(gap, f'the ramps "{r.name}" and "{r.base.name}"', vision), None
-    steps += _blend_steps(ctx, [tspec, bspec], vision)
+    steps += _blend_steps(ctx, [tspec, bspec], vision, measure)
     if not steps:
         from compose.check.covering import covering_step
         cover = None if value is None else covering_step(
@@ -316,7 +322,8 @@ def _twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
     return _in_steps(unique)
 
 
-def _blend_steps(ctx: CheckContext, specs, vision: str) -> list[tuple[str, Change]]:
+def _blend_steps(ctx: CheckContext, specs, vision: str, measure: str = "lightness"
+                 ) -> list[tuple[str, Change]]:
     """Changes that make equal lightness stay equal once blended: a theme drawn at opacity < 1
     mixes its colours with what lies beneath in gamma-encoded sRGB, which moves blue and brown of
     one L* by different amounts (opacity 1); a coloured ground multiplied under the data does the
@@ -328,7 +335,7 @@ def _blend_steps(ctx: CheckContext, specs, vision: str) -> list[tuple[str, Chang
                         "colours of one L* drift apart)", Change(layer_key(spec.name),
                                                                  {"opacity": 1.0})))
     if any(s.blend != "normal" or s.opacity < 1.0 for s in specs):
-        text, change = _neutral_ground_fix(ctx, vision)
+        text, change = _neutral_ground_fix(ctx, vision, measure)
         if change is not None:
             out.append((text, change))
     return out
@@ -376,10 +383,26 @@ def twin_lightness_map_protan(ctx: CheckContext) -> list[RuleResult]:
 
 # --- diverging ------------------------------------------------------------------------------
 
-def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
-    rule = _rule_id("diverging-symmetry-map", vision)
-    limit = _limit(ctx, rule)
-    out = []
+@dataclass(frozen=True)
+class ArmBands:
+    """The palette entries of a diverging theme grouped by distance from the centre: ``groups``
+    (n_entries,) band 0..half-1 on the low arm, half..2*half-1 on the high arm, -1 for the
+    centre itself and the outside / no-data entries; ``center``, ``lo``, ``hi`` of the ramp."""
+    groups: np.ndarray
+    half: int
+    center: float
+    lo: float
+    hi: float
+
+    def near(self, k: int) -> tuple[float, float]:
+        """The data values at the middle of band ``k`` on the low and on the high arm."""
+        return (self.center - (k + 0.5) / self.half * (self.center - self.lo),
+                self.center + (k + 0.5) / self.half * (self.hi - self.center))
+
+
+def diverging_themes(ctx: CheckContext) -> Iterator[tuple[Any, Any, Any, ArmBands]]:
+    """(spec, stats, ramp, bands) of every field theme drawn with a diverging ramp: each arm in
+    :data:`BANDS` // 2 bands of equal distance from the centre, as a share of that arm's reach."""
     for spec, s in ctx.layers("theme", ("field",)):
         ramp = ctx.ramp_of(spec)
         if ramp is None or ramp.kind != "diverging" or s.values is None:
@@ -389,13 +412,21 @@ def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
         center = float(ramp.center if ramp.center is not None else sum(ramp.domain) / 2)
         lo, hi = (float(v) for v in ramp.domain)
         half = BANDS // 2
-        # each arm in bands of equal distance from the centre (as a share of that arm's reach)
         reach = np.where(values < center, (center - values) / max(center - lo, 1e-12),
                          (values - center) / max(hi - center, 1e-12))
         band = np.minimum((np.clip(reach, 0.0, 1.0) * half).astype(int), half - 1)
         groups = np.full(len(s.values), -1, dtype=int)
         groups[:n] = np.where(values < center, band, half + band)
         groups[:n][np.abs(values - center) < 1e-12] = -1
+        yield spec, s, ramp, ArmBands(groups, half, center, lo, hi)
+
+
+def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
+    rule = _rule_id("diverging-symmetry-map", vision)
+    limit = _limit(ctx, rule)
+    out = []
+    for spec, s, ramp, arms in diverging_themes(ctx):
+        groups, half, center = arms.groups, arms.half, arms.center
         got = drawn_lightness(s, groups, 2 * half, vision)
         if got is None:
             continue
@@ -410,8 +441,7 @@ def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
             continue
         value, k = pooled
         passed = value <= limit
-        at_lo = center - (k + 0.5) / half * (center - lo)
-        at_hi = center + (k + 0.5) / half * (hi - center)
+        at_lo, at_hi = arms.near(k)
         msg = (f"|dL*| between the arms as drawn on the map, at equal distance from {center:g}, "
                f"in {vision} vision: p90 over {half} distances {value:.2f} (near {at_lo:.3g} / "
                f"{at_hi:.3g}: L* {L[k]:.1f} vs {L[half + k]:.1f}); limit {limit:g}")

@@ -16,6 +16,7 @@ from compose.check.classes import (
     classes_separation_protan,
 )
 from compose.check.context import CheckContext
+from compose.check.diverging_chroma import diverging_chroma_map
 from compose.check.finish import roles_present
 from compose.check.hierarchy import (
     ground_chroma,
@@ -93,6 +94,7 @@ RULES: dict[str, Rule] = {
     "diverging-symmetry-map": diverging_symmetry_map,
     "diverging-symmetry-map-deutan": diverging_symmetry_map_deutan,
     "diverging-symmetry-map-protan": diverging_symmetry_map_protan,
+    "diverging-chroma-map": diverging_chroma_map,
     "ramp-neutral-midpoint": ramp_neutral_midpoint,
     "ramp-break-visible": ramp_break_visible,
 }

@@ -189,7 +189,8 @@ class RampBudget:
     %), diverging symmetry and threshold continuity (|dL*|), neutral midpoint (C*ab), the break
     showing (dE00), twins (|dL*|, |dC*|, hue degrees); ``map_lightness`` / ``map_lightness_cvd``:
     |dL*| of twins and of diverging arms as drawn on the map (normal / simulated deutan, protan);
-    ``map_chroma``: |dC*ab| of twins as drawn on the map (normal vision)."""
+    ``map_chroma``: |dC*ab| of twins as drawn on the map (normal vision); ``map_arm_chroma``:
+    |dC*ab| of a diverging theme's two arms at equal distance from the centre, as drawn."""
 
     evenness: float = option(number(ge=0), 10.0)
     symmetry: float = option(number(ge=0), 1.0)
@@ -202,6 +203,7 @@ class RampBudget:
     map_lightness: float = option(number(ge=0), 2.0)
     map_lightness_cvd: float = option(number(ge=0), 6.0)
     map_chroma: float = option(number(ge=0), 3.0)
+    map_arm_chroma: float = option(number(ge=0), 3.0)
 
 
 def _theme(value: Any, at: Scope) -> ThemeBudget:

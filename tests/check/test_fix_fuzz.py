@@ -3,7 +3,9 @@ derandomised, so CI runs the same cases every time) on the tiny 64 x 64 test map
 rule's proposed change is in sRGB gamut, the patched style loads, and the rule passes for that
 subject when the patched style is checked again.
 
-``COMPOSE_FIX_FUZZ_CASES=N`` runs more cases (default 6, a few seconds).
+``COMPOSE_FIX_FUZZ_CASES=N`` runs more cases (default 6, a few seconds; 160 pass). Fixed cases
+beside the random ones make sure the on-map chroma rules (``diverging-chroma-map``,
+``twin-chroma-map``) and the fix that makes a haze over one twin fainter are exercised every run.
 
 Known first steps, asserted as an improvement rather than a pass (their text says so):
 ``grayscale-order`` on a ramp whose own lightness turns back proposes the respaced ramp, and
@@ -173,3 +175,51 @@ def test_every_fix_of_fuzzed_failing_styles_works(data, tmp_path_factory):
 
     run()
     assert not found, "\n".join(found)
+
+
+def _half_haze(folder: Path) -> str:
+    from tests.check._maps import N, _vector, xy
+    east = [({"type": "Polygon", "coordinates": [[xy(N / 2, 0), xy(N, 0), xy(N, N),
+                                                  xy(N / 2, N), xy(N / 2, 0)]]}, {"name": "e"})]
+    return str(_vector(folder / "east_haze.gpkg", "Polygon", east, {"name": "str"}))
+
+
+LOPSIDED = {**DIV, "through": [{"L": 40, "C": 16, "h": 250}, {"L": 95, "C": 0, "h": 90},
+                               {"L": 40, "C": 34, "h": 30}]}
+
+
+def test_every_fix_of_the_chroma_and_covering_cases_works(data, tmp_path):
+    # fixed cases for the rules the random styles reach only now and then: a diverging theme's
+    # arms apart in chroma (diverging-chroma-map) -- multiplied over a warm ground, drawn faint
+    # over one, on a coloured paper, with a lopsided palette -- and a haze over one twin
+    warm = {"L": 90, "C": 12, "h": 70}
+    cases = [
+        style([relief(data["hills"], tint=warm, blend="multiply"),
+               field(data["scatter"], ramp="div", blend="multiply", nodata="transparent")],
+              {"div": DIV}),
+        style([relief(data["hills"], tint=warm),
+               field(data["scatter"], ramp="div", opacity=0.7, nodata="transparent")],
+              {"div": DIV}),
+        style([relief(data["hills"], tint="#eeeeee", blend="multiply"),
+               field(data["scatter"], ramp="div", blend="multiply", nodata="transparent")],
+              {"div": DIV}, map_=base_map(background="#f5e6d0")),
+        style([relief(data["hills"], tint="#eeeeee"),
+               field(data["scatter"], ramp="div", blend="multiply", nodata="transparent")],
+              {"div": LOPSIDED}),
+        style([relief(data["hills"], tint="#eeeeee"),
+               field(data["scatter_west"], name="val", nodata="transparent", blend="multiply"),
+               field(data["scatter_east"], ramp="sea", name="sea", nodata="transparent",
+                     blend="multiply"),
+               {"name": "haze", "role": "ground", "kind": "areas", "fill": "#8c8c8c",
+                "opacity": 0.4, "source": _half_haze(tmp_path)}],
+              {"land": LAND, "sea": {"twin": "land", "hue": [215, 240]}}),
+    ]
+    seen: set = set()
+    problems: list[str] = []
+    for k, doc in enumerate(cases):
+        rep = check(tmp_path, doc, f"case-{k}")
+        seen |= {r.rule for r in rep.rules if not r.passed and r.change is not None}
+        (tmp_path / f"c{k}").mkdir()
+        problems += check_every_fix(tmp_path / f"c{k}", doc)
+    assert {"diverging-chroma-map", "twin-chroma-map", "twin-lightness-map"} <= seen, seen
+    assert not problems, "\n".join(problems)

@@ -48,6 +48,37 @@ def test_a_warm_ground_multiplied_under_the_twins_parts_their_chroma(data, tmp_p
     assert one(fixed, "twin-chroma-map").passed and one(fixed, "twin-lightness-map").passed
 
 
+def _pixel_truth(tmp_path, doc) -> float:
+    """p90 over rows of |dC*ab| between the west (land) and east (sea) twin on flat ground, from
+    the rendered PNG by colour-science (sRGB IEC 61966-2-1 -> XYZ -> CIELAB, CIE 15:2004): each
+    row holds one value in both halves, and flat ground shades every pixel alike."""
+    from matplotlib.image import imread
+
+    from compose.render import render_style
+    from compose.style import load_style
+    from tests.check._maps import write_style
+    tmp_path.mkdir(parents=True, exist_ok=True)
+    result = render_style(load_style(write_style(tmp_path, doc, "truth")), tmp_path / "out",
+                          legend=False)
+    rgb = imread(result.outputs["png"])[..., :3].astype(float)
+    C = colour.Lab_to_LCHab(colour.XYZ_to_Lab(colour.sRGB_to_XYZ(rgb)))[..., 1]
+    return float(np.percentile(np.abs(C[:, N // 4] - C[:, 3 * N // 4]), 90))
+
+
+def test_the_warm_ground_shift_is_on_the_pixels_not_an_artefact(data, tmp_path):
+    # flat ground: no shading, so the lit-end estimate has nothing to correct; the rule's value
+    # and the rendered pixels agree, warm (default tint, C* 4.2) and neutral alike
+    for ground, low, high in (({}, 3.0, 4.5), (NEUTRAL, 0.0, 1.0)):
+        doc = twins(data, ground=ground)
+        doc["layer"][0]["source"] = str(data["flat"])
+        rule = one(check(tmp_path, doc, "flat"), "twin-chroma-map").value
+        truth = _pixel_truth(tmp_path / ("w" if not ground else "n"), doc)
+        assert low <= truth <= high and abs(rule - truth) <= 0.5, (rule, truth)
+    # the warm case fails, says why in chroma terms, and its fix works (above)
+    bad = one(check(tmp_path, twins(data), "warm-why"), "twin-chroma-map")
+    assert "chroma" in bad.fix and "warm" in bad.fix
+
+
 def test_a_tinted_layer_over_one_twin_fails_though_the_palettes_match(data, tmp_path):
     doc = _tinted_half(tmp_path, data, "#8c8c8c", 0.4)     # neutral grey haze over the sea only
     rep = check(tmp_path, doc, "haze")
