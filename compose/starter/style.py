@@ -39,6 +39,9 @@ _WATER_WORDS = re.compile(r"(river|stream|water|coast|shore|lake|sea|canal|creek
 # map colours of the starter, CIE LCh(ab) (our own choices, as in the demo styles)
 _PAPER = "{ L = 98, C = 1.5, h = 90 }"        # halos: a warm near-white
 _BACKGROUND = "{ L = 97, C = 1.5, h = 90 }"   # under the first layer
+_BACKGROUND_NEUTRAL = "{ L = 97, C = 0, h = 90 }"
+_TINT = "tint     = { L = 95, C = 3, h = 85 }"  # the relief's warm light tint
+_TINT_NEUTRAL = "tint     = { L = 95, C = 0, h = 85 }"
 _INK = "{ L = 18, C = 0, h = 0 }"             # point markers
 _TEXT = "{ L = 14, C = 0, h = 0 }"            # label text
 _WHITE = "{ L = 100, C = 0, h = 0 }"          # marker edges and label halos
@@ -119,6 +122,11 @@ def _library(name: str):
     return library_tables()[name].table
 
 
+def _diverging(f: RasterFacts) -> bool:
+    """True when :func:`_ramp_text` gives ``f`` a diverging ramp (signed values, not classes)."""
+    return bool(f.signed) and not (f.classes and 2 <= len(f.classes) <= QUALITATIVE_MAX)
+
+
 def _ramp_text(name: str, f: RasterFacts) -> tuple[str, str, str]:
     """(ramp table text, layer kind, reason) for a theme raster."""
     if f.classes and 2 <= len(f.classes) <= QUALITATIVE_MAX:
@@ -131,7 +139,7 @@ def _ramp_text(name: str, f: RasterFacts) -> tuple[str, str, str]:
                f"({', '.join(_num(v) for v in f.classes)}): classes, qualitative ramp")
         return text, "classes", why
     p2, _, p98 = f.percentiles
-    if f.signed:
+    if _diverging(f):
         m = max(nice_outward(0, max(abs(p2), abs(p98))))
         stops = ",\n".join(f"  {_lch_text(s)}" for s in _library("change")["through"])
         text = (f"# diverging around 0: p2 {_num(p2)}, p98 {_num(p98)} -> domain +-{_num(m)}\n"
@@ -234,7 +242,7 @@ def starter_style(facts: list[RasterFacts | list[VectorFacts]], style_path: Path
                      f'[[layer]]\nname     = "{relief_name}"\nrole     = "ground"\nkind     = "relief"\n'
                      f'source   = "{_rel(dem.path, folder)}"\n'
                      f"shade    = {{ azimuth = 315, altitude = 45, exaggeration = 2 }}\n"
-                     f"tint     = {{ L = 95, C = 3, h = 85 }}\nstrength = 0.55\nblend    = \"multiply\"\n")
+                     f"{_TINT}\nstrength = 0.55\nblend    = \"multiply\"\n")
     themes = [f for f in rasters if f is not dem]
     first_theme = None
     for i, f in enumerate(themes):
@@ -262,6 +270,14 @@ def starter_style(facts: list[RasterFacts | list[VectorFacts]], style_path: Path
     grid_layer = relief_name if dem is not None else first_theme
     title = (first_theme or relief_name or "Map").capitalize()
     map_text, map_why = _map_table(Path(style_path).stem, title, grid, vectors, grid_layer)
+    if themes and _diverging(themes[0]):
+        # under a diverging theme a warm paper and tint add chroma to the warm arm and take it
+        # from the cool one (rule diverging-chroma-map): both neutral
+        map_text = map_text.replace(f"background = {_BACKGROUND}",
+                                    f"background = {_BACKGROUND_NEUTRAL}   # neutral under "
+                                    "a diverging theme")
+        parts = [t.replace(_TINT, _TINT_NEUTRAL + "   # neutral under a diverging theme")
+                 for t in parts]
     choices.insert(0, Choice("[map]", "canvas", map_why.removeprefix("canvas: ")))
     header = ("# Starter style written by `compose init`: every choice below is a starting point.\n"
               "# Render with `compose render THIS.toml`; the check says what to change, in numbers.\n"
