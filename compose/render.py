@@ -128,6 +128,28 @@ def _warm_imports(page: bool, legend: bool) -> None:
                          daemon=True).start()
 
 
+def _page_job(style, prepared, tmp: dict[str, Path], legend: bool):
+    """The :class:`compose.page.process.PageJob` of a render, its page process forked now
+    when it can (before the render starts any thread): with ``prepared`` None before the
+    render is prepared (then :meth:`~compose.page.process.PageJob.attach` it), else after.
+    ``legend``: the page process also draws the legend PNG. Its ``sink`` keeps the map in memory
+    shared with that process."""
+    from types import SimpleNamespace
+
+    from compose.page.process import PageJob
+    from compose.page.write import PageSink, page_ahead, vector_split, warm_writers, write_page
+
+    # the layers under the top run of overlays form the page's raster (by kind, known from the
+    # specs already); the canvas is the style's (prepare makes the same)
+    specs = [SimpleNamespace(spec=spec) for spec in style.layers if spec.enabled]
+    canvas = prepared.canvas if prepared is not None else style.canvas()
+    sink = PageSink(canvas, vector_split(prepared.layers if prepared is not None else specs))
+    return PageJob(style, prepared, sink, tmp, write_page, warm=warm_writers,
+                   ahead=lambda run_: page_ahead(style, run_, sink),
+                   legend=(lambda run_, nodata: _legend_png(style, run_, nodata)) if legend
+                   else None)
+
+
 def render_style(style, out_dir: Path, *, overwrite: bool = False,
                  progress: Callable[[int, int], None] | None = None,
                  extra_sinks: list | None = None, legend: bool = True, check: bool = True,
@@ -153,10 +175,15 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     from compose.page.write import blocked_for
 
     outputs = OutputSet(paths, overwrite=overwrite, name=style.name)   # lock, leftovers, existing
+    early = None
     try:
+        if style.page is not None:      # forked now: its imports load beside the preparation
+            early = _page_job(style, None, outputs.temporaries(), legend or html)
         with span("prepare"):
             prepared = prepare(style, ramps=ramps, keep_clear=blocked_for)
     except BaseException:
+        if early is not None:
+            early.abort()
         outputs.close()
         raise
     seconds = prepared.seconds
@@ -167,17 +194,15 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
         with contextlib.ExitStack() as stack:
             tmp = outputs.temporaries()
             page_sink = page_job = None
-            if style.page is not None:
-                # the page's process is forked now, before the render starts any thread
-                from compose.page.process import PageJob
-                from compose.page.write import PageSink, page_ahead, vector_split, warm_writers, write_page
-
-                page_sink = PageSink(canvas, vector_split(prepared.layers))
-                page_job = PageJob(style, prepared, page_sink, tmp, write_page, warm=warm_writers,
-                                   ahead=lambda: page_ahead(style, prepared, page_sink),
-                                   legend=(lambda nodata: _legend_png(style, prepared, nodata))
-                                   if legend or html else None)
-                stack.callback(page_job.abort)
+            if early is not None:
+                stack.callback(early.abort)
+                if early.attach(prepared):
+                    page_job = early
+                else:       # the prepared render could not be sent: fork after it instead
+                    early.abort()
+                    page_job = _page_job(style, prepared, tmp, legend or html)
+                    stack.callback(page_job.abort)
+                page_sink = page_job.sink
             forked = page_job is not None and page_job.forked
             if not forked:      # with the page in its own process, the cores are busy now
                 _warm_imports(page=page_job is not None, legend=legend or html)

@@ -2,16 +2,20 @@
 other core, beside the rest of the render.
 
 Drawing a page is matplotlib work that holds the interpreter lock, so a thread would not run it
-beside the map's walk or the review page. :class:`PageJob` forks the render right after it is
-prepared (the child shares the prepared layers, ramps and label placements copy-on-write; nothing
-is prepared twice) and before any other thread of the render starts. The child loads the page
-writers' modules while the parent walks the windows into the page sink, whose two images live in
-memory shared by both processes (:func:`shared_image`). When the walk is done the parent hands
-over the one thing the page still needs (which layers showed no-data on the map) and goes on with
-its own outputs; the child sends the page's layout back first (the check judges the furniture
-with it) and its seconds when all three files are written to their temporary names. The parent
-waits for it before the output set is committed, kills it if the render fails, and re-raises its
-error (a style error stays a style error: exit 2).
+beside the map's walk or the review page. :class:`PageJob` forks the render as soon as its
+style is loaded, before any other thread starts: the child loads the page writers' modules
+while the parent loads its own and prepares the render, then gets the prepared render's
+canvas, ramps and layers pickled (:mod:`compose.page.handover`: the style's own objects by
+reference, the layers' open sources left behind; nothing is prepared twice). When they cannot
+be pickled the render is forked after its preparation instead, the child sharing the prepared
+layers copy-on-write. The child starts the page's figure while the parent walks the windows
+into the page sink, whose two images live in memory shared by both processes
+(:func:`shared_image`). When the walk is done the parent hands over the one thing the page still
+needs (which layers showed no-data on the map) and goes on with its own outputs; the child sends
+the page's layout back first (the check judges the furniture with it) and its seconds when all
+three files are written to their temporary names. The parent waits for it before the output set
+is committed, kills it if the render fails, and re-raises its error (a style error stays a style
+error: exit 2).
 
 Where forking is not safe or possible (another thread is running, so a lock could be copied held;
 not Linux) the page is written in this process, at the same point and with the same result.
@@ -27,6 +31,7 @@ import threading
 import time
 from collections.abc import Callable
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -148,24 +153,35 @@ class Forked:
         _end_child(self, kill=True)
 
 
-def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> None:
-    """The forked process: load the writers, wait for the walk, write the page. Never returns."""
+def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
+    """The forked process: load the writers, get the prepared render when it was forked before
+    it (:meth:`PageJob.attach`), start the page's figure, wait for the walk, write the page.
+    Never returns."""
     status = 0
     try:
         signal.signal(signal.SIGINT, signal.SIG_DFL)      # an interrupt ends it quietly; the
         signal.signal(signal.SIGTERM, signal.SIG_DFL)     # parent cleans up the temporaries
         _die_with_parent(parent)
-        if warm is not None:
+        if job._warm is not None:
             with span("page imports"):
-                warm()
-        started = None
-        if ahead is not None:                  # while the parent walks the windows
-            try:
-                with span("page ahead"):
-                    started = ahead()
-            except Exception:                  # the writer builds it again and reports
-                started = None
+                job._warm()
         with os.fdopen(inbox, "rb") as inp, os.fdopen(outbox, "wb") as out:
+            prepared = job._prepared
+            if prepared is None:               # forked before the render was prepared
+                try:
+                    with span("page waits for the prepared render"):
+                        message = pickle.load(inp)
+                except EOFError:                          # the render ended without a page
+                    os._exit(0)
+                with span("page unpacks the prepared render"):
+                    prepared = _unpacked(job, message[1])
+            started = None
+            if job._ahead is not None:         # while the parent walks the windows
+                try:
+                    with span("page ahead"):
+                        started = job._ahead(prepared)
+                except Exception:              # the writer builds it again and reports
+                    started = None
             try:
                 with span("page waits for walk"):
                     nodata = pickle.load(inp)
@@ -179,11 +195,14 @@ def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> 
                     # drawn by the process that draws the page PNG (forked from this one
                     # after the layout was sent: it writes to the parent while this one writes
                     # the PDF and SVG and sends nothing until that process is done)
-                    if legend is not None:
+                    if job._legend is not None:
                         with span("legend png"):
-                            _send(out, ("legend", legend(nodata)))
+                            _send(out, ("legend", job._legend(prepared, nodata)))
 
-                seconds, _ = write(nodata, on_layout, started, with_png)
+                # alone in its process, the page may fork once more: the page PNG beside the PDF
+                kw = {"ahead": started} if started is not None else {}
+                seconds, _ = job._write(job._style, prepared, job._sink, job._tmp, nodata,
+                                        on_layout=on_layout, fork=True, with_png=with_png, **kw)
                 _send(out, ("done", seconds))
             except BaseException as exc:                  # noqa: BLE001 - handed to the parent
                 status = 1
@@ -194,27 +213,39 @@ def _child(inbox: int, outbox: int, parent: int, write, warm, ahead, legend) -> 
         os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
 
 
+def _unpacked(job: PageJob, data: bytes) -> SimpleNamespace:
+    """The page process's stand-in for the prepared render: what :meth:`PageJob.attach` sent."""
+    from compose.page.handover import unpack
+
+    canvas, ramps, layers, blocked = unpack(data, job._shared or {})
+    return SimpleNamespace(style=job._style, canvas=canvas, ramps=ramps, layers=layers,
+                           blocked=blocked)
+
+
 class PageJob:
     """Writes the page of one render in a forked process when it can (:func:`can_fork`), else
     in this process: ``write(style, prepared, sink, tmp, nodata_seen, on_layout=None) ->
     (seconds, layout)`` (:func:`compose.page.write.write_page`); ``warm()``: loads what it needs,
-    run first in the child; ``ahead()``: work done in the child while the walk runs, handed to
-    ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`); ``legend(nodata_seen)``:
-    the legend PNG's bytes, drawn beside the PDF by the process drawing the page PNG
-    (``write``'s ``with_png``) and sent here (:meth:`legend`), so this process needs no
-    drawing library of its own.
+    run first in the child; ``ahead(prepared)``: work done in the child while the walk runs,
+    handed to ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`);
+    ``legend(prepared, nodata_seen)``: the legend PNG's bytes, drawn beside the PDF by the
+    process drawing the page PNG (``write``'s ``with_png``) and sent here (:meth:`legend`), so
+    this process needs no drawing library of its own.
 
-    Create it once the render is prepared and its :class:`compose.page.write.PageSink` exists,
-    before other threads start; then :meth:`start` with the walk's no-data layers, :meth:`layout`
-    for the page layout, :meth:`wait` for the writers' seconds (before committing the outputs);
-    :meth:`abort` (always, on the way out) ends a child still running.
+    Create it before other threads start: with ``prepared`` None as soon as the style is
+    loaded, then :meth:`attach` the prepared render (the child loads its modules beside this
+    process's preparation), or once the render is prepared. The
+    :class:`compose.page.write.PageSink` must exist before. Then :meth:`start` with the walk's
+    no-data layers, :meth:`layout` for the page layout, :meth:`wait` for the writers' seconds
+    (before committing the outputs); :meth:`abort` (always, on the way out) ends a child still
+    running.
     """
 
     def __init__(self, style, prepared, sink, tmp: dict[str, Path], write: Callable, *,
-                 warm: Callable[[], None] | None = None, ahead: Callable[[], Any] | None = None,
-                 legend: Callable[[set[str] | None], bytes] | None = None,
+                 warm: Callable[[], None] | None = None, ahead: Callable[[Any], Any] | None = None,
+                 legend: Callable[[Any, set[str] | None], bytes] | None = None,
                  forked: bool | None = None):
-        self._args = (style, prepared, sink, tmp)
+        self._style, self._prepared, self._sink, self._tmp = style, prepared, sink, tmp
         self._write = write
         self._warm = warm
         self._ahead = ahead
@@ -228,7 +259,12 @@ class PageJob:
         self._layout = None
         self._seconds: dict[str, float] | None = None
         self._waited = 0.0
+        self._shared: dict[int, object] | None = None
         if forked if forked is not None else can_fork():
+            if prepared is None:    # what the child will get back by reference (same objects)
+                from compose.page.handover import shared_objects
+
+                self._shared = shared_objects(style)
             self._fork()
 
     @property
@@ -236,29 +272,46 @@ class PageJob:
         """Whether the page is written by a forked process."""
         return self._forked
 
+    @property
+    def sink(self):
+        """The :class:`compose.page.write.PageSink` the walk fills for the page."""
+        return self._sink
+
     def _fork(self) -> None:
         down_r, down_w = os.pipe()
         up_r, up_w = os.pipe()
         parent = os.getpid()
-        style, prepared, sink, tmp = self._args
-
-        def write(nodata, on_layout, started, with_png):
-            # alone in its process, the page may fork once more: the page PNG beside the PDF
-            kw = {"ahead": started} if started is not None else {}
-            return self._write(style, prepared, sink, tmp, nodata, on_layout=on_layout,
-                               fork=True, with_png=with_png, **kw)
-
         pid = os.fork()
         if pid == 0:                                          # the child
             os.close(down_w)
             os.close(up_r)
-            _child(down_r, up_w, parent, write, self._warm, self._ahead, self._legend)
+            _child(down_r, up_w, parent, self)
         os.close(down_r)
         os.close(up_w)
         self.pid = pid
         self._forked = True
         self._outbox = os.fdopen(down_w, "wb")
         self._inbox = os.fdopen(up_r, "rb")
+
+    def attach(self, prepared) -> bool:
+        """Hand over the prepared render of a job created without one: to the forked process,
+        its canvas, ramps, layers and keep-clear boxes pickled (:mod:`compose.page.handover`).
+        False when they cannot be pickled: end this job (:meth:`abort`) and create one with the
+        prepared render."""
+        if self._prepared is not None:
+            return True
+        if self.forked:
+            from compose.page.handover import pack
+
+            try:
+                with span("pack the prepared render"):
+                    data = pack((prepared.canvas, prepared.ramps, prepared.layers,
+                                 prepared.blocked), self._shared or {})
+            except Exception:
+                return False
+            _send(self._outbox, ("prepared", data))
+        self._prepared = prepared
+        return True
 
     def start(self, nodata_seen: set[str] | None) -> None:
         """The walk is done: let the page be written (in the child; here it waits for
@@ -300,8 +353,8 @@ class PageJob:
             if self.forked:
                 self._layout = self._get("layout")[0]
             else:
-                style, prepared, sink, tmp = self._args
-                self._seconds, self._layout = self._write(style, prepared, sink, tmp, self._nodata)
+                self._seconds, self._layout = self._write(self._style, self._prepared, self._sink,
+                                                          self._tmp, self._nodata)
         return self._layout
 
     def wait(self) -> dict[str, float]:

@@ -40,6 +40,28 @@ def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
     assert there.outputs["legend"].read_bytes() == here.outputs["legend"].read_bytes()
 
 
+def test_a_page_forked_before_the_render_was_prepared_is_the_same_page(tmp_path, monkeypatch):
+    """render_style forks the page process before preparing and hands the prepared render
+    over (compose.page.handover); when it cannot be pickled, the page is forked after it."""
+    from compose.page import handover
+
+    here = _render(tmp_path, "here", False, monkeypatch)
+    attached = []
+    attach = process.PageJob.attach
+    monkeypatch.setattr(process.PageJob, "attach",
+                        lambda self, run_: attached.append(self._prepared is None)
+                        or attach(self, run_))
+    early = _render(tmp_path, "early", True, monkeypatch)
+    assert attached == [True]
+    # a layer that cannot be pickled: the early process is ended, a late one writes the page
+    monkeypatch.setattr(handover, "pack", lambda obj, shared: (_ for _ in ()).throw(TypeError))
+    late = _render(tmp_path, "late", True, monkeypatch)
+    for other in (early, late):
+        for kind in ("page", "legend", "png"):
+            assert other.outputs[kind].read_bytes() == here.outputs[kind].read_bytes(), kind
+        assert _pdf_without_date(other.outputs["pdf"]) == _pdf_without_date(here.outputs["pdf"])
+
+
 def test_shared_image_is_seen_by_a_forked_process():
     image = process.shared_image(4, 5)
     assert image.shape == (4, 5, 3) and image.dtype == np.uint8 and not image.any()
@@ -85,7 +107,8 @@ def test_layout_first_then_seconds(monkeypatch):
         return {"pdf": 0.5}, None
 
     job = process.PageJob(None, _Prepared(), None, {}, fake_write, forked=True,
-                          legend=lambda nodata: b"legend of " + ",".join(sorted(nodata)).encode())
+                          legend=lambda run_, nodata: b"legend of "
+                          + ",".join(sorted(nodata)).encode())
     job.start({"b", "a"})
     assert job.layout() == {"nodata": ["a", "b"]}
     assert job.legend() == b"legend of a,b"
