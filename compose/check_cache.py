@@ -46,7 +46,8 @@ import numpy as np
 
 from compose.layers.base import Paint, Palette
 
-__all__ = ["CACHE_ENV", "CACHE_VERSION", "MAX_PIXELS", "cache_dir", "clear_cache", "CheckCache",
+__all__ = ["CACHE_ENV", "CACHE_VERSION", "MAX_PIXELS", "MAX_BYTES", "cache_dir", "clear_cache",
+           "trim_cache", "CheckCache",
            "CachedLayer", "layer_colors"]
 
 #: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
@@ -56,6 +57,9 @@ CACHE_VERSION = 1
 #: Canvases larger than this many pixels are not cached (a full check at 8192 x 8192 would hold
 #: and write hundreds of MB; its draft is cached).
 MAX_PIXELS = 4096 * 4096
+#: The check's entries are kept under this many bytes: after a check stores new entries, the
+#: least recently used ones go (an entry read by a check counts as used).
+MAX_BYTES = 2 << 30
 #: Option names whose 3-number values are colours (replaced by a placeholder in the key).
 COLOR_KEYS = frozenset({"stroke", "fill", "color", "tint", "shadow", "nodata", "background",
                          "ink"})
@@ -495,8 +499,11 @@ class CheckCache:
             return build()
         if spec.kind == "labels":
             self._labels_before.append(key)
-        found = _load(self.folder / f"{key}.entry") if self.read else None
+        path = self.folder / f"{key}.entry"
+        found = _load(path) if self.read else None
         if found is not None:
+            with contextlib.suppress(OSError):
+                os.utime(path)                      # used now (the least recently used go)
             meta, arrays = found
             hit = CachedLayer(spec, meta, arrays, colors, ctx.ramps)
             if spec.kind == "labels":
@@ -535,4 +542,26 @@ class CheckCache:
                 n += 1
             except OSError:
                 pass
+        if n:
+            trim_cache(self.folder)
         return n
+
+
+def trim_cache(folder: Path, max_bytes: int = MAX_BYTES) -> int:
+    """Delete the least recently used entries until ``folder`` holds at most ``max_bytes``;
+    returns how many were deleted."""
+    entries = []
+    for path in folder.glob("*.entry"):
+        with contextlib.suppress(OSError):
+            st = path.stat()
+            entries.append((st.st_mtime_ns, st.st_size, path))
+    total = sum(size for _, size, _ in entries)
+    gone = 0
+    for _, size, path in sorted(entries):
+        if total <= max_bytes:
+            break
+        with contextlib.suppress(OSError):
+            path.unlink()
+            total -= size
+            gone += 1
+    return gone

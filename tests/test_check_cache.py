@@ -170,3 +170,14 @@ def test_a_warm_check_loads_no_geodata_or_drawing_library(tmp_path, data):
                                                             "pyogrio", "fiona", "osgeo"})
     assert heavy(cold) == ["matplotlib", "pyogrio", "rasterio", "shapely"]
     assert heavy(warm) == []
+
+
+def test_the_least_recently_used_entries_go_first(tmp_path):
+    folder = tmp_path / "check"
+    folder.mkdir()
+    for i, name in enumerate("abcd"):
+        (folder / f"{name}.entry").write_bytes(b"x" * 100)
+        os.utime(folder / f"{name}.entry", ns=(10**18 + i, 10**18 + i))
+    os.utime(folder / "a.entry")                # read just now: the most recently used
+    assert check_cache.trim_cache(folder, max_bytes=250) == 2
+    assert sorted(p.name for p in folder.iterdir()) == ["a.entry", "d.entry"]
