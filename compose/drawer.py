@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from compose.heap import trim
 from compose.layers.base import Paint
 
 __all__ = ["DrawAhead", "DRAWN_KINDS", "AHEAD", "warm"]
@@ -109,6 +110,13 @@ class DrawAhead:
         self._executor: Any = None
         # the executor once the helper is up; None before, and once closed or broken
         self._pool: Any = None
+        self._prepared = prepared
+        # the first window given to the helper, and the last one the threads drew themselves
+        # (their layers need this process's copy of the features until it is done)
+        self._first: int | None = None
+        self._last_here = -1
+        #: whether this process's copy of the drawn layers' features was dropped
+        self.released = False
         #: windows whose paints the helper process drew
         self.served = 0
         # the helper starts beside the walk: until it is up, the threads draw themselves
@@ -157,7 +165,28 @@ class DrawAhead:
     def _submit_through(self, last: int) -> None:
         while self._next <= min(last, len(self._windows) - 1) and self._pool is not None:
             self._futures[self._next] = self._pool.submit(_draw, self._windows[self._next])
+            if self._first is None:
+                self._first = self._next
             self._next += 1
+
+    def walked(self, window) -> None:
+        """The walk handed ``window``'s result on, and every window before it (results come in
+        window order). Once the windows the threads drew themselves are all done, this process's
+        copy of the drawn layers' features is dropped (the helper has its own): a window the
+        threads must still draw (the helper failed) reads them again."""
+        if self.released:
+            return
+        with self._lock:
+            i = self._index.get(window)
+            if (i is None or self._pool is None or self._first is None
+                    or i < max(self._first - 1, self._last_here)):
+                return
+            self.released = True
+        for li in sorted(self.layers):
+            release = getattr(self._prepared.layers[li], "release", None)
+            if release is not None:
+                release()
+        trim()
 
     def paints(self, window, li: int) -> list[Paint] | None:
         """Layer ``li``'s paints of ``window`` drawn by the helper process (waiting for them), or
@@ -168,6 +197,8 @@ class DrawAhead:
         with self._lock:
             i = self._index.get(window)
             if i is None or self._pool is None:
+                if i is not None:
+                    self._last_here = max(self._last_here, i)
                 return None
             # windows before this one that were never given to the helper are drawn by the
             # threads (the helper came up after the walk had passed them)
@@ -177,11 +208,15 @@ class DrawAhead:
             except Exception:   # the helper is gone: the threads draw from now on
                 self._pool = None
             future = self._futures.get(i)
+            if future is None:
+                self._last_here = max(self._last_here, i)
         if future is None:
             return None
         try:
             drawn = dict(future.result())
         except Exception:       # the helper failed: this thread draws (and raises what it raises)
+            with self._lock:
+                self._last_here = max(self._last_here, i)
             return None
         finally:
             with self._lock:

@@ -158,7 +158,10 @@ class ThreadMapper:
                 task = dataclasses.replace(task, drawn=drawer)
         try:
             with ThreadPoolExecutor(self.workers, thread_name_prefix="compose-window") as pool:
-                yield from ordered(lambda w: pool.submit(task, w), windows, self.in_flight)
+                for res in ordered(lambda w: pool.submit(task, w), windows, self.in_flight):
+                    if drawer is not None:
+                        drawer.walked(res.window)
+                    yield res
         finally:
             if drawer is not None:
                 drawer.close()

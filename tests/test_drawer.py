@@ -67,3 +67,61 @@ def test_nothing_to_draw_starts_nothing(tiny_region):
         assert DrawAhead.start(prepared, prepared.windows(WINDOW), only=rasters) is None
     finally:
         prepared.close()
+
+
+def _same(f, g):
+    return g.properties == f.properties and len(f) == len(g) and all(
+        a.equals_exact(b, 0) and a.geom_type == b.geom_type
+        for a, b in zip(f.geometries, g.geometries, strict=True))
+
+
+def test_released_features_read_again_and_pickled_whole(tiny_region):
+    prepared = prepare(load_style(tiny_region))
+    try:
+        layers = [la for la in prepared.layers if hasattr(la, "release")]
+        assert layers
+        for la in layers:
+            before = la.features
+            la.release()
+            assert la._held is None
+            assert _same(before, unpack(pack(la)).features)      # pickled with its features
+            assert la._held is not None                          # (read again for that)
+            la.release()
+            assert _same(before, la.features)
+    finally:
+        prepared.close()
+
+
+def test_walk_drops_this_process_features_once_the_helper_draws(tiny_region):
+    from compose.engine import WindowTask
+    from compose.parallel import ThreadMapper
+
+    prepared = prepare(load_style(tiny_region))
+    windows = prepared.windows(WINDOW)
+    try:
+        here = [render_window(prepared, w).rgb8 for w in windows]
+        layers = [prepared.layers[li] for li in range(len(prepared.layers))
+                  if hasattr(prepared.layers[li], "release")]
+        seen = []
+        real = DrawAhead.start
+
+        def start(*a, **k):
+            k["wait"] = True            # the helper up before the first window
+            d = real(*a, **k)
+            seen.append(d)
+            return d
+
+        DrawAhead.start = start
+        try:
+            mapper = ThreadMapper(2)
+            there = [r.rgb8 for r in mapper(WindowTask(prepared, measure=False), windows)]
+        finally:
+            DrawAhead.start = real
+        assert seen and seen[0] is not None and seen[0].served > 0
+        assert seen[0].released
+        assert all(la._held is None for la in layers)      # dropped during the walk
+        for a, b in zip(here, there, strict=True):
+            np.testing.assert_array_equal(a, b)
+        assert all(la.features is not None for la in layers)     # and read again on demand
+    finally:
+        prepared.close()

@@ -2,12 +2,14 @@
 by matplotlib's Agg renderer at exact pixel geometry (see :mod:`compose.layers.draw`)."""
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 import shapely
 
 from compose.layers.base import Context, Paint
 from compose.layers.draw import draw_areas, draw_lines, draw_points
-from compose.sources.vector import VectorSource
+from compose.sources.vector import Features, VectorSource
 
 __all__ = ["LinesLayer", "AreasLayer", "PointsLayer"]
 
@@ -48,6 +50,9 @@ def _simplified(features, tolerance: float):
     return type(features).build(geoms[keep], [p for p, k in zip(features.properties, keep) if k])
 
 
+_RELOAD = threading.Lock()      # a released layer's features read again (rare: see release)
+
+
 class _VectorLayer:
     def __init__(self, spec, context: Context):
         self.spec = spec
@@ -57,15 +62,43 @@ class _VectorLayer:
         self.source.check_overlap(self.canvas)
         self.px = self.canvas.points_to_pixels
         self.margin = int(np.ceil(self._reach_px())) + 2
-        # cut once to the canvas (grown by the margin); per window only select, so dashes keep
-        # their phase across windows (Agg restarts a dash pattern where a clipped line re-enters)
+        self.draft = context.draft
+        self._held: Features | None = self._cut()
+
+    def _cut(self) -> Features:
+        """The features cut once to the canvas (grown by the margin; a draft's simplified);
+        per window only selected, so dashes keep their phase across windows (Agg restarts a dash
+        pattern where a clipped line re-enters)."""
         west, south, east, north = self.canvas.bounds
         pad = (self.margin + 2) * self.canvas.pixel
-        self.features = self.source.load(self.canvas.crs).in_box(
+        features = self.source.load(self.canvas.crs).in_box(
             (west - pad, south - pad, east + pad, north + pad))
-        self.source.release()       # the cut above is all the windows draw from
-        if context.draft:
-            self.features = _simplified(self.features, self.canvas.pixel * DRAFT_TOLERANCE)
+        self.source.release()       # the cut is all the windows draw from
+        if self.draft:
+            features = _simplified(features, self.canvas.pixel * DRAFT_TOLERANCE)
+        return features
+
+    @property
+    def features(self) -> Features:
+        """The features the windows draw from (read and cut again if :meth:`release` dropped
+        them: the same features, from the same file)."""
+        features = self._held
+        if features is None:
+            with _RELOAD:
+                if self._held is None:
+                    self._held = self._cut()
+                features = self._held
+        return features
+
+    def release(self) -> None:
+        """Drop this process's copy of the features while another process draws them
+        (:class:`compose.drawer.DrawAhead`); a later use reads them again."""
+        self._held = None
+
+    def __getstate__(self) -> dict:
+        state = dict(self.__dict__)
+        state["_held"] = self.features      # a pickled layer carries its features
+        return state
 
     def _reach_px(self) -> float:
         return 0.0

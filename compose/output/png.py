@@ -77,15 +77,16 @@ def _zlib_header(level: int) -> bytes:
     return bytes([cmf, flg])
 
 
-def _filter_up(rows: np.ndarray, prev: np.ndarray) -> bytes:
-    """Scanlines with filter type 2 (Up): each byte minus the byte above, modulo 256."""
+def _filter_up(rows: np.ndarray, prev: np.ndarray) -> np.ndarray:
+    """Scanlines with filter type 2 (Up): each byte minus the byte above, modulo 256; uint8
+    (n, 1 + row bytes), handed to deflate as it is (no bytes copy: 25 MB a band at 16384 px)."""
     n = rows.shape[0]
     out = np.empty((n, rows.shape[1] + 1), dtype=np.uint8)
     out[:, 0] = 2
     np.subtract(rows[0], prev, out=out[0, 1:])
     if n > 1:
         np.subtract(rows[1:], rows[:-1], out=out[1:, 1:])
-    return out.tobytes()
+    return out
 
 
 def _piece(rows: np.ndarray, prev: np.ndarray, level: int) -> tuple[bytes, int, int]:
@@ -93,7 +94,7 @@ def _piece(rows: np.ndarray, prev: np.ndarray, level: int) -> tuple[bytes, int, 
     data = _filter_up(rows, prev)
     deflate = _deflater(level)
     z = deflate.compressobj(level, deflate.DEFLATED, -15, 9)
-    return z.compress(data) + z.flush(deflate.Z_FULL_FLUSH), deflate.adler32(data), len(data)
+    return z.compress(data) + z.flush(deflate.Z_FULL_FLUSH), deflate.adler32(data), data.nbytes
 
 
 class PngWriter:
