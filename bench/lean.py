@@ -198,9 +198,8 @@ for dotted, label in STAGE_FUNCS:
         wrap(dotted, label)
     except (ImportError, AttributeError):
         pass
-sys.argv = ["compose"] + sys.argv[1:]
 try:
-    main()
+    main(sys.argv[1:])      # with argv: returns here (without, the command ends the process)
 except SystemExit:
     pass
 stop[0] = True
