@@ -66,6 +66,10 @@ COLOR_KEYS = frozenset({"stroke", "fill", "color", "tint", "shadow", "nodata", "
 #: Options of a kind that only change its colours, never its coverage or indices.
 COLOR_ONLY = {"relief": frozenset({"strength"})}
 _SUBDIR = "check"
+#: An array whose first SAMPLE_BYTES deflate to more than RAW_RATIO of their size is stored as it
+#: is (a field's ramp indices: 4.5 MB deflated to 3.5 MB in 70 ms at the demo's 1500 x 1500).
+SAMPLE_BYTES = 256 << 10
+RAW_RATIO = 0.6
 
 
 def cache_dir(option: str | Path | None = None) -> Path | None:
@@ -376,10 +380,11 @@ class _Arrays:
         from zlib_ng import zlib_ng
 
         self._arrays: dict[str, np.ndarray] = {}
-        for name, (dtype, dims, start, length) in table.items():
+        for name, (dtype, dims, start, length, *how) in table.items():
             if list(dims) != list(shape):
                 raise ValueError(f"array {name} is not of the canvas's shape")
-            raw = zlib_ng.decompress(blob[start:start + length])
+            raw = (blob[start:start + length] if how == ["raw"]
+                   else zlib_ng.decompress(blob[start:start + length]))
             self._arrays[name] = np.frombuffer(raw, dtype=np.dtype(dtype)).reshape(dims)
         self.files = list(self._arrays)
 
@@ -418,14 +423,21 @@ def _load(path: Path) -> tuple[dict, _Arrays] | None:
 def _save(path: Path, meta: dict, arrays: dict[str, np.ndarray]) -> None:
     """Write an entry atomically (a temporary file in the same folder, then renamed): the
     format's name, the header's length (8 bytes, little-endian), the JSON header (meta, and per
-    array its dtype, shape and place), then each array deflated (zlib-ng, level 1)."""
+    array its dtype, shape and place), then each array deflated (zlib-ng, level 1) -- or as it
+    is when a sample of it deflates to more than :data:`RAW_RATIO` of its size."""
     from zlib_ng import zlib_ng
 
     blobs, table, at = [], {}, 0
     for name, arr in arrays.items():
         arr = np.ascontiguousarray(arr)
-        blob = zlib_ng.compress(arr.tobytes(), 1)
-        table[name] = [arr.dtype.str, list(arr.shape), at, len(blob)]
+        data = arr.tobytes()
+        sample = data[:SAMPLE_BYTES]
+        if len(data) > 2 * SAMPLE_BYTES and \
+                len(zlib_ng.compress(sample, 1)) > RAW_RATIO * len(sample):
+            blob, how = data, ["raw"]      # noisy indices: deflate would save little, slowly
+        else:
+            blob, how = zlib_ng.compress(data, 1), []
+        table[name] = [arr.dtype.str, list(arr.shape), at, len(blob), *how]
         blobs.append(blob)
         at += len(blob)
     head = json.dumps({"meta": meta, "arrays": table}).encode()
