@@ -383,8 +383,12 @@ class _Arrays:
         for name, (dtype, dims, start, length, *how) in table.items():
             if list(dims) != list(shape):
                 raise ValueError(f"array {name} is not of the canvas's shape")
-            raw = (blob[start:start + length] if how == ["raw"]
-                   else zlib_ng.decompress(blob[start:start + length]))
+            if how and how[0] == "raw":      # stored as it is: its CRC-32 says it is whole
+                raw = blob[start:start + length]
+                if len(how) != 2 or zlib_ng.crc32(raw) != how[1]:
+                    raise ValueError(f"array {name} is damaged")
+            else:                               # deflate streams carry their own checksum
+                raw = zlib_ng.decompress(blob[start:start + length])
             self._arrays[name] = np.frombuffer(raw, dtype=np.dtype(dtype)).reshape(dims)
         self.files = list(self._arrays)
 
@@ -434,7 +438,7 @@ def _save(path: Path, meta: dict, arrays: dict[str, np.ndarray]) -> None:
         sample = data[:SAMPLE_BYTES]
         if len(data) > 2 * SAMPLE_BYTES and \
                 len(zlib_ng.compress(sample, 1)) > RAW_RATIO * len(sample):
-            blob, how = data, ["raw"]      # noisy indices: deflate would save little, slowly
+            blob, how = data, ["raw", zlib_ng.crc32(data)]  # noisy indices: deflate saves little
         else:
             blob, how = zlib_ng.compress(data, 1), []
         table[name] = [arr.dtype.str, list(arr.shape), at, len(blob), *how]

@@ -181,3 +181,21 @@ def test_the_least_recently_used_entries_go_first(tmp_path):
     os.utime(folder / "a.entry")                # read just now: the most recently used
     assert check_cache.trim_cache(folder, max_bytes=250) == 2
     assert sorted(p.name for p in folder.iterdir()) == ["a.entry", "d.entry"]
+
+
+def test_a_damaged_raw_array_is_noticed(tmp_path):
+    """Noisy indices are stored without deflate; a flipped byte in them still makes a miss."""
+    import numpy as np
+
+    index = np.random.default_rng(1).integers(0, 1 << 16, (1024, 1024), dtype=np.uint16)
+    alpha = np.zeros((1024, 1024), np.uint8)
+    meta = {"version": check_cache.CACHE_VERSION, "slots": 1, "shape": [1024, 1024]}
+    path = tmp_path / "x.entry"
+    check_cache._save(path, meta, {"a0": alpha, "i0": index})
+    meta_back, arrays = check_cache._load(path)
+    assert meta_back == meta and np.array_equal(arrays["i0"], index)
+    raw = bytearray(path.read_bytes())
+    assert b'"raw"' in raw                       # the indices were stored as they are
+    raw[-1000] ^= 0xFF
+    path.write_bytes(bytes(raw))
+    assert check_cache._load(path) is None
