@@ -383,6 +383,7 @@ class _Arrays:
         for name, (dtype, dims, start, length, *how) in table.items():
             if list(dims) != list(shape):
                 raise ValueError(f"array {name} is not of the canvas's shape")
+            raw: bytes | memoryview
             if how and how[0] == "raw":      # stored as it is: its CRC-32 says it is whole
                 raw = blob[start:start + length]
                 if len(how) != 2 or zlib_ng.crc32(raw) != how[1]:
@@ -490,7 +491,10 @@ class CheckCache:
         inside = [page.legend, page.north, page.scalebar.place]
         if all(p in ("panel", "off") for p in inside):
             return None
-        return _digest([_plain(page), [_plain(s) for s in self.style.layers],
+        return _digest([_plain(page),
+                        [[s.name, s.role, s.kind, str(s.source),
+                          _plain(s.options, skip=COLOR_ONLY.get(s.kind, frozenset()))]
+                         for s in self.style.layers],
                         {k: _plain(dict(t.table)) for k, t in self.style.ramps.items()}])
 
     def key(self, spec, ctx) -> tuple[str | None, dict | None]:

@@ -199,3 +199,28 @@ def test_a_damaged_raw_array_is_noticed(tmp_path):
     raw[-1000] ^= 0xFF
     path.write_bytes(bytes(raw))
     assert check_cache._load(path) is None
+
+
+def test_labels_follow_the_furniture_inside_the_frame(tmp_path):
+    """Labels keep clear of page furniture inside the map frame, whose size follows the legend:
+    with furniture inside, the labels' key follows the page, layers and ramps; with all of it in
+    the panel (the example styles) it does not, so a ramp's colours stay out of it."""
+    from compose.style import load_style
+
+    base = (ROOT / "styles" / "coast.toml").read_text(encoding="utf-8")
+
+    def furniture(text: str):
+        path = tmp_path / "coast.toml"
+        for src in ("water_productivity", "land_productivity", "elevation"):
+            text = text.replace(f"../demo_region/{src}.tif", str(ROOT / "demo_region" / f"{src}.tif"))
+        path.write_text(text.replace('extends = "base.toml"',
+                                     f'extends = "{ROOT / "styles" / "base.toml"}"'), "utf-8")
+        style = load_style(path)
+        return check_cache.CheckCache(tmp_path, style, style.canvas(), keep_clear=print)._furniture
+
+    assert furniture(base) is None
+    corner = base.replace("[page]\n", '[page]\nlegend = "bottom left"\n')
+    inside = furniture(corner)
+    assert inside is not None
+    assert furniture(corner.replace("strength = 0.25", "strength = 0.3")) == inside   # a colour
+    assert furniture(corner.replace('legend = "bottom left"', 'legend = "top right"')) != inside
