@@ -48,17 +48,22 @@ def block_sums(planes: np.ndarray, row0: int, col0: int, k: int) -> tuple[int, i
     c, h, w = planes.shape
     ro, co = row0 % k, col0 % k
     nr, nc = -(-(ro + h) // k), -(-(co + w) // k)
-    if ro or co or nr * k != h or nc * k != w:     # pad to whole blocks (zeros add nothing)
-        padded = np.zeros((c, nr * k, nc * k), dtype=np.float32)
-        padded[:, ro:ro + h, co:co + w] = planes
-        planes = padded
-    # sums of k strided views, rows then columns: ~4x faster than np.add.reduceat here
-    rows = planes[:, 0::k].astype(np.float32)
-    for i in range(1, k):
-        rows += planes[:, i::k]
-    s = rows[:, :, 0::k].copy()
-    for i in range(1, k):
-        s += rows[:, :, i::k]
+    # sums of k strided views, rows then columns, each added into the blocks it falls in (no
+    # padded copy of a window cut off the grid: a missing row adds nothing, as its zero did)
+    rows = np.zeros((c, nr, w), dtype=np.float32)
+    for i in range(k):                  # the pixel rows at place i of their block
+        r = (i - ro) % k
+        if r < h:
+            part = planes[:, r::k]
+            b = (r + ro) // k
+            rows[:, b:b + part.shape[1]] += part
+    s = np.zeros((c, nr, nc), dtype=np.float32)
+    for j in range(k):
+        q = (j - co) % k
+        if q < w:
+            part = rows[:, :, q::k]
+            b = (q + co) // k
+            s[:, :, b:b + part.shape[2]] += part
     return row0 // k, col0 // k, np.ascontiguousarray(s.transpose(1, 2, 0))
 
 

@@ -300,6 +300,22 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     with open(tmp["check"], "w", encoding="utf-8") as f:
                         json.dump(report.to_json(), f, indent=2)
                 seconds["check"] += time.perf_counter() - t
+            pictures = None
+            if page_map is not None and layer_previews is not None:      # html
+                # the page's pictures before the legend: the page process draws that one
+                from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
+                from compose.proof import PROOFS, proof_image
+
+                t_html = time.perf_counter()
+                names = [layer.spec.name for layer in prepared.layers]
+                with span("html pictures"):
+                    copy = page_map.image()
+                    small = box_reduce(copy, PROOF_WIDTH)
+                    pictures = PagePictures(
+                        map=copy, legend=None, proofs={k: proof_image(small, k) for k in PROOFS},
+                        small=small, layers=tuple((n, a, s) for n, (a, s) in zip(
+                            names, layer_previews.images())))
+                seconds["html"] = time.perf_counter() - t_html
             if (legend or html) and forked and page_job is not None:
                 t = time.perf_counter()
                 with span("wait legend"):
@@ -313,25 +329,17 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                                   seconds=seconds, statistics=stats,
                                   report=report, unplaced_labels=prepared.unplaced_labels,
                                   ramps=prepared.ramps)
-            if page_map is not None and layer_previews is not None:      # html
+            if pictures is not None:
+                import dataclasses
+
                 from compose.output.html import page_html
-                from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
-                from compose.proof import PROOFS, proof_image
 
                 t = time.perf_counter()
-                names = [layer.spec.name for layer in prepared.layers]
-                with span("html pictures"):
-                    copy = page_map.image()
-                    small = box_reduce(copy, PROOF_WIDTH)
-                    result.pictures = PagePictures(
-                        map=copy, legend=legend_png,
-                        proofs={k: proof_image(small, k) for k in PROOFS}, small=small,
-                        layers=tuple((n, a, s) for n, (a, s) in zip(names,
-                                                                    layer_previews.images())))
-                seconds["total"] = t - t0
+                result.pictures = dataclasses.replace(pictures, legend=legend_png)
+                seconds["total"] = t_html - t0
                 with span("html"):
                     tmp["html"].write_text(page_html(style, result), encoding="utf-8")
-                seconds["html"] = time.perf_counter() - t
+                seconds["html"] += time.perf_counter() - t
             if page_job is not None:
                 with span("wait page"):
                     page_seconds = page_job.wait()

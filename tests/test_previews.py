@@ -25,6 +25,25 @@ def test_block_sums_match_a_pixel_by_pixel_sum(row0, col0, k):
     np.testing.assert_allclose(sums, ref[:, r:, c:].transpose(1, 2, 0), atol=1e-4)
 
 
+@pytest.mark.parametrize("row0, col0, k, h, w", [(512, 1024, 3, 512, 512), (0, 0, 3, 70, 50),
+                                                 (5, 7, 3, 1, 1), (2, 2, 3, 1, 70), (9, 4, 5, 33, 20)])
+def test_block_sums_are_the_padded_sums_bit_for_bit(row0, col0, k, h, w):
+    # the former way (the window padded with zeros to whole blocks, then strided sums) gave
+    # the review page's previews: the sums without the padded copy are the same floats
+    planes = np.random.default_rng(2).random((3, h, w)).astype(np.float32)
+    ro, co = row0 % k, col0 % k
+    nr, nc = -(-(ro + h) // k), -(-(co + w) // k)
+    padded = np.zeros((3, nr * k, nc * k), np.float32)
+    padded[:, ro:ro + h, co:co + w] = planes
+    rows = padded[:, 0::k].copy()
+    for i in range(1, k):
+        rows += padded[:, i::k]
+    ref = rows[:, :, 0::k].copy()
+    for i in range(1, k):
+        ref += rows[:, :, i::k]
+    assert np.array_equal(block_sums(planes, row0, col0, k)[2], ref.transpose(1, 2, 0))
+
+
 def test_previews_from_small_windows_equal_the_box_averaged_map(tiny_region):
     """Windows of 37 px (not a multiple of the block size 4) cut blocks; their partial sums
     add up to the box average of the finished map, and the first layer alone is the stack."""

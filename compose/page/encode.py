@@ -28,13 +28,14 @@ except ImportError:                     # pragma: no cover - zlib-ng is a depend
     _deflate = zlib
     LEVEL = 6
 
-__all__ = ["png_bytes", "fast_png", "LEVEL"]
+__all__ = ["png_bytes", "fast_png", "PngRows", "remember", "LEVEL"]
 
 _TYPES = {"L": (1, 0), "RGB": (3, 2), "RGBA": (4, 6)}
 _lock = threading.Lock()
 _users = 0
 _saved: Any = None
 _encoded: dict[tuple, bytes] = {}      # PNG files made in the current fast_png() block
+_known: dict[tuple, bytes] = {}        # PNG files made beforehand (remember())
 
 
 def _chunk(kind: bytes, data: bytes) -> bytes:
@@ -63,13 +64,70 @@ def png_bytes(image: np.ndarray, dpi: float | None = None) -> bytes:
     return b"".join(out)
 
 
+def _key(mode: str, shape: tuple, digest: bytes) -> tuple:
+    return (mode, tuple(shape), digest)
+
+
+class PngRows:
+    """:func:`png_bytes` of an image handed over band by band, top to bottom, while the image
+    is still being made (the same bytes: one deflate stream fed in pieces gives the stream of
+    the whole). ``mode``: Pillow's name of the layout (``L``, ``RGB``, ``RGBA``) of ``channels``
+    uint8 samples per pixel; :meth:`finish` returns the file and the key :func:`remember`
+    files it under."""
+
+    def __init__(self, width: int, mode: str):
+        self.width, self.mode = int(width), mode
+        self.channels = _TYPES[mode][0]
+        self.height = 0
+        self._z = _deflate.compressobj(LEVEL)
+        self._parts: list[bytes] = []
+        self._last: np.ndarray | None = None
+        self._hash = hashlib.blake2b(digest_size=20)
+
+    def add(self, rows: np.ndarray) -> None:
+        """The next rows, (n, width[, channels]) uint8."""
+        rows = np.ascontiguousarray(rows, dtype=np.uint8)
+        n = rows.shape[0]
+        if n == 0:
+            return
+        self._hash.update(rows.data)
+        flat = rows.reshape(n, self.width * self.channels)
+        filtered = np.empty((n, flat.shape[1] + 1), np.uint8)
+        filtered[:, 0] = 2                                # "Up", as png_bytes
+        if self._last is None:
+            filtered[0, 1:] = flat[0]
+        else:
+            np.subtract(flat[0], self._last, out=filtered[0, 1:])
+        np.subtract(flat[1:], flat[:-1], out=filtered[1:, 1:])
+        self._last = flat[-1].copy()
+        self._parts.append(self._z.compress(filtered.tobytes()))
+        self.height += n
+
+    def finish(self) -> tuple[tuple, bytes]:
+        """(key, the whole PNG file)."""
+        ihdr = struct.pack(">IIBBBBB", self.width, self.height, 8, _TYPES[self.mode][1], 0, 0, 0)
+        data = b"".join([b"\x89PNG\r\n\x1a\n", _chunk(b"IHDR", ihdr),
+                         _chunk(b"IDAT", b"".join(self._parts) + self._z.flush()),
+                         _chunk(b"IEND", b"")])
+        shape = (self.height, self.width) + ((self.channels,) if self.channels > 1 else ())
+        return _key(self.mode, shape, self._hash.digest()), data
+
+
+def remember(key: tuple, data: bytes) -> None:
+    """File a PNG made beforehand (:class:`PngRows`) for the saves of its pixels in
+    :func:`fast_png` blocks of this process."""
+    with _lock:
+        _known[key] = data
+
+
 def _save(im, fp, filename) -> None:
     if im.mode in _TYPES and not im.encoderinfo:
         pixels = np.asarray(im)
         # the PDF and the SVG of one page embed the same map: encode it once
-        key = (im.mode, pixels.shape, hashlib.blake2b(pixels.data, digest_size=20).digest())
+        key = _key(im.mode, pixels.shape,
+                   hashlib.blake2b(np.ascontiguousarray(pixels).data, digest_size=20).digest())
         with _lock:
-            data = _encoded.get(key)
+            data = _encoded.get(key) or _known.get(key)
         if data is None:
             data = png_bytes(pixels)
             with _lock:

@@ -184,7 +184,7 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                     started = None
             try:
                 with span("page waits for walk"):
-                    nodata = pickle.load(inp)
+                    nodata = _walked(inp, job._sink)
             except EOFError:                              # the render ended without a page
                 os._exit(0)
             try:
@@ -211,6 +211,45 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
         status = 1
     finally:
         os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
+
+
+def _walked(inp, sink) -> set[str] | None:
+    """Wait for the walk's end, encoding the page's raster (``sink.base``) band by band as the
+    parent finishes it, for the PDF (RGB) and SVG (RGBA) writers to embed
+    (:func:`compose.page.encode.remember`); returns the no-data layers the parent sent."""
+    base = getattr(sink, "base", None)
+    streams = None
+    if base is not None:
+        from compose.page.encode import PngRows
+
+        streams = (PngRows(base.shape[1], "RGB"), PngRows(base.shape[1], "RGBA"))
+    done = 0
+
+    def encode(upto: int) -> None:
+        nonlocal done
+        if streams is None or base is None or upto <= done:
+            return
+        with span("page encodes its raster"):
+            rows = base[done:upto]
+            streams[0].add(rows)
+            rgba = np.empty(rows.shape[:2] + (4,), np.uint8)
+            rgba[..., :3] = rows
+            rgba[..., 3] = 255
+            streams[1].add(rgba)
+        done = upto
+
+    while True:
+        kind, value = pickle.load(inp)
+        if kind == "rows":
+            encode(value)
+            continue
+        if streams is not None and base is not None:
+            from compose.page.encode import remember
+
+            encode(base.shape[0])
+            for stream in streams:
+                remember(*stream.finish())
+        return value
 
 
 def _unpacked(job: PageJob, data: bytes) -> SimpleNamespace:
@@ -292,6 +331,15 @@ class PageJob:
         self._forked = True
         self._outbox = os.fdopen(down_w, "wb")
         self._inbox = os.fdopen(up_r, "rb")
+        if self._sink is not None:          # the child encodes the page's raster as it comes
+            self._sink.listener = self._rows_done
+
+    def _rows_done(self, rows: int) -> None:
+        if self._outbox is not None:
+            try:
+                _send(self._outbox, ("rows", rows))
+            except OSError:         # the child is gone: start() / layout() report it
+                pass
 
     def attach(self, prepared) -> bool:
         """Hand over the prepared render of a job created without one: to the forked process,
@@ -318,7 +366,9 @@ class PageJob:
         :meth:`layout`)."""
         self._nodata = nodata_seen
         if self.forked:
-            _send(self._outbox, nodata_seen)
+            if self._sink is not None:
+                self._sink.listener = None
+            _send(self._outbox, ("walked", nodata_seen))
             self._outbox.close()
             self._outbox = None
 

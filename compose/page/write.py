@@ -65,12 +65,16 @@ class PageSink:
         self.below = int(below)
         self.image = shared_image(canvas.height, canvas.width)
         self.base = shared_image(canvas.height, canvas.width)
+        #: called with the number of ``base`` rows finished so far, after each band
+        self.listener = None
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.image[row0:row0 + rgb8.shape[0]] = rgb8
 
     def below_rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.base[row0:row0 + rgb8.shape[0]] = rgb8
+        if self.listener is not None:
+            self.listener(row0 + rgb8.shape[0])
 
 
 def page_paths(style, out_dir: Path) -> dict[str, Path]:

@@ -1,0 +1,71 @@
+"""compose.page.encode: the page writers' PNG files, whole or made band by band beforehand."""
+from __future__ import annotations
+
+import io
+import pickle
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from compose.page import encode, process
+
+
+def _image(mode: str) -> np.ndarray:
+    rng = np.random.default_rng(3)
+    shape = {"L": (37, 23), "RGB": (37, 23, 3), "RGBA": (37, 23, 4)}[mode]
+    smooth = np.cumsum(rng.integers(0, 3, shape), axis=0)           # some structure to deflate
+    return (smooth % 256).astype(np.uint8)
+
+
+@pytest.mark.parametrize("mode", ["L", "RGB", "RGBA"])
+def test_png_rows_made_band_by_band_are_png_bytes_of_the_whole(mode):
+    image = _image(mode)
+    rows = encode.PngRows(image.shape[1], mode)
+    for r0 in (0, 1, 16, 30):                       # bands of 1, 15, 14 and 7 rows
+        rows.add(image[r0:{0: 1, 1: 16, 16: 30, 30: 37}[r0]])
+    key, data = rows.finish()
+    assert data == encode.png_bytes(image)
+    # a valid PNG of the same pixels (Pillow reads it back)
+    assert np.array_equal(np.asarray(Image.open(io.BytesIO(data))), image)
+    assert key[:2] == (mode, image.shape)
+
+
+def test_a_remembered_png_is_what_a_save_writes():
+    image = _image("RGB")
+    rows = encode.PngRows(image.shape[1], "RGB")
+    rows.add(image)
+    key, data = rows.finish()
+    marked = data + b"remembered"                   # tell it from a fresh encode
+    encode.remember(key, marked)
+    try:
+        with encode.fast_png():
+            buf = io.BytesIO()
+            Image.fromarray(image).save(buf, format="png")
+        assert buf.getvalue() == marked
+        with encode.fast_png():                     # other pixels: encoded as usual
+            buf = io.BytesIO()
+            Image.fromarray(image[::-1].copy()).save(buf, format="png")
+        assert buf.getvalue() == encode.png_bytes(image[::-1])
+    finally:
+        encode._known.pop(key, None)
+
+
+def test_the_page_process_encodes_its_raster_while_the_walk_runs():
+    """The child's wait for the walk (process._walked) encodes the rows the parent reports
+    finished, RGB for the PDF and RGBA for the SVG, and returns the no-data layers."""
+    base = _image("RGB")
+    sink = type("Sink", (), {"base": base})()
+    messages = io.BytesIO()
+    for m in (("rows", 10), ("rows", 30), ("walked", {"sea"})):
+        pickle.dump(m, messages)
+    messages.seek(0)
+    known = dict(encode._known)
+    try:
+        assert process._walked(messages, sink) == {"sea"}
+        new = {k: v for k, v in encode._known.items() if k not in known}
+        rgba = np.dstack([base, np.full(base.shape[:2], 255, np.uint8)])
+        assert sorted(new.values()) == sorted([encode.png_bytes(base), encode.png_bytes(rgba)])
+    finally:
+        encode._known.clear()
+        encode._known.update(known)
