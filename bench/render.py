@@ -13,7 +13,9 @@ For every size it prints, from the same run:
   * every target beside its floor (medians of 3 runs): the bare render (PNG + GeoTIFF + check)
     with 1 and 2 workers against the summed floors, compute alone with and without the
     statistics against the compute floor (the statistics' share), and the share of the
-    encoders' own work that ran beside the compute (the render's own timers);
+    encoders' own work that ran beside the compute (the render's own timers); the layer
+    previews' sums (an output of the HTML page, summed in the same walk) on a line of their own,
+    not counted as statistics;
   * window count independence of line drawing, and reprojected against aligned reads;
   * workers: compute with 1 thread, 2 threads (--workers 2), 2 worker processes and a 2-worker
     dask LocalCluster.
@@ -257,8 +259,15 @@ else:                                   # compute only: every window, no outputs
     from compose.engine import prepare, run
     r = prepare(style)
     try:
+        previews = None
+        if mode == "previews":          # the HTML page's layer previews summed in the same walk
+            from compose.previews import LayerPreviews
+            previews = LayerPreviews(r.canvas.width, r.canvas.height, len(r.layers),
+                                     tuple(style.map.background),
+                                     blends=[la.spec.blend for la in r.layers])
         t1 = time.perf_counter()
-        run(r, [], measure=(mode == "measure"), mapper=mapper, **extra)
+        run(r, [], measure=(mode in ("measure", "previews")), mapper=mapper, previews=previews,
+            **extra)
         result["compute"] = time.perf_counter() - t1
     finally:
         r.close()
@@ -353,6 +362,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     comp = lambda r: r["compute"]          # noqa: E731
     plain, _ = median_task(runs, comp, "plain", styles["aligned"], out)
     measured, _ = median_task(runs, comp, "measure", styles["aligned"], out)
+    with_previews, _ = median_task(runs, comp, "previews", styles["aligned"], out)
     floors_sum = compute_floor + encode_floor
     own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
     print("floors on the rendered pixels")
@@ -374,7 +384,12 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  compute alone, not measuring                    {plain:6.2f} s  "
           f"= {plain / compute_floor:.2f} x compute floor")
     print(f"  statistics share                                {100 * (measured - plain) / total:6.1f} % "
-          f"of the 1-worker render (target <= 10 %)")
+          f"of the 1-worker render (target <= 10 %; hierarchy statistics only: the bare render "
+          f"and this figure sum no previews)")
+    print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
+          f"previews' sums {with_previews - measured:.2f} s = "
+          f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
+          f"the default command, not statistics)")
     print(f"  encode beside compute (render's own timers)     {100 * overlap(own1):6.0f} % of "
           f"{own1.get('encode-work', 0):.2f} s encoder work overlapped, 1 worker; "
           f"{100 * overlap(own2):.0f} % with 2 (encode floor {encode_floor:.2f} s)")

@@ -137,18 +137,21 @@ def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> n
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
-                  ground8: np.ndarray | None, overlay: bool, inner) -> None:
-    """Add one paint of one window (core region) to the layer's statistics.
+                  ground8: np.ndarray | None, overlay: bool, inner) -> bool:
+    """Add one paint of one window (core region) to the layer's statistics; True when the paint
+    is a raster's and opaque over the whole core (alpha 1 everywhere).
 
     alpha: the paint's coverage x opacity over the padded window; beneath: the padded composite
     just before this paint; ground8: a copy of the padded composite under the whole layer (None
     for the layer's first paint, where it equals ``beneath``); both measured as 8-bit colours.
     """
     alpha_core = alpha[inner]
+    opaque = False
     if paint.palette is not None:
         idx = paint.index[inner].ravel()
         n = paint.palette.rgb8.shape[0]
-        if alpha_core.min() >= 1.0:     # opaque: an unweighted count is ~3x faster
+        opaque = bool(alpha_core.min() >= 1.0)
+        if opaque:                      # an unweighted count is ~3x faster
             w = np.bincount(idx, minlength=n)
         else:
             w = np.bincount(idx, weights=alpha_core.ravel(), minlength=n)
@@ -182,6 +185,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
         stats.parts[paint.part].merge(part)
     else:
         stats.parts[paint.part] = part
+    return opaque
 
 
 class WindowMeasure:
@@ -198,6 +202,7 @@ class WindowMeasure:
         self._themes: list[tuple[int, np.ndarray, np.ndarray]] = []
         self._hidden: np.ndarray | None = None   # core: how much overlays cover each pixel
         self._union: np.ndarray | None = None
+        self._opaque = False                     # the union is one opaque raster paint
         self._ground: np.ndarray | None = None
         # reliefs drawn so far: [layer index, part, palette index (core), alpha (core), what
         # the layers drawn normally over it let through (core; None while nothing has been)]
@@ -216,10 +221,13 @@ class WindowMeasure:
         spec = layer.spec
         overlay = spec.role == "overlay"
         a_core = alpha[self.inner]
+        union = self._union
+        first = union is None
         # the layer's first paint is its union so far (read only: never written to)
-        self._union = a_core if self._union is None else np.maximum(self._union, a_core)
-        _measure_part(self.stats.layers[li], paint, alpha, out if overlay else None,
-                      self._ground if pi else None, overlay, self.inner)
+        self._union = a_core if union is None else np.maximum(union, a_core)
+        opaque = _measure_part(self.stats.layers[li], paint, alpha, out if overlay else None,
+                               self._ground if pi else None, overlay, self.inner)
+        self._opaque = first and opaque
         if spec.role == "theme" and paint.palette is not None:
             self._themes.append((li, paint.index[self.inner], a_core))
         if self._reliefs and spec.role != "overlay" and spec.blend == "normal":
@@ -232,8 +240,10 @@ class WindowMeasure:
     def end_layer(self, li: int, layer) -> None:
         """Layer ``li`` is composited."""
         if self._union is not None:
-            # summed as a contiguous array (the sum's rounding depends on the layout)
-            self.stats.layers[li].covered += float(np.ascontiguousarray(self._union).sum())
+            if self._opaque:            # ones only: their float32 sum is their count, exactly
+                self.stats.layers[li].covered += float(self._union.size)
+            else:   # summed as a contiguous array (the sum's rounding depends on the layout)
+                self.stats.layers[li].covered += float(np.ascontiguousarray(self._union).sum())
             if layer.spec.role == "overlay":
                 self._hidden = (self._union if self._hidden is None
                                 else np.maximum(self._hidden, self._union))
