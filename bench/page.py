@@ -1,13 +1,18 @@
 """Time the demo as a command beside its parts: the whole ``compose render STYLE`` with all its
 default outputs, as a fresh process, and the stages of the same render run in this process.
 
-    python bench/page.py [STYLE] [--runs N] [--no-command] [--timeline]
+    python bench/page.py [STYLE] [--runs N] [--no-command] [--timeline] [--bytecode]
 
 Prints the median over N runs of: the command's wall-clock time (a new process each run, as a user
 starts it: interpreter start, imports, the render, every default output); the load average of the
 machine before the runs; then, from N renders in this process with every default output, each
 stage's seconds (prepare, compute, encoding, each page writer, check, legend, HTML page, total)
 with each page writer's share of the walk's compute time. Never asserted in tests.
+
+``--bytecode``: the command also as an installed package runs it, with its modules' compiled
+bytecode (a machine with PYTHONDONTWRITEBYTECODE set compiles every module of compose on every
+run; this runs with it unset, after one unmeasured run that writes the bytecode beside the
+sources, in __pycache__ folders git ignores).
 
 ``--timeline``: one more command run recording its stages (:mod:`compose.timeline`), printed
 per process and thread on one clock from the command's launch: what ran where and what waited.
@@ -27,16 +32,22 @@ from compose.render import render_style
 from compose.style import load_style
 
 
-def command_seconds(style: str, runs: int) -> list[float]:
-    """Wall-clock seconds of ``compose render STYLE`` in a fresh process, ``runs`` times."""
+def command_seconds(style: str, runs: int, bytecode: bool = False) -> list[float]:
+    """Wall-clock seconds of ``compose render STYLE`` in a fresh process, ``runs`` times
+    (``bytecode``: with compiled bytecode, as an installed package; see the module's text)."""
     exe = Path(sys.executable).with_name("compose")
     cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose.cli.main"]
+    env = dict(os.environ)
+    if bytecode:
+        env.pop("PYTHONDONTWRITEBYTECODE", None)
     out = []
-    for _ in range(runs):
+    for i in range(runs + bytecode):
         with tempfile.TemporaryDirectory() as tmp:
             t = time.perf_counter()
             done = subprocess.run(cmd + ["render", style, "--out", tmp], capture_output=True,
-                                  text=True)
+                                  text=True, env=env)
+            if bytecode and i == 0:
+                continue                # the run that wrote the bytecode
             out.append(time.perf_counter() - t)
             if done.returncode not in (0, 1):
                 raise SystemExit(f"compose render failed ({done.returncode}): {done.stderr}")
@@ -72,6 +83,8 @@ def main() -> None:
     ap.add_argument("style", nargs="?", default=str(Path(__file__).parents[1] / "styles/coast.toml"))
     ap.add_argument("--runs", type=int, default=3)
     ap.add_argument("--no-command", action="store_true", help="only the in-process stages")
+    ap.add_argument("--bytecode", action="store_true",
+                    help="also time the command with compiled bytecode, as an installed package")
     ap.add_argument("--timeline", action="store_true",
                     help="only one command run, its stages on one clock")
     args = ap.parse_args()
@@ -80,6 +93,8 @@ def main() -> None:
         return
     load = os.getloadavg()[0]
     whole = None if args.no_command else command_seconds(args.style, args.runs)
+    compiled = (command_seconds(args.style, args.runs, bytecode=True)
+                if args.bytecode and not args.no_command else None)
     style = load_style(args.style)
     runs: dict[str, list[float]] = {}
     for _ in range(args.runs):
@@ -93,6 +108,9 @@ def main() -> None:
     if whole is not None:
         print(f"  {'command':<16} {statistics.median(whole):7.2f} s  (compose render, fresh "
               f"process, every default output; runs: {', '.join(f'{w:.2f}' for w in whole)})")
+    if compiled is not None:
+        print(f"  {'with bytecode':<16} {statistics.median(compiled):7.2f} s  (the same command "
+              f"as an installed package runs it; runs: {', '.join(f'{w:.2f}' for w in compiled)})")
     print("  in this process:")
     for k in sorted(med):
         share = f"  ({med[k] / med['compute']:.2f} x compute)" if k.startswith("page") else ""
