@@ -215,14 +215,15 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
 
 def _walked(inp, sink) -> set[str] | None:
     """Wait for the walk's end, encoding the page's raster (``sink.base``) band by band as the
-    parent finishes it, for the PDF (RGB) and SVG (RGBA) writers to embed
-    (:func:`compose.page.encode.remember`); returns the no-data layers the parent sent."""
+    parent finishes it, as the SVG writer embeds it (RGBA, :func:`compose.page.encode.remember`;
+    the PDF writer embeds it bottom row first, so its encode cannot start before the walk
+    ends); returns the no-data layers the parent sent."""
     base = getattr(sink, "base", None)
     streams = None
     if base is not None:
         from compose.page.encode import PngRows
 
-        streams = (PngRows(base.shape[1], "RGB"), PngRows(base.shape[1], "RGBA"))
+        streams = (PngRows(base.shape[1], "RGBA"),)
     done = 0
 
     def encode(upto: int) -> None:
@@ -231,11 +232,10 @@ def _walked(inp, sink) -> set[str] | None:
             return
         with span("page encodes its raster"):
             rows = base[done:upto]
-            streams[0].add(rows)
             rgba = np.empty(rows.shape[:2] + (4,), np.uint8)
             rgba[..., :3] = rows
             rgba[..., 3] = 255
-            streams[1].add(rgba)
+            streams[0].add(rgba)
         done = upto
 
     while True:
