@@ -61,9 +61,9 @@ def commands(styles: list[Path], runs: int) -> None:
     bare = medians([run_command([sys.executable, "-c", "pass"]) for _ in range(runs)])
     numpy = medians([run_command([sys.executable, "-c", "import numpy"]) for _ in range(runs)])
     print(f"python start-up            {bare[0]:6.2f} s")
-    print(f"python + import numpy      {numpy[0]:6.2f} s")
-    print(f"compose check, no style    {floor[0]:6.2f} s  (exit {floor[2]}: start-up and imports "
-          "before the style is read)")
+    print(f"python + import numpy      {numpy[0]:6.2f} s  (cpu {numpy[1]:.2f} s)")
+    print(f"compose check, no style    {floor[0]:6.2f} s  (cpu {floor[1]:.2f} s; exit {floor[2]}: "
+          "start-up and imports before the style is read)")
     print(f"import the libraries only  {libs[0]:6.2f} s  ({', '.join(LIBRARIES)})")
     cache = tempfile.mkdtemp(prefix="compose-bench-cache-")
     for style in styles:
@@ -86,9 +86,11 @@ def command_rows(name: str, style: Path, runs: int, cache: str, cwd: Path) -> No
             got[key].append(run_command(COMPOSE + ["check", *flags, str(style)], cwd=cwd))
     m = {k: medians(v) for k, v in got.items()}
     fc, dc, fw, dw = (m[k][0] for k in got)
+    cpu = "  ".join(f"{m[k][1]:.2f}" for k in got)
     print(f"{name:<11} cold: full {fc:6.2f} s  draft {dc:6.2f} s  x{fc / dc:5.1f}   "
           f"warm: full {fw:6.2f} s  draft {dw:6.2f} s  x{fw / dw:5.1f}   "
-          f"full cold / draft warm x{fc / dw:5.1f}   exit {m['full cold'][2]}/{m['draft cold'][2]}")
+          f"full cold / draft warm x{fc / dw:5.1f}   exit {m['full cold'][2]}/{m['draft cold'][2]}"
+          f"   (cpu s, same order: {cpu})")
 
 
 def timed_check(style, canvas, draft: bool, cache=False):

@@ -45,13 +45,12 @@ from typing import Any
 import numpy as np
 
 from compose.layers.base import Paint, Palette
+from compose.user_cache import CACHE_ENV, cache_dir
 
 __all__ = ["CACHE_ENV", "CACHE_VERSION", "MAX_PIXELS", "MAX_BYTES", "cache_dir", "clear_cache",
            "trim_cache", "CheckCache",
            "CachedLayer", "layer_colors"]
 
-#: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
-CACHE_ENV = "COMPOSE_CACHE"
 #: Bumped whenever an entry's layout or meaning changes.
 CACHE_VERSION = 1
 #: Canvases larger than this many pixels are not cached (a full check at 8192 x 8192 would hold
@@ -70,20 +69,6 @@ _SUBDIR = "check"
 #: is (a field's ramp indices: 4.5 MB deflated to 3.5 MB in 70 ms at the demo's 1500 x 1500).
 SAMPLE_BYTES = 256 << 10
 RAW_RATIO = 0.6
-
-
-def cache_dir(option: str | Path | None = None) -> Path | None:
-    """The cache's root directory: ``option``, else ``$COMPOSE_CACHE``, else
-    ``$XDG_CACHE_HOME/compose``, else ``~/.cache/compose``. None when switched off (``off``,
-    ``0``, ``no`` or empty)."""
-    value = str(option) if option is not None else os.environ.get(CACHE_ENV)
-    if value is not None:
-        if value.strip().lower() in ("", "0", "off", "no", "false"):
-            return None
-        return Path(value).expanduser()
-    xdg = os.environ.get("XDG_CACHE_HOME")
-    base = Path(xdg) if xdg and os.path.isabs(xdg) else Path.home() / ".cache"
-    return base / "compose"
 
 
 def clear_cache(root: Path | None) -> int:

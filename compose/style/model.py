@@ -56,6 +56,10 @@ def _crs(value: Any, at: Scope) -> str:
     """A CRS string pyproj understands (kept as written)."""
     if not isinstance(value, str) or not value.strip():
         raise StyleError(f"{at.path} must be a CRS string such as 'EPSG:32631', got {value!r}")
+    from compose.user_cache import crs_known, remember_crs
+
+    if crs_known(value):        # accepted by this pyproj before: no import (compose.user_cache)
+        return value
     from pyproj import CRS
     from pyproj.exceptions import CRSError
     try:
@@ -66,6 +70,7 @@ def _crs(value: Any, at: Scope) -> str:
     if crs.is_engineering or not (crs.is_geographic or crs.is_projected):
         raise StyleError(f"{at.path}: {value!r} is a {crs.type_name}; the canvas needs a "
                          f"geographic or projected CRS that data can be reprojected to")
+    remember_crs(value)
     return value
 
 

@@ -1,0 +1,94 @@
+"""The user's cache folder of compose, and the CRS strings pyproj accepted before.
+
+Where: ``$COMPOSE_CACHE`` (a directory; ``off``, ``0``, ``no``, ``false`` or empty: no cache),
+else ``$XDG_CACHE_HOME/compose``, else ``~/.cache/compose``. The check keeps its prepared inputs
+in its ``check/`` folder (:mod:`compose.check_cache`). ``crs.json`` lists the CRS strings that
+pyproj accepted as a canvas CRS, for the pyproj installed then (its module file's size and
+modification time): a style naming one of them is loaded without importing pyproj (0.05-0.1 s
+of a warm check's start-up). Deleting the folder is always safe.
+"""
+from __future__ import annotations
+
+import contextlib
+import json
+import os
+import tempfile
+from pathlib import Path
+
+__all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs"]
+
+#: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
+CACHE_ENV = "COMPOSE_CACHE"
+_CRS_FILE = "crs.json"
+
+
+def cache_dir(option: str | Path | None = None) -> Path | None:
+    """The cache's root directory: ``option``, else ``$COMPOSE_CACHE``, else
+    ``$XDG_CACHE_HOME/compose``, else ``~/.cache/compose``. None when switched off (``off``,
+    ``0``, ``no``, ``false`` or empty)."""
+    value = str(option) if option is not None else os.environ.get(CACHE_ENV)
+    if value is not None:
+        if value.strip().lower() in ("", "0", "off", "no", "false"):
+            return None
+        return Path(value).expanduser()
+    xdg = os.environ.get("XDG_CACHE_HOME")
+    base = Path(xdg) if xdg and os.path.isabs(xdg) else Path.home() / ".cache"
+    return base / "compose"
+
+
+def _pyproj_stamp() -> str | None:
+    """Size and mtime of the installed pyproj's package file (found without importing it)."""
+    import importlib.util
+
+    try:
+        spec = importlib.util.find_spec("pyproj")
+        st = os.stat(spec.origin) if spec is not None and spec.origin else None
+    except (ImportError, ValueError, OSError):
+        return None
+    return None if st is None else f"{st.st_size}:{st.st_mtime_ns}"
+
+
+def _read(root: Path) -> dict:
+    try:
+        data = json.loads((root / _CRS_FILE).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return data if isinstance(data, dict) else {}
+
+
+def crs_known(value: str) -> bool:
+    """Whether pyproj (the one installed now) accepted ``value`` as a canvas CRS before."""
+    root = cache_dir()
+    if root is None:
+        return False
+    data = _read(root)
+    stamp = _pyproj_stamp()
+    valid = data.get("valid")
+    return stamp is not None and data.get("pyproj") == stamp and isinstance(valid, list) \
+        and value in valid
+
+
+def remember_crs(value: str) -> None:
+    """Note that pyproj accepted ``value`` (written atomically; a cache that cannot be written
+    is skipped)."""
+    root = cache_dir()
+    stamp = _pyproj_stamp()
+    if root is None or stamp is None:
+        return
+    data = _read(root)
+    valid = data.get("valid") if data.get("pyproj") == stamp else []
+    valid = [v for v in (valid if isinstance(valid, list) else []) if isinstance(v, str)]
+    if value in valid:
+        return
+    valid = (valid + [value])[-256:]
+    with contextlib.suppress(OSError):
+        root.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=".crs-", suffix=".part", dir=root)
+        try:
+            with os.fdopen(fd, "w", encoding="utf-8") as f:
+                json.dump({"pyproj": stamp, "valid": valid}, f)
+            os.replace(tmp, root / _CRS_FILE)
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise
