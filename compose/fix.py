@@ -3,7 +3,9 @@
 Each round checks the style (at draft resolution by default, :mod:`compose.check.draft`), applies
 the structured :class:`~compose.check.report.Change` of every failed rule to the style's own TOML
 text with a format-preserving editor (tomlkit: comments, order and layout are kept), re-checks,
-and keeps going until the check passes or a round fixes nothing more. Changes go into the file
+and keeps going until the check passes or a round fixes nothing more. The overlays' contrast
+fixes wait until no other failed rule proposes a change: a halo or stroke is chosen against
+what lies beneath it, so it is chosen on the ground and data as fixed. Changes go into the file
 that was given: a layer or ramp defined in a file it ``extends`` gets an override table (layers
 merge by name, ramps key by key), so shared base files are never edited.
 """
@@ -22,6 +24,9 @@ import tomlkit
 from compose.errors import StyleError
 
 __all__ = ["FixRound", "FixResult", "apply_change", "fix_style", "rebase_paths"]
+
+#: Rules whose fixes depend on what lies beneath the overlay (applied once nothing else is).
+ON_TOP = ("overlay-contrast", "label-contrast", "overlay-size")
 
 _TABLE = re.compile(r'^(layer|ramp) "([^"]+)"(?:\.(\w+)\[(\d+)\])?$')
 
@@ -175,6 +180,10 @@ def fix_style(path: str | Path, *, draft: bool = True, rounds: int = 6) -> FixRe
         changes = [r.change for r in failed if r.change is not None]
         if not failed or not changes:
             break
+        if any(r.rule not in ON_TOP for r in failed if r.change is not None):
+            # a halo or stroke is chosen against what lies beneath it: let the ground, the data
+            # and the no-data colour settle first, and judge the overlays on them next round
+            changes = [r.change for r in failed if r.change is not None and r.rule not in ON_TOP]
         style = load_style(path) if text == original else load_style(_scratch(path, text))
         doc = tomlkit.parse(text)
         done: set = set()

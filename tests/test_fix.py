@@ -110,3 +110,22 @@ def test_compose_fix_without_write_only_shows_the_diff(tmp_path):
 def test_fix_style_of_a_passing_style_changes_nothing():
     r = fix_style(STYLES / "cover.toml")
     assert not r.changed and r.after.passed and r.rounds == []
+
+
+def test_overlays_are_fixed_on_the_settled_ground():
+    # the coast's contrast is judged against what lies beneath it: compose fix first settles
+    # the ground, the data and the no-data colour (rounds without an overlay change), then
+    # judges the coast on them -- here a darker stroke of its own hue (colour-science LCh,
+    # CIE 15:2004) rather than a casing chosen against the old green sea
+    import colour
+    result = fix_style(POOR)
+    assert result.after.passed
+    first = [c.table for c in result.rounds[0].changes]
+    assert 'layer "coast"' not in first and first
+    coast = next(t for t in tomlkit.parse(result.text)["layer"] if t["name"] == "coast")
+    stroke = coast["stroke"]
+    rgb = np.asarray(parse_color(stroke)) if isinstance(stroke, str) else None
+    if rgb is not None:                                  # the stroke changed: its hue is kept
+        h = colour.Lab_to_LCHab(colour.XYZ_to_Lab(colour.sRGB_to_XYZ(rgb)))[2]
+        assert abs((h - 220 + 180) % 360 - 180) <= 5
+    assert "halo" not in coast or rgb is None
