@@ -11,8 +11,9 @@ with each page writer's share of the walk's compute time. Never asserted in test
 
 ``--bytecode``: the command also as an installed package runs it, with its modules' compiled
 bytecode (a machine with PYTHONDONTWRITEBYTECODE set compiles every module of compose on every
-run; this runs with it unset, after one unmeasured run that writes the bytecode beside the
-sources, in __pycache__ folders git ignores).
+run; this runs with it unset and the bytecode in a temporary folder, PYTHONPYCACHEPREFIX,
+written by one unmeasured run first; the source tree gets none, so later plain runs stay
+plain).
 
 ``--timeline``: one more command run recording its stages (:mod:`compose.timeline`), printed
 per process and thread on one clock from the command's launch: what ran where and what waited.
@@ -38,8 +39,10 @@ def command_seconds(style: str, runs: int, bytecode: bool = False) -> list[float
     exe = Path(sys.executable).with_name("compose")
     cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose.cli.main"]
     env = dict(os.environ)
-    if bytecode:
+    cache = tempfile.TemporaryDirectory() if bytecode else None
+    if cache is not None:
         env.pop("PYTHONDONTWRITEBYTECODE", None)
+        env["PYTHONPYCACHEPREFIX"] = cache.name
     out = []
     for i in range(runs + bytecode):
         with tempfile.TemporaryDirectory() as tmp:
@@ -51,6 +54,8 @@ def command_seconds(style: str, runs: int, bytecode: bool = False) -> list[float
             out.append(time.perf_counter() - t)
             if done.returncode not in (0, 1):
                 raise SystemExit(f"compose render failed ({done.returncode}): {done.stderr}")
+    if cache is not None:
+        cache.cleanup()
     return out
 
 
