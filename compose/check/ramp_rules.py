@@ -318,8 +318,11 @@ def _shape_change(rule: str, ramp, limit: float = 10.0) -> tuple[str, Change | N
     if len(ramp.stops) < 2:
         return "", None
     from compose.ramps.respace import respace_stops
-    got = respace_stops(ramp.stops, ramp.space, ramp.domain, limit)
-    through = [{"L": L, "C": C, "h": h} for L, C, h in got.stops]
+    got = respace_stops(ramp.stops, ramp.space, ramp.domain, limit, ramp.values)
+    # written in the file's own order: a ramp with ``reverse = true``, a domain from high to low
+    # or pinned values listed from high to low is built from its stops in the opposite order
+    listing = got.stops[::-1] if ramp.listed_reversed else got.stops
+    through = [{"L": L, "C": C, "h": h} for L, C, h in listing]
     listed = ", ".join(f"{{L = {t['L']:g}, C = {t['C']:g}, h = {t['h']:g}}}" for t in through)
     first, last = got.stops[0][0], got.stops[-1][0]
     chroma = ("each stop's chroma kept" if got.chroma_factor >= 1.0 else

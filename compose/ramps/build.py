@@ -192,7 +192,8 @@ def _from_spec(spec: RampSpec, pieces=(), **extra) -> Ramp:
     return Ramp(spec.name, spec.kind, spec.domain, stops, spec.space, _GRAY, _GRAY, _GRAY, pieces,
                 center=spec.center, at=spec.at, n_below=len(spec.below), steps=spec.steps,
                 step_method=spec.step_method or "equal", breaks=spec.breaks,
-                samples=spec.samples or 1024, path=spec.path, **extra)
+                samples=spec.samples or 1024, path=spec.path, values=spec.values,
+                listed_reversed=spec.listed_reversed, **extra)
 
 
 def build_ramp(spec: RampSpec) -> Ramp:

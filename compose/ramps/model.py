@@ -92,6 +92,8 @@ class Ramp:
     breaks: tuple[float, ...] | None = None
     samples: int = 1024
     path: Path | None = None
+    values: tuple[float, ...] | None = None   # sequential: each stop's data value, when pinned
+    listed_reversed: bool = False   # sequential: ``stops`` run opposite to the file's listing
 
     # --- continuous colour ----------------------------------------------------------------------
 

@@ -71,6 +71,7 @@ class RampSpec:
     breaks: tuple[float, ...] | None = None
     samples: int | None = None
     values: tuple[float, ...] | None = None     # sequential: the data value of each stop (pinned)
+    listed_reversed: bool = False   # sequential: ``through`` runs opposite to the file's listing
 
     @property
     def where(self) -> str:
@@ -301,13 +302,15 @@ def parse_ramp(name: str, table: Mapping, path: Path | str) -> RampSpec:
                         hue=tuple(_number(h, where, "hue") for h in hue), **fields)
     if kind == "sequential":
         through = _stops(table, "through", where, 2)
+        listed_reversed = False
         if values is not None and values[0] > values[-1]:   # listed from high to low
-            values, through = values[::-1], through[::-1]
+            values, through, listed_reversed = values[::-1], through[::-1], True
         if flip:
-            through = through[::-1]
+            through, listed_reversed = through[::-1], not listed_reversed
             if values is not None:
                 values = tuple(domain[0] + domain[1] - v for v in values[::-1])
-        return RampSpec(name, kind, path, space, domain, through=through, values=values, **fields)
+        return RampSpec(name, kind, path, space, domain, through=through, values=values,
+                        listed_reversed=listed_reversed, **fields)
     if kind == "diverging":
         through = _stops(table, "through", where, 3)[::-1 if flip else 1]
         if len(through) % 2 == 0:

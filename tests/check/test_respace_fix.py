@@ -10,6 +10,7 @@ from pathlib import Path
 
 import colour
 import numpy as np
+import pytest
 
 from compose.ramps import RampSpec, build_ramp
 from tests.check._maps import apply_change, check, field, relief, style
@@ -80,3 +81,44 @@ def test_a_ramp_whose_hues_run_one_way_keeps_its_chroma(data, tmp_path):
     new = bad.change.values["through"]
     _assert_hue_path_kept(WAVY["through"], new, WAVY["domain"])
     assert [t["C"] for t in new] == [30.0, 40.0, 40.0] and "chroma kept" in bad.fix
+
+
+def test_the_fix_of_a_reversed_ramp_is_written_in_the_files_order(data, tmp_path):
+    """``reverse = true`` builds the ramp from the listed stops in the opposite order: the respaced
+    stops must be listed the way the file lists them, or applying the fix flips the ramp."""
+    wavy = dict(WAVY, reverse=True)
+    doc = style([relief(data["hills"]), field(data["gradient"], ramp="wavy")], {"wavy": wavy})
+    before = build_ramp(RampSpec("b", "sequential", Path("x.toml"), "cam02ucs", (0.0, 10.0),
+                                 through=tuple((t["L"], t["C"], t["h"])
+                                               for t in WAVY["through"][::-1])))
+    bad = one(check(tmp_path, doc, "wavy-reversed"), "ramp-lightness-monotone", "val")
+    new = bad.change.values["through"]
+    assert [t["h"] for t in new] == [float(t["h"]) for t in WAVY["through"]]   # listing kept
+    fixed_doc = apply_change(doc, bad.change)
+    assert fixed_doc["ramp"]["wavy"]["reverse"] is True
+    fixed = check(tmp_path, fixed_doc, "wavy-reversed-fixed")
+    for rule in ("ramp-lightness-monotone", "ramp-step-uniformity"):
+        assert one(fixed, rule, "val").passed
+    # the drawn ramp still runs the same way: hue at the domain's low end near the last listed
+    # stop's (150 degrees), at the high end near the first's (95), measured by colour-science
+    from compose.ramps.spec import parse_ramp
+    spec = parse_ramp("wavy", fixed_doc["ramp"]["wavy"], Path("x.toml"))
+    after = build_ramp(spec)
+    for ramp in (before, after):
+        low, high = _lch_reference(ramp.colors_at(np.array([0.0, 10.0])))
+        assert abs(_arc_gap(150.0, low[2])) < 10.0 and abs(_arc_gap(95.0, high[2])) < 10.0
+
+
+def test_the_fix_of_a_ramp_with_pinned_values_spaces_lightness_by_value(data, tmp_path):
+    """Stops pinned to data values [0, 8, 10]: lightness placed in proportion to each stop's value,
+    so equal data steps read evenly and the fixed ramp passes (evenness 10 % is our target)."""
+    pinned = dict(WAVY, values=[0, 8, 10])
+    pinned.pop("domain")
+    doc = style([relief(data["hills"]), field(data["gradient"], ramp="pinned")], {"pinned": pinned})
+    bad = one(check(tmp_path, doc, "pinned"), "ramp-lightness-monotone", "val")
+    new = bad.change.values["through"]
+    L = [t["L"] for t in new]
+    assert L[0] - L[1] == pytest.approx(4.0 * (L[1] - L[2]), abs=0.2)       # 8 units vs 2
+    fixed = check(tmp_path, apply_change(doc, bad.change), "pinned-fixed")
+    for rule in ("ramp-lightness-monotone", "ramp-step-uniformity"):
+        assert one(fixed, rule, "val").passed
