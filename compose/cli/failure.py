@@ -144,23 +144,54 @@ def _numpy_quiet() -> Iterator[None]:
         yield
 
 
+#: the signal (SIGINT or SIGTERM) received during the guarded command, if any: an exception it
+#: raises inside a library's own start-up (a C extension's import turns it into ImportError
+#: "initialization failed") is still reported as the interruption it is, not as a fault
+_received: int | None = None
+
+
 def _on_sigterm(signum, frame):  # pragma: no cover - exercised by a subprocess test
+    global _received
+    _received = signum
     raise Terminated()
+
+
+def _on_sigint(signum, frame):  # pragma: no cover - exercised by a subprocess test
+    global _received
+    _received = signum
+    raise KeyboardInterrupt
+
+
+def _signalled() -> int | None:
+    """The exit code of a signal received during the command (130, 143), else None."""
+    if _received == signal.SIGINT:
+        return EXIT_INTERRUPTED
+    if _received == signal.SIGTERM:
+        return EXIT_TERMINATED
+    return None
 
 
 @contextlib.contextmanager
 def signals_as_exceptions() -> Iterator[None]:
     """While the block runs, SIGTERM raises :class:`Terminated` (SIGINT already raises
     KeyboardInterrupt), so temporary outputs are removed by the usual cleanup."""
+    global _received
+    _received = None
     try:
         previous = signal.signal(signal.SIGTERM, _on_sigterm)
     except ValueError:              # not the main thread (e.g. a test runner's worker)
         yield
         return
+    interrupt = signal.getsignal(signal.SIGINT)
+    ours = interrupt is signal.default_int_handler     # leave a caller's own handler alone
+    if ours:
+        signal.signal(signal.SIGINT, _on_sigint)
     try:
         yield
     finally:
         signal.signal(signal.SIGTERM, previous)
+        if ours:
+            signal.signal(signal.SIGINT, interrupt)
 
 
 def _exit(code: int) -> None:
@@ -201,24 +232,27 @@ def guarded(func: Callable) -> Callable:
         except (SystemExit, click.exceptions.ClickException, click.exceptions.Abort,
                 click.exceptions.Exit):
             raise
-        except ComposeError as exc:
-            if debug_enabled():
-                traceback.print_exc()
-            _echo(f"compose: error: {one_line(exc)}")
-            _exit(EXIT_BAD_INPUT)
         except KeyboardInterrupt:
             _echo("compose: interrupted; outputs left as they were")
             _exit(EXIT_INTERRUPTED)
         except Terminated:
             _echo("compose: terminated; outputs left as they were")
             _exit(EXIT_TERMINATED)
-        except MemoryError:
-            _echo("compose: failed: out of memory; try a smaller canvas (map.pixel, map.extent) "
-                  "or fewer layers")
-            _exit(EXIT_PROGRAM_FAILED)
         except Exception as exc:
             if debug_enabled():
                 traceback.print_exc()
+            code = _signalled()
+            if code is not None:    # whatever the signal broke on its way out: still the signal
+                _echo("compose: interrupted; outputs left as they were" if code == EXIT_INTERRUPTED
+                      else "compose: terminated; outputs left as they were")
+                _exit(code)
+            if isinstance(exc, ComposeError):
+                _echo(f"compose: error: {one_line(exc)}")
+                _exit(EXIT_BAD_INPUT)
+            if isinstance(exc, MemoryError):
+                _echo("compose: failed: out of memory; try a smaller canvas (map.pixel, "
+                      "map.extent) or fewer layers")
+                _exit(EXIT_PROGRAM_FAILED)
             if isinstance(exc, OSError) and exc.errno in _WRITE_ERRNOS:
                 _echo(f"compose: error: cannot write outputs: {one_line(exc.strerror or exc)}; "
                       f"nothing was replaced")
