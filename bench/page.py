@@ -37,7 +37,7 @@ def command_seconds(style: str, runs: int, bytecode: bool = False) -> list[float
     """Wall-clock seconds of ``compose render STYLE`` in a fresh process, ``runs`` times
     (``bytecode``: with compiled bytecode, as an installed package; see the module's text)."""
     exe = Path(sys.executable).with_name("compose")
-    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose.cli.main"]
+    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose"]
     env = dict(os.environ)
     cache = tempfile.TemporaryDirectory() if bytecode else None
     if cache is not None:
@@ -64,7 +64,7 @@ def timeline(style: str) -> None:
     from compose.timeline import read
 
     exe = Path(sys.executable).with_name("compose")
-    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose.cli.main"]
+    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "compose"]
     with tempfile.TemporaryDirectory() as tmp:
         log = Path(tmp) / "timeline.txt"
         env = dict(os.environ, COMPOSE_TIMELINE=str(log))

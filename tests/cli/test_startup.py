@@ -29,3 +29,15 @@ def test_the_command_ends_its_process_with_the_exit_code_and_flushed_output():
     missing = _command("check", "no-such-style.toml")
     assert missing.returncode == 2 and "no-such-style.toml" in missing.stderr
     assert _command("no-such-command").returncode == 2
+
+
+def test_python_dash_m_compose_is_the_command(tmp_path):
+    """``python -m compose`` runs the command line (it printed nothing and did nothing before)."""
+    import subprocess
+    import sys
+    done = subprocess.run([sys.executable, "-m", "compose", "--help"], capture_output=True,
+                          text=True, timeout=60)
+    assert done.returncode == 0 and "render" in done.stdout
+    missing = subprocess.run([sys.executable, "-m", "compose", "check", str(tmp_path / "no.toml")],
+                             capture_output=True, text=True, timeout=60)
+    assert missing.returncode == 2 and missing.stderr.count("\n") == 1
