@@ -44,7 +44,7 @@ from typing import Any
 
 import numpy as np
 
-from compose.layers.base import Paint, Palette
+from compose.layers.base import Paint, Palette, palette_from_lut
 from compose.user_cache import CACHE_ENV, cache_dir
 
 __all__ = ["CACHE_ENV", "CACHE_VERSION", "MAX_PIXELS", "MAX_BYTES", "cache_dir", "clear_cache",
@@ -155,19 +155,6 @@ def _digest(obj: Any) -> str:
 
 # --- colours ------------------------------------------------------------------------------------
 
-def _palette_from_lut(lut, nodata_rgb=None) -> Palette:
-    """As :func:`compose.layers.raster.palette_from_lut` (without importing the raster reader;
-    a cold check verifies they agree before anything is stored)."""
-    rgb8 = np.array(lut.rgb8, dtype=np.uint8, copy=True)
-    if nodata_rgb is not None:
-        rgb8[lut.nodata_index] = np.clip(np.rint(np.asarray(nodata_rgb) * 255), 0, 255)
-    values = np.full(rgb8.shape[0], np.nan)
-    n = min(len(lut.values), rgb8.shape[0])
-    values[:n] = lut.values[:n]
-    values[lut.nodata_index] = np.nan
-    return Palette(rgb8=rgb8, values=values, nodata=lut.nodata_index)
-
-
 def _lut_of(spec, ramps) -> Any | None:
     ramp = ramps.get(getattr(spec.options, "ramp", None))
     if ramp is None:
@@ -203,7 +190,7 @@ def layer_colors(spec, ramps) -> dict[str, Any] | None:
             return None
         nodata = getattr(o, "nodata", None)
         transparent = isinstance(nodata, str)
-        return {"data": _palette_from_lut(lut, None if (nodata is None or transparent) else nodata)}
+        return {"data": palette_from_lut(lut, None if (nodata is None or transparent) else nodata)}
     return None
 
 

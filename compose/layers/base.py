@@ -15,7 +15,7 @@ from affine import Affine
 
 from compose.canvas import Canvas, Window
 
-__all__ = ["Palette", "Paint", "Context", "LayerKind"]
+__all__ = ["Palette", "Paint", "Context", "LayerKind", "palette_from_lut"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -45,6 +45,19 @@ class Palette:
             # indices 1.5-3x faster (no conversion of the indices first)
             np.take(self.planes[c], index, out=out[c], mode="wrap")
         return out
+
+
+def palette_from_lut(lut, nodata_rgb=None) -> Palette:
+    """A :class:`Palette` over every entry of a ramp's lookup table (under, over, no-data
+    included); ``nodata_rgb`` (sRGB floats 0-1) replaces the table's own no-data colour."""
+    rgb8 = np.array(lut.rgb8, dtype=np.uint8, copy=True)
+    if nodata_rgb is not None:
+        rgb8[lut.nodata_index] = np.clip(np.rint(np.asarray(nodata_rgb) * 255), 0, 255)
+    values = np.full(rgb8.shape[0], np.nan)
+    n = min(len(lut.values), rgb8.shape[0])
+    values[:n] = lut.values[:n]
+    values[lut.nodata_index] = np.nan
+    return Palette(rgb8=rgb8, values=values, nodata=lut.nodata_index)
 
 
 @dataclass(frozen=True, slots=True)

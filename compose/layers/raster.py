@@ -6,7 +6,7 @@ import numpy as np
 
 from compose.canvas import core_window
 from compose.errors import StyleError
-from compose.layers.base import Context, Paint, Palette
+from compose.layers.base import Context, Paint, palette_from_lut
 from compose.layers.early import EarlyRead
 from compose.sources.raster import RasterSource
 
@@ -23,18 +23,6 @@ def open_raster(spec, canvas, *, decimate: bool = False) -> RasterSource:
         source.close()
         raise
     return source
-
-
-def palette_from_lut(lut, nodata_rgb=None) -> Palette:
-    """A :class:`Palette` over every entry of a ramp's lookup table (under, over, no-data included)."""
-    rgb8 = np.array(lut.rgb8, dtype=np.uint8, copy=True)
-    if nodata_rgb is not None:
-        rgb8[lut.nodata_index] = np.clip(np.rint(np.asarray(nodata_rgb) * 255), 0, 255)
-    values = np.full(rgb8.shape[0], np.nan)
-    n = min(len(lut.values), rgb8.shape[0])
-    values[:n] = lut.values[:n]
-    values[lut.nodata_index] = np.nan
-    return Palette(rgb8=rgb8, values=values, nodata=lut.nodata_index)
 
 
 class FieldLayer:
