@@ -30,9 +30,7 @@ from compose.check.on_map import (
     _in_steps,
     _neutral_ground_fix,
     _theme_blend_steps,
-    diverging_themes,
-    fill_gaps,
-    pooled_gap,
+    arm_gaps,
 )
 from compose.check.on_map_chroma import _paper_step, drawn_chroma
 from compose.check.report import Change, RuleResult
@@ -118,27 +116,23 @@ def diverging_chroma_map(ctx: CheckContext) -> list[RuleResult]:
     """The two arms of a diverging theme as drawn on the map at equal distance from the centre:
     weighted p90 |dC*ab| <= ``budget.ramp.map_arm_chroma`` (our design target, no source)."""
     limit = float(limit_of(RULE, ctx.budgets)[0])
-    out = []
-    for spec, s, ramp, arms in diverging_themes(ctx):
-        half = arms.half
-        got = drawn_chroma(s, arms.groups, 2 * half)
-        if got is None:
+    out: list[RuleResult] = []
+
+    def chroma(s, groups, n):
+        got = drawn_chroma(s, groups, n)
+        return None if got is None else (got[0], got[2])
+
+    for g in arm_gaps(ctx, RULE, limit, chroma):
+        if isinstance(g, RuleResult):
+            out.append(g)
             continue
-        C, _, n = got
-        (Ca, wa), (Cb, wb) = fill_gaps(C[:half], n[:half]), fill_gaps(C[half:], n[half:])
-        pooled = pooled_gap(Ca, Cb, wa, wb)
-        if pooled is None:
-            out.append(RuleResult(RULE, spec.name, None, limit, True,
-                                  "the two arms share no drawn distance from the centre; not "
-                                  "measured", ramp=ramp.name))
-            continue
-        value, k = pooled
+        spec, ramp, value, k = g.spec, g.ramp, g.value, g.k
         passed = value <= limit
-        at_lo, at_hi = arms.near(k)
+        at_lo, at_hi = g.arms.near(k)
         msg = (f"|dC*ab| between the arms as drawn on the map, at equal distance from "
-               f"{arms.center:g}, at each distance's lit end: p90 over {half} distances "
-               f"{value:.2f} (near {at_lo:.3g} / {at_hi:.3g}: C*ab {Ca[k]:.1f} vs {Cb[k]:.1f}); "
-               f"limit {limit:g}")
+               f"{g.arms.center:g}, at each distance's lit end: p90 over {g.arms.half} distances "
+               f"{value:.2f} (near {at_lo:.3g} / {at_hi:.3g}: C*ab {g.a[k]:.1f} vs "
+               f"{g.b[k]:.1f}); limit {limit:g}")
         fix, change = ("", None) if passed else _fix(ctx, spec, ramp, value, limit)
         out.append(RuleResult(RULE, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
                               change=change))

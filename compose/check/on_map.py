@@ -42,7 +42,7 @@ from compose.check.stats import N_LIGHTNESS
 from compose.color.cvd import simulate_cvd
 from compose.color.lab import srgb_to_lab, srgb_to_lch
 
-__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "TwinGap", "twin_gaps", "ArmBands",
+__all__ = ["MIN_PIXELS", "BANDS", "LIT_SHARE", "TwinGap", "twin_gaps", "ArmBands", "ArmGap", "arm_gaps",
            "diverging_themes",
            "drawn_colors", "drawn_lightness", "position_groups", "fill_gaps",
            "pooled_gap", "twin_lightness_map",
@@ -421,30 +421,58 @@ def diverging_themes(ctx: CheckContext) -> Iterator[tuple[Any, Any, Any, ArmBand
         yield spec, s, ramp, ArmBands(groups, half, center, lo, hi)
 
 
+@dataclass(frozen=True)
+class ArmGap:
+    """One diverging theme's arms as drawn: ``a`` / ``b`` (half,) the low / high arm's measure at
+    each distance from the centre (gaps filled), the pooled gap ``value`` (weighted p90) and its
+    band ``k``."""
+    spec: Any
+    ramp: Any
+    arms: ArmBands
+    a: np.ndarray
+    b: np.ndarray
+    value: float
+    k: int
+
+
+def arm_gaps(ctx: CheckContext, rule: str, limit: float,
+             measure: Callable[..., tuple[np.ndarray, np.ndarray] | None]
+             ) -> Iterator[ArmGap | RuleResult]:
+    """For every diverging theme: an ArmGap of ``measure(stats, groups, 2 * half)`` -- (per-band
+    values, weights) or None -- compared at equal distance from the centre, or a passing "not
+    measured" RuleResult when the two arms share no drawn distance."""
+    for spec, s, ramp, arms in diverging_themes(ctx):
+        half = arms.half
+        got = measure(s, arms.groups, 2 * half)
+        if got is None:
+            continue
+        values, weights = got
+        (a, wa), (b, wb) = fill_gaps(values[:half], weights[:half]), fill_gaps(values[half:],
+                                                                               weights[half:])
+        pooled = pooled_gap(a, b, wa, wb)
+        if pooled is None:
+            yield RuleResult(rule, spec.name, None, limit, True,
+                             "the two arms share no drawn distance from the centre; not "
+                             "measured", ramp=ramp.name)
+            continue
+        yield ArmGap(spec, ramp, arms, a, b, pooled[0], pooled[1])
+
+
 def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
     rule = _rule_id("diverging-symmetry-map", vision)
     limit = _limit(ctx, rule)
-    out = []
-    for spec, s, ramp, arms in diverging_themes(ctx):
-        groups, half, center = arms.groups, arms.half, arms.center
-        got = drawn_lightness(s, groups, 2 * half, vision)
-        if got is None:
+    out: list[RuleResult] = []
+    for g in arm_gaps(ctx, rule, limit, lambda s, groups, n: drawn_lightness(s, groups, n, vision)):
+        if isinstance(g, RuleResult):
+            out.append(g)
             continue
-        (La, wa), (Lb, wb) = fill_gaps(got[0][:half], got[1][:half]), fill_gaps(got[0][half:],
-                                                                                 got[1][half:])
-        L = np.concatenate([La, Lb])
-        pooled = pooled_gap(La, Lb, wa, wb)
-        if pooled is None:
-            out.append(RuleResult(rule, spec.name, None, limit, True,
-                                  "the two arms share no drawn distance from the centre; not "
-                                  "measured", ramp=ramp.name))
-            continue
-        value, k = pooled
+        spec, ramp, value, k = g.spec, g.ramp, g.value, g.k
         passed = value <= limit
-        at_lo, at_hi = arms.near(k)
-        msg = (f"|dL*| between the arms as drawn on the map, at equal distance from {center:g}, "
-               f"in {vision} vision: p90 over {half} distances {value:.2f} (near {at_lo:.3g} / "
-               f"{at_hi:.3g}: L* {L[k]:.1f} vs {L[half + k]:.1f}); limit {limit:g}")
+        at_lo, at_hi = g.arms.near(k)
+        msg = (f"|dL*| between the arms as drawn on the map, at equal distance from "
+               f"{g.arms.center:g}, in {vision} vision: p90 over {g.arms.half} distances "
+               f"{value:.2f} (near {at_lo:.3g} / {at_hi:.3g}: L* {g.a[k]:.1f} vs {g.b[k]:.1f}); "
+               f"limit {limit:g}")
         fix, change = "", None
         own = _palette_gap(ctx, ramp, None, vision) if not passed else 0.0
         if not passed and own > limit:
