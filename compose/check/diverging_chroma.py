@@ -4,7 +4,7 @@
 Values at equal distance either side of a diverging ramp's centre mean "as far from normal" and
 must read as equally strong: equal lightness (``diverging-symmetry-map``) and equal chroma. This
 rule compares, band by band of equal distance from the centre (as a share of each arm's reach,
-:func:`compose.check.on_map.diverging_themes`), the *drawn chroma* C*ab of the two arms as the
+:func:`compose.check.on_map_diverging.diverging_themes`), the *drawn chroma* C*ab of the two arms as the
 reader sees them after every layer is blended, at each band's lit end
 (:func:`compose.check.on_map_chroma.drawn_chroma`: the mean composite colour converted to CIELAB,
 CIE 15:2004, its chroma moved to the band's lit end so terrain shading is not read as a
@@ -26,13 +26,9 @@ import numpy as np
 from compose.check.catalog import limit_of
 from compose.check.context import CheckContext, ramp_key
 from compose.check.covering import covering_step
-from compose.check.on_map import (
-    _in_steps,
-    _neutral_ground_fix,
-    _theme_blend_steps,
-    arm_gaps,
-)
+from compose.check.on_map import in_steps, neutral_ground_fix, theme_blend_steps
 from compose.check.on_map_chroma import _paper_step, drawn_chroma
+from compose.check.on_map_diverging import arm_gaps
 from compose.check.report import Change, RuleResult
 from compose.color.gamut import max_chroma
 from compose.color.lab import srgb_to_lch
@@ -86,25 +82,25 @@ def _fix(ctx: CheckContext, spec, ramp, value: float, limit: float) -> tuple[str
         return (text + f": give each pair of stops at equal distance from the midpoint the lower "
                 f"of their chromas, through = [{listed}]",
                 Change(ramp_key(ramp.name), {"through": through}))
-    text, neutral = _neutral_ground_fix(ctx, "normal", "chroma")
+    text, neutral = neutral_ground_fix(ctx, "normal", "chroma")
     ground: list[tuple[str, Change]] = [] if neutral is None else [(text, neutral)]
     tinted = bool(ground)
     steps: list[tuple[str, Change]] = []
     if spec.blend != "normal":
         # drawn normally at 0.85 first (the relief still shows); then, if still apart, the
         # ground made neutral, as it still shows through a little
-        steps = _theme_blend_steps(spec) + ground
+        steps = theme_blend_steps(spec) + ground
     elif spec.opacity < 1.0:
         # a tinted ground showing through a faint theme: neutral ground rather than an opaque
         # theme, which would hide the relief
-        steps = ground if tinted else _theme_blend_steps(spec)
+        steps = ground if tinted else theme_blend_steps(spec)
     paper = _paper_step(ctx, "both arms")
     if paper is not None and steps:
         steps.append(paper)              # a coloured paper under a multiplied relief, last
     elif paper is not None and not tinted:
         steps = [paper]
     if steps:
-        return _in_steps(steps)
+        return in_steps(steps)
     cover = covering_step(ctx, [spec], value, limit, own, f'the arms of "{spec.name}"')
     if cover is not None:
         return cover

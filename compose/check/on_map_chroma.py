@@ -36,12 +36,8 @@ import numpy as np
 
 from compose.check.catalog import limit_of
 from compose.check.context import CheckContext, layer_key
-from compose.check.on_map import (
-    MIN_PIXELS,
-    _twin_fix,
-    drawn_colors,
-    twin_gaps,
-)
+from compose.check.on_map import MIN_PIXELS, drawn_colors
+from compose.check.on_map_twins import twin_fix, twin_gaps
 from compose.check.report import Change, RuleResult
 from compose.color.lab import srgb_to_lch
 
@@ -122,7 +118,7 @@ def twin_chroma_map(ctx: CheckContext) -> list[RuleResult]:
             text = (f'the ramps "{r.name}" and "{r.base.name}" already differ by up to {own:.1f} '
                     "C*ab before any layer is blended: match their chroma (see the twin-chroma "
                     "rule)")
-            fix, change = _twin_fix(ctx, r, tspec, bspec, "normal", limit, own=(own, text),
+            fix, change = twin_fix(ctx, r, tspec, bspec, "normal", limit, own=(own, text),
                                     value=value, measure="chroma")
             paper = _paper_step(ctx) if change is None and own <= limit else None
             if paper is not None:

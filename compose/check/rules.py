@@ -28,15 +28,17 @@ from compose.check.hierarchy import (
 )
 from compose.check.legibility import label_contrast, overlay_contrast, overlay_size
 from compose.check.nodata_quiet import nodata_quiet
-from compose.check.on_map import (
+from compose.check.on_map_chroma import twin_chroma_map
+from compose.check.on_map_diverging import (
     diverging_symmetry_map,
     diverging_symmetry_map_deutan,
     diverging_symmetry_map_protan,
+)
+from compose.check.on_map_twins import (
     twin_lightness_map,
     twin_lightness_map_deutan,
     twin_lightness_map_protan,
 )
-from compose.check.on_map_chroma import twin_chroma_map
 from compose.check.ramp_rules import (
     grayscale_order,
     nodata_background,
