@@ -28,7 +28,7 @@ from compose.check.context import CheckContext, ramp_key
 from compose.check.covering import covering_step
 from compose.check.on_map import in_steps, neutral_ground_fix, theme_blend_steps
 from compose.check.on_map_chroma import _paper_step, drawn_chroma
-from compose.check.on_map_diverging import arm_gaps
+from compose.check.on_map_diverging import ArmGap, arm_gaps
 from compose.check.report import Change, RuleResult
 from compose.color.gamut import max_chroma
 from compose.color.lab import srgb_to_lch
@@ -112,16 +112,12 @@ def diverging_chroma_map(ctx: CheckContext) -> list[RuleResult]:
     """The two arms of a diverging theme as drawn on the map at equal distance from the centre:
     weighted p90 |dC*ab| <= ``budget.ramp.map_arm_chroma`` (our design target, no source)."""
     limit = float(limit_of(RULE, ctx.budgets)[0])
-    out: list[RuleResult] = []
 
     def chroma(s, groups, n):
         got = drawn_chroma(s, groups, n)
         return None if got is None else (got[0], got[2])
 
-    for g in arm_gaps(ctx, RULE, limit, chroma):
-        if isinstance(g, RuleResult):
-            out.append(g)
-            continue
+    def judge(g: ArmGap) -> RuleResult:
         spec, ramp, value, k = g.spec, g.ramp, g.value, g.k
         passed = value <= limit
         at_lo, at_hi = g.arms.near(k)
@@ -130,6 +126,7 @@ def diverging_chroma_map(ctx: CheckContext) -> list[RuleResult]:
                f"{value:.2f} (near {at_lo:.3g} / {at_hi:.3g}: C*ab {g.a[k]:.1f} vs "
                f"{g.b[k]:.1f}); limit {limit:g}")
         fix, change = ("", None) if passed else _fix(ctx, spec, ramp, value, limit)
-        out.append(RuleResult(RULE, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
-                              change=change))
-    return out
+        return RuleResult(RULE, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
+                          change=change)
+
+    return arm_gaps(ctx, RULE, limit, chroma, judge)

@@ -37,7 +37,7 @@ import numpy as np
 from compose.check.catalog import limit_of
 from compose.check.context import CheckContext, layer_key
 from compose.check.on_map import MIN_PIXELS, drawn_colors
-from compose.check.on_map_twins import twin_fix, twin_gaps
+from compose.check.on_map_twins import TwinGap, twin_fix, twin_gaps
 from compose.check.report import Change, RuleResult
 from compose.color.lab import srgb_to_lch
 
@@ -101,11 +101,8 @@ def twin_chroma_map(ctx: CheckContext) -> list[RuleResult]:
     """Twin and base as drawn on the map at equal positions: weighted p90 |dC*ab| <=
     ``budget.ramp.map_chroma`` (default 3; our design target, no source)."""
     limit = float(limit_of(RULE, ctx.budgets)[0])
-    out: list[RuleResult] = []
-    for g in twin_gaps(ctx, RULE, limit, _lit_chroma):
-        if isinstance(g, RuleResult):
-            out.append(g)
-            continue
+
+    def judge(g: TwinGap) -> RuleResult:
         r, tspec, bspec, value = g.ramp, g.twin, g.base, g.value
         passed = value <= limit
         msg = (f'|dC*ab| between "{tspec.name}" ({r.name}) and "{bspec.name}" ({r.base.name}) as '
@@ -119,10 +116,11 @@ def twin_chroma_map(ctx: CheckContext) -> list[RuleResult]:
                     "C*ab before any layer is blended: match their chroma (see the twin-chroma "
                     "rule)")
             fix, change = twin_fix(ctx, r, tspec, bspec, "normal", limit, own=(own, text),
-                                    value=value, measure="chroma")
+                                   value=value, measure="chroma")
             paper = _paper_step(ctx) if change is None and own <= limit else None
             if paper is not None:
                 fix, change = paper
-        out.append(RuleResult(RULE, f"{tspec.name}, {bspec.name}", value, limit, passed, msg, fix,
-                              ramp=r.name, change=change))
-    return out
+        return RuleResult(RULE, f"{tspec.name}, {bspec.name}", value, limit, passed, msg, fix,
+                          ramp=r.name, change=change)
+
+    return twin_gaps(ctx, RULE, limit, _lit_chroma, judge)

@@ -81,11 +81,18 @@ class ArmGap:
 
 
 def arm_gaps(ctx: CheckContext, rule: str, limit: float,
-             measure: Callable[..., tuple[np.ndarray, np.ndarray] | None]
-             ) -> Iterator[ArmGap | RuleResult]:
-    """For every diverging theme: an ArmGap of ``measure(stats, groups, 2 * half)`` -- (per-band
-    values, weights) or None -- compared at equal distance from the centre, or a passing "not
-    measured" RuleResult when the two arms share no drawn distance."""
+             measure: Callable[..., tuple[np.ndarray, np.ndarray] | None],
+             judge: Callable[[ArmGap], RuleResult]) -> list[RuleResult]:
+    """For every diverging theme: ``judge`` of an ArmGap of ``measure(stats, groups, 2 * half)``
+    -- (per-band values, weights) or None -- compared at equal distance from the centre, or a
+    passing "not measured" RuleResult when the two arms share no drawn distance."""
+    return [g if isinstance(g, RuleResult) else judge(g)
+            for g in _gaps(ctx, rule, limit, measure)]
+
+
+def _gaps(ctx: CheckContext, rule: str, limit: float,
+          measure: Callable[..., tuple[np.ndarray, np.ndarray] | None]
+          ) -> Iterator[ArmGap | RuleResult]:
     for spec, s, ramp, arms in diverging_themes(ctx):
         half = arms.half
         got = measure(s, arms.groups, 2 * half)
@@ -106,11 +113,8 @@ def arm_gaps(ctx: CheckContext, rule: str, limit: float,
 def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
     rule = rule_id("diverging-symmetry-map", vision)
     limit = rule_limit(ctx, rule)
-    out: list[RuleResult] = []
-    for g in arm_gaps(ctx, rule, limit, lambda s, groups, n: drawn_lightness(s, groups, n, vision)):
-        if isinstance(g, RuleResult):
-            out.append(g)
-            continue
+
+    def judge(g: ArmGap) -> RuleResult:
         spec, ramp, value, k = g.spec, g.ramp, g.value, g.k
         passed = value <= limit
         at_lo, at_hi = g.arms.near(k)
@@ -133,9 +137,11 @@ def _diverging_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
                 fix, change = cover if cover is not None else (
                     f'the layers drawn with "{spec.name}" shade its arms unequally; check the '
                     f'ramp "{ramp.name}" in {vision} vision and the ground beneath', None)
-        out.append(RuleResult(rule, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
-                              change=change))
-    return out
+        return RuleResult(rule, spec.name, value, limit, passed, msg, fix, ramp=ramp.name,
+                          change=change)
+
+    return arm_gaps(ctx, rule, limit, lambda s, groups, n: drawn_lightness(s, groups, n, vision),
+                    judge)
 
 
 def diverging_symmetry_map(ctx: CheckContext) -> list[RuleResult]:

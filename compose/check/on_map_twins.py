@@ -61,11 +61,18 @@ class TwinGap:
 
 
 def twin_gaps(ctx: CheckContext, rule: str, limit: float,
-              measure: Callable[..., tuple[np.ndarray, np.ndarray] | None]
-              ) -> Iterator[TwinGap | RuleResult]:
-    """For every twin drawn beside its base: a TwinGap of ``measure(stats, groups, bands)`` --
-    (per-position values, weights) or None -- taken at equal positions along both ramps, or a
-    passing "not measured" RuleResult when the two share no drawn position."""
+              measure: Callable[..., tuple[np.ndarray, np.ndarray] | None],
+              judge: Callable[[TwinGap], RuleResult]) -> list[RuleResult]:
+    """For every twin drawn beside its base: ``judge`` of a TwinGap of ``measure(stats, groups,
+    bands)`` -- (per-position values, weights) or None -- taken at equal positions along both
+    ramps, or a passing "not measured" RuleResult when the two share no drawn position."""
+    return [g if isinstance(g, RuleResult) else judge(g)
+            for g in _gaps(ctx, rule, limit, measure)]
+
+
+def _gaps(ctx: CheckContext, rule: str, limit: float,
+          measure: Callable[..., tuple[np.ndarray, np.ndarray] | None]
+          ) -> Iterator[TwinGap | RuleResult]:
     for r, (tspec, ts), (bspec, bs) in _twin_layers(ctx):
         bands = min(BANDS, ctx.lut(r).n, ctx.lut(r.base).n)     # equal positions along the ramps
         got_t = measure(ts, position_groups(len(ts.value_color), ctx.lut(r).n, bands), bands)
@@ -87,12 +94,8 @@ def twin_gaps(ctx: CheckContext, rule: str, limit: float,
 def _twin_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
     rule = rule_id("twin-lightness-map", vision)
     limit = rule_limit(ctx, rule)
-    out: list[RuleResult] = []
-    for g in twin_gaps(ctx, rule, limit,
-                       lambda s, groups, n: drawn_lightness(s, groups, n, vision)):
-        if isinstance(g, RuleResult):
-            out.append(g)
-            continue
+
+    def judge(g: TwinGap) -> RuleResult:
         r, tspec, bspec = g.ramp, g.twin, g.base
         passed = g.value <= limit
         msg = (f'|dL*| between "{tspec.name}" ({r.name}) and "{bspec.name}" ({r.base.name}) as '
@@ -101,14 +104,16 @@ def _twin_map(ctx: CheckContext, vision: str) -> list[RuleResult]:
         fix, change = "", None
         if not passed:
             fix, change = twin_fix(ctx, r, tspec, bspec, vision, limit, value=g.value)
-        out.append(RuleResult(rule, f"{tspec.name}, {bspec.name}", g.value, limit, passed, msg,
-                              fix, ramp=r.name, change=change))
-    return out
+        return RuleResult(rule, f"{tspec.name}, {bspec.name}", g.value, limit, passed, msg, fix,
+                          ramp=r.name, change=change)
+
+    return twin_gaps(ctx, rule, limit,
+                     lambda s, groups, n: drawn_lightness(s, groups, n, vision), judge)
 
 
 def twin_fix(ctx: CheckContext, r, tspec, bspec, vision: str, limit: float,
-              own: tuple[float, str] | None = None, value: float | None = None,
-              measure: str = "lightness") -> tuple[str, Change | None]:
+             own: tuple[float, str] | None = None, value: float | None = None,
+             measure: str = "lightness") -> tuple[str, Change | None]:
     """The fix of a twin pair apart on the map; ``own``: (the ramps' own gap, its fix text) for
     a measure other than L* (default: their L* gap); ``value``: the gap measured on the map
     (for the opacity of a layer drawn over them, :mod:`compose.check.covering`)."""
