@@ -24,6 +24,7 @@ def test_spans_of_a_forked_process_land_in_the_same_file(tmp_path, monkeypatch):
         os.waitpid(pid, 0)
     rows = timeline.read(str(log))
     assert [r[4] for r in rows] == ["outer stage", "child stage"]      # by start
-    (p0, t0, s0, e0, _), (p1, t1, s1, e1, _) = rows
+    (p0, t0, s0, e0, _, c0), (p1, t1, s1, e1, _, c1) = rows
     assert p0 == os.getpid() and p1 == pid and t0 == "MainThread"
     assert s0 <= s1 <= e1 <= e0
+    assert c0 >= 0 and c1 >= 0                     # the recording thread's CPU seconds

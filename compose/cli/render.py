@@ -132,7 +132,7 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
                 workers: int | None, cluster: str | None, cog: bool = False, check: bool = True,
                 strict: bool = False) -> bool:
     """Render one style (or its series); False when its check failed."""
-    from compose.timeline import span
+    from compose.timeline import note_process, span
 
     with span("import render"):
         from compose.errors import StyleError
@@ -161,6 +161,7 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
         click.echo(f"note: {note}", err=True)
     with span("summary"):
         print_summary(result, strict)
+    note_process()
     return not check or result.report is None or result.report.passed_strict(strict)
 
 

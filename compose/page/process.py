@@ -36,7 +36,7 @@ from typing import Any
 
 import numpy as np
 
-from compose.timeline import span
+from compose.timeline import note_process, span
 
 __all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
 
@@ -134,6 +134,7 @@ class Forked:
             except BaseException:                         # noqa: BLE001
                 status = 1
             finally:
+                note_process()
                 os._exit(status)
         os.close(w)
         self.pid: int | None = pid
@@ -210,6 +211,7 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
     except BaseException:                                 # noqa: BLE001
         status = 1
     finally:
+        note_process()
         os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
 
 
