@@ -12,6 +12,7 @@ from pathlib import Path
 import pytest
 
 from compose import check_cache
+from compose.check_cache import keys, store
 from compose.api import check
 from tests.check._maps import field, labels, lines, make_data, relief, style, write_style
 
@@ -122,6 +123,39 @@ def test_a_changed_source_is_read_again(tmp_path, data, stores):
     assert _json(after) == _json(check(path, cache=False)) != _json(before)
 
 
+def test_library_versions_are_the_installed_distributions():
+    """The versions the key holds are those the standard library's importlib.metadata reports
+    for the installed distributions (found here without importing the libraries themselves)."""
+    from importlib.metadata import version
+
+    found = keys.library_versions()
+    assert set(found) == {"numpy", "matplotlib", "rasterio", "pyogrio", "shapely", "pyproj"}
+    for module, dist in keys.LIBRARIES.items():
+        assert found[module][0] == version(dist), module
+    # rasterio's wheel bundles its GDAL: the shared library's name carries GDAL's version
+    import rasterio
+    libs = found["rasterio"][1]
+    if libs:
+        assert any(rasterio.__gdal_version__ in name for name in libs if "gdal" in name)
+
+
+def test_an_upgraded_library_misses_the_cache(tmp_path, data, stores, monkeypatch):
+    """Coverage drawn by another matplotlib (or read by another GDAL, or computed by another
+    numpy) is never replayed: a changed version is a miss for every layer."""
+    cache = tmp_path / "cache"
+    path = write_style(tmp_path, _doc(data))
+    cold = check(path, cache=cache)
+    real = keys.library_versions()
+    for module in ("matplotlib", "rasterio", "numpy"):
+        changed = {**real, module: ["0.0.1", real[module][1]]}
+        monkeypatch.setattr(check_cache, "library_versions", lambda changed=changed: changed)
+        assert _json(check(path, cache=cache)) == _json(cold)
+        assert _counts(stores[-1]) == (0, 4), module
+    monkeypatch.setattr(check_cache, "library_versions", keys.library_versions)
+    check(path, cache=cache)
+    assert _counts(stores[-1]) == (4, 0)
+
+
 def test_a_damaged_entry_is_rebuilt(tmp_path, data, stores):
     cache = tmp_path / "cache"
     path = write_style(tmp_path, _doc(data))
@@ -186,14 +220,14 @@ def test_a_damaged_raw_array_is_noticed(tmp_path):
     alpha = np.zeros((1024, 1024), np.uint8)
     meta = {"version": check_cache.CACHE_VERSION, "slots": 1, "shape": [1024, 1024]}
     path = tmp_path / "x.entry"
-    check_cache._save(path, meta, {"a0": alpha, "i0": index})
-    meta_back, arrays = check_cache._load(path)
+    store.save_entry(path, meta, {"a0": alpha, "i0": index})
+    meta_back, arrays = store.load_entry(path)
     assert meta_back == meta and np.array_equal(arrays["i0"], index)
     raw = bytearray(path.read_bytes())
     assert b'"raw"' in raw                       # the indices were stored as they are
     raw[-1000] ^= 0xFF
     path.write_bytes(bytes(raw))
-    assert check_cache._load(path) is None
+    assert store.load_entry(path) is None
 
 
 def test_labels_follow_the_furniture_inside_the_frame(tmp_path):
