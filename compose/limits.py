@@ -26,7 +26,7 @@ __all__ = ["Limits", "current_limits", "use_limits", "check_canvas_size", "DEFAU
 #: Largest canvas by default: 4 gigapixels (a 63,000 px square), raised with ``--max-pixels``.
 DEFAULT_MAX_PIXELS = 4_000_000_000
 #: Bytes each canvas pixel costs in the written outputs before compression (RGB PNG rows +
-#: RGBA GeoTIFF), used for the size estimate in the refusal message.
+#: GeoTIFF, RGBA at most), used for the size estimate in the refusal message.
 BYTES_PER_PIXEL = 7
 #: Largest style file read (bytes); style files are a few kB.
 MAX_STYLE_BYTES = 1 << 20

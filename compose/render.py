@@ -1,4 +1,5 @@
-"""Rendering a style into files: NAME.png (sRGB), NAME.tif (RGB GeoTIFF on the canvas grid),
+"""Rendering a style into files: NAME.png (sRGB), NAME.tif (RGB GeoTIFF on the canvas grid; RGBA
+with ``[map] outside = "transparent"``),
 NAME.legend.png, NAME.check.json, NAME.html (the self-contained review page) and, on request,
 the grey and colour-vision proofs with their contact sheet; NAME.pgw (the PNG's world file);
 with a ``[page]``, NAME.pdf, NAME.svg and NAME.page.png (:mod:`compose.page`).
@@ -63,7 +64,7 @@ class _PngSink:
 
 class _TiffSink:
     def __init__(self, path: Path, canvas, tags, cog: bool = False, alpha: bool = False):
-        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog)
+        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog, alpha=alpha)
         self.alpha = alpha          # the engine hands the data footprint over as alpha
 
     def rows(self, row0, rgb8, alpha8=None):

@@ -94,7 +94,7 @@ def expand_styles(args: tuple[Path, ...]) -> list[Path]:
 def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tuple[str, ...],
             series: bool, no_check: bool, strict: bool, workers: int | None, cluster: str | None,
             cog: bool) -> None:
-    """Render each STYLE (files or glob patterns) to a PNG, an RGBA GeoTIFF, a legend, a check
+    """Render each STYLE (files or glob patterns) to a PNG, an RGB GeoTIFF, a legend, a check
     report and a proof page. With several styles an error in one is reported and the others
     still render; the exit code is the worst.
 

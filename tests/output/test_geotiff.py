@@ -1,5 +1,6 @@
 """GeoTIFF output: the canvas CRS, transform and size exactly, written window by window."""
 import numpy as np
+import pytest
 import rasterio
 
 from compose.canvas import Canvas
@@ -18,11 +19,35 @@ def test_geotiff_round_trip(tmp_path):
     with rasterio.open(path) as ds:
         assert ds.crs == rasterio.crs.CRS.from_user_input("EPSG:32630")
         assert ds.transform == canvas.transform
-        assert (ds.width, ds.height, ds.count) == (canvas.width, canvas.height, 4)
+        # three bands, red, green, blue, and no mask: GDAL reads the file as opaque everywhere
+        assert (ds.width, ds.height, ds.count) == (canvas.width, canvas.height, 3)
+        assert [c.name for c in ds.colorinterp] == ["red", "green", "blue"]
+        assert ds.mask_flag_enums[0] == [rasterio.enums.MaskFlags.all_valid]
         assert ds.profile["tiled"] and ds.profile["compress"] == "deflate"
         data = ds.read()
+    np.testing.assert_array_equal(np.moveaxis(data, 0, -1), img)
+
+
+def test_geotiff_with_alpha(tmp_path):
+    # Outside reference: rasterio/GDAL reads a fourth band with colour interpretation alpha and
+    # takes it as the dataset's mask (GDAL's RFC 15 mask flags: per-dataset, alpha).
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 300, 4000000 + 30 * 200), 30)
+    rng = np.random.default_rng(5)
+    img = rng.integers(0, 256, (canvas.height, canvas.width, 3), dtype=np.uint8)
+    alpha = np.where(rng.random((canvas.height, canvas.width)) < 0.5, 0, 255).astype(np.uint8)
+    path = tmp_path / "a.tif"
+    with GeoTiffWriter(path, canvas, alpha=True) as w:
+        w.write(0, 0, img[:100], alpha[:100])
+        w.write(100, 0, img[100:])                    # alpha not given: opaque
+    with rasterio.open(path) as ds:
+        assert ds.count == 4 and ds.colorinterp[3].name == "alpha"
+        assert rasterio.enums.MaskFlags.alpha in ds.mask_flag_enums[0]
+        data = ds.read()
     np.testing.assert_array_equal(np.moveaxis(data[:3], 0, -1), img)
-    assert (data[3] == 255).all()
+    np.testing.assert_array_equal(data[3, :100], alpha[:100])
+    assert (data[3, 100:] == 255).all()
+    with GeoTiffWriter(tmp_path / "b.tif", canvas) as w, pytest.raises(ValueError, match="alpha"):
+        w.write(0, 0, img[:100], alpha[:100])
 
 
 def test_cloud_optimized_geotiff(tmp_path):
@@ -63,7 +88,7 @@ def test_wide_bands_written_in_column_chunks_same_file(tmp_path, monkeypatch):
     alpha = np.where(rng.random((canvas.height, canvas.width)) < 0.3, 0, 255).astype(np.uint8)
 
     def write(path):
-        with GeoTiffWriter(path, canvas) as w:
+        with GeoTiffWriter(path, canvas, alpha=True) as w:
             for r in range(0, canvas.height, 512):
                 w.write(r, 0, img[r:r + 512], alpha[r:r + 512])
         return path.read_bytes()
