@@ -22,7 +22,9 @@ waited), then each stage's median wall-clock and CPU seconds.
 
 ``--against TREE``: the command of another ``compose`` package (a folder holding it, e.g. an
 earlier commit's ``git archive``, bytecode compiled there) run in turns with this one, N runs
-each, and the median ratio of the turns: a same-run comparison on a shared machine.
+each, and the median ratio of the turns: a same-run comparison on a shared machine. With
+``--timeline``: that package's timeline instead of this one's (its compose.timeline must write
+the CPU column).
 
 Every command time comes with its CPU seconds: the command's and every process it forked and
 reaped (user + system), less sensitive than wall-clock time to other work on the machine.
@@ -93,15 +95,16 @@ def command_seconds(style: str, runs: int, bytecode: bool = False,
     return out
 
 
-def timeline(style: str, runs: int = 1, bytecode: bool = False) -> None:
+def timeline(style: str, runs: int = 1, bytecode: bool = False, tree: str | None = None) -> None:
     """Run the command ``runs`` times recording its stages; print the last run's stages by
     start, from its launch, then each stage's median wall-clock and CPU seconds over the runs
     (a stage recorded several times in a run summed first; ``process cpu``: a process's own
-    CPU, recorded as it ends)."""
+    CPU, recorded as it ends; ``tree``: the command of that compose package, see
+    :func:`_command`)."""
     from compose.timeline import read
 
     cache = tempfile.TemporaryDirectory() if bytecode else None
-    cmd, env = _command(cache.name if cache is not None else None)
+    cmd, env = _command(cache.name if cache is not None else None, tree)
     if bytecode:
         run_command(style, cmd, env)           # writes the bytecode
     walls, cpus, per_stage = [], [], {}
@@ -173,7 +176,7 @@ def main() -> None:
                          "from git archive): its command timed in turns with this one's")
     args = ap.parse_args()
     if args.timeline:
-        timeline(args.style, args.runs, args.bytecode)
+        timeline(args.style, args.runs, args.bytecode, args.against)
         return
     load = os.getloadavg()[0]
     trees = (None, args.against) if args.against else (None,)
