@@ -18,7 +18,7 @@ from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
 from compose.page.vectors import emit_layer
 
 __all__ = ["page_figure", "start_page_figure", "finish_page_figure", "finishes", "furniture_only",
-           "format_coordinate", "shrink_artists", "FONT"]
+           "map_image", "format_coordinate", "shrink_artists", "FONT"]
 
 FONT = "DejaVu Sans"
 _IN = 25.4
@@ -298,6 +298,14 @@ def page_figure(style, layout: PageLayout, image: np.ndarray | None, *, layers=(
     """
     return finish_page_figure(start_page_figure(style, layout, layers=layers), style, layout,
                               image, legend_layout)
+
+
+def map_image(fig):
+    """The map frame's raster image (a matplotlib ``AxesImage``) of a page figure, or None."""
+    for ax in fig.axes:
+        if ax.get_label() == MAP_AXES:
+            return ax.images[0] if ax.images else None
+    return None
 
 
 def furniture_only(fig) -> None:

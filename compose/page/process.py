@@ -217,27 +217,24 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
 
 def _walked(inp, sink) -> set[str] | None:
     """Wait for the walk's end, encoding the page's raster (``sink.base``) band by band as the
-    parent finishes it, as the SVG writer embeds it (RGBA, :func:`compose.page.encode.remember`;
-    the PDF writer embeds it bottom row first, so its encode cannot start before the walk
-    ends); returns the no-data layers the parent sent."""
+    parent finishes it, as the PDF and SVG writers embed it (RGB rows top first,
+    :func:`compose.page.encode.remember`; :func:`compose.page.write.write_page` has the PDF
+    writer store the rows top first, and the SVG's opaque RGBA is stored as RGB); returns the
+    no-data layers the parent sent."""
     base = getattr(sink, "base", None)
-    streams = None
+    stream = None
     if base is not None:
         from compose.page.encode import PngRows
 
-        streams = (PngRows(base.shape[1], "RGBA"),)
+        stream = PngRows(base.shape[1], "RGB")
     done = 0
 
     def encode(upto: int) -> None:
         nonlocal done
-        if streams is None or base is None or upto <= done:
+        if stream is None or base is None or upto <= done:
             return
         with span("page encodes its raster"):
-            rows = base[done:upto]
-            rgba = np.empty(rows.shape[:2] + (4,), np.uint8)
-            rgba[..., :3] = rows
-            rgba[..., 3] = 255
-            streams[0].add(rgba)
+            stream.add(base[done:upto])
         done = upto
 
     while True:
@@ -245,12 +242,11 @@ def _walked(inp, sink) -> set[str] | None:
         if kind == "rows":
             encode(value)
             continue
-        if streams is not None and base is not None:
+        if stream is not None and base is not None:
             from compose.page.encode import remember
 
             encode(base.shape[0])
-            for stream in streams:
-                remember(*stream.finish())
+            remember(*stream.finish())
         return value
 
 

@@ -8,6 +8,7 @@ the paper's physical size.
 """
 from __future__ import annotations
 
+import contextlib
 import time
 from pathlib import Path
 from types import SimpleNamespace
@@ -223,7 +224,7 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
             beside = Forked(png)
         try:
             t = time.perf_counter()
-            with span("page pdf"):
+            with span("page pdf"), map_rows_stored_top_first(fig, sink.base):
                 fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
                             metadata={"Title": meta_title, "Subject": style.page.caution,
                                       "Creator": "compose"})
@@ -239,6 +240,28 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
             if beside is not None:
                 beside.abort()
     return seconds, layout
+
+
+@contextlib.contextmanager
+def map_rows_stored_top_first(fig, base: np.ndarray):
+    """Within the block the map frame's image is ``base`` upside down drawn from the bottom
+    (``origin="lower"``): the same picture on the page, but matplotlib's PDF writer, which stores
+    an image's rows in the reverse of the array's order, then stores ``base``'s rows top first,
+    as the SVG writer does and as the page process encoded them during the walk
+    (:func:`compose.page.process._walked`), so one deflate stream serves both files."""
+    from compose.page.draw import map_image
+
+    image = map_image(fig)
+    if image is None:
+        yield
+        return
+    image.set_data(base[::-1])
+    image.origin = "lower"
+    try:
+        yield
+    finally:
+        image.set_data(base)
+        image.origin = "upper"
 
 
 #: the page PNG is drawn at no fewer dots per inch than this (a canvas of a few pixels per inch

@@ -53,7 +53,8 @@ def test_a_remembered_png_is_what_a_save_writes():
 
 def test_the_page_process_encodes_its_raster_while_the_walk_runs():
     """The child's wait for the walk (process._walked) encodes the rows the parent reports
-    finished, as the SVG embeds them (RGBA), and returns the no-data layers."""
+    finished, as the PDF and SVG writers embed them (RGB, top row first), and returns the
+    no-data layers."""
     base = _image("RGB")
     sink = type("Sink", (), {"base": base})()
     messages = io.BytesIO()
@@ -64,8 +65,29 @@ def test_the_page_process_encodes_its_raster_while_the_walk_runs():
     try:
         assert process._walked(messages, sink) == {"sea"}
         new = {k: v for k, v in encode._known.items() if k not in known}
-        rgba = np.dstack([base, np.full(base.shape[:2], 255, np.uint8)])
-        assert list(new.values()) == [encode.png_bytes(rgba)]
+        assert list(new.values()) == [encode.png_bytes(base)]
     finally:
         encode._known.clear()
         encode._known.update(known)
+
+
+def test_an_opaque_rgba_save_is_stored_as_rgb():
+    """Alpha 255 everywhere: the file holds the RGB pixels (Pillow reads them back), the same
+    file as a save of the RGB image; any other alpha stays RGBA."""
+    rgb = _image("RGB")
+    rgba = np.dstack([rgb, np.full(rgb.shape[:2], 255, np.uint8)])
+    with encode.fast_png():
+        saved = {}
+        for name, image in (("rgb", rgb), ("rgba", rgba)):
+            buf = io.BytesIO()
+            Image.fromarray(image).save(buf, format="png")
+            saved[name] = buf.getvalue()
+        rgba[0, 0, 3] = 254
+        buf = io.BytesIO()
+        Image.fromarray(rgba).save(buf, format="png")
+        translucent = buf.getvalue()
+    assert saved["rgba"] == saved["rgb"] == encode.png_bytes(rgb)
+    back = Image.open(io.BytesIO(saved["rgba"]))
+    assert back.mode == "RGB" and np.array_equal(np.asarray(back), rgb)
+    back = Image.open(io.BytesIO(translucent))
+    assert back.mode == "RGBA" and np.array_equal(np.asarray(back), rgba)

@@ -76,6 +76,46 @@ def test_svg_keeps_text_as_text(rendered):
     assert 'width="595.' in svg          # A5 landscape, 210 mm in points
 
 
+@pytest.mark.skipif(shutil.which("pdfimages") is None, reason="poppler-utils not installed")
+def test_pdf_and_svg_embed_the_same_raster_the_right_way_up(rendered, tmp_path):
+    """The PDF's image (extracted by poppler's pdfimages) and the SVG's (its data URI, decoded
+    by Pillow) are the same pixels, and the PDF rasterised by poppler at the canvas dpi shows the
+    map as the map PNG has it inside the frame (a map upside down would differ everywhere)."""
+    import base64
+    import io
+
+    from matplotlib.image import imread
+    from PIL import Image
+
+    from compose.page.layout import style_canvas
+
+    style, result = rendered
+    subprocess.run(["pdfimages", "-png", str(result.outputs["pdf"]), str(tmp_path / "im")],
+                   check=True)
+    images = [np.asarray(Image.open(p).convert("RGB")) for p in sorted(tmp_path.glob("im-*.png"))]
+    pdf_map = max(images, key=lambda a: a.size)
+    svg = result.outputs["svg"].read_text()
+    uris = re.findall(r'data:image/png;base64,\s*([A-Za-z0-9+/=\s]+)"', svg)
+    svg_images = [np.asarray(Image.open(io.BytesIO(base64.b64decode(u))).convert("RGB"))
+                  for u in uris]
+    svg_map = max(svg_images, key=lambda a: a.size)
+    assert pdf_map.shape == (result.height, result.width, 3)
+    assert np.array_equal(pdf_map, svg_map)
+    subprocess.run(["pdftoppm", "-r", str(DPI), "-png", "-singlefile",
+                    str(result.outputs["pdf"]), str(tmp_path / "ras")], check=True)
+    page = imread(tmp_path / "ras.png")[..., :3].astype(float) * 255
+    png = imread(result.outputs["png"])[..., :3].astype(float) * 255
+    _, (fx, fy, _, _) = style_canvas(style)
+    r0, c0 = int(round(fy / 25.4 * DPI)), int(round(fx / 25.4 * DPI))
+    crop = page[r0:r0 + result.height, c0:c0 + result.width]
+    inner = (slice(3, -3), slice(3, -3))          # the neat line sits on the frame's edge
+    diff = np.abs(crop[inner] - png[inner]).mean(axis=2)
+    # overlays are drawn by two rasterisers (Agg, poppler): most pixels agree to a few levels
+    assert np.median(diff) < 3
+    flipped = np.abs(crop[inner][::-1] - png[inner]).mean(axis=2)
+    assert np.percentile(diff, 90) < 3 and np.percentile(flipped, 90) > 6   # a gentle map
+
+
 def test_canvas_follows_the_print_scale(rendered):
     _, result = rendered
     # 1920 m at 1:25 000 is 76.8 mm, at 150 dpi 454 pixels of 25000 * 0.0254 / 150 m
