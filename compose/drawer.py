@@ -42,15 +42,19 @@ _LAYERS: dict[int, Any] = {}     # in the helper process: layer index -> prepare
 
 
 def _init(payload: bytes) -> None:
+    from compose.layers.draw import eight_bit_coverage
     from compose.packing import unpack
 
+    eight_bit_coverage()        # Agg's bytes are what goes back: no float32 copy and back
     _LAYERS.clear()
     _LAYERS.update(unpack(payload))
 
 
 def _to8(alpha: np.ndarray) -> np.ndarray:
-    """Agg coverage (k / 255 as float32) back to its 8-bit k, or the float32 itself if it is not
-    such a coverage (then sent as it is)."""
+    """Agg's 8-bit coverage as it is (uint8); Agg coverage as float32 (k / 255) back to its
+    8-bit k, or the float32 itself if it is not such a coverage (then sent as it is)."""
+    if alpha.dtype == np.uint8:
+        return alpha
     a8 = np.rint(alpha * np.float32(255)).astype(np.uint8)
     if np.array_equal(np.divide(a8, np.float32(255), dtype=np.float32), alpha):
         return a8

@@ -40,7 +40,7 @@ from compose.layers.paths import area_path, dashed, display, flatten, line_path,
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
            "draw_lines", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
-           "fill_text_path"]
+           "fill_text_path", "eight_bit_coverage"]
 
 #: Line end styles (our names -> Agg's).
 CAPS = {"round": "round", "butt": "butt", "square": "projecting"}
@@ -56,6 +56,15 @@ ANCHORS = {
     "lower right": (1.0, 0.0), "right": (1.0, 0.5), "upper right": (1.0, 1.0),
 }
 _DPI = 72.0   # 1 pt == 1 px in the renderer
+_EIGHT_BIT = False
+
+
+def eight_bit_coverage(on: bool = True) -> None:
+    """From now on (in this process) every draw function returns Agg's own 8-bit coverage,
+    uint8 k meaning k / 255, instead of float32: for a process that only hands coverage on
+    (:mod:`compose.drawer`'s helper), which then skips the float32 copy and its way back."""
+    global _EIGHT_BIT
+    _EIGHT_BIT = bool(on)
 
 
 def _choice(value: str, options, what: str) -> str:
@@ -91,6 +100,8 @@ class _Canvas:
 
     def coverage(self) -> np.ndarray:
         alpha = np.asarray(self.renderer.buffer_rgba())[..., 3]
+        if _EIGHT_BIT:
+            return np.ascontiguousarray(alpha)
         return np.divide(alpha, np.float32(255.0), dtype=np.float32)
 
     def clear(self) -> None:
@@ -98,7 +109,7 @@ class _Canvas:
 
 
 def _zeros(width: int, height: int) -> np.ndarray:
-    return np.zeros((int(height), int(width)), np.float32)
+    return np.zeros((int(height), int(width)), np.uint8 if _EIGHT_BIT else np.float32)
 
 
 def draw_lines(geoms, transform: Affine, width: int, height: int, *, width_px: float,

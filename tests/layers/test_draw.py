@@ -243,3 +243,36 @@ def test_texts_inside_their_box_and_halo_wider():
     assert h2 is None
     with pytest.raises(StyleError, match="not found"):
         measure_text("x", 10.0, font="No Such Font Family 123")
+
+
+def test_eight_bit_coverage_is_the_float_coverage_times_255():
+    # Reference: the float32 coverage is Agg's 8-bit coverage k / 255 (this module's contract);
+    # the 8-bit switch (the drawing helper process's) hands back exactly those k, and uint8
+    # zeros where nothing is drawn.
+    from compose.layers import draw
+
+    line = shapely.LineString([centre(3, 2), centre(25, 37), centre(5, 30)])
+    square = shapely.Polygon([centre(r, c) for r, c in ((4, 4), (4, 20), (20, 20), (20, 4))])
+    far = shapely.LineString([(0.0, 0.0), (1.0, 1.0)])
+    calls = [
+        lambda: draw_lines([line], T, W, H, width_px=1.7),
+        lambda: draw_lines([line], T, W, H, width_px=2.0, dash_px=[4.0, 2.5]),
+        lambda: draw_lines([far], T, W, H, width_px=1.0),
+        lambda: draw_areas([square], T, W, H, fill=True, stroke_width_px=1.3),
+        lambda: draw_points(np.array([centre(8, 8)]), T, W, H, size_px=6.5),
+    ]
+
+    def flat(result):
+        return [a for a in (result if isinstance(result, tuple) else (result,)) if a is not None]
+
+    floats = [flat(c()) for c in calls]
+    draw.eight_bit_coverage(True)
+    try:
+        bytes_ = [flat(c()) for c in calls]
+    finally:
+        draw.eight_bit_coverage(False)
+    for fs, bs in zip(floats, bytes_, strict=True):
+        for f, b in zip(fs, bs, strict=True):
+            assert f.dtype == np.float32 and b.dtype == np.uint8 and b.flags.c_contiguous
+            np.testing.assert_array_equal(np.divide(b, np.float32(255), dtype=np.float32), f)
+    assert bytes_[0][0].any() and not bytes_[2][0].any()
