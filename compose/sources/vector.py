@@ -1,4 +1,5 @@
-"""Vector sources: features from anything OGR reads (GeoPackage, GeoJSON, Shapefile) via pyogrio.
+"""Vector sources: features from anything OGR reads (GeoPackage, GeoJSON, Shapefile) via pyogrio;
+a GeoPackage's plain feature tables with Python's sqlite3 instead (:mod:`compose.sources.gpkg`).
 
 A :class:`VectorSource` checks its file, table and filter when it is made, reads the features on
 the first :meth:`VectorSource.load` and reprojects them to the canvas CRS once (cached per CRS).
@@ -23,6 +24,7 @@ import shapely
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
+from compose.sources.gpkg import open_table
 from compose.sources.guard import check_crs, check_source, refuse_driver
 
 __all__ = ["VectorSource", "Features"]
@@ -166,22 +168,14 @@ class VectorSource:
         self.layer = layer
         here = f'layer "{layer}"'
         local_only = check_source(path, here)
-        from pyogrio.errors import DataLayerError, DataSourceError
-
-        try:
-            tables = list(_tables(str(self.path), _stamp(self.path)))   # memo per file version
-        except (DataSourceError, DataLayerError, OSError) as exc:
-            raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
-        if not tables:
-            raise SourceError(f"{here}: cannot read {self.path}: no tables in the file")
-        if table is not None and table not in tables:
-            raise StyleError(f'{here}: table "{table}" not in {self.path} '
-                             f"(tables: {', '.join(tables)})")
-        self.table = table if table is not None else tables[0]
-        try:
-            info = _info(str(self.path), self.table, _stamp(self.path))
-        except (DataSourceError, DataLayerError, OSError) as exc:
-            raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
+        # a GeoPackage's plain feature table: read with sqlite3, no pyogrio (compose.sources.gpkg)
+        self._gpkg = open_table(self.path, table) if table is not None else None
+        if self._gpkg is not None:
+            self.table = str(table)
+            info = {"driver": self._gpkg.driver, "crs": self._gpkg.crs,
+                    "fields": self._gpkg.fields}
+        else:
+            self.table, info = self._pyogrio_info(table, here)
         refuse_driver(_Opened(info.get("driver"), str(self.path)), local_only, "vector", here,
                       "source")
         wkt = _wkt(info.get("crs"))
@@ -201,20 +195,53 @@ class VectorSource:
         self._raw: tuple[np.ndarray, list[dict]] | None = None
         self._cache: dict[pyproj.CRS, Features] = {}
 
+    def _pyogrio_info(self, table: str | None, here: str) -> tuple[str, dict]:
+        """(table, pyogrio's metadata of it): the file's first table when ``table`` is None."""
+        from pyogrio.errors import DataLayerError, DataSourceError
+
+        try:
+            tables = list(_tables(str(self.path), _stamp(self.path)))   # memo per file version
+        except (DataSourceError, DataLayerError, OSError) as exc:
+            raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
+        if not tables:
+            raise SourceError(f"{here}: cannot read {self.path}: no tables in the file")
+        if table is not None and table not in tables:
+            raise StyleError(f'{here}: table "{table}" not in {self.path} '
+                             f"(tables: {', '.join(tables)})")
+        table = table if table is not None else tables[0]
+        try:
+            info = _info(str(self.path), table, _stamp(self.path))
+        except (DataSourceError, DataLayerError, OSError) as exc:
+            raise SourceError(f"{here}: cannot read {self.path}: {_first_line(exc)}") from None
+        return table, info
+
+    def _bulk(self) -> tuple[list[str], np.ndarray, list[np.ndarray]]:
+        """(attribute names, WKB per feature, attribute columns) of the whole table, 2D."""
+        got = self._gpkg.read() if self._gpkg is not None else None
+        if got is not None:
+            return list(self._gpkg.fields), got[0], got[1]    # type: ignore[union-attr]
+        import pyogrio
+
+        try:
+            meta, _, wkb, columns = pyogrio.raw.read(self.path, layer=self.table, force_2d=True,
+                                                     datetime_as_string=True)
+        except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
+            raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
+                              f"{_first_line(exc)}") from None
+        return list(meta["fields"]), wkb, list(columns)
+
     def _read(self) -> tuple[np.ndarray, list[dict]]:
         """Every kept feature in one bulk read (pyogrio: WKB and attribute columns as arrays,
         ~10x faster than feature by feature); attribute rows as plain Python values."""
         if self._raw is None:
-            import pyogrio
-
-            try:
-                meta, _, wkb, columns = pyogrio.raw.read(self.path, layer=self.table, force_2d=True,
-                                                         datetime_as_string=True)
-            except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
-                raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
-                                  f"{_first_line(exc)}") from None
-            names = list(meta["fields"])
+            names, wkb, columns = self._bulk()
             arr = shapely.from_wkb(wkb, on_invalid="ignore") if len(wkb) else np.empty(0, object)
+            if self._gpkg is not None and len(arr):     # 2D, as pyogrio's force_2d reads
+                extra = shapely.has_z(arr)
+                if hasattr(shapely, "has_m"):
+                    extra |= shapely.has_m(arr)
+                if extra.any():
+                    arr = shapely.force_2d(arr)
             keep = ~shapely.is_missing(arr) & ~shapely.is_empty(arr)
             values = [np.asarray(c, dtype=object) if c.dtype.kind == "O" else c for c in columns]
             for key, allowed in self.where.items():

@@ -1,0 +1,148 @@
+"""GeoPackage feature tables read with sqlite3 (compose.sources.gpkg) against pyogrio's bulk read
+of the same files (GDAL's GeoPackage driver: the reference), and the cases it leaves to pyogrio.
+
+Outside reference: pyogrio.raw.read (GDAL), and the OGC GeoPackage Encoding Standard 1.2.1
+(OGC 12-128r17) for the blob header (clause 2.1.3.1.1) and the column types (table 1).
+"""
+from __future__ import annotations
+
+import sqlite3
+from pathlib import Path
+
+import numpy as np
+import pyogrio
+import pytest
+import shapely
+
+from compose.sources import gpkg
+from compose.sources.vector import VectorSource
+from tests.sources._files import write_vector
+
+ROOT = Path(__file__).resolve().parents[2]
+UTM = "EPSG:32630"
+
+
+def _by_pyogrio(path, table):
+    meta, _, wkb, columns = pyogrio.raw.read(path, layer=table, force_2d=True,
+                                             datetime_as_string=True)
+    return list(meta["fields"]), wkb, list(columns)
+
+
+def _same(path: Path, table: str) -> None:
+    """sqlite3's read of ``table`` is pyogrio's: the same fields, the same geometries (exactly,
+    by their WKB through shapely), the same attribute values (as Python values)."""
+    found = gpkg.open_table(path, table)
+    assert found is not None, table
+    wkb, columns = found.read()
+    names, ref_wkb, ref_columns = _by_pyogrio(path, table)
+    assert found.fields == names
+    assert found.crs == pyogrio.read_info(path, layer=table)["crs"]
+    ours = shapely.force_2d(shapely.from_wkb(wkb, on_invalid="ignore"))
+    theirs = shapely.from_wkb(ref_wkb, on_invalid="ignore")
+    assert len(ours) == len(theirs)
+    assert list(shapely.is_missing(ours)) == list(shapely.is_missing(theirs))
+    both = ~shapely.is_missing(ours)
+    assert np.array_equal(shapely.to_wkb(ours[both]), shapely.to_wkb(theirs[both]))
+    for mine, ref in zip(columns, ref_columns):
+        assert mine.tolist() == ref.tolist()
+
+
+@pytest.mark.parametrize("table", ["coast", "land", "rivers", "roads", "province", "boundary",
+                                   "towns"])
+def test_every_demo_table_reads_as_pyogrio_reads_it(table):
+    _same(ROOT / "demo_region" / "vectors.gpkg", table)
+
+
+def test_points_lines_polygons_nulls_and_types(tmp_path):
+    path = write_vector(tmp_path / "mixed.gpkg", [
+        ({"type": "Point", "coordinates": (500000.0, 5000000.0)}, {"name": "a", "n": 1, "x": 0.1}),
+        ({"type": "LineString", "coordinates": [(500000.0, 5000000.0), (500010.5, 5000020.25)]},
+         {"name": None, "n": -7, "x": 2.5}),
+        (None, {"name": "ghost", "n": 3, "x": 1e300}),
+        ({"type": "Polygon", "coordinates": [[(0.0, 0.0), (10.0, 0.0), (10.0, 10.0), (0.0, 0.0)],
+                                             [(1.0, 1.0), (2.0, 1.0), (2.0, 2.0), (1.0, 1.0)]]},
+         {"name": "é ü 水", "n": 2**40, "x": -0.0}),
+        ({"type": "MultiLineString", "coordinates": [[(1.0, 2.0), (3.0, 4.0)],
+                                                     [(5.0, 6.0), (7.0, 8.0), (9.0, 1.0)]]},
+         {"name": "m", "n": 0, "x": 3.0}),
+    ], crs=UTM, properties={"name": "str", "n": "int", "x": "float"})
+    _same(path, "features")
+
+
+def test_z_coordinates_are_dropped_as_pyogrio_drops_them(tmp_path):
+    path = write_vector(tmp_path / "z.gpkg", [
+        ({"type": "LineString", "coordinates": [(1.0, 2.0, 30.0), (3.0, 4.0, 50.0)]}, {"k": 1}),
+        ({"type": "Point", "coordinates": (5.0, 6.0, 7.0)}, {"k": 2}),
+    ], crs=UTM, properties={"k": "int"}, geometry="Unknown")
+    _same(path, "features")
+    source = VectorSource(path, layer="z", table="features")
+    geoms, _ = source._read()
+    assert not shapely.has_z(geoms).any()
+
+
+def test_float32_columns_round_as_gdal_reads_them(tmp_path):
+    """A FLOAT column is a 4-byte float (GeoPackage table 1): GDAL reads float32 values."""
+    path = write_vector(tmp_path / "f.gpkg", [
+        ({"type": "Point", "coordinates": (1.0, 2.0)}, {"k": 1}),
+        ({"type": "Point", "coordinates": (3.0, 4.0)}, {"k": 2}),
+    ], crs=UTM, properties={"k": "int"})
+    with sqlite3.connect(path) as con:       # a column of the standard's FLOAT type, added
+        con.execute('ALTER TABLE features ADD COLUMN "v" FLOAT DEFAULT 0.1')
+    con.close()
+    names, _, columns = _by_pyogrio(path, "features")
+    assert names == ["k", "v"] and columns[1].dtype == np.float32
+    _same(path, "features")
+
+
+def test_what_is_left_to_pyogrio(tmp_path):
+    """Dates, a NULL integer, a CRS without an EPSG code, a non-GeoPackage file, a table that is
+    not there: None, and VectorSource reads them through pyogrio as before."""
+    dated = write_vector(tmp_path / "d.gpkg", [
+        ({"type": "Point", "coordinates": (1.0, 2.0)}, {"day": "2020-01-02"}),
+    ], crs=UTM, properties={"day": "date"})
+    assert gpkg.open_table(dated, "features") is None
+    source = VectorSource(dated, layer="d", table="features")
+    _, props = source._read()
+    assert props == [{"day": "2020-01-02"}]
+    nulls = write_vector(tmp_path / "n.gpkg", [
+        ({"type": "Point", "coordinates": (1.0, 2.0)}, {"k": None}),
+    ], crs=UTM, properties={"k": "int"})
+    table = gpkg.open_table(nulls, "features")
+    assert table is not None and table.read() is None
+    assert gpkg.open_table(dated, "nothing") is None
+    shp = write_vector(tmp_path / "s.shp", [({"type": "Point", "coordinates": (1.0, 2.0)},
+                                              {"k": 1})], crs=UTM, properties={"k": "int"},
+                       driver="ESRI Shapefile", geometry="Point")
+    assert gpkg.open_table(shp, "s") is None
+    local = write_vector(tmp_path / "l.gpkg", [({"type": "Point", "coordinates": (1.0, 2.0)},
+                                                 {"k": 1})],
+                         crs='LOCAL_CS["nowhere",UNIT["metre",1]]', properties={"k": "int"})
+    assert gpkg.open_table(local, "features") is None
+
+
+def test_the_blob_header(tmp_path):
+    """GeoPackageBinary headers with each envelope size, little- and big-endian, read to the WKB
+    that follows them (clause 2.1.3.1.1); the extended encoding is left to pyogrio."""
+    wkb = shapely.to_wkb(shapely.Point(1.5, -2.5))
+    for indicator, size in ((0, 0), (1, 32), (2, 48), (3, 48), (4, 64)):
+        for order in (0, 1):
+            flags = (indicator << 1) | order
+            blob = b"GP\x00" + bytes([flags]) + b"\x00\x00\x7f\x80" + b"\x11" * size + wkb
+            assert gpkg._wkb(blob) == wkb
+    with pytest.raises(gpkg._NotPlain):
+        gpkg._wkb(b"GP\x00\x21\x00\x00\x00\x00" + wkb)
+    with pytest.raises(gpkg._NotPlain):
+        gpkg._wkb(b"GP\x00\x0a\x00\x00\x00\x00" + wkb)      # indicator 5: invalid
+    assert gpkg._wkb(None) is None
+
+
+def test_a_source_reads_the_same_features_either_way(monkeypatch):
+    """The demo's rivers as the check reads them, with and without the sqlite3 path."""
+    path = ROOT / "demo_region" / "vectors.gpkg"
+    fast = VectorSource(path, layer="rivers", table="rivers", where={"order": [2, 3, 4]})
+    assert fast._gpkg is not None
+    monkeypatch.setattr("compose.sources.vector.open_table", lambda *a: None)
+    slow = VectorSource(path, layer="rivers", table="rivers", where={"order": [2, 3, 4]})
+    assert slow._gpkg is None
+    (g1, p1), (g2, p2) = fast._read(), slow._read()
+    assert p1 == p2 and np.array_equal(shapely.to_wkb(g1), shapely.to_wkb(g2))
