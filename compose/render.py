@@ -64,7 +64,7 @@ class _PngSink:
 
 class _TiffSink:
     def __init__(self, path: Path, canvas, tags, cog: bool = False, alpha: bool = False):
-        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog, alpha=alpha)
+        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog, alpha=alpha, stream=True)
         self.alpha = alpha          # the engine hands the data footprint over as alpha
 
     def rows(self, row0, rgb8, alpha8=None):

@@ -102,3 +102,72 @@ def test_wide_bands_written_in_column_chunks_same_file(tmp_path, monkeypatch):
         data = ds.read()
     np.testing.assert_array_equal(np.moveaxis(data[:3], 0, -1), img)
     np.testing.assert_array_equal(data[3], alpha)
+
+
+@pytest.mark.parametrize("alpha", [False, True])
+def test_streamed_tiles_read_back_by_gdal_and_libtiff(tmp_path, alpha):
+    # Outside references: GDAL (rasterio) and libtiff (through Pillow) read the tiles deflated
+    # here, with GDAL's georeferencing, tags and band meaning; the same pixels as GDAL's own
+    # write of them. Rows come in bands of 100 (not a tile's 512), the map is not a whole
+    # number of tiles; the file is the same byte for byte with 1 or 3 threads deflating.
+    from PIL import Image
+
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 1300, 4000000 + 30 * 1100), 30)
+    rng = np.random.default_rng(6)
+    img = rng.integers(0, 4, (canvas.height, canvas.width, 3), dtype=np.uint8).cumsum(axis=1, dtype=np.uint8)
+    a8 = np.where(rng.random((canvas.height, canvas.width)) < 0.3, 0, 255).astype(np.uint8)
+    tags = {"TIFFTAG_SOFTWARE": "compose", "TIFFTAG_DOCUMENTNAME": "m"}
+
+    def write(path, stream, threads=None):
+        w = GeoTiffWriter(path, canvas, tags=tags, alpha=alpha, stream=stream, threads=threads)
+        assert (w._tiles is not None) == stream
+        with w:
+            for r in range(0, canvas.height, 100):
+                w.write(r, 0, img[r:r + 100], a8[r:r + 100] if alpha else None)
+        return path
+
+    streamed = write(tmp_path / "s.tif", True, threads=3)
+    assert write(tmp_path / "s1.tif", True, threads=1).read_bytes() == streamed.read_bytes()
+    gdal = write(tmp_path / "g.tif", False)
+    with rasterio.open(streamed) as s, rasterio.open(gdal) as g:
+        assert s.profile == g.profile and s.tags() == g.tags() and s.colorinterp == g.colorinterp
+        assert s.crs == rasterio.crs.CRS.from_user_input("EPSG:32630")
+        assert s.transform == canvas.transform
+        assert s.profile["compress"] == "deflate" and s.block_shapes[0] == (512, 512)
+        data = s.read()
+        np.testing.assert_array_equal(data, g.read())
+    np.testing.assert_array_equal(np.moveaxis(data[:3], 0, -1), img)
+    if alpha:
+        np.testing.assert_array_equal(data[3], a8)
+    with Image.open(streamed) as im:
+        assert im.mode == ("RGBA" if alpha else "RGB")
+        np.testing.assert_array_equal(np.asarray(im), np.moveaxis(data, 0, -1))
+
+
+def test_streamed_rows_in_order_and_all_of_them(tmp_path):
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 600, 4000000 + 30 * 600), 30)
+    img = np.zeros((canvas.height, canvas.width, 3), np.uint8)
+    w = GeoTiffWriter(tmp_path / "a.tif", canvas, stream=True)
+    with pytest.raises(ValueError, match="whole rows"):
+        w.write(100, 0, img[100:200])                   # not the next row
+    with pytest.raises(ValueError, match="whole rows"):
+        w.write(0, 0, img[:100, :300])                  # not the whole width
+    w.write(0, 0, img[:100])
+    with pytest.raises(ValueError, match="100 rows of 600"):
+        w.close()
+
+
+def test_cog_from_streamed_tiles(tmp_path):
+    # Outside reference: GDAL's COG driver reads the streamed tiles and lays out a COG
+    # (IMAGE_STRUCTURE LAYOUT=COG) with the same pixels.
+    canvas = Canvas.from_extent("EPSG:32630", (500000, 4000000, 500000 + 30 * 1300, 4000000 + 30 * 1100), 30)
+    rng = np.random.default_rng(7)
+    img = rng.integers(0, 256, (canvas.height, canvas.width, 3), dtype=np.uint8)
+    path = tmp_path / "m.tif"
+    with GeoTiffWriter(path, canvas, cog=True, stream=True) as w:
+        for r in range(0, canvas.height, 512):
+            w.write(r, 0, img[r:r + 512])
+    assert not (tmp_path / "m.tif.tiles").exists()
+    with rasterio.open(path) as ds:
+        assert ds.tags(ns="IMAGE_STRUCTURE").get("LAYOUT") == "COG"
+        np.testing.assert_array_equal(np.moveaxis(ds.read(), 0, -1), img)
