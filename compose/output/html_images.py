@@ -49,12 +49,42 @@ class PreviewSink(BoxThumbnail):
 
 
 def box_reduce(rgb8: np.ndarray, max_width: int = PAGE_WIDTH) -> np.ndarray:
-    """Box-average (h, w, 3) uint8 by the smallest integer factor that fits ``max_width``."""
-    sink = PreviewSink(rgb8.shape[1], rgb8.shape[0], max_width)
-    if sink.k == 1:
+    """Box-average (h, w, 3) uint8 by the smallest integer factor k that fits ``max_width``
+    (blocks cut by the right and bottom edges averaged over their pixels): the pixels
+    :class:`PreviewSink` makes of the same image, from integer sums of k strided views."""
+    h, w = rgb8.shape[:2]
+    k = math.ceil(w / max_width)
+    if k <= 1:
         return rgb8
-    sink.rows(0, rgb8)
-    return sink.image()
+    hb, wb = h // k, w // k                       # whole blocks down and across
+    H, W = -(-h // k), -(-w // k)
+    acc = np.dtype(np.uint16 if k <= 16 else np.uint64)     # k * k * 255 fits
+    sums = np.zeros((H, W, 3), np.uint64 if k > 16 else np.uint32)
+    if hb and wb:
+        core = rgb8[:hb * k, :wb * k]
+        rows: np.ndarray = core[0::k].astype(acc)
+        for i in range(1, k):
+            np.add(rows, core[i::k], out=rows)
+        block: np.ndarray = rows[:, 0::k].copy()
+        for i in range(1, k):
+            np.add(block, rows[:, i::k], out=block)
+        sums[:hb, :wb] = block
+    if wb < W and hb:
+        sums[:hb, wb] = rgb8[:hb * k, wb * k:].reshape(hb, k, -1, 3).sum(axis=(1, 2))
+    if hb < H and wb:
+        sums[hb, :wb] = rgb8[hb * k:, :wb * k].reshape(h - hb * k, wb, k, 3).sum(axis=(0, 2))
+    if hb < H and wb < W:
+        sums[hb, wb] = rgb8[hb * k:, wb * k:].sum(axis=(0, 1))
+    count = (np.minimum(k, h - np.arange(H) * k)[:, None]
+             * np.minimum(k, w - np.arange(W) * k)[None, :])[..., None]
+    if k <= 16:
+        # sums below 2**24 and counts up to 256: float32's correctly rounded quotient is the
+        # exact one wherever that is a whole number and a half, and stays over 1 / 512 away
+        # from one elsewhere, so it rounds (half to even) as the exact quotient does
+        mean = np.divide(sums, count, dtype=np.float32)
+    else:
+        mean = sums / count.astype(np.float64)
+    return np.rint(mean, out=mean).astype(np.uint8)       # means of uint8: 0 to 255
 
 
 def _uri(data: bytes, mime: str) -> str:
@@ -62,12 +92,14 @@ def _uri(data: bytes, mime: str) -> str:
 
 
 def jpeg_uri(rgb8: np.ndarray, quality: int = JPEG_QUALITY) -> str:
-    """A ``data:image/jpeg`` URI (no chroma subsampling, so thin coloured lines stay clean)."""
+    """A ``data:image/jpeg`` URI (no chroma subsampling, so thin coloured lines stay clean; the
+    standard Huffman tables: optimised ones saved about 2 % of the bytes for three times the
+    encoding time, the same pixels either way)."""
     from PIL import Image
 
     buf = io.BytesIO()
     Image.fromarray(np.ascontiguousarray(rgb8, dtype=np.uint8)).save(
-        buf, format="JPEG", quality=quality, subsampling=0, optimize=True)
+        buf, format="JPEG", quality=quality, subsampling=0)
     return _uri(buf.getvalue(), "image/jpeg")
 
 

@@ -268,8 +268,9 @@ def finish_page_figure(fig, style, layout: PageLayout, image: np.ndarray | None,
     canvas = layout.canvas
     if image is not None:
         ma = next(ax for ax in fig.axes if ax.get_label() == MAP_AXES)
+        # a fixed id: the SVG writer would otherwise hash the text of the image's PNG bytes
         ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
-                  resample=False, aspect="auto", zorder=0)
+                  resample=False, aspect="auto", zorder=0, gid="map-raster")
     p = _Page(fig, layout, page)
     p.bands()
     if page.neatline:

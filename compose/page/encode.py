@@ -150,7 +150,7 @@ def fast_png():
     global _users, _saved
     from PIL import Image
 
-    Image.init()
+    Image.preinit()             # registers PNG (init() would import every format's plugin)
     with _lock:
         if _users == 0:
             _saved = Image.SAVE["PNG"]

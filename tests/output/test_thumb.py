@@ -50,3 +50,26 @@ def test_partial_image_averages_what_arrived_so_far():
     assert (out[1] == 100).all()        # 2 of its 4 rows arrived: sums over the whole block
     assert (out[2:] == 0).all()
     assert len(thumb._partial) == 1
+
+
+@pytest.mark.parametrize("shape, max_width", [((1500, 1500), 800), ((37, 23), 10), ((101, 99), 7),
+                                              ((5, 40), 3), ((17, 17), 16), ((40, 700), 20),
+                                              ((30, 90), 2)])
+def test_box_reduce_is_the_block_mean_and_the_preview_sinks_pixels(shape, max_width):
+    """compose.output.html_images.box_reduce (integer sums of strided views, one division) gives
+    the plain definition -- each block's mean over the pixels it has, rounded half to even
+    (numpy's rint) -- and the same pixels as the PreviewSink fed the image band by band."""
+    from compose.output.html_images import PreviewSink, box_reduce
+
+    rng = np.random.default_rng(sum(shape))
+    img = rng.integers(0, 256, shape + (3,)).astype(np.uint8)
+    out = box_reduce(img, max_width)
+    k = -(-shape[1] // max_width)
+    want = np.array([[np.rint(img[r:r + k, c:c + k].reshape(-1, 3).mean(axis=0))
+                      for c in range(0, shape[1], k)] for r in range(0, shape[0], k)], np.uint8)
+    if shape[0] <= 200:                         # the plain loop on the small ones
+        assert np.array_equal(out, want)
+    sink = PreviewSink(shape[1], shape[0], max_width)
+    for r0 in range(0, shape[0], 64):
+        sink.rows(r0, img[r0:r0 + 64])
+    assert np.array_equal(out, sink.image())
