@@ -228,7 +228,7 @@ class _DeflatedTiles:
         self._arrays = arrays
         self._offsets = np.zeros(self.across * down, np.uint64)
         self._counts = np.zeros(self.across * down, np.uint64)
-        self._buffer = np.zeros((_TILE, width, bands), np.uint8)
+        self._buffer: np.ndarray | None = None     # rows of a tile row that came in pieces
         self._filled = 0            # rows of the current tile row in the buffer
         self.received = 0           # rows received
         self._tile = 0              # next tile to append
@@ -240,9 +240,18 @@ class _DeflatedTiles:
         self._pending: deque[Future] = deque()
 
     def rows(self, rgb8: np.ndarray, alpha8: np.ndarray | None) -> None:
+        """Rows (uint8 (h, width, 3), alpha (h, width) or None: opaque) after the last ones.
+        A band that is a whole row of tiles (the render's 512-row bands) is deflated as it is
+        (the caller leaves it unchanged); other bands are gathered into rows of tiles."""
         h = rgb8.shape[0]
+        if self._filled == 0 and (h == _TILE or self.received + h == self.height) and h <= _TILE:
+            self.received += h
+            self._tile_row(rgb8, alpha8)
+            return
         done = 0
         while done < h:
+            if self._buffer is None:
+                self._buffer = np.empty((_TILE, self.width, self.bands), np.uint8)
             take = min(h - done, _TILE - self._filled)
             dst = self._buffer[self._filled:self._filled + take]
             dst[..., :3] = rgb8[done:done + take]
@@ -252,17 +261,15 @@ class _DeflatedTiles:
             self.received += take
             done += take
             if self._filled == _TILE or self.received == self.height:
-                self._tile_row()
+                self._tile_row(self._buffer[:self._filled, ..., :3],
+                               self._buffer[:self._filled, ..., 3] if self.bands == 4 else None)
+                self._filled = 0
 
-    def _tile_row(self) -> None:
-        band = self._buffer
-        if self._filled < _TILE:                 # the last row of tiles: zeros below the map
-            band[self._filled:] = 0
+    def _tile_row(self, rgb8: np.ndarray, alpha8: np.ndarray | None) -> None:
         for c in range(0, self.width, _TILE):
-            self._pending.append(self._pool.submit(_deflate_tile, band, c))
+            self._pending.append(self._pool.submit(_deflate_tile, rgb8, alpha8, c, self.bands))
             self._drain(2 * self._threads)
-        self._drain(0)                           # the buffer is refilled next
-        self._filled = 0
+        self._drain(0)                           # the rows' arrays may be reused after this
 
     def _drain(self, keep: int) -> None:
         while len(self._pending) > keep:
@@ -295,15 +302,19 @@ class _DeflatedTiles:
         self._f.close()
 
 
-def _deflate_tile(band: np.ndarray, col: int) -> bytes:
-    """One 512 x 512 tile of a tile row (zeros right of the map), as a zlib stream (TIFF
-    compression 8, Adobe deflate; RFC 1950) at ISA-L's level 1."""
-    tile = band[:, col:col + _TILE]
-    if tile.shape[1] < _TILE:
-        full = np.zeros((_TILE, _TILE, band.shape[2]), np.uint8)
-        full[:, :tile.shape[1]] = tile
-        tile = full
-    return _zlib_compress(np.ascontiguousarray(tile))
+def _deflate_tile(rgb8: np.ndarray, alpha8: np.ndarray | None, col: int, bands: int) -> bytes:
+    """The 512 x 512 tile at column ``col`` of a row of tiles (``bands`` 3: RGB; 4: RGBA, alpha
+    None meaning opaque; zeros right of and below the map), as a zlib stream (TIFF compression
+    8, Adobe deflate; RFC 1950) at level 1."""
+    rgb = rgb8[:, col:col + _TILE]
+    h, w = rgb.shape[:2]
+    if bands == 3 and (h, w) == (_TILE, _TILE):
+        return _zlib_compress(np.ascontiguousarray(rgb))
+    tile = np.zeros((_TILE, _TILE, bands), np.uint8)
+    tile[:h, :w, :3] = rgb
+    if bands == 4:
+        tile[:h, :w, 3] = 255 if alpha8 is None else alpha8[:, col:col + _TILE]
+    return _zlib_compress(tile)
 
 
 def to_cog(source: Path, path: Path) -> None:
