@@ -1,7 +1,8 @@
 """Benchmark of the fixed costs and memory of the default ``compose render`` (issue 15's second
 half) and of the draft check (issue 10), each printed beside its target:
 
-    python bench/lean.py [--runs 3] [--sizes 8192,16384] [--no-big] [--styles coast,...]
+    python bench/lean.py [--runs 3] [--sizes 8192,16384] [--styles coast,...] [--cpu]
+                         [--no-demo] [--no-memory] [--no-stages]
 
 * demo style (styles/coast.toml, 1500 x 1500): ``compose render`` with all default outputs and
   ``compose check``, as commands (wall time of the process, start-up included), medians of
@@ -14,6 +15,12 @@ half) and of the draft check (issue 10), each printed beside its target:
   maximum resident set size (``/usr/bin/time -v``, i.e. ru_maxrss of the largest process) and as
   the largest sum over the process and its worker processes (proportional set sizes, sampled
   every 50 ms by bench/render.py's sampler).
+
+* ``--cpu``: the bare render (PNG + GeoTIFF + check, 2 window threads, as bench/render.py's
+  "bare render, 2 workers") at 8192, CPU seconds per process (the command; the line-drawing
+  helper; the fork server it is forked from, i.e. its imports; others), system time and minor
+  page faults of the command, medians of ``--runs``: where the CPU outside the window threads
+  goes (sampled from /proc every 50 ms, so a process's last 50 ms may be missed).
 
 Run heavy benchmarks alone on the machine (e.g. under ``flock``); no assertion is made.
 """
@@ -236,6 +243,115 @@ def stages(size: int, data: Path) -> None:
           f"water mark {d['hwm'] / mb:.0f} MB", flush=True)
 
 
+BARE = r"""
+import sys
+from compose.parallel import ThreadMapper
+from compose.render import render_style
+from compose.style import load_style
+render_style(load_style(sys.argv[1]), sys.argv[2], overwrite=True, legend=False, check=True,
+             html=False, mapper=ThreadMapper(2))
+"""
+
+# CPU per process of a command and its descendants, from /proc (user, system, minor faults)
+CPU_SAMPLER = r"""
+import json, os, subprocess, sys, threading, time
+HZ = os.sysconf("SC_CLK_TCK")
+def stat(pid):
+    try:
+        with open(f"/proc/{pid}/stat") as f:
+            s = f.read()
+        x = s.rsplit(")", 1)[1].split()
+        return int(x[1]), int(x[7]), int(x[11]) / HZ, int(x[12]) / HZ
+    except (OSError, ValueError, IndexError):
+        return None
+def cmdline(pid):
+    try:
+        with open(f"/proc/{pid}/cmdline", "rb") as f:
+            return f.read().replace(b"\0", b" ").decode(errors="replace")
+    except OSError:
+        return ""
+t0 = time.perf_counter()
+p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+seen = {}
+def watch():
+    while p.poll() is None:
+        info, kids = {}, {}
+        for d in os.listdir("/proc"):
+            if d.isdigit():
+                st = stat(int(d))
+                if st:
+                    info[int(d)] = st
+                    kids.setdefault(st[0], []).append(int(d))
+        todo = [p.pid]
+        while todo:
+            q = todo.pop()
+            if q in info:
+                ppid, minflt, user, system = info[q]
+                old = seen.get(q)
+                seen[q] = dict(ppid=ppid, minflt=minflt, user=user, sys=system,
+                               cmd=old["cmd"] if old else cmdline(q))
+            todo += kids.get(q, [])
+        time.sleep(0.05)
+th = threading.Thread(target=watch, daemon=True)
+th.start()
+err = p.communicate()[1]
+wall = time.perf_counter() - t0
+th.join(1)
+root = p.pid
+servers = {q for q, v in seen.items() if "forkserver" in v["cmd"] and v["ppid"] == root}
+out = {"wall": wall, "code": p.returncode, "err": err.decode()[-1500:]}
+for q, v in seen.items():
+    role = ("command" if q == root else "fork server" if q in servers
+            else "drawing helper" if v["ppid"] in servers else "others")
+    r = out.setdefault(role, {"user": 0.0, "sys": 0.0, "minflt": 0})
+    r["user"] += v["user"]; r["sys"] += v["sys"]; r["minflt"] += v["minflt"]
+print(json.dumps(out))
+"""
+
+
+def cpu(size: int, data: Path, runs: int) -> None:
+    """CPU seconds per process of the bare 2-thread render at ``size``, medians of ``runs``."""
+    folder = data / f"{size}-10000"
+    if not (folder / "lines.gpkg").exists():
+        print(f"making synthetic data in {folder} ...", flush=True)
+        synthetic.make_data(folder, size, 10000)
+    styles = synthetic.write_styles(folder, size)
+    out = folder / "out-lean-cpu"
+    results = []
+    for _ in range(runs):
+        shutil.rmtree(out, ignore_errors=True)
+        res = subprocess.run([sys.executable, "-c", CPU_SAMPLER, sys.executable, "-c", BARE,
+                              str(styles["aligned"]), str(out)], cwd=folder, capture_output=True,
+                             text=True)
+        try:
+            d = json.loads(res.stdout.strip().splitlines()[-1])
+        except (ValueError, IndexError):
+            print(f"cpu at {size}: failed\n{res.stderr[-1500:]}")
+            return
+        if d["code"] not in (0, 1):
+            print(f"cpu at {size}: the render exited {d['code']}\n{d['err']}")
+            return
+        results.append(d)
+    shutil.rmtree(out, ignore_errors=True)
+    med = statistics.median
+
+    def total(d, role):
+        r = d.get(role)
+        return r["user"] + r["sys"] if r else 0.0
+
+    roles = ("command", "drawing helper", "fork server", "others")
+    every = med(sum(total(d, r) for r in roles) for d in results)
+    print(f"{size} x {size}, bare render (PNG + GeoTIFF + check), 2 window threads, medians of "
+          f"{runs}: {med(d['wall'] for d in results):.2f} s wall, {every:.2f} s CPU in all "
+          f"processes", flush=True)
+    for role in roles:
+        print(f"  {role:<15} {med(total(d, role) for d in results):6.2f} s CPU")
+    cmd = [d["command"] for d in results if "command" in d]
+    if cmd:
+        print(f"  the command's system time {med(c['sys'] for c in cmd):.2f} s, minor page faults "
+              f"{med(c['minflt'] for c in cmd):.0f}", flush=True)
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=3)
@@ -245,11 +361,16 @@ def main() -> None:
     ap.add_argument("--no-demo", action="store_true")
     ap.add_argument("--no-stages", action="store_true",
                     help="skip the instrumented run that prints where the memory goes")
+    ap.add_argument("--no-memory", action="store_true", help="skip the memory runs")
+    ap.add_argument("--cpu", action="store_true",
+                    help="also CPU per process of the bare render at 8192 (medians of --runs)")
     a = ap.parse_args()
     if not a.no_demo:
         demo(a.runs)
         drafts(a.runs, [s for s in a.styles.split(",") if s])
-    for size in (int(s) for s in a.sizes.split(",") if s):
+    if a.cpu:
+        cpu(8192, a.data, a.runs)
+    for size in (int(s) for s in a.sizes.split(",") if s) if not a.no_memory else ():
         memory(size, a.data)
         if not a.no_stages:
             stages(size, a.data)
