@@ -107,7 +107,7 @@ def timeline(style: str, runs: int = 1, bytecode: bool = False, tree: str | None
     cmd, env = _command(cache.name if cache is not None else None, tree)
     if bytecode:
         run_command(style, cmd, env)           # writes the bytecode
-    walls, cpus, per_stage = [], [], {}
+    walls, cpus, tails, per_stage = [], [], [], {}
     for _ in range(runs):
         with tempfile.TemporaryDirectory() as tmp:
             log = Path(tmp) / "timeline.txt"
@@ -121,6 +121,9 @@ def timeline(style: str, runs: int = 1, bytecode: bool = False, tree: str | None
             rows = read(str(log))
         walls.append(end)
         cpus.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
+        walked = [stop for pid, _, _, stop, label, _ in rows if label == "walk"]
+        if walked:
+            tails.append(end - (walked[0] - t0))
         first: dict[int, int] = {}
         for pid, *_ in rows:
             first.setdefault(pid, len(first))
@@ -146,8 +149,9 @@ def timeline(style: str, runs: int = 1, bytecode: bool = False, tree: str | None
         print(f"  {start - t0:6.2f} {stop - t0:6.2f} {stop - start:6.2f} {c}  {who:<10} {label}")
     if runs > 1:
         print(f"  median of {runs} runs: command {statistics.median(walls):.2f} s wall "
-              f"({', '.join(f'{w:.2f}' for w in walls)}), {statistics.median(cpus):.2f} s CPU; "
-              f"per stage, wall / CPU:")
+              f"({', '.join(f'{w:.2f}' for w in walls)}), {statistics.median(cpus):.2f} s CPU"
+              + (f", {statistics.median(tails):.2f} s from the walk's end to the exit" if tails
+                 else "") + "; per stage, wall / CPU:")
         for (who, label), vals in sorted(per_stage.items(), key=lambda kv: (kv[0][0], kv[0][1])):
             w = statistics.median(v[0] for v in vals)
             c = statistics.median(v[1] for v in vals)

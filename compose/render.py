@@ -138,17 +138,39 @@ def _page_job(style, prepared, tmp: dict[str, Path], legend: bool):
     from types import SimpleNamespace
 
     from compose.page.process import PageJob
-    from compose.page.write import PageSink, page_ahead, vector_split, warm_writers, write_page
+    from compose.page.write import (
+        PageSink,
+        page_ahead,
+        page_early,
+        vector_split,
+        warm_writers,
+        write_page,
+    )
 
     # the layers under the top run of overlays form the page's raster (by kind, known from the
     # specs already); the canvas is the style's (prepare makes the same)
     specs = [SimpleNamespace(spec=spec) for spec in style.layers if spec.enabled]
     canvas = prepared.canvas if prepared is not None else style.canvas()
     sink = PageSink(canvas, vector_split(prepared.layers if prepared is not None else specs))
+    legend_png = (lambda run_, nodata: _legend_png(style, run_, nodata)) if legend else None
     return PageJob(style, prepared, sink, tmp, write_page, warm=warm_writers,
-                   ahead=lambda run_: page_ahead(style, run_, sink),
-                   legend=(lambda run_, nodata: _legend_png(style, run_, nodata)) if legend
-                   else None)
+                   ahead=lambda run_: page_ahead(style, run_, sink), legend=legend_png,
+                   early=lambda run_, started, nodata: page_early(style, run_, sink, nodata,
+                                                                  started, legend_png))
+
+
+def _noting_nodata(mapper, sink):
+    """``mapper`` (None: ``map``) whose window results, as they come, add their layers with
+    no-data pixels to ``sink.nodata`` (the page process guesses the legend from it)."""
+    inner = mapper or map
+
+    def noting(task, windows):
+        for res in inner(task, windows):
+            seen = nodata_seen(res.statistics)
+            if seen is not None:
+                sink.nodata = (sink.nodata or set()) | seen
+            yield res
+    return noting
 
 
 def render_style(style, out_dir: Path, *, overwrite: bool = False,
@@ -243,9 +265,12 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     page_map.copy = page_sink.image     # the page keeps the whole map already
                 else:
                     sinks.append(page_map)
+            walk_mapper = mapper
+            if page_job is not None and page_job.forked and page_sink is not None:
+                walk_mapper = _noting_nodata(mapper, page_sink)
             with span("walk"):
                 stats = run(prepared, sinks + list(extra_sinks or []), progress=progress,
-                            previews=layer_previews, mapper=mapper, window=window or WINDOW)
+                            previews=layer_previews, mapper=walk_mapper, window=window or WINDOW)
             if page_job is not None:         # the page process draws from here on
                 page_job.start(nodata_seen(stats))
             t = time.perf_counter()

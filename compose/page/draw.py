@@ -18,7 +18,7 @@ from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
 from compose.page.vectors import emit_layer
 
 __all__ = ["page_figure", "start_page_figure", "finish_page_figure", "finishes", "furniture_only",
-           "map_image", "format_coordinate", "shrink_artists", "FONT"]
+           "map_image", "add_map_image", "format_coordinate", "shrink_artists", "FONT"]
 
 FONT = "DejaVu Sans"
 _IN = 25.4
@@ -255,6 +255,16 @@ def start_page_figure(style, layout: PageLayout, *, layers=()):
     return fig
 
 
+def add_map_image(fig, layout: PageLayout, image: np.ndarray) -> None:
+    """Put the map's raster ``image`` (H, W, 3) uint8 in the map frame of ``fig``, under the
+    overlays (they are drawn above it by zorder, whenever either was added)."""
+    canvas = layout.canvas
+    ma = next(ax for ax in fig.axes if ax.get_label() == MAP_AXES)
+    # a fixed id: the SVG writer would otherwise hash the text of the image's PNG bytes
+    ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
+              resample=False, aspect="auto", zorder=0, gid="map-raster")
+
+
 def finishes(fig, layout: PageLayout) -> bool:
     """Whether ``fig`` (from :func:`start_page_figure`) has ``layout``'s paper and frame."""
     return getattr(fig, "compose_frame", None) == (tuple(layout.size), tuple(layout.frame))
@@ -267,10 +277,7 @@ def finish_page_figure(fig, style, layout: PageLayout, image: np.ndarray | None,
     page = style.page
     canvas = layout.canvas
     if image is not None:
-        ma = next(ax for ax in fig.axes if ax.get_label() == MAP_AXES)
-        # a fixed id: the SVG writer would otherwise hash the text of the image's PNG bytes
-        ma.imshow(image, extent=(0, canvas.width, canvas.height, 0), interpolation="none",
-                  resample=False, aspect="auto", zorder=0, gid="map-raster")
+        add_map_image(fig, layout, image)
     p = _Page(fig, layout, page)
     p.bands()
     if page.neatline:

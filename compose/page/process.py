@@ -183,25 +183,36 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                         started = job._ahead(prepared)
                 except Exception:              # the writer builds it again and reports
                     started = None
+            early = None
+            if job._early is not None:
+                def early(guess):
+                    return job._early(prepared, started, guess)
             try:
                 with span("page waits for walk"):
-                    nodata = _walked(inp, job._sink)
+                    nodata, drawn = _walked(inp, job._sink, early)
             except EOFError:                              # the render ended without a page
                 os._exit(0)
             try:
                 def on_layout(layout):
                     _send(out, ("layout", layout))
 
+                sent = False
+                if drawn is not None and drawn.holds_for(nodata) and drawn.legend_png is not None:
+                    _send(out, ("legend", drawn.legend_png))       # drawn during the walk
+                    sent = True
+
                 def with_png():
                     # drawn by the process that draws the page PNG (forked from this one
                     # after the layout was sent: it writes to the parent while this one writes
                     # the PDF and SVG and sends nothing until that process is done)
-                    if job._legend is not None:
+                    if job._legend is not None and not sent:
                         with span("legend png"):
                             _send(out, ("legend", job._legend(prepared, nodata)))
 
                 # alone in its process, the page may fork once more: the page PNG beside the PDF
-                kw = {"ahead": started} if started is not None else {}
+                kw: dict[str, Any] = {"early": drawn} if drawn is not None else {}
+                if started is not None and drawn is None:  # (an early page finished it)
+                    kw["ahead"] = started
                 seconds, _ = job._write(job._style, prepared, job._sink, job._tmp, nodata,
                                         on_layout=on_layout, fork=True, with_png=with_png, **kw)
                 _send(out, ("done", seconds))
@@ -215,12 +226,16 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
         os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
 
 
-def _walked(inp, sink) -> set[str] | None:
+def _walked(inp, sink, early: Callable[[set[str] | None], Any] | None = None
+            ) -> tuple[set[str] | None, Any]:
     """Wait for the walk's end, encoding the page's raster (``sink.base``) band by band as the
     parent finishes it, as the PDF and SVG writers embed it (RGB rows top first,
     :func:`compose.page.encode.remember`; :func:`compose.page.write.write_page` has the PDF
-    writer store the rows top first, and the SVG's opaque RGBA is stored as RGB); returns the
-    no-data layers the parent sent."""
+    writer store the rows top first, and the SVG's opaque RGBA is stored as RGB). After the
+    first band, ``early(nodata)`` runs once with the no-data layers of the windows walked so far
+    (a guess of the final set; :func:`compose.page.write.page_early`). Returns the no-data
+    layers the parent sent at the end and what ``early`` returned (None if it failed or never
+    ran)."""
     base = getattr(sink, "base", None)
     stream = None
     if base is not None:
@@ -228,6 +243,8 @@ def _walked(inp, sink) -> set[str] | None:
 
         stream = PngRows(base.shape[1], "RGB")
     done = 0
+    guessed: Any = None
+    tried = early is None
 
     def encode(upto: int) -> None:
         nonlocal done
@@ -240,14 +257,22 @@ def _walked(inp, sink) -> set[str] | None:
     while True:
         kind, value = pickle.load(inp)
         if kind == "rows":
-            encode(value)
+            rows, nodata = value
+            encode(rows)
+            if not tried and early is not None:
+                tried = True
+                try:
+                    with span("page drawn early"):
+                        guessed = early(nodata)
+                except Exception:              # written after the walk as without it
+                    guessed = None
             continue
         if stream is not None and base is not None:
             from compose.page.encode import remember
 
             encode(base.shape[0])
             remember(*stream.finish())
-        return value
+        return value, guessed
 
 
 def _unpacked(job: PageJob, data: bytes) -> SimpleNamespace:
@@ -267,7 +292,10 @@ class PageJob:
     handed to ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`);
     ``legend(prepared, nodata_seen)``: the legend PNG's bytes, drawn beside the PDF by the
     process drawing the page PNG (``write``'s ``with_png``) and sent here (:meth:`legend`), so
-    this process needs no drawing library of its own.
+    this process needs no drawing library of its own. ``early(prepared, started, nodata)``:
+    what of the page can be made during the walk from a guess of the no-data layers
+    (:func:`compose.page.write.page_early`; ``started``: what ``ahead`` returned), handed to
+    ``write`` as ``early=``.
 
     Create it before other threads start: with ``prepared`` None as soon as the style is
     loaded, then :meth:`attach` the prepared render (the child loads its modules beside this
@@ -281,12 +309,14 @@ class PageJob:
     def __init__(self, style, prepared, sink, tmp: dict[str, Path], write: Callable, *,
                  warm: Callable[[], None] | None = None, ahead: Callable[[Any], Any] | None = None,
                  legend: Callable[[Any, set[str] | None], bytes] | None = None,
+                 early: Callable[[Any, Any, set[str] | None], Any] | None = None,
                  forked: bool | None = None):
         self._style, self._prepared, self._sink, self._tmp = style, prepared, sink, tmp
         self._write = write
         self._warm = warm
         self._ahead = ahead
         self._legend = legend
+        self._early = early
         self._got: dict[str, tuple] = {}
         self.pid: int | None = None
         self._forked = False
@@ -332,10 +362,10 @@ class PageJob:
         if self._sink is not None:          # the child encodes the page's raster as it comes
             self._sink.listener = self._rows_done
 
-    def _rows_done(self, rows: int) -> None:
+    def _rows_done(self, rows: int, nodata: set[str] | None = None) -> None:
         if self._outbox is not None:
             try:
-                _send(self._outbox, ("rows", rows))
+                _send(self._outbox, ("rows", (rows, nodata)))
             except OSError:         # the child is gone: start() / layout() report it
                 pass
 

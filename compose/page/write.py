@@ -10,15 +10,18 @@ from __future__ import annotations
 
 import contextlib
 import time
+from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 from types import SimpleNamespace
+from typing import Any
 
 import numpy as np
 
 from compose.page.layout import PageLayout, blocked_pixels, page_layout
 
 __all__ = ["PageSink", "vector_split", "legend_for_page", "fit_legend", "write_page", "page_ahead",
-           "page_png",
+           "page_png", "EarlyPage", "page_early", "furniture_rgba", "paste_map",
            "write_page_png", "world_file_text", "warm_writers",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
@@ -66,8 +69,12 @@ class PageSink:
         self.below = int(below)
         self.image = shared_image(canvas.height, canvas.width)
         self.base = shared_image(canvas.height, canvas.width)
-        #: called with the number of ``base`` rows finished so far, after each band
+        #: called with the number of ``base`` rows finished so far and :attr:`nodata`, after
+        #: each band
         self.listener = None
+        #: the layers with no-data pixels in the windows walked so far (None: not known), kept
+        #: up to date by the render (the page process guesses the final set from it)
+        self.nodata: set[str] | None = None
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.image[row0:row0 + rgb8.shape[0]] = rgb8
@@ -75,7 +82,7 @@ class PageSink:
     def below_rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.base[row0:row0 + rgb8.shape[0]] = rgb8
         if self.listener is not None:
-            self.listener(row0 + rgb8.shape[0])
+            self.listener(row0 + rgb8.shape[0], self.nodata)
 
 
 def page_paths(style, out_dir: Path) -> dict[str, Path]:
@@ -168,10 +175,54 @@ def page_ahead(style, run_, sink: PageSink):
         return start_page_figure(style, _layout(style, None), layers=run_.layers[sink.below:])
 
 
+def _frozen(nodata) -> frozenset[str] | None:
+    return None if nodata is None else frozenset(nodata)
+
+
+@dataclass
+class EarlyPage:
+    """What of the page depends on the walk only through the layers that show no-data, made
+    while the walk runs from a guess of them (``nodata``: the layers with no-data pixels in the
+    windows walked so far): the legend's layout, the page layout, the figure with its furniture
+    (no map image yet), the page PNG's furniture drawn by Agg (:func:`furniture_rgba`) and the
+    legend PNG. :func:`write_page` uses it only when the walk ends with the same set."""
+
+    nodata: frozenset[str] | None
+    legend: Any
+    layout: PageLayout
+    fig: Any
+    furniture: tuple[np.ndarray, tuple] | None
+    legend_png: bytes | None = None
+
+    def holds_for(self, nodata) -> bool:
+        """Whether it was made for the no-data layers ``nodata`` the walk ended with."""
+        return self.nodata == _frozen(nodata)
+
+
+def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
+               legend_png: Callable | None = None) -> EarlyPage:
+    """The :class:`EarlyPage` of ``nodata`` (``ahead``: the figure :func:`page_ahead` started,
+    finished here when its frame is the layout's; ``legend_png(run_, nodata)``: the legend PNG's
+    bytes)."""
+    from matplotlib import rc_context
+
+    from compose.page.draw import finish_page_figure, finishes, start_page_figure
+
+    legend = fit_legend(style, run_.ramps, run_.layers, nodata)
+    layout = _layout(style, legend)
+    with rc_context(_rc(style)):
+        fig = (ahead if ahead is not None and finishes(ahead, layout)
+               else start_page_figure(style, layout, layers=run_.layers[sink.below:]))
+        finish_page_figure(fig, style, layout, None, legend_layout=legend)
+        furniture = furniture_rgba(style, layout, legend, run_.canvas.dpi)
+    png = legend_png(run_, nodata) if legend_png is not None else None
+    return EarlyPage(_frozen(nodata), legend, layout, fig, furniture, png)
+
+
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                nodata_seen: set[str] | None = None,
                on_layout=None, fork: bool = False, ahead=None,
-               with_png=None) -> tuple[dict[str, float], PageLayout]:
+               with_png=None, early: EarlyPage | None = None) -> tuple[dict[str, float], PageLayout]:
     """Write the page outputs to the temporary paths ``tmp`` (keys of :func:`page_paths`);
     returns (seconds per output, the layout). ``on_layout(layout)``: called as soon as the
     layout is decided, before the files are drawn. ``fork``: the page PNG is drawn by a forked
@@ -179,15 +230,21 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     thread runs: :class:`compose.page.process.Forked`). ``ahead``: the figure
     :func:`page_ahead` started (used when its frame is the layout's). ``with_png()``: run
     first by whoever draws the page PNG (the forked process when ``fork``), outside this
-    function's matplotlib settings."""
+    function's matplotlib settings. ``early``: the :class:`EarlyPage` made during the walk, used
+    when it holds for ``nodata_seen`` (then ``ahead`` is not used)."""
     from matplotlib import rc_context
 
-    from compose.page.draw import finish_page_figure, finishes, start_page_figure
+    from compose.page.draw import add_map_image, finish_page_figure, finishes, start_page_figure
     from compose.timeline import span
 
-    with span("page legend fit"):
-        legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
-        layout = _layout(style, legend)
+    if early is not None and not early.holds_for(nodata_seen):
+        early = None
+    if early is not None:
+        legend, layout = early.legend, early.layout
+    else:
+        with span("page legend fit"):
+            legend = fit_legend(style, run_.ramps, run_.layers, nodata_seen)
+            layout = _layout(style, legend)
     if on_layout is not None:
         on_layout(layout)
     seconds = {}
@@ -202,20 +259,45 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     with rc_context(rc), fast_png():
         t = time.perf_counter()
         with span("page figure"):
-            fig = (ahead if ahead is not None and finishes(ahead, layout)
-                   else start_page_figure(style, layout, layers=vectors))
-            finish_page_figure(fig, style, layout, sink.base, legend_layout=legend)
+            if early is not None:
+                fig = early.fig
+                add_map_image(fig, layout, sink.base)
+            else:
+                fig = (ahead if ahead is not None and finishes(ahead, layout)
+                       else start_page_figure(style, layout, layers=vectors))
+                finish_page_figure(fig, style, layout, sink.base, legend_layout=legend)
         built = time.perf_counter() - t
 
-        def png() -> float:
+        def svg() -> float:
+            t = time.perf_counter()
+            with span("page svg"):
+                fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
+                            metadata={"Title": meta_title, "Description": style.page.caution})
+            return time.perf_counter() - t
+
+        # the page PNG's process also writes the SVG, beside the PDF, when its furniture was
+        # drawn during the walk (else it draws it from its copy of the figure, which is changed)
+        svg_beside = fork and early is not None and early.furniture is not None
+
+        def png() -> dict[str, float]:
             if with_png is not None:
                 with rc_context(outer):
                     with_png()
             t = time.perf_counter()
             with span("page png"):
-                write_page_png(tmp["page"], style, layout, sink.image, legend, run_.canvas.dpi,
-                               fig=fig)
-            return time.perf_counter() - t
+                if early is not None and early.furniture is not None:
+                    from compose.output.png import write_png
+
+                    dpi = max(float(run_.canvas.dpi), MIN_PAGE_DPI)
+                    write_png(tmp["page"], paste_map(*early.furniture, layout, sink.image, dpi),
+                              dpi=dpi)
+                else:
+                    write_page_png(tmp["page"], style, layout, sink.image, legend,
+                                   run_.canvas.dpi, fig=fig)
+            done = {"page.png": time.perf_counter() - t}
+            if svg_beside:
+                done["svg"] = svg()
+            return done
 
         beside = None
         if fork:
@@ -229,13 +311,10 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
                             metadata={"Title": meta_title, "Subject": style.page.caution,
                                       "Creator": "compose"})
             seconds["pdf"] = built + time.perf_counter() - t
-            t = time.perf_counter()
-            with span("page svg"):
-                fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
-                            metadata={"Title": meta_title, "Description": style.page.caution})
-            seconds["svg"] = time.perf_counter() - t
+            if not svg_beside:
+                seconds["svg"] = svg()
             with span("page waits for png"):
-                seconds["page.png"] = beside.result() if beside is not None else png()
+                seconds.update(beside.result() if beside is not None else png())
         finally:
             if beside is not None:
                 beside.abort()
@@ -269,15 +348,11 @@ def map_rows_stored_top_first(fig, base: np.ndarray):
 MIN_PAGE_DPI = 72.0
 
 
-def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float,
-             fig=None) -> np.ndarray:
-    """The page as (H, W, 3) uint8 at ``dpi``: the furniture drawn by Agg on a transparent
-    page, laid over the paper with the finished map pasted pixel for pixel into the frame (the
-    frame is the canvas at this dpi; its corner lands on the nearest whole page pixel).
-
-    ``fig``: the page's figure already built for the PDF and SVG (:func:`page_figure` of the
-    same layout and legend), drawn here with its map frame hidden instead of building the
-    furniture again (it is changed: keep it for nothing else)."""
+def furniture_rgba(style, layout: PageLayout, legend, dpi: float,
+                   fig=None) -> tuple[np.ndarray, tuple]:
+    """The page's furniture drawn by Agg on a transparent page at ``dpi`` (at least
+    :data:`MIN_PAGE_DPI`): (H, W, 4) uint8 straight RGBA, and the paper colour (RGBA floats).
+    ``fig``: see :func:`page_png`."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     from compose.page.draw import furniture_only, page_figure
@@ -287,12 +362,19 @@ def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float,
         fig = page_figure(style, layout, None, legend_layout=legend)
     else:
         furniture_only(fig)
-    paper = fig.get_facecolor()
+    paper = tuple(fig.get_facecolor())
     fig.patch.set_alpha(0.0)
     fig.set_dpi(dpi)
     agg = FigureCanvasAgg(fig)
     agg.draw()
-    top = np.asarray(agg.buffer_rgba())
+    return np.asarray(agg.buffer_rgba()), paper
+
+
+def paste_map(top: np.ndarray, paper: tuple, layout: PageLayout, image: np.ndarray,
+              dpi: float) -> np.ndarray:
+    """The page PNG's pixels (H, W, 3) uint8: the furniture ``top`` (:func:`furniture_rgba` at
+    ``dpi``) laid over the paper with the finished map ``image`` pasted pixel for pixel into
+    the frame (its corner on the nearest whole page pixel)."""
     H, W = top.shape[:2]
     under = np.empty((H, W, 3), np.uint8)
     under[0] = np.round(np.array(paper[:3]) * 255).astype(np.uint8)
@@ -316,6 +398,19 @@ def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float,
              + flat[ink].astype(np.uint16) * (255 - a) + 127) // 255
     flat[ink] = mixed.astype(np.uint8)
     return under
+
+
+def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float,
+             fig=None) -> np.ndarray:
+    """The page as (H, W, 3) uint8 at ``dpi``: the furniture drawn by Agg on a transparent
+    page, laid over the paper with the finished map pasted pixel for pixel into the frame (the
+    frame is the canvas at this dpi; its corner lands on the nearest whole page pixel).
+
+    ``fig``: the page's figure already built for the PDF and SVG (:func:`page_figure` of the
+    same layout and legend), drawn here with its map frame hidden instead of building the
+    furniture again (it is changed: keep it for nothing else)."""
+    top, paper = furniture_rgba(style, layout, legend, dpi, fig=fig)
+    return paste_map(top, paper, layout, image, max(float(dpi), MIN_PAGE_DPI))
 
 
 def write_page_png(path: Path, style, layout: PageLayout, image: np.ndarray, legend,

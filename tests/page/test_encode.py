@@ -54,16 +54,20 @@ def test_a_remembered_png_is_what_a_save_writes():
 def test_the_page_process_encodes_its_raster_while_the_walk_runs():
     """The child's wait for the walk (process._walked) encodes the rows the parent reports
     finished, as the PDF and SVG writers embed them (RGB, top row first), and returns the
-    no-data layers."""
+    no-data layers with what the early page work made."""
     base = _image("RGB")
     sink = type("Sink", (), {"base": base})()
     messages = io.BytesIO()
-    for m in (("rows", 10), ("rows", 30), ("walked", {"sea"})):
+    for m in (("rows", (10, {"land"})), ("rows", (30, {"land", "sea"})), ("walked", {"sea"})):
         pickle.dump(m, messages)
     messages.seek(0)
     known = dict(encode._known)
+    guesses = []
     try:
-        assert process._walked(messages, sink) == {"sea"}
+        # the early work runs once, after the first band, with the no-data layers so far
+        assert process._walked(messages, sink, lambda g: guesses.append(g) or "early") == (
+            {"sea"}, "early")
+        assert guesses == [{"land"}]
         new = {k: v for k, v in encode._known.items() if k not in known}
         assert list(new.values()) == [encode.png_bytes(base)]
     finally:

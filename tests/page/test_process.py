@@ -40,6 +40,40 @@ def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
     assert there.outputs["legend"].read_bytes() == here.outputs["legend"].read_bytes()
 
 
+@pytest.mark.parametrize("guess", ["wrong", "failing"])
+def test_a_page_drawn_early_on_a_wrong_guess_is_drawn_again(tmp_path, monkeypatch, guess):
+    """The page process draws the legend and furniture during the walk from the no-data layers
+    of the windows walked so far (compose.page.write.page_early); when the walk ends with
+    another set, or that work failed, the page is drawn after the walk: the same files."""
+    import importlib
+
+    import compose.page.write as write
+
+    render = importlib.import_module("compose.render")      # (compose.render is also a function)
+    right = _render(tmp_path, "right", True, monkeypatch)
+    if guess == "wrong":
+        def noting(mapper, sink):
+            inner = mapper or map
+
+            def wrong(task, windows):
+                for res in inner(task, windows):
+                    sink.nodata = {"a layer that is not there"}
+                    yield res
+            return wrong
+        monkeypatch.setattr(render, "_noting_nodata", noting)
+    else:
+        def fails(*args, **kwargs):
+            raise RuntimeError("no early page")
+        monkeypatch.setattr(write, "page_early", fails)
+    again = _render(tmp_path, guess, True, monkeypatch)
+    for kind in ("page", "legend"):
+        assert again.outputs[kind].read_bytes() == right.outputs[kind].read_bytes(), kind
+    assert _pdf_without_date(again.outputs["pdf"]) == _pdf_without_date(right.outputs["pdf"])
+    svg = [re.sub(r'id="[^"]*"|url\(#[^)]*\)|xlink:href="#[^"]*"|<dc:date>[^<]*', "",
+                  out.outputs["svg"].read_text()) for out in (right, again)]
+    assert svg[0] == svg[1]
+
+
 def test_a_page_forked_before_the_render_was_prepared_is_the_same_page(tmp_path, monkeypatch):
     """render_style forks the page process before preparing and hands the prepared render
     over (compose.page.handover); when it cannot be pickled, the page is forked after it."""
