@@ -26,11 +26,14 @@ import functools
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 
+import matplotlib
 import numpy as np
 import shapely
 from affine import Affine
-from matplotlib.backends.backend_agg import RendererAgg
-from matplotlib.font_manager import FontProperties, findfont
+from matplotlib._enums import CapStyle, JoinStyle
+from matplotlib.backends._backend_agg import RendererAgg
+from matplotlib.font_manager import FontProperties, findfont, fontManager, get_font
+from matplotlib.ft2font import LoadFlags
 from matplotlib.path import Path
 from matplotlib.textpath import TextPath
 from matplotlib.transforms import IdentityTransform
@@ -73,6 +76,49 @@ def _choice(value: str, options, what: str) -> str:
     return options[value] if isinstance(options, dict) else value
 
 
+class _GC:
+    """The graphics context Agg's C++ renderer reads (the attributes and getters of matplotlib's
+    ``GraphicsContextBase`` it takes, with that class's defaults): black, opaque, no clip, no
+    dashes, hatch or sketch. Drawing through matplotlib's C++ renderer directly, not its Python
+    backend, keeps matplotlib's ``backend_bases`` (figures, events, widgets) out of the import."""
+
+    def __init__(self, width_px: float, cap: str, join: str):
+        self._alpha = 1.0
+        self._forced_alpha = False
+        self._antialiased = 1
+        self._capstyle = CapStyle(cap)
+        self._joinstyle = JoinStyle(join)
+        self._cliprect = None
+        self._dashes = 0, None
+        self._linewidth = float(width_px)
+        self._rgb = (0.0, 0.0, 0.0, 1.0)
+        self._hatch_color = None
+        self._hatch_linewidth = matplotlib.rcParams["hatch.linewidth"]
+        self._snap = False
+        self._sketch = None
+
+    def get_dashes(self):
+        return self._dashes
+
+    def get_clip_path(self):
+        return None, None
+
+    def get_snap(self):
+        return self._snap
+
+    def get_hatch_path(self, density: float = 6.0):
+        return None
+
+    def get_hatch_color(self):
+        return self._hatch_color
+
+    def get_hatch_linewidth(self):
+        return self._hatch_linewidth
+
+    def get_sketch_params(self):
+        return self._sketch
+
+
 class _Canvas:
     """An Agg renderer with one graphics context: black, opaque, antialiased, unsnapped."""
 
@@ -82,24 +128,18 @@ class _Canvas:
         self.width, self.height = int(width), int(height)
         self.renderer = RendererAgg(self.width, self.height, _DPI)
 
-    def gc(self, width_px: float = 0.0, cap: str = "round", join: str = "round"):
-        gc = self.renderer.new_gc()
-        gc.set_antialiased(True)
-        gc.set_snap(False)
-        gc.set_foreground((0.0, 0.0, 0.0, 1.0))
-        gc.set_linewidth(float(width_px))
-        gc.set_capstyle(_choice(cap, CAPS, "line cap"))
-        gc.set_joinstyle(_choice(join, JOINS, "line join"))
-        return gc
+    def gc(self, width_px: float = 0.0, cap: str = "round", join: str = "round") -> _GC:
+        # validates cap and join even when nothing is drawn
+        return _GC(width_px, _choice(cap, CAPS, "line cap"), _choice(join, JOINS, "line join"))
 
-    def stroke(self, path: Path, gc) -> None:
-        self.renderer.draw_path(gc, path, IdentityTransform())
+    def stroke(self, path: Path, gc: _GC) -> None:
+        self.renderer.draw_path(gc, path, IdentityTransform(), None)
 
-    def fill(self, path: Path, gc) -> None:
+    def fill(self, path: Path, gc: _GC) -> None:
         self.renderer.draw_path(gc, path, IdentityTransform(), (0.0, 0.0, 0.0, 1.0))
 
     def coverage(self) -> np.ndarray:
-        alpha = np.asarray(self.renderer.buffer_rgba())[..., 3]
+        alpha = np.asarray(memoryview(self.renderer))[..., 3]
         if _EIGHT_BIT:
             return np.ascontiguousarray(alpha)
         return np.divide(alpha, np.float32(255.0), dtype=np.float32)
@@ -234,7 +274,7 @@ def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
         findfont(prop, fallback_to_default=False)
     except ValueError:
         raise StyleError(f"font {font!r} (weight {weight!r}) not found") from None
-    w, h, d = _measurer().get_text_width_height_descent(text, prop, False)
+    w, h, d = _text_extent(text, prop)
     tp = TextPath((0.0, 0.0), text, size=float(size_px), prop=prop)
     v = np.array(tp.vertices, np.float64)   # a copy: TextPath keeps its own
     codes = tp.codes if tp.codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
@@ -249,9 +289,27 @@ def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
     return TextShape(text, float(w), float(asc), float(d), v, np.asarray(codes))
 
 
-@functools.lru_cache(maxsize=1)
-def _measurer() -> RendererAgg:
-    return RendererAgg(1, 1, _DPI)
+#: matplotlib's ``text.hinting`` setting -> FreeType load flags (as its Agg backend maps them).
+_HINTING = {
+    "default": LoadFlags.DEFAULT, "no_autohint": LoadFlags.NO_AUTOHINT,
+    "force_autohint": LoadFlags.FORCE_AUTOHINT, "no_hinting": LoadFlags.NO_HINTING,
+    True: LoadFlags.FORCE_AUTOHINT, False: LoadFlags.NO_HINTING, "either": LoadFlags.DEFAULT,
+    "native": LoadFlags.NO_AUTOHINT, "auto": LoadFlags.FORCE_AUTOHINT,
+    "none": LoadFlags.NO_HINTING,
+}
+
+
+def _text_extent(text: str, prop: FontProperties) -> tuple[float, float, float]:
+    """(width, height, descent) in pixels of ``text`` as matplotlib's Agg backend measures it
+    (``get_text_width_height_descent`` of plain text at :data:`_DPI`: the font laid out by
+    FreeType with the hinting of ``text.hinting``, in 1/64 pixels)."""
+    font = get_font(fontManager._find_fonts_by_props(prop))
+    font.clear()
+    font.set_size(prop.get_size_in_points(), _DPI)
+    font.set_text(text, 0.0, flags=_HINTING[matplotlib.rcParams["text.hinting"]])
+    w, h = font.get_width_height()
+    d = font.get_descent()
+    return w / 64.0, h / 64.0, d / 64.0
 
 
 def draw_text_shapes(shapes: Iterable[tuple[TextShape, float, float]], width: int, height: int,

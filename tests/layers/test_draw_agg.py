@@ -1,0 +1,91 @@
+"""compose.layers.draw drives matplotlib's C++ Agg renderer with a graphics context of its own
+(no matplotlib backend_bases at import): the coverage and the text boxes it gives are exactly
+those of matplotlib's own Agg backend (the reference: matplotlib.backends.backend_agg.RendererAgg
+with a GraphicsContextBase set as compose sets it), strokes, fills, caps, joins, widths, text."""
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+import shapely
+from affine import Affine
+
+from compose.layers import draw
+
+W, H = 64, 48
+T = Affine(1.0, 0, 0, 0, -1.0, H)
+
+
+def _reference(paths_gcs) -> np.ndarray:
+    from matplotlib.backends.backend_agg import RendererAgg
+    from matplotlib.transforms import IdentityTransform
+
+    r = RendererAgg(W, H, 72.0)
+    for path, width, cap, join, fill in paths_gcs:
+        gc = r.new_gc()
+        gc.set_antialiased(True)
+        gc.set_snap(False)
+        gc.set_foreground((0.0, 0.0, 0.0, 1.0))
+        gc.set_linewidth(float(width))
+        gc.set_capstyle(cap)
+        gc.set_joinstyle(join)
+        r.draw_path(gc, path, IdentityTransform(), (0.0, 0.0, 0.0, 1.0) if fill else None)
+    return np.asarray(r.buffer_rgba())[..., 3].copy()
+
+
+def _ours(paths_gcs) -> np.ndarray:
+    c = draw._Canvas(W, H)
+    for path, width, cap, join, fill in paths_gcs:
+        gc = c.gc(width, {"projecting": "square"}.get(cap, cap), join)
+        (c.fill if fill else c.stroke)(path, gc)
+    return np.rint(c.coverage() * 255).astype(np.uint8)
+
+
+LINES = [shapely.LineString([(3.3, 5.1), (40.7, 30.2), (60.1, 4.9)]),
+         shapely.LineString([(10, 40), (12.5, 10.25), (50, 44)])]
+RING = shapely.Polygon([(5, 5), (30, 8), (25, 40), (8, 30)], [[(12, 15), (20, 15), (18, 25)]])
+
+
+@pytest.mark.parametrize("width", [0.4, 1.0, 2.6, 7.0])
+@pytest.mark.parametrize("cap,join", [("round", "round"), ("butt", "miter"),
+                                      ("projecting", "bevel")])
+def test_strokes_are_the_backends(width, cap, join):
+    from compose.layers.paths import line_path
+
+    path = line_path(LINES, T, W, H)
+    assert np.array_equal(_ours([(path, width, cap, join, False)]),
+                          _reference([(path, width, cap, join, False)]))
+
+
+@pytest.mark.parametrize("width", [0.0, 1.5])
+def test_fills_are_the_backends(width):
+    from compose.layers.paths import area_path
+
+    path = area_path([RING], T, W, H)
+    assert np.array_equal(_ours([(path, width, "round", "round", True)]),
+                          _reference([(path, width, "round", "round", True)]))
+
+
+@pytest.mark.parametrize("text,size", [("Harbour", 7.0), ("Río Verde", 6.5), ("Wg", 13.0),
+                                       ("1,024 m", 9.25)])
+def test_text_boxes_are_the_backends(text, size):
+    from matplotlib.backends.backend_agg import RendererAgg
+    from matplotlib.font_manager import FontProperties
+
+    prop = FontProperties(family="DejaVu Sans", size=size)
+    assert draw._text_extent(text, prop) == RendererAgg(1, 1, 72.0).get_text_width_height_descent(
+        text, prop, False)
+
+
+def test_drawing_loads_no_matplotlib_backend():
+    code = ("import sys, compose.layers.draw as d, shapely\n"
+            "d.draw_lines([shapely.LineString([(0, 0), (5, 5)])], d.Affine.identity(), 8, 8, "
+            "width_px=1.0)\nd.measure_text('Town', 7.0)\n"
+            "print(' '.join(sorted(sys.modules)))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    loaded = set(out.stdout.split())
+    assert "matplotlib.backends._backend_agg" in loaded
+    assert not loaded & {"matplotlib.backend_bases", "matplotlib.backends.backend_agg",
+                         "matplotlib.figure", "matplotlib.widgets"}
