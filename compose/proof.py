@@ -32,7 +32,8 @@ from compose.color.wcag import WCAG_Y
 from compose.output.png import PngWriter
 from compose.output.thumb import BoxThumbnail
 
-__all__ = ["PROOFS", "ENCODE_SIZE", "gray_proof", "cvd_proof", "proof_image", "ProofSink",
+__all__ = ["PROOFS", "ENCODE_SIZE", "gray_proof", "cvd_proof", "proof_image", "proof_images",
+           "ProofSink",
            "ProofResult", "proof_paths", "write_proofs", "write_sheet", "PROOF_RULES"]
 
 PROOFS = ("gray", "deutan", "protan", "tritan")
@@ -59,19 +60,23 @@ def _planes(rgb8: np.ndarray) -> list[np.ndarray]:
     return [np.take(_DECODE, rgb8[..., c]) for c in range(3)]
 
 
-def gray_proof(rgb8: np.ndarray) -> np.ndarray:
-    """8-bit sRGB (..., 3) -> 8-bit grey (..., 3) of the same CIELAB L* (all channels equal)."""
-    r, g, b = _planes(np.asarray(rgb8, dtype=np.uint8))
+def gray_proof(rgb8: np.ndarray, planes: list[np.ndarray] | None = None) -> np.ndarray:
+    """8-bit sRGB (..., 3) -> 8-bit grey (..., 3) of the same CIELAB L* (all channels equal).
+    ``planes``: the image's linear R, G, B planes when already decoded."""
+    r, g, b = planes if planes is not None else _planes(np.asarray(rgb8, dtype=np.uint8))
     y = r * _Y[0] + g * _Y[1] + b * _Y[2]
     gray = _encode(y)
     return np.repeat(gray[..., None], 3, axis=-1)
 
 
-def cvd_proof(rgb8: np.ndarray, kind: str, severity: float = 100.0) -> np.ndarray:
+def cvd_proof(rgb8: np.ndarray, kind: str, severity: float = 100.0,
+              planes: list[np.ndarray] | None = None) -> np.ndarray:
     """8-bit sRGB (..., 3) -> 8-bit sRGB (..., 3) as seen with CVD ``kind`` (protan, deutan,
-    tritan) at ``severity`` 0-100 (Machado et al. 2009, linear RGB)."""
+    tritan) at ``severity`` 0-100 (Machado et al. 2009, linear RGB). ``planes``: the image's
+    linear R, G, B planes when already decoded."""
     m = cvd_matrix(kind, severity).astype(np.float32)
-    planes = _planes(np.asarray(rgb8, dtype=np.uint8))
+    if planes is None:
+        planes = _planes(np.asarray(rgb8, dtype=np.uint8))
     out = np.empty(np.shape(rgb8), dtype=np.uint8)
     for c in range(3):
         lin = planes[0] * m[c, 0] + planes[1] * m[c, 1] + planes[2] * m[c, 2]
@@ -79,13 +84,21 @@ def cvd_proof(rgb8: np.ndarray, kind: str, severity: float = 100.0) -> np.ndarra
     return out
 
 
-def proof_image(rgb8: np.ndarray, proof: str) -> np.ndarray:
-    """One proof (``'gray'`` or a CVD kind) of an 8-bit image (..., 3)."""
+def proof_image(rgb8: np.ndarray, proof: str, planes: list[np.ndarray] | None = None
+                ) -> np.ndarray:
+    """One proof (``'gray'`` or a CVD kind) of an 8-bit image (..., 3) (``planes``: its linear
+    planes when already decoded)."""
     if proof == "gray":
-        return gray_proof(rgb8)
+        return gray_proof(rgb8, planes)
     if proof not in PROOFS:
         raise ValueError(f"'{proof}' is not a proof; one of: {', '.join(PROOFS)}")
-    return cvd_proof(rgb8, proof)
+    return cvd_proof(rgb8, proof, planes=planes)
+
+
+def proof_images(rgb8: np.ndarray) -> dict[str, np.ndarray]:
+    """Every proof of :data:`PROOFS` of an 8-bit image (..., 3), its channels decoded once."""
+    planes = _planes(np.asarray(rgb8, dtype=np.uint8))
+    return {proof: proof_image(rgb8, proof, planes) for proof in PROOFS}
 
 
 class ProofSink:
@@ -111,8 +124,9 @@ class ProofSink:
         for r in range(0, rgb8.shape[0], CHUNK_ROWS):
             chunk = rgb8[r:r + CHUNK_ROWS]
             self.thumbs["map"].add(row0 + r, chunk)
+            planes = _planes(chunk)
             for proof in PROOFS:
-                img = proof_image(chunk, proof)
+                img = proof_image(chunk, proof, planes)
                 if proof in self.writers:
                     self.writers[proof].write_rows(img)
                 self.thumbs[proof].add(row0 + r, img)

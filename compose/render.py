@@ -330,7 +330,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             if page_map is not None and layer_previews is not None:      # html
                 # the page's pictures before the legend: the page process draws that one
                 from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
-                from compose.proof import PROOFS, proof_image
+                from compose.proof import proof_images
 
                 t_html = time.perf_counter()
                 names = [layer.spec.name for layer in prepared.layers]
@@ -338,7 +338,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     copy = page_map.image()
                     small = box_reduce(copy, PROOF_WIDTH)
                     pictures = PagePictures(
-                        map=copy, legend=None, proofs={k: proof_image(small, k) for k in PROOFS},
+                        map=copy, legend=None, proofs=proof_images(small),
                         small=small, layers=tuple((n, a, s) for n, (a, s) in zip(
                             names, layer_previews.images())))
                 seconds["html"] = time.perf_counter() - t_html

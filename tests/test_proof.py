@@ -129,3 +129,15 @@ def test_proof_rules_are_catalogued_rules():
     from compose.check.catalog import CATALOG, PROOF_RULES
 
     assert PROOF_RULES and all(rule in CATALOG for rule in PROOF_RULES)
+
+
+def test_proof_images_decode_once_and_give_each_proof():
+    """proof_images shares one decode of the channels between the four proofs: the same pixels
+    as each proof made on its own (whose maths the tests above check against their sources)."""
+    from compose.proof import PROOFS, proof_image, proof_images
+
+    rgb = np.random.default_rng(7).integers(0, 256, (33, 45, 3)).astype(np.uint8)
+    got = proof_images(rgb)
+    assert list(got) == list(PROOFS)
+    for kind in PROOFS:
+        assert np.array_equal(got[kind], proof_image(rgb, kind)), kind
