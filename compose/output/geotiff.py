@@ -17,6 +17,7 @@ from rasterio.enums import ColorInterp
 from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas
+from compose.output.atomic import Writeback
 
 __all__ = ["GeoTiffWriter", "to_cog"]
 
@@ -235,6 +236,7 @@ class _DeflatedTiles:
         self._f = open(path, "r+b")
         self._f.seek(0, 2)
         self._end = self._f.tell()
+        self._writeback = Writeback(self._f)
         self._pool = ThreadPoolExecutor(threads, thread_name_prefix="tif")
         self._threads = threads
         self._pending: deque[Future] = deque()
@@ -279,6 +281,7 @@ class _DeflatedTiles:
             self._counts[self._tile] = len(data)
             self._end += len(data)
             self._tile += 1
+        self._writeback.wrote()
 
     def close(self) -> None:
         try:

@@ -25,6 +25,8 @@ from typing import Any
 
 import numpy as np
 
+from compose.output.atomic import Writeback
+
 _isal: Any = None
 _zlib_ng: Any = None
 try:                                    # faster deflates, the same stream format
@@ -117,6 +119,7 @@ class PngWriter:
         self._pool = ThreadPoolExecutor(self._threads, thread_name_prefix="png") if self._threads > 1 else None
         self._pending: deque[Future] = deque()
         self._f = open(self.path, "wb")
+        self._writeback = Writeback(self._f)
         color_type = {1: 0, 3: 2, 4: 6}[self.channels]
         self._f.write(_SIGNATURE)
         self._f.write(_chunk(b"IHDR", struct.pack(">IIBBBBB", self.width, self.height, 8,
@@ -133,6 +136,7 @@ class PngWriter:
         if self._header:
             data, self._header = self._header + data, b""
         self._f.write(_chunk(b"IDAT", data))
+        self._writeback.wrote()
 
     def _drain(self, keep: int) -> None:
         while len(self._pending) > keep:
