@@ -155,8 +155,8 @@ def _page_job(style, prepared, tmp: dict[str, Path], legend: bool):
     legend_png = (lambda run_, nodata: _legend_png(style, run_, nodata)) if legend else None
     return PageJob(style, prepared, sink, tmp, write_page, warm=warm_writers,
                    ahead=lambda run_: page_ahead(style, run_, sink), legend=legend_png,
-                   early=lambda run_, started, nodata: page_early(style, run_, sink, nodata,
-                                                                  started, legend_png))
+                   early=lambda run_, started, nodata, rest: page_early(
+                       style, run_, sink, nodata, started, legend_png, tmp=tmp, rest=rest))
 
 
 def _noting_nodata(mapper, sink):

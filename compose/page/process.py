@@ -41,12 +41,12 @@ from compose.timeline import note_process, span
 __all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
 
 
-def shared_image(height: int, width: int) -> np.ndarray:
-    """A zeroed (height, width, 3) uint8 array in anonymous shared memory: what one process
-    writes, a process forked after its creation sees."""
-    size = max(1, height * width * 3)
-    buf = mmap.mmap(-1, size)                        # MAP_SHARED | MAP_ANONYMOUS, zero-filled
-    return np.frombuffer(buf, dtype=np.uint8, count=height * width * 3).reshape(height, width, 3)
+def shared_image(height: int, width: int, channels: int = 3) -> np.ndarray:
+    """A zeroed (height, width, channels) uint8 array in anonymous shared memory: what one
+    process writes, a process forked after its creation sees."""
+    n = height * width * channels
+    buf = mmap.mmap(-1, max(1, n))                   # MAP_SHARED | MAP_ANONYMOUS, zero-filled
+    return np.frombuffer(buf, dtype=np.uint8, count=n).reshape(height, width, channels)
 
 
 def can_fork() -> bool:
@@ -185,8 +185,8 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                     started = None
             early = None
             if job._early is not None:
-                def early(guess):
-                    return job._early(prepared, started, guess)
+                def early(guess, rest):
+                    return job._early(prepared, started, guess, rest)
             try:
                 with span("page waits for walk"):
                     nodata, drawn = _walked(inp, job._sink, early)
@@ -226,16 +226,17 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
         os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
 
 
-def _walked(inp, sink, early: Callable[[set[str] | None], Any] | None = None
+def _walked(inp, sink, early: Callable[..., Any] | None = None
             ) -> tuple[set[str] | None, Any]:
     """Wait for the walk's end, encoding the page's raster (``sink.base``) band by band as the
     parent finishes it, as the PDF and SVG writers embed it (RGB rows top first,
     :func:`compose.page.encode.remember`; :func:`compose.page.write.write_page` has the PDF
     writer store the rows top first, and the SVG's opaque RGBA is stored as RGB). After the
-    first band, ``early(nodata)`` runs once with the no-data layers of the windows walked so far
-    (a guess of the final set; :func:`compose.page.write.page_early`). Returns the no-data
-    layers the parent sent at the end and what ``early`` returned (None if it failed or never
-    ran)."""
+    first band, ``early(nodata, rest)`` runs once with the no-data layers of the windows walked
+    so far (a guess of the final set; :func:`compose.page.write.page_early`); ``rest()`` waits
+    for the rest of the walk the same way and returns the final set (``early`` may call it, to
+    finish work that needs the whole map). Returns the no-data layers the parent sent at the
+    end and what ``early`` returned (None if it failed or never ran)."""
     base = getattr(sink, "base", None)
     stream = None
     if base is not None:
@@ -244,7 +245,9 @@ def _walked(inp, sink, early: Callable[[set[str] | None], Any] | None = None
         stream = PngRows(base.shape[1], "RGB")
     done = 0
     guessed: Any = None
-    tried = early is None
+    walked = False
+    early_fn: Callable[..., Any] | None = None
+    final: set[str] | None = None
 
     def encode(upto: int) -> None:
         nonlocal done
@@ -254,25 +257,37 @@ def _walked(inp, sink, early: Callable[[set[str] | None], Any] | None = None
             stream.add(base[done:upto])
         done = upto
 
-    while True:
+    def step() -> tuple[int, set[str] | None] | None:
+        """Handle the next message: the band's (rows, no-data so far), or None at the end."""
+        nonlocal walked, final
         kind, value = pickle.load(inp)
         if kind == "rows":
-            rows, nodata = value
-            encode(rows)
-            if not tried and early is not None:
-                tried = True
-                try:
-                    with span("page drawn early"):
-                        guessed = early(nodata)
-                except Exception:              # written after the walk as without it
-                    guessed = None
-            continue
+            encode(value[0])
+            return value
         if stream is not None and base is not None:
             from compose.page.encode import remember
 
             encode(base.shape[0])
             remember(*stream.finish())
-        return value, guessed
+        walked, final = True, value
+        return None
+
+    def rest() -> set[str] | None:
+        with span("page waits for the rest of the walk"):
+            while not walked:
+                step()
+        return final
+
+    while not walked:
+        got = step()
+        if got is not None and early_fn is None and early is not None:
+            guess, early_fn = got[1], early     # once
+            try:
+                with span("page drawn early"):
+                    guessed = early_fn(guess, rest)
+            except Exception:                  # written after the walk as without it
+                guessed = None
+    return final, guessed
 
 
 def _unpacked(job: PageJob, data: bytes) -> SimpleNamespace:
@@ -292,10 +307,10 @@ class PageJob:
     handed to ``write`` as ``ahead=`` (:func:`compose.page.write.page_ahead`);
     ``legend(prepared, nodata_seen)``: the legend PNG's bytes, drawn beside the PDF by the
     process drawing the page PNG (``write``'s ``with_png``) and sent here (:meth:`legend`), so
-    this process needs no drawing library of its own. ``early(prepared, started, nodata)``:
-    what of the page can be made during the walk from a guess of the no-data layers
-    (:func:`compose.page.write.page_early`; ``started``: what ``ahead`` returned), handed to
-    ``write`` as ``early=``.
+    this process needs no drawing library of its own. ``early(prepared, started, nodata,
+    rest)``: what of the page can be made during the walk from a guess of the no-data layers
+    (:func:`compose.page.write.page_early`; ``started``: what ``ahead`` returned; ``rest()``
+    waits for the end of the walk), handed to ``write`` as ``early=``.
 
     Create it before other threads start: with ``prepared`` None as soon as the style is
     loaded, then :meth:`attach` the prepared render (the child loads its modules beside this
@@ -309,7 +324,7 @@ class PageJob:
     def __init__(self, style, prepared, sink, tmp: dict[str, Path], write: Callable, *,
                  warm: Callable[[], None] | None = None, ahead: Callable[[Any], Any] | None = None,
                  legend: Callable[[Any, set[str] | None], bytes] | None = None,
-                 early: Callable[[Any, Any, set[str] | None], Any] | None = None,
+                 early: Callable[..., Any] | None = None,
                  forked: bool | None = None):
         self._style, self._prepared, self._sink, self._tmp = style, prepared, sink, tmp
         self._write = write

@@ -70,7 +70,11 @@ class PageSink:
 
         self.below = int(below)
         self.image = shared_image(canvas.height, canvas.width)
-        self.base = shared_image(canvas.height, canvas.width)
+        #: ``base`` with an alpha of 255: what matplotlib makes of it to draw it, read by the
+        #: PDF writer only when the file is finished (:func:`page_early`)
+        self.rgba = shared_image(canvas.height, canvas.width, 4)
+        self.rgba[..., 3] = 255
+        self.base = self.rgba[..., :3]
         #: called with the number of ``base`` rows finished so far and :attr:`nodata`, after
         #: each band
         self.listener = None
@@ -195,30 +199,76 @@ class EarlyPage:
     fig: Any
     furniture: tuple[np.ndarray, tuple] | None
     legend_png: bytes | None = None
+    #: seconds the PDF took when it was written here (its drawing during the walk), else None
+    pdf_seconds: float | None = None
 
     def holds_for(self, nodata) -> bool:
         """Whether it was made for the no-data layers ``nodata`` the walk ended with."""
         return self.nodata == _frozen(nodata)
 
 
+class _AtTheEnd:
+    """An artist drawing nothing, last in its figure: ``fn()`` runs when it is drawn."""
+
+    def __new__(cls, fn):
+        from matplotlib.artist import Artist
+
+        class AtTheEnd(Artist):
+            zorder = 1e12
+
+            def draw(self, renderer):
+                fn()
+
+        return AtTheEnd()
+
+
 def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
-               legend_png: Callable | None = None) -> EarlyPage:
+               legend_png: Callable | None = None, tmp: dict[str, Path] | None = None,
+               rest: Callable[[], Any] | None = None) -> EarlyPage:
     """The :class:`EarlyPage` of ``nodata`` (``ahead``: the figure :func:`page_ahead` started,
     finished here when its frame is the layout's; ``legend_png(run_, nodata)``: the legend PNG's
-    bytes)."""
+    bytes). With ``tmp`` and ``rest`` (a call that returns once the walk is over, in a forked
+    page process), the PDF is written too: drawn while the walk runs, its map image drawn from
+    ``sink.rgba`` without a copy (matplotlib's own RGBA of an image, set in place) and the file
+    finished, with the map's pixels, once ``rest()`` returned (an artist drawn last waits for
+    it); the figure's image is then the finished map."""
     from matplotlib import rc_context
 
-    from compose.page.draw import finish_page_figure, finishes, start_page_figure
+    from compose.page.draw import add_map_image, finish_page_figure, finishes, start_page_figure
 
     legend = fit_legend(style, run_.ramps, run_.layers, nodata)
     layout = _layout(style, legend)
-    with rc_context(_rc(style)):
+    rc = _rc(style)
+    with rc_context(rc):
         fig = (ahead if ahead is not None and finishes(ahead, layout)
                else start_page_figure(style, layout, layers=run_.layers[sink.below:]))
         finish_page_figure(fig, style, layout, None, legend_layout=legend)
         furniture = furniture_rgba(style, layout, legend, run_.canvas.dpi)
     png = legend_png(run_, nodata) if legend_png is not None else None
-    return EarlyPage(_frozen(nodata), legend, layout, fig, furniture, png)
+    early = EarlyPage(_frozen(nodata), legend, layout, fig, furniture, png)
+    if tmp is None or rest is None:
+        return early
+    from compose.page.encode import fast_png
+    from compose.timeline import span
+
+    add_map_image(fig, layout, sink.base)        # (its pixels are not read: see below)
+    end = _AtTheEnd(rest)
+    fig.add_artist(end)
+    t = time.perf_counter()
+    try:
+        with rc_context(rc), fast_png(), span("page pdf drawn early"), \
+                map_rows_stored_top_first(fig, sink.base, sink.rgba):
+            fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
+                        metadata=_pdf_metadata(style, layout))
+    finally:
+        end.remove()
+    early.pdf_seconds = time.perf_counter() - t
+    return early
+
+
+def _pdf_metadata(style, layout) -> dict:
+    return {"Title": layout.title or style.name, "Subject": style.page.caution,
+            "Creator": "compose"}
 
 
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
@@ -263,7 +313,8 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
         with span("page figure"):
             if early is not None:
                 fig = early.fig
-                add_map_image(fig, layout, sink.base)
+                if early.pdf_seconds is None:           # (else it has the finished map)
+                    add_map_image(fig, layout, sink.base)
             else:
                 fig = (ahead if ahead is not None and finishes(ahead, layout)
                        else start_page_figure(style, layout, layers=vectors))
@@ -279,7 +330,8 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
 
         # the page PNG's process also writes the SVG, beside the PDF, when its furniture was
         # drawn during the walk (else it draws it from its copy of the figure, which is changed)
-        svg_beside = fork and early is not None and early.furniture is not None
+        svg_beside = (fork and early is not None and early.furniture is not None
+                      and early.pdf_seconds is None)
 
         def png() -> dict[str, float]:
             if with_png is not None:
@@ -308,13 +360,17 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
             beside = Forked(png)
         try:
             t = time.perf_counter()
-            with span("page pdf"), map_rows_stored_top_first(fig, sink.base):
-                fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
-                            metadata={"Title": meta_title, "Subject": style.page.caution,
-                                      "Creator": "compose"})
-            seconds["pdf"] = built + time.perf_counter() - t
-            if not svg_beside:
-                seconds["svg"] = svg()
+            if early is not None and early.pdf_seconds is not None:
+                seconds["pdf"] = early.pdf_seconds          # written during the walk
+                if not svg_beside:
+                    seconds["svg"] = svg()
+            else:
+                with span("page pdf"), map_rows_stored_top_first(fig, sink.base):
+                    fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
+                                metadata=_pdf_metadata(style, layout))
+                seconds["pdf"] = built + time.perf_counter() - t
+                if not svg_beside:
+                    seconds["svg"] = svg()
             with span("page waits for png"):
                 seconds.update(beside.result() if beside is not None else png())
         finally:
@@ -324,12 +380,14 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
 
 
 @contextlib.contextmanager
-def map_rows_stored_top_first(fig, base: np.ndarray):
+def map_rows_stored_top_first(fig, base: np.ndarray, rgba: np.ndarray | None = None):
     """Within the block the map frame's image is ``base`` upside down drawn from the bottom
     (``origin="lower"``): the same picture on the page, but matplotlib's PDF writer, which stores
     an image's rows in the reverse of the array's order, then stores ``base``'s rows top first,
     as the SVG writer does and as the page process encoded them during the walk
-    (:func:`compose.page.process._walked`), so one deflate stream serves both files."""
+    (:func:`compose.page.process._walked`), so one deflate stream serves both files. ``rgba``:
+    ``base`` with its alpha, the array matplotlib draws the image from in the block (not a
+    copy of ``base`` made now: the PDF writer reads it when the file is finished)."""
     from compose.page.draw import map_image
 
     image = map_image(fig)
@@ -338,6 +396,8 @@ def map_rows_stored_top_first(fig, base: np.ndarray):
         return
     image.set_data(base[::-1])
     image.origin = "lower"
+    if rgba is not None:
+        image._imcache = rgba[::-1]     # what it would compute from base[::-1], uncopied
     try:
         yield
     finally:

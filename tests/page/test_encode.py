@@ -63,10 +63,14 @@ def test_the_page_process_encodes_its_raster_while_the_walk_runs():
     messages.seek(0)
     known = dict(encode._known)
     guesses = []
+
+    def early(guess, rest):
+        guesses.append(guess)
+        return "early", rest()          # the rest of the walk waited for from inside
+
     try:
         # the early work runs once, after the first band, with the no-data layers so far
-        assert process._walked(messages, sink, lambda g: guesses.append(g) or "early") == (
-            {"sea"}, "early")
+        assert process._walked(messages, sink, early) == ({"sea"}, ("early", {"sea"}))
         assert guesses == [{"land"}]
         new = {k: v for k, v in encode._known.items() if k not in known}
         assert list(new.values()) == [encode.png_bytes(base)]
