@@ -32,18 +32,19 @@ import shapely
 from affine import Affine
 from matplotlib._enums import CapStyle, JoinStyle
 from matplotlib.backends._backend_agg import RendererAgg
+from matplotlib.cbook import is_math_text
 from matplotlib.font_manager import FontProperties, findfont, fontManager, get_font
 from matplotlib.ft2font import LoadFlags
 from matplotlib.path import Path
-from matplotlib.textpath import TextPath
-from matplotlib.transforms import IdentityTransform
+from matplotlib.textpath import TextPath, text_to_path
+from matplotlib.transforms import Affine2D, IdentityTransform
 
 from compose.errors import StyleError
 from compose.layers.paths import area_path, dashed, display, flatten, line_path, to_pixels
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
            "draw_lines", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
-           "fill_text_path", "eight_bit_coverage"]
+           "fill_text_path", "eight_bit_coverage", "text_outline"]
 
 #: Line end styles (our names -> Agg's).
 CAPS = {"round": "round", "butt": "butt", "square": "projecting"}
@@ -275,9 +276,8 @@ def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
     except ValueError:
         raise StyleError(f"font {font!r} (weight {weight!r}) not found") from None
     w, h, d = _text_extent(text, prop)
-    tp = TextPath((0.0, 0.0), text, size=float(size_px), prop=prop)
-    v = np.array(tp.vertices, np.float64)   # a copy: TextPath keeps its own
-    codes = tp.codes if tp.codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
+    v, codes = text_outline(text, float(size_px), prop)
+    codes = codes if codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
     if len(v):
         v[:, 0] -= min(0.0, float(v[:, 0].min()))   # ink left of the origin moves into the box
         w = max(w, float(v[:, 0].max()))
@@ -287,6 +287,22 @@ def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
         asc = h - d
     v.setflags(write=False)
     return TextShape(text, float(w), float(asc), float(d), v, np.asarray(codes))
+
+
+def text_outline(text: str, size_px: float, prop: FontProperties) -> tuple[np.ndarray, np.ndarray]:
+    """(vertices (N, 2) float64, a copy; codes) of ``text``'s glyph outlines at ``size_px``, as
+    matplotlib's ``TextPath((0, 0), text, size=size_px, prop=prop)`` gives them: plain text laid
+    out by its ``text_to_path`` and scaled from its font scale. Without the ``TextPath`` class,
+    whose constructor imports matplotlib's artists (text, patches, lines) only to decide whether
+    the string is mathtext; a string that is goes through ``TextPath`` itself."""
+    if matplotlib.rcParams["text.parse_math"] and is_math_text(text):
+        tp = TextPath((0.0, 0.0), text, size=size_px, prop=prop)
+        return np.array(tp.vertices, np.float64), tp.codes
+    if matplotlib.rcParams["text.parse_math"]:
+        text = text.replace(r"\$", "$")
+    vertices, codes = text_to_path.get_text_path(prop, text, ismath=False)
+    scale = Affine2D().scale(size_px / text_to_path.FONT_SCALE).translate(0.0, 0.0)
+    return np.array(scale.transform(vertices), np.float64), codes
 
 
 #: matplotlib's ``text.hinting`` setting -> FreeType load flags (as its Agg backend maps them).

@@ -154,12 +154,11 @@ def glyph_run(text: str, size_px: float, font: str = "DejaVu Sans",
 def glyph_outline(char: str, size_px: float, font: str = "DejaVu Sans",
                   weight: str = "normal") -> tuple[np.ndarray, np.ndarray]:
     """(vertices (N, 2) y up, codes (N,)) of one glyph's outline, origin at its pen position."""
-    from matplotlib.textpath import TextPath
+    from compose.layers.draw import text_outline  # TextPath's outline, fewer imports
 
     prop, _ = _prop(size_px, font, weight)
-    tp = TextPath((0.0, 0.0), char, size=float(size_px), prop=prop)
-    v = np.array(tp.vertices, np.float64)
-    codes = tp.codes if tp.codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
+    v, codes = text_outline(char, float(size_px), prop)
+    codes = codes if codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
     v.setflags(write=False)
     return v, np.asarray(codes)
 

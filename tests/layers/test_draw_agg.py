@@ -89,3 +89,25 @@ def test_drawing_loads_no_matplotlib_backend():
     assert "matplotlib.backends._backend_agg" in loaded
     assert not loaded & {"matplotlib.backend_bases", "matplotlib.backends.backend_agg",
                          "matplotlib.figure", "matplotlib.widgets"}
+
+
+@pytest.mark.parametrize("text,size", [("Harbour", 7.0), ("Río Verde", 6.5), ("Wg", 13.0),
+                                       ("1,024 m", 9.25), ("cost \\$5", 8.0), ("$x^2$", 9.0)])
+def test_text_outlines_are_textpaths(text, size):
+    """Glyph outlines as matplotlib's TextPath gives them (mathtext through TextPath itself)."""
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextPath
+
+    prop = FontProperties(family="DejaVu Sans", size=size)
+    vertices, codes = draw.text_outline(text, size, prop)
+    tp = TextPath((0.0, 0.0), text, size=size, prop=prop)
+    assert np.array_equal(vertices, np.asarray(tp.vertices, np.float64))
+    assert np.array_equal(codes, tp.codes)
+
+
+def test_plain_labels_load_no_matplotlib_artists():
+    code = ("import sys, compose.layers.draw as d\nd.measure_text('Río Verde', 7.0)\n"
+            "print(' '.join(sorted(sys.modules)))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert not set(out.stdout.split()) & {"matplotlib.text", "matplotlib.patches",
+                                          "matplotlib.lines"}
