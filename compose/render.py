@@ -313,22 +313,10 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 with span("check"):
                     report = check_style(style, stats, prepared.ramps)
                 seconds["check"] = time.perf_counter() - t
-            if page_job is not None:
-                with span("wait page layout"):
-                    layout = page_job.layout()      # the page is written here when not forked
-            if report is not None:
-                t = time.perf_counter()
-                if layout is not None and page_sink is not None:
-                    from compose.page.contrast import with_furniture
-
-                    report = with_furniture(report, style, layout, page_sink.image)
-                if check:
-                    with open(tmp["check"], "w", encoding="utf-8") as f:
-                        json.dump(report.to_json(), f, indent=2)
-                seconds["check"] += time.perf_counter() - t
             pictures = None
             if page_map is not None and layer_previews is not None:      # html
-                # the page's pictures before the legend: the page process draws that one
+                # the page's pictures before the page's layout and legend: the page process
+                # may still be drawing the page
                 from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
                 from compose.proof import proof_images
 
@@ -342,6 +330,19 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                         small=small, layers=tuple((n, a, s) for n, (a, s) in zip(
                             names, layer_previews.images())))
                 seconds["html"] = time.perf_counter() - t_html
+            if page_job is not None:
+                with span("wait page layout"):
+                    layout = page_job.layout()      # the page is written here when not forked
+            if report is not None:
+                t = time.perf_counter()
+                if layout is not None and page_sink is not None:
+                    from compose.page.contrast import with_furniture
+
+                    report = with_furniture(report, style, layout, page_sink.image)
+                if check:
+                    with open(tmp["check"], "w", encoding="utf-8") as f:
+                        json.dump(report.to_json(), f, indent=2)
+                seconds["check"] += time.perf_counter() - t
             if (legend or html) and forked and page_job is not None:
                 t = time.perf_counter()
                 with span("wait legend"):
