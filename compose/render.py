@@ -155,8 +155,9 @@ def _page_job(style, prepared, tmp: dict[str, Path], legend: bool):
     legend_png = (lambda run_, nodata: _legend_png(style, run_, nodata)) if legend else None
     return PageJob(style, prepared, sink, tmp, write_page, warm=warm_writers,
                    ahead=lambda run_: page_ahead(style, run_, sink), legend=legend_png,
-                   early=lambda run_, started, nodata, rest: page_early(
-                       style, run_, sink, nodata, started, legend_png, tmp=tmp, rest=rest))
+                   early=lambda run_, started, nodata, rest, on_guess: page_early(
+                       style, run_, sink, nodata, started, legend_png, tmp=tmp, rest=rest,
+                       on_guess=on_guess))
 
 
 def _noting_nodata(mapper, sink):

@@ -185,8 +185,13 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                     started = None
             early = None
             if job._early is not None:
+                def on_guess(guess, layout, png):
+                    # read by the parent after the walk, if its no-data layers are the guess
+                    _send(out, ("guess", (None if guess is None else frozenset(guess), layout,
+                                          png)))
+
                 def early(guess, rest):
-                    return job._early(prepared, started, guess, rest)
+                    return job._early(prepared, started, guess, rest, on_guess)
             try:
                 with span("page waits for walk"):
                     nodata, drawn = _walked(inp, job._sink, early)
@@ -308,9 +313,11 @@ class PageJob:
     ``legend(prepared, nodata_seen)``: the legend PNG's bytes, drawn beside the PDF by the
     process drawing the page PNG (``write``'s ``with_png``) and sent here (:meth:`legend`), so
     this process needs no drawing library of its own. ``early(prepared, started, nodata,
-    rest)``: what of the page can be made during the walk from a guess of the no-data layers
-    (:func:`compose.page.write.page_early`; ``started``: what ``ahead`` returned; ``rest()``
-    waits for the end of the walk), handed to ``write`` as ``early=``.
+    rest, on_guess)``: what of the page can be made during the walk from a guess of the no-data
+    layers (:func:`compose.page.write.page_early`; ``started``: what ``ahead`` returned;
+    ``rest()`` waits for the end of the walk; ``on_guess(nodata, layout, legend_png)`` sends the
+    guess's layout and legend here, used by :meth:`layout` and :meth:`legend` when the walk
+    ends with that set), handed to ``write`` as ``early=``.
 
     Create it before other threads start: with ``prepared`` None as soon as the style is
     loaded, then :meth:`attach` the prepared render (the child loads its modules beside this
@@ -362,6 +369,12 @@ class PageJob:
     def _fork(self) -> None:
         down_r, down_w = os.pipe()
         up_r, up_w = os.pipe()
+        try:        # room for the messages sent during the walk, which are read after it
+            import fcntl
+
+            fcntl.fcntl(up_w, getattr(fcntl, "F_SETPIPE_SZ", 1031), 1 << 20)
+        except (OSError, ImportError):                    # pragma: no cover - a smaller pipe
+            pass
         parent = os.getpid()
         pid = os.fork()
         if pid == 0:                                          # the child
@@ -427,16 +440,33 @@ class PageJob:
         return message
 
     def _get(self, kind: str) -> tuple:
-        """The child's message of ``kind`` (messages come in order: layout, legend, done)."""
+        """The child's message of ``kind`` (messages come in order: guess, layout, legend,
+        done)."""
         while kind not in self._got:
             message = self._receive()
             self._got[message[0]] = tuple(message[1:])
         return self._got[kind]
 
+    def _guessed(self) -> tuple | None:
+        """The layout and legend PNG the child made during the walk from its guess of the
+        no-data layers, when the guess is the set the walk ended with (read from the messages
+        until the guess or the final layout comes); else None."""
+        while "guess" not in self._got and "layout" not in self._got:
+            message = self._receive()
+            self._got[message[0]] = tuple(message[1:])
+        if "guess" not in self._got:
+            return None
+        guess, layout, png = self._got["guess"][0]
+        final = None if self._nodata is None else frozenset(self._nodata)
+        return (layout, png) if guess == final else None
+
     def legend(self) -> bytes | None:
         """The legend PNG drawn by the child (None when not forked or not asked for)."""
         if not self.forked or self._legend is None:
             return None
+        guessed = self._guessed()
+        if guessed is not None and guessed[1] is not None:
+            return guessed[1]
         return self._get("legend")[0]
 
     def layout(self):
@@ -444,7 +474,8 @@ class PageJob:
         now)."""
         if self._layout is None:
             if self.forked:
-                self._layout = self._get("layout")[0]
+                guessed = self._guessed()
+                self._layout = guessed[0] if guessed is not None else self._get("layout")[0]
             else:
                 self._seconds, self._layout = self._write(self._style, self._prepared, self._sink,
                                                           self._tmp, self._nodata)

@@ -224,14 +224,16 @@ class _AtTheEnd:
 
 def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
                legend_png: Callable | None = None, tmp: dict[str, Path] | None = None,
-               rest: Callable[[], Any] | None = None) -> EarlyPage:
+               rest: Callable[[], Any] | None = None,
+               on_guess: Callable | None = None) -> EarlyPage:
     """The :class:`EarlyPage` of ``nodata`` (``ahead``: the figure :func:`page_ahead` started,
     finished here when its frame is the layout's; ``legend_png(run_, nodata)``: the legend PNG's
     bytes). With ``tmp`` and ``rest`` (a call that returns once the walk is over, in a forked
     page process), the PDF is written too: drawn while the walk runs, its map image drawn from
     ``sink.rgba`` without a copy (matplotlib's own RGBA of an image, set in place) and the file
     finished, with the map's pixels, once ``rest()`` returned (an artist drawn last waits for
-    it); the figure's image is then the finished map."""
+    it); the figure's image is then the finished map. ``on_guess(nodata, layout, legend_png)``
+    is called as soon as those are made, before the PDF."""
     from matplotlib import rc_context
 
     from compose.page.draw import add_map_image, finish_page_figure, finishes, start_page_figure
@@ -246,6 +248,8 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
         furniture = furniture_rgba(style, layout, legend, run_.canvas.dpi)
     png = legend_png(run_, nodata) if legend_png is not None else None
     early = EarlyPage(_frozen(nodata), legend, layout, fig, furniture, png)
+    if on_guess is not None:
+        on_guess(nodata, layout, png)
     if tmp is None or rest is None:
         return early
     from compose.page.encode import fast_png
