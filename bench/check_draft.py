@@ -31,9 +31,12 @@ ROOT = Path(__file__).resolve().parents[1]
 STYLES = ROOT / "styles"
 EXAMPLES = ("coast", "sea-warmth", "change", "cover", "base", "poor")
 COMPOSE = [sys.executable, "-c", "import sys; from compose.cli.main import main; sys.exit(main())"]
-# what a check of the demo imports besides compose itself (labels need matplotlib's text paths)
-LIBRARIES = ("numpy", "rasterio", "pyogrio", "shapely", "pyproj", "colorspacious",
-             "matplotlib.backends.backend_agg", "matplotlib.textpath")
+# what a cold check of the demo imports besides compose itself: its GeoPackage is read with
+# sqlite3 (no pyogrio), Agg draws through matplotlib's C++ renderer (no backend_bases) and
+# labels need matplotlib's font machinery and text paths (compose.layers.draw)
+LIBRARIES = ("numpy", "rasterio", "shapely", "pyproj", "colorspacious", "sqlite3",
+             "matplotlib.path", "matplotlib.backends._backend_agg", "matplotlib.font_manager",
+             "matplotlib.textpath")
 
 
 def run_command(argv: list[str], cwd: Path = ROOT) -> tuple[float, float, int]:
