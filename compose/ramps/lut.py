@@ -33,7 +33,10 @@ from compose.errors import ComposeError
 #: through this module, so the dependency points one way).
 Ramp = Any
 
-__all__ = ["Lut", "lut_for", "stepped_lut", "quantile_breaks", "drawn_samples"]
+__all__ = ["Lut", "lut_for", "stepped_lut", "quantile_breaks", "drawn_samples", "INDEX_CHUNK"]
+
+#: Values indexed at a time by :meth:`Lut.index` (float64 temporaries of 128 kB stay in cache).
+INDEX_CHUNK = 1 << 14
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -78,9 +81,10 @@ class Lut:
 
     def index(self, values) -> np.ndarray:
         """uint16 indices (same shape as ``values``): see the module docstring for the layout."""
-        v = np.asarray(values, dtype=float)
+        v = np.asarray(values)
         n = self.n
         if self.kind == "qualitative":
+            v = v.astype(float, copy=False)
             order = np.argsort(self.values, kind="stable")
             sorted_v = self.values[order]
             pos = np.clip(np.searchsorted(sorted_v, v), 0, n - 1)
@@ -88,8 +92,18 @@ class Lut:
             return idx.astype(np.uint16)
         if v.ndim == 0:
             return self.index(v.reshape(1)).reshape(())
+        # in runs of INDEX_CHUNK values, each converted to float64 as it is needed: the steps'
+        # temporaries stay in cache (a window's index is the hot path of raster layers)
+        flat = v.reshape(-1)
+        out = np.empty(flat.shape, np.uint16)
+        for s in range(0, flat.size, INDEX_CHUNK):
+            out[s:s + INDEX_CHUNK] = self._index_run(flat[s:s + INDEX_CHUNK].astype(float))
+        return out.reshape(v.shape)
+
+    def _index_run(self, v: np.ndarray) -> np.ndarray:
+        """:meth:`index` of float64 values (n,) of a continuous or stepped table."""
+        n = self.n
         lo, hi = float(self.edges[0]), float(self.edges[-1])
-        # in place, one pass per step (a window's index is the hot path of raster layers)
         if self.width is not None:
             t = np.subtract(v, self.origin)
             t /= self.width
