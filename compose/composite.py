@@ -18,7 +18,8 @@ import numpy as np
 
 from compose.errors import StyleError
 
-__all__ = ["BLEND_MODES", "STRIP_PIXELS", "blend_mode", "composite_over", "composite_layers",
+__all__ = ["BLEND_MODES", "STRIP_PIXELS", "blend_mode", "composite_over", "composite_palette",
+           "composite_layers",
            "normal", "multiply", "screen", "overlay", "hard_light", "soft_light"]
 
 #: Pixels per work unit in :func:`composite_over`: one channel of a strip of whole rows, sized
@@ -133,7 +134,8 @@ def _rows(a: np.ndarray, r0: int, r1: int) -> np.ndarray:
 
 
 def composite_over(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
-                   mode: str = "normal", out: np.ndarray | None = None) -> np.ndarray:
+                   mode: str = "normal", out: np.ndarray | None = None, *,
+                   opaque: bool = False) -> np.ndarray:
     """Blend ``source`` onto an opaque ``backdrop`` and composite source-over.
 
     backdrop: (3, H, W) straight sRGB in [0, 1], opaque.
@@ -141,6 +143,8 @@ def composite_over(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
     alpha: (H, W) source alpha in [0, 1] (coverage x opacity), or (1, 1) / scalar.
     mode: a name in :data:`BLEND_MODES`.
     out: (3, H, W) float32 to write into (may be ``backdrop`` itself, for in-place work).
+    opaque: the caller knows ``alpha`` is 1 everywhere (its multiplication is then skipped: the
+    same numbers, x * 1 = x exactly).
 
     Returns ``(1 - alpha) Cb + alpha B(Cb, Cs)`` as float32 (3, H, W) (W3C Compositing 1,
     "Blending" general formula with an opaque backdrop, then "source-over"). Works in strips of
@@ -162,20 +166,66 @@ def composite_over(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
     elif out.shape != (3, h, w):
         raise ValueError(f"out must be (3, {h}, {w}), got {out.shape}")
     rows = max(1, STRIP_PIXELS // max(w, 1))
+    mix_buf = np.empty((min(rows, h), w), np.float32)
     for r0 in range(0, h, rows):
         r1 = min(r0 + rows, h)
         a = _rows(alpha, r0, r1)
         for c in range(3):
-            cb = backdrop[c, r0:r1]
             cs = _rows(source[c if source.shape[0] == 3 else 0], r0, r1)
-            if func is normal:
-                mix = np.subtract(cs, cb)
-            else:
-                mix = func(cb, cs)
-                mix -= cb
-            mix *= a
-            np.add(cb, mix, out=out[c, r0:r1])
+            _blend_into(func, backdrop[c, r0:r1], cs, a, out[c, r0:r1], mix_buf[:r1 - r0], opaque)
     return out
+
+
+def _blend_into(func: BlendFunc, cb: np.ndarray, cs: np.ndarray, a: np.ndarray, dst: np.ndarray,
+                mix: np.ndarray, opaque: bool) -> None:
+    """One channel of one strip: ``dst = cb + a (B(cb, cs) - cb)`` (``mix``: scratch of the
+    strip's shape; ``dst`` may be ``cb``)."""
+    if func is normal:
+        np.subtract(cs, cb, out=mix)
+    elif func is multiply:
+        np.multiply(cb, cs, out=mix)
+        mix -= cb
+    else:
+        mix = func(cb, cs)
+        mix -= cb
+    if not opaque:
+        mix *= a
+    np.add(cb, mix, out=dst)
+
+
+def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray,
+                      alpha: np.ndarray, mode: str = "normal", *, opaque: bool = False) -> np.ndarray:
+    """:func:`composite_over` of a lookup table's colours, in place on ``backdrop``: the source
+    is ``table[:, index]``, looked up one strip at a time (no (3, H, W) source is made); the same
+    numbers as ``composite_over(backdrop, table[:, index], alpha, mode, out=backdrop)``.
+
+    backdrop: (3, H, W) float32, opaque; table: (3, n) float32 colour planes in [0, 1]
+    (:attr:`compose.layers.base.Palette.planes`); index: (H, W) integer indices, each below n;
+    alpha, mode, opaque: as for :func:`composite_over`.
+    """
+    func = blend_mode(mode, "composite")
+    if backdrop.dtype != np.float32 or backdrop.ndim != 3 or backdrop.shape[0] != 3:
+        raise ValueError(f"backdrop must be float32 (3, H, W), got {backdrop.dtype} {backdrop.shape}")
+    _, h, w = backdrop.shape
+    if index.shape != (h, w):
+        raise ValueError(f"index must be ({h}, {w}), got {index.shape}")
+    alpha = np.asarray(alpha, dtype=np.float32)
+    alpha = alpha.reshape(1, 1) if alpha.ndim == 0 else alpha
+    np.broadcast_shapes((h, w), alpha.shape)                              # raises when wrong
+    rows = max(1, STRIP_PIXELS // max(w, 1))
+    n = min(rows, h)
+    mix_buf = np.empty((n, w), np.float32)
+    src_buf = np.empty((n, w), np.float32)
+    for r0 in range(0, h, rows):
+        r1 = min(r0 + rows, h)
+        a = _rows(alpha, r0, r1)
+        idx = index[r0:r1]
+        for c in range(3):
+            # "wrap" equals "clip" for indices in range; unbuffered, no copy of the indices
+            cs = np.take(table[c], idx, out=src_buf[:r1 - r0], mode="wrap")
+            cb = backdrop[c, r0:r1]
+            _blend_into(func, cb, cs, a, cb, mix_buf[:r1 - r0], opaque)
+    return backdrop
 
 
 def composite_layers(background_rgb, paints: Iterable[tuple[np.ndarray, np.ndarray, str]],

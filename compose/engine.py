@@ -24,7 +24,7 @@ import numpy as np
 
 from compose.canvas import Canvas, Window
 from compose.check.stats import Statistics
-from compose.composite import composite_over
+from compose.composite import composite_over, composite_palette
 from compose.layers.base import Context
 from compose.measure import WindowMeasure, new_statistics
 from compose.previews import LayerPreviews, PreviewTiles, block_sums, paint_sums
@@ -260,12 +260,18 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                         has &= paint.index[inner] != paint.palette.nodata
                     covered = has if covered is None else (covered | has)
                 alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)
+                # alpha 1 everywhere (rasters without no-data): nothing to weigh by it
+                opaque = bool(alpha.min() >= 1.0) if alpha.size else False
                 if meter is not None:
-                    meter.paint(li, layer, pi, paint, alpha, out)
-                planes = paint.planes()
-                composite_over(out, planes, alpha, spec.blend, out=out)
-                if k:
-                    for_previews.append((paint, alpha, planes))
+                    meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque)
+                if paint.palette is not None and not k:     # colours looked up strip by strip
+                    composite_palette(out, paint.palette.planes, paint.index, alpha, spec.blend,
+                                      opaque=opaque)
+                else:
+                    planes = paint.planes()
+                    composite_over(out, planes, alpha, spec.blend, out=out, opaque=opaque)
+                    if k:
+                        for_previews.append((paint, alpha, planes))
             if meter is not None:
                 meter.end_layer(li, layer)
         if k:

@@ -96,9 +96,10 @@ def _take8(planes: np.ndarray, idx: np.ndarray) -> np.ndarray:
 def _luminance8(planes8: np.ndarray) -> np.ndarray:
     """WCAG relative luminance (float32 (n,)) of 8-bit sRGB planes (3, n), by lookup tables: the
     same sums as :func:`compose.check.stats.luminance_of_rgb8` of the pixels."""
-    y = np.take(CHANNEL_XYZ[1, 0], planes8[0])
-    y += np.take(CHANNEL_XYZ[1, 1], planes8[1])
-    y += np.take(CHANNEL_XYZ[1, 2], planes8[2])
+    # "wrap" equals "clip" for 8-bit indices into 256 entries; no copy of the indices first
+    y = np.take(CHANNEL_XYZ[1, 0], planes8[0], mode="wrap")
+    y += np.take(CHANNEL_XYZ[1, 1], planes8[1], mode="wrap")
+    y += np.take(CHANNEL_XYZ[1, 2], planes8[2], mode="wrap")
     return y
 
 
@@ -137,20 +138,21 @@ def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> n
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
-                  ground8: np.ndarray | None, overlay: bool, inner) -> bool:
+                  ground8: np.ndarray | None, overlay: bool, inner, padded_opaque: bool = False) -> bool:
     """Add one paint of one window (core region) to the layer's statistics; True when the paint
     is a raster's and opaque over the whole core (alpha 1 everywhere).
 
     alpha: the paint's coverage x opacity over the padded window; beneath: the padded composite
     just before this paint; ground8: a copy of the padded composite under the whole layer (None
     for the layer's first paint, where it equals ``beneath``); both measured as 8-bit colours.
+    padded_opaque: the caller found alpha 1 over the whole padded window (then over the core).
     """
     alpha_core = alpha[inner]
     opaque = False
     if paint.palette is not None:
         idx = paint.index[inner].ravel()
         n = paint.palette.rgb8.shape[0]
-        opaque = bool(alpha_core.min() >= 1.0)
+        opaque = padded_opaque or bool(alpha_core.min() >= 1.0)
         if opaque:                      # an unweighted count is ~3x faster
             w = np.bincount(idx, minlength=n)
         else:
@@ -199,7 +201,8 @@ class WindowMeasure:
         self.stats = template.empty_like()
         self.window = window
         self.inner = window.inner
-        self._themes: list[tuple[int, np.ndarray, np.ndarray]] = []
+        # themes drawn: (layer index, palette index (core), alpha (core), alpha 1 over the core)
+        self._themes: list[tuple[int, np.ndarray, np.ndarray, bool]] = []
         self._hidden: np.ndarray | None = None   # core: how much overlays cover each pixel
         self._union: np.ndarray | None = None
         self._opaque = False                     # the union is one opaque raster paint
@@ -215,9 +218,11 @@ class WindowMeasure:
         self._ground = out.copy() if (overlay and n_paints > 1) else None
         self._union = None
 
-    def paint(self, li: int, layer, pi: int, paint, alpha: np.ndarray, out: np.ndarray) -> None:
+    def paint(self, li: int, layer, pi: int, paint, alpha: np.ndarray, out: np.ndarray,
+              opaque: bool = False) -> None:
         """Paint ``pi`` of layer ``li`` with coverage x opacity ``alpha`` is about to be
-        composited over ``out`` (the padded composite so far)."""
+        composited over ``out`` (the padded composite so far); ``opaque``: the caller found
+        ``alpha`` 1 everywhere."""
         spec = layer.spec
         overlay = spec.role == "overlay"
         a_core = alpha[self.inner]
@@ -226,10 +231,10 @@ class WindowMeasure:
         # the layer's first paint is its union so far (read only: never written to)
         self._union = a_core if union is None else np.maximum(union, a_core)
         opaque = _measure_part(self.stats.layers[li], paint, alpha, out if overlay else None,
-                               self._ground if pi else None, overlay, self.inner)
+                               self._ground if pi else None, overlay, self.inner, opaque)
         self._opaque = first and opaque
         if spec.role == "theme" and paint.palette is not None:
-            self._themes.append((li, paint.index[self.inner], a_core))
+            self._themes.append((li, paint.index[self.inner], a_core, opaque))
         if self._reliefs and spec.role != "overlay" and spec.blend == "normal":
             for r in self._reliefs:     # a relief under this paint shows through 1 - alpha
                 if r[0] != li:
@@ -268,41 +273,60 @@ class WindowMeasure:
                 sampled = np.ascontiguousarray(planes8[(slice(None),) + sub]).reshape(3, -1)
             else:
                 sampled = np.ascontiguousarray(np.moveaxis(rgb8[sub], -1, 0)).reshape(3, -1)
-            lightness = lightness_bins_of_luminance(_luminance8(sampled)).astype(np.intp)
+            lightness = lightness_bins_of_luminance(_luminance8(sampled))
             shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
+            # each theme's alpha on the sample grid (None: 1 everywhere)
+            sampled_alpha = [None if opaque else a_core[sub].ravel()
+                             for _, _, a_core, opaque in themes]
             # a theme drawn later (more than half there) hides an earlier one: the earlier
             # theme's blended colours are counted only where it is not covered that way
-            covered_above: list[np.ndarray | None] = [None] * len(themes)
-            running: np.ndarray | None = None
+            covered_above: list[np.ndarray | bool | None] = [None] * len(themes)
+            running: np.ndarray | bool | None = None
             for k in range(len(themes) - 1, -1, -1):
                 covered_above[k] = running
-                a = themes[k][2][sub].ravel()
-                running = a if running is None else np.maximum(running, a)
-            linear = [np.take(_LINEAR8, sampled[c]) for c in range(3)]
-            for (li, index, a_core), above in zip(themes, covered_above):
+                a = sampled_alpha[k]
+                if a is None or running is True:        # an opaque theme covers everything
+                    running = True
+                else:
+                    running = a if running is None else np.maximum(running, a)
+            linear = None
+            for (li, index, _, _), a_s, above in zip(themes, sampled_alpha, covered_above):
                 s = self.stats.layers[li]
                 assert s.value_lightness is not None          # filtered above
-                a_s = a_core[sub].ravel()
-                idx = index[sub].ravel().astype(np.intp)
                 n = s.value_lightness.shape[0]
                 # pixels left out are counted in one bin past the table's end, dropped after
                 # (every other bin gets the same pixels in the same order as by selecting them)
-                keep = a_s > 0.5
+                keep = None if a_s is None else a_s > 0.5
                 if shown is not None:   # grey order is judged where the theme shows, not under lines
-                    keep &= shown
-                cell = idx * N_LIGHTNESS
+                    keep = shown if keep is None else (keep & shown)
+                cell = np.multiply(index[sub].ravel(), N_LIGHTNESS, dtype=np.intp)
                 cell += lightness
-                np.putmask(cell, ~keep, n * N_LIGHTNESS)
-                s.value_lightness += np.bincount(cell, minlength=n * N_LIGHTNESS + 1)[
+                if keep is not None:
+                    np.putmask(cell, ~keep, n * N_LIGHTNESS)
+                counts = np.bincount(cell, minlength=n * N_LIGHTNESS + 1)[
                     :n * N_LIGHTNESS].reshape(n, N_LIGHTNESS)
+                s.value_lightness += counts
                 if s.value_color is not None and s.value_count is not None:   # blended colours
-                    drawn = a_s > 0   # wherever it is drawn, however faint
-                    if shown is not None:
-                        drawn &= shown
-                    if above is not None:
-                        drawn &= above <= 0.5
-                    np.putmask(idx, ~drawn, n)
-                    s.value_count += np.bincount(idx, minlength=n + 1)[:n]
+                    if above is True:       # hidden by an opaque theme drawn later everywhere
+                        continue
+                    if a_s is None and above is None:
+                        # drawn where shown, as kept above: the same pixels, counted there
+                        s.value_count += counts.sum(axis=1)
+                        idx = cell
+                        idx //= N_LIGHTNESS         # the entry (n where left out)
+                    else:
+                        drawn = None if a_s is None else a_s > 0   # wherever drawn, however faint
+                        if shown is not None:
+                            drawn = shown if drawn is None else (drawn & shown)
+                        if isinstance(above, np.ndarray):
+                            low = above <= 0.5
+                            drawn = low if drawn is None else (drawn & low)
+                        idx = index[sub].ravel().astype(np.intp)
+                        if drawn is not None:
+                            np.putmask(idx, ~drawn, n)
+                        s.value_count += np.bincount(idx, minlength=n + 1)[:n]
+                    if linear is None:
+                        linear = [np.take(_LINEAR8, sampled[c], mode="wrap") for c in range(3)]
                     for c in range(3):   # linear-light channel values of the composite
                         s.value_color[:, c] += np.bincount(idx, weights=linear[c],
                                                            minlength=n + 1)[:n]

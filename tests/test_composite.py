@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 import compose.composite as comp
-from compose.composite import BLEND_MODES, blend_mode, composite_layers, composite_over
+from compose.composite import BLEND_MODES, blend_mode, composite_layers, composite_over, composite_palette
 from compose.errors import StyleError
 
 # (mode, cb, cs, expected B(cb, cs)) -- hand-computed from the W3C formulas
@@ -107,6 +107,28 @@ def test_constant_source_in_place_and_strips(monkeypatch):
         assert res is inplace
         np.testing.assert_allclose(inplace, got, atol=1e-7)
 
+
+
+@pytest.mark.parametrize("strip", [40, 10**6])
+def test_palette_source_equals_gathered_planes(monkeypatch, strip):
+    # composite_palette looks the table up strip by strip; it must give the very numbers of
+    # composite_over on the gathered (3, H, W) source (which the W3C cases above pin down),
+    # for every mode, with alpha in (0, 1) and with alpha 1 everywhere (opaque: the
+    # multiplication by alpha skipped, x * 1 = x exactly in IEEE 754)
+    monkeypatch.setattr(comp, "STRIP_PIXELS", strip)
+    rng = np.random.default_rng(5)
+    table = rng.random((3, 300), dtype=np.float32)
+    index = rng.integers(0, 300, (37, 11)).astype(np.uint16)
+    cb = rng.random((3, 37, 11), dtype=np.float32)
+    for mode in BLEND_MODES:
+        for alpha, opaque in ((rng.random((37, 11), dtype=np.float32), False),
+                              (np.ones((37, 11), np.float32), True)):
+            ref = composite_over(cb, table[:, index], alpha, mode)
+            got = composite_palette(cb.copy(), table, index, alpha, mode, opaque=opaque)
+            assert np.array_equal(got, ref), mode
+            if opaque:
+                assert np.array_equal(composite_over(cb, table[:, index], alpha, mode, opaque=True),
+                                      ref), mode
 
 def test_composite_layers_folds_in_order():
     a = np.full((2, 3), 0.5, np.float32)
