@@ -110,10 +110,11 @@ def test_what_is_left_to_pyogrio(tmp_path):
     table = gpkg.open_table(nulls, "features")
     assert table is not None and table.read() is None
     assert gpkg.open_table(dated, "nothing") is None
-    shp = write_vector(tmp_path / "s.shp", [({"type": "Point", "coordinates": (1.0, 2.0)},
-                                              {"k": 1})], crs=UTM, properties={"k": "int"},
-                       driver="ESRI Shapefile", geometry="Point")
-    assert gpkg.open_table(shp, "s") is None
+    # a GeoJSON file (RFC 7946) is no SQLite database: pyogrio reads it
+    other = write_vector(tmp_path / "g.geojson", [({"type": "Point", "coordinates": (1.0, 2.0)},
+                                                   {"k": 1})], crs=UTM, properties={"k": "int"},
+                         driver="GeoJSON", geometry="Point")
+    assert gpkg.open_table(other, "g") is None
     local = write_vector(tmp_path / "l.gpkg", [({"type": "Point", "coordinates": (1.0, 2.0)},
                                                  {"k": 1})],
                          crs='LOCAL_CS["nowhere",UNIT["metre",1]]', properties={"k": "int"})
