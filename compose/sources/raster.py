@@ -74,7 +74,13 @@ REDUCED_CACHE = 1 << 22
 
 
 def _first_line(exc: BaseException) -> str:
+    """The first line of ``exc``'s message; for rasterio's "See previous exception for details",
+    the first line of the GDAL error it was raised from (which names the block and the decoder
+    that failed)."""
     text = str(exc).strip()
+    cause = exc.__cause__ or exc.__context__
+    if cause is not None and "previous exception" in text:
+        return _first_line(cause)
     return text.splitlines()[0] if text else type(exc).__name__
 
 

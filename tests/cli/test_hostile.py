@@ -276,6 +276,24 @@ def test_truncated_geotiff_is_reported_as_damaged(style, tmp_path):
     assert "damaged" in line or "truncated" in line or "corrupt" in line or "cannot read" in line
 
 
+def test_damaged_pixel_data_names_what_failed(style, tmp_path):
+    """A GeoTIFF whose header reads but whose compressed pixels are damaged: the one line says
+    what GDAL found (the block, the decoder), not "see previous exception"."""
+    import rasterio
+    land = style.parent / "land.tif"
+    with rasterio.open(land) as src:           # deflated: damage shows as a decoding error
+        profile, pixels = src.profile, src.read()
+    profile.update(compress="deflate", tiled=True, blockxsize=16, blockysize=16)
+    with rasterio.open(land, "w", **profile) as dst:
+        dst.write(pixels)
+    data = bytearray(land.read_bytes())
+    for i in range(len(data) // 2, len(data) * 3 // 5, 3):
+        data[i] = (data[i] * 31 + 7) % 256
+    land.write_bytes(bytes(data))
+    line = check_refused(style, tmp_path, 'layer "land-growth"', "land.tif")
+    assert "previous exception" not in line
+
+
 def test_garbage_tif_is_reported_as_unreadable(style, tmp_path):
     (style.parent / "land.tif").write_bytes(b"II*\x00" + b"\xff" * 200)
     line = check_refused(style, tmp_path, 'layer "land-growth"', "land.tif")
