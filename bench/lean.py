@@ -105,12 +105,18 @@ def drafts(runs: int, styles) -> None:
         print(f"draft speed-up, median over styles x{statistics.median(ratios):.1f}  (target >= 10 x)")
 
 
-def memory(size: int, data: Path) -> None:
+def _bench_data(size: int, data: Path) -> tuple[Path, dict]:
+    """The synthetic benchmark's folder at ``size`` (relief + field + 10,000 lines; made on first
+    use) and its styles."""
     folder = data / f"{size}-10000"
     if not (folder / "lines.gpkg").exists():
         print(f"making synthetic data in {folder} ...", flush=True)
         synthetic.make_data(folder, size, 10000)
-    styles = synthetic.write_styles(folder, size)
+    return folder, synthetic.write_styles(folder, size)
+
+
+def memory(size: int, data: Path) -> None:
+    folder, styles = _bench_data(size, data)
     out = folder / "out-lean"
     shutil.rmtree(out, ignore_errors=True)
     argv = COMPOSE + ["render", str(styles["aligned"]), "--out", str(out), "--overwrite"]
@@ -311,11 +317,7 @@ print(json.dumps(out))
 
 def cpu(size: int, data: Path, runs: int) -> None:
     """CPU seconds per process of the bare 2-thread render at ``size``, medians of ``runs``."""
-    folder = data / f"{size}-10000"
-    if not (folder / "lines.gpkg").exists():
-        print(f"making synthetic data in {folder} ...", flush=True)
-        synthetic.make_data(folder, size, 10000)
-    styles = synthetic.write_styles(folder, size)
+    folder, styles = _bench_data(size, data)
     out = folder / "out-lean-cpu"
     results = []
     for _ in range(runs):
