@@ -3,9 +3,10 @@
 Where: ``$COMPOSE_CACHE`` (a directory; ``off``, ``0``, ``no``, ``false`` or empty: no cache),
 else ``$XDG_CACHE_HOME/compose``, else ``~/.cache/compose``. The check keeps its prepared inputs
 in its ``check/`` folder (:mod:`compose.check_cache`). ``crs.json`` lists the CRS strings that
-pyproj accepted as a canvas CRS, for the pyproj installed then (its module file's size and
-modification time): a style naming one of them is loaded without importing pyproj (0.05-0.1 s
-of a warm check's start-up). Deleting the folder is always safe.
+pyproj accepted as a canvas CRS, per installed pyproj (its module file's size and modification
+time; up to :data:`_INSTALLS` of them, so several environments sharing one cache folder do not
+take turns overwriting each other's list): a style naming one of them is loaded without
+importing pyproj (0.05-0.15 s of a check's start-up). Deleting the folder is always safe.
 """
 from __future__ import annotations
 
@@ -20,6 +21,8 @@ __all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs"]
 #: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
 CACHE_ENV = "COMPOSE_CACHE"
 _CRS_FILE = "crs.json"
+#: Installed pyprojs (module stamps) whose accepted CRS strings ``crs.json`` keeps, newest last.
+_INSTALLS = 8
 
 
 def cache_dir(option: str | Path | None = None) -> Path | None:
@@ -56,16 +59,22 @@ def _read(root: Path) -> dict:
     return data if isinstance(data, dict) else {}
 
 
+def _lists(data: dict) -> dict[str, list[str]]:
+    """``crs.json``'s accepted strings per pyproj stamp (anything malformed left out)."""
+    per = data.get("installs")
+    if not isinstance(per, dict):
+        return {}
+    return {k: [v for v in vs if isinstance(v, str)] for k, vs in per.items()
+            if isinstance(k, str) and isinstance(vs, list)}
+
+
 def crs_known(value: str) -> bool:
     """Whether pyproj (the one installed now) accepted ``value`` as a canvas CRS before."""
     root = cache_dir()
     if root is None:
         return False
-    data = _read(root)
     stamp = _pyproj_stamp()
-    valid = data.get("valid")
-    return stamp is not None and data.get("pyproj") == stamp and isinstance(valid, list) \
-        and value in valid
+    return stamp is not None and value in _lists(_read(root)).get(stamp, [])
 
 
 def remember_crs(value: str) -> None:
@@ -75,18 +84,18 @@ def remember_crs(value: str) -> None:
     stamp = _pyproj_stamp()
     if root is None or stamp is None:
         return
-    data = _read(root)
-    valid = data.get("valid") if data.get("pyproj") == stamp else []
-    valid = [v for v in (valid if isinstance(valid, list) else []) if isinstance(v, str)]
+    per = _lists(_read(root))
+    valid = per.pop(stamp, [])
     if value in valid:
         return
-    valid = (valid + [value])[-256:]
+    per[stamp] = (valid + [value])[-256:]          # this install's list goes last (newest)
+    per = dict(list(per.items())[-_INSTALLS:])
     with contextlib.suppress(OSError):
         root.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(prefix=".crs-", suffix=".part", dir=root)
         try:
             with os.fdopen(fd, "w", encoding="utf-8") as f:
-                json.dump({"pyproj": stamp, "valid": valid}, f)
+                json.dump({"installs": per}, f)
             os.replace(tmp, root / _CRS_FILE)
         except BaseException:
             with contextlib.suppress(OSError):

@@ -31,10 +31,16 @@ def test_a_crs_accepted_once_is_remembered_for_this_pyproj_only(tmp_path, monkey
     assert _crs("EPSG:32631", at) == "EPSG:32631"
     assert user_cache.crs_known("EPSG:32631")
     memo = json.loads((tmp_path / "crs.json").read_text())
-    assert memo["valid"] == ["EPSG:32631"]
+    assert list(memo["installs"].values()) == [["EPSG:32631"]]
     # another pyproj: the memo no longer counts
-    (tmp_path / "crs.json").write_text(json.dumps({"pyproj": "0:0", "valid": ["EPSG:32631"]}))
+    (tmp_path / "crs.json").write_text(json.dumps({"installs": {"0:0": ["EPSG:32631"]}}))
     assert not user_cache.crs_known("EPSG:32631")
+    # ... and its list stays beside this one's (environments sharing one cache folder)
+    assert _crs("EPSG:32631", at) == "EPSG:32631"
+    memo = json.loads((tmp_path / "crs.json").read_text())
+    assert memo["installs"]["0:0"] == ["EPSG:32631"] and len(memo["installs"]) == 2
+    assert user_cache.crs_known("EPSG:32631")
+    (tmp_path / "crs.json").write_text(json.dumps({"installs": {"0:0": ["EPSG:32631"]}}))
     # refused strings are never remembered; a damaged memo is ignored
     with pytest.raises(StyleError, match="not a CRS pyproj understands"):
         _crs("EPSG:99999999", at)
