@@ -11,10 +11,11 @@ half) and of the draft check (issue 10), each printed beside its target:
   judge; imports excluded), medians of ``--runs`` alternating runs, their same-run ratio and
   whether the verdicts agree rule by rule, for every example style;
 * the default ``compose render`` with all its outputs of bench/render.py's synthetic style
-  (relief + field + 10,000 lines) at 8192 and 16384: peak memory as the largest process's
-  maximum resident set size (``/usr/bin/time -v``, i.e. ru_maxrss of the largest process) and as
-  the largest sum over the process and its worker processes (proportional set sizes, sampled
-  every 50 ms by bench/render.py's sampler).
+  (relief + field + 10,000 lines) at 8192 and 16384: peak memory as each process's own
+  high-water mark (VmHWM from /proc, sampled every 20 ms; the largest is the headline) and as
+  the largest sum over the command and every process it starts (proportional set sizes, shared
+  pages counted once); ru_maxrss (``/usr/bin/time -v``) beside it for comparison only, since it
+  counts what a process inherits across fork and exec (see MEM_SAMPLER).
 
 * ``--cpu``: the bare render (PNG + GeoTIFF + check, 2 window threads, as bench/render.py's
   "bare render, 2 workers") at 8192, CPU seconds per process (the command; the line-drawing
@@ -115,21 +116,124 @@ def _bench_data(size: int, data: Path) -> tuple[Path, dict]:
     return folder, synthetic.write_styles(folder, size)
 
 
+# Peak memory of a command and every process it starts, each process's own. Sampled from /proc
+# every 20 ms: VmHWM (the kernel's high-water mark of the process's resident pages, so a sample
+# misses only growth in a process's last 20 ms), the RSS when the process was first seen (for a
+# forked process: the pages it shares with the process it was forked from), and the largest
+# PSS (shared pages divided among the processes sharing them) and private (USS) sizes; the
+# largest sum of PSS over the tree at one sample. Not ru_maxrss (``/usr/bin/time -v``), which is
+# printed beside for comparison: Linux carries the spawning process's high-water mark across
+# exec into the new process's ru_maxrss (a helper spawned by a large process "peaks" at that
+# size before it has done anything), and a forked process's counts the pages it shares with its
+# parent, so ru_maxrss can name a process's inheritance as its peak.
+MEM_SAMPLER = r"""
+import json, os, resource, subprocess, sys, threading, time
+def status(pid):
+    d = {}
+    try:
+        with open(f"/proc/{pid}/status") as f:
+            for line in f:
+                k, _, v = line.partition(":")
+                if k in ("VmHWM", "VmRSS"):
+                    d[k] = int(v.split()[0]) * 1024
+        with open(f"/proc/{pid}/smaps_rollup") as f:
+            for line in f:
+                k = line.split(":")[0]
+                if k in ("Pss", "Private_Clean", "Private_Dirty"):
+                    d[k] = int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        return None
+    return d if "VmHWM" in d else None
+def cmdline(pid):
+    try:
+        with open(f"/proc/{pid}/cmdline", "rb") as f:
+            return f.read().replace(b"\0", b" ").decode(errors="replace")
+    except OSError:
+        return ""
+t0 = time.perf_counter()
+p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+procs, total = {}, [0]
+def watch():
+    while p.poll() is None:
+        kids = {}
+        for d in os.listdir("/proc"):
+            if d.isdigit():
+                try:
+                    with open(f"/proc/{d}/stat") as f:
+                        ppid = int(f.read().rsplit(")", 1)[1].split()[1])
+                    kids.setdefault(ppid, []).append(int(d))
+                except (OSError, IndexError, ValueError):
+                    pass
+        todo, pss = [(p.pid, 0)], 0
+        while todo:
+            q, ppid = todo.pop()
+            s = status(q)
+            if s is not None:
+                o = procs.get(q)
+                if o is None:
+                    o = procs[q] = {"ppid": ppid, "cmd": cmdline(q), "first": s["VmRSS"],
+                                    "hwm": 0, "pss": 0, "uss": 0}
+                o["hwm"] = max(o["hwm"], s["VmHWM"])
+                o["pss"] = max(o["pss"], s.get("Pss", 0))
+                o["uss"] = max(o["uss"], s.get("Private_Clean", 0) + s.get("Private_Dirty", 0))
+                pss += s.get("Pss", 0)
+            todo += [(k, q) for k in kids.get(q, [])]
+        total[0] = max(total[0], pss)
+        time.sleep(0.02)
+th = threading.Thread(target=watch, daemon=True)
+th.start()
+err = p.communicate()[1]
+seconds = time.perf_counter() - t0
+th.join(1)
+root = p.pid
+servers = {q for q, o in procs.items() if "forkserver" in o["cmd"] and o["ppid"] == root}
+def role(q, o):
+    if q == root:
+        return "command"
+    if q in servers:
+        return "fork server"
+    if o["ppid"] in servers:
+        return "drawing helper"
+    if "resource_tracker" in o["cmd"]:
+        return "resource tracker"
+    if o["cmd"] == procs[root]["cmd"]:
+        return "forked from " + ("the command" if o["ppid"] == root else "a forked process")
+    return "other"
+print(json.dumps({"seconds": seconds, "code": p.returncode, "err": err.decode()[-1500:],
+                  "pss_sum": total[0],
+                  "ru_maxrss": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024,
+                  "procs": [dict(o, role=role(q, o), cmd=o["cmd"][:60]) for q, o in procs.items()]}))
+"""
+
+
 def memory(size: int, data: Path) -> None:
     folder, styles = _bench_data(size, data)
     out = folder / "out-lean"
     shutil.rmtree(out, ignore_errors=True)
     argv = COMPOSE + ["render", str(styles["aligned"]), "--out", str(out), "--overwrite"]
-    # the sampler (PSS summed over the process tree) wrapped in /usr/bin/time -v (largest RSS)
-    res = subprocess.run(["/usr/bin/time", "-v", sys.executable, "-c", synthetic._SAMPLER, *argv],
-                         cwd=folder, capture_output=True, text=True)
+    res = subprocess.run([sys.executable, "-c", MEM_SAMPLER, *argv], cwd=folder,
+                         capture_output=True, text=True)
     shutil.rmtree(out, ignore_errors=True)
-    maxrss = next((int(line.split(":")[1]) * 1024 for line in res.stderr.splitlines()
-                   if "Maximum resident set size" in line), 0)
-    data_ = json.loads(res.stdout.strip().splitlines()[-1])
-    print(f"{size} x {size}, default render, all outputs: {data_['seconds']:6.1f} s, largest process "
-          f"{maxrss / 1e9:.2f} GB (time -v), sum over processes {data_['peak'] / 1e9:.2f} GB (PSS)  "
-          f"(target <= 0.50 GB, flat in size)", flush=True)
+    try:
+        d = json.loads(res.stdout.strip().splitlines()[-1])
+    except (ValueError, IndexError):
+        print(f"memory at {size}: failed\n{res.stderr[-1500:]}")
+        return
+    if d["code"] not in (0, 1):
+        print(f"memory at {size}: the render exited {d['code']}\n{d['err']}")
+        return
+    gb = 1e9
+    procs = sorted(d["procs"], key=lambda o: -o["hwm"])
+    top = procs[0] if procs else {"hwm": 0, "role": "?"}
+    print(f"{size} x {size}, default render, all outputs: {d['seconds']:6.1f} s, largest process "
+          f"{top['hwm'] / gb:.2f} GB ({top['role']}, its own VmHWM), all processes at once "
+          f"{d['pss_sum'] / gb:.2f} GB (PSS sum)  (target <= 0.50 GB, flat in size)", flush=True)
+    for o in procs:
+        print(f"    {o['role']:<26} peak {o['hwm'] / gb:5.3f} GB (of it {o['first'] / gb:5.3f} resident "
+              f"when first seen), PSS {o['pss'] / gb:5.3f}, private {o['uss'] / gb:5.3f} GB")
+    print(f"    ru_maxrss, largest in the tree (what time -v reports; counts inherited pages): "
+          f"{d['ru_maxrss'] / gb:.2f} GB", flush=True)
+
 
 # Per-stage memory of the same command, in one process: resident set size (RSS, /proc/self/statm)
 # sampled every 5 ms by a thread, at the start and end of each stage and its peak between; the
