@@ -15,6 +15,7 @@ from compose.layers.early import EarlyRead
 from compose.layers.hillshade import multidirectional, stretch_factor
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
+from compose.sources.crs import never_mercator
 from compose.sources.raster import cell_size_metres
 
 __all__ = ["ReliefLayer", "relief_palette", "ground_cell_size", "ground_scale", "LEVELS",
@@ -30,7 +31,10 @@ def ground_scale(crs):
     along y) there, on the CRS's own ellipsoid -- the parallel's radius N cos(phi) and the
     meridian's M times the degrees a projected unit spans (central differences through pyproj);
     None for any other CRS, whose nominal cell size is used as it is (UTM and national grids stay
-    within a fraction of a percent of the ground)."""
+    within a fraction of a percent of the ground). A CRS rasterio's CRS shows to be no such
+    projection (geographic, transverse, or no Mercator at all) is answered without pyproj."""
+    if never_mercator(crs):
+        return None
     from pyproj import CRS, Transformer
 
     crs = CRS.from_user_input(crs)

@@ -3,8 +3,9 @@
 Reprojecting a raster needs, for every canvas pixel centre, its position in the source's CRS.
 Transforming every pixel exactly is slow (PROJ per pixel), and GDAL's own approximation depends
 on the chunk being warped, so windows would not join. Instead the canvas (grown by a pad for the
-windows' margins) gets nodes every ``step`` pixels, transformed exactly once with pyproj; any
-pixel's position is the bilinear interpolation of its cell's four nodes. Nodes sit on the
+windows' margins) gets nodes every ``step`` pixels, transformed exactly once with pyproj (not
+at all in the source's own CRS); any pixel's position is the bilinear interpolation of its
+cell's four nodes. Nodes sit on the
 canvas's own grid, so a pixel gets the same position in every window: windows join exactly.
 
 Error bound: after building, the exact transform of every cell's centre is compared with the
@@ -21,8 +22,9 @@ import threading
 from dataclasses import dataclass
 
 import numpy as np
-import pyproj
 from affine import Affine
+
+from compose.sources.crs import same_crs
 
 __all__ = ["ERROR_PX", "ACCURACY_PX", "TransformGrid", "transform_grid"]
 
@@ -82,6 +84,11 @@ class TransformGrid:
         return out[0], out[1]
 
 
+def _text(crs) -> str:
+    """A CRS as text for the grid cache's key (a string as written, else its WKT)."""
+    return crs if isinstance(crs, str) else crs.to_wkt()
+
+
 def _build(transform: Affine, width: int, height: int, pad: int, crs_from, crs_to,
            step: int) -> TransformGrid:
     c0, r0 = -pad, -pad
@@ -89,11 +96,18 @@ def _build(transform: Affine, width: int, height: int, pad: int, crs_from, crs_t
     ny = math.ceil((height + 2 * pad) / step) + 1
     cols = c0 + np.arange(nx) * float(step)
     rows = r0 + np.arange(ny) * float(step)
-    tr = pyproj.Transformer.from_crs(crs_from, crs_to, always_xy=True)
+    if same_crs(crs_from, crs_to):
+        tr = None           # the canvas's own CRS: its coordinates as they are, no PROJ call
+    else:
+        import pyproj
+
+        tr = pyproj.Transformer.from_crs(pyproj.CRS.from_user_input(crs_from).to_wkt(),
+                                         pyproj.CRS.from_user_input(crs_to).to_wkt(),
+                                         always_xy=True)
 
     def exact(cc, rr):
         ex, ey = transform @ (cc, rr)
-        x, y = tr.transform(ex, ey, errcheck=False)
+        x, y = (ex, ey) if tr is None else tr.transform(ex, ey, errcheck=False)
         x, y = np.asarray(x, float), np.asarray(y, float)
         bad = ~(np.isfinite(x) & np.isfinite(y))
         x[bad] = np.nan
@@ -117,9 +131,8 @@ def transform_grid(transform: Affine, width: int, height: int, pad: int, canvas_
     pixels on every side) onto ``source_crs``, fine enough for sources of ``source_pixel`` CRS
     units (error <= ERROR_PX of them). None when no step down to 2 px meets the bound or nodes
     fail to transform (the caller then warps exactly)."""
-    key_base = (tuple(transform), int(width), int(height), int(pad),
-                pyproj.CRS.from_user_input(canvas_crs).to_wkt(),
-                pyproj.CRS.from_user_input(source_crs).to_wkt())
+    key_base = (tuple(transform), int(width), int(height), int(pad), _text(canvas_crs),
+                _text(source_crs))
     limit = ERROR_PX * float(source_pixel)
     aim = ACCURACY_PX * float(source_pixel)
     step = _FIRST_STEP
@@ -128,7 +141,7 @@ def transform_grid(transform: Affine, width: int, height: int, pad: int, canvas_
         with _lock:
             grid = _cache.get(key)
         if grid is None:
-            grid = _build(transform, width, height, pad, key_base[4], key_base[5], step)
+            grid = _build(transform, width, height, pad, canvas_crs, source_crs, step)
             with _lock:
                 if len(_cache) > 32:
                     _cache.clear()

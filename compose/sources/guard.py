@@ -264,13 +264,19 @@ def refuse_driver(dataset, local_only: bool, kind: str, where: str, key: str = "
 
 
 def check_crs(wkt: str, where: str, path) -> None:
-    """Raise :class:`SourceError` unless ``wkt`` is a geographic or projected CRS (an
-    engineering or local CRS has no relation to the earth, so nothing can be reprojected)."""
+    """Raise :class:`SourceError` unless ``wkt`` (WKT, or any text pyproj's ``from_user_input``
+    takes) is a geographic or projected CRS (an engineering or local CRS has no relation to the
+    earth, so nothing can be reprojected). What GDAL reads as geographic or projected passes
+    without importing pyproj (:mod:`compose.sources.crs`); pyproj judges the rest."""
+    from compose.sources.crs import plainly_usable
+
+    if plainly_usable(wkt):
+        return
     import pyproj
     from pyproj.exceptions import CRSError
 
     try:
-        crs = pyproj.CRS.from_wkt(wkt)
+        crs = pyproj.CRS.from_user_input(wkt)
     except CRSError:
         raise SourceError(f"{where}: {path} has a CRS pyproj does not understand") from None
     if crs.is_engineering or not (crs.is_geographic or crs.is_projected):

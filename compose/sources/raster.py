@@ -38,9 +38,9 @@ import os
 import threading
 import warnings
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pyproj
 import rasterio
 from affine import Affine
 from rasterio.crs import CRS
@@ -54,10 +54,14 @@ from rasterio.windows import Window as RioWindow
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan
+from compose.sources.crs import metre_projected
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
 from compose.sources.resample import cut_block, sample
 from compose.style.kinds import RESAMPLING  # the names a style may use, defined once
+
+if TYPE_CHECKING:
+    import pyproj
 
 __all__ = ["RESAMPLING", "SHRINK_LIMIT", "RasterSource", "cell_size_metres"]
 
@@ -92,6 +96,8 @@ def _wrapped_crs(crs: CRS, bounds: tuple[float, float, float, float]) -> CRS | N
     west, _, east, _ = bounds
     if east <= 180.0 + 1e-9:
         return None
+    import pyproj
+
     with warnings.catch_warnings():     # a geographic CRS loses nothing the warper uses
         warnings.simplefilter("ignore", UserWarning)
         text = pyproj.CRS.from_user_input(crs.to_wkt()).to_proj4()
@@ -593,6 +599,7 @@ class RasterSource:
 
 
 def _horizontal(crs) -> pyproj.CRS:
+    """pyproj's CRS of ``crs`` (a compound one's first part), made once per CRS text."""
     key = crs.to_wkt() if isinstance(crs, CRS) else crs
     try:
         return _horizontal_of(key)
@@ -604,6 +611,8 @@ def _horizontal(crs) -> pyproj.CRS:
 def _horizontal_of(crs) -> pyproj.CRS:
     # cached: building a pyproj CRS for every window of a render costs more than its hillshade's
     # cell size (pyproj CRS objects are safe to share between threads, pyproj >= 3.1)
+    import pyproj
+
     crs = pyproj.CRS.from_user_input(crs)
     if crs.is_compound:
         crs = crs.sub_crs_list[0]
@@ -624,7 +633,10 @@ def cell_size_metres(crs, transform: Affine, height: int) -> tuple[float | np.nd
     array of shape (height, 1), one value per row at the row's centre latitude;
     dy is a scalar at the grid's centre latitude (M changes by under 0.2 % over 10 degrees).
     A sphere of mean radius 6371008.8 m would be up to 0.56 % off in dy at the equator.
+    A projected CRS in metres is answered by rasterio's CRS, without importing pyproj.
     """
+    if metre_projected(crs):
+        return abs(transform.a), abs(transform.e)
     crs = _horizontal(crs)
     axis = crs.axis_info[0]
     factor = float(axis.unit_conversion_factor)        # metres per unit, or radians per unit

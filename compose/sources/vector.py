@@ -17,15 +17,19 @@ import itertools
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pyproj
 import shapely
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
+from compose.sources.crs import plainly_usable, same_crs
 from compose.sources.gpkg import open_table
 from compose.sources.guard import check_crs, check_source, refuse_driver
+
+if TYPE_CHECKING:
+    import pyproj
 
 __all__ = ["VectorSource", "Features"]
 
@@ -47,6 +51,8 @@ def _wkt(crs: str | None) -> str:
     """The WKT of a CRS as pyogrio reports it ("EPSG:32630" or WKT), "" for none."""
     if not crs:
         return ""
+    import pyproj
+
     try:
         return pyproj.CRS.from_user_input(crs).to_wkt()
     except pyproj.exceptions.CRSError:
@@ -178,12 +184,14 @@ class VectorSource:
             self.table, info = self._pyogrio_info(table, here)
         refuse_driver(_Opened(info.get("driver"), str(self.path)), local_only, "vector", here,
                       "source")
-        wkt = _wkt(info.get("crs"))
+        text = info.get("crs") or ""
         attributes = [str(f) for f in info.get("fields", [])]
-        if not wkt:
+        if not text:
             raise SourceError(f"{here}: {self.path} has no CRS")
-        check_crs(wkt, here, self.path)
-        self.crs = pyproj.CRS.from_wkt(wkt)
+        if not plainly_usable(text):        # else pyproj judges it (and names what it is)
+            check_crs(_wkt(text), here, self.path)
+        self._crs_text = text
+        self._crs: pyproj.CRS | None = None
         self.attributes = attributes
         self.where: dict[str, tuple] = {}
         for key, value in dict(where or {}).items():
@@ -193,7 +201,16 @@ class VectorSource:
             values = value if isinstance(value, (list, tuple, set, frozenset)) else [value]
             self.where[key] = tuple(values)
         self._raw: tuple[np.ndarray, list[dict]] | None = None
-        self._cache: dict[pyproj.CRS, Features] = {}
+        self._cache: dict[str, Features] = {}
+
+    @property
+    def crs(self) -> pyproj.CRS:
+        """The source's CRS (pyproj's, made on first use)."""
+        if self._crs is None:
+            import pyproj
+
+            self._crs = pyproj.CRS.from_wkt(_wkt(self._crs_text))
+        return self._crs
 
     def _pyogrio_info(self, table: str | None, here: str) -> tuple[str, dict]:
         """(table, pyogrio's metadata of it): the file's first table when ``table`` is None."""
@@ -258,11 +275,16 @@ class VectorSource:
         easting / longitude). A feature with a coordinate the target CRS cannot represent
         (outside its domain) is dropped.
         """
-        target = pyproj.CRS.from_user_input(crs.to_wkt() if hasattr(crs, "to_wkt") else crs)
-        if target in self._cache:
-            return self._cache[target]
+        text = crs.to_wkt() if hasattr(crs, "to_wkt") else crs
+        key = text if isinstance(text, str) else repr(text)
+        if key in self._cache:
+            return self._cache[key]
         geoms, props = self._read()
-        if len(geoms) and target != self.crs:
+        # the same CRS as GDAL sees it: nothing to move, and no pyproj (compose.sources.crs)
+        if len(geoms) and not same_crs(text, self._crs_text):
+            import pyproj
+
+            target = pyproj.CRS.from_user_input(text)
             tr = pyproj.Transformer.from_crs(self.crs, target, always_xy=True)
 
             def move(xy: np.ndarray) -> np.ndarray:
@@ -277,7 +299,7 @@ class VectorSource:
                 keep[bad] = False
                 geoms, props = geoms[keep], [p for p, k in zip(props, keep) if k]
         features = Features.build(geoms, props)
-        self._cache[target] = features
+        self._cache[key] = features
         return features
 
     def release(self) -> None:

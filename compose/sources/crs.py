@@ -1,0 +1,96 @@
+"""Questions about a CRS answered by rasterio's CRS (GDAL's OGR over PROJ), so the common cases
+need no pyproj import (0.1-0.2 s of a check's start-up).
+
+Each function answers only what GDAL answers the same way as pyproj and says so by its result;
+the callers ask pyproj for everything else (its error messages, transformations, ellipsoids,
+units other than the metre). ``value``: anything rasterio's ``CRS.from_user_input`` takes
+("EPSG:32630", WKT, a PROJ string, a rasterio CRS); values are looked up once per text.
+"""
+from __future__ import annotations
+
+import functools
+import re
+from typing import Any
+
+__all__ = ["rio_crs", "plainly_usable", "same_crs", "metre_projected", "never_mercator"]
+
+
+def _key(value: Any) -> str | None:
+    if isinstance(value, str):
+        return value
+    to_wkt = getattr(value, "to_wkt", None)
+    return to_wkt() if callable(to_wkt) else None
+
+
+@functools.lru_cache(maxsize=64)
+def _parsed(key: str):
+    from rasterio.crs import CRS
+
+    try:
+        return CRS.from_user_input(key)
+    except Exception:           # CRSError and GDAL's own: the caller asks pyproj instead
+        return None
+
+
+def rio_crs(value: Any):
+    """rasterio's CRS of ``value``, or None when GDAL does not read it (or it is not hashable
+    text: a dict of parameters)."""
+    key = _key(value)
+    return None if key is None else _parsed(key)
+
+
+def plainly_usable(value: Any) -> bool:
+    """True when GDAL reads ``value`` as a geographic or projected CRS (one data can be
+    reprojected from and to). False means "ask pyproj", not "unusable"."""
+    crs = rio_crs(value)
+    return crs is not None and bool(crs.is_geographic or crs.is_projected)
+
+
+def same_crs(a: Any, b: Any) -> bool:
+    """True when GDAL finds ``a`` and ``b`` the same CRS (``OSRIsSame``); False when they
+    differ or either is unreadable."""
+    ca, cb = rio_crs(a), rio_crs(b)
+    return ca is not None and cb is not None and bool(ca == cb)
+
+
+def _wkt1(value: Any) -> str | None:
+    crs = rio_crs(value)
+    return None if crs is None else crs.to_wkt()
+
+
+def metre_projected(value: Any) -> bool:
+    """True for a projected, non-compound CRS whose linear unit is exactly the metre (then
+    a cell's size in metres is the transform's cell size, as pyproj's axis unit factor 1 gives);
+    False means "ask pyproj"."""
+    crs = rio_crs(value)
+    if crs is None or not crs.is_projected:
+        return False
+    wkt = crs.to_wkt()
+    if not wkt.startswith("PROJCS["):
+        return False
+    try:
+        return float(crs.linear_units_factor[1]) == 1.0
+    except Exception:
+        return False
+
+
+_PROJECTION = re.compile(r'PROJECTION\["([^"]*)"')
+
+
+def never_mercator(value: Any) -> bool:
+    """True when ``value`` is certainly not a Mercator-family projection with a latitude-only
+    scale: geographic, or projected (not compound) by a method whose name lacks "mercator" or
+    names a transverse one; False means "ask pyproj"."""
+    crs = rio_crs(value)
+    if crs is None:
+        return False
+    wkt = crs.to_wkt()
+    if crs.is_geographic and wkt.startswith("GEOGCS["):
+        return True
+    if not wkt.startswith("PROJCS["):
+        return False
+    names = _PROJECTION.findall(wkt)
+    if len(names) != 1:
+        return False
+    name = names[0].lower()
+    return "mercator" not in name or "transverse" in name
