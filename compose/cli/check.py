@@ -71,8 +71,9 @@ def explain(rule: str) -> str:
 @click.option("--strict", is_flag=True, help="Warnings fail too (exit 1).")
 @click.option("--draft", is_flag=True,
               help="Check a reduced canvas of the same extent (longer side at most 384 px, same "
-                   "dpi; rasters read decimated): much faster on large maps, the same verdict on "
-                   "the example styles.")
+                   "dpi; rasters read decimated, or large files without overviews from an even "
+                   "sample of their blocks): much faster on large maps, the same verdict on the "
+                   "example styles.")
 @click.option("--no-cache", is_flag=True,
               help="Neither read nor write the cache of prepared inputs (see --cache-dir).")
 @click.option("--cache-dir", type=click.Path(path_type=Path), metavar="DIR",

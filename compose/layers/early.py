@@ -10,6 +10,7 @@ draft canvas with :data:`PAD` pixels of margin; the window's padded region is cu
 """
 from __future__ import annotations
 
+import math
 import threading
 from collections.abc import Callable
 from concurrent.futures import Future
@@ -18,7 +19,7 @@ import numpy as np
 
 from compose.canvas import Canvas, Window
 
-__all__ = ["PAD", "EarlyRead"]
+__all__ = ["PAD", "EarlyRead", "SAMPLE_BLOCKS", "BlockSample", "sampled_cells"]
 
 #: Margin of the early read, in canvas pixels: at least any layer's margin (the engine's window
 #: margin is the largest of them); a window reaching further is read when painted instead.
@@ -55,3 +56,162 @@ class EarlyRead:
             self.future.exception()
         except BaseException:               # pragma: no cover - cancelled
             pass
+
+
+#: Blocks of a file a sampled draft read decodes (about; see :class:`BlockSample`).
+SAMPLE_BLOCKS = 32
+
+
+def _coprime_step(m: int) -> int:
+    """A step coprime with ``m`` near m / 2.618 (the golden ratio squared), so the blocks a
+    block row samples move along the row from one block row to the next and every block column
+    gets its share (1 when m <= 2)."""
+    for a in range(max(1, round(m / 2.618)), m + 1):
+        if math.gcd(a, m) == 1:
+            return a
+    return 1
+
+
+def sampled_cells(full_shape: tuple[int, int], factor: int, rows: np.ndarray, cols: np.ndarray,
+                  block: tuple[int, int], origin: tuple[int, int], every: int
+                  ) -> tuple[np.ndarray, np.ndarray]:
+    """Full-canvas cells (rows, cols: int64 arrays of shape (len(rows), len(cols)); -1 where a
+    draft pixel lies outside the canvas) that a block-sampled draft reads for its pixels.
+
+    full_shape: (height, width) of the full canvas; factor: full-canvas pixels per draft pixel;
+    rows, cols: draft pixel indices (may reach past the draft's edges); block: (bh, bw) cells of
+    the file's blocks and origin: the full-canvas cell where a block starts (both canvas cells,
+    the file aligned with the canvas); every: 1 in ``every`` blocks of each block row is read.
+
+    A draft pixel's cell is the centre of its factor x factor block (as a draft relief samples
+    shades), moved inside its file block by at most one cell so its 3 x 3 neighbourhood stays in
+    that block. Block (i, j) is read when (a i + j) mod every == 0 (``a`` coprime with
+    ``every``): evenly spread, every block row reads its share of blocks and the columns read
+    shift from row to row. A pixel over a block not read takes the cell at the same place in the
+    nearest block read in its own block row (same rows, so per-row ground distances stay
+    right), the nearer of two equally near ones to the west; none inside the canvas: its own.
+    """
+    h_full, w_full = full_shape
+    bh, bw = block
+    orow, ocol = origin
+
+    def centre(idx, size, n, o):
+        cell = idx.astype(np.int64) * factor + factor // 2
+        inside = (cell >= 0) & (cell < n)
+        off = (cell - o) % size
+        if size >= 3:           # keep the 3 x 3 neighbourhood inside the block
+            cell = cell + np.where(off == 0, 1, 0) - np.where(off == size - 1, 1, 0)
+        return np.where(inside, cell, -1)
+
+    r = centre(np.asarray(rows), bh, h_full, orow)
+    c = centre(np.asarray(cols), bw, w_full, ocol)
+    out_c = np.broadcast_to(c, (len(r), len(c))).copy()
+    if every <= 1:
+        out_r = np.broadcast_to(r[:, None], out_c.shape).copy()
+        out_r[:, c < 0] = -1
+        out_c[r < 0, :] = -1
+        return out_r, out_c
+    a = _coprime_step(every)
+    bj = (c - ocol) // bw                       # block column of each pixel (ignored where c < 0)
+    last = (w_full - 1 - ocol) // bw
+    first = (0 - ocol) // bw
+    for i, cell in enumerate(r):
+        if cell < 0:
+            out_c[i, :] = -1
+            continue
+        bi = (int(cell) - orow) // bh
+        phase = (-a * bi) % every               # block columns j read in this row: j = phase mod every
+        read = np.arange(first + ((phase - first) % every), last + 1, every)
+        if read.size == 0:
+            continue                            # no block of this row is read: the pixels' own
+        away = (c >= 0) & ((bj - phase) % every != 0)     # over a block not read
+        if not away.any():
+            continue
+        js = bj[away]
+        # candidates: nearest first, the western one of two equally near
+        order = np.argsort(np.abs(read[None, :] - js[:, None]) * 2 + (read[None, :] > js[:, None]),
+                           axis=1, kind="stable")
+        moved = c[away].copy()
+        done = np.zeros(js.size, bool)
+        for k in range(read.size):
+            target = read[order[:, k]]
+            cand = c[away] + (target - js) * bw
+            ok = ~done & (cand >= 0) & (cand < w_full)
+            moved[ok] = cand[ok]
+            done |= ok
+            if done.all():
+                break
+        out_c[i, away] = moved
+    out_r = np.broadcast_to(r[:, None], out_c.shape).copy()
+    out_r[out_c < 0] = -1
+    out_c[out_r < 0] = -1
+    return out_r, out_c
+
+
+class BlockSample:
+    """A draft's reads of an aligned, tiled file without overviews at the draft's scale, from an
+    evenly spread sample of whole blocks (see :func:`sampled_cells`): each block read is decoded
+    once; the rest of the file is never touched.
+
+    A decimated read (GDAL's block averages) of such a file decodes every block, about 1 CPU-s
+    per 8192 x 8192 float32 deflate file. Instead each draft pixel takes one full-resolution
+    cell (the field's value there, the relief's shade from that cell's own 3 x 3 neighbourhood,
+    as a full check paints it) from the blocks read. The draft's raster pixels are then the full
+    map's own values, but over the blocks not read they come from the nearest block read in the
+    same block row: the draft is a mosaic of the map's blocks, and every share or percentile a
+    rule judges is estimated from 1 in ``every`` blocks (about :data:`SAMPLE_BLOCKS`) of the
+    map instead of all of it -- its error is that of a sample of whole blocks spread evenly over
+    the canvas, largest for maps whose themes change from one region to another. Overlays are
+    drawn where they are, over the mosaic. Rasters aligned alike sample the same blocks, so a
+    theme and its relief stay paired cell by cell.
+    """
+
+    def __init__(self, source, canvas: Canvas, full: Canvas, factor: int, every: int) -> None:
+        self.source = source
+        self.canvas = canvas
+        self.full = full
+        self.factor = factor
+        self.every = every
+        self.offset = source.aligned_offset(full)
+        assert self.offset is not None
+        bh, bw = source.block_shape
+        orow, ocol = self.offset
+        # full-canvas cell where a file block starts
+        self.origin = ((-orow) % bh, (-ocol) % bw)
+        self.block = (bh, bw)
+
+    @classmethod
+    def of(cls, source, canvas: Canvas, full: Canvas | None, factor: int,
+           target: int = SAMPLE_BLOCKS) -> BlockSample | None:
+        """The sample for ``source`` read onto the draft ``canvas`` of ``full`` (``factor`` full
+        pixels a draft pixel), or None when a decimated read is cheap or right: the file is not
+        aligned with the full canvas, has an overview at the draft's scale, or has at most twice
+        ``target`` blocks over the canvas."""
+        if full is None or factor < 2 or source.aligned_offset(full) is None:
+            return None
+        if any(f <= factor for f in source.overview_factors):
+            return None
+        bh, bw = source.block_shape
+        blocks = -(-full.height // bh) * -(-full.width // bw)
+        if blocks <= 2 * target:
+            return None
+        across = -(-full.width // bw)
+        every = min(across, max(2, round(blocks / target)))
+        return cls(source, canvas, full, factor, every)
+
+    def cells(self, window: Window) -> tuple[np.ndarray, np.ndarray]:
+        """Full-canvas (rows, cols) of the padded ``window``'s draft pixels (-1: outside)."""
+        r0, c0, h, w = window.padded
+        return sampled_cells((self.full.height, self.full.width), self.factor,
+                             np.arange(r0, r0 + h), np.arange(c0, c0 + w), self.block,
+                             self.origin, self.every)
+
+    def read(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """float32 values of full-canvas cells (any shape; -1 or outside the file: NaN)."""
+        orow, ocol = self.offset
+        bad = (rows < 0) | (cols < 0)
+        return self.source.cells_at(np.where(bad, -1, rows + orow), np.where(bad, -1, cols + ocol))
+
+    def values(self, window: Window) -> np.ndarray:
+        """The padded ``window``'s draft values: float32 (padded height, padded width)."""
+        return self.read(*self.cells(window))

@@ -7,7 +7,7 @@ import numpy as np
 from compose.canvas import core_window
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint, palette_from_lut
-from compose.layers.early import EarlyRead
+from compose.layers.early import BlockSample, EarlyRead
 from compose.sources.raster import RasterSource
 
 __all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster"]
@@ -23,6 +23,18 @@ def open_raster(spec, canvas, *, decimate: bool = False) -> RasterSource:
         source.close()
         raise
     return source
+
+
+def _block_sample(source: RasterSource, context: Context) -> BlockSample | None:
+    """A draft's :class:`BlockSample` of ``source``, or None (see :meth:`BlockSample.of`)."""
+    full = context.style.canvas()
+    draft = context.canvas
+    factor = draft.pixel / full.pixel
+    k = int(round(factor))
+    if draft.crs != full.crs or k < 2 or abs(factor - k) > 1e-9 * k \
+            or (draft.transform.c, draft.transform.f) != (full.transform.c, full.transform.f):
+        return None
+    return BlockSample.of(source, draft, full, k)
 
 
 class FieldLayer:
@@ -51,10 +63,15 @@ class FieldLayer:
         #: needed by two rows of windows, and a planned walk (compose.sources.blocks) holds
         #: none of this raster's blocks beyond the windows in flight.
         self.core_reads = not context.draft and self.source.aligned_with(self.canvas)
+        # a draft of a large file without overviews reads a sample of its blocks instead of
+        # decimating all of them (compose.layers.early.BlockSample)
+        self.sample = _block_sample(self.source, context) if context.draft else None
         # a draft's decimated read runs beside the rest of the preparation (compose.layers.early)
         self.early = EarlyRead(self.canvas, self._read) if context.draft else None
 
     def _read(self, window) -> np.ndarray:
+        if self.sample is not None:
+            return self.sample.values(window)
         if self.core_reads and window.margin:
             core = self.source.read_window(self.canvas, core_window(window),
                                            self.options.resampling)

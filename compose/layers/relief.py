@@ -11,7 +11,7 @@ from affine import Affine
 
 from compose.canvas import Canvas, Window
 from compose.layers.base import Context, Paint, Palette
-from compose.layers.early import EarlyRead
+from compose.layers.early import BlockSample, EarlyRead
 from compose.layers.hillshade import multidirectional, stretch_factor
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
@@ -105,8 +105,11 @@ class ReliefLayer:
         # a draft shades the full canvas's own cells, sampled (see _draft_shade)
         self.full: Canvas | None = None
         self.factor = 1
+        self.sample: BlockSample | None = None
         if context.draft:
             self.full, self.factor = _full_of_draft(context)
+            # a large file without overviews: a sample of its blocks (compose.layers.early)
+            self.sample = BlockSample.of(self.source, self.canvas, self.full, self.factor)
         self.stretch = self._stretch() if o.stretch == "auto" else 1.0
         self.exaggeration = o.exaggeration * self.stretch
         # a draft's rows are decoded beside the rest of the preparation (compose.layers.early)
@@ -160,6 +163,8 @@ class ReliefLayer:
         """
         o, f, full = self.options, self.factor, self.full
         assert full is not None                   # a draft of a whole-number coarser canvas
+        if self.sample is not None:
+            return self._sampled_shade(window)
         r0, c0, h, w = window.padded
         step = np.array([-1, 0, 1])
         rows = ((r0 + np.arange(h)) * f + f // 2)[:, None] + step     # (h, 3) full-canvas rows
@@ -179,6 +184,33 @@ class ReliefLayer:
                 dem[3 * i:3 * i + 3] = self.source.read_window(full, win,
                                                                o.resampling)[:, cols - c_lo]
         all_rows = rows.ravel()
+        r_lo = int(all_rows.min())
+        dx, dy = ground_cell_size(full.crs, full.transform @ Affine.translation(0, r_lo),
+                                  int(all_rows.max()) - r_lo + 1, self.scale)
+        if np.ndim(dx):
+            dx = np.asarray(dx).reshape(-1, 1)[all_rows - r_lo]
+        shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
+                                 exaggeration=self.exaggeration, directions=o.directions)
+        return np.ascontiguousarray(shade[1::3, 1::3])
+
+    def _sampled_shade(self, window) -> np.ndarray:
+        """:meth:`_draft_shade` from a sample of the file's blocks: each draft pixel's cell is
+        the one :class:`compose.layers.early.BlockSample` gives it (a cell of a block read, in
+        the pixel's own row of blocks), shaded from its own 3 x 3 neighbourhood."""
+        o, full = self.options, self.full
+        assert full is not None and self.sample is not None
+        rows, cols = self.sample.cells(window)                  # (h, w) full-canvas cells
+        h, w = rows.shape
+        step = np.array([-1, 0, 1])
+        valid = ((rows >= 0) & (cols >= 0))[:, None, :, None]
+        r3 = np.where(valid, rows[:, None, :, None] + step[None, :, None, None], -1)
+        c3 = np.where(valid, cols[:, None, :, None] + step[None, None, None, :], -1)
+        shape = (h, 3, w, 3)
+        dem = self.sample.read(np.broadcast_to(r3, shape).reshape(3 * h, 3 * w),
+                               np.broadcast_to(c3, shape).reshape(3 * h, 3 * w))
+        row_of = rows.max(axis=1)                               # a row's cell row (-1: outside)
+        row_of = np.where(row_of >= 0, row_of, max(int(row_of.max()), 1))
+        all_rows = (row_of[:, None] + step).ravel()
         r_lo = int(all_rows.min())
         dx, dy = ground_cell_size(full.crs, full.transform @ Affine.translation(0, r_lo),
                                   int(all_rows.max()) - r_lo + 1, self.scale)

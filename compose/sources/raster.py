@@ -426,6 +426,48 @@ class RasterSource:
         whole-cell offset): its windows are then plain reads, each pixel from its own cell."""
         return self._aligned_offset(canvas.crs, canvas.transform) is not None
 
+    # --- a draft's block sample (compose.layers.early.BlockSample) ---------------------------
+    def aligned_offset(self, canvas: Canvas) -> tuple[int, int] | None:
+        """(row, col) of ``canvas``'s origin in source cells when its grid is the source's own,
+        else None."""
+        return self._aligned_offset(canvas.crs, canvas.transform)
+
+    @property
+    def block_shape(self) -> tuple[int, int]:
+        """(rows, cols) of the band's blocks (tiles, or strips a whole row wide)."""
+        bh, bw = self._ds.block_shapes[self.band - 1]
+        return int(bh), int(bw)
+
+    @property
+    def overview_factors(self) -> list[int]:
+        """Decimation factors of the band's overviews (internal or ``.ovr``), none: []."""
+        return list(self._ds.overviews(self.band))
+
+    def cells_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """float32 values of the source cells (rows, cols) (integer arrays of one shape; outside
+        the source: NaN), read a whole block at a time, each block needed decoded once."""
+        rows = np.asarray(rows, np.int64)
+        cols = np.asarray(cols, np.int64)
+        out = np.full(rows.shape, np.nan, np.float32)
+        H, W = self._ds.height, self._ds.width
+        ok = (rows >= 0) & (rows < H) & (cols >= 0) & (cols < W)
+        if not ok.any():
+            return out
+        bh, bw = self.block_shape
+        flat = np.flatnonzero(ok.ravel())
+        r, c = rows.ravel()[flat], cols.ravel()[flat]
+        bid = (r // bh) * (-(-W // bw)) + c // bw
+        order = np.argsort(bid, kind="stable")
+        flat, r, c, bid = flat[order], r[order], c[order], bid[order]
+        starts = np.flatnonzero(np.r_[True, bid[1:] != bid[:-1]])
+        ends = np.r_[starts[1:], bid.size]
+        dest = out.ravel()
+        for s0, s1 in zip(starts, ends):
+            br, bc = int(r[s0]) // bh * bh, int(c[s0]) // bw * bw
+            block = self._cells(br, bc, min(bh, H - br), min(bw, W - bc))
+            dest[flat[s0:s1]] = block[r[s0:s1] - br, c[s0:s1] - bc]
+        return out
+
     # --- planned reads (compose.sources.blocks) ----------------------------------------------
     def plan(self, canvas: Canvas | None, windows: list[Window] = ()) -> bool:
         """Expect the padded reads of ``windows`` of ``canvas`` (a window walk): each source block

@@ -64,3 +64,113 @@ def test_a_draft_relief_read_in_one_piece_or_by_rows_is_the_same(monkeypatch):
         finally:
             prepared.close()
     assert np.array_equal(shades[0], shades[1], equal_nan=True)
+
+
+def test_sampled_cells_read_whole_blocks_evenly_and_keep_their_rows():
+    """The draft's block sample (compose.layers.early.sampled_cells): every pixel takes a cell of
+    a block read, in its own row of blocks, at the same place in the block as its own centre
+    (at most one cell inside the block's edge, so a 3 x 3 neighbourhood stays in the block);
+    1 in ``every`` blocks of each block row is read, and every block column gets its share.
+    Properties of our own design (no outside source)."""
+    from compose.layers.early import sampled_cells
+
+    full, factor, block, every = (8192, 8192), 22, (512, 512), 8
+    n = -(-8192 // factor)
+    draft = np.arange(-2, n + 2)                        # padded past both edges
+    rows, cols = sampled_cells(full, factor, draft, draft, block, (0, 0), every)
+    inside = (draft >= 0) & (draft * factor + factor // 2 < 8192)
+    assert (rows[~inside, :] == -1).all() and (cols[:, ~inside] == -1).all()
+    ok = (rows >= 0) & (cols >= 0)
+    assert ok[np.ix_(inside, inside)].all()
+    r, c = rows[ok], cols[ok]
+    assert ((r % 512 >= 1) & (r % 512 <= 510) & (c % 512 >= 1) & (c % 512 <= 510)).all()
+    read = set(zip((r // 512).tolist(), (c // 512).tolist()))
+    assert len(read) == 16 * 16 // every                # 2 of the 16 blocks of each block row
+    assert sorted(np.bincount([j for _, j in read], minlength=16)) == [2] * 16
+    # rows stay; columns move by whole blocks; pixels over a block read keep their own cell
+    centre = draft * factor + factor // 2
+    own_r = np.clip(centre, 1 + 512 * (centre // 512), 510 + 512 * (centre // 512))
+    own_c = own_r
+    for i in np.flatnonzero(inside):
+        assert (rows[i, inside] == own_r[i]).all()
+        shift = cols[i, inside] - own_c[inside]
+        assert (shift % 512 == 0).all()
+        kept = shift == 0
+        assert {(int(own_r[i]) // 512, int(j)) for j in own_c[inside][kept] // 512} <= read
+    # with every block read the cells are the pixels' own
+    rows1, cols1 = sampled_cells(full, factor, draft, draft, block, (0, 0), 1)
+    assert (cols1[np.ix_(inside, inside)] == own_c[inside][None, :]).all()
+
+
+def _big_style(tmp_path, n: int = 2048, tile: int = 128) -> Path:
+    """A relief, a field and lines on an n x n canvas of 30 m cells, rasters in tiles of ``tile``
+    cells without overviews (as bench/render.py's benchmark, smaller)."""
+    import rasterio
+    import shapely
+    from affine import Affine
+
+    rng = np.random.default_rng(7)
+    yy, xx = np.mgrid[0:n, 0:n] / n
+    dem = np.sin(xx * 9) * np.cos(yy * 7) * 300 + rng.normal(0, 40, (n, n)) + 800
+    field = (np.cos(xx * 5 + yy * 3) + 1) * 6 * (0.8 + 0.4 * rng.random((n, n)))
+    field[:n // 5, :n // 3] = np.nan
+    profile = dict(driver="GTiff", width=n, height=n, count=1, dtype="float32", crs="EPSG:32630",
+                   tiled=True, blockxsize=tile, blockysize=tile, compress="deflate",
+                   transform=Affine(30, 0, 400000, 0, -30, 4600000))
+    for name, data in (("dem", dem), ("field", field)):
+        with rasterio.open(tmp_path / f"{name}.tif", "w", nodata=np.nan if name == "field"
+                           else None, **profile) as ds:
+            ds.write(data.astype("float32"), 1)
+    walks = np.cumsum(rng.normal(0, 12 * 30, (300, 40, 2)), axis=1) + \
+        rng.uniform([400000, 4600000 - 30 * n], [400000 + 30 * n, 4600000], (300, 1, 2))
+    from pyogrio.raw import write
+
+    geoms = shapely.to_wkb(shapely.linestrings(walks))
+    write(tmp_path / "lines.gpkg", geoms, [], [], crs="EPSG:32630", geometry_type="LineString",
+          driver="GPKG", layer="lines")
+    style = tmp_path / "big.toml"
+    style.write_text(
+        '[map]\ncrs = "EPSG:32630"\n'
+        f"extent = [400000, {4600000 - 30 * n}, {400000 + 30 * n}, 4600000]\npixel = 30\ndpi = 150\n"
+        '[ramp.r]\nkind = "sequential"\ndomain = [0, 12]\n'
+        'through = [{L = 92, C = 10, h = 95}, {L = 55, C = 40, h = 140}, {L = 25, C = 20, h = 160}]\n'
+        '[[layer]]\nname = "relief"\nrole = "ground"\nkind = "relief"\nsource = "dem.tif"\n'
+        '[[layer]]\nname = "field"\nrole = "theme"\nkind = "field"\nsource = "field.tif"\n'
+        'ramp = "r"\nblend = "multiply"\n'
+        '[[layer]]\nname = "lines"\nrole = "overlay"\nkind = "lines"\nsource = "lines.gpkg"\n'
+        'stroke = "#3a3a3a"\nwidth = 0.48\n')
+    return style
+
+
+def test_a_draft_of_large_files_reads_a_sample_of_their_blocks_with_the_full_verdict(tmp_path):
+    """Files of more than 2 x SAMPLE_BLOCKS blocks without overviews: the draft decodes about
+    SAMPLE_BLOCKS of them (not every one, as a decimated read does) and judges every rule as
+    the full check does (the draft's contract: compared with our own full check), with the
+    relief's and the field's measures near the full check's."""
+    from compose.api import check
+    from compose.layers.early import SAMPLE_BLOCKS, BlockSample
+
+    style_path = _big_style(tmp_path)
+    style = load_style(style_path)
+    d = draft_canvas(style.canvas())
+    prepared = prepare(style, canvas=d, draft=True)
+    try:
+        samples = [la.sample for la in prepared.layers if getattr(la, "sample", None) is not None]
+        assert len(samples) == 2 and all(isinstance(s, BlockSample) for s in samples)
+        (window,) = prepared.windows()
+        for s in samples:
+            rows, cols = s.cells(window)
+            ok = (rows >= 0) & (cols >= 0)
+            blocks = set(zip((rows[ok] // 128).tolist(), (cols[ok] // 128).tolist()))
+            assert len(blocks) <= 1.25 * SAMPLE_BLOCKS < 256
+    finally:
+        prepared.close()
+    full = check(style_path, cache=False)
+    draft = check(style_path, draft=True, cache=False)
+    verdicts = [{(r.rule, r.layer, r.ramp): (r.passed, r.met) for r in rep.rules}
+                for rep in (full, draft)]
+    assert verdicts[0] == verdicts[1]
+    for rule, layer, tol in (("ground-lightness", "relief", 1.5), ("relief-visible", "relief", 1.5),
+                             ("theme-chroma", "field", 1.5), ("grayscale-order", "field", 0.03)):
+        (f,), (g,) = full.rule(rule, layer), draft.rule(rule, layer)
+        assert np.allclose(g.value, f.value, atol=tol), (rule, f.value, g.value)
