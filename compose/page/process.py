@@ -175,7 +175,7 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                 except EOFError:                          # the render ended without a page
                     os._exit(0)
                 with span("page unpacks the prepared render"):
-                    prepared = _unpacked(job, message[1])
+                    prepared = _unpacked(job, _handed_over(job, message[1]))
             started = None
             if job._ahead is not None:         # while the parent walks the windows
                 try:
@@ -295,6 +295,46 @@ def _walked(inp, sink, early: Callable[..., Any] | None = None
     return final, guessed
 
 
+def _handover_file() -> int | None:
+    """A file in memory (Linux memfd) for the packed prepared render, created before the fork
+    so both processes hold it: the render writes it without waiting for the page process to
+    read (a pipe holds 64 kB; the demo's prepared render is about 0.6 MB, and the page process
+    reads only once its imports are done). None where there is none: the pipe carries it."""
+    try:
+        return os.memfd_create("compose-page-handover", getattr(os, "MFD_CLOEXEC", 1))
+    except (AttributeError, OSError):                    # pragma: no cover - not Linux
+        return None
+
+
+def _close_handover(job: PageJob) -> None:
+    if job._handover is not None:
+        try:
+            os.close(job._handover)
+        except OSError:                                 # pragma: no cover
+            pass
+        job._handover = None
+
+
+def _handed_over(job: PageJob, sent) -> bytes:
+    """The packed prepared render: ``sent`` itself, or ``("file", n)``: its ``n`` bytes in the
+    hand-over file (:func:`_handover_file`), which is closed then."""
+    if isinstance(sent, bytes):
+        return sent
+    _, n = sent
+    fd = job._handover
+    if fd is None:
+        raise EOFError("the prepared render's hand-over file is closed")
+    parts, got = [], 0
+    while got < n:
+        part = os.pread(fd, n - got, got)
+        if not part:
+            raise EOFError("the prepared render's hand-over file ended early")
+        parts.append(part)
+        got += len(part)
+    _close_handover(job)
+    return b"".join(parts)
+
+
 def _unpacked(job: PageJob, data: bytes) -> SimpleNamespace:
     """The page process's stand-in for the prepared render: what :meth:`PageJob.attach` sent."""
     from compose.page.handover import unpack
@@ -349,11 +389,13 @@ class PageJob:
         self._seconds: dict[str, float] | None = None
         self._waited = 0.0
         self._shared: dict[int, object] | None = None
+        self._handover: int | None = None
         if forked if forked is not None else can_fork():
             if prepared is None:    # what the child will get back by reference (same objects)
                 from compose.page.handover import shared_objects
 
                 self._shared = shared_objects(style)
+                self._handover = _handover_file()
             self._fork()
 
     @property
@@ -413,7 +455,14 @@ class PageJob:
                                  prepared.blocked), self._shared or {})
             except Exception:
                 return False
-            _send(self._outbox, ("prepared", data))
+            if self._handover is not None:      # written without waiting for the child
+                view, done = memoryview(data), 0
+                while done < len(data):
+                    done += os.pwrite(self._handover, view[done:], done)
+                _close_handover(self)
+                _send(self._outbox, ("prepared", ("file", len(data))))
+            else:
+                _send(self._outbox, ("prepared", data))
         self._prepared = prepared
         return True
 
@@ -501,4 +550,5 @@ class PageJob:
             except OSError:
                 pass
             self._outbox = None
+        _close_handover(self)
         _end_child(self, kill=True)

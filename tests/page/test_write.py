@@ -305,3 +305,28 @@ def test_a_coarse_canvas_still_gets_a_readable_page_png(tmp_path):
     with Image.open(result.outputs["page"]) as im:
         w, h = im.size
     assert abs(w - 210 / 25.4 * 72) <= 1 and abs(h - 148 / 25.4 * 72) <= 1   # A5 landscape
+
+
+def test_setter_listings_left_empty_only_while_loading():
+    """compose.page.write.without_setter_listings: an Artist subclass created in the block still
+    has matplotlib's working ``set`` (Artist.set sets each named property, matplotlib's API
+    documentation), only its docstring lacks the property list; outside the block matplotlib's
+    own listing is back and lists the properties."""
+    import matplotlib.artist
+    from matplotlib.lines import Line2D
+
+    from compose.page.write import without_setter_listings
+
+    listing = matplotlib.artist.kwdoc
+    with without_setter_listings():
+        class Inside(Line2D):
+            pass
+    assert matplotlib.artist.kwdoc is listing
+
+    class Outside(Line2D):
+        pass
+    line = Inside([0, 1], [0, 1])
+    line.set(linewidth=3.0, color="red")
+    assert line.get_linewidth() == 3.0 and line.get_color() == "red"
+    assert "solid_capstyle" not in (Inside.set.__doc__ or "")
+    assert "solid_capstyle" in Outside.set.__doc__
