@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["GpkgTable", "open_table"]
+__all__ = ["GpkgTable", "open_table", "only_table"]
 
 #: Declared column types read as integers / reals / text (GeoPackage 1.2.1, table 1, "GeoPackage
 #: Data Types"; INT is SQLite's alias of INTEGER).
@@ -126,6 +126,37 @@ def _wkb(blob) -> bytes | None:
     if envelope is None:
         raise _NotPlain("invalid envelope indicator")
     return blob[8 + envelope:]
+
+
+def _is_gpkg(path: Path) -> bool:
+    """SQLite's header: the magic string, and the application_id at offset 68 (big-endian)."""
+    try:
+        with open(path, "rb") as f:
+            head = f.read(100)
+    except OSError:
+        return False
+    return len(head) == 100 and head.startswith(b"SQLite format 3\0") and \
+        int.from_bytes(head[68:72], "big") in _APPLICATION_IDS
+
+
+def only_table(path: Path) -> str | None:
+    """The name of the one table a GeoPackage registers (``gpkg_contents`` has a single row,
+    a feature table): the first table a reader lists, so a style naming no ``table`` reads it;
+    None otherwise (or on any error)."""
+    path = Path(path)
+    if not _is_gpkg(path):
+        return None
+    try:
+        con = _connect(path)
+        try:
+            rows = con.execute("SELECT table_name, data_type FROM gpkg_contents").fetchall()
+        finally:
+            con.close()
+    except sqlite3.Error:
+        return None
+    if len(rows) != 1 or rows[0][1] != "features" or not isinstance(rows[0][0], str):
+        return None
+    return rows[0][0]
 
 
 def open_table(path: Path, table: str) -> GpkgTable | None:

@@ -25,7 +25,7 @@ import shapely
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
 from compose.sources.crs import plainly_usable, same_crs
-from compose.sources.gpkg import open_table
+from compose.sources.gpkg import only_table, open_table
 from compose.sources.guard import check_crs, check_source, refuse_driver
 
 if TYPE_CHECKING:
@@ -175,9 +175,11 @@ class VectorSource:
         here = f'layer "{layer}"'
         local_only = check_source(path, here)
         # a GeoPackage's plain feature table: read with sqlite3, no pyogrio (compose.sources.gpkg)
-        self._gpkg = open_table(self.path, table) if table is not None else None
+        # (a style naming no table: the file's one registered table, if that is all it has)
+        name = table if table is not None else only_table(self.path)
+        self._gpkg = open_table(self.path, name) if name is not None else None
         if self._gpkg is not None:
-            self.table = str(table)
+            self.table = str(name)
             info = {"driver": self._gpkg.driver, "crs": self._gpkg.crs,
                     "fields": self._gpkg.fields}
         else:

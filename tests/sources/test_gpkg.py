@@ -94,6 +94,28 @@ def test_float32_columns_round_as_gdal_reads_them(tmp_path):
     _same(path, "features")
 
 
+def test_a_source_naming_no_table_reads_the_one_table_through_sqlite(tmp_path):
+    """A GeoPackage registering one feature table, named by no ``table`` key: it is the first
+    table pyogrio lists (the reference), read here without pyogrio; a file of two tables is left
+    to pyogrio, whose first table it takes as before."""
+    one = write_vector(tmp_path / "one.gpkg", [
+        ({"type": "LineString", "coordinates": [(1.0, 2.0), (3.0, 4.0)]}, {"k": 1}),
+    ], crs=UTM, properties={"k": "int"})
+    assert gpkg.only_table(one) == pyogrio.list_layers(one)[0][0] == "features"
+    source = VectorSource(one, layer="one")
+    assert source._gpkg is not None and source.table == "features"
+    _same(one, "features")
+    with sqlite3.connect(one) as con:       # a second registered (attribute) table
+        con.execute("CREATE TABLE extra (id INTEGER PRIMARY KEY, v TEXT)")
+        con.execute("INSERT INTO gpkg_contents (table_name, data_type, identifier) "
+                    "VALUES ('extra', 'attributes', 'extra')")
+    con.close()
+    assert gpkg.only_table(one) is None
+    two = VectorSource(one, layer="two")
+    assert two._gpkg is None and two.table == pyogrio.list_layers(one)[0][0]
+    assert gpkg.only_table(tmp_path / "missing.gpkg") is None
+
+
 def test_what_is_left_to_pyogrio(tmp_path):
     """Dates, a NULL integer, a CRS without an EPSG code, a non-GeoPackage file, a table that is
     not there: None, and VectorSource reads them through pyogrio as before."""

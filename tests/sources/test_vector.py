@@ -168,8 +168,11 @@ def test_unknown_where_key_lists_attributes(gpkg):
 def test_file_metadata_is_read_once_per_file_version(tmp_path, monkeypatch):
     import pyogrio
 
-    one = [({"type": "Point", "coordinates": (3.0, 50.0)}, {"name": "a", "kind": 1, "rank": 1.0})]
-    path = write_vector(tmp_path / "m.gpkg", one, crs=GEO, properties=PROPS, table="first")
+    # a date column: no plain table (compose.sources.gpkg), so pyogrio lists the file's tables
+    one = [({"type": "Point", "coordinates": (3.0, 50.0)}, {"name": "a", "kind": 1, "rank": 1.0,
+                                                           "day": "2020-01-02"})]
+    props = {**PROPS, "day": "date"}
+    path = write_vector(tmp_path / "m.gpkg", one, crs=GEO, properties=props, table="first")
     calls = []
     real = pyogrio.list_layers
     monkeypatch.setattr(pyogrio, "list_layers", lambda p: calls.append(p) or real(p))
@@ -177,5 +180,5 @@ def test_file_metadata_is_read_once_per_file_version(tmp_path, monkeypatch):
     assert VectorSource(path, layer="y").table == "first"     # the same file: listed once
     assert len(calls) == 1
     path.unlink()                                             # a new file at the same path
-    write_vector(path, one + one, crs=GEO, properties=PROPS, table="second")
+    write_vector(path, one + one, crs=GEO, properties=props, table="second")
     assert VectorSource(path, layer="z").table == "second" and len(calls) == 2
