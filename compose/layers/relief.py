@@ -6,6 +6,8 @@ Shade s in [0, 1] (Lambertian, from :mod:`compose.layers.hillshade`) is quantise
 """
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 from affine import Affine
 
@@ -20,6 +22,10 @@ from compose.sources.raster import cell_size_metres
 
 __all__ = ["ReliefLayer", "relief_palette", "ground_cell_size", "ground_scale", "LEVELS",
            "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
+
+#: Guards a draft relief's stretch, decided on its early read's thread or where it paints
+#: (module-wide: a lock in the layer would stop it being pickled for the page process).
+_SETTLE = threading.Lock()
 
 SAMPLE_WINDOWS = 9    # windows of the canvas read to measure the terrain for "auto" stretch
 SAMPLE_SIZE = 128     # their side in canvas pixels (9 x 128^2 cells: a steady 95th percentile)
@@ -110,10 +116,23 @@ class ReliefLayer:
             self.full, self.factor = _full_of_draft(context)
             # a large file without overviews: a sample of its blocks (compose.layers.early)
             self.sample = BlockSample.of(self.source, self.canvas, self.full, self.factor)
-        self.stretch = self._stretch() if o.stretch == "auto" else 1.0
-        self.exaggeration = o.exaggeration * self.stretch
-        # a draft's rows are decoded beside the rest of the preparation (compose.layers.early)
+        self.stretch = 1.0
+        self.exaggeration = o.exaggeration
+        self._settled = False
+        if self.full is None:
+            self._settle()
+        # a draft's stretch is measured and its rows decoded beside the rest of the preparation
+        # (compose.layers.early): the same numbers, off the preparing thread
         self.early = EarlyRead(self.canvas, self._draft_shade) if self.full is not None else None
+
+    def _settle(self) -> None:
+        """Decide the "auto" stretch once (before the first shade is made)."""
+        with _SETTLE:
+            if not self._settled:
+                o = self.options
+                self.stretch = self._stretch() if o.stretch == "auto" else 1.0
+                self.exaggeration = o.exaggeration * self.stretch
+                self._settled = True
 
     def _stretch(self) -> float:
         """The "auto" vertical factor, from up to SAMPLE_WINDOWS windows spread over the canvas
@@ -163,6 +182,7 @@ class ReliefLayer:
         """
         o, f, full = self.options, self.factor, self.full
         assert full is not None                   # a draft of a whole-number coarser canvas
+        self._settle()
         if self.sample is not None:
             return self._sampled_shade(window)
         r0, c0, h, w = window.padded
