@@ -31,6 +31,23 @@ def test_png_rows_made_band_by_band_are_png_bytes_of_the_whole(mode):
     assert key[:2] == (mode, image.shape)
 
 
+def test_png_rows_across_deflate_blocks_are_png_bytes_of_the_whole():
+    """Bands that cut the image anywhere against encode.BLOCK give the file of the whole image
+    (its rows reach the deflate stream in the same blocks), and Pillow reads the pixels back."""
+    rng = np.random.default_rng(5)
+    image = (np.cumsum(rng.integers(0, 3, (2 * encode.BLOCK + 77, 19, 3)), axis=0) % 256
+             ).astype(np.uint8)
+    whole = encode.png_bytes(image)
+    for cuts in ([1, encode.BLOCK - 1, 2, encode.BLOCK + 3], [encode.BLOCK, encode.BLOCK], [300]):
+        rows = encode.PngRows(image.shape[1], "RGB")
+        r0 = 0
+        for n in cuts + [image.shape[0] - sum(cuts)]:
+            rows.add(image[r0:r0 + n])
+            r0 += n
+        assert rows.finish()[1] == whole
+    assert np.array_equal(np.asarray(Image.open(io.BytesIO(whole))), image)
+
+
 def test_a_remembered_png_is_what_a_save_writes():
     image = _image("RGB")
     rows = encode.PngRows(image.shape[1], "RGB")
