@@ -84,8 +84,7 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     False none (nor with a ``mapper``). A check that only changed colours reuses the layers'
     coverage and indices; its report is the same as without the cache."""
     style = _style(style)     # a bad style fails before the engine's imports
-    from compose.check.draft import describe_draft, draft_canvas
-    from compose.engine import WINDOW, prepare, run  # looked up per call (tests may replace them)
+    from compose.check.draft import draft_canvas
 
     full = style.canvas()
     canvas = draft_canvas(full) if draft else None
@@ -96,6 +95,43 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
         return blocked_for(*args)
 
     store = _cache_of(style, canvas if canvas is not None else full, keep_clear, cache, mapper)
+    early = _read_vectors_early(style, store) if mapper is None else False
+    try:
+        return _check(style, progress, mapper, full, canvas, is_draft, keep_clear, cache, store)
+    finally:
+        if early:
+            from compose.sources.vector import forget_early
+
+            forget_early()
+
+
+#: Layer kinds that read vector sources.
+_VECTOR_KINDS = ("lines", "areas", "points", "labels")
+
+
+def _read_vectors_early(style: Style, store) -> bool:
+    """Start reading the features of the enabled vector layers the check will read (not those
+    its cache holds) on threads of their own (:func:`compose.sources.vector.read_early`), while
+    the engine is imported and the rasters prepared; True when any was started."""
+    specs = [s for s in style.layers if s.enabled and s.kind in _VECTOR_KINDS]
+    held = store.held(specs) if store is not None else set()
+    specs = [s for s in specs if s.name not in held]
+    if not specs:
+        return False
+    from compose.sources.vector import read_early
+
+    for spec in specs:
+        o = spec.options
+        read_early(spec.source, layer=spec.name, table=getattr(o, "table", None),
+                   where=getattr(o, "where", None))
+    return True
+
+
+def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_clear, cache,
+           store) -> CheckReport:
+    from compose.check.draft import describe_draft
+    from compose.engine import WINDOW, prepare, run  # looked up per call (tests may replace them)
+
     prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
                        make_layer=None if store is None else store.layer)
     if store is not None and not store.usable(prepared.margin, WINDOW):

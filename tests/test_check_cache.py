@@ -197,7 +197,9 @@ def test_a_warm_check_loads_no_geodata_or_drawing_library(tmp_path, data):
     def heavy(loaded):
         return sorted({m.split(".")[0] for m in loaded} & {"matplotlib", "rasterio", "shapely",
                                                             "pyogrio", "fiona", "osgeo", "pyproj"})
-    assert heavy(cold) == ["matplotlib", "pyogrio", "pyproj", "rasterio", "shapely"]
+    # cold: pyproj only to accept the canvas CRS once (this fresh cache's CRS memo), no pyogrio
+    # (the GeoPackage's one table read through sqlite3, compose.sources.gpkg)
+    assert heavy(cold) == ["matplotlib", "pyproj", "rasterio", "shapely"]
     assert heavy(warm) == []
 
 
@@ -253,3 +255,30 @@ def test_labels_follow_the_furniture_inside_the_frame(tmp_path):
     assert inside is not None
     assert furniture(corner.replace("strength = 0.25", "strength = 0.3")) == inside   # a colour
     assert furniture(corner.replace('legend = "bottom left"', 'legend = "top right"')) != inside
+
+
+def test_a_cold_check_reads_each_vector_source_once_early_and_a_warm_one_not_at_all(
+        tmp_path, monkeypatch):
+    """Vector layers' features are read on threads while the check imports and prepares the
+    rest (compose.sources.vector.read_early) and taken by the layers instead of read again (as
+    many reads as without them); the layers whose entries the cache holds are not read at all.
+    The demo's GeoPackage tables are read through compose.sources.gpkg: counting its bulk reads
+    counts the file reads."""
+    import compose.api
+    from compose.sources import gpkg
+
+    calls = []
+    real = gpkg.GpkgTable.read
+    monkeypatch.setattr(gpkg.GpkgTable, "read", lambda self: calls.append(self.table) or real(self))
+    demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
+    cold = check(demo, cache=tmp_path)
+    early = sorted(calls)
+    calls.clear()
+    with monkeypatch.context() as m:
+        m.setattr(compose.api, "_read_vectors_early", lambda style, store: False)
+        check(demo, cache=False)
+    assert early and early == sorted(calls)
+    calls.clear()
+    warm = check(demo, cache=tmp_path)
+    assert calls == []
+    assert json.dumps(warm.to_json(False)) == json.dumps(cold.to_json(False))

@@ -44,6 +44,7 @@ import contextlib
 import os
 from collections.abc import Callable
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 from compose.check_cache.keys import (
@@ -153,6 +154,32 @@ class CheckCache:
         rec = Recorder(layer, key, colors, self.canvas, extra)
         self.recorders.append(rec)
         return rec
+
+    def held(self, specs) -> set[str]:
+        """Names of the vector layers among ``specs`` (lines, areas, points, labels: enabled,
+        in style order) whose entries this cache holds, so a check need not read their
+        sources (an entry found unusable later is rebuilt as usual)."""
+        found: set[str] = set()
+        if not (self.enabled and self.read):
+            return found
+        ctx = SimpleNamespace(ramps={})         # these kinds' keys need no ramp
+        saved, before = self._labels_before, list[str]()
+        try:
+            # labels are prepared last, each keyed by the labels layers before it
+            for spec in sorted(specs, key=lambda s: s.kind == "labels"):
+                if spec.kind not in ("lines", "areas", "points", "labels"):
+                    continue
+                self._labels_before = list(before)
+                key, _ = self.key(spec, ctx)
+                if key is None:
+                    continue
+                if spec.kind == "labels":
+                    before.append(key)
+                if (self.folder / f"{key}.entry").is_file():
+                    found.add(spec.name)
+        finally:
+            self._labels_before = saved
+        return found
 
     @property
     def warm(self) -> bool:

@@ -14,7 +14,9 @@ from __future__ import annotations
 
 import functools
 import itertools
+import threading
 from collections.abc import Mapping
+from concurrent.futures import Future
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -31,7 +33,7 @@ from compose.sources.guard import check_crs, check_source, refuse_driver
 if TYPE_CHECKING:
     import pyproj
 
-__all__ = ["VectorSource", "Features"]
+__all__ = ["VectorSource", "Features", "read_early", "forget_early"]
 
 _POINT_TYPES = (0, 4)          # shapely type ids of Point and MultiPoint: kept whole, not cut
 
@@ -137,6 +139,44 @@ def _stamp(path: Path) -> tuple[int, ...]:
 
 _UNIQUE = itertools.count()
 
+#: Reads started by :func:`read_early`, by (path, file version, table, filter).
+_EARLY: dict[tuple, Future] = {}
+_EARLY_LOCK = threading.Lock()
+
+
+def _early_key(path, table, where) -> tuple:
+    items = tuple(sorted((str(k), repr(v)) for k, v in dict(where or {}).items()))
+    return (str(Path(path)), _stamp(Path(path)), table, items)
+
+
+def read_early(path, *, layer: str, table: str | None = None,
+               where: Mapping[str, object] | None = None) -> None:
+    """Start reading the features of ``path`` (its ``table``, ``where`` filter) on a thread of
+    their own; a :class:`VectorSource` of the same file version, table and filter made later
+    takes them instead of reading again (a check starts its vector reads while it imports and
+    prepares the rest: SQLite's reads and shapely's parsing run beside that work). Errors are
+    left to that source's own read; a read nobody takes is dropped by :func:`forget_early`."""
+    key = _early_key(path, table, where)
+    future: Future = Future()
+    with _EARLY_LOCK:
+        if key in _EARLY:
+            return
+        _EARLY[key] = future
+
+    def run() -> None:
+        try:
+            future.set_result(VectorSource(path, layer=layer, table=table, where=where)._read())
+        except BaseException as exc:        # the source's own read reports it
+            future.set_exception(exc)
+
+    threading.Thread(target=run, name="early-vectors", daemon=True).start()
+
+
+def forget_early() -> None:
+    """Drop the early reads nobody took (they finish on their own)."""
+    with _EARLY_LOCK:
+        _EARLY.clear()
+
 
 @functools.lru_cache(maxsize=32)
 def _tables(path: str, stamp: tuple) -> tuple[str, ...]:
@@ -203,6 +243,7 @@ class VectorSource:
             values = value if isinstance(value, (list, tuple, set, frozenset)) else [value]
             self.where[key] = tuple(values)
         self._raw: tuple[np.ndarray, list[dict]] | None = None
+        self._early = _early_key(path, table, where)
         self._cache: dict[str, Features] = {}
 
     @property
@@ -252,6 +293,12 @@ class VectorSource:
     def _read(self) -> tuple[np.ndarray, list[dict]]:
         """Every kept feature in one bulk read (pyogrio: WKB and attribute columns as arrays,
         ~10x faster than feature by feature); attribute rows as plain Python values."""
+        if self._raw is None:
+            with _EARLY_LOCK:
+                early = _EARLY.pop(self._early, None)
+            if early is not None and early.exception() is None:
+                self._raw = early.result()
+                return self._raw
         if self._raw is None:
             names, wkb, columns = self._bulk()
             arr = shapely.from_wkb(wkb, on_invalid="ignore") if len(wkb) else np.empty(0, object)
