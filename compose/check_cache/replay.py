@@ -66,6 +66,24 @@ def _same_color(paint: Paint, want: Any) -> bool:
         and tuple(float(v) for v in paint.color) == tuple(float(v) for v in want)
 
 
+#: k / 255 in float32 for k = 0..255, as ``np.divide(k, np.float32(255), dtype=np.float32)``.
+_EIGHT = np.divide(np.arange(256, dtype=np.uint8), np.float32(255), dtype=np.float32)
+
+
+def _as_8bit(alpha: np.ndarray) -> np.ndarray | None:
+    """``alpha`` (float32 coverage in [0, 1]) as uint8 k when every value is exactly k / 255 in
+    float32 (what 8-bit coverage divided by 255 gives), else None. A constant coverage (a
+    field's ones, an empty halo) is decided from its extremes; anything else value by value."""
+    lo, hi = float(alpha.min(initial=np.inf)), float(alpha.max(initial=-np.inf))
+    if not (0.0 <= lo and hi <= 1.0):
+        return None
+    if lo == hi:
+        k = int(np.rint(np.float32(lo) * np.float32(255)))
+        return np.full(alpha.shape, k, np.uint8) if _EIGHT[k] == np.float32(lo) else None
+    a8 = np.rint(alpha * np.float32(255)).astype(np.uint8)
+    return a8 if np.array_equal(np.divide(a8, np.float32(255), dtype=np.float32), alpha) else None
+
+
 class _Slot:
     """The j-th paint of a layer's windows, on the canvas grid (core pixels only)."""
 
@@ -76,8 +94,8 @@ class _Slot:
 
     def put(self, core, alpha: np.ndarray, index: np.ndarray | None) -> None:
         if self.alpha8 is not None:
-            a8 = np.rint(alpha * np.float32(255)).astype(np.uint8)
-            if np.array_equal(np.divide(a8, np.float32(255), dtype=np.float32), alpha):
+            a8 = _as_8bit(alpha)
+            if a8 is not None:
                 self.alpha8[core] = a8
             else:            # not 8-bit coverage: keep float32 from here on (exact either way)
                 self.alpha32 = np.divide(self.alpha8, np.float32(255), dtype=np.float32)
