@@ -7,8 +7,14 @@ px some 200 MB of the process were free memory held by the allocator after the w
 :func:`trim` returns free pages to the system; the walk calls it once per window row.
 :func:`limit_arenas` lets the threads share :data:`ARENAS` arenas instead of up to eight per core,
 each keeping its own freed memory (the render command calls it before its threads start; on the
-8192 bench render 0.53 -> 0.49 GB, the same CPU time). Elsewhere (other C libraries, other
-systems) both do nothing.
+8192 bench render 0.53 -> 0.49 GB, the same CPU time), and maps blocks of :data:`MMAP_BYTES` or
+more on their own (bands of rows, a page's images): glibc otherwise raises its mmap threshold to
+the size of the largest block freed (up to 32 MB), so a band-sized array once freed lets the
+next ones land in the arenas, where they fragment what the windows' arrays reuse. Fixing the
+threshold also fixes glibc's trim threshold, which is set to :data:`TRIM_BYTES` so that freeing
+the top of an arena does not give pages back only to fault them in again at the next window
+(tried at glibc's default of 128 kB: 4x the system time); :func:`trim` gives them back once per
+window row instead. Elsewhere (other C libraries, other systems) these do nothing.
 """
 from __future__ import annotations
 
@@ -17,11 +23,19 @@ import ctypes.util
 import functools
 import os
 
-__all__ = ["trim", "limit_arenas", "ARENAS"]
+__all__ = ["trim", "limit_arenas", "ARENAS", "MMAP_BYTES", "TRIM_BYTES"]
 
 #: glibc malloc arenas the threads of a render share (the window threads, the encoders).
 ARENAS = 2
-_M_ARENA_MAX = -8           # mallopt parameter number (glibc malloc.h)
+#: Blocks of this many bytes or more are mapped on their own and unmapped when freed (a
+#: window's planes are 1-3 MB and stay in the arenas; a 4096 px band of rows is 6 MB).
+MMAP_BYTES = 4 << 20
+#: Free memory at the top of an arena kept until :func:`trim` (bytes).
+TRIM_BYTES = 256 << 20
+# mallopt parameter numbers (glibc malloc.h)
+_M_TRIM_THRESHOLD = -1
+_M_MMAP_THRESHOLD = -3
+_M_ARENA_MAX = -8
 
 
 @functools.lru_cache(maxsize=1)
@@ -52,15 +66,29 @@ def trim() -> bool:
     return True
 
 
+@functools.lru_cache(maxsize=1)
+def _mallopt():
+    try:
+        fn = _libc().mallopt
+    except AttributeError:      # no C library found, or not glibc
+        return None
+    fn.argtypes = [ctypes.c_int, ctypes.c_int]
+    fn.restype = ctypes.c_int
+    return fn
+
+
 def limit_arenas(arenas: int = ARENAS) -> bool:
     """Let threads started from now on share at most ``arenas`` glibc malloc arenas, unless the
-    environment sets ``MALLOC_ARENA_MAX``; True if set."""
+    environment sets ``MALLOC_ARENA_MAX``; map blocks of :data:`MMAP_BYTES` or more on their own
+    and keep :data:`TRIM_BYTES` at an arena's top, unless the environment sets
+    ``MALLOC_MMAP_THRESHOLD_`` or ``MALLOC_TRIM_THRESHOLD_``. True if the arenas were limited."""
+    mallopt = _mallopt()
+    if mallopt is None:
+        return False
+    if not any(k in os.environ for k in ("MALLOC_MMAP_THRESHOLD_", "MALLOC_TRIM_THRESHOLD_",
+                                         "GLIBC_TUNABLES")):
+        mallopt(_M_TRIM_THRESHOLD, TRIM_BYTES)
+        mallopt(_M_MMAP_THRESHOLD, MMAP_BYTES)
     if "MALLOC_ARENA_MAX" in os.environ:
         return False
-    try:
-        mallopt = _libc().mallopt
-    except AttributeError:
-        return False
-    mallopt.argtypes = [ctypes.c_int, ctypes.c_int]
-    mallopt.restype = ctypes.c_int
     return bool(mallopt(_M_ARENA_MAX, int(arenas)))
