@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 import threading
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from affine import Affine
@@ -38,6 +38,22 @@ _MIN_STEP = 2
 
 _lock = threading.Lock()
 _cache: dict[tuple, TransformGrid] = {}
+# the grid chosen for (canvas, pad, CRSs, source cell size), or None: every window asks again
+_chosen: dict[tuple, TransformGrid | None] = {}
+# id(crs) -> (crs, its text): a CRS's WKT takes milliseconds to make, and every window asks
+_wkts: dict[int, tuple[object, str]] = {}
+
+
+def _wkt(crs) -> str:
+    hit = _wkts.get(id(crs))
+    if hit is not None and hit[0] is crs:
+        return hit[1]
+    wkt = _text(crs)
+    with _lock:
+        if len(_wkts) > 64:
+            _wkts.clear()
+        _wkts[id(crs)] = (crs, wkt)       # the CRS kept alive, so its id is not reused
+    return wkt
 
 
 @dataclass(frozen=True, eq=False)
@@ -56,6 +72,8 @@ class TransformGrid:
     x: np.ndarray
     y: np.ndarray
     error: float
+    # inverse source affine (tuple) -> the nodes in that source's cell-centre coordinates
+    _cells: dict = field(default_factory=dict, repr=False, compare=False)
 
     def covers(self, row0: int, col0: int, height: int, width: int) -> bool:
         """True when the pixel rectangle lies inside the grid's nodes."""
@@ -67,21 +85,48 @@ class TransformGrid:
     def coords(self, row0: int, col0: int, height: int, width: int) -> tuple[np.ndarray, np.ndarray]:
         """Source-CRS (x, y), float64 (height, width), of the centres of the canvas pixels
         rows row0.., cols col0.. (separable bilinear interpolation of the nodes)."""
+        return (self._interpolate(self.x, row0, col0, height, width),
+                self._interpolate(self.y, row0, col0, height, width))
+
+    def cell_centres(self, inverse: Affine, row0: int, col0: int, height: int,
+                     width: int) -> tuple[np.ndarray, np.ndarray]:
+        """Positions of the same pixel centres in a source's cells, float64 (height, width) each:
+        (column, row) with cell i's centre at i (``inverse``: the source's CRS -> pixel affine).
+        The nodes are mapped through ``inverse`` once per source and interpolated like
+        :meth:`coords` (the affine map commutes with the interpolation), so every raster read
+        through this grid costs two interpolations and no per-pixel arithmetic of its own."""
+        key = tuple(inverse)
+        nodes = self._cells.get(key)
+        if nodes is None:
+            a, b, c, d, e, f = key[:6]
+            nodes = self._cells[key] = (a * self.x + b * self.y + (c - 0.5),
+                                        d * self.x + e * self.y + (f - 0.5))
+        return (self._interpolate(nodes[0], row0, col0, height, width),
+                self._interpolate(nodes[1], row0, col0, height, width))
+
+    def _interpolate(self, nodes: np.ndarray, row0: int, col0: int, height: int,
+                     width: int) -> np.ndarray:
+        """``nodes`` interpolated bilinearly at the centres of pixels rows row0.., cols col0..:
+        along each node row at the pixels' columns first, then between node rows, one run of
+        pixel rows per node cell (two passes over the output, no gathers)."""
         c0, r0 = self.origin
         u = (np.arange(width) + (col0 + 0.5 - c0)) / self.step
         v = (np.arange(height) + (row0 + 0.5 - r0)) / self.step
-        j = np.minimum(np.floor(u).astype(np.intp), self.x.shape[1] - 2)
-        i = np.minimum(np.floor(v).astype(np.intp), self.x.shape[0] - 2)
+        j = np.minimum(np.floor(u).astype(np.intp), nodes.shape[1] - 2)
+        i = np.minimum(np.floor(v).astype(np.intp), nodes.shape[0] - 2)
         s = (u - j)[None, :]
-        t = (v - i)[:, None]
-        rows = np.arange(i[0], i[-1] + 2)
-        out = []
-        for nodes in (self.x, self.y):
-            band = nodes[rows]                                   # node rows this window needs
-            across = band[:, j] * (1.0 - s) + band[:, j + 1] * s  # (node rows, width)
-            k = i - i[0]
-            out.append(across[k] * (1.0 - t) + across[k + 1] * t)
-        return out[0], out[1]
+        t = v - i
+        band = nodes[i[0]:i[-1] + 2]                            # node rows this window needs
+        across = band[:, j] * (1.0 - s) + band[:, j + 1] * s    # (node rows, width)
+        rise = across[1:] - across[:-1]
+        out = np.empty((height, width), np.float64)
+        cuts = [0, *(np.flatnonzero(np.diff(i)) + 1).tolist(), height]
+        for a, b in zip(cuts[:-1], cuts[1:]):                   # pixel rows a..b in one node cell
+            k = int(i[a] - i[0])
+            rows = out[a:b]
+            np.multiply(t[a:b, None], rise[k], out=rows)
+            rows += across[k]
+        return out
 
 
 def _text(crs) -> str:
@@ -131,10 +176,25 @@ def transform_grid(transform: Affine, width: int, height: int, pad: int, canvas_
     pixels on every side) onto ``source_crs``, fine enough for sources of ``source_pixel`` CRS
     units (error <= ERROR_PX of them). None when no step down to 2 px meets the bound or nodes
     fail to transform (the caller then warps exactly)."""
-    key_base = (tuple(transform), int(width), int(height), int(pad), _text(canvas_crs),
-                _text(source_crs))
-    limit = ERROR_PX * float(source_pixel)
-    aim = ACCURACY_PX * float(source_pixel)
+    key_base = (tuple(transform), int(width), int(height), int(pad), _wkt(canvas_crs),
+                _wkt(source_crs))
+    chosen_key = key_base + (float(source_pixel),)
+    with _lock:
+        if chosen_key in _chosen:
+            return _chosen[chosen_key]
+    grid = _choose(key_base, transform, width, height, pad, canvas_crs, source_crs,
+                   float(source_pixel))
+    with _lock:
+        if len(_chosen) > 32:
+            _chosen.clear()
+        _chosen[chosen_key] = grid
+    return grid
+
+
+def _choose(key_base: tuple, transform: Affine, width: int, height: int, pad: int, canvas_crs,
+            source_crs, source_pixel: float) -> TransformGrid | None:
+    limit = ERROR_PX * source_pixel
+    aim = ACCURACY_PX * source_pixel
     step = _FIRST_STEP
     while step >= _MIN_STEP:
         key = key_base + (step,)

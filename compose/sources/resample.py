@@ -23,7 +23,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-__all__ = ["sample", "cut_block", "Reader"]
+__all__ = ["sample", "sample_centres", "cut_block", "Reader"]
 
 #: read(row0, col0, height, width) -> float32 block of source cells, NaN = no data; the rectangle
 #: may reach outside the source (those cells are NaN).
@@ -98,6 +98,56 @@ def sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
     if method == "average":
         method = "bilinear"
     return _sample(read, u, v, method, (sx, sy))
+
+
+def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
+                   shrink: tuple[float, float] = (1.0, 1.0),
+                   reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None
+                   ) -> np.ndarray:
+    """:func:`sample` at cell-centre coordinates (``x``, ``y`` = u - 0.5, v - 0.5: cell i's
+    centre at i), e.g. from :meth:`compose.sources.grid.TransformGrid.cell_centres`. Plain
+    bilinear reads (no widening) take a path of few passes: 4 gathers from offset views of the
+    cells, weights and indices made once; the values are those of :func:`sample`."""
+    sx, sy = (1.0 if float(v) <= _SNAP else float(v) for v in shrink)
+    if method != "bilinear" or (sx, sy) != (1.0, 1.0):
+        return sample(read, x + 0.5, y + 0.5, method, shrink, reduce)
+    fx, fy = np.floor(x), np.floor(y)               # the first tap (cell centre left / above)
+    col0, row0 = int(fx.min()), int(fy.min())
+    bh, bw = int(fy.max()) + 2 - row0, int(fx.max()) + 2 - col0
+    flat = read(row0, col0, bh, bw).reshape(-1)
+    dx = np.empty(x.shape, np.float32)
+    dy = np.empty(y.shape, np.float32)
+    np.subtract(x, fx, out=dx, casting="same_kind")  # float64 difference, then float32
+    np.subtract(y, fy, out=dy, casting="same_kind")
+    fy *= bw                                          # flat index of the first tap (exact:
+    fy += fx                                          # integers far below 2**53)
+    fy -= row0 * bw + col0
+    base = fy.astype(np.intp)
+    del fx, fy
+    a, b = flat.take(base), flat[1:].take(base)
+    c, d = flat[bw:].take(base), flat[bw + 1:].take(base)
+    b -= a
+    b *= dx
+    a += b
+    d -= c
+    d *= dx
+    c += d
+    c -= a
+    c *= dy
+    out = a + c
+    bad = np.flatnonzero(np.isnan(out))
+    if bad.size:                             # no data under the kernel: renormalise over valid cells
+        valid = np.isfinite(flat)
+        filled = np.where(valid, flat, np.float32(0))
+        xb, yb = x.reshape(-1)[bad], y.reshape(-1)[bad]
+        sub = _weighted(filled, base.reshape(-1)[bad], dx.reshape(-1)[bad], dy.reshape(-1)[bad],
+                        2, 2, bw, _triangle, (1.0, 1.0), valid.astype(np.float32))
+        # the cell containing each position (u = x + 0.5)
+        centre = ((np.floor(yb + 0.5).astype(np.intp) - row0) * bw
+                  + (np.floor(xb + 0.5).astype(np.intp) - col0))
+        sub[~valid.take(centre)] = np.nan
+        out.reshape(-1)[bad] = sub
+    return out
 
 
 def cut_block(block: np.ndarray, r: int, c: int, h: int, w: int) -> np.ndarray:
