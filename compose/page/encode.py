@@ -40,7 +40,8 @@ except ImportError:                     # pragma: no cover - isal is a dependenc
 #: on how its input is cut, so it is always cut the same way)
 BLOCK = 256
 
-__all__ = ["png_bytes", "fast_png", "PngRows", "remember", "LEVEL", "BLOCK"]
+__all__ = ["png_bytes", "fast_png", "PngRows", "remember", "deferred", "filled", "png_of",
+           "PLACEHOLDER", "LEVEL", "BLOCK"]
 
 _TYPES = {"L": (1, 0), "RGB": (3, 2), "RGBA": (4, 6)}
 _lock = threading.Lock()
@@ -146,7 +147,53 @@ def remember(key: tuple, data: bytes) -> None:
         _known[key] = data
 
 
+#: what a save of an image whose pixels are not finished writes instead of its PNG file
+#: (:func:`deferred`); 3 x 24 bytes, so its base64 text stands alone, without padding
+PLACEHOLDER = b"compose: the map raster's PNG file is put here when the map is finished."[:72]
+_deferred: tuple[int, int] | None = None
+
+
+@contextlib.contextmanager
+def deferred(width: int, height: int):
+    """Within the block (and a :func:`fast_png` block), a plain PNG save of a ``width`` x
+    ``height`` image writes :data:`PLACEHOLDER` instead of the file: a page drawn while its
+    map is still being walked, whose image :func:`filled` puts in once the map is done."""
+    global _deferred
+    with _lock:
+        _deferred = (int(width), int(height))
+    try:
+        yield
+    finally:
+        with _lock:
+            _deferred = None
+
+
+def filled(text: bytes, png: bytes) -> bytes | None:
+    """``text`` (a file that embeds base64 PNG data, as SVG does) with the base64 text of
+    :data:`PLACEHOLDER` replaced by that of the PNG file ``png``; None unless the placeholder
+    is in it exactly once."""
+    import base64
+
+    mark = base64.b64encode(PLACEHOLDER)
+    if text.count(mark) != 1:
+        return None
+    return text.replace(mark, base64.b64encode(png))
+
+
+def png_of(pixels: np.ndarray) -> bytes:
+    """The PNG file :func:`fast_png` saves of ``pixels`` (H, W, 3) RGB uint8: the one
+    :func:`remember` filed for them, else :func:`png_bytes`."""
+    pixels = np.ascontiguousarray(pixels, dtype=np.uint8)
+    key = _key("RGB", pixels.shape, hashlib.blake2b(pixels.data, digest_size=20).digest())
+    with _lock:
+        data = _encoded.get(key) or _known.get(key)
+    return data if data is not None else png_bytes(pixels)
+
+
 def _save(im, fp, filename) -> None:
+    if _deferred is not None and im.size == _deferred and im.mode in ("RGB", "RGBA"):
+        fp.write(PLACEHOLDER)
+        return
     if im.mode in _TYPES and not im.encoderinfo:
         pixels = np.asarray(im)
         mode = im.mode

@@ -227,6 +227,10 @@ class EarlyPage:
     legend_png: bytes | None = None
     #: seconds the PDF took when it was written here (its drawing during the walk), else None
     pdf_seconds: float | None = None
+    #: the SVG drawn during the walk, its map image a placeholder
+    #: (:func:`compose.page.encode.deferred`), and the seconds it took; None when not drawn
+    svg: bytes | None = None
+    svg_seconds: float = 0.0
 
     def holds_for(self, nodata) -> bool:
         """Whether it was made for the no-data layers ``nodata`` the walk ended with."""
@@ -283,9 +287,23 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
         on_guess(nodata, layout, png)
     if tmp is None or rest is None:
         return early
-    from compose.page.encode import fast_png
+    import io
+
+    from compose.page.encode import deferred, fast_png
 
     add_map_image(fig, layout, sink.base)        # (its pixels are not read: see below)
+    # the SVG, drawn now with a stand-in for the map's PNG data, which is put in once the map is
+    # walked (compose.page.encode.filled): the SVG writer embeds an image as it draws it
+    t = time.perf_counter()
+    try:
+        with rc_context(rc), fast_png(), deferred(sink.base.shape[1], sink.base.shape[0]), \
+                span("page svg drawn early"):
+            buf = io.BytesIO()
+            fig.savefig(buf, format="svg", facecolor=fig.get_facecolor(),
+                        metadata=_svg_metadata(style, layout))
+        early.svg, early.svg_seconds = buf.getvalue(), time.perf_counter() - t
+    except Exception:                            # drawn after the walk instead
+        early.svg = None
     end = _AtTheEnd(rest)
     fig.add_artist(end)
     t = time.perf_counter()
@@ -303,6 +321,10 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
 def _pdf_metadata(style, layout) -> dict:
     return {"Title": layout.title or style.name, "Subject": style.page.caution,
             "Creator": "compose"}
+
+
+def _svg_metadata(style, layout) -> dict:
+    return {"Title": layout.title or style.name, "Description": style.page.caution}
 
 
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
@@ -334,7 +356,6 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
     if on_layout is not None:
         on_layout(layout)
     seconds = {}
-    meta_title = layout.title or style.name
     vectors = run_.layers[sink.below:]
     from compose.page.encode import fast_png
 
@@ -358,9 +379,19 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
         def svg() -> float:
             t = time.perf_counter()
             with span("page svg"):
-                fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
-                            metadata={"Title": meta_title, "Description": style.page.caution})
-            return time.perf_counter() - t
+                text = None
+                if early is not None and early.svg is not None:     # drawn during the walk
+                    from compose.page.encode import filled, png_of
+
+                    text = filled(early.svg, png_of(sink.base))
+                if text is not None:
+                    tmp["svg"].write_bytes(text)
+                    seconds["svg drawn early"] = early.svg_seconds if early is not None else 0.0
+                else:
+                    fig.savefig(tmp["svg"], format="svg", facecolor=fig.get_facecolor(),
+                                metadata=_svg_metadata(style, layout))
+            return (early.svg_seconds if text is not None and early is not None else 0.0) \
+                + time.perf_counter() - t
 
         # the page PNG's process also writes the SVG, beside the PDF, when its furniture was
         # drawn during the walk (else it draws it from its copy of the figure, which is changed)

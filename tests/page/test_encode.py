@@ -116,3 +116,25 @@ def test_an_opaque_rgba_save_is_stored_as_rgb():
     assert back.mode == "RGB" and np.array_equal(np.asarray(back), rgb)
     back = Image.open(io.BytesIO(translucent))
     assert back.mode == "RGBA" and np.array_equal(np.asarray(back), rgba)
+
+
+def test_a_deferred_save_is_filled_with_the_png_afterwards():
+    """compose.page.encode.deferred: the save of an unfinished image of the deferred size writes
+    the placeholder; filled() puts the finished image's PNG data in its place as base64 (the
+    data: URI form of RFC 2397 the SVG writer uses), and refuses text without exactly one."""
+    import base64
+
+    image = _image("RGB")
+    other = _image("L")
+    with encode.fast_png(), encode.deferred(image.shape[1], image.shape[0]):
+        buf, small = io.BytesIO(), io.BytesIO()
+        Image.fromarray(np.zeros_like(image)).save(buf, format="png")
+        Image.fromarray(other[:5]).save(small, format="png")      # another size: encoded
+    assert buf.getvalue() == encode.PLACEHOLDER
+    assert np.array_equal(np.asarray(Image.open(small)), other[:5])
+    text = b'<image xlink:href="data:image/png;base64,\n' + base64.b64encode(buf.getvalue()) + b'"/>'
+    png = encode.png_of(image)
+    done = encode.filled(text, png)
+    uri = done.split(b"base64,\n")[1].split(b'"')[0]
+    assert np.array_equal(np.asarray(Image.open(io.BytesIO(base64.b64decode(uri)))), image)
+    assert encode.filled(done, png) is None and encode.filled(text + text, png) is None

@@ -31,6 +31,12 @@ def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
     there = _render(tmp_path, "there", True, monkeypatch)
     assert there.outputs["page"].read_bytes() == here.outputs["page"].read_bytes()
     assert _pdf_without_date(there.outputs["pdf"]) == _pdf_without_date(here.outputs["pdf"])
+    # the SVG drawn during the walk with a stand-in for the map's PNG data, put in afterwards,
+    # is the SVG drawn here after the walk (ids and date aside: the SVG writer salts its ids)
+    svg = [re.sub(r'id="[^"]*"|url\(#[^)]*\)|xlink:href="#[^"]*"|<dc:date>[^<]*', "",
+                  out.outputs["svg"].read_text()) for out in (here, there)]
+    assert svg[0] == svg[1]
+    assert "page svg drawn early" in there.seconds and "page svg drawn early" not in here.seconds
     # the furniture's contrast results (judged with the layout the child sent) are the same
     rules = [(r.rule, r.layer, r.value) for r in here.report.rules]
     assert [(r.rule, r.layer, r.value) for r in there.report.rules] == rules
