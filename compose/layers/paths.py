@@ -17,7 +17,7 @@ from compose.errors import StyleError
 
 __all__ = ["to_pixels", "display", "flatten", "line_path", "area_path", "dashed"]
 
-_MULTI = (4, 5, 6, 7)   # shapely type ids of Multi* and GeometryCollection
+_MULTI = (4, 5, 6, 7)   # shapely type ids of Multi* and GeometryCollection (the ids from 4 up)
 
 
 def to_pixels(xy: np.ndarray, transform: Affine) -> np.ndarray:
@@ -41,7 +41,7 @@ def flatten(geoms) -> np.ndarray:
     """Flatten Multi* and collections into single-part geometries (empty and None dropped)."""
     g = np.asarray(geoms if not isinstance(geoms, shapely.Geometry) else [geoms], dtype=object)
     g = g[~shapely.is_missing(g)] if g.size else g
-    while g.size and np.isin(shapely.get_type_id(g), _MULTI).any():
+    while g.size and (shapely.get_type_id(g) >= _MULTI[0]).any():     # Multi* or a collection
         g = shapely.get_parts(g)
     return g[~shapely.is_empty(g)] if g.size else g
 
