@@ -95,7 +95,8 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
         return blocked_for(*args)
 
     store = _cache_of(style, canvas if canvas is not None else full, keep_clear, cache, mapper)
-    early = _read_vectors_early(style, store) if mapper is None else False
+    early = _read_vectors_early(style, store, canvas if is_draft else None) \
+        if mapper is None else False
     try:
         return _check(style, progress, mapper, full, canvas, is_draft, keep_clear, cache, store)
     finally:
@@ -109,21 +110,25 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
 _VECTOR_KINDS = ("lines", "areas", "points", "labels")
 
 
-def _read_vectors_early(style: Style, store) -> bool:
+def _read_vectors_early(style: Style, store, draft=None) -> bool:
     """Start reading the features of the enabled vector layers the check will read (not those
     its cache holds) on threads of their own (:func:`compose.sources.vector.read_early`), while
-    the engine is imported and the rasters prepared; True when any was started."""
+    the engine is imported and the rasters prepared; a ``draft`` canvas's lines, areas and
+    points simplified there too, as its layers ask; True when any was started."""
     specs = [s for s in style.layers if s.enabled and s.kind in _VECTOR_KINDS]
     held = store.held(specs) if store is not None else set()
     specs = [s for s in specs if s.name not in held]
     if not specs:
         return False
-    from compose.sources.vector import read_early
+    from compose.sources.vector import DRAFT_TOLERANCE, read_early
 
     for spec in specs:
         o = spec.options
+        simplify = draft.pixel * DRAFT_TOLERANCE if draft is not None and spec.kind != "labels" \
+            else None
         read_early(spec.source, layer=spec.name, table=getattr(o, "table", None),
-                   where=getattr(o, "where", None))
+                   where=getattr(o, "where", None), simplify=simplify,
+                   crs=None if draft is None else draft.crs)
     return True
 
 

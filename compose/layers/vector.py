@@ -9,9 +9,9 @@ import shapely
 
 from compose.layers.base import Context, Paint
 from compose.layers.draw import draw_areas, draw_lines, draw_points
-from compose.sources.vector import Features, VectorSource
+from compose.sources.vector import DRAFT_TOLERANCE, Features, VectorSource, simplified
 
-__all__ = ["LinesLayer", "AreasLayer", "PointsLayer"]
+__all__ = ["LinesLayer", "AreasLayer", "PointsLayer", "DRAFT_TOLERANCE"]
 
 
 def _window_box(transform, height, width, pad_px):
@@ -23,33 +23,12 @@ def _window_box(transform, height, width, pad_px):
     return (west - pad, south - pad, east + pad, north + pad)
 
 
-#: A draft check's lines and outlines are simplified to this many of its pixels (Douglas-Peucker,
-#: GEOS): a draft pixel spans many of the full canvas's, and thousands of vertices inside one
-#: pixel only make Agg sort crossings (10,000 lines of 100 vertices on the 8192 benchmark's
-#: 384 x 384 draft: 4.6 s to draw, 0.9 s simplified to half a pixel; the coverage sum moved 2 %).
-#: One pixel (a line moves by at most the width of a 1 px stroke) took the benchmark's whole
-#: draft check from 3.1 to 2.3 s in one process (loaded machine), with its overlay contrast
-#: 0.560 either way (full check 0.559) and every example style's verdicts unchanged.
-DRAFT_TOLERANCE = 1.0
-
-
 def _simplified(features, tolerance: float):
     """``features`` with lines and polygon rings simplified within ``tolerance`` (CRS units;
-    polygons keep valid topology, points stay)."""
-    geoms = features.geometries
-    if len(geoms) == 0:
+    polygons keep valid topology, points stay; see :func:`compose.sources.vector.simplified`)."""
+    geoms, keep = simplified(features.geometries, tolerance)
+    if keep is None:
         return features
-    kinds = shapely.get_type_id(geoms)
-    lines = np.isin(kinds, (1, 2, 5))           # LineString, LinearRing, MultiLineString
-    areas = np.isin(kinds, (3, 6))              # Polygon, MultiPolygon
-    if not (lines.any() or areas.any()):
-        return features
-    geoms = geoms.copy()
-    if lines.any():
-        geoms[lines] = shapely.simplify(geoms[lines], tolerance, preserve_topology=False)
-    if areas.any():
-        geoms[areas] = shapely.simplify(geoms[areas], tolerance, preserve_topology=True)
-    keep = ~shapely.is_empty(geoms)
     return type(features).build(geoms[keep], [p for p, k in zip(features.properties, keep) if k])
 
 
@@ -61,11 +40,14 @@ class _VectorLayer:
         self.spec = spec
         self.options = o = spec.options
         self.canvas = context.canvas
-        self.source = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.where)
+        self.draft = context.draft
+        #: a draft's simplification, in canvas CRS units (see DRAFT_TOLERANCE)
+        self.tolerance = self.canvas.pixel * DRAFT_TOLERANCE if self.draft else None
+        self.source = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.where,
+                                   simplified=self.tolerance)
         self.source.check_overlap(self.canvas)
         self.px = self.canvas.points_to_pixels
         self.margin = int(np.ceil(self._reach_px())) + 2
-        self.draft = context.draft
         self._held: Features | None = self._cut()
 
     def _cut(self) -> Features:
@@ -76,9 +58,10 @@ class _VectorLayer:
         pad = (self.margin + 2) * self.canvas.pixel
         features = self.source.load(self.canvas.crs).in_box(
             (west - pad, south - pad, east + pad, north + pad))
+        done = self.source.simplified   # read simplified already (compose.sources.vector.read_early)
         self.source.release()       # the cut is all the windows draw from
-        if self.draft:
-            features = _simplified(features, self.canvas.pixel * DRAFT_TOLERANCE)
+        if self.tolerance is not None and done != self.tolerance:
+            features = _simplified(features, self.tolerance)
         return features
 
     @property

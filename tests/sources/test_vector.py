@@ -182,3 +182,33 @@ def test_file_metadata_is_read_once_per_file_version(tmp_path, monkeypatch):
     path.unlink()                                             # a new file at the same path
     write_vector(path, one + one, crs=GEO, properties=props, table="second")
     assert VectorSource(path, layer="z").table == "second" and len(calls) == 2
+
+
+def test_an_early_read_is_taken_by_the_source_asking_for_it_and_only_by_it(tmp_path):
+    """compose.sources.vector.read_early: the features a later source of the same file, table,
+    filter and draft tolerance takes are the ones it would read (simplified with GEOS's
+    Douglas-Peucker as compose.sources.vector.simplified does when the draft asked for it and
+    the file is in the draft's CRS); a source asking for something else reads on its own."""
+    from compose.sources import vector
+
+    rng = np.random.default_rng(5)
+    walks = np.cumsum(rng.normal(0, 30.0, (20, 50, 2)), axis=1) + 500000.0
+    feats = [({"type": "LineString", "coordinates": [tuple(p) for p in w]}, {"name": f"l{i}"})
+             for i, w in enumerate(walks)]
+    path = write_vector(tmp_path / "w.gpkg", feats, crs="EPSG:32631", properties={"name": "str"})
+    plain = VectorSource(path, layer="plain")._read()
+    vector.read_early(path, layer="early", simplify=60.0, crs="EPSG:32631")
+    other = VectorSource(path, layer="other")                # no tolerance: its own read
+    assert other._read()[1] == plain[1] and other.simplified is None
+    assert np.array_equal(shapely.to_wkb(other._read()[0]), shapely.to_wkb(plain[0]))
+    taken = VectorSource(path, layer="taken", simplified=60.0)
+    geoms, props = taken._read()
+    assert taken.simplified == 60.0 and props == plain[1]
+    want, keep = vector.simplified(plain[0], 60.0)
+    assert keep is not None and keep.all()
+    assert np.array_equal(shapely.to_wkb(geoms), shapely.to_wkb(want))
+    assert shapely.get_num_coordinates(geoms).sum() < shapely.get_num_coordinates(plain[0]).sum()
+    taken.release()
+    assert taken.simplified is None                          # read again: as the file is
+    assert np.array_equal(shapely.to_wkb(taken._read()[0]), shapely.to_wkb(plain[0]))
+    vector.forget_early()
