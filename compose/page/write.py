@@ -278,8 +278,9 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
             fig = (ahead if ahead is not None and finishes(ahead, layout)
                    else start_page_figure(style, layout, layers=run_.layers[sink.below:]))
             finish_page_figure(fig, style, layout, None, legend_layout=legend)
-        with span("page furniture"):
-            furniture = furniture_rgba(style, layout, legend, run_.canvas.dpi)
+        with span("page furniture"):        # from the same figure, left as it was
+            furniture = furniture_rgba(style, layout, legend, run_.canvas.dpi, fig=fig,
+                                       keep=True)
     with span("legend png"):
         png = legend_png(run_, nodata) if legend_png is not None else None
     early = EarlyPage(_frozen(nodata), legend, layout, fig, furniture, png)
@@ -476,24 +477,32 @@ MIN_PAGE_DPI = 72.0
 
 
 def furniture_rgba(style, layout: PageLayout, legend, dpi: float,
-                   fig=None) -> tuple[np.ndarray, tuple]:
+                   fig=None, keep: bool = False) -> tuple[np.ndarray, tuple]:
     """The page's furniture drawn by Agg on a transparent page at ``dpi`` (at least
     :data:`MIN_PAGE_DPI`): (H, W, 4) uint8 straight RGBA, and the paper colour (RGBA floats).
-    ``fig``: see :func:`page_png`."""
+    ``fig``: see :func:`page_png`; with ``keep``, ``fig`` is left as it was (its map frame
+    shown again, its paper, dots per inch and canvas restored), to be written afterwards."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
-    from compose.page.draw import furniture_only, page_figure
+    from compose.page.draw import MAP_AXES, furniture_only, page_figure
 
     dpi = max(float(dpi), MIN_PAGE_DPI)          # type needs a few pixels per point
     if fig is None:
-        fig = page_figure(style, layout, None, legend_layout=legend)
-    else:
-        furniture_only(fig)
+        fig, keep = page_figure(style, layout, None, legend_layout=legend), False
+    frame = [ax for ax in fig.axes if ax.get_label() == MAP_AXES and ax.get_visible()]
+    was = (fig.patch.get_alpha(), fig.dpi, fig.canvas)
+    furniture_only(fig)
     paper = tuple(fig.get_facecolor())
     fig.patch.set_alpha(0.0)
     fig.set_dpi(dpi)
     agg = FigureCanvasAgg(fig)
     agg.draw()
+    if keep:
+        for ax in frame:
+            ax.set_visible(True)
+        fig.patch.set_alpha(was[0])
+        fig.set_dpi(was[1])
+        fig.set_canvas(was[2])
     return np.asarray(agg.buffer_rgba()), paper
 
 
