@@ -50,6 +50,14 @@ def _hex(rgb) -> str:
     return "#" + "".join(_BYTE_HEX[int(round(min(max(float(v), 0.0), 1.0) * 255))] for v in rgb)
 
 
+def _hexes(rgb) -> list[str]:
+    """:func:`_hex` of every row of (n, 3) sRGB floats, at once (the same rounding: half to
+    even)."""
+    codes = np.rint(np.clip(np.asarray(rgb, dtype=float).reshape(-1, 3), 0.0, 1.0) * 255)
+    packed = codes.astype(np.int64) @ np.array([1 << 16, 1 << 8, 1], np.int64)
+    return [f"#{v:06x}" for v in packed.tolist()]
+
+
 def _title(fig: Figure, text: str, passed: bool | None, note: str = "") -> None:
     fig.text(8, 16, text, 11, INK)
     if passed is not None:   # the verdict in a mark and a word, not by colour alone
@@ -108,9 +116,9 @@ def lightness_chroma_svg(spec, s, ctx, passed: bool | None) -> str:
     share = weights / weights.sum()
     radius = 1.4 + 8.5 * np.sqrt(share / share.max())      # area proportional to pixels
     edge = ui.DOT_EDGE.hex
+    fills = _hexes(colors / 255.0)
     for i in order[-600:]:                                   # the 600 largest are plenty
-        ax.dot(float(lch[i, 1]), float(lch[i, 0]), float(radius[i]), _hex(colors[i] / 255.0),
-               edge, 0.4)
+        ax.dot(float(lch[i, 1]), float(lch[i, 0]), float(radius[i]), fills[i], edge, 0.4)
     ax.rect(c5, l5, max(c95, c5 + 0.15), l95, stroke=verdict, width=1.4, dash="2 2")
     if theme:
         ax.marker(c50, 0, 5, verdict)
@@ -156,7 +164,7 @@ def overlay_svg(spec, s, j: dict | None, passed: bool | None) -> str:
     lo, hi = _failing_band(y, limit)
     a1.rect(lo, 0, hi, top, fill=ui.FAIL.hex, opacity=0.09)
     x = np.arange(hist.size, dtype=float)
-    grays = [_hex(g) for g in _gray(x)]
+    grays = _hexes(_gray(x))
     a1.bars(x - 0.5, x + 0.5, pct, grays, ui.BAR_EDGE.hex, 0.4)
     if j["outline"] is not None and j["outline"].beneath_lightness is not None:
         oh = np.asarray(j["outline"].beneath_lightness, dtype=float)
@@ -219,17 +227,19 @@ def ramp_svg(ramp, lut) -> str:
     if ramp.kind == "qualitative":
         w = (RAMP_W - 16) / max(n, 1)
         ax = fig.axes(8, 26, RAMP_W - 8, 60, (0, n), (0, 1))
+        fills = _hexes(rgb)
         for i in range(n):
-            ax.rect(i, 0, i + 1, 1, fill=_hex(rgb[i]), stroke=ui.PAPER.hex, width=1.5)
+            ax.rect(i, 0, i + 1, 1, fill=fills[i], stroke=ui.PAPER.hex, width=1.5)
             if w > 22:
                 ax.text(i + 0.5, 0, f"{values[i]:g}", 9, INK, anchor="middle", dy=13)
         return fig.svg()
     lo, hi = (float(v) for v in ramp.domain)
     edges = np.asarray(lut.edges, dtype=float)           # (n + 1,) interval edges
     strip = fig.axes(48, 26, RAMP_W - 14, 52, (lo, hi), (0, 1))
+    fills = _hexes(rgb)
     for i in range(n):
-        strip.rect(float(edges[i]), 0, float(edges[i + 1]), 1, fill=_hex(rgb[i]),
-                   stroke=_hex(rgb[i]), width=0.6)
+        strip.rect(float(edges[i]), 0, float(edges[i + 1]), 1, fill=fills[i], stroke=fills[i],
+                   width=0.6)
     lch = srgb_to_lch(rgb)
     ax = fig.axes(48, 66, RAMP_W - 14, RAMP_H - 44, (lo, hi), (0, 100))
     ax.frame(nice_ticks(lo, hi, 5), [0, 25, 50, 75, 100], "data value",
