@@ -29,3 +29,18 @@ def test_log_axis_and_ticks():
     assert abs(ax.x(10) - 50.0) < 1e-9
     assert nice_ticks(0, 100) == [0, 20, 40, 60, 80, 100]
     assert nice_ticks(0, 37, 4) == [0, 10, 20, 30]
+
+
+def test_colours_to_hex_at_once_match_one_at_a_time():
+    """compose.output.html_plots._hexes gives _hex's "#rrggbb" (CSS Color Module Level 4
+    hex notation) for every row: random colours inside and outside [0, 1] (clipped) and every
+    8-bit code and half step between codes (rounded half to even, as Python's round)."""
+    import numpy as np
+
+    from compose.output.html_plots import _hex, _hexes
+
+    rng = np.random.default_rng(1)
+    codes = np.arange(256, dtype=float)[:, None] * np.ones(3)
+    rgb = np.concatenate([rng.random((20000, 3)) * 1.2 - 0.1, codes / 255, (codes + 0.5) / 255])
+    assert _hexes(rgb) == [_hex(c) for c in rgb]
+    assert _hexes([[1.0, 0.5, 0.0]]) == ["#ff8000"]      # 0.5 * 255 = 127.5 -> 128 (even)
