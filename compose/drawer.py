@@ -141,9 +141,11 @@ class DrawAhead:
             payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
             ctx = multiprocessing.get_context("forkserver")
             ctx.set_forkserver_preload(PRELOAD)
-            executor = ProcessPoolExecutor(1, mp_context=ctx, initializer=_init,
-                                           initargs=(payload,))
-            executor.submit(len, ()).result()       # up, with the layers unpacked
+            executor = ProcessPoolExecutor(1, mp_context=ctx)
+            # the layers go as a task, not as the worker's initializer arguments, which both
+            # processes would keep for the whole walk (the features' WKB: 17 MB for 1 M vertices)
+            executor.submit(_init, payload).result()    # up, with the layers unpacked
+            del payload
         except Exception:       # no helper here (e.g. no forkserver): the threads draw
             if executor is not None:
                 executor.shutdown(wait=False, cancel_futures=True)
