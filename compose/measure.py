@@ -16,11 +16,14 @@ colour, and as overlays by the contrast against what lies beneath.
 from __future__ import annotations
 
 import functools
+import threading
 from typing import Any
 
 import numpy as np
 
-from compose.check.stats import (
+from compose.check.stats import (  # the Y -> L* table and its size
+    _L_BIN,
+    _Y_LEVELS,
     BENEATH_BITS,
     CONTRAST_STEP,
     N_BENEATH,
@@ -41,6 +44,36 @@ __all__ = ["GRAY_STRIDE", "new_statistics", "WindowMeasure"]
 GRAY_STRIDE = 2  # the grey-order histogram samples every 2nd row and column
 # linear-light value of each 8-bit sRGB code (IEC 61966-2-1 decoding, compose.color.srgb)
 _LINEAR8 = srgb_to_linear(np.arange(256) / 255.0)
+
+_local = threading.local()
+
+
+def _scratch(name: str, shape: tuple[int, ...], dtype) -> np.ndarray:
+    """A buffer of this thread kept across windows (contents undefined): a window's large
+    temporaries reuse the same pages instead of faulting fresh ones in (a few MB per thread).
+    Never part of a result."""
+    bufs = _local.__dict__.setdefault("bufs", {})
+    n = int(np.prod(shape))
+    buf = bufs.get(name)
+    if buf is None or buf.size < n or buf.dtype != dtype:
+        buf = bufs[name] = np.empty(n, dtype)
+    return buf[:n].reshape(shape)
+
+
+def _intp_of(a: np.ndarray) -> np.ndarray:
+    """``a`` (any layout, integers) as a contiguous intp (n,) scratch array: what np.bincount
+    would convert it to, without a fresh allocation per call."""
+    out = _scratch("intp", a.shape, np.intp)
+    np.copyto(out, a, casting="unsafe")
+    return out.reshape(-1)
+
+
+def _float64_of(a: np.ndarray) -> np.ndarray:
+    """``a`` (any layout, float32) as a contiguous float64 (n,) scratch array (exact: every
+    float32 is a float64), the weights np.bincount would convert it to."""
+    out = _scratch("f64", a.shape, np.float64)
+    np.copyto(out, a)
+    return out.reshape(-1)
 
 
 def new_statistics(layers: list, width: int, height: int,
@@ -114,15 +147,87 @@ def _beneath_codes(planes8: np.ndarray) -> np.ndarray:
     return codes
 
 
+def _present(codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct beneath-colour ``codes`` ((n,) intp in [0, N_BENEATH)), ascending, and each
+    code's place among them ((n,) intp): a sort-free ``np.unique(codes, return_inverse=True)``
+    by marks in a table of this thread."""
+    seen = _local.__dict__.get("seen")
+    if seen is None:                    # all zeros between calls
+        seen = _local.seen = np.zeros(N_BENEATH, np.uint8)
+    seen[codes] = 1
+    # the marked bins, ascending: first the 8-byte words holding any, then their bytes
+    words = np.flatnonzero(seen.view(np.uint64))
+    marks = np.flatnonzero(seen.reshape(-1, 8)[words])
+    present = words[marks >> 3] * 8 + (marks & 7)
+    seen[present] = 0
+    slot = _scratch("slot", (N_BENEATH,), np.intp)
+    slot[present] = np.arange(present.size)
+    return present, np.take(slot, codes)
+
+
+def _beneath_hist(codes: np.ndarray, weights: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The weighted histogram of beneath-colour ``codes`` (n,) as its non-empty bins: (codes
+    present, ascending; their summed weights) -- each bin the sum of the same weights in the
+    same order as ``np.bincount(codes, weights, minlength=N_BENEATH)`` adds them, without that
+    2 MB array of mostly zeros."""
+    present, slots = _present(codes)
+    return present, np.bincount(slots, weights=weights, minlength=present.size)
+
+
+def _sums_exact(weights: np.ndarray) -> bool:
+    """True when every sum of any of these weights (float64 (n,) > 0 holding float32 values),
+    added in any order, is exact in float64, so sums grouped differently have the same bits.
+    Every float32 at or above the smallest weight is a whole multiple of that weight's float32
+    spacing u (IEEE 754 binary32: 24-bit significands), so every partial sum is too; below
+    n x max / u < 2**53 each is representable exactly (binary64: 53-bit significands). Coverage
+    of 8-bit steps (>= 1/255, u = 2**-31) on a 512 px window leaves a margin of 2**4."""
+    lowest = float(weights.min())
+    u = 2.0 ** (np.frexp(np.float32(lowest))[1] - 24)
+    return lowest > 0 and weights.size * float(weights.max()) < u * 2.0 ** 53
+
+
+def _overlay_by_color(part: PartStats, y_part: float, below8: np.ndarray,
+                       weights: np.ndarray) -> None:
+    """The beneath histograms of an overlay part (contrast, L*, colours) from the distinct
+    8-bit colours beneath it: pixels are grouped by colour first (the beneath-colour code's
+    place, then the two low bits per channel), each colour's weights summed, and the
+    histograms made from a few thousand colours instead of every pixel. Only for weights whose
+    sums are exact in any order (:func:`_sums_exact`): then every bin is the same float64 as
+    summing pixel by pixel."""
+    present, slots = _present(_beneath_codes(below8))
+    low = np.bitwise_and(below8[0], 3) << 4
+    low |= np.bitwise_and(below8[1], 3) << 2
+    low |= np.bitwise_and(below8[2], 3)
+    key = slots << 6
+    key += low
+    per_key = np.bincount(key, weights=weights, minlength=present.size << 6)
+    keys = np.flatnonzero(per_key)      # weights > 0: exactly the colours there
+    w = per_key[keys]
+    slot = keys >> 6
+    code, low_k = present[slot], keys & 63
+    shift = 8 - BENEATH_BITS
+    mask = (1 << BENEATH_BITS) - 1
+    colors = np.empty((3, keys.size), np.uint8)
+    colors[0] = (((code >> (2 * BENEATH_BITS)) & mask) << shift) | (low_k >> 4)
+    colors[1] = (((code >> BENEATH_BITS) & mask) << shift) | ((low_k >> 2) & 3)
+    colors[2] = ((code & mask) << shift) | (low_k & 3)
+    y = _luminance8(colors)
+    part.contrast = np.bincount(_contrast_bins(y_part, y), weights=w, minlength=N_CONTRAST)
+    part.beneath_lightness = np.bincount(np.take(_cell_bounds()[2], _cells(y)), weights=w,
+                                         minlength=N_LIGHTNESS)
+    part.add_beneath(present, np.bincount(slot, weights=w, minlength=present.size))
+
+
 @functools.lru_cache(maxsize=256)
 def _luminance_of(color: tuple) -> float:
     """WCAG relative luminance of a flat colour (sRGB floats), remembered."""
     return float(relative_luminance(np.asarray(color)))
 
 
-def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> np.ndarray:
-    """Weighted histogram (N_CONTRAST,) of the WCAG contrast of a colour against luminances
-    (the arithmetic of :func:`compose.check.stats.contrast_bins`, in place)."""
+def _contrast_bins(y_part: float, y_below: np.ndarray) -> np.ndarray:
+    """Bin (intp (n,)) of the WCAG 2 contrast ratio of a colour of luminance ``y_part`` against
+    luminances ``y_below`` (float32 (n,)): the arithmetic of
+    :func:`compose.check.stats.contrast_bins`, in float64, in place."""
     y = y_below.astype(np.float64)
     ratio = np.maximum(y, y_part)
     ratio += 0.05
@@ -134,7 +239,70 @@ def _contrast_hist(y_part: float, y_below: np.ndarray, weights: np.ndarray) -> n
     ratio += 1e-9
     np.floor(ratio, out=ratio)
     np.clip(ratio, 0, N_CONTRAST - 1, out=ratio)
-    return np.bincount(ratio.astype(np.intp), weights=weights, minlength=N_CONTRAST)
+    return ratio.astype(np.intp)
+
+
+def _cells(y: np.ndarray) -> np.ndarray:
+    """The Y cell (intp (n,), 0..65535) of float32 luminances: the index
+    :func:`compose.check.stats.lightness_bins_of_luminance` looks L* up with (same float32
+    arithmetic)."""
+    t = np.multiply(y, np.float32(_Y_LEVELS - 1))
+    t += np.float32(0.5)
+    cell = t.astype(np.intp)
+    np.minimum(cell, _Y_LEVELS - 1, out=cell)
+    return cell
+
+
+@functools.lru_cache(maxsize=1)
+def _cell_bounds() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(first, last) float32 luminance of every Y cell of :func:`_cells` (the smallest and the
+    largest float32 in it; last < first for a cell no float32 falls in; the top cell ends at
+    the luminance of 8-bit white, the largest :func:`_luminance8` gives), and L* (intp) per
+    cell. Found by bisection over the float32 bit patterns: the cell is a non-decreasing
+    function of y (float32 multiply, add and truncation are monotone)."""
+    target = np.arange(_Y_LEVELS)
+    lo = np.full(_Y_LEVELS, -1, np.int64)                     # cell(bits lo) < target
+    hi = np.full(_Y_LEVELS, int(np.float32(2.0).view(np.uint32)), np.int64)   # >= target
+    while True:
+        open_ = hi - lo > 1
+        if not open_.any():
+            break
+        mid = (lo + hi) // 2
+        y = np.maximum(mid, 0).astype(np.uint32).view(np.float32)
+        up = _cells(y) >= target
+        hi = np.where(open_ & up, mid, hi)
+        lo = np.where(open_ & ~up, mid, lo)
+    first = hi.astype(np.uint32).view(np.float32)
+    white = _luminance8(np.full((3, 1), 255, np.uint8))[0]
+    last = np.empty_like(first)
+    last[:-1] = np.nextafter(first[1:], np.float32(-1))
+    last[-1] = white
+    return first, last, _L_BIN.astype(np.intp)
+
+
+@functools.lru_cache(maxsize=64)
+def _contrast_table(y_part: float) -> np.ndarray:
+    """Contrast bin (intp (65536,)) of every Y cell against a colour of luminance ``y_part``,
+    -1 where the cell holds luminances of more than one bin. The bin is monotone in y on each
+    side of ``y_part`` (IEEE float64 addition and division are monotone), so a cell's bins lie
+    between those of its first and last luminance, and of ``y_part`` when the cell holds it:
+    equal ends (and no ``y_part`` inside) make the whole cell one bin."""
+    first, last, _ = _cell_bounds()
+    a, b = _contrast_bins(y_part, first), _contrast_bins(y_part, last)
+    inside = (first.astype(np.float64) <= y_part) & (y_part <= last.astype(np.float64))
+    table = np.where((a == b) & ~(inside & (a > 0)), a, -1)
+    table[last < first] = 0                 # no luminance falls in these cells
+    return table
+
+
+def _contrast_of_cells(y_part: float, cells: np.ndarray, y_below: np.ndarray) -> np.ndarray:
+    """:func:`_contrast_bins` of ``y_below`` (float32 (n,)) whose Y cells are ``cells``: the
+    cell's bin by table, computed only where a cell spans a bin edge (a few % of pixels)."""
+    bins = np.take(_contrast_table(y_part), cells)
+    edge = np.flatnonzero(bins < 0)
+    if edge.size:
+        bins[edge] = _contrast_bins(y_part, np.take(y_below, edge))
+    return bins
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
@@ -150,13 +318,13 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     alpha_core = alpha[inner]
     opaque = False
     if paint.palette is not None:
-        idx = paint.index[inner].ravel()
+        idx = _intp_of(paint.index[inner])
         n = paint.palette.rgb8.shape[0]
         opaque = padded_opaque or bool(alpha_core.min() >= 1.0)
         if opaque:                      # an unweighted count is ~3x faster
             w = np.bincount(idx, minlength=n)
         else:
-            w = np.bincount(idx, weights=alpha_core.ravel(), minlength=n)
+            w = np.bincount(idx, weights=_float64_of(alpha_core), minlength=n)
         part = PartStats(paint.part, paint.palette.rgb8, w.astype(float))
         if paint.palette.nodata >= 0:
             stats.nodata_weight += float(w[paint.palette.nodata])
@@ -167,22 +335,29 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
         pix = _core_pixels(alpha, inner)
         if pix.size:
             # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
-            weights = np.take(alpha.reshape(-1), pix)
+            weights = np.take(alpha.reshape(-1), pix).astype(np.float64)   # exact
             below8 = _take8(beneath, pix)
             color = paint.color
             y_part = (_luminance_of(color) if isinstance(color, tuple)
                       else float(relative_luminance(np.asarray(color))))
-            y_below = _luminance8(below8)
-            part.contrast = _contrast_hist(y_part, y_below, weights)
+            if alpha.dtype == np.float32 and _sums_exact(weights):
+                _overlay_by_color(part, y_part, below8, weights)
+            else:
+                y_below = _luminance8(below8)
+                cells = _cells(y_below)         # contrast and L* both by the Y cell's tables
+                part.contrast = np.bincount(_contrast_of_cells(y_part, cells, y_below),
+                                            weights=weights, minlength=N_CONTRAST)
+                part.beneath_lightness = np.bincount(np.take(_cell_bounds()[2], cells),
+                                                     weights=weights, minlength=N_LIGHTNESS)
+                part.add_beneath(*_beneath_hist(_beneath_codes(below8), weights))
             if ground8 is not None:
-                part.ground_contrast = _contrast_hist(
-                    y_part, _luminance8(_take8(ground8, pix)), weights)
+                y_ground = _luminance8(_take8(ground8, pix))
+                part.ground_contrast = np.bincount(
+                    _contrast_of_cells(y_part, _cells(y_ground), y_ground),
+                    weights=weights, minlength=N_CONTRAST)
             else:                       # the layer's first part: beneath is the ground
+                assert part.contrast is not None
                 part.ground_contrast = part.contrast.copy()
-            lb = lightness_bins_of_luminance(y_below)
-            part.beneath_lightness = np.bincount(lb, weights=weights, minlength=N_LIGHTNESS)
-            part.beneath_colors = np.bincount(_beneath_codes(below8), weights=weights,
-                                              minlength=N_BENEATH)
     if paint.part in stats.parts:
         stats.parts[paint.part].merge(part)
     else:
@@ -248,7 +423,9 @@ class WindowMeasure:
             if self._opaque:            # ones only: their float32 sum is their count, exactly
                 self.stats.layers[li].covered += float(self._union.size)
             else:   # summed as a contiguous array (the sum's rounding depends on the layout)
-                self.stats.layers[li].covered += float(np.ascontiguousarray(self._union).sum())
+                union = _scratch("union", self._union.shape, self._union.dtype)
+                np.copyto(union, self._union)
+                self.stats.layers[li].covered += float(union.sum())
             if layer.spec.role == "overlay":
                 self._hidden = (self._union if self._hidden is None
                                 else np.maximum(self._hidden, self._union))
@@ -293,27 +470,34 @@ class WindowMeasure:
             for (li, index, _, _), a_s, above in zip(themes, sampled_alpha, covered_above):
                 s = self.stats.layers[li]
                 assert s.value_lightness is not None          # filtered above
-                n = s.value_lightness.shape[0]
                 # pixels left out are counted in one bin past the table's end, dropped after
                 # (every other bin gets the same pixels in the same order as by selecting them)
                 keep = None if a_s is None else a_s > 0.5
                 if shown is not None:   # grey order is judged where the theme shows, not under lines
                     keep = shown if keep is None else (keep & shown)
-                cell = np.multiply(index[sub].ravel(), N_LIGHTNESS, dtype=np.intp)
+                index_s = index[sub]
+                if not index_s.size:
+                    continue
+                # counted over the entries this window has (lo..hi): the same numbers in the
+                # same order per entry, without the table's other rows of zeros
+                lo, hi = int(index_s.min()), int(index_s.max())
+                m = hi - lo + 1
+                cell = np.multiply(index_s.ravel(), N_LIGHTNESS, dtype=np.intp)
                 cell += lightness
+                cell -= lo * N_LIGHTNESS
                 if keep is not None:
-                    np.putmask(cell, ~keep, n * N_LIGHTNESS)
-                counts = np.bincount(cell, minlength=n * N_LIGHTNESS + 1)[
-                    :n * N_LIGHTNESS].reshape(n, N_LIGHTNESS)
-                s.value_lightness += counts
+                    np.putmask(cell, ~keep, m * N_LIGHTNESS)
+                counts = np.bincount(cell, minlength=m * N_LIGHTNESS + 1)[
+                    :m * N_LIGHTNESS].reshape(m, N_LIGHTNESS)
+                s.value_lightness[lo:hi + 1] += counts
                 if s.value_color is not None and s.value_count is not None:   # blended colours
                     if above is True:       # hidden by an opaque theme drawn later everywhere
                         continue
                     if a_s is None and above is None:
                         # drawn where shown, as kept above: the same pixels, counted there
-                        s.value_count += counts.sum(axis=1)
+                        s.value_count[lo:hi + 1] += counts.sum(axis=1)
                         idx = cell
-                        idx //= N_LIGHTNESS         # the entry (n where left out)
+                        idx //= N_LIGHTNESS         # the entry - lo (m where left out)
                     else:
                         drawn = None if a_s is None else a_s > 0   # wherever drawn, however faint
                         if shown is not None:
@@ -321,13 +505,14 @@ class WindowMeasure:
                         if isinstance(above, np.ndarray):
                             low = above <= 0.5
                             drawn = low if drawn is None else (drawn & low)
-                        idx = index[sub].ravel().astype(np.intp)
+                        idx = index_s.ravel().astype(np.intp)
+                        idx -= lo
                         if drawn is not None:
-                            np.putmask(idx, ~drawn, n)
-                        s.value_count += np.bincount(idx, minlength=n + 1)[:n]
+                            np.putmask(idx, ~drawn, m)
+                        s.value_count[lo:hi + 1] += np.bincount(idx, minlength=m + 1)[:m]
                     if linear is None:
                         linear = [np.take(_LINEAR8, sampled[c], mode="wrap") for c in range(3)]
                     for c in range(3):   # linear-light channel values of the composite
-                        s.value_color[:, c] += np.bincount(idx, weights=linear[c],
-                                                           minlength=n + 1)[:n]
+                        s.value_color[lo:hi + 1, c] += np.bincount(idx, weights=linear[c],
+                                                                   minlength=m + 1)[:m]
         return self.stats

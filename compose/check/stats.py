@@ -174,6 +174,29 @@ def spearman_from_table(table: np.ndarray, row_values: np.ndarray, col_values: n
     return float(cov / np.sqrt(vr * vc))
 
 
+class _BeneathColors:
+    """The descriptor behind :attr:`PartStats.beneath_colors`: the dense (N_BENEATH,) histogram,
+    made on first read from the few (code, weight) pairs a window measured
+    (:meth:`PartStats.add_beneath`), so a window's statistics never hold, zero or add a 2 MB
+    array of mostly zeros (a window of the 8192 benchmark sees about 640 of its 262,144 bins).
+    A dataclass field's default is this descriptor's value on the class: None."""
+
+    def __get__(self, obj, owner=None) -> np.ndarray | None:
+        if obj is None:
+            return None
+        d = obj.__dict__
+        sparse = d.get("_beneath_sparse")
+        if sparse is not None:
+            dense = np.zeros(N_BENEATH)
+            dense[sparse[0]] = sparse[1]        # codes are distinct: 0 + w = w exactly
+            d["_beneath_dense"], d["_beneath_sparse"] = dense, None
+        return d.get("_beneath_dense")
+
+    def __set__(self, obj, value: np.ndarray | None) -> None:
+        obj.__dict__["_beneath_dense"] = value
+        obj.__dict__["_beneath_sparse"] = None
+
+
 @dataclass
 class PartStats:
     """One part of a layer (shade, data, fill, stroke, halo, text, marker) over the whole canvas.
@@ -185,7 +208,8 @@ class PartStats:
     for a stroke drawn over its own halo).
     beneath_lightness: (N_LIGHTNESS,) L* histogram of what lay beneath (overlays only).
     beneath_colors: (N_BENEATH,) histogram of what lay beneath, 8-bit colours cut to
-    BENEATH_BITS per channel (overlays only; for colour differences beyond lightness).
+    BENEATH_BITS per channel (overlays only; for colour differences beyond lightness). A window
+    measures it as (code, weight) pairs (:meth:`add_beneath`); reading it gives the dense array.
     seen: (n,) the weights as seen on the composite -- each pixel's coverage times what the
     layers drawn later with blend "normal" let through of it (1 - their alpha, multiplied) --
     for a relief's shading; None when nothing was drawn normally over it (then equal to
@@ -198,15 +222,32 @@ class PartStats:
     contrast: np.ndarray | None = None
     ground_contrast: np.ndarray | None = None
     beneath_lightness: np.ndarray | None = None
-    beneath_colors: np.ndarray | None = None
+    beneath_colors: _BeneathColors = _BeneathColors()
     seen: np.ndarray | None = None
+
+    def add_beneath(self, codes: np.ndarray, weights: np.ndarray) -> None:
+        """Add weights (float64 (k,)) to the beneath-colour bins ``codes`` ((k,) distinct
+        integers in [0, N_BENEATH)); the arrays are kept, not copied."""
+        d = self.__dict__
+        dense, sparse = d.get("_beneath_dense"), d.get("_beneath_sparse")
+        if dense is None and sparse is None:
+            d["_beneath_sparse"] = (codes, weights)
+            return
+        if dense is None:
+            dense = self.beneath_colors     # the pairs so far, spread
+            assert dense is not None
+        dense[codes] += weights             # codes distinct: each bin added to once
 
     def copy(self) -> PartStats:
         """A copy whose histograms can be added to without touching this one."""
-        return PartStats(self.part, self.colors, self.weights.copy(),
-                         *(None if a is None else a.copy() for a in (
-                             self.contrast, self.ground_contrast, self.beneath_lightness,
-                             self.beneath_colors, self.seen)))
+        sparse = self.__dict__.get("_beneath_sparse")
+        out = PartStats(self.part, self.colors, self.weights.copy(),
+                        *(None if a is None else a.copy() for a in (
+                            self.contrast, self.ground_contrast, self.beneath_lightness,
+                            None if sparse is not None else self.beneath_colors, self.seen)))
+        if sparse is not None:
+            out.add_beneath(sparse[0].copy(), sparse[1].copy())
+        return out
 
     @property
     def seen_weights(self) -> np.ndarray:
@@ -218,13 +259,25 @@ class PartStats:
         if self.seen is not None or other.seen is not None:   # before the weights change
             self.seen = self.seen_weights + other.seen_weights
         self.weights += other.weights
-        for name in ("contrast", "ground_contrast", "beneath_lightness", "beneath_colors"):
+        for name in ("contrast", "ground_contrast", "beneath_lightness"):
             a, b = getattr(self, name), getattr(other, name)
             if b is None:
                 continue
             if a is None:
                 setattr(self, name, b.copy())
             else:               # in place: this part's own arrays (merge copies what it adopts)
+                a += b
+        sparse = other.__dict__.get("_beneath_sparse")
+        if sparse is not None:
+            self.add_beneath(sparse[0].copy(), sparse[1].copy())
+        else:
+            b = other.beneath_colors
+            if b is None:
+                return
+            a = self.beneath_colors
+            if a is None:
+                self.beneath_colors = b.copy()
+            else:
                 a += b
 
 
