@@ -95,10 +95,56 @@ def proof_image(rgb8: np.ndarray, proof: str, planes: list[np.ndarray] | None = 
     return cvd_proof(rgb8, proof, planes=planes)
 
 
+#: rows per step of :func:`proof_images` (its float planes stay in the cache)
+IMAGE_ROWS = 32
+
+
+def _encode_into(lin: np.ndarray, out: np.ndarray) -> None:
+    """:func:`_encode` of ``lin`` (overwritten) into ``out``, uint8 of its shape."""
+    np.clip(lin, 0.0, 1.0, out=lin)
+    lin *= np.float32(ENCODE_SIZE - 1)
+    np.rint(lin, out=lin)
+    np.take(_ENCODE, lin.astype(np.int32), out=out)
+
+
 def proof_images(rgb8: np.ndarray) -> dict[str, np.ndarray]:
-    """Every proof of :data:`PROOFS` of an 8-bit image (..., 3), its channels decoded once."""
-    planes = _planes(np.asarray(rgb8, dtype=np.uint8))
-    return {proof: proof_image(rgb8, proof, planes) for proof in PROOFS}
+    """Every proof of :data:`PROOFS` of an 8-bit image (h, w, 3): the pixels of
+    :func:`proof_image` (the same float32 operations in the same order), made
+    :data:`IMAGE_ROWS` rows at a time into preallocated planes (the review page's 750 x 750
+    proofs 89 -> 53 ms, measured here)."""
+    rgb8 = np.asarray(rgb8, dtype=np.uint8)
+    if rgb8.ndim != 3:
+        planes = _planes(rgb8)
+        return {proof: proof_image(rgb8, proof, planes) for proof in PROOFS}
+    h, w = rgb8.shape[:2]
+    out = {proof: np.empty((h, w, 3), np.uint8) for proof in PROOFS}
+    matrices = {proof: cvd_matrix(proof, 100.0).astype(np.float32) for proof in PROOFS[1:]}
+    lin = np.empty((IMAGE_ROWS, w), np.float32)
+    term = np.empty((IMAGE_ROWS, w), np.float32)
+    code = np.empty((IMAGE_ROWS, w), np.uint8)
+
+    def mix(planes, weights, n):
+        # planes[0] w0 + planes[1] w1 + planes[2] w2, added left to right as in gray_proof
+        acc, tmp = lin[:n], term[:n]
+        np.multiply(planes[0], weights[0], out=acc)
+        np.multiply(planes[1], weights[1], out=tmp)
+        acc += tmp
+        np.multiply(planes[2], weights[2], out=tmp)
+        acc += tmp
+        _encode_into(acc, code[:n])
+        return code[:n]
+
+    for r in range(0, h, IMAGE_ROWS):
+        chunk = rgb8[r:r + IMAGE_ROWS]
+        n = chunk.shape[0]
+        planes = _planes(chunk)
+        gray = mix(planes, _Y, n)
+        for c in range(3):
+            out["gray"][r:r + n, :, c] = gray
+        for proof, m in matrices.items():
+            for c in range(3):
+                out[proof][r:r + n, :, c] = mix(planes, m[c], n)
+    return out
 
 
 class ProofSink:
