@@ -295,12 +295,17 @@ def legend_png(style, ramps, layers, nodata_seen: set[str] | None = None) -> byt
     ``nodata_seen``: the layers with no-data pixels on the map (only they get a no-data swatch;
     None: every layer that draws one).
     """
-    import io
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from compose.page.encode import png_bytes
 
     fig, _ = legend_figure(style, ramps, layers, nodata_seen)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=DPI, facecolor=PAPER)
-    return buf.getvalue()
+    fig.set_facecolor(PAPER)
+    agg = FigureCanvasAgg(fig)
+    agg.draw()
+    # the pixels matplotlib's PNG writer saves, in the page writers' faster PNG encoding
+    # (Up filter, ISA-L): the demo's legend PNG 0.19 -> 0.15 s CPU in all, 49 -> 56 kB, measured here
+    return png_bytes(np.asarray(agg.buffer_rgba()), dpi=DPI)
 
 
 def write_legend(path: Path, style, ramps, layers) -> None:
