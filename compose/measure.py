@@ -16,6 +16,7 @@ colour, and as overlays by the contrast against what lies beneath.
 from __future__ import annotations
 
 import functools
+import math
 import threading
 from typing import Any
 
@@ -32,7 +33,6 @@ from compose.check.stats import (  # the Y -> L* table and its size
     LayerStats,
     PartStats,
     Statistics,
-    lightness_bins_of_luminance,
 )
 from compose.color.bulk import CHANNEL_XYZ
 from compose.color.srgb import srgb_to_linear
@@ -53,7 +53,7 @@ def _scratch(name: str, shape: tuple[int, ...], dtype) -> np.ndarray:
     temporaries reuse the same pages instead of faulting fresh ones in (a few MB per thread).
     Never part of a result."""
     bufs = _local.__dict__.setdefault("bufs", {})
-    n = int(np.prod(shape))
+    n = math.prod(shape)
     buf = bufs.get(name)
     if buf is None or buf.size < n or buf.dtype != dtype:
         buf = bufs[name] = np.empty(n, dtype)
@@ -103,7 +103,7 @@ def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
     Gathering with ``np.take`` on these is 2-4x faster than boolean-mask indexing of the core
     views (which are not contiguous).
     """
-    m = alpha > 0
+    m = np.greater(alpha, 0, out=_scratch("mask", alpha.shape, np.bool_))
     rs, cs = inner
     m[:rs.start] = False
     m[rs.stop:] = False
@@ -112,17 +112,19 @@ def _core_pixels(alpha: np.ndarray, inner) -> np.ndarray:
     return np.flatnonzero(m)
 
 
-def _take8(planes: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """Pixels ``idx`` (flat) of contiguous float or uint8 planes (3, h, w) -> (3, n) uint8, each
-    channel contiguous."""
-    out = np.empty((3, idx.size), dtype=np.uint8)
+def _take8(planes: np.ndarray, idx: np.ndarray, name: str = "take8") -> np.ndarray:
+    """Pixels ``idx`` (flat, in range) of contiguous float or uint8 planes (3, h, w) -> (3, n)
+    uint8, each channel contiguous: a scratch array of this thread under ``name``."""
+    out = _scratch(name, (3, idx.size), np.uint8)
+    v = _scratch("take8-v", (idx.size,), planes.dtype)
     for c in range(3):
-        v = np.take(planes[c].reshape(-1), idx)
-        if v.dtype != np.uint8:
-            v *= np.float32(255)
-            np.rint(v, out=v)
-            np.clip(v, 0, 255, out=v)
-        out[c] = v
+        if planes.dtype == np.uint8:
+            np.take(planes[c].reshape(-1), idx, out=out[c], mode="clip")   # in range
+            continue
+        np.take(planes[c].reshape(-1), idx, out=v, mode="clip")    # in range: as "raise"
+        v *= np.float32(255)
+        np.clip(v, 0, 255, out=v)       # then rounded: the same as rounded, then clipped
+        np.rint(v, out=out[c], casting="unsafe")
     return out
 
 
@@ -139,11 +141,15 @@ def _luminance8(planes8: np.ndarray) -> np.ndarray:
 def _beneath_codes(planes8: np.ndarray) -> np.ndarray:
     """:func:`compose.check.stats.beneath_color_codes` of 8-bit sRGB planes (3, n)."""
     shift = 8 - BENEATH_BITS
-    codes = np.right_shift(planes8[0], shift).astype(np.intp)
-    codes <<= BENEATH_BITS
-    codes |= np.right_shift(planes8[1], shift)
-    codes <<= BENEATH_BITS
-    codes |= np.right_shift(planes8[2], shift)
+    n = planes8.shape[1]
+    codes = _scratch("codes", (n,), np.intp)
+    part = _scratch("codes-c", (n,), np.uint8)
+    np.right_shift(planes8[0], shift, out=part)
+    codes[:] = part
+    for c in (1, 2):
+        codes <<= BENEATH_BITS
+        np.right_shift(planes8[c], shift, out=part)
+        codes |= part
     return codes
 
 
@@ -162,7 +168,7 @@ def _present(codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     seen[present] = 0
     slot = _scratch("slot", (N_BENEATH,), np.intp)
     slot[present] = np.arange(present.size)
-    return present, np.take(slot, codes)
+    return present, np.take(slot, codes, out=_scratch("slots", codes.shape, np.intp), mode="clip")
 
 
 def _beneath_hist(codes: np.ndarray, weights: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -195,10 +201,17 @@ def _overlay_by_color(part: PartStats, y_part: float, below8: np.ndarray,
     sums are exact in any order (:func:`_sums_exact`): then every bin is the same float64 as
     summing pixel by pixel."""
     present, slots = _present(_beneath_codes(below8))
-    low = np.bitwise_and(below8[0], 3) << 4
-    low |= np.bitwise_and(below8[1], 3) << 2
-    low |= np.bitwise_and(below8[2], 3)
-    key = slots << 6
+    n = below8.shape[1]
+    low, part_ = _scratch("low", (n,), np.uint8), _scratch("low-c", (n,), np.uint8)
+    np.bitwise_and(below8[0], 3, out=low)
+    low <<= 4
+    np.bitwise_and(below8[1], 3, out=part_)
+    part_ <<= 2
+    low |= part_
+    np.bitwise_and(below8[2], 3, out=part_)
+    low |= part_
+    key = slots                         # this thread's scratch: ours to change
+    key <<= 6
     key += low
     per_key = np.bincount(key, weights=weights, minlength=present.size << 6)
     keys = np.flatnonzero(per_key)      # weights > 0: exactly the colours there
@@ -335,7 +348,9 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
         pix = _core_pixels(alpha, inner)
         if pix.size:
             # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
-            weights = np.take(alpha.reshape(-1), pix).astype(np.float64)   # exact
+            weights = _scratch("weights", (pix.size,), np.float64)       # exact: float32 values
+            weights[:] = np.take(alpha.reshape(-1), pix, mode="clip",
+                                 out=_scratch("weights-f", (pix.size,), alpha.dtype))
             below8 = _take8(beneath, pix)
             color = paint.color
             y_part = (_luminance_of(color) if isinstance(color, tuple)
@@ -351,7 +366,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
                                                      weights=weights, minlength=N_LIGHTNESS)
                 part.add_beneath(*_beneath_hist(_beneath_codes(below8), weights))
             if ground8 is not None:
-                y_ground = _luminance8(_take8(ground8, pix))
+                y_ground = _luminance8(_take8(ground8, pix, "take8-ground"))
                 part.ground_contrast = np.bincount(
                     _contrast_of_cells(y_part, _cells(y_ground), y_ground),
                     weights=weights, minlength=N_CONTRAST)
@@ -446,12 +461,31 @@ class WindowMeasure:
             r_off, c_off = (self.window.row % 2), (self.window.col % 2)
             sub = (slice(r_off, None, GRAY_STRIDE), slice(c_off, None, GRAY_STRIDE))
             # planar (3, k): each channel contiguous
-            if planes8 is not None:
-                sampled = np.ascontiguousarray(planes8[(slice(None),) + sub]).reshape(3, -1)
-            else:
-                sampled = np.ascontiguousarray(np.moveaxis(rgb8[sub], -1, 0)).reshape(3, -1)
-            lightness = lightness_bins_of_luminance(_luminance8(sampled))
-            shown = None if self._hidden is None else self._hidden[sub].ravel() < 0.02
+            view = (planes8[(slice(None),) + sub] if planes8 is not None
+                    else np.moveaxis(rgb8[sub], -1, 0))
+            # the sampled channels as indices (intp (3, k)): every lookup below takes them
+            # without converting them again
+            codes8 = _scratch("sampled", view.shape, np.intp)
+            np.copyto(codes8, view)
+            sampled = codes8.reshape(3, -1)
+            n_s = sampled.shape[1]
+            y = _scratch("sampled-y", (n_s,), np.float32)
+            t = _scratch("sampled-t", (n_s,), np.float32)
+            np.take(CHANNEL_XYZ[1, 0], sampled[0], out=y, mode="wrap")     # as _luminance8
+            y += np.take(CHANNEL_XYZ[1, 1], sampled[1], out=t, mode="wrap")
+            y += np.take(CHANNEL_XYZ[1, 2], sampled[2], out=t, mode="wrap")
+            # L* (intp) by the Y cell, as lightness_bins_of_luminance
+            cells = _scratch("sampled-cell", (n_s,), np.intp)
+            np.multiply(y, np.float32(_Y_LEVELS - 1), out=t)
+            t += np.float32(0.5)
+            cells[:] = t
+            np.minimum(cells, _Y_LEVELS - 1, out=cells)
+            lightness = np.take(_cell_bounds()[2], cells, mode="clip",
+                                out=_scratch("sampled-lightness", (n_s,), np.intp))
+            shown = None
+            if self._hidden is not None:
+                hidden = self._hidden[sub]
+                shown = np.less(hidden, 0.02, out=_scratch("shown", hidden.shape, np.bool_)).ravel()
             # each theme's alpha on the sample grid (None: 1 everywhere)
             sampled_alpha = [None if opaque else a_core[sub].ravel()
                              for _, _, a_core, opaque in themes]
@@ -482,7 +516,8 @@ class WindowMeasure:
                 # same order per entry, without the table's other rows of zeros
                 lo, hi = int(index_s.min()), int(index_s.max())
                 m = hi - lo + 1
-                cell = np.multiply(index_s.ravel(), N_LIGHTNESS, dtype=np.intp)
+                cell = _scratch("sampled-entry", (n_s,), np.intp)
+                np.multiply(index_s, N_LIGHTNESS, out=cell.reshape(index_s.shape), dtype=np.intp)
                 cell += lightness
                 cell -= lo * N_LIGHTNESS
                 if keep is not None:
@@ -511,7 +546,9 @@ class WindowMeasure:
                             np.putmask(idx, ~drawn, m)
                         s.value_count[lo:hi + 1] += np.bincount(idx, minlength=m + 1)[:m]
                     if linear is None:
-                        linear = [np.take(_LINEAR8, sampled[c], mode="wrap") for c in range(3)]
+                        linear = _scratch("sampled-linear", (3, n_s), np.float64)
+                        for c in range(3):
+                            np.take(_LINEAR8, sampled[c], out=linear[c], mode="wrap")
                     for c in range(3):   # linear-light channel values of the composite
                         s.value_color[lo:hi + 1, c] += np.bincount(idx, weights=linear[c],
                                                                    minlength=m + 1)[:m]

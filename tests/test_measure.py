@@ -130,3 +130,17 @@ def test_sums_exact_refuses_weights_whose_sums_round():
     # 1/255 coverage beside full coverage, as on a map, but a faint layer's 1e-6 among them
     assert M._sums_exact(np.array([1.0, np.float32(1 / 255)] * 1000))
     assert not M._sums_exact(np.array([1.0, np.float32(1e-6)] * 100_000))
+
+
+def test_take8_rounds_like_rint_then_clip():
+    # IEC 61966-2-1 8-bit encoding of [0, 1] values: round(255 v), half to even (numpy's
+    # rint), clipped to 0..255; every half step and values outside [0, 1] included
+    rng = np.random.default_rng(10)
+    half = (np.arange(256, dtype=np.float32) + np.float32(0.5)) / np.float32(255)
+    values = np.concatenate([half, rng.random(3000).astype(np.float32) * 1.4 - 0.2,
+                             np.array([0.0, -0.0, 1.0, -1e-8, 1 + 1e-7], np.float32)])
+    planes = np.stack([values, values[::-1], np.roll(values, 7)]).reshape(3, 1, -1)
+    idx = np.arange(values.size)
+    want = np.clip(np.rint(planes.reshape(3, -1) * np.float32(255)), 0, 255).astype(np.uint8)
+    np.testing.assert_array_equal(M._take8(planes, idx), want)
+    np.testing.assert_array_equal(M._take8(want.reshape(3, 1, -1), idx[::-1]), want[:, ::-1])
