@@ -269,7 +269,8 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
                 if not _metrics(ctx, ramp).lightness_monotone:
                     # no relief setting can order a ramp whose own lightness turns back
                     text, change = _shape_change("ramp-lightness-monotone", ramp,
-                                                 float(ctx.budgets.ramp.evenness))
+                                                 float(ctx.budgets.ramp.evenness),
+                                                 memo=ctx._respaced)
                     fix = (f'ramp "{ramp.name}" itself does not order its values by lightness; '
                            + text) if change is not None else fix
                 elif relief is not None:
@@ -300,14 +301,16 @@ def _from_checks(ctx: CheckContext, rule: str, source: str, severity: str = "fai
             met = bool(c.passed)
             passed = met or severity == WARNING
             fix, change = ("", None) if met else _shape_change(
-                rule, r, float(ctx.budgets.ramp.evenness) if ctx.budgets is not None else 10.0)
+                rule, r, float(ctx.budgets.ramp.evenness) if ctx.budgets is not None else 10.0,
+                memo=ctx._respaced)
             out.append(_result(ctx, rule, r, c.value, c.limit, passed, c.message,
                                fix or ("" if met else _shape_fix(rule, r)), severity=severity,
                                met=met, change=change))
     return out
 
 
-def _shape_change(rule: str, ramp, limit: float = 10.0) -> tuple[str, Change | None]:
+def _shape_change(rule: str, ramp, limit: float = 10.0,
+                  memo: dict | None = None) -> tuple[str, Change | None]:
     """A structured change for the shape rules of a sequential ramp written with ``through``
     stops: lightness re-spaced evenly from the lightest to the darkest stop (in the direction the
     ramp runs), each stop's own hue kept, its chroma kept -- or, when the stops' hues turn back
@@ -318,7 +321,13 @@ def _shape_change(rule: str, ramp, limit: float = 10.0) -> tuple[str, Change | N
     if len(ramp.stops) < 2:
         return "", None
     from compose.ramps.respace import respace_stops
-    got = respace_stops(ramp.stops, ramp.space, ramp.domain, limit, ramp.values)
+    # the same ramp and limit re-spaced once per check (several rules ask: a pure function)
+    key = (id(ramp), float(limit))
+    got = memo.get(key) if memo is not None else None
+    if got is None:
+        got = respace_stops(ramp.stops, ramp.space, ramp.domain, limit, ramp.values)
+        if memo is not None:
+            memo[key] = got
     # written in the file's own order: a ramp with ``reverse = true``, a domain from high to low
     # or pinned values listed from high to low is built from its stops in the opposite order
     listing = got.stops[::-1] if ramp.listed_reversed else got.stops
