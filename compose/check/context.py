@@ -43,7 +43,7 @@ class CheckContext:
     specs: dict[str, Any]
     _luts: dict = field(default_factory=dict)
     _metrics: dict = field(default_factory=dict)
-    _respaced: dict = field(default_factory=dict)   # (id(ramp), limit) -> re-spaced stops
+    _memo: dict = field(default_factory=dict)   # pure answers several rules ask for, per check
 
     @classmethod
     def build(cls, style, stats: Statistics, ramps: dict) -> CheckContext:

@@ -81,7 +81,16 @@ def solve_quiet_nodata(ctx: CheckContext, ramp, rgb8, q: QuietNumbers) -> np.nda
     """The no-data colour nearest the paper in L* that is neutral, >= the separation from the
     paper and every ramp colour, and drawn no louder than the data (``q``). When none lies within
     twice the separation of the paper's L*, the paper colour itself if it is far enough from the
-    ramp (rather than a mid grey); None if nothing works."""
+    ramp (rather than a mid grey); None if nothing works. Solved once per check for the same
+    inputs (several rules propose it)."""
+    key = ("quiet-nodata", id(ramp), tuple(int(v) for v in np.asarray(rgb8).ravel()), q.share,
+           q.paper_L, q.nodata_L, q.data_contrast, q.y_ratio)
+    if key not in ctx._memo:
+        ctx._memo[key] = _solve_quiet_nodata(ctx, ramp, rgb8, q)
+    return ctx._memo[key]
+
+
+def _solve_quiet_nodata(ctx: CheckContext, ramp, rgb8, q: QuietNumbers) -> np.ndarray | None:
     nb = ctx.budgets.nodata
     _, C, h = srgb_to_lch(np.asarray(rgb8, dtype=float) / 255.0)
     c = min(float(C), max(0.0, float(nb.chroma) - 0.5))

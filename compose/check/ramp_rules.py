@@ -270,7 +270,7 @@ def grayscale_order(ctx: CheckContext) -> list[RuleResult]:
                     # no relief setting can order a ramp whose own lightness turns back
                     text, change = _shape_change("ramp-lightness-monotone", ramp,
                                                  float(ctx.budgets.ramp.evenness),
-                                                 memo=ctx._respaced)
+                                                 memo=ctx._memo)
                     fix = (f'ramp "{ramp.name}" itself does not order its values by lightness; '
                            + text) if change is not None else fix
                 elif relief is not None:
@@ -302,7 +302,7 @@ def _from_checks(ctx: CheckContext, rule: str, source: str, severity: str = "fai
             passed = met or severity == WARNING
             fix, change = ("", None) if met else _shape_change(
                 rule, r, float(ctx.budgets.ramp.evenness) if ctx.budgets is not None else 10.0,
-                memo=ctx._respaced)
+                memo=ctx._memo)
             out.append(_result(ctx, rule, r, c.value, c.limit, passed, c.message,
                                fix or ("" if met else _shape_fix(rule, r)), severity=severity,
                                met=met, change=change))
@@ -322,7 +322,7 @@ def _shape_change(rule: str, ramp, limit: float = 10.0,
         return "", None
     from compose.ramps.respace import respace_stops
     # the same ramp and limit re-spaced once per check (several rules ask: a pure function)
-    key = (id(ramp), float(limit))
+    key = ("respace", id(ramp), float(limit))
     got = memo.get(key) if memo is not None else None
     if got is None:
         got = respace_stops(ramp.stops, ramp.space, ramp.domain, limit, ramp.values)
