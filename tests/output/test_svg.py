@@ -31,7 +31,7 @@ def test_log_axis_and_ticks():
     assert nice_ticks(0, 37, 4) == [0, 10, 20, 30]
 
 
-def test_colours_to_hex_at_once_match_one_at_a_time():
+def test_colors_to_hex_at_once_match_one_at_a_time():
     """compose.output.html_plots._hexes gives _hex's "#rrggbb" (CSS Color Module Level 4
     hex notation) for every row: random colours inside and outside [0, 1] (clipped) and every
     8-bit code and half step between codes (rounded half to even, as Python's round)."""
