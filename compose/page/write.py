@@ -231,6 +231,9 @@ class EarlyPage:
     #: (:func:`compose.page.encode.deferred`), and the seconds it took; None when not drawn
     svg: bytes | None = None
     svg_seconds: float = 0.0
+    #: the process writing the page PNG, forked when the walk ended with ``nodata``
+    #: (a :class:`compose.page.process.Forked`), or None
+    png_job: Any = None
 
     def holds_for(self, nodata) -> bool:
         """Whether it was made for the no-data layers ``nodata`` the walk ended with."""
@@ -305,7 +308,20 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
         early.svg, early.svg_seconds = buf.getvalue(), time.perf_counter() - t
     except Exception:                            # drawn after the walk instead
         early.svg = None
-    end = _AtTheEnd(rest)
+    def walked() -> None:
+        # the walk is over: when it ended with the guessed no-data layers, the page PNG (the
+        # furniture drawn above over the finished map) is written by a process forked now,
+        # beside the PDF's last part, instead of after it (write_page waits for it)
+        final = rest()
+        if (early.holds_for(final) and furniture is not None and "page" in tmp
+                and early.png_job is None):
+            from compose.page.process import Forked, can_fork
+
+            if can_fork():
+                early.png_job = Forked(lambda: _early_page_png(tmp["page"], furniture, layout,
+                                                               sink.image, run_.canvas.dpi))
+
+    end = _AtTheEnd(walked)
     fig.add_artist(end)
     t = time.perf_counter()
     try:
@@ -313,10 +329,29 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
                 map_rows_stored_top_first(fig, sink.base, sink.rgba):
             fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
                         metadata=_pdf_metadata(style, layout))
+    except BaseException:
+        if early.png_job is not None:               # the page is drawn again: end it first
+            early.png_job.abort()
+            early.png_job = None
+        raise
     finally:
         end.remove()
     early.pdf_seconds = time.perf_counter() - t
     return early
+
+
+def _early_page_png(path: Path, furniture: tuple[np.ndarray, tuple], layout: PageLayout,
+                    image: np.ndarray, dpi: float) -> dict[str, float]:
+    """Write the page PNG from the furniture drawn during the walk and the finished map (in
+    the process :func:`page_early` forks when the walk ends); its seconds."""
+    from compose.output.png import write_png
+    from compose.timeline import span
+
+    t = time.perf_counter()
+    with span("page png"):
+        dpi = max(float(dpi), MIN_PAGE_DPI)
+        write_png(path, paste_map(*furniture, layout, image, dpi), dpi=dpi)
+    return {"page.png": time.perf_counter() - t}
 
 
 def _pdf_metadata(style, layout) -> dict:
@@ -420,7 +455,12 @@ def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],
             return done
 
         beside = None
-        if fork:
+        if early is not None and early.png_job is not None:    # forked as the walk ended
+            beside = early.png_job
+            if with_png is not None:        # (sends the legend unless that is done)
+                with rc_context(outer):
+                    with_png()
+        elif fork:
             from compose.page.process import Forked
 
             beside = Forked(png)

@@ -37,6 +37,7 @@ def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
                   out.outputs["svg"].read_text()) for out in (here, there)]
     assert svg[0] == svg[1]
     assert "page svg drawn early" in there.seconds and "page svg drawn early" not in here.seconds
+    # (the page PNG, written by a process forked as the walk ended, is the one written here)
     # the furniture's contrast results (judged with the layout the child sent) are the same
     rules = [(r.rule, r.layer, r.value) for r in here.report.rules]
     assert [(r.rule, r.layer, r.value) for r in there.report.rules] == rules
