@@ -203,22 +203,13 @@ class ReliefLayer:
                 win = Window(int(rows[i, 0]), c_lo, 3, span, 0, full.height, full.width)
                 dem[3 * i:3 * i + 3] = self.source.read_window(full, win,
                                                                o.resampling)[:, cols - c_lo]
-        all_rows = rows.ravel()
-        r_lo = int(all_rows.min())
-        dx, dy = ground_cell_size(full.crs, full.transform @ Affine.translation(0, r_lo),
-                                  int(all_rows.max()) - r_lo + 1, self.scale)
-        if np.ndim(dx):
-            dx = np.asarray(dx).reshape(-1, 1)[all_rows - r_lo]
-        shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
-                                 exaggeration=self.exaggeration, directions=o.directions)
-        return np.ascontiguousarray(shade[1::3, 1::3])
+        return self._shade_centres(dem, rows.ravel())
 
     def _sampled_shade(self, window) -> np.ndarray:
         """:meth:`_draft_shade` from a sample of the file's blocks: each draft pixel's cell is
         the one :class:`compose.layers.early.BlockSample` gives it (a cell of a block read, in
         the pixel's own row of blocks), shaded from its own 3 x 3 neighbourhood."""
-        o, full = self.options, self.full
-        assert full is not None and self.sample is not None
+        assert self.full is not None and self.sample is not None
         rows, cols = self.sample.cells(window)                  # (h, w) full-canvas cells
         h, w = rows.shape
         step = np.array([-1, 0, 1])
@@ -230,7 +221,14 @@ class ReliefLayer:
                                np.broadcast_to(c3, shape).reshape(3 * h, 3 * w))
         row_of = rows.max(axis=1)                               # a row's cell row (-1: outside)
         row_of = np.where(row_of >= 0, row_of, max(int(row_of.max()), 1))
-        all_rows = (row_of[:, None] + step).ravel()
+        return self._shade_centres(dem, (row_of[:, None] + step).ravel())
+
+    def _shade_centres(self, dem: np.ndarray, all_rows: np.ndarray) -> np.ndarray:
+        """Shade (3h, 3w) side-by-side 3 x 3 neighbourhoods of full-canvas cells and keep each
+        one's centre: (h, w) in [0, 1]. ``all_rows``: the full-canvas row of each of the 3h rows
+        (its ground cell size, for geographic CRSs, varies with latitude)."""
+        o, full = self.options, self.full
+        assert full is not None
         r_lo = int(all_rows.min())
         dx, dy = ground_cell_size(full.crs, full.transform @ Affine.translation(0, r_lo),
                                   int(all_rows.max()) - r_lo + 1, self.scale)

@@ -124,17 +124,8 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
     fy -= row0 * bw + col0
     base = fy.astype(np.intp)
     del fx, fy
-    a, b = flat.take(base), flat[1:].take(base)
-    c, d = flat[bw:].take(base), flat[bw + 1:].take(base)
-    b -= a
-    b *= dx
-    a += b
-    d -= c
-    d *= dx
-    c += d
-    c -= a
-    c *= dy
-    out = a + c
+    out = _lerp2(flat.take(base), flat[1:].take(base), flat[bw:].take(base),
+                 flat[bw + 1:].take(base), dx, dy)
     bad = np.flatnonzero(np.isnan(out))
     if bad.size:                             # no data under the kernel: renormalise over valid cells
         valid = np.isfinite(flat)
@@ -148,6 +139,22 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
         sub[~valid.take(centre)] = np.nan
         out.reshape(-1)[bad] = sub
     return out
+
+
+def _lerp2(a: np.ndarray, b: np.ndarray, c: np.ndarray, d: np.ndarray,
+           dx: np.ndarray, dy: np.ndarray) -> np.ndarray:
+    """Bilinear interpolation of four taps (a top-left, b top-right, c bottom-left, d
+    bottom-right) at fractions dx, dy in [0, 1) from the top-left: two lerps along x, one along
+    y, in place in the taps' own arrays (which it overwrites)."""
+    b -= a
+    b *= dx
+    a += b
+    d -= c
+    d *= dx
+    c += d
+    c -= a
+    c *= dy
+    return a + c
 
 
 def cut_block(block: np.ndarray, r: int, c: int, h: int, w: int) -> np.ndarray:
@@ -180,17 +187,8 @@ def _sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
     dy = (y - fy).astype(np.float32)
     plain = method == "bilinear" and widen == (1.0, 1.0)
     if plain:                               # two lerps: 4 gathers, no kernel evaluation
-        a, b = flat.take(base), flat.take(base + 1)
-        c, d = flat.take(base + bw), flat.take(base + bw + 1)
-        b -= a
-        b *= dx
-        a += b
-        d -= c
-        d *= dx
-        c += d
-        c -= a
-        c *= dy
-        out = a + c
+        out = _lerp2(flat.take(base), flat.take(base + 1), flat.take(base + bw),
+                     flat.take(base + bw + 1), dx, dy)
     else:
         out = _weighted(flat, base, dx, dy, nx, ny, bw, kernel, widen, None)
     bad = np.flatnonzero(np.isnan(out))
