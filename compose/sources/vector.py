@@ -200,6 +200,7 @@ def read_early(path, *, layer: str, table: str | None = None,
     def run() -> None:
         try:
             source = VectorSource(path, layer=layer, table=table, where=where)
+            source._early = None    # the early read itself: never wait for its own future
             raw = source._read()
             done = None
             if simplify is not None and crs is not None and same_crs(crs, source._crs_text):

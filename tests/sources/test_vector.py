@@ -184,6 +184,36 @@ def test_file_metadata_is_read_once_per_file_version(tmp_path, monkeypatch):
     assert VectorSource(path, layer="z").table == "second" and len(calls) == 2
 
 
+def test_an_early_read_without_a_tolerance_is_read_once_and_taken(tmp_path, monkeypatch):
+    """compose.sources.vector.read_early for a full check (no draft tolerance): the early thread
+    reads the file once and ends, and the source asking for the same table takes those features
+    instead of reading again (the early read once waited for its own result, forever, and the
+    layer read the file itself)."""
+    import threading
+    import time
+
+    from compose.sources import vector
+
+    feats = [({"type": "LineString", "coordinates": [(0.0, 0.0), (1.0, float(i))]}, {"n": i})
+             for i in range(5)]
+    path = write_vector(tmp_path / "e.gpkg", feats, crs=GEO, properties={"n": "int"})
+    plain = VectorSource(path, layer="plain")._read()
+    reads = []
+    real = VectorSource._bulk
+    monkeypatch.setattr(VectorSource, "_bulk", lambda self: reads.append(1) or real(self))
+    vector.read_early(path, layer="early")
+    time.sleep(0.3)             # the early thread gets there first, as in a check
+    geoms, props = VectorSource(path, layer="taken")._read()
+    assert props == plain[1]
+    assert np.array_equal(shapely.to_wkb(geoms), shapely.to_wkb(plain[0]))
+    assert len(reads) == 1
+    for t in threading.enumerate():
+        if t.name == "early-vectors":
+            t.join(5.0)
+            assert not t.is_alive()
+    vector.forget_early()
+
+
 def test_an_early_read_is_taken_by_the_source_asking_for_it_and_only_by_it(tmp_path):
     """compose.sources.vector.read_early: the features a later source of the same file, table,
     filter and draft tolerance takes are the ones it would read (simplified with GEOS's
