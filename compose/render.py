@@ -129,11 +129,18 @@ def _warm_imports(page: bool, legend: bool) -> None:
                          daemon=True).start()
 
 
-def _page_job(style, prepared, tmp: dict[str, Path], legend: bool):
+def _ramps_html(style, prepared) -> str:
+    from compose.output.html import ramps_section
+
+    return ramps_section(style, prepared.ramps)
+
+
+def _page_job(style, prepared, tmp: dict[str, Path], legend: bool, html: bool = False):
     """The :class:`compose.page.process.PageJob` of a render, its page process forked now
     when it can (before the render starts any thread): with ``prepared`` None before the
     render is prepared (then :meth:`~compose.page.process.PageJob.attach` it), else after.
-    ``legend``: the page process also draws the legend PNG. Its ``sink`` keeps the map in memory
+    ``legend``: the page process also draws the legend PNG; ``html``: it also makes the review
+    page's ramps section. Its ``sink`` keeps the map in memory
     shared with that process."""
     from types import SimpleNamespace
 
@@ -154,6 +161,7 @@ def _page_job(style, prepared, tmp: dict[str, Path], legend: bool):
     sink = PageSink(canvas, vector_split(prepared.layers if prepared is not None else specs))
     legend_png = (lambda run_, nodata: _legend_png(style, run_, nodata)) if legend else None
     return PageJob(style, prepared, sink, tmp, write_page, warm=warm_writers,
+                   html=(lambda run_: _ramps_html(style, run_)) if html else None,
                    ahead=lambda run_: page_ahead(style, run_, sink), legend=legend_png,
                    early=lambda run_, started, nodata, rest, on_guess: page_early(
                        style, run_, sink, nodata, started, legend_png, tmp=tmp, rest=rest,
@@ -202,7 +210,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     early = None
     try:
         if style.page is not None:      # forked now: its imports load beside the preparation
-            early = _page_job(style, None, outputs.temporaries(), legend or html)
+            early = _page_job(style, None, outputs.temporaries(), legend or html, html)
         with span("prepare"):
             prepared = prepare(style, ramps=ramps, keep_clear=blocked_for)
     except BaseException:
@@ -224,7 +232,7 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     page_job = early
                 else:       # the prepared render could not be sent: fork after it instead
                     early.abort()
-                    page_job = _page_job(style, prepared, tmp, legend or html)
+                    page_job = _page_job(style, prepared, tmp, legend or html, html)
                     stack.callback(page_job.abort)
                 page_sink = page_job.sink
             forked = page_job is not None and page_job.forked
@@ -363,7 +371,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 from compose.output.html import page_html
 
                 t = time.perf_counter()
-                result.pictures = dataclasses.replace(pictures, legend=legend_png)
+                ahead = page_job.html() if page_job is not None else None
+                result.pictures = dataclasses.replace(pictures, legend=legend_png, ramps=ahead)
                 seconds["total"] = t_html - t0
                 with span("html"):
                     tmp["html"].write_text(page_html(style, result), encoding="utf-8")

@@ -26,7 +26,7 @@ from compose.color.interface import MARKS
 from compose.output.html_css import CSS
 from compose.output.html_images import JPEG_QUALITY, PROOF_WIDTH, box_reduce, jpeg_uri, png_uri
 
-__all__ = ["write_html", "page_html", "html_path", "sorted_results"]
+__all__ = ["write_html", "page_html", "html_path", "sorted_results", "ramps_section"]
 
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
 PROOF_TITLES = {"map": "Map as drawn", "gray": "Grey (same CIELAB L*)",
@@ -254,7 +254,9 @@ def _ramp_users(style, ramps) -> list[tuple[Any, list[str]]]:
     return out
 
 
-def _ramps_section(style, ramps) -> str:
+def ramps_section(style, ramps) -> str:
+    """The page's ramps section: a pure function of the style and its built ramps (the page
+    process makes it while the map is walked, :class:`compose.page.process.PageJob`)."""
     from compose.output.html_plots import ramp_svg
     from compose.output.svg import svg_uri
 
@@ -323,7 +325,7 @@ def _page_html(style, result, small) -> str:
     previews = [(specs[name], alone, stack) for name, alone, stack in pictures.layers]
     legend_img = (f'<img src="{png_uri(pictures.legend)}" alt="legend">' if pictures.legend
                   else '<p class="note">No legend was drawn.</p>')
-    ramps_html = _ramps_section(style, ramps)
+    ramps_html = pictures.ramps if pictures.ramps is not None else ramps_section(style, ramps)
     preview = pictures.map
     proofs = pictures.proofs
     title = style.map.title or style.name

@@ -124,7 +124,9 @@ class PagePictures:
     (h, w, 3) uint8 at most :data:`compose.previews.PREVIEW_SIDE` a side; proofs: proof name
     (:data:`compose.proof.PROOFS`) -> that proof of the map copy, reduced to at most
     :data:`PROOF_WIDTH` wide; legend: the legend PNG; small: the map reduced to at most
-    :data:`PROOF_WIDTH` wide, the proofs' source (None: reduced from ``map`` when needed).
+    :data:`PROOF_WIDTH` wide, the proofs' source (None: reduced from ``map`` when needed);
+    ramps: the page's ramps section made ahead from the same style and ramps
+    (:func:`compose.output.html.ramps_section`; None: made with the page).
     """
 
     map: np.ndarray
@@ -132,3 +134,4 @@ class PagePictures:
     proofs: dict[str, np.ndarray]
     legend: bytes | None = None
     small: np.ndarray | None = None
+    ramps: str | None = None

@@ -36,6 +36,7 @@ class Figure:
         self.width, self.height = width, height
         self.items: list[str] = [f'<rect width="{_f(width)}" height="{_f(height)}" '
                                  f'fill="{background}"/>']
+        self.n_axes = 0         # numbers the axes' clip paths: the same text on every run
 
     def text(self, x: float, y: float, s: str, size: float = 11, color: str = ui.INK.hex,
              anchor: str = "start", weight: str = "normal") -> None:
@@ -59,9 +60,10 @@ class Axes:
     def __init__(self, fig: Figure, box, xlim, ylim, xlog: bool):
         self.fig, self.box, self.xlim, self.ylim, self.xlog = fig, box, xlim, ylim, xlog
         x0, y0, x1, y1 = box
-        fig.items.append(f'<clipPath id="c{id(self)}"><rect x="{_f(x0)}" y="{_f(y0)}" '
+        fig.n_axes += 1
+        fig.items.append(f'<clipPath id="c{fig.n_axes}"><rect x="{_f(x0)}" y="{_f(y0)}" '
                          f'width="{_f(x1 - x0)}" height="{_f(y1 - y0)}"/></clipPath>')
-        self._clip = f'clip-path="url(#c{id(self)})"'
+        self._clip = f'clip-path="url(#c{fig.n_axes})"'
 
     def x(self, v: float) -> float:
         lo, hi = self.xlim

@@ -188,6 +188,13 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                         started = job._ahead(prepared)
                 except Exception:              # the writer builds it again and reports
                     started = None
+            if job._html is not None:          # (the first band of the walk is not done yet)
+                try:
+                    with span("review page ahead"):
+                        part = job._html(prepared)
+                except Exception:              # the parent makes it itself
+                    part = None
+                _send(out, ("html", part))
             early = None
             if job._early is not None:
                 def on_guess(guess, layout, png):
@@ -362,7 +369,9 @@ class PageJob:
     layers (:func:`compose.page.write.page_early`; ``started``: what ``ahead`` returned;
     ``rest()`` waits for the end of the walk; ``on_guess(nodata, layout, legend_png)`` sends the
     guess's layout and legend here, used by :meth:`layout` and :meth:`legend` when the walk
-    ends with that set), handed to ``write`` as ``early=``.
+    ends with that set), handed to ``write`` as ``early=``. ``html(prepared)``: a part of the
+    review page that needs only the prepared render (its ramps section), made in the child
+    before the walk's first band is done and sent here (:meth:`html`).
 
     Create it before other threads start: with ``prepared`` None as soon as the style is
     loaded, then :meth:`attach` the prepared render (the child loads its modules beside this
@@ -377,6 +386,7 @@ class PageJob:
                  warm: Callable[[], None] | None = None, ahead: Callable[[Any], Any] | None = None,
                  legend: Callable[[Any, set[str] | None], bytes] | None = None,
                  early: Callable[..., Any] | None = None,
+                 html: Callable[[Any], Any] | None = None,
                  forked: bool | None = None):
         self._style, self._prepared, self._sink, self._tmp = style, prepared, sink, tmp
         self._write = write
@@ -384,6 +394,7 @@ class PageJob:
         self._ahead = ahead
         self._legend = legend
         self._early = early
+        self._html = html
         self._got: dict[str, tuple] = {}
         self.pid: int | None = None
         self._forked = False
@@ -494,8 +505,8 @@ class PageJob:
         return message
 
     def _get(self, kind: str) -> tuple:
-        """The child's message of ``kind`` (messages come in order: guess, layout, legend,
-        done)."""
+        """The child's message of ``kind`` (messages come in order: html, guess, layout,
+        legend, done)."""
         while kind not in self._got:
             message = self._receive()
             self._got[message[0]] = tuple(message[1:])
@@ -513,6 +524,13 @@ class PageJob:
         guess, layout, png = self._got["guess"][0]
         final = None if self._nodata is None else frozenset(self._nodata)
         return (layout, png) if guess == final else None
+
+    def html(self) -> Any:
+        """What ``html(prepared)`` returned in the child (None when not forked, not asked for,
+        or it failed)."""
+        if not self.forked or self._html is None:
+            return None
+        return self._get("html")[0]
 
     def legend(self) -> bytes | None:
         """The legend PNG drawn by the child (None when not forked or not asked for)."""

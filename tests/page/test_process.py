@@ -239,3 +239,30 @@ def test_a_figure_started_during_the_walk_finishes_as_the_same_page(tmp_path):
     finally:
         prepared.close()
     assert files["started"] == files["built"]
+
+
+def test_the_review_page_with_its_ramps_made_by_the_page_process_is_the_same(tmp_path,
+                                                                               monkeypatch):
+    """The page process makes the review page's ramps section while the map is walked
+    (PageJob's ``html``); the review page is the one made in a single process (the line
+    quoting the render's own seconds aside; the plots' clip paths are numbered, so two
+    renders write the same text)."""
+    made = []
+    real = process.PageJob.html
+
+    def html(self):
+        got = real(self)
+        made.append(got)
+        return got
+
+    monkeypatch.setattr(process.PageJob, "html", html)
+    pages = []
+    for name, forked in (("here", False), ("there", True)):
+        monkeypatch.setattr(process, "can_fork", lambda forked=forked: forked)
+        style = _style(tmp_path / name)
+        out = render_style(style, tmp_path / name / "out")
+        pages.append(re.sub(r"<dt>render</dt><dd>[^<]*</dd>", "", re.sub(
+            re.escape(str(tmp_path / name)), "", out.outputs["html"].read_text())))
+    assert made[0] is None and made[1] and 'id="ramps"' not in made[1]
+    assert made[1] in pages[1] and "data:image/svg" in made[1]
+    assert pages[0] == pages[1]
