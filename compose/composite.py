@@ -194,7 +194,9 @@ def _blend_into(func: BlendFunc, cb: np.ndarray, cs: np.ndarray, a: np.ndarray, 
 
 
 def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray,
-                      alpha: np.ndarray, mode: str = "normal", *, opaque: bool = False) -> np.ndarray:
+                      alpha: np.ndarray, mode: str = "normal", *, opaque: bool = False,
+                      counts: np.ndarray | None = None,
+                      region: tuple[slice, slice] | None = None) -> np.ndarray:
     """:func:`composite_over` of a lookup table's colours, in place on ``backdrop``: the source
     is ``table[:, index]``, looked up one strip at a time (no (3, H, W) source is made); the same
     numbers as ``composite_over(backdrop, table[:, index], alpha, mode, out=backdrop)``.
@@ -202,6 +204,10 @@ def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray
     backdrop: (3, H, W) float32, opaque; table: (3, n) float32 colour planes in [0, 1]
     (:attr:`compose.layers.base.Palette.planes`); index: (H, W) integer indices, each below n;
     alpha, mode, opaque: as for :func:`composite_over`.
+    counts: an integer array (n,) to which the histogram of ``index`` over ``region`` (a pair of
+    slices with steps of 1 into (H, W), e.g. a window's core; default all) is added: the numbers
+    of ``np.bincount(index[region].ravel(), minlength=n)``, counted strip by strip from the
+    indices the lookup converts anyway (counts are whole numbers: any grouping adds up alike).
     """
     func = blend_mode(mode, "composite")
     if backdrop.dtype != np.float32 or backdrop.ndim != 3 or backdrop.shape[0] != 3:
@@ -216,15 +222,29 @@ def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray
     n = min(rows, h)
     mix_buf = np.empty((n, w), np.float32)
     src_buf = np.empty((n, w), np.float32)
+    # the strip's indices as intp, converted once: np.take converts any other integer type on
+    # every call, and np.bincount too
+    idx_buf = np.empty((n, w), np.intp)
+    row_slice, col_slice = region if region is not None else (slice(0, h), slice(0, w))
+    rs0, rs1, _ = row_slice.indices(h)
+    cs0, cs1, _ = col_slice.indices(w)
+    size = table.shape[1]
     for r0 in range(0, h, rows):
         r1 = min(r0 + rows, h)
         a = _rows(alpha, r0, r1)
-        idx = index[r0:r1]
+        idx = idx_buf[:r1 - r0]
+        np.copyto(idx, index[r0:r1], casting="unsafe")
         for c in range(3):
-            # "wrap" equals "clip" for indices in range; unbuffered, no copy of the indices
+            # "wrap" equals "clip" for indices in range; unbuffered
             cs = np.take(table[c], idx, out=src_buf[:r1 - r0], mode="wrap")
             cb = backdrop[c, r0:r1]
             _blend_into(func, cb, cs, a, cb, mix_buf[:r1 - r0], opaque)
+        if counts is not None and min(r1, rs1) > max(r0, rs0) and cs1 > cs0:
+            part = idx[max(r0, rs0) - r0:min(r1, rs1) - r0]
+            counts += np.bincount(part.reshape(-1), minlength=size)   # whole rows, contiguous
+            for edge in (part[:, :cs0], part[:, cs1:]):               # less what lies aside
+                if edge.size:
+                    counts -= np.bincount(edge.reshape(-1), minlength=size)
     return backdrop
 
 

@@ -262,12 +262,19 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                 alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)
                 # alpha 1 everywhere (rasters without no-data): nothing to weigh by it
                 opaque = bool(alpha.min() >= 1.0) if alpha.size else False
-                if meter is not None:
-                    meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque)
                 if paint.palette is not None and not k:     # colours looked up strip by strip
+                    # an opaque raster's entries are counted while they are looked up (a
+                    # palette's measure never reads the composite, so it may come after)
+                    counts = (np.zeros(paint.palette.rgb8.shape[0], np.intp)
+                              if meter is not None and opaque else None)
                     composite_palette(out, paint.palette.planes, paint.index, alpha, spec.blend,
-                                      opaque=opaque)
+                                      opaque=opaque, counts=counts, region=inner)
+                    if meter is not None:
+                        meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque,
+                                    counts=counts)
                 else:
+                    if meter is not None:
+                        meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque)
                     planes = paint.planes()
                     composite_over(out, planes, alpha, spec.blend, out=out, opaque=opaque)
                     if k:

@@ -293,6 +293,21 @@ def _cell_bounds() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return first, last, _L_BIN.astype(np.intp)
 
 
+@functools.lru_cache(maxsize=1)
+def _top_cell_holds_white() -> bool:
+    """True when no 8-bit colour's luminance (:func:`_luminance8`) falls past the last Y cell
+    before :func:`_cells` caps it: every channel's table is non-decreasing and non-negative and
+    float32 addition is monotone (IEEE 754), so no sum exceeds white's, and white's cell, found
+    without the cap, is within the table. Then the cap changes nothing and can be skipped."""
+    tables = CHANNEL_XYZ[1]
+    if not (np.all(np.diff(tables, axis=1) >= 0) and np.all(tables >= 0)):
+        return False
+    white = _luminance8(np.full((3, 1), 255, np.uint8))
+    t = np.multiply(white, np.float32(_Y_LEVELS - 1))
+    t += np.float32(0.5)
+    return int(t.astype(np.intp)[0]) <= _Y_LEVELS - 1
+
+
 @functools.lru_cache(maxsize=64)
 def _contrast_table(y_part: float) -> np.ndarray:
     """Contrast bin (intp (65536,)) of every Y cell against a colour of luminance ``y_part``,
@@ -319,7 +334,8 @@ def _contrast_of_cells(y_part: float, cells: np.ndarray, y_below: np.ndarray) ->
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
-                  ground8: np.ndarray | None, overlay: bool, inner, padded_opaque: bool = False) -> bool:
+                  ground8: np.ndarray | None, overlay: bool, inner, padded_opaque: bool = False,
+                  counts: np.ndarray | None = None) -> bool:
     """Add one paint of one window (core region) to the layer's statistics; True when the paint
     is a raster's and opaque over the whole core (alpha 1 everywhere).
 
@@ -327,17 +343,21 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     just before this paint; ground8: a copy of the padded composite under the whole layer (None
     for the layer's first paint, where it equals ``beneath``); both measured as 8-bit colours.
     padded_opaque: the caller found alpha 1 over the whole padded window (then over the core).
+    counts: with ``padded_opaque``, the palette entries' pixel counts over the core, counted
+    by the caller (:func:`compose.composite.composite_palette`); else None.
     """
     alpha_core = alpha[inner]
     opaque = False
     if paint.palette is not None:
-        idx = _intp_of(paint.index[inner])
         n = paint.palette.rgb8.shape[0]
         opaque = padded_opaque or bool(alpha_core.min() >= 1.0)
-        if opaque:                      # an unweighted count is ~3x faster
-            w = np.bincount(idx, minlength=n)
+        if counts is not None and padded_opaque:
+            w = counts
+        elif opaque:                    # an unweighted count is ~3x faster
+            w = np.bincount(_intp_of(paint.index[inner]), minlength=n)
         else:
-            w = np.bincount(idx, weights=_float64_of(alpha_core), minlength=n)
+            w = np.bincount(_intp_of(paint.index[inner]), weights=_float64_of(alpha_core),
+                            minlength=n)
         part = PartStats(paint.part, paint.palette.rgb8, w.astype(float))
         if paint.palette.nodata >= 0:
             stats.nodata_weight += float(w[paint.palette.nodata])
@@ -409,10 +429,12 @@ class WindowMeasure:
         self._union = None
 
     def paint(self, li: int, layer, pi: int, paint, alpha: np.ndarray, out: np.ndarray,
-              opaque: bool = False) -> None:
+              opaque: bool = False, counts: np.ndarray | None = None) -> None:
         """Paint ``pi`` of layer ``li`` with coverage x opacity ``alpha`` is about to be
-        composited over ``out`` (the padded composite so far); ``opaque``: the caller found
-        ``alpha`` 1 everywhere."""
+        composited over ``out`` (the padded composite so far; a raster's paint may be measured
+        after, as it never reads ``out``); ``opaque``: the caller found ``alpha`` 1 everywhere;
+        ``counts``: with ``opaque``, a raster's pixel counts per palette entry over the core,
+        counted by the caller (:func:`compose.composite.composite_palette`), or None."""
         spec = layer.spec
         overlay = spec.role == "overlay"
         a_core = alpha[self.inner]
@@ -421,7 +443,8 @@ class WindowMeasure:
         # the layer's first paint is its union so far (read only: never written to)
         self._union = a_core if union is None else np.maximum(union, a_core)
         opaque = _measure_part(self.stats.layers[li], paint, alpha, out if overlay else None,
-                               self._ground if pi else None, overlay, self.inner, opaque)
+                               self._ground if pi else None, overlay, self.inner, opaque,
+                               counts)
         self._opaque = first and opaque
         if spec.role == "theme" and paint.palette is not None:
             self._themes.append((li, paint.index[self.inner], a_core, opaque))
@@ -479,7 +502,8 @@ class WindowMeasure:
             np.multiply(y, np.float32(_Y_LEVELS - 1), out=t)
             t += np.float32(0.5)
             cells[:] = t
-            np.minimum(cells, _Y_LEVELS - 1, out=cells)
+            if not _top_cell_holds_white():
+                np.minimum(cells, _Y_LEVELS - 1, out=cells)
             lightness = np.take(_cell_bounds()[2], cells, mode="clip",
                                 out=_scratch("sampled-lightness", (n_s,), np.intp))
             shown = None
@@ -516,13 +540,16 @@ class WindowMeasure:
                 # same order per entry, without the table's other rows of zeros
                 lo, hi = int(index_s.min()), int(index_s.max())
                 m = hi - lo + 1
-                cell = _scratch("sampled-entry", (n_s,), np.intp)
-                np.multiply(index_s, N_LIGHTNESS, out=cell.reshape(index_s.shape), dtype=np.intp)
-                cell += lightness
-                cell -= lo * N_LIGHTNESS
+                # each pixel's entry - lo, m where left out: its (entry, L*) cell then lies
+                # past the m x N_LIGHTNESS cells counted
+                entry = _scratch("sampled-index", (n_s,), np.intp)
+                np.subtract(index_s, lo, out=entry.reshape(index_s.shape), dtype=np.intp)
                 if keep is not None:
-                    np.putmask(cell, ~keep, m * N_LIGHTNESS)
-                counts = np.bincount(cell, minlength=m * N_LIGHTNESS + 1)[
+                    np.putmask(entry, ~keep, m)
+                cell = _scratch("sampled-entry", (n_s,), np.intp)
+                np.multiply(entry, N_LIGHTNESS, out=cell)
+                cell += lightness
+                counts = np.bincount(cell, minlength=(m + 1) * N_LIGHTNESS)[
                     :m * N_LIGHTNESS].reshape(m, N_LIGHTNESS)
                 s.value_lightness[lo:hi + 1] += counts
                 if s.value_color is not None and s.value_count is not None:   # blended colours
@@ -531,8 +558,7 @@ class WindowMeasure:
                     if a_s is None and above is None:
                         # drawn where shown, as kept above: the same pixels, counted there
                         s.value_count[lo:hi + 1] += counts.sum(axis=1)
-                        idx = cell
-                        idx //= N_LIGHTNESS         # the entry - lo (m where left out)
+                        idx = entry                 # the entry - lo (m where left out)
                     else:
                         drawn = None if a_s is None else a_s > 0   # wherever drawn, however faint
                         if shown is not None:

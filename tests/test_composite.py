@@ -151,3 +151,22 @@ def test_bad_mode_message():
     with pytest.raises(StyleError, match="is not a blend mode"):
         composite_over(planes([0] * 3), planes([0] * 3), np.ones((4, 5)), "darken")
     assert blend_mode("multiply", "x") is comp.multiply
+
+
+@pytest.mark.parametrize("strip", [7, 1 << 15])
+def test_composite_palette_counts_the_region_like_bincount(monkeypatch, strip):
+    # the histogram composite_palette adds while it looks the strips up must be numpy's
+    # np.bincount of the region's indices (numpy as the reference), for a core inside a margin,
+    # strips cutting the core's first and last rows, and the whole array
+    monkeypatch.setattr(comp, "STRIP_PIXELS", strip)
+    rng = np.random.default_rng(11)
+    table = rng.random((3, 300), dtype=np.float32)
+    index = rng.integers(0, 300, (37, 11)).astype(np.uint16)
+    alpha = np.ones((37, 11), np.float32)
+    for region in ((slice(3, 34), slice(2, 9)), (slice(0, 37), slice(0, 11)),
+                   (slice(5, 6), slice(0, 4)), None):
+        counts = np.zeros(300, np.intp)
+        composite_palette(rng.random((3, 37, 11), dtype=np.float32), table, index, alpha,
+                          opaque=True, counts=counts, region=region)
+        ref = np.bincount(index[region if region is not None else ...].ravel(), minlength=300)
+        assert np.array_equal(counts, ref), region

@@ -144,3 +144,17 @@ def test_take8_rounds_like_rint_then_clip():
     want = np.clip(np.rint(planes.reshape(3, -1) * np.float32(255)), 0, 255).astype(np.uint8)
     np.testing.assert_array_equal(M._take8(planes, idx), want)
     np.testing.assert_array_equal(M._take8(want.reshape(3, 1, -1), idx[::-1]), want[:, ::-1])
+
+
+def test_no_8bit_colour_passes_the_last_y_cell():
+    # the grey order skips _cells' cap when _top_cell_holds_white says it changes nothing:
+    # checked here on every one of the 2**24 8-bit sRGB colours by brute force (the WCAG
+    # relative luminance as _luminance8 sums it, then the uncapped cell)
+    assert M._top_cell_holds_white()
+    gb = np.indices((256, 256)).reshape(2, -1).astype(np.uint8)
+    top = 0
+    for r in range(256):
+        planes = np.concatenate([np.full((1, gb.shape[1]), r, np.uint8), gb])
+        t = M._luminance8(planes) * np.float32(M._Y_LEVELS - 1) + np.float32(0.5)
+        top = max(top, int(t.astype(np.int64).max()))
+    assert top <= M._Y_LEVELS - 1
