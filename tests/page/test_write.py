@@ -330,3 +330,22 @@ def test_setter_listings_left_empty_only_while_loading():
     assert line.get_linewidth() == 3.0 and line.get_color() == "red"
     assert "solid_capstyle" not in (Inside.set.__doc__ or "")
     assert "solid_capstyle" in Outside.set.__doc__
+
+
+def test_the_font_subsetter_loads_on_first_use():
+    """The PDF writer's module no longer loads fontTools' subsetter with itself
+    (compose.page.write.subsetter_on_first_use), and the subsetter still works when a
+    TrueType subset is embedded (the standard library's importlib.util.LazyLoader)."""
+    code = textwrap.dedent("""
+        import sys
+        from compose.page.write import subsetter_on_first_use
+        subsetter_on_first_use()
+        import matplotlib.backends.backend_pdf
+        assert "fontTools.varLib" not in sys.modules, "loaded with the PDF writer"
+        from fontTools import subset
+        options = subset.Options(glyph_names=True)
+        assert options.glyph_names and "fontTools.varLib" in sys.modules
+    """)
+    import sys
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
