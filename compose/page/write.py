@@ -93,7 +93,7 @@ def subsetter_on_first_use() -> None:
     module = importlib.util.module_from_spec(spec)
     sys.modules[name] = module
     spec.loader.exec_module(module)
-    setattr(sys.modules["fontTools"], "subset", module)
+    sys.modules["fontTools"].subset = module
 
 
 def warm_writers() -> None:
