@@ -62,3 +62,56 @@ def test_check_is_still_the_checker_package():
 
     assert package is compose.check and callable(compose.check)
     assert check_style is package.check_style
+
+
+def _coarse_demo():
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
+    return compose.load_style(demo, overrides={"map.pixel": 60})     # 750 x 750: 4 windows
+
+
+def _forks(monkeypatch) -> list:
+    """Count the check's helper processes (compose.api._Helpers) as they are forked."""
+    import compose.page.process as process
+
+    if not process.can_fork():
+        pytest.skip("no fork here (not Linux, or another thread is running)")
+    started = []
+    real = process.Forked.__init__
+    monkeypatch.setattr(process.Forked, "__init__",
+                        lambda self, fn: started.append(1) or real(self, fn))
+    return started
+
+
+def test_a_check_walked_by_helper_processes_reports_the_same_bytes(monkeypatch):
+    """compose.check(workers=N): helpers forked beside the check walk later windows and the
+    check merges their statistics in window order, so the JSON report is byte-identical to a
+    walk in one process (silver: our own invariant, as for --workers in a render)."""
+    import json
+
+    style = _coarse_demo()
+    one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
+    started = _forks(monkeypatch)
+    for workers in (2, 3):
+        assert json.dumps(compose.check(style, cache=False, workers=workers).to_json(False)) == one
+    assert len(started) == 1 + 2
+
+
+def test_a_failing_helper_has_its_windows_walked_by_the_check(monkeypatch):
+    """A helper that cannot send its windows' statistics (here: packing them fails in the
+    helper, the only process that packs) leaves them to the check itself: the same report."""
+    import json
+
+    import compose.packing
+
+    style = _coarse_demo()
+    one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
+    started = _forks(monkeypatch)
+
+    def broken(obj):
+        raise RuntimeError("no packing in this test")
+
+    monkeypatch.setattr(compose.packing, "pack", broken)
+    assert json.dumps(compose.check(style, cache=False, workers=2).to_json(False)) == one
+    assert len(started) == 1

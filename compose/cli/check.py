@@ -82,13 +82,17 @@ def explain(rule: str) -> str:
                    "$XDG_CACHE_HOME/compose, else ~/.cache/compose).")
 @click.option("--clear-cache", is_flag=True,
               help="Delete the cache's entries first (with no STYLE: only that).")
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Processes that walk the map's windows when no cache is used, each preparing "
+                   "the render itself (default: one per core, each walking two windows or more); the "
+                   "same report with any number.")
 @click.option("--rules", "list_rules", is_flag=True,
               help="List the rules: id, what each measures, its limit and budget key, its source.")
 @click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")
 @limit_options
 @handle_errors
 def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cache: bool,
-            cache_dir: Path | None, clear_cache: bool, list_rules: bool,
+            cache_dir: Path | None, clear_cache: bool, workers: int | None, list_rules: bool,
             explain_rule: str | None) -> None:
     """Check the visual hierarchy of STYLE: budgets, contrast, ramps, classes, grey order.
 
@@ -115,7 +119,7 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cac
     if style is None:
         raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")
     report = check(style, progress=progress_bar("checking"), draft=draft,
-                   cache=False if no_cache else cache_dir)
+                   cache=False if no_cache else cache_dir, workers=workers)
     if as_json:
         click.echo(json.dumps(report.to_json(strict), indent=2))
     else:
