@@ -157,6 +157,8 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
         store = _cache_of(style, prepared.canvas, keep_clear, cache, mapper, read=False)
         prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
                            make_layer=None if store is None else store.layer)
+    if is_draft and mapper is None:
+        mapper = _marks_first
     try:
         stats = run(prepared, [], progress=progress, mapper=mapper, window=WINDOW)
         if store is not None:
@@ -165,6 +167,37 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
                            draft=describe_draft(prepared.canvas, full) if is_draft else None)
     finally:
         prepared.close()
+
+
+#: Layer kinds whose paints are drawn marks (Agg), not raster reads.
+_MARK_KINDS = ("lines", "areas", "points", "labels")
+
+
+class _Drawn:
+    """One window's paints of the mark layers of ``prepared``, drawn now (the engine's
+    ``drawn``: :func:`compose.engine.render_window` takes them instead of painting again)."""
+
+    def __init__(self, prepared, window):
+        transform = prepared.canvas.window_transform(window)
+        _, _, h, w = window.padded
+        self._window = window
+        self._paints = {li: layer.paint(window, transform, h, w)
+                        for li, layer in enumerate(prepared.layers)
+                        if layer.spec.kind in _MARK_KINDS}
+
+    def paints(self, window, li: int):
+        return self._paints.get(li) if window == self._window else None
+
+
+def _marks_first(task, windows):
+    """A draft's walk (one window, or a few): each window's lines, areas, points and labels
+    drawn before its raster layers are painted, so the drawing (which holds the interpreter
+    lock) runs while the rasters' early reads (:mod:`compose.layers.early`) still decode on
+    their threads instead of after them; the same paints, so the same report."""
+    import dataclasses
+
+    for window in windows:
+        yield dataclasses.replace(task, drawn=_Drawn(task.prepared, window))(window)
 
 
 class _Helpers:
