@@ -3,7 +3,8 @@ as commands (a fresh process each, what a user or CI runs), on the example style
 canvas (the synthetic benchmark style of bench/render.py, 8192 x 8192 by default); each cold
 (``--no-cache``: every source read, every layer drawn) and warm (the cache of prepared inputs
 filled by an earlier run of the same style, as after a change of colours only; see
-compose.check_cache).
+compose.check_cache); as commands also the cold full check in one process (``--workers 1``:
+no helper processes walking windows beside it, see compose.api).
 
     .venv/bin/python bench/check_draft.py [--runs 3] [--styles coast,poor] [--big 8192]
                                           [--no-commands] [--no-inprocess]
@@ -80,21 +81,24 @@ def commands(styles: list[Path], runs: int) -> None:
 
 def command_rows(name: str, style: Path, runs: int, cache: str, cwd: Path) -> None:
     """Full and draft as commands, cold (--no-cache) and warm (a cache filled before)."""
-    got: dict[str, list] = {k: [] for k in ("full cold", "draft cold", "full warm", "draft warm")}
+    got: dict[str, list] = {k: [] for k in ("full cold", "draft cold", "full warm", "draft warm",
+                                            "full cold 1")}
     for flags in ([], ["--draft"]):      # fill the cache
         run_command(COMPOSE + ["check", "--cache-dir", cache, *flags, str(style)], cwd=cwd)
     for _ in range(runs):
         for key in got:
             flags = (["--draft"] if key.startswith("draft") else []) + (
-                ["--no-cache"] if key.endswith("cold") else ["--cache-dir", cache])
+                ["--cache-dir", cache] if key.endswith("warm") else ["--no-cache"]) + (
+                ["--workers", "1"] if key.endswith(" 1") else [])
             got[key].append(run_command(COMPOSE + ["check", *flags, str(style)], cwd=cwd))
     m = {k: medians(v) for k, v in got.items()}
-    fc, dc, fw, dw = (m[k][0] for k in got)
+    fc, dc, fw, dw, f1 = (m[k][0] for k in got)
     cpu = "  ".join(f"{m[k][1]:.2f}" for k in got)
     print(f"{name:<11} cold: full {fc:6.2f} s  draft {dc:6.2f} s  x{fc / dc:5.1f}   "
           f"warm: full {fw:6.2f} s  draft {dw:6.2f} s  x{fw / dw:5.1f}   "
           f"full cold / draft warm x{fc / dw:5.1f}   exit {m['full cold'][2]}/{m['draft cold'][2]}"
-          f"   (cpu s, same order: {cpu})")
+          f"   full cold, one process (--workers 1) {f1:6.2f} s: x{f1 / fc:4.2f} the default, "
+          f"x{f1 / dc:5.1f} the draft   (cpu s, same order: {cpu})")
 
 
 def timed_check(style, canvas, draft: bool, cache=False):
