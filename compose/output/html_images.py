@@ -68,6 +68,11 @@ def box_reduce(rgb8: np.ndarray, max_width: int = PAGE_WIDTH) -> np.ndarray:
         block: np.ndarray = rows[:, 0::k].copy()
         for i in range(1, k):
             np.add(block, rows[:, i::k], out=block)
+        if hb == H and wb == W and k <= 16:
+            # whole blocks only: the quotient below with the one count, without the sums'
+            # and counts' arrays (the same float32 operations on the same values)
+            whole = np.divide(block, np.float32(k * k), dtype=np.float32)
+            return np.rint(whole, out=whole).astype(np.uint8)
         sums[:hb, :wb] = block
     if wb < W and hb:
         sums[:hb, wb] = rgb8[:hb * k, wb * k:].reshape(hb, k, -1, 3).sum(axis=(1, 2))

@@ -54,7 +54,7 @@ def test_partial_image_averages_what_arrived_so_far():
 
 @pytest.mark.parametrize("shape, max_width", [((1500, 1500), 800), ((37, 23), 10), ((101, 99), 7),
                                               ((5, 40), 3), ((17, 17), 16), ((40, 700), 20),
-                                              ((30, 90), 2)])
+                                              ((30, 90), 2), ((36, 60), 20), ((64, 64), 8)])
 def test_box_reduce_is_the_block_mean_and_the_preview_sinks_pixels(shape, max_width):
     """compose.output.html_images.box_reduce (integer sums of strided views, one division) gives
     the plain definition -- each block's mean over the pixels it has, rounded half to even
