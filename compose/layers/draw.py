@@ -36,11 +36,11 @@ from matplotlib.cbook import is_math_text
 from matplotlib.font_manager import FontProperties, findfont, fontManager, get_font
 from matplotlib.ft2font import LoadFlags
 from matplotlib.path import Path
-from matplotlib.textpath import TextPath, text_to_path
 from matplotlib.transforms import Affine2D, IdentityTransform
 
 from compose.errors import StyleError
 from compose.layers.paths import area_path, dashed, display, flatten, line_path, to_pixels
+from compose.lazy import on_first_use
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
            "draw_lines", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
@@ -294,7 +294,12 @@ def text_outline(text: str, size_px: float, prop: FontProperties) -> tuple[np.nd
     matplotlib's ``TextPath((0, 0), text, size=size_px, prop=prop)`` gives them: plain text laid
     out by its ``text_to_path`` and scaled from its font scale. Without the ``TextPath`` class,
     whose constructor imports matplotlib's artists (text, patches, lines) only to decide whether
-    the string is mathtext; a string that is goes through ``TextPath`` itself."""
+    the string is mathtext; a string that is goes through ``TextPath`` itself. matplotlib's
+    text paths are imported on the first call, with TeX's DVI reader, which they import but use
+    only for TeX, loaded when first used (:func:`compose.lazy.on_first_use`: 0.03 s of CPU)."""
+    on_first_use("matplotlib.dviread")
+    from matplotlib.textpath import TextPath, text_to_path
+
     if matplotlib.rcParams["text.parse_math"] and is_math_text(text):
         tp = TextPath((0.0, 0.0), text, size=size_px, prop=prop)
         return np.array(tp.vertices, np.float64), tp.codes

@@ -22,7 +22,7 @@ from compose.page.layout import PageLayout, blocked_pixels, page_layout
 
 __all__ = ["PageSink", "vector_split", "without_setter_listings", "legend_for_page", "fit_legend",
            "write_page", "page_ahead", "page_png", "EarlyPage", "page_early", "furniture_rgba", "paste_map",
-           "write_page_png", "world_file_text", "warm_writers", "subsetter_on_first_use",
+           "write_page_png", "world_file_text", "warm_writers",
            "write_world_file", "page_paths", "blocked_for", "RC"]
 
 #: matplotlib settings of the vector writers: text stays text (``pdf.fonttype`` follows
@@ -70,38 +70,18 @@ def without_setter_listings():
             artist.kwdoc = listing
 
 
-def subsetter_on_first_use() -> None:
-    """Load fontTools' font subsetter, which matplotlib's PDF writer imports with itself but uses
-    only to embed TrueType subsets (``page.pdf_fonts = "truetype"``), when it is first used
-    instead (the standard library's ``importlib.util.LazyLoader``: the module object exists,
-    its code runs at the first attribute looked up): about 0.17 of the 0.26 s CPU of loading
-    the page writers, measured here. Nothing else changes; the outlines a PDF embeds by default
-    come from FreeType either way."""
-    import importlib.util
-    import sys
-
-    name = "fontTools.subset"
-    if name in sys.modules:
-        return
-    try:
-        spec = importlib.util.find_spec(name)
-    except ImportError:                                # pragma: no cover - a writer reports it
-        return
-    if spec is None or spec.loader is None:            # pragma: no cover
-        return
-    spec.loader = importlib.util.LazyLoader(spec.loader)
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[name] = module
-    spec.loader.exec_module(module)
-    sys.modules["fontTools"].subset = module
-
-
 def warm_writers() -> None:
     """Import what the page writers use (matplotlib's figure, PDF/SVG/Agg backends, the page and
-    legend drawing; :func:`without_setter_listings`, :func:`subsetter_on_first_use`); errors
-    are left for the writers themselves to raise."""
+    legend drawing; :func:`without_setter_listings`); errors are left for the writers
+    themselves to raise. fontTools' font subsetter, which matplotlib's PDF writer imports with
+    itself but uses only to embed TrueType subsets (``page.pdf_fonts = "truetype"``), and TeX's
+    DVI reader load when first used (:func:`compose.lazy.on_first_use`; the subsetter was 0.09
+    of the 0.26 s CPU of loading the page writers, the reader 0.03, measured here)."""
     try:
-        subsetter_on_first_use()
+        from compose.lazy import on_first_use
+
+        on_first_use("fontTools.subset")
+        on_first_use("matplotlib.dviread")
         with without_setter_listings():
             import matplotlib.backends.backend_agg  # noqa: F401
             import matplotlib.backends.backend_pdf  # noqa: F401

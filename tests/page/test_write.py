@@ -332,19 +332,26 @@ def test_setter_listings_left_empty_only_while_loading():
     assert "solid_capstyle" in Outside.set.__doc__
 
 
-def test_the_font_subsetter_loads_on_first_use():
-    """The PDF writer's module no longer loads fontTools' subsetter with itself
-    (compose.page.write.subsetter_on_first_use), and the subsetter still works when a
-    TrueType subset is embedded (the standard library's importlib.util.LazyLoader)."""
+def test_the_font_subsetter_and_the_dvi_reader_load_on_first_use():
+    """matplotlib's text paths (compose.layers.draw) no longer load TeX's DVI reader with
+    themselves, nor its PDF writer fontTools' subsetter (compose.lazy.on_first_use); both still
+    work when used (the standard library's importlib.util.LazyLoader)."""
     code = textwrap.dedent("""
         import sys
-        from compose.page.write import subsetter_on_first_use
-        subsetter_on_first_use()
+        from matplotlib.font_manager import FontProperties
+        from compose.layers.draw import text_outline
+        vertices, codes = text_outline("Harbour", 12.0, FontProperties(family="DejaVu Sans"))
+        assert len(vertices) == len(codes) > 0
+        dvi = sys.modules["matplotlib.dviread"]
+        assert type(dvi).__name__ == "_LazyModule", "loaded with the text paths"
+        from compose.lazy import on_first_use
+        on_first_use("fontTools.subset")
         import matplotlib.backends.backend_pdf
         assert "fontTools.varLib" not in sys.modules, "loaded with the PDF writer"
         from fontTools import subset
         options = subset.Options(glyph_names=True)
         assert options.glyph_names and "fontTools.varLib" in sys.modules
+        assert callable(dvi.Dvi) and type(dvi).__name__ == "module"
     """)
     import sys
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
