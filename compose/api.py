@@ -149,6 +149,7 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
            store) -> CheckReport:
     from compose.check.draft import describe_draft
     from compose.engine import WINDOW, prepare, run  # looked up per call (tests may replace them)
+    from compose.timeline import span
 
     prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
                        make_layer=None if store is None else store.layer)
@@ -160,11 +161,13 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
     if is_draft and mapper is None:
         mapper = _marks_first
     try:
-        stats = run(prepared, [], progress=progress, mapper=mapper, window=WINDOW)
+        with span("check walk"):
+            stats = run(prepared, [], progress=progress, mapper=mapper, window=WINDOW)
         if store is not None:
             store.save(prepared.margin, WINDOW)
-        return check_style(style, stats, prepared.ramps,
-                           draft=describe_draft(prepared.canvas, full) if is_draft else None)
+        with span("check rules"):
+            return check_style(style, stats, prepared.ramps,
+                               draft=describe_draft(prepared.canvas, full) if is_draft else None)
     finally:
         prepared.close()
 
@@ -235,6 +238,7 @@ class _Helpers:
 
             from compose.engine import prepare, run
             from compose.packing import pack
+            from compose.timeline import span
 
             gc.disable()            # a short-lived process: its memory goes when it ends
             _read_vectors_early(style, None, draft)
@@ -247,7 +251,8 @@ class _Helpers:
                     got.append(pack(res.statistics))    # merged by the parent, not by run
                     yield dataclasses.replace(res, statistics=None)
 
-            run(prepared, [], mapper=mine, window=WINDOW)
+            with span(f"check helper {part} walks"):
+                run(prepared, [], mapper=mine, window=WINDOW)
             return got
 
         return cls([Forked(functools.partial(walk, part)) for part in range(1, n + 1)])
@@ -257,6 +262,7 @@ class _Helpers:
         helper's window results with their statistics (rows are not kept by a check)."""
         from compose.engine import WindowResult
         from compose.packing import unpack
+        from compose.timeline import span
 
         windows = list(windows)
         parts = len(self._jobs) + 1
@@ -264,7 +270,8 @@ class _Helpers:
         for part, job in enumerate(self._jobs, 1):
             mine = _share(windows, parts, part)
             try:
-                got = job.result()
+                with span(f"check waits for helper {part}"):
+                    got = job.result()
             except Exception:       # the helper failed: its windows are walked here
                 got = None
             if got is None or len(got) != len(mine):
