@@ -23,9 +23,11 @@ Then the 1500 x 1500 demo style (render with all outputs, ``compose check``) and
 time of ``compose --help``.
 
 Every render runs in a child process with compose's own settings (no GDAL cache or thread
-settings of ours); peak memory is the child's own high-water mark (VmHWM; its ru_maxrss
-would include this bench's peak, which Linux carries across exec). Times on a shared machine are noisy:
-read ratios within one run. No assertion is made: the figures are for the closing notes.
+settings of ours; the compute-only and bare renders set the command's malloc settings,
+:func:`compose.heap.limit_arenas`, as ``compose render`` does); peak memory is the child's
+own high-water mark (VmHWM; its ru_maxrss would include this bench's peak, which Linux carries
+across exec). Times on a shared machine are noisy: read ratios within one run. No assertion is
+made: the figures are for the closing notes.
 """
 from __future__ import annotations
 
@@ -231,6 +233,10 @@ import json, resource, sys, time
 from pathlib import Path
 mode, style_path, out = sys.argv[1], Path(sys.argv[2]), Path(sys.argv[3])
 extra = json.loads(sys.argv[4]) if len(sys.argv) > 4 else {}
+# the command's malloc settings (compose.cli.render calls this before its walk's threads start):
+# shared arenas, a fixed mmap threshold and freed memory kept until the walk trims it each row
+from compose.heap import limit_arenas
+limit_arenas()
 from compose.style import load_style
 style = load_style(style_path)
 mapper, cluster = None, None
@@ -373,7 +379,8 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"(size {100 * (png_ratio_ng - 1):+.1f} % vs zlib 6; compose uses {PNG_DEFLATE} level {PNG_LEVEL})")
     print(f"  floors summed, compute + encode                             {floors_sum:6.2f} s  "
           f"(on 2 cores at best {floors_sum / 2:.2f} s)")
-    print(f"targets beside floors (median of {runs}; one run, same machine state)")
+    print(f"targets beside floors (median of {runs}; one run, same machine state; every task with "
+          f"the command's malloc settings, compose.heap.limit_arenas)")
     print(f"  bare render (PNG + GeoTIFF + check), 1 worker   {total:6.2f} s wall, peak "
           f"{gb(bare1['peak'])}  = {total / floors_sum:.2f} x floors summed")
     print(f"  bare render, 2 workers (threads)                {total2:6.2f} s wall  "
