@@ -477,7 +477,7 @@ class WindowMeasure:
                 p = self.stats.layers[li].parts[part]
                 p.seen = np.bincount(index.ravel(), weights=(a_core * through).ravel(),
                                      minlength=p.weights.shape[0])
-        themes = [t for t in self._themes if self.stats.layers[t[0]].value_lightness is not None]
+        themes = [t for t in self._themes if self.stats.layers[t[0]].measures("value_lightness")]
         if themes:
             # Grey order is a rank correlation: every second row and column (a quarter of the
             # pixels, on the canvas's own even grid so windows agree) estimates it as well.
@@ -527,7 +527,6 @@ class WindowMeasure:
             linear = None
             for (li, index, _, _), a_s, above in zip(themes, sampled_alpha, covered_above):
                 s = self.stats.layers[li]
-                assert s.value_lightness is not None          # filtered above
                 # pixels left out are counted in one bin past the table's end, dropped after
                 # (every other bin gets the same pixels in the same order as by selecting them)
                 keep = None if a_s is None else a_s > 0.5
@@ -551,13 +550,14 @@ class WindowMeasure:
                 cell += lightness
                 counts = np.bincount(cell, minlength=(m + 1) * N_LIGHTNESS)[
                     :m * N_LIGHTNESS].reshape(m, N_LIGHTNESS)
-                s.value_lightness[lo:hi + 1] += counts
-                if s.value_color is not None and s.value_count is not None:   # blended colours
+                # whole numbers as float64 (exact), added to the entries' rows only
+                s.add_rows("value_lightness", lo, counts.astype(np.float64))
+                if s.measures("value_color") and s.measures("value_count"):   # blended colours
                     if above is True:       # hidden by an opaque theme drawn later everywhere
                         continue
                     if a_s is None and above is None:
                         # drawn where shown, as kept above: the same pixels, counted there
-                        s.value_count[lo:hi + 1] += counts.sum(axis=1)
+                        s.add_rows("value_count", lo, counts.sum(axis=1).astype(np.float64))
                         idx = entry                 # the entry - lo (m where left out)
                     else:
                         drawn = None if a_s is None else a_s > 0   # wherever drawn, however faint
@@ -570,12 +570,14 @@ class WindowMeasure:
                         idx -= lo
                         if drawn is not None:
                             np.putmask(idx, ~drawn, m)
-                        s.value_count[lo:hi + 1] += np.bincount(idx, minlength=m + 1)[:m]
+                        s.add_rows("value_count", lo,
+                                   np.bincount(idx, minlength=m + 1)[:m].astype(np.float64))
                     if linear is None:
                         linear = _scratch("sampled-linear", (3, n_s), np.float64)
                         for c in range(3):
                             np.take(_LINEAR8, sampled[c], out=linear[c], mode="wrap")
+                    block = np.empty((m, 3))
                     for c in range(3):   # linear-light channel values of the composite
-                        s.value_color[lo:hi + 1, c] += np.bincount(idx, weights=linear[c],
-                                                                   minlength=m + 1)[:m]
+                        block[:, c] = np.bincount(idx, weights=linear[c], minlength=m + 1)[:m]
+                    s.add_rows("value_color", lo, block)
         return self.stats

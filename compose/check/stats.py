@@ -281,6 +281,58 @@ class PartStats:
                 a += b
 
 
+class _EntryRows:
+    """The descriptor behind :attr:`LayerStats.value_lightness`, ``value_color`` and
+    ``value_count`` (one row per palette entry): the dense array, made on first read from the
+    rows a window measured (:meth:`LayerStats.add_rows`: the entries lo..lo + m - 1 it saw), so
+    a window's statistics never allocate, zero or add the table's other rows (a 1027-entry
+    theme's L* table is 0.8 MB; a window of the 8192 benchmark sees a few hundred entries).
+    A dataclass field's default is this descriptor's value on the class: None."""
+
+    def __set_name__(self, owner, name: str) -> None:
+        self.dense, self.rows = f"_{name}_dense", f"_{name}_rows"
+
+    def __get__(self, obj, owner=None) -> np.ndarray | None:
+        if obj is None:
+            return None
+        d = obj.__dict__
+        rows = d.get(self.rows)
+        if rows is not None:
+            lo, block, n = rows
+            dense = np.zeros((n,) + block.shape[1:])
+            dense[lo:lo + block.shape[0]] = block     # 0 + x = x exactly: as if added
+            d[self.dense], d[self.rows] = dense, None
+        return d.get(self.dense)
+
+    def __set__(self, obj, value: np.ndarray | None) -> None:
+        obj.__dict__[self.dense] = value
+        obj.__dict__[self.rows] = None
+
+    def measured(self, obj) -> bool:
+        """Whether the layer measures these rows (dense or pending), without making them."""
+        d = obj.__dict__
+        return d.get(self.dense) is not None or d.get(self.rows) is not None
+
+    def add(self, obj, lo: int, block: np.ndarray, n: int) -> None:
+        """Add ``block`` (m rows, float64, owned from now on) to rows lo..lo + m - 1 of an
+        (n, ...) table."""
+        d = obj.__dict__
+        rows = d.get(self.rows)
+        if d.get(self.dense) is None and (rows is None or rows[1].shape[0] == 0):
+            d[self.rows] = (lo, block, n)
+            return
+        dense = self.__get__(obj)
+        assert dense is not None
+        dense[lo:lo + block.shape[0]] += block
+
+    def pending(self, obj) -> tuple[int, np.ndarray, int] | None:
+        """(lo, block, n) when only rows were measured, else None."""
+        return obj.__dict__.get(self.rows)
+
+
+_ROW_TABLES = ("value_lightness", "value_color", "value_count")
+
+
 @dataclass
 class LayerStats:
     """Everything measured of one layer; merges across windows by addition."""
@@ -291,25 +343,46 @@ class LayerStats:
     parts: dict[str, PartStats] = field(default_factory=dict)
     covered: float = 0.0                       # coverage-weighted pixel count of the layer
     values: np.ndarray | None = None           # (n,) data value per palette entry (themes)
-    value_lightness: np.ndarray | None = None  # (n, N_LIGHTNESS) palette index x composite L*
-    value_color: np.ndarray | None = None      # (n, 3) sums of the composite's linear RGB per entry
-    value_count: np.ndarray | None = None      # (n,) pixels summed into value_color
+    value_lightness: _EntryRows = _EntryRows()  # (n, N_LIGHTNESS) palette index x composite L*
+    value_color: _EntryRows = _EntryRows()      # (n, 3) sums of the composite's linear RGB per entry
+    value_count: _EntryRows = _EntryRows()      # (n,) pixels summed into value_color
     nodata_weight: float = 0.0                 # pixels drawn in the no-data colour
     nodata_index: int = -1                     # palette entry of the no-data colour (themes), or -1
     figure: tuple[str, str] | None = None      # overlays: (part judged as the mark, its colour key)
     outline: str | None = None                 # overlays: the part drawn beneath the figure
 
     def empty_like(self) -> LayerStats:
-        """The same layer with nothing measured yet (a window's statistics start from this)."""
-        return LayerStats(name=self.name, role=self.role, kind=self.kind,
-                          values=self.values, nodata_index=self.nodata_index,
-                          figure=self.figure, outline=self.outline,
-                          value_lightness=(None if self.value_lightness is None
-                                           else np.zeros_like(self.value_lightness)),
-                          value_color=(None if self.value_color is None
-                                       else np.zeros_like(self.value_color)),
-                          value_count=(None if self.value_count is None
-                                       else np.zeros_like(self.value_count)))
+        """The same layer with nothing measured yet (a window's statistics start from this):
+        tables measured per palette entry start as no rows of the same shape, all zeros when
+        read."""
+        out = LayerStats(name=self.name, role=self.role, kind=self.kind,
+                         values=self.values, nodata_index=self.nodata_index,
+                         figure=self.figure, outline=self.outline)
+        for name in _ROW_TABLES:
+            desc = LayerStats.__dict__[name]
+            pending = desc.pending(self)
+            if pending is not None:
+                trailing, n = pending[1].shape[1:], pending[2]
+            else:
+                table = getattr(self, name)
+                if table is None:
+                    continue
+                trailing, n = table.shape[1:], table.shape[0]
+            out.__dict__[desc.rows] = (0, np.zeros((0,) + trailing), n)     # no rows yet
+        return out
+
+    def measures(self, name: str) -> bool:
+        """Whether the table ``name`` (value_lightness, value_color, value_count) is measured,
+        without making a dense table of rows only measured in part."""
+        return LayerStats.__dict__[name].measured(self)
+
+    def add_rows(self, name: str, lo: int, block: np.ndarray) -> None:
+        """Add ``block`` (m rows, float64, owned from now on) to rows lo..lo + m - 1 of the table
+        ``name`` (measured: see :meth:`measures`)."""
+        desc = LayerStats.__dict__[name]
+        pending = desc.pending(self)
+        n = pending[2] if pending is not None else getattr(self, name).shape[0]
+        desc.add(self, lo, block, n)
 
     def merge(self, other: LayerStats) -> None:
         """Add ``other`` (the same layer measured elsewhere, e.g. another window) to this."""
@@ -320,18 +393,33 @@ class LayerStats:
                 self.parts[key] = part.copy()
         self.covered += other.covered
         self.nodata_weight += other.nodata_weight
-        if other.value_lightness is not None:
-            if self.value_lightness is None:
-                self.value_lightness = other.value_lightness.copy()
+        if not (other.measures("value_color") and other.measures("value_count")):
+            names: tuple[str, ...] = ("value_lightness",)
+        else:
+            names = _ROW_TABLES
+        for name in names:
+            desc = LayerStats.__dict__[name]
+            pending = desc.pending(other)
+            if pending is not None:         # only some rows: add those
+                lo, block, n = pending
+                if not block.shape[0]:
+                    if not desc.measured(self):
+                        desc.__set__(self, np.zeros((n,) + block.shape[1:]))
+                    continue
+                mine = self.__dict__.get(desc.dense)
+                if mine is not None:        # ours is dense: add the rows in place
+                    mine[lo:lo + block.shape[0]] += block
+                else:                       # adopted or spread: ours to keep
+                    desc.add(self, lo, block.copy(), n)
+                continue
+            theirs = getattr(other, name)
+            if theirs is None:
+                continue
+            mine = getattr(self, name)
+            if mine is None:
+                setattr(self, name, theirs.copy())
             else:
-                self.value_lightness += other.value_lightness
-        if other.value_color is not None and other.value_count is not None:
-            if self.value_color is None or self.value_count is None:
-                self.value_color = other.value_color.copy()
-                self.value_count = other.value_count.copy()
-            else:
-                self.value_color += other.value_color
-                self.value_count += other.value_count
+                mine += theirs
 
     def composite_colors(self, min_pixels: float = 1.0) -> tuple[np.ndarray, np.ndarray] | None:
         """Mean composite colour (sRGB floats, (n, 3)) of each palette entry as the reader sees

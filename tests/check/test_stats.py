@@ -47,3 +47,41 @@ def test_lightness_of_rgb8_matches_colour_science():
     rgb8 = rng.integers(0, 256, (1000, 3), dtype=np.uint8)
     want = colour.XYZ_to_Lab(colour.sRGB_to_XYZ(rgb8 / 255.0))[:, 0]
     np.testing.assert_allclose(lightness_of_rgb8(rgb8), want, atol=1e-3)
+
+
+def test_entry_rows_of_windows_merge_like_dense_tables():
+    # numpy addition of dense (n, ...) tables is the reference: windows that measured only some
+    # entries' rows must sum, in any process, to the same float64 bits as their dense tables
+    import pickle
+
+    from compose.check.stats import N_LIGHTNESS, LayerStats
+
+    rng = np.random.default_rng(12)
+    n = 300
+    template = LayerStats("t", "theme", "field", values=np.arange(n, dtype=float),
+                          value_lightness=np.zeros((n, N_LIGHTNESS)), value_color=np.zeros((n, 3)),
+                          value_count=np.zeros(n))
+    dense = {k: np.zeros_like(getattr(template, k))
+             for k in ("value_lightness", "value_color", "value_count")}
+    windows = []
+    for lo, m in ((40, 100), (0, 7), (250, 50), (120, 1), (60, 0)):
+        w = template.empty_like()
+        assert w.measures("value_lightness") and w.__dict__.get("_value_lightness_dense") is None
+        for k, trailing in (("value_lightness", (N_LIGHTNESS,)), ("value_color", (3,)),
+                            ("value_count", ())):
+            if m:
+                block = rng.integers(0, 50, (m,) + trailing).astype(float) * rng.random()
+                dense[k][lo:lo + m] += block
+                w.add_rows(k, lo, block.copy())
+        windows.append(w)
+    acc = windows[0]                                   # the first window's own, as the walk does
+    for w in windows[1:]:
+        acc.merge(pickle.loads(pickle.dumps(w)))       # as from a worker process
+    for k, want in dense.items():
+        np.testing.assert_array_equal(getattr(acc, k), want)
+    # a window read on its own is its dense table: zeros outside its rows
+    one = template.empty_like()
+    one.add_rows("value_count", 5, np.array([2.0, 3.0]))
+    assert one.value_count.shape == (n,) and one.value_count.sum() == 5.0
+    np.testing.assert_array_equal(template.empty_like().value_lightness, np.zeros((n, N_LIGHTNESS)))
+    assert not LayerStats("o", "overlay", "lines").measures("value_lightness")
