@@ -15,10 +15,13 @@ pixels where two features overlap do add up, clamped at 1).
 
 Windows: draw each window with its own transform (``Canvas.window_transform``) and a margin of
 at least half the widest stroke plus 2 px (Agg cuts strokes 1 px beyond the raster; miter joins
-at sharp angles reach further than half the width); the cores then join without seams (tested to
-1/255). Dashes are cut in numpy along each part from its first vertex, before Agg sees the path,
-so they agree across windows as long as every window gets the same parts: pass dashed lines
-clipped to the canvas (or not at all), not cut at the window edge.
+at sharp angles reach further than half the width); the cores then join without visible seams
+(tested to 1/255 on sparse lines; where a path that Agg cut at the raster edge turns sharply
+near it, its inner join changes, so dense lines move by more at a few pixels). The vector
+layers therefore draw fixed tiles of the canvas, whose pixels do not depend on the window size
+(:data:`compose.layers.vector.TILE`). Dashes are cut in numpy along each part from its first
+vertex, before Agg sees the path, so they agree across windows as long as every window gets the
+same parts: pass dashed lines clipped to the canvas (or not at all), not cut at the window edge.
 """
 from __future__ import annotations
 
@@ -43,7 +46,7 @@ from compose.layers.paths import area_path, dashed, display, flatten, line_path,
 from compose.lazy import on_first_use
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
-           "draw_lines", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
+           "draw_lines", "stroke_path", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
            "fill_text_path", "eight_bit_coverage", "text_outline"]
 
 #: Line end styles (our names -> Agg's).
@@ -173,6 +176,25 @@ def draw_lines(geoms, transform: Affine, width: int, height: int, *, width_px: f
         return _zeros(width, height)
     canvas.stroke(path, gc)
     return canvas.coverage()
+
+
+def stroke_path(path: Path | None, width: int, height: int, widths_px: Sequence[float],
+                cap: str = "round", join: str = "round") -> list[np.ndarray]:
+    """Stroke one path already in this raster's display space (:mod:`compose.layers.paths`)
+    at each of ``widths_px`` in turn: one coverage (H, W) in [0, 1] per width (float32, or
+    Agg's uint8 after :func:`eight_bit_coverage`), as :func:`draw_lines` gives it."""
+    canvas = _Canvas(width, height)
+    out = []
+    for i, w in enumerate(widths_px):
+        gc = canvas.gc(w, cap, join)
+        if path is None or not w > 0:
+            out.append(_zeros(width, height))
+            continue
+        if i:
+            canvas.clear()
+        canvas.stroke(path, gc)
+        out.append(canvas.coverage())
+    return out
 
 
 def draw_areas(geoms, transform: Affine, width: int, height: int, *, fill: bool = True,

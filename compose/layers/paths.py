@@ -15,7 +15,8 @@ from matplotlib.path import Path
 
 from compose.errors import StyleError
 
-__all__ = ["to_pixels", "display", "flatten", "line_path", "area_path", "dashed"]
+__all__ = ["to_pixels", "display", "flatten", "line_path", "area_path", "dashed", "PixelParts",
+           "line_parts"]
 
 _MULTI = (4, 5, 6, 7)   # shapely type ids of Multi* and GeometryCollection (the ids from 4 up)
 
@@ -214,3 +215,137 @@ def dashed(path: Path, dash_px: Sequence[float]) -> Path | None:
     out = Path(ev_xy[keep], out_codes, readonly=True)
     out.should_simplify = False
     return out
+
+
+class PixelParts:
+    """Single-part lines or rings in a grid's pixel space, flat: the coordinates of every part
+    once, for drawing any window of the grid without shapely.
+
+    xy: (N, 2) float64 fractional pixel (col, row) of the grid (row down, pixel centres at
+    +0.5), every part's vertices in turn; starts: (n + 1,) int64 offsets of the parts in ``xy``;
+    box: (n, 4) float64 (min col, min row, max col, max row) of each part; closed: the parts are
+    rings (closed, last vertex == first). Memory: 16 bytes a vertex, 40 a part.
+    """
+
+    def __init__(self, xy: np.ndarray, starts: np.ndarray, closed: bool):
+        self.xy = np.ascontiguousarray(xy, dtype=np.float64).reshape(-1, 2)
+        self.starts = np.asarray(starts, dtype=np.int64)
+        self.closed = bool(closed)
+        n = len(self.starts) - 1
+        box = np.empty((n, 4))
+        if n:
+            first = self.starts[:-1]
+            for k, (col, f) in enumerate(((0, np.minimum), (1, np.minimum),
+                                          (0, np.maximum), (1, np.maximum))):
+                box[:, k] = f.reduceat(self.xy[:, col], first)
+        self.box = box
+        self._bins: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
+
+    def __len__(self) -> int:
+        return len(self.starts) - 1
+
+    @classmethod
+    def of(cls, geoms, transform: Affine, closed: bool) -> PixelParts:
+        """Parts from single-part shapely lines or rings (none empty) in ``transform``'s CRS."""
+        xy, index = shapely.get_coordinates(geoms, return_index=True)
+        counts = np.bincount(index, minlength=len(geoms))
+        starts = np.concatenate([[0], np.cumsum(counts)])
+        return cls(to_pixels(xy, transform), starts, closed)
+
+    @classmethod
+    def from_path(cls, path: Path) -> PixelParts:
+        """Open parts from a path of MOVETO / LINETO runs (e.g. :func:`dashed`'s)."""
+        starts = np.append(np.flatnonzero(path.codes == Path.MOVETO), len(path.vertices))
+        return cls(path.vertices, starts, closed=False)
+
+    def whole_path(self) -> Path | None:
+        """Every part as one path in the grid's pixel space (rings closed by CLOSEPOLY)."""
+        return self.path(np.arange(len(self)), 0, 0, None, 0, rotate=False)
+
+    def select(self, col0: float, row0: float, col1: float, row1: float) -> np.ndarray:
+        """Indices (ascending) of the parts whose box meets [col0, col1] x [row0, row1]."""
+        b = self.box
+        return np.flatnonzero((b[:, 0] <= col1) & (b[:, 2] >= col0)
+                              & (b[:, 1] <= row1) & (b[:, 3] >= row0))
+
+    def in_tile(self, size: int, grow: float, tile_row: int, tile_col: int,
+                rows: int, cols: int) -> np.ndarray:
+        """Indices (ascending) of the parts whose box, grown by ``grow`` pixels, meets the tile
+        [tile_col * size, (tile_col + 1) * size) x [tile_row * size, ...) of a grid of ``rows``
+        x ``cols`` such tiles: a bin index built once per (size, grow, rows, cols), then one
+        slice a tile."""
+        key = (int(size), float(grow), int(rows), int(cols))
+        got = self._bins.get(key)
+        if got is None:
+            got = self._bins[key] = self._bin(*key)
+        order, offsets = got
+        t = tile_row * cols + tile_col
+        return order[offsets[t]:offsets[t + 1]]
+
+    def _bin(self, size: int, grow: float, rows: int, cols: int) -> tuple[np.ndarray, np.ndarray]:
+        b = self.box
+        c0 = np.clip(np.floor((b[:, 0] - grow) / size), 0, None)
+        c1 = np.clip(np.floor((b[:, 2] + grow) / size), None, cols - 1)
+        r0 = np.clip(np.floor((b[:, 1] - grow) / size), 0, None)
+        r1 = np.clip(np.floor((b[:, 3] + grow) / size), None, rows - 1)
+        nc = np.maximum(c1 - c0 + 1, 0).astype(np.int64)
+        nr = np.maximum(r1 - r0 + 1, 0).astype(np.int64)
+        per = nc * nr
+        part = np.repeat(np.arange(len(b)), per)
+        k = np.arange(len(part)) - np.repeat(np.cumsum(per) - per, per)
+        ncp = nc[part]
+        tile = ((r0[part].astype(np.int64) + k // np.maximum(ncp, 1)) * cols
+                + c0[part].astype(np.int64) + k % np.maximum(ncp, 1))
+        order = np.argsort(tile, kind="stable")          # parts ascending within a tile
+        offsets = np.searchsorted(tile[order], np.arange(rows * cols + 1))
+        return part[order], offsets
+
+    def path(self, sel: np.ndarray, row0: float, col0: float, height: int | None, width: int,
+             rotate: bool = True) -> Path | None:
+        """The parts ``sel`` as one compound path in the display space of a raster whose
+        top-left pixel corner is grid pixel (``row0``, ``col0``) and which is ``height`` x
+        ``width`` (x right, y up from its bottom edge; ``height`` None: y is the grid's row,
+        unflipped). Rings end in CLOSEPOLY and, with ``rotate``, start outside the raster where
+        they can (see :func:`_start_outside`)."""
+        if len(sel) == 0:
+            return None
+        s = self.starts[sel]
+        n = self.starts[sel + 1] - s
+        total = int(n.sum())
+        firsts = np.cumsum(n) - n
+        idx = np.arange(total) + np.repeat(s - firsts, n)
+        xy = self.xy[idx]
+        disp = np.empty_like(xy)
+        np.subtract(xy[:, 0], col0, out=disp[:, 0])
+        if height is None:
+            np.subtract(xy[:, 1], row0, out=disp[:, 1])
+        else:
+            np.subtract(height, xy[:, 1] - row0, out=disp[:, 1])
+        codes = np.full(total, Path.LINETO, dtype=Path.code_type)
+        if self.closed:
+            codes[firsts + n - 1] = Path.CLOSEPOLY
+        codes[firsts] = Path.MOVETO
+        if self.closed and rotate and height is not None:
+            first = np.zeros(total, dtype=bool)
+            first[firsts] = True
+            disp = _start_outside(disp, first, width, height)
+        path = Path(disp, codes, readonly=True)
+        path.should_simplify = False   # exact geometry, and identical in every window
+        return path
+
+
+def line_parts(geoms, transform: Affine) -> tuple[PixelParts | None, PixelParts | None]:
+    """(open parts, closed parts) of lines, rings and polygon boundaries as :func:`line_path`
+    draws them, in ``transform``'s pixel space (each None when there are none)."""
+    parts = flatten(geoms)
+    if parts.size == 0:
+        return None, None
+    kind = shapely.get_type_id(parts)
+    rings = parts[kind == 3]
+    if rings.size:
+        parts = np.concatenate([parts[kind != 3], shapely.get_rings(rings)])
+        kind = shapely.get_type_id(parts)
+    out = []
+    for sel, closed in ((parts[kind == 1], False), (parts[kind == 2], True)):
+        out.append(PixelParts.of(sel, transform, closed) if sel.size else None)
+    return out[0], out[1]

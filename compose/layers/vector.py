@@ -6,12 +6,24 @@ import threading
 
 import numpy as np
 import shapely
+from affine import Affine
 
 from compose.layers.base import Context, Paint
-from compose.layers.draw import draw_areas, draw_lines, draw_points
+from compose.layers.draw import draw_areas, draw_lines, draw_points, stroke_path
+from compose.layers.paths import PixelParts, _concat, dashed, line_parts
 from compose.sources.vector import DRAFT_TOLERANCE, Features, VectorSource, simplified
 
-__all__ = ["LinesLayer", "AreasLayer", "PointsLayer", "DRAFT_TOLERANCE"]
+__all__ = ["LinesLayer", "AreasLayer", "PointsLayer", "DRAFT_TOLERANCE", "TILE"]
+
+#: Vector layers draw on a fixed grid of tiles of this many pixels a side, from the canvas's
+#: top-left corner, whenever a window is made of whole tiles (its core starts on the grid and
+#: is a multiple of the tile, or ends at the canvas edge): each tile is drawn by Agg on a raster
+#: of its own (the tile grown by the layer's margin) from the same input whatever the windows,
+#: so the map is byte-identical for every window size that is a multiple of the tile (Agg
+#: clips a path to its raster, and a raster edge in a different place moves antialiased
+#: coverage by one 8-bit code here and there), and the drawing's cost does not depend on the
+#: window count. A window that is not made of whole tiles is drawn as one tile of its own.
+TILE = 256
 
 
 def _window_box(transform, height, width, pad_px):
@@ -33,6 +45,22 @@ def _simplified(features, tolerance: float):
 
 
 _RELOAD = threading.Lock()      # a released layer's features read again (rare: see release)
+_PIXELS = threading.Lock()      # a lines layer's parts in pixel space, made once per process
+
+
+def _tiles(window, canvas) -> list[tuple[int, int, int, int, tuple | None]]:
+    """The tiles whose cores make up ``window``'s core: (row, col, height, width, tile) in
+    canvas pixels, ``tile`` = (tile row, tile col, tile rows, tile cols) on the :data:`TILE`
+    grid, or one core, the window's own, with ``tile`` None when the window is not made of
+    whole tiles."""
+    t = TILE
+    rows, cols = -(-canvas.height // t), -(-canvas.width // t)
+    r1, c1 = window.row + window.height, window.col + window.width
+    if (window.row % t or window.col % t or (window.height % t and r1 != canvas.height)
+            or (window.width % t and c1 != canvas.width)):
+        return [(window.row, window.col, window.height, window.width, None)]
+    return [(r, c, min(t, r1 - r), min(t, c1 - c), (r // t, c // t, rows, cols))
+            for r in range(window.row, r1, t) for c in range(window.col, c1, t)]
 
 
 class _VectorLayer:
@@ -49,6 +77,7 @@ class _VectorLayer:
         self.px = self.canvas.points_to_pixels
         self.margin = int(np.ceil(self._reach_px())) + 2
         self._held: Features | None = self._cut()
+        self._pixels: tuple | None = None       # LinesLayer: its parts in pixel space
 
     def _cut(self) -> Features:
         """The features cut once to the canvas (grown by the margin; a draft's simplified);
@@ -80,11 +109,42 @@ class _VectorLayer:
         """Drop this process's copy of the features while another process draws them
         (:class:`compose.drawer.DrawAhead`); a later use reads them again."""
         self._held = None
+        self._pixels = None
 
     def __getstate__(self) -> dict:
         state = dict(self.__dict__)
         state["_held"] = self.features      # a pickled layer carries its features
+        state["_pixels"] = None             # made again where it is drawn
         return state
+
+    def paint(self, window, transform, height, width) -> list[Paint]:
+        """The layer's paints of ``window``'s core, drawn tile by tile (see :data:`TILE`) and
+        put together; coverage (``height`` x ``width``, the padded region) is 0 in the margin,
+        which only ever holds pixels of no output. A grid not the canvas's (another
+        ``transform``) is drawn as one raster, margin and all."""
+        canvas = self.canvas
+        if (window.canvas_height != canvas.height or window.canvas_width != canvas.width
+                or transform != canvas.window_transform(window)):
+            return self._draw(transform, height, width)
+        pr0, pc0, _, _ = window.padded
+        m = self.margin
+        parts: dict[str, tuple] = {}
+        for r, c, h, w, tile in _tiles(window, canvas):
+            for p in self._draw_tile(r - m, c - m, h + 2 * m, w + 2 * m, tile):
+                slot = parts.get(p.part)
+                if slot is None:
+                    slot = parts[p.part] = (p.color, np.zeros((height, width), p.alpha.dtype))
+                slot[1][r - pr0:r - pr0 + h, c - pc0:c - pc0 + w] = p.alpha[m:m + h, m:m + w]
+        return [Paint(part, alpha, color=color) for part, (color, alpha) in parts.items()]
+
+    def _draw_tile(self, row0: int, col0: int, height: int, width: int, tile) -> list[Paint]:
+        """Paints of a raster of the canvas with its top-left pixel at (``row0``, ``col0``),
+        ``height`` x ``width``; ``tile``: the tile it draws (see :func:`_tiles`), or None."""
+        transform = self.canvas.transform @ Affine.translation(col0, row0)
+        return self._draw(transform, height, width)
+
+    def _draw(self, transform, height, width) -> list[Paint]:
+        raise NotImplementedError
 
     def _reach_px(self) -> float:
         return 0.0
@@ -133,11 +193,70 @@ class LinesLayer(_StrokedLayer):
     def _outline(self, geoms, transform, width, height, width_px, dash):
         return draw_lines(geoms, transform, width, height, width_px=width_px, dash_px=dash)
 
-    def paint(self, window, transform, height, width):
+    def _draw(self, transform, height, width):
         feats = self._features(transform, height, width)
         if len(feats.geometries) == 0:
             return []
         return self._strokes(feats, transform, height, width)
+
+    def _pixel_parts(self) -> tuple[list[PixelParts], list[PixelParts]]:
+        """(the parts, the parts the stroke draws: the dashes when dashed) in canvas pixels,
+        made once per process from the features (dashes cut along each whole part from its
+        first vertex, as :func:`compose.layers.paths.dashed` does)."""
+        got = self._pixels
+        if got is None:
+            with _PIXELS:
+                got = self._pixels
+                if got is None:
+                    got = self._pixels = self._make_pixel_parts()
+        return got
+
+    def _make_pixel_parts(self) -> tuple[list[PixelParts], list[PixelParts]]:
+        plain = [p for p in line_parts(self.features.geometries, self.canvas.transform)
+                 if p is not None]
+        dash = getattr(self.options, "dash", None)
+        if not dash or not plain:
+            return plain, plain
+        paths = [p.whole_path() for p in plain]
+        whole = paths[0] if len(paths) == 1 else _concat(paths)
+        cut = dashed(whole, [self.px(d) for d in dash])
+        return plain, ([PixelParts.from_path(cut)] if cut is not None else [])
+
+    def _draw_tile(self, row0, col0, height, width, tile):
+        o = self.options
+        plain, strokes = self._pixel_parts()
+        m = self.margin
+        dashes = strokes is not plain
+
+        def path(groups, rotate):
+            paths = []
+            for g in groups:
+                if tile is not None:
+                    sel = g.in_tile(TILE, m, *tile)
+                else:
+                    sel = g.select(col0, row0, col0 + width, row0 + height)
+                p = g.path(sel, row0, col0, height, width, rotate=rotate)
+                if p is not None:
+                    paths.append(p)
+            if not paths:
+                return None
+            return paths[0] if len(paths) == 1 else _concat(paths)
+
+        stroke = path(strokes, not dashes)
+        halo = (path(plain, True) if dashes else stroke) if o.halo is not None else None
+        if stroke is None and halo is None:
+            return []
+        paints = []
+        if o.halo is not None:
+            widths = [self.px(o.halo.width)] + ([] if dashes else [self.px(o.width)])
+            covs = stroke_path(halo, width, height, widths)
+            paints.append(Paint("halo", covs[0], color=o.halo.color))
+            if not dashes:
+                paints.append(Paint("stroke", covs[1], color=o.stroke))
+                return paints
+        cov = stroke_path(stroke, width, height, [self.px(o.width)])[0]
+        paints.append(Paint("stroke", cov, color=o.stroke))
+        return paints
 
 
 class AreasLayer(_StrokedLayer):
@@ -147,7 +266,7 @@ class AreasLayer(_StrokedLayer):
         return draw_areas(geoms, transform, width, height, fill=False, stroke_width_px=width_px,
                           dash_px=dash)[1]
 
-    def paint(self, window, transform, height, width):
+    def _draw(self, transform, height, width):
         o = self.options
         feats = self._features(transform, height, width)
         paints = []
@@ -169,7 +288,7 @@ class PointsLayer(_VectorLayer):
         o = self.options
         return (self.px(o.size) + 2 * self.px(o.width or 0)) / 2
 
-    def paint(self, window, transform, height, width):
+    def _draw(self, transform, height, width):
         o = self.options
         feats = self._features(transform, height, width)
         if len(feats.geometries) == 0:

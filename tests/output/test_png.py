@@ -51,7 +51,7 @@ def test_adler32_combine_matches_zlib():
 
 @pytest.mark.parametrize("threads", [1, 3])
 def test_png_threads_same_bytes_and_pillow_reads_them(tmp_path, threads):
-    # The file depends on the bands only, not on how many threads deflate them.
+    # The file does not depend on how many threads deflate it.
     rng = np.random.default_rng(4)
     img = (rng.integers(0, 4, (300, 211, 3)) * 60).astype(np.uint8)
     paths = []
@@ -72,3 +72,24 @@ def test_png_abort_closes_file(tmp_path):
     w.abort()
     w.abort()
     assert w._f.closed
+
+
+def test_png_bytes_do_not_depend_on_the_bands(tmp_path):
+    # The deflate pieces are PIECE_ROWS rows whatever bands the rows come in (a render's bands
+    # are its window rows): the same file for every band height; Pillow reads it back.
+    from compose.output.png import PIECE_ROWS
+
+    rng = np.random.default_rng(5)
+    height = 2 * PIECE_ROWS + 61
+    img = rng.integers(0, 256, (height, 40, 3), dtype=np.uint8)
+    img[:, :20] = 7                     # compressible, so pieces differ in size
+    files = []
+    for band in (PIECE_ROWS, 2 * PIECE_ROWS, 96, 37, height):
+        path = tmp_path / f"b{band}.png"
+        with PngWriter(path, 40, height, 3, threads=2) as w:
+            for r0 in range(0, height, band):
+                w.write_rows(img[r0:r0 + band])
+        files.append(path.read_bytes())
+    assert all(f == files[0] for f in files[1:])
+    with Image.open(tmp_path / f"b{PIECE_ROWS}.png") as im:
+        np.testing.assert_array_equal(np.asarray(im), img)
