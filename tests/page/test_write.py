@@ -310,26 +310,36 @@ def test_a_coarse_canvas_still_gets_a_readable_page_png(tmp_path):
 def test_setter_listings_left_empty_only_while_loading():
     """compose.page.write.without_setter_listings: an Artist subclass created in the block still
     has matplotlib's working ``set`` (Artist.set sets each named property, matplotlib's API
-    documentation), only its docstring lacks the property list; outside the block matplotlib's
-    own listing is back and lists the properties."""
+    documentation), only its docstring and signature lack the property list; outside the block
+    matplotlib's own listing is back and lists the properties."""
     import matplotlib.artist
     from matplotlib.lines import Line2D
 
     from compose.page.write import without_setter_listings
 
+    import inspect
+
     listing = matplotlib.artist.kwdoc
+    signing = matplotlib.artist.Artist.__dict__["_update_set_signature_and_docstring"]
     with without_setter_listings():
         class Inside(Line2D):
             pass
+
+        class Deeper(Inside):
+            pass
     assert matplotlib.artist.kwdoc is listing
+    assert matplotlib.artist.Artist.__dict__["_update_set_signature_and_docstring"] is signing
 
     class Outside(Line2D):
         pass
-    line = Inside([0, 1], [0, 1])
-    line.set(linewidth=3.0, color="red")
-    assert line.get_linewidth() == 3.0 and line.get_color() == "red"
-    assert "solid_capstyle" not in (Inside.set.__doc__ or "")
+    for cls in (Inside, Deeper):
+        line = cls([0, 1], [0, 1])
+        line.set(linewidth=3.0, color="red")
+        assert line.get_linewidth() == 3.0 and line.get_color() == "red"
+        assert "solid_capstyle" not in (cls.set.__doc__ or "")
+        assert "linewidth" not in inspect.signature(cls.set).parameters
     assert "solid_capstyle" in Outside.set.__doc__
+    assert "linewidth" in inspect.signature(Outside.set).parameters
 
 
 def test_the_font_subsetter_and_the_dvi_reader_load_on_first_use():
