@@ -209,10 +209,11 @@ class _Helpers:
     prepare the same render and walk a later part of the windows; this process walks the first
     part and merges the helpers' statistics window by window, in window order, as a walk in one
     process does (the same additions in the same order: the same report, byte for byte). A helper
-    that fails has its windows walked here. Each helper prepares the render again (on the 1500 x
-    1500 demo about 0.35 CPU-s, against about 0.45 s of walk it takes off this process); helpers
-    start only where forking is safe (:func:`compose.page.process.can_fork`: Linux, no other
-    thread running)."""
+    that fails, or sends nothing for long (:data:`HELPER_PATIENCE`), has its windows walked here.
+    Each helper prepares the render again (on the 1500 x 1500 demo about 0.35 CPU-s, against
+    about 0.45 s of walk it takes off this process); helpers start only where forking is safe
+    (:func:`compose.page.process.can_fork`: Linux, no other thread running; nor any thread a
+    library started in C since the API was imported, see :data:`_THREADS_AT_IMPORT`)."""
 
     def __init__(self, jobs: list):
         self._jobs = jobs
@@ -229,7 +230,7 @@ class _Helpers:
         from compose.page.process import Forked, can_fork
 
         _import_for(style)          # once, here: the helpers inherit the modules
-        if not can_fork():
+        if not can_fork() or not 0 < _os_threads() <= _THREADS_AT_IMPORT:
             return None
 
         def walk(part: int) -> list[bytes]:
@@ -260,21 +261,29 @@ class _Helpers:
     def mapper(self, task, windows):
         """The walk's mapper (:func:`compose.engine.run`): this process's windows, then each
         helper's window results with their statistics (rows are not kept by a check)."""
+        import select
+        import time
+
         from compose.engine import WindowResult
         from compose.packing import unpack
         from compose.timeline import span
 
         windows = list(windows)
         parts = len(self._jobs) + 1
+        t0 = time.monotonic()
         yield from map(task, _share(windows, parts, 0))
+        # a helper has about as much to do: one that sends nothing for much longer is stuck
+        patience = max(HELPER_PATIENCE, 4.0 * (time.monotonic() - t0))
         for part, job in enumerate(self._jobs, 1):
             mine = _share(windows, parts, part)
             try:
                 with span(f"check waits for helper {part}"):
-                    got = job.result()
+                    ready, _, _ = select.select([job._inbox], [], [], patience)
+                    got = job.result() if ready else None
             except Exception:       # the helper failed: its windows are walked here
                 got = None
             if got is None or len(got) != len(mine):
+                job.abort()
                 yield from map(task, mine)
                 continue
             for w, packed in zip(mine, got):
@@ -283,6 +292,29 @@ class _Helpers:
     def close(self) -> None:
         for job in self._jobs:
             job.abort()
+
+
+#: Seconds at least that the check waits for a helper's first byte once its own windows are
+#: walked (else 4 x its own walk's time) before it ends the helper and walks its windows itself.
+HELPER_PATIENCE = 10.0
+
+
+def _os_threads() -> int:
+    """Threads of this process as the kernel counts them (-1: unknown, not Linux)."""
+    import os
+
+    try:
+        return len(os.listdir("/proc/self/task"))
+    except OSError:
+        return -1
+
+
+#: This process's threads when the API was imported (numpy's BLAS may have started its own,
+#: which survive a fork). A helper is forked only while there are no more: a thread started
+#: since, even by a library in C (GDAL's worker pool, say, which a render starts and which
+#: lives on), may hold a lock the forked helper would wait for forever; Python's own count
+#: (compose.page.process.can_fork) does not see those.
+_THREADS_AT_IMPORT = _os_threads()
 
 
 #: A window result's rows when a helper walked it (broadcast into the walk's band, never read).

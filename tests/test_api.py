@@ -73,10 +73,11 @@ def _coarse_demo():
 
 def _forks(monkeypatch) -> list:
     """Count the check's helper processes (compose.api._Helpers) as they are forked."""
+    import compose.api as api
     import compose.page.process as process
 
-    if not process.can_fork():
-        pytest.skip("no fork here (not Linux, or another thread is running)")
+    if not process.can_fork() or not 0 < api._os_threads() <= api._THREADS_AT_IMPORT:
+        pytest.skip("no fork here (not Linux, or a thread started since the API was imported)")
     started = []
     real = process.Forked.__init__
     monkeypatch.setattr(process.Forked, "__init__",
@@ -84,18 +85,34 @@ def _forks(monkeypatch) -> list:
     return started
 
 
-def test_a_check_walked_by_helper_processes_reports_the_same_bytes(monkeypatch):
+def test_a_check_walked_by_helper_processes_reports_the_same_bytes():
     """compose.check(workers=N): helpers forked beside the check walk later windows and the
     check merges their statistics in window order, so the JSON report is byte-identical to a
-    walk in one process (silver: our own invariant, as for --workers in a render)."""
+    walk in one process (silver: our own invariant, as for --workers in a render). In a fresh
+    process, as a command runs it (this one may have threads that forbid forking)."""
+    code = """
+import json, sys
+import compose, compose.page.process as process
+started = []
+real = process.Forked.__init__
+process.Forked.__init__ = lambda self, fn: started.append(1) or real(self, fn)
+style = compose.load_style(sys.argv[1], overrides={"map.pixel": 60})
+one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
+same = [json.dumps(compose.check(style, cache=False, workers=w).to_json(False)) == one
+        for w in (2, 3)]
+print(json.dumps({"same": same, "started": len(started)}))
+"""
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
+    out = subprocess.run([sys.executable, "-c", code, str(demo)], capture_output=True,
+                         text=True, check=True)
     import json
 
-    style = _coarse_demo()
-    one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
-    started = _forks(monkeypatch)
-    for workers in (2, 3):
-        assert json.dumps(compose.check(style, cache=False, workers=workers).to_json(False)) == one
-    assert len(started) == 1 + 2
+    got = json.loads(out.stdout.strip().splitlines()[-1])
+    assert got["same"] == [True, True]
+    if sys.platform.startswith("linux"):
+        assert got["started"] == 1 + 2
 
 
 def test_a_failing_helper_has_its_windows_walked_by_the_check(monkeypatch):
@@ -113,5 +130,24 @@ def test_a_failing_helper_has_its_windows_walked_by_the_check(monkeypatch):
         raise RuntimeError("no packing in this test")
 
     monkeypatch.setattr(compose.packing, "pack", broken)
+    assert json.dumps(compose.check(style, cache=False, workers=2).to_json(False)) == one
+    assert len(started) == 1
+
+
+def test_a_stuck_helper_is_ended_and_its_windows_walked_by_the_check(monkeypatch):
+    """A helper that sends nothing (here: stuck in its packing) for longer than the check's
+    patience (compose.api.HELPER_PATIENCE, or 4 x the check's own walk) is ended and its
+    windows walked by the check: the same report, no hang."""
+    import json
+    import time
+
+    import compose.api
+    import compose.packing
+
+    style = _coarse_demo()
+    one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
+    started = _forks(monkeypatch)
+    monkeypatch.setattr(compose.packing, "pack", lambda obj: time.sleep(3600))
+    monkeypatch.setattr(compose.api, "HELPER_PATIENCE", 0.2)
     assert json.dumps(compose.check(style, cache=False, workers=2).to_json(False)) == one
     assert len(started) == 1
