@@ -1,7 +1,7 @@
 """Benchmark of the fixed costs and memory of the default ``compose render`` (issue 15's second
 half) and of the draft check (issue 10), each printed beside its target:
 
-    python bench/lean.py [--runs 3] [--sizes 8192,16384] [--styles coast,...] [--cpu]
+    python bench/lean.py [--runs 3] [--sizes 8192,16384] [--styles coast,...] [--cpu] [--lines]
                          [--no-demo] [--no-memory] [--no-stages]
 
 * demo style (styles/coast.toml, 1500 x 1500): ``compose render`` with all default outputs and
@@ -16,6 +16,14 @@ half) and of the draft check (issue 10), each printed beside its target:
   the largest sum over the command and every process it starts (proportional set sizes, shared
   pages counted once); ru_maxrss (``/usr/bin/time -v``) beside it for comparison only, since it
   counts what a process inherits across fork and exec (see MEM_SAMPLER).
+
+* ``--lines``: line drawing against vertices and window count: bench/render.py's lines-only
+  style at 8192 with 10,000, 20,000 and 40,000 lines of 100 vertices, every window of the
+  canvas's top-left 2048 x 2048 px rendered (the window task, lines drawn and composited) with
+  512 px and with 256 px windows, alternately in one process, scaled to the whole canvas;
+  medians and minimums of ``--runs`` (at least 5) rounds, the same-run ratio 256 / 512 px (4 x
+  the windows; target: within a few %) and the seconds each million vertices beyond the first
+  adds (the rest, compositing the canvas, does not grow with vertices; target: flat).
 
 * ``--cpu``: the bare render (PNG + GeoTIFF + check, 2 window threads, as bench/render.py's
   "bare render, 2 workers") at 8192, CPU seconds per process (the command; the line-drawing
@@ -204,6 +212,58 @@ print(json.dumps({"seconds": seconds, "code": p.returncode, "err": err.decode()[
                   "ru_maxrss": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024,
                   "procs": [dict(o, role=role(q, o), cmd=o["cmd"][:60]) for q, o in procs.items()]}))
 """
+
+
+LINES = r"""
+import json, statistics, sys, time
+from pathlib import Path
+from compose.engine import prepare, render_window
+from compose.style import load_style
+style, rounds, area = Path(sys.argv[1]), int(sys.argv[2]), int(sys.argv[3])
+r = prepare(load_style(style))
+wins = {w: [x for x in r.windows(w) if x.row < area and x.col < area] for w in (512, 256)}
+for x in wins[512]:
+    render_window(r, x, measure=False)           # warm: the features cut, their pixel arrays
+got = {512: [], 256: []}
+for i in range(rounds):
+    for w in ((512, 256) if i % 2 == 0 else (256, 512)):
+        t0 = time.perf_counter()
+        for x in wins[w]:
+            render_window(r, x, measure=False)
+        got[w].append((time.perf_counter() - t0) * (r.canvas.width * r.canvas.height) / area ** 2)
+r.close()
+print(json.dumps(got))
+"""
+
+
+def lines(runs: int, data: Path) -> None:
+    """Line drawing against the vertex count and the window count (see the module doc)."""
+    rounds = max(5, runs)
+    print("lines only, 8192 x 8192, window tasks of the top-left 2048 x 2048 px scaled to the "
+          f"canvas (alternating, {rounds} rounds):", flush=True)
+    base = None
+    for n in (10000, 20000, 40000):
+        folder = data / f"8192-{n}"
+        if not (folder / "lines.gpkg").exists():
+            print(f"making synthetic data in {folder} ...", flush=True)
+            synthetic.make_data(folder, 8192, n)
+        style = synthetic.write_styles(folder, 8192)["lines"]
+        res = subprocess.run([sys.executable, "-c", LINES, str(style), str(rounds), "2048"],
+                             capture_output=True, text=True)
+        try:
+            got = {int(k): v for k, v in json.loads(res.stdout.strip().splitlines()[-1]).items()}
+        except (ValueError, IndexError):
+            print(f"  {n} lines: failed\n{res.stderr[-1500:]}")
+            continue
+        med = {w: statistics.median(v) for w, v in got.items()}
+        mvert = n * 100 / 1e6
+        step = "" if base is None else \
+            f"; {(med[512] - base[1]) / (mvert - base[0]):.2f} s per M vertices beyond the first"
+        base = base if base is not None else (mvert, med[512])
+        print(f"  {mvert:.0f} M vertices: 512 px windows {med[512]:6.2f} s (min {min(got[512]):.2f}), "
+              f"256 px {med[256]:6.2f} s (min {min(got[256]):.2f}); 256 / 512 px "
+              f"{med[256] / med[512]:.3f} x (min/min {min(got[256]) / min(got[512]):.3f}){step}",
+              flush=True)
 
 
 def memory(size: int, data: Path) -> None:
@@ -468,12 +528,16 @@ def main() -> None:
     ap.add_argument("--no-stages", action="store_true",
                     help="skip the instrumented run that prints where the memory goes")
     ap.add_argument("--no-memory", action="store_true", help="skip the memory runs")
+    ap.add_argument("--lines", action="store_true",
+                    help="also line drawing against vertices (1, 2, 4 M) and window count")
     ap.add_argument("--cpu", action="store_true",
                     help="also CPU per process of the bare render at 8192 (medians of --runs)")
     a = ap.parse_args()
     if not a.no_demo:
         demo(a.runs)
         drafts(a.runs, [s for s in a.styles.split(",") if s])
+    if a.lines:
+        lines(a.runs, a.data)
     if a.cpu:
         cpu(8192, a.data, a.runs)
     for size in (int(s) for s in a.sizes.split(",") if s) if not a.no_memory else ():
