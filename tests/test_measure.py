@@ -146,7 +146,7 @@ def test_take8_rounds_like_rint_then_clip():
     np.testing.assert_array_equal(M._take8(want.reshape(3, 1, -1), idx[::-1]), want[:, ::-1])
 
 
-def test_no_8bit_colour_passes_the_last_y_cell():
+def test_no_8bit_color_passes_the_last_y_cell():
     # the grey order skips _cells' cap when _top_cell_holds_white says it changes nothing:
     # checked here on every one of the 2**24 8-bit sRGB colours by brute force (the WCAG
     # relative luminance as _luminance8 sums it, then the uncapped cell)
