@@ -87,8 +87,8 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     False none (nor with a ``mapper``). A check that only changed colours reuses the layers'
     coverage and indices; its report is the same as without the cache. ``workers``: processes
     walking the windows of a check without a cache (helpers forked beside this one, see
-    :class:`_Helpers`; None: one per core, see :func:`helper_count`); the same report with any
-    number."""
+    :class:`_Helpers`; None: one per core while the cores are free, see :func:`helper_count`);
+    the same report with any number."""
     style = _style(style)     # a bad style fails before the engine's imports
     from compose.check.draft import draft_canvas
 
@@ -325,11 +325,22 @@ def helper_count(windows: int, workers: int | None) -> int:
     """Helper processes for a check walk of ``windows`` windows: ``workers - 1``, at most one per
     window beyond the first; ``workers`` None: one process per core, each walking at least two
     windows (a helper prepares the render again), at most
-    :data:`compose.parallel.AUTO_WORKERS`."""
+    :data:`compose.parallel.AUTO_WORKERS` -- and none while the load average leaves no core free
+    (more than the cores less a half): a helper's second preparation (about 0.6 CPU-s more in
+    all for the demo) then competes with the check's own walk instead of running beside it (at
+    load 5 on 2 cores the demo's check took 5.35 s with a helper against 4.57 s without)."""
+    import os
+
     from compose.parallel import AUTO_WORKERS, default_workers
 
     if workers is None:
-        workers = min(default_workers(), AUTO_WORKERS, max(1, windows // 2))
+        cores = default_workers()
+        workers = min(cores, AUTO_WORKERS, max(1, windows // 2))
+        try:
+            if os.getloadavg()[0] > cores - 0.5:
+                workers = 1
+        except OSError:             # pragma: no cover - no load average here
+            pass
     return max(0, min(int(workers), windows) - 1)
 
 

@@ -84,8 +84,8 @@ def explain(rule: str) -> str:
               help="Delete the cache's entries first (with no STYLE: only that).")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Processes that walk the map's windows when no cache is used, each preparing "
-                   "the render itself (default: one per core, each walking two windows or more); the "
-                   "same report with any number.")
+                   "the render itself (default: one per core, each walking two windows or more, "
+                   "while the load average leaves a core free); the same report with any number.")
 @click.option("--rules", "list_rules", is_flag=True,
               help="List the rules: id, what each measures, its limit and budget key, its source.")
 @click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")
