@@ -282,6 +282,18 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                             previews=layer_previews, mapper=walk_mapper, window=window or WINDOW)
             if page_job is not None:         # the page process draws from here on
                 page_job.start(nodata_seen(stats))
+            pictures_job = None
+            if page_map is not None and layer_previews is not None:      # html
+                # the review page's pictures and their JPEGs on two threads from now on, beside
+                # the encoders' end, the check and the waits for the page process
+                from compose.output.html_images import PicturesJob
+                from compose.proof import proof_images
+
+                t_html = time.perf_counter()
+                pictures_job = PicturesJob(page_map.image, layer_previews.images,
+                                           [layer.spec.name for layer in prepared.layers],
+                                           proof_images)
+                stack.callback(pictures_job.close)
             t = time.perf_counter()
             with span("finish encode"):
                 png_bg.finish()
@@ -322,23 +334,6 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 with span("check"):
                     report = check_style(style, stats, prepared.ramps)
                 seconds["check"] = time.perf_counter() - t
-            pictures = None
-            if page_map is not None and layer_previews is not None:      # html
-                # the page's pictures before the page's layout and legend: the page process
-                # may still be drawing the page
-                from compose.output.html_images import PROOF_WIDTH, PagePictures, box_reduce
-                from compose.proof import proof_images
-
-                t_html = time.perf_counter()
-                names = [layer.spec.name for layer in prepared.layers]
-                with span("html pictures"):
-                    copy = page_map.image()
-                    small = box_reduce(copy, PROOF_WIDTH)
-                    pictures = PagePictures(
-                        map=copy, legend=None, proofs=proof_images(small),
-                        small=small, layers=tuple((n, a, s) for n, (a, s) in zip(
-                            names, layer_previews.images())))
-                seconds["html"] = time.perf_counter() - t_html
             if page_job is not None:
                 with span("wait page layout"):
                     layout = page_job.layout()      # the page is written here when not forked
@@ -365,18 +360,20 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                                   seconds=seconds, statistics=stats,
                                   report=report, unplaced_labels=prepared.unplaced_labels,
                                   ramps=prepared.ramps)
-            if pictures is not None:
+            if pictures_job is not None:
                 import dataclasses
 
                 from compose.output.html import page_html
 
                 t = time.perf_counter()
+                with span("wait html pictures"):
+                    pictures = pictures_job.result()
                 ahead = page_job.html() if page_job is not None else None
                 result.pictures = dataclasses.replace(pictures, legend=legend_png, ramps=ahead)
                 seconds["total"] = t_html - t0
                 with span("html"):
                     tmp["html"].write_text(page_html(style, result), encoding="utf-8")
-                seconds["html"] += time.perf_counter() - t
+                seconds["html"] = time.perf_counter() - t
             if page_job is not None:
                 with span("wait page"):
                     page_seconds = page_job.wait()

@@ -24,7 +24,14 @@ from typing import Any
 from compose.caution import CAUTION
 from compose.color.interface import MARKS
 from compose.output.html_css import CSS
-from compose.output.html_images import JPEG_QUALITY, PROOF_WIDTH, box_reduce, jpeg_uri, png_uri
+from compose.output.html_images import (
+    JPEG_QUALITY,
+    PREVIEW_QUALITY,
+    PROOF_WIDTH,
+    box_reduce,
+    jpeg_uri,
+    png_uri,
+)
 
 __all__ = ["write_html", "page_html", "html_path", "sorted_results", "ramps_section"]
 
@@ -32,7 +39,6 @@ CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
 PROOF_TITLES = {"map": "Map as drawn", "gray": "Grey (same CIELAB L*)",
                 "deutan": "Deutan (Machado 2009, 100 %)", "protan": "Protan (Machado 2009, 100 %)",
                 "tritan": "Tritan (Machado 2009, 100 %)"}
-PREVIEW_QUALITY = 85     # JPEG quality of the layer previews
 #: Rules whose numbers a layer's budget plot draws (its verdict colours the plot).
 BUDGET_RULES = ("ground-lightness", "ground-chroma", "reserved-saturation", "theme-chroma",
                 "theme-chroma-min", "overlay-contrast", "label-contrast", "overlay-size")
@@ -46,6 +52,18 @@ def _jpeg(img, quality: int = JPEG_QUALITY) -> str:
     started = _JPEGS.get()
     future = started.get((id(img), quality)) if started is not None else None
     return future.result() if future is not None else jpeg_uri(img, quality)
+
+
+class _Made:
+    """A JPEG URI made before the page, looked up as the encodes started here are."""
+
+    __slots__ = ("uri",)
+
+    def __init__(self, uri: str):
+        self.uri = uri
+
+    def result(self) -> str:
+        return self.uri
 
 
 def html_path(style, out_dir: Path) -> Path:
@@ -309,8 +327,12 @@ def page_html(style, result) -> str:
     jpegs += [(box_reduce(img, PROOF_WIDTH), JPEG_QUALITY) for img in pictures.proofs.values()]
     for i, (_, alone, stack) in enumerate(pictures.layers):   # the first layer: alone only
         jpegs += [(alone, PREVIEW_QUALITY)] + ([(stack, PREVIEW_QUALITY)] if i else [])
+    made = pictures.jpegs or {}         # encoded already (by compose.output.html_images.PicturesJob)
     with ThreadPoolExecutor(2, thread_name_prefix="page-jpeg") as pool:
-        token = _JPEGS.set({(id(img), q): pool.submit(jpeg_uri, img, q) for img, q in jpegs})
+        started: dict = {key: _Made(uri) for key, uri in made.items()}
+        started.update({(id(img), q): pool.submit(jpeg_uri, img, q) for img, q in jpegs
+                        if (id(img), q) not in made})
+        token = _JPEGS.set(started)
         try:
             return _page_html(style, result, small)
         finally:

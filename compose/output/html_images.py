@@ -18,12 +18,13 @@ import numpy as np
 from compose.color import interface as ui
 from compose.output.thumb import BoxThumbnail
 
-__all__ = ["PAGE_WIDTH", "PROOF_WIDTH", "PreviewSink", "PagePictures", "box_reduce", "jpeg_uri",
-           "png_uri", "figure_uri"]
+__all__ = ["PAGE_WIDTH", "PROOF_WIDTH", "PreviewSink", "PagePictures", "PicturesJob", "box_reduce",
+           "jpeg_uri", "png_uri", "figure_uri"]
 
 PAGE_WIDTH = 1600        # widest map copy on the page, pixels
 PROOF_WIDTH = 800        # widest proof panel, pixels
 JPEG_QUALITY = 90
+PREVIEW_QUALITY = 85     # JPEG quality of the layer previews
 
 
 class PreviewSink(BoxThumbnail):
@@ -140,3 +141,58 @@ class PagePictures:
     legend: bytes | None = None
     small: np.ndarray | None = None
     ramps: str | None = None
+    #: JPEG ``data:`` URIs made already, by (id of the image, quality) (:class:`PicturesJob`)
+    jpegs: dict[tuple[int, int], str] | None = None
+
+
+class PicturesJob:
+    """The review page's pictures made on two threads while the render does other work (the
+    check, the encoders' end, waiting for the page process): numpy and Pillow let other threads
+    run while they compute and encode. One thread makes the map's reduced copy, its proofs
+    (``proofs(image)``: :func:`compose.proof.proof_images`) and their JPEGs, the other the layer previews
+    (``previews()``: [(alone, stack)] per layer, in ``names``' order) and theirs.
+    ``image()``: the map as written, at most :data:`PAGE_WIDTH` wide (a :class:`PreviewSink`'s
+    ``image``). :meth:`result` gives the :class:`PagePictures` (no legend), with ``jpegs``;
+    :meth:`close` (always) waits for the threads."""
+
+    def __init__(self, image, previews, names: list[str], proofs, map_quality: int = JPEG_QUALITY,
+                 preview_quality: int = PREVIEW_QUALITY):
+        from concurrent.futures import ThreadPoolExecutor
+
+        self._pool = ThreadPoolExecutor(2, thread_name_prefix="review-pictures")
+        self._map = self._pool.submit(self._map_pictures, image, proofs, map_quality)
+        self._layers = self._pool.submit(self._layer_pictures, previews, names, preview_quality)
+
+    @staticmethod
+    def _map_pictures(image, proof_images, quality: int):
+        from compose.timeline import span
+
+        with span("html pictures: map and proofs"):
+            copy = image()
+            small = box_reduce(copy, PROOF_WIDTH)
+            proofs = proof_images(small)
+            # keyed by the ids of arrays the pictures keep (so no other array has them)
+            uris = {(id(img), quality): jpeg_uri(img, quality)
+                    for img in [copy, small, *proofs.values()]}
+        return copy, small, proofs, uris
+
+    @staticmethod
+    def _layer_pictures(previews, names: list[str], quality: int):
+        from compose.timeline import span
+
+        with span("html pictures: layers"):
+            layers = tuple((n, a, s) for n, (a, s) in zip(names, previews()))
+            uris = {}
+            for i, (_, alone, stack) in enumerate(layers):     # the first layer: alone only
+                for img in (alone, stack) if i else (alone,):
+                    uris[(id(img), quality)] = jpeg_uri(img, quality)
+        return layers, uris
+
+    def result(self) -> PagePictures:
+        copy, small, proofs, uris = self._map.result()
+        layers, more = self._layers.result()
+        return PagePictures(map=copy, layers=layers, proofs=proofs, small=small,
+                            jpegs={**uris, **more})
+
+    def close(self) -> None:
+        self._pool.shutdown(wait=True, cancel_futures=True)
