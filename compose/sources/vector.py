@@ -190,6 +190,13 @@ def read_early(path, *, layer: str, table: str | None = None,
     ``crs`` (its canvas CRS), applied here when the file is in that CRS (:func:`simplified`).
     Errors are left to that source's own read; a read nobody takes is dropped by
     :func:`forget_early`."""
+    # The thread's read asks rasterio about the file's CRS (compose.sources.crs). Import it
+    # here, in the calling thread, so that thread and this one (whose layers import rasterio
+    # next) never import rasterio at once: its modules import each other, and a second thread's
+    # import can then meet one half initialised and fail (ImportError "partially initialized
+    # module 'rasterio.env'", about 1 cold check in 10 before this).
+    import rasterio.crs  # noqa: F401
+
     key = _early_key(path, table, where, simplify)
     future: Future = Future()
     with _EARLY_LOCK:

@@ -242,3 +242,38 @@ def test_an_early_read_is_taken_by_the_source_asking_for_it_and_only_by_it(tmp_p
     assert taken.simplified is None                          # read again: as the file is
     assert np.array_equal(shapely.to_wkb(taken._read()[0]), shapely.to_wkb(plain[0]))
     vector.forget_early()
+
+
+def test_an_early_read_leaves_no_first_import_of_rasterio_to_its_thread(tmp_path):
+    """rasterio's modules import each other, so when two threads import it for the first time at
+    once, one can meet a module half initialised and fail (ImportError "partially initialized
+    module 'rasterio.env'": about 1 cold ``compose check`` in 10, while the early vector thread
+    asked rasterio about a CRS and the main thread imported the layers). read_early imports it
+    in the calling thread first; a fresh process records which thread imported rasterio."""
+    import subprocess
+    import sys
+    import textwrap
+
+    feats = [({"type": "LineString", "coordinates": [(0.0, 0.0), (1.0, 1.0)]}, {"n": 1})]
+    path = write_vector(tmp_path / "e.gpkg", feats, crs=GEO, properties={"n": "int"})
+    code = textwrap.dedent(f"""
+        import sys, threading
+        seen = []
+        class Watch:
+            def find_spec(self, name, path=None, target=None):
+                if name == "rasterio":
+                    seen.append(threading.current_thread().name)
+                return None
+        sys.meta_path.insert(0, Watch())
+        from compose.sources import vector
+        assert "rasterio" not in sys.modules, "imported before the early read"
+        vector.read_early({str(path)!r}, layer="early")
+        for t in threading.enumerate():
+            if t.name == "early-vectors":
+                t.join(10.0)
+        print(seen[0] if seen else "none")
+    """)
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=60)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "MainThread"
