@@ -215,3 +215,56 @@ class BlockSample:
     def values(self, window: Window) -> np.ndarray:
         """The padded ``window``'s draft values: float32 (padded height, padded width)."""
         return self.read(*self.cells(window))
+
+    def neighbourhoods(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """The 3 x 3 neighbourhoods of full-canvas cells (rows, cols: int arrays (h, w), -1: no
+        cell) laid side by side: float32 (3 h, 3 w), element (3 i + a, 3 j + b) the value of cell
+        (rows[i, j] + a - 1, cols[i, j] + b - 1) -- exactly :meth:`read` of those cells, NaN
+        where the centre is -1.
+
+        :meth:`read` of the 9 h w cells sorts every one of them by block (about 0.3 CPU-s for
+        the 8192 benchmark's 373 x 373 draft); here only the centres are grouped by block, each
+        block needed is decoded once and its neighbourhoods are gathered whole. A neighbourhood
+        that does not lie inside its centre's block and the file (none of those
+        :meth:`cells` gives on blocks of 3 x 3 cells or more) is read by :meth:`read`."""
+        rows = np.asarray(rows, np.int64)
+        cols = np.asarray(cols, np.int64)
+        h, w = rows.shape
+        out = np.full((h, 3, w, 3), np.nan, np.float32)
+        orow, ocol = self.offset
+        bh, bw = self.block
+        fh, fw = self.source.shape
+        fr, fc = rows + orow, cols + ocol                   # file cells of the centres
+        blk_r, blk_c = fr // bh, fc // bw
+        fast = ((rows >= 1) & (cols >= 1) & (fr >= 1) & (fc >= 1)
+                & (fr + 1 < fh) & (fc + 1 < fw)
+                & ((fr - 1) // bh == blk_r) & ((fr + 1) // bh == blk_r)
+                & ((fc - 1) // bw == blk_c) & ((fc + 1) // bw == blk_c))
+        step = np.array([-1, 0, 1])
+        flat = out.reshape(-1)
+        idx = np.flatnonzero(fast)
+        if idx.size:
+            bid = blk_r.ravel()[idx] * (-(-fw // bw)) + blk_c.ravel()[idx]
+            order = np.argsort(bid, kind="stable")
+            idx, bid = idx[order], bid[order]
+            starts = np.flatnonzero(np.r_[True, bid[1:] != bid[:-1]])
+            ends = np.r_[starts[1:], bid.size]
+            # element (i, a, j, b) of ``out``: i 9w + a 3w + j 3 + b
+            spots = (step[:, None] + 1) * 3 * w + (step[None, :] + 1)       # (3, 3)
+            for s0, s1 in zip(starts, ends):
+                part = idx[s0:s1]
+                r, c = fr.ravel()[part], fc.ravel()[part]
+                br, bc = int(r[0]) // bh * bh, int(c[0]) // bw * bw
+                block = self.source.block_cells(br, bc, min(bh, fh - br), min(bw, fw - bc))
+                i, j = np.divmod(part, w)
+                flat[(i * 9 * w + j * 3)[:, None, None] + spots] = \
+                    block[(r - br)[:, None, None] + step[:, None],
+                          (c - bc)[:, None, None] + step[None, :]]
+        slow = np.flatnonzero(~fast & (rows >= 0) & (cols >= 0))
+        if slow.size:
+            r3 = rows.ravel()[slow][:, None, None] + step[:, None]
+            c3 = cols.ravel()[slow][:, None, None] + step[None, :]
+            i, j = np.divmod(slow, w)
+            flat[(i * 9 * w + j * 3)[:, None, None] + (step[:, None] + 1) * 3 * w
+                 + (step[None, :] + 1)] = self.read(*np.broadcast_arrays(r3, c3))
+        return out.reshape(3 * h, 3 * w)

@@ -211,14 +211,8 @@ class ReliefLayer:
         the pixel's own row of blocks), shaded from its own 3 x 3 neighbourhood."""
         assert self.full is not None and self.sample is not None
         rows, cols = self.sample.cells(window)                  # (h, w) full-canvas cells
-        h, w = rows.shape
         step = np.array([-1, 0, 1])
-        valid = ((rows >= 0) & (cols >= 0))[:, None, :, None]
-        r3 = np.where(valid, rows[:, None, :, None] + step[None, :, None, None], -1)
-        c3 = np.where(valid, cols[:, None, :, None] + step[None, None, None, :], -1)
-        shape = (h, 3, w, 3)
-        dem = self.sample.read(np.broadcast_to(r3, shape).reshape(3 * h, 3 * w),
-                               np.broadcast_to(c3, shape).reshape(3 * h, 3 * w))
+        dem = self.sample.neighbourhoods(rows, cols)            # (3h, 3w)
         row_of = rows.max(axis=1)                               # a row's cell row (-1: outside)
         row_of = np.where(row_of >= 0, row_of, max(int(row_of.max()), 1))
         return self._shade_centres(dem, (row_of[:, None] + step).ravel())

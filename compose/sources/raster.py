@@ -439,6 +439,16 @@ class RasterSource:
         return int(bh), int(bw)
 
     @property
+    def shape(self) -> tuple[int, int]:
+        """(rows, cols) of the file's cells."""
+        return int(self._ds.height), int(self._ds.width)
+
+    def block_cells(self, row: int, col: int, height: int, width: int) -> np.ndarray:
+        """The file's cells of a region inside it (a block: :attr:`block_shape`), float32
+        (height, width), NaN = no data, as :meth:`cells_at` reads them."""
+        return self._cells(row, col, height, width)
+
+    @property
     def overview_factors(self) -> list[int]:
         """Decimation factors of the band's overviews (internal or ``.ovr``), none: []."""
         return list(self._ds.overviews(self.band))

@@ -174,3 +174,53 @@ def test_a_draft_of_large_files_reads_a_sample_of_their_blocks_with_the_full_ver
                              ("theme-chroma", "field", 1.5), ("grayscale-order", "field", 0.03)):
         (f,), (g,) = full.rule(rule, layer), draft.rule(rule, layer)
         assert np.allclose(g.value, f.value, atol=tol), (rule, f.value, g.value)
+
+
+def _read_each(sample, rows, cols):
+    """The 3 x 3 neighbourhoods of (rows, cols) read cell by cell (BlockSample.read)."""
+    h, w = rows.shape
+    step = np.array([-1, 0, 1])
+    valid = ((rows >= 0) & (cols >= 0))[:, None, :, None]
+    r3 = np.where(valid, rows[:, None, :, None] + step[None, :, None, None], -1)
+    c3 = np.where(valid, cols[:, None, :, None] + step[None, None, None, :], -1)
+    shape = (h, 3, w, 3)
+    return sample.read(np.broadcast_to(r3, shape).reshape(3 * h, 3 * w),
+                       np.broadcast_to(c3, shape).reshape(3 * h, 3 * w))
+
+
+def test_neighbourhoods_gathered_by_block_are_the_cells_read_one_by_one(tmp_path):
+    """BlockSample.neighbourhoods groups centres by block and gathers whole 3 x 3 stencils; the
+    values must be those of reading every cell on its own (BlockSample.read), NaN included: for
+    the draft's own cells, and for centres at block edges, file edges, outside the canvas and
+    the file (the cell-by-cell path), on a canvas offset from the file's grid."""
+    from compose.canvas import Canvas
+    from compose.layers.early import BlockSample
+    from compose.sources.raster import RasterSource
+
+    style = load_style(_big_style(tmp_path, n=1024, tile=64))
+    full = style.canvas()
+    # the full canvas shifted by (37, 11) cells into the file and reaching past its far edges
+    shifted = Canvas.from_extent(full.crs, (full.bounds[0] + 11 * 30, full.bounds[1] - 40 * 30,
+                                            full.bounds[2] + 40 * 30, full.bounds[3] - 37 * 30),
+                                 30, dpi=full.dpi)
+    rng = np.random.default_rng(3)
+    for canvas in (full, shifted):
+        draft = draft_canvas(canvas, 100)
+        source = RasterSource(tmp_path / "dem.tif", layer="relief")
+        try:
+            sample = BlockSample.of(source, draft, canvas, round(draft.pixel / canvas.pixel), 8)
+            assert sample is not None
+            rows, cols = sample.cells(draft.whole(3))
+            got = sample.neighbourhoods(rows, cols)
+            assert np.array_equal(got, _read_each(sample, rows, cols), equal_nan=True)
+            assert np.isfinite(got).mean() > 0.8          # the padding lies outside
+            # any cells: block and file edges, -1, past the canvas
+            n = canvas.height + 2
+            rows = rng.integers(-1, n, (40, 50))
+            cols = rng.integers(-1, n, (40, 50))
+            rows[:5] = np.array([0, 63, 64, n - 3, n - 2])[:, None]
+            cols[:, :4] = [[0, 63, 64, n - 2]]
+            got = sample.neighbourhoods(rows, cols)
+            assert np.array_equal(got, _read_each(sample, rows, cols), equal_nan=True)
+        finally:
+            source.close()
