@@ -26,7 +26,7 @@ test: bytecode
 	$(BIN)/python -m pytest -q
 
 lint: $(BIN)/.installed
-	$(BIN)/ruff check compose
+	$(BIN)/ruff check compose tests bench
 	$(BIN)/mypy compose
 
 bench: bytecode

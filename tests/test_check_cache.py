@@ -12,8 +12,8 @@ from pathlib import Path
 import pytest
 
 from compose import check_cache
-from compose.check_cache import keys, store
 from compose.api import check
+from compose.check_cache import keys, store
 from tests.check._maps import field, labels, lines, make_data, relief, style, write_style
 
 ROOT = Path(__file__).resolve().parents[1]

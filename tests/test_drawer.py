@@ -9,7 +9,6 @@ from compose.engine import prepare, render_window
 from compose.parallel import pack, unpack
 from compose.sources.vector import Features
 from compose.style import load_style
-from tests.test_engine import tiny_region  # noqa: F401  (fixture)
 
 WINDOW = 96
 

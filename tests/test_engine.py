@@ -8,93 +8,12 @@ import rasterio
 from affine import Affine
 from PIL import Image
 
-from compose.engine import prepare, render_array, run, ArraySink
+from compose.engine import ArraySink, prepare, render_array, run
 from compose.render import render_style
 from compose.style import load_style
-from tests.sources._files import write_raster, write_vector
+from tests.sources._files import write_vector
 
 UTM = "EPSG:32630"
-
-
-@pytest.fixture
-def tiny_region(tmp_path):
-    """A DEM and a field in EPSG:4326 (degrees), lines and points in EPSG:4326, canvas in UTM."""
-    lon0, lat0, step = -3.30, 45.00, 0.0008
-    y, x = np.mgrid[0:160, 0:200].astype("float32")
-    dem = 300 + 200 * np.sin(x / 17.0) * np.cos(y / 23.0) + y * 2
-    write_raster(tmp_path / "dem.tif", dem.astype("float32"), crs="EPSG:4326",
-                 transform=Affine(step, 0, lon0, 0, -step, lat0))
-    field = (x / 200 * 12).astype("float32")
-    field[40:60, 50:80] = np.nan
-    write_raster(tmp_path / "field.tif", field, crs="EPSG:4326",
-                 transform=Affine(step, 0, lon0, 0, -step, lat0), nodata=float("nan"))
-    lines = [({"type": "LineString", "coordinates": [(lon0 + 0.01, lat0 - 0.02), (lon0 + 0.15, lat0 - 0.11),
-                                                      (lon0 + 0.05, lat0 - 0.12)]}, {"kind": "road"}),
-             ({"type": "LineString", "coordinates": [(lon0 + 0.02, lat0 - 0.10), (lon0 + 0.14, lat0 - 0.03)]},
-              {"kind": "track"})]
-    write_vector(tmp_path / "v.gpkg", lines, crs="EPSG:4326", properties={"kind": "str"}, table="lines")
-    towns = [({"type": "Point", "coordinates": (lon0 + 0.03 * i + 0.02, lat0 - 0.02 * i - 0.02)},
-              {"name": f"Town{i}", "pop": 100 * i}) for i in range(5)]
-    write_vector(tmp_path / "v.gpkg", towns, crs="EPSG:4326", properties={"name": "str", "pop": "int"},
-                 table="towns")
-    # canvas: a UTM box inside the DEM footprint
-    t = pyproj.Transformer.from_crs("EPSG:4326", UTM, always_xy=True)
-    x0, y0 = t.transform(lon0 + 0.02, lat0 - 0.115)
-    x0, y0 = round(x0 / 30) * 30, round(y0 / 30) * 30
-    extent = [x0, y0, x0 + 30 * 300, y0 + 30 * 260]
-    style = tmp_path / "tiny.toml"
-    style.write_text(f'''
-[map]
-name = "tiny"
-title = "tiny"
-crs = "{UTM}"
-extent = {extent}
-pixel = 30
-dpi = 150
-
-[ramp.g]
-kind = "sequential"
-domain = [0, 12]
-through = [{{L = 92, C = 10, h = 95}}, {{L = 55, C = 40, h = 140}}, {{L = 28, C = 20, h = 160}}]
-
-[[layer]]
-name = "relief"
-role = "ground"
-kind = "relief"
-source = "dem.tif"
-shade = {{ azimuth = 315, altitude = 45, exaggeration = 3 }}
-
-[[layer]]
-name = "field"
-role = "theme"
-kind = "field"
-source = "field.tif"
-ramp = "g"
-blend = "multiply"
-
-[[layer]]
-name = "roads"
-role = "overlay"
-kind = "lines"
-source = "v.gpkg"
-table = "lines"
-stroke = "#303030"
-width = 1.2
-dash = [4, 2]
-halo = {{ color = "#ffffff", width = 3 }}
-
-[[layer]]
-name = "names"
-role = "overlay"
-kind = "labels"
-source = "v.gpkg"
-table = "towns"
-text = "name"
-priority = "pop"
-size = 7
-halo = {{ color = "#ffffff", width = 1.5 }}
-''')
-    return style
 
 
 def _render(style, window):

@@ -93,8 +93,7 @@ def test_part_stats_beneath_pairs_merge_like_dense_histograms():
 def _pixel_by_pixel(y_part, below8, weights):
     """The overlay's beneath histograms pixel by pixel, in pixel order (numpy's bincount over
     the WCAG 2 contrast bins, the L* bins and the beneath-colour codes of every pixel)."""
-    from compose.check.stats import (N_CONTRAST, N_LIGHTNESS, beneath_color_codes,
-                                     contrast_bins, luminance_of_rgb8)
+    from compose.check.stats import N_CONTRAST, N_LIGHTNESS, beneath_color_codes, contrast_bins, luminance_of_rgb8
     rgb8 = np.ascontiguousarray(below8.T)
     y = luminance_of_rgb8(rgb8).astype(np.float32)
     ratio = (np.maximum(y.astype(np.float64), y_part) + 0.05) / (

@@ -12,7 +12,6 @@ from compose.engine import WindowTask, prepare, render_window
 from compose.parallel import ClusterMapper, ProcessMapper, ThreadMapper, ordered, pack, unpack, window_task
 from compose.render import render_style
 from compose.style import load_style
-from tests.test_engine import tiny_region  # noqa: F401  (fixture)
 
 WINDOW = 96     # the tiny canvas (300 x 260) in 12 windows
 

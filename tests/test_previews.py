@@ -9,7 +9,6 @@ from compose.engine import ArraySink, prepare, run
 from compose.output.thumb import BoxThumbnail
 from compose.previews import LayerPreviews, block_sums
 from compose.style import load_style
-from tests.test_engine import tiny_region  # noqa: F401  (the fixture)
 
 
 @pytest.mark.parametrize("row0, col0, k", [(0, 0, 3), (5, 7, 3), (1024, 2048, 4), (3, 1, 1),

@@ -11,8 +11,7 @@ from click.testing import CliRunner
 from matplotlib.image import imread
 
 from compose.cli.main import cli
-from compose.proof import (PROOFS, ProofSink, cvd_proof, gray_proof, proof_image, proof_paths,
-                           write_proofs)
+from compose.proof import PROOFS, ProofSink, cvd_proof, gray_proof, proof_image, proof_paths, write_proofs
 from compose.style import load_style
 from tests.check._maps import field, lines, make_data, relief, style, write_style
 

@@ -5,8 +5,14 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from compose.check.fixes import (contrast_share_estimate, halo_color, lightness_of_y, luminance8,
-                                 solve_contrast_lightness, solve_nodata)
+from compose.check.fixes import (
+    contrast_share_estimate,
+    halo_color,
+    lightness_of_y,
+    luminance8,
+    solve_contrast_lightness,
+    solve_nodata,
+)
 from compose.check.stats import N_LIGHTNESS
 
 colour = pytest.importorskip("colour")

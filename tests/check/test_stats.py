@@ -3,8 +3,7 @@ import numpy as np
 import pytest
 from scipy import stats as sps
 
-from compose.check.stats import (contrast_bins, lightness_of_rgb8, spearman_from_table,
-                                 weighted_percentiles)
+from compose.check.stats import contrast_bins, lightness_of_rgb8, spearman_from_table, weighted_percentiles
 
 
 def test_spearman_from_table_equals_scipy_with_ties():

@@ -4,9 +4,17 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from compose.check.stats import (BENEATH_BITS, N_BENEATH, LayerStats, PartStats,
-                                 beneath_color_centres, beneath_color_codes,
-                                 histogram_percentiles, lightness_bins_of_rgb8, luminance_of_rgb8)
+from compose.check.stats import (
+    BENEATH_BITS,
+    N_BENEATH,
+    LayerStats,
+    PartStats,
+    beneath_color_centres,
+    beneath_color_codes,
+    histogram_percentiles,
+    lightness_bins_of_rgb8,
+    luminance_of_rgb8,
+)
 
 colour = pytest.importorskip("colour")
 

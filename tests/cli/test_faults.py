@@ -17,7 +17,6 @@ from tests.cli.test_hostile import set_map
 from tests.output._tiny import tiny_style
 
 
-
 def outputs_of(style: Path) -> list[str]:
     """The file names a render of ``style`` writes (every output of the set)."""
     from compose.render import output_paths
@@ -132,14 +131,13 @@ def test_two_renders_into_one_folder_never_mix(tmp_path):
 
 
 def test_a_source_truncated_mid_render_is_one_line_and_leaves_nothing(tmp_path):
-    from compose.cli.failure import guarded
-    from compose.render import render_style
-    from compose.style import load_style
-
     import numpy as np
     import rasterio
     from affine import Affine
 
+    from compose.cli.failure import guarded
+    from compose.render import render_style
+    from compose.style import load_style
     from tests.output._tiny import CRS, NORTH, WEST
 
     style = _bigger(tmp_path)

@@ -178,8 +178,8 @@ def test_megabyte_strings_are_refused(style, tmp_path):
 
 
 def test_megabyte_label_text_in_the_data_is_shortened(style, tmp_path):
+    from tests.output._tiny import CRS, NORTH, WEST
     from tests.sources._files import write_vector
-    from tests.output._tiny import NORTH, WEST, CRS
     write_vector(style.parent / "long.gpkg",
                  [({"type": "Point", "coordinates": (WEST + 300, NORTH - 600)}, {"name": "y" * 1_000_000})],
                  crs=CRS, properties={"name": "str"}, table="towns")
@@ -334,7 +334,7 @@ def test_library_warnings_never_precede_the_error_line(style, tmp_path, monkeypa
     import compose.engine
 
     def noisy(*args, **kwargs):
-        warnings.warn("overflow encountered in multiply", RuntimeWarning)
+        warnings.warn("overflow encountered in multiply", RuntimeWarning, stacklevel=2)
         import logging
         logging.getLogger("rasterio._env").warning("CPLE_AppDefined in a warning from GDAL")
         from compose.errors import SourceError

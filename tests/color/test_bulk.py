@@ -9,10 +9,9 @@ import colour
 import numpy as np
 import pytest
 
-from tests.conftest import angular_difference
-from compose.color.bulk import (color_counts, lab_of_packed, lch_of_packed, pack_rgb8, srgb8_to_lch,
-                                unpack_rgb8)
+from compose.color.bulk import color_counts, lab_of_packed, lch_of_packed, pack_rgb8, srgb8_to_lch, unpack_rgb8
 from compose.color.lab import srgb_to_lch
+from tests.conftest import angular_difference
 
 
 @pytest.fixture(scope="module")

@@ -12,9 +12,9 @@ from colorspacious import CIECAM02Space, CIECAM02Surround
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tests.conftest import assert_colors_close, cam02ucs_reference, seam_tolerance
 from compose.color.cam import VIEWING, cam02ucs_to_srgb, cam02ucs_to_xyz, srgb_to_cam02ucs, xyz_to_cam02ucs
 from compose.color.lab import WHITE_D65
+from tests.conftest import assert_colors_close, cam02ucs_reference, seam_tolerance
 
 unit = st.floats(0.0, 1.0, allow_nan=False)
 

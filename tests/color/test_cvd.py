@@ -15,9 +15,9 @@ import numpy as np
 import pytest
 from colour.blindness.datasets.machado2010 import CVD_MATRICES_MACHADO2010
 
-from tests.conftest import assert_colors_close
 from compose.color.cvd import CVD_KINDS, cvd_matrix, simulate_cvd, simulate_cvd_linear
 from compose.color.parse import to_rgb8
+from tests.conftest import assert_colors_close
 
 CS_NAMES = {"protan": "Protanomaly", "deutan": "Deuteranomaly", "tritan": "Tritanomaly"}
 KINDS = sorted(CVD_KINDS)

@@ -10,8 +10,8 @@ import colour
 import numpy as np
 import pytest
 
-from tests.conftest import cam02ucs_reference
 from compose.color.difference import delta_e_76, delta_e_2000, delta_e_cam02ucs
+from tests.conftest import cam02ucs_reference
 
 # G. Sharma, W. Wu, E. N. Dalal, "The CIEDE2000 color-difference formula: Implementation notes,
 # supplementary test data, and mathematical observations", Color Res. Appl. 30(1):21-30, 2005,

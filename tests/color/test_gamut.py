@@ -12,9 +12,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tests.conftest import angular_difference
 from compose.color.gamut import GAMUT_TOLERANCE, in_gamut, lch_in_gamut, map_to_gamut, max_chroma
 from compose.color.lab import lch_to_srgb, srgb_to_lch
+from tests.conftest import angular_difference
 
 lch_strategy = st.tuples(st.floats(0.0, 100.0), st.floats(0.0, 200.0), st.floats(0.0, 359.999)).map(np.array)
 unit = st.floats(0.0, 1.0, allow_nan=False)

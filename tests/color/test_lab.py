@@ -11,9 +11,18 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from compose.color.lab import (
+    WHITE_D65,
+    lab_to_lch,
+    lab_to_srgb,
+    lab_to_xyz,
+    lch_to_lab,
+    lch_to_srgb,
+    srgb_to_lab,
+    srgb_to_lch,
+    xyz_to_lab,
+)
 from tests.conftest import seam_tolerance
-from compose.color.lab import (WHITE_D65, lab_to_lch, lab_to_srgb, lab_to_xyz, lch_to_lab, lch_to_srgb,
-                               srgb_to_lab, srgb_to_lch, xyz_to_lab)
 
 unit = st.floats(0.0, 1.0, allow_nan=False)
 rgb_strategy = st.tuples(unit, unit, unit).map(np.array)

@@ -12,10 +12,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tests.conftest import angular_difference
 from compose.color.lab import srgb_to_lch
 from compose.color.parse import describe, parse_color, to_hex, to_rgb8
 from compose.errors import ColorError, StyleError
+from tests.conftest import angular_difference
 
 WHERE = 'layer "coast": stroke'
 

@@ -11,9 +11,17 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from compose.color.srgb import (
+    M_RGB_TO_XYZ,
+    M_XYZ_TO_RGB,
+    linear_to_srgb,
+    linear_to_xyz,
+    srgb_to_linear,
+    srgb_to_xyz,
+    xyz_to_linear,
+    xyz_to_srgb,
+)
 from tests.conftest import seam_tolerance
-from compose.color.srgb import (M_RGB_TO_XYZ, M_XYZ_TO_RGB, linear_to_srgb, linear_to_xyz, srgb_to_linear,
-                                srgb_to_xyz, xyz_to_linear, xyz_to_srgb)
 
 unit = st.floats(0.0, 1.0, allow_nan=False)
 rgb_strategy = st.tuples(unit, unit, unit).map(np.array)

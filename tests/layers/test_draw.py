@@ -15,8 +15,7 @@ from rasterio.transform import xy as pixel_xy
 
 from compose.canvas import Canvas
 from compose.errors import StyleError
-from compose.layers.draw import (draw_areas, draw_lines, draw_points, draw_texts, measure_text,
-                                 to_pixels)
+from compose.layers.draw import draw_areas, draw_lines, draw_points, draw_texts, measure_text, to_pixels
 
 # 10 m pixels, west edge 500000, north edge 4000000 (a UTM-like grid)
 T = Affine(10.0, 0.0, 500000.0, 0.0, -10.0, 4000000.0)

@@ -10,8 +10,15 @@ import numpy as np
 import pytest
 
 import compose.layers.hillshade as hs
-from compose.layers.hillshade import (STRETCH_TARGET, flat_normalised, hillshade, horn_gradient,
-                                      multidirectional, shade_spread, stretch_factor)
+from compose.layers.hillshade import (
+    STRETCH_TARGET,
+    flat_normalised,
+    hillshade,
+    horn_gradient,
+    multidirectional,
+    shade_spread,
+    stretch_factor,
+)
 
 DX = DY = 30.0
 

@@ -9,7 +9,7 @@ from pyproj import Geod, Proj, Transformer
 
 from compose.canvas import Canvas
 from compose.errors import StyleError
-from compose.page.geometry import (grid_lines, nice_length, north_angle, page_canvas, scale_bar)
+from compose.page.geometry import grid_lines, nice_length, north_angle, page_canvas, scale_bar
 
 
 def _utm_canvas(lon: float, lat: float, half: float = 20000.0, pixel: float = 50.0) -> Canvas:

@@ -217,8 +217,7 @@ def test_a_figure_started_during_the_walk_finishes_as_the_same_page(tmp_path):
     finishes it with the legend and the raster into the same PDF, SVG and page PNG."""
     from compose.engine import prepare, run
     from compose.page.draw import finishes
-    from compose.page.write import (PageSink, _layout, blocked_for, fit_legend, page_ahead,
-                                    vector_split, write_page)
+    from compose.page.write import PageSink, _layout, blocked_for, fit_legend, page_ahead, vector_split, write_page
 
     style = _style(tmp_path)
     prepared = prepare(style, keep_clear=blocked_for)

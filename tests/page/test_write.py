@@ -312,12 +312,12 @@ def test_setter_listings_left_empty_only_while_loading():
     has matplotlib's working ``set`` (Artist.set sets each named property, matplotlib's API
     documentation), only its docstring and signature lack the property list; outside the block
     matplotlib's own listing is back and lists the properties."""
+    import inspect
+
     import matplotlib.artist
     from matplotlib.lines import Line2D
 
     from compose.page.write import without_setter_listings
-
-    import inspect
 
     listing = matplotlib.artist.kwdoc
     signing = matplotlib.artist.Artist.__dict__["_update_set_signature_and_docstring"]

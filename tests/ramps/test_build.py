@@ -12,8 +12,7 @@ import pytest
 
 from compose.ramps import RampLimits, ramp_metrics, rule_checks
 
-from .conftest import (lch, make, ref_de00, ref_lab, ref_lch, ref_min_pairwise, ref_step_cv,
-                       ref_vision_lab, rgb8_of)
+from .conftest import lch, make, ref_de00, ref_lab, ref_lch, ref_min_pairwise, ref_step_cv, ref_vision_lab, rgb8_of
 
 GOOD_SEQ = {"kind": "sequential", "domain": [0, 12],
             "through": [lch(95, 12, 100), lch(70, 38, 125), lch(45, 32, 150), lch(25, 20, 165)]}

@@ -31,7 +31,9 @@ def test_diverging_twin_matches_lightness_and_chroma_with_its_own_hues():
     assert np.max(np.abs(a[:, 0] - b[:, 0])) <= 1.0
     assert np.max(np.abs(a[:, 1] - b[:, 1])) <= 1.0
     low, high = b[v < -1], b[v > 1]
-    hue_gap = lambda h, target: np.abs((h - target + 180) % 360 - 180)
+    def hue_gap(h, target):
+        return np.abs((h - target + 180) % 360 - 180)
+
     assert np.all(hue_gap(low[:, 2], 300) < 3) and np.all(hue_gap(high[:, 2], 160) < 3)
     # still a good diverging ramp: symmetric lightness, neutral midpoint; twin rules pass
     verdicts = {c.rule: c.passed for c in rule_checks(ramp_metrics(water))}

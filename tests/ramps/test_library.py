@@ -9,8 +9,18 @@ import pytest
 
 from compose.ramps import build_ramps, ramp_metrics, rule_checks
 
-from .conftest import (LIBRARY, POOR, ref_de00, ref_lab, ref_lch, ref_min_pairwise, ref_step_cv,
-                       ref_vision_lab, rgb8_of, style_ramps)
+from .conftest import (
+    LIBRARY,
+    POOR,
+    ref_de00,
+    ref_lab,
+    ref_lch,
+    ref_min_pairwise,
+    ref_step_cv,
+    ref_vision_lab,
+    rgb8_of,
+    style_ramps,
+)
 
 NAMES = ["land-growth", "water-growth", "sea-warmth", "change", "cover", "heights", "depth"]
 

@@ -5,14 +5,13 @@ from __future__ import annotations
 import re
 
 import numpy as np
-import pytest
 from click.testing import CliRunner
 from PIL import Image
 
 from compose.cli.main import cli
 from compose.ramps.library import library_path
-from compose.style.load import library_tables
 from compose.style import load_style
+from compose.style.load import library_tables
 
 MAP = '[map]\ncrs = "EPSG:32631"\nextent = [500000, 4000000, 503000, 4002000]\npixel = 30\n'
 

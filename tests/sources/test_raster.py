@@ -7,8 +7,8 @@ from __future__ import annotations
 
 import numpy as np
 import pyproj
-import rasterio
 import pytest
+import rasterio
 from affine import Affine
 from rasterio.transform import from_origin
 
@@ -345,8 +345,9 @@ def test_cell_size_projected_units():
 def test_aligned_grid_fast_path_equals_warp(tmp_path):
     """A canvas on the source's own grid is read directly; it must equal GDAL's nearest warp."""
     from affine import Affine as _Affine
-    from rasterio.vrt import WarpedVRT as _VRT
     from rasterio.enums import Resampling as _R
+    from rasterio.vrt import WarpedVRT as _VRT
+
     from tests.sources._files import write_raster as _write
 
     rng = np.random.default_rng(11)

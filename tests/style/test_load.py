@@ -7,10 +7,21 @@ from pathlib import Path
 import pytest
 from affine import Affine
 
-from compose.errors import StyleError
-from compose.style import (LAYER_KINDS, AreaOptions, ClassesOptions, FieldOptions, Halo, LabelOptions,
-                           LineOptions, PointOptions, ReliefOptions, default_shadow, load_style)
 from compose.color.lab import srgb_to_lch
+from compose.errors import StyleError
+from compose.style import (
+    LAYER_KINDS,
+    AreaOptions,
+    ClassesOptions,
+    FieldOptions,
+    Halo,
+    LabelOptions,
+    LineOptions,
+    PointOptions,
+    ReliefOptions,
+    default_shadow,
+    load_style,
+)
 
 FULL = '''
 [map]

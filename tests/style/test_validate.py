@@ -7,7 +7,7 @@ import pytest
 
 from compose.errors import ColorError, StyleError
 from compose.style import load_style
-from compose.style.validate import (Scope, check_choice, check_keys, number, pair, suggest)
+from compose.style.validate import Scope, check_choice, check_keys, number, pair, suggest
 from tests.conftest import assert_colors_close
 from tests.style.conftest import MAP, RELIEF
 
