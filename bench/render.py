@@ -341,7 +341,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     t_read = med(lambda: floors.geotiff_read(folder / "dem.tif") + floors.geotiff_read(folder / "field.tif"))
     compute_floor = t_lines + t_horn + t_lut1 + t_cmp1 + t_read
     print(f"floors (bench/floors.py: numpy, Agg, GDAL; none of compose's code; median of {runs})")
-    print(f"  lines: {verts / 1e6:.2f} M vertices, 1 px, Agg, whole canvas  {t_lines:6.2f} s")
+    print(f"  lines: {verts / 1e6:.2f} M vertices, 1 px, Agg, whole canvas, a path a line  {t_lines:6.2f} s")
     print(f"  Horn hillshade, {floors.STRIP}-row strips, 1 thread            {t_horn:6.2f} s")
     print(f"  LUT gather uint16 -> RGBA32, 1 thread (2 threads)      {t_lut1:6.2f} s  ({t_lut2:.2f} s)")
     print(f"  3-layer planar f32 composite, 1 thread (2 threads)     {t_cmp1:6.2f} s  ({t_cmp2:.2f} s)")
