@@ -10,8 +10,12 @@ reference, the layers' open sources left behind; nothing is prepared twice). Whe
 be pickled the render is forked after its preparation instead, the child sharing the prepared
 layers copy-on-write. The child starts the page's figure while the parent walks the windows
 into the page sink, whose two images live in memory shared by both processes
-(:func:`shared_image`). When the walk is done the parent hands over the one thing the page still
-needs (which layers showed no-data on the map) and goes on with its own outputs; the child sends
+(:func:`shared_image`). The page depends on the walk only through which layers show no-data on
+the map (the legend's no-data entries): the parent hands over a guess of them made from the
+sources with the prepared render (:mod:`compose.page.nodata`), from which the child draws the
+legend, the furniture, the SVG and most of the PDF at once, while the walk runs; when the walk is
+done the parent hands over the true set (a wrong guess: the page is drawn again) and goes on with
+its own outputs; the child sends
 the page's layout back first (the check judges the furniture with it) and its seconds when all
 three files are written to their temporary names. The parent waits for it before the output set
 is committed, kills it if the render fails, and re-raises its error (a style error stays a style
@@ -181,6 +185,8 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                     os._exit(0)
                 with span("page unpacks the prepared render"):
                     prepared = _unpacked(job, _handed_over(job, message[1]))
+                if len(message) > 2:
+                    job._guess = message[2]
             started = None
             if job._ahead is not None:         # while the parent walks the windows
                 try:
@@ -206,7 +212,7 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
                     return job._early(prepared, started, guess, rest, on_guess)
             try:
                 with span("page waits for walk"):
-                    nodata, drawn = _walked(inp, job._sink, early)
+                    nodata, drawn = _walked(inp, job._sink, early, job._guess)
             except EOFError:                              # the render ended without a page
                 os._exit(0)
             try:
@@ -243,8 +249,8 @@ def _child(inbox: int, outbox: int, parent: int, job: PageJob) -> None:
         os._exit(status)        # no atexit, no finalizers: the parent owns every shared resource
 
 
-def _walked(inp, sink, early: Callable[..., Any] | None = None
-            ) -> tuple[set[str] | None, Any]:
+def _walked(inp, sink, early: Callable[..., Any] | None = None,
+            guess: frozenset[str] | None = None) -> tuple[set[str] | None, Any]:
     """Wait for the walk's end, encoding the page's raster (``sink.base``) band by band as the
     parent finishes it, as the PDF and SVG writers embed it (RGB rows top first,
     :func:`compose.page.encode.remember`; :func:`compose.page.write.write_page` has the PDF
@@ -252,8 +258,11 @@ def _walked(inp, sink, early: Callable[..., Any] | None = None
     first band, ``early(nodata, rest)`` runs once with the no-data layers of the windows walked
     so far (a guess of the final set; :func:`compose.page.write.page_early`); ``rest()`` waits
     for the rest of the walk the same way and returns the final set (``early`` may call it, to
-    finish work that needs the whole map). Returns the no-data layers the parent sent at the
-    end and what ``early`` returned (None if it failed or never ran)."""
+    finish work that needs the whole map). ``guess``: the no-data layers guessed from the
+    sources when the render was prepared (:func:`compose.page.nodata.nodata_guess`; None: no
+    guess): then ``early(guess, rest)`` runs at once, before the first band. Returns the
+    no-data layers the parent sent at the end and what ``early`` returned (None if it failed or
+    never ran)."""
     base = getattr(sink, "base", None)
     stream = None
     if base is not None:
@@ -295,16 +304,34 @@ def _walked(inp, sink, early: Callable[..., Any] | None = None
                 step()
         return final
 
+    def draw_early(nodata) -> Any:
+        assert early is not None
+        try:
+            with span("page drawn early"):
+                return early(nodata, rest)
+        except Exception:                      # written after the walk as without it
+            return None
+
+    if early is not None and guess is not None:
+        early_fn = early
+        guessed = draw_early(set(guess))
     while not walked:
         got = step()
         if got is not None and early_fn is None and early is not None:
-            guess, early_fn = got[1], early     # once
-            try:
-                with span("page drawn early"):
-                    guessed = early_fn(guess, rest)
-            except Exception:                  # written after the walk as without it
-                guessed = None
+            early_fn = early                    # once, with the no-data layers so far
+            guessed = draw_early(got[1])
     return final, guessed
+
+
+def _guess_of(prepared) -> frozenset[str] | None:
+    """The no-data layers of ``prepared`` guessed from its sources, or None
+    (:func:`compose.page.nodata.nodata_guess`)."""
+    from compose.page.nodata import nodata_guess
+
+    try:
+        return nodata_guess(prepared.layers, prepared.canvas)
+    except Exception:                                   # noqa: BLE001 - no guess then
+        return None
 
 
 def _handover_file() -> int | None:
@@ -406,7 +433,11 @@ class PageJob:
         self._waited = 0.0
         self._shared: dict[int, object] | None = None
         self._handover: int | None = None
+        #: the no-data layers guessed from the prepared render's sources (None: no guess)
+        self._guess: frozenset[str] | None = None
         if forked if forked is not None else can_fork():
+            if prepared is not None:
+                self._guess = _guess_of(prepared)
             if prepared is None:    # what the child will get back by reference (same objects)
                 from compose.page.handover import shared_objects
 
@@ -471,14 +502,15 @@ class PageJob:
                                  prepared.blocked), self._shared or {})
             except Exception:
                 return False
+            guess = _guess_of(prepared)
             if self._handover is not None:      # written without waiting for the child
                 view, done = memoryview(data), 0
                 while done < len(data):
                     done += os.pwrite(self._handover, view[done:], done)
                 _close_handover(self)
-                _send(self._outbox, ("prepared", ("file", len(data))))
+                _send(self._outbox, ("prepared", ("file", len(data)), guess))
             else:
-                _send(self._outbox, ("prepared", data))
+                _send(self._outbox, ("prepared", data, guess))
         self._prepared = prepared
         return True
 

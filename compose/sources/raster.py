@@ -227,6 +227,12 @@ class RasterSource:
         return self._meta["nodata"]
 
     @property
+    def mask_flags(self) -> frozenset[str]:
+        """GDAL's mask flags of the band, by name: ``all_valid``, ``per_dataset``, ``alpha``,
+        ``nodata``."""
+        return frozenset(self._meta["flags"])
+
+    @property
     def dtype(self) -> str:
         """The band's data type name (numpy spelling), e.g. ``"uint8"``."""
         return self._meta["dtype"]

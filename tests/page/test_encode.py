@@ -96,6 +96,34 @@ def test_the_page_process_encodes_its_raster_while_the_walk_runs():
         encode._known.update(known)
 
 
+def test_with_a_guess_from_the_sources_the_early_page_work_runs_before_the_first_band():
+    """Given the no-data layers guessed when the render was prepared (compose.page.nodata), the
+    child runs the early page work at once, before reading the walk's first band, with that
+    guess; the rows are still encoded and the final set returned."""
+    base = _image("RGB")
+    sink = type("Sink", (), {"base": base})()
+    messages = io.BytesIO()
+    for m in (("rows", (10, {"land"})), ("rows", (30, {"land", "sea"})), ("walked", {"sea"})):
+        pickle.dump(m, messages)
+    messages.seek(0)
+    known = dict(encode._known)
+    calls = []
+
+    def early(guess, rest):
+        calls.append((guess, messages.tell()))
+        return "early", rest()
+
+    try:
+        got = process._walked(messages, sink, early, frozenset({"sea"}))
+        assert got == ({"sea"}, ("early", {"sea"}))
+        assert calls == [({"sea"}, 0)]              # once, nothing read yet
+        new = {k: v for k, v in encode._known.items() if k not in known}
+        assert list(new.values()) == [encode.png_bytes(base)]
+    finally:
+        encode._known.clear()
+        encode._known.update(known)
+
+
 def test_an_opaque_rgba_save_is_stored_as_rgb():
     """Alpha 255 everywhere: the file holds the RGB pixels (Pillow reads them back), the same
     file as a save of the RGB image; any other alpha stays RGBA."""

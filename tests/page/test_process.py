@@ -47,18 +47,26 @@ def test_forked_page_is_the_page_written_in_process(tmp_path, monkeypatch):
     assert there.outputs["legend"].read_bytes() == here.outputs["legend"].read_bytes()
 
 
-@pytest.mark.parametrize("guess", ["wrong", "failing"])
+@pytest.mark.parametrize("guess", ["wrong", "wrong first band", "failing"])
 def test_a_page_drawn_early_on_a_wrong_guess_is_drawn_again(tmp_path, monkeypatch, guess):
     """The page process draws the legend and furniture during the walk from the no-data layers
-    of the windows walked so far (compose.page.write.page_early); when the walk ends with
-    another set, or that work failed, the page is drawn after the walk: the same files."""
+    guessed from the sources when the render was prepared (compose.page.nodata), or without
+    such a guess from those of the windows walked so far (compose.page.write.page_early); when
+    the walk ends with another set, or that work failed, the page is drawn after the walk: the
+    same files."""
     import importlib
 
+    import compose.page.nodata as nodata
     import compose.page.write as write
 
     render = importlib.import_module("compose.render")      # (compose.render is also a function)
     right = _render(tmp_path, "right", True, monkeypatch)
     if guess == "wrong":
+        monkeypatch.setattr(nodata, "nodata_guess",
+                            lambda layers, canvas: frozenset({"a layer that is not there"}))
+    elif guess == "wrong first band":
+        monkeypatch.setattr(nodata, "nodata_guess", lambda layers, canvas: None)
+
         def noting(mapper, sink):
             inner = mapper or map
 
