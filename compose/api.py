@@ -101,18 +101,12 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
         return blocked_for(*args)
 
     store = _cache_of(style, canvas if canvas is not None else full, keep_clear, cache, mapper)
-    helpers = None
-    if store is None and mapper is None:
-        helpers = _Helpers.start(style, canvas if canvas is not None else full,
-                                 canvas if is_draft else None, keep_clear, workers)
     early = _read_vectors_early(style, store, canvas if is_draft else None) \
         if mapper is None else False
     try:
-        return _check(style, progress, mapper if helpers is None else helpers.mapper, full,
-                      canvas, is_draft, keep_clear, cache, store)
+        return _check(style, progress, mapper, full, canvas, is_draft, keep_clear, cache, store,
+                      workers)
     finally:
-        if helpers is not None:
-            helpers.close()
         if early:
             from compose.sources.vector import forget_early
 
@@ -146,7 +140,7 @@ def _read_vectors_early(style: Style, store, draft=None) -> bool:
 
 
 def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_clear, cache,
-           store) -> CheckReport:
+           store, workers: int | None = None) -> CheckReport:
     from compose.check.draft import describe_draft
     from compose.engine import WINDOW, prepare, run  # looked up per call (tests may replace them)
     from compose.timeline import span
@@ -158,6 +152,11 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
         store = _cache_of(style, prepared.canvas, keep_clear, cache, mapper, read=False)
         prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
                            make_layer=None if store is None else store.layer)
+    helpers = None
+    if store is None and mapper is None:
+        helpers = _Helpers.start(prepared, workers)
+        if helpers is not None:
+            mapper = helpers.mapper
     if is_draft and mapper is None:
         mapper = _marks_first
     try:
@@ -169,6 +168,8 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
             return check_style(style, stats, prepared.ramps,
                                draft=describe_draft(prepared.canvas, full) if is_draft else None)
     finally:
+        if helpers is not None:
+            helpers.close()
         prepared.close()
 
 
@@ -204,14 +205,16 @@ def _marks_first(task, windows):
 
 
 class _Helpers:
-    """The check's window walk on several cores: processes forked as soon as the style is loaded
-    and the engine's modules are imported (before any source is opened or thread started) each
-    prepare the same render and walk a later part of the windows; this process walks the first
-    part and merges the helpers' statistics window by window, in window order, as a walk in one
-    process does (the same additions in the same order: the same report, byte for byte). A helper
-    that fails, or sends nothing for long (:data:`HELPER_PATIENCE`), has its windows walked here.
-    Each helper prepares the render again (on the 1500 x 1500 demo about 0.35 CPU-s, against
-    about 0.45 s of walk it takes off this process); helpers start only where forking is safe
+    """The check's window walk on several cores: processes forked once the render is prepared
+    (so they inherit the prepared layers instead of preparing them again; no source is read and
+    no other thread runs then) each walk a later part of the windows; this process walks the
+    first part and merges the helpers' statistics window by window, in window order, as a walk
+    in one process does (the same additions in the same order: the same report, byte for byte).
+    A helper reads its rasters through GDAL handles of its own
+    (:meth:`compose.sources.raster.RasterSource.reopen`: inherited handles share their file
+    offsets with this process's); fonts are not read in the walk (labels are measured and placed
+    while preparing). A helper that fails, or sends nothing for long (:data:`HELPER_PATIENCE`),
+    has its windows walked here. Helpers start only where forking is safe
     (:func:`compose.page.process.can_fork`: Linux, no other thread running; nor any thread a
     library started in C since the API was imported, see :data:`_THREADS_AT_IMPORT`)."""
 
@@ -219,17 +222,17 @@ class _Helpers:
         self._jobs = jobs
 
     @classmethod
-    def start(cls, style: Style, canvas, draft, keep_clear, workers: int | None):
-        """Helpers for a check of ``style`` on ``canvas`` (``draft``: the draft canvas, or None),
-        or None when the walk stays in this process."""
+    def start(cls, prepared, workers: int | None):
+        """Helpers walking later windows of ``prepared`` (a check's prepared render), or None
+        when the walk stays in this process."""
         from compose.engine import WINDOW
 
-        n = helper_count(-(-canvas.width // WINDOW) * -(-canvas.height // WINDOW), workers)
+        n = helper_count(len(prepared.windows(WINDOW)), workers)
         if n == 0:
             return None
         from compose.page.process import Forked, can_fork
 
-        _import_for(style)          # once, here: the helpers inherit the modules
+        _settle_threads()
         if not can_fork() or not 0 < _os_threads() <= _THREADS_AT_IMPORT:
             return None
 
@@ -237,13 +240,15 @@ class _Helpers:
             import dataclasses
             import gc
 
-            from compose.engine import prepare, run
+            from compose.engine import run
             from compose.packing import pack
             from compose.timeline import span
 
             gc.disable()            # a short-lived process: its memory goes when it ends
-            _read_vectors_early(style, None, draft)
-            prepared = prepare(style, canvas=draft, keep_clear=keep_clear, draft=draft is not None)
+            for layer in prepared.layers:
+                reopen = getattr(getattr(layer, "source", None), "reopen", None)
+                if reopen is not None:
+                    reopen()
             got: list = []
 
             def mine(task, windows):
@@ -299,6 +304,16 @@ class _Helpers:
 HELPER_PATIENCE = 10.0
 
 
+def _settle_threads(timeout: float = 1.0) -> None:
+    """Wait for the early vector reads' threads (:func:`compose.sources.vector.read_early`):
+    once the layers are prepared each has handed its features over and is ending."""
+    import threading
+
+    for thread in threading.enumerate():
+        if thread.name == "early-vectors":
+            thread.join(timeout)
+
+
 def _os_threads() -> int:
     """Threads of this process as the kernel counts them (-1: unknown, not Linux)."""
     import os
@@ -324,11 +339,10 @@ _NO_ROWS = np.zeros((1, 1, 3), np.uint8)
 def helper_count(windows: int, workers: int | None) -> int:
     """Helper processes for a check walk of ``windows`` windows: ``workers - 1``, at most one per
     window beyond the first; ``workers`` None: one process per core, each walking at least two
-    windows (a helper prepares the render again), at most
-    :data:`compose.parallel.AUTO_WORKERS` -- and none while the load average leaves no core free
-    (more than the cores less a half): a helper's second preparation (about 0.6 CPU-s more in
-    all for the demo) then competes with the check's own walk instead of running beside it (at
-    load 5 on 2 cores the demo's check took 5.35 s with a helper against 4.57 s without)."""
+    windows, at most :data:`compose.parallel.AUTO_WORKERS` -- and none while the load average
+    leaves no core free (more than the cores less a half; decided when helpers still prepared
+    the render again, which then competed with the check's own walk: at load 5 on 2 cores the
+    demo's check took 5.35 s with a helper against 4.57 s without)."""
     import os
 
     from compose.parallel import AUTO_WORKERS, default_workers
@@ -350,19 +364,6 @@ def _share(windows: list, parts: int, part: int) -> list:
     n = len(windows)
     bounds = [n * i // parts for i in range(parts + 1)]
     return windows[bounds[part]:bounds[part + 1]]
-
-
-def _import_for(style: Style) -> None:
-    """Import what preparing and walking ``style`` imports (a forked helper inherits it)."""
-    import compose.engine  # noqa: F401
-    import compose.packing  # noqa: F401
-    from compose.style.kinds import layer_class
-
-    kinds = {spec.kind for spec in style.layers if spec.enabled}
-    for kind in kinds:
-        layer_class(kind)
-    if "labels" in kinds and style.page is not None:
-        import compose.page.write  # noqa: F401
 
 
 def _cache_of(style: Style, canvas, keep_clear, cache, mapper, read: bool = True):

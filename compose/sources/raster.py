@@ -631,6 +631,21 @@ class RasterSource:
         return data
 
     # --- lifetime ---------------------------------------------------------------------------
+    def reopen(self) -> None:
+        """Read through handles of this process's own from now on: in a process forked after
+        the source was opened (the check's window helpers, compose.api), whose inherited GDAL
+        handles share their file offsets with the parent's. The inherited handles are kept
+        aside, neither used nor closed (closing them could flush state the parent still uses)."""
+        _INHERITED.append((self._ds, self._view, self._others))
+        self._ds = rasterio.open(gdal_name(self.path))
+        self._view = (_band_view(self.path, self.band, self._ds.count)
+                      if self._view is not None else None)
+        self._owner = threading.get_ident()
+        self._local = threading.local()
+        self._others = []
+        self._lock = threading.Lock()
+        self._plan = None
+
     def close(self) -> None:
         """Close the file (idempotent)."""
         for ds, view in getattr(self, "_others", ()):
@@ -652,6 +667,10 @@ class RasterSource:
 
     def __repr__(self) -> str:
         return f"RasterSource({str(self.path)!r}, band={self.band}, layer={self.layer!r})"
+
+
+#: Handles a forked process inherited and replaced (:meth:`RasterSource.reopen`), kept alive.
+_INHERITED: list = []
 
 
 def _horizontal(crs) -> pyproj.CRS:
