@@ -37,6 +37,7 @@ from compose.check.stats import (  # the Y -> L* table and its size
 from compose.color.bulk import CHANNEL_XYZ
 from compose.color.srgb import srgb_to_linear
 from compose.color.wcag import relative_luminance
+from compose.kernels import get as compiled
 from compose.style.kinds import LAYER_KINDS
 
 __all__ = ["GRAY_STRIDE", "new_statistics", "WindowMeasure"]
@@ -323,6 +324,12 @@ def _contrast_table(y_part: float) -> np.ndarray:
     return table
 
 
+@functools.lru_cache(maxsize=64)
+def _contrast_table16(y_part: float) -> np.ndarray:
+    """:func:`_contrast_table` as int16 (bins < N_CONTRAST = 2000; -1 kept), for the kernel."""
+    return _contrast_table(y_part).astype(np.int16)
+
+
 def _contrast_of_cells(y_part: float, cells: np.ndarray, y_below: np.ndarray) -> np.ndarray:
     """:func:`_contrast_bins` of ``y_below`` (float32 (n,)) whose Y cells are ``cells``: the
     cell's bin by table, computed only where a cell spans a bin edge (a few % of pixels)."""
@@ -331,6 +338,50 @@ def _contrast_of_cells(y_part: float, cells: np.ndarray, y_below: np.ndarray) ->
     if edge.size:
         bins[edge] = _contrast_bins(y_part, np.take(y_below, edge))
     return bins
+
+
+def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray,
+                      ground8: np.ndarray | None, inner) -> bool:
+    """The beneath histograms of an overlay part (contrast, ground contrast, L*, colours) in one
+    pass per composite by the compiled kernel (:mod:`compose.kernels`): the numbers of the
+    numpy path below, bit for bit (every bin summed pixel by pixel in row-major order, as
+    np.bincount adds; the by-colour path's sums are exact in any order). False when the kernel
+    is missing or the arrays are not float32 (then the numpy path measures)."""
+    k = compiled()
+    if k is None or alpha.dtype != np.float32 or alpha.ndim != 2 or beneath.dtype != np.float32 \
+            or beneath.shape != (3,) + alpha.shape or (ground8 is not None and (
+                ground8.dtype != np.float32 or ground8.shape != beneath.shape)):
+        return False
+    rs, cs = inner
+    r0, r1, _ = rs.indices(alpha.shape[0])
+    c0, c1, _ = cs.indices(alpha.shape[1])
+    color = paint.color
+    y_part = (_luminance_of(color) if isinstance(color, tuple)
+              else float(relative_luminance(np.asarray(color))))
+    contrast, lightness = np.zeros(N_CONTRAST), np.zeros(N_LIGHTNESS)
+    dense = _local.__dict__.get("dense")
+    if dense is None:                   # all zeros between calls
+        dense = _local.dense = np.zeros(N_BENEATH)
+    touched = _scratch("touched", (N_BENEATH,), np.intp)
+    ctab = _contrast_table16(y_part)
+    size = max(r1 - r0, 0) * max(c1 - c0, 0)
+    held = _scratch("held-w", (size,), np.float32), _scratch("held-c", (size,), np.uint32)
+    pixels, n = k.overlay(alpha, beneath, r0, r1, c0, c1, y_part, CONTRAST_STEP, CHANNEL_XYZ[1],
+                          _L_BIN, ctab, contrast, lightness, BENEATH_BITS, dense, touched, *held)
+    present = np.sort(touched[:n])
+    weights = dense[present]
+    dense[present] = 0.0
+    if not pixels:
+        return True
+    part.contrast, part.beneath_lightness = contrast, lightness
+    part.add_beneath(present, weights)
+    if ground8 is None:                 # the layer's first part: beneath is the ground
+        part.ground_contrast = contrast.copy()
+    else:
+        part.ground_contrast = np.zeros(N_CONTRAST)
+        k.overlay(alpha, ground8, r0, r1, c0, c1, y_part, CONTRAST_STEP, CHANNEL_XYZ[1], _L_BIN,
+                  ctab, part.ground_contrast, None, BENEATH_BITS, None, None, *held)
+    return True
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
@@ -365,8 +416,9 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
         rgb8 = np.clip(np.rint(np.asarray(paint.color) * 255), 0, 255).astype(np.uint8)[None, :]
         part = PartStats(paint.part, rgb8, np.array([float(alpha_core.sum())]))
     if overlay and paint.palette is None and beneath is not None:
-        pix = _core_pixels(alpha, inner)
-        if pix.size:
+        if _overlay_compiled(part, paint, alpha, beneath, ground8, inner):
+            pass
+        elif (pix := _core_pixels(alpha, inner)).size:
             # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
             weights = _scratch("weights", (pix.size,), np.float64)       # exact: float32 values
             weights[:] = np.take(alpha.reshape(-1), pix, mode="clip",
@@ -398,6 +450,38 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     else:
         stats.parts[paint.part] = part
     return opaque
+
+
+def _grey_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
+                   hidden: np.ndarray | None, alpha: np.ndarray | None,
+                   above: np.ndarray | bool | None) -> bool:
+    """A theme's grey-order rows of one window (L* per entry; blended colours and their counts
+    when measured) by the compiled kernel, in one pass over the sampled pixels: the numbers of
+    the numpy path in :meth:`WindowMeasure.finish`, bit for bit (counts are whole numbers; each
+    entry's colour sums added pixel by pixel in row-major order, as np.bincount adds them).
+    ``view``: the sampled composite (3, k1, k2) uint8; ``index``, ``hidden`` (what overlays
+    cover; None: nothing), ``alpha`` (the theme's; None: 1) on the same samples (k1, k2);
+    ``above``: what themes drawn later cover (flat, or True: everything, or None: nothing).
+    False (nothing added) when an array is of another type: then the numpy path measures."""
+    if view.dtype != np.uint8 or index.dtype.kind not in "iu" or any(
+            a is not None and a.dtype != np.float32 for a in (hidden, alpha)) or (
+            isinstance(above, np.ndarray) and above.dtype != np.float32):
+        return False
+    if not index.size:
+        return True
+    lo, hi = k.index_range(index)
+    m = hi - lo + 1
+    counts = np.zeros((m, N_LIGHTNESS))
+    colors = s.measures("value_color") and s.measures("value_count") and above is not True
+    count, color = (np.zeros(m), np.zeros((m, 3))) if colors else (None, None)
+    k.grey(view, index, alpha, hidden,
+           above.reshape(index.shape) if isinstance(above, np.ndarray) else None,
+           CHANNEL_XYZ[1], _L_BIN, _LINEAR8, lo, counts, count, color)
+    s.add_rows("value_lightness", lo, counts)
+    if count is not None and color is not None:
+        s.add_rows("value_count", lo, count)
+        s.add_rows("value_color", lo, color)
+    return True
 
 
 class WindowMeasure:
@@ -486,30 +570,36 @@ class WindowMeasure:
             # planar (3, k): each channel contiguous
             view = (planes8[(slice(None),) + sub] if planes8 is not None
                     else np.moveaxis(rgb8[sub], -1, 0))
-            # the sampled channels as indices (intp (3, k)): every lookup below takes them
-            # without converting them again
-            codes8 = _scratch("sampled", view.shape, np.intp)
-            np.copyto(codes8, view)
-            sampled = codes8.reshape(3, -1)
-            n_s = sampled.shape[1]
-            y = _scratch("sampled-y", (n_s,), np.float32)
-            t = _scratch("sampled-t", (n_s,), np.float32)
-            np.take(CHANNEL_XYZ[1, 0], sampled[0], out=y, mode="wrap")     # as _luminance8
-            y += np.take(CHANNEL_XYZ[1, 1], sampled[1], out=t, mode="wrap")
-            y += np.take(CHANNEL_XYZ[1, 2], sampled[2], out=t, mode="wrap")
-            # L* (intp) by the Y cell, as lightness_bins_of_luminance
-            cells = _scratch("sampled-cell", (n_s,), np.intp)
-            np.multiply(y, np.float32(_Y_LEVELS - 1), out=t)
-            t += np.float32(0.5)
-            cells[:] = t
-            if not _top_cell_holds_white():
-                np.minimum(cells, _Y_LEVELS - 1, out=cells)
-            lightness = np.take(_cell_bounds()[2], cells, mode="clip",
-                                out=_scratch("sampled-lightness", (n_s,), np.intp))
-            shown = None
-            if self._hidden is not None:
-                hidden = self._hidden[sub]
-                shown = np.less(hidden, 0.02, out=_scratch("shown", hidden.shape, np.bool_)).ravel()
+            n_s = view.shape[1] * view.shape[2]
+            numpy_samples: list = []     # (sampled, lightness) of the numpy path, made once
+
+            def samples() -> tuple[np.ndarray, np.ndarray]:
+                """The sampled channels as indices (intp (3, k): every lookup below takes them
+                without converting them again) and their L* (intp (k,))."""
+                if numpy_samples:
+                    return numpy_samples[0]
+                codes8 = _scratch("sampled", view.shape, np.intp)
+                np.copyto(codes8, view)
+                sampled = codes8.reshape(3, -1)
+                y = _scratch("sampled-y", (n_s,), np.float32)
+                t = _scratch("sampled-t", (n_s,), np.float32)
+                np.take(CHANNEL_XYZ[1, 0], sampled[0], out=y, mode="wrap")     # as _luminance8
+                y += np.take(CHANNEL_XYZ[1, 1], sampled[1], out=t, mode="wrap")
+                y += np.take(CHANNEL_XYZ[1, 2], sampled[2], out=t, mode="wrap")
+                # L* (intp) by the Y cell, as lightness_bins_of_luminance
+                cells = _scratch("sampled-cell", (n_s,), np.intp)
+                np.multiply(y, np.float32(_Y_LEVELS - 1), out=t)
+                t += np.float32(0.5)
+                cells[:] = t
+                if not _top_cell_holds_white():
+                    np.minimum(cells, _Y_LEVELS - 1, out=cells)
+                lightness = np.take(_cell_bounds()[2], cells, mode="clip",
+                                    out=_scratch("sampled-lightness", (n_s,), np.intp))
+                numpy_samples.append((sampled, lightness))
+                return sampled, lightness
+
+            hidden = None if self._hidden is None else self._hidden[sub]
+            shown = None        # where hidden < 0.02 (flat), for the numpy path
             # each theme's alpha on the sample grid (None: 1 everywhere)
             sampled_alpha = [None if opaque else a_core[sub].ravel()
                              for _, _, a_core, opaque in themes]
@@ -525,8 +615,16 @@ class WindowMeasure:
                 else:
                     running = a if running is None else np.maximum(running, a)
             linear = None
-            for (li, index, _, _), a_s, above in zip(themes, sampled_alpha, covered_above):
+            kernel = compiled()
+            for (li, index, a_core, _), a_s, above in zip(themes, sampled_alpha, covered_above):
                 s = self.stats.layers[li]
+                if kernel is not None and _grey_compiled(
+                        kernel, s, view, index[sub], hidden, None if a_s is None else a_core[sub],
+                        above):
+                    continue
+                sampled, lightness = samples()
+                if hidden is not None and shown is None:
+                    shown = np.less(hidden, 0.02, out=_scratch("shown", hidden.shape, np.bool_)).ravel()
                 # pixels left out are counted in one bin past the table's end, dropped after
                 # (every other bin gets the same pixels in the same order as by selecting them)
                 keep = None if a_s is None else a_s > 0.5

@@ -1,0 +1,456 @@
+/* compose._kernels: the window statistics' per-pixel loops in one pass each (compose.measure).
+ *
+ * Arrays come in through the buffer protocol only (any strides; the element type read from
+ * the buffer's format character and item size), so nothing here depends on numpy's C API.
+ * Every number is the one compose.measure's numpy path gives, bit for bit: the same float32
+ * and float64 operations in the same order (IEEE 754; built with -ffp-contract=off so no
+ * multiply and add are fused), and every sum is added pixel by pixel in row-major order, the
+ * order np.bincount adds its weights in. tests/test_kernels.py compares the two paths.
+ */
+#define PY_SSIZE_T_CLEAN
+#include <Python.h>
+#include <math.h>
+#include <stdint.h>
+#include <string.h>
+
+/* element kinds of a buffer */
+enum { K_F32, K_F64, K_INT, K_UINT, K_BAD };
+
+typedef struct {
+    Py_buffer b;
+    int held;
+    int kind;
+} Arr;
+
+static int kind_of(const Py_buffer *b) {
+    const char *f = b->format ? b->format : "B";
+    if (*f == '@' || *f == '=' || *f == '<') f++;     /* native order (little-endian hosts) */
+    if (f[0] == '\0' || f[1] != '\0') return K_BAD;
+    switch (f[0]) {
+        case 'f': return b->itemsize == 4 ? K_F32 : K_BAD;
+        case 'd': return b->itemsize == 8 ? K_F64 : K_BAD;
+        case 'b': case 'h': case 'i': case 'l': case 'q': case 'n': return K_INT;
+        case 'B': case 'H': case 'I': case 'L': case 'Q': case 'N': return K_UINT;
+        default: return K_BAD;
+    }
+}
+
+/* Borrow ``o``'s buffer with ``ndim`` dimensions (and the kind wanted, or K_INT for any
+ * integer type); Py_None gives an empty Arr when ``optional``. 0 on success. */
+static int take(PyObject *o, Arr *a, int ndim, int want, int writable, int optional,
+                const char *name) {
+    a->held = 0;
+    if (o == Py_None && optional) return 0;
+    int flags = PyBUF_STRIDES | PyBUF_FORMAT | (writable ? PyBUF_WRITABLE : 0);
+    if (PyObject_GetBuffer(o, &a->b, flags) < 0) return -1;
+    a->held = 1;
+    a->kind = kind_of(&a->b);
+    int ok = a->b.ndim == ndim && a->kind != K_BAD
+             && (want == K_INT ? (a->kind == K_INT || a->kind == K_UINT) : a->kind == want);
+    if (!ok) {
+        PyErr_Format(PyExc_TypeError, "%s: wrong type or number of dimensions", name);
+        return -1;
+    }
+    return 0;
+}
+
+static void drop(Arr *a) {
+    if (a->held) PyBuffer_Release(&a->b);
+    a->held = 0;
+}
+
+#define AT(a, i) ((const char *)(a).b.buf + (i) * (a).b.strides[0])
+#define AT2(a, i, j) ((const char *)(a).b.buf + (i) * (a).b.strides[0] + (j) * (a).b.strides[1])
+#define AT3(a, i, j, k) ((const char *)(a).b.buf + (i) * (a).b.strides[0] + (j) * (a).b.strides[1] \
+                         + (k) * (a).b.strides[2])
+
+static inline __attribute__((always_inline)) int64_t read_int(const char *p, const Arr *a) {
+    switch (a->b.itemsize) {
+        case 1: return a->kind == K_INT ? (int64_t)*(const int8_t *)p : (int64_t)*(const uint8_t *)p;
+        case 2: return a->kind == K_INT ? (int64_t)*(const int16_t *)p : (int64_t)*(const uint16_t *)p;
+        case 4: return a->kind == K_INT ? (int64_t)*(const int32_t *)p : (int64_t)*(const uint32_t *)p;
+        default: return *(const int64_t *)p;
+    }
+}
+
+/* 8-bit code of a float32 sRGB value: x 255, clipped to [0, 255], rounded half to even
+ * (np.clip, then np.rint into uint8; NaN gives 0) */
+static inline __attribute__((always_inline)) uint8_t code8(float v) {
+    float x = v * 255.0f;
+    if (x != x) return 0;
+    if (x < 0.0f) x = 0.0f;
+    if (x > 255.0f) x = 255.0f;
+    /* rintf without a call: adding 2**23 rounds a float32 in [0, 2**23) to an integer in the
+       current rounding mode (to nearest, ties to even), as rintf does */
+    float r = (x + 8388608.0f) - 8388608.0f;
+    return (uint8_t)r;
+}
+
+/* the tables both kernels look luminance and L* up in */
+typedef struct {
+    const float *ytab;          /* (3, 256) float32: each channel's share of luminance Y */
+    const uint8_t *lbin;        /* (ncell,) rounded L* of each Y cell */
+    Py_ssize_t ncell;
+} Tables;
+
+static int tables(PyObject *ytab_o, PyObject *lbin_o, Arr *ytab, Arr *lbin, Tables *t) {
+    if (take(ytab_o, ytab, 2, K_F32, 0, 0, "ytab") < 0) return -1;
+    if (take(lbin_o, lbin, 1, K_UINT, 0, 0, "lbin") < 0) return -1;
+    if (!PyBuffer_IsContiguous(&ytab->b, 'C') || ytab->b.shape[0] != 3 || ytab->b.shape[1] != 256
+        || !PyBuffer_IsContiguous(&lbin->b, 'C') || lbin->b.itemsize != 1 || lbin->b.shape[0] < 1) {
+        PyErr_SetString(PyExc_ValueError, "ytab must be (3, 256) float32, lbin (n,) uint8, contiguous");
+        return -1;
+    }
+    t->ytab = (const float *)ytab->b.buf;
+    t->lbin = (const uint8_t *)lbin->b.buf;
+    t->ncell = lbin->b.shape[0];
+    return 0;
+}
+
+/* luminance of an 8-bit colour: three table entries added in float32, in channel order */
+static inline __attribute__((always_inline)) float luminance(const Tables *t, uint8_t r, uint8_t g, uint8_t b) {
+    float y = t->ytab[r];
+    y += t->ytab[256 + g];
+    y += t->ytab[512 + b];
+    return y;
+}
+
+/* the Y cell of a luminance: trunc(y * (ncell - 1) + 0.5) in float32, capped */
+static inline __attribute__((always_inline)) Py_ssize_t y_cell(const Tables *t, float y) {
+    float s = y * (float)(t->ncell - 1);
+    s += 0.5f;
+    Py_ssize_t cell = (Py_ssize_t)s;
+    if (cell > t->ncell - 1) cell = t->ncell - 1;
+    if (cell < 0) cell = 0;
+    return cell;
+}
+
+/* rounded L* of a luminance by its Y cell */
+static inline __attribute__((always_inline)) uint8_t lightness(const Tables *t, float y) {
+    return t->lbin[y_cell(t, y)];
+}
+
+/* WCAG contrast bin of luminance y against y_part, as compose.measure._contrast_bins */
+static inline Py_ssize_t contrast_bin(double y, double y_part, double step, Py_ssize_t n) {
+    double ratio = y > y_part ? y : y_part;
+    ratio += 0.05;
+    double low = y < y_part ? y : y_part;
+    low += 0.05;
+    ratio /= low;
+    ratio -= 1.0;
+    ratio /= step;
+    ratio += 1e-9;
+    /* floor, then clipped to [0, n - 1]: truncation equals floor from 0 up */
+    if (!(ratio >= 0)) return 0;
+    if (ratio >= (double)(n - 1)) return n - 1;
+    return (Py_ssize_t)ratio;
+}
+
+PyDoc_STRVAR(overlay_doc,
+"overlay(alpha, beneath, r0, r1, c0, c1, y_part, step, ytab, lbin, ctab, contrast, lightness,\n"
+"        bits, dense, touched, scratch_w, scratch_c) -> (pixels, touched_count)\n\n"
+"The beneath histograms of an overlay part over the core rows r0..r1-1, columns c0..c1-1:\n"
+"for every pixel whose alpha (float32 (H, W)) is > 0, with weight float64(alpha), the colour\n"
+"beneath (float32 planes (3, H, W)) as 8-bit codes; its WCAG contrast bin against luminance\n"
+"y_part (bins of width step; ctab (int16, one per Y cell): the cell's bin, or -1 where it is\n"
+"computed) added to contrast (float64 (n,)); its L* to lightness (float64\n"
+"(101,) or None); its beneath-colour code (bits per channel) to dense (float64 (1 << 3 bits,),\n"
+"zero where not touched yet; or None), each code first touched appended to touched (intp).\n"
+"scratch_w (float32) and scratch_c (uint32), each at least the core's size, hold the pixels\n"
+"drawn between the two passes. Returns the number of pixels and of codes touched.");
+
+static PyObject *overlay(PyObject *self, PyObject *args) {
+    PyObject *alpha_o, *beneath_o, *ytab_o, *lbin_o, *ctab_o, *contrast_o, *light_o, *dense_o,
+        *touched_o, *sw_o, *sc_o;
+    Py_ssize_t r0, r1, c0, c1;
+    double y_part, step;
+    int bits;
+    if (!PyArg_ParseTuple(args, "OOnnnnddOOOOOiOOOO", &alpha_o, &beneath_o, &r0, &r1, &c0, &c1,
+                          &y_part, &step, &ytab_o, &lbin_o, &ctab_o, &contrast_o, &light_o, &bits,
+                          &dense_o, &touched_o, &sw_o, &sc_o))
+        return NULL;
+    Arr alpha = {0}, beneath = {0}, ytab = {0}, lbin = {0}, ctab = {0}, con = {0}, light = {0},
+        dense = {0}, touched = {0}, scratch_w = {0}, scratch_c = {0};
+    Tables t;
+    PyObject *result = NULL;
+    if (take(alpha_o, &alpha, 2, K_F32, 0, 0, "alpha") < 0
+        || take(beneath_o, &beneath, 3, K_F32, 0, 0, "beneath") < 0
+        || tables(ytab_o, lbin_o, &ytab, &lbin, &t) < 0
+        || take(ctab_o, &ctab, 1, K_INT, 0, 0, "ctab") < 0
+        || take(contrast_o, &con, 1, K_F64, 1, 0, "contrast") < 0
+        || take(light_o, &light, 1, K_F64, 1, 1, "lightness") < 0
+        || take(dense_o, &dense, 1, K_F64, 1, 1, "dense") < 0
+        || take(touched_o, &touched, 1, K_INT, 1, 1, "touched") < 0
+        || take(sw_o, &scratch_w, 1, K_F32, 1, 0, "scratch_w") < 0
+        || take(sc_o, &scratch_c, 1, K_UINT, 1, 0, "scratch_c") < 0)
+        goto done;
+    Py_ssize_t h = alpha.b.shape[0], w = alpha.b.shape[1];
+    if (beneath.b.shape[0] != 3 || beneath.b.shape[1] != h || beneath.b.shape[2] != w
+        || r0 < 0 || c0 < 0 || r1 > h || c1 > w || r0 > r1 || c0 > c1
+        || !PyBuffer_IsContiguous(&scratch_w.b, 'C') || !PyBuffer_IsContiguous(&scratch_c.b, 'C')
+        || scratch_c.b.itemsize != 4 || scratch_w.b.shape[0] < (r1 - r0) * (c1 - c0)
+        || scratch_c.b.shape[0] < (r1 - r0) * (c1 - c0)
+        || !PyBuffer_IsContiguous(&con.b, 'C') || !PyBuffer_IsContiguous(&ctab.b, 'C')
+        || ctab.b.itemsize != 2 || ctab.kind != K_INT || ctab.b.shape[0] != t.ncell
+        || (light.held && (!PyBuffer_IsContiguous(&light.b, 'C') || light.b.shape[0] < 101))
+        || (dense.held != touched.held) || bits < 1 || bits > 8
+        || (dense.held && (!PyBuffer_IsContiguous(&dense.b, 'C')
+                           || dense.b.shape[0] < ((Py_ssize_t)1 << (3 * bits))
+                           || !PyBuffer_IsContiguous(&touched.b, 'C')
+                           || touched.b.itemsize != sizeof(Py_ssize_t) || touched.kind != K_INT))) {
+        PyErr_SetString(PyExc_ValueError, "overlay: shapes do not fit");
+        goto done;
+    }
+    double *contrast = (double *)con.b.buf;
+    const int16_t *cbin = (const int16_t *)ctab.b.buf;
+    Py_ssize_t ncon = con.b.shape[0];
+    double *lsum = light.held ? (double *)light.b.buf : NULL;
+    double *dsum = dense.held ? (double *)dense.b.buf : NULL;
+    Py_ssize_t *tlist = touched.held ? (Py_ssize_t *)touched.b.buf : NULL;
+    Py_ssize_t tcap = touched.held ? touched.b.shape[0] : 0;
+    Py_ssize_t pixels = 0, nt = 0;
+    int shift = 8 - bits;
+    int overflow = 0;
+    float *wbuf = (float *)scratch_w.b.buf;
+    uint32_t *cbuf = (uint32_t *)scratch_c.b.buf;
+    Py_BEGIN_ALLOW_THREADS
+    /* first the pixels drawn (alpha > 0), in row-major order: each row's columns drawn are
+       gathered without a branch (a column is written at the next free place, which moves on
+       only when it is drawn), then their weights and 8-bit colours beneath */
+    Py_ssize_t sa = alpha.b.strides[1], sb = beneath.b.strides[2];
+    Py_ssize_t *cols = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(c1 - c0 + 1));
+    if (!cols) overflow = 2;
+    for (Py_ssize_t i = r0; i < r1 && cols; i++) {
+        const char *arow = AT2(alpha, i, 0);
+        const char *row0 = AT3(beneath, 0, i, 0), *row1 = AT3(beneath, 1, i, 0),
+                   *row2 = AT3(beneath, 2, i, 0);
+        Py_ssize_t k = 0;
+        for (Py_ssize_t j = c0; j < c1; j++) {
+            cols[k] = j;
+            k += (*(const float *)(arow + j * sa) > 0.0f);
+        }
+        for (Py_ssize_t q = 0; q < k; q++) {
+            Py_ssize_t j = cols[q];
+            uint32_t r = code8(*(const float *)(row0 + j * sb));
+            uint32_t g = code8(*(const float *)(row1 + j * sb));
+            uint32_t b = code8(*(const float *)(row2 + j * sb));
+            wbuf[pixels + q] = *(const float *)(arow + j * sa);
+            cbuf[pixels + q] = (r << 16) | (g << 8) | b;
+        }
+        pixels += k;
+    }
+    PyMem_RawFree(cols);
+    /* then their weights added to the bins, pixel by pixel */
+    for (Py_ssize_t p = 0; p < pixels; p++) {
+        double wgt = (double)wbuf[p];
+        uint32_t rgb = cbuf[p];
+        uint32_t r = rgb >> 16, g = (rgb >> 8) & 255u, b = rgb & 255u;
+        float y = luminance(&t, (uint8_t)r, (uint8_t)g, (uint8_t)b);
+        Py_ssize_t cell = y_cell(&t, y);
+        Py_ssize_t bin = cbin[cell];
+        if (bin < 0 || bin >= ncon) bin = contrast_bin((double)y, y_part, step, ncon);
+        contrast[bin] += wgt;
+        if (lsum) lsum[t.lbin[cell]] += wgt;
+        if (dsum) {
+            Py_ssize_t code = ((Py_ssize_t)(r >> shift) << (2 * bits))
+                              | ((Py_ssize_t)(g >> shift) << bits) | (Py_ssize_t)(b >> shift);
+            if (dsum[code] == 0.0) {
+                if (nt >= tcap) { overflow = 1; break; }
+                tlist[nt++] = code;
+            }
+            dsum[code] += wgt;
+        }
+    }
+    Py_END_ALLOW_THREADS
+    if (overflow == 2) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    if (overflow) {
+        PyErr_SetString(PyExc_ValueError, "overlay: touched is too short");
+        goto done;
+    }
+    result = Py_BuildValue("nn", pixels, nt);
+done:
+    drop(&alpha); drop(&beneath); drop(&ytab); drop(&lbin); drop(&ctab); drop(&con); drop(&light);
+    drop(&dense); drop(&touched); drop(&scratch_w); drop(&scratch_c);
+    return result;
+}
+
+PyDoc_STRVAR(index_range_doc,
+"index_range(index) -> (lo, hi): the smallest and largest value of an integer array (k1, k2)\n"
+"(any strides; not empty).");
+
+static PyObject *index_range(PyObject *self, PyObject *args) {
+    PyObject *o;
+    if (!PyArg_ParseTuple(args, "O", &o)) return NULL;
+    Arr a = {0};
+    if (take(o, &a, 2, K_INT, 0, 0, "index") < 0) { drop(&a); return NULL; }
+    Py_ssize_t k1 = a.b.shape[0], k2 = a.b.shape[1];
+    if (k1 < 1 || k2 < 1) {
+        drop(&a);
+        PyErr_SetString(PyExc_ValueError, "index_range of an empty array");
+        return NULL;
+    }
+    int64_t lo = read_int(AT2(a, 0, 0), &a), hi = lo;
+    for (Py_ssize_t i = 0; i < k1; i++)
+        for (Py_ssize_t j = 0; j < k2; j++) {
+            int64_t v = read_int(AT2(a, i, j), &a);
+            if (v < lo) lo = v;
+            if (v > hi) hi = v;
+        }
+    drop(&a);
+    return Py_BuildValue("LL", (long long)lo, (long long)hi);
+}
+
+PyDoc_STRVAR(grey_doc,
+"grey(planes8, index, alpha, hidden, above, ytab, lbin, linear8, lo, counts, count, color)\n\n"
+"A theme's grey-order tables over sampled pixels (k1, k2), row-major: planes8 (3, k1, k2)\n"
+"uint8 the composite, index (k1, k2) integer palette entries lo..lo + m - 1; alpha (the\n"
+"theme's, float32) , hidden (what overlays cover, float32) and above (what themes drawn later\n"
+"cover, float32), each (k1, k2) or None. A pixel kept (alpha > 0.5, hidden < 0.02) adds 1 to\n"
+"counts[entry - lo, L*] (float64 (m, 101)); with count (float64 (m,)) and color (float64\n"
+"(m, 3)) not None, a pixel drawn (alpha > 0, hidden < 0.02, above <= 0.5) adds 1 to its\n"
+"entry's count and linear8 (float64 (256,)) of each channel to its colour.");
+
+static PyObject *grey(PyObject *self, PyObject *args) {
+    PyObject *planes_o, *index_o, *alpha_o, *hidden_o, *above_o, *ytab_o, *lbin_o, *lin_o,
+        *counts_o, *count_o, *color_o;
+    Py_ssize_t lo;
+    if (!PyArg_ParseTuple(args, "OOOOOOOOnOOO", &planes_o, &index_o, &alpha_o, &hidden_o,
+                          &above_o, &ytab_o, &lbin_o, &lin_o, &lo, &counts_o, &count_o, &color_o))
+        return NULL;
+    Arr planes = {0}, index = {0}, alpha = {0}, hidden = {0}, above = {0}, ytab = {0}, lbin = {0},
+        lin = {0}, counts = {0}, count = {0}, color = {0};
+    Tables t;
+    PyObject *result = NULL;
+    if (take(planes_o, &planes, 3, K_UINT, 0, 0, "planes8") < 0
+        || take(index_o, &index, 2, K_INT, 0, 0, "index") < 0
+        || take(alpha_o, &alpha, 2, K_F32, 0, 1, "alpha") < 0
+        || take(hidden_o, &hidden, 2, K_F32, 0, 1, "hidden") < 0
+        || take(above_o, &above, 2, K_F32, 0, 1, "above") < 0
+        || tables(ytab_o, lbin_o, &ytab, &lbin, &t) < 0
+        || take(lin_o, &lin, 1, K_F64, 0, 0, "linear8") < 0
+        || take(counts_o, &counts, 2, K_F64, 1, 0, "counts") < 0
+        || take(count_o, &count, 1, K_F64, 1, 1, "count") < 0
+        || take(color_o, &color, 2, K_F64, 1, 1, "color") < 0)
+        goto done;
+    Py_ssize_t k1 = index.b.shape[0], k2 = index.b.shape[1];
+    Py_ssize_t m = counts.b.shape[0];
+    int same = 1;
+    Arr *masks[3] = {&alpha, &hidden, &above};
+    for (int q = 0; q < 3; q++)
+        if (masks[q]->held && (masks[q]->b.shape[0] != k1 || masks[q]->b.shape[1] != k2)) same = 0;
+    if (!same || planes.b.itemsize != 1 || planes.b.shape[0] != 3 || planes.b.shape[1] != k1
+        || planes.b.shape[2] != k2 || lin.b.shape[0] != 256 || !PyBuffer_IsContiguous(&lin.b, 'C')
+        || !PyBuffer_IsContiguous(&counts.b, 'C') || counts.b.shape[1] != 101
+        || count.held != color.held
+        || (count.held && (!PyBuffer_IsContiguous(&count.b, 'C') || count.b.shape[0] != m
+                           || !PyBuffer_IsContiguous(&color.b, 'C') || color.b.shape[0] != m
+                           || color.b.shape[1] != 3))) {
+        PyErr_SetString(PyExc_ValueError, "grey: shapes do not fit");
+        goto done;
+    }
+    const double *l8 = (const double *)lin.b.buf;
+    double *cts = (double *)counts.b.buf;
+    double *cnt = count.held ? (double *)count.b.buf : NULL;
+    double *col = color.held ? (double *)color.b.buf : NULL;
+    int bad = 0;
+    Py_ssize_t *erow = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(k2 + 1));
+    if (!erow) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    /* an entry's count and colour sums are kept in registers while the next pixels have the
+       same entry and written back when one has another: each sum gets the same additions in
+       the same order as sum[entry] += value pixel by pixel */
+    Py_ssize_t cur = -1, run = 0;
+    double acc_r = 0.0, acc_g = 0.0, acc_b = 0.0;
+    const Py_ssize_t ps = planes.b.strides[0], pj = planes.b.strides[2];
+    const Py_ssize_t aj = alpha.held ? alpha.b.strides[1] : 0;
+    const Py_ssize_t hj = hidden.held ? hidden.b.strides[1] : 0;
+    const Py_ssize_t oj = above.held ? above.b.strides[1] : 0;
+    const Py_ssize_t ij = index.b.strides[1];
+    const int isize = (int)index.b.itemsize, isigned = index.kind == K_INT;
+    for (Py_ssize_t i = 0; i < k1 && !bad; i++) {
+        const char *irow = AT2(index, i, 0);
+        /* the row's entries - lo, read by the index's own type */
+        for (Py_ssize_t j = 0; j < k2; j++) {
+            const char *q = irow + j * ij;
+            int64_t v = isize == 2 && !isigned ? (int64_t)*(const uint16_t *)q
+                        : isize == 1 && !isigned ? (int64_t)*(const uint8_t *)q
+                        : read_int(q, &index);
+            erow[j] = (Py_ssize_t)(v - lo);
+            if (erow[j] < 0 || erow[j] >= m) bad = 1;
+        }
+        if (bad) break;
+        const char *prow = AT3(planes, 0, i, 0);
+        const char *arow = alpha.held ? AT2(alpha, i, 0) : NULL;
+        const char *hrow = hidden.held ? AT2(hidden, i, 0) : NULL;
+        const char *orow = above.held ? AT2(above, i, 0) : NULL;
+        for (Py_ssize_t j = 0; j < k2; j++) {
+            Py_ssize_t e = erow[j];
+            float a = arow ? *(const float *)(arow + j * aj) : 1.0f;
+            int shown = hrow ? (*(const float *)(hrow + j * hj) < 0.02f) : 1;
+            const char *px = prow + j * pj;
+            uint8_t r = *(const uint8_t *)px;
+            uint8_t g = *(const uint8_t *)(px + ps);
+            uint8_t b = *(const uint8_t *)(px + 2 * ps);
+            if (a > 0.5f && shown)
+                cts[e * 101 + lightness(&t, luminance(&t, r, g, b))] += 1.0;
+            if (cnt && a > 0.0f && shown && (!orow || *(const float *)(orow + j * oj) <= 0.5f)) {
+                if (e != cur) {
+                    if (cur >= 0) {
+                        cnt[cur] += (double)run;
+                        col[3 * cur] = acc_r;
+                        col[3 * cur + 1] = acc_g;
+                        col[3 * cur + 2] = acc_b;
+                    }
+                    cur = e;
+                    run = 0;
+                    acc_r = col[3 * e];
+                    acc_g = col[3 * e + 1];
+                    acc_b = col[3 * e + 2];
+                }
+                run++;
+                acc_r += l8[r];
+                acc_g += l8[g];
+                acc_b += l8[b];
+            }
+        }
+    }
+    if (cur >= 0) {
+        cnt[cur] += (double)run;
+        col[3 * cur] = acc_r;
+        col[3 * cur + 1] = acc_g;
+        col[3 * cur + 2] = acc_b;
+    }
+    Py_END_ALLOW_THREADS
+    PyMem_RawFree(erow);
+    if (bad) {
+        PyErr_SetString(PyExc_ValueError, "grey: an index outside lo..lo + m - 1");
+        goto done;
+    }
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    drop(&planes); drop(&index); drop(&alpha); drop(&hidden); drop(&above); drop(&ytab);
+    drop(&lbin); drop(&lin); drop(&counts); drop(&count); drop(&color);
+    return result;
+}
+
+static PyMethodDef methods[] = {
+    {"overlay", overlay, METH_VARARGS, overlay_doc},
+    {"index_range", index_range, METH_VARARGS, index_range_doc},
+    {"grey", grey, METH_VARARGS, grey_doc},
+    {NULL, NULL, 0, NULL},
+};
+
+static struct PyModuleDef module = {
+    PyModuleDef_HEAD_INIT, "compose._kernels",
+    "The window statistics' per-pixel loops (see compose.kernels).", -1, methods,
+    NULL, NULL, NULL, NULL,
+};
+
+PyMODINIT_FUNC PyInit__kernels(void) { return PyModule_Create(&module); }

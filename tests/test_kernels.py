@@ -1,0 +1,229 @@
+"""The compiled statistics loops (compose/_kernels.c) give the numpy path's numbers bit for bit.
+
+The C source is compiled here with setuptools into a temporary folder (so the test checks the
+source as it is, whether or not the installed package holds a build of it), then every
+statistic is computed both ways: an overlay part's beneath histograms on random composites
+(coverage in 8-bit steps, whose sums are exact in any order, and arbitrary float32 coverage,
+whose sums are not), and whole renders of the tiny test region with themes drawn opaque, half
+transparent and under a second theme, in windows of two sizes. The numpy path is the
+reference: tests/test_measure.py checks it against the direct formulas (WCAG 2 contrast ratio,
+CIE L*, np.bincount) pixel by pixel.
+"""
+from __future__ import annotations
+
+import dataclasses
+import importlib.util
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from compose import kernels
+from compose import measure as M
+from compose.check.stats import LayerStats, PartStats
+from compose.layers.base import Paint
+from tests.test_engine import tiny_region  # noqa: F401  (fixture)
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+@pytest.fixture(scope="module")
+def compiled(tmp_path_factory):
+    """compose/_kernels.c built by setuptools (the flags of setup.py) and loaded."""
+    pytest.importorskip("setuptools")
+    if shutil.which("gcc") is None and shutil.which("cc") is None:
+        pytest.skip("no C compiler")
+    from setuptools import Distribution, Extension
+    from setuptools.command.build_ext import build_ext
+
+    out = tmp_path_factory.mktemp("kernels")
+    ext = Extension("compose._kernels", [str(ROOT / "compose" / "_kernels.c")],
+                    extra_compile_args=["-O2", "-ffp-contract=off"])
+    dist = Distribution({"name": "kernels-test", "ext_modules": [ext]})
+    cmd = build_ext(dist)
+    cmd.build_lib = str(out / "lib")
+    cmd.build_temp = str(out / "tmp")
+    cmd.ensure_finalized()
+    cmd.run()
+    path = Path(cmd.get_ext_fullpath("compose._kernels"))
+    spec = importlib.util.spec_from_file_location("compose._kernels", path)
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+@pytest.fixture
+def use(compiled, monkeypatch):
+    """use(True): the measure runs the compiled loops; use(False): the numpy path."""
+    monkeypatch.setattr(kernels, "_loaded", [compiled])
+
+    def switch(on: bool) -> None:
+        monkeypatch.setattr(kernels, "enabled", on)
+    return switch
+
+
+def _composite(rng, h, w, smooth: bool) -> np.ndarray:
+    """A padded composite (3, h, w) float32 in [0, 1]: smooth shading or scattered colours,
+    with a few values just outside [0, 1] and on the 8-bit rounding edges."""
+    if smooth:
+        y, x = np.mgrid[0:h, 0:w] / max(h, w)
+        base = 0.5 + 0.45 * np.sin(7 * x[None] + np.arange(3)[:, None, None]) * np.cos(5 * y[None])
+        out = base.astype(np.float32)
+    else:
+        out = rng.random((3, h, w), dtype=np.float32)
+    out.reshape(-1)[:50] = np.float32(1.0000001)
+    out.reshape(-1)[50:100] = np.float32(-1e-7)
+    out.reshape(-1)[100:200] = (np.arange(100, dtype=np.float32) + np.float32(0.5)) / np.float32(255)
+    return out
+
+
+def _parts_equal(a: PartStats, b: PartStats) -> None:
+    for f in dataclasses.fields(a):
+        x, y = getattr(a, f.name), getattr(b, f.name)
+        if isinstance(x, np.ndarray) or isinstance(y, np.ndarray):
+            assert x is not None and y is not None, f.name
+            assert x.dtype == y.dtype and x.shape == y.shape, f.name
+            assert x.tobytes() == y.tobytes(), f.name
+        else:
+            assert x == y, f.name
+
+
+@pytest.mark.parametrize("coverage", ["8-bit", "float", "faint", "none"])
+@pytest.mark.parametrize("smooth", [True, False])
+@pytest.mark.parametrize("two_parts", [False, True])
+def test_overlay_part_equals_the_numpy_path_bit_for_bit(use, coverage, smooth, two_parts):
+    rng = np.random.default_rng(11)
+    h, w, pad = 70, 90, 3
+    drawn = rng.random((h, w)) < 0.3
+    if coverage == "8-bit":         # Agg's antialiased coverage: sums exact in any order
+        alpha = rng.integers(1, 256, (h, w)).astype(np.float32) / np.float32(255)
+    elif coverage == "float":       # arbitrary float32 values: sums that round
+        alpha = rng.random((h, w), dtype=np.float32) * np.float32(0.7) + np.float32(1e-3)
+    elif coverage == "faint":       # 1/255 steps beside 1e-6: not exact in any order
+        alpha = np.where(rng.random((h, w)) < 0.5, np.float32(1e-6), np.float32(1)).astype(np.float32)
+    else:
+        drawn[:] = False
+        alpha = np.ones((h, w), np.float32)
+    alpha = np.where(drawn, alpha, np.float32(0)).astype(np.float32)
+    beneath = _composite(rng, h, w, smooth)
+    ground = _composite(np.random.default_rng(3), h, w, not smooth) if two_parts else None
+    inner = (slice(pad, h - pad), slice(pad, w - pad))
+    paint = Paint("stroke", alpha, color=(0.2, 0.25, 0.3))
+    results = []
+    for on in (True, False):
+        use(on)
+        layer = LayerStats(name="lines", role="overlay", kind="lines")
+        M._measure_part(layer, paint, alpha, beneath.copy(), ground, True, inner)
+        results.append(layer.parts["stroke"])
+    _parts_equal(*results)
+    if coverage == "none":
+        assert results[0].contrast is None
+    else:
+        assert results[0].contrast is not None and results[0].contrast.sum() > 0
+
+
+THEMES = '''
+[[layer]]
+name = "field2"
+role = "theme"
+kind = "field"
+source = "field.tif"
+ramp = "g"
+opacity = {opacity}
+'''
+
+
+@pytest.mark.parametrize("variant", ["as-is", "half-transparent", "two-themes-0.4",
+                                     "two-themes-0.6"])
+@pytest.mark.parametrize("window", [64, 96])
+def test_window_statistics_equal_the_numpy_path_bit_for_bit(use, tiny_region, variant, window):  # noqa: F811
+    from compose.engine import prepare, run
+    from compose.style import load_style
+
+    text = tiny_region.read_text()
+    if variant == "half-transparent":
+        text = text.replace('blend = "multiply"', 'blend = "multiply"\nopacity = 0.55')
+    elif variant.startswith("two-themes"):  # a second theme over the first (hiding it where
+        # it covers more than half), before the overlays
+        head, roads = text.split('[[layer]]\nname = "roads"')
+        text = (head + THEMES.format(opacity=variant.rsplit("-", 1)[1]) + '[[layer]]\nname = "roads"'
+                + roads)
+    path = tiny_region.with_name(f"tiny-{variant}.toml")
+    path.write_text(text)
+    results = []
+    for on in (True, False):
+        use(on)
+        prepared = prepare(load_style(path))
+        try:
+            results.append(run(prepared, [], window=window))
+        finally:
+            prepared.close()
+    a, b = results
+    assert a is not None and b is not None
+    themes = colours = 0
+    for la, lb in zip(a.layers, b.layers, strict=True):
+        assert (la.covered, la.nodata_weight) == (lb.covered, lb.nodata_weight)
+        for name in ("value_lightness", "value_color", "value_count"):
+            x, y = getattr(la, name), getattr(lb, name)
+            assert (x is None) == (y is None)
+            if x is not None:
+                assert x.tobytes() == y.tobytes(), (la.name, name)
+                themes += name == "value_lightness" and bool(x.any())
+                colours += name == "value_color" and bool(x.any())
+        assert la.parts.keys() == lb.parts.keys()
+        for key in la.parts:
+            _parts_equal(la.parts[key], lb.parts[key])
+    # themes with grey-order counts (kept where alpha > 0.5) and with blended colours (drawn,
+    # not under a later theme of alpha > 0.5): every branch of the measure ran
+    assert (themes, colours) == {"two-themes-0.4": (1, 2), "two-themes-0.6": (2, 1)}.get(variant, (1, 1))
+
+
+
+def test_the_switch_turns_the_compiled_loops_off(monkeypatch):
+    monkeypatch.setattr(kernels, "enabled", False)
+    assert kernels.get() is None
+
+
+def _edges(rng, shape, values) -> np.ndarray:
+    """float32 array of ``shape`` drawn from ``values`` and each value's float32 neighbours."""
+    v = np.asarray(values, np.float32)
+    pool = np.concatenate([v, np.nextafter(v, np.float32(-1)), np.nextafter(v, np.float32(2))])
+    return np.clip(rng.choice(pool, shape), 0, 1).astype(np.float32)
+
+
+@pytest.mark.parametrize("first_opaque", [True, False])
+def test_grey_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
+    # Two themes, the second over the first, with alpha and overlay cover on and beside the
+    # thresholds (kept where alpha > 0.5 and cover < 0.02; hidden under a later alpha > 0.5).
+    from types import SimpleNamespace
+
+    from compose.check.stats import N_LIGHTNESS, Statistics
+
+    rng = np.random.default_rng(21)
+    h, w, n = 37, 45, 40
+    layers = [LayerStats(name=f"t{i}", role="theme", kind="field", values=np.arange(n, dtype=float),
+                         value_lightness=np.zeros((n, N_LIGHTNESS)), value_color=np.zeros((n, 3)),
+                         value_count=np.zeros(n)) for i in range(2)]
+    template = Statistics(width=w, height=h, layers=layers, background=(1.0, 1.0, 1.0))
+    planes8 = rng.integers(0, 256, (3, h, w)).astype(np.uint8)
+    rgb8 = np.ascontiguousarray(np.moveaxis(planes8, 0, -1))
+    alphas = [np.ones((h, w), np.float32) if first_opaque else _edges(rng, (h, w), [0, 1e-6, 0.5, 1]),
+              _edges(rng, (h, w), [0, 0.5, 0.7, 1])]
+    indices = [rng.integers(3, 30, (h, w)).astype(np.uint16), rng.integers(0, n, (h, w)).astype(np.int32)]
+    hidden = _edges(rng, (h, w), [0, 0.02, 0.3])
+    results = []
+    for source in (None, planes8):      # the composite as (h, w, 3) pixels or as planes
+        for on in (True, False):
+            use(on)
+            window = SimpleNamespace(row=1, col=2, inner=(slice(0, h), slice(0, w)))
+            meter = M.WindowMeasure(template, window)
+            meter._themes = [(0, indices[0], alphas[0], first_opaque), (1, indices[1], alphas[1], False)]
+            meter._hidden = hidden
+            results.append(meter.finish(rgb8, source))
+    for stats in results[1:]:
+        for la, lb in zip(results[0].layers, stats.layers):
+            for name in ("value_lightness", "value_color", "value_count"):
+                assert getattr(la, name).tobytes() == getattr(lb, name).tobytes(), (la.name, name)
+    assert results[0].layers[0].value_color.any() and results[0].layers[1].value_lightness.any()
