@@ -23,7 +23,6 @@ from compose import kernels
 from compose import measure as M
 from compose.check.stats import LayerStats, PartStats
 from compose.layers.base import Paint
-from tests.test_engine import tiny_region  # noqa: F401  (fixture)
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -138,7 +137,7 @@ opacity = {opacity}
 @pytest.mark.parametrize("variant", ["as-is", "half-transparent", "two-themes-0.4",
                                      "two-themes-0.6"])
 @pytest.mark.parametrize("window", [64, 96])
-def test_window_statistics_equal_the_numpy_path_bit_for_bit(use, tiny_region, variant, window):  # noqa: F811
+def test_window_statistics_equal_the_numpy_path_bit_for_bit(use, tiny_region, variant, window):
     from compose.engine import prepare, run
     from compose.style import load_style
 
