@@ -28,22 +28,19 @@ from __future__ import annotations
 import functools
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
 
-import matplotlib
 import numpy as np
 import shapely
 from affine import Affine
-from matplotlib._enums import CapStyle, JoinStyle
-from matplotlib.backends._backend_agg import RendererAgg
-from matplotlib.cbook import is_math_text
-from matplotlib.font_manager import FontProperties, findfont, fontManager, get_font
-from matplotlib.ft2font import LoadFlags
-from matplotlib.path import Path
-from matplotlib.transforms import Affine2D, IdentityTransform
 
 from compose.errors import StyleError
+from compose.layers.agg import Path, renderer_class
 from compose.layers.paths import area_path, dashed, display, flatten, line_path, to_pixels
 from compose.lazy import on_first_use
+
+if TYPE_CHECKING:
+    from matplotlib.font_manager import FontProperties
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
            "draw_lines", "stroke_path", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
@@ -84,20 +81,21 @@ class _GC:
     """The graphics context Agg's C++ renderer reads (the attributes and getters of matplotlib's
     ``GraphicsContextBase`` it takes, with that class's defaults): black, opaque, no clip, no
     dashes, hatch or sketch. Drawing through matplotlib's C++ renderer directly, not its Python
-    backend, keeps matplotlib's ``backend_bases`` (figures, events, widgets) out of the import."""
+    backend, keeps matplotlib itself out of the import (:mod:`compose.layers.agg`); cap and join
+    are the names Agg's cap and join styles are read from."""
 
     def __init__(self, width_px: float, cap: str, join: str):
         self._alpha = 1.0
         self._forced_alpha = False
         self._antialiased = 1
-        self._capstyle = CapStyle(cap)
-        self._joinstyle = JoinStyle(join)
+        self._capstyle = cap
+        self._joinstyle = join
         self._cliprect = None
         self._dashes = 0, None
         self._linewidth = float(width_px)
         self._rgb = (0.0, 0.0, 0.0, 1.0)
         self._hatch_color = None
-        self._hatch_linewidth = matplotlib.rcParams["hatch.linewidth"]
+        self._hatch_linewidth = 1.0         # matplotlib's default (no hatch is drawn)
         self._snap = False
         self._sketch = None
 
@@ -130,17 +128,17 @@ class _Canvas:
         if width < 1 or height < 1:
             raise ValueError(f"grid must be at least 1 x 1, got {width} x {height}")
         self.width, self.height = int(width), int(height)
-        self.renderer = RendererAgg(self.width, self.height, _DPI)
+        self.renderer = renderer_class()(self.width, self.height, _DPI)
 
     def gc(self, width_px: float = 0.0, cap: str = "round", join: str = "round") -> _GC:
         # validates cap and join even when nothing is drawn
         return _GC(width_px, _choice(cap, CAPS, "line cap"), _choice(join, JOINS, "line join"))
 
     def stroke(self, path: Path, gc: _GC) -> None:
-        self.renderer.draw_path(gc, path, IdentityTransform(), None)
+        self.renderer.draw_path(gc, path, None, None)          # None: the identity
 
     def fill(self, path: Path, gc: _GC) -> None:
-        self.renderer.draw_path(gc, path, IdentityTransform(), (0.0, 0.0, 0.0, 1.0))
+        self.renderer.draw_path(gc, path, None, (0.0, 0.0, 0.0, 1.0))
 
     def coverage(self) -> np.ndarray:
         alpha = np.asarray(memoryview(self.renderer))[..., 3]
@@ -232,7 +230,10 @@ def draw_areas(geoms, transform: Affine, width: int, height: int, *, fill: bool 
 def _marker(shape: str, size_px: float) -> Path:
     r = size_px / 2.0
     if _choice(shape, SHAPES, "point shape") == "circle":
-        return Path.circle((0.0, 0.0), r)
+        from matplotlib.path import Path as Curves  # its circle of cubic Bezier arcs
+
+        circle = Curves.circle((0.0, 0.0), r)
+        return Path(circle.vertices, circle.codes)
     return Path(np.array([[-r, -r], [r, -r], [r, r], [-r, r], [-r, -r]]),
                 [Path.MOVETO, Path.LINETO, Path.LINETO, Path.LINETO, Path.CLOSEPOLY])
 
@@ -292,6 +293,8 @@ class TextShape:
 def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
                  weight: str = "normal") -> TextShape:
     """Outline and box of ``text`` at ``size_px`` pixels (the font size in px at 72 dpi)."""
+    from matplotlib.font_manager import FontProperties, findfont
+
     prop = FontProperties(family=font, weight=weight, size=float(size_px))
     try:
         findfont(prop, fallback_to_default=False)
@@ -320,7 +323,10 @@ def text_outline(text: str, size_px: float, prop: FontProperties) -> tuple[np.nd
     text paths are imported on the first call, with TeX's DVI reader, which they import but use
     only for TeX, loaded when first used (:func:`compose.lazy.on_first_use`: 0.03 s of CPU)."""
     on_first_use("matplotlib.dviread")
+    import matplotlib
+    from matplotlib.cbook import is_math_text
     from matplotlib.textpath import TextPath, text_to_path
+    from matplotlib.transforms import Affine2D
 
     if matplotlib.rcParams["text.parse_math"] and is_math_text(text):
         tp = TextPath((0.0, 0.0), text, size=size_px, prop=prop)
@@ -332,24 +338,32 @@ def text_outline(text: str, size_px: float, prop: FontProperties) -> tuple[np.nd
     return np.array(scale.transform(vertices), np.float64), codes
 
 
-#: matplotlib's ``text.hinting`` setting -> FreeType load flags (as its Agg backend maps them).
-_HINTING = {
-    "default": LoadFlags.DEFAULT, "no_autohint": LoadFlags.NO_AUTOHINT,
-    "force_autohint": LoadFlags.FORCE_AUTOHINT, "no_hinting": LoadFlags.NO_HINTING,
-    True: LoadFlags.FORCE_AUTOHINT, False: LoadFlags.NO_HINTING, "either": LoadFlags.DEFAULT,
-    "native": LoadFlags.NO_AUTOHINT, "auto": LoadFlags.FORCE_AUTOHINT,
-    "none": LoadFlags.NO_HINTING,
-}
+@functools.lru_cache(maxsize=1)
+def _hinting() -> dict:
+    """matplotlib's ``text.hinting`` setting -> FreeType load flags (as its Agg backend maps
+    them)."""
+    from matplotlib.ft2font import LoadFlags
+
+    return {
+        "default": LoadFlags.DEFAULT, "no_autohint": LoadFlags.NO_AUTOHINT,
+        "force_autohint": LoadFlags.FORCE_AUTOHINT, "no_hinting": LoadFlags.NO_HINTING,
+        True: LoadFlags.FORCE_AUTOHINT, False: LoadFlags.NO_HINTING, "either": LoadFlags.DEFAULT,
+        "native": LoadFlags.NO_AUTOHINT, "auto": LoadFlags.FORCE_AUTOHINT,
+        "none": LoadFlags.NO_HINTING,
+    }
 
 
 def _text_extent(text: str, prop: FontProperties) -> tuple[float, float, float]:
     """(width, height, descent) in pixels of ``text`` as matplotlib's Agg backend measures it
     (``get_text_width_height_descent`` of plain text at :data:`_DPI`: the font laid out by
     FreeType with the hinting of ``text.hinting``, in 1/64 pixels)."""
+    import matplotlib
+    from matplotlib.font_manager import fontManager, get_font
+
     font = get_font(fontManager._find_fonts_by_props(prop))
     font.clear()
     font.set_size(prop.get_size_in_points(), _DPI)
-    font.set_text(text, 0.0, flags=_HINTING[matplotlib.rcParams["text.hinting"]])
+    font.set_text(text, 0.0, flags=_hinting()[matplotlib.rcParams["text.hinting"]])
     w, h = font.get_width_height()
     d = font.get_descent()
     return w / 64.0, h / 64.0, d / 64.0
@@ -376,10 +390,11 @@ def draw_text_shapes(shapes: Iterable[tuple[TextShape, float, float]], width: in
     return fill_text_path(path, width, height, halo_px)
 
 
-def fill_text_path(path: Path, width: int, height: int, halo_px: float = 0.0
+def fill_text_path(path: Any, width: int, height: int, halo_px: float = 0.0
                    ) -> tuple[np.ndarray, np.ndarray | None]:
     """Glyph outlines already in display pixels (y up) -> (text coverage, halo coverage or None
-    when ``halo_px`` is 0): the glyphs filled, and filled and stroked ``halo_px`` wide."""
+    when ``halo_px`` is 0): the glyphs filled, and filled and stroked ``halo_px`` wide. ``path``:
+    a :class:`compose.layers.agg.Path` or matplotlib's (Agg reads the same attributes)."""
     canvas = _Canvas(width, height)
     path.should_simplify = False
     canvas.fill(path, canvas.gc(0.0))

@@ -1,4 +1,4 @@
-"""Shapely geometries -> matplotlib Paths in a grid's pixel space, built in bulk.
+"""Shapely geometries -> Agg paths (:class:`compose.layers.agg.Path`) in pixel space, in bulk.
 
 Helpers for :mod:`compose.layers.draw`. Coordinates go through the inverse of the grid's affine
 transform (pixel centres at +0.5) and are flipped to Agg's display space (y up from the bottom
@@ -11,9 +11,9 @@ from collections.abc import Sequence
 import numpy as np
 import shapely
 from affine import Affine
-from matplotlib.path import Path
 
 from compose.errors import StyleError
+from compose.layers.agg import Path
 
 __all__ = ["to_pixels", "display", "flatten", "line_path", "area_path", "dashed", "PixelParts",
            "line_parts"]

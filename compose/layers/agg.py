@@ -1,0 +1,101 @@
+"""Agg, the antialiased rasteriser the vector layers draw with: matplotlib's C++ renderer
+(``matplotlib.backends._backend_agg``) loaded on its own, and the path it draws.
+
+Importing matplotlib's package loads its configuration (rcParams and their validators, the font
+configuration parser, colour tables, Pillow): about 0.15 CPU-s, more than a draft check of 10,000
+lines spends drawing them. The renderer's extension module needs none of it: it reads a path
+from any object's ``vertices``, ``codes``, ``should_simplify`` and ``simplify_threshold`` and a
+graphics context from its attributes (:mod:`compose.layers.draw`). So the module is loaded from
+its file under its own name (:func:`renderer_class`): a later import of matplotlib's Agg backend
+(the page, the ramp figure) finds that same module instead of loading a second copy. Text needs
+matplotlib's fonts and imports the package where it is measured.
+"""
+from __future__ import annotations
+
+import functools
+import sys
+
+import numpy as np
+
+__all__ = ["Path", "renderer_class"]
+
+_AGG = "matplotlib.backends._backend_agg"
+
+
+class Path:
+    """A path as Agg draws it: ``vertices`` float64 (N, 2), ``codes`` uint8 (N,) or None
+    (matplotlib's path codes, :attr:`MOVETO` ...), never simplified by Agg -- the subset of
+    ``matplotlib.path.Path`` the renderer reads, with its constructor's checks.
+    ``readonly``: the arrays are made read-only."""
+
+    __slots__ = ("vertices", "codes", "should_simplify", "simplify_threshold")
+
+    STOP, MOVETO, LINETO, CURVE3, CURVE4, CLOSEPOLY = 0, 1, 2, 3, 4, 79
+    code_type = np.uint8
+
+    def __init__(self, vertices, codes=None, readonly: bool = False) -> None:
+        v = np.asarray(vertices, np.float64)
+        if v.ndim != 2 or v.shape[1] != 2:
+            raise ValueError(f"vertices must be (N, 2), not {v.shape}")
+        c = None
+        if codes is not None:
+            c = np.asarray(codes, self.code_type)
+            if c.ndim != 1 or len(c) != len(v):
+                raise ValueError("codes must be 1-D and as long as the vertices")
+            if len(c) and c[0] != self.MOVETO:
+                raise ValueError("the first code must be MOVETO")
+        if readonly:
+            v.flags.writeable = False
+            if c is not None:
+                c.flags.writeable = False
+        self.vertices = v
+        self.codes = c
+        self.should_simplify = False
+        self.simplify_threshold = 1.0 / 9.0    # matplotlib's default (unused: no simplifying)
+
+    def __len__(self) -> int:
+        return len(self.vertices)
+
+
+@functools.lru_cache(maxsize=1)
+def renderer_class() -> type:
+    """matplotlib's ``RendererAgg`` (width, height, dpi), its extension module loaded without
+    the matplotlib package when that is not imported yet (and registered under its own name)."""
+    module = sys.modules.get(_AGG)
+    if module is None and "matplotlib" not in sys.modules:
+        module = _load_alone()
+    if module is None:
+        import importlib
+
+        module = importlib.import_module(_AGG)
+    return module.RendererAgg
+
+
+def _load_alone():
+    """The extension module loaded from matplotlib's folder, found without importing it; None
+    when it cannot be (then matplotlib's own import is used)."""
+    import importlib.machinery
+    import importlib.util
+    from pathlib import Path as FilePath
+
+    try:
+        spec = importlib.util.find_spec("matplotlib")
+        if spec is None or not spec.submodule_search_locations:
+            return None
+        folder = FilePath(next(iter(spec.submodule_search_locations))) / "backends"
+        for suffix in importlib.machinery.EXTENSION_SUFFIXES:
+            file = folder / f"_backend_agg{suffix}"
+            if file.is_file():
+                break
+        else:
+            return None
+        loader = importlib.machinery.ExtensionFileLoader(_AGG, str(file))
+        ext = importlib.util.spec_from_file_location(_AGG, file, loader=loader)
+        if ext is None:
+            return None
+        module = importlib.util.module_from_spec(ext)
+        loader.exec_module(module)
+    except (ImportError, OSError):
+        return None
+    sys.modules[_AGG] = module
+    return module
