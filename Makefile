@@ -7,7 +7,9 @@ BIN     = $(VENV)/bin
 
 .PHONY: demo test lint bench clean bytecode
 
-$(BIN)/.installed: pyproject.toml
+# setup.py and the C source too: the editable install builds the statistics' C extension
+# (compose._kernels) into the tree once, so a changed source must install again.
+$(BIN)/.installed: pyproject.toml setup.py compose/_kernels.c
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
 	$(BIN)/python -m pip install --quiet -e ".[test]"
