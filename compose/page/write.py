@@ -88,7 +88,8 @@ def warm_writers() -> None:
     themselves to raise. fontTools' font subsetter, which matplotlib's PDF writer imports with
     itself but uses only to embed TrueType subsets (``page.pdf_fonts = "truetype"``), and TeX's
     DVI reader load when first used (:func:`compose.lazy.on_first_use`; the subsetter was 0.09
-    of the 0.26 s CPU of loading the page writers, the reader 0.03, measured here)."""
+    of the 0.26 s CPU of loading the page writers, the reader 0.03, measured here). pyproj is
+    loaded too, with PROJ's database."""
     try:
         from compose.lazy import on_first_use
 
@@ -102,6 +103,12 @@ def warm_writers() -> None:
 
             import compose.output.legend  # noqa: F401
             import compose.page.draw  # noqa: F401
+        # the page's geodesy (compose.page.geometry: scale bar, true north, grids) and PROJ's
+        # database, opened by a first CRS (about 0.05 s of the page process's CPU, which went to
+        # its figure's start after the walk began)
+        import pyproj
+
+        pyproj.CRS.from_user_input("EPSG:4326")
     except Exception:                                  # pragma: no cover - the writer reports it
         pass
 
@@ -259,19 +266,32 @@ class EarlyPage:
         return self.nodata == _frozen(nodata)
 
 
-class _AtTheEnd:
-    """An artist drawing nothing, last in its figure: ``fn()`` runs when it is drawn."""
+@contextlib.contextmanager
+def _before_images(fn: Callable[[], None]):
+    """Within the block, a PDF written by this thread calls ``fn()`` once as it comes to write
+    its images (matplotlib's ``PdfFile.writeImages``, called by ``PdfFile.finalize`` after the
+    page's content, fonts and graphics states are written): the last moment before an image's
+    pixels are read. Other threads' PDFs are written as usual."""
+    import threading
 
-    def __new__(cls, fn):
-        from matplotlib.artist import Artist
+    from matplotlib.backends.backend_pdf import PdfFile
 
-        class AtTheEnd(Artist):
-            zorder = 1e12
+    owner = threading.get_ident()
+    write_images = PdfFile.writeImages
+    called = False
 
-            def draw(self, renderer):
-                fn()
+    def writeImages(self):                      # noqa: N802 - matplotlib's name
+        nonlocal called
+        if threading.get_ident() == owner and not called:
+            called = True
+            fn()
+        return write_images(self)
 
-        return AtTheEnd()
+    PdfFile.writeImages = writeImages           # type: ignore[method-assign]
+    try:
+        yield
+    finally:
+        PdfFile.writeImages = write_images      # type: ignore[method-assign]
 
 
 def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
@@ -283,8 +303,9 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
     bytes). With ``tmp`` and ``rest`` (a call that returns once the walk is over, in a forked
     page process), the PDF is written too: drawn while the walk runs, its map image drawn from
     ``sink.rgba`` without a copy (matplotlib's own RGBA of an image, set in place) and the file
-    finished, with the map's pixels, once ``rest()`` returned (an artist drawn last waits for
-    it); the figure's image is then the finished map. ``on_guess(nodata, layout, legend_png)``
+    finished, with the map's pixels, once ``rest()`` returned (waited for as the PDF writer
+    comes to its images, after the page's content and fonts: :func:`_before_images`); the
+    figure's image is then the finished map. ``on_guess(nodata, layout, legend_png)``
     is called as soon as those are made, before the PDF."""
     from matplotlib import rc_context
 
@@ -340,12 +361,10 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
                 early.png_job = Forked(lambda: _early_page_png(tmp["page"], furniture, layout,
                                                                sink.image, run_.canvas.dpi))
 
-    end = _AtTheEnd(walked)
-    fig.add_artist(end)
     t = time.perf_counter()
     try:
         with rc_context(rc), fast_png(), span("page pdf drawn early"), \
-                map_rows_stored_top_first(fig, sink.base, sink.rgba):
+                map_rows_stored_top_first(fig, sink.base, sink.rgba), _before_images(walked):
             fig.savefig(tmp["pdf"], format="pdf", facecolor=fig.get_facecolor(),
                         metadata=_pdf_metadata(style, layout))
     except BaseException:
@@ -353,8 +372,6 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
             early.png_job.abort()
             early.png_job = None
         raise
-    finally:
-        end.remove()
     early.pdf_seconds = time.perf_counter() - t
     return early
 

@@ -366,3 +366,50 @@ def test_the_font_subsetter_and_the_dvi_reader_load_on_first_use():
     import sys
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stderr
+
+
+def test_a_pdf_reads_its_images_pixels_only_after_the_call_before_images():
+    """compose.page.write._before_images: ``fn`` runs once as matplotlib's PDF writer comes to
+    its images (after the page's content and fonts), so map pixels changed by ``fn`` are the
+    ones the file holds (the map drawn as the page process draws it, from its shared RGBA
+    without a copy: map_rows_stored_top_first): the same file as one written from the changed
+    pixels. A PDF written by another thread in the block does not call it."""
+    import io
+    import threading
+
+    from matplotlib.figure import Figure
+
+    from compose.page.draw import MAP_AXES
+    from compose.page.write import _before_images, map_rows_stored_top_first
+
+    def pdf(rgba):
+        fig = Figure(figsize=(2, 2))
+        ax = fig.add_axes((0, 0, 1, 1), label=MAP_AXES)
+        ax.imshow(rgba[..., :3], interpolation="none")
+        fig.text(0.1, 0.1, "Harbour")
+        buf = io.BytesIO()
+        with map_rows_stored_top_first(fig, rgba[..., :3], rgba):
+            fig.savefig(buf, format="pdf", metadata={"CreationDate": None})
+        return buf.getvalue()
+
+    def image():
+        rgba = np.zeros((8, 8, 4), np.uint8)
+        rgba[..., 3] = 255
+        return rgba
+
+    pixels = image()
+    calls = []
+
+    def fn():
+        calls.append(1)
+        pixels[:4, :, :3] = (200, 40, 40)
+
+    other = []
+    with _before_images(fn):
+        got = pdf(pixels)
+        thread = threading.Thread(target=lambda: other.append(pdf(image())))
+        thread.start()
+        thread.join()
+    assert calls == [1]
+    assert got == pdf(pixels) != pdf(image())       # the pixels as fn left them
+    assert other == [pdf(image())] and calls == [1]
