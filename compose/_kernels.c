@@ -303,8 +303,8 @@ static PyObject *index_range(PyObject *self, PyObject *args) {
     return Py_BuildValue("LL", (long long)lo, (long long)hi);
 }
 
-PyDoc_STRVAR(grey_doc,
-"grey(planes8, index, alpha, hidden, above, ytab, lbin, linear8, lo, counts, count, color)\n\n"
+PyDoc_STRVAR(gray_doc,
+"gray(planes8, index, alpha, hidden, above, ytab, lbin, linear8, lo, counts, count, color)\n\n"
 "A theme's grey-order tables over sampled pixels (k1, k2), row-major: planes8 (3, k1, k2)\n"
 "uint8 the composite, index (k1, k2) integer palette entries lo..lo + m - 1; alpha (the\n"
 "theme's, float32) , hidden (what overlays cover, float32) and above (what themes drawn later\n"
@@ -313,7 +313,7 @@ PyDoc_STRVAR(grey_doc,
 "(m, 3)) not None, a pixel drawn (alpha > 0, hidden < 0.02, above <= 0.5) adds 1 to its\n"
 "entry's count and linear8 (float64 (256,)) of each channel to its colour.");
 
-static PyObject *grey(PyObject *self, PyObject *args) {
+static PyObject *gray(PyObject *self, PyObject *args) {
     PyObject *planes_o, *index_o, *alpha_o, *hidden_o, *above_o, *ytab_o, *lbin_o, *lin_o,
         *counts_o, *count_o, *color_o;
     Py_ssize_t lo;
@@ -348,7 +348,7 @@ static PyObject *grey(PyObject *self, PyObject *args) {
         || (count.held && (!PyBuffer_IsContiguous(&count.b, 'C') || count.b.shape[0] != m
                            || !PyBuffer_IsContiguous(&color.b, 'C') || color.b.shape[0] != m
                            || color.b.shape[1] != 3))) {
-        PyErr_SetString(PyExc_ValueError, "grey: shapes do not fit");
+        PyErr_SetString(PyExc_ValueError, "gray: shapes do not fit");
         goto done;
     }
     const double *l8 = (const double *)lin.b.buf;
@@ -429,7 +429,7 @@ static PyObject *grey(PyObject *self, PyObject *args) {
     Py_END_ALLOW_THREADS
     PyMem_RawFree(erow);
     if (bad) {
-        PyErr_SetString(PyExc_ValueError, "grey: an index outside lo..lo + m - 1");
+        PyErr_SetString(PyExc_ValueError, "gray: an index outside lo..lo + m - 1");
         goto done;
     }
     Py_INCREF(Py_None);
@@ -443,7 +443,7 @@ done:
 static PyMethodDef methods[] = {
     {"overlay", overlay, METH_VARARGS, overlay_doc},
     {"index_range", index_range, METH_VARARGS, index_range_doc},
-    {"grey", grey, METH_VARARGS, grey_doc},
+    {"gray", gray, METH_VARARGS, gray_doc},
     {NULL, NULL, 0, NULL},
 };
 

@@ -452,7 +452,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     return opaque
 
 
-def _grey_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
+def _gray_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
                    hidden: np.ndarray | None, alpha: np.ndarray | None,
                    above: np.ndarray | bool | None) -> bool:
     """A theme's grey-order rows of one window (L* per entry; blended colours and their counts
@@ -474,7 +474,7 @@ def _grey_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
     counts = np.zeros((m, N_LIGHTNESS))
     colors = s.measures("value_color") and s.measures("value_count") and above is not True
     count, color = (np.zeros(m), np.zeros((m, 3))) if colors else (None, None)
-    k.grey(view, index, alpha, hidden,
+    k.gray(view, index, alpha, hidden,
            above.reshape(index.shape) if isinstance(above, np.ndarray) else None,
            CHANNEL_XYZ[1], _L_BIN, _LINEAR8, lo, counts, count, color)
     s.add_rows("value_lightness", lo, counts)
@@ -618,7 +618,7 @@ class WindowMeasure:
             kernel = compiled()
             for (li, index, a_core, _), a_s, above in zip(themes, sampled_alpha, covered_above):
                 s = self.stats.layers[li]
-                if kernel is not None and _grey_compiled(
+                if kernel is not None and _gray_compiled(
                         kernel, s, view, index[sub], hidden, None if a_s is None else a_core[sub],
                         above):
                     continue

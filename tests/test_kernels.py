@@ -161,7 +161,7 @@ def test_window_statistics_equal_the_numpy_path_bit_for_bit(use, tiny_region, va
             prepared.close()
     a, b = results
     assert a is not None and b is not None
-    themes = colours = 0
+    themes = colors = 0
     for la, lb in zip(a.layers, b.layers, strict=True):
         assert (la.covered, la.nodata_weight) == (lb.covered, lb.nodata_weight)
         for name in ("value_lightness", "value_color", "value_count"):
@@ -170,13 +170,13 @@ def test_window_statistics_equal_the_numpy_path_bit_for_bit(use, tiny_region, va
             if x is not None:
                 assert x.tobytes() == y.tobytes(), (la.name, name)
                 themes += name == "value_lightness" and bool(x.any())
-                colours += name == "value_color" and bool(x.any())
+                colors += name == "value_color" and bool(x.any())
         assert la.parts.keys() == lb.parts.keys()
         for key in la.parts:
             _parts_equal(la.parts[key], lb.parts[key])
     # themes with grey-order counts (kept where alpha > 0.5) and with blended colours (drawn,
     # not under a later theme of alpha > 0.5): every branch of the measure ran
-    assert (themes, colours) == {"two-themes-0.4": (1, 2), "two-themes-0.6": (2, 1)}.get(variant, (1, 1))
+    assert (themes, colors) == {"two-themes-0.4": (1, 2), "two-themes-0.6": (2, 1)}.get(variant, (1, 1))
 
 
 
@@ -193,7 +193,7 @@ def _edges(rng, shape, values) -> np.ndarray:
 
 
 @pytest.mark.parametrize("first_opaque", [True, False])
-def test_grey_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
+def test_gray_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
     # Two themes, the second over the first, with alpha and overlay cover on and beside the
     # thresholds (kept where alpha > 0.5 and cover < 0.02; hidden under a later alpha > 0.5).
     from types import SimpleNamespace
