@@ -77,9 +77,8 @@ static inline __attribute__((always_inline)) int64_t read_int(const char *p, con
  * (np.clip, then np.rint into uint8; NaN gives 0) */
 static inline __attribute__((always_inline)) uint8_t code8(float v) {
     float x = v * 255.0f;
-    if (x != x) return 0;
-    if (x < 0.0f) x = 0.0f;
-    if (x > 255.0f) x = 255.0f;
+    x = x > 0.0f ? x : 0.0f;            /* NaN gives 0 too */
+    x = x < 255.0f ? x : 255.0f;
     /* rintf without a call: adding 2**23 rounds a float32 in [0, 2**23) to an integer in the
        current rounding mode (to nearest, ties to even), as rintf does */
     float r = (x + 8388608.0f) - 8388608.0f;
@@ -440,7 +439,65 @@ done:
     return result;
 }
 
+PyDoc_STRVAR(to8_doc,
+"to8(planes, rgb8, planes8)\n\n"
+"Float colour planes (3, h, w) float32 (any strides; values clipped to [0, 1]) as 8-bit codes,\n"
+"x 255 rounded half to even, written both interleaved to rgb8 (h, w, 3) uint8 and planar to\n"
+"planes8 (3, h, w) uint8 (both C-contiguous): np.clip, x 255, np.rint and the cast to uint8\n"
+"(NaN gives 0).");
+
+static PyObject *to8(PyObject *self, PyObject *args) {
+    PyObject *planes_o, *rgb_o, *out_o;
+    if (!PyArg_ParseTuple(args, "OOO", &planes_o, &rgb_o, &out_o)) return NULL;
+    Arr planes = {0}, rgb = {0}, out = {0};
+    PyObject *result = NULL;
+    if (take(planes_o, &planes, 3, K_F32, 0, 0, "planes") < 0
+        || take(rgb_o, &rgb, 3, K_UINT, 1, 0, "rgb8") < 0
+        || take(out_o, &out, 3, K_UINT, 1, 0, "planes8") < 0)
+        goto done;
+    Py_ssize_t h = planes.b.shape[1], w = planes.b.shape[2];
+    if (planes.b.shape[0] != 3 || rgb.b.itemsize != 1 || out.b.itemsize != 1
+        || rgb.b.shape[0] != h || rgb.b.shape[1] != w || rgb.b.shape[2] != 3
+        || out.b.shape[0] != 3 || out.b.shape[1] != h || out.b.shape[2] != w
+        || !PyBuffer_IsContiguous(&rgb.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C')) {
+        PyErr_SetString(PyExc_ValueError, "to8: shapes do not fit");
+        goto done;
+    }
+    uint8_t *dst = (uint8_t *)rgb.b.buf, *pl = (uint8_t *)out.b.buf;
+    const Py_ssize_t sj = planes.b.strides[2];
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < h; i++) {
+        const char *row[3] = {AT3(planes, 0, i, 0), AT3(planes, 1, i, 0), AT3(planes, 2, i, 0)};
+        uint8_t *d = dst + 3 * w * i;
+        uint8_t *p0 = pl + i * w, *p1 = pl + (h + i) * w, *p2 = pl + (2 * h + i) * w;
+        uint8_t *ps[3] = {p0, p1, p2};
+        for (int c = 0; c < 3; c++) {
+            uint8_t *p = ps[c];
+            const char *src = row[c];
+            if (sj == (Py_ssize_t)sizeof(float)) {      /* contiguous rows: vectorised */
+                const float *f = (const float *)src;
+                for (Py_ssize_t j = 0; j < w; j++) p[j] = code8(f[j]);
+            } else {
+                for (Py_ssize_t j = 0; j < w; j++) p[j] = code8(*(const float *)(src + j * sj));
+            }
+            /* clipped to [0, 1] first (as np.clip), then x 255: equal to clipping after */
+        }
+        for (Py_ssize_t j = 0; j < w; j++) {
+            d[3 * j] = p0[j];
+            d[3 * j + 1] = p1[j];
+            d[3 * j + 2] = p2[j];
+        }
+    }
+    Py_END_ALLOW_THREADS
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    drop(&planes); drop(&rgb); drop(&out);
+    return result;
+}
+
 static PyMethodDef methods[] = {
+    {"to8", to8, METH_VARARGS, to8_doc},
     {"overlay", overlay, METH_VARARGS, overlay_doc},
     {"index_range", index_range, METH_VARARGS, index_range_doc},
     {"gray", gray, METH_VARARGS, gray_doc},

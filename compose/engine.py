@@ -25,6 +25,7 @@ import numpy as np
 from compose.canvas import Canvas, Window
 from compose.check.stats import Statistics
 from compose.composite import composite_over, composite_palette
+from compose.kernels import get as compiled
 from compose.layers.base import Context
 from compose.measure import WindowMeasure, new_statistics
 from compose.previews import LayerPreviews, PreviewTiles, block_sums, paint_sums
@@ -189,12 +190,20 @@ class WindowResult:
 
 
 def _to_rgb8(core: np.ndarray) -> np.ndarray:
-    """Float planes (3, h, w) in [0, 1] (a view; clipped and scaled in place) -> (h, w, 3) uint8."""
+    """Float planes (3, h, w) in [0, 1] (a view; may be clipped and scaled in place) -> (h, w, 3)
+    uint8."""
     return _to_8bit(core)[0]
 
 
 def _to_8bit(core: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`_to_rgb8`, and the same pixels as planes (3, h, w) uint8."""
+    """:func:`_to_rgb8`, and the same pixels as planes (3, h, w) uint8 (``core`` float32: in one
+    pass by the compiled kernel when there is one, :mod:`compose.kernels`; the same bytes)."""
+    kernel = compiled()
+    if kernel is not None and core.dtype == np.float32 and core.ndim == 3 and core.shape[0] == 3:
+        rgb8 = np.empty(core.shape[1:] + (3,), dtype=np.uint8)
+        planes8 = np.empty(core.shape, dtype=np.uint8)
+        kernel.to8(core, rgb8, planes8)
+        return rgb8, planes8
     np.clip(core, 0, 1, out=core)
     core *= np.float32(255)
     np.rint(core, out=core)

@@ -38,7 +38,7 @@ def compiled(tmp_path_factory):
 
     out = tmp_path_factory.mktemp("kernels")
     ext = Extension("compose._kernels", [str(ROOT / "compose" / "_kernels.c")],
-                    extra_compile_args=["-O2", "-ffp-contract=off"])
+                    extra_compile_args=["-O3", "-ffp-contract=off", "-fno-trapping-math"])
     dist = Distribution({"name": "kernels-test", "ext_modules": [ext]})
     cmd = build_ext(dist)
     cmd.build_lib = str(out / "lib")
@@ -226,3 +226,26 @@ def test_gray_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
             for name in ("value_lightness", "value_color", "value_count"):
                 assert getattr(la, name).tobytes() == getattr(lb, name).tobytes(), (la.name, name)
     assert results[0].layers[0].value_color.any() and results[0].layers[1].value_lightness.any()
+
+
+@pytest.mark.parametrize("strided", [False, True])
+def test_eight_bit_conversion_equals_the_numpy_path(use, strided):
+    # np.clip to [0, 1], x 255, np.rint (half to even) and the cast: the same bytes, on the
+    # rounding edges (k + 0.5) / 255 and their float32 neighbours, outside [0, 1], and NaN
+    from compose.engine import _to_8bit
+
+    rng = np.random.default_rng(4)
+    full = rng.random((3, 70, 90), dtype=np.float32) * np.float32(1.2) - np.float32(0.1)
+    edges = (np.arange(256, dtype=np.float32) + np.float32(0.5)) / np.float32(255)
+    flat = full.reshape(-1)
+    flat[:256], flat[256:512] = edges, np.nextafter(edges, np.float32(2))
+    flat[512:768], flat[768] = np.nextafter(edges, np.float32(-1)), np.nan
+    core = (slice(None), slice(3, 67), slice(3, 87)) if strided else (slice(None),) * 3
+    results = []
+    for on in (True, False):
+        use(on)
+        with np.errstate(invalid="ignore"):     # numpy warns on casting NaN
+            results.append(_to_8bit(full.copy()[core]))
+    for a, b in zip(*results):
+        assert a.shape == b.shape and a.dtype == b.dtype == np.uint8
+        assert a.tobytes() == b.tobytes()
