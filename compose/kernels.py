@@ -19,7 +19,7 @@ enabled = os.environ.get("COMPOSE_KERNELS", "on").strip().lower() not in ("off",
 
 
 def get() -> ModuleType | None:
-    """The extension module, or None when it is missing or turned off."""
+    """The extension module, or None when it is missing, turned off or older than its source."""
     if not enabled:
         return None
     if not _loaded:
@@ -28,5 +28,25 @@ def get() -> ModuleType | None:
         except ImportError:
             _loaded.append(None)
         else:
-            _loaded.append(_kernels)
+            _loaded.append(None if stale(_kernels.__file__) else _kernels)
     return _loaded[0]
+
+
+def stale(built: str) -> bool:
+    """True when ``compose/_kernels.c`` lies beside the built module ``built`` and was changed
+    after it: an editable install builds the extension into the source tree once, so a checkout
+    that changes the C source would otherwise run the old loops (or miss a new one). Then the
+    numpy path runs and one line on stderr says how to build again. An installed package ships no
+    C source: never stale."""
+    import sys
+    from pathlib import Path
+
+    source = Path(built).with_name("_kernels.c")
+    try:
+        if source.stat().st_mtime <= Path(built).stat().st_mtime:
+            return False
+    except OSError:
+        return False
+    print(f"compose: {built} is older than {source}; using the slower numpy path "
+          "(build again: pip install -e . or make)", file=sys.stderr)
+    return True

@@ -249,3 +249,23 @@ def test_eight_bit_conversion_equals_the_numpy_path(use, strided):
     for a, b in zip(*results):
         assert a.shape == b.shape and a.dtype == b.dtype == np.uint8
         assert a.tobytes() == b.tobytes()
+
+
+def test_a_build_older_than_its_source_is_not_used(tmp_path, capsys):
+    # An editable install builds the extension once; a checkout that changes the C source later
+    # must not run the old loops (compose.kernels.stale).
+    import os
+
+    from compose import kernels
+
+    built, source = tmp_path / "_kernels.so", tmp_path / "_kernels.c"
+    built.write_bytes(b"")
+    source.write_text("")
+    os.utime(built, (1000, 1000))
+    os.utime(source, (2000, 2000))
+    assert kernels.stale(str(built))
+    assert "older than" in capsys.readouterr().err
+    os.utime(built, (3000, 3000))
+    assert not kernels.stale(str(built))
+    source.unlink()                     # an installed package: no C source beside it
+    assert not kernels.stale(str(built))
