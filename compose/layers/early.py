@@ -58,6 +58,10 @@ class EarlyRead:
             pass
 
 
+#: :meth:`BlockSample.cells` made so far (a few), by everything that decides them.
+_CELLS: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
+_CELLS_LOCK = threading.Lock()
+
 #: Blocks of a file a sampled draft read decodes (about; see :class:`BlockSample`).
 SAMPLE_BLOCKS = 32
 
@@ -200,11 +204,23 @@ class BlockSample:
         return cls(source, canvas, full, factor, every)
 
     def cells(self, window: Window) -> tuple[np.ndarray, np.ndarray]:
-        """Full-canvas (rows, cols) of the padded ``window``'s draft pixels (-1: outside)."""
+        """Full-canvas (rows, cols) of the padded ``window``'s draft pixels (-1: outside),
+        read-only; made once for every layer whose files are tiled and aligned alike (a theme
+        and its relief: the same cells, see :func:`sampled_cells`)."""
         r0, c0, h, w = window.padded
-        return sampled_cells((self.full.height, self.full.width), self.factor,
-                             np.arange(r0, r0 + h), np.arange(c0, c0 + w), self.block,
-                             self.origin, self.every)
+        key = ((self.full.height, self.full.width), self.factor, (r0, c0, h, w), self.block,
+               self.origin, self.every)
+        with _CELLS_LOCK:
+            got = _CELLS.get(key)
+            if got is None:
+                got = sampled_cells(key[0], self.factor, np.arange(r0, r0 + h),
+                                    np.arange(c0, c0 + w), self.block, self.origin, self.every)
+                for a in got:
+                    a.flags.writeable = False
+                if len(_CELLS) >= 8:
+                    _CELLS.clear()
+                _CELLS[key] = got
+        return got
 
     def read(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """float32 values of full-canvas cells (any shape; -1 or outside the file: NaN)."""
