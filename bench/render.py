@@ -12,7 +12,8 @@ For every size it prints, from the same run:
     child process);
   * every target beside its floor (medians of 3 runs): the bare render (PNG + GeoTIFF + check)
     with 1 and 2 workers against the summed floors, compute alone with and without the
-    statistics against the compute floor (the statistics' share), and the share of the
+    statistics against the compute floor (medians of at least 3 alternating pairs; the
+    statistics' share from the median of the pairs' differences), and the share of the
     encoders' own work that ran beside the compute (the render's own timers); the layer
     previews' sums (an output of the HTML page, summed in the same walk) on a line of their own,
     not counted as statistics;
@@ -366,8 +367,17 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     encode_floor = t_tif6 + min(t_png, t_png_ng)
     total2, bare2 = median_task(runs, wall, "bare", styles["aligned"], out, workers=2)
     comp = lambda r: r["compute"]          # noqa: E731
-    plain, _ = median_task(runs, comp, "plain", styles["aligned"], out)
-    measured, _ = median_task(runs, comp, "measure", styles["aligned"], out)
+    # compute with and without the statistics in alternating pairs (at least 3 even with
+    # --quick): the statistics' cost is the median of the pairs' differences, which a shared
+    # machine's drift between two single runs would swamp
+    pairs: list[tuple[float, float]] = []
+    for i in range(max(runs, 3)):
+        order = ("plain", "measure") if i % 2 == 0 else ("measure", "plain")
+        got = {mode: task(mode, styles["aligned"], out)["compute"] for mode in order}
+        pairs.append((got["plain"], got["measure"]))
+    plain = statistics.median(p for p, _ in pairs)
+    measured = statistics.median(m for _, m in pairs)
+    stats_cost = statistics.median(m - p for p, m in pairs)
     with_previews, _ = median_task(runs, comp, "previews", styles["aligned"], out)
     floors_sum = compute_floor + encode_floor
     own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
@@ -390,9 +400,11 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"= {measured / compute_floor:.2f} x compute floor {compute_floor:.2f} s (target <= 1.5 x)")
     print(f"  compute alone, not measuring                    {plain:6.2f} s  "
           f"= {plain / compute_floor:.2f} x compute floor")
-    print(f"  statistics share                                {100 * (measured - plain) / total:6.1f} % "
-          f"of the 1-worker render (target <= 10 %; hierarchy statistics only: the bare render "
-          f"and this figure sum no previews)")
+    print(f"  statistics share                                {100 * stats_cost / total:6.1f} % "
+          f"of the 1-worker render (target <= 10 %; median of {len(pairs)} alternating pairs' "
+          f"differences, {stats_cost:.2f} s; pairs: "
+          + ", ".join(f"{m - p:+.2f}" for p, m in pairs)
+          + "; hierarchy statistics only: the bare render and this figure sum no previews)")
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "
           f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
