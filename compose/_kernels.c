@@ -1,4 +1,6 @@
-/* compose._kernels: the window statistics' per-pixel loops in one pass each (compose.measure).
+/* compose._kernels: per-pixel loops of the window task in one pass each: the window statistics
+ * (compose.measure), the 8-bit conversion (compose.engine) and the hillshade
+ * (compose.layers.hillshade).
  *
  * Arrays come in through the buffer protocol only (any strides; the element type read from
  * the buffer's format character and item size), so nothing here depends on numpy's C API.
@@ -496,7 +498,164 @@ done:
     return result;
 }
 
+/* Horn's gradient of one row from its three padded DEM rows (w + 2 each): the vertical
+   [1 2 1] sums ((top + bottom) + centre) + centre, their horizontal difference, q likewise
+   across, scaled (numpy's order of operations). Returns 1 when a gradient is NaN. */
+static __attribute__((noinline)) int horn_row(const float *restrict up, const float *restrict mid, const float *restrict dn,
+                    float *restrict v, float *restrict pp, float *restrict qq, Py_ssize_t w,
+                    float s_p, float s_q) {
+    for (Py_ssize_t c = 0; c < w + 2; c++) {
+        float a = up[c] + dn[c];
+        a += mid[c];
+        a += mid[c];
+        v[c] = a;
+    }
+    for (Py_ssize_t c = 0; c < w; c++) {
+        float p = v[c + 2] - v[c];
+        float ht = up[c] + up[c + 2];
+        ht += up[c + 1];
+        ht += up[c + 1];
+        float hb = dn[c] + dn[c + 2];
+        hb += dn[c + 1];
+        hb += dn[c + 1];
+        float q = ht - hb;
+        pp[c] = p * s_p;
+        qq[c] = q * s_q;
+    }
+    /* NaN: exponent bits all set and a fraction not zero; tested on the bits (no branch) */
+    uint32_t nan = 0;
+    for (Py_ssize_t c = 0; c < w; c++) {
+        uint32_t a, b;
+        memcpy(&a, pp + c, 4);
+        memcpy(&b, qq + c, 4);
+        nan |= ((a & 0x7fffffffu) > 0x7f800000u) | ((b & 0x7fffffffu) > 0x7f800000u);
+    }
+    return nan != 0;
+}
+
+/* The weighted Lambertian shade of one row of gradients under k suns, as _Light.shade. */
+static __attribute__((noinline)) void shade_row(const float *restrict pp, const float *restrict qq, float *restrict den,
+                      float *restrict acc, float *restrict u, float *restrict o, Py_ssize_t w,
+                      float k2, float sin_alt, const float *cx, const float *cy,
+                      const float *wt, Py_ssize_t k) {
+    for (Py_ssize_t c = 0; c < w; c++) {
+        float d = pp[c] * pp[c];
+        float t = qq[c] * qq[c];
+        d += t;
+        d *= k2;
+        d += 1.0f;
+        den[c] = sqrtf(d);
+    }
+    float *sum = k == 1 ? u : acc;
+    for (Py_ssize_t i = 0; i < k; i++) {
+        const float ci = cx[i], di = cy[i], wi = wt[i];
+        if (k == 1) {
+            for (Py_ssize_t c = 0; c < w; c++) {
+                float x = pp[c] * ci;
+                x += sin_alt;
+                float t = qq[c] * di;
+                x += t;
+                u[c] = x < 0.0f ? 0.0f : x;         /* np.maximum(x, 0): NaN stays NaN */
+            }
+        } else if (i == 0) {
+            for (Py_ssize_t c = 0; c < w; c++) {
+                float x = pp[c] * ci;
+                x += sin_alt;
+                float t = qq[c] * di;
+                x += t;
+                x = x < 0.0f ? 0.0f : x;
+                acc[c] = x * wi;
+            }
+        } else {
+            for (Py_ssize_t c = 0; c < w; c++) {
+                float x = pp[c] * ci;
+                x += sin_alt;
+                float t = qq[c] * di;
+                x += t;
+                x = x < 0.0f ? 0.0f : x;
+                x *= wi;
+                acc[c] += x;
+            }
+        }
+    }
+    for (Py_ssize_t c = 0; c < w; c++) {
+        float x = sum[c] / den[c];
+        o[c] = x > 1.0f ? 1.0f : x;                 /* np.minimum(x, 1): NaN stays NaN */
+    }
+}
+
+PyDoc_STRVAR(hillshade_doc,
+"hillshade(dem, scale_p, scale_q, k2, sin_alt, cx, cy, weights, out) -> bool\n\n"
+"compose.layers.hillshade.multidirectional's float32 arithmetic, pixel by pixel: Horn's\n"
+"gradient of dem (H, W) float32 (edges replicated), p scaled per row by scale_p (H,) float32\n"
+"and q by scale_q, then the weighted Lambertian shade under the suns (cx, cy, weights: (k,)\n"
+"float32; one sun: weights unused) into out (H, W) float32; all C-contiguous. False (out\n"
+"incomplete) when a gradient is NaN (no data nearby): the numpy path then shades the DEM.");
+
+static PyObject *hillshade(PyObject *self, PyObject *args) {
+    PyObject *dem_o, *sp_o, *cx_o, *cy_o, *w_o, *out_o;
+    float sq, k2, sin_alt;
+    if (!PyArg_ParseTuple(args, "OOfffOOOO", &dem_o, &sp_o, &sq, &k2, &sin_alt, &cx_o, &cy_o,
+                          &w_o, &out_o))
+        return NULL;
+    Arr dem = {0}, sp = {0}, cxa = {0}, cya = {0}, wa = {0}, out = {0};
+    PyObject *result = NULL;
+    if (take(dem_o, &dem, 2, K_F32, 0, 0, "dem") < 0
+        || take(sp_o, &sp, 1, K_F32, 0, 0, "scale_p") < 0
+        || take(cx_o, &cxa, 1, K_F32, 0, 0, "cx") < 0
+        || take(cy_o, &cya, 1, K_F32, 0, 0, "cy") < 0
+        || take(w_o, &wa, 1, K_F32, 0, 0, "weights") < 0
+        || take(out_o, &out, 2, K_F32, 1, 0, "out") < 0)
+        goto done;
+    Py_ssize_t h = dem.b.shape[0], w = dem.b.shape[1], k = cxa.b.shape[0];
+    if (h < 1 || w < 1 || k < 1 || k > 64 || sp.b.shape[0] != h || cya.b.shape[0] != k
+        || wa.b.shape[0] != k || out.b.shape[0] != h || out.b.shape[1] != w
+        || !PyBuffer_IsContiguous(&dem.b, 'C') || !PyBuffer_IsContiguous(&sp.b, 'C')
+        || !PyBuffer_IsContiguous(&cxa.b, 'C') || !PyBuffer_IsContiguous(&cya.b, 'C')
+        || !PyBuffer_IsContiguous(&wa.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C')) {
+        PyErr_SetString(PyExc_ValueError, "hillshade: shapes do not fit");
+        goto done;
+    }
+    const float *z = (const float *)dem.b.buf, *spr = (const float *)sp.b.buf;
+    const float *cx = (const float *)cxa.b.buf, *cy = (const float *)cya.b.buf;
+    const float *wt = (const float *)wa.b.buf;
+    float *dst = (float *)out.b.buf;
+    /* per row: the three DEM rows with their edge columns replicated, the vertical [1 2 1]
+       sums, p, q, the denominator and the sums of the suns' terms */
+    float *buf = (float *)PyMem_RawMalloc(sizeof(float) * (size_t)(4 * (w + 2) + 5 * w));
+    if (!buf) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    int nan = 0;
+    Py_BEGIN_ALLOW_THREADS
+    float *up = buf, *mid = up + (w + 2), *dn = mid + (w + 2), *v = dn + (w + 2);
+    float *pp = v + (w + 2), *qq = pp + w, *den = qq + w, *acc = den + w, *u = acc + w;
+    for (Py_ssize_t r = 0; r < h; r++) {
+        const float *rows[3] = {z + (r > 0 ? r - 1 : 0) * w, z + r * w,
+                                z + (r < h - 1 ? r + 1 : h - 1) * w};
+        float *pads[3] = {up, mid, dn};
+        for (int t = 0; t < 3; t++) {
+            memcpy(pads[t] + 1, rows[t], sizeof(float) * (size_t)w);
+            pads[t][0] = rows[t][0];
+            pads[t][w + 1] = rows[t][w - 1];
+        }
+        if (horn_row(up, mid, dn, v, pp, qq, w, spr[r], sq)) {
+            nan = 1;
+            break;
+        }
+        shade_row(pp, qq, den, acc, u, dst + r * w, w, k2, sin_alt, cx, cy, wt, k);
+    }
+    Py_END_ALLOW_THREADS
+    PyMem_RawFree(buf);
+    result = PyBool_FromLong(!nan);
+done:
+    drop(&dem); drop(&sp); drop(&cxa); drop(&cya); drop(&wa); drop(&out);
+    return result;
+}
+
 static PyMethodDef methods[] = {
+    {"hillshade", hillshade, METH_VARARGS, hillshade_doc},
     {"to8", to8, METH_VARARGS, to8_doc},
     {"overlay", overlay, METH_VARARGS, overlay_doc},
     {"index_range", index_range, METH_VARARGS, index_range_doc},
@@ -506,7 +665,7 @@ static PyMethodDef methods[] = {
 
 static struct PyModuleDef module = {
     PyModuleDef_HEAD_INIT, "compose._kernels",
-    "The window statistics' per-pixel loops (see compose.kernels).", -1, methods,
+    "Per-pixel loops of the window task (see compose.kernels).", -1, methods,
     NULL, NULL, NULL, NULL,
 };
 

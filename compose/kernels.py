@@ -1,8 +1,10 @@
-"""The compiled loops of the window statistics (``compose._kernels``, a small C extension built
-from ``compose/_kernels.c`` by setup.py), loaded on first use.
+"""The compiled loops of the window task (``compose._kernels``, a small C extension built from
+``compose/_kernels.c`` by setup.py), loaded on first use: the window statistics
+(:mod:`compose.measure`), the 8-bit conversion (:mod:`compose.engine`) and the hillshade
+(:mod:`compose.layers.hillshade`).
 
 The extension reads arrays through Python's buffer protocol only and gives the same numbers
-as :mod:`compose.measure`'s numpy path, bit for bit (``tests/test_kernels.py`` compares them).
+as the numpy paths, bit for bit (``tests/test_kernels.py`` compares them).
 When it was not built (a source tree used without installing, a build without a C compiler)
 or ``COMPOSE_KERNELS=off`` is set, :func:`get` returns None and the numpy path runs instead.
 """

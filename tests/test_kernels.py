@@ -1,13 +1,15 @@
-"""The compiled statistics loops (compose/_kernels.c) give the numpy path's numbers bit for bit.
+"""The compiled loops (compose/_kernels.c) give the numpy paths' numbers bit for bit.
 
 The C source is compiled here with setuptools into a temporary folder (so the test checks the
-source as it is, whether or not the installed package holds a build of it), then every
-statistic is computed both ways: an overlay part's beneath histograms on random composites
-(coverage in 8-bit steps, whose sums are exact in any order, and arbitrary float32 coverage,
-whose sums are not), and whole renders of the tiny test region with themes drawn opaque, half
-transparent and under a second theme, in windows of two sizes. The numpy path is the
-reference: tests/test_measure.py checks it against the direct formulas (WCAG 2 contrast ratio,
-CIE L*, np.bincount) pixel by pixel.
+source as it is, whether or not the installed package holds a build of it), then everything is
+computed both ways: an overlay part's beneath histograms on random composites (coverage in
+8-bit steps, whose sums are exact in any order, and arbitrary float32 coverage, whose sums are
+not), the grey order at its thresholds, whole renders of the tiny test region with themes
+drawn opaque, half transparent and under a second theme, in windows of two sizes, the 8-bit
+conversion of a window and the hillshade. The numpy paths are the reference:
+tests/test_measure.py checks the statistics against the direct formulas (WCAG 2 contrast
+ratio, CIE L*, np.bincount) pixel by pixel, tests/layers/test_hillshade.py the shade against
+Horn (1981).
 """
 from __future__ import annotations
 
@@ -38,7 +40,8 @@ def compiled(tmp_path_factory):
 
     out = tmp_path_factory.mktemp("kernels")
     ext = Extension("compose._kernels", [str(ROOT / "compose" / "_kernels.c")],
-                    extra_compile_args=["-O3", "-ffp-contract=off", "-fno-trapping-math"])
+                    extra_compile_args=["-O3", "-ffp-contract=off", "-fno-trapping-math",
+                                               "-fno-math-errno"])
     dist = Distribution({"name": "kernels-test", "ext_modules": [ext]})
     cmd = build_ext(dist)
     cmd.build_lib = str(out / "lib")
@@ -269,3 +272,28 @@ def test_a_build_older_than_its_source_is_not_used(tmp_path, capsys):
     assert not kernels.stale(str(built))
     source.unlink()                     # an installed package: no C source beside it
     assert not kernels.stale(str(built))
+
+
+@pytest.mark.parametrize("directions", [1, 3, 6])
+@pytest.mark.parametrize("per_row", [False, True])
+@pytest.mark.parametrize("holes", [False, True])
+def test_hillshade_equals_the_numpy_strips_bit_for_bit(use, directions, per_row, holes):
+    # Horn's gradient and the weighted Lambertian suns in float32, the same bits; a DEM with
+    # no-data holes goes back to the numpy strips (their reflection at holes) and still agrees
+    from compose.layers.hillshade import multidirectional
+
+    rng = np.random.default_rng(8)
+    y, x = np.mgrid[0:83, 0:117].astype(np.float32)
+    dem = (np.sin(x / 7) * np.cos(y / 11) * 300 + rng.normal(0, 20, x.shape) + 900).astype(np.float32)
+    dem[40:44, 10:50] = 900                        # flat ground: shade sin(altitude) exactly
+    if holes:
+        dem[20:25, 60:70] = np.nan
+    dx = np.linspace(18.0, 31.0, dem.shape[0]) if per_row else 30.0
+    results = []
+    for on in (True, False):
+        use(on)
+        results.append(multidirectional(dem, dx, 29.0, azimuth=300.0, altitude=40.0,
+                                        exaggeration=2.5, directions=directions))
+    a, b = results
+    assert a.dtype == b.dtype == np.float32 and a.tobytes() == b.tobytes()
+    assert np.isnan(a).any() == holes

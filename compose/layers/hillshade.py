@@ -19,6 +19,8 @@ import math
 
 import numpy as np
 
+from compose.kernels import get as compiled
+
 __all__ = ["STRIP_ROWS", "STRETCH_TARGET", "MAX_STRETCH", "horn_gradient", "hillshade",
            "multidirectional", "flat_normalised", "shade_spread", "stretch_factor"]
 
@@ -193,15 +195,40 @@ def multidirectional(dem: np.ndarray, dx, dy, azimuth: float = 315.0, altitude: 
         raise ValueError(f"altitude must be in (0, 90] degrees, got {altitude}")
     dem = np.asarray(dem)
     dxv, dyv = _cell_sizes(dem, dx, dy)
-    st = _Strips(dem, dxv, dyv)
     light = _Light(azimuth, altitude, exaggeration, directions)
     out = np.empty(dem.shape, np.float32)
+    if _compiled_shade(dem, dxv, dyv, light, out):
+        return out
+    st = _Strips(dem, dxv, dyv)
     bufs = light.buffers(min(STRIP_ROWS, st.h), st.w)
     for r0 in range(0, st.h, STRIP_ROWS):
         r1 = min(r0 + STRIP_ROWS, st.h)
         p, q = st.gradient(r0, r1)
         light.shade(p, q, bufs, out[r0:r1])
     return out
+
+
+def _compiled_shade(dem: np.ndarray, dx: np.ndarray | float, dy: float, light: _Light,
+                    out: np.ndarray) -> bool:
+    """:func:`multidirectional` into ``out`` by the compiled kernel (:mod:`compose.kernels`), the
+    same float32 operations in the same order per pixel, so the same bits; False (``out``
+    incomplete) when there is no kernel, the DEM is not float32 or a gradient is NaN (no data
+    nearby): then the numpy strips below shade it."""
+    kernel = compiled()
+    if kernel is None or dem.dtype != np.float32 or not dem.size:
+        return False
+    # the factors the numpy path multiplies p and q by: a float scale is taken as float32
+    # (numpy's rule for a Python float with a float32 array), per-row ones are cast
+    if np.ndim(dx) == 0:
+        scale_p = np.full(dem.shape[0], np.float32(1.0 / (8.0 * float(dx))), np.float32)
+    else:
+        scale_p = (1.0 / (8.0 * np.asarray(dx))).astype(np.float32).reshape(-1)
+    cx = np.array(light.cx, np.float32)
+    cy = np.array(light.cy, np.float32)
+    weights = np.array([np.float32(w) for w in light.weights], np.float32)
+    return bool(kernel.hillshade(np.ascontiguousarray(dem), scale_p,
+                                 float(np.float32(1.0 / (8.0 * dy))), float(light.k2),
+                                 float(light.sin_alt), cx, cy, weights, out))
 
 
 class _Light:
