@@ -282,6 +282,8 @@ def _walked(inp, sink, early: Callable[..., Any] | None = None,
         with span("page encodes its raster"):
             stream.add(base[done:upto])
         done = upto
+        for follow in list(getattr(sink, "followers", ())):
+            follow(upto)
 
     def step() -> tuple[int, set[str] | None] | None:
         """Handle the next message: the band's (rows, no-data so far), or None at the end."""

@@ -133,6 +133,9 @@ class PageSink:
         #: the layers with no-data pixels in the windows walked so far (None: not known), kept
         #: up to date by the render (the page process guesses the final set from it)
         self.nodata: set[str] | None = None
+        #: called in a page process with the number of map rows finished, as it learns of them
+        #: (compose.page.process._walked)
+        self.followers: list[Callable[[int], None]] = []
 
     def rows(self, row0: int, rgb8: np.ndarray) -> None:
         self.image[row0:row0 + rgb8.shape[0]] = rgb8
@@ -335,6 +338,16 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
 
     from compose.page.encode import deferred, fast_png
 
+    rows_out = None
+    if furniture is not None and "page" in tmp:
+        # the page PNG, written as the walk's bands come (in the waits for the walk, see
+        # compose.page.process._walked) instead of all after it
+        try:
+            rows_out = PagePngRows(tmp["page"], furniture, layout, sink.image, run_.canvas.dpi)
+        except ValueError:                       # a coarse canvas: after the walk
+            rows_out = None
+        else:
+            sink.followers.append(rows_out.walked)
     add_map_image(fig, layout, sink.base)        # (its pixels are not read: see below)
     # the SVG, drawn now with a stand-in for the map's PNG data, which is put in once the map is
     # walked (compose.page.encode.filled): the SVG writer embeds an image as it draws it
@@ -353,13 +366,22 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
         # furniture drawn above over the finished map) is written by a process forked now,
         # beside the PDF's last part, instead of after it (write_page waits for it)
         final = rest()
+        if rows_out is not None:
+            sink.followers.remove(rows_out.walked)
         if (early.holds_for(final) and furniture is not None and "page" in tmp
                 and early.png_job is None):
             from compose.page.process import Forked, can_fork
 
             if can_fork():
-                early.png_job = Forked(lambda: _early_page_png(tmp["page"], furniture, layout,
-                                                               sink.image, run_.canvas.dpi))
+                if rows_out is not None:            # finished by that process
+                    rows_out.ready_to_fork()
+                    early.png_job = Forked(rows_out.finish)
+                else:
+                    early.png_job = Forked(lambda: _early_page_png(
+                        tmp["page"], furniture, layout, sink.image, run_.canvas.dpi))
+                return
+        if rows_out is not None:                # the page PNG is written again
+            rows_out.abort()
 
     t = time.perf_counter()
     try:
@@ -371,6 +393,10 @@ def page_early(style, run_, sink: PageSink, nodata: set[str] | None, ahead=None,
         if early.png_job is not None:               # the page is drawn again: end it first
             early.png_job.abort()
             early.png_job = None
+        if rows_out is not None:
+            if rows_out.walked in sink.followers:
+                sink.followers.remove(rows_out.walked)
+            rows_out.abort()
         raise
     early.pdf_seconds = time.perf_counter() - t
     return early
@@ -582,34 +608,119 @@ def furniture_rgba(style, layout: PageLayout, legend, dpi: float,
     return np.asarray(agg.buffer_rgba()), paper
 
 
+def _frame_corner(layout: PageLayout, dpi: float) -> tuple[tuple[int, int], tuple[int, int]]:
+    """((row, col) of the map frame's corner on the nearest whole page pixel, (rows, columns) of
+    the frame) at ``dpi``."""
+    fx, fy, fw, fh = layout.frame
+    corner = (int(round(fy / 25.4 * dpi)), int(round(fx / 25.4 * dpi)))
+    return corner, (int(round(fh / 25.4 * dpi)), int(round(fw / 25.4 * dpi)))
+
+
+def _paste_rows(top: np.ndarray, paper: tuple, corner: tuple[int, int], image: np.ndarray,
+                start: int, stop: int) -> np.ndarray:
+    """Rows ``start`` to ``stop`` of :func:`paste_map`'s pixels, the map ``image`` (already the
+    frame's size) with its corner at page pixel ``corner``; only the map rows those page rows
+    hold are read."""
+    W = top.shape[1]
+    r0, c0 = corner
+    under = np.empty((stop - start, W, 3), np.uint8)
+    if stop <= start:
+        return under
+    under[0] = np.round(np.array(paper[:3]) * 255).astype(np.uint8)
+    under[1:] = under[0]                # whole rows copied: ten times faster than a broadcast
+    h = max(0, min(image.shape[0], top.shape[0] - r0))
+    w = max(0, min(image.shape[1], W - c0))
+    lo, hi = max(start, r0), min(stop, r0 + h)
+    if hi > lo:
+        under[lo - start:hi - start, c0:c0 + w] = image[lo - r0:hi - r0, :w]
+    # straight alpha over, only where the furniture has ink (a few % of the page): top a +
+    # under (1 - a), rounded; where a = 1 that is top itself ((t 255 + 127) // 255 = t)
+    part = top[start:stop]
+    ink = np.flatnonzero(part[..., 3])
+    a = part[..., 3].ravel()[ink].astype(np.uint16)[:, None]
+    flat = under.reshape(-1, 3)
+    mixed = (part.reshape(-1, 4)[ink, :3].astype(np.uint16) * a
+             + flat[ink].astype(np.uint16) * (255 - a) + 127) // 255
+    flat[ink] = mixed.astype(np.uint8)
+    return under
+
+
 def paste_map(top: np.ndarray, paper: tuple, layout: PageLayout, image: np.ndarray,
               dpi: float) -> np.ndarray:
     """The page PNG's pixels (H, W, 3) uint8: the furniture ``top`` (:func:`furniture_rgba` at
     ``dpi``) laid over the paper with the finished map ``image`` pasted pixel for pixel into
     the frame (its corner on the nearest whole page pixel)."""
-    H, W = top.shape[:2]
-    under = np.empty((H, W, 3), np.uint8)
-    under[0] = np.round(np.array(paper[:3]) * 255).astype(np.uint8)
-    under[1:] = under[0]                # whole rows copied: ten times faster than a broadcast
-    fx, fy, fw, fh = layout.frame
-    c0, r0 = int(round(fx / 25.4 * dpi)), int(round(fy / 25.4 * dpi))
-    size = (int(round(fh / 25.4 * dpi)), int(round(fw / 25.4 * dpi)))
+    corner, size = _frame_corner(layout, dpi)
     if image.shape[:2] != size and min(size) > 0:   # a coarse canvas: nearest up to the frame
         rows = np.minimum((np.arange(size[0]) + 0.5) * image.shape[0] / size[0], image.shape[0] - 1)
         cols = np.minimum((np.arange(size[1]) + 0.5) * image.shape[1] / size[1], image.shape[1] - 1)
         image = image[rows.astype(int)][:, cols.astype(int)]
-    h = max(0, min(image.shape[0], H - r0))
-    w = max(0, min(image.shape[1], W - c0))
-    under[r0:r0 + h, c0:c0 + w] = image[:h, :w]
-    # straight alpha over, only where the furniture has ink (a few % of the page): top a +
-    # under (1 - a), rounded; where a = 1 that is top itself ((t 255 + 127) // 255 = t)
-    ink = np.flatnonzero(top[..., 3])
-    a = top[..., 3].ravel()[ink].astype(np.uint16)[:, None]
-    flat = under.reshape(-1, 3)
-    mixed = (top.reshape(-1, 4)[ink, :3].astype(np.uint16) * a
-             + flat[ink].astype(np.uint16) * (255 - a) + 127) // 255
-    flat[ink] = mixed.astype(np.uint8)
-    return under
+    return _paste_rows(top, paper, corner, image, 0, top.shape[0])
+
+
+class PagePngRows:
+    """The page PNG (:func:`paste_map` of ``furniture`` and the map ``image``, written as
+    :func:`compose.output.png.write_png` writes it: the same bytes) written while the map is
+    walked: :meth:`walked` with the number of map rows finished writes the page rows that the
+    rows finished at its previous call complete (one call behind, so the last band's rows are
+    left for :meth:`finish`, which a process forked as the walk ends can run beside the PDF's
+    end). Raises ValueError for a map not the frame's size at ``dpi`` (a coarse canvas, enlarged
+    to the frame: :func:`paste_map` after the walk)."""
+
+    def __init__(self, path: Path, furniture: tuple[np.ndarray, tuple], layout: PageLayout,
+                 image: np.ndarray, dpi: float):
+        from compose.output.png import PngWriter
+
+        self.top, self.paper = furniture
+        self.image = image
+        dpi = max(float(dpi), MIN_PAGE_DPI)
+        self.corner, size = _frame_corner(layout, dpi)
+        if image.shape[:2] != size:
+            raise ValueError("the map is not the frame's size on the page")
+        #: no threads of its own: the page process forks while it is open (compose.page.process)
+        self.writer = PngWriter(path, self.top.shape[1], self.top.shape[0], 3, dpi=dpi,
+                                threads=1)
+        self.written = 0            # page rows written
+        self.known = 0              # map rows finished at the previous call
+        self.seconds = 0.0
+
+    def _page_rows(self, map_rows: int) -> int:
+        """Page rows whose pixels are final when the map's first ``map_rows`` rows are."""
+        if map_rows >= self.image.shape[0]:
+            return self.top.shape[0]
+        return max(0, min(self.top.shape[0], self.corner[0] + map_rows))
+
+    def _write(self, upto: int) -> None:
+        if upto > self.written:
+            t = time.perf_counter()
+            self.writer.write_rows(_paste_rows(self.top, self.paper, self.corner, self.image,
+                                               self.written, upto))
+            self.written = upto
+            self.seconds += time.perf_counter() - t
+
+    def walked(self, map_rows: int) -> None:
+        """The map's first ``map_rows`` rows are finished."""
+        self._write(self._page_rows(self.known))
+        self.known = max(self.known, map_rows)
+
+    def ready_to_fork(self) -> None:
+        """Flush what is written, so that a process forked now finishes the file alone (this
+        one then leaves it as it is: no write, no close)."""
+        self.writer._f.flush()      # (PngWriter's file: nothing buffered to be written twice)
+
+    def finish(self) -> dict[str, float]:
+        """Write the rest and close the file (the map is finished); the seconds of the page PNG."""
+        from compose.timeline import span
+
+        with span("page png"):
+            self._write(self.top.shape[0])
+            t = time.perf_counter()
+            self.writer.close()
+            self.seconds += time.perf_counter() - t
+        return {"page.png": self.seconds}
+
+    def abort(self) -> None:
+        self.writer.abort()
 
 
 def page_png(style, layout: PageLayout, image: np.ndarray, legend, dpi: float,

@@ -413,3 +413,51 @@ def test_a_pdf_reads_its_images_pixels_only_after_the_call_before_images():
     assert calls == [1]
     assert got == pdf(pixels) != pdf(image())       # the pixels as fn left them
     assert other == [pdf(image())] and calls == [1]
+
+
+@pytest.mark.parametrize("bands", [[1500], [512, 1024, 1500], [7, 300, 301, 1499, 1500]])
+def test_the_page_png_written_as_the_bands_come_is_the_page_png(tmp_path, bands):
+    """compose.page.write.PagePngRows: the page PNG written while the map is walked (band by
+    band, one band behind, the rest by a process forked at the end) is the file write_png
+    writes of paste_map's pixels, whatever the bands."""
+    import os
+
+    from compose.output.png import write_png
+    from compose.page.process import Forked
+    from compose.page.write import MIN_PAGE_DPI, PagePngRows, paste_map
+
+    rng = np.random.default_rng(7)
+    dpi = 200.0
+    layout = type("Layout", (), {"frame": (10.0, 12.0, 1500 / dpi * 25.4, 1500 / dpi * 25.4)})()
+    top = np.zeros((1700, 1400, 4), np.uint8)       # the frame is cut by the page's right edge
+    top[rng.random(top.shape[:2]) < 0.05] = (20, 30, 40, 255)
+    top[::97, :, 3] = 128
+    paper = (0.97, 0.96, 0.95, 1.0)
+    image = np.zeros((1500, 1500, 3), np.uint8)
+    want = tmp_path / "whole.png"
+    final = rng.integers(0, 256, image.shape, np.uint8)
+    write_png(want, paste_map(top, paper, layout, final, dpi), dpi=max(dpi, MIN_PAGE_DPI))
+    got = tmp_path / "rows.png"
+    rows = PagePngRows(got, (top, paper), layout, image, dpi)
+    done = 0
+    for b in bands:
+        image[done:b] = final[done:b]               # rows not yet walked stay black
+        rows.walked(b)
+        done = b
+    rows.ready_to_fork()
+    assert Forked(rows.finish).result()["page.png"] >= 0
+    assert got.read_bytes() == want.read_bytes()
+    del rows                                         # (this process leaves the file alone)
+    assert os.path.getsize(got) == os.path.getsize(want)
+
+
+def test_a_page_png_of_a_coarse_canvas_is_written_after_the_walk(tmp_path):
+    """A map smaller than its frame (enlarged to it after the walk, paste_map) is not written
+    band by band."""
+    from compose.page.write import PagePngRows
+
+    layout = type("Layout", (), {"frame": (10.0, 12.0, 100.0, 100.0)})()
+    top = np.zeros((1000, 1000, 4), np.uint8)
+    with pytest.raises(ValueError):
+        PagePngRows(tmp_path / "p.png", (top, (1, 1, 1, 1)), layout,
+                    np.zeros((20, 20, 3), np.uint8), 200.0)
