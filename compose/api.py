@@ -340,9 +340,11 @@ def helper_count(windows: int, workers: int | None) -> int:
     """Helper processes for a check walk of ``windows`` windows: ``workers - 1``, at most one per
     window beyond the first; ``workers`` None: one process per core, each walking at least two
     windows, at most :data:`compose.parallel.AUTO_WORKERS` -- and none while the load average
-    leaves no core free (more than the cores less a half; decided when helpers still prepared
-    the render again, which then competed with the check's own walk: at load 5 on 2 cores the
-    demo's check took 5.35 s with a helper against 4.57 s without)."""
+    is over twice the cores. A helper no longer prepares the render again (it is forked once
+    it is prepared), so it costs about 0.13 CPU-s on the 1500 x 1500 demo against the half of
+    the walk it takes off the check: at load 2.4-2.8 on 2 cores the demo's check took 0.84 s
+    with a helper against 0.94 s without (medians of 9 alternating); the old limit, a load
+    leaving a core free, was set when each helper prepared the render again."""
     import os
 
     from compose.parallel import AUTO_WORKERS, default_workers
@@ -351,7 +353,7 @@ def helper_count(windows: int, workers: int | None) -> int:
         cores = default_workers()
         workers = min(cores, AUTO_WORKERS, max(1, windows // 2))
         try:
-            if os.getloadavg()[0] > cores - 0.5:
+            if os.getloadavg()[0] > 2 * cores:
                 workers = 1
         except OSError:             # pragma: no cover - no load average here
             pass
