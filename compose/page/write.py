@@ -661,11 +661,11 @@ def paste_map(top: np.ndarray, paper: tuple, layout: PageLayout, image: np.ndarr
 class PagePngRows:
     """The page PNG (:func:`paste_map` of ``furniture`` and the map ``image``, written as
     :func:`compose.output.png.write_png` writes it: the same bytes) written while the map is
-    walked: :meth:`walked` with the number of map rows finished writes the page rows that the
-    rows finished at its previous call complete (one call behind, so the last band's rows are
-    left for :meth:`finish`, which a process forked as the walk ends can run beside the PDF's
-    end). Raises ValueError for a map not the frame's size at ``dpi`` (a coarse canvas, enlarged
-    to the frame: :func:`paste_map` after the walk)."""
+    walked: :meth:`walked` with the number of map rows finished writes the page rows they
+    complete, except for the map's last band, whose rows (and those below the frame) are left
+    for :meth:`finish`, which a process forked as the walk ends runs beside the PDF's end.
+    Raises ValueError for a map not the frame's size at ``dpi`` (a coarse canvas, enlarged to
+    the frame: :func:`paste_map` after the walk)."""
 
     def __init__(self, path: Path, furniture: tuple[np.ndarray, tuple], layout: PageLayout,
                  image: np.ndarray, dpi: float):
@@ -681,7 +681,6 @@ class PagePngRows:
         self.writer = PngWriter(path, self.top.shape[1], self.top.shape[0], 3, dpi=dpi,
                                 threads=1)
         self.written = 0            # page rows written
-        self.known = 0              # map rows finished at the previous call
         self.seconds = 0.0
 
     def _page_rows(self, map_rows: int) -> int:
@@ -699,9 +698,10 @@ class PagePngRows:
             self.seconds += time.perf_counter() - t
 
     def walked(self, map_rows: int) -> None:
-        """The map's first ``map_rows`` rows are finished."""
-        self._write(self._page_rows(self.known))
-        self.known = max(self.known, map_rows)
+        """The map's first ``map_rows`` rows are finished (the last band's rows are left for
+        :meth:`finish`)."""
+        if map_rows < self.image.shape[0]:
+            self._write(self._page_rows(map_rows))
 
     def ready_to_fork(self) -> None:
         """Flush what is written, so that a process forked now finishes the file alone (this

@@ -418,8 +418,8 @@ def test_a_pdf_reads_its_images_pixels_only_after_the_call_before_images():
 @pytest.mark.parametrize("bands", [[1500], [512, 1024, 1500], [7, 300, 301, 1499, 1500]])
 def test_the_page_png_written_as_the_bands_come_is_the_page_png(tmp_path, bands):
     """compose.page.write.PagePngRows: the page PNG written while the map is walked (band by
-    band, one band behind, the rest by a process forked at the end) is the file write_png
-    writes of paste_map's pixels, whatever the bands."""
+    band, the last band's rows by a process forked at the end) is the file write_png writes of
+    paste_map's pixels, whatever the bands."""
     import os
 
     from compose.output.png import write_png
