@@ -33,9 +33,10 @@ STYLES = ROOT / "styles"
 EXAMPLES = ("coast", "sea-warmth", "change", "cover", "base", "poor")
 COMPOSE = [sys.executable, "-c", "import sys; from compose.cli.main import main; sys.exit(main())"]
 # what a cold check of the demo imports besides compose itself: its GeoPackage is read with
-# sqlite3 (no pyogrio), Agg draws through matplotlib's C++ renderer (no backend_bases), labels
-# need matplotlib's font machinery and text paths (compose.layers.draw), and its CRSs are plain
-# enough for rasterio's CRS (no pyproj, compose.sources.crs)
+# sqlite3 (no pyogrio), Agg draws through matplotlib's C++ renderer, whose extension module
+# compose.layers.agg loads on its own (a style without labels or circle markers imports no more
+# of matplotlib), labels need matplotlib's font machinery and text paths (compose.layers.draw),
+# and its CRSs are plain enough for rasterio's CRS (no pyproj, compose.sources.crs)
 LIBRARIES = ("numpy", "rasterio", "shapely", "colorspacious", "sqlite3",
              "matplotlib.path", "matplotlib.backends._backend_agg", "matplotlib.font_manager",
              "matplotlib.textpath")
