@@ -376,9 +376,12 @@ class RasterSource:
         """Plain windowed read for a grid aligned with the source (no resampling needed); a read
         the walk's :class:`compose.sources.blocks.BlockPlan` expects comes from its blocks."""
         row, col = offset
-        out = np.full((height, width), np.nan, dtype=np.float32)
         r0, c0 = max(row, 0), max(col, 0)
         r1, c1 = min(row + height, self._ds.height), min(col + width, self._ds.width)
+        inside = (r0, c0, r1, c1) == (row, col, row + height, col + width)
+        # a read inside the source fills every cell below: no NaN fill first
+        out = (np.empty((height, width), dtype=np.float32) if inside
+               else np.full((height, width), np.nan, dtype=np.float32))
         if r1 <= r0 or c1 <= c0:
             return out
         dest = out[r0 - row:r1 - row, c0 - col:c1 - col]
@@ -412,7 +415,9 @@ class RasterSource:
             # the data says itself: NaN is already NaN, a number is compared below; only values
             # within GDAL's tolerance of the nodata value but not equal to it ask for the mask
             mask = None
-            if not self._mask_from_data or (numeric and self._near_nodata(data)):
+            from_data = self._mask_from_data
+            near = self._near_nodata(data) if numeric and from_data else None
+            if not from_data or near:
                 mask = ds.read_masks(self.band, window=win)
         except RasterioError as exc:
             raise SourceError(f'layer "{self.layer}": cannot read {self.path}: '
@@ -422,7 +427,7 @@ class RasterSource:
             if numeric:
                 invalid |= data == np.float32(nodata)
             data[invalid] = np.nan
-        elif numeric:
+        elif near is not None:      # None: no value within reach of the nodata value at all
             data[data == np.float32(nodata)] = np.nan
         if data is not dest:
             dest[...] = data
@@ -516,15 +521,16 @@ class RasterSource:
                                           ("float32", "uint8", "int8", "uint16", "int16"))
         return small and names in ({"nodata"}, {"all_valid"})
 
-    def _near_nodata(self, data: np.ndarray) -> bool:
-        """Any value close to (within 1e-5 relative of) the nodata value but not equal to it."""
+    def _near_nodata(self, data: np.ndarray) -> bool | None:
+        """Any value close to (within 1e-5 relative of) the nodata value but not equal to it;
+        None when no value is even that close, so none equals it either."""
         nd = np.float32(self.nodata)
         tol = np.float32(max(abs(float(nd)) * 1e-5, 1e-30))
         # every value far from it (the usual case; a margin of 2 tol keeps float32 rounding of
         # the test below on the safe side): no pass making temporaries. NaN anywhere: test all.
         lo, hi = float(data.min(initial=np.inf)), float(data.max(initial=-np.inf))
         if lo > float(nd) + 2 * float(tol) or hi < float(nd) - 2 * float(tol):
-            return False
+            return None
         near = np.abs(data - nd) <= tol
         return bool(near.any() and (data[near] != nd).any())
 

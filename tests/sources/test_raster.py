@@ -369,8 +369,10 @@ def test_aligned_grid_fast_path_equals_warp(tmp_path):
     assert np.isnan(fast[2 + 5, 3 + 7])
 
 
-@pytest.mark.parametrize("case", ["near-nodata", "nan-nodata", "internal-mask", "uint8", "no-nodata"])
-def test_aligned_read_masks_like_gdal(tmp_path, case):
+@pytest.mark.parametrize("case", ["near-nodata", "nan-nodata", "internal-mask", "uint8", "no-nodata",
+                                  "far-from-nodata"])
+@pytest.mark.parametrize("inside", [False, True])
+def test_aligned_read_masks_like_gdal(tmp_path, case, inside):
     """The aligned read skips GDAL's mask band when the data says it all; every case must equal
     rasterio's masked read (GDAL's own mask: nodata within its float tolerance, internal masks)."""
     from affine import Affine as _Affine
@@ -392,16 +394,24 @@ def test_aligned_read_masks_like_gdal(tmp_path, case):
         data = rng.integers(0, 255, data.shape).astype("uint8")
         data[3, 4] = 7
         nodata = 7
+    elif case == "far-from-nodata":     # a nodata value no cell comes near (the usual DEM)
+        data[3, 4] = 12.5
     else:
         nodata = None
     src_t = _Affine(30, 0, 500000, 0, -30, 4100000)
     path = write_raster(tmp_path / "m.tif", data, crs="EPSG:32630", transform=src_t,
                         nodata=nodata, mask=mask)
+    with rasterio.open(path) as ds:
+        ref = ds.read(1, masked=True).astype("float32").filled(np.nan)
+    if inside:                          # rows 1..29, columns 2..39 of the source
+        t = _Affine(30, 0, 500000 + 2 * 30, 0, -30, 4100000 - 1 * 30)
+        with RasterSource(path, layer="x") as src:
+            got = src.read("EPSG:32630", t, 38, 29, "bilinear")
+        np.testing.assert_array_equal(got, ref[1:30, 2:40])
+        return
     t = _Affine(30, 0, 500000 - 2 * 30, 0, -30, 4100000 + 1 * 30)   # reaches outside, aligned
     with RasterSource(path, layer="x") as src:
         got = src.read("EPSG:32630", t, 44, 33, "bilinear")
-    with rasterio.open(path) as ds:
-        ref = ds.read(1, masked=True).astype("float32").filled(np.nan)
     want = np.full((33, 44), np.nan, np.float32)
     want[1:31, 2:42] = ref
     np.testing.assert_array_equal(got, want)
