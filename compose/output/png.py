@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import os
 import struct
+import threading
 import zlib
 from collections import deque
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -65,6 +66,18 @@ def _chunk(kind: bytes, data: bytes) -> bytes:
     return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
 
 
+def _write_chunk(f, kind: bytes, *parts: bytes) -> None:
+    """Write a chunk whose data is ``parts`` joined, without joining them (an IDAT piece is
+    megabytes; the CRC runs over the type and the parts in turn, PNG section 5.3)."""
+    crc = zlib.crc32(kind)
+    for part in parts:
+        crc = zlib.crc32(part, crc)
+    f.write(struct.pack(">I", sum(len(p) for p in parts)) + kind)
+    for part in parts:
+        f.write(part)
+    f.write(struct.pack(">I", crc & 0xFFFFFFFF))
+
+
 def adler32_combine(adler1: int, adler2: int, len2: int) -> int:
     """Adler-32 of A + B from adler32(A), adler32(B) and len(B) (zlib's adler32_combine,
     RFC 1950 section 8.2 checksum)."""
@@ -86,11 +99,26 @@ def _zlib_header(level: int) -> bytes:
     return bytes([cmf, flg])
 
 
-def _filter_up(rows: np.ndarray, prev: np.ndarray) -> np.ndarray:
+_SCRATCH = threading.local()     # per deflating thread: the array its pieces are filtered into
+
+
+def _scratch(n: int, width: int) -> np.ndarray:
+    """A uint8 (n, width) array of the calling thread's, kept for its next piece: a piece's
+    filtered rows (6.3 MB at 8192 px) are above the heap's mmap threshold (compose.heap), so
+    a new array per piece is mapped, its pages faulted in and zeroed by the kernel, unmapped."""
+    buf = getattr(_SCRATCH, "buf", None)
+    if buf is None or buf.size < n * width:
+        buf = _SCRATCH.buf = np.empty(n * width, np.uint8)
+    return buf[:n * width].reshape(n, width)
+
+
+def _filter_up(rows: np.ndarray, prev: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
     """Scanlines with filter type 2 (Up): each byte minus the byte above, modulo 256; uint8
-    (n, 1 + row bytes), handed to deflate as it is (no bytes copy: 25 MB a band at 16384 px)."""
+    (n, 1 + row bytes), handed to deflate as it is (no bytes copy: 25 MB a band at 16384 px);
+    into ``out`` when given."""
     n = rows.shape[0]
-    out = np.empty((n, rows.shape[1] + 1), dtype=np.uint8)
+    if out is None:
+        out = np.empty((n, rows.shape[1] + 1), dtype=np.uint8)
     out[:, 0] = 2
     np.subtract(rows[0], prev, out=out[0, 1:])
     if n > 1:
@@ -98,12 +126,16 @@ def _filter_up(rows: np.ndarray, prev: np.ndarray) -> np.ndarray:
     return out
 
 
-def _piece(rows: np.ndarray, prev: np.ndarray, level: int) -> tuple[bytes, int, int]:
-    """(raw deflate piece ending on a full flush, adler32 of the filtered bytes, their length)."""
-    data = _filter_up(rows, prev)
+def _piece(rows: np.ndarray, prev: np.ndarray, level: int, reuse: bool = False
+           ) -> tuple[tuple[bytes, bytes], int, int]:
+    """(raw deflate piece ending on a full flush, as its two parts; adler32 of the filtered
+    bytes; their length). ``reuse``: filter into the calling thread's scratch array (see
+    :func:`_scratch`; for the writer's own threads, which end with it)."""
+    out = _scratch(rows.shape[0], rows.shape[1] + 1) if reuse else None
+    data = _filter_up(rows, prev, out)
     deflate = _deflater(level)
     z = deflate.compressobj(level, deflate.DEFLATED, -15, 9)
-    return z.compress(data) + z.flush(deflate.Z_FULL_FLUSH), deflate.adler32(data), data.nbytes
+    return (z.compress(data), z.flush(deflate.Z_FULL_FLUSH)), deflate.adler32(data), data.nbytes
 
 
 class PngWriter:
@@ -111,12 +143,16 @@ class PngWriter:
 
     ``dpi`` is stored in a pHYs chunk; the sRGB chunk (rendering intent perceptual) says the
     pixels are sRGB. ``threads``: bands deflated at once (default: all cores, at most 4).
+    ``sync``: :meth:`close` also flushes the file to the disk (fsync), so a later fsync of it
+    (an output set's commit) finds nothing left to write.
     Use as a context manager; :meth:`write_rows` takes uint8 (rows, width[, c]).
     """
 
     def __init__(self, path: Path, width: int, height: int, channels: int = 3,
-                 dpi: float | None = None, level: int | None = None, threads: int | None = None):
+                 dpi: float | None = None, level: int | None = None, threads: int | None = None,
+                 sync: bool = False):
         self.path = Path(path)
+        self._sync = bool(sync)
         self.width, self.height, self.channels = int(width), int(height), int(channels)
         self.level = LEVEL if level is None else int(level)
         self._rows = 0
@@ -138,16 +174,17 @@ class PngWriter:
             self._f.write(_chunk(b"pHYs", struct.pack(">IIB", ppm, ppm, 1)))
         self._header = _zlib_header(self.level)
 
-    def _emit(self, piece: tuple[bytes, int, int]) -> None:
-        data, adler, length = piece
+    def _emit(self, piece: tuple[tuple[bytes, bytes], int, int]) -> None:
+        parts, adler, length = piece
         self._adler = adler32_combine(self._adler, adler, length)
-        if self._header:
-            data, self._header = self._header + data, b""
-        self._f.write(_chunk(b"IDAT", data))
+        header, self._header = self._header, b""
+        _write_chunk(self._f, b"IDAT", header, *parts)
         self._writeback.wrote()
 
     def _drain(self, keep: int) -> None:
-        while len(self._pending) > keep:
+        """Write pieces in order until at most ``keep`` are pending, and every finished piece
+        at the front (written as they come, not left for the end)."""
+        while self._pending and (len(self._pending) > keep or self._pending[0].done()):
             self._emit(self._pending.popleft().result())
 
     def write_rows(self, rows: np.ndarray) -> None:
@@ -179,7 +216,7 @@ class PngWriter:
         if self._pool is None:
             self._emit(_piece(rows, prev, self.level))
             return
-        self._pending.append(self._pool.submit(_piece, rows, prev, self.level))
+        self._pending.append(self._pool.submit(_piece, rows, prev, self.level, True))
         self._drain(2 * self._threads)
 
     def close(self) -> None:
@@ -197,6 +234,9 @@ class PngWriter:
             tail = deflate.compressobj(self.level, deflate.DEFLATED, -15, 9).flush(deflate.Z_FINISH)
             self._f.write(_chunk(b"IDAT", self._header + tail + struct.pack(">I", self._adler)))
             self._f.write(_chunk(b"IEND", b""))
+            if self._sync:
+                self._f.flush()
+                os.fsync(self._f.fileno())
         finally:
             self.abort()
 

@@ -93,3 +93,25 @@ def test_png_bytes_do_not_depend_on_the_bands(tmp_path):
     assert all(f == files[0] for f in files[1:])
     with Image.open(tmp_path / f"b{PIECE_ROWS}.png") as im:
         np.testing.assert_array_equal(np.asarray(im), img)
+
+
+def test_png_pieces_on_reused_thread_buffers_same_bytes(tmp_path):
+    # Each deflating thread filters its pieces into one array of its own, reused piece after
+    # piece (the last piece shorter): the file equals a one-thread write (no buffer shared)
+    # and Pillow reads the image back; ``sync`` changes nothing in the file.
+    from compose.output.png import PIECE_ROWS
+
+    rng = np.random.default_rng(6)
+    height = 5 * PIECE_ROWS + 17
+    img = rng.integers(0, 256, (height, 33, 3), dtype=np.uint8)
+    img[::3] = 9                        # pieces compress to different sizes
+    files = []
+    for threads, sync in ((1, False), (2, True), (3, False)):
+        path = tmp_path / f"p{threads}.png"
+        with PngWriter(path, 33, height, 3, threads=threads, sync=sync) as w:
+            for r0 in range(0, height, 100):
+                w.write_rows(img[r0:r0 + 100])
+        files.append(path.read_bytes())
+    assert files[1] == files[0] and files[2] == files[0]
+    with Image.open(tmp_path / "p2.png") as im:
+        np.testing.assert_array_equal(np.asarray(im), img)
