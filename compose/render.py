@@ -56,19 +56,27 @@ class RenderResult:
 
 class _PngSink:
     def __init__(self, path: Path, width: int, height: int, dpi: float):
-        self.writer = PngWriter(path, width, height, 3, dpi=dpi)
+        # synced as it is closed, on its encoder's thread: the commit's fsync finds it written
+        self.writer = PngWriter(path, width, height, 3, dpi=dpi, sync=True)
 
     def rows(self, row0, rgb8):
         self.writer.write_rows(rgb8)
 
+    def close(self):
+        self.writer.close()
+
 
 class _TiffSink:
     def __init__(self, path: Path, canvas, tags, cog: bool = False, alpha: bool = False):
-        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog, alpha=alpha, stream=True)
+        self.writer = GeoTiffWriter(path, canvas, tags=tags, cog=cog, alpha=alpha, stream=True,
+                                    sync=True)
         self.alpha = alpha          # the engine hands the data footprint over as alpha
 
     def rows(self, row0, rgb8, alpha8=None):
         self.writer.write(row0, 0, rgb8, alpha8)
+
+    def close(self):
+        self.writer.close()
 
 
 def nodata_seen(stats) -> set[str] | None:
@@ -244,7 +252,9 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                             alpha=getattr(style.map, "outside", "background") == "transparent")
             stack.callback(tif.writer.abort)
             # the encoders run on their own threads, beside the next windows' compute
-            png_bg, tif_bg = BackgroundSink(png, "png"), BackgroundSink(tif, "geotiff")
+            # and each finishes its file there too (the last rows, the tile arrays, the fsync)
+            png_bg = BackgroundSink(png, "png", close=True)
+            tif_bg = BackgroundSink(tif, "geotiff", close=True)
             stack.callback(tif_bg.abort)
             stack.callback(png_bg.abort)
             sinks: list = [png_bg, tif_bg]
@@ -294,6 +304,16 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                                            [layer.spec.name for layer in prepared.layers],
                                            proof_images)
                 stack.callback(pictures_job.close)
+            png_bg.end()            # the encoders finish their files on their own threads
+            tif_bg.end()
+            report = None
+            if check or html:       # beside the encoders' last rows, which need no GIL
+                from compose.check import check_style
+
+                t = time.perf_counter()
+                with span("check"):
+                    report = check_style(style, stats, prepared.ramps)
+                seconds["check"] = time.perf_counter() - t
             t = time.perf_counter()
             with span("finish encode"):
                 png_bg.finish()
@@ -318,7 +338,6 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 write_sheet(tmp["proof-sheet"], proof_sink.thumbnails(),
                             style.map.title or style.name, CAUTION)
                 seconds["proofs"] = time.perf_counter() - t
-            report = None
             layout = None
             legend_png = None
             if (legend or html) and not forked:
@@ -327,13 +346,6 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                 if legend:
                     tmp["legend"].write_bytes(legend_png)
                 seconds["legend"] = time.perf_counter() - t
-            if check or html:
-                from compose.check import check_style
-
-                t = time.perf_counter()
-                with span("check"):
-                    report = check_style(style, stats, prepared.ramps)
-                seconds["check"] = time.perf_counter() - t
             if page_job is not None:
                 with span("wait page layout"):
                     layout = page_job.layout()      # the page is written here when not forked

@@ -67,12 +67,15 @@ class GeoTiffWriter:
     ``cog``: write a Cloud Optimized GeoTIFF instead: the windows go to a tiled GeoTIFF beside
     ``path`` (``path`` + ".tiles"), which :meth:`close` turns into the COG (overviews averaged)
     and removes.
+    ``sync``: :meth:`close` also flushes the finished file to the disk (fsync), so a later
+    fsync of it (an output set's commit) finds nothing left to write.
     """
 
     def __init__(self, path: Path, canvas: Canvas, tags: dict[str, str] | None = None,
                  cog: bool = False, alpha: bool = False, stream: bool = False,
-                 threads: int | None = None):
+                 threads: int | None = None, sync: bool = False):
         self.path = Path(path)
+        self._sync = bool(sync)
         self.cog = cog
         self.alpha = bool(alpha)
         self.bands = 4 if self.alpha else 3
@@ -148,6 +151,12 @@ class GeoTiffWriter:
                 to_cog(self._target, self.path)
             finally:
                 self._target.unlink(missing_ok=True)
+        if self._sync:
+            fd = os.open(self.path, os.O_RDONLY)
+            try:
+                os.fsync(fd)
+            finally:
+                os.close(fd)
 
     def abort(self) -> None:
         """Stop after a failure elsewhere: close without finishing, remove a COG's tiles."""

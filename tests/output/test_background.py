@@ -56,3 +56,69 @@ def test_busy_and_waited_account_for_the_sink_work():
     bg.finish()
     assert bg.busy >= 6 * 0.02
     assert bg.waited > 0
+
+
+class _Closing(_Collect):
+    def __init__(self, fail_at=None):
+        super().__init__(fail_at)
+        self.closed_on = None
+        self.rows_when_closed = None
+
+    def close(self):
+        self.closed_on = threading.current_thread().name
+        self.rows_when_closed = len(self.got)
+
+
+def test_close_runs_on_the_sink_thread_after_the_last_rows():
+    sink = _Closing()
+    bg = BackgroundSink(sink, "test", close=True)
+    for i in range(5):
+        bg.rows(i, np.zeros((1, 2, 3), np.uint8))
+    bg.finish()
+    assert sink.closed_on == "compose-test" and sink.rows_when_closed == 5
+
+
+def test_no_close_after_a_sink_error_or_an_abort():
+    failed = _Closing(fail_at=1)
+    bg = BackgroundSink(failed, "test", close=True)
+    with pytest.raises(OSError, match="disk full"):
+        for i in range(3):
+            bg.rows(i, np.zeros((1, 2, 3), np.uint8))
+        bg.finish()
+    bg.abort()
+    assert failed.closed_on is None
+    aborted = _Closing()
+    bg = BackgroundSink(aborted, "test", close=True)
+    bg.rows(0, np.zeros((1, 2, 3), np.uint8))
+    bg.abort()
+    assert aborted.closed_on is None and aborted.got
+
+
+def test_default_leaves_the_sink_open():
+    sink = _Closing()
+    bg = BackgroundSink(sink, "test")
+    bg.rows(0, np.zeros((1, 2, 3), np.uint8))
+    bg.finish()
+    assert sink.closed_on is None
+
+
+def test_end_does_not_wait_and_finish_does():
+    # ``end`` queues the end behind the rows and returns while the sink is still busy and no
+    # room is left for another band (were it to wait for room, this test would hang); the sink
+    # is closed on its thread after the last rows; ``finish`` waits for it all.
+    go = threading.Event()
+
+    class _Held(_Closing):
+        def rows(self, row0, rgb8):
+            go.wait()
+            super().rows(row0, rgb8)
+
+    sink = _Held()
+    bg = BackgroundSink(sink, "test", depth=1, close=True)
+    for i in range(2):                  # one band in the sink, one waiting: no room left
+        bg.rows(i, np.zeros((1, 2, 3), np.uint8))
+    bg.end()
+    assert sink.closed_on is None and sink.got == []
+    go.set()
+    bg.finish()
+    assert sink.closed_on == "compose-test" and sink.rows_when_closed == 2

@@ -118,8 +118,9 @@ def test_streamed_tiles_read_back_by_gdal_and_libtiff(tmp_path, alpha):
     a8 = np.where(rng.random((canvas.height, canvas.width)) < 0.3, 0, 255).astype(np.uint8)
     tags = {"TIFFTAG_SOFTWARE": "compose", "TIFFTAG_DOCUMENTNAME": "m"}
 
-    def write(path, stream, threads=None, rows=100):
-        w = GeoTiffWriter(path, canvas, tags=tags, alpha=alpha, stream=stream, threads=threads)
+    def write(path, stream, threads=None, rows=100, sync=False):
+        w = GeoTiffWriter(path, canvas, tags=tags, alpha=alpha, stream=stream, threads=threads,
+                          sync=sync)
         assert (w._tiles is not None) == stream
         with w:
             for r in range(0, canvas.height, rows):
@@ -128,6 +129,8 @@ def test_streamed_tiles_read_back_by_gdal_and_libtiff(tmp_path, alpha):
 
     streamed = write(tmp_path / "s.tif", True, threads=3)
     assert write(tmp_path / "s1.tif", True, threads=1).read_bytes() == streamed.read_bytes()
+    # synced as it is closed: the same file
+    assert write(tmp_path / "s3.tif", True, sync=True).read_bytes() == streamed.read_bytes()
     # whole rows of tiles (deflated as they come) give the same file as rows gathered
     assert write(tmp_path / "s2.tif", True, rows=512).read_bytes() == streamed.read_bytes()
     gdal = write(tmp_path / "g.tif", False)
