@@ -21,7 +21,7 @@ from compose.sources.crs import never_mercator
 from compose.sources.raster import cell_size_metres
 
 __all__ = ["ReliefLayer", "relief_palette", "ground_cell_size", "ground_scale", "LEVELS",
-           "SAMPLE_WINDOWS", "SAMPLE_SIZE"]
+           "SAMPLE_WINDOWS", "SAMPLE_SIZE", "spread_windows"]
 
 #: Guards a draft relief's stretch, decided on its early read's thread or where it paints
 #: (module-wide: a lock in the layer would stop it being pickled for the page process).
@@ -140,9 +140,9 @@ class ReliefLayer:
         o = self.options
         canvas = self.full if self.full is not None else self.canvas   # a draft: the full one's
         wins = list(canvas.windows(SAMPLE_SIZE, margin=self.margin))
-        pick = np.unique(np.linspace(0, len(wins) - 1, min(SAMPLE_WINDOWS, len(wins))).astype(int))
+        rows, cols = -(-canvas.height // SAMPLE_SIZE), -(-canvas.width // SAMPLE_SIZE)
         samples = []
-        for i in pick:
+        for i in spread_windows(rows, cols, SAMPLE_WINDOWS):
             win = wins[int(i)]
             transform = canvas.window_transform(win)
             dem = self.source.read_window(canvas, win, o.resampling)
@@ -255,3 +255,14 @@ def _full_of_draft(context: Context) -> tuple[Canvas | None, int]:
             or draft.transform.c != full.transform.c or draft.transform.f != full.transform.f:
         return None, 1
     return full, k
+
+
+def spread_windows(rows: int, cols: int, count: int) -> list[int]:
+    """Row-major indices of up to ``count`` windows of a ``rows`` x ``cols`` grid of windows,
+    spread over both directions: a k x k lattice (k = floor(sqrt(count)), at least 1) from the
+    first to the last row and column, evenly. (Evenly spaced indices of the row-major list would
+    put most of them in one column: 8 of 9 in the last column of a 64 x 64 grid.)"""
+    k = max(1, int(np.sqrt(count)))
+    pick_rows = np.unique(np.linspace(0, rows - 1, min(k, rows)).round().astype(int))
+    pick_cols = np.unique(np.linspace(0, cols - 1, min(k, cols)).round().astype(int))
+    return [int(r * cols + c) for r in pick_rows for c in pick_cols]

@@ -73,3 +73,19 @@ def test_the_same_slope_shades_alike_at_every_latitude():
     for s in shades:
         assert np.nanmax(np.abs(s - want)) < 0.01
     assert abs(float(np.nanmean(naive[1])) - want) > 0.02     # the old way: flatter at 60 N
+
+
+def test_auto_stretch_samples_windows_across_rows_and_columns():
+    # The "auto" stretch reads SAMPLE_WINDOWS windows; they must cover the canvas in both
+    # directions (evenly spaced indices of the row-major list put 8 of 9 in the last column of a
+    # 64 x 64 grid, so a map whose relief changes from west to east was measured on its east edge).
+    # Common practice, no source: sample a surface on a regular lattice.
+    from compose.layers.relief import SAMPLE_WINDOWS, spread_windows
+
+    picked = spread_windows(64, 64, SAMPLE_WINDOWS)
+    rows = sorted({i // 64 for i in picked})
+    cols = sorted({i % 64 for i in picked})
+    assert rows == [0, 32, 63] and cols == [0, 32, 63] and len(picked) == 9
+    assert spread_windows(1, 1, 9) == [0]
+    assert spread_windows(2, 5, 9) == [0, 2, 4, 5, 7, 9]
+    assert all(0 <= i < 12 * 12 for i in spread_windows(12, 12, 9))
