@@ -68,16 +68,23 @@ def test_a_remembered_png_is_what_a_save_writes():
         encode._known.pop(key, None)
 
 
-def test_the_page_process_encodes_its_raster_while_the_walk_runs():
-    """The child's wait for the walk (process._walked) encodes the rows the parent reports
-    finished, as the PDF and SVG writers embed them (RGB, top row first), and returns the
-    no-data layers with what the early page work made."""
+def _walk_messages():
+    """An RGB page image, a sink holding it, and the parent's messages of a walk in two bands
+    (no-data layers {"land"}, then {"land", "sea"}; the walk ends with {"sea"}), as pickled."""
     base = _image("RGB")
     sink = type("Sink", (), {"base": base})()
     messages = io.BytesIO()
     for m in (("rows", (10, {"land"})), ("rows", (30, {"land", "sea"})), ("walked", {"sea"})):
         pickle.dump(m, messages)
     messages.seek(0)
+    return base, sink, messages
+
+
+def test_the_page_process_encodes_its_raster_while_the_walk_runs():
+    """The child's wait for the walk (process._walked) encodes the rows the parent reports
+    finished, as the PDF and SVG writers embed them (RGB, top row first), and returns the
+    no-data layers with what the early page work made."""
+    base, sink, messages = _walk_messages()
     known = dict(encode._known)
     guesses = []
 
@@ -100,12 +107,7 @@ def test_with_a_guess_from_the_sources_the_early_page_work_runs_before_the_first
     """Given the no-data layers guessed when the render was prepared (compose.page.nodata), the
     child runs the early page work at once, before reading the walk's first band, with that
     guess; the rows are still encoded and the final set returned."""
-    base = _image("RGB")
-    sink = type("Sink", (), {"base": base})()
-    messages = io.BytesIO()
-    for m in (("rows", (10, {"land"})), ("rows", (30, {"land", "sea"})), ("walked", {"sea"})):
-        pickle.dump(m, messages)
-    messages.seek(0)
+    base, sink, messages = _walk_messages()
     known = dict(encode._known)
     calls = []
 
