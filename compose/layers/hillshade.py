@@ -333,7 +333,8 @@ def _spread(gradients, azimuth: float, altitude: float, exaggeration: float, dir
 
 
 def stretch_factor(samples, azimuth: float = 315.0, altitude: float = 45.0, directions: int = 1,
-                   target: float = STRETCH_TARGET, limit: float = MAX_STRETCH) -> float:
+                   target: float = STRETCH_TARGET, limit: float = MAX_STRETCH,
+                   gradients=None) -> float:
     """The vertical factor (>= 1) that normalises shading by the DEM's own slope distribution.
 
     It is the smallest factor at which :func:`shade_spread` (95th percentile of the illumination's
@@ -341,8 +342,12 @@ def stretch_factor(samples, azimuth: float = 315.0, altitude: float = 45.0, dire
     terrain -- or ordinary terrain at coarse cells -- shows like ordinary relief, while terrain
     that already reaches the target is left as Horn's shading draws it (factor 1). A DEM with no
     slope at all gets 1 (there is nothing to show, only noise to amplify); ``limit`` caps it.
+    ``gradients``: the samples' Horn gradients, a list of (dz/dx, dz/dy) float32 arrays (2-D),
+    when already known (then ``samples`` is not read; a draft's sampled cells, see
+    :meth:`compose.layers.relief.ReliefLayer._sampled_stretch`).
     """
-    gradients = [horn_gradient(np.asarray(dem), dx, dy) for dem, dx, dy in samples]
+    if gradients is None:
+        gradients = [horn_gradient(np.asarray(dem), dx, dy) for dem, dx, dy in samples]
 
     def spread(k: float) -> float:
         return _spread(gradients, azimuth, altitude, k, directions)
