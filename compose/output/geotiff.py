@@ -17,7 +17,7 @@ from rasterio.enums import ColorInterp
 from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas
-from compose.output.atomic import Writeback
+from compose.output.atomic import DIRECT_BYTES, DirectFile
 
 __all__ = ["GeoTiffWriter", "to_cog"]
 
@@ -242,10 +242,10 @@ class _DeflatedTiles:
         self._filled = 0            # rows of the current tile row in the buffer
         self.received = 0           # rows received
         self._tile = 0              # next tile to append
-        self._f = open(path, "r+b")
-        self._f.seek(0, 2)
+        # appended after GDAL's layout; a large file past the page cache
+        # (compose.output.atomic.DirectFile)
+        self._f = DirectFile(path, append=True, direct=width * height * bands >= DIRECT_BYTES)
         self._end = self._f.tell()
-        self._writeback = Writeback(self._f)
         self._pool = ThreadPoolExecutor(threads, thread_name_prefix="tif")
         self._threads = threads
         self._pending: deque[Future] = deque()
@@ -290,19 +290,18 @@ class _DeflatedTiles:
             self._counts[self._tile] = len(data)
             self._end += len(data)
             self._tile += 1
-        self._writeback.wrote()
 
     def close(self) -> None:
         try:
             if self.received != self.height:
                 raise ValueError(f"GeoTIFF got {self.received} rows of {self.height}")
             self._drain(0)
+            self._f.finish()
             for tag, values in ((_TILE_OFFSETS, self._offsets), (_TILE_BYTE_COUNTS, self._counts)):
                 where, dtype = self._arrays[tag]
                 if values.max(initial=0) > np.iinfo(np.dtype(dtype)).max:
                     raise ValueError("GeoTIFF tiles beyond the file's offset range")
-                self._f.seek(where)
-                self._f.write(values.astype(dtype).tobytes())
+                self._f.pwrite(values.astype(dtype).tobytes(), where)
         finally:
             self.abort()
 
@@ -311,7 +310,7 @@ class _DeflatedTiles:
             f.cancel()
         self._pending.clear()
         self._pool.shutdown(wait=True)
-        self._f.close()
+        self._f.abort()
 
 
 def _deflate_tile(rgb8: np.ndarray, alpha8: np.ndarray | None, col: int, bands: int) -> bytes:

@@ -28,7 +28,7 @@ from typing import Any
 
 import numpy as np
 
-from compose.output.atomic import Writeback
+from compose.output.atomic import DIRECT_BYTES, DirectFile
 
 _isal: Any = None
 _zlib_ng: Any = None
@@ -162,8 +162,9 @@ class PngWriter:
         self._pool = ThreadPoolExecutor(self._threads, thread_name_prefix="png") if self._threads > 1 else None
         self._pending: deque[Future] = deque()
         self._held: list[np.ndarray] = []       # rows of a piece not full yet
-        self._f = open(self.path, "wb")
-        self._writeback = Writeback(self._f)
+        # large images past the page cache (compose.output.atomic.DirectFile)
+        self._f = DirectFile(self.path, direct=self.width * self.height * self.channels
+                             >= DIRECT_BYTES)
         color_type = {1: 0, 3: 2, 4: 6}[self.channels]
         self._f.write(_SIGNATURE)
         self._f.write(_chunk(b"IHDR", struct.pack(">IIBBBBB", self.width, self.height, 8,
@@ -179,7 +180,6 @@ class PngWriter:
         self._adler = adler32_combine(self._adler, adler, length)
         header, self._header = self._header, b""
         _write_chunk(self._f, b"IDAT", header, *parts)
-        self._writeback.wrote()
 
     def _drain(self, keep: int) -> None:
         """Write pieces in order until at most ``keep`` are pending, and every finished piece
@@ -234,9 +234,7 @@ class PngWriter:
             tail = deflate.compressobj(self.level, deflate.DEFLATED, -15, 9).flush(deflate.Z_FINISH)
             self._f.write(_chunk(b"IDAT", self._header + tail + struct.pack(">I", self._adler)))
             self._f.write(_chunk(b"IEND", b""))
-            if self._sync:
-                self._f.flush()
-                os.fsync(self._f.fileno())
+            self._f.close(sync=self._sync)
         finally:
             self.abort()
 
@@ -248,7 +246,7 @@ class PngWriter:
             self._pending.clear()
             self._pool.shutdown(wait=True)
             self._pool = None
-        self._f.close()
+        self._f.abort()
 
     def __enter__(self) -> PngWriter:
         return self

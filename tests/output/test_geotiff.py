@@ -133,6 +133,13 @@ def test_streamed_tiles_read_back_by_gdal_and_libtiff(tmp_path, alpha):
     assert write(tmp_path / "s3.tif", True, sync=True).read_bytes() == streamed.read_bytes()
     # whole rows of tiles (deflated as they come) give the same file as rows gathered
     assert write(tmp_path / "s2.tif", True, rows=512).read_bytes() == streamed.read_bytes()
+    # past the page cache (compose.output.atomic.DirectFile, the threshold lowered so this
+    # small map takes that path): the same file
+    import compose.output.geotiff as geotiff
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(geotiff, "DIRECT_BYTES", 0)
+        assert write(tmp_path / "s4.tif", True, sync=True).read_bytes() == streamed.read_bytes()
     gdal = write(tmp_path / "g.tif", False)
     with rasterio.open(streamed) as s, rasterio.open(gdal) as g:
         assert s.profile == g.profile and s.tags() == g.tags() and s.colorinterp == g.colorinterp

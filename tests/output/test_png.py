@@ -115,3 +115,26 @@ def test_png_pieces_on_reused_thread_buffers_same_bytes(tmp_path):
     assert files[1] == files[0] and files[2] == files[0]
     with Image.open(tmp_path / "p2.png") as im:
         np.testing.assert_array_equal(np.asarray(im), img)
+
+
+def test_png_written_past_the_page_cache_same_bytes(tmp_path, monkeypatch):
+    # Large images go to the disk from the writer's own buffer (O_DIRECT where the file system
+    # allows; compose.output.atomic.DirectFile): the same file as through the page cache, and
+    # Pillow reads it back. The threshold is lowered so a small image takes that path.
+    import compose.output.png as png
+
+    rng = np.random.default_rng(7)
+    img = rng.integers(0, 256, (700, 300, 3), dtype=np.uint8)
+    img[:, :150] = 3
+    files = []
+    for threshold in (1 << 40, 0):
+        monkeypatch.setattr(png, "DIRECT_BYTES", threshold)
+        path = tmp_path / f"d{threshold}.png"
+        with PngWriter(path, 300, 700, 3, threads=2, sync=True) as w:
+            for r0 in range(0, 700, 128):
+                w.write_rows(img[r0:r0 + 128])
+        assert w._f.closed
+        files.append(path.read_bytes())
+    assert files[1] == files[0]
+    with Image.open(tmp_path / "d0.png") as im:
+        np.testing.assert_array_equal(np.asarray(im), img)
