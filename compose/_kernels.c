@@ -1,5 +1,6 @@
 /* compose._kernels: per-pixel loops of the window task in one pass each: the window statistics
- * (compose.measure), the 8-bit conversion (compose.engine) and the hillshade
+ * (compose.measure), a palette's colours composited (compose.composite), the 8-bit conversion
+ * (compose.engine) and the hillshade
  * (compose.layers.hillshade).
  *
  * Arrays come in through the buffer protocol only (any strides; the element type read from
@@ -654,7 +655,107 @@ done:
     return result;
 }
 
+PyDoc_STRVAR(palette_doc,
+"palette(backdrop, table, index, alpha, mode, opaque, counts, r0, r1, c0, c1)\n\n"
+"compose.composite.composite_palette's float32 arithmetic, pixel by pixel, in place on backdrop\n"
+"(3, H, W) float32: the source colour table[c, index] (table (3, n) float32, C-contiguous;\n"
+"index (H, W) integers, wrapped into 0..n-1 as np.take's mode 'wrap'), mode 0 'normal'\n"
+"(mix = Cs - Cb) or 1 'multiply' (mix = Cb Cs - Cb), mix times alpha ((H, W) or (1, 1)\n"
+"float32) unless opaque, Cb + mix. With counts ((n,) intp, C-contiguous) not None, each index\n"
+"of rows r0..r1-1 and columns c0..c1-1 adds 1 to its entry (np.bincount's counts).");
+
+static PyObject *palette(PyObject *self, PyObject *args) {
+    PyObject *back_o, *table_o, *index_o, *alpha_o, *counts_o;
+    int mode, opaque;
+    Py_ssize_t r0, r1, c0, c1;
+    if (!PyArg_ParseTuple(args, "OOOOiiOnnnn", &back_o, &table_o, &index_o, &alpha_o, &mode,
+                          &opaque, &counts_o, &r0, &r1, &c0, &c1))
+        return NULL;
+    Arr back = {0}, table = {0}, index = {0}, alpha = {0}, counts = {0};
+    PyObject *result = NULL;
+    if (take(back_o, &back, 3, K_F32, 1, 0, "backdrop") < 0
+        || take(table_o, &table, 2, K_F32, 0, 0, "table") < 0
+        || take(index_o, &index, 2, K_INT, 0, 0, "index") < 0
+        || take(alpha_o, &alpha, 2, K_F32, 0, 0, "alpha") < 0
+        || take(counts_o, &counts, 1, K_INT, 1, 1, "counts") < 0)
+        goto done;
+    Py_ssize_t h = back.b.shape[1], w = back.b.shape[2], n = table.b.shape[1];
+    int bcast = alpha.b.shape[0] == 1 && alpha.b.shape[1] == 1;
+    if (back.b.shape[0] != 3 || table.b.shape[0] != 3 || n < 1
+        || !PyBuffer_IsContiguous(&table.b, 'C') || index.b.shape[0] != h || index.b.shape[1] != w
+        || !(bcast || (alpha.b.shape[0] == h && alpha.b.shape[1] == w)) || mode < 0 || mode > 1
+        || (counts.held && (!PyBuffer_IsContiguous(&counts.b, 'C') || counts.b.shape[0] != n
+                            || counts.b.itemsize != sizeof(Py_ssize_t) || counts.kind != K_INT))
+        || r0 < 0 || c0 < 0 || r1 > h || c1 > w) {
+        PyErr_SetString(PyExc_ValueError, "palette: shapes do not fit");
+        goto done;
+    }
+    const float *tab = (const float *)table.b.buf;
+    Py_ssize_t *cnt = counts.held ? (Py_ssize_t *)counts.b.buf : NULL;
+    Py_ssize_t *idx = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(w + 1));
+    if (!idx) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    const Py_ssize_t bj = back.b.strides[2], ij = index.b.strides[1];
+    const Py_ssize_t aj = bcast ? 0 : alpha.b.strides[1];
+    const int isize = (int)index.b.itemsize, isigned = index.kind == K_INT;
+    for (Py_ssize_t i = 0; i < h; i++) {
+        const char *irow = AT2(index, i, 0);
+        for (Py_ssize_t j = 0; j < w; j++) {
+            const char *q = irow + j * ij;
+            int64_t v = isize == 2 && !isigned ? (int64_t)*(const uint16_t *)q : read_int(q, &index);
+            if (v < 0 || v >= n) {          /* np.take's "wrap" */
+                v %= n;
+                if (v < 0) v += n;
+            }
+            idx[j] = (Py_ssize_t)v;
+        }
+        if (cnt && i >= r0 && i < r1)
+            for (Py_ssize_t j = c0; j < c1; j++) cnt[idx[j]]++;
+        const char *arow = bcast ? (const char *)alpha.b.buf : AT2(alpha, i, 0);
+        for (int c = 0; c < 3; c++) {
+            const float *tc = tab + c * n;
+            char *brow = (char *)AT3(back, c, i, 0);
+            if (bj == (Py_ssize_t)sizeof(float) && (bcast || aj == (Py_ssize_t)sizeof(float))) {
+                float *cb = (float *)brow;
+                const float *a = (const float *)arow;
+                if (mode == 0 && opaque)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = tc[idx[j]] - cb[j]; cb[j] = cb[j] + m; }
+                else if (mode == 0 && bcast)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = tc[idx[j]] - cb[j]; m *= a[0]; cb[j] = cb[j] + m; }
+                else if (mode == 0)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = tc[idx[j]] - cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+                else if (opaque)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * tc[idx[j]]; m -= cb[j]; cb[j] = cb[j] + m; }
+                else if (bcast)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * tc[idx[j]]; m -= cb[j]; m *= a[0]; cb[j] = cb[j] + m; }
+                else
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * tc[idx[j]]; m -= cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+            } else {
+                for (Py_ssize_t j = 0; j < w; j++) {
+                    float *cb = (float *)(brow + j * bj);
+                    float cs = tc[idx[j]], m;
+                    if (mode == 0) m = cs - *cb;
+                    else { m = *cb * cs; m -= *cb; }
+                    if (!opaque) m *= *(const float *)(arow + j * aj);
+                    *cb = *cb + m;
+                }
+            }
+        }
+    }
+    Py_END_ALLOW_THREADS
+    PyMem_RawFree(idx);
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    drop(&back); drop(&table); drop(&index); drop(&alpha); drop(&counts);
+    return result;
+}
+
 static PyMethodDef methods[] = {
+    {"palette", palette, METH_VARARGS, palette_doc},
     {"hillshade", hillshade, METH_VARARGS, hillshade_doc},
     {"to8", to8, METH_VARARGS, to8_doc},
     {"overlay", overlay, METH_VARARGS, overlay_doc},

@@ -17,6 +17,7 @@ from collections.abc import Callable, Iterable
 import numpy as np
 
 from compose.errors import StyleError
+from compose.kernels import get as compiled
 
 __all__ = ["BLEND_MODES", "STRIP_PIXELS", "blend_mode", "composite_over", "composite_palette",
            "composite_layers",
@@ -208,6 +209,9 @@ def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray
     slices with steps of 1 into (H, W), e.g. a window's core; default all) is added: the numbers
     of ``np.bincount(index[region].ravel(), minlength=n)``, counted strip by strip from the
     indices the lookup converts anyway (counts are whole numbers: any grouping adds up alike).
+    For "normal" and "multiply" with alpha (H, W) or (1, 1) the compiled kernel
+    (:mod:`compose.kernels`) looks up, blends and counts in one pass per row: the same float32
+    operations in the same order, the same bits (tests/test_kernels.py).
     """
     func = blend_mode(mode, "composite")
     if backdrop.dtype != np.float32 or backdrop.ndim != 3 or backdrop.shape[0] != 3:
@@ -218,6 +222,20 @@ def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray
     alpha = np.asarray(alpha, dtype=np.float32)
     alpha = alpha.reshape(1, 1) if alpha.ndim == 0 else alpha
     np.broadcast_shapes((h, w), alpha.shape)                              # raises when wrong
+    row_slice, col_slice = region if region is not None else (slice(0, h), slice(0, w))
+    rs0, rs1, _ = row_slice.indices(h)
+    cs0, cs1, _ = col_slice.indices(w)
+    kernel = compiled()
+    if (kernel is not None and func in (normal, multiply) and alpha.ndim == 2
+            and alpha.shape in ((h, w), (1, 1)) and table.dtype == np.float32
+            and table.ndim == 2 and table.shape[0] == 3 and table.flags.c_contiguous
+            and index.dtype.kind in "iu" and (counts is None or counts.dtype == np.intp)):
+        # one pass per row: gather, blend and count (the same float32 operations)
+        if counts is not None and not (rs1 > rs0 and cs1 > cs0):
+            counts = None
+        kernel.palette(backdrop, table, index, alpha, 0 if func is normal else 1, bool(opaque),
+                       counts, rs0, max(rs1, rs0), cs0, max(cs1, cs0))
+        return backdrop
     rows = max(1, STRIP_PIXELS // max(w, 1))
     n = min(rows, h)
     mix_buf = np.empty((n, w), np.float32)
@@ -225,9 +243,6 @@ def composite_palette(backdrop: np.ndarray, table: np.ndarray, index: np.ndarray
     # the strip's indices as intp, converted once: np.take converts any other integer type on
     # every call, and np.bincount too
     idx_buf = np.empty((n, w), np.intp)
-    row_slice, col_slice = region if region is not None else (slice(0, h), slice(0, w))
-    rs0, rs1, _ = row_slice.indices(h)
-    cs0, cs1, _ = col_slice.indices(w)
     size = table.shape[1]
     for r0 in range(0, h, rows):
         r1 = min(r0 + rows, h)

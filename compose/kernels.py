@@ -1,6 +1,7 @@
 """The compiled loops of the window task (``compose._kernels``, a small C extension built from
 ``compose/_kernels.c`` by setup.py), loaded on first use: the window statistics
-(:mod:`compose.measure`), the 8-bit conversion (:mod:`compose.engine`) and the hillshade
+(:mod:`compose.measure`), a lookup table's colours composited (:mod:`compose.composite`), the
+8-bit conversion (:mod:`compose.engine`) and the hillshade
 (:mod:`compose.layers.hillshade`).
 
 The extension reads arrays through Python's buffer protocol only and gives the same numbers
