@@ -23,7 +23,7 @@ from typing import Any
 
 import numpy as np
 
-from compose.heap import trim
+from compose.heap import no_huge_pages, trim
 from compose.layers.base import Paint
 
 __all__ = ["DrawAhead", "DRAWN_KINDS", "AHEAD", "warm"]
@@ -46,6 +46,8 @@ def _init(payload: bytes) -> None:
     from compose.packing import unpack
 
     eight_bit_coverage()        # Agg's bytes are what goes back: no float32 copy and back
+    # its fork server may have started before the render's malloc settings (compose.heap)
+    no_huge_pages()
     _LAYERS.clear()
     _LAYERS.update(unpack(payload))
 
