@@ -119,11 +119,16 @@ def sampled_cells(full_shape: tuple[int, int], factor: int, rows: np.ndarray, co
     bj = (c - ocol) // bw                       # block column of each pixel (ignored where c < 0)
     last = (w_full - 1 - ocol) // bw
     first = (0 - ocol) // bw
+    done_rows: dict[int, int] = {}              # block row -> the first row mapped in it
     for i, cell in enumerate(r):
         if cell < 0:
             out_c[i, :] = -1
             continue
         bi = (int(cell) - orow) // bh
+        if bi in done_rows:                     # a row of the same block row: the same columns
+            out_c[i] = out_c[done_rows[bi]]
+            continue
+        done_rows[bi] = i
         phase = (-a * bi) % every               # block columns j read in this row: j = phase mod every
         read = np.arange(first + ((phase - first) % every), last + 1, every)
         if read.size == 0:

@@ -102,6 +102,23 @@ def test_sampled_cells_read_whole_blocks_evenly_and_keep_their_rows():
     assert (cols1[np.ix_(inside, inside)] == own_c[inside][None, :]).all()
 
 
+def test_sampled_cells_of_many_rows_are_those_of_each_row_alone():
+    """sampled_cells maps each block row's columns once and gives its other rows the same: the
+    cells of a whole window are those of each of its rows mapped alone, on a canvas offset from
+    the file's blocks, with rows and columns past its edges."""
+    from compose.layers.early import sampled_cells
+
+    for full, factor, block, origin, every in (((8192, 8192), 22, (512, 512), (0, 0), 8),
+                                               ((3000, 5000), 9, (256, 300), (17, 5), 5)):
+        rows = np.arange(-3, full[0] // factor + 3)
+        cols = np.arange(-3, full[1] // factor + 3)
+        got = sampled_cells(full, factor, rows, cols, block, origin, every)
+        alone = [sampled_cells(full, factor, rows[i:i + 1], cols, block, origin, every)
+                 for i in range(len(rows))]
+        for k in (0, 1):
+            assert np.array_equal(got[k], np.vstack([a[k] for a in alone]))
+
+
 def _big_style(tmp_path, n: int = 2048, tile: int = 128) -> Path:
     """A relief, a field and lines on an n x n canvas of 30 m cells, rasters in tiles of ``tile``
     cells without overviews (as bench/render.py's benchmark, smaller)."""
