@@ -501,10 +501,9 @@ done:
 
 /* Horn's gradient of one row from its three padded DEM rows (w + 2 each): the vertical
    [1 2 1] sums ((top + bottom) + centre) + centre, their horizontal difference, q likewise
-   across, scaled (numpy's order of operations). Returns 1 when a gradient is NaN. */
+   across (numpy's order of operations), unscaled. Returns 1 when a gradient is NaN. */
 static __attribute__((noinline)) int horn_row(const float *restrict up, const float *restrict mid, const float *restrict dn,
-                    float *restrict v, float *restrict pp, float *restrict qq, Py_ssize_t w,
-                    float s_p, float s_q) {
+                    float *restrict v, float *restrict pp, float *restrict qq, Py_ssize_t w) {
     for (Py_ssize_t c = 0; c < w + 2; c++) {
         float a = up[c] + dn[c];
         a += mid[c];
@@ -520,8 +519,8 @@ static __attribute__((noinline)) int horn_row(const float *restrict up, const fl
         hb += dn[c + 1];
         hb += dn[c + 1];
         float q = ht - hb;
-        pp[c] = p * s_p;
-        qq[c] = q * s_q;
+        pp[c] = p;
+        qq[c] = q;
     }
     /* NaN: exponent bits all set and a fraction not zero; tested on the bits (no branch) */
     uint32_t nan = 0;
@@ -532,6 +531,51 @@ static __attribute__((noinline)) int horn_row(const float *restrict up, const fl
         nan |= ((a & 0x7fffffffu) > 0x7f800000u) | ((b & 0x7fffffffu) > 0x7f800000u);
     }
     return nan != 0;
+}
+
+/* a neighbour of a cell next to no-data, as compose.layers.hillshade._gradient_nan: itself,
+   or reflected through the centre e (2e - opposite), or e when the opposite is NaN too */
+static inline float reflect(float a, float b, float e) {
+    if (!isnan(a)) return a;
+    if (isnan(b)) return e;
+    float t = 2.0f * e;
+    return t - b;
+}
+
+/* compose.layers.hillshade._gradient_nan on one row of unscaled gradients: cells whose p or q
+   is NaN and whose centre is not are computed again from reflected neighbours (in numpy's
+   order of operations); cells whose centre is NaN are NaN. */
+static __attribute__((noinline)) void horn_fix(const float *up, const float *mid, const float *dn,
+                                               float *pp, float *qq, Py_ssize_t w) {
+    for (Py_ssize_t c = 0; c < w; c++) {
+        float e = mid[c + 1];
+        if (isnan(e)) {
+            pp[c] = NAN;
+            qq[c] = NAN;
+            continue;
+        }
+        if (!isnan(pp[c]) && !isnan(qq[c])) continue;
+        /* f(row, col) offsets: (-1,-1) up[c], (-1,0) up[c+1], (-1,1) up[c+2], (0,-1) mid[c],
+           (0,1) mid[c+2], (1,-1) dn[c], (1,0) dn[c+1], (1,1) dn[c+2] */
+        float nw = reflect(up[c], dn[c + 2], e), se = reflect(dn[c + 2], up[c], e);
+        float n = reflect(up[c + 1], dn[c + 1], e), s = reflect(dn[c + 1], up[c + 1], e);
+        float ne = reflect(up[c + 2], dn[c], e), sw = reflect(dn[c], up[c + 2], e);
+        float west = reflect(mid[c], mid[c + 2], e), east = reflect(mid[c + 2], mid[c], e);
+        float a = 2.0f * east, b;
+        a = ne + a;
+        a = a + se;
+        b = 2.0f * west;
+        b = nw + b;
+        b = b + sw;
+        pp[c] = a - b;
+        a = 2.0f * n;
+        a = nw + a;
+        a = a + ne;
+        b = 2.0f * s;
+        b = sw + b;
+        b = b + se;
+        qq[c] = a - b;
+    }
 }
 
 /* The weighted Lambertian shade of one row of gradients under k suns, as _Light.shade. */
@@ -590,8 +634,9 @@ PyDoc_STRVAR(hillshade_doc,
 "compose.layers.hillshade.multidirectional's float32 arithmetic, pixel by pixel: Horn's\n"
 "gradient of dem (H, W) float32 (edges replicated), p scaled per row by scale_p (H,) float32\n"
 "and q by scale_q, then the weighted Lambertian shade under the suns (cx, cy, weights: (k,)\n"
-"float32; one sun: weights unused) into out (H, W) float32; all C-contiguous. False (out\n"
-"incomplete) when a gradient is NaN (no data nearby): the numpy path then shades the DEM.");
+"float32; one sun: weights unused) into out (H, W) float32; all C-contiguous. Cells next to\n"
+"no-data (NaN) get the gradient of _gradient_nan (neighbours reflected through the centre),\n"
+"cells of no-data NaN. Returns True.");
 
 static PyObject *hillshade(PyObject *self, PyObject *args) {
     PyObject *dem_o, *sp_o, *cx_o, *cy_o, *w_o, *out_o;
@@ -628,7 +673,6 @@ static PyObject *hillshade(PyObject *self, PyObject *args) {
         PyErr_NoMemory();
         goto done;
     }
-    int nan = 0;
     Py_BEGIN_ALLOW_THREADS
     float *up = buf, *mid = up + (w + 2), *dn = mid + (w + 2), *v = dn + (w + 2);
     float *pp = v + (w + 2), *qq = pp + w, *den = qq + w, *acc = den + w, *u = acc + w;
@@ -641,15 +685,17 @@ static PyObject *hillshade(PyObject *self, PyObject *args) {
             pads[t][0] = rows[t][0];
             pads[t][w + 1] = rows[t][w - 1];
         }
-        if (horn_row(up, mid, dn, v, pp, qq, w, spr[r], sq)) {
-            nan = 1;
-            break;
+        if (horn_row(up, mid, dn, v, pp, qq, w)) horn_fix(up, mid, dn, pp, qq, w);
+        const float s_p = spr[r];
+        for (Py_ssize_t c = 0; c < w; c++) {
+            pp[c] *= s_p;
+            qq[c] *= sq;
         }
         shade_row(pp, qq, den, acc, u, dst + r * w, w, k2, sin_alt, cx, cy, wt, k);
     }
     Py_END_ALLOW_THREADS
     PyMem_RawFree(buf);
-    result = PyBool_FromLong(!nan);
+    result = PyBool_FromLong(1);
 done:
     drop(&dem); drop(&sp); drop(&cxa); drop(&cya); drop(&wa); drop(&out);
     return result;
@@ -754,7 +800,174 @@ done:
     return result;
 }
 
+PyDoc_STRVAR(levels_doc,
+"levels(shade, top, index, alpha) -> int\n\n"
+"A shade (H, W) float32 as table entries: shade x top (float32) rounded half to even into\n"
+"index (H, W) uint16, alpha 1.0; where the shade is not finite entry top + 1 and alpha 0.0\n"
+"(all C-contiguous; compose.layers.relief's numpy steps). Returns 1 when every shade was\n"
+"finite, 0 when some were not, -1 (index incomplete) when a rounded value falls outside\n"
+"0..65535: then the numpy path runs.");
+
+static PyObject *levels(PyObject *self, PyObject *args) {
+    PyObject *shade_o, *index_o, *alpha_o;
+    float top;
+    if (!PyArg_ParseTuple(args, "OfOO", &shade_o, &top, &index_o, &alpha_o)) return NULL;
+    Arr shade = {0}, index = {0}, alpha = {0};
+    PyObject *result = NULL;
+    if (take(shade_o, &shade, 2, K_F32, 0, 0, "shade") < 0
+        || take(index_o, &index, 2, K_UINT, 1, 0, "index") < 0
+        || take(alpha_o, &alpha, 2, K_F32, 1, 0, "alpha") < 0)
+        goto done;
+    Py_ssize_t h = shade.b.shape[0], w = shade.b.shape[1];
+    if (index.b.itemsize != 2 || index.b.shape[0] != h || index.b.shape[1] != w
+        || alpha.b.shape[0] != h || alpha.b.shape[1] != w || !(top >= 0.0f && top < 65535.0f)
+        || !PyBuffer_IsContiguous(&shade.b, 'C') || !PyBuffer_IsContiguous(&index.b, 'C')
+        || !PyBuffer_IsContiguous(&alpha.b, 'C')) {
+        PyErr_SetString(PyExc_ValueError, "levels: shapes do not fit");
+        goto done;
+    }
+    const float *src = (const float *)shade.b.buf;
+    uint16_t *dst = (uint16_t *)index.b.buf;
+    float *al = (float *)alpha.b.buf;
+    const uint16_t nodata = (uint16_t)((uint32_t)top + 1u);
+    int all = 1, outside = 0;
+    Py_BEGIN_ALLOW_THREADS
+    /* branch-free (vectorised): finite by the exponent bits, the rounded value selected */
+    uint32_t lost = 0, bad = 0;
+    for (Py_ssize_t i = 0, n = h * w; i < n; i++) {
+        float x = src[i];
+        uint32_t bits;
+        memcpy(&bits, &x, 4);
+        uint32_t fin = (bits & 0x7f800000u) != 0x7f800000u;
+        float y = x * top;
+        /* np.rint: adding 2**23 rounds to an integer, ties to even, for 0 <= y < 2**23 */
+        float r = (y + 8388608.0f) - 8388608.0f;
+        uint32_t ok = (y >= 0.0f) & (y < 65535.5f);
+        r = fin & ok ? r : 0.0f;
+        int32_t k = (int32_t)r;
+        dst[i] = fin ? (uint16_t)k : nodata;
+        al[i] = fin ? 1.0f : 0.0f;
+        lost |= fin ^ 1u;
+        bad |= fin & (ok ^ 1u);
+    }
+    all = lost == 0;
+    outside = bad != 0;
+    Py_END_ALLOW_THREADS
+    result = PyLong_FromLong(outside ? -1 : all);
+done:
+    drop(&shade); drop(&index); drop(&alpha);
+    return result;
+}
+
+PyDoc_STRVAR(lut_index_doc,
+"lut_index(values, index, lo, hi, n, origin, width, inner, at, first, width2) -> None\n\n"
+"compose.ramps.lut.Lut.index of a continuous or stepped table in float64, value by value:\n"
+"values (H, W) float32 or float64 -> index (H, W) uint16 (C-contiguous): NaN n + 2, below lo\n"
+"n, above hi n + 1, else floor((v - origin) / width) clipped to 0..n-1 when width > 0 (and at\n"
+"or above at, with first >= 0: first + floor((v - at) / width2); below it at most first - 1),\n"
+"or, when width <= 0, the number of inner edges (inner (k,) float64, ascending) <= v.");
+
+static PyObject *lut_index(PyObject *self, PyObject *args) {
+    PyObject *values_o, *index_o, *inner_o;
+    double lo, hi, origin, width, at, width2;
+    Py_ssize_t n, first;
+    if (!PyArg_ParseTuple(args, "OOddnddOdnd", &values_o, &index_o, &lo, &hi, &n, &origin, &width,
+                          &inner_o, &at, &first, &width2))
+        return NULL;
+    Arr values = {0}, index = {0}, inner = {0};
+    PyObject *result = NULL;
+    if (take(values_o, &values, 2, K_F32, 0, 0, "values") < 0) {     /* or float64 */
+        PyErr_Clear();
+        drop(&values);
+        if (take(values_o, &values, 2, K_F64, 0, 0, "values") < 0) goto done;
+    }
+    if (take(index_o, &index, 2, K_UINT, 1, 0, "index") < 0
+        || take(inner_o, &inner, 1, K_F64, 0, 1, "inner") < 0)
+        goto done;
+    Py_ssize_t h = values.b.shape[0], w = values.b.shape[1];
+    if (index.b.itemsize != 2 || index.b.shape[0] != h || index.b.shape[1] != w
+        || !PyBuffer_IsContiguous(&index.b, 'C') || n < 1 || n + 2 > 65535
+        || (!(width > 0) && (!inner.held || !PyBuffer_IsContiguous(&inner.b, 'C')))) {
+        PyErr_SetString(PyExc_ValueError, "lut_index: shapes do not fit");
+        goto done;
+    }
+    uint16_t *dst = (uint16_t *)index.b.buf;
+    const int f32 = values.kind == K_F32;
+    const Py_ssize_t vj = values.b.strides[1];
+    const double *edges = inner.held ? (const double *)inner.b.buf : NULL;
+    const Py_ssize_t k = inner.held ? inner.b.shape[0] : 0;
+    const double top = (double)(n - 1);
+    const int split = first >= 0;
+    const double above_top = split ? (double)(n - 1 - first) : 0.0;
+    /* clip(floor(t), 0, n - 1) equals clip(trunc(t), 0, n - 1) for every finite t (they differ
+       only below 0, where both clip to 0), so the clipped double is truncated by the cast */
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < h; i++) {
+        const char *row = AT2(values, i, 0);
+        uint16_t *d = dst + i * w;
+        if (width > 0 && !split && f32 && vj == (Py_ssize_t)sizeof(float)) {
+            const float *fv = (const float *)row;
+            for (Py_ssize_t j = 0; j < w; j++) {       /* branch-free: vectorised */
+                double v = (double)fv[j];
+                double t = v - origin;
+                t /= width;
+                t = t > 0.0 ? t : 0.0;
+                t = t < top ? t : top;
+                int32_t e = (int32_t)t;
+                e = v < lo ? (int32_t)n : e;
+                e = v > hi ? (int32_t)(n + 1) : e;
+                e = v != v ? (int32_t)(n + 2) : e;
+                d[j] = (uint16_t)e;
+            }
+            continue;
+        }
+        for (Py_ssize_t j = 0; j < w; j++) {
+            const char *q = row + j * vj;
+            double v = f32 ? (double)*(const float *)q : *(const double *)q;
+            if (isnan(v)) { d[j] = (uint16_t)(n + 2); continue; }
+            /* numpy writes outside low, then outside high, then no-data: the last one wins */
+            if (v > hi) { d[j] = (uint16_t)(n + 1); continue; }
+            if (v < lo) { d[j] = (uint16_t)n; continue; }
+            int32_t e;
+            if (width > 0) {
+                double t = v - origin;
+                t /= width;
+                t = t > 0.0 ? t : 0.0;
+                t = t < top ? t : top;
+                e = (int32_t)t;
+                if (split) {
+                    if (v >= at) {          /* first + floor(u), u >= 0, at most n - 1 */
+                        double u = v - at;
+                        u /= width2;
+                        u = u < above_top ? u : above_top;
+                        e = (int32_t)first + (int32_t)u;
+                    } else {                /* min(floor(t), first - 1), clipped */
+                        e = e < (int32_t)first - 1 ? e : (int32_t)first - 1;
+                        e = e > 0 ? e : 0;
+                    }
+                }
+            } else {                        /* np.searchsorted(inner, v, side="right") */
+                Py_ssize_t a = 0, b = k;
+                while (a < b) {
+                    Py_ssize_t m = (a + b) / 2;
+                    if (edges[m] <= v) a = m + 1; else b = m;
+                }
+                e = (int32_t)(a < n - 1 ? a : n - 1);
+            }
+            d[j] = (uint16_t)e;
+        }
+    }
+    Py_END_ALLOW_THREADS
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    drop(&values); drop(&index); drop(&inner);
+    return result;
+}
+
 static PyMethodDef methods[] = {
+    {"levels", levels, METH_VARARGS, levels_doc},
+    {"lut_index", lut_index, METH_VARARGS, lut_index_doc},
     {"palette", palette, METH_VARARGS, palette_doc},
     {"hillshade", hillshade, METH_VARARGS, hillshade_doc},
     {"to8", to8, METH_VARARGS, to8_doc},

@@ -276,7 +276,7 @@ def test_a_build_older_than_its_source_is_not_used(tmp_path, capsys):
 
 @pytest.mark.parametrize("directions", [1, 3, 6])
 @pytest.mark.parametrize("per_row", [False, True])
-@pytest.mark.parametrize("holes", [False, True])
+@pytest.mark.parametrize("holes", [False, True, "edges"])
 def test_hillshade_equals_the_numpy_strips_bit_for_bit(use, directions, per_row, holes):
     # Horn's gradient and the weighted Lambertian suns in float32, the same bits; a DEM with
     # no-data holes goes back to the numpy strips (their reflection at holes) and still agrees
@@ -288,15 +288,23 @@ def test_hillshade_equals_the_numpy_strips_bit_for_bit(use, directions, per_row,
     dem[40:44, 10:50] = 900                        # flat ground: shade sin(altitude) exactly
     if holes:
         dem[20:25, 60:70] = np.nan
+    if holes == "edges":        # a window's margin off the raster, single cells, pairs, a line
+        dem[:2] = np.nan
+        dem[:, -1] = np.nan
+        dem[50, 30] = dem[60, 31] = dem[60, 33] = dem[70, 40] = np.nan
+        dem[30:33, 90] = np.nan
+        dem[75, 5:9] = np.nan
+        dem[55, 100] = np.inf       # a gradient inf - inf: NaN next to a cell that is not
     dx = np.linspace(18.0, 31.0, dem.shape[0]) if per_row else 30.0
     results = []
     for on in (True, False):
         use(on)
-        results.append(multidirectional(dem, dx, 29.0, azimuth=300.0, altitude=40.0,
-                                        exaggeration=2.5, directions=directions))
+        with np.errstate(invalid="ignore"):     # inf - inf
+            results.append(multidirectional(dem, dx, 29.0, azimuth=300.0, altitude=40.0,
+                                            exaggeration=2.5, directions=directions))
     a, b = results
     assert a.dtype == b.dtype == np.float32 and a.tobytes() == b.tobytes()
-    assert np.isnan(a).any() == holes
+    assert np.isnan(a).any() == bool(holes)
 
 
 @pytest.mark.parametrize("mode", ["normal", "multiply", "screen"])
@@ -333,3 +341,82 @@ def test_palette_composite_equals_the_numpy_strips_bit_for_bit(use, mode, covera
     assert a.tobytes() == b.tobytes()
     assert ca.tobytes() == cb.tobytes()
     assert ca.tobytes() == np.bincount(index[region].ravel(), minlength=n).tobytes()
+
+
+def _luts():
+    """Tables of every index path: even samples, equal steps, uneven (quantile) steps, a
+    threshold's two even runs."""
+    from compose.ramps import build_ramps
+
+    through = [{"L": 95, "C": 12, "h": 100}, {"L": 60, "C": 36, "h": 135}, {"L": 27, "C": 20, "h": 165}]
+    seq = {"kind": "sequential", "domain": [0, 12], "through": through}
+    tables = {"even": seq, "steps": {**seq, "steps": 7},
+              "quantile": {**seq, "steps": 5, "step_method": "quantile"},
+              "warm": {"kind": "threshold", "domain": [14, 30], "at": 26,
+                       "below": through[:2], "above": through[1:]}}
+    Table = type("Table", (), {})
+    named = {}
+    for name, table in tables.items():
+        t = Table()
+        t.name, t.table, t.path = name, table, ROOT / "styles" / "test.toml"
+        named[name] = t
+    ramps = build_ramps(named)
+    luts = {name: ramp.lut() for name, ramp in ramps.items()}
+    data = np.random.default_rng(2).gamma(2.0, 2.0, 5000)
+    luts["quantile"] = luts["quantile"].with_quantile_breaks(data)
+    assert luts["even"].width is not None and luts["quantile"].width is None
+    assert luts["warm"].split is not None
+    return luts
+
+
+@pytest.mark.parametrize("name", ["even", "steps", "quantile", "warm"])
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_lookup_table_index_equals_the_numpy_path(use, name, dtype):
+    # value -> entry on the table's edges and their float neighbours, outside the domain,
+    # infinities and NaN: the same uint16 indices as Lut.index (compose.ramps.lut)
+    from compose.layers.raster import lut_index
+
+    lut = _luts()[name]
+    rng = np.random.default_rng(9)
+    lo, hi = float(lut.edges[0]), float(lut.edges[-1])
+    edges = np.asarray(lut.edges, dtype)
+    pool = np.concatenate([edges, np.nextafter(edges, dtype(-np.inf)), np.nextafter(edges, dtype(np.inf)),
+                           np.asarray(lut.values, dtype), [np.nan, np.inf, -np.inf]]).astype(dtype)
+    values = np.where(rng.random((67, 71)) < 0.5, rng.choice(pool, (67, 71)),
+                      rng.uniform(lo - 2, hi + 2, (67, 71))).astype(dtype)
+    strided = np.repeat(values, 2, axis=1)[:, ::2]      # not contiguous
+    results = []
+    for on in (True, False):
+        use(on)
+        results.append([lut_index(lut, values), lut_index(lut, strided)])
+    reference = lut.index(values)
+    for got in results[0] + results[1]:
+        assert got.dtype == np.uint16 and got.tobytes() == reference.tobytes()
+    assert {lut.n, lut.n + 1, lut.n + 2} <= set(np.unique(reference).tolist())
+
+
+def test_relief_levels_equal_the_numpy_path(use):
+    # shade x (LEVELS - 1) rounded half to even, the no-data entry where not finite
+    from compose.layers.relief import LEVELS, shade_levels
+
+    rng = np.random.default_rng(6)
+    shade = rng.random((59, 77), dtype=np.float32)
+    n = LEVELS - 1          # shades whose float32 product with n lies half-way between k, k + 1
+    near = (np.arange(n, dtype=np.float32) + np.float32(0.5)) / np.float32(n)
+    bits = near.view(np.uint32)[:, None].astype(np.int64) + np.arange(-4, 5)[None, :]
+    candidates = bits.astype(np.uint32).view(np.float32).ravel()
+    product = candidates * np.float32(n)
+    ties = candidates[product - np.floor(product) == 0.5]
+    assert ties.size >= n
+    flat = shade.reshape(-1)
+    flat[:ties.size] = ties
+    flat[ties.size:ties.size + n] = np.nextafter(near, np.float32(2))
+    flat[-5:] = [np.nan, np.inf, -np.inf, 0, 1]
+    results = []
+    for on in (True, False):
+        use(on)
+        results.append(shade_levels(shade.copy()))
+    (ia, aa), (ib, ab) = results
+    assert ia.dtype == ib.dtype == np.uint16 and ia.tobytes() == ib.tobytes()
+    assert aa.dtype == ab.dtype == np.float32 and aa.tobytes() == ab.tobytes()
+    assert (ia == LEVELS).sum() == 3 and aa.sum() == shade.size - 3

@@ -211,9 +211,9 @@ def multidirectional(dem: np.ndarray, dx, dy, azimuth: float = 315.0, altitude: 
 def _compiled_shade(dem: np.ndarray, dx: np.ndarray | float, dy: float, light: _Light,
                     out: np.ndarray) -> bool:
     """:func:`multidirectional` into ``out`` by the compiled kernel (:mod:`compose.kernels`), the
-    same float32 operations in the same order per pixel, so the same bits; False (``out``
-    incomplete) when there is no kernel, the DEM is not float32 or a gradient is NaN (no data
-    nearby): then the numpy strips below shade it."""
+    same float32 operations in the same order per pixel (cells next to no-data as
+    :func:`_gradient_nan`), so the same bits; False when there is no kernel or the DEM is not
+    float32: then the numpy strips below shade it."""
     kernel = compiled()
     if kernel is None or dem.dtype != np.float32 or not dem.size:
         return False

@@ -6,11 +6,12 @@ import numpy as np
 
 from compose.canvas import core_window
 from compose.errors import StyleError
+from compose.kernels import get as compiled
 from compose.layers.base import Context, Paint, palette_from_lut
 from compose.layers.early import BlockSample, EarlyRead
 from compose.sources.raster import RasterSource
 
-__all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster"]
+__all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster", "lut_index"]
 
 
 def open_raster(spec, canvas, *, decimate: bool = False) -> RasterSource:
@@ -35,6 +36,26 @@ def _block_sample(source: RasterSource, context: Context) -> BlockSample | None:
             or (draft.transform.c, draft.transform.f) != (full.transform.c, full.transform.f):
         return None
     return BlockSample.of(source, draft, full, k)
+
+
+def lut_index(lut, values: np.ndarray) -> np.ndarray:
+    """``lut.index(values)`` as uint16 (:meth:`compose.ramps.lut.Lut.index`): for a continuous
+    or stepped table and a 2-D float array, by the compiled kernel (:mod:`compose.kernels`) in
+    one pass, the same float64 steps value by value, so the same indices."""
+    kernel = compiled()
+    v = np.asarray(values)
+    if kernel is not None and lut.kind != "qualitative" and v.ndim == 2 \
+            and v.dtype in (np.float32, np.float64) and 1 <= lut.n <= 65533 \
+            and (lut.width is None or lut.width > 0):
+        index = np.empty(v.shape, np.uint16)
+        edges = np.ascontiguousarray(lut.edges, dtype=np.float64)
+        at, first, width2 = lut.split if lut.split is not None else (0.0, -1, 1.0)
+        even = lut.width is not None
+        kernel.lut_index(v, index, float(edges[0]), float(edges[-1]), lut.n,
+                         float(lut.origin) if even else 0.0, float(lut.width) if even else 0.0,
+                         None if even else edges[1:-1], float(at), int(first), float(width2))
+        return index
+    return lut.index(values).astype(np.uint16, copy=False)
 
 
 class FieldLayer:
@@ -96,7 +117,7 @@ class FieldLayer:
         values = self.early.take(window) if self.early is not None else None
         if values is None:
             values = self._read(window)
-        index = self.lut.index(values).astype(np.uint16, copy=False)
+        index = lut_index(self.lut, values)
         if self.transparent_nodata:
             alpha = (index != self.lut.nodata_index).astype(np.float32)
         else:

@@ -12,6 +12,7 @@ import numpy as np
 from affine import Affine
 
 from compose.canvas import Canvas, Window
+from compose.kernels import get as compiled
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.early import PAD, BlockSample, EarlyRead
 from compose.layers.hillshade import horn_gradient, multidirectional, stretch_factor
@@ -20,7 +21,7 @@ from compose.ramps.relief import LEVELS, relief_colors
 from compose.sources.crs import never_mercator
 from compose.sources.raster import cell_size_metres
 
-__all__ = ["ReliefLayer", "relief_palette", "ground_cell_size", "ground_scale", "LEVELS",
+__all__ = ["ReliefLayer", "relief_palette", "shade_levels", "ground_cell_size", "ground_scale", "LEVELS",
            "SAMPLE_WINDOWS", "SAMPLE_SIZE", "spread_windows"]
 
 #: Guards a draft relief's stretch, decided on its early read's thread or where it paints
@@ -83,6 +84,25 @@ def ground_cell_size(crs, transform, height: int, scale=None):
     _, gy = scale(np.array([transform.f + transform.e * (int(height) / 2.0)]))
     unit = abs(transform.a), abs(transform.e)
     return unit[0] * gx.reshape(-1, 1), float(unit[1] * gy[0])
+
+
+def shade_levels(shade: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A shade (H, W) float32 in [0, 1] (NaN: no data; changed in place) as the relief
+    palette's entries: (index (H, W) uint16, shade x (LEVELS - 1) rounded half to even, LEVELS
+    where not finite; alpha (H, W) float32, 1 where finite, else 0). One pass by the compiled
+    kernel when there is one (:mod:`compose.kernels`; the same numbers)."""
+    kernel = compiled()
+    if kernel is not None and shade.dtype == np.float32 and shade.ndim == 2 \
+            and shade.flags.c_contiguous:
+        index = np.empty(shade.shape, np.uint16)
+        alpha = np.empty(shade.shape, np.float32)
+        if kernel.levels(shade, float(LEVELS - 1), index, alpha) >= 0:
+            return index, alpha
+    valid = np.isfinite(shade)
+    shade *= np.float32(LEVELS - 1)          # in place: the shade is ours
+    np.rint(shade, out=shade)
+    shade[~valid] = LEVELS                   # the no-data entry
+    return shade.astype(np.uint16), valid.astype(np.float32)
 
 
 def relief_palette(tint, shadow, strength: float, altitude: float) -> Palette:
@@ -167,12 +187,7 @@ class ReliefLayer:
             dx, dy = ground_cell_size(self.canvas.crs, transform, height, self.scale)
             shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
                                      exaggeration=self.exaggeration, directions=o.directions)
-        valid = np.isfinite(shade)
-        shade *= np.float32(LEVELS - 1)          # in place: the shade is ours
-        np.rint(shade, out=shade)
-        shade[~valid] = LEVELS                   # the no-data entry
-        index = shade.astype(np.uint16)
-        alpha = valid.astype(np.float32)
+        index, alpha = shade_levels(shade)
         return [Paint("shade", alpha, index=index, palette=self.palette)]
 
     def _draft_shade(self, window) -> np.ndarray:
