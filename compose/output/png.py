@@ -8,12 +8,14 @@ the pieces' own. Pieces are :data:`PIECE_ROWS` rows whatever the bands (a band i
 are held until a piece is full), so the file is the same whatever the thread count and the
 window size: it depends only on the pixels.
 
-The deflate implementation is ISA-L's (python package ``isal``) at level 3: on the 8192 x 8192
-benchmark map's filtered bands about 350 MB/s of one core against 140 MB/s for zlib-ng at level 3
-and 48 MB/s for zlib at level 6, for a stream 4.7 % larger than zlib level 6's (zlib-ng level 3:
-3.2 %; measured here, no source). Without isal, zlib-ng at level 3; without either, the standard
-library's zlib at level 6 (a level above 3, asked for by a caller, goes to zlib-ng). Memory
-holds at most ``2 x threads`` pieces in flight.
+The deflate implementation is ISA-L's (python package ``isal``) at level 2: on the 8192 x 8192
+benchmark map's filtered pieces 0.35 s of one core against 0.75 s at its level 3, for a stream
+2.6 % larger (78.1 against 76.1 MB; 7.5 % above zlib level 6's, level 3's 4.7 %); on the
+1500 x 1500 demo map (coast) level 2's stream is 2.1 % smaller than level 3's (measured, no
+source). zlib-ng at level 3 runs at about 140 MB/s of one core and zlib at level 6 at 48 MB/s.
+Without isal, zlib-ng at level 3; without either, the standard library's zlib at level 6 (a
+level above 3, asked for by a caller, goes to zlib-ng). Memory holds at most ``2 x threads``
+pieces in flight.
 """
 from __future__ import annotations
 
@@ -40,7 +42,7 @@ try:
     from zlib_ng import zlib_ng as _zlib_ng
 except ImportError:                     # pragma: no cover - zlib-ng is a dependency
     pass
-LEVEL, DEFLATE = (3, "isal") if _isal is not None else (3, "zlib-ng") if _zlib_ng is not None \
+LEVEL, DEFLATE = (2, "isal") if _isal is not None else (3, "zlib-ng") if _zlib_ng is not None \
     else (6, "zlib")
 
 
