@@ -218,6 +218,10 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
     early = None
     try:
         if style.page is not None:      # forked now: its imports load beside the preparation
+            from compose.layers.label_layer import load_text_modules, measures_text
+
+            if measures_text(style):    # loaded by prepare anyway: once, for both processes
+                load_text_modules()
             early = _page_job(style, None, outputs.temporaries(), legend or html, html)
         with span("prepare"):
             prepared = prepare(style, ramps=ramps, keep_clear=blocked_for)

@@ -273,3 +273,49 @@ def test_the_review_page_with_its_ramps_made_by_the_page_process_is_the_same(tmp
     assert made[0] is None and made[1] and 'id="ramps"' not in made[1]
     assert made[1] in pages[1] and "data:image/svg" in made[1]
     assert pages[0] == pages[1]
+
+
+_INHERITED = """
+import sys
+import compose.page.process as process
+from compose.render import render_style
+from compose.style import load_style
+from compose.style.overrides import parse_override
+
+child = process._child
+
+
+def noting(inbox, outbox, parent, job):
+    with open(sys.argv[2], "w") as f:      # before the child loads anything of its own
+        f.write(" ".join(m for m in ("matplotlib", "matplotlib.textpath") if m in sys.modules))
+    child(inbox, outbox, parent, job)
+
+
+process._child = noting
+style = load_style(sys.argv[1], overrides=tuple(parse_override(s) for s in sys.argv[4:]))
+render_style(style, sys.argv[3], html=False)
+"""
+
+
+@pytest.mark.parametrize("labelled", [True, False])
+def test_the_page_process_inherits_the_text_modules_of_a_labelled_style(tmp_path, labelled):
+    """A style with a labels layer loads matplotlib's text modules while it is prepared; the
+    render loads them before it forks the page process, whose writers need them too, so the
+    child starts with them (a fresh interpreter: this one has matplotlib already). A style
+    without labels leaves matplotlib to the child (its render never loads it)."""
+    import subprocess
+    import sys
+
+    from compose.demo import styles_dir
+    from compose.layers.label_layer import measures_text
+    from compose.style import load_style
+    from compose.style.overrides import parse_override
+
+    coast = styles_dir() / "coast.toml"
+    sets = [] if labelled else [f"layer.{name}.enabled=false" for name in ("town names",
+                                                                          "river names")]
+    assert measures_text(load_style(coast, overrides=tuple(map(parse_override, sets)))) == labelled
+    seen = tmp_path / "seen.txt"
+    subprocess.run([sys.executable, "-c", _INHERITED, str(coast), str(seen), str(tmp_path / "out"),
+                    *sets], check=True, capture_output=True)
+    assert seen.read_text().split() == (["matplotlib", "matplotlib.textpath"] if labelled else [])
