@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 import threading
+from collections import deque
 from collections.abc import Callable
 from concurrent.futures import Future
 
@@ -27,13 +28,13 @@ PAD = 16
 
 
 class EarlyRead:
-    """``read(window)`` for the whole canvas (padded by :data:`PAD`) on its own thread."""
+    """``read(window)`` for the whole canvas (padded by :data:`PAD`), on the draft's reading
+    thread (:func:`_submit`: one for all the layers' early reads, in the order they were made)."""
 
     def __init__(self, canvas: Canvas, read: Callable[[Window], np.ndarray]) -> None:
         self.window = canvas.whole(PAD)
         self.future: Future = Future()
-        thread = threading.Thread(target=self._run, args=(read,), name="draft-read", daemon=True)
-        thread.start()
+        _submit(lambda: self._run(read))
 
     def _run(self, read) -> None:
         try:
@@ -56,6 +57,38 @@ class EarlyRead:
             self.future.exception()
         except BaseException:               # pragma: no cover - cancelled
             pass
+
+
+#: Early reads waiting for the reading thread, and whether that thread is running.
+_QUEUE: deque = deque()
+_QUEUE_LOCK = threading.Lock()
+_READER: list[bool] = [False]
+
+
+def _submit(job: Callable[[], None]) -> None:
+    """Run ``job`` on the draft's reading thread: one thread runs the early reads one after
+    another (started when a read is queued, ending when none is left). The reads decode
+    raster blocks with GDAL, which releases Python's lock, beside the vector reads' thread and
+    the preparing thread; on a machine of two cores one reading thread leaves a core to the
+    lines, which are read, cut and drawn one step after another while the rasters have until
+    the walk to finish, where two reading threads (a theme's and its relief's) took turns with
+    the lines on both cores."""
+    with _QUEUE_LOCK:
+        _QUEUE.append(job)
+        if _READER[0]:
+            return
+        _READER[0] = True
+    threading.Thread(target=_drain, name="draft-read", daemon=True).start()
+
+
+def _drain() -> None:
+    while True:
+        with _QUEUE_LOCK:
+            if not _QUEUE:
+                _READER[0] = False
+                return
+            job = _QUEUE.popleft()
+        job()
 
 
 #: :meth:`BlockSample.cells` made so far (a few), by everything that decides them.

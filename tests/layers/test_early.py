@@ -302,3 +302,34 @@ def test_a_sampled_draft_measures_its_relief_stretch_on_its_own_cells(tmp_path, 
     assert 5 < full < every_cell                # stretched; the 9 windows read low here
     assert abs(draft / full - 1) <= 0.10, (draft, full)
     assert abs(draft / every_cell - 1) <= 0.03, (draft, every_cell)
+
+
+def test_early_reads_run_one_after_another_on_one_thread_that_ends_when_idle():
+    """A draft's early reads (relief, field, ...) share one reading thread, in the order they
+    were made, which ends once no read is left (a full check forks its helpers only while no
+    other thread runs, see compose.api._Helpers)."""
+    import threading
+    import time
+
+    from compose.canvas import Canvas
+    from compose.layers.early import EarlyRead
+
+    canvas = Canvas.from_extent("EPSG:32630", (0, 0, 3000, 3000), 30)
+    seen: list[tuple[int, int]] = []
+
+    def read(k):
+        def run(window):
+            seen.append((k, threading.get_ident()))
+            time.sleep(0.01)
+            return np.full(window.padded[2:], k, np.float32)
+        return run
+
+    reads = [EarlyRead(canvas, read(k)) for k in range(3)]
+    window = canvas.whole(2)
+    assert [float(r.take(window)[0, 0]) for r in reads] == [0.0, 1.0, 2.0]
+    assert [k for k, _ in seen] == [0, 1, 2] and len({t for _, t in seen}) == 1
+    for _ in range(200):
+        if not any(t.name == "draft-read" for t in threading.enumerate()):
+            break
+        time.sleep(0.01)
+    assert not any(t.name == "draft-read" for t in threading.enumerate())
