@@ -41,7 +41,7 @@ except ImportError:                     # pragma: no cover - isal is a dependenc
 BLOCK = 256
 
 __all__ = ["png_bytes", "fast_png", "PngRows", "remember", "deferred", "filled", "png_of",
-           "PLACEHOLDER", "LEVEL", "BLOCK"]
+           "known_png", "idat", "PLACEHOLDER", "LEVEL", "BLOCK"]
 
 _TYPES = {"L": (1, 0), "RGB": (3, 2), "RGBA": (4, 6)}
 _lock = threading.Lock()
@@ -49,6 +49,7 @@ _users = 0
 _saved: Any = None
 _encoded: dict[tuple, bytes] = {}      # PNG files made in the current fast_png() block
 _known: dict[tuple, bytes] = {}        # PNG files made beforehand (remember())
+_held: list[tuple[np.ndarray, bytes]] = []     # ... and the arrays they were made of
 
 
 def _chunk(kind: bytes, data: bytes) -> bytes:
@@ -140,11 +141,35 @@ class PngRows:
         return _key(self.mode, shape, digest), data
 
 
-def remember(key: tuple, data: bytes) -> None:
+def remember(key: tuple, data: bytes, pixels: np.ndarray | None = None) -> None:
     """File a PNG made beforehand (:class:`PngRows`) for the saves of its pixels in
-    :func:`fast_png` blocks of this process."""
+    :func:`fast_png` blocks of this process; ``pixels``: the array it was made of, finished and
+    never changed again, found by :func:`known_png` (and :func:`png_of`) without reading it."""
     with _lock:
         _known[key] = data
+        if pixels is not None:
+            _held.append((pixels, data))
+
+
+def known_png(pixels: np.ndarray) -> bytes | None:
+    """The PNG file :func:`remember` filed with this very array object (not a copy or another
+    view of it), else None."""
+    with _lock:
+        return next((data for held, data in _held if held is pixels), None)
+
+
+def idat(png: bytes) -> bytes:
+    """The image data of a PNG file: its IDAT chunks' contents joined (PNG section 11.2.4), what
+    matplotlib's PDF writer embeds as a Flate stream with PNG predictors."""
+    out, at = [], 8
+    while at + 8 <= len(png):
+        length, kind = struct.unpack(">I4s", png[at:at + 8])
+        if kind == b"IDAT":
+            out.append(png[at + 8:at + 8 + length])
+        elif kind == b"IEND":
+            break
+        at += 12 + length
+    return b"".join(out)
 
 
 #: what a save of an image whose pixels are not finished writes instead of its PNG file
@@ -182,7 +207,11 @@ def filled(text: bytes, png: bytes) -> bytes | None:
 
 def png_of(pixels: np.ndarray) -> bytes:
     """The PNG file :func:`fast_png` saves of ``pixels`` (H, W, 3) RGB uint8: the one
-    :func:`remember` filed for them, else :func:`png_bytes`."""
+    :func:`remember` filed for them (for this array object: without reading it), else
+    :func:`png_bytes`."""
+    known = known_png(pixels)
+    if known is not None:
+        return known
     pixels = np.ascontiguousarray(pixels, dtype=np.uint8)
     key = _key("RGB", pixels.shape, hashlib.blake2b(pixels.data, digest_size=20).digest())
     with _lock:

@@ -296,7 +296,7 @@ def _walked(inp, sink, early: Callable[..., Any] | None = None,
             from compose.page.encode import remember
 
             encode(base.shape[0])
-            remember(*stream.finish())
+            remember(*stream.finish(), pixels=base)
         walked, final = True, value
         return None
 

@@ -564,13 +564,75 @@ def map_rows_stored_top_first(fig, base: np.ndarray, rgba: np.ndarray | None = N
         return
     image.set_data(base[::-1])
     image.origin = "lower"
+    held = contextlib.nullcontext()
     if rgba is not None:
         image._imcache = rgba[::-1]     # what it would compute from base[::-1], uncopied
+        held = _pdf_map_from_png(base, rgba)
     try:
-        yield
+        with held:
+            yield
     finally:
         image.set_data(base)
         image.origin = "upper"
+
+
+def _same_view(a: np.ndarray, b: np.ndarray) -> bool:
+    """Whether ``a`` and ``b`` are the same pixels of the same memory (one view of it)."""
+    return (a.shape == b.shape and a.strides == b.strides and a.dtype == b.dtype
+            and a.__array_interface__["data"][0] == b.__array_interface__["data"][0])
+
+
+@contextlib.contextmanager
+def _pdf_map_from_png(base: np.ndarray, rgba: np.ndarray):
+    """Within the block, matplotlib's PDF writer embeds the map image drawn from ``rgba``
+    (flipped, :func:`map_rows_stored_top_first`) from the PNG filed for ``base``
+    (:func:`compose.page.encode.remember` with ``pixels=base``, by the page process at the
+    walk's end) without reading the pixels again: matplotlib's own path copies the RGB out of
+    the RGBA, hands it to Pillow, which copies it twice more, and the PNG is found again by a
+    hash of the pixels, 0.05-0.15 CPU-s after the walk measured here. The stream written is
+    matplotlib's for an opaque RGB image of more than 256 colours (``_writeImg``: the PNG's
+    image data as a Flate stream with PNG predictors); anything else -- no PNG filed, an alpha
+    below 255, 256 colours or fewer (stored indexed), compression off -- goes through
+    matplotlib's own path with the array its ``_unpack`` would make."""
+    import matplotlib as mpl
+    from matplotlib.backends.backend_pdf import Name, PdfFile
+    from PIL import Image
+
+    from compose.page.encode import idat, known_png
+
+    flipped = rgba[::-1]
+    marker = object()
+    unpack, write_img = PdfFile._unpack, PdfFile._writeImg
+
+    def _unpack(self, im):
+        if (isinstance(im, np.ndarray) and _same_view(im, flipped)
+                and bool((rgba[..., 3] == 255).all())):          # opaque: no soft mask
+            return marker, None
+        return unpack(self, im)
+
+    def _writeImg(self, data, id, smask=None):          # noqa: N802 - matplotlib's name
+        if data is not marker:
+            return write_img(self, data, id, smask)
+        png = known_png(base)
+        h, w = base.shape[:2]
+        if (png is None or not mpl.rcParams["pdf.compression"]
+                or Image.frombuffer("RGBA", (w, h), rgba, "raw", "RGBA", 0, 1).getcolors(256)
+                is not None):
+            return write_img(self, unpack(self, flipped)[0], id, smask)
+        obj = {"Type": Name("XObject"), "Subtype": Name("Image"), "Width": w, "Height": h,
+               "ColorSpace": Name("DeviceRGB"), "BitsPerComponent": 8}
+        self.beginStream(id, self.reserveObject("length of image stream"), obj,
+                         png={"Predictor": 10, "Colors": 3, "Columns": w})
+        self.currentstream.write(idat(png))
+        self.endStream()
+
+    PdfFile._unpack = _unpack                   # type: ignore[method-assign]
+    PdfFile._writeImg = _writeImg               # type: ignore[method-assign]
+    try:
+        yield
+    finally:
+        PdfFile._unpack = unpack                # type: ignore[method-assign]
+        PdfFile._writeImg = write_img           # type: ignore[method-assign]
 
 
 #: the page PNG is drawn at no fewer dots per inch than this (a canvas of a few pixels per inch

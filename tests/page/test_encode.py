@@ -148,6 +148,35 @@ def test_an_opaque_rgba_save_is_stored_as_rgb():
     assert back.mode == "RGBA" and np.array_equal(np.asarray(back), rgba)
 
 
+def test_a_png_filed_with_its_array_is_found_by_that_array_alone():
+    """compose.page.encode.known_png / png_of: a PNG remembered with ``pixels`` is given back
+    for that very array object without reading it (a marked file proves it was not encoded
+    again); a copy or another view of the same pixels is looked up by its hash or encoded,
+    and idat() gives the image data matplotlib's PDF writer embeds (PNG section 11.2.4)."""
+    image = _image("RGB")
+    rows = encode.PngRows(image.shape[1], "RGB")
+    rows.add(image)
+    key, data = rows.finish()
+    other = image[::-1].copy()
+    other_key = ("RGB", other.shape, b"x")
+    marked = data + b"filed"
+    try:
+        encode.remember(other_key, marked, pixels=other)
+        assert encode.known_png(other) is marked and encode.png_of(other) is marked
+        assert encode.known_png(other[:]) is None
+        assert encode.png_of(other[:]) == encode.png_bytes(other)
+        encode.remember(key, data)
+        assert encode.known_png(image) is None and encode.png_of(image.copy()) == data
+    finally:
+        encode._known.pop(key, None)
+        encode._known.pop(other_key, None)
+        encode._held[:] = [(a, d) for a, d in encode._held if a is not other]
+    import zlib
+
+    raw = zlib.decompress(encode.idat(data))            # filtered rows: a type byte each
+    assert len(raw) == image.shape[0] * (image.shape[1] * 3 + 1)
+
+
 def test_a_deferred_save_is_filled_with_the_png_afterwards():
     """compose.page.encode.deferred: the save of an unfinished image of the deferred size writes
     the placeholder; filled() puts the finished image's PNG data in its place as base64 (the

@@ -461,3 +461,60 @@ def test_a_page_png_of_a_coarse_canvas_is_written_after_the_walk(tmp_path):
     with pytest.raises(ValueError):
         PagePngRows(tmp_path / "p.png", (top, (1, 1, 1, 1)), layout,
                     np.zeros((20, 20, 3), np.uint8), 200.0)
+
+
+@pytest.mark.parametrize("kind", ["many colours", "few colours", "translucent"])
+def test_the_pdf_embeds_the_map_from_the_png_filed_for_it(kind):
+    """compose.page.write._pdf_map_from_png: the map drawn from its shared RGBA
+    (map_rows_stored_top_first with ``rgba``) is embedded from the PNG filed for ``base``
+    (compose.page.encode.remember with ``pixels=base``) without reading the pixels: a PNG of
+    other pixels filed for it gives the PDF of those pixels, byte for byte the file matplotlib's
+    own path writes of them (an opaque RGB image of more than 256 colours: ISO 32000-1 7.4.4.4,
+    a Flate stream with PNG predictors). An image of 256 colours or fewer (stored indexed) or
+    with an alpha below 255 (a soft mask) goes through matplotlib's own path: the PDF of its
+    own pixels."""
+    import io
+
+    from matplotlib.figure import Figure
+
+    from compose.page import encode
+    from compose.page.draw import MAP_AXES
+    from compose.page.write import map_rows_stored_top_first
+
+    rng = np.random.default_rng(5)
+
+    def image():
+        rgba = np.full((48, 64, 4), 255, np.uint8)
+        colours = 200 if kind == "few colours" else 256
+        rgba[..., :3] = rng.integers(0, colours, (48, 64, 1)) * np.array([1, 1, 0]) + (0, 0, 9)
+        rgba[..., 2] = rng.integers(0, 256, (48, 64)) if kind != "few colours" else 9
+        if kind == "translucent":
+            rgba[3, 5, 3] = 128
+        return rgba
+
+    def pdf(rgba, base=None):
+        """The PDF of a page showing ``rgba``'s colours; with ``base`` (the very array filed),
+        drawn from ``rgba`` as the page process draws it."""
+        fig = Figure(figsize=(2, 2))
+        ax = fig.add_axes((0, 0, 1, 1), label=MAP_AXES)
+        shown = rgba[..., :3] if base is None else base
+        ax.imshow(shown, interpolation="none")
+        fig.text(0.1, 0.1, "Harbour")
+        buf = io.BytesIO()
+        with encode.fast_png(), map_rows_stored_top_first(fig, shown,
+                                                          None if base is None else rgba):
+            fig.savefig(buf, format="pdf", metadata={"CreationDate": None})
+        return buf.getvalue()
+
+    mine, other = image(), image()
+    base = mine[..., :3]
+    rows = encode.PngRows(other.shape[1], "RGB")
+    rows.add(np.ascontiguousarray(other[..., :3]))
+    encode.remember(*rows.finish(), pixels=base)        # another image's PNG filed for it
+    got = pdf(mine, base)
+    if kind == "many colours":
+        assert got == pdf(other) != pdf(mine)
+    elif kind == "few colours":
+        assert got == pdf(mine) != pdf(other)
+    else:       # drawn with its alpha (no PNG filed for this other view of the same pixels)
+        assert got == pdf(mine, mine[..., :3]) != pdf(other)
