@@ -11,7 +11,8 @@ For every size it prints, from the same run:
   * the default ``compose render`` command with all its outputs (wall time, peak memory of the
     child process);
   * every target beside its floor (medians of 3 runs): the bare render (PNG + GeoTIFF + check)
-    with 1 and 2 workers against the summed floors, compute alone with and without the
+    with the automatic workers (what ``compose render`` does without ``--workers``), 1 and 2
+    workers against the summed floors, compute alone with and without the
     statistics against the compute floor (medians of at least 3 alternating pairs; the
     statistics' share from the median of the pairs' differences), and the share of the
     encoders' own work that ran beside the compute (the render's own timers); the layer
@@ -241,6 +242,7 @@ limit_arenas()
 from compose.style import load_style
 style = load_style(style_path)
 mapper, cluster = None, None
+result = {}
 workers = extra.pop("workers", None)
 processes = extra.pop("processes", None)
 if extra.pop("cluster", False):          # a LocalCluster of 2 worker processes, 1 thread each
@@ -252,10 +254,16 @@ if extra.pop("cluster", False):          # a LocalCluster of 2 worker processes,
 elif processes:
     from compose.parallel import ProcessMapper
     mapper = ProcessMapper(processes)
+elif extra.pop("auto", False):            # what compose render does with no --workers
+    from compose.parallel import mapper_for
+    canvas = style.canvas()
+    mapper = mapper_for(canvas.width * canvas.height)
+    n = getattr(mapper, "workers", 0)
+    result["mapper"] = (f"{n} window thread{'s' if n != 1 else ''} + the drawing helper process"
+                        if n else "this thread, no helper")
 elif workers:                            # what --workers does: threads sharing the render
     from compose.parallel import ThreadMapper
     mapper = ThreadMapper(workers) if workers > 1 else None
-result = {}
 t0 = time.perf_counter()
 if mode == "bare":
     from compose.render import render_style
@@ -366,6 +374,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     t_png_ng, png_ratio_ng = floors.png_fast(tif, impl="zlib-ng")
     encode_floor = t_tif6 + min(t_png, t_png_ng)
     total2, bare2 = median_task(runs, wall, "bare", styles["aligned"], out, workers=2)
+    total_auto, bare_auto = median_task(runs, wall, "bare", styles["aligned"], out, auto=True)
     comp = lambda r: r["compute"]          # noqa: E731
     # compute with and without the statistics in alternating pairs (at least 3 even with
     # --quick): the statistics' cost is the median of the pairs' differences, which a shared
@@ -391,11 +400,14 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"(on 2 cores at best {floors_sum / 2:.2f} s)")
     print(f"targets beside floors (median of {runs}; one run, same machine state; every task with "
           f"the command's malloc settings, compose.heap.limit_arenas)")
-    print(f"  bare render (PNG + GeoTIFF + check), 1 worker   {total:6.2f} s wall, peak "
-          f"{gb(bare1['peak'])}  = {total / floors_sum:.2f} x floors summed")
-    print(f"  bare render, 2 workers (threads)                {total2:6.2f} s wall  "
-          f"= {total2 / floors_sum:.2f} x floors summed, {total / total2:.2f} x faster than 1 worker "
-          f"(targets: <= 6 s at 8192, > 1 x)")
+    print(f"  bare render (PNG + GeoTIFF + check), automatic workers (compose render's default: "
+          f"{bare_auto.get('mapper')})  "
+          f"{total_auto:6.2f} s wall, peak {gb(bare_auto['peak'])}  = {total_auto / floors_sum:.2f} x "
+          f"floors summed, {total / total_auto:.2f} x faster than 1 worker (target: <= 6 s at 8192)")
+    print(f"  bare render, 1 worker (--workers 1: this thread draws the lines too)  {total:6.2f} s "
+          f"wall, peak {gb(bare1['peak'])}  = {total / floors_sum:.2f} x floors summed")
+    print(f"  bare render, 2 workers (threads + the drawing helper)  {total2:6.2f} s wall  "
+          f"= {total2 / floors_sum:.2f} x floors summed, {total / total2:.2f} x faster than 1 worker")
     print(f"  compute alone, measuring, 1 thread              {measured:6.2f} s  "
           f"= {measured / compute_floor:.2f} x compute floor {compute_floor:.2f} s (target <= 1.5 x)")
     print(f"  compute alone, not measuring                    {plain:6.2f} s  "
@@ -412,7 +424,8 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  encode beside compute (render's own timers)     {100 * overlap(own1):6.0f} % of "
           f"{own1.get('encode-work', 0):.2f} s encoder work overlapped, 1 worker; "
           f"{100 * overlap(own2):.0f} % with 2 (encode floor {encode_floor:.2f} s)")
-    for name, own in (("1 worker", own1), ("2 workers", own2)):
+    for name, own in (("automatic", bare_auto.get("seconds", {})), ("1 worker", own1),
+                      ("2 workers", own2)):
         print(f"  render's own timers, {name}: " + ", ".join(
             f"{k} {v:.2f}" for k, v in sorted(own.items())), flush=True)
 

@@ -32,7 +32,7 @@ from typing import Any
 from compose.packing import pack, unpack
 
 __all__ = ["ThreadMapper", "ProcessMapper", "ClusterMapper", "mapper_for", "pack", "unpack", "ordered",
-           "default_workers", "window_task", "AUTO_PIXELS", "AUTO_WORKERS"]
+           "default_workers", "auto_workers", "window_task", "AUTO_PIXELS", "AUTO_WORKERS"]
 
 #: Canvases from this many pixels up use every core when no worker count is given (below it,
 #: starting worker processes costs more than it saves; measured by bench/render.py).
@@ -245,17 +245,28 @@ class ClusterMapper:
                 client.close()
 
 
+def auto_workers() -> int:
+    """Window threads of a render given no worker count: every core but one, at most
+    :data:`AUTO_WORKERS`. The core left is the one the drawing helper process
+    (:mod:`compose.drawer`, which a :class:`ThreadMapper` starts for lines, areas and points)
+    and the PNG and GeoTIFF encoders' threads share: with 1 window thread the 8192 x 8192 bench
+    render already keeps 2 cores busy, and a second window thread only contends with them."""
+    return max(1, min(default_workers() - 1, AUTO_WORKERS))
+
+
 def mapper_for(pixels: int, workers: int | None = None, cluster=None):
     """The mapper for a render of ``pixels`` pixels: a :class:`ClusterMapper` for ``cluster``;
-    else a :class:`ThreadMapper` for ``workers`` > 1 (None: every core up to
-    :data:`AUTO_WORKERS`, for canvases of at least :data:`AUTO_PIXELS`); None (this thread)
-    otherwise. Threads, not processes: they share the prepared render (no second start-up and
-    preparation, one copy in memory). The PNG and GeoTIFF encoders run on threads of their own
-    beside the walk. On the quiet 2-core benchmark machine 2 window threads rendered the
-    8192 x 8192 bench style 1.13 x faster than one (8.97 vs 10.10 s; on a loaded machine a
-    second thread can lose to GIL contention, so ``--workers 1`` stays available)."""
+    else a :class:`ThreadMapper` for ``workers`` > 1, or, with no ``workers`` for canvases of
+    at least :data:`AUTO_PIXELS` on 2 cores or more, one of :func:`auto_workers` threads (with
+    the drawing helper: one thread and the helper on 2 cores); None (this thread, lines drawn
+    here) otherwise. Threads, not processes: they share the prepared render (no second start-up
+    and preparation, one copy in memory). On the 2-core benchmark machine (load about 3,
+    alternating, 8192 x 8192 bare render) 1 thread with the helper took 4.63-5.84 s (median
+    4.66), 2 threads with it 4.36-9.18 s (median 6.1), 1 thread drawing itself 5.39-6.70 s."""
     if cluster:
         return ClusterMapper(cluster)
-    if workers is None:     # every core, up to AUTO_WORKERS
-        workers = min(default_workers(), AUTO_WORKERS) if pixels >= AUTO_PIXELS else 1
+    if workers is None:     # every core but one (the helper's and the encoders'), if 2 or more
+        if pixels < AUTO_PIXELS or default_workers() < 2:
+            return None
+        return ThreadMapper(auto_workers())
     return ThreadMapper(workers) if workers > 1 else None

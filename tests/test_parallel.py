@@ -180,20 +180,21 @@ def test_mapper_choice():
     assert mapper_for(10, workers=3).workers == 3                  # asked for: honoured
     assert isinstance(mapper_for(10, workers=2), ThreadMapper)
     auto = mapper_for(AUTO_PIXELS)
-    assert auto is None or 2 <= auto.workers <= 8
+    assert auto is None or 1 <= auto.workers <= 8
     assert isinstance(mapper_for(10, cluster="tcp://127.0.0.1:1"), ClusterMapper)
 
 
-def test_default_workers_use_every_core_for_large_maps(monkeypatch):
+def test_default_workers_leave_a_core_to_the_drawing_helper_for_large_maps(monkeypatch):
     import compose.parallel as par
 
+    # every core but one, which the drawing helper and the encoders share
     monkeypatch.setattr(par, "default_workers", lambda: 2)
     auto = par.mapper_for(par.AUTO_PIXELS)
-    assert isinstance(auto, ThreadMapper) and auto.workers == 2
+    assert isinstance(auto, ThreadMapper) and auto.workers == 1 and auto.draw_process
     assert par.mapper_for(par.AUTO_PIXELS - 1) is None            # small maps: this thread
     monkeypatch.setattr(par, "default_workers", lambda: 4)
     auto = par.mapper_for(par.AUTO_PIXELS)
-    assert isinstance(auto, ThreadMapper) and auto.workers == 4
+    assert isinstance(auto, ThreadMapper) and auto.workers == 3
     monkeypatch.setattr(par, "default_workers", lambda: 64)
     assert par.mapper_for(par.AUTO_PIXELS).workers == par.AUTO_WORKERS
     monkeypatch.setattr(par, "default_workers", lambda: 1)
