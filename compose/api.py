@@ -86,9 +86,10 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     (:mod:`compose.check_cache`): None or True its default directory, a path another one,
     False none (nor with a ``mapper``). A check that only changed colours reuses the layers'
     coverage and indices; its report is the same as without the cache. ``workers``: processes
-    walking the windows of a check without a cache (helpers forked beside this one, see
-    :class:`_Helpers`; None: one per core while the cores are free, see :func:`helper_count`);
-    the same report with any number."""
+    walking the windows of a check that reads its sources (no cache, or a cache that records
+    them; not a check replayed wholly from the cache): helpers forked beside this one, see
+    :class:`_Helpers`; None: one per core while the cores are free, see :func:`helper_count`;
+    the same report and cache entries with any number."""
     style = _style(style)     # a bad style fails before the engine's imports
     from compose.check.draft import draft_canvas
 
@@ -153,7 +154,7 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
         prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
                            make_layer=None if store is None else store.layer)
     helpers = None
-    if store is None and mapper is None:
+    if mapper is None and (store is None or not store.warm):
         helpers = _Helpers.start(prepared, workers)
         if helpers is not None:
             mapper = helpers.mapper
@@ -214,12 +215,16 @@ class _Helpers:
     (:meth:`compose.sources.raster.RasterSource.reopen`: inherited handles share their file
     offsets with this process's); fonts are not read in the walk (labels are measured and placed
     while preparing). A helper that fails, or sends nothing for long (:data:`HELPER_PATIENCE`),
-    has its windows walked here. Helpers start only where forking is safe
+    has its windows walked here. Layers the check's cache records
+    (:class:`compose.check_cache.replay.Recorder`) are recorded in a helper window by window and
+    sent back with the statistics, and recorded here in window order: the same cache entries as
+    a walk in one process. Helpers start only where forking is safe
     (:func:`compose.page.process.can_fork`: Linux, no other thread running; nor any thread a
     library started in C since the API was imported, see :data:`_THREADS_AT_IMPORT`)."""
 
-    def __init__(self, jobs: list):
+    def __init__(self, jobs: list, recorders: list):
         self._jobs = jobs
+        self._recorders = recorders
 
     @classmethod
     def start(cls, prepared, workers: int | None):
@@ -236,7 +241,11 @@ class _Helpers:
         if not can_fork() or not 0 < _os_threads() <= _THREADS_AT_IMPORT:
             return None
 
-        def walk(part: int) -> list[bytes]:
+        from compose.check_cache.replay import Recorder
+
+        recorders = [layer for layer in prepared.layers if isinstance(layer, Recorder)]
+
+        def walk(part: int) -> list[tuple[bytes, list]]:
             import dataclasses
             import gc
 
@@ -249,19 +258,23 @@ class _Helpers:
                 reopen = getattr(getattr(layer, "source", None), "reopen", None)
                 if reopen is not None:
                     reopen()
+            for rec in recorders:
+                rec.forward()
             got: list = []
 
             def mine(task, windows):
                 for w in _share(windows, n + 1, part):
                     res = task(w)
-                    got.append(pack(res.statistics))    # merged by the parent, not by run
+                    # merged and recorded by the parent, not by run
+                    got.append((pack(res.statistics), [rec.take(w) for rec in recorders]))
                     yield dataclasses.replace(res, statistics=None)
 
             with span(f"check helper {part} walks"):
                 run(prepared, [], mapper=mine, window=WINDOW)
             return got
 
-        return cls([Forked(functools.partial(walk, part)) for part in range(1, n + 1)])
+        return cls([Forked(functools.partial(walk, part)) for part in range(1, n + 1)],
+                   recorders)
 
     def mapper(self, task, windows):
         """The walk's mapper (:func:`compose.engine.run`): this process's windows, then each
@@ -291,7 +304,9 @@ class _Helpers:
                 job.abort()
                 yield from map(task, mine)
                 continue
-            for w, packed in zip(mine, got):
+            for w, (packed, taken) in zip(mine, got):
+                for rec, t in zip(self._recorders, taken):
+                    rec.adopt(w, t)
                 yield WindowResult(w, _NO_ROWS, unpack(packed))
 
     def close(self) -> None:

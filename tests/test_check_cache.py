@@ -282,3 +282,37 @@ def test_a_cold_check_reads_each_vector_source_once_early_and_a_warm_one_not_at_
     warm = check(demo, cache=tmp_path)
     assert calls == []
     assert json.dumps(warm.to_json(False)) == json.dumps(cold.to_json(False))
+
+
+def test_a_check_recording_its_cache_walks_with_helpers_and_writes_the_same_entries(tmp_path):
+    """A cold check with the cache (its first run after a change of sources or geometry) is
+    walked by helper processes too (compose.api._Helpers): each helper sends its windows' paints
+    with their statistics and the check records them in window order, so the entries are the
+    bytes a walk in one process writes, and the warm report is the cold one (our own invariant).
+    In a fresh process, as a command runs it (this one may have threads that forbid forking)."""
+    code = """
+import json, sys
+from pathlib import Path
+import compose, compose.page.process as process
+started = []
+real = process.Forked.__init__
+process.Forked.__init__ = lambda self, fn: started.append(1) or real(self, fn)
+style = compose.load_style(sys.argv[1], overrides={"map.pixel": 60})
+one, two = Path(sys.argv[2]) / "one", Path(sys.argv[2]) / "two"
+cold1 = json.dumps(compose.check(style, cache=one, workers=1).to_json(False))
+cold2 = json.dumps(compose.check(style, cache=two, workers=2).to_json(False))
+helpers = len(started)
+warm = json.dumps(compose.check(style, cache=two, workers=2).to_json(False))
+def entries(root):
+    return {p.name: p.read_bytes() for p in root.rglob("*.entry")}
+e1, e2 = entries(one), entries(two)
+print(json.dumps({"same_report": cold1 == cold2 == warm, "helpers": helpers,
+                  "after_warm": len(started), "entries": len(e1), "same_entries": e1 == e2}))
+"""
+    demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
+    out = subprocess.run([sys.executable, "-c", code, str(demo), str(tmp_path)],
+                         capture_output=True, text=True, check=True)
+    got = json.loads(out.stdout.strip().splitlines()[-1])
+    assert got["same_report"] and got["entries"] >= 5 and got["same_entries"]
+    if sys.platform.startswith("linux"):
+        assert got["helpers"] == 1 and got["after_warm"] == 1     # a warm check walks alone

@@ -93,15 +93,18 @@ class _Slot:
         self.index = np.zeros(shape, np.uint16) if indexed else None
 
     def put(self, core, alpha: np.ndarray, index: np.ndarray | None) -> None:
+        """Keep a window's ``core`` coverage (float32, or uint8 k for k / 255 exactly, as
+        :func:`_as_8bit` gives it) and lookup-table indices."""
         if self.alpha8 is not None:
-            a8 = _as_8bit(alpha)
+            a8 = alpha if alpha.dtype == np.uint8 else _as_8bit(alpha)
             if a8 is not None:
                 self.alpha8[core] = a8
             else:            # not 8-bit coverage: keep float32 from here on (exact either way)
                 self.alpha32 = np.divide(self.alpha8, np.float32(255), dtype=np.float32)
                 self.alpha8 = None
         if self.alpha32 is not None:
-            self.alpha32[core] = alpha
+            self.alpha32[core] = alpha if alpha.dtype != np.uint8 else \
+                np.divide(alpha, np.float32(255), dtype=np.float32)
         if self.index is not None and index is not None:
             self.index[core] = index
 
@@ -122,31 +125,75 @@ class Recorder:
         self._windows: dict[str, list[str]] = {}
         self._extra = extra
         self.ok = True
+        #: in a check's helper process: each window's paints as they come (see forward)
+        self._sent: list | None = None
 
     def __getattr__(self, name: str) -> Any:
+        if name == "_sent":         # before __init__ (unpickling): not forwarding
+            return None
         return getattr(self._layer, name)
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         paints = self._layer.paint(window, transform, height, width)
         if not self.ok:
             return paints
-        inner, core = window.inner, window.core
-        parts = []
-        for j, p in enumerate(paints):
+        inner = window.inner
+        got = []
+        for p in paints:
             if p.part not in self._colors or not _same_color(p, self._colors[p.part]):
                 self.ok = False         # painted in a colour this cache cannot reproduce
                 return paints
-            if j == len(self._slots):
-                self._slots.append(_Slot(self._shape, p.palette is not None))
-            slot = self._slots[j]
-            if (slot.index is None) != (p.palette is None):
-                self.ok = False
-                return paints
-            slot.put(core, np.ascontiguousarray(p.alpha[inner]),
-                     None if p.index is None else p.index[inner])
-            parts.append(p.part)
-        self._windows[_window_id(window)] = parts
+            alpha = np.ascontiguousarray(p.alpha[inner])
+            index = None if p.index is None else p.index[inner]
+            if self._sent is not None:  # sent to the check's process: copies, 8-bit when exact
+                a8 = _as_8bit(alpha)
+                alpha = a8 if a8 is not None else np.array(alpha)
+                index = None if index is None else np.array(index)
+            got.append((p.part, p.palette is not None, alpha, index))
+        if self._sent is not None:
+            self._sent.append((_window_id(window), got))
+        else:
+            self._keep(window, got)
         return paints
+
+    def _keep(self, window, got: list) -> None:
+        """Put a window's paints (part, indexed, core coverage, core indices), in paint order,
+        into this layer's slots on the canvas grid."""
+        core = window.core
+        for j, (_, indexed, alpha, index) in enumerate(got):
+            if j == len(self._slots):
+                self._slots.append(_Slot(self._shape, indexed))
+            slot = self._slots[j]
+            if (slot.index is None) == indexed:
+                self.ok = False
+                return
+            slot.put(core, alpha, index)
+        self._windows[_window_id(window)] = [part for part, *_ in got]
+
+    def forward(self) -> None:
+        """From now on keep nothing on the canvas grid: each window's paints are held for
+        :meth:`take` (in a check's helper process, whose windows the check's own process
+        records with :meth:`adopt`, in window order; see :class:`compose.api._Helpers`)."""
+        self._sent = []
+
+    def take(self, window) -> tuple[bool, list | None]:
+        """(whether this layer can still be cached, ``window``'s paints or None when it was not
+        painted) since the last take; for :meth:`adopt`."""
+        wid = _window_id(window)
+        sent, self._sent = self._sent or [], []
+        got = next((g for w, g in sent if w == wid), None)
+        return self.ok, got
+
+    def adopt(self, window, taken: tuple[bool, list | None]) -> None:
+        """Record ``window`` as another process painted it (:meth:`take` there): the same slots
+        and windows as painting it here."""
+        ok, got = taken
+        if not self.ok:
+            return
+        if not ok:
+            self.ok = False
+        elif got is not None:
+            self._keep(window, got)
 
     def entry(self, margin: int, window_size: int) -> tuple[dict, dict[str, np.ndarray]] | None:
         """(meta, arrays) to store, or None when this layer cannot be cached."""

@@ -83,10 +83,10 @@ def explain(rule: str) -> str:
 @click.option("--clear-cache", is_flag=True,
               help="Delete the cache's entries first (with no STYLE: only that).")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
-              help="Processes that walk the map's windows when no cache is used, forked once "
-                   "the render is prepared (default: one per core, each walking two windows or "
-                   "more, unless the load average is over twice the cores); the same report "
-                   "with any number.")
+              help="Processes that walk the map's windows when sources are read (no cache, or "
+                   "one being filled), forked once the render is prepared (default: one per "
+                   "core, each walking two windows or more, unless the load average is over "
+                   "twice the cores); the same report and cache with any number.")
 @click.option("--rules", "list_rules", is_flag=True,
               help="List the rules: id, what each measures, its limit and budget key, its source.")
 @click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")
