@@ -177,7 +177,9 @@ def big(size: int, runs: int, as_commands: bool, inprocess: bool) -> None:
     if as_commands:
         command_rows("commands", style, runs, tempfile.mkdtemp(prefix="compose-bench-cache-"),
                      style.parent)
-        print("            (target: draft 10 x faster than full)")
+        print("            (target: draft 10 x faster than full; its rasters repeat one 256 x 256 "
+              "tile, so the draft's block sample measures no sampling error here: see "
+              "compose.check.draft for the error on maps that change by region)")
     if inprocess:
         os.chdir(style.parent)
         in_process([style], runs)
