@@ -154,8 +154,19 @@ def _render_one(path: Path, *, out_dir: Path, overwrite: bool, overrides: tuple,
     from compose.heap import limit_arenas
 
     limit_arenas()          # before the walk's threads start: less freed memory kept per thread
-    result = render_style(loaded, out_dir, overwrite=overwrite, progress=progress_bar("rendering"),
-                          mapper=mapper, cog=cog, check=check)
+    import gc
+
+    # what is loaded so far (the modules, the style) outlives the render: kept out of the
+    # collector's way while it runs, so its collections traverse only the render's own objects
+    # (the command's collections at 8192 px 0.08 -> 0.04 CPU-s, demo 0.04-0.1 -> 0.02, measured
+    # here); handed back afterwards, so the next style of the command can collect them
+    gc.freeze()
+    try:
+        result = render_style(loaded, out_dir, overwrite=overwrite,
+                              progress=progress_bar("rendering"), mapper=mapper, cog=cog,
+                              check=check)
+    finally:
+        gc.unfreeze()
     # notes only after the render succeeded: a failing run prints its one error line alone
     for note in notes:
         click.echo(f"note: {note}", err=True)

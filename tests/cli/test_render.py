@@ -68,3 +68,29 @@ def test_render_exits_1_when_the_check_fails_unless_no_check(tmp_path):
 def test_render_help_says_how_it_exits():
     text = CliRunner().invoke(cli, ["render", "--help"]).output
     assert "Exits 1 when the hierarchy check fails" in text and "--no-check" in text
+
+
+def test_what_is_loaded_before_a_render_is_frozen_during_it_and_only_then(tmp_path, monkeypatch):
+    """compose.cli.render: the objects alive when a render starts (modules, the style) are kept
+    out of the garbage collector's generations while it runs (gc.freeze, Python's gc module)
+    and handed back when it returns or fails, so a batch's next style can collect them."""
+    import gc
+    import importlib
+
+    module = importlib.import_module("compose.render")   # (compose.render is also a function)
+    seen = []
+    real = module.render_style
+
+    def render_style(*args, **kw):
+        seen.append(gc.get_freeze_count())
+        if len(seen) == 2:
+            raise RuntimeError("a render that fails")
+        return real(*args, **kw)
+
+    monkeypatch.setattr(module, "render_style", render_style)
+    style = tiny_style(tmp_path)
+    assert gc.get_freeze_count() == 0
+    CliRunner().invoke(cli, ["render", str(style), "--out", str(tmp_path / "a")])
+    assert len(seen) == 1 and seen[0] > 1000 and gc.get_freeze_count() == 0
+    failed = CliRunner().invoke(cli, ["render", str(style), "--out", str(tmp_path / "b")])
+    assert failed.exit_code != 0 and len(seen) == 2 and gc.get_freeze_count() == 0
