@@ -2,9 +2,11 @@
 as drawing them in the window's own thread."""
 from __future__ import annotations
 
+import os
+
 import numpy as np
 
-from compose.drawer import DrawAhead
+from compose.drawer import SHARED_DIR, DrawAhead
 from compose.engine import prepare, render_window
 from compose.parallel import pack, unpack
 from compose.sources.vector import Features
@@ -52,10 +54,43 @@ def test_helper_process_draws_the_same_paints(tiny_region):
                 assert a.part == b.part and a.color == b.color and a.alpha.dtype == b.alpha.dtype
                 np.testing.assert_array_equal(a.alpha, b.alpha)
         assert drawer.served > 0
+        assert drawer.shared > 0 or not os.path.isdir(SHARED_DIR)      # through shared memory
     finally:
         drawer.close()
         prepared.close()
     assert drawer.paints(windows[0], min(drawer.layers)) is None    # closed: drawn here
+
+
+def test_coverage_through_the_pipe_when_slots_run_out_or_are_missing(tiny_region, monkeypatch):
+    # One shared slot for 3 windows drawn ahead: windows that find it taken send their coverage
+    # through the pipe; without a place for the shared file every window does. The same rows
+    # either way as drawn in the thread itself, and no shared file is left behind.
+    import compose.drawer as drawer_module
+
+    prepared = prepare(load_style(tiny_region))
+    windows = prepared.windows(WINDOW)
+    try:
+        here = [render_window(prepared, w).rgb8 for w in windows]
+        for slots, folder in ((1, SHARED_DIR), (4, "/nonexistent-compose-folder")):
+            monkeypatch.setattr(drawer_module, "SLOTS", slots)
+            monkeypatch.setattr(drawer_module, "SHARED_DIR", folder)
+            before = set(os.listdir(SHARED_DIR)) if os.path.isdir(SHARED_DIR) else set()
+            drawer = DrawAhead.start(prepared, windows, ahead=3, wait=True)
+            assert drawer is not None
+            try:
+                for w, rgb in zip(windows, here, strict=True):
+                    np.testing.assert_array_equal(render_window(prepared, w, drawn=drawer).rgb8, rgb)
+                assert drawer.served == len(windows)
+                if folder == SHARED_DIR and os.path.isdir(SHARED_DIR):
+                    assert 0 < drawer.shared < drawer.served
+                else:
+                    assert drawer.shared == 0
+            finally:
+                drawer.close()
+            after = set(os.listdir(SHARED_DIR)) if os.path.isdir(SHARED_DIR) else set()
+            assert not {f for f in after - before if f.startswith("compose-draw-")}
+    finally:
+        prepared.close()
 
 
 def test_nothing_to_draw_starts_nothing(tiny_region):
