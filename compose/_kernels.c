@@ -965,7 +965,140 @@ done:
     return result;
 }
 
+PyDoc_STRVAR(box_sums_doc,
+"box_sums(planes, table, index, weight, ro, co, k, out)\n\n"
+"compose.previews.block_sums in float32, sum by sum in numpy's order: the values (planes\n"
+"(C, h, w) float32, or, with planes None, table (3, n) float32 C-contiguous at index (h, w),\n"
+"wrapped as np.take's 'wrap'), each times weight ((h, w) float32) when it is not None, summed\n"
+"over blocks of k x k pixels of a grid offset by (ro, co) < k: first down each column of a\n"
+"block row (rows in order, from 0), then across (columns in order, from 0), into out (nr, nc,\n"
+"C) float32, C-contiguous, overwritten.");
+
+static PyObject *box_sums(PyObject *self, PyObject *args) {
+    PyObject *planes_o, *table_o, *index_o, *weight_o, *out_o;
+    Py_ssize_t ro, co, k;
+    if (!PyArg_ParseTuple(args, "OOOOnnnO", &planes_o, &table_o, &index_o, &weight_o, &ro, &co,
+                          &k, &out_o))
+        return NULL;
+    Arr planes = {0}, table = {0}, index = {0}, weight = {0}, out = {0};
+    PyObject *result = NULL;
+    float *rows = NULL;
+    if (take(planes_o, &planes, 3, K_F32, 0, 1, "planes") < 0
+        || take(table_o, &table, 2, K_F32, 0, 1, "table") < 0
+        || take(index_o, &index, 2, K_INT, 0, 1, "index") < 0
+        || take(weight_o, &weight, 2, K_F32, 0, 1, "weight") < 0
+        || take(out_o, &out, 3, K_F32, 1, 0, "out") < 0)
+        goto done;
+    Py_ssize_t nch, h, w, n = 0;
+    if (planes.held) {
+        nch = planes.b.shape[0]; h = planes.b.shape[1]; w = planes.b.shape[2];
+    } else if (table.held && index.held) {
+        nch = 3; h = index.b.shape[0]; w = index.b.shape[1]; n = table.b.shape[1];
+    } else {
+        nch = h = w = -1;
+    }
+    if (nch < 1 || (planes.held && (table.held || index.held))
+        || (table.held && (table.b.shape[0] != 3 || n < 1 || !PyBuffer_IsContiguous(&table.b, 'C')))
+        || (weight.held && (weight.b.shape[0] != h || weight.b.shape[1] != w))
+        || k < 1 || ro < 0 || co < 0 || ro >= k || co >= k
+        || !PyBuffer_IsContiguous(&out.b, 'C') || out.b.shape[2] != nch
+        || out.b.shape[0] != (ro + h + k - 1) / k || out.b.shape[1] != (co + w + k - 1) / k) {
+        PyErr_SetString(PyExc_ValueError, "box_sums: shapes do not fit");
+        goto done;
+    }
+    Py_ssize_t nr = out.b.shape[0], nc = out.b.shape[1];
+    rows = (float *)PyMem_RawCalloc((size_t)(nch * nr * (w > 0 ? w : 1)), sizeof(float));
+    if (!rows) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    float *dst = (float *)out.b.buf;
+    const float *tab = table.held ? (const float *)table.b.buf : NULL;
+    Py_ssize_t *idx = tab ? (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(w + 1)) : NULL;
+    float *vals = (float *)PyMem_RawMalloc(sizeof(float) * (size_t)(w + 1));
+    if ((tab && !idx) || !vals) {
+        PyMem_RawFree(idx);
+        PyMem_RawFree(vals);
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    const Py_ssize_t wj = weight.held ? weight.b.strides[1] : 0;
+    const Py_ssize_t pj = planes.held ? planes.b.strides[2] : 0;
+    const Py_ssize_t ij = index.held ? index.b.strides[1] : 0;
+    const int isize = index.held ? (int)index.b.itemsize : 0, isigned = index.kind == K_INT;
+    for (Py_ssize_t y = 0; y < h; y++) {
+        Py_ssize_t b = (y + ro) / k;
+        const char *wrow = weight.held ? AT2(weight, y, 0) : NULL;
+        if (tab) {                              /* the row's entries, wrapped as np.take's */
+            const char *irow = AT2(index, y, 0);
+            for (Py_ssize_t x = 0; x < w; x++) {
+                const char *q = irow + x * ij;
+                int64_t e = isize == 2 && !isigned ? (int64_t)*(const uint16_t *)q
+                            : read_int(q, &index);
+                if (e < 0 || e >= n) {
+                    e %= n;
+                    if (e < 0) e += n;
+                }
+                idx[x] = (Py_ssize_t)e;
+            }
+        }
+        for (Py_ssize_t c = 0; c < nch; c++) {
+            float *restrict acc = rows + (c * nr + b) * w;
+            const float *v;
+            if (tab) {
+                const float *tc = tab + c * n;
+                for (Py_ssize_t x = 0; x < w; x++) vals[x] = tc[idx[x]];
+                v = vals;
+            } else if (pj == (Py_ssize_t)sizeof(float)) {
+                v = (const float *)AT3(planes, c, y, 0);
+            } else {
+                const char *prow = AT3(planes, c, y, 0);
+                for (Py_ssize_t x = 0; x < w; x++) vals[x] = *(const float *)(prow + x * pj);
+                v = vals;
+            }
+            if (wrow && wj == (Py_ssize_t)sizeof(float)) {
+                const float *wt = (const float *)wrow;
+                for (Py_ssize_t x = 0; x < w; x++) {
+                    float t = v[x] * wt[x];
+                    acc[x] = acc[x] + t;
+                }
+            } else if (wrow) {
+                for (Py_ssize_t x = 0; x < w; x++) {
+                    float t = v[x] * *(const float *)(wrow + x * wj);
+                    acc[x] = acc[x] + t;
+                }
+            } else {
+                for (Py_ssize_t x = 0; x < w; x++) acc[x] = acc[x] + v[x];
+            }
+        }
+    }
+    /* then across: each block's columns in order, from 0 */
+    for (Py_ssize_t c = 0; c < nch; c++)
+        for (Py_ssize_t b = 0; b < nr; b++) {
+            const float *acc = rows + (c * nr + b) * w;
+            for (Py_ssize_t q = 0; q < nc; q++) {
+                Py_ssize_t x0 = q * k - co, x1 = x0 + k;
+                x0 = x0 > 0 ? x0 : 0;
+                x1 = x1 < w ? x1 : w;
+                float sum = 0.0f;
+                for (Py_ssize_t x = x0; x < x1; x++) sum = sum + acc[x];
+                dst[(b * nc + q) * nch + c] = sum;
+            }
+        }
+    Py_END_ALLOW_THREADS
+    PyMem_RawFree(idx);
+    PyMem_RawFree(vals);
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    PyMem_RawFree(rows);
+    drop(&planes); drop(&table); drop(&index); drop(&weight); drop(&out);
+    return result;
+}
+
 static PyMethodDef methods[] = {
+    {"box_sums", box_sums, METH_VARARGS, box_sums_doc},
     {"levels", levels, METH_VARARGS, levels_doc},
     {"lut_index", lut_index, METH_VARARGS, lut_index_doc},
     {"palette", palette, METH_VARARGS, palette_doc},

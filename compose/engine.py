@@ -271,7 +271,7 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                 alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)
                 # alpha 1 everywhere (rasters without no-data): nothing to weigh by it
                 opaque = bool(alpha.min() >= 1.0) if alpha.size else False
-                if paint.palette is not None and not k:     # colours looked up strip by strip
+                if paint.palette is not None:       # colours looked up strip by strip
                     # an opaque raster's entries are counted while they are looked up (a
                     # palette's measure never reads the composite, so it may come after)
                     counts = (np.zeros(paint.palette.rgb8.shape[0], np.intp)
@@ -281,6 +281,8 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                     if meter is not None:
                         meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque,
                                     counts=counts)
+                    if k:       # its colours looked up again where the previews sum them
+                        for_previews.append((paint, alpha, None))
                 else:
                     if meter is not None:
                         meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque)

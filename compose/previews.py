@@ -27,6 +27,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from compose.kernels import get as compiled
+
 __all__ = ["PREVIEW_SIDE", "preview_factor", "block_sums", "paint_sums", "PaintSums",
            "PreviewTiles", "LayerPreviews"]
 
@@ -43,11 +45,17 @@ def block_sums(planes: np.ndarray, row0: int, col0: int, k: int) -> tuple[int, i
 
     Blocks are the canvas's own ``k`` x ``k`` grid, so blocks cut by the window edge get partial
     sums that the neighbouring window completes. Returns (first block row, first block column,
-    sums (nr, nc, c) float32).
+    sums (nr, nc, c) float32). Float32 planes are summed by the compiled kernel when there is one
+    (:mod:`compose.kernels`): every sum with the same additions in the same order, the same bits.
     """
     c, h, w = planes.shape
     ro, co = row0 % k, col0 % k
     nr, nc = -(-(ro + h) // k), -(-(co + w) // k)
+    kernel = compiled()
+    if kernel is not None and planes.dtype == np.float32:
+        s = np.empty((nr, nc, c), np.float32)
+        kernel.box_sums(planes, None, None, None, ro, co, k, s)
+        return row0 // k, col0 // k, s
     # sums of k strided views, rows then columns, each added into the blocks it falls in (no
     # padded copy of a window cut off the grid: a missing row adds nothing, as its zero did)
     rows = np.zeros((c, nr, w), dtype=np.float32)
@@ -82,12 +90,25 @@ class PaintSums:
     weighted: np.ndarray | None = None
 
 
-def _sums(paint, weight: np.ndarray, planes: np.ndarray, inner, row0: int, col0: int,
+def _sums(paint, weight: np.ndarray, planes: np.ndarray | None, inner, row0: int, col0: int,
           k: int) -> PaintSums:
     r, c, sa = block_sums(weight[None], row0, col0, k)
     if paint.palette is None:
         red, green, blue = (float(v) for v in paint.color)
         return PaintSums(paint.part, r, c, sa[..., 0], (red, green, blue))
+    kernel = compiled()
+    table = paint.palette.planes
+    if planes is None and kernel is not None and weight.dtype == np.float32 \
+            and table.dtype == np.float32 and paint.index.dtype.kind in "iu":
+        # the colours looked up and weighted as they are summed (no (3, h, w) planes)
+        index = paint.index[inner]
+        ro, co = row0 % k, col0 % k
+        sw = np.empty((-(-(ro + index.shape[0]) // k), -(-(co + index.shape[1]) // k), 3),
+                      np.float32)
+        kernel.box_sums(None, table, index, weight, ro, co, k, sw)
+        return PaintSums(paint.part, r, c, sa[..., 0], None, sw)
+    if planes is None:
+        planes = paint.planes()
     weighted = planes[(slice(None),) + inner] * weight
     _, _, sw = block_sums(weighted, row0, col0, k)
     return PaintSums(paint.part, r, c, sa[..., 0], None, sw)
@@ -97,14 +118,16 @@ def paint_sums(drawn: list, inner: tuple[slice, slice], row0: int, col0: int, k:
                blend: str = "normal") -> tuple[PaintSums, ...]:
     """The :class:`PaintSums` of one layer's paints over a window's core ``inner`` (the core's
     first pixel is canvas pixel (row0, col0)). ``drawn``: (paint, alpha (h, w) with the layer's
-    opacity, colour planes (3, h, w)) per paint in drawing order, over the padded window.
+    opacity, colour planes (3, h, w), or None for a raster's paint whose colours are looked up
+    here) per paint in drawing order, over the padded window.
 
     With the normal blend the paints are summed as the one layer they make: each paint's alpha
     is weighted by what the paints above it let through (a_j x prod(1 - a_m), m > j: a halo
     under a line counts only where the line leaves it visible), so the weights add up to the
     layer's coverage and the colours to its premultiplied colour. Other blends keep each
     paint's own alpha, composited in turn."""
-    cores = [np.broadcast_to(alpha, planes.shape[1:])[inner] for _, alpha, planes in drawn]
+    cores = [np.broadcast_to(alpha, (planes if planes is not None else paint.index).shape[-2:])[inner]
+             for paint, alpha, planes in drawn]
     weights = list(cores)
     if blend == "normal" and len(drawn) > 1:
         through = None

@@ -420,3 +420,62 @@ def test_relief_levels_equal_the_numpy_path(use):
     assert ia.dtype == ib.dtype == np.uint16 and ia.tobytes() == ib.tobytes()
     assert aa.dtype == ab.dtype == np.float32 and aa.tobytes() == ab.tobytes()
     assert (ia == LEVELS).sum() == 3 and aa.sum() == shade.size - 3
+
+
+@pytest.mark.parametrize("k", [1, 3, 7])
+@pytest.mark.parametrize("strided", [False, True])
+def test_box_sums_equal_the_numpy_path_bit_for_bit(use, k, strided):
+    # blocks of the canvas grid cut by the window's edges, rows then columns, in float32
+    from compose.previews import block_sums
+
+    rng = np.random.default_rng(12)
+    full = rng.random((3, 53, 2 * 61), dtype=np.float32)
+    planes = full[:, :, ::2] if strided else np.ascontiguousarray(full[:, :, :61])
+    results = []
+    for on in (True, False):
+        use(on)
+        results.append([block_sums(planes, row0, col0, k) for row0, col0 in
+                        ((0, 0), (5, 9), (k - 1, 1), (130, 257))])
+    for (ra, ca, a), (rb, cb, b) in zip(*results):
+        assert (ra, ca) == (rb, cb) and a.dtype == b.dtype == np.float32
+        assert a.shape == b.shape and a.tobytes() == b.tobytes()
+
+
+@pytest.mark.parametrize("blend", ["normal", "multiply"])
+def test_layer_previews_equal_the_numpy_path_bit_for_bit(use, tiny_region, blend):
+    # a render's preview sums (rasters' colours looked up as they are summed, the stacks, the
+    # finished map) and the preview images, kernels on and off
+    from compose.engine import prepare, run
+    from compose.previews import LayerPreviews
+    from compose.style import load_style
+
+    path = tiny_region.with_name(f"tiny-previews-{blend}.toml")
+    path.write_text(tiny_region.read_text().replace('blend = "multiply"', f'blend = "{blend}"'))
+    results = []
+    for on in (True, False):
+        use(on)
+        prepared = prepare(load_style(path))
+        try:
+            previews = LayerPreviews(prepared.canvas.width, prepared.canvas.height,
+                                     len(prepared.layers), tuple(prepared.style.map.background),
+                                     factor=3, blends=[la.spec.blend for la in prepared.layers])
+            run(prepared, [], window=64, previews=previews)
+        finally:
+            prepared.close()
+        results.append(previews)
+    a, b = results
+    assert a.final.tobytes() == b.final.tobytes()
+    for sa, sb in zip(a.stacks, b.stacks):
+        assert (sa is None) == (sb is None) and (sa is None or sa.tobytes() == sb.tobytes())
+    rasters = 0
+    for pa, pb in zip(a.paints, b.paints):
+        assert pa.keys() == pb.keys()
+        for key in pa:
+            assert pa[key].alpha.tobytes() == pb[key].alpha.tobytes()
+            assert (pa[key].weighted is None) == (pb[key].weighted is None)
+            if pa[key].weighted is not None:
+                rasters += 1
+                assert pa[key].weighted.tobytes() == pb[key].weighted.tobytes()
+    assert rasters >= 2
+    for (alone_a, stack_a), (alone_b, stack_b) in zip(a.images(), b.images()):
+        assert alone_a.tobytes() == alone_b.tobytes() and stack_a.tobytes() == stack_b.tobytes()
