@@ -177,6 +177,12 @@ def big(size: int, runs: int, as_commands: bool, inprocess: bool) -> None:
     if as_commands:
         command_rows("commands", style, runs, tempfile.mkdtemp(prefix="compose-bench-cache-"),
                      style.parent)
+        from compose.check_cache import MAX_PIXELS
+
+        if size * size > MAX_PIXELS:
+            print(f"            (the cache is off above {MAX_PIXELS} pixels: the full check's "
+                  "'warm' runs read and draw everything, as cold ones; the draft's canvas is "
+                  "cached)")
         print("            (target: draft 10 x faster than full; its rasters repeat one 256 x 256 "
               "tile, so the draft's block sample measures no sampling error here: see "
               "compose.check.draft for the error on maps that change by region)")
