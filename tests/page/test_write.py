@@ -485,8 +485,8 @@ def test_the_pdf_embeds_the_map_from_the_png_filed_for_it(kind):
 
     def image():
         rgba = np.full((48, 64, 4), 255, np.uint8)
-        colours = 200 if kind == "few colours" else 256
-        rgba[..., :3] = rng.integers(0, colours, (48, 64, 1)) * np.array([1, 1, 0]) + (0, 0, 9)
+        levels = 200 if kind == "few colours" else 256
+        rgba[..., :3] = rng.integers(0, levels, (48, 64, 1)) * np.array([1, 1, 0]) + (0, 0, 9)
         rgba[..., 2] = rng.integers(0, 256, (48, 64)) if kind != "few colours" else 9
         if kind == "translucent":
             rgba[3, 5, 3] = 128
