@@ -369,6 +369,9 @@ static PyObject *gray(PyObject *self, PyObject *args) {
        the same order as sum[entry] += value pixel by pixel */
     Py_ssize_t cur = -1, run = 0;
     double acc_r = 0.0, acc_g = 0.0, acc_b = 0.0;
+    Py_ssize_t ccell = -1, crun = 0;
+    uint32_t last_rgb = 0xffffffffu;
+    uint8_t last_l = 0;
     const Py_ssize_t ps = planes.b.strides[0], pj = planes.b.strides[2];
     const Py_ssize_t aj = alpha.held ? alpha.b.strides[1] : 0;
     const Py_ssize_t hj = hidden.held ? hidden.b.strides[1] : 0;
@@ -399,8 +402,23 @@ static PyObject *gray(PyObject *self, PyObject *args) {
             uint8_t r = *(const uint8_t *)px;
             uint8_t g = *(const uint8_t *)(px + ps);
             uint8_t b = *(const uint8_t *)(px + 2 * ps);
-            if (a > 0.5f && shown)
-                cts[e * 101 + lightness(&t, luminance(&t, r, g, b))] += 1.0;
+            if (a > 0.5f && shown) {
+                /* L* of the previous colour again when this pixel has the same one (a smooth
+                   composite repeats them); counts of one cell added up while the next pixels
+                   fall in it: whole numbers, exact in any grouping */
+                uint32_t rgb = ((uint32_t)r << 16) | ((uint32_t)g << 8) | b;
+                if (rgb != last_rgb) {
+                    last_rgb = rgb;
+                    last_l = lightness(&t, luminance(&t, r, g, b));
+                }
+                Py_ssize_t cell = e * 101 + last_l;
+                if (cell != ccell) {
+                    if (ccell >= 0) cts[ccell] += (double)crun;
+                    ccell = cell;
+                    crun = 0;
+                }
+                crun++;
+            }
             if (cnt && a > 0.0f && shown && (!orow || *(const float *)(orow + j * oj) <= 0.5f)) {
                 if (e != cur) {
                     if (cur >= 0) {
@@ -428,6 +446,7 @@ static PyObject *gray(PyObject *self, PyObject *args) {
         col[3 * cur + 1] = acc_g;
         col[3 * cur + 2] = acc_b;
     }
+    if (ccell >= 0) cts[ccell] += (double)crun;
     Py_END_ALLOW_THREADS
     PyMem_RawFree(erow);
     if (bad) {
