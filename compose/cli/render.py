@@ -83,8 +83,9 @@ def expand_styles(args: tuple[Path, ...]) -> list[Path]:
 @click.option("--strict", is_flag=True, help="Check warnings fail too (exit 1).")
 @limit_options
 @click.option("--workers", type=click.IntRange(min=1), default=None,
-              help="Threads rendering windows at once (default: every core, at most 8, for "
-                   "maps of 16 Mpixel or more, else 1). Outputs are the same for any number.")
+              help="Threads rendering windows at once (default: every core but one, at most 8, "
+                   "for maps of 16 Mpixel or more, else 1; the core left draws the lines and "
+                   "encodes). Outputs are the same for any number.")
 @click.option("--cluster", metavar="ADDRESS", default=None,
               help="Render the windows on a dask.distributed scheduler (tcp://host:8786); every "
                    "worker must reach the style's source files.")

@@ -29,8 +29,10 @@ __all__ = ["PageSink", "vector_split", "without_setter_listings", "legend_for_pa
 #: ``page.pdf_fonts``: 3 for outlines, 42 for TrueType); the PDF's content streams deflated at
 #: level 1 (the demo's PDF 1 % larger than at matplotlib's 6, written 11 % faster; the map's
 #: image is deflated by :mod:`compose.page.encode` either way).
+# svg.hashsalt: the SVG's clip and path ids from a fixed salt instead of a random one, so the
+# same page gives the same SVG (with SOURCE_DATE_EPOCH set, also the same date; see README)
 RC = {"pdf.fonttype": 3, "svg.fonttype": "none", "lines.scale_dashes": False,
-      "path.simplify": False, "pdf.compression": 1}
+      "path.simplify": False, "pdf.compression": 1, "svg.hashsalt": "compose page"}
 PDF_FONTTYPE = {"outlines": 3, "truetype": 42}
 
 

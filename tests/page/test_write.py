@@ -518,3 +518,15 @@ def test_the_pdf_embeds_the_map_from_the_png_filed_for_it(kind):
         assert got == pdf(mine) != pdf(other)
     else:       # drawn with its alpha (no PNG filed for this other view of the same pixels)
         assert got == pdf(mine, mine[..., :3]) != pdf(other)
+
+
+def test_page_pdf_and_svg_are_the_same_bytes_from_one_render_to_the_next(tmp_path, monkeypatch):
+    # reproducible builds: with SOURCE_DATE_EPOCH set (the reproducible-builds.org convention
+    # matplotlib follows for its file dates) two renders of one style give the same PDF and
+    # SVG; the SVG's clip and path ids come from a fixed salt, not a random one
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
+    style = _style(tmp_path)
+    first = render_style(style, tmp_path / "a", html=False)
+    second = render_style(style, tmp_path / "b", html=False)
+    for key in ("pdf", "svg"):
+        assert first.outputs[key].read_bytes() == second.outputs[key].read_bytes(), key
