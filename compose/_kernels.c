@@ -1116,7 +1116,69 @@ done:
     return result;
 }
 
+PyDoc_STRVAR(flat_doc,
+"flat(backdrop, color, alpha, mode, opaque)\n\n"
+"compose.composite.composite_over of one flat colour, in place on backdrop (3, H, W) float32:\n"
+"color (3,) float32, alpha (H, W) float32; mode 0 'normal' (mix = Cs - Cb) or 1 'multiply'\n"
+"(mix = Cb Cs - Cb), mix times alpha unless opaque, Cb + mix (the same float32 operations).");
+
+static PyObject *flat(PyObject *self, PyObject *args) {
+    PyObject *back_o, *color_o, *alpha_o;
+    int mode, opaque;
+    if (!PyArg_ParseTuple(args, "OOOii", &back_o, &color_o, &alpha_o, &mode, &opaque)) return NULL;
+    Arr back = {0}, color = {0}, alpha = {0};
+    PyObject *result = NULL;
+    if (take(back_o, &back, 3, K_F32, 1, 0, "backdrop") < 0
+        || take(color_o, &color, 1, K_F32, 0, 0, "color") < 0
+        || take(alpha_o, &alpha, 2, K_F32, 0, 0, "alpha") < 0)
+        goto done;
+    Py_ssize_t h = back.b.shape[1], w = back.b.shape[2];
+    if (back.b.shape[0] != 3 || color.b.shape[0] != 3 || alpha.b.shape[0] != h
+        || alpha.b.shape[1] != w || mode < 0 || mode > 1) {
+        PyErr_SetString(PyExc_ValueError, "flat: shapes do not fit");
+        goto done;
+    }
+    float cs[3];
+    for (int c = 0; c < 3; c++) cs[c] = *(const float *)AT(color, c);
+    Py_BEGIN_ALLOW_THREADS
+    const Py_ssize_t bj = back.b.strides[2], aj = alpha.b.strides[1];
+    for (Py_ssize_t i = 0; i < h; i++) {
+        const char *arow = AT2(alpha, i, 0);
+        for (int c = 0; c < 3; c++) {
+            char *brow = (char *)AT3(back, c, i, 0);
+            const float s = cs[c];
+            if (bj == (Py_ssize_t)sizeof(float) && aj == (Py_ssize_t)sizeof(float)) {
+                float *restrict cb = (float *)brow;
+                const float *restrict a = (const float *)arow;
+                if (mode == 0 && opaque)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = s - cb[j]; cb[j] = cb[j] + m; }
+                else if (mode == 0)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = s - cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+                else if (opaque)
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * s; m -= cb[j]; cb[j] = cb[j] + m; }
+                else
+                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * s; m -= cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+            } else {
+                for (Py_ssize_t j = 0; j < w; j++) {
+                    float *cb = (float *)(brow + j * bj), m;
+                    if (mode == 0) m = s - *cb;
+                    else { m = *cb * s; m -= *cb; }
+                    if (!opaque) m *= *(const float *)(arow + j * aj);
+                    *cb = *cb + m;
+                }
+            }
+        }
+    }
+    Py_END_ALLOW_THREADS
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    drop(&back); drop(&color); drop(&alpha);
+    return result;
+}
+
 static PyMethodDef methods[] = {
+    {"flat", flat, METH_VARARGS, flat_doc},
     {"box_sums", box_sums, METH_VARARGS, box_sums_doc},
     {"levels", levels, METH_VARARGS, levels_doc},
     {"lut_index", lut_index, METH_VARARGS, lut_index_doc},

@@ -149,7 +149,9 @@ def composite_over(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
 
     Returns ``(1 - alpha) Cb + alpha B(Cb, Cs)`` as float32 (3, H, W) (W3C Compositing 1,
     "Blending" general formula with an opaque backdrop, then "source-over"). Works in strips of
-    rows so the temporaries stay in cache.
+    rows so the temporaries stay in cache; one flat colour composited in place with "normal" or
+    "multiply" and alpha (H, W) runs in the compiled kernel when there is one
+    (:mod:`compose.kernels`), the same float32 operations in the same order.
     """
     func = blend_mode(mode, "composite")
     backdrop = np.asarray(backdrop, dtype=np.float32)
@@ -166,6 +168,15 @@ def composite_over(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
         out = np.empty((3, h, w), np.float32)
     elif out.shape != (3, h, w):
         raise ValueError(f"out must be (3, {h}, {w}), got {out.shape}")
+    kernel = compiled()
+    if (kernel is not None and out is backdrop and func in (normal, multiply)
+            and source.shape[0] == 3 and all(n == 1 or st == 0 for n, st in
+                                             zip(source.shape[1:], source.strides[1:]))
+            and alpha.shape == (h, w)):
+        # one flat colour (a broadcast view): in one pass per row, the same float32 operations
+        kernel.flat(backdrop, np.ascontiguousarray(source[:, 0, 0]), alpha,
+                    0 if func is normal else 1, bool(opaque))
+        return out
     rows = max(1, STRIP_PIXELS // max(w, 1))
     mix_buf = np.empty((min(rows, h), w), np.float32)
     for r0 in range(0, h, rows):

@@ -479,3 +479,28 @@ def test_layer_previews_equal_the_numpy_path_bit_for_bit(use, tiny_region, blend
     assert rasters >= 2
     for (alone_a, stack_a), (alone_b, stack_b) in zip(a.images(), b.images()):
         assert alone_a.tobytes() == alone_b.tobytes() and stack_a.tobytes() == stack_b.tobytes()
+
+
+@pytest.mark.parametrize("mode", ["normal", "multiply"])
+@pytest.mark.parametrize("opaque", [False, True])
+@pytest.mark.parametrize("strided", [False, True])
+def test_flat_colour_composite_equals_the_numpy_strips_bit_for_bit(use, mode, opaque, strided):
+    # a line's flat colour over the composite (W3C normal and multiply, alpha, Cb + mix), as
+    # Paint.planes gives it: a broadcast view
+    from compose.composite import composite_over
+
+    rng = np.random.default_rng(14)
+    h, w = 47, 69
+    back = _composite(rng, h, 2 * w, smooth=True)
+    alpha = np.ones((h, w), np.float32) if opaque else (
+        rng.integers(0, 256, (h, w)).astype(np.float32) / np.float32(255))
+    color = np.broadcast_to(np.array([0.2, 0.7, 0.45], np.float32).reshape(3, 1, 1), (3, h, w))
+    results = []
+    for on in (True, False):
+        use(on)
+        full = back.copy()
+        target = full[:, :, ::2] if strided else np.ascontiguousarray(full[:, :, :w])
+        composite_over(target, color, alpha, mode, out=target, opaque=opaque)
+        results.append(target.copy())
+    assert results[0].tobytes() == results[1].tobytes()
+    assert not np.array_equal(results[0], back[:, :, ::2] if strided else back[:, :, :w])
