@@ -12,6 +12,12 @@ from compose.cli.failure import guarded, set_debug
 
 __all__ = ["main", "cli", "handle_errors"]
 
+# numpy's OpenBLAS starts a thread per core when numpy is imported, and they spin for a while
+# (about 0.1-0.15 CPU-s per process here); compose multiplies only 3 x 3 colour matrices and
+# runs its own threads, so the command (and the processes it starts) keeps BLAS to one thread
+# unless the user set it. Set before anything imports numpy (nothing above does).
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
 # name -> module under compose.cli defining a click command called `command`
 COMMANDS = {
     "ramp": "compose.cli.ramp",

@@ -41,3 +41,25 @@ def test_python_dash_m_compose_is_the_command(tmp_path):
     missing = subprocess.run([sys.executable, "-m", "compose", "check", str(tmp_path / "no.toml")],
                              capture_output=True, text=True, timeout=60)
     assert missing.returncode == 2 and missing.stderr.count("\n") == 1
+
+
+def _threads_after_numpy(env: dict) -> tuple[int, str]:
+    code = ("from compose.cli.main import main\nimport os, numpy\n"
+            "threads = [l for l in open('/proc/self/status') if l.startswith('Threads:')][0]\n"
+            "print(threads.split()[1], os.environ.get('OPENBLAS_NUM_THREADS'))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                         env=env)
+    n, setting = out.stdout.split()
+    return int(n), setting
+
+
+def test_the_command_keeps_numpys_blas_to_one_thread_unless_told():
+    # OpenBLAS otherwise starts a thread per core on import, which spin (Linux /proc only)
+    import os
+
+    import pytest
+    if not os.path.exists("/proc/self/status") or (os.cpu_count() or 1) < 2:
+        pytest.skip("needs Linux's /proc and 2 cores or more")
+    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS")}
+    assert _threads_after_numpy(env) == (1, "1")
+    assert _threads_after_numpy(dict(env, OPENBLAS_NUM_THREADS="2"))[1] == "2"
