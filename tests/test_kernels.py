@@ -484,7 +484,7 @@ def test_layer_previews_equal_the_numpy_path_bit_for_bit(use, tiny_region, blend
 @pytest.mark.parametrize("mode", ["normal", "multiply"])
 @pytest.mark.parametrize("opaque", [False, True])
 @pytest.mark.parametrize("strided", [False, True])
-def test_flat_colour_composite_equals_the_numpy_strips_bit_for_bit(use, mode, opaque, strided):
+def test_flat_color_composite_equals_the_numpy_strips_bit_for_bit(use, mode, opaque, strided):
     # a line's flat colour over the composite (W3C normal and multiply, alpha, Cb + mix), as
     # Paint.planes gives it: a broadcast view
     from compose.composite import composite_over
