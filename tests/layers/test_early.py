@@ -13,6 +13,18 @@ from compose.style import load_style
 STYLES = Path(__file__).resolve().parents[2] / "styles"
 
 
+
+def _full_and_draft_agree(style_path):
+    """(full, draft) reports of one style, asserting they give every rule the same verdict."""
+    from compose.api import check
+
+    full = check(style_path, cache=False)
+    draft = check(style_path, draft=True, cache=False)
+    verdicts = [{(r.rule, r.layer, r.ramp): (r.passed, r.met) for r in rep.rules}
+                for rep in (full, draft)]
+    assert verdicts[0] == verdicts[1]
+    return full, draft
+
 def test_early_reads_give_the_same_draft():
     style = load_style(STYLES / "coast.toml")
     prepared = prepare(style, canvas=draft_canvas(style.canvas()), draft=True)
@@ -164,7 +176,6 @@ def test_a_draft_of_large_files_reads_a_sample_of_their_blocks_with_the_full_ver
     SAMPLE_BLOCKS of them (not every one, as a decimated read does) and judges every rule as
     the full check does (the draft's contract: compared with our own full check), with the
     relief's and the field's measures near the full check's."""
-    from compose.api import check
     from compose.layers.early import SAMPLE_BLOCKS, BlockSample
 
     style_path = _big_style(tmp_path)
@@ -182,11 +193,7 @@ def test_a_draft_of_large_files_reads_a_sample_of_their_blocks_with_the_full_ver
             assert len(blocks) <= 1.25 * SAMPLE_BLOCKS < 256
     finally:
         prepared.close()
-    full = check(style_path, cache=False)
-    draft = check(style_path, draft=True, cache=False)
-    verdicts = [{(r.rule, r.layer, r.ramp): (r.passed, r.met) for r in rep.rules}
-                for rep in (full, draft)]
-    assert verdicts[0] == verdicts[1]
+    full, draft = _full_and_draft_agree(style_path)
     for rule, layer, tol in (("ground-lightness", "relief", 1.5), ("relief-visible", "relief", 1.5),
                              ("theme-chroma", "field", 1.5), ("grayscale-order", "field", 0.03)):
         (f,), (g,) = full.rule(rule, layer), draft.rule(rule, layer)
@@ -359,7 +366,6 @@ def test_a_sampled_draft_of_a_map_changing_by_region_stays_near_the_full_check(t
     differences found on six maps (compose.check.draft: ground L* 0.37, relief spread 0.12 L*,
     theme chroma 1.44, grey order 0.033, relief shift 0.05, overlay contrast share 0.027; this
     map is the worst of them for several; a bound of our own measuring, no source)."""
-    from compose.api import check
     from compose.layers.early import SAMPLE_BLOCKS
 
     style_path = _big_style(tmp_path)
@@ -374,11 +380,7 @@ def test_a_sampled_draft_of_a_map_changing_by_region_stays_near_the_full_check(t
             <= 1.25 * SAMPLE_BLOCKS
     finally:
         prepared.close()
-    full = check(style_path, cache=False)
-    draft = check(style_path, draft=True, cache=False)
-    verdicts = [{(r.rule, r.layer, r.ramp): (r.passed, r.met) for r in rep.rules}
-                for rep in (full, draft)]
-    assert verdicts[0] == verdicts[1]
+    full, draft = _full_and_draft_agree(style_path)
     for rule, layer, tol in (("ground-lightness", "relief", 0.5), ("relief-visible", "relief", 0.2),
                              ("theme-chroma", "field", 1.5), ("grayscale-order", "field", 0.04),
                              ("relief-shift", "field", 0.06), ("overlay-contrast", "lines", 0.03)):
