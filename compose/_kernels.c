@@ -78,6 +78,18 @@ static inline __attribute__((always_inline)) int64_t read_int(const char *p, con
 
 /* 8-bit code of a float32 sRGB value: x 255, clipped to [0, 255], rounded half to even
  * (np.clip, then np.rint into uint8; NaN gives 0) */
+/* compose.composite.composite_over's float32 steps for one channel of one pixel: the mix
+   Cs - Cb ('normal', multiply 0) or Cb Cs - Cb ('multiply', 1), times alpha a unless opaque,
+   added to Cb, each step rounded to float32 as numpy's strips do. Inlined where multiply and
+   opaque are constants, so the row loops that call it still vectorise. */
+static inline __attribute__((always_inline)) float over(float cb, float cs, int multiply, int opaque, float a) {
+    float m;
+    if (multiply) { m = cb * cs; m -= cb; }
+    else m = cs - cb;
+    if (!opaque) m *= a;
+    return cb + m;
+}
+
 static inline __attribute__((always_inline)) uint8_t code8(float v) {
     float x = v * 255.0f;
     x = x > 0.0f ? x : 0.0f;            /* NaN gives 0 too */
@@ -787,25 +799,21 @@ static PyObject *palette(PyObject *self, PyObject *args) {
                 float *cb = (float *)brow;
                 const float *a = (const float *)arow;
                 if (mode == 0 && opaque)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = tc[idx[j]] - cb[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], tc[idx[j]], 0, 1, 1.0f);
                 else if (mode == 0 && bcast)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = tc[idx[j]] - cb[j]; m *= a[0]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], tc[idx[j]], 0, 0, a[0]);
                 else if (mode == 0)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = tc[idx[j]] - cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], tc[idx[j]], 0, 0, a[j]);
                 else if (opaque)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * tc[idx[j]]; m -= cb[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], tc[idx[j]], 1, 1, 1.0f);
                 else if (bcast)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * tc[idx[j]]; m -= cb[j]; m *= a[0]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], tc[idx[j]], 1, 0, a[0]);
                 else
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * tc[idx[j]]; m -= cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], tc[idx[j]], 1, 0, a[j]);
             } else {
                 for (Py_ssize_t j = 0; j < w; j++) {
                     float *cb = (float *)(brow + j * bj);
-                    float cs = tc[idx[j]], m;
-                    if (mode == 0) m = cs - *cb;
-                    else { m = *cb * cs; m -= *cb; }
-                    if (!opaque) m *= *(const float *)(arow + j * aj);
-                    *cb = *cb + m;
+                    *cb = over(*cb, tc[idx[j]], mode, opaque, opaque ? 1.0f : *(const float *)(arow + j * aj));
                 }
             }
         }
@@ -1151,20 +1159,17 @@ static PyObject *flat(PyObject *self, PyObject *args) {
                 float *restrict cb = (float *)brow;
                 const float *restrict a = (const float *)arow;
                 if (mode == 0 && opaque)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = s - cb[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 0, 1, 1.0f);
                 else if (mode == 0)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = s - cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 0, 0, a[j]);
                 else if (opaque)
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * s; m -= cb[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 1, 1, 1.0f);
                 else
-                    for (Py_ssize_t j = 0; j < w; j++) { float m = cb[j] * s; m -= cb[j]; m *= a[j]; cb[j] = cb[j] + m; }
+                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 1, 0, a[j]);
             } else {
                 for (Py_ssize_t j = 0; j < w; j++) {
-                    float *cb = (float *)(brow + j * bj), m;
-                    if (mode == 0) m = s - *cb;
-                    else { m = *cb * s; m -= *cb; }
-                    if (!opaque) m *= *(const float *)(arow + j * aj);
-                    *cb = *cb + m;
+                    float *cb = (float *)(brow + j * bj);
+                    *cb = over(*cb, s, mode, opaque, opaque ? 1.0f : *(const float *)(arow + j * aj));
                 }
             }
         }
