@@ -25,11 +25,12 @@ half) and of the draft check (issue 10), each printed beside its target:
   the windows; target: within a few %) and the seconds each million vertices beyond the first
   adds (the rest, compositing the canvas, does not grow with vertices; target: flat).
 
-* ``--cpu``: the bare render (PNG + GeoTIFF + check, 2 window threads, as bench/render.py's
-  "bare render, 2 workers") at 8192, CPU seconds per process (the command; the line-drawing
-  helper; the fork server it is forked from, i.e. its imports; others), system time and minor
-  page faults of the command, medians of ``--runs``: where the CPU outside the window threads
-  goes (sampled from /proc every 50 ms, so a process's last 50 ms may be missed).
+* ``--cpu``: the bare render (PNG + GeoTIFF + check; the command's automatic workers, or
+  ``--cpu-workers N`` window threads) at 8192, CPU seconds per process (the command; the
+  line-drawing helper, forked from the command or from a fork server; that server, if any,
+  i.e. its imports; others), system time and minor page faults of the command, medians of
+  ``--runs``: where the CPU outside the window threads goes (sampled from /proc every 50 ms,
+  so a process's last 50 ms may be missed).
 
 Run heavy benchmarks alone on the machine (e.g. under ``flock``); no assertion is made.
 """
@@ -158,6 +159,12 @@ def cmdline(pid):
             return f.read().replace(b"\0", b" ").decode(errors="replace")
     except OSError:
         return ""
+def comm(pid):
+    try:
+        with open(f"/proc/{pid}/comm") as f:
+            return f.read().strip()
+    except OSError:
+        return ""
 t0 = time.perf_counter()
 p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
 procs, total = {}, [0]
@@ -181,6 +188,7 @@ def watch():
                 if o is None:
                     o = procs[q] = {"ppid": ppid, "cmd": cmdline(q), "first": s["VmRSS"],
                                     "hwm": 0, "pss": 0, "uss": 0}
+                o["comm"] = comm(q) or o.get("comm", "")
                 o["hwm"] = max(o["hwm"], s["VmHWM"])
                 o["pss"] = max(o["pss"], s.get("Pss", 0))
                 o["uss"] = max(o["uss"], s.get("Private_Clean", 0) + s.get("Private_Dirty", 0))
@@ -200,7 +208,7 @@ def role(q, o):
         return "command"
     if q in servers:
         return "fork server"
-    if o["ppid"] in servers:
+    if o["ppid"] in servers or o.get("comm") == "compose-drawer":
         return "drawing helper"
     if "resource_tracker" in o["cmd"]:
         return "resource tracker"
@@ -415,11 +423,15 @@ def stages(size: int, data: Path) -> None:
 
 BARE = r"""
 import sys
-from compose.parallel import ThreadMapper
+from compose.parallel import ThreadMapper, mapper_for
 from compose.render import render_style
 from compose.style import load_style
-render_style(load_style(sys.argv[1]), sys.argv[2], overwrite=True, legend=False, check=True,
-             html=False, mapper=ThreadMapper(2))
+style = load_style(sys.argv[1])
+workers = sys.argv[3] if len(sys.argv) > 3 else "2"
+mapper = (mapper_for(style.canvas().width * style.canvas().height) if workers == "auto"
+          else ThreadMapper(int(workers)) if int(workers) > 1 else None)
+render_style(style, sys.argv[2], overwrite=True, legend=False, check=True, html=False,
+             mapper=mapper)
 """
 
 # CPU per process of a command and its descendants, from /proc (user, system, minor faults)
@@ -431,7 +443,8 @@ def stat(pid):
         with open(f"/proc/{pid}/stat") as f:
             s = f.read()
         x = s.rsplit(")", 1)[1].split()
-        return int(x[1]), int(x[7]), int(x[11]) / HZ, int(x[12]) / HZ
+        name = s[s.index("(") + 1:s.rindex(")")]
+        return int(x[1]), int(x[7]), int(x[11]) / HZ, int(x[12]) / HZ, name
     except (OSError, ValueError, IndexError):
         return None
 def cmdline(pid):
@@ -456,9 +469,9 @@ def watch():
         while todo:
             q = todo.pop()
             if q in info:
-                ppid, minflt, user, system = info[q]
+                ppid, minflt, user, system, name = info[q]
                 old = seen.get(q)
-                seen[q] = dict(ppid=ppid, minflt=minflt, user=user, sys=system,
+                seen[q] = dict(ppid=ppid, minflt=minflt, user=user, sys=system, comm=name,
                                cmd=old["cmd"] if old else cmdline(q))
             todo += kids.get(q, [])
         time.sleep(0.05)
@@ -472,22 +485,24 @@ servers = {q for q, v in seen.items() if "forkserver" in v["cmd"] and v["ppid"] 
 out = {"wall": wall, "code": p.returncode, "err": err.decode()[-1500:]}
 for q, v in seen.items():
     role = ("command" if q == root else "fork server" if q in servers
-            else "drawing helper" if v["ppid"] in servers else "others")
+            else "drawing helper" if v["ppid"] in servers or v["comm"] == "compose-drawer"
+            else "others")
     r = out.setdefault(role, {"user": 0.0, "sys": 0.0, "minflt": 0})
     r["user"] += v["user"]; r["sys"] += v["sys"]; r["minflt"] += v["minflt"]
 print(json.dumps(out))
 """
 
 
-def cpu(size: int, data: Path, runs: int) -> None:
-    """CPU seconds per process of the bare 2-thread render at ``size``, medians of ``runs``."""
+def cpu(size: int, data: Path, runs: int, workers: str = "auto") -> None:
+    """CPU seconds per process of the bare render at ``size`` (``workers``: window threads, or
+    "auto" for the command's default), medians of ``runs``."""
     folder, styles = _bench_data(size, data)
     out = folder / "out-lean-cpu"
     results = []
     for _ in range(runs):
         shutil.rmtree(out, ignore_errors=True)
         res = subprocess.run([sys.executable, "-c", CPU_SAMPLER, sys.executable, "-c", BARE,
-                              str(styles["aligned"]), str(out)], cwd=folder, capture_output=True,
+                              str(styles["aligned"]), str(out), workers], cwd=folder, capture_output=True,
                              text=True)
         try:
             d = json.loads(res.stdout.strip().splitlines()[-1])
@@ -507,7 +522,8 @@ def cpu(size: int, data: Path, runs: int) -> None:
 
     roles = ("command", "drawing helper", "fork server", "others")
     every = med(sum(total(d, r) for r in roles) for d in results)
-    print(f"{size} x {size}, bare render (PNG + GeoTIFF + check), 2 window threads, medians of "
+    threads = "automatic workers" if workers == "auto" else f"{workers} window thread(s)"
+    print(f"{size} x {size}, bare render (PNG + GeoTIFF + check), {threads}, medians of "
           f"{runs}: {med(d['wall'] for d in results):.2f} s wall, {every:.2f} s CPU in all "
           f"processes", flush=True)
     for role in roles:
@@ -532,6 +548,9 @@ def main() -> None:
                     help="also line drawing against vertices (1, 2, 4 M) and window count")
     ap.add_argument("--cpu", action="store_true",
                     help="also CPU per process of the bare render at 8192 (medians of --runs)")
+    ap.add_argument("--cpu-workers", default="auto",
+                    help="window threads of the --cpu render: a number, or auto (the command's "
+                         "default: 1 thread and the drawing helper on 2 cores)")
     a = ap.parse_args()
     if not a.no_demo:
         demo(a.runs)
@@ -539,7 +558,7 @@ def main() -> None:
     if a.lines:
         lines(a.runs, a.data)
     if a.cpu:
-        cpu(8192, a.data, a.runs)
+        cpu(8192, a.data, a.runs, a.cpu_workers)
     for size in (int(s) for s in a.sizes.split(",") if s) if not a.no_memory else ():
         memory(size, a.data)
         if not a.no_stages:

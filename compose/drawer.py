@@ -19,6 +19,13 @@ piped and unpickled (on the 8192 bench about 0.1 s of CPU over both processes fo
 through the pipe as before). It starts beside the walk (the threads draw the first
 windows themselves until it is up), and if it cannot start or fails, a window's layers are drawn
 in the calling thread as without it.
+
+The process itself is forked from this one by :func:`warm` when the window threads' mapper is
+made, before the render is prepared and before any other thread runs: it has this process's
+imports already, holds none of the render's arrays (it gets the layers it draws pickled, as
+above) and dies with this process. Where that cannot be (another thread runs, no ``fork``), it
+is forked from multiprocessing's fork server, a fresh interpreter that imports :data:`PRELOAD`
+(on the 8192 benchmark 0.2 CPU-s more, with a resource tracker beside it).
 """
 from __future__ import annotations
 
@@ -34,7 +41,7 @@ import numpy as np
 from compose.heap import no_huge_pages, trim
 from compose.layers.base import Paint
 
-__all__ = ["DrawAhead", "DRAWN_KINDS", "AHEAD", "warm"]
+__all__ = ["DrawAhead", "DRAWN_KINDS", "AHEAD", "warm", "discard_warm"]
 
 #: Layer kinds drawn by the helper process: their paints are flat-coloured Agg coverage and a
 #: pure function of the window and the prepared features.
@@ -54,6 +61,9 @@ SHARED_DIR = "/dev/shm"
 
 #: Modules the helper processes' server imports once (a helper is forked from it ready to draw).
 PRELOAD = ["compose.engine", "compose.parallel", "compose.drawer", "compose.layers.vector"]
+
+#: The forked helper's name as the system shows it (/proc/PID/comm; at most 15 bytes).
+HELPER_NAME = b"compose-drawer"
 
 _LAYERS: dict[int, Any] = {}     # in the helper process: layer index -> prepared layer
 _SHARED: list = []               # in the helper process: [the slots' mmap, bytes per slot]
@@ -150,10 +160,181 @@ class _Slots:
         return np.frombuffer(self.map, np.uint8, count, slot * self.size + at).reshape(shape)
 
 
+def _can_fork() -> bool:
+    """Whether the helper may be forked from this process: Linux (it dies with its parent) and
+    no other thread running (a fork copies locks other threads may hold)."""
+    import sys
+
+    return (sys.platform.startswith("linux") and hasattr(os, "fork")
+            and threading.active_count() == 1)
+
+
+def _serve(conn, other, parent: int) -> None:
+    """The forked helper process: import :data:`PRELOAD` (what this process lacks of it), then
+    run ``(function, args)`` requests from ``conn`` in order, sending back ``(True, result)`` or
+    ``(False, exception)``, until None or the end of the pipe."""
+    import gc
+    import importlib
+    import signal
+
+    other.close()
+    # the objects inherited from the parent are never collected here: a collection would write
+    # to every one of them (copying the pages this process shares with its parent)
+    gc.freeze()
+    signal.signal(signal.SIGINT, signal.SIG_IGN)        # the parent ends it
+    # not the parent's handler (the command turns SIGTERM into an exception and a message)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None)
+        libc.prctl(1, signal.SIGKILL, 0, 0, 0)              # PR_SET_PDEATHSIG
+        libc.prctl(15, ctypes.c_char_p(HELPER_NAME), 0, 0, 0)   # PR_SET_NAME (ps, top, /proc)
+    except Exception:       # pragma: no cover - best effort (EOF on the pipe ends it too)
+        pass
+    if os.getppid() != parent:
+        return
+    try:
+        for name in PRELOAD:
+            importlib.import_module(name)
+    except Exception:       # pragma: no cover - its requests fail: the threads draw
+        pass
+    while True:
+        try:
+            message = conn.recv()
+        except (EOFError, OSError):
+            return
+        if message is None:
+            return
+        fn, args = message
+        try:
+            reply = (True, fn(*args))
+        except BaseException as exc:        # noqa: BLE001 - handed back
+            reply = (False, exc)
+        try:
+            conn.send(reply)
+        except (EOFError, OSError):
+            return
+        except Exception as exc:            # a result or an error that does not pickle
+            try:
+                conn.send((False, RuntimeError(f"the drawing helper could not send back: {exc!r}")))
+            except Exception:               # pragma: no cover - the parent draws
+                return
+
+
+class _Helper:
+    """A helper process forked from this one (:func:`warm`), with a pipe both ways: requests go
+    in order, replies come back in order."""
+
+    def __init__(self):
+        import multiprocessing
+
+        ctx = multiprocessing.get_context("fork")
+        mine, theirs = ctx.Pipe()
+        self.process = ctx.Process(target=_serve, args=(theirs, mine, os.getpid()), daemon=True,
+                                   name="compose-drawer")
+        self.process.start()
+        theirs.close()
+        self.conn = mine
+
+    def close(self) -> None:
+        """Ask the process to end and reap it (killed if it does not end within seconds)."""
+        try:
+            self.conn.send(None)
+        except (OSError, ValueError):
+            pass
+        self.conn.close()
+        self.process.join(10)
+        if self.process.is_alive():     # pragma: no cover - a helper stuck in a window
+            self.process.kill()
+            self.process.join()
+
+
+class _Pool:
+    """The executor :class:`DrawAhead` submits to, over a :class:`_Helper`: ``submit`` returns a
+    :class:`~concurrent.futures.Future`, resolved by a reader thread as replies come (in order);
+    every pending future fails once the helper is gone."""
+
+    def __init__(self, helper: _Helper):
+        from collections import deque
+
+        self._helper = helper
+        self._pending: deque = deque()
+        self._lock = threading.Lock()
+        self._broken = False
+        self._reader = threading.Thread(target=self._read, daemon=True, name="compose-drawer-read")
+        self._reader.start()
+
+    def submit(self, fn, *args):
+        from concurrent.futures import Future
+
+        future: Future = Future()
+        with self._lock:
+            if self._broken:
+                raise RuntimeError("the drawing helper process ended")
+            self._pending.append(future)
+            try:
+                self._helper.conn.send((fn, args))
+            except BaseException:
+                self._pending.pop()
+                self._broken = True
+                raise
+        return future
+
+    def _read(self) -> None:
+        conn = self._helper.conn
+        while True:
+            try:
+                ok, value = conn.recv()
+            except (EOFError, OSError, ValueError):
+                break
+            with self._lock:
+                future = self._pending.popleft() if self._pending else None
+            if future is None or not future.set_running_or_notify_cancel():
+                continue
+            if ok:
+                future.set_result(value)
+            else:
+                future.set_exception(value)
+        with self._lock:
+            self._broken = True
+            pending = list(self._pending)
+            self._pending.clear()
+        for future in pending:
+            if future.set_running_or_notify_cancel():
+                future.set_exception(RuntimeError("the drawing helper process ended"))
+
+    def shutdown(self, wait: bool = True, cancel_futures: bool = False) -> None:
+        if cancel_futures:
+            with self._lock:
+                pending = list(self._pending)
+            for future in pending:
+                future.cancel()
+        with self._lock:
+            self._broken = True
+        self._helper.close()
+        if wait:
+            self._reader.join()
+
+
+#: The helper forked by :func:`warm`, waiting for its walk (taken by :class:`DrawAhead`).
+_WARM: list[_Helper] = []
+
+
 def warm() -> None:
-    """Start the server the helper processes are forked from, if it is not running: it imports
-    :data:`PRELOAD` beside whatever this process does next (e.g. preparing the render), so the
-    helper is ready when the walk starts. Never raises."""
+    """Make the helper process ready before the walk, beside whatever this process does next
+    (e.g. preparing the render). Where it can (:func:`_can_fork`: no other thread yet) the
+    helper is forked from this process now: it has this process's imports already and loads
+    only the rest of :data:`PRELOAD` (no interpreter start and no server process: on the 8192
+    benchmark the server cost 0.2 CPU-s); it shares this process's pages as they are at the
+    fork, before the render reads anything. Else the server the helper is forked from later is
+    started (it imports :data:`PRELOAD`). Never raises."""
+    if not _WARM and _can_fork():
+        try:
+            _WARM.append(_Helper())
+            return
+        except Exception:       # pragma: no cover - no fork here: the server below
+            pass
     try:
         import multiprocessing
         from multiprocessing import forkserver
@@ -162,6 +343,22 @@ def warm() -> None:
         forkserver.ensure_running()
     except Exception:       # pragma: no cover - no forkserver here: DrawAhead.start says so
         pass
+
+
+def _take_warm() -> _Helper | None:
+    """The helper :func:`warm` forked, if it is still up (then it is no longer waiting)."""
+    while _WARM:
+        helper = _WARM.pop()
+        if helper.process.is_alive():
+            return helper
+        helper.close()
+    return None
+
+
+def discard_warm() -> None:
+    """End the helper :func:`warm` forked when no walk will take it."""
+    while _WARM:
+        _WARM.pop().close()
 
 
 class DrawAhead:
@@ -197,6 +394,8 @@ class DrawAhead:
         self.served = 0
         #: windows whose coverage came through the shared slots
         self.shared = 0
+        #: whether the helper is the one :func:`warm` forked from this process
+        self.forked = False
         self._slots: _Slots | None = None
         self._slot: dict[int, int] = {}         # window index -> its shared slot
         # the helper starts beside the walk: until it is up, the threads draw themselves
@@ -212,7 +411,7 @@ class DrawAhead:
 
         from compose.packing import pack
 
-        executor = None
+        executor: Any = None
         slots = None
         try:
             payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
@@ -222,9 +421,14 @@ class DrawAhead:
                 slots = _Slots(SLOTS, size) if size else None
             except OSError:     # no shared memory here: the coverage comes through the pipe
                 slots = None
-            ctx = multiprocessing.get_context("forkserver")
-            ctx.set_forkserver_preload(PRELOAD)
-            executor = ProcessPoolExecutor(1, mp_context=ctx)
+            helper = _take_warm()
+            if helper is not None:      # forked by warm(): ready, with this process's imports
+                executor = _Pool(helper)
+                self.forked = True
+            else:
+                ctx = multiprocessing.get_context("forkserver")
+                ctx.set_forkserver_preload(PRELOAD)
+                executor = ProcessPoolExecutor(1, mp_context=ctx)
             # the layers go as a task, not as the worker's initializer arguments, which both
             # processes would keep for the whole walk (the features' WKB: 17 MB for 1 M vertices)
             shared = (slots.path, slots.count, slots.size) if slots is not None else None
@@ -254,6 +458,7 @@ class DrawAhead:
         layers = [li for li, layer in enumerate(prepared.layers)
                   if layer.spec.kind in DRAWN_KINDS and (only is None or li in only)]
         if not layers:
+            discard_warm()
             return None
         return cls(prepared, layers, windows, ahead, wait)
 

@@ -159,3 +159,48 @@ def test_walk_drops_this_process_features_once_the_helper_draws(tiny_region):
         assert all(la.features is not None for la in layers)     # and read again on demand
     finally:
         prepared.close()
+
+
+FORKED = r"""
+import sys
+import numpy as np
+from compose import drawer
+from compose.engine import prepare, render_window
+from compose.style import load_style
+
+drawer.warm()                   # one thread here: the helper is forked from this process now
+assert len(drawer._WARM) == 1
+helper = drawer._WARM[0].process
+prepared = prepare(load_style(sys.argv[1]))
+windows = prepared.windows(int(sys.argv[2]))
+here = [render_window(prepared, w).rgb8 for w in windows]
+d = drawer.DrawAhead.start(prepared, windows, ahead=2, wait=True)
+assert d is not None and d.forked and not drawer._WARM
+with open(f"/proc/{helper.pid}/comm") as f:     # named as the system shows it
+    assert f.read().strip() == drawer.HELPER_NAME.decode()
+for w, rgb in zip(windows, here, strict=True):
+    np.testing.assert_array_equal(render_window(prepared, w, drawn=d).rgb8, rgb)
+assert d.served == len(windows) * len(d.layers)
+d.close()
+assert not helper.is_alive() and helper.exitcode == 0      # asked to end, and reaped
+drawer.warm()
+again = drawer._WARM[0].process
+rasters = frozenset(i for i, la in enumerate(prepared.layers)
+                    if la.spec.kind not in drawer.DRAWN_KINDS)
+assert drawer.DrawAhead.start(prepared, windows, only=rasters) is None
+assert not drawer._WARM and not again.is_alive()           # nothing to draw: ended
+prepared.close()
+print("ok")
+"""
+
+
+def test_helper_forked_from_a_single_threaded_process_draws_the_same_rows(tiny_region):
+    # The command's case: warm() runs before any other thread, so the helper is forked from the
+    # command itself (no server process); a fresh interpreter, so that no test's thread runs.
+    import subprocess
+    import sys
+
+    res = subprocess.run([sys.executable, "-c", FORKED, str(tiny_region), str(WINDOW)],
+                         capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0, res.stderr[-3000:]
+    assert res.stdout.strip() == "ok" and res.stderr == ""
