@@ -102,12 +102,24 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
         return blocked_for(*args)
 
     store = _cache_of(style, canvas if canvas is not None else full, keep_clear, cache, mapper)
-    early = _read_vectors_early(style, store, canvas if is_draft else None) \
-        if mapper is None else False
+    ahead = None
+    if mapper is None:
+        specs = _to_read(style, store)
+        if is_draft:        # forked before any thread of this process starts
+            from compose.layers.early_marks import MarksAhead
+
+            ahead = MarksAhead.start(style, canvas, specs)
+        early = _read_vectors_early(
+            [s for s in specs if ahead is None or s.name not in ahead.names],
+            canvas if is_draft else None)
+    else:
+        early = False
     try:
         return _check(style, progress, mapper, full, canvas, is_draft, keep_clear, cache, store,
-                      workers)
+                      workers, ahead)
     finally:
+        if ahead is not None:
+            ahead.close()
         if early:
             from compose.sources.vector import forget_early
 
@@ -118,41 +130,41 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
 _VECTOR_KINDS = ("lines", "areas", "points", "labels")
 
 
-def _read_vectors_early(style: Style, store, draft=None) -> bool:
-    """Start reading the features of the enabled vector layers the check will read (not those
-    its cache holds) on threads of their own (:func:`compose.sources.vector.read_early`), while
-    the engine is imported and the rasters prepared; a ``draft`` canvas's lines, areas and
-    points simplified there too, as its layers ask; True when any was started."""
+def _to_read(style: Style, store) -> list:
+    """The enabled vector layers (:data:`_VECTOR_KINDS`) whose sources the check will read: those
+    its cache does not hold."""
     specs = [s for s in style.layers if s.enabled and s.kind in _VECTOR_KINDS]
     held = store.held(specs) if store is not None else set()
-    specs = [s for s in specs if s.name not in held]
+    return [s for s in specs if s.name not in held]
+
+
+def _read_vectors_early(specs: list, draft=None) -> bool:
+    """Start reading the features of the vector layers ``specs`` on threads of their own
+    (:func:`compose.sources.vector.read_early`), while the engine is imported and the rasters
+    prepared; a ``draft`` canvas's lines, areas and points simplified there too, as its layers
+    ask; True when any was started."""
     if not specs:
         return False
-    from compose.sources.vector import DRAFT_TOLERANCE, read_early
+    from compose.layers.early_marks import read_ahead
 
     for spec in specs:
-        o = spec.options
-        simplify = draft.pixel * DRAFT_TOLERANCE if draft is not None and spec.kind != "labels" \
-            else None
-        read_early(spec.source, layer=spec.name, table=getattr(o, "table", None),
-                   where=getattr(o, "where", None), simplify=simplify,
-                   crs=None if draft is None else draft.crs)
+        read_ahead(spec, draft)
     return True
 
 
 def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_clear, cache,
-           store, workers: int | None = None) -> CheckReport:
+           store, workers: int | None = None, ahead=None) -> CheckReport:
     from compose.check.draft import describe_draft
     from compose.engine import WINDOW, prepare, run  # looked up per call (tests may replace them)
     from compose.timeline import span
 
     prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
-                       make_layer=None if store is None else store.layer)
+                       make_layer=_layer_maker(store, ahead))
     if store is not None and not store.usable(prepared.margin, WINDOW):
         prepared.close()            # entries of another walk (a layer's margin changed): rebuild
         store = _cache_of(style, prepared.canvas, keep_clear, cache, mapper, read=False)
         prepared = prepare(style, canvas=canvas, keep_clear=keep_clear, draft=is_draft,
-                           make_layer=None if store is None else store.layer)
+                           make_layer=_layer_maker(store, ahead))
     helpers = None
     if mapper is None and (store is None or not store.warm):
         helpers = _Helpers.start(prepared, workers)
@@ -172,6 +184,18 @@ def _check(style: Style, progress, mapper, full, canvas, is_draft: bool, keep_cl
         if helpers is not None:
             helpers.close()
         prepared.close()
+
+
+def _layer_maker(store, ahead):
+    """:func:`compose.engine.prepare`'s ``make_layer``: the cache's (which builds a layer on a
+    miss), over the layers drawn ahead in a forked process for a draft
+    (:class:`compose.layers.early_marks.MarksAhead`); None when neither."""
+    if ahead is None:
+        return None if store is None else store.layer
+    if store is None:
+        return ahead.make_layer
+    return lambda spec, ctx, build: store.layer(
+        spec, ctx, lambda: ahead.make_layer(spec, ctx, build))
 
 
 #: Layer kinds whose paints are drawn marks (Agg), not raster reads.

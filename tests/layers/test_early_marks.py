@@ -1,0 +1,69 @@
+"""A draft's lines, areas and points prepared and drawn in a forked process
+(compose.layers.early_marks) give the report the check makes drawing them itself, byte for
+byte (our own invariant: the same code on the same inputs), and the check's process then loads
+no vector or drawing module for them. Each case runs in a fresh interpreter, as a command does:
+a process with other threads running (pytest's may) does not fork."""
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+STYLES = ROOT / "styles"
+
+# runs in a fresh interpreter: argv[1] the style, argv[2] "ahead" / "here" / "fail"
+_CODE = """
+import json, sys
+import compose.api, compose.layers.early_marks as em
+import compose.page.process as process
+em.MIN_BYTES = 0                       # the demo's small files are drawn ahead too
+forked = []
+real = process.Forked.__init__
+process.Forked.__init__ = lambda self, fn: forked.append(1) or real(self, fn)
+if sys.argv[2] == "here":
+    em.MarksAhead.start = classmethod(lambda cls, *a: None)
+if sys.argv[2] == "fail":              # the process fails: the layers are built here instead
+    def broken(*a):
+        raise RuntimeError("no paints")
+    em._draw_all = broken
+report = compose.api.check(sys.argv[1], draft=True, cache=False)
+print(json.dumps({"report": report.to_json(False), "forked": len(forked),
+                  "modules": sorted(sys.modules)}))
+"""
+
+
+def _draft(style: Path, how: str) -> dict:
+    out = subprocess.run([sys.executable, "-c", _CODE, str(style), how], capture_output=True,
+                         text=True, cwd=ROOT, check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def test_marks_drawn_ahead_give_the_same_draft_report_on_every_example_style():
+    for name in ("coast", "sea-warmth", "change", "cover", "base", "poor"):
+        style = STYLES / f"{name}.toml"
+        ahead, here = _draft(style, "ahead"), _draft(style, "here")
+        assert (ahead["forked"], here["forked"]) == (1, 0), name     # each has lines
+        assert json.dumps(ahead["report"]) == json.dumps(here["report"]), name
+
+
+def test_a_failed_process_leaves_the_layers_to_the_check_with_the_same_report():
+    style = STYLES / "coast.toml"
+    failed, here = _draft(style, "fail"), _draft(style, "here")
+    assert failed["forked"] == 1
+    assert json.dumps(failed["report"]) == json.dumps(here["report"])
+
+
+def test_a_check_whose_marks_are_drawn_ahead_loads_no_vector_module(tmp_path):
+    """Lines drawn in the forked process: the check's own process reads no feature (no shapely,
+    no compose.sources.vector) and draws nothing (no compose.layers.vector, no Agg)."""
+    from tests.layers.test_early import _big_style
+
+    style = _big_style(tmp_path, n=512)
+    ahead, here = _draft(style, "ahead"), _draft(style, "here")
+    assert ahead["forked"] == 1
+    assert json.dumps(ahead["report"]) == json.dumps(here["report"])
+    heavy = ("shapely", "compose.sources.vector", "compose.layers.vector", "compose.layers.agg")
+    assert [m for m in heavy if m in here["modules"]] == list(heavy)
+    assert [m for m in heavy if m in ahead["modules"]] == []
