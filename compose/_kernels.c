@@ -317,6 +317,57 @@ static PyObject *index_range(PyObject *self, PyObject *args) {
     return Py_BuildValue("LL", (long long)lo, (long long)hi);
 }
 
+/* one row of gray's samples: the row's pointers and strides */
+typedef struct {
+    const char *irow; Py_ssize_t ij;
+    const char *prow; Py_ssize_t ps, pj;
+    const char *arow; Py_ssize_t aj;
+    const char *hrow; Py_ssize_t hj;
+    const char *orow; Py_ssize_t oj;
+} GrayRow;
+
+/* gray's work on one row; u16 (the index is uint16) and the has_ flags are constants where it
+   is inlined, so each common case gets a loop without their tests. Returns 1 when an index lies
+   outside lo..lo + m - 1 (the tables then hold part of the row). Each table gets its additions pixel
+   by pixel in row-major order: counts whole numbers, colour sums as np.bincount adds them. */
+static inline __attribute__((always_inline)) int gray_row(
+        const GrayRow *rw, const Arr *index, const Tables *t, const double *l8, Py_ssize_t lo,
+        Py_ssize_t m, double *cts, double *cnt, double *col, Py_ssize_t k2, const int u16,
+        const int has_alpha, const int has_hidden, const int has_above, const int has_cnt) {
+    uint32_t last_rgb = 0xffffffffu;
+    Py_ssize_t last_l = 0;
+    for (Py_ssize_t j = 0; j < k2; j++) {
+        const char *q = rw->irow + j * rw->ij;
+        Py_ssize_t e = (Py_ssize_t)((u16 ? (int64_t)*(const uint16_t *)q : read_int(q, index)) - lo);
+        if (__builtin_expect((size_t)e >= (size_t)m, 0)) return 1;
+        float a = has_alpha ? *(const float *)(rw->arow + j * rw->aj) : 1.0f;
+        int shown = has_hidden ? (*(const float *)(rw->hrow + j * rw->hj) < 0.02f) : 1;
+        if (!shown) continue;
+        const char *px = rw->prow + j * rw->pj;
+        uint8_t r = *(const uint8_t *)px;
+        uint8_t g = *(const uint8_t *)(px + rw->ps);
+        uint8_t b = *(const uint8_t *)(px + 2 * rw->ps);
+        if (!has_alpha || a > 0.5f) {
+            /* L* of the previous colour again when it repeats (flat colours do) */
+            uint32_t rgb = ((uint32_t)r << 16) | ((uint32_t)g << 8) | b;
+            if (rgb != last_rgb) {
+                last_rgb = rgb;
+                last_l = lightness(t, luminance(t, r, g, b));
+            }
+            cts[e * 101 + last_l] += 1.0;
+        }
+        if (has_cnt && (!has_alpha || a > 0.0f)
+                && (!has_above || *(const float *)(rw->orow + j * rw->oj) <= 0.5f)) {
+            cnt[e] += 1.0;
+            double *c3 = col + 3 * e;
+            c3[0] += l8[r];
+            c3[1] += l8[g];
+            c3[2] += l8[b];
+        }
+    }
+    return 0;
+}
+
 PyDoc_STRVAR(gray_doc,
 "gray(planes8, index, alpha, hidden, above, ytab, lbin, linear8, lo, counts, count, color)\n\n"
 "A theme's grey-order tables over sampled pixels (k1, k2), row-major: planes8 (3, k1, k2)\n"
@@ -325,7 +376,8 @@ PyDoc_STRVAR(gray_doc,
 "cover, float32), each (k1, k2) or None. A pixel kept (alpha > 0.5, hidden < 0.02) adds 1 to\n"
 "counts[entry - lo, L*] (float64 (m, 101)); with count (float64 (m,)) and color (float64\n"
 "(m, 3)) not None, a pixel drawn (alpha > 0, hidden < 0.02, above <= 0.5) adds 1 to its\n"
-"entry's count and linear8 (float64 (256,)) of each channel to its colour.");
+"entry's count and linear8 (float64 (256,)) of each channel to its colour. An index outside\n"
+"lo..lo + m - 1 raises ValueError (the tables then hold part of the samples).");
 
 static PyObject *gray(PyObject *self, PyObject *args) {
     PyObject *planes_o, *index_o, *alpha_o, *hidden_o, *above_o, *ytab_o, *lbin_o, *lin_o,
@@ -370,97 +422,28 @@ static PyObject *gray(PyObject *self, PyObject *args) {
     double *cnt = count.held ? (double *)count.b.buf : NULL;
     double *col = color.held ? (double *)color.b.buf : NULL;
     int bad = 0;
-    Py_ssize_t *erow = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(k2 + 1));
-    if (!erow) {
-        PyErr_NoMemory();
-        goto done;
-    }
     Py_BEGIN_ALLOW_THREADS
-    /* an entry's count and colour sums are kept in registers while the next pixels have the
-       same entry and written back when one has another: each sum gets the same additions in
-       the same order as sum[entry] += value pixel by pixel */
-    Py_ssize_t cur = -1, run = 0;
-    double acc_r = 0.0, acc_g = 0.0, acc_b = 0.0;
-    Py_ssize_t ccell = -1, crun = 0;
-    uint32_t last_rgb = 0xffffffffu;
-    uint8_t last_l = 0;
     const Py_ssize_t ps = planes.b.strides[0], pj = planes.b.strides[2];
     const Py_ssize_t aj = alpha.held ? alpha.b.strides[1] : 0;
     const Py_ssize_t hj = hidden.held ? hidden.b.strides[1] : 0;
     const Py_ssize_t oj = above.held ? above.b.strides[1] : 0;
     const Py_ssize_t ij = index.b.strides[1];
-    const int isize = (int)index.b.itemsize, isigned = index.kind == K_INT;
+    const int u16 = index.b.itemsize == 2 && index.kind == K_UINT;
+    /* the common cases with their tests made constant (see gray_row) */
     for (Py_ssize_t i = 0; i < k1 && !bad; i++) {
-        const char *irow = AT2(index, i, 0);
-        /* the row's entries - lo, read by the index's own type */
-        for (Py_ssize_t j = 0; j < k2; j++) {
-            const char *q = irow + j * ij;
-            int64_t v = isize == 2 && !isigned ? (int64_t)*(const uint16_t *)q
-                        : isize == 1 && !isigned ? (int64_t)*(const uint8_t *)q
-                        : read_int(q, &index);
-            erow[j] = (Py_ssize_t)(v - lo);
-            if (erow[j] < 0 || erow[j] >= m) bad = 1;
-        }
-        if (bad) break;
-        const char *prow = AT3(planes, 0, i, 0);
-        const char *arow = alpha.held ? AT2(alpha, i, 0) : NULL;
-        const char *hrow = hidden.held ? AT2(hidden, i, 0) : NULL;
-        const char *orow = above.held ? AT2(above, i, 0) : NULL;
-        for (Py_ssize_t j = 0; j < k2; j++) {
-            Py_ssize_t e = erow[j];
-            float a = arow ? *(const float *)(arow + j * aj) : 1.0f;
-            int shown = hrow ? (*(const float *)(hrow + j * hj) < 0.02f) : 1;
-            const char *px = prow + j * pj;
-            uint8_t r = *(const uint8_t *)px;
-            uint8_t g = *(const uint8_t *)(px + ps);
-            uint8_t b = *(const uint8_t *)(px + 2 * ps);
-            if (a > 0.5f && shown) {
-                /* L* of the previous colour again when this pixel has the same one (a smooth
-                   composite repeats them); counts of one cell added up while the next pixels
-                   fall in it: whole numbers, exact in any grouping */
-                uint32_t rgb = ((uint32_t)r << 16) | ((uint32_t)g << 8) | b;
-                if (rgb != last_rgb) {
-                    last_rgb = rgb;
-                    last_l = lightness(&t, luminance(&t, r, g, b));
-                }
-                Py_ssize_t cell = e * 101 + last_l;
-                if (cell != ccell) {
-                    if (ccell >= 0) cts[ccell] += (double)crun;
-                    ccell = cell;
-                    crun = 0;
-                }
-                crun++;
-            }
-            if (cnt && a > 0.0f && shown && (!orow || *(const float *)(orow + j * oj) <= 0.5f)) {
-                if (e != cur) {
-                    if (cur >= 0) {
-                        cnt[cur] += (double)run;
-                        col[3 * cur] = acc_r;
-                        col[3 * cur + 1] = acc_g;
-                        col[3 * cur + 2] = acc_b;
-                    }
-                    cur = e;
-                    run = 0;
-                    acc_r = col[3 * e];
-                    acc_g = col[3 * e + 1];
-                    acc_b = col[3 * e + 2];
-                }
-                run++;
-                acc_r += l8[r];
-                acc_g += l8[g];
-                acc_b += l8[b];
-            }
-        }
+        GrayRow row = {AT2(index, i, 0), ij, AT3(planes, 0, i, 0), ps, pj,
+                       alpha.held ? AT2(alpha, i, 0) : NULL, aj,
+                       hidden.held ? AT2(hidden, i, 0) : NULL, hj,
+                       above.held ? AT2(above, i, 0) : NULL, oj};
+        if (u16 && !alpha.held && hidden.held && !above.held && cnt)
+            bad = gray_row(&row, &index, &t, l8, lo, m, cts, cnt, col, k2, 1, 0, 1, 0, 1);
+        else if (u16 && !alpha.held && !hidden.held && !above.held && cnt)
+            bad = gray_row(&row, &index, &t, l8, lo, m, cts, cnt, col, k2, 1, 0, 0, 0, 1);
+        else
+            bad = gray_row(&row, &index, &t, l8, lo, m, cts, cnt, col, k2, 0,
+                           alpha.held, hidden.held, above.held, cnt != NULL);
     }
-    if (cur >= 0) {
-        cnt[cur] += (double)run;
-        col[3 * cur] = acc_r;
-        col[3 * cur + 1] = acc_g;
-        col[3 * cur + 2] = acc_b;
-    }
-    if (ccell >= 0) cts[ccell] += (double)crun;
     Py_END_ALLOW_THREADS
-    PyMem_RawFree(erow);
     if (bad) {
         PyErr_SetString(PyExc_ValueError, "gray: an index outside lo..lo + m - 1");
         goto done;

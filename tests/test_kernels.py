@@ -231,6 +231,44 @@ def test_gray_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
     assert results[0].layers[0].value_color.any() and results[0].layers[1].value_lightness.any()
 
 
+@pytest.mark.parametrize("cover", [True, False])
+@pytest.mark.parametrize("index_type", [np.uint16, np.uint8, np.int64])
+def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_type):
+    # One opaque theme (the kernel's own loops for uint16 entries under overlays and under none;
+    # any other index type takes its general loop), sampled from a window at an odd place
+    from types import SimpleNamespace
+
+    from compose.check.stats import N_LIGHTNESS, Statistics
+
+    rng = np.random.default_rng(5)
+    h, w, n = 41, 38, 200
+    layer = LayerStats(name="t", role="theme", kind="field", values=np.arange(n, dtype=float),
+                       value_lightness=np.zeros((n, N_LIGHTNESS)), value_color=np.zeros((n, 3)),
+                       value_count=np.zeros(n))
+    template = Statistics(width=w, height=h, layers=[layer], background=(1.0, 1.0, 1.0))
+    planes8 = rng.integers(0, 256, (3, h, w)).astype(np.uint8)
+    planes8[:, :10] = 77                # a flat colour: L* of the previous pixel again
+    rgb8 = np.ascontiguousarray(np.moveaxis(planes8, 0, -1))
+    index = rng.integers(17, n, (h, w)).astype(index_type)
+    alpha = np.ones((h, w), np.float32)
+    hidden = _edges(rng, (h, w), [0, 0.02, 0.3]) if cover else None
+    results = []
+    for on in (True, False):
+        use(on)
+        window = SimpleNamespace(row=3, col=1, inner=(slice(0, h), slice(0, w)))
+        meter = M.WindowMeasure(template, window)
+        meter._themes = [(0, index, alpha, True)]
+        meter._hidden = hidden
+        results.append(meter.finish(rgb8, planes8))
+    a, b = (r.layers[0] for r in results)
+    for name in ("value_lightness", "value_color", "value_count"):
+        assert getattr(a, name).tobytes() == getattr(b, name).tobytes(), name
+    # checked against the pixels themselves: every sample counted once, where not covered
+    kept = np.ones((h, w), bool) if hidden is None else hidden < 0.02
+    sampled = kept[1::2, 1::2]      # the canvas's even grid: rows 4, 6, ..., columns 2, 4, ...
+    assert a.value_lightness.sum() == a.value_count.sum() == sampled.sum() > 0
+
+
 @pytest.mark.parametrize("strided", [False, True])
 def test_eight_bit_conversion_equals_the_numpy_path(use, strided):
     # np.clip to [0, 1], x 255, np.rint (half to even) and the cast: the same bytes, on the
