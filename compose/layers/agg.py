@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import functools
 import sys
+import threading
 
 import numpy as np
 
@@ -57,18 +58,32 @@ class Path:
         return len(self.vertices)
 
 
+_FIRST = threading.Lock()
+
+
 @functools.lru_cache(maxsize=1)
 def renderer_class() -> type:
     """matplotlib's ``RendererAgg`` (width, height, dpi), its extension module loaded without
-    the matplotlib package when that is not imported yet (and registered under its own name)."""
-    module = sys.modules.get(_AGG)
-    if module is None and "matplotlib" not in sys.modules:
-        module = _load_alone()
-    if module is None:
-        import importlib
+    the matplotlib package when that is not imported yet (and registered under its own name).
 
-        module = importlib.import_module(_AGG)
-    return module.RendererAgg
+    Thread-safe: the first call loads the module and uses a renderer once (draws, reads its
+    buffer) while any other thread's first call waits. Window threads that met the renderer for
+    the first time at once sometimes found its buffer protocol broken for the rest of the process
+    (``BufferError: pybind11_getbuffer(): Internal error``: about 1 render in 10 of the coast
+    style with ``--workers 2``, 6 in 10 processes whose 4 threads drew their first label at once;
+    matplotlib 3.11's pybind11 extension; never after one use in a single thread)."""
+    with _FIRST:
+        module = sys.modules.get(_AGG)
+        if module is None and "matplotlib" not in sys.modules:
+            module = _load_alone()
+        if module is None:
+            import importlib
+
+            module = importlib.import_module(_AGG)
+        renderer = module.RendererAgg(2, 2, 72.0)
+        memoryview(renderer).release()
+        renderer.clear()
+        return module.RendererAgg
 
 
 def _load_alone():

@@ -111,3 +111,34 @@ def test_plain_labels_load_no_matplotlib_artists():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert not set(out.stdout.split()) & {"matplotlib.text", "matplotlib.patches",
                                           "matplotlib.lines"}
+
+
+FIRST_USE = r"""
+import sys, threading
+from compose.layers import draw
+shape = draw.measure_text("Harbour", 12.0)      # matplotlib imported, as label placement does
+barrier = threading.Barrier(8)
+errors = []
+def worker(k):
+    try:
+        barrier.wait()                          # every thread meets the renderer at once
+        draw.draw_text_shapes([(shape, 3.0 + k, 20.0)], 64, 32, halo_px=2.0)
+    except Exception as exc:
+        errors.append(repr(exc))
+threads = [threading.Thread(target=worker, args=(k,)) for k in range(8)]
+for t in threads: t.start()
+for t in threads: t.join()
+print(errors[0] if errors else "ok")
+"""
+
+
+def test_threads_meeting_the_renderer_first_at_once_all_draw():
+    # Window threads drawing their first labels at the same moment sometimes broke the
+    # renderer's buffer protocol for the whole process (BufferError "pybind11_getbuffer():
+    # Internal error", a render failing). The first use happens in a fresh process only, so
+    # several are started; before renderer_class's lock about half of them failed.
+    for _ in range(6):
+        res = subprocess.run([sys.executable, "-c", FIRST_USE], capture_output=True, text=True,
+                             timeout=120)
+        assert res.returncode == 0, res.stderr[-2000:]
+        assert res.stdout.strip() == "ok"
