@@ -272,10 +272,11 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                 # alpha 1 everywhere (rasters without no-data): nothing to weigh by it
                 opaque = bool(alpha.min() >= 1.0) if alpha.size else False
                 if paint.palette is not None:       # colours looked up strip by strip
-                    # an opaque raster's entries are counted while they are looked up (a
-                    # palette's measure never reads the composite, so it may come after)
+                    # a raster's entries are counted while they are looked up (a palette's
+                    # measure never reads the composite, so it may come after): its weights
+                    # where the core is opaque, a theme's range of entries for the grey order
                     counts = (np.zeros(paint.palette.rgb8.shape[0], np.intp)
-                              if meter is not None and opaque else None)
+                              if meter is not None else None)
                     composite_palette(out, paint.palette.planes, paint.index, alpha, spec.blend,
                                       opaque=opaque, counts=counts, region=inner)
                     if meter is not None:

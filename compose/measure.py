@@ -394,15 +394,16 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     just before this paint; ground8: a copy of the padded composite under the whole layer (None
     for the layer's first paint, where it equals ``beneath``); both measured as 8-bit colours.
     padded_opaque: the caller found alpha 1 over the whole padded window (then over the core).
-    counts: with ``padded_opaque``, the palette entries' pixel counts over the core, counted
-    by the caller (:func:`compose.composite.composite_palette`); else None.
+    counts: the palette entries' pixel counts over the core, counted by the caller
+    (:func:`compose.composite.composite_palette`), or None; they are the weights where alpha is
+    1 over the core (at the canvas's edges too, where the padded window is not drawn).
     """
     alpha_core = alpha[inner]
     opaque = False
     if paint.palette is not None:
         n = paint.palette.rgb8.shape[0]
         opaque = padded_opaque or bool(alpha_core.min() >= 1.0)
-        if counts is not None and padded_opaque:
+        if counts is not None and opaque:
             w = counts
         elif opaque:                    # an unweighted count is ~3x faster
             w = np.bincount(_intp_of(paint.index[inner]), minlength=n)
@@ -454,7 +455,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
 
 def _gray_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
                    hidden: np.ndarray | None, alpha: np.ndarray | None,
-                   above: np.ndarray | bool | None) -> bool:
+                   above: np.ndarray | bool | None, counts: np.ndarray | None = None) -> bool:
     """A theme's grey-order rows of one window (L* per entry; blended colours and their counts
     when measured) by the compiled kernel, in one pass over the sampled pixels: the numbers of
     the numpy path in :meth:`WindowMeasure.finish`, bit for bit (counts are whole numbers; each
@@ -462,6 +463,9 @@ def _gray_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
     ``view``: the sampled composite (3, k1, k2) uint8; ``index``, ``hidden`` (what overlays
     cover; None: nothing), ``alpha`` (the theme's; None: 1) on the same samples (k1, k2);
     ``above``: what themes drawn later cover (flat, or True: everything, or None: nothing).
+    ``counts``: the index's counts per entry over the window's core, or None: the rows added
+    are then those from its first to its last entry counted (a few more than the samples
+    have, whose rows stay zeros: the same sums) instead of the samples' own range, read.
     False (nothing added) when an array is of another type: then the numpy path measures."""
     if view.dtype != np.uint8 or index.dtype.kind not in "iu" or any(
             a is not None and a.dtype != np.float32 for a in (hidden, alpha)) or (
@@ -469,7 +473,11 @@ def _gray_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
         return False
     if not index.size:
         return True
-    lo, hi = k.index_range(index)
+    present = np.flatnonzero(counts) if counts is not None else None
+    if present is not None and present.size:
+        lo, hi = int(present[0]), int(present[-1])
+    else:
+        lo, hi = k.index_range(index)
     m = hi - lo + 1
     counts = np.zeros((m, N_LIGHTNESS))
     colors = s.measures("value_color") and s.measures("value_count") and above is not True
@@ -495,8 +503,9 @@ class WindowMeasure:
         self.stats = template.empty_like()
         self.window = window
         self.inner = window.inner
-        # themes drawn: (layer index, palette index (core), alpha (core), alpha 1 over the core)
-        self._themes: list[tuple[int, np.ndarray, np.ndarray, bool]] = []
+        # themes drawn: (layer index, palette index (core), alpha (core), alpha 1 over the core,
+        # the index's counts per entry over the core or None)
+        self._themes: list[tuple[int, np.ndarray, np.ndarray, bool, np.ndarray | None]] = []
         self._hidden: np.ndarray | None = None   # core: how much overlays cover each pixel
         self._union: np.ndarray | None = None
         self._opaque = False                     # the union is one opaque raster paint
@@ -517,8 +526,8 @@ class WindowMeasure:
         """Paint ``pi`` of layer ``li`` with coverage x opacity ``alpha`` is about to be
         composited over ``out`` (the padded composite so far; a raster's paint may be measured
         after, as it never reads ``out``); ``opaque``: the caller found ``alpha`` 1 everywhere;
-        ``counts``: with ``opaque``, a raster's pixel counts per palette entry over the core,
-        counted by the caller (:func:`compose.composite.composite_palette`), or None."""
+        ``counts``: a raster's pixel counts per palette entry over the core (intp (n,)), counted
+        by the caller (:func:`compose.composite.composite_palette`), or None."""
         spec = layer.spec
         overlay = spec.role == "overlay"
         a_core = alpha[self.inner]
@@ -531,7 +540,7 @@ class WindowMeasure:
                                counts)
         self._opaque = first and opaque
         if spec.role == "theme" and paint.palette is not None:
-            self._themes.append((li, paint.index[self.inner], a_core, opaque))
+            self._themes.append((li, paint.index[self.inner], a_core, opaque, counts))
         if self._reliefs and spec.role != "overlay" and spec.blend == "normal":
             for r in self._reliefs:     # a relief under this paint shows through 1 - alpha
                 if r[0] != li:
@@ -602,7 +611,7 @@ class WindowMeasure:
             shown = None        # where hidden < 0.02 (flat), for the numpy path
             # each theme's alpha on the sample grid (None: 1 everywhere)
             sampled_alpha = [None if opaque else a_core[sub].ravel()
-                             for _, _, a_core, opaque in themes]
+                             for _, _, a_core, opaque, _ in themes]
             # a theme drawn later (more than half there) hides an earlier one: the earlier
             # theme's blended colours are counted only where it is not covered that way
             covered_above: list[np.ndarray | bool | None] = [None] * len(themes)
@@ -616,11 +625,12 @@ class WindowMeasure:
                     running = a if running is None else np.maximum(running, a)
             linear = None
             kernel = compiled()
-            for (li, index, a_core, _), a_s, above in zip(themes, sampled_alpha, covered_above):
+            for (li, index, a_core, _, counts), a_s, above in zip(themes, sampled_alpha,
+                                                                  covered_above):
                 s = self.stats.layers[li]
                 if kernel is not None and _gray_compiled(
                         kernel, s, view, index[sub], hidden, None if a_s is None else a_core[sub],
-                        above):
+                        above, counts):
                     continue
                 sampled, lightness = samples()
                 if hidden is not None and shown is None:

@@ -221,7 +221,8 @@ def test_gray_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
             use(on)
             window = SimpleNamespace(row=1, col=2, inner=(slice(0, h), slice(0, w)))
             meter = M.WindowMeasure(template, window)
-            meter._themes = [(0, indices[0], alphas[0], first_opaque), (1, indices[1], alphas[1], False)]
+            meter._themes = [(0, indices[0], alphas[0], first_opaque, None),
+                              (1, indices[1], alphas[1], False, None)]
             meter._hidden = hidden
             results.append(meter.finish(rgb8, source))
     for stats in results[1:]:
@@ -257,7 +258,8 @@ def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_
         use(on)
         window = SimpleNamespace(row=3, col=1, inner=(slice(0, h), slice(0, w)))
         meter = M.WindowMeasure(template, window)
-        meter._themes = [(0, index, alpha, True)]
+        # the index's counts over the core (as the engine passes them) or none
+        meter._themes = [(0, index, alpha, True, np.bincount(index.ravel(), minlength=n) if on else None)]
         meter._hidden = hidden
         results.append(meter.finish(rgb8, planes8))
     a, b = (r.layers[0] for r in results)
