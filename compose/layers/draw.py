@@ -26,6 +26,7 @@ same parts: pass dashed lines clipped to the canvas (or not at all), not cut at 
 from __future__ import annotations
 
 import functools
+import threading
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -121,14 +122,43 @@ class _GC:
         return self._sketch
 
 
+#: Renderers kept per thread for reuse, at most this many sizes (the vector layers' tiles are
+#: all one size but at the canvas's edges; labels draw padded windows).
+KEPT_RENDERERS = 4
+_KEPT = threading.local()
+
+
+def _renderer(width: int, height: int):
+    """An Agg renderer of ``width`` x ``height``, cleared: this thread's last one of that size
+    if it has one (a renderer's pixel buffer, scanline storage and cell blocks are allocated,
+    and their pages faulted in, when it is made: making one per 256 px tile of the 8192
+    benchmark's lines was about a tenth of the drawing helper's CPU; measured, no source). A
+    cleared renderer draws the same bytes as a new one (tests/layers/test_draw.py)."""
+    kept = getattr(_KEPT, "renderers", None)
+    if kept is None:
+        kept = _KEPT.renderers = {}
+    key = (width, height)
+    renderer = kept.pop(key, None)
+    if renderer is None:
+        renderer = renderer_class()(width, height, _DPI)
+        if len(kept) >= KEPT_RENDERERS:
+            del kept[next(iter(kept))]          # the one used longest ago
+    else:
+        renderer.clear()
+    kept[key] = renderer                        # the most recently used last
+    return renderer
+
+
 class _Canvas:
-    """An Agg renderer with one graphics context: black, opaque, antialiased, unsnapped."""
+    """An Agg renderer with one graphics context: black, opaque, antialiased, unsnapped. The
+    renderer is this thread's of that size (:func:`_renderer`): a canvas is used by one call
+    and its coverage copied out before the call returns."""
 
     def __init__(self, width: int, height: int):
         if width < 1 or height < 1:
             raise ValueError(f"grid must be at least 1 x 1, got {width} x {height}")
         self.width, self.height = int(width), int(height)
-        self.renderer = renderer_class()(self.width, self.height, _DPI)
+        self.renderer = _renderer(self.width, self.height)
 
     def gc(self, width_px: float = 0.0, cap: str = "round", join: str = "round") -> _GC:
         # validates cap and join even when nothing is drawn

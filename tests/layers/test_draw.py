@@ -275,3 +275,29 @@ def test_eight_bit_coverage_is_the_float_coverage_times_255():
             assert f.dtype == np.float32 and b.dtype == np.uint8 and b.flags.c_contiguous
             np.testing.assert_array_equal(np.divide(b, np.float32(255), dtype=np.float32), f)
     assert bytes_[0][0].any() and not bytes_[2][0].any()
+
+
+def test_a_kept_renderer_draws_what_a_new_one_draws():
+    # Renderers are kept per thread and size (compose.layers.draw._renderer): one cleared after
+    # other drawing gives the bytes a new renderer gives, for strokes (two widths on one
+    # renderer) and for fills with outlines.
+    from compose.layers import draw as drawing
+    from compose.layers.agg import Path
+
+    rng = np.random.default_rng(15)
+    walk = np.cumsum(rng.normal(0.0, 6.0, (60, 2)), axis=0) + (35.0, 25.0)
+    path = Path(walk, [Path.MOVETO] + [Path.LINETO] * 59)
+    other = Path(walk[::-1] * 0.7 + 5.0, [Path.MOVETO] + [Path.LINETO] * 59)
+    box = shapely.Polygon([(3, 3), (60, 8), (50, 45), (6, 40)]).buffer(-1.5)
+    transform = Affine(1.0, 0, 0, 0, -1.0, 50)
+    drawing._KEPT.__dict__.clear()          # this thread's kept renderers: none
+    fresh = drawing.stroke_path(path, 70, 50, [1.5, 3.0])
+    fresh_area = drawing.draw_areas([box], transform, 70, 50, fill=True, stroke_width_px=2.0)
+    kept = drawing._KEPT.renderers[(70, 50)]
+    drawing.stroke_path(other, 70, 50, [6.0])
+    again = drawing.stroke_path(path, 70, 50, [1.5, 3.0])
+    again_area = drawing.draw_areas([box], transform, 70, 50, fill=True, stroke_width_px=2.0)
+    assert drawing._KEPT.renderers[(70, 50)] is kept            # the same renderer, reused
+    assert all(a.any() for a in fresh + list(fresh_area))
+    for a, b in zip(fresh + list(fresh_area), again + list(again_area), strict=True):
+        np.testing.assert_array_equal(a, b)
