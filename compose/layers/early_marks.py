@@ -69,7 +69,9 @@ def read_ahead(spec, draft=None) -> None:
 def _draw_all(style, canvas, specs) -> dict[str, tuple[int, list]]:
     """In the forked process: each layer of ``specs`` built on the draft ``canvas`` as the check
     builds it, and its paints of the whole canvas (padded by its own margin): name -> (margin,
-    paints)."""
+    paints). All but the first tile (:func:`_bands`) are drawn by a process forked from this one
+    once the layers are built, while this one draws the first: the check's own process only
+    waits by then, and Agg holds Python's lock."""
     import gc
 
     from compose.layers.base import Context
@@ -80,18 +82,85 @@ def _draw_all(style, canvas, specs) -> dict[str, tuple[int, list]]:
     for spec in specs:
         read_ahead(spec, canvas)
     ctx = Context(canvas=canvas, ramps={}, style=style, draft=True)
-    out = {}
-    for spec in specs:
-        with span(f"marks ahead {spec.kind} {spec.name}"):
-            layer = layer_class(spec.kind)(spec, ctx)
-            try:
-                whole = canvas.whole(layer.margin)
-                _, _, h, w = whole.padded
-                out[spec.name] = (layer.margin,
-                                  layer.paint(whole, canvas.window_transform(whole), h, w))
-            finally:
-                layer.close()
+    layers: list = []
+    try:
+        for spec in specs:
+            with span(f"marks ahead {spec.kind} {spec.name}"):
+                layers.append(layer_class(spec.kind)(spec, ctx))
+        mine, rest = _bands(canvas)
+        other = _fork(functools.partial(_paint, layers, canvas, rest)) if rest else None
+        with span("marks ahead paint"):
+            pieces = _paint(layers, canvas, mine)
+            got = None
+            if other is not None:
+                try:
+                    got = other.result()
+                except Exception:           # drawn here instead
+                    got = None
+            pieces += got if got is not None else _paint(layers, canvas, rest)
+    finally:
+        for layer in layers:
+            layer.close()
+    return {spec.name: (layer.margin,
+                        _put_together(canvas, layer.margin, [(w, p[i]) for w, p in pieces]))
+            for i, (spec, layer) in enumerate(zip(specs, layers))}
+
+
+def _bands(canvas) -> tuple[list, list]:
+    """Windows of ``canvas`` made of whole tiles (:data:`compose.layers.vector.TILE`), which a
+    vector layer draws tile by tile as it draws the whole canvas (the same tiles, the same
+    bytes): (the first tile, the rest of its tile row and the tile rows below it). A draft of
+    384 px a side is 2 x 2 tiles, the first about half its pixels."""
+    from compose.canvas import Window
+    from compose.layers.vector import TILE
+
+    h, w = canvas.height, canvas.width
+    rest = []
+    if w > TILE:
+        rest.append(Window(0, TILE, min(TILE, h), w - TILE, 0, h, w))
+    if h > TILE:
+        rest.append(Window(TILE, 0, h - TILE, w, 0, h, w))
+    return [Window(0, 0, min(TILE, h), min(TILE, w), 0, h, w)], rest
+
+
+def _paint(layers, canvas, windows) -> list[tuple[Any, list]]:
+    """(window, each layer's paints of it) for ``windows`` of ``canvas`` (no margin)."""
+    out = []
+    for window in windows:
+        _, _, h, w = window.padded
+        transform = canvas.window_transform(window)
+        out.append((window, [layer.paint(window, transform, h, w) for layer in layers]))
     return out
+
+
+def _put_together(canvas, margin: int, pieces: list) -> list:
+    """One layer's paints of the whole ``canvas`` padded by ``margin`` from its paints of
+    windows of whole tiles (window, paints) in the order of their tiles (row by row): each
+    part's cores put in place, nothing in the margin, the parts in the order they first appear
+    (as the layer's paint of the whole canvas lists them)."""
+    h, w = canvas.height, canvas.width
+    parts: dict[str, tuple[Any, np.ndarray]] = {}
+    for window, paints in pieces:
+        r, c, n, k = window.row, window.col, window.height, window.width
+        for p in paints:
+            slot = parts.get(p.part)
+            if slot is None:
+                slot = parts[p.part] = (p, np.zeros((h + 2 * margin, w + 2 * margin),
+                                                    p.alpha.dtype))
+            slot[1][margin + r:margin + r + n, margin + c:margin + c + k] = p.alpha[:n, :k]
+    return [dataclasses.replace(p, alpha=alpha) for p, alpha in parts.values()]
+
+
+def _fork(fn: Callable[[], Any]):
+    """``fn`` run in a process forked from this one (:class:`compose.page.process.Forked`), or
+    None when forking is not safe (the early reads' threads are joined first: each has handed
+    its features over by now)."""
+    from compose.page.process import Forked, can_fork
+
+    for thread in threading.enumerate():
+        if thread.name == "early-vectors":
+            thread.join(1.0)
+    return Forked(fn) if can_fork() else None
 
 
 class MarksAhead:

@@ -10,6 +10,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import numpy as np
+
 ROOT = Path(__file__).resolve().parents[2]
 STYLES = ROOT / "styles"
 
@@ -67,3 +69,31 @@ def test_a_check_whose_marks_are_drawn_ahead_loads_no_vector_module(tmp_path):
     heavy = ("shapely", "compose.sources.vector", "compose.layers.vector", "compose.layers.agg")
     assert [m for m in heavy if m in here["modules"]] == list(heavy)
     assert [m for m in heavy if m in ahead["modules"]] == []
+
+
+def test_the_tiles_drawn_apart_put_together_are_the_whole_canvas_drawn_at_once():
+    """The first tile (this process) and the rest (the process forked to draw them) of each
+    demo mark layer, put together, are its paints of the whole draft canvas, byte for byte and
+    in the same order (a vector layer draws every window of whole tiles tile by tile)."""
+    from compose.check.draft import draft_canvas
+    from compose.layers import early_marks as em
+    from compose.layers.base import Context
+    from compose.style import load_style
+    from compose.style.kinds import layer_class
+
+    style = load_style(STYLES / "coast.toml")
+    canvas = draft_canvas(style.canvas())
+    mine, rest = em._bands(canvas)
+    assert len(rest) == 2 and canvas.width > 256 and canvas.height > 256
+    ctx = Context(canvas=canvas, ramps={}, style=style, draft=True)
+    layers = [layer_class(s.kind)(s, ctx) for s in style.layers if s.kind in em.MARK_KINDS]
+    pieces = em._paint(layers, canvas, mine + rest)
+    for i, layer in enumerate(layers):
+        whole = canvas.whole(layer.margin)
+        _, _, h, w = whole.padded
+        at_once = layer.paint(whole, canvas.window_transform(whole), h, w)
+        together = em._put_together(canvas, layer.margin, [(wi, p[i]) for wi, p in pieces])
+        assert [p.part for p in together] == [p.part for p in at_once] and at_once
+        for a, b in zip(together, at_once):
+            assert a.color == b.color and a.alpha.dtype == b.alpha.dtype
+            assert np.array_equal(a.alpha, b.alpha)
