@@ -123,6 +123,12 @@ def _draw(window, slot: int | None = None) -> list[tuple[int, list[tuple[str, An
     return out
 
 
+def _for_drawing(layer):
+    """What of ``layer`` the helper needs (its ``for_drawing``, else the layer itself)."""
+    method = getattr(layer, "for_drawing", None)
+    return method() if method is not None else layer
+
+
 def _paint(part: str, alpha: np.ndarray, color) -> Paint:
     if alpha.dtype == np.uint8:
         alpha = np.divide(alpha, np.float32(255), dtype=np.float32)
@@ -414,7 +420,8 @@ class DrawAhead:
         executor: Any = None
         slots = None
         try:
-            payload = pack({li: prepared.layers[li] for li in sorted(self.layers)})
+            # lines go as their parts in pixel space (LinesLayer.for_drawing), not as features
+            payload = pack({li: _for_drawing(prepared.layers[li]) for li in sorted(self.layers)})
             try:
                 size = sum(_PARTS.get(prepared.layers[li].spec.kind, 3) for li in self.layers) \
                     * max((w.padded[2] * w.padded[3] for w in self._windows), default=0)

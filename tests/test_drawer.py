@@ -204,3 +204,40 @@ def test_helper_forked_from_a_single_threaded_process_draws_the_same_rows(tiny_r
                          capture_output=True, text=True, timeout=300)
     assert res.returncode == 0, res.stderr[-3000:]
     assert res.stdout.strip() == "ok" and "Traceback" not in res.stderr
+
+
+def test_lines_go_to_the_helper_as_pixel_parts(tiny_region):
+    # The helper gets a lines layer as its parts in pixel space (LinesLayer.for_drawing): no
+    # features in the payload, the same paints for every window, and a grid not the canvas's
+    # drawn from the features read again from the source.
+    from affine import Affine
+
+    prepared = prepare(load_style(tiny_region))
+    try:
+        lines = [la for la in prepared.layers if la.spec.kind == "lines"]
+        assert lines
+        for la in lines:
+            sent = la.for_drawing()
+            payload = pack(sent)
+            assert sent._held is None and la._held is not None     # the original keeps them
+            there = unpack(payload)
+            assert there._held is None and there._pixels is not None
+            windows = prepared.windows(WINDOW)
+            for w in windows:
+                transform = prepared.canvas.window_transform(w)
+                _, _, h, width = w.padded
+                mine = la.paint(w, transform, h, width)
+                theirs = there.paint(w, transform, h, width)
+                assert [p.part for p in mine] == [p.part for p in theirs]
+                for a, b in zip(mine, theirs, strict=True):
+                    np.testing.assert_array_equal(a.alpha, b.alpha)
+            w = windows[0]
+            shifted = prepared.canvas.window_transform(w) @ Affine.translation(0.5, 0.25)
+            _, _, h, width = w.padded
+            mine = la.paint(w, shifted, h, width)
+            theirs = there.paint(w, shifted, h, width)
+            assert there._held is not None and mine
+            for a, b in zip(mine, theirs, strict=True):
+                np.testing.assert_array_equal(a.alpha, b.alpha)
+    finally:
+        prepared.close()
