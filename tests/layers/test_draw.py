@@ -37,6 +37,17 @@ def test_to_pixels_matches_rasterio():
     np.testing.assert_array_equal(np.floor(px[:, 0]).astype(int), cols)
 
 
+def test_to_pixels_is_affines_own_arithmetic():
+    # the affine library's inverse applied point by point (a x + b y + c), bit for bit, for a
+    # rotated and sheared grid too
+    rng = np.random.default_rng(7)
+    pts = rng.uniform((499000.0, 3998000.0), (501000.0, 4001000.0), (200, 2))
+    for t in (T, T @ Affine.rotation(17.0) @ Affine.shear(3.0, -2.0)):
+        px = to_pixels(pts, t)
+        ref = np.array([~t @ (x, y) for x, y in pts])
+        assert np.array_equal(px, ref)
+
+
 def test_horizontal_line_covers_predicted_row_and_columns():
     # through the centres of row 12, from the left edge of column 5 to the left edge of column 31
     _, y = centre(12, 0)
