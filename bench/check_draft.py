@@ -13,7 +13,8 @@ Heavy (the 8192 full check takes 10-30 s): run it as ``flock /work/wt/bench.lock
 on a shared machine. Prints medians of ``--runs`` alternating runs and their same-run ratios
 full / draft, whether the verdicts agree rule by rule, the command's start-up floor (a missing
 style file: imports and Python start-up only) and the import time of the libraries a check of
-the demo needs, which no draft can shrink.
+the demo needs, which no draft can shrink; with the big canvas also where the cold draft
+command's time goes (:func:`phases`: start-up, the process drawing its lines, what is left).
 """
 from __future__ import annotations
 
@@ -171,12 +172,72 @@ def big_style(size: int) -> Path:
     return synthetic.write_styles(folder, size)["aligned"]
 
 
+#: What the check's process imports before the draft's marks process is forked (the command,
+#: the API and the style, rasterio for the rasters: compose.layers.early_marks).
+BEFORE_FORK = ("compose.cli.main", "compose.cli.check", "compose.api", "rasterio.crs")
+
+
+def phases(style: Path, runs: int) -> None:
+    """Where the cold draft command's wall time goes (``COMPOSE_TIMELINE``, compose.timeline):
+    medians of ``runs`` commands. The start-up until the marks process is forked, that process
+    (read, parse, simplify, cut: its layers built; then the tiles drawn, the first here and the
+    rest in a process of its own), the check's own process preparing its rasters beside it,
+    and what is left after it: the walk (compositing and statistics), the rules, the end."""
+    from compose.timeline import read
+
+    got: dict[str, list[float]] = {}
+
+    def add(key: str, value: float) -> None:
+        got.setdefault(key, []).append(value)
+
+    for _ in range(runs):
+        fd, path = tempfile.mkstemp(prefix="compose-bench-timeline-")
+        os.close(fd)
+        t0 = time.time()
+        subprocess.run(COMPOSE + ["check", "--draft", "--no-cache", str(style)], cwd=style.parent,
+                       env=dict(os.environ, COMPOSE_TIMELINE=path), stdout=subprocess.DEVNULL,
+                       stderr=subprocess.DEVNULL)
+        t1 = time.time()
+        rows = read(path)
+        os.unlink(path)
+        parent = rows[0][0]
+        mine = [r for r in rows if r[0] == parent]
+        marks = [r for r in rows if r[0] != parent and r[4].startswith("marks ahead")]
+        add("total", t1 - t0)
+        if marks:
+            add("start-up until the marks process builds its layers", marks[0][2] - t0)
+            built = [r for r in marks if r[4] != "marks ahead paint"]
+            add("  marks process: layers built (read, parse, simplify, cut)",
+                built[-1][3] - marks[0][2])
+            add("  marks process: tiles drawn (two processes)",
+                sum(r[3] - r[2] for r in marks if r[4] == "marks ahead paint"))
+            add("  marks process ends", max(r[3] for r in marks) - t0)
+        prep = [r for r in mine if r[4].startswith("prepare ")]
+        if prep:
+            add("  check's process prepares its layers until", prep[-1][3] - t0)
+        for label in ("check walk", "check rules"):
+            for r in mine:
+                if r[4] == label:
+                    if label == "check walk":
+                        add("check walk starts (the marks' paints received)", r[2] - t0)
+                    add(f"{label} (after the marks)", r[3] - r[2])
+        add("end of the rules -> process ended", t1 - max(r[3] for r in mine))
+    imports = medians([run_command([sys.executable, "-c", "import " + ", ".join(BEFORE_FORK)])
+                       for _ in range(runs)])
+    print(f"draft command's phases (medians of {runs}; seconds from the start):")
+    for key, values in got.items():
+        print(f"  {key:<62} {statistics.median(values):6.3f} s")
+    print(f"  (importing {', '.join(BEFORE_FORK)} alone: {imports[0]:.3f} s, python start-up "
+          "included)")
+
+
 def big(size: int, runs: int, as_commands: bool, inprocess: bool) -> None:
     style = big_style(size)
     print(f"\n== big canvas: {style} ({size} x {size}, relief + field + 10,000 lines) ==")
     if as_commands:
         command_rows("commands", style, runs, tempfile.mkdtemp(prefix="compose-bench-cache-"),
                      style.parent)
+        phases(style, max(runs, 5))
         from compose.check_cache import MAX_PIXELS
 
         if size * size > MAX_PIXELS:
