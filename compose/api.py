@@ -105,7 +105,9 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
     ahead = None
     if mapper is None:
         specs = _to_read(style, store)
-        if is_draft:        # forked before any thread of this process starts
+        # forked before any thread of this process starts (nor any a library started in C
+        # since the API was imported: see _THREADS_AT_IMPORT)
+        if is_draft and 0 < _os_threads() <= _THREADS_AT_IMPORT:
             from compose.layers.early_marks import MarksAhead
 
             ahead = MarksAhead.start(style, canvas, specs)

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import dataclasses
 import functools
+import select
 import threading
 from collections.abc import Callable
 from typing import Any
@@ -37,6 +38,12 @@ MARK_KINDS = ("lines", "areas", "points")
 #: 0.1 CPU-s), and the demo's 0.5 MB GeoPackage is read and drawn in less; the 8192 benchmark's
 #: 21 MB of lines take about 0.3 CPU-s.
 MIN_BYTES = 4 << 20
+
+
+#: Seconds the check waits for the process's first byte before it ends the process and builds
+#: the layers itself (a draft's marks take well under a second for the 8192 benchmark's 1 M
+#: vertices; this only guards against a process that never answers).
+PATIENCE = 300.0
 
 
 def _source_bytes(specs) -> int:
@@ -200,9 +207,12 @@ class MarksAhead:
             if not self._done:
                 self._done = True
                 try:
-                    self._got = self._job.result()
+                    ready, _, _ = select.select([self._job._inbox], [], [], PATIENCE)
+                    self._got = self._job.result() if ready else None
                 except Exception:           # built here instead, which reports any error
                     self._got = None
+                if self._got is None:
+                    self._job.abort()
         got = self._got
         return None if got is None else got.get(name)
 

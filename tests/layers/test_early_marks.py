@@ -30,6 +30,12 @@ if sys.argv[2] == "fail":              # the process fails: the layers are built
     def broken(*a):
         raise RuntimeError("no paints")
     em._draw_all = broken
+if sys.argv[2] == "stuck":             # the process never answers: ended, built here instead
+    import time
+    em.PATIENCE = 1.0
+    em._draw_all = lambda *a: time.sleep(600)
+if sys.argv[2] == "threads":           # a thread started (in C) since the API was imported
+    compose.api._THREADS_AT_IMPORT = 0
 report = compose.api.check(sys.argv[1], draft=True, cache=False)
 print(json.dumps({"report": report.to_json(False), "forked": len(forked),
                   "modules": sorted(sys.modules)}))
@@ -38,7 +44,7 @@ print(json.dumps({"report": report.to_json(False), "forked": len(forked),
 
 def _draft(style: Path, how: str) -> dict:
     out = subprocess.run([sys.executable, "-c", _CODE, str(style), how], capture_output=True,
-                         text=True, cwd=ROOT, check=True)
+                         text=True, cwd=ROOT, check=True, timeout=120)
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
@@ -50,11 +56,22 @@ def test_marks_drawn_ahead_give_the_same_draft_report_on_every_example_style():
         assert json.dumps(ahead["report"]) == json.dumps(here["report"]), name
 
 
-def test_a_failed_process_leaves_the_layers_to_the_check_with_the_same_report():
+def test_a_failed_or_silent_process_leaves_the_layers_to_the_check_with_the_same_report():
     style = STYLES / "coast.toml"
-    failed, here = _draft(style, "fail"), _draft(style, "here")
-    assert failed["forked"] == 1
-    assert json.dumps(failed["report"]) == json.dumps(here["report"])
+    here = _draft(style, "here")
+    for how in ("fail", "stuck"):
+        got = _draft(style, how)
+        assert got["forked"] == 1, how
+        assert json.dumps(got["report"]) == json.dumps(here["report"]), how
+
+
+def test_no_process_is_forked_while_a_thread_started_since_the_api_was_imported_runs():
+    """A fork copies locks other threads may hold (GDAL's workers, say): as the check's window
+    helpers (compose.api._Helpers), the marks are then drawn in the check's own process."""
+    style = STYLES / "coast.toml"
+    got, here = _draft(style, "threads"), _draft(style, "here")
+    assert got["forked"] == 0
+    assert json.dumps(got["report"]) == json.dumps(here["report"])
 
 
 def test_a_check_whose_marks_are_drawn_ahead_loads_no_vector_module(tmp_path):
