@@ -86,6 +86,8 @@ def _draw_all(style, canvas, specs) -> dict[str, tuple[int, list]]:
     from compose.timeline import span
 
     gc.disable()            # a short-lived process: its memory goes when it ends
+    for spec in specs:      # imported first: an import beside the reads only takes turns
+        layer_class(spec.kind)
     for spec in specs:
         read_ahead(spec, canvas)
     ctx = Context(canvas=canvas, ramps={}, style=style, draft=True)
