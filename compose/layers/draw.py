@@ -125,6 +125,10 @@ class _GC:
 #: Renderers kept per thread for reuse, at most this many sizes (the vector layers' tiles are
 #: all one size but at the canvas's edges; labels draw padded windows).
 KEPT_RENDERERS = 4
+#: Largest renderer kept (pixels): a tile or a window. A renderer keeps the cell storage its
+#: biggest drawing needed (Agg's rasterizer reuses its blocks, up to 64 MB), so one that drew a
+#: whole large raster in one go is let go with its memory.
+KEPT_PIXELS = 1 << 20
 _KEPT = threading.local()
 
 
@@ -134,6 +138,8 @@ def _renderer(width: int, height: int):
     and their pages faulted in, when it is made: making one per 256 px tile of the 8192
     benchmark's lines was about a tenth of the drawing helper's CPU; measured, no source). A
     cleared renderer draws the same bytes as a new one (tests/layers/test_draw.py)."""
+    if width * height > KEPT_PIXELS:
+        return renderer_class()(width, height, _DPI)
     kept = getattr(_KEPT, "renderers", None)
     if kept is None:
         kept = _KEPT.renderers = {}

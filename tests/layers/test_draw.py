@@ -309,6 +309,8 @@ def test_a_kept_renderer_draws_what_a_new_one_draws():
     again = drawing.stroke_path(path, 70, 50, [1.5, 3.0])
     again_area = drawing.draw_areas([box], transform, 70, 50, fill=True, stroke_width_px=2.0)
     assert drawing._KEPT.renderers[(70, 50)] is kept            # the same renderer, reused
+    drawing.stroke_path(path, 1025, 1024, [1.5])                 # too large to keep
+    assert (1025, 1024) not in drawing._KEPT.renderers
     assert all(a.any() for a in fresh + list(fresh_area))
     for a, b in zip(fresh + list(fresh_area), again + list(again_area), strict=True):
         np.testing.assert_array_equal(a, b)
