@@ -113,7 +113,7 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
             ahead = MarksAhead.start(style, canvas, specs)
         early = _read_vectors_early(
             [s for s in specs if ahead is None or s.name not in ahead.names],
-            canvas if is_draft else None)
+            canvas if is_draft else None, style)
     else:
         early = False
     try:
@@ -140,13 +140,21 @@ def _to_read(style: Style, store) -> list:
     return [s for s in specs if s.name not in held]
 
 
-def _read_vectors_early(specs: list, draft=None) -> bool:
+def _read_vectors_early(specs: list, draft=None, style: Style | None = None) -> bool:
     """Start reading the features of the vector layers ``specs`` on threads of their own
-    (:func:`compose.sources.vector.read_early`), while the engine is imported and the rasters
-    prepared; a ``draft`` canvas's lines, areas and points simplified there too, as its layers
-    ask; True when any was started."""
+    (:func:`compose.sources.vector.read_early`), while the rasters are prepared; a ``draft``
+    canvas's lines, areas and points simplified there too, as its layers ask; True when any
+    was started. The engine and the modules of ``style``'s layer kinds are imported first:
+    SQLite gives up Python's lock for every row it steps, and a thread importing beside it
+    takes the lock back each time."""
     if not specs:
         return False
+    if style is not None:
+        import compose.engine  # noqa: F401
+        from compose.style.kinds import layer_class
+
+        for kind in {s.kind for s in style.layers if s.enabled}:
+            layer_class(kind)
     from compose.layers.early_marks import read_ahead
 
     for spec in specs:

@@ -1,8 +1,10 @@
 """The public Python API: compose.load_style, compose.render, compose.check."""
 from __future__ import annotations
 
+import json
 import subprocess
 import sys
+from pathlib import Path
 
 import pytest
 
@@ -151,3 +153,29 @@ def test_a_stuck_helper_is_ended_and_its_windows_walked_by_the_check(monkeypatch
     monkeypatch.setattr(compose.api, "HELPER_PATIENCE", 0.2)
     assert json.dumps(compose.check(style, cache=False, workers=2).to_json(False)) == one
     assert len(started) == 1
+
+
+def test_vector_reads_start_once_the_engine_and_the_layer_modules_are_imported():
+    """A check reads its vector layers on threads while it prepares the rest, but imports the
+    engine and its layer kinds' modules first: SQLite gives up Python's lock for every row, and
+    a thread importing beside the reads took it back each time (our own measurements, see the
+    commit). In a fresh interpreter, as a command runs (a module imported earlier would hide
+    the order)."""
+    code = """
+import json, sys
+import compose.api, compose.sources.vector as vector
+seen = []
+real = vector.read_early
+def spy(*a, **k):
+    seen.append([m in sys.modules for m in ("compose.engine", "compose.layers.vector",
+                                            "compose.layers.relief", "compose.layers.label_layer")])
+    return real(*a, **k)
+vector.read_early = spy
+compose.api.check("styles/coast.toml", cache=False, workers=1)
+print(json.dumps(seen))
+"""
+    root = Path(__file__).resolve().parents[1]
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=root)
+    seen = json.loads(out.stdout.strip().splitlines()[-1])
+    assert seen and all(all(s) for s in seen), seen

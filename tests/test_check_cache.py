@@ -275,7 +275,7 @@ def test_a_cold_check_reads_each_vector_source_once_early_and_a_warm_one_not_at_
     early = sorted(calls)
     calls.clear()
     with monkeypatch.context() as m:
-        m.setattr(compose.api, "_read_vectors_early", lambda specs, draft=None: False)
+        m.setattr(compose.api, "_read_vectors_early", lambda specs, draft=None, style=None: False)
         check(demo, cache=False)
     assert early and early == sorted(calls)
     calls.clear()
