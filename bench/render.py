@@ -13,8 +13,8 @@ For every size it prints, from the same run:
   * every target beside its floor (medians of 3 runs): the bare render (PNG + GeoTIFF + check)
     with the automatic workers (what ``compose render`` does without ``--workers``), 1 and 2
     workers against the summed floors, compute alone with and without the
-    statistics against the compute floor (medians of at least 3 alternating pairs; the
-    statistics' share from the median of the pairs' differences), and the share of the
+    statistics against the compute floor (medians of at least 5 alternating pairs; the
+    statistics' share from the median of the pairs' differences in wall and in CPU time), and the share of the
     encoders' own work that ran beside the compute (the render's own timers); the layer
     previews' sums (an output of the HTML page, summed in the same walk) on a line of their own,
     not counted as statistics;
@@ -280,10 +280,11 @@ else:                                   # compute only: every window, no outputs
             previews = LayerPreviews(r.canvas.width, r.canvas.height, len(r.layers),
                                      tuple(style.map.background),
                                      blends=[la.spec.blend for la in r.layers])
-        t1 = time.perf_counter()
+        t1, c1 = time.perf_counter(), time.process_time()
         run(r, [], measure=(mode in ("measure", "previews")), mapper=mapper, previews=previews,
             **extra)
         result["compute"] = time.perf_counter() - t1
+        result["compute_cpu"] = time.process_time() - c1   # every thread of this process
     finally:
         r.close()
 result["wall"] = time.perf_counter() - t0
@@ -380,17 +381,22 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     total2, bare2 = median_task(runs, wall, "bare", styles["aligned"], out, workers=2)
     total_auto, bare_auto = median_task(runs, wall, "bare", styles["aligned"], out, auto=True)
     comp = lambda r: r["compute"]          # noqa: E731
-    # compute with and without the statistics in alternating pairs (at least 3 even with
+    # compute with and without the statistics in alternating pairs (at least 5 even with
     # --quick): the statistics' cost is the median of the pairs' differences, which a shared
-    # machine's drift between two single runs would swamp
+    # machine's drift between two single runs would swamp; 3 pairs did not resolve 0.1 s here.
+    # The same pairs' CPU time (every thread of the 1-worker walk's process) is printed beside:
+    # time spent waiting for the host does not count in it
     pairs: list[tuple[float, float]] = []
-    for i in range(max(runs, 3)):
+    cpu_pairs: list[tuple[float, float]] = []
+    for i in range(max(runs, 5)):
         order = ("plain", "measure") if i % 2 == 0 else ("measure", "plain")
-        got = {mode: task(mode, styles["aligned"], out)["compute"] for mode in order}
-        pairs.append((got["plain"], got["measure"]))
+        got = {mode: task(mode, styles["aligned"], out) for mode in order}
+        pairs.append((got["plain"]["compute"], got["measure"]["compute"]))
+        cpu_pairs.append((got["plain"]["compute_cpu"], got["measure"]["compute_cpu"]))
     plain = statistics.median(p for p, _ in pairs)
     measured = statistics.median(m for _, m in pairs)
     stats_cost = statistics.median(m - p for p, m in pairs)
+    stats_cpu = statistics.median(m - p for p, m in cpu_pairs)
     with_previews, _ = median_task(runs, comp, "previews", styles["aligned"], out)
     floors_sum = compute_floor + encode_floor
     own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
@@ -423,6 +429,9 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"differences, {stats_cost:.2f} s; pairs: "
           + ", ".join(f"{m - p:+.2f}" for p, m in pairs)
           + "; hierarchy statistics only: the bare render and this figure sum no previews)")
+    print(f"  statistics share, CPU time                      {100 * stats_cpu / total:6.1f} % "
+          f"of the 1-worker render's wall (median of the same pairs' CPU differences, "
+          f"{stats_cpu:.2f} CPU-s; pairs: " + ", ".join(f"{m - p:+.2f}" for p, m in cpu_pairs) + ")")
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "
           f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
