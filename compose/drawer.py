@@ -33,13 +33,16 @@ import mmap
 import os
 import tempfile
 import threading
-from collections.abc import Iterable
-from typing import Any
+from collections.abc import Callable, Iterable
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from compose.heap import no_huge_pages, trim
 from compose.layers.base import Paint
+
+if TYPE_CHECKING:
+    from concurrent.futures import Future
 
 __all__ = ["DrawAhead", "DRAWN_KINDS", "AHEAD", "warm", "discard_warm"]
 
@@ -271,7 +274,7 @@ class _Pool:
         self._reader = threading.Thread(target=self._read, daemon=True, name="compose-drawer-read")
         self._reader.start()
 
-    def submit(self, fn, *args):
+    def submit(self, fn: Callable[..., Any], *args: Any) -> Future:
         from concurrent.futures import Future
 
         future: Future = Future()
