@@ -168,7 +168,22 @@ def _formatter(layer) -> Callable[[float], str]:
     if key is None or not key.format:
         return format_value
     spec = key.format
-    return lambda v: format(float(v), spec).replace("-", "\u2212")
+    return lambda v: _unsigned_zero(format(float(v), spec)).replace("-", "\u2212")
+
+
+def _unsigned_zero(text: str) -> str:
+    """A formatted number that shows zero without a sign: ``"+0.0"`` and ``"-0.0"`` (a small
+    value rounded to zero) read ``"0.0"``; anything with a non-zero digit is kept as it is. Only
+    the first sign goes, so an exponent's stays (``"+0.0e+00"`` -> ``"0.0e+00"``). Common
+    practice, no source: a signed scale's centre is written 0."""
+    if any(c in "123456789" for c in text) or not any(c == "0" for c in text):
+        return text
+    for i, c in enumerate(text):
+        if c in "+-":
+            return text[:i] + text[i + 1:]
+        if c.isdigit():
+            break
+    return text
 
 
 def _key_title(layer, default: str) -> str:

@@ -7,7 +7,7 @@ import pytest
 from compose.engine import prepare
 from compose.errors import StyleError
 from compose.output.legend import legend_figure
-from compose.output.legend_layout import ClassesBlock, RampsBlock, legend_layout
+from compose.output.legend_layout import ClassesBlock, RampsBlock, _unsigned_zero, legend_layout
 from compose.style import load_style
 from tests.output._tiny import tiny_style
 
@@ -32,6 +32,21 @@ def test_title_units_and_format(tmp_path):
         legend_figure(run_.style, run_.ramps, run_.layers)      # draws with the keys
     finally:
         run_.close()
+
+
+def test_signed_format_writes_zero_without_a_sign(tmp_path):
+    # common practice, no source: a diverging scale's centre reads 0, not +0.0 or -0.0
+    run_ = _prepared(tmp_path, 'legend = { format = "+.1f" }')
+    try:
+        ramps = [b for b in legend_layout(run_.style, run_.ramps, run_.layers).blocks
+                 if isinstance(b, RampsBlock) and "land-growth" in
+                 [la.spec.name for la in b.layers]][0]
+        assert [ramps.fmt(v) for v in (0.0, 0.04, -0.04, 2.5, -3)] == \
+            ["0.0", "0.0", "0.0", "+2.5", "\u22123.0"]
+    finally:
+        run_.close()
+    assert _unsigned_zero("+0.0e+00") == "0.0e+00" and _unsigned_zero("+0%") == "0%"
+    assert _unsigned_zero("+10.0") == "+10.0" and _unsigned_zero("  +0.0") == "  0.0"
 
 
 def test_classes_shown_and_nodata_only_where_seen(tmp_path):
