@@ -38,6 +38,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from compose.forking import can_fork, die_with_parent
 from compose.heap import no_huge_pages, trim
 from compose.layers.base import Paint
 
@@ -169,15 +170,6 @@ class _Slots:
         return np.frombuffer(self.map, np.uint8, count, slot * self.size + at).reshape(shape)
 
 
-def _can_fork() -> bool:
-    """Whether the helper may be forked from this process: Linux (it dies with its parent) and
-    no other thread running (a fork copies locks other threads may hold)."""
-    import sys
-
-    return (sys.platform.startswith("linux") and hasattr(os, "fork")
-            and threading.active_count() == 1)
-
-
 def _serve(conn, other, parent: int) -> None:
     """The forked helper process: import :data:`PRELOAD` (what this process lacks of it), then
     run ``(function, args)`` requests from ``conn`` in order, sending back ``(True, result)`` or
@@ -193,15 +185,7 @@ def _serve(conn, other, parent: int) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)        # the parent ends it
     # not the parent's handler (the command turns SIGTERM into an exception and a message)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
-    try:
-        import ctypes
-
-        libc = ctypes.CDLL(None)
-        libc.prctl(1, signal.SIGKILL, 0, 0, 0)              # PR_SET_PDEATHSIG
-        libc.prctl(15, ctypes.c_char_p(HELPER_NAME), 0, 0, 0)   # PR_SET_NAME (ps, top, /proc)
-    except Exception:       # pragma: no cover - best effort (EOF on the pipe ends it too)
-        pass
-    if os.getppid() != parent:
+    if not die_with_parent(parent, HELPER_NAME):       # named for ps, top and /proc
         return
     try:
         for name in PRELOAD:
@@ -332,13 +316,13 @@ _WARM: list[_Helper] = []
 
 def warm() -> None:
     """Make the helper process ready before the walk, beside whatever this process does next
-    (e.g. preparing the render). Where it can (:func:`_can_fork`: no other thread yet) the
+    (e.g. preparing the render). Where it can (:func:`compose.forking.can_fork`: no other thread yet) the
     helper is forked from this process now: it has this process's imports already and loads
     only the rest of :data:`PRELOAD` (no interpreter start and no server process: on the 8192
     benchmark the server cost 0.2 CPU-s); it shares this process's pages as they are at the
     fork, before the render reads anything. Else the server the helper is forked from later is
     started (it imports :data:`PRELOAD`). Never raises."""
-    if not _WARM and _can_fork():
+    if not _WARM and can_fork():
         try:
             _WARM.append(_Helper())
             return

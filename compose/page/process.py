@@ -31,8 +31,6 @@ import mmap
 import os
 import pickle
 import signal
-import sys
-import threading
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -41,6 +39,7 @@ from typing import Any
 
 import numpy as np
 
+from compose.forking import can_fork, die_with_parent
 from compose.timeline import note_process, span
 
 __all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
@@ -54,22 +53,10 @@ def shared_image(height: int, width: int, channels: int = 3) -> np.ndarray:
     return np.frombuffer(buf, dtype=np.uint8, count=n).reshape(height, width, channels)
 
 
-def can_fork() -> bool:
-    """Whether the page may go to a forked process: Linux (the child dies with its parent) and
-    no other thread running (a fork copies locks other threads may hold)."""
-    return (sys.platform.startswith("linux") and hasattr(os, "fork")
-            and threading.active_count() == 1)
-
-
 def _die_with_parent(parent: int) -> None:
-    """Ask the kernel to kill this process when its parent ends (prctl PR_SET_PDEATHSIG)."""
-    try:
-        import ctypes
-
-        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL, 0, 0, 0)
-    except Exception:                                  # pragma: no cover - best effort
-        pass
-    if os.getppid() != parent:                         # the parent ended before the prctl
+    """End this forked process at once if its parent ended; else it dies with it
+    (:func:`compose.forking.die_with_parent`)."""
+    if not die_with_parent(parent):
         os._exit(1)
 
 
