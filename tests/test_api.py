@@ -66,93 +66,51 @@ def test_check_is_still_the_checker_package():
     assert check_style is package.check_style
 
 
-def _coarse_demo():
-    from pathlib import Path
-
-    demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
-    return compose.load_style(demo, overrides={"map.pixel": 60})     # 750 x 750: 4 windows
-
-
-def _forks(monkeypatch) -> list:
-    """Count the check's helper processes (compose.api._Helpers) as they are forked."""
-    import compose.api as api
-    import compose.page.process as process
-
-    if not process.can_fork() or not 0 < api._os_threads() <= api._THREADS_AT_IMPORT:
-        pytest.skip("no fork here (not Linux, or a thread started since the API was imported)")
-    started = []
-    real = process.Forked.__init__
-    monkeypatch.setattr(process.Forked, "__init__",
-                        lambda self, fn: started.append(1) or real(self, fn))
-    return started
-
-
-def test_a_check_walked_by_helper_processes_reports_the_same_bytes():
-    """compose.check(workers=N): helpers forked beside the check walk later windows and the
-    check merges their statistics in window order, so the JSON report is byte-identical to a
-    walk in one process (silver: our own invariant, as for --workers in a render). In a fresh
-    process, as a command runs it (this one may have threads that forbid forking)."""
-    code = """
-import json, sys
-import compose, compose.page.process as process
+_FRESH = """
+import json, sys, time
+import compose, compose.api, compose.packing, compose.page.process as process
 started = []
 real = process.Forked.__init__
 process.Forked.__init__ = lambda self, fn: started.append(1) or real(self, fn)
-style = compose.load_style(sys.argv[1], overrides={"map.pixel": 60})
+style = compose.load_style(sys.argv[1], overrides={"map.pixel": 60})   # 750 x 750: 4 windows
 one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
-same = [json.dumps(compose.check(style, cache=False, workers=w).to_json(False)) == one
-        for w in (2, 3)]
-print(json.dumps({"same": same, "started": len(started)}))
+%s
+two = json.dumps(compose.check(style, cache=False, workers=2).to_json(False))
+print(json.dumps({"same": two == one, "started": len(started)}))
 """
-    from pathlib import Path
+
+
+def _in_a_fresh_process(patch: str) -> dict:
+    """Run a 1-worker and a 2-worker check of the coarse demo in a fresh interpreter, as a
+    command runs them (this test process has threads by now, which forbid forking), with
+    ``patch`` applied between the two; returns whether the reports match and the forks made."""
+    import json
 
     demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
-    out = subprocess.run([sys.executable, "-c", code, str(demo)], capture_output=True,
-                         text=True, check=True)
-    import json
-
-    got = json.loads(out.stdout.strip().splitlines()[-1])
-    assert got["same"] == [True, True]
-    if sys.platform.startswith("linux"):
-        assert got["started"] == 1 + 2
+    out = subprocess.run([sys.executable, "-c", _FRESH % patch, str(demo)],
+                         capture_output=True, text=True, check=True, timeout=120)
+    return json.loads(out.stdout.strip().splitlines()[-1])
 
 
-def test_a_failing_helper_has_its_windows_walked_by_the_check(monkeypatch):
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="the helpers are forked on Linux")
+def test_a_failing_helper_has_its_windows_walked_by_the_check():
     """A helper that cannot send its windows' statistics (here: packing them fails in the
     helper, the only process that packs) leaves them to the check itself: the same report."""
-    import json
-
-    import compose.packing
-
-    style = _coarse_demo()
-    one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
-    started = _forks(monkeypatch)
-
-    def broken(obj):
-        raise RuntimeError("no packing in this test")
-
-    monkeypatch.setattr(compose.packing, "pack", broken)
-    assert json.dumps(compose.check(style, cache=False, workers=2).to_json(False)) == one
-    assert len(started) == 1
+    got = _in_a_fresh_process(
+        "def broken(obj):\n    raise RuntimeError('no packing in this test')\n"
+        "compose.packing.pack = broken")
+    assert got == {"same": True, "started": 1}
 
 
-def test_a_stuck_helper_is_ended_and_its_windows_walked_by_the_check(monkeypatch):
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="the helpers are forked on Linux")
+def test_a_stuck_helper_is_ended_and_its_windows_walked_by_the_check():
     """A helper that sends nothing (here: stuck in its packing) for longer than the check's
     patience (compose.api.HELPER_PATIENCE, or 4 x the check's own walk) is ended and its
     windows walked by the check: the same report, no hang."""
-    import json
-    import time
-
-    import compose.api
-    import compose.packing
-
-    style = _coarse_demo()
-    one = json.dumps(compose.check(style, cache=False, workers=1).to_json(False))
-    started = _forks(monkeypatch)
-    monkeypatch.setattr(compose.packing, "pack", lambda obj: time.sleep(3600))
-    monkeypatch.setattr(compose.api, "HELPER_PATIENCE", 0.2)
-    assert json.dumps(compose.check(style, cache=False, workers=2).to_json(False)) == one
-    assert len(started) == 1
+    got = _in_a_fresh_process(
+        "compose.packing.pack = lambda obj: time.sleep(3600)\n"
+        "compose.api.HELPER_PATIENCE = 0.2")
+    assert got == {"same": True, "started": 1}
 
 
 def test_vector_reads_start_once_the_engine_and_the_layer_modules_are_imported():
