@@ -25,10 +25,8 @@ same parts: pass dashed lines clipped to the canvas (or not at all), not cut at 
 """
 from __future__ import annotations
 
-import functools
 import threading
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -36,9 +34,10 @@ import shapely
 from affine import Affine
 
 from compose.errors import StyleError
+from compose.layers import label_text
 from compose.layers.agg import Path, renderer_class
+from compose.layers.label_text import TextShape, measure_text
 from compose.layers.paths import area_path, dashed, display, flatten, line_path, to_pixels
-from compose.lazy import on_first_use
 
 if TYPE_CHECKING:
     from matplotlib.font_manager import FontProperties
@@ -263,13 +262,33 @@ def draw_areas(geoms, transform: Affine, width: int, height: int, *, fill: bool 
     return fill_cov, stroke_cov
 
 
+def _circle(r: float) -> Path:
+    """A circle of radius ``r`` around (0, 0) as 8 cubic Bezier arcs, from (0, -r)
+    counter-clockwise (Lancaster, "Approximating a Circle or an Ellipse Using Four Bezier Cubic
+    Splines": the control points at ``MAGIC`` = 0.2652031 along each arc's end tangents) --
+    matplotlib's ``Path.circle``, point for point (tests/layers/test_draw_agg.py)."""
+    magic = 0.2652031
+    half = np.sqrt(0.5)
+    m45 = half * magic
+    unit = np.array([[0.0, -1.0],
+                     [magic, -1.0], [half - m45, -half - m45], [half, -half],
+                     [half + m45, -half + m45], [1.0, -magic], [1.0, 0.0],
+                     [1.0, magic], [half + m45, half - m45], [half, half],
+                     [half - m45, half + m45], [magic, 1.0], [0.0, 1.0],
+                     [-magic, 1.0], [-half + m45, half + m45], [-half, half],
+                     [-half - m45, half - m45], [-1.0, magic], [-1.0, 0.0],
+                     [-1.0, -magic], [-half - m45, -half + m45], [-half, -half],
+                     [-half + m45, -half - m45], [-magic, -1.0], [0.0, -1.0],
+                     [0.0, -1.0]], dtype=float)
+    codes = [Path.CURVE4] * 26
+    codes[0], codes[-1] = Path.MOVETO, Path.CLOSEPOLY
+    return Path(unit * r + (0.0, 0.0), codes)
+
+
 def _marker(shape: str, size_px: float) -> Path:
     r = size_px / 2.0
     if _choice(shape, SHAPES, "point shape") == "circle":
-        from matplotlib.path import Path as Curves  # its circle of cubic Bezier arcs
-
-        circle = Curves.circle((0.0, 0.0), r)
-        return Path(circle.vertices, circle.codes)
+        return _circle(r)
     return Path(np.array([[-r, -r], [r, -r], [r, r], [-r, r], [-r, -r]]),
                 [Path.MOVETO, Path.LINETO, Path.LINETO, Path.LINETO, Path.CLOSEPOLY])
 
@@ -303,106 +322,19 @@ def draw_points(points, transform: Affine, width: int, height: int, *, size_px: 
 
 # --- text ---------------------------------------------------------------------------------------
 
-@dataclass(frozen=True, slots=True)
-class TextShape:
-    """A text's outline at a size, with its box (pixels): origin at the baseline's left end.
-
-    width: box width; ascent/descent: box extent above/below the baseline (>= 0). The box is the
-    Agg renderer's text extent (``get_text_width_height_descent``) widened to the outline's own
-    extent where hinting made the former smaller, so the drawn ink never leaves it.
-    vertices (N, 2) / codes (N,): the glyph outlines, y up, in pixels.
-    """
-
-    text: str
-    width: float
-    ascent: float
-    descent: float
-    vertices: np.ndarray = field(compare=False, repr=False)
-    codes: np.ndarray = field(compare=False, repr=False)
-
-    @property
-    def height(self) -> float:
-        return self.ascent + self.descent
-
-
-@functools.lru_cache(maxsize=4096)
-def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
-                 weight: str = "normal") -> TextShape:
-    """Outline and box of ``text`` at ``size_px`` pixels (the font size in px at 72 dpi)."""
-    from matplotlib.font_manager import FontProperties, findfont
-
-    prop = FontProperties(family=font, weight=weight, size=float(size_px))
-    try:
-        findfont(prop, fallback_to_default=False)
-    except ValueError:
-        raise StyleError(f"font {font!r} (weight {weight!r}) not found") from None
-    w, h, d = _text_extent(text, prop)
-    v, codes = text_outline(text, float(size_px), prop)
-    codes = codes if codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
-    if len(v):
-        v[:, 0] -= min(0.0, float(v[:, 0].min()))   # ink left of the origin moves into the box
-        w = max(w, float(v[:, 0].max()))
-        asc = max(h - d, float(v[:, 1].max()))
-        d = max(d, -float(v[:, 1].min()))
-    else:
-        asc = h - d
-    v.setflags(write=False)
-    return TextShape(text, float(w), float(asc), float(d), v, np.asarray(codes))
-
-
 def text_outline(text: str, size_px: float, prop: FontProperties) -> tuple[np.ndarray, np.ndarray]:
     """(vertices (N, 2) float64, a copy; codes) of ``text``'s glyph outlines at ``size_px``, as
-    matplotlib's ``TextPath((0, 0), text, size=size_px, prop=prop)`` gives them: plain text laid
-    out by its ``text_to_path`` and scaled from its font scale. Without the ``TextPath`` class,
-    whose constructor imports matplotlib's artists (text, patches, lines) only to decide whether
-    the string is mathtext; a string that is goes through ``TextPath`` itself. matplotlib's
-    text paths are imported on the first call, with TeX's DVI reader, which they import but use
-    only for TeX, loaded when first used (:func:`compose.lazy.on_first_use`: 0.03 s of CPU)."""
-    on_first_use("matplotlib.dviread")
-    import matplotlib
-    from matplotlib.cbook import is_math_text
-    from matplotlib.textpath import TextPath, text_to_path
-    from matplotlib.transforms import Affine2D
-
-    if matplotlib.rcParams["text.parse_math"] and is_math_text(text):
-        tp = TextPath((0.0, 0.0), text, size=size_px, prop=prop)
-        return np.array(tp.vertices, np.float64), tp.codes
-    if matplotlib.rcParams["text.parse_math"]:
-        text = text.replace(r"\$", "$")
-    vertices, codes = text_to_path.get_text_path(prop, text, ismath=False)
-    scale = Affine2D().scale(size_px / text_to_path.FONT_SCALE).translate(0.0, 0.0)
-    return np.array(scale.transform(vertices), np.float64), codes
-
-
-@functools.lru_cache(maxsize=1)
-def _hinting() -> dict:
-    """matplotlib's ``text.hinting`` setting -> FreeType load flags (as its Agg backend maps
-    them)."""
-    from matplotlib.ft2font import LoadFlags
-
-    return {
-        "default": LoadFlags.DEFAULT, "no_autohint": LoadFlags.NO_AUTOHINT,
-        "force_autohint": LoadFlags.FORCE_AUTOHINT, "no_hinting": LoadFlags.NO_HINTING,
-        True: LoadFlags.FORCE_AUTOHINT, False: LoadFlags.NO_HINTING, "either": LoadFlags.DEFAULT,
-        "native": LoadFlags.NO_AUTOHINT, "auto": LoadFlags.FORCE_AUTOHINT,
-        "none": LoadFlags.NO_HINTING,
-    }
+    matplotlib's ``TextPath((0, 0), text, size=size_px, prop=prop)`` gives them
+    (:func:`compose.layers.label_text.text_outline` for ``prop``'s first family and weight)."""
+    return label_text.text_outline(text, float(size_px), prop.get_family()[0], prop.get_weight())
 
 
 def _text_extent(text: str, prop: FontProperties) -> tuple[float, float, float]:
     """(width, height, descent) in pixels of ``text`` as matplotlib's Agg backend measures it
-    (``get_text_width_height_descent`` of plain text at :data:`_DPI`: the font laid out by
-    FreeType with the hinting of ``text.hinting``, in 1/64 pixels)."""
-    import matplotlib
-    from matplotlib.font_manager import fontManager, get_font
-
-    font = get_font(fontManager._find_fonts_by_props(prop))
-    font.clear()
-    font.set_size(prop.get_size_in_points(), _DPI)
-    font.set_text(text, 0.0, flags=_hinting()[matplotlib.rcParams["text.hinting"]])
-    w, h = font.get_width_height()
-    d = font.get_descent()
-    return w / 64.0, h / 64.0, d / 64.0
+    (``get_text_width_height_descent`` of plain text at :data:`_DPI`;
+    :mod:`compose.layers.label_text`)."""
+    return label_text._text_extent(text, float(prop.get_size_in_points()),
+                                   label_text.face(prop.get_family()[0], prop.get_weight()))
 
 
 def draw_text_shapes(shapes: Iterable[tuple[TextShape, float, float]], width: int, height: int,

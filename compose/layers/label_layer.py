@@ -15,18 +15,22 @@ __all__ = ["LabelsLayer", "measures_text", "load_text_modules"]
 
 
 def measures_text(style) -> bool:
-    """Whether preparing ``style`` measures text (it has a ``labels`` layer): that loads
-    matplotlib's package, its font manager and text paths in the preparing process."""
-    return any(spec.kind == "labels" for spec in style.layers)
+    """Whether preparing ``style`` measures text with matplotlib's package: it has a ``labels``
+    layer whose font :mod:`compose.layers.label_text` cannot find without asking matplotlib (its
+    memo does not hold it); otherwise labels are measured by FreeType alone."""
+    from compose.layers.label_text import remembered
+
+    return any(spec.kind == "labels" and spec.enabled
+               and not remembered(spec.options.font, spec.options.weight)
+               for spec in style.layers)
 
 
 def load_text_modules() -> None:
-    """Load the modules measuring label text loads (:func:`compose.layers.draw.measure_text`:
-    matplotlib's font manager and text paths, TeX's DVI reader left for its first use). A render
-    that forks its page process calls it first when :func:`measures_text`: the page's writers
-    need the same modules, so the child inherits them instead of loading them again (about
-    0.1 CPU-s of the page process's 0.2-0.25 s of imports, measured here); the render would load
-    them while preparing anyway. Errors are left for the measuring to raise."""
+    """Load the modules that measuring label text with matplotlib loads (its font manager and
+    text paths, TeX's DVI reader left for its first use). A render that forks its page process
+    calls it first when :func:`measures_text`: the page's writers need the same modules, so the
+    child inherits them instead of loading them again; the render would load them while
+    preparing anyway. Errors are left for the measuring to raise."""
     from compose.timeline import span
 
     try:

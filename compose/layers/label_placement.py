@@ -23,7 +23,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from affine import Affine
 
-from compose.layers.draw import ANCHORS, TextShape, draw_text_shapes, measure_text, to_pixels
+from compose.layers.draw import ANCHORS, draw_text_shapes, to_pixels
+from compose.layers.label_text import TextShape, measure_text
 
 __all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "BoxGrid", "place_labels",
            "draw_labels", "area_anchor"]

@@ -32,8 +32,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from matplotlib.path import Path
 
+from compose.layers.agg import Path
 from compose.layers.paths import flatten, to_pixels
 
 __all__ = ["AlongGlyph", "AlongLabel", "GlyphRun", "glyph_run", "place_along", "draw_along",
@@ -108,39 +108,23 @@ class GlyphRun:
         return self.ascent + self.descent
 
 
-def _prop(size_px: float, font: str, weight: str):
-    from matplotlib.font_manager import FontProperties, findfont
-
-    from compose.errors import StyleError
-
-    prop = FontProperties(family=font, weight=weight, size=float(size_px))
-    try:
-        path = findfont(prop, fallback_to_default=False)
-    except ValueError:
-        raise StyleError(f"font {font!r} (weight {weight!r}) not found") from None
-    return prop, path
-
-
 @functools.lru_cache(maxsize=1024)
 def glyph_run(text: str, size_px: float, font: str = "DejaVu Sans",
               weight: str = "normal") -> GlyphRun:
     """Pen positions and advances of ``text``'s characters at ``size_px`` (unhinted advances and
-    the font's kerning, as the text renderer lays them out)."""
-    from matplotlib.font_manager import get_font
-    from matplotlib.ft2font import Kerning, LoadFlags
+    the font's kerning, as the text renderer lays them out; :mod:`compose.layers.label_text`)."""
+    from compose.layers.label_text import face, font_object, ft2font, measure_text
 
-    from compose.layers.draw import measure_text
-
-    _, path = _prop(size_px, font, weight)
-    ft = get_font(path)
+    ft = font_object(face(font, weight))
+    kerning, flags = ft2font().Kerning.DEFAULT, ft2font().LoadFlags.NO_HINTING
     ft.set_size(float(size_px), 72.0)
     xs, adv = [], []
     pen, prev = 0.0, None
     for ch in text:
         idx = ft.get_char_index(ord(ch))
         if prev is not None:
-            pen += ft.get_kerning(prev, idx, Kerning.DEFAULT) / 64.0
-        g = ft.load_char(ord(ch), flags=LoadFlags.NO_HINTING)
+            pen += ft.get_kerning(prev, idx, kerning) / 64.0
+        g = ft.load_char(ord(ch), flags=flags)
         xs.append(pen)
         adv.append(g.linearHoriAdvance / 65536.0)
         pen += adv[-1]
@@ -154,10 +138,9 @@ def glyph_run(text: str, size_px: float, font: str = "DejaVu Sans",
 def glyph_outline(char: str, size_px: float, font: str = "DejaVu Sans",
                   weight: str = "normal") -> tuple[np.ndarray, np.ndarray]:
     """(vertices (N, 2) y up, codes (N,)) of one glyph's outline, origin at its pen position."""
-    from compose.layers.draw import text_outline  # TextPath's outline, fewer imports
+    from compose.layers.label_text import text_outline
 
-    prop, _ = _prop(size_px, font, weight)
-    v, codes = text_outline(char, float(size_px), prop)
+    v, codes = text_outline(char, float(size_px), font, weight)
     codes = codes if codes is not None else np.full(len(v), Path.LINETO, Path.code_type)
     v.setflags(write=False)
     return v, np.asarray(codes)

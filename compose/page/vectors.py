@@ -141,15 +141,17 @@ def _along(ax, layer, along, z):
     fully transparent, horizontal text at the label's middle, so text extraction and search find
     it. (Glyph-by-glyph text at changing angles is split apart by text extractors.)"""
     from matplotlib.patches import PathPatch
+    from matplotlib.path import Path
 
     from compose.layers.labels_along import along_path
 
     o = layer.options
     a = float(layer.spec.opacity)
     out = []
-    path = along_path(along)
-    if path is None:
+    drawn = along_path(along)
+    if drawn is None:
         return out
+    path = Path(drawn.vertices, drawn.codes, readonly=True)
     if o.halo is not None:
         out.append(PathPatch(path, facecolor=_rgb(o.halo.color), edgecolor=_rgb(o.halo.color),
                              lw=o.halo.width, alpha=a, joinstyle="round", zorder=z))

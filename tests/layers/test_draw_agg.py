@@ -105,6 +105,17 @@ def test_text_outlines_are_textpaths(text, size):
     assert np.array_equal(codes, tp.codes)
 
 
+@pytest.mark.parametrize("r", [0.5, 1.0, 2.75, 10.0 / 3.0, 7.1])
+def test_circle_markers_are_matplotlibs_circle(r):
+    """A circle marker is matplotlib's Path.circle point for point (drawn without importing
+    matplotlib's package: compose.layers.draw._circle)."""
+    from matplotlib.path import Path as Curves
+
+    ours, ref = draw._circle(r), Curves.circle((0.0, 0.0), r)
+    assert ours.vertices.tobytes() == np.asarray(ref.vertices, np.float64).tobytes()
+    assert ours.codes.tobytes() == np.asarray(ref.codes, np.uint8).tobytes()
+
+
 def test_plain_labels_load_no_matplotlib_artists():
     code = ("import sys, compose.layers.draw as d\nd.measure_text('Río Verde', 7.0)\n"
             "print(' '.join(sorted(sys.modules)))")

@@ -297,25 +297,31 @@ render_style(style, sys.argv[3], html=False)
 """
 
 
-@pytest.mark.parametrize("labelled", [True, False])
-def test_the_page_process_inherits_the_text_modules_of_a_labelled_style(tmp_path, labelled):
-    """A style with a labels layer loads matplotlib's text modules while it is prepared; the
-    render loads them before it forks the page process, whose writers need them too, so the
-    child starts with them (a fresh interpreter: this one has matplotlib already). A style
-    without labels leaves matplotlib to the child (its render never loads it)."""
+@pytest.mark.parametrize("labelled,remembered", [(True, False), (True, True), (False, False)])
+def test_the_page_process_inherits_the_text_modules_of_a_labelled_style(tmp_path, labelled,
+                                                                        remembered):
+    """A style with a labels layer whose font is not remembered loads matplotlib's text modules
+    while it is prepared (compose.layers.label_text asks matplotlib); the render loads them
+    before it forks the page process, whose writers need them too, so the child starts with
+    them (a fresh interpreter: this one has matplotlib already). Once the font is remembered
+    (the user's cache folder) the labels are measured without matplotlib and the render leaves
+    it to the child, as for a style without labels."""
+    import os
     import subprocess
     import sys
 
     from compose.demo import styles_dir
-    from compose.layers.label_layer import measures_text
-    from compose.style import load_style
-    from compose.style.overrides import parse_override
 
     coast = styles_dir() / "coast.toml"
     sets = [] if labelled else [f"layer.{name}.enabled=false" for name in ("town names",
                                                                           "river names")]
-    assert measures_text(load_style(coast, overrides=tuple(map(parse_override, sets)))) == labelled
+    env = dict(os.environ, COMPOSE_CACHE=str(tmp_path / "cache") if remembered else "off")
+    if remembered:
+        subprocess.run([sys.executable, "-c", "from compose.layers.label_text import face; "
+                        "face('DejaVu Sans', 'normal')"], env=env, check=True)
     seen = tmp_path / "seen.txt"
     subprocess.run([sys.executable, "-c", _INHERITED, str(coast), str(seen), str(tmp_path / "out"),
-                    *sets], check=True, capture_output=True)
-    assert seen.read_text().split() == (["matplotlib", "matplotlib.textpath"] if labelled else [])
+                    *sets], check=True, capture_output=True, env=env)
+    assert seen.read_text().split() == (["matplotlib", "matplotlib.textpath"]
+                                        if labelled and not remembered else [])
+    assert (tmp_path / "out" / "coast.pdf").is_file()

@@ -343,15 +343,17 @@ def test_setter_listings_left_empty_only_while_loading():
 
 
 def test_the_font_subsetter_and_the_dvi_reader_load_on_first_use():
-    """matplotlib's text paths (compose.layers.draw) no longer load TeX's DVI reader with
+    """matplotlib's text paths, as the render loads them for its page process
+    (compose.layers.label_layer.load_text_modules), no longer load TeX's DVI reader with
     themselves, nor its PDF writer fontTools' subsetter (compose.lazy.on_first_use); both still
     work when used (the standard library's importlib.util.LazyLoader)."""
     code = textwrap.dedent("""
         import sys
+        from compose.layers.label_layer import load_text_modules
+        load_text_modules()
         from matplotlib.font_manager import FontProperties
-        from compose.layers.draw import text_outline
-        vertices, codes = text_outline("Harbour", 12.0, FontProperties(family="DejaVu Sans"))
-        assert len(vertices) == len(codes) > 0
+        from matplotlib.textpath import TextPath
+        assert len(TextPath((0, 0), "Harbour", size=12.0, prop=FontProperties()).vertices) > 0
         dvi = sys.modules["matplotlib.dviread"]
         assert type(dvi).__name__ == "_LazyModule", "loaded with the text paths"
         from compose.lazy import on_first_use
