@@ -172,17 +172,18 @@ def big_style(size: int) -> Path:
     return synthetic.write_styles(folder, size)["aligned"]
 
 
-#: What the check's process imports before the draft's marks process is forked (the command,
-#: the API and the style, rasterio for the rasters: compose.layers.early_marks).
-BEFORE_FORK = ("compose.cli.main", "compose.cli.check", "compose.api", "rasterio.crs")
+#: What the command imports before the draft's marks process is forked (the command, the style,
+#: rasterio for the vector sources' CRS questions: compose.layers.early_marks.start_early).
+BEFORE_FORK = ("compose.cli.main", "compose.cli.check", "compose.style", "rasterio.crs")
 
 
 def phases(style: Path, runs: int) -> None:
     """Where the cold draft command's wall time goes (``COMPOSE_TIMELINE``, compose.timeline):
     medians of ``runs`` commands. The start-up until the marks process is forked, that process
-    (read, parse, simplify, cut: its layers built; then the tiles drawn, the first here and the
-    rest in a process of its own), the check's own process preparing its rasters beside it,
-    and what is left after it: the walk (compositing and statistics), the rules, the end."""
+    (its imports; read, parse, simplify, cut: its layers built; their parts in pixel space
+    handed over; its tiles drawn, while the check's process draws the first), the check's own
+    process preparing and reading its rasters beside it, and what is left after it: the walk
+    (compositing and statistics), the rules, the end."""
     from compose.timeline import read
 
     got: dict[str, list[float]] = {}
@@ -204,23 +205,43 @@ def phases(style: Path, runs: int) -> None:
         mine = [r for r in rows if r[0] == parent]
         marks = [r for r in rows if r[0] != parent and r[4].startswith("marks ahead")]
         add("total", t1 - t0)
+        forked = [r for r in mine if r[4] == "marks ahead forked"]
+        if forked:
+            add("start-up until the marks process is forked", forked[0][2] - t0)
         if marks:
-            add("start-up until the marks process builds its layers", marks[0][2] - t0)
-            built = [r for r in marks if r[4] != "marks ahead paint"]
-            add("  marks process: layers built (read, parse, simplify, cut)",
-                built[-1][3] - marks[0][2])
-            add("  marks process: tiles drawn (two processes)",
-                sum(r[3] - r[2] for r in marks if r[4] == "marks ahead paint"))
+            def took(label: str, marks=marks) -> float:
+                return sum(r[3] - r[2] for r in marks if r[4] == label)
+
+            add("  marks process: its imports", took("marks ahead imports"))
+            built = [r for r in marks if r[4] not in ("marks ahead imports", "marks ahead paint",
+                                                      "marks ahead hand over")]
+            if built:
+                add("  marks process: layers built (read, parse, simplify, cut)",
+                    built[-1][3] - built[0][2])
+            add("  marks process: parts in pixels made and handed over",
+                took("marks ahead hand over"))
+            add("  marks process: its tiles drawn", took("marks ahead paint"))
             add("  marks process ends", max(r[3] for r in marks) - t0)
+        here = [r for r in mine if r[4] == "marks ahead: first tile drawn here"]
+        if here:
+            add("  check's process: first tile drawn", here[0][3] - here[0][2])
+            add("  check's process: first tile drawn until", here[0][3] - t0)
+        reads = [r for r in mine if r[4] == "draft early read"]
+        if reads:
+            add("  check's process: raster early reads over", max(r[3] for r in reads) - t0)
         prep = [r for r in mine if r[4].startswith("prepare ")]
         if prep:
             add("  check's process prepares its layers until", prep[-1][3] - t0)
+        rest = [r for r in mine if r[4] == "marks ahead: the rest received"]
+        if rest:
+            add("the marks' paints all here", rest[0][3] - t0)
         for label in ("check walk", "check rules"):
             for r in mine:
                 if r[4] == label:
                     if label == "check walk":
-                        add("check walk starts (the marks' paints received)", r[2] - t0)
-                    add(f"{label} (after the marks)", r[3] - r[2])
+                        add("check walk starts (rasters first, then the marks)", r[2] - t0)
+                        add("check walk ends", r[3] - t0)
+                    add(label, r[3] - r[2])
         add("end of the rules -> process ended", t1 - max(r[3] for r in mine))
     imports = medians([run_command([sys.executable, "-c", "import " + ", ".join(BEFORE_FORK)])
                        for _ in range(runs)])

@@ -107,10 +107,11 @@ def check(style: Style | str | Path, *, progress: Callable[[int, int], None] | N
         specs = _to_read(style, store)
         # forked before any thread of this process starts (nor any a library started in C
         # since the API was imported: see _THREADS_AT_IMPORT)
-        if is_draft and 0 < _os_threads() <= _THREADS_AT_IMPORT:
+        if is_draft:
             from compose.layers.early_marks import MarksAhead
 
-            ahead = MarksAhead.start(style, canvas, specs)
+            ahead = MarksAhead.start(style, canvas, specs,
+                                     fork=0 < _os_threads() <= _THREADS_AT_IMPORT)
         early = _read_vectors_early(
             [s for s in specs if ahead is None or s.name not in ahead.names],
             canvas if is_draft else None, style)
@@ -220,9 +221,12 @@ class _Drawn:
         transform = prepared.canvas.window_transform(window)
         _, _, h, w = window.padded
         self._window = window
+        # a layer drawn in the marks process (compose.layers.early_marks) is painted in its
+        # turn instead, after the rasters: the walk composites them while it draws
         self._paints = {li: layer.paint(window, transform, h, w)
                         for li, layer in enumerate(prepared.layers)
-                        if layer.spec.kind in _MARK_KINDS}
+                        if layer.spec.kind in _MARK_KINDS
+                        and not getattr(layer, "drawn_ahead", False)}
 
     def paints(self, window, li: int):
         return self._paints.get(li) if window == self._window else None

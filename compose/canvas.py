@@ -18,7 +18,11 @@ from affine import Affine
 from compose.errors import StyleError
 from compose.limits import check_canvas_size
 
-__all__ = ["Canvas", "Window", "core_window"]
+__all__ = ["Canvas", "Window", "core_window", "DRAFT_SIDE"]
+
+#: Pixels of a draft canvas's longer side at most (:meth:`Canvas.draft`; a draft check,
+#: :mod:`compose.check.draft`).
+DRAFT_SIDE = 384
 
 
 @dataclass(frozen=True, slots=True)
@@ -145,6 +149,15 @@ class Canvas:
         if factor <= 1:
             return self
         return Canvas.from_extent(self.crs, self.bounds, self.pixel * factor, dpi=self.dpi / factor)
+
+    def draft(self, side: int = DRAFT_SIDE) -> Canvas:
+        """The same extent and dpi at a pixel a whole number of times coarser, so the longer
+        side is at most ``side`` pixels (this canvas when it is already that small): a draft
+        check's canvas (:mod:`compose.check.draft`)."""
+        factor = math.ceil(max(self.width, self.height) / float(side))
+        if factor <= 1:
+            return self
+        return Canvas.from_extent(self.crs, self.bounds, self.pixel * factor, dpi=self.dpi)
 
     def whole(self, margin: int = 0) -> Window:
         """One window covering the whole canvas."""

@@ -31,22 +31,17 @@ files are small enough to be decimated as before.
 """
 from __future__ import annotations
 
-import math
-
-from compose.canvas import Canvas
+from compose.canvas import DRAFT_SIDE, Canvas
 
 __all__ = ["DRAFT_SIDE", "draft_canvas", "describe_draft"]
-
-DRAFT_SIDE = 384
 
 
 def draft_canvas(canvas: Canvas, side: int = DRAFT_SIDE) -> Canvas:
     """``canvas`` at a pixel a whole number of times coarser so its longer side is at most ``side``
-    pixels, same extent and dpi (the canvas itself when it is already that small)."""
-    factor = math.ceil(max(canvas.width, canvas.height) / float(side))
-    if factor <= 1:
-        return canvas
-    return Canvas.from_extent(canvas.crs, canvas.bounds, canvas.pixel * factor, dpi=canvas.dpi)
+    pixels, same extent and dpi (the canvas itself when it is already that small; made by
+    :meth:`compose.canvas.Canvas.draft`, which a command forking the draft's marks process uses
+    before this package is imported)."""
+    return canvas.draft(side)
 
 
 def describe_draft(draft: Canvas, full: Canvas) -> str:

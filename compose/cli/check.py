@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import Any
 
 import click
 
@@ -103,10 +104,6 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cac
     size and modification time, the canvas and the style keys that change geometry, never by
     colours): a check after changing only colours, opacity or blend skips reading and drawing.
     """
-    from compose.api import check
-    from compose.check import format_report
-    from compose.cli.render import progress_bar
-
     if list_rules or explain_rule:
         click.echo(rules_table() if list_rules else explain(str(explain_rule)))
         return
@@ -119,8 +116,25 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cac
             return
     if style is None:
         raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")
-    report = check(style, progress=progress_bar("checking"), draft=draft,
-                   cache=False if no_cache else cache_dir, workers=workers)
+    cache = False if no_cache else cache_dir
+    checked: Any = style
+    drop: Any = None
+    try:
+        if draft:       # the draft's marks process forked before the checker's imports
+            from compose.layers.early_marks import drop_early, start_early
+
+            drop = drop_early
+            checked = start_early(style, cache)
+        from compose.api import check
+        from compose.cli.render import progress_bar
+
+        report = check(checked, progress=progress_bar("checking"), draft=draft, cache=cache,
+                       workers=workers)
+    finally:
+        if drop is not None:
+            drop()
+    from compose.check import format_report
+
     if as_json:
         click.echo(json.dumps(report.to_json(strict), indent=2))
     else:

@@ -38,8 +38,12 @@ class EarlyRead:
         _submit(lambda: self._run(read))
 
     def _run(self, read) -> None:
+        from compose.timeline import span
+
         try:
-            self.future.set_result(read(self.window))
+            with span("draft early read"):
+                got = read(self.window)
+            self.future.set_result(got)
         except BaseException as exc:        # re-raised where the paint takes it
             self.future.set_exception(exc)
 

@@ -4,23 +4,31 @@ A draft (:mod:`compose.check.draft`) is one window of at most 384 px a side. Its
 work -- reading the features (SQLite, WKB parsing), simplifying them, cutting them to the canvas
 and drawing them with Agg -- is mostly Python or holds Python's lock, so on threads it only
 takes turns with the check's own imports and preparing instead of running beside them. Here it
-runs in a process forked once the style is loaded (:class:`MarksAhead`), before the engine, the
-raster libraries and the rasters' early reads (:mod:`compose.layers.early`) start: the process
-builds each layer as the check would (the same early read, :func:`read_ahead`, the same class and
-draft context), paints the whole draft canvas and sends the paints back. The check's layer for
-it (:meth:`MarksAhead.make_layer`) hands them out for the window that is the whole canvas: the
-same coverage, byte for byte, because a vector layer draws a window made of whole tiles tile by
-tile whatever its margin, with nothing in the margin (:class:`compose.layers.vector.LinesLayer`).
-Anything else -- another window, another transform, a process that failed or could not be forked
--- builds the layer in the check's own process, as without this module (so a bad source is
-reported by the same code, with the same message).
+runs in a process forked as soon as the style is loaded: by ``compose check --draft`` before
+the checker's, the engine's and the raster layers' modules are imported (:func:`start_early`),
+else by the check itself (:meth:`MarksAhead.start`), before the rasters' early reads
+(:mod:`compose.layers.early`) start. The process builds each layer as the check would (the same
+early read, :func:`read_ahead`, the same class and draft context) and sends back, in turn: the
+layers' margins (the check prepares its walk with them), copies of the layers for drawing (a
+lines layer's parts in pixel space, through a memory file both processes share) and its paints
+of all but the first tile, which the check's process draws meanwhile (:func:`_bands`). The
+check's layer for it (:meth:`MarksAhead.make_layer`) hands the tiles put together out for the
+window that is the whole canvas: the same coverage, byte for byte, because a vector layer draws
+a window made of whole tiles tile by tile whatever its margin, with nothing in the margin
+(:class:`compose.layers.vector.LinesLayer`), and the walk paints it in its turn, after the
+rasters. Anything else -- another window, another transform, a process that failed or could not
+be forked -- builds the layer in the check's own process, as without this module (so a bad
+source is reported by the same code, with the same message).
 """
 from __future__ import annotations
 
 import dataclasses
 import functools
+import os
 import select
+import signal
 import threading
+import time
 from collections.abc import Callable
 from typing import Any
 
@@ -73,21 +81,27 @@ def read_ahead(spec, draft=None) -> None:
                crs=None if draft is None else draft.crs)
 
 
-def _draw_all(style, canvas, specs) -> dict[str, tuple[int, list]]:
+def _draw_all(style, canvas, specs, send: Callable[[Any], None],
+              hand_over: Callable[[bytes], Any]) -> list:
     """In the forked process: each layer of ``specs`` built on the draft ``canvas`` as the check
-    builds it, and its paints of the whole canvas (padded by its own margin): name -> (margin,
-    paints). All but the first tile (:func:`_bands`) are drawn by a process forked from this one
-    once the layers are built, while this one draws the first: the check's own process only
-    waits by then, and Agg holds Python's lock."""
+    builds it. ``send`` hands over their margins (the check prepares and walks its rasters with
+    them meanwhile), then copies of them for drawing (:meth:`LinesLayer.for_drawing
+    <compose.layers.vector.LinesLayer.for_drawing>`: a lines layer's parts in pixel space),
+    packed, through ``hand_over`` (shared memory: the bytes wait there, however busy the check
+    is), so the check's process draws the first tile (:func:`_bands`) while this one draws the
+    rest; returns (window, each layer's paints of it) of the rest. Agg holds Python's lock: two
+    processes draw at once, and the check's only waits by then."""
     import gc
 
     from compose.layers.base import Context
+    from compose.packing import pack
     from compose.style.kinds import layer_class
     from compose.timeline import span
 
     gc.disable()            # a short-lived process: its memory goes when it ends
-    for spec in specs:      # imported first: an import beside the reads only takes turns
-        layer_class(spec.kind)
+    with span("marks ahead imports"):
+        for spec in specs:  # imported first: an import beside the reads only takes turns
+            layer_class(spec.kind)
     for spec in specs:
         read_ahead(spec, canvas)
     ctx = Context(canvas=canvas, ramps={}, style=style, draft=True)
@@ -96,23 +110,16 @@ def _draw_all(style, canvas, specs) -> dict[str, tuple[int, list]]:
         for spec in specs:
             with span(f"marks ahead {spec.kind} {spec.name}"):
                 layers.append(layer_class(spec.kind)(spec, ctx))
-        mine, rest = _bands(canvas)
-        other = _fork(functools.partial(_paint, layers, canvas, rest)) if rest else None
+        send(("margins", [layer.margin for layer in layers]))
+        _, rest = _bands(canvas)
+        with span("marks ahead hand over"):       # (the style's tables pickle as dicts)
+            send(("layers", hand_over(pack([layer.for_drawing() for layer in layers]))))
         with span("marks ahead paint"):
-            pieces = _paint(layers, canvas, mine)
-            got = None
-            if other is not None:
-                try:
-                    got = other.result()
-                except Exception:           # drawn here instead
-                    got = None
-            pieces += got if got is not None else _paint(layers, canvas, rest)
+            pieces = _paint(layers, canvas, rest)
     finally:
         for layer in layers:
             layer.close()
-    return {spec.name: (layer.margin,
-                        _put_together(canvas, layer.margin, [(w, p[i]) for w, p in pieces]))
-            for i, (spec, layer) in enumerate(zip(specs, layers))}
+    return pieces
 
 
 def _bands(canvas) -> tuple[list, list]:
@@ -160,69 +167,244 @@ def _put_together(canvas, margin: int, pieces: list) -> list:
     return [dataclasses.replace(p, alpha=alpha) for p, alpha in parts.values()]
 
 
-def _fork(fn: Callable[[], Any]):
-    """``fn`` run in a process forked from this one (:class:`compose.page.process.Forked`), or
-    None when forking is not safe (the early reads' threads are joined first: each has handed
-    its features over by now)."""
-    from compose.page.process import Forked, can_fork
+def _write(fd: int, message) -> None:
+    """Pickle ``message`` and write it whole to ``fd``, its length first."""
+    import pickle
 
-    for thread in threading.enumerate():
-        if thread.name == "early-vectors":
-            thread.join(1.0)
-    return Forked(fn) if can_fork() else None
+    data = pickle.dumps(message, protocol=pickle.HIGHEST_PROTOCOL)
+    view = memoryview(len(data).to_bytes(8, "little") + data)
+    while view:
+        view = view[os.write(fd, view):]
+
+
+class _Job:
+    """``fn(send, hand_over)`` run in a process forked from this one (which has no other thread
+    running: :func:`compose.forking.can_fork`), dying with it. ``send(message)`` hands a small
+    message over (a pipe); ``hand_over(data)`` puts bytes where this process reads them
+    (:meth:`taken`: a memory file both share, so the process never waits for this one to read
+    them) and returns what :meth:`taken` needs; what ``fn`` returns (or raises) is the last
+    message. :meth:`receive` reads the next message; :meth:`abort` ends the process."""
+
+    def __init__(self, fn: Callable[..., Any]) -> None:
+        from compose.forking import die_with_parent
+
+        r, w = os.pipe()
+        self._memory: int | None = os.memfd_create("compose-marks", os.MFD_CLOEXEC)
+        parent = os.getpid()
+        pid = os.fork()
+        if pid == 0:                                    # pragma: no cover - the child
+            os.close(r)
+            status = 0
+            try:
+                if die_with_parent(parent, b"compose-marks"):
+                    def send(message) -> None:
+                        _write(w, message)
+
+                    def hand_over(data: bytes) -> int:
+                        view = memoryview(data)
+                        done = 0
+                        while done < len(view):
+                            done += os.pwrite(self._memory, view[done:], done)  # type: ignore
+                        return len(view)
+                    try:
+                        send(("done", fn(send, hand_over)))
+                    except BaseException as exc:        # noqa: BLE001 - handed over
+                        status = 1
+                        try:
+                            send(("error", repr(exc)))
+                        except BaseException:           # noqa: BLE001
+                            pass
+            finally:
+                from compose.timeline import note_process
+
+                note_process()
+                os._exit(status)
+        os.close(w)
+        self.pid: int | None = pid
+        self._inbox: int | None = r
+
+    def receive(self, timeout: float):
+        """The next message, or None when the process sent nothing for ``timeout`` seconds,
+        ended, or failed (an ``"error"`` message)."""
+        import pickle
+
+        if self._inbox is None:
+            return None
+        ready, _, _ = select.select([self._inbox], [], [], timeout)
+        if not ready:
+            return None
+        try:
+            size = int.from_bytes(self._read(8), "little")
+            message = pickle.loads(self._read(size))
+        except (EOFError, OSError):
+            return None
+        return None if message[0] == "error" else message
+
+    def _read(self, n: int) -> bytes:
+        chunks, got = [], 0
+        while got < n:
+            chunk = os.read(self._inbox, n - got)        # type: ignore[arg-type]
+            if not chunk:
+                raise EOFError
+            chunks.append(chunk)
+            got += len(chunk)
+        return b"".join(chunks)
+
+    def taken(self, size: int) -> bytes:
+        """The ``size`` bytes the process handed over (``hand_over`` returned ``size``)."""
+        chunks, got = [], 0
+        while got < size:
+            chunk = os.pread(self._memory, size - got, got)    # type: ignore[arg-type]
+            if not chunk:
+                raise EOFError
+            chunks.append(chunk)
+            got += len(chunk)
+        return b"".join(chunks)
+
+    def abort(self) -> None:
+        """End the process (killed if it still runs) and reap it (a second call does nothing)."""
+        for name in ("_inbox", "_memory"):
+            fd = getattr(self, name)
+            if fd is not None:
+                os.close(fd)
+                setattr(self, name, None)
+        if self.pid is not None:
+            try:
+                os.kill(self.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+            try:
+                os.waitpid(self.pid, 0)
+            except ChildProcessError:
+                pass
+            self.pid = None
 
 
 class MarksAhead:
     """The draft's mark layers (:data:`MARK_KINDS`) being prepared and drawn in a forked process
     (:func:`_draw_all`); :meth:`make_layer` is :func:`compose.engine.prepare`'s hook."""
 
-    def __init__(self, job, canvas, specs) -> None:
+    def __init__(self, job: _Job, canvas, specs, style=None) -> None:
         self._job = job
         self.canvas = canvas
+        self.style = style
         self.names = {spec.name for spec in specs}
+        self._order = [spec.name for spec in specs]
+        self._margins: dict[str, int] | None = None
         self._got: dict | None = None
         self._done = False
-        self._lock = threading.Lock()
+        self._lock = threading.RLock()
 
     @classmethod
-    def start(cls, style, canvas, specs) -> MarksAhead | None:
+    def start(cls, style, canvas, specs, fork: bool = True) -> MarksAhead | None:
         """Fork the process drawing ``specs`` (enabled layers of :data:`MARK_KINDS`) on the
-        draft ``canvas``, or None when there are none or forking is not safe here (not Linux,
-        or another thread runs: see :func:`compose.page.process.can_fork`)."""
-        specs = [s for s in specs if s.kind in MARK_KINDS]
-        if not specs or _source_bytes(specs) < MIN_BYTES:
+        draft ``canvas``, or None when there are none, ``fork`` is False or forking is not safe
+        here (not Linux, or another thread runs: see :func:`compose.forking.can_fork`). A
+        process the command forked already for the same style, canvas and layers
+        (:func:`start_early`) is taken instead; one for others is ended."""
+        specs = _worth_drawing_ahead(specs)
+        early = _EARLY.pop() if _EARLY else None
+        if early is not None:
+            if (early.style is style and early.canvas == canvas
+                    and early._order == [s.name for s in specs]):
+                return early
+            early.close()
+        if not specs or not fork:
             return None
-        from compose.page.process import Forked, can_fork
+        from compose.forking import can_fork
 
         if not can_fork():
             return None
+        return cls._fork(style, canvas, specs)
+
+    @classmethod
+    def _fork(cls, style, canvas, specs) -> MarksAhead:
         # the check imports rasterio for its rasters anyway: before the fork, not in both
         # processes (the process's vector sources ask GDAL about their files and CRSs)
         import rasterio.crs  # noqa: F401
 
-        return cls(Forked(functools.partial(_draw_all, style, canvas, specs)), canvas, specs)
+        from compose.timeline import note
+
+        note("marks ahead forked", time.time())
+        return cls(_Job(functools.partial(_draw_all, style, canvas, specs)), canvas, specs,
+                   style)
+
+    def margin(self, name: str) -> int | None:
+        """Layer ``name``'s margin, waiting for the process to build the layers; None when it
+        failed (the layer is then built here)."""
+        with self._lock:
+            if self._margins is None and not self._done:
+                message = self._receive("marks ahead: margins received")
+                if message is None or message[0] != "margins":
+                    self._fail()
+                else:
+                    self._margins = dict(zip(self._order, message[1]))
+        return None if self._margins is None else self._margins.get(name)
 
     def result(self, name: str) -> tuple[int, list] | None:
         """(margin, paints of the whole canvas) of layer ``name``, waiting for the process;
         None when it failed (the layer is then built here)."""
+        self.margin(name)
         with self._lock:
             if not self._done:
                 self._done = True
                 try:
-                    ready, _, _ = select.select([self._job._inbox], [], [], PATIENCE)
-                    self._got = self._job.result() if ready else None
+                    self._got = self._take() if self._margins is not None else None
                 except Exception:           # built here instead, which reports any error
                     self._got = None
                 if self._got is None:
-                    self._job.abort()
+                    self._fail()
         got = self._got
         return None if got is None else got.get(name)
+
+    def _receive(self, label: str):
+        from compose.timeline import span
+
+        with span(label):
+            try:
+                return self._job.receive(PATIENCE)
+            except Exception:
+                return None
+
+    def _fail(self) -> None:
+        self._done = True
+        self._margins = None
+        self._got = None
+        self._job.abort()
+
+    def _take(self) -> dict | None:
+        """The process's layers for drawing: this process draws the first tile with them while
+        the process draws the rest, then the two put together, by layer name."""
+        from compose.packing import unpack
+        from compose.timeline import span
+
+        message = self._receive("marks ahead: layers received")
+        if message is None or message[0] != "layers":
+            return None
+        layers = unpack(self._job.taken(message[1]))
+        mine, _ = _bands(self.canvas)
+        with span("marks ahead: first tile drawn here"):
+            here = _paint(layers, self.canvas, mine)
+        message = self._receive("marks ahead: the rest received")
+        if message is None or message[0] != "done":
+            return None
+        assert self._margins is not None
+        pieces = here + message[1]
+        return {name: (self._margins[name],
+                       _put_together(self.canvas, self._margins[name],
+                                     [(w, p[i]) for w, p in pieces]))
+                for i, name in enumerate(self._order)}
 
     def make_layer(self, spec, ctx, build: Callable[[], Any]) -> Any:
         """The layer for ``spec``: drawn ahead when this process draws it on ``ctx``'s canvas,
         else ``build()``."""
         if spec.name not in self.names or ctx.canvas != self.canvas or not ctx.draft:
             return build()
+        # this process draws the first tile: the layer's module loaded now, while the rasters
+        # are prepared, not when the process hands the layers over
+        from compose.style.kinds import layer_class
+
+        layer_class(spec.kind)
         return _Ahead(self, spec, functools.partial(self._build_here, spec, build))
 
     def _build_here(self, spec, build: Callable[[], Any]) -> Any:
@@ -234,9 +416,60 @@ class MarksAhead:
         self._job.abort()
 
 
+#: A marks process the command forked before the check began (:func:`start_early`), until
+#: :meth:`MarksAhead.start` takes it.
+_EARLY: list[MarksAhead] = []
+
+
+def _worth_drawing_ahead(specs) -> list:
+    """The layers of ``specs`` a process draws ahead: the enabled :data:`MARK_KINDS`, when their
+    files hold :data:`MIN_BYTES` or more."""
+    specs = [s for s in specs if s.enabled and s.kind in MARK_KINDS]
+    return specs if specs and _source_bytes(specs) >= MIN_BYTES else []
+
+
+def start_early(path, cache) -> Any:
+    """``compose check --draft``: the style at ``path`` loaded (its errors raised as the check
+    raises them) and, when its marks are drawn ahead (:meth:`MarksAhead.start`), their process
+    forked now, before the checker's modules are imported; the check (:func:`compose.api.check`
+    given the returned style) takes it. ``cache``: the check's cache option (False: none);
+    layers the cache holds are not drawn ahead. Call :func:`drop_early` when the check is over."""
+    from compose.style import load_style
+
+    style = load_style(path)
+    from compose.forking import can_fork
+
+    if not can_fork():
+        return style
+    full = style.canvas()
+    canvas = full.draft()
+    if canvas is full:                      # no smaller draft: checked as the full map
+        return style
+    specs = _worth_drawing_ahead(style.layers)
+    if specs and cache is not False:
+        from compose.check_cache import CheckCache, cache_dir
+
+        root = cache_dir(None if cache is None or cache is True else cache)
+        if root is not None:
+            held = CheckCache(root, style, canvas, None).held(specs)
+            specs = _worth_drawing_ahead([s for s in specs if s.name not in held])
+    if specs:
+        _EARLY.append(MarksAhead._fork(style, canvas, specs))
+    return style
+
+
+def drop_early() -> None:
+    """End a process :func:`start_early` forked that no check took."""
+    while _EARLY:
+        _EARLY.pop().close()
+
+
 class _Ahead:
     """A mark layer whose paints of the whole draft canvas come from :class:`MarksAhead`; any
     other window is painted by the layer itself, built here on first use."""
+
+    #: painted by the walk in its turn, after the rasters (compose.api._Drawn leaves it alone)
+    drawn_ahead = True
 
     def __init__(self, ahead: MarksAhead, spec, build: Callable[[], Any]) -> None:
         self.spec = spec
@@ -253,8 +486,8 @@ class _Ahead:
 
     @property
     def margin(self) -> int:
-        got = self._ahead.result(self.spec.name)
-        return got[0] if got is not None else self._here().margin
+        got = self._ahead.margin(self.spec.name)
+        return got if got is not None else self._here().margin
 
     def paint(self, window, transform, height: int, width: int) -> list:
         got = self._ahead.result(self.spec.name)

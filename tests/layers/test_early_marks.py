@@ -19,13 +19,16 @@ STYLES = ROOT / "styles"
 _CODE = """
 import json, sys
 import compose.api, compose.layers.early_marks as em
-import compose.page.process as process
+import compose.sources.vector as sv
 em.MIN_BYTES = 0                       # the demo's small files are drawn ahead too
 forked = []
-real = process.Forked.__init__
-process.Forked.__init__ = lambda self, fn: forked.append(1) or real(self, fn)
+real = em._Job.__init__
+em._Job.__init__ = lambda self, fn: forked.append(1) or real(self, fn)
+reads = []                             # features read by this process (the check's)
+real_read = sv.VectorSource._read
+sv.VectorSource._read = lambda self: reads.append(self.layer) or real_read(self)
 if sys.argv[2] == "here":
-    em.MarksAhead.start = classmethod(lambda cls, *a: None)
+    em.MarksAhead.start = classmethod(lambda cls, *a, **k: None)
 if sys.argv[2] == "fail":              # the process fails: the layers are built here instead
     def broken(*a):
         raise RuntimeError("no paints")
@@ -37,8 +40,7 @@ if sys.argv[2] == "stuck":             # the process never answers: ended, built
 if sys.argv[2] == "threads":           # a thread started (in C) since the API was imported
     compose.api._THREADS_AT_IMPORT = 0
 report = compose.api.check(sys.argv[1], draft=True, cache=False)
-print(json.dumps({"report": report.to_json(False), "forked": len(forked),
-                  "modules": sorted(sys.modules)}))
+print(json.dumps({"report": report.to_json(False), "forked": len(forked), "reads": reads}))
 """
 
 
@@ -74,18 +76,48 @@ def test_no_process_is_forked_while_a_thread_started_since_the_api_was_imported_
     assert json.dumps(got["report"]) == json.dumps(here["report"])
 
 
-def test_a_check_whose_marks_are_drawn_ahead_loads_no_vector_module(tmp_path):
-    """Lines drawn in the forked process: the check's own process reads no feature (no shapely,
-    no compose.sources.vector) and draws nothing (no compose.layers.vector, no Agg)."""
+def test_a_check_whose_marks_are_drawn_ahead_reads_no_feature_of_them(tmp_path):
+    """Lines drawn in the forked process: the check's own process reads no feature of them (it
+    draws the first tile from the process's parts in pixel space)."""
     from tests.layers.test_early import _big_style
 
     style = _big_style(tmp_path, n=512)
     ahead, here = _draft(style, "ahead"), _draft(style, "here")
     assert ahead["forked"] == 1
     assert json.dumps(ahead["report"]) == json.dumps(here["report"])
-    heavy = ("shapely", "compose.sources.vector", "compose.layers.vector", "compose.layers.agg")
-    assert [m for m in heavy if m in here["modules"]] == list(heavy)
-    assert [m for m in heavy if m in ahead["modules"]] == []
+    assert here["reads"] and ahead["reads"] == []
+
+
+# the command's way: the style loaded and the marks process forked before the checker's modules
+# are imported (compose.layers.early_marks.start_early), then taken by the check
+_COMMAND = """
+import json, sys
+import compose.layers.early_marks as em
+em.MIN_BYTES = 0
+forked = []
+real = em._Job.__init__
+em._Job.__init__ = lambda self, fn: forked.append(sorted(sys.modules)) or real(self, fn)
+from compose.cli.main import main
+try:
+    main(["check", "--draft", "--json", "--no-cache", sys.argv[1]])
+except SystemExit:
+    pass
+print(json.dumps({"forked": len(forked), "check imported": "compose.check" in forked[0],
+                  "left": len(em._EARLY)}))
+"""
+
+
+def test_the_command_forks_the_marks_process_before_the_checker_loads_with_the_same_report(
+        tmp_path):
+    from tests.layers.test_early import _big_style
+
+    style = _big_style(tmp_path, n=512)         # no [page] (whose modules load the checker)
+    out = subprocess.run([sys.executable, "-c", _COMMAND, str(style)], capture_output=True,
+                         text=True, cwd=ROOT, check=True, timeout=120)
+    *report, last = out.stdout.strip().splitlines()
+    got = json.loads(last)
+    assert got == {"forked": 1, "check imported": False, "left": 0}
+    assert json.loads("\n".join(report)) == _draft(style, "here")["report"]
 
 
 def test_the_tiles_drawn_apart_put_together_are_the_whole_canvas_drawn_at_once():
