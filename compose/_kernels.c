@@ -162,7 +162,7 @@ static inline Py_ssize_t contrast_bin(double y, double y_part, double step, Py_s
 
 PyDoc_STRVAR(overlay_doc,
 "overlay(alpha, beneath, r0, r1, c0, c1, y_part, step, ytab, lbin, ctab, contrast, lightness,\n"
-"        bits, dense, touched, scratch_w, scratch_c) -> (pixels, touched_count)\n\n"
+"        bits, dense, touched, scratch_w, scratch_c) -> (pixels, touched_count, total)\n\n"
 "The beneath histograms of an overlay part over the core rows r0..r1-1, columns c0..c1-1:\n"
 "for every pixel whose alpha (float32 (H, W)) is > 0, with weight float64(alpha), the colour\n"
 "beneath (float32 planes (3, H, W)) as 8-bit codes; its WCAG contrast bin against luminance\n"
@@ -171,7 +171,9 @@ PyDoc_STRVAR(overlay_doc,
 "(101,) or None); its beneath-colour code (bits per channel) to dense (float64 (1 << 3 bits,),\n"
 "zero where not touched yet; or None), each code first touched appended to touched (intp).\n"
 "scratch_w (float32) and scratch_c (uint32), each at least the core's size, hold the pixels\n"
-"drawn between the two passes. Returns the number of pixels and of codes touched.");
+"drawn between the two passes. Returns the number of pixels and of codes touched, and the\n"
+"weights' sum (float64, added pixel by pixel) when every sum of them is exact in any order\n"
+"(compose.measure._sums_exact), else None.");
 
 static PyObject *overlay(PyObject *self, PyObject *args) {
     PyObject *alpha_o, *beneath_o, *ytab_o, *lbin_o, *ctab_o, *contrast_o, *light_o, *dense_o,
@@ -223,6 +225,8 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
     Py_ssize_t *tlist = touched.held ? (Py_ssize_t *)touched.b.buf : NULL;
     Py_ssize_t tcap = touched.held ? touched.b.shape[0] : 0;
     Py_ssize_t pixels = 0, nt = 0;
+    float wmin = INFINITY, wmax = 0.0f;        /* the weights' range, for exactness */
+    double total = 0.0;
     int shift = 8 - bits;
     int overflow = 0;
     float *wbuf = (float *)scratch_w.b.buf;
@@ -248,7 +252,10 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
             uint32_t r = code8(*(const float *)(row0 + j * sb));
             uint32_t g = code8(*(const float *)(row1 + j * sb));
             uint32_t b = code8(*(const float *)(row2 + j * sb));
-            wbuf[pixels + q] = *(const float *)(arow + j * sa);
+            float a = *(const float *)(arow + j * sa);
+            wmin = a < wmin ? a : wmin;
+            wmax = a > wmax ? a : wmax;
+            wbuf[pixels + q] = a;
             cbuf[pixels + q] = (r << 16) | (g << 8) | b;
         }
         pixels += k;
@@ -257,6 +264,7 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
     /* then their weights added to the bins, pixel by pixel */
     for (Py_ssize_t p = 0; p < pixels; p++) {
         double wgt = (double)wbuf[p];
+        total += wgt;
         uint32_t rgb = cbuf[p];
         uint32_t r = rgb >> 16, g = (rgb >> 8) & 255u, b = rgb & 255u;
         float y = luminance(&t, (uint8_t)r, (uint8_t)g, (uint8_t)b);
@@ -284,7 +292,16 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "overlay: touched is too short");
         goto done;
     }
-    result = Py_BuildValue("nn", pixels, nt);
+    /* exact in any order (compose.measure._sums_exact): every weight a whole multiple of the
+       lowest one's float32 spacing u, and pixels x the largest below u x 2**53 */
+    int exact = 0;
+    if (pixels) {
+        int e;
+        frexpf(wmin, &e);
+        exact = (double)pixels * (double)wmax < ldexp(1.0, e - 24) * 9007199254740992.0;
+    }
+    if (exact) result = Py_BuildValue("nnd", pixels, nt, total);
+    else result = Py_BuildValue("nnO", pixels, nt, Py_None);
 done:
     drop(&alpha); drop(&beneath); drop(&ytab); drop(&lbin); drop(&ctab); drop(&con); drop(&light);
     drop(&dense); drop(&touched); drop(&scratch_w); drop(&scratch_c);

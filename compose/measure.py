@@ -341,17 +341,19 @@ def _contrast_of_cells(y_part: float, cells: np.ndarray, y_below: np.ndarray) ->
 
 
 def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray,
-                      ground8: np.ndarray | None, inner) -> bool:
+                      ground8: np.ndarray | None, inner) -> tuple[bool, float | None]:
     """The beneath histograms of an overlay part (contrast, ground contrast, L*, colours) in one
     pass per composite by the compiled kernel (:mod:`compose.kernels`): the numbers of the
     numpy path below, bit for bit (every bin summed pixel by pixel in row-major order, as
-    np.bincount adds; the by-colour path's sums are exact in any order). False when the kernel
-    is missing or the arrays are not float32 (then the numpy path measures)."""
+    np.bincount adds; the by-colour path's sums are exact in any order). (False, None) when the
+    kernel is missing or the arrays are not float32 (then the numpy path measures); else
+    (True, the sum of the core's coverage when every sum of it is exact in any order
+    (:func:`_sums_exact`) and some pixel is drawn, else None)."""
     k = compiled()
     if k is None or alpha.dtype != np.float32 or alpha.ndim != 2 or beneath.dtype != np.float32 \
             or beneath.shape != (3,) + alpha.shape or (ground8 is not None and (
                 ground8.dtype != np.float32 or ground8.shape != beneath.shape)):
-        return False
+        return False, None
     rs, cs = inner
     r0, r1, _ = rs.indices(alpha.shape[0])
     c0, c1, _ = cs.indices(alpha.shape[1])
@@ -366,13 +368,14 @@ def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: n
     ctab = _contrast_table16(y_part)
     size = max(r1 - r0, 0) * max(c1 - c0, 0)
     held = _scratch("held-w", (size,), np.float32), _scratch("held-c", (size,), np.uint32)
-    pixels, n = k.overlay(alpha, beneath, r0, r1, c0, c1, y_part, CONTRAST_STEP, CHANNEL_XYZ[1],
-                          _L_BIN, ctab, contrast, lightness, BENEATH_BITS, dense, touched, *held)
+    pixels, n, total = k.overlay(alpha, beneath, r0, r1, c0, c1, y_part, CONTRAST_STEP,
+                                 CHANNEL_XYZ[1], _L_BIN, ctab, contrast, lightness, BENEATH_BITS,
+                                 dense, touched, *held)
     present = np.sort(touched[:n])
     weights = dense[present]
     dense[present] = 0.0
     if not pixels:
-        return True
+        return True, None
     part.contrast, part.beneath_lightness = contrast, lightness
     part.add_beneath(present, weights)
     if ground8 is None:                 # the layer's first part: beneath is the ground
@@ -381,14 +384,20 @@ def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: n
         part.ground_contrast = np.zeros(N_CONTRAST)
         k.overlay(alpha, ground8, r0, r1, c0, c1, y_part, CONTRAST_STEP, CHANNEL_XYZ[1], _L_BIN,
                   ctab, part.ground_contrast, None, BENEATH_BITS, None, None, *held)
-    return True
+    return True, total
 
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
                   ground8: np.ndarray | None, overlay: bool, inner, padded_opaque: bool = False,
-                  counts: np.ndarray | None = None) -> bool:
-    """Add one paint of one window (core region) to the layer's statistics; True when the paint
-    is a raster's and opaque over the whole core (alpha 1 everywhere).
+                  counts: np.ndarray | None = None) -> tuple[bool, float | None]:
+    """Add one paint of one window (core region) to the layer's statistics. Returns (True when
+    the paint is a raster's and opaque over the whole core (alpha 1 everywhere); the sum of a
+    flat paint's coverage over the core when it was found exact -- every sum of its values
+    exact in any order (:func:`_sums_exact`), as an overlay's is measured -- or None).
+
+    A flat paint's weight is its coverage summed over the core: exactly, in float64, when an
+    overlay's measure finds its sums exact (8-bit coverage always is), else float32 as numpy
+    sums the core.
 
     alpha: the paint's coverage x opacity over the padded window; beneath: the padded composite
     just before this paint; ground8: a copy of the padded composite under the whole layer (None
@@ -415,9 +424,11 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
             stats.nodata_weight += float(w[paint.palette.nodata])
     else:
         rgb8 = np.clip(np.rint(np.asarray(paint.color) * 255), 0, 255).astype(np.uint8)[None, :]
-        part = PartStats(paint.part, rgb8, np.array([float(alpha_core.sum())]))
+        part = PartStats(paint.part, rgb8, np.zeros(1))     # its weight: after the measure
+    total = None
     if overlay and paint.palette is None and beneath is not None:
-        if _overlay_compiled(part, paint, alpha, beneath, ground8, inner):
+        done, total = _overlay_compiled(part, paint, alpha, beneath, ground8, inner)
+        if done:
             pass
         elif (pix := _core_pixels(alpha, inner)).size:
             # what lies beneath, as 8-bit colours; luminance and L* by lookup tables
@@ -429,6 +440,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
             y_part = (_luminance_of(color) if isinstance(color, tuple)
                       else float(relative_luminance(np.asarray(color))))
             if alpha.dtype == np.float32 and _sums_exact(weights):
+                total = float(weights.sum())    # exact: the kernel's sum, in any order
                 _overlay_by_color(part, y_part, below8, weights)
             else:
                 y_below = _luminance8(below8)
@@ -446,11 +458,13 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
             else:                       # the layer's first part: beneath is the ground
                 assert part.contrast is not None
                 part.ground_contrast = part.contrast.copy()
+    if paint.palette is None:
+        part.weights[0] = total if total is not None else float(alpha_core.sum())
     if paint.part in stats.parts:
         stats.parts[paint.part].merge(part)
     else:
         stats.parts[paint.part] = part
-    return opaque
+    return opaque, total
 
 
 def _gray_compiled(k, s: LayerStats, view: np.ndarray, index: np.ndarray,
@@ -509,6 +523,7 @@ class WindowMeasure:
         self._hidden: np.ndarray | None = None   # core: how much overlays cover each pixel
         self._union: np.ndarray | None = None
         self._opaque = False                     # the union is one opaque raster paint
+        self._union_sum: float | None = None     # the union is one paint of this exact sum
         self._ground: np.ndarray | None = None
         # reliefs drawn so far: [layer index, part, palette index (core), alpha (core), what
         # the layers drawn normally over it let through (core; None while nothing has been)]
@@ -535,10 +550,11 @@ class WindowMeasure:
         first = union is None
         # the layer's first paint is its union so far (read only: never written to)
         self._union = a_core if union is None else np.maximum(union, a_core)
-        opaque = _measure_part(self.stats.layers[li], paint, alpha, out if overlay else None,
-                               self._ground if pi else None, overlay, self.inner, opaque,
-                               counts)
+        opaque, total = _measure_part(self.stats.layers[li], paint, alpha,
+                                      out if overlay else None, self._ground if pi else None,
+                                      overlay, self.inner, opaque, counts)
         self._opaque = first and opaque
+        self._union_sum = total if first else None
         if spec.role == "theme" and paint.palette is not None:
             self._themes.append((li, paint.index[self.inner], a_core, opaque, counts))
         if self._reliefs and spec.role != "overlay" and spec.blend == "normal":
@@ -553,6 +569,8 @@ class WindowMeasure:
         if self._union is not None:
             if self._opaque:            # ones only: their float32 sum is their count, exactly
                 self.stats.layers[li].covered += float(self._union.size)
+            elif self._union_sum is not None:   # one paint, summed exactly by its measure
+                self.stats.layers[li].covered += self._union_sum
             else:   # summed as a contiguous array (the sum's rounding depends on the layout)
                 union = _scratch("union", self._union.shape, self._union.dtype)
                 np.copyto(union, self._union)

@@ -126,6 +126,62 @@ def test_overlay_part_equals_the_numpy_path_bit_for_bit(use, coverage, smooth, t
         assert results[0].contrast is not None and results[0].contrast.sum() > 0
 
 
+@pytest.mark.parametrize("coverage", ["8-bit", "faint", "none"])
+@pytest.mark.parametrize("paints", [1, 2])
+def test_overlay_weight_and_cover_are_the_exact_sum_of_8bit_coverage(use, coverage, paints):
+    # A flat overlay paint's weight, and the layer's cover when it has one paint, are its
+    # coverage summed over the core: exactly where every sum of it is exact (8-bit coverage:
+    # math.fsum, the correctly rounded sum of the Python standard library, is the reference),
+    # else numpy's float32 sum of the core as before; a layer of two paints sums their union.
+    import math
+    from types import SimpleNamespace
+
+    from compose.check.stats import Statistics
+
+    rng = np.random.default_rng(17)
+    h, w, pad = 60, 70, 3
+    drawn = rng.random((h, w)) < 0.3
+    if coverage == "8-bit":
+        alphas = [rng.integers(1, 256, (h, w)).astype(np.float32) / np.float32(255)
+                  for _ in range(paints)]
+    else:           # 1e-7 beside 1: sums that round (1e-7's float32 spacing is 2**-47)
+        alphas = [np.where(rng.random((h, w)) < 0.5, np.float32(1e-7), np.float32(1))
+                  .astype(np.float32) for _ in range(paints)]
+        if coverage == "none":
+            drawn[:] = False
+    alphas = [np.where(drawn, a, np.float32(0)).astype(np.float32) for a in alphas]
+    inner = (slice(pad, h - pad), slice(pad, w - pad))
+    layer = SimpleNamespace(spec=SimpleNamespace(name="lines", role="overlay", kind="lines",
+                                                 blend="normal"))
+    template = Statistics(width=w, height=h, background=(1.0, 1.0, 1.0),
+                          layers=[LayerStats(name="lines", role="overlay", kind="lines")])
+    got = []
+    for on in (True, False):
+        use(on)
+        meter = M.WindowMeasure(template, SimpleNamespace(row=0, col=0, inner=inner))
+        out = _composite(np.random.default_rng(2), h, w, False)
+        meter.begin_layer(0, layer, paints, out)
+        for pi, a in enumerate(alphas):
+            paint = Paint(("halo", "stroke")[pi], a, color=(0.2, 0.25, 0.3))
+            meter.paint(0, layer, pi, paint, a, out)
+        meter.end_layer(0, layer)
+        stats = meter.stats.layers[0]
+        got.append((stats.covered, [float(p.weights[0]) for p in stats.parts.values()]))
+    assert got[0] == got[1]                          # compiled and numpy paths alike
+    covered, weights = got[0]
+    cores = [a[inner] for a in alphas]
+    if coverage == "8-bit":
+        assert weights == [math.fsum(c.astype(np.float64).ravel()) for c in cores]
+    else:
+        assert weights == [float(c.sum()) for c in cores]
+    if paints == 1 and coverage == "8-bit":
+        assert covered == weights[0]
+    else:
+        assert covered == float(np.ascontiguousarray(np.maximum.reduce(cores)).sum())
+    if coverage == "faint":                         # float32 sums of these do round
+        assert weights[0] != math.fsum(cores[0].astype(np.float64).ravel())
+
+
 THEMES = '''
 [[layer]]
 name = "field2"
