@@ -140,9 +140,11 @@ class LabelsLayer:
             c0, r0 = to_pixels(np.array([[transform.c, transform.f]]), self.canvas.transform)[0]
             t2, h2 = draw_along(self.along, c0, r0, width, height, self.halo_px)
             if t2 is not None:
-                text_cov = np.maximum(text_cov, t2)
+                # in place: both are this call's own arrays (a fresh 1 MB array per window
+                # and plane was a tenth of the layer's painting, its pages faulted in anew)
+                np.maximum(text_cov, t2, out=text_cov)
                 if halo_cov is not None and h2 is not None:
-                    halo_cov = np.maximum(halo_cov, h2)
+                    np.maximum(halo_cov, h2, out=halo_cov)
         paints = []
         if o.halo is not None and halo_cov is not None and np.any(halo_cov):
             paints.append(Paint("halo", halo_cov, color=o.halo.color))
