@@ -2,7 +2,7 @@
 default outputs, as a fresh process, and the stages of the same render run in this process.
 
     python bench/page.py [STYLE] [--runs N] [--no-command] [--timeline] [--bytecode]
-                         [--against TREE]
+                         [--against TREE] [--check]
 
 Prints the median over N runs of: the command's wall-clock time (a new process each run, as a user
 starts it: interpreter start, imports, the render, every default output); the load average of the
@@ -25,6 +25,10 @@ earlier commit's ``git archive``, bytecode compiled there) run in turns with thi
 each, and the median ratio of the turns: a same-run comparison on a shared machine. With
 ``--timeline``: that package's timeline instead of this one's (its compose.timeline must write
 the CPU column).
+
+``--check``: the command is ``compose check STYLE --no-cache`` instead (cold: every source read,
+every layer drawn; the user's cache folder as it is, e.g. the fonts and CRS strings remembered
+there), with the options above (no stages in this process).
 
 Every command time comes with its CPU seconds: the command's and every process it forked and
 reaped (user + system), less sensitive than wall-clock time to other work on the machine.
@@ -61,18 +65,29 @@ def _command(bytecode: str | None = None, tree: str | None = None) -> tuple[list
     return cmd, env
 
 
+#: The subcommand timed: ``compose render STYLE`` (every default output) or, with ``--check``,
+#: ``compose check STYLE --no-cache``.
+CHECK = False
+
+
+def _args(style: str, tmp: str) -> list[str]:
+    return ["check", style, "--no-cache"] if CHECK else ["render", style, "--out", tmp]
+
+
 def run_command(style: str, cmd: list[str], env: dict) -> tuple[float, float]:
-    """One ``compose render STYLE`` into a temporary folder: (wall-clock seconds, CPU seconds of
-    the command and every process it forked and reaped, user + system)."""
+    """One ``compose render STYLE`` into a temporary folder (``compose check STYLE --no-cache``
+    with :data:`CHECK`): (wall-clock seconds, CPU seconds of the command and every process it
+    forked and reaped, user + system)."""
     with tempfile.TemporaryDirectory() as tmp:
         before = resource.getrusage(resource.RUSAGE_CHILDREN)
         t = time.perf_counter()
-        done = subprocess.run(cmd + ["render", style, "--out", tmp], capture_output=True,
+        done = subprocess.run(cmd + _args(style, tmp), capture_output=True,
                               text=True, env=env)
         wall = time.perf_counter() - t
         after = resource.getrusage(resource.RUSAGE_CHILDREN)
     if done.returncode not in (0, 1):
-        raise SystemExit(f"compose render failed ({done.returncode}): {done.stderr}")
+        raise SystemExit(f"compose {_args(style, '')[0]} failed ({done.returncode}): "
+                         f"{done.stderr}")
     cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     return wall, cpu
 
@@ -114,7 +129,7 @@ def timeline(style: str, runs: int = 1, bytecode: bool = False, tree: str | None
             env_ = dict(env, COMPOSE_TIMELINE=str(log))
             before = resource.getrusage(resource.RUSAGE_CHILDREN)
             t0 = time.time()
-            subprocess.run(cmd + ["render", style, "--out", str(Path(tmp) / "out")],
+            subprocess.run(cmd + _args(style, str(Path(tmp) / "out")),
                            capture_output=True, text=True, env=env_)
             end = time.time() - t0
             after = resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -175,10 +190,14 @@ def main() -> None:
                     help="also time the command with compiled bytecode, as an installed package")
     ap.add_argument("--timeline", action="store_true",
                     help="only command runs recording their stages on one clock")
+    ap.add_argument("--check", action="store_true",
+                    help="time compose check STYLE --no-cache instead of the render")
     ap.add_argument("--against", metavar="TREE",
                     help="a folder holding another compose package (e.g. an earlier commit's, "
                          "from git archive): its command timed in turns with this one's")
     args = ap.parse_args()
+    global CHECK
+    CHECK = args.check
     if args.timeline:
         timeline(args.style, args.runs, args.bytecode, args.against)
         return
@@ -192,14 +211,15 @@ def main() -> None:
     for label, got in (("command", whole), ("with bytecode", compiled)):
         if got is None:
             continue
-        note = ("compose render, fresh process, every default output" if label == "command"
-                else "the same command as an installed package runs it")
+        what = ("compose check --no-cache, fresh process" if CHECK
+                else "compose render, fresh process, every default output")
+        note = what if label == "command" else "the same command as an installed package runs it"
         print(_line(label, got[None], note))
         if args.against:
             print(_line("  against", got[args.against], f"{args.against}, in turns"))
             ratio = statistics.median(a[0] / b[0] for a, b in zip(got[None], got[args.against]))
             print(f"  {'':<16} this / against: {ratio:.3f} (median of the turns' ratios)")
-    if args.against:
+    if args.against or CHECK:
         return
     style = load_style(args.style)
     runs: dict[str, list[float]] = {}
