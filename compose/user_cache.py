@@ -16,7 +16,7 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs"]
+__all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs", "accepted"]
 
 #: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
 CACHE_ENV = "COMPOSE_CACHE"
@@ -68,18 +68,34 @@ def _lists(data: dict) -> dict[str, list[str]]:
             if isinstance(k, str) and isinstance(vs, list)}
 
 
+#: CRS strings pyproj accepted as a canvas CRS in this process (found in ``crs.json`` or
+#: judged here): :func:`accepted` answers from memory, with no cache folder or file read.
+_ACCEPTED: set[str] = set()
+
+
+def accepted(value) -> bool:
+    """Whether ``value`` is a string pyproj accepted as a canvas CRS (geographic or projected,
+    not engineering) in this process: :func:`crs_known` found it or :func:`remember_crs` noted
+    it (a style loaded here named it)."""
+    return isinstance(value, str) and value in _ACCEPTED
+
+
 def crs_known(value: str) -> bool:
     """Whether pyproj (the one installed now) accepted ``value`` as a canvas CRS before."""
     root = cache_dir()
     if root is None:
         return False
     stamp = _pyproj_stamp()
-    return stamp is not None and value in _lists(_read(root)).get(stamp, [])
+    known = stamp is not None and value in _lists(_read(root)).get(stamp, [])
+    if known:
+        _ACCEPTED.add(value)
+    return known
 
 
 def remember_crs(value: str) -> None:
     """Note that pyproj accepted ``value`` (written atomically; a cache that cannot be written
     is skipped)."""
+    _ACCEPTED.add(value)
     root = cache_dir()
     stamp = _pyproj_stamp()
     if root is None or stamp is None:

@@ -49,3 +49,16 @@ def test_a_crs_accepted_once_is_remembered_for_this_pyproj_only(tmp_path, monkey
     assert not user_cache.crs_known("EPSG:32631")
     assert _crs("EPSG:32631", at) == "EPSG:32631"
     assert user_cache.crs_known("EPSG:32631")
+
+
+def test_a_crs_pyproj_accepted_here_is_known_in_memory_with_the_cache_off(monkeypatch):
+    """compose.sources.crs answers such a string without GDAL (a draft's marks process)."""
+    monkeypatch.setenv("COMPOSE_CACHE", "off")
+    at = Scope("", ("map",)).at("crs")
+    monkeypatch.setattr(user_cache, "_ACCEPTED", set())
+    assert not user_cache.accepted("EPSG:32632")
+    assert _crs("EPSG:32632", at) == "EPSG:32632"
+    assert user_cache.accepted("EPSG:32632") and not user_cache.accepted("EPSG:32633")
+    with pytest.raises(StyleError):
+        _crs("EPSG:99999999", at)
+    assert not user_cache.accepted("EPSG:99999999") and not user_cache.accepted(None)

@@ -82,7 +82,7 @@ def read_ahead(spec, draft=None) -> None:
 
 
 def _draw_all(style, canvas, specs, send: Callable[[Any], None],
-              hand_over: Callable[[bytes], Any]) -> list:
+              hand_over: Callable[[bytes], Any], free: bool = False) -> list:
     """In the forked process: each layer of ``specs`` built on the draft ``canvas`` as the check
     builds it. ``send`` hands over their margins (the check prepares and walks its rasters with
     them meanwhile), then copies of them for drawing (:meth:`LinesLayer.for_drawing
@@ -90,7 +90,8 @@ def _draw_all(style, canvas, specs, send: Callable[[Any], None],
     packed, through ``hand_over`` (shared memory: the bytes wait there, however busy the check
     is), so the check's process draws the first tile (:func:`_bands`) while this one draws the
     rest; returns (window, each layer's paints of it) of the rest. Agg holds Python's lock: two
-    processes draw at once, and the check's only waits by then."""
+    processes draw at once, and the check's only waits by then. ``free``: the layers need no
+    GDAL (:func:`_asks_gdal_nothing`), so rasterio is not imported for them."""
     import gc
 
     from compose.layers.base import Context
@@ -99,6 +100,10 @@ def _draw_all(style, canvas, specs, send: Callable[[Any], None],
     from compose.timeline import span
 
     gc.disable()            # a short-lived process: its memory goes when it ends
+    if free:
+        from compose.sources.crs import imports_here_only
+
+        imports_here_only()
     with span("marks ahead imports"):
         for spec in specs:  # imported first: an import beside the reads only takes turns
             layer_class(spec.kind)
@@ -291,6 +296,7 @@ class MarksAhead:
         self.names = {spec.name for spec in specs}
         self._order = [spec.name for spec in specs]
         self._margins: dict[str, int] | None = None
+        self._here: list | None = None          # the first tile, drawn here
         self._got: dict | None = None
         self._done = False
         self._lock = threading.RLock()
@@ -319,15 +325,16 @@ class MarksAhead:
 
     @classmethod
     def _fork(cls, style, canvas, specs) -> MarksAhead:
-        # the check imports rasterio for its rasters anyway: before the fork, not in both
-        # processes (the process's vector sources ask GDAL about their files and CRSs)
-        import rasterio.crs  # noqa: F401
-
+        free = _asks_gdal_nothing(canvas, specs)
+        if not free:
+            # the check imports rasterio for its rasters anyway: before the fork, not in both
+            # processes (the process's vector sources ask GDAL about their files and CRSs)
+            import rasterio.crs  # noqa: F401
         from compose.timeline import note
 
         note("marks ahead forked", time.time())
-        return cls(_Job(functools.partial(_draw_all, style, canvas, specs)), canvas, specs,
-                   style)
+        return cls(_Job(functools.partial(_draw_all, style, canvas, specs, free=free)), canvas,
+                   specs, style)
 
     def margin(self, name: str) -> int | None:
         """Layer ``name``'s margin, waiting for the process to build the layers; None when it
@@ -339,6 +346,9 @@ class MarksAhead:
                     self._fail()
                 else:
                     self._margins = dict(zip(self._order, message[1]))
+                    from compose.layers.early import MEANWHILE
+
+                    MEANWHILE.append(self.meanwhile)
         return None if self._margins is None else self._margins.get(name)
 
     def result(self, name: str) -> tuple[int, list] | None:
@@ -357,34 +367,77 @@ class MarksAhead:
         got = self._got
         return None if got is None else got.get(name)
 
-    def _receive(self, label: str):
+    def _receive(self, label: str, timeout: float = PATIENCE):
         from compose.timeline import span
 
         with span(label):
             try:
-                return self._job.receive(PATIENCE)
+                return self._job.receive(timeout)
             except Exception:
                 return None
 
     def _fail(self) -> None:
+        self._stop_meanwhile()
         self._done = True
         self._margins = None
         self._got = None
         self._job.abort()
 
-    def _take(self) -> dict | None:
-        """The process's layers for drawing: this process draws the first tile with them while
-        the process draws the rest, then the two put together, by layer name."""
+    def _first_tile(self, timeout: float) -> list | None:
+        """This process's part: the process's layers for drawing received (waiting at most
+        ``timeout`` seconds for them) and the first tile drawn with them, once; None when they
+        are not there (yet, or the process failed)."""
         from compose.packing import unpack
         from compose.timeline import span
 
-        message = self._receive("marks ahead: layers received")
-        if message is None or message[0] != "layers":
+        if self._here is None:
+            message = self._receive("marks ahead: layers received", timeout)
+            if message is None or message[0] != "layers":
+                return None
+            layers = unpack(self._job.taken(message[1]))
+            mine, _ = _bands(self.canvas)
+            with span("marks ahead: first tile drawn here"):
+                self._here = _paint(layers, self.canvas, mine)
+        return self._here
+
+    def meanwhile(self, timeout: float) -> bool:
+        """:data:`compose.layers.early.MEANWHILE`'s task: the first tile drawn as soon as the
+        process hands its layers over, while the check waits for its rasters' reads; True when
+        it was drawn now."""
+        if not self._lock.acquire(blocking=False):
+            return False
+        try:
+            if self._done or self._margins is None or self._here is not None:
+                self._stop_meanwhile()
+                return False
+            ready, _, _ = select.select([self._job._inbox], [], [], timeout) \
+                if self._job._inbox is not None else ([], [], [])
+            if not ready:
+                return False
+            if self._first_tile(0.0) is None:
+                self._fail()
+            self._stop_meanwhile()
+            return True
+        except Exception:
+            self._fail()
+            self._stop_meanwhile()
+            return False
+        finally:
+            self._lock.release()
+
+    def _stop_meanwhile(self) -> None:
+        from compose.layers.early import MEANWHILE
+
+        if self.meanwhile in MEANWHILE:
+            MEANWHILE.remove(self.meanwhile)
+
+    def _take(self) -> dict | None:
+        """The process's layers for drawing: this process draws the first tile with them while
+        the process draws the rest (unless it drew it while waiting for its rasters), then the
+        two put together, by layer name."""
+        here = self._first_tile(PATIENCE)
+        if here is None:
             return None
-        layers = unpack(self._job.taken(message[1]))
-        mine, _ = _bands(self.canvas)
-        with span("marks ahead: first tile drawn here"):
-            here = _paint(layers, self.canvas, mine)
         message = self._receive("marks ahead: the rest received")
         if message is None or message[0] != "done":
             return None
@@ -413,12 +466,36 @@ class MarksAhead:
 
     def close(self) -> None:
         """End the process (when it has not ended)."""
+        self._stop_meanwhile()
         self._job.abort()
 
 
 #: A marks process the command forked before the check began (:func:`start_early`), until
 #: :meth:`MarksAhead.start` takes it.
 _EARLY: list[MarksAhead] = []
+
+
+def _asks_gdal_nothing(canvas, specs) -> bool:
+    """Whether the marks process can build ``specs`` without rasterio (its import is about
+    0.03 s, which the process would otherwise wait for or the command before the fork): every
+    source a plain GeoPackage table (read with sqlite3, see :mod:`compose.sources.gpkg`) whose
+    CRS is the canvas's own, a string pyproj accepted for the canvas here
+    (:func:`compose.sources.crs.same_crs` and ``plainly_usable`` answer it without GDAL)."""
+    from pathlib import Path
+
+    from compose.sources.gpkg import only_table, open_table
+    from compose.user_cache import accepted
+
+    if not accepted(canvas.crs):
+        return False
+    for spec in specs:
+        path = Path(spec.source)
+        name = getattr(spec.options, "table", None)
+        name = name if name is not None else only_table(path)
+        table = open_table(path, name) if name is not None else None
+        if table is None or table.crs != canvas.crs:
+            return False
+    return True
 
 
 def _worth_drawing_ahead(specs) -> list:

@@ -10,9 +10,39 @@ from __future__ import annotations
 
 import functools
 import re
+import threading
 from typing import Any
 
-__all__ = ["rio_crs", "plainly_usable", "same_crs", "metre_projected", "never_mercator"]
+__all__ = ["rio_crs", "plainly_usable", "same_crs", "metre_projected", "never_mercator",
+           "before_threads", "imports_here_only"]
+
+#: rasterio's CRS imported by one thread at a time (its modules import each other: a second
+#: thread's import can meet one half initialised and fail)
+_IMPORT = threading.Lock()
+#: Set by :func:`imports_here_only`.
+_HERE_ONLY = [False]
+
+
+def _crs_class():
+    with _IMPORT:
+        from rasterio.crs import CRS
+    return CRS
+
+
+def imports_here_only() -> None:
+    """Promise that this process imports rasterio only through this module from now on (a
+    draft's marks process, :mod:`compose.layers.early_marks`, whose sources are plain
+    GeoPackage tables in the canvas's own CRS): :func:`before_threads` then imports nothing,
+    and a question that needs GDAL after all imports it here, one thread at a time."""
+    _HERE_ONLY[0] = True
+
+
+def before_threads() -> None:
+    """Call before starting a thread that asks questions here: rasterio's CRS imported now, in
+    the calling thread, so that thread and this one (whose layers may import rasterio next)
+    never import it at once -- unless :func:`imports_here_only` was promised."""
+    if not _HERE_ONLY[0]:
+        _crs_class()
 
 
 def _key(value: Any) -> str | None:
@@ -24,8 +54,7 @@ def _key(value: Any) -> str | None:
 
 @functools.lru_cache(maxsize=64)
 def _parsed(key: str):
-    from rasterio.crs import CRS
-
+    CRS = _crs_class()
     try:
         return CRS.from_user_input(key)
     except Exception:           # CRSError and GDAL's own: the caller asks pyproj instead
@@ -41,14 +70,25 @@ def rio_crs(value: Any):
 
 def plainly_usable(value: Any) -> bool:
     """True when GDAL reads ``value`` as a geographic or projected CRS (one data can be
-    reprojected from and to). False means "ask pyproj", not "unusable"."""
+    reprojected from and to), or when it is a string pyproj accepted as such for a canvas in
+    this process (:func:`compose.user_cache.accepted`: answered without GDAL). False means "ask
+    pyproj", not "unusable"."""
+    from compose.user_cache import accepted
+
+    if accepted(value):
+        return True
     crs = rio_crs(value)
     return crs is not None and bool(crs.is_geographic or crs.is_projected)
 
 
 def same_crs(a: Any, b: Any) -> bool:
-    """True when GDAL finds ``a`` and ``b`` the same CRS (``OSRIsSame``); False when they
-    differ or either is unreadable."""
+    """True when GDAL finds ``a`` and ``b`` the same CRS (``OSRIsSame``), or when both are the
+    same string, a CRS pyproj accepted for a canvas in this process (answered without GDAL);
+    False when they differ or either is unreadable."""
+    from compose.user_cache import accepted
+
+    if isinstance(a, str) and a == b and accepted(a):
+        return True
     ca, cb = rio_crs(a), rio_crs(b)
     return ca is not None and cb is not None and bool(ca == cb)
 

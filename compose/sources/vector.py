@@ -194,8 +194,11 @@ def read_early(path, *, layer: str, table: str | None = None,
     # here, in the calling thread, so that thread and this one (whose layers import rasterio
     # next) never import rasterio at once: its modules import each other, and a second thread's
     # import can then meet one half initialised and fail (ImportError "partially initialized
-    # module 'rasterio.env'", about 1 cold check in 10 before this).
-    import rasterio.crs  # noqa: F401
+    # module 'rasterio.env'", about 1 cold check in 10 before this). (Not in a draft's marks
+    # process that asks GDAL nothing: compose.sources.crs.imports_here_only.)
+    from compose.sources.crs import before_threads
+
+    before_threads()
 
     key = _early_key(path, table, where, simplify)
     future: Future = Future()
@@ -275,8 +278,9 @@ class VectorSource:
                     "fields": self._gpkg.fields}
         else:
             self.table, info = self._pyogrio_info(table, here)
-        refuse_driver(_Opened(info.get("driver"), str(self.path)), local_only, "vector", here,
-                      "source")
+        if self._gpkg is None:      # read by sqlite3: no GDAL driver opens the file
+            refuse_driver(_Opened(info.get("driver"), str(self.path)), local_only, "vector",
+                          here, "source")
         text = info.get("crs") or ""
         attributes = [str(f) for f in info.get("fields", [])]
         if not text:

@@ -97,6 +97,14 @@ em.MIN_BYTES = 0
 forked = []
 real = em._Job.__init__
 em._Job.__init__ = lambda self, fn: forked.append(sorted(sys.modules)) or real(self, fn)
+draw = em._draw_all
+
+def drawn(*args, **kw):                 # in the marks process: what it imported
+    out = draw(*args, **kw)
+    with open(sys.argv[2], "w") as f:
+        json.dump(sorted(m for m in sys.modules if m.startswith("rasterio")), f)
+    return out
+em._draw_all = drawn
 from compose.cli.main import main
 try:
     main(["check", "--draft", "--json", "--no-cache", sys.argv[1]])
@@ -112,12 +120,44 @@ def test_the_command_forks_the_marks_process_before_the_checker_loads_with_the_s
     from tests.layers.test_early import _big_style
 
     style = _big_style(tmp_path, n=512)         # no [page] (whose modules load the checker)
-    out = subprocess.run([sys.executable, "-c", _COMMAND, str(style)], capture_output=True,
-                         text=True, cwd=ROOT, check=True, timeout=120)
+    child = tmp_path / "child.json"
+    out = subprocess.run([sys.executable, "-c", _COMMAND, str(style), str(child)],
+                         capture_output=True, text=True, cwd=ROOT, check=True, timeout=120)
     *report, last = out.stdout.strip().splitlines()
     got = json.loads(last)
     assert got == {"forked": 1, "check imported": False, "left": 0}
     assert json.loads("\n".join(report)) == _draft(style, "here")["report"]
+    # its lines are a plain GeoPackage table in the canvas's CRS: the marks process asked GDAL
+    # nothing (compose.sources.crs), so neither it nor the command before the fork loaded
+    # rasterio for it
+    assert json.loads(child.read_text()) == []
+
+
+def test_the_first_tile_is_drawn_while_the_check_waits_for_its_rasters():
+    """compose.layers.early.MEANWHILE: the thread waiting for an early read runs the tasks
+    until the read is done (the marks' first tile), then takes the read's result."""
+    import threading
+    from concurrent.futures import Future
+
+    from compose.layers import early
+
+    future: Future = Future()
+    calls: list[float] = []
+
+    def task(seconds: float) -> bool:
+        calls.append(seconds)
+        if len(calls) == 3:         # the read ends while the tasks run
+            threading.Timer(0.01, future.set_result, (np.zeros((1, 1)),)).start()
+        return False
+
+    early.MEANWHILE.append(task)
+    try:
+        early._meanwhile(future)
+    finally:
+        early.MEANWHILE.remove(task)
+    assert future.done() and len(calls) >= 3 and all(0 < c <= 0.01 for c in calls)
+    early._meanwhile(future)            # done: no task runs
+    assert future.result().shape == (1, 1)
 
 
 def test_the_tiles_drawn_apart_put_together_are_the_whole_canvas_drawn_at_once():
