@@ -100,6 +100,22 @@ static inline __attribute__((always_inline)) uint8_t code8(float v) {
     return (uint8_t)r;
 }
 
+/* code8 of one value without a branch (maxss and minss keep its NaN and clipping: maxss gives
+ * its second operand unless the first is greater, so NaN and -0.0 give +0.0), for loops that
+ * do not vectorise; the same value as code8 */
+#if defined(__SSE__) || defined(__x86_64__)
+#include <xmmintrin.h>
+static inline __attribute__((always_inline)) uint8_t code8_one(float v) {
+    __m128 x = _mm_mul_ss(_mm_set_ss(v), _mm_set_ss(255.0f));
+    x = _mm_max_ss(x, _mm_setzero_ps());
+    x = _mm_min_ss(x, _mm_set_ss(255.0f));
+    float r = (_mm_cvtss_f32(x) + 8388608.0f) - 8388608.0f;
+    return (uint8_t)r;
+}
+#else
+#define code8_one code8
+#endif
+
 /* the tables both kernels look luminance and L* up in */
 typedef struct {
     const float *ytab;          /* (3, 256) float32: each channel's share of luminance Y */
@@ -158,6 +174,85 @@ static inline Py_ssize_t contrast_bin(double y, double y_part, double step, Py_s
     if (!(ratio >= 0)) return 0;
     if (ratio >= (double)(n - 1)) return n - 1;
     return (Py_ssize_t)ratio;
+}
+
+/* overlay's first pass where every row is contiguous (alpha's and each beneath plane's
+ * columns 4 bytes apart), in a function of its own so that its pointers stay in registers: the
+ * pixels drawn (alpha > 0) of rows r0..r1-1, columns c0..c1-1, in row-major order, their weights
+ * to wbuf and 8-bit colours beneath to cbuf; the weights' range to range[0] (least) and
+ * range[1] (largest). Returns their number. The same arithmetic as overlay's general loop. */
+static __attribute__((noinline)) Py_ssize_t overlay_gather(
+        const char *abase, Py_ssize_t arow, const char *pbase0, const char *pbase1,
+        const char *pbase2, Py_ssize_t prow, Py_ssize_t r0, Py_ssize_t r1, Py_ssize_t c0,
+        Py_ssize_t c1, int32_t *restrict cols, float *restrict wbuf, uint32_t *restrict cbuf,
+        float *range) {
+    Py_ssize_t pixels = 0;
+    float wmin = range[0], wmax = range[1];
+    for (Py_ssize_t i = r0; i < r1; i++) {
+        const float *restrict a = (const float *)(abase + i * arow);
+        const float *restrict p0 = (const float *)(pbase0 + i * prow);
+        const float *restrict p1 = (const float *)(pbase1 + i * prow);
+        const float *restrict p2 = (const float *)(pbase2 + i * prow);
+        int32_t k = 0;
+        for (int32_t j = (int32_t)c0; j < (int32_t)c1; j++) {
+            cols[k] = j;
+            k += (a[j] > 0.0f);
+        }
+        float *restrict wo = wbuf + pixels;
+        uint32_t *restrict co = cbuf + pixels;
+        for (int32_t q = 0; q < k; q++) {
+            int32_t j = cols[q];
+            float x = a[j];
+            wmin = x < wmin ? x : wmin;
+            wmax = x > wmax ? x : wmax;
+            wo[q] = x;
+            co[q] = ((uint32_t)code8_one(p0[j]) << 16) | ((uint32_t)code8_one(p1[j]) << 8)
+                    | (uint32_t)code8_one(p2[j]);
+        }
+        pixels += k;
+    }
+    range[0] = wmin;
+    range[1] = wmax;
+    return pixels;
+}
+
+/* overlay's second pass with L* and beneath colours of 6 bits per channel (compose.check.stats
+ * BENEATH_BITS), in a function of its own (pointers in registers, shifts constant): each
+ * pixel's weight added to its contrast bin, its L* and its colour code, pixel by pixel, as
+ * overlay's general loop adds them. Returns -1 when touched is too short, else the codes
+ * touched; the weights' sum (added in the same order) to *total. */
+static __attribute__((noinline)) Py_ssize_t overlay_bins6(
+        const float *restrict wbuf, const uint32_t *restrict cbuf, Py_ssize_t pixels,
+        const Tables *tp, const int16_t *restrict cbin, double y_part, double step,
+        Py_ssize_t ncon, double *restrict contrast, double *restrict lsum,
+        double *restrict dsum, Py_ssize_t *restrict tlist, Py_ssize_t tcap, double *total) {
+    const Tables t = *tp;
+    const float *restrict ytab = t.ytab;
+    const uint8_t *restrict lbin = t.lbin;
+    Py_ssize_t nt = 0;
+    double sum = 0.0;
+    for (Py_ssize_t p = 0; p < pixels; p++) {
+        double wgt = (double)wbuf[p];
+        sum += wgt;
+        uint32_t rgb = cbuf[p];
+        uint32_t r = rgb >> 16, g = (rgb >> 8) & 255u, b = rgb & 255u;
+        float y = ytab[r];
+        y += ytab[256 + g];
+        y += ytab[512 + b];
+        Py_ssize_t cell = y_cell(&t, y);
+        Py_ssize_t bin = cbin[cell];
+        if (bin < 0 || bin >= ncon) bin = contrast_bin((double)y, y_part, step, ncon);
+        contrast[bin] += wgt;
+        lsum[lbin[cell]] += wgt;
+        Py_ssize_t code = (Py_ssize_t)(((r >> 2) << 12) | ((g >> 2) << 6) | (b >> 2));
+        if (dsum[code] == 0.0) {
+            if (nt >= tcap) return -1;
+            tlist[nt++] = code;
+        }
+        dsum[code] += wgt;
+    }
+    *total = sum;
+    return nt;
 }
 
 PyDoc_STRVAR(overlay_doc,
@@ -238,7 +333,18 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
     Py_ssize_t sa = alpha.b.strides[1], sb = beneath.b.strides[2];
     Py_ssize_t *cols = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(c1 - c0 + 1));
     if (!cols) overflow = 2;
-    for (Py_ssize_t i = r0; i < r1 && cols; i++) {
+    /* rows whose columns are contiguous: the specialised loop (the same numbers) */
+    int fast = cols && sa == (Py_ssize_t)sizeof(float) && sb == (Py_ssize_t)sizeof(float)
+               && c1 - c0 < ((Py_ssize_t)1 << 30);
+    if (fast) {
+        float range[2] = {wmin, wmax};
+        pixels = overlay_gather(AT2(alpha, 0, 0), alpha.b.strides[0], AT3(beneath, 0, 0, 0),
+                                AT3(beneath, 1, 0, 0), AT3(beneath, 2, 0, 0), beneath.b.strides[1],
+                                r0, r1, c0, c1, (int32_t *)cols, wbuf, cbuf, range);
+        wmin = range[0];
+        wmax = range[1];
+    }
+    for (Py_ssize_t i = r0; i < r1 && cols && !fast; i++) {
         const char *arow = AT2(alpha, i, 0);
         const char *row0 = AT3(beneath, 0, i, 0), *row1 = AT3(beneath, 1, i, 0),
                    *row2 = AT3(beneath, 2, i, 0);
@@ -262,7 +368,13 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
     }
     PyMem_RawFree(cols);
     /* then their weights added to the bins, pixel by pixel */
-    for (Py_ssize_t p = 0; p < pixels; p++) {
+    int bins6 = bits == 6 && lsum && dsum && !overflow;
+    if (bins6) {
+        nt = overlay_bins6(wbuf, cbuf, pixels, &t, cbin, y_part, step, ncon, contrast, lsum, dsum,
+                           tlist, tcap, &total);
+        if (nt < 0) overflow = 1;
+    }
+    for (Py_ssize_t p = 0; p < pixels && !bins6; p++) {
         double wgt = (double)wbuf[p];
         total += wgt;
         uint32_t rgb = cbuf[p];
