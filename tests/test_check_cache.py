@@ -263,13 +263,15 @@ def test_a_cold_check_reads_each_vector_source_once_early_and_a_warm_one_not_at_
     rest (compose.sources.vector.read_early) and taken by the layers instead of read again (as
     many reads as without them); the layers whose entries the cache holds are not read at all.
     The demo's GeoPackage tables are read through compose.sources.gpkg: counting its bulk reads
-    counts the file reads."""
+    (as features, or as flat lines) counts the file reads."""
     import compose.api
     from compose.sources import gpkg
 
     calls = []
-    real = gpkg.GpkgTable.read
+    real, flat = gpkg.GpkgTable.read, gpkg.GpkgTable.read_lines
     monkeypatch.setattr(gpkg.GpkgTable, "read", lambda self: calls.append(self.table) or real(self))
+    monkeypatch.setattr(gpkg.GpkgTable, "read_lines",
+                        lambda self, *a: calls.append(self.table) or flat(self, *a))
     demo = Path(__file__).resolve().parents[1] / "styles" / "coast.toml"
     cold = check(demo, cache=tmp_path)
     early = sorted(calls)

@@ -11,8 +11,8 @@ from affine import Affine
 
 from compose.layers.base import Context, Paint
 from compose.layers.draw import draw_areas, draw_lines, draw_points, stroke_path
-from compose.layers.paths import PixelParts, _concat, dashed, line_parts
-from compose.sources.vector import DRAFT_TOLERANCE, Features, VectorSource, simplified
+from compose.layers.paths import PixelParts, _concat, dashed, line_parts, to_pixels
+from compose.sources.vector import DRAFT_TOLERANCE, Features, Lines, VectorSource, simplified
 
 __all__ = ["LinesLayer", "AreasLayer", "PointsLayer", "DRAFT_TOLERANCE", "TILE"]
 
@@ -45,7 +45,7 @@ def _simplified(features, tolerance: float):
     return type(features).build(geoms[keep], [p for p, k in zip(features.properties, keep) if k])
 
 
-_RELOAD = threading.Lock()      # a released layer's features read again (rare: see release)
+_RELOAD = threading.RLock()     # a released layer's features read again (rare: see release)
 _PIXELS = threading.Lock()      # a lines layer's parts in pixel space, made once per process
 
 
@@ -74,21 +74,49 @@ class _VectorLayer:
         self.tolerance = self.canvas.pixel * DRAFT_TOLERANCE if self.draft else None
         self.source = VectorSource(spec.source, layer=spec.name, table=o.table, where=o.where,
                                    simplified=self.tolerance)
-        self.source.check_overlap(self.canvas)
+        lines = self._lines_read()
+        if lines is None:
+            self.source.check_overlap(self.canvas)
+        else:
+            self.source.check_lines_overlap(lines, self.canvas)
         self.px = self.canvas.points_to_pixels
         self.margin = int(np.ceil(self._reach_px())) + 2
-        self._held: Features | None = self._cut()
+        #: LinesLayer: its lines cut to the canvas, flat (see _cut_lines), else None
+        self._lines: Lines | None = None if lines is None else self._cut_flat(lines)
+        self._held: Features | None = self._cut() if self._lines is None else None
+        if self._lines is not None:
+            self.source.release()
         self._pixels: tuple | None = None       # LinesLayer: its parts in pixel space
         self._drawing_only = False      # a copy for drawing only (LinesLayer.for_drawing)
+
+    def _lines_read(self) -> Lines | None:
+        """The layer's features as flat lines in the canvas CRS (a draft's simplified), when
+        its source reads them so (:meth:`compose.sources.vector.VectorSource.lines`); None
+        for features (areas and points always)."""
+        return None
+
+    def _cut_flat(self, lines: Lines) -> Lines | None:
+        """:meth:`_cut` for flat ``lines`` (:meth:`_lines_read`): the same parts (None when
+        they are cut with shapely instead, see :meth:`compose.sources.vector.Lines.cut`)."""
+        done = self.source.lines_simplified     # read simplified already (read_early)
+        if self.tolerance is not None and done == self.tolerance:
+            return lines.cut(self._cut_box())
+        cut = lines.cut(self._cut_box())
+        if cut is None or self.tolerance is None:
+            return cut
+        return cut.simplified(self.tolerance)   # as _cut: each part on its own
+
+    def _cut_box(self) -> tuple[float, float, float, float]:
+        """The canvas grown by the margin and 2 pixels (CRS units): where features are cut."""
+        west, south, east, north = self.canvas.bounds
+        pad = (self.margin + 2) * self.canvas.pixel
+        return (west - pad, south - pad, east + pad, north + pad)
 
     def _cut(self) -> Features:
         """The features cut once to the canvas (grown by the margin; a draft's simplified);
         per window only selected, so dashes keep their phase across windows (Agg restarts a dash
         pattern where a clipped line re-enters)."""
-        west, south, east, north = self.canvas.bounds
-        pad = (self.margin + 2) * self.canvas.pixel
-        features = self.source.load(self.canvas.crs).in_box(
-            (west - pad, south - pad, east + pad, north + pad))
+        features = self.source.load(self.canvas.crs).in_box(self._cut_box())
         done = self.source.simplified   # read simplified already (compose.sources.vector.read_early)
         self.source.release()       # the cut is all the windows draw from
         if self.tolerance is not None and done != self.tolerance:
@@ -103,21 +131,41 @@ class _VectorLayer:
         if features is None:
             with _RELOAD:
                 if self._held is None:
-                    self._held = self._cut()
+                    lines = self._cut_lines()
+                    self._held = self._cut() if lines is None else Features.build(
+                        lines.geometries(), [{} for _ in range(len(lines))])
                 features = self._held
         return features
+
+    def _cut_lines(self) -> Lines | None:
+        """A lines layer's lines cut to the canvas (:meth:`_cut_box`), flat, when its source
+        reads them so: each part of a cut line on its own (as drawing splits them); read and
+        cut again after :meth:`release`. None for features."""
+        lines = self._lines
+        if lines is None and not self._drawing_only:
+            with _RELOAD:
+                if self._lines is None:
+                    read = self._lines_read()
+                    if read is not None:
+                        self._lines = self._cut_flat(read)
+                        self.source.release()
+                lines = self._lines
+        return lines
 
     def release(self) -> None:
         """Drop this process's copy of the features while another process draws them
         (:class:`compose.drawer.DrawAhead`); a later use reads them again."""
         self._held = None
         self._pixels = None
+        self._lines = None
 
     def __getstate__(self) -> dict:
         state = dict(self.__dict__)
         if state.get("_drawing_only"):     # see for_drawing
             return state
-        state["_held"] = self.features      # a pickled layer carries its features
+        # a pickled layer carries its features, or its lines cut (features made of them there)
+        state["_lines"] = self._cut_lines()
+        state["_held"] = self.features if state["_lines"] is None else None
         state["_pixels"] = None             # made again where it is drawn
         return state
 
@@ -230,12 +278,21 @@ class LinesLayer(_StrokedLayer):
         other = copy.copy(self)
         other._pixels = parts
         other._held = None
+        other._lines = None
         other._drawing_only = True
         return other
 
+    def _lines_read(self) -> Lines | None:
+        return self.source.lines(self.canvas.crs)
+
     def _make_pixel_parts(self) -> tuple[list[PixelParts], list[PixelParts]]:
-        plain = [p for p in line_parts(self.features.geometries, self.canvas.transform)
-                 if p is not None]
+        lines = self._cut_lines()
+        if lines is not None:       # the parts line_parts makes of the features, flat
+            plain = [PixelParts(to_pixels(lines.xy, self.canvas.transform), lines.starts,
+                                closed=False)] if len(lines) else []
+        else:
+            plain = [p for p in line_parts(self.features.geometries, self.canvas.transform)
+                     if p is not None]
         dash = getattr(self.options, "dash", None)
         if not dash or not plain:
             return plain, plain

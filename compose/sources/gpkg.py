@@ -18,8 +18,11 @@ blob in the extended or an unknown encoding, or any SQLite error.
 """
 from __future__ import annotations
 
+import contextlib
+import gc
 import sqlite3
 import struct
+from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
@@ -64,8 +67,10 @@ class GpkgTable:
     driver = "GPKG"
 
     def __init__(self, path: Path, table: str, crs: str, geometry: str, key: str | None,
-                 fields: list[str], kinds: list[str]):
+                 fields: list[str], kinds: list[str], geometry_type: str = ""):
         self.path = Path(path)
+        #: the geometry type the table declares (``gpkg_geometry_columns``), upper case
+        self.geometry_type = geometry_type
         self.table = table
         self.crs = crs
         self.geometry = geometry
@@ -96,6 +101,98 @@ class GpkgTable:
         except (sqlite3.Error, _NotPlain, struct.error):
             return None
         return wkb, columns
+
+    def read_lines(self, columns: tuple[str, ...] = ()
+                   ) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]] | None:
+        """Every row's geometry as a 2D LineString's coordinates, in bulk: (xy, counts, the
+        ``columns``' values as :meth:`read` gives them) in the table's order; xy: (N, 2)
+        float64, read-only, every row's vertices in turn; counts: (rows,) int64 vertices per
+        row (0: an empty LineString). The blobs' headers are checked as arrays and their
+        coordinates joined into one buffer, parsed by no one (10,000 lines of 100 vertices:
+        about half the time of :meth:`read` and shapely's WKB parse). None (read the table with
+        :meth:`read` instead) unless the table has rows, every geometry is a standard blob
+        (:func:`_header`) and all share their first 8 bytes (flags, srs_id), each holds a
+        little-endian ISO WKB LineString without Z or M of 0 or 2 and more vertices and
+        nothing after them (WKB: OGC 06-103r4, clause 8.2.6); or on any SQLite error. The
+        coordinates may be NaN or infinite."""
+        cols = ", ".join([_quote(self.geometry), *(_quote(c) for c in columns)])
+        order = f" ORDER BY {_quote(self.key)}" if self.key else ""
+        try:
+            con = _connect(self.path)
+            try:
+                first = con.execute(f"SELECT {_quote(self.geometry)} FROM "
+                                    f"{_quote(self.table)}{order} LIMIT 1").fetchone()
+                size = _header(first[0]) if first is not None else None
+                if size is None or first[0][size:size + 5] != b"\x01\x02\x00\x00\x00":
+                    return None                 # no rows, or not LineStrings: no bulk read
+                con.execute(f"PRAGMA mmap_size = {_MMAP_BYTES}")
+                with _no_collection():
+                    rows = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}"
+                                       ).fetchall()
+            finally:
+                con.close()
+            blobs = [row[0] for row in rows]
+            if not blobs or not isinstance(blobs[0], bytes):
+                return None
+            size = _header(blobs[0])
+            if size is None:
+                return None
+            h = size + 9                            # the WKB's byte order, type and count
+            heads = np.frombuffer(b"".join([b[:h] for b in blobs]), np.uint8)
+            if len(heads) != h * len(blobs):        # a blob too short (or not bytes: raised)
+                return None
+            heads = heads.reshape(len(blobs), h)
+            lengths = np.fromiter(map(len, blobs), np.int64, len(blobs))
+            kind = heads[:, size + 1:size + 5].copy().view("<u4").ravel()
+            counts = heads[:, size + 5:h].copy().view("<u4").ravel().astype(np.int64)
+            if ((heads[:, :8] != heads[0, :8]).any() or (heads[:, size] != 1).any()
+                    or (kind != 2).any() or (counts == 1).any()
+                    or (lengths != h + 16 * counts).any()):
+                return None
+            with _no_collection():
+                xy = np.frombuffer(b"".join([b[h:] for b in blobs]), "<f8").reshape(-1, 2)
+            values = [_column([row[j + 1] for row in rows], self._kinds[self.fields.index(c)])
+                      for j, c in enumerate(columns)]
+        except (sqlite3.Error, _NotPlain, TypeError, ValueError):
+            return None
+        return xy, counts, values
+
+    def read_columns(self) -> list[np.ndarray] | None:
+        """The attribute columns as :meth:`read` gives them, without the geometries (None when
+        the table is not plain after all)."""
+        if not self.fields:
+            return []
+        cols = ", ".join(_quote(c) for c in self.fields)
+        order = f" ORDER BY {_quote(self.key)}" if self.key else ""
+        try:
+            con = _connect(self.path)
+            try:
+                rows = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}").fetchall()
+            finally:
+                con.close()
+            return [_column([row[j] for row in rows], kind) for j, kind in enumerate(self._kinds)]
+        except (sqlite3.Error, _NotPlain):
+            return None
+
+
+@contextlib.contextmanager
+def _no_collection() -> Iterator[None]:
+    """Python's cyclic garbage collector paused (when it runs) while a bulk read makes a row
+    tuple and a bytes object per feature, none of them in a cycle: its collections, triggered
+    by the count of new objects, traverse everything the process holds (10,000 rows: 8 ms
+    steady instead of 8-14 ms)."""
+    was = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was:
+            gc.enable()
+
+
+#: Bytes of a GeoPackage that SQLite maps into memory for :meth:`GpkgTable.read_lines`: its
+#: pages read in place instead of copied through its page cache.
+_MMAP_BYTES = 1 << 40
 
 
 def _column(values: list, kind: str) -> np.ndarray:
@@ -200,13 +297,14 @@ def open_table(path: Path, table: str) -> GpkgTable | None:
         con = _connect(path)
         try:
             found = con.execute(
-                "SELECT g.column_name, g.srs_id, s.organization, s.organization_coordsys_id "
+                "SELECT g.column_name, g.srs_id, s.organization, s.organization_coordsys_id, "
+                "g.geometry_type_name "
                 "FROM gpkg_contents c JOIN gpkg_geometry_columns g ON g.table_name = c.table_name "
                 "JOIN gpkg_spatial_ref_sys s ON s.srs_id = g.srs_id "
                 "WHERE c.table_name = ? AND c.data_type = 'features'", (table,)).fetchall()
             if len(found) != 1:
                 return None
-            geometry, _srs, org, code = found[0]
+            geometry, _srs, org, code, declared_type = found[0]
             info = con.execute(f"PRAGMA table_info({_quote(table)})").fetchall()
         finally:
             con.close()
@@ -236,4 +334,5 @@ def open_table(path: Path, table: str) -> GpkgTable | None:
         fields.append(str(name))
     if key is None:
         return None
-    return GpkgTable(path, table, f"EPSG:{code}", str(geometry), key, fields, kinds)
+    return GpkgTable(path, table, f"EPSG:{code}", str(geometry), key, fields, kinds,
+                     str(declared_type or "").upper())

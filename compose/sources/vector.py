@@ -33,7 +33,7 @@ from compose.sources.guard import check_crs, check_source, refuse_driver
 if TYPE_CHECKING:
     import pyproj
 
-__all__ = ["VectorSource", "Features", "read_early", "forget_early"]
+__all__ = ["VectorSource", "Features", "Lines", "read_early", "forget_early"]
 
 _POINT_TYPES = (0, 4)          # shapely type ids of Point and MultiPoint: kept whole, not cut
 
@@ -140,6 +140,162 @@ def _stamp(path: Path) -> tuple[int, ...]:
 
 _UNIQUE = itertools.count()
 
+@dataclass(frozen=True, eq=False)
+class Lines:
+    """Single-part lines in one CRS, flat: what a lines layer draws, without shapely.
+
+    xy: (N, 2) float64 coordinates, every line's vertices in turn; starts: (n + 1,) int64
+    offsets of the lines in ``xy`` (each of 2 vertices or more); rows: (n,) int64 the table
+    row each line is (its attributes), or None for the parts of a cut (:meth:`cut`).
+    Memory: 16 bytes a vertex, 16 a line.
+    """
+
+    xy: np.ndarray
+    starts: np.ndarray
+    rows: np.ndarray | None = None
+
+    @classmethod
+    def of_counts(cls, xy: np.ndarray, counts: np.ndarray,
+                  keep: np.ndarray | None = None) -> Lines:
+        """Lines from every row's vertices (``counts`` per row, 0 for an empty row) keeping the
+        rows ``keep`` (bool, default all) that are not empty."""
+        keep = counts > 0 if keep is None else keep & (counts > 0)
+        if not keep.all():
+            xy = xy[np.repeat(keep, counts)]
+        kept = counts[keep]
+        return cls(xy, np.concatenate([[0], np.cumsum(kept)]).astype(np.int64),
+                   np.flatnonzero(keep))
+
+    @classmethod
+    def of_geometries(cls, geoms: np.ndarray, rows: np.ndarray | None = None) -> Lines:
+        """Lines from single-part shapely LineStrings (none empty)."""
+        xy, index = shapely.get_coordinates(geoms, return_index=True)
+        counts = np.bincount(index, minlength=len(geoms))
+        return cls(xy, np.concatenate([[0], np.cumsum(counts)]).astype(np.int64), rows)
+
+    def __len__(self) -> int:
+        return len(self.starts) - 1
+
+    def geometries(self) -> np.ndarray:
+        """The lines as shapely LineStrings (the same coordinates)."""
+        if len(self) == 0:
+            return np.empty(0, dtype=object)
+        return shapely.from_ragged_array(shapely.GeometryType.LINESTRING, self.xy,
+                                         (self.starts,))
+
+    @functools.cached_property
+    def boxes(self) -> np.ndarray:
+        """(n, 4) float64 (min x, min y, max x, max y) of each line (made once)."""
+        box = np.empty((len(self), 4))
+        if len(self):
+            first = self.starts[:-1]
+            for k, (col, f) in enumerate(((0, np.minimum), (1, np.minimum),
+                                          (0, np.maximum), (1, np.maximum))):
+                box[:, k] = f.reduceat(self.xy[:, col], first)
+        return box
+
+    def simplified(self, tolerance: float) -> Lines:
+        """The lines simplified within ``tolerance`` (CRS units) as :func:`simplified` does
+        (GEOS's Douglas-Peucker, empties dropped), the same coordinates."""
+        if len(self) == 0:
+            return self
+        geoms = shapely.simplify(self.geometries(), tolerance, preserve_topology=False)
+        keep = ~shapely.is_empty(geoms)
+        rows = None if self.rows is None else self.rows[keep]
+        return Lines.of_geometries(geoms[keep], rows)
+
+    def overlaps(self, bounds: tuple[float, float, float, float]) -> bool:
+        """Whether any line intersects the box ``(west, south, east, north)`` (as shapely's
+        ``intersects``: touching counts)."""
+        west, south, east, north = (float(v) for v in bounds)
+        b = self.boxes
+        meet = (b[:, 0] <= east) & (b[:, 2] >= west) & (b[:, 1] <= north) & (b[:, 3] >= south)
+        if not meet.any():
+            return False
+        inside = (b[:, 0] >= west) & (b[:, 2] <= east) & (b[:, 1] >= south) & (b[:, 3] <= north)
+        if inside.any():
+            return True
+        x, y = self.xy[:, 0], self.xy[:, 1]
+        if ((x >= west) & (x <= east) & (y >= south) & (y <= north)).any():
+            return True
+        some = np.flatnonzero(meet)
+        part = Lines._pick(self, some)
+        return bool(shapely.intersects(part.geometries(),
+                                       shapely.box(west, south, east, north)).any())
+
+    def _pick(self, which: np.ndarray) -> Lines:
+        """The lines ``which`` (ascending indices)."""
+        n = self.starts[which + 1] - self.starts[which]
+        idx = np.arange(int(n.sum())) + np.repeat(self.starts[which] - (np.cumsum(n) - n), n)
+        rows = None if self.rows is None else self.rows[which]
+        return Lines(self.xy[idx], np.concatenate([[0], np.cumsum(n)]).astype(np.int64), rows)
+
+    def cut(self, bounds: tuple[float, float, float, float]) -> Lines | None:
+        """The parts of the lines inside the box ``(west, south, east, north)``, in order, as
+        :meth:`Features.in_box` cuts them and a drawing splits them into single parts: a line
+        strictly inside the box whole (its coordinates as they are), one outside it dropped,
+        one crossing its edge cut by :func:`shapely.clip_by_rect` and split into its lines (a
+        point where it only touches the box dropped). None when a cut gives anything else
+        (then cut the features with shapely)."""
+        west, south, east, north = (float(v) for v in bounds)
+        b = self.boxes
+        inside = (b[:, 0] > west) & (b[:, 2] < east) & (b[:, 1] > south) & (b[:, 3] < north)
+        if inside.all():
+            return Lines(self.xy, self.starts)
+        outside = (b[:, 2] < west) | (b[:, 0] > east) | (b[:, 3] < south) | (b[:, 1] > north)
+        edge = np.flatnonzero(~inside & ~outside)
+        parts, owner = np.empty(0, dtype=object), np.empty(0, np.int64)
+        if len(edge):
+            geoms = Lines._pick(self, edge).geometries()
+            hit = shapely.intersects(geoms, shapely.box(west, south, east, north))
+            cut = shapely.clip_by_rect(geoms[hit], west, south, east, north)
+            owner = edge[hit]
+            keep = ~shapely.is_empty(cut)
+            parts, owner = cut[keep], owner[keep]
+            while len(parts) and (shapely.get_type_id(parts) >= 4).any():   # multi-part
+                parts, index = shapely.get_parts(parts, return_index=True)
+                owner = owner[index]
+            kind = shapely.get_type_id(parts) if len(parts) else np.empty(0, np.int64)
+            if not np.isin(kind, (0, 1)).all():
+                return None
+            keep = (kind == 1) & ~shapely.is_empty(parts)
+            parts, owner = parts[keep], owner[keep]
+        whole = np.flatnonzero(inside)
+        cut_lines = Lines.of_geometries(parts)
+        if not len(whole) and not len(cut_lines):
+            return Lines(np.empty((0, 2)), np.zeros(1, np.int64))
+        # every part in line order (a cut line's parts in their own order: a stable sort)
+        line = np.concatenate([whole, owner])
+        order = np.argsort(line, kind="stable")
+        n = np.concatenate([self.starts[whole + 1] - self.starts[whole],
+                            np.diff(cut_lines.starts)])[order]
+        # their vertices: runs of consecutive whole lines one slice each, the cut parts between
+        # them, joined in one copy
+        breaks = np.flatnonzero(np.diff(whole) != 1) + 1
+        run_first = np.concatenate([[0], breaks]).astype(np.int64) if len(whole) else \
+            np.empty(0, np.int64)
+        run_end = np.concatenate([breaks, [len(whole)]]).astype(np.int64) if len(whole) else \
+            np.empty(0, np.int64)
+        items = np.concatenate([whole[run_first], owner])
+        pieces = []
+        for k in np.argsort(items, kind="stable").tolist():
+            if k < len(run_first):
+                a, b = whole[run_first[k]], whole[run_end[k] - 1] + 1
+                pieces.append(self.xy[self.starts[a]:self.starts[b]])
+            else:
+                k -= len(run_first)
+                pieces.append(cut_lines.xy[cut_lines.starts[k]:cut_lines.starts[k + 1]])
+        return Lines(np.concatenate(pieces), np.concatenate([[0], np.cumsum(n)]).astype(np.int64))
+
+    @property
+    def bounds(self) -> tuple[float, float, float, float]:
+        """(west, south, east, north) of all lines; NaNs when there are none."""
+        if len(self.xy) == 0:
+            return (float("nan"),) * 4
+        lo, hi = self.xy.min(axis=0), self.xy.max(axis=0)
+        return (float(lo[0]), float(lo[1]), float(hi[0]), float(hi[1]))
+
+
 #: A draft check's lines and outlines are simplified to this many of its pixels (Douglas-Peucker,
 #: GEOS): a draft pixel spans many of the full canvas's, and thousands of vertices inside one
 #: pixel only make Agg sort crossings (10,000 lines of 100 vertices on the 8192 benchmark's
@@ -168,6 +324,10 @@ def simplified(geoms: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.ndar
         geoms[areas] = shapely.simplify(geoms[areas], tolerance, preserve_topology=True)
     return geoms, ~shapely.is_empty(geoms)
 
+
+#: Geometry types a GeoPackage table declares (``gpkg_geometry_columns``) whose rows are read as
+#: flat lines when they are all LineStrings (:meth:`VectorSource.lines`).
+_LINE_TABLES = ("LINESTRING", "GEOMETRY")
 
 #: Reads started by :func:`read_early`, by (path, file version, table, filter).
 _EARLY: dict[tuple, Future] = {}
@@ -211,9 +371,16 @@ def read_early(path, *, layer: str, table: str | None = None,
         try:
             source = VectorSource(path, layer=layer, table=table, where=where)
             source._early = None    # the early read itself: never wait for its own future
+            same = simplify is not None and crs is not None and same_crs(crs, source._crs_text)
+            lines = source._read_lines()
+            if lines is not None:   # a plain table of lines: flat (VectorSource.lines)
+                if same:
+                    lines = lines.simplified(simplify)
+                future.set_result((lines, simplify if same else None))
+                return
             raw = source._read()
             done = None
-            if simplify is not None and crs is not None and same_crs(crs, source._crs_text):
+            if same:
                 geoms, keep = simplified(raw[0], simplify)
                 if keep is not None:
                     raw = (geoms[keep], [p for p, k in zip(raw[1], keep) if k])
@@ -302,6 +469,9 @@ class VectorSource:
         #: the tolerance the features read were simplified with (see :func:`read_early`)
         self.simplified: float | None = None
         self._cache: dict[str, Features] = {}
+        self._lines: Lines | None = None        # see lines
+        #: the tolerance the lines read were simplified with (see :meth:`lines`)
+        self.lines_simplified: float | None = None
 
     @property
     def crs(self) -> pyproj.CRS:
@@ -354,7 +524,10 @@ class VectorSource:
             with _EARLY_LOCK:
                 early = _EARLY.pop(self._early, None)
             if early is not None and early.exception() is None:
-                self._raw, self.simplified = early.result()
+                got, self.simplified = early.result()
+                if isinstance(got, Lines):      # read flat (see lines): the same features
+                    got = (got.geometries(), self._attribute_rows(got.rows))
+                self._raw = got
                 return self._raw
         if self._raw is None:
             names, wkb, columns = self._bulk()
@@ -373,6 +546,74 @@ class VectorSource:
             rows = zip(*[c[keep].tolist() for c in values]) if names else ([] for _ in range(int(keep.sum())))
             self._raw = (arr[keep], [dict(zip(names, r)) for r in rows])
         return self._raw
+
+    def _read_lines(self) -> Lines | None:
+        """Every kept feature as flat :class:`Lines` (rows: their table rows), read in bulk
+        (:meth:`compose.sources.gpkg.GpkgTable.read_lines`); None unless the source is a
+        plain GeoPackage table of LineStrings only whose kept vertices are finite."""
+        gpkg = self._gpkg
+        if gpkg is None or gpkg.geometry_type not in _LINE_TABLES:
+            return None
+        got = gpkg.read_lines(tuple(self.where))
+        if got is None:
+            return None
+        xy, counts, columns = got
+        keep = counts > 0
+        for allowed, col in zip(self.where.values(), columns):   # as _read filters
+            values = np.asarray(col, dtype=object) if col.dtype.kind == "O" else col
+            keep &= np.array([v in allowed for v in values.tolist()], dtype=bool)
+        lines = Lines.of_counts(xy, counts, keep)
+        # NaN or infinite coordinates (NaN stays NaN through min and max): as features
+        return lines if np.isfinite(lines.boxes).all() else None
+
+    def _attribute_rows(self, rows: np.ndarray | None) -> list[dict]:
+        """The attribute dicts of table rows ``rows`` (as :meth:`_read` makes them)."""
+        got = self._gpkg.read_columns() if self._gpkg is not None else None
+        if got is not None:
+            names, columns = list(self._gpkg.fields), got    # type: ignore[union-attr]
+        else:
+            names, _, columns = self._bulk()
+        values = [np.asarray(c, dtype=object) if c.dtype.kind == "O" else c for c in columns]
+        rows = np.arange(0) if rows is None else rows
+        if not names:
+            return [{} for _ in range(len(rows))]
+        return [dict(zip(names, r)) for r in zip(*[c[rows].tolist() for c in values])]
+
+    def lines(self, crs) -> Lines | None:
+        """Every kept feature as flat :class:`Lines` in ``crs``, the source's own CRS: the
+        features :meth:`load` gives, as coordinates (a lines layer draws them without
+        shapely); simplified already when an early read (:func:`read_early`) did
+        (:attr:`lines_simplified`: its tolerance, as :attr:`simplified` for :meth:`load`).
+        None when the source is not read so (not a plain GeoPackage table of LineStrings
+        only, see :meth:`_read_lines`) or is in another CRS: use :meth:`load`. Kept until
+        :meth:`release`."""
+        text = crs.to_wkt() if hasattr(crs, "to_wkt") else crs
+        if self._gpkg is None or self._gpkg.geometry_type not in _LINE_TABLES \
+                or not same_crs(text, self._crs_text):
+            return None
+        if self._lines is None:
+            with _EARLY_LOCK:
+                early = _EARLY.pop(self._early, None)
+            got = early.result() if early is not None and early.exception() is None else None
+            if got is not None and isinstance(got[0], Lines):
+                self._lines, self.lines_simplified = got
+            elif got is not None:               # read as features: not a table of lines
+                self._raw, self.simplified = got
+                return None
+            else:                               # (an early read's error: reported by load)
+                self._lines, self.lines_simplified = self._read_lines(), None
+        return self._lines
+
+    def check_lines_overlap(self, lines: Lines, canvas: Canvas) -> None:
+        """:meth:`check_overlap` for the source's :meth:`lines`: the same errors."""
+        here = f'layer "{self.layer}"'
+        if len(lines) == 0:
+            filt = "".join(f" where {k} in {list(v)}" for k, v in self.where.items())
+            raise SourceError(f'{here}: no features in table "{self.table}" of {self.path}{filt}')
+        if not lines.overlaps(canvas.bounds):
+            west, south, east, north = (f"{v:.6g}" for v in lines.bounds)
+            raise SourceError(f"{here}: {self.path} does not overlap the map extent "
+                              f"(features span {west}, {south}, {east}, {north} in {canvas.crs})")
 
     def load(self, crs) -> Features:
         """All kept features reprojected to ``crs`` (any CRS pyproj understands), cached per CRS.
@@ -414,6 +655,8 @@ class VectorSource:
         self._raw = None
         self.simplified = None
         self._cache.clear()
+        self._lines = None
+        self.lines_simplified = None
 
     def check_overlap(self, canvas: Canvas) -> None:
         """Raise :class:`SourceError` if no kept feature intersects the canvas."""

@@ -27,6 +27,8 @@ em._Job.__init__ = lambda self, fn: forked.append(1) or real(self, fn)
 reads = []                             # features read by this process (the check's)
 real_read = sv.VectorSource._read
 sv.VectorSource._read = lambda self: reads.append(self.layer) or real_read(self)
+real_lines = sv.VectorSource._read_lines   # (or read as flat lines)
+sv.VectorSource._read_lines = lambda self: reads.append(self.layer) or real_lines(self)
 if sys.argv[2] == "here":
     em.MarksAhead.start = classmethod(lambda cls, *a, **k: None)
 if sys.argv[2] == "fail":              # the process fails: the layers are built here instead

@@ -191,3 +191,64 @@ def test_a_source_reads_the_same_features_either_way(monkeypatch):
     assert slow._gpkg is None
     (g1, p1), (g2, p2) = fast._read(), slow._read()
     assert p1 == p2 and np.array_equal(shapely.to_wkb(g1), shapely.to_wkb(g2))
+
+
+def _walks(n: int, seed: int = 3) -> list[list[tuple[float, float]]]:
+    """Random walks of 2 to 40 vertices around (500 km, 5000 km): invented lines."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for _ in range(n):
+        steps = rng.normal(0, 50.0, (int(rng.integers(2, 40)), 2)).cumsum(axis=0)
+        out.append([(500000.0 + x, 5000000.0 + y) for x, y in steps])
+    return out
+
+
+def test_lines_read_in_bulk_are_the_coordinates_pyogrio_reads(tmp_path):
+    """read_lines: every row's vertices in table order, as GDAL's read of the same file gives
+    them (the reference: pyogrio.raw.read, its WKB's coordinates through shapely), and the asked
+    attribute columns as read() gives them."""
+    walks = _walks(60)
+    path = write_vector(tmp_path / "l.gpkg", [
+        ({"type": "LineString", "coordinates": w}, {"k": i % 3, "name": f"n{i}"})
+        for i, w in enumerate(walks)], crs=UTM, properties={"k": "int", "name": "str"},
+        geometry="LineString")
+    table = gpkg.open_table(path, "features")
+    assert table is not None and table.geometry_type == "LINESTRING"
+    got = table.read_lines(("name",))
+    assert got is not None
+    xy, counts, (names,) = got
+    _, ref_wkb, ref_columns = _by_pyogrio(path, "features")
+    ref_xy, index = shapely.get_coordinates(shapely.from_wkb(ref_wkb), return_index=True)
+    assert np.array_equal(xy, ref_xy)
+    assert counts.tolist() == np.bincount(index).tolist() == [len(w) for w in walks]
+    assert names.tolist() == ref_columns[1].tolist()
+
+
+def test_lines_in_bulk_leave_anything_else_to_read(tmp_path):
+    """Z coordinates, a NULL geometry, a MultiLineString, points: read_lines gives None (the
+    table is read with read(), as before)."""
+    line = {"type": "LineString", "coordinates": [(1.0, 2.0), (3.0, 4.0)]}
+    cases = {
+        "z": [({"type": "LineString", "coordinates": [(1.0, 2.0, 3.0), (3.0, 4.0, 5.0)]}, {"k": 1})],
+        "null": [(line, {"k": 1}), (None, {"k": 2})],
+        "multi": [(line, {"k": 1}), ({"type": "MultiLineString",
+                                      "coordinates": [[(1.0, 2.0), (3.0, 4.0)]]}, {"k": 2})],
+        "points": [({"type": "Point", "coordinates": (1.0, 2.0)}, {"k": 1})],
+    }
+    for name, features in cases.items():
+        path = write_vector(tmp_path / f"{name}.gpkg", features, crs=UTM, properties={"k": "int"})
+        table = gpkg.open_table(path, "features")
+        assert table is not None and table.read_lines() is None, name
+        assert table.read() is not None
+
+
+def test_lines_with_a_nan_coordinate_are_read_as_features(tmp_path):
+    """A NaN coordinate: the flat read leaves the table to shapely's (VectorSource.lines None),
+    which keeps the line as GDAL reads it."""
+    path = write_vector(tmp_path / "nan.gpkg", [
+        ({"type": "LineString", "coordinates": [(1.0, 2.0), (3.0, 4.0)]}, {"k": 1}),
+        ({"type": "LineString", "coordinates": [(1.0, 2.0), (float("nan"), 4.0)]}, {"k": 2}),
+    ], crs=UTM, properties={"k": "int"}, geometry="LineString")
+    source = VectorSource(path, layer="nan")
+    assert source._gpkg.read_lines() is not None and source.lines(UTM) is None
+    assert len(source.load(UTM)) == 2

@@ -193,14 +193,16 @@ def test_an_early_read_without_a_tolerance_is_read_once_and_taken(tmp_path, monk
     import time
 
     from compose.sources import vector
+    from compose.sources.gpkg import GpkgTable
 
     feats = [({"type": "LineString", "coordinates": [(0.0, 0.0), (1.0, float(i))]}, {"n": i})
              for i in range(5)]
     path = write_vector(tmp_path / "e.gpkg", feats, crs=GEO, properties={"n": "int"})
     plain = VectorSource(path, layer="plain")._read()
-    reads = []
-    real = VectorSource._bulk
+    reads = []      # the file's geometries read: in bulk as features, or as flat lines
+    real, flat = VectorSource._bulk, GpkgTable.read_lines
     monkeypatch.setattr(VectorSource, "_bulk", lambda self: reads.append(1) or real(self))
+    monkeypatch.setattr(GpkgTable, "read_lines", lambda self, *a: reads.append(2) or flat(self, *a))
     vector.read_early(path, layer="early")
     time.sleep(0.3)             # the early thread gets there first, as in a check
     geoms, props = VectorSource(path, layer="taken")._read()
@@ -277,3 +279,108 @@ def test_an_early_read_leaves_no_first_import_of_rasterio_to_its_thread(tmp_path
                           timeout=60)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip() == "MainThread"
+
+
+def _random_lines(n: int, seed: int, span: float = 1000.0) -> np.ndarray:
+    """Invented random walks (2 to 30 vertices) over a square of ``span`` metres."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for _ in range(n):
+        start = rng.uniform(0, span, 2)
+        out.append(shapely.LineString(start + rng.normal(0, span / 20, (int(rng.integers(2, 30)), 2))
+                                      .cumsum(axis=0)))
+    return np.array(out, dtype=object)
+
+
+def test_flat_lines_cut_as_shapely_cuts_and_splits_them():
+    """Lines.cut against the reference: shapely's clip_by_rect of each line meeting the box
+    (GEOS), split into single lines in order (points where a line only touches dropped) --
+    the same coordinates, bit for bit; overlaps as shapely's intersects."""
+    from compose.sources.vector import Lines
+
+    geoms = _random_lines(400, seed=11)
+    lines = Lines.of_geometries(geoms)
+    for box in ((200.0, 250.0, 700.0, 800.0), (-1e6, -1e6, 1e6, 1e6), (5e3, 5e3, 6e3, 6e3)):
+        cut = lines.cut(box)
+        hits = shapely.intersects(geoms, shapely.box(*box))
+        ref = shapely.clip_by_rect(geoms[hits], *box)
+        ref = ref[~shapely.is_empty(ref)]
+        while len(ref) and (shapely.get_type_id(ref) >= 4).any():
+            ref = shapely.get_parts(ref)
+        ref = ref[shapely.get_type_id(ref) == 1] if len(ref) else ref
+        assert cut is not None and len(cut) == len(ref)
+        ref_xy, index = shapely.get_coordinates(ref, return_index=True)
+        assert np.array_equal(cut.xy, ref_xy)
+        assert np.diff(cut.starts).tolist() == np.bincount(index, minlength=len(ref)).tolist()
+        assert lines.overlaps(box) == bool(hits.any())
+
+
+def test_flat_lines_simplified_as_shapely_simplifies_them():
+    """Lines.simplified: GEOS's Douglas-Peucker (shapely.simplify, the reference) per line."""
+    from compose.sources.vector import Lines
+
+    geoms = _random_lines(200, seed=5)
+    got = Lines.of_geometries(geoms).simplified(40.0)
+    ref = shapely.simplify(geoms, 40.0, preserve_topology=False)
+    assert np.array_equal(got.xy, shapely.get_coordinates(ref))
+    assert len(got) == len(ref)
+
+
+def test_a_lines_layer_reads_flat_or_as_features_to_the_same_parts(tmp_path):
+    """A lines layer of a plain GeoPackage table of LineStrings reads them flat (no shapely
+    features): the same parts in pixel space as through its features (the reference: shapely's
+    cut), on the full canvas and on a draft (simplified by an early read, or after the cut),
+    with a ``where`` filter; a source in another CRS than the canvas reads features."""
+    from compose.check.draft import draft_canvas
+    from compose.layers.base import Context
+    from compose.layers.vector import LinesLayer, _VectorLayer
+    from compose.sources.vector import DRAFT_TOLERANCE, read_early
+    from compose.style import load_style
+
+    walks = _random_lines(300, 7, 3000.0)
+    write_vector(tmp_path / "w.gpkg", [
+        ({"type": "LineString", "coordinates": shapely.get_coordinates(g).tolist()}, {"k": i % 3})
+        for i, g in enumerate(walks)], crs="EPSG:32630", properties={"k": "int"},
+        geometry="LineString")
+    (tmp_path / "s.toml").write_text("""
+[map]
+name = "w"
+crs = "EPSG:32630"
+extent = [500, 500, 2500, 2500]
+pixel = 2
+dpi = 150
+
+[[layer]]
+name = "w"
+role = "overlay"
+kind = "lines"
+source = "w.gpkg"
+where = { k = [0, 2] }
+stroke = "#000000"
+width = 0.5
+""")
+    style = load_style(tmp_path / "s.toml")
+    spec = style.layers[0]
+
+    def parts(draft: bool, flat: bool, early: bool):
+        c = draft_canvas(style.canvas()) if draft else style.canvas()
+        if early:
+            read_early(spec.source, layer="w", table=None, where=spec.options.where,
+                       simplify=c.pixel * DRAFT_TOLERANCE if draft else None, crs=c.crs)
+        keep = LinesLayer._lines_read
+        if not flat:
+            LinesLayer._lines_read = _VectorLayer._lines_read
+        try:
+            layer = LinesLayer(spec, Context(canvas=c, ramps={}, style=style, draft=draft))
+            assert (layer._lines is not None) == flat
+            (got,), _ = layer._pixel_parts()
+        finally:
+            LinesLayer._lines_read = keep
+        return got.xy, got.starts
+
+    for draft in (False, True):
+        for early in (False, True):
+            a, b = parts(draft, True, early), parts(draft, False, early)
+            assert len(a[1]) > 100 and np.array_equal(a[0], b[0]) and np.array_equal(a[1], b[1])
+    other = VectorSource(spec.source, layer="w")
+    assert other.lines("EPSG:32631") is None and other.lines("EPSG:32630") is not None
