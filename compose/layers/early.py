@@ -333,17 +333,21 @@ class BlockSample:
             idx, bid = idx[order], bid[order]
             starts = np.flatnonzero(np.r_[True, bid[1:] != bid[:-1]])
             ends = np.r_[starts[1:], bid.size]
-            # element (i, a, j, b) of ``out``: i 9w + a 3w + j 3 + b
-            spots = (step[:, None] + 1) * 3 * w + (step[None, :] + 1)       # (3, 3)
+            # element (i, a, j, b) of ``out``: i 9w + a 3w + j 3 + b; the centre (i, j) of flat
+            # index k = i w + j at 9 w i + 3 j = 3 k + 6 w i, its stencil at (a, b) 3 w a + b
+            # further; a block's cells gathered with one flat take (the same values)
+            spots = ((step[:, None] + 1) * 3 * w + (step[None, :] + 1)).ravel()    # (9,)
+            fr_all, fc_all = fr.ravel()[idx], fc.ravel()[idx]
+            dest = 3 * idx + 6 * w * (idx // w)
             for s0, s1 in zip(starts, ends):
-                part = idx[s0:s1]
-                r, c = fr.ravel()[part], fc.ravel()[part]
+                r, c = fr_all[s0:s1], fc_all[s0:s1]
                 br, bc = int(r[0]) // bh * bh, int(c[0]) // bw * bw
-                block = self.source.block_cells(br, bc, min(bh, fh - br), min(bw, fw - bc))
-                i, j = np.divmod(part, w)
-                flat[(i * 9 * w + j * 3)[:, None, None] + spots] = \
-                    block[(r - br)[:, None, None] + step[:, None],
-                          (c - bc)[:, None, None] + step[None, :]]
+                nh, nw = min(bh, fh - br), min(bw, fw - bc)
+                block = np.ascontiguousarray(self.source.block_cells(br, bc, nh, nw))
+                near = (step[:, None] * nw + step[None, :]).ravel()          # (9,)
+                at = (r - br) * nw + (c - bc)
+                flat[(dest[s0:s1, None] + spots).ravel()] = \
+                    block.ravel().take((at[:, None] + near).ravel())
         slow = np.flatnonzero(~fast & (rows >= 0) & (cols >= 0))
         if slow.size:
             r3 = rows.ravel()[slow][:, None, None] + step[:, None]
