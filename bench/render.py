@@ -14,7 +14,8 @@ For every size it prints, from the same run:
     with the automatic workers (what ``compose render`` does without ``--workers``), 1 and 2
     workers against the summed floors, compute alone with and without the
     statistics against the compute floor (medians of at least 5 alternating pairs; the
-    statistics' share from the median of the pairs' differences in wall and in CPU time), and the share of the
+    statistics' share from the median of the pairs' differences in wall and in CPU time, and
+    the statistics' own calls timed inside 3 more walks), and the share of the
     encoders' own work that ran beside the compute (the render's own timers); the layer
     previews' sums (an output of the HTML page, summed in the same walk) on a line of their own,
     not counted as statistics;
@@ -264,6 +265,28 @@ elif extra.pop("auto", False):            # what compose render does with no --w
 elif workers:                            # what --workers does: threads sharing the render
     from compose.parallel import ThreadMapper
     mapper = ThreadMapper(workers) if workers > 1 else None
+inside = {}
+if extra.pop("inside", False):
+    # the statistics' own calls timed inside the walk (this thread's CPU time): the window
+    # measure's methods, the merge of windows, and of them the two compiled kernels
+    import compose.measure as measure_mod
+    from compose.check.stats import Statistics
+
+    def timed_call(owner, name, key):
+        fn = getattr(owner, name)
+
+        def wrapper(*args, **kw):
+            t = time.thread_time()
+            try:
+                return fn(*args, **kw)
+            finally:
+                inside[key] = inside.get(key, 0.0) + time.thread_time() - t
+        setattr(owner, name, wrapper)
+    for name in ("__init__", "begin_layer", "paint", "end_layer", "finish"):
+        timed_call(measure_mod.WindowMeasure, name, "measure")
+    timed_call(Statistics, "merge", "measure")
+    timed_call(measure_mod, "_overlay_compiled", "overlay")
+    timed_call(measure_mod, "_gray_compiled", "gray")
 t0 = time.perf_counter()
 if mode == "bare":
     from compose.render import render_style
@@ -285,6 +308,8 @@ else:                                   # compute only: every window, no outputs
             **extra)
         result["compute"] = time.perf_counter() - t1
         result["compute_cpu"] = time.process_time() - c1   # every thread of this process
+        if inside:
+            result["inside"] = inside
     finally:
         r.close()
 result["wall"] = time.perf_counter() - t0
@@ -398,6 +423,11 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     stats_cost = statistics.median(m - p for p, m in pairs)
     stats_cpu = statistics.median(m - p for p, m in cpu_pairs)
     with_previews, _ = median_task(runs, comp, "previews", styles["aligned"], out)
+    # the statistics' own calls timed inside the walk: steadier than the pairs' differences on a
+    # shared machine (no second walk to drift against), without what they cost elsewhere (the
+    # palette's entry counts inside the composite kernel, caches)
+    insides = [task("measure", styles["aligned"], out, inside=True)["inside"] for _ in range(3)]
+    inside = {k: statistics.median(i.get(k, 0.0) for i in insides) for k in ("measure", "overlay", "gray")}
     floors_sum = compute_floor + encode_floor
     own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
     print("floors on the rendered pixels")
@@ -432,6 +462,10 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  statistics share, CPU time                      {100 * stats_cpu / total:6.1f} % "
           f"of the 1-worker render's wall (median of the same pairs' CPU differences, "
           f"{stats_cpu:.2f} CPU-s; pairs: " + ", ".join(f"{m - p:+.2f}" for p, m in cpu_pairs) + ")")
+    print(f"  statistics inside the walk                      {100 * inside['measure'] / total:6.1f} % "
+          f"of the 1-worker render ({inside['measure']:.2f} CPU-s of the window measure's own calls "
+          f"and the merge, median of 3 walks; of it the overlay kernel {inside['overlay']:.2f} s, "
+          f"the grey order {inside['gray']:.2f} s; the palette's entry counts are not in it)")
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "
           f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
