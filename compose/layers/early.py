@@ -54,7 +54,6 @@ class EarlyRead:
         R0, C0, H, W = self.window.padded
         if r0 < R0 or c0 < C0 or r0 + h > R0 + H or c0 + w > C0 + W:
             return None
-        _meanwhile(self.future)
         return np.array(self.future.result()[..., r0 - R0:r0 - R0 + h, c0 - C0:c0 - C0 + w])
 
     def wait(self) -> None:
@@ -63,22 +62,6 @@ class EarlyRead:
             self.future.exception()
         except BaseException:               # pragma: no cover - cancelled
             pass
-
-
-#: Work the thread waiting for an early read does meanwhile: each ``task(seconds)`` waits at
-#: most that long for its input and returns True when it did something, False when it had
-#: nothing to do then; a task with nothing left to do removes itself. (A draft's first tile of
-#: lines is drawn here while the rasters are still decoded: :mod:`compose.layers.early_marks`.)
-MEANWHILE: list[Callable[[float], bool]] = []
-
-
-def _meanwhile(future: Future, poll: float = 0.002) -> None:
-    """Run :data:`MEANWHILE`'s tasks until ``future`` is done or none is left."""
-    while MEANWHILE and not future.done():
-        for task in list(MEANWHILE):
-            if future.done():
-                return
-            task(poll)
 
 
 #: Early reads waiting for the reading thread, and whether that thread is running.

@@ -11,7 +11,8 @@ else by the check itself (:meth:`MarksAhead.start`), before the rasters' early r
 early read, :func:`read_ahead`, the same class and draft context) and sends back, in turn: the
 layers' margins (the check prepares its walk with them), copies of the layers for drawing (a
 lines layer's parts in pixel space, through a memory file both processes share) and its paints
-of all but the first tile, which the check's process draws meanwhile (:func:`_bands`). The
+of all but the first tile (:func:`_bands`), which the check's process draws meanwhile when it
+gets to it first -- when it is still busy with its rasters the process draws it too. The
 check's layer for it (:meth:`MarksAhead.make_layer`) hands the tiles put together out for the
 window that is the whole canvas: the same coverage, byte for byte, because a vector layer draws
 a window made of whole tiles tile by tile whatever its margin, with nothing in the margin
@@ -82,7 +83,8 @@ def read_ahead(spec, draft=None) -> None:
 
 
 def _draw_all(style, canvas, specs, send: Callable[[Any], None],
-              hand_over: Callable[[bytes], Any], free: bool = False) -> list:
+              hand_over: Callable[[bytes], Any], claim: Callable[[], bool],
+              free: bool = False) -> list:
     """In the forked process: each layer of ``specs`` built on the draft ``canvas`` as the check
     builds it. ``send`` hands over their margins (the check prepares and walks its rasters with
     them meanwhile), then copies of them for drawing (:meth:`LinesLayer.for_drawing
@@ -90,7 +92,9 @@ def _draw_all(style, canvas, specs, send: Callable[[Any], None],
     packed, through ``hand_over`` (shared memory: the bytes wait there, however busy the check
     is), so the check's process draws the first tile (:func:`_bands`) while this one draws the
     rest; returns (window, each layer's paints of it) of the rest. Agg holds Python's lock: two
-    processes draw at once, and the check's only waits by then. ``free``: the layers need no
+    processes draw at once. The first tile goes to whichever process is free for it first
+    (``claim``): when the check's process is still busy with its rasters, this one draws it too
+    and returns it first. ``free``: the layers need no
     GDAL (:func:`_asks_gdal_nothing`), so rasterio is not imported for them."""
     import gc
 
@@ -121,6 +125,10 @@ def _draw_all(style, canvas, specs, send: Callable[[Any], None],
             send(("layers", hand_over(pack([layer.for_drawing() for layer in layers]))))
         with span("marks ahead paint"):
             pieces = _paint(layers, canvas, rest)
+        if claim():             # the check's process had not begun the first tile: drawn here
+            mine, _ = _bands(canvas)
+            with span("marks ahead paint first tile"):
+                pieces = _paint(layers, canvas, mine) + pieces
     finally:
         for layer in layers:
             layer.close()
@@ -182,6 +190,10 @@ def _write(fd: int, message) -> None:
         view = view[os.write(fd, view):]
 
 
+#: Where the bytes handed over start in the memory file (its first byte: :meth:`_Job.claim`).
+_DATA = 4096
+
+
 class _Job:
     """``fn(send, hand_over)`` run in a process forked from this one (which has no other thread
     running: :func:`compose.forking.can_fork`), dying with it. ``send(message)`` hands a small
@@ -209,10 +221,11 @@ class _Job:
                         view = memoryview(data)
                         done = 0
                         while done < len(view):
-                            done += os.pwrite(self._memory, view[done:], done)  # type: ignore
+                            done += os.pwrite(self._memory, view[done:],  # type: ignore
+                                              _DATA + done)
                         return len(view)
                     try:
-                        send(("done", fn(send, hand_over)))
+                        send(("done", fn(send, hand_over, self.claim)))
                     except BaseException as exc:        # noqa: BLE001 - handed over
                         status = 1
                         try:
@@ -255,11 +268,29 @@ class _Job:
             got += len(chunk)
         return b"".join(chunks)
 
+    def claim(self) -> bool:
+        """True for the first of the two processes to ask, in either (the first tile is its to
+        draw), False for the other: a byte of the memory file both share, read and set under a
+        POSIX record lock (one process at a time)."""
+        import fcntl
+
+        fd = self._memory
+        if fd is None:
+            return False
+        fcntl.lockf(fd, fcntl.LOCK_EX, 1, 0)
+        try:
+            if os.pread(fd, 1, 0) not in (b"", b"\0"):
+                return False
+            os.pwrite(fd, b"\1", 0)
+            return True
+        finally:
+            fcntl.lockf(fd, fcntl.LOCK_UN, 1, 0)
+
     def taken(self, size: int) -> bytes:
         """The ``size`` bytes the process handed over (``hand_over`` returned ``size``)."""
         chunks, got = [], 0
         while got < size:
-            chunk = os.pread(self._memory, size - got, got)    # type: ignore[arg-type]
+            chunk = os.pread(self._memory, size - got, _DATA + got)    # type: ignore[arg-type]
             if not chunk:
                 raise EOFError
             chunks.append(chunk)
@@ -346,9 +377,6 @@ class MarksAhead:
                     self._fail()
                 else:
                     self._margins = dict(zip(self._order, message[1]))
-                    from compose.layers.early import MEANWHILE
-
-                    MEANWHILE.append(self.meanwhile)
         return None if self._margins is None else self._margins.get(name)
 
     def result(self, name: str) -> tuple[int, list] | None:
@@ -377,7 +405,6 @@ class MarksAhead:
                 return None
 
     def _fail(self) -> None:
-        self._stop_meanwhile()
         self._done = True
         self._margins = None
         self._got = None
@@ -385,8 +412,9 @@ class MarksAhead:
 
     def _first_tile(self, timeout: float) -> list | None:
         """This process's part: the process's layers for drawing received (waiting at most
-        ``timeout`` seconds for them) and the first tile drawn with them, once; None when they
-        are not there (yet, or the process failed)."""
+        ``timeout`` seconds for them) and the first tile drawn with them, once, unless the
+        process claimed it first (then nothing: it sends it with the rest); None when they are
+        not there (yet, or the process failed)."""
         from compose.packing import unpack
         from compose.timeline import span
 
@@ -394,47 +422,19 @@ class MarksAhead:
             message = self._receive("marks ahead: layers received", timeout)
             if message is None or message[0] != "layers":
                 return None
+            if not self._job.claim():           # the process draws it
+                self._here = []
+                return self._here
             layers = unpack(self._job.taken(message[1]))
             mine, _ = _bands(self.canvas)
             with span("marks ahead: first tile drawn here"):
                 self._here = _paint(layers, self.canvas, mine)
         return self._here
 
-    def meanwhile(self, timeout: float) -> bool:
-        """:data:`compose.layers.early.MEANWHILE`'s task: the first tile drawn as soon as the
-        process hands its layers over, while the check waits for its rasters' reads; True when
-        it was drawn now."""
-        if not self._lock.acquire(blocking=False):
-            return False
-        try:
-            if self._done or self._margins is None or self._here is not None:
-                self._stop_meanwhile()
-                return False
-            ready, _, _ = select.select([self._job._inbox], [], [], timeout) \
-                if self._job._inbox is not None else ([], [], [])
-            if not ready:
-                return False
-            if self._first_tile(0.0) is None:
-                self._fail()
-            self._stop_meanwhile()
-            return True
-        except Exception:
-            self._fail()
-            self._stop_meanwhile()
-            return False
-        finally:
-            self._lock.release()
-
-    def _stop_meanwhile(self) -> None:
-        from compose.layers.early import MEANWHILE
-
-        if self.meanwhile in MEANWHILE:
-            MEANWHILE.remove(self.meanwhile)
-
     def _take(self) -> dict | None:
         """The process's layers for drawing: this process draws the first tile with them while
-        the process draws the rest (unless it drew it while waiting for its rasters), then the
-        two put together, by layer name."""
+        the process draws the rest (unless the process, done with the rest while this one was
+        still busy with its rasters, claimed it), then the two put together, by layer name."""
         here = self._first_tile(PATIENCE)
         if here is None:
             return None
@@ -466,7 +466,6 @@ class MarksAhead:
 
     def close(self) -> None:
         """End the process (when it has not ended)."""
-        self._stop_meanwhile()
         self._job.abort()
 
 

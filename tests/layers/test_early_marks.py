@@ -135,31 +135,28 @@ def test_the_command_forks_the_marks_process_before_the_checker_loads_with_the_s
     assert json.loads(child.read_text()) == []
 
 
-def test_the_first_tile_is_drawn_while_the_check_waits_for_its_rasters():
-    """compose.layers.early.MEANWHILE: the thread waiting for an early read runs the tasks
-    until the read is done (the marks' first tile), then takes the read's result."""
-    import threading
-    from concurrent.futures import Future
+_CLAIM = """
+import json
+from compose.layers import early_marks as em
+got = []
+for _ in range(5):
+    job = em._Job(lambda send, hand_over, claim: claim())
+    mine = job.claim()
+    message = job.receive(60.0)
+    job.abort()
+    got.append([mine, message[1] if message and message[0] == "done" else None])
+print(json.dumps(got))
+"""
 
-    from compose.layers import early
 
-    future: Future = Future()
-    calls: list[float] = []
-
-    def task(seconds: float) -> bool:
-        calls.append(seconds)
-        if len(calls) == 3:         # the read ends while the tasks run
-            threading.Timer(0.01, future.set_result, (np.zeros((1, 1)),)).start()
-        return False
-
-    early.MEANWHILE.append(task)
-    try:
-        early._meanwhile(future)
-    finally:
-        early.MEANWHILE.remove(task)
-    assert future.done() and len(calls) >= 3 and all(0 < c <= 0.01 for c in calls)
-    early._meanwhile(future)            # done: no task runs
-    assert future.result().shape == (1, 1)
+def test_the_first_tile_goes_to_one_process_only():
+    """_Job.claim: the check's process and the marks process both ask for the first tile;
+    exactly one of them gets it (a byte of their shared memory file, set under a POSIX record
+    lock). In a fresh interpreter: a process with other threads running does not fork."""
+    out = subprocess.run([sys.executable, "-c", _CLAIM], capture_output=True, text=True,
+                         cwd=ROOT, check=True, timeout=120)
+    got = json.loads(out.stdout.strip().splitlines()[-1])
+    assert len(got) == 5 and all(sorted(pair) == [False, True] for pair in got)
 
 
 def test_the_tiles_drawn_apart_put_together_are_the_whole_canvas_drawn_at_once():
