@@ -990,19 +990,41 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     const Py_ssize_t bj = back.b.strides[2], ij = index.b.strides[1];
     const Py_ssize_t aj = bcast ? 0 : alpha.b.strides[1];
     const int isize = (int)index.b.itemsize, isigned = index.kind == K_INT;
+    const int u16 = isize == 2 && !isigned && ij == 2;
     for (Py_ssize_t i = 0; i < h; i++) {
         const char *irow = AT2(index, i, 0);
-        for (Py_ssize_t j = 0; j < w; j++) {
-            const char *q = irow + j * ij;
-            int64_t v = isize == 2 && !isigned ? (int64_t)*(const uint16_t *)q : read_int(q, &index);
-            if (v < 0 || v >= n) {          /* np.take's "wrap" */
-                v %= n;
-                if (v < 0) v += n;
+        if (u16) {          /* contiguous uint16 entries: converted and counted in one pass */
+            const uint16_t *ir = (const uint16_t *)irow;
+            const int counted = cnt && i >= r0 && i < r1;
+            const Py_ssize_t a0 = counted ? c0 : w, a1 = counted ? c1 : w;
+            for (Py_ssize_t j = 0; j < a0; j++) {
+                Py_ssize_t v = ir[j];
+                idx[j] = v < n ? v : v % n;         /* np.take's "wrap" */
             }
-            idx[j] = (Py_ssize_t)v;
+            for (Py_ssize_t j = a0; j < a1; j++) {
+                Py_ssize_t v = ir[j];
+                v = v < n ? v : v % n;
+                idx[j] = v;
+                cnt[v]++;
+            }
+            for (Py_ssize_t j = a1; j < w; j++) {
+                Py_ssize_t v = ir[j];
+                idx[j] = v < n ? v : v % n;
+            }
+        } else {
+            for (Py_ssize_t j = 0; j < w; j++) {
+                const char *q = irow + j * ij;
+                int64_t v = isize == 2 && !isigned ? (int64_t)*(const uint16_t *)q
+                                                   : read_int(q, &index);
+                if (v < 0 || v >= n) {          /* np.take's "wrap" */
+                    v %= n;
+                    if (v < 0) v += n;
+                }
+                idx[j] = (Py_ssize_t)v;
+            }
+            if (cnt && i >= r0 && i < r1)
+                for (Py_ssize_t j = c0; j < c1; j++) cnt[idx[j]]++;
         }
-        if (cnt && i >= r0 && i < r1)
-            for (Py_ssize_t j = c0; j < c1; j++) cnt[idx[j]]++;
         const char *arow = bcast ? (const char *)alpha.b.buf : AT2(alpha, i, 0);
         for (int c = 0; c < 3; c++) {
             const float *tc = tab + c * n;
