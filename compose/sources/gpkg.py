@@ -22,7 +22,7 @@ import contextlib
 import gc
 import sqlite3
 import struct
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import numpy as np
@@ -102,7 +102,7 @@ class GpkgTable:
             return None
         return wkb, columns
 
-    def read_lines(self, columns: tuple[str, ...] = ()
+    def read_lines(self, columns: tuple[str, ...] = (), thin: Callable | None = None
                    ) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]] | None:
         """Every row's geometry as a 2D LineString's coordinates, in bulk: (xy, counts, the
         ``columns``' values as :meth:`read` gives them) in the table's order; xy: (N, 2)
@@ -115,7 +115,9 @@ class GpkgTable:
         (:func:`_header`) and all share their first 8 bytes (flags, srs_id), each holds a
         little-endian ISO WKB LineString without Z or M of 0 or 2 and more vertices and
         nothing after them (WKB: OGC 06-103r4, clause 8.2.6); or on any SQLite error. The
-        coordinates may be NaN or infinite."""
+        coordinates may be NaN or infinite. ``thin``: (xy, counts) -> (xy, counts) of the same
+        rows, applied to each batch as it arrives (a draft's simplification: the whole table's
+        coordinates are then never held at once, nor the fresh memory they take faulted in)."""
         cols = ", ".join([_quote(self.geometry), *(_quote(c) for c in columns)])
         order = f" ORDER BY {_quote(self.key)}" if self.key else ""
         try:
@@ -129,29 +131,29 @@ class GpkgTable:
                 h = size + 9                    # the WKB's byte order, type and count
                 con.execute(f"PRAGMA mmap_size = {_MMAP_BYTES}")
                 cursor = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}")
-                heads, lengths, coords, others = [], [], bytearray(), []
+                parts, counts_of, coords, others = [], [], bytearray(), []
                 with _no_collection():
                     while rows := cursor.fetchmany(_BATCH):
                         blobs = [row[0] for row in rows]
-                        heads.append(b"".join([b[:h] for b in blobs]))
-                        lengths.append(np.fromiter(map(len, blobs), np.int64, len(blobs)))
-                        coords += b"".join([b[h:] for b in blobs])
+                        counts = _line_counts(blobs, first[0][:8], size)
+                        if counts is None:
+                            return None
+                        got = b"".join([b[h:] for b in blobs])
+                        if thin is None:
+                            coords += got
+                        else:                   # thinned batch by batch: little memory
+                            xy, counts = thin(np.frombuffer(got, "<f8").reshape(-1, 2), counts)
+                            parts.append(xy)
+                        counts_of.append(counts)
                         if columns:
                             others += [row[1:] for row in rows]
             finally:
                 con.close()
-            n = sum(len(a) for a in lengths)
-            head = np.frombuffer(b"".join(heads), np.uint8)
-            if len(head) != h * n:              # a blob too short (or not bytes: raised)
-                return None
-            head = head.reshape(n, h)
-            kind = head[:, size + 1:size + 5].copy().view("<u4").ravel()
-            counts = head[:, size + 5:h].copy().view("<u4").ravel().astype(np.int64)
-            if ((head[:, :8] != head[0, :8]).any() or (head[:, size] != 1).any()
-                    or (kind != 2).any() or (counts == 1).any()
-                    or (np.concatenate(lengths) != h + 16 * counts).any()):
-                return None
-            xy = np.frombuffer(coords, "<f8").reshape(-1, 2)
+            counts = np.concatenate(counts_of)
+            if thin is None:
+                xy = np.frombuffer(coords, "<f8").reshape(-1, 2)
+            else:
+                xy = np.concatenate(parts) if parts else np.empty((0, 2))
             values = [_column([row[j] for row in others], self._kinds[self.fields.index(c)])
                       for j, c in enumerate(columns)]
         except (sqlite3.Error, _NotPlain, TypeError, ValueError):
@@ -189,6 +191,24 @@ def _no_collection() -> Iterator[None]:
     finally:
         if was:
             gc.enable()
+
+
+def _line_counts(blobs: list, head: bytes, size: int) -> np.ndarray | None:
+    """Vertices of each blob's LineString (int64), or None unless every blob starts with
+    ``head`` (8 bytes: flags, srs_id), has a ``size``-byte GeoPackageBinary header and holds a
+    little-endian 2D ISO WKB LineString of 0 or 2 and more vertices and nothing after them."""
+    h = size + 9
+    heads = np.frombuffer(b"".join([b[:h] for b in blobs]), np.uint8)
+    if len(heads) != h * len(blobs):        # a blob too short (or not bytes: raised)
+        return None
+    heads = heads.reshape(len(blobs), h)
+    kind = heads[:, size + 1:size + 5].copy().view("<u4").ravel()
+    counts = heads[:, size + 5:h].copy().view("<u4").ravel().astype(np.int64)
+    lengths = np.fromiter(map(len, blobs), np.int64, len(blobs))
+    if ((heads[:, :8] != np.frombuffer(head, np.uint8)).any() or (heads[:, size] != 1).any()
+            or (kind != 2).any() or (counts == 1).any() or (lengths != h + 16 * counts).any()):
+        return None
+    return counts
 
 
 #: Rows :meth:`GpkgTable.read_lines` fetches at a time: each batch's blobs (about 0.8 MB for

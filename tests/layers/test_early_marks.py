@@ -28,7 +28,7 @@ reads = []                             # features read by this process (the chec
 real_read = sv.VectorSource._read
 sv.VectorSource._read = lambda self: reads.append(self.layer) or real_read(self)
 real_lines = sv.VectorSource._read_lines   # (or read as flat lines)
-sv.VectorSource._read_lines = lambda self: reads.append(self.layer) or real_lines(self)
+sv.VectorSource._read_lines = lambda self, *a: reads.append(self.layer) or real_lines(self, *a)
 if sys.argv[2] == "here":
     em.MarksAhead.start = classmethod(lambda cls, *a, **k: None)
 if sys.argv[2] == "fail":              # the process fails: the layers are built here instead

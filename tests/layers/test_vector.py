@@ -1,5 +1,6 @@
-"""Vector layers: a draft check's lines and outlines are simplified within half a draft pixel
-(Douglas-Peucker by GEOS); the full render's are drawn as read."""
+"""Vector layers: a draft check's lines and outlines are simplified within a few draft pixels
+(GEOS: repeated points within a pixel dropped, then Douglas-Peucker; areas: Douglas-Peucker
+keeping their topology); the full render's are drawn as read."""
 from __future__ import annotations
 
 import numpy as np
@@ -19,7 +20,9 @@ def test_draft_simplification_stays_within_its_tolerance():
     out = _simplified(feats, tol)
     line, area, point = out.geometries
     assert shapely.get_num_coordinates(line) < 400 / 4
-    assert shapely.hausdorff_distance(line, feats.geometries[0]) <= tol + 1e-9
+    # vertices within the tolerance of the last kept dropped (the last kept one may give way
+    # to the line's end: 2 tolerances), then Douglas-Peucker (1 more): 3 at most
+    assert shapely.hausdorff_distance(line, feats.geometries[0]) <= 3 * tol + 1e-9
     assert line.coords[0] == tuple(walk[0]) and line.coords[-1] == tuple(walk[-1])
     assert area.is_valid and shapely.hausdorff_distance(area, ring) <= tol + 1e-9
     assert shapely.get_num_coordinates(area) < shapely.get_num_coordinates(ring) / 4

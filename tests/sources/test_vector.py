@@ -316,12 +316,15 @@ def test_flat_lines_cut_as_shapely_cuts_and_splits_them():
 
 
 def test_flat_lines_simplified_as_shapely_simplifies_them():
-    """Lines.simplified: GEOS's Douglas-Peucker (shapely.simplify, the reference) per line."""
-    from compose.sources.vector import Lines
+    """Lines.simplified: GEOS's repeated-point removal, then its Douglas-Peucker, per line
+    (shapely's functions, the reference), as the features' draft simplification does."""
+    from compose.sources.vector import Lines, simplified
 
     geoms = _random_lines(200, seed=5)
     got = Lines.of_geometries(geoms).simplified(40.0)
-    ref = shapely.simplify(geoms, 40.0, preserve_topology=False)
+    ref = shapely.simplify(shapely.remove_repeated_points(geoms, 40.0), 40.0,
+                           preserve_topology=False)
+    assert np.array_equal(shapely.to_wkb(simplified(geoms, 40.0)[0]), shapely.to_wkb(ref))
     assert np.array_equal(got.xy, shapely.get_coordinates(ref))
     assert len(got) == len(ref)
 
@@ -384,3 +387,26 @@ width = 0.5
             assert len(a[1]) > 100 and np.array_equal(a[0], b[0]) and np.array_equal(a[1], b[1])
     other = VectorSource(spec.source, layer="w")
     assert other.lines("EPSG:32631") is None and other.lines("EPSG:32630") is not None
+
+
+def test_lines_read_thinned_batch_by_batch_are_the_lines_thinned_whole(tmp_path, monkeypatch):
+    """A draft's lines simplified as they are read, a few rows at a time
+    (compose.sources.gpkg.GpkgTable.read_lines' ``thin``), are the lines read whole and then
+    simplified (GEOS, per line: the reference), with a ``where`` filter."""
+    from compose.sources import gpkg as gpkg_module
+    from compose.sources.vector import Lines
+
+    walks = _random_lines(50, 21, 3000.0)
+    rows = [({"type": "LineString", "coordinates": shapely.get_coordinates(g).tolist()},
+             {"k": i % 3}) for i, g in enumerate(walks)]
+    path = write_vector(tmp_path / "t.gpkg", rows, crs="EPSG:32630", properties={"k": "int"},
+                        geometry="LineString")
+    monkeypatch.setattr(gpkg_module, "_BATCH", 4)
+    source = VectorSource(path, layer="t", where={"k": [0, 1]})
+    whole = source._read_lines()
+    thinned = source._read_lines(90.0)
+    assert whole is not None and thinned is not None and len(whole) == len(thinned) == 34
+    ref = Lines.of_geometries(shapely.simplify(shapely.remove_repeated_points(
+        whole.geometries(), 90.0), 90.0, preserve_topology=False))
+    assert np.array_equal(thinned.xy, ref.xy) and np.array_equal(thinned.starts, ref.starts)
+    assert np.array_equal(thinned.rows, whole.rows)
