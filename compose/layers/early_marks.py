@@ -453,11 +453,8 @@ class MarksAhead:
         else ``build()``."""
         if spec.name not in self.names or ctx.canvas != self.canvas or not ctx.draft:
             return build()
-        # this process draws the first tile: the layer's module loaded now, while the rasters
-        # are prepared, not when the process hands the layers over
-        from compose.style.kinds import layer_class
-
-        layer_class(spec.kind)
+        # (the layer's module is loaded here only if this process draws the first tile, when
+        # it unpacks the process's layers: the process mostly draws it itself)
         return _Ahead(self, spec, functools.partial(self._build_here, spec, build))
 
     def _build_here(self, spec, build: Callable[[], Any]) -> Any:
