@@ -1,6 +1,6 @@
 """What every process compose forks from its own (the page process, the drawing helper, the
 draft's marks process) shares: whether a fork is safe here, and a child that dies with its
-parent."""
+parent, and its end."""
 from __future__ import annotations
 
 import os
@@ -8,7 +8,7 @@ import signal
 import sys
 import threading
 
-__all__ = ["can_fork", "die_with_parent"]
+__all__ = ["can_fork", "die_with_parent", "end_child"]
 
 
 def can_fork() -> bool:
@@ -33,3 +33,17 @@ def die_with_parent(parent: int, name: bytes | None = None) -> bool:
     except Exception:       # pragma: no cover - best effort (the pipes' ends end a child too)
         pass
     return os.getppid() == parent
+
+
+def end_child(pid: int, kill: bool) -> None:
+    """Reap the forked child ``pid``, killed first (SIGKILL) when ``kill``; a child already
+    ended or reaped is no error."""
+    if kill:
+        try:
+            os.kill(pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
+    try:
+        os.waitpid(pid, 0)
+    except ChildProcessError:
+        pass

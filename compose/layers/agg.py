@@ -87,30 +87,52 @@ def renderer_class() -> type:
 
 
 def _load_alone():
-    """The extension module loaded from matplotlib's folder, found without importing it; None
-    when it cannot be (then matplotlib's own import is used)."""
-    import importlib.machinery
+    """Agg's extension module loaded on its own (:func:`load_alone`)."""
+    return load_alone(_AGG)
+
+
+def package_folder():
+    """matplotlib's package folder (a pathlib.Path), found without importing it; None when
+    matplotlib is not installed."""
     import importlib.util
     from pathlib import Path as FilePath
 
     try:
         spec = importlib.util.find_spec("matplotlib")
-        if spec is None or not spec.submodule_search_locations:
+    except (ImportError, ValueError):
+        return None
+    if spec is None or not spec.submodule_search_locations:
+        return None
+    return FilePath(next(iter(spec.submodule_search_locations)))
+
+
+def load_alone(name: str):
+    """matplotlib's extension module ``name`` (e.g. ``"matplotlib.ft2font"``) loaded from its
+    file in matplotlib's folder, found without importing the package, and registered under its
+    own name (a later import of matplotlib finds that same module); None when it cannot be (then
+    matplotlib's own import is used)."""
+    import importlib.machinery
+    import importlib.util
+
+    folder = package_folder()
+    if folder is None:
+        return None
+    *inner, stem = name.split(".")[1:]
+    folder = folder.joinpath(*inner)
+    for suffix in importlib.machinery.EXTENSION_SUFFIXES:
+        file = folder / f"{stem}{suffix}"
+        if file.is_file():
+            break
+    else:
+        return None
+    try:
+        loader = importlib.machinery.ExtensionFileLoader(name, str(file))
+        spec = importlib.util.spec_from_file_location(name, file, loader=loader)
+        if spec is None:
             return None
-        folder = FilePath(next(iter(spec.submodule_search_locations))) / "backends"
-        for suffix in importlib.machinery.EXTENSION_SUFFIXES:
-            file = folder / f"_backend_agg{suffix}"
-            if file.is_file():
-                break
-        else:
-            return None
-        loader = importlib.machinery.ExtensionFileLoader(_AGG, str(file))
-        ext = importlib.util.spec_from_file_location(_AGG, file, loader=loader)
-        if ext is None:
-            return None
-        module = importlib.util.module_from_spec(ext)
+        module = importlib.util.module_from_spec(spec)
         loader.exec_module(module)
     except (ImportError, OSError):
         return None
-    sys.modules[_AGG] = module
+    sys.modules[name] = module
     return module

@@ -27,7 +27,6 @@ import dataclasses
 import functools
 import os
 import select
-import signal
 import threading
 import time
 from collections.abc import Callable
@@ -305,14 +304,9 @@ class _Job:
                 os.close(fd)
                 setattr(self, name, None)
         if self.pid is not None:
-            try:
-                os.kill(self.pid, signal.SIGKILL)
-            except ProcessLookupError:
-                pass
-            try:
-                os.waitpid(self.pid, 0)
-            except ChildProcessError:
-                pass
+            from compose.forking import end_child
+
+            end_child(self.pid, kill=True)
             self.pid = None
 
 

@@ -35,7 +35,7 @@ from typing import Any
 import numpy as np
 
 from compose.errors import StyleError
-from compose.layers.agg import Path
+from compose.layers.agg import Path, load_alone, package_folder
 
 __all__ = ["TextShape", "Face", "measure_text", "text_outline", "face", "remembered",
            "font_object", "ft2font", "MEMO_FILE"]
@@ -111,41 +111,12 @@ def ft2font():
 
 def _package_folder() -> FilePath | None:
     """matplotlib's package folder, found without importing it."""
-    import importlib.util
-
-    try:
-        spec = importlib.util.find_spec("matplotlib")
-    except (ImportError, ValueError):
-        return None
-    if spec is None or not spec.submodule_search_locations:
-        return None
-    return FilePath(next(iter(spec.submodule_search_locations)))
+    return package_folder()
 
 
 def _load_alone():
-    import importlib.machinery
-    import importlib.util
-
-    folder = _package_folder()
-    if folder is None:
-        return None
-    for suffix in importlib.machinery.EXTENSION_SUFFIXES:
-        file = folder / f"ft2font{suffix}"
-        if file.is_file():
-            break
-    else:
-        return None
-    try:
-        loader = importlib.machinery.ExtensionFileLoader(_FT, str(file))
-        spec = importlib.util.spec_from_file_location(_FT, file, loader=loader)
-        if spec is None:
-            return None
-        module = importlib.util.module_from_spec(spec)
-        loader.exec_module(module)
-    except (ImportError, OSError):
-        return None
-    sys.modules[_FT] = module
-    return module
+    """``ft2font`` loaded on its own (:func:`compose.layers.agg.load_alone`)."""
+    return load_alone(_FT)
 
 
 # --- which font: matplotlib's answer, remembered ----------------------------------------------

@@ -39,7 +39,7 @@ from typing import Any
 
 import numpy as np
 
-from compose.forking import can_fork, die_with_parent
+from compose.forking import can_fork, die_with_parent, end_child
 from compose.timeline import note_process, span
 
 __all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
@@ -91,15 +91,7 @@ def _end_child(job, kill: bool) -> None:
         job._inbox.close()
         job._inbox = None
     if job.pid is not None:
-        if kill:
-            try:
-                os.kill(job.pid, signal.SIGKILL)
-            except ProcessLookupError:
-                pass
-        try:
-            os.waitpid(job.pid, 0)
-        except ChildProcessError:
-            pass
+        end_child(job.pid, kill)
         job.pid = None
 
 

@@ -78,6 +78,20 @@ class GpkgTable:
         self.fields = fields
         self._kinds = kinds
 
+    def _select(self, cols: str) -> str:
+        """SQL selecting ``cols`` (quoted, comma-separated) of every row, in the table's order
+        (its integer primary key, SQLite's rowid)."""
+        order = f" ORDER BY {_quote(self.key)}" if self.key else ""
+        return f"SELECT {cols} FROM {_quote(self.table)}{order}"
+
+    def _all_rows(self, cols: str) -> list:
+        """Every row's ``cols`` (:meth:`_select`), fetched at once; raises sqlite3.Error."""
+        con = _connect(self.path)
+        try:
+            return con.execute(self._select(cols)).fetchall()
+        finally:
+            con.close()
+
     def read(self) -> tuple[np.ndarray, list[np.ndarray]] | None:
         """(WKB per feature, an object array with None for a NULL geometry; attribute columns,
         int64 / float64 / object arrays as pyogrio gives them), in the table's order (its integer
@@ -85,13 +99,8 @@ class GpkgTable:
         geometry = _quote(self.geometry)
         cols = ", ".join([f"substr({geometry}, 1, 8)", _wkb_sql(geometry),
                           *(_quote(c) for c in self.fields)])
-        order = f" ORDER BY {_quote(self.key)}" if self.key else ""
         try:
-            con = _connect(self.path)
-            try:
-                rows = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}").fetchall()
-            finally:
-                con.close()
+            rows = self._all_rows(cols)
             for head in {row[0] for row in rows}:     # each distinct header checked once
                 _header(head)
             wkb = np.empty(len(rows), dtype=object)
@@ -119,18 +128,16 @@ class GpkgTable:
         rows, applied to each batch as it arrives (a draft's simplification: the whole table's
         coordinates are then never held at once, nor the fresh memory they take faulted in)."""
         cols = ", ".join([_quote(self.geometry), *(_quote(c) for c in columns)])
-        order = f" ORDER BY {_quote(self.key)}" if self.key else ""
         try:
             con = _connect(self.path)
             try:
-                first = con.execute(f"SELECT {_quote(self.geometry)} FROM "
-                                    f"{_quote(self.table)}{order} LIMIT 1").fetchone()
+                first = con.execute(self._select(_quote(self.geometry)) + " LIMIT 1").fetchone()
                 size = _header(first[0]) if first is not None else None
                 if size is None or first[0][size:size + 5] != b"\x01\x02\x00\x00\x00":
                     return None                 # no rows, or not LineStrings: no bulk read
                 h = size + 9                    # the WKB's byte order, type and count
                 con.execute(f"PRAGMA mmap_size = {_MMAP_BYTES}")
-                cursor = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}")
+                cursor = con.execute(self._select(cols))
                 parts, counts_of, coords, others = [], [], bytearray(), []
                 with _no_collection():
                     while rows := cursor.fetchmany(_BATCH):
@@ -166,13 +173,8 @@ class GpkgTable:
         if not self.fields:
             return []
         cols = ", ".join(_quote(c) for c in self.fields)
-        order = f" ORDER BY {_quote(self.key)}" if self.key else ""
         try:
-            con = _connect(self.path)
-            try:
-                rows = con.execute(f"SELECT {cols} FROM {_quote(self.table)}{order}").fetchall()
-            finally:
-                con.close()
+            rows = self._all_rows(cols)
             return [_column([row[j] for row in rows], kind) for j, kind in enumerate(self._kinds)]
         except (sqlite3.Error, _NotPlain):
             return None
