@@ -28,11 +28,10 @@ measured, no source). :func:`limit_arenas` calls it.
 from __future__ import annotations
 
 import ctypes
-import ctypes.util
 import functools
 import os
 
-__all__ = ["trim", "limit_arenas", "no_huge_pages", "ARENAS", "MMAP_BYTES", "TRIM_BYTES"]
+__all__ = ["libc", "trim", "limit_arenas", "no_huge_pages", "ARENAS", "MMAP_BYTES", "TRIM_BYTES"]
 
 #: glibc malloc arenas the threads of a render share (the window threads, the encoders).
 ARENAS = 2
@@ -48,10 +47,20 @@ _M_ARENA_MAX = -8
 _PR_SET_THP_DISABLE = 41        # Linux <linux/prctl.h>
 
 
-@functools.lru_cache(maxsize=1)
-def _libc():
+@functools.lru_cache(maxsize=2)
+def libc(use_errno: bool = False):
+    """The C library: glibc's file name first (``ctypes.util.find_library`` runs ``ldconfig``
+    in a new process, 2-4 ms in every compose process), else whatever that finds; None without
+    one."""
     try:
-        return ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6")
+        return ctypes.CDLL("libc.so.6", use_errno=use_errno)
+    except OSError:
+        pass
+    from ctypes.util import find_library
+
+    name = find_library("c")
+    try:
+        return ctypes.CDLL(name, use_errno=use_errno) if name else None
     except OSError:
         return None
 
@@ -59,7 +68,7 @@ def _libc():
 @functools.lru_cache(maxsize=1)
 def _malloc_trim():
     try:
-        fn = _libc().malloc_trim
+        fn = libc().malloc_trim
     except AttributeError:      # no C library found, or not glibc
         return None
     fn.argtypes = [ctypes.c_size_t]
@@ -79,7 +88,7 @@ def trim() -> bool:
 @functools.lru_cache(maxsize=1)
 def _mallopt():
     try:
-        fn = _libc().mallopt
+        fn = libc().mallopt
     except AttributeError:      # no C library found, or not glibc
         return None
     fn.argtypes = [ctypes.c_int, ctypes.c_int]
@@ -95,7 +104,7 @@ def no_huge_pages() -> bool:
     if not sys.platform.startswith("linux"):
         return False
     try:
-        prctl = _libc().prctl
+        prctl = libc().prctl
     except AttributeError:      # no C library found
         return False
     prctl.restype = ctypes.c_int

@@ -3,7 +3,6 @@ from __future__ import annotations
 
 import contextlib
 import ctypes
-import ctypes.util
 import errno
 import functools
 import os
@@ -24,9 +23,10 @@ _SYNC_FILE_RANGE_WRITE = 2      # Linux <fcntl.h>: start writing dirty pages, do
 @functools.lru_cache(maxsize=1)
 def _sync_file_range() -> Any:
     try:
-        fn = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6",
-                         use_errno=True).sync_file_range
-    except (OSError, AttributeError):       # not Linux's C library: nothing to do
+        from compose.heap import libc
+
+        fn = libc(use_errno=True).sync_file_range
+    except AttributeError:                  # no C library, or not Linux's: nothing to do
         return None
     fn.argtypes = [ctypes.c_int, ctypes.c_int64, ctypes.c_int64, ctypes.c_uint]
     fn.restype = ctypes.c_int
