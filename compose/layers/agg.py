@@ -18,7 +18,7 @@ import threading
 
 import numpy as np
 
-__all__ = ["Path", "renderer_class"]
+__all__ = ["Path", "renderer_class", "extension", "load_alone", "package_folder"]
 
 _AGG = "matplotlib.backends._backend_agg"
 
@@ -73,22 +73,25 @@ def renderer_class() -> type:
     style with ``--workers 2``, 6 in 10 processes whose 4 threads drew their first label at once;
     matplotlib 3.11's pybind11 extension; never after one use in a single thread)."""
     with _FIRST:
-        module = sys.modules.get(_AGG)
-        if module is None and "matplotlib" not in sys.modules:
-            module = _load_alone()
-        if module is None:
-            import importlib
-
-            module = importlib.import_module(_AGG)
+        module = extension(_AGG)
         renderer = module.RendererAgg(2, 2, 72.0)
         memoryview(renderer).release()
         renderer.clear()
         return module.RendererAgg
 
 
-def _load_alone():
-    """Agg's extension module loaded on its own (:func:`load_alone`)."""
-    return load_alone(_AGG)
+def extension(name: str):
+    """matplotlib's extension module ``name``: the one imported already, else loaded from its
+    file without the package (:func:`load_alone`) while matplotlib is not imported, else
+    imported with the package."""
+    module = sys.modules.get(name)
+    if module is None and "matplotlib" not in sys.modules:
+        module = load_alone(name)
+    if module is None:
+        import importlib
+
+        module = importlib.import_module(name)
+    return module
 
 
 def package_folder():

@@ -35,7 +35,7 @@ from typing import Any
 import numpy as np
 
 from compose.errors import StyleError
-from compose.layers.agg import Path, load_alone, package_folder
+from compose.layers.agg import Path, extension, package_folder
 
 __all__ = ["TextShape", "Face", "measure_text", "text_outline", "face", "remembered",
            "font_object", "ft2font", "MEMO_FILE"]
@@ -99,24 +99,12 @@ def ft2font():
     if module is not None:
         return module
     with _LOAD:
-        module = sys.modules.get(_FT)
-        if module is None and "matplotlib" not in sys.modules:
-            module = _load_alone()
-        if module is None:
-            import importlib
-
-            module = importlib.import_module(_FT)
-        return module
+        return extension(_FT)
 
 
 def _package_folder() -> FilePath | None:
     """matplotlib's package folder, found without importing it."""
     return package_folder()
-
-
-def _load_alone():
-    """``ft2font`` loaded on its own (:func:`compose.layers.agg.load_alone`)."""
-    return load_alone(_FT)
 
 
 # --- which font: matplotlib's answer, remembered ----------------------------------------------
