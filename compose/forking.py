@@ -8,7 +8,7 @@ import signal
 import sys
 import threading
 
-__all__ = ["can_fork", "die_with_parent", "end_child"]
+__all__ = ["can_fork", "die_with_parent", "end_child", "read_exactly"]
 
 
 def can_fork() -> bool:
@@ -47,3 +47,18 @@ def end_child(pid: int, kill: bool) -> None:
         os.waitpid(pid, 0)
     except ChildProcessError:
         pass
+
+
+def read_exactly(fd: int, size: int, offset: int | None = None) -> bytes:
+    """``size`` bytes from the file descriptor ``fd`` (a pipe a forked process writes, or a file
+    it filled): read in turn, or from ``offset`` on (``pread``) when given. Raises EOFError when
+    it ends first."""
+    parts, got = [], 0
+    while got < size:
+        part = (os.read(fd, size - got) if offset is None
+                else os.pread(fd, size - got, offset + got))
+        if not part:
+            raise EOFError(f"ended after {got} of {size} bytes")
+        parts.append(part)
+        got += len(part)
+    return b"".join(parts)

@@ -258,14 +258,11 @@ class _Job:
         return None if message[0] == "error" else message
 
     def _read(self, n: int) -> bytes:
-        chunks, got = [], 0
-        while got < n:
-            chunk = os.read(self._inbox, n - got)        # type: ignore[arg-type]
-            if not chunk:
-                raise EOFError
-            chunks.append(chunk)
-            got += len(chunk)
-        return b"".join(chunks)
+        from compose.forking import read_exactly
+
+        if self._inbox is None:
+            raise EOFError
+        return read_exactly(self._inbox, n)
 
     def claim(self) -> bool:
         """True for the first of the two processes to ask, in either (the first tile is its to
@@ -287,14 +284,11 @@ class _Job:
 
     def taken(self, size: int) -> bytes:
         """The ``size`` bytes the process handed over (``hand_over`` returned ``size``)."""
-        chunks, got = [], 0
-        while got < size:
-            chunk = os.pread(self._memory, size - got, _DATA + got)    # type: ignore[arg-type]
-            if not chunk:
-                raise EOFError
-            chunks.append(chunk)
-            got += len(chunk)
-        return b"".join(chunks)
+        from compose.forking import read_exactly
+
+        if self._memory is None:
+            raise EOFError
+        return read_exactly(self._memory, size, _DATA)
 
     def abort(self) -> None:
         """End the process (killed if it still runs) and reap it (a second call does nothing)."""

@@ -39,7 +39,7 @@ from typing import Any
 
 import numpy as np
 
-from compose.forking import can_fork, die_with_parent, end_child
+from compose.forking import can_fork, die_with_parent, end_child, read_exactly
 from compose.timeline import note_process, span
 
 __all__ = ["PageJob", "Forked", "shared_image", "can_fork"]
@@ -344,15 +344,9 @@ def _handed_over(job: PageJob, sent) -> bytes:
     fd = job._handover
     if fd is None:
         raise EOFError("the prepared render's hand-over file is closed")
-    parts, got = [], 0
-    while got < n:
-        part = os.pread(fd, n - got, got)
-        if not part:
-            raise EOFError("the prepared render's hand-over file ended early")
-        parts.append(part)
-        got += len(part)
+    data = read_exactly(fd, n, 0)
     _close_handover(job)
-    return b"".join(parts)
+    return data
 
 
 def _unpacked(job: PageJob, data: bytes) -> SimpleNamespace:
