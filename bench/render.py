@@ -13,7 +13,9 @@ For every size it prints, from the same run:
   * every target beside its floor (medians of 3 runs): the bare render (PNG + GeoTIFF + check)
     with the automatic workers (what ``compose render`` does without ``--workers``), 1 and 2
     workers against the summed floors, compute alone with and without the
-    statistics against the compute floor (medians of at least 5 alternating pairs; the
+    statistics against the compute floor (at least 5 turns, each an alternating pair of
+    computes and the compute floor's kernels measured again beside them; the ratio is the
+    median of the turns' own ratios, their spread printed beside; the
     statistics' share from the median of the pairs' differences in wall and in CPU time, and
     the statistics' own calls timed inside 3 more walks), and the share of the
     encoders' own work that ran beside the compute (the render's own timers); the layer
@@ -355,6 +357,19 @@ def _vertices(folder: Path) -> int:
     return len(floors._lines_pixels(folder, 0)[0])
 
 
+def _read_floor(folder: Path) -> float:
+    """GDAL read floor of the benchmark's two float32 rasters (seconds)."""
+    return floors.geotiff_read(folder / "dem.tif") + floors.geotiff_read(folder / "field.tif")
+
+
+def compute_floor_turn(folder: Path, size: int) -> float:
+    """The compute floor measured once (seconds): the sum of the same kernels as the floors'
+    section (Agg lines, Horn strips, LUT gather and planar composite on 1 thread, the GDAL read
+    of both rasters), each run once, in this process."""
+    return (floors.lines_agg(folder, size)[0] + floors.horn_strips(folder, size)
+            + floors.lut_gather(size, 1) + floors.composite_planar(size, 1) + _read_floor(folder))
+
+
 def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     styles = write_styles(folder, size)
     out = folder / "out"
@@ -373,7 +388,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     t_horn = med(floors.horn_strips, folder, size)
     t_lut1, t_lut2 = med(floors.lut_gather, size, 1), med(floors.lut_gather, size, 2)
     t_cmp1, t_cmp2 = med(floors.composite_planar, size, 1), med(floors.composite_planar, size, 2)
-    t_read = med(lambda: floors.geotiff_read(folder / "dem.tif") + floors.geotiff_read(folder / "field.tif"))
+    t_read = med(lambda: _read_floor(folder))
     compute_floor = t_lines + t_horn + t_lut1 + t_cmp1 + t_read
     print(f"floors (bench/floors.py: numpy, Agg, GDAL; none of compose's code; median of {runs})")
     print(f"  lines: {verts / 1e6:.2f} M vertices, 1 px, Agg, whole canvas, a path a line  {t_lines:6.2f} s")
@@ -411,15 +426,27 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     # machine's drift between two single runs would swamp; 3 pairs did not resolve 0.1 s here.
     # The same pairs' CPU time (every thread of the 1-worker walk's process) is printed beside:
     # time spent waiting for the host does not count in it
+    # Each pair is one turn with the compute floor's kernels measured again beside it (floor
+    # first on even turns, last on odd ones): this machine's speed swings about 2 x over
+    # minutes, so a floor measured once at the start and a compute measured later are not
+    # comparable; the ratio to the floor is the median of the turns' own ratios.
     pairs: list[tuple[float, float]] = []
     cpu_pairs: list[tuple[float, float]] = []
+    turn_floors: list[float] = []
     for i in range(max(runs, 5)):
         order = ("plain", "measure") if i % 2 == 0 else ("measure", "plain")
+        if i % 2 == 0:
+            turn_floors.append(compute_floor_turn(folder, size))
         got = {mode: task(mode, styles["aligned"], out) for mode in order}
+        if i % 2 == 1:
+            turn_floors.append(compute_floor_turn(folder, size))
         pairs.append((got["plain"]["compute"], got["measure"]["compute"]))
         cpu_pairs.append((got["plain"]["compute_cpu"], got["measure"]["compute_cpu"]))
     plain = statistics.median(p for p, _ in pairs)
     measured = statistics.median(m for _, m in pairs)
+    turn_floor = statistics.median(turn_floors)
+    ratios_m = [m / f for (_, m), f in zip(pairs, turn_floors)]
+    ratios_p = [p / f for (p, _), f in zip(pairs, turn_floors)]
     stats_cost = statistics.median(m - p for p, m in pairs)
     stats_cpu = statistics.median(m - p for p, m in cpu_pairs)
     with_previews, _ = median_task(runs, comp, "previews", styles["aligned"], out)
@@ -451,9 +478,17 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  bare render, 2 workers (threads + the drawing helper)  {total2:6.2f} s wall  "
           f"= {total2 / floors_sum:.2f} x floors summed, {total / total2:.2f} x faster than 1 worker")
     print(f"  compute alone, measuring, 1 thread              {measured:6.2f} s  "
-          f"= {measured / compute_floor:.2f} x compute floor {compute_floor:.2f} s (target <= 1.5 x)")
+          f"= {statistics.median(ratios_m):.2f} x compute floor (target <= 1.5 x; median of "
+          f"{len(ratios_m)} turns' ratios, each compute over the floor measured in the same turn; "
+          f"spread {min(ratios_m):.2f}-{max(ratios_m):.2f} x: "
+          + ", ".join(f"{r:.2f}" for r in ratios_m) + ")")
     print(f"  compute alone, not measuring                    {plain:6.2f} s  "
-          f"= {plain / compute_floor:.2f} x compute floor")
+          f"= {statistics.median(ratios_p):.2f} x compute floor (spread {min(ratios_p):.2f}-"
+          f"{max(ratios_p):.2f} x: " + ", ".join(f"{r:.2f}" for r in ratios_p) + ")")
+    print(f"  compute floor in the same turns                 {turn_floor:6.2f} s  (median of "
+          f"{len(turn_floors)}; " + ", ".join(f"{f:.2f}" for f in turn_floors)
+          + f"; {compute_floor:.2f} s at the start; compute medians over the turns' floor median: "
+          f"measuring {measured / turn_floor:.2f} x, not measuring {plain / turn_floor:.2f} x)")
     print(f"  statistics share                                {100 * stats_cost / total:6.1f} % "
           f"of the 1-worker render (target <= 10 %; median of {len(pairs)} alternating pairs' "
           f"differences, {stats_cost:.2f} s; pairs: "
