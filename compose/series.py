@@ -180,6 +180,14 @@ colours across the series (also recorded in {esc(name)}.series.json).</p>
 """
 
 
+def _record(member: SeriesMember) -> dict:
+    """A member as NAME.series.json keeps it: everything but its seconds, so the same series
+    gives the same bytes on every run (compose.page.dates)."""
+    out = dataclasses.asdict(member)
+    out.pop("seconds")
+    return out
+
+
 def render_series(path: Path, out_dir: Path, *, overrides: Sequence = (), overwrite: bool = False,
                   workers: int | None = None) -> SeriesResult:
     """Render every member of the series declared by the style at ``path`` (see module doc)."""
@@ -213,7 +221,7 @@ def render_series(path: Path, out_dir: Path, *, overrides: Sequence = (), overwr
     with atomic_path(record) as tmp:
         tmp.write_text(json.dumps({"series": series_name, "style": str(base.path),
                                    "scales": scales,
-                                   "members": [dataclasses.asdict(m) for m in members]},
+                                   "members": [_record(m) for m in members]},
                                   indent=2, default=dict))
     with atomic_path(index) as tmp:
         tmp.write_text(_index_html(series_name, members, scales, out_dir), encoding="utf-8")

@@ -72,9 +72,11 @@ def command(out_dir: Path, data_only: bool) -> None:
     from compose.caution import CAUTION
     from compose.cli.render import print_summary
     from compose.errors import ComposeError
+    from compose.page.dates import source_date
     from compose.render import render_style
     from compose.style import load_style
 
+    source_date()           # a malformed SOURCE_DATE_EPOCH stops the command before any work
     folder = styles_dir()
     region, copied = copy_region(out_dir)
     click.echo(f"demo region: {region} ({len(copied)} file(s) copied; invented data, no real place)")

@@ -103,8 +103,10 @@ def command(styles: tuple[Path, ...], out_dir: Path, overwrite: bool, sets: tupl
     keeps the evidence), unless --no-check; 0 when it passes, 2 on invalid input.
     """
     from compose.errors import ComposeError
+    from compose.page.dates import source_date
     from compose.style.overrides import parse_override
 
+    source_date()           # a malformed SOURCE_DATE_EPOCH stops the command before any work
     overrides = tuple(parse_override(s) for s in sets)
     paths = expand_styles(styles)
     run = dict(out_dir=out_dir, overwrite=overwrite, overrides=overrides, series=series,

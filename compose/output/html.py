@@ -302,9 +302,8 @@ def _facts(style, result) -> str:
         rows.append(("extends", " → ".join(Path(p).name for p in style.chain)))
     if result.outputs:
         rows.append(("files", ", ".join(Path(p).name for p in result.outputs.values())))
-    total = (result.seconds or {}).get("total")
-    if total is not None:
-        rows.append(("render", f"{total:.1f} s"))
+    # no render time (nor date): the page is the same bytes whenever the same style and data
+    # are rendered (compose.page.dates); the command prints the time
     return '<dl class="facts">' + "".join(f"<dt>{esc(k)}</dt><dd>{esc(str(v))}</dd>"
                                            for k, v in rows) + "</dl>"
 

@@ -30,7 +30,7 @@ __all__ = ["PageSink", "vector_split", "without_setter_listings", "legend_for_pa
 #: level 1 (the demo's PDF 1 % larger than at matplotlib's 6, written 11 % faster; the map's
 #: image is deflated by :mod:`compose.page.encode` either way).
 # svg.hashsalt: the SVG's clip and path ids from a fixed salt instead of a random one, so the
-# same page gives the same SVG (with SOURCE_DATE_EPOCH set, also the same date; see README)
+# same page gives the same SVG (its date, like the PDF's: compose.page.dates)
 RC = {"pdf.fonttype": 3, "svg.fonttype": "none", "lines.scale_dashes": False,
       "path.simplify": False, "pdf.compression": 1, "svg.hashsalt": "compose page"}
 PDF_FONTTYPE = {"outlines": 3, "truetype": 42}
@@ -419,12 +419,17 @@ def _early_page_png(path: Path, furniture: tuple[np.ndarray, tuple], layout: Pag
 
 
 def _pdf_metadata(style, layout) -> dict:
+    from compose.page.dates import pdf_date
+
     return {"Title": layout.title or style.name, "Subject": style.page.caution,
-            "Creator": "compose"}
+            "Creator": "compose", **pdf_date()}
 
 
 def _svg_metadata(style, layout) -> dict:
-    return {"Title": layout.title or style.name, "Description": style.page.caution}
+    from compose.page.dates import svg_date
+
+    return {"Title": layout.title or style.name, "Description": style.page.caution,
+            **svg_date()}
 
 
 def write_page(style, run_, sink: PageSink, tmp: dict[str, Path],

@@ -1,0 +1,113 @@
+"""Reproducible outputs: the same style and data give the same bytes in every output of
+``compose render`` (PNG, world file, GeoTIFF, legend, report, review page, PDF, SVG, page PNG),
+``compose render --series`` and ``compose tiles``, whether or not SOURCE_DATE_EPOCH is set; with
+it set, the PDF and SVG carry its date, and nothing else changes.
+
+Reference: the SOURCE_DATE_EPOCH specification, reproducible-builds.org/specs/source-date-epoch
+(revision 1.1): a date written into an output comes from the variable, whole seconds since
+1970-01-01 00:00:00 UTC; a malformed value stops the tool with an error."""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+from click.testing import CliRunner
+
+from compose.cli.main import cli
+from compose.demo import styles_dir
+from tests.cli.test_render_batch import STYLE, _field
+
+# a small canvas of the coast demo (188 x 188 px): its page, labels, legend and every output
+SMALL = ("--set", "map.pixel=240")
+
+
+def _command(*args: str | Path, epoch: str | None = None) -> subprocess.CompletedProcess:
+    """``compose ARGS`` as a user runs it (a fresh process), SOURCE_DATE_EPOCH set to ``epoch``
+    or unset."""
+    env = {k: v for k, v in os.environ.items() if k != "SOURCE_DATE_EPOCH"}
+    if epoch is not None:
+        env["SOURCE_DATE_EPOCH"] = epoch
+    return subprocess.run([sys.executable, "-m", "compose", *map(str, args)], env=env,
+                          capture_output=True, text=True, timeout=300)
+
+
+def _files(folder: Path) -> dict[str, bytes]:
+    return {str(p.relative_to(folder)): p.read_bytes()
+            for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def _render(out: Path, epoch: str | None = None) -> dict[str, bytes]:
+    done = _command("render", styles_dir() / "coast.toml", "--out", out, "--overwrite", *SMALL,
+                    epoch=epoch)
+    assert done.returncode in (0, 1), done.stderr         # 1: the small canvas's check verdict
+    return _files(out)
+
+
+def test_every_output_of_a_render_is_the_same_bytes_and_dated_only_by_source_date_epoch(tmp_path):
+    # into the same folder (paths are recorded in the outputs), replaced
+    first, second = _render(tmp_path / "out"), _render(tmp_path / "out")
+    names = {Path(n).suffix for n in first}
+    # every kind of output the command writes for a style with a [page]
+    assert {".png", ".pgw", ".tif", ".json", ".html", ".pdf", ".svg"} <= names, sorted(first)
+    assert first.keys() == second.keys()
+    for name in first:
+        assert first[name] == second[name], name
+    # without SOURCE_DATE_EPOCH no date at all: the PDF's document information has no
+    # CreationDate / ModDate (ISO 32000-1, 14.3.3: both optional), the SVG no dc:date
+    pdf, svg = first["coast.pdf"], first["coast.svg"]
+    assert b"/CreationDate" not in pdf and b"/ModDate" not in pdf
+    assert b"dc:date" not in svg and b"<dc:title>" in svg          # its metadata is there
+
+    # SOURCE_DATE_EPOCH=1700000000 is 2023-11-14 22:13:20 UTC (seconds since the POSIX epoch;
+    # GNU `date -u -d @1700000000` prints the same); written as a PDF date string (ISO 32000-1,
+    # 7.9.4: D:YYYYMMDDHHmmSS, Z for UT) and in the SVG's Dublin Core dc:date (ISO 8601)
+    dated = _render(tmp_path / "out", epoch="1700000000")
+    assert b"/CreationDate (D:20231114221320Z)" in dated["coast.pdf"]
+    assert b"<dc:date>2023-11-14T22:13:20+00:00</dc:date>" in dated["coast.svg"]
+    # ... and nowhere else: every other output is the undated render's
+    assert {n for n in first if first[n] != dated[n]} == {"coast.pdf", "coast.svg"}
+
+
+def test_a_malformed_source_date_epoch_stops_the_command_before_any_work(tmp_path, monkeypatch):
+    # the specification: a malformed value should end the tool with a non-zero exit code
+    for value in ("17e8", "-5", "1.5", "soon"):
+        monkeypatch.setenv("SOURCE_DATE_EPOCH", value)
+        result = CliRunner().invoke(cli, ["render", str(styles_dir() / "coast.toml"),
+                                          "--out", str(tmp_path / "out"), *SMALL])
+        assert result.exit_code == 2, result.output
+        lines = result.output.strip().splitlines()
+        assert len(lines) == 1 and "SOURCE_DATE_EPOCH" in lines[0] and value in lines[0]
+        assert not (tmp_path / "out").exists()
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "")          # empty: as unset (matplotlib's reading)
+    from compose.page.dates import pdf_date, svg_date
+    assert pdf_date() == {"CreationDate": None} and svg_date() == {"Date": None}
+
+
+def test_a_series_and_its_record_are_the_same_bytes(tmp_path):
+    for i, date in enumerate(("2024-04", "2024-05")):
+        _field(tmp_path / f"moist_{date}.tif", 8 * i)
+    style = STYLE.format(name="moist-{date}", title="Moisture {date}", source="moist_{date}.tif")
+    (tmp_path / "s.toml").write_text(style + '\n[series]\ndate = ["2024-04", "2024-05"]\n')
+    runs = []
+    for _ in range(2):      # into the same folder: the record names the members' files
+        done = _command("render", tmp_path / "s.toml", "--series", "--workers", "1",
+                        "--overwrite", "--out", tmp_path / "out")
+        assert done.returncode == 0, done.stderr
+        runs.append(_files(tmp_path / "out"))
+    assert "s.series.json" in runs[0] and runs[0].keys() == runs[1].keys()
+    for name in runs[0]:
+        assert runs[0][name] == runs[1][name], name
+
+
+def test_tiles_are_the_same_bytes(tmp_path):
+    runs = []
+    for _ in range(2):
+        done = _command("tiles", styles_dir() / "coast.toml", "--zoom", "8", "--out",
+                        tmp_path / "out")
+        assert done.returncode in (0, 1), done.stderr
+        runs.append(_files(tmp_path / "out"))
+    assert {"index.html", "check.json"} <= runs[0].keys() and runs[0].keys() == runs[1].keys()
+    for name in runs[0]:
+        assert runs[0][name] == runs[1][name], name
