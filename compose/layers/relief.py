@@ -15,7 +15,7 @@ from compose.canvas import Canvas, Window
 from compose.kernels import get as compiled
 from compose.layers.base import Context, Paint, Palette
 from compose.layers.early import PAD, BlockSample, EarlyRead
-from compose.layers.hillshade import horn_gradient, multidirectional, stretch_factor
+from compose.layers.hillshade import centre_gradient, multidirectional, shade_gradient, stretch_factor
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
 from compose.sources.crs import never_mercator
@@ -256,14 +256,13 @@ class ReliefLayer:
         window = self.canvas.whole(PAD)
         rows, cols, dem = self._gather(window)
         self._gathered = (window.padded, rows, cols, dem)      # shaded next (_sampled_shade)
-        dx, dy = self._cell_sizes(_stencil_rows(rows))
-        p, q = horn_gradient(dem, dx, dy)
+        p, q = self._centre_gradient(dem, _stencil_rows(rows))
         ok = ((rows >= 0) & (cols >= 0)).ravel()
         assert self.full is not None
         cell = rows.ravel()[ok] * np.int64(self.full.width) + cols.ravel()[ok]
         _, first = np.unique(cell, return_index=True)          # each distinct cell once
         pick = np.flatnonzero(ok)[first]
-        grads = [(np.ascontiguousarray(g[1::3, 1::3]).ravel()[pick][None, :]) for g in (p, q)]
+        grads = [g.ravel()[pick][None, :] for g in (p, q)]
         o = self.options
         return stretch_factor(None, o.azimuth, o.altitude, o.directions,
                               gradients=[(grads[0], grads[1])])
@@ -281,15 +280,27 @@ class ReliefLayer:
             dx = np.asarray(dx).reshape(-1, 1)[all_rows - r_lo]
         return dx, dy
 
-    def _shade_centres(self, dem: np.ndarray, all_rows: np.ndarray) -> np.ndarray:
-        """Shade (3h, 3w) side-by-side 3 x 3 neighbourhoods of full-canvas cells and keep each
-        one's centre: (h, w) in [0, 1]. ``all_rows``: the full-canvas row of each of the 3h rows
-        (its ground cell size, for geographic CRSs, varies with latitude)."""
-        o = self.options
+    def _centre_gradient(self, dem: np.ndarray, all_rows: np.ndarray
+                         ) -> tuple[np.ndarray, np.ndarray]:
+        """Horn's gradient (h, w) of the centres of (3h, 3w) side-by-side 3 x 3 neighbourhoods
+        of full-canvas cells: what the side-by-side array's gradient has at ``[1::3, 1::3]``,
+        bit for bit, computed for the centres only (:func:`centre_gradient`). ``all_rows``: the
+        full-canvas row of each of the 3h rows (its ground cell size, for geographic CRSs,
+        varies with latitude)."""
+        h, w = dem.shape[0] // 3, dem.shape[1] // 3
         dx, dy = self._cell_sizes(all_rows)
-        shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
-                                 exaggeration=self.exaggeration, directions=o.directions)
-        return np.ascontiguousarray(shade[1::3, 1::3])
+        if np.ndim(dx):
+            dx = np.asarray(dx)[1::3]
+        return centre_gradient(dem.reshape(h, 3, w, 3), dx, dy)
+
+    def _shade_centres(self, dem: np.ndarray, all_rows: np.ndarray) -> np.ndarray:
+        """Shade the centres of (3h, 3w) side-by-side 3 x 3 neighbourhoods of full-canvas cells:
+        (h, w) in [0, 1], the bits :func:`multidirectional` of the side-by-side array gives at
+        its centres (:meth:`_centre_gradient`, :func:`shade_gradient`)."""
+        o = self.options
+        p, q = self._centre_gradient(dem, all_rows)
+        return shade_gradient(p, q, azimuth=o.azimuth, altitude=o.altitude,
+                              exaggeration=self.exaggeration, directions=o.directions)
 
     def close(self) -> None:
         early = getattr(self, "early", None)

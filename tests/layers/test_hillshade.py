@@ -12,10 +12,12 @@ import pytest
 import compose.layers.hillshade as hs
 from compose.layers.hillshade import (
     STRETCH_TARGET,
+    centre_gradient,
     flat_normalised,
     hillshade,
     horn_gradient,
     multidirectional,
+    shade_gradient,
     shade_spread,
     stretch_factor,
 )
@@ -166,6 +168,53 @@ def test_strips_equal_whole_array(monkeypatch):
                   *horn_gradient(dem, dx, DY)]
         for w, s in zip(whole, strips):
             np.testing.assert_array_equal(w, s)
+
+
+def test_centres_only_equal_the_side_by_side_array_bit_for_bit():
+    """centre_gradient and shade_gradient (a draft's relief shades only the centres of its 3 x 3
+    neighbourhoods laid side by side) give exactly horn_gradient's and multidirectional's values
+    at the centres [1::3, 1::3] of the side-by-side array -- which the tests above hold to Horn
+    (1981) -- NaN neighbours (the reflection), NaN centres, per-row dx and several suns
+    included; a plane keeps its closed-form shade (references.md section 6)."""
+    rng = np.random.default_rng(11)
+    for trial in range(24):
+        h, w = (int(v) for v in rng.integers(1, 40, 2))
+        dem = (rng.normal(0, 60, (3 * h, 3 * w)) + 300).astype(np.float32)
+        if trial % 2:
+            dem[rng.random(dem.shape) < 0.1] = np.nan
+        dx = rng.uniform(10, 40, (3 * h, 1)) if trial % 3 == 2 else float(rng.uniform(10, 40))
+        dx_centres = dx[1::3] if np.ndim(dx) else dx
+        p, q = centre_gradient(dem.reshape(h, 3, w, 3), dx_centres, DY)
+        p_all, q_all = horn_gradient(dem, dx, DY)
+        np.testing.assert_array_equal(p, p_all[1::3, 1::3])
+        np.testing.assert_array_equal(q, q_all[1::3, 1::3])
+        for n in (1, 3):
+            k = float(rng.uniform(0.5, 20))
+            np.testing.assert_array_equal(
+                shade_gradient(p, q, 300.0, 40.0, k, n),
+                multidirectional(dem, dx, DY, 300.0, 40.0, k, n)[1::3, 1::3])
+    flat = plane(30.0, 315.0, shape=(6, 9)).astype(np.float32)
+    p, q = centre_gradient(flat.reshape(2, 3, 3, 3), DX, DY)
+    np.testing.assert_allclose(shade_gradient(p, q), 0.965926, atol=1e-6)  # references.md §6
+    with pytest.raises(ValueError):
+        centre_gradient(flat, DX, DY)
+
+
+def test_percentile_is_numpys_bit_for_bit():
+    """The stretch's 95th percentile (hs._percentile, which spares numpy's masked-array
+    import) equals numpy.percentile's default method (Hyndman and Fan 1996, definition 7)
+    exactly, at any size, rank and ties."""
+    rng = np.random.default_rng(5)
+    for trial in range(400):
+        n = int(rng.integers(1, 2000))
+        values = np.abs(rng.normal(0, rng.uniform(0.01, 5), n)).astype(
+            np.float32 if trial % 2 else np.float64)
+        if trial % 5 == 0:
+            values = np.round(values, 1)
+        for q in (95.0, 0.0, 100.0, 50.0, float(rng.uniform(0, 100))):
+            assert hs._percentile(values, q) == float(np.percentile(values, q)), (n, q)
+    with pytest.raises(ValueError):
+        hs._percentile(np.array([], np.float32), 95.0)
 
 
 def test_multidirectional():
