@@ -53,7 +53,7 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
-from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan
+from compose.sources.blocks import MAX_BLOCK_CELLS, READ_AHEAD, BlockPlan
 from compose.sources.crs import metre_projected
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
@@ -492,10 +492,14 @@ class RasterSource:
     # --- planned reads (compose.sources.blocks) ----------------------------------------------
     def plan(self, canvas: Canvas | None, windows: list[Window] = ()) -> bool:
         """Expect the padded reads of ``windows`` of ``canvas`` (a window walk): each source block
-        is then decoded once and shared by the window threads (:class:`BlockPlan`). True when
-        the walk's reads are planned: the canvas is aligned with the source, the reads exact
-        (not decimated) and the blocks tile-sized. ``plan(None)`` forgets the plan."""
-        self._plan = None
+        is then decoded once and shared by the window threads (:class:`BlockPlan`), the next
+        :data:`~compose.sources.blocks.READ_AHEAD` reads' blocks decoded ahead on a thread of
+        the plan's own. True when the walk's reads are planned: the canvas is aligned with the
+        source, the reads exact (not decimated) and the blocks tile-sized. ``plan(None)``
+        forgets the plan (and ends its read-ahead)."""
+        old, self._plan = self._plan, None
+        if old is not None:
+            old.stop()
         if canvas is None or self.decimate or not windows:
             return False
         crs = canvas.crs
@@ -509,8 +513,23 @@ class RasterSource:
                 return False
             _, _, height, width = win.padded
             regions.append((offset[0], offset[1], height, width))
-        self._plan = BlockPlan((bh, bw), (self._ds.height, self._ds.width), regions)
+        self._plan = BlockPlan((bh, bw), (self._ds.height, self._ds.width), regions,
+                               ahead=READ_AHEAD, decode=self._cells, on_exit=self._let_go)
         return True
+
+    def _let_go(self) -> None:
+        """Close the calling thread's own GDAL handles (a read-ahead thread ending), if any."""
+        mine = getattr(self._local, "handles", None)
+        if mine is None or threading.get_ident() == self._owner:
+            return
+        self._local.handles = None
+        with self._lock:
+            if mine in self._others:
+                self._others.remove(mine)
+        ds, view = mine
+        if view is not None:
+            view.close()
+        ds.close()
 
     @property
     def _mask_from_data(self) -> bool:
@@ -654,6 +673,9 @@ class RasterSource:
 
     def close(self) -> None:
         """Close the file (idempotent)."""
+        plan, self._plan = getattr(self, "_plan", None), None
+        if plan is not None:
+            plan.stop()
         for ds, view in getattr(self, "_others", ()):
             if view is not None:
                 view.close()

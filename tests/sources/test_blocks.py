@@ -4,6 +4,7 @@ same values as direct reads, hold about one row of blocks, and leave nothing beh
 The reference is GDAL itself (a direct windowed read of the file through rasterio)."""
 from __future__ import annotations
 
+import threading
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
@@ -13,6 +14,7 @@ from affine import Affine
 from rasterio.env import get_gdal_config
 
 from compose.canvas import Canvas, core_window
+from compose.errors import SourceError
 from compose.sources.blocks import PLANNED_GDAL_CACHE, BlockPlan, planned_walk
 from compose.sources.guard import gdal_cache
 from compose.sources.raster import RasterSource
@@ -143,9 +145,11 @@ def test_walk_bounds_gdal_cache_and_restores_it(tmp_path):
         assert int(get_gdal_config("GDAL_CACHEMAX")) == before
 
 
-def test_core_reads_hold_no_block_across_window_rows(tmp_path):
+def test_core_reads_hold_no_block_across_window_rows(tmp_path, monkeypatch):
     # windows aligned with the blocks: a layer reading window cores only needs each block in
-    # one window, so no block outlives its window row (padded reads keep the next row's)
+    # one window, so no block outlives its window row (padded reads keep the next row's);
+    # without read-ahead, which would hold the next reads' blocks as well
+    monkeypatch.setattr("compose.sources.raster.READ_AHEAD", 0)
     path = _tiled(tmp_path / "c.tif", _data(), nodata=-9999, block=32)
     canvas = Canvas(CRS, T, 160, 192)
     wins = list(canvas.windows(32, margin=3))
@@ -164,3 +168,128 @@ def test_core_reads_hold_no_block_across_window_rows(tmp_path):
                 assert plan.finished
                 assert plan.decoded == blocks           # every block once
             assert (most > 0) == bool(held_after_rows)
+
+
+def _ahead_threads() -> list[threading.Thread]:
+    return [t for t in threading.enumerate() if t.name == "compose-read-ahead"]
+
+
+@pytest.mark.parametrize("threads", [1, 3])
+def test_read_ahead_same_values_each_block_once_and_ends(tmp_path, threads):
+    path = _tiled(tmp_path / "r.tif", _data(), nodata=-9999)
+    canvas = _canvas(4, 9)
+    wins = list(canvas.windows(30, margin=4))
+    with RasterSource(path, layer="r") as direct:
+        want = [direct.read_window(canvas, w) for w in wins]
+    with RasterSource(path, layer="r") as src:
+        layer = type("Layer", (), {"source": src})()
+        with planned_walk([layer], canvas, wins):
+            plan = src._plan
+            assert plan._ahead > 0 and not _ahead_threads()     # started by the first read
+            if threads == 1:                # the owner's thread: no other handle opened
+                got = [src.read_window(canvas, w) for w in wins]
+            else:
+                with ThreadPoolExecutor(threads) as pool:
+                    got = list(pool.map(lambda w: src.read_window(canvas, w), wins))
+            assert plan.finished
+            touched = {key for w in wins for key, _, _ in plan._parts(
+                (w.padded[0] + 4, w.padded[1] + 9, w.padded[2], w.padded[3]))}
+            assert plan.decoded == len(touched)                 # each block once
+        assert src._plan is None and not _ahead_threads()
+        if threads == 1:
+            assert src._others == []        # the read-ahead thread's GDAL handle closed
+    for a, b in zip(want, got):
+        np.testing.assert_array_equal(a, b)
+
+
+def test_read_ahead_runs_ahead_of_the_reads_within_its_bound():
+    shape, block = (640, 640), (32, 32)
+    regions = [(r - 3, c - 3, 70, 70) for r in range(0, 640, 64) for c in range(0, 640, 64)]
+    decoded_by = {}
+
+    def decode(r, c, h, w):
+        decoded_by[(r, c)] = threading.current_thread().name
+        return np.full((h, w), r * 1000 + c, np.float32)
+
+    plan = BlockPlan(block, shape, regions, ahead=3, decode=decode)
+    try:
+        first = regions[0]
+        assert plan.claim(first)
+        # the blocks of reads 1..3 are decoded ahead, nothing further
+        ahead = {key for region in regions[1:4] for key, _, _ in plan._parts(region)}
+        beyond = {key for region in regions[4:] for key, _, _ in plan._parts(region)} - ahead
+        pause = threading.Event()
+        for _ in range(500):
+            with plan._lock:
+                done = {k for k, b in plan._blocks.items() if b.data is not None}
+            if ahead <= done:
+                break
+            pause.wait(0.01)
+        pause.wait(0.05)                    # time to go further, were it to
+        with plan._lock:
+            held = set(plan._blocks)
+        assert ahead <= held and not held & beyond
+        out = np.empty((67, 67), np.float32)
+        plan.read(first, out, decode)
+        for region in regions[1:]:
+            assert plan.claim(region)
+            r0, c0 = max(region[0], 0), max(region[1], 0)
+            out = np.empty((min(region[0] + 70, 640) - r0, min(region[1] + 70, 640) - c0),
+                           np.float32)
+            plan.read(region, out, decode)
+            assert out[-1, -1] == (min(region[0] + 69, 639) // 32 * 32) * 1000 + \
+                min(region[1] + 69, 639) // 32 * 32
+        assert plan.finished and plan.decoded == 20 * 20
+        assert "compose-read-ahead" in decoded_by.values()
+    finally:
+        plan.stop()
+    assert not _ahead_threads()
+
+
+def test_read_ahead_failure_is_raised_by_the_read_that_needs_the_block(tmp_path):
+    # a block the read-ahead cannot decode is decoded again by the walk's read, which raises
+    # (or, when the failure was passing, gets the block's values)
+    shape, block = (64, 64), (32, 32)
+    regions = [(0, 0, 32, 32), (0, 32, 32, 32), (32, 0, 32, 32), (32, 32, 32, 32)]
+    calls = []
+
+    def flaky(r, c, h, w):
+        calls.append((r, c, threading.current_thread().name))
+        if threading.current_thread().name == "compose-read-ahead":
+            raise SourceError("layer \"x\": cannot read x.tif: a damaged block")
+        return np.full((h, w), r + c, np.float32)
+
+    plan = BlockPlan(block, shape, regions, ahead=2, decode=flaky)
+    out = np.empty((32, 32), np.float32)
+    for region in regions:
+        assert plan.claim(region)
+        plan.read(region, out, flaky)
+        assert out[0, 0] == region[0] + region[1]
+    plan.stop()
+    assert plan.finished and plan.decoded == 4
+
+    def broken(r, c, h, w):
+        raise SourceError("layer \"x\": cannot read x.tif: a damaged block")
+
+    plan = BlockPlan(block, shape, regions, ahead=2, decode=broken)
+    try:
+        assert plan.claim(regions[0])
+        with pytest.raises(SourceError, match="damaged block"):
+            plan.read(regions[0], out, broken)
+        assert plan.claim(regions[1])
+        with pytest.raises(SourceError, match="damaged block"):
+            plan.read(regions[1], out, broken)
+    finally:
+        plan.stop()
+
+
+def test_no_read_ahead_without_reads(tmp_path):
+    # a walk whose windows run elsewhere (worker processes) claims nothing here: no thread
+    path = _tiled(tmp_path / "n.tif", _data(), nodata=-9999)
+    canvas = _canvas()
+    wins = list(canvas.windows(50, margin=1))
+    with RasterSource(path, layer="n") as src:
+        layer = type("Layer", (), {"source": src})()
+        with planned_walk([layer], canvas, wins):
+            assert not _ahead_threads()
+        assert src._plan is None and src._plan is None
