@@ -17,7 +17,10 @@ or would read first (a file that appears, changes or goes makes the memo miss), 
 matplotlib and environment (``MPLCONFIGDIR``, ``MATPLOTLIBRC``, XDG folders, home). When
 matplotlib is imported already (the page, a notebook that changed its settings) its live answers
 are used instead, and a string that is mathtext (an even number of unescaped ``$``) goes through
-matplotlib's ``TextPath`` as before. Deleting the memo is always safe.
+matplotlib's ``TextPath`` as before. Deleting the memo is always safe. The font is found through
+matplotlib's public API; the FreeType objects are made and laid out through the private names
+its own text path uses, each behind one function that takes the public path (its package
+imported) where a matplotlib lacks the name (see :func:`font_object`).
 """
 from __future__ import annotations
 
@@ -129,24 +132,43 @@ def _install() -> str | None:
 
 
 def _live(font: str, weight: str) -> Face:
-    """matplotlib's answer for ``font`` and ``weight`` (matplotlib imported). Raises StyleError
-    when it finds no such font."""
+    """matplotlib's answer for ``font`` and ``weight`` (matplotlib imported), through its public
+    ``findfont`` and ``get_data_path``. Raises StyleError when it finds no such font."""
     import matplotlib
-    from matplotlib import cbook
-    from matplotlib.font_manager import FontProperties, findfont, fontManager
+    from matplotlib.font_manager import FontProperties, fontManager
 
     prop = FontProperties(family=font, weight=weight)
     try:
-        findfont(prop, fallback_to_default=False)
+        fontManager.findfont(prop, fallback_to_default=False)
     except ValueError:
         raise StyleError(f"font {font!r} (weight {weight!r}) not found") from None
     paths = tuple((os.path.realpath(getattr(p, "path", p)), int(getattr(p, "face_index", 0)))
-                  for p in fontManager._find_fonts_by_props(prop))
+                  for p in _family_fonts(prop, fontManager))
     rc = matplotlib.rcParams
-    return Face(paths,
-                os.path.realpath(cbook._get_data_path("fonts", "ttf", "LastResortHE-Regular.ttf")),
+    # its Last Resort font, where its font manager takes it from (its data folder)
+    last = os.path.join(matplotlib.get_data_path(), "fonts", "ttf", "LastResortHE-Regular.ttf")
+    return Face(paths, os.path.realpath(last),
                 bool(rc["font.enable_last_resort"]), rc["text.kerning_factor"], rc["text.hinting"],
                 bool(rc["text.parse_math"]))
+
+
+def _family_fonts(prop, manager) -> list:
+    """The font file of each family of ``prop`` that ``manager`` finds (its public
+    ``findfont``, asked one family at a time without falling back), in the families' order --
+    the fallback list matplotlib's text and Agg backends draw with; its default family's font
+    when none is found. As its font manager's ``_find_fonts_by_props`` makes the list (the same
+    calls, minus the warnings for a family it lacks), without that private method."""
+    found = []
+    for family in prop.get_family():
+        one = prop.copy()
+        one.set_family(family)
+        with contextlib.suppress(ValueError):
+            found.append(manager.findfont(one, fallback_to_default=False))
+    if not found:
+        one = prop.copy()
+        one.set_family(manager.defaultFamily["ttf"])
+        found.append(manager.findfont(one))
+    return found
 
 
 def _sources(f: Face) -> tuple[dict[str, str | None], str]:
@@ -330,33 +352,78 @@ if hasattr(os, "register_at_fork"):
     os.register_at_fork(after_in_child=_forget_fonts)
 
 
-def font_object(f: Face):
-    """The FT2Font of ``f`` (its fallbacks and the Last Resort font attached) as matplotlib's
-    ``font_manager.get_font`` makes it: one per face and thread, its transform reset on each
-    call."""
-    key = (f, threading.get_ident())
-    font = _FONTS.get(key)
-    if font is None:
-        ft = ft2font()
-        (first, index), *rest = f.paths
-        fallback = [ft.FT2Font(p, face_index=i, _kerning_factor=f.kerning_factor)
-                    for p, i in rest]
+# matplotlib makes and lays out the FreeType objects (font_manager.get_font, textpath's
+# TextToPath) through names it keeps private: FT2Font's keywords for the fallback fonts, the
+# kerning factor and the Last Resort font's warning, its _set_transform and its _layout (raqm's
+# layout, each glyph with its font). This module does the same without importing matplotlib's
+# package, each name used in one function below; with a matplotlib that lacks one, that function
+# says so and the public path is taken instead -- font_manager.get_font for the font object,
+# TextPath for outlines -- the same numbers, with matplotlib's package imported.
+_FONT_KEYWORDS = {"fallback": "_fallback_list", "kerning": "_kerning_factor",
+                  "warn": "_warn_if_used"}
+_SET_TRANSFORM = "_set_transform"
+_LAYOUT = "_layout"
+
+
+def _private(obj, name: str):
+    """``obj``'s attribute ``name`` (one of matplotlib's private names), None where this
+    matplotlib has none."""
+    return getattr(obj, name, None)
+
+
+def _own_font(f: Face):
+    """The FT2Font of ``f`` as ``font_manager.get_font`` builds it (its fallbacks and the Last
+    Resort font attached), from the extension module alone; None when this matplotlib's FT2Font
+    refuses the private keywords that takes."""
+    ft, kw = ft2font(), _FONT_KEYWORDS
+    kerning = {kw["kerning"]: f.kerning_factor}
+    (first, index), *rest = f.paths
+    try:
+        fallback = [ft.FT2Font(p, face_index=i, **kerning) for p, i in rest]
         try:
             last = f.paths.index((f.last_resort, 0))
         except ValueError:
             last = -1
             if f.enable_last_resort:
-                fallback.append(ft.FT2Font(f.last_resort, _kerning_factor=f.kerning_factor,
-                                           _warn_if_used=True))
+                fallback.append(ft.FT2Font(f.last_resort, **kerning, **{kw["warn"]: True}))
                 last = len(fallback)
-        font = ft.FT2Font(first, face_index=index, _fallback_list=fallback,
-                          _kerning_factor=f.kerning_factor)
-        if last == 0:
-            font.set_charmap(0)
-        elif last > 0:
-            fallback[last - 1].set_charmap(0)
-        _FONTS[key] = font
-    font._set_transform([[0x10000, 0], [0, 0x10000]], [0, 0])
+        font = ft.FT2Font(first, face_index=index, **{kw["fallback"]: fallback}, **kerning)
+    except TypeError:                   # an unexpected keyword: a matplotlib without it
+        return None
+    if last == 0:
+        font.set_charmap(0)
+    elif last > 0:
+        fallback[last - 1].set_charmap(0)
+    return font
+
+
+def _public_font(f: Face):
+    """The FT2Font of ``f`` from matplotlib's public ``font_manager.get_font`` (its package
+    imported; kept there, one per thread; its transform reset there)."""
+    from matplotlib.font_manager import get_font
+
+    if all(i == 0 for _, i in f.paths):
+        return get_font([p for p, _ in f.paths])
+    # a face of a font collection: a matplotlib with FontPath
+    from matplotlib.font_manager import FontPath
+
+    return get_font([FontPath(p, i) for p, i in f.paths])
+
+
+def font_object(f: Face):
+    """The FT2Font of ``f`` (its fallbacks and the Last Resort font attached) as matplotlib's
+    ``font_manager.get_font`` makes it: one per face and thread, its transform reset on each
+    call (:func:`_public_font` where this matplotlib's FT2Font lacks the private keywords)."""
+    key = (f, threading.get_ident())
+    font = _FONTS.get(key)
+    if font is None:
+        own = _own_font(f)
+        font = _FONTS[key] = own if own is not None else False
+    if font is False:
+        return _public_font(f)
+    reset = _private(font, _SET_TRANSFORM)
+    if reset is not None:       # without it nothing to undo: no one else transforms this object
+        reset([[0x10000, 0], [0, 0x10000]], [0, 0])
     return font
 
 
@@ -425,15 +492,18 @@ def text_outline(text: str, size_px: float, font: str = "DejaVu Sans",
     f = face(font, weight)
     if f.parse_math and _is_math(text):
         return _math_outline(text, size_px, font, weight)
+    ft = font_object(f)
+    layout = _private(ft, _LAYOUT)
+    if layout is None:
+        return _public_outline(text, size_px, font, weight)
     if f.parse_math:
         text = text.replace(r"\$", "$")
-    ft = font_object(f)
     ft.set_size(FONT_SCALE, _DPI)
     flags = ft2font().LoadFlags.NO_HINTING
     verts: list = []
     codes: list = []
     outlines: dict = {}
-    for item in ft._layout(text, flags, features=None, language=None):
+    for item in layout(text, flags, features=None, language=None):
         obj = item.ft_object
         obj.load_glyph(item.glyph_index, flags=flags)
         key = (obj.postscript_name, item.glyph_index)
@@ -449,6 +519,19 @@ def text_outline(text: str, size_px: float, font: str = "DejaVu Sans",
     out[:, 0] = (scale * vertices[:, 0] + 0.0 * vertices[:, 1]) + 0.0
     out[:, 1] = (0.0 * vertices[:, 0] + scale * vertices[:, 1]) + 0.0
     return out, np.asarray(codes)      # as its list of codes becomes one (empty: float64)
+
+
+def _public_outline(text: str, size_px: float, font: str, weight: str):
+    """:func:`text_outline` by matplotlib's public ``TextPath`` (where its FT2Font has no
+    ``_layout``): nothing for text with nothing to draw, which TextPath refuses."""
+    if not text.strip():
+        return np.empty((0, 2)), np.asarray([])
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextPath
+
+    prop = FontProperties(family=font, weight=weight, size=float(size_px))
+    tp = TextPath((0.0, 0.0), text, size=size_px, prop=prop)
+    return np.array(tp.vertices, np.float64), np.asarray(tp.codes)
 
 
 def _math_outline(text: str, size_px: float, font: str, weight: str):

@@ -167,3 +167,94 @@ def test_settings_a_program_changed_are_not_remembered(tmp_path):
     assert not (tmp_path / label_text.MEMO_FILE).exists()
     first = _measure(tmp_path, tmp_path)
     assert first["matplotlib"] and (tmp_path / label_text.MEMO_FILE).is_file()
+
+
+@pytest.mark.parametrize("props", [
+    {"family": "DejaVu Sans"}, {"family": "DejaVu Sans", "weight": "bold"},
+    {"family": ["sans-serif"]}, {"family": "monospace", "style": "italic"},
+    {"family": ["No Such Font Family 123", "DejaVu Serif", "DejaVu Sans"]},
+    {"family": ["No Such Font Family 123"]},
+])
+def test_the_public_font_list_is_the_font_managers(props):
+    """The fonts found through matplotlib's public ``findfont`` one family at a time are the
+    list its font manager's ``_find_fonts_by_props`` gives (the reference, where this
+    matplotlib still has it), in order, with the default family's for none found; the Last
+    Resort font's path from the public ``get_data_path`` is the one ``cbook._get_data_path``
+    gives."""
+    import logging
+
+    from matplotlib import cbook
+    from matplotlib.font_manager import FontProperties, fontManager
+
+    reference = getattr(fontManager, "_find_fonts_by_props", None)
+    if reference is None:
+        pytest.skip("this matplotlib has no _find_fonts_by_props to compare with")
+    prop = FontProperties(**props)
+    logging.getLogger("matplotlib.font_manager").disabled = True    # its missing-family warnings
+    try:
+        assert label_text._family_fonts(prop, fontManager) == reference(prop)
+    finally:
+        logging.getLogger("matplotlib.font_manager").disabled = False
+    getter = getattr(cbook, "_get_data_path", None)
+    if getter is not None:
+        last = label_text._live("DejaVu Sans", "normal").last_resort
+        assert last == os.path.realpath(getter("fonts", "ttf", "LastResortHE-Regular.ttf"))
+
+
+@pytest.mark.parametrize("missing", ["keywords", "layout", "transform", "all"])
+def test_without_matplotlibs_private_names_the_public_path_gives_the_same(monkeypatch, missing):
+    """A matplotlib without one of the private names label_text uses (FT2Font's keywords for
+    fallbacks and kerning, its _layout, its _set_transform; here renamed to names it lacks) makes
+    label_text take the public path -- font_manager.get_font, TextPath -- with the same boxes
+    and outlines bit for bit as the references (RendererAgg.get_text_width_height_descent and
+    TextPath, matplotlib's public API) and as the private path: no traceback, no other map."""
+    import warnings
+
+    from matplotlib.backends.backend_agg import RendererAgg
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextPath
+
+    from compose.layers import labels_along
+
+    size, font, weight = 6.5, "DejaVu Sans", "bold"
+    face = label_text.face(font, weight)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")             # the glyphs DejaVu Sans lacks
+        private = {t: (label_text._text_extent(t, size, face),
+                       label_text.text_outline(t, size, font, weight)) for t in TEXTS}
+        run = labels_along.glyph_run.__wrapped__("Río Verde", size, font, weight)
+
+    monkeypatch.setattr(label_text, "_FONTS", {})   # font objects made afresh
+    taken = []
+    monkeypatch.setattr(label_text, "_public_font",
+                        lambda f, real=label_text._public_font: taken.append("font") or real(f))
+    monkeypatch.setattr(label_text, "_public_outline", lambda *a, real=label_text._public_outline:
+                        taken.append("outline") or real(*a))
+    if missing in ("keywords", "all"):
+        monkeypatch.setattr(label_text, "_FONT_KEYWORDS",
+                            {k: "_no_such" + v for k, v in label_text._FONT_KEYWORDS.items()})
+    if missing in ("layout", "all"):
+        monkeypatch.setattr(label_text, "_LAYOUT", "_no_such_layout")
+    if missing in ("transform", "all"):
+        monkeypatch.setattr(label_text, "_SET_TRANSFORM", "_no_such_set_transform")
+
+    renderer = RendererAgg(1, 1, 72.0)
+    prop = FontProperties(family=font, weight=weight, size=size)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for text in TEXTS:
+            box = label_text._text_extent(text, size, face)
+            v, codes = label_text.text_outline(text, size, font, weight)
+            assert box == private[text][0], text
+            assert v.tobytes() == private[text][1][0].tobytes(), text
+            assert np.array_equal(codes, private[text][1][1]), text
+            if "$" not in text:
+                assert box == tuple(renderer.get_text_width_height_descent(text, prop, False))
+            if text.strip():
+                tp = TextPath((0.0, 0.0), text, size=size, prop=prop)
+                assert v.tobytes() == np.asarray(tp.vertices, np.float64).tobytes(), text
+        again = labels_along.glyph_run.__wrapped__("Río Verde", size, font, weight)
+    assert np.array_equal(again.x, run.x) and np.array_equal(again.advance, run.advance)
+    # the public path was taken for what is missing, and only then
+    assert ("font" in taken) == (missing in ("keywords", "all"))
+    assert ("outline" in taken) == (missing in ("layout", "all"))
