@@ -959,6 +959,40 @@ done:
     return result;
 }
 
+/* One row of palette() in one pass, for the common layout (uint16 entries, contiguous rows of
+ * the backdrop and alpha): each pixel's entry read once (wrapped as np.take's "wrap"), counted
+ * when the column is in c0..c1 (count != 0), its three colours read together from tab4 (the
+ * table as (n, 4) float32: r, g, b, unused) and each channel composited by over(), the same
+ * float32 steps as the per-channel loops. Inlined with mode, opaque and bcast constant. */
+static inline __attribute__((always_inline)) void palette_row_body(
+        float *restrict b0, float *restrict b1, float *restrict b2, const uint16_t *restrict ir,
+        const float *restrict tab4, const float *restrict a, Py_ssize_t *restrict cnt,
+        Py_ssize_t n, Py_ssize_t w, Py_ssize_t c0, Py_ssize_t c1, int multiply, int opaque,
+        int bcast) {
+    for (Py_ssize_t j = 0; j < w; j++) {
+        Py_ssize_t v = ir[j];
+        if (v >= n) v %= n;
+        if (cnt && j >= c0 && j < c1) cnt[v]++;
+        const float *t = tab4 + 4 * v;
+        const float aj = opaque ? 1.0f : (bcast ? a[0] : a[j]);
+        b0[j] = over(b0[j], t[0], multiply, opaque, aj);
+        b1[j] = over(b1[j], t[1], multiply, opaque, aj);
+        b2[j] = over(b2[j], t[2], multiply, opaque, aj);
+    }
+}
+
+static __attribute__((noinline)) void palette_row(
+        float *b0, float *b1, float *b2, const uint16_t *ir, const float *tab4, const float *a,
+        Py_ssize_t *cnt, Py_ssize_t n, Py_ssize_t w, Py_ssize_t c0, Py_ssize_t c1, int mode,
+        int opaque, int bcast) {
+    if (mode == 0 && opaque) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 0, 1, 0);
+    else if (mode == 0 && bcast) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 0, 0, 1);
+    else if (mode == 0) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 0, 0, 0);
+    else if (opaque) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 1, 1, 0);
+    else if (bcast) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 1, 0, 1);
+    else palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 1, 0, 0);
+}
+
 PyDoc_STRVAR(palette_doc,
 "palette(backdrop, table, index, alpha, mode, opaque, counts, r0, r1, c0, c1)\n\n"
 "compose.composite.composite_palette's float32 arithmetic, pixel by pixel, in place on backdrop\n"
@@ -997,7 +1031,10 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     const float *tab = (const float *)table.b.buf;
     Py_ssize_t *cnt = counts.held ? (Py_ssize_t *)counts.b.buf : NULL;
     Py_ssize_t *idx = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(w + 1));
-    if (!idx) {
+    float *tab4 = (float *)PyMem_RawMalloc(sizeof(float) * 4 * (size_t)n);
+    if (!idx || !tab4) {
+        PyMem_RawFree(idx);
+        PyMem_RawFree(tab4);
         PyErr_NoMemory();
         goto done;
     }
@@ -1006,7 +1043,24 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     const Py_ssize_t aj = bcast ? 0 : alpha.b.strides[1];
     const int isize = (int)index.b.itemsize, isigned = index.kind == K_INT;
     const int u16 = isize == 2 && !isigned && ij == 2;
-    for (Py_ssize_t i = 0; i < h; i++) {
+    /* the common layout: every row in one pass (palette_row) */
+    const int fused = u16 && bj == (Py_ssize_t)sizeof(float)
+                      && (bcast || aj == (Py_ssize_t)sizeof(float));
+    if (fused)
+        for (Py_ssize_t k = 0; k < n; k++) {
+            tab4[4 * k] = tab[k];
+            tab4[4 * k + 1] = tab[n + k];
+            tab4[4 * k + 2] = tab[2 * n + k];
+            tab4[4 * k + 3] = 0.0f;
+        }
+    for (Py_ssize_t i = 0; fused && i < h; i++) {
+        const int counted = cnt && i >= r0 && i < r1;
+        palette_row((float *)AT3(back, 0, i, 0), (float *)AT3(back, 1, i, 0),
+                    (float *)AT3(back, 2, i, 0), (const uint16_t *)AT2(index, i, 0), tab4,
+                    bcast ? (const float *)alpha.b.buf : (const float *)AT2(alpha, i, 0),
+                    counted ? cnt : NULL, n, w, c0, c1, mode, opaque, bcast);
+    }
+    for (Py_ssize_t i = 0; !fused && i < h; i++) {
         const char *irow = AT2(index, i, 0);
         if (u16) {          /* contiguous uint16 entries: converted and counted in one pass */
             const uint16_t *ir = (const uint16_t *)irow;
@@ -1069,6 +1123,7 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     }
     Py_END_ALLOW_THREADS
     PyMem_RawFree(idx);
+    PyMem_RawFree(tab4);
     Py_INCREF(Py_None);
     result = Py_None;
 done:
