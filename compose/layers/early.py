@@ -30,18 +30,25 @@ PAD = 16
 
 class EarlyRead:
     """``read(window)`` for the whole canvas (padded by :data:`PAD`), on the draft's reading
-    thread (:func:`_submit`: one for all the layers' early reads, in the order they were made)."""
+    thread (:func:`_submit`: one for all the layers' early reads, in the order they were made).
+    ``source``: the layer's :class:`compose.sources.raster.RasterSource`, read through its own
+    handle (:meth:`~compose.sources.raster.RasterSource.lent`; the layer takes the result
+    instead of reading it meanwhile), so the reading thread opens no GDAL handle of its own."""
 
-    def __init__(self, canvas: Canvas, read: Callable[[Window], np.ndarray]) -> None:
+    def __init__(self, canvas: Canvas, read: Callable[[Window], np.ndarray],
+                 source=None) -> None:
         self.window = canvas.whole(PAD)
         self.future: Future = Future()
-        _submit(lambda: self._run(read))
+        _submit(lambda: self._run(read, source))
 
-    def _run(self, read) -> None:
+    def _run(self, read, source=None) -> None:
+        import contextlib
+
         from compose.timeline import span
 
         try:
-            with span("draft early read"):
+            with span("draft early read"), (
+                    source.lent() if source is not None else contextlib.nullcontext()):
                 got = read(self.window)
             self.future.set_result(got)
         except BaseException as exc:        # re-raised where the paint takes it

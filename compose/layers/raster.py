@@ -88,7 +88,7 @@ class FieldLayer:
         # decimating all of them (compose.layers.early.BlockSample)
         self.sample = _block_sample(self.source, context) if context.draft else None
         # a draft's decimated read runs beside the rest of the preparation (compose.layers.early)
-        self.early = EarlyRead(self.canvas, self._read) if context.draft else None
+        self.early = EarlyRead(self.canvas, self._read, self.source) if context.draft else None
 
     def _read(self, window) -> np.ndarray:
         if self.sample is not None:

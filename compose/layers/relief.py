@@ -146,7 +146,8 @@ class ReliefLayer:
             self._settle()
         # a draft's stretch is measured and its rows decoded beside the rest of the preparation
         # (compose.layers.early): the same numbers, off the preparing thread
-        self.early = EarlyRead(self.canvas, self._draft_shade) if self.full is not None else None
+        self.early = (EarlyRead(self.canvas, self._draft_shade, self.source)
+                      if self.full is not None else None)
 
     def _settle(self) -> None:
         """Decide the "auto" stretch once (before the first shade is made)."""

@@ -32,11 +32,13 @@ Units: values are the source's own; cell sizes in metres (:func:`cell_size_metre
 """
 from __future__ import annotations
 
+import contextlib
 import functools
 import math
 import os
 import threading
 import warnings
+from collections.abc import Iterator
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -656,6 +658,20 @@ class RasterSource:
         return data
 
     # --- lifetime ---------------------------------------------------------------------------
+    @contextlib.contextmanager
+    def lent(self) -> Iterator[None]:
+        """The calling thread reads through the source's own handle while the block runs, as the
+        thread that opened it does, which must not read meanwhile (if it does, it reads through
+        a handle of its own): for a read handed to another thread while the opening thread
+        waits for its result (a draft's early read, :mod:`compose.layers.early`). A thread's
+        first GDAL handle also sets up GDAL's and PROJ's state for that thread: about 10 ms of
+        CPU here, which such a thread then spares."""
+        owner, self._owner = self._owner, threading.get_ident()
+        try:
+            yield
+        finally:
+            self._owner = owner
+
     def reopen(self) -> None:
         """Read through handles of this process's own from now on: in a process forked after
         the source was opened (the check's window helpers, compose.api), whose inherited GDAL

@@ -342,6 +342,59 @@ def test_early_reads_run_one_after_another_on_one_thread_that_ends_when_idle():
     assert not any(t.name == "draft-read" for t in threading.enumerate())
 
 
+def test_early_reads_read_through_the_layers_own_handles(tmp_path):
+    """A draft's early reads run on the reading thread through the handle the layer opened its
+    source with (RasterSource.lent): no handle of that thread's own (each first handle of a
+    thread also sets up GDAL's and PROJ's state for it), the same pixels as reads made when the
+    window is painted; a thread reading a lent source's cells meanwhile (here the opening one)
+    reads them through a handle of its own, the same values."""
+    import threading
+
+    from compose.sources.raster import RasterSource
+
+    style = load_style(_big_style(tmp_path, n=1024, tile=64))
+    for draft in (True, False):
+        canvas = draft_canvas(style.canvas()) if draft else style.canvas()
+        prepared = prepare(style, canvas=canvas, draft=draft)
+        try:
+            rasters = [la for la in prepared.layers if la.spec.kind in ("relief", "field")]
+            assert len(rasters) == 2
+            for layer in rasters:
+                if layer.early is not None:
+                    layer.early.wait()
+                assert layer.source._others == []          # no handle of another thread
+                assert layer.source._owner == threading.get_ident()
+            if draft:
+                (window,) = prepared.windows()
+                first = render_window(prepared, window)
+                for layer in rasters:
+                    layer.early = None                     # read when painted instead
+                assert np.array_equal(first.rgb8, render_window(prepared, window).rgb8)
+        finally:
+            prepared.close()
+    source = RasterSource(tmp_path / "dem.tif", layer="relief")
+    try:
+        want = source.block_cells(64, 128, 64, 64)
+        got: list = []
+
+        def other():
+            with source.lent():
+                got.append(source.block_cells(64, 128, 64, 64))
+                here = threading.Thread(target=lambda: got.append(source.block_cells(
+                    64, 128, 64, 64)))
+                here.start()
+                here.join()
+
+        reader = threading.Thread(target=other)
+        reader.start()
+        reader.join()
+        assert len(got) == 2 and all(np.array_equal(g, want, equal_nan=True) for g in got)
+        assert len(source._others) == 1                    # the third thread's own handle
+        assert np.array_equal(source.block_cells(64, 128, 64, 64), want, equal_nan=True)
+    finally:
+        source.close()
+
+
 def _regional(folder: Path, n: int, seed: int) -> None:
     """Rewrite _big_style's rasters as a map that changes by region: a theme rising from west to
     east with a block of high values in the south-east, terrain with one steep mountain in the
