@@ -15,6 +15,7 @@ own 3x3 neighbourhood).
 """
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -268,7 +269,7 @@ def multidirectional(dem: np.ndarray, dx, dy, azimuth: float = 315.0, altitude: 
         raise ValueError(f"altitude must be in (0, 90] degrees, got {altitude}")
     dem = np.asarray(dem)
     dxv, dyv = _cell_sizes(dem, dx, dy)
-    light = _Light(azimuth, altitude, exaggeration, directions)
+    light = _light(float(azimuth), float(altitude), float(exaggeration), directions)
     out = np.empty(dem.shape, np.float32)
     if _compiled_shade(dem, dxv, dyv, light, out):
         return out
@@ -296,12 +297,17 @@ def _compiled_shade(dem: np.ndarray, dx: np.ndarray | float, dy: float, light: _
         scale_p = np.full(dem.shape[0], np.float32(1.0 / (8.0 * float(dx))), np.float32)
     else:
         scale_p = (1.0 / (8.0 * np.asarray(dx))).astype(np.float32).reshape(-1)
-    cx = np.array(light.cx, np.float32)
-    cy = np.array(light.cy, np.float32)
-    weights = np.array([np.float32(w) for w in light.weights], np.float32)
+    cx, cy, weights = light.packed
     return bool(kernel.hillshade(np.ascontiguousarray(dem), scale_p,
                                  float(np.float32(1.0 / (8.0 * dy))), float(light.k2),
                                  float(light.sin_alt), cx, cy, weights, out))
+
+
+@functools.lru_cache(maxsize=64)
+def _light(azimuth: float, altitude: float, exaggeration: float, directions: int) -> _Light:
+    """The :class:`_Light` of these suns, made once (a window walk shades every window under
+    the same suns; the object is only read)."""
+    return _Light(azimuth, altitude, exaggeration, directions)
 
 
 class _Light:
@@ -317,6 +323,9 @@ class _Light:
         self.cx = [np.float32(-exaggeration * cos_alt * math.sin(a)) for a in az]
         self.cy = [np.float32(-exaggeration * cos_alt * math.cos(a)) for a in az]
         self.k2 = np.float32(exaggeration * exaggeration)
+        #: the suns' coefficients and weights as float32 arrays, for the compiled kernel
+        self.packed = (np.array(self.cx, np.float32), np.array(self.cy, np.float32),
+                       np.array([np.float32(w) for w in self.weights], np.float32))
 
     def buffers(self, rows: int, width: int) -> tuple:
         den, num, tmp = (np.empty((rows, width), np.float32) for _ in range(3))

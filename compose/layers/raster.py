@@ -115,9 +115,17 @@ class FieldLayer:
 
     def paint(self, window, transform, height, width) -> list[Paint]:
         values = self.early.take(window) if self.early is not None else None
-        if values is None:
-            values = self._read(window)
-        index = lut_index(self.lut, values)
+        if values is None and self.sample is None and self.core_reads and window.margin:
+            # only the core read and indexed; the margin is no-data, as a NaN gives (the
+            # index of :meth:`_read`'s values, without filling and copying them first)
+            core = self.source.read_window(self.canvas, core_window(window),
+                                           self.options.resampling)
+            index = np.full((height, width), self.lut.nodata_index, np.uint16)
+            index[window.inner] = lut_index(self.lut, core)
+        else:
+            if values is None:
+                values = self._read(window)
+            index = lut_index(self.lut, values)
         if self.transparent_nodata:
             alpha = (index != self.lut.nodata_index).astype(np.float32)
         else:

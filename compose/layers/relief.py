@@ -18,7 +18,7 @@ from compose.layers.early import PAD, BlockSample, EarlyRead
 from compose.layers.hillshade import centre_gradient, multidirectional, shade_gradient, stretch_factor
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
-from compose.sources.crs import never_mercator
+from compose.sources.crs import metre_projected, never_mercator
 from compose.sources.raster import cell_size_metres
 
 __all__ = ["ReliefLayer", "relief_palette", "shade_levels", "ground_cell_size", "ground_scale", "LEVELS",
@@ -128,6 +128,10 @@ class ReliefLayer:
         # the style fills ``shadow`` from the tint when it is not given (compose.ramps.relief.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
         self.scale = ground_scale(self.canvas.crs)
+        # a projected CRS in metres: every window's cells are the canvas's own size in metres
+        # (what cell_size_metres answers, looked up once instead of per window)
+        self.metres = (abs(self.canvas.transform.a), abs(self.canvas.transform.e)) \
+            if self.scale is None and metre_projected(self.canvas.crs) else None
         # a draft shades the full canvas's own cells, sampled (see _draft_shade)
         self.full: Canvas | None = None
         self.factor = 1
@@ -185,7 +189,8 @@ class ReliefLayer:
                 shade = self._draft_shade(window)
         else:
             dem = self.source.read_window(self.canvas, window, o.resampling)
-            dx, dy = ground_cell_size(self.canvas.crs, transform, height, self.scale)
+            dx, dy = self.metres if self.metres is not None else \
+                ground_cell_size(self.canvas.crs, transform, height, self.scale)
             shade = multidirectional(dem, dx, dy, azimuth=o.azimuth, altitude=o.altitude,
                                      exaggeration=self.exaggeration, directions=o.directions)
         index, alpha = shade_levels(shade)
