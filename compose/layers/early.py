@@ -210,6 +210,35 @@ def sampled_cells(full_shape: tuple[int, int], factor: int, rows: np.ndarray, co
     return out_r, out_c
 
 
+def _grid_tasks(fr: np.ndarray, fc: np.ndarray, ok: np.ndarray, block: tuple[int, int]
+                ) -> tuple[dict[tuple[int, int], list], np.ndarray, np.ndarray]:
+    """How to cut the cells (fr, fc) (file cells, (h, w) int64) where ``ok`` out of the file's
+    blocks (``block``: (rows, cols) of a block) a grid at a time: the rows whose ``ok`` cells all
+    lie on one file row (``whole``, (h,) bool; ``row``: that file row, (h,)) are grouped by their
+    block row and their columns (rows alike: the draft's rows in one row of blocks), each group's
+    columns split by block column; returns ({(block row, block column): [(draft rows, draft
+    columns), ...]}, whole, row), both index arrays ascending. Every ``ok`` cell of a whole row
+    is in one task, once."""
+    bh, bw = block
+    big = np.iinfo(np.int64).max
+    row = np.where(ok, fr, big).min(axis=1)
+    whole = ok.any(axis=1) & (row == np.where(ok, fr, -1).max(axis=1))
+    groups: dict[tuple, list[int]] = {}
+    for ri in np.flatnonzero(whole).tolist():
+        groups.setdefault((int(row[ri]) // bh, fc[ri].tobytes(), ok[ri].tobytes()), []).append(ri)
+    tasks: dict[tuple[int, int], list] = {}
+    for (b_row, _, _), members in groups.items():
+        rows_i = np.array(members)
+        js = np.flatnonzero(ok[members[0]])
+        b_col = fc[members[0], js] // bw
+        order = np.argsort(b_col, kind="stable")
+        js, b_col = js[order], b_col[order]
+        cut = np.flatnonzero(np.r_[True, b_col[1:] != b_col[:-1], True])
+        for k0, k1 in zip(cut[:-1], cut[1:]):
+            tasks.setdefault((b_row, int(b_col[k0])), []).append((rows_i, js[k0:k1]))
+    return tasks, whole, row
+
+
 class BlockSample:
     """A draft's reads of an aligned, tiled file without overviews at the draft's scale, from an
     evenly spread sample of whole blocks (see :func:`sampled_cells`): each block read is decoded
@@ -281,10 +310,43 @@ class BlockSample:
         return got
 
     def read(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
-        """float32 values of full-canvas cells (any shape; -1 or outside the file: NaN)."""
+        """float32 values of full-canvas cells (any shape; -1 or outside the file: NaN), as
+        :meth:`RasterSource.cells_at <compose.sources.raster.RasterSource.cells_at>` reads
+        them. Rows of a 2-D grid whose cells lie on one file row (the draft's own cells,
+        :meth:`cells`) are cut out of their blocks a grid of rows by columns at a time, each
+        block decoded once; any other cell is read by ``cells_at`` (which decodes its blocks
+        once more)."""
         orow, ocol = self.offset
+        rows = np.asarray(rows, np.int64)
+        cols = np.asarray(cols, np.int64)
         bad = (rows < 0) | (cols < 0)
-        return self.source.cells_at(np.where(bad, -1, rows + orow), np.where(bad, -1, cols + ocol))
+        fr, fc = np.where(bad, -1, rows + orow), np.where(bad, -1, cols + ocol)
+        if rows.ndim != 2:
+            return self.source.cells_at(fr, fc)
+        fh, fw = self.source.shape
+        ok = ~bad & (fr >= 0) & (fr < fh) & (fc >= 0) & (fc < fw)
+        tasks, whole_rows, lo = _grid_tasks(fr, fc, ok, self.block)
+        rest = ~whole_rows[:, None] & ok
+        if rest.any():
+            out = self.source.cells_at(np.where(rest, fr, -1), np.where(rest, fc, -1))
+        else:
+            out = np.full(rows.shape, np.nan, np.float32)
+        bh, bw = self.block
+        for (b_row, b_col) in sorted(tasks):
+            br, bc = b_row * bh, b_col * bw
+            block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc))
+            for rows_i, js in tasks[(b_row, b_col)]:
+                cut_out = block.take(lo[rows_i] - br, axis=0).take(fc[rows_i[0], js] - bc, axis=1)
+                if rows_i[-1] - rows_i[0] + 1 == rows_i.size and js[-1] - js[0] + 1 == js.size:
+                    out[rows_i[0]:rows_i[-1] + 1, js[0]:js[-1] + 1] = cut_out
+                else:
+                    out[np.ix_(rows_i, js)] = cut_out
+        return out
+
+    def source_block(self, row: int, col: int, height: int, width: int) -> np.ndarray:
+        """The file's cells of a block (file cells), float32, C-contiguous: decoded once per
+        call of :meth:`neighbourhoods` for all the centres in it."""
+        return np.ascontiguousarray(self.source.block_cells(row, col, height, width))
 
     def values(self, window: Window) -> np.ndarray:
         """The padded ``window``'s draft values: float32 (padded height, padded width)."""
@@ -316,8 +378,27 @@ class BlockSample:
                 & ((fc - 1) // bw == blk_c) & ((fc + 1) // bw == blk_c))
         step = np.array([-1, 0, 1])
         flat = out.reshape(-1)
-        idx = np.flatnonzero(fast)
-        if idx.size:
+        # rows whose centres all lie on one file row (each row of the draft's own cells): their
+        # neighbourhoods are cut out of a block whole, a grid of rows by columns at a time
+        tasks, whole_rows, lo = _grid_tasks(fr, fc, fast, self.block)
+        idx = np.flatnonzero(fast & ~whole_rows[:, None])
+        kept: dict[tuple[int, int], np.ndarray] = {}     # blocks the rest needs too
+        rest = set(zip((blk_r.ravel()[idx]).tolist(), (blk_c.ravel()[idx]).tolist()))
+        for (b_row, b_col) in sorted(tasks):
+            br, bc = b_row * bh, b_col * bw
+            block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc))
+            if (b_row, b_col) in rest:
+                kept[(b_row, b_col)] = block
+            for rows_i, js in tasks[(b_row, b_col)]:
+                r3 = (lo[rows_i][:, None] + step).ravel() - br
+                c3 = (fc[rows_i[0], js][:, None] + step).ravel() - bc
+                cut_out = block.take(r3, axis=0).take(c3, axis=1).reshape(
+                    rows_i.size, 3, js.size, 3)
+                if rows_i[-1] - rows_i[0] + 1 == rows_i.size and js[-1] - js[0] + 1 == js.size:
+                    out[rows_i[0]:rows_i[-1] + 1, :, js[0]:js[-1] + 1, :] = cut_out
+                else:
+                    out[np.ix_(rows_i, np.arange(3), js, np.arange(3))] = cut_out
+        if idx.size:        # the rest of the centres: grouped by block, each gathered alone
             bid = blk_r.ravel()[idx] * (-(-fw // bw)) + blk_c.ravel()[idx]
             order = np.argsort(bid, kind="stable")
             idx, bid = idx[order], bid[order]
@@ -333,7 +414,8 @@ class BlockSample:
                 r, c = fr_all[s0:s1], fc_all[s0:s1]
                 br, bc = int(r[0]) // bh * bh, int(c[0]) // bw * bw
                 nh, nw = min(bh, fh - br), min(bw, fw - bc)
-                block = np.ascontiguousarray(self.source.block_cells(br, bc, nh, nw))
+                got = kept.pop((br // bh, bc // bw), None)
+                block = got if got is not None else self.source_block(br, bc, nh, nw)
                 near = (step[:, None] * nw + step[None, :]).ravel()          # (9,)
                 at = (r - br) * nw + (c - bc)
                 flat[(dest[s0:s1, None] + spots).ravel()] = \

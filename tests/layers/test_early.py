@@ -246,6 +246,17 @@ def test_neighbourhoods_gathered_by_block_are_the_cells_read_one_by_one(tmp_path
             cols[:, :4] = [[0, 63, 64, n - 2]]
             got = sample.neighbourhoods(rows, cols)
             assert np.array_equal(got, _read_each(sample, rows, cols), equal_nan=True)
+            # BlockSample.read cuts whole rows out of blocks: the cells RasterSource.cells_at
+            # reads one by one, for the draft's cells, these and a mix of both
+            orow, ocol = sample.offset
+            draft_rows, draft_cols = sample.cells(draft.whole(3))
+            mixed_rows = np.vstack([draft_rows[:30, :50], rows])
+            mixed_cols = np.vstack([draft_cols[:30, :50], cols])
+            for r, c in ((draft_rows, draft_cols), (rows, cols), (mixed_rows, mixed_cols),
+                         (rows[3], cols[3])):
+                off = (r < 0) | (c < 0)
+                want = source.cells_at(np.where(off, -1, r + orow), np.where(off, -1, c + ocol))
+                assert np.array_equal(sample.read(r, c), want, equal_nan=True)
         finally:
             source.close()
 
