@@ -13,7 +13,6 @@ from __future__ import annotations
 import contextlib
 import json
 import os
-import tempfile
 from pathlib import Path
 
 __all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs", "accepted"]
@@ -106,6 +105,9 @@ def remember_crs(value: str) -> None:
         return
     per[stamp] = (valid + [value])[-256:]          # this install's list goes last (newest)
     per = dict(list(per.items())[-_INSTALLS:])
+    # imported here only: 3 ms of the start-up of every command, which reads this file
+    import tempfile
+
     with contextlib.suppress(OSError):
         root.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(prefix=".crs-", suffix=".part", dir=root)

@@ -143,8 +143,8 @@ class ReliefLayer:
         self.stretch = 1.0
         self.exaggeration = o.exaggeration
         self._settled = False
-        # a sampled draft's cells and neighbourhoods of the window its stretch was measured on,
-        # until that window is shaded (see _sampled_stretch)
+        # a sampled draft's Horn gradient of the window its stretch was measured on, until
+        # that window is shaded (see _sampled_stretch)
         self._gathered: tuple | None = None
         if self.full is None:
             self._settle()
@@ -236,17 +236,16 @@ class ReliefLayer:
         """:meth:`_draft_shade` from a sample of the file's blocks: each draft pixel's cell is
         the one :class:`compose.layers.early.BlockSample` gives it (a cell of a block read, in
         the pixel's own row of blocks), shaded from its own 3 x 3 neighbourhood."""
+        kept, self._gathered = self._gathered, None
+        if kept is not None and kept[0] == window.padded:     # the stretch's own gradient
+            return self._shade_gradient(*kept[1])
         rows, _, dem = self._gather(window)
         return self._shade_centres(dem, _stencil_rows(rows))
 
     def _gather(self, window) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(rows, cols, dem) of a sampled draft's padded ``window``: the full-canvas cells of its
-        pixels ((h, w), -1: outside) and their 3 x 3 neighbourhoods side by side ((3h, 3w)); those
-        the stretch was measured on are taken once instead of gathered again."""
+        pixels ((h, w), -1: outside) and their 3 x 3 neighbourhoods side by side ((3h, 3w))."""
         assert self.full is not None and self.sample is not None
-        kept, self._gathered = self._gathered, None
-        if kept is not None and kept[0] == window.padded:
-            return kept[1], kept[2], kept[3]
         rows, cols = self.sample.cells(window)
         return rows, cols, self.sample.neighbourhoods(rows, cols)
 
@@ -261,8 +260,8 @@ class ReliefLayer:
         factor (tests/layers/test_early.py)."""
         window = self.canvas.whole(PAD)
         rows, cols, dem = self._gather(window)
-        self._gathered = (window.padded, rows, cols, dem)      # shaded next (_sampled_shade)
         p, q = self._centre_gradient(dem, _stencil_rows(rows))
+        self._gathered = (window.padded, (p, q))      # shaded next (_sampled_shade)
         ok = ((rows >= 0) & (cols >= 0)).ravel()
         assert self.full is not None
         cell = rows.ravel()[ok] * np.int64(self.full.width) + cols.ravel()[ok]
@@ -303,8 +302,11 @@ class ReliefLayer:
         """Shade the centres of (3h, 3w) side-by-side 3 x 3 neighbourhoods of full-canvas cells:
         (h, w) in [0, 1], the bits :func:`multidirectional` of the side-by-side array gives at
         its centres (:meth:`_centre_gradient`, :func:`shade_gradient`)."""
+        return self._shade_gradient(*self._centre_gradient(dem, all_rows))
+
+    def _shade_gradient(self, p: np.ndarray, q: np.ndarray) -> np.ndarray:
+        """The shade (h, w) of cells of Horn gradient ``p``, ``q`` under the layer's suns."""
         o = self.options
-        p, q = self._centre_gradient(dem, all_rows)
         return shade_gradient(p, q, azimuth=o.azimuth, altitude=o.altitude,
                               exaggeration=self.exaggeration, directions=o.directions)
 
