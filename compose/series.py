@@ -9,8 +9,10 @@ to every member as plain data, so equal values get equal colours across the seri
   at most :data:`SAMPLE_SIDE` pixels a side, as a single render does);
 * domains are the ramps' own (stated in the style, the same for every member).
 
-The scales are recorded in ``NAME.series.json`` beside the members' outputs, and
-``NAME.series.html`` shows the members side by side with their check verdicts and the scales.
+The scales are recorded in ``NAME.series.json`` beside the members' outputs (their paths relative
+to the record's folder, so the folder can be moved or published as a whole and the same series
+gives the same record in any folder), and ``NAME.series.html`` shows the members side by side with
+their check verdicts and the scales.
 Members are independent renders and run in parallel worker processes.
 """
 from __future__ import annotations
@@ -180,11 +182,14 @@ colours across the series (also recorded in {esc(name)}.series.json).</p>
 """
 
 
-def _record(member: SeriesMember) -> dict:
-    """A member as NAME.series.json keeps it: everything but its seconds, so the same series
-    gives the same bytes on every run (compose.page.dates)."""
+def _record(member: SeriesMember, folder: Path) -> dict:
+    """A member as NAME.series.json in ``folder`` keeps it: everything but its seconds, its
+    outputs' paths relative to ``folder`` with '/' between names, so the same series gives the
+    same bytes on every run and in every folder (compose.page.dates)."""
     out = dataclasses.asdict(member)
     out.pop("seconds")
+    out["outputs"] = {kind: Path(os.path.relpath(p, folder)).as_posix()
+                      for kind, p in member.outputs.items()}
     return out
 
 
@@ -221,7 +226,7 @@ def render_series(path: Path, out_dir: Path, *, overrides: Sequence = (), overwr
     with atomic_path(record) as tmp:
         tmp.write_text(json.dumps({"series": series_name, "style": str(base.path),
                                    "scales": scales,
-                                   "members": [_record(m) for m in members]},
+                                   "members": [_record(m, out_dir) for m in members]},
                                   indent=2, default=dict))
     with atomic_path(index) as tmp:
         tmp.write_text(_index_html(series_name, members, scales, out_dir), encoding="utf-8")

@@ -8,6 +8,7 @@ Reference: the SOURCE_DATE_EPOCH specification, reproducible-builds.org/specs/so
 1970-01-01 00:00:00 UTC; a malformed value stops the tool with an error."""
 from __future__ import annotations
 
+import json
 import os
 import subprocess
 import sys
@@ -85,20 +86,34 @@ def test_a_malformed_source_date_epoch_stops_the_command_before_any_work(tmp_pat
     assert pdf_date() == {"CreationDate": None} and svg_date() == {"Date": None}
 
 
-def test_a_series_and_its_record_are_the_same_bytes(tmp_path):
+def test_a_series_and_its_record_are_the_same_bytes_in_any_folder(tmp_path):
     for i, date in enumerate(("2024-04", "2024-05")):
         _field(tmp_path / f"moist_{date}.tif", 8 * i)
     style = STYLE.format(name="moist-{date}", title="Moisture {date}", source="moist_{date}.tif")
     (tmp_path / "s.toml").write_text(style + '\n[series]\ndate = ["2024-04", "2024-05"]\n')
+    # twice into one folder (the second replaces the first), then into another folder two levels
+    # deeper; the record names the members' files relative to its own folder
+    folders = [tmp_path / "out", tmp_path / "out", tmp_path / "other" / "deeper"]
     runs = []
-    for _ in range(2):      # into the same folder: the record names the members' files
+    for folder in folders:
         done = _command("render", tmp_path / "s.toml", "--series", "--workers", "1",
-                        "--overwrite", "--out", tmp_path / "out")
+                        "--overwrite", "--out", folder)
         assert done.returncode == 0, done.stderr
-        runs.append(_files(tmp_path / "out"))
-    assert "s.series.json" in runs[0] and runs[0].keys() == runs[1].keys()
-    for name in runs[0]:
-        assert runs[0][name] == runs[1][name], name
+        runs.append(_files(folder))
+    assert "s.series.json" in runs[0]
+    for run in runs[1:]:
+        assert run.keys() == runs[0].keys()
+        for name in runs[0]:
+            assert run[name] == runs[0][name], name
+    # the folder moved as a whole: every path the record names resolves from the record's folder
+    moved = (tmp_path / "out").rename(tmp_path / "published")
+    record = json.loads((moved / "s.series.json").read_text())
+    paths = [p for m in record["members"] for p in m["outputs"].values()]
+    assert len(paths) == 2 * 6                  # png, world, tif, legend, check, html each
+    for p in paths:
+        assert not Path(p).is_absolute() and (moved / p).is_file(), p
+    assert {moved / p for p in paths} == {moved / n for n in runs[0] if n.startswith("moist-")}
+    assert Path(record["style"]).is_absolute()   # the style is not in the folder: where it is
 
 
 def test_tiles_are_the_same_bytes(tmp_path):
