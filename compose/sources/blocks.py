@@ -15,17 +15,19 @@ reaches into) and dropped after its last read. In a row-major walk that holds ab
 tiles per raster, in whichever thread order the windows run. Reads the plan does not know (a
 window of another walk, a reprojected read) go to GDAL directly.
 
-With ``ahead`` reads of read-ahead, a thread of the plan's own decodes the blocks of the next
-``ahead`` reads (in the walk's order, counted from the latest read claimed) before they are
-asked for, through a GDAL handle of its own: the walking threads then mostly copy cells out of
-blocks already decoded, and the decoding (2 ms per 1 MB deflate block here) runs on another
-core beside the walk's compute. It starts at the first read claimed (so a walk whose windows run
-in other processes starts none) and ends when the plan is stopped. A block it fails to decode
-is decoded again by the read that needs it, which raises the error where the walk sees it.
-
 The values are the same either way: a planned read assembles the window from blocks finished by
-the same per-pixel steps (no-data and mask to NaN) as a direct read of the window, whichever
-thread decoded them.
+the same per-pixel steps (no-data and mask to NaN) as a direct read of the window.
+
+A :class:`ReadAhead` reads the walk's next windows before they are asked for: one thread per
+walk makes the reads of the next :data:`READ_AHEAD` windows of every raster layer (in the walk's
+order, counted from the latest read a layer asked for) through GDAL handles of its own --
+decoding blocks, and for a reprojected raster the transform grid's positions and the resampling
+too, which rasters on the same grid then share (:mod:`compose.sources.grid`) -- so the walking
+threads mostly take finished windows while the reading runs on another core beside the compute.
+It starts at the first read asked for (a walk whose windows run in other processes starts
+none) and ends when the walk does. A read it fails to make is made again by the layer that
+asks for it, which raises the error where the walk sees it. The values are the same: the same
+function reads the window, in whichever thread.
 """
 from __future__ import annotations
 
@@ -39,10 +41,12 @@ import numpy as np
 
 from compose.canvas import core_window
 from compose.heap import trim
+from compose.sources.grid import forget_recent
 from compose.sources.guard import gdal_cache
+from compose.sources.resample import forget_taps
 
-__all__ = ["BlockPlan", "Region", "MAX_BLOCK_CELLS", "PLANNED_GDAL_CACHE", "READ_AHEAD",
-           "planned_walk", "planned"]
+__all__ = ["BlockPlan", "ReadAhead", "Region", "MAX_BLOCK_CELLS", "PLANNED_GDAL_CACHE",
+           "READ_AHEAD", "planned_walk", "planned"]
 
 #: (row, col, height, width) of a read, in source cells, as asked for (may reach outside)
 Region = tuple[int, int, int, int]
@@ -50,61 +54,37 @@ Region = tuple[int, int, int, int]
 #: Blocks of more cells than this (e.g. strips as wide as a huge source) are not planned.
 MAX_BLOCK_CELLS = 1 << 20
 
-#: Reads whose blocks a walk's plan decodes ahead (:class:`BlockPlan` ``ahead``): a window
-#: needs one or two new blocks per raster and takes several times as long to compute as to
-#: decode them, so a few windows ahead keep the decoding off the walk however its threads
-#: are scheduled, for a few more blocks held (our choice).
-READ_AHEAD = 4
-
 
 class _Block:
-    __slots__ = ("top", "data", "ready", "ahead")
+    __slots__ = ("top", "data", "ready")
 
-    def __init__(self, ahead: bool = False) -> None:
+    def __init__(self) -> None:
         self.top = 0                        # source row of data[0]
         self.data: np.ndarray | None = None
         self.ready = threading.Event()
-        self.ahead = ahead                  # decoded by the read-ahead thread
 
 
 class BlockPlan:
     """The blocks a known list of reads needs, decoded once and dropped after their last read.
 
     ``block``: (height, width) of the source's blocks; ``shape``: (height, width) of the source;
-    ``regions``: the reads to come (:data:`Region`, duplicates allowed), in the order a walk
-    makes them (any order works; read-ahead follows this one). ``ahead``: reads whose blocks a
-    thread of the plan decodes ahead of the latest read claimed, with ``decode`` (a function
-    like :meth:`read`'s, called from that thread; ``on_exit`` is called there when it ends);
-    0: no read-ahead. Thread-safe; :meth:`stop` ends the read-ahead.
+    ``regions``: the reads to come (:data:`Region`, duplicates allowed, any order). Thread-safe.
     """
 
-    def __init__(self, block: tuple[int, int], shape: tuple[int, int], regions: Iterable[Region],
-                 *, ahead: int = 0, decode: Callable[[int, int, int, int], np.ndarray] | None = None,
-                 on_exit: Callable[[], None] | None = None):
+    def __init__(self, block: tuple[int, int], shape: tuple[int, int], regions: Iterable[Region]):
         self.bh, self.bw = (int(v) for v in block)
         self.height, self.width = (int(v) for v in shape)
-        self._regions = list(regions)
-        # region -> indices (in walk order) of the reads of it still to come
-        self._pending: dict[Region, deque[int]] = {}
+        self._pending: Counter = Counter()
         # block -> Counter of (first row, end row) a read still to come needs of it
         self._need: dict[tuple[int, int], Counter] = {}
-        for i, region in enumerate(self._regions):
-            self._pending.setdefault(region, deque()).append(i)
+        for region in regions:
+            self._pending[region] += 1
             for key, rows, _ in self._parts(region):
                 self._need.setdefault(key, Counter())[rows] += 1
         self._blocks: dict[tuple[int, int], _Block] = {}
         self._lock = threading.Lock()
         #: blocks decoded so far (a test's and the bench's measure of work)
         self.decoded = 0
-        # read-ahead: regions [_cursor, _goal) are the thread's to decode
-        self._ahead = int(ahead) if decode is not None else 0
-        self._decode = decode
-        self._on_exit = on_exit
-        self._wake = threading.Condition(self._lock)
-        self._cursor = 0
-        self._goal = 0
-        self._thread: threading.Thread | None = None
-        self._stopped = False
 
     def _parts(self, region: Region):
         """(block key, (row0, row1), (col0, col1)) of every block the region covers, in source
@@ -122,82 +102,12 @@ class BlockPlan:
                 yield (br, bc), rows, (max(c0, a0), min(c1, a0 + self.bw))
 
     def claim(self, region: Region) -> bool:
-        """True (and counted) when ``region`` is a read this plan still waits for; the
-        read-ahead then moves on to the reads after it."""
+        """True (and counted) when ``region`` is a read this plan still waits for."""
         with self._lock:
-            waiting = self._pending.get(region)
-            if not waiting:
-                return False
-            i = waiting.popleft()
-            if self._ahead and not self._stopped:
-                self._cursor = max(self._cursor, i + 1)
-                goal = min(i + 1 + self._ahead, len(self._regions))
-                if goal > self._goal:
-                    self._goal = goal
-                    if self._thread is None:
-                        self._thread = threading.Thread(target=self._read_ahead, daemon=True,
-                                                        name="compose-read-ahead")
-                        self._thread.start()
-                    self._wake.notify()
-            return True
-
-    def _read_ahead(self) -> None:
-        """The read-ahead thread: decode the blocks of the regions from the cursor to the goal
-        that nothing holds or decodes yet, one block at a time, until stopped."""
-        decode = self._decode
-        assert decode is not None
-        try:
-            while True:
-                with self._lock:
-                    while not self._stopped and self._cursor >= self._goal:
-                        self._wake.wait()
-                    if self._stopped:
-                        return
-                    region = self._regions[self._cursor]
-                    self._cursor += 1
-                for key, _, _ in self._parts(region):
-                    with self._lock:
-                        if self._stopped:
-                            return
-                        if key in self._blocks or key not in self._need:
-                            continue            # held, being decoded, or no read needs it now
-                        blk = self._blocks[key] = _Block(ahead=True)
-                    if not self._fill(key, blk, decode):
-                        return                  # the read that needs it decodes it again
-        finally:
-            if self._on_exit is not None:
-                self._on_exit()
-
-    def _fill(self, key: tuple[int, int], blk: _Block, decode) -> bool:
-        """Decode block ``key`` into ``blk`` (registered by the caller); False (the block
-        forgotten, its waiters woken) when the decode raised and it came from the read-ahead."""
-        br, bc = key
-        r0, c0 = br * self.bh, bc * self.bw
-        try:
-            data = decode(r0, c0, min(self.bh, self.height - r0), min(self.bw, self.width - c0))
-        except BaseException:
-            with self._lock:
-                if self._blocks.get(key) is blk:
-                    self._blocks.pop(key)
-            blk.ready.set()
-            if blk.ahead:
-                return False
-            raise
-        with self._lock:
-            blk.top, blk.data = r0, data
-            self.decoded += 1
-        blk.ready.set()
-        return True
-
-    def stop(self) -> None:
-        """End the read-ahead (waits for the block it is decoding); the plan's reads go on
-        without it."""
-        with self._lock:
-            self._stopped = True
-            self._wake.notify_all()
-            thread = self._thread
-        if thread is not None and thread is not threading.current_thread():
-            thread.join()
+            if self._pending.get(region, 0) > 0:
+                self._pending[region] -= 1
+                return True
+            return False
 
     def read(self, region: Region, out: np.ndarray,
              decode: Callable[[int, int, int, int], np.ndarray]) -> None:
@@ -216,21 +126,30 @@ class BlockPlan:
             self._done(parts)
 
     def _get(self, key: tuple[int, int], decode) -> tuple[int, np.ndarray]:
-        while True:
+        with self._lock:
+            found = self._blocks.get(key)
+            mine = found is None
+            blk = self._blocks[key] = _Block() if found is None else found
+        if mine:
+            br, bc = key
+            r0, c0 = br * self.bh, bc * self.bw
+            try:
+                data = decode(r0, c0, min(self.bh, self.height - r0), min(self.bw, self.width - c0))
+            except BaseException:
+                with self._lock:
+                    self._blocks.pop(key, None)
+                blk.ready.set()
+                raise
             with self._lock:
-                found = self._blocks.get(key)
-                mine = found is None
-                blk = self._blocks[key] = _Block() if found is None else found
-            if mine:
-                self._fill(key, blk, decode)
-            else:
-                blk.ready.wait()
-            with self._lock:
-                if blk.data is not None:
-                    return blk.top, blk.data
-                if not blk.ahead:           # its decode failed in another read's thread
-                    raise RuntimeError("a block of this read failed to decode in another thread")
-            # the read-ahead failed on it: decode it here, where its error is raised
+                blk.top, blk.data = r0, data
+                self.decoded += 1
+            blk.ready.set()
+        else:
+            blk.ready.wait()
+        with self._lock:
+            if blk.data is None:            # its decode failed in another thread
+                raise RuntimeError("a block of this read failed to decode in another thread")
+            return blk.top, blk.data
 
     def _done(self, parts) -> None:
         """One read is over: forget its needs; cut blocks down to the rows still needed, drop
@@ -269,6 +188,117 @@ class BlockPlan:
             return not any(self._pending.values()) and not self._blocks
 
 
+#: Windows a :class:`ReadAhead` reads ahead of the latest one asked for: a window takes several
+#: times as long to compute as to read (aligned: decode one or two new blocks per raster), so a
+#: few keep the reading off the walk however its threads are scheduled, for a few windows' values
+#: held (our choice).
+READ_AHEAD = 4
+
+
+class _Slot:
+    __slots__ = ("ready", "value")
+
+    def __init__(self) -> None:
+        self.ready = threading.Event()
+        self.value: Any = None              # None: not read (failed); the taker reads it itself
+
+
+class ReadAhead:
+    """The reads of a known list of windows made ahead on a thread of its own.
+
+    ``keys``: the reads to come, in the walk's order (hashable, duplicates allowed); ``read``:
+    makes the read of a key (called from the read-ahead thread; ``on_exit`` is called there when
+    it ends); ``ahead``: how many reads past the latest one taken it makes. :meth:`take` gives a
+    read's value, or None when the caller is to make the read itself (the read-ahead did not get
+    to it, or it failed). Thread-safe; :meth:`stop` ends the thread.
+    """
+
+    def __init__(self, keys: Iterable, read: Callable[[Any], Any], ahead: int = READ_AHEAD,
+                 on_exit: Callable[[], None] | None = None):
+        self._keys = list(keys)
+        self._pending: dict[Any, deque[int]] = {}
+        for i, key in enumerate(self._keys):
+            self._pending.setdefault(key, deque()).append(i)
+        self._read = read
+        self._ahead = max(int(ahead), 0)
+        self._on_exit = on_exit
+        self._lock = threading.Lock()
+        self._wake = threading.Condition(self._lock)
+        self._slots: dict[int, _Slot] = {}  # reads made or being made, not yet taken
+        self._cursor = 0                    # the next read the thread may make
+        self._goal = 0                      # ... up to this one (excluded)
+        self._thread: threading.Thread | None = None
+        self._stopped = False
+        #: reads made by the thread, and of them taken (a test's and the bench's measure)
+        self.made = 0
+        self.taken = 0
+
+    def take(self, key) -> Any:
+        """The value of the read ``key`` (waiting while the thread makes it), or None when the
+        caller is to read it itself; either way the read counts as done and the thread moves
+        on to the ones after it."""
+        with self._lock:
+            waiting = self._pending.get(key)
+            if not waiting:
+                return None
+            i = waiting.popleft()
+            slot = self._slots.pop(i, None)
+            if not self._stopped and self._ahead:
+                self._cursor = max(self._cursor, i + 1)     # never made now if not yet begun
+                goal = min(i + 1 + self._ahead, len(self._keys))
+                if goal > self._goal:
+                    self._goal = goal
+                    if self._thread is None:
+                        self._thread = threading.Thread(target=self._run, daemon=True,
+                                                        name="compose-read-ahead")
+                        self._thread.start()
+                    self._wake.notify()
+        if slot is None:
+            return None
+        slot.ready.wait()
+        if slot.value is not None:
+            with self._lock:
+                self.taken += 1
+        return slot.value
+
+    def _run(self) -> None:
+        try:
+            while True:
+                with self._lock:
+                    while not self._stopped and self._cursor >= self._goal:
+                        self._wake.wait()
+                    if self._stopped:
+                        return
+                    i = self._cursor
+                    self._cursor += 1
+                    slot = self._slots[i] = _Slot()
+                try:
+                    value = self._read(self._keys[i])
+                except BaseException:
+                    with self._lock:
+                        self._stopped = True        # the takers read the rest themselves
+                    slot.ready.set()                # value None: its taker reads it
+                    return
+                with self._lock:
+                    slot.value = value
+                    self.made += 1
+                slot.ready.set()
+        finally:
+            if self._on_exit is not None:
+                self._on_exit()
+
+    def stop(self) -> None:
+        """End the thread (after the read it is making) and forget the reads not taken."""
+        with self._lock:
+            self._stopped = True
+            self._wake.notify_all()
+            thread = self._thread
+        if thread is not None and thread is not threading.current_thread():
+            thread.join()
+        with self._lock:
+            self._slots.clear()
+
+
 #: GDAL's block cache during a walk whose every raster read is planned (bytes): planned reads
 #: keep their own blocks, so GDAL's copy of each is never read again.
 PLANNED_GDAL_CACHE = 16 << 20
@@ -279,22 +309,41 @@ def planned_walk(layers, canvas, windows) -> Iterator[bool]:
     """During a window walk over ``windows`` of ``canvas``: plan the raster reads of every
     layer with a raster ``source`` (:meth:`RasterSource.plan`; the windows' cores for a layer
     whose ``core_reads`` is true, their padded regions otherwise); when all of them are planned,
-    bound GDAL's block cache to :data:`PLANNED_GDAL_CACHE` meanwhile. Yields whether the
-    reads are planned; forgets the plans (and their blocks) at the end."""
+    bound GDAL's block cache to :data:`PLANNED_GDAL_CACHE` meanwhile. The same reads, with each
+    layer's ``options.resampling``, are read ahead (:class:`ReadAhead`: window by window, each
+    window's layers in order) unless the source decimates. Yields whether the reads are
+    planned; forgets the plans (their blocks, the read-ahead) at the end."""
     sources: list[Any] = []
     planned = []
+    reads: list[tuple[Any, list, str]] = []         # (source, its windows, resampling)
     cores = None
     for layer in layers:
         s: Any = getattr(layer, "source", None)
         if not callable(getattr(s, "plan", None)):
             continue
         sources.append(s)
+        mine = windows
         if getattr(layer, "core_reads", False):     # the layer reads window cores only
-            cores = cores if cores is not None else [core_window(w) for w in windows]
-            planned.append(s.plan(canvas, cores))
-        else:
-            planned.append(s.plan(canvas, windows))
+            cores = mine = cores if cores is not None else [core_window(w) for w in windows]
+        planned.append(s.plan(canvas, mine))
+        resampling = getattr(getattr(layer, "options", None), "resampling", None)
+        if (isinstance(resampling, str) and callable(getattr(s, "read_ahead", None))
+                and not getattr(s, "decimate", False)):
+            reads.append((s, mine, resampling))
     every = bool(planned) and all(planned)
+    ahead = None
+    if reads and READ_AHEAD > 0:
+        keys = [(s, mine[i], resampling) for i in range(len(windows)) for s, mine, resampling in reads]
+        readers = [s for s, _, _ in reads]
+
+        def let_go() -> None:
+            for s in readers:
+                s.let_go()
+
+        ahead = ReadAhead(keys, lambda key: key[0].read_ahead_key(canvas, key[1], key[2]),
+                          READ_AHEAD * len(reads), on_exit=let_go)
+        for s in readers:
+            s.read_ahead(ahead, canvas)
     try:
         if every:
             with gdal_cache(PLANNED_GDAL_CACHE):
@@ -302,8 +351,14 @@ def planned_walk(layers, canvas, windows) -> Iterator[bool]:
         else:
             yield False
     finally:
+        if ahead is not None:
+            for s, _, _ in reads:
+                s.read_ahead(None)
+            ahead.stop()
         for s in sources:
             s.plan(None)
+        forget_recent()                 # positions and taps rasters on one grid shared
+        forget_taps()
 
 
 def planned(layers, canvas, windows, results: Iterable) -> Iterator:

@@ -26,12 +26,15 @@ from affine import Affine
 
 from compose.sources.crs import same_crs
 
-__all__ = ["ERROR_PX", "ACCURACY_PX", "TransformGrid", "transform_grid"]
+__all__ = ["ERROR_PX", "ACCURACY_PX", "RECENT", "TransformGrid", "transform_grid", "forget_recent"]
 
 #: Largest accepted interpolation error, in source pixels.
 ERROR_PX = 0.125
 #: Error aimed at while the step is at least _CHEAP_STEP pixels.
 ACCURACY_PX = 1e-5
+#: Results of :meth:`TransformGrid.cell_centres` kept per grid (4 MB each for a 512 px window
+#: with its margin): a walk reads every raster of a window in turn (compose.sources.blocks).
+RECENT = 3
 _FIRST_STEP = 64
 _CHEAP_STEP = 16
 _MIN_STEP = 2
@@ -74,6 +77,8 @@ class TransformGrid:
     error: float
     # inverse source affine (tuple) -> the nodes in that source's cell-centre coordinates
     _cells: dict = field(default_factory=dict, repr=False, compare=False)
+    # (inverse, row0, col0, height, width) -> the latest cell_centres made (read-only arrays)
+    _recent: dict = field(default_factory=dict, repr=False, compare=False)
 
     def covers(self, row0: int, col0: int, height: int, width: int) -> bool:
         """True when the pixel rectangle lies inside the grid's nodes."""
@@ -94,15 +99,29 @@ class TransformGrid:
         (column, row) with cell i's centre at i (``inverse``: the source's CRS -> pixel affine).
         The nodes are mapped through ``inverse`` once per source and interpolated like
         :meth:`coords` (the affine map commutes with the interpolation), so every raster read
-        through this grid costs two interpolations and no per-pixel arithmetic of its own."""
+        through this grid costs two interpolations and no per-pixel arithmetic of its own.
+        The latest :data:`RECENT` results are kept and given again (the same read-only arrays)
+        to the next raster on the same grid that asks for the same window."""
         key = tuple(inverse)
+        memo = (key, int(row0), int(col0), int(height), int(width))
+        with _lock:
+            hit = self._recent.get(memo)
+        if hit is not None:
+            return hit
         nodes = self._cells.get(key)
         if nodes is None:
             a, b, c, d, e, f = key[:6]
             nodes = self._cells[key] = (a * self.x + b * self.y + (c - 0.5),
                                         d * self.x + e * self.y + (f - 0.5))
-        return (self._interpolate(nodes[0], row0, col0, height, width),
-                self._interpolate(nodes[1], row0, col0, height, width))
+        got = (self._interpolate(nodes[0], row0, col0, height, width),
+               self._interpolate(nodes[1], row0, col0, height, width))
+        for arr in got:
+            arr.flags.writeable = False
+        with _lock:
+            while len(self._recent) >= RECENT:
+                del self._recent[next(iter(self._recent))]     # the oldest
+            self._recent[memo] = got
+        return got
 
     def _interpolate(self, nodes: np.ndarray, row0: int, col0: int, height: int,
                      width: int) -> np.ndarray:
@@ -127,6 +146,13 @@ class TransformGrid:
             np.multiply(t[a:b, None], rise[k], out=rows)
             rows += across[k]
         return out
+
+
+def forget_recent() -> None:
+    """Drop every grid's kept :meth:`TransformGrid.cell_centres` results (a walk's end)."""
+    with _lock:
+        for grid in _cache.values():
+            grid._recent.clear()
 
 
 def _text(crs) -> str:

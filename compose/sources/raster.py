@@ -55,7 +55,7 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
-from compose.sources.blocks import MAX_BLOCK_CELLS, READ_AHEAD, BlockPlan
+from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead
 from compose.sources.crs import metre_projected
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
@@ -185,6 +185,8 @@ class RasterSource:
         self._lock = threading.Lock()
         self._same: dict[str, bool] = {}      # CRS text -> the source's own CRS?
         self._plan: BlockPlan | None = None
+        self._ahead: ReadAhead | None = None        # the walk's windows read ahead
+        self._ahead_canvas: Canvas | None = None
 
     def _handles(self):
         """(dataset, one-band view or None) for reading in the calling thread."""
@@ -494,14 +496,10 @@ class RasterSource:
     # --- planned reads (compose.sources.blocks) ----------------------------------------------
     def plan(self, canvas: Canvas | None, windows: list[Window] = ()) -> bool:
         """Expect the padded reads of ``windows`` of ``canvas`` (a window walk): each source block
-        is then decoded once and shared by the window threads (:class:`BlockPlan`), the next
-        :data:`~compose.sources.blocks.READ_AHEAD` reads' blocks decoded ahead on a thread of
-        the plan's own. True when the walk's reads are planned: the canvas is aligned with the
-        source, the reads exact (not decimated) and the blocks tile-sized. ``plan(None)``
-        forgets the plan (and ends its read-ahead)."""
-        old, self._plan = self._plan, None
-        if old is not None:
-            old.stop()
+        is then decoded once and shared by the window threads (:class:`BlockPlan`). True when
+        the walk's reads are planned: the canvas is aligned with the source, the reads exact
+        (not decimated) and the blocks tile-sized. ``plan(None)`` forgets the plan."""
+        self._plan = None
         if canvas is None or self.decimate or not windows:
             return False
         crs = canvas.crs
@@ -515,11 +513,19 @@ class RasterSource:
                 return False
             _, _, height, width = win.padded
             regions.append((offset[0], offset[1], height, width))
-        self._plan = BlockPlan((bh, bw), (self._ds.height, self._ds.width), regions,
-                               ahead=READ_AHEAD, decode=self._cells, on_exit=self._let_go)
+        self._plan = BlockPlan((bh, bw), (self._ds.height, self._ds.width), regions)
         return True
 
-    def _let_go(self) -> None:
+    def read_ahead(self, ahead: ReadAhead | None, canvas: Canvas | None = None) -> None:
+        """Take the reads of ``canvas``'s windows that ``ahead`` makes (its keys: ``(this
+        source, window, resampling)``, read by :meth:`read_ahead_key`) from it; None: no more."""
+        self._ahead, self._ahead_canvas = ahead, canvas
+
+    def read_ahead_key(self, canvas: Canvas, window: Window, resampling: str) -> np.ndarray:
+        """A read made by a :class:`ReadAhead`'s thread: :meth:`read_window` made now."""
+        return self._read_window(canvas, window, resampling)
+
+    def let_go(self) -> None:
         """Close the calling thread's own GDAL handles (a read-ahead thread ending), if any."""
         mine = getattr(self._local, "handles", None)
         if mine is None or threading.get_ident() == self._owner:
@@ -572,7 +578,17 @@ class RasterSource:
         (:mod:`compose.sources.resample`); 'mode', 'average' without shrinking and grids the
         shared transform cannot serve (longitudes wrapped past 180, nodes outside the CRS's
         domain) are warped exactly by GDAL instead. Either way windows join without seams.
+        A window of a walk read ahead (:meth:`plan`) is taken as the read-ahead made it.
         """
+        ahead = self._ahead
+        if ahead is not None and canvas == self._ahead_canvas:
+            got = ahead.take((self, window, resampling))
+            if got is not None:
+                return got
+        return self._read_window(canvas, window, resampling)
+
+    def _read_window(self, canvas: Canvas, window: Window, resampling: str) -> np.ndarray:
+        """:meth:`read_window`, made here and now."""
         row0, col0, height, width = window.padded
         centre = _grid_centre(canvas.transform, canvas.width, canvas.height)
         fast = self._grid_read(canvas, window, resampling, centre)
@@ -686,12 +702,12 @@ class RasterSource:
         self._others = []
         self._lock = threading.Lock()
         self._plan = None
+        self._ahead = None              # its thread is the parent's: not in this process
 
     def close(self) -> None:
         """Close the file (idempotent)."""
-        plan, self._plan = getattr(self, "_plan", None), None
-        if plan is not None:
-            plan.stop()
+        self._plan = None
+        self._ahead = None
         for ds, view in getattr(self, "_others", ()):
             if view is not None:
                 view.close()

@@ -19,11 +19,12 @@ GDAL's warper, so results match ``gdalwarp`` closely:
 from __future__ import annotations
 
 import math
+import threading
 from collections.abc import Callable
 
 import numpy as np
 
-__all__ = ["sample", "sample_centres", "cut_block", "Reader"]
+__all__ = ["sample", "sample_centres", "cut_block", "forget_taps", "Reader"]
 
 #: read(row0, col0, height, width) -> float32 block of source cells, NaN = no data; the rectangle
 #: may reach outside the source (those cells are NaN).
@@ -111,19 +112,8 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
     sx, sy = (1.0 if float(v) <= _SNAP else float(v) for v in shrink)
     if method != "bilinear" or (sx, sy) != (1.0, 1.0):
         return sample(read, x + 0.5, y + 0.5, method, shrink, reduce)
-    fx, fy = np.floor(x), np.floor(y)               # the first tap (cell centre left / above)
-    col0, row0 = int(fx.min()), int(fy.min())
-    bh, bw = int(fy.max()) + 2 - row0, int(fx.max()) + 2 - col0
+    row0, col0, bh, bw, base, dx, dy = _taps(x, y)
     flat = read(row0, col0, bh, bw).reshape(-1)
-    dx = np.empty(x.shape, np.float32)
-    dy = np.empty(y.shape, np.float32)
-    np.subtract(x, fx, out=dx, casting="same_kind")  # float64 difference, then float32
-    np.subtract(y, fy, out=dy, casting="same_kind")
-    fy *= bw                                          # flat index of the first tap (exact:
-    fy += fx                                          # integers far below 2**53)
-    fy -= row0 * bw + col0
-    base = fy.astype(np.intp)
-    del fx, fy
     out = _lerp2(flat.take(base), flat[1:].take(base), flat[bw:].take(base),
                  flat[bw + 1:].take(base), dx, dy)
     bad = np.flatnonzero(np.isnan(out))
@@ -139,6 +129,53 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
         sub[~valid.take(centre)] = np.nan
         out.reshape(-1)[bad] = sub
     return out
+
+
+#: (x, y, their taps) of the latest positions :func:`sample_centres` was given that could not
+#: be changed (read-only arrays, e.g. :meth:`compose.sources.grid.TransformGrid.cell_centres`'s):
+#: rasters on the same grid sampled at the same positions share their taps.
+_recent_taps: list[tuple[np.ndarray, np.ndarray, tuple]] = []
+_RECENT_TAPS = 3
+_taps_lock = threading.Lock()
+
+
+def _taps(x: np.ndarray, y: np.ndarray) -> tuple:
+    """Bilinear taps of cell-centre positions (x, y): (row0, col0, bh, bw) of the cells they
+    need, the flat index of each first tap (cell centre left / above) in that block, and the
+    float32 fractions dx, dy from it. Remembered for read-only positions."""
+    shared = not (x.flags.writeable or y.flags.writeable)
+    if shared:
+        with _taps_lock:
+            for px, py, taps in _recent_taps:
+                if px is x and py is y:
+                    return taps
+    fx, fy = np.floor(x), np.floor(y)               # the first tap (cell centre left / above)
+    col0, row0 = int(fx.min()), int(fy.min())
+    bh, bw = int(fy.max()) + 2 - row0, int(fx.max()) + 2 - col0
+    dx = np.empty(x.shape, np.float32)
+    dy = np.empty(y.shape, np.float32)
+    np.subtract(x, fx, out=dx, casting="same_kind")  # float64 difference, then float32
+    np.subtract(y, fy, out=dy, casting="same_kind")
+    fy *= bw                                          # flat index of the first tap (exact:
+    fy += fx                                          # integers far below 2**53)
+    fy -= row0 * bw + col0
+    base = fy.astype(np.intp)
+    del fx, fy
+    for arr in (base, dx, dy):
+        arr.flags.writeable = False
+    taps = (row0, col0, bh, bw, base, dx, dy)
+    if shared:
+        with _taps_lock:
+            if len(_recent_taps) >= _RECENT_TAPS:
+                del _recent_taps[0]
+            _recent_taps.append((x, y, taps))
+    return taps
+
+
+def forget_taps() -> None:
+    """Drop the remembered taps (:func:`sample_centres`; a walk's end)."""
+    with _taps_lock:
+        _recent_taps.clear()
 
 
 def _lerp2(a: np.ndarray, b: np.ndarray, c: np.ndarray, d: np.ndarray,

@@ -15,7 +15,7 @@ from rasterio.env import get_gdal_config
 
 from compose.canvas import Canvas, core_window
 from compose.errors import SourceError
-from compose.sources.blocks import PLANNED_GDAL_CACHE, BlockPlan, planned_walk
+from compose.sources.blocks import PLANNED_GDAL_CACHE, BlockPlan, ReadAhead, planned_walk
 from compose.sources.guard import gdal_cache
 from compose.sources.raster import RasterSource
 
@@ -148,8 +148,8 @@ def test_walk_bounds_gdal_cache_and_restores_it(tmp_path):
 def test_core_reads_hold_no_block_across_window_rows(tmp_path, monkeypatch):
     # windows aligned with the blocks: a layer reading window cores only needs each block in
     # one window, so no block outlives its window row (padded reads keep the next row's);
-    # without read-ahead, which would hold the next reads' blocks as well
-    monkeypatch.setattr("compose.sources.raster.READ_AHEAD", 0)
+    # without read-ahead, which would hold the next windows' blocks as well
+    monkeypatch.setattr("compose.sources.blocks.READ_AHEAD", 0)
     path = _tiled(tmp_path / "c.tif", _data(), nodata=-9999, block=32)
     canvas = Canvas(CRS, T, 160, 192)
     wins = list(canvas.windows(32, margin=3))
@@ -175,121 +175,112 @@ def _ahead_threads() -> list[threading.Thread]:
 
 
 @pytest.mark.parametrize("threads", [1, 3])
-def test_read_ahead_same_values_each_block_once_and_ends(tmp_path, threads):
+@pytest.mark.parametrize("aligned", [True, False])
+def test_read_ahead_same_values_and_ends(tmp_path, threads, aligned):
+    # the walk's windows read ahead on a thread of their own equal direct reads, aligned
+    # (from the planned blocks, each decoded once) or resampled (a canvas half a cell off)
     path = _tiled(tmp_path / "r.tif", _data(), nodata=-9999)
-    canvas = _canvas(4, 9)
+    canvas = _canvas(4, 9) if aligned else _canvas(4.5, 9.5)
     wins = list(canvas.windows(30, margin=4))
     with RasterSource(path, layer="r") as direct:
         want = [direct.read_window(canvas, w) for w in wins]
+    assert np.isfinite(want[len(want) // 2]).any()     # the canvas does see the data
     with RasterSource(path, layer="r") as src:
         layer = type("Layer", (), {"source": src})()
-        with planned_walk([layer], canvas, wins):
-            plan = src._plan
-            assert plan._ahead > 0 and not _ahead_threads()     # started by the first read
+        layer.options = type("Options", (), {"resampling": "bilinear"})()
+        with planned_walk([layer], canvas, wins) as every:
+            assert every == aligned
+            ahead = src._ahead
+            assert ahead is not None and not _ahead_threads()    # started by the first read
             if threads == 1:                # the owner's thread: no other handle opened
                 got = [src.read_window(canvas, w) for w in wins]
             else:
                 with ThreadPoolExecutor(threads) as pool:
                     got = list(pool.map(lambda w: src.read_window(canvas, w), wins))
-            assert plan.finished
-            touched = {key for w in wins for key, _, _ in plan._parts(
-                (w.padded[0] + 4, w.padded[1] + 9, w.padded[2], w.padded[3]))}
-            assert plan.decoded == len(touched)                 # each block once
-        assert src._plan is None and not _ahead_threads()
+            if aligned:
+                plan = src._plan
+                assert plan.finished
+                touched = {key for w in wins for key, _, _ in plan._parts(
+                    (w.padded[0] + 4, w.padded[1] + 9, w.padded[2], w.padded[3]))}
+                assert plan.decoded == len(touched)             # each block once
+            assert ahead.taken <= ahead.made <= len(wins) - 1   # taken whenever made first
+        assert src._plan is None and src._ahead is None and not _ahead_threads()
         if threads == 1:
             assert src._others == []        # the read-ahead thread's GDAL handle closed
     for a, b in zip(want, got):
         np.testing.assert_array_equal(a, b)
 
 
-def test_read_ahead_runs_ahead_of_the_reads_within_its_bound():
-    shape, block = (640, 640), (32, 32)
-    regions = [(r - 3, c - 3, 70, 70) for r in range(0, 640, 64) for c in range(0, 640, 64)]
-    decoded_by = {}
+def test_read_ahead_reads_ahead_of_the_takes_within_its_bound():
+    made = []
 
-    def decode(r, c, h, w):
-        decoded_by[(r, c)] = threading.current_thread().name
-        return np.full((h, w), r * 1000 + c, np.float32)
+    def read(key):
+        made.append(key)
+        return np.full(3, key, np.float32)
 
-    plan = BlockPlan(block, shape, regions, ahead=3, decode=decode)
+    ahead = ReadAhead(range(10), read, ahead=3)
     try:
-        first = regions[0]
-        assert plan.claim(first)
-        # the blocks of reads 1..3 are decoded ahead, nothing further
-        ahead = {key for region in regions[1:4] for key, _, _ in plan._parts(region)}
-        beyond = {key for region in regions[4:] for key, _, _ in plan._parts(region)} - ahead
-        pause = threading.Event()
+        assert ahead.take(0) is None        # nothing made yet: the caller reads it itself
+        wait = threading.Event()
         for _ in range(500):
-            with plan._lock:
-                done = {k for k, b in plan._blocks.items() if b.data is not None}
-            if ahead <= done:
+            if ahead.made == 3:
                 break
-            pause.wait(0.01)
-        pause.wait(0.05)                    # time to go further, were it to
-        with plan._lock:
-            held = set(plan._blocks)
-        assert ahead <= held and not held & beyond
-        out = np.empty((67, 67), np.float32)
-        plan.read(first, out, decode)
-        for region in regions[1:]:
-            assert plan.claim(region)
-            r0, c0 = max(region[0], 0), max(region[1], 0)
-            out = np.empty((min(region[0] + 70, 640) - r0, min(region[1] + 70, 640) - c0),
-                           np.float32)
-            plan.read(region, out, decode)
-            assert out[-1, -1] == (min(region[0] + 69, 639) // 32 * 32) * 1000 + \
-                min(region[1] + 69, 639) // 32 * 32
-        assert plan.finished and plan.decoded == 20 * 20
-        assert "compose-read-ahead" in decoded_by.values()
+            wait.wait(0.01)
+        wait.wait(0.05)                     # time to go further, were it to
+        assert made == [1, 2, 3]            # reads 1..3, nothing further
+        for key in (1, 2, 3):
+            assert ahead.take(key)[0] == key
+        # the rest: made ahead, or left to the taker when it got there first
+        rest = [ahead.take(key) for key in range(4, 10)]
+        assert all(got is None or got[0] == key for key, got in zip(range(4, 10), rest))
+        assert made == sorted(set(made)) and set(made) <= set(range(1, 10))  # in order, once
+        assert ahead.take(3) is None        # not a read to come
     finally:
-        plan.stop()
+        ahead.stop()
     assert not _ahead_threads()
 
 
-def test_read_ahead_failure_is_raised_by_the_read_that_needs_the_block(tmp_path):
-    # a block the read-ahead cannot decode is decoded again by the walk's read, which raises
-    # (or, when the failure was passing, gets the block's values)
-    shape, block = (64, 64), (32, 32)
-    regions = [(0, 0, 32, 32), (0, 32, 32, 32), (32, 0, 32, 32), (32, 32, 32, 32)]
-    calls = []
-
-    def flaky(r, c, h, w):
-        calls.append((r, c, threading.current_thread().name))
+def test_read_ahead_failure_is_read_again_by_the_taker():
+    # a read the thread fails to make is made by the one who takes it, which raises its error
+    # (or gets the values, when the failure was passing); the thread stops at the failure
+    def flaky(key):
         if threading.current_thread().name == "compose-read-ahead":
-            raise SourceError("layer \"x\": cannot read x.tif: a damaged block")
-        return np.full((h, w), r + c, np.float32)
+            raise SourceError('layer "x": cannot read x.tif: a damaged block')
+        return key
 
-    plan = BlockPlan(block, shape, regions, ahead=2, decode=flaky)
-    out = np.empty((32, 32), np.float32)
-    for region in regions:
-        assert plan.claim(region)
-        plan.read(region, out, flaky)
-        assert out[0, 0] == region[0] + region[1]
-    plan.stop()
-    assert plan.finished and plan.decoded == 4
+    def read_here(ahead, key):
+        got = ahead.take(key)
+        return flaky(key) if got is None else got
 
-    def broken(r, c, h, w):
-        raise SourceError("layer \"x\": cannot read x.tif: a damaged block")
-
-    plan = BlockPlan(block, shape, regions, ahead=2, decode=broken)
+    ahead = ReadAhead(range(6), flaky, ahead=2)
     try:
-        assert plan.claim(regions[0])
-        with pytest.raises(SourceError, match="damaged block"):
-            plan.read(regions[0], out, broken)
-        assert plan.claim(regions[1])
-        with pytest.raises(SourceError, match="damaged block"):
-            plan.read(regions[1], out, broken)
+        assert [read_here(ahead, k) for k in range(6)] == list(range(6))
+        assert ahead.made == 0
     finally:
-        plan.stop()
+        ahead.stop()
+
+    def broken(key):
+        raise SourceError('layer "x": cannot read x.tif: a damaged block')
+
+    ahead = ReadAhead(range(6), broken, ahead=2)
+    try:
+        for key in range(3):
+            with pytest.raises(SourceError, match="damaged block"):
+                got = ahead.take(key)
+                assert got is None
+                broken(key)
+    finally:
+        ahead.stop()
 
 
 def test_no_read_ahead_without_reads(tmp_path):
-    # a walk whose windows run elsewhere (worker processes) claims nothing here: no thread
+    # a walk whose windows run elsewhere (worker processes) takes nothing here: no thread
     path = _tiled(tmp_path / "n.tif", _data(), nodata=-9999)
     canvas = _canvas()
     wins = list(canvas.windows(50, margin=1))
     with RasterSource(path, layer="n") as src:
         layer = type("Layer", (), {"source": src})()
+        layer.options = type("Options", (), {"resampling": "bilinear"})()
         with planned_walk([layer], canvas, wins):
-            assert not _ahead_threads()
-        assert src._plan is None and src._plan is None
+            assert src._ahead is not None and not _ahead_threads()
+        assert src._ahead is None
