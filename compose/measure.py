@@ -272,21 +272,26 @@ def _cell_bounds() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(first, last) float32 luminance of every Y cell of :func:`_cells` (the smallest and the
     largest float32 in it; last < first for a cell no float32 falls in; the top cell ends at
     the luminance of 8-bit white, the largest :func:`_luminance8` gives), and L* (intp) per
-    cell. Found by bisection over the float32 bit patterns: the cell is a non-decreasing
-    function of y (float32 multiply, add and truncation are monotone)."""
+    cell. The cell is a non-decreasing function of y (float32 multiply, add and truncation are
+    monotone), so a cell's first value is the smallest float32 >= 0 whose cell is not below
+    it: found from the cell's edge (cell - 0.5) / (levels - 1) rounded to float32, stepped one
+    float32 at a time (a few steps) to where it holds and the float32 below does not (a
+    bisection over the bit patterns gives the same: tests/test_measure.py)."""
     target = np.arange(_Y_LEVELS)
-    lo = np.full(_Y_LEVELS, -1, np.int64)                     # cell(bits lo) < target
-    hi = np.full(_Y_LEVELS, int(np.float32(2.0).view(np.uint32)), np.int64)   # >= target
-    while True:
-        open_ = hi - lo > 1
-        if not open_.any():
+    at = np.maximum((target - 0.5) / (_Y_LEVELS - 1), 0.0).astype(np.float32)
+    bits = at.view(np.uint32).astype(np.int64)
+
+    def holds(b: np.ndarray) -> np.ndarray:
+        return _cells(np.maximum(b, 0).astype(np.uint32).view(np.float32)) >= target
+
+    for _ in range(64):
+        step = np.where(~holds(bits), 1, np.where((bits > 0) & holds(bits - 1), -1, 0))
+        if not step.any():
             break
-        mid = (lo + hi) // 2
-        y = np.maximum(mid, 0).astype(np.uint32).view(np.float32)
-        up = _cells(y) >= target
-        hi = np.where(open_ & up, mid, hi)
-        lo = np.where(open_ & ~up, mid, lo)
-    first = hi.astype(np.uint32).view(np.float32)
+        bits += step
+    else:                                   # pragma: no cover - not a few steps away
+        raise ArithmeticError("luminance cells: no edge found")
+    first = bits.astype(np.uint32).view(np.float32)
     white = _luminance8(np.full((3, 1), 255, np.uint8))[0]
     last = np.empty_like(first)
     last[:-1] = np.nextafter(first[1:], np.float32(-1))

@@ -38,6 +38,24 @@ def test_contrast_bins_by_cell_table_equal_the_formula(y_part):
     assert (M._cells(np.nextafter(first[1:], np.float32(-1))) < np.arange(1, first.size)).all()
 
 
+def test_cell_bounds_are_those_a_bisection_of_the_float32_bit_patterns_finds():
+    """Each Y cell's first luminance, found stepping from the cell's edge, is the smallest
+    float32 in [0, 2] whose cell is not below it: the one a bisection over the float32 bit
+    patterns finds (IEEE 754 binary32: non-negative floats order as their bit patterns)."""
+    target = np.arange(M._Y_LEVELS)
+    lo = np.full(M._Y_LEVELS, -1, np.int64)
+    hi = np.full(M._Y_LEVELS, int(np.float32(2.0).view(np.uint32)), np.int64)
+    while (hi - lo > 1).any():
+        open_ = hi - lo > 1
+        mid = (lo + hi) // 2
+        up = M._cells(np.maximum(mid, 0).astype(np.uint32).view(np.float32)) >= target
+        hi = np.where(open_ & up, mid, hi)
+        lo = np.where(open_ & ~up, mid, lo)
+    first, last, _ = M._cell_bounds()
+    np.testing.assert_array_equal(first.view(np.uint32), hi.astype(np.uint32))
+    assert (last[:-1] == np.nextafter(first[1:], np.float32(-1))).all()
+
+
 def test_lightness_by_cell_equals_the_lightness_bins():
     rng = np.random.default_rng(6)
     y = _luminances(rng)
