@@ -269,8 +269,11 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                         has &= paint.index[inner] != paint.palette.nodata
                     covered = has if covered is None else (covered | has)
                 alpha = paint.alpha if spec.opacity >= 1 else paint.alpha * np.float32(spec.opacity)
-                # alpha 1 everywhere (rasters without no-data): nothing to weigh by it
-                opaque = bool(alpha.min() >= 1.0) if alpha.size else False
+                # alpha 1 everywhere (rasters without no-data): nothing to weigh by it. Known
+                # to the layer, or looked for (not past a first pixel below 1: most coverage)
+                opaque = alpha.size > 0 and (
+                    (paint.opaque and spec.opacity >= 1)
+                    or (bool(alpha.flat[0] >= 1.0) and bool(alpha.min() >= 1.0)))
                 if paint.palette is not None:       # colours looked up strip by strip
                     # a raster's entries are counted while they are looked up (a palette's
                     # measure never reads the composite, so it may come after): its weights
@@ -385,9 +388,12 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
     # each source block decoded once, shared by the window threads (compose.sources.blocks)
     results: Iterator[WindowResult] = planned(prepared.layers, canvas, windows,
                                               (mapper or map)(task, windows))
+    # with no sinks (a check's walk, compute alone) nobody reads the rows: no bands are made
+    # (each band is fresh memory of canvas width x window rows x 3 bytes, 12.6 MB at 8192)
+    rows_wanted = bool(sinks)
     for res in results:
         win = res.window
-        if band is None or win.row != band_row:
+        if rows_wanted and (band is None or win.row != band_row):
             if band is not None:
                 feed(band_row, band, under)
             band_row = win.row
@@ -396,7 +402,8 @@ def run(prepared: Prepared, sinks: list[Sink], *, measure: bool = True, window: 
                 under = np.empty_like(band)
             if footprint:
                 alpha_band = np.empty((win.height, canvas.width), dtype=np.uint8)
-        band[:, win.col:win.col + win.width] = res.rgb8
+        if band is not None:
+            band[:, win.col:win.col + win.width] = res.rgb8
         if alpha_band is not None and res.alpha8 is not None:
             alpha_band[:, win.col:win.col + win.width] = res.alpha8
         if under is not None and res.below is not None:

@@ -67,6 +67,8 @@ class Paint:
     part: "shade", "data", "fill", "stroke", "halo", "text", "marker".
     alpha: (h, w) float32 coverage in [0, 1] (layer opacity not yet applied).
     color: a flat sRGB colour (3 floats in [0, 1]) -- or ``index`` + ``palette`` for rasters.
+    opaque: True when the layer knows ``alpha`` is 1 everywhere (the engine then need not look;
+    False: not known).
     """
 
     part: str
@@ -74,6 +76,7 @@ class Paint:
     color: tuple[float, float, float] | None = None
     index: np.ndarray | None = None
     palette: Palette | None = None
+    opaque: bool = False
 
     def planes(self) -> np.ndarray:
         """Colour as (3, h, w) float32 (broadcast view for flat colours)."""

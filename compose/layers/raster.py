@@ -130,7 +130,8 @@ class FieldLayer:
             alpha = (index != self.lut.nodata_index).astype(np.float32)
         else:
             alpha = np.ones(index.shape, dtype=np.float32)
-        return [Paint("data", alpha, index=index, palette=self.palette)]
+        return [Paint("data", alpha, index=index, palette=self.palette,
+                      opaque=not self.transparent_nodata)]
 
     def close(self) -> None:
         early = getattr(self, "early", None)
