@@ -477,6 +477,8 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"wall, peak {gb(bare1['peak'])}  = {total / floors_sum:.2f} x floors summed")
     print(f"  bare render, 2 workers (threads + the drawing helper)  {total2:6.2f} s wall  "
           f"= {total2 / floors_sum:.2f} x floors summed, {total / total2:.2f} x faster than 1 worker")
+    cpu_m = statistics.median(m for _, m in cpu_pairs)
+    cpu_p = statistics.median(p for p, _ in cpu_pairs)
     print(f"  compute alone, measuring, 1 thread              {measured:6.2f} s  "
           f"= {statistics.median(ratios_m):.2f} x compute floor (target <= 1.5 x; median of "
           f"{len(ratios_m)} turns' ratios, each compute over the floor measured in the same turn; "
@@ -489,6 +491,9 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"{len(turn_floors)}; " + ", ".join(f"{f:.2f}" for f in turn_floors)
           + f"; {compute_floor:.2f} s at the start; compute medians over the turns' floor median: "
           f"measuring {measured / turn_floor:.2f} x, not measuring {plain / turn_floor:.2f} x)")
+    print(f"  compute alone, CPU time of every thread          measuring {cpu_m:.2f} CPU-s, not "
+          f"measuring {cpu_p:.2f} CPU-s (medians of the same turns: 1 window thread, and the "
+          f"threads the walk starts beside it, e.g. its raster reads)")
     print(f"  statistics share                                {100 * stats_cost / total:6.1f} % "
           f"of the 1-worker render (target <= 10 %; median of {len(pairs)} alternating pairs' "
           f"differences, {stats_cost:.2f} s; pairs: "
