@@ -306,8 +306,15 @@ else:                                   # compute only: every window, no outputs
                                      tuple(style.map.background),
                                      blends=[la.spec.blend for la in r.layers])
         t1, c1 = time.perf_counter(), time.process_time()
-        run(r, [], measure=(mode in ("measure", "previews")), mapper=mapper, previews=previews,
-            **extra)
+        # the rows assembled into bands and handed to a sink, as a render's writers get them,
+        # then dropped: with no sink at all the engine makes no bands (a check's walk), which a
+        # render always pays for
+        class Drop:
+            def rows(self, row0, rgb8):
+                pass
+
+        run(r, [Drop()], measure=(mode in ("measure", "previews")), mapper=mapper,
+            previews=previews, **extra)
         result["compute"] = time.perf_counter() - t1
         result["compute_cpu"] = time.process_time() - c1   # every thread of this process
         if inside:
