@@ -600,3 +600,54 @@ def test_flat_color_composite_equals_the_numpy_strips_bit_for_bit(use, mode, opa
         results.append(target.copy())
     assert results[0].tobytes() == results[1].tobytes()
     assert not np.array_equal(results[0], back[:, :, ::2] if strided else back[:, :, :w])
+
+
+@pytest.mark.parametrize("holes", [False, True])
+@pytest.mark.parametrize("reach", ["inside", "edges", "outside"])
+def test_bilinear_read_equals_the_numpy_path_bit_for_bit(use, holes, reach):
+    """compose.sources.resample.sample_centres' plain bilinear read (positions -> taps -> the 4
+    gathers -> the float32 lerps, then the no-data renormalisation): compiled against numpy,
+    bit for bit (NaN where both give NaN), on a rotated, stretched grid of positions that stays
+    inside the source, touches its edges or reaches beyond it (NaN cells there, as the
+    readers give). Random source cells; the numpy path is the reference
+    (tests/sources/test_resample.py checks it against bilinear interpolation's formula)."""
+    from compose.sources import resample as R
+
+    rng = np.random.default_rng(15)
+    src = rng.uniform(-500.0, 3000.0, (60, 70)).astype(np.float32)
+    if holes:
+        src[rng.random(src.shape) < 0.1] = np.nan
+        src[20:30, 5:9] = np.nan
+
+    def read(r, c, h, w):
+        return R.cut_block(src, r, c, h, w)
+
+    a = np.radians(7.0)
+    j, i = np.meshgrid(np.arange(48, dtype=np.float64), np.arange(40, dtype=np.float64))
+    x = 3.3 + j * 1.13 * np.cos(a) - i * 0.97 * np.sin(a)
+    y = 1.7 + j * 1.13 * np.sin(a) + i * 0.97 * np.cos(a)
+    if reach == "edges":
+        x[0, :] = 0.0
+        y[:, 0] = 0.0
+        x[-1, :] = src.shape[1] - 1.0
+    elif reach == "outside":
+        x, y = x - 8.25, y - 5.5
+    got = {}
+    for on in (True, False):
+        use(on)
+        R.forget_taps()
+        got[on] = R.sample_centres(read, x, y, "bilinear")
+    assert got[True].dtype == got[False].dtype == np.float32
+    np.testing.assert_array_equal(got[True].view(np.uint32) * ~np.isnan(got[True]),
+                                  got[False].view(np.uint32) * ~np.isnan(got[False]))
+    np.testing.assert_array_equal(np.isnan(got[True]), np.isnan(got[False]))
+    assert np.isfinite(got[False]).any()
+    if holes or reach == "outside":
+        assert np.isnan(got[False]).any()
+
+
+def test_bilinear_kernel_refuses_taps_outside_its_cells(compiled):
+    flat = np.zeros(12, np.float32)
+    d = np.zeros(1, np.float32)
+    with pytest.raises(ValueError):
+        compiled.bilinear(flat, np.array([8], np.intp), d, d, 3, np.empty(1, np.float32))

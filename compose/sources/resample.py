@@ -24,6 +24,8 @@ from collections.abc import Callable
 
 import numpy as np
 
+from compose import kernels
+
 __all__ = ["sample", "sample_centres", "cut_block", "forget_taps", "Reader"]
 
 #: read(row0, col0, height, width) -> float32 block of source cells, NaN = no data; the rectangle
@@ -114,8 +116,7 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
         return sample(read, x + 0.5, y + 0.5, method, shrink, reduce)
     row0, col0, bh, bw, base, dx, dy = _taps(x, y)
     flat = read(row0, col0, bh, bw).reshape(-1)
-    out = _lerp2(flat.take(base), flat[1:].take(base), flat[bw:].take(base),
-                 flat[bw + 1:].take(base), dx, dy)
+    out = _bilinear(flat, base, dx, dy, bw)
     bad = np.flatnonzero(np.isnan(out))
     if bad.size:                             # no data under the kernel: renormalise over valid cells
         valid = np.isfinite(flat)
@@ -192,6 +193,21 @@ def _lerp2(a: np.ndarray, b: np.ndarray, c: np.ndarray, d: np.ndarray,
     c -= a
     c *= dy
     return a + c
+
+
+def _bilinear(flat: np.ndarray, base: np.ndarray, dx: np.ndarray, dy: np.ndarray,
+              bw: int) -> np.ndarray:
+    """:func:`_lerp2` of the 4 taps of each first tap ``base`` in ``flat`` (float32 cells of a
+    block ``bw`` wide), shaped like ``base``: compiled in one pass without the GIL
+    (:mod:`compose.kernels`, the same float32 steps, so the same bits) or in numpy."""
+    k = kernels.get()
+    if k is not None:
+        out = np.empty(base.shape, np.float32)
+        k.bilinear(np.ascontiguousarray(flat, np.float32), base.reshape(-1), dx.reshape(-1),
+                   dy.reshape(-1), bw, out.reshape(-1))
+        return out
+    return _lerp2(flat.take(base), flat[1:].take(base), flat[bw:].take(base),
+                  flat[bw + 1:].take(base), dx, dy)
 
 
 def cut_block(block: np.ndarray, r: int, c: int, h: int, w: int) -> np.ndarray:
