@@ -212,9 +212,10 @@ def write_sheet(path: Path, thumbnails: dict[str, np.ndarray], title: str = "",
         ax.set_title(TITLES.get(k, k), fontsize=8)
         ax.set_axis_off()
     if title:
-        fig.text(0.5, 1 - 0.08 / H, title, ha="center", va="top", fontsize=10)
+        # the map's title as written: a "$" is a dollar, never the start of mathtext
+        fig.text(0.5, 1 - 0.08 / H, title, ha="center", va="top", fontsize=10, parse_math=False)
     if caption:
-        fig.text(0.5, 0.08 / H, caption, ha="center", va="bottom", fontsize=7)
+        fig.text(0.5, 0.08 / H, caption, ha="center", va="bottom", fontsize=7, parse_math=False)
     fig.savefig(path, format="png", dpi=dpi)
 
 

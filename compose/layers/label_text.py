@@ -40,7 +40,7 @@ import numpy as np
 from compose.errors import StyleError
 from compose.layers.agg import Path, extension, package_folder
 
-__all__ = ["TextShape", "Face", "measure_text", "text_outline", "face", "remembered",
+__all__ = ["TextShape", "Face", "measure_text", "text_width", "text_outline", "face", "remembered",
            "font_object", "ft2font", "MEMO_FILE"]
 
 _FT = "matplotlib.ft2font"
@@ -466,6 +466,14 @@ def measure_text(text: str, size_px: float, font: str = "DejaVu Sans",
         asc = h - d
     v.setflags(write=False)
     return TextShape(text, float(w), float(asc), float(d), v, np.asarray(codes))
+
+
+def text_width(text: str, size_pt: float, font: str = "DejaVu Sans",
+               weight: str = "normal") -> float:
+    """Width in points of ``text`` as plain text (no mathtext) at ``size_pt`` points: the Agg
+    renderer's text extent at 72 dpi, where a point is a pixel. For one line of furniture
+    (a title, a credit line) that must fit the page's width."""
+    return _text_extent(text, float(size_pt), face(font, weight))[0]
 
 
 def _text_extent(text: str, size_px: float, f: Face) -> tuple[float, float, float]:

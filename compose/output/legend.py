@@ -70,6 +70,12 @@ __all__ = ["write_legend", "legend_png", "legend_figure", "draw_legend", "legend
 
 # --- drawing ---------------------------------------------------------------------------------
 
+def _text(ax, x: float, y: float, s: str, **kw):
+    """``ax.text`` of the legend's words as written: a "$" in a title, unit or class label is a
+    dollar, never the start of mathtext."""
+    return ax.text(x, y, s, parse_math=False, **kw)
+
+
 def _ticks(block: RampsBlock, values: np.ndarray, xs: np.ndarray) -> list[tuple[float, str]]:
     """(x inches, label) of the axis under a colour-bar block."""
     lut = block.layers[0].lut
@@ -103,7 +109,7 @@ def _bar_image(lut, box: BarBox) -> np.ndarray:
 def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
     from matplotlib.patches import Rectangle
 
-    ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
+    _text(ax, MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center", ha="left")
     ramp = ramp_of(b.layers[0])
     marks = ramp_marks(ramp)
@@ -124,12 +130,12 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
                                         (lut.outside_high_index, x1 + END_GAP, ">", 1)):
             _swatch(ax, left, top, END_W, bottom - top, np.asarray(lut.rgb8[index]) / 255, b.seen,
                     zorder=2)
-            ax.text(left + END_W / 2 + side * (END_W / 2 + 0.035), mid, sign, fontsize=FONT - 0.6,
+            _text(ax, left + END_W / 2 + side * (END_W / 2 + 0.035), mid, sign, fontsize=FONT - 0.6,
                     color=MUTED, ha="center", va="center")
         ax.add_patch(Rectangle((x0, top), x1 - x0, bottom - top, fill=False, edgecolor=FRAME,
                                lw=0.4, zorder=3))
         if label:
-            ax.text(x0 - END - 0.05, mid, label, fontsize=FONT, color=INK, ha="right",
+            _text(ax, x0 - END - 0.05, mid, label, fontsize=FONT, color=INK, ha="right",
                     va="center")
     bar_top, bar_bottom = mine[0].y0 / DPI, mine[-1].y1 / DPI
     if b.layers[0].lut.stepped and len(xs) > 2:   # class boundaries as hairlines between the blocks
@@ -137,18 +143,18 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
             ax.plot([x, x], [bar_top, bar_bottom], color=PAPER, lw=0.5, zorder=2.5)
     for x, text in _ticks(b, values, xs):
         ax.plot([x, x], [bar_bottom, bar_bottom + 0.045], color=FRAME, lw=0.5)
-        ax.text(x, bar_bottom + 0.065, text, fontsize=FONT - 0.6, color=INK, ha="center", va="top")
+        _text(ax, x, bar_bottom + 0.065, text, fontsize=FONT - 0.6, color=INK, ha="center", va="top")
     for value, text in marks:
         x = float(np.interp(value, values, xs))
         # marked above and below the bars, never across them: the colours there are the message
         ax.plot([x, x], [bar_bottom, bar_bottom + 0.06], color=INK, lw=0.9, zorder=4,
                 solid_capstyle="butt")
         ax.plot([x], [bar_top - 0.045], marker="v", ms=3.6, color=INK, zorder=4)
-        ax.text(x, bar_top - 0.085, text, fontsize=FONT - 1, color=INK, ha="center", va="bottom")
+        _text(ax, x, bar_top - 0.085, text, fontsize=FONT - 1, color=INK, ha="center", va="bottom")
     y_sw = bar_bottom + AXIS_H
     _draw_swatches(ax, b.swatches, x0 - END + END_SIGN, y_sw, b.seen)
     if b.seen is not None:
-        ax.text(x0 - END + END_SIGN, y_sw + (SWATCH_ROW if b.swatches else 0.0) + NOTE_ROW * 0.45,
+        _text(ax, x0 - END + END_SIGN, y_sw + (SWATCH_ROW if b.swatches else 0.0) + NOTE_ROW * 0.45,
                 SHADED_NOTE, fontsize=FONT - 1.4, style="italic", color=MUTED, va="center")
 
 
@@ -171,13 +177,13 @@ def _swatch(ax, x: float, y: float, w: float, h: float, rgb, seen=None, zorder: 
 def _draw_swatches(ax, swatches, x: float, y: float, seen=None) -> None:
     for label, rgb8 in swatches:
         _swatch(ax, x, y + 0.03, 0.3, 0.145, np.asarray(rgb8) / 255, seen)
-        ax.text(x + 0.38, y + 0.1, label, fontsize=FONT, color=INK, va="center")
+        _text(ax, x + 0.38, y + 0.1, label, fontsize=FONT, color=INK, va="center")
         x += 0.38 + 0.075 * len(label) + 0.25
 
 
 def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
 
-    ax.text(MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
+    _text(ax, MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center")
     indent = MARGIN + (0.12 if any(k == "family" for k, _ in b.rows) else 0.0)
     columns = b.columns or [b.rows]
@@ -188,12 +194,12 @@ def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
         x = indent + c * step
         for kind, item in rows:
             if kind == "family":
-                ax.text(x - (indent - MARGIN), yy + FAMILY_ROW * 0.55, pretty_name(item),
+                _text(ax, x - (indent - MARGIN), yy + FAMILY_ROW * 0.55, pretty_name(item),
                         fontsize=FONT - 0.4, style="italic", color=MUTED, va="center")
                 yy += FAMILY_ROW
                 continue
             _swatch(ax, x, yy + 0.03, 0.3, 0.145, rgb01(item.rgb), b.seen)
-            ax.text(x + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
+            _text(ax, x + 0.38, yy + 0.1, item.label or b.fmt(item.value), fontsize=FONT,
                     color=INK, va="center")
             yy += CLASS_ROW
         bottom = max(bottom, yy)
@@ -201,7 +207,7 @@ def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
     _draw_swatches(ax, b.swatches, indent, yy + 0.04, b.seen)
     if b.seen is not None:
         yy += (SWATCH_ROW + 0.04 if b.swatches else 0.0) + 0.04
-        ax.text(indent, yy + NOTE_ROW * 0.45, SHADED_NOTE, fontsize=FONT - 1.4, style="italic",
+        _text(ax, indent, yy + NOTE_ROW * 0.45, SHADED_NOTE, fontsize=FONT - 1.4, style="italic",
                 color=MUTED, va="center")
 
 
@@ -247,10 +253,10 @@ def _draw_overlays(ax, b: OverlaysBlock, y: float, width: float = WIDTH,
         elif kind == "text":
             effects = ([withStroke(linewidth=o.halo.width, foreground=rgb01(o.halo.color))]
                        if o.halo is not None else [])
-            ax.text((sx0 + sx1) / 2, cy, "Abc", fontsize=min(o.size, 11), color=rgb01(o.color),
+            _text(ax, (sx0 + sx1) / 2, cy, "Abc", fontsize=min(o.size, 11), color=rgb01(o.color),
                     family=o.font, weight=o.weight, ha="center", va="center",
                     path_effects=effects, alpha=alpha)
-        ax.text(MARGIN + 0.58, cy, pretty_name(layer.spec.name), fontsize=FONT, color=INK,
+        _text(ax, MARGIN + 0.58, cy, pretty_name(layer.spec.name), fontsize=FONT, color=INK,
                 va="center")
 
 
@@ -271,7 +277,7 @@ def draw_legend(ax, layout: LegendLayout, key_patch=KEY_PATCH) -> None:
             _draw_overlays(ax, b, y, layout.width, key_patch)
         y += b.height + GAP
     if not layout.blocks:
-        ax.text(MARGIN, TOP + 0.15, "no legend entries", fontsize=FONT, color=MUTED, va="center")
+        _text(ax, MARGIN, TOP + 0.15, "no legend entries", fontsize=FONT, color=MUTED, va="center")
     ax.set_xlim(0, layout.width)
     ax.set_ylim(layout.height, 0)
 

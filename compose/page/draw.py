@@ -77,7 +77,8 @@ class _Page:
 
     def text(self, x, y, s, size, **kw):
         kw.setdefault("color", self.ink)
-        return self.ax.text(x, y, s, fontsize=size, family=FONT, **kw)
+        # the page's words as written: a "$" is a dollar, never the start of mathtext
+        return self.ax.text(x, y, s, fontsize=size, family=FONT, parse_math=False, **kw)
 
     def paper_box(self, box):
         from matplotlib.patches import Rectangle
@@ -96,7 +97,8 @@ class _Page:
             if piece.kind in texts:
                 s, size, kw = texts[piece.kind]
                 x, y, w, h = piece.box
-                self.text(x, y + h * 0.5, s, size, va="center", ha="left", **kw)
+                # a line wider than the page is set smaller to fit (compose.page.layout.band_scale)
+                self.text(x, y + h * 0.5, s, size * piece.scale, va="center", ha="left", **kw)
 
     def neatline(self):
         from matplotlib.patches import Rectangle

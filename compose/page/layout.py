@@ -39,6 +39,12 @@ GRID_ROOM = 5.0                     # mm around the frame for grid labels
 MIN_SCALE = 0.7
 #: below this the legend is refused (type under ~3 pt): a larger paper or fewer classes is needed
 FLOOR_SCALE = 0.4
+#: the band lines' smallest type (pt): a title, subtitle or note line wider than the page is set
+#: smaller down to this, and refused below it (common practice, no source: as MIN_SCALE)
+MIN_TEXT_PT = {"title": 9.0, "subtitle": 6.5, "credits": 5.0, "caution": 5.0}
+#: their size and weight (the caution is set in italic, as wide as upright in the page's font)
+BAND_TEXT = {"title": (TITLE_PT, "bold"), "subtitle": (SUBTITLE_PT, "normal"),
+             "credits": (NOTE_PT, "normal"), "caution": (NOTE_PT, "normal")}
 
 
 @dataclass(frozen=True, slots=True)
@@ -82,6 +88,24 @@ def _bands(page, title: str) -> tuple[float, float]:
           (SUBTITLE_PT * LINE * PT_MM if page.subtitle else 0.0)
     bottom = sum(NOTE_PT * LINE * PT_MM for t in (page.credits, page.caution) if t)
     return top, bottom
+
+
+def band_scale(kind: str, text: str, width_mm: float, key: str) -> float:
+    """The fraction of its size at which the one line ``text`` of band piece ``kind`` fits
+    ``width_mm``: 1.0 when it fits as it is, else smaller down to :data:`MIN_TEXT_PT`; a line
+    that would need smaller type is a StyleError naming ``key``."""
+    from compose.layers.label_text import text_width
+
+    size, weight = BAND_TEXT[kind]
+    wide = text_width(text, size, "DejaVu Sans", weight) * PT_MM
+    if wide <= width_mm:
+        return 1.0
+    scale = width_mm / wide * 0.98           # room for the writers' own text metrics
+    if scale * size < MIN_TEXT_PT[kind]:
+        raise StyleError(f"{key}: {wide * MIN_TEXT_PT[kind] / size:.0f} mm long even at "
+                         f"{MIN_TEXT_PT[kind]:g} pt, the page leaves {width_mm:.0f} mm for it; "
+                         "shorten it or use a wider paper")
+    return scale
 
 
 def page_room(style) -> tuple[Box, float, float]:
@@ -132,16 +156,21 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
     fx, fy, fw, fh = frame
     pieces: list[Piece] = []
     y = t
+    width = W - left - r
+    title_key = "page.title" if page.title is not None else "map.title"
     if title:
-        pieces.append(Piece("title", (left, y, W - left - r, TITLE_PT * LINE * PT_MM)))
+        pieces.append(Piece("title", (left, y, width, TITLE_PT * LINE * PT_MM),
+                            scale=band_scale("title", title, width, title_key)))
         y += TITLE_PT * LINE * PT_MM
     if page.subtitle:
-        pieces.append(Piece("subtitle", (left, y, W - left - r, SUBTITLE_PT * LINE * PT_MM)))
+        pieces.append(Piece("subtitle", (left, y, width, SUBTITLE_PT * LINE * PT_MM),
+                            scale=band_scale("subtitle", page.subtitle, width, "page.subtitle")))
     y = H - b - bottom
     for kind in ("credits", "caution"):
         text = getattr(page, kind)
         if text:
-            pieces.append(Piece(kind, (left, y, W - left - r, NOTE_PT * LINE * PT_MM)))
+            pieces.append(Piece(kind, (left, y, width, NOTE_PT * LINE * PT_MM),
+                                scale=band_scale(kind, text, width, f"page.{kind}")))
             y += NOTE_PT * LINE * PT_MM
     grid = GRID_ROOM if page.grid is not None else 0.0
     if page.panel == "right":

@@ -532,3 +532,55 @@ def test_page_pdf_and_svg_are_the_same_bytes_from_one_render_to_the_next(tmp_pat
     second = render_style(style, tmp_path / "b", html=False)
     for key in ("pdf", "svg"):
         assert first.outputs[key].read_bytes() == second.outputs[key].read_bytes(), key
+
+
+NARROW = """
+[page]
+paper       = "A5"
+orientation = "portrait"
+margin      = 8
+title       = "A longer title for the productivity of the invented coastal province"
+subtitle    = "Costs from $5 to $10 per unit"
+credits     = "Data: generated in the test; $2 a sheet, $3 bound"
+"""
+
+
+@needs_poppler
+def test_a_title_wider_than_the_page_is_set_smaller_and_dollars_are_printed(tmp_path):
+    """A title wider than the paper at its 15 pt is set smaller until it fits inside the
+    margins (it ran off the sheet, cut off); a "$" in the page's and the legend's words is a
+    dollar (two of them made mathtext of the words between). Word boxes and text read by
+    poppler's pdftotext, an outside reader of the PDF."""
+    path = tiny_style(tmp_path, extra=False)
+    path.write_text(path.read_text().replace(
+        'ramp   = "land"\n', 'ramp   = "land"\nlegend = { units = "$ per $100" }\n', 1)
+        + textwrap.dedent(NARROW))
+    result = render_style(load_style(path), tmp_path / "out", html=False, check=False)
+    pdf = str(result.outputs["pdf"])
+    text = subprocess.run(["pdftotext", pdf, "-"], capture_output=True, text=True,
+                          check=True).stdout
+    for s in ("A longer title for the productivity of the invented coastal province",
+              "Costs from $5 to $10 per unit", "$2 a sheet, $3 bound", "$ per $100"):
+        assert s in text, s
+    boxes = subprocess.run(["pdftotext", "-bbox", pdf, "-"], capture_output=True, text=True,
+                           check=True).stdout
+    page_w = float(re.search(r'<page width="([\d.]+)"', boxes).group(1))
+    assert page_w * 25.4 / 72 == pytest.approx(148.0, abs=0.05)       # ISO 216 A5 portrait
+    right = page_w - 8 / 25.4 * 72                                     # the 8 mm margin, in pt
+    words = re.findall(r'xMin="([\d.]+)"[^>]*xMax="([\d.]+)"[^>]*>([^<]*)</word>', boxes)
+    assert words and max(float(x1) for _, x1, _ in words) <= right
+    last = next(float(x1) for _, x1, w in words if w == "province")
+    assert last > right - 20          # set smaller to fit, not to a size far below it
+
+
+def test_a_title_too_long_even_in_the_smallest_type_is_refused(tmp_path):
+    """Past 9 pt a title no longer reads as one: the page refuses it, naming the key."""
+    from compose.errors import StyleError
+    from compose.page.layout import page_layout
+
+    long = "A title " + "that goes on and on " * 12
+    style = _style(tmp_path, NARROW.replace(
+        'title       = "A longer title for the productivity of the invented coastal province"',
+        f'title       = "{long}"'))
+    with pytest.raises(StyleError, match=r"^page\.title: .* even at 9 pt"):
+        page_layout(style)
