@@ -91,6 +91,49 @@ def _num(v) -> str:
     return str(v)
 
 
+#: How a rule's unit (compose.check.catalog) follows its numbers in the check table: a share
+#: (0-1) is shown in per cent; a symbol after a space, the degree sign without one (SI Brochure,
+#: 9th ed., BIPM 2019, 5.4.3 and 5.4.7); counts and Spearman's rho have no unit.
+_UNIT_TEXT = {"share": " %", "%": " %", "degrees": "\u00b0", "L*": " L*", "C*ab": " C*ab",
+              "dE00": " dE00"}
+_COMPARISON = {">=": "\u2265 ", "<=": "\u2264 "}
+
+
+def _with_unit(v, unit: str, share_digits: int | None = None) -> str:
+    """``v`` (a number, a [low, high] pair or None) with its unit: shares as per cent,
+    ``share_digits`` decimals when given (measured values), else as :func:`_num` writes them."""
+    if v is None:
+        return "\u2013"
+    if isinstance(v, (list, tuple)):
+        return " \u2013 ".join(_with_unit(x, "", share_digits) if unit != "share" else
+                                _with_unit(x, unit, share_digits).removesuffix(" %")
+                                for x in v) + _UNIT_TEXT.get(unit, "")
+    if hasattr(v, "item"):
+        v = v.item()
+    if unit == "share" and isinstance(v, (int, float)) and not isinstance(v, bool):
+        if not math.isfinite(v):
+            return "n/a"
+        text = f"{v * 100:.{share_digits}f}" if share_digits is not None else _num(v * 100.0)
+        return text + " %"
+    text = _num(v)
+    return text if text in ("n/a", "\u2013") else text + _UNIT_TEXT.get(unit, "")
+
+
+def measured_text(r) -> str:
+    """The check table's "measured" cell of rule result ``r``: its value with its unit."""
+    return _with_unit(r.value, r.unit, share_digits=1)
+
+
+def limit_text(r) -> str:
+    """The check table's "limit" cell of ``r``: how the value must compare, the limit, its
+    unit ("\u2265 95 %", "\u2264 12 C*ab", "55 \u2013 98 L*")."""
+    if r.limit is None:
+        return "\u2013"
+    text = _with_unit(r.limit, r.unit)
+    return _COMPARISON.get(r.comparison, "") + text if not isinstance(r.limit, (list, tuple)) \
+        else text
+
+
 def _rank(r) -> int:
     if not r.passed:
         return 0
@@ -145,14 +188,15 @@ def _check_table(report) -> str:
         rows.append(
             f'<tr class="{_row_class(r)}"><td class="rule"><code title="{esc(about.get(r.rule, ""))}">'
             f'{esc(r.rule)}</code>{sev}<div class="msg">{esc(r.message)}</div></td>'
-            f"<td>{subject}</td><td class=\"num\">{esc(_num(r.value))}</td>"
-            f'<td class="num">{esc(_num(r.limit))}</td><td><span class="v">{esc(r.verdict)}</span></td>'
+            f'<td>{subject}</td><td class="num" data-label="measured">{esc(measured_text(r))}</td>'
+            f'<td class="num" data-label="limit">{esc(limit_text(r))}</td>'
+            f'<td class="verdict-cell"><span class="v">{esc(r.verdict)}</span></td>'
             f'<td class="fix">{esc(r.fix) if r.fix else "<span class=muted>–</span>"}</td></tr>')
     head = ("<thead><tr><th>rule</th><th>layer</th><th>measured</th><th>limit</th><th>verdict</th>"
             "<th>fix</th></tr></thead>")
     return (f'<table id="check-results">{head}<tbody>{"".join(rows)}</tbody></table>'
-            '<p class="note">Units and the source of each limit are in the message under the rule; '
-            "hover a rule name for what it measures.</p>")
+            '<p class="note">Shares in per cent of the pixels judged. The source of each limit is '
+            "in the message under the rule; hover a rule name for what it measures.</p>")
 
 
 def _figure(uri: str, caption: str, alt: str, cls: str = "", figure_cls: str = "") -> str:
@@ -290,13 +334,33 @@ def ramps_section(style, ramps) -> str:
             "evenness, differences, rule results): <code>compose ramp NAME --plot FILE</code>.</p>")
 
 
+def ground_unit(crs) -> str:
+    """The unit of ``crs``'s coordinates for a pixel size: "m" for a projected CRS in metres,
+    the unit's name for another projected one (as GDAL names it), the degree sign for a
+    geographic one, "CRS units" when GDAL cannot say."""
+    from compose.sources.crs import rio_crs
+
+    parsed = rio_crs(crs)
+    if parsed is None:
+        return " CRS units"
+    if parsed.is_geographic:
+        return "\u00b0"
+    try:
+        name, factor = parsed.linear_units_factor
+    except Exception:           # CRSError: GDAL names no linear unit
+        return " CRS units"
+    return " m" if float(factor) == 1.0 else f" {name}"
+
+
 def _facts(style, result) -> str:
     plan = style.canvas_plan()      # the grid as drawn (like, width, extent_crs resolved)
     grid = plan.canvas
     rows = [("style", str(style.path)), ("canvas", f"{result.width} × {result.height} px"),
             ("CRS", grid.crs), ("extent", ", ".join(f"{v:.10g}" for v in grid.bounds)
                                 + "  (W, S, E, N)"),
-            ("pixel", f"{grid.pixel:g} CRS units"), ("dpi", f"{grid.dpi:g}")]
+            ("pixel", f"{grid.pixel:g}{ground_unit(grid.crs)}"),
+            # a page's print scale makes the dpi a fraction (1500 px over 155.6 mm): whole dots
+            ("dpi", f"{grid.dpi:.0f}" if grid.dpi >= 10 else f"{grid.dpi:.2g}")]
     rows += [("note", note) for note in plan.notes]
     if len(style.chain) > 1:
         rows.append(("extends", " → ".join(Path(p).name for p in style.chain)))
@@ -359,7 +423,7 @@ def _page_html(style, result, small) -> str:
     body = f"""<header>
 <h1>{esc(title)}</h1>
 <p class="sub">Proof page of <code>{esc(style.name)}</code> · {result.width} × {result.height} px ·
-{esc(grid.crs)} · {grid.pixel:g} units per pixel</p>
+{esc(grid.crs)} · {esc(f"{grid.pixel:g}{ground_unit(grid.crs)}")} per pixel</p>
 <p class="caution" role="note">{esc(CAUTION)}</p>
 {_headline(report)}
 </header>

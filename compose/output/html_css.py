@@ -1,5 +1,6 @@
-"""The inline style sheet of the HTML proof page: system fonts only, light, responsive from
-about 1000 px wide up, and an A4 print layout (a page break before each section, no dark
+"""The inline style sheet of the HTML proof page: system fonts only, light, one column under
+900 px, the check table's rows as stacked cards under 640 px (phones: nothing runs past the
+screen's right edge), and an A4 print layout (a page break before each section, no dark
 backgrounds, images at most the page width)."""
 from __future__ import annotations
 
@@ -93,6 +94,18 @@ footer { padding: 16px 0; font-size: 0.85rem; color: var(--muted); }
   .proofs { grid-template-columns: 1fr 1fr; }
   .proofs figure:first-child { grid-row: auto; grid-column: span 2; }
   td .msg { display: none; }
+}
+@media screen and (max-width: 640px) {
+  #check-results thead { display: none; }
+  #check-results, #check-results tbody { display: block; width: 100%; }
+  #check-results tr { display: grid; grid-template-columns: minmax(0, 1fr) auto; column-gap: 10px;
+    padding: 6px 0; border-bottom: 1px solid var(--rule); }
+  #check-results td { grid-column: 1; border: 0; padding: 1px 0; overflow-wrap: anywhere; }
+  #check-results td.verdict-cell { grid-column: 2; grid-row: 1; }
+  #check-results td.num::before { content: attr(data-label) " "; color: var(--muted); }
+  #check-results td.fix { max-width: none; }
+  #check-results tr.pass td.fix { display: none; }
+  dl.facts dd { overflow-wrap: anywhere; }
 }
 @media print {
   @page { size: A4; margin: 12mm; }

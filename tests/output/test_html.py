@@ -148,3 +148,60 @@ def test_browser_prints_the_page_to_pdf(page, tmp_path):
     data = pdf.read_bytes()
     assert data.startswith(b"%PDF") and len(data) > 20_000
     assert data.count(b"/Type /Page") - data.count(b"/Type /Pages") >= 3   # sections break pages
+
+
+def _cells(text: str, label: str) -> list[str]:
+    import html as _html
+    return [_html.unescape(c) for c in
+            re.findall(rf'<td class="num" data-label="{label}">(.*?)</td>', text)]
+
+
+def test_check_table_numbers_carry_their_units(page):
+    """Each measured value and limit carries its unit: shares in per cent (the message under a
+    rule says "100.0% of stroke pixels ... need 95%", the cells said "1" and "0.95"), a space
+    before a unit symbol and before "%" (SI Brochure, 9th ed., BIPM 2019, 5.4.3 and 5.4.7),
+    the limit with its comparison. The units come from the rule catalogue's entries."""
+    _, result, path = page
+    text = path.read_text(encoding="utf-8")
+    rules = sorted_results(result.report)
+    measured, limits = _cells(text, "measured"), _cells(text, "limit")
+    assert len(measured) == len(limits) == len(rules) > 0
+    seen = set()
+    for r, m, lim in zip(rules, measured, limits):
+        if r.unit == "share" and isinstance(r.value, float):
+            assert m == f"{r.value * 100:.1f} %", (r.rule, m)
+            sign = {">=": "\u2265", "<=": "\u2264"}[r.comparison]
+            assert lim == f"{sign} {r.limit * 100:g} %", (r.rule, lim)
+            seen.add("share")
+        elif r.unit in ("L*", "C*ab", "dE00") and isinstance(r.value, float):
+            assert m.endswith(f" {r.unit}") and lim.endswith(f" {r.unit}"), (r.rule, m, lim)
+            seen.add(r.unit)
+    assert {"share", "L*", "C*ab"} <= seen
+
+
+def test_facts_name_the_pixel_unit_and_whole_dots(page):
+    """EPSG:32631 (WGS 84 / UTM zone 31N in the EPSG registry) is in metres: a pixel of 30 is
+    "30 m", not "30 CRS units"."""
+    _, _, path = page
+    text = path.read_text(encoding="utf-8")
+    assert "<dt>pixel</dt><dd>30 m</dd>" in text
+    assert "30 m per pixel" in text and "units per pixel" not in text
+    dpi = re.search(r"<dt>dpi</dt><dd>([^<]*)</dd>", text).group(1)
+    assert re.fullmatch(r"\d+", dpi), dpi
+
+
+@needs_browser
+def test_nothing_runs_past_a_phone_screen(page, tmp_path):
+    """At 390 CSS px (a phone held upright) the check table's columns ran past the right edge
+    (verdict and fix cut off): the page's right padding must stay plain paper all the way down."""
+    _, _, path = page
+    shot = tmp_path / "narrow.png"
+    run = _browser(tmp_path, f"--screenshot={shot}", "--window-size=390,5000", url=path)
+    assert shot.exists(), run.stderr[-2000:]
+    with Image.open(shot) as im:
+        rgb = np.asarray(im.convert("RGB"))
+    assert 'id="check-results"' in path.read_text(encoding="utf-8")
+    edge = rgb[:, -6:].reshape(-1, 3)
+    paper = rgb[5, -3]                     # the header's top right corner: the body's paper
+    assert (rgb[:, :-6] != paper).any()    # a page, not blank
+    assert (edge == paper).all(), np.flatnonzero(~(rgb[:, -6:] == paper).all(axis=(1, 2)))[:5]
