@@ -545,20 +545,29 @@ typedef struct {
     const Tables *t;
     const double *l8;
     double *cts, *cnt, *col;
+    uint16_t *c16;      /* (m, 101) zeros: this call's counts, added to cts and cnt at the end */
+    int32_t *kept;      /* (k2,) scratch: a row's columns kept */
 } GraySampled;
 
 /* gray's loop for uint16 entries, no alpha and nothing above, colours counted, over samples
  * 2 elements apart, in a function of its own so that its pointers stay in registers: the same
- * additions in the same order as gray_row. 1 when an entry lies outside lo..lo + m - 1. */
+ * numbers as gray_row. 1 when an entry lies outside lo..lo + m - 1.
+ * The counts are whole numbers, so they are counted in uint16 (the entries x L* cells a
+ * window touches lie scattered over hundreds of kB as float64: a quarter of the bytes stays
+ * in cache) and added to cts at the end, whole numbers added in another grouping, exactly (a
+ * count that wraps past 65535 adds 65536 at once); every pixel kept here is also drawn and
+ * counted, so each entry's count is its row's sum. The colour sums stay float64, added pixel
+ * by pixel in row-major order as gray_row adds them. */
 static inline __attribute__((always_inline)) int gray_sampled_body(const GraySampled *g,
                                                                    const int has_hidden) {
     const float *restrict ytab = g->t->ytab;
     const uint8_t *restrict lbin = g->t->lbin;
-    const Py_ssize_t ncell = g->t->ncell;
     const double *restrict l8 = g->l8;
     double *restrict cts = g->cts;
     double *restrict cnt = g->cnt;
     double *restrict col = g->col;
+    uint16_t *restrict c16 = g->c16;
+    int32_t *restrict kept = g->kept;
     const Py_ssize_t lo = g->lo, k2 = g->k2, plane = g->plane;
     const size_t m = (size_t)g->m;
     const Tables t = *g->t;
@@ -568,10 +577,20 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
         const float *restrict hd = has_hidden ? (const float *)(g->hbase + i * g->hrow) : NULL;
         uint32_t last_rgb = 0xffffffffu;
         Py_ssize_t last_l = 0;
-        for (Py_ssize_t j = 0; j < k2; j++) {
+        /* the row's samples not under an overlay, gathered first without a branch (they fall
+           where lines do not, so a branch would guess wrong often) */
+        Py_ssize_t n = k2;
+        if (has_hidden) {
+            n = 0;
+            for (Py_ssize_t j = 0; j < k2; j++) {
+                kept[n] = (int32_t)j;
+                n += hd[2 * j] < 0.02f;
+            }
+        }
+        for (Py_ssize_t q = 0; q < n; q++) {
+            const Py_ssize_t j = has_hidden ? kept[q] : q;
             Py_ssize_t e = (Py_ssize_t)ix[2 * j] - lo;
             if (__builtin_expect((size_t)e >= m, 0)) return 1;
-            if (has_hidden && !(hd[2 * j] < 0.02f)) continue;
             uint8_t r = p0[2 * j], gg = p0[2 * j + plane], b = p0[2 * j + 2 * plane];
             uint32_t rgb = ((uint32_t)r << 16) | ((uint32_t)gg << 8) | b;
             if (rgb != last_rgb) {
@@ -581,15 +600,26 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
                 y += ytab[512 + b];
                 last_l = lbin[y_cell(&t, y)];
             }
-            cts[e * 101 + last_l] += 1.0;
-            cnt[e] += 1.0;
+            Py_ssize_t at = e * 101 + last_l;
+            if (__builtin_expect(++c16[at] == 0, 0)) {
+                cts[at] += 65536.0;
+                cnt[e] += 65536.0;
+            }
             double *c3 = col + 3 * e;
             c3[0] += l8[r];
             c3[1] += l8[gg];
             c3[2] += l8[b];
         }
     }
-    (void)ncell;
+    for (size_t e = 0; e < m; e++) {
+        const uint16_t *restrict c = c16 + e * 101;
+        double *restrict d = cts + e * 101;
+        uint32_t sum = 0;
+        for (int l = 0; l < 101; l++) sum += c[l];
+        if (!sum) continue;
+        cnt[e] += (double)sum;
+        for (int l = 0; l < 101; l++) d[l] += (double)c[l];
+    }
     return 0;
 }
 
@@ -665,14 +695,19 @@ static PyObject *gray(PyObject *self, PyObject *args) {
     /* the commonest case, samples 2 elements apart: its own loop (the same numbers) */
     int sampled = u16 && !alpha.held && !above.held && cnt && ij == 4 && pj == 2
                   && (!hidden.held || hj == 8) && k1 > 0;
-    if (sampled) {
+    uint16_t *c16 = sampled ? (uint16_t *)PyMem_RawCalloc((size_t)m * 101 + 2 * (size_t)k2 + 2,
+                                                          sizeof(uint16_t)) : NULL;
+    if (sampled && c16) {
         GraySampled g = {AT2(index, 0, 0), index.b.strides[0],
                          (const uint8_t *)AT3(planes, 0, 0, 0), planes.b.strides[1], ps,
                          hidden.held ? AT2(hidden, 0, 0) : NULL,
                          hidden.held ? hidden.b.strides[0] : 0,
-                         k1, k2, lo, m, &t, l8, cts, cnt, col};
+                         k1, k2, lo, m, &t, l8, cts, cnt, col, c16,
+                         (int32_t *)(c16 + (((size_t)m * 101 + 1) & ~(size_t)1))};
         bad = hidden.held ? gray_sampled_hidden(&g) : gray_sampled_shown(&g);
     }
+    PyMem_RawFree(c16);
+    sampled = sampled && c16;       /* out of memory: the rows' loop below, the same numbers */
     /* the common cases with their tests made constant (see gray_row) */
     for (Py_ssize_t i = 0; i < k1 && !bad && !sampled; i++) {
         GrayRow row = {AT2(index, i, 0), ij, AT3(planes, 0, i, 0), ps, pj,

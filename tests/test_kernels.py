@@ -327,6 +327,41 @@ def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_
     assert a.value_lightness.sum() == a.value_count.sum() == sampled.sum() > 0
 
 
+@pytest.mark.parametrize("entries", [1, 2])
+def test_gray_order_of_a_flat_window_counts_past_65535_like_the_numpy_path(use, entries):
+    # A 512 x 512 window of one colour: its 256 x 256 = 65536 samples fall in one or two
+    # (entry, L*) cells, one more than the kernel's 16-bit counters hold (they wrap: 65536 is
+    # added at once, the same whole number); compared with the numpy path (np.bincount)
+    from types import SimpleNamespace
+
+    from compose.check.stats import N_LIGHTNESS, Statistics
+
+    h = w = 512
+    n = 4
+    layer = LayerStats(name="t", role="theme", kind="field", values=np.arange(n, dtype=float),
+                       value_lightness=np.zeros((n, N_LIGHTNESS)), value_color=np.zeros((n, 3)),
+                       value_count=np.zeros(n))
+    template = Statistics(width=w, height=h, layers=[layer], background=(1.0, 1.0, 1.0))
+    planes8 = np.full((3, h, w), 131, np.uint8)
+    rgb8 = np.ascontiguousarray(np.moveaxis(planes8, 0, -1))
+    index = np.full((h, w), 2, np.uint16)
+    if entries == 2:
+        index[:, ::4] = 1           # every other sample: 32768 in each of two cells
+    alpha = np.ones((h, w), np.float32)
+    results = []
+    for on in (True, False):
+        use(on)
+        window = SimpleNamespace(row=0, col=0, inner=(slice(0, h), slice(0, w)))
+        meter = M.WindowMeasure(template, window)
+        meter._themes = [(0, index, alpha, True, np.bincount(index.ravel(), minlength=n))]
+        results.append(meter.finish(rgb8, planes8))
+    a, b = (r.layers[0] for r in results)
+    for name in ("value_lightness", "value_color", "value_count"):
+        assert getattr(a, name).tobytes() == getattr(b, name).tobytes(), name
+    assert a.value_lightness.max() == 65536 // entries
+    assert a.value_count.sum() == 65536
+
+
 @pytest.mark.parametrize("strided", [False, True])
 def test_eight_bit_conversion_equals_the_numpy_path(use, strided):
     # np.clip to [0, 1], x 255, np.rint (half to even) and the cast: the same bytes, on the
