@@ -21,7 +21,7 @@ import numpy as np
 from compose.canvas import Canvas, Window
 
 __all__ = ["PAD", "EarlyRead", "SAMPLE_BLOCKS", "DECIMATE_BLOCKS", "BlockSample",
-           "sampled_cells"]
+           "sampled_cells", "SAMPLE_CACHE_BLOCKS", "SAMPLE_CACHE_BYTES"]
 
 #: Margin of the early read, in canvas pixels: at least any layer's margin (the engine's window
 #: margin is the largest of them); a window reaching further is read when painted instead.
@@ -112,6 +112,12 @@ _CELLS_LOCK = threading.Lock()
 #: blocks the draft's measures stay about as near the full check's as with 32 (see
 #: tests/layers/test_early.py), and each block is about 2.6 ms of decoding.
 SAMPLE_BLOCKS = 16
+
+#: GDAL's block cache while a sample's blocks are read (:meth:`BlockSample._small_cache`):
+#: this many of the file's blocks (at 8 bytes a cell, the widest type), at least
+#: :data:`SAMPLE_CACHE_BYTES`.
+SAMPLE_CACHE_BLOCKS = 2
+SAMPLE_CACHE_BYTES = 4 << 20
 
 #: Files of at most this many blocks over the canvas are read decimated (every block decoded,
 #: GDAL's averages), not sampled: cheap enough (the demo's 1500 x 1500 files in 256 px tiles
@@ -309,7 +315,23 @@ class BlockSample:
                 _CELLS[key] = got
         return got
 
+    def _small_cache(self):
+        """GDAL's block cache bounded to :data:`SAMPLE_CACHE_BLOCKS` of this file's blocks
+        meanwhile (:func:`compose.sources.guard.gdal_cache`): each block read is decoded once and
+        kept here as long as needed, so GDAL's copy is never read again; bounded, GDAL's
+        buffers of the blocks before are freed for the next instead of each block's landing
+        in fresh memory (the 8192 benchmark's 32 blocks: 32 MB, some 8000 page faults)."""
+        from compose.sources.guard import gdal_cache
+
+        bh, bw = self.block
+        return gdal_cache(max(SAMPLE_CACHE_BYTES, SAMPLE_CACHE_BLOCKS * bh * bw * 8))
+
     def read(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """:meth:`_read` under :meth:`_small_cache`."""
+        with self._small_cache():
+            return self._read(rows, cols)
+
+    def _read(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """float32 values of full-canvas cells (any shape; -1 or outside the file: NaN), as
         :meth:`RasterSource.cells_at <compose.sources.raster.RasterSource.cells_at>` reads
         them. Rows of a 2-D grid whose cells lie on one file row (the draft's own cells,
@@ -353,6 +375,11 @@ class BlockSample:
         return self.read(*self.cells(window))
 
     def neighbourhoods(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """:meth:`_neighbourhoods` under :meth:`_small_cache`."""
+        with self._small_cache():
+            return self._neighbourhoods(rows, cols)
+
+    def _neighbourhoods(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """The 3 x 3 neighbourhoods of full-canvas cells (rows, cols: int arrays (h, w), -1: no
         cell) laid side by side: float32 (3 h, 3 w), element (3 i + a, 3 j + b) the value of cell
         (rows[i, j] + a - 1, cols[i, j] + b - 1) -- exactly :meth:`read` of those cells, NaN

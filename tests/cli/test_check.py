@@ -88,3 +88,48 @@ def test_draft_checks_a_reduced_canvas_and_says_so(tmp_path):
     res = _run(["check", str(path), "--draft", "--json"])
     obj = json.loads(res.output)
     assert obj["draft"] is None      # 64 x 64 is already smaller than a draft: checked as is
+
+
+_REUSE = """
+import resource, sys
+import numpy as np
+if sys.argv[1] == "reuse":
+    from compose.cli.check import reuse_freed_memory
+    print(reuse_freed_memory())
+else:
+    print(None)
+a = np.ones(48 << 20, np.uint8)
+del a
+before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+for _ in range(4):
+    a = np.ones(48 << 20, np.uint8)
+    del a
+print(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before)
+"""
+
+
+def test_a_draft_command_reuses_the_memory_it_frees():
+    """``compose check --draft`` sets glibc's malloc (reuse_freed_memory) so a 48 MB array freed
+    and made again lands in the memory freed: no new page faults, where glibc's defaults map
+    each one anew (its mmap threshold rises with what is freed only up to 32 MB: glibc
+    mallopt(3), M_MMAP_THRESHOLD); the environment's own MALLOC_ settings win."""
+    import os
+    import platform
+    import subprocess
+    import sys
+
+    import pytest
+
+    if platform.libc_ver()[0] != "glibc":
+        pytest.skip("glibc's malloc only")
+    env = {k: v for k, v in os.environ.items()
+           if not k.startswith("MALLOC_") and k != "GLIBC_TUNABLES"}
+
+    def run(mode, **extra):
+        out = subprocess.run([sys.executable, "-c", _REUSE, mode], env={**env, **extra},
+                             capture_output=True, text=True, check=True).stdout.split()
+        return out[0], int(out[1])
+
+    assert run("reuse")[0] == "True" and run("reuse")[1] < 100
+    assert run("default")[1] >= 4 * 20      # each array faulted in anew (huge pages or not)
+    assert run("reuse", MALLOC_ARENA_MAX="2")[0] == "False"

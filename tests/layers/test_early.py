@@ -261,6 +261,44 @@ def test_neighbourhoods_gathered_by_block_are_the_cells_read_one_by_one(tmp_path
             source.close()
 
 
+def test_a_sample_decodes_its_blocks_under_a_small_gdal_cache(tmp_path):
+    """BlockSample reads its blocks with GDAL's block cache bounded to SAMPLE_CACHE_BLOCKS of
+    them (at least SAMPLE_CACHE_BYTES), the bound lifted afterwards; the values are the cells
+    RasterSource.cells_at reads under the default cache."""
+    from rasterio.env import get_gdal_config
+
+    from compose.layers.early import SAMPLE_CACHE_BLOCKS, SAMPLE_CACHE_BYTES, BlockSample
+    from compose.sources.raster import RasterSource
+
+    style = load_style(_big_style(tmp_path, n=1024, tile=256))
+    full = style.canvas()
+    draft = draft_canvas(full, 100)
+    seen = []
+
+    class Watched(BlockSample):
+        def source_block(self, *args):
+            seen.append(get_gdal_config("GDAL_CACHEMAX"))
+            return super().source_block(*args)
+
+    before = get_gdal_config("GDAL_CACHEMAX")
+    source = RasterSource(tmp_path / "dem.tif", layer="relief")
+    try:
+        sample = Watched(source, draft, full, round(draft.pixel / full.pixel), 4)
+        rows, cols = sample.cells(draft.whole(3))
+        got = sample.read(rows, cols)
+        hood = sample.neighbourhoods(rows, cols)
+        assert get_gdal_config("GDAL_CACHEMAX") == before > SAMPLE_CACHE_BYTES
+        bound = max(SAMPLE_CACHE_BYTES, SAMPLE_CACHE_BLOCKS * 256 * 256 * 8)
+        assert len(seen) > 4 and set(seen) == {bound}
+        off = (rows < 0) | (cols < 0)
+        orow, ocol = sample.offset
+        want = source.cells_at(np.where(off, -1, rows + orow), np.where(off, -1, cols + ocol))
+        assert np.array_equal(got, want, equal_nan=True)
+        assert np.array_equal(hood, _read_each(sample, rows, cols), equal_nan=True)
+    finally:
+        source.close()
+
+
 def test_a_sampled_draft_measures_its_relief_stretch_on_its_own_cells(tmp_path, monkeypatch):
     """A draft reading a sample of blocks takes the relief's "auto" stretch from the cells it
     shades (compose.layers.relief.ReliefLayer._sampled_stretch) and decodes no block outside
