@@ -216,7 +216,13 @@ def write_sheet(path: Path, thumbnails: dict[str, np.ndarray], title: str = "",
         fig.text(0.5, 1 - 0.08 / H, title, ha="center", va="top", fontsize=10, parse_math=False)
     if caption:
         fig.text(0.5, 0.08 / H, caption, ha="center", va="bottom", fontsize=7, parse_math=False)
-    fig.savefig(path, format="png", dpi=dpi)
+    import io
+
+    from compose.page.dates import dated_png
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=dpi)
+    Path(path).write_bytes(dated_png(buf.getvalue()))   # SOURCE_DATE_EPOCH's tIME, or none
 
 
 def proof_paths(style, out_dir: Path) -> dict[str, Path]:

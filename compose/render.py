@@ -105,6 +105,13 @@ def output_paths(style, out_dir: Path, *, proofs: bool = False) -> dict[str, Pat
     return paths
 
 
+def dated_png(data: bytes) -> bytes:
+    """:func:`compose.page.dates.dated_png`: a tIME chunk when SOURCE_DATE_EPOCH is set."""
+    from compose.page.dates import dated_png as dated
+
+    return dated(data)
+
+
 def _legend_png(style, prepared, nodata: set[str] | None) -> bytes:
     """The legend PNG of a prepared render (``nodata``: the layers with no-data on the map)."""
     from compose.output.legend import legend_png
@@ -347,8 +354,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
             if (legend or html) and not forked:
                 t = time.perf_counter()
                 legend_png = _legend_png(style, prepared, nodata_seen(stats))
-                if legend:
-                    tmp["legend"].write_bytes(legend_png)
+                if legend:      # the file dated by SOURCE_DATE_EPOCH; the review page's copy not
+                    tmp["legend"].write_bytes(dated_png(legend_png))
                 seconds["legend"] = time.perf_counter() - t
             if page_job is not None:
                 with span("wait page layout"):
@@ -369,8 +376,8 @@ def render_style(style, out_dir: Path, *, overwrite: bool = False,
                     legend_png = page_job.legend()          # drawn by the page process
                 if legend_png is None:
                     legend_png = _legend_png(style, prepared, nodata_seen(stats))
-                if legend:
-                    tmp["legend"].write_bytes(legend_png)
+                if legend:      # the file dated by SOURCE_DATE_EPOCH; the review page's copy not
+                    tmp["legend"].write_bytes(dated_png(legend_png))
                 seconds["legend"] = time.perf_counter() - t
             result = RenderResult(outputs=dict(paths), width=canvas.width, height=canvas.height,
                                   seconds=seconds, statistics=stats,

@@ -140,3 +140,40 @@ def test_proof_images_decode_once_and_give_each_proof():
     assert list(got) == list(PROOFS)
     for kind in PROOFS:
         assert np.array_equal(got[kind], proof_image(rgb, kind)), kind
+
+
+def test_the_contact_sheet_is_dated_only_by_source_date_epoch(tmp_path, monkeypatch):
+    """matplotlib writes the sheet without a date; with SOURCE_DATE_EPOCH set it gets a tIME
+    chunk (PNG, W3C / ISO/IEC 15948:2004, 11.3.6.1: year in 2 bytes, month, day, hour, minute,
+    second, UTC) before its image data, read here by Pillow; the pixels are the same."""
+    from PIL import Image, PngImagePlugin
+
+    from compose.proof import write_sheet
+
+    thumbs = {"map": np.full((20, 30, 3), 90, np.uint8), "gray": np.full((20, 30, 3), 40, np.uint8)}
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+    write_sheet(tmp_path / "plain.png", thumbs, "A $5 title")
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")      # 2023-11-14 22:13:20 UTC
+    write_sheet(tmp_path / "dated.png", thumbs, "A $5 title")
+
+    def chunks(path):
+        with open(path, "rb") as f:
+            f.read(8)
+            reader = PngImagePlugin.ChunkStream(f)
+            out = []
+            while True:
+                kind, pos, length = reader.read()
+                data = f.read(length)
+                reader.crc(kind, data)                      # Pillow checks each chunk's CRC
+                out.append((kind, data))
+                if kind == b"IEND":
+                    return out
+
+    plain, dated = chunks(tmp_path / "plain.png"), chunks(tmp_path / "dated.png")
+    assert b"tIME" not in [k for k, _ in plain]
+    kinds = [k for k, _ in dated]
+    assert kinds.index(b"tIME") < kinds.index(b"IDAT")
+    assert dict(dated)[b"tIME"] == bytes([0x07, 0xE7, 11, 14, 22, 13, 20])
+    assert [c for c in dated if c[0] != b"tIME"] == plain
+    with Image.open(tmp_path / "plain.png") as a, Image.open(tmp_path / "dated.png") as b:
+        assert np.array_equal(np.asarray(a), np.asarray(b))

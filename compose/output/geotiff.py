@@ -18,6 +18,7 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas
 from compose.output.atomic import DIRECT_BYTES, DirectFile
+from compose.page.dates import tiff_datetime
 
 __all__ = ["GeoTiffWriter", "to_cog"]
 
@@ -104,8 +105,9 @@ class GeoTiffWriter:
         ds = rasterio.open(self._target, "w", **profile, **more)
         ds.colorinterp = [ColorInterp.red, ColorInterp.green, ColorInterp.blue,
                           ColorInterp.alpha][:self.bands]
-        if tags:
-            ds.update_tags(**tags)
+        date = tiff_datetime()             # SOURCE_DATE_EPOCH's DateTime, or none
+        if tags or date:
+            ds.update_tags(**(tags or {}), **({"TIFFTAG_DATETIME": date} if date else {}))
         return ds
 
     def write(self, row: int, col: int, rgb8: np.ndarray, alpha8: np.ndarray | None = None) -> None:

@@ -317,4 +317,6 @@ def legend_png(style, ramps, layers, nodata_seen: set[str] | None = None) -> byt
 def write_legend(path: Path, style, ramps, layers) -> None:
     """Write the legend (:func:`legend_png`) as a PNG at ``path`` (the caller renames it into
     place)."""
-    Path(path).write_bytes(legend_png(style, ramps, layers))
+    from compose.page.dates import dated_png
+
+    Path(path).write_bytes(dated_png(legend_png(style, ramps, layers)))

@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 from compose.output.atomic import DIRECT_BYTES, DirectFile
+from compose.page.dates import png_time_chunk
 
 _isal: Any = None
 _zlib_ng: Any = None
@@ -175,6 +176,7 @@ class PngWriter:
         if dpi:
             ppm = int(round(dpi / 0.0254))
             self._f.write(_chunk(b"pHYs", struct.pack(">IIB", ppm, ppm, 1)))
+        self._f.write(png_time_chunk())     # SOURCE_DATE_EPOCH's tIME, or nothing
         self._header = _zlib_header(self.level)
 
     def _emit(self, piece: tuple[tuple[bytes, bytes], int, int]) -> None:

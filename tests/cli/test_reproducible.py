@@ -67,8 +67,54 @@ def test_every_output_of_a_render_is_the_same_bytes_and_dated_only_by_source_dat
     dated = _render(tmp_path / "out", epoch="1700000000")
     assert b"/CreationDate (D:20231114221320Z)" in dated["coast.pdf"]
     assert b"<dc:date>2023-11-14T22:13:20+00:00</dc:date>" in dated["coast.svg"]
-    # ... and nowhere else: every other output is the undated render's
-    assert {n for n in first if first[n] != dated[n]} == {"coast.pdf", "coast.svg"}
+    # every PNG a tIME chunk of that moment (PNG, W3C / ISO/IEC 15948:2004, 11.3.6.1: UTC,
+    # year in 2 bytes, then month, day, hour, minute, second), none without the variable
+    pngs = [n for n in first if n.endswith(".png")]
+    assert {"coast.png", "coast.legend.png", "coast.page.png"} <= set(pngs)
+    for name in pngs:
+        assert _png_chunks(first[name]).get(b"tIME") is None, name
+        assert _png_chunks(dated[name])[b"tIME"] == bytes([0x07, 0xE7, 11, 14, 22, 13, 20]), name
+    # the GeoTIFF a DateTime tag (TIFF 6.0, tag 306: "YYYY:MM:DD HH:MM:SS"), read by rasterio
+    # (GDAL) and by Pillow's own TIFF reader; none without the variable
+    assert _tiff_datetime(tmp_path, first["coast.tif"]) == (None, None)
+    assert _tiff_datetime(tmp_path, dated["coast.tif"]) == ("2023:11:14 22:13:20",) * 2
+    # ... and nowhere else: the report, the review page and the world file are the undated
+    # render's
+    assert {n for n in first if first[n] != dated[n]} == {"coast.pdf", "coast.svg", "coast.tif",
+                                                          *pngs}
+
+
+def _png_chunks(data: bytes) -> dict[bytes, bytes]:
+    """The chunks of a PNG file by type (PNG 5.3: length, type, data, CRC-32 of type and data;
+    each CRC checked), read without compose's code."""
+    import struct
+    import zlib
+
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    out, at = {}, 8
+    while at < len(data):
+        length, kind = struct.unpack(">I4s", data[at:at + 8])
+        body = data[at + 8:at + 8 + length]
+        (crc,) = struct.unpack(">I", data[at + 8 + length:at + 12 + length])
+        assert crc == zlib.crc32(kind + body) & 0xFFFFFFFF, kind
+        out.setdefault(kind, body)
+        at += 12 + length
+    assert kind == b"IEND"
+    return out
+
+
+def _tiff_datetime(tmp_path: Path, data: bytes) -> tuple[str | None, str | None]:
+    """The DateTime of a GeoTIFF's bytes as rasterio and Pillow read it."""
+    import rasterio
+    from PIL import Image
+
+    path = tmp_path / "read.tif"
+    path.write_bytes(data)
+    with rasterio.open(path) as ds:
+        gdal = ds.tags().get("TIFFTAG_DATETIME")
+    with Image.open(path) as im:
+        pillow = im.tag_v2.get(306)
+    return gdal, pillow
 
 
 def test_a_malformed_source_date_epoch_stops_the_command_before_any_work(tmp_path, monkeypatch):
