@@ -9,10 +9,10 @@ to every member as plain data, so equal values get equal colours across the seri
   at most :data:`SAMPLE_SIDE` pixels a side, as a single render does);
 * domains are the ramps' own (stated in the style, the same for every member).
 
-The scales are recorded in ``NAME.series.json`` beside the members' outputs (their paths relative
-to the record's folder, so the folder can be moved or published as a whole and the same series
-gives the same record in any folder), and ``NAME.series.html`` shows the members side by side with
-their check verdicts and the scales.
+The scales are recorded in ``NAME.series.json`` beside the members' outputs (their paths and the
+style's relative to the record's folder, so the folder can be moved or published as a whole, with
+its style where the style sits beside or inside it: :func:`style_from`), and
+``NAME.series.html`` shows the members side by side with their check verdicts and the scales.
 Members are independent renders and run in parallel worker processes.
 """
 from __future__ import annotations
@@ -182,6 +182,19 @@ colours across the series (also recorded in {esc(name)}.series.json).</p>
 """
 
 
+def style_from(style: Path, folder: Path) -> str:
+    """The style file's path as NAME.series.json in ``folder`` records it: relative to
+    ``folder`` ('/' between names, '..' to step out of it), both paths resolved first (symbolic
+    links followed, so '..' means the real parent), so a folder moved or published together
+    with its style still finds it; its absolute path where no relative one exists (on Windows,
+    a style on another drive)."""
+    real = Path(style).resolve()
+    try:
+        return Path(os.path.relpath(real, Path(folder).resolve())).as_posix()
+    except ValueError:                      # no path from one drive to another
+        return str(real)
+
+
 def _record(member: SeriesMember, folder: Path) -> dict:
     """A member as NAME.series.json in ``folder`` keeps it: everything but its seconds, its
     outputs' paths relative to ``folder`` with '/' between names, so the same series gives the
@@ -224,7 +237,7 @@ def render_series(path: Path, out_dir: Path, *, overrides: Sequence = (), overwr
             done = list(pool.map(_render_member, *zip(*jobs)))
     members = tuple(SeriesMember(**d) for d in done)
     with atomic_path(record) as tmp:
-        tmp.write_text(json.dumps({"series": series_name, "style": str(base.path),
+        tmp.write_text(json.dumps({"series": series_name, "style": style_from(base.path, out_dir),
                                    "scales": scales,
                                    "members": [_record(m, out_dir) for m in members]},
                                   indent=2, default=dict))

@@ -147,9 +147,16 @@ def test_a_series_and_its_record_are_the_same_bytes_in_any_folder(tmp_path):
         assert done.returncode == 0, done.stderr
         runs.append(_files(folder))
     assert "s.series.json" in runs[0]
-    for run in runs[1:]:
+    for folder, run in zip(folders[1:], runs[1:]):
         assert run.keys() == runs[0].keys()
         for name in runs[0]:
+            if name == "s.series.json":      # the same but for the style's relative path
+                mine, first = json.loads(run[name]), json.loads(runs[0][name])
+                assert mine.pop("style") == ("../../s.toml" if folder.name == "deeper"
+                                             else "../s.toml")
+                first.pop("style")
+                assert mine == first
+                continue
             assert run[name] == runs[0][name], name
     # the folder moved as a whole: every path the record names resolves from the record's folder
     moved = (tmp_path / "out").rename(tmp_path / "published")
@@ -159,7 +166,28 @@ def test_a_series_and_its_record_are_the_same_bytes_in_any_folder(tmp_path):
     for p in paths:
         assert not Path(p).is_absolute() and (moved / p).is_file(), p
     assert {moved / p for p in paths} == {moved / n for n in runs[0] if n.startswith("moist-")}
-    assert Path(record["style"]).is_absolute()   # the style is not in the folder: where it is
+    # the style, relative to the record's folder ('..' out of it; POSIX path resolution)
+    assert record["style"] == "../s.toml" and (moved / record["style"]).resolve() == \
+        (tmp_path / "s.toml").resolve()
+
+
+def test_a_series_record_names_its_style_relative_to_its_folder(tmp_path):
+    """The style inside the output folder, beside it, and reached through a symbolic link to
+    the folder: each recorded relative to the record's real folder ('/' between names)."""
+    from compose.series import style_from
+
+    (tmp_path / "pub" / "styles").mkdir(parents=True)
+    inside = tmp_path / "pub" / "styles" / "s.toml"
+    beside = tmp_path / "s.toml"
+    for p in (inside, beside):
+        p.write_text("")
+    (tmp_path / "link").symlink_to(tmp_path / "pub")
+    assert style_from(inside, tmp_path / "pub") == "styles/s.toml"
+    assert style_from(beside, tmp_path / "pub") == "../s.toml"
+    # through the link, '..' is the real folder's parent (POSIX resolves '..' after the link)
+    assert style_from(beside, tmp_path / "link") == "../s.toml"
+    assert (tmp_path / "link" / "../s.toml").resolve() == beside.resolve()
+    assert style_from(tmp_path / "link" / "styles" / "s.toml", tmp_path / "pub") == "styles/s.toml"
 
 
 def test_tiles_are_the_same_bytes(tmp_path):
