@@ -1576,8 +1576,261 @@ done:
     return result;
 }
 
+/* ==== lean: reprojected reads (compose.sources.grid, compose.sources.resample) ==============
+ * A reprojected window's positions and its plain bilinear read, each in one pass without the
+ * GIL (the walk's read-ahead thread makes them while Agg holds the GIL in the window thread):
+ * grid_interp is TransformGrid._interpolate, span the bounds sample_centres reads, and
+ * bilinear_at the taps, gathers, lerps and no-data renormalisation of sample_centres. The same
+ * float64 / float32 operations in the same order as the numpy paths, so the same bits
+ * (tests/sources/test_resample_kernels.py compiles and compares). */
+
+PyDoc_STRVAR(grid_interp_doc,
+"grid_interp(nodes, uoff, voff, step, out)\n\n"
+"compose.sources.grid.TransformGrid._interpolate: nodes (rows, cols) float64, C-contiguous;\n"
+"out (h, w) float64, C-contiguous, gets the nodes interpolated bilinearly at u = (j + uoff) /\n"
+"step, v = (i + voff) / step (node units) for pixel column j, row i: along node rows first,\n"
+"then between them, as the numpy path does. ValueError if a pixel lies before the first node.");
+
+/* grid_interp's loops: along the node rows i0.. (nb of them) into across, then between them */
+WIDE static void grid_interp_loop(const double *restrict N, const Py_ssize_t nr,
+                                  const Py_ssize_t nc, const double uoff, const double voff,
+                                  const double step, const Py_ssize_t i0, const Py_ssize_t nb,
+                                  double *restrict across, double *restrict sfrac,
+                                  Py_ssize_t *restrict col, double *restrict O,
+                                  const Py_ssize_t h, const Py_ssize_t w) {
+    for (Py_ssize_t j = 0; j < w; j++) {
+        const double u = ((double)j + uoff) / step;
+        Py_ssize_t c = (Py_ssize_t)floor(u);
+        if (c > nc - 2) c = nc - 2;
+        col[j] = c;
+        sfrac[j] = u - (double)c;
+    }
+    for (Py_ssize_t r = 0; r < nb; r++) {               /* along each node row */
+        const double *row = N + (i0 + r) * nc;
+        double *a = across + r * w;
+        for (Py_ssize_t j = 0; j < w; j++) {
+            const double s = sfrac[j];
+            a[j] = row[col[j]] * (1.0 - s) + row[col[j] + 1] * s;
+        }
+    }
+    for (Py_ssize_t i = 0; i < h; i++) {                /* between node rows */
+        const double v = ((double)i + voff) / step;
+        Py_ssize_t k = (Py_ssize_t)floor(v);
+        if (k > nr - 2) k = nr - 2;
+        const double t = v - (double)k;
+        const double *a = across + (k - i0) * w, *b = a + w;
+        double *o = O + i * w;
+        for (Py_ssize_t j = 0; j < w; j++) {
+            double m = t * (b[j] - a[j]);
+            o[j] = m + a[j];
+        }
+    }
+}
+
+static PyObject *grid_interp(PyObject *self, PyObject *args) {
+    PyObject *nodes_o, *out_o;
+    double uoff, voff, step;
+    if (!PyArg_ParseTuple(args, "OdddO", &nodes_o, &uoff, &voff, &step, &out_o)) return NULL;
+    Arr no = {0}, out = {0};
+    PyObject *result = NULL;
+    double *across = NULL, *sfrac = NULL;
+    Py_ssize_t *col = NULL;
+    if (take(nodes_o, &no, 2, K_F64, 0, 0, "nodes") < 0
+        || take(out_o, &out, 2, K_F64, 1, 0, "out") < 0)
+        goto done;
+    const Py_ssize_t nr = no.b.shape[0], nc = no.b.shape[1];
+    const Py_ssize_t h = out.b.shape[0], w = out.b.shape[1];
+    if (!PyBuffer_IsContiguous(&no.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C') || nr < 2
+        || nc < 2 || h < 1 || w < 1 || !(step > 0)) {
+        PyErr_SetString(PyExc_ValueError, "grid_interp: shapes, types or strides do not fit");
+        goto done;
+    }
+    const double *N = (const double *)no.b.buf;
+    double *O = (double *)out.b.buf;
+    /* node rows of the first and last pixel rows (the numpy path's band) */
+    const double v0 = ((double)0 + voff) / step, v1 = ((double)(h - 1) + voff) / step;
+    Py_ssize_t i0 = (Py_ssize_t)floor(v0), i1 = (Py_ssize_t)floor(v1);
+    if (i0 > nr - 2) i0 = nr - 2;
+    if (i1 > nr - 2) i1 = nr - 2;
+    const double u0 = ((double)0 + uoff) / step;
+    if (!(v0 >= 0) || !(u0 >= 0) || !isfinite(v1) || !isfinite(((double)(w - 1) + uoff) / step)) {
+        PyErr_SetString(PyExc_ValueError, "grid_interp: pixels outside the nodes");
+        goto done;
+    }
+    const Py_ssize_t nb = i1 - i0 + 2;                  /* node rows the window needs */
+    across = PyMem_RawMalloc((size_t)(nb * w) * sizeof(double));
+    sfrac = PyMem_RawMalloc((size_t)w * sizeof(double));
+    col = PyMem_RawMalloc((size_t)w * sizeof(Py_ssize_t));
+    if (across == NULL || sfrac == NULL || col == NULL) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    grid_interp_loop(N, nr, nc, uoff, voff, step, i0, nb, across, sfrac, col, O, h, w);
+    Py_END_ALLOW_THREADS
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    PyMem_RawFree(across); PyMem_RawFree(sfrac); PyMem_RawFree(col);
+    drop(&no); drop(&out);
+    return result;
+}
+
+PyDoc_STRVAR(span_doc,
+"span(x, y) -> (xmin, xmax, ymin, ymax)\n\n"
+"floor of the smallest and largest of x and of y (float64, C-contiguous, same size), as\n"
+"floats. ValueError if any is NaN.");
+
+static PyObject *span(PyObject *self, PyObject *args) {
+    PyObject *x_o, *y_o;
+    if (!PyArg_ParseTuple(args, "OO", &x_o, &y_o)) return NULL;
+    Arr xa = {0}, ya = {0};
+    PyObject *result = NULL;
+    if (PyObject_GetBuffer(x_o, &xa.b, PyBUF_STRIDES | PyBUF_FORMAT) < 0) goto done;
+    xa.held = 1;
+    if (PyObject_GetBuffer(y_o, &ya.b, PyBUF_STRIDES | PyBUF_FORMAT) < 0) goto done;
+    ya.held = 1;
+    if (kind_of(&xa.b) != K_F64 || kind_of(&ya.b) != K_F64
+        || !PyBuffer_IsContiguous(&xa.b, 'C') || !PyBuffer_IsContiguous(&ya.b, 'C')
+        || xa.b.len != ya.b.len || xa.b.len < 8) {
+        PyErr_SetString(PyExc_ValueError, "span: shapes, types or strides do not fit");
+        goto done;
+    }
+    const Py_ssize_t m = xa.b.len / 8;
+    const double *X = (const double *)xa.b.buf, *Y = (const double *)ya.b.buf;
+    double xl = X[0], xh = X[0], yl = Y[0], yh = Y[0];
+    int nan = 0;
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < m; i++) {
+        const double a = X[i], b = Y[i];
+        if (a != a || b != b) { nan = 1; break; }
+        xl = a < xl ? a : xl; xh = a > xh ? a : xh;
+        yl = b < yl ? b : yl; yh = b > yh ? b : yh;
+    }
+    Py_END_ALLOW_THREADS
+    if (nan) {
+        PyErr_SetString(PyExc_ValueError, "span: NaN position");
+        goto done;
+    }
+    result = Py_BuildValue("dddd", floor(xl), floor(xh), floor(yl), floor(yh));
+done:
+    drop(&xa); drop(&ya);
+    return result;
+}
+
+/* resample._triangle of one float32 distance */
+static inline float tri(float d) {
+    const float t = 1.0f - fabsf(d);
+    return t > 0.0f ? t : 0.0f;
+}
+
+PyDoc_STRVAR(bilinear_at_doc,
+"bilinear_at(cells, row0, col0, x, y, out)\n\n"
+"compose.sources.resample.sample_centres' plain bilinear read at cell-centre positions x, y\n"
+"(float64, C-contiguous, same size): cells (bh, bw) float32, C-contiguous, source cells from\n"
+"row0, col0 (NaN = no data); out (float32, same size as x) gets, per position, the float32\n"
+"lerps of its 4 taps (resample._taps, resample._lerp2) and, where that is NaN, the triangle\n"
+"kernel's mean over the valid taps (no data below 1e-5 of weight, or when the cell holding\n"
+"the position is no data), step for step as the numpy path. ValueError if a tap lies outside\n"
+"the cells.");
+
+/* bilinear_at's loop: 1 when a tap lies outside the cells (the positions after it not made) */
+WIDE static int bilinear_at_loop(const float *restrict f, const int64_t bh, const int64_t bw,
+                                 const int64_t row0, const int64_t col0,
+                                 const double *restrict X, const double *restrict Y,
+                                 float *restrict o, const Py_ssize_t m) {
+    int outside = 0;
+    const int64_t last = bh * bw - bw - 2;                    /* the largest first tap inside */
+    for (Py_ssize_t i = 0; i < m; i++) {
+        const double x = X[i], y = Y[i];
+        const double fx = floor(x), fy = floor(y);     /* the first tap: left / above */
+        const float dx = (float)(x - fx), dy = (float)(y - fy);
+        if (!(fx >= -9e15 && fx <= 9e15 && fy >= -9e15 && fy <= 9e15)) { outside = 1; break; }
+        const int64_t k = ((int64_t)fy - row0) * bw + ((int64_t)fx - col0);
+        if (k < 0 || k > last || (int64_t)fx - col0 < 0 || (int64_t)fx - col0 > bw - 2) {
+            outside = 1;
+            break;
+        }
+        const float *p = f + k;
+        float ta = p[0], tb = p[1], tc = p[bw], td = p[bw + 1];
+        tb -= ta; tb *= dx; ta += tb;                 /* resample._lerp2, step for step */
+        td -= tc; td *= dx; tc += td;
+        tc -= ta; tc *= dy;
+        float v = ta + tc;
+        if (v != v) {                                   /* resample._weighted over valid taps */
+            const float wx[2] = {tri((dx - 0.0f) / 1.0f), tri((dx - 1.0f) / 1.0f)};
+            const float wy[2] = {tri((dy - 0.0f) / 1.0f), tri((dy - 1.0f) / 1.0f)};
+            float acc = 0.0f, norm = 0.0f;
+            for (int ky = 0; ky < 2; ky++)
+                for (int kx = 0; kx < 2; kx++) {
+                    const float c = p[ky * bw + kx];
+                    const int ok = isfinite(c);
+                    float wk = wy[ky] * wx[kx];
+                    wk *= ok ? 1.0f : 0.0f;
+                    acc += wk * (ok ? c : 0.0f);
+                    norm += wk;
+                }
+            v = acc / norm;
+            if (fabsf(norm) < 1e-5f) v = NAN;
+            /* the cell holding the position (u = x + 0.5) must hold data */
+            const int64_t cr = (int64_t)floor(y + 0.5) - row0, cc = (int64_t)floor(x + 0.5) - col0;
+            if (cr < 0 || cr >= bh || cc < 0 || cc >= bw) { outside = 1; break; }
+            if (!isfinite(f[cr * bw + cc])) v = NAN;
+        }
+        o[i] = v;
+    }
+    return outside;
+}
+
+static PyObject *bilinear_at(PyObject *self, PyObject *args) {
+    PyObject *cells_o, *x_o, *y_o, *out_o;
+    long long row0, col0;
+    if (!PyArg_ParseTuple(args, "OLLOOO", &cells_o, &row0, &col0, &x_o, &y_o, &out_o))
+        return NULL;
+    Arr ce = {0}, xa = {0}, ya = {0}, out = {0};
+    PyObject *result = NULL;
+    if (take(cells_o, &ce, 2, K_F32, 0, 0, "cells") < 0) goto done;
+    if (PyObject_GetBuffer(x_o, &xa.b, PyBUF_STRIDES | PyBUF_FORMAT) < 0) goto done;
+    xa.held = 1;
+    if (PyObject_GetBuffer(y_o, &ya.b, PyBUF_STRIDES | PyBUF_FORMAT) < 0) goto done;
+    ya.held = 1;
+    if (PyObject_GetBuffer(out_o, &out.b, PyBUF_STRIDES | PyBUF_FORMAT | PyBUF_WRITABLE) < 0)
+        goto done;
+    out.held = 1;
+    if (kind_of(&xa.b) != K_F64 || kind_of(&ya.b) != K_F64 || kind_of(&out.b) != K_F32
+        || !PyBuffer_IsContiguous(&ce.b, 'C') || !PyBuffer_IsContiguous(&xa.b, 'C')
+        || !PyBuffer_IsContiguous(&ya.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C')
+        || xa.b.len != ya.b.len || out.b.len * 2 != xa.b.len || ce.b.shape[1] < 2) {
+        PyErr_SetString(PyExc_ValueError, "bilinear_at: shapes, types or strides do not fit");
+        goto done;
+    }
+    const int64_t bh = ce.b.shape[0], bw = ce.b.shape[1];
+    const Py_ssize_t m = out.b.len / 4;
+    const float *f = (const float *)ce.b.buf;
+    const double *X = (const double *)xa.b.buf, *Y = (const double *)ya.b.buf;
+    float *o = (float *)out.b.buf;
+    int outside = 0;
+    Py_BEGIN_ALLOW_THREADS
+    outside = bilinear_at_loop(f, bh, bw, row0, col0, X, Y, o, m);
+    Py_END_ALLOW_THREADS
+    if (outside) {
+        PyErr_SetString(PyExc_ValueError, "bilinear_at: a tap lies outside the cells");
+        goto done;
+    }
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    drop(&ce); drop(&xa); drop(&ya); drop(&out);
+    return result;
+}
+/* ==== end of lean's section ================================================================ */
+
 static PyMethodDef methods[] = {
     {"bilinear", bilinear, METH_VARARGS, bilinear_doc},
+    /* lean: reprojected reads */
+    {"grid_interp", grid_interp, METH_VARARGS, grid_interp_doc},
+    {"span", span, METH_VARARGS, span_doc},
+    {"bilinear_at", bilinear_at, METH_VARARGS, bilinear_at_doc},
     {"flat", flat, METH_VARARGS, flat_doc},
     {"box_sums", box_sums, METH_VARARGS, box_sums_doc},
     {"levels", levels, METH_VARARGS, levels_doc},

@@ -110,10 +110,15 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
     """:func:`sample` at cell-centre coordinates (``x``, ``y`` = u - 0.5, v - 0.5: cell i's
     centre at i), e.g. from :meth:`compose.sources.grid.TransformGrid.cell_centres`. Plain
     bilinear reads (no widening) take a path of few passes: 4 gathers from offset views of the
-    cells, weights and indices made once; the values are those of :func:`sample`."""
+    cells, weights and indices made once; the values are those of :func:`sample`. With
+    :mod:`compose.kernels` built, that path is two compiled passes without the GIL (the cells'
+    span, then taps, lerps and the no-data renormalisation per position; the same bits)."""
     sx, sy = (1.0 if float(v) <= _SNAP else float(v) for v in shrink)
     if method != "bilinear" or (sx, sy) != (1.0, 1.0):
         return sample(read, x + 0.5, y + 0.5, method, shrink, reduce)
+    k = kernels.get()
+    if k is not None:
+        return _bilinear_compiled(k, read, x, y)
     row0, col0, bh, bw, base, dx, dy = _taps(x, y)
     flat = read(row0, col0, bh, bw).reshape(-1)
     out = _bilinear(flat, base, dx, dy, bw)
@@ -195,17 +200,28 @@ def _lerp2(a: np.ndarray, b: np.ndarray, c: np.ndarray, d: np.ndarray,
     return a + c
 
 
+def _bilinear_compiled(k, read: Reader, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """:func:`sample_centres`' plain bilinear read by the compiled loops ``k``
+    (:mod:`compose.kernels`): the span of the positions (the cells :func:`_taps` reads), then
+    per position its taps, the float32 lerps and, where they give NaN, the renormalisation over
+    valid cells, each step as the numpy path takes it."""
+    x = np.ascontiguousarray(x, np.float64)
+    y = np.ascontiguousarray(y, np.float64)
+    if x.shape != y.shape or x.size == 0:
+        raise ValueError("positions x and y must have one shape and at least one element")
+    xl, xh, yl, yh = k.span(x, y)
+    col0, row0 = int(xl), int(yl)
+    cells = np.ascontiguousarray(read(row0, col0, int(yh) + 2 - row0, int(xh) + 2 - col0),
+                                 np.float32)
+    out = np.empty(x.shape, np.float32)
+    k.bilinear_at(cells, row0, col0, x, y, out)
+    return out
+
+
 def _bilinear(flat: np.ndarray, base: np.ndarray, dx: np.ndarray, dy: np.ndarray,
               bw: int) -> np.ndarray:
     """:func:`_lerp2` of the 4 taps of each first tap ``base`` in ``flat`` (float32 cells of a
-    block ``bw`` wide), shaped like ``base``: compiled in one pass without the GIL
-    (:mod:`compose.kernels`, the same float32 steps, so the same bits) or in numpy."""
-    k = kernels.get()
-    if k is not None:
-        out = np.empty(base.shape, np.float32)
-        k.bilinear(np.ascontiguousarray(flat, np.float32), base.reshape(-1), dx.reshape(-1),
-                   dy.reshape(-1), bw, out.reshape(-1))
-        return out
+    block ``bw`` wide), shaped like ``base`` (the numpy path)."""
     return _lerp2(flat.take(base), flat[1:].take(base), flat[bw:].take(base),
                   flat[bw + 1:].take(base), dx, dy)
 

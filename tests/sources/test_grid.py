@@ -45,7 +45,7 @@ def test_grid_is_shared():
     assert a is b
 
 
-def test_cell_centres_kept_for_the_next_raster_on_the_grid():
+def test_cell_centres_kept_for_the_next_raster_on_the_grid(monkeypatch):
     # two rasters on one grid reading one window get the same read-only positions, made once;
     # reference: the positions of the grid's own coordinates through the source's inverse
     # affine (rasterio's Affine), per pixel
@@ -71,8 +71,11 @@ def test_cell_centres_kept_for_the_next_raster_on_the_grid():
     forget_recent()
     assert grid.cell_centres(inv, 10, 20, 60, 70)[0] is not fresh[0]
 
-    # the taps made for read-only positions serve the next raster: the same values as
-    # sampling writable copies of the positions
+    # the numpy path's taps made for read-only positions serve the next raster: the same
+    # values as sampling writable copies of the positions (the compiled path keeps no taps;
+    # tests/sources/test_resample_kernels.py compares the two)
+    from compose import kernels
+    monkeypatch.setattr(kernels, "enabled", False)
     rng = np.random.default_rng(2)
     cells = rng.normal(0, 1, (400, 400)).astype(np.float32)
     cells[::7, ::5] = np.nan
