@@ -77,7 +77,9 @@ def page_canvas(map_spec, frame_mm: tuple[float, float] | None, room_mm: tuple[f
         dpi = width / (frame_mm[0] / MM_PER_INCH)
     frame = (width / dpi * MM_PER_INCH, height / dpi * MM_PER_INCH)
     if frame[0] > room_mm[0] + 0.01 or frame[1] > room_mm[1] + 0.01:
-        what = f"the map at 1:{scale:,.0f}" if scale is not None else "page.frame"
+        # thousands in thin-space groups, as the page's own scale line writes them
+        what = (f"the map at 1:{scale:,.0f}".replace(",", "\u2009") if scale is not None
+                else "page.frame")
         raise StyleError(f"page: {what} is {frame[0]:.0f} x {frame[1]:.0f} mm but the page leaves "
                          f"{room_mm[0]:.0f} x {room_mm[1]:.0f} mm for it; use a smaller scale, "
                          f"a larger paper or smaller margins")

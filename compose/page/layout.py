@@ -5,7 +5,10 @@ Bands and blocks, each sized from its content (common practice, no source):
 * a top band with the title and subtitle, a bottom band with the credits and caution lines;
 * the map frame, with room around it for grid labels when the page has a grid;
 * a side panel (``page.panel``, right or left, :data:`PANEL_WIDTH` wide) stacking the legend at
-  the top and the scale bar and north arrow at the bottom;
+  the top and the scale bar and north arrow at the bottom; or a bottom panel under the frame
+  (:func:`bottom_panel_height` tall) with the legend on the left and the scale bar and north
+  arrow on the right; ``auto`` (the default) takes the side panel unless the bottom one leaves
+  a larger map frame (a tall sheet, a wide map);
 * or, for a piece placed in a corner, a paper-coloured box inside the frame's corner (pieces in
   the same corner stack inward); labels keep clear of these boxes (:func:`blocked_pixels`).
 
@@ -34,6 +37,10 @@ TITLE_PT, SUBTITLE_PT, NOTE_PT = 15.0, 9.5, 6.5
 LINE = 1.3                          # line height / font size
 SCALEBAR_H, NORTH_W, NORTH_H = 11.0, 10.0, 15.0   # mm
 GRID_ROOM = 5.0                     # mm around the frame for grid labels
+#: a bottom panel's height: this share of the height left for the frame and panel, within
+#: BOTTOM_MIN..BOTTOM_MAX mm (common practice, no source: a legend under the map at 70 mm wide
+#: is 40-120 mm tall in the demo's styles)
+BOTTOM_SHARE, BOTTOM_MIN, BOTTOM_MAX = 0.3, 50.0, 90.0
 #: the smallest shrink of a legend in the panel before it is reflowed into columns (8 pt type
 #: becomes 5.6 pt; common practice, no source: map type under ~5-6 pt gets hard to read)
 MIN_SCALE = 0.7
@@ -108,9 +115,16 @@ def band_scale(kind: str, text: str, width_mm: float, key: str) -> float:
     return scale
 
 
-def page_room(style) -> tuple[Box, float, float]:
-    """(room for the frame (x, y, w, h) mm, top band, bottom band) of ``style``'s page."""
+def bottom_panel_height(room_h: float) -> float:
+    """Height (mm) of a bottom panel when ``room_h`` mm are left for the frame and the panel."""
+    return min(BOTTOM_MAX, max(BOTTOM_MIN, BOTTOM_SHARE * room_h))
+
+
+def page_room(style, side: str | None = None) -> tuple[Box, float, float]:
+    """(room for the frame (x, y, w, h) mm, top band, bottom band) of ``style``'s page with its
+    panel at ``side`` (right, left or bottom; None: :func:`panel_side`'s)."""
     page = style.page
+    side = panel_side(style) if side is None else side
     W, H = page.size
     t, r, b, left = page.margin
     title = page.title if page.title is not None else (style.map.title or "")
@@ -119,9 +133,12 @@ def page_room(style) -> tuple[Box, float, float]:
     w = W - left - r
     h = H - y - b - (bottom + GAP * 0.6 if bottom else 0.0)
     if _uses_panel(page, True):
-        w -= PANEL_WIDTH + GAP
-        if page.panel == "left":
-            x += PANEL_WIDTH + GAP
+        if side == "bottom":
+            h -= bottom_panel_height(h) + GAP
+        else:
+            w -= PANEL_WIDTH + GAP
+            if side == "left":
+                x += PANEL_WIDTH + GAP
     if page.grid is not None:
         x, y, w, h = x + GRID_ROOM, y + GRID_ROOM, w - 2 * GRID_ROOM, h - 2 * GRID_ROOM
     if w < 20 or h < 20:
@@ -130,17 +147,44 @@ def page_room(style) -> tuple[Box, float, float]:
     return (x, y, w, h), top, bottom
 
 
-def style_canvas(style, base=None):
-    """The canvas and frame box of ``style``'s page (used by ``Style.canvas``). ``base``: the
-    canvas ``[map]`` alone gives (default :func:`compose.style.grid.plan_canvas`'s): its CRS,
-    extent, pixel and dpi are what the page starts from."""
+def _grid_of(style, base=None):
     from types import SimpleNamespace
 
     if base is None:
         from compose.style.grid import plan_canvas
         base = plan_canvas(style).canvas
-    grid = SimpleNamespace(crs=base.crs, extent=base.bounds, pixel=base.pixel, dpi=base.dpi)
-    room, _, _ = page_room(style)
+    return SimpleNamespace(crs=base.crs, extent=base.bounds, pixel=base.pixel, dpi=base.dpi)
+
+
+def panel_side(style, base=None) -> str:
+    """Where ``style``'s panel goes: ``page.panel`` as stated, or for ``auto`` the side panel
+    (right) unless a bottom panel leaves a larger map frame (the frame's area in mm², ties to
+    the side panel; with a print scale or a frame size, the first of the two that fits)."""
+    page = style.page
+    if page.panel != "auto":
+        return page.panel
+    if not _uses_panel(page, True):
+        return "right"
+    grid = _grid_of(style, base)
+    best: tuple[float, str] | None = None
+    for side in ("right", "bottom"):
+        try:
+            room, _, _ = page_room(style, side)
+            _, frame = page_canvas(grid, page.frame, room[2:], page.scale)
+        except StyleError:
+            continue
+        area = frame[0] * frame[1]
+        if best is None or area > best[0] * (1 + 1e-9):
+            best = (area, side)
+    return "right" if best is None else best[1]
+
+
+def style_canvas(style, base=None):
+    """The canvas and frame box of ``style``'s page (used by ``Style.canvas``). ``base``: the
+    canvas ``[map]`` alone gives (default :func:`compose.style.grid.plan_canvas`'s): its CRS,
+    extent, pixel and dpi are what the page starts from."""
+    grid = _grid_of(style, base)
+    room, _, _ = page_room(style, panel_side(style, base))
     canvas, frame = page_canvas(grid, style.page.frame, room[2:], style.page.scale)
     return canvas, (room[0], room[1], frame[0], frame[1])
 
@@ -151,7 +195,8 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
     W, H = page.size
     t, r, b, left = page.margin
     title = page.title if page.title is not None else (style.map.title or "")
-    (rx, ry, rw, rh), top, bottom = page_room(style)
+    side = panel_side(style)
+    (rx, ry, rw, rh), top, bottom = page_room(style, side)
     canvas, frame = style_canvas(style)
     fx, fy, fw, fh = frame
     pieces: list[Piece] = []
@@ -173,11 +218,14 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
                                 scale=band_scale(kind, text, width, f"page.{kind}")))
             y += NOTE_PT * LINE * PT_MM
     grid = GRID_ROOM if page.grid is not None else 0.0
-    if page.panel == "right":
+    if side == "right":
         px = fx + fw + grid + GAP
     else:
         px = left
     panel_top, panel_bottom = fy - grid, fy + fh + grid
+    if side == "bottom":        # under the frame (and its grid labels), down to the notes
+        panel_top = fy + fh + grid + GAP
+        panel_bottom = H - b - bottom - (GAP * 0.6 if bottom else 0.0)
     bar = scale_bar(canvas, fw, PANEL_WIDTH - NORTH_W - 8.0 if page.scalebar.place == "panel"
                     else 35.0, page.scalebar.units) if page.scalebar.place != "off" else None
     north = north_angle(canvas) if page.north != "off" else None
@@ -186,19 +234,23 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
              if bar else None,
              "north": (NORTH_W, NORTH_H) if north is not None else None}
     places = {"legend": page.legend, "scalebar": page.scalebar.place, "north": page.north}
+    if side == "bottom":
+        pieces += _bottom_panel(sizes, places, left, W - r, panel_top, panel_bottom)
     # the panel: legend from the top, scale bar (left) and north arrow (right) at the bottom
     bottom_row = max([sizes[k][1] for k in ("scalebar", "north")
                       if sizes[k] is not None and places[k] == "panel"] + [0.0])
-    if sizes["legend"] is not None and places["legend"] == "panel":
+    if side == "bottom":
+        pass
+    elif sizes["legend"] is not None and places["legend"] == "panel":
         lw, lh = sizes["legend"]
         room = panel_bottom - panel_top - (bottom_row + GAP if bottom_row else 0.0)
         scale = min(1.0, max(room, 1e-6) / lh if lh > room + 0.01 else 1.0,
                     PANEL_WIDTH / lw if lw > PANEL_WIDTH + 0.01 else 1.0)
         pieces.append(Piece("legend", (px, panel_top, lw * scale, lh * scale), scale=scale))
-    if sizes["scalebar"] is not None and places["scalebar"] == "panel":
+    if sizes["scalebar"] is not None and places["scalebar"] == "panel" and side != "bottom":
         sw, sh = sizes["scalebar"]
         pieces.append(Piece("scalebar", (px, panel_bottom - sh, sw, sh)))
-    if sizes["north"] is not None and places["north"] == "panel":
+    if sizes["north"] is not None and places["north"] == "panel" and side != "bottom":
         nw, nh = sizes["north"]
         pieces.append(Piece("north", (px + PANEL_WIDTH - nw, panel_bottom - nh, nw, nh)))
     # corners inside the frame: stacked inward from the corner
@@ -218,6 +270,28 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
             raise StyleError(f"page.{kind}: does not fit inside the map frame at {place!r}")
         pieces.append(Piece(kind, (x, yy, w, h), inside=True))
     return PageLayout((W, H), frame, canvas, tuple(pieces), bar, north, title)
+
+
+def _bottom_panel(sizes: dict, places: dict, x0: float, x1: float, top: float,
+                  bottom: float) -> list[Piece]:
+    """The pieces of a bottom panel from ``x0`` to ``x1`` mm, ``top`` to ``bottom`` mm: the north
+    arrow at the right end, the scale bar left of it (both from the top), the legend from the
+    left, shrunk to the room left of them (as in the side panel)."""
+    out = []
+    right = x1
+    for kind in ("north", "scalebar"):
+        if sizes[kind] is not None and places[kind] == "panel":
+            w, h = sizes[kind]
+            out.append(Piece(kind, (right - w, top, w, h)))
+            right -= w + GAP
+    if sizes["legend"] is not None and places["legend"] == "panel":
+        lw, lh = sizes["legend"]
+        room_w, room_h = right - x0, bottom - top
+        scale = min(1.0, max(room_h, 1e-6) / lh if lh > room_h + 0.01 else 1.0,
+                    max(room_w, 1e-6) / lw if lw > room_w + 0.01 else 1.0,
+                    PANEL_WIDTH / lw if lw > PANEL_WIDTH + 0.01 else 1.0)
+        out.append(Piece("legend", (x0, top, lw * scale, lh * scale), scale=scale))
+    return out
 
 
 def blocked_pixels(layout: PageLayout) -> list[tuple[float, float, float, float]]:

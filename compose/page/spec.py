@@ -38,8 +38,9 @@ PAPER_SIZES: dict[str, tuple[float, float]] = {
 #: Where a piece of furniture goes: in the side panel, in a corner inside the map frame (on a
 #: paper-coloured box that labels keep clear of), or nowhere.
 PLACES = ("panel", "top left", "top right", "bottom left", "bottom right", "off")
-#: Which side of the map frame the furniture panel takes.
-PANEL_SIDES = ("right", "left")
+#: Which side of the map frame the furniture panel takes; "auto": the right side unless the
+#: bottom leaves a larger map frame (compose.page.layout.panel_side).
+PANEL_SIDES = ("auto", "right", "left", "bottom")
 #: Scale bar units.
 UNITS = ("metric", "imperial")
 from compose.check.report import CAUTION as _CAUTION  # noqa: E402  one wording everywhere
@@ -132,7 +133,7 @@ class PageSpec:
     margin: tuple[float, float, float, float] = option(_margins, (10.0, 10.0, 10.0, 10.0))
     scale: float | None = option(number(gt=0), None)
     frame: tuple[float, float] | None = option(_size_mm, None)
-    panel: str = option(choice(PANEL_SIDES, "panel side"), "right")
+    panel: str = option(choice(PANEL_SIDES, "panel side"), "auto")
     color: RGB = option(_color(), ui.PAPER.rgb)
     ink: RGB = option(_color(), ui.INK.rgb)
     title: str | None = option(string(), None)

@@ -99,7 +99,8 @@ def test_without_scale_the_frame_fits_and_the_dpi_follows():
 
 
 def test_scale_too_large_for_the_page_is_a_style_error():
-    with pytest.raises(StyleError, match="page: the map at 1:10,000"):
+    # thousands in thin-space groups (U+2009), as the page's scale line writes them
+    with pytest.raises(StyleError, match="page: the map at 1:10\u2009000"):
         page_canvas(_map(), None, (250.0, 180.0), 10000.0)
 
 
