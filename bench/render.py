@@ -289,6 +289,28 @@ if extra.pop("inside", False):
     timed_call(Statistics, "merge", "measure")
     timed_call(measure_mod, "_overlay_compiled", "overlay")
     timed_call(measure_mod, "_gray_compiled", "gray")
+    if hasattr(measure_mod, "composite_flat_gathering"):
+        # an overlay's flat colour composited while what lies beneath is gathered for its
+        # measure (WindowMeasure.paint_over): the statistics' share of that pass is its time
+        # less a plain composite of the same paint onto a copy of the same rows (what the walk
+        # without statistics does), timed beside it; the copy itself is not timed
+        from compose.composite import composite_over
+        fused_fn = measure_mod.composite_flat_gathering
+
+        def gathering(backdrop, source, alpha, mode, opaque, region, *bufs):
+            copy = backdrop.copy()
+            t = time.thread_time()
+            composite_over(copy, source, alpha, mode, out=copy, opaque=opaque)
+            plain = time.thread_time() - t
+            t = time.thread_time()
+            try:
+                return fused_fn(backdrop, source, alpha, mode, opaque, region, *bufs)
+            finally:
+                extra = time.thread_time() - t - plain
+                for key in ("measure", "overlay"):
+                    inside[key] = inside.get(key, 0.0) + extra
+                inside["gathered"] = inside.get("gathered", 0.0) + extra
+        measure_mod.composite_flat_gathering = gathering
 t0 = time.perf_counter()
 if mode == "bare":
     from compose.render import render_style
@@ -461,7 +483,8 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     # shared machine (no second walk to drift against), without what they cost elsewhere (the
     # palette's entry counts inside the composite kernel, caches)
     insides = [task("measure", styles["aligned"], out, inside=True)["inside"] for _ in range(3)]
-    inside = {k: statistics.median(i.get(k, 0.0) for i in insides) for k in ("measure", "overlay", "gray")}
+    inside = {k: statistics.median(i.get(k, 0.0) for i in insides)
+              for k in ("measure", "overlay", "gray", "gathered")}
     floors_sum = compute_floor + encode_floor
     own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
     print("floors on the rendered pixels")
@@ -511,7 +534,9 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
           f"{stats_cpu:.2f} CPU-s; pairs: " + ", ".join(f"{m - p:+.2f}" for p, m in cpu_pairs) + ")")
     print(f"  statistics inside the walk                      {100 * inside['measure'] / total:6.1f} % "
           f"of the 1-worker render ({inside['measure']:.2f} CPU-s of the window measure's own calls "
-          f"and the merge, median of 3 walks; of it the overlay kernel {inside['overlay']:.2f} s, "
+          f"and the merge, median of 3 walks; of it the overlay kernel {inside['overlay']:.2f} s "
+          f"(of which {inside['gathered']:.2f} s gathering what lies beneath while the overlay "
+          f"is composited: that pass's time less a plain composite of the same paint beside it), "
           f"the grey order {inside['gray']:.2f} s; the palette's entry counts are not in it)")
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "

@@ -293,6 +293,61 @@ static __attribute__((noinline)) Py_ssize_t overlay_bins6(
     return nt;
 }
 
+/* overlay's second pass over the pixels gathered (wbuf, cbuf): each pixel's weight added to
+ * its contrast bin, its L* (lsum, or NULL) and its beneath-colour code (dsum and tlist, or
+ * NULL), pixel by pixel; the weights' sum to *total. Returns the codes touched, or -1 when
+ * tlist is too short. */
+static Py_ssize_t overlay_bins_all(
+        const float *wbuf, const uint32_t *cbuf, Py_ssize_t pixels, const Tables *tp,
+        const int16_t *cbin, double y_part, double step, Py_ssize_t ncon, double *contrast,
+        double *lsum, double *dsum, Py_ssize_t *tlist, Py_ssize_t tcap, int bits, double *total) {
+    if (bits == 6 && lsum && dsum)
+        return overlay_bins6(wbuf, cbuf, pixels, tp, cbin, y_part, step, ncon, contrast, lsum,
+                             dsum, tlist, tcap, total);
+    const Tables t = *tp;
+    const int shift = 8 - bits;
+    Py_ssize_t nt = 0;
+    double sum = 0.0;
+    for (Py_ssize_t p = 0; p < pixels; p++) {
+        double wgt = (double)wbuf[p];
+        sum += wgt;
+        uint32_t rgb = cbuf[p];
+        uint32_t r = rgb >> 16, g = (rgb >> 8) & 255u, b = rgb & 255u;
+        float y = luminance(&t, (uint8_t)r, (uint8_t)g, (uint8_t)b);
+        Py_ssize_t cell = y_cell(&t, y);
+        Py_ssize_t bin = cbin[cell];
+        if (bin < 0 || bin >= ncon) bin = contrast_bin((double)y, y_part, step, ncon);
+        contrast[bin] += wgt;
+        if (lsum) lsum[t.lbin[cell]] += wgt;
+        if (dsum) {
+            Py_ssize_t code = ((Py_ssize_t)(r >> shift) << (2 * bits))
+                              | ((Py_ssize_t)(g >> shift) << bits) | (Py_ssize_t)(b >> shift);
+            if (dsum[code] == 0.0) {
+                if (nt >= tcap) return -1;
+                tlist[nt++] = code;
+            }
+            dsum[code] += wgt;
+        }
+    }
+    *total = sum;
+    return nt;
+}
+
+/* overlay's result: (pixels, codes touched, the weights' sum when every sum of them is exact
+ * in any order (compose.measure._sums_exact: every weight a whole multiple of the lowest one's
+ * float32 spacing u, and pixels x the largest below u x 2**53), else None) */
+static PyObject *overlay_result(Py_ssize_t pixels, Py_ssize_t nt, double total, float wmin,
+                                float wmax) {
+    int exact = 0;
+    if (pixels) {
+        int e;
+        frexpf(wmin, &e);
+        exact = (double)pixels * (double)wmax < ldexp(1.0, e - 24) * 9007199254740992.0;
+    }
+    if (exact) return Py_BuildValue("nnd", pixels, nt, total);
+    return Py_BuildValue("nnO", pixels, nt, Py_None);
+}
+
 PyDoc_STRVAR(overlay_doc,
 "overlay(alpha, beneath, r0, r1, c0, c1, y_part, step, ytab, lbin, ctab, contrast, lightness,\n"
 "        bits, dense, touched, scratch_w, scratch_c) -> (pixels, touched_count, total)\n\n"
@@ -360,7 +415,6 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
     Py_ssize_t pixels = 0, nt = 0;
     float wmin = INFINITY, wmax = 0.0f;        /* the weights' range, for exactness */
     double total = 0.0;
-    int shift = 8 - bits;
     int overflow = 0;
     float *wbuf = (float *)scratch_w.b.buf;
     uint32_t *cbuf = (uint32_t *)scratch_c.b.buf;
@@ -406,32 +460,10 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
     }
     PyMem_RawFree(cols);
     /* then their weights added to the bins, pixel by pixel */
-    int bins6 = bits == 6 && lsum && dsum && !overflow;
-    if (bins6) {
-        nt = overlay_bins6(wbuf, cbuf, pixels, &t, cbin, y_part, step, ncon, contrast, lsum, dsum,
-                           tlist, tcap, &total);
+    if (!overflow) {
+        nt = overlay_bins_all(wbuf, cbuf, pixels, &t, cbin, y_part, step, ncon, contrast, lsum,
+                              dsum, tlist, tcap, bits, &total);
         if (nt < 0) overflow = 1;
-    }
-    for (Py_ssize_t p = 0; p < pixels && !bins6; p++) {
-        double wgt = (double)wbuf[p];
-        total += wgt;
-        uint32_t rgb = cbuf[p];
-        uint32_t r = rgb >> 16, g = (rgb >> 8) & 255u, b = rgb & 255u;
-        float y = luminance(&t, (uint8_t)r, (uint8_t)g, (uint8_t)b);
-        Py_ssize_t cell = y_cell(&t, y);
-        Py_ssize_t bin = cbin[cell];
-        if (bin < 0 || bin >= ncon) bin = contrast_bin((double)y, y_part, step, ncon);
-        contrast[bin] += wgt;
-        if (lsum) lsum[t.lbin[cell]] += wgt;
-        if (dsum) {
-            Py_ssize_t code = ((Py_ssize_t)(r >> shift) << (2 * bits))
-                              | ((Py_ssize_t)(g >> shift) << bits) | (Py_ssize_t)(b >> shift);
-            if (dsum[code] == 0.0) {
-                if (nt >= tcap) { overflow = 1; break; }
-                tlist[nt++] = code;
-            }
-            dsum[code] += wgt;
-        }
     }
     Py_END_ALLOW_THREADS
     if (overflow == 2) {
@@ -442,16 +474,7 @@ static PyObject *overlay(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "overlay: touched is too short");
         goto done;
     }
-    /* exact in any order (compose.measure._sums_exact): every weight a whole multiple of the
-       lowest one's float32 spacing u, and pixels x the largest below u x 2**53 */
-    int exact = 0;
-    if (pixels) {
-        int e;
-        frexpf(wmin, &e);
-        exact = (double)pixels * (double)wmax < ldexp(1.0, e - 24) * 9007199254740992.0;
-    }
-    if (exact) result = Py_BuildValue("nnd", pixels, nt, total);
-    else result = Py_BuildValue("nnO", pixels, nt, Py_None);
+    result = overlay_result(pixels, nt, total, wmin, wmax);
 done:
     drop(&alpha); drop(&beneath); drop(&ytab); drop(&lbin); drop(&ctab); drop(&con); drop(&light);
     drop(&dense); drop(&touched); drop(&scratch_w); drop(&scratch_c);
@@ -545,17 +568,17 @@ typedef struct {
     const Tables *t;
     const double *l8;
     double *cts, *cnt, *col;
-    uint16_t *c16;      /* (m, 101) zeros: this call's counts, added to cts and cnt at the end */
+    uint8_t *c8;        /* (m, 101) zeros: this call's counts, added to cts and cnt at the end */
     int32_t *kept;      /* (k2,) scratch: a row's columns kept */
 } GraySampled;
 
 /* gray's loop for uint16 entries, no alpha and nothing above, colours counted, over samples
  * 2 elements apart, in a function of its own so that its pointers stay in registers: the same
  * numbers as gray_row. 1 when an entry lies outside lo..lo + m - 1.
- * The counts are whole numbers, so they are counted in uint16 (the entries x L* cells a
- * window touches lie scattered over hundreds of kB as float64: a quarter of the bytes stays
+ * The counts are whole numbers, so they are counted in uint8 (the entries x L* cells a
+ * window touches lie scattered over hundreds of kB as float64: an eighth of the bytes stays
  * in cache) and added to cts at the end, whole numbers added in another grouping, exactly (a
- * count that wraps past 65535 adds 65536 at once); every pixel kept here is also drawn and
+ * count that wraps past 255 adds 256 at once); every pixel kept here is also drawn and
  * counted, so each entry's count is its row's sum. The colour sums stay float64, added pixel
  * by pixel in row-major order as gray_row adds them. */
 static inline __attribute__((always_inline)) int gray_sampled_body(const GraySampled *g,
@@ -566,7 +589,7 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
     double *restrict cts = g->cts;
     double *restrict cnt = g->cnt;
     double *restrict col = g->col;
-    uint16_t *restrict c16 = g->c16;
+    uint8_t *restrict c8 = g->c8;
     int32_t *restrict kept = g->kept;
     const Py_ssize_t lo = g->lo, k2 = g->k2, plane = g->plane;
     const size_t m = (size_t)g->m;
@@ -601,9 +624,9 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
                 last_l = lbin[y_cell(&t, y)];
             }
             Py_ssize_t at = e * 101 + last_l;
-            if (__builtin_expect(++c16[at] == 0, 0)) {
-                cts[at] += 65536.0;
-                cnt[e] += 65536.0;
+            if (__builtin_expect(++c8[at] == 0, 0)) {
+                cts[at] += 256.0;
+                cnt[e] += 256.0;
             }
             double *c3 = col + 3 * e;
             c3[0] += l8[r];
@@ -612,7 +635,7 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
         }
     }
     for (size_t e = 0; e < m; e++) {
-        const uint16_t *restrict c = c16 + e * 101;
+        const uint8_t *restrict c = c8 + e * 101;
         double *restrict d = cts + e * 101;
         uint32_t sum = 0;
         for (int l = 0; l < 101; l++) sum += c[l];
@@ -695,19 +718,19 @@ static PyObject *gray(PyObject *self, PyObject *args) {
     /* the commonest case, samples 2 elements apart: its own loop (the same numbers) */
     int sampled = u16 && !alpha.held && !above.held && cnt && ij == 4 && pj == 2
                   && (!hidden.held || hj == 8) && k1 > 0;
-    uint16_t *c16 = sampled ? (uint16_t *)PyMem_RawCalloc((size_t)m * 101 + 2 * (size_t)k2 + 2,
-                                                          sizeof(uint16_t)) : NULL;
-    if (sampled && c16) {
+    uint8_t *c8 = sampled ? (uint8_t *)PyMem_RawCalloc((size_t)m * 101 + 4 * (size_t)k2 + 4, 1)
+                           : NULL;
+    if (sampled && c8) {
         GraySampled g = {AT2(index, 0, 0), index.b.strides[0],
                          (const uint8_t *)AT3(planes, 0, 0, 0), planes.b.strides[1], ps,
                          hidden.held ? AT2(hidden, 0, 0) : NULL,
                          hidden.held ? hidden.b.strides[0] : 0,
-                         k1, k2, lo, m, &t, l8, cts, cnt, col, c16,
-                         (int32_t *)(c16 + (((size_t)m * 101 + 1) & ~(size_t)1))};
+                         k1, k2, lo, m, &t, l8, cts, cnt, col, c8,
+                         (int32_t *)(c8 + (((size_t)m * 101 + 3) & ~(size_t)3))};
         bad = hidden.held ? gray_sampled_hidden(&g) : gray_sampled_shown(&g);
     }
-    PyMem_RawFree(c16);
-    sampled = sampled && c16;       /* out of memory: the rows' loop below, the same numbers */
+    PyMem_RawFree(c8);
+    sampled = sampled && c8;       /* out of memory: the rows' loop below, the same numbers */
     /* the common cases with their tests made constant (see gray_row) */
     for (Py_ssize_t i = 0; i < k1 && !bad && !sampled; i++) {
         GrayRow row = {AT2(index, i, 0), ij, AT3(planes, 0, i, 0), ps, pj,
@@ -1463,6 +1486,21 @@ done:
     return result;
 }
 
+/* flat's float32 steps on one contiguous row of one channel (a function of its own, so that
+ * its loops vectorise; built for AVX2 too: the same float32 operations) */
+WIDE static __attribute__((noinline)) void flat_row(float *restrict cb,
+                                                           const float *restrict a, float s,
+                                                           int mode, int opaque, Py_ssize_t w) {
+    if (mode == 0 && opaque)
+        for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 0, 1, 1.0f);
+    else if (mode == 0)
+        for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 0, 0, a[j]);
+    else if (opaque)
+        for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 1, 1, 1.0f);
+    else
+        for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 1, 0, a[j]);
+}
+
 PyDoc_STRVAR(flat_doc,
 "flat(backdrop, color, alpha, mode, opaque)\n\n"
 "compose.composite.composite_over of one flat colour, in place on backdrop (3, H, W) float32:\n"
@@ -1495,16 +1533,7 @@ static PyObject *flat(PyObject *self, PyObject *args) {
             char *brow = (char *)AT3(back, c, i, 0);
             const float s = cs[c];
             if (bj == (Py_ssize_t)sizeof(float) && aj == (Py_ssize_t)sizeof(float)) {
-                float *restrict cb = (float *)brow;
-                const float *restrict a = (const float *)arow;
-                if (mode == 0 && opaque)
-                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 0, 1, 1.0f);
-                else if (mode == 0)
-                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 0, 0, a[j]);
-                else if (opaque)
-                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 1, 1, 1.0f);
-                else
-                    for (Py_ssize_t j = 0; j < w; j++) cb[j] = over(cb[j], s, 1, 0, a[j]);
+                flat_row((float *)brow, (const float *)arow, s, mode, opaque, w);
             } else {
                 for (Py_ssize_t j = 0; j < w; j++) {
                     float *cb = (float *)(brow + j * bj);
@@ -1825,6 +1854,147 @@ done:
 }
 /* ==== end of lean's section ================================================================ */
 
+/* ---- An overlay's flat colour composited and measured in one pass (compose.measure) ----
+ * flat_gather composites like flat and, row by row before a row is composited, gathers what
+ * overlay's first pass gathers from the backdrop (the drawn pixels' weights and 8-bit colours
+ * beneath): the backdrop's and alpha's rows are read once, where compositing and measuring
+ * apart read them twice. overlay_bins is overlay's second pass on what was gathered. */
+
+PyDoc_STRVAR(flat_gather_doc,
+"flat_gather(backdrop, color, alpha, mode, opaque, r0, r1, c0, c1, scratch_w, scratch_c)\n"
+"    -> (pixels, least weight, largest weight) or None\n\n"
+"flat(backdrop, color, alpha, mode, opaque), and before each row of rows r0..r1-1 is\n"
+"composited, overlay's first pass over its columns c0..c1-1: the pixels drawn (alpha > 0),\n"
+"row-major, their weights (alpha) to scratch_w (float32) and the 8-bit codes of the backdrop\n"
+"beneath (r << 16 | g << 8 | b) to scratch_c (uint32), each at least the region's size.\n"
+"None (nothing done) unless the backdrop's and alpha's rows are contiguous.");
+
+static PyObject *flat_gather(PyObject *self, PyObject *args) {
+    PyObject *back_o, *color_o, *alpha_o, *sw_o, *sc_o;
+    int mode, opaque;
+    Py_ssize_t r0, r1, c0, c1;
+    if (!PyArg_ParseTuple(args, "OOOiinnnnOO", &back_o, &color_o, &alpha_o, &mode, &opaque,
+                          &r0, &r1, &c0, &c1, &sw_o, &sc_o))
+        return NULL;
+    Arr back = {0}, color = {0}, alpha = {0}, scratch_w = {0}, scratch_c = {0};
+    PyObject *result = NULL;
+    if (take(back_o, &back, 3, K_F32, 1, 0, "backdrop") < 0
+        || take(color_o, &color, 1, K_F32, 0, 0, "color") < 0
+        || take(alpha_o, &alpha, 2, K_F32, 0, 0, "alpha") < 0
+        || take(sw_o, &scratch_w, 1, K_F32, 1, 0, "scratch_w") < 0
+        || take(sc_o, &scratch_c, 1, K_UINT, 1, 0, "scratch_c") < 0)
+        goto done;
+    Py_ssize_t h = back.b.shape[1], w = back.b.shape[2];
+    if (back.b.shape[0] != 3 || color.b.shape[0] != 3 || alpha.b.shape[0] != h
+        || alpha.b.shape[1] != w || mode < 0 || mode > 1
+        || r0 < 0 || c0 < 0 || r1 > h || c1 > w || r0 > r1 || c0 > c1
+        || c1 - c0 >= ((Py_ssize_t)1 << 30)
+        || !PyBuffer_IsContiguous(&scratch_w.b, 'C') || !PyBuffer_IsContiguous(&scratch_c.b, 'C')
+        || scratch_c.b.itemsize != 4 || scratch_w.b.shape[0] < (r1 - r0) * (c1 - c0)
+        || scratch_c.b.shape[0] < (r1 - r0) * (c1 - c0)) {
+        PyErr_SetString(PyExc_ValueError, "flat_gather: shapes do not fit");
+        goto done;
+    }
+    if (back.b.strides[2] != (Py_ssize_t)sizeof(float)
+        || alpha.b.strides[1] != (Py_ssize_t)sizeof(float)) {
+        Py_INCREF(Py_None);
+        result = Py_None;
+        goto done;
+    }
+    float cs[3];
+    for (int c = 0; c < 3; c++) cs[c] = *(const float *)AT(color, c);
+    float range[2] = {INFINITY, 0.0f};
+    Py_ssize_t pixels = 0;
+    float *wbuf = (float *)scratch_w.b.buf;
+    uint32_t *cbuf = (uint32_t *)scratch_c.b.buf;
+    int32_t *cols = (int32_t *)PyMem_RawMalloc(sizeof(int32_t) * (size_t)(c1 - c0 + 4));
+    if (!cols) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < h; i++) {
+        if (i >= r0 && i < r1)      /* measured before the row is composited */
+            pixels += overlay_gather(AT2(alpha, 0, 0), alpha.b.strides[0], AT3(back, 0, 0, 0),
+                                     AT3(back, 1, 0, 0), AT3(back, 2, 0, 0), back.b.strides[1],
+                                     i, i + 1, c0, c1, cols, wbuf + pixels, cbuf + pixels, range);
+        const float *a = (const float *)AT2(alpha, i, 0);
+        for (int c = 0; c < 3; c++)
+            flat_row((float *)AT3(back, c, i, 0), a, cs[c], mode, opaque, w);
+    }
+    Py_END_ALLOW_THREADS
+    PyMem_RawFree(cols);
+    result = Py_BuildValue("nff", pixels, (double)range[0], (double)range[1]);
+done:
+    drop(&back); drop(&color); drop(&alpha); drop(&scratch_w); drop(&scratch_c);
+    return result;
+}
+
+PyDoc_STRVAR(overlay_bins_doc,
+"overlay_bins(scratch_w, scratch_c, pixels, least, largest, y_part, step, ytab, lbin, ctab,\n"
+"             contrast, lightness, bits, dense, touched) -> (pixels, touched_count, total)\n\n"
+"overlay's second pass on the first pixels of what flat_gather gathered (their weights\n"
+"float32 and 8-bit colours uint32, the weights' least and largest): the same histograms and\n"
+"result as overlay (see there).");
+
+static PyObject *overlay_bins(PyObject *self, PyObject *args) {
+    PyObject *sw_o, *sc_o, *ytab_o, *lbin_o, *ctab_o, *contrast_o, *light_o, *dense_o, *touched_o;
+    Py_ssize_t pixels;
+    float wmin, wmax;
+    double y_part, step;
+    int bits;
+    if (!PyArg_ParseTuple(args, "OOnffddOOOOOiOO", &sw_o, &sc_o, &pixels, &wmin, &wmax, &y_part,
+                          &step, &ytab_o, &lbin_o, &ctab_o, &contrast_o, &light_o, &bits,
+                          &dense_o, &touched_o))
+        return NULL;
+    Arr scratch_w = {0}, scratch_c = {0}, ytab = {0}, lbin = {0}, ctab = {0}, con = {0},
+        light = {0}, dense = {0}, touched = {0};
+    Tables t;
+    PyObject *result = NULL;
+    if (take(sw_o, &scratch_w, 1, K_F32, 0, 0, "scratch_w") < 0
+        || take(sc_o, &scratch_c, 1, K_UINT, 0, 0, "scratch_c") < 0
+        || tables(ytab_o, lbin_o, &ytab, &lbin, &t) < 0
+        || take(ctab_o, &ctab, 1, K_INT, 0, 0, "ctab") < 0
+        || take(contrast_o, &con, 1, K_F64, 1, 0, "contrast") < 0
+        || take(light_o, &light, 1, K_F64, 1, 1, "lightness") < 0
+        || take(dense_o, &dense, 1, K_F64, 1, 1, "dense") < 0
+        || take(touched_o, &touched, 1, K_INT, 1, 1, "touched") < 0)
+        goto done;
+    if (pixels < 0 || !PyBuffer_IsContiguous(&scratch_w.b, 'C')
+        || !PyBuffer_IsContiguous(&scratch_c.b, 'C') || scratch_c.b.itemsize != 4
+        || scratch_w.b.shape[0] < pixels || scratch_c.b.shape[0] < pixels
+        || !PyBuffer_IsContiguous(&con.b, 'C') || !PyBuffer_IsContiguous(&ctab.b, 'C')
+        || ctab.b.itemsize != 2 || ctab.kind != K_INT || ctab.b.shape[0] != t.ncell
+        || (light.held && (!PyBuffer_IsContiguous(&light.b, 'C') || light.b.shape[0] < 101))
+        || (dense.held != touched.held) || bits < 1 || bits > 8
+        || (dense.held && (!PyBuffer_IsContiguous(&dense.b, 'C')
+                           || dense.b.shape[0] < ((Py_ssize_t)1 << (3 * bits))
+                           || !PyBuffer_IsContiguous(&touched.b, 'C')
+                           || touched.b.itemsize != sizeof(Py_ssize_t) || touched.kind != K_INT))) {
+        PyErr_SetString(PyExc_ValueError, "overlay_bins: shapes do not fit");
+        goto done;
+    }
+    double total = 0.0;
+    Py_ssize_t nt;
+    Py_BEGIN_ALLOW_THREADS
+    nt = overlay_bins_all((const float *)scratch_w.b.buf, (const uint32_t *)scratch_c.b.buf,
+                          pixels, &t, (const int16_t *)ctab.b.buf, y_part, step, con.b.shape[0],
+                          (double *)con.b.buf, light.held ? (double *)light.b.buf : NULL,
+                          dense.held ? (double *)dense.b.buf : NULL,
+                          touched.held ? (Py_ssize_t *)touched.b.buf : NULL,
+                          touched.held ? touched.b.shape[0] : 0, bits, &total);
+    Py_END_ALLOW_THREADS
+    if (nt < 0) {
+        PyErr_SetString(PyExc_ValueError, "overlay_bins: touched is too short");
+        goto done;
+    }
+    result = overlay_result(pixels, nt, total, wmin, wmax);
+done:
+    drop(&scratch_w); drop(&scratch_c); drop(&ytab); drop(&lbin); drop(&ctab); drop(&con);
+    drop(&light); drop(&dense); drop(&touched);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"bilinear", bilinear, METH_VARARGS, bilinear_doc},
     /* lean: reprojected reads */
@@ -1839,6 +2009,8 @@ static PyMethodDef methods[] = {
     {"hillshade", hillshade, METH_VARARGS, hillshade_doc},
     {"to8", to8, METH_VARARGS, to8_doc},
     {"overlay", overlay, METH_VARARGS, overlay_doc},
+    {"flat_gather", flat_gather, METH_VARARGS, flat_gather_doc},
+    {"overlay_bins", overlay_bins, METH_VARARGS, overlay_bins_doc},
     {"index_range", index_range, METH_VARARGS, index_range_doc},
     {"gray", gray, METH_VARARGS, gray_doc},
     {NULL, NULL, 0, NULL},

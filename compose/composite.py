@@ -188,6 +188,39 @@ def composite_over(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
     return out
 
 
+def composite_flat_gathering(backdrop: np.ndarray, source: np.ndarray, alpha: np.ndarray,
+                             mode: str, opaque: bool, region: tuple[slice, slice],
+                             weights: np.ndarray, colors: np.ndarray) -> tuple[int, float, float] | None:
+    """:func:`composite_over` of one flat colour in place on ``backdrop`` by the compiled kernel,
+    which also hands the overlay's measure (:mod:`compose.measure`) what lay beneath, read in
+    the same pass: each row of ``region`` (rows, columns of the window), before it is
+    composited, gives its pixels drawn (alpha > 0), in row-major order, their alpha to
+    ``weights`` (float32) and the backdrop's 8-bit colours (r << 16 | g << 8 | b, each channel
+    x 255 clipped and rounded half to even) to ``colors`` (uint32), each with room for the
+    region's pixels. Returns (pixels, least and largest weight; inf and 0 when none is drawn),
+    or None when the kernel cannot (no build; another blend mode; not one flat colour, float32
+    planes and alpha with contiguous rows): then nothing is done."""
+    kernel = compiled()
+    func = BLEND_MODES.get(mode)
+    if (kernel is None or func not in (normal, multiply) or backdrop.dtype != np.float32
+            or backdrop.ndim != 3 or backdrop.shape[0] != 3 or alpha.dtype != np.float32
+            or alpha.shape != backdrop.shape[1:]):
+        return None
+    source = np.asarray(source, dtype=np.float32)
+    if source.ndim == 1:
+        source = source.reshape(3, 1, 1)
+    if source.ndim != 3 or source.shape[0] != 3 or not all(
+            n == 1 or st == 0 for n, st in zip(source.shape[1:], source.strides[1:])):
+        return None
+    _, h, w = backdrop.shape
+    r0, r1, _ = region[0].indices(h)
+    c0, c1, _ = region[1].indices(w)
+    got = kernel.flat_gather(backdrop, np.ascontiguousarray(source[:, 0, 0]), alpha,
+                             0 if func is normal else 1, bool(opaque), r0, max(r0, r1), c0,
+                             max(c0, c1), weights, colors)
+    return None if got is None else (int(got[0]), float(got[1]), float(got[2]))
+
+
 def _blend_into(func: BlendFunc, cb: np.ndarray, cs: np.ndarray, a: np.ndarray, dst: np.ndarray,
                 mix: np.ndarray, opaque: bool) -> None:
     """One channel of one strip: ``dst = cb + a (B(cb, cs) - cb)`` (``mix``: scratch of the

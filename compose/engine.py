@@ -288,10 +288,14 @@ def render_window(prepared: Prepared, window: Window, *, measure: bool = True,
                     if k:       # its colours looked up again where the previews sum them
                         for_previews.append((paint, alpha, None))
                 else:
-                    if meter is not None:
-                        meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque)
                     planes = paint.planes()
-                    composite_over(out, planes, alpha, spec.blend, out=out, opaque=opaque)
+                    # an overlay's flat colour is measured as it is composited (one pass over
+                    # the rows beneath) where the compiled kernels can; else measured first
+                    if meter is None or not meter.paint_over(li, layer, pi, paint, alpha, out,
+                                                             planes, spec.blend, opaque):
+                        if meter is not None:
+                            meter.paint(li, layer, pi, paint, alpha, out, opaque=opaque)
+                        composite_over(out, planes, alpha, spec.blend, out=out, opaque=opaque)
                     if k:
                         for_previews.append((paint, alpha, planes))
             if meter is not None:

@@ -37,6 +37,7 @@ from compose.check.stats import (  # the Y -> L* table and its size
 from compose.color.bulk import CHANNEL_XYZ
 from compose.color.srgb import srgb_to_linear
 from compose.color.wcag import relative_luminance
+from compose.composite import composite_flat_gathering
 from compose.kernels import get as compiled
 from compose.style.kinds import LAYER_KINDS
 
@@ -346,18 +347,25 @@ def _contrast_of_cells(y_part: float, cells: np.ndarray, y_below: np.ndarray) ->
 
 
 def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray,
-                      ground8: np.ndarray | None, inner) -> tuple[bool, float | None]:
+                      ground8: np.ndarray | None, inner,
+                      gathered: tuple[int, float, float] | None = None) -> tuple[bool, float | None]:
     """The beneath histograms of an overlay part (contrast, ground contrast, L*, colours) in one
     pass per composite by the compiled kernel (:mod:`compose.kernels`): the numbers of the
     numpy path below, bit for bit (every bin summed pixel by pixel in row-major order, as
     np.bincount adds; the by-colour path's sums are exact in any order). (False, None) when the
     kernel is missing or the arrays are not float32 (then the numpy path measures); else
     (True, the sum of the core's coverage when every sum of it is exact in any order
-    (:func:`_sums_exact`) and some pixel is drawn, else None)."""
+    (:func:`_sums_exact`) and some pixel is drawn, else None).
+    ``gathered``: (pixels, least and largest weight) when the pixels beneath were gathered
+    while the paint was composited (:meth:`WindowMeasure.paint_over`, into this thread's
+    scratch arrays "held-w" and "held-c"): ``beneath`` is then composited already and not
+    read; only their histograms are made here."""
     k = compiled()
     if k is None or alpha.dtype != np.float32 or alpha.ndim != 2 or beneath.dtype != np.float32 \
             or beneath.shape != (3,) + alpha.shape or (ground8 is not None and (
                 ground8.dtype != np.float32 or ground8.shape != beneath.shape)):
+        if gathered is not None:        # pragma: no cover - paint_over checked these
+            raise RuntimeError("an overlay gathered while composited must be measured compiled")
         return False, None
     rs, cs = inner
     r0, r1, _ = rs.indices(alpha.shape[0])
@@ -373,9 +381,14 @@ def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: n
     ctab = _contrast_table16(y_part)
     size = max(r1 - r0, 0) * max(c1 - c0, 0)
     held = _scratch("held-w", (size,), np.float32), _scratch("held-c", (size,), np.uint32)
-    pixels, n, total = k.overlay(alpha, beneath, r0, r1, c0, c1, y_part, CONTRAST_STEP,
-                                 CHANNEL_XYZ[1], _L_BIN, ctab, contrast, lightness, BENEATH_BITS,
-                                 dense, touched, *held)
+    if gathered is not None:
+        pixels, n, total = k.overlay_bins(*held, *gathered, y_part, CONTRAST_STEP, CHANNEL_XYZ[1],
+                                          _L_BIN, ctab, contrast, lightness, BENEATH_BITS, dense,
+                                          touched)
+    else:
+        pixels, n, total = k.overlay(alpha, beneath, r0, r1, c0, c1, y_part, CONTRAST_STEP,
+                                     CHANNEL_XYZ[1], _L_BIN, ctab, contrast, lightness,
+                                     BENEATH_BITS, dense, touched, *held)
     present = np.sort(touched[:n])
     weights = dense[present]
     dense[present] = 0.0
@@ -394,7 +407,8 @@ def _overlay_compiled(part: PartStats, paint: Any, alpha: np.ndarray, beneath: n
 
 def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.ndarray | None,
                   ground8: np.ndarray | None, overlay: bool, inner, padded_opaque: bool = False,
-                  counts: np.ndarray | None = None) -> tuple[bool, float | None]:
+                  counts: np.ndarray | None = None,
+                  gathered: tuple[int, float, float] | None = None) -> tuple[bool, float | None]:
     """Add one paint of one window (core region) to the layer's statistics. Returns (True when
     the paint is a raster's and opaque over the whole core (alpha 1 everywhere); the sum of a
     flat paint's coverage over the core when it was found exact -- every sum of its values
@@ -411,6 +425,8 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
     counts: the palette entries' pixel counts over the core, counted by the caller
     (:func:`compose.composite.composite_palette`), or None; they are the weights where alpha is
     1 over the core (at the canvas's edges too, where the padded window is not drawn).
+    gathered: what lay beneath, gathered while the paint was composited (see
+    :func:`_overlay_compiled`), or None.
     """
     alpha_core = alpha[inner]
     opaque = False
@@ -432,7 +448,7 @@ def _measure_part(stats: LayerStats, paint: Any, alpha: np.ndarray, beneath: np.
         part = PartStats(paint.part, rgb8, np.zeros(1))     # its weight: after the measure
     total = None
     if overlay and paint.palette is None and beneath is not None:
-        done, total = _overlay_compiled(part, paint, alpha, beneath, ground8, inner)
+        done, total = _overlay_compiled(part, paint, alpha, beneath, ground8, inner, gathered)
         if done:
             pass
         elif (pix := _core_pixels(alpha, inner)).size:
@@ -541,13 +557,38 @@ class WindowMeasure:
         self._ground = out.copy() if (overlay and n_paints > 1) else None
         self._union = None
 
+    def paint_over(self, li: int, layer, pi: int, paint, alpha: np.ndarray, out: np.ndarray,
+                   planes: np.ndarray, blend: str, opaque: bool = False) -> bool:
+        """An overlay's flat-colour paint composited over ``out`` and measured in one pass
+        (:func:`compose.composite.composite_flat_gathering`: what lies beneath is read from
+        the rows as they are composited, not in a pass of its own), as :meth:`paint` then
+        :func:`compose.composite.composite_over` would do. False when the compiled kernels
+        cannot (then nothing is done: the caller measures, then composites)."""
+        if layer.spec.role != "overlay" or paint.palette is not None \
+                or alpha.dtype != np.float32 or alpha.ndim != 2 or out.dtype != np.float32 \
+                or out.shape != (3,) + alpha.shape or compiled() is None:
+            return False
+        rs, cs = self.inner
+        r0, r1, _ = rs.indices(alpha.shape[0])
+        c0, c1, _ = cs.indices(alpha.shape[1])
+        size = max(r1 - r0, 0) * max(c1 - c0, 0)
+        held = _scratch("held-w", (size,), np.float32), _scratch("held-c", (size,), np.uint32)
+        gathered = composite_flat_gathering(out, planes, alpha, blend, opaque, self.inner, *held)
+        if gathered is None:
+            return False
+        self.paint(li, layer, pi, paint, alpha, out, opaque, gathered=gathered)
+        return True
+
     def paint(self, li: int, layer, pi: int, paint, alpha: np.ndarray, out: np.ndarray,
-              opaque: bool = False, counts: np.ndarray | None = None) -> None:
+              opaque: bool = False, counts: np.ndarray | None = None,
+              gathered: tuple[int, float, float] | None = None) -> None:
         """Paint ``pi`` of layer ``li`` with coverage x opacity ``alpha`` is about to be
         composited over ``out`` (the padded composite so far; a raster's paint may be measured
         after, as it never reads ``out``); ``opaque``: the caller found ``alpha`` 1 everywhere;
         ``counts``: a raster's pixel counts per palette entry over the core (intp (n,)), counted
-        by the caller (:func:`compose.composite.composite_palette`), or None."""
+        by the caller (:func:`compose.composite.composite_palette`), or None; ``gathered``:
+        an overlay's pixels beneath gathered as it was composited (:meth:`paint_over`; ``out``
+        is then composited already and not read), or None."""
         spec = layer.spec
         overlay = spec.role == "overlay"
         a_core = alpha[self.inner]
@@ -557,7 +598,7 @@ class WindowMeasure:
         self._union = a_core if union is None else np.maximum(union, a_core)
         opaque, total = _measure_part(self.stats.layers[li], paint, alpha,
                                       out if overlay else None, self._ground if pi else None,
-                                      overlay, self.inner, opaque, counts)
+                                      overlay, self.inner, opaque, counts, gathered)
         self._opaque = first and opaque
         self._union_sum = total if first else None
         if spec.role == "theme" and paint.palette is not None:

@@ -126,6 +126,87 @@ def test_overlay_part_equals_the_numpy_path_bit_for_bit(use, coverage, smooth, t
         assert results[0].contrast is not None and results[0].contrast.sum() > 0
 
 
+@pytest.mark.parametrize("blend", ["normal", "multiply"])
+@pytest.mark.parametrize("coverage", ["8-bit", "float", "opaque", "none"])
+@pytest.mark.parametrize("second", [False, True])
+def test_overlay_composited_and_measured_in_one_pass_equals_the_numpy_path(use, blend, coverage,
+                                                                          second):
+    # WindowMeasure.paint_over: a flat colour composited by the compiled kernel while it
+    # gathers what lies beneath; against the numpy path's measure first, then composite_over.
+    # The composite and every histogram bit for bit (a second part: its ground contrast
+    # against the layer's ground, kept before the first part was composited)
+    from types import SimpleNamespace
+
+    from compose.check.stats import Statistics
+    from compose.composite import composite_over
+
+    rng = np.random.default_rng(17)
+    h, w, pad = 64, 80, 3
+    drawn = rng.random((h, w)) < 0.35
+    if coverage == "8-bit":
+        alpha = rng.integers(1, 256, (h, w)).astype(np.float32) / np.float32(255)
+    elif coverage == "float":
+        alpha = rng.random((h, w), dtype=np.float32) * np.float32(0.9) + np.float32(1e-3)
+    else:
+        alpha = np.ones((h, w), np.float32)
+    if coverage != "opaque":
+        alpha = np.where(drawn & (coverage != "none"), alpha, np.float32(0)).astype(np.float32)
+    ground = _composite(rng, h, w, smooth=False)
+    layer = SimpleNamespace(spec=SimpleNamespace(name="lines", role="overlay", kind="lines",
+                                                 blend=blend))
+    paints = [Paint("halo", alpha, color=(0.9, 0.85, 0.8)), Paint("stroke", alpha[::-1].copy(),
+                                                                  color=(0.2, 0.25, 0.3))]
+    paints = paints if second else paints[:1]
+    template = Statistics(width=w - 2 * pad, height=h - 2 * pad, background=(1.0, 1.0, 1.0),
+                          layers=[LayerStats(name="lines", role="overlay", kind="lines")])
+    results = []
+    for fused in (True, False):
+        use(fused)
+        window = SimpleNamespace(row=0, col=0, inner=(slice(pad, h - pad), slice(pad, w - pad)))
+        meter = M.WindowMeasure(template, window)
+        out = ground.copy()
+        meter.begin_layer(0, layer, len(paints), out)
+        for pi, paint in enumerate(paints):
+            planes = paint.planes()
+            if fused:
+                assert meter.paint_over(0, layer, pi, paint, paint.alpha, out, planes, blend)
+            else:
+                meter.paint(0, layer, pi, paint, paint.alpha, out)
+                composite_over(out, planes, paint.alpha, blend, out=out)
+        meter.end_layer(0, layer)
+        results.append((out, meter.stats.layers[0]))
+    (out_a, a), (out_b, b) = results
+    assert out_a.tobytes() == out_b.tobytes()
+    assert a.covered == b.covered and a.parts.keys() == b.parts.keys()
+    for name in a.parts:
+        _parts_equal(a.parts[name], b.parts[name])
+
+
+def test_overlay_in_one_pass_declines_rows_that_are_not_contiguous(use):
+    # alpha with columns 8 bytes apart: the kernel does nothing and says so; the caller
+    # measures, then composites
+    from types import SimpleNamespace
+
+    from compose.check.stats import Statistics
+
+    use(True)
+    h, w = 20, 30
+    alpha = (np.arange(h * 2 * w, dtype=np.float32).reshape(h, 2 * w) % 3 == 0)[:, ::2]
+    alpha = alpha.astype(np.float32)[:, :]
+    strided = np.zeros((h, 2 * w), np.float32)[:, ::2]
+    strided[...] = alpha
+    out = _composite(np.random.default_rng(2), h, w, smooth=True)
+    before = out.copy()
+    layer = SimpleNamespace(spec=SimpleNamespace(name="lines", role="overlay", kind="lines",
+                                                 blend="normal"))
+    template = Statistics(width=w, height=h, background=(1.0, 1.0, 1.0),
+                          layers=[LayerStats(name="lines", role="overlay", kind="lines")])
+    meter = M.WindowMeasure(template, SimpleNamespace(row=0, col=0, inner=(slice(0, h), slice(0, w))))
+    paint = Paint("stroke", strided, color=(0.2, 0.25, 0.3))
+    assert not meter.paint_over(0, layer, 0, paint, strided, out, paint.planes(), "normal")
+    assert out.tobytes() == before.tobytes() and not meter.stats.layers[0].parts
+
+
 @pytest.mark.parametrize("coverage", ["8-bit", "faint", "none"])
 @pytest.mark.parametrize("paints", [1, 2])
 def test_overlay_weight_and_cover_are_the_exact_sum_of_8bit_coverage(use, coverage, paints):
@@ -330,7 +411,7 @@ def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_
 @pytest.mark.parametrize("entries", [1, 2])
 def test_gray_order_of_a_flat_window_counts_past_65535_like_the_numpy_path(use, entries):
     # A 512 x 512 window of one colour: its 256 x 256 = 65536 samples fall in one or two
-    # (entry, L*) cells, one more than the kernel's 16-bit counters hold (they wrap: 65536 is
+    # (entry, L*) cells, far more than the kernel's 8-bit counters hold (they wrap: 256 is
     # added at once, the same whole number); compared with the numpy path (np.bincount)
     from types import SimpleNamespace
 
