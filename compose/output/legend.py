@@ -76,15 +76,44 @@ def _text(ax, x: float, y: float, s: str, **kw):
     return ax.text(x, y, s, parse_math=False, **kw)
 
 
+#: the least room (inches) between two axis labels (common practice, no source: about 3 pt)
+TICK_GAP = 0.04
+
+
+def _label_half(text: str) -> float:
+    """Half the width (inches) of an axis label as the renderer sets it (FONT - 0.6 pt)."""
+    from compose.layers.label_text import text_width
+
+    return text_width(text, FONT - 0.6) / 72.0 / 2.0
+
+
+def _apart(ticks: list[tuple[float, str]]) -> bool:
+    """Whether the labels of ``ticks`` (sorted by x) keep :data:`TICK_GAP` from each other."""
+    halves = [_label_half(t) for _, t in ticks]
+    return all(b[0] - hb - (a[0] + ha) >= TICK_GAP
+               for a, b, ha, hb in zip(ticks, ticks[1:], halves, halves[1:]))
+
+
 def _ticks(block: RampsBlock, values: np.ndarray, xs: np.ndarray) -> list[tuple[float, str]]:
-    """(x inches, label) of the axis under a colour-bar block."""
+    """(x inches, label) of the axis under a colour-bar block. Labels that would touch a
+    neighbour are left out: a stepped bar labels every k-th class edge (the smallest k that
+    keeps them apart; both ends always), a continuous one drops the round values that crowd its
+    ends or marks."""
     lut = block.layers[0].lut
     span = xs[-1] - xs[0]
     if lut.stepped and len(values) > 2:
         edges = list(values)
-        step = max(1, int(np.ceil((len(edges) - 1) / 9)))
-        keep = sorted(set(range(0, len(edges), step)) | {len(edges) - 1})
-        return [(float(np.interp(edges[i], values, xs)), block.fmt(edges[i])) for i in keep]
+        last = len(edges) - 1
+        at = [(float(np.interp(e, values, xs)), block.fmt(e)) for e in edges]
+        for step in range(max(1, int(np.ceil(last / 9))), last + 1):
+            keep = list(range(0, last + 1, step))
+            if keep[-1] != last:            # the last edge replaces a kept one too close to it
+                keep.append(last)
+                if len(keep) > 2 and not _apart([at[keep[-2]], at[last]]):
+                    del keep[-2]
+            if _apart([at[i] for i in keep]):
+                break
+        return [at[i] for i in keep]
     from matplotlib.ticker import MaxNLocator
     lo, hi = float(values[0]), float(values[-1])
     nice = [v for v in MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
@@ -92,7 +121,18 @@ def _ticks(block: RampsBlock, values: np.ndarray, xs: np.ndarray) -> list[tuple[
     fixed = [lo, hi] + [v for v, _ in ramp_marks(ramp_of(block.layers[0]))]
     close = 0.1 * (hi - lo)
     ticks = sorted(set(fixed) | {v for v in nice if all(abs(v - f) >= close for f in fixed)})
-    return [(float(np.interp(v, values, xs)), block.fmt(v)) for v in ticks] if span > 0 else []
+    if span <= 0:
+        return []
+    at = [(float(np.interp(v, values, xs)), block.fmt(v)) for v in ticks]
+    kept = [t for v, t in zip(ticks, at) if v in fixed]
+    for v, t in zip(ticks, at):             # round values in order, each only where it has room
+        if v in fixed:
+            continue
+        row = sorted(kept + [t])
+        i = row.index(t)
+        if _apart(row[max(0, i - 1):i + 2]):
+            kept.append(t)
+    return sorted(kept)
 
 
 def _bar_image(lut, box: BarBox) -> np.ndarray:

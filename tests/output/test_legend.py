@@ -106,3 +106,47 @@ def test_end_squares_show_the_outside_colors_set_off_by_a_gap(drawn):
                                           ("town_names", "Town names"), ("sst", "Sst")])
 def test_titles_come_from_layer_names(name, pretty):
     assert pretty_name(name) == pretty
+
+
+def _text_boxes(fig):
+    """Every text of a drawn legend figure with its box in pixels, as matplotlib's Agg renderer
+    lays it out."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    agg = FigureCanvasAgg(fig)
+    agg.draw()
+    renderer = agg.get_renderer()
+    return [(t.get_text(), t.get_window_extent(renderer)) for ax in fig.axes for t in ax.texts
+            if t.get_text().strip()]
+
+
+@pytest.mark.parametrize("breaks,fmt", [
+    ("[12500, 25000, 37500, 50000, 62500, 75000, 87500]", ",.0f"),
+    ("[1, 2, 4, 7]", ".3f"),
+])
+def test_axis_labels_never_overlap(tmp_path, breaks, fmt):
+    """Class edges of wide numbers ("10,000" at every tenth of the bar) printed over one
+    another; labels that would touch their neighbour are left out (the ends always kept), and no
+    two texts of the legend overlap, measured by matplotlib's own renderer."""
+    from compose.output.legend import legend_figure
+
+    path = tiny_style(tmp_path / "data")
+    text = path.read_text()
+    text = text.replace('domain  = [0, 10]\nbreaks  = [1, 2, 4, 7]',
+                        f'domain  = [0, 100000]\nbreaks  = {breaks}'.replace(
+                            "100000", "100000" if "12500" in breaks else "10"))
+    text = text.replace('ramp    = "classes5"\n',
+                        f'ramp    = "classes5"\nlegend  = {{ format = "{fmt}" }}\n')
+    path.write_text(text)
+    style = load_style(path)
+    run_ = prepare(style)
+    try:
+        fig, _ = legend_figure(style, run_.ramps, run_.layers)
+        boxes = _text_boxes(fig)
+    finally:
+        run_.close()
+    labels = [s for s, _ in boxes]
+    assert ("0" if fmt == ",.0f" else "0.000") in labels
+    assert ("100,000" if fmt == ",.0f" else "10.000") in labels      # both ends kept
+    for (sa, a), (sb, b) in __import__("itertools").combinations(boxes, 2):
+        assert not a.overlaps(b), (sa, sb)
