@@ -43,20 +43,23 @@ LIBRARIES = ("numpy", "rasterio", "shapely", "colorspacious", "sqlite3",
              "matplotlib.textpath")
 
 
-def run_command(argv: list[str], cwd: Path = ROOT) -> tuple[float, float, int]:
-    """(wall seconds, CPU seconds (user + system), exit code) of one fresh process."""
+def run_command(argv: list[str], cwd: Path = ROOT) -> tuple[float, float, int, int]:
+    """(wall seconds, CPU seconds (user + system), exit code, page faults) of one fresh
+    process, the processes it waited for included (a draft's marks process: its page faults,
+    each a fresh page zeroed, were about a quarter of the draft's CPU here)."""
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t = time.perf_counter()
     done = subprocess.run(argv, cwd=cwd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     wall = time.perf_counter() - t
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
-    return wall, cpu, done.returncode
+    return wall, cpu, done.returncode, after.ru_minflt - before.ru_minflt
 
 
-def medians(pairs: list[tuple[float, float, int]]) -> tuple[float, float, int]:
+def medians(pairs: list[tuple[float, float, int, int]]) -> tuple[float, float, int, float]:
+    """Medians of wall and CPU seconds, the last exit code, the median page faults."""
     return (statistics.median(p[0] for p in pairs), statistics.median(p[1] for p in pairs),
-            pairs[-1][2])
+            pairs[-1][2], statistics.median(p[3] for p in pairs))
 
 
 def commands(styles: list[Path], runs: int) -> None:
@@ -96,11 +99,12 @@ def command_rows(name: str, style: Path, runs: int, cache: str, cwd: Path) -> No
     m = {k: medians(v) for k, v in got.items()}
     fc, dc, fw, dw, f1 = (m[k][0] for k in got)
     cpu = "  ".join(f"{m[k][1]:.2f}" for k in got)
+    faults = "  ".join(f"{m[k][3] / 1000:.1f}k" for k in got)
     print(f"{name:<11} cold: full {fc:6.2f} s  draft {dc:6.2f} s  x{fc / dc:5.1f}   "
           f"warm: full {fw:6.2f} s  draft {dw:6.2f} s  x{fw / dw:5.1f}   "
           f"full cold / draft warm x{fc / dw:5.1f}   exit {m['full cold'][2]}/{m['draft cold'][2]}"
           f"   full cold, one process (--workers 1) {f1:6.2f} s: x{f1 / fc:4.2f} the default, "
-          f"x{f1 / dc:5.1f} the draft   (cpu s, same order: {cpu})")
+          f"x{f1 / dc:5.1f} the draft   (cpu s, same order: {cpu}; page faults: {faults})")
 
 
 def timed_check(style, canvas, draft: bool, cache=False):
