@@ -152,7 +152,7 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
     _text(ax, MARGIN, y + TITLE_H * 0.42, b.title, fontsize=TITLE_FONT, weight="bold", color=INK,
             va="center", ha="left")
     ramp = ramp_of(b.layers[0])
-    marks = ramp_marks(ramp)
+    marks = ramp_marks(ramp, b.fmt)
     mine = [bx for bx in boxes if bx.layer in {la.spec.name for la in b.layers}]
     x0, x1 = mine[0].x0 / DPI, mine[0].x1 / DPI
     values, xs = np.array(mine[0].values), np.array(mine[0].xs) / DPI

@@ -266,12 +266,15 @@ def seen_under_relief(background, layers, layer) -> Callable | None:
     return seen
 
 
-def ramp_marks(ramp) -> list[tuple[float, str]]:
+def ramp_marks(ramp, fmt: Callable[[float], str] = format_value) -> list[tuple[float, str]]:
+    """(value, text) of the marks over a ramp's bar: a threshold ramp's break, a diverging
+    ramp's centre; the number in ``fmt``, the axis's own format, so the mark and the tick under
+    it read alike ("centre 0.0" over "0.0", not "centre 0")."""
     marks = []
     if ramp.kind == "threshold" and ramp.at is not None:
-        marks.append((float(ramp.at), f"threshold {format_value(ramp.at)}"))
+        marks.append((float(ramp.at), f"threshold {fmt(ramp.at)}"))
     if ramp.kind == "diverging" and ramp.center is not None:
-        marks.append((float(ramp.center), f"centre {format_value(ramp.center)}"))
+        marks.append((float(ramp.center), f"centre {fmt(ramp.center)}"))
     return marks
 
 

@@ -150,3 +150,21 @@ def test_axis_labels_never_overlap(tmp_path, breaks, fmt):
     assert ("100,000" if fmt == ",.0f" else "10.000") in labels      # both ends kept
     for (sa, a), (sb, b) in __import__("itertools").combinations(boxes, 2):
         assert not a.overlaps(b), (sa, sb)
+
+
+def test_a_mark_writes_its_number_as_the_axis_does(tmp_path):
+    """The threshold's mark over the bar and the tick under it in the layer's legend.format
+    ("threshold 6.0" over "6.0"; the mark said "threshold 6" over "6.0")."""
+    from compose.output.legend import legend_figure
+
+    path = tiny_style(tmp_path / "data")
+    path.write_text(path.read_text().replace(
+        'ramp    = "warmth"\n', 'ramp    = "warmth"\nlegend  = { format = ".1f" }\n'))
+    style = load_style(path)
+    run_ = prepare(style)
+    try:
+        fig, _ = legend_figure(style, run_.ramps, run_.layers)
+        labels = [s for s, _ in _text_boxes(fig)]
+    finally:
+        run_.close()
+    assert "threshold 6.0" in labels and "6.0" in labels and "threshold 6" not in labels
