@@ -1019,18 +1019,21 @@ done:
 
 /* One row of palette() in one pass, for the common layout (uint16 entries, contiguous rows of
  * the backdrop and alpha): each pixel's entry read once (wrapped as np.take's "wrap"), counted
- * when the column is in c0..c1 (count != 0), its three colours read together from tab4 (the
- * table as (n, 4) float32: r, g, b, unused) and each channel composited by over(), the same
- * float32 steps as the per-channel loops. Inlined with mode, opaque and bcast constant. */
+ * when cnt is not NULL, its three colours read together from tab4 (the table as (n, 4)
+ * float32: r, g, b, unused) and each channel composited by over(), the same float32 steps as
+ * the per-channel loops. Columns j0..j1-1; inlined with mode, opaque, bcast and counted
+ * constant. The counts go to four tables, (n, 4) uint32, a column's to table j % 4: a run of
+ * one entry (a smooth raster's) adds to four counters in turn instead of to one again before
+ * its last addition is stored. */
 static inline __attribute__((always_inline)) void palette_row_body(
         float *restrict b0, float *restrict b1, float *restrict b2, const uint16_t *restrict ir,
-        const float *restrict tab4, const float *restrict a, Py_ssize_t *restrict cnt,
-        Py_ssize_t n, Py_ssize_t w, Py_ssize_t c0, Py_ssize_t c1, int multiply, int opaque,
-        int bcast) {
-    for (Py_ssize_t j = 0; j < w; j++) {
+        const float *restrict tab4, const float *restrict a, uint32_t *restrict cnt,
+        Py_ssize_t n, Py_ssize_t j0, Py_ssize_t j1, int multiply, int opaque, int bcast,
+        const int counted) {
+    for (Py_ssize_t j = j0; j < j1; j++) {
         Py_ssize_t v = ir[j];
         if (v >= n) v %= n;
-        if (cnt && j >= c0 && j < c1) cnt[v]++;
+        if (counted) cnt[4 * v + (j & 3)]++;
         const float *t = tab4 + 4 * v;
         const float aj = opaque ? 1.0f : (bcast ? a[0] : a[j]);
         b0[j] = over(b0[j], t[0], multiply, opaque, aj);
@@ -1039,17 +1042,29 @@ static inline __attribute__((always_inline)) void palette_row_body(
     }
 }
 
+#define PALETTE_ROW(M, O, B)                                                                  \
+    do {                                                                                      \
+        if (!cnt) {                                                                           \
+            palette_row_body(b0, b1, b2, ir, tab4, a, NULL, n, 0, w, M, O, B, 0);             \
+        } else {                                                                              \
+            palette_row_body(b0, b1, b2, ir, tab4, a, NULL, n, 0, c0, M, O, B, 0);            \
+            palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, c0, c1, M, O, B, 1);            \
+            palette_row_body(b0, b1, b2, ir, tab4, a, NULL, n, c1, w, M, O, B, 0);            \
+        }                                                                                     \
+    } while (0)
+
 static __attribute__((noinline)) void palette_row(
         float *b0, float *b1, float *b2, const uint16_t *ir, const float *tab4, const float *a,
-        Py_ssize_t *cnt, Py_ssize_t n, Py_ssize_t w, Py_ssize_t c0, Py_ssize_t c1, int mode,
+        uint32_t *cnt, Py_ssize_t n, Py_ssize_t w, Py_ssize_t c0, Py_ssize_t c1, int mode,
         int opaque, int bcast) {
-    if (mode == 0 && opaque) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 0, 1, 0);
-    else if (mode == 0 && bcast) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 0, 0, 1);
-    else if (mode == 0) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 0, 0, 0);
-    else if (opaque) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 1, 1, 0);
-    else if (bcast) palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 1, 0, 1);
-    else palette_row_body(b0, b1, b2, ir, tab4, a, cnt, n, w, c0, c1, 1, 0, 0);
+    if (mode == 0 && opaque) PALETTE_ROW(0, 1, 0);
+    else if (mode == 0 && bcast) PALETTE_ROW(0, 0, 1);
+    else if (mode == 0) PALETTE_ROW(0, 0, 0);
+    else if (opaque) PALETTE_ROW(1, 1, 0);
+    else if (bcast) PALETTE_ROW(1, 0, 1);
+    else PALETTE_ROW(1, 0, 0);
 }
+#undef PALETTE_ROW
 
 PyDoc_STRVAR(palette_doc,
 "palette(backdrop, table, index, alpha, mode, opaque, counts, r0, r1, c0, c1)\n\n"
@@ -1090,9 +1105,14 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     Py_ssize_t *cnt = counts.held ? (Py_ssize_t *)counts.b.buf : NULL;
     Py_ssize_t *idx = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (size_t)(w + 1));
     float *tab4 = (float *)PyMem_RawMalloc(sizeof(float) * 4 * (size_t)n);
-    if (!idx || !tab4) {
+    /* palette_row's counts: (n, 4) uint32, added to counts at the end (whole numbers; each
+       below 2**32 where the region has fewer pixels) */
+    uint32_t *cnt4 = cnt && (r1 - r0) * (c1 - c0) < ((Py_ssize_t)1 << 32)
+                     ? (uint32_t *)PyMem_RawCalloc(4 * (size_t)n, sizeof(uint32_t)) : NULL;
+    if (!idx || !tab4 || (cnt && (r1 - r0) * (c1 - c0) < ((Py_ssize_t)1 << 32) && !cnt4)) {
         PyMem_RawFree(idx);
         PyMem_RawFree(tab4);
+        PyMem_RawFree(cnt4);
         PyErr_NoMemory();
         goto done;
     }
@@ -1103,7 +1123,7 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     const int u16 = isize == 2 && !isigned && ij == 2;
     /* the common layout: every row in one pass (palette_row) */
     const int fused = u16 && bj == (Py_ssize_t)sizeof(float)
-                      && (bcast || aj == (Py_ssize_t)sizeof(float));
+                      && (bcast || aj == (Py_ssize_t)sizeof(float)) && (!cnt || cnt4);
     if (fused)
         for (Py_ssize_t k = 0; k < n; k++) {
             tab4[4 * k] = tab[k];
@@ -1116,8 +1136,12 @@ static PyObject *palette(PyObject *self, PyObject *args) {
         palette_row((float *)AT3(back, 0, i, 0), (float *)AT3(back, 1, i, 0),
                     (float *)AT3(back, 2, i, 0), (const uint16_t *)AT2(index, i, 0), tab4,
                     bcast ? (const float *)alpha.b.buf : (const float *)AT2(alpha, i, 0),
-                    counted ? cnt : NULL, n, w, c0, c1, mode, opaque, bcast);
+                    counted ? cnt4 : NULL, n, w, c0, c1 < c0 ? c0 : c1, mode, opaque, bcast);
     }
+    if (fused && cnt)
+        for (Py_ssize_t k = 0; k < n; k++)
+            cnt[k] += (Py_ssize_t)cnt4[4 * k] + (Py_ssize_t)cnt4[4 * k + 1]
+                      + (Py_ssize_t)cnt4[4 * k + 2] + (Py_ssize_t)cnt4[4 * k + 3];
     for (Py_ssize_t i = 0; !fused && i < h; i++) {
         const char *irow = AT2(index, i, 0);
         if (u16) {          /* contiguous uint16 entries: converted and counted in one pass */
@@ -1182,6 +1206,7 @@ static PyObject *palette(PyObject *self, PyObject *args) {
     Py_END_ALLOW_THREADS
     PyMem_RawFree(idx);
     PyMem_RawFree(tab4);
+    PyMem_RawFree(cnt4);
     Py_INCREF(Py_None);
     result = Py_None;
 done:

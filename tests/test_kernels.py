@@ -522,15 +522,19 @@ def test_hillshade_equals_the_numpy_strips_bit_for_bit(use, directions, per_row,
 @pytest.mark.parametrize("mode", ["normal", "multiply", "screen"])
 @pytest.mark.parametrize("coverage", ["opaque", "float", "scalar"])
 @pytest.mark.parametrize("strided", [False, True])
-def test_palette_composite_equals_the_numpy_strips_bit_for_bit(use, mode, coverage, strided):
+@pytest.mark.parametrize("runs", [False, True])
+def test_palette_composite_equals_the_numpy_strips_bit_for_bit(use, mode, coverage, strided, runs):
     # The lookup, the W3C blend (normal: Cs - Cb; multiply: Cb Cs - Cb), alpha and Cb + mix in
-    # float32, the same bits; the entries' counts over a region equal np.bincount's
+    # float32, the same bits; the entries' counts over a region equal np.bincount's (entries
+    # scattered, or in long runs as a smooth raster's are)
     from compose.composite import composite_palette
 
     rng = np.random.default_rng(5)
     n, h, w = 37, 61, 83
     table = rng.random((3, n), dtype=np.float32)
     index = rng.integers(0, n, (h, w)).astype(np.uint16)
+    if runs:
+        index = ((np.arange(w)[None, :] // 23 + np.arange(h)[:, None] // 9) % n).astype(np.uint16)
     back = _composite(rng, h, 2 * w, smooth=False)
     if coverage == "opaque":
         alpha = np.ones((h, w), np.float32)
