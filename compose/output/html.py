@@ -357,7 +357,7 @@ def _facts(style, result) -> str:
     grid = plan.canvas
     rows = [("style", str(style.path)), ("canvas", f"{result.width} × {result.height} px"),
             ("CRS", grid.crs), ("extent", ", ".join(f"{v:.10g}" for v in grid.bounds)
-                                + "  (W, S, E, N)"),
+                                + f"  (W, S, E, N; {ground_unit(grid.crs).strip()})"),
             ("pixel", f"{grid.pixel:g}{ground_unit(grid.crs)}"),
             # a page's print scale makes the dpi a fraction (1500 px over 155.6 mm): whole dots
             ("dpi", f"{grid.dpi:.0f}" if grid.dpi >= 10 else f"{grid.dpi:.2g}")]

@@ -185,6 +185,7 @@ def test_facts_name_the_pixel_unit_and_whole_dots(page):
     _, _, path = page
     text = path.read_text(encoding="utf-8")
     assert "<dt>pixel</dt><dd>30 m</dd>" in text
+    assert "(W, S, E, N; m)</dd>" in text
     assert "30 m per pixel" in text and "units per pixel" not in text
     dpi = re.search(r"<dt>dpi</dt><dd>([^<]*)</dd>", text).group(1)
     assert re.fullmatch(r"\d+", dpi), dpi
