@@ -1631,27 +1631,40 @@ done:
 }
 
 /* ==== lean: reprojected reads (compose.sources.grid, compose.sources.resample) ==============
- * A reprojected window's positions and its plain bilinear read, each in one pass without the
- * GIL (the walk's read-ahead thread makes them while Agg holds the GIL in the window thread):
- * grid_interp is TransformGrid._interpolate, span the bounds sample_centres reads, and
- * bilinear_at the taps, gathers, lerps and no-data renormalisation of sample_centres. The same
- * float64 / float32 operations in the same order as the numpy paths, so the same bits
- * (tests/sources/test_resample_kernels.py compiles and compares). */
+ * A reprojected window's positions and its plain bilinear read without the GIL (the walk's
+ * read-ahead thread makes them while Agg holds the GIL in the window thread): grid_interp is
+ * TransformGrid._interpolate, span the cells sample_centres reads, bilinear_at the taps,
+ * gathers, lerps and no-data renormalisation of sample_centres; grid_span and grid_bilinear do
+ * the last two at the positions grid_interp gives, made on the fly from the nodes (no arrays
+ * of positions). The same float64 / float32 operations in the same order as the numpy paths,
+ * so the same bits (tests/sources/test_resample_kernels.py compiles and compares). */
 
-PyDoc_STRVAR(grid_interp_doc,
-"grid_interp(nodes, uoff, voff, step, out)\n\n"
-"compose.sources.grid.TransformGrid._interpolate: nodes (rows, cols) float64, C-contiguous;\n"
-"out (h, w) float64, C-contiguous, gets the nodes interpolated bilinearly at u = (j + uoff) /\n"
-"step, v = (i + voff) / step (node units) for pixel column j, row i: along node rows first,\n"
-"then between them, as the numpy path does. ValueError if a pixel lies before the first node.");
+/* The node rows a window of h x w pixels needs (TransformGrid._interpolate's band): the first,
+ * i0, and how many, nb. 0, or -1 with ValueError set when a pixel lies before the first node
+ * or a position is not finite. */
+static int grid_band(Py_ssize_t nr, Py_ssize_t nc, double uoff, double voff, double step,
+                     Py_ssize_t h, Py_ssize_t w, Py_ssize_t *i0, Py_ssize_t *nb) {
+    if (nr < 2 || nc < 2 || h < 1 || w < 1 || !(step > 0)) {
+        PyErr_SetString(PyExc_ValueError, "grid: shapes or step do not fit");
+        return -1;
+    }
+    const double v0 = ((double)0 + voff) / step, v1 = ((double)(h - 1) + voff) / step;
+    const double u0 = ((double)0 + uoff) / step, u1 = ((double)(w - 1) + uoff) / step;
+    if (!(v0 >= 0) || !(u0 >= 0) || !(v1 < 1e15) || !(u1 < 1e15)) {
+        PyErr_SetString(PyExc_ValueError, "grid: pixels outside the nodes");
+        return -1;
+    }
+    Py_ssize_t a = (Py_ssize_t)floor(v0), b = (Py_ssize_t)floor(v1);
+    if (a > nr - 2) a = nr - 2;
+    if (b > nr - 2) b = nr - 2;
+    *i0 = a;
+    *nb = b - a + 2;
+    return 0;
+}
 
-/* grid_interp's loops: along the node rows i0.. (nb of them) into across, then between them */
-WIDE static void grid_interp_loop(const double *restrict N, const Py_ssize_t nr,
-                                  const Py_ssize_t nc, const double uoff, const double voff,
-                                  const double step, const Py_ssize_t i0, const Py_ssize_t nb,
-                                  double *restrict across, double *restrict sfrac,
-                                  Py_ssize_t *restrict col, double *restrict O,
-                                  const Py_ssize_t h, const Py_ssize_t w) {
+/* Pixel columns 0..w-1: the node column left of each (col) and the fraction from it (sfrac). */
+static void grid_columns(Py_ssize_t nc, double uoff, double step, Py_ssize_t w,
+                         Py_ssize_t *restrict col, double *restrict sfrac) {
     for (Py_ssize_t j = 0; j < w; j++) {
         const double u = ((double)j + uoff) / step;
         Py_ssize_t c = (Py_ssize_t)floor(u);
@@ -1659,7 +1672,13 @@ WIDE static void grid_interp_loop(const double *restrict N, const Py_ssize_t nr,
         col[j] = c;
         sfrac[j] = u - (double)c;
     }
-    for (Py_ssize_t r = 0; r < nb; r++) {               /* along each node row */
+}
+
+/* The node rows i0.. (nb of them) of N (nc columns) interpolated at every pixel column. */
+WIDE static void grid_across(const double *restrict N, Py_ssize_t nc, Py_ssize_t i0,
+                             Py_ssize_t nb, Py_ssize_t w, const Py_ssize_t *restrict col,
+                             const double *restrict sfrac, double *restrict across) {
+    for (Py_ssize_t r = 0; r < nb; r++) {
         const double *row = N + (i0 + r) * nc;
         double *a = across + r * w;
         for (Py_ssize_t j = 0; j < w; j++) {
@@ -1667,12 +1686,26 @@ WIDE static void grid_interp_loop(const double *restrict N, const Py_ssize_t nr,
             a[j] = row[col[j]] * (1.0 - s) + row[col[j] + 1] * s;
         }
     }
-    for (Py_ssize_t i = 0; i < h; i++) {                /* between node rows */
-        const double v = ((double)i + voff) / step;
-        Py_ssize_t k = (Py_ssize_t)floor(v);
-        if (k > nr - 2) k = nr - 2;
-        const double t = v - (double)k;
-        const double *a = across + (k - i0) * w, *b = a + w;
+}
+
+/* Pixel row i between the node rows: the fraction t and the offset of its upper node row's
+ * interpolated values in across. */
+static inline double grid_row(Py_ssize_t i, double voff, double step, Py_ssize_t nr,
+                              Py_ssize_t i0, Py_ssize_t w, Py_ssize_t *at) {
+    const double v = ((double)i + voff) / step;
+    Py_ssize_t k = (Py_ssize_t)floor(v);
+    if (k > nr - 2) k = nr - 2;
+    *at = (k - i0) * w;
+    return v - (double)k;
+}
+
+WIDE static void grid_rows(const double *restrict across, Py_ssize_t nr, double voff,
+                           double step, Py_ssize_t i0, double *restrict O, Py_ssize_t h,
+                           Py_ssize_t w) {
+    for (Py_ssize_t i = 0; i < h; i++) {
+        Py_ssize_t at;
+        const double t = grid_row(i, voff, step, nr, i0, w, &at);
+        const double *a = across + at, *b = a + w;
         double *o = O + i * w;
         for (Py_ssize_t j = 0; j < w; j++) {
             double m = t * (b[j] - a[j]);
@@ -1681,6 +1714,13 @@ WIDE static void grid_interp_loop(const double *restrict N, const Py_ssize_t nr,
     }
 }
 
+PyDoc_STRVAR(grid_interp_doc,
+"grid_interp(nodes, uoff, voff, step, out)\n\n"
+"compose.sources.grid.TransformGrid._interpolate: nodes (rows, cols) float64, C-contiguous;\n"
+"out (h, w) float64, C-contiguous, gets the nodes interpolated bilinearly at u = (j + uoff) /\n"
+"step, v = (i + voff) / step (node units) for pixel column j, row i: along node rows first,\n"
+"then between them, as the numpy path does. ValueError if a pixel lies before the first node.");
+
 static PyObject *grid_interp(PyObject *self, PyObject *args) {
     PyObject *nodes_o, *out_o;
     double uoff, voff, step;
@@ -1688,30 +1728,17 @@ static PyObject *grid_interp(PyObject *self, PyObject *args) {
     Arr no = {0}, out = {0};
     PyObject *result = NULL;
     double *across = NULL, *sfrac = NULL;
-    Py_ssize_t *col = NULL;
+    Py_ssize_t *col = NULL, i0, nb;
     if (take(nodes_o, &no, 2, K_F64, 0, 0, "nodes") < 0
         || take(out_o, &out, 2, K_F64, 1, 0, "out") < 0)
         goto done;
     const Py_ssize_t nr = no.b.shape[0], nc = no.b.shape[1];
     const Py_ssize_t h = out.b.shape[0], w = out.b.shape[1];
-    if (!PyBuffer_IsContiguous(&no.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C') || nr < 2
-        || nc < 2 || h < 1 || w < 1 || !(step > 0)) {
+    if (!PyBuffer_IsContiguous(&no.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C')) {
         PyErr_SetString(PyExc_ValueError, "grid_interp: shapes, types or strides do not fit");
         goto done;
     }
-    const double *N = (const double *)no.b.buf;
-    double *O = (double *)out.b.buf;
-    /* node rows of the first and last pixel rows (the numpy path's band) */
-    const double v0 = ((double)0 + voff) / step, v1 = ((double)(h - 1) + voff) / step;
-    Py_ssize_t i0 = (Py_ssize_t)floor(v0), i1 = (Py_ssize_t)floor(v1);
-    if (i0 > nr - 2) i0 = nr - 2;
-    if (i1 > nr - 2) i1 = nr - 2;
-    const double u0 = ((double)0 + uoff) / step;
-    if (!(v0 >= 0) || !(u0 >= 0) || !isfinite(v1) || !isfinite(((double)(w - 1) + uoff) / step)) {
-        PyErr_SetString(PyExc_ValueError, "grid_interp: pixels outside the nodes");
-        goto done;
-    }
-    const Py_ssize_t nb = i1 - i0 + 2;                  /* node rows the window needs */
+    if (grid_band(nr, nc, uoff, voff, step, h, w, &i0, &nb) < 0) goto done;
     across = PyMem_RawMalloc((size_t)(nb * w) * sizeof(double));
     sfrac = PyMem_RawMalloc((size_t)w * sizeof(double));
     col = PyMem_RawMalloc((size_t)w * sizeof(Py_ssize_t));
@@ -1719,8 +1746,12 @@ static PyObject *grid_interp(PyObject *self, PyObject *args) {
         PyErr_NoMemory();
         goto done;
     }
+    const double *N = (const double *)no.b.buf;
+    double *O = (double *)out.b.buf;
     Py_BEGIN_ALLOW_THREADS
-    grid_interp_loop(N, nr, nc, uoff, voff, step, i0, nb, across, sfrac, col, O, h, w);
+    grid_columns(nc, uoff, step, w, col, sfrac);
+    grid_across(N, nc, i0, nb, w, col, sfrac, across);
+    grid_rows(across, nr, voff, step, i0, O, h, w);
     Py_END_ALLOW_THREADS
     Py_INCREF(Py_None);
     result = Py_None;
@@ -1778,6 +1809,56 @@ static inline float tri(float d) {
     return t > 0.0f ? t : 0.0f;
 }
 
+/* sample_centres' plain bilinear value at cell-centre position (x, y) from the cells f (bh x bw
+ * from row0, col0): resample._taps, _lerp2 and, where that gives NaN, _weighted over the valid
+ * taps with the containing cell's test, step for step. 1 when a tap lies outside the cells. */
+static inline int bilinear_one(const float *restrict f, int64_t bh, int64_t bw, int64_t row0,
+                               int64_t col0, double x, double y, float *restrict out) {
+    const double fx = floor(x), fy = floor(y);         /* the first tap: left / above */
+    const float dx = (float)(x - fx), dy = (float)(y - fy);
+    if (!(fx >= -9e15 && fx <= 9e15 && fy >= -9e15 && fy <= 9e15)) return 1;
+    const int64_t c = (int64_t)fx - col0, r = (int64_t)fy - row0;
+    if (c < 0 || c > bw - 2 || r < 0 || r > bh - 2) return 1;
+    const float *p = f + r * bw + c;
+    float ta = p[0], tb = p[1], tc = p[bw], td = p[bw + 1];
+    tb -= ta; tb *= dx; ta += tb;                     /* resample._lerp2, step for step */
+    td -= tc; td *= dx; tc += td;
+    tc -= ta; tc *= dy;
+    float v = ta + tc;
+    if (v != v) {                                       /* resample._weighted over valid taps */
+        const float wx[2] = {tri((dx - 0.0f) / 1.0f), tri((dx - 1.0f) / 1.0f)};
+        const float wy[2] = {tri((dy - 0.0f) / 1.0f), tri((dy - 1.0f) / 1.0f)};
+        float acc = 0.0f, norm = 0.0f;
+        for (int ky = 0; ky < 2; ky++)
+            for (int kx = 0; kx < 2; kx++) {
+                const float cell = p[ky * bw + kx];
+                const int ok = isfinite(cell);
+                float wk = wy[ky] * wx[kx];
+                wk *= ok ? 1.0f : 0.0f;
+                acc += wk * (ok ? cell : 0.0f);
+                norm += wk;
+            }
+        v = acc / norm;
+        if (fabsf(norm) < 1e-5f) v = NAN;
+        /* the cell holding the position (u = x + 0.5) must hold data */
+        const int64_t cr = (int64_t)floor(y + 0.5) - row0, cc = (int64_t)floor(x + 0.5) - col0;
+        if (cr < 0 || cr >= bh || cc < 0 || cc >= bw) return 1;
+        if (!isfinite(f[cr * bw + cc])) v = NAN;
+    }
+    *out = v;
+    return 0;
+}
+
+/* bilinear_at's loop: 1 when a tap lies outside the cells (the positions after it not made) */
+WIDE static int bilinear_at_loop(const float *restrict f, const int64_t bh, const int64_t bw,
+                                 const int64_t row0, const int64_t col0,
+                                 const double *restrict X, const double *restrict Y,
+                                 float *restrict o, const Py_ssize_t m) {
+    for (Py_ssize_t i = 0; i < m; i++)
+        if (bilinear_one(f, bh, bw, row0, col0, X[i], Y[i], o + i)) return 1;
+    return 0;
+}
+
 PyDoc_STRVAR(bilinear_at_doc,
 "bilinear_at(cells, row0, col0, x, y, out)\n\n"
 "compose.sources.resample.sample_centres' plain bilinear read at cell-centre positions x, y\n"
@@ -1787,54 +1868,6 @@ PyDoc_STRVAR(bilinear_at_doc,
 "kernel's mean over the valid taps (no data below 1e-5 of weight, or when the cell holding\n"
 "the position is no data), step for step as the numpy path. ValueError if a tap lies outside\n"
 "the cells.");
-
-/* bilinear_at's loop: 1 when a tap lies outside the cells (the positions after it not made) */
-WIDE static int bilinear_at_loop(const float *restrict f, const int64_t bh, const int64_t bw,
-                                 const int64_t row0, const int64_t col0,
-                                 const double *restrict X, const double *restrict Y,
-                                 float *restrict o, const Py_ssize_t m) {
-    int outside = 0;
-    const int64_t last = bh * bw - bw - 2;                    /* the largest first tap inside */
-    for (Py_ssize_t i = 0; i < m; i++) {
-        const double x = X[i], y = Y[i];
-        const double fx = floor(x), fy = floor(y);     /* the first tap: left / above */
-        const float dx = (float)(x - fx), dy = (float)(y - fy);
-        if (!(fx >= -9e15 && fx <= 9e15 && fy >= -9e15 && fy <= 9e15)) { outside = 1; break; }
-        const int64_t k = ((int64_t)fy - row0) * bw + ((int64_t)fx - col0);
-        if (k < 0 || k > last || (int64_t)fx - col0 < 0 || (int64_t)fx - col0 > bw - 2) {
-            outside = 1;
-            break;
-        }
-        const float *p = f + k;
-        float ta = p[0], tb = p[1], tc = p[bw], td = p[bw + 1];
-        tb -= ta; tb *= dx; ta += tb;                 /* resample._lerp2, step for step */
-        td -= tc; td *= dx; tc += td;
-        tc -= ta; tc *= dy;
-        float v = ta + tc;
-        if (v != v) {                                   /* resample._weighted over valid taps */
-            const float wx[2] = {tri((dx - 0.0f) / 1.0f), tri((dx - 1.0f) / 1.0f)};
-            const float wy[2] = {tri((dy - 0.0f) / 1.0f), tri((dy - 1.0f) / 1.0f)};
-            float acc = 0.0f, norm = 0.0f;
-            for (int ky = 0; ky < 2; ky++)
-                for (int kx = 0; kx < 2; kx++) {
-                    const float c = p[ky * bw + kx];
-                    const int ok = isfinite(c);
-                    float wk = wy[ky] * wx[kx];
-                    wk *= ok ? 1.0f : 0.0f;
-                    acc += wk * (ok ? c : 0.0f);
-                    norm += wk;
-                }
-            v = acc / norm;
-            if (fabsf(norm) < 1e-5f) v = NAN;
-            /* the cell holding the position (u = x + 0.5) must hold data */
-            const int64_t cr = (int64_t)floor(y + 0.5) - row0, cc = (int64_t)floor(x + 0.5) - col0;
-            if (cr < 0 || cr >= bh || cc < 0 || cc >= bw) { outside = 1; break; }
-            if (!isfinite(f[cr * bw + cc])) v = NAN;
-        }
-        o[i] = v;
-    }
-    return outside;
-}
 
 static PyObject *bilinear_at(PyObject *self, PyObject *args) {
     PyObject *cells_o, *x_o, *y_o, *out_o;
@@ -1875,6 +1908,196 @@ static PyObject *bilinear_at(PyObject *self, PyObject *args) {
     result = Py_None;
 done:
     drop(&ce); drop(&xa); drop(&ya); drop(&out);
+    return result;
+}
+
+/* grid_bilinear's loop: per pixel row, the positions as grid_interp makes them (x from
+ * across_x, y from across_y, into the row scratch xr, yr), then the bilinear read of each into
+ * o. 1 when a tap lies outside the cells. */
+WIDE static int grid_walk(const double *restrict ax_, const double *restrict ay_,
+                          Py_ssize_t nr, double voff, double step, Py_ssize_t i0,
+                          Py_ssize_t h, Py_ssize_t w, double *restrict xr, double *restrict yr,
+                          const float *restrict f, int64_t bh, int64_t bw, int64_t row0,
+                          int64_t col0, float *restrict o) {
+    for (Py_ssize_t i = 0; i < h; i++) {
+        Py_ssize_t at;
+        const double t = grid_row(i, voff, step, nr, i0, w, &at);
+        const double *xa = ax_ + at, *xb = xa + w, *ya = ay_ + at, *yb = ya + w;
+        for (Py_ssize_t j = 0; j < w; j++) {
+            double mx = t * (xb[j] - xa[j]), my = t * (yb[j] - ya[j]);
+            xr[j] = mx + xa[j];
+            yr[j] = my + ya[j];
+        }
+        float *orow = o + i * w;
+        for (Py_ssize_t j = 0; j < w; j++)
+            if (bilinear_one(f, bh, bw, row0, col0, xr[j], yr[j], orow + j)) return 1;
+    }
+    return 0;
+}
+
+/* grid_span's bounds: the positions (grid_interp's arithmetic) at the first and last pixel
+ * row and column of every node cell the window covers -- the corners of the pixels inside
+ * each cell, where a bilinear interpolation takes its extremes -- into b (xmin, xmax, ymin,
+ * ymax). 1 when one is NaN. */
+static int grid_corners(const double *restrict ax_, const double *restrict ay_, Py_ssize_t nr,
+                        double voff, double step, Py_ssize_t i0, Py_ssize_t h, Py_ssize_t w,
+                        const Py_ssize_t *restrict col, double *b) {
+    double xl = INFINITY, xh = -INFINITY, yl = INFINITY, yh = -INFINITY;
+    int nan = 0;
+    Py_ssize_t prev_at = -1;
+    for (Py_ssize_t i = 0; i < h; i++) {
+        Py_ssize_t at, next_at = -1;
+        const double t = grid_row(i, voff, step, nr, i0, w, &at);
+        if (i + 1 < h) grid_row(i + 1, voff, step, nr, i0, w, &next_at);
+        if (at == prev_at && at == next_at) {           /* inside a node cell's run of rows */
+            prev_at = at;
+            continue;
+        }
+        prev_at = at;
+        const double *xa = ax_ + at, *xb = xa + w, *ya = ay_ + at, *yb = ya + w;
+        for (Py_ssize_t j = 0; j < w; j++) {
+            if (j > 0 && j + 1 < w && col[j - 1] == col[j] && col[j + 1] == col[j]) continue;
+            double mx = t * (xb[j] - xa[j]), my = t * (yb[j] - ya[j]);
+            const double x = mx + xa[j], y = my + ya[j];
+            if (x != x || y != y) nan = 1;
+            xl = x < xl ? x : xl; xh = x > xh ? x : xh;
+            yl = y < yl ? y : yl; yh = y > yh ? y : yh;
+        }
+    }
+    b[0] = xl; b[1] = xh; b[2] = yl; b[3] = yh;
+    return nan;
+}
+
+/* The shared part of grid_span and grid_bilinear: the node arrays, their band and the
+ * interpolation along the node rows (across: x's nb x w values, then y's). */
+typedef struct {
+    Arr nx, ny;
+    Py_ssize_t nr, nc, i0, nb;
+    double *across;
+    Py_ssize_t *col;
+} GridPass;
+
+static int grid_pass_open(GridPass *g, PyObject *nx_o, PyObject *ny_o, double uoff, double voff,
+                          double step, Py_ssize_t h, Py_ssize_t w) {
+    g->across = NULL;
+    g->col = NULL;
+    g->nx.held = g->ny.held = 0;
+    if (take(nx_o, &g->nx, 2, K_F64, 0, 0, "nodes x") < 0
+        || take(ny_o, &g->ny, 2, K_F64, 0, 0, "nodes y") < 0)
+        return -1;
+    g->nr = g->nx.b.shape[0];
+    g->nc = g->nx.b.shape[1];
+    if (!PyBuffer_IsContiguous(&g->nx.b, 'C') || !PyBuffer_IsContiguous(&g->ny.b, 'C')
+        || g->ny.b.shape[0] != g->nr || g->ny.b.shape[1] != g->nc) {
+        PyErr_SetString(PyExc_ValueError, "grid: node arrays do not fit");
+        return -1;
+    }
+    if (grid_band(g->nr, g->nc, uoff, voff, step, h, w, &g->i0, &g->nb) < 0) return -1;
+    g->across = PyMem_RawMalloc((size_t)(2 * g->nb * w + 2 * w) * sizeof(double));
+    double *sfrac = PyMem_RawMalloc((size_t)w * sizeof(double));
+    Py_ssize_t *col = g->col = PyMem_RawMalloc((size_t)w * sizeof(Py_ssize_t));
+    if (g->across == NULL || sfrac == NULL || col == NULL) {
+        PyMem_RawFree(sfrac);
+        PyErr_NoMemory();
+        return -1;
+    }
+    const double *X = (const double *)g->nx.b.buf, *Y = (const double *)g->ny.b.buf;
+    Py_BEGIN_ALLOW_THREADS
+    grid_columns(g->nc, uoff, step, w, col, sfrac);
+    grid_across(X, g->nc, g->i0, g->nb, w, col, sfrac, g->across);
+    grid_across(Y, g->nc, g->i0, g->nb, w, col, sfrac, g->across + g->nb * w);
+    Py_END_ALLOW_THREADS
+    PyMem_RawFree(sfrac);
+    return 0;
+}
+
+static void grid_pass_close(GridPass *g) {
+    PyMem_RawFree(g->across);
+    PyMem_RawFree(g->col);
+    g->across = NULL;
+    g->col = NULL;
+    drop(&g->nx); drop(&g->ny);
+}
+
+PyDoc_STRVAR(grid_span_doc,
+"grid_span(nodes_x, nodes_y, uoff, voff, step, h, w) -> (xmin, xmax, ymin, ymax)\n\n"
+"Whole cells around the positions grid_interp gives for an h x w window, from its positions\n"
+"at the corners of the pixels inside every node cell (a bilinear interpolation's extremes),\n"
+"floored, a cell more on every side: nodes_x, nodes_y (rows, cols) float64, C-contiguous.\n"
+"ValueError if a position is NaN.");
+
+static PyObject *grid_span(PyObject *self, PyObject *args) {
+    PyObject *nx_o, *ny_o;
+    double uoff, voff, step;
+    Py_ssize_t h, w;
+    if (!PyArg_ParseTuple(args, "OOdddnn", &nx_o, &ny_o, &uoff, &voff, &step, &h, &w))
+        return NULL;
+    GridPass g;
+    PyObject *result = NULL;
+    double b[4];
+    int nan = 0;
+    if (grid_pass_open(&g, nx_o, ny_o, uoff, voff, step, h, w) < 0) goto done;
+    Py_BEGIN_ALLOW_THREADS
+    nan = grid_corners(g.across, g.across + g.nb * w, g.nr, voff, step, g.i0, h, w, g.col, b);
+    Py_END_ALLOW_THREADS
+    if (nan) {
+        PyErr_SetString(PyExc_ValueError, "grid_span: NaN position");
+        goto done;
+    }
+    /* a cell more on every side: the positions between the corners may round past them */
+    result = Py_BuildValue("dddd", floor(b[0]) - 1.0, floor(b[1]) + 1.0, floor(b[2]) - 1.0,
+                           floor(b[3]) + 1.0);
+done:
+    grid_pass_close(&g);
+    return result;
+}
+
+PyDoc_STRVAR(grid_bilinear_doc,
+"grid_bilinear(nodes_x, nodes_y, uoff, voff, step, cells, row0, col0, out)\n\n"
+"bilinear_at at the positions grid_interp gives for the window of out (h, w) float32,\n"
+"C-contiguous, made on the fly from nodes_x, nodes_y (rows, cols) float64: the same values.\n"
+"cells (bh, bw) float32 from row0, col0. ValueError if a tap lies outside the cells.");
+
+static PyObject *grid_bilinear(PyObject *self, PyObject *args) {
+    PyObject *nx_o, *ny_o, *cells_o, *out_o;
+    double uoff, voff, step;
+    long long row0, col0;
+    if (!PyArg_ParseTuple(args, "OOdddOLLO", &nx_o, &ny_o, &uoff, &voff, &step, &cells_o,
+                          &row0, &col0, &out_o))
+        return NULL;
+    GridPass g;
+    g.across = NULL;
+    g.nx.held = g.ny.held = 0;
+    Arr ce = {0}, out = {0};
+    PyObject *result = NULL;
+    int outside = 0;
+    if (take(cells_o, &ce, 2, K_F32, 0, 0, "cells") < 0
+        || take(out_o, &out, 2, K_F32, 1, 0, "out") < 0)
+        goto done;
+    if (!PyBuffer_IsContiguous(&ce.b, 'C') || !PyBuffer_IsContiguous(&out.b, 'C')
+        || ce.b.shape[1] < 2) {
+        PyErr_SetString(PyExc_ValueError, "grid_bilinear: shapes, types or strides do not fit");
+        goto done;
+    }
+    const Py_ssize_t h = out.b.shape[0], w = out.b.shape[1];
+    if (grid_pass_open(&g, nx_o, ny_o, uoff, voff, step, h, w) < 0) goto done;
+    const float *f = (const float *)ce.b.buf;
+    float *o = (float *)out.b.buf;
+    const int64_t bh = ce.b.shape[0], bw = ce.b.shape[1];
+    Py_BEGIN_ALLOW_THREADS
+    outside = grid_walk(g.across, g.across + g.nb * w, g.nr, voff, step, g.i0, h, w,
+                        g.across + 2 * g.nb * w, g.across + 2 * g.nb * w + w, f, bh, bw, row0,
+                        col0, o);
+    Py_END_ALLOW_THREADS
+    if (outside) {
+        PyErr_SetString(PyExc_ValueError, "grid_bilinear: a tap lies outside the cells");
+        goto done;
+    }
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    grid_pass_close(&g);
+    drop(&ce); drop(&out);
     return result;
 }
 /* ==== end of lean's section ================================================================ */
@@ -2026,6 +2249,8 @@ static PyMethodDef methods[] = {
     {"grid_interp", grid_interp, METH_VARARGS, grid_interp_doc},
     {"span", span, METH_VARARGS, span_doc},
     {"bilinear_at", bilinear_at, METH_VARARGS, bilinear_at_doc},
+    {"grid_span", grid_span, METH_VARARGS, grid_span_doc},
+    {"grid_bilinear", grid_bilinear, METH_VARARGS, grid_bilinear_doc},
     {"flat", flat, METH_VARARGS, flat_doc},
     {"box_sums", box_sums, METH_VARARGS, box_sums_doc},
     {"levels", levels, METH_VARARGS, levels_doc},

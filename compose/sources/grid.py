@@ -109,11 +109,7 @@ class TransformGrid:
             hit = self._recent.get(memo)
         if hit is not None:
             return hit
-        nodes = self._cells.get(key)
-        if nodes is None:
-            a, b, c, d, e, f = key[:6]
-            nodes = self._cells[key] = (a * self.x + b * self.y + (c - 0.5),
-                                        d * self.x + e * self.y + (f - 0.5))
+        nodes = self.cell_nodes(inverse)
         got = (self._interpolate(nodes[0], row0, col0, height, width),
                self._interpolate(nodes[1], row0, col0, height, width))
         for arr in got:
@@ -124,6 +120,23 @@ class TransformGrid:
             self._recent[memo] = got
         return got
 
+    def cell_nodes(self, inverse: Affine) -> tuple[np.ndarray, np.ndarray]:
+        """The nodes in a source's cells (``inverse``: the source's CRS -> pixel affine), float64
+        (rows, cols) each: (column, row) with cell i's centre at i; made once per source."""
+        key = tuple(inverse)
+        nodes = self._cells.get(key)
+        if nodes is None:
+            a, b, c, d, e, f = key[:6]
+            nodes = self._cells[key] = (a * self.x + b * self.y + (c - 0.5),
+                                        d * self.x + e * self.y + (f - 0.5))
+        return nodes
+
+    def offsets(self, row0: int, col0: int) -> tuple[float, float]:
+        """(uoff, voff): pixel column j, row i of a window from row0, col0 lies at node
+        coordinates ((j + uoff) / step, (i + voff) / step) (its centre, from node (0, 0))."""
+        c0, r0 = self.origin
+        return col0 + 0.5 - c0, row0 + 0.5 - r0
+
     def _interpolate(self, nodes: np.ndarray, row0: int, col0: int, height: int,
                      width: int) -> np.ndarray:
         """``nodes`` interpolated bilinearly at the centres of pixels rows row0.., cols col0..:
@@ -131,15 +144,15 @@ class TransformGrid:
         pixel rows per node cell (two passes over the output, no gathers). Compiled in one pass
         without the GIL when :mod:`compose.kernels` is built (the same float64 operations in the
         same order, so the same bits)."""
-        c0, r0 = self.origin
+        uoff, voff = self.offsets(row0, col0)
         compiled = kernels.get()
         if compiled is not None:
             out = np.empty((height, width), np.float64)
-            compiled.grid_interp(np.ascontiguousarray(nodes, np.float64), col0 + 0.5 - c0,
-                                 row0 + 0.5 - r0, float(self.step), out)
+            compiled.grid_interp(np.ascontiguousarray(nodes, np.float64), uoff, voff,
+                                 float(self.step), out)
             return out
-        u = (np.arange(width) + (col0 + 0.5 - c0)) / self.step
-        v = (np.arange(height) + (row0 + 0.5 - r0)) / self.step
+        u = (np.arange(width) + uoff) / self.step
+        v = (np.arange(height) + voff) / self.step
         j = np.minimum(np.floor(u).astype(np.intp), nodes.shape[1] - 2)
         i = np.minimum(np.floor(v).astype(np.intp), nodes.shape[0] - 2)
         s = (u - j)[None, :]

@@ -59,7 +59,7 @@ from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead
 from compose.sources.crs import metre_projected
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
-from compose.sources.resample import cut_block, sample_centres
+from compose.sources.resample import cut_block, sample_grid
 from compose.style.kinds import RESAMPLING  # the names a style may use, defined once
 
 if TYPE_CHECKING:
@@ -623,9 +623,8 @@ class RasterSource:
                                          float(np.hypot(u[1, 0] - u[0, 0], v[1, 0] - v[0, 0])))
         if resampling == "average" and max(scale) <= SHRINK_LIMIT:
             return None
-        x, y = grid.cell_centres(inv, row0, col0, height, width)
-        return sample_centres(self._read_cells, x, y, resampling, scale,
-                              reduce=self._read_reduced if self.decimate else None)
+        return sample_grid(self._read_cells, grid, inv, row0, col0, height, width, resampling,
+                           scale, reduce=self._read_reduced if self.decimate else None)
 
     def _read_cells(self, row: int, col: int, height: int, width: int) -> np.ndarray:
         """Source cells rows row.., cols col.. (may reach outside): float32, NaN = no data."""

@@ -26,7 +26,7 @@ import numpy as np
 
 from compose import kernels
 
-__all__ = ["sample", "sample_centres", "cut_block", "forget_taps", "Reader"]
+__all__ = ["sample", "sample_centres", "sample_grid", "cut_block", "forget_taps", "Reader"]
 
 #: read(row0, col0, height, width) -> float32 block of source cells, NaN = no data; the rectangle
 #: may reach outside the source (those cells are NaN).
@@ -134,6 +134,33 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
                   + (np.floor(xb + 0.5).astype(np.intp) - col0))
         sub[~valid.take(centre)] = np.nan
         out.reshape(-1)[bad] = sub
+    return out
+
+
+def sample_grid(read: Reader, grid, inverse, row0: int, col0: int, height: int, width: int,
+                method: str, shrink: tuple[float, float] = (1.0, 1.0),
+                reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None
+                ) -> np.ndarray:
+    """:func:`sample_centres` at the positions of a window's pixel centres in a source's cells
+    from a transform grid (``grid``: :class:`compose.sources.grid.TransformGrid`, ``inverse``:
+    the source's CRS -> pixel affine; the window: rows row0.., cols col0..): float32 (height,
+    width). A plain bilinear read with :mod:`compose.kernels` built makes the positions on the
+    fly in two compiled passes without the GIL (their span, then the read; no arrays of
+    positions); otherwise :meth:`~compose.sources.grid.TransformGrid.cell_centres` gives them.
+    The same values either way."""
+    sx, sy = (1.0 if float(v) <= _SNAP else float(v) for v in shrink)
+    k = kernels.get()
+    if k is None or method != "bilinear" or (sx, sy) != (1.0, 1.0):
+        x, y = grid.cell_centres(inverse, row0, col0, height, width)
+        return sample_centres(read, x, y, method, shrink, reduce)
+    nx, ny = grid.cell_nodes(inverse)
+    uoff, voff = grid.offsets(row0, col0)
+    step = float(grid.step)
+    xl, xh, yl, yh = k.grid_span(nx, ny, uoff, voff, step, height, width)
+    c0, r0 = int(xl), int(yl)
+    cells = np.ascontiguousarray(read(r0, c0, int(yh) + 2 - r0, int(xh) + 2 - c0), np.float32)
+    out = np.empty((height, width), np.float32)
+    k.grid_bilinear(nx, ny, uoff, voff, step, cells, r0, c0, out)
     return out
 
 

@@ -184,3 +184,65 @@ def test_reprojected_raster_read_equals_the_numpy_path_bit_for_bit(use, tmp_path
         _same_bits(a, b)
     every = np.concatenate([a.ravel() for a in got[False]])
     assert np.isnan(every).any() and np.isfinite(every).mean() > 0.5
+
+
+@pytest.mark.parametrize("case", range(len(GRIDS)))
+def test_grid_read_equals_the_numpy_path_bit_for_bit(use, case):
+    """sample_grid's compiled read (positions made on the fly from the nodes, the cells' span
+    from the corners of every node cell's pixels) against numpy's positions and read."""
+    transform, width, height, crs, src_crs, cell = GRIDS[case]
+    grid = transform_grid(transform, width, height, 64, crs, src_crs, cell)
+    assert grid is not None
+    # a source of 0.9 canvas pixels under part of the canvas: windows inside it, across its
+    # edges and beyond it; no-data cells and a hole
+    x0, y0 = float(grid.x.min()), float(grid.y.max())
+    span_x = float(grid.x.max()) - x0
+    size = span_x / (0.9 * width)
+    inverse = ~Affine(size, 0, x0 + 0.2 * span_x, 0, -size, y0 - 0.1 * span_x)
+    rng = np.random.default_rng(11 + case)
+    src = rng.uniform(-50.0, 50.0, (int(0.6 * height / 0.9), int(0.6 * width / 0.9)))
+    src = src.astype(np.float32)
+    src[rng.random(src.shape) < 0.05] = np.nan
+    src[40:60, 70:95] = np.nan
+
+    def read(r, c, h, w):
+        return R.cut_block(src, r, c, h, w)
+
+    rows, cols = grid.x.shape
+    right = int(grid.origin[0]) + (cols - 1) * grid.step
+    bottom = int(grid.origin[1]) + (rows - 1) * grid.step
+    windows = [(0, 0, height, width), (-64, -64, 200, 300), (bottom - 77, right - 99, 77, 99),
+               (1, 2, 1, 1), (5, 7, 1, 400)]
+    windows += [(int(rng.integers(-64, height - 64)), int(rng.integers(-64, width - 64)), 131,
+                 129) for _ in range(8)]
+    seen = []
+    for r0, c0, h, w in windows:
+        got = {}
+        for on in (True, False):
+            use(on)
+            forget_recent()
+            R.forget_taps()
+            with np.errstate(invalid="ignore"):
+                got[on] = R.sample_grid(read, grid, inverse, r0, c0, h, w, "bilinear")
+        _same_bits(got[True], got[False])
+        seen.append(got[False])
+        use(True)                # the span read covers the positions' own span
+        xs, ys = grid.cell_centres(inverse, r0, c0, h, w)
+        nx, ny = grid.cell_nodes(inverse)
+        uoff, voff = grid.offsets(r0, c0)
+        xl, xh, yl, yh = kernels.get().grid_span(nx, ny, uoff, voff, float(grid.step), h, w)
+        assert (xl, yl) == (np.floor(xs.min()) - 1, np.floor(ys.min()) - 1)
+        assert (xh, yh) == (np.floor(xs.max()) + 1, np.floor(ys.max()) + 1)
+    every = np.concatenate([a.ravel() for a in seen])
+    assert np.isnan(every).any() and np.isfinite(every).mean() > 0.2
+
+
+def test_grid_read_refuses_cells_that_miss_its_taps(compiled):  # noqa: F811
+    nodes = np.add.outer(np.arange(5.0), np.zeros(5))      # rows 0..4 of 16 px: y = row / 16
+    cells = np.zeros((3, 3), np.float32)
+    out = np.empty((8, 8), np.float32)
+    compiled.grid_bilinear(nodes.T.copy(), nodes.copy(), 0.5, 0.5, 16.0, cells, 0, 0, out)
+    with pytest.raises(ValueError):                          # the cells start a row too low
+        compiled.grid_bilinear(nodes.T.copy(), nodes.copy(), 0.5, 0.5, 16.0, cells, 1, 0, out)
+    with pytest.raises(ValueError):                          # a pixel before the first node
+        compiled.grid_bilinear(nodes.T.copy(), nodes.copy(), -8.0, 0.5, 16.0, cells, 0, 0, out)
