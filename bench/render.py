@@ -1,6 +1,6 @@
 """Benchmark: synthetic N x N renders (relief + field + lines) beside independent kernel floors.
 
-    python bench/render.py [--sizes 2048,8192] [--big] [--lines 10000] [--quick]
+    python bench/render.py [--sizes 2048,8192] [--big] [--lines 10000] [--quick] [--statistics]
 
 For every size it prints, from the same run:
   * floors (bench/floors.py, written without compose's code): Agg lines on the whole canvas,
@@ -25,7 +25,9 @@ For every size it prints, from the same run:
   * workers: compute with 1 thread, 2 threads (--workers 2), 2 worker processes and a 2-worker
     dask LocalCluster.
 Then the 1500 x 1500 demo style (render with all outputs, ``compose check`` cold and warm; medians
-of 5) and the start-up time of ``compose --help``.
+of 5) and the start-up time of ``compose --help``. ``--statistics``: only the statistics' three
+figures, measured as above (the 1-worker bare render, the alternating pairs without floors between
+them, the walks timed inside), for A/B turns against another tree (PYTHONPATH).
 
 Every render runs in a child process with compose's own settings (no GDAL cache or thread
 settings of ours; the compute-only and bare renders set the command's malloc settings,
@@ -399,6 +401,51 @@ def compute_floor_turn(folder: Path, size: int) -> float:
             + floors.lut_gather(size, 1) + floors.composite_planar(size, 1) + _read_floor(folder))
 
 
+def statistics_lines(total: float, pairs: list[tuple[float, float]],
+                     cpu_pairs: list[tuple[float, float]], inside: dict) -> None:
+    """The statistics' three figures: the alternating pairs' wall and CPU differences and the
+    walks timed inside, each over ``total`` (the 1-worker bare render's wall time)."""
+    cost = statistics.median(m - p for p, m in pairs)
+    cpu = statistics.median(m - p for p, m in cpu_pairs)
+    print(f"  statistics share                                {100 * cost / total:6.1f} % "
+          f"of the 1-worker render (target <= 10 %; median of {len(pairs)} alternating pairs' "
+          f"differences, {cost:.2f} s; pairs: "
+          + ", ".join(f"{m - p:+.2f}" for p, m in pairs)
+          + "; hierarchy statistics only: the bare render and this figure sum no previews)")
+    print(f"  statistics share, CPU time                      {100 * cpu / total:6.1f} % "
+          f"of the 1-worker render's wall (median of the same pairs' CPU differences, "
+          f"{cpu:.2f} CPU-s; pairs: " + ", ".join(f"{m - p:+.2f}" for p, m in cpu_pairs) + ")")
+    print(f"  statistics inside the walk                      {100 * inside['measure'] / total:6.1f} % "
+          f"of the 1-worker render ({inside['measure']:.2f} CPU-s of the window measure's own calls "
+          f"and the merge, median of 3 walks; of it the overlay kernel {inside['overlay']:.2f} s "
+          f"(of which {inside['gathered']:.2f} s gathering what lies beneath while the overlay "
+          f"is composited: that pass's time less a plain composite of the same paint beside it), "
+          f"the grey order {inside['gray']:.2f} s; the palette's entry counts are not in it)")
+
+
+def bench_statistics(folder: Path, size: int, quick: bool) -> None:
+    """Only the statistics' figures of :func:`bench_size` (--statistics): the 1-worker bare
+    render, the alternating pairs of computes with and without statistics (no floors between
+    them) and the walks timed inside, measured the same way."""
+    styles = write_styles(folder, size)
+    out = folder / "out"
+    runs = 1 if quick else 3
+    print(f"\n== {size} x {size}, statistics only ==", flush=True)
+    total, _ = median_task(runs, lambda r: r["wall"], "bare", styles["aligned"], out, workers=1)
+    pairs: list[tuple[float, float]] = []
+    cpu_pairs: list[tuple[float, float]] = []
+    for i in range(max(runs, 5)):
+        order = ("plain", "measure") if i % 2 == 0 else ("measure", "plain")
+        got = {mode: task(mode, styles["aligned"], out) for mode in order}
+        pairs.append((got["plain"]["compute"], got["measure"]["compute"]))
+        cpu_pairs.append((got["plain"]["compute_cpu"], got["measure"]["compute_cpu"]))
+    insides = [task("measure", styles["aligned"], out, inside=True)["inside"] for _ in range(3)]
+    inside = {k: statistics.median(i.get(k, 0.0) for i in insides)
+              for k in ("measure", "overlay", "gray", "gathered")}
+    print(f"  bare render, 1 worker                           {total:6.2f} s wall")
+    statistics_lines(total, pairs, cpu_pairs, inside)
+
+
 def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     styles = write_styles(folder, size)
     out = folder / "out"
@@ -476,8 +523,6 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     turn_floor = statistics.median(turn_floors)
     ratios_m = [m / f for (_, m), f in zip(pairs, turn_floors)]
     ratios_p = [p / f for (p, _), f in zip(pairs, turn_floors)]
-    stats_cost = statistics.median(m - p for p, m in pairs)
-    stats_cpu = statistics.median(m - p for p, m in cpu_pairs)
     with_previews, _ = median_task(runs, comp, "previews", styles["aligned"], out)
     # the statistics' own calls timed inside the walk: steadier than the pairs' differences on a
     # shared machine (no second walk to drift against), without what they cost elsewhere (the
@@ -524,20 +569,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  compute alone, CPU time of every thread          measuring {cpu_m:.2f} CPU-s, not "
           f"measuring {cpu_p:.2f} CPU-s (medians of the same turns: 1 window thread, and the "
           f"threads the walk starts beside it, e.g. its raster reads)")
-    print(f"  statistics share                                {100 * stats_cost / total:6.1f} % "
-          f"of the 1-worker render (target <= 10 %; median of {len(pairs)} alternating pairs' "
-          f"differences, {stats_cost:.2f} s; pairs: "
-          + ", ".join(f"{m - p:+.2f}" for p, m in pairs)
-          + "; hierarchy statistics only: the bare render and this figure sum no previews)")
-    print(f"  statistics share, CPU time                      {100 * stats_cpu / total:6.1f} % "
-          f"of the 1-worker render's wall (median of the same pairs' CPU differences, "
-          f"{stats_cpu:.2f} CPU-s; pairs: " + ", ".join(f"{m - p:+.2f}" for p, m in cpu_pairs) + ")")
-    print(f"  statistics inside the walk                      {100 * inside['measure'] / total:6.1f} % "
-          f"of the 1-worker render ({inside['measure']:.2f} CPU-s of the window measure's own calls "
-          f"and the merge, median of 3 walks; of it the overlay kernel {inside['overlay']:.2f} s "
-          f"(of which {inside['gathered']:.2f} s gathering what lies beneath while the overlay "
-          f"is composited: that pass's time less a plain composite of the same paint beside it), "
-          f"the grey order {inside['gray']:.2f} s; the palette's entry counts are not in it)")
+    statistics_lines(total, pairs, cpu_pairs, inside)
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "
           f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
@@ -611,6 +643,8 @@ def main() -> None:
     ap.add_argument("--lines", type=int, default=10000)
     ap.add_argument("--quick", action="store_true", help="one run per figure instead of the median of 3")
     ap.add_argument("--no-demo", action="store_true")
+    ap.add_argument("--statistics", action="store_true",
+                    help="only the statistics' share (bare 1-worker render, pairs, walks timed inside)")
     ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
     args = ap.parse_args()
     sizes = [int(s) for s in args.sizes.split(",") if s]
@@ -622,8 +656,11 @@ def main() -> None:
         if not (folder / "lines.gpkg").exists():
             print(f"making synthetic data in {folder} ...", flush=True)
             make_data(folder, size, args.lines)
-        bench_size(folder, size, args.lines, args.quick)
-    if not args.no_demo:
+        if args.statistics:
+            bench_statistics(folder, size, args.quick)
+        else:
+            bench_size(folder, size, args.lines, args.quick)
+    if not args.no_demo and not args.statistics:
         bench_demo()
 
 
