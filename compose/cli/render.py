@@ -29,12 +29,24 @@ class progress_bar:
             self.bar.__exit__(None, None, None)
 
 
+def file_size(n: int) -> str:
+    """A file's size in SI units (1 kB = 1000 bytes): "120 B", "45 kB", "3.3 MB" (a world file
+    showed as "0.0 MB")."""
+    if n < 1000:
+        return f"{n} B"
+    if n < 1_000_000:
+        return f"{n / 1000:.0f} kB"
+    return f"{n / 1e6:.1f} MB"
+
+
 def print_summary(result, strict: bool = False) -> None:
     """Outputs, size, time, unplaced labels and the check verdict of one render."""
     click.echo(f"rendered {result.width} x {result.height} px in {result.seconds['total']:.1f} s")
+    # one column for the paths however long the kinds ("proof-deutan"), "check" included
+    wide = max([7] + [len(kind) for kind in result.outputs])
     for kind, path in result.outputs.items():
-        size = path.stat().st_size / 1e6 if path.exists() else 0
-        click.echo(f"  {kind:<7} {path}  ({size:.1f} MB)")
+        size = path.stat().st_size if path.exists() else 0
+        click.echo(f"  {kind:<{wide}} {path}  ({file_size(size)})")
     for layer, labels in result.unplaced_labels.items():
         click.echo(f"  layer \"{layer}\": {len(labels)} label(s) not placed: {', '.join(labels)}")
     if result.report is not None:
@@ -45,7 +57,7 @@ def print_summary(result, strict: bool = False) -> None:
         verdict = ("passed" if rep.passed_strict(strict) else
                    f"FAILED ({len(failed)} rule(s): {', '.join(dict.fromkeys(failed))}); "
                    "see NAME.check.json or `compose check`")
-        click.echo(f"  check   {verdict}")
+        click.echo(f"  {'check':<{wide}} {verdict}")
 
 
 def expand_styles(args: tuple[Path, ...]) -> list[Path]:

@@ -145,3 +145,25 @@ def test_series_errors(tmp_path):
                                      + '\n[series]\ndate = ["1", "2"]\nplace = ["a"]\n')
     result = run(tmp_path / "u.toml", "--series", "--out", tmp_path / "out")
     assert result.exit_code == 2 and "the same number of values; got date 2, place 1" in result.output
+
+
+def test_the_summary_lines_up_its_paths_and_gives_sizes_in_si_units(tmp_path, capsys):
+    """Every path in one column, however long the output's kind ("proof-deutan" pushed its path
+    out of line), and each size in SI units (1 kB = 1000 bytes, BIPM SI Brochure 3.1 prefixes):
+    a world file's 120 bytes are "120 B", not "0.0 MB"."""
+    from types import SimpleNamespace
+
+    from compose.cli.render import print_summary
+
+    sizes = {"png": 3_300_000, "world": 120, "legend": 45_000, "proof-deutan": 2_700_000}
+    outputs = {}
+    for kind, n in sizes.items():
+        outputs[kind] = tmp_path / f"m.{kind}"
+        outputs[kind].write_bytes(b"\0" * n)
+    result = SimpleNamespace(width=10, height=10, seconds={"total": 1.0}, outputs=outputs,
+                             unplaced_labels={}, report=None)
+    print_summary(result)
+    lines = capsys.readouterr().out.splitlines()[1:]
+    columns = {line.index(str(tmp_path)) for line in lines}
+    assert len(lines) == 4 and len(columns) == 1
+    assert [line.rsplit("(", 1)[1] for line in lines] == ["3.3 MB)", "120 B)", "45 kB)", "2.7 MB)"]
