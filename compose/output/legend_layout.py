@@ -369,17 +369,21 @@ def _row_height(kind: str) -> float:
 
 def split_rows(rows: list, n: int) -> list[list]:
     """Class rows shared out in order over ``n`` columns of about equal height (a family
-    heading never ends a column)."""
+    heading never ends a column; a family broken between columns has its heading again at the
+    top of the next, so no class stands under another family's heading or none)."""
     total = sum(_row_height(k) for k, _ in rows)
     cols: list[list] = [[]]
     used = 0.0
+    family = None
     for row in rows:
         h = _row_height(row[0])
         if len(cols) < n and cols[-1] and used + h / 2 > total / n * len(cols):
             if cols[-1][-1][0] == "family":            # keep a heading with its first class
                 cols.append([cols[-1].pop()])
             else:
-                cols.append([])
+                cols.append([family] if family is not None and row[0] == "class" else [])
+        if row[0] == "family":
+            family = row
         cols[-1].append(row)
         used += h
     return cols

@@ -145,3 +145,30 @@ def test_the_shrunk_legend_draws_its_type_smaller(tmp_path):
     line, = ax.plot([0, 1], [0, 1], lw=2.0, marker="o", ms=4.0)
     shrink_artists(ax, 0.5)
     assert t.get_fontsize() == 4 and line.get_linewidth() == 1.0 and line.get_markersize() == 2.0
+
+
+def test_a_family_broken_between_columns_keeps_its_heading():
+    """Reflowed into two columns, "Farmed" ended one column with "Cropland" and its "Pasture"
+    topped the next with no heading: every class must stand under its own family's heading."""
+    from types import SimpleNamespace
+
+    from compose.output.legend_layout import split_rows
+
+    def cls(name, fam):
+        return ("class", SimpleNamespace(label=name, family=fam))
+
+    rows = [("family", "woody"), cls("Conifer", "woody"), cls("Broadleaf", "woody"),
+            cls("Shrub", "woody"), ("family", "farmed"), cls("Crop", "farmed"),
+            cls("Pasture", "farmed"), ("family", "other"), cls("Wetland", "other"),
+            cls("Settlement", "other"), cls("Rock", "other")]
+    for n in (2, 3, 4):
+        cols = split_rows(rows, n)
+        assert [r for c in cols for r in c if r[0] == "class"] == \
+            [r for r in rows if r[0] == "class"]                  # every class once, in order
+        for col in cols:
+            heading = None
+            for kind, item in col:
+                if kind == "family":
+                    heading = item
+                else:
+                    assert heading == item.family, (n, item.label)
