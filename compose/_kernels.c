@@ -1842,6 +1842,35 @@ static inline float tri(float d) {
     return t > 0.0f ? t : 0.0f;
 }
 
+/* bilinear_one's no-data renormalisation for a position whose lerps gave NaN: p its first tap,
+ * dx, dy the fractions from it. *bad = 1 when the cell holding it lies outside the cells. */
+static inline float bilinear_renorm(const float *restrict f, int64_t bh, int64_t bw,
+                                    int64_t row0, int64_t col0, double x, double y,
+                                    const float *restrict p, float dx, float dy, int *bad) {
+    const float wx[2] = {tri((dx - 0.0f) / 1.0f), tri((dx - 1.0f) / 1.0f)};
+    const float wy[2] = {tri((dy - 0.0f) / 1.0f), tri((dy - 1.0f) / 1.0f)};
+    float acc = 0.0f, norm = 0.0f;
+    for (int ky = 0; ky < 2; ky++)
+        for (int kx = 0; kx < 2; kx++) {
+            const float cell = p[ky * bw + kx];
+            const int ok = isfinite(cell);
+            float wk = wy[ky] * wx[kx];
+            wk *= ok ? 1.0f : 0.0f;
+            acc += wk * (ok ? cell : 0.0f);
+            norm += wk;
+        }
+    float v = acc / norm;
+    if (fabsf(norm) < 1e-5f) v = NAN;
+    /* the cell holding the position (u = x + 0.5) must hold data */
+    const int64_t cr = (int64_t)floor(y + 0.5) - row0, cc = (int64_t)floor(x + 0.5) - col0;
+    if (cr < 0 || cr >= bh || cc < 0 || cc >= bw) {
+        *bad = 1;
+        return v;
+    }
+    if (!isfinite(f[cr * bw + cc])) v = NAN;
+    return v;
+}
+
 /* sample_centres' plain bilinear value at cell-centre position (x, y) from the cells f (bh x bw
  * from row0, col0): resample._taps, _lerp2 and, where that gives NaN, _weighted over the valid
  * taps with the containing cell's test, step for step. 1 when a tap lies outside the cells. */
@@ -1859,24 +1888,9 @@ static inline int bilinear_one(const float *restrict f, int64_t bh, int64_t bw, 
     tc -= ta; tc *= dy;
     float v = ta + tc;
     if (v != v) {                                       /* resample._weighted over valid taps */
-        const float wx[2] = {tri((dx - 0.0f) / 1.0f), tri((dx - 1.0f) / 1.0f)};
-        const float wy[2] = {tri((dy - 0.0f) / 1.0f), tri((dy - 1.0f) / 1.0f)};
-        float acc = 0.0f, norm = 0.0f;
-        for (int ky = 0; ky < 2; ky++)
-            for (int kx = 0; kx < 2; kx++) {
-                const float cell = p[ky * bw + kx];
-                const int ok = isfinite(cell);
-                float wk = wy[ky] * wx[kx];
-                wk *= ok ? 1.0f : 0.0f;
-                acc += wk * (ok ? cell : 0.0f);
-                norm += wk;
-            }
-        v = acc / norm;
-        if (fabsf(norm) < 1e-5f) v = NAN;
-        /* the cell holding the position (u = x + 0.5) must hold data */
-        const int64_t cr = (int64_t)floor(y + 0.5) - row0, cc = (int64_t)floor(x + 0.5) - col0;
-        if (cr < 0 || cr >= bh || cc < 0 || cc >= bw) return 1;
-        if (!isfinite(f[cr * bw + cc])) v = NAN;
+        int bad = 0;
+        v = bilinear_renorm(f, bh, bw, row0, col0, x, y, p, dx, dy, &bad);
+        if (bad) return 1;
     }
     *out = v;
     return 0;
@@ -1944,26 +1958,57 @@ done:
     return result;
 }
 
-/* grid_bilinear's loop: per pixel row, the positions as grid_interp makes them (x from
- * across_x, y from across_y, into the row scratch xr, yr), then the bilinear read of each into
- * o. 1 when a tap lies outside the cells. */
+/* grid_bilinear's loop, per pixel row: the positions as grid_interp makes them (x from
+ * across_x, y from across_y) with their first taps' flat indices (int32: cells of fewer than
+ * 2**31 - bw - 2) and fractions into the row scratch, then the 4 gathers and float32 lerps,
+ * then bilinear_renorm where they gave NaN: bilinear_one's steps, in passes the compiler can
+ * vectorise. 1 when a tap lies outside the cells. */
 WIDE static int grid_walk(const double *restrict ax_, const double *restrict ay_,
                           Py_ssize_t nr, double voff, double step, Py_ssize_t i0,
-                          Py_ssize_t h, Py_ssize_t w, double *restrict xr, double *restrict yr,
+                          Py_ssize_t h, Py_ssize_t w, double *restrict scratch,
                           const float *restrict f, int64_t bh, int64_t bw, int64_t row0,
                           int64_t col0, float *restrict o) {
+    double *restrict xr = scratch, *restrict yr = scratch + w;
+    int32_t *restrict idx = (int32_t *)(scratch + 2 * w);
+    float *restrict dxs = (float *)(idx + w), *restrict dys = dxs + w;
+    const double c0 = (double)col0, r0 = (double)row0, bwd = (double)bw;
+    const double cmax = (double)(bw - 2), rmax = (double)(bh - 2);
+    const int32_t bw32 = (int32_t)bw;
     for (Py_ssize_t i = 0; i < h; i++) {
         Py_ssize_t at;
         const double t = grid_row(i, voff, step, nr, i0, w, &at);
         const double *xa = ax_ + at, *xb = xa + w, *ya = ay_ + at, *yb = ya + w;
+        int bad = 0;
         for (Py_ssize_t j = 0; j < w; j++) {
             double mx = t * (xb[j] - xa[j]), my = t * (yb[j] - ya[j]);
-            xr[j] = mx + xa[j];
-            yr[j] = my + ya[j];
+            const double x = mx + xa[j], y = my + ya[j];
+            xr[j] = x;
+            yr[j] = y;
+            const double fx = floor(x), fy = floor(y);     /* the first tap: left / above */
+            dxs[j] = (float)(x - fx);
+            dys[j] = (float)(y - fy);
+            const double c = fx - c0, r = fy - r0;          /* whole numbers, exact */
+            const int ok = (c >= 0.0) & (c <= cmax) & (r >= 0.0) & (r <= rmax);
+            bad |= !ok;
+            idx[j] = (int32_t)(ok ? r * bwd + c : 0.0);
         }
-        float *orow = o + i * w;
+        if (bad) return 1;
+        float *restrict orow = o + i * w;
+        for (int32_t j = 0; j < (int32_t)w; j++) {
+            const int32_t k = idx[j];
+            float ta = f[k], tb = f[k + 1], tc = f[k + bw32], td = f[k + bw32 + 1];
+            const float dx = dxs[j], dy = dys[j];
+            tb -= ta; tb *= dx; ta += tb;                 /* resample._lerp2, step for step */
+            td -= tc; td *= dx; tc += td;
+            tc -= ta; tc *= dy;
+            orow[j] = ta + tc;
+        }
         for (Py_ssize_t j = 0; j < w; j++)
-            if (bilinear_one(f, bh, bw, row0, col0, xr[j], yr[j], orow + j)) return 1;
+            if (orow[j] != orow[j]) {
+                orow[j] = bilinear_renorm(f, bh, bw, row0, col0, xr[j], yr[j], f + idx[j],
+                                          dxs[j], dys[j], &bad);
+                if (bad) return 1;
+            }
     }
     return 0;
 }
@@ -2026,7 +2071,7 @@ static int grid_pass_open(GridPass *g, PyObject *nx_o, PyObject *ny_o, double uo
         return -1;
     }
     if (grid_band(g->nr, g->nc, uoff, voff, step, h, w, &g->i0, &g->nb) < 0) return -1;
-    g->across = PyMem_RawMalloc((size_t)(2 * g->nb * w + 2 * w) * sizeof(double));
+    g->across = PyMem_RawMalloc((size_t)(2 * g->nb * w + 4 * w) * sizeof(double));
     double *sfrac = PyMem_RawMalloc((size_t)w * sizeof(double));
     Py_ssize_t *col = g->col = PyMem_RawMalloc((size_t)w * sizeof(Py_ssize_t));
     if (g->across == NULL || sfrac == NULL || col == NULL) {
@@ -2117,10 +2162,13 @@ static PyObject *grid_bilinear(PyObject *self, PyObject *args) {
     const float *f = (const float *)ce.b.buf;
     float *o = (float *)out.b.buf;
     const int64_t bh = ce.b.shape[0], bw = ce.b.shape[1];
+    if (bh * bw > (int64_t)INT32_MAX - bw - 2) {          /* not for int32 indices */
+        PyErr_SetString(PyExc_ValueError, "grid_bilinear: too many cells");
+        goto done;
+    }
     Py_BEGIN_ALLOW_THREADS
     outside = grid_walk(g.across, g.across + g.nb * w, g.nr, voff, step, g.i0, h, w,
-                        g.across + 2 * g.nb * w, g.across + 2 * g.nb * w + w, f, bh, bw, row0,
-                        col0, o);
+                        g.across + 2 * g.nb * w, f, bh, bw, row0, col0, o);
     Py_END_ALLOW_THREADS
     if (outside) {
         PyErr_SetString(PyExc_ValueError, "grid_bilinear: a tap lies outside the cells");

@@ -158,7 +158,11 @@ def sample_grid(read: Reader, grid, inverse, row0: int, col0: int, height: int, 
     step = float(grid.step)
     xl, xh, yl, yh = k.grid_span(nx, ny, uoff, voff, step, height, width)
     c0, r0 = int(xl), int(yl)
-    cells = np.ascontiguousarray(read(r0, c0, int(yh) + 2 - r0, int(xh) + 2 - c0), np.float32)
+    bh, bw = int(yh) + 2 - r0, int(xh) + 2 - c0
+    if bh * bw >= 2**31 - bw - 2:       # beyond the kernel's int32 indices: positions made
+        x, y = grid.cell_centres(inverse, row0, col0, height, width)
+        return sample_centres(read, x, y, method, shrink, reduce)
+    cells = np.ascontiguousarray(read(r0, c0, bh, bw), np.float32)
     out = np.empty((height, width), np.float32)
     k.grid_bilinear(nx, ny, uoff, voff, step, cells, r0, c0, out)
     return out
