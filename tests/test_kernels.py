@@ -486,6 +486,30 @@ def test_a_build_older_than_its_source_is_not_used(tmp_path, capsys):
     assert not kernels.stale(str(built))
 
 
+def test_a_stale_build_is_reported_once_and_not_when_turned_off(tmp_path, capsys, monkeypatch):
+    # compose.kernels.get: a build older than its source gives the numpy path and one line on
+    # stderr for the process (the answer is kept), none at all with COMPOSE_KERNELS=off
+    import os
+
+    from compose import kernels
+
+    built, source = tmp_path / "_kernels.so", tmp_path / "_kernels.c"
+    built.write_bytes(b"")
+    source.write_text("")
+    os.utime(built, (1000, 1000))
+    os.utime(source, (2000, 2000))
+    real = kernels.stale
+    monkeypatch.setattr(kernels, "stale", lambda _: real(str(built)))
+    monkeypatch.setattr(kernels, "_loaded", [])
+    monkeypatch.setattr(kernels, "enabled", False)
+    assert kernels.get() is None
+    assert capsys.readouterr().err == "" and kernels._loaded == []
+    monkeypatch.setattr(kernels, "enabled", True)
+    assert kernels.get() is None and kernels.get() is None
+    err = capsys.readouterr().err
+    assert err.count("older than") == 1 and err.count("\n") == 1
+
+
 @pytest.mark.parametrize("directions", [1, 3, 6])
 @pytest.mark.parametrize("per_row", [False, True])
 @pytest.mark.parametrize("holes", [False, True, "edges"])
