@@ -12,8 +12,10 @@ to come and the rows of the block they need. A block is decoded by the first rea
 (once, whichever thread gets there first), kept while reads are still to come, cut down to the
 rows those reads need (a finished tile row keeps only the strip the next window row's margin
 reaches into) and dropped after its last read. In a row-major walk that holds about one row of
-tiles per raster, in whichever thread order the windows run. Reads the plan does not know (a
-window of another walk, a reprojected read) go to GDAL directly.
+tiles per raster, in whichever thread order the windows run. A reprojected walk is planned
+too where the compiled resampling knows each window's cells before reading them
+(:func:`compose.sources.resample.grid_region`). Reads the plan does not know (a window of
+another walk, a reprojected read by another path) go to GDAL directly.
 
 The values are the same either way: a planned read assembles the window from blocks finished by
 the same per-pixel steps (no-data and mask to NaN) as a direct read of the window.
@@ -325,8 +327,8 @@ def planned_walk(layers, canvas, windows) -> Iterator[bool]:
         mine = windows
         if getattr(layer, "core_reads", False):     # the layer reads window cores only
             cores = mine = cores if cores is not None else [core_window(w) for w in windows]
-        planned.append(s.plan(canvas, mine))
         resampling = getattr(getattr(layer, "options", None), "resampling", None)
+        planned.append(s.plan(canvas, mine, resampling if isinstance(resampling, str) else None))
         if (isinstance(resampling, str) and callable(getattr(s, "read_ahead", None))
                 and not getattr(s, "decimate", False)):
             reads.append((s, mine, resampling))

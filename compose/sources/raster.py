@@ -55,11 +55,11 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
-from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead
+from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead, Region
 from compose.sources.crs import metre_projected
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
-from compose.sources.resample import cut_block, sample_grid
+from compose.sources.resample import cut_block, grid_region, sample_grid
 from compose.style.kinds import RESAMPLING  # the names a style may use, defined once
 
 if TYPE_CHECKING:
@@ -494,25 +494,38 @@ class RasterSource:
         return out
 
     # --- planned reads (compose.sources.blocks) ----------------------------------------------
-    def plan(self, canvas: Canvas | None, windows: list[Window] = ()) -> bool:
+    def plan(self, canvas: Canvas | None, windows: list[Window] = (),
+             resampling: str | None = None) -> bool:
         """Expect the padded reads of ``windows`` of ``canvas`` (a window walk): each source block
         is then decoded once and shared by the window threads (:class:`BlockPlan`). True when
-        the walk's reads are planned: the canvas is aligned with the source, the reads exact
-        (not decimated) and the blocks tile-sized. ``plan(None)`` forgets the plan."""
+        the walk's reads are planned: the canvas is aligned with the source, or every window is
+        read with ``resampling`` through the canvas's transform grid by the compiled path (whose
+        cells are known before the read: :func:`compose.sources.resample.grid_region`), the
+        reads exact (not decimated) and the blocks tile-sized. ``plan(None)`` forgets the plan."""
         self._plan = None
         if canvas is None or self.decimate or not windows:
             return False
         crs = canvas.crs
         bh, bw = self._ds.block_shapes[self.band - 1]
-        if bh * bw > MAX_BLOCK_CELLS or self._aligned_offset(crs, canvas.transform) is None:
+        if bh * bw > MAX_BLOCK_CELLS:
             return False
-        regions = []
+        aligned = self._aligned_offset(crs, canvas.transform) is not None
+        if not aligned and resampling is None:
+            return False
+        regions: list[Region] = []
         for win in windows:
-            offset = self._aligned_offset(crs, canvas.window_transform(win))
-            if offset is None:
+            if aligned:
+                offset = self._aligned_offset(crs, canvas.window_transform(win))
+                if offset is None:
+                    return False
+                _, _, height, width = win.padded
+                regions.append((offset[0], offset[1], height, width))
+                continue
+            assert resampling is not None
+            region = self._grid_region(canvas, win, resampling)
+            if region is None:
                 return False
-            _, _, height, width = win.padded
-            regions.append((offset[0], offset[1], height, width))
+            regions.append(region)
         self._plan = BlockPlan((bh, bw), (self._ds.height, self._ds.width), regions)
         return True
 
@@ -599,6 +612,29 @@ class RasterSource:
 
     def _grid_read(self, canvas: Canvas, window: Window, resampling: str,
                    centre: tuple[float, float]) -> np.ndarray | None:
+        setup = self._grid_setup(canvas, window, resampling)
+        if setup is None:
+            return None
+        grid, inv, scale = setup
+        row0, col0, height, width = window.padded
+        return sample_grid(self._read_cells, grid, inv, row0, col0, height, width, resampling,
+                           scale, reduce=self._read_reduced if self.decimate else None)
+
+    def _grid_region(self, canvas: Canvas, window: Window, resampling: str) -> Region | None:
+        """The source cells (row, col, height, width; may reach outside) a read of ``window``
+        through the transform grid asks for (:func:`compose.sources.resample.grid_region`), or
+        None when it takes another path."""
+        setup = self._grid_setup(canvas, window, resampling)
+        if setup is None:
+            return None
+        grid, inv, scale = setup
+        row0, col0, height, width = window.padded
+        return grid_region(grid, inv, row0, col0, height, width, resampling, scale)
+
+    def _grid_setup(self, canvas: Canvas, window: Window, resampling: str):
+        """(transform grid, the source's inverse affine, source cells per canvas pixel along x
+        and y) of a read of ``window`` through the canvas's shared transform grid, or None when
+        that read takes another path (aligned, warped exactly by GDAL)."""
         if resampling not in RESAMPLING or resampling == "mode" or self._wrap_crs is not None:
             return None
         row0, col0, height, width = window.padded
@@ -623,8 +659,7 @@ class RasterSource:
                                          float(np.hypot(u[1, 0] - u[0, 0], v[1, 0] - v[0, 0])))
         if resampling == "average" and max(scale) <= SHRINK_LIMIT:
             return None
-        return sample_grid(self._read_cells, grid, inv, row0, col0, height, width, resampling,
-                           scale, reduce=self._read_reduced if self.decimate else None)
+        return grid, inv, scale
 
     def _read_cells(self, row: int, col: int, height: int, width: int) -> np.ndarray:
         """Source cells rows row.., cols col.. (may reach outside): float32, NaN = no data."""

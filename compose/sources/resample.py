@@ -26,7 +26,7 @@ import numpy as np
 
 from compose import kernels
 
-__all__ = ["sample", "sample_centres", "sample_grid", "cut_block", "forget_taps", "Reader"]
+__all__ = ["sample", "sample_centres", "sample_grid", "grid_region", "cut_block", "forget_taps", "Reader"]
 
 #: read(row0, col0, height, width) -> float32 block of source cells, NaN = no data; the rectangle
 #: may reach outside the source (those cells are NaN).
@@ -148,24 +148,39 @@ def sample_grid(read: Reader, grid, inverse, row0: int, col0: int, height: int, 
     fly in two compiled passes without the GIL (their span, then the read; no arrays of
     positions); otherwise :meth:`~compose.sources.grid.TransformGrid.cell_centres` gives them.
     The same values either way."""
+    region = grid_region(grid, inverse, row0, col0, height, width, method, shrink)
+    k = kernels.get()
+    if region is None or k is None:
+        x, y = grid.cell_centres(inverse, row0, col0, height, width)
+        return sample_centres(read, x, y, method, shrink, reduce)
+    r0, c0, bh, bw = region
+    nx, ny = grid.cell_nodes(inverse)
+    uoff, voff = grid.offsets(row0, col0)
+    cells = np.ascontiguousarray(read(r0, c0, bh, bw), np.float32)
+    out = np.empty((height, width), np.float32)
+    k.grid_bilinear(nx, ny, uoff, voff, float(grid.step), cells, r0, c0, out)
+    return out
+
+
+def grid_region(grid, inverse, row0: int, col0: int, height: int, width: int, method: str,
+                shrink: tuple[float, float] = (1.0, 1.0)) -> tuple[int, int, int, int] | None:
+    """The source cells (row, col, height, width; may reach outside the source) that
+    :func:`sample_grid` reads for this window when it takes the compiled path, or None when
+    it does not (no build, other methods, widened kernels): a walk can plan those reads
+    (:class:`compose.sources.blocks.BlockPlan`). The cells around the positions at the corners
+    of the pixels inside every node cell, a cell more on every side (``grid_span``)."""
     sx, sy = (1.0 if float(v) <= _SNAP else float(v) for v in shrink)
     k = kernels.get()
     if k is None or method != "bilinear" or (sx, sy) != (1.0, 1.0):
-        x, y = grid.cell_centres(inverse, row0, col0, height, width)
-        return sample_centres(read, x, y, method, shrink, reduce)
+        return None
     nx, ny = grid.cell_nodes(inverse)
     uoff, voff = grid.offsets(row0, col0)
-    step = float(grid.step)
-    xl, xh, yl, yh = k.grid_span(nx, ny, uoff, voff, step, height, width)
+    xl, xh, yl, yh = k.grid_span(nx, ny, uoff, voff, float(grid.step), height, width)
     c0, r0 = int(xl), int(yl)
     bh, bw = int(yh) + 2 - r0, int(xh) + 2 - c0
-    if bh * bw >= 2**31 - bw - 2:       # beyond the kernel's int32 indices: positions made
-        x, y = grid.cell_centres(inverse, row0, col0, height, width)
-        return sample_centres(read, x, y, method, shrink, reduce)
-    cells = np.ascontiguousarray(read(r0, c0, bh, bw), np.float32)
-    out = np.empty((height, width), np.float32)
-    k.grid_bilinear(nx, ny, uoff, voff, step, cells, r0, c0, out)
-    return out
+    if bh * bw >= 2**31 - bw - 2:       # beyond the kernel's int32 indices
+        return None
+    return r0, c0, bh, bw
 
 
 #: (x, y, their taps) of the latest positions :func:`sample_centres` was given that could not

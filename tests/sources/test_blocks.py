@@ -189,7 +189,9 @@ def test_read_ahead_same_values_and_ends(tmp_path, threads, aligned):
         layer = type("Layer", (), {"source": src})()
         layer.options = type("Options", (), {"resampling": "bilinear"})()
         with planned_walk([layer], canvas, wins) as every:
-            assert every == aligned
+            # resampled reads are planned too where the compiled resampling knows their cells
+            from compose import kernels
+            assert every == (aligned or kernels.get() is not None)
             ahead = src._ahead
             assert ahead is not None and not _ahead_threads()    # started by the first read
             if threads == 1:                # the owner's thread: no other handle opened
@@ -197,9 +199,10 @@ def test_read_ahead_same_values_and_ends(tmp_path, threads, aligned):
             else:
                 with ThreadPoolExecutor(threads) as pool:
                     got = list(pool.map(lambda w: src.read_window(canvas, w), wins))
+            if every:
+                assert src._plan.finished
             if aligned:
                 plan = src._plan
-                assert plan.finished
                 touched = {key for w in wins for key, _, _ in plan._parts(
                     (w.padded[0] + 4, w.padded[1] + 9, w.padded[2], w.padded[3]))}
                 assert plan.decoded == len(touched)             # each block once
@@ -284,3 +287,45 @@ def test_no_read_ahead_without_reads(tmp_path):
         with planned_walk([layer], canvas, wins):
             assert src._ahead is not None and not _ahead_threads()
         assert src._ahead is None
+
+
+@pytest.mark.parametrize("threads", [1, 3])
+def test_planned_reprojected_reads_equal_direct_reads(tmp_path, threads, monkeypatch):
+    # a canvas on the neighbouring UTM zone's grid (about 3.5 degrees of rotation), reaching
+    # beyond the file: the compiled resampling knows each window's cells before reading them,
+    # so the walk is planned, every block touched is decoded once and dropped after its last
+    # read, and the values are a direct read's (GDAL's own windowed reads of the file)
+    import pyproj
+
+    from compose import kernels
+    if kernels.get() is None:
+        pytest.skip("compose._kernels not built")
+    path = _tiled(tmp_path / "r.tif", _data(), nodata=-9999)
+    cx, cy = pyproj.Transformer.from_crs(CRS, "EPSG:32632", always_xy=True).transform(
+        500850.0, 3999000.0)                      # the file's centre
+    canvas = Canvas("EPSG:32632", Affine(10, 0, round(cx) - 900, 0, -10, round(cy) + 1050),
+                    180, 210)
+    wins = list(canvas.windows(40, margin=3))
+    direct = RasterSource(path, layer="r")
+    planned = RasterSource(path, layer="r")
+    try:
+        want = [direct.read_window(canvas, w) for w in wins]
+        assert planned.plan(canvas, wins, "bilinear")
+        plan = planned._plan
+        regions = list(plan._pending.elements())
+        with ThreadPoolExecutor(threads) as pool:
+            got = list(pool.map(lambda w: planned.read_window(canvas, w), wins))
+        assert plan.finished
+        touched = {key for region in regions for key, _, _ in plan._parts(region)}
+        assert plan.decoded == len(touched) > 1
+        assert not planned.plan(canvas, wins)                  # no resampling named: not planned
+        assert not planned.plan(canvas, wins, "cubic")         # not the compiled path
+        monkeypatch.setattr(kernels, "enabled", False)
+        assert not planned.plan(canvas, wins, "bilinear")      # the numpy path: not planned
+    finally:
+        direct.close()
+        planned.close()
+    for a, b in zip(want, got):
+        np.testing.assert_array_equal(a, b)        # NaN where no data, in both
+    every = np.concatenate([a.ravel() for a in want])
+    assert np.isnan(every).any() and np.isfinite(every).mean() > 0.5
