@@ -44,7 +44,6 @@ from compose.output.legend_layout import (
     OVERLAY_ROW,
     PAPER,
     RULE,
-    SHADED_NOTE,
     SWATCH_ROW,
     TITLE_FONT,
     TITLE_H,
@@ -159,7 +158,7 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
     for layer, label, box in zip(b.layers, b.labels, mine):
         top, bottom = box.y0 / DPI, box.y1 / DPI
         img = _bar_image(layer.lut, box)
-        if b.seen is not None:         # three stripes: lit slope, flat ground, shaded slope
+        if b.seen is not None:         # stripes: lit slope, flat ground, shaded slope (those shown)
             img = np.round(b.seen(img[0] / 255.0).transpose(1, 0, 2) * 255).astype(np.uint8)
         ax.imshow(img, extent=(x0, x1, bottom, top), aspect="auto", interpolation="nearest",
                   zorder=1)
@@ -195,21 +194,26 @@ def _draw_ramps(ax, b: RampsBlock, y: float, boxes: list[BarBox]) -> None:
     _draw_swatches(ax, b.swatches, x0 - END + END_SIGN, y_sw, b.seen)
     if b.seen is not None:
         _text(ax, x0 - END + END_SIGN, y_sw + (SWATCH_ROW if b.swatches else 0.0) + NOTE_ROW * 0.45,
-                SHADED_NOTE, fontsize=FONT - 1.4, style="italic", color=MUTED, va="center")
+                b.note, fontsize=FONT - 1.4, style="italic", color=MUTED, va="center")
 
 
 def _swatch(ax, x: float, y: float, w: float, h: float, rgb, seen=None, zorder: float = 1.0
             ) -> None:
-    """A framed colour patch; with ``seen`` (a shaded key) three stripes, top to bottom the
-    colour on a lit slope, on flat ground and on a shaded slope."""
+    """A framed colour patch; with ``seen`` (a shaded key) its stripes, top to bottom the colour
+    on a lit slope, on flat ground and on a shaded slope (those the key shows,
+    :func:`compose.output.legend_layout.visible_tones`)."""
     from matplotlib.patches import Rectangle
 
     if seen is None:
         ax.add_patch(Rectangle((x, y), w, h, facecolor=tuple(rgb), edgecolor=FRAME, lw=0.4,
                                zorder=zorder))
         return
-    for k, tone in enumerate(seen(np.array([rgb]))[0]):
-        ax.add_patch(Rectangle((x, y + k * h / 3), w, h / 3, facecolor=tuple(tone),
+    tones = seen(np.array([rgb]))[0]
+    for k, tone in enumerate(tones):     # each from its top to the bottom, over the one above:
+        # Agg snaps each patch to whole pixels, so stripes cut at a fractional row would leave
+        # a row of paper between them
+        top = y + k * h / len(tones)
+        ax.add_patch(Rectangle((x, top), w, y + h - top, facecolor=tuple(tone),
                                edgecolor="none", lw=0, zorder=zorder))
     ax.add_patch(Rectangle((x, y), w, h, fill=False, edgecolor=FRAME, lw=0.4, zorder=zorder))
 
@@ -247,7 +251,7 @@ def _draw_classes(ax, b: ClassesBlock, y: float, width: float = WIDTH) -> None:
     _draw_swatches(ax, b.swatches, indent, yy + 0.04, b.seen)
     if b.seen is not None:
         yy += (SWATCH_ROW + 0.04 if b.swatches else 0.0) + 0.04
-        _text(ax, indent, yy + NOTE_ROW * 0.45, SHADED_NOTE, fontsize=FONT - 1.4, style="italic",
+        _text(ax, indent, yy + NOTE_ROW * 0.45, b.note, fontsize=FONT - 1.4, style="italic",
                 color=MUTED, va="center")
 
 

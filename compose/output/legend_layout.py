@@ -13,6 +13,7 @@ from compose.style.kinds import LAYER_KINDS
 
 __all__ = ["legend_layout", "assemble", "split_rows", "set_columns", "LegendLayout", "BarBox", "RampsBlock",
            "ClassesBlock", "OverlaysBlock", "relief_tones", "seen_under_relief", "TONE_SLOPE",
+           "visible_tones", "shaded_key", "STRIPE_DE", "TONE_NAMES",
            "pretty_name", "format_value", "rgb01", "ramp_of", "ramp_marks", "DPI", "WIDTH",
            "END_GAP", "END_W", "END_SIGN", "END", "NOTE_ROW", "SHADED_NOTE"]
 
@@ -96,6 +97,7 @@ class RampsBlock:
     fmt: Callable[[float], str] = format_value
     swatches: list = field(default_factory=list)
     seen: Callable | None = None      # colours (n, 3) -> as seen under the relief tones (n, k, 3)
+    note: str = SHADED_NOTE           # the caption under a shaded key: what its k stripes are
 
 
 @dataclass
@@ -108,6 +110,7 @@ class ClassesBlock:
     swatches: list = field(default_factory=list)
     seen: Callable | None = None
     columns: list = field(default_factory=list)    # the rows split into columns (empty: one)
+    note: str = SHADED_NOTE
 
 
 @dataclass
@@ -266,6 +269,60 @@ def seen_under_relief(background, layers, layer) -> Callable | None:
     return seen
 
 
+#: CIEDE2000 under which two stripes of a shaded key are taken as one colour (the formula:
+#: Sharma, Wu & Dalal 2005, :func:`compose.color.difference.delta_e_2000`; the threshold of 2 --
+#: a difference a reader can just tell at a glance -- is common practice, no source)
+STRIPE_DE = 2.0
+
+#: what each relief tone of :func:`relief_tones` is called in a shaded key's caption
+TONE_NAMES = ("lit slope", "flat ground", "shaded slope")
+
+
+def visible_tones(seen: Callable, colors: np.ndarray) -> tuple[tuple[int, ...], str]:
+    """The relief tones (indices into :func:`relief_tones`) a shaded key shows as stripes, and
+    its caption. ``seen``: from :func:`seen_under_relief`; ``colors`` (n, 3) in [0, 1]: the key's
+    colours. A slope tone whose colours differ from flat ground's by less than :data:`STRIPE_DE`
+    (CIEDE2000, the median over ``colors``) is no stripe of its own: the flat stripe stands for it
+    and the caption says so ("lit slope and flat ground") instead of claiming a stripe the reader
+    cannot find -- e.g. a near-white relief tint, whose lit slopes are the tint itself."""
+    from compose.color.difference import delta_e_2000
+    from compose.color.lab import srgb_to_lab
+
+    lab = srgb_to_lab(np.asarray(seen(np.asarray(colors, float).reshape(-1, 3)), float))
+    apart = [float(np.median(delta_e_2000(lab[:, k], lab[:, 1]))) >= STRIPE_DE for k in (0, 2)]
+    tones = tuple(k for k, keep in zip((0, 1, 2), (apart[0], True, apart[1])) if keep)
+    if tones == (0, 1, 2):
+        return tones, SHADED_NOTE
+    flat = " and ".join(TONE_NAMES[k] for k, keep in zip((0, 1, 2), (not apart[0], True,
+                                                                     not apart[1])) if keep)
+    if len(tones) == 1:
+        return tones, f"as seen on {flat} (alike under this relief)"
+    return tones, "stripes: " + ", ".join(flat if k == 1 else TONE_NAMES[k] for k in tones)
+
+
+def _key_colors(b) -> np.ndarray:
+    """(n, 3) in [0, 1]: the colours a colour-bar or class block shows (its tables' colours, or
+    its shown classes')."""
+    if isinstance(b, RampsBlock):
+        return np.concatenate([np.asarray(la.lut.rgb8, float) / 255.0 for la in b.layers])
+    return np.array([rgb01(item.rgb) for kind, item in b.rows if kind == "class"], float)
+
+
+def shaded_key(background, layers, b) -> None:
+    """Give block ``b`` its shaded key: ``b.seen`` (None when the style has no relief) maps its
+    colours to the visible stripes only (:func:`visible_tones`), ``b.note`` their caption."""
+    first = b.layers[0] if isinstance(b, RampsBlock) else b.layer
+    seen = seen_under_relief(background, layers, first)
+    if seen is None:
+        return
+    tones, b.note = visible_tones(seen, _key_colors(b))
+    if tones == (0, 1, 2):
+        b.seen = seen
+        return
+    pick = list(tones)
+    b.seen = lambda rgb: seen(rgb)[:, pick]
+
+
 def ramp_marks(ramp, fmt: Callable[[float], str] = format_value) -> list[tuple[float, str]]:
     """(value, text) of the marks over a ramp's bar: a threshold ramp's break, a diverging
     ramp's centre; the number in ``fmt``, the axis's own format, so the mark and the tick under
@@ -421,7 +478,7 @@ def legend_layout(style, ramps, layers, width: float = WIDTH,
         first = b.layers[0] if isinstance(b, RampsBlock) else getattr(b, "layer", None)
         key = _key(first) if first is not None else None
         if key is not None and key.shaded:
-            b.seen = seen_under_relief(style.map.background, layers, first)
+            shaded_key(style.map.background, layers, b)
             if b.seen is not None:
                 b.height += NOTE_ROW
         if isinstance(b, ClassesBlock) and columns > 1:

@@ -19,9 +19,12 @@ from tests.output._tiny import tiny_style
 def test_shaded_bar_shows_the_multiply_composite_under_three_relief_tones(tmp_path):
     """Relief below, data blended with multiply (W3C Compositing 1, "multiply": B = Cb x Cs):
     the shaded bar's three stripes are the data colour times the relief colour of a 30 degree
-    slope facing the sun, of flat ground and of a 30 degree slope facing away."""
+    slope facing the sun, of flat ground and of a 30 degree slope facing away. (A mid-light tint,
+    whose lit slopes are visibly lighter than its flat ground: all three stripes are shown.)"""
     path = tiny_style(tmp_path / "data", extra=False, overlays=False)
-    text = path.read_text().replace('ramp   = "land"\n',
+    text = path.read_text().replace('source = "dem.tif"\n',
+                                    'source = "dem.tif"\ntint = { L = 80, C = 3, h = 85 }\n', 1)
+    text = text.replace('ramp   = "land"\n',
                                     'ramp   = "land"\nlegend = { shaded = true }\n', 1)
     path.write_text(text)
     style = load_style(path)
@@ -61,6 +64,91 @@ def test_shaded_bar_shows_the_multiply_composite_under_three_relief_tones(tmp_pa
     mid_col = int(np.floor(box.x_of((box.values[0] + box.values[-1]) / 2)))
     flat_row, dark_row = int(box.y0 + h * 0.5), int(box.y0 + h * 5 / 6)
     assert rgb[dark_row, mid_col].sum() < rgb[flat_row, mid_col].sum() - 10
+
+
+def _runs(rgb: np.ndarray, cols: list[int], y0: float, y1: float) -> list[list[int]]:
+    """The rows from ``y0`` to ``y1`` (pixels; 3 left off each end, the frame) in runs of equal
+    colour at the pixel columns ``cols``, top first."""
+    runs: list[list[int]] = []
+    for r in range(int(y0) + 3, int(y1) - 2):
+        if runs and np.array_equal(rgb[r, cols], rgb[runs[-1][0], cols]):
+            runs[-1].append(r)
+        else:
+            runs.append([r])
+    return runs
+
+
+def _stripes(rgb: np.ndarray, box) -> list[np.ndarray]:
+    """The colours of a bar's stripes at 7 columns: [(7, 3) per stripe], top first (runs under
+    3 px, a boundary between stripes, left out)."""
+    cols = [int(np.floor(box.x_of(v))) for v in np.linspace(box.values[0], box.values[-1], 9)[1:-1]]
+    return [rgb[run[len(run) // 2], cols] for run in _runs(rgb, cols, box.y0, box.y1)
+            if len(run) >= 3]
+
+
+def test_a_shaded_key_shows_only_stripes_the_reader_can_tell_apart(tmp_path):
+    """A near-white relief tint at a low strength (the coast demo's: L* 97.5, strength 0.25)
+    lights slopes to within 1/255 of flat ground's colour: a "lit slope" stripe would claim a
+    difference nobody sees. Every pair of neighbouring stripes drawn must differ by CIEDE2000 >= 2
+    (colour-science's implementation of Sharma, Wu & Dalal 2005; the threshold of 2 is common
+    practice, no source), and the caption names what each stripe stands for."""
+    import colour
+
+    path = tiny_style(tmp_path / "data", extra=False, overlays=False)
+    text = path.read_text().replace('source = "dem.tif"\n',
+                                    'source = "dem.tif"\ntint = { L = 97.5, C = 1, h = 85 }\n'
+                                    'strength = 0.25\nblend = "multiply"\n', 1)
+    text = text.replace('ramp   = "land"\n', 'ramp   = "land"\nlegend = { shaded = true }\n', 1)
+    path.write_text(text)
+    style = load_style(path)
+    run_ = prepare(style)
+    try:
+        out = tmp_path / "legend.png"
+        write_legend(out, style, run_.ramps, run_.layers)
+        rgb = np.asarray(Image.open(out).convert("RGB")).astype(float) / 255
+        layout = legend_layout(style, run_.ramps, run_.layers)
+    finally:
+        run_.close()
+    box = next(b for b in layout.bars if b.layer == "land-growth")
+    stripes = _stripes(rgb, box)
+    lab = [colour.XYZ_to_Lab(colour.sRGB_to_XYZ(s)) for s in stripes]
+    assert len(stripes) >= 2
+    for a, b in zip(lab, lab[1:]):
+        assert np.median(colour.delta_E(a, b, method="CIE 2000")) >= 2.0
+    block = next(b for b in layout.blocks if getattr(b, "seen", None) is not None)
+    assert block.note == "stripes: lit slope and flat ground, shaded slope"
+    assert len(stripes) == 2
+
+
+def test_striped_swatches_have_no_seam_of_paper_between_stripes():
+    """Two-stripe swatches at 400 heights over a legend-sized figure: every row inside each
+    frame is one of its stripes' colours. Agg snaps each patch to whole pixels, and stripes cut
+    at a fractional row left a row of paper between them at some heights (2 of these 400; in
+    the cover demo, its Wetland and Settlement swatches)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    from compose.output.legend import _swatch
+
+    tones = np.array([[0.35, 0.6, 0.6], [0.29, 0.51, 0.51]])
+    want = {tuple(int(v) for v in np.round(t * 255)) for t in tones}
+    height = 4.875
+    for shift in np.arange(0, 0.2, 0.0101):
+        fig = Figure(figsize=(3.6, height), dpi=DPI, facecolor="white")
+        ax = fig.add_axes((0, 0, 1, 1))
+        ax.set_axis_off()
+        ax.set_autoscale_on(False)
+        tops = [0.1 + shift + i * 0.205 for i in range(20)]
+        for y in tops:
+            _swatch(ax, 0.32, y, 0.3, 0.145, (0.5, 0.5, 0.5), lambda rgb: tones[None])
+        ax.set_xlim(0, 3.6)
+        ax.set_ylim(height, 0)
+        canvas = FigureCanvasAgg(fig)
+        canvas.draw()
+        rgb = np.asarray(canvas.buffer_rgba())[:, :, :3].astype(int)
+        for y in tops:
+            rows = rgb[int(y * DPI) + 3:int((y + 0.145) * DPI) - 2, int(0.47 * DPI)]
+            assert {tuple(int(v) for v in r) for r in rows} <= want, (shift, y)
 
 
 MANY = """
