@@ -12,7 +12,8 @@ Blocks, top to bottom in style order:
   scale with a single axis, so equal values can be compared across them at a glance.
 * **class swatches** for ``classes`` layers, grouped under their family names.
 * **overlay samples**: a short line, area, marker or text sample drawn with the layer's own
-  widths (points), dashes and halo, on a light neutral key patch so light halos show.
+  widths (points), dashes and halo, on a light neutral key patch so light halos show; the
+  topmost layer on the map first.
 
 The style has no units key: each block is titled with its layer name, prettified
 (``"land-productivity"`` -> "Land productivity"). :func:`legend_layout` gives the geometry of

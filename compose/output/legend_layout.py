@@ -336,7 +336,8 @@ def ramp_marks(ramp, fmt: Callable[[float], str] = format_value) -> list[tuple[f
 
 
 def _blocks(layers, seen: set[str] | None = None) -> list:
-    """Legend blocks in style order: colour-bar groups, class lists, then the overlays.
+    """Legend blocks in style order: colour-bar groups, class lists, then the overlays (these
+    topmost first, the reverse of the style's drawing order).
     ``seen``: the layers with no-data pixels on the map (None: assume every layer has some)."""
     blocks: list = []
     groups: dict[frozenset, RampsBlock] = {}
@@ -385,8 +386,10 @@ def _blocks(layers, seen: set[str] | None = None) -> list:
             swatches = b.swatches = _nodata_swatches([b.layer], seen)
             b.height = (TITLE_H + sum(FAMILY_ROW if k == "family" else CLASS_ROW for k, _ in b.rows)
                         + (SWATCH_ROW + 0.04 if swatches else 0.0) + 0.04)
-    if overlays:
-        blocks.append(OverlaysBlock(overlays, height=len(overlays) * OVERLAY_ROW + 0.04))
+    if overlays:   # topmost first: the layer drawn last over the map heads the list (common
+        # practice, no source; the style has no legend order of its own: layers are drawn in
+        # file order, first lowest)
+        blocks.append(OverlaysBlock(overlays[::-1], height=len(overlays) * OVERLAY_ROW + 0.04))
     return blocks
 
 

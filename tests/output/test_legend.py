@@ -87,6 +87,17 @@ def test_twins_share_one_scale_and_are_stacked(drawn):
     assert water.y0 > land.y1 and water.y0 - land.y1 < 0.2 * DPI   # stacked directly beneath
 
 
+def test_overlays_are_listed_topmost_first(drawn):
+    """The style draws its layers in file order, first lowest (coast lines, then towns, then
+    their names on top); a legend lists the topmost layer first (common practice, no source),
+    and the style has no legend order of its own to respect."""
+    from compose.output.legend_layout import OverlaysBlock
+
+    layout, _, _ = drawn
+    block = next(b for b in layout.blocks if isinstance(b, OverlaysBlock))
+    assert [la.spec.name for la in block.layers] == ["town-names", "towns", "coast"]
+
+
 def test_end_squares_show_the_outside_colors_set_off_by_a_gap(drawn):
     layout, layers, rgb = drawn
     box = next(b for b in layout.bars if b.layer == "warmth")
