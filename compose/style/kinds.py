@@ -151,7 +151,8 @@ class LegendKey:
     title (default the layer name), its units (shown after the title), a number format for its
     values (a Python format spec such as ".1f"; default up to 4 significant digits), for classes
     layers the class values to show (default all), and ``shaded``: draw the colour bar and
-    swatches as the reader sees them under the style's relief (lit slope, flat, shaded slope)."""
+    swatches as the reader sees them under the style's relief (lit slope, flat, shaded slope;
+    a slope stripe within CIEDE2000 2 of flat ground is merged into it, and the caption says so)."""
 
     title: str | None = option(string(), None)
     units: str = option(string(), "")
