@@ -40,16 +40,11 @@ def reuse_freed_memory() -> bool:
     nothing. True if set."""
     if any(k.startswith("MALLOC_") or k == "GLIBC_TUNABLES" for k in os.environ):
         return False
-    from compose.heap import libc
+    from compose.heap import _mallopt
 
-    try:
-        mallopt = libc().mallopt
-    except AttributeError:      # no C library found, or not glibc
+    mallopt = _mallopt()        # the one typed handle compose.heap keeps
+    if mallopt is None:         # no C library found, or not glibc
         return False
-    import ctypes
-
-    mallopt.argtypes = [ctypes.c_int, ctypes.c_int]
-    mallopt.restype = ctypes.c_int
     return bool(mallopt(_M_MMAP_THRESHOLD, DRAFT_MMAP_BYTES)
                 and mallopt(_M_TRIM_THRESHOLD, DRAFT_TRIM_BYTES)
                 and mallopt(_M_ARENA_MAX, 1))
