@@ -36,6 +36,16 @@ def test_load_style_with_overrides(style_path):
     assert name not in [s.name for s in hidden.layers if s.enabled]
 
 
+def test_page_keys_can_be_overridden(style_path):
+    # the [page] table takes key paths like [map]: a title for one run, a page added from outside
+    plain = compose.load_style(style_path)
+    assert plain.page is None
+    paged = compose.load_style(style_path, overrides={"page.title": "Dry season", "page.paper": "A5"})
+    assert paged.page is not None and paged.page.title == "Dry season"
+    with pytest.raises(StyleError, match="page.panel"):
+        compose.load_style(style_path, overrides={"page.panel": "diagonal"})
+
+
 @pytest.mark.parametrize("key, value, words", [
     ("layer.nowhere.width", 1.0, 'no layer named "nowhere"'),
     ("pixel", 60, "key path starts with"),

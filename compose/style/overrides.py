@@ -1,7 +1,7 @@
 """Changes to a style from outside the file: key-path overrides (``--set KEY=VALUE`` on the
 command line, ``overrides={"map.pixel": 60}`` in :func:`compose.load_style`) and series variables.
 
-Keys are dotted paths into the merged style: ``map.title``, ``budget.ground.chroma``,
+Keys are dotted paths into the merged style: ``map.title``, ``page.title``, ``budget.ground.chroma``,
 ``ramp.NAME.domain``, ``layer.NAME.source``, ``layer.NAME.shade.azimuth`` (a layer name may itself
 contain dots or spaces: the longest layer name that fits is taken). The value is read as a TOML
 value (``[0, 10]``, ``true``, ``2.5``, ``"text"``) and, when it is not one, kept as plain text, so
@@ -26,7 +26,7 @@ from compose.errors import StyleError
 
 __all__ = ["Override", "parse_override", "apply_overrides", "series_members", "substitute"]
 
-_TABLES = ("map", "budget", "ramp", "layer", "series")
+_TABLES = ("map", "page", "budget", "ramp", "layer", "series")
 
 
 @dataclass(frozen=True, slots=True)
