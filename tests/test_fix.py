@@ -107,6 +107,15 @@ def test_compose_fix_without_write_only_shows_the_diff(tmp_path):
     assert sorted(p.name for p in POOR.parent.iterdir()) == before
 
 
+def test_compose_fix_into_a_folder_it_cannot_make_is_a_one_line_error(tmp_path):
+    # a --write path under a regular file: exit 2 naming the folder, nothing left beside it
+    (tmp_path / "a-file").write_text("x")
+    res = CliRunner().invoke(cli, ["fix", str(POOR), "--write", str(tmp_path / "a-file" / "f.toml")])
+    assert res.exit_code == 2, res.output
+    assert "cannot create output folder" in res.output and "Traceback" not in res.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a-file"]
+
+
 def test_fix_style_of_a_passing_style_changes_nothing():
     r = fix_style(STYLES / "cover.toml")
     assert not r.changed and r.after.passed and r.rounds == []

@@ -6,8 +6,6 @@ fails (the diff shows what helped), 2 on invalid input.
 """
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 
 import click
@@ -45,6 +43,7 @@ def command(style: Path, write_to: Path | None, full: bool, overwrite: bool) -> 
 
     from compose.errors import OutputError
     from compose.fix import fix_style, rebase_paths
+    from compose.output.atomic import atomic_path
 
     result = fix_style(style, draft=not full)
     text = result.text
@@ -72,14 +71,7 @@ def command(style: Path, write_to: Path | None, full: bool, overwrite: bool) -> 
     click.echo(f"\n{result.path.name}: {n} round(s) of fixes; the fixed style {verdict} "
                f"({res} check)")
     if write_to is not None:
-        fd, tmp = tempfile.mkstemp(prefix=f".{write_to.name}.", dir=write_to.resolve().parent)
-        try:
-            with os.fdopen(fd, "w", encoding="utf-8") as f:
-                f.write(text)
-            os.replace(tmp, write_to)
-        except BaseException:
-            if os.path.exists(tmp):
-                os.unlink(tmp)
-            raise
+        with atomic_path(write_to) as tmp:
+            tmp.write_text(text, encoding="utf-8")
         click.echo(f"written: {write_to}")
     raise SystemExit(0 if result.after.passed else 1)
