@@ -11,11 +11,13 @@ from click.testing import CliRunner
 from matplotlib.image import imread
 from pyproj import Transformer
 
+from compose.api import check
+from compose.check.stats import Statistics
 from compose.cli.main import cli
 from compose.engine import render_array
 from compose.style import load_style
 from compose.tiles.grid import parse_zooms, tile_bounds, tile_range, zoom_canvas
-from compose.tiles.render import WEB_DPI, extent_3857
+from compose.tiles.render import WEB_DPI, check_canvas, extent_3857
 from tests.output._tiny import tiny_style
 
 
@@ -104,3 +106,31 @@ def test_viewer_is_self_contained_and_report_written(pyramid):
     report = json.loads((out / "check.json").read_text())
     assert report["rules"]
     assert "check" in result.output
+
+
+def test_the_check_judges_only_what_the_tiles_show(pyramid):
+    # the tiles are transparent outside the style's extent: a layer covering the extent covers
+    # all that is judged, as on the map itself (the tile blocks reach well past the extent)
+    style, out, _ = pyramid
+    tiles = {x["name"]: x["coverage"] for x in json.loads((out / "check.json").read_text())["layers"]}
+    own = {x.name: x.coverage for x in check(style).layers}
+    assert set(tiles) == set(own)
+    for name, share in own.items():
+        assert tiles[name] == pytest.approx(share, abs=0.02), name
+    canvases = [check_canvas(style, z) for z in (13, 14, 15)]
+    own_bounds = style.canvas().bounds       # west and north kept, the size rounded up
+    assert canvases[0].crs == style.canvas().crs
+    assert (canvases[0].bounds[0], canvases[0].bounds[3]) == (own_bounds[0], own_bounds[3])
+    # one zoom deeper, tile pixels half the size (Web Mercator's scale at one latitude)
+    assert canvases[1].transform.a == pytest.approx(canvases[0].transform.a / 2, rel=1e-3)
+
+
+def test_statistics_of_several_canvases_add_up_their_sampled_pixels():
+    # the blended colours are summed on every 2nd row and column (compose.measure): 3 x 5 and
+    # 4 x 4 canvases sample 2 * 3 + 2 * 2 = 10 pixels of 31
+    a = Statistics(width=3, height=5, layers=[], background=(1.0, 1.0, 1.0))
+    b = Statistics(width=4, height=4, layers=[], background=(1.0, 1.0, 1.0))
+    assert (a.sampled_pixels, b.sampled_pixels) == (6, 4)
+    a.add_canvas(b)
+    assert (a.pixels, a.sampled_pixels) == (31, 10)
+    assert a.empty_like().sampled_pixels == 10

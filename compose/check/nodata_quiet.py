@@ -16,8 +16,6 @@ that is still >= ``budget.nodata.separation`` dE00 from the paper and from every
 """
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from compose.check.context import CheckContext, layer_key
@@ -47,7 +45,7 @@ class QuietNumbers:
 
 def _sampled_canvas(ctx: CheckContext) -> float:
     # the blended colours are summed on every 2nd row and column of the canvas's own grid
-    return float(math.ceil(ctx.stats.width / 2) * math.ceil(ctx.stats.height / 2))
+    return float(ctx.stats.sampled_pixels)
 
 
 def quiet_numbers(ctx: CheckContext, s, rgb8: np.ndarray) -> QuietNumbers | None:

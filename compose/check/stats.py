@@ -478,15 +478,35 @@ class Statistics:
     height: int
     layers: list[LayerStats]
     background: tuple[float, float, float]
+    #: canvas pixels on which the blended colours are summed (every 2nd row and column of the
+    #: canvas's own grid, :mod:`compose.measure`); -1: worked out from width and height. Set when
+    #: statistics of several canvases are added up (:meth:`add_canvas`).
+    sampled: int = -1
 
     @property
     def pixels(self) -> int:
         return self.width * self.height
 
+    @property
+    def sampled_pixels(self) -> int:
+        """Pixels of the canvas the blended colours were summed on (see :attr:`sampled`)."""
+        if self.sampled >= 0:
+            return self.sampled
+        return -(-self.width // 2) * -(-self.height // 2)
+
     def empty_like(self) -> Statistics:
         """The same render with nothing measured yet (a window's statistics start from this)."""
         return Statistics(width=self.width, height=self.height, background=self.background,
-                          layers=[s.empty_like() for s in self.layers])
+                          layers=[s.empty_like() for s in self.layers], sampled=self.sampled)
+
+    def add_canvas(self, other: Statistics) -> Statistics:
+        """Add the statistics of the same layers on another canvas (e.g. another zoom of a tile
+        set): histograms add up like windows', and so do the canvas's pixels and sampled pixels
+        (the result is a canvas of ``pixels`` x 1). Returns self."""
+        pixels, sampled = self.pixels + other.pixels, self.sampled_pixels + other.sampled_pixels
+        self.merge(other)
+        self.width, self.height, self.sampled = pixels, 1, sampled
+        return self
 
     def merge(self, other: Statistics) -> Statistics:
         """Add ``other`` (statistics of more windows of the same render) to this; returns self.

@@ -4,7 +4,10 @@ Each zoom gets its own canvas in EPSG:3857 at that zoom's resolution (relief is 
 drawn and labels placed at that resolution, never shrunk from a deeper zoom); the engine walks it
 in windows of exactly one tile, and :class:`TileSink` cuts each band of rows into tiles. Tiles
 that do not meet the style's extent are not written; pixels outside the extent are transparent.
-The statistics of every zoom's walk merge into one check report for the whole set.
+The check judges what the tiles show: for each zoom, the style's own extent in its own CRS at
+that zoom's ground resolution and the tiles' dpi (:func:`check_canvas`; pixels outside the
+extent are transparent in the tiles and are not judged), and the statistics of every zoom add up
+to one check report for the whole set.
 """
 from __future__ import annotations
 
@@ -15,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from compose.tiles.grid import CRS, TILE, tile_range, zoom_canvas
+from compose.tiles.grid import CRS, TILE, tile_range, tile_span, zoom_canvas
 
 __all__ = ["TileSink", "TileResult", "render_tiles", "extent_3857", "WEB_DPI"]
 
@@ -37,6 +40,28 @@ def extent_3857(style):
     tr = Transformer.from_crs(style.canvas().crs, CRS, always_xy=True)
     mx, my = tr.transform(xs, ys)
     return shapely.Polygon(np.column_stack([mx, my]))
+
+
+def check_canvas(style, z: int, dpi: float = 0.0):
+    """The canvas the check of zoom ``z`` walks: the style's own extent and CRS, its pixel the
+    ground size of a tile pixel at the extent's centre (Web Mercator's scale there, as the
+    tiles' map shows it), at most the extent's shorter side; the tiles' ``dpi``."""
+    from pyproj import Transformer
+
+    from compose.canvas import Canvas
+
+    own = style.canvas()
+    west, south, east, north = own.bounds
+    cx, cy = (west + east) / 2, (south + north) / 2
+    to_web = Transformer.from_crs(own.crs, CRS, always_xy=True)
+    back = Transformer.from_crs(CRS, own.crs, always_xy=True)
+    mx, my = to_web.transform(cx, cy)
+    px = tile_span(z) / TILE
+    xs, ys = back.transform([mx, mx + px, mx], [my, my, my + px])
+    # the area of one tile pixel in the map's units, as a square's side
+    side = abs((xs[1] - xs[0]) * (ys[2] - ys[0]) - (xs[2] - xs[0]) * (ys[1] - ys[0])) ** 0.5
+    side = min(side, east - west, north - south)
+    return Canvas.from_extent(own.crs, (west, south, east, north), side, dpi=dpi or WEB_DPI)
 
 
 class TileSink:
@@ -113,17 +138,18 @@ def render_tiles(style, out: Path, zooms: list[int], *, dpi: float = WEB_DPI,
         ramps = run_.ramps
         try:
             sink = TileSink(out, z, tiles, canvas, footprint)
-            stats = run(run_, [sink], window=TILE, progress=progress)
+            run(run_, [sink], window=TILE, progress=progress, measure=False)
         finally:
             run_.close()
         counts[z] = len(sink.written)
         present[z] = [f"{x}/{y}" for _, x, y in sink.written]
-        if merged is None:
-            merged = stats
-        else:     # the same layers at another zoom: add up, the pixel count too
-            total = merged.pixels + stats.pixels
-            merged.merge(stats)
-            merged.width, merged.height = total, 1
+        checked = prepare(style, ramps=ramps, canvas=check_canvas(style, z, dpi))
+        try:
+            stats = run(checked, [])
+        finally:
+            checked.close()
+        if stats is not None:       # the same layers at another zoom: added up, canvases too
+            merged = stats if merged is None else merged.add_canvas(stats)
     report = check_style(style, merged, ramps) if merged is not None else None
     if report is not None:
         with atomic_path(out / "check.json") as tmp:
