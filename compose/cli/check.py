@@ -102,6 +102,9 @@ def explain(rule: str) -> str:
 @click.option("--json", "as_json", is_flag=True,
               help="Print the report as JSON (the same object render writes as NAME.check.json).")
 @click.option("--strict", is_flag=True, help="Warnings fail too (exit 1).")
+@click.option("--set", "sets", multiple=True, metavar="KEY=VALUE",
+              help="Override a style key for this check, validated like the file (as in "
+                   "`compose render`): layer.NAME.width=0.9, ramp.NAME.domain=[0,10]. Repeatable.")
 @click.option("--draft", is_flag=True,
               help="Check a reduced canvas of the same extent (longer side at most 384 px, same "
                    "dpi; rasters read decimated, or large files without overviews from an even "
@@ -125,8 +128,8 @@ def explain(rule: str) -> str:
 @click.option("--explain", "explain_rule", metavar="RULE", help="Print one rule of --rules.")
 @limit_options
 @handle_errors
-def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cache: bool,
-            cache_dir: Path | None, clear_cache: bool, workers: int | None, list_rules: bool,
+def command(style: Path | None, as_json: bool, strict: bool, sets: tuple[str, ...], draft: bool,
+            no_cache: bool, cache_dir: Path | None, clear_cache: bool, workers: int | None, list_rules: bool,
             explain_rule: str | None) -> None:
     """Check the visual hierarchy of STYLE: budgets, contrast, ramps, classes, grey order.
 
@@ -149,6 +152,11 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cac
     if style is None:
         raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")
     cache = False if no_cache else cache_dir
+    overrides = ()
+    if sets:
+        from compose.style.overrides import parse_override
+
+        overrides = tuple(parse_override(s) for s in sets)
     checked: Any = style
     drop: Any = None
     try:
@@ -165,7 +173,11 @@ def command(style: Path | None, as_json: bool, strict: bool, draft: bool, no_cac
             from compose.layers.early_marks import drop_early, start_early
 
             drop = drop_early
-            checked = start_early(style, cache)
+            checked = start_early(style, cache, overrides)
+        elif overrides:
+            from compose.style import load_style
+
+            checked = load_style(style, overrides=overrides)
         from compose.api import check
         from compose.cli.render import progress_bar
 

@@ -489,15 +489,17 @@ def _worth_drawing_ahead(specs) -> list:
     return specs if specs and _source_bytes(specs) >= MIN_BYTES else []
 
 
-def start_early(path, cache) -> Any:
+def start_early(path, cache, overrides=()) -> Any:
     """``compose check --draft``: the style at ``path`` loaded (its errors raised as the check
     raises them) and, when its marks are drawn ahead (:meth:`MarksAhead.start`), their process
     forked now, before the checker's modules are imported; the check (:func:`compose.api.check`
     given the returned style) takes it. ``cache``: the check's cache option (False: none);
-    layers the cache holds are not drawn ahead. Call :func:`drop_early` when the check is over."""
+    layers the cache holds are not drawn ahead. ``overrides``: ``--set`` key paths
+    (:func:`compose.style.overrides.parse_override`). Call :func:`drop_early` when the check is
+    over."""
     from compose.style import load_style
 
-    style = load_style(path)
+    style = load_style(path, overrides=overrides or None)
     from compose.forking import can_fork
 
     if not can_fork():

@@ -35,6 +35,25 @@ def test_check_json_and_exit_1_on_failure(tmp_path):
     assert any(r["rule"] == "overlay-contrast" and not r["passed"] for r in obj["rules"])
 
 
+def test_set_overrides_a_key_for_one_check_full_and_draft(tmp_path):
+    # the same --set as compose render: a pale stroke fails its contrast (WCAG 2 1.4.11), the
+    # file passes as written; a key the style does not have is exit 2 in one line
+    data = make_data(tmp_path / "src")
+    path = write_style(tmp_path, style([relief(data["hills"]), lines(data["coast"],
+                                                                    stroke="#303030", width=1.5)]))
+    assert _run(["check", str(path), "--no-cache"]).exit_code == 0
+    for extra in ([], ["--draft"]):
+        res = _run(["check", str(path), "--no-cache", "--json", "--set",
+                    'layer.coast.stroke="#c8c8c8"', *extra])
+        assert res.exit_code == 1, res.output
+        obj = json.loads(res.stdout)
+        assert any(r["rule"] == "overlay-contrast" and not r["passed"] for r in obj["rules"])
+    bad = _run(["check", str(path), "--set", "layer.coast.colour=red"])
+    assert bad.exit_code == 2
+    assert "layer \"coast\"" in bad.output and "colour" in bad.output
+    assert "Traceback" not in bad.output
+
+
 def test_check_invalid_style_exits_2_with_one_line(tmp_path):
     bad = tmp_path / "bad.toml"
     bad.write_text("[map]\ncrs = 'EPSG:32631'\n", encoding="utf-8")
