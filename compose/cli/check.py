@@ -152,11 +152,9 @@ def command(style: Path | None, as_json: bool, strict: bool, sets: tuple[str, ..
     if style is None:
         raise click.UsageError("give a STYLE to check (or --rules / --explain RULE)")
     cache = False if no_cache else cache_dir
-    overrides = ()
-    if sets:
-        from compose.style.overrides import parse_override
+    from compose.style.overrides import parse_override
 
-        overrides = tuple(parse_override(s) for s in sets)
+    overrides = tuple(parse_override(s) for s in sets)
     checked: Any = style
     drop: Any = None
     try:
