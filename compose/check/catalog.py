@@ -80,6 +80,9 @@ _RULES = [
        "what lies beneath reaches budget.overlay.label_contrast (4.5:1)", ">=", "share",
        "overlay.share", "WCAG 2.1 SC 1.4.3 contrast (minimum) 4.5:1; the 95 % share is "
        + NO_SOURCE),
+    _r("label-size", "a labels layer's text size as printed at the map's dpi", ">=", "pt",
+       "overlay.text_size", NO_SOURCE + " (6 pt, the usual floor for type on printed maps, is "
+       "from memory)", measured="the style"),
     _r("overlay-size", "share of thin-stroke pixels that differ noticeably from what lies beneath "
        "at their size and the viewing distance (only when budget.overlay.viewing_distance > 0)",
        ">=", "share", "overlay.share",

@@ -56,6 +56,7 @@ from compose.check.ramp_rules import (
 )
 from compose.check.relief_shift import relief_shift
 from compose.check.report import RuleResult
+from compose.check.text_size import label_size
 
 __all__ = ["Rule", "RULES", "run_rules", "describe"]
 
@@ -71,6 +72,7 @@ RULES: dict[str, Rule] = {
     "theme-chroma-min": theme_chroma_min,
     "overlay-contrast": overlay_contrast,
     "label-contrast": label_contrast,
+    "label-size": label_size,
     "overlay-size": overlay_size,
     "twin-lightness": twin_lightness,
     "twin-chroma": twin_chroma,

@@ -162,12 +162,14 @@ class ThemeBudget:
 @dataclass(frozen=True, slots=True, kw_only=True)
 class OverlayBudget:
     """WCAG 2 contrast ratios (1-21) for marks and labels, the ``share`` (0-1] of an overlay's
-    pixels that must reach them, and the viewing distance in mm (0: size-aware test off)."""
+    pixels that must reach them, the viewing distance in mm (0: size-aware test off) and the
+    smallest label text size in points (common practice, no source)."""
 
     contrast: float = option(number(ge=1, le=21), 3.0)           # WCAG 2.1 SC 1.4.11
     label_contrast: float = option(number(ge=1, le=21), 4.5)     # WCAG 2.1 SC 1.4.3
     share: float = option(number(gt=0, le=1), 0.95)
     viewing_distance: float = option(number(ge=0), 0.0)
+    text_size: float = option(number(gt=0, le=72), 6.0)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
