@@ -176,7 +176,8 @@ class RasterSource:
         # what the reads ask of the file, looked up once (GDAL calls, not from other threads)
         self._meta = {"crs": ds.crs, "nodata": ds.nodatavals[self.band - 1],
                       "dtype": ds.dtypes[self.band - 1], "transform": ds.transform,
-                      "flags": {f.name for f in ds.mask_flag_enums[self.band - 1]}}
+                      "flags": {f.name for f in ds.mask_flag_enums[self.band - 1]},
+                      "shape": (ds.height, ds.width)}
         # GDAL datasets are not shared between threads: other threads read through handles
         # of their own, opened on first use (window tasks on threads, compose.parallel)
         self._owner = threading.get_ident()
@@ -618,7 +619,8 @@ class RasterSource:
         grid, inv, scale = setup
         row0, col0, height, width = window.padded
         return sample_grid(self._read_cells, grid, inv, row0, col0, height, width, resampling,
-                           scale, reduce=self._read_reduced if self.decimate else None)
+                           scale, reduce=self._read_reduced if self.decimate else None,
+                           cells=self._meta["shape"])
 
     def _grid_region(self, canvas: Canvas, window: Window, resampling: str) -> Region | None:
         """The source cells (row, col, height, width; may reach outside) a read of ``window``

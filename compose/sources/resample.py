@@ -58,27 +58,50 @@ def _axis_taps(x: np.ndarray, support: float, widen: float):
     return first, n, reach
 
 
-def _reduce(read: Reader, r0: int, c0: int, h: int, w: int, fy: int, fx: int) -> np.ndarray:
-    """Block means (over valid cells) of fy x fx source cells: reduced cells r0.., c0.."""
-    block = read(r0 * fy, c0 * fx, h * fy, w * fx).reshape(h, fy, w, fx)
-    valid = np.isfinite(block)
-    total = np.where(valid, block, np.float32(0)).sum(axis=(1, 3), dtype=np.float64)
-    count = valid.sum(axis=(1, 3))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(count > 0, total / count, np.nan).astype(np.float32)
+#: Source cells one strip of a block-mean reduction reads at once (64 MB of float32).
+_REDUCE_CELLS = 1 << 24
+
+
+def _reduce(read: Reader, r0: int, c0: int, h: int, w: int, fy: int, fx: int,
+            cells: tuple[int, int] | None = None) -> np.ndarray:
+    """Block means (over valid cells) of fy x fx source cells: reduced cells r0.., c0..
+    ``cells``: the source's (height, width), when known: blocks wholly outside it are no data
+    without being read. Read in strips of whole block rows (at most about
+    :data:`_REDUCE_CELLS` cells each, one block row at the least), so memory stays bounded
+    however far the shrink; each block's mean is the same as from one read."""
+    out = np.full((h, w), np.nan, np.float32)
+    rr0, rr1, cc0, cc1 = r0, r0 + h, c0, c0 + w
+    if cells is not None:
+        rr0, rr1 = max(rr0, 0), min(rr1, -(-int(cells[0]) // fy))
+        cc0, cc1 = max(cc0, 0), min(cc1, -(-int(cells[1]) // fx))
+    if rr1 <= rr0 or cc1 <= cc0:
+        return out
+    n = cc1 - cc0
+    step = max(1, _REDUCE_CELLS // (n * fx * fy))
+    for a in range(rr0, rr1, step):
+        b = min(a + step, rr1)
+        block = read(a * fy, cc0 * fx, (b - a) * fy, n * fx).reshape(b - a, fy, n, fx)
+        valid = np.isfinite(block)
+        total = np.where(valid, block, np.float32(0)).sum(axis=(1, 3), dtype=np.float64)
+        count = valid.sum(axis=(1, 3))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out[a - r0:b - r0, cc0 - c0:cc1 - c0] = np.where(count > 0, total / count, np.nan)
+    return out
 
 
 def sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
            shrink: tuple[float, float] = (1.0, 1.0),
-           reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None
-           ) -> np.ndarray:
+           reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None,
+           cells: tuple[int, int] | None = None) -> np.ndarray:
     """Values at positions (u, v) (float64 (h, w) each): float32 (h, w), NaN = no data.
 
     method: 'nearest', 'bilinear' or 'cubic' ('average' is bilinear after block averaging);
     shrink: source cells per output pixel along (x, y), from the canvas's scale point;
     reduce(r0, c0, h, w, fy, fx): the block means of fy x fx source cells, reduced cells r0..,
     c0.. (default: read the cells and average them here); a reader of decimated blocks (GDAL's
-    averaging read, overviews) is faster where exact means are not needed (the draft check).
+    averaging read, overviews) is faster where exact means are not needed (the draft check);
+    cells: the source's (height, width) in cells, when known (the default reduction then reads
+    nothing outside it).
     """
     # kernels widen with the shrink, except within _SNAP of 1 (a grid in a neighbouring
     # projection shrinks by ~1e-3; widening by that changes nothing visible and costs 4x)
@@ -92,7 +115,7 @@ def sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
         r0, c0 = int(rmin), int(cmin)
         h, w = int(rmax - rmin), int(cmax - cmin)
         reduced = (reduce(r0, c0, h, w, fy, fx) if reduce is not None
-                   else _reduce(read, r0, c0, h, w, fy, fx))
+                   else _reduce(read, r0, c0, h, w, fy, fx, cells))
 
         def read_reduced(rr, cc, hh, ww):
             return cut_block(reduced, rr - r0, cc - c0, hh, ww)
@@ -105,8 +128,8 @@ def sample(read: Reader, u: np.ndarray, v: np.ndarray, method: str,
 
 def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
                    shrink: tuple[float, float] = (1.0, 1.0),
-                   reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None
-                   ) -> np.ndarray:
+                   reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None,
+                   cells: tuple[int, int] | None = None) -> np.ndarray:
     """:func:`sample` at cell-centre coordinates (``x``, ``y`` = u - 0.5, v - 0.5: cell i's
     centre at i), e.g. from :meth:`compose.sources.grid.TransformGrid.cell_centres`. Plain
     bilinear reads (no widening) take a path of few passes: 4 gathers from offset views of the
@@ -115,7 +138,7 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
     span, then taps, lerps and the no-data renormalisation per position; the same bits)."""
     sx, sy = (1.0 if float(v) <= _SNAP else float(v) for v in shrink)
     if method != "bilinear" or (sx, sy) != (1.0, 1.0):
-        return sample(read, x + 0.5, y + 0.5, method, shrink, reduce)
+        return sample(read, x + 0.5, y + 0.5, method, shrink, reduce, cells)
     k = kernels.get()
     if k is not None:
         return _bilinear_compiled(k, read, x, y)
@@ -139,26 +162,26 @@ def sample_centres(read: Reader, x: np.ndarray, y: np.ndarray, method: str,
 
 def sample_grid(read: Reader, grid, inverse, row0: int, col0: int, height: int, width: int,
                 method: str, shrink: tuple[float, float] = (1.0, 1.0),
-                reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None
-                ) -> np.ndarray:
+                reduce: Callable[[int, int, int, int, int, int], np.ndarray] | None = None,
+                cells: tuple[int, int] | None = None) -> np.ndarray:
     """:func:`sample_centres` at the positions of a window's pixel centres in a source's cells
     from a transform grid (``grid``: :class:`compose.sources.grid.TransformGrid`, ``inverse``:
     the source's CRS -> pixel affine; the window: rows row0.., cols col0..): float32 (height,
     width). A plain bilinear read with :mod:`compose.kernels` built makes the positions on the
     fly in two compiled passes without the GIL (their span, then the read; no arrays of
     positions); otherwise :meth:`~compose.sources.grid.TransformGrid.cell_centres` gives them.
-    The same values either way."""
+    The same values either way. ``cells``: the source's (height, width), see :func:`sample`."""
     region = grid_region(grid, inverse, row0, col0, height, width, method, shrink)
     k = kernels.get()
     if region is None or k is None:
         x, y = grid.cell_centres(inverse, row0, col0, height, width)
-        return sample_centres(read, x, y, method, shrink, reduce)
+        return sample_centres(read, x, y, method, shrink, reduce, cells)
     r0, c0, bh, bw = region
     nx, ny = grid.cell_nodes(inverse)
     uoff, voff = grid.offsets(row0, col0)
-    cells = np.ascontiguousarray(read(r0, c0, bh, bw), np.float32)
+    block = np.ascontiguousarray(read(r0, c0, bh, bw), np.float32)
     out = np.empty((height, width), np.float32)
-    k.grid_bilinear(nx, ny, uoff, voff, float(grid.step), cells, r0, c0, out)
+    k.grid_bilinear(nx, ny, uoff, voff, float(grid.step), block, r0, c0, out)
     return out
 
 

@@ -205,6 +205,43 @@ def test_shrink_over_2x_averages_instead_of_aliasing(tmp_path):
     assert set(np.unique(got["mode"])) <= {0.0, 1.0}             # so does 'mode'
 
 
+def test_a_far_shrink_reads_only_the_source_and_in_strips(tmp_path):
+    # 3 canvas pixels of 8 km over a 20 km source of 100 m cells (shrink ~80): block means are
+    # taken of the source's own cells only (before, the 7 spare reduced cells around the window
+    # were read too: 80 x 80 cells each, a 1 x 1 canvas of a 30 m DEM at 45 km asked GBs), in
+    # strips of at most _REDUCE_CELLS cells (one block row at the least), with the same values
+    from compose.sources import resample
+
+    path = _checkerboard(tmp_path)
+    canvas = canvas_around(490_000, 5_550_000, UTM31, LAEA, 8000.0, 3, 3)
+    results = []
+    for limit in (resample._REDUCE_CELLS, 1):
+        with RasterSource(path, layer="board") as src:
+            asked = []
+            read = src._read_cells
+
+            def spy(r, c, h, w, read=read, asked=asked):
+                asked.append((r, c, h, w))
+                return read(r, c, h, w)
+
+            src._read_cells = spy
+            old, resample._REDUCE_CELLS = resample._REDUCE_CELLS, limit
+            try:
+                got = src.read_window(canvas, canvas.whole(), "bilinear")
+            finally:
+                resample._REDUCE_CELLS = old
+        assert asked
+        for r, c, h, w in asked:     # whole blocks of the source's cells, no more
+            assert r >= 0 and c >= 0 and r < N_CELLS and c < N_CELLS
+            assert h <= N_CELLS + 80 and w <= N_CELLS + 80
+        if limit == 1:
+            assert len(asked) > 1 and max(h for _, _, h, _ in asked) <= 80
+        results.append(got)
+        inside = np.isfinite(got)
+        assert inside.any() and np.all(np.abs(got[inside] - 0.5) < 0.05)   # the board's mean
+    np.testing.assert_array_equal(results[0], results[1])
+
+
 def test_shrink_under_2x_keeps_bilinear(tmp_path):
     path = _checkerboard(tmp_path)
     canvas = canvas_around(490_000, 5_550_000, UTM31, LAEA, 150.0, 60, 60)
