@@ -97,6 +97,14 @@ def _bands(page, title: str) -> tuple[float, float]:
     return top, bottom
 
 
+def _fits(kind: str, text: str, width_mm: float) -> bool:
+    """Whether the one line ``text`` of band piece ``kind`` fits ``width_mm`` at full size."""
+    from compose.layers.label_text import text_width
+
+    size, weight = BAND_TEXT[kind]
+    return text_width(text, size, "DejaVu Sans", weight) * PT_MM <= width_mm
+
+
 def band_scale(kind: str, text: str, width_mm: float, key: str) -> float:
     """The fraction of its size at which the one line ``text`` of band piece ``kind`` fits
     ``width_mm``: 1.0 when it fits as it is, else smaller down to :data:`MIN_TEXT_PT`; a line
@@ -179,14 +187,31 @@ def panel_side(style, base=None) -> str:
     return "right" if best is None else best[1]
 
 
+def frame_offset(style, side: str, room: Box, frame: tuple[float, float]) -> tuple[float, float]:
+    """How far (dx, dy) mm the map frame moves from the room's top-left corner so the free room
+    is shared out evenly instead of left on the right and at the bottom (common practice, no
+    source: a map centred in its sheet): across, by half the width the frame leaves free (the
+    side panel moves with it, so frame and panel together sit in the middle of the margins;
+    a bottom panel spans the margins whatever the frame's width); down, by half the height it
+    leaves free when the panel is beside it or there is none (a bottom panel grows into the
+    room under a short frame instead)."""
+    _, _, rw, rh = room
+    dx = max(0.0, rw - frame[0]) / 2
+    below = side == "bottom" and _uses_panel(style.page, True)
+    dy = 0.0 if below else max(0.0, rh - frame[1]) / 2
+    return dx, dy
+
+
 def style_canvas(style, base=None):
     """The canvas and frame box of ``style``'s page (used by ``Style.canvas``). ``base``: the
     canvas ``[map]`` alone gives (default :func:`compose.style.grid.plan_canvas`'s): its CRS,
     extent, pixel and dpi are what the page starts from."""
     grid = _grid_of(style, base)
-    room, _, _ = page_room(style, panel_side(style, base))
+    side = panel_side(style, base)
+    room, _, _ = page_room(style, side)
     canvas, frame = page_canvas(grid, style.page.frame, room[2:], style.page.scale)
-    return canvas, (room[0], room[1], frame[0], frame[1])
+    dx, dy = frame_offset(style, side, room, frame)
+    return canvas, (room[0] + dx, room[1] + dy, frame[0], frame[1])
 
 
 def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLayout:
@@ -200,26 +225,30 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
     canvas, frame = style_canvas(style)
     fx, fy, fw, fh = frame
     pieces: list[Piece] = []
+    # the band lines start where the map (with its panel beside it) starts, when they fit from
+    # there at full size; else all of them at the margin as before
+    shift = 0.0 if side == "bottom" and _uses_panel(page, True) else fx - rx
+    lines = [("title", title, "page.title" if page.title is not None else "map.title"),
+             ("subtitle", page.subtitle, "page.subtitle"), ("credits", page.credits,
+             "page.credits"), ("caution", page.caution, "page.caution")]
+    full = W - left - r
+    if shift and not all(_fits(kind, text, full - shift) for kind, text, _ in lines if text):
+        shift = 0.0
+    x, width = left + shift, full - shift
     y = t
-    width = W - left - r
-    title_key = "page.title" if page.title is not None else "map.title"
-    if title:
-        pieces.append(Piece("title", (left, y, width, TITLE_PT * LINE * PT_MM),
-                            scale=band_scale("title", title, width, title_key)))
-        y += TITLE_PT * LINE * PT_MM
-    if page.subtitle:
-        pieces.append(Piece("subtitle", (left, y, width, SUBTITLE_PT * LINE * PT_MM),
-                            scale=band_scale("subtitle", page.subtitle, width, "page.subtitle")))
-    y = H - b - bottom
-    for kind in ("credits", "caution"):
-        text = getattr(page, kind)
+    for kind, text, key in lines:
+        if kind == "credits":
+            y = H - b - bottom
         if text:
-            pieces.append(Piece(kind, (left, y, width, NOTE_PT * LINE * PT_MM),
-                                scale=band_scale(kind, text, width, f"page.{kind}")))
-            y += NOTE_PT * LINE * PT_MM
+            size = BAND_TEXT[kind][0] * LINE * PT_MM
+            pieces.append(Piece(kind, (x, y, width, size),
+                                scale=band_scale(kind, text, width, key)))
+            y += size
     grid = GRID_ROOM if page.grid is not None else 0.0
     if side == "right":
         px = fx + fw + grid + GAP
+    elif side == "left":
+        px = fx - grid - GAP - PANEL_WIDTH
     else:
         px = left
     panel_top, panel_bottom = fy - grid, fy + fh + grid

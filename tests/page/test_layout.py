@@ -76,3 +76,80 @@ def test_a_stated_panel_side_is_kept(tmp_path, side):
     style = _style(tmp_path, "landscape", f'panel = "{side}"')
     assert panel_side(style) == side
     _inside_and_apart(page_layout(style, LEGEND))
+
+
+def _block(layout, grid=0.0):
+    """The box (x0, y0, x1, y1) mm of the map frame with its grid labels' room and the panel's
+    pieces (everything but the band lines and the pieces inside the frame)."""
+    fx, fy, fw, fh = layout.frame
+    boxes = [(fx - grid, fy - grid, fw + 2 * grid, fh + 2 * grid)]
+    boxes += [p.box for p in layout.pieces
+              if not p.inside and p.kind not in ("title", "subtitle", "credits", "caution")]
+    return (min(b[0] for b in boxes), min(b[1] for b in boxes),
+            max(b[0] + b[2] for b in boxes), max(b[1] + b[3] for b in boxes))
+
+
+def _centred(style, layout, side, grid=0.0):
+    """The free room around the map frame shared evenly: across the margins (a side panel
+    moving with the frame: frame and panel together in the middle; a bottom panel spans the
+    margins, the frame is centred over it), and down between the bands for a side panel (a
+    bottom panel takes the room under the frame)."""
+    from compose.page.layout import page_room
+
+    W, H = layout.size
+    t, r, b, left = style.page.margin
+    (rx, ry, rw, rh), _, _ = page_room(style, side)
+    fx, fy, fw, fh = layout.frame
+    if side == "bottom":
+        assert fx + fw / 2 == pytest.approx((left + W - r) / 2, abs=0.01)
+        assert fy == pytest.approx(ry, abs=0.01)
+        return
+    x0, y0, x1, y1 = _block(layout, grid)
+    assert x0 - left == pytest.approx(W - r - x1, abs=0.01)            # as much room each side
+    assert fy - ry == pytest.approx(ry + rh - fy - fh, abs=0.01)       # above as below
+    # the band lines start where the map and its panel start (they fit from there)
+    assert layout.piece("title").box[0] == pytest.approx(x0, abs=0.01)
+
+
+@pytest.mark.parametrize("orientation", ["portrait", "landscape"])
+@pytest.mark.parametrize("panel", ["auto", "right", "left", "bottom"])
+def test_every_paper_centres_the_map_in_its_margins(tmp_path, orientation, panel):
+    """On every paper the page offers (ISO 216 A0-A8, B0-B8, ANSI letter and legal), in both
+    orientations and with the panel on every side, the map frame and its panel share the free
+    room evenly on both sides. Before, they were packed to the top-left corner: on A4 landscape
+    (the demo's pages) the 35 mm left free across all sat right of the panel."""
+    from compose.errors import StyleError
+    from compose.page.spec import PAPER_SIZES
+
+    path = tiny_style(tmp_path, extra=False)
+    text = path.read_text()
+    laid = 0
+    for paper in PAPER_SIZES:
+        page = PAGE.format(orientation=orientation, more=f'panel = "{panel}"')
+        path.write_text(text + textwrap.dedent(page).replace('"A4"', f'"{paper}"'))
+        try:
+            style = load_style(path)
+            layout = page_layout(style, LEGEND)
+        except StyleError:          # the smallest sheets leave no room for a map
+            continue
+        laid += 1
+        _centred(style, layout, panel_side(style))
+        _inside_and_apart(layout)
+    assert laid >= 14               # A0-A6, B0-B6 (and letter, legal): not a vacuous loop
+
+
+@pytest.mark.parametrize("extent", ["wide", "tall"])
+@pytest.mark.parametrize("orientation", ["portrait", "landscape"])
+@pytest.mark.parametrize("more", ['panel = "right"', 'panel = "left"', 'panel = "bottom"',
+                                  'legend = "off"\nnorth = "top right"\nscalebar = "bottom left"',
+                                  'scale = 20000', 'grid = { step = 500 }'])
+def test_a_map_of_any_shape_sits_centred(tmp_path, extent, orientation, more):
+    """A map three times wider than tall, or taller than wide, leaves room above and below, or
+    to the sides; with a print scale (1:20 000, the 1.9 km map 96 mm wide) it leaves room both
+    ways; furniture inside the frame, or none beside it, centres the frame alone."""
+    box = {"wide": [500000, 4001280, 501920, 4001920], "tall": [500000, 4000000, 500640, 4001920]}
+    style = _style(tmp_path, orientation, more)
+    style = load_style(style.path, overrides={"map.extent": box[extent]})
+    layout = page_layout(style, LEGEND)
+    _centred(style, layout, panel_side(style), 5.0 if "grid" in more else 0.0)
+    _inside_and_apart(layout)
