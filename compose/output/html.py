@@ -33,7 +33,8 @@ from compose.output.html_images import (
     png_uri,
 )
 
-__all__ = ["write_html", "page_html", "html_path", "sorted_results", "ramps_section"]
+__all__ = ["write_html", "page_html", "html_path", "sorted_results", "ramps_section",
+           "shown_path", "legend_width"]
 
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
 PROOF_TITLES = {"map": "Map as drawn", "gray": "Grey (same CIELAB L*)",
@@ -64,6 +65,33 @@ class _Made:
 
     def result(self) -> str:
         return self.uri
+
+
+def shown_path(path, folder: Path | None) -> str:
+    """How the review page names the file ``path`` (the style): relative to ``folder`` (the
+    page's own folder, '/' between names) when the file lies inside it, else its name alone, so
+    the page, which is made to be passed on, tells nothing of the folders around the output
+    folder (no home folder, no user name)."""
+    real = Path(path).resolve()
+    if folder is not None:
+        try:
+            return real.relative_to(Path(folder).resolve()).as_posix()
+        except ValueError:                  # not inside the page's folder
+            pass
+    return real.name
+
+
+def legend_width(png: bytes) -> int:
+    """The CSS width (px) of the legend image ``png`` (a PNG of
+    :data:`compose.output.legend_layout.DPI` pixels per inch) at which its label type
+    (:data:`~compose.output.legend_layout.FONT` points) shows at the page's body text size
+    (:data:`compose.output.html_css.BODY_PX`): 486 px for the 720 px legend at 200 dpi. It
+    showed at half its pixels (360 px), its 8 pt labels 11 px tall beside 15 px text."""
+    from compose.output.html_css import BODY_PX
+    from compose.output.legend_layout import DPI, FONT
+
+    width = int.from_bytes(png[16:20], "big")          # the IHDR chunk's width (PNG, 11.2.2)
+    return round(width / DPI * 72.0 / FONT * BODY_PX)
 
 
 def html_path(style, out_dir: Path) -> Path:
@@ -352,10 +380,16 @@ def ground_unit(crs) -> str:
     return " m" if float(factor) == 1.0 else f" {name}"
 
 
+def _style_shown(style, result) -> str:
+    """The style's path as the page shows it: :func:`shown_path` from the page's folder."""
+    page = (result.outputs or {}).get("html")
+    return shown_path(style.path, Path(page).parent if page is not None else None)
+
+
 def _facts(style, result) -> str:
     plan = style.canvas_plan()      # the grid as drawn (like, width, extent_crs resolved)
     grid = plan.canvas
-    rows = [("style", str(style.path)), ("canvas", f"{result.width} × {result.height} px"),
+    rows = [("style", _style_shown(style, result)), ("canvas", f"{result.width} × {result.height} px"),
             ("CRS", grid.crs), ("extent", ", ".join(f"{v:.10g}" for v in grid.bounds)
                                 + f"  (W, S, E, N; {ground_unit(grid.crs).strip()})"),
             ("pixel", f"{grid.pixel:g}{ground_unit(grid.crs)}"),
@@ -410,6 +444,10 @@ def _page_html(style, result, small) -> str:
     previews = [(specs[name], alone, stack) for name, alone, stack in pictures.layers]
     legend_img = (f'<img src="{png_uri(pictures.legend)}" alt="legend">' if pictures.legend
                   else '<p class="note">No legend was drawn.</p>')
+    # the legend's column as wide as shows its type at the body's size (a custom property the
+    # style sheet reads: the column, and the figure's width in one column)
+    legend_css = (f' style="--legend: {legend_width(pictures.legend)}px"' if pictures.legend
+                  else "")
     ramps_html = pictures.ramps if pictures.ramps is not None else ramps_section(style, ramps)
     preview = pictures.map
     proofs = pictures.proofs
@@ -429,7 +467,7 @@ def _page_html(style, result, small) -> str:
 </header>
 <nav>{nav}</nav>
 <section id="map"><h2>Map and legend</h2>
-<div class="map-grid"><figure><img class="map" src="{_jpeg(preview)}" alt="the map"{pixelated}>
+<div class="map-grid"{legend_css}><figure><img class="map" src="{_jpeg(preview)}" alt="the map"{pixelated}>
 <figcaption>The map as written{'' if preview.shape[1] >= result.width else
 f', box-averaged to {preview.shape[1]} × {preview.shape[0]} px'}.</figcaption></figure>
 <figure class="legend">{legend_img}<figcaption>Legend ({esc(style.name)}.legend.png)
@@ -443,7 +481,7 @@ lowest first), and where its pixels fall against its budget. Previews at
 {previews[0][1].shape[1] if previews else 0} px wide.</p>
 {_layers_section(previews, style, result, report, ramps)}</section>
 <section id="ramps"><h2>Ramps</h2>{ramps_html}</section>
-<section id="style-file"><h2>Style file</h2><p class="note">{esc(str(style.path))}</p>
+<section id="style-file"><h2>Style file</h2><p class="note">{esc(_style_shown(style, result))}</p>
 <pre>{esc(style.text)}</pre></section>
 <footer><p class="caution" role="note">{esc(CAUTION)}</p>
 <p>Written by compose. All images and styles are inside this file.</p></footer>"""

@@ -6,14 +6,17 @@ from __future__ import annotations
 
 from compose.color.interface import css_variables
 
-__all__ = ["CSS"]
+__all__ = ["CSS", "BODY_PX"]
+
+#: the body text's size (CSS px); the legend is shown with its labels at this size
+BODY_PX = 15
 
 # every colour is a variable from compose.color.interface (our own LCh choices)
 CSS = ":root { color-scheme: light; " + css_variables() + " }\n" + """
 * { box-sizing: border-box; }
 html { background: var(--surround); }
 body { margin: 0; color: var(--ink); background: var(--paper);
-  font: 15px/1.45 system-ui, -apple-system, "Segoe UI", Roboto, "DejaVu Sans", "Liberation Sans",
+  font: """ + str(BODY_PX) + """px/1.45 system-ui, -apple-system, "Segoe UI", Roboto, "DejaVu Sans", "Liberation Sans",
   Arial, sans-serif; max-width: 1400px; margin-inline: auto; padding: 0 28px 40px; }
 header { padding: 22px 0 10px; border-bottom: 1px solid var(--rule); }
 h1 { font-size: 1.7rem; margin: 0 0 2px; letter-spacing: -0.01em; }
@@ -41,8 +44,8 @@ figcaption { font-size: 0.85rem; margin-top: 4px; }
 img { display: block; max-width: 100%; height: auto; }
 img.map { width: 100%; border: 1px solid var(--rule); }
 .frame { border: 1px solid var(--rule); }
-.map-grid { display: grid; grid-template-columns: minmax(0, 1fr) minmax(240px, 360px); gap: 20px;
-  align-items: start; }
+.map-grid { display: grid; gap: 20px; align-items: start;
+  grid-template-columns: minmax(0, 1fr) minmax(240px, min(var(--legend, 360px), 40%)); }
 .legend img { width: 100%; }
 .proofs { display: grid; grid-template-columns: minmax(0, 2fr) minmax(0, 1fr) minmax(0, 1fr);
   gap: 12px 14px; align-items: start; }
@@ -89,7 +92,7 @@ footer { padding: 16px 0; font-size: 0.85rem; color: var(--muted); }
   body { padding: 0 12px 30px; }
   .map-grid, .cells { grid-template-columns: 1fr; }
   .cells .plot { grid-column: auto; }
-  .legend { max-width: 360px; }
+  .legend { max-width: var(--legend, 360px); }
   .ramps { grid-template-columns: 1fr; }
   .proofs { grid-template-columns: 1fr 1fr; }
   .proofs figure:first-child { grid-row: auto; grid-column: span 2; }

@@ -206,3 +206,61 @@ def test_nothing_runs_past_a_phone_screen(page, tmp_path):
     paper = rgb[5, -3]                     # the header's top right corner: the body's paper
     assert (rgb[:, :-6] != paper).any()    # a page, not blank
     assert (edge == paper).all(), np.flatnonzero(~(rgb[:, -6:] == paper).all(axis=(1, 2)))[:5]
+
+
+def test_the_style_is_named_without_the_folders_around_the_output(page, tmp_path):
+    """The page is made to be passed on: it named the style by its absolute path (the user's
+    folders, user name and all). Now by its name, or its path inside the page's folder."""
+    from compose.output.html import shown_path
+
+    style, result, path = page
+    text = path.read_text(encoding="utf-8")
+    home = str(Path(style.path).resolve().parent)
+    assert home not in text and str(style.path) not in text
+    assert "<dt>style</dt><dd>tiny.toml</dd>" in text
+    assert '<h2>Style file</h2><p class="note">tiny.toml</p>' in text
+    inside = tmp_path / "out" / "styles" / "a.toml"
+    inside.parent.mkdir(parents=True)
+    inside.write_text("")
+    assert shown_path(inside, tmp_path / "out") == "styles/a.toml"
+    assert shown_path(inside, tmp_path / "out" / "styles") == "a.toml"
+    assert shown_path(inside, tmp_path / "elsewhere") == "a.toml"
+    assert shown_path(inside, None) == "a.toml"
+
+
+def _measured(tmp_path: Path, path: Path, width: int) -> dict:
+    """The legend image's and the map's widths (CSS px) and the body's font size as chromium
+    lays the page out in a ``width`` px window. The page forbids scripts (its CSP); a copy
+    without that meta element carries one that writes the numbers into the title."""
+    import json
+
+    text = re.sub(r'<meta http-equiv="Content-Security-Policy"[^>]*>', "",
+                  path.read_text(encoding="utf-8"))
+    probe = ("<script>window.onload = function () { var q = document.querySelector.bind(document);"
+             "document.title = JSON.stringify({legend: q('.legend img').getBoundingClientRect()"
+             ".width, map: q('img.map').getBoundingClientRect().width, body: parseFloat("
+             "getComputedStyle(document.body).fontSize)}); };</script></body>")
+    copy = tmp_path / f"probe-{width}.html"
+    copy.write_text(text.replace("</body>", probe), encoding="utf-8")
+    run = _browser(tmp_path, "--dump-dom", f"--window-size={width},1000", url=copy)
+    found = re.search(r"<title>(\{.*?\})</title>", run.stdout)
+    assert found, run.stderr[-2000:]
+    return json.loads(found.group(1).replace("&quot;", '"'))
+
+
+@needs_browser
+def test_the_legend_shows_its_type_at_the_text_size(page, tmp_path):
+    """The legend PNG (200 pixels per inch, 3.6 inches wide) was shown at half its pixels
+    (360 of 720 px), its 8 pt labels 11 px tall beside the page's 15 px text: hard to read. In a
+    wide window its labels now show at the body text's size as the browser sets it; in a
+    narrower one the legend never takes more than 40 % of the row (the map stays the larger)."""
+    from compose.output.legend_layout import DPI, FONT
+
+    style, result, path = page
+    png = result.pictures.legend
+    inches = int.from_bytes(png[16:20], "big") / DPI           # PNG IHDR width (ISO/IEC 15948)
+    wide = _measured(tmp_path, path, 1366)
+    label_px = FONT / 72.0 * wide["legend"] / inches            # the 8 pt labels, in CSS px
+    assert label_px == pytest.approx(wide["body"], abs=0.1), wide
+    narrow = _measured(tmp_path, path, 1000)
+    assert narrow["legend"] < narrow["map"] and narrow["legend"] >= 240, narrow
