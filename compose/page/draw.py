@@ -13,7 +13,7 @@ import math
 import numpy as np
 
 from compose.page.contrast import GRID_ALPHA
-from compose.page.geometry import grid_lines
+from compose.page.geometry import BAR_LABEL_PT, grid_lines
 from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
 from compose.page.vectors import emit_layer
 
@@ -120,16 +120,12 @@ class _Page:
             self.ax.add_artist(Rectangle((x0 + i * seg, top), seg, 1.4,
                                         facecolor=self.ink if i % 2 == 0 else self.paper,
                                         edgecolor=self.ink, lw=0.4, zorder=3))
-        step = bar.length / bar.segments
-        # every boundary labelled while they stay 6 mm apart, else the ends and the middle
-        marks = list(range(bar.segments + 1))
-        if seg < 6.0:
-            marks = [0, bar.segments] if bar.segments % 2 else [0, bar.segments // 2, bar.segments]
-        for i in marks:
-            self.text(x0 + i * seg, top - 0.8, f"{step * i:g}".replace("-", "\u2212"), 6.5,
+        # the boundaries whose labels keep apart (compose.page.geometry.bar_divisions)
+        for i in bar.marks:
+            self.text(x0 + i * seg, top - 0.8, bar.label(i), BAR_LABEL_PT,
                       ha="center", va="bottom", zorder=3)
-        self.text(x0 + bar.length_mm + 2.2, top + 0.7, bar.unit, 6.5, ha="left", va="center",
-                  zorder=3)
+        self.text(x0 + bar.length_mm + 2.2, top + 0.7, bar.unit, BAR_LABEL_PT, ha="left",
+                  va="center", zorder=3)
         lines = []
         if self.page.scale is not None:
             lines.append(f"Scale 1:{self.page.scale:,.0f}".replace(",", "\u2009"))

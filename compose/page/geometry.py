@@ -8,6 +8,7 @@ grid up (the top of the map frame).
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -17,7 +18,8 @@ from compose.canvas import Canvas
 from compose.errors import StyleError
 
 __all__ = ["MM_PER_INCH", "page_canvas", "metres_per_unit", "ground_scale", "north_angle",
-           "ScaleBar", "scale_bar", "grid_lines", "nice_length", "UNIT_LENGTHS"]
+           "ScaleBar", "scale_bar", "grid_lines", "nice_length", "UNIT_LENGTHS", "bar_divisions",
+           "BAR_LABEL_PT"]
 
 MM_PER_INCH = 25.4
 #: Metres in a unit of length (international yard and pound agreement, 1959: 1 ft = 0.3048 m).
@@ -143,7 +145,7 @@ class ScaleBar:
     """A scale bar: ``length_mm`` on paper stands for ``length`` ``unit`` on the ground, cut in
     ``segments`` equal parts; ``metres`` is that length in metres; ``note`` says where the scale
     holds when it varies across the map (empty otherwise); ``ratio`` is n of the true scale 1:n
-    at the map centre."""
+    at the map centre; ``marks`` the boundaries (0 to ``segments``) that carry a label."""
 
     length_mm: float
     length: float
@@ -152,6 +154,48 @@ class ScaleBar:
     metres: float
     note: str
     ratio: float = 0.0
+    marks: tuple[int, ...] = ()
+
+    def label(self, i: int) -> str:
+        """The label of boundary ``i``: its distance from 0 in ``unit`` (a minus sign, never a
+        hyphen)."""
+        return f"{self.length / self.segments * i:g}".replace("-", "\u2212")
+
+
+#: the scale bar's label type (pt) and the least room between two labels (mm; common practice,
+#: no source: a clear gap of about a letter's width at that size)
+BAR_LABEL_PT, BAR_LABEL_GAP = 6.5, 1.0
+
+
+def _label_width(text: str) -> float:
+    """Width (mm) of a scale bar label in the page's font (its own glyph metrics)."""
+    from compose.layers.label_text import text_width
+
+    return text_width(text, BAR_LABEL_PT, "DejaVu Sans", "normal") * MM_PER_INCH / 72.0
+
+
+def bar_divisions(length: float, length_mm: float, segments: int) -> tuple[int, tuple[int, ...]]:
+    """(segments, labelled boundaries) of a bar ``length`` units long drawn ``length_mm`` long:
+    every boundary of ``segments`` equal parts labelled when each label, centred on its
+    boundary, keeps :data:`BAR_LABEL_GAP` from the next (measured in the page's font); else
+    every other one; else the bar cut in halves (0, the middle, the end); else its ends alone.
+    Labels were dropped to the ends and the middle whenever a part was under 6 mm, however
+    short the labels: a 5 mile bar 27.7 mm long in miles read "0" and "5" only."""
+    def fits(parts: int, marks: Sequence[int]) -> bool:
+        step_mm = length_mm / parts
+        texts = [ScaleBar(length_mm, length, "", parts, 0.0, "").label(i) for i in marks]
+        widths = [_label_width(t) for t in texts]
+        return all((b - a) * step_mm >= (wa + wb) / 2 + BAR_LABEL_GAP
+                   for a, b, wa, wb in zip(marks, marks[1:], widths, widths[1:]))
+
+    every = tuple(range(segments + 1))
+    if fits(segments, every):
+        return segments, every
+    if segments % 2 == 0 and fits(segments, every[::2]):
+        return segments, every[::2]
+    if fits(2, (0, 1, 2)):
+        return 2, (0, 1, 2)
+    return segments, (0, segments)
 
 
 def _latitude(lat: float) -> str:
@@ -172,7 +216,8 @@ def scale_bar(canvas: Canvas, frame_width_mm: float, max_mm: float,
     length = nice_length(limit_m / UNIT_LENGTHS[unit])
     metres = length * UNIT_LENGTHS[unit]
     mantissa = round(length / 10 ** math.floor(math.log10(length)))
-    segments = {1: 5, 2: 4, 5: 5}.get(mantissa, 4)
+    segments, marks = bar_divisions(length, metres / m_per_mm,
+                                    {1: 5, 2: 4, 5: 5}.get(mantissa, 4))
     # how far the scale varies over the frame: compare the scale at the edges with the centre
     west, south, east, north = canvas.bounds
     cx, cy = (west + east) / 2, (south + north) / 2
@@ -184,7 +229,7 @@ def scale_bar(canvas: Canvas, frame_width_mm: float, max_mm: float,
         _, lat = _to_lonlat(canvas.crs).transform(cx, cy)
         note = f"true at {_latitude(float(lat))} (map centre); varies by up to {spread:.0%}"
     return ScaleBar(metres / m_per_mm, float(length), unit, segments, float(metres), note,
-                    m_per_mm * 1000.0)
+                    m_per_mm * 1000.0, marks)
 
 
 def grid_lines(canvas: Canvas, crs: str | None, step: float, samples: int = 128

@@ -4,6 +4,7 @@ from __future__ import annotations
 import math
 from types import SimpleNamespace
 
+import numpy as np
 import pytest
 from pyproj import Geod, Proj, Transformer
 
@@ -125,3 +126,58 @@ def test_central_meridian_reaches_the_top_and_bottom_edges():
     pts = next(p for axis, v, p in grid_lines(canvas, "EPSG:4326", 0.1)
                if axis == "x" and abs(v + 3.0) < 1e-9)
     assert pts[:, 1].min() < 0.0 < canvas.height < pts[:, 1].max()
+
+
+def _demo_canvas() -> Canvas:
+    """The demo's map: 45 km of UTM zone 30N at 45 N, 1500 px, in a 155.6 mm frame."""
+    return Canvas.from_extent("EPSG:32630", (480000.0, 4980000.0, 525000.0, 5025000.0), 30.0)
+
+
+def test_imperial_bar_labels_every_mile():
+    """The demo's map with a bar in miles (52 mm of room, about 1:290 000): 5 miles in parts
+    of one mile, each labelled, as the metric bar labels each of its 2 km. The labels stopped at
+    "0" and "5" (parts under 6 mm were never labelled, though "1" is 2 mm wide)."""
+    bar = scale_bar(_demo_canvas(), 155.6, 52.0, units="imperial")
+    assert (bar.unit, bar.length, bar.segments) == ("mi", 5.0, 5)
+    assert [bar.label(i) for i in bar.marks] == ["0", "1", "2", "3", "4", "5"]
+    metric = scale_bar(_demo_canvas(), 155.6, 52.0)
+    assert [metric.label(i) for i in metric.marks] == ["0", "2", "4", "6", "8", "10"]
+
+
+def _drawn_labels(bar) -> list:
+    """The bar drawn on a page figure: its labels' extents (matplotlib's own text layout)."""
+    from matplotlib.figure import Figure
+
+    from compose.page.draw import _Page
+    from compose.page.layout import Piece
+
+    layout = SimpleNamespace(size=(120.0, 40.0), scalebar=bar, pieces=())
+    page = SimpleNamespace(ink=(0.1, 0.1, 0.1), color=(1.0, 1.0, 1.0), scale=None)
+    fig = Figure(figsize=(120 / 25.4, 40 / 25.4), dpi=300)
+    p = _Page(fig, layout, page)
+    p.scalebar(Piece("scalebar", (5.0, 15.0, bar.length_mm + 8.0, 11.0)))
+    renderer = fig.canvas.get_renderer() if hasattr(fig.canvas, "get_renderer") else None
+    if renderer is None:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        renderer = FigureCanvasAgg(fig).get_renderer()
+    texts = [t for t in p.ax.texts if t.get_text() not in (bar.unit,) and t.get_va() == "bottom"]
+    return [(t.get_text(), t.get_window_extent(renderer)) for t in texts]
+
+
+@pytest.mark.parametrize("units", ["metric", "imperial"])
+def test_bar_labels_never_touch_and_divide_the_bar(units):
+    """Over frames from 40 to 400 mm wide (scales of about 1:110 000 to 1:1 100 000) and rooms
+    of 20 to 60 mm: the labels as matplotlib lays them out keep apart, there are at least three
+    (0, a division, the end) at equal round steps, and the last one is the bar's length."""
+    canvas = _demo_canvas()
+    for frame in (40.0, 70.0, 110.0, 155.6, 230.0, 400.0):
+        for room in (20.0, 35.0, 52.0, 60.0):
+            bar = scale_bar(canvas, frame, room, units=units)
+            labels = _drawn_labels(bar)
+            assert len(labels) >= 3, (frame, room, [t for t, _ in labels])
+            values = [float(t.replace("\u2212", "-")) for t, _ in labels]
+            assert values[0] == 0 and values[-1] == pytest.approx(bar.length)
+            steps = np.diff(values)
+            assert np.allclose(steps, steps[0]), values
+            for (_, a), (_, b) in zip(labels, labels[1:]):
+                assert a.x1 < b.x0, (frame, room, values)        # apart, left to right
