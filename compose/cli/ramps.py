@@ -93,8 +93,14 @@ def write_sheet(path: Path, ramps: dict, title: str) -> None:
         fig.text(0.02, y + row * 0.62, name, fontsize=8.5, color=ui.INK.hex, va="center")
         fig.text(0.02, y + row * 0.30, describe_ramp(ramp), fontsize=6.5, color=ui.MUTED.hex,
                  va="center")
-    with atomic_path(Path(path)) as tmp:
-        fig.savefig(tmp, format="png", facecolor=ui.PAPER.hex)
+    import io
+
+    from compose.page.dates import dated_png
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", facecolor=ui.PAPER.hex)
+    with atomic_path(Path(path)) as tmp:        # SOURCE_DATE_EPOCH's tIME, or no date
+        tmp.write_bytes(dated_png(buf.getvalue()))
 
 
 @click.command("ramps")

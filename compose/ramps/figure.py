@@ -239,13 +239,23 @@ def ramp_figure(ramp: Ramp, others: dict[str, Ramp] | None = None, units: str | 
 
 def write_ramp_plot(ramp: Ramp, path: Path | str, others: dict[str, Ramp] | None = None,
                     units: str | None = None, limits: RampLimits | None = None, budgets=None) -> Path:
-    """Render :func:`ramp_figure` to a PNG at ``path``, through a temporary file renamed into place."""
+    """Render :func:`ramp_figure` to a PNG at ``path``, through a temporary file renamed into
+    place; dated as the render's outputs are (:func:`compose.page.dates.dated_png`: a tIME chunk
+    of ``SOURCE_DATE_EPOCH`` when it is set, no date otherwise), so the same ramp gives the same
+    bytes."""
+    import io
+
+    from compose.page.dates import dated_png
+
     path = Path(path)
     fig = ramp_figure(ramp, others, units, limits, budgets)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", facecolor=ui.PAPER.hex)
+    data = dated_png(buf.getvalue())
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".png", dir=path.parent or ".")
     try:
         with os.fdopen(fd, "wb") as fh:
-            fig.savefig(fh, format="png", facecolor=ui.PAPER.hex)
+            fh.write(data)
         umask = os.umask(0)
         os.umask(umask)
         os.chmod(tmp, 0o666 & ~umask)   # mkstemp makes 0600; give the file the usual mode

@@ -200,3 +200,33 @@ def test_tiles_are_the_same_bytes(tmp_path):
     assert {"index.html", "check.json"} <= runs[0].keys() and runs[0].keys() == runs[1].keys()
     for name in runs[0]:
         assert runs[0][name] == runs[1][name], name
+
+
+def test_the_ramp_figure_and_sheet_are_dated_only_by_source_date_epoch(tmp_path):
+    """``compose ramp NAME --plot FILE`` and ``compose ramps --sheet FILE`` as commands: the same
+    bytes run after run; with SOURCE_DATE_EPOCH set a tIME chunk of its moment as every PNG of a
+    render carries (they carried none), nothing else changed; a malformed value an error before
+    any file is written."""
+    def both(folder: Path, epoch: str | None) -> dict[str, bytes]:
+        folder.mkdir()
+        for args in (("ramp", "land-growth", "--plot", folder / "plot.png"),
+                     ("ramps", "--sheet", folder / "sheet.png")):
+            done = _command(*args, epoch=epoch)
+            assert done.returncode == 0, done.stderr
+        return _files(folder)
+
+    first, second = both(tmp_path / "a", None), both(tmp_path / "b", None)
+    dated = both(tmp_path / "c", "1700000000")
+    assert first.keys() == dated.keys() == {"plot.png", "sheet.png"}
+    for name in first:
+        assert first[name] == second[name], name
+        assert _png_chunks(first[name]).get(b"tIME") is None, name
+        # 2023-11-14 22:13:20 UTC (as the render's test above), PNG 11.3.6.1
+        assert _png_chunks(dated[name])[b"tIME"] == bytes([0x07, 0xE7, 11, 14, 22, 13, 20]), name
+        tim = dated[name].index(b"tIME") - 4                        # the chunk: 4 + 4 + 7 + 4
+        assert dated[name][:tim] + dated[name][tim + 19:] == first[name], name
+    bad = tmp_path / "bad"
+    bad.mkdir()
+    done = _command("ramp", "land-growth", "--plot", bad / "plot.png", epoch="soon")
+    assert done.returncode == 2 and "SOURCE_DATE_EPOCH" in done.stderr, done.stderr
+    assert list(bad.iterdir()) == []
