@@ -5,6 +5,7 @@ backgrounds, images at most the page width)."""
 from __future__ import annotations
 
 from compose.color.interface import css_variables
+from compose.output.svg import PLOT_W
 
 __all__ = ["CSS", "BODY_PX"]
 
@@ -58,7 +59,8 @@ img.map { width: 100%; border: 1px solid var(--rule); }
 .tag { font-size: 0.78rem; padding: 1px 7px; border-radius: 9px; background: var(--accent-bg);
   color: var(--accent); border: 1px solid var(--accent-edge); }
 .tag.pass { color: var(--pass); } .tag.fail { color: var(--fail); }
-.cells { display: grid; grid-template-columns: repeat(3, minmax(0, 1fr)); gap: 12px; }
+.cells { display: grid; gap: 12px;
+  grid-template-columns: minmax(0, 1fr) minmax(0, 1fr) minmax(min(100%, """ + str(PLOT_W) + """px), 1fr); }
 .cells img { width: 100%; }
 .cells .plot { grid-column: 3; }
 .numbers { font-size: 0.86rem; margin: 8px 0 0; font-variant-numeric: tabular-nums; }

@@ -20,12 +20,12 @@ from compose.check.stats import CONTRAST_STEP, N_CONTRAST
 from compose.color import interface as ui
 from compose.color.lab import lab_to_srgb, srgb_to_lch, xyz_to_lab
 from compose.color.wcag import relative_luminance
-from compose.output.svg import Figure, nice_ticks
+from compose.output.svg import PLOT_W, Figure, nice_ticks
 
 __all__ = ["budget_svg", "lightness_chroma_svg", "overlay_svg", "ramp_svg", "ground_reserve"]
 
 INK, MUTED, BOX, GRID = ui.INK.hex, ui.MUTED.hex, ui.ACCENT.hex, ui.GRID.hex
-FIG_W, FIG_H = 420, 330     # CSS pixels
+FIG_W, FIG_H = PLOT_W, 330    # CSS pixels
 
 
 def _lightness_of_y(y: float) -> float:

@@ -12,9 +12,14 @@ from collections.abc import Iterable, Sequence
 
 from compose.color import interface as ui
 
-__all__ = ["Figure", "Axes", "nice_ticks", "svg_uri"]
+__all__ = ["Figure", "Axes", "nice_ticks", "svg_uri", "MIN_TEXT_PX", "PLOT_W"]
 
 FONT = "DejaVu Sans, Helvetica, Arial, sans-serif"
+#: the smallest text drawn (CSS px at the figure's own size; common practice, no source: screen
+#: text under about 9 px is hard to read); smaller sizes asked for are drawn at this one
+MIN_TEXT_PX = 9.0
+#: the review page's plots' width (CSS px): the page never shows them narrower (html_css)
+PLOT_W = 420
 
 
 def _f(v: float) -> str:
@@ -25,6 +30,7 @@ def _text(x: float, y: float, s: str, size: float, color: str, anchor: str = "st
           weight: str = "normal", rotate: bool = False) -> str:
     rot = f' transform="rotate(-90 {_f(x)} {_f(y)})"' if rotate else ""
     bold = ' font-weight="bold"' if weight == "bold" else ""
+    size = max(float(size), MIN_TEXT_PX)
     return (f'<text x="{_f(x)}" y="{_f(y)}" font-size="{size:g}" fill="{color}" '
             f'text-anchor="{anchor}"{bold}{rot}>{html.escape(s)}</text>')
 

@@ -264,3 +264,37 @@ def test_the_legend_shows_its_type_at_the_text_size(page, tmp_path):
     assert label_px == pytest.approx(wide["body"], abs=0.1), wide
     narrow = _measured(tmp_path, path, 1000)
     assert narrow["legend"] < narrow["map"] and narrow["legend"] >= 240, narrow
+
+
+@needs_browser
+def test_the_budget_plots_show_no_text_under_9_px(page, tmp_path):
+    """The layers' budget plots are drawn 420 px wide; in a 1000 px window they were shown
+    292 px wide (their axis numbers, 8.1 px as drawn, at 5.6 px), at 1366 px 414 px. Now their
+    column is never narrower than they are drawn, and no text in them is drawn under 9 px
+    (common practice, no source: screen text under about 9 px is hard to read)."""
+    import base64
+    import json
+
+    _, _, path = page
+    text = path.read_text(encoding="utf-8")
+    plots = re.findall(r'<figure class="plot"><img src="data:image/svg\+xml;base64,([^"]+)"', text)
+    assert len(plots) >= 3                     # a field's, the coast's and the towns' at least
+    smallest = []
+    for data in plots:
+        svg = base64.b64decode(data).decode("utf-8")
+        smallest.append(min(float(v) for v in re.findall(r'font-size="([0-9.]+)"', svg)))
+    assert min(smallest) >= 9.0, smallest
+    probe = ("<script>window.onload = function () { document.title = JSON.stringify("
+             "Array.from(document.querySelectorAll('.cells .plot img')).map(function (i) {"
+             "return [i.getBoundingClientRect().width, i.naturalWidth]; })); };</script></body>")
+    copy = tmp_path / "plots.html"
+    copy.write_text(re.sub(r'<meta http-equiv="Content-Security-Policy"[^>]*>', "", text)
+                    .replace("</body>", probe), encoding="utf-8")
+    for width in (1000, 1366, 1920):
+        run = _browser(tmp_path, "--dump-dom", f"--window-size={width},1000", url=copy)
+        found = re.search(r"<title>(\[.*?\])</title>", run.stdout)
+        assert found, run.stderr[-2000:]
+        shown = json.loads(found.group(1))
+        assert len(shown) == len(plots)
+        for (css, natural), small in zip(shown, smallest):
+            assert css >= natural - 0.5 and small * css / natural >= 9.0, (width, css, natural)
