@@ -260,3 +260,48 @@ def test_a_family_broken_between_columns_keeps_its_heading():
                     heading = item
                 else:
                     assert heading == item.family, (n, item.label)
+
+
+def _text_boxes(legend) -> list:
+    """(text, extent in inches) of every text the legend draws, as matplotlib lays it out."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    from compose.output.legend import draw_legend
+
+    fig = Figure(figsize=(legend.width, legend.height), dpi=DPI)
+    ax = fig.add_axes((0, 0, 1, 1))
+    draw_legend(ax, legend)
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    return [(t.get_text(), t.get_window_extent(renderer).transformed(fig.dpi_scale_trans.inverted()))
+            for t in ax.texts if t.get_text()]
+
+
+def test_class_columns_keep_their_labels_apart(tmp_path):
+    """The land-cover demo on US letter, upright: its legend goes under the map in two columns,
+    and "Broadleaf forest" ran into the next column's "Other" heading (0.03 inch apart: a
+    column's family headings stand 0.12 inch left of its swatches, in the room the gap between
+    columns was to give). Texts side by side now keep at least an em of the label type apart
+    (common practice, no source)."""
+    from compose.demo import styles_dir
+    from compose.output.legend_layout import FONT
+    from compose.page.write import fit_legend
+
+    path = tmp_path / "letter.toml"
+    path.write_text(f'extends = "{(styles_dir() / "cover.toml").as_posix()}"\n'
+                    '[page]\npaper = "letter"\norientation = "portrait"\n', encoding="utf-8")
+    style = load_style(path)
+    run_ = prepare(style)
+    try:
+        legend = fit_legend(style, run_.ramps, run_.layers)
+    finally:
+        run_.close()
+    block = next(b for b in legend.blocks if getattr(b, "columns", None))
+    assert len(block.columns) >= 2                       # the case: reflowed into columns
+    boxes = _text_boxes(legend)
+    em = FONT / 72.0
+    for i, (ta, a) in enumerate(boxes):
+        for tb, b in boxes[i + 1:]:
+            if min(a.y1, b.y1) - max(a.y0, b.y0) > 0.2 * em:       # on one line
+                gap = max(b.x0 - a.x1, a.x0 - b.x1)
+                assert gap >= em, (ta, tb, round(gap, 3))
