@@ -6,7 +6,10 @@ in its ``check/`` folder (:mod:`compose.check_cache`). ``crs.json`` lists the CR
 pyproj accepted as a canvas CRS, per installed pyproj (its module file's size and modification
 time; up to :data:`_INSTALLS` of them, so several environments sharing one cache folder do not
 take turns overwriting each other's list): a style naming one of them is loaded without
-importing pyproj (0.05-0.15 s of a check's start-up). Deleting the folder is always safe.
+importing pyproj (0.05-0.15 s of a check's start-up). ``crs-facts.json`` keeps, per installed
+rasterio (its GDAL and PROJ are its own), what GDAL answered about CRS strings
+(:mod:`compose.sources.crs`), so a draft of plain files asks them again without importing
+rasterio. Deleting the folder is always safe.
 """
 from __future__ import annotations
 
@@ -15,7 +18,8 @@ import json
 import os
 from pathlib import Path
 
-__all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs", "accepted"]
+__all__ = ["CACHE_ENV", "cache_dir", "crs_known", "remember_crs", "accepted", "crs_facts",
+           "remember_crs_facts"]
 
 #: Environment variable naming the cache directory (``off``, ``0`` or empty: no cache).
 CACHE_ENV = "COMPOSE_CACHE"
@@ -115,6 +119,81 @@ def remember_crs(value: str) -> None:
             with os.fdopen(fd, "w", encoding="utf-8") as f:
                 json.dump({"installs": per}, f)
             os.replace(tmp, root / _CRS_FILE)
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise
+
+
+_FACTS_FILE = "crs-facts.json"
+#: What :func:`crs_facts` read or noted in this process: {text: facts} (None: not read yet).
+_FACTS: list[dict | None] = [None]
+
+
+def _rasterio_stamp() -> str | None:
+    """Size and mtime of the installed rasterio's package file (found without importing it)."""
+    import importlib.util
+
+    try:
+        spec = importlib.util.find_spec("rasterio")
+        st = os.stat(spec.origin) if spec is not None and spec.origin else None
+    except (ImportError, ValueError, OSError):
+        return None
+    return None if st is None else f"{st.st_size}:{st.st_mtime_ns}"
+
+
+def _facts_here() -> dict:
+    if _FACTS[0] is None:
+        root, stamp = cache_dir(), _rasterio_stamp()
+        got: dict = {}
+        if root is not None and stamp is not None:
+            try:
+                data = json.loads((root / _FACTS_FILE).read_text(encoding="utf-8"))
+                per = data.get("installs", {}) if isinstance(data, dict) else {}
+                mine = per.get(stamp) if isinstance(per, dict) else None
+                if isinstance(mine, dict):
+                    got = {k: v for k, v in mine.items()
+                           if isinstance(k, str) and isinstance(v, dict)}
+            except (OSError, ValueError):
+                pass
+        _FACTS[0] = got
+        return got
+    return _FACTS[0]
+
+
+def crs_facts(value: str) -> dict | None:
+    """What GDAL (the rasterio installed now) answered about the CRS string ``value`` before
+    (:func:`remember_crs_facts`), or None."""
+    return _facts_here().get(value)
+
+
+def remember_crs_facts(value: str, facts: dict) -> None:
+    """Note GDAL's answers about ``value`` (written atomically; a cache that cannot be written
+    is skipped)."""
+    _facts_here()[value] = facts
+    root, stamp = cache_dir(), _rasterio_stamp()
+    if root is None or stamp is None:
+        return
+    try:
+        data = json.loads((root / _FACTS_FILE).read_text(encoding="utf-8"))
+        per = data.get("installs") if isinstance(data, dict) else None
+    except (OSError, ValueError):
+        per = None
+    per = per if isinstance(per, dict) else {}
+    mine = per.pop(stamp, None)
+    mine = mine if isinstance(mine, dict) else {}
+    mine[value] = facts
+    per[stamp] = dict(list(mine.items())[-256:])     # this install's answers go last (newest)
+    per = dict(list(per.items())[-_INSTALLS:])
+    import tempfile
+
+    with contextlib.suppress(OSError):
+        root.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=".crs-facts-", suffix=".part", dir=root)
+        try:
+            with os.fdopen(fd, "w", encoding="utf-8") as f:
+                json.dump({"installs": per}, f)
+            os.replace(tmp, root / _FACTS_FILE)
         except BaseException:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)

@@ -2,6 +2,8 @@
 (integer categories through a qualitative ramp). Values -> lookup-table index -> colour."""
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from compose.canvas import core_window
@@ -9,14 +11,26 @@ from compose.errors import StyleError
 from compose.kernels import get as compiled
 from compose.layers.base import Context, Paint, palette_from_lut
 from compose.layers.early import BlockSample, EarlyRead
-from compose.sources.raster import RasterSource
+
+if TYPE_CHECKING:
+    from compose.sources.raster import RasterSource
 
 __all__ = ["FieldLayer", "ClassesLayer", "palette_from_lut", "open_raster", "lut_index"]
 
 
-def open_raster(spec, canvas, *, decimate: bool = False) -> RasterSource:
+def open_raster(spec, canvas, *, decimate: bool = False, full=None) -> RasterSource:
     """Open a raster layer's source (its ``band``) and check it overlaps the canvas
-    (``decimate``: a draft's faster reads, see :class:`RasterSource`)."""
+    (``decimate``: a draft's faster reads, see :class:`RasterSource`). A draft's large plain
+    GeoTIFF aligned with the ``full`` canvas is read without GDAL
+    (:func:`compose.layers.early_tiff.plain_source`: rasterio is then not imported for it)."""
+    if decimate and full is not None:
+        from compose.layers.early_tiff import plain_source
+
+        plain = plain_source(spec, canvas, full)
+        if plain is not None:
+            return plain  # type: ignore[return-value]   # what a draft asks of a RasterSource
+    from compose.sources.raster import RasterSource
+
     source = RasterSource(spec.source, spec.options.band, layer=spec.name, decimate=decimate)
     try:
         source.check_overlap(canvas)
@@ -72,7 +86,8 @@ class FieldLayer:
             raise StyleError(f'layer "{spec.name}": unknown ramp \'{o.ramp}\'; ramps: '
                              + ", ".join(sorted(context.ramps)))
         self.ramp = context.ramps[o.ramp]
-        self.source = open_raster(spec, self.canvas, decimate=context.draft)
+        self.source = open_raster(spec, self.canvas, decimate=context.draft,
+                                  full=context.style.canvas() if context.draft else None)
         self.lut = self._lut()
         nodata = getattr(o, "nodata", None)
         self.transparent_nodata = isinstance(nodata, str) and nodata == "transparent"

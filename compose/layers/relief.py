@@ -19,7 +19,6 @@ from compose.layers.hillshade import centre_gradient, multidirectional, shade_gr
 from compose.layers.raster import open_raster
 from compose.ramps.relief import LEVELS, relief_colors
 from compose.sources.crs import metre_projected, never_mercator
-from compose.sources.raster import cell_size_metres
 
 __all__ = ["ReliefLayer", "relief_palette", "shade_levels", "ground_cell_size", "ground_scale", "LEVELS",
            "SAMPLE_WINDOWS", "SAMPLE_SIZE", "spread_windows"]
@@ -78,6 +77,10 @@ def ground_cell_size(crs, transform, height: int, scale=None):
     ground metres per projected metre -- dx per row at the row's centre ((height, 1) array), dy at
     the grid's middle row -- so relief is shaded on the true ground slope at every latitude."""
     if scale is None:
+        if metre_projected(crs):        # cell_size_metres's first answer, without rasterio
+            return abs(transform.a), abs(transform.e)
+        from compose.sources.raster import cell_size_metres
+
         return cell_size_metres(crs, transform, height)
     rows = np.arange(int(height), dtype=float)[:, None] + 0.5
     gx, _ = scale((transform.f + transform.e * rows).ravel())
@@ -124,7 +127,8 @@ class ReliefLayer:
         o = spec.options
         self.options = o
         self.canvas = context.canvas
-        self.source = open_raster(spec, self.canvas, decimate=context.draft)
+        self.source = open_raster(spec, self.canvas, decimate=context.draft,
+                                  full=_full_of_draft(context)[0] if context.draft else None)
         # the style fills ``shadow`` from the tint when it is not given (compose.ramps.relief.default_shadow)
         self.palette = relief_palette(o.tint, o.shadow, o.strength, o.altitude)
         self.scale = ground_scale(self.canvas.crs)

@@ -1,5 +1,6 @@
 """Questions about a CRS answered by rasterio's CRS (GDAL's OGR over PROJ), so the common cases
-need no pyproj import (0.1-0.2 s of a check's start-up).
+need no pyproj import (0.1-0.2 s of a check's start-up); GDAL's answers about a CRS string are
+kept in the user's cache (:func:`_facts`), so a later process asks no GDAL about it either.
 
 Each function answers only what GDAL answers the same way as pyproj and says so by its result;
 the callers ask pyproj for everything else (its error messages, transformations, ellipsoids,
@@ -68,6 +69,27 @@ def rio_crs(value: Any):
     return None if key is None else _parsed(key)
 
 
+def _facts(value: str) -> dict:
+    """GDAL's answers about the CRS string ``value`` (:func:`_gdal_usable`, :func:`_metre`,
+    :func:`_never`), asked once per installed rasterio and kept in the user's cache
+    (:func:`compose.user_cache.crs_facts`): the next process answers without importing
+    rasterio (0.05 s of a draft's start-up)."""
+    from compose.user_cache import crs_facts, remember_crs_facts
+
+    got = crs_facts(value)
+    if got is not None and set(got) == {"usable", "metre", "never"} \
+            and all(isinstance(v, bool) for v in got.values()):
+        return got
+    got = {"usable": _gdal_usable(value), "metre": _metre(value), "never": _never(value)}
+    remember_crs_facts(value, got)
+    return got
+
+
+def _gdal_usable(value: Any) -> bool:
+    crs = rio_crs(value)
+    return crs is not None and bool(crs.is_geographic or crs.is_projected)
+
+
 def plainly_usable(value: Any) -> bool:
     """True when GDAL reads ``value`` as a geographic or projected CRS (one data can be
     reprojected from and to), or when it is a string pyproj accepted as such for a canvas in
@@ -77,8 +99,7 @@ def plainly_usable(value: Any) -> bool:
 
     if accepted(value):
         return True
-    crs = rio_crs(value)
-    return crs is not None and bool(crs.is_geographic or crs.is_projected)
+    return _facts(value)["usable"] if isinstance(value, str) else _gdal_usable(value)
 
 
 def same_crs(a: Any, b: Any) -> bool:
@@ -102,6 +123,10 @@ def metre_projected(value: Any) -> bool:
     """True for a projected, non-compound CRS whose linear unit is exactly the metre (then
     a cell's size in metres is the transform's cell size, as pyproj's axis unit factor 1 gives);
     False means "ask pyproj"."""
+    return _facts(value)["metre"] if isinstance(value, str) else _metre(value)
+
+
+def _metre(value: Any) -> bool:
     crs = rio_crs(value)
     if crs is None or not crs.is_projected:
         return False
@@ -121,6 +146,10 @@ def never_mercator(value: Any) -> bool:
     """True when ``value`` is certainly not a Mercator-family projection with a latitude-only
     scale: geographic, or projected (not compound) by a method whose name lacks "mercator" or
     names a transverse one; False means "ask pyproj"."""
+    return _facts(value)["never"] if isinstance(value, str) else _never(value)
+
+
+def _never(value: Any) -> bool:
     crs = rio_crs(value)
     if crs is None:
         return False

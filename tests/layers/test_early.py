@@ -340,7 +340,17 @@ def test_a_sampled_draft_measures_its_relief_stretch_on_its_own_cells(tmp_path, 
         reads.append((int(win.row_off), int(win.col_off), int(win.height), int(win.width)))
         cells_into(self, win, dest)
 
+    from compose.layers.early_tiff import PlainSource
+
+    block = PlainSource._block
+
+    def record_plain(self, index, row, col):       # the same blocks read without GDAL
+        bh, bw = self.block_shape
+        reads.append((row, col, bh, bw))
+        return block(self, index, row, col)
+
     monkeypatch.setattr(RasterSource, "_cells_into", record)
+    monkeypatch.setattr(PlainSource, "_block", record_plain)
     prepared = prepare(style, canvas=draft_canvas(style.canvas()), draft=True)
     try:
         layer = prepared.layers[0]
