@@ -360,7 +360,8 @@ class BlockSample:
         bh, bw = self.block
         for (b_row, b_col) in sorted(tasks):
             br, bc = b_row * bh, b_col * bw
-            block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc))
+            need = np.unique(np.concatenate([lo[rows_i] for rows_i, _ in tasks[(b_row, b_col)]]))
+            block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc), need - br)
             for rows_i, js in tasks[(b_row, b_col)]:
                 cut_out = block.take(lo[rows_i] - br, axis=0).take(fc[rows_i[0], js] - bc, axis=1)
                 if rows_i[-1] - rows_i[0] + 1 == rows_i.size and js[-1] - js[0] + 1 == js.size:
@@ -369,9 +370,15 @@ class BlockSample:
                     out[np.ix_(rows_i, js)] = cut_out
         return out
 
-    def source_block(self, row: int, col: int, height: int, width: int) -> np.ndarray:
+    def source_block(self, row: int, col: int, height: int, width: int,
+                     rows: np.ndarray | None = None) -> np.ndarray:
         """The file's cells of a block (file cells), float32, C-contiguous: decoded once per
-        call of :meth:`neighbourhoods` for all the centres in it."""
+        call of :meth:`neighbourhoods` for all the centres in it. ``rows``: the only rows of
+        the block that are read (ascending, from 0), or None: all; a source read without GDAL
+        (:class:`compose.layers.early_tiff.PlainSource`) then decodes only those rows' values
+        (its other rows: NaN), GDAL every row."""
+        if rows is not None and not getattr(self.source, "gdal", True):
+            return self.source.block_cells(row, col, height, width, rows=rows)
         return np.ascontiguousarray(self.source.block_cells(row, col, height, width))
 
     def values(self, window: Window) -> np.ndarray:
@@ -417,7 +424,9 @@ class BlockSample:
         rest = set(zip((blk_r.ravel()[idx]).tolist(), (blk_c.ravel()[idx]).tolist()))
         for (b_row, b_col) in sorted(tasks):
             br, bc = b_row * bh, b_col * bw
-            block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc))
+            need = None if (b_row, b_col) in rest else np.unique(np.concatenate(
+                [lo[rows_i] for rows_i, _ in tasks[(b_row, b_col)]])[:, None] + step) - br
+            block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc), need)
             if (b_row, b_col) in rest:
                 kept[(b_row, b_col)] = block
             for rows_i, js in tasks[(b_row, b_col)]:

@@ -236,9 +236,11 @@ class PlainTiff:
             raise NotPlain("CRS other than an EPSG code")
         self.crs = f"EPSG:{code}"
 
-    def block_values(self, index: int) -> np.ndarray:
+    def block_values(self, index: int, need: np.ndarray | None = None) -> np.ndarray:
         """Block ``index`` (row-major over the blocks) in the file's type, native byte order:
-        (block rows, block columns) for tiles, (rows of the strip, width) for strips."""
+        (block rows, block columns) for tiles, (rows of the strip, width) for strips; with
+        ``need`` (row numbers in the block, ascending) only those rows, (len(need), columns):
+        the whole block is inflated, but only they are undone from the predictor."""
         bh, bw = self.block
         rows = bh if self.tiled else min(bh, self.height - index * bh)
         raw = self._read(int(self.offsets[index]), int(self.counts[index]))
@@ -251,12 +253,16 @@ class PlainTiff:
         if self.predictor == 3:
             # planes of each row, most significant byte first, differenced byte by byte
             planes = np.frombuffer(raw, np.uint8).reshape(rows, item * bw)
-            planes = np.cumsum(planes, axis=1, dtype=np.uint8)
-            big = planes.reshape(rows, item, bw).transpose(0, 2, 1)
-            return np.ascontiguousarray(big).view(np.dtype(self.dtype).newbyteorder(">")) \
-                .reshape(rows, bw).astype(self.dtype)
+            if need is not None:
+                planes = planes[need]
+            planes = np.cumsum(planes, axis=1, dtype=np.uint8).reshape(-1, item, bw)
+            native = planes[:, ::-1] if np.little_endian else planes
+            return np.ascontiguousarray(native.transpose(0, 2, 1)).view(self.dtype) \
+                .reshape(-1, bw)
         order: Any = self.order
         values = np.frombuffer(raw, np.dtype(self.dtype).newbyteorder(order)).reshape(rows, bw)
+        if need is not None:
+            values = values[need]
         values = values.astype(self.dtype)          # native order, writable
         if self.predictor == 2:
             values = np.cumsum(values, axis=1, dtype=self.dtype)
@@ -337,9 +343,20 @@ class PlainSource:
     def aligned_with(self, canvas) -> bool:
         return self.aligned_offset(canvas) is not None
 
-    def block_cells(self, row: int, col: int, height: int, width: int) -> np.ndarray:
-        """The file's cells of a region inside it, float32 (height, width), NaN = no data."""
-        return self._cells(row, col, height, width)
+    def block_cells(self, row: int, col: int, height: int, width: int,
+                    rows: np.ndarray | None = None) -> np.ndarray:
+        """The file's cells of a region inside it, float32 (height, width), NaN = no data.
+        ``rows`` (a block's own region only: its rows to read, ascending, from 0): only those
+        rows are decoded, the others are NaN (see :meth:`PlainTiff.block_values`)."""
+        t = self.tiff
+        bh, bw = t.block
+        if rows is None or row % bh or col % bw or height > bh or width > bw:
+            return self._cells(row, col, height, width)
+        rows = np.asarray(rows, np.int64)
+        out = np.full((height, width), np.nan, np.float32)
+        got = self._block((row // bh) * t.across + col // bw, row, col, rows)
+        out[rows] = got[:, :width]
+        return out
 
     def _cells(self, row: int, col: int, height: int, width: int) -> np.ndarray:
         t = self.tiff
@@ -354,18 +371,24 @@ class PlainSource:
                     block[r0 - br * bh:r1 - br * bh, c0 - bc * bw:c1 - bc * bw]
         return out
 
-    def _block(self, index: int, row: int, col: int) -> np.ndarray:
-        """Block ``index`` (its first cell at (row, col)) as float32 with NaN for no data."""
+    def _block(self, index: int, row: int, col: int, rows: np.ndarray | None = None
+               ) -> np.ndarray:
+        """Block ``index`` (its first cell at (row, col)) as float32 with NaN for no data;
+        ``rows``: only those rows of it. A row's values do not depend on the others read with
+        it: GDAL's mask, asked for when a value lies near the nodata value, differs from the
+        value test only on such values, and a row holding one is read by GDAL here."""
         t = self.tiff
         try:
-            data = t.block_values(index).astype(np.float32)
+            data = t.block_values(index, rows).astype(np.float32, copy=False)
         except Exception:           # GDAL's reading names the reason (or reads what this cannot)
-            return self._from_gdal(row, col)
+            got = self._from_gdal(row, col)
+            return got if rows is None else got[rows]
         nodata = t.nodata
         if nodata is not None and not math.isnan(nodata):
             nd = np.float32(nodata)
             if self._near_nodata(data, nd):
-                return self._from_gdal(row, col)
+                got = self._from_gdal(row, col)
+                return got if rows is None else got[rows]
             data[data == nd] = np.nan
         return data
 

@@ -344,10 +344,10 @@ def test_a_sampled_draft_measures_its_relief_stretch_on_its_own_cells(tmp_path, 
 
     block = PlainSource._block
 
-    def record_plain(self, index, row, col):       # the same blocks read without GDAL
+    def record_plain(self, index, row, col, rows=None):    # the same blocks read without GDAL
         bh, bw = self.block_shape
         reads.append((row, col, bh, bw))
-        return block(self, index, row, col)
+        return block(self, index, row, col, rows)
 
     monkeypatch.setattr(RasterSource, "_cells_into", record)
     monkeypatch.setattr(PlainSource, "_block", record_plain)

@@ -97,8 +97,14 @@ def test_plain_files_read_as_gdal_reads_them(tmp_path, case):
             for c in range(0, w, bw):
                 size = (min(bh, h - r), min(bw, w - c))
                 got = plain.block_cells(r, c, *size)
+                want = gdal.block_cells(r, c, *size)
                 assert got.dtype == np.float32
-                assert np.array_equal(got, gdal.block_cells(r, c, *size), equal_nan=True), (r, c)
+                assert np.array_equal(got, want, equal_nan=True), (r, c)
+                # some rows only (a draft's sample): those rows decoded, the rest NaN
+                rows = np.arange(1, size[0], 3)
+                some = plain.block_cells(r, c, *size, rows=rows)
+                assert np.array_equal(some[rows], want[rows], equal_nan=True)
+                assert np.isnan(np.delete(some, rows, axis=0)).all()
         rng = np.random.default_rng(1)
         rows, cols = rng.integers(-3, h + 3, (40, 30)), rng.integers(-3, w + 3, (40, 30))
         assert np.array_equal(plain.cells_at(rows, cols), gdal.cells_at(rows, cols),
@@ -126,6 +132,14 @@ def test_values_near_the_nodata_value_are_masked_by_gdal(tmp_path):
     plain = PlainSource(PlainTiff(path), spec, decimate=True)
     gdal = RasterSource(path, layer="a")
     try:
+        rows = np.array([2, 3, 40])                 # rows without the near value, then with it
+        for r, c in ((0, 0), (64, 64)):
+            want = gdal.block_cells(r, c, 64, 64)
+            assert np.array_equal(plain.block_cells(r, c, 64, 64, rows=rows)[rows], want[rows],
+                                  equal_nan=True)
+            assert plain._real is None
+        assert np.array_equal(plain.block_cells(64, 64, 64, 64, rows=rows + 4)[rows + 4],
+                              gdal.block_cells(64, 64, 64, 64)[rows + 4], equal_nan=True)
         for r, c in ((0, 0), (64, 64)):
             assert np.array_equal(plain.block_cells(r, c, 64, 64), gdal.block_cells(r, c, 64, 64),
                                   equal_nan=True)
