@@ -255,8 +255,8 @@ class PlainTiff:
             planes = np.frombuffer(raw, np.uint8).reshape(rows, item * bw)
             if need is not None:
                 planes = planes[need]
-            planes = np.cumsum(planes, axis=1, dtype=np.uint8).reshape(-1, item, bw)
-            native = planes[:, ::-1] if np.little_endian else planes
+            sums = np.cumsum(planes, axis=1, dtype=np.uint8).reshape(-1, item, bw)
+            native = sums[:, ::-1] if np.little_endian else sums
             return np.ascontiguousarray(native.transpose(0, 2, 1)).view(self.dtype) \
                 .reshape(-1, bw)
         order: Any = self.order
