@@ -14,7 +14,17 @@ import numpy as np
 
 from compose.page.contrast import GRID_ALPHA
 from compose.page.geometry import BAR_LABEL_PT, grid_lines
-from compose.page.layout import NOTE_PT, PAD, SUBTITLE_PT, TITLE_PT, PageLayout
+from compose.page.layout import (
+    NOTE_PT,
+    PAD,
+    SCALE_LINE_PT,
+    SCALE_LINE_STEP,
+    SCALE_LINE_TOP,
+    SUBTITLE_PT,
+    TITLE_PT,
+    PageLayout,
+    scale_lines,
+)
 from compose.page.vectors import emit_layer
 
 __all__ = ["page_figure", "start_page_figure", "finish_page_figure", "finishes", "furniture_only",
@@ -126,16 +136,9 @@ class _Page:
                       ha="center", va="bottom", zorder=3)
         self.text(x0 + bar.length_mm + 2.2, top + 0.7, bar.unit, BAR_LABEL_PT, ha="left",
                   va="center", zorder=3)
-        lines = []
-        if self.page.scale is not None:
-            lines.append(f"Scale 1:{self.page.scale:,.0f}".replace(",", "\u2009"))
-        elif bar.ratio > 0:
-            n = float(f"{bar.ratio:.2g}")
-            lines.append(f"Scale about 1:{n:,.0f} at the map centre".replace(",", "\u2009"))
-        if bar.note:
-            lines.append(f"Scale {bar.note}")
-        for k, s in enumerate(lines):
-            self.text(x0, top + 3.0 + k * 2.8, s, 6.0, ha="left", va="top", zorder=3)
+        for k, s in enumerate(scale_lines(self.page, bar)):
+            self.text(x0, top + SCALE_LINE_TOP + k * SCALE_LINE_STEP, s, SCALE_LINE_PT,
+                      ha="left", va="top", zorder=3)
 
     def north(self, piece):
         from matplotlib.patches import Polygon

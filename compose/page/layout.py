@@ -123,6 +123,39 @@ def band_scale(kind: str, text: str, width_mm: float, key: str) -> float:
     return scale
 
 
+#: the scale bar's lines under the bar: their type (pt), the first one's top and the step
+#: between them (mm from the bar's top)
+SCALE_LINE_PT, SCALE_LINE_TOP, SCALE_LINE_STEP = 6.0, 3.0, 2.8
+
+
+def scale_lines(page, bar: ScaleBar) -> list[str]:
+    """The lines written under the scale bar: the print scale (stated, or about, at the map
+    centre), and where the scale holds when it varies, a line for each of its two clauses."""
+    lines = []
+    if page.scale is not None:
+        lines.append(f"Scale 1:{page.scale:,.0f}".replace(",", "\u2009"))
+    elif bar.ratio > 0:
+        n = float(f"{bar.ratio:.2g}")
+        lines.append(f"Scale about 1:{n:,.0f} at the map centre".replace(",", "\u2009"))
+    if bar.note:
+        first, _, rest = f"Scale {bar.note}".partition("; ")
+        lines += [first] + ([rest] if rest else [])
+    return lines
+
+
+def scalebar_size(page, bar: ScaleBar) -> tuple[float, float]:
+    """(w, h) mm of the scale bar piece: the bar with its unit, or its widest line under it if
+    wider (a line ran past the piece: out of a corner's paper box, under the north arrow), and
+    room for every line."""
+    from compose.layers.label_text import text_width
+
+    lines = scale_lines(page, bar)
+    widest = max((text_width(t, SCALE_LINE_PT, "DejaVu Sans", "normal") * PT_MM for t in lines),
+                 default=0.0)
+    return (max(bar.length_mm + 8.0, 1.5 + widest + 1.0),
+            SCALEBAR_H + SCALE_LINE_STEP * max(len(lines) - 1, 0))
+
+
 def bottom_panel_height(room_h: float) -> float:
     """Height (mm) of a bottom panel when ``room_h`` mm are left for the frame and the panel."""
     return min(BOTTOM_MAX, max(BOTTOM_MIN, BOTTOM_SHARE * room_h))
@@ -259,8 +292,7 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
                     else 35.0, page.scalebar.units) if page.scalebar.place != "off" else None
     north = north_angle(canvas) if page.north != "off" else None
     sizes = {"legend": legend_size if page.legend != "off" else None,
-             "scalebar": (bar.length_mm + 8.0, SCALEBAR_H + (3.0 if bar and bar.note else 0.0))
-             if bar else None,
+             "scalebar": scalebar_size(page, bar) if bar else None,
              "north": (NORTH_W, NORTH_H) if north is not None else None}
     places = {"legend": page.legend, "scalebar": page.scalebar.place, "north": page.north}
     if side == "bottom":

@@ -153,3 +153,48 @@ def test_a_map_of_any_shape_sits_centred(tmp_path, extent, orientation, more):
     layout = page_layout(style, LEGEND)
     _centred(style, layout, panel_side(style), 5.0 if "grid" in more else 0.0)
     _inside_and_apart(layout)
+
+
+def _drawn_extents(style, layout):
+    """(text, (x0, y0, x1, y1) mm) of every text the page draws, as matplotlib lays it out."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from compose.page.draw import page_figure
+
+    fig = page_figure(style, layout, None)
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    ax = next(a for a in fig.axes if a.texts)
+    to_mm = ax.transData.inverted()
+    out = []
+    for t in ax.texts:
+        (xa, ya), (xb, yb) = to_mm.transform(t.get_window_extent(renderer).get_points())
+        out.append((t.get_text(), t.get_position(), (min(xa, xb), min(ya, yb), max(xa, xb),
+                                                     max(ya, yb))))
+    return out
+
+
+@pytest.mark.parametrize("crs", ["projected", "geographic"])
+@pytest.mark.parametrize("place", ["panel", "bottom right", "bottom left"])
+def test_the_scale_lines_stay_in_their_piece(tmp_path, crs, place):
+    """The lines under the scale bar ("Scale about 1:12 000 at the map centre", and on a map
+    in degrees where the scale holds) ran past the piece: out of a corner's paper box over the
+    map (seen on the demo's page with the bar at bottom right), under the panel's north arrow.
+    Every text of the scale bar now lies inside its piece, and clear of the north arrow."""
+    more = f'scalebar = "{place}"'
+    style = _style(tmp_path, "landscape", more)
+    if crs == "geographic":
+        style = load_style(style.path, overrides={"map.crs": "EPSG:4326", "map.pixel": 0.01,
+                                                  "map.extent": [2.0, 44.0, 6.0, 48.0]})
+    layout = page_layout(style, LEGEND)
+    bar, north = layout.piece("scalebar"), layout.piece("north")
+    x, y, w, h = bar.box
+    texts = [(s, box) for s, (px, py), box in _drawn_extents(style, layout)
+             if x <= px <= x + w and y <= py <= y + h]
+    assert len(texts) >= 4                      # labels, unit, at least one line under the bar
+    if crs == "geographic":
+        assert any(s.startswith("Scale true at") for s, _ in texts)
+    nx, ny, nw, nh = north.box
+    for s, (x0, y0, x1, y1) in texts:
+        assert x - 1e-6 <= x0 and x1 <= x + w + 1e-6 and y - 1e-6 <= y0 and y1 <= y + h, (s, bar.box)
+        assert x1 <= nx or x0 >= nx + nw or y1 <= ny or y0 >= ny + nh, (s, north.box)
+    _inside_and_apart(layout)
