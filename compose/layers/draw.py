@@ -34,13 +34,24 @@ import shapely
 from affine import Affine
 
 from compose.errors import StyleError
-from compose.layers import label_text
 from compose.layers.agg import Path, renderer_class
-from compose.layers.label_text import TextShape, measure_text
 from compose.layers.paths import area_path, dashed, display, flatten, line_path, to_pixels
 
 if TYPE_CHECKING:
     from matplotlib.font_manager import FontProperties
+
+    from compose.layers.label_text import TextShape, measure_text
+
+
+def __getattr__(name: str) -> Any:
+    """``TextShape`` and ``measure_text`` of :mod:`compose.layers.label_text`, imported on first
+    use: lines, areas and points never need it (nor the modules it loads: tempfile and more,
+    about 4 ms of a draft's marks process)."""
+    if name in ("TextShape", "measure_text"):
+        from compose.layers import label_text
+
+        return getattr(label_text, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 __all__ = ["CAPS", "JOINS", "SHAPES", "ANCHORS", "TextShape", "measure_text", "to_pixels",
            "draw_lines", "stroke_path", "draw_areas", "draw_points", "draw_texts", "draw_text_shapes",
@@ -326,6 +337,8 @@ def text_outline(text: str, size_px: float, prop: FontProperties) -> tuple[np.nd
     """(vertices (N, 2) float64, a copy; codes) of ``text``'s glyph outlines at ``size_px``, as
     matplotlib's ``TextPath((0, 0), text, size=size_px, prop=prop)`` gives them
     (:func:`compose.layers.label_text.text_outline` for ``prop``'s first family and weight)."""
+    from compose.layers import label_text
+
     return label_text.text_outline(text, float(size_px), prop.get_family()[0], prop.get_weight())
 
 
@@ -333,6 +346,8 @@ def _text_extent(text: str, prop: FontProperties) -> tuple[float, float, float]:
     """(width, height, descent) in pixels of ``text`` as matplotlib's Agg backend measures it
     (``get_text_width_height_descent`` of plain text at :data:`_DPI`;
     :mod:`compose.layers.label_text`)."""
+    from compose.layers import label_text
+
     return label_text._text_extent(text, float(prop.get_size_in_points()),
                                    label_text.face(prop.get_family()[0], prop.get_weight()))
 
@@ -383,6 +398,8 @@ def draw_texts(items, transform: Affine, width: int, height: int, *, size_px: fl
     anchor (default "center", see :data:`ANCHORS`) names the point of the text box placed at
     (x, y). Returns (text coverage, halo coverage or None when ``halo_px`` is 0).
     """
+    from compose.layers.label_text import measure_text
+
     placed = []
     for item in items:
         x, y, text = item[:3]

@@ -16,10 +16,9 @@ import functools
 import itertools
 import threading
 from collections.abc import Mapping
-from concurrent.futures import Future
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import shapely
@@ -384,8 +383,41 @@ def simplified(geoms: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.ndar
 #: flat lines when they are all LineStrings (:meth:`VectorSource.lines`).
 _LINE_TABLES = ("LINESTRING", "GEOMETRY")
 
+class _Pending:
+    """The result of a read a thread of :func:`read_early` makes (what a
+    ``concurrent.futures.Future`` gives here, without importing that package and logging: about
+    2 ms of a draft's marks process)."""
+
+    __slots__ = ("_done", "_value", "_error")
+
+    def __init__(self) -> None:
+        self._done = threading.Event()
+        self._value: Any = None
+        self._error: BaseException | None = None
+
+    def set_result(self, value: Any) -> None:
+        self._value = value
+        self._done.set()
+
+    def set_exception(self, error: BaseException) -> None:
+        self._error = error
+        self._done.set()
+
+    def exception(self) -> BaseException | None:
+        """The read's error (None when it succeeded), once it is over."""
+        self._done.wait()
+        return self._error
+
+    def result(self) -> Any:
+        """The read's result once it is over (its error raised)."""
+        self._done.wait()
+        if self._error is not None:
+            raise self._error
+        return self._value
+
+
 #: Reads started by :func:`read_early`, by (path, file version, table, filter).
-_EARLY: dict[tuple, Future] = {}
+_EARLY: dict[tuple, _Pending] = {}
 _EARLY_LOCK = threading.Lock()
 
 
@@ -416,7 +448,7 @@ def read_early(path, *, layer: str, table: str | None = None,
     before_threads()
 
     key = _early_key(path, table, where, simplify)
-    future: Future = Future()
+    future = _Pending()
     with _EARLY_LOCK:
         if key in _EARLY:
             return

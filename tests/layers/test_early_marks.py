@@ -143,8 +143,9 @@ for _ in range(5):
     job = em._Job(lambda send, hand_over, claim: claim())
     mine = job.claim()
     message = job.receive(60.0)
+    theirs = job.result(message) if message and message[0] == "done" else None
     job.abort()
-    got.append([mine, message[1] if message and message[0] == "done" else None])
+    got.append([mine, theirs])
 print(json.dumps(got))
 """
 
