@@ -186,3 +186,57 @@ def test_the_tiles_drawn_apart_put_together_are_the_whole_canvas_drawn_at_once()
         for a, b in zip(together, at_once):
             assert a.color == b.color and a.alpha.dtype == b.alpha.dtype
             assert np.array_equal(a.alpha, b.alpha)
+
+
+_EITHER = """
+import json, sys
+import numpy as np
+from compose.check.draft import draft_canvas
+from compose.layers import early_marks as em
+from compose.layers.base import Context
+from compose.style import load_style
+from compose.style.kinds import layer_class
+
+style = load_style(sys.argv[1])
+canvas = draft_canvas(style.canvas())
+specs = [s for s in style.layers if s.enabled and s.kind in em.MARK_KINDS]
+handed = []
+real_taken = em._Job.taken
+em._Job.taken = lambda self, where: handed.append(where) or real_taken(self, where)
+ahead = em.MarksAhead._fork(style, canvas, specs)
+if sys.argv[2] == "theirs":             # the process claims the first tile before this one asks
+    import os, time
+    while os.pread(ahead._job._memory, 1, 0) in (b"", b"\\0"):
+        time.sleep(0.005)
+ctx = Context(canvas=canvas, ramps={}, style=style, draft=True)
+same = []
+for spec in specs:
+    margin, paints = ahead.result(spec.name)
+    layer = layer_class(spec.kind)(spec, ctx)
+    whole = canvas.whole(layer.margin)
+    _, _, h, w = whole.padded
+    at_once = layer.paint(whole, canvas.window_transform(whole), h, w)
+    same.append(margin == layer.margin and [p.part for p in paints] == [p.part for p in at_once]
+                and all(np.array_equal(a.alpha, b.alpha) for a, b in zip(paints, at_once)))
+ahead.close()
+print(json.dumps({"same": same, "drawn here": len(ahead._here), "handed": len(handed),
+                  "paints first": handed[-1][0] == em._DATA}))
+"""
+
+
+def test_the_first_tile_drawn_by_either_process_gives_the_same_paints():
+    """The check's process asks for the first tile at once (the process is still reading):
+    the process hands its layers over when it sees the claim and this one draws the tile; or
+    the process has the tile (claimed first) and hands no layers over (one message: its paints).
+    Either way each mark layer's paints of the whole draft canvas are the layer's own, byte for
+    byte."""
+    for who in ("ours", "theirs"):
+        out = subprocess.run([sys.executable, "-c", _EITHER, str(STYLES / "coast.toml"), who],
+                             capture_output=True, text=True, cwd=ROOT, check=True, timeout=120)
+        got = json.loads(out.stdout.strip().splitlines()[-1])
+        assert got["same"] and all(got["same"]), who
+        if who == "ours":
+            assert got["drawn here"] == 1 and got["handed"] == 2     # layers, then paints
+        else:
+            assert got["drawn here"] == 0 and got["handed"] == 1     # paints only,
+            assert got["paints first"]          # the first bytes of the memory file
