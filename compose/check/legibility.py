@@ -149,7 +149,7 @@ def _halo_near_ground(rgb, fig, background, limit: float):
         weights = None
     else:
         keep = np.nonzero(hist > 0)[0]
-        base, weights = beneath_color_centres()[keep], hist[keep]
+        base, weights = beneath_color_centres(keep), hist[keep]
     lch = np.atleast_2d(srgb_to_lch(np.atleast_2d(base)))
     if weights is None:
         Lb, Cb, hb = lch[0]
@@ -223,7 +223,7 @@ def distinct_share(lab_fig: np.ndarray, beneath_hist: np.ndarray, size_deg: floa
     (k, 3) at mark size ``size_deg`` -> (k,)."""
     keep = np.nonzero(beneath_hist > 0)[0]
     w = beneath_hist[keep]
-    lab_b = srgb_to_lab(beneath_color_centres()[keep])
+    lab_b = srgb_to_lab(beneath_color_centres(keep))
     nd = noticeable_difference(size_deg)
     d = (np.asarray(lab_fig, dtype=float)[:, None, :] - lab_b[None, :, :]) / nd
     distinct = np.sqrt(np.sum(d * d, axis=-1)) >= 1.0

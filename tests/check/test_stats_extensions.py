@@ -38,6 +38,8 @@ def test_beneath_codes_and_centres_round_trip():
     step = 2 ** (8 - BENEATH_BITS)
     centres = beneath_color_centres()[codes] * 255
     assert np.all(np.abs(centres - rgb8) <= step / 2)
+    # the centres of some bins only: the same floats as the whole table's rows
+    assert beneath_color_centres(codes).tobytes() == beneath_color_centres()[codes].tobytes()
 
 
 def test_histogram_percentiles_and_data_only():
