@@ -220,6 +220,9 @@ class PlainTiff:
                 geo[key] = value
             elif key not in (1026, 2049):           # citations: names only
                 raise NotPlain(f"GeoKey {key}")
+        citations = tags.get(34737, ("",))[0]
+        if "ESRI PE" in citations or "IMAGINE" in citations:      # a CRS GDAL reads from text
+            raise NotPlain("a CRS in a citation")
         model, raster = geo.get(1024), geo.get(1025, 1)
         if raster != 1:
             raise NotPlain("pixel is point")
