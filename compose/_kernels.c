@@ -627,6 +627,22 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
     const Py_ssize_t lo = g->lo, k2 = g->k2, plane = g->plane;
     const size_t m = (size_t)g->m;
     const Tables t = *g->t;
+    Py_ssize_t run_e = -1, run_at = -1, run_ae = 0;
+    uint32_t run_n = 0;
+    double s0 = 0.0, s1 = 0.0, s2 = 0.0;
+    /* a count of n more samples in cell at (entry ae): added to its uint8 counter, each 256
+       it wraps past added to the tables at once (whole numbers: the same sums) */
+#define GRAY_COUNT_FLUSH() do {                                                              \
+        if (run_at >= 0) {                                                                   \
+            uint32_t v_ = (uint32_t)c8[run_at] + run_n;                                      \
+            c8[run_at] = (uint8_t)v_;                                                        \
+            if (__builtin_expect(v_ >> 8, 0)) {                                              \
+                double x_ = 256.0 * (double)(v_ >> 8);                                       \
+                cts[run_at] += x_;                                                           \
+                cnt[run_ae] += x_;                                                           \
+            }                                                                                \
+        }                                                                                    \
+    } while (0)
     for (Py_ssize_t i = 0; i < g->k1; i++) {
         const uint16_t *restrict ix = (const uint16_t *)(g->ibase + i * g->irow);
         const uint8_t *restrict p0 = g->pbase + i * g->prow;
@@ -646,7 +662,16 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
         for (Py_ssize_t q = 0; q < n; q++) {
             const Py_ssize_t j = has_hidden ? kept[q] : q;
             Py_ssize_t e = (Py_ssize_t)ix[2 * j] - lo;
-            if (__builtin_expect((size_t)e >= m, 0)) return 1;
+            if (__builtin_expect((size_t)e >= m, 0)) {
+                if (run_e >= 0) {
+                    double *c3 = col + 3 * run_e;
+                    c3[0] = s0;
+                    c3[1] = s1;
+                    c3[2] = s2;
+                }
+                GRAY_COUNT_FLUSH();
+                return 1;
+            }
             uint8_t r = p0[2 * j], gg = p0[2 * j + plane], b = p0[2 * j + 2 * plane];
             uint32_t rgb = ((uint32_t)r << 16) | ((uint32_t)gg << 8) | b;
             if (rgb != last_rgb) {
@@ -656,17 +681,43 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
                 y += ytab[512 + b];
                 last_l = lbin[y_cell(&t, y)];
             }
+            /* a run of samples of one (entry, L*) cell counted in a register, then added */
             Py_ssize_t at = e * 101 + last_l;
-            if (__builtin_expect(++c8[at] == 0, 0)) {
-                cts[at] += 256.0;
-                cnt[e] += 256.0;
+            if (at != run_at) {
+                GRAY_COUNT_FLUSH();
+                run_at = at;
+                run_ae = e;
+                run_n = 0;
             }
-            double *c3 = col + 3 * e;
-            c3[0] += l8[r];
-            c3[1] += l8[gg];
-            c3[2] += l8[b];
+            run_n++;
+            /* the entry's colour sums held in registers while its run lasts: the same
+               additions in the same order, without a round trip through memory each */
+            if (e != run_e) {
+                if (run_e >= 0) {
+                    double *c3 = col + 3 * run_e;
+                    c3[0] = s0;
+                    c3[1] = s1;
+                    c3[2] = s2;
+                }
+                run_e = e;
+                const double *c3 = col + 3 * e;
+                s0 = c3[0];
+                s1 = c3[1];
+                s2 = c3[2];
+            }
+            s0 += l8[r];
+            s1 += l8[gg];
+            s2 += l8[b];
         }
     }
+    if (run_e >= 0) {
+        double *c3 = col + 3 * run_e;
+        c3[0] = s0;
+        c3[1] = s1;
+        c3[2] = s2;
+    }
+    GRAY_COUNT_FLUSH();
+#undef GRAY_COUNT_FLUSH
     for (size_t e = 0; e < m; e++) {
         const uint8_t *restrict c = c8 + e * 101;
         double *restrict d = cts + e * 101;
