@@ -591,8 +591,9 @@ static inline __attribute__((always_inline)) int gray_row(
     return 0;
 }
 
-/* What gray's specialised loop reads: the sampled arrays' rows (every element 2 apart: the
- * grey order's samples of every 2nd column, compose.measure.GRAY_STRIDE), and its tables. */
+/* What gray's specialised loop reads: the sampled arrays' rows (every element 2 or 4 apart:
+ * the grey order's samples of every 2nd or 4th column, compose.check.stats.gray_stride), and
+ * its tables. */
 typedef struct {
     const char *ibase; Py_ssize_t irow;         /* uint16 entries */
     const uint8_t *pbase; Py_ssize_t prow, plane;   /* the composite's 8-bit planes */
@@ -606,8 +607,8 @@ typedef struct {
 } GraySampled;
 
 /* gray's loop for uint16 entries, no alpha and nothing above, colours counted, over samples
- * 2 elements apart, in a function of its own so that its pointers stay in registers: the same
- * numbers as gray_row. 1 when an entry lies outside lo..lo + m - 1.
+ * S (2 or 4) elements apart, in a function of its own so that its pointers stay in registers:
+ * the same numbers as gray_row. 1 when an entry lies outside lo..lo + m - 1.
  * The counts are whole numbers, so they are counted in uint8 (the entries x L* cells a
  * window touches lie scattered over hundreds of kB as float64: an eighth of the bytes stays
  * in cache) and added to cts at the end, whole numbers added in another grouping, exactly (a
@@ -615,7 +616,8 @@ typedef struct {
  * counted, so each entry's count is its row's sum. The colour sums stay float64, added pixel
  * by pixel in row-major order as gray_row adds them. */
 static inline __attribute__((always_inline)) int gray_sampled_body(const GraySampled *g,
-                                                                   const int has_hidden) {
+                                                                   const int has_hidden,
+                                                                   const Py_ssize_t S) {
     const float *restrict ytab = g->t->ytab;
     const uint8_t *restrict lbin = g->t->lbin;
     const double *restrict l8 = g->l8;
@@ -656,12 +658,12 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
             n = 0;
             for (Py_ssize_t j = 0; j < k2; j++) {
                 kept[n] = (int32_t)j;
-                n += hd[2 * j] < 0.02f;
+                n += hd[S * j] < 0.02f;
             }
         }
         for (Py_ssize_t q = 0; q < n; q++) {
             const Py_ssize_t j = has_hidden ? kept[q] : q;
-            Py_ssize_t e = (Py_ssize_t)ix[2 * j] - lo;
+            Py_ssize_t e = (Py_ssize_t)ix[S * j] - lo;
             if (__builtin_expect((size_t)e >= m, 0)) {
                 if (run_e >= 0) {
                     double *c3 = col + 3 * run_e;
@@ -672,7 +674,7 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
                 GRAY_COUNT_FLUSH();
                 return 1;
             }
-            uint8_t r = p0[2 * j], gg = p0[2 * j + plane], b = p0[2 * j + 2 * plane];
+            uint8_t r = p0[S * j], gg = p0[S * j + plane], b = p0[S * j + 2 * plane];
             uint32_t rgb = ((uint32_t)r << 16) | ((uint32_t)gg << 8) | b;
             if (rgb != last_rgb) {
                 last_rgb = rgb;
@@ -731,11 +733,20 @@ static inline __attribute__((always_inline)) int gray_sampled_body(const GraySam
 }
 
 static __attribute__((noinline)) int gray_sampled_hidden(const GraySampled *g) {
-    return gray_sampled_body(g, 1);
+    return gray_sampled_body(g, 1, 2);
 }
 
 static __attribute__((noinline)) int gray_sampled_shown(const GraySampled *g) {
-    return gray_sampled_body(g, 0);
+    return gray_sampled_body(g, 0, 2);
+}
+
+/* the same over samples 4 elements apart (large canvases: compose.check.stats.gray_stride) */
+static __attribute__((noinline)) int gray_sampled_hidden4(const GraySampled *g) {
+    return gray_sampled_body(g, 1, 4);
+}
+
+static __attribute__((noinline)) int gray_sampled_shown4(const GraySampled *g) {
+    return gray_sampled_body(g, 0, 4);
 }
 
 PyDoc_STRVAR(gray_doc,
@@ -800,8 +811,10 @@ static PyObject *gray(PyObject *self, PyObject *args) {
     const Py_ssize_t ij = index.b.strides[1];
     const int u16 = index.b.itemsize == 2 && index.kind == K_UINT;
     /* the commonest case, samples 2 elements apart: its own loop (the same numbers) */
-    int sampled = u16 && !alpha.held && !above.held && cnt && ij == 4 && pj == 2
-                  && (!hidden.held || hj == 8) && k1 > 0;
+    /* the samples' step in elements: 2 or 4 (compose.check.stats.gray_stride), else 0 */
+    const Py_ssize_t step = (ij == 4 && pj == 2 && (!hidden.held || hj == 8)) ? 2
+                            : (ij == 8 && pj == 4 && (!hidden.held || hj == 16)) ? 4 : 0;
+    int sampled = u16 && !alpha.held && !above.held && cnt && step && k1 > 0;
     uint8_t *c8 = sampled ? (uint8_t *)PyMem_RawCalloc((size_t)m * 101 + 4 * (size_t)k2 + 4, 1)
                            : NULL;
     if (sampled && c8) {
@@ -811,7 +824,10 @@ static PyObject *gray(PyObject *self, PyObject *args) {
                          hidden.held ? hidden.b.strides[0] : 0,
                          k1, k2, lo, m, &t, l8, cts, cnt, col, c8,
                          (int32_t *)(c8 + (((size_t)m * 101 + 3) & ~(size_t)3))};
-        bad = hidden.held ? gray_sampled_hidden(&g) : gray_sampled_shown(&g);
+        if (step == 2)
+            bad = hidden.held ? gray_sampled_hidden(&g) : gray_sampled_shown(&g);
+        else
+            bad = hidden.held ? gray_sampled_hidden4(&g) : gray_sampled_shown4(&g);
     }
     PyMem_RawFree(c8);
     sampled = sampled && c8;       /* out of memory: the rows' loop below, the same numbers */

@@ -33,6 +33,7 @@ from compose.check.stats import (  # the Y -> L* table and its size
     LayerStats,
     PartStats,
     Statistics,
+    gray_stride,
 )
 from compose.color.bulk import CHANNEL_XYZ
 from compose.color.srgb import srgb_to_linear
@@ -41,9 +42,7 @@ from compose.composite import composite_flat_gathering
 from compose.kernels import get as compiled
 from compose.style.kinds import LAYER_KINDS
 
-__all__ = ["GRAY_STRIDE", "new_statistics", "WindowMeasure"]
-
-GRAY_STRIDE = 2  # the grey-order histogram samples every 2nd row and column
+__all__ = ["new_statistics", "WindowMeasure"]
 # linear-light value of each 8-bit sRGB code (IEC 61966-2-1 decoding, compose.color.srgb)
 _LINEAR8 = srgb_to_linear(np.arange(256) / 255.0)
 
@@ -637,9 +636,11 @@ class WindowMeasure:
         themes = [t for t in self._themes if self.stats.layers[t[0]].measures("value_lightness")]
         if themes:
             # Grey order is a rank correlation: every second row and column (a quarter of the
-            # pixels, on the canvas's own even grid so windows agree) estimates it as well.
-            r_off, c_off = (self.window.row % 2), (self.window.col % 2)
-            sub = (slice(r_off, None, GRAY_STRIDE), slice(c_off, None, GRAY_STRIDE))
+            # pixels; every fourth on large canvases, compose.check.stats.gray_stride), on the
+            # canvas's own grid so windows agree, estimates it as well.
+            step = gray_stride(self.stats.width, self.stats.height)
+            r_off, c_off = (-self.window.row) % step, (-self.window.col) % step
+            sub = (slice(r_off, None, step), slice(c_off, None, step))
             # planar (3, k): each channel contiguous
             view = (planes8[(slice(None),) + sub] if planes8 is not None
                     else np.moveaxis(rgb8[sub], -1, 0))

@@ -369,21 +369,26 @@ def test_gray_order_at_its_thresholds_equals_the_numpy_path(use, first_opaque):
     assert results[0].layers[0].value_color.any() and results[0].layers[1].value_lightness.any()
 
 
+@pytest.mark.parametrize("canvas", ["small", "large"])
 @pytest.mark.parametrize("cover", [True, False])
 @pytest.mark.parametrize("index_type", [np.uint16, np.uint8, np.int64])
-def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_type):
+def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_type, canvas):
     # One opaque theme (the kernel's own loops for uint16 entries under overlays and under none;
-    # any other index type takes its general loop), sampled from a window at an odd place
+    # any other index type takes its general loop), sampled from a window at an odd place; on
+    # a canvas of 16 Mpixel or more every 4th row and column (compose.check.stats.gray_stride)
     from types import SimpleNamespace
 
-    from compose.check.stats import N_LIGHTNESS, Statistics
+    from compose.check.stats import N_LIGHTNESS, Statistics, gray_stride
 
     rng = np.random.default_rng(5)
     h, w, n = 41, 38, 200
     layer = LayerStats(name="t", role="theme", kind="field", values=np.arange(n, dtype=float),
                        value_lightness=np.zeros((n, N_LIGHTNESS)), value_color=np.zeros((n, 3)),
                        value_count=np.zeros(n))
-    template = Statistics(width=w, height=h, layers=[layer], background=(1.0, 1.0, 1.0))
+    side = (w, h) if canvas == "small" else (4096, 4096)    # the window's own canvas, or a large one
+    template = Statistics(width=side[0], height=side[1], layers=[layer], background=(1.0, 1.0, 1.0))
+    step = gray_stride(*side)
+    assert step == (2 if canvas == "small" else 4)
     planes8 = rng.integers(0, 256, (3, h, w)).astype(np.uint8)
     planes8[:, :10] = 77                # a flat colour: L* of the previous pixel again
     rgb8 = np.ascontiguousarray(np.moveaxis(planes8, 0, -1))
@@ -404,8 +409,17 @@ def test_gray_order_of_one_opaque_theme_equals_the_numpy_path(use, cover, index_
         assert getattr(a, name).tobytes() == getattr(b, name).tobytes(), name
     # checked against the pixels themselves: every sample counted once, where not covered
     kept = np.ones((h, w), bool) if hidden is None else hidden < 0.02
-    sampled = kept[1::2, 1::2]      # the canvas's even grid: rows 4, 6, ..., columns 2, 4, ...
+    # the canvas's own grid: rows 4, 6, ..., columns 2, 4, ... (step 2: window row 3, column 1);
+    # rows 4, 8, ..., columns 4, 8, ... (step 4)
+    sampled = kept[1::2, 1::2] if step == 2 else kept[1::4, 3::4]
     assert a.value_lightness.sum() == a.value_count.sum() == sampled.sum() > 0
+    if index_type is np.uint16:     # the colour sums: each sample's linear-light channels
+        lin = M._LINEAR8[planes8[:, 1::step, (1 if step == 2 else 3)::step]]
+        sub = index[1::step, (1 if step == 2 else 3)::step]
+        got = np.zeros((n, 3))
+        for c in range(3):
+            got[:, c] = np.bincount(sub[sampled], weights=lin[c][sampled], minlength=n)
+        np.testing.assert_allclose(a.value_color, got, rtol=1e-12)
 
 
 @pytest.mark.parametrize("entries", [1, 2])

@@ -44,7 +44,8 @@ class QuietNumbers:
 
 
 def _sampled_canvas(ctx: CheckContext) -> float:
-    # the blended colours are summed on every 2nd row and column of the canvas's own grid
+    # the blended colours are summed on the rows and columns of the canvas's own grid that are
+    # multiples of the grey order's step (compose.check.stats.gray_stride)
     return float(ctx.stats.sampled_pixels)
 
 

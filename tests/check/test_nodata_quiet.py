@@ -89,3 +89,22 @@ def test_a_muted_ramp_leaves_no_light_neutral_and_the_fix_is_the_paper_not_a_mid
     lab = colour.XYZ_to_Lab(colour.sRGB_to_XYZ(np.asarray(parse_color(bad.change.values["nodata"]))))
     assert colour.delta_E(lab, colour.XYZ_to_Lab(colour.sRGB_to_XYZ(np.ones(3))),
                           method="CIE 2000") < 0.5
+
+
+def test_the_share_of_the_map_counts_the_gray_orders_samples():
+    # the no-data share is its sampled count over the canvas's samples: every 2nd row and
+    # column, every 4th on canvases of 16 Mpixel and more (compose.check.stats.gray_stride);
+    # our own arithmetic, no source
+    from types import SimpleNamespace
+
+    from compose.check.nodata_quiet import _sampled_canvas
+    from compose.check.stats import Statistics
+
+    def ctx(w, h):
+        return SimpleNamespace(stats=Statistics(width=w, height=h, layers=[],
+                                                background=(1.0, 1.0, 1.0)))
+
+    assert _sampled_canvas(ctx(1501, 1000)) == 751 * 500
+    assert _sampled_canvas(ctx(3999, 4000)) == 2000 * 2000          # 15,996,000 pixels
+    assert _sampled_canvas(ctx(4000, 4000)) == 1000 * 1000          # 16,000,000 pixels
+    assert _sampled_canvas(ctx(8193, 8192)) == 2049 * 2048
