@@ -402,9 +402,12 @@ def compute_floor_turn(folder: Path, size: int) -> float:
 
 
 def statistics_lines(total: float, pairs: list[tuple[float, float]],
-                     cpu_pairs: list[tuple[float, float]], inside: dict) -> None:
+                     cpu_pairs: list[tuple[float, float]], inside: dict, size: int) -> None:
     """The statistics' three figures: the alternating pairs' wall and CPU differences and the
-    walks timed inside, each over ``total`` (the 1-worker bare render's wall time)."""
+    walks timed inside, each over ``total`` (the 1-worker bare render's wall time) of a
+    ``size`` x ``size`` canvas."""
+    from compose.check.stats import gray_stride
+    step = gray_stride(size, size)
     cost = statistics.median(m - p for p, m in pairs)
     cpu = statistics.median(m - p for p, m in cpu_pairs)
     print(f"  statistics share                                {100 * cost / total:6.1f} % "
@@ -420,7 +423,8 @@ def statistics_lines(total: float, pairs: list[tuple[float, float]],
           f"and the merge, median of 3 walks; of it the overlay kernel {inside['overlay']:.2f} s "
           f"(of which {inside['gathered']:.2f} s gathering what lies beneath while the overlay "
           f"is composited: that pass's time less a plain composite of the same paint beside it), "
-          f"the grey order {inside['gray']:.2f} s; the palette's entry counts are not in it)")
+          f"the grey order {inside['gray']:.2f} s, sampled on one row and column in {step} at this "
+          f"size (compose.check.stats.gray_stride); the palette's entry counts are not in it)")
 
 
 def bench_statistics(folder: Path, size: int, quick: bool) -> None:
@@ -443,7 +447,7 @@ def bench_statistics(folder: Path, size: int, quick: bool) -> None:
     inside = {k: statistics.median(i.get(k, 0.0) for i in insides)
               for k in ("measure", "overlay", "gray", "gathered")}
     print(f"  bare render, 1 worker                           {total:6.2f} s wall")
-    statistics_lines(total, pairs, cpu_pairs, inside)
+    statistics_lines(total, pairs, cpu_pairs, inside, size)
 
 
 def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
@@ -569,7 +573,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     print(f"  compute alone, CPU time of every thread          measuring {cpu_m:.2f} CPU-s, not "
           f"measuring {cpu_p:.2f} CPU-s (medians of the same turns: 1 window thread, and the "
           f"threads the walk starts beside it, e.g. its raster reads)")
-    statistics_lines(total, pairs, cpu_pairs, inside)
+    statistics_lines(total, pairs, cpu_pairs, inside, size)
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "
           f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
