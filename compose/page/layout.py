@@ -79,6 +79,8 @@ class PageLayout:
     north: float | None = None
     title: str = ""
     boxes: dict = field(default_factory=dict)
+    #: (w, h) mm a legend in the panel may take at full size (None: no legend in a panel)
+    legend_room: tuple[float, float] | None = None
 
     def piece(self, kind: str) -> Piece | None:
         return next((p for p in self.pieces if p.kind == kind), None)
@@ -296,8 +298,11 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
              "north": (NORTH_W, NORTH_H) if north is not None else None}
     places = {"legend": page.legend, "scalebar": page.scalebar.place, "north": page.north}
     if side == "bottom":
-        pieces += _bottom_panel(sizes, places, left, W - r, panel_top, panel_bottom)
+        more, legend_room = _bottom_panel(sizes, places, left, W - r, panel_top, panel_bottom)
+        pieces += more
     # the panel: legend from the top, scale bar (left) and north arrow (right) at the bottom
+    else:
+        legend_room = None
     bottom_row = max([sizes[k][1] for k in ("scalebar", "north")
                       if sizes[k] is not None and places[k] == "panel"] + [0.0])
     if side == "bottom":
@@ -305,6 +310,7 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
     elif sizes["legend"] is not None and places["legend"] == "panel":
         lw, lh = sizes["legend"]
         room = panel_bottom - panel_top - (bottom_row + GAP if bottom_row else 0.0)
+        legend_room = (PANEL_WIDTH, room)
         scale = min(1.0, max(room, 1e-6) / lh if lh > room + 0.01 else 1.0,
                     PANEL_WIDTH / lw if lw > PANEL_WIDTH + 0.01 else 1.0)
         pieces.append(Piece("legend", (px, panel_top, lw * scale, lh * scale), scale=scale))
@@ -330,14 +336,17 @@ def page_layout(style, legend_size: tuple[float, float] | None = None) -> PageLa
         if w > fw - 2 * INSET or stack[place] > fh - 2 * INSET:
             raise StyleError(f"page.{kind}: does not fit inside the map frame at {place!r}")
         pieces.append(Piece(kind, (x, yy, w, h), inside=True))
-    return PageLayout((W, H), frame, canvas, tuple(pieces), bar, north, title)
+    return PageLayout((W, H), frame, canvas, tuple(pieces), bar, north, title,
+                      legend_room=legend_room)
 
 
 def _bottom_panel(sizes: dict, places: dict, x0: float, x1: float, top: float,
-                  bottom: float) -> list[Piece]:
+                  bottom: float) -> tuple[list[Piece], tuple[float, float] | None]:
     """The pieces of a bottom panel from ``x0`` to ``x1`` mm, ``top`` to ``bottom`` mm: the north
     arrow at the right end, the scale bar left of it (both from the top), the legend from the
-    left, shrunk to the room left of them (as in the side panel)."""
+    left, shrunk to the room left of them (as in the side panel); and that room (w, h) mm. The
+    legend may take all of its width (it was held to the side panel's 70 mm, so a legend laid
+    wider was shrunk to that width with the panel half empty)."""
     out = []
     right = x1
     for kind in ("north", "scalebar"):
@@ -349,10 +358,10 @@ def _bottom_panel(sizes: dict, places: dict, x0: float, x1: float, top: float,
         lw, lh = sizes["legend"]
         room_w, room_h = right - x0, bottom - top
         scale = min(1.0, max(room_h, 1e-6) / lh if lh > room_h + 0.01 else 1.0,
-                    max(room_w, 1e-6) / lw if lw > room_w + 0.01 else 1.0,
-                    PANEL_WIDTH / lw if lw > PANEL_WIDTH + 0.01 else 1.0)
+                    max(room_w, 1e-6) / lw if lw > room_w + 0.01 else 1.0)
         out.append(Piece("legend", (x0, top, lw * scale, lh * scale), scale=scale))
-    return out
+        return out, (room_w, room_h)
+    return out, None
 
 
 def blocked_pixels(layout: PageLayout) -> list[tuple[float, float, float, float]]:

@@ -189,14 +189,17 @@ def fit_legend(style, ramps, layers, nodata_seen=None):
     legend = legend_for_page(style, ramps, layers, nodata_seen)
     if legend is None or style.page.legend != "panel":
         return legend
-    best, best_scale = legend, _layout(style, legend).piece("legend").scale
+    first = _layout(style, legend)
+    best, best_scale = legend, first.piece("legend").scale
+    # the panel's width for the legend: the side panel's, or what a bottom panel leaves
+    room_w = first.legend_room[0] if first.legend_room is not None else PANEL_WIDTH
     if best_scale < MIN_SCALE:
         for n in (2, 3, 4):
             for s in np.arange(0.98, FLOOR_SCALE - 1e-9, -0.02):
                 if s <= best_scale:             # the shrink is at most s: no gain below
                     break
                 flowed = legend_for_page(style, ramps, layers, nodata_seen, columns=n,
-                                         width=PANEL_WIDTH / 25.4 / s)
+                                         width=room_w / 25.4 / s)
                 scale = _layout(style, flowed).piece("legend").scale
                 if scale > best_scale + 1e-6:
                     best, best_scale = flowed, scale

@@ -305,3 +305,37 @@ def test_class_columns_keep_their_labels_apart(tmp_path):
             if min(a.y1, b.y1) - max(a.y0, b.y0) > 0.2 * em:       # on one line
                 gap = max(b.x0 - a.x1, a.x0 - b.x1)
                 assert gap >= em, (ta, tb, round(gap, 3))
+
+
+def test_a_bottom_panel_gives_the_legend_its_width(tmp_path):
+    """The land-cover demo on A4, upright: the legend goes under the map, where the panel has
+    127 mm left of the scale bar; it was held to the side panel's 70 mm, so its two columns
+    were shrunk to 76 % (8 pt labels printed at 6.1 pt) with the panel's right half empty. Now it
+    is laid out across that room: its labels print at 6.5 pt or more, inside the panel, clear
+    of the scale bar, and apart from each other."""
+    from compose.demo import styles_dir
+    from compose.output.legend_layout import FONT
+    from compose.page.layout import PANEL_WIDTH
+    from compose.page.write import _layout, fit_legend
+
+    path = tmp_path / "upright.toml"
+    path.write_text(f'extends = "{(styles_dir() / "cover.toml").as_posix()}"\n'
+                    '[page]\npaper = "A4"\norientation = "portrait"\n', encoding="utf-8")
+    style = load_style(path)
+    run_ = prepare(style)
+    try:
+        legend = fit_legend(style, run_.ramps, run_.layers)
+    finally:
+        run_.close()
+    layout = _layout(style, legend)
+    piece, bar = layout.piece("legend"), layout.piece("scalebar")
+    assert piece.box[1] >= layout.frame[1] + layout.frame[3]           # under the map
+    assert FONT * piece.scale >= 6.5, piece.scale
+    assert piece.box[2] > PANEL_WIDTH                                   # the room is used
+    assert piece.box[0] + piece.box[2] <= bar.box[0]                    # clear of the bar
+    boxes = _text_boxes(legend)
+    em = FONT / 72.0
+    for i, (ta, a) in enumerate(boxes):
+        for tb, b in boxes[i + 1:]:
+            if min(a.y1, b.y1) - max(a.y0, b.y0) > 0.2 * em:
+                assert max(b.x0 - a.x1, a.x0 - b.x1) >= em, (ta, tb)
