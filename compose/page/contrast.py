@@ -6,7 +6,10 @@ SC 1.4.3, ``budget.overlay.label_contrast``); marks (neat line, scale bar, north
 ticks and lines, the edge of a box inside the frame) like lines (SC 1.4.11,
 ``budget.overlay.contrast``), on ``budget.overlay.share`` of their pixels. Furniture on the
 paper, in the panel or on a corner box has the paper beneath it; grid lines drawn across the map
-and the edges of corner boxes have the map beneath them, sampled from the finished map. The
+and the edges of corner boxes have the map beneath them, sampled from the finished map. A corner
+box's edge is an ink line along a paper box, so the box stands apart from the map where the line
+or the paper beside it reaches the contrast (whichever is the greater at each pixel): a box on a
+dark sea is told from it by its paper, on a light ground by its line. The
 results join the report under the check's own rule ids (``label-contrast``,
 ``overlay-contrast``), with the layer named ``page <piece>``.
 """
@@ -28,7 +31,9 @@ GRID_ALPHA = 0.55        # opacity of grid lines across the map (compose.page.dr
 
 
 def _hex(rgb) -> str:
-    return "#" + "".join(f"{int(round(float(v) * 255)):02x}" for v in rgb)
+    rows = np.atleast_2d(np.asarray(rgb, float))
+    return " or ".join("#" + "".join(f"{int(round(float(v) * 255)):02x}" for v in row)
+                       for row in rows)
 
 
 def _edge_pixels(image: np.ndarray, box) -> np.ndarray:
@@ -73,16 +78,20 @@ def furniture_parts(style, layout, image: np.ndarray | None = None):
         if page.grid is not None and page.grid.lines and len(below):
             parts.append(("grid lines", "stroke", ink, GRID_ALPHA, below, False))
         for box in blocked_pixels(layout):
-            parts.append(("corner box", "stroke", ink, 1.0,
+            parts.append(("corner box", "stroke", np.stack([ink, paper[0]]), 1.0,
                           _edge_pixels(image, box).astype(float) / 255.0, False))
     return parts
 
 
 def _share(color, alpha, beneath, limit) -> float:
-    seen = alpha * color[None, :] + (1 - alpha) * beneath        # what the eye gets on top
-    y1 = relative_luminance(seen)
+    """The share of ``beneath`` pixels against which ``color`` (or the best of its rows, one
+    colour each) at ``alpha`` reaches WCAG contrast ``limit``."""
     y2 = relative_luminance(beneath)
-    ratio = (np.maximum(y1, y2) + 0.05) / (np.minimum(y1, y2) + 0.05)
+    ratio = np.zeros(np.shape(y2))
+    for row in np.atleast_2d(np.asarray(color, float)):
+        seen = alpha * row[None, :] + (1 - alpha) * beneath      # what the eye gets on top
+        y1 = relative_luminance(seen)
+        ratio = np.maximum(ratio, (np.maximum(y1, y2) + 0.05) / (np.minimum(y1, y2) + 0.05))
     hist = np.bincount(contrast_bins(ratio), minlength=1).astype(float)
     return contrast_share(hist, limit)
 
