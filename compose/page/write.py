@@ -191,8 +191,9 @@ def fit_legend(style, ramps, layers, nodata_seen=None):
         return legend
     first = _layout(style, legend)
     best, best_scale = legend, first.piece("legend").scale
-    # the panel's width for the legend: the side panel's, or what a bottom panel leaves
-    room_w = first.legend_room[0] if first.legend_room is not None else PANEL_WIDTH
+    # the panel's width for the legend: the side panel's, or what a bottom panel leaves when
+    # that is more (a legend laid out narrower squashes its colour bars to stubs)
+    room_w = max(first.legend_room[0] if first.legend_room is not None else 0.0, PANEL_WIDTH)
     if best_scale < MIN_SCALE:
         for n in (2, 3, 4):
             for s in np.arange(0.98, FLOOR_SCALE - 1e-9, -0.02):

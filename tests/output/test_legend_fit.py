@@ -339,3 +339,25 @@ def test_a_bottom_panel_gives_the_legend_its_width(tmp_path):
         for tb, b in boxes[i + 1:]:
             if min(a.y1, b.y1) - max(a.y0, b.y0) > 0.2 * em:
                 assert max(b.x0 - a.x1, a.x0 - b.x1) >= em, (ta, tb)
+
+
+def test_a_narrow_bottom_panel_never_squashes_the_legend(tmp_path):
+    """A6 upright: the bottom panel leaves about 11 mm left of the scale bar. The legend was laid
+    out that narrow and shrunk (its colour bars squashed to stubs, its labels past them); it is
+    never laid out narrower than the side panel's 70 mm, so this page is refused with the
+    message that says what to change, as it was before bottom panels gave their width."""
+    from compose.demo import styles_dir
+    from compose.errors import StyleError
+    from compose.page.write import fit_legend
+
+    path = tmp_path / "a6.toml"
+    path.write_text(f'extends = "{(styles_dir() / "coast.toml").as_posix()}"\n'
+                    '[page]\npaper = "A6"\norientation = "portrait"\nmargin = 5\n'
+                    'title = "Productivity"\ncredits = "Data: invented"\n', encoding="utf-8")
+    style = load_style(path)
+    run_ = prepare(style)
+    try:
+        with pytest.raises(StyleError, match="page.legend: the legend needs shrinking"):
+            fit_legend(style, run_.ramps, run_.layers)
+    finally:
+        run_.close()
