@@ -180,9 +180,11 @@ class _Page:
         sx, sy = fw / canvas.width, fh / canvas.height
         geographic = CRS.from_user_input(g.crs or canvas.crs).is_geographic
         tick = 1.4
+        ticks = []          # (axis, edge, sign, position along the edge, line index, label)
         for axis, value, pts in grid_lines(canvas, g.crs, g.step):
             mm = np.column_stack([fx + pts[:, 0] * sx, fy + pts[:, 1] * sy])
             label = format_coordinate(value, axis, geographic, g.step)
+            index = round(value / g.step)
             if g.lines:
                 from matplotlib.patches import Rectangle
                 line, = self.ax.plot(mm[:, 0], mm[:, 1], color=self.ink, lw=0.3, alpha=GRID_ALPHA,
@@ -190,21 +192,60 @@ class _Page:
                 line.set_clip_path(Rectangle((fx, fy), fw, fh, transform=self.ax.transData))
             if axis == "x":
                 for edge, sign in ((fy, -1), (fy + fh, 1)):
-                    for xc in _frame_crossings(mm, edge, 1):
-                        if fx - 1e-6 <= xc <= fx + fw + 1e-6:
-                            self.ax.plot([xc, xc], [edge, edge + sign * tick], color=self.ink,
-                                         lw=0.4, zorder=2)
-                            self.text(xc, edge + sign * (tick + 0.4), label, 5.5, ha="center",
-                                      va="bottom" if sign < 0 else "top")
+                    ticks += [("x", edge, sign, xc, index, label)
+                              for xc in _frame_crossings(mm, edge, 1)
+                              if fx - 1e-6 <= xc <= fx + fw + 1e-6]
             else:
                 for edge, sign in ((fx, -1), (fx + fw, 1)):
-                    for yc in _frame_crossings(mm, edge, 0):
-                        if fy - 1e-6 <= yc <= fy + fh + 1e-6:
-                            self.ax.plot([edge, edge + sign * tick], [yc, yc], color=self.ink,
-                                         lw=0.4, zorder=2)
-                            self.text(edge + sign * (tick + 0.5), yc, label, 5.5,
-                                      ha="center", va="bottom" if sign < 0 else "top",
-                                      rotation=90, rotation_mode="anchor")
+                    ticks += [("y", edge, sign, yc, index, label)
+                              for yc in _frame_crossings(mm, edge, 0)
+                              if fy - 1e-6 <= yc <= fy + fh + 1e-6]
+        every = {axis: grid_label_step([t for t in ticks if t[0] == axis]) for axis in ("x", "y")}
+        for axis, edge, sign, at, index, label in ticks:
+            labelled = index % every[axis] == 0
+            if axis == "x":
+                self.ax.plot([at, at], [edge, edge + sign * tick], color=self.ink, lw=0.4,
+                             zorder=2)
+                if labelled:
+                    self.text(at, edge + sign * (tick + 0.4), label, GRID_LABEL_PT, ha="center",
+                              va="bottom" if sign < 0 else "top")
+            else:
+                self.ax.plot([edge, edge + sign * tick], [at, at], color=self.ink, lw=0.4,
+                             zorder=2)
+                if labelled:
+                    self.text(edge + sign * (tick + 0.5), at, label, GRID_LABEL_PT,
+                              ha="center", va="bottom" if sign < 0 else "top",
+                              rotation=90, rotation_mode="anchor")
+
+
+#: the grid labels' type (pt) and the least room between two along an edge (mm; common
+#: practice, no source: as the scale bar's labels)
+GRID_LABEL_PT, GRID_LABEL_GAP = 5.5, 1.0
+
+
+def grid_label_step(ticks) -> int:
+    """Label every k-th grid line (those whose index, value / step, is a multiple of k), the
+    smallest k for which the labels along each edge, centred on their ticks, keep
+    :data:`GRID_LABEL_GAP` apart in the page's font; every line keeps its tick. ``ticks``:
+    (axis, edge, sign, position mm along the edge, line index, label) of one axis. Labels were
+    written at every line however close: on a small sheet they ran into each other."""
+    from compose.layers.label_text import text_width
+
+    width = {t[5]: text_width(t[5], GRID_LABEL_PT, FONT, "normal") * _IN / 72.0 for t in ticks}
+    edges: dict = {}
+    for t in ticks:
+        edges.setdefault((t[1], t[2]), []).append(t)
+    for k in range(1, len(ticks) + 2):
+        fits = True
+        for row in edges.values():
+            kept = sorted((t for t in row if t[4] % k == 0), key=lambda t: t[3])
+            if any(b[3] - a[3] < (width[a[5]] + width[b[5]]) / 2 + GRID_LABEL_GAP
+                   for a, b in zip(kept, kept[1:])):
+                fits = False
+                break
+        if fits:
+            return k
+    return len(ticks) + 2
 
 
 def shrink_artists(ax, s: float) -> None:

@@ -198,3 +198,32 @@ def test_the_scale_lines_stay_in_their_piece(tmp_path, crs, place):
         assert x - 1e-6 <= x0 and x1 <= x + w + 1e-6 and y - 1e-6 <= y0 and y1 <= y + h, (s, bar.box)
         assert x1 <= nx or x0 >= nx + nw or y1 <= ny or y0 >= ny + nh, (s, north.box)
     _inside_and_apart(layout)
+
+
+def test_grid_labels_along_an_edge_keep_apart(tmp_path):
+    """A grid every 60 m on the tiny 1.9 km map (33 lines a side, 4.9 mm apart on A4):
+    a label was written at every line, each 8 mm wide, running into the next. Now every
+    k-th line is labelled, the same lines on both sides, k the least that keeps the labels as
+    matplotlib lays them out apart along each edge; every line keeps its tick."""
+    style = _style(tmp_path, "landscape", "grid = { step = 60 }")
+    layout = page_layout(style, LEGEND)
+    fx, fy, fw, fh = layout.frame
+    texts = _drawn_extents(style, layout)
+    edges = {"top": [], "bottom": [], "left": [], "right": []}
+    for s, (px, py), box in texts:
+        if not any(ch.isdigit() for ch in s):
+            continue
+        if fx - 0.1 <= px <= fx + fw + 0.1 and py < fy:
+            edges["top"].append((px, box))
+        elif fx - 0.1 <= px <= fx + fw + 0.1 and py > fy + fh and py < fy + fh + 5:
+            edges["bottom"].append((px, box))
+        elif fy - 0.1 <= py <= fy + fh + 0.1 and px < fx:
+            edges["left"].append((py, box))
+        elif fy - 0.1 <= py <= fy + fh + 0.1 and fx + fw < px < fx + fw + 5:
+            edges["right"].append((py, box))
+    for name, labels in edges.items():
+        assert len(labels) >= 3, name
+        labels.sort(key=lambda t: t[0])
+        along = 0 if name in ("top", "bottom") else 1
+        for (_, a), (_, b) in zip(labels, labels[1:]):
+            assert b[along] - a[along + 2] >= 0.9, (name, a, b)      # 1 mm, font metrics aside
