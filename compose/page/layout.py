@@ -119,9 +119,11 @@ def band_scale(kind: str, text: str, width_mm: float, key: str) -> float:
         return 1.0
     scale = width_mm / wide * 0.98           # room for the writers' own text metrics
     if scale * size < MIN_TEXT_PT[kind]:
-        raise StyleError(f"{key}: {wide * MIN_TEXT_PT[kind] / size:.0f} mm long even at "
-                         f"{MIN_TEXT_PT[kind]:g} pt, the page leaves {width_mm:.0f} mm for it; "
-                         "shorten it or use a wider paper")
+        # the room it needs counts the same 2 % as the fit (it said "95 mm long ... leaves
+        # 95 mm": 94.6 mm of text did not fit 95 mm less that margin)
+        need = wide * MIN_TEXT_PT[kind] / size / 0.98
+        raise StyleError(f"{key}: needs {need:.1f} mm even at {MIN_TEXT_PT[kind]:g} pt, the page "
+                         f"leaves {width_mm:.1f} mm for it; shorten it or use a wider paper")
     return scale
 
 

@@ -227,3 +227,24 @@ def test_grid_labels_along_an_edge_keep_apart(tmp_path):
         along = 0 if name in ("top", "bottom") else 1
         for (_, a), (_, b) in zip(labels, labels[1:]):
             assert b[along] - a[along + 2] >= 0.9, (name, a, b)      # 1 mm, font metrics aside
+
+
+def test_a_band_line_too_long_says_how_much_more_it_needs(tmp_path):
+    """The coast demo's title on A6 upright with 5 mm margins: 94.6 mm of text at 9 pt against
+    95 mm of room less the 2 % the fit keeps for the writers' metrics. The error said "95 mm long
+    even at 9 pt, the page leaves 95 mm": the room it needs must read larger than the room
+    left."""
+    import re
+
+    from compose.demo import styles_dir
+    from compose.errors import StyleError
+
+    path = tmp_path / "a6.toml"
+    path.write_text(f'extends = "{(styles_dir() / "coast.toml").as_posix()}"\n'
+                    '[page]\npaper = "A6"\norientation = "portrait"\nmargin = 5\n',
+                    encoding="utf-8")
+    style = load_style(path)
+    with pytest.raises(StyleError, match=r"^page\.title|^map\.title") as caught:
+        page_layout(style, LEGEND)
+    need, left = (float(v) for v in re.findall(r"([0-9.]+) mm", str(caught.value))[:2])
+    assert need > left, str(caught.value)
