@@ -285,9 +285,13 @@ def main() -> None:
     ap.add_argument("--no-commands", action="store_true")
     ap.add_argument("--no-inprocess", action="store_true")
     a = ap.parse_args()
+    from compose.kernels import state
+
+    loops = state(refuse_stale=True)
     styles = [STYLES / f"{name}.toml" for name in a.styles.split(",") if name]
     load = os.getloadavg()[0]
-    print(f"compose check vs check --draft, {os.cpu_count()} cores, load average {load:.1f} at start")
+    print(f"compose check vs check --draft, {os.cpu_count()} cores, load average {load:.1f} at start, "
+          f"loops: {loops}")
     if not a.no_inprocess:
         in_process(styles, a.runs)
     if not a.no_commands:

@@ -552,6 +552,9 @@ def main() -> None:
                     help="window threads of the --cpu render: a number, or auto (the command's "
                          "default: 1 thread and the drawing helper on 2 cores)")
     a = ap.parse_args()
+    from compose.kernels import state
+
+    print(f"loops: {state(refuse_stale=True)}")
     if not a.no_demo:
         demo(a.runs)
         drafts(a.runs, [s for s in a.styles.split(",") if s])

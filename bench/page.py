@@ -196,6 +196,9 @@ def main() -> None:
                     help="a folder holding another compose package (e.g. an earlier commit's, "
                          "from git archive): its command timed in turns with this one's")
     args = ap.parse_args()
+    from compose.kernels import state
+
+    print(f"loops: {state(refuse_stale=True)}")
     global CHECK
     CHECK = args.check
     if args.timeline:

@@ -651,10 +651,13 @@ def main() -> None:
                     help="only the statistics' share (bare 1-worker render, pairs, walks timed inside)")
     ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
     args = ap.parse_args()
+    from compose.kernels import state
+
+    loops = state(refuse_stale=True)
     sizes = [int(s) for s in args.sizes.split(",") if s]
     if args.big and 16384 not in sizes:
         sizes.append(16384)
-    print(f"compose bench, {os.cpu_count()} cores, python {sys.version.split()[0]}")
+    print(f"compose bench, {os.cpu_count()} cores, python {sys.version.split()[0]}, loops: {loops}")
     for size in sizes:
         folder = args.data / f"{size}-{args.lines}"
         if not (folder / "lines.gpkg").exists():

@@ -14,7 +14,7 @@ from __future__ import annotations
 import os
 from types import ModuleType
 
-__all__ = ["get", "enabled"]
+__all__ = ["get", "enabled", "state"]
 
 _loaded: list[ModuleType | None] = []
 #: False: :func:`get` returns None (the numpy path), e.g. to compare the two in one process
@@ -33,6 +33,25 @@ def get() -> ModuleType | None:
         else:
             _loaded.append(None if stale(_kernels.__file__) else _kernels)
     return _loaded[0]
+
+
+def state(refuse_stale: bool = False) -> str:
+    """Which loops run, in words: ``"compiled"``, or ``"numpy: ..."`` and why (turned off,
+    not built, or ``"numpy: stale build ..."`` when the built module is older than its source).
+    ``refuse_stale``: raise SystemExit on a stale build instead (the benchmarks: their figures
+    would be the numpy path's, not the build's)."""
+    if not enabled:
+        return "numpy: turned off by COMPOSE_KERNELS"
+    try:
+        from compose import _kernels  # type: ignore[attr-defined]
+    except ImportError:
+        return "numpy: compose._kernels is not built"
+    if stale(_kernels.__file__):
+        why = "numpy: stale build, older than compose/_kernels.c (pip install -e . or make)"
+        if refuse_stale:
+            raise SystemExit(f"refusing to measure the {why}")
+        return why
+    return "compiled"
 
 
 def stale(built: str) -> bool:

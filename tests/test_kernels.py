@@ -524,6 +524,30 @@ def test_a_stale_build_is_reported_once_and_not_when_turned_off(tmp_path, capsys
     assert err.count("older than") == 1 and err.count("\n") == 1
 
 
+def test_benchmarks_refuse_a_stale_build(tmp_path, capsys, monkeypatch):
+    # compose.kernels.state: what the benchmarks print; a build older than its source is the
+    # numpy path, so a benchmark's figures would not be the build's: refused (SystemExit)
+    import os
+
+    from compose import kernels
+
+    built, source = tmp_path / "_kernels.so", tmp_path / "_kernels.c"
+    built.write_bytes(b"")
+    source.write_text("")
+    os.utime(built, (1000, 1000))
+    os.utime(source, (2000, 2000))
+    real = kernels.stale
+    monkeypatch.setattr(kernels, "stale", lambda _: real(str(built)))
+    assert kernels.state().startswith("numpy: stale build")
+    with pytest.raises(SystemExit, match="refusing to measure"):
+        kernels.state(refuse_stale=True)
+    os.utime(built, (3000, 3000))
+    assert kernels.state(refuse_stale=True) in ("compiled", "numpy: compose._kernels is not built")
+    monkeypatch.setattr(kernels, "enabled", False)
+    assert kernels.state(refuse_stale=True) == "numpy: turned off by COMPOSE_KERNELS"
+    capsys.readouterr()
+
+
 @pytest.mark.parametrize("directions", [1, 3, 6])
 @pytest.mark.parametrize("per_row", [False, True])
 @pytest.mark.parametrize("holes", [False, True, "edges"])
