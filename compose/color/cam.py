@@ -9,28 +9,46 @@ Units: J' in about [0, 100], a' and b' roughly in [-40, 45] for sRGB colours.
 """
 from __future__ import annotations
 
+import functools
+from typing import Any
+
 import numpy as np
-from colorspacious import CIECAM02Space, CIECAM02Surround, cspace_convert
 
 from compose.color.lab import WHITE_D65
 from compose.color.srgb import srgb_to_xyz, xyz_to_srgb
 
-__all__ = ["VIEWING", "xyz_to_cam02ucs", "cam02ucs_to_xyz", "srgb_to_cam02ucs", "cam02ucs_to_srgb"]
+__all__ = ["xyz_to_cam02ucs", "cam02ucs_to_xyz", "srgb_to_cam02ucs", "cam02ucs_to_srgb"]
 
-VIEWING = CIECAM02Space(XYZ100_w=WHITE_D65 * 100.0, Y_b=20.0, L_A=(64 / np.pi) / 5.0,
-                        surround=CIECAM02Surround.AVERAGE)
-_UCS = {"name": "CAM02-UCS", "ciecam02_space": VIEWING}
 _XYZ100 = "XYZ100"
+
+
+@functools.cache
+def _space() -> tuple[Any, dict, Any]:
+    """(viewing conditions, the CAM02-UCS space, colorspacious's cspace_convert), colorspacious
+    imported on first use: loading a style (the draft check before its fork) converts nothing."""
+    from colorspacious import CIECAM02Space, CIECAM02Surround, cspace_convert
+
+    viewing = CIECAM02Space(XYZ100_w=WHITE_D65 * 100.0, Y_b=20.0, L_A=(64 / np.pi) / 5.0,
+                            surround=CIECAM02Surround.AVERAGE)
+    return viewing, {"name": "CAM02-UCS", "ciecam02_space": viewing}, cspace_convert
+
+
+def __getattr__(name: str) -> Any:
+    if name == "VIEWING":       # sRGB viewing conditions (colorspacious's CIECAM02Space)
+        return _space()[0]
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def xyz_to_cam02ucs(xyz) -> np.ndarray:
     """CIE XYZ (Y of white = 1) (..., 3) -> CAM02-UCS J', a', b' (..., 3)."""
-    return np.asarray(cspace_convert(np.asarray(xyz, dtype=float) * 100.0, _XYZ100, _UCS))
+    _, ucs, convert = _space()
+    return np.asarray(convert(np.asarray(xyz, dtype=float) * 100.0, _XYZ100, ucs))
 
 
 def cam02ucs_to_xyz(jab) -> np.ndarray:
     """CAM02-UCS J', a', b' (..., 3) -> CIE XYZ with Y of white = 1 (..., 3)."""
-    return np.asarray(cspace_convert(np.asarray(jab, dtype=float), _UCS, _XYZ100)) / 100.0
+    _, ucs, convert = _space()
+    return np.asarray(convert(np.asarray(jab, dtype=float), ucs, _XYZ100)) / 100.0
 
 
 def srgb_to_cam02ucs(rgb) -> np.ndarray:

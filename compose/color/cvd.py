@@ -10,7 +10,6 @@ displayable -- and re-encoded to sRGB.
 from __future__ import annotations
 
 import numpy as np
-from colorspacious.cvd import MACHADO_ET_AL_MATRICES
 
 from compose.color.srgb import linear_to_srgb, srgb_to_linear
 
@@ -25,6 +24,8 @@ def cvd_matrix(kind: str, severity: float = 100.0) -> np.ndarray:
         raise ValueError(f"'{kind}' is not a colour-vision deficiency; one of: {', '.join(CVD_KINDS)}")
     if not 0 <= severity <= 100:
         raise ValueError(f"severity must be in [0, 100], got {severity}")
+    from colorspacious.cvd import MACHADO_ET_AL_MATRICES  # on first use: not at a style's load
+
     table = MACHADO_ET_AL_MATRICES[CVD_KINDS[kind]]
     low = int(np.floor(severity / 10.0)) * 10
     if low >= 100:

@@ -43,7 +43,7 @@ PLACES = ("panel", "top left", "top right", "bottom left", "bottom right", "off"
 PANEL_SIDES = ("auto", "right", "left", "bottom")
 #: Scale bar units.
 UNITS = ("metric", "imperial")
-from compose.check.report import CAUTION as _CAUTION  # noqa: E402  one wording everywhere
+from compose.caution import CAUTION as _CAUTION  # noqa: E402  one wording everywhere
 
 
 def paper_size(value: Any, at: Scope) -> tuple[float, float]:
