@@ -7,7 +7,6 @@ fails, 2 on invalid input (a one-line error, see :func:`compose.cli.main.handle_
 from __future__ import annotations
 
 import json
-import os
 from pathlib import Path
 from typing import Any
 
@@ -15,39 +14,12 @@ import click
 
 from compose.cli.limits import limit_options
 from compose.cli.main import handle_errors
+from compose.heap import DRAFT_MMAP_BYTES, DRAFT_TRIM_BYTES, reuse_freed_memory  # noqa: F401
 
 __all__ = ["command", "rules_table", "explain", "reuse_freed_memory"]
 
-#: glibc's mallopt parameters (malloc.h): M_TRIM_THRESHOLD, M_MMAP_THRESHOLD, M_ARENA_MAX.
-_M_TRIM_THRESHOLD, _M_MMAP_THRESHOLD, _M_ARENA_MAX = -1, -3, -8
-#: A draft command's malloc settings: blocks up to this many bytes come from the heap (an
-#: array freed there is reused by the next one instead of unmapped and faulted in again)...
-DRAFT_MMAP_BYTES = 64 << 20
-#: ... and this much free memory at the heap's top is kept for reuse, not given back.
-DRAFT_TRIM_BYTES = 256 << 20
-
-
-def reuse_freed_memory() -> bool:
-    """For ``compose check --draft``, a short process of bounded memory (a canvas of at most
-    384 px a side, :data:`compose.canvas.DRAFT_SIDE`), and the marks process it forks (which
-    inherits them): glibc keeps what the process frees for reuse -- blocks up to
-    :data:`DRAFT_MMAP_BYTES` come from the heap, whose top is trimmed only past
-    :data:`DRAFT_TRIM_BYTES`, and the threads share one malloc arena instead of one each -- so
-    the arrays of a read, a shade or a composite land in memory the ones before freed instead
-    of in fresh pages, each a page fault (about 2.8 us of CPU per 4 kB page on the benchmarks'
-    virtual machine; measured, no source). Nothing the draft computes depends on it. The
-    environment's own settings win (``MALLOC_*``, ``GLIBC_TUNABLES``); without glibc it does
-    nothing. True if set."""
-    if any(k.startswith("MALLOC_") or k == "GLIBC_TUNABLES" for k in os.environ):
-        return False
-    from compose.heap import _mallopt
-
-    mallopt = _mallopt()        # the one typed handle compose.heap keeps
-    if mallopt is None:         # no C library found, or not glibc
-        return False
-    return bool(mallopt(_M_MMAP_THRESHOLD, DRAFT_MMAP_BYTES)
-                and mallopt(_M_TRIM_THRESHOLD, DRAFT_TRIM_BYTES)
-                and mallopt(_M_ARENA_MAX, 1))
+# (reuse_freed_memory is compose.heap's: a draft command calls it before click is imported, see
+# compose.layers.early_marks.start_command)
 
 
 def rules_table() -> str:

@@ -1,16 +1,15 @@
-"""Entry point of the `compose` command: a click group; each subcommand lives in its own module."""
+"""Entry point of the `compose` command: :func:`main`. The click group (:data:`cli`) and
+:func:`handle_errors` live in :mod:`compose.cli.group` and are importable from here; this module
+imports neither click nor the group before it needs them, so ``compose check --draft`` forks its
+marks process first (:func:`compose.layers.early_marks.start_command`: the parent imports click
+and the command beside that process, not before it)."""
 from __future__ import annotations
 
-import importlib
 import os
 import sys
+from typing import Any
 
-import click
-
-from compose import __version__
-from compose.cli.failure import guarded, set_debug
-
-__all__ = ["main", "cli", "handle_errors"]
+__all__ = ["main"]      # and cli, handle_errors: compose.cli.group's
 
 # numpy's OpenBLAS starts a thread per core when numpy is imported, and they spin for a while
 # (about 0.1-0.15 CPU-s per process here); compose multiplies only 3 x 3 colour matrices and
@@ -18,61 +17,13 @@ __all__ = ["main", "cli", "handle_errors"]
 # unless the user set it. Set before anything imports numpy (nothing above does).
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
-# name -> module under compose.cli defining a click command called `command`
-COMMANDS = {
-    "ramp": "compose.cli.ramp",
-    "ramps": "compose.cli.ramps",
-    "render": "compose.cli.render",
-    "check": "compose.cli.check",
-    "fix": "compose.cli.fix",
-    "proof": "compose.cli.proof",
-    "demo": "compose.cli.demo",
-    "init": "compose.cli.init",
-    "tiles": "compose.cli.tiles",
-}
 
+def __getattr__(name: str) -> Any:
+    if name in ("cli", "handle_errors", "LazyGroup", "COMMANDS"):
+        from compose.cli import group
 
-def handle_errors(func):
-    """Exit codes and one-line errors for a command: 2 for bad input (a ComposeError), 3 when
-    compose itself failed, 130/143 when interrupted (see :mod:`compose.cli.failure`)."""
-    return guarded(func)
-
-
-class LazyGroup(click.Group):
-    """A group whose subcommands are imported only when used (heavy imports stay out of --help)."""
-
-    def list_commands(self, ctx):
-        return [name for name in COMMANDS if self._load(name) is not None]
-
-    def get_command(self, ctx, name):
-        return self._load(name)
-
-    @staticmethod
-    def _load(name):
-        modname = COMMANDS.get(name)
-        if modname is None:
-            return None
-        try:
-            module = importlib.import_module(modname)
-        except ModuleNotFoundError as exc:
-            if exc.name == modname:
-                return None  # command not built yet
-            raise
-        return module.command
-
-
-@click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(__version__, prog_name="compose",
-                      message="%(prog)s %(version)s (distribution compose-maps)")
-@click.option("--debug", is_flag=True,
-              help="Show tracebacks and library warnings (also: environment COMPOSE_DEBUG=1).")
-def cli(debug: bool):
-    """Compose layered thematic maps from a TOML style and check their visual hierarchy.
-
-    Exit codes: 0 passed, 1 a check rule failed, 2 bad input, 3 compose itself failed.
-    Not for navigation or safety decisions: the maps are illustrations.
-    """
-    set_debug(debug)
+        return getattr(group, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def main(argv=None):
@@ -84,6 +35,12 @@ def main(argv=None):
     every loaded module (0.15-0.4 s after a render has loaded the geodata and drawing
     libraries). Every output is closed and renamed into place by then. With ``argv`` (tests,
     callers in Python) it returns or raises ``SystemExit`` as usual."""
+    if argv is None and sys.argv[1:2] == ["check"] and "--draft" in sys.argv:
+        from compose.layers.early_marks import start_command
+
+        start_command(sys.argv[2:])
+    from compose.cli.group import cli
+
     if argv is not None:
         cli.main(args=argv, prog_name="compose")
         return

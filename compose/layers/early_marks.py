@@ -34,7 +34,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["MARK_KINDS", "MarksAhead", "read_ahead"]
+__all__ = ["MARK_KINDS", "MarksAhead", "read_ahead", "start_early", "start_command", "drop_early"]
 
 #: Layer kinds drawn ahead (labels stay in the check's process: they are placed among each
 #: other and the page's furniture while preparing).
@@ -545,6 +545,11 @@ def start_early(path, cache, overrides=()) -> Any:
     layers the cache holds are not drawn ahead. ``overrides``: ``--set`` key paths
     (:func:`compose.style.overrides.parse_override`). Call :func:`drop_early` when the check is
     over."""
+    if _STARTED:
+        key, style = _STARTED.pop()
+        if key == _key(path, cache, overrides):     # forked by start_command already
+            return style
+        drop_early()
     from compose.style import load_style
 
     style = load_style(path, overrides=overrides or None)
@@ -571,8 +576,60 @@ def start_early(path, cache, overrides=()) -> Any:
 
 def drop_early() -> None:
     """End a process :func:`start_early` forked that no check took."""
+    _STARTED.clear()
     while _EARLY:
         _EARLY.pop().close()
+
+
+#: (:func:`_key`, style) of the draft command's style loaded by :func:`start_command`, until
+#: :func:`start_early` takes it.
+_STARTED: list[tuple[tuple, Any]] = []
+
+#: ``compose check`` flags :func:`start_command` knows (none takes a value).
+_PLAIN_FLAGS = frozenset({"--draft", "--no-cache", "--json", "--strict"})
+
+
+def _key(path, cache, overrides) -> tuple:
+    from pathlib import Path
+
+    return Path(path), cache, tuple(overrides or ())
+
+
+def start_command(args: list[str]) -> None:
+    """``compose check --draft`` (:func:`compose.cli.main.main`, before click and the command's
+    module are imported: about 15 ms that the marks process then no longer waits for, its
+    parent importing them beside it): the marks process forked as :func:`start_early` forks
+    it, with the command's draft settings (no cyclic collector, :func:`compose.heap.
+    reuse_freed_memory`) and default limits, when ``args`` (after ``check``) are only a style
+    path and the flags of :data:`_PLAIN_FLAGS`, ``--draft`` among them; the command's own
+    :func:`start_early` then takes the style loaded here. Anything else -- other options, a
+    style that fails to load or warns -- does nothing here, and the command goes on as
+    without this (its errors and warnings reported by it)."""
+    paths = [a for a in args if not a.startswith("-")]
+    flags = [a for a in args if a.startswith("-")]
+    if len(paths) != 1 or "--draft" not in flags or any(f not in _PLAIN_FLAGS for f in flags):
+        return
+    import gc
+    import warnings
+
+    from compose.heap import reuse_freed_memory
+    from compose.limits import DEFAULT_MAX_PIXELS, use_limits
+
+    gc.disable()            # as the command does for a draft (compose.cli.check)
+    reuse_freed_memory()
+    cache = False if "--no-cache" in flags else None
+    try:
+        with warnings.catch_warnings(record=True) as caught, \
+                use_limits(max_pixels=DEFAULT_MAX_PIXELS, allow_remote=False):
+            warnings.simplefilter("always")
+            style = start_early(paths[0], cache)
+    except Exception:           # noqa: BLE001 - the command reports it
+        drop_early()
+        return
+    if caught:
+        drop_early()
+        return
+    _STARTED.append((_key(paths[0], cache, ()), style))
 
 
 class _Ahead:

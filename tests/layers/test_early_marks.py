@@ -135,6 +135,38 @@ def test_the_command_forks_the_marks_process_before_the_checker_loads_with_the_s
     assert json.loads(child.read_text()) == []
 
 
+_BEFORE_CLICK = """
+import atexit, json, sys
+import compose.layers.early_marks as em
+em.MIN_BYTES = 0
+forked = []
+real = em._Job.__init__
+em._Job.__init__ = lambda self, fn: forked.append("click" in sys.modules) or real(self, fn)
+atexit.register(lambda: sys.stderr.write("FORKED " + json.dumps(forked) + "\\n"))
+from compose.cli.main import main
+sys.argv[1:] = ["check", "--draft", "--json", "--no-cache", *sys.argv[2:], sys.argv[1]]
+main()
+"""
+
+
+def test_the_draft_command_forks_the_marks_process_before_click_loads_with_the_same_report(
+        tmp_path):
+    # compose.cli.main.main (the console script: argv from sys.argv) forks it before the click
+    # group and the command's module are imported, for a style and the plain flags only; with
+    # another option it is forked by the command as before. The same report either way.
+    from tests.layers.test_early import _big_style
+
+    style = _big_style(tmp_path, n=512)
+    want = _draft(style, "here")["report"]
+    for extra, click_first in (([], False), (["--workers", "1"], True)):
+        out = subprocess.run([sys.executable, "-c", _BEFORE_CLICK, str(style), *extra],
+                             capture_output=True, text=True, cwd=ROOT, timeout=120)
+        assert out.returncode in (0, 1), out.stderr
+        forked = [line for line in out.stderr.splitlines() if line.startswith("FORKED ")]
+        assert json.loads(forked[-1][len("FORKED "):]) == [click_first]
+        assert json.loads(out.stdout) == want
+
+
 _CLAIM = """
 import json
 from compose.layers import early_marks as em
