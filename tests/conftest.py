@@ -90,6 +90,27 @@ def pytest_configure(config):
     (:mod:`compose.check.cache`); tests of the cache pass their own folder."""
     os.environ["COMPOSE_CACHE"] = "off"
 
+
+def pytest_assertrepr_compare(config, op, left, right):
+    """``==`` of two long byte strings (whole files compared for byte identity): their lengths
+    and the first offset where they differ, with the bytes around it, instead of pytest's
+    line diff of their reprs, which took minutes on files of a few MB (a failure in CI ran
+    past ten minutes in difflib before it could be read)."""
+    if op != "==" or not isinstance(left, (bytes, bytearray)) \
+            or not isinstance(right, (bytes, bytearray)) or max(len(left), len(right)) <= 4096:
+        return None
+    n = min(len(left), len(right))
+    a = np.frombuffer(bytes(left[:n]), np.uint8)
+    b = np.frombuffer(bytes(right[:n]), np.uint8)
+    differ = np.flatnonzero(a != b)
+    first = int(differ[0]) if differ.size else n
+    lo, hi = max(first - 16, 0), first + 16
+    return [f"byte strings differ: {len(left):,} vs {len(right):,} bytes; "
+            f"{differ.size:,} of the first {n:,} bytes differ, the first at offset {first:,}",
+            f"left  [{lo}:{hi}] {bytes(left[lo:hi]).hex(' ')}",
+            f"right [{lo}:{hi}] {bytes(right[lo:hi]).hex(' ')}"]
+
+
 @pytest.fixture
 def tiny_region(tmp_path):
     """A DEM and a field in EPSG:4326 (degrees), lines and points in EPSG:4326, canvas in UTM
