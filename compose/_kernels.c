@@ -287,11 +287,34 @@ static __attribute__((noinline)) Py_ssize_t overlay_gather(
     return pixels;
 }
 
+/* the luminance (ys) and Y cell (cells) of n 8-bit colours packed r << 16 | g << 8 | b, as
+ * luminance and y_cell compute them (the same float32 operations; a cell fits int32) */
+static void bins6_cells(const uint32_t *restrict cb, int n, const float *restrict ytab,
+                        float scale, int32_t top, float *restrict ys, int32_t *restrict cells) {
+    for (int i = 0; i < n; i++) {
+        uint32_t rgb = cb[i];
+        float y = ytab[rgb >> 16];
+        y += ytab[256 + ((rgb >> 8) & 255u)];
+        y += ytab[512 + (rgb & 255u)];
+        ys[i] = y;
+        float sc = y * scale;
+        sc += 0.5f;
+        int32_t cell = (int32_t)sc;
+        cell = cell > top ? top : cell;
+        cell = cell < 0 ? 0 : cell;
+        cells[i] = cell;
+    }
+}
+
 /* overlay's second pass with L* and beneath colours of 6 bits per channel (compose.check.stats
  * BENEATH_BITS), in a function of its own (pointers in registers, shifts constant): each
  * pixel's weight added to its contrast bin, its L* and its colour code, pixel by pixel, as
  * overlay's general loop adds them. Returns -1 when touched is too short, else the codes
- * touched; the weights' sum (added in the same order) to *total. */
+ * touched; the weights' sum (added in the same order) to *total. The pixels go in blocks of
+ * 256: first every luminance and Y cell of the block (bins6_cells: no histogram in that loop,
+ * so the processor overlaps pixels), then the additions, in the same order as one loop makes
+ * them. Measured on the 8192 benchmark walk's largest 60 windows (4.4 M pixels), best of 7:
+ * 4.4-5.6 -> 3.8-4.3 ns a pixel in alternating runs, the same histograms bit for bit. */
 static __attribute__((noinline)) Py_ssize_t overlay_bins6(
         const float *restrict wbuf, const uint32_t *restrict cbuf, Py_ssize_t pixels,
         const Tables *tp, const int16_t *restrict cbin, double y_part, double step,
@@ -302,25 +325,32 @@ static __attribute__((noinline)) Py_ssize_t overlay_bins6(
     const uint8_t *restrict lbin = t.lbin;
     Py_ssize_t nt = 0;
     double sum = 0.0;
-    for (Py_ssize_t p = 0; p < pixels; p++) {
-        double wgt = (double)wbuf[p];
-        sum += wgt;
-        uint32_t rgb = cbuf[p];
-        uint32_t r = rgb >> 16, g = (rgb >> 8) & 255u, b = rgb & 255u;
-        float y = ytab[r];
-        y += ytab[256 + g];
-        y += ytab[512 + b];
-        Py_ssize_t cell = y_cell(&t, y);
-        Py_ssize_t bin = cbin[cell];
-        if (bin < 0 || bin >= ncon) bin = contrast_bin((double)y, y_part, step, ncon);
-        contrast[bin] += wgt;
-        lsum[lbin[cell]] += wgt;
-        Py_ssize_t code = (Py_ssize_t)(((r >> 2) << 12) | ((g >> 2) << 6) | (b >> 2));
-        if (dsum[code] == 0.0) {
-            if (nt >= tcap) return -1;
-            tlist[nt++] = code;
+    int32_t cells[256];
+    float ys[256];
+    const float scale = (float)(t.ncell - 1);
+    const int32_t top = (int32_t)(t.ncell - 1);
+    for (Py_ssize_t p0 = 0; p0 < pixels; p0 += 256) {
+        const int n = (int)(pixels - p0 < 256 ? pixels - p0 : 256);
+        const uint32_t *restrict cb = cbuf + p0;
+        bins6_cells(cb, n, ytab, scale, top, ys, cells);
+        const float *restrict wb = wbuf + p0;
+        for (int i = 0; i < n; i++) {
+            double wgt = (double)wb[i];
+            sum += wgt;
+            int32_t cell = cells[i];
+            Py_ssize_t bin = cbin[cell];
+            if (bin < 0 || bin >= ncon) bin = contrast_bin((double)ys[i], y_part, step, ncon);
+            contrast[bin] += wgt;
+            lsum[lbin[cell]] += wgt;
+            uint32_t rgb = cb[i];
+            Py_ssize_t code = (Py_ssize_t)(((rgb >> 6) & 0x3f000u) | ((rgb >> 4) & 0xfc0u)
+                                           | ((rgb >> 2) & 0x3fu));
+            if (dsum[code] == 0.0) {
+                if (nt >= tcap) return -1;
+                tlist[nt++] = code;
+            }
+            dsum[code] += wgt;
         }
-        dsum[code] += wgt;
     }
     *total = sum;
     return nt;
