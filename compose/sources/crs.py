@@ -77,10 +77,11 @@ def _facts(value: str) -> dict:
     from compose.user_cache import crs_facts, remember_crs_facts
 
     got = crs_facts(value)
-    if got is not None and set(got) == {"usable", "metre", "never"} \
+    if got is not None and set(got) == {"usable", "metre", "never", "degrees"} \
             and all(isinstance(v, bool) for v in got.values()):
         return got
-    got = {"usable": _gdal_usable(value), "metre": _metre(value), "never": _never(value)}
+    got = {"usable": _gdal_usable(value), "metre": _metre(value), "never": _never(value),
+           "degrees": _degrees(value)}
     remember_crs_facts(value, got)
     return got
 
@@ -117,6 +118,17 @@ def same_crs(a: Any, b: Any) -> bool:
 def _wkt1(value: Any) -> str | None:
     crs = rio_crs(value)
     return None if crs is None else crs.to_wkt()
+
+
+def geographic_degrees(value: Any) -> bool:
+    """True for a geographic CRS (coordinates are longitude and latitude in degrees), as GDAL
+    reads it; False for any other or one GDAL does not read."""
+    return _facts(value)["degrees"] if isinstance(value, str) else _degrees(value)
+
+
+def _degrees(value: Any) -> bool:
+    crs = rio_crs(value)
+    return crs is not None and bool(crs.is_geographic)
 
 
 def metre_projected(value: Any) -> bool:

@@ -273,7 +273,8 @@ class RasterSource:
                 return
             west, south, east, north = (f"{v:.6g}" for v in self.bounds)
             raise SourceError(f'layer "{self.layer}": {self.path} does not overlap the map extent '
-                              f"(source bounds {west}, {south}, {east}, {north} in {self.crs})")
+                              f"(source bounds {west}, {south}, {east}, {north} in {self.crs}; "
+                              f"the map's {', '.join(f'{v:.6g}' for v in canvas.bounds)} in {canvas.crs})")
 
     def shrink(self, crs, transform: Affine, at: tuple[float, float] | None = None
                ) -> tuple[float, float] | None:

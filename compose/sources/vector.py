@@ -704,7 +704,8 @@ class VectorSource:
         if not lines.overlaps(canvas.bounds):
             west, south, east, north = (f"{v:.6g}" for v in lines.bounds)
             raise SourceError(f"{here}: {self.path} does not overlap the map extent "
-                              f"(features span {west}, {south}, {east}, {north} in {canvas.crs})")
+                              f"(features span {west}, {south}, {east}, {north}; the map's "
+                              f"{', '.join(f'{v:.6g}' for v in canvas.bounds)}; both in {canvas.crs})")
 
     def load(self, crs) -> Features:
         """All kept features reprojected to ``crs`` (any CRS pyproj understands), cached per CRS.
@@ -760,7 +761,8 @@ class VectorSource:
         if hits.size == 0:
             west, south, east, north = (f"{v:.6g}" for v in features.bounds)
             raise SourceError(f"{here}: {self.path} does not overlap the map extent "
-                              f"(features span {west}, {south}, {east}, {north} in {canvas.crs})")
+                              f"(features span {west}, {south}, {east}, {north}; the map's "
+                              f"{', '.join(f'{v:.6g}' for v in canvas.bounds)}; both in {canvas.crs})")
 
     def __repr__(self) -> str:
         return f"VectorSource({str(self.path)!r}, table={self.table!r}, layer={self.layer!r})"

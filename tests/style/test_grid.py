@@ -94,6 +94,41 @@ def test_extent_in_another_crs(tmp_path, dem):
     assert any("in EPSG:4326 is" in n for n in plan.notes)
 
 
+@pytest.mark.parametrize("crs,extent,refused", [
+    # EPSG's own range of a geographic CRS: longitude -180..180 degrees (here up to 360 too,
+    # for maps across the antimeridian), latitude -90..90 (EPSG geodetic registry, EPSG:4326)
+    ("EPSG:4326", [500000, 4000000, 503000, 4002000], True),      # metres written as degrees
+    ("EPSG:4326", [3.0, 36.1, 3.05, 36.14], False),
+    ("EPSG:4326", [170.0, -10.0, 190.0, 10.0], False),           # across the antimeridian
+    ("EPSG:4326", [3.0, 89.0, 4.0, 91.0], True),
+    ("EPSG:4258", [-200.0, 40.0, -190.0, 41.0], True),           # another geographic CRS
+    ("EPSG:32631", [500000, 4000000, 503000, 4002000], False),   # projected: metres are fine
+])
+def test_a_geographic_extent_outside_longitude_and_latitude_is_refused(tmp_path, dem, crs, extent,
+                                                                      refused):
+    """A map in a geographic CRS whose extent is not a longitude / latitude range (most often
+    metres of a projected CRS) is refused at map.extent, before any source is read; it used to
+    end as "does not overlap the map extent" for the first layer read."""
+    body = f'crs = "{crs}"\nextent = {extent}\npixel = {0.01 if crs != UTM else 100}'
+    if refused:
+        with pytest.raises(StyleError, match=rf"map\.extent: .* is not a longitude and latitude "
+                                             rf"range: {crs} is a geographic CRS"):
+            _style(tmp_path, body).canvas_plan()
+    else:
+        _style(tmp_path, body).canvas_plan()
+
+
+def test_no_overlap_names_the_maps_extent_beside_the_sources(tmp_path, dem):
+    """The overlap error shows both boxes, so a map extent in the wrong units is seen at once."""
+    style = _style(tmp_path, 'crs = "EPSG:32631"\nextent = [3, 36, 4, 37]\npixel = 0.01')
+    from compose.sources.raster import RasterSource
+    with RasterSource(dem, layer="terrain") as src:
+        with pytest.raises(SourceError, match=r"does not overlap the map extent \(source bounds "
+                                              r"500000, 4e\+06, 503000, 4\.002e\+06 in EPSG:32631; "
+                                              r"the map's 3, 36, 4, 37 in EPSG:32631\)"):
+            src.check_overlap(style.canvas())
+
+
 @pytest.mark.parametrize("body,message", [
     ('like = "nothing"', 'map.like: no enabled layer named "nothing"; layers: terrain'),
     ('crs = "EPSG:32631"\nextent = [0, 0, 10, 10]\npixel = 1\nwidth = 10',
