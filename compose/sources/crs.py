@@ -131,6 +131,22 @@ def _degrees(value: Any) -> bool:
     return crs is not None and bool(crs.is_geographic)
 
 
+def degree_extent_problem(crs: Any, extent) -> str | None:
+    """The error to give when ``crs`` is geographic and the map's ``extent`` lies beyond
+    longitudes -180..360 or latitudes -90..90 degrees (most often an extent written in a
+    projected CRS's metres), else None. Asked only once a source is found not to overlap the
+    map (it may ask GDAL: see :func:`_facts`)."""
+    west, south, east, north = (float(v) for v in extent)
+    if -180 <= west and east <= 360 and east - west <= 360 and -90 <= south and north <= 90:
+        return None
+    if not geographic_degrees(crs):
+        return None
+    box = ", ".join(f"{v:.6g}" for v in extent)
+    return (f"map.extent: [{box}] is not a longitude and latitude range: {crs} is a geographic "
+            f"CRS, in degrees (longitude -180..180, or up to 360; latitude -90..90). An extent "
+            f"written in another CRS's units: give that CRS as map.extent_crs")
+
+
 def metre_projected(value: Any) -> bool:
     """True for a projected, non-compound CRS whose linear unit is exactly the metre (then
     a cell's size in metres is the transform's cell size, as pyproj's axis unit factor 1 gives);

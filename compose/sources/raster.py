@@ -56,7 +56,7 @@ from rasterio.windows import Window as RioWindow
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead, Region
-from compose.sources.crs import metre_projected
+from compose.sources.crs import degree_extent_problem, metre_projected
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
 from compose.sources.resample import cut_block, grid_region, sample_grid
@@ -258,7 +258,9 @@ class RasterSource:
 
         The footprint is transformed to the canvas CRS (densified edges); where that fails
         (a footprint outside the canvas CRS's domain) the canvas is transformed to the source
-        CRS instead. When neither direction can be computed nothing is raised.
+        CRS instead. When neither direction can be computed nothing is raised. A map in a
+        geographic CRS whose extent is no longitude / latitude range raises :class:`StyleError`
+        at map.extent instead (:func:`compose.sources.crs.degree_extent_problem`).
         """
         for src, dst, box, target in ((self.read_crs, canvas.crs, self.bounds, canvas.bounds),
                                       (canvas.crs, self.read_crs, canvas.bounds, self.bounds)):
@@ -271,10 +273,15 @@ class RasterSource:
             w, s, e, n = moved
             if w < target[2] and e > target[0] and s < target[3] and n > target[1]:
                 return
+            if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
+                raise StyleError(problem)
             west, south, east, north = (f"{v:.6g}" for v in self.bounds)
             raise SourceError(f'layer "{self.layer}": {self.path} does not overlap the map extent '
                               f"(source bounds {west}, {south}, {east}, {north} in {self.crs}; "
                               f"the map's {', '.join(f'{v:.6g}' for v in canvas.bounds)} in {canvas.crs})")
+        # neither direction computed: a geographic map's extent out of its range is still said
+        if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
+            raise StyleError(problem)
 
     def shrink(self, crs, transform: Affine, at: tuple[float, float] | None = None
                ) -> tuple[float, float] | None:

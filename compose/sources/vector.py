@@ -25,7 +25,7 @@ import shapely
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
-from compose.sources.crs import plainly_usable, same_crs
+from compose.sources.crs import degree_extent_problem, plainly_usable, same_crs
 from compose.sources.gpkg import only_table, open_table
 from compose.sources.guard import check_crs, check_source, refuse_driver
 
@@ -702,6 +702,8 @@ class VectorSource:
             filt = "".join(f" where {k} in {list(v)}" for k, v in self.where.items())
             raise SourceError(f'{here}: no features in table "{self.table}" of {self.path}{filt}')
         if not lines.overlaps(canvas.bounds):
+            if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
+                raise StyleError(problem)
             west, south, east, north = (f"{v:.6g}" for v in lines.bounds)
             raise SourceError(f"{here}: {self.path} does not overlap the map extent "
                               f"(features span {west}, {south}, {east}, {north}; the map's "
@@ -759,6 +761,8 @@ class VectorSource:
             raise SourceError(f'{here}: no features in table "{self.table}" of {self.path}{filt}')
         hits = features.tree.query(shapely.box(*canvas.bounds), predicate="intersects")
         if hits.size == 0:
+            if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
+                raise StyleError(problem)
             west, south, east, north = (f"{v:.6g}" for v in features.bounds)
             raise SourceError(f"{here}: {self.path} does not overlap the map extent "
                               f"(features span {west}, {south}, {east}, {north}; the map's "

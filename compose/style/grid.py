@@ -89,24 +89,6 @@ def _transform_extent(extent, src_crs: str, dst_crs: str) -> tuple[float, float,
     return tuple(float(v) for v in box)
 
 
-def _check_degrees(crs: str, extent) -> None:
-    """StyleError when ``crs`` is geographic and ``extent`` lies beyond longitudes -180..360 or
-    latitudes -90..90 degrees: most often an extent written in a projected CRS's metres (the
-    error then would be that no source overlaps it)."""
-    from compose.sources.crs import geographic_degrees
-
-    west, south, east, north = extent
-    if -180 <= west and east <= 360 and east - west <= 360 and -90 <= south and north <= 90:
-        return
-    if not geographic_degrees(crs):
-        return
-    box = ", ".join(_fmt(v) for v in extent)
-    raise StyleError(f"map.extent: [{box}] is not a longitude and latitude range: {crs} is a "
-                     f"geographic CRS, in degrees (longitude -180..180, or up to 360; latitude "
-                     f"-90..90). An extent written in another CRS's units: give that CRS as "
-                     f"map.extent_crs")
-
-
 def plan_canvas(style) -> CanvasPlan:
     """Work out the canvas of ``style.map`` (see the module docstring). Raises StyleError."""
     m = style.map
@@ -136,8 +118,6 @@ def plan_canvas(style) -> CanvasPlan:
         extent = _transform_extent(extent, m.extent_crs, crs)
         notes.append(f"map.extent: [{', '.join(_fmt(v) for v in m.extent)}] in {m.extent_crs} "
                      f"is [{', '.join(_fmt(v) for v in extent)}] in {crs}")
-    if m.extent is not None and m.extent_crs is None:
-        _check_degrees(crs, extent)
     west, south, east, north = extent
     if m.width is not None:
         pixel = (east - west) / m.width

@@ -107,15 +107,22 @@ def test_extent_in_another_crs(tmp_path, dem):
 def test_a_geographic_extent_outside_longitude_and_latitude_is_refused(tmp_path, dem, crs, extent,
                                                                       refused):
     """A map in a geographic CRS whose extent is not a longitude / latitude range (most often
-    metres of a projected CRS) is refused at map.extent, before any source is read; it used to
-    end as "does not overlap the map extent" for the first layer read."""
-    body = f'crs = "{crs}"\nextent = {extent}\npixel = {0.01 if crs != UTM else 100}'
-    if refused:
-        with pytest.raises(StyleError, match=rf"map\.extent: .* is not a longitude and latitude "
-                                             rf"range: {crs} is a geographic CRS"):
-            _style(tmp_path, body).canvas_plan()
-    else:
-        _style(tmp_path, body).canvas_plan()
+    metres of a projected CRS) is refused at map.extent when its sources are found not to
+    overlap it; it used to end as "does not overlap the map extent" for the first layer read."""
+    from compose.sources.raster import RasterSource
+
+    body = f'crs = "{crs}"\nextent = {extent}\npixel = {(extent[2] - extent[0]) / 30}'
+    canvas = _style(tmp_path, body).canvas()
+    with RasterSource(dem, layer="terrain") as src:
+        if refused:
+            with pytest.raises(StyleError, match=rf"map\.extent: .* is not a longitude and "
+                                                 rf"latitude range: {crs} is a geographic CRS"):
+                src.check_overlap(canvas)
+        else:
+            try:
+                src.check_overlap(canvas)
+            except SourceError as exc:
+                assert "does not overlap the map extent" in str(exc)
 
 
 def test_no_overlap_names_the_maps_extent_beside_the_sources(tmp_path, dem):
