@@ -1,6 +1,6 @@
 """Benchmark: synthetic N x N renders (relief + field + lines) beside independent kernel floors.
 
-    python bench/render.py [--sizes 2048,8192] [--big] [--lines 10000] [--quick] [--statistics]
+    python bench/render.py [--sizes 2048,8192] [--big] [--lines 10000] [--quick] [--statistics] [--pairs 5]
 
 For every size it prints, from the same run:
   * floors (bench/floors.py, written without compose's code): Agg lines on the whole canvas,
@@ -427,7 +427,7 @@ def statistics_lines(total: float, pairs: list[tuple[float, float]],
           f"size (compose.check.stats.gray_stride); the palette's entry counts are not in it)")
 
 
-def bench_statistics(folder: Path, size: int, quick: bool) -> None:
+def bench_statistics(folder: Path, size: int, quick: bool, n_pairs: int = 5) -> None:
     """Only the statistics' figures of :func:`bench_size` (--statistics): the 1-worker bare
     render, the alternating pairs of computes with and without statistics (no floors between
     them) and the walks timed inside, measured the same way."""
@@ -438,7 +438,7 @@ def bench_statistics(folder: Path, size: int, quick: bool) -> None:
     total, _ = median_task(runs, lambda r: r["wall"], "bare", styles["aligned"], out, workers=1)
     pairs: list[tuple[float, float]] = []
     cpu_pairs: list[tuple[float, float]] = []
-    for i in range(max(runs, 5)):
+    for i in range(max(runs, n_pairs)):
         order = ("plain", "measure") if i % 2 == 0 else ("measure", "plain")
         got = {mode: task(mode, styles["aligned"], out) for mode in order}
         pairs.append((got["plain"]["compute"], got["measure"]["compute"]))
@@ -450,7 +450,7 @@ def bench_statistics(folder: Path, size: int, quick: bool) -> None:
     statistics_lines(total, pairs, cpu_pairs, inside, size)
 
 
-def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
+def bench_size(folder: Path, size: int, n_lines: int, quick: bool, n_pairs: int = 5) -> None:
     styles = write_styles(folder, size)
     out = folder / "out"
     mpx = size * size / 1e6
@@ -513,7 +513,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool) -> None:
     pairs: list[tuple[float, float]] = []
     cpu_pairs: list[tuple[float, float]] = []
     turn_floors: list[float] = []
-    for i in range(max(runs, 5)):
+    for i in range(max(runs, n_pairs)):
         order = ("plain", "measure") if i % 2 == 0 else ("measure", "plain")
         if i % 2 == 0:
             turn_floors.append(compute_floor_turn(folder, size))
@@ -649,8 +649,12 @@ def main() -> None:
     ap.add_argument("--no-demo", action="store_true")
     ap.add_argument("--statistics", action="store_true",
                     help="only the statistics' share (bare 1-worker render, pairs, walks timed inside)")
+    ap.add_argument("--pairs", type=int, default=5,
+                    help="alternating pairs of walks with and without the statistics (at least 5; "
+                         "more narrow their median on a machine whose speed drifts)")
     ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "compose-bench")
     args = ap.parse_args()
+    args.pairs = max(args.pairs, 5)
     from compose.kernels import state
 
     loops = state(refuse_stale=True)
@@ -664,9 +668,9 @@ def main() -> None:
             print(f"making synthetic data in {folder} ...", flush=True)
             make_data(folder, size, args.lines)
         if args.statistics:
-            bench_statistics(folder, size, args.quick)
+            bench_statistics(folder, size, args.quick, args.pairs)
         else:
-            bench_size(folder, size, args.lines, args.quick)
+            bench_size(folder, size, args.lines, args.quick, args.pairs)
     if not args.no_demo and not args.statistics:
         bench_demo()
 
