@@ -192,7 +192,11 @@ class PngWriter:
             self._emit(self._pending.popleft().result())
 
     def write_rows(self, rows: np.ndarray) -> None:
-        """Append rows (uint8, shape (n, width) or (n, width, channels)), north to south."""
+        """Append rows (uint8, shape (n, width) or (n, width, channels)), north to south.
+
+        With threads, whole pieces of ``rows`` are deflated later on the writer's threads,
+        read where they lie (not copied; a partial piece is): the caller must not change the
+        rows it handed over until :meth:`close` returns. Every caller hands over fresh rows."""
         rows = np.ascontiguousarray(rows, dtype=np.uint8).reshape(rows.shape[0], -1)
         if rows.shape[1] != self.width * self.channels:
             raise ValueError("row width does not match the PNG header")
