@@ -318,3 +318,63 @@ print(json.dumps({"same_report": cold1 == cold2 == warm, "helpers": helpers,
     assert got["same_report"] and got["entries"] >= 5 and got["same_entries"]
     if sys.platform.startswith("linux"):
         assert got["helpers"] == 1 and got["after_warm"] == 1     # a warm check walks alone
+
+
+def test_labels_follow_the_sources_of_the_lines_they_avoid(tmp_path, data, stores):
+    """A labels layer with ``avoid`` is keyed by the avoided layers' sources and their options
+    other than colours: a changed lines file places its labels again; a recoloured line does
+    not."""
+    import shutil
+
+    coast = tmp_path / "coast.gpkg"
+    shutil.copy(data["coast"], coast)
+    cache = tmp_path / "cache"
+
+    def doc(**over):
+        d = _doc(data, **over)
+        d["layer"][2]["source"] = str(coast)
+        d["layer"][3]["avoid"] = ["coast"]
+        return d
+
+    path = write_style(tmp_path, doc())
+    cold = check(path, cache=cache)
+    assert _counts(stores[-1]) == (0, 4)
+    warm = check(path, cache=cache)
+    assert _counts(stores[-1]) == (4, 0) and _json(warm) == _json(cold)
+    check(write_style(tmp_path, doc(coast={"stroke": "#a03020"}), "recoloured"), cache=cache)
+    assert _counts(stores[-1]) == (4, 0)
+    check(write_style(tmp_path, doc(coast={"width": 2.5}), "wider"), cache=cache)
+    assert sorted(r.spec.name for r in stores[-1].recorders) == ["coast", "towns"]
+    os.utime(coast, ns=(1, 1))                  # the avoided source changed (its mtime)
+    again = check(path, cache=cache)
+    assert sorted(r.spec.name for r in stores[-1].recorders) == ["coast", "towns"]
+    assert _json(again) == _json(check(path, cache=False))
+
+
+def test_the_labels_key_names_each_avoided_source(tmp_path, data):
+    """CheckCache.key: the avoided layer's source stamp is part of a labels layer's key (and a
+    source that cannot be stat'ed leaves the layer uncached, to report its own error)."""
+    import shutil
+    from types import SimpleNamespace
+
+    from compose.style import load_style
+
+    coast = tmp_path / "coast.gpkg"
+    shutil.copy(data["coast"], coast)
+    d = _doc(data)
+    d["layer"][2]["source"] = str(coast)
+    d["layer"][3]["avoid"] = ["coast"]
+    style = load_style(write_style(tmp_path, d))
+    ctx = SimpleNamespace(ramps={})
+
+    def key():
+        cache = check_cache.CheckCache(tmp_path, style, style.canvas(), keep_clear=None)
+        return cache.key(style.layers[-1], ctx)[0]
+
+    first = key()
+    assert first is not None and key() == first
+    os.utime(coast, ns=(1, 1))
+    second = key()
+    assert second is not None and second != first
+    coast.unlink()
+    assert key() is None

@@ -18,7 +18,8 @@ unchanged while its path, size and modification time in nanoseconds are):
 * the canvas (CRS, transform, size, dpi) and the full canvas of a draft;
 * for rasters drawn through a ramp: the lookup table's index layout (entry values, edges,
   steps), not its colours;
-* for labels: the labels layers placed before it, and, when page furniture sits inside the
+* for labels: the labels layers placed before it, the layers it keeps off (``avoid``: their
+  kind, source stamps and options without colours), and, when page furniture sits inside the
   map frame, the page, the layers and the ramps (the furniture's size depends on the legend);
 * the modules that paint (size and mtime of compose's layer and source modules),
   :data:`CACHE_VERSION`, and the versions of the libraries that shape coverage (numpy,
@@ -125,7 +126,27 @@ class CheckCache:
             parts.append(lut_key(lut_of(spec, ctx.ramps)))
         if spec.kind == "labels":
             parts += [self._furniture, list(self._labels_before)]
+            avoided = self._avoided(spec)
+            if avoided is None:
+                return None, None
+            if avoided:
+                parts.append(avoided)
         return digest(parts), colors
+
+    def _avoided(self, spec) -> list | None:
+        """What decides the features a labels layer keeps off (its ``avoid``): each avoided
+        layer's name, kind, source stamp and options without colours; None when a source cannot
+        be stat'ed (the layer reports its own error)."""
+        out: list[Any] = []
+        by_name = {s.name: s for s in self.style.layers if s.enabled}
+        for name in getattr(spec.options, "avoid", ()):
+            other = by_name.get(name)
+            stamp = source_stamp(other.source) if other is not None else None
+            if other is None or stamp is None:
+                return None
+            out.append([name, other.kind, stamp,
+                        plain(other.options, skip=COLOR_ONLY.get(other.kind, frozenset()))])
+        return out
 
     def layer(self, spec, ctx, build: Callable[[], Any]) -> Any:
         key, colors = self.key(spec, ctx) if self.enabled else (None, None)

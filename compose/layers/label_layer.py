@@ -7,9 +7,16 @@ import shapely
 
 from compose.errors import StyleError
 from compose.layers.base import Context, Paint
-from compose.layers.label_placement import LabelItem, area_anchor, draw_labels, place_labels
+from compose.layers.label_placement import (
+    LabelItem,
+    LinesToAvoid,
+    area_anchor,
+    draw_labels,
+    place_labels,
+)
 from compose.limits import MAX_LABEL_CHARS
 from compose.sources.vector import VectorSource
+from compose.style.kinds import AVOIDABLE
 
 __all__ = ["LabelsLayer", "measures_text", "load_text_modules"]
 
@@ -47,6 +54,27 @@ def load_text_modules() -> None:
 def _short(text: str) -> str:
     """A label is a name, not a paragraph: cut at MAX_LABEL_CHARS with an ellipsis."""
     return text if len(text) <= MAX_LABEL_CHARS else text[:MAX_LABEL_CHARS - 1] + "\u2026"
+
+
+def _avoided(spec, context: Context) -> LinesToAvoid:
+    """The features of the layers a labels layer's ``avoid`` names (lines; areas' outlines), in
+    canvas pixels: each read as its own layer reads it (its source, table and ``where``) but not
+    simplified, in the canvas's CRS, cut to the canvas -- on a draft's canvas too (whose lines
+    layers read theirs simplified, or in the process of :mod:`compose.layers.early_marks`), so a
+    draft keeps off the same features as the full check."""
+    style = context.style
+    layers = {s.name: s for s in (style.layers if style is not None else ()) if s.enabled}
+    geoms: list = []
+    for name in spec.options.avoid:
+        other = layers.get(name)
+        if other is None or other.kind not in AVOIDABLE:       # (checked when the style loads)
+            raise StyleError(f'layer "{spec.name}": avoid: no enabled lines or areas layer named '
+                             f'"{name}"')
+        o = other.options
+        source = VectorSource(other.source, layer=other.name, table=o.table, where=o.where)
+        # cut to the canvas: label boxes lie inside it
+        geoms.extend(source.load(context.canvas.crs).in_box(context.canvas.bounds).geometries)
+    return LinesToAvoid(geoms, context.canvas.transform)
 
 
 class LabelsLayer:
@@ -91,10 +119,12 @@ class LabelsLayer:
             items.append(LabelItem(pt.x, pt.y, text, -np.inf if np.isnan(prio) else prio, area))
         px = canvas.points_to_pixels
         halo_px = self.halo_px = px(o.halo.width) if o.halo is not None else 0.0
+        avoid = _avoided(spec, context) if items and o.avoid else None
         self.placement = place_labels(items, canvas.transform, canvas.width, canvas.height,
                                       size_px=px(o.size), font=o.font, weight=o.weight,
                                       halo_px=halo_px, offset_px=px(o.offset),
-                                      blocked=tuple(context.blocked) + tuple(context.label_boxes))
+                                      blocked=tuple(context.blocked) + tuple(context.label_boxes),
+                                      avoid=avoid)
         self.along, self.along_unplaced = [], []
         if lines:
             # one name, one line: the pieces of a named line are joined before placing

@@ -9,6 +9,12 @@ order). Each tries the candidate positions of :data:`POSITIONS` in turn, its tex
 box, grown by half the halo width on every side, stays inside the canvas and overlaps no placed
 box wins. A label with no such position is not placed.
 
+Line features to keep off (common cartographic practice, no source: a name set across a road or
+a river is hard to read and hides the feature): with ``avoid`` lines, a label takes the first
+free position (in :data:`POSITIONS` order) whose grown box crosses none of them; when every free
+position crosses one, the free position whose box holds the least length of them (ties: the
+earlier position). Without ``avoid`` the rule above is unchanged.
+
 Area labels (common practice, no source): an item with an ``area`` (a polygon in CRS units) is
 tried first centred on the area's pole of inaccessibility (the inside point farthest from the
 edge, :func:`area_anchor`, shapely's polylabel), where its box must lie inside the polygon; when
@@ -26,8 +32,8 @@ from affine import Affine
 from compose.layers.draw import ANCHORS, draw_text_shapes, to_pixels
 from compose.layers.label_text import TextShape, measure_text
 
-__all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "BoxGrid", "place_labels",
-           "draw_labels", "area_anchor"]
+__all__ = ["POSITIONS", "LabelItem", "PlacedLabel", "Placement", "BoxGrid", "LinesToAvoid",
+           "place_labels", "draw_labels", "area_anchor"]
 
 #: Candidate positions in order of preference: (name, anchor of the text box at the offset
 #: point, (dx, dy) unit offset in pixels with rows running down).
@@ -42,6 +48,7 @@ POSITIONS: tuple[tuple[str, str, tuple[int, int]], ...] = (
     ("below", "top", (0, 1)),
 )
 _CELL = 64.0   # pixels per cell of the collision grid
+_PIECE = 32    # most segments of one piece of a line to avoid (a box's query meets few)
 
 
 @dataclass(frozen=True, slots=True)
@@ -111,6 +118,50 @@ class BoxGrid:
             self.cells.setdefault(key, []).append(box)
 
 
+class LinesToAvoid:
+    """Line features labels keep off, in canvas pixels (rows down), cut into pieces of at most
+    :data:`_PIECE` segments under an STRtree, so a box's query clips only the pieces near it.
+
+    geometries: shapely lines (or polygons: their outlines; points are ignored) in the CRS of
+    ``transform``, the canvas's (CRS -> pixels by its inverse)."""
+
+    def __init__(self, geometries, transform: Affine) -> None:
+        import shapely
+
+        geoms = np.asarray(list(geometries), dtype=object).reshape(-1)
+        if len(geoms):
+            geoms = shapely.get_parts(geoms)
+            polys = shapely.get_type_id(geoms) == 3
+            if polys.any():                                      # areas: their outlines
+                geoms = np.concatenate([geoms[~polys],
+                                        shapely.get_parts(shapely.boundary(geoms[polys]))])
+            geoms = geoms[np.isin(shapely.get_type_id(geoms), (1, 2))]   # (Multi)LineString parts
+        pieces = []
+        for geom in geoms:
+            xy = shapely.get_coordinates(geom)
+            if len(xy) < 2:
+                continue
+            px = to_pixels(xy, transform)
+            for start in range(0, len(px) - 1, _PIECE):
+                pieces.append(shapely.LineString(px[start:start + _PIECE + 1]))
+        self.pieces = np.asarray(pieces, dtype=object).reshape(-1)
+        self.tree = shapely.STRtree(self.pieces)
+
+    def __len__(self) -> int:
+        return len(self.pieces)
+
+    def crossed(self, box) -> float:
+        """Length in pixels of the lines inside ``box`` (col0, row0, col1, row1); 0 when none."""
+        import shapely
+
+        rect = shapely.box(*box)
+        hits = self.tree.query(rect, predicate="intersects")
+        if hits.size == 0:
+            return 0.0
+        cut = shapely.clip_by_rect(self.pieces[hits], *box)
+        return float(shapely.length(cut).sum())
+
+
 def area_anchor(geom, tolerance: float):
     """The pole of inaccessibility of a (multi)polygon -- of its largest part -- within
     ``tolerance`` CRS units, and that part; for other geometries their representative point and
@@ -136,7 +187,8 @@ def _item(item) -> LabelItem:
 def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, height: int,
                  size_px: float, font: str = "DejaVu Sans", weight: str = "normal",
                  halo_px: float = 0.0, offset_px: float = 3.0,
-                 blocked: Iterable[tuple[float, float, float, float]] = ()) -> Placement:
+                 blocked: Iterable[tuple[float, float, float, float]] = (),
+                 avoid: LinesToAvoid | Iterable | None = None) -> Placement:
     """Place point labels on the whole canvas.
 
     items: :class:`LabelItem` or tuples ``(x, y, text[, priority])`` in CRS coordinates (a NaN
@@ -144,9 +196,15 @@ def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, h
 
     size_px: font size in pixels; halo_px: total halo width (the box grows by half of it on each
     side); offset_px: distance from the point to the text box; blocked: canvas pixel boxes
-    (col0, row0, col1, row1) no label may overlap (page furniture). Returns a :class:`Placement`.
+    (col0, row0, col1, row1) no label may overlap (page furniture); avoid: line features
+    (:class:`LinesToAvoid`, or shapely lines / polygons in CRS coordinates) point labels keep
+    off where a free position allows (see the module). Returns a :class:`Placement`.
     """
     items = [_item(it) for it in items]
+    if avoid is not None and not isinstance(avoid, LinesToAvoid):
+        avoid = LinesToAvoid(avoid, canvas_transform)
+    if avoid is not None and not len(avoid):
+        avoid = None
     order = sorted(range(len(items)), key=lambda i: -items[i].priority)  # stable for ties
     grid = BoxGrid()
     for box in blocked:
@@ -164,7 +222,7 @@ def place_labels(items: Iterable[tuple], canvas_transform: Affine, width: int, h
                 found = _inside_fit(shape, xy[i], item.area, canvas_transform, grow, width,
                                     height, grid)
             if found is None:
-                found = _first_fit(shape, xy[i], offset_px, grow, width, height, grid)
+                found = _first_fit(shape, xy[i], offset_px, grow, width, height, grid, avoid)
         if found is None:
             unplaced.append(item)
             continue
@@ -194,7 +252,8 @@ def _inside_fit(shape: TextShape, point, area, transform: Affine, grow: float, w
 
 
 def _first_fit(shape: TextShape, point, offset_px: float, grow: float, width: int, height: int,
-               grid: BoxGrid):
+               grid: BoxGrid, avoid: LinesToAvoid | None = None):
+    best, least = None, math.inf        # with ``avoid``: the free position crossing least
     for position, anchor, (ux, uy) in POSITIONS:
         fx, fy = ANCHORS[anchor]
         col = float(point[0]) + ux * offset_px
@@ -204,9 +263,16 @@ def _first_fit(shape: TextShape, point, offset_px: float, grow: float, width: in
         box = (left - grow, bottom - shape.height - grow, left + shape.width + grow, bottom + grow)
         if box[0] < 0 or box[1] < 0 or box[2] > width or box[3] > height:
             continue
-        if not grid.hits(box):
+        if grid.hits(box):
+            continue
+        if avoid is None:
             return position, anchor, col, row, box
-    return None
+        crossed = avoid.crossed(box)
+        if crossed <= 0.0:
+            return position, anchor, col, row, box
+        if crossed < least:
+            best, least = (position, anchor, col, row, box), crossed
+    return best
 
 
 def draw_labels(placement: Placement, window_transform: Affine, width: int, height: int

@@ -39,7 +39,7 @@ __all__ = [
     "RESAMPLING", "STRETCH", "SHAPES", "WEIGHTS", "NODATA_TRANSPARENT", "DEFAULT_TINT", "DEFAULT_STROKE",
     "DEFAULT_TEXT", "DEFAULT_HALO", "default_shadow",
     "Halo", "ReliefOptions", "FieldOptions", "ClassesOptions", "LineOptions", "AreaOptions",
-    "PointOptions", "LabelOptions", "LayerOptions", "LayerKind", "KindSchema", "LAYER_KINDS",
+    "PointOptions", "LabelOptions", "AVOIDABLE", "LayerOptions", "LayerKind", "KindSchema", "LAYER_KINDS",
     "LEGEND_ENTRIES", "MEASUREMENTS", "layer_kind", "layer_class",
 ]
 
@@ -109,6 +109,22 @@ def _halo_or_off(value: Any, at: Scope) -> Halo | None:
 
 def _no_filter() -> Mapping[str, tuple]:
     return MappingProxyType({})
+
+
+#: Layer kinds whose features a labels layer's ``avoid`` may name: lines, and areas (their
+#: outlines).
+AVOIDABLE = ("lines", "areas")
+
+
+def _layer_names(value: Any, at: Scope) -> tuple[str, ...]:
+    """A list of layer names (each once); whether they name layers is checked with the whole
+    style (:func:`compose.style.load.check_avoid`)."""
+    if not isinstance(value, list) or not all(isinstance(v, str) and v.strip() for v in value):
+        raise StyleError(f"{at.path} must be a list of layer names, got {value!r}")
+    twice = sorted({v for v in value if value.count(v) > 1})
+    if twice:
+        raise StyleError(f"{at.path}: {', '.join(repr(v) for v in twice)} named more than once")
+    return tuple(value)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -233,8 +249,10 @@ class LabelOptions:
     matplotlib knows; ``weight`` a name or 100-900. ``along``: names of line features follow
     their line glyph by glyph (upright, on a smooth stretch) every ``spacing`` points;
     ``follow`` (attribute -> accepted values, like ``where``): the pieces of the same table a
-    selected name may run along (default: the selected features themselves). Every label has a
-    halo unless ``halo = false``."""
+    selected name may run along (default: the selected features themselves). ``avoid``: names of
+    the style's lines (or areas: their outlines) layers whose features point labels keep off
+    where a free position allows (:func:`compose.layers.label_placement.place_labels`). Every
+    label has a halo unless ``halo = false``."""
 
     table: str | None = option(string(), None)
     where: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
@@ -249,6 +267,7 @@ class LabelOptions:
     along: bool = option(boolean(), False)
     follow: Mapping[str, tuple] = option(scalars(), factory=_no_filter)
     spacing: float = option(number(gt=0, le=MAX_POINTS), 250.0)
+    avoid: tuple[str, ...] = option(_layer_names, ())
 
 
 LayerOptions = (ReliefOptions | FieldOptions | ClassesOptions | LineOptions | AreaOptions

@@ -20,7 +20,7 @@ from typing import Any
 from compose.errors import StyleError
 from compose.limits import MAX_NESTING, MAX_STRING, MAX_STYLE_BYTES
 from compose.sources.guard import is_remote, read_regular_file
-from compose.style.kinds import LAYER_KINDS
+from compose.style.kinds import AVOIDABLE, LAYER_KINDS
 from compose.style.model import BLEND_MODES, BUDGET_TABLES, ROLES, Budgets, LayerSpec, MapSpec, RampTable, Style, Waiver
 from compose.style.overrides import Override, apply_overrides, series_members, substitute
 from compose.style.validate import (
@@ -311,6 +311,29 @@ def parse_layer(table: Mapping, ramps: Mapping[str, Any],
     )
 
 
+def check_avoid(layers: Sequence[LayerSpec], all_names: Sequence[str] = ()) -> None:
+    """A labels layer's ``avoid`` names enabled layers of a kind in
+    :data:`~compose.style.kinds.AVOIDABLE` (lines, areas), else a :class:`StyleError` with its
+    key path; ``all_names``: every layer of the style, the disabled ones too (named as such)."""
+    kinds = {spec.name: spec.kind for spec in layers}
+    for spec in layers:
+        names = getattr(spec.options, "avoid", ())
+        if spec.kind != "labels" or not names:
+            continue
+        path = Scope(f'layer "{spec.name}"').at("avoid").path
+        for name in names:
+            kind = kinds.get(name)
+            if kind in AVOIDABLE:
+                continue
+            known = [l.name for l in layers if l.kind in AVOIDABLE]
+            some = f"; lines and areas layers: {', '.join(known) if known else 'none'}"
+            if kind is not None:
+                raise StyleError(f'{path}: layer "{name}" is a {kind} layer; avoid needs a lines '
+                                 f"or areas layer{some}")
+            state = " (it is disabled)" if name in all_names else ""
+            raise StyleError(f'{path}: no enabled lines or areas layer named "{name}"{state}{some}')
+
+
 def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_map: bool,
            library: bool = True, variables: Mapping[str, str] | None = None) -> Style:
     top = files[-1]
@@ -354,6 +377,7 @@ def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_ma
         ramps = MappingProxyType(own)
     if require_map and not layers:
         raise StyleError("the style has no layers; add at least one [[layer]]")
+    check_avoid(layers, [str(t["name"]) for t in merged["layer"]])
     if spec is not None and spec.like is not None:
         like = next((l for l in layers if l.name == spec.like), None)
         if like is None:
