@@ -21,7 +21,7 @@ is answered by a :class:`RasterSource` opened on first use; a block whose decodi
 read by it too (its error message names GDAL's reason).
 
 Formats: TIFF 6.0 (Adobe, 1992: the file header, image file directories, strips and tiles,
-Predictor 2, deflate as compression 8 / 32946); Adobe Photoshop TIFF Technical Note 3 (1995:
+Predictor 2, deflate as compression 8 / 32946); TIFF Technical Note 3 (1995:
 Predictor 3, floating point: each row's bytes split into planes, most significant first, then
 differenced byte by byte); BigTIFF (the 16-byte header, 8-byte offsets and counts); the OGC
 GeoTIFF 1.1 standard (19-008r4: ModelPixelScale, ModelTiepoint, the GeoKey directory, its
@@ -221,7 +221,9 @@ class PlainTiff:
             elif key not in (1026, 2049):           # citations: names only
                 raise NotPlain(f"GeoKey {key}")
         citations = tags.get(34737, ("",))[0]
-        if "ESRI PE" in citations or "IMAGINE" in citations:      # a CRS GDAL reads from text
+        # a citation that defines a CRS ("... = PROJCS[...]", "Projection Name = ...") rather
+        # than naming it: GDAL reads the CRS from that text, so the EPSG code alone may not hold
+        if "=" in citations or "[" in citations:
             raise NotPlain("a CRS in a citation")
         model, raster = geo.get(1024), geo.get(1025, 1)
         if raster != 1:

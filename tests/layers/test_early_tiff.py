@@ -239,3 +239,24 @@ def test_a_draft_reads_the_same_report_with_or_without_gdal(tmp_path, monkeypatc
     monkeypatch.setattr(early_tiff, "plain_source", lambda *args: None)
     gdal = check(style_path, draft=True, cache=False).to_json(False)
     assert json.dumps(plain) == json.dumps(gdal)
+
+
+@pytest.mark.parametrize("text", [b"=", b"["])
+def test_a_citation_that_defines_the_crs_is_left_to_gdal(tmp_path, text):
+    """GeoTIFF 1.1 (OGC 19-008r4) GTCitationGeoKey holds text; GDAL writes the CRS's name there
+    ("WGS 84 / UTM zone 30N|WGS 84|"), but other writers put a definition ("... = PROJCS[...]")
+    that GDAL reads the CRS from. A citation with "=" or "[" is refused by the plain reader,
+    a name is kept (the file's bytes patched in place, same length)."""
+    from compose.layers.early_tiff import NotPlain, PlainTiff
+
+    data = _data("float32")
+    path = _write(tmp_path / "named.tif", data, tiled=True, blockxsize=32, blockysize=32,
+                  compress="deflate")
+    PlainTiff(path).close()                         # GDAL's own citation: a name
+    raw = path.read_bytes()
+    at = raw.find(b"WGS 84 / UTM zone 30N")
+    assert at > 0
+    patched = tmp_path / "defined.tif"
+    patched.write_bytes(raw[:at + 6] + text + raw[at + 7:])
+    with pytest.raises(NotPlain, match="citation"):
+        PlainTiff(patched).close()
