@@ -135,14 +135,16 @@ class CheckCache:
 
     def _avoided(self, spec) -> list | None:
         """What decides the features a labels layer keeps off (its ``avoid``): each avoided
-        layer's name, kind, source stamp and options without colours; None when a source cannot
-        be stat'ed (the layer reports its own error)."""
+        layer's name, kind, source stamp and options without colours (a disabled one is passed
+        over); None when a source cannot be stat'ed (the layer reports its own error)."""
         out: list[Any] = []
         by_name = {s.name: s for s in self.style.layers if s.enabled}
         for name in getattr(spec.options, "avoid", ()):
             other = by_name.get(name)
-            stamp = source_stamp(other.source) if other is not None else None
-            if other is None or stamp is None:
+            if other is None:           # disabled: passed over (not kept off)
+                continue
+            stamp = source_stamp(other.source)
+            if stamp is None:
                 return None
             out.append([name, other.kind, stamp,
                         plain(other.options, skip=COLOR_ONLY.get(other.kind, frozenset()))])

@@ -57,19 +57,22 @@ def _short(text: str) -> str:
 
 
 def _avoided(spec, context: Context) -> LinesToAvoid:
-    """The features of the layers a labels layer's ``avoid`` names (lines; areas' outlines), in
-    canvas pixels: each read as its own layer reads it (its source, table and ``where``) but not
-    simplified, in the canvas's CRS, cut to the canvas -- on a draft's canvas too (whose lines
-    layers read theirs simplified, or in the process of :mod:`compose.layers.early_marks`), so a
-    draft keeps off the same features as the full check."""
+    """The features of the enabled layers a labels layer's ``avoid`` names (lines; areas'
+    outlines; a disabled one is passed over), in canvas pixels: each read as its own layer
+    reads it (its source, table and ``where``) but not simplified, in the canvas's CRS, cut to
+    the canvas -- on a draft's canvas too (whose lines layers read theirs simplified, or in the
+    process of :mod:`compose.layers.early_marks`), so a draft keeps off the same features as
+    the full check."""
     style = context.style
     layers = {s.name: s for s in (style.layers if style is not None else ()) if s.enabled}
     geoms: list = []
     for name in spec.options.avoid:
         other = layers.get(name)
-        if other is None or other.kind not in AVOIDABLE:       # (checked when the style loads)
-            raise StyleError(f'layer "{spec.name}": avoid: no enabled lines or areas layer named '
-                             f'"{name}"')
+        if other is None:               # disabled: nothing drawn to keep off
+            continue
+        if other.kind not in AVOIDABLE:     # (checked when the style loads)
+            raise StyleError(f'layer "{spec.name}": avoid: layer "{name}" is a {other.kind} '
+                             f"layer; avoid needs a lines or areas layer")
         o = other.options
         source = VectorSource(other.source, layer=other.name, table=o.table, where=o.where)
         # cut to the canvas: label boxes lie inside it

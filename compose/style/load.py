@@ -312,9 +312,11 @@ def parse_layer(table: Mapping, ramps: Mapping[str, Any],
 
 
 def check_avoid(layers: Sequence[LayerSpec], all_names: Sequence[str] = ()) -> None:
-    """A labels layer's ``avoid`` names enabled layers of a kind in
+    """A labels layer's ``avoid`` names layers of a kind in
     :data:`~compose.style.kinds.AVOIDABLE` (lines, areas), else a :class:`StyleError` with its
-    key path; ``all_names``: every layer of the style, the disabled ones too (named as such)."""
+    key path. ``layers``: the enabled ones; ``all_names``: every layer of the style. A disabled
+    layer named is passed over (a style that extends another may turn one off, or
+    ``--set layer.NAME.enabled=false``): there is nothing drawn to keep off."""
     kinds = {spec.name: spec.kind for spec in layers}
     for spec in layers:
         names = getattr(spec.options, "avoid", ())
@@ -323,15 +325,14 @@ def check_avoid(layers: Sequence[LayerSpec], all_names: Sequence[str] = ()) -> N
         path = Scope(f'layer "{spec.name}"').at("avoid").path
         for name in names:
             kind = kinds.get(name)
-            if kind in AVOIDABLE:
+            if kind in AVOIDABLE or (kind is None and name in all_names):
                 continue
             known = [l.name for l in layers if l.kind in AVOIDABLE]
             some = f"; lines and areas layers: {', '.join(known) if known else 'none'}"
             if kind is not None:
                 raise StyleError(f'{path}: layer "{name}" is a {kind} layer; avoid needs a lines '
                                  f"or areas layer{some}")
-            state = " (it is disabled)" if name in all_names else ""
-            raise StyleError(f'{path}: no enabled lines or areas layer named "{name}"{state}{some}')
+            raise StyleError(f'{path}: no lines or areas layer named "{name}"{some}')
 
 
 def _build(merged: dict, origin: dict[str, Path], files: list[_File], require_map: bool,

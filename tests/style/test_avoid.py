@@ -52,10 +52,8 @@ def test_avoid_names_lines_and_areas_layers(style):
 
 
 @pytest.mark.parametrize("avoid, message", [
-    ('["roads", "rods"]', 'layer "town names": avoid: no enabled lines or areas layer named '
+    ('["roads", "rods"]', 'layer "town names": avoid: no lines or areas layer named '
                           '"rods"; lines and areas layers: roads, lakes'),
-    ('["tracks"]', 'layer "town names": avoid: no enabled lines or areas layer named "tracks" '
-                   '(it is disabled); lines and areas layers: roads, lakes'),
     ('["towns"]', 'layer "town names": avoid: layer "towns" is a points layer; avoid needs a '
                   'lines or areas layer; lines and areas layers: roads, lakes'),
     ('["town names"]', 'layer "town names": avoid: layer "town names" is a labels layer'),
@@ -67,6 +65,14 @@ def test_avoid_errors(style, avoid, message):
         load_style(style(LAYERS + f"avoid = {avoid}\n"))
     assert str(err.value).split("style.toml: ", 1)[1].startswith(message)
     assert "\n" not in str(err.value)
+
+
+def test_a_disabled_layer_named_is_passed_over(style):
+    """A style that extends another may turn off a layer its labels keep off (or
+    ``--set layer.NAME.enabled=false``): nothing is drawn there to keep off, so no error."""
+    s = load_style(style(LAYERS + 'avoid = ["roads", "tracks"]\n'))
+    (labels,) = [l for l in s.layers if l.kind == "labels"]
+    assert labels.options.avoid == ("roads", "tracks")
 
 
 def test_avoid_is_a_labels_key_only(style):
@@ -82,4 +88,4 @@ def test_the_command_exits_2(style):
 
     result = CliRunner().invoke(cli, ["check", str(style(LAYERS + 'avoid = ["rods"]\n'))])
     assert result.exit_code == 2
-    assert 'avoid: no enabled lines or areas layer named "rods"' in result.output
+    assert 'avoid: no lines or areas layer named "rods"' in result.output
