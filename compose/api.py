@@ -163,11 +163,9 @@ def _read_vectors_early(specs: list, draft=None, style: Style | None = None) -> 
     # the lines a labels layer keeps off (``avoid``), read whole as it reads them: on a draft
     # a read of their own (their layers read them simplified); on a full canvas the same read
     # as their layers' (started once; whichever layer is prepared first takes it)
-    others = {s.name: s for s in (style.layers if style is not None else ()) if s.enabled}
     for spec in specs:
-        for name in getattr(spec.options, "avoid", ()) if spec.kind == "labels" else ():
-            if name in others:
-                read_ahead(others[name])
+        for other in (style.avoided(spec) if style is not None else ()):
+            read_ahead(other)
     return True
 
 

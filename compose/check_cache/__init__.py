@@ -138,15 +138,11 @@ class CheckCache:
         layer's name, kind, source stamp and options without colours (a disabled one is passed
         over); None when a source cannot be stat'ed (the layer reports its own error)."""
         out: list[Any] = []
-        by_name = {s.name: s for s in self.style.layers if s.enabled}
-        for name in getattr(spec.options, "avoid", ()):
-            other = by_name.get(name)
-            if other is None:           # disabled: passed over (not kept off)
-                continue
+        for other in self.style.avoided(spec):
             stamp = source_stamp(other.source)
             if stamp is None:
                 return None
-            out.append([name, other.kind, stamp,
+            out.append([other.name, other.kind, stamp,
                         plain(other.options, skip=COLOR_ONLY.get(other.kind, frozenset()))])
         return out
 

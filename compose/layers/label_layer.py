@@ -63,16 +63,11 @@ def _avoided(spec, context: Context) -> LinesToAvoid:
     the canvas -- on a draft's canvas too (whose lines layers read theirs simplified, or in the
     process of :mod:`compose.layers.early_marks`), so a draft keeps off the same features as
     the full check."""
-    style = context.style
-    layers = {s.name: s for s in (style.layers if style is not None else ()) if s.enabled}
     geoms: list = []
-    for name in spec.options.avoid:
-        other = layers.get(name)
-        if other is None:               # disabled: nothing drawn to keep off
-            continue
+    for other in (context.style.avoided(spec) if context.style is not None else ()):
         if other.kind not in AVOIDABLE:     # (checked when the style loads)
-            raise StyleError(f'layer "{spec.name}": avoid: layer "{name}" is a {other.kind} '
-                             f"layer; avoid needs a lines or areas layer")
+            raise StyleError(f'layer "{spec.name}": avoid: layer "{other.name}" is a '
+                             f"{other.kind} layer; avoid needs a lines or areas layer")
         o = other.options
         source = VectorSource(other.source, layer=other.name, table=o.table, where=o.where)
         # cut to the canvas: label boxes lie inside it

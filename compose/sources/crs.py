@@ -147,6 +147,21 @@ def degree_extent_problem(crs: Any, extent) -> str | None:
             f"written in another CRS's units: give that CRS as map.extent_crs")
 
 
+def no_overlap_error(here: str, path: Any, source_box: str, canvas) -> Exception:
+    """The error of a source that misses the map: ``here`` (e.g. 'layer "coast"'), the file,
+    its box as text (``source_box``, with its CRS) and the map's box beside it; a
+    :class:`~compose.errors.StyleError` at map.extent instead when the map's extent is no
+    longitude / latitude range of its geographic CRS (:func:`degree_extent_problem`)."""
+    from compose.errors import SourceError, StyleError
+
+    problem = degree_extent_problem(canvas.crs, canvas.bounds)
+    if problem is not None:
+        return StyleError(problem)
+    box = ", ".join(f"{v:.6g}" for v in canvas.bounds)
+    return SourceError(f"{here}: {path} does not overlap the map extent ({source_box}; the "
+                       f"map's {box} in {canvas.crs})")
+
+
 def metre_projected(value: Any) -> bool:
     """True for a projected, non-compound CRS whose linear unit is exactly the metre (then
     a cell's size in metres is the transform's cell size, as pyproj's axis unit factor 1 gives);

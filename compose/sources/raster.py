@@ -56,7 +56,7 @@ from rasterio.windows import Window as RioWindow
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
 from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead, Region
-from compose.sources.crs import degree_extent_problem, metre_projected
+from compose.sources.crs import degree_extent_problem, metre_projected, no_overlap_error
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
 from compose.sources.resample import cut_block, grid_region, sample_grid
@@ -273,12 +273,9 @@ class RasterSource:
             w, s, e, n = moved
             if w < target[2] and e > target[0] and s < target[3] and n > target[1]:
                 return
-            if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
-                raise StyleError(problem)
-            west, south, east, north = (f"{v:.6g}" for v in self.bounds)
-            raise SourceError(f'layer "{self.layer}": {self.path} does not overlap the map extent '
-                              f"(source bounds {west}, {south}, {east}, {north} in {self.crs}; "
-                              f"the map's {', '.join(f'{v:.6g}' for v in canvas.bounds)} in {canvas.crs})")
+            box = ", ".join(f"{v:.6g}" for v in self.bounds)
+            raise no_overlap_error(f'layer "{self.layer}"', self.path,
+                                   f"source bounds {box} in {self.crs}", canvas)
         # neither direction computed: a geographic map's extent out of its range is still said
         if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
             raise StyleError(problem)

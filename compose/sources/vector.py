@@ -25,7 +25,7 @@ import shapely
 
 from compose.canvas import Canvas
 from compose.errors import SourceError, StyleError
-from compose.sources.crs import degree_extent_problem, plainly_usable, same_crs
+from compose.sources.crs import no_overlap_error, plainly_usable, same_crs
 from compose.sources.gpkg import only_table, open_table
 from compose.sources.guard import check_crs, check_source, refuse_driver
 
@@ -702,12 +702,9 @@ class VectorSource:
             filt = "".join(f" where {k} in {list(v)}" for k, v in self.where.items())
             raise SourceError(f'{here}: no features in table "{self.table}" of {self.path}{filt}')
         if not lines.overlaps(canvas.bounds):
-            if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
-                raise StyleError(problem)
-            west, south, east, north = (f"{v:.6g}" for v in lines.bounds)
-            raise SourceError(f"{here}: {self.path} does not overlap the map extent "
-                              f"(features span {west}, {south}, {east}, {north}; the map's "
-                              f"{', '.join(f'{v:.6g}' for v in canvas.bounds)}; both in {canvas.crs})")
+            box = ", ".join(f"{v:.6g}" for v in lines.bounds)
+            raise no_overlap_error(here, self.path, f"features span {box} in {canvas.crs}",
+                                   canvas)
 
     def load(self, crs) -> Features:
         """All kept features reprojected to ``crs`` (any CRS pyproj understands), cached per CRS.
@@ -761,12 +758,9 @@ class VectorSource:
             raise SourceError(f'{here}: no features in table "{self.table}" of {self.path}{filt}')
         hits = features.tree.query(shapely.box(*canvas.bounds), predicate="intersects")
         if hits.size == 0:
-            if (problem := degree_extent_problem(canvas.crs, canvas.bounds)) is not None:
-                raise StyleError(problem)
-            west, south, east, north = (f"{v:.6g}" for v in features.bounds)
-            raise SourceError(f"{here}: {self.path} does not overlap the map extent "
-                              f"(features span {west}, {south}, {east}, {north}; the map's "
-                              f"{', '.join(f'{v:.6g}' for v in canvas.bounds)}; both in {canvas.crs})")
+            box = ", ".join(f"{v:.6g}" for v in features.bounds)
+            raise no_overlap_error(here, self.path, f"features span {box} in {canvas.crs}",
+                                   canvas)
 
     def __repr__(self) -> str:
         return f"VectorSource({str(self.path)!r}, table={self.table!r}, layer={self.layer!r})"

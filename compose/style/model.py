@@ -307,6 +307,14 @@ class Style:
     series: tuple[Mapping[str, str], ...] = ()
     variables: Mapping[str, str] | None = None
 
+    def avoided(self, spec: LayerSpec) -> tuple[LayerSpec, ...]:
+        """The layers whose features the labels layer ``spec`` keeps off (its ``avoid``), in its
+        order; a name of a disabled layer is passed over (a loaded style holds enabled layers
+        only; the names were checked when it loaded, :func:`compose.style.load.check_avoid`)."""
+        names = getattr(spec.options, "avoid", ()) if spec.kind == "labels" else ()
+        by_name = {layer.name: layer for layer in self.layers}
+        return tuple(by_name[n] for n in names if n in by_name)
+
     def canvas(self) -> Canvas:
         """The output grid of ``[map]`` (see :func:`compose.style.grid.plan_canvas`); with a
         ``[page]``, the grid filling its map frame (:func:`compose.page.layout.style_canvas`)."""
