@@ -21,13 +21,17 @@ For every size it prints, from the same run:
     encoders' own work that ran beside the compute (the render's own timers); the layer
     previews' sums (an output of the HTML page, summed in the same walk) on a line of their own,
     not counted as statistics;
+  * the statistics' share window by window, the target's figure (3 walks in which every
+    window's paints are made once, then the window is composited without and with its measure
+    in alternating order on one thread: the machine's drift over seconds, which spreads whole
+    walks' differences by about 1 s here, cancels within a window);
   * window count independence of line drawing, and reprojected against aligned reads;
   * workers: compute with 1 thread, 2 threads (--workers 2), 2 worker processes and a 2-worker
     dask LocalCluster.
 Then the 1500 x 1500 demo style (render with all outputs, ``compose check`` cold and warm; medians
-of 5) and the start-up time of ``compose --help``. ``--statistics``: only the statistics' three
-figures, measured as above (the 1-worker bare render, the alternating pairs without floors between
-them, the walks timed inside), for A/B turns against another tree (PYTHONPATH).
+of 5) and the start-up time of ``compose --help``. ``--statistics``: only the statistics' four
+figures, measured as above (the 1-worker bare render, the windows paired, the alternating pairs
+without floors between them, the walks timed inside), for A/B turns against another tree (PYTHONPATH).
 
 Every render runs in a child process with compose's own settings (no GDAL cache or thread
 settings of ours; the compute-only and bare renders set the command's malloc settings,
@@ -314,7 +318,53 @@ if extra.pop("inside", False):
                 inside["gathered"] = inside.get("gathered", 0.0) + extra
         measure_mod.composite_flat_gathering = gathering
 t0 = time.perf_counter()
-if mode == "bare":
+if mode == "paired":
+    # the statistics' cost window by window: each window's paints made once (untimed), then
+    # the window composited without and with its measure, in alternating order, timed on this
+    # thread, and its statistics merged (timed); the machine's drift over seconds, which
+    # spreads whole walks' differences, cancels within a window's few milliseconds
+    from compose.engine import prepare, render_window
+    r = prepare(style)
+    try:
+        class Made:
+            # a window's paints, made before its timed composites (DrawAhead's interface)
+            window, by_layer = None, {}
+
+            def paints(self, window, li):
+                return self.by_layer[li] if window is self.window else None
+
+        made = Made()
+        plain_s = measured_s = merge_s = 0.0
+        sides = {}
+        total = None
+        for i, win in enumerate(r.windows()):
+            _, _, h, w = win.padded
+            transform = r.canvas.window_transform(win)
+            made.window = win
+            made.by_layer = {li: layer.paint(win, transform, h, w) for li, layer in enumerate(r.layers)}
+            order = (False, True) if i % 2 == 0 else (True, False)
+            for m in order:
+                t = time.thread_time()
+                res = render_window(r, win, measure=m, drawn=made)
+                dt = time.thread_time() - t
+                sides[(i % 2, m)] = sides.get((i % 2, m), 0.0) + dt
+                if m:
+                    measured_s += dt
+                    t = time.thread_time()
+                    if total is None:
+                        total = res.statistics
+                    else:
+                        total.merge(res.statistics)
+                    merge_s += time.thread_time() - t
+                else:
+                    plain_s += dt
+        result.update(plain=plain_s, measured=measured_s, merge=merge_s,
+                      sides={f"{k[0]}{int(k[1])}": v for k, v in sides.items()})
+        if inside:
+            result["inside"] = inside
+    finally:
+        r.close()
+elif mode == "bare":
     from compose.render import render_style
     res = render_style(style, out, overwrite=True, legend=False, check=True, html=False,
                        mapper=mapper, **extra)
@@ -329,7 +379,7 @@ else:                                   # compute only: every window, no outputs
             previews = LayerPreviews(r.canvas.width, r.canvas.height, len(r.layers),
                                      tuple(style.map.background),
                                      blends=[la.spec.blend for la in r.layers])
-        t1, c1 = time.perf_counter(), time.process_time()
+        t1, c1, th1 = time.perf_counter(), time.process_time(), time.thread_time()
         # the rows assembled into bands and handed to a sink, as a render's writers get them,
         # then dropped: with no sink at all the engine makes no bands (a check's walk), which a
         # render always pays for
@@ -341,6 +391,7 @@ else:                                   # compute only: every window, no outputs
             previews=previews, **extra)
         result["compute"] = time.perf_counter() - t1
         result["compute_cpu"] = time.process_time() - c1   # every thread of this process
+        result["compute_thread"] = time.thread_time() - th1    # the walk's own thread
         if inside:
             result["inside"] = inside
     finally:
@@ -401,18 +452,33 @@ def compute_floor_turn(folder: Path, size: int) -> float:
             + floors.lut_gather(size, 1) + floors.composite_planar(size, 1) + _read_floor(folder))
 
 
+def paired_walks(style: Path, out: Path, runs: int = 3) -> list[dict]:
+    """``runs`` walks of the "paired" task: every window composited without and with its
+    measure, alternately, in one process (see TASK)."""
+    return [task("paired", style, out) for _ in range(runs)]
+
+
 def statistics_lines(total: float, pairs: list[tuple[float, float]],
-                     cpu_pairs: list[tuple[float, float]], inside: dict, size: int) -> None:
-    """The statistics' three figures: the alternating pairs' wall and CPU differences and the
-    walks timed inside, each over ``total`` (the 1-worker bare render's wall time) of a
-    ``size`` x ``size`` canvas."""
+                     cpu_pairs: list[tuple[float, float]], inside: dict, size: int,
+                     paired: list[dict]) -> None:
+    """The statistics' figures: window by window (``paired``, the target's), the alternating
+    pairs' wall and CPU differences and the walks timed inside, each over ``total`` (the
+    1-worker bare render's wall time) of a ``size`` x ``size`` canvas."""
     from compose.check.stats import gray_stride
     step = gray_stride(size, size)
+    by_window = [p["measured"] - p["plain"] + p["merge"] for p in paired]
+    window_cost = statistics.median(by_window)
+    print(f"  statistics share, window by window              {100 * window_cost / total:6.1f} % "
+          f"of the 1-worker render (target <= 10 %; median of {len(paired)} walks, "
+          f"{window_cost:.2f} CPU-s: " + ", ".join(f"{c:.3f}" for c in by_window)
+          + "; each window's paints made once, then the window composited without and with its "
+          "measure in alternating order on one thread, plus the statistics' merges: the "
+          "machine's drift over seconds cancels within a window's milliseconds)")
     cost = statistics.median(m - p for p, m in pairs)
     cpu = statistics.median(m - p for p, m in cpu_pairs)
-    print(f"  statistics share                                {100 * cost / total:6.1f} % "
-          f"of the 1-worker render (target <= 10 %; median of {len(pairs)} alternating pairs' "
-          f"differences, {cost:.2f} s; pairs: "
+    print(f"  statistics share, whole walks                   {100 * cost / total:6.1f} % "
+          f"of the 1-worker render (median of {len(pairs)} alternating pairs of whole walks' "
+          f"differences, {cost:.2f} s, single differences spread by this machine's drift; pairs: "
           + ", ".join(f"{m - p:+.2f}" for p, m in pairs)
           + "; hierarchy statistics only: the bare render and this figure sum no previews)")
     print(f"  statistics share, CPU time                      {100 * cpu / total:6.1f} % "
@@ -446,8 +512,9 @@ def bench_statistics(folder: Path, size: int, quick: bool, n_pairs: int = 5) -> 
     insides = [task("measure", styles["aligned"], out, inside=True)["inside"] for _ in range(3)]
     inside = {k: statistics.median(i.get(k, 0.0) for i in insides)
               for k in ("measure", "overlay", "gray", "gathered")}
+    paired = paired_walks(styles["aligned"], out, runs=3)
     print(f"  bare render, 1 worker                           {total:6.2f} s wall")
-    statistics_lines(total, pairs, cpu_pairs, inside, size)
+    statistics_lines(total, pairs, cpu_pairs, inside, size, paired)
 
 
 def bench_size(folder: Path, size: int, n_lines: int, quick: bool, n_pairs: int = 5) -> None:
@@ -534,6 +601,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool, n_pairs: int 
     insides = [task("measure", styles["aligned"], out, inside=True)["inside"] for _ in range(3)]
     inside = {k: statistics.median(i.get(k, 0.0) for i in insides)
               for k in ("measure", "overlay", "gray", "gathered")}
+    paired = paired_walks(styles["aligned"], out, runs=3)
     floors_sum = compute_floor + encode_floor
     own1, own2 = bare1.get("seconds", {}), bare2.get("seconds", {})
     print("floors on the rendered pixels")
@@ -573,7 +641,7 @@ def bench_size(folder: Path, size: int, n_lines: int, quick: bool, n_pairs: int 
     print(f"  compute alone, CPU time of every thread          measuring {cpu_m:.2f} CPU-s, not "
           f"measuring {cpu_p:.2f} CPU-s (medians of the same turns: 1 window thread, and the "
           f"threads the walk starts beside it, e.g. its raster reads)")
-    statistics_lines(total, pairs, cpu_pairs, inside, size)
+    statistics_lines(total, pairs, cpu_pairs, inside, size, paired)
     print(f"  compute with statistics and the HTML page's layer previews {with_previews:6.2f} s: "
           f"previews' sums {with_previews - measured:.2f} s = "
           f"{100 * (with_previews - measured) / total:.1f} % of the 1-worker render (an output of "
