@@ -125,6 +125,19 @@ SAMPLE_CACHE_BYTES = 4 << 20
 DECIMATE_BLOCKS = 64
 
 
+def distinct(a: np.ndarray) -> np.ndarray:
+    """The distinct values of ``a`` (integers, any shape), ascending, (n,): as ``np.unique(a)``,
+    which in numpy 2.4 asks ``np.ma`` whether ``a`` is masked, importing numpy.ma on first use
+    (about 6 ms of a draft's start, on its reading thread)."""
+    s = np.sort(a, axis=None)
+    if s.size < 2:
+        return s
+    keep = np.empty(s.size, bool)
+    keep[0] = True
+    np.not_equal(s[1:], s[:-1], out=keep[1:])
+    return s[keep]
+
+
 def _coprime_step(m: int) -> int:
     """A step coprime with ``m`` near m / 2.618 (the golden ratio squared), so the blocks a
     block row samples move along the row from one block row to the next and every block column
@@ -360,7 +373,7 @@ class BlockSample:
         bh, bw = self.block
         for (b_row, b_col) in sorted(tasks):
             br, bc = b_row * bh, b_col * bw
-            need = np.unique(np.concatenate([lo[rows_i] for rows_i, _ in tasks[(b_row, b_col)]]))
+            need = distinct(np.concatenate([lo[rows_i] for rows_i, _ in tasks[(b_row, b_col)]]))
             block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc), need - br)
             for rows_i, js in tasks[(b_row, b_col)]:
                 cut_out = block.take(lo[rows_i] - br, axis=0).take(fc[rows_i[0], js] - bc, axis=1)
@@ -424,7 +437,7 @@ class BlockSample:
         rest = set(zip((blk_r.ravel()[idx]).tolist(), (blk_c.ravel()[idx]).tolist()))
         for (b_row, b_col) in sorted(tasks):
             br, bc = b_row * bh, b_col * bw
-            need = None if (b_row, b_col) in rest else np.unique(np.concatenate(
+            need = None if (b_row, b_col) in rest else distinct(np.concatenate(
                 [lo[rows_i] for rows_i, _ in tasks[(b_row, b_col)]])[:, None] + step) - br
             block = self.source_block(br, bc, min(bh, fh - br), min(bw, fw - bc), need)
             if (b_row, b_col) in rest:

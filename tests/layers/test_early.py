@@ -498,3 +498,34 @@ def test_a_sampled_draft_of_a_map_changing_by_region_stays_near_the_full_check(t
                              ("relief-shift", "field", 0.06), ("overlay-contrast", "lines", 0.03)):
         (f,), (g,) = full.rule(rule, layer), draft.rule(rule, layer)
         assert np.allclose(g.value, f.value, atol=tol, rtol=0), (rule, f.value, g.value)
+
+
+def test_distinct_is_numpys_unique():
+    # numpy's own np.unique is the reference; distinct only avoids its first-use import of
+    # numpy.ma (a draft's start: about 6 ms on its reading thread)
+    from compose.layers.early import distinct
+
+    rng = np.random.default_rng(7)
+    for a in (np.array([], np.int64), np.array([5]), rng.integers(-3, 9, 40),
+              rng.integers(0, 512, (7, 11)), np.arange(10)[::-1]):
+        got = distinct(a)
+        want = np.unique(a)
+        assert got.dtype == want.dtype and np.array_equal(got, want)
+
+
+def test_distinct_imports_no_numpy_ma_where_np_unique_does():
+    # the draft's reading thread sorts block rows; numpy.ma is not needed for it
+    import subprocess
+    import sys
+
+    def imports_ma(call: str) -> bool:
+        code = (f"import sys, compose.layers.early as e, numpy as np; {call}; "
+                "print('numpy.ma' in sys.modules)")
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                             check=True)
+        return out.stdout.strip() == "True"
+
+    assert not imports_ma("e.distinct(np.array([3, 1, 3]))")
+    # the control: this numpy's np.unique does (else the test above proves nothing)
+    assert imports_ma("np.unique(np.array([3, 1, 3]))") == ("is_masked" in __import__(
+        "inspect").getsource(np.lib._arraysetops_impl._unique1d))
