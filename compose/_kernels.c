@@ -1711,61 +1711,6 @@ done:
     return result;
 }
 
-PyDoc_STRVAR(bilinear_doc,
-"bilinear(flat, base, dx, dy, bw, out)\n\n"
-"compose.sources.resample.sample_centres' plain bilinear read in one pass: flat (n,) float32\n"
-"cells of a block bw wide, base (m,) intp flat index of each position's first tap, dx, dy (m,)\n"
-"float32 fractions in [0, 1); out (m,) float32 gets resample._lerp2's float32 steps of the 4\n"
-"taps (the same operations in the same order). ValueError if a tap lies outside flat.");
-
-static PyObject *bilinear(PyObject *self, PyObject *args) {
-    PyObject *flat_o, *base_o, *dx_o, *dy_o, *out_o;
-    Py_ssize_t bw;
-    if (!PyArg_ParseTuple(args, "OOOOnO", &flat_o, &base_o, &dx_o, &dy_o, &bw, &out_o)) return NULL;
-    Arr fl = {0}, ba = {0}, dxa = {0}, dya = {0}, out = {0};
-    PyObject *result = NULL;
-    if (take(flat_o, &fl, 1, K_F32, 0, 0, "flat") < 0
-        || take(base_o, &ba, 1, K_INT, 0, 0, "base") < 0
-        || take(dx_o, &dxa, 1, K_F32, 0, 0, "dx") < 0
-        || take(dy_o, &dya, 1, K_F32, 0, 0, "dy") < 0
-        || take(out_o, &out, 1, K_F32, 1, 0, "out") < 0)
-        goto done;
-    Py_ssize_t n = fl.b.shape[0], m = ba.b.shape[0];
-    if (ba.b.itemsize != 8 || ba.kind != K_INT || dxa.b.shape[0] != m || dya.b.shape[0] != m
-        || out.b.shape[0] != m || bw < 1
-        || fl.b.strides[0] != 4 || ba.b.strides[0] != 8 || dxa.b.strides[0] != 4
-        || dya.b.strides[0] != 4 || out.b.strides[0] != 4) {
-        PyErr_SetString(PyExc_ValueError, "bilinear: shapes, types or strides do not fit");
-        goto done;
-    }
-    const float *restrict f = (const float *)fl.b.buf;
-    const int64_t *restrict b = (const int64_t *)ba.b.buf;
-    const float *restrict fx = (const float *)dxa.b.buf, *restrict fy = (const float *)dya.b.buf;
-    float *restrict o = (float *)out.b.buf;
-    int outside = 0;
-    Py_BEGIN_ALLOW_THREADS
-    const int64_t last = (int64_t)n - (int64_t)bw - 2;   /* the largest first tap inside flat */
-    for (Py_ssize_t i = 0; i < m; i++) {
-        const int64_t k = b[i];
-        if (k < 0 || k > last) { outside = 1; break; }
-        float ta = f[k], tb = f[k + 1], tc = f[k + bw], td = f[k + bw + 1];
-        tb -= ta; tb *= fx[i]; ta += tb;              /* resample._lerp2, step for step */
-        td -= tc; td *= fx[i]; tc += td;
-        tc -= ta; tc *= fy[i];
-        o[i] = ta + tc;
-    }
-    Py_END_ALLOW_THREADS
-    if (outside) {
-        PyErr_SetString(PyExc_ValueError, "bilinear: a tap lies outside the cells");
-        goto done;
-    }
-    Py_INCREF(Py_None);
-    result = Py_None;
-done:
-    drop(&fl); drop(&ba); drop(&dxa); drop(&dya); drop(&out);
-    return result;
-}
-
 /* ==== lean: reprojected reads (compose.sources.grid, compose.sources.resample) ==============
  * A reprojected window's positions and its plain bilinear read without the GIL (the walk's
  * read-ahead thread makes them while Agg holds the GIL in the window thread): grid_interp is
@@ -2619,7 +2564,6 @@ done:
 }
 
 static PyMethodDef methods[] = {
-    {"bilinear", bilinear, METH_VARARGS, bilinear_doc},
     /* lean: reprojected reads */
     {"grid_interp", grid_interp, METH_VARARGS, grid_interp_doc},
     {"span", span, METH_VARARGS, span_doc},

@@ -826,10 +826,3 @@ def test_bilinear_read_equals_the_numpy_path_bit_for_bit(use, holes, reach):
     assert np.isfinite(got[False]).any()
     if holes or reach == "outside":
         assert np.isnan(got[False]).any()
-
-
-def test_bilinear_kernel_refuses_taps_outside_its_cells(compiled):
-    flat = np.zeros(12, np.float32)
-    d = np.zeros(1, np.float32)
-    with pytest.raises(ValueError):
-        compiled.bilinear(flat, np.array([8], np.intp), d, d, 3, np.empty(1, np.float32))
