@@ -47,7 +47,7 @@ from compose.sources.grid import forget_recent
 from compose.sources.guard import gdal_cache
 from compose.sources.resample import forget_taps
 
-__all__ = ["BlockPlan", "ReadAhead", "Region", "MAX_BLOCK_CELLS", "PLANNED_GDAL_CACHE",
+__all__ = ["cells_by_block", "BlockPlan", "ReadAhead", "Region", "MAX_BLOCK_CELLS", "PLANNED_GDAL_CACHE",
            "READ_AHEAD", "planned_walk", "planned"]
 
 #: (row, col, height, width) of a read, in source cells, as asked for (may reach outside)
@@ -374,3 +374,34 @@ def planned(layers, canvas, windows, results: Iterable) -> Iterator:
                 trim()
             yield res
     trim()
+
+
+def cells_by_block(rows, cols, shape: tuple[int, int], block: tuple[int, int],
+                   cells: Callable[[int, int, int, int], np.ndarray]) -> np.ndarray:
+    """float32 values of a source's cells (rows, cols) (integer arrays of one shape; outside the
+    source's ``shape`` (height, width): NaN), each block of ``block`` (rows, columns) cells that
+    holds one of them read once, whole, by ``cells(row, col, height, width)`` (float32 (height,
+    width) of the cells from (row, col)). :meth:`RasterSource.cells_at
+    <compose.sources.raster.RasterSource.cells_at>` and the plain GeoTIFF reader's
+    (:class:`compose.layers.early_tiff.PlainSource`) read this way."""
+    rows = np.asarray(rows, np.int64)
+    cols = np.asarray(cols, np.int64)
+    out = np.full(rows.shape, np.nan, np.float32)
+    H, W = shape
+    ok = (rows >= 0) & (rows < H) & (cols >= 0) & (cols < W)
+    if not ok.any():
+        return out
+    bh, bw = block
+    flat = np.flatnonzero(ok.ravel())
+    r, c = rows.ravel()[flat], cols.ravel()[flat]
+    bid = (r // bh) * (-(-W // bw)) + c // bw
+    order = np.argsort(bid, kind="stable")
+    flat, r, c, bid = flat[order], r[order], c[order], bid[order]
+    starts = np.flatnonzero(np.r_[True, bid[1:] != bid[:-1]])
+    ends = np.r_[starts[1:], bid.size]
+    dest = out.ravel()
+    for s0, s1 in zip(starts, ends):
+        br, bc = int(r[s0]) // bh * bh, int(c[s0]) // bw * bw
+        block_values = cells(br, bc, min(bh, H - br), min(bw, W - bc))
+        dest[flat[s0:s1]] = block_values[r[s0:s1] - br, c[s0:s1] - bc]
+    return out

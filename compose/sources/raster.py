@@ -477,27 +477,10 @@ class RasterSource:
     def cells_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """float32 values of the source cells (rows, cols) (integer arrays of one shape; outside
         the source: NaN), read a whole block at a time, each block needed decoded once."""
-        rows = np.asarray(rows, np.int64)
-        cols = np.asarray(cols, np.int64)
-        out = np.full(rows.shape, np.nan, np.float32)
-        H, W = self._ds.height, self._ds.width
-        ok = (rows >= 0) & (rows < H) & (cols >= 0) & (cols < W)
-        if not ok.any():
-            return out
-        bh, bw = self.block_shape
-        flat = np.flatnonzero(ok.ravel())
-        r, c = rows.ravel()[flat], cols.ravel()[flat]
-        bid = (r // bh) * (-(-W // bw)) + c // bw
-        order = np.argsort(bid, kind="stable")
-        flat, r, c, bid = flat[order], r[order], c[order], bid[order]
-        starts = np.flatnonzero(np.r_[True, bid[1:] != bid[:-1]])
-        ends = np.r_[starts[1:], bid.size]
-        dest = out.ravel()
-        for s0, s1 in zip(starts, ends):
-            br, bc = int(r[s0]) // bh * bh, int(c[s0]) // bw * bw
-            block = self._cells(br, bc, min(bh, H - br), min(bw, W - bc))
-            dest[flat[s0:s1]] = block[r[s0:s1] - br, c[s0:s1] - bc]
-        return out
+        from compose.sources.blocks import cells_by_block
+
+        return cells_by_block(rows, cols, (self._ds.height, self._ds.width), self.block_shape,
+                              self._cells)
 
     # --- planned reads (compose.sources.blocks) ----------------------------------------------
     def plan(self, canvas: Canvas | None, windows: list[Window] = (),
