@@ -335,7 +335,6 @@ if mode == "paired":
 
         made = Made()
         plain_s = measured_s = merge_s = 0.0
-        sides = {}
         total = None
         for i, win in enumerate(r.windows()):
             _, _, h, w = win.padded
@@ -347,7 +346,6 @@ if mode == "paired":
                 t = time.thread_time()
                 res = render_window(r, win, measure=m, drawn=made)
                 dt = time.thread_time() - t
-                sides[(i % 2, m)] = sides.get((i % 2, m), 0.0) + dt
                 if m:
                     measured_s += dt
                     t = time.thread_time()
@@ -358,8 +356,7 @@ if mode == "paired":
                     merge_s += time.thread_time() - t
                 else:
                     plain_s += dt
-        result.update(plain=plain_s, measured=measured_s, merge=merge_s,
-                      sides={f"{k[0]}{int(k[1])}": v for k, v in sides.items()})
+        result.update(plain=plain_s, measured=measured_s, merge=merge_s)
         if inside:
             result["inside"] = inside
     finally:
@@ -379,7 +376,7 @@ else:                                   # compute only: every window, no outputs
             previews = LayerPreviews(r.canvas.width, r.canvas.height, len(r.layers),
                                      tuple(style.map.background),
                                      blends=[la.spec.blend for la in r.layers])
-        t1, c1, th1 = time.perf_counter(), time.process_time(), time.thread_time()
+        t1, c1 = time.perf_counter(), time.process_time()
         # the rows assembled into bands and handed to a sink, as a render's writers get them,
         # then dropped: with no sink at all the engine makes no bands (a check's walk), which a
         # render always pays for
@@ -391,7 +388,6 @@ else:                                   # compute only: every window, no outputs
             previews=previews, **extra)
         result["compute"] = time.perf_counter() - t1
         result["compute_cpu"] = time.process_time() - c1   # every thread of this process
-        result["compute_thread"] = time.thread_time() - th1    # the walk's own thread
         if inside:
             result["inside"] = inside
     finally:

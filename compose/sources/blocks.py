@@ -47,8 +47,8 @@ from compose.sources.grid import forget_recent
 from compose.sources.guard import gdal_cache
 from compose.sources.resample import forget_taps
 
-__all__ = ["cells_by_block", "BlockPlan", "ReadAhead", "Region", "MAX_BLOCK_CELLS", "PLANNED_GDAL_CACHE",
-           "READ_AHEAD", "planned_walk", "planned"]
+__all__ = ["BlockPlan", "ReadAhead", "Region", "MAX_BLOCK_CELLS", "PLANNED_GDAL_CACHE",
+           "READ_AHEAD", "planned_walk", "planned", "cells_by_block"]
 
 #: (row, col, height, width) of a read, in source cells, as asked for (may reach outside)
 Region = tuple[int, int, int, int]

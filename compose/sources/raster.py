@@ -55,7 +55,7 @@ from rasterio.windows import Window as RioWindow
 
 from compose.canvas import Canvas, Window
 from compose.errors import SourceError, StyleError
-from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead, Region
+from compose.sources.blocks import MAX_BLOCK_CELLS, BlockPlan, ReadAhead, Region, cells_by_block
 from compose.sources.crs import degree_extent_problem, metre_projected, no_overlap_error
 from compose.sources.grid import transform_grid
 from compose.sources.guard import check_crs, check_source, gdal_name, refuse_driver
@@ -477,8 +477,6 @@ class RasterSource:
     def cells_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """float32 values of the source cells (rows, cols) (integer arrays of one shape; outside
         the source: NaN), read a whole block at a time, each block needed decoded once."""
-        from compose.sources.blocks import cells_by_block
-
         return cells_by_block(rows, cols, (self._ds.height, self._ds.width), self.block_shape,
                               self._cells)
 
