@@ -136,15 +136,7 @@ class LinesToAvoid:
                 geoms = np.concatenate([geoms[~polys],
                                         shapely.get_parts(shapely.boundary(geoms[polys]))])
             geoms = geoms[np.isin(shapely.get_type_id(geoms), (1, 2))]   # (Multi)LineString parts
-        pieces = []
-        for geom in geoms:
-            xy = shapely.get_coordinates(geom)
-            if len(xy) < 2:
-                continue
-            px = to_pixels(xy, transform)
-            for start in range(0, len(px) - 1, _PIECE):
-                pieces.append(shapely.LineString(px[start:start + _PIECE + 1]))
-        self.pieces = np.asarray(pieces, dtype=object).reshape(-1)
+        self.pieces = _pieces(geoms, transform)
         self.tree = shapely.STRtree(self.pieces)
 
     def __len__(self) -> int:
@@ -160,6 +152,36 @@ class LinesToAvoid:
             return 0.0
         cut = shapely.clip_by_rect(self.pieces[hits], *box)
         return float(shapely.length(cut).sum())
+
+
+def _pieces(lines: np.ndarray, transform: Affine) -> np.ndarray:
+    """Each line of ``lines`` (shapely LineStrings / LinearRings, CRS of ``transform``) in canvas
+    pixels, cut into pieces of :data:`_PIECE` segments (the last of a line fewer), each piece's
+    first vertex the last of the one before; lines of fewer than 2 vertices are dropped. All
+    in bulk: a line's vertex k starts piece k // _PIECE (k < n - 1) and, every _PIECE vertices,
+    ends the piece before too (taken twice, in place: no sort)."""
+    import shapely
+
+    if not len(lines):
+        return np.empty(0, dtype=object)
+    xy, line = shapely.get_coordinates(lines, return_index=True)
+    counts = np.bincount(line, minlength=len(lines))
+    first = np.concatenate(([0], np.cumsum(counts)[:-1]))
+    n = counts[line]                                # vertices of each vertex's line
+    keep = n >= 2
+    xy, line, n = xy[keep], line[keep], n[keep]
+    k = np.arange(len(line)) - first[line]          # the vertex's place in its line
+    piece = np.where(k <= n - 2, k // _PIECE, (k - 1) // _PIECE)
+    # each line's pieces numbered after the pieces of the lines before it
+    per_line = np.where(counts >= 2, (counts - 2) // _PIECE + 1, 0)
+    start = np.concatenate(([0], np.cumsum(per_line)[:-1]))
+    # a vertex that also ends the piece before comes twice: first for that piece, then its own
+    ends = (k % _PIECE == 0) & (k >= 1) & (k <= n - 2)
+    reps = 1 + ends
+    px = np.repeat(to_pixels(xy, transform), reps, axis=0)
+    pid = np.repeat(start[line] + piece, reps)
+    pid[(np.cumsum(reps) - reps)[ends]] -= 1
+    return np.asarray(shapely.linestrings(px, indices=pid), dtype=object).reshape(-1)
 
 
 def area_anchor(geom, tolerance: float):

@@ -183,3 +183,27 @@ def _coast(data, canvas):
     from compose.sources.vector import VectorSource
 
     return VectorSource(data["coast"], layer="coast").load(canvas.crs).geometries
+
+
+def test_lines_to_avoid_cut_in_bulk_as_line_by_line():
+    # the pieces made in bulk are those of cutting each line alone every _PIECE segments,
+    # vertex for vertex: lines of 1 to 70 vertices (around the piece size), a ring, a point
+    import shapely
+    from affine import Affine
+
+    from compose.layers.label_placement import _PIECE, LinesToAvoid
+    from compose.layers.paths import to_pixels
+
+    transform = Affine(2.0, 0.0, 10.0, 0.0, -2.0, 300.0)
+    lines = [shapely.LineString(np.c_[np.arange(n) * 1.5, np.sqrt(np.arange(n)) * 7])
+             for n in (2, 3, _PIECE, _PIECE + 1, _PIECE + 2, 2 * _PIECE, 2 * _PIECE + 1, 70)]
+    lines.append(shapely.LinearRing([(0, 0), (5, 0), (5, 5), (0, 0)]))
+    lines.append(shapely.Point(3, 3))               # no line: left out
+    want = []
+    for line in lines[:-1]:
+        px = to_pixels(shapely.get_coordinates(line), transform)
+        want += [px[s:s + _PIECE + 1] for s in range(0, len(px) - 1, _PIECE)]
+    got = LinesToAvoid(lines, transform).pieces
+    assert len(got) == len(want)
+    for piece, coords in zip(got, want, strict=True):
+        np.testing.assert_array_equal(shapely.get_coordinates(piece), coords)
